@@ -1,0 +1,43 @@
+"""Exceptions and warnings raised by curvespeed.
+
+The library raises; only the command-line layer turns these into messages and exit codes.
+Every message says what is wrong, where (file, line, point index or station) and what to do.
+"""
+
+from __future__ import annotations
+
+
+class CurvespeedError(Exception):
+    """Root of every error curvespeed raises on purpose."""
+
+
+class RouteFormatError(CurvespeedError, ValueError):
+    """A route file cannot be read: wrong header, bad value, unsupported structure."""
+
+
+class RouteGeometryError(CurvespeedError, ValueError):
+    """The points were read but do not form a drivable path (too few points, a reversal)."""
+
+
+class LimitsError(CurvespeedError, ValueError):
+    """A limits file or a limit given on the command line is invalid."""
+
+
+class SpeedFileError(CurvespeedError, ValueError):
+    """A speed trace or profile file given for checking or export cannot be used."""
+
+
+class InfeasibleError(CurvespeedError, RuntimeError):
+    """No speed profile satisfies the limits and route constraints as given."""
+
+
+class SolverError(CurvespeedError, RuntimeError):
+    """A numerical solver failed or returned an answer the verifier refuses."""
+
+
+class OutputError(CurvespeedError, OSError):
+    """An output file cannot be written (exists without --force, folder missing, ...)."""
+
+
+class CurvespeedWarning(UserWarning):
+    """Something was repaired or assumed; the result is usable but the input deserves a look."""

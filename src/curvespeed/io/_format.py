@@ -1,0 +1,77 @@
+"""Deterministic number formatting for CSV output, shared by every writer.
+
+Numbers are written with Python's ``format`` (correctly rounded, identical on every platform)
+using fixed format specifications per quantity, so a file written twice from the same arrays is
+byte-identical. A value that rounds to zero is written without a minus sign ("-0.0000" becomes
+"0.0000"), so round-off noise of either sign gives the same text. Non-finite values are written
+as Python spells them (``nan``, ``inf``, ``-inf``).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+
+import numpy as np
+
+#: Lengths, positions, stations and elevations, metres: 0.1 mm.
+METRES = ".4f"
+#: Headings and other angles, radians: 1e-7 rad.
+RADIANS = ".7f"
+#: Curvature, 1/m: fixed 1e-9 1/m (0.1 % of a 1000 km radius). Fixed rather than significant
+#: digits so the round-off noise on straights (|curvature| ~ 1e-17) prints as 0.000000000
+#: instead of platform-dependent digits.
+CURVATURE = ".9f"
+#: Grade (rise over run) and other dimensionless ratios: 1e-6.
+RATIO = ".6f"
+#: Latitude and longitude, degrees: 1e-9 deg (about 0.1 mm).
+DEGREES = ".9f"
+
+
+def format_column(values, spec: str) -> list[str]:
+    """Format every value of a 1-D array with ``spec`` (a ``format`` specification)."""
+    cells = [format(v, spec) for v in np.asarray(values).ravel().tolist()]
+    return [_drop_negative_zero(c) for c in cells]
+
+
+def format_columns(columns: Mapping[str, tuple[object, str]]) -> str:
+    """CSV text (header line, then one line per row, ``\\n`` line ends) from named columns.
+
+    Parameters
+    ----------
+    columns : mapping of str to (array, str)
+        Column name -> (values, format specification such as :data:`METRES`), in output order.
+        All arrays must have the same length.
+
+    Returns
+    -------
+    str
+        The whole file content, ending with a newline.
+
+    Raises
+    ------
+    ValueError
+        Columns of different lengths, or a name or text cell (``s`` format) that would break
+        the CSV (comma, quote or line break in it).
+    """
+    names = list(columns)
+    cells = [format_column(values, spec) for values, spec in columns.values()]
+    lengths = {len(c) for c in cells}
+    if len(lengths) > 1:
+        sizes = ", ".join(f"{n}={len(c)}" for n, c in zip(names, cells))
+        raise ValueError(f"columns have different lengths ({sizes})")
+    text_cells = [c for col, (_, spec) in zip(cells, columns.values()) if spec.endswith("s")
+                  for c in col]
+    for text in names + text_cells:
+        if any(ch in text for ch in ',"\n\r'):
+            raise ValueError(f"{text!r} contains a comma, quote or line break")
+    lines = [",".join(names)]
+    lines.extend(",".join(row) for row in zip(*cells))
+    return "\n".join(lines) + "\n"
+
+
+def _drop_negative_zero(cell: str) -> str:
+    if cell.startswith("-"):
+        mantissa = cell[1:].split("e")[0].split("E")[0]
+        if mantissa and set(mantissa) <= {"0", "."}:
+            return cell[1:]
+    return cell

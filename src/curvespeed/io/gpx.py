@@ -1,0 +1,205 @@
+"""Read a route from a GPX file (GPX 1.1, also GPX 1.0 and files without a namespace).
+
+The route is the first track that has points, its segments (``trk/trkseg/trkpt``) joined in
+file order; without track points, the first route (``rte/rtept``). Other tracks and routes are
+ignored with a warning. Per point:
+
+* ``lat``/``lon`` attributes, WGS84 degrees (required);
+* ``ele``, metres: kept only if every point has one (otherwise dropped with a warning);
+* ``time``, ISO 8601 (``2026-05-01T10:00:00Z``, with an offset or fractional seconds; a time
+  without a zone is taken as UTC, as GPX specifies): kept as seconds from the first point only
+  if every point has one (otherwise dropped with a warning).
+
+Parsing goes through :mod:`defusedxml`, which refuses entity declarations (entity expansion
+bombs, external entities) before anything is expanded or fetched. The XML parser reads the raw
+bytes so the file's own encoding declaration is honoured. Points are labelled ``trkpt N`` or
+``rtept N`` (1-based, counted across the segments of the track used).
+"""
+
+from __future__ import annotations
+
+import warnings
+import xml.etree.ElementTree as ET
+from datetime import datetime, timezone
+
+import defusedxml.ElementTree as DefusedET
+from defusedxml import DefusedXmlException, EntitiesForbidden, ExternalReferenceForbidden
+
+import numpy as np
+
+from ..errors import CurvespeedWarning
+from ..route import Route, make_route
+from ._common import (fail, latlon_range_problem, number_problem, parse_number,
+                      project_latlon, swapped_would_fit)
+
+#: GPX namespaces accepted, with the version each stands for ("" is a file without namespace).
+GPX_NAMESPACES = {
+    "http://www.topografix.com/GPX/1/1": "GPX 1.1",
+    "http://www.topografix.com/GPX/1/0": "GPX 1.0",
+    "": "GPX without namespace",
+}
+
+
+def parse_route_gpx(data: bytes, source: str) -> Route:
+    """Build a :class:`~curvespeed.route.Route` from the bytes of a GPX file.
+
+    Parameters
+    ----------
+    data : bytes
+        Whole file content, undecoded (the XML declaration names its encoding).
+    source : str
+        File name used in messages and stored on the route.
+
+    Raises
+    ------
+    RouteFormatError
+        Malformed XML, entity declarations, not a GPX document, no points, a missing or bad
+        coordinate, elevation or time.
+    RouteGeometryError
+        From :func:`~curvespeed.route.make_route`: fewer than three distinct points, a reversal.
+    """
+    root = _parse_xml(data, source)
+    ns = _gpx_namespace(root, source)
+
+    def q(name: str) -> str:
+        return f"{{{ns}}}{name}" if ns else name
+
+    tracks = [(trk, [pt for seg in trk.findall(q("trkseg")) for pt in seg.findall(q("trkpt"))])
+              for trk in root.findall(q("trk"))]
+    routes = [(rte, rte.findall(q("rtept"))) for rte in root.findall(q("rte"))]
+    tracks = [(el, pts) for el, pts in tracks if pts]
+    routes = [(el, pts) for el, pts in routes if pts]
+    if tracks:
+        kind, (chosen, points) = "trkpt", tracks[0]
+        ignored = {"track": len(tracks) - 1, "route": len(routes)}
+    elif routes:
+        kind, (chosen, points) = "rtept", routes[0]
+        ignored = {"route": len(routes) - 1}
+    else:
+        n_wpt = len(root.findall(q("wpt")))
+        extra = f" (it has {n_wpt} waypoint(s), which do not describe a path)" if n_wpt else ""
+        raise fail(source, None, f"no track or route points found{extra}; curvespeed reads "
+                                 "trk/trkseg/trkpt or rte/rtept")
+    skipped = [f"{n} other {what}(s)" for what, n in ignored.items() if n]
+    if skipped:
+        what = "track" if kind == "trkpt" else "route"
+        warnings.warn(f"{source}: used the first {what} with points; ignored "
+                      f"{' and '.join(skipped)}", CurvespeedWarning)
+
+    n = len(points)
+    lat = np.empty(n)
+    lon = np.empty(n)
+    ele = np.full(n, np.nan)
+    times: list[datetime | None] = [None] * n
+    where = np.array([f"{kind} {i + 1}" for i in range(n)], dtype=object)
+    for i, pt in enumerate(points):
+        lat[i] = _coordinate(pt, "lat", source, where[i])
+        lon[i] = _coordinate(pt, "lon", source, where[i])
+        problem = latlon_range_problem(lat[i], lon[i])
+        if problem:
+            hint = ("; are lat and lon swapped?" if swapped_would_fit(lat[i], lon[i])
+                    else "; fix or remove that point")
+            raise fail(source, where[i], problem + hint)
+        ele_el = pt.find(q("ele"))
+        if ele_el is not None:
+            raw = ele_el.text or ""
+            v = parse_number(raw)
+            if v is None:
+                raise fail(source, where[i], f"ele value '{raw.strip()}' {number_problem(raw)}; "
+                                             "fix it or remove the <ele> element")
+            ele[i] = v
+        time_el = pt.find(q("time"))
+        if time_el is not None:
+            times[i] = _parse_time(time_el.text or "", source, where[i])
+
+    z = _all_or_none(ele, ~np.isnan(ele), "elevation (<ele>)", kind, source)
+    have_time = np.array([t is not None for t in times])
+    time_s = None
+    if _all_or_none(have_time, have_time, "time (<time>)", kind, source) is not None:
+        t0 = times[0]
+        time_s = np.array([(t - t0).total_seconds() for t in times])
+
+    name = _text(chosen.find(q("name")))
+    if name is None:
+        metadata = root.find(q("metadata"))  # GPX 1.1
+        name = _text(metadata.find(q("name")) if metadata is not None else root.find(q("name")))
+    x, y, projection = project_latlon(lat, lon)
+    return make_route(x, y, z, where=where, source=source, projection=projection,
+                      time_s=time_s, name=name)
+
+
+def _parse_xml(data: bytes, source: str) -> ET.Element:
+    try:
+        return DefusedET.fromstring(data)
+    except EntitiesForbidden:
+        raise fail(source, None, "refused: the file declares XML entities (<!ENTITY ...>), "
+                                 "which can expand without bound or read other files; "
+                                 "remove the DOCTYPE block and export the GPX again") from None
+    except ExternalReferenceForbidden:
+        raise fail(source, None, "refused: the file refers to an external XML resource; "
+                                 "remove the DOCTYPE block and export the GPX again") from None
+    except DefusedXmlException as exc:
+        raise fail(source, None, f"refused: the file uses an XML feature curvespeed does not "
+                                 f"accept ({type(exc).__name__}); export the GPX again") from None
+    except ET.ParseError as exc:
+        line, column = exc.position
+        reason = str(exc).split(": line ")[0]
+        raise fail(source, f"line {line}, column {column + 1}",
+                   f"not well-formed XML ({reason}); fix the file or export it again") from None
+
+
+def _gpx_namespace(root: ET.Element, source: str) -> str:
+    tag = root.tag
+    ns, local = tag[1:].split("}", 1) if tag.startswith("{") else ("", tag)
+    if local != "gpx":
+        raise fail(source, None, f"root element is <{local}>, not <gpx>; is this a GPX file?")
+    if ns not in GPX_NAMESPACES:
+        accepted = ", ".join(n for n in GPX_NAMESPACES if n)
+        raise fail(source, None, f"unknown GPX namespace '{ns}'; curvespeed reads GPX 1.1 and "
+                                 f"1.0 ({accepted}) or no namespace")
+    return ns
+
+
+def _coordinate(pt: ET.Element, attribute: str, source: str, where: str) -> float:
+    raw = pt.get(attribute)
+    if raw is None:
+        raise fail(source, where, f"missing the '{attribute}' attribute; every point needs "
+                                  "lat and lon")
+    v = parse_number(raw)
+    if v is None:
+        raise fail(source, where, f"{attribute} value '{raw.strip()}' {number_problem(raw)}; "
+                                  "fix or remove that point")
+    return v
+
+
+def _parse_time(text: str, source: str, where: str) -> datetime:
+    """ISO 8601 date and time; a time without zone is UTC (the GPX convention)."""
+    s = text.strip()
+    try:
+        if len(s) < 16 or s[10] not in "Tt":
+            raise ValueError
+        t = datetime.fromisoformat(s)
+    except ValueError:
+        raise fail(source, where, f"time '{s}' is not an ISO 8601 date and time such as "
+                                  "2026-05-01T10:00:00Z; fix it or remove the <time> "
+                                  "element") from None
+    return t if t.tzinfo is not None else t.replace(tzinfo=timezone.utc)
+
+
+def _all_or_none(values: np.ndarray, present: np.ndarray, what: str, kind: str, source: str):
+    """``values`` if every point has the item, else None (with a warning if only some do)."""
+    count = int(present.sum())
+    if count == present.size:
+        return values
+    if count:
+        first = int(np.flatnonzero(~present)[0]) + 1
+        warnings.warn(f"{source}: only {count} of {present.size} points have {what} (first "
+                      f"missing at {kind} {first}); ignored it for the whole route",
+                      CurvespeedWarning)
+    return None
+
+
+def _text(element: ET.Element | None) -> str | None:
+    if element is None or element.text is None:
+        return None
+    return element.text.strip() or None
