@@ -1,0 +1,245 @@
+"""Vehicle limits and route-side constraints, in SI units.
+
+:class:`Limits` says what the vehicle and its passengers accept; :class:`RouteConstraints` says
+what the route imposes (speed zones, stops, superelevation, start and end speed). Both are plain
+frozen values: the TOML reader (:mod:`curvespeed.io.limits_toml`) and the command line build them,
+:func:`curvespeed.problem.build_problem` turns them into the discrete problem every solver shares.
+
+Default limits (:data:`DEFAULT_LIMITS`) describe a passenger car driven comfortably. They are
+common practice, not a standard: lateral 2-3 m/s^2 is the usual comfort band (we take 2.5),
+longitudinal +1.5 / -2.5 m/s^2 sit inside the usual +1.5..2 / -2..3.5 m/s^2 comfort ranges, and a
+friction coefficient of 0.7 is the low end of dry asphalt (0.7-0.9 in accident-reconstruction
+handbooks), so grip rarely binds before comfort does.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+import warnings
+from dataclasses import dataclass, field
+
+from .errors import CurvespeedWarning, LimitsError
+from .units import STANDARD_GRAVITY_MPS2
+
+#: Air density of the ISA standard atmosphere at sea level, kg/m^3.
+ISA_SEA_LEVEL_AIR_DENSITY_KGPM3 = 1.225
+
+
+@dataclass(frozen=True)
+class Limits:
+    """What the vehicle can do and what its passengers accept.
+
+    Attributes
+    ----------
+    friction_coefficient : float
+        Tyre-road friction coefficient mu (dimensionless). With ``lateral_friction_coefficient``
+        it sets the friction ellipse: tyre force along the path up to mu*N, across up to
+        mu_lat*N, combined elliptically (N: normal load, including superelevation and grade).
+    max_lateral_accel_mps2 : float
+        Comfort cap on the lateral acceleration felt in the road plane, m/s^2.
+    max_accel_mps2, max_decel_mps2 : float
+        Comfort / actuator caps on acceleration and deceleration along the path, m/s^2 (both
+        positive). Combined with lateral acceleration as a comfort ellipse.
+    max_speed_mps : float
+        Highest speed anywhere, m/s.
+    max_jerk_mps3 : float or None
+        Longitudinal jerk bound, m/s^3 (used by the convex solver).
+    lateral_friction_coefficient : float or None
+        Friction across the path; None means equal to ``friction_coefficient`` (a circle).
+    max_power_w, mass_kg : float or None
+        Powertrain: tractive power at the wheels, W, and vehicle mass, kg. Drive force <= P/v.
+    drag_area_m2 : float
+        Drag coefficient times frontal area Cd*A, m^2 (0 ignores drag). Needs ``mass_kg``.
+    air_density_kgpm3 : float
+        Air density for drag, kg/m^3.
+    rolling_resistance_coefficient : float
+        Rolling resistance force over normal load (dimensionless, 0 ignores it).
+    gravity_mps2 : float
+        Gravitational acceleration, m/s^2.
+    """
+
+    friction_coefficient: float = 0.7
+    max_lateral_accel_mps2: float = 2.5
+    max_accel_mps2: float = 1.5
+    max_decel_mps2: float = 2.5
+    max_speed_mps: float = 30.0
+    max_jerk_mps3: float | None = None
+    lateral_friction_coefficient: float | None = None
+    max_power_w: float | None = None
+    mass_kg: float | None = None
+    drag_area_m2: float = 0.0
+    air_density_kgpm3: float = ISA_SEA_LEVEL_AIR_DENSITY_KGPM3
+    rolling_resistance_coefficient: float = 0.0
+    gravity_mps2: float = STANDARD_GRAVITY_MPS2
+
+    @property
+    def mu_long(self) -> float:
+        return self.friction_coefficient
+
+    @property
+    def mu_lat(self) -> float:
+        return (self.friction_coefficient if self.lateral_friction_coefficient is None
+                else self.lateral_friction_coefficient)
+
+    @property
+    def drag_per_b_1pm(self) -> float:
+        """Aerodynamic deceleration per squared speed, 1/m: a_drag = this * v^2."""
+        if not self.drag_area_m2:
+            return 0.0
+        return 0.5 * self.air_density_kgpm3 * self.drag_area_m2 / float(self.mass_kg)
+
+    @property
+    def power_per_mass_wpkg(self) -> float:
+        """Tractive power over mass, W/kg (infinite when no power limit is set)."""
+        if self.max_power_w is None:
+            return math.inf
+        return self.max_power_w / float(self.mass_kg)
+
+    def to_dict(self) -> dict:
+        return dataclasses.asdict(self)
+
+    def replace(self, **changes) -> "Limits":
+        return dataclasses.replace(self, **changes)
+
+
+#: Built-in limits for a passenger car in comfortable driving (see module docstring).
+DEFAULT_LIMITS = Limits()
+
+_POSITIVE = ("friction_coefficient", "max_lateral_accel_mps2", "max_accel_mps2",
+             "max_decel_mps2", "max_speed_mps", "max_jerk_mps3", "lateral_friction_coefficient",
+             "max_power_w", "mass_kg", "air_density_kgpm3", "gravity_mps2")
+_NON_NEGATIVE = ("drag_area_m2", "rolling_resistance_coefficient")
+
+
+def validate_limits(limits: Limits, where: str = "limits") -> Limits:
+    """Check values; raise :class:`LimitsError` or warn when comfort exceeds grip.
+
+    ``where`` names the origin (a file, "command line") for messages.
+    """
+    for name in _POSITIVE + _NON_NEGATIVE:
+        value = getattr(limits, name)
+        if value is None:
+            continue
+        if not isinstance(value, (int, float)) or isinstance(value, bool) or not math.isfinite(value):
+            raise LimitsError(f"{where}: {name} must be a finite number, got {value!r}")
+        if name in _POSITIVE and value <= 0:
+            raise LimitsError(f"{where}: {name} must be positive, got {value:g}")
+        if name in _NON_NEGATIVE and value < 0:
+            raise LimitsError(f"{where}: {name} must be zero or positive, got {value:g}")
+    if limits.friction_coefficient > 2.0:
+        raise LimitsError(f"{where}: friction_coefficient {limits.friction_coefficient:g} is not "
+                          "a tyre-road value (dry asphalt is about 0.7-0.9); check the units")
+    if limits.max_power_w is not None and limits.mass_kg is None:
+        raise LimitsError(f"{where}: max_power_w needs mass_kg (drive acceleration is P/(m v))")
+    if limits.drag_area_m2 and limits.mass_kg is None:
+        raise LimitsError(f"{where}: drag_area_m2 needs mass_kg (drag deceleration is "
+                          "rho Cd A v^2 / (2 m))")
+    g = limits.gravity_mps2
+    checks = (("max_lateral_accel_mps2", limits.mu_lat * g, "lateral"),
+              ("max_accel_mps2", limits.mu_long * g, "longitudinal"),
+              ("max_decel_mps2", limits.mu_long * g, "longitudinal"))
+    for name, grip, direction in checks:
+        value = getattr(limits, name)
+        if value > grip:
+            warnings.warn(
+                f"{where}: {name} = {value:g} m/s^2 exceeds the {direction} grip "
+                f"mu*g = {grip:.2f} m/s^2; friction is the binding limit there",
+                CurvespeedWarning, stacklevel=2)
+    return limits
+
+
+@dataclass(frozen=True)
+class SpeedZone:
+    """A speed cap over a station range, metres and m/s."""
+
+    start_m: float
+    end_m: float
+    max_speed_mps: float
+    origin: str = ""
+
+
+@dataclass(frozen=True)
+class Stop:
+    """A point where the vehicle must be at rest, station in metres."""
+
+    station_m: float
+    origin: str = ""
+
+
+@dataclass(frozen=True)
+class Superelevation:
+    """Cross-slope over a station range.
+
+    ``rate`` is rise over run across the road (0.06 = 6 %), positive when the road is banked
+    toward the inside of the curve (the usual case; it adds lateral capacity), negative for an
+    adverse cross-slope.
+    """
+
+    start_m: float
+    end_m: float
+    rate: float
+    origin: str = ""
+
+
+@dataclass(frozen=True)
+class RouteConstraints:
+    """What the route imposes besides its geometry.
+
+    ``start_speed_mps`` / ``end_speed_mps`` of None mean the default: at rest on an open route,
+    periodic (lap joins itself) on a closed one.
+    """
+
+    zones: tuple[SpeedZone, ...] = ()
+    stops: tuple[Stop, ...] = ()
+    superelevation: tuple[Superelevation, ...] = ()
+    start_speed_mps: float | None = None
+    end_speed_mps: float | None = None
+
+    def merged(self, other: "RouteConstraints") -> "RouteConstraints":
+        """Constraints of both; ``other``'s start/end speeds win where set."""
+        return RouteConstraints(
+            zones=self.zones + other.zones,
+            stops=self.stops + other.stops,
+            superelevation=self.superelevation + other.superelevation,
+            start_speed_mps=(other.start_speed_mps if other.start_speed_mps is not None
+                             else self.start_speed_mps),
+            end_speed_mps=(other.end_speed_mps if other.end_speed_mps is not None
+                           else self.end_speed_mps),
+        )
+
+    def to_dict(self) -> dict:
+        return dataclasses.asdict(self)
+
+
+def validate_constraints(rc: RouteConstraints, length_m: float, closed: bool) -> RouteConstraints:
+    """Check station ranges and values against the route; raise :class:`LimitsError`."""
+    def here(item) -> str:
+        return f"{item.origin}: " if item.origin else ""
+
+    for z in rc.zones:
+        if not (math.isfinite(z.start_m) and math.isfinite(z.end_m) and z.end_m > z.start_m):
+            raise LimitsError(f"{here(z)}speed zone {z.start_m:g}..{z.end_m:g} m: end must be "
+                              "after start")
+        if not (z.max_speed_mps > 0 and math.isfinite(z.max_speed_mps)):
+            raise LimitsError(f"{here(z)}speed zone {z.start_m:g}..{z.end_m:g} m: max speed must "
+                              f"be positive, got {z.max_speed_mps:g} m/s (use a stop for zero)")
+        if z.start_m >= length_m or z.end_m <= 0:
+            raise LimitsError(f"{here(z)}speed zone {z.start_m:g}..{z.end_m:g} m lies outside the "
+                              f"route (0..{length_m:.1f} m)")
+    for s in rc.stops:
+        if not (math.isfinite(s.station_m) and 0 <= s.station_m <= length_m):
+            raise LimitsError(f"{here(s)}stop at station {s.station_m:g} m lies outside the route "
+                              f"(0..{length_m:.1f} m)")
+    for e in rc.superelevation:
+        if not (math.isfinite(e.start_m) and math.isfinite(e.end_m) and e.end_m > e.start_m):
+            raise LimitsError(f"{here(e)}superelevation {e.start_m:g}..{e.end_m:g} m: end must be "
+                              "after start")
+        if not (math.isfinite(e.rate) and abs(e.rate) <= 0.2):
+            raise LimitsError(f"{here(e)}superelevation rate {e.rate:g} at {e.start_m:g}..{e.end_m:g}"
+                              " m is outside +-0.2 (rise over run: 0.06 means 6 %)")
+    for name in ("start_speed_mps", "end_speed_mps"):
+        v = getattr(rc, name)
+        if v is not None and not (math.isfinite(v) and v >= 0):
+            raise LimitsError(f"{name.replace('_mps', '')} must be zero or positive, got {v:g} m/s")
+    return rc

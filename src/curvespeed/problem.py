@@ -1,0 +1,237 @@
+"""The discrete speed problem that every solver solves and the verifier checks.
+
+Unknowns are the squared speeds ``b[k] = v[k]**2`` at the geometry's nodes ``k = 0..n``. Between
+consecutive nodes ``b`` is linear in station, so each step ``k -> k+1`` has the constant
+acceleration ``a[k] = (b[k+1] - b[k]) / (2 ds)`` (exact for uniform acceleration) and takes the time
+``2 ds / (v[k] + v[k+1])``.
+
+The constraint set is defined once, here:
+
+* **node caps** -- ``b[k] <= cap[k]`` from the top speed, speed zones (every node of a step that
+  touches the zone) and stops (``cap = 0``);
+* **node-step coupling** -- each step's acceleration must be feasible at *both* of its nodes, with
+  that node's lateral demand: ``lo_k(b[k]) <= a <= hi_k(b[k])`` for ``a = a[k-1]`` and ``a[k]``.
+
+``[lo_k(b), hi_k(b)]`` is the acceleration interval node ``k`` allows at squared speed ``b``:
+
+* comfort ellipse: ``(a / A)^2 + (y / A_lat)^2 <= 1`` with ``A`` the accel or decel cap by the sign
+  of ``a`` and ``y = max(kappa b cos(theta) - g sin(theta), 0)`` the lateral acceleration felt in
+  the road plane (``theta = atan(e)``, superelevation ``e`` toward the curve's inside);
+* friction ellipse at the tyres: ``(T / mu)^2 + (y_t / mu_lat)^2 <= N^2`` where
+  ``T = a + g sin(gamma) + c_d b + c_rr g cos(gamma)`` is the tyre force along the path per unit
+  mass (grade ``gamma``, drag, rolling resistance), ``y_t = kappa b cos(theta) - g sin(theta)`` the
+  tyre force across it, and ``N = g cos(gamma) cos(theta) + kappa b sin(theta)`` the normal load;
+  with no longitudinal force this is the textbook ``v^2/(gR) = (e + f)/(1 - e f)``;
+* power: ``T v <= P / m``.
+
+Stations are treated as path length (the slope's cos(gamma) < 0.5 % at 10 % grade is neglected).
+Every function here is vectorised over nodes and has no side effects.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import InfeasibleError, LimitsError
+from .geometry import Geometry
+from .limits import Limits, RouteConstraints, validate_constraints, validate_limits
+
+#: Cap on squared speed used where no other cap applies (never reached: max speed is finite).
+_UNBOUNDED = 1e12
+
+
+@dataclass(frozen=True)
+class SpeedProblem:
+    """Arrays and scalars of the discrete problem (see module docstring).
+
+    Attributes
+    ----------
+    station_m : ndarray, shape (n+1,)
+        Node stations, metres.
+    ds : float
+        Step length, metres.
+    closed : bool
+        Periodic problem: node n is node 0.
+    kappa_abs : ndarray
+        |curvature| at nodes, 1/m.
+    sin_bank, cos_bank : ndarray
+        Sine and cosine of the bank angle atan(e), e toward the curve's inside.
+    sin_grade, cos_grade : ndarray
+        Sine and cosine of the grade angle (+ uphill in the direction of travel).
+    cap_b : ndarray
+        Upper bound on squared speed from top speed, zones and stops, m^2/s^2.
+    cap_source : ndarray of str
+        What sets ``cap_b`` at each node ("max_speed", "zone", "stop").
+    b_start, b_end : float or None
+        Fixed squared speed at the first / last node (None: free, or periodic when closed).
+    stop_nodes : ndarray of int
+        Nodes where the vehicle must be at rest.
+    limits : Limits
+        The vehicle limits.
+    """
+
+    station_m: np.ndarray
+    ds: float
+    closed: bool
+    kappa_abs: np.ndarray
+    sin_bank: np.ndarray
+    cos_bank: np.ndarray
+    sin_grade: np.ndarray
+    cos_grade: np.ndarray
+    cap_b: np.ndarray
+    cap_source: np.ndarray
+    b_start: float | None
+    b_end: float | None
+    stop_nodes: np.ndarray
+    limits: Limits
+
+    @property
+    def n_nodes(self) -> int:
+        return int(self.station_m.size)
+
+    # -- per-node physics (vectorised; b may be a scalar or an array matching the nodes) --------
+    def felt_lateral(self, b, nodes=slice(None)):
+        """Lateral acceleration in the road plane (tyre side force per mass), m/s^2."""
+        g = self.limits.gravity_mps2
+        return self.kappa_abs[nodes] * b * self.cos_bank[nodes] - g * self.sin_bank[nodes]
+
+    def normal_accel(self, b, nodes=slice(None)):
+        """Normal load per unit mass, m/s^2."""
+        g = self.limits.gravity_mps2
+        return (g * self.cos_grade[nodes] * self.cos_bank[nodes]
+                + self.kappa_abs[nodes] * b * self.sin_bank[nodes])
+
+    def resistance(self, b, nodes=slice(None)):
+        """Deceleration from grade, drag and rolling resistance, m/s^2 (tyres must supply it)."""
+        lim = self.limits
+        g = lim.gravity_mps2
+        return (g * self.sin_grade[nodes] + lim.drag_per_b_1pm * b
+                + lim.rolling_resistance_coefficient * g * self.cos_grade[nodes])
+
+    def accel_bounds(self, b, nodes=slice(None)) -> tuple[np.ndarray, np.ndarray]:
+        """Acceleration interval ``[lo, hi]`` each node allows at squared speed ``b``, m/s^2.
+
+        Where the lateral demand alone exceeds a limit the interval is empty (lo > hi).
+        """
+        lim = self.limits
+        b = np.maximum(b, 0.0)
+        y = self.felt_lateral(b, nodes)
+        r = np.maximum(y, 0.0) / lim.max_lateral_accel_mps2
+        c = np.sqrt(np.maximum(1.0 - r * r, 0.0))
+        c = np.where(r > 1.0, -1.0, c)  # empty comfort interval
+        n = self.normal_accel(b, nodes)
+        w2 = n * n - (y / lim.mu_lat) ** 2
+        w = lim.mu_long * np.sqrt(np.maximum(w2, 0.0))
+        w = np.where(w2 < 0.0, -1.0, w)
+        res = self.resistance(b, nodes)
+        lo = np.maximum(-lim.max_decel_mps2 * c, -w - res)
+        hi = np.minimum(lim.max_accel_mps2 * c, w - res)
+        if math.isfinite(lim.power_per_mass_wpkg):
+            with np.errstate(divide="ignore"):
+                hi = np.minimum(hi, lim.power_per_mass_wpkg / np.sqrt(b) - res)
+        return lo, hi
+
+    def step_accel(self, b) -> np.ndarray:
+        """Acceleration of each step, m/s^2 (length n)."""
+        return np.diff(b) / (2.0 * self.ds)
+
+    def lateral_ceiling_b(self, iterations: int = 60) -> np.ndarray:
+        """Largest squared speed at each node whose acceleration interval is not empty.
+
+        Found by bisection on all nodes at once (the interval shrinks monotonically with speed),
+        then capped by :attr:`cap_b`. Relative accuracy 2**-60 of the bracket.
+        """
+        lo_b = np.zeros_like(self.cap_b)
+        hi_b = np.minimum(self.cap_b, _UNBOUNDED).astype(float)
+        lo_a, hi_a = self.accel_bounds(hi_b)
+        ok = lo_a <= hi_a
+        for _ in range(iterations):
+            if ok.all():
+                break
+            mid = np.where(ok, hi_b, 0.5 * (lo_b + hi_b))
+            la, ha = self.accel_bounds(mid)
+            good = la <= ha
+            lo_b = np.where(~ok & good, mid, lo_b)
+            hi_b = np.where(~ok & ~good, mid, hi_b)
+            if (hi_b - lo_b <= 1e-12 * np.maximum(hi_b, 1.0)).all():
+                break
+        return np.where(ok, hi_b, lo_b)
+
+
+def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstraints) -> SpeedProblem:
+    """Assemble the discrete problem for ``geometry`` (see module docstring)."""
+    validate_limits(limits)
+    validate_constraints(constraints, geometry.length_m, geometry.closed)
+    s = geometry.station_m
+    n = s.size
+    ds = float(geometry.spacing_m)
+    g = limits.gravity_mps2
+    kappa = geometry.curvature_1pm
+    kappa_abs = np.abs(kappa)
+
+    cap = np.full(n, limits.max_speed_mps ** 2)
+    source = np.full(n, "max_speed", dtype=object)
+    for zone in constraints.zones:
+        # every node of a step that overlaps the zone, so linear-in-b steps stay under the cap
+        i0 = max(int(math.floor(zone.start_m / ds + 1e-9)), 0)
+        i1 = min(int(math.ceil(zone.end_m / ds - 1e-9)), n - 1)
+        sl = slice(i0, i1 + 1)
+        tighter = cap[sl] > zone.max_speed_mps ** 2
+        cap[sl] = np.where(tighter, zone.max_speed_mps ** 2, cap[sl])
+        source[sl] = np.where(tighter, "zone", source[sl])
+    stop_nodes = []
+    for stop in constraints.stops:
+        k = int(round(stop.station_m / ds))
+        if geometry.closed and k == n - 1:
+            k = 0
+        stop_nodes.append(k)
+        cap[k] = 0.0
+        source[k] = "stop"
+    if geometry.closed:
+        cap[-1] = cap[0] = min(cap[0], cap[-1])
+
+    e = np.zeros(n)
+    for sup in constraints.superelevation:
+        mask = (s >= sup.start_m - 1e-9) & (s <= sup.end_m + 1e-9)
+        e[mask] = sup.rate
+    theta = np.arctan(e)
+    if geometry.grade is not None:
+        gamma = np.arctan(geometry.grade)
+    else:
+        gamma = np.zeros(n)
+    # A vehicle at rest on a cross-slope steeper than friction allows would slide.
+    too_steep = np.abs(e) > limits.mu_lat * np.cos(gamma)
+    if too_steep.any():
+        k = int(np.flatnonzero(too_steep)[0])
+        raise LimitsError(f"superelevation {e[k]:g} at station {s[k]:.1f} m exceeds the lateral "
+                          f"friction coefficient {limits.mu_lat:g}: a vehicle would slide at rest")
+
+    b_start = b_end = None
+    if geometry.closed:
+        if constraints.start_speed_mps is not None or constraints.end_speed_mps is not None:
+            raise LimitsError("start and end speed do not apply to a closed route (the lap is "
+                              "periodic); plan it as open (--open) to fix them")
+    else:
+        v0 = 0.0 if constraints.start_speed_mps is None else constraints.start_speed_mps
+        v1 = 0.0 if constraints.end_speed_mps is None else constraints.end_speed_mps
+        b_start, b_end = v0 * v0, v1 * v1
+
+    return SpeedProblem(
+        station_m=s, ds=ds, closed=geometry.closed, kappa_abs=kappa_abs,
+        sin_bank=np.sin(theta), cos_bank=np.cos(theta),
+        sin_grade=np.sin(gamma), cos_grade=np.cos(gamma),
+        cap_b=cap, cap_source=source, b_start=b_start, b_end=b_end,
+        stop_nodes=np.array(sorted(set(stop_nodes)), dtype=int), limits=limits)
+
+
+def check_start_end(problem: SpeedProblem, ceiling_b: np.ndarray) -> None:
+    """Raise :class:`InfeasibleError` if a fixed start or end speed exceeds its node's ceiling."""
+    for which, b_fixed, k in (("start", problem.b_start, 0), ("end", problem.b_end, -1)):
+        if b_fixed is not None and b_fixed > ceiling_b[k] * (1 + 1e-9) + 1e-12:
+            raise InfeasibleError(
+                f"{which} speed {math.sqrt(b_fixed):.2f} m/s exceeds what the route allows at "
+                f"station {problem.station_m[k]:.1f} m ({math.sqrt(ceiling_b[k]):.2f} m/s, set by "
+                f"{problem.cap_source[k]} or curvature); lower the {which} speed")

@@ -1,0 +1,156 @@
+"""Independent check of a finished profile against every limit of the discrete problem.
+
+The verifier never trusts a solver's status: it recomputes step accelerations, lateral demand,
+friction-ellipse and comfort-ellipse use, power and jerk from the final speeds alone, using the
+constraint definitions of :mod:`curvespeed.problem`, and reports the peak use of each limit
+(1.0 = exactly at the limit). A profile whose use exceeds 1 + ``tolerance`` anywhere is refused.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .problem import SpeedProblem
+from .profile import derive
+
+#: Relative tolerance on limit use below which a profile is accepted as within its limits.
+DEFAULT_TOLERANCE = 1e-6
+#: A node counts as bound by a limit when its use is within this of 1.
+BINDING_TOLERANCE = 1e-3
+
+
+@dataclass(frozen=True)
+class Violation:
+    """One limit exceeded: where, which limit, how much (use > 1)."""
+
+    station_m: float
+    limit: str
+    use: float
+
+    def describe(self) -> str:
+        return f"{self.limit} at station {self.station_m:.1f} m ({100 * self.use:.2f} % of limit)"
+
+
+@dataclass(frozen=True)
+class Verification:
+    """Per-node use of each limit, peaks, and violations.
+
+    Attributes
+    ----------
+    use : dict of str -> ndarray
+        Use of each limit at each node (max over the steps meeting there), dimensionless.
+    peak : dict of str -> float
+        Maximum of each ``use`` array.
+    violations : list of Violation
+        First violation of each limit beyond the tolerance (empty when the profile is valid).
+    binding : ndarray of str
+        The limit that binds at each node, or "none".
+    """
+
+    use: dict
+    peak: dict
+    violations: list
+    binding: np.ndarray
+
+    @property
+    def ok(self) -> bool:
+        return not self.violations
+
+
+def _node_max(step_values: np.ndarray, closed: bool) -> np.ndarray:
+    """Per node, the max of the values of the (one or two) steps meeting there."""
+    out = np.empty(step_values.size + 1)
+    out[0] = step_values[0]
+    out[-1] = step_values[-1]
+    out[1:-1] = np.maximum(step_values[:-1], step_values[1:])
+    if closed:
+        out[0] = out[-1] = max(step_values[0], step_values[-1])
+    return out
+
+
+def verify_profile(problem: SpeedProblem, b: np.ndarray,
+                   tolerance: float = DEFAULT_TOLERANCE) -> Verification:
+    """Check squared speeds ``b`` against every limit of ``problem``."""
+    lim = problem.limits
+    b = np.maximum(np.asarray(b, dtype=float), 0.0)
+    d = derive(problem, b)
+    v = d["speed_mps"]
+    a = d["step_accel_mps2"]
+
+    y = problem.felt_lateral(b)
+    lat_use = np.maximum(y, 0.0) / lim.max_lateral_accel_mps2
+    normal = problem.normal_accel(b)
+    res = problem.resistance(b)
+
+    def per_step_at(nodes_b_idx):
+        """Uses of the comfort ellipse, grip and power for each step at one of its nodes."""
+        k = nodes_b_idx
+        cap_a = np.where(a >= 0.0, lim.max_accel_mps2, lim.max_decel_mps2)
+        comfort = np.hypot(a / cap_a, lat_use[k])
+        tyre_long = a + res[k]
+        grip = np.hypot(tyre_long / lim.mu_long, y[k] / lim.mu_lat) / normal[k]
+        if math.isfinite(lim.power_per_mass_wpkg):
+            power = np.maximum(tyre_long, 0.0) * v[k] / lim.power_per_mass_wpkg
+        else:
+            power = np.zeros_like(a)
+        return comfort, grip, power
+
+    idx = np.arange(a.size)
+    c0, g0, p0 = per_step_at(idx)
+    c1, g1, p1 = per_step_at(idx + 1)
+    comfort_use = _node_max(np.maximum(c0, c1), problem.closed)
+    grip_use = _node_max(np.maximum(g0, g1), problem.closed)
+    power_use = _node_max(np.maximum(p0, p1), problem.closed)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        cap_use = np.where(problem.cap_b > 0.0, np.sqrt(b / problem.cap_b),
+                           np.where(b > 0.0, np.inf, 1.0))
+    use = {"speed_cap": cap_use, "lateral_comfort": lat_use, "comfort_ellipse": comfort_use,
+           "friction_ellipse": grip_use}
+    if math.isfinite(lim.power_per_mass_wpkg):
+        use["power"] = power_use
+    if lim.max_jerk_mps3 is not None:
+        use["jerk"] = np.abs(d["jerk_mps3"]) / lim.max_jerk_mps3
+
+    violations = []
+    for name, arr in use.items():
+        bad = np.flatnonzero(arr > 1.0 + tolerance)
+        if bad.size:
+            k = int(bad[np.argmax(arr[bad])])
+            violations.append(Violation(float(problem.station_m[k]), name, float(arr[k])))
+    for which, b_fixed, k in (("start speed", problem.b_start, 0), ("end speed", problem.b_end, -1)):
+        if b_fixed is not None and abs(math.sqrt(b[k]) - math.sqrt(b_fixed)) > 1e-6 + tolerance * math.sqrt(b_fixed):
+            violations.append(Violation(float(problem.station_m[k]), which,
+                                        math.sqrt(b[k]) / max(math.sqrt(b_fixed), 1e-12)))
+    if problem.closed and abs(v[0] - v[-1]) > 1e-9 + tolerance * v[0]:
+        violations.append(Violation(0.0, "periodic seam", float(v[-1] / max(v[0], 1e-12))))
+
+    peak = {name: float(np.max(arr)) for name, arr in use.items()}
+    grip_lat_share = np.abs(y) / (lim.mu_lat * normal)
+    return Verification(use=use, peak=peak, violations=violations,
+                        binding=_binding_labels(problem, a, use, lat_use, grip_lat_share))
+
+
+def _binding_labels(problem, a, use, lat_use, grip_lat_share) -> np.ndarray:
+    """Name the limit that binds at each node; later rules take precedence over earlier ones.
+
+    Names: "power"; "lateral_grip", "grip_accel", "grip_brake" (friction ellipse);
+    "lateral_comfort", "accel", "brake" (comfort ellipse); "max_speed", "zone", "stop" (caps);
+    "none" where nothing is within :data:`BINDING_TOLERANCE` of its limit.
+    """
+    near = 1.0 - BINDING_TOLERANCE
+    labels = np.full(a.size + 1, "none", dtype=object)
+    a_out = np.concatenate((a, [a[-1]]))
+    a_in = np.concatenate(([a[0]], a))
+    direction = np.where(np.minimum(a_out, a_in) < 0.0, "brake", "accel")
+    if "power" in use:
+        labels = np.where(use["power"] >= near, "power", labels)
+    labels = np.where(use["friction_ellipse"] >= near,
+                      np.where(grip_lat_share >= near, "lateral_grip",
+                               np.char.add("grip_", direction.astype(str))), labels)
+    labels = np.where(use["comfort_ellipse"] >= near,
+                      np.where(lat_use >= near, "lateral_comfort", direction), labels)
+    labels = np.where(use["speed_cap"] >= near, problem.cap_source, labels)
+    return labels.astype(object)
