@@ -26,7 +26,8 @@ pytestmark = pytest.mark.filterwarnings("ignore:.*grip mu\\*g.*:curvespeed.error
 
 
 def plan_b(geometry, limits, constraints=RouteConstraints()):
-    problem = build_problem(geometry, limits, constraints)
+    # the envelope's problem: no jerk bound (the convex solver's tests cover that)
+    problem = build_problem(geometry, limits, constraints, jerk_model=False)
     return problem, solve_envelope(problem).b
 
 
@@ -156,7 +157,8 @@ def test_power_limited_acceleration_follows_the_cube_law():
     geo = geometry_from_curvature(np.zeros(2001), ds=0.5)
     limits = Limits(max_power_w=p_per_m * 1500.0, mass_kg=1500.0, max_accel_mps2=5.0,
                     friction_coefficient=0.9, max_speed_mps=60.0, gravity_mps2=G)
-    problem = build_problem(geo, limits, RouteConstraints(start_speed_mps=v0, end_speed_mps=None))
+    problem = build_problem(geo, limits, RouteConstraints(start_speed_mps=v0, end_speed_mps=None),
+                            jerk_model=False)
     b = solve_envelope(problem).b
     s = geo.station_m
     region = s <= 600.0   # before braking for the end of the route

@@ -7,9 +7,10 @@ frozen values: the TOML reader (:mod:`curvespeed.io.limits_toml`) and the comman
 
 Default limits (:data:`DEFAULT_LIMITS`) describe a passenger car driven comfortably. They are
 common practice, not a standard: lateral 2-3 m/s^2 is the usual comfort band (we take 2.5),
-longitudinal +1.5 / -2.5 m/s^2 sit inside the usual +1.5..2 / -2..3.5 m/s^2 comfort ranges, and a
-friction coefficient of 0.7 is the low end of dry asphalt (0.7-0.9 in accident-reconstruction
-handbooks), so grip rarely binds before comfort does.
+longitudinal +1.5 / -2.5 m/s^2 sit inside the usual +1.5..2 / -2..3.5 m/s^2 comfort ranges, a
+longitudinal jerk of 2 m/s^3 inside the usual 1-2.5 m/s^3 (the adaptive-cruise-control standard
+ISO 15622 allows 2.5 m/s^3, from memory), and a friction coefficient of 0.7 is the low end of dry
+asphalt (0.7-0.9 in accident-reconstruction handbooks), so grip rarely binds before comfort does.
 """
 
 from __future__ import annotations
@@ -44,7 +45,7 @@ class Limits:
     max_speed_mps : float
         Highest speed anywhere, m/s.
     max_jerk_mps3 : float or None
-        Longitudinal jerk bound, m/s^3 (used by the convex solver).
+        Longitudinal jerk bound, m/s^3 (enforced by the convex solver; None for no bound).
     lateral_friction_coefficient : float or None
         Friction across the path; None means equal to ``friction_coefficient`` (a circle).
     max_power_w, mass_kg : float or None
@@ -64,7 +65,7 @@ class Limits:
     max_accel_mps2: float = 1.5
     max_decel_mps2: float = 2.5
     max_speed_mps: float = 30.0
-    max_jerk_mps3: float | None = None
+    max_jerk_mps3: float | None = 2.0
     lateral_friction_coefficient: float | None = None
     max_power_w: float | None = None
     mass_kg: float | None = None

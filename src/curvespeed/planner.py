@@ -5,9 +5,11 @@ This is the one library call behind ``curvespeed plan``.
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 
-from .errors import SolverError
+from .errors import CurvespeedWarning, SolverError
 from .geometry import Geometry
 from .limits import Limits, RouteConstraints
 from .problem import build_problem
@@ -16,22 +18,48 @@ from .solvers import SolverKind, solve
 from .verify import DEFAULT_TOLERANCE, verify_profile
 
 
+#: Verifier tolerance for the convex solvers: their QP rows are tightened by 1e-5 of each limit
+#: and solved to 1e-7, so anything beyond 1e-4 of a limit is a real violation.
+CONVEX_TOLERANCE = 1e-4
+
+
+def default_solver(limits: Limits) -> SolverKind:
+    """The convex solver when a jerk bound is set, else the envelope."""
+    return SolverKind.ENVELOPE if limits.max_jerk_mps3 is None else SolverKind.CONVEX
+
+
 def plan_profile(geometry: Geometry, limits: Limits, constraints: RouteConstraints = RouteConstraints(),
-                 solver: SolverKind = SolverKind.ENVELOPE,
-                 tolerance: float = DEFAULT_TOLERANCE) -> Profile:
+                 solver: SolverKind | None = None, options=None,
+                 tolerance: float | None = None) -> Profile:
     """Fastest profile along ``geometry`` within ``limits`` and ``constraints``.
+
+    ``solver`` defaults to :func:`default_solver`; ``options`` are the solver's own settings
+    (e.g. :class:`~curvespeed.solvers.convex.ConvexOptions`). The envelope does not enforce a
+    jerk bound: asked to, it warns and reports the jerk it reaches.
 
     Raises :class:`~curvespeed.errors.InfeasibleError` when no profile exists (with the reason)
     and :class:`~curvespeed.errors.SolverError` when the verifier refuses the solver's answer.
     """
-    problem = build_problem(geometry, limits, constraints)
-    result = solve(problem, solver)
-    check = verify_profile(problem, result.b, tolerance)
+    solver = solver or default_solver(limits)
+    jerk = solver.enforces_jerk and limits.max_jerk_mps3 is not None
+    problem = build_problem(geometry, limits, constraints, jerk_model=jerk)
+    result = solve(problem, solver, options)
+    if tolerance is None:
+        tolerance = DEFAULT_TOLERANCE if solver is SolverKind.ENVELOPE else CONVEX_TOLERANCE
+    check = verify_profile(problem, result.b, tolerance, check_jerk=jerk)
+    if limits.max_jerk_mps3 is not None and not jerk:
+        warnings.warn(f"the envelope solver does not bound jerk: the profile reaches "
+                      f"{check.extremes['jerk_mps3']:.2f} m/s^3 against max_jerk_mps3 = "
+                      f"{limits.max_jerk_mps3:g}; use --solver convex to enforce it",
+                      CurvespeedWarning, stacklevel=2)
     if not check.ok:
         worst = "; ".join(v.describe() for v in check.violations)
         raise SolverError(f"the {result.solver} solver's profile breaks its limits: {worst}. "
                           "This is a defect; please report it with the route and limits")
     d = derive(problem, result.b)
+    env_b = result.envelope_b if result.envelope_b is not None else result.b
+    v_env = np.sqrt(np.maximum(env_b, 0.0))
+    envelope_time = float(np.sum(2.0 * problem.ds / (v_env[:-1] + v_env[1:])))
     v = d["speed_mps"]
     return Profile(
         geometry=geometry,
@@ -45,4 +73,6 @@ def plan_profile(geometry: Geometry, limits: Limits, constraints: RouteConstrain
         binding=check.binding,
         solve=result,
         usage=check.peak,
+        extremes=check.extremes,
+        envelope_time_s=envelope_time,
     )

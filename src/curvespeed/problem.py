@@ -24,6 +24,15 @@ The constraint set is defined once, here:
   with no longitudinal force this is the textbook ``v^2/(gR) = (e + f)/(1 - e f)``;
 * power: ``T v <= P / m``.
 
+**Steps next to a rest node** (a stop, or a start or end at rest) when a jerk bound applies:
+a vehicle leaving rest with bounded jerk starts with zero acceleration, so over that step it
+moves as ``s ~ t^3`` (constant jerk), not with constant acceleration. Such a step takes
+``3 ds / v`` (not ``2 ds / v``), its acceleration ramps from 0 at the rest node to
+``4/3 * (b_moving / (2 ds))`` at the moving node, and its own jerk ``6 ds / t^3 <= J`` caps the
+moving node at ``b <= (4.5 J ds^2)^(2/3)``. :attr:`SpeedProblem.time_coef`,
+:attr:`~SpeedProblem.accel_factor_start` and :attr:`~SpeedProblem.accel_factor_end` carry this
+per step; every other step has constant acceleration (factors 1, time ``2 ds / (v + v')``).
+
 Stations are treated as path length (the slope's cos(gamma) < 0.5 % at 10 % grade is neglected).
 Every function here is vectorised over nodes and has no side effects.
 """
@@ -57,6 +66,8 @@ class SpeedProblem:
         Periodic problem: node n is node 0.
     kappa_abs : ndarray
         |curvature| at nodes, 1/m.
+    kappa_signed : ndarray
+        Signed curvature at nodes (left positive), 1/m; only for reporting lateral quantities.
     sin_bank, cos_bank : ndarray
         Sine and cosine of the bank angle atan(e), e toward the curve's inside.
     sin_grade, cos_grade : ndarray
@@ -71,12 +82,19 @@ class SpeedProblem:
         Nodes where the vehicle must be at rest.
     limits : Limits
         The vehicle limits.
+    jerk_model : bool
+        True when the jerk bound is part of the problem (steps next to rest are cubic).
+    time_coef : ndarray, shape (n,)
+        Step time is ``time_coef * ds / (v[k] + v[k+1])``: 2, or 3 for a step next to rest.
+    accel_factor_start, accel_factor_end : ndarray, shape (n,)
+        Acceleration of a step at its first / last node over ``(b[k+1] - b[k]) / (2 ds)``.
     """
 
     station_m: np.ndarray
     ds: float
     closed: bool
     kappa_abs: np.ndarray
+    kappa_signed: np.ndarray
     sin_bank: np.ndarray
     cos_bank: np.ndarray
     sin_grade: np.ndarray
@@ -87,6 +105,10 @@ class SpeedProblem:
     b_end: float | None
     stop_nodes: np.ndarray
     limits: Limits
+    jerk_model: bool
+    time_coef: np.ndarray
+    accel_factor_start: np.ndarray
+    accel_factor_end: np.ndarray
 
     @property
     def n_nodes(self) -> int:
@@ -111,10 +133,13 @@ class SpeedProblem:
         return (g * self.sin_grade[nodes] + lim.drag_per_b_1pm * b
                 + lim.rolling_resistance_coefficient * g * self.cos_grade[nodes])
 
-    def accel_bounds(self, b, nodes=slice(None)) -> tuple[np.ndarray, np.ndarray]:
+    def accel_bounds(self, b, nodes=slice(None), include_power: bool = True
+                     ) -> tuple[np.ndarray, np.ndarray]:
         """Acceleration interval ``[lo, hi]`` each node allows at squared speed ``b``, m/s^2.
 
         Where the lateral demand alone exceeds a limit the interval is empty (lo > hi).
+        Without the power limit (``include_power=False``) ``hi`` is concave and ``lo`` convex in
+        ``b`` (square roots of concave quadratics), which the convex solver relies on.
         """
         lim = self.limits
         b = np.maximum(b, 0.0)
@@ -129,14 +154,22 @@ class SpeedProblem:
         res = self.resistance(b, nodes)
         lo = np.maximum(-lim.max_decel_mps2 * c, -w - res)
         hi = np.minimum(lim.max_accel_mps2 * c, w - res)
-        if math.isfinite(lim.power_per_mass_wpkg):
+        if include_power and math.isfinite(lim.power_per_mass_wpkg):
             with np.errstate(divide="ignore"):
                 hi = np.minimum(hi, lim.power_per_mass_wpkg / np.sqrt(b) - res)
         return lo, hi
 
     def step_accel(self, b) -> np.ndarray:
-        """Acceleration of each step, m/s^2 (length n)."""
+        """Mean acceleration of each step over its length, (b[k+1] - b[k]) / (2 ds), m/s^2."""
         return np.diff(b) / (2.0 * self.ds)
+
+    def step_times(self, b) -> np.ndarray:
+        """Time of each step, s (infinite for a step with both ends at rest)."""
+        v = np.sqrt(np.maximum(b, 0.0))
+        vsum = v[:-1] + v[1:]
+        with np.errstate(divide="ignore"):
+            return np.where(vsum > 0.0, self.time_coef * self.ds / np.where(vsum > 0, vsum, 1.0),
+                            np.inf)
 
     def lateral_ceiling_b(self, iterations: int = 60) -> np.ndarray:
         """Largest squared speed at each node whose acceleration interval is not empty.
@@ -161,8 +194,13 @@ class SpeedProblem:
         return np.where(ok, hi_b, lo_b)
 
 
-def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstraints) -> SpeedProblem:
-    """Assemble the discrete problem for ``geometry`` (see module docstring)."""
+def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstraints,
+                  jerk_model: bool | None = None) -> SpeedProblem:
+    """Assemble the discrete problem for ``geometry`` (see module docstring).
+
+    ``jerk_model`` (default: whether ``limits`` has a jerk bound) says whether the jerk bound is
+    part of the problem; a solver that does not enforce jerk (the envelope) builds it without.
+    """
     validate_limits(limits)
     validate_constraints(constraints, geometry.length_m, geometry.closed)
     s = geometry.station_m
@@ -172,7 +210,7 @@ def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstrai
     kappa = geometry.curvature_1pm
     kappa_abs = np.abs(kappa)
 
-    cap = np.full(n, limits.max_speed_mps ** 2)
+    cap = np.full(n, float(limits.max_speed_mps) ** 2)
     source = np.full(n, "max_speed", dtype=object)
     for zone in constraints.zones:
         # every node of a step that overlaps the zone, so linear-in-b steps stay under the cap
@@ -219,12 +257,53 @@ def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstrai
         v1 = 0.0 if constraints.end_speed_mps is None else constraints.end_speed_mps
         b_start, b_end = v0 * v0, v1 * v1
 
+    if jerk_model is None:
+        jerk_model = limits.max_jerk_mps3 is not None
+    n_steps = n - 1
+    time_coef = np.full(n_steps, 2.0)
+    f_start = np.ones(n_steps)
+    f_end = np.ones(n_steps)
+    if jerk_model:
+        rest = np.zeros(n, dtype=bool)
+        rest[stop_nodes] = True
+        if geometry.closed:
+            rest[-1] = rest[0] = rest[0] or rest[-1]
+        else:
+            rest[0] = b_start == 0.0
+            rest[-1] = b_end == 0.0
+        idx = np.flatnonzero(rest)
+        close = np.flatnonzero(np.diff(idx) < 3)
+        if close.size:
+            k0, k1 = idx[close[0]], idx[close[0] + 1]
+            raise LimitsError(f"stations {s[k0]:.1f} and {s[k1]:.1f} m are both at rest and "
+                              f"less than three station steps apart ({3 * ds:g} m); move the "
+                              "stops apart or merge them")
+        from_rest, to_rest = rest[:-1], rest[1:]
+        time_coef[from_rest | to_rest] = 3.0
+        f_start[from_rest] = 0.0
+        f_end[from_rest] = 4.0 / 3.0
+        f_start[to_rest] = 4.0 / 3.0
+        f_end[to_rest] = 0.0
+        # the cubic step's own jerk 6 ds / t^3 <= J caps the moving node
+        b_launch = (4.5 * limits.max_jerk_mps3 * ds * ds) ** (2.0 / 3.0)
+        moving = np.zeros(n, dtype=bool)
+        moving[1:] |= from_rest
+        moving[:-1] |= to_rest
+        if geometry.closed:
+            moving[0] = moving[-1] = moving[0] or moving[-1]
+        tighter = moving & (cap > b_launch)
+        cap[tighter] = b_launch
+        source[tighter] = "jerk_launch"
+
     return SpeedProblem(
         station_m=s, ds=ds, closed=geometry.closed, kappa_abs=kappa_abs,
+        kappa_signed=np.asarray(kappa, dtype=float),
         sin_bank=np.sin(theta), cos_bank=np.cos(theta),
         sin_grade=np.sin(gamma), cos_grade=np.cos(gamma),
         cap_b=cap, cap_source=source, b_start=b_start, b_end=b_end,
-        stop_nodes=np.array(sorted(set(stop_nodes)), dtype=int), limits=limits)
+        stop_nodes=np.array(sorted(set(stop_nodes)), dtype=int), limits=limits,
+        jerk_model=bool(jerk_model), time_coef=time_coef, accel_factor_start=f_start,
+        accel_factor_end=f_end)
 
 
 def check_start_end(problem: SpeedProblem, ceiling_b: np.ndarray) -> None:

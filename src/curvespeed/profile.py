@@ -46,6 +46,12 @@ class Profile:
         The solver's result (status, iterations, time).
     usage : dict
         Peak use of each limit (1.0 = at the limit) from the verifier.
+    extremes : dict
+        Peak magnitudes in SI units (acceleration, deceleration, lateral acceleration, jerk,
+        lateral jerk) from the verifier.
+    envelope_time_s : float or None
+        Time of the forward-backward envelope on the same route and limits: the lower bound on
+        the time of any profile within them, s.
     """
 
     geometry: Geometry
@@ -59,6 +65,15 @@ class Profile:
     binding: np.ndarray
     solve: SolveResult
     usage: dict = field(default_factory=dict)
+    extremes: dict = field(default_factory=dict)
+    envelope_time_s: float | None = None
+
+    @property
+    def time_gap_to_envelope(self) -> float | None:
+        """How much longer than the jerk-free envelope the profile takes, as a fraction."""
+        if self.envelope_time_s is None:
+            return None
+        return self.total_time_s / self.envelope_time_s - 1.0
 
     @property
     def total_time_s(self) -> float:
@@ -79,31 +94,54 @@ class Profile:
                 for a, b in zip(starts, ends)]
 
 
-def step_times(b: np.ndarray, ds: float) -> np.ndarray:
-    """Time of each step for squared speeds ``b`` (b linear in station over each step), s."""
-    v = np.sqrt(np.maximum(b, 0.0))
-    vsum = v[:-1] + v[1:]
-    with np.errstate(divide="ignore"):
-        return np.where(vsum > 0.0, 2.0 * ds / vsum, np.inf)
-
-
 def derive(problem: SpeedProblem, b: np.ndarray) -> dict[str, np.ndarray]:
-    """Speed, accelerations, jerk and time from squared speeds (module docstring definitions)."""
+    """Speed, accelerations, jerk and time from squared speeds (module docstring definitions).
+
+    Each step has an acceleration at its first and at its last node (equal for a
+    constant-acceleration step; 0 at the rest end and 4/3 of the mean at the moving end for a
+    step next to rest under a jerk bound, see :mod:`curvespeed.problem`). A node's acceleration
+    is the mean of the values the steps meeting there give it; its jerk is their difference over
+    the time between the two steps' mid-points. On an open route the vehicle is taken to be
+    steady (zero acceleration) before the start and after the end, so the first and last nodes
+    carry the jerk of taking up and giving back the acceleration over half a step. The time over
+which a node's change of acceleration counts runs between the instants the two values stand for
+(mid-step for a constant-acceleration step, the node itself for a constant-jerk step). On a closed
+    route the seam joins the last step to the first. ``step_jerk_mps3`` is the jerk inside each
+    step (non-zero only for the constant-jerk steps next to rest).
+    """
     b = np.maximum(np.asarray(b, dtype=float), 0.0)
     v = np.sqrt(b)
     a_step = problem.step_accel(b)
-    dt = step_times(b, problem.ds)
+    a_first = a_step * problem.accel_factor_start     # at the step's first node
+    a_last = a_step * problem.accel_factor_end        # at the step's last node
+    dt = problem.step_times(b)
     t = np.concatenate(([0.0], np.cumsum(dt)))
-    acc = np.empty_like(v)
-    acc[1:-1] = 0.5 * (a_step[:-1] + a_step[1:])
-    acc[0], acc[-1] = a_step[0], a_step[-1]
-    jerk = np.zeros_like(v)
-    mid_dt = 0.5 * (dt[:-1] + dt[1:])
-    with np.errstate(invalid="ignore", divide="ignore"):
-        jerk[1:-1] = np.where(np.isfinite(mid_dt), (a_step[1:] - a_step[:-1]) / mid_dt, 0.0)
+    # Where each step's acceleration value stands in time: the mid-point of a constant-
+    # acceleration step (half its time from either node), or the node itself for the ends of a
+    # constant-jerk step next to rest (its acceleration ramps exactly between its node values).
+    half = np.where(problem.time_coef > 2.0, 0.0, 0.5 * dt)
     if problem.closed:
-        # the seam node joins the last step to the first
-        acc[0] = acc[-1] = 0.5 * (a_step[-1] + a_step[0])
-        jerk[0] = jerk[-1] = (a_step[0] - a_step[-1]) / (0.5 * (dt[-1] + dt[0]))
+        a_before = np.concatenate(([a_last[-1]], a_last))
+        a_after = np.concatenate((a_first, [a_first[0]]))
+        off_before = np.concatenate(([half[-1]], half))
+        off_after = np.concatenate((half, [half[0]]))
+    else:
+        a_before = np.concatenate(([0.0], a_last))
+        a_after = np.concatenate((a_first, [0.0]))
+        off_before = np.concatenate(([0.0], half))
+        off_after = np.concatenate((half, [0.0]))
+    acc = 0.5 * (a_before + a_after)
+    if not problem.closed:
+        acc[0], acc[-1] = a_after[0], a_before[-1]
+    mid_dt = off_before + off_after
+    with np.errstate(invalid="ignore", divide="ignore"):
+        change = a_after - a_before
+        jerk = np.where(np.isfinite(mid_dt) & (mid_dt > 0), change / mid_dt,
+                        np.where(change == 0.0, 0.0, np.inf))
+        step_jerk = np.where(np.isfinite(dt) & (dt > 0), (a_last - a_first) / dt, 0.0)
+    step_jerk = np.where(problem.time_coef > 2.0, step_jerk, 0.0)
+    # lateral jerk: d(kappa v^2)/dt = v d(kappa b)/ds, central differences in station
+    lat_jerk = v * np.gradient(problem.kappa_signed * b, problem.ds)
     return {"speed_mps": v, "step_accel_mps2": a_step, "accel_mps2": acc, "jerk_mps3": jerk,
-            "time_s": t}
+            "time_s": t, "lat_jerk_mps3": lat_jerk, "step_jerk_mps3": step_jerk,
+            "step_accel_first_mps2": a_first, "step_accel_last_mps2": a_last}

@@ -48,12 +48,16 @@ class Verification:
         First violation of each limit beyond the tolerance (empty when the profile is valid).
     binding : ndarray of str
         The limit that binds at each node, or "none".
+    extremes : dict of str -> float
+        Peak magnitudes in SI units: ``accel_mps2``, ``decel_mps2``, ``lateral_accel_mps2``,
+        ``jerk_mps3``, ``lateral_jerk_mps3``.
     """
 
     use: dict
     peak: dict
     violations: list
     binding: np.ndarray
+    extremes: dict
 
     @property
     def ok(self) -> bool:
@@ -72,8 +76,12 @@ def _node_max(step_values: np.ndarray, closed: bool) -> np.ndarray:
 
 
 def verify_profile(problem: SpeedProblem, b: np.ndarray,
-                   tolerance: float = DEFAULT_TOLERANCE) -> Verification:
-    """Check squared speeds ``b`` against every limit of ``problem``."""
+                   tolerance: float = DEFAULT_TOLERANCE, check_jerk: bool = True) -> Verification:
+    """Check squared speeds ``b`` against every limit of ``problem``.
+
+    ``check_jerk=False`` leaves the jerk bound out (for solvers that do not enforce it; the
+    jerk is still measured in :attr:`Verification.extremes`).
+    """
     lim = problem.limits
     b = np.maximum(np.asarray(b, dtype=float), 0.0)
     d = derive(problem, b)
@@ -85,22 +93,21 @@ def verify_profile(problem: SpeedProblem, b: np.ndarray,
     normal = problem.normal_accel(b)
     res = problem.resistance(b)
 
-    def per_step_at(nodes_b_idx):
+    def per_step_at(k, a_here):
         """Uses of the comfort ellipse, grip and power for each step at one of its nodes."""
-        k = nodes_b_idx
-        cap_a = np.where(a >= 0.0, lim.max_accel_mps2, lim.max_decel_mps2)
-        comfort = np.hypot(a / cap_a, lat_use[k])
-        tyre_long = a + res[k]
+        cap_a = np.where(a_here >= 0.0, lim.max_accel_mps2, lim.max_decel_mps2)
+        comfort = np.hypot(a_here / cap_a, lat_use[k])
+        tyre_long = a_here + res[k]
         grip = np.hypot(tyre_long / lim.mu_long, y[k] / lim.mu_lat) / normal[k]
         if math.isfinite(lim.power_per_mass_wpkg):
             power = np.maximum(tyre_long, 0.0) * v[k] / lim.power_per_mass_wpkg
         else:
-            power = np.zeros_like(a)
+            power = np.zeros_like(a_here)
         return comfort, grip, power
 
     idx = np.arange(a.size)
-    c0, g0, p0 = per_step_at(idx)
-    c1, g1, p1 = per_step_at(idx + 1)
+    c0, g0, p0 = per_step_at(idx, d["step_accel_first_mps2"])
+    c1, g1, p1 = per_step_at(idx + 1, d["step_accel_last_mps2"])
     comfort_use = _node_max(np.maximum(c0, c1), problem.closed)
     grip_use = _node_max(np.maximum(g0, g1), problem.closed)
     power_use = _node_max(np.maximum(p0, p1), problem.closed)
@@ -111,8 +118,9 @@ def verify_profile(problem: SpeedProblem, b: np.ndarray,
            "friction_ellipse": grip_use}
     if math.isfinite(lim.power_per_mass_wpkg):
         use["power"] = power_use
-    if lim.max_jerk_mps3 is not None:
-        use["jerk"] = np.abs(d["jerk_mps3"]) / lim.max_jerk_mps3
+    if lim.max_jerk_mps3 is not None and check_jerk:
+        step_jerk = _node_max(np.abs(d["step_jerk_mps3"]), problem.closed)
+        use["jerk"] = np.maximum(np.abs(d["jerk_mps3"]), step_jerk) / lim.max_jerk_mps3
 
     violations = []
     for name, arr in use.items():
@@ -129,8 +137,15 @@ def verify_profile(problem: SpeedProblem, b: np.ndarray,
 
     peak = {name: float(np.max(arr)) for name, arr in use.items()}
     grip_lat_share = np.abs(y) / (lim.mu_lat * normal)
+    a_ends = np.concatenate((d["step_accel_first_mps2"], d["step_accel_last_mps2"]))
+    extremes = {"accel_mps2": float(max(a_ends.max(), 0.0)),
+                "decel_mps2": float(max(-a_ends.min(), 0.0)),
+                "lateral_accel_mps2": float(np.max(problem.kappa_abs * b)),
+                "jerk_mps3": float(np.max(np.abs(d["jerk_mps3"]))),
+                "lateral_jerk_mps3": float(np.max(np.abs(d["lat_jerk_mps3"])))}
     return Verification(use=use, peak=peak, violations=violations,
-                        binding=_binding_labels(problem, a, use, lat_use, grip_lat_share))
+                        binding=_binding_labels(problem, a, use, lat_use, grip_lat_share),
+                        extremes=extremes)
 
 
 def _binding_labels(problem, a, use, lat_use, grip_lat_share) -> np.ndarray:

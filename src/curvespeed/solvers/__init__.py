@@ -22,9 +22,21 @@ class SolveStatus(enum.Enum):
 
 
 class SolverKind(enum.Enum):
-    """Solvers the command line can select."""
+    """Solvers the command line can select.
+
+    ``envelope``: exact forward-backward method, no jerk bound. ``convex``: the convex program
+    with jerk bound (Clarabel on a sparse QP, sequential convex programming).
+    ``convex-reference``: the same program modelled in cvxpy with exact cones (slow; for
+    cross-checking).
+    """
 
     ENVELOPE = "envelope"
+    CONVEX = "convex"
+    CONVEX_REFERENCE = "convex-reference"
+
+    @property
+    def enforces_jerk(self) -> bool:
+        return self is not SolverKind.ENVELOPE
 
 
 @dataclass(frozen=True)
@@ -46,6 +58,10 @@ class SolveResult:
         The node-wise squared-speed ceiling (lateral limits and caps), m^2/s^2.
     notes : tuple of str
         Messages about the solve (fallbacks, tolerances) for the sidecar.
+    envelope_b : ndarray or None
+        The envelope the solver started from (convex solver), m^2/s^2.
+    inner_iterations : int
+        Iterations of the inner QP solver, summed over outer iterations.
     """
 
     b: np.ndarray
@@ -55,12 +71,22 @@ class SolveResult:
     solve_time_s: float
     ceiling_b: np.ndarray
     notes: tuple[str, ...] = field(default=())
+    envelope_b: np.ndarray | None = None
+    inner_iterations: int = 0
 
 
-def solve(problem, kind: SolverKind = SolverKind.ENVELOPE) -> SolveResult:
-    """Solve ``problem`` with the solver ``kind``."""
+def solve(problem, kind: SolverKind = SolverKind.ENVELOPE, options=None) -> SolveResult:
+    """Solve ``problem`` with the solver ``kind`` (``options``: the solver's own settings)."""
     if kind is SolverKind.ENVELOPE:
         from .envelope import solve_envelope
 
         return solve_envelope(problem)
+    if kind is SolverKind.CONVEX:
+        from .convex import ConvexOptions, solve_convex
+
+        return solve_convex(problem, options or ConvexOptions())
+    if kind is SolverKind.CONVEX_REFERENCE:
+        from .reference_cvxpy import solve_reference
+
+        return solve_reference(problem)
     raise ValueError(f"unknown solver {kind!r}")

@@ -259,7 +259,10 @@ def _raise_cannot_slow(problem: SpeedProblem, b: np.ndarray, fwd: list) -> None:
     tight = np.flatnonzero(np.isclose(b[1:], np.asarray(fwd[1:]), rtol=1e-9, atol=1e-12)
                            & (b[1:] < problem.b_start))
     k = int(tight[0]) + 1 if tight.size else 1
-    what = problem.cap_source[k] if ceiling[k] >= problem.cap_b[k] * (1 - 1e-9) else "curve"
+    source = problem.cap_source[k] if ceiling[k] >= problem.cap_b[k] * (1 - 1e-9) else "curve"
+    what = {"stop": "a stop", "zone": "a speed zone", "max_speed": "the top speed",
+            "jerk_launch": "the last step into a stop, jerk-limited",
+            "curve": "a curve"}.get(str(source), str(source))
     v0 = math.sqrt(problem.b_start)
     vk = math.sqrt(max(b[k], 0.0))
     need = (v0 * v0 - vk * vk) / (2.0 * problem.limits.max_decel_mps2)

@@ -1,0 +1,514 @@
+"""Convex program over squared speed with jerk bounds, solved by sequential convex programming.
+
+The program (see ``docs/method.md`` for the full statement and sources) works on the discrete
+problem of :mod:`curvespeed.problem` with the squared speeds ``b`` as variables:
+
+* **bounds** ``0 <= b <= b_env``: the forward-backward envelope is the pointwise largest
+  feasible profile, so every jerk-limited profile lies below it;
+* **acceleration at both nodes of each step**: ``lo_k(b_k) <= a <= hi_k(b_k)``. Without power,
+  ``hi_k`` is concave and ``lo_k`` convex in ``b_k``; each is replaced by its piecewise-linear
+  interpolation on the break points ``0 < b_hat_k < b_env_k``. The interpolation of a concave
+  function lies below it, so the linear rows are *inside* the true ellipses (conservative) and
+  exact at the break points;
+* **power** ``a <= P / (m sqrt(b)) - res(b)``: the right side is convex in ``b``, so its tangents
+  at ``b_hat`` and ``b_env`` lie below it (conservative, exact at the tangent points);
+* **jerk** at each node: ``|a_after - a_before| <= J * tau`` with ``tau`` the time between the
+  mid-points of the two steps. By convexity of ``1/x``, ``tau >= ds / w`` with
+  ``w = (v_prev + 2 v + v_next) / 4``; ``w`` is concave in ``b`` so its tangent at ``b_hat`` is an
+  upper bound, and ``J ds / w`` is then replaced by its tangent (a lower bound, ``1/w`` being
+  convex). Both steps keep the row conservative for any ``b_hat > 0``;
+* **objective**: total time ``sum 2 ds / (sqrt(b_k) + sqrt(b_k+1))`` (convex), replaced in each
+  iteration by its exact second-order model at ``b_hat``, plus an optional comfort term
+  ``w_c * sum (a_after - a_before)^2``.
+
+Each iteration solves one sparse, banded QP with Clarabel (an interior-point method: the time
+objective's curvature spans orders of magnitude between slow and fast stretches, which a
+first-order method such as OSQP did not converge on within 20 000 iterations even with variables
+and rows scaled; an interior-point method is indifferent to it), then a line search on the true objective between the previous iterate and the QP's answer: the
+segment lies inside the conservative feasible set, so every accepted iterate is feasible for the
+real limits and the time never increases. Break points and tangents move to the new iterate and
+the loop stops when the time improves by less than ``rel_improvement``.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+
+from ..errors import CurvespeedWarning, InfeasibleError, SolverError
+from ..problem import SpeedProblem
+from . import SolveResult, SolveStatus
+from .envelope import solve_envelope
+
+#: Floor on squared speed where a square root is linearised, m^2/s^2 ((0.05 m/s)^2).
+_B_FLOOR = 0.0025
+
+
+@dataclass(frozen=True)
+class ConvexOptions:
+    """Settings of the convex solver.
+
+    Attributes
+    ----------
+    comfort_weight : float
+        Weight of the squared change of acceleration across nodes, s/(m/s^2)^2; 0 is pure
+        minimum time.
+    max_iterations : int
+        Cap on sequential-convex iterations.
+    rel_improvement : float
+        Stop when an iteration improves the time by less than this fraction.
+    margin : float
+        Fraction by which acceleration and jerk rows are tightened inside their limits so that a
+        solver's tolerance never leaves the true limits.
+    chord_tolerance_mps2 : float
+        A node's acceleration limit is replaced by one chord over its whole range (instead of two)
+        where that chord is within this of the limit at the current iterate, m/s^2. Chords are
+        always inside the limit, so this only trades a little optimality for a smaller QP.
+    qp_tolerance : float
+        Feasibility and gap tolerance of each QP solve (Clarabel).
+    """
+
+    comfort_weight: float = 0.0
+    max_iterations: int = 30
+    rel_improvement: float = 1e-5
+    margin: float = 1e-5
+    chord_tolerance_mps2: float = 1e-3
+    qp_tolerance: float = 1e-9
+
+
+class _Layout:
+    """Index structure of the QP: variables, steps, jerk stencils. Built once per problem."""
+
+    def __init__(self, problem: SpeedProblem, jerk: bool):
+        n_nodes = problem.n_nodes
+        self.closed = problem.closed
+        self.nv = n_nodes - 1 if problem.closed else n_nodes      # distinct nodes
+        nv = self.nv
+        self.node_of_var = np.arange(nv)
+        if problem.closed:
+            self.step_from = np.arange(nv)
+            self.step_to = (np.arange(nv) + 1) % nv
+        else:
+            self.step_from = np.arange(nv - 1)
+            self.step_to = np.arange(1, nv)
+        self.n_steps = self.step_from.size
+        # fixed variables: stops, and the ends of an open route
+        fixed = np.zeros(nv, dtype=bool)
+        value = np.zeros(nv)
+        stops = problem.stop_nodes % nv if problem.closed else problem.stop_nodes
+        fixed[stops] = True
+        if not problem.closed:
+            fixed[0] = True
+            value[0] = problem.b_start
+            fixed[-1] = True
+            value[-1] = problem.b_end
+        self.fixed = fixed
+        self.fixed_value = value
+        # per-step model (see curvespeed.problem): time coefficient and end-node factors
+        self.time_coef = problem.time_coef[: self.n_steps]
+        self.f_first = problem.accel_factor_start[: self.n_steps]
+        self.f_last = problem.accel_factor_end[: self.n_steps]
+        # node stencils: node k with the step before (from prev) and the step after (to next)
+        k = np.arange(nv)
+        if problem.closed:
+            self.j_prev, self.j_next = (k - 1) % nv, (k + 1) % nv
+            self.j_has_prev = self.j_has_next = np.ones(nv, dtype=bool)
+            self.step_before, self.step_after = (k - 1) % nv, k
+        else:
+            self.j_prev, self.j_next = np.maximum(k - 1, 0), np.minimum(k + 1, nv - 1)
+            self.j_has_prev, self.j_has_next = k > 0, k < nv - 1
+            self.step_before = np.maximum(k - 1, 0)
+            self.step_after = np.minimum(k, self.n_steps - 1)
+        self.jerk = jerk
+        self.D = self._delta_a(problem.ds)
+
+    def _delta_a(self, ds: float):
+        """Sparse rows of (acceleration after) - (acceleration before) at every node, in b."""
+        h = 1.0 / (2.0 * ds)
+        k = np.arange(self.nv)
+        hp, hn = self.j_has_prev, self.j_has_next
+        fa = np.where(hn, self.f_first[self.step_after], 0.0) * h    # a_after = fa (b_next - b_k)
+        fb = np.where(hp, self.f_last[self.step_before], 0.0) * h    # a_before = fb (b_k - b_prev)
+        m = sp.coo_matrix((np.concatenate((fa, -fa, -fb, fb)),
+                           (np.concatenate((k, k, k, k)),
+                            np.concatenate((self.j_next, k, k, self.j_prev)))),
+                          shape=(self.nv, self.nv)).tocsr()
+        m.sum_duplicates()
+        return m
+
+
+def _time_model(b_hat: np.ndarray, lay: _Layout, ds: float):
+    """Total time, gradient and (upper-triangular) Hessian of the time at ``b_hat``."""
+    free = ~lay.fixed
+    fx, fy = free[lay.step_from], free[lay.step_to]
+    # square roots, floored where the variable is free (a free node is never meant to be at rest)
+    root_floor = math.sqrt(_B_FLOOR)
+    sx = np.sqrt(np.maximum(b_hat[lay.step_from], 0.0))
+    sy = np.sqrt(np.maximum(b_hat[lay.step_to], 0.0))
+    sxf = np.where(fx, np.maximum(sx, root_floor), sx)
+    syf = np.where(fy, np.maximum(sy, root_floor), sy)
+    S = sxf + syf
+    half_c = 0.5 * lay.time_coef            # step time is c ds / S
+    total = float(np.sum(2.0 * half_c * ds / S))
+    sxf = np.maximum(sxf, root_floor)       # only used where the variable is free
+    syf = np.maximum(syf, root_floor)
+    cds = half_c * ds
+    gx = np.where(fx, -cds / (S * S * sxf), 0.0)
+    gy = np.where(fy, -cds / (S * S * syf), 0.0)
+    hxx = np.where(fx, cds * (1.0 / (S ** 3 * sxf ** 2) + 0.5 / (S * S * sxf ** 3)), 0.0)
+    hyy = np.where(fy, cds * (1.0 / (S ** 3 * syf ** 2) + 0.5 / (S * S * syf ** 3)), 0.0)
+    hxy = np.where(fx & fy, cds / (S ** 3 * sxf * syf), 0.0)
+    nv = lay.nv
+    grad = np.zeros(nv)
+    np.add.at(grad, lay.step_from, gx)
+    np.add.at(grad, lay.step_to, gy)
+    diag = np.zeros(nv)
+    np.add.at(diag, lay.step_from, hxx)
+    np.add.at(diag, lay.step_to, hyy)
+    return total, grad, diag, hxy
+
+
+def _true_time(b: np.ndarray, lay: _Layout, ds: float) -> float:
+    s = np.sqrt(np.maximum(b[lay.step_from], 0.0)) + np.sqrt(np.maximum(b[lay.step_to], 0.0))
+    with np.errstate(divide="ignore"):
+        return float(np.sum(lay.time_coef * ds / s))
+
+
+class _QPBuilder:
+    """Assembles the QP of one iteration around the break points ``b_hat`` (see module doc)."""
+
+    def __init__(self, problem: SpeedProblem, lay: _Layout, b_env: np.ndarray,
+                 options: ConvexOptions):
+        self.p = problem
+        self.lay = lay
+        self.b_env = b_env
+        self.opt = options
+        self.ds = problem.ds
+        self.has_power = math.isfinite(problem.limits.power_per_mass_wpkg)
+        self.D = lay.D
+
+    def _node_bounds(self, b, nodes, include_power=False):
+        return self.p.accel_bounds(b, nodes=nodes, include_power=include_power)
+
+    def build(self, b_hat: np.ndarray):
+        p, lay, ds = self.p, self.lay, self.ds
+        nv = lay.nv
+        e = self.b_env[:nv]
+        free = ~lay.fixed
+        h = 1.0 / (2.0 * ds)
+        margin = self.opt.margin
+        lim = p.limits
+        # break points: 0 < m < e, with m the current iterate (kept away from the ends)
+        m = np.clip(b_hat, 0.02 * e, 0.98 * e)
+        m = np.where(e - b_hat < 1e-9 * np.maximum(e, 1.0), 0.5 * e, m)
+        nodes = np.arange(nv)
+        pts = [np.zeros(nv), m, e]
+        lo_pts, hi_pts = zip(*(self._node_bounds(q, nodes) for q in pts))
+
+        rows_i, cols_i, vals_i, lower, upper = [], [], [], [], []
+        row0 = 0
+
+        def add_rows(c1, v1, c2, v2, lo, up):
+            nonlocal row0
+            cnt = c1.size
+            r = np.arange(row0, row0 + cnt)
+            rows_i.extend([r, r])
+            cols_i.extend([c1, c2])
+            vals_i.extend([v1, v2])
+            lower.append(lo)
+            upper.append(up)
+            row0 += cnt
+
+        # acceleration rows: each step at each of its nodes, each side, each segment
+        sf, st = lay.step_from, lay.step_to
+        a_tol_hi = margin * lim.max_accel_mps2
+        a_tol_lo = margin * lim.max_decel_mps2
+        # A concave hi (convex lo) is replaced by its chords on [0, m] and [m, e]; where the
+        # single chord on [0, e] is within chord_tolerance of it at m (straights, gentle curves)
+        # that one row is enough. Rows identical at both ends of a step are kept once.
+        rows_seen = {}
+        for end, fac in ((sf, lay.f_first), (st, lay.f_last)):
+            for side in ("hi", "lo"):
+                f = hi_pts if side == "hi" else lo_pts
+                f0, fm, fe = f[0][end], f[1][end], f[2][end]
+                p0, pm_, pe = pts[0][end], pts[1][end], pts[2][end]
+                whole = np.where(pe - p0 > 1e-12, (fe - f0) / np.where(pe - p0 > 1e-12, pe - p0, 1), 0)
+                dev = np.abs(fm - (f0 + whole * (pm_ - p0)))
+                single = dev <= self.opt.chord_tolerance_mps2
+                for seg in range(2):
+                    p1, p2 = (p0, pm_) if seg == 0 else (pm_, pe)
+                    f1, f2 = (f0, fm) if seg == 0 else (fm, fe)
+                    width = p2 - p1
+                    ok = width > 1e-12
+                    slope = np.where(ok, (f2 - f1) / np.where(ok, width, 1.0), 0.0)
+                    rhs = f1 - slope * p1
+                    if seg == 0:
+                        slope = np.where(single, whole, slope)
+                        rhs = np.where(single, f0 - whole * p0, rhs)
+                        ok = ok | single
+                    else:
+                        ok = ok & ~single
+                    # a - slope * b_end  (a = fac h (b_to - b_from) at this end)
+                    c_from = -fac * h
+                    c_to = fac * h
+                    if end is sf:
+                        c_from = c_from - slope
+                    else:
+                        c_to = c_to - slope
+                    key = (side, seg)
+                    if key in rows_seen:    # same row already at the other end of the step
+                        pc_from, pc_to, prhs = rows_seen[key]
+                        same = (pc_from == c_from) & (pc_to == c_to) & (prhs == rhs)
+                        ok = ok & ~same
+                    else:
+                        rows_seen[key] = (c_from, c_to, rhs)
+                    if side == "hi":
+                        up = np.where(ok, rhs - a_tol_hi, np.inf)
+                        add_rows(sf, c_from, st, c_to, np.full(sf.size, -np.inf), up)
+                    else:
+                        lo = np.where(ok, rhs + a_tol_lo, -np.inf)
+                        add_rows(sf, c_from, st, c_to, lo, np.full(sf.size, np.inf))
+
+        # power: tangents of P/(m sqrt(b)) - res(b) at m and e (drive side only)
+        if self.has_power:
+            pm = lim.power_per_mass_wpkg
+            for end, fac in ((sf, lay.f_first), (st, lay.f_last)):
+                for q in (m, e):
+                    bq = np.maximum(q[end], _B_FLOOR)
+                    res0 = p.resistance(0.0, nodes=end)
+                    res1 = p.resistance(1.0, nodes=end) - res0      # d res / d b
+                    f0 = pm / np.sqrt(bq)
+                    slope = -0.5 * pm / bq ** 1.5 - res1
+                    rhs = f0 - res0 - res1 * bq - slope * bq - a_tol_hi
+                    c_from = -fac * h
+                    c_to = fac * h
+                    if end is sf:
+                        c_from = c_from - slope
+                    else:
+                        c_to = c_to - slope
+                    add_rows(sf, c_from, st, c_to, np.full(sf.size, -np.inf), rhs)
+
+        A_acc = sp.coo_matrix((np.concatenate(vals_i), (np.concatenate(rows_i),
+                                                         np.concatenate(cols_i))),
+                              shape=(row0, nv)).tocsr()
+        blocks = [sp.identity(nv, format="csr"), A_acc]
+        lb = np.where(lay.fixed, lay.fixed_value, 0.0)
+        ub = np.where(lay.fixed, lay.fixed_value, e)
+        lows = [lb, np.concatenate(lower)]
+        ups = [ub, np.concatenate(upper)]
+
+        # jerk rows: |D b| <= R(b), R linear (tangent, see module docstring)
+        if lay.jerk:
+            J = lim.max_jerk_mps3 * (1.0 - margin)
+            k = np.arange(nv)
+            hp, hn = lay.j_has_prev, lay.j_has_next
+            # tau >= ds / w with w = sum c sqrt(b) (Jensen; see module docstring): interior
+            # w = (v_prev + v)/(2 c_before) + (v + v_next)/(2 c_after); at an open end the
+            # virtual outside step has zero acceleration and tau is half the real step
+            # only constant-acceleration sides (time coefficient 2) add time to tau; a
+            # constant-jerk step's value stands at the node itself
+            lin_b = hp & (lay.time_coef[lay.step_before] == 2.0)
+            lin_a = hn & (lay.time_coef[lay.step_after] == 2.0)
+            both = lin_b & lin_a
+            c_prev = np.where(both, 0.25, np.where(lin_b, 1.0, 0.0))
+            c_next = np.where(both, 0.25, np.where(lin_a, 1.0, 0.0))
+            c_self = np.where(both, 0.5, np.where(lin_b | lin_a, 1.0, 0.0))
+            sq = np.sqrt(np.maximum(b_hat, _B_FLOOR))
+            w_hat = c_prev * sq[lay.j_prev] + c_self * sq + c_next * sq[lay.j_next]
+            w_hat = np.where(w_hat > 0, w_hat, 1.0)    # rows with tau = 0 are handled below
+            coef = J * ds / (w_hat * w_hat)
+            g_prev = np.where(free[lay.j_prev], coef * c_prev / (2 * sq[lay.j_prev]), 0.0)
+            g_self = np.where(free, coef * c_self / (2 * sq), 0.0)
+            g_next = np.where(free[lay.j_next], coef * c_next / (2 * sq[lay.j_next]), 0.0)
+            g_prev = np.where(hp, g_prev, 0.0)
+            g_next = np.where(hn, g_next, 0.0)
+            no_time = (c_self == 0.0)
+            g_prev, g_self, g_next = (np.where(no_time, 0.0, g) for g in (g_prev, g_self, g_next))
+            alpha0 = (J * ds / w_hat + g_prev * b_hat[lay.j_prev] + g_self * b_hat
+                      + g_next * b_hat[lay.j_next])
+            G = sp.coo_matrix((np.concatenate((g_prev, g_self, g_next)),
+                               (np.concatenate((k, k, k)),
+                                np.concatenate((lay.j_prev, k, lay.j_next)))),
+                              shape=(nv, nv)).tocsr()
+            G.sum_duplicates()
+            # a node where both steps have zero acceleration (a rest node) has no jerk row
+            active = np.abs(self.D).sum(axis=1).A1 > 0
+            # tau = 0 (between two constant-jerk steps): the accelerations must match exactly
+            alpha0 = np.where(active, np.where(no_time, 0.0, alpha0), np.inf)
+            blocks += [self.D + G, -self.D + G]
+            lows += [np.full(nv, -np.inf), np.full(nv, -np.inf)]
+            ups += [alpha0, alpha0]
+
+        A = sp.vstack(blocks, format="csc")
+        lo_all = np.concatenate(lows)
+        up_all = np.concatenate(ups)
+
+        # objective: second-order model of the time at b_hat (+ comfort term), scaled to O(1)
+        total, grad, diag, hxy = _time_model(b_hat, lay, ds)
+        H = sp.coo_matrix((np.concatenate((diag, hxy)),
+                           (np.concatenate((np.arange(nv), sf)),
+                            np.concatenate((np.arange(nv), st)))), shape=(nv, nv))
+        H = (H + H.T - sp.diags(diag)).tocsc()     # symmetric
+        if self.opt.comfort_weight > 0:
+            H = H + 2.0 * self.opt.comfort_weight * (self.D.T @ self.D)
+            grad = grad + 2.0 * self.opt.comfort_weight * (self.D.T @ (self.D @ b_hat))
+        # pinned variables: decouple them (their value is fixed by the bounds)
+        pin = sp.diags(lay.fixed.astype(float))
+        keep = sp.diags((~lay.fixed).astype(float))
+        H = (keep @ H @ keep + pin).tocsc()
+        q = grad - H @ b_hat
+        q = np.where(lay.fixed, -lay.fixed_value, q)
+        # scale so that a typical (median) gradient is 1: the gap tolerance then means the same
+        # for fast and slow stretches alike (the largest gradients, near rest, are 1e4 larger)
+        scale = 1.0 / max(float(np.median(np.abs(grad[free]))) if free.any() else 1.0, 1e-12)
+        return H * scale, q * scale, A, lo_all, up_all
+
+
+def _solve_qp_clarabel(P, q, A, lo, up, eps):
+    """Solve min x'Px/2 + q'x s.t. lo <= Ax <= up with Clarabel; map its status to ours."""
+    import clarabel
+
+    eq = np.isfinite(lo) & np.isfinite(up) & (lo == up)
+    hi_rows = np.isfinite(up) & ~eq
+    lo_rows = np.isfinite(lo) & ~eq
+    A = A.tocsr()
+    Aall = sp.vstack([A[eq], A[hi_rows], -A[lo_rows]], format="csc")
+    ball = np.concatenate([up[eq], up[hi_rows], -lo[lo_rows]])
+    cones = [clarabel.ZeroConeT(int(eq.sum())),
+             clarabel.NonnegativeConeT(int(hi_rows.sum() + lo_rows.sum()))]
+    settings = clarabel.DefaultSettings()
+    settings.verbose = False
+    settings.tol_gap_abs = eps
+    settings.tol_gap_rel = eps
+    settings.tol_feas = eps
+    solver = clarabel.DefaultSolver(sp.triu(P, format="csc"), q, Aall, ball, cones, settings)
+    sol = solver.solve()
+    name = str(sol.status).lower()
+    if name.endswith("solved") and "almost" not in name:
+        status = SolveStatus.OPTIMAL
+    elif "almost" in name:
+        status = SolveStatus.OPTIMAL_INACCURATE
+    elif "infeasible" in name:
+        status = SolveStatus.INFEASIBLE
+    else:
+        status = SolveStatus.FAILED
+    return np.asarray(sol.x), status, int(sol.iterations)
+
+
+def solve_convex(problem: SpeedProblem, options: ConvexOptions = ConvexOptions()) -> SolveResult:
+    """Minimum-time profile with jerk bound (and every envelope limit); see module docstring."""
+    t_start = time.perf_counter()
+    env = solve_envelope(problem)
+    lay = _Layout(problem, jerk=problem.limits.max_jerk_mps3 is not None)
+    nv = lay.nv
+    b_env = env.b[:nv].copy()
+    builder = _QPBuilder(problem, lay, b_env, options)
+    notes = []
+
+    b_hat = b_env.copy()
+    t_hat = math.inf
+    status = SolveStatus.OPTIMAL
+    qp_iterations = 0
+    iterations = 0
+    for iterations in range(1, options.max_iterations + 1):
+        P, q, A, lo, up = builder.build(b_hat)
+        x, st, its = _solve_qp_clarabel(P, q, A, lo, up, options.qp_tolerance)
+        qp_iterations += its
+        if st is SolveStatus.OPTIMAL_INACCURATE:
+            # retry once with looser tolerances before accepting an inaccurate answer
+            x2, st2, its2 = _solve_qp_clarabel(P, q, A, lo, up, 100 * options.qp_tolerance)
+            qp_iterations += its2
+            notes.append(f"iteration {iterations}: Clarabel was inaccurate at tolerance "
+                         f"{options.qp_tolerance:g}; re-solved at {100 * options.qp_tolerance:g}"
+                         f" ({st2.value})")
+            if st2 is SolveStatus.OPTIMAL:
+                x, st = x2, st2
+        if st is SolveStatus.INFEASIBLE:
+            if iterations == 1:
+                raise InfeasibleError(_explain_infeasible(problem))
+            notes.append(f"iteration {iterations}: QP reported infeasible; kept the last iterate")
+            break
+        if st is SolveStatus.FAILED or x is None or not np.all(np.isfinite(x)):
+            if iterations == 1:
+                raise SolverError(f"the convex solver's QP failed in the first iteration "
+                                  f"({st.value}); --solver envelope gives the profile without "
+                                  "the jerk bound")
+            notes.append(f"iteration {iterations}: QP failed ({st.value}); kept the last iterate")
+            status = SolveStatus.OPTIMAL_INACCURATE
+            break
+        if st is SolveStatus.OPTIMAL_INACCURATE:
+            status = SolveStatus.OPTIMAL_INACCURATE
+        x = np.clip(np.asarray(x, dtype=float), 0.0, b_env)
+        x[lay.fixed] = lay.fixed_value[lay.fixed]
+        if iterations == 1:
+            b_new = x
+            t_new = _true_time(b_new, lay, problem.ds)
+        else:
+            b_new, t_new = _line_search(b_hat, x, t_hat, lay, problem.ds)
+        improvement = (t_hat - t_new) / t_new if math.isfinite(t_hat) else math.inf
+        if t_new <= t_hat:
+            b_hat, t_hat = b_new, t_new
+        if improvement < options.rel_improvement:
+            break
+
+    b = np.empty(problem.n_nodes)
+    b[:nv] = b_hat
+    if problem.closed:
+        b[-1] = b[0]
+    if not lay.jerk and not builder.has_power:
+        notes.append("no jerk bound and no power limit: the program's optimum is the envelope")
+    elapsed = time.perf_counter() - t_start
+    if iterations >= options.max_iterations:
+        warnings.warn(f"convex solver stopped at the iteration cap ({options.max_iterations}); "
+                      "the profile is feasible but may be a little slower than optimal",
+                      CurvespeedWarning, stacklevel=2)
+    return SolveResult(b=b, status=status, solver="convex",
+                       iterations=iterations, solve_time_s=elapsed, ceiling_b=env.ceiling_b,
+                       notes=tuple(notes), envelope_b=env.b, inner_iterations=qp_iterations)
+
+
+def _line_search(b0, b1, t0, lay, ds, steps: int = 30):
+    """Minimise the true time on the segment b0 -> b1 (convex in the step length)."""
+    d = b1 - b0
+    t1 = _true_time(b1, lay, ds)
+    if t1 <= t0:
+        # the full step improves; try a little further back only if it is not better
+        return b1, t1
+    lo_a, hi_a = 0.0, 1.0
+    phi = (math.sqrt(5) - 1) / 2
+    for _ in range(steps):
+        a1 = hi_a - phi * (hi_a - lo_a)
+        a2 = lo_a + phi * (hi_a - lo_a)
+        if _true_time(b0 + a1 * d, lay, ds) <= _true_time(b0 + a2 * d, lay, ds):
+            hi_a = a2
+        else:
+            lo_a = a1
+    alpha = 0.5 * (lo_a + hi_a)
+    b = b0 + alpha * d
+    return b, _true_time(b, lay, ds)
+
+
+def _explain_infeasible(problem: SpeedProblem) -> str:
+    """Say why no jerk-limited profile exists, naming the first constraint that cannot be met."""
+    lim = problem.limits
+    j = lim.max_jerk_mps3
+    a = lim.max_decel_mps2
+    if problem.b_start:
+        v0 = math.sqrt(problem.b_start)
+        # jerk-limited stop from v0 (double-S by symmetry): v0^2/(2a) + v0 a/(2j) if v0 j >= a^2
+        need = v0 * v0 / (2 * a) + v0 * a / (2 * j) if v0 * j >= a * a else v0 * math.sqrt(v0 / j)
+        for k in problem.stop_nodes:
+            avail = problem.station_m[k] - problem.station_m[0]
+            if need > avail:
+                return (f"start speed {v0:.2f} m/s: the stop at station {problem.station_m[k]:.1f}"
+                        f" m needs {need:.1f} m of jerk-limited braking (decel {a:g} m/s^2, "
+                        f"jerk {j:g} m/s^3) but only {avail:.1f} m are available; lower the start"
+                        " speed or move the stop")
+    return ("no speed profile satisfies the jerk bound together with the other limits and "
+            "constraints (stops, zones, start and end speed); relax max_jerk_mps3 or the "
+            "constraints near the start and the stops")

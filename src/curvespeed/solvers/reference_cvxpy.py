@@ -1,0 +1,204 @@
+"""Reference formulation of the convex speed program in cvxpy: slow, exact, independent.
+
+This is the same discrete problem as :mod:`curvespeed.solvers.convex`, written a second way so
+each checks the other:
+
+* the comfort and friction ellipses are exact second-order cones (no chords);
+* the objective is the exact total time ``sum c ds / (sqrt(b_k) + sqrt(b_k+1))`` (convex:
+  ``inv_pos`` of a concave sum), which cvxpy turns into cones itself;
+* the jerk bound and power limit, which are not convex, are linearised at the previous iterate
+  in the conservative way the module docstring of :mod:`~curvespeed.solvers.convex` derives,
+  but written out here from the definitions (``tau >= ds / w``, tangents of ``sqrt`` and of
+  ``1/w``) rather than by calling that module.
+
+It is used by the test suite and the benchmark, and can be selected with
+``plan --solver convex-reference``. Import cost is high (cvxpy), so it is imported lazily.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+
+import numpy as np
+
+from ..errors import InfeasibleError, SolverError
+from ..problem import SpeedProblem
+from . import SolveResult, SolveStatus
+from .envelope import solve_envelope
+
+_B_FLOOR = 0.0025  # m^2/s^2, floor of linearisation points (tangents stay valid anywhere > 0)
+
+
+def _index_sets(problem: SpeedProblem):
+    n = problem.n_nodes
+    nv = n - 1 if problem.closed else n
+    k = np.arange(nv)
+    if problem.closed:
+        frm, to = k, (k + 1) % nv
+    else:
+        frm, to = k[:-1], k[1:]
+    return nv, frm, to
+
+
+def build_reference_model(problem: SpeedProblem, b_lin: np.ndarray, b_upper: np.ndarray):
+    """cvxpy problem for one iteration, jerk and power linearised at ``b_lin``.
+
+    Returns ``(cvxpy.Problem, b_variable)``.
+    """
+    import cvxpy as cp
+
+    lim = problem.limits
+    g = lim.gravity_mps2
+    ds = problem.ds
+    nv, frm, to = _index_sets(problem)
+    ns = frm.size
+    b = cp.Variable(nv)
+    cons = [b >= 0, b <= b_upper[:nv]]
+
+    # fixed values: stops, and the ends of an open route
+    fixed = {int(k) % nv: 0.0 for k in problem.stop_nodes}
+    if not problem.closed:
+        fixed[0] = problem.b_start
+        fixed[nv - 1] = problem.b_end
+    for k, val in fixed.items():
+        cons.append(b[k] == val)
+
+    kap = problem.kappa_abs[:nv]
+    sb, cb = problem.sin_bank[:nv], problem.cos_bank[:nv]
+    sg, cg = problem.sin_grade[:nv], problem.cos_grade[:nv]
+    coef = problem.time_coef[:ns]
+    f_first = problem.accel_factor_start[:ns]
+    f_last = problem.accel_factor_end[:ns]
+    mean_a = (b[to] - b[frm]) / (2 * ds)
+
+    for nodes, fac in ((frm, f_first), (to, f_last)):
+        a = cp.multiply(fac, mean_a)
+        bj = b[nodes]
+        lateral = cp.multiply(kap[nodes] * cb[nodes], bj) - g * sb[nodes]
+        normal = g * cg[nodes] * cb[nodes] + cp.multiply(kap[nodes] * sb[nodes], bj)
+        resist = (g * sg[nodes] + lim.rolling_resistance_coefficient * g * cg[nodes]
+                  + lim.drag_per_b_1pm * bj)
+        felt = cp.pos(lateral) / lim.max_lateral_accel_mps2
+        # comfort ellipse, exact, on each side of zero acceleration
+        cons.append(cp.norm(cp.vstack([cp.pos(a) / lim.max_accel_mps2, felt]), 2, axis=0) <= 1)
+        cons.append(cp.norm(cp.vstack([cp.neg(a) / lim.max_decel_mps2, felt]), 2, axis=0) <= 1)
+        # friction ellipse, exact
+        cons.append(cp.norm(cp.vstack([(a + resist) / lim.mu_long, lateral / lim.mu_lat]), 2,
+                            axis=0) <= normal)
+        # power, tangent of P/(m sqrt(b)) at the linearisation point (below the convex curve)
+        if math.isfinite(lim.power_per_mass_wpkg):
+            pm = lim.power_per_mass_wpkg
+            for q in (b_lin[:nv], b_upper[:nv]):
+                bq = np.maximum(q[nodes], _B_FLOOR)
+                tangent = pm / np.sqrt(bq) - cp.multiply(0.5 * pm / bq ** 1.5, bj - bq)
+                cons.append(a + resist <= tangent)
+
+    if lim.max_jerk_mps3 is not None:
+        cons += _jerk_constraints(problem, b, b_lin[:nv], nv, frm, to, mean_a, f_first, f_last)
+
+    total_time = cp.sum(cp.multiply(coef * ds, cp.inv_pos(cp.sqrt(b[frm]) + cp.sqrt(b[to]))))
+    return cp.Problem(cp.Minimize(total_time), cons), b
+
+
+def _jerk_constraints(problem, b, b_lin, nv, frm, to, mean_a, f_first, f_last):
+    """|a_after - a_before| <= J tau at every node with tau >= ds / w(b), w linearised.
+
+    Built as sparse matrices from the definitions: ``Dm @ b`` is the change of acceleration at
+    each node; ``w`` sums ``sqrt(b)`` of the node and the far node of each constant-acceleration
+    side (whose mid-point lies half a step time, ``c ds / (2 (v_k + v_other))``, away), with
+    weights from Jensen's inequality on ``1/x``.
+    """
+    import cvxpy as cp
+    import scipy.sparse as sp
+
+    J = problem.limits.max_jerk_mps3
+    ds = problem.ds
+    ns = frm.size
+    linear_step = problem.time_coef[:ns] == 2.0
+    h = 1.0 / (2.0 * ds)
+    k = np.arange(nv)
+    if problem.closed:
+        before, after = (k - 1) % nv, k
+        has_b = has_a = np.ones(nv, dtype=bool)
+    else:
+        before, after = np.maximum(k - 1, 0), np.minimum(k, ns - 1)
+        has_b, has_a = k > 0, k < nv - 1
+    fb = np.where(has_b, f_last[before], 0.0)
+    fa = np.where(has_a, f_first[after], 0.0)
+    rows = np.concatenate((k, k, k, k))
+    cols = np.concatenate((to[after], frm[after], to[before], frm[before]))
+    vals = np.concatenate((fa * h, -fa * h, -fb * h, fb * h))
+    Dm = sp.csr_matrix((vals, (rows, cols)), shape=(nv, nv))
+    at_rest = (fb == 0) & (fa == 0)
+
+    side_b = has_b & linear_step[before]
+    side_a = has_a & linear_step[after]
+    two = side_b & side_a
+    w_self = np.where(two, 0.5, np.where(side_b | side_a, 1.0, 0.0))
+    w_b = np.where(two, 0.25, np.where(side_b, 1.0, 0.0))
+    w_a = np.where(two, 0.25, np.where(side_a, 1.0, 0.0))
+    far_b, far_a = frm[before], to[after]
+    roots = np.sqrt(np.maximum(b_lin, _B_FLOOR))
+    w_hat = w_self * roots + w_b * roots[far_b] + w_a * roots[far_a]
+    fixed = np.zeros(nv, dtype=bool)
+    fixed[np.asarray(problem.stop_nodes, dtype=int) % nv] = True
+    if not problem.closed:
+        fixed[[0, nv - 1]] = True
+    # tangent of sqrt at b_lin: sqrt(b) <= r + (b - b_lin) / (2 r), only for free nodes
+    slope = np.where(fixed, 0.0, 1.0 / (2.0 * roots))
+    Wm = sp.csr_matrix((np.concatenate((w_self * slope, w_b * slope[far_b], w_a * slope[far_a])),
+                        (np.concatenate((k, k, k)), np.concatenate((k, far_b, far_a)))),
+                       shape=(nv, nv))
+    w0 = w_hat - Wm @ b_lin
+    no_time = w_self == 0
+    idx = np.flatnonzero(~at_rest & ~no_time)
+    wh = w_hat[idx]
+    change = Dm[idx] @ b
+    w_upper = w0[idx] + Wm[idx] @ b
+    # 1/w >= 2/w_hat - w/w_hat^2 (tangent of the convex 1/w), and w <= w_upper
+    budget = J * ds * (2.0 / wh - cp.multiply(1.0 / (wh * wh), w_upper))
+    cons = [change <= budget, -change <= budget]
+    tight = np.flatnonzero(~at_rest & no_time)
+    if tight.size:
+        cons.append(Dm[tight] @ b == 0)
+    return cons
+
+
+def solve_reference(problem: SpeedProblem, max_iterations: int = 30,
+                    rel_improvement: float = 1e-5, solver: str = "CLARABEL") -> SolveResult:
+    """Sequential convex programming on the exact cvxpy model, from the envelope."""
+    import cvxpy as cp
+
+    t0 = time.perf_counter()
+    env = solve_envelope(problem)
+    nv, frm, to = _index_sets(problem)
+    b_lin = env.b.copy()
+    best_time = math.inf
+    best = env.b.copy()
+    it = 0
+    for it in range(1, max_iterations + 1):
+        prob, b = build_reference_model(problem, b_lin, env.b)
+        try:
+            prob.solve(solver=solver)
+        except cp.error.SolverError as exc:
+            raise SolverError(f"cvxpy reference: {exc}") from None
+        if prob.status in ("infeasible", "infeasible_inaccurate"):
+            raise InfeasibleError("the reference model is infeasible")
+        if b.value is None:
+            raise SolverError(f"cvxpy reference: status {prob.status}")
+        cand = np.clip(b.value, 0.0, env.b[:nv])
+        t_cand = float(prob.value)
+        full = np.empty(problem.n_nodes)
+        full[:nv] = cand
+        if problem.closed:
+            full[-1] = full[0]
+        improved = (best_time - t_cand) / t_cand if math.isfinite(best_time) else math.inf
+        if t_cand < best_time:
+            best, best_time = full, t_cand
+        b_lin = full
+        if improved < rel_improvement:
+            break
+    return SolveResult(b=best, status=SolveStatus.OPTIMAL, solver="convex-reference",
+                       iterations=it, solve_time_s=time.perf_counter() - t0,
+                       ceiling_b=env.ceiling_b, envelope_b=env.b)
