@@ -223,6 +223,25 @@ def solve_envelope(problem: SpeedProblem) -> SolveResult:
                        iterations=laps, solve_time_s=elapsed, ceiling_b=ceiling_arr)
 
 
+def brake_reach(problem: SpeedProblem, ceiling_b: np.ndarray) -> np.ndarray:
+    """Highest squared speed at each node from which braking within the limits meets every
+    ceiling ahead: the backward pass over ``ceiling_b`` with a free end.
+
+    On a closed route the pass runs two laps backward, so the ceilings just after the seam are
+    seen from the end of the lap.
+    """
+    nodes = _Nodes(problem)
+    ceiling = np.asarray(ceiling_b, dtype=float)
+    n = problem.n_nodes
+    if not problem.closed:
+        order = list(range(n))
+        return np.asarray(_backward_pass(nodes, ceiling.tolist(), float(ceiling[-1]), order))
+    m = n - 1
+    order = list(range(m)) * 2 + [0]
+    out = _backward_pass(nodes, ceiling[order].tolist(), float(ceiling[0]), order)
+    return np.asarray(out[:m] + [out[0]])
+
+
 def _solve_periodic(problem: SpeedProblem, nd: _Nodes, ceiling_arr: np.ndarray,
                     max_laps: int = 50):
     """Periodic passes on a closed route; node n-1 is node 0 again."""

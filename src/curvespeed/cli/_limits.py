@@ -1,0 +1,103 @@
+"""Options shared by commands that take limits: the limits file, overrides and constraints."""
+
+from __future__ import annotations
+
+import click
+
+#: Command-line option -> Limits field, for overrides of the limits file or the defaults.
+LIMIT_OPTIONS = {
+    "friction": "friction_coefficient",
+    "max_lateral_accel": "max_lateral_accel_mps2",
+    "max_accel": "max_accel_mps2",
+    "max_decel": "max_decel_mps2",
+    "max_speed": "max_speed_mps",
+    "max_jerk": "max_jerk_mps3",
+    "max_power": "max_power_w",
+    "mass": "mass_kg",
+    "drag_area": "drag_area_m2",
+    "rolling_resistance": "rolling_resistance_coefficient",
+}
+
+
+def _parse_ranges(values, fields: int, what: str, example: str):
+    out = []
+    for text in values:
+        parts = text.split(":")
+        try:
+            nums = [float(p) for p in parts]
+        except ValueError:
+            nums = []
+        if len(nums) != fields:
+            raise click.BadParameter(f"'{text}' is not {what}; write it as {example}")
+        out.append(nums)
+    return out
+
+
+def limit_override_options(func):
+    """Add one option per entry of :data:`LIMIT_OPTIONS`."""
+    helps = {
+        "friction": "Tyre-road friction coefficient mu.",
+        "max_lateral_accel": "Comfort cap on lateral acceleration, m/s^2.",
+        "max_accel": "Cap on acceleration along the path, m/s^2.",
+        "max_decel": "Cap on deceleration along the path (positive), m/s^2.",
+        "max_speed": "Top speed, m/s.",
+        "max_jerk": "Longitudinal jerk bound, m/s^3.",
+        "max_power": "Tractive power at the wheels, W (needs --mass).",
+        "mass": "Vehicle mass, kg.",
+        "drag_area": "Drag coefficient times frontal area Cd*A, m^2 (needs --mass).",
+        "rolling_resistance": "Rolling resistance coefficient.",
+    }
+    for name in reversed(list(LIMIT_OPTIONS)):
+        func = click.option(f"--{name.replace('_', '-')}", name, type=float, default=None,
+                            metavar="X", help=helps[name])(func)
+    return func
+
+
+def constraint_options(func):
+    options = [
+        click.option("--zone", "zones", multiple=True, metavar="START_M:END_M:MAX_SPEED_MPS",
+                     help="Speed cap over a station range (repeatable)."),
+        click.option("--stop", "stops", multiple=True, type=float, metavar="STATION_M",
+                     help="Come to rest at this station (repeatable)."),
+        click.option("--superelevation", "superelevations", multiple=True,
+                     metavar="START_M:END_M:RATE",
+                     help="Cross-slope toward the curve's inside over a station range, as a "
+                          "fraction (0.06 = 6 %%) (repeatable)."),
+        click.option("--start-speed", type=float, default=None, metavar="MPS",
+                     help="Speed at the start of an open route, m/s (default 0)."),
+        click.option("--end-speed", type=float, default=None, metavar="MPS",
+                     help="Speed at the end of an open route, m/s (default 0)."),
+    ]
+    for option in reversed(options):
+        func = option(func)
+    return func
+
+
+def resolve_limits(limits_file, overrides: dict, zones, stops, superelevations,
+                   start_speed, end_speed):
+    """Limits and constraints from the file (or defaults) with command-line overrides on top."""
+    from ..limits import (DEFAULT_LIMITS, RouteConstraints, SpeedZone, Stop, Superelevation,
+                          validate_limits)
+
+    if limits_file:
+        from ..io.limits_toml import read_limits
+
+        limits, constraints = read_limits(limits_file)
+        origin = str(limits_file)
+    else:
+        limits, constraints = DEFAULT_LIMITS, RouteConstraints()
+        origin = "built-in defaults"
+    changes = {LIMIT_OPTIONS[k]: v for k, v in overrides.items() if v is not None}
+    if changes:
+        limits = limits.replace(**changes)
+        origin += " with command-line overrides"
+    validate_limits(limits, origin)
+    extra = RouteConstraints(
+        zones=tuple(SpeedZone(*z, origin="--zone") for z in
+                    _parse_ranges(zones, 3, "a speed zone", "START_M:END_M:MAX_SPEED_MPS")),
+        stops=tuple(Stop(s, origin="--stop") for s in stops),
+        superelevation=tuple(Superelevation(*e, origin="--superelevation") for e in
+                             _parse_ranges(superelevations, 3, "a superelevation range",
+                                           "START_M:END_M:RATE")),
+        start_speed_mps=start_speed, end_speed_mps=end_speed)
+    return limits, constraints.merged(extra), origin

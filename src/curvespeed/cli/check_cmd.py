@@ -1,0 +1,209 @@
+"""``curvespeed check``: audit speeds along a route against friction, comfort and design criteria.
+
+Exit status: 0 every speed within every limit, 1 at least one violation, 2 bad input (nothing
+written).
+"""
+
+from __future__ import annotations
+
+import sys
+
+import click
+
+from ._common import EXIT_OK, EXIT_VIOLATIONS, geometry_options, handle_errors, load_geometry
+from ._limits import constraint_options, limit_override_options, resolve_limits
+
+
+@click.command()
+@click.argument("route_file", type=click.Path(dir_okay=False))
+@click.option("-l", "--limits", "limits_file", type=click.Path(dir_okay=False), default=None,
+              help="Limits file (TOML). Without it, built-in passenger-car comfort limits.")
+@click.option("--speeds", "speeds_file", type=click.Path(dir_okay=False), default=None,
+              help="Speeds to check: a CSV with station_m,speed_mps (e.g. a profile from "
+                   "'plan') or a GPX track with time stamps.")
+@click.option("--speed-kmh", type=float, default=None, metavar="V",
+              help="Check one constant speed everywhere, km/h.")
+@click.option("--zones-only", is_flag=True,
+              help="Check the speed zones of the limits (top speed outside them); the default "
+                   "when neither --speeds nor --speed-kmh is given.")
+@click.option("--design-speed-kmh", type=float, default=None, metavar="V",
+              help="Design speed for the AASHTO minimum-radius check, km/h (20-120).")
+@click.option("--emax", "e_max", type=float, default=0.08, show_default=True, metavar="E",
+              help="Maximum superelevation rate for the minimum-radius check (0.08 = 8 %%).")
+@click.option("--trace-noise", "trace_noise_m", type=float, default=None, metavar="M",
+              help="GPS position noise of a GPX speeds track, metres; sets its smoothing "
+                   "(default 2).")
+@click.option("--curve-radius", "curve_radius_m", type=float, default=None, metavar="M",
+              help="Stations with a radius below this belong to a curve, metres (default 1000).")
+@click.option("--json", "json_file", type=click.Path(dir_okay=False), default=None,
+              help="Write the full result (SI units) to this JSON file.")
+@click.option("--csv", "csv_file", type=click.Path(dir_okay=False), default=None,
+              help="Write the per-curve table to this CSV file.")
+@click.option("--force", is_flag=True, help="Replace output files that exist.")
+@geometry_options
+@limit_override_options
+@constraint_options
+@handle_errors
+def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_speed_kmh, e_max,
+          trace_noise_m, curve_radius_m, json_file, csv_file, force, spacing_m,
+          position_noise_m, elevation_noise_m, closed, zones, stops, superelevations,
+          start_speed, end_speed, **overrides):
+    """Check speeds along ROUTE_FILE against friction, comfort and road-design criteria.
+
+    Exit status 0: all within limits; 1: at least one violation; 2: bad input. The numbers
+    support engineering judgment: advisory speeds are set by the road authority under local
+    codes and licensed practice.
+    """
+    import math
+    from pathlib import Path
+
+    from ..errors import LimitsError, OutputError
+    from ..io.atomic import check_writable
+
+    chosen = [name for name, given in (("--speeds", speeds_file is not None),
+                                       ("--speed-kmh", speed_kmh is not None),
+                                       ("--zones-only", zones_only)) if given]
+    if len(chosen) > 1:
+        raise click.UsageError(f"give only one of --speeds, --speed-kmh, --zones-only (got "
+                               f"{' and '.join(chosen)})")
+    if speed_kmh is not None and not (math.isfinite(speed_kmh) and speed_kmh > 0.0):
+        raise LimitsError(f"--speed-kmh {speed_kmh:g}: give a positive speed in km/h")
+    if json_file and csv_file and Path(json_file).resolve() == Path(csv_file).resolve():
+        raise OutputError(f"{json_file}: --json and --csv name the same file; give two names")
+    for path in (json_file, csv_file):
+        if path:
+            check_writable(path, force)
+    if design_speed_kmh is not None:
+        from ..design import design_criterion
+
+        design_criterion(design_speed_kmh, e_max)     # refuse a bad design speed before reading
+    if curve_radius_m is not None and not (math.isfinite(curve_radius_m) and curve_radius_m > 0):
+        raise LimitsError(f"--curve-radius {curve_radius_m:g}: give a positive radius in metres")
+
+    limits, constraints, origin = resolve_limits(limits_file, overrides, zones, stops,
+                                                 superelevations, start_speed, end_speed)
+    _, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m, closed)
+
+    from ..check import CurveSettings, SpeedKind, check_speeds, zone_speeds_mps
+    from ..units import kmh_to_mps
+
+    settings = CurveSettings() if curve_radius_m is None else CurveSettings(radius_m=curve_radius_m)
+    if speeds_file is not None:
+        from ..io.speed_trace import DEFAULT_TRACE_NOISE_M, read_speed_trace
+
+        noise = DEFAULT_TRACE_NOISE_M if trace_noise_m is None else trace_noise_m
+        trace = read_speed_trace(speeds_file, geo, noise_m=noise)
+        speeds, kind, label = trace.speed_mps, SpeedKind.TRACE, str(speeds_file)
+    elif speed_kmh is not None:
+        v = kmh_to_mps(speed_kmh)
+        speeds = [v] * geo.n_nodes
+        kind, label = SpeedKind.CONSTANT, f"constant {speed_kmh:g} km/h ({v:.2f} m/s)"
+    else:
+        speeds = zone_speeds_mps(geo, limits, constraints)
+        kind = SpeedKind.ZONES
+        label = (f"speed zones of {origin} (top speed {limits.max_speed_mps:g} m/s elsewhere)"
+                 if constraints.zones else
+                 f"top speed {limits.max_speed_mps:g} m/s of {origin} (no speed zones given)")
+    report = check_speeds(geo, limits, constraints, speeds, kind=kind, speed_source=label,
+                          design_speed_kmh=design_speed_kmh, e_max=e_max, settings=settings)
+
+    written = []
+    if json_file:
+        from ..io.check_report import write_check_json
+
+        write_check_json(report, json_file, force=force, route_file=route_file)
+        written.append(str(json_file))
+    if csv_file:
+        from ..io.check_report import write_curve_csv
+
+        write_curve_csv(report, csv_file, force=force)
+        written.append(str(csv_file))
+    body, verdict = render_report(route_file, report, origin)
+    click.echo(body)
+    if written:
+        click.echo(f"wrote {' and '.join(written)}")
+    click.echo(verdict)
+    sys.exit(EXIT_OK if report.ok else EXIT_VIOLATIONS)
+
+
+def _num(value, spec: str, width: int) -> str:
+    text = "-" if value is None else format(value, spec)
+    return text.rjust(width)
+
+
+def render_report(route_file, report, origin: str) -> tuple[str, str]:
+    """The terminal report (header, curve table worst first, violations) and the verdict line."""
+    geo = report.geometry
+    lim = report.limits
+    lines = [
+        f"route    {route_file}: {geo.length_m:.1f} m, {'closed loop' if geo.closed else 'open'},"
+        f" {geo.n_nodes} stations",
+        f"limits   {origin}: mu {lim.friction_coefficient:g} (lateral {lim.mu_lat:g}), lateral "
+        f"{lim.max_lateral_accel_mps2:g}, accel {lim.max_accel_mps2:g}, decel "
+        f"{lim.max_decel_mps2:g} m/s^2, top {lim.max_speed_mps:g} m/s",
+        f"speeds   {report.speed_source}",
+    ]
+    if report.design is not None:
+        d = report.design
+        lines.append(f"design   {d.design_speed_kmh:g} km/h, e_max {d.e_max:g}, f_max "
+                     f"{d.f_max:.3f}: R_min {d.min_radius_m:.1f} m (table "
+                     f"{d.table_min_radius_m:.0f} m; {d.source})")
+    curves = sorted(report.curves, key=lambda c: (c.passed, -c.worst_use, c.start_m))
+    if curves:
+        lines.append(f"curves   {len(curves)} (radius below {report.settings.radius_m:g} m), "
+                     "worst first:")
+        header = (f"{'#':>3}  {'station range (m)':>19}  {'R (m)':>7}  {'dir':>5}  {'e':>6}  "
+                  f"{'v (m/s)':>7}  {'v lim (m/s)':>11}  {'a_lat (m/s^2)':>13}  {'f':>6}  "
+                  f"{'grip use':>8}  {'comfort use':>11}  {'brake':>5}")
+        if report.design is not None:
+            header += f"  {'R_min':>5}"
+        header += f"  {'adv (mph)':>9}  {'adv (km/h)':>10}  result"
+        lines.append(header)
+        for c in curves:
+            row = (f"{c.number:>3}  {c.start_m:8.1f} - {c.end_m:8.1f}  {c.min_radius_m:7.1f}  "
+                   f"{c.direction:>5}  {c.superelevation:6.3f}  {c.speed_mps:7.2f}  "
+                   f"{c.limit_speed_mps:11.2f}  {c.lateral_accel_mps2:13.2f}  "
+                   f"{c.side_friction_demand:6.3f}  {100 * c.friction_use:7.1f}%  "
+                   f"{100 * c.comfort_use:10.1f}%  {'ok' if c.brake_ok else 'LATE':>5}")
+            if report.design is not None:
+                row += f"  {'ok' if c.meets_min_radius else 'SHORT':>5}"
+            row += (f"  {_num(c.advisory.mph, 'd', 9)}  {_num(c.advisory.kmh, 'd', 10)}  "
+                    f"{'PASS' if c.passed else 'FAIL'}")
+            lines.append(row)
+    else:
+        lines.append(f"curves   none (no stretch with a radius below "
+                     f"{report.settings.radius_m:g} m)")
+    failed = [c for c in curves if not c.passed]
+    for c in failed:
+        # the worst stretch of each kind (all of them are in the JSON report)
+        by_kind: dict[str, list] = {}
+        for v in report.violations:
+            if c.number in v.curves:
+                by_kind.setdefault(v.kind, []).append(v)
+        for found in by_kind.values():
+            worst = max(found, key=lambda v: v.use)
+            more = f" (+{len(found) - 1} more stretch(es))" if len(found) > 1 else ""
+            lines.append(f"  curve {c.number}: {worst.message}{more}")
+    others = report.other_violations()
+    if others:
+        lines.append(f"other violations ({len(others)}, away from curves):")
+        lines.extend(f"  {v.message}" for v in others)
+    return "\n".join(lines), _verdict(report, failed, others)
+
+
+def _verdict(report, failed, others) -> str:
+    n = len(report.curves)
+    if report.ok:
+        peak = report.use
+        grip = 100 * float(peak["friction_ellipse"].max())
+        comfort = 100 * float(peak["comfort_ellipse"].max())
+        return (f"PASS: all {report.geometry.n_nodes} stations and {n} curve(s) within the "
+                f"limits (peak grip use {grip:.1f} %, comfort use {comfort:.1f} %)")
+    worst = report.worst_violation()
+    parts = []
+    if failed:
+        parts.append(f"{len(failed)} of {n} curve(s) fail")
+    if others:
+        parts.append(f"{len(others)} other violation(s)")
+    return (f"FAIL: {' and '.join(parts)}; worst: {worst.kind.replace('_', ' ')} at station "
+            f"{worst.station_m:.1f} m ({100 * (worst.use - 1):.1f} % over)")

@@ -1,0 +1,120 @@
+"""``curvespeed export``: a time- or station-sampled reference trajectory from a profile CSV."""
+
+from __future__ import annotations
+
+import click
+
+from ..io.trajectory import FORMAT_BY_SUFFIX, TrajectoryFormat
+from ._common import handle_errors
+
+#: Default time step, s (20 samples per second).
+DEFAULT_DT_S = 0.05
+#: Refuse to write more samples than this (a too-small --dt or --station-step, most likely).
+MAX_SAMPLES = 5_000_000
+
+_POSITIVE = click.FloatRange(min=0.0, min_open=True)
+
+
+@click.command()
+@click.argument("profile_file", type=click.Path(dir_okay=False))
+@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
+              help="Trajectory file to write.")
+@click.option("--format", "fmt", type=click.Choice([f.value for f in TrajectoryFormat]),
+              default=None,
+              help="Output format (default: from the output's extension: "
+                   f"{', '.join(FORMAT_BY_SUFFIX)}).")
+@click.option("--dt", "dt_s", type=_POSITIVE, default=None, metavar="S",
+              help=f"Time step between samples, seconds [default: {DEFAULT_DT_S}].")
+@click.option("--station-step", "station_step_m", type=_POSITIVE, default=None, metavar="M",
+              help="Sample every M metres of station instead of every --dt seconds.")
+@click.option("--dwell", "dwell_s", type=click.FloatRange(min=0.0), default=0.0,
+              show_default=True, metavar="S",
+              help="Seconds held at each stop (a station inside the route where the planned "
+                   "speed is zero) before leaving it.")
+@click.option("--force", is_flag=True, help="Replace the output file if it exists.")
+@handle_errors
+def export(profile_file, output, fmt, dt_s, station_step_m, dwell_s, force):
+    """Turn the station profile PROFILE_FILE (from `curvespeed plan`) into a reference trajectory.
+
+    Samples every --dt seconds (the last sample is the end of the route at the planned time plus
+    dwells) or every --station-step metres. GeoJSON needs a geographic profile (lat, lon columns).
+    The trajectory is an engineering aid: speeds on public roads follow local codes and licensed
+    engineering practice.
+    """
+    import math
+
+    from ..errors import SpeedFileError
+    from ..export import (count_station_samples, count_time_samples, sample_by_station,
+                          sample_in_time)
+    from ..io.atomic import check_writable
+    from ..io.trajectory import format_from_suffix, read_station_profile, write_trajectory
+
+    if dt_s is not None and station_step_m is not None:
+        raise click.UsageError("--dt and --station-step exclude each other; give one of them")
+    if fmt is None:
+        kind = format_from_suffix(output)
+        if kind is None:
+            raise click.BadParameter(
+                f"cannot tell the format from '{output}'; give --format "
+                f"({', '.join(f.value for f in TrajectoryFormat)}) or an output ending in "
+                f"{', '.join(FORMAT_BY_SUFFIX)}", param_hint="'-o' / '--output'")
+    else:
+        kind = TrajectoryFormat(fmt)
+    for value, name in ((dt_s, "--dt"), (station_step_m, "--station-step"),
+                        (dwell_s, "--dwell")):
+        if value is not None and not math.isfinite(value):
+            raise click.BadParameter(f"{value} is not a finite number", param_hint=f"'{name}'")
+    check_writable(output, force)
+
+    sp = read_station_profile(profile_file, name=_route_name(profile_file))
+    if kind is TrajectoryFormat.GEOJSON and not sp.is_geographic:
+        raise SpeedFileError(
+            f"{profile_file}: metric-only profile (no lat, lon columns), but GeoJSON (RFC 7946) "
+            "needs WGS84 longitude/latitude; export as csv or json, or plan the route from a "
+            "geographic file (lat,lon CSV, GeoJSON or GPX)")
+    if station_step_m is not None:
+        count = count_station_samples(sp, station_step_m)
+        option, value = "--station-step", station_step_m
+    else:
+        dt_s = DEFAULT_DT_S if dt_s is None else dt_s
+        count = count_time_samples(sp, dt_s, dwell_s)
+        option, value = "--dt", dt_s
+    if count > MAX_SAMPLES:
+        raise click.BadParameter(f"{value:g} would give {count} samples (more than "
+                                 f"{MAX_SAMPLES}); choose a larger step", param_hint=f"'{option}'")
+
+    if station_step_m is not None:
+        trajectory = sample_by_station(sp, station_step_m, dwell_s)
+        every = f"every {station_step_m:g} m of station"
+    else:
+        trajectory = sample_in_time(sp, dt_s, dwell_s)
+        every = f"every {dt_s:g} s"
+    write_trajectory(trajectory, output, kind, force=force)
+    stops = trajectory.stop_stations_m.size
+    held = ""
+    if stops:
+        held = (f"; {stops} stop(s), held {dwell_s:g} s each" if dwell_s > 0
+                else f"; {stops} stop(s), left at once (--dwell 0)")
+    click.echo(f"read   {profile_file}: {sp.length_m:.1f} m, {sp.n_nodes} stations, planned time "
+               f"{trajectory.planned_time_s:.2f} s{held}")
+    click.echo(f"wrote  {output} ({kind.value}): {trajectory.n_samples} samples {every}, "
+               f"total time {trajectory.total_time_s:.2f} s")
+
+
+def _route_name(profile_file) -> str | None:
+    """The route's name from the sidecar next to the profile, if there is a readable one."""
+    import warnings
+
+    from ..errors import CurvespeedWarning, SpeedFileError
+    from ..io.meta_json import default_meta_path
+    from ..io.trajectory import read_profile_meta
+
+    meta = default_meta_path(profile_file)
+    if not meta.is_file():
+        return None
+    try:
+        return read_profile_meta(meta).route_name
+    except SpeedFileError as exc:
+        warnings.warn(f"{exc}; the route name is taken from the file name instead",
+                      CurvespeedWarning, stacklevel=2)
+        return None

@@ -1,0 +1,124 @@
+"""``curvespeed plan``: the fastest speed profile along a route within the limits."""
+
+from __future__ import annotations
+
+import click
+
+from ..solvers import SolverKind
+from ._common import geometry_options, handle_errors, load_geometry
+from ._limits import constraint_options, limit_override_options, resolve_limits
+
+
+@click.command()
+@click.argument("route_file", type=click.Path(dir_okay=False))
+@click.option("-l", "--limits", "limits_file", type=click.Path(dir_okay=False), default=None,
+              help="Limits file (TOML). Without it, built-in passenger-car comfort limits.")
+@click.option("-o", "--output", type=click.Path(dir_okay=False), default=None,
+              help="Write the profile to this CSV file (and a .meta.json sidecar next to it).")
+@click.option("--meta", "meta_file", type=click.Path(dir_okay=False), default=None,
+              help="Where to write the JSON sidecar (default: next to the profile).")
+@click.option("--solver", type=click.Choice([k.value for k in SolverKind]), default=None,
+              help="'convex' (default when a jerk bound is set): minimum time with the jerk "
+                   "bound; 'envelope' (default otherwise): exact forward-backward method, no "
+                   "jerk bound; 'convex-reference': the convex program modelled in cvxpy "
+                   "(slow, for cross-checks).")
+@click.option("--comfort-weight", type=float, default=0.0, show_default=True, metavar="W",
+              help="Convex solver: weight on squared changes of acceleration, s/(m/s^2)^2; "
+                   "0 is pure minimum time.")
+@click.option("--force", is_flag=True, help="Replace output files that exist.")
+@geometry_options
+@limit_override_options
+@constraint_options
+@handle_errors
+def plan(route_file, limits_file, output, meta_file, solver, comfort_weight, force, spacing_m,
+         position_noise_m,
+         elevation_noise_m, closed, zones, stops, superelevations, start_speed, end_speed,
+         **overrides):
+    """Plan the fastest speed profile along ROUTE_FILE within the limits.
+
+    The profile is an engineering aid: speeds on public roads and advisory signs follow local
+    codes and licensed engineering practice.
+    """
+    from ..io.atomic import check_writable
+    from ..io.meta_json import default_meta_path
+
+    meta_path = None
+    if output:
+        check_writable(output, force)
+        meta_path = meta_file or default_meta_path(output)
+        check_writable(meta_path, force)
+    elif meta_file:
+        raise click.UsageError("--meta needs -o/--output (the sidecar describes a written profile)")
+    limits, constraints, origin = resolve_limits(limits_file, overrides, zones, stops,
+                                                 superelevations, start_speed, end_speed)
+    _, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m, closed)
+
+    from ..planner import plan_profile
+
+    kind = SolverKind(solver) if solver else None
+    options = None
+    if comfort_weight:
+        if comfort_weight < 0:
+            raise click.BadParameter("must be zero or positive", param_hint="--comfort-weight")
+        from ..solvers.convex import ConvexOptions
+
+        options = ConvexOptions(comfort_weight=comfort_weight)
+    profile = plan_profile(geo, limits, constraints, kind, options)
+    click.echo(summarise(route_file, profile, limits, origin))
+    if output:
+        from ..io.meta_json import profile_meta, write_meta_json
+        from ..io.profile_csv import write_profile_csv
+
+        meta = profile_meta(profile, limits, constraints, route_file)
+        write_profile_csv(profile, output, force=force)
+        write_meta_json(meta, meta_path, force=force)
+        click.echo(f"wrote {output} and {meta_path}")
+
+
+def summarise(route_file, profile, limits, origin: str, max_curves: int = 8) -> str:
+    """Short human summary: length, time, speeds, and the curves that limit the profile."""
+    import numpy as np
+
+    from ..units import mps_to_kmh
+
+    geo = profile.geometry
+    v = profile.speed_mps
+    s = geo.station_m
+    mean = geo.length_m / profile.total_time_s
+    lines = [
+        f"route    {route_file}: {geo.length_m:.1f} m, {'closed loop' if geo.closed else 'open'},"
+        f" {geo.n_nodes} stations",
+        f"limits   {origin}: mu {limits.friction_coefficient:g}, lateral "
+        f"{limits.max_lateral_accel_mps2:g}, accel {limits.max_accel_mps2:g}, decel "
+        f"{limits.max_decel_mps2:g} m/s^2, top {limits.max_speed_mps:g} m/s"
+        + ("" if limits.max_jerk_mps3 is None else f", jerk {limits.max_jerk_mps3:g} m/s^3"),
+        f"solver   {profile.solve.solver}: {profile.solve.status.value}, "
+        f"{profile.solve.iterations} iteration(s), {profile.solve.solve_time_s:.3f} s",
+        f"time     {profile.total_time_s:.1f} s; mean {mean:.2f} m/s ({mps_to_kmh(mean):.1f} km/h),"
+        f" top {v.max():.2f} m/s ({mps_to_kmh(v.max()):.1f} km/h)"
+        + ("" if not profile.time_gap_to_envelope else
+           f"; {100 * profile.time_gap_to_envelope:.2f} % over the jerk-free envelope"),
+        f"peaks    accel {profile.extremes['accel_mps2']:.2f}, decel "
+        f"{profile.extremes['decel_mps2']:.2f}, lateral {profile.extremes['lateral_accel_mps2']:.2f}"
+        f" m/s^2; jerk {profile.extremes['jerk_mps3']:.2f}, lateral jerk "
+        f"{profile.extremes['lateral_jerk_mps3']:.2f} m/s^3",
+    ]
+    lateral = np.isin(profile.binding, ["lateral_comfort", "lateral_grip"])
+    stretches = []
+    if lateral.any():
+        edges = np.flatnonzero(np.diff(np.concatenate(([0], lateral.astype(int), [0]))))
+        for a, b in zip(edges[::2], edges[1::2] - 1):
+            k = a + int(np.argmin(v[a:b + 1]))
+            kap = abs(geo.curvature_1pm[k])
+            stretches.append((v[k], s[a], s[b], 1 / kap if kap > 0 else np.inf,
+                              str(profile.binding[k]).replace("_", " ")))
+    if stretches:
+        slowest = sorted(sorted(stretches)[:max_curves], key=lambda r: r[1])
+        lines.append(f"limiting curves ({len(stretches)} in all; the {len(slowest)} slowest):")
+        lines.append("   station range (m)     radius (m)   speed (m/s)  speed (km/h)  limited by")
+        for vk, a, b, radius, what in slowest:
+            lines.append(f"   {a:8.1f} - {b:8.1f}  {radius:10.1f}  {vk:11.2f}  {mps_to_kmh(vk):12.1f}"
+                         f"  {what}")
+    else:
+        lines.append("no curve limits the speed (top speed, zones and stops do)")
+    return "\n".join(lines)

@@ -1,0 +1,141 @@
+"""Read a limits file (TOML) into :class:`~curvespeed.limits.Limits` and route constraints.
+
+Layout (SI units, unit suffix in every key)::
+
+    [limits]                      # required; any key left out keeps its built-in default
+    friction_coefficient = 0.8
+    max_lateral_accel_mps2 = 2.5
+    max_accel_mps2 = 1.5
+    max_decel_mps2 = 2.5
+    max_speed_mps = 25.0
+    max_jerk_mps3 = 2.0           # optional
+    # optional powertrain and resistances:
+    # max_power_w, mass_kg, drag_area_m2, air_density_kgpm3, rolling_resistance_coefficient,
+    # lateral_friction_coefficient, gravity_mps2
+
+    [route]                       # optional: fixed speeds at the ends of an open route
+    start_speed_mps = 0.0
+    end_speed_mps = 0.0
+
+    [[zone]]                      # optional, repeatable: speed cap over a station range
+    start_m = 0.0
+    end_m = 250.0
+    max_speed_mps = 8.3
+
+    [[stop]]                      # optional, repeatable: at rest at a station
+    station_m = 640.0
+
+    [[superelevation]]            # optional, repeatable: cross-slope toward the curve's inside
+    start_m = 1200.0
+    end_m = 1500.0
+    rate = 0.06
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import difflib
+import math
+import tomllib
+from pathlib import Path
+
+from ..errors import LimitsError
+from ..limits import DEFAULT_LIMITS, Limits, RouteConstraints, SpeedZone, Stop, Superelevation
+
+_LIMIT_KEYS = tuple(f.name for f in dataclasses.fields(Limits))
+_ROUTE_KEYS = ("start_speed_mps", "end_speed_mps")
+_TABLES = {
+    "zone": ("start_m", "end_m", "max_speed_mps"),
+    "stop": ("station_m",),
+    "superelevation": ("start_m", "end_m", "rate"),
+}
+_UNIT_HINTS = {"kmh": "km/h: divide by 3.6 and use the _mps key",
+               "kph": "km/h: divide by 3.6 and use the _mps key",
+               "mph": "mph: multiply by 0.44704 and use the _mps key",
+               "_g": "g units: multiply by 9.80665 and use the _mps2 key",
+               "pct": "percent: give a fraction (6 % is 0.06)",
+               "percent": "percent: give a fraction (6 % is 0.06)",
+               "_kw": "kW: multiply by 1000 and use max_power_w"}
+
+
+def _unknown_key(path: Path, table: str, key: str, allowed) -> LimitsError:
+    hint = ""
+    for marker, text in _UNIT_HINTS.items():
+        if marker in key.lower():
+            hint = f" (looks like {text})"
+            break
+    close = difflib.get_close_matches(key, list(allowed), n=1)
+    suggestion = f"; did you mean '{close[0]}'?" if close else ""
+    return LimitsError(f"{path}: [{table}] unknown key '{key}'{hint}{suggestion} "
+                       f"Accepted keys: {', '.join(allowed)}")
+
+
+def _number(path: Path, table: str, key: str, value) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        raise LimitsError(f"{path}: [{table}] {key} = {value!r} is not a finite number; "
+                          "give a plain number in the unit its suffix names")
+    return float(value)
+
+
+def read_limits(path: str | Path) -> tuple[Limits, RouteConstraints]:
+    """Read ``path``; raise :class:`LimitsError` naming the file, table and key on any problem."""
+    path = Path(path)
+    try:
+        data = tomllib.loads(path.read_text(encoding="utf-8-sig"))
+    except FileNotFoundError:
+        raise LimitsError(f"{path}: no such limits file") from None
+    except UnicodeDecodeError:
+        raise LimitsError(f"{path}: not a UTF-8 text file; save it as UTF-8 TOML") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise LimitsError(f"{path}: not valid TOML: {exc}") from None
+    except OSError as exc:
+        raise LimitsError(f"{path}: cannot read: {exc.strerror}") from None
+
+    known_tables = ("limits", "route") + tuple(_TABLES)
+    if "limits" not in data or not isinstance(data["limits"], dict):
+        stray = [k for k in data if k in _LIMIT_KEYS]
+        hint = (f" (found {', '.join(stray)} at top level: put it under [limits])" if stray
+                else "")
+        raise LimitsError(f"{path}: missing [limits] table{hint}; start the file with a line "
+                          "'[limits]' followed by the keys to set (an empty table keeps defaults)")
+    for key in data:
+        if key not in known_tables:
+            raise LimitsError(f"{path}: unknown table or key '{key}' at top level; "
+                              f"expected [{'], ['.join(known_tables)}]")
+
+    values = {}
+    for key, value in data["limits"].items():
+        if key not in _LIMIT_KEYS:
+            raise _unknown_key(path, "limits", key, _LIMIT_KEYS)
+        values[key] = _number(path, "limits", key, value)
+    limits = dataclasses.replace(DEFAULT_LIMITS, **values)
+
+    route = data.get("route", {})
+    if not isinstance(route, dict):
+        raise LimitsError(f"{path}: 'route' must be a table [route]")
+    for key in route:
+        if key not in _ROUTE_KEYS:
+            raise _unknown_key(path, "route", key, _ROUTE_KEYS)
+    ends = {k: _number(path, "route", k, route[k]) for k in _ROUTE_KEYS if k in route}
+
+    items: dict[str, list] = {name: [] for name in _TABLES}
+    for name, keys in _TABLES.items():
+        entries = data.get(name, [])
+        if isinstance(entries, dict) or not isinstance(entries, list):
+            raise LimitsError(f"{path}: '{name}' must be written as [[{name}]] entries")
+        for n, entry in enumerate(entries, start=1):
+            label = f"{name} #{n}"
+            for key in entry:
+                if key not in keys:
+                    raise _unknown_key(path, label, key, keys)
+            missing = [k for k in keys if k not in entry]
+            if missing:
+                raise LimitsError(f"{path}: [[{name}]] #{n} lacks {', '.join(missing)}")
+            nums = [_number(path, label, k, entry[k]) for k in keys]
+            origin = f"{path} [[{name}]] #{n}"
+            cls = {"zone": SpeedZone, "stop": Stop, "superelevation": Superelevation}[name]
+            items[name].append(cls(*nums, origin=origin))
+
+    constraints = RouteConstraints(zones=tuple(items["zone"]), stops=tuple(items["stop"]),
+                                   superelevation=tuple(items["superelevation"]), **ends)
+    return limits, constraints

@@ -1,0 +1,115 @@
+"""``curvespeed route`` on the command line: summaries, the geometry file, and bad input.
+
+Every bad-input case must exit with status 2, print one ``error:`` line naming the file (and the
+line, point or station where it applies) and write no output file.
+"""
+
+from __future__ import annotations
+
+import csv
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+from click.testing import CliRunner
+
+from curvespeed.cli.main import cli
+
+ROUTES = Path(__file__).resolve().parent.parent / "routes"
+
+
+def run(*args):
+    return CliRunner().invoke(cli, ["route", *map(str, args)])
+
+
+def circle_csv(path: Path, radius=50.0, n=120, header="x_m,y_m"):
+    t = np.linspace(0, 2 * np.pi, n, endpoint=False)
+    rows = [f"{radius * math.cos(a):.4f},{radius * math.sin(a):.4f}" for a in t]
+    path.write_text(header + "\n" + "\n".join(rows) + "\n")
+    return path
+
+
+@pytest.mark.parametrize("name", ["mountain_road.csv", "test_loop.geojson", "shuttle_route.gpx"])
+def test_bundled_routes_summarise_and_write_geometry(name, tmp_path):
+    out = tmp_path / "geometry.csv"
+    result = run(ROUTES / name, "-o", out)
+    assert result.exit_code == 0, result.output
+    for word in ("points read", "length", "min radius", "total turning"):
+        assert word in result.output
+    with open(out) as fh:
+        header = next(csv.reader(fh))
+    assert header[:5] == ["station_m", "x_m", "y_m", "heading_rad", "curvature_1pm"]
+    if name == "mountain_road.csv":
+        assert header[5:7] == ["z_m", "grade"]
+    if name != "mountain_road.csv":
+        assert header[-2:] == ["lat", "lon"]
+
+
+def test_closed_loop_is_reported_as_closed_with_full_turn(tmp_path):
+    result = run(circle_csv(tmp_path / "c.csv"))
+    assert result.exit_code == 0, result.output
+    assert "closed loop" in result.output
+    assert "total turning  360.0 degrees" in result.output
+
+
+BAD_INPUTS = {
+    # name: (file name, content, fragments the error must contain)
+    "unknown header": ("a.csv", "east,north\n0,0\n1,0\n2,0\n", ["a.csv", "x_m,y_m"]),
+    "missing header": ("b.csv", "0,0\n1,0\n2,1\n", ["b.csv", "header"]),
+    "not a number": ("c.csv", "x_m,y_m\n0,0\n1,abc\n2,1\n", ["c.csv", "line 3", "abc"]),
+    "nan": ("d.csv", "x_m,y_m\n0,0\n1,nan\n2,1\n", ["d.csv", "line 3"]),
+    "two points": ("e.csv", "x_m,y_m\n0,0\n10,0\n", ["e.csv", "at least 3"]),
+    "repeated only": ("f.csv", "x_m,y_m\n0,0\n0,0\n5,0\n5,0\n", ["f.csv", "at least 3"]),
+    "latitude out of range": ("g.csv", "lat,lon\n95,10\n95.1,10\n95.2,10.1\n",
+                              ["g.csv", "line 2", "latitude"]),
+    "geojson without a line": ("h.geojson", '{"type": "Point", "coordinates": [1, 2]}',
+                               ["h.geojson", "LineString"]),
+    "empty gpx": ("i.gpx", '<?xml version="1.0"?><gpx version="1.1" '
+                  'xmlns="http://www.topografix.com/GPX/1/1"></gpx>', ["i.gpx", "no"]),
+    "reversal": ("j.csv", "x_m,y_m\n0,0\n10,0\n20,0\n12,0.1\n5,0.2\n",
+                 ["j.csv", "station 20.0 m", "doubles back"]),
+    "unknown extension": ("k.txt", "x_m,y_m\n0,0\n1,0\n2,0\n", ["k.txt", "extension"]),
+}
+
+
+@pytest.mark.parametrize("case", list(BAD_INPUTS))
+def test_bad_input_exits_2_with_a_clear_error_and_no_output(case, tmp_path):
+    name, content, fragments = BAD_INPUTS[case]
+    route = tmp_path / name
+    route.write_text(content)
+    out = tmp_path / "out.csv"
+    result = run(route, "-o", out)
+    assert result.exit_code == 2, result.output
+    assert "error:" in result.output
+    for fragment in fragments:
+        assert fragment in result.output, (case, result.output)
+    assert "Traceback" not in result.output
+    assert not out.exists()
+
+
+def test_missing_file_exits_2(tmp_path):
+    result = run(tmp_path / "nowhere.csv")
+    assert result.exit_code == 2
+    assert "nowhere.csv" in result.output
+
+
+def test_repeated_points_are_dropped_with_a_warning(tmp_path):
+    path = circle_csv(tmp_path / "r.csv")
+    lines = path.read_text().splitlines()
+    lines.insert(5, lines[4])          # one repeated point
+    path.write_text("\n".join(lines) + "\n")
+    result = run(path)
+    assert result.exit_code == 0, result.output
+    assert "warning:" in result.output and "repeated" in result.output
+
+
+def test_existing_output_is_not_overwritten_without_force(tmp_path):
+    out = tmp_path / "g.csv"
+    out.write_text("keep me\n")
+    result = run(circle_csv(tmp_path / "c.csv"), "-o", out)
+    assert result.exit_code == 2
+    assert "--force" in result.output
+    assert out.read_text() == "keep me\n"
+    assert run(circle_csv(tmp_path / "c.csv"), "-o", out, "--force").exit_code == 0
+    assert out.read_text().startswith("station_m,")
