@@ -1,0 +1,118 @@
+"""Write the result of ``curvespeed check``: the full report as JSON, the curve table as CSV.
+
+JSON (``--json``)
+    Keys in SI units with the unit in the key (``start_m``, ``speed_mps``, ``lateral_accel_mps2``);
+    dimensionless values (uses, side-friction factors, superelevation) have no suffix. The only
+    non-SI numbers are the ones whose unit is part of the method and named in the key: the
+    design speed (``design_speed_kmh``, the unit of the AASHTO formula) and the ball-bank
+    advisory speeds (``advisory_speed_mph`` on 5 mph steps, ``advisory_speed_kmh`` on 10 km/h
+    steps). Top-level keys: ``tool``, ``version``, ``route_file``, ``verdict``, ``route``,
+    ``speeds``, ``limits``, ``constraints``, ``design``, ``settings``, ``summary``, ``curves``,
+    ``violations``, ``per_station`` (one array per quantity, one value per station). Non-finite
+    numbers are written as ``null``. No time stamps: the same inputs give the same bytes.
+CSV (``--csv``)
+    One row per curve in station order, columns :data:`CURVE_COLUMNS` (``meets_min_radius``
+    only with a design speed), numbers in the fixed formats of :mod:`curvespeed.io._format`.
+
+Both are written atomically and replace an existing file only with ``force``.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+from pathlib import Path
+
+from .. import __version__
+from ..check import CheckReport
+from ._format import METRES, RATIO, format_columns
+from .atomic import atomic_open
+from .meta_json import json_safe
+from .profile_csv import KINEMATIC
+
+#: Columns of the per-curve CSV, in order, with their number formats.
+CURVE_COLUMNS = (
+    ("curve", "d"), ("start_m", METRES), ("end_m", METRES), ("length_m", METRES),
+    ("direction", "s"), ("min_radius_m", METRES), ("tightest_station_m", METRES),
+    ("superelevation", RATIO), ("speed_mps", KINEMATIC), ("lateral_accel_mps2", KINEMATIC),
+    ("side_friction_demand", RATIO), ("friction_margin", RATIO),
+    ("comfort_margin_mps2", KINEMATIC), ("friction_use", RATIO), ("comfort_use", RATIO),
+    ("limit_speed_mps", KINEMATIC), ("approach_speed_mps", KINEMATIC),
+    ("braking_distance_needed_m", METRES), ("braking_distance_available_m", METRES),
+    ("brake_ok", "s"), ("meets_min_radius", "s"), ("advisory_speed_mph", ".0f"),
+    ("advisory_speed_kmh", ".0f"), ("violations", "s"), ("result", "s"),
+)
+
+
+def check_report_dict(report: CheckReport, route_file: str | os.PathLike | None = None) -> dict:
+    """The JSON content as a dictionary (non-finite numbers already replaced by None)."""
+    data = {"tool": "curvespeed", "version": __version__,
+            "route_file": None if route_file is None else str(route_file)}
+    data.update(report.to_dict())
+    return json_safe(data)
+
+
+def write_check_json(report: CheckReport, path: str | os.PathLike, force: bool = False,
+                     route_file: str | os.PathLike | None = None) -> Path:
+    """Write the full report to ``path`` as JSON (atomically)."""
+    data = check_report_dict(report, route_file)
+    per_station = data.pop("per_station")
+    text = json.dumps(data, indent=2, allow_nan=False)
+    # one line per per-station array keeps the file readable and diffable
+    rows = [f'    {json.dumps(name)}: {json.dumps(values, allow_nan=False)}'
+            for name, values in per_station.items()]
+    text = text[:-2] + ',\n  "per_station": {\n' + ",\n".join(rows) + "\n  }\n}\n"
+    with atomic_open(path, force) as fh:
+        fh.write(text)
+    return Path(path)
+
+
+def curve_table_columns(report: CheckReport) -> dict[str, tuple[object, str]]:
+    """Named columns and formats of the per-curve table, in output order."""
+    def flag(value) -> str:
+        return "" if value is None else ("yes" if value else "no")
+
+    def step(value) -> float:
+        return math.nan if value is None else float(value)
+
+    curves = report.curves
+    values = {
+        "curve": [c.number for c in curves],
+        "start_m": [c.start_m for c in curves], "end_m": [c.end_m for c in curves],
+        "length_m": [c.length_m for c in curves], "direction": [c.direction for c in curves],
+        "min_radius_m": [c.min_radius_m for c in curves],
+        "tightest_station_m": [c.tightest_station_m for c in curves],
+        "superelevation": [c.superelevation for c in curves],
+        "speed_mps": [c.speed_mps for c in curves],
+        "lateral_accel_mps2": [c.lateral_accel_mps2 for c in curves],
+        "side_friction_demand": [c.side_friction_demand for c in curves],
+        "friction_margin": [c.friction_margin for c in curves],
+        "comfort_margin_mps2": [c.comfort_margin_mps2 for c in curves],
+        "friction_use": [c.friction_use for c in curves],
+        "comfort_use": [c.comfort_use for c in curves],
+        "limit_speed_mps": [c.limit_speed_mps for c in curves],
+        "approach_speed_mps": [c.approach_speed_mps for c in curves],
+        "braking_distance_needed_m": [c.braking_distance_needed_m for c in curves],
+        "braking_distance_available_m": [c.braking_distance_available_m for c in curves],
+        "brake_ok": [flag(c.brake_ok) for c in curves],
+        "meets_min_radius": [flag(c.meets_min_radius) for c in curves],
+        "advisory_speed_mph": [step(c.advisory.mph) for c in curves],
+        "advisory_speed_kmh": [step(c.advisory.kmh) for c in curves],
+        "violations": [";".join(c.violations) for c in curves],
+        "result": ["pass" if c.passed else "fail" for c in curves],
+    }
+    columns = {}
+    for name, spec in CURVE_COLUMNS:
+        if name == "meets_min_radius" and report.design is None:
+            continue
+        columns[name] = (values[name], spec)
+    return columns
+
+
+def write_curve_csv(report: CheckReport, path: str | os.PathLike, force: bool = False) -> Path:
+    """Write the per-curve table to ``path`` as CSV (atomically)."""
+    text = format_columns(curve_table_columns(report))
+    with atomic_open(path, force) as fh:
+        fh.write(text)
+    return Path(path)
