@@ -1,0 +1,398 @@
+"""Reference tests for build_geometry: closed forms of plane curves checked against the fit.
+
+Sources named beside each check:
+- Euler spiral (clothoid) through the Fresnel integrals, evaluated by scipy.special.fresnel and
+  cross-checked by scipy.integrate.quad; check values from ../shared/REFERENCES.md.
+- Circle: curvature 1/R, circumference 2 pi R (textbook).
+- Theorem of turning tangents (Hopf's Umlaufsatz): a simple closed plane curve turns by +-2 pi.
+- Straight line and parabolic vertical curve: grade is the derivative of elevation (calculus).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from scipy.integrate import quad
+from scipy.special import fresnel
+
+from curvespeed.geometry import build_geometry, residual_target, summarise_geometry
+from curvespeed.route import make_route
+
+
+def ls_polynomial_sd(t_fit, t_eval, degree, derivative, sigma):
+    """Standard deviation of a derivative of a least-squares polynomial fit at ``t_eval``.
+
+    Covariance of the coefficients is sigma^2 (X^T X)^-1 (Gauss-Markov; any regression text);
+    the derivative at t is a fixed linear combination of them.
+    """
+    centre = 0.5 * (np.max(t_fit) + np.min(t_fit))
+    half = 0.5 * (np.max(t_fit) - np.min(t_fit))
+    x_fit = np.polynomial.polynomial.polyvander((np.asarray(t_fit) - centre) / half, degree)
+    cov = sigma**2 * np.linalg.inv(x_fit.T @ x_fit)
+    x_eval = (np.asarray(t_eval) - centre) / half
+    rows = np.zeros((x_eval.size, degree + 1))
+    for p in range(derivative, degree + 1):
+        rows[:, p] = math.perm(p, derivative) * x_eval ** (p - derivative)
+    rows /= half**derivative
+    return np.sqrt(np.einsum("ij,jk,ik->i", rows, cov, rows))
+
+
+def allowed_offset(sigma, m):
+    """RMS distance between the fit and the points that the stated noise allows (the fit's
+    residual target, see residual_target), metres: the mean offset of the fitted curve from
+    the points cannot exceed it."""
+    return sigma * math.sqrt(residual_target(m) / m)
+
+# ---------------------------------------------------------------------------------------------
+# Test curves (invented for these tests).
+
+
+def clothoid_xy(s, a_m):
+    """Euler spiral with clothoid parameter A: curvature s / A^2, heading s^2 / (2 A^2).
+
+    With k = A sqrt(pi): S, C = fresnel(s / k) (scipy returns S first), x = k C, y = k S.
+    """
+    k = a_m * math.sqrt(math.pi)
+    s_int, c_int = fresnel(np.asarray(s, dtype=float) / k)
+    return k * c_int, k * s_int
+
+
+def ellipse_points(a_m, b_m, n, clockwise=False, phase=0.0):
+    t = phase + np.linspace(0.0, 2 * np.pi, n, endpoint=False)
+    if clockwise:
+        t = -t
+    return a_m * np.cos(t), b_m * np.sin(t)
+
+
+def rounded_rectangle_points(width_m, height_m, radius_m, step_m):
+    """Points every ``step_m`` of arc length around a rectangle with rounded corners (CCW)."""
+    straight_x, straight_y = width_m - 2 * radius_m, height_m - 2 * radius_m
+    corners = [(width_m / 2 - radius_m, height_m / 2 - radius_m),
+               (-(width_m / 2 - radius_m), height_m / 2 - radius_m),
+               (-(width_m / 2 - radius_m), -(height_m / 2 - radius_m)),
+               (width_m / 2 - radius_m, -(height_m / 2 - radius_m))]
+    # Legs in driving order, starting on the right-hand side going up.
+    legs = [("line", (width_m / 2, -straight_y / 2), (0.0, 1.0), straight_y), ("arc", 0),
+            ("line", (straight_x / 2, height_m / 2), (-1.0, 0.0), straight_x), ("arc", 1),
+            ("line", (-width_m / 2, straight_y / 2), (0.0, -1.0), straight_y), ("arc", 2),
+            ("line", (-straight_x / 2, -height_m / 2), (1.0, 0.0), straight_x), ("arc", 3)]
+    arc_len = 0.5 * math.pi * radius_m
+    total = 2 * straight_x + 2 * straight_y + 4 * arc_len
+    pts = []
+    for s in np.arange(0.0, total - 0.5 * step_m, step_m):
+        rest = s
+        for leg in legs:
+            if leg[0] == "line":
+                (x0, y0), (dx, dy), length = leg[1], leg[2], leg[3]
+                if rest <= length:
+                    pts.append((x0 + dx * rest, y0 + dy * rest))
+                    break
+                rest -= length
+            else:
+                if rest <= arc_len:
+                    cx, cy = corners[leg[1]]
+                    ang = leg[1] * 0.5 * math.pi + rest / radius_m
+                    pts.append((cx + radius_m * math.cos(ang), cy + radius_m * math.sin(ang)))
+                    break
+                rest -= arc_len
+    pts = np.array(pts)
+    return pts[:, 0], pts[:, 1], total
+
+
+# ---------------------------------------------------------------------------------------------
+# Euler spiral
+
+
+@pytest.mark.parametrize("s_m, x_ref, y_ref", [(100.0, 97.5287688200, 16.3714047376),
+                                               (50.0, 49.9219314937, 2.0810093402)])
+def test_clothoid_generator_matches_check_values(s_m, x_ref, y_ref):
+    # Check values from ../shared/REFERENCES.md (Euler spiral, A = 100 m), given to 1e-10 m;
+    # scipy's Fresnel integrals are accurate to ~1e-15 relative, so 1e-9 m covers the rounding.
+    x, y = clothoid_xy(s_m, 100.0)
+    assert x == pytest.approx(x_ref, abs=1e-9)
+    assert y == pytest.approx(y_ref, abs=1e-9)
+    # Independent check by quadrature of (cos, sin) of heading s^2/(2A^2) (scipy.integrate.quad,
+    # default tolerances ~1.5e-8 relative).
+    xq = quad(lambda t: math.cos(t * t / (2 * 100.0**2)), 0.0, s_m)[0]
+    yq = quad(lambda t: math.sin(t * t / (2 * 100.0**2)), 0.0, s_m)[0]
+    assert x == pytest.approx(xq, rel=1e-8)
+    assert y == pytest.approx(yq, rel=1e-8)
+    # Heading s^2 / (2 A^2): 0.5 rad at s = 100 m (REFERENCES.md), 0.125 rad at 50 m. From the
+    # generator by central differences with step 1 mm: truncation error ~ (1e-3)^2 * kappa / 6,
+    # far below the 1e-9 rad allowed.
+    step = 1e-3
+    xa, ya = clothoid_xy(s_m - step, 100.0)
+    xb, yb = clothoid_xy(s_m + step, 100.0)
+    assert math.atan2(yb - ya, xb - xa) == pytest.approx(s_m**2 / (2 * 100.0**2), abs=1e-9)
+
+
+A_M = 100.0
+CLOTHOID_END_M = 250.0
+NOISE_M = 0.03
+#: Curvature tolerance away from the ends, 1/m. The smoothing here spreads over l ~ 25 m
+#: (set by the 3 cm noise); a least-squares cubic or parabola over l = 25 m holding n ~ 14
+#: points with noise sigma has curvature standard deviation 2 sigma sqrt(180 / n) / l^2
+#: ~ 3.4e-4 1/m at its centre (variance of the quadratic coefficient over a uniform design).
+#: 1e-3 is ~3 standard deviations for the largest of the ~10 independent windows; the
+#: clothoid's curvature is linear in station, which the fourth-difference penalty does not bias.
+CLOTHOID_KAPPA_ATOL = 1e-3
+#: Nodes closer than this to either end are judged separately: there the data are one-sided.
+CLOTHOID_END_ZONE_M = 25.0
+#: At the ends the window holds data on one side only: about half the points over half the
+#: lever, which raises the standard deviation by 4 sqrt(2) ~ 5.7 to ~2e-3 1/m; 6e-3 is 3 of them.
+CLOTHOID_END_KAPPA_ATOL = 6e-3
+
+
+def noisy_clothoid(seed):
+    rng = np.random.default_rng(seed)
+    s = np.concatenate(([0.0], np.cumsum(rng.uniform(0.5, 3.0, 200))))
+    s = s[s <= CLOTHOID_END_M]
+    x, y = clothoid_xy(s, A_M)
+    return (s, x + rng.normal(0.0, NOISE_M, s.size), y + rng.normal(0.0, NOISE_M, s.size))
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_clothoid_curvature_recovered(seed):
+    s, x, y = noisy_clothoid(seed)
+    geo = build_geometry(make_route(x, y, source="clothoid"), spacing_m=1.0,
+                         position_noise_m=NOISE_M)
+    assert not geo.closed
+    # Station of each node on the true spiral: the fit starts at the foot of the first point
+    # (true station 0), so node stations are true stations up to the noise of that foot.
+    kappa_true = geo.station_m / A_M**2
+    err = geo.curvature_1pm - kappa_true
+    inner = ((geo.station_m > CLOTHOID_END_ZONE_M)
+             & (geo.station_m < geo.length_m - CLOTHOID_END_ZONE_M))
+    assert np.max(np.abs(err[inner])) <= CLOTHOID_KAPPA_ATOL
+    # Standard deviation of a single window (see CLOTHOID_KAPPA_ATOL) bounds the RMS error.
+    assert math.sqrt(np.mean(err[inner] ** 2)) <= 3.4e-4
+    assert np.max(np.abs(err)) <= CLOTHOID_END_KAPPA_ATOL
+    # Length between the feet of the first and last points: each end's foot moves along the
+    # tangent with that point's noise (sigma), so the difference of two has sigma*sqrt(2);
+    # 0.15 m is 3.5 of those.
+    assert geo.length_m == pytest.approx(s[-1] - s[0], abs=0.15)
+    # Heading s^2/(2A^2) (REFERENCES.md) away from the ends. Locally the smoothing acts like a
+    # least-squares cubic (its null space); over l ~ 25 m holding n ~ 14 points the slope at
+    # the centre of such a cubic has standard deviation sigma (2/l) sqrt((3 + 7 * 9/4) / n)
+    # ~ 2.8e-3 rad (Legendre coefficients of a least-squares fit have variance
+    # (2j+1) sigma^2 / n); 3 of those, plus the node stations' offset from the true ones
+    # (the first point's foot, up to ~3 sigma sqrt(2)) times the largest curvature 0.025 1/m:
+    # 8.5e-3 + 3.2e-3 rad.
+    heading_true = geo.station_m**2 / (2 * A_M**2)
+    assert np.max(np.abs(geo.heading_rad - heading_true)[inner]) <= 8.5e-3 + 3.2e-3
+
+
+# ---------------------------------------------------------------------------------------------
+# Circle
+
+
+@pytest.mark.parametrize("radius_m", [20.0, 100.0, 1000.0])
+@pytest.mark.parametrize("repeat_first", [False, True])
+def test_circle_curvature_and_length(radius_m, repeat_first):
+    step = 2.0
+    n = int(round(2 * math.pi * radius_m / step))
+    x, y = ellipse_points(radius_m, radius_m, n, phase=0.3)
+    if repeat_first:
+        x, y = np.append(x, x[0]), np.append(y, y[0])
+    sigma = 1e-3
+    geo = build_geometry(make_route(x, y, source="circle"), spacing_m=1.0,
+                         position_noise_m=sigma)
+    assert geo.closed
+    # Tolerance, relative: (a) the fit may sit up to the allowed RMS offset from the points, so
+    # its mean radius can differ from R by at most that much (mean radial offset <= RMS of the
+    # residuals); (b) a quintic spline through samples h apart reproduces a second derivative
+    # to O((h/R)^4) (approximation order h^(k+1-j) of degree-k splines for the j-th derivative,
+    # de Boor, A Practical Guide to Splines, from memory).
+    rtol = allowed_offset(sigma, x.size) / radius_m + (step / radius_m) ** 4
+    kappa = geo.curvature_1pm
+    assert np.mean(kappa) == pytest.approx(1.0 / radius_m, rel=rtol)
+    assert geo.length_m == pytest.approx(2 * math.pi * radius_m, rel=rtol)
+    # Pointwise: as above plus round-off in the smoothest modes of the banded solve, whose
+    # condition grows with the smoothing weight (up to lam/lam0 = 1e12 is searched, so in
+    # principle 1e-16 * 1e12); 1e-6 of 1/R (1 mm of radius per km) is allowed, ~100 times the
+    # ripple seen at R = 1 km and far below anything a speed limit notices.
+    assert np.allclose(kappa, 1.0 / radius_m, rtol=rtol + 1e-6, atol=0.0)
+    assert geo.total_turning_rad() == pytest.approx(2 * math.pi, abs=1e-12)
+    summary = summarise_geometry(geo)
+    assert summary["closed"] is True
+    assert summary["min_radius_m"] == pytest.approx(radius_m, rel=rtol + 1e-6)
+    assert summary["total_turning_deg"] == pytest.approx(360.0, abs=1e-9)
+
+
+# ---------------------------------------------------------------------------------------------
+# Theorem of turning tangents
+
+
+def _simple_closed_curves():
+    cases = []
+    for cw in (False, True):
+        x, y = ellipse_points(50.0, 50.0, 160, clockwise=cw)
+        cases.append((f"circle-{'cw' if cw else 'ccw'}", x, y))
+        x, y = ellipse_points(60.0, 25.0, 200, clockwise=cw, phase=0.7)
+        cases.append((f"ellipse-{'cw' if cw else 'ccw'}", x, y))
+        x, y, _ = rounded_rectangle_points(100.0, 50.0, 10.0, 2.0)
+        if cw:
+            x, y = x[::-1], y[::-1]
+        cases.append((f"rounded-rectangle-{'cw' if cw else 'ccw'}", x, y))
+    return cases
+
+
+@pytest.mark.parametrize("name, x, y", _simple_closed_curves(),
+                         ids=[c[0] for c in _simple_closed_curves()])
+def test_simple_closed_curves_turn_by_two_pi(name, x, y):
+    # Hopf's Umlaufsatz: total turning of a simple closed curve is +2 pi (counter-clockwise) or
+    # -2 pi (clockwise).
+    geo = build_geometry(make_route(x, y, source=name), spacing_m=0.5, position_noise_m=0.01)
+    assert geo.closed
+    expected = -2 * math.pi if name.endswith("-cw") else 2 * math.pi
+    assert geo.total_turning_rad() == pytest.approx(expected, abs=1e-12)
+    # The same from curvature alone: the integral of curvature over a lap, by the trapezoid rule,
+    # which on a smooth periodic integrand converges faster than any power of the spacing
+    # (Trefethen and Weideman, SIAM Review 56(3), 2014, from memory). 1e-4 rad leaves room for
+    # the rounded rectangle's corners, where curvature rises from 0 to 1/10 m within metres.
+    integral = float(np.sum(geo.curvature_1pm[:-1]) * geo.spacing_m)
+    assert integral == pytest.approx(expected, abs=1e-4)
+
+
+def test_rounded_rectangle_length_and_straights():
+    # Straights of 80 m and 30 m joined by quarter circles of radius 10 m: length
+    # 2 (80 + 30) + 2 pi 10 (textbook). A fit lying on average delta inside the points is close
+    # to the parallel curve at distance delta, whose length is L - 2 pi delta (Steiner's formula
+    # for parallel curves of a convex curve); delta is at most the allowed RMS offset.
+    sigma = 0.01
+    x, y, total = rounded_rectangle_points(100.0, 50.0, 10.0, 2.0)
+    geo = build_geometry(make_route(x, y, source="rounded"), spacing_m=0.5,
+                         position_noise_m=sigma)
+    assert geo.length_m == pytest.approx(total, abs=2 * math.pi * allowed_offset(sigma, x.size))
+    # Heading on the middle of each straight is exactly a multiple of 90 degrees from the first
+    # (the route starts on a straight heading +y). The straights are >= 30 m long and the fit
+    # may tilt one by about twice the allowed offset over its length: 2 * 0.0116 / 30 ~ 8e-4
+    # rad; the spline's ripple from the neighbouring curvature steps is far smaller at the middle.
+    arc = 0.5 * math.pi * 10.0
+    middles = [15.0, 30.0 + arc + 40.0, 110.0 + 2 * arc + 15.0, 140.0 + 3 * arc + 40.0]
+    for quarter, s_mid in enumerate(middles):
+        k = int(np.argmin(np.abs(geo.station_m - s_mid)))
+        assert geo.heading_rad[k] == pytest.approx(0.5 * math.pi * (quarter + 1), abs=8e-4)
+
+
+# ---------------------------------------------------------------------------------------------
+# Closed route seam
+
+
+def test_closed_route_seam_is_not_special():
+    # A noisy ellipse whose first point is at an arbitrary place: the seam (node n == node 0)
+    # must look like any other step. Periodic spline continuity: curvature and heading rate are
+    # continuous everywhere, so the change across the seam is no larger than elsewhere.
+    rng = np.random.default_rng(7)
+    x, y = ellipse_points(80.0, 40.0, 400, phase=1.1)
+    x, y = x + rng.normal(0.0, 0.02, x.size), y + rng.normal(0.0, 0.02, y.size)
+    geo = build_geometry(make_route(x, y, source="ellipse"), spacing_m=1.0,
+                         position_noise_m=0.02)
+    assert geo.closed
+    kappa = geo.curvature_1pm
+    # Steps between consecutive nodes, the last one being node n-1 -> node n (== node 0).
+    kappa_steps = np.abs(np.diff(kappa))
+    seam_kappa_step = kappa_steps[-1]
+    after_seam_step = kappa_steps[0]
+    assert max(seam_kappa_step, after_seam_step) <= np.max(kappa_steps[1:-1])
+    rate = np.diff(geo.heading_rad) / geo.spacing_m
+    rate_steps = np.abs(np.diff(np.append(rate, rate[0])))   # wraps once around the seam
+    assert rate_steps[-1] <= np.max(rate_steps[:-1])
+    assert rate_steps[-2] <= np.max(rate_steps[:-2])
+    # Bit-identical seam rows.
+    assert geo.x_m[-1] == geo.x_m[0] and geo.y_m[-1] == geo.y_m[0]
+    assert geo.curvature_1pm[-1] == geo.curvature_1pm[0]
+
+
+# ---------------------------------------------------------------------------------------------
+# Straight line and grade
+
+
+def straight_points(seed, length_m=500.0, heading_rad=0.4):
+    rng = np.random.default_rng(seed)
+    s = np.concatenate(([0.0], np.cumsum(rng.uniform(0.5, 3.0, 400))))
+    s = s[s <= length_m]
+    x = s * math.cos(heading_rad) + rng.normal(0.0, NOISE_M, s.size)
+    y = s * math.sin(heading_rad) + rng.normal(0.0, NOISE_M, s.size)
+    return rng, s, x, y
+
+
+# A straight line (and a parabolic elevation) lies in the null space of the smoothing penalty
+# (cubics), and with these seeds its best cubic leaves less residual than the noise allows, so
+# the fit is the least-squares cubic over the whole route. Its scatter follows from the
+# least-squares covariance (ls_polynomial_sd); the tolerances are 4 standard deviations at
+# each node (errors at neighbouring nodes are strongly correlated, so the maximum over the
+# route is not much larger than at one node).
+SD_FACTOR = 4.0
+
+
+def test_straight_line_has_no_curvature():
+    rng, s, x, y = straight_points(11)
+    geo = build_geometry(make_route(x, y, source="line"), position_noise_m=NOISE_M)
+    # Across-track noise sigma enters the cubic; curvature is its second derivative (the
+    # parameter is arc length to within the noise), heading offset its first.
+    kappa_sd = ls_polynomial_sd(s, geo.station_m, 3, 2, NOISE_M)
+    assert np.all(np.abs(geo.curvature_1pm) <= SD_FACTOR * kappa_sd)
+    heading_sd = ls_polynomial_sd(s, geo.station_m, 3, 1, NOISE_M)
+    assert np.all(np.abs(geo.heading_rad - 0.4) <= SD_FACTOR * heading_sd)
+    # A real bend of any road radius (say 10 km) would be far outside: 1e-4 1/m.
+    assert np.max(SD_FACTOR * kappa_sd) < 1e-5
+    assert summarise_geometry(geo)["min_radius_m"] > 1e5
+
+
+def test_constant_grade_recovered():
+    rng, s, x, y = straight_points(12)
+    grade, sigma_z = 0.045, 0.05
+    z = 100.0 + grade * s + rng.normal(0.0, sigma_z, s.size)
+    geo = build_geometry(make_route(x, y, z, source="grade"), position_noise_m=NOISE_M,
+                         elevation_noise_m=sigma_z)
+    # Grade is dz/ds (calculus); elevation is fitted against station by a cubic here.
+    grade_sd = ls_polynomial_sd(s, geo.station_m, 3, 1, sigma_z)
+    assert np.all(np.abs(geo.grade - grade) <= SD_FACTOR * grade_sd)
+    z_sd = ls_polynomial_sd(s, geo.station_m, 3, 0, sigma_z)
+    # Node stations differ from the points' true stations by the noise of the start (~sigma),
+    # which shifts z by grade * sigma ~ 1.4 mm; added to the tolerance.
+    assert np.all(np.abs(geo.z_m - (100.0 + grade * geo.station_m))
+                  <= SD_FACTOR * z_sd + grade * 3 * NOISE_M)
+    summary = summarise_geometry(geo)
+    assert summary["min_grade"] == pytest.approx(grade, abs=SD_FACTOR * np.max(grade_sd))
+    assert summary["max_grade"] == pytest.approx(grade, abs=SD_FACTOR * np.max(grade_sd))
+
+
+def test_parabolic_vertical_curve_grade_recovered():
+    # A crest vertical curve as road designers lay it out (common practice): grade changes
+    # linearly from +4 % to -3 % over 300 m, z = z0 + g1 s + (g2 - g1) s^2 / (2 L).
+    rng, s, x, y = straight_points(13, length_m=300.0)
+    g1, g2, length = 0.04, -0.03, 300.0
+    sigma_z = 0.02
+    z = 50.0 + g1 * s + (g2 - g1) * s**2 / (2 * length) + rng.normal(0.0, sigma_z, s.size)
+    geo = build_geometry(make_route(x, y, z, source="crest"), position_noise_m=NOISE_M,
+                         elevation_noise_m=sigma_z)
+    expected = g1 + (g2 - g1) * geo.station_m / length
+    grade_sd = ls_polynomial_sd(s, geo.station_m, 3, 1, sigma_z)
+    # Station shift of the start (~sigma, see above) times the rate of grade (7 % per 300 m).
+    shift = 3 * NOISE_M * abs(g2 - g1) / length
+    assert np.all(np.abs(geo.grade - expected) <= SD_FACTOR * grade_sd + shift)
+
+
+def test_elevation_on_a_loop_is_periodic():
+    # Circle of radius 80 m with z = 5 sin(theta): grade dz/ds = 5 cos(theta) / R (calculus).
+    rng = np.random.default_rng(5)
+    radius = 80.0
+    theta = 0.3 + np.linspace(0.0, 2 * np.pi, 300, endpoint=False)
+    sigma_z = 0.05
+    x = radius * np.cos(theta) + rng.normal(0.0, 0.02, theta.size)
+    y = radius * np.sin(theta) + rng.normal(0.0, 0.02, theta.size)
+    z = 5.0 * np.sin(theta) + rng.normal(0.0, sigma_z, theta.size)
+    geo = build_geometry(make_route(x, y, z, source="loop"), position_noise_m=0.02,
+                         elevation_noise_m=sigma_z)
+    assert geo.closed
+    theta_nodes = np.arctan2(geo.y_m, geo.x_m)
+    # Elevation within 3 sigma_z of the closed form (smoothing only lowers the noise);
+    # grade: the noise of a slope over a smoothing window of ~40 m with ~24 points is
+    # sigma_z sqrt(12/n)/l ~ 1e-3, 3e-3 is 3 of those.
+    assert np.allclose(geo.z_m, 5.0 * np.sin(theta_nodes), atol=3 * sigma_z, rtol=0.0)
+    assert np.allclose(geo.grade, 5.0 * np.cos(theta_nodes) / radius, atol=3e-3, rtol=0.0)
+    assert geo.z_m[-1] == geo.z_m[0] and geo.grade[-1] == geo.grade[0]
