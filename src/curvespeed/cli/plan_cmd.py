@@ -103,22 +103,27 @@ def summarise(route_file, profile, limits, origin: str, max_curves: int = 8) -> 
         f" m/s^2; jerk {profile.extremes['jerk_mps3']:.2f}, lateral jerk "
         f"{profile.extremes['lateral_jerk_mps3']:.2f} m/s^3",
     ]
+    from ..check import find_curves
+
     lateral = np.isin(profile.binding, ["lateral_comfort", "lateral_grip"])
     stretches = []
-    if lateral.any():
-        edges = np.flatnonzero(np.diff(np.concatenate(([0], lateral.astype(int), [0]))))
-        for a, b in zip(edges[::2], edges[1::2] - 1):
-            k = a + int(np.argmin(v[a:b + 1]))
-            kap = abs(geo.curvature_1pm[k])
-            stretches.append((v[k], s[a], s[b], 1 / kap if kap > 0 else np.inf,
-                              str(profile.binding[k]).replace("_", " ")))
+    for nodes in find_curves(geo):
+        bound = nodes[lateral[nodes]]
+        if not bound.size:
+            continue
+        k = int(bound[np.argmin(v[bound])])
+        radius = 1 / abs(geo.curvature_1pm[nodes]).max()
+        stretches.append((v[k], s[nodes[0]], s[nodes[-1]], radius,
+                          str(profile.binding[k]).replace("_", " ")))
     if stretches:
         slowest = sorted(sorted(stretches)[:max_curves], key=lambda r: r[1])
-        lines.append(f"limiting curves ({len(stretches)} in all; the {len(slowest)} slowest):")
-        lines.append("   station range (m)     radius (m)   speed (m/s)  speed (km/h)  limited by")
+        lines.append(f"curves where a lateral limit sets the speed ({len(stretches)}; "
+                     f"the {len(slowest)} slowest):")
+        lines.append("   station range (m)     min radius (m)  speed (m/s)  speed (km/h)  "
+                     "limited by")
         for vk, a, b, radius, what in slowest:
-            lines.append(f"   {a:8.1f} - {b:8.1f}  {radius:10.1f}  {vk:11.2f}  {mps_to_kmh(vk):12.1f}"
-                         f"  {what}")
+            lines.append(f"   {a:8.1f} - {b:8.1f}  {radius:14.1f}  {vk:11.2f}  "
+                         f"{mps_to_kmh(vk):12.1f}  {what}")
     else:
         lines.append("no curve limits the speed (top speed, zones and stops do)")
     return "\n".join(lines)

@@ -23,21 +23,25 @@ def route(route_file, spacing_m, position_noise_m, elevation_noise_m, closed, ou
     if output:
         check_writable(output, force)
     rt, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m, closed)
-    k = int(abs(geo.curvature_1pm).argmax())
-    kmax = abs(float(geo.curvature_1pm[k]))
-    radius = f"{1.0 / kmax:.1f} m at station {geo.station_m[k]:.1f} m" if kmax > 0 else "none"
+    from ..geometry import summarise_geometry
+
+    summary = summarise_geometry(geo)
+    radius = ("none (straight)" if math.isinf(summary["min_radius_m"]) else
+              f"{summary['min_radius_m']:.1f} m at station {summary['min_radius_station_m']:.1f} m")
     lines = [
         f"route          {route_file} ({geo.name})",
         f"points read    {rt.n_points}" + (" (latitude/longitude, projected to a local "
                                            "transverse Mercator)" if rt.is_geographic else ""),
-        f"length         {geo.length_m:.1f} m ({'closed loop' if geo.closed else 'open'})",
-        f"stations       {geo.n_nodes} at {geo.spacing_m:.4g} m spacing",
+        f"length         {summary['length_m']:.1f} m "
+        f"({'closed loop' if summary['closed'] else 'open'})",
+        f"stations       {summary['n_nodes']} at {summary['spacing_m']:.4g} m spacing",
         f"min radius     {radius}",
-        f"total turning  {math.degrees(geo.total_turning_rad()):.1f} degrees",
+        f"total turning  {summary['total_turning_deg']:.1f} degrees",
     ]
-    if geo.z_m is not None:
-        lines.append(f"elevation      {geo.z_m.min():.1f} .. {geo.z_m.max():.1f} m, grade "
-                     f"{100 * geo.grade.min():.1f} .. {100 * geo.grade.max():.1f} %")
+    if summary["min_elevation_m"] is not None:
+        lines.append(f"elevation      {summary['min_elevation_m']:.1f} .. "
+                     f"{summary['max_elevation_m']:.1f} m, grade {100 * summary['min_grade']:.1f}"
+                     f" .. {100 * summary['max_grade']:.1f} %")
     click.echo("\n".join(lines))
     if output:
         from ..io.geometry_csv import write_geometry_csv

@@ -71,20 +71,25 @@ class ConvexOptions:
         always inside the limit, so this only trades a little optimality for a smaller QP.
     qp_tolerance : float
         Feasibility and gap tolerance of each QP solve (Clarabel).
+    anchor_plateaus : bool
+        Hold the middle of long flat stretches of the envelope at the envelope (see
+        :func:`plateau_anchors`), which shrinks the QP; if that makes it infeasible, the solve
+        is repeated without.
     """
 
     comfort_weight: float = 0.0
     max_iterations: int = 30
-    rel_improvement: float = 1e-5
+    rel_improvement: float = 1e-4
     margin: float = 1e-5
     chord_tolerance_mps2: float = 1e-3
-    qp_tolerance: float = 1e-9
+    qp_tolerance: float = 1e-8
+    anchor_plateaus: bool = True
 
 
 class _Layout:
     """Index structure of the QP: variables, steps, jerk stencils. Built once per problem."""
 
-    def __init__(self, problem: SpeedProblem, jerk: bool):
+    def __init__(self, problem: SpeedProblem, jerk: bool, anchors=None):
         n_nodes = problem.n_nodes
         self.closed = problem.closed
         self.nv = n_nodes - 1 if problem.closed else n_nodes      # distinct nodes
@@ -107,6 +112,10 @@ class _Layout:
             value[0] = problem.b_start
             fixed[-1] = True
             value[-1] = problem.b_end
+        if anchors is not None:
+            mask, values = anchors
+            value = np.where(mask & ~fixed, values, value)
+            fixed = fixed | mask
         self.fixed = fixed
         self.fixed_value = value
         # per-step model (see curvespeed.problem): time coefficient and end-node factors
@@ -400,28 +409,90 @@ def _solve_qp_clarabel(P, q, A, lo, up, eps):
     return np.asarray(sol.x), status, int(sol.iterations)
 
 
+def plateau_anchors(problem: SpeedProblem, b_env: np.ndarray, nv: int):
+    """Nodes in the middle of long flat stretches of the envelope, to fix at the envelope.
+
+    Where the envelope holds a speed cap or a curve's lateral limit with zero acceleration for
+    long enough, a jerk-limited profile reaches it too: leaving or joining the plateau takes at
+    most ``v (a_accel + a_decel) / j`` of distance on either side. Nodes farther than that (plus
+    five steps) from the plateau's ends are fixed at the envelope, which removes them from the
+    QP. On a plateau set by a lateral limit the envelope leaves no acceleration to spare, which
+    the QP's tightened rows cannot meet, so those nodes are held 1e-4 below it (0.005 % in
+    speed). Returns ``(mask, values)`` over the ``nv`` distinct nodes.
+    """
+    lim = problem.limits
+    b = b_env[:nv]
+    flat_step = np.abs(np.diff(b)) <= 1e-9 * np.maximum(b[1:], 1.0)
+    both = np.zeros(nv, dtype=bool)
+    both[1:-1] = flat_step[:-1] & flat_step[1:]
+    reach = np.sqrt(b) * (lim.max_accel_mps2 + lim.max_decel_mps2) / lim.max_jerk_mps3
+    margin = np.ceil(reach / problem.ds).astype(int) + 5
+    mask = np.zeros(nv, dtype=bool)
+    edges = np.flatnonzero(np.diff(np.concatenate(([0], both.astype(int), [0]))))
+    for a, e in zip(edges[::2], edges[1::2]):
+        m = int(margin[a])
+        if e - a > 2 * m:
+            mask[a + m:e - m] = True
+    at_cap = b >= problem.cap_b[:nv] * (1 - 1e-9)
+    return mask, np.where(at_cap, b, b * (1 - 1e-4))
+
+
 def solve_convex(problem: SpeedProblem, options: ConvexOptions = ConvexOptions()) -> SolveResult:
     """Minimum-time profile with jerk bound (and every envelope limit); see module docstring."""
     t_start = time.perf_counter()
     env = solve_envelope(problem)
-    lay = _Layout(problem, jerk=problem.limits.max_jerk_mps3 is not None)
+    jerk = problem.limits.max_jerk_mps3 is not None
+    nv = problem.n_nodes - 1 if problem.closed else problem.n_nodes
+    notes = []
+    anchors = plateau_anchors(problem, env.b, nv) if (jerk and options.anchor_plateaus) else None
+    try:
+        out = _run_scp(problem, env, options, anchors)
+    except (InfeasibleError, SolverError) as exc:
+        if anchors is None or not anchors[0].any():
+            raise
+        notes.append(f"fixing envelope plateaus failed ({exc}); solved without")
+        out = _run_scp(problem, env, options, None)
+    b_hat, status, iterations, qp_iterations, more_notes = out
+    notes += more_notes
+    if anchors is not None and anchors[0].any():
+        notes.append(f"{int(anchors[0].sum())} of {nv} stations held at the envelope "
+                     "(plateau interiors)")
+
+    b = np.empty(problem.n_nodes)
+    b[:nv] = b_hat
+    if problem.closed:
+        b[-1] = b[0]
+    if not jerk and not math.isfinite(problem.limits.power_per_mass_wpkg):
+        notes.append("no jerk bound and no power limit: the program's optimum is the envelope")
+    elapsed = time.perf_counter() - t_start
+    if iterations >= options.max_iterations:
+        warnings.warn(f"convex solver stopped at the iteration cap ({options.max_iterations}); "
+                      "the profile is feasible but may be a little slower than optimal",
+                      CurvespeedWarning, stacklevel=2)
+    return SolveResult(b=b, status=status, solver="convex",
+                       iterations=iterations, solve_time_s=elapsed, ceiling_b=env.ceiling_b,
+                       notes=tuple(notes), envelope_b=env.b, inner_iterations=qp_iterations)
+
+
+def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, anchors):
+    """The sequential-convex loop (module docstring); returns the last accepted iterate."""
+    lay = _Layout(problem, jerk=problem.limits.max_jerk_mps3 is not None, anchors=anchors)
     nv = lay.nv
     b_env = env.b[:nv].copy()
     builder = _QPBuilder(problem, lay, b_env, options)
     notes = []
-
     b_hat = b_env.copy()
     t_hat = math.inf
     status = SolveStatus.OPTIMAL
     qp_iterations = 0
     iterations = 0
     for iterations in range(1, options.max_iterations + 1):
-        P, q, A, lo, up = builder.build(b_hat)
-        x, st, its = _solve_qp_clarabel(P, q, A, lo, up, options.qp_tolerance)
+        qp = _reduce(*builder.build(b_hat), lay.fixed, lay.fixed_value)
+        x, st, its = _solve_reduced(qp, options.qp_tolerance)
         qp_iterations += its
         if st is SolveStatus.OPTIMAL_INACCURATE:
             # retry once with looser tolerances before accepting an inaccurate answer
-            x2, st2, its2 = _solve_qp_clarabel(P, q, A, lo, up, 100 * options.qp_tolerance)
+            x2, st2, its2 = _solve_reduced(qp, 100 * options.qp_tolerance)
             qp_iterations += its2
             notes.append(f"iteration {iterations}: Clarabel was inaccurate at tolerance "
                          f"{options.qp_tolerance:g}; re-solved at {100 * options.qp_tolerance:g}"
@@ -455,21 +526,34 @@ def solve_convex(problem: SpeedProblem, options: ConvexOptions = ConvexOptions()
             b_hat, t_hat = b_new, t_new
         if improvement < options.rel_improvement:
             break
+    return b_hat, status, iterations, qp_iterations, notes
 
-    b = np.empty(problem.n_nodes)
-    b[:nv] = b_hat
-    if problem.closed:
-        b[-1] = b[0]
-    if not lay.jerk and not builder.has_power:
-        notes.append("no jerk bound and no power limit: the program's optimum is the envelope")
-    elapsed = time.perf_counter() - t_start
-    if iterations >= options.max_iterations:
-        warnings.warn(f"convex solver stopped at the iteration cap ({options.max_iterations}); "
-                      "the profile is feasible but may be a little slower than optimal",
-                      CurvespeedWarning, stacklevel=2)
-    return SolveResult(b=b, status=status, solver="convex",
-                       iterations=iterations, solve_time_s=elapsed, ceiling_b=env.ceiling_b,
-                       notes=tuple(notes), envelope_b=env.b, inner_iterations=qp_iterations)
+
+def _reduce(P, q, A, lo, up, fixed, values):
+    """Eliminate fixed variables from the QP; drop rows left with no free variable."""
+    free = ~fixed
+    P = P.tocsc()
+    A = A.tocsc()
+    xf = np.where(fixed, values, 0.0)
+    Pff = P[free][:, free]
+    qf = q[free] + P[free][:, fixed] @ values[fixed]
+    Af = A[:, free].tocsr()
+    shift = A[:, fixed] @ values[fixed]
+    keep = np.diff(Af.indptr) > 0
+    return {"P": Pff, "q": qf, "A": Af[keep], "lo": lo[keep] - shift[keep],
+            "up": up[keep] - shift[keep], "free": free, "x_fixed": xf}
+
+
+def _solve_reduced(qp, eps):
+    if not qp["free"].any():
+        return qp["x_fixed"], SolveStatus.OPTIMAL, 0
+    x, st, its = _solve_qp_clarabel(qp["P"], qp["q"], qp["A"], qp["lo"], qp["up"], eps)
+    full = qp["x_fixed"].copy()
+    if x is not None and np.size(x) == int(qp["free"].sum()):
+        full[qp["free"]] = x
+    else:
+        full = None
+    return full, st, its
 
 
 def _line_search(b0, b1, t0, lay, ds, steps: int = 30):
