@@ -25,12 +25,15 @@ from ._limits import constraint_options, limit_override_options, resolve_limits
 @click.option("--comfort-weight", type=float, default=0.0, show_default=True, metavar="W",
               help="Convex solver: weight on squared changes of acceleration, s/(m/s^2)^2; "
                    "0 is pure minimum time.")
+@click.option("--plot", "plot_file", type=click.Path(dir_okay=False), default=None,
+              help="Also draw the overview figure (.png, .svg or .pdf) of the profile.")
 @click.option("--force", is_flag=True, help="Replace output files that exist.")
 @geometry_options
 @limit_override_options
 @constraint_options
 @handle_errors
-def plan(route_file, limits_file, output, meta_file, solver, comfort_weight, force, spacing_m,
+def plan(route_file, limits_file, output, meta_file, solver, comfort_weight, plot_file, force,
+         spacing_m,
          position_noise_m,
          elevation_noise_m, closed, zones, stops, superelevations, start_speed, end_speed,
          **overrides):
@@ -49,6 +52,11 @@ def plan(route_file, limits_file, output, meta_file, solver, comfort_weight, for
         check_writable(meta_path, force)
     elif meta_file:
         raise click.UsageError("--meta needs -o/--output (the sidecar describes a written profile)")
+    if plot_file:
+        from ..plots import figure_format
+
+        figure_format(plot_file)
+        check_writable(plot_file, force)
     limits, constraints, origin = resolve_limits(limits_file, overrides, zones, stops,
                                                  superelevations, start_speed, end_speed)
     _, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m, closed)
@@ -73,6 +81,11 @@ def plan(route_file, limits_file, output, meta_file, solver, comfort_weight, for
         write_profile_csv(profile, output, force=force)
         write_meta_json(meta, meta_path, force=force)
         click.echo(f"wrote {output} and {meta_path}")
+    if plot_file:
+        from ..plots import save_overview
+
+        save_overview(profile, plot_file, limits=limits, constraints=constraints, force=force)
+        click.echo(f"drew {plot_file}")
 
 
 def summarise(route_file, profile, limits, origin: str, max_curves: int = 8) -> str:

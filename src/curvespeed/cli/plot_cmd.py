@@ -1,4 +1,4 @@
-"""``curvespeed plot``: one figure of a profile (speed, curvature, acceleration, jerk, g-g, plan)."""
+"""``curvespeed plot``: one overview figure of a profile (speed, limits, g-g, plan view)."""
 
 from __future__ import annotations
 

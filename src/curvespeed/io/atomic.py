@@ -42,6 +42,10 @@ def atomic_open(path: str | os.PathLike, force: bool = False, mode: str = "w", n
             fh = os.fdopen(fd, mode, encoding="utf-8", newline=newline)
         with fh:
             yield fh
+        # mkstemp creates the file readable by its owner only; give it the usual permissions
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)
         os.replace(tmp, p)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):

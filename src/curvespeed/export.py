@@ -1,0 +1,642 @@
+"""Reference trajectories from a station profile: samples in time or by station.
+
+A planned profile gives speeds ``v[k]`` at stations ``s[k]``. Between consecutive nodes the
+squared speed is linear in station (see :mod:`curvespeed.problem`), so step ``k`` has the constant
+acceleration
+
+    a[k] = (v[k+1]**2 - v[k]**2) / (2 ds[k])
+
+and takes ``T[k] = 2 ds[k] / (v[k] + v[k+1])``. Inside a step, ``tau`` seconds after leaving
+node k (uniform-acceleration kinematics)::
+
+    s(tau) = s[k] + v[k] tau + a[k] tau**2 / 2,        v(tau) = v[k] + a[k] tau,
+
+and, the other way round, a station ``s[k] + d`` is reached after
+``tau = 2 d / (v[k] + sqrt(v[k]**2 + 2 a[k] d))`` (the cancellation-free root).
+
+Steps next to rest under a jerk bound
+    When the profile was planned with a jerk bound, a step with one end at rest (the start, a
+    stop, the end) is driven at constant jerk, so that the acceleration is zero at rest: it takes
+    ``T[k] = 3 ds / v`` (``v`` the speed at its moving end) and, with ``x = tau / T`` leaving
+    rest, ``s = s[k] + ds x**3``, ``v = v[k+1] x**2``, ``a = 2 v[k+1] x / T`` (uniform-jerk
+    kinematics; arriving at rest is the mirror image). Such steps are recognised from the
+    profile's own ``time_s`` (a step time of ``3 ds / v`` instead of ``2 ds / v``), so the export
+    follows whichever model produced the profile.
+
+All formulas are used as they stand: samples are placed step by step from node times that are
+sums of ``T[k]``, so nothing is integrated numerically and nothing drifts; the last sample is the
+end of the route at the planned time plus dwells.
+
+Stops
+    An interior node with speed 0 is a stop. The vehicle arrives, stays there for ``dwell_s``
+    seconds, then leaves; the formulas above never divide by a zero speed (a step has a zero
+    speed at one end at most, which :func:`make_station_profile` checks).
+
+Geometry between nodes
+    heading and curvature are linear in station (heading unwrapped, so it is continuous);
+    plan position is the cubic Hermite curve through the two nodes with the node headings as
+    tangents, which follows a curve far closer than the chord (error of order ``ds**4`` instead
+    of ``ds**2 curvature / 8``). Latitude/longitude, where the profile has them, get the same
+    interpolation through the step's local conformal map from metres to degrees (see
+    :func:`_interpolate_latlon`).
+
+Derived columns: ``yaw_rate_radps = speed * curvature`` and ``lat_accel_mps2 = speed**2 *
+curvature`` (signed, left positive), as for the profile itself.
+
+This module is core numerics: arrays in, frozen dataclasses out; it never reads or writes files.
+"""
+
+from __future__ import annotations
+
+import enum
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import SpeedFileError
+
+#: Columns every trajectory has, in output order (units in the names).
+TRAJECTORY_COLUMNS = ("time_s", "station_m", "x_m", "y_m", "heading_rad", "speed_mps",
+                      "accel_mps2", "curvature_1pm", "yaw_rate_radps", "lat_accel_mps2")
+
+
+class SamplingMode(enum.Enum):
+    """How a trajectory is sampled: at uniform time steps or at uniform station steps."""
+
+    TIME = "time"
+    STATION = "station"
+
+
+@dataclass(frozen=True)
+class StationProfile:
+    """Planned speeds at stations, with the route geometry: what export and plots need.
+
+    Built from a :class:`~curvespeed.profile.Profile` (:meth:`from_profile`) or from a profile
+    CSV (:func:`curvespeed.io.trajectory.read_station_profile`), always through
+    :func:`make_station_profile`, which checks it.
+
+    Attributes
+    ----------
+    station_m : ndarray, shape (n+1,)
+        Node stations, metres, strictly increasing.
+    x_m, y_m : ndarray
+        Plan position of the nodes, metres.
+    heading_rad : ndarray
+        Direction of travel, radians counter-clockwise from +x, continuous (unwrapped).
+    curvature_1pm : ndarray
+        Signed curvature, 1/m, positive turning left.
+    speed_mps : ndarray
+        Planned speed at the nodes, m/s (>= 0; 0 at stops).
+    time_s : ndarray or None
+        Planned time at the nodes as the profile states it, s (for comparison only: export
+        recomputes node times from stations and speeds, see :attr:`node_time_s`).
+    accel_mps2, jerk_mps3, lat_accel_mps2 : ndarray or None
+        The profile's per-node acceleration (m/s^2), jerk (m/s^3) and lateral acceleration
+        (m/s^2), where it has them.
+    limit_speed_mps : ndarray or None
+        The node-wise speed ceiling (lateral limits, top speed, zones, stops), m/s.
+    binding : ndarray of str or None
+        The limit that binds at each node.
+    z_m, grade : ndarray or None
+        Elevation (metres) and grade (rise over run).
+    lat, lon : ndarray or None
+        WGS84 latitude and longitude of the nodes, degrees, for geographic routes.
+    name, source : str
+        Route name (for titles) and where the profile came from (for messages).
+    where : ndarray of str or None
+        Label of each node in its source ("line 12"), for messages.
+    cubic_step : ndarray of bool, shape (n,)
+        Steps next to rest driven at constant jerk (module docstring); the others have constant
+        acceleration.
+    """
+
+    station_m: np.ndarray
+    x_m: np.ndarray
+    y_m: np.ndarray
+    heading_rad: np.ndarray
+    curvature_1pm: np.ndarray
+    speed_mps: np.ndarray
+    time_s: np.ndarray | None = None
+    accel_mps2: np.ndarray | None = None
+    jerk_mps3: np.ndarray | None = None
+    lat_accel_mps2: np.ndarray | None = None
+    limit_speed_mps: np.ndarray | None = None
+    binding: np.ndarray | None = None
+    z_m: np.ndarray | None = None
+    grade: np.ndarray | None = None
+    lat: np.ndarray | None = None
+    lon: np.ndarray | None = None
+    name: str = "route"
+    source: str = "profile"
+    where: np.ndarray | None = None
+    cubic_step: np.ndarray | None = None
+
+    @classmethod
+    def from_profile(cls, profile) -> "StationProfile":
+        """The station profile of a planned :class:`~curvespeed.profile.Profile`."""
+        geo = profile.geometry
+        latlon = geo.latlon()
+        return make_station_profile(
+            geo.station_m, geo.x_m, geo.y_m, geo.heading_rad, geo.curvature_1pm,
+            profile.speed_mps, time_s=profile.time_s, accel_mps2=profile.accel_mps2,
+            jerk_mps3=profile.jerk_mps3, lat_accel_mps2=profile.lat_accel_mps2,
+            limit_speed_mps=profile.limit_speed_mps, binding=profile.binding, z_m=geo.z_m,
+            grade=geo.grade, lat=None if latlon is None else latlon[0],
+            lon=None if latlon is None else latlon[1], name=geo.name, source=geo.source)
+
+    @property
+    def n_nodes(self) -> int:
+        return int(self.station_m.size)
+
+    @property
+    def length_m(self) -> float:
+        """Distance from the first to the last node, metres."""
+        return float(self.station_m[-1] - self.station_m[0])
+
+    @property
+    def is_geographic(self) -> bool:
+        return self.lat is not None
+
+    @property
+    def step_accel_mps2(self) -> np.ndarray:
+        """``(v[k+1]^2 - v[k]^2) / (2 ds)`` of each step, m/s^2: the constant acceleration of a
+        constant-acceleration step, the distance-mean acceleration of a constant-jerk one."""
+        v = self.speed_mps
+        return (v[1:] ** 2 - v[:-1] ** 2) / (2.0 * np.diff(self.station_m))
+
+    @property
+    def step_time_s(self) -> np.ndarray:
+        """Time of each step, ``2 ds / (v[k] + v[k+1])`` (``3 ds / ...`` for a constant-jerk
+        step), s; finite (checked on construction)."""
+        v = self.speed_mps
+        coef = np.where(self.cubic_step, 3.0, 2.0)
+        return coef * np.diff(self.station_m) / (v[:-1] + v[1:])
+
+    @property
+    def node_time_s(self) -> np.ndarray:
+        """Time at each node recomputed from stations and speeds, without dwells, s."""
+        return np.concatenate(([0.0], np.cumsum(self.step_time_s)))
+
+    @property
+    def moving_time_s(self) -> float:
+        """Planned time from the first node to the last, without dwells, s."""
+        return float(np.sum(self.step_time_s))
+
+    @property
+    def stop_nodes(self) -> np.ndarray:
+        """Interior nodes where the speed is zero (stops), as indices."""
+        v = self.speed_mps
+        return np.flatnonzero(v[1:-1] <= 0.0) + 1
+
+    def node_label(self, k: int) -> str:
+        """``"line 12 (station 34.0 m)"``: where node ``k`` is, for messages."""
+        place = f"{self.where[k]} " if self.where is not None else f"node {k} "
+        return f"{place}(station {self.station_m[k]:.1f} m)"
+
+
+def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_mps, *,
+                         time_s=None, accel_mps2=None, jerk_mps3=None, lat_accel_mps2=None,
+                         limit_speed_mps=None, binding=None, z_m=None, grade=None, lat=None,
+                         lon=None, name: str = "route", source: str = "profile",
+                         where=None, cubic_step=None) -> StationProfile:
+    """Check arrays and build a :class:`StationProfile`.
+
+    ``cubic_step`` (bool per step) marks constant-jerk steps next to rest; by default they are
+    recognised from ``time_s`` (see :func:`detect_cubic_steps`), and without ``time_s`` every
+    step has constant acceleration.
+
+    Raises
+    ------
+    SpeedFileError
+        Arrays of different lengths, fewer than two nodes, a value that is not finite, stations
+        not strictly increasing, a negative speed, a step with zero speed at both ends (the
+        vehicle would never cover it), or only one of ``lat``/``lon``. The message names
+        ``source``, the node (``where`` label or index) and its station.
+    """
+    def arr(values):
+        return None if values is None else np.asarray(values, dtype=float).ravel()
+
+    s, v = arr(station_m), arr(speed_mps)
+    required = {"station_m": s, "x_m": arr(x_m), "y_m": arr(y_m),
+                "heading_rad": arr(heading_rad), "curvature_1pm": arr(curvature_1pm),
+                "speed_mps": v}
+    optional = {"time_s": arr(time_s), "accel_mps2": arr(accel_mps2),
+                "jerk_mps3": arr(jerk_mps3), "lat_accel_mps2": arr(lat_accel_mps2),
+                "limit_speed_mps": arr(limit_speed_mps), "z_m": arr(z_m), "grade": arr(grade),
+                "lat": arr(lat), "lon": arr(lon)}
+    n = s.size
+    labels = None if where is None else np.asarray(where, dtype=object).ravel()
+    text = None if binding is None else np.asarray(binding, dtype=object).ravel()
+
+    def at(k: int) -> str:
+        place = f"{labels[k]}" if labels is not None else f"node {k}"
+        return f"{source}: {place} (station {s[k]:.1f} m)"
+
+    for name_, values in list(required.items()) + list(optional.items()):
+        if values is not None and values.size != n:
+            raise SpeedFileError(f"{source}: {name_} has {values.size} values for {n} stations")
+    for other, size in (("where", None if labels is None else labels.size),
+                        ("binding", None if text is None else text.size)):
+        if size is not None and size != n:
+            raise SpeedFileError(f"{source}: {other} has {size} values for {n} stations")
+    if n < 2:
+        raise SpeedFileError(f"{source}: {n} station(s); a profile needs at least 2")
+    if (optional["lat"] is None) != (optional["lon"] is None):
+        raise SpeedFileError(f"{source}: has only one of lat, lon; give both columns or neither")
+    for name_, values in list(required.items()) + list(optional.items()):
+        if values is None:
+            continue
+        bad = np.flatnonzero(~np.isfinite(values))
+        if bad.size:
+            k = int(bad[0])
+            place = labels[k] if labels is not None else f"node {k}"
+            raise SpeedFileError(f"{source}: {place}: {name_} is not a finite number; fix or "
+                                 "remove that row")
+    steps = np.diff(s)
+    bad = np.flatnonzero(steps <= 0.0)
+    if bad.size:
+        k = int(bad[0]) + 1
+        raise SpeedFileError(f"{at(k)}: station does not increase (previous row has "
+                             f"{s[k - 1]:.4f} m); rows must be in driving order with distinct "
+                             "stations")
+    bad = np.flatnonzero(v < 0.0)
+    if bad.size:
+        k = int(bad[0])
+        raise SpeedFileError(f"{at(k)}: speed {v[k]:g} m/s is negative; speeds are magnitudes "
+                             "along the direction of travel")
+    bad = np.flatnonzero((v[:-1] <= 0.0) & (v[1:] <= 0.0))
+    if bad.size:
+        k = int(bad[0])
+        raise SpeedFileError(f"{at(k)}: speed is zero here and at the next station "
+                             f"({s[k + 1]:.1f} m), so the vehicle never covers that step; "
+                             "plan stops at least two stations apart")
+
+    if cubic_step is None:
+        cubic = detect_cubic_steps(s, v, optional["time_s"])
+    else:
+        cubic = np.asarray(cubic_step, dtype=bool).ravel()
+        one_rest = (v[:-1] <= 0.0) != (v[1:] <= 0.0)
+        if cubic.size != n - 1 or np.any(cubic & ~one_rest):
+            raise ValueError("cubic_step must have one flag per step, set only on steps with "
+                             "exactly one end at rest")
+    return StationProfile(
+        station_m=s, x_m=required["x_m"], y_m=required["y_m"],
+        heading_rad=np.unwrap(required["heading_rad"]), curvature_1pm=required["curvature_1pm"],
+        speed_mps=v, binding=text, name=name, source=source, where=labels, cubic_step=cubic,
+        **optional)
+
+
+def detect_cubic_steps(station_m, speed_mps, time_s) -> np.ndarray:
+    """Steps next to rest that the profile's times show were driven at constant jerk.
+
+    A step with exactly one end at rest takes ``2 ds / v`` at constant acceleration and
+    ``3 ds / v`` at constant jerk; the step's time in ``time_s`` decides (threshold halfway,
+    ``2.5 ds / v``, far from either despite the file's rounding). Without ``time_s``: none.
+    """
+    s = np.asarray(station_m, dtype=float)
+    v = np.asarray(speed_mps, dtype=float)
+    if time_s is None:
+        return np.zeros(s.size - 1, dtype=bool)
+    one_rest = (v[:-1] <= 0.0) != (v[1:] <= 0.0)
+    ratio = np.diff(np.asarray(time_s, dtype=float)) * (v[:-1] + v[1:]) / np.diff(s)
+    return one_rest & (ratio > 2.5)
+
+
+def as_station_profile(profile) -> StationProfile:
+    """A :class:`StationProfile` from either a StationProfile or a planned Profile."""
+    if isinstance(profile, StationProfile):
+        return profile
+    return StationProfile.from_profile(profile)
+
+
+@dataclass(frozen=True)
+class Trajectory:
+    """A reference trajectory: the profile sampled in time or by station.
+
+    Attributes
+    ----------
+    time_s : ndarray
+        Time since the start, s (non-decreasing).
+    station_m : ndarray
+        Station, metres (non-decreasing; constant while held at a stop).
+    x_m, y_m : ndarray
+        Plan position, metres.
+    heading_rad : ndarray
+        Direction of travel, radians, continuous.
+    speed_mps : ndarray
+        Speed, m/s.
+    accel_mps2 : ndarray
+        Acceleration along the path at that instant, m/s^2: constant within a
+        constant-acceleration step (at a node: the step being entered), linear in time within a
+        constant-jerk step next to rest, 0 while held at a stop.
+    curvature_1pm : ndarray
+        Signed curvature, 1/m.
+    yaw_rate_radps : ndarray
+        ``speed * curvature``, rad/s.
+    lat_accel_mps2 : ndarray
+        ``speed**2 * curvature``, m/s^2 (signed, left positive).
+    lat, lon : ndarray or None
+        WGS84 latitude and longitude, degrees, for geographic profiles.
+    mode : SamplingMode
+        Sampled in time or by station.
+    interval : float
+        The requested time step (s) or station step (m).
+    dwell_s : float
+        Time held at each stop, s.
+    stop_stations_m : ndarray
+        Stations of the stops, metres.
+    planned_time_s : float
+        Time along the route without dwells, s.
+    total_time_s : float
+        ``planned_time_s`` plus one dwell per stop: the time of the last sample, s.
+    name, source : str
+        Route name and the profile it came from.
+    """
+
+    time_s: np.ndarray
+    station_m: np.ndarray
+    x_m: np.ndarray
+    y_m: np.ndarray
+    heading_rad: np.ndarray
+    speed_mps: np.ndarray
+    accel_mps2: np.ndarray
+    curvature_1pm: np.ndarray
+    yaw_rate_radps: np.ndarray
+    lat_accel_mps2: np.ndarray
+    lat: np.ndarray | None
+    lon: np.ndarray | None
+    mode: SamplingMode
+    interval: float
+    dwell_s: float
+    stop_stations_m: np.ndarray
+    planned_time_s: float
+    total_time_s: float
+    name: str = "route"
+    source: str = "profile"
+
+    @property
+    def n_samples(self) -> int:
+        return int(self.time_s.size)
+
+    @property
+    def is_geographic(self) -> bool:
+        return self.lat is not None
+
+    def columns(self) -> dict[str, np.ndarray]:
+        """Named columns in output order (:data:`TRAJECTORY_COLUMNS`, then lat, lon)."""
+        out = {name: getattr(self, name) for name in TRAJECTORY_COLUMNS}
+        if self.lat is not None:
+            out["lat"] = self.lat
+            out["lon"] = self.lon
+        return out
+
+
+def _check_positive(value: float, what: str) -> float:
+    value = float(value)
+    if not (math.isfinite(value) and value > 0.0):
+        raise ValueError(f"{what} must be a positive number, got {value!r}")
+    return value
+
+
+def _check_dwell(dwell_s: float) -> float:
+    dwell_s = float(dwell_s)
+    if not (math.isfinite(dwell_s) and dwell_s >= 0.0):
+        raise ValueError(f"dwell must be zero or a positive number of seconds, got {dwell_s!r}")
+    return dwell_s
+
+
+def _node_schedule(sp: StationProfile, dwell_s: float) -> tuple[np.ndarray, np.ndarray,
+                                                               np.ndarray]:
+    """Arrival and departure time of every node, and a stop mask, with dwells included."""
+    stop = np.zeros(sp.n_nodes, dtype=bool)
+    stop[sp.stop_nodes] = True
+    # dwell of every stop strictly before node k, added to the moving time
+    held_before = np.concatenate(([0.0], np.cumsum(np.where(stop, dwell_s, 0.0))[:-1]))
+    arrive = sp.node_time_s + held_before
+    depart = arrive + np.where(stop, dwell_s, 0.0)
+    return arrive, depart, stop
+
+
+def count_time_samples(profile, dt_s: float, dwell_s: float = 0.0) -> int:
+    """Number of samples :func:`sample_in_time` returns for these arguments."""
+    sp = as_station_profile(profile)
+    dt_s = _check_positive(dt_s, "time step")
+    total = sp.moving_time_s + _check_dwell(dwell_s) * sp.stop_nodes.size
+    return int(math.ceil(total / dt_s - 1e-9)) + 1
+
+
+def count_station_samples(profile, station_step_m: float) -> int:
+    """Upper bound on the number of samples :func:`sample_by_station` returns."""
+    sp = as_station_profile(profile)
+    step = _check_positive(station_step_m, "station step")
+    return int(math.ceil(sp.length_m / step - 1e-9)) + 1 + sp.stop_nodes.size
+
+
+def sample_in_time(profile, dt_s: float, dwell_s: float = 0.0) -> Trajectory:
+    """Sample ``profile`` every ``dt_s`` seconds (module docstring for the kinematics).
+
+    Samples are at ``t = 0, dt, 2 dt, ...`` strictly before the total time, then one last sample
+    at exactly the total time (planned time plus one dwell per stop), which is the end of the
+    route; so every interval is ``dt`` except the last, which is at most ``dt``.
+
+    Parameters
+    ----------
+    profile : StationProfile or Profile
+    dt_s : float
+        Time step, s (> 0).
+    dwell_s : float
+        Time held at every stop (interior node with zero speed), s (>= 0).
+
+    Returns
+    -------
+    Trajectory
+    """
+    sp = as_station_profile(profile)
+    dt_s = _check_positive(dt_s, "time step")
+    dwell_s = _check_dwell(dwell_s)
+    arrive, depart, stop = _node_schedule(sp, dwell_s)
+    total = float(arrive[-1])
+    regular = dt_s * np.arange(int(math.ceil(total / dt_s - 1e-9)))
+    t = np.concatenate((regular, [total]))
+
+    n_steps = sp.n_nodes - 1
+    # step k is driven from depart[k] to arrive[k+1]; a time before depart[k+1] belongs to step k
+    k = np.clip(np.searchsorted(depart, t, side="right") - 1, 0, n_steps - 1)
+    tau = np.clip(t - depart[k], 0.0, sp.step_time_s[k])
+    held = t > arrive[k + 1]  # arrived at node k+1 (a stop) and not yet left
+    d, v, accel = _state_at_time(sp, k, tau)
+    accel = np.where(held, 0.0, accel)
+    # the final sample is the end of the route by definition (not by round-off)
+    d[-1] = sp.station_m[-1] - sp.station_m[k[-1]]
+    v[-1] = sp.speed_mps[-1]
+    return _build(sp, k, d, t, v, accel, SamplingMode.TIME, dt_s, dwell_s, arrive[-1])
+
+
+def sample_by_station(profile, station_step_m: float, dwell_s: float = 0.0) -> Trajectory:
+    """Sample ``profile`` every ``station_step_m`` metres of station.
+
+    Samples are at ``s0, s0 + step, ...`` strictly before the end, then the end of the route;
+    interior stops are added as samples of their own (so a tracker that indexes by distance sees
+    the speed reach zero). A stop's sample carries its arrival time; the dwell shows as the gap
+    to the next sample's time. Stations are strictly increasing.
+
+    Parameters
+    ----------
+    profile : StationProfile or Profile
+    station_step_m : float
+        Station step, metres (> 0).
+    dwell_s : float
+        Time held at every stop, s (>= 0).
+
+    Returns
+    -------
+    Trajectory
+    """
+    sp = as_station_profile(profile)
+    step = _check_positive(station_step_m, "station step")
+    dwell_s = _check_dwell(dwell_s)
+    arrive, depart, stop = _node_schedule(sp, dwell_s)
+    s0, s1 = float(sp.station_m[0]), float(sp.station_m[-1])
+    grid = s0 + step * np.arange(int(math.ceil((s1 - s0) / step - 1e-9)))
+    sigma = np.unique(np.concatenate((grid, sp.station_m[sp.stop_nodes], [s1])))
+
+    n_steps = sp.n_nodes - 1
+    k = np.clip(np.searchsorted(sp.station_m, sigma, side="right") - 1, 0, n_steps - 1)
+    ds = np.diff(sp.station_m)[k]
+    d = np.clip(sigma - sp.station_m[k], 0.0, ds)
+    tau, v, accel = _state_at_distance(sp, k, d)
+    t = depart[k] + tau
+    # at a node itself: its arrival time (for a stop, the dwell follows)
+    t = np.where(d <= 0.0, arrive[k], t)
+    t = np.where(d >= ds, arrive[k + 1], t)
+    return _build(sp, k, d, t, v, accel, SamplingMode.STATION, step, dwell_s, arrive[-1])
+
+
+def _state_at_time(sp: StationProfile, k, tau):
+    """Distance into step ``k``, speed and acceleration ``tau`` seconds after leaving node k."""
+    ds = np.diff(sp.station_m)[k]
+    v0, v1 = sp.speed_mps[k], sp.speed_mps[k + 1]
+    T = sp.step_time_s[k]
+    a = sp.step_accel_mps2[k]
+    # constant acceleration
+    d = v0 * tau + 0.5 * a * tau * tau
+    v = v0 + a * tau
+    acc = a
+    # constant jerk: leaving rest (x = tau / T) or arriving at rest (y = remaining / T)
+    cubic = sp.cubic_step[k]
+    x = tau / T
+    y = 1.0 - x
+    leaving = cubic & (v0 <= 0.0)
+    arriving = cubic & (v1 <= 0.0)
+    d = np.where(leaving, ds * x ** 3, np.where(arriving, ds * (1.0 - y ** 3), d))
+    v = np.where(leaving, v1 * x * x, np.where(arriving, v0 * y * y, v))
+    acc = np.where(leaving, 2.0 * v1 * x / T, np.where(arriving, -2.0 * v0 * y / T, acc))
+    at_end = tau >= T
+    d = np.clip(np.where(at_end, ds, d), 0.0, ds)
+    v = np.where(at_end, v1, np.maximum(v, 0.0))
+    return d, v, np.asarray(acc, dtype=float)
+
+
+def _state_at_distance(sp: StationProfile, k, d):
+    """Time since leaving node k, speed and acceleration at distance ``d`` into step ``k``."""
+    ds = np.diff(sp.station_m)[k]
+    v0, v1 = sp.speed_mps[k], sp.speed_mps[k + 1]
+    T = sp.step_time_s[k]
+    a = sp.step_accel_mps2[k]
+    # constant acceleration: v^2 = v0^2 + 2 a d and the cancellation-free root for tau
+    v = np.sqrt(np.maximum(v0 * v0 + 2.0 * a * d, 0.0))
+    v = np.where(d >= ds, v1, v)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        tau = np.where(d > 0.0, 2.0 * d / (v0 + v), 0.0)
+    acc = a
+    # constant jerk: d = ds x^3 leaving rest, ds - d = ds y^3 arriving at rest
+    cubic = sp.cubic_step[k]
+    leaving = cubic & (v0 <= 0.0)
+    arriving = cubic & (v1 <= 0.0)
+    x = np.cbrt(np.clip(d / ds, 0.0, 1.0))
+    y = np.cbrt(np.clip((ds - d) / ds, 0.0, 1.0))
+    tau = np.where(leaving, T * x, np.where(arriving, T * (1.0 - y), tau))
+    v = np.where(leaving, v1 * x * x, np.where(arriving, v0 * y * y, v))
+    acc = np.where(leaving, 2.0 * v1 * x / T, np.where(arriving, -2.0 * v0 * y / T, acc))
+    return tau, v, np.asarray(acc, dtype=float)
+
+
+def _build(sp: StationProfile, k, d, t, v, accel, mode, interval, dwell_s, total) -> Trajectory:
+    """Interpolate geometry at distance ``d`` into step ``k`` and assemble the trajectory."""
+    ds = np.diff(sp.station_m)[k]
+    u = d / ds
+    s = sp.station_m[k] + d
+    h0, h1 = sp.heading_rad[k], sp.heading_rad[k + 1]
+    heading = h0 + u * (h1 - h0)
+    kappa = sp.curvature_1pm[k] + u * (sp.curvature_1pm[k + 1] - sp.curvature_1pm[k])
+    x, y, dx, dy = _hermite(sp, k, u, ds)
+    lat = lon = None
+    if sp.lat is not None:
+        lat, lon = _interpolate_latlon(sp, k, u, dx, dy)
+    return Trajectory(
+        time_s=np.asarray(t, dtype=float), station_m=s, x_m=x, y_m=y, heading_rad=heading,
+        speed_mps=v, accel_mps2=np.asarray(accel, dtype=float), curvature_1pm=kappa,
+        yaw_rate_radps=v * kappa, lat_accel_mps2=v * v * kappa, lat=lat, lon=lon, mode=mode,
+        interval=float(interval), dwell_s=dwell_s,
+        stop_stations_m=sp.station_m[sp.stop_nodes].copy(),
+        planned_time_s=sp.moving_time_s, total_time_s=float(total), name=sp.name,
+        source=sp.source)
+
+
+def _hermite(sp: StationProfile, k, u, ds):
+    """Cubic Hermite position at fraction ``u`` of step ``k``, and its offset from the chord.
+
+    Tangents are the node headings scaled by the step length (the curve's derivative with
+    respect to ``u`` is ``ds (cos h, sin h)`` at both ends).
+    """
+    x0, x1 = sp.x_m[k], sp.x_m[k + 1]
+    y0, y1 = sp.y_m[k], sp.y_m[k + 1]
+    h0, h1 = sp.heading_rad[k], sp.heading_rad[k + 1]
+    u2, u3 = u * u, u * u * u
+    b10 = u3 - 2.0 * u2 + u       # weight of the start tangent
+    b11 = u3 - u2                 # weight of the end tangent
+    b01 = -2.0 * u3 + 3.0 * u2    # weight of the end point (start point: 1 - b01)
+    # offset from the straight chord p0 + u (p1 - p0): the part the chord misses
+    dx = (b01 - u) * (x1 - x0) + ds * (b10 * np.cos(h0) + b11 * np.cos(h1))
+    dy = (b01 - u) * (y1 - y0) + ds * (b10 * np.sin(h0) + b11 * np.sin(h1))
+    x = x0 + u * (x1 - x0) + dx
+    y = y0 + u * (y1 - y0) + dy
+    return x, y, dx, dy
+
+
+def _interpolate_latlon(sp: StationProfile, k, u, dx, dy):
+    """Latitude/longitude at fraction ``u`` of step ``k``, consistent with the plan position.
+
+    The chord part is linear in latitude/longitude between the nodes (exact at the nodes). The
+    small offset ``(dx, dy)`` of the curve from the chord (at most ``ds**2 curvature / 8``, about
+    8 mm for a 1 m step on a 15 m radius) is mapped to degrees by the step's local conformal
+    map, taken from the chord itself: the complex ratio of the chord in (east-scaled longitude,
+    latitude) degrees to the chord in metres. The projection behind the profile is conformal, so
+    this map is a rotation and a scale; treating degrees of latitude and of scaled longitude as
+    equal lengths (a sphere) errs by at most 0.7 % (the WGS84 ratio of meridian to prime-vertical
+    radius) of that offset, below 0.1 mm.
+    """
+    lat0, lat1 = sp.lat[k], sp.lat[k + 1]
+    lon0, lon1 = sp.lon[k], sp.lon[k + 1]
+    coslat = np.cos(np.radians(0.5 * (lat0 + lat1)))
+    dlon = (lon1 - lon0 + 180.0) % 360.0 - 180.0   # across the antimeridian too
+    chord_m = (sp.x_m[k + 1] - sp.x_m[k]) + 1j * (sp.y_m[k + 1] - sp.y_m[k])
+    chord_deg = dlon * coslat + 1j * (lat1 - lat0)
+    offset_deg = chord_deg / chord_m * (dx + 1j * dy)
+    lat = lat0 + u * (lat1 - lat0) + offset_deg.imag
+    lon = lon0 + u * dlon + offset_deg.real / coslat
+    lon = (lon + 180.0) % 360.0 - 180.0
+    return lat, lon
+
+
+def planned_time_mismatch(sp: StationProfile) -> tuple[int, float] | None:
+    """Largest gap between the profile's ``time_s`` and the time recomputed from speeds.
+
+    Returns ``(node, gap_s)`` or None when the profile has no ``time_s``.
+    """
+    if sp.time_s is None:
+        return None
+    gap = np.abs((sp.time_s - sp.time_s[0]) - sp.node_time_s)
+    k = int(np.argmax(gap))
+    return k, float(gap[k])

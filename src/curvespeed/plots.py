@@ -1,0 +1,448 @@
+"""Figures of a speed profile, for a person deciding whether a plan is sane.
+
+Every function takes a profile (a planned :class:`~curvespeed.profile.Profile` or a
+:class:`~curvespeed.export.StationProfile` read from a CSV), an optional matplotlib ``ax`` to draw
+into, and returns a small frozen dataclass holding the artists it made, so callers (and tests)
+can restyle or inspect them:
+
+* :func:`plot_speed` - speed against station, with the speed ceiling (``limit_speed_mps``: the
+  lateral limits, top speed, zones and stops), zone limits and stops drawn behind it;
+* :func:`plot_curvature` - curvature against station;
+* :func:`plot_accel` and :func:`plot_jerk` - longitudinal acceleration and jerk against station,
+  with the band the limits allow shaded;
+* :func:`plot_gg` - g-g diagram (longitudinal against lateral acceleration) with the friction
+  ellipse and the comfort limits of a flat road;
+* :func:`plot_plan_view` - the route in plan coloured by speed, with a colour bar, equal aspect;
+* :func:`plot_overview` - all of them in one figure with a title (route name, length, time);
+  :func:`save_overview` writes it to PNG, SVG or PDF.
+
+matplotlib is imported inside the functions and only through :class:`matplotlib.figure.Figure`
+(never pyplot), so nothing opens a window, no global backend is switched, and importing curvespeed
+stays fast. Limits and constraints are optional: without them (a profile CSV with no sidecar)
+the limit lines, zones and stops are left out and the figure says so.
+
+Axis labels carry SI units; every quantity is the one in the profile, not recomputed, except
+where a profile lacks a column (then: acceleration from the step accelerations, lateral
+acceleration ``curvature * speed**2``).
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from .errors import OutputError
+from .export import StationProfile, as_station_profile
+from .limits import Limits, RouteConstraints
+
+#: Figure formats :func:`save_overview` writes, by file extension.
+FIGURE_FORMATS = {".png": "png", ".svg": "svg", ".pdf": "pdf"}
+
+#: Overview figure size, inches, and resolution for raster output, dots per inch.
+OVERVIEW_SIZE_IN = (15.0, 10.0)
+OVERVIEW_DPI = 110
+
+STATION_LABEL = "station (m)"
+SPEED_LABEL = "speed (m/s)"
+CURVATURE_LABEL = "curvature (1/m)"
+ACCEL_LABEL = "longitudinal acceleration (m/s²)"
+JERK_LABEL = "longitudinal jerk (m/s³)"
+LATERAL_LABEL = "lateral acceleration (m/s²)"
+X_LABEL = "x (m)"
+Y_LABEL = "y (m)"
+
+_LIMIT_COLOUR = "0.45"
+_BAND_COLOUR = "tab:green"
+_ZONE_COLOUR = "tab:purple"
+_STOP_COLOUR = "tab:red"
+_NO_SIDECAR = "limits, zones and stops not known (no sidecar)"
+
+
+# -- artist holders ----------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class SpeedArtists:
+    """What :func:`plot_speed` drew: the speed line, the ceiling, zone limits and stop lines."""
+
+    ax: object
+    speed: object
+    ceiling: object | None
+    zones: tuple = ()
+    zone_spans: tuple = ()
+    stops: tuple = ()
+
+
+@dataclass(frozen=True)
+class LineArtists:
+    """A quantity against station: its line, the shaded band the limits allow, limit lines."""
+
+    ax: object
+    line: object | None
+    band: object | None = None
+    limits: tuple = ()
+    note: object | None = None
+
+
+@dataclass(frozen=True)
+class GGArtists:
+    """What :func:`plot_gg` drew: the points, the friction ellipse and the comfort limits."""
+
+    ax: object
+    points: object
+    friction: object | None
+    comfort: object | None
+    note: object | None = None
+
+
+@dataclass(frozen=True)
+class PlanArtists:
+    """What :func:`plot_plan_view` drew: the speed-coloured path, its colour bar, the start."""
+
+    ax: object
+    path: object
+    colorbar: object
+    start: object
+
+
+@dataclass(frozen=True)
+class Overview:
+    """The overview figure, its axes by name and the artists of each panel."""
+
+    figure: object
+    axes: dict = field(default_factory=dict)
+    artists: dict = field(default_factory=dict)
+    title: str = ""
+
+
+# -- helpers -----------------------------------------------------------------------------------
+
+def _new_axes(ax, figsize=(8.0, 4.0)):
+    """``ax`` itself, or the axes of a new pyplot-free figure."""
+    if ax is not None:
+        return ax
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=figsize, layout="constrained")
+    return fig.add_subplot()
+
+
+def _accel(sp: StationProfile) -> np.ndarray:
+    if sp.accel_mps2 is not None:
+        return sp.accel_mps2
+    a = sp.step_accel_mps2
+    out = np.empty(sp.n_nodes)
+    out[1:-1] = 0.5 * (a[:-1] + a[1:])
+    out[0], out[-1] = a[0], a[-1]
+    return out
+
+
+def _lateral(sp: StationProfile) -> np.ndarray:
+    if sp.lat_accel_mps2 is not None:
+        return sp.lat_accel_mps2
+    return sp.curvature_1pm * sp.speed_mps ** 2
+
+
+def _note(ax, text: str):
+    return ax.text(0.01, 0.97, text, transform=ax.transAxes, ha="left", va="top",
+                   fontsize="small", color="0.35")
+
+
+def _ellipse(a_x: float, a_up: float, a_down: float, n: int = 361):
+    """Closed curve x = a_x cos t, y = (a_up or a_down) sin t."""
+    t = np.linspace(0.0, 2.0 * np.pi, n)
+    s = np.sin(t)
+    return a_x * np.cos(t), np.where(s >= 0.0, a_up, a_down) * s
+
+
+def format_duration(seconds: float) -> str:
+    """``581.2 s (9 min 41 s)``: seconds, with minutes for anything over a minute."""
+    if seconds < 60.0:
+        return f"{seconds:.1f} s"
+    whole = int(round(seconds))
+    if whole >= 3600:
+        return f"{seconds:.1f} s ({whole // 3600} h {whole % 3600 // 60} min)"
+    return f"{seconds:.1f} s ({whole // 60} min {whole % 60} s)"
+
+
+def overview_title(profile) -> str:
+    """Route name, length and planned time, for the overview's title."""
+    sp = as_station_profile(profile)
+    t = sp.moving_time_s
+    mean = sp.length_m / t if t > 0 else float("nan")
+    return (f"{sp.name}: {sp.length_m:.0f} m in {format_duration(t)}, mean speed "
+            f"{mean:.1f} m/s, top {sp.speed_mps.max():.1f} m/s")
+
+
+# -- panels ------------------------------------------------------------------------------------
+
+def plot_speed(profile, constraints: RouteConstraints | None = None, ax=None) -> SpeedArtists:
+    """Speed against station, with the ceiling, zone limits and stops drawn behind it.
+
+    Parameters
+    ----------
+    profile : Profile or StationProfile
+    constraints : RouteConstraints, optional
+        Zones and stops to draw; without them only the profile's own ceiling is drawn.
+    ax : matplotlib Axes, optional
+
+    Returns
+    -------
+    SpeedArtists
+    """
+    sp = as_station_profile(profile)
+    ax = _new_axes(ax)
+    s = sp.station_m
+    ceiling = None
+    if sp.limit_speed_mps is not None:
+        (ceiling,) = ax.plot(s, sp.limit_speed_mps, color=_LIMIT_COLOUR, lw=0.9, zorder=1,
+                             label="speed ceiling (curvature, top speed, zones, stops)")
+    zones, spans, stops = [], [], []
+    if constraints is not None:
+        for i, zone in enumerate(constraints.zones):
+            spans.append(ax.axvspan(zone.start_m, zone.end_m, color=_ZONE_COLOUR, alpha=0.08,
+                                    lw=0, zorder=0))
+            (line,) = ax.plot([zone.start_m, zone.end_m], [zone.max_speed_mps] * 2,
+                              color=_ZONE_COLOUR, lw=2.0, ls="--", zorder=2,
+                              label="zone limit" if i == 0 else None)
+            zones.append(line)
+        for i, stop in enumerate(constraints.stops):
+            stops.append(ax.axvline(stop.station_m, color=_STOP_COLOUR, lw=1.0, ls=":",
+                                    zorder=2, label="stop" if i == 0 else None))
+    (speed,) = ax.plot(s, sp.speed_mps, color="tab:blue", lw=1.6, zorder=3,
+                       label="planned speed")
+    ax.set_xlabel(STATION_LABEL)
+    ax.set_ylabel(SPEED_LABEL)
+    top = max(float(sp.speed_mps.max()), 1e-3)
+    ax.set_ylim(0.0, 1.15 * top)
+    ax.set_xlim(s[0], s[-1])
+    ax.grid(True, alpha=0.3)
+    ax.legend(loc="lower right", bbox_to_anchor=(1.0, 1.0), ncol=4, fontsize="small",
+              frameon=False, borderaxespad=0.2)
+    return SpeedArtists(ax=ax, speed=speed, ceiling=ceiling, zones=tuple(zones),
+                        zone_spans=tuple(spans), stops=tuple(stops))
+
+
+def plot_curvature(profile, ax=None) -> LineArtists:
+    """Signed curvature (positive turning left) against station."""
+    sp = as_station_profile(profile)
+    ax = _new_axes(ax)
+    (line,) = ax.plot(sp.station_m, sp.curvature_1pm, color="tab:orange", lw=1.0)
+    ax.axhline(0.0, color="0.6", lw=0.6, zorder=0)
+    ax.set_xlabel(STATION_LABEL)
+    ax.set_ylabel(CURVATURE_LABEL)
+    ax.set_xlim(sp.station_m[0], sp.station_m[-1])
+    ax.grid(True, alpha=0.3)
+    return LineArtists(ax=ax, line=line)
+
+
+def _band(ax, lo: float, hi: float, what: str):
+    band = ax.axhspan(lo, hi, color=_BAND_COLOUR, alpha=0.12, zorder=0,
+                      label=f"{what} allowed by the limits")
+    lines = (ax.axhline(lo, color=_BAND_COLOUR, lw=0.8, ls="--", zorder=1),
+             ax.axhline(hi, color=_BAND_COLOUR, lw=0.8, ls="--", zorder=1))
+    return band, lines
+
+
+def plot_accel(profile, limits: Limits | None = None, ax=None) -> LineArtists:
+    """Longitudinal acceleration against station, the band ``[-max_decel, max_accel]`` shaded."""
+    sp = as_station_profile(profile)
+    ax = _new_axes(ax)
+    band, lims, note = None, (), None
+    if limits is not None:
+        band, lims = _band(ax, -limits.max_decel_mps2, limits.max_accel_mps2, "acceleration")
+    else:
+        note = _note(ax, _NO_SIDECAR)
+    (line,) = ax.plot(sp.station_m, _accel(sp), color="tab:blue", lw=1.0, zorder=2,
+                      label="acceleration")
+    ax.set_xlabel(STATION_LABEL)
+    ax.set_ylabel(ACCEL_LABEL)
+    ax.set_xlim(sp.station_m[0], sp.station_m[-1])
+    ax.grid(True, alpha=0.3)
+    return LineArtists(ax=ax, line=line, band=band, limits=lims, note=note)
+
+
+def plot_jerk(profile, limits: Limits | None = None, ax=None) -> LineArtists:
+    """Longitudinal jerk against station, the band ``+-max_jerk`` shaded when a bound is set."""
+    sp = as_station_profile(profile)
+    ax = _new_axes(ax)
+    band, lims, note = None, (), None
+    if limits is None:
+        note = _note(ax, _NO_SIDECAR)
+    elif limits.max_jerk_mps3 is None:
+        note = _note(ax, "no jerk bound set in the limits")
+    else:
+        band, lims = _band(ax, -limits.max_jerk_mps3, limits.max_jerk_mps3, "jerk")
+    line = None
+    if sp.jerk_mps3 is not None:
+        (line,) = ax.plot(sp.station_m, sp.jerk_mps3, color="tab:brown", lw=0.9, zorder=2,
+                          label="jerk")
+    else:
+        note = _note(ax, "the profile has no jerk_mps3 column")
+    ax.set_xlabel(STATION_LABEL)
+    ax.set_ylabel(JERK_LABEL)
+    ax.set_xlim(sp.station_m[0], sp.station_m[-1])
+    ax.grid(True, alpha=0.3)
+    return LineArtists(ax=ax, line=line, band=band, limits=lims, note=note)
+
+
+def plot_gg(profile, limits: Limits | None = None, ax=None) -> GGArtists:
+    """g-g diagram: longitudinal (vertical) against lateral (horizontal) acceleration.
+
+    The friction ellipse has semi-axes ``mu_lat g`` across and ``mu g`` along the path; the
+    comfort limit is ``max_lateral_accel`` across, ``max_accel`` forward and ``max_decel``
+    backward. Both are drawn for a flat road (no grade or superelevation), where the limits
+    bound the points directly; on grades and banked curves the planner uses the loads there.
+    """
+    sp = as_station_profile(profile)
+    ax = _new_axes(ax, figsize=(5.0, 5.0))
+    friction = comfort = note = None
+    if limits is not None:
+        g = limits.gravity_mps2
+        fx, fy = _ellipse(limits.mu_lat * g, limits.mu_long * g, limits.mu_long * g)
+        (friction,) = ax.plot(fx, fy, color=_STOP_COLOUR, lw=1.2, zorder=3,
+                              label="friction ellipse (flat road)")
+        cx, cy = _ellipse(limits.max_lateral_accel_mps2, limits.max_accel_mps2,
+                          limits.max_decel_mps2)
+        (comfort,) = ax.plot(cx, cy, color=_BAND_COLOUR, lw=1.4, ls="--", zorder=3,
+                             label="comfort limits")
+        data = max(float(np.abs(_lateral(sp)).max()), float(np.abs(_accel(sp)).max()))
+        reach = 1.1 * max(limits.mu_lat * g, limits.mu_long * g, data)
+        ax.set_xlim(-reach, reach)
+        ax.set_ylim(-reach, reach)
+    else:
+        note = _note(ax, _NO_SIDECAR)
+    (points,) = ax.plot(_lateral(sp), _accel(sp), ls="none", marker=".", ms=2.5, zorder=2,
+                        color="tab:blue", alpha=0.6, label="profile (one point per station)")
+    ax.axhline(0.0, color="0.6", lw=0.6, zorder=0)
+    ax.axvline(0.0, color="0.6", lw=0.6, zorder=0)
+    ax.set_aspect("equal", adjustable="datalim" if limits is None else "box")
+    ax.set_xlabel(LATERAL_LABEL)
+    ax.set_ylabel(ACCEL_LABEL)
+    ax.grid(True, alpha=0.3)
+    ax.legend(loc="upper right", fontsize="x-small", framealpha=0.85)
+    return GGArtists(ax=ax, points=points, friction=friction, comfort=comfort, note=note)
+
+
+def plot_plan_view(profile, ax=None) -> PlanArtists:
+    """The route in plan (x east, y north), coloured by speed, with a colour bar; equal aspect."""
+    from matplotlib.collections import LineCollection
+
+    sp = as_station_profile(profile)
+    ax = _new_axes(ax, figsize=(6.0, 6.0))
+    xy = np.column_stack((sp.x_m, sp.y_m))
+    segments = np.stack((xy[:-1], xy[1:]), axis=1)
+    step_speed = 0.5 * (sp.speed_mps[:-1] + sp.speed_mps[1:])
+    path = LineCollection(segments, cmap="viridis", linewidths=2.5)
+    path.set_array(step_speed)
+    path.set_clim(0.0, max(float(sp.speed_mps.max()), 1e-3))
+    ax.add_collection(path)
+    (start,) = ax.plot([sp.x_m[0]], [sp.y_m[0]], marker="o", ms=7, color="k", ls="none",
+                       label="start")
+    ax.set_aspect("equal", adjustable="datalim")
+    ax.autoscale_view()
+    colorbar = ax.figure.colorbar(path, ax=ax, shrink=0.85)
+    colorbar.set_label(SPEED_LABEL)
+    ax.set_xlabel(X_LABEL)
+    ax.set_ylabel(Y_LABEL)
+    ax.grid(True, alpha=0.3)
+    ax.legend(loc="best", fontsize="small")
+    return PlanArtists(ax=ax, path=path, colorbar=colorbar, start=start)
+
+
+# -- overview ----------------------------------------------------------------------------------
+
+def plot_overview(profile, limits: Limits | None = None,
+                  constraints: RouteConstraints | None = None, title: str | None = None,
+                  figure=None) -> Overview:
+    """All panels in one figure: four against station on the left, plan view and g-g right.
+
+    Parameters
+    ----------
+    profile : Profile or StationProfile
+    limits : Limits, optional
+        Limits the profile was planned with (shaded bands, ellipses).
+    constraints : RouteConstraints, optional
+        Zones and stops the profile was planned with.
+    title : str, optional
+        Default: :func:`overview_title` (route name, length, time, speeds).
+    figure : matplotlib Figure, optional
+        Draw into this (empty) figure instead of a new one of :data:`OVERVIEW_SIZE_IN`.
+
+    Returns
+    -------
+    Overview
+        ``axes`` and ``artists`` keyed by ``speed``, ``curvature``, ``accel``, ``jerk``,
+        ``plan``, ``gg``.
+    """
+    sp = as_station_profile(profile)
+    if figure is None:
+        from matplotlib.figure import Figure
+
+        figure = Figure(figsize=OVERVIEW_SIZE_IN, layout="constrained")
+        # keep a strip at the bottom free for the caution line
+        figure.get_layout_engine().set(rect=(0.0, 0.025, 1.0, 0.975))
+    grid = figure.add_gridspec(4, 2, width_ratios=(3.0, 2.0),
+                               height_ratios=(1.6, 1.0, 1.0, 1.0))
+    axes = {"speed": figure.add_subplot(grid[0, 0])}
+    for row, name in enumerate(("curvature", "accel", "jerk"), start=1):
+        axes[name] = figure.add_subplot(grid[row, 0], sharex=axes["speed"])
+    axes["plan"] = figure.add_subplot(grid[0:2, 1])
+    axes["gg"] = figure.add_subplot(grid[2:4, 1])
+    artists = {
+        "speed": plot_speed(sp, constraints, ax=axes["speed"]),
+        "curvature": plot_curvature(sp, ax=axes["curvature"]),
+        "accel": plot_accel(sp, limits, ax=axes["accel"]),
+        "jerk": plot_jerk(sp, limits, ax=axes["jerk"]),
+        "plan": plot_plan_view(sp, ax=axes["plan"]),
+        "gg": plot_gg(sp, limits, ax=axes["gg"]),
+    }
+    text = title if title is not None else overview_title(sp)
+    figure.suptitle(text, fontsize="large")
+    figure.text(0.005, 0.003, "curvespeed profile: an engineering aid, not a speed "
+                "recommendation. Speeds on public roads and advisory signs follow local codes "
+                "and licensed engineering practice.", fontsize="x-small", color="0.4",
+                ha="left", va="bottom")
+    return Overview(figure=figure, axes=axes, artists=artists, title=text)
+
+
+def save_overview(profile, path: str | os.PathLike, limits: Limits | None = None,
+                  constraints: RouteConstraints | None = None, force: bool = False,
+                  title: str | None = None) -> Path:
+    """Draw :func:`plot_overview` and write it to ``path`` (``.png``, ``.svg`` or ``.pdf``).
+
+    The library call behind ``curvespeed plot`` and ``curvespeed plan --plot``. Written
+    atomically; an existing file is replaced only with ``force``. Output carries no time stamp
+    (and SVG ids use a fixed salt), so the same inputs give the same file with the same
+    matplotlib.
+
+    Raises
+    ------
+    OutputError
+        Unknown extension, ``path`` exists without ``force``, or its folder is missing.
+    """
+    import matplotlib
+
+    from .io.atomic import atomic_open, check_writable
+
+    fmt = figure_format(path)
+    check_writable(path, force)
+    overview = plot_overview(profile, limits, constraints, title=title)
+    metadata = {"png": {"Software": None}, "svg": {"Date": None},
+                "pdf": {"CreationDate": None, "ModDate": None}}[fmt]
+    with matplotlib.rc_context({"svg.hashsalt": "curvespeed"}):
+        with atomic_open(path, force, mode="wb") as fh:
+            overview.figure.savefig(fh, format=fmt, dpi=OVERVIEW_DPI, metadata=metadata)
+    return Path(path)
+
+
+def figure_format(path: str | os.PathLike) -> str:
+    """``png``, ``svg`` or ``pdf`` from the file extension; :class:`OutputError` otherwise."""
+    suffix = Path(path).suffix.lower()
+    if suffix not in FIGURE_FORMATS:
+        got = f"extension '{Path(path).suffix}'" if Path(path).suffix else "no extension"
+        raise OutputError(f"{path}: {got} is not a figure format curvespeed writes; use "
+                          f"{', '.join(FIGURE_FORMATS)}")
+    return FIGURE_FORMATS[suffix]

@@ -1,0 +1,273 @@
+"""Certificate tests of the trajectory export: properties that hold whatever the profile.
+
+Round trip through the files: plan -> profile CSV -> read back -> export -> trajectory CSV ->
+read back; then re-integrate time from the written positions and speeds, and check monotonic
+stations, yaw rate = speed * curvature, held stops and station-step sampling.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from curvespeed.errors import SpeedFileError
+from curvespeed.export import (SamplingMode, StationProfile, make_station_profile,
+                               sample_by_station, sample_in_time)
+from curvespeed.io.profile_csv import write_profile_csv
+from curvespeed.io.table_csv import read_table_csv
+from curvespeed.io.trajectory import read_station_profile, write_trajectory_csv
+from curvespeed.limits import Limits, RouteConstraints, Stop
+from curvespeed.planner import plan_profile
+
+from helpers import CLOSED_FORM_RTOL, geometry_from_curvature
+
+#: Half a unit in the last written decimal of each column (io.trajectory number formats).
+HALF_1E6 = 0.5e-6      # times, speeds, accelerations
+HALF_1E7 = 0.5e-7      # yaw rate
+HALF_1E9 = 0.5e-9      # curvature
+
+STOPS_M = (120.0, 260.0)
+
+
+def winding_geometry(ds: float = 1.0):
+    """Invented test alignment: straight, left curve R 40 m and right curve R 60 m with
+    clothoid transitions, straight; 400 m."""
+    knots_s = [0, 60, 90, 150, 180, 200, 230, 290, 320, 400]
+    knots_k = [0, 0, 1 / 40, 1 / 40, 0, 0, -1 / 60, -1 / 60, 0, 0]
+    s = np.arange(int(round(400 / ds)) + 1) * ds
+    return geometry_from_curvature(np.interp(s, knots_s, knots_k), ds=ds, name="winding")
+
+
+@pytest.fixture(scope="module")
+def planned():
+    geo = winding_geometry()
+    stops = RouteConstraints(stops=tuple(Stop(s) for s in STOPS_M))
+    return plan_profile(geo, Limits(), stops)
+
+
+@pytest.fixture(scope="module")
+def profile_csv(planned, tmp_path_factory):
+    path = tmp_path_factory.mktemp("profile") / "winding.csv"
+    write_profile_csv(planned, path)
+    return path
+
+
+def exported(profile_csv, tmp_path, dwell_s: float, dt_s: float = 0.05):
+    sp = read_station_profile(profile_csv)
+    tr = sample_in_time(sp, dt_s, dwell_s)
+    out = write_trajectory_csv(tr, tmp_path / "trajectory.csv")
+    return sp, tr, read_table_csv(out).columns
+
+
+def interval_times(d, v0, v1, a0, a1):
+    """Time to cover ``d`` between two samples from their speeds and accelerations.
+
+    Solves ``d = h (v0 + v1) / 2 + h^2 (a0 - a1) / 12`` for ``h``: the trapezoid rule with its
+    end correction (Euler-Maclaurin), exact when speed is a polynomial of degree <= 3 in time
+    over the interval, so for both constant-acceleration and constant-jerk motion. Intervals at
+    rest (both speeds zero) take no moving time.
+    """
+    c1 = 0.5 * (v0 + v1)
+    c2 = (a0 - a1) / 12.0
+    root = np.sqrt(np.maximum(c1 * c1 + 4.0 * c2 * d, 0.0))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        h = np.where(c1 + root > 0.0, 2.0 * d / (c1 + root), 0.0)
+    return np.where((v0 > 0.0) | (v1 > 0.0), h, 0.0)
+
+
+def reintegrated_moving_time(tr) -> float:
+    """Moving time re-integrated from a trajectory's positions, speeds and accelerations.
+
+    Intervals between two moving samples: :func:`interval_times`. An interval with one end at
+    rest (leaving or reaching a stop, the start, the end) is power-law motion from rest,
+    ``s ~ t^p`` (p = 2 at constant acceleration, 3 at constant jerk): then ``v = p s / t`` and
+    ``a = (p - 1) v / t``, so ``p = q / (q - 1)`` with ``q = v^2 / (s |a|)`` and ``t = p s / v``,
+    all from the moving end (the sample at rest carries the hold's zero acceleration).
+    """
+    d = np.hypot(np.diff(tr.x_m), np.diff(tr.y_m))
+    v, a = tr.speed_mps, tr.accel_mps2
+    v0, v1, a0, a1 = v[:-1], v[1:], a[:-1], a[1:]
+    h = interval_times(d, v0, v1, a0, a1)
+    one_rest = (v0 == 0.0) != (v1 == 0.0)
+    vm = np.where(v0 > 0.0, v0, v1)[one_rest]
+    am = np.abs(np.where(v0 > 0.0, a0, a1))[one_rest]
+    q = vm * vm / (d[one_rest] * am)
+    h[one_rest] = q / (q - 1.0) * d[one_rest] / vm
+    return float(np.sum(h))
+
+
+# Re-integration uses the trajectory's own float64 values: the file's 0.1 mm positions cannot
+# resolve the time of the last few millimetres before a stop (0.05 mm at 5 mm/s is 10 ms); the
+# file's agreement with those values is checked separately below. At an interior stop the dwell
+# is positive here: with dwell 0 the instant of rest falls inside a sample interval whose two
+# ends both move, and nothing in the samples says when inside it the vehicle stood still (the
+# stop-free route covers dwell 0).
+@pytest.mark.parametrize("max_jerk, stops_m, dwell_s", [
+    (None, (), 0.0), (None, STOPS_M, 4.0), (2.0, (), 0.0), (2.0, STOPS_M, 4.0),
+])
+def test_round_trip_time_matches_the_profile(max_jerk, stops_m, dwell_s):
+    geo = winding_geometry()
+    planned = plan_profile(geo, Limits(max_jerk_mps3=max_jerk),
+                           RouteConstraints(stops=tuple(Stop(s) for s in stops_m)))
+    tr = sample_in_time(planned, 0.05, dwell_s)
+    moving = reintegrated_moving_time(tr)
+    # The issue asks for 0.1 %. Expected error: the rule is exact inside a step; an interval
+    # straddling a node where the acceleration jumps by da errs by about da dt^2 / 8 in distance
+    # (<= 4 * 0.05^2 / 8 = 1.3 mm at a 1.5 -> -2.5 m/s^2 switch), and chords miss the arc by
+    # dp^3 kappa^2 / 24 (< 1e-5 m here). A few dozen such intervals over ~400 m give well under
+    # 1e-4 relative: asserted.
+    assert moving == pytest.approx(planned.total_time_s, rel=1e-4)
+    assert tr.time_s[-1] == pytest.approx(planned.total_time_s + len(stops_m) * dwell_s,
+                                          rel=CLOSED_FORM_RTOL)
+    assert np.all(np.diff(tr.station_m) >= 0.0)
+
+
+def test_written_trajectory_holds_the_exported_values(profile_csv, tmp_path):
+    sp, tr, cols = exported(profile_csv, tmp_path, dwell_s=2.0)
+    for name, half in (("time_s", HALF_1E6), ("station_m", 0.5e-4), ("x_m", 0.5e-4),
+                       ("y_m", 0.5e-4), ("speed_mps", HALF_1E6), ("accel_mps2", HALF_1E6),
+                       ("curvature_1pm", HALF_1E9), ("yaw_rate_radps", HALF_1E7)):
+        # each cell is the value rounded to its format: within half a unit (plus float slack)
+        np.testing.assert_allclose(cols[name], getattr(tr, name), rtol=0, atol=half * 1.001)
+
+
+def test_node_times_are_the_profiles_own_times(planned, profile_csv):
+    # no drift: node times recomputed from the written stations and speeds reproduce the
+    # profile's time_s; the file rounds stations to 0.1 mm and speeds to 1e-6 m/s, which moves
+    # a 1 m step's time by < 1e-4 of itself and telescopes over the route: 1e-5 relative.
+    sp = read_station_profile(profile_csv)
+    np.testing.assert_allclose(sp.node_time_s, planned.time_s, rtol=1e-5, atol=1e-5)
+
+
+def test_samples_are_uniform_in_time_and_end_at_the_route_end(planned, profile_csv, tmp_path):
+    dt = 0.05
+    sp, tr, cols = exported(profile_csv, tmp_path, dwell_s=2.0, dt_s=dt)
+    steps = np.diff(cols["time_s"])
+    # every interval dt (written with 6 decimals, so within 1e-6), the last one at most dt
+    np.testing.assert_allclose(steps[:-1], dt, atol=2 * HALF_1E6)
+    assert 0.0 < steps[-1] <= dt + 2 * HALF_1E6
+    assert cols["station_m"][-1] == pytest.approx(planned.geometry.length_m, abs=0.5e-4)
+    assert cols["speed_mps"][-1] == 0.0
+
+
+def test_stations_never_decrease(profile_csv, tmp_path):
+    _, _, cols = exported(profile_csv, tmp_path, dwell_s=3.0)
+    assert np.all(np.diff(cols["station_m"]) >= 0.0)
+    assert np.all(np.diff(cols["time_s"]) > 0.0)
+
+
+def test_yaw_rate_and_lateral_acceleration_follow_speed_and_curvature(profile_csv, tmp_path):
+    _, _, cols = exported(profile_csv, tmp_path, dwell_s=1.0)
+    v, k = cols["speed_mps"], cols["curvature_1pm"]
+    # each written value is rounded to half a unit of its last decimal; the product's rounding
+    # error is bounded by |k| dv + v dk + the rounding of the result
+    np.testing.assert_array_less(np.abs(cols["yaw_rate_radps"] - v * k),
+                                 np.abs(k) * HALF_1E6 + v * HALF_1E9 + HALF_1E7 + 1e-15)
+    np.testing.assert_array_less(np.abs(cols["lat_accel_mps2"] - v * v * k),
+                                 2 * v * np.abs(k) * HALF_1E6 + v * v * HALF_1E9 + HALF_1E6
+                                 + 1e-15)
+
+
+def test_stops_are_held_for_the_dwell(planned, profile_csv, tmp_path):
+    dwell, dt = 4.0, 0.05
+    sp, tr, cols = exported(profile_csv, tmp_path, dwell_s=dwell, dt_s=dt)
+    t, s, v = cols["time_s"], cols["station_m"], cols["speed_mps"]
+    for i, stop in enumerate(STOPS_M):
+        k = int(round(stop / planned.geometry.spacing_m))
+        arrive = planned.time_s[k] + i * dwell       # earlier stops' dwells come first
+        inside = (t > arrive + HALF_1E6) & (t < arrive + dwell - HALF_1E6)
+        # held: every sample strictly inside the dwell is at the stop, at rest
+        assert inside.sum() >= math.floor(dwell / dt) - 1
+        np.testing.assert_allclose(s[inside], stop, atol=0.5e-4)
+        assert np.all(v[inside] == 0.0)
+        # and left afterwards: the first sample after the dwell has moved on
+        # (leaving rest at constant jerk, the first samples move by less than the 0.1 mm the
+        # file resolves, so look a few samples on for the station)
+        after = np.flatnonzero(t > arrive + dwell + HALF_1E6)[0]
+        assert v[after] > 0.0 and s[after + 5] > stop
+
+
+def test_station_step_mode(planned, profile_csv):
+    sp = read_station_profile(profile_csv)
+    step, dwell = 0.25, 3.0
+    tr = sample_by_station(sp, step, dwell)
+    assert tr.mode is SamplingMode.STATION
+    s, t, v = tr.station_m, tr.time_s, tr.speed_mps
+    assert np.all(np.diff(s) > 0.0) and np.all(np.diff(t) > 0.0)
+    assert s[-1] == sp.station_m[-1] and s[0] == sp.station_m[0]
+    # the grid, plus the stops (already on it here)
+    np.testing.assert_allclose(np.diff(s), step, rtol=CLOSED_FORM_RTOL)
+    for stop in STOPS_M:
+        assert v[np.flatnonzero(np.isclose(s, stop, atol=1e-9))] == pytest.approx(0.0)
+    assert t[-1] == pytest.approx(sp.moving_time_s + len(STOPS_M) * dwell,
+                                  rel=CLOSED_FORM_RTOL)
+    # within one profile step the motion has constant acceleration or constant jerk, so the time
+    # between two samples follows exactly from their speeds and accelerations (interval_times)
+    # (not from a stop's sample: that carries the arrival time, and the dwell follows it)
+    node = np.floor(s / sp.station_m[1] + 1e-9)
+    same = (node[:-1] == node[1:]) & (v[:-1] > 0)
+    a = tr.accel_mps2
+    predicted = interval_times(np.diff(s), v[:-1], v[1:], a[:-1], a[1:])
+    np.testing.assert_allclose(np.diff(t)[same], predicted[same], rtol=1e-9)
+
+
+def test_trajectory_from_profile_and_from_its_csv_agree(planned, profile_csv):
+    # the CSV rounds speeds to 1e-6 m/s and stations to 0.1 mm: positions then agree to the
+    # distance covered in the time error (~1e-5 s * 15 m/s) plus the rounding, well inside 1 mm
+    direct = sample_in_time(planned, 0.1, 2.0)
+    via_csv = sample_in_time(read_station_profile(profile_csv), 0.1, 2.0)
+    assert direct.n_samples == via_csv.n_samples
+    np.testing.assert_allclose(via_csv.station_m, direct.station_m, atol=1e-3)
+    np.testing.assert_allclose(via_csv.x_m, direct.x_m, atol=1e-3)
+    np.testing.assert_allclose(via_csv.y_m, direct.y_m, atol=1e-3)
+
+
+def test_positions_follow_the_curve_between_nodes():
+    # On a circle of radius R sampled every ds, the cubic Hermite position between nodes stays
+    # on the circle to O(ds^4 / R^3); the chord would sag by ds^2 / (8 R) = 3.1 mm here.
+    radius, ds = 40.0, 1.0
+    n = 200
+    theta = np.arange(n + 1) * ds / radius
+    x, y = radius * np.sin(theta), radius * (1.0 - np.cos(theta))
+    sp = make_station_profile(np.arange(n + 1) * ds, x, y, theta, np.full(n + 1, 1 / radius),
+                              np.full(n + 1, 5.0))
+    tr = sample_by_station(sp, 0.1)
+    r = np.hypot(tr.x_m, tr.y_m - radius)
+    # 1e-5 m: the Hermite error bound ds^4 / (384 R^3) * (a small constant) is ~1e-10 m here
+    np.testing.assert_allclose(r, radius, atol=1e-5)
+    np.testing.assert_allclose(tr.heading_rad, tr.station_m / radius, rtol=CLOSED_FORM_RTOL)
+
+
+def test_zero_speed_at_two_consecutive_stations_is_refused():
+    s = np.arange(5.0)
+    z = np.zeros(5)
+    with pytest.raises(SpeedFileError, match=r"node 2 \(station 2.0 m\).*never covers"):
+        make_station_profile(s, s, z, z, z, [0.0, 1.0, 0.0, 0.0, 1.0], source="p.csv")
+
+
+@settings(max_examples=60, deadline=None)
+@given(speeds=st.lists(st.floats(0.05, 40.0), min_size=2, max_size=40),
+       stop_every=st.integers(2, 9), dt=st.floats(0.01, 2.0), dwell=st.floats(0.0, 5.0),
+       ds=st.floats(0.1, 5.0))
+def test_time_sampling_invariants(speeds, stop_every, dt, dwell, ds):
+    v = np.array(speeds)
+    v[::stop_every] = 0.0          # stops (and possibly the ends) at every stop_every-th node
+    v[1::stop_every] = np.maximum(v[1::stop_every], 0.05)
+    s = np.arange(v.size) * ds
+    z = np.zeros(v.size)
+    sp: StationProfile = make_station_profile(s, s, z, z, z, v)
+    tr = sample_in_time(sp, dt, dwell)
+    total = sp.moving_time_s + dwell * sp.stop_nodes.size
+    assert tr.time_s[0] == 0.0
+    # a sum and a cumulative sum of the same step times differ by round-off only
+    assert tr.time_s[-1] == pytest.approx(total, rel=CLOSED_FORM_RTOL)
+    assert tr.station_m[-1] == s[-1]
+    assert np.all(np.diff(tr.time_s) > 0.0) and np.all(np.diff(tr.time_s) <= dt * (1 + 1e-9))
+    assert np.all(np.diff(tr.station_m) >= 0.0)
+    assert np.all(tr.speed_mps >= 0.0) and np.all(np.isfinite(tr.speed_mps))
+    # speeds stay between the speeds of the step's two nodes (b is linear, so v is monotonic)
+    assert tr.speed_mps.max() <= v.max() * (1 + 1e-12)

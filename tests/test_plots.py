@@ -1,0 +1,187 @@
+"""Figures are tested by structure: axes, labels with units, and the data the lines carry.
+
+A smoke test writes PNG, SVG and PDF and checks each file's signature, not its pixels.
+"""
+
+from __future__ import annotations
+
+import re
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+from curvespeed.errors import OutputError
+from curvespeed.export import StationProfile
+from curvespeed.limits import Limits, RouteConstraints, SpeedZone, Stop
+from curvespeed.planner import plan_profile
+from curvespeed.plots import (plot_accel, plot_curvature, plot_gg, plot_jerk, plot_overview,
+                              plot_plan_view, plot_speed, save_overview)
+
+from helpers import geometry_from_curvature
+
+UNIT = re.compile(r"\((m|m/s|1/m|m/s²|m/s³)\)$")
+LIMITS = Limits(friction_coefficient=0.8, lateral_friction_coefficient=0.7,
+                max_lateral_accel_mps2=2.5, max_accel_mps2=1.5, max_decel_mps2=2.5,
+                max_speed_mps=20.0, max_jerk_mps3=2.0)
+CONSTRAINTS = RouteConstraints(zones=(SpeedZone(20.0, 60.0, 8.0),), stops=(Stop(150.0),))
+
+
+@pytest.fixture(scope="module")
+def profile():
+    s = np.arange(301.0)
+    kappa = np.interp(s, [0, 80, 110, 160, 190, 300], [0, 0, 1 / 35, 1 / 35, 0, 0])
+    geo = geometry_from_curvature(kappa, name="Invented test bend")
+    # planned without the jerk bound (the envelope solver has none); the figure shades it
+    return plan_profile(geo, LIMITS.replace(max_jerk_mps3=None), CONSTRAINTS)
+
+
+@pytest.fixture(scope="module")
+def overview(profile):
+    return plot_overview(profile, LIMITS, CONSTRAINTS)
+
+
+def band_y(band):
+    """Data y-range of an axhspan patch (a Rectangle or, in older matplotlib, a Polygon)."""
+    y = band.get_patch_transform().transform(band.get_path().vertices)[:, 1]
+    return y.min(), y.max()
+
+
+def test_overview_has_the_expected_axes_with_units(overview):
+    assert set(overview.axes) == {"speed", "curvature", "accel", "jerk", "plan", "gg"}
+    for name, ax in overview.axes.items():
+        assert UNIT.search(ax.get_xlabel()), (name, ax.get_xlabel())
+        assert UNIT.search(ax.get_ylabel()), (name, ax.get_ylabel())
+    assert overview.axes["speed"].get_ylabel() == "speed (m/s)"
+    assert overview.axes["curvature"].get_ylabel() == "curvature (1/m)"
+    assert overview.axes["gg"].get_xlabel() == "lateral acceleration (m/s²)"
+    # the colour bar is the only other axes, and it carries units too
+    extra = [ax for ax in overview.figure.axes if ax not in overview.axes.values()]
+    assert len(extra) == 1 and extra[0].get_ylabel() == "speed (m/s)"
+
+
+def test_title_names_route_length_and_time(overview, profile):
+    title = overview.figure.get_suptitle()
+    assert "Invented test bend" in title
+    assert "300 m" in title
+    assert f"{profile.total_time_s:.1f} s" in title
+
+
+def test_speed_panel_data_match_the_profile(overview, profile):
+    art = overview.artists["speed"]
+    np.testing.assert_array_equal(art.speed.get_xdata(), profile.station_m)
+    np.testing.assert_array_equal(art.speed.get_ydata(), profile.speed_mps)
+    np.testing.assert_array_equal(art.ceiling.get_ydata(), profile.limit_speed_mps)
+    # limits behind the speed line
+    assert art.ceiling.get_zorder() < art.speed.get_zorder()
+    (zone,) = art.zones
+    np.testing.assert_array_equal(zone.get_xdata(), [20.0, 60.0])
+    np.testing.assert_array_equal(zone.get_ydata(), [8.0, 8.0])
+    assert zone.get_zorder() < art.speed.get_zorder()
+    (stop,) = art.stops
+    np.testing.assert_array_equal(stop.get_xdata(), [150.0, 150.0])
+
+
+def test_curvature_accel_and_jerk_panels(overview, profile):
+    a = overview.artists
+    np.testing.assert_array_equal(a["curvature"].line.get_ydata(),
+                                  profile.geometry.curvature_1pm)
+    np.testing.assert_array_equal(a["accel"].line.get_ydata(), profile.accel_mps2)
+    np.testing.assert_array_equal(a["jerk"].line.get_ydata(), profile.jerk_mps3)
+    assert band_y(a["accel"].band) == pytest.approx((-2.5, 1.5))
+    assert band_y(a["jerk"].band) == pytest.approx((-2.0, 2.0))
+
+
+def test_gg_diagram_points_and_ellipses(overview, profile):
+    gg = overview.artists["gg"]
+    np.testing.assert_array_equal(gg.points.get_xdata(), profile.lat_accel_mps2)
+    np.testing.assert_array_equal(gg.points.get_ydata(), profile.accel_mps2)
+    g = LIMITS.gravity_mps2
+    fx, fy = gg.friction.get_xdata(), gg.friction.get_ydata()
+    # semi-axes mu_lat g across, mu g along; the 361-point curve includes the axis points
+    assert np.abs(fx).max() == pytest.approx(0.7 * g, rel=1e-12)
+    assert np.abs(fy).max() == pytest.approx(0.8 * g, rel=1e-12)
+    cx, cy = gg.comfort.get_xdata(), gg.comfort.get_ydata()
+    assert np.abs(cx).max() == pytest.approx(2.5, rel=1e-12)
+    assert cy.max() == pytest.approx(1.5, rel=1e-12)
+    assert cy.min() == pytest.approx(-2.5, rel=1e-12)
+    assert gg.ax.get_aspect() == 1.0
+
+
+def test_plan_view_is_coloured_by_speed_with_equal_aspect(overview, profile):
+    plan = overview.artists["plan"]
+    segments = plan.path.get_segments()
+    assert len(segments) == profile.station_m.size - 1
+    np.testing.assert_array_equal(segments[0][0], [profile.geometry.x_m[0],
+                                                   profile.geometry.y_m[0]])
+    np.testing.assert_allclose(plan.path.get_array(),
+                               0.5 * (profile.speed_mps[:-1] + profile.speed_mps[1:]))
+    assert plan.colorbar.ax.get_ylabel() == "speed (m/s)"
+    assert plan.ax.get_aspect() == 1.0
+
+
+def test_without_limits_the_panels_say_so(profile):
+    ov = plot_overview(profile)
+    assert ov.artists["gg"].friction is None and ov.artists["gg"].comfort is None
+    assert "no sidecar" in ov.artists["gg"].note.get_text()
+    assert ov.artists["accel"].band is None
+    assert ov.artists["speed"].zones == () and ov.artists["speed"].stops == ()
+
+
+def test_jerk_panel_without_a_jerk_bound(profile):
+    art = plot_jerk(profile, LIMITS.replace(max_jerk_mps3=None))
+    assert art.band is None and "no jerk bound" in art.note.get_text()
+
+
+def test_each_panel_draws_on_its_own_figure_or_a_given_axes(profile):
+    from matplotlib.figure import Figure
+
+    for func in (plot_speed, plot_curvature, plot_accel, plot_jerk, plot_gg, plot_plan_view):
+        art = func(profile)
+        assert art.ax.figure is not None
+        fig = Figure()
+        ax = fig.add_subplot()
+        assert func(profile, ax=ax).ax is ax
+
+
+def test_station_profile_and_profile_give_the_same_lines(profile):
+    a = plot_speed(profile)
+    b = plot_speed(StationProfile.from_profile(profile))
+    np.testing.assert_array_equal(a.speed.get_ydata(), b.speed.get_ydata())
+
+
+@pytest.mark.parametrize("suffix, magic", [(".png", b"\x89PNG\r\n\x1a\n"), (".svg", b"<?xml"),
+                                           (".pdf", b"%PDF-")])
+def test_smoke_writes_png_svg_pdf(profile, tmp_path, suffix, magic):
+    path = save_overview(profile, tmp_path / f"overview{suffix}", LIMITS, CONSTRAINTS)
+    data = path.read_bytes()
+    assert data.startswith(magic) and len(data) > 10_000
+    # no time stamps: the same figure twice gives the same bytes
+    again = save_overview(profile, tmp_path / f"again{suffix}", LIMITS, CONSTRAINTS)
+    assert again.read_bytes() == data
+    # an existing file is kept unless force
+    with pytest.raises(OutputError, match="file exists"):
+        save_overview(profile, path, LIMITS, CONSTRAINTS)
+    assert path.read_bytes() == data
+
+
+def test_unknown_figure_format_is_refused(profile, tmp_path):
+    with pytest.raises(OutputError, match=r"\.png, \.svg, \.pdf"):
+        save_overview(profile, tmp_path / "overview.jpg")
+    assert not (tmp_path / "overview.jpg").exists()
+
+
+def test_matplotlib_is_imported_lazily_and_never_pyplot():
+    code = (
+        "import sys\n"
+        "import curvespeed.plots, curvespeed.export, curvespeed.io.trajectory\n"
+        "assert 'matplotlib' not in sys.modules, 'imported at module level'\n"
+        "import numpy as np\n"
+        "from curvespeed.export import make_station_profile\n"
+        "s = np.arange(10.0); z = np.zeros(10)\n"
+        "sp = make_station_profile(s, s, z, z, z, np.linspace(0, 3, 10))\n"
+        "curvespeed.plots.plot_overview(sp).figure.savefig(__import__('io').BytesIO())\n"
+        "assert 'matplotlib.pyplot' not in sys.modules, 'pyplot imported'\n"
+    )
+    subprocess.run([sys.executable, "-c", code], check=True)
