@@ -35,9 +35,9 @@ def geometry_options(func):
                      metavar="M", help="Station spacing of the resampled route, metres."),
         click.option("--position-noise", "position_noise_m", type=float, default=0.05,
                      show_default=True, metavar="M",
-                     help="Expected position noise of the route points (standard deviation per "
-                          "coordinate), metres; sets the spline smoothing. Use 1-3 for GPS "
-                          "traces."),
+                     help="Largest expected position noise of the route points (standard deviation "
+                          "per coordinate), metres; sets the spline smoothing (less if the points "
+                          "scatter less). Use 1-3 for GPS traces."),
         click.option("--elevation-noise", "elevation_noise_m", type=float, default=None,
                      metavar="M", help="Expected elevation noise, metres (default 0.1)."),
         click.option("--closed/--open", "closed", default=None,
