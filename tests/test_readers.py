@@ -113,8 +113,6 @@ def test_csv_repeated_point_dropped_with_warning(tmp_path):
     ("x_m,y_m\n0,0\n1,-inf\n2,0\n", ["line 3", "value '-inf'", "not a finite"]),
     ("x_m,y_m\n0,0\n1,1e999\n2,0\n", ["line 3", "value '1e999'", "not a finite"]),
     ("x_m,y_m\n0,0\n1,2,3\n", ["line 3", "3 value(s)", "2 column(s)"]),
-    ("x_m;y_m\n0;0\n1;1\n", ["line 1", "separator looks like ';'",
-                             "curvespeed reads comma-separated files"]),
     ("x_m,y_m,speed_mps\n0,0,1\n", ["line 1", "'speed_mps'", "x_m,y_m[,z_m]"]),
     ("lat,lon,z_m\n0,0,1\n", ["line 1", "'z_m' -> 'ele_m'", "lat,lon[,ele_m]"]),
     ("x,y\n0,0\n", ["line 1", "neither x_m,y_m nor lat,lon",
@@ -142,6 +140,14 @@ def test_csv_latitude_out_of_range_without_swap_hint(tmp_path):
     p = write(tmp_path, "bad.csv", "lat,lon\n60,10\n95,170\n")
     message = read_error(p, ["line 3", "latitude 95"])
     assert "swapped" not in message
+
+
+def test_semicolon_file_is_read_with_a_warning(tmp_path):
+    # ';' files are read (see test_hostile_inputs.py for the full behaviour); two points are
+    # still too few
+    p = write(tmp_path, "semi.csv", "x_m;y_m\n0;0\n1;1\n")
+    with pytest.warns(CurvespeedWarning, match="semicolon-separated"):
+        read_error(p, [str(p), "at least 3"], error=RouteGeometryError)
 
 
 def test_csv_too_few_points_is_a_geometry_error(tmp_path):

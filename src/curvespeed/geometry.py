@@ -99,6 +99,10 @@ PENALTY_ORDER = 4
 KNOTS_PER_SPACING = 2
 #: Elevation noise assumed when none is given (standard deviation, metres).
 DEFAULT_ELEVATION_NOISE_M = 0.1
+#: Most stations a geometry may have (5000 km at 1 m); more is a wrong spacing or a stray point.
+MAX_STATIONS = 5_000_000
+#: An automatic loop needs its ends closer than this fraction of the route's length too.
+CLOSURE_LENGTH_FRACTION = 0.25
 #: The default closure tolerance is the larger of this many median point spacings ...
 CLOSURE_SPACINGS = 2.0
 #: ... and this many position-noise standard deviations.
@@ -286,6 +290,12 @@ def build_geometry(route: Route, spacing_m: float = 1.0, position_noise_m: float
     sigma_z = DEFAULT_ELEVATION_NOISE_M if elevation_noise_m is None else elevation_noise_m
     _require_positive(sigma_z, "elevation noise", source,
                       "give the standard deviation of the elevations in metres, e.g. 0.1")
+    chord_length = float(route.chord_stations()[-1])
+    if chord_length / spacing_m > MAX_STATIONS:
+        raise RouteGeometryError(
+            f"{source}: {chord_length / 1000:.1f} km at {spacing_m:g} m spacing would need "
+            f"{chord_length / spacing_m:.3g} stations (at most {MAX_STATIONS:.0e}); use "
+            f"--spacing {chord_length / MAX_STATIONS:.3g} or more, or look for a stray point")
     if closure_tolerance_m is not None:
         _require_positive(closure_tolerance_m, "closure tolerance", source,
                           "give the largest gap in metres between last and first point that "
@@ -526,7 +536,17 @@ def _decide_closure(x, y, where, source, closed, tolerance_m, noise_m) -> tuple[
     median_chord = float(np.median(np.hypot(np.diff(x), np.diff(y))))
     tol = (max(CLOSURE_SPACINGS * median_chord, CLOSURE_NOISE_SIGMAS * noise_m)
            if tolerance_m is None else float(tolerance_m))
-    if closed is None and gap > tol:
+    length = float(np.sum(np.hypot(np.diff(x), np.diff(y))))
+    if closed is None and (gap > tol or gap > CLOSURE_LENGTH_FRACTION * length):
+        if gap <= 10 * tol and gap <= CLOSURE_LENGTH_FRACTION * length:
+            turning = float(np.sum(np.angle(np.exp(1j * np.diff(np.arctan2(np.diff(y),
+                                                                             np.diff(x)))))))
+            if abs(abs(turning) - 2 * math.pi) < math.radians(30):
+                warnings.warn(
+                    f"{source}: the route turns by {math.degrees(turning):.0f} degrees and ends "
+                    f"{gap:.1f} m from its start, beyond the closure tolerance {tol:.2f} m, so "
+                    "it is treated as open; pass --closed if it is a loop",
+                    CurvespeedWarning, stacklevel=3)
         return False, False
     repeat = gap < 0.5 * median_chord
     last = x.size - 2 if repeat else x.size - 1          # last point kept

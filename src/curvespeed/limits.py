@@ -21,7 +21,7 @@ import warnings
 from dataclasses import dataclass, field
 
 from .errors import CurvespeedWarning, LimitsError
-from .units import STANDARD_GRAVITY_MPS2
+from .units import STANDARD_GRAVITY_MPS2, mps_to_kmh
 
 #: Air density of the ISA standard atmosphere at sea level, kg/m^3.
 ISA_SEA_LEVEL_AIR_DENSITY_KGPM3 = 1.225
@@ -112,11 +112,18 @@ _POSITIVE = ("friction_coefficient", "max_lateral_accel_mps2", "max_accel_mps2",
              "max_power_w", "mass_kg", "air_density_kgpm3", "gravity_mps2")
 _NON_NEGATIVE = ("drag_area_m2", "rolling_resistance_coefficient")
 
+#: A top speed above this, m/s (360 km/h, about the fastest scheduled trains), is most likely a
+#: value in km/h under the m/s key: warned about, not refused.
+MAX_PLAUSIBLE_SPEED_MPS = 100.0
 
-def validate_limits(limits: Limits, where: str = "limits") -> Limits:
-    """Check values; raise :class:`LimitsError` or warn when comfort exceeds grip.
 
-    ``where`` names the origin (a file, "command line") for messages.
+def validate_limits(limits: Limits, where: str = "limits", warn: bool = True) -> Limits:
+    """Check values; raise :class:`LimitsError`, or warn when comfort exceeds grip or the top
+    speed looks like km/h.
+
+    ``where`` names the origin (a file, "command line") for messages. ``warn=False`` checks
+    without warning, for a caller that validates limits someone already validated (and warned
+    about, naming their origin).
     """
     for name in _POSITIVE + _NON_NEGATIVE:
         value = getattr(limits, name)
@@ -136,6 +143,13 @@ def validate_limits(limits: Limits, where: str = "limits") -> Limits:
     if limits.drag_area_m2 and limits.mass_kg is None:
         raise LimitsError(f"{where}: drag_area_m2 needs mass_kg (drag deceleration is "
                           "rho Cd A v^2 / (2 m))")
+    if not warn:
+        return limits
+    if limits.max_speed_mps > MAX_PLAUSIBLE_SPEED_MPS:
+        warnings.warn(
+            f"{where}: max_speed_mps = {limits.max_speed_mps:g} m/s is "
+            f"{mps_to_kmh(limits.max_speed_mps):.0f} km/h; if the value is in km/h, divide it "
+            f"by 3.6", CurvespeedWarning, stacklevel=2)
     g = limits.gravity_mps2
     checks = (("max_lateral_accel_mps2", limits.mu_lat * g, "lateral"),
               ("max_accel_mps2", limits.mu_long * g, "longitudinal"),
@@ -227,11 +241,19 @@ def validate_constraints(rc: RouteConstraints, length_m: float, closed: bool) ->
                               f"be positive, got {z.max_speed_mps:g} m/s (use a stop for zero)")
         if z.start_m >= length_m or z.end_m <= 0:
             raise LimitsError(f"{here(z)}speed zone {z.start_m:g}..{z.end_m:g} m lies outside the "
-                              f"route (0..{length_m:.1f} m)")
+                              f"route (0..{length_m:.1f} m); check its stations against the "
+                              "route summary")
+        if z.start_m < 0 or z.end_m > length_m:
+            warnings.warn(f"{here(z)}speed zone {z.start_m:g}..{z.end_m:g} m runs past the route "
+                          f"(0..{length_m:.1f} m); it applies over "
+                          f"{max(z.start_m, 0.0):g}..{min(z.end_m, length_m):.1f} m only. Check "
+                          "its stations against the route summary", CurvespeedWarning,
+                          stacklevel=2)
     for s in rc.stops:
         if not (math.isfinite(s.station_m) and 0 <= s.station_m <= length_m):
             raise LimitsError(f"{here(s)}stop at station {s.station_m:g} m lies outside the route "
-                              f"(0..{length_m:.1f} m)")
+                              f"(0..{length_m:.1f} m); check its station against the route "
+                              "summary")
     for e in rc.superelevation:
         if not (math.isfinite(e.start_m) and math.isfinite(e.end_m) and e.end_m > e.start_m):
             raise LimitsError(f"{here(e)}superelevation {e.start_m:g}..{e.end_m:g} m: end must be "

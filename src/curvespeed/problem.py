@@ -82,6 +82,8 @@ class SpeedProblem:
         Nodes where the vehicle must be at rest.
     limits : Limits
         The vehicle limits.
+    source : str
+        The route file (or label), for messages.
     jerk_model : bool
         True when the jerk bound is part of the problem (steps next to rest are cubic).
     time_coef : ndarray, shape (n,)
@@ -105,6 +107,7 @@ class SpeedProblem:
     b_end: float | None
     stop_nodes: np.ndarray
     limits: Limits
+    source: str
     jerk_model: bool
     time_coef: np.ndarray
     accel_factor_start: np.ndarray
@@ -201,7 +204,7 @@ def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstrai
     ``jerk_model`` (default: whether ``limits`` has a jerk bound) says whether the jerk bound is
     part of the problem; a solver that does not enforce jerk (the envelope) builds it without.
     """
-    validate_limits(limits)
+    validate_limits(limits, warn=False)   # the caller validated and warned, naming the origin
     validate_constraints(constraints, geometry.length_m, geometry.closed)
     s = geometry.station_m
     n = s.size
@@ -275,9 +278,12 @@ def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstrai
         close = np.flatnonzero(np.diff(idx) < 3)
         if close.size:
             k0, k1 = idx[close[0]], idx[close[0] + 1]
-            raise LimitsError(f"stations {s[k0]:.1f} and {s[k1]:.1f} m are both at rest and "
-                              f"less than three station steps apart ({3 * ds:g} m); move the "
-                              "stops apart or merge them")
+            origins = sorted({st.origin or "a stop" for st in constraints.stops
+                              if int(round(st.station_m / ds)) in (k0, k1)})
+            named = f" (from {', '.join(origins)})" if origins else ""
+            raise LimitsError(f"{geometry.source}: stations {s[k0]:.1f} and {s[k1]:.1f} m are "
+                              f"both at rest{named} and less than three station steps apart "
+                              f"({3 * ds:g} m); move the stops apart or merge them")
         from_rest, to_rest = rest[:-1], rest[1:]
         time_coef[from_rest | to_rest] = 3.0
         f_start[from_rest] = 0.0
@@ -302,7 +308,7 @@ def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstrai
         sin_grade=np.sin(gamma), cos_grade=np.cos(gamma),
         cap_b=cap, cap_source=source, b_start=b_start, b_end=b_end,
         stop_nodes=np.array(sorted(set(stop_nodes)), dtype=int), limits=limits,
-        jerk_model=bool(jerk_model), time_coef=time_coef, accel_factor_start=f_start,
+        source=geometry.source, jerk_model=bool(jerk_model), time_coef=time_coef, accel_factor_start=f_start,
         accel_factor_end=f_end)
 
 
@@ -311,6 +317,7 @@ def check_start_end(problem: SpeedProblem, ceiling_b: np.ndarray) -> None:
     for which, b_fixed, k in (("start", problem.b_start, 0), ("end", problem.b_end, -1)):
         if b_fixed is not None and b_fixed > ceiling_b[k] * (1 + 1e-9) + 1e-12:
             raise InfeasibleError(
-                f"{which} speed {math.sqrt(b_fixed):.2f} m/s exceeds what the route allows at "
+                f"{problem.source}: {which} speed {math.sqrt(b_fixed):.2f} m/s exceeds what the "
+                f"route allows at "
                 f"station {problem.station_m[k]:.1f} m ({math.sqrt(ceiling_b[k]):.2f} m/s, set by "
                 f"{problem.cap_source[k]} or curvature); lower the {which} speed")

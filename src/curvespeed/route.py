@@ -1,8 +1,10 @@
 """The route as read from a file: an ordered list of points in a metric frame.
 
 Readers (``curvespeed.io``) turn files into :class:`Route` through :func:`make_route`, which owns
-the checks every format shares: finite values, repeated points dropped, at least three distinct
-points, no reversal. Geometry (resampling, curvature) lives in :mod:`curvespeed.geometry`.
+the checks every format shares: finite values of a size found on Earth, repeated points dropped,
+a receiver standing still merged into one point, at least three distinct points, no reversal,
+and a warning for a point that sticks out of the line like a spike. Geometry (resampling,
+curvature) lives in :mod:`curvespeed.geometry`.
 """
 
 from __future__ import annotations
@@ -18,6 +20,28 @@ from .geodesy import LocalProjection
 
 #: A turn sharper than this between consecutive chords is treated as the path doubling back.
 REVERSAL_TURN_DEG = 150.0
+#: Largest plan coordinate accepted, metres. Every planar frame of the Earth stays well inside
+#: it (the equator is 4.0e7 m long; projected grids with zone prefixes reach a few 1e7 m).
+MAX_COORDINATE_M = 1.0e8
+#: Largest elevation magnitude accepted, metres: the highest summit is below 9 km and the deepest
+#: trench above -11 km, so anything beyond 100 km is in other units or wrong.
+MAX_ELEVATION_M = 1.0e5
+#: Points around a reversal that all lie within this distance of one another are taken as a
+#: receiver standing still and merged into one point at their centre, metres. Consumer satellite
+#: receivers at rest wander by a few metres (common practice); no drivable manoeuvre turns back
+#: within this distance, so a real reversal survives the merge and is still refused.
+STANDSTILL_DIAMETER_M = 5.0
+#: A point at a reversal is named as a stray point when removing it removes the reversal and
+#: it lies more than this many usual steps (median chord around it) from its neighbours.
+STRAY_STEPS = 3.0
+#: A point is reported as a spike when it lies at least this far off the line through its two
+#: neighbours, metres ...
+SPIKE_OFFSET_M = 1.0
+#: ... the path turns there by at least this much, degrees ...
+SPIKE_TURN_DEG = 30.0
+#: ... and the turns at the neighbours undo it: each has the opposite sign and the three add up
+#: to at most this fraction of the middle one (the path carries on in its old direction).
+SPIKE_NET_TURN_FRACTION = 0.25
 
 
 @dataclass(frozen=True)
@@ -83,10 +107,26 @@ def make_route(
 ) -> Route:
     """Validate points and build a :class:`Route`.
 
-    Consecutive points closer than ``min_separation_m`` are dropped with a warning (a logger that
-    stood still). Raises :class:`RouteGeometryError` for non-finite values, fewer than three
-    distinct points, or a reversal (the path doubling back on itself), naming the point and its
-    station.
+    In order: values must be finite and within :data:`MAX_COORDINATE_M` (elevation
+    :data:`MAX_ELEVATION_M`); consecutive points closer than ``min_separation_m`` are dropped with
+    a warning (a logger that stood still); runs of points that turn back and forth within
+    :data:`STANDSTILL_DIAMETER_M` are merged into one point with a warning (a receiver standing
+    still and jittering); then at least three points must remain and the path must not double
+    back (a turn sharper than :data:`REVERSAL_TURN_DEG` between consecutive chords). A point
+    that sticks out of the line like a spike (see :data:`SPIKE_OFFSET_M`) is kept, with a
+    warning.
+
+    Raises
+    ------
+    RouteGeometryError
+        For a non-finite or out-of-Earth value, fewer than three distinct points, or a reversal,
+        naming the point (and station) and what to do; for a reversal it says when two points
+        look swapped or one looks like a stray point.
+
+    Warns
+    -----
+    CurvespeedWarning
+        Repeated points dropped, standstill runs merged, a spike.
     """
     x = np.asarray(x_m, dtype=float).ravel()
     y = np.asarray(y_m, dtype=float).ravel()
@@ -106,7 +146,18 @@ def make_route(
             raise RouteGeometryError(
                 f"{source}: {labels[bad[0]]}: {what} is not a finite number; "
                 "fix or remove that point")
+    for arr, what, limit in ((x, "x", MAX_COORDINATE_M), (y, "y", MAX_COORDINATE_M),
+                             (z, "elevation", MAX_ELEVATION_M)):
+        if arr is None or not arr.size:
+            continue
+        bad = np.flatnonzero(np.abs(arr) > limit)
+        if bad.size:
+            raise RouteGeometryError(
+                f"{source}: {labels[bad[0]]}: {what} = {arr[bad[0]]:.6g} m is beyond any "
+                f"place on Earth (more than {limit:g} m); check the units (metres) and the "
+                "column order, or remove that point")
 
+    dropped = 0
     if n:
         step = np.hypot(np.diff(x), np.diff(y))
         keep = np.concatenate(([True], step >= min_separation_m))
@@ -122,26 +173,201 @@ def make_route(
             t = None if t is None else t[keep]
 
     if x.size < 3:
+        repeats = (f" ({dropped} of {n} were repeats of the point before)" if dropped else "")
         raise RouteGeometryError(
-            f"{source}: only {x.size} distinct point(s); a route needs at least 3")
+            f"{source}: only {x.size} distinct point(s){repeats}; a route needs at least 3")
 
+    x, y, z, t, labels = _merge_standstills(x, y, z, t, labels, source, min_separation_m)
+    if x.size < 3:
+        raise RouteGeometryError(
+            f"{source}: only {x.size} point(s) left after merging points where the receiver "
+            "stood still; a route needs at least 3 distinct points")
     _check_reversals(x, y, labels, source)
+    _warn_spikes(x, y, labels, source)
     if t is not None:
         t = t - t[0]
     route_name = name or source.rsplit("/", 1)[-1].rsplit(".", 1)[0]
     return Route(x, y, z, labels, source, projection, t, route_name)
 
 
+def _turns(x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """Signed turn at every interior point (radians, left positive); entry k is point k + 1."""
+    heading = np.arctan2(np.diff(y), np.diff(x))
+    return np.angle(np.exp(1j * np.diff(heading)))
+
+
+def _reversal_points(x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """Indices of the points where the path turns back (turn sharper than REVERSAL_TURN_DEG)."""
+    return np.flatnonzero(np.abs(_turns(x, y)) > math.radians(REVERSAL_TURN_DEG)) + 1
+
+
+def _span_label(labels: np.ndarray, a: int, b: int) -> str:
+    """"line 12-40" for points a..b labelled "line 12" .. "line 40" (else "A to B")."""
+    first, last = str(labels[a]), str(labels[b])
+    head_a, _, num_a = first.rpartition(" ")
+    head_b, _, num_b = last.rpartition(" ")
+    if head_a and head_a == head_b and num_a.isdigit() and num_b.isdigit():
+        return f"{head_a} {num_a}-{num_b}"
+    return f"{first} to {last}"
+
+
+def _standstill_window(x: np.ndarray, y: np.ndarray, k: int, lo: int) -> tuple[int, int] | None:
+    """The run of points around reversal point ``k`` within STANDSTILL_DIAMETER_M of each other.
+
+    Starts from ``k`` and its two neighbours and grows one point at a time on either side while
+    every pair stays within the diameter, never below index ``lo``; None if even the first
+    three are farther apart (or reach below ``lo``).
+    """
+    n = x.size
+    d = STANDSTILL_DIAMETER_M
+
+    def fits(i: int, a: int, b: int) -> bool:
+        return bool(np.all(np.hypot(x[a:b + 1] - x[i], y[a:b + 1] - y[i]) <= d))
+
+    a, b = k - 1, k + 1
+    if a < lo or not (fits(a, k, b) and fits(b, k, k)):
+        return None
+    grew = True
+    while grew:
+        grew = False
+        if a > lo and fits(a - 1, a, b):
+            a -= 1
+            grew = True
+        if b < n - 1 and fits(b + 1, a, b):
+            b += 1
+            grew = True
+    return a, b
+
+
+def _merge_standstills(x, y, z, t, labels, source: str, min_separation_m: float):
+    """Merge runs of points where a receiver stood still and jittered (see STANDSTILL_DIAMETER_M).
+
+    Only runs that contain a reversal are touched: dense but orderly points are left as they
+    are. Each run becomes one point at the centre of its positions (mean elevation; the time of
+    its first point, when the vehicle arrived). All runs found are merged in one pass, and the
+    pass repeats until no reversal can be merged. Warns once, naming the first run merged.
+    """
+    merged: list[tuple[str, int]] = []
+    while x.size >= 3:
+        windows = []
+        lo = 0
+        for k in _reversal_points(x, y):
+            if k - 1 < lo:
+                continue                # inside (or touching) the run found before
+            window = _standstill_window(x, y, int(k), lo)
+            if window is not None:
+                windows.append(window)
+                lo = window[1] + 1
+        if not windows:
+            break                       # none, or real reversals: _check_reversals explains
+        keep = np.ones(x.size, dtype=bool)
+        x, y, labels = x.copy(), y.copy(), labels.copy()
+        z = None if z is None else z.copy()
+        for a, b in windows:
+            merged.append((_span_label(labels, a, b), b - a + 1))
+            x[a], y[a] = x[a:b + 1].mean(), y[a:b + 1].mean()
+            if z is not None:
+                z[a] = z[a:b + 1].mean()
+            labels[a] = merged[-1][0]
+            keep[a + 1:b + 1] = False
+        # a centre may land on a neighbour: drop repeats again
+        idx = np.flatnonzero(keep)
+        step = np.hypot(np.diff(x[idx]), np.diff(y[idx]))
+        keep[idx[1:][step < min_separation_m]] = False
+        x, y, labels = x[keep], y[keep], labels[keep]
+        z = None if z is None else z[keep]
+        t = None if t is None else t[keep]
+    if merged:
+        first, count = merged[0]
+        more = (f" ({len(merged)} such places, {sum(c for _, c in merged)} points in all)"
+                if len(merged) > 1 else "")
+        warnings.warn(
+            f"{source}: {first}: {count} points within {STANDSTILL_DIAMETER_M:g} m of one "
+            f"another turn back and forth, as a receiver standing still does; merged them into "
+            f"one point at their centre{more}. If the vehicle really reverses there, split the "
+            "route at that point", CurvespeedWarning, stacklevel=3)
+    return x, y, z, t, labels
+
+
+def _warn_spikes(x: np.ndarray, y: np.ndarray, labels: np.ndarray, source: str) -> None:
+    """Warn about points that stick out of the line like a spike (see SPIKE_OFFSET_M)."""
+    if x.size < 5:
+        return
+    turn = _turns(x, y)                       # turn[j] is at point j + 1
+    mid = turn[1:-1]                          # points 2 .. n-3
+    before, after = turn[:-2], turn[2:]
+    # offset of each point from the line through its two neighbours
+    ax, ay = x[1:-3], y[1:-3]
+    bx, by = x[3:-1], y[3:-1]
+    px, py = x[2:-2], y[2:-2]
+    chord = np.hypot(bx - ax, by - ay)
+    cross = np.abs((bx - ax) * (py - ay) - (by - ay) * (px - ax))
+    offset = np.where(chord > 0, cross / np.where(chord > 0, chord, 1.0),
+                      np.hypot(px - ax, py - ay))
+    spike = ((np.abs(mid) >= math.radians(SPIKE_TURN_DEG))
+             & (np.sign(before) == -np.sign(mid)) & (np.sign(after) == -np.sign(mid))
+             & (np.abs(before + mid + after) <= SPIKE_NET_TURN_FRACTION * np.abs(mid))
+             & (offset >= SPIKE_OFFSET_M))
+    found = np.flatnonzero(spike)
+    if not found.size:
+        return
+    worst = int(found[np.argmax(offset[found])])
+    k = worst + 2
+    station = float(np.hypot(np.diff(x[:k + 1]), np.diff(y[:k + 1])).sum())
+    more = f" and {found.size - 1} more point(s) like it" if found.size > 1 else ""
+    warnings.warn(
+        f"{source}: {labels[k]} (station {station:.1f} m) sticks out {offset[worst]:.1f} m from "
+        f"the line through its neighbours and the path turns {math.degrees(abs(mid[worst])):.0f} "
+        f"degrees there and back{more}; the fitted path follows it, as a sharp kink that slows "
+        "the profile. If it is an outlier remove it; if the file is a noisy GPS trace, give its "
+        "position noise so the fit smooths it", CurvespeedWarning, stacklevel=3)
+
+
 def _check_reversals(x: np.ndarray, y: np.ndarray, labels: np.ndarray, source: str) -> None:
-    """Raise if the path turns back on itself between two consecutive chords."""
+    """Raise if the path turns back on itself between two consecutive chords.
+
+    The message says what probably happened where it can tell: two points in the wrong order
+    (exchanging them removes the reversal), or a stray point (an out-and-back jump: removing it
+    removes the reversal).
+    """
     dx, dy = np.diff(x), np.diff(y)
-    heading = np.arctan2(dy, dx)
-    turn = np.angle(np.exp(1j * np.diff(heading)))
+    turn = _turns(x, y)
     bad = np.flatnonzero(np.abs(turn) > math.radians(REVERSAL_TURN_DEG))
-    if bad.size:
-        k = int(bad[0]) + 1  # the point where the path turns back
-        station = float(np.hypot(dx[:k], dy[:k]).sum())
-        raise RouteGeometryError(
-            f"{source}: {labels[k]} (station {station:.1f} m): the path doubles back on itself "
-            f"(turn of {math.degrees(abs(turn[k - 1])):.0f} degrees between consecutive "
-            "segments); remove the stray point(s) or split the route there")
+    if not bad.size:
+        return
+    k = int(bad[0]) + 1  # the point where the path turns back
+    station = float(np.hypot(dx[:k], dy[:k]).sum())
+    advice = "remove the stray point(s) or split the route there"
+    if bad.size > 1 and bad[1] == bad[0] + 1 and k + 2 <= x.size - 1:
+        lo, hi = max(k - 2, 0), min(k + 4, x.size)
+        sx, sy = x[lo:hi].copy(), y[lo:hi].copy()
+        i = k - lo
+        sx[[i, i + 1]], sy[[i, i + 1]] = sx[[i + 1, i]], sy[[i + 1, i]]
+        if not _reversal_points(sx, sy).size:
+            advice = (f"{labels[k]} and {labels[k + 1]} look swapped (out of order): exchange "
+                      "them")
+    if advice.startswith("remove"):
+        best = None
+        for c in (k, k + 1):
+            if c > x.size - 2:
+                continue
+            lo, hi = max(c - 3, 0), min(c + 4, x.size)
+            rest = np.r_[lo:c, c + 1:hi]
+            if _reversal_points(x[rest], y[rest]).size:
+                continue                  # removing it does not straighten the path
+            away = max(math.hypot(x[c] - x[c - 1], y[c] - y[c - 1]),
+                       math.hypot(x[c] - x[c + 1], y[c] - y[c + 1]))
+            apart = math.hypot(x[c + 1] - x[c - 1], y[c + 1] - y[c - 1])
+            usual = float(np.median(np.hypot(np.diff(x[rest]), np.diff(y[rest]))))
+            if away <= STRAY_STEPS * usual:
+                continue                  # no farther out than the points' own steps
+            if best is None or away / max(apart, 1e-9) > best[0]:
+                best = (away / max(apart, 1e-9), c, away, apart)
+        if best is not None:
+            _, c, away, apart = best
+            advice = (f"{labels[c]} looks like a stray point ({away:.1f} m from its neighbours, "
+                      f"which lie {apart:.1f} m apart): remove it, or split the route there")
+    raise RouteGeometryError(
+        f"{source}: {labels[k]} (station {station:.1f} m): the path doubles back on itself "
+        f"(turn of {math.degrees(abs(turn[k - 1])):.0f} degrees between consecutive "
+        f"segments); {advice}")

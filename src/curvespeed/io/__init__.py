@@ -2,12 +2,15 @@
 
 Each file-format family has its own module, which owns every message about that format:
 
-* :mod:`~curvespeed.io.route_csv` - comma-separated ``x_m,y_m[,z_m]`` or ``lat,lon[,ele_m]``;
-* :mod:`~curvespeed.io.geojson` - RFC 7946 LineString (bare, in a Feature or FeatureCollection);
+* :mod:`~curvespeed.io.route_csv` - comma-separated ``x_m,y_m[,z_m]`` or ``lat,lon[,ele_m]``
+  (semicolon- or tab-separated spreadsheet exports too, with a warning);
+* :mod:`~curvespeed.io.geojson` - RFC 7946 LineString (bare, in a Feature or FeatureCollection),
+  or a MultiLineString whose parts meet;
 * :mod:`~curvespeed.io.gpx` - GPX 1.1 / 1.0 tracks and routes;
 * :mod:`~curvespeed.io.geometry_csv` - the resampled geometry as CSV.
 
-:func:`read_route` picks the reader from the file extension.
+:func:`read_route` picks the reader from the file extension. The input rules and every message a
+user can meet are listed in ``docs/input_rules.md``.
 """
 
 from __future__ import annotations

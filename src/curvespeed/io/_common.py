@@ -1,7 +1,13 @@
-"""Helpers shared by the route readers: strict number parsing and latitude/longitude handling.
+"""Helpers shared by the readers: separators, strict number parsing, latitude/longitude.
 
 Private to :mod:`curvespeed.io`; every message built here is prefixed by the reader with the
 file name and the point's place in the file.
+
+Separators (:func:`detect_separator`): a CSV file is comma-separated unless its header line has
+no comma but a semicolon (or a tab). Semicolon- and tab-separated files are what spreadsheets
+in many European locales save as "CSV"; in them a decimal comma is accepted as well as a
+decimal point, but not both in one file (a point there would be a thousands separator, which is
+never read).
 """
 
 from __future__ import annotations
@@ -18,30 +24,94 @@ from ..geodesy import LocalProjection
 # Stricter than float(), which would also take "nan", "inf", "1_000" and surrounding spaces.
 _NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
 _NON_FINITE = re.compile(r"[+-]?(?:nan|inf|infinity)", re.IGNORECASE)
+# Characters a column of plain numbers can hold; anything else sends the column down the slow
+# path, cell by cell, which names the first offending cell.
+_NUMBER_CHARACTERS = re.compile(r"[^0-9eE+\-. \t]")
+
+#: Separators accepted in CSV files, with a name for messages.
+SEPARATOR_NAMES = {",": "comma", ";": "semicolon", "\t": "tab"}
 
 
-def parse_number(text: str) -> float | None:
+def detect_separator(header_text: str) -> str:
+    """The field separator a CSV file uses, judged from its header line.
+
+    A comma anywhere in the header means comma-separated (the standard). Without one, a
+    semicolon or else a tab in the header selects that separator. A header with none of them
+    (a single column) is read as comma-separated, so the usual "which columns" message applies.
+    """
+    if "," in header_text:
+        return ","
+    for sep in (";", "\t"):
+        if sep in header_text:
+            return sep
+    return ","
+
+
+def parse_number(text: str, decimal_comma: bool = False) -> float | None:
     """Return the value of a plain decimal number, or None if ``text`` is not one.
 
-    Non-finite spellings ("nan", "inf") and values that overflow to infinity give None.
+    Non-finite spellings ("nan", "inf") and values that overflow to infinity give None. With
+    ``decimal_comma`` a comma is read as the decimal separator (``"12,5"`` is 12.5).
     """
     s = text.strip()
+    if decimal_comma:
+        s = s.replace(",", ".")
     if not _NUMBER.fullmatch(s):
         return None
     value = float(s)
     return value if math.isfinite(value) else None
 
 
-def number_problem(text: str) -> str:
+def number_problem(text: str, decimal_comma: bool = False) -> str:
     """Short reason why ``text`` was refused by :func:`parse_number`, for messages."""
     s = text.strip()
     if not s:
         return "is empty"
+    if decimal_comma:
+        s = s.replace(",", ".")
     if _NON_FINITE.fullmatch(s) or _NUMBER.fullmatch(s):
         return "is not a finite number"
-    if re.fullmatch(r"[+-]?\d+,\d+", s):
+    if not decimal_comma and re.fullmatch(r"[+-]?\d+,\d+", s):
         return "is not a number (decimal comma? use a point as the decimal separator)"
+    if re.fullmatch(r"[+-]?\d{1,3}(?:[.,\s]\d{3})+(?:[.,]\d+)?", s):
+        return "is not a number (thousands separators? write the number without them)"
     return "is not a number"
+
+
+def parse_column(cells: list[str], decimal_comma: bool = False):
+    """Parse a column of cells as plain finite numbers, fast.
+
+    Returns ``(values, bad)``: a float array and ``None``, or ``None`` and the index of the first
+    cell :func:`parse_number` refuses. The fast path checks the characters of the whole column
+    at once and converts with numpy, whose conversion accepts every cell :func:`parse_number`
+    accepts and, within those characters, nothing else (e.g. it refuses ``"1e"``, ``"+-1"``,
+    ``"1.2.3"``); anything unusual falls back to cell-by-cell parsing.
+    """
+    joined = "\n".join(cells)
+    if decimal_comma:
+        joined = joined.replace(",", ".")
+    if not _NUMBER_CHARACTERS.search(joined.replace("\n", " ")):
+        try:
+            values = np.array(joined.split("\n") if decimal_comma else cells, dtype=float)
+        except ValueError:
+            values = None
+        if values is not None and values.size == len(cells) and np.isfinite(values).all():
+            return values, None
+    values = np.empty(len(cells))
+    for i, cell in enumerate(cells):
+        v = parse_number(cell, decimal_comma)
+        if v is None:
+            return None, i
+        values[i] = v
+    return values, None
+
+
+def decimal_mark_problem(cells: list[str]) -> int | None:
+    """In a file that uses decimal commas, index of the first cell that also has a point."""
+    for i, cell in enumerate(cells):
+        if "." in cell:
+            return i
+    return None
 
 
 def latlon_range_problem(lat: float, lon: float) -> str | None:

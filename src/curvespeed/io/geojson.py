@@ -6,9 +6,13 @@ Accepted shapes, searched in this order:
 * a ``Feature`` whose geometry is a ``LineString``;
 * a ``FeatureCollection``: the first feature with a ``LineString`` geometry is the route; any
   further line features are ignored with a warning;
-* a ``MultiLineString`` with a single part is taken as that part; with several parts it is an
-  error (join the parts into one line first). A ``GeometryCollection`` is searched like a
-  feature collection.
+* a ``MultiLineString`` with a single part is taken as that part; several parts are joined in
+  order, with a warning, when each starts where the one before ends (within
+  :data:`JOIN_TOLERANCE_M`); otherwise it is an error naming the first part that does not
+  connect. A ``GeometryCollection`` is searched like a feature collection.
+
+A ``Polygon`` is an area, not a path, and is refused with a hint (give the outline as a
+LineString).
 
 Positions are ``[longitude, latitude]`` or ``[longitude, latitude, elevation]`` in WGS84
 degrees and metres, as RFC 7946 requires. Elevation is kept only if every position has it.
@@ -30,6 +34,10 @@ from ..route import Route, make_route
 from ._common import fail, latlon_range_problem, looks_projected, project_latlon
 
 _LINE_TYPES = ("LineString", "MultiLineString")
+#: Parts of a MultiLineString are joined when each starts within this distance of where the one
+#: before ends, metres: coordinates rounded to 5 decimals (about 1.1 m of latitude) move each end
+#: by up to 0.8 m, so two rounded copies of one point can be 1.6 m apart.
+JOIN_TOLERANCE_M = 2.0
 
 
 def parse_route_geojson(text: str, source: str) -> Route:
@@ -63,8 +71,12 @@ def parse_route_geojson(text: str, source: str) -> Route:
     candidates = list(_lines(doc, properties=None, source=source))
     if not candidates:
         found = _describe_types(doc)
+        hint = ""
+        if "Polygon" in found:
+            hint = ("; a Polygon is an area, not a path: if its outline is the route, save the "
+                    "outline as a LineString (for a loop, repeat the first position at the end)")
         raise fail(source, None, f"no LineString found (the file holds {found}); "
-                                 "curvespeed needs the route as one LineString")
+                                 f"curvespeed needs the route as one LineString{hint}")
     geometry, properties, label = candidates[0]
     if len(candidates) > 1:
         warnings.warn(f"{source}: used the first line ({label}); ignored "
@@ -73,18 +85,36 @@ def parse_route_geojson(text: str, source: str) -> Route:
 
     coords = geometry.get("coordinates")
     if geometry["type"] == "MultiLineString":
-        if not isinstance(coords, list):
-            raise fail(source, label, "\"coordinates\" must be a list of lines")
-        if len(coords) != 1:
-            raise fail(source, label, f"MultiLineString has {len(coords)} parts; join them "
-                                      "into one LineString in driving order first")
-        coords = coords[0]
-    if not isinstance(coords, list):
-        raise fail(source, label, "\"coordinates\" must be a list of positions")
-
-    lon, lat, ele = _read_positions(coords, source)
-    where = np.array([f"position {i + 1}" for i in range(lon.size)], dtype=object)
+        if not isinstance(coords, list) or not coords:
+            raise fail(source, label, "\"coordinates\" must be a non-empty list of lines")
+        parts = coords
+    else:
+        parts = [coords]
+    pieces = []
+    for p, part in enumerate(parts, start=1):
+        if not isinstance(part, list):
+            raise fail(source, label, "\"coordinates\" must be a list of positions"
+                       if len(parts) == 1 else f"part {p}: must be a list of positions")
+        prefix = f"part {p}, " if len(parts) > 1 else ""
+        pieces.append((prefix, _read_positions(part, source, prefix)))
+    lon = np.concatenate([lo for _, (lo, _, _) in pieces])
+    lat = np.concatenate([la for _, (_, la, _) in pieces])
+    eles = [e for _, (_, _, e) in pieces]
+    ele = np.concatenate(eles) if all(e is not None for e in eles) else None
+    if any(e is not None for e in eles) and ele is None:
+        warnings.warn(f"{source}: only some parts of the MultiLineString have elevations; "
+                      "elevation ignored for the whole route", CurvespeedWarning)
+    where = np.array([f"{prefix}position {i + 1}" for prefix, (lo, _, _) in pieces
+                      for i in range(lo.size)], dtype=object)
     x, y, projection = project_latlon(lat, lon)
+    if len(pieces) > 1:
+        keep = _join_parts(x, y, [lo.size for _, (lo, _, _) in pieces], source, label)
+        if not keep.all():
+            # project again without the repeated join points: the projection is centred on
+            # the points, so the result is the same as for one LineString of the same route
+            lat, lon, where = lat[keep], lon[keep], where[keep]
+            ele = None if ele is None else ele[keep]
+            x, y, projection = project_latlon(lat, lon)
     name = None
     if isinstance(properties, dict) and isinstance(properties.get("name"), str):
         name = properties["name"].strip() or None
@@ -141,7 +171,41 @@ def _is_number(v) -> bool:
     return isinstance(v, Real) and not isinstance(v, bool)
 
 
-def _read_positions(coords: list, source: str):
+def _join_parts(x, y, sizes: list[int], source: str, label: str) -> np.ndarray:
+    """Check that MultiLineString parts connect end to start; raise naming the first that does not.
+
+    Returns the mask of positions to keep: a part whose first position repeats the last of the
+    part before (within 1 mm) loses that copy, so the join point appears once.
+    """
+    place = None if label == "MultiLineString" else label
+    ends = np.cumsum(sizes)
+    keep = np.ones(x.size, dtype=bool)
+    for p in range(1, len(sizes)):
+        last, first = ends[p - 1] - 1, ends[p - 1]
+        gap = float(np.hypot(x[first] - x[last], y[first] - y[last]))
+        if gap > JOIN_TOLERANCE_M:
+            prev_start, stop = ends[p - 1] - sizes[p - 1], ends[p] - 1
+            reversed_fits = (
+                np.hypot(x[stop] - x[last], y[stop] - y[last]) <= JOIN_TOLERANCE_M
+                or np.hypot(x[first] - x[prev_start], y[first] - y[prev_start])
+                <= JOIN_TOLERANCE_M)
+            hint = (f" (part {p} or {p + 1} seems to run the other way: reverse it)"
+                    if reversed_fits else "")
+            raise fail(source, place,
+                       f"MultiLineString has {len(sizes)} parts, and part {p + 1} starts "
+                       f"{gap:.1f} m from where part {p} ends{hint}; curvespeed joins parts "
+                       f"only when they meet (within {JOIN_TOLERANCE_M:g} m): join them into "
+                       "one LineString in driving order")
+        if gap < 1e-3:
+            keep[first] = False
+    warnings.warn(f"{source}: {place + ': ' if place else ''}joined the {len(sizes)} parts of "
+                  "the MultiLineString end to start into one line; check that they are in "
+                  "driving order", 
+                  CurvespeedWarning, stacklevel=3)
+    return keep
+
+
+def _read_positions(coords: list, source: str, prefix: str = ""):
     """Longitude, latitude and (when complete) elevation arrays from a list of positions."""
     n = len(coords)
     lon = np.empty(n)
@@ -149,7 +213,7 @@ def _read_positions(coords: list, source: str):
     ele = np.empty(n)
     with_ele = 0
     for i, pos in enumerate(coords):
-        where = f"position {i + 1}"
+        where = f"{prefix}position {i + 1}"
         if not isinstance(pos, list) or len(pos) < 2:
             raise fail(source, where, f"expected [longitude, latitude] or [longitude, latitude, "
                                       f"elevation], got {json.dumps(pos)[:60]}")

@@ -2,7 +2,10 @@
 
 The route is the first track that has points, its segments (``trk/trkseg/trkpt``) joined in
 file order; without track points, the first route (``rte/rtept``). Other tracks and routes are
-ignored with a warning. Per point:
+ignored with a warning. A track that jumps (two consecutive points more than
+:data:`GAP_FACTOR` times the median spacing and at least :data:`GAP_MIN_M` apart, as when the
+receiver lost its fix or one segment starts far from where the last one ended) is read with the
+jump as a straight line, and a warning names the point. Per point:
 
 * ``lat``/``lon`` attributes, WGS84 degrees (required);
 * ``ele``, metres: kept only if every point has one (otherwise dropped with a warning);
@@ -31,6 +34,13 @@ from ..errors import CurvespeedWarning
 from ..route import Route, make_route
 from ._common import (fail, latlon_range_problem, number_problem, parse_number,
                       project_latlon, swapped_would_fit)
+
+#: A step between consecutive track points longer than this many median steps ...
+GAP_FACTOR = 20.0
+#: ... and longer than this, metres, is reported as a gap in the track. A receiver logging
+#: at a steady rate gives steps of similar length; twenty times the usual step is a lost fix
+#: or a missing piece, not a change of speed.
+GAP_MIN_M = 100.0
 
 #: GPX namespaces accepted, with the version each stands for ("" is a file without namespace).
 GPX_NAMESPACES = {
@@ -66,6 +76,8 @@ def parse_route_gpx(data: bytes, source: str) -> Route:
 
     tracks = [(trk, [pt for seg in trk.findall(q("trkseg")) for pt in seg.findall(q("trkpt"))])
               for trk in root.findall(q("trk"))]
+    segment_sizes = {id(trk): [len(seg.findall(q("trkpt"))) for seg in trk.findall(q("trkseg"))]
+                     for trk, _ in tracks}
     routes = [(rte, rte.findall(q("rtept"))) for rte in root.findall(q("rte"))]
     tracks = [(el, pts) for el, pts in tracks if pts]
     routes = [(el, pts) for el, pts in routes if pts]
@@ -124,8 +136,38 @@ def parse_route_gpx(data: bytes, source: str) -> Route:
         metadata = root.find(q("metadata"))  # GPX 1.1
         name = _text(metadata.find(q("name")) if metadata is not None else root.find(q("name")))
     x, y, projection = project_latlon(lat, lon)
+    if kind == "trkpt":
+        sizes = [m for m in segment_sizes[id(chosen)] if m]
+        _warn_gaps(x, y, time_s, np.cumsum(sizes)[:-1], source)
     return make_route(x, y, z, where=where, source=source, projection=projection,
                       time_s=time_s, name=name)
+
+
+def _warn_gaps(x: np.ndarray, y: np.ndarray, time_s, segment_starts: np.ndarray,
+               source: str) -> None:
+    """Warn about jumps in a track (see GAP_FACTOR), naming the largest."""
+    step = np.hypot(np.diff(x), np.diff(y))
+    moving = step[step > 1e-3]
+    if moving.size < 2:
+        return
+    median = float(np.median(moving))
+    gaps = np.flatnonzero(step > max(GAP_FACTOR * median, GAP_MIN_M))
+    if not gaps.size:
+        return
+    j = int(gaps[np.argmax(step[gaps])])        # step from point j to j + 1 (0-based)
+    detail = f"{step[j] / median:.0f} times the median step of {median:.1f} m"
+    if time_s is not None:
+        detail += f", {time_s[j + 1] - time_s[j]:.0f} s later"
+    segment = ""
+    if j + 1 in set(segment_starts.tolist()):
+        segment = (f", where track segment {int(np.searchsorted(segment_starts, j + 1)) + 2} "
+                   "starts")
+    more = f" (the largest of {gaps.size} such gaps)" if gaps.size > 1 else ""
+    warnings.warn(
+        f"{source}: trkpt {j + 2} lies {step[j]:.0f} m ({detail}) from trkpt {j + 1}{segment}"
+        f"{more}; the route runs straight across the gap. If the receiver lost its fix there, "
+        "fill the gap from a map or plan the parts separately",
+        CurvespeedWarning, stacklevel=3)
 
 
 def _parse_xml(data: bytes, source: str) -> ET.Element:

@@ -125,12 +125,16 @@ def read_limits(path: str | Path) -> tuple[Limits, RouteConstraints]:
             raise LimitsError(f"{path}: '{name}' must be written as [[{name}]] entries")
         for n, entry in enumerate(entries, start=1):
             label = f"{name} #{n}"
+            if not isinstance(entry, dict):
+                raise LimitsError(f"{path}: '{name}' entry #{n} is {entry!r}, not a table; write "
+                                  f"each as a [[{name}]] block with keys {', '.join(keys)}")
             for key in entry:
                 if key not in keys:
                     raise _unknown_key(path, label, key, keys)
             missing = [k for k in keys if k not in entry]
             if missing:
-                raise LimitsError(f"{path}: [[{name}]] #{n} lacks {', '.join(missing)}")
+                raise LimitsError(f"{path}: [[{name}]] #{n} lacks {', '.join(missing)}; each "
+                                  f"[[{name}]] needs {', '.join(keys)}")
             nums = [_number(path, label, k, entry[k]) for k in keys]
             origin = f"{path} [[{name}]] #{n}"
             cls = {"zone": SpeedZone, "stop": Stop, "superelevation": Superelevation}[name]

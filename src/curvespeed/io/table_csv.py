@@ -4,18 +4,23 @@ Used wherever a command takes a table back in (``export``, ``plot``, ``check --s
 first non-comment line is the header; lines starting with ``#`` and blank lines are skipped.
 Columns are read by name, so extra columns are allowed. Numeric columns are parsed strictly
 (a plain decimal number, finite); text columns (``binding``) are kept as strings.
+
+As for route files, a header with semicolons (or tabs) and no comma selects that separator, with
+a warning; such a file may use decimal commas or decimal points, not both.
 """
 
 from __future__ import annotations
 
 import os
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
-from ..errors import SpeedFileError
-from ._common import number_problem, parse_number
+from ..errors import CurvespeedWarning, SpeedFileError
+from ._common import (SEPARATOR_NAMES, decimal_mark_problem, detect_separator, number_problem,
+                      parse_column)
 
 #: Columns kept as text rather than parsed as numbers.
 TEXT_COLUMNS = frozenset({"binding"})
@@ -68,43 +73,63 @@ def read_table_csv(path: str | os.PathLike, min_rows: int = 2) -> Table:
         raise SpeedFileError(f"{source}: cannot read: {exc.strerror}") from None
 
     header = None
+    sep = ","
+    header_line = 0
     rows: list[list[str]] = []
     lines: list[int] = []
     for number, raw in enumerate(text.splitlines(), start=1):
         line = raw.strip()
         if not line or line.startswith("#"):
             continue
-        cells = [c.strip() for c in line.split(",")]
         if header is None:
-            header = [c.lower() for c in cells]
-            if len(set(header)) != len(header):
-                raise SpeedFileError(f"{source}: line {number}: repeated column name in header")
-            if ";" in line and len(cells) == 1:
-                raise SpeedFileError(f"{source}: line {number}: separator looks like ';'; "
-                                     "curvespeed reads comma-separated files")
+            sep = detect_separator(line)
+            header = [c.strip().lower() for c in line.split(sep)]
+            header_line = number
+            repeated = sorted({c for c in header if header.count(c) > 1})
+            if repeated:
+                raise SpeedFileError(f"{source}: line {number}: column {', '.join(repeated)} "
+                                     "appears more than once in the header; keep one")
             continue
+        cells = [c.strip() for c in line.split(sep)]
         if len(cells) != len(header):
+            cut = " (the file looks cut short)" if len(cells) < len(header) else ""
             raise SpeedFileError(f"{source}: line {number}: {len(cells)} values for "
-                                 f"{len(header)} columns")
+                                 f"{len(header)} columns{cut}; give one value per column, or "
+                                 "write the file again")
         rows.append(cells)
         lines.append(number)
     if header is None:
-        raise SpeedFileError(f"{source}: empty file; expected a header line and rows")
+        raise SpeedFileError(f"{source}: empty file; expected a header line naming the columns, "
+                             "then one row per station")
     if len(rows) < min_rows:
-        raise SpeedFileError(f"{source}: {len(rows)} data row(s); at least {min_rows} are needed")
+        raise SpeedFileError(f"{source}: {len(rows)} data row(s); at least {min_rows} are "
+                             "needed (one per station)")
 
+    numeric = [j for j, name in enumerate(header) if name not in TEXT_COLUMNS]
+    decimal_comma = sep != "," and any("," in r[j] for r in rows for j in numeric)
     columns = {}
     for j, name in enumerate(header):
         cells = [r[j] for r in rows]
         if name in TEXT_COLUMNS:
             columns[name] = np.array(cells, dtype=object)
             continue
-        values = np.empty(len(cells))
-        for i, cell in enumerate(cells):
-            value = parse_number(cell)
-            if value is None:
+        if decimal_comma:
+            i = decimal_mark_problem(cells)
+            if i is not None:
                 raise SpeedFileError(f"{source}: line {lines[i]}: column '{name}' value "
-                                     f"'{cell}' {number_problem(cell)}")
-            values[i] = value
+                                     f"'{cells[i]}' has a decimal point, but other values in "
+                                     "this file use decimal commas; write every number the same "
+                                     "way, without thousands separators")
+        values, i = parse_column(cells, decimal_comma)
+        if i is not None:
+            raise SpeedFileError(f"{source}: line {lines[i]}: column '{name}' value "
+                                 f"'{cells[i]}' {number_problem(cells[i], decimal_comma)}; fix "
+                                 "or remove that line")
         columns[name] = values
+    if sep != ",":
+        marks = "decimal commas" if decimal_comma else "decimal points"
+        warnings.warn(f"{source}: line {header_line}: read as {SEPARATOR_NAMES[sep]}-separated "
+                      f"values with {marks} (a spreadsheet export?); save the file "
+                      "comma-separated with decimal points to silence this",
+                      CurvespeedWarning, stacklevel=2)
     return Table(columns=columns, lines=np.asarray(lines), source=source)

@@ -606,10 +606,10 @@ def _explain_infeasible(problem: SpeedProblem) -> str:
         for k in problem.stop_nodes:
             avail = problem.station_m[k] - problem.station_m[0]
             if need > avail:
-                return (f"start speed {v0:.2f} m/s: the stop at station {problem.station_m[k]:.1f}"
+                return (f"{problem.source}: start speed {v0:.2f} m/s: the stop at station {problem.station_m[k]:.1f}"
                         f" m needs {need:.1f} m of jerk-limited braking (decel {a:g} m/s^2, "
                         f"jerk {j:g} m/s^3) but only {avail:.1f} m are available; lower the start"
                         " speed or move the stop")
-    return ("no speed profile satisfies the jerk bound together with the other limits and "
+    return (f"{problem.source}: no speed profile satisfies the jerk bound together with the other limits and "
             "constraints (stops, zones, start and end speed); relax max_jerk_mps3 or the "
             "constraints near the start and the stops")

@@ -207,7 +207,7 @@ def solve_envelope(problem: SpeedProblem) -> SolveResult:
         fwd = _forward_pass(nd, ceiling_arr.tolist(), problem.b_start, order)
         if fwd[-1] < problem.b_end * (1 - 1e-9) - 1e-12:
             raise InfeasibleError(
-                f"end speed {math.sqrt(problem.b_end):.2f} m/s cannot be reached: the fastest "
+                f"{problem.source}: end speed {math.sqrt(problem.b_end):.2f} m/s cannot be reached: the fastest "
                 f"arrival at station {problem.station_m[-1]:.1f} m is {math.sqrt(fwd[-1]):.2f} m/s; "
                 "lower the end speed")
         b = _backward_pass(nd, fwd, min(problem.b_end, fwd[-1]), order)
@@ -286,7 +286,7 @@ def _raise_cannot_slow(problem: SpeedProblem, b: np.ndarray, fwd: list) -> None:
     vk = math.sqrt(max(b[k], 0.0))
     need = (v0 * v0 - vk * vk) / (2.0 * problem.limits.max_decel_mps2)
     raise InfeasibleError(
-        f"start speed {v0:.2f} m/s is too high: the vehicle must be down to {vk:.2f} m/s at "
+        f"{problem.source}: start speed {v0:.2f} m/s is too high: the vehicle must be down to {vk:.2f} m/s at "
         f"station {problem.station_m[k]:.1f} m ({what}) and braking at "
         f"{problem.limits.max_decel_mps2:g} m/s^2 needs about {need:.1f} m, only "
         f"{problem.station_m[k] - problem.station_m[0]:.1f} m are available; lower the start "
