@@ -61,7 +61,8 @@ class ConvexOptions:
     max_iterations : int
         Cap on sequential-convex iterations.
     rel_improvement : float
-        Stop when an iteration improves the time by less than this fraction.
+        A stretch stops iterating when an iteration improves the route's time by less than this
+        fraction of it.
     margin : float
         Fraction by which acceleration and jerk rows are tightened inside their limits so that a
         solver's tolerance never leaves the true limits.
@@ -72,7 +73,7 @@ class ConvexOptions:
     qp_tolerance : float
         Feasibility and gap tolerance of each QP solve (Clarabel).
     anchor_plateaus : bool
-        Hold the middle of long flat stretches of the envelope at the envelope (see
+        Hold the middle of long stretches where the envelope sits at a speed cap (see
         :func:`plateau_anchors`), which shrinks the QP; if that makes it infeasible, the solve
         is repeated without.
     """
@@ -180,12 +181,6 @@ def _time_model(b_hat: np.ndarray, lay: _Layout, ds: float):
     np.add.at(diag, lay.step_from, hxx)
     np.add.at(diag, lay.step_to, hyy)
     return total, grad, diag, hxy
-
-
-def _true_time(b: np.ndarray, lay: _Layout, ds: float) -> float:
-    s = np.sqrt(np.maximum(b[lay.step_from], 0.0)) + np.sqrt(np.maximum(b[lay.step_to], 0.0))
-    with np.errstate(divide="ignore"):
-        return float(np.sum(lay.time_coef * ds / s))
 
 
 class _QPBuilder:
@@ -425,19 +420,20 @@ def _solve_qp_clarabel(P, q, A, lo, up, eps, centre=None, scale=None):
 
 
 def plateau_anchors(problem: SpeedProblem, b_env: np.ndarray, nv: int):
-    """Nodes in the middle of long flat stretches of the envelope, to fix at the envelope.
+    """Stations in the middle of long stretches where the envelope holds a speed cap.
 
-    Where the envelope holds a speed cap or a curve's lateral limit with zero acceleration for
-    long enough, a jerk-limited profile reaches it too: leaving or joining the plateau takes at
-    most ``v (a_accel + a_decel) / j`` of distance on either side. Nodes farther than that (plus
-    five steps) from the plateau's ends are fixed at the envelope, which removes them from the
-    QP. On a plateau set by a lateral limit the envelope leaves no acceleration to spare, which
-    the QP's tightened rows cannot meet, so those nodes are held 1e-4 below it (0.005 % in
-    speed). Returns ``(mask, values)`` over the ``nv`` distinct nodes.
+    Where the envelope holds the top speed or a zone's cap with zero acceleration for long
+    enough, a jerk-limited profile reaches the cap too: leaving or joining the stretch takes at
+    most ``v (a_accel + a_decel) / j`` of distance on either side. Stations farther than that
+    (plus five steps) from the stretch's ends are fixed at the cap, which removes them from the
+    QP. (Plateaus along constant-radius curves are not held: there the envelope leaves no
+    acceleration to spare, and holding them made some QPs infeasible, for a small gain.)
+    Returns ``(mask, values)`` over the ``nv`` distinct nodes.
     """
     lim = problem.limits
     b = b_env[:nv]
-    flat_step = np.abs(np.diff(b)) <= 1e-9 * np.maximum(b[1:], 1.0)
+    at_cap = b >= problem.cap_b[:nv] * (1 - 1e-9)
+    flat_step = (np.abs(np.diff(b)) <= 1e-9 * np.maximum(b[1:], 1.0)) & at_cap[1:] & at_cap[:-1]
     both = np.zeros(nv, dtype=bool)
     both[1:-1] = flat_step[:-1] & flat_step[1:]
     reach = np.sqrt(b) * (lim.max_accel_mps2 + lim.max_decel_mps2) / lim.max_jerk_mps3
@@ -448,8 +444,7 @@ def plateau_anchors(problem: SpeedProblem, b_env: np.ndarray, nv: int):
         m = int(margin[a])
         if e - a > 2 * m:
             mask[a + m:e - m] = True
-    at_cap = b >= problem.cap_b[:nv] * (1 - 1e-9)
-    return mask, np.where(at_cap, b, b * (1 - 1e-4))
+    return mask, b.copy()
 
 
 def solve_convex(problem: SpeedProblem, options: ConvexOptions = ConvexOptions()) -> SolveResult:
@@ -470,8 +465,8 @@ def solve_convex(problem: SpeedProblem, options: ConvexOptions = ConvexOptions()
     b_hat, status, iterations, qp_iterations, more_notes = out
     notes += more_notes
     if anchors is not None and anchors[0].any():
-        notes.append(f"{int(anchors[0].sum())} of {nv} stations held at the envelope "
-                     "(plateau interiors)")
+        notes.append(f"{int(anchors[0].sum())} of {nv} stations held at their speed cap "
+                     "(middle of long stretches at the cap)")
 
     b = np.empty(problem.n_nodes)
     b[:nv] = b_hat
@@ -490,58 +485,129 @@ def solve_convex(problem: SpeedProblem, options: ConvexOptions = ConvexOptions()
 
 
 def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, anchors):
-    """The sequential-convex loop (module docstring); returns the last accepted iterate."""
+    """The sequential-convex loop (module docstring), run block by block.
+
+    Stops and stations held at a speed cap cut the route into stretches that share no
+    constraint row and no step: each is an independent QP with its own line search and its own
+    stopping test, so easy stretches stop after one or two iterations and the work grows
+    linearly with the route. Returns the last accepted iterate.
+    """
+    from scipy.sparse.csgraph import connected_components
+
     lay = _Layout(problem, jerk=problem.limits.max_jerk_mps3 is not None, anchors=anchors)
     nv = lay.nv
+    ds = problem.ds
     b_env = env.b[:nv].copy()
     builder = _QPBuilder(problem, lay, b_env, options)
     notes = []
     b_hat = b_env.copy()
-    t_hat = math.inf
     status = SolveStatus.OPTIMAL
     qp_iterations = 0
     iterations = 0
+    blocks = None
+    t_total = _steps_time(b_env, lay, ds, np.arange(lay.n_steps))   # the envelope's time
     for iterations in range(1, options.max_iterations + 1):
         qp = _reduce(*builder.build(b_hat), lay.fixed, lay.fixed_value)
-        x, st, its = _solve_reduced(qp, options.qp_tolerance, b_hat, b_env)
-        qp_iterations += its
-        if st is SolveStatus.OPTIMAL_INACCURATE:
-            # retry once with looser tolerances before accepting an inaccurate answer
-            x2, st2, its2 = _solve_reduced(qp, 100 * options.qp_tolerance, b_hat, b_env)
-            qp_iterations += its2
-            notes.append(f"iteration {iterations}: Clarabel was inaccurate at tolerance "
-                         f"{options.qp_tolerance:g}; re-solved at {100 * options.qp_tolerance:g}"
-                         f" ({st2.value})")
-            if st2 is SolveStatus.OPTIMAL:
-                x, st = x2, st2
-        if st is SolveStatus.INFEASIBLE:
-            if iterations == 1:
-                raise InfeasibleError(_explain_infeasible(problem))
-            notes.append(f"iteration {iterations}: QP reported infeasible; kept the last iterate")
+        free_idx = np.flatnonzero(qp["free"])
+        if free_idx.size == 0:
             break
-        if st is SolveStatus.FAILED or x is None or not np.all(np.isfinite(x)):
-            if iterations == 1:
-                raise SolverError(f"the convex solver's QP failed in the first iteration "
-                                  f"({st.value}); --solver envelope gives the profile without "
-                                  "the jerk bound")
-            notes.append(f"iteration {iterations}: QP failed ({st.value}); kept the last iterate")
-            status = SolveStatus.OPTIMAL_INACCURATE
-            break
-        if st is SolveStatus.OPTIMAL_INACCURATE:
-            status = SolveStatus.OPTIMAL_INACCURATE
-        x = np.clip(np.asarray(x, dtype=float), 0.0, b_env)
-        x[lay.fixed] = lay.fixed_value[lay.fixed]
-        if iterations == 1:
-            b_new = x
-            t_new = _true_time(b_new, lay, problem.ds)
-        else:
-            b_new, t_new = _line_search(b_hat, x, t_hat, lay, problem.ds)
-        improvement = (t_hat - t_new) / t_new if math.isfinite(t_hat) else math.inf
-        if t_new <= t_hat:
-            b_hat, t_hat = b_new, t_new
-        if improvement < options.rel_improvement:
+        A = qp["A"].tocsr()
+        P = qp["P"].tocsr()
+        if blocks is None:
+            pattern = (abs(A).T @ abs(A)) + abs(P)
+            n_blocks, label = connected_components(pattern, directed=False)
+            blocks = [np.flatnonzero(label == k) for k in range(n_blocks)]
+            active = np.ones(n_blocks, dtype=bool)
+            t_block = np.full(n_blocks, math.inf)
+            node_block = np.full(nv, -1)
+            node_block[free_idx] = label
+            touch = np.maximum(node_block[lay.step_from], node_block[lay.step_to])
+            block_steps = [np.flatnonzero(touch == k) for k in range(n_blocks)]
+        row_block = node_block[free_idx][A.indices[A.indptr[:-1]]]
+        # Blocks are solved in batches: one QP per batch is block-diagonal, so each block's part
+        # of its answer is that block's own optimum, while the fixed cost of a solver call is
+        # paid once per batch rather than once per block.
+        for batch in _batches([k for k in np.flatnonzero(active)], blocks, _BATCH_VARIABLES):
+            cols = np.concatenate([blocks[k] for k in batch])
+            rows = np.flatnonzero(np.isin(row_block, batch))
+            sub = (P[cols][:, cols], qp["q"][cols], A[rows][:, cols], qp["lo"][rows],
+                   qp["up"][rows])
+            glob = free_idx[cols]
+            centre, scale = b_hat[glob], np.maximum(b_env[glob], 1.0)
+            x, st, its = _solve_qp_clarabel(*sub, options.qp_tolerance, centre, scale)
+            qp_iterations += its
+            if st is SolveStatus.OPTIMAL_INACCURATE:
+                # retry once with looser tolerances before accepting an inaccurate answer
+                x2, st2, its2 = _solve_qp_clarabel(*sub, 100 * options.qp_tolerance, centre,
+                                                   scale)
+                qp_iterations += its2
+                notes.append(f"iteration {iterations}: a QP was inaccurate at tolerance "
+                             f"{options.qp_tolerance:g}; re-solved at "
+                             f"{100 * options.qp_tolerance:g} ({st2.value})")
+                if st2 is SolveStatus.OPTIMAL:
+                    x, st = x2, st2
+            failed = (st in (SolveStatus.FAILED, SolveStatus.INFEASIBLE) or x is None
+                      or np.size(x) != cols.size or not np.all(np.isfinite(x)))
+            if failed:
+                if iterations == 1 and st is SolveStatus.INFEASIBLE:
+                    raise InfeasibleError(_explain_infeasible(problem))
+                if iterations == 1:
+                    raise SolverError(f"the convex solver's QP failed in the first iteration "
+                                      f"({st.value}); --solver envelope gives the profile "
+                                      "without the jerk bound")
+                notes.append(f"iteration {iterations}: a QP returned {st.value}; kept those "
+                             "stretches' last iterate")
+                status = SolveStatus.OPTIMAL_INACCURATE
+                active[batch] = False
+                continue
+            if st is SolveStatus.OPTIMAL_INACCURATE:
+                status = SolveStatus.OPTIMAL_INACCURATE
+            cand = b_hat.copy()
+            cand[glob] = np.clip(np.asarray(x, dtype=float), 0.0, b_env[glob])
+            for k in batch:
+                steps = block_steps[k]
+                kg = free_idx[blocks[k]]
+                if iterations == 1:
+                    b_new, t_new = cand, _steps_time(cand, lay, ds, steps)
+                else:
+                    b_new, t_new = _line_search(b_hat, cand, t_block[k], lay, ds, steps)
+                # gain measured against the whole route's time, so a short stretch is not
+                # iterated for a gain nobody would notice
+                improvement = ((t_block[k] - t_new) / t_total if math.isfinite(t_block[k])
+                               else math.inf)
+                if t_new <= t_block[k]:
+                    b_hat[kg] = b_new[kg]
+                    t_block[k] = t_new
+                if improvement < options.rel_improvement:
+                    active[k] = False
+        if not active.any():
             break
     return b_hat, status, iterations, qp_iterations, notes
+
+
+#: Target size of a batch of independent blocks solved in one QP (variables).
+_BATCH_VARIABLES = 20_000
+
+
+def _batches(block_ids, blocks, target):
+    """Group block ids, in route order, into batches of about ``target`` variables."""
+    batch, size = [], 0
+    for k in block_ids:
+        batch.append(k)
+        size += blocks[k].size
+        if size >= target:
+            yield batch
+            batch, size = [], 0
+    if batch:
+        yield batch
+
+
+def _steps_time(b, lay, ds, steps):
+    """Time of the given steps for squared speeds ``b``."""
+    s = (np.sqrt(np.maximum(b[lay.step_from[steps]], 0.0))
+         + np.sqrt(np.maximum(b[lay.step_to[steps]], 0.0)))
+    with np.errstate(divide="ignore"):
+        return float(np.sum(lay.time_coef[steps] * ds / s))
 
 
 def _reduce(P, q, A, lo, up, fixed, values):
@@ -559,39 +625,24 @@ def _reduce(P, q, A, lo, up, fixed, values):
             "up": up[keep] - shift[keep], "free": free, "x_fixed": xf}
 
 
-def _solve_reduced(qp, eps, b_hat, b_env):
-    if not qp["free"].any():
-        return qp["x_fixed"], SolveStatus.OPTIMAL, 0
-    free = qp["free"]
-    x, st, its = _solve_qp_clarabel(qp["P"], qp["q"], qp["A"], qp["lo"], qp["up"], eps,
-                                    centre=b_hat[free], scale=np.maximum(b_env[free], 1.0))
-    full = qp["x_fixed"].copy()
-    if x is not None and np.size(x) == int(qp["free"].sum()):
-        full[qp["free"]] = x
-    else:
-        full = None
-    return full, st, its
-
-
-def _line_search(b0, b1, t0, lay, ds, steps: int = 30):
-    """Minimise the true time on the segment b0 -> b1 (convex in the step length)."""
+def _line_search(b0, b1, t0, lay, ds, steps, iterations: int = 30):
+    """Minimise the true time of ``steps`` on the segment b0 -> b1 (convex in the step length)."""
     d = b1 - b0
-    t1 = _true_time(b1, lay, ds)
+    t1 = _steps_time(b1, lay, ds, steps)
     if t1 <= t0:
-        # the full step improves; try a little further back only if it is not better
         return b1, t1
     lo_a, hi_a = 0.0, 1.0
     phi = (math.sqrt(5) - 1) / 2
-    for _ in range(steps):
+    for _ in range(iterations):
         a1 = hi_a - phi * (hi_a - lo_a)
         a2 = lo_a + phi * (hi_a - lo_a)
-        if _true_time(b0 + a1 * d, lay, ds) <= _true_time(b0 + a2 * d, lay, ds):
+        if _steps_time(b0 + a1 * d, lay, ds, steps) <= _steps_time(b0 + a2 * d, lay, ds, steps):
             hi_a = a2
         else:
             lo_a = a1
     alpha = 0.5 * (lo_a + hi_a)
     b = b0 + alpha * d
-    return b, _true_time(b, lay, ds)
+    return b, _steps_time(b, lay, ds, steps)
 
 
 def _explain_infeasible(problem: SpeedProblem) -> str:
