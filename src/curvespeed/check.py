@@ -722,7 +722,6 @@ def check_speeds(geometry: Geometry, limits: Limits, constraints: RouteConstrain
     lat_ceiling_b, reach_b = brake_reach_b(geometry, limits, used)
     curve_nodes = find_curves(geometry, settings)
 
-    m = n - 1 if geometry.closed else n            # distinct nodes
     territory, near = _territories(curve_nodes, geometry)
 
     found: list[tuple[Violation, set]] = []

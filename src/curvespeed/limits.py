@@ -18,7 +18,7 @@ from __future__ import annotations
 import dataclasses
 import math
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 from .errors import CurvespeedWarning, LimitsError
 from .units import STANDARD_GRAVITY_MPS2, mps_to_kmh

@@ -209,7 +209,6 @@ def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstrai
     s = geometry.station_m
     n = s.size
     ds = float(geometry.spacing_m)
-    g = limits.gravity_mps2
     kappa = geometry.curvature_1pm
     kappa_abs = np.abs(kappa)
 

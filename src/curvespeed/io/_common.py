@@ -148,3 +148,18 @@ def fail(source: str, where: str | None, message: str) -> RouteFormatError:
     """Build a :class:`RouteFormatError` reading "SOURCE: WHERE: MESSAGE"."""
     place = f"{source}: {where}: " if where else f"{source}: "
     return RouteFormatError(place + message)
+
+
+def read_text(path, error=RouteFormatError) -> str:
+    """UTF-8 text of ``path`` (a byte-order mark is dropped); ``error`` names the file on failure."""
+    from pathlib import Path
+
+    source = str(path)
+    try:
+        return Path(path).read_text(encoding="utf-8-sig")
+    except FileNotFoundError:
+        raise error(f"{source}: no such file") from None
+    except UnicodeDecodeError:
+        raise error(f"{source}: not a UTF-8 text file") from None
+    except OSError as exc:
+        raise error(f"{source}: cannot read: {exc.strerror}") from None

@@ -14,13 +14,12 @@ from __future__ import annotations
 import os
 import warnings
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 
 from ..errors import CurvespeedWarning, SpeedFileError
 from ._common import (SEPARATOR_NAMES, decimal_mark_problem, detect_separator, number_problem,
-                      parse_column)
+                      parse_column, read_text)
 
 #: Columns kept as text rather than parsed as numbers.
 TEXT_COLUMNS = frozenset({"binding"})
@@ -63,14 +62,7 @@ class Table:
 def read_table_csv(path: str | os.PathLike, min_rows: int = 2) -> Table:
     """Read ``path``; raise :class:`SpeedFileError` naming file and line on any problem."""
     source = str(path)
-    try:
-        text = Path(path).read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise SpeedFileError(f"{source}: no such file") from None
-    except UnicodeDecodeError:
-        raise SpeedFileError(f"{source}: not a UTF-8 text file") from None
-    except OSError as exc:
-        raise SpeedFileError(f"{source}: cannot read: {exc.strerror}") from None
+    text = read_text(path, SpeedFileError)
 
     header = None
     sep = ","

@@ -54,6 +54,7 @@ from ..errors import CurvespeedWarning, OutputError, SpeedFileError
 from ..export import (TRAJECTORY_COLUMNS, SamplingMode, StationProfile, Trajectory,
                       make_station_profile, planned_time_mismatch)
 from ..limits import Limits, RouteConstraints, SpeedZone, Stop, Superelevation
+from ._common import read_text
 from ._format import CURVATURE, DEGREES, METRES, RADIANS, format_column, format_columns
 from .atomic import atomic_open
 from .table_csv import read_table_csv
@@ -181,14 +182,7 @@ def read_profile_meta(path: str | os.PathLike) -> ProfileSidecar:
         not what ``curvespeed plan`` writes; the message names the file and the key.
     """
     source = str(path)
-    try:
-        text = Path(path).read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise SpeedFileError(f"{source}: no such file") from None
-    except UnicodeDecodeError:
-        raise SpeedFileError(f"{source}: not a UTF-8 text file") from None
-    except OSError as exc:
-        raise SpeedFileError(f"{source}: cannot read: {exc.strerror}") from None
+    text = read_text(path, SpeedFileError)
     try:
         doc = json.loads(text)
     except json.JSONDecodeError as exc:
