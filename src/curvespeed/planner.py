@@ -13,7 +13,7 @@ from .errors import CurvespeedWarning, SolverError
 from .geometry import Geometry
 from .limits import Limits, RouteConstraints
 from .problem import build_problem
-from .profile import Profile, derive
+from .profile import Profile
 from .solvers import SolverKind, solve
 from .verify import DEFAULT_TOLERANCE, verify_profile
 
@@ -56,7 +56,7 @@ def plan_profile(geometry: Geometry, limits: Limits, constraints: RouteConstrain
         worst = "; ".join(v.describe() for v in check.violations)
         raise SolverError(f"the {result.solver} solver's profile breaks its limits: {worst}. "
                           "This is a defect; please report it with the route and limits")
-    d = derive(problem, result.b)
+    d = check.derived
     env_b = result.envelope_b if result.envelope_b is not None else result.b
     v_env = np.sqrt(np.maximum(env_b, 0.0))
     envelope_time = float(np.sum(2.0 * problem.ds / (v_env[:-1] + v_env[1:])))

@@ -51,6 +51,9 @@ class Verification:
     extremes : dict of str -> float
         Peak magnitudes in SI units: ``accel_mps2``, ``decel_mps2``, ``lateral_accel_mps2``,
         ``jerk_mps3``, ``lateral_jerk_mps3``.
+    derived : dict of str -> ndarray
+        The speeds, accelerations, jerk and times the check was made on
+        (:func:`curvespeed.profile.derive`), for callers that need them too.
     """
 
     use: dict
@@ -58,6 +61,7 @@ class Verification:
     violations: list
     binding: np.ndarray
     extremes: dict
+    derived: dict
 
     @property
     def ok(self) -> bool:
@@ -145,7 +149,7 @@ def verify_profile(problem: SpeedProblem, b: np.ndarray,
                 "lateral_jerk_mps3": float(np.max(np.abs(d["lat_jerk_mps3"])))}
     return Verification(use=use, peak=peak, violations=violations,
                         binding=_binding_labels(problem, a, use, lat_use, grip_lat_share),
-                        extremes=extremes)
+                        extremes=extremes, derived=d)
 
 
 def _binding_labels(problem, a, use, lat_use, grip_lat_share) -> np.ndarray:
