@@ -115,7 +115,7 @@ def test_round_trip_time_matches_the_profile(max_jerk, stops_m, dwell_s):
                            RouteConstraints(stops=tuple(Stop(s) for s in stops_m)))
     tr = sample_in_time(planned, 0.05, dwell_s)
     moving = reintegrated_moving_time(tr)
-    # The issue asks for 0.1 %. Expected error: the rule is exact inside a step; an interval
+    # Required: within 0.1 %. Expected error: the rule is exact inside a step; an interval
     # straddling a node where the acceleration jumps by da errs by about da dt^2 / 8 in distance
     # (<= 4 * 0.05^2 / 8 = 1.3 mm at a 1.5 -> -2.5 m/s^2 switch), and chords miss the arc by
     # dp^3 kappa^2 / 24 (< 1e-5 m here). A few dozen such intervals over ~400 m give well under

@@ -170,7 +170,7 @@ def test_export_geojson_is_rfc7946_and_reads_back_within_1_cm(geo, tmp_path, mod
     x, y = PROJECTION.to_metres(lat, lon)
     back = np.column_stack((x, y))
     written = np.column_stack((table["x_m"], table["y_m"]))
-    # 1 cm: the bound; rounding to 1e-9 degree is ~0.1 mm, interpolation of lat/lon
+    # 1 cm: the required bound; rounding to 1e-9 degree is ~0.1 mm, interpolation of lat/lon
     # between nodes < 0.1 mm (see curvespeed.export._interpolate_latlon)
     assert cKDTree(written).query(back)[0].max() < 0.01
     assert cKDTree(back).query(written)[0].max() < 0.01

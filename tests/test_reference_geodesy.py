@@ -64,7 +64,7 @@ def test_long_route_at_high_latitude_matches_geodesic_length(tmp_path):
     projected_m = float(route.chord_stations()[-1])
     assert 30e3 < reference_m < 60e3 and lat.min() > 65.0
     rel = (projected_m - reference_m) / reference_m
-    # The brief's acceptance: within 0.1 % of the geodesic length.
+    # Required: within 0.1 % of the geodesic length.
     assert abs(rel) <= 1e-3
     # Tighter, from the projection itself: scale >= 1 everywhere (lengths never shrink) and
     # at most the point scale at the farthest east-west offset. 1e-9 allows for round-off
