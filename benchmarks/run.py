@@ -49,16 +49,9 @@ def winding_curvature(length_m: float, ds: float, seed: int = 1) -> np.ndarray:
 
 
 def synthetic_geometry(length_m: float, ds: float = 1.0):
-    from curvespeed.geometry import Geometry
+    from curvespeed.geometry import geometry_from_curvature
 
-    kappa = winding_curvature(length_m, ds)
-    n = kappa.size
-    s = np.arange(n) * ds
-    heading = np.concatenate(([0.0], np.cumsum(0.5 * (kappa[1:] + kappa[:-1]) * ds)))
-    mid = 0.5 * (heading[1:] + heading[:-1])
-    x = np.concatenate(([0.0], np.cumsum(np.cos(mid) * ds)))
-    y = np.concatenate(([0.0], np.cumsum(np.sin(mid) * ds)))
-    return Geometry(s, x, y, heading, kappa, None, None, False, ds, name="benchmark road")
+    return geometry_from_curvature(winding_curvature(length_m, ds), ds=ds, name="benchmark road")
 
 
 def constraints_for(length_m: float):

@@ -8,32 +8,11 @@ from __future__ import annotations
 
 import numpy as np
 
-from curvespeed.geometry import Geometry
+from curvespeed.geometry import Geometry, geometry_from_curvature  # noqa: F401 (re-exported)
 
 #: Relative tolerance for quantities the envelope computes in closed form per step (round-off
 #: of a few floating-point operations per step accumulates over at most ~1e4 steps).
 CLOSED_FORM_RTOL = 1e-9
-
-
-def geometry_from_curvature(kappa, ds: float = 1.0, closed: bool = False, grade=None,
-                            name: str = "synthetic") -> Geometry:
-    """Geometry whose nodes have exactly curvature ``kappa`` (1/m) at spacing ``ds`` (m).
-
-    Heading is the trapezoidal integral of curvature; positions the integral of heading.
-    """
-    kappa = np.asarray(kappa, dtype=float)
-    n = kappa.size
-    s = np.arange(n) * ds
-    heading = np.concatenate(([0.0], np.cumsum(0.5 * (kappa[1:] + kappa[:-1]) * ds)))
-    mid = 0.5 * (heading[1:] + heading[:-1])
-    x = np.concatenate(([0.0], np.cumsum(np.cos(mid) * ds)))
-    y = np.concatenate(([0.0], np.cumsum(np.sin(mid) * ds)))
-    z = None
-    if grade is not None:
-        grade = np.broadcast_to(np.asarray(grade, dtype=float), (n,)).copy()
-        z = np.concatenate(([0.0], np.cumsum(0.5 * (grade[1:] + grade[:-1]) * ds)))
-    return Geometry(station_m=s, x_m=x, y_m=y, heading_rad=heading, curvature_1pm=kappa,
-                    z_m=z, grade=grade, closed=closed, spacing_m=ds, name=name)
 
 
 def circle_geometry(radius_m: float, ds: float = 1.0) -> Geometry:

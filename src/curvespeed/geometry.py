@@ -482,6 +482,30 @@ def estimate_scatter(u: np.ndarray, values: np.ndarray, span: float, periodic: b
     return math.sqrt(mean_square * n_eff / low)
 
 
+def geometry_from_curvature(kappa, ds: float = 1.0, closed: bool = False, grade=None,
+                            name: str = "synthetic") -> Geometry:
+    """Geometry whose nodes have exactly curvature ``kappa`` (1/m) at spacing ``ds`` (m).
+
+    For designed alignments and tests: heading is the trapezoidal integral of curvature,
+    position the integral of heading (midpoint heading per step), elevation the integral of
+    ``grade`` (rise over run, a scalar or one value per node) when given. Starts at the origin
+    heading east. On a closed geometry the caller's curvature must close the loop.
+    """
+    kappa = np.asarray(kappa, dtype=float)
+    n = kappa.size
+    s = np.arange(n) * ds
+    heading = np.concatenate(([0.0], np.cumsum(0.5 * (kappa[1:] + kappa[:-1]) * ds)))
+    mid = 0.5 * (heading[1:] + heading[:-1])
+    x = np.concatenate(([0.0], np.cumsum(np.cos(mid) * ds)))
+    y = np.concatenate(([0.0], np.cumsum(np.sin(mid) * ds)))
+    z = None
+    if grade is not None:
+        grade = np.broadcast_to(np.asarray(grade, dtype=float), (n,)).copy()
+        z = np.concatenate(([0.0], np.cumsum(0.5 * (grade[1:] + grade[:-1]) * ds)))
+    return Geometry(station_m=s, x_m=x, y_m=y, heading_rad=heading, curvature_1pm=kappa,
+                    z_m=z, grade=grade, closed=closed, spacing_m=ds, name=name)
+
+
 def summarise_geometry(geometry: Geometry) -> dict:
     """Key figures of a geometry for printing: length, loop, tightest radius, turning, grade.
 

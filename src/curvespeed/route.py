@@ -88,10 +88,6 @@ class Route:
         d = np.hypot(np.diff(self.x_m), np.diff(self.y_m))
         return np.concatenate(([0.0], np.cumsum(d)))
 
-    def gap_to_start_m(self) -> float:
-        """Distance from the last point back to the first, metres."""
-        return float(math.hypot(self.x_m[-1] - self.x_m[0], self.y_m[-1] - self.y_m[0]))
-
 
 def make_route(
     x_m,

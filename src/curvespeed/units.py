@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import math
-
 #: Standard gravity, m/s^2 (ISO 80000-3 conventional value).
 STANDARD_GRAVITY_MPS2 = 9.80665
 
@@ -25,11 +23,3 @@ def mph_to_mps(v_mph: float) -> float:
 
 def mps_to_mph(v_mps: float) -> float:
     return v_mps * MPH_PER_MPS
-
-
-def deg_to_rad(deg: float) -> float:
-    return math.radians(deg)
-
-
-def rad_to_deg(rad: float) -> float:
-    return math.degrees(rad)

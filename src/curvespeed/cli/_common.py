@@ -46,12 +46,7 @@ def geometry_options(func):
     ]
     for option in reversed(options):
         func = option(func)
-
-    @functools.wraps(func)
-    def wrapper(*args, **kwargs):
-        return func(*args, **kwargs)
-
-    return wrapper
+    return func
 
 
 def load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m, closed):
@@ -66,7 +61,3 @@ def load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m, cl
     geometry = build_geometry(route, spacing_m=spacing_m, position_noise_m=position_noise_m,
                               closed=closed, **kwargs)
     return route, geometry
-
-
-def fmt_station_range(start_m: float, end_m: float) -> str:
-    return f"{start_m:8.1f} - {end_m:8.1f} m"

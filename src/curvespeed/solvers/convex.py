@@ -95,7 +95,6 @@ class _Layout:
         self.closed = problem.closed
         self.nv = n_nodes - 1 if problem.closed else n_nodes      # distinct nodes
         nv = self.nv
-        self.node_of_var = np.arange(nv)
         if problem.closed:
             self.step_from = np.arange(nv)
             self.step_to = (np.arange(nv) + 1) % nv
