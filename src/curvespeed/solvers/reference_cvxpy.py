@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import math
 import time
+import warnings
 
 import numpy as np
 
@@ -175,16 +176,22 @@ def solve_reference(problem: SpeedProblem, max_iterations: int = 30,
     nv, frm, to = _index_sets(problem)
     b_lin = env.b.copy()
     best_time = math.inf
+    status = SolveStatus.OPTIMAL
     best = env.b.copy()
     it = 0
     for it in range(1, max_iterations + 1):
         prob, b = build_reference_model(problem, b_lin, env.b)
         try:
-            prob.solve(solver=solver)
+            with warnings.catch_warnings():
+                # cvxpy warns about inaccurate solutions; the status below records it instead
+                warnings.simplefilter("ignore", UserWarning)
+                prob.solve(solver=solver)
         except cp.error.SolverError as exc:
             raise SolverError(f"cvxpy reference: {exc}") from None
         if prob.status in ("infeasible", "infeasible_inaccurate"):
             raise InfeasibleError("the reference model is infeasible")
+        if prob.status == "optimal_inaccurate":
+            status = SolveStatus.OPTIMAL_INACCURATE
         if b.value is None:
             raise SolverError(f"cvxpy reference: status {prob.status}")
         cand = np.clip(b.value, 0.0, env.b[:nv])
@@ -199,6 +206,6 @@ def solve_reference(problem: SpeedProblem, max_iterations: int = 30,
         b_lin = full
         if improved < rel_improvement:
             break
-    return SolveResult(b=best, status=SolveStatus.OPTIMAL, solver="convex-reference",
+    return SolveResult(b=best, status=status, solver="convex-reference",
                        iterations=it, solve_time_s=time.perf_counter() - t0,
                        ceiling_b=env.ceiling_b, envelope_b=env.b)
