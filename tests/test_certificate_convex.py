@@ -102,10 +102,14 @@ def test_fast_path_agrees_with_the_cvxpy_reference_model(solved):
     ref = solve_reference(problem)
     t_fast = derive(problem, result.b)["time_s"][-1]
     t_ref = derive(problem, ref.b)["time_s"][-1]
-    assert t_fast == pytest.approx(t_ref, rel=2e-3), name
+    # Both stop iterating on a gain threshold (fast path 1e-4 of the route's time, reference
+    # 1e-5); measured differences are at most 1.2e-4, so 5e-4 leaves a 4x margin.
+    assert t_fast == pytest.approx(t_ref, rel=5e-4), name
     assert verify_profile(problem, ref.b, tolerance=CONVEX_TOL).ok, name
+    # Near the optimum the time hardly changes with small shifts of speed, so speeds agree less
+    # tightly than times: measured at most 0.06 m/s.
     v_fast, v_ref = np.sqrt(result.b), np.sqrt(ref.b)
-    assert np.max(np.abs(v_fast - v_ref)) <= 0.05 * v_ref.max(), name
+    assert np.max(np.abs(v_fast - v_ref)) <= 0.1, name
 
 
 def test_without_jerk_bound_the_program_returns_the_envelope():
