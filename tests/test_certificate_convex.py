@@ -14,7 +14,7 @@ from curvespeed.errors import InfeasibleError
 from curvespeed.limits import Limits, RouteConstraints, SpeedZone, Stop, Superelevation
 from curvespeed.problem import build_problem
 from curvespeed.profile import derive
-from curvespeed.solvers.convex import ConvexOptions, solve_convex
+from curvespeed.solvers.convex import ConvexOptions, _batches, solve_convex
 from curvespeed.solvers.envelope import solve_envelope
 from curvespeed.solvers.reference_cvxpy import solve_reference
 from curvespeed.verify import verify_profile
@@ -110,6 +110,34 @@ def test_fast_path_agrees_with_the_cvxpy_reference_model(solved):
     # tightly than times: measured at most 0.06 m/s.
     v_fast, v_ref = np.sqrt(result.b), np.sqrt(ref.b)
     assert np.max(np.abs(v_fast - v_ref)) <= 0.1, name
+
+
+def test_solving_stretches_in_parallel_does_not_change_the_answer():
+    # Stops and a zone cut this route into independent stretches. Solved by one thread (one
+    # QP) or spread over three (three QPs), each stretch's QP has one optimum (the time model is
+    # strictly convex), so the profiles differ only by the QP tolerance: measured 1e-5 m/s, and
+    # 1e-3 m/s is far below anything a tracker could notice.
+    s = np.arange(0.0, 3000.5, 1.0)
+    geo = geometry_from_curvature(0.01 * np.sin(2 * np.pi * s / 500.0)
+                                  + 0.004 * np.sin(2 * np.pi * s / 250.0), ds=1.0)
+    problem = build_problem(geo, Limits(max_jerk_mps3=2.0, max_speed_mps=25.0),
+                            RouteConstraints(stops=(Stop(1000.0), Stop(2000.0)),
+                                             zones=(SpeedZone(400.0, 600.0, 10.0),)))
+    one = solve_convex(problem, ConvexOptions(threads=1))
+    three = solve_convex(problem, ConvexOptions(threads=3))
+    assert three.inner_iterations > one.inner_iterations      # really solved as separate QPs
+    assert np.max(np.abs(np.sqrt(one.b) - np.sqrt(three.b))) <= 1e-3
+    assert verify_profile(problem, three.b, tolerance=CONVEX_TOL).ok
+
+
+def test_batches_keep_route_order_and_share_work_evenly():
+    blocks = [np.arange(n) for n in (300, 50, 400, 250, 100, 500, 200)]
+    for threads in (1, 2, 3):
+        batches = _batches(range(len(blocks)), blocks, threads)
+        assert [k for b in batches for k in b] == list(range(len(blocks)))
+        assert len(batches) == threads
+    sizes = [sum(blocks[k].size for k in b) for b in _batches(range(7), blocks, 2)]
+    assert sizes == [1000, 800]     # the cut nearest to half of 1800
 
 
 def test_without_jerk_bound_the_program_returns_the_envelope():
