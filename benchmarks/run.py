@@ -1,6 +1,6 @@
 """Benchmarks of the speed solvers: one command, one table.
 
-    python benchmarks/run.py            # all cases (a few minutes on 2 cores)
+    python benchmarks/run.py            # all cases (under a minute on 2 cores)
     python benchmarks/run.py --quick    # 10 km cases only
 
 Every case runs in its own Python process (so peak memory is that case's own) and repeats the
