@@ -103,13 +103,41 @@ def test_fast_path_agrees_with_the_cvxpy_reference_model(solved):
     t_fast = derive(problem, result.b)["time_s"][-1]
     t_ref = derive(problem, ref.b)["time_s"][-1]
     # Both stop iterating on a gain threshold (fast path 1e-4 of the route's time, reference
-    # 1e-5); measured differences are at most 1.2e-4, so 5e-4 leaves a 4x margin.
-    assert t_fast == pytest.approx(t_ref, rel=5e-4), name
+    # 1e-5), so they may stop a few thresholds apart: 3e-4. Measured at most 3.5e-5.
+    assert t_fast == pytest.approx(t_ref, rel=3e-4), name
     assert verify_profile(problem, ref.b, tolerance=CONVEX_TOL).ok, name
     # Near the optimum the time hardly changes with small shifts of speed, so speeds agree less
-    # tightly than times: measured at most 0.06 m/s.
+    # tightly than times: measured at most 0.05 m/s.
     v_fast, v_ref = np.sqrt(result.b), np.sqrt(ref.b)
     assert np.max(np.abs(v_fast - v_ref)) <= 0.1, name
+
+
+def comfort_objective(problem, b, weight):
+    """Time plus weight * sum of squared changes of acceleration at the nodes (zero outside an
+    open route), from the speeds alone."""
+    d = derive(problem, b)
+    first, last = d["step_accel_first_mps2"], d["step_accel_last_mps2"]
+    if problem.closed:
+        after, before = first, np.roll(last, 1)
+    else:
+        after, before = np.append(first, 0.0), np.insert(last, 0, 0.0)
+    return d["time_s"][-1] + weight * np.sum((after - before) ** 2)
+
+
+@pytest.mark.parametrize("name", list(CASES))
+def test_comfort_weighted_program_agrees_with_the_cvxpy_reference(name):
+    # With a comfort weight the optimum leaves the limits (jerk is no longer binding), so this
+    # checks the objective's model and the line search rather than the rows. Same stopping
+    # thresholds as above: 3e-4; measured at most 6.5e-5 (closed loop), 0.03 m/s.
+    geo, limits, constraints = CASES[name]
+    problem = build_problem(geo, limits, constraints)
+    fast = solve_convex(problem, ConvexOptions(comfort_weight=5.0))
+    ref = solve_reference(problem, comfort_weight=5.0)
+    f_fast = comfort_objective(problem, fast.b, 5.0)
+    f_ref = comfort_objective(problem, ref.b, 5.0)
+    assert f_fast == pytest.approx(f_ref, rel=3e-4)
+    assert np.max(np.abs(np.sqrt(fast.b) - np.sqrt(ref.b))) <= 0.1
+    assert verify_profile(problem, fast.b, tolerance=CONVEX_TOL).ok
 
 
 def test_solving_stretches_in_parallel_does_not_change_the_answer():

@@ -88,5 +88,6 @@ def solve(problem, kind: SolverKind = SolverKind.ENVELOPE, options=None) -> Solv
     if kind is SolverKind.CONVEX_REFERENCE:
         from .reference_cvxpy import solve_reference
 
-        return solve_reference(problem)
+        weight = getattr(options, "comfort_weight", 0.0) if options is not None else 0.0
+        return solve_reference(problem, comfort_weight=weight)
     raise ValueError(f"unknown solver {kind!r}")

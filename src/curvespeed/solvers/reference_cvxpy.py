@@ -42,10 +42,12 @@ def _index_sets(problem: SpeedProblem):
     return nv, frm, to
 
 
-def build_reference_model(problem: SpeedProblem, b_lin: np.ndarray, b_upper: np.ndarray):
+def build_reference_model(problem: SpeedProblem, b_lin: np.ndarray, b_upper: np.ndarray,
+                          comfort_weight: float = 0.0):
     """cvxpy problem for one iteration, jerk and power linearised at ``b_lin``.
 
-    Returns ``(cvxpy.Problem, b_variable)``.
+    The objective is the total time, plus ``comfort_weight`` times the sum of squared changes of
+    acceleration at the nodes. Returns ``(cvxpy.Problem, b_variable)``.
     """
     import cvxpy as cp
 
@@ -98,8 +100,37 @@ def build_reference_model(problem: SpeedProblem, b_lin: np.ndarray, b_upper: np.
     if lim.max_jerk_mps3 is not None:
         cons += _jerk_constraints(problem, b, b_lin[:nv], nv, frm, to, mean_a, f_first, f_last)
 
-    total_time = cp.sum(cp.multiply(coef * ds, cp.inv_pos(cp.sqrt(b[frm]) + cp.sqrt(b[to]))))
-    return cp.Problem(cp.Minimize(total_time), cons), b
+    objective = cp.sum(cp.multiply(coef * ds, cp.inv_pos(cp.sqrt(b[frm]) + cp.sqrt(b[to]))))
+    if comfort_weight > 0:
+        change, _, _ = _accel_change(problem, nv, frm, to, f_first, f_last)
+        objective = objective + comfort_weight * cp.sum_squares(change @ b)
+    return cp.Problem(cp.Minimize(objective), cons), b
+
+
+def _accel_change(problem, nv, frm, to, f_first, f_last):
+    """Sparse ``Dm`` with ``Dm @ b`` the change of acceleration at each node (after minus before;
+    outside an open route the acceleration counts as zero), the nodes at rest on both sides,
+    and the steps before and after each node."""
+    import scipy.sparse as sp
+
+    ds = problem.ds
+    ns = frm.size
+    h = 1.0 / (2.0 * ds)
+    k = np.arange(nv)
+    if problem.closed:
+        before, after = (k - 1) % nv, k
+        has_b = has_a = np.ones(nv, dtype=bool)
+    else:
+        before, after = np.maximum(k - 1, 0), np.minimum(k, ns - 1)
+        has_b, has_a = k > 0, k < nv - 1
+    fb = np.where(has_b, f_last[before], 0.0)
+    fa = np.where(has_a, f_first[after], 0.0)
+    rows = np.concatenate((k, k, k, k))
+    cols = np.concatenate((to[after], frm[after], to[before], frm[before]))
+    vals = np.concatenate((fa * h, -fa * h, -fb * h, fb * h))
+    Dm = sp.csr_matrix((vals, (rows, cols)), shape=(nv, nv))
+    at_rest = (fb == 0) & (fa == 0)
+    return Dm, at_rest, (before, after, has_b, has_a)
 
 
 def _jerk_constraints(problem, b, b_lin, nv, frm, to, mean_a, f_first, f_last):
@@ -117,21 +148,9 @@ def _jerk_constraints(problem, b, b_lin, nv, frm, to, mean_a, f_first, f_last):
     ds = problem.ds
     ns = frm.size
     linear_step = problem.time_coef[:ns] == 2.0
-    h = 1.0 / (2.0 * ds)
     k = np.arange(nv)
-    if problem.closed:
-        before, after = (k - 1) % nv, k
-        has_b = has_a = np.ones(nv, dtype=bool)
-    else:
-        before, after = np.maximum(k - 1, 0), np.minimum(k, ns - 1)
-        has_b, has_a = k > 0, k < nv - 1
-    fb = np.where(has_b, f_last[before], 0.0)
-    fa = np.where(has_a, f_first[after], 0.0)
-    rows = np.concatenate((k, k, k, k))
-    cols = np.concatenate((to[after], frm[after], to[before], frm[before]))
-    vals = np.concatenate((fa * h, -fa * h, -fb * h, fb * h))
-    Dm = sp.csr_matrix((vals, (rows, cols)), shape=(nv, nv))
-    at_rest = (fb == 0) & (fa == 0)
+    Dm, at_rest, (before, after, has_b, has_a) = _accel_change(problem, nv, frm, to, f_first,
+                                                                f_last)
 
     side_b = has_b & linear_step[before]
     side_a = has_a & linear_step[after]
@@ -167,7 +186,8 @@ def _jerk_constraints(problem, b, b_lin, nv, frm, to, mean_a, f_first, f_last):
 
 
 def solve_reference(problem: SpeedProblem, max_iterations: int = 30,
-                    rel_improvement: float = 1e-5, solver: str = "CLARABEL") -> SolveResult:
+                    rel_improvement: float = 1e-5, solver: str = "CLARABEL",
+                    comfort_weight: float = 0.0) -> SolveResult:
     """Sequential convex programming on the exact cvxpy model, from the envelope."""
     import cvxpy as cp
 
@@ -180,7 +200,7 @@ def solve_reference(problem: SpeedProblem, max_iterations: int = 30,
     best = env.b.copy()
     it = 0
     for it in range(1, max_iterations + 1):
-        prob, b = build_reference_model(problem, b_lin, env.b)
+        prob, b = build_reference_model(problem, b_lin, env.b, comfort_weight)
         try:
             with warnings.catch_warnings():
                 # cvxpy warns about inaccurate solutions; the status below records it instead
