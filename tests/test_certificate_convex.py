@@ -166,6 +166,9 @@ def test_batches_keep_route_order_and_share_work_evenly():
         assert len(batches) == threads
     sizes = [sum(blocks[k].size for k in b) for b in _batches(range(7), blocks, 2)]
     assert sizes == [1000, 800]     # the cut nearest to half of 1800
+    # a share under 500 variables is not worth a thread of its own: 1800 -> at most 3 workers
+    assert len(_batches(range(7), blocks, 8)) == 3
+    assert len(_batches(range(2), blocks, 8)) == 1      # 350 variables: one QP
 
 
 def test_without_jerk_bound_the_program_returns_the_envelope():

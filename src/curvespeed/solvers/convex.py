@@ -273,13 +273,7 @@ class _QPBuilder:
                         ok = ok | single
                     else:
                         ok = ok & ~single
-                    # a - slope * b_end  (a = fac h (b_to - b_from) at this end)
-                    c_from = -fac * h
-                    c_to = fac * h
-                    if end is sf:
-                        c_from = c_from - slope
-                    else:
-                        c_to = c_to - slope
+                    c_from, c_to = _accel_minus_slope(end is sf, fac * h, slope)
                     key = (side, seg)
                     if key in rows_seen:    # same row already at the other end of the step
                         pc_from, pc_to, prhs = rows_seen[key]
@@ -305,12 +299,7 @@ class _QPBuilder:
                     f0 = pm / np.sqrt(bq)
                     slope = -0.5 * pm / bq ** 1.5 - res1
                     rhs = f0 - res0 - res1 * bq - slope * bq - a_tol_hi
-                    c_from = -fac * h
-                    c_to = fac * h
-                    if end is sf:
-                        c_from = c_from - slope
-                    else:
-                        c_to = c_to - slope
+                    c_from, c_to = _accel_minus_slope(end is sf, fac * h, slope)
                     add_rows(sf, c_from, st, c_to, np.full(sf.size, -np.inf), rhs)
 
         A_acc = sp.coo_matrix((np.concatenate(vals_i), (np.concatenate(rows_i),
@@ -387,6 +376,14 @@ class _QPBuilder:
         # for fast and slow stretches alike (the largest gradients, near rest, are 1e4 larger)
         scale = 1.0 / max(float(np.median(np.abs(grad[free]))) if free.any() else 1.0, 1e-12)
         return H * scale, q * scale, A, lo_all, up_all, scale
+
+
+def _accel_minus_slope(at_first_node: bool, fh, slope):
+    """Coefficients on (b_from, b_to) of ``a - slope * b_end`` for a step whose acceleration at
+    this end is ``a = fh (b_to - b_from)``, ``b_end`` being the step's first or last node."""
+    if at_first_node:
+        return -fh - slope, fh
+    return -fh, fh - slope
 
 
 def _solve_qp_clarabel(P, q, A, lo, up, eps, centre=None, scale=None, refine=True,
@@ -628,12 +625,16 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
 
 #: Largest batch of independent blocks solved in one QP (variables).
 _BATCH_VARIABLES = 20_000
+#: Smallest share worth a worker thread of its own (variables): below it, the fixed cost of a
+#: solver call outweighs the parallel gain.
+_MIN_SHARE_VARIABLES = 500
 
 
 def _batches(block_ids, blocks, threads: int):
     """Group block ids, in route order, into batches for ``threads`` workers.
 
-    The number of batches is a multiple of ``threads`` and large enough that none exceeds about
+    The number of batches is a multiple of the workers used (``threads``, fewer when a share
+    would be under ``_MIN_SHARE_VARIABLES``) and large enough that none exceeds about
     ``_BATCH_VARIABLES``; cuts fall at the block boundaries nearest to equal shares, so the
     workers finish together.
     """
@@ -642,8 +643,9 @@ def _batches(block_ids, blocks, threads: int):
         return []
     sizes = np.array([blocks[k].size for k in ids], dtype=float)
     total = float(sizes.sum())
+    workers = max(1, min(threads, int(total // _MIN_SHARE_VARIABLES)))
     n = max(1, math.ceil(total / _BATCH_VARIABLES))
-    n = math.ceil(n / threads) * threads
+    n = math.ceil(n / workers) * workers
     ends = np.cumsum(sizes)
     cuts = sorted({int(np.argmin(np.abs(ends - total * j / n))) + 1 for j in range(1, n)})
     out, start = [], 0
