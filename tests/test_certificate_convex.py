@@ -158,6 +158,24 @@ def test_solving_stretches_in_parallel_does_not_change_the_answer():
     assert verify_profile(problem, three.b, tolerance=CONVEX_TOL).ok
 
 
+def test_qp_adapter_reports_clarabel_outcomes_in_our_terms():
+    import scipy.sparse as sp
+
+    from curvespeed.solvers import SolveStatus
+    from curvespeed.solvers.convex import _solve_qp_clarabel
+
+    P = sp.identity(2, format="csc")
+    q = np.array([-1.0, -1.0])
+    A = sp.csr_matrix(np.array([[1.0, 1.0], [1.0, 0.0], [0.0, 1.0]]))
+    up = np.array([1.0, np.inf, np.inf])
+    # x1 + x2 <= 1 with x1, x2 >= 0: minimum of |x - (1, 1)|^2 at (0.5, 0.5)
+    x, status, _ = _solve_qp_clarabel(P, q, A, np.array([-np.inf, 0.0, 0.0]), up, 1e-8)
+    assert status is SolveStatus.OPTIMAL and np.allclose(x, 0.5, atol=1e-6)
+    # x1 + x2 <= 1 with x1 >= 2, x2 >= 0: no point satisfies all three
+    _, status, _ = _solve_qp_clarabel(P, q, A, np.array([-np.inf, 2.0, 0.0]), up, 1e-8)
+    assert status is SolveStatus.INFEASIBLE
+
+
 def test_batches_keep_route_order_and_share_work_evenly():
     blocks = [np.arange(n) for n in (300, 50, 400, 250, 100, 500, 200)]
     for threads in (1, 2, 3):

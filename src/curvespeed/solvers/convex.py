@@ -378,6 +378,20 @@ class _QPBuilder:
         return H * scale, q * scale, A, lo_all, up_all, scale
 
 
+def _clarabel_status(code) -> SolveStatus:
+    """Our status for Clarabel's: solved, almost solved (inaccurate), primal infeasible (also
+    "almost", reported as infeasible: the caller explains it); anything else -- dual
+    infeasible, which a QP with every variable boxed cannot truly be, iteration or time limits,
+    numerical errors -- is a failure."""
+    import clarabel
+
+    s = clarabel.SolverStatus
+    return {s.Solved: SolveStatus.OPTIMAL,
+            s.AlmostSolved: SolveStatus.OPTIMAL_INACCURATE,
+            s.PrimalInfeasible: SolveStatus.INFEASIBLE,
+            s.AlmostPrimalInfeasible: SolveStatus.INFEASIBLE}.get(code, SolveStatus.FAILED)
+
+
 def _accel_minus_slope(at_first_node: bool, fh, slope):
     """Coefficients on (b_from, b_to) of ``a - slope * b_end`` for a step whose acceleration at
     this end is ``a = fh (b_to - b_from)``, ``b_end`` being the step's first or last node."""
@@ -426,15 +440,7 @@ def _solve_qp_clarabel(P, q, A, lo, up, eps, centre=None, scale=None, refine=Tru
     settings.iterative_refinement_enable = refine
     solver = clarabel.DefaultSolver(sp.triu(P, format="csc"), q, Aall, ball, cones, settings)
     sol = solver.solve()
-    name = str(sol.status).lower()
-    if name.endswith("solved") and "almost" not in name:
-        status = SolveStatus.OPTIMAL
-    elif "almost" in name:
-        status = SolveStatus.OPTIMAL_INACCURATE
-    elif "infeasible" in name:
-        status = SolveStatus.INFEASIBLE
-    else:
-        status = SolveStatus.FAILED
+    status = _clarabel_status(sol.status)
     x = np.asarray(sol.x)
     if centre is not None and x.size == scale.size:
         x = centre + scale * x
