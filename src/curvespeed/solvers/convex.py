@@ -24,11 +24,12 @@ problem of :mod:`curvespeed.problem` with the squared speeds ``b`` as variables:
 Each iteration solves one sparse, banded QP with Clarabel (an interior-point method: the time
 objective's curvature spans orders of magnitude between slow and fast stretches, which a
 first-order method such as OSQP did not converge on within 20 000 iterations even with variables
-and rows scaled; an interior-point method is indifferent to it), then a line search on the true objective between the previous iterate and the QP's answer: the
-segment lies inside the conservative feasible set, so every accepted iterate is feasible for the
-real limits and the time never increases. Break points and tangents move to the new iterate and
-the loop stops when the objective (the time, plus any comfort term) improves by less than
-``rel_improvement`` of the route's time.
+and rows scaled; an interior-point method is indifferent to it), then a line search on the true
+objective between the previous iterate and the QP's answer: the segment lies inside the
+conservative feasible set, so every accepted iterate is feasible for the real limits and the
+objective never increases. Break points and tangents move to the new iterate and the loop stops
+when the objective (the time, plus any comfort term) improves by less than ``rel_improvement``
+of the route's time.
 
 Stops and stations held at a speed cap cut the route into independent stretches (blocks); they
 are grouped into batches, one QP each, solved at once on the processor's cores.
@@ -259,7 +260,8 @@ class _QPBuilder:
                 f = hi_pts if side == "hi" else lo_pts
                 f0, fm, fe = f[0][end], f[1][end], f[2][end]
                 p0, pm_, pe = pts[0][end], pts[1][end], pts[2][end]
-                whole = np.where(pe - p0 > 1e-12, (fe - f0) / np.where(pe - p0 > 1e-12, pe - p0, 1), 0)
+                wide = pe - p0 > 1e-12
+                whole = np.where(wide, (fe - f0) / np.where(wide, pe - p0, 1.0), 0.0)
                 dev = np.abs(fm - (f0 + whole * (pm_ - p0)))
                 single = dev <= self.opt.chord_tolerance_mps2
                 for seg, (p1, p2, f1, f2) in enumerate(((p0, pm_, f0, fm), (pm_, pe, fm, fe))):
@@ -570,10 +572,10 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
                                               options.comfort_weight)
                               for k in range(n_blocks)]
             row_block = node_block[free_idx][A.indices[A.indptr[:-1]]]
-            # Blocks are solved in batches: one QP per batch is block-diagonal, so each block's part
-            # of its answer is that block's own optimum, while the fixed cost of a solver call is
-            # paid once per batch rather than once per block. Batches are balanced over the
-            # worker threads (Clarabel releases the interpreter lock while it solves).
+            # Blocks are solved in batches: one QP per batch is block-diagonal, so each block's
+            # part of its answer is that block's own optimum, while the fixed cost of a solver
+            # call is paid once per batch rather than once per block. Batches are balanced over
+            # the worker threads (Clarabel releases the interpreter lock while it solves).
             gap_abs = options.qp_gap_fraction * t_total * qp["scale"]
             jobs = []
             for batch in _batches(np.flatnonzero(active), blocks, threads):
@@ -583,8 +585,9 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
                        qp["up"][rows])
                 glob = free_idx[cols]
                 centre, scale = b_hat[glob], np.maximum(b_env[glob], 1.0)
-                jobs.append((batch, cols, glob, pool.submit(_solve_batch, sub, options.qp_tolerance,
-                                                            gap_abs, centre, scale)))
+                job = pool.submit(_solve_batch, sub, options.qp_tolerance, gap_abs, centre,
+                                  scale)
+                jobs.append((batch, cols, glob, job))
             for batch, cols, glob, job in jobs:
                 x, st, its, retry_notes = job.result()
                 qp_iterations += its
@@ -770,10 +773,10 @@ def _explain_infeasible(problem: SpeedProblem) -> str:
         for k in problem.stop_nodes:
             avail = problem.station_m[k] - problem.station_m[0]
             if need > avail:
-                return (f"{problem.source}: start speed {v0:.2f} m/s: the stop at station {problem.station_m[k]:.1f}"
-                        f" m needs {need:.1f} m of jerk-limited braking (decel {a:g} m/s^2, "
-                        f"jerk {j:g} m/s^3) but only {avail:.1f} m are available; lower the start"
-                        " speed or move the stop")
-    return (f"{problem.source}: no speed profile satisfies the jerk bound together with the other limits and "
-            "constraints (stops, zones, start and end speed); relax max_jerk_mps3 or the "
-            "constraints near the start and the stops")
+                return (f"{problem.source}: start speed {v0:.2f} m/s: the stop at station "
+                        f"{problem.station_m[k]:.1f} m needs {need:.1f} m of jerk-limited "
+                        f"braking (decel {a:g} m/s^2, jerk {j:g} m/s^3) but only {avail:.1f} m "
+                        "are available; lower the start speed or move the stop")
+    return (f"{problem.source}: no speed profile satisfies the jerk bound together with the "
+            "other limits and constraints (stops, zones, start and end speed); relax "
+            "max_jerk_mps3 or the constraints near the start and the stops")
