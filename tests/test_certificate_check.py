@@ -288,7 +288,8 @@ def test_csv_with_unsorted_stations_or_negative_speeds_names_the_line(tmp_path):
     with pytest.raises(SpeedFileError, match=r"u\.csv: line 4: station_m 200 is not after 300"):
         read_speed_trace(path, geo)
     path = write_speeds_csv(tmp_path / "n.csv", [0.0, 300.0, 750.0], [5.0, -2.0, 5.0])
-    with pytest.raises(SpeedFileError, match=r"n\.csv: line 3: speed_mps -2 is negative"):
+    with pytest.raises(SpeedFileError,
+                       match=r"n\.csv: line 3: speed_mps -2 is negative \(station 300\.0 m\)"):
         read_speed_trace(path, geo)
 
 

@@ -17,9 +17,9 @@ from hypothesis import strategies as st
 from curvespeed.errors import SpeedFileError
 from curvespeed.export import (SamplingMode, StationProfile, make_station_profile,
                                sample_by_station, sample_in_time)
-from curvespeed.io.profile_csv import write_profile_csv
+from curvespeed.io.profile_csv import read_station_profile, write_profile_csv
 from curvespeed.io.table_csv import read_table_csv
-from curvespeed.io.trajectory import read_station_profile, write_trajectory_csv
+from curvespeed.io.trajectory import write_trajectory_csv
 from curvespeed.limits import Limits, RouteConstraints, Stop
 from curvespeed.planner import plan_profile
 

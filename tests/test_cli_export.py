@@ -242,11 +242,20 @@ def edit_profile(path, tmp_path, line: int, column: str, value: str):
 
 
 @pytest.mark.parametrize("line, column, value, message", [
-    (12, "station_m", "5.0000", "line 12 (station 5.0 m): station does not increase"),
-    (30, "speed_mps", "-1.0", "line 30 (station 28.0 m): speed -1 m/s is negative"),
+    (12, "station_m", "5.0000", "line 12: station_m 5 is not after 9 on line 11; stations must"),
+    (30, "speed_mps", "-1.0", "line 30: speed_mps -1 is negative (station 28.0 m); give speeds"),
     (2, "speed_mps", "0.0", None),   # start at rest: fine (a row with zero next to it is not)
+    # (line 2's step is marked constant_jerk: a step with both ends at rest is refused as never
+    # driven before its step_kind is judged)
     (3, "speed_mps", "0.0", "line 2 (station 0.0 m): speed is zero here and at the next"),
     (50, "x_m", "abc", "line 50: column 'x_m' value 'abc' is not a number"),
+    (40, "step_kind", "cubic", "line 40: column 'step_kind' value 'cubic' is not a step kind; "
+                               "use constant_accel or constant_jerk"),
+    (40, "step_kind", "", "line 40: column 'step_kind' value '' is not a step kind"),
+    (40, "step_kind", "constant_jerk", "line 40: column 'step_kind' value 'constant_jerk' is "
+                                       "allowed only on a step with exactly one end at rest"),
+    (242, "step_kind", "junk", "line 242: column 'step_kind' value 'junk' is not a step kind"),
+    (242, "step_kind", "constant_jerk", None),   # no step after the last row: its kind is ignored
 ])
 def test_bad_profile_rows_are_named(metric, tmp_path, line, column, value, message):
     path, _ = metric
@@ -281,6 +290,106 @@ def test_edited_time_column_warns(metric, tmp_path):
     with pytest.warns(CurvespeedWarning, match=r"line 100 .*time_s differs by"):
         result = run(export, bad, "-o", out)
     assert result.exit_code == 0
+
+
+# -- steps next to rest: the step_kind column ---------------------------------------------------
+
+@pytest.fixture(scope="module")
+def planned_with_stop(tmp_path_factory):
+    """``curvespeed plan`` (default limits, which bound jerk) of an invented 200 m straight with
+    a stop at 100 m; returns the folder and the profile CSV."""
+    from curvespeed.cli.plan_cmd import plan
+
+    folder = tmp_path_factory.mktemp("stop")
+    route = folder / "straight.csv"
+    route.write_text("x_m,y_m\n" + "".join(f"{x:.1f},0.0\n" for x in range(0, 201, 5)))
+    profile = folder / "profile.csv"
+    result = run(plan, route, "--stop", "100", "-o", profile)
+    assert result.exit_code == 0, result.output
+    return folder, profile
+
+
+def without_column(path, column: str, out):
+    """Copy the profile CSV without one column."""
+    rows = [line.split(",") for line in path.read_text().splitlines()]
+    j = rows[0].index(column)
+    out.write_text("".join(",".join(r[:j] + r[j + 1:]) + "\n" for r in rows))
+    return out
+
+
+def test_plan_writes_the_kind_of_every_step(planned_with_stop):
+    _, profile = planned_with_stop
+    table = read_table_csv(profile)
+    names = list(table.columns)
+    assert names[names.index("binding") + 1] == "step_kind"
+    kinds = table.columns["step_kind"]
+    s, v, t = (table.columns[c] for c in ("station_m", "speed_mps", "time_s"))
+    rest = v <= 0.0
+    assert rest[0] and rest[-1] and rest[np.argmin(abs(s - 100.0))] and rest.sum() == 3
+    assert kinds[-1] == ""                                    # no step after the last station
+    cubic = kinds[:-1] == "constant_jerk"
+    np.testing.assert_array_equal(cubic, rest[:-1] != rest[1:])   # the 4 steps next to rest
+    assert set(kinds[:-1][~cubic]) == {"constant_accel"}
+    # the written times agree with the kinds (module docstring of curvespeed.problem): 3 ds / v
+    # next to rest, 2 ds / (v[k] + v[k+1]) elsewhere. Tolerance: stations are written to 0.1 mm
+    # (1e-4 of a ~1 m step), speeds and times to 1e-6; the kinds differ by a factor 1.5.
+    coef = np.where(cubic, 3.0, 2.0)
+    np.testing.assert_allclose(np.diff(t), coef * np.diff(s) / (v[:-1] + v[1:]),
+                               rtol=2e-4, atol=2e-6)
+
+
+def test_export_follows_the_step_kinds(planned_with_stop, tmp_path):
+    folder, profile = planned_with_stop
+    out = tmp_path / "trajectory.csv"
+    result = run(export, profile, "--dt", "0.05", "--dwell", "2", "-o", out)
+    assert result.exit_code == 0, result.output
+    cols = read_table_csv(out).columns
+    # leaving rest at constant jerk: zero acceleration at the start, then rising
+    assert cols["accel_mps2"][0] == 0.0 and cols["accel_mps2"][1] > 0.0
+    # without time_s only step_kind tells which steps are driven at constant jerk: the same
+    # trajectory, to the byte
+    no_time = without_column(profile, "time_s", tmp_path / "no_time.csv")
+    same = tmp_path / "same.csv"
+    result = run(export, no_time, "--dt", "0.05", "--dwell", "2", "-o", same)
+    assert result.exit_code == 0, result.output
+    assert same.read_bytes() == out.read_bytes()
+    # every step marked constant_accel: sampled that way, so it is a different trajectory that
+    # starts with the step's full acceleration and is shorter by ds / v on each step next to rest
+    s, v, kinds = (read_table_csv(no_time).columns[c]
+                   for c in ("station_m", "speed_mps", "step_kind"))
+    flat = tmp_path / "flat.csv"
+    flat.write_text(no_time.read_text().replace("constant_jerk", "constant_accel"))
+    other = tmp_path / "other.csv"
+    result = run(export, flat, "--dt", "0.05", "--dwell", "2", "-o", other)
+    assert result.exit_code == 0, result.output
+    flat_cols = read_table_csv(other).columns
+    # a = v1^2 / (2 ds) from the file's own values; written to 1e-6 m/s^2
+    assert flat_cols["accel_mps2"][0] == pytest.approx(v[1] ** 2 / (2 * (s[1] - s[0])),
+                                                       abs=1e-6)
+    cubic = kinds[:-1] == "constant_jerk"
+    saved = np.sum((np.diff(s) / (v[:-1] + v[1:]))[cubic])
+    # both totals come from the same file's stations and speeds; each is written to 1e-6 s
+    assert cols["time_s"][-1] - flat_cols["time_s"][-1] == pytest.approx(saved, abs=1e-6)
+
+
+def test_profile_without_step_kind_exports_as_before(planned_with_stop, tmp_path):
+    # files written before the column existed (or by hand): the steps next to rest are
+    # recognised from time_s, as before, and give the same trajectory as the column does
+    _, profile = planned_with_stop
+    out = tmp_path / "trajectory.csv"
+    assert run(export, profile, "--station-step", "0.5", "-o", out).exit_code == 0
+    old = without_column(profile, "step_kind", tmp_path / "old.csv")
+    same = tmp_path / "same.csv"
+    result = run(export, old, "--station-step", "0.5", "-o", same)
+    assert result.exit_code == 0, result.output
+    assert same.read_bytes() == out.read_bytes()
+    # without either column nothing marks a step as constant jerk: constant acceleration
+    # everywhere, so the start has the first step's full acceleration
+    bare = without_column(old, "time_s", tmp_path / "bare.csv")
+    flat = tmp_path / "flat.csv"
+    assert run(export, bare, "--station-step", "0.5", "-o", flat).exit_code == 0
+    assert read_table_csv(same).columns["accel_mps2"][0] == 0.0
+    assert read_table_csv(flat).columns["accel_mps2"][0] > 0.0
 
 
 # -- plot --------------------------------------------------------------------------------------

@@ -172,6 +172,16 @@ def _out_and_back() -> str:
     return csv_text(x, y)
 
 
+def _profile_with_step_kind(line: int, kind: str) -> str:
+    """A hand-made profile of a 10 m straight (1 m stations, rest to rest) whose step_kind on
+    file ``line`` is ``kind``; every other step is marked as planned with a jerk bound."""
+    v = [0.0, 1.0, 2.0, 2.0, 2.0, 2.0, 2.0, 2.0, 2.0, 1.0, 0.0]
+    kinds = ["constant_jerk"] + ["constant_accel"] * 8 + ["constant_jerk", ""]
+    kinds[line - 2] = kind                 # line 1 is the header
+    return "station_m,x_m,y_m,heading_rad,curvature_1pm,speed_mps,step_kind\n" + "".join(
+        f"{s}.0,{s}.0,0.0,0.0,0.0,{speed},{k}\n" for s, (speed, k) in enumerate(zip(v, kinds)))
+
+
 BEND = csv_text(*bend_xy())
 LIMITS_FILE = "limits.toml"
 
@@ -284,6 +294,15 @@ REFUSED = {
     "two stops closer than three station steps": (
         "plan", {"r.csv": BEND}, ["{r.csv}", "--stop", "60", "--stop", "61", "-o", "{out}"],
         None, ["both at rest", "move the stops apart"]),
+    "profile with a step kind curvespeed does not know": (
+        "export", {"p.csv": _profile_with_step_kind(6, "cubic")}, ["{p.csv}", "-o", "{out}"],
+        "p.csv", ["line 6:", "'step_kind' value 'cubic' is not a step kind",
+                  "use constant_accel or constant_jerk", "remove the column"]),
+    "profile with a constant-jerk step away from rest": (
+        "export", {"p.csv": _profile_with_step_kind(6, "constant_jerk")},
+        ["{p.csv}", "-o", "{out}"], "p.csv",
+        ["line 6:", "'constant_jerk' is allowed only on a step with exactly one end at rest",
+         "speed_mps is 2 here and 2 on line 7", "use constant_accel there"]),
 }
 
 

@@ -176,6 +176,7 @@ def test_matplotlib_is_imported_lazily_and_never_pyplot():
     code = (
         "import sys\n"
         "import curvespeed.plots, curvespeed.export, curvespeed.io.trajectory\n"
+        "import curvespeed.io.profile_csv, curvespeed.io.meta_json\n"
         "assert 'matplotlib' not in sys.modules, 'imported at module level'\n"
         "import numpy as np\n"
         "from curvespeed.export import make_station_profile\n"

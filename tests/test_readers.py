@@ -1,4 +1,5 @@
-"""Route readers (CSV, GeoJSON, GPX), read_route dispatch and the geometry CSV writer.
+"""Route readers (CSV, GeoJSON, GPX), read_route dispatch, the geometry CSV writer and the
+profile CSV reader.
 
 Small files are written into ``tmp_path``; every coordinate and route here is invented for the
 test. Error tests match fragments of the message: file name, place (line / position / point)
@@ -9,6 +10,7 @@ from __future__ import annotations
 
 import math
 import time
+import warnings
 
 import numpy as np
 import pytest
@@ -22,6 +24,7 @@ from curvespeed.geometry import Geometry
 from curvespeed.io import ROUTE_EXTENSIONS, read_route
 from curvespeed.io._format import format_column, format_columns
 from curvespeed.io.geometry_csv import write_geometry_csv
+from curvespeed.io.profile_csv import read_station_profile
 
 GPX11 = "http://www.topografix.com/GPX/1/1"
 GPX10 = "http://www.topografix.com/GPX/1/0"
@@ -533,6 +536,38 @@ def test_geometry_csv_deterministic_and_refuses_overwrite(tmp_path):
     first_line = a.read_text(encoding="utf-8").split("\n")[0]
     assert first_line == "station_m,x_m,y_m,heading_rad,curvature_1pm"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["a.csv", "b.csv"]  # no temp files
+
+
+# ------------------------------------------------------------------------- profile CSV reader
+
+def rest_to_rest_profile(tmp_path, kinds: list[str] | None):
+    """A hand-made profile of a 6 m straight at 1 m stations, from rest to rest, whose time_s
+    is that of constant acceleration on every step (2 ds / (v[k] + v[k+1]))."""
+    v = np.array([0.0, 1.0, 2.0, 2.0, 2.0, 1.0, 0.0])
+    t = np.concatenate(([0.0], np.cumsum(2.0 / (v[:-1] + v[1:]))))
+    head = "station_m,x_m,y_m,heading_rad,curvature_1pm,speed_mps,time_s"
+    rows = [f"{k}.0,{k}.0,0.0,0.0,0.0,{v[k]},{t[k]:.6f}" for k in range(v.size)]
+    if kinds is not None:
+        head += ",step_kind"
+        rows = [f"{row},{kind}" for row, kind in zip(rows, kinds)]
+    return write(tmp_path, "p.csv", "\n".join([head] + rows) + "\n")
+
+
+def test_profile_step_kind_column_is_used_over_time_s(tmp_path):
+    # step_kind marks the two steps next to rest as constant jerk although time_s holds their
+    # constant-acceleration times: the column decides, and the reader warns of the disagreement
+    # (3 ds / v against 2 ds / v: 1 s more on each of the two 1 m steps at 1 m/s)
+    kinds = ["constant_jerk"] + ["constant_accel"] * 4 + ["constant_jerk", ""]
+    with pytest.warns(CurvespeedWarning, match=r"line 8 \(station 6\.0 m\): time_s differs by "
+                                               r"2\.000 s"):
+        sp = read_station_profile(rest_to_rest_profile(tmp_path, kinds))
+    np.testing.assert_array_equal(sp.cubic_step, [True, False, False, False, False, True])
+    assert sp.step_time_s[0] == sp.step_time_s[-1] == 3.0
+    # the same file without the column: recognised from time_s, which says constant acceleration
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        sp = read_station_profile(rest_to_rest_profile(tmp_path, None))
+    assert not sp.cubic_step.any() and sp.step_time_s[0] == 2.0
 
 
 def test_format_helpers():

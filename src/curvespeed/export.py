@@ -19,9 +19,11 @@ Steps next to rest under a jerk bound
     stop, the end) is driven at constant jerk, so that the acceleration is zero at rest: it takes
     ``T[k] = 3 ds / v`` (``v`` the speed at its moving end) and, with ``x = tau / T`` leaving
     rest, ``s = s[k] + ds x**3``, ``v = v[k+1] x**2``, ``a = 2 v[k+1] x / T`` (uniform-jerk
-    kinematics; arriving at rest is the mirror image). Such steps are recognised from the
-    profile's own ``time_s`` (a step time of ``3 ds / v`` instead of ``2 ds / v``), so the export
-    follows whichever model produced the profile.
+    kinematics; arriving at rest is the mirror image). The profile says which steps these are
+    (:attr:`Profile.cubic_step <curvespeed.profile.Profile.cubic_step>`, the ``step_kind``
+    column of a profile CSV); a profile CSV without that column has them recognised from its
+    own ``time_s`` (a step time of ``3 ds / v`` instead of ``2 ds / v``, see
+    :func:`detect_cubic_steps`), so the export follows whichever model produced the profile.
 
 All formulas are used as they stand: samples are placed step by step from node times that are
 sums of ``T[k]``, so nothing is integrated numerically and nothing drifts; the last sample is the
@@ -73,7 +75,7 @@ class StationProfile:
     """Planned speeds at stations, with the route geometry: what export and plots need.
 
     Built from a :class:`~curvespeed.profile.Profile` (:meth:`from_profile`) or from a profile
-    CSV (:func:`curvespeed.io.trajectory.read_station_profile`), always through
+    CSV (:func:`curvespeed.io.profile_csv.read_station_profile`), always through
     :func:`make_station_profile`, which checks it.
 
     Attributes
@@ -143,7 +145,8 @@ class StationProfile:
             jerk_mps3=profile.jerk_mps3, lat_accel_mps2=profile.lat_accel_mps2,
             limit_speed_mps=profile.limit_speed_mps, binding=profile.binding, z_m=geo.z_m,
             grade=geo.grade, lat=None if latlon is None else latlon[0],
-            lon=None if latlon is None else latlon[1], name=geo.name, source=geo.source)
+            lon=None if latlon is None else latlon[1], name=geo.name, source=geo.source,
+            cubic_step=profile.cubic_step)
 
     @property
     def n_nodes(self) -> int:
@@ -210,9 +213,13 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
     ------
     SpeedFileError
         Arrays of different lengths, fewer than two nodes, a value that is not finite, stations
-        not strictly increasing, a negative speed, a step with zero speed at both ends (the
-        vehicle would never cover it), or only one of ``lat``/``lon``. The message names
-        ``source``, the node (``where`` label or index) and its station.
+        not strictly increasing or a negative speed (:func:`check_stations_and_speeds`), a step
+        with zero speed at both ends (the vehicle would never cover it), or only one of
+        ``lat``/``lon``. The message names ``source``, the node (``where`` label or index) and
+        its station.
+    ValueError
+        ``cubic_step`` without one flag per step, or set on a step that does not have exactly
+        one end at rest (:func:`steps_next_to_rest`); readers check their files for this first.
     """
     def arr(values):
         return None if values is None else np.asarray(values, dtype=float).ravel()
@@ -253,18 +260,7 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
             place = labels[k] if labels is not None else f"node {k}"
             raise SpeedFileError(f"{source}: {place}: {name_} is not a finite number; fix or "
                                  "remove that row")
-    steps = np.diff(s)
-    bad = np.flatnonzero(steps <= 0.0)
-    if bad.size:
-        k = int(bad[0]) + 1
-        raise SpeedFileError(f"{at(k)}: station does not increase (previous row has "
-                             f"{s[k - 1]:.4f} m); rows must be in driving order with distinct "
-                             "stations")
-    bad = np.flatnonzero(v < 0.0)
-    if bad.size:
-        k = int(bad[0])
-        raise SpeedFileError(f"{at(k)}: speed {v[k]:g} m/s is negative; speeds are magnitudes "
-                             "along the direction of travel")
+    check_stations_and_speeds(s, v, source, labels)
     bad = np.flatnonzero((v[:-1] <= 0.0) & (v[1:] <= 0.0))
     if bad.size:
         k = int(bad[0])
@@ -276,8 +272,7 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
         cubic = detect_cubic_steps(s, v, optional["time_s"])
     else:
         cubic = np.asarray(cubic_step, dtype=bool).ravel()
-        one_rest = (v[:-1] <= 0.0) != (v[1:] <= 0.0)
-        if cubic.size != n - 1 or np.any(cubic & ~one_rest):
+        if cubic.size != n - 1 or np.any(cubic & ~steps_next_to_rest(v)):
             raise ValueError("cubic_step must have one flag per step, set only on steps with "
                              "exactly one end at rest")
     return StationProfile(
@@ -287,20 +282,69 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
         **optional)
 
 
+def check_stations_and_speeds(station_m, speed_mps, source: str, where=None) -> None:
+    """Check rows of station and speed: stations strictly increasing, no negative speed.
+
+    The one check of station/speed rows, for profiles (:func:`make_station_profile`) and for
+    speeds to check (:mod:`curvespeed.io.speed_trace`). Raises at the first row that fails.
+
+    Parameters
+    ----------
+    station_m, speed_mps : array_like, shape (n,)
+        Stations (metres) and speeds (m/s) of the rows, finite.
+    source : str
+        Where the rows come from (a file name), at the start of every message.
+    where : sequence of str, optional
+        Label of each row in its source ("line 12"); default "node k".
+
+    Raises
+    ------
+    SpeedFileError
+        A station that is not after the previous one (both rows named), or a negative speed
+        (row and station named); the message says what to do.
+    """
+    s = np.asarray(station_m, dtype=float)
+    v = np.asarray(speed_mps, dtype=float)
+
+    def place(k: int) -> str:
+        return str(where[k]) if where is not None else f"node {k}"
+
+    back = np.flatnonzero(np.diff(s) <= 0.0)
+    if back.size:
+        k = int(back[0]) + 1
+        # 10 significant digits: the 0.1 mm of a written station on routes up to 1000 km
+        raise SpeedFileError(f"{source}: {place(k)}: station_m {s[k]:.10g} is not after "
+                             f"{s[k - 1]:.10g} on {place(k - 1)}; stations must increase in "
+                             "driving order (sort the rows by station and remove repeats)")
+    negative = np.flatnonzero(v < 0.0)
+    if negative.size:
+        k = int(negative[0])
+        raise SpeedFileError(f"{source}: {place(k)}: speed_mps {v[k]:g} is negative (station "
+                             f"{s[k]:.1f} m); give speeds as magnitudes along the direction of "
+                             "travel")
+
+
+def steps_next_to_rest(speed_mps) -> np.ndarray:
+    """Steps with exactly one end at rest (speed 0), bool per step: the only steps that may
+    be driven at constant jerk (module docstring)."""
+    v = np.asarray(speed_mps, dtype=float)
+    return (v[:-1] <= 0.0) != (v[1:] <= 0.0)
+
+
 def detect_cubic_steps(station_m, speed_mps, time_s) -> np.ndarray:
     """Steps next to rest that the profile's times show were driven at constant jerk.
 
     A step with exactly one end at rest takes ``2 ds / v`` at constant acceleration and
     ``3 ds / v`` at constant jerk; the step's time in ``time_s`` decides (threshold halfway,
     ``2.5 ds / v``, far from either despite the file's rounding). Without ``time_s``: none.
+    Used for profile CSV files without a ``step_kind`` column (older or hand-made files).
     """
     s = np.asarray(station_m, dtype=float)
     v = np.asarray(speed_mps, dtype=float)
     if time_s is None:
         return np.zeros(s.size - 1, dtype=bool)
-    one_rest = (v[:-1] <= 0.0) != (v[1:] <= 0.0)
     ratio = np.diff(np.asarray(time_s, dtype=float)) * (v[:-1] + v[1:]) / np.diff(s)
-    return one_rest & (ratio > 2.5)
+    return steps_next_to_rest(v) & (ratio > 2.5)
 
 
 def as_station_profile(profile) -> StationProfile:

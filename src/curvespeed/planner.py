@@ -65,6 +65,7 @@ def plan_profile(geometry: Geometry, limits: Limits, constraints: RouteConstrain
         geometry=geometry,
         speed_mps=v,
         step_accel_mps2=d["step_accel_mps2"],
+        cubic_step=problem.time_coef[: v.size - 1] == 3.0,
         accel_mps2=d["accel_mps2"],
         jerk_mps3=d["jerk_mps3"],
         lat_accel_mps2=geometry.curvature_1pm * v * v,

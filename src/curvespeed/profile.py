@@ -4,7 +4,8 @@ Derived quantities follow the discrete model of :mod:`curvespeed.problem` (b lin
 within each step):
 
 * ``time_s[k]``: sum of step times ``2 ds / (v[j] + v[j+1])`` up to node k (exact for uniform
-  acceleration over each step);
+  acceleration over each step), ``3 ds / v`` on a constant-jerk step next to rest
+  (:attr:`Profile.cubic_step`);
 * ``accel_mps2[k]``: mean of the accelerations of the steps meeting at node k (one step at the
   ends); the step values themselves are in :attr:`Profile.step_accel_mps2`;
 * ``jerk_mps3[k]``: change of step acceleration across node k divided by the time between the two
@@ -35,6 +36,11 @@ class Profile:
         Speed at each node, m/s.
     step_accel_mps2 : ndarray, shape (n,)
         Acceleration along the path of each step, m/s^2.
+    cubic_step : ndarray of bool, shape (n,)
+        Steps driven at constant jerk: with a jerk bound, a step with exactly one end at rest
+        (the start, a stop, the end) takes ``3 ds / v`` instead of ``2 ds / v``
+        (:attr:`SpeedProblem.time_coef <curvespeed.problem.SpeedProblem.time_coef>` is 3 there,
+        see :mod:`curvespeed.problem`); every other step has constant acceleration.
     accel_mps2, jerk_mps3, lat_accel_mps2, time_s : ndarray
         Per-node acceleration (m/s^2), jerk (m/s^3), lateral acceleration (m/s^2) and time (s),
         as defined in the module docstring.
@@ -57,6 +63,7 @@ class Profile:
     geometry: Geometry
     speed_mps: np.ndarray
     step_accel_mps2: np.ndarray
+    cubic_step: np.ndarray
     accel_mps2: np.ndarray
     jerk_mps3: np.ndarray
     lat_accel_mps2: np.ndarray

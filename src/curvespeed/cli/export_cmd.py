@@ -47,7 +47,8 @@ def export(profile_file, output, fmt, dt_s, station_step_m, dwell_s, force):
     from ..export import (count_station_samples, count_time_samples, sample_by_station,
                           sample_in_time)
     from ..io.atomic import check_writable
-    from ..io.trajectory import format_from_suffix, read_station_profile, write_trajectory
+    from ..io.profile_csv import read_station_profile
+    from ..io.trajectory import format_from_suffix, write_trajectory
 
     if dt_s is not None and station_step_m is not None:
         raise click.UsageError("--dt and --station-step exclude each other; give one of them")
@@ -106,8 +107,7 @@ def _route_name(profile_file) -> str | None:
     import warnings
 
     from ..errors import CurvespeedWarning, SpeedFileError
-    from ..io.meta_json import default_meta_path
-    from ..io.trajectory import read_profile_meta
+    from ..io.meta_json import default_meta_path, read_profile_meta
 
     meta = default_meta_path(profile_file)
     if not meta.is_file():

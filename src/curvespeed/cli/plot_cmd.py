@@ -26,8 +26,8 @@ def plot(profile_file, output, meta_file, force):
     speed. No display is needed.
     """
     from ..io.atomic import check_writable
-    from ..io.meta_json import default_meta_path
-    from ..io.trajectory import read_profile_meta, read_station_profile
+    from ..io.meta_json import default_meta_path, read_profile_meta
+    from ..io.profile_csv import read_station_profile
     from ..plots import figure_format, save_overview
 
     figure_format(output)

@@ -8,19 +8,27 @@ the time and the fraction the profile takes longer), ``peak_use`` (peak use of e
 1.0 = at the limit), ``peaks`` (peak acceleration, deceleration, lateral acceleration, jerk and
 lateral jerk in SI units), ``binding_stretches``.
 No time stamps, so the same inputs give the same bytes.
+
+:func:`read_profile_meta` reads the sidecar back (for ``curvespeed export`` and ``plot``): the
+route's name, whether it is a loop, the planned time, and the limits and route constraints the
+profile was planned with (:class:`ProfileSidecar`).
 """
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import json
 import math
 import os
+from dataclasses import dataclass
 from pathlib import Path
 
 from .. import __version__
-from ..limits import Limits, RouteConstraints
+from ..errors import SpeedFileError
+from ..limits import Limits, RouteConstraints, SpeedZone, Stop, Superelevation
 from ..profile import Profile
+from ._common import read_text
 from .atomic import atomic_open, check_writable
 
 
@@ -93,5 +101,103 @@ def write_meta_json(meta: dict, path: str | os.PathLike, force: bool = False) ->
     return Path(path)
 
 
-__all__ = ["check_writable", "default_meta_path", "file_sha256", "json_safe", "profile_meta",
-           "write_meta_json"]
+# -- reading -----------------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class ProfileSidecar:
+    """What a profile's JSON sidecar says about how the profile was made.
+
+    Attributes
+    ----------
+    limits : Limits
+        The vehicle limits used.
+    constraints : RouteConstraints
+        Zones, stops, superelevation and end speeds used.
+    route_name : str or None
+        The route's name.
+    closed : bool or None
+        Whether the route is a loop.
+    total_time_s : float or None
+        Planned time, s.
+    source : str
+        The sidecar's file name.
+    """
+
+    limits: Limits
+    constraints: RouteConstraints
+    route_name: str | None
+    closed: bool | None
+    total_time_s: float | None
+    source: str
+
+
+def read_profile_meta(path: str | os.PathLike) -> ProfileSidecar:
+    """Read a profile's JSON sidecar (``PROFILE.meta.json``).
+
+    Raises
+    ------
+    SpeedFileError
+        Missing or unreadable file, invalid JSON, or a ``limits``/``constraints`` entry that is
+        not what ``curvespeed plan`` writes; the message names the file and the key.
+    """
+    source = str(path)
+    text = read_text(path, SpeedFileError)
+    try:
+        doc = json.loads(text)
+    except json.JSONDecodeError as exc:
+        raise SpeedFileError(f"{source}: line {exc.lineno}, column {exc.colno}: not valid JSON "
+                             f"({exc.msg}); write the sidecar again with curvespeed plan") from None
+    if not isinstance(doc, dict) or not isinstance(doc.get("limits"), dict):
+        raise SpeedFileError(f"{source}: no \"limits\" object; this is not a curvespeed profile "
+                             "sidecar (PROFILE.meta.json written by curvespeed plan)")
+
+    def number(value, key: str, optional: bool = False):
+        if value is None and optional:
+            return None
+        if isinstance(value, bool) or not isinstance(value, (int, float)) \
+                or not math.isfinite(value):
+            raise SpeedFileError(f"{source}: {key} must be a finite number, got "
+                                 f"{json.dumps(value)[:40]}")
+        return float(value)
+
+    fields = {f.name: f for f in dataclasses.fields(Limits)}
+    optional_limits = {"max_jerk_mps3", "lateral_friction_coefficient", "max_power_w", "mass_kg"}
+    values = {key: number(value, f"limits.{key}", key in optional_limits)
+              for key, value in doc["limits"].items() if key in fields}
+    limits = Limits(**values)
+
+    raw = doc.get("constraints") or {}
+    if not isinstance(raw, dict):
+        raise SpeedFileError(f"{source}: \"constraints\" must be an object")
+
+    def entries(key: str, cls, names: tuple[str, ...]):
+        items = raw.get(key) or []
+        if not isinstance(items, list):
+            raise SpeedFileError(f"{source}: constraints.{key} must be a list")
+        out = []
+        for i, item in enumerate(items):
+            label = f"constraints.{key}[{i}]"
+            if not isinstance(item, dict) or any(n not in item for n in names):
+                raise SpeedFileError(f"{source}: {label} needs {', '.join(names)}")
+            nums = [number(item[n], f"{label}.{n}") for n in names]
+            out.append(cls(*nums, origin=str(item.get("origin") or "")))
+        return tuple(out)
+
+    constraints = RouteConstraints(
+        zones=entries("zones", SpeedZone, ("start_m", "end_m", "max_speed_mps")),
+        stops=entries("stops", Stop, ("station_m",)),
+        superelevation=entries("superelevation", Superelevation, ("start_m", "end_m", "rate")),
+        start_speed_mps=number(raw.get("start_speed_mps"), "constraints.start_speed_mps", True),
+        end_speed_mps=number(raw.get("end_speed_mps"), "constraints.end_speed_mps", True))
+    route = doc.get("route") if isinstance(doc.get("route"), dict) else {}
+    name = route.get("name") if isinstance(route.get("name"), str) else None
+    closed = route.get("closed") if isinstance(route.get("closed"), bool) else None
+    total = doc.get("total_time_s")
+    total = float(total) if isinstance(total, (int, float)) and not isinstance(total, bool) \
+        else None
+    return ProfileSidecar(limits=limits, constraints=constraints, route_name=name, closed=closed,
+                          total_time_s=total, source=source)
+
+
+__all__ = ["ProfileSidecar", "check_writable", "default_meta_path", "file_sha256", "json_safe",
+           "profile_meta", "read_profile_meta", "write_meta_json"]

@@ -1,4 +1,5 @@
-"""Write a :class:`~curvespeed.profile.Profile` as CSV.
+"""A :class:`~curvespeed.profile.Profile` as CSV: written by ``curvespeed plan``, read back by
+``curvespeed export`` and ``plot``.
 
 Columns, in this order (more may follow in later versions; readers should go by name):
 
@@ -7,6 +8,11 @@ lat_accel_mps2, time_s``
     at every node (see :mod:`curvespeed.profile` for the definitions);
 ``limit_speed_mps, binding``
     the node's speed ceiling (lateral limits, top speed, zones, stops) and the limit that binds;
+``step_kind``
+    how the step from this station to the next is driven (:class:`StepKind`):
+    ``constant_accel``, or ``constant_jerk`` for a step next to rest planned with a jerk bound
+    (:attr:`Profile.cubic_step <curvespeed.profile.Profile.cubic_step>`); empty on the last row,
+    where no step follows;
 ``z_m, grade``
     when the route has elevation;
 ``lat, lon``
@@ -14,17 +20,28 @@ lat_accel_mps2, time_s``
 
 Speeds, accelerations, jerk and time are written with 6 decimals; geometry as in
 :mod:`curvespeed.io.geometry_csv`. Output is deterministic and written atomically.
+
+:func:`read_station_profile` reads such a file (or any CSV with the columns
+:data:`REQUIRED_PROFILE_COLUMNS`) into a :class:`~curvespeed.export.StationProfile`.
 """
 
 from __future__ import annotations
 
+import enum
 import os
+import warnings
 from pathlib import Path
 
+import numpy as np
+
+from ..errors import CurvespeedWarning, SpeedFileError
+from ..export import (StationProfile, make_station_profile, planned_time_mismatch,
+                      steps_next_to_rest)
 from ..profile import Profile
 from ._format import format_columns
 from .atomic import atomic_open
 from .geometry_csv import geometry_columns
+from .table_csv import Table, read_table_csv
 
 #: Speeds (m/s), accelerations (m/s^2), jerk (m/s^3) and times (s): 1e-6.
 KINEMATIC = ".6f"
@@ -32,6 +49,36 @@ KINEMATIC = ".6f"
 #: Columns every profile CSV starts with, in order.
 PROFILE_COLUMNS = ("station_m", "x_m", "y_m", "heading_rad", "curvature_1pm", "speed_mps",
                    "accel_mps2", "jerk_mps3", "lat_accel_mps2", "time_s")
+
+#: Columns a profile CSV must have for export and plots.
+REQUIRED_PROFILE_COLUMNS = ("station_m", "x_m", "y_m", "heading_rad", "curvature_1pm",
+                            "speed_mps")
+_OPTIONAL_PROFILE_COLUMNS = ("time_s", "accel_mps2", "jerk_mps3", "lat_accel_mps2",
+                             "limit_speed_mps", "z_m", "grade", "lat", "lon")
+
+#: A profile's own time_s may differ from the time recomputed from its rounded stations (0.1 mm)
+#: and speeds (1e-6 m/s) by far less than this (s, plus the same fraction of the total time);
+#: a larger gap means the columns were edited or come from another model.
+TIME_MISMATCH_S = 1e-3
+TIME_MISMATCH_REL = 1e-4
+
+
+class StepKind(enum.Enum):
+    """How a step is driven: the values of the ``step_kind`` column."""
+
+    #: Constant acceleration: the step takes ``2 ds / (v[k] + v[k+1])``.
+    CONSTANT_ACCEL = "constant_accel"
+    #: Constant jerk, only next to rest: the step takes ``3 ds / v`` (``v`` at its moving end).
+    CONSTANT_JERK = "constant_jerk"
+
+
+# -- writing -----------------------------------------------------------------------------------
+
+def step_kinds(profile: Profile) -> list[str]:
+    """The ``step_kind`` cell of every row: the step to the next station, empty on the last."""
+    kinds = [(StepKind.CONSTANT_JERK if cubic else StepKind.CONSTANT_ACCEL).value
+             for cubic in np.asarray(profile.cubic_step, dtype=bool).tolist()]
+    return kinds + [""]
 
 
 def profile_columns(profile: Profile) -> dict[str, tuple[object, str]]:
@@ -46,6 +93,7 @@ def profile_columns(profile: Profile) -> dict[str, tuple[object, str]]:
         "time_s": (profile.time_s, KINEMATIC),
         "limit_speed_mps": (profile.limit_speed_mps, KINEMATIC),
         "binding": (profile.binding, "s"),
+        "step_kind": (step_kinds(profile), "s"),
     })
     for name in ("z_m", "grade", "lat", "lon"):
         if name in geo:
@@ -59,3 +107,107 @@ def write_profile_csv(profile: Profile, path: str | os.PathLike, force: bool = F
     with atomic_open(path, force) as fh:
         fh.write(text)
     return Path(path)
+
+
+# -- reading -----------------------------------------------------------------------------------
+
+def read_station_profile(path: str | os.PathLike, name: str | None = None) -> StationProfile:
+    """Read a profile CSV into a :class:`~curvespeed.export.StationProfile`.
+
+    Needs the columns :data:`REQUIRED_PROFILE_COLUMNS`; keeps ``time_s``, ``accel_mps2``,
+    ``jerk_mps3``, ``lat_accel_mps2``, ``limit_speed_mps``, ``binding``, ``z_m``, ``grade``,
+    ``lat`` and ``lon`` where present. The constant-jerk steps next to rest come from the
+    ``step_kind`` column (:func:`read_step_kinds`); a file without it (older or hand-made) has
+    them recognised from ``time_s`` (:func:`curvespeed.export.detect_cubic_steps`). Warns
+    (:class:`CurvespeedWarning`) when the file's own ``time_s`` disagrees with the time implied
+    by its stations and speeds.
+
+    Parameters
+    ----------
+    path : str or path-like
+        The profile CSV.
+    name : str, optional
+        Route name for titles (default: the file name without extension).
+
+    Raises
+    ------
+    SpeedFileError
+        Unreadable file, missing column, a bad value (a ``step_kind`` among them), stations not
+        increasing, a negative speed, or a step with zero speed at both ends; the message names
+        the file and line.
+    """
+    table = read_table_csv(path, min_rows=2)
+    required = table.require(*REQUIRED_PROFILE_COLUMNS, what="a profile (export and plot)")
+    optional = {c: table.columns.get(c) for c in _OPTIONAL_PROFILE_COLUMNS}
+    cubic = read_step_kinds(table)
+    # a constant-jerk step must have exactly one end at rest; that is checked once the speeds
+    # themselves are (a step with both ends at rest is refused as never driven, which says more)
+    sp = make_station_profile(*required, binding=table.columns.get("binding"),
+                              name=name or Path(path).stem, source=table.source,
+                              where=table.where,
+                              cubic_step=None if cubic is None else
+                              cubic & steps_next_to_rest(table.columns["speed_mps"]),
+                              **optional)
+    if cubic is not None:
+        _check_constant_jerk_steps(table, cubic, sp.speed_mps)
+    mismatch = planned_time_mismatch(sp)
+    if mismatch is not None:
+        k, gap = mismatch
+        if gap > TIME_MISMATCH_S + TIME_MISMATCH_REL * sp.moving_time_s:
+            warnings.warn(
+                f"{table.source}: {sp.node_label(k)}: time_s differs by {gap:.3f} s from the time "
+                "its stations and speeds imply (2 ds / (v[k] + v[k+1]) per step, 3 ds / v on a "
+                "constant-jerk step next to rest); curvespeed uses stations and speeds",
+                CurvespeedWarning, stacklevel=2)
+    return sp
+
+
+def read_step_kinds(table: Table) -> np.ndarray | None:
+    """The ``step_kind`` column as one constant-jerk flag per step; None without the column.
+
+    Every row but the last holds ``constant_accel`` or ``constant_jerk``; the last row (no step
+    follows it) is empty, or one of those values, which is ignored. Whether each
+    ``constant_jerk`` step has exactly one end at rest is checked against the speeds by
+    :func:`read_station_profile`.
+
+    Raises
+    ------
+    SpeedFileError
+        Any other value; the message names the file, the line and the value, and says what is
+        allowed.
+    """
+    cells = table.columns.get("step_kind")
+    if cells is None:
+        return None
+    allowed = [kind.value for kind in StepKind]
+    kinds = np.asarray(cells, dtype=object)
+    valid = np.isin(kinds, allowed)
+    valid[-1] |= kinds[-1] == ""
+    bad = np.flatnonzero(~valid)
+    if bad.size:
+        k = int(bad[0])
+        raise SpeedFileError(
+            f"{table.source}: {table.where[k]}: column 'step_kind' value '{kinds[k]}' is not a "
+            f"step kind; use {' or '.join(allowed)} for the step from that station to the next "
+            "(empty on the last row), or remove the column to have the steps recognised from "
+            "time_s")
+    return np.asarray(kinds[:-1] == StepKind.CONSTANT_JERK.value, dtype=bool)
+
+
+def _check_constant_jerk_steps(table: Table, cubic: np.ndarray, speed_mps: np.ndarray) -> None:
+    """Refuse ``constant_jerk`` on a step without exactly one end at rest (file, line, value)."""
+    bad = np.flatnonzero(cubic & ~steps_next_to_rest(speed_mps))
+    if bad.size:
+        k = int(bad[0])
+        where, v = table.where, speed_mps
+        raise SpeedFileError(
+            f"{table.source}: {where[k]}: column 'step_kind' value "
+            f"'{StepKind.CONSTANT_JERK.value}' is allowed only on a step with exactly one end at "
+            f"rest (speed 0), but speed_mps is {v[k]:g} here and {v[k + 1]:g} on {where[k + 1]}; "
+            f"use {StepKind.CONSTANT_ACCEL.value} there, or remove the column to have the steps "
+            "recognised from time_s")
+
+
+__all__ = ["KINEMATIC", "PROFILE_COLUMNS", "REQUIRED_PROFILE_COLUMNS", "StepKind",
+           "TIME_MISMATCH_REL", "TIME_MISMATCH_S", "profile_columns", "read_station_profile",
+           "read_step_kinds", "step_kinds", "write_profile_csv"]

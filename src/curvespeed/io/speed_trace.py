@@ -45,6 +45,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import CurvespeedWarning, SpeedFileError
+from ..export import check_stations_and_speeds
 from ..geometry import Geometry
 from .table_csv import read_table_csv
 
@@ -147,21 +148,11 @@ def _read_csv(path, geometry: Geometry) -> SpeedTrace:
     table = read_table_csv(path)
     source = table.source
     station, speed = table.require("station_m", "speed_mps", what="check --speeds")
-    lines = table.lines
-    back = np.flatnonzero(np.diff(station) <= 0.0)
-    if back.size:
-        k = int(back[0]) + 1
-        raise SpeedFileError(f"{source}: line {lines[k]}: station_m {station[k]:g} is not after "
-                             f"{station[k - 1]:g} on line {lines[k - 1]}; stations must increase "
-                             "(sort the rows by station and remove repeats)")
-    negative = np.flatnonzero(speed < 0.0)
-    if negative.size:
-        k = int(negative[0])
-        raise SpeedFileError(f"{source}: line {lines[k]}: speed_mps {speed[k]:g} is negative; "
-                             "give speeds as magnitudes along the route")
+    where = table.where
+    check_stations_and_speeds(station, speed, source, where)
     first, last = float(station[0]), float(station[-1])
     _check_coverage(source, first, last, geometry, end_tolerance_m(geometry),
-                    where_first=f"line {lines[0]}", where_last=f"line {lines[-1]}")
+                    where_first=where[0], where_last=where[-1])
     if station.size == geometry.n_nodes and \
             np.max(np.abs(station - geometry.station_m)) <= _SAME_STATION_M:
         # the route's own stations (a profile of this route): take the speeds as written

@@ -3,7 +3,8 @@
 Used wherever a command takes a table back in (``export``, ``plot``, ``check --speeds``). The
 first non-comment line is the header; lines starting with ``#`` and blank lines are skipped.
 Columns are read by name, so extra columns are allowed. Numeric columns are parsed strictly
-(a plain decimal number, finite); text columns (``binding``) are kept as strings.
+(a plain decimal number, finite); text columns (``binding``, ``step_kind``) are kept as
+strings.
 
 As for route files, a header with semicolons (or tabs) and no comma selects that separator, with
 a warning; such a file may use decimal commas or decimal points, not both.
@@ -22,7 +23,7 @@ from ._common import (SEPARATOR_NAMES, decimal_mark_problem, detect_separator, n
                       parse_column, read_text)
 
 #: Columns kept as text rather than parsed as numbers.
-TEXT_COLUMNS = frozenset({"binding"})
+TEXT_COLUMNS = frozenset({"binding", "step_kind"})
 
 
 @dataclass(frozen=True)
@@ -45,6 +46,11 @@ class Table:
 
     def __len__(self) -> int:
         return int(self.lines.size)
+
+    @property
+    def where(self) -> np.ndarray:
+        """Label of each row for messages (``"line 12"``), as an object array."""
+        return np.array([f"line {n}" for n in self.lines], dtype=object)
 
     def has(self, *names: str) -> bool:
         return all(n in self.columns for n in names)

@@ -1,10 +1,8 @@
-"""Profiles in, trajectories out: the files behind ``curvespeed export`` and ``curvespeed plot``.
+"""Trajectory files: what ``curvespeed export`` writes.
 
-Reading
-    :func:`read_station_profile` reads a profile CSV (as written by ``curvespeed plan``, see
-    :mod:`curvespeed.io.profile_csv`) into a :class:`~curvespeed.export.StationProfile`;
-    :func:`read_profile_meta` reads its JSON sidecar (:mod:`curvespeed.io.meta_json`) back into
-    the limits and route constraints the profile was planned with.
+The profile it samples is read by :func:`curvespeed.io.profile_csv.read_station_profile` (next
+to the profile's writer), and the profile's sidecar by
+:func:`curvespeed.io.meta_json.read_profile_meta`.
 
 Writing a :class:`~curvespeed.export.Trajectory` (atomically, deterministic bytes):
 
@@ -39,25 +37,17 @@ latitude/longitude 1e-9 degree.
 
 from __future__ import annotations
 
-import dataclasses
 import enum
 import json
-import math
 import os
-import warnings
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
-from ..errors import CurvespeedWarning, OutputError, SpeedFileError
-from ..export import (TRAJECTORY_COLUMNS, SamplingMode, StationProfile, Trajectory,
-                      make_station_profile, planned_time_mismatch)
-from ..limits import Limits, RouteConstraints, SpeedZone, Stop, Superelevation
-from ._common import read_text
+from ..errors import OutputError
+from ..export import TRAJECTORY_COLUMNS, SamplingMode, Trajectory
 from ._format import CURVATURE, DEGREES, METRES, RADIANS, format_column, format_columns
 from .atomic import atomic_open
-from .table_csv import read_table_csv
 
 #: Times (s), speeds (m/s) and accelerations (m/s^2): 1e-6.
 KINEMATIC = ".6f"
@@ -71,18 +61,6 @@ COLUMN_FORMATS = {
     "curvature_1pm": CURVATURE, "yaw_rate_radps": YAW_RATE, "lat_accel_mps2": KINEMATIC,
     "lat": DEGREES, "lon": DEGREES,
 }
-
-#: Columns a profile CSV must have for export and plots.
-REQUIRED_PROFILE_COLUMNS = ("station_m", "x_m", "y_m", "heading_rad", "curvature_1pm",
-                            "speed_mps")
-_OPTIONAL_PROFILE_COLUMNS = ("time_s", "accel_mps2", "jerk_mps3", "lat_accel_mps2",
-                             "limit_speed_mps", "z_m", "grade", "lat", "lon")
-
-#: A profile's own time_s may differ from the time recomputed from its rounded stations (0.1 mm)
-#: and speeds (1e-6 m/s) by far less than this (s, plus the same fraction of the total time);
-#: a larger gap means the columns were edited or come from another model.
-TIME_MISMATCH_S = 1e-3
-TIME_MISMATCH_REL = 1e-4
 
 
 class TrajectoryFormat(enum.Enum):
@@ -101,143 +79,6 @@ FORMAT_BY_SUFFIX = {".csv": TrajectoryFormat.CSV, ".json": TrajectoryFormat.JSON
 def format_from_suffix(path: str | os.PathLike) -> TrajectoryFormat | None:
     """The format an output file name implies (``.csv``, ``.json``, ``.geojson``), or None."""
     return FORMAT_BY_SUFFIX.get(Path(path).suffix.lower())
-
-
-# -- reading -----------------------------------------------------------------------------------
-
-def read_station_profile(path: str | os.PathLike, name: str | None = None) -> StationProfile:
-    """Read a profile CSV into a :class:`~curvespeed.export.StationProfile`.
-
-    Needs the columns :data:`REQUIRED_PROFILE_COLUMNS`; keeps ``time_s``, ``accel_mps2``,
-    ``jerk_mps3``, ``lat_accel_mps2``, ``limit_speed_mps``, ``binding``, ``z_m``, ``grade``,
-    ``lat`` and ``lon`` where present. Warns (:class:`CurvespeedWarning`) when the file's own
-    ``time_s`` disagrees with the time implied by its stations and speeds.
-
-    Parameters
-    ----------
-    path : str or path-like
-        The profile CSV.
-    name : str, optional
-        Route name for titles (default: the file name without extension).
-
-    Raises
-    ------
-    SpeedFileError
-        Unreadable file, missing column, a bad value, stations not increasing, a negative speed,
-        or a step with zero speed at both ends; the message names the file and line.
-    """
-    table = read_table_csv(path, min_rows=2)
-    required = table.require(*REQUIRED_PROFILE_COLUMNS, what="a profile (export and plot)")
-    optional = {c: table.columns.get(c) for c in _OPTIONAL_PROFILE_COLUMNS}
-    where = np.array([f"line {n}" for n in table.lines], dtype=object)
-    sp = make_station_profile(*required, binding=table.columns.get("binding"),
-                              name=name or Path(path).stem, source=table.source, where=where,
-                              **optional)
-    mismatch = planned_time_mismatch(sp)
-    if mismatch is not None:
-        k, gap = mismatch
-        if gap > TIME_MISMATCH_S + TIME_MISMATCH_REL * sp.moving_time_s:
-            warnings.warn(
-                f"{table.source}: {sp.node_label(k)}: time_s differs by {gap:.3f} s from the time "
-                "its stations and speeds imply (2 ds / (v[k] + v[k+1]) per step); curvespeed uses "
-                "stations and speeds", CurvespeedWarning, stacklevel=2)
-    return sp
-
-
-@dataclass(frozen=True)
-class ProfileSidecar:
-    """What a profile's JSON sidecar says about how the profile was made.
-
-    Attributes
-    ----------
-    limits : Limits
-        The vehicle limits used.
-    constraints : RouteConstraints
-        Zones, stops, superelevation and end speeds used.
-    route_name : str or None
-        The route's name.
-    closed : bool or None
-        Whether the route is a loop.
-    total_time_s : float or None
-        Planned time, s.
-    source : str
-        The sidecar's file name.
-    """
-
-    limits: Limits
-    constraints: RouteConstraints
-    route_name: str | None
-    closed: bool | None
-    total_time_s: float | None
-    source: str
-
-
-def read_profile_meta(path: str | os.PathLike) -> ProfileSidecar:
-    """Read a profile's JSON sidecar (``PROFILE.meta.json``).
-
-    Raises
-    ------
-    SpeedFileError
-        Missing or unreadable file, invalid JSON, or a ``limits``/``constraints`` entry that is
-        not what ``curvespeed plan`` writes; the message names the file and the key.
-    """
-    source = str(path)
-    text = read_text(path, SpeedFileError)
-    try:
-        doc = json.loads(text)
-    except json.JSONDecodeError as exc:
-        raise SpeedFileError(f"{source}: line {exc.lineno}, column {exc.colno}: not valid JSON "
-                             f"({exc.msg}); write the sidecar again with curvespeed plan") from None
-    if not isinstance(doc, dict) or not isinstance(doc.get("limits"), dict):
-        raise SpeedFileError(f"{source}: no \"limits\" object; this is not a curvespeed profile "
-                             "sidecar (PROFILE.meta.json written by curvespeed plan)")
-
-    def number(value, key: str, optional: bool = False):
-        if value is None and optional:
-            return None
-        if isinstance(value, bool) or not isinstance(value, (int, float)) \
-                or not math.isfinite(value):
-            raise SpeedFileError(f"{source}: {key} must be a finite number, got "
-                                 f"{json.dumps(value)[:40]}")
-        return float(value)
-
-    fields = {f.name: f for f in dataclasses.fields(Limits)}
-    optional_limits = {"max_jerk_mps3", "lateral_friction_coefficient", "max_power_w", "mass_kg"}
-    values = {key: number(value, f"limits.{key}", key in optional_limits)
-              for key, value in doc["limits"].items() if key in fields}
-    limits = Limits(**values)
-
-    raw = doc.get("constraints") or {}
-    if not isinstance(raw, dict):
-        raise SpeedFileError(f"{source}: \"constraints\" must be an object")
-
-    def entries(key: str, cls, names: tuple[str, ...]):
-        items = raw.get(key) or []
-        if not isinstance(items, list):
-            raise SpeedFileError(f"{source}: constraints.{key} must be a list")
-        out = []
-        for i, item in enumerate(items):
-            label = f"constraints.{key}[{i}]"
-            if not isinstance(item, dict) or any(n not in item for n in names):
-                raise SpeedFileError(f"{source}: {label} needs {', '.join(names)}")
-            nums = [number(item[n], f"{label}.{n}") for n in names]
-            out.append(cls(*nums, origin=str(item.get("origin") or "")))
-        return tuple(out)
-
-    constraints = RouteConstraints(
-        zones=entries("zones", SpeedZone, ("start_m", "end_m", "max_speed_mps")),
-        stops=entries("stops", Stop, ("station_m",)),
-        superelevation=entries("superelevation", Superelevation, ("start_m", "end_m", "rate")),
-        start_speed_mps=number(raw.get("start_speed_mps"), "constraints.start_speed_mps", True),
-        end_speed_mps=number(raw.get("end_speed_mps"), "constraints.end_speed_mps", True))
-    route = doc.get("route") if isinstance(doc.get("route"), dict) else {}
-    name = route.get("name") if isinstance(route.get("name"), str) else None
-    closed = route.get("closed") if isinstance(route.get("closed"), bool) else None
-    total = doc.get("total_time_s")
-    total = float(total) if isinstance(total, (int, float)) and not isinstance(total, bool) \
-        else None
-    return ProfileSidecar(limits=limits, constraints=constraints, route_name=name, closed=closed,
-                          total_time_s=total, source=source)
 
 
 # -- writing -----------------------------------------------------------------------------------
@@ -357,7 +198,6 @@ def _check_finite(trajectory: Trajectory) -> None:
             raise ValueError(f"trajectory column {name} is not finite at sample {k}")
 
 
-__all__ = ["COLUMN_FORMATS", "FORMAT_BY_SUFFIX", "ProfileSidecar", "REQUIRED_PROFILE_COLUMNS",
-           "TRAJECTORY_COLUMNS", "TrajectoryFormat", "format_from_suffix", "read_profile_meta",
-           "read_station_profile", "trajectory_columns", "write_trajectory",
+__all__ = ["COLUMN_FORMATS", "FORMAT_BY_SUFFIX", "TRAJECTORY_COLUMNS", "TrajectoryFormat",
+           "format_from_suffix", "trajectory_columns", "write_trajectory",
            "write_trajectory_csv", "write_trajectory_geojson", "write_trajectory_json"]
