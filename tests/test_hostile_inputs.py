@@ -648,6 +648,19 @@ def test_comfort_above_friction_is_warned_once(tmp_path):
     assert len(grip) == 1 and str(limits) in grip[0], result.output
 
 
+def test_comfort_above_friction_is_warned_to_library_callers_too():
+    from curvespeed.errors import CurvespeedWarning
+    from curvespeed.limits import Limits
+    from curvespeed.planner import plan_profile
+
+    from helpers import geometry_from_curvature
+
+    geo = geometry_from_curvature(np.full(201, 1 / 80.0), ds=1.0)
+    limits = Limits(friction_coefficient=0.2, max_lateral_accel_mps2=3.0, max_jerk_mps3=None)
+    with pytest.warns(CurvespeedWarning, match="exceeds the lateral grip"):
+        plan_profile(geo, limits)
+
+
 def test_top_speed_that_looks_like_kmh_is_warned(tmp_path):
     route = write(tmp_path, "r.csv", BEND)
     limits = write(tmp_path, LIMITS_FILE, "[limits]\nmax_speed_mps = 120\n")

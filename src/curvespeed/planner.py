@@ -11,7 +11,7 @@ import numpy as np
 
 from .errors import CurvespeedWarning, SolverError
 from .geometry import Geometry
-from .limits import Limits, RouteConstraints
+from .limits import Limits, RouteConstraints, validate_limits
 from .problem import build_problem
 from .profile import Profile
 from .solvers import SolverKind, solve
@@ -28,18 +28,23 @@ def default_solver(limits: Limits) -> SolverKind:
     return SolverKind.ENVELOPE if limits.max_jerk_mps3 is None else SolverKind.CONVEX
 
 
-def plan_profile(geometry: Geometry, limits: Limits, constraints: RouteConstraints = RouteConstraints(),
+def plan_profile(geometry: Geometry, limits: Limits,
+                 constraints: RouteConstraints = RouteConstraints(),
                  solver: SolverKind | None = None, options=None,
-                 tolerance: float | None = None) -> Profile:
+                 tolerance: float | None = None, warn_limits: bool = True) -> Profile:
     """Fastest profile along ``geometry`` within ``limits`` and ``constraints``.
 
     ``solver`` defaults to :func:`default_solver`; ``options`` are the solver's own settings
     (e.g. :class:`~curvespeed.solvers.convex.ConvexOptions`). The envelope does not enforce a
-    jerk bound: asked to, it warns and reports the jerk it reaches.
+    jerk bound: asked to, it warns and reports the jerk it reaches. ``limits`` are validated,
+    with a :class:`~curvespeed.errors.CurvespeedWarning` where a comfort limit exceeds the grip
+    or the top speed looks like km/h; ``warn_limits=False`` skips the warnings, for a caller
+    that already gave them naming the limits' origin (the CLI).
 
     Raises :class:`~curvespeed.errors.InfeasibleError` when no profile exists (with the reason)
     and :class:`~curvespeed.errors.SolverError` when the verifier refuses the solver's answer.
     """
+    validate_limits(limits, "limits", warn=warn_limits)
     solver = solver or default_solver(limits)
     jerk = solver.enforces_jerk and limits.max_jerk_mps3 is not None
     problem = build_problem(geometry, limits, constraints, jerk_model=jerk)

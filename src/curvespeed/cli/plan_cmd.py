@@ -71,7 +71,8 @@ def plan(route_file, limits_file, output, meta_file, solver, comfort_weight, plo
         from ..solvers.convex import ConvexOptions
 
         options = ConvexOptions(comfort_weight=comfort_weight)
-    profile = plan_profile(geo, limits, constraints, kind, options)
+    # resolve_limits validated the limits and warned, naming the file or the command line
+    profile = plan_profile(geo, limits, constraints, kind, options, warn_limits=False)
     click.echo(summarise(route_file, profile, limits, origin))
     if output:
         from ..io.meta_json import profile_meta, write_meta_json
