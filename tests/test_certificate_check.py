@@ -140,6 +140,27 @@ def test_constant_speed_within_the_lateral_limit_passes_and_above_fails():
     assert np.all(bad.accel_mps2 == 0.0)
 
 
+def test_held_speed_through_a_spiral_is_checked_against_a_lateral_jerk_bound():
+    # A clothoid of length L into radius R held at constant speed v changes the lateral
+    # acceleration at C = v^3 / (R L) (Shortt's relation, see test_reference_convex.py), so
+    # with the bound C the held speed may be at most (C R L)^(1/3) along the spiral.
+    R, L, C = 300.0, 60.0, 0.5
+    s = np.arange(0.0, 660.5, 1.0)
+    geo = geometry_from_curvature(np.interp(s, [0, 300, 360, 660], [0, 0, 1 / R, 1 / R]),
+                                  ds=1.0)
+    limits = LIMITS.replace(max_lateral_jerk_mps3=C)
+    v_s = (C * R * L) ** (1 / 3)
+    ok = check_speeds(geo, limits, RouteConstraints(), np.full(geo.n_nodes, 0.99 * v_s),
+                      kind=SpeedKind.CONSTANT)
+    assert ok.ok, [v.message for v in ok.violations]
+    bad = check_speeds(geo, limits, RouteConstraints(), np.full(geo.n_nodes, 1.05 * v_s),
+                       kind=SpeedKind.CONSTANT)
+    (lat,) = [v for v in bad.violations if v.kind == "lateral_jerk"]
+    assert lat.use == pytest.approx(1.05 ** 3, rel=1e-9)           # grows with v^3
+    assert 300.0 <= lat.start_m and lat.end_m <= 361.0              # the spiral, not the circle
+    assert f"the bound allows {v_s:.2f} m/s" in lat.message
+
+
 # --- brake reach: speeds that rise into a curve faster than the brakes can undo -----------------
 
 def test_zone_drop_too_close_to_a_curve_is_a_brake_reach_stretch():

@@ -140,6 +140,26 @@ def test_comfort_weighted_program_agrees_with_the_cvxpy_reference(name):
     assert verify_profile(problem, fast.b, tolerance=CONVEX_TOL).ok
 
 
+@pytest.mark.parametrize("closed, bound", [(False, 0.4), (True, 0.25)])
+def test_lateral_jerk_bound_is_kept_and_agrees_with_the_cvxpy_reference(closed, bound):
+    # The lateral jerk rows are linearised conservatively (tangents of sqrt and 1/x), so the
+    # bound must hold at every step of the answer, bind somewhere, and both models (written
+    # separately) must meet within the stopping thresholds, as for the other limits (measured:
+    # time 4e-5, speed 0.013 m/s).
+    geo = winding(800.0, closed=True) if closed else winding()
+    limits = Limits(max_jerk_mps3=2.0, max_lateral_jerk_mps3=bound, max_speed_mps=25.0)
+    problem = build_problem(geo, limits, RouteConstraints())
+    fast = solve_convex(problem)
+    check = verify_profile(problem, fast.b, tolerance=CONVEX_TOL)
+    assert check.ok, check.violations
+    assert 0.99 <= check.peak["lateral_jerk"] <= 1 + CONVEX_TOL
+    ref = solve_reference(problem)
+    t_fast = derive(problem, fast.b)["time_s"][-1]
+    t_ref = derive(problem, ref.b)["time_s"][-1]
+    assert t_fast == pytest.approx(t_ref, rel=3e-4)
+    assert np.max(np.abs(np.sqrt(fast.b) - np.sqrt(ref.b))) <= 0.1
+
+
 def test_solving_stretches_in_parallel_does_not_change_the_answer():
     # Stops and a zone cut this route into independent stretches. Solved by one thread (one
     # QP) or spread over three (three QPs), each stretch's QP has one optimum (the time model is

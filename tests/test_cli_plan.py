@@ -77,6 +77,26 @@ def test_envelope_solver_warns_that_jerk_is_not_bounded(tmp_path):
     assert "does not bound jerk" in result.output
 
 
+def test_lateral_jerk_bound_on_a_bundled_route(tmp_path):
+    out = tmp_path / "profile.csv"
+    result = run(ROUTES / "shuttle_route.gpx", "--max-lateral-jerk", "0.5", "-o", out)
+    assert result.exit_code == 0, result.output
+    assert "lateral jerk 0.5 m/s^3" in result.output           # the limits line
+    meta = json.loads((tmp_path / "profile.meta.json").read_text())
+    assert meta["limits"]["max_lateral_jerk_mps3"] == 0.5
+    # the verifier's use of the bound, recomputed from the written speeds: binding, not broken
+    assert 0.99 <= meta["peak_use"]["lateral_jerk"] <= 1 + 1e-4
+    assert meta["peaks"]["lateral_jerk_mps3"] <= 0.5 * (1 + 1e-4)
+    _, cols = read_profile(out)
+    assert "lateral_jerk" in cols["binding"]
+
+
+def test_envelope_solver_warns_that_lateral_jerk_is_not_bounded(tmp_path):
+    result = run(ROUTES / "shuttle_route.gpx", "--solver", "envelope", "--max-lateral-jerk", "0.5")
+    assert result.exit_code == 0, result.output
+    assert "does not bound lateral jerk" in result.output
+
+
 LIMITS_ERRORS = {
     "unknown key": ("[limits]\nmax_lateral_accel = 2.0\n", ["unknown key", "max_lateral_accel_mps2"]),
     "wrong unit": ("[limits]\nmax_speed_kmh = 50\n", ["max_speed_kmh", "3.6"]),
@@ -134,6 +154,7 @@ def test_limits_file_with_zones_stops_and_superelevation(tmp_path):
     (["--stop", "9999"], "outside the route"),
     (["--start-speed", "40", "--stop", "30"], "start speed"),
     (["--max-lateral-accel", "-1"], "positive"),
+    (["--max-lateral-jerk", "0"], "max_lateral_jerk_mps3 must be positive"),
 ])
 def test_bad_constraints_exit_2(args, fragment, tmp_path):
     out = tmp_path / "p.csv"

@@ -9,7 +9,7 @@ What is checked
 * **Per station**, the use of every limit of the shared discrete problem
   (:mod:`curvespeed.problem`), computed by the independent verifier
   (:func:`curvespeed.verify.verify_profile`): friction ellipse (grip), comfort ellipse, top
-  speed and zones, power and jerk where those limits are set. For a speed *trace*
+  speed and zones, power, jerk and lateral jerk where those limits are set. For a speed *trace*
   (:attr:`SpeedKind.TRACE`) the accelerations come from the trace itself, so the combined
   (friction-ellipse) demand includes its braking and driving. A *constant* speed or the *zone*
   speeds are speeds to hold: they are checked at zero acceleration (their steps are where a
@@ -85,6 +85,7 @@ CHECKED_LIMITS = {
     "speed_cap": "top speed / speed zone",
     "power": "power",
     "jerk": "jerk",
+    "lateral_jerk": "lateral jerk",
 }
 #: What sets a speed cap, in words (``SpeedProblem.cap_source``).
 _CAP_NAMES = {"max_speed": "top speed", "zone": "speed zone",
@@ -816,6 +817,10 @@ def _limit_message(name: str, label: str, start: float, end: float, at: float, u
     head = f"stations {start:.1f}-{end:.1f} m: {label}"
     if name == "speed_cap":
         return f"{head}: {v:.2f} m/s at {at:.1f} m above the {allowed:.2f} m/s allowed ({over})"
+    if name == "lateral_jerk" and accel == 0.0:
+        # at a held speed the lateral jerk v^3 dkappa/ds grows as v^3
+        return (f"{head} at {100 * use:.1f} % ({over}) at {at:.1f} m: {v:.2f} m/s held where "
+                f"the curvature changes; the bound allows {v / use ** (1 / 3):.2f} m/s there")
     if v > allowed * (1.0 + 1e-9):
         return (f"{head} at {100 * use:.1f} % ({over}) at {at:.1f} m: {v:.2f} m/s where the "
                 f"limits allow {allowed:.2f} m/s")

@@ -46,6 +46,10 @@ class Limits:
         Highest speed anywhere, m/s.
     max_jerk_mps3 : float or None
         Longitudinal jerk bound, m/s^3 (enforced by the convex solver; None for no bound).
+    max_lateral_jerk_mps3 : float or None
+        Bound on the rate of change of lateral acceleration ``d(kappa v^2)/dt``, m/s^3 (enforced
+        by the convex solver; None, the default, for no bound). It slows the vehicle where the
+        curvature changes quickly (spirals, curve entries); see ``docs/limits.md``.
     lateral_friction_coefficient : float or None
         Friction across the path; None means equal to ``friction_coefficient`` (a circle).
     max_power_w, mass_kg : float or None
@@ -66,6 +70,7 @@ class Limits:
     max_decel_mps2: float = 2.5
     max_speed_mps: float = 30.0
     max_jerk_mps3: float | None = 2.0
+    max_lateral_jerk_mps3: float | None = None
     lateral_friction_coefficient: float | None = None
     max_power_w: float | None = None
     mass_kg: float | None = None
@@ -108,7 +113,8 @@ class Limits:
 DEFAULT_LIMITS = Limits()
 
 _POSITIVE = ("friction_coefficient", "max_lateral_accel_mps2", "max_accel_mps2",
-             "max_decel_mps2", "max_speed_mps", "max_jerk_mps3", "lateral_friction_coefficient",
+             "max_decel_mps2", "max_speed_mps", "max_jerk_mps3", "max_lateral_jerk_mps3",
+             "lateral_friction_coefficient",
              "max_power_w", "mass_kg", "air_density_kgpm3", "gravity_mps2")
 _NON_NEGATIVE = ("drag_area_m2", "rolling_resistance_coefficient")
 

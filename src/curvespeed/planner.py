@@ -24,8 +24,9 @@ CONVEX_TOLERANCE = 1e-4
 
 
 def default_solver(limits: Limits) -> SolverKind:
-    """The convex solver when a jerk bound is set, else the envelope."""
-    return SolverKind.ENVELOPE if limits.max_jerk_mps3 is None else SolverKind.CONVEX
+    """The convex solver when a jerk bound (longitudinal or lateral) is set, else the envelope."""
+    bounded = limits.max_jerk_mps3 is not None or limits.max_lateral_jerk_mps3 is not None
+    return SolverKind.CONVEX if bounded else SolverKind.ENVELOPE
 
 
 def plan_profile(geometry: Geometry, limits: Limits,
@@ -51,12 +52,17 @@ def plan_profile(geometry: Geometry, limits: Limits,
     result = solve(problem, solver, options)
     if tolerance is None:
         tolerance = DEFAULT_TOLERANCE if solver is SolverKind.ENVELOPE else CONVEX_TOLERANCE
-    check = verify_profile(problem, result.b, tolerance, check_jerk=jerk)
+    check = verify_profile(problem, result.b, tolerance, check_jerk=solver.enforces_jerk)
     if limits.max_jerk_mps3 is not None and not jerk:
         warnings.warn(f"the envelope solver does not bound jerk: the profile reaches "
                       f"{check.extremes['jerk_mps3']:.2f} m/s^3 against max_jerk_mps3 = "
                       f"{limits.max_jerk_mps3:g}; use --solver convex to enforce it",
                       CurvespeedWarning, stacklevel=2)
+    if limits.max_lateral_jerk_mps3 is not None and not solver.enforces_jerk:
+        warnings.warn(f"the envelope solver does not bound lateral jerk: the profile reaches "
+                      f"{check.extremes['lateral_jerk_mps3']:.2f} m/s^3 against "
+                      f"max_lateral_jerk_mps3 = {limits.max_lateral_jerk_mps3:g}; use --solver "
+                      "convex to enforce it", CurvespeedWarning, stacklevel=2)
     if not check.ok:
         worst = "; ".join(v.describe() for v in check.violations)
         raise SolverError(f"the {result.solver} solver's profile breaks its limits: {worst}. "

@@ -174,6 +174,16 @@ class SpeedProblem:
             return np.where(vsum > 0.0, self.time_coef * self.ds / np.where(vsum > 0, vsum, 1.0),
                             np.inf)
 
+    def step_lateral_jerk(self, b) -> np.ndarray:
+        """Rate of change of the lateral acceleration ``kappa v^2`` over each step, m/s^3.
+
+        The change of ``kappa_signed * b`` between the step's nodes over the step's time (0 for
+        a step never driven). On a clothoid (curvature linear in station) at constant speed it
+        is exactly ``v^3 dkappa/ds``, the quantity highway spirals are designed for.
+        """
+        b = np.maximum(np.asarray(b, dtype=float), 0.0)
+        return np.diff(self.kappa_signed * b) / self.step_times(b)
+
     def lateral_ceiling_b(self, iterations: int = 60) -> np.ndarray:
         """Largest squared speed at each node whose acceleration interval is not empty.
 

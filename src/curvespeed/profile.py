@@ -147,8 +147,8 @@ which a node's change of acceleration counts runs between the instants the two v
                         np.where(change == 0.0, 0.0, np.inf))
         step_jerk = np.where(np.isfinite(dt) & (dt > 0), (a_last - a_first) / dt, 0.0)
     step_jerk = np.where(problem.time_coef > 2.0, step_jerk, 0.0)
-    # lateral jerk: d(kappa v^2)/dt = v d(kappa b)/ds, central differences in station
-    lat_jerk = v * np.gradient(problem.kappa_signed * b, problem.ds)
+    # lateral jerk d(kappa v^2)/dt over each step (curvespeed.problem)
+    lat_jerk = problem.step_lateral_jerk(b)
     return {"speed_mps": v, "step_accel_mps2": a_step, "accel_mps2": acc, "jerk_mps3": jerk,
-            "time_s": t, "lat_jerk_mps3": lat_jerk, "step_jerk_mps3": step_jerk,
+            "time_s": t, "step_lat_jerk_mps3": lat_jerk, "step_jerk_mps3": step_jerk,
             "step_accel_first_mps2": a_first, "step_accel_last_mps2": a_last}

@@ -83,8 +83,8 @@ def verify_profile(problem: SpeedProblem, b: np.ndarray,
                    tolerance: float = DEFAULT_TOLERANCE, check_jerk: bool = True) -> Verification:
     """Check squared speeds ``b`` against every limit of ``problem``.
 
-    ``check_jerk=False`` leaves the jerk bound out (for solvers that do not enforce it; the
-    jerk is still measured in :attr:`Verification.extremes`).
+    ``check_jerk=False`` leaves the jerk bounds (longitudinal and lateral) out, for solvers that
+    do not enforce them; the jerks are still measured in :attr:`Verification.extremes`.
     """
     lim = problem.limits
     b = np.maximum(np.asarray(b, dtype=float), 0.0)
@@ -125,6 +125,9 @@ def verify_profile(problem: SpeedProblem, b: np.ndarray,
     if lim.max_jerk_mps3 is not None and check_jerk:
         step_jerk = _node_max(np.abs(d["step_jerk_mps3"]), problem.closed)
         use["jerk"] = np.maximum(np.abs(d["jerk_mps3"]), step_jerk) / lim.max_jerk_mps3
+    if lim.max_lateral_jerk_mps3 is not None and check_jerk:
+        use["lateral_jerk"] = (_node_max(np.abs(d["step_lat_jerk_mps3"]), problem.closed)
+                               / lim.max_lateral_jerk_mps3)
 
     violations = []
     for name, arr in use.items():
@@ -146,7 +149,7 @@ def verify_profile(problem: SpeedProblem, b: np.ndarray,
                 "decel_mps2": float(max(-a_ends.min(), 0.0)),
                 "lateral_accel_mps2": float(np.max(problem.kappa_abs * b)),
                 "jerk_mps3": float(np.max(np.abs(d["jerk_mps3"]))),
-                "lateral_jerk_mps3": float(np.max(np.abs(d["lat_jerk_mps3"])))}
+                "lateral_jerk_mps3": float(np.max(np.abs(d["step_lat_jerk_mps3"])))}
     return Verification(use=use, peak=peak, violations=violations,
                         binding=_binding_labels(problem, a, use, lat_use, grip_lat_share),
                         extremes=extremes, derived=d)
@@ -156,7 +159,8 @@ def _binding_labels(problem, a, use, lat_use, grip_lat_share) -> np.ndarray:
     """Name the limit that binds at each node; later rules take precedence over earlier ones.
 
     Names: "power"; "lateral_grip", "grip_accel", "grip_brake" (friction ellipse);
-    "lateral_comfort", "accel", "brake" (comfort ellipse); "max_speed", "zone", "stop" (caps);
+    "lateral_comfort", "accel", "brake" (comfort ellipse); "lateral_jerk"; "max_speed", "zone",
+    "stop" (caps);
     "none" where nothing is within :data:`BINDING_TOLERANCE` of its limit.
     """
     near = 1.0 - BINDING_TOLERANCE
@@ -171,5 +175,7 @@ def _binding_labels(problem, a, use, lat_use, grip_lat_share) -> np.ndarray:
                                np.char.add("grip_", direction.astype(str))), labels)
     labels = np.where(use["comfort_ellipse"] >= near,
                       np.where(lat_use >= near, "lateral_comfort", direction), labels)
+    if "lateral_jerk" in use:
+        labels = np.where(use["lateral_jerk"] >= near, "lateral_jerk", labels)
     labels = np.where(use["speed_cap"] >= near, problem.cap_source, labels)
     return labels.astype(object)

@@ -12,6 +12,7 @@ LIMIT_OPTIONS = {
     "max_decel": "max_decel_mps2",
     "max_speed": "max_speed_mps",
     "max_jerk": "max_jerk_mps3",
+    "max_lateral_jerk": "max_lateral_jerk_mps3",
     "max_power": "max_power_w",
     "mass": "mass_kg",
     "drag_area": "drag_area_m2",
@@ -42,6 +43,8 @@ def limit_override_options(func):
         "max_decel": "Cap on deceleration along the path (positive), m/s^2.",
         "max_speed": "Top speed, m/s.",
         "max_jerk": "Longitudinal jerk bound, m/s^3.",
+        "max_lateral_jerk": "Bound on the rate of change of lateral acceleration, m/s^3 "
+                            "(none by default).",
         "max_power": "Tractive power at the wheels, W (needs --mass).",
         "mass": "Vehicle mass, kg.",
         "drag_area": "Drag coefficient times frontal area Cd*A, m^2 (needs --mass).",
@@ -62,7 +65,7 @@ def constraint_options(func):
         click.option("--superelevation", "superelevations", multiple=True,
                      metavar="START_M:END_M:RATE",
                      help="Cross-slope toward the curve's inside over a station range, as a "
-                          "fraction (0.06 = 6 %%) (repeatable)."),
+                          "fraction (0.06 = 6 %) (repeatable)."),
         click.option("--start-speed", type=float, default=None, metavar="MPS",
                      help="Speed at the start of an open route, m/s (default 0)."),
         click.option("--end-speed", type=float, default=None, metavar="MPS",

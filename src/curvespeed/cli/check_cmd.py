@@ -29,7 +29,7 @@ from ._limits import constraint_options, limit_override_options, resolve_limits
 @click.option("--design-speed-kmh", type=float, default=None, metavar="V",
               help="Design speed for the AASHTO minimum-radius check, km/h (20-120).")
 @click.option("--emax", "e_max", type=float, default=0.08, show_default=True, metavar="E",
-              help="Maximum superelevation rate for the minimum-radius check (0.08 = 8 %%).")
+              help="Maximum superelevation rate for the minimum-radius check (0.08 = 8 %).")
 @click.option("--trace-noise", "trace_noise_m", type=float, default=None, metavar="M",
               help="GPS position noise of a GPX speeds track, metres; sets its smoothing "
                    "(default 2).")

@@ -105,7 +105,9 @@ def summarise(route_file, profile, limits, origin: str, max_curves: int = 8) -> 
         f"limits   {origin}: mu {limits.friction_coefficient:g}, lateral "
         f"{limits.max_lateral_accel_mps2:g}, accel {limits.max_accel_mps2:g}, decel "
         f"{limits.max_decel_mps2:g} m/s^2, top {limits.max_speed_mps:g} m/s"
-        + ("" if limits.max_jerk_mps3 is None else f", jerk {limits.max_jerk_mps3:g} m/s^3"),
+        + ("" if limits.max_jerk_mps3 is None else f", jerk {limits.max_jerk_mps3:g} m/s^3")
+        + ("" if limits.max_lateral_jerk_mps3 is None
+           else f", lateral jerk {limits.max_lateral_jerk_mps3:g} m/s^3"),
         f"solver   {profile.solve.solver}: {profile.solve.status.value}, "
         f"{profile.solve.iterations} iteration(s), {profile.solve.solve_time_s:.3f} s",
         f"time     {profile.total_time_s:.1f} s; mean {mean:.2f} m/s ({mps_to_kmh(mean):.1f} km/h),"
@@ -119,7 +121,7 @@ def summarise(route_file, profile, limits, origin: str, max_curves: int = 8) -> 
     ]
     from ..check import find_curves
 
-    lateral = np.isin(profile.binding, ["lateral_comfort", "lateral_grip"])
+    lateral = np.isin(profile.binding, ["lateral_comfort", "lateral_grip", "lateral_jerk"])
     stretches = []
     for nodes in find_curves(geo):
         bound = nodes[lateral[nodes]]

@@ -9,6 +9,7 @@ Layout (SI units, unit suffix in every key)::
     max_decel_mps2 = 2.5
     max_speed_mps = 25.0
     max_jerk_mps3 = 2.0           # optional
+    max_lateral_jerk_mps3 = 0.6   # optional, no bound by default
     # optional powertrain and resistances:
     # max_power_w, mass_kg, drag_area_m2, air_density_kgpm3, rolling_resistance_coefficient,
     # lateral_friction_coefficient, gravity_mps2

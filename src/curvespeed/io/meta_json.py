@@ -161,7 +161,8 @@ def read_profile_meta(path: str | os.PathLike) -> ProfileSidecar:
         return float(value)
 
     fields = {f.name: f for f in dataclasses.fields(Limits)}
-    optional_limits = {"max_jerk_mps3", "lateral_friction_coefficient", "max_power_w", "mass_kg"}
+    optional_limits = {"max_jerk_mps3", "max_lateral_jerk_mps3", "lateral_friction_coefficient",
+                       "max_power_w", "mass_kg"}
     values = {key: number(value, f"limits.{key}", key in optional_limits)
               for key, value in doc["limits"].items() if key in fields}
     limits = Limits(**values)

@@ -213,6 +213,39 @@ class _QPBuilder:
     def _node_bounds(self, b, nodes, include_power=False):
         return self.p.accel_bounds(b, nodes=nodes, include_power=include_power)
 
+    def _lateral_jerk_rows(self, b_hat: np.ndarray):
+        """Rows ``+-(kappa' b' - kappa b) <= c ds J_lat (2 / V_hat - V_up(b) / V_hat^2)`` per step.
+
+        The step's lateral jerk is ``(kappa' b' - kappa b) V / (c ds)`` with ``V = v + v'``
+        (:meth:`SpeedProblem.step_lateral_jerk`), so the bound asks ``|change| <= c ds J / V``.
+        ``V`` is concave in ``b``: its tangent ``V_up`` at ``b_hat`` bounds it from above, so
+        ``1 / V >= 1 / V_up``; ``1 / x`` is convex, so its tangent at ``V_hat`` bounds ``1 / V_up``
+        from below. Both steps keep the row inside the true bound for any ``b_hat > 0``; a
+        fixed station's speed is known exactly.
+        """
+        p, lay, ds = self.p, self.lay, self.ds
+        nv = lay.nv
+        sf, st = lay.step_from, lay.step_to
+        J = p.limits.max_lateral_jerk_mps3 * (1.0 - self.opt.margin)
+        kap = p.kappa_signed[:nv]
+        root = np.where(lay.fixed, np.sqrt(np.maximum(lay.fixed_value, 0.0)),
+                        np.sqrt(np.maximum(b_hat, _B_FLOOR)))
+        slope = np.where(lay.fixed, 0.0, 0.5 / np.where(lay.fixed, 1.0, root))
+        base = np.where(lay.fixed, lay.fixed_value, b_hat)
+        v_hat = root[sf] + root[st]
+        v_zero = v_hat - slope[sf] * base[sf] - slope[st] * base[st]   # V_up = v_zero + g . b
+        budget = lay.time_coef * ds * J
+        g_f = budget * slope[sf] / v_hat ** 2
+        g_t = budget * slope[st] / v_hat ** 2
+        rhs = budget * (2.0 / v_hat - v_zero / v_hat ** 2)
+        k = np.arange(sf.size)
+        rows = np.concatenate((k, k, k + sf.size, k + sf.size))
+        cols = np.concatenate((sf, st, sf, st))
+        vals = np.concatenate((-kap[sf] + g_f, kap[st] + g_t, kap[sf] + g_f, -kap[st] + g_t))
+        L = sp.coo_matrix((vals, (rows, cols)), shape=(2 * sf.size, nv)).tocsr()
+        L.sum_duplicates()
+        return L, np.concatenate((rhs, rhs))
+
     def build(self, b_hat: np.ndarray):
         p, lay, ds = self.p, self.lay, self.ds
         nv = lay.nv
@@ -355,6 +388,12 @@ class _QPBuilder:
             lows += [np.full(nv, -np.inf), np.full(nv, -np.inf)]
             ups += [alpha0, alpha0]
 
+        if lim.max_lateral_jerk_mps3 is not None:
+            L, up_l = self._lateral_jerk_rows(b_hat)
+            blocks.append(L)
+            lows.append(np.full(L.shape[0], -np.inf))
+            ups.append(up_l)
+
         A = sp.vstack(blocks, format="csc")
         lo_all = np.concatenate(lows)
         up_all = np.concatenate(ups)
@@ -457,13 +496,21 @@ def plateau_anchors(problem: SpeedProblem, b_env: np.ndarray, nv: int):
     most ``v (a_accel + a_decel) / j`` of distance on either side. Stations farther than that
     (plus five steps) from the stretch's ends are fixed at the cap, which removes them from the
     QP. (Plateaus along constant-radius curves are not held: there the envelope leaves no
-    acceleration to spare, and holding them made some QPs infeasible, for a small gain.)
+    acceleration to spare, and holding them made some QPs infeasible, for a small gain. With a
+    lateral jerk bound, steps where the cap speed would use more than half of it end a
+    stretch.)
     Returns ``(mask, values)`` over the ``nv`` distinct nodes.
     """
     lim = problem.limits
     b = b_env[:nv]
     at_cap = b >= problem.cap_b[:nv] * (1 - 1e-9)
     flat_step = (np.abs(np.diff(b)) <= 1e-9 * np.maximum(b[1:], 1.0)) & at_cap[1:] & at_cap[:-1]
+    if lim.max_lateral_jerk_mps3 is not None:
+        # a stretch held at the cap must keep the lateral jerk bound by itself (the envelope
+        # does not know it): where the curvature changes too fast for the cap speed, the
+        # vehicle slows down, which ends the stretch there
+        lat_jerk = np.abs(problem.step_lateral_jerk(b_env))[: nv - 1]
+        flat_step &= lat_jerk <= 0.5 * lim.max_lateral_jerk_mps3
     both = np.zeros(nv, dtype=bool)
     both[1:-1] = flat_step[:-1] & flat_step[1:]
     reach = np.sqrt(b) * (lim.max_accel_mps2 + lim.max_decel_mps2) / lim.max_jerk_mps3

@@ -99,6 +99,8 @@ def build_reference_model(problem: SpeedProblem, b_lin: np.ndarray, b_upper: np.
 
     if lim.max_jerk_mps3 is not None:
         cons += _jerk_constraints(problem, b, b_lin[:nv], nv, frm, to, mean_a, f_first, f_last)
+    if lim.max_lateral_jerk_mps3 is not None:
+        cons += _lateral_jerk_constraints(problem, b, b_lin[:nv], fixed, frm, to)
 
     objective = cp.sum(cp.multiply(coef * ds, cp.inv_pos(cp.sqrt(b[frm]) + cp.sqrt(b[to]))))
     if comfort_weight > 0:
@@ -131,6 +133,36 @@ def _accel_change(problem, nv, frm, to, f_first, f_last):
     Dm = sp.csr_matrix((vals, (rows, cols)), shape=(nv, nv))
     at_rest = (fb == 0) & (fa == 0)
     return Dm, at_rest, (before, after, has_b, has_a)
+
+
+def _lateral_jerk_constraints(problem, b, b_lin, fixed, frm, to):
+    """|change of kappa v^2 over a step| <= J_lat * (step time), the step time being
+    ``c ds / (v + v')`` (curvespeed.problem).
+
+    ``v + v'`` is bounded above by the tangents of ``sqrt`` at ``b_lin`` (concave), and
+    ``1 / x`` below by its tangent at the linearisation point (convex): the product is a lower
+    bound on the allowed change, linear in ``b``. Stations with a fixed speed use it exactly.
+    """
+    import cvxpy as cp
+
+    J = problem.limits.max_lateral_jerk_mps3
+    ds = problem.ds
+    kappa = problem.kappa_signed
+    c = problem.time_coef[:frm.size]
+    known = np.zeros(b_lin.size, dtype=bool)
+    value = np.zeros(b_lin.size)
+    for k, val in fixed.items():
+        known[k], value[k] = True, val
+    r = np.where(known, np.sqrt(value), np.sqrt(np.maximum(b_lin, _B_FLOOR)))
+    slope = np.where(known, 0.0, 0.5 / np.where(known, 1.0, r))
+    centre = np.where(known, 0.0, b_lin)
+    # sqrt(b) <= r + slope (b - centre): the tangent at a free station, r itself at a fixed one
+    s_hat = r[frm] + r[to]
+    s_upper = (s_hat + cp.multiply(slope[frm], b[frm] - centre[frm])
+               + cp.multiply(slope[to], b[to] - centre[to]))
+    allowed = cp.multiply(c * ds * J, 2.0 / s_hat - cp.multiply(1.0 / s_hat ** 2, s_upper))
+    change = cp.multiply(kappa[to], b[to]) - cp.multiply(kappa[frm], b[frm])
+    return [change <= allowed, -change <= allowed]
 
 
 def _jerk_constraints(problem, b, b_lin, nv, frm, to, mean_a, f_first, f_last):
