@@ -656,7 +656,8 @@ def test_comfort_above_friction_is_warned_to_library_callers_too():
     from helpers import geometry_from_curvature
 
     geo = geometry_from_curvature(np.full(201, 1 / 80.0), ds=1.0)
-    limits = Limits(friction_coefficient=0.2, max_lateral_accel_mps2=3.0, max_jerk_mps3=None)
+    limits = Limits(friction_coefficient=0.2, max_lateral_accel_mps2=3.0, max_accel_mps2=1.0,
+                    max_decel_mps2=1.5, max_jerk_mps3=None)     # only the lateral cap is above grip
     with pytest.warns(CurvespeedWarning, match="exceeds the lateral grip"):
         plan_profile(geo, limits)
 
