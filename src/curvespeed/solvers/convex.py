@@ -17,6 +17,8 @@ problem of :mod:`curvespeed.problem` with the squared speeds ``b`` as variables:
   ``w = (v_prev + 2 v + v_next) / 4``; ``w`` is concave in ``b`` so its tangent at ``b_hat`` is an
   upper bound, and ``J ds / w`` is then replaced by its tangent (a lower bound, ``1/w`` being
   convex). Both steps keep the row conservative for any ``b_hat > 0``;
+* **lateral jerk** (when bounded) over each step: ``|kappa' b' - kappa b| <= J_lat c ds / V``
+  with ``V = v + v'``, linearised the same way (see :meth:`_QPBuilder._lateral_jerk_rows`);
 * **objective**: total time ``sum 2 ds / (sqrt(b_k) + sqrt(b_k+1))`` (convex), replaced in each
   iteration by its exact second-order model at ``b_hat``, plus an optional comfort term
   ``w_c * sum (a_after - a_before)^2``.
