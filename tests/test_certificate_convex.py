@@ -160,6 +160,18 @@ def test_lateral_jerk_bound_is_kept_and_agrees_with_the_cvxpy_reference(closed, 
     assert np.max(np.abs(np.sqrt(fast.b) - np.sqrt(ref.b))) <= 0.1
 
 
+def test_infeasible_lateral_jerk_at_a_fixed_start_speed_is_explained():
+    # 11 m/s on a 50 m radius (2.4 m/s^2) whose curvature ends 3 m after the start: the lateral
+    # acceleration cannot fall to zero that fast at 0.3 m/s^3 from that speed
+    kappa = np.zeros(201)
+    kappa[:3] = 1 / 50.0
+    problem = build_problem(geometry_from_curvature(kappa, ds=1.0),
+                            Limits(max_lateral_jerk_mps3=0.3),
+                            RouteConstraints(start_speed_mps=11.0))
+    with pytest.raises(InfeasibleError, match="max_lateral_jerk_mps3 = 0.3 allows"):
+        solve_convex(problem)
+
+
 def test_solving_stretches_in_parallel_does_not_change_the_answer():
     # Stops and a zone cut this route into independent stretches. Solved by one thread (one
     # QP) or spread over three (three QPs), each stretch's QP has one optimum (the time model is

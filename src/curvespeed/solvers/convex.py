@@ -826,6 +826,13 @@ def _explain_infeasible(problem: SpeedProblem) -> str:
                         f"{problem.station_m[k]:.1f} m needs {need:.1f} m of jerk-limited "
                         f"braking (decel {a:g} m/s^2, jerk {j:g} m/s^3) but only {avail:.1f} m "
                         "are available; lower the start speed or move the stop")
+    if lim.max_lateral_jerk_mps3 is not None:
+        return (f"{problem.source}: no speed profile satisfies the jerk bounds together with the "
+                "other limits and constraints (stops, zones, start and end speed); a fixed "
+                "start or end speed where the curvature changes quickly asks more lateral jerk "
+                f"than max_lateral_jerk_mps3 = {lim.max_lateral_jerk_mps3:g} allows. Relax "
+                "max_lateral_jerk_mps3 or max_jerk_mps3, lower the start or end speed, or "
+                "check the curvature near the ends and the stops")
     return (f"{problem.source}: no speed profile satisfies the jerk bound together with the "
             "other limits and constraints (stops, zones, start and end speed); relax "
             "max_jerk_mps3 or the constraints near the start and the stops")
