@@ -134,6 +134,21 @@ def test_jerk_panel_without_a_jerk_bound(profile):
     assert art.band is None and "no jerk bound" in art.note.get_text()
 
 
+def test_jerk_panel_shows_lateral_jerk_when_it_is_bounded(profile):
+    art = plot_jerk(profile, LIMITS.replace(max_lateral_jerk_mps3=0.6))
+    # per step: change of curvature * v^2 over the step time 2 ds / (v + v'), from the profile
+    v, kappa, s = profile.speed_mps, profile.geometry.curvature_1pm, profile.geometry.station_m
+    step_time = 2 * np.diff(s) / (v[:-1] + v[1:])
+    step_time[profile.cubic_step] *= 1.5                   # 3 ds / v next to rest
+    np.testing.assert_allclose(art.lateral_line.get_ydata(), np.diff(kappa * v * v) / step_time,
+                               rtol=1e-12, atol=1e-12)
+    np.testing.assert_allclose(art.lateral_line.get_xdata(), 0.5 * (s[:-1] + s[1:]))
+    assert sorted(line.get_ydata()[0] for line in art.lateral_limits) == [-0.6, 0.6]
+    assert art.ax.get_ylabel() == "jerk (m/s³)" and art.ax.get_legend() is not None
+    plain = plot_jerk(profile, LIMITS)
+    assert plain.lateral_line is None and plain.lateral_limits == ()
+
+
 def test_each_panel_draws_on_its_own_figure_or_a_given_axes(profile):
     from matplotlib.figure import Figure
 

@@ -177,6 +177,14 @@ class StationProfile:
         return coef * np.diff(self.station_m) / (v[:-1] + v[1:])
 
     @property
+    def step_lateral_jerk_mps3(self) -> np.ndarray:
+        """Change of the lateral acceleration ``curvature * v^2`` over each step divided by the
+        step's time, m/s^3 (the planner's definition, :meth:`SpeedProblem.step_lateral_jerk
+        <curvespeed.problem.SpeedProblem.step_lateral_jerk>`)."""
+        lat = self.curvature_1pm * self.speed_mps ** 2
+        return np.diff(lat) / self.step_time_s
+
+    @property
     def node_time_s(self) -> np.ndarray:
         """Time at each node recomputed from stations and speeds, without dwells, s."""
         return np.concatenate(([0.0], np.cumsum(self.step_time_s)))

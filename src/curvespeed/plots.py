@@ -50,6 +50,7 @@ SPEED_LABEL = "speed (m/s)"
 CURVATURE_LABEL = "curvature (1/m)"
 ACCEL_LABEL = "longitudinal acceleration (m/s²)"
 JERK_LABEL = "longitudinal jerk (m/s³)"
+BOTH_JERKS_LABEL = "jerk (m/s³)"
 LATERAL_LABEL = "lateral acceleration (m/s²)"
 X_LABEL = "x (m)"
 Y_LABEL = "y (m)"
@@ -84,6 +85,10 @@ class LineArtists:
     band: object | None = None
     limits: tuple = ()
     note: object | None = None
+    #: The jerk panel only, when the limits bound lateral jerk: its line (per step, at the
+    #: steps' mid-stations) and the +-bound lines.
+    lateral_line: object | None = None
+    lateral_limits: tuple = ()
 
 
 @dataclass(frozen=True)
@@ -265,7 +270,11 @@ def plot_accel(profile, limits: Limits | None = None, ax=None) -> LineArtists:
 
 
 def plot_jerk(profile, limits: Limits | None = None, ax=None) -> LineArtists:
-    """Longitudinal jerk against station, the band ``+-max_jerk`` shaded when a bound is set."""
+    """Longitudinal jerk against station, the band ``+-max_jerk`` shaded when a bound is set.
+
+    When the limits also bound lateral jerk, its per-step values are drawn too, with dotted
+    lines at ``+-max_lateral_jerk``.
+    """
     sp = as_station_profile(profile)
     ax = _new_axes(ax)
     band, lims, note = None, (), None
@@ -281,11 +290,22 @@ def plot_jerk(profile, limits: Limits | None = None, ax=None) -> LineArtists:
                           label="jerk")
     else:
         note = _note(ax, "the profile has no jerk_mps3 column")
+    lateral_line, lateral_limits = None, ()
+    if limits is not None and limits.max_lateral_jerk_mps3 is not None:
+        mid = 0.5 * (sp.station_m[:-1] + sp.station_m[1:])
+        (lateral_line,) = ax.plot(mid, sp.step_lateral_jerk_mps3, color="tab:purple", lw=0.8,
+                                  zorder=2, label="lateral jerk")
+        j = limits.max_lateral_jerk_mps3
+        lateral_limits = tuple(ax.axhline(y, color="tab:purple", lw=0.8, ls=":", zorder=1)
+                               for y in (-j, j))
+        ax.legend(handles=[h for h in (line, lateral_line) if h is not None], loc="upper right",
+                  fontsize="small")
     ax.set_xlabel(STATION_LABEL)
-    ax.set_ylabel(JERK_LABEL)
+    ax.set_ylabel(JERK_LABEL if lateral_line is None else BOTH_JERKS_LABEL)
     ax.set_xlim(sp.station_m[0], sp.station_m[-1])
     ax.grid(True, alpha=0.3)
-    return LineArtists(ax=ax, line=line, band=band, limits=lims, note=note)
+    return LineArtists(ax=ax, line=line, band=band, limits=lims, note=note,
+                       lateral_line=lateral_line, lateral_limits=lateral_limits)
 
 
 def plot_gg(profile, limits: Limits | None = None, ax=None) -> GGArtists:
