@@ -217,6 +217,23 @@ def planning_cases(draw):
 
 
 @FEW
+@given(planning_cases(), st.sampled_from([0.3, 1.0]))
+def test_lateral_jerk_bound_is_kept_on_random_routes(case, bound):
+    # Curvature here jumps between arcs and straights, the hardest case for the bound: the
+    # step across a jump must be slow enough that kappa v^2 changes within bound * step time.
+    geo, limits, constraints = case
+    limits = limits.replace(max_lateral_jerk_mps3=bound)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", CurvespeedWarning)
+        p = plan_profile(geo, limits, constraints)
+    v, s = p.speed_mps, geo.station_m
+    step_time = np.where(p.cubic_step, 3.0, 2.0) * np.diff(s) / (v[:-1] + v[1:])
+    rate = np.diff(geo.curvature_1pm * v * v) / step_time
+    assert np.abs(rate).max() <= bound * (1 + CONVEX_TOLERANCE)
+    assert p.usage["lateral_jerk"] <= 1 + CONVEX_TOLERANCE
+
+
+@FEW
 @given(planning_cases())
 def test_planned_profile_keeps_every_limit_it_reports(case):
     geo, limits, constraints = case
