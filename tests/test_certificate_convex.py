@@ -160,6 +160,22 @@ def test_lateral_jerk_bound_is_kept_and_agrees_with_the_cvxpy_reference(closed, 
     assert np.max(np.abs(np.sqrt(fast.b) - np.sqrt(ref.b))) <= 0.1
 
 
+def test_stretches_held_at_the_cap_stay_clear_of_where_lateral_jerk_slows_the_vehicle():
+    # 1500 m at the top speed, then a spiral the top speed cannot take under the lateral jerk
+    # bound: the envelope (which knows nothing of lateral jerk) holds the top speed up to the
+    # spiral, so stations may be held only where braking for the spiral cannot reach. Held
+    # too close, the QP would be infeasible and solved again without holding.
+    s = np.arange(0.0, 1860.5, 1.0)
+    kappa = np.interp(s, [0, 1500, 1560, 1860], [0, 0, 1 / 300, 1 / 300])
+    problem = build_problem(geometry_from_curvature(kappa, ds=1.0),
+                            Limits(max_lateral_jerk_mps3=0.5, max_speed_mps=27.0),
+                            RouteConstraints(start_speed_mps=27.0))
+    result = solve_convex(problem)
+    assert not any("failed" in n for n in result.notes), result.notes
+    assert any("held at their speed cap" in n for n in result.notes), result.notes
+    assert verify_profile(problem, result.b, tolerance=CONVEX_TOL).ok
+
+
 def test_infeasible_lateral_jerk_at_a_fixed_start_speed_is_explained():
     # 11 m/s on a 50 m radius (2.4 m/s^2) whose curvature ends 3 m after the start: the lateral
     # acceleration cannot fall to zero that fast at 0.3 m/s^3 from that speed

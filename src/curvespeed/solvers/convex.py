@@ -498,9 +498,12 @@ def plateau_anchors(problem: SpeedProblem, b_env: np.ndarray, nv: int):
     most ``v (a_accel + a_decel) / j`` of distance on either side. Stations farther than that
     (plus five steps) from the stretch's ends are fixed at the cap, which removes them from the
     QP. (Plateaus along constant-radius curves are not held: there the envelope leaves no
-    acceleration to spare, and holding them made some QPs infeasible, for a small gain. With a
-    lateral jerk bound, steps where the cap speed would use more than half of it end a
-    stretch.)
+    acceleration to spare, and holding them made some QPs infeasible, for a small gain.)
+
+    A lateral jerk bound is not part of the envelope: where the curvature changes so fast that
+    the cap speed would use more than half of the bound, the vehicle may have to slow down well
+    below the cap, so no station is held within a full stop and restart of such a step (braking
+    from the highest cap to rest and speeding up again, plus the jerk ramps).
     Returns ``(mask, values)`` over the ``nv`` distinct nodes.
     """
     lim = problem.limits
@@ -508,11 +511,19 @@ def plateau_anchors(problem: SpeedProblem, b_env: np.ndarray, nv: int):
     at_cap = b >= problem.cap_b[:nv] * (1 - 1e-9)
     flat_step = (np.abs(np.diff(b)) <= 1e-9 * np.maximum(b[1:], 1.0)) & at_cap[1:] & at_cap[:-1]
     if lim.max_lateral_jerk_mps3 is not None:
-        # a stretch held at the cap must keep the lateral jerk bound by itself (the envelope
-        # does not know it): where the curvature changes too fast for the cap speed, the
-        # vehicle slows down, which ends the stretch there
         lat_jerk = np.abs(problem.step_lateral_jerk(b_env))[: nv - 1]
-        flat_step &= lat_jerk <= 0.5 * lim.max_lateral_jerk_mps3
+        hard = lat_jerk > 0.5 * lim.max_lateral_jerk_mps3
+        if hard.any():
+            b_top = float(b.max())
+            slow_down = (b_top / (2.0 * min(lim.max_accel_mps2, lim.max_decel_mps2))
+                         + math.sqrt(b_top) * (lim.max_accel_mps2 + lim.max_decel_mps2)
+                         / lim.max_jerk_mps3)
+            reach_steps = int(math.ceil(slow_down / problem.ds)) + 5
+            # steps within reach_steps of a hard step (a running count over a sliding window)
+            count = np.concatenate(([0], np.cumsum(hard)))
+            lo = np.clip(np.arange(hard.size) - reach_steps, 0, hard.size)
+            hi = np.clip(np.arange(hard.size) + reach_steps + 1, 0, hard.size)
+            flat_step &= (count[hi] - count[lo]) == 0
     both = np.zeros(nv, dtype=bool)
     both[1:-1] = flat_step[:-1] & flat_step[1:]
     reach = np.sqrt(b) * (lim.max_accel_mps2 + lim.max_decel_mps2) / lim.max_jerk_mps3
@@ -537,16 +548,18 @@ def solve_convex(problem: SpeedProblem, options: ConvexOptions = ConvexOptions()
     # rather take the transitions more gently, so it is not held then.
     hold = jerk and options.anchor_plateaus and options.comfort_weight == 0
     anchors = plateau_anchors(problem, env.b, nv) if hold else None
+    held_failed = False
     try:
         out = _run_scp(problem, env, options, anchors)
     except (InfeasibleError, SolverError) as exc:
         if anchors is None or not anchors[0].any():
             raise
-        notes.append(f"fixing envelope plateaus failed ({exc}); solved without")
+        notes.append(f"holding stretches at their speed cap failed ({exc}); solved without")
+        held_failed = True
         out = _run_scp(problem, env, options, None)
     b_hat, status, iterations, qp_iterations, more_notes = out
     notes += more_notes
-    if anchors is not None and anchors[0].any():
+    if anchors is not None and anchors[0].any() and not held_failed:
         notes.append(f"{int(anchors[0].sum())} of {nv} stations held at their speed cap "
                      "(middle of long stretches at the cap)")
 
