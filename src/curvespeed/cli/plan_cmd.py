@@ -18,10 +18,10 @@ from ._limits import constraint_options, limit_override_options, resolve_limits
 @click.option("--meta", "meta_file", type=click.Path(dir_okay=False), default=None,
               help="Where to write the JSON sidecar (default: next to the profile).")
 @click.option("--solver", type=click.Choice([k.value for k in SolverKind]), default=None,
-              help="'convex' (default when a jerk bound is set): minimum time with the jerk "
-                   "bound; 'envelope' (default otherwise): exact forward-backward method, no "
-                   "jerk bound; 'convex-reference': the convex program modelled in cvxpy "
-                   "(slow, for cross-checks).")
+              help="'convex' (default when a jerk bound, longitudinal or lateral, is set): "
+                   "minimum time within the jerk bounds; 'envelope' (default otherwise): exact "
+                   "forward-backward method, no jerk bound; 'convex-reference': the convex "
+                   "program modelled in cvxpy (slow, for cross-checks).")
 @click.option("--comfort-weight", type=float, default=0.0, show_default=True, metavar="W",
               help="Convex solver: weight on squared changes of acceleration, s/(m/s^2)^2; "
                    "0 is pure minimum time.")
