@@ -304,3 +304,13 @@ def test_a_stop_too_close_for_the_start_speed_is_explained():
     with pytest.raises(InfeasibleError,
                        match=r"stop at station 110\.0 m needs 120\.0 m .* only 110\.0 m"):
         solve_convex(problem)
+
+
+def test_the_convex_solver_is_the_default_for_either_jerk_bound():
+    from curvespeed.planner import default_solver
+    from curvespeed.solvers import SolverKind
+
+    assert default_solver(Limits()) is SolverKind.CONVEX                   # 2 m/s^3 default
+    assert default_solver(Limits(max_jerk_mps3=None)) is SolverKind.ENVELOPE
+    assert default_solver(Limits(max_jerk_mps3=None, max_lateral_jerk_mps3=0.5)) \
+        is SolverKind.CONVEX
