@@ -18,6 +18,7 @@ from click.testing import CliRunner
 
 from curvespeed.cli.check_cmd import check
 from curvespeed.cli.plan_cmd import plan
+from curvespeed.errors import CurvespeedWarning
 from curvespeed.io.check_report import CURVE_COLUMNS
 
 ROUTES = Path(__file__).resolve().parent.parent / "routes"
@@ -169,15 +170,18 @@ def test_zones_of_the_limits_file_are_the_default_speeds(tmp_path):
     limits.write_text("[limits]\n\n[[zone]]\nstart_m = 0.0\nend_m = 100.0\nmax_speed_mps = 25.0\n"
                       "\n[[zone]]\nstart_m = 100.0\nend_m = 2000.0\nmax_speed_mps = 15.0\n",
                       encoding="utf-8")
-    implicit = run(route, "-l", limits)
-    explicit = run(route, "-l", limits, "--zones-only")
+    # the second zone runs on past the route's end (596 m): said, and applied up to the end
+    with pytest.warns(CurvespeedWarning, match="runs past the route"):
+        implicit = run(route, "-l", limits)
+        explicit = run(route, "-l", limits, "--zones-only")
     assert implicit.exit_code == explicit.exit_code == 0, implicit.output
     assert "speed zones of" in implicit.stdout
     # the same zones moved so the 25 m/s stretch ends 10 m before the arc: too late to brake
     late = tmp_path / "late.toml"
     late.write_text(limits.read_text(encoding="utf-8").replace("100.0", "190.0"),
                     encoding="utf-8")
-    result = run(route, "-l", late)
+    with pytest.warns(CurvespeedWarning, match="runs past the route"):
+        result = run(route, "-l", late)
     assert result.exit_code == 1, result.output
     assert "too fast to brake for the curve" in result.stdout and "LATE" in result.stdout
 

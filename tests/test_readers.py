@@ -472,7 +472,11 @@ def test_csv_round_trip_property(tmp_path_factory, line):
     spec = f".{CSV_DECIMALS}f"
     path.write_text("# generated\n" + format_columns({"x_m": (x, spec), "y_m": (y, spec)}),
                     encoding="utf-8")
-    r = read_route(path)
+    with warnings.catch_warnings():
+        # random polylines often have sharp kinks, which the reader rightly warns about; the
+        # property here is only the round trip of the numbers
+        warnings.simplefilter("ignore", CurvespeedWarning)
+        r = read_route(path)
     assert r.n_points == x.size
     np.testing.assert_allclose(r.x_m, x, rtol=0, atol=CSV_ATOL_M)
     np.testing.assert_allclose(r.y_m, y, rtol=0, atol=CSV_ATOL_M)
