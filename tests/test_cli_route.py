@@ -113,3 +113,16 @@ def test_existing_output_is_not_overwritten_without_force(tmp_path):
     assert out.read_text() == "keep me\n"
     assert run(circle_csv(tmp_path / "c.csv"), "-o", out, "--force").exit_code == 0
     assert out.read_text().startswith("station_m,")
+
+
+def test_command_line_starts_without_the_numerical_libraries():
+    # `curvespeed --help` must stay instant: numpy, scipy and the solvers load only when a
+    # command runs
+    import subprocess
+    import sys
+
+    code = ("import sys, curvespeed.cli.main\n"
+            "heavy = sorted(m for m in ('numpy', 'scipy', 'clarabel', 'cvxpy', 'pyproj', "
+            "'matplotlib') if m in sys.modules)\n"
+            "assert not heavy, heavy\n")
+    subprocess.run([sys.executable, "-c", code], check=True)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from ..io.trajectory import FORMAT_BY_SUFFIX, TrajectoryFormat
+from ..io.trajectory_format import FORMAT_BY_SUFFIX, TrajectoryFormat, format_from_suffix
 from ._common import handle_errors
 
 #: Default time step, s (20 samples per second).
@@ -48,7 +48,7 @@ def export(profile_file, output, fmt, dt_s, station_step_m, dwell_s, force):
                           sample_in_time)
     from ..io.atomic import check_writable
     from ..io.profile_csv import read_station_profile
-    from ..io.trajectory import format_from_suffix, write_trajectory
+    from ..io.trajectory import write_trajectory
 
     if dt_s is not None and station_step_m is not None:
         raise click.UsageError("--dt and --station-step exclude each other; give one of them")

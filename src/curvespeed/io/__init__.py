@@ -18,9 +18,12 @@ from __future__ import annotations
 import codecs
 import os
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from ..errors import RouteFormatError
-from ..route import Route
+
+if TYPE_CHECKING:                  # only for annotations: the package stays light to import
+    from ..route import Route
 
 #: Route file extensions (lower case) and the format each one selects.
 ROUTE_EXTENSIONS = {".csv": "csv", ".geojson": "geojson", ".json": "geojson", ".gpx": "gpx"}

@@ -37,7 +37,6 @@ latitude/longitude 1e-9 degree.
 
 from __future__ import annotations
 
-import enum
 import json
 import os
 from pathlib import Path
@@ -48,6 +47,7 @@ from ..errors import OutputError
 from ..export import TRAJECTORY_COLUMNS, SamplingMode, Trajectory
 from ._format import CURVATURE, DEGREES, METRES, RADIANS, format_column, format_columns
 from .atomic import atomic_open
+from .trajectory_format import FORMAT_BY_SUFFIX, TrajectoryFormat, format_from_suffix
 
 #: Times (s), speeds (m/s) and accelerations (m/s^2): 1e-6.
 KINEMATIC = ".6f"
@@ -61,24 +61,6 @@ COLUMN_FORMATS = {
     "curvature_1pm": CURVATURE, "yaw_rate_radps": YAW_RATE, "lat_accel_mps2": KINEMATIC,
     "lat": DEGREES, "lon": DEGREES,
 }
-
-
-class TrajectoryFormat(enum.Enum):
-    """Output formats of ``curvespeed export`` (the command line offers these values)."""
-
-    CSV = "csv"
-    JSON = "json"
-    GEOJSON = "geojson"
-
-
-#: Output file extension (lower case) -> format, for choosing the format from the file name.
-FORMAT_BY_SUFFIX = {".csv": TrajectoryFormat.CSV, ".json": TrajectoryFormat.JSON,
-                    ".geojson": TrajectoryFormat.GEOJSON}
-
-
-def format_from_suffix(path: str | os.PathLike) -> TrajectoryFormat | None:
-    """The format an output file name implies (``.csv``, ``.json``, ``.geojson``), or None."""
-    return FORMAT_BY_SUFFIX.get(Path(path).suffix.lower())
 
 
 # -- writing -----------------------------------------------------------------------------------

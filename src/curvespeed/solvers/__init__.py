@@ -1,15 +1,17 @@
 """Solvers for the discrete speed problem, behind one small interface.
 
 Every solver takes a :class:`~curvespeed.problem.SpeedProblem` and returns a :class:`SolveResult`
-holding squared speeds at the nodes. :data:`SOLVERS` is the registry the command line offers.
+holding squared speeds at the nodes. :class:`SolverKind` lists those the command line offers.
 """
 
 from __future__ import annotations
 
 import enum
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
-import numpy as np
+if TYPE_CHECKING:                  # annotations only: the command line imports SolverKind early
+    import numpy as np
 
 
 class SolveStatus(enum.Enum):
