@@ -51,3 +51,10 @@ def atomic_open(path: str | os.PathLike, force: bool = False, mode: str = "w", n
         with contextlib.suppress(FileNotFoundError):
             os.unlink(tmp)
         raise
+
+
+def write_text_atomic(text: str, path: str | os.PathLike, force: bool = False) -> Path:
+    """Write ``text`` to ``path`` through :func:`atomic_open`; return the path."""
+    with atomic_open(path, force) as fh:
+        fh.write(text)
+    return Path(path)

@@ -27,7 +27,7 @@ from pathlib import Path
 from .. import __version__
 from ..check import CheckReport
 from ._format import METRES, RATIO, format_columns
-from .atomic import atomic_open
+from .atomic import write_text_atomic
 from .meta_json import json_safe
 from .profile_csv import KINEMATIC
 
@@ -63,9 +63,7 @@ def write_check_json(report: CheckReport, path: str | os.PathLike, force: bool =
     rows = [f'    {json.dumps(name)}: {json.dumps(values, allow_nan=False)}'
             for name, values in per_station.items()]
     text = text[:-2] + ',\n  "per_station": {\n' + ",\n".join(rows) + "\n  }\n}\n"
-    with atomic_open(path, force) as fh:
-        fh.write(text)
-    return Path(path)
+    return write_text_atomic(text, path, force)
 
 
 def curve_table_columns(report: CheckReport) -> dict[str, tuple[object, str]]:
@@ -113,6 +111,4 @@ def curve_table_columns(report: CheckReport) -> dict[str, tuple[object, str]]:
 def write_curve_csv(report: CheckReport, path: str | os.PathLike, force: bool = False) -> Path:
     """Write the per-curve table to ``path`` as CSV (atomically)."""
     text = format_columns(curve_table_columns(report))
-    with atomic_open(path, force) as fh:
-        fh.write(text)
-    return Path(path)
+    return write_text_atomic(text, path, force)

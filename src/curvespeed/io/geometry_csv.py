@@ -23,7 +23,7 @@ from pathlib import Path
 
 from ..geometry import Geometry
 from ._format import CURVATURE, DEGREES, METRES, RADIANS, RATIO, format_columns
-from .atomic import atomic_open
+from .atomic import write_text_atomic
 
 
 def geometry_columns(geometry: Geometry) -> dict[str, tuple[object, str]]:
@@ -54,6 +54,4 @@ def write_geometry_csv(geometry: Geometry, path: str | os.PathLike, force: bool 
         ``path`` exists and ``force`` is false, or its folder does not exist.
     """
     text = format_columns(geometry_columns(geometry))
-    with atomic_open(path, force) as fh:
-        fh.write(text)
-    return Path(path)
+    return write_text_atomic(text, path, force)

@@ -39,7 +39,7 @@ from ..export import (StationProfile, make_station_profile, planned_time_mismatc
                       steps_next_to_rest)
 from ..profile import Profile
 from ._format import format_columns
-from .atomic import atomic_open
+from .atomic import write_text_atomic
 from .geometry_csv import geometry_columns
 from .table_csv import Table, read_table_csv
 
@@ -104,9 +104,7 @@ def profile_columns(profile: Profile) -> dict[str, tuple[object, str]]:
 def write_profile_csv(profile: Profile, path: str | os.PathLike, force: bool = False) -> Path:
     """Write ``profile`` to ``path`` (atomically; an existing file only with ``force``)."""
     text = format_columns(profile_columns(profile))
-    with atomic_open(path, force) as fh:
-        fh.write(text)
-    return Path(path)
+    return write_text_atomic(text, path, force)
 
 
 # -- reading -----------------------------------------------------------------------------------

@@ -46,7 +46,7 @@ import numpy as np
 from ..errors import OutputError
 from ..export import TRAJECTORY_COLUMNS, SamplingMode, Trajectory
 from ._format import CURVATURE, DEGREES, METRES, RADIANS, format_column, format_columns
-from .atomic import atomic_open
+from .atomic import write_text_atomic
 from .trajectory_format import FORMAT_BY_SUFFIX, TrajectoryFormat, format_from_suffix
 
 #: Times (s), speeds (m/s) and accelerations (m/s^2): 1e-6.
@@ -92,9 +92,7 @@ def write_trajectory_csv(trajectory: Trajectory, path: str | os.PathLike,
     """Write the CSV layout (module docstring)."""
     _check_finite(trajectory)
     text = format_columns(trajectory_columns(trajectory))
-    with atomic_open(path, force) as fh:
-        fh.write(text)
-    return Path(path)
+    return write_text_atomic(text, path, force)
 
 
 def write_trajectory_json(trajectory: Trajectory, path: str | os.PathLike,
@@ -117,9 +115,7 @@ def write_trajectory_json(trajectory: Trajectory, path: str | os.PathLike,
     ]
     text = ("{\n" + "".join(f"  {json.dumps(k)}: {v},\n" for k, v in head)
             + '  "columns": {\n' + body + "\n  }\n}\n")
-    with atomic_open(path, force) as fh:
-        fh.write(text)
-    return Path(path)
+    return write_text_atomic(text, path, force)
 
 
 def write_trajectory_geojson(trajectory: Trajectory, path: str | os.PathLike,
@@ -154,9 +150,7 @@ def write_trajectory_geojson(trajectory: Trajectory, path: str | os.PathLike,
     text = ('{\n  "type": "Feature",\n  "geometry": {\n    "type": "LineString",\n'
             '    "coordinates": [\n' + coords + "\n    ]\n  },\n  \"properties\": {\n"
             + ",\n".join(f"    {json.dumps(k)}: {v}" for k, v in props) + "\n  }\n}\n")
-    with atomic_open(path, force) as fh:
-        fh.write(text)
-    return Path(path)
+    return write_text_atomic(text, path, force)
 
 
 def _sampling_json(trajectory: Trajectory) -> str:
