@@ -32,6 +32,15 @@ _NUMBER_CHARACTERS = re.compile(r"[^0-9eE+\-. \t]")
 SEPARATOR_NAMES = {",": "comma", ";": "semicolon", "\t": "tab"}
 
 
+def separator_warning(source: str, header_line: int, sep: str, decimal_comma: bool,
+                      advice: str) -> str:
+    """The warning for a CSV read with another separator than commas (a spreadsheet export)."""
+    marks = "decimal commas" if decimal_comma else "decimal points"
+    return (f"{source}: line {header_line}: read as {SEPARATOR_NAMES[sep]}-separated values with "
+            f"{marks} (a spreadsheet export?); {advice}save the file comma-separated with "
+            "decimal points to silence this")
+
+
 def detect_separator(header_text: str) -> str:
     """The field separator a CSV file uses, judged from its header line.
 

@@ -27,9 +27,9 @@ import numpy as np
 
 from ..errors import CurvespeedWarning
 from ..route import Route, make_route
-from ._common import (SEPARATOR_NAMES, decimal_mark_problem, detect_separator, fail,
+from ._common import (decimal_mark_problem, detect_separator, fail,
                       latlon_range_problem, looks_projected, number_problem, parse_column,
-                      parse_number, project_latlon, swapped_would_fit)
+                      parse_number, project_latlon, separator_warning, swapped_would_fit)
 
 METRIC_COLUMNS = ("x_m", "y_m", "z_m")
 GEOGRAPHIC_COLUMNS = ("lat", "lon", "ele_m")
@@ -109,10 +109,8 @@ def parse_route_csv(text: str, source: str) -> Route:
                    f"column '{k}' value '{raw.strip()}' {number_problem(raw, decimal_comma)}"
                    "; fix or remove that line")
     if sep != ",":
-        marks = "decimal commas" if decimal_comma else "decimal points"
-        warnings.warn(f"{source}: line {header_line}: read as {SEPARATOR_NAMES[sep]}-separated "
-                      f"values with {marks} (a spreadsheet export?); check the route summary, "
-                      "or save the file comma-separated with decimal points to silence this",
+        warnings.warn(separator_warning(source, header_line, sep, decimal_comma,
+                                        "check the route summary, or "),
                       CurvespeedWarning, stacklevel=3)
     where = np.array([f"line {n}" for n in line_numbers], dtype=object)
 

@@ -19,8 +19,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import CurvespeedWarning, SpeedFileError
-from ._common import (SEPARATOR_NAMES, decimal_mark_problem, detect_separator, number_problem,
-                      parse_column, read_text)
+from ._common import (decimal_mark_problem, detect_separator, number_problem,
+                      parse_column, read_text, separator_warning)
 
 #: Columns kept as text rather than parsed as numbers.
 TEXT_COLUMNS = frozenset({"binding", "step_kind"})
@@ -125,9 +125,6 @@ def read_table_csv(path: str | os.PathLike, min_rows: int = 2) -> Table:
                                  "or remove that line")
         columns[name] = values
     if sep != ",":
-        marks = "decimal commas" if decimal_comma else "decimal points"
-        warnings.warn(f"{source}: line {header_line}: read as {SEPARATOR_NAMES[sep]}-separated "
-                      f"values with {marks} (a spreadsheet export?); save the file "
-                      "comma-separated with decimal points to silence this",
+        warnings.warn(separator_warning(source, header_line, sep, decimal_comma, ""),
                       CurvespeedWarning, stacklevel=2)
     return Table(columns=columns, lines=np.asarray(lines), source=source)
