@@ -191,8 +191,8 @@ def test_infeasible_lateral_jerk_at_a_fixed_start_speed_is_explained():
 def test_solving_stretches_in_parallel_does_not_change_the_answer():
     # Stops and a zone cut this route into independent stretches. Solved by one thread (one
     # QP) or spread over three (three QPs), each stretch's QP has one optimum (the time model is
-    # strictly convex), so the profiles differ only by the QP tolerance: measured 1e-5 m/s, and
-    # 1e-3 m/s is far below anything a tracker could notice.
+    # strictly convex), so the profiles differ only by the QP tolerance (gap 1e-7 of the route's
+    # time): measured 1e-5 m/s; bound 1e-4 m/s.
     s = np.arange(0.0, 3000.5, 1.0)
     geo = geometry_from_curvature(0.01 * np.sin(2 * np.pi * s / 500.0)
                                   + 0.004 * np.sin(2 * np.pi * s / 250.0), ds=1.0)
@@ -202,7 +202,7 @@ def test_solving_stretches_in_parallel_does_not_change_the_answer():
     one = solve_convex(problem, ConvexOptions(threads=1))
     three = solve_convex(problem, ConvexOptions(threads=3))
     assert three.inner_iterations > one.inner_iterations      # really solved as separate QPs
-    assert np.max(np.abs(np.sqrt(one.b) - np.sqrt(three.b))) <= 1e-3
+    assert np.max(np.abs(np.sqrt(one.b) - np.sqrt(three.b))) <= 1e-4
     assert verify_profile(problem, three.b, tolerance=CONVEX_TOL).ok
 
 
