@@ -164,6 +164,17 @@ def test_bad_constraints_exit_2(args, fragment, tmp_path):
     assert not out.exists()
 
 
+def test_limits_file_saved_as_utf16_is_refused_with_what_to_do(tmp_path):
+    # the same text checks as route files: a spreadsheet or editor may save UTF-16
+    limits = tmp_path / "limits.toml"
+    limits.write_bytes("[limits]\nmax_speed_mps = 10\n".encode("utf-16"))
+    out = tmp_path / "p.csv"
+    result = run(straight_csv(tmp_path / "s.csv"), "-l", limits, "-o", out)
+    assert result.exit_code == 2, result.output
+    assert "limits.toml: is UTF-16 text; save it as UTF-8" in result.output
+    assert not out.exists()
+
+
 def test_existing_profile_needs_force(tmp_path):
     route = straight_csv(tmp_path / "s.csv")
     out = tmp_path / "p.csv"

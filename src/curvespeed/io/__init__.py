@@ -15,7 +15,6 @@ user can meet are listed in ``docs/input_rules.md``.
 
 from __future__ import annotations
 
-import codecs
 import os
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -64,14 +63,16 @@ def read_route(path: str | os.PathLike) -> Route:
         raise RouteFormatError(
             f"{source}: {ext} is not a route format curvespeed reads; use one of "
             f"{', '.join(ROUTE_EXTENSIONS)}")
-    data = _read_bytes(p, source)
-    _check_text(data, source)
+    from ._common import check_text, decode_utf8, read_bytes
+
+    data = read_bytes(p, source)
+    check_text(data, source)
 
     if kind == "gpx":
         from .gpx import parse_route_gpx
 
         return parse_route_gpx(data, source)
-    text = _decode_utf8(data, source)
+    text = decode_utf8(data, source)
     if kind == "csv":
         from .route_csv import parse_route_csv
 
@@ -79,40 +80,3 @@ def read_route(path: str | os.PathLike) -> Route:
     from .geojson import parse_route_geojson
 
     return parse_route_geojson(text, source)
-
-
-def _read_bytes(p: Path, source: str) -> bytes:
-    try:
-        return p.read_bytes()
-    except FileNotFoundError:
-        raise RouteFormatError(f"{source}: no such file; check the name and folder") from None
-    except IsADirectoryError:
-        raise RouteFormatError(f"{source}: is a folder, not a route file") from None
-    except PermissionError:
-        raise RouteFormatError(f"{source}: cannot be read (permission denied)") from None
-    except OSError as exc:
-        raise RouteFormatError(f"{source}: cannot be read ({exc.strerror or exc})") from None
-
-
-def _check_text(data: bytes, source: str) -> None:
-    """Refuse UTF-16/32 text and binary files with a message saying what to do."""
-    if data.startswith((codecs.BOM_UTF32_LE, codecs.BOM_UTF32_BE)):
-        raise RouteFormatError(f"{source}: is UTF-32 text; save it as UTF-8")
-    if data.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
-        raise RouteFormatError(f"{source}: is UTF-16 text; save it as UTF-8")
-    nul = data.find(b"\x00")
-    if nul >= 0:
-        line = data.count(b"\n", 0, nul) + 1
-        raise RouteFormatError(
-            f"{source}: line {line}: contains a NUL byte, so it is not a text file; give a "
-            "CSV, GeoJSON or GPX route saved as UTF-8")
-
-
-def _decode_utf8(data: bytes, source: str) -> str:
-    try:
-        return data.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        line = data.count(b"\n", 0, exc.start) + 1
-        raise RouteFormatError(
-            f"{source}: line {line}: byte 0x{data[exc.start]:02x} is not valid UTF-8; "
-            "save the file as UTF-8") from None

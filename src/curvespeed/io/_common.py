@@ -160,15 +160,53 @@ def fail(source: str, where: str | None, message: str) -> RouteFormatError:
 
 
 def read_text(path, error=RouteFormatError) -> str:
-    """UTF-8 text of ``path`` (a byte-order mark is dropped); ``error`` names the file on failure."""
+    """UTF-8 text of ``path`` (a byte-order mark is dropped); ``error`` names the file on failure.
+
+    Refuses, with what to do: a missing or unreadable file, a folder, UTF-16/32 or binary
+    content (:func:`check_text`) and bytes that are not UTF-8 (naming the line).
+    """
+    source = str(path)
+    data = read_bytes(path, source, error)
+    check_text(data, source, error)
+    return decode_utf8(data, source, error)
+
+
+def read_bytes(path, source: str, error=RouteFormatError) -> bytes:
+    """The bytes of ``path``; a missing, unreadable file or a folder raises ``error``."""
     from pathlib import Path
 
-    source = str(path)
     try:
-        return Path(path).read_text(encoding="utf-8-sig")
+        return Path(path).read_bytes()
     except FileNotFoundError:
-        raise error(f"{source}: no such file") from None
-    except UnicodeDecodeError:
-        raise error(f"{source}: not a UTF-8 text file") from None
+        raise error(f"{source}: no such file; check the name and folder") from None
+    except IsADirectoryError:
+        raise error(f"{source}: is a folder, not a file") from None
+    except PermissionError:
+        raise error(f"{source}: cannot be read (permission denied)") from None
     except OSError as exc:
-        raise error(f"{source}: cannot read: {exc.strerror}") from None
+        raise error(f"{source}: cannot be read ({exc.strerror or exc})") from None
+
+
+def check_text(data: bytes, source: str, error=RouteFormatError) -> None:
+    """Refuse UTF-16/32 text and binary files with a message saying what to do."""
+    import codecs
+
+    if data.startswith((codecs.BOM_UTF32_LE, codecs.BOM_UTF32_BE)):
+        raise error(f"{source}: is UTF-32 text; save it as UTF-8")
+    if data.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
+        raise error(f"{source}: is UTF-16 text; save it as UTF-8")
+    nul = data.find(b"\x00")
+    if nul >= 0:
+        line = data.count(b"\n", 0, nul) + 1
+        raise error(f"{source}: line {line}: contains a NUL byte, so it is not a text file; "
+                    "give the file saved as UTF-8 text")
+
+
+def decode_utf8(data: bytes, source: str, error=RouteFormatError) -> str:
+    """``data`` as UTF-8 (a byte-order mark dropped); a bad byte raises ``error`` naming its line."""
+    try:
+        return data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = data.count(b"\n", 0, exc.start) + 1
+        raise error(f"{source}: line {line}: byte 0x{data[exc.start]:02x} is not valid UTF-8; "
+                    "save the file as UTF-8") from None

@@ -42,6 +42,7 @@ from pathlib import Path
 
 from ..errors import LimitsError
 from ..limits import DEFAULT_LIMITS, Limits, RouteConstraints, SpeedZone, Stop, Superelevation
+from ._common import read_text
 
 _LIMIT_KEYS = tuple(f.name for f in dataclasses.fields(Limits))
 _ROUTE_KEYS = ("start_speed_mps", "end_speed_mps")
@@ -81,16 +82,11 @@ def _number(path: Path, table: str, key: str, value) -> float:
 def read_limits(path: str | Path) -> tuple[Limits, RouteConstraints]:
     """Read ``path``; raise :class:`LimitsError` naming the file, table and key on any problem."""
     path = Path(path)
+    text = read_text(path, LimitsError)
     try:
-        data = tomllib.loads(path.read_text(encoding="utf-8-sig"))
-    except FileNotFoundError:
-        raise LimitsError(f"{path}: no such limits file") from None
-    except UnicodeDecodeError:
-        raise LimitsError(f"{path}: not a UTF-8 text file; save it as UTF-8 TOML") from None
+        data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise LimitsError(f"{path}: not valid TOML: {exc}") from None
-    except OSError as exc:
-        raise LimitsError(f"{path}: cannot read: {exc.strerror}") from None
 
     known_tables = ("limits", "route") + tuple(_TABLES)
     if "limits" not in data or not isinstance(data["limits"], dict):
