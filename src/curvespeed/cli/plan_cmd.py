@@ -33,10 +33,8 @@ from ._limits import constraint_options, limit_override_options, resolve_limits
 @constraint_options
 @handle_errors
 def plan(route_file, limits_file, output, meta_file, solver, comfort_weight, plot_file, force,
-         spacing_m,
-         position_noise_m,
-         elevation_noise_m, closed, zones, stops, superelevations, start_speed, end_speed,
-         **overrides):
+         spacing_m, position_noise_m, elevation_noise_m, closed, zones, stops, superelevations,
+         start_speed, end_speed, **overrides):
     """Plan the fastest speed profile along ROUTE_FILE within the limits.
 
     The profile is an engineering aid: speeds on public roads and advisory signs follow local
