@@ -43,7 +43,7 @@ def test_bundled_route_with_default_limits(name, tmp_path):
     for word in ("time", "mean", "top", "curves where a lateral limit sets the speed"):
         assert word in result.output
     header, cols = read_profile(out)
-    assert tuple(header[:10]) == PROFILE_COLUMNS
+    assert tuple(header[:len(PROFILE_COLUMNS)]) == PROFILE_COLUMNS
     v = np.array(cols["speed_mps"], dtype=float)
     assert v.min() >= 0 and v.max() <= 30.0 + 1e-6
     meta = json.loads((tmp_path / "profile.meta.json").read_text())

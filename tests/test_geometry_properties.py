@@ -74,6 +74,15 @@ def check_node_convention(geo, spacing_requested):
     assert n == math.ceil(geo.length_m / spacing_requested * (1 - 1e-12))
 
 
+def _menger(x, y):
+    """Curvature of the circle through each node and its two neighbours (ends: their neighbour's)."""
+    ax, ay = x[1:-1] - x[:-2], y[1:-1] - y[:-2]
+    bx, by = x[2:] - x[1:-1], y[2:] - y[1:-1]
+    cross = ax * by - ay * bx
+    k = 2 * cross / (np.hypot(ax, ay) * np.hypot(bx, by) * np.hypot(x[2:] - x[:-2], y[2:] - y[:-2]))
+    return np.concatenate((k[:1], k, k[-1:]))
+
+
 def check_chords(geo, fine):
     """Chords between nodes against their arcs, using a 4x finer resampling of the same fit."""
     ds = geo.spacing_m
@@ -81,8 +90,11 @@ def check_chords(geo, fine):
     assert np.all(chord <= ds * (1 + 1e-9))                      # chord <= arc
     # Curvature bound along each step: the largest of the fine nodes inside it, plus the largest
     # change between neighbouring fine nodes (what it can rise between two samples).
-    kf = np.abs(fine.curvature_1pm)
-    rise = np.max(np.abs(np.diff(fine.curvature_1pm)))
+    # The path's own curvature, from the fine nodes' positions (curvature_1pm is the adaptive
+    # estimate, which may be smoothed more than the positions): circle through three nodes.
+    path_k = _menger(fine.x_m, fine.y_m)
+    kf = np.abs(path_k)
+    rise = np.max(np.abs(np.diff(path_k)))
     k_step = np.array([kf[4 * i: 4 * i + 5].max() for i in range(chord.size)]) + rise
     ok = k_step * ds < math.pi
     schur = np.where(k_step > 0, 2 * np.sin(0.5 * k_step * ds) / np.maximum(k_step, 1e-300), ds)
@@ -101,14 +113,13 @@ def test_open_route_properties(case):
     route = make_route(x, y, source="random")
     with warnings.catch_warnings():
         warnings.simplefilter("error", CurvespeedWarning)     # plausible input: no warnings
-        geo = build_geometry(route, spacing_m=spacing, position_noise_m=noise, closed=False)
+        geo = build_geometry(route, spacing_m=spacing, closed=False)   # noise from the points
     assert not geo.closed
     check_node_convention(geo, spacing)
 
     # The same fit resampled 4x finer: every coarse node is a fine node (same station), so the
     # arc-length inversion must put it at the same place.
-    fine = build_geometry(route, spacing_m=geo.spacing_m / 4 * (1 + 1e-9),
-                          position_noise_m=noise, closed=False)
+    fine = build_geometry(route, spacing_m=geo.spacing_m / 4 * (1 + 1e-9), closed=False)
     assert fine.n_nodes == 4 * (geo.n_nodes - 1) + 1
     assert fine.length_m == pytest.approx(geo.length_m, rel=1e-12)
     assert np.allclose(fine.x_m[::4], geo.x_m, atol=SAME_POINT_ATOL_M, rtol=0.0)
@@ -125,6 +136,7 @@ def test_open_route_properties(case):
     # freedom between unequal steps is allowed another 1 %.
     m = x.size
     chords = float(np.sum(np.hypot(np.diff(x), np.diff(y))))
+    noise = geo.provenance["position_noise"]["used_m"]        # the noise the fit allowed
     allowance = 2 * noise * math.sqrt(m * residual_target(m))
     theta = math.radians(30.0)
     assert geo.length_m >= chords - allowance
@@ -167,7 +179,8 @@ def test_closed_loop_properties(case):
     route = make_route(x, y, z, source="loop")
     with warnings.catch_warnings():
         warnings.simplefilter("error", CurvespeedWarning)
-        geo = build_geometry(route, spacing_m=1.0, position_noise_m=noise)
+        geo = build_geometry(route, spacing_m=1.0)              # noise from the points
+    noise = geo.provenance["position_noise"]["used_m"]
     assert geo.closed                       # detected from the ends meeting
     check_node_convention(geo, 1.0)
     # Seam: node n is node 0 again, bit for bit, in everything but heading.
@@ -250,12 +263,16 @@ def test_open_is_kept_when_asked():
     assert geo.x_m[-1] != geo.x_m[0]
 
 
-def test_points_bunched_like_a_standing_trace_are_reported():
+def test_points_bunched_like_a_standing_trace_are_merged():
     # A straight approach, then 30 points circling a spot 0.5 m wide (a receiver left running
-    # while standing), then on: the smoothed path stands still there.
+    # while standing, no time stamps), then on: the cluster becomes one point and the path
+    # runs straight through it (it used to be refused as a cusp).
     ang = np.radians(80 + 130 * np.arange(30))
     x = np.concatenate((np.arange(0, 20, 2.0), 21 + 0.5 * np.cos(ang), np.arange(23, 43, 2.0)))
     y = np.concatenate((np.zeros(10), 0.5 * np.sin(ang), np.zeros(10)))
-    with pytest.raises(RouteGeometryError, match=r"trace\.csv: station 2\d\.\d m \(near point "
-                                                 r"\d+\): the smoothed path nearly stands still"):
-        build_geometry(make_route(x, y, source="trace.csv"), position_noise_m=0.5)
+    geo = build_geometry(make_route(x, y, source="trace.csv"))
+    assert geo.provenance["standstills_merged"] == 1
+    assert geo.provenance["points_fitted"] < 30         # 20 road points and what is left of 30
+    # straight from x = 0 to 41 m; the merged point sits within 0.1 m of the line
+    assert geo.length_m == pytest.approx(41.0, abs=0.05)
+    assert np.max(np.abs(geo.y_m)) < 0.1

@@ -220,7 +220,10 @@ def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstrai
     n = s.size
     ds = float(geometry.spacing_m)
     kappa = geometry.curvature_1pm
-    kappa_abs = np.abs(kappa)
+    # Lateral acceleration and grip use the curvature bound, which covers the true road where
+    # the fit's smoothing spreads a change of curvature or noise blurs it (curvespeed.geometry);
+    # lateral jerk follows the estimate itself (kappa_signed).
+    kappa_abs = geometry.planning_curvature_1pm
 
     cap = np.full(n, float(limits.max_speed_mps) ** 2)
     source = np.full(n, "max_speed", dtype=object)

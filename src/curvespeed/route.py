@@ -1,10 +1,10 @@
 """The route as read from a file: an ordered list of points in a metric frame.
 
 Readers (``curvespeed.io``) turn files into :class:`Route` through :func:`make_route`, which owns
-the checks every format shares: finite values of a size found on Earth, repeated points dropped,
-a receiver standing still merged into one point, at least three distinct points, no reversal,
-and a warning for a point that sticks out of the line like a spike. Geometry (resampling,
-curvature) lives in :mod:`curvespeed.geometry`.
+the checks every format shares: finite values of a size found on Earth, repeated points dropped
+and at least three distinct points. What needs the points' noise to judge (standstills, dense
+fixes, reversals, outliers) is done when the geometry is fitted (:mod:`curvespeed.geometry`),
+with :func:`check_reversals` for paths that double back between well-separated points.
 """
 
 from __future__ import annotations
@@ -26,14 +26,6 @@ MAX_COORDINATE_M = 1.0e8
 #: Largest elevation magnitude accepted, metres: the highest summit is below 9 km and the deepest
 #: trench above -11 km, so anything beyond 100 km is in other units or wrong.
 MAX_ELEVATION_M = 1.0e5
-#: Points around a reversal that all lie within this distance of one another are taken as a
-#: receiver standing still and merged into one point at their centre, metres. Consumer satellite
-#: receivers at rest wander by a few metres (common practice); no drivable manoeuvre turns back
-#: within this distance, so a real reversal survives the merge and is still refused.
-STANDSTILL_DIAMETER_M = 5.0
-#: A point at a reversal is named as a stray point when removing it removes the reversal and
-#: it lies more than this many usual steps (median chord around it) from its neighbours.
-STRAY_STEPS = 3.0
 #: A point is reported as a spike when it lies at least this far off the line through its two
 #: neighbours, metres ...
 SPIKE_OFFSET_M = 1.0
@@ -42,8 +34,9 @@ SPIKE_TURN_DEG = 30.0
 #: ... and the turns at the neighbours undo it: each has the opposite sign and the three add up
 #: to at most this fraction of the middle one (the path carries on in its old direction).
 SPIKE_NET_TURN_FRACTION = 0.25
-
-
+#: A point at a reversal is named as a stray point when removing it removes the reversal and
+#: it lies more than this many usual steps (median chord around it) from its neighbours.
+STRAY_STEPS = 3.0
 @dataclass(frozen=True)
 class Route:
     """Points of a route in a local metric frame, in driving order.
@@ -105,24 +98,18 @@ def make_route(
 
     In order: values must be finite and within :data:`MAX_COORDINATE_M` (elevation
     :data:`MAX_ELEVATION_M`); consecutive points closer than ``min_separation_m`` are dropped with
-    a warning (a logger that stood still); runs of points that turn back and forth within
-    :data:`STANDSTILL_DIAMETER_M` are merged into one point with a warning (a receiver standing
-    still and jittering); then at least three points must remain and the path must not double
-    back (a turn sharper than :data:`REVERSAL_TURN_DEG` between consecutive chords). A point
-    that sticks out of the line like a spike (see :data:`SPIKE_OFFSET_M`) is kept, with a
-    warning.
+    a warning (a logger that stood still); then at least three points must remain.
 
     Raises
     ------
     RouteGeometryError
-        For a non-finite or out-of-Earth value, fewer than three distinct points, or a reversal,
-        naming the point (and station) and what to do; for a reversal it says when two points
-        look swapped or one looks like a stray point.
+        For a non-finite or out-of-Earth value or fewer than three distinct points, naming the
+        point and what to do.
 
     Warns
     -----
     CurvespeedWarning
-        Repeated points dropped, standstill runs merged, a spike.
+        Repeated points dropped.
     """
     x = np.asarray(x_m, dtype=float).ravel()
     y = np.asarray(y_m, dtype=float).ravel()
@@ -173,13 +160,6 @@ def make_route(
         raise RouteGeometryError(
             f"{source}: only {x.size} distinct point(s){repeats}; a route needs at least 3")
 
-    x, y, z, t, labels = _merge_standstills(x, y, z, t, labels, source, min_separation_m)
-    if x.size < 3:
-        raise RouteGeometryError(
-            f"{source}: only {x.size} point(s) left after merging points where the receiver "
-            "stood still; a route needs at least 3 distinct points")
-    _check_reversals(x, y, labels, source)
-    _warn_spikes(x, y, labels, source)
     if t is not None:
         t = t - t[0]
     route_name = name or source.rsplit("/", 1)[-1].rsplit(".", 1)[0]
@@ -197,138 +177,19 @@ def _reversal_points(x: np.ndarray, y: np.ndarray) -> np.ndarray:
     return np.flatnonzero(np.abs(_turns(x, y)) > math.radians(REVERSAL_TURN_DEG)) + 1
 
 
-def _span_label(labels: np.ndarray, a: int, b: int) -> str:
-    """"line 12-40" for points a..b labelled "line 12" .. "line 40" (else "A to B")."""
-    first, last = str(labels[a]), str(labels[b])
-    head_a, _, num_a = first.rpartition(" ")
-    head_b, _, num_b = last.rpartition(" ")
-    if head_a and head_a == head_b and num_a.isdigit() and num_b.isdigit():
-        return f"{head_a} {num_a}-{num_b}"
-    return f"{first} to {last}"
-
-
-def _standstill_window(x: np.ndarray, y: np.ndarray, k: int, lo: int) -> tuple[int, int] | None:
-    """The run of points around reversal point ``k`` within STANDSTILL_DIAMETER_M of each other.
-
-    Starts from ``k`` and its two neighbours and grows one point at a time on either side while
-    every pair stays within the diameter, never below index ``lo``; None if even the first
-    three are farther apart (or reach below ``lo``).
-    """
-    n = x.size
-    d = STANDSTILL_DIAMETER_M
-
-    def fits(i: int, a: int, b: int) -> bool:
-        return bool(np.all(np.hypot(x[a:b + 1] - x[i], y[a:b + 1] - y[i]) <= d))
-
-    a, b = k - 1, k + 1
-    if a < lo or not (fits(a, k, b) and fits(b, k, k)):
-        return None
-    grew = True
-    while grew:
-        grew = False
-        if a > lo and fits(a - 1, a, b):
-            a -= 1
-            grew = True
-        if b < n - 1 and fits(b + 1, a, b):
-            b += 1
-            grew = True
-    return a, b
-
-
-def _merge_standstills(x, y, z, t, labels, source: str, min_separation_m: float):
-    """Merge runs of points where a receiver stood still and jittered (see STANDSTILL_DIAMETER_M).
-
-    Only runs that contain a reversal are touched: dense but orderly points are left as they
-    are. Each run becomes one point at the centre of its positions (mean elevation; the time of
-    its first point, when the vehicle arrived). All runs found are merged in one pass, and the
-    pass repeats until no reversal can be merged. Warns once, naming the first run merged.
-    """
-    merged: list[tuple[str, int]] = []
-    while x.size >= 3:
-        windows = []
-        lo = 0
-        for k in _reversal_points(x, y):
-            if k - 1 < lo:
-                continue                # inside (or touching) the run found before
-            window = _standstill_window(x, y, int(k), lo)
-            if window is not None:
-                windows.append(window)
-                lo = window[1] + 1
-        if not windows:
-            break                       # none, or real reversals: _check_reversals explains
-        keep = np.ones(x.size, dtype=bool)
-        x, y, labels = x.copy(), y.copy(), labels.copy()
-        z = None if z is None else z.copy()
-        for a, b in windows:
-            merged.append((_span_label(labels, a, b), b - a + 1))
-            x[a], y[a] = x[a:b + 1].mean(), y[a:b + 1].mean()
-            if z is not None:
-                z[a] = z[a:b + 1].mean()
-            labels[a] = merged[-1][0]
-            keep[a + 1:b + 1] = False
-        # a centre may land on a neighbour: drop repeats again
-        idx = np.flatnonzero(keep)
-        step = np.hypot(np.diff(x[idx]), np.diff(y[idx]))
-        keep[idx[1:][step < min_separation_m]] = False
-        x, y, labels = x[keep], y[keep], labels[keep]
-        z = None if z is None else z[keep]
-        t = None if t is None else t[keep]
-    if merged:
-        first, count = merged[0]
-        more = (f" ({len(merged)} such places, {sum(c for _, c in merged)} points in all)"
-                if len(merged) > 1 else "")
-        warnings.warn(
-            f"{source}: {first}: {count} points within {STANDSTILL_DIAMETER_M:g} m of one "
-            f"another turn back and forth, as a receiver standing still does; merged them into "
-            f"one point at their centre{more}. If the vehicle really reverses there, split the "
-            "route at that point", CurvespeedWarning, stacklevel=3)
-    return x, y, z, t, labels
-
-
-def _warn_spikes(x: np.ndarray, y: np.ndarray, labels: np.ndarray, source: str) -> None:
-    """Warn about points that stick out of the line like a spike (see SPIKE_OFFSET_M)."""
-    if x.size < 5:
-        return
-    turn = _turns(x, y)                       # turn[j] is at point j + 1
-    mid = turn[1:-1]                          # points 2 .. n-3
-    before, after = turn[:-2], turn[2:]
-    # offset of each point from the line through its two neighbours
-    ax, ay = x[1:-3], y[1:-3]
-    bx, by = x[3:-1], y[3:-1]
-    px, py = x[2:-2], y[2:-2]
-    chord = np.hypot(bx - ax, by - ay)
-    cross = np.abs((bx - ax) * (py - ay) - (by - ay) * (px - ax))
-    offset = np.where(chord > 0, cross / np.where(chord > 0, chord, 1.0),
-                      np.hypot(px - ax, py - ay))
-    spike = ((np.abs(mid) >= math.radians(SPIKE_TURN_DEG))
-             & (np.sign(before) == -np.sign(mid)) & (np.sign(after) == -np.sign(mid))
-             & (np.abs(before + mid + after) <= SPIKE_NET_TURN_FRACTION * np.abs(mid))
-             & (offset >= SPIKE_OFFSET_M))
-    found = np.flatnonzero(spike)
-    if not found.size:
-        return
-    worst = int(found[np.argmax(offset[found])])
-    k = worst + 2
-    station = float(np.hypot(np.diff(x[:k + 1]), np.diff(y[:k + 1])).sum())
-    more = f" and {found.size - 1} more point(s) like it" if found.size > 1 else ""
-    warnings.warn(
-        f"{source}: {labels[k]} (station {station:.1f} m) sticks out {offset[worst]:.1f} m from "
-        f"the line through its neighbours and the path turns {math.degrees(abs(mid[worst])):.0f} "
-        f"degrees there and back{more}; the fitted path follows it, as a sharp kink that slows "
-        "the profile. If it is an outlier remove it; if the file is a noisy GPS trace, give its "
-        "position noise so the fit smooths it", CurvespeedWarning, stacklevel=3)
-
-
-def _check_reversals(x: np.ndarray, y: np.ndarray, labels: np.ndarray, source: str) -> None:
+def check_reversals(x: np.ndarray, y: np.ndarray, labels: np.ndarray, source: str,
+                    consider: np.ndarray | None = None) -> None:
     """Raise if the path turns back on itself between two consecutive chords.
 
-    The message says what probably happened where it can tell: two points in the wrong order
-    (exchanging them removes the reversal), or a stray point (an out-and-back jump: removing it
-    removes the reversal).
+    ``consider`` (one flag per interior point) limits the check to some points, e.g. those
+    between chords much longer than the noise. The message says what probably happened where
+    it can tell: two points in the wrong order (exchanging them removes the reversal), or a
+    stray point (an out-and-back jump: removing it removes the reversal).
     """
     dx, dy = np.diff(x), np.diff(y)
     turn = _turns(x, y)
-    bad = np.flatnonzero(np.abs(turn) > math.radians(REVERSAL_TURN_DEG))
+    sharp = np.abs(turn) > math.radians(REVERSAL_TURN_DEG)
+    bad = np.flatnonzero(sharp if consider is None else sharp & consider)
     if not bad.size:
         return
     k = int(bad[0]) + 1  # the point where the path turns back
@@ -367,3 +228,43 @@ def _check_reversals(x: np.ndarray, y: np.ndarray, labels: np.ndarray, source: s
         f"{source}: {labels[k]} (station {station:.1f} m): the path doubles back on itself "
         f"(turn of {math.degrees(abs(turn[k - 1])):.0f} degrees between consecutive "
         f"segments); {advice}")
+
+
+def warn_spikes(x: np.ndarray, y: np.ndarray, labels: np.ndarray, source: str,
+                consider: np.ndarray | None = None) -> None:
+    """Warn about points that stick out of the line like a spike (see SPIKE_OFFSET_M).
+
+    ``consider`` (one flag per point) limits the check to some points, e.g. single fixes far
+    apart compared with the noise (averaged fixes of a dense log scatter by design)."""
+    if x.size < 5:
+        return
+    turn = _turns(x, y)                       # turn[j] is at point j + 1
+    mid = turn[1:-1]                          # points 2 .. n-3
+    before, after = turn[:-2], turn[2:]
+    # offset of each point from the line through its two neighbours
+    ax, ay = x[1:-3], y[1:-3]
+    bx, by = x[3:-1], y[3:-1]
+    px, py = x[2:-2], y[2:-2]
+    chord = np.hypot(bx - ax, by - ay)
+    cross = np.abs((bx - ax) * (py - ay) - (by - ay) * (px - ax))
+    offset = np.where(chord > 0, cross / np.where(chord > 0, chord, 1.0),
+                      np.hypot(px - ax, py - ay))
+    spike = ((np.abs(mid) >= math.radians(SPIKE_TURN_DEG))
+             & (np.sign(before) == -np.sign(mid)) & (np.sign(after) == -np.sign(mid))
+             & (np.abs(before + mid + after) <= SPIKE_NET_TURN_FRACTION * np.abs(mid))
+             & (offset >= SPIKE_OFFSET_M))
+    if consider is not None:
+        spike &= consider[1:-3] & consider[2:-2] & consider[3:-1]
+    found = np.flatnonzero(spike)
+    if not found.size:
+        return
+    worst = int(found[np.argmax(offset[found])])
+    k = worst + 2
+    station = float(np.hypot(np.diff(x[:k + 1]), np.diff(y[:k + 1])).sum())
+    more = f" and {found.size - 1} more point(s) like it" if found.size > 1 else ""
+    warnings.warn(
+        f"{source}: {labels[k]} (station {station:.1f} m) sticks out {offset[worst]:.1f} m from "
+        f"the line through its neighbours and the path turns {math.degrees(abs(mid[worst])):.0f} "
+        f"degrees there and back{more}; unless the points' noise covers it, the fitted path "
+        "follows it as a sharp kink that slows the profile. If it is an outlier remove it",
+        CurvespeedWarning, stacklevel=4)

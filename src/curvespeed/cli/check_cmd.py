@@ -46,8 +46,8 @@ from ._limits import constraint_options, limit_override_options, resolve_limits
 @handle_errors
 def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_speed_kmh, e_max,
           trace_noise_m, curve_radius_m, json_file, csv_file, force, spacing_m,
-          position_noise_m, elevation_noise_m, closed, zones, stops, superelevations,
-          start_speed, end_speed, **overrides):
+          position_noise_m, elevation_noise_m, use_elevation, closed, part, zones, stops,
+          superelevations, start_speed, end_speed, **overrides):
     """Check speeds along ROUTE_FILE against friction, comfort and road-design criteria.
 
     Exit status 0: all within limits; 1: at least one violation; 2: bad input. The numbers
@@ -82,7 +82,8 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
 
     limits, constraints, origin = resolve_limits(limits_file, overrides, zones, stops,
                                                  superelevations, start_speed, end_speed)
-    _, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m, closed)
+    _, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m, closed,
+                           use_elevation, part)
 
     from ..check import CurveSettings, SpeedKind, check_speeds, zone_speeds_mps
     from ..units import kmh_to_mps

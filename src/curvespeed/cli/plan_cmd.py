@@ -33,8 +33,8 @@ from ._limits import constraint_options, limit_override_options, resolve_limits
 @constraint_options
 @handle_errors
 def plan(route_file, limits_file, output, meta_file, solver, comfort_weight, plot_file, force,
-         spacing_m, position_noise_m, elevation_noise_m, closed, zones, stops, superelevations,
-         start_speed, end_speed, **overrides):
+         spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed, part, zones,
+         stops, superelevations, start_speed, end_speed, **overrides):
     """Plan the fastest speed profile along ROUTE_FILE within the limits.
 
     The profile is an engineering aid: speeds on public roads and advisory signs follow local
@@ -57,7 +57,8 @@ def plan(route_file, limits_file, output, meta_file, solver, comfort_weight, plo
         check_writable(plot_file, force)
     limits, constraints, origin = resolve_limits(limits_file, overrides, zones, stops,
                                                  superelevations, start_speed, end_speed)
-    _, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m, closed)
+    _, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m, closed,
+                           use_elevation, part)
 
     from ..planner import plan_profile
 

@@ -6,7 +6,7 @@ import math
 
 import click
 
-from ._common import geometry_options, handle_errors, load_geometry
+from ._common import describe_fit, geometry_options, handle_errors, load_geometry
 
 
 @click.command()
@@ -16,13 +16,15 @@ from ._common import geometry_options, handle_errors, load_geometry
               help="Write the resampled geometry to this CSV file.")
 @click.option("--force", is_flag=True, help="Replace the output file if it exists.")
 @handle_errors
-def route(route_file, spacing_m, position_noise_m, elevation_noise_m, closed, output, force):
+def route(route_file, spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
+          part, output, force):
     """Read ROUTE_FILE (CSV, GeoJSON or GPX), resample it and print a summary."""
     from ..io.atomic import check_writable
 
     if output:
         check_writable(output, force)
-    rt, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m, closed)
+    rt, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m, closed,
+                           use_elevation, part)
     from ..geometry import summarise_geometry
 
     summary = summarise_geometry(geo)
@@ -38,6 +40,7 @@ def route(route_file, spacing_m, position_noise_m, elevation_noise_m, closed, ou
         f"min radius     {radius}",
         f"total turning  {summary['total_turning_deg']:.1f} degrees",
     ]
+    lines.extend(describe_fit(geo.provenance))
     if summary["min_elevation_m"] is not None:
         lines.append(f"elevation      {summary['min_elevation_m']:.1f} .. "
                      f"{summary['max_elevation_m']:.1f} m, grade {100 * summary['min_grade']:.1f}"

@@ -12,7 +12,7 @@ from scipy.interpolate import BSpline
 from .pspline import SPLINE_DEGREE, SplineFit
 
 _GAUSS_NODES = 10                    # Gauss-Legendre nodes per arc-length piece
-_ARC_PIECE_M = 2.0                   # longest piece of parameter one Gauss-Legendre rule spans
+ARC_PIECE_M = 2.0                   # longest piece of parameter one Gauss-Legendre rule spans
 _NEWTON_TOL = 1e-11                  # arc-length inversion: station error / half a piece
 _NEWTON_MAX_ITER = 60
 
@@ -47,7 +47,7 @@ class ArcLength:
         """Tabulate station along ``fit``: each knot interval is cut into equal pieces no longer
         than ``piece_m`` (in the parameter, ~metres), each integrated by Gauss-Legendre."""
         k, n_int, knot_h = SPLINE_DEGREE, fit.n_intervals, fit.span / fit.n_intervals
-        piece_m = _ARC_PIECE_M if piece_m is None else piece_m
+        piece_m = ARC_PIECE_M if piece_m is None else piece_m
         sub = max(1, math.ceil(knot_h / piece_m - 1e-9))
         h = knot_h / sub
         q = _GAUSS_NODES

@@ -11,7 +11,7 @@ The node convention used by every later step (limits, solvers, writers):
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -42,6 +42,15 @@ class Geometry:
         Maps x, y back to latitude/longitude for geographic routes.
     source, name : str
         Where the route came from, for messages and titles.
+    curvature_bound_1pm : ndarray or None
+        An upper bound on |curvature| at each node that covers the true road's: what the fit's
+        smoothing can spread out near a change of curvature, plus its noise-driven uncertainty.
+        Planning and checking use it; None means |curvature_1pm| is exact (designed geometry).
+    curvature_sd_1pm : ndarray or None
+        Standard deviation of the curvature estimate from the position noise, 1/m.
+    provenance : dict
+        How the geometry was made (noise stated, estimated and used; standstills merged, fixes
+        averaged, parts), for summaries and sidecar files.
     """
 
     station_m: np.ndarray
@@ -56,6 +65,16 @@ class Geometry:
     projection: LocalProjection | None = None
     source: str = "route"
     name: str = "route"
+    curvature_bound_1pm: np.ndarray | None = None
+    curvature_sd_1pm: np.ndarray | None = None
+    provenance: dict = field(default_factory=dict, compare=False)
+
+    @property
+    def planning_curvature_1pm(self) -> np.ndarray:
+        """|curvature| that plans and checks use: the bound where there is one."""
+        if self.curvature_bound_1pm is not None:
+            return self.curvature_bound_1pm
+        return np.abs(self.curvature_1pm)
 
     @property
     def n_nodes(self) -> int:

@@ -3,9 +3,13 @@
 from __future__ import annotations
 
 import math
+import warnings
+from dataclasses import dataclass
 
 import numpy as np
 from scipy import special
+
+from ..errors import CurvespeedWarning
 
 #: Neighbours on each side of a point used to predict it in :func:`estimate_scatter`: a quintic
 #: (degree 2 * 3 - 1, the spline's own degree) through the three points before and after.
@@ -13,7 +17,19 @@ SCATTER_NEIGHBOURS = 3
 _SCATTER_BOUND_LEVEL = float(special.ndtr(-2.0))   # one-sided, two standard deviations
 
 
-def estimate_scatter(u: np.ndarray, values: np.ndarray, span: float, periodic: bool) -> float:
+def estimate_noise(u: np.ndarray, values: np.ndarray, span: float, periodic: bool,
+                   scale: np.ndarray | None = None) -> tuple[float, float]:
+    """Point estimate and upper confidence bound of :func:`estimate_scatter` (inf, inf when
+    there are fewer than :data:`MIN_POINTS_TO_ESTIMATE` points)."""
+    if u.size < MIN_POINTS_TO_ESTIMATE:
+        return math.inf, math.inf
+    return (estimate_scatter(u, values, span, periodic, scale=scale, bound=False),
+            estimate_scatter(u, values, span, periodic, scale=scale))
+
+
+def estimate_scatter(u: np.ndarray, values: np.ndarray, span: float, periodic: bool,
+                     components: int = 1, scale: np.ndarray | None = None,
+                     bound: bool = True) -> float:
     """Scatter of points about a smooth path, estimated from the points alone (metres).
 
     Each point ``i`` is predicted by the polynomial of degree ``2 q - 1`` in ``u`` through its
@@ -40,10 +56,16 @@ def estimate_scatter(u: np.ndarray, values: np.ndarray, span: float, periodic: b
     L = 4 m). Both make the estimate larger, never smaller, so they can only keep the
     smoothing closer to the stated noise.
 
+    ``components`` is how many noisy components each point's prediction error carries: one for a
+    path in chord length (above), two when ``u`` is time or sampling order, where noise along
+    the path stays in the error too. ``scale`` gives each point's noise relative to the others
+    (points that average several fixes are more precise); the estimate is then the noise of a
+    point of relative scale 1.
+
     Returns
     -------
     float
-        An upper confidence bound for ``sigma``, metres, or ``inf`` when there are too few
+        An upper confidence bound for ``sigma`` (``bound=False``: the estimate itself), metres, or ``inf`` when there are too few
         points for one prediction. The mean of ``n`` squared normalised errors is taken as
         ``sigma**2`` times a chi-square variable with ``n_eff`` degrees of freedom divided by
         ``n_eff``, where ``n_eff`` is ``n`` divided by the variance inflation from neighbouring
@@ -58,14 +80,16 @@ def estimate_scatter(u: np.ndarray, values: np.ndarray, span: float, periodic: b
     m = u.size
     if m < 2 * q + 1:
         return math.inf
+    rel = np.ones(m) if scale is None else np.asarray(scale, dtype=float)
     if periodic:   # wrap q points around each end so that every point has its neighbours
         u = np.concatenate((u[-q:] - span, u, u[:q] + span))
         values = np.concatenate((values[-q:], values, values[:q]))
+        rel = np.concatenate((rel[-q:], rel, rel[:q]))
     n = u.size - 2 * q                               # points predicted: q .. q + n - 1
     offsets = [o for o in range(-q, q + 1) if o != 0]
     t = [u[q + o: q + o + n] - u[q: q + n] for o in offsets]
     error = values[q: q + n].copy()
-    scale2 = np.ones(n)
+    scale2 = rel[q: q + n] ** 2
     for a, o in enumerate(offsets):
         # Lagrange weight of neighbour o at the point: prod over the others b of t_b / (t_b - t_a).
         weight = np.ones(n)
@@ -73,16 +97,93 @@ def estimate_scatter(u: np.ndarray, values: np.ndarray, span: float, periodic: b
             if b != a:
                 weight *= t[b] / (t[b] - t[a])
         error -= weight[:, None] * values[q + o: q + o + n]
-        scale2 += weight**2
-    mean_square = float(np.mean(np.sum(error**2, axis=1) / scale2))
+        scale2 += (weight * rel[q + o: q + o + n]) ** 2
+    squares = np.sum(error**2, axis=1) / scale2
+    # A stray point must not set the noise of the whole route: squares beyond WINSOR_FACTOR^2
+    # times the 90th percentile are capped there (for Gaussian noise that cap lies beyond
+    # 6 sigma and changes nothing; a 5 m spike among centimetre-precise points no longer
+    # passes for a metre of noise everywhere).
+    cap = (WINSOR_FACTOR**2) * float(np.percentile(squares, 90))
+    mean_square = float(np.mean(np.minimum(squares, cap))) / components
     if not math.isfinite(mean_square):      # neighbours almost on top of each other
         return math.inf
     # Variance inflation of the mean: on uniform spacing the normalised errors are the
     # 2q-th differences of the noise, whose stencil's autocorrelations r_k give 1 + 2 sum r_k^2.
     stencil = np.array([(-1.0) ** j * math.comb(2 * q, j) for j in range(2 * q + 1)])
     acf = np.correlate(stencil, stencil, mode="full") / float(stencil @ stencil)
-    n_eff = n / float(np.sum(acf**2))
+    n_eff = components * n / float(np.sum(acf**2))
+    if not bound:
+        return math.sqrt(mean_square)
     # mean_square * n_eff / sigma^2 is about chi-square with n_eff degrees of freedom; its
     # lower quantile (scipy's chi2.ppf(p, k) is 2 * gammaincinv(k / 2, p)) gives the bound.
     low = 2.0 * special.gammaincinv(0.5 * n_eff, _SCATTER_BOUND_LEVEL)
     return math.sqrt(mean_square * n_eff / low)
+
+
+#: Normalised squared errors are capped at this factor squared times their 90th percentile.
+WINSOR_FACTOR = 4.0
+#: A stated noise that differs from the estimate by more than this factor either way is
+#: reported, and the estimate is used (see :func:`choose_noise`).
+DISAGREEMENT_FACTOR = 2.0
+
+
+@dataclass(frozen=True)
+class NoiseChoice:
+    """The noise a fit used, and where it came from (standard deviations, metres).
+
+    ``stated`` is None when the user left it to the data (``auto``); ``estimated`` is None when
+    there were too few points to tell.
+    """
+
+    what: str
+    stated: float | None
+    estimated: float | None
+    used: float
+
+    @property
+    def origin(self) -> str:
+        if self.stated is not None and self.used == self.stated:
+            return "stated"
+        return "estimated" if self.estimated is not None else "default"
+
+    def to_dict(self) -> dict:
+        return {"stated_m": self.stated, "estimated_m": self.estimated, "used_m": self.used,
+                "origin": self.origin}
+
+
+#: Fewer points than this give no usable estimate of their noise (the confidence interval of a
+#: variance from n normalised differences spans a factor of about 1 +- 2 sqrt(3.17 / n)).
+MIN_POINTS_TO_ESTIMATE = 20
+
+
+def choose_noise(what: str, stated: float | None, estimated: tuple[float, float], floor: float,
+                 default: float, source: str, stacklevel: int = 3) -> NoiseChoice:
+    """The noise to smooth with: the user's statement unless the points clearly disagree.
+
+    ``estimated`` is the point estimate and its upper confidence bound (both inf when the points
+    are too few). The upper bound (never below ``floor``) is used when nothing is stated, and
+    when the statement lies more than :data:`DISAGREEMENT_FACTOR` outside the range between
+    the two, with a warning naming both. Stated too low, the fit would follow noise the points plainly
+    carry (on a dense log, a path several times too long); stated too high, it would cut
+    curves that the points' own scatter shows are resolved (on design points, radii 5-20 %
+    too tight at clothoid-arc joints). ``default`` serves when there are too few points to
+    estimate anything.
+    """
+    point, upper = estimated
+    est = max(upper, floor) if math.isfinite(upper) else None
+    if est is None:
+        used = default if stated is None else stated
+        return NoiseChoice(what, stated, None, used)
+    if stated is None:
+        return NoiseChoice(what, None, est, est)
+    low = max(point, floor)
+    if low / DISAGREEMENT_FACTOR <= stated <= DISAGREEMENT_FACTOR * est:
+        return NoiseChoice(what, stated, est, stated)
+    ratio = stated / (low if stated < low else est)
+    side = "less" if ratio < 1 else "more"
+    warnings.warn(
+        f"{source}: the {what} noise stated, {stated:g} m, is {max(ratio, 1 / ratio):.1f} times "
+        f"{side} than the points show ({est:.3g} m, estimated from their scatter); using "
+        f"{est:.3g} m. Leave the noise to the data (auto), or check the units and the file",
+        CurvespeedWarning, stacklevel=stacklevel)
+    return NoiseChoice(what, stated, est, est)

@@ -4,22 +4,37 @@ from __future__ import annotations
 
 import math
 import warnings
+from dataclasses import dataclass
 
 import numpy as np
 from scipy.interpolate import BSpline
 from scipy.linalg import LinAlgError
 
 from ..errors import CurvespeedWarning, RouteGeometryError
-from ..route import REVERSAL_TURN_DEG, Route
-from .arclength import ArcLength
+from ..route import REVERSAL_TURN_DEG, Route, check_reversals, warn_spikes
+from .arclength import ARC_PIECE_M, ArcLength
+from .curvature import estimate_curvature
+from .drive import DrivePoints, prepare_drive
+from .elevation import fit_elevation, warn_steep_grades
 from .model import Geometry
-from .noise import estimate_scatter
-from .pspline import fit_pspline, residual_target
+from .noise import NoiseChoice, choose_noise, estimate_noise
+from .pspline import SplineFit, fit_pspline, residual_target
 
 #: Knot intervals per median spacing of the points in the first fit (see _knot_spacing).
 KNOTS_PER_SPACING = 2
-#: Elevation noise assumed when none is given (standard deviation, metres).
-DEFAULT_ELEVATION_NOISE_M = 0.1
+#: Position noise assumed when the points are too few to estimate it (standard deviation, m):
+#: survey-grade centrelines (common practice).
+DEFAULT_POSITION_NOISE_M = 0.05
+#: An averaged point stands for at most this many times the median number of fixes per point in
+#: the fit's weights: fixes taken while standing or crawling share their slowly drifting error,
+#: which averaging does not remove (common practice for satellite positioning).
+MAX_WEIGHT_COUNT_FACTOR = 4.0
+#: A point further from the fitted path than this many noise standard deviations is reported
+#: as a likely outlier (for Gaussian noise, beyond 6 sigma happens once in 5e8 points) ...
+OUTLIER_SIGMAS = 6.0
+#: ... and than this distance (metres): smaller misses come from the fit's own limits at sharp
+#: changes of curvature on precise points, and positioning outliers are metres (common practice).
+OUTLIER_MIN_M = 0.5
 #: Most stations a geometry may have (5000 km at 1 m); more is a wrong spacing or a stray point.
 MAX_STATIONS = 5_000_000
 #: An automatic loop needs its ends closer than this fraction of the route's length too.
@@ -37,9 +52,10 @@ MIN_POSITION_NOISE_M = 1e-3
 CUSP_SPEED_FRACTION = 0.05
 
 
-def build_geometry(route: Route, spacing_m: float = 1.0, position_noise_m: float = 0.05,
+def build_geometry(route: Route, spacing_m: float = 1.0, position_noise_m: float | None = None,
                    elevation_noise_m: float | None = None, closed: bool | None = None,
-                   closure_tolerance_m: float | None = None) -> Geometry:
+                   closure_tolerance_m: float | None = None, part: int | None = None,
+                   use_elevation: bool = True) -> Geometry:
     """Fit a smoothing spline to a route and resample it at uniform arc-length spacing.
 
     Parameters
@@ -186,79 +202,50 @@ def build_geometry(route: Route, spacing_m: float = 1.0, position_noise_m: float
     on public roads and advisory signs follow local codes and licensed practice.
     """
     source = route.source
-    _require_positive(spacing_m, "station spacing", source,
-                      "give the distance between output stations in metres, e.g. 1")
-    _require_positive(position_noise_m, "position noise", source,
-                      "give the standard deviation of the point positions in metres, "
-                      "e.g. 0.05 for surveyed or map coordinates")
-    sigma_z = DEFAULT_ELEVATION_NOISE_M if elevation_noise_m is None else elevation_noise_m
-    _require_positive(sigma_z, "elevation noise", source,
-                      "give the standard deviation of the elevations in metres, e.g. 0.1")
-    chord_length = float(route.chord_stations()[-1])
+    _check_arguments(spacing_m, position_noise_m, elevation_noise_m, closure_tolerance_m, source)
+    if route.n_points < 3:
+        raise RouteGeometryError(
+            f"{source}: only {route.n_points} point(s); a route needs at least 3")
+
+    drive = prepare_drive(route, part)
+    x, y, where, count, time = drive.x_m, drive.y_m, drive.where, drive.count, drive.time
+    z = drive.z_m if use_elevation else None
+    if x.size < 3:
+        raise RouteGeometryError(
+            f"{source}: only {x.size} distinct place(s) after merging where the vehicle stood "
+            "still; a route needs at least 3")
+    is_closed, drop_last = _decide_closure(
+        x, y, where, source, None if closed is None else bool(closed), closure_tolerance_m,
+        position_noise_m or drive.order_noise_m)
+    if drop_last:
+        x, y, where, count, time = x[:-1], y[:-1], where[:-1], count[:-1], time[:-1]
+        z = None if z is None else z[:-1]
+    _check_reversals(x, y, where, count, source, drive.order_noise_m)
+    warn_spikes(x, y, where, source, consider=count == 1)
+    chord_length = float(np.sum(np.hypot(np.diff(x), np.diff(y))))
     if chord_length / spacing_m > MAX_STATIONS:
         raise RouteGeometryError(
             f"{source}: {chord_length / 1000:.1f} km at {spacing_m:g} m spacing would need "
             f"{chord_length / spacing_m:.3g} stations (at most {MAX_STATIONS:.0e}); use "
             f"--spacing {chord_length / MAX_STATIONS:.3g} or more, or look for a stray point")
-    if closure_tolerance_m is not None:
-        _require_positive(closure_tolerance_m, "closure tolerance", source,
-                          "give the largest gap in metres between last and first point that "
-                          "still makes a loop")
 
-    closed = None if closed is None else bool(closed)
-    x = np.asarray(route.x_m, dtype=float)
-    y = np.asarray(route.y_m, dtype=float)
-    z = None if route.z_m is None else np.asarray(route.z_m, dtype=float)
-    where = np.asarray(route.where, dtype=object)
-    if x.size < 3:
-        raise RouteGeometryError(
-            f"{source}: only {x.size} point(s); a route needs at least 3")
-
-    is_closed, drop_last = _decide_closure(x, y, where, source, closed, closure_tolerance_m,
-                                           position_noise_m)
-    if drop_last:
-        x, y, where = x[:-1], y[:-1], where[:-1]
-        z = None if z is None else z[:-1]
-    m = x.size
-
-    chord = np.hypot(np.diff(x), np.diff(y))
-    u = np.concatenate(([0.0], np.cumsum(chord)))
-    span = float(u[-1])
+    path = _fit_path(x, y, count, is_closed, position_noise_m, spacing_m, source)
+    fit, arc, u = path.fit, path.arc, path.u
     if is_closed:
-        span += math.hypot(x[0] - x[-1], y[0] - y[-1])
-    knot_spacing = _knot_spacing(chord, span)
-
-    xy = np.column_stack((x, y))
-    sigma_fit = min(position_noise_m,
-                    max(estimate_scatter(u, xy, span, is_closed), MIN_POSITION_NOISE_M))
-    fit = _fit_or_raise(u, xy, 1.0 / sigma_fit, residual_target(m), span, is_closed,
-                        knot_spacing, source, "route")
-    # Only a residual beyond what the stated noise allows is worth a warning: below it, the fit
-    # follows the points more closely than the stated noise would, because they show less.
-    if fit.too_rough and fit.residual_ss * (sigma_fit / position_noise_m) ** 2 > fit.target_ss:
-        rms = math.sqrt(fit.residual_ss / m) * sigma_fit
-        warnings.warn(
-            f"{source}: the points scatter across the smoothest path by {rms:.3g} m (RMS), "
-            f"more than the position noise of {position_noise_m:g} m allows; the fitted path "
-            "cuts corners there. Check for outliers or raise the position noise",
-            CurvespeedWarning, stacklevel=2)
-
-    arc = ArcLength.from_fit(fit)
-    if is_closed:
-        u_first, u_last = 0.0, span
+        u_first, u_last = 0.0, fit.span
     else:
         # The route runs between the feet of its first and last points on the fitted path.
-        u_first = _foot_parameter(fit.spline, x[0], y[0], 0.0, span)
-        u_last = _foot_parameter(fit.spline, x[-1], y[-1], span, span)
+        u_first = _foot_parameter(fit.spline, x[0], y[0], 0.0, fit.span)
+        u_last = _foot_parameter(fit.spline, x[-1], y[-1], fit.span, fit.span)
     s_first = float(arc.station(np.array([u_first]))[0])
     point_station = arc.station(u) - s_first
-    _check_cusps(arc, s_first, point_station, where, source, position_noise_m)
+    _check_cusps(arc, s_first, point_station, where, source, path.noise.used)
 
     length = float(arc.station(np.array([u_last]))[0]) - s_first if not is_closed else arc.length
     if not length > 0:
         raise RouteGeometryError(
             f"{source}: the smoothed path has no length between the first and last point; the "
-            f"points may all lie within the position noise ({position_noise_m:g} m) of one spot")
+            f"points may all lie within the position noise ({path.noise.used:g} m) of one spot")
     if spacing_m > length:
         raise RouteGeometryError(
             f"{source}: station spacing {spacing_m:g} m is longer than the fitted route "
@@ -274,33 +261,156 @@ def build_geometry(route: Route, spacing_m: float = 1.0, position_noise_m: float
     if not is_closed:
         u_nodes[-1] = u_last
     pos = fit.spline(u_nodes)
-    d1 = fit.spline(u_nodes, nu=1)
-    d2 = fit.spline(u_nodes, nu=2)
-    speed = np.hypot(d1[:, 0], d1[:, 1])
-    kappa = (d1[:, 0] * d2[:, 1] - d1[:, 1] * d2[:, 0]) / speed**3
-    raw_heading = np.arctan2(d1[:, 1], d1[:, 0])
-    xs, ys = pos[:, 0], pos[:, 1]
+    _, raw_heading = curvature_and_heading(fit.spline, u_nodes)
+    curv = estimate_curvature(fit, u, np.column_stack((x, y)),
+                              1.0 / (path.noise.used * path.point_scale), u_nodes,
+                              station[:n_eval], time, drive.drift_rate)
+    xs, ys, kappa = pos[:, 0], pos[:, 1], curv.kappa
+    bound, sd = curv.bound, curv.sd
     if is_closed:
-        xs, ys, kappa, raw_heading = (np.append(a, a[0]) for a in (xs, ys, kappa, raw_heading))
+        xs, ys, kappa, raw_heading, bound, sd = (
+            np.append(a, a[0]) for a in (xs, ys, kappa, raw_heading, bound, sd))
     heading = _continuous_heading(raw_heading, kappa, ds, is_closed)
 
-    z_nodes = grade = None
+    z_nodes = grade = z_noise = None
     if z is not None:
-        z_nodes, grade = _fit_elevation(point_station, z, sigma_z, length, is_closed,
-                                        station[:n_eval], source)
+        z_nodes, grade, z_noise = fit_elevation(point_station, z, count, elevation_noise_m,
+                                                length, is_closed, station[:n_eval], source)
         if is_closed:
             z_nodes, grade = np.append(z_nodes, z_nodes[0]), np.append(grade, grade[0])
+        warn_steep_grades(station, grade, source)
 
+    provenance = _provenance(route, drive, path.noise, z_noise, use_elevation)
     return Geometry(station_m=station, x_m=xs, y_m=ys, heading_rad=heading,
                     curvature_1pm=kappa, z_m=z_nodes, grade=grade, closed=is_closed,
                     spacing_m=float(ds), projection=route.projection, source=source,
-                    name=route.name)
+                    name=route.name, curvature_bound_1pm=bound, curvature_sd_1pm=sd,
+                    provenance=provenance)
 
 
 
 
 # ---------------------------------------------------------------------------------------------
 # Steps of build_geometry.
+
+@dataclass(frozen=True)
+class _PathFit:
+    fit: SplineFit
+    arc: ArcLength
+    u: np.ndarray               # chord-length parameter of the points
+    noise: NoiseChoice
+    point_scale: np.ndarray     # each point's noise relative to one fix
+
+
+def _check_arguments(spacing_m, position_noise_m, elevation_noise_m, closure_tolerance_m,
+                     source) -> None:
+    _require_positive(spacing_m, "station spacing", source,
+                      "give the distance between output stations in metres, e.g. 1")
+    if position_noise_m is not None:
+        _require_positive(position_noise_m, "position noise", source,
+                          "give the standard deviation of the point positions in metres, "
+                          "e.g. 0.05 for surveyed or map coordinates, or leave it to the data")
+    if elevation_noise_m is not None:
+        _require_positive(elevation_noise_m, "elevation noise", source,
+                          "give the standard deviation of the elevations in metres, e.g. 0.1, "
+                          "or leave it to the data")
+    if closure_tolerance_m is not None:
+        _require_positive(closure_tolerance_m, "closure tolerance", source,
+                          "give the largest gap in metres between last and first point that "
+                          "still makes a loop")
+
+
+def _fit_path(x, y, count, closed, stated_noise, spacing_m, source) -> _PathFit:
+    """Fit the plan path to the points, smoothing set by the noise (stated or estimated)."""
+    m = x.size
+    chord = np.hypot(np.diff(x), np.diff(y))
+    u = np.concatenate(([0.0], np.cumsum(chord)))
+    span = float(u[-1])
+    if closed:
+        span += math.hypot(x[0] - x[-1], y[0] - y[-1])
+    cap = MAX_WEIGHT_COUNT_FACTOR * float(np.median(count))
+    scale = 1.0 / np.sqrt(np.minimum(count, cap))
+    xy = np.column_stack((x, y))
+    estimate = estimate_noise(u, xy, span, closed, scale=scale)
+    noise = choose_noise("position", stated_noise, estimate, MIN_POSITION_NOISE_M,
+                         DEFAULT_POSITION_NOISE_M, source, stacklevel=4)
+    fit = _fit_or_raise(u, xy, 1.0 / (noise.used * scale), residual_target(m), span, closed,
+                        _knot_spacing(chord, span), source, "route")
+    if fit.too_rough:
+        rms = math.sqrt(fit.residual_ss / m) * noise.used
+        warnings.warn(
+            f"{source}: the points scatter across the smoothest path by {rms:.3g} m (RMS), "
+            f"more than a position noise of {noise.used:.3g} m allows; the fitted path "
+            "cuts corners there. Check for outliers", CurvespeedWarning, stacklevel=3)
+    _warn_outliers(fit, u, xy, noise.used * scale, source)
+    # Arc length pieces of 2 m, or a quarter of the station spacing when that is longer: stations
+    # are only needed that far apart, and a few points spanning thousands of kilometres must not
+    # cost a table entry every 2 m.
+    arc = ArcLength.from_fit(fit, max(ARC_PIECE_M, 0.25 * spacing_m))
+    return _PathFit(fit, arc, u, noise, scale)
+
+
+def curvature_and_heading(spline: BSpline, u: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Signed curvature ``(x' y'' - y' x'') / |c'|^3`` and heading ``atan2(y', x')`` at ``u``."""
+    d1 = spline(u, nu=1)
+    d2 = spline(u, nu=2)
+    speed = np.hypot(d1[:, 0], d1[:, 1])
+    kappa = (d1[:, 0] * d2[:, 1] - d1[:, 1] * d2[:, 0]) / speed**3
+    return kappa, np.arctan2(d1[:, 1], d1[:, 0])
+
+
+def _warn_outliers(fit, u, xy, sigma, source) -> None:
+    """Warn about points much further from the fitted path than the noise allows.
+
+    The yardstick is the larger of the point's noise and the typical residual (its robust
+    spread), so slowly drifting errors that the fit leaves in the residual do not count."""
+    miss = np.hypot(*(xy - fit.spline(np.clip(u, 0.0, fit.span))).T)
+    typical = float(np.median(miss)) / 1.1774     # median of a Rayleigh(sigma) distance
+    resid = miss / np.maximum(sigma, typical)
+    bad = np.flatnonzero((resid > OUTLIER_SIGMAS) & (miss > OUTLIER_MIN_M))
+    if bad.size:
+        worst = int(bad[np.argmax(resid[bad])])
+        more = f" and {bad.size - 1} more point(s)" if bad.size > 1 else ""
+        warnings.warn(
+            f"{source}: point {worst + 1} of the fit lies {resid[worst] * sigma[worst]:.2f} m from "
+            f"the fitted path, {resid[worst]:.0f} times the noise{more}: a likely outlier; the "
+            "path is pulled towards it. Remove it if it is one", CurvespeedWarning, stacklevel=4)
+
+
+def _provenance(route: Route, drive: DrivePoints, noise: NoiseChoice,
+                z_noise: NoiseChoice | None, use_elevation: bool) -> dict:
+    """How the geometry was made, for summaries and sidecar files."""
+    out = {
+        "points_read": int(drive.n_fixes),
+        "points_fitted": int(drive.x_m.size),
+        "position_noise": noise.to_dict(),
+        "fix_noise_in_order_m": float(drive.order_noise_m),
+        "drift_rate_m2ps": drive.drift_rate,
+        "standstills_merged": int(drive.rest_runs),
+        "fixes_in_standstills": int(drive.rest_fixes),
+        "averaging_cell_m": float(drive.cell_m),
+        "time_stamps": route.time_s is not None,
+    }
+    if len(drive.parts) > 1:
+        out["parts"] = [{"points": p.label, "length_m": p.length_m} for p in drive.parts]
+        out["part_used"] = drive.part + 1
+    if z_noise is not None:
+        out["elevation_noise"] = z_noise.to_dict()
+    elif route.z_m is not None and not use_elevation:
+        out["elevation"] = "ignored"
+    return out
+
+
+def _check_reversals(x, y, where, count, source, noise_m) -> None:
+    """Refuse a path that doubles back between single points much further apart than the noise.
+
+    Reversals inside the noise (standing, crawling, dense fixes: averaged points) were dealt
+    with before; one between chords of several noise widths is a point out of order or astray.
+    """
+    long = np.hypot(np.diff(x), np.diff(y)) > 3.0 * noise_m
+    single = count == 1
+    check_reversals(x, y, where, source,
+                    consider=long[:-1] & long[1:] & single[:-2] & single[1:-1] & single[2:])
 
 def _require_positive(value, what: str, source: str, hint: str) -> None:
     ok = isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, bool)
@@ -431,19 +541,3 @@ def _continuous_heading(raw: np.ndarray, kappa: np.ndarray, ds: float, closed: b
         winding = np.round((heading[-1] - heading[0]) / (2.0 * np.pi))
         heading[-1] = heading[0] + 2.0 * np.pi * winding
     return heading
-
-
-def _fit_elevation(point_station, z, sigma_z, length, closed, node_station, source):
-    m = z.size
-    knot_spacing = _knot_spacing(np.diff(point_station), length)
-    fit = _fit_or_raise(point_station, z[:, None], 1.0 / sigma_z, residual_target(m), length,
-                        closed, knot_spacing, source, "elevation")
-    if fit.too_rough:
-        rms = math.sqrt(fit.residual_ss / m) * sigma_z
-        warnings.warn(
-            f"{source}: the elevations scatter about the smoothest profile by {rms:.3g} m (RMS), "
-            f"more than the elevation noise of {sigma_z:g} m allows; check for outliers or "
-            "raise the elevation noise", CurvespeedWarning, stacklevel=3)
-    s = np.clip(node_station, 0.0, length)
-    return fit.spline(s)[:, 0], fit.spline(s, nu=1)[:, 0]
-

@@ -65,12 +65,13 @@ class SplineFit:
     target_ss: float          # the one asked for
     too_rough: bool           # even the least smoothing left more residual than the target
     log_lambda: float         # log10 of the smoothing weight relative to the trace ratio
+    system: "_PenalisedSystem | None" = None   # the normal equations solved (None: null space)
 
 
 def fit_pspline(u, values, weight, target_ss, span, periodic, knot_spacing) -> SplineFit:
     """Penalised least-squares quintic B-spline through ``values`` (m, d) at ``u`` (m,).
 
-    Minimises ``sum w^2 |values - c(u)|^2 + lam * sum |fourth differences of coefficients|^2``
+    ``weight`` is ``1 / sigma``, one number or one per point. Minimises ``sum w^2 |values - c(u)|^2 + lam * sum |fourth differences of coefficients|^2``
     with ``lam`` found by Brent's method on ``rho = log10(lam / lam0)`` so that the weighted
     residual sum equals ``target_ss``. If even the penalty's null-space fit (a cubic in ``u``;
     a constant on a loop), which has the largest residual of all, stays below the target, that
@@ -90,9 +91,9 @@ def fit_pspline(u, values, weight, target_ss, span, periodic, knot_spacing) -> S
     """
     values = np.asarray(values, dtype=float)
     n_floor = _MIN_PERIODIC_INTERVALS if periodic else 1
-    null_ss, null_fit = _null_space_fit(u, values, weight, span, periodic)
+    null_ss, null_fit = null_space_fit(u, values, weight, span, periodic)
     if null_ss <= target_ss:
-        return _null_space_spline(null_fit, null_ss, target_ss, span, periodic, n_floor)
+        return null_space_spline(null_fit, null_ss, target_ss, span, periodic, n_floor)
     n_fine = max(n_floor, math.ceil(span / knot_spacing - 1e-9))
     # Dense points usually need smoothing over many of them: start coarser and refine only if
     # the root then calls for less smoothing than the grid resolves well.
@@ -147,7 +148,14 @@ def fit_pspline(u, values, weight, target_ss, span, periodic, knot_spacing) -> S
         coef = coef[np.arange(n_int + SPLINE_DEGREE) % n_int]
     spline = BSpline(system.knots, coef, SPLINE_DEGREE, extrapolate=False)
     return SplineFit(spline, span, n_int, periodic, system.residual(rho), target_ss, too_rough,
-                      rho)
+                     rho, system)
+
+
+def penalised_system(u, values, weight, span, periodic, n_int) -> "_PenalisedSystem":
+    """The normal equations of the P-spline on ``n_int`` uniform intervals, to be solved at any
+    smoothing weight (``coefficients(rho)``) and for other data (``response(rho, values)``)."""
+    return _PenalisedSystem(u, np.asarray(values, dtype=float), weight, span, periodic, n_int,
+                            math.inf)
 
 
 def _highest_usable(system: _PenalisedSystem, lo: float, hi: float) -> float:
@@ -163,16 +171,17 @@ def _highest_usable(system: _PenalisedSystem, lo: float, hi: float) -> float:
             rho -= 2.0
 
 
-def _null_space_fit(u, values, weight, span, periodic):
+def null_space_fit(u, values, weight, span, periodic):
     """Least-squares fit in the penalty's null space: a cubic in u (open) or a constant (loop).
 
     Returns its weighted residual sum, the largest any penalised fit can have, and a function
     evaluating it.
     """
+    w2 = np.broadcast_to(np.asarray(weight, dtype=float) ** 2, u.shape)
     if periodic:
-        mean = values.mean(axis=0)
+        mean = (w2 @ values) / w2.sum()
         resid = values - mean
-        return float(weight**2 * np.sum(resid**2)), lambda uq: np.broadcast_to(
+        return float(w2 @ np.sum(resid**2, axis=1)), lambda uq: np.broadcast_to(
             mean, (np.size(uq), mean.size)).copy()
     degree = min(PENALTY_ORDER - 1, u.size - 1)
 
@@ -185,8 +194,8 @@ def _null_space_fit(u, values, weight, span, periodic):
 
     basis = legendre_columns(u)
     columns = values.T.copy()                    # (d, m), contiguous, never the caller's data
-    gram = np.array([[np.sum(a * b) for b in basis] for a in basis])
-    coef = np.linalg.solve(gram, np.array([[np.sum(a * v) for v in columns] for a in basis]))
+    gram = np.array([[np.sum(w2 * a * b) for b in basis] for a in basis])
+    coef = np.linalg.solve(gram, np.array([[np.sum(w2 * a * v) for v in columns] for a in basis]))
     resid = columns
     for a, c in zip(basis, coef):
         for j in range(resid.shape[0]):
@@ -195,10 +204,10 @@ def _null_space_fit(u, values, weight, span, periodic):
     def evaluate(uq):
         return sum(a[:, None] * c for a, c in zip(legendre_columns(uq), coef))
 
-    return float(weight**2 * np.sum(resid**2)), evaluate
+    return float(np.sum(w2 * resid**2)), evaluate
 
 
-def _null_space_spline(null_fit, null_ss, target_ss, span, periodic, n_int) -> SplineFit:
+def null_space_spline(null_fit, null_ss, target_ss, span, periodic, n_int) -> SplineFit:
     """The null-space fit written exactly as a quintic B-spline on ``n_int`` uniform intervals."""
     k = SPLINE_DEGREE
     h = span / n_int
@@ -245,6 +254,7 @@ class _PenalisedSystem:
 
     def __init__(self, u, values, weight, span, periodic, n_int, ceiling_ss):
         k = SPLINE_DEGREE
+        self.periodic = bool(periodic)
         self._ceiling = ceiling_ss
         m, dims = values.shape
         h = span / n_int
@@ -284,13 +294,12 @@ class _PenalisedSystem:
         baseline = np.column_stack([np.interp(greville, uu, vv[:, j]) for j in range(dims)])
         data = values - basis @ baseline
 
-        w2 = float(weight) ** 2
+        w2 = np.broadcast_to(np.asarray(weight, dtype=float) ** 2, (m,))
         gram = np.zeros((k + 1, n))
         for r in range(k + 1):
             for r2 in range(r, k + 1):
-                gram[r2 - r] += np.bincount(cols_t[r], weights=vals_t[r] * vals_t[r2],
+                gram[r2 - r] += np.bincount(cols_t[r], weights=w2 * vals_t[r] * vals_t[r2],
                                             minlength=n)
-        gram *= w2
         penalty = _difference_penalty(n, periodic)
         self.lam0 = float(gram[0].sum() / penalty[0].sum())
 
@@ -319,7 +328,7 @@ class _PenalisedSystem:
                 self._penalty_band[k - d, d:] = penalty[d, : n - d]
             self._pos = None
         self._n = n
-        self._rhs = w2 * (basis.T @ data)                     # B^T W (values - g(u))
+        self._rhs = basis.T @ (w2[:, None] * data)            # B^T W (values - g(u))
         self._penalty_baseline = _apply_penalty(baseline, periodic)   # D^T D g
         self._baseline = baseline
         self._basis, self._data, self._w2 = basis, data, w2
@@ -339,7 +348,7 @@ class _PenalisedSystem:
             if self._pos is not None:
                 delta = delta[self._pos]
             resid = self._data - self._basis @ delta
-            resid_ss = float(self._w2 * np.sum(resid**2))
+            resid_ss = float(self._w2 @ np.sum(resid**2, axis=1))
             if resid_ss > self._ceiling * (1.0 + 1e-6):
                 # More residual than the null-space fit, the most any lam can leave: round-off.
                 raise LinAlgError("the banded solve lost accuracy")
@@ -351,6 +360,30 @@ class _PenalisedSystem:
 
     def coefficients(self, rho: float) -> np.ndarray:
         return self._solve(rho)[0]
+
+    @property
+    def n_coefficients(self) -> int:
+        return self._n
+
+    def response(self, rho: float, values: np.ndarray) -> np.ndarray:
+        """Coefficients (n, c) the smoother gives for other data ``values`` (m, c) at the same
+        points and weights: ``(B^T W B + lam D^T D)^-1 B^T W values``, one banded Cholesky for
+        all columns. The fit is linear in the data, so for noise replicates this is exactly
+        the change of the fit the noise causes."""
+        lam = self.lam0 * 10.0**rho
+        band = self._gram_band + lam * self._penalty_band
+        rhs = self._basis.T @ (self._w2[:, None] * values)
+        if self._pos is not None:
+            permuted = np.empty_like(rhs)
+            permuted[self._pos] = rhs
+            rhs = permuted
+        out = solveh_banded(band, rhs, overwrite_ab=True, overwrite_b=True, check_finite=False)
+        return out if self._pos is None else out[self._pos]
+
+    def weight_density(self) -> np.ndarray:
+        """Data weight per coefficient (the diagonal of ``B^T W B``), for local smoothing widths."""
+        diagonal = np.asarray(self._gram_band[self.bandwidth], dtype=float)
+        return diagonal[self._pos] if self._pos is not None else diagonal.copy()
 
 
 def _difference_stencil() -> np.ndarray:

@@ -73,6 +73,7 @@ def profile_meta(profile: Profile, limits: Limits, constraints: RouteConstraints
         "stations": geo.n_nodes,
         "spacing_m": geo.spacing_m,
         "projection": None if geo.projection is None else geo.projection.to_dict(),
+        "fit": geo.provenance,
     }
     meta = {
         "tool": "curvespeed",

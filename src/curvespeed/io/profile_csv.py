@@ -47,8 +47,9 @@ from .table_csv import Table, read_table_csv
 KINEMATIC = ".6f"
 
 #: Columns every profile CSV starts with, in order.
-PROFILE_COLUMNS = ("station_m", "x_m", "y_m", "heading_rad", "curvature_1pm", "speed_mps",
-                   "accel_mps2", "jerk_mps3", "lat_accel_mps2", "time_s")
+PROFILE_COLUMNS = ("station_m", "x_m", "y_m", "heading_rad", "curvature_1pm",
+                   "curvature_bound_1pm", "speed_mps", "accel_mps2", "jerk_mps3",
+                   "lat_accel_mps2", "time_s")
 
 #: Columns a profile CSV must have for export and plots.
 REQUIRED_PROFILE_COLUMNS = ("station_m", "x_m", "y_m", "heading_rad", "curvature_1pm",
@@ -86,6 +87,7 @@ def profile_columns(profile: Profile) -> dict[str, tuple[object, str]]:
     geo = geometry_columns(profile.geometry)
     columns = {name: geo[name] for name in PROFILE_COLUMNS[:5]}
     columns.update({
+        "curvature_bound_1pm": (profile.geometry.planning_curvature_1pm, geo["curvature_1pm"][1]),
         "speed_mps": (profile.speed_mps, KINEMATIC),
         "accel_mps2": (profile.accel_mps2, KINEMATIC),
         "jerk_mps3": (profile.jerk_mps3, KINEMATIC),
