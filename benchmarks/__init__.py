@@ -1,0 +1,1 @@
+"""Benchmarks, and the independent model and judge plans are measured against (not installed)."""
