@@ -183,6 +183,11 @@ def _parse_xml(data: bytes, source: str) -> ET.Element:
     except DefusedXmlException as exc:
         raise fail(source, None, f"refused: the file uses an XML feature curvespeed does not "
                                  f"accept ({type(exc).__name__}); export the GPX again") from None
+    except LookupError as exc:                  # an encoding Python does not know
+        name = str(exc).rpartition(": ")[2] or str(exc)
+        raise fail(source, "line 1", f"the XML declaration names the text encoding '{name}', "
+                   "which curvespeed does not know; save the file as UTF-8 and declare "
+                   "encoding=\"UTF-8\"") from None
     except ET.ParseError as exc:
         line, column = exc.position
         reason = str(exc).split(": line ")[0]

@@ -29,7 +29,8 @@ from ..errors import CurvespeedWarning
 from ..route import Route, make_route
 from ._common import (decimal_mark_problem, detect_separator, fail,
                       latlon_range_problem, looks_projected, number_problem, parse_column,
-                      parse_number, project_latlon, separator_warning, swapped_would_fit)
+                      parse_number, project_latlon, separator_warning, split_lines,
+                      swapped_would_fit)
 
 METRIC_COLUMNS = ("x_m", "y_m", "z_m")
 GEOGRAPHIC_COLUMNS = ("lat", "lon", "ele_m")
@@ -67,7 +68,7 @@ def parse_route_csv(text: str, source: str) -> Route:
     RouteGeometryError
         From :func:`~curvespeed.route.make_route`: fewer than three distinct points, a reversal.
     """
-    lines = text.replace("\r\n", "\n").replace("\r", "\n").split("\n")
+    lines = split_lines(text)
     rows = [(i, line) for i, line in enumerate(lines, start=1)
             if line.strip() and not line.lstrip().startswith("#")]
     if not rows:
