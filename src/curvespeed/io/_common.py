@@ -165,14 +165,50 @@ def looks_projected(lat: float, lon: float) -> bool:
     return abs(lat) > 1000.0 and abs(lon) > 1000.0
 
 
-def project_latlon(lat_deg: np.ndarray, lon_deg: np.ndarray):
+def project_latlon(lat_deg: np.ndarray, lon_deg: np.ndarray, source: str | None = None):
     """Project WGS84 degrees to a local metric frame centred on the points.
 
-    Returns ``(x_m, y_m, projection)`` ready for :func:`curvespeed.route.make_route`.
+    Returns ``(x_m, y_m, projection)`` ready for :func:`curvespeed.route.make_route`. With a
+    ``source``, a route too large for one local projection is warned about
+    (:func:`warn_if_stretched`).
     """
     projection = LocalProjection.centred_on(lat_deg, lon_deg)
     x, y = projection.to_metres(lat_deg, lon_deg)
+    if source is not None:
+        warn_if_stretched(projection, lat_deg, lon_deg, x, source)
     return x, y, projection
+
+
+def warn_if_stretched(projection: LocalProjection, lat_deg, lon_deg, x_m, source: str) -> None:
+    """Warn when the projection stretches the route's lengths by more than 1e-4 somewhere.
+
+    A transverse Mercator reaching less than :data:`~curvespeed.geodesy.TMERC_REACH_M` east
+    or west is within that by construction and is not checked further.
+    """
+    import warnings
+
+    from ..errors import CurvespeedWarning
+    from ..geodesy import SAMPLE_POINTS, SCALE_TOLERANCE, TMERC_REACH_M
+
+    lat, lon = np.asarray(lat_deg, dtype=float), np.asarray(lon_deg, dtype=float)
+    if not lat.size or (projection.azimuth_deg is None
+                        and float(np.max(np.abs(x_m))) <= TMERC_REACH_M):
+        return
+    step = max(1, lat.size // SAMPLE_POINTS)
+    error = projection.scale_error(lat[::step], lon[::step])
+    if error <= SCALE_TOLERANCE:
+        return
+    from pyproj import Geod
+
+    _, _, reach = Geod(ellps="WGS84").inv(np.full(lat[::step].size, projection.lon0_deg),
+                                          np.full(lat[::step].size, projection.lat0_deg),
+                                          lon[::step], lat[::step])
+    warnings.warn(
+        f"{source}: the route reaches {np.max(reach) / 1000:.0f} km from its centre and strays "
+        "far from any one great circle, too far for one local map projection: lengths and "
+        f"radii come out up to {100 * error:.2g} % off in parts of it (a local projection is "
+        "good to 0.01 % within about 90 km of its central line). Split the route into parts, "
+        "or give it in a metric frame", CurvespeedWarning, stacklevel=3)
 
 
 def fail(source: str, where: str | None, message: str) -> RouteFormatError:

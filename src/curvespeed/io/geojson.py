@@ -29,7 +29,7 @@ import numpy as np
 from ..errors import CurvespeedWarning
 from ..route import Route, make_route
 from ._common import (fail, finite_value, latlon_range_problem, load_json, looks_projected,
-                      project_latlon, show_value, value_problem)
+                      project_latlon, show_value, value_problem, warn_if_stretched)
 
 _LINE_TYPES = ("LineString", "MultiLineString")
 #: Parts of a MultiLineString are joined when each starts within this distance of where the one
@@ -112,6 +112,7 @@ def parse_route_geojson(text: str, source: str) -> Route:
             lat, lon, where = lat[keep], lon[keep], where[keep]
             ele = None if ele is None else ele[keep]
             x, y, projection = project_latlon(lat, lon)
+    warn_if_stretched(projection, lat, lon, x, source)
     name = None
     if isinstance(properties, dict) and isinstance(properties.get("name"), str):
         name = properties["name"].strip() or None

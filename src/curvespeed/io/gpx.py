@@ -135,7 +135,7 @@ def parse_route_gpx(data: bytes, source: str) -> Route:
     if name is None:
         metadata = root.find(q("metadata"))  # GPX 1.1
         name = _text(metadata.find(q("name")) if metadata is not None else root.find(q("name")))
-    x, y, projection = project_latlon(lat, lon)
+    x, y, projection = project_latlon(lat, lon, source)
     if kind == "trkpt":
         sizes = [m for m in segment_sizes[id(chosen)] if m]
         _warn_gaps(x, y, time_s, np.cumsum(sizes)[:-1], source)

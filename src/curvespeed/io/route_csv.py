@@ -117,7 +117,7 @@ def parse_route_csv(text: str, source: str) -> Route:
 
     if geographic:
         _check_latlon_columns(values["lat"], values["lon"], source, where)
-        x, y, projection = project_latlon(values["lat"], values["lon"])
+        x, y, projection = project_latlon(values["lat"], values["lon"], source)
         z = values.get("ele_m")
     else:
         x, y, projection = values["x_m"], values["y_m"], None
