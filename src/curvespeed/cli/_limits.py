@@ -136,3 +136,20 @@ def check_on_route(constraints, length_m: float) -> None:
             start, end = format_apart(z.start_m, length_m)
             raise LimitsError(f"{here(z)}speed zone {start}..{z.end_m:g} m lies outside the "
                               f"route (0..{end} m); check its stations against the route summary")
+
+
+def limits_and_geometry(route_file, limits_file, overrides: dict, constraint_args: tuple,
+                        geometry_args: tuple):
+    """Limits, constraints and their origin, and the resampled route, checked against each other.
+
+    ``constraint_args`` are the values of :func:`constraint_options` (zones, stops,
+    superelevations, start speed, end speed), ``geometry_args`` those of
+    :func:`~curvespeed.cli._common.geometry_options` (spacing, position noise, elevation noise,
+    closed). Returns ``(limits, constraints, origin, geometry)``.
+    """
+    from ._common import load_geometry
+
+    limits, constraints, origin = resolve_limits(limits_file, overrides, *constraint_args)
+    _, geometry = load_geometry(route_file, *geometry_args)
+    check_on_route(constraints, geometry.length_m)
+    return limits, constraints, origin, geometry

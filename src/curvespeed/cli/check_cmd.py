@@ -10,9 +10,8 @@ import sys
 
 import click
 
-from ._common import (EXIT_OK, EXIT_VIOLATIONS, FINITE, echo, geometry_options, handle_errors,
-                      load_geometry)
-from ._limits import check_on_route, constraint_options, limit_override_options, resolve_limits
+from ._common import EXIT_OK, EXIT_VIOLATIONS, FINITE, echo, geometry_options, handle_errors
+from ._limits import constraint_options, limit_override_options, limits_and_geometry
 
 
 @click.command()
@@ -83,11 +82,10 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
         raise LimitsError(f"--curve-radius {curve_radius_m:g}: give a positive radius in metres")
 
     with outputs:               # every output checked here; written together at the end
-        limits, constraints, origin = resolve_limits(limits_file, overrides, zones, stops,
-                                                     superelevations, start_speed, end_speed)
-        _, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m,
-                               closed)
-        check_on_route(constraints, geo.length_m)
+        limits, constraints, origin, geo = limits_and_geometry(
+            route_file, limits_file, overrides,
+            (zones, stops, superelevations, start_speed, end_speed),
+            (spacing_m, position_noise_m, elevation_noise_m, closed))
         report = _check(geo, limits, constraints, origin, speeds_file, speed_kmh, trace_noise_m,
                         design_speed_kmh, e_max, curve_radius_m)
         if json_file:

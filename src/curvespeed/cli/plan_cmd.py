@@ -5,8 +5,8 @@ from __future__ import annotations
 import click
 
 from ..solvers import SolverKind
-from ._common import FINITE, echo, geometry_options, handle_errors, load_geometry
-from ._limits import check_on_route, constraint_options, limit_override_options, resolve_limits
+from ._common import FINITE, echo, geometry_options, handle_errors
+from ._limits import constraint_options, limit_override_options, limits_and_geometry
 
 
 @click.command()
@@ -62,11 +62,10 @@ def plan(route_file, limits_file, output, meta_file, solver, comfort_weight, plo
         figure_format(plot_file)
         outputs.add_output(plot_file, "--plot")
     with outputs:               # every output checked here; written together at the end
-        limits, constraints, origin = resolve_limits(limits_file, overrides, zones, stops,
-                                                     superelevations, start_speed, end_speed)
-        _, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m,
-                               closed)
-        check_on_route(constraints, geo.length_m)
+        limits, constraints, origin, geo = limits_and_geometry(
+            route_file, limits_file, overrides,
+            (zones, stops, superelevations, start_speed, end_speed),
+            (spacing_m, position_noise_m, elevation_noise_m, closed))
 
         from ..planner import plan_profile
 
