@@ -15,10 +15,10 @@ from ._limits import constraint_options, limit_override_options, limits_and_geom
 
 
 @click.command()
-@click.argument("route_file", type=click.Path(dir_okay=False))
-@click.option("-l", "--limits", "limits_file", type=click.Path(dir_okay=False), default=None,
+@click.argument("route_file", type=click.Path())
+@click.option("-l", "--limits", "limits_file", type=click.Path(), default=None,
               help="Limits file (TOML). Without it, built-in passenger-car comfort limits.")
-@click.option("--speeds", "speeds_file", type=click.Path(dir_okay=False), default=None,
+@click.option("--speeds", "speeds_file", type=click.Path(), default=None,
               help="Speeds to check: a CSV with station_m,speed_mps (e.g. a profile from "
                    "'plan') or a GPX track with time stamps.")
 @click.option("--speed-kmh", type=FINITE, default=None, metavar="V",
@@ -35,9 +35,9 @@ from ._limits import constraint_options, limit_override_options, limits_and_geom
                    "(default 2).")
 @click.option("--curve-radius", "curve_radius_m", type=FINITE, default=None, metavar="M",
               help="Stations with a radius below this belong to a curve, metres (default 1000).")
-@click.option("--json", "json_file", type=click.Path(dir_okay=False), default=None,
+@click.option("--json", "json_file", type=click.Path(), default=None,
               help="Write the full result (SI units) to this JSON file.")
-@click.option("--csv", "csv_file", type=click.Path(dir_okay=False), default=None,
+@click.option("--csv", "csv_file", type=click.Path(), default=None,
               help="Write the per-curve table to this CSV file.")
 @click.option("--force", is_flag=True, help="Replace output files that exist.")
 @geometry_options

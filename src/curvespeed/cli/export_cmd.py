@@ -31,8 +31,8 @@ _POSITIVE = _Positive()
 
 
 @click.command()
-@click.argument("profile_file", type=click.Path(dir_okay=False))
-@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
+@click.argument("profile_file", type=click.Path())
+@click.option("-o", "--output", required=True, type=click.Path(),
               help="Trajectory file to write.")
 @click.option("--format", "fmt", type=click.Choice([f.value for f in TrajectoryFormat]),
               default=None,

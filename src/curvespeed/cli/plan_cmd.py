@@ -10,12 +10,12 @@ from ._limits import constraint_options, limit_override_options, limits_and_geom
 
 
 @click.command()
-@click.argument("route_file", type=click.Path(dir_okay=False))
-@click.option("-l", "--limits", "limits_file", type=click.Path(dir_okay=False), default=None,
+@click.argument("route_file", type=click.Path())
+@click.option("-l", "--limits", "limits_file", type=click.Path(), default=None,
               help="Limits file (TOML). Without it, built-in passenger-car comfort limits.")
-@click.option("-o", "--output", type=click.Path(dir_okay=False), default=None,
+@click.option("-o", "--output", type=click.Path(), default=None,
               help="Write the profile to this CSV file (and a .meta.json sidecar next to it).")
-@click.option("--meta", "meta_file", type=click.Path(dir_okay=False), default=None,
+@click.option("--meta", "meta_file", type=click.Path(), default=None,
               help="Where to write the JSON sidecar (default: next to the profile).")
 @click.option("--solver", type=click.Choice([k.value for k in SolverKind]), default=None,
               help="'convex' (default when a jerk bound, longitudinal or lateral, is set): "
@@ -25,7 +25,7 @@ from ._limits import constraint_options, limit_override_options, limits_and_geom
 @click.option("--comfort-weight", type=FINITE, default=0.0, show_default=True, metavar="W",
               help="Convex solver: weight on squared changes of acceleration, s/(m/s^2)^2; "
                    "0 is pure minimum time.")
-@click.option("--plot", "plot_file", type=click.Path(dir_okay=False), default=None,
+@click.option("--plot", "plot_file", type=click.Path(), default=None,
               help="Also draw the overview figure (.png, .svg or .pdf) of the profile.")
 @click.option("--force", is_flag=True, help="Replace output files that exist.")
 @geometry_options

@@ -10,10 +10,10 @@ from ._common import echo, handle_errors
 
 
 @click.command()
-@click.argument("profile_file", type=click.Path(dir_okay=False))
-@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
+@click.argument("profile_file", type=click.Path())
+@click.option("-o", "--output", required=True, type=click.Path(),
               help="Figure to write: .png, .svg or .pdf.")
-@click.option("--meta", "meta_file", type=click.Path(dir_okay=False), default=None,
+@click.option("--meta", "meta_file", type=click.Path(), default=None,
               help="The profile's JSON sidecar, for limits, zones and stops (default: "
                    "PROFILE.meta.json next to the profile, when it exists).")
 @click.option("--force", is_flag=True, help="Replace the figure if it exists.")

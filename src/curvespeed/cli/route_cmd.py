@@ -10,9 +10,9 @@ from ._common import echo, geometry_options, handle_errors, load_geometry
 
 
 @click.command()
-@click.argument("route_file", type=click.Path(dir_okay=False))
+@click.argument("route_file", type=click.Path())
 @geometry_options
-@click.option("-o", "--output", type=click.Path(dir_okay=False), default=None,
+@click.option("-o", "--output", type=click.Path(), default=None,
               help="Write the resampled geometry to this CSV file.")
 @click.option("--force", is_flag=True, help="Replace the output file if it exists.")
 @handle_errors

@@ -40,6 +40,11 @@ TEMP_SUFFIX = ".part"
 #: Signals that remove the temporary files before the command ends.
 CLEANUP_SIGNALS = (signal.SIGTERM, signal.SIGINT)
 
+#: Errors of os.link that mean the file system has no hard links (some network and FAT file
+#: systems): there a file is renamed into place after checking that the name is still free.
+_NO_HARD_LINKS = {errno.EPERM, errno.EXDEV, errno.EMLINK, errno.ENOSYS,
+                  getattr(errno, "ENOTSUP", errno.EOPNOTSUPP), errno.EOPNOTSUPP}
+
 _KINDS = ((stat.S_ISDIR, "a folder"), (stat.S_ISCHR, "a character device"),
           (stat.S_ISBLK, "a block device"), (stat.S_ISFIFO, "a FIFO (named pipe)"),
           (stat.S_ISSOCK, "a socket"))
@@ -164,6 +169,8 @@ class OutputFiles:
         except FileNotFoundError:
             st = None
         except OSError as exc:
+            if exc.errno == errno.ENAMETOOLONG:
+                _check_name_length(out)
             raise _path_error(where, out.path, exc) from None
         if st is not None:
             if stat.S_ISLNK(st.st_mode):
@@ -195,14 +202,7 @@ class OutputFiles:
         if not stat.S_ISDIR(fst.st_mode):
             raise OutputError(f"{where}: {folder} is {file_kind(fst.st_mode) or 'a file'}, not a "
                               "folder; give an output path inside a folder")
-        try:
-            name_max = os.pathconf(folder, "PC_NAME_MAX")
-        except (OSError, ValueError):
-            name_max = 255
-        size = len(os.fsencode(out.path.name))
-        if size > name_max:
-            raise OutputError(f"{where}: the file name is {size} bytes long, more than the "
-                              f"{name_max} its folder allows; choose a shorter name")
+        _check_name_length(out)
 
     # -- the transaction -----------------------------------------------------------------------
 
@@ -343,6 +343,18 @@ class OutputFiles:
         self._old_handlers.clear()
 
 
+def _check_name_length(out: _Named) -> None:
+    """Refuse a file name longer than its folder allows (usually 255 bytes)."""
+    try:
+        name_max = os.pathconf(out.path.parent, "PC_NAME_MAX")
+    except (OSError, ValueError):
+        name_max = 255
+    size = len(os.fsencode(out.path.name))
+    if size > name_max:
+        raise OutputError(f"{out.text}: the file name is {size} bytes long, more than the "
+                          f"{name_max} its folder allows; choose a shorter name")
+
+
 def _same(a: tuple, b: tuple) -> bool:
     return a[0] == b[0] or (a[1] is not None and a[1] == b[1])
 
@@ -367,7 +379,9 @@ def _rename_no_replace(tmp: str, path: Path) -> None:
     except FileExistsError:
         raise OutputError(f"{path}: file exists (it appeared while the command ran); pass "
                           "--force to replace it or choose another name") from None
-    except OSError:
+    except OSError as exc:
+        if exc.errno not in _NO_HARD_LINKS:
+            raise
         if os.path.lexists(path):
             raise OutputError(f"{path}: file exists (it appeared while the command ran); pass "
                               "--force to replace it or choose another name") from None
