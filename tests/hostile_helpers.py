@@ -101,6 +101,19 @@ def assert_refused(result, folder: Path, before: dict, named, fragments=(),
     return message
 
 
+def assert_usage_error(result, folder: Path, before: dict, fragments=()) -> str:
+    """Exit 2 with click's usage message ("Error: Invalid value for '--option': ...") holding
+    every fragment, and the folder exactly as it was."""
+    no_traceback(result)
+    assert result.exit_code == 2, result.output
+    errors = lines_of(result, "Error: Invalid value for")
+    assert len(errors) == 1, result.output
+    for fragment in fragments:
+        assert fragment in errors[0], (fragment, errors[0])
+    assert snapshot(folder) == before
+    return errors[0]
+
+
 def assert_done(result, folder: Path, before: dict, written=(), warned=None) -> None:
     """Exit 0, no traceback, inputs unchanged, exactly ``written`` new or changed files, no
     temporary files; with ``warned`` a warning line containing it."""

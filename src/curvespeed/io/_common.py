@@ -28,11 +28,12 @@ import numpy as np
 from ..errors import RouteFormatError
 from ..geodesy import LocalProjection
 
-#: Largest input file read, bytes (256 MiB). A route CSV line takes about 20 bytes, so this is
-#: over ten million points, far more than any route needs at metre spacing; reading takes about
-#: ten times the file's size in memory, so a larger file would need gigabytes. Thin the points
-#: or split the route instead.
-MAX_INPUT_BYTES = 256 * 1024 * 1024
+#: Largest input file read, bytes (128 MiB). A route CSV line takes about 20 bytes, so this is
+#: some six million points, far more than any route needs at metre spacing (a profile CSV of
+#: 850 km at 1 m stations); reading takes about 25 times a file's size in memory (measured:
+#: 530 MB for a 20 MB route of a million points), so the limit keeps a read within about 3 GB.
+#: Thin the points or split the route instead.
+MAX_INPUT_BYTES = 128 * 1024 * 1024
 #: Deepest nesting of arrays and objects accepted in a JSON or TOML file. A GeoJSON route
 #: nests about ten levels (collection, feature, geometry, lines, positions), a limits file
 #: three; deeper nesting is not one of these files and would exhaust the parsers' stack.
@@ -97,7 +98,9 @@ def number_problem(text: str, decimal_comma: bool = False) -> str:
         return "is empty"
     if decimal_comma:
         s = s.replace(",", ".")
-    if _NON_FINITE.fullmatch(s) or _NUMBER.fullmatch(s):
+    if _NUMBER.fullmatch(s):
+        return "is not a finite number (too large)"
+    if _NON_FINITE.fullmatch(s):
         return "is not a finite number"
     if any(ch.isdigit() and not "0" <= ch <= "9" for ch in s):
         return ("has digits other than ASCII 0-9 (Arabic-Indic, full-width or other scripts?); "
@@ -107,6 +110,14 @@ def number_problem(text: str, decimal_comma: bool = False) -> str:
     if re.fullmatch(r"[+-]?\d{1,3}(?:[.,\s]\d{3})+(?:[.,]\d+)?", s):
         return "is not a number (thousands separators? write the number without them)"
     return "is not a number"
+
+
+def cell_text(text: str, width: int = 40) -> str:
+    """A cell as written, quoted, shortened if long: ``'1000000000...' (5000 characters)``."""
+    s = text.strip()
+    if len(s) <= width:
+        return f"'{s}'"
+    return f"'{s[:width // 2]}...' ({len(s)} characters)"
 
 
 def parse_column(cells: list[str], decimal_comma: bool = False):
@@ -258,7 +269,7 @@ def read_bytes(path, source: str, error=RouteFormatError, limit: int | None = No
         except OSError as exc:
             raise error(f"{source}: cannot be read ({exc.strerror or exc})") from None
     if len(data) > limit:
-        raise error(_too_large(source, f"more than {limit / 2**20:.0f} MiB", limit))
+        raise error(_too_large(source, f"over {limit:,} bytes", limit))
     return data
 
 
@@ -272,13 +283,14 @@ def _check_input_stat(st: os.stat_result, source: str, limit: int, error) -> Non
                     "only regular files (a device or pipe may never end or block forever): "
                     "save the data to a file and give that")
     if st.st_size > limit:
-        raise error(_too_large(source, f"{st.st_size / 2**20:.1f} MiB", limit))
+        raise error(_too_large(source, f"{st.st_size:,} bytes", limit))
 
 
 def _too_large(source: str, size: str, limit: int) -> str:
-    return (f"{source}: is {size}, more than the {limit / 2**20:.0f} MiB curvespeed reads (over "
-            "ten million route points; reading takes about ten times the file's size in "
-            "memory); thin the points or split the file")
+    return (f"{source}: is {size}, more than the {limit:,} bytes ({limit / 2**20:.0f} MiB) "
+            "curvespeed reads: some six million route points, far more than a route needs, "
+            "and reading takes about 25 times a file's size in memory; thin the points or "
+            "split the file")
 
 
 def check_text(data: bytes, source: str, error=RouteFormatError) -> None:
@@ -336,7 +348,7 @@ def show_value(value, width: int = 40) -> str:
 
     if isinstance(value, float) and value.is_integer() and abs(value) < 1e16:
         value = int(value)
-    text = json.dumps(value, default=str)
+    text = json.dumps(value, default=str, ensure_ascii=False)
     return text if len(text) <= width else text[: width - 3] + "..."
 
 
@@ -352,13 +364,13 @@ def shown_number(value, width: int = 30) -> str:
 def value_problem(value, width: int = 30) -> str:
     """Why a parsed value is not a finite number, to follow its name in a message.
 
-    "is too large to be a finite number" (``1e999``, or an integer of 400 digits, which
+    "is not a finite number (too large)" (``1e999``, or an integer of 400 digits, which
     :func:`load_json` hands over as infinity), ``"true is not a finite number"``, ...
     """
     if isinstance(value, float) and math.isinf(value):
-        return "is too large to be a finite number"
+        return "is not a finite number (too large)"
     if isinstance(value, int) and not isinstance(value, bool) and finite_value(value) is None:
-        return f"has {len(str(abs(value)))} digits, too large to be a finite number"
+        return f"has {len(str(abs(value)))} digits: not a finite number (too large)"
     return f"{show_value(value, width)} is not a finite number"
 
 

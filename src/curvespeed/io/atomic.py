@@ -124,7 +124,7 @@ class OutputFiles:
     # -- registering ---------------------------------------------------------------------------
 
     def add_input(self, path, label: str) -> None:
-        """A file the command reads (``label`` says which, e.g. "the route file"); None is skipped."""
+        """A file the command reads (``label`` says which: "the route file"); None is skipped."""
         if path is not None:
             self._inputs.append(_Named(Path(path), label, os.fspath(path)))
 

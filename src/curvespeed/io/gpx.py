@@ -32,7 +32,7 @@ import numpy as np
 
 from ..errors import CurvespeedWarning
 from ..route import Route, make_route
-from ._common import (fail, latlon_range_problem, number_problem, parse_number,
+from ._common import (cell_text, fail, latlon_range_problem, number_problem, parse_number,
                       project_latlon, swapped_would_fit)
 
 #: A step between consecutive track points longer than this many median steps ...
@@ -117,7 +117,7 @@ def parse_route_gpx(data: bytes, source: str) -> Route:
             raw = ele_el.text or ""
             v = parse_number(raw)
             if v is None:
-                raise fail(source, where[i], f"ele value '{raw.strip()}' {number_problem(raw)}; "
+                raise fail(source, where[i], f"ele value {cell_text(raw)} {number_problem(raw)}; "
                                              "fix it or remove the <ele> element")
             ele[i] = v
         time_el = pt.find(q("time"))
@@ -214,7 +214,7 @@ def _coordinate(pt: ET.Element, attribute: str, source: str, where: str) -> floa
                                   "lat and lon")
     v = parse_number(raw)
     if v is None:
-        raise fail(source, where, f"{attribute} value '{raw.strip()}' {number_problem(raw)}; "
+        raise fail(source, where, f"{attribute} value {cell_text(raw)} {number_problem(raw)}; "
                                   "fix or remove that point")
     return v
 

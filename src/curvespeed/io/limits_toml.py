@@ -133,8 +133,9 @@ def read_limits(path: str | Path) -> tuple[Limits, RouteConstraints]:
         for n, entry in enumerate(entries, start=1):
             label = f"{name} #{n}"
             if not isinstance(entry, dict):
-                raise LimitsError(f"{path}: '{name}' entry #{n} is {show_value(entry)}, not a table; write "
-                                  f"each as a [[{name}]] block with keys {', '.join(keys)}")
+                raise LimitsError(f"{path}: '{name}' entry #{n} is {show_value(entry)}, not a "
+                                  f"table; write each as a [[{name}]] block with keys "
+                                  f"{', '.join(keys)}")
             for key in entry:
                 if key not in keys:
                     raise _unknown_key(path, label, key, keys)

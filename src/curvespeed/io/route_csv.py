@@ -27,7 +27,7 @@ import numpy as np
 
 from ..errors import CurvespeedWarning
 from ..route import Route, make_route
-from ._common import (decimal_mark_problem, detect_separator, fail,
+from ._common import (cell_text, decimal_mark_problem, detect_separator, fail,
                       latlon_range_problem, looks_projected, number_problem, parse_column,
                       parse_number, project_latlon, separator_warning, split_lines,
                       swapped_would_fit)
@@ -95,7 +95,7 @@ def parse_route_csv(text: str, source: str) -> Route:
             r = decimal_mark_problem(cells[k])
             if r is not None:
                 raise fail(source, f"line {line_numbers[r]}",
-                           f"column '{k}' value '{cells[k][r].strip()}' has a decimal point, but "
+                           f"column '{k}' value {cell_text(cells[k][r])} has a decimal point, but "
                            "other values in this file use decimal commas; write every number "
                            "the same way, without thousands separators")
     values, refused = {}, []
@@ -107,7 +107,7 @@ def parse_route_csv(text: str, source: str) -> Route:
         r, _, k = min(refused)          # the first line with a problem, in column order
         raw = cells[k][r]
         raise fail(source, f"line {line_numbers[r]}",
-                   f"column '{k}' value '{raw.strip()}' {number_problem(raw, decimal_comma)}"
+                   f"column '{k}' value {cell_text(raw)} {number_problem(raw, decimal_comma)}"
                    "; fix or remove that line")
     if sep != ",":
         warnings.warn(separator_warning(source, header_line, sep, decimal_comma,

@@ -24,7 +24,7 @@ import numpy as np
 
 from ..errors import CurvespeedWarning, SpeedFileError
 from ..route import MAX_COORDINATE_M, MAX_ELEVATION_M
-from ._common import (decimal_mark_problem, detect_separator, number_problem,
+from ._common import (cell_text, decimal_mark_problem, detect_separator, number_problem,
                       parse_column, read_text, separator_warning, split_lines)
 
 #: Columns kept as text rather than parsed as numbers.
@@ -147,14 +147,14 @@ def read_table_csv(path: str | os.PathLike, min_rows: int = 2) -> Table:
             i = decimal_mark_problem(cells)
             if i is not None:
                 raise SpeedFileError(f"{source}: line {lines[i]}: column '{name}' value "
-                                     f"'{cells[i]}' has a decimal point, but other values in "
-                                     "this file use decimal commas; write every number the same "
+                                     f"{cell_text(cells[i])} has a decimal point, but other values "
+                                     "in this file use decimal commas; write every number the same "
                                      "way, without thousands separators")
         values, i = parse_column(cells, decimal_comma)
         if i is not None:
             raise SpeedFileError(f"{source}: line {lines[i]}: column '{name}' value "
-                                 f"'{cells[i]}' {number_problem(cells[i], decimal_comma)}; fix "
-                                 "or remove that line")
+                                 f"{cell_text(cells[i])} {number_problem(cells[i], decimal_comma)}"
+                                 "; fix or remove that line")
         _check_range(source, name, values, lines)
         columns[name] = values
     if sep != ",":
