@@ -28,7 +28,6 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from pyproj import Geod
 
 from hostile_helpers import (LAT0, LON0, assert_done, assert_refused, assert_usage_error, bend_csv,
                              latlon_bend_csv, lines_of, planned_files, replace_cell, run,
@@ -464,25 +463,7 @@ def test_speeds_of_1e160_are_refused_without_numpy_warnings(tmp_path, profiles):
 
 
 # ------------------------------------------------------------ geographic routes, far and wide
-
-GEOD = Geod(ellps="WGS84")
-
-
-def test_4450_km_along_the_equator_keeps_its_geodesic_length(tmp_path):
-    # pyproj.Geod (GeographicLib, Karney 2013) is the reference. The route was 2.1 % long in a
-    # transverse Mercator centred on it; the oblique Mercator along the equator has scale 1
-    # there. 1e-4 is the promise for any route that keeps near one great circle.
-    lon = np.linspace(0.0, 40.0, 401)
-    lat = np.zeros_like(lon)
-    route = write(tmp_path, "eq.csv", "lat,lon\n" + "".join(f"{a:.7f},{b:.7f}\n"
-                                                           for a, b in zip(lat, lon)))
-    result = run("route", route, "--spacing", "1000", "-o", tmp_path / "g.csv")
-    assert result.exit_code == 0 and not lines_of(result, "warning:"), result.output
-    from curvespeed.io.table_csv import read_table_csv
-
-    length = read_table_csv(tmp_path / "g.csv").columns["station_m"][-1]
-    assert abs(length / GEOD.line_length(lon, lat) - 1.0) <= 1e-4
-
+# (lengths of long routes against pyproj's geodesics: tests/test_reference_geodesy.py)
 
 def test_a_route_too_wide_for_one_projection_is_warned_about(tmp_path):
     # An invented L: 1000 km east along 10 N, then 1000 km north. No great circle passes
