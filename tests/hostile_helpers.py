@@ -81,10 +81,9 @@ def no_traceback(result) -> None:
         repr(result.exception)
 
 
-def assert_refused(result, folder: Path, before: dict, named, fragments=(),
-                   status: int = 2) -> str:
-    """Exit ``status``, one ``error:`` line naming ``named`` with every fragment, and the folder
-    exactly as it was (inputs unchanged, no output, no temporary file)."""
+def error_line(result, named, fragments=(), status: int = 2) -> str:
+    """Exit ``status``, no traceback, exactly one ``error:`` line, naming ``named`` (if given)
+    and holding every fragment, in plain numbers; return that line."""
     no_traceback(result)
     assert result.exit_code == status, result.output
     errors = lines_of(result, "error:")
@@ -95,6 +94,14 @@ def assert_refused(result, folder: Path, before: dict, named, fragments=(),
     for fragment in fragments:
         assert fragment in message, (fragment, message)
     assert "np.float64" not in result.output and "RuntimeWarning" not in result.output
+    return message
+
+
+def assert_refused(result, folder: Path, before: dict, named, fragments=(),
+                   status: int = 2) -> str:
+    """:func:`error_line`, and the folder exactly as it was (inputs unchanged, no output, no
+    temporary file)."""
+    message = error_line(result, named, fragments, status)
     after = snapshot(folder)
     assert after == before, {k: (before.get(k), after.get(k))
                              for k in set(before) | set(after) if before.get(k) != after.get(k)}
