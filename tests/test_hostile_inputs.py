@@ -26,12 +26,10 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from click.testing import CliRunner
 from pyproj import Geod
 
-from curvespeed.cli.main import cli
-from curvespeed.io.atomic import atomic_open
 from curvespeed.io.table_csv import read_table_csv
+from hostile_helpers import error_line, lines_of, run, snapshot, write
 
 #: Open-ocean origin of the invented geographic routes (South Atlantic), degrees.
 LAT0, LON0 = -35.0, -20.0
@@ -42,25 +40,9 @@ T0 = datetime(2026, 5, 1, 10, 0, 0, tzinfo=timezone.utc)
 
 # ------------------------------------------------------------------------------------ helpers
 
-def run(*args):
-    return CliRunner().invoke(cli, [str(a) for a in args])
-
-
-def lines_of(result, prefix: str) -> list[str]:
-    return [line for line in result.output.splitlines() if line.startswith(prefix)]
-
-
 def assert_refused(result, folder: Path, named, fragments, outputs=()) -> str:
     """Exit 2, one error line naming ``named`` with every fragment, nothing written."""
-    assert result.exit_code == 2, result.output
-    assert "Traceback" not in result.output
-    errors = lines_of(result, "error:")
-    assert len(errors) == 1, result.output
-    message = errors[0]
-    if named is not None:
-        assert str(named) in message, message
-    for fragment in fragments:
-        assert fragment in message, (fragment, message)
+    message = error_line(result, named, fragments)
     for path in outputs:
         assert not Path(path).exists(), f"{path} was written"
     assert not list(Path(folder).glob(".*.part")), "a temporary file was left behind"
@@ -75,15 +57,6 @@ def assert_warned(result, named, fragments) -> str:
              if str(named) in line and all(f in line for f in fragments)]
     assert found, result.output
     return found[0]
-
-
-def write(folder: Path, name: str, content) -> Path:
-    path = folder / name
-    if isinstance(content, bytes):
-        path.write_bytes(content)
-    else:
-        path.write_bytes(content.encode("utf-8"))
-    return path
 
 
 def csv_text(x, y, header="x_m,y_m", sep=",", decimal=".", z=None) -> str:
@@ -325,9 +298,10 @@ def _materialise(tmp_path: Path, files: dict, args: list):
 def test_refused_with_a_clear_error_and_nothing_written(case, tmp_path):
     command, files, args, named, fragments = REFUSED[case]
     paths, out, resolved = _materialise(tmp_path, files, args)
+    before = snapshot(tmp_path)
     result = run(command, *resolved)
-    assert_refused(result, tmp_path, None if named is None else paths[named], fragments,
-                   outputs=[out, out.with_suffix(".meta.json")])
+    assert_refused(result, tmp_path, None if named is None else paths[named], fragments)
+    assert snapshot(tmp_path) == before           # inputs unchanged, no output, no temporary
 
 
 def test_infeasible_start_speed_names_the_route_file(tmp_path):
@@ -351,6 +325,7 @@ def test_absurdly_fine_spacing_is_refused(tmp_path):
 
 
 # ------------------------------------------------------- output files: refused, atomic, forced
+# (the catalogue of hostile outputs, write failures and signals: test_hostile_outputs.py)
 
 def test_existing_output_is_kept_without_force_and_replaced_with_it(tmp_path):
     route = write(tmp_path, "r.csv", BEND)
@@ -370,17 +345,6 @@ def test_bad_input_after_the_output_check_leaves_no_file(tmp_path):
     out = tmp_path / "p.csv"
     result = run("plan", route, "-o", out)
     assert_refused(result, tmp_path, route, ["line 4"], outputs=[out, tmp_path / "p.meta.json"])
-
-
-def test_interrupted_write_keeps_the_old_file_and_leaves_no_temporary(tmp_path):
-    out = tmp_path / "p.csv"
-    out.write_text("old,complete\n1,2\n")
-    with pytest.raises(KeyboardInterrupt):
-        with atomic_open(out, force=True) as fh:
-            fh.write("station_m,speed_mps\n0.0000,")
-            raise KeyboardInterrupt            # as if the user pressed Ctrl-C mid-write
-    assert out.read_text() == "old,complete\n1,2\n"
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["p.csv"]
 
 
 # -------------------------------------------------------- accepted: a warning and a right answer

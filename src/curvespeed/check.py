@@ -707,8 +707,8 @@ def check_speeds(geometry: Geometry, limits: Limits, constraints: RouteConstrain
     bad = np.flatnonzero(~np.isfinite(v) | (v < 0.0))
     if bad.size:
         k = int(bad[0])
-        raise SpeedFileError(f"{speed_source}: speed {v[k]!r} m/s at station {s[k]:.1f} m is not "
-                             "a finite, non-negative number; fix the speeds")
+        raise SpeedFileError(f"{speed_source}: speed {float(v[k]):g} m/s at station {s[k]:.1f} m "
+                             "is not a finite, non-negative number; fix the speeds")
     design = None if design_speed_kmh is None else design_criterion(design_speed_kmh, e_max)
     used = checked_constraints(constraints)
     if kind is SpeedKind.TRACE:

@@ -4,6 +4,14 @@ A transverse Mercator projection centred on the route (conformal, scale factor 1
 meridian) keeps the scale error below about 1e-4 within ~90 km east or west of the centre, which
 is smaller than any limit curvespeed works to. pyproj does the arithmetic; this module only picks
 the centre and keeps the definition so outputs can be written back as latitude/longitude.
+
+A route reaching farther east or west than :data:`TMERC_REACH_M` from its central meridian
+(4,450 km along the equator would come out 2.1 % long) is projected instead with an oblique
+Mercator (Hotine, two-point-free form: centre and azimuth) whose central line is the great
+circle that best fits the route; its scale is 1 along that line, so a long route that keeps
+within ~90 km of one great circle keeps its lengths to 1e-4 whatever its direction.
+:meth:`LocalProjection.scale_error` says how far any projection stretches a given route (the
+readers warn above :data:`SCALE_TOLERANCE`).
 """
 
 from __future__ import annotations
@@ -13,37 +21,78 @@ from functools import cached_property
 
 import numpy as np
 
+#: Largest relative scale error of the local projection along a route that passes silently:
+#: 1e-4 (10 cm per km) is below every tolerance curvespeed works to.
+SCALE_TOLERANCE = 1e-4
+#: A transverse Mercator's point scale is about 1 + x^2 / (2 R^2) at x metres from its central
+#: meridian (Snyder 1987, ch. 8; from memory): 1e-4 at 90 km. Routes reaching farther east or
+#: west (80 km, with room for the series' higher terms) get the oblique Mercator.
+TMERC_REACH_M = 80_000.0
+#: Mean Earth radius, metres: for choosing the projection only (the arithmetic is pyproj's).
+_EARTH_RADIUS_M = 6_371_000.0
+#: Points used to choose the central line of a long route and to measure its scale error
+#: (evenly spaced through the route).
+SAMPLE_POINTS = 20_000
+
 
 @dataclass(frozen=True)
 class LocalProjection:
-    """Transverse Mercator on the WGS84 ellipsoid centred at (``lat0_deg``, ``lon0_deg``).
+    """Conformal local projection of the WGS84 ellipsoid centred at (``lat0_deg``, ``lon0_deg``).
+
+    Transverse Mercator (central meridian ``lon0_deg``) when ``azimuth_deg`` is None, else an
+    oblique Mercator whose central line passes the centre at that azimuth (degrees clockwise
+    from north, within [-90, 90]). Either way x is east and y north at the centre, metres, with
+    scale 1 on the central line.
 
     Attributes
     ----------
     lat0_deg, lon0_deg : float
-        Latitude and longitude of the origin, degrees. x is east and y north of it, metres.
+        Latitude and longitude of the origin, degrees.
+    azimuth_deg : float or None
+        Azimuth of the oblique Mercator's central line at the origin, degrees; None for the
+        transverse Mercator.
     """
 
     lat0_deg: float
     lon0_deg: float
+    azimuth_deg: float | None = None
 
     @classmethod
     def centred_on(cls, lat_deg: np.ndarray, lon_deg: np.ndarray) -> "LocalProjection":
-        """Projection centred on the middle of the points' latitude/longitude extent."""
+        """The projection for these points: transverse Mercator centred on their extent, or,
+        for points reaching farther than :data:`TMERC_REACH_M` east or west of that centre,
+        the oblique Mercator along the great circle that fits them best (if it does better)."""
         lat = np.asarray(lat_deg, dtype=float)
         lon = np.asarray(lon_deg, dtype=float)
         # Centre longitude on the circular mean so routes across the antimeridian work.
         lon_rad = np.radians(lon)
         lon0 = float(np.degrees(np.arctan2(np.sin(lon_rad).mean(), np.cos(lon_rad).mean())))
         lat0 = 0.5 * (float(lat.min()) + float(lat.max()))
-        return cls(round(lat0, 9), round(lon0, 9))
+        tmerc = cls(round(lat0, 9), round(lon0, 9))
+        # spherical transverse Mercator easting R atanh(cos(lat) sin(dlon)): enough to decide
+        east = np.cos(np.radians(lat)) * np.sin(np.radians(lon - lon0))
+        if _EARTH_RADIUS_M * float(np.max(np.arctanh(np.clip(np.abs(east), 0.0, 0.999999)))) \
+                <= TMERC_REACH_M:
+            return tmerc
+        oblique = _best_great_circle(lat, lon)
+        if oblique is None:
+            return tmerc
+        step = max(1, lat.size // SAMPLE_POINTS)
+        if oblique.scale_error(lat[::step], lon[::step]) < \
+                tmerc.scale_error(lat[::step], lon[::step]):
+            return oblique
+        return tmerc
 
     @property
     def proj_string(self) -> str:
-        return (
-            f"+proj=tmerc +lat_0={self.lat0_deg!r} +lon_0={self.lon0_deg!r} +k=1 "
-            "+x_0=0 +y_0=0 +ellps=WGS84 +units=m +no_defs"
-        )
+        if self.azimuth_deg is None:
+            return (
+                f"+proj=tmerc +lat_0={self.lat0_deg!r} +lon_0={self.lon0_deg!r} +k=1 "
+                "+x_0=0 +y_0=0 +ellps=WGS84 +units=m +no_defs"
+            )
+        return (f"+proj=omerc +lat_0={self.lat0_deg!r} +lonc={self.lon0_deg!r} "
+                f"+alpha={self.azimuth_deg!r} +k_0=1 +x_0=0 +y_0=0 +ellps=WGS84 +units=m "
+                "+no_defs")
 
     @cached_property
     def _transformers(self):
@@ -67,6 +116,64 @@ class LocalProjection:
         lon, lat = inv.transform(np.asarray(x_m, dtype=float), np.asarray(y_m, dtype=float))
         return np.asarray(lat, dtype=float), np.asarray(lon, dtype=float)
 
+    def scale_error(self, lat_deg, lon_deg) -> float:
+        """Largest ``|k - 1|`` of the projection's point scale ``k`` at these points.
+
+        Lengths, and radii of curvature, in the projected frame differ from those on the
+        ellipsoid by this fraction at most (the projection is conformal: the same in every
+        direction at a point).
+        """
+        from pyproj import Proj
+
+        factors = Proj(self.proj_string).get_factors(np.asarray(lon_deg, dtype=float),
+                                                    np.asarray(lat_deg, dtype=float))
+        k = np.asarray(factors.meridional_scale, dtype=float)
+        return float(np.max(np.abs(k - 1.0))) if k.size else 0.0
+
     def to_dict(self) -> dict:
-        return {"kind": "transverse_mercator_wgs84", "lat0_deg": self.lat0_deg,
-                "lon0_deg": self.lon0_deg, "proj": self.proj_string}
+        if self.azimuth_deg is None:
+            return {"kind": "transverse_mercator_wgs84", "lat0_deg": self.lat0_deg,
+                    "lon0_deg": self.lon0_deg, "proj": self.proj_string}
+        return {"kind": "oblique_mercator_wgs84", "lat0_deg": self.lat0_deg,
+                "lon0_deg": self.lon0_deg, "azimuth_deg": self.azimuth_deg,
+                "proj": self.proj_string}
+
+
+def _best_great_circle(lat_deg: np.ndarray, lon_deg: np.ndarray) -> LocalProjection | None:
+    """Oblique Mercator along the great circle nearest the points (least squares on a sphere).
+
+    The circle's plane through the Earth's centre has as normal the eigenvector of the
+    smallest eigenvalue of the sum of ``v v^T`` over the points' unit vectors ``v``; its
+    centre is the mean direction of the points projected onto that plane. None when no circle
+    stands out (points all around the globe) or the centre is too near a pole for the
+    projection.
+    """
+    step = max(1, lat_deg.size // SAMPLE_POINTS)
+    lat, lon = np.radians(lat_deg[::step]), np.radians(lon_deg[::step])
+    v = np.column_stack((np.cos(lat) * np.cos(lon), np.cos(lat) * np.sin(lon), np.sin(lat)))
+    normal = np.linalg.eigh(v.T @ v)[1][:, 0]
+    on_plane = v - np.outer(v @ normal, normal)
+    centre = on_plane.sum(axis=0)
+    if np.linalg.norm(centre) < 1e-6 * lat.size:
+        return None
+    centre /= np.linalg.norm(centre)
+    lat_c = float(np.arcsin(np.clip(centre[2], -1.0, 1.0)))
+    lon_c = float(np.arctan2(centre[1], centre[0]))
+    if abs(np.degrees(lat_c)) > 89.0:
+        return None
+    along = np.cross(normal, centre)
+    east = np.array([-np.sin(lon_c), np.cos(lon_c), 0.0])
+    north = np.array([-np.sin(lat_c) * np.cos(lon_c), -np.sin(lat_c) * np.sin(lon_c),
+                      np.cos(lat_c)])
+    azimuth = float(np.degrees(np.arctan2(along @ east, along @ north)))
+    azimuth = 90.0 - (90.0 - azimuth) % 180.0          # the line, not a direction: (-90, 90]
+    if azimuth < -89.999:
+        # pyproj places the origin half a world away for azimuths within ~1e-6 degree of -90;
+        # 90 names the same line (1e-3 degree moves it 20 m at 1000 km from the centre)
+        azimuth = 90.0
+    projection = LocalProjection(round(float(np.degrees(lat_c)), 9),
+                                 round(float(np.degrees(lon_c)), 9), round(azimuth, 9))
+    x0, y0 = projection.to_metres(projection.lat0_deg, projection.lon0_deg)
+    if not np.hypot(x0, y0) < 1.0:          # the origin must be the centre (pyproj conventions)
+        return None
+    return projection

@@ -14,7 +14,7 @@ can restyle or inspect them:
   ellipse and the comfort limits of a flat road;
 * :func:`plot_plan_view` - the route in plan coloured by speed, with a colour bar, equal aspect;
 * :func:`plot_overview` - all of them in one figure with a title (route name, length, time);
-  :func:`save_overview` writes it to PNG, SVG or PDF.
+  :func:`save_overview` writes it to PNG, SVG or PDF (:func:`overview_bytes` gives the bytes).
 
 matplotlib is imported inside the functions and only through :class:`matplotlib.figure.Figure`
 (never pyplot), so nothing opens a window, no global backend is switched, and importing curvespeed
@@ -433,29 +433,45 @@ def save_overview(profile, path: str | os.PathLike, limits: Limits | None = None
                   title: str | None = None) -> Path:
     """Draw :func:`plot_overview` and write it to ``path`` (``.png``, ``.svg`` or ``.pdf``).
 
-    The library call behind ``curvespeed plot`` and ``curvespeed plan --plot``. Written
-    atomically; an existing file is replaced only with ``force``. Output carries no time stamp
-    (and SVG ids use a fixed salt), so the same inputs give the same file with the same
-    matplotlib.
+    Written atomically (:class:`~curvespeed.io.atomic.OutputFiles`); an existing file is
+    replaced only with ``force``. See :func:`overview_bytes`.
 
     Raises
     ------
     OutputError
-        Unknown extension, ``path`` exists without ``force``, or its folder is missing.
+        Unknown extension, or ``path`` may not be written (exists without ``force``, folder
+        missing, not a regular file).
     """
-    import matplotlib
-
-    from .io.atomic import atomic_open, check_writable
+    from .io.atomic import OutputFiles
 
     fmt = figure_format(path)
-    check_writable(path, force)
+    outputs = OutputFiles(force, signals=False)
+    outputs.add_output(path, "the figure")
+    with outputs:
+        outputs.write_bytes(path, overview_bytes(profile, fmt, limits, constraints, title))
+    return Path(path)
+
+
+def overview_bytes(profile, fmt: str, limits: Limits | None = None,
+                   constraints: RouteConstraints | None = None,
+                   title: str | None = None) -> bytes:
+    """The overview figure as the bytes of a ``png``, ``svg`` or ``pdf`` file.
+
+    The library call behind ``curvespeed plot`` and ``curvespeed plan --plot``. Output carries
+    no time stamp (and SVG ids use a fixed salt), so the same inputs give the same bytes with
+    the same matplotlib.
+    """
+    import io
+
+    import matplotlib
+
     overview = plot_overview(profile, limits, constraints, title=title)
     metadata = {"png": {"Software": None}, "svg": {"Date": None},
                 "pdf": {"CreationDate": None, "ModDate": None}}[fmt]
+    buffer = io.BytesIO()
     with matplotlib.rc_context({"svg.hashsalt": "curvespeed"}):
-        with atomic_open(path, force, mode="wb") as fh:
-            overview.figure.savefig(fh, format=fmt, dpi=OVERVIEW_DPI, metadata=metadata)
-    return Path(path)
+        overview.figure.savefig(buffer, format=fmt, dpi=OVERVIEW_DPI, metadata=metadata)
+    return buffer.getvalue()
 
 
 def figure_format(path: str | os.PathLike) -> str:

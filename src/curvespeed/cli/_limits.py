@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import click
 
+from ._common import FINITE
+
 #: Command-line option -> Limits field, for overrides of the limits file or the defaults.
 LIMIT_OPTIONS = {
     "friction": "friction_coefficient",
@@ -20,16 +22,20 @@ LIMIT_OPTIONS = {
 }
 
 
-def _parse_ranges(values, fields: int, what: str, example: str):
+def _parse_ranges(values, fields: int, what: str, example: str, option: str):
+    from ..io._common import number_problem, parse_number
+
     out = []
     for text in values:
         parts = text.split(":")
-        try:
-            nums = [float(p) for p in parts]
-        except ValueError:
-            nums = []
-        if len(nums) != fields:
-            raise click.BadParameter(f"'{text}' is not {what}; write it as {example}")
+        if len(parts) != fields:
+            raise click.BadParameter(f"'{text}' is not {what}; write it as {example}",
+                                     param_hint=f"'{option}'")
+        nums = [parse_number(p) for p in parts]
+        bad = [p for p, n in zip(parts, nums) if n is None]
+        if bad:
+            raise click.BadParameter(f"'{text}': '{bad[0]}' {number_problem(bad[0])}; write it "
+                                     f"as {example}", param_hint=f"'{option}'")
         out.append(nums)
     return out
 
@@ -51,7 +57,7 @@ def limit_override_options(func):
         "rolling_resistance": "Rolling resistance coefficient.",
     }
     for name in reversed(list(LIMIT_OPTIONS)):
-        func = click.option(f"--{name.replace('_', '-')}", name, type=float, default=None,
+        func = click.option(f"--{name.replace('_', '-')}", name, type=FINITE, default=None,
                             metavar="X", help=helps[name])(func)
     return func
 
@@ -60,15 +66,15 @@ def constraint_options(func):
     options = [
         click.option("--zone", "zones", multiple=True, metavar="START_M:END_M:MAX_SPEED_MPS",
                      help="Speed cap over a station range (repeatable)."),
-        click.option("--stop", "stops", multiple=True, type=float, metavar="STATION_M",
+        click.option("--stop", "stops", multiple=True, type=FINITE, metavar="STATION_M",
                      help="Come to rest at this station (repeatable)."),
         click.option("--superelevation", "superelevations", multiple=True,
                      metavar="START_M:END_M:RATE",
                      help="Cross-slope toward the curve's inside over a station range, as a "
                           "fraction (0.06 = 6 %) (repeatable)."),
-        click.option("--start-speed", type=float, default=None, metavar="MPS",
+        click.option("--start-speed", type=FINITE, default=None, metavar="MPS",
                      help="Speed at the start of an open route, m/s (default 0)."),
-        click.option("--end-speed", type=float, default=None, metavar="MPS",
+        click.option("--end-speed", type=FINITE, default=None, metavar="MPS",
                      help="Speed at the end of an open route, m/s (default 0)."),
     ]
     for option in reversed(options):
@@ -97,10 +103,53 @@ def resolve_limits(limits_file, overrides: dict, zones, stops, superelevations,
     validate_limits(limits, origin)
     extra = RouteConstraints(
         zones=tuple(SpeedZone(*z, origin="--zone") for z in
-                    _parse_ranges(zones, 3, "a speed zone", "START_M:END_M:MAX_SPEED_MPS")),
+                    _parse_ranges(zones, 3, "a speed zone", "START_M:END_M:MAX_SPEED_MPS",
+                                        "--zone")),
         stops=tuple(Stop(s, origin="--stop") for s in stops),
         superelevation=tuple(Superelevation(*e, origin="--superelevation") for e in
                              _parse_ranges(superelevations, 3, "a superelevation range",
-                                           "START_M:END_M:RATE")),
+                                           "START_M:END_M:RATE", "--superelevation")),
         start_speed_mps=start_speed, end_speed_mps=end_speed)
     return limits, constraints.merged(extra), origin
+
+
+def check_on_route(constraints, length_m: float) -> None:
+    """Refuse stops and zones that lie outside the route, with bounds precise enough to see why.
+
+    The planner refuses them too, but prints the route's end to 0.1 m, so a stop at 100000 m
+    on a route of 99999.96 m would read "outside the route (0..100000.0 m)"; this check runs
+    first and prints as many digits as it takes.
+    """
+    from ..errors import LimitsError
+    from ..io._format import format_apart
+
+    def here(item) -> str:
+        return f"{item.origin}: " if item.origin else ""
+
+    for s in constraints.stops:
+        if not 0.0 <= s.station_m <= length_m:
+            station, end = format_apart(s.station_m, length_m)
+            raise LimitsError(f"{here(s)}stop at station {station} m lies outside the route "
+                              f"(0..{end} m); check its station against the route summary")
+    for z in constraints.zones:
+        if z.end_m > z.start_m and (z.start_m >= length_m or z.end_m <= 0.0):
+            start, end = format_apart(z.start_m, length_m)
+            raise LimitsError(f"{here(z)}speed zone {start}..{z.end_m:g} m lies outside the "
+                              f"route (0..{end} m); check its stations against the route summary")
+
+
+def limits_and_geometry(route_file, limits_file, overrides: dict, constraint_args: tuple,
+                        geometry_args: tuple):
+    """Limits, constraints and their origin, and the resampled route, checked against each other.
+
+    ``constraint_args`` are the values of :func:`constraint_options` (zones, stops,
+    superelevations, start speed, end speed), ``geometry_args`` those of
+    :func:`~curvespeed.cli._common.geometry_options` (spacing, position noise, elevation noise,
+    closed). Returns ``(limits, constraints, origin, geometry)``.
+    """
+    from ._common import load_geometry
+
+    limits, constraints, origin = resolve_limits(limits_file, overrides, *constraint_args)
+    _, geometry = load_geometry(route_file, *geometry_args)
+    check_on_route(constraints, geometry.length_m)
+    return limits, constraints, origin, geometry

@@ -10,34 +10,34 @@ import sys
 
 import click
 
-from ._common import EXIT_OK, EXIT_VIOLATIONS, geometry_options, handle_errors, load_geometry
-from ._limits import constraint_options, limit_override_options, resolve_limits
+from ._common import EXIT_OK, EXIT_VIOLATIONS, FINITE, echo, geometry_options, handle_errors
+from ._limits import constraint_options, limit_override_options, limits_and_geometry
 
 
 @click.command()
-@click.argument("route_file", type=click.Path(dir_okay=False))
-@click.option("-l", "--limits", "limits_file", type=click.Path(dir_okay=False), default=None,
+@click.argument("route_file", type=click.Path())
+@click.option("-l", "--limits", "limits_file", type=click.Path(), default=None,
               help="Limits file (TOML). Without it, built-in passenger-car comfort limits.")
-@click.option("--speeds", "speeds_file", type=click.Path(dir_okay=False), default=None,
+@click.option("--speeds", "speeds_file", type=click.Path(), default=None,
               help="Speeds to check: a CSV with station_m,speed_mps (e.g. a profile from "
                    "'plan') or a GPX track with time stamps.")
-@click.option("--speed-kmh", type=float, default=None, metavar="V",
+@click.option("--speed-kmh", type=FINITE, default=None, metavar="V",
               help="Check one constant speed everywhere, km/h.")
 @click.option("--zones-only", is_flag=True,
               help="Check the speed zones of the limits (top speed outside them); the default "
                    "when neither --speeds nor --speed-kmh is given.")
-@click.option("--design-speed-kmh", type=float, default=None, metavar="V",
+@click.option("--design-speed-kmh", type=FINITE, default=None, metavar="V",
               help="Design speed for the AASHTO minimum-radius check, km/h (20-120).")
-@click.option("--emax", "e_max", type=float, default=0.08, show_default=True, metavar="E",
+@click.option("--emax", "e_max", type=FINITE, default=0.08, show_default=True, metavar="E",
               help="Maximum superelevation rate for the minimum-radius check (0.08 = 8 %).")
-@click.option("--trace-noise", "trace_noise_m", type=float, default=None, metavar="M",
+@click.option("--trace-noise", "trace_noise_m", type=FINITE, default=None, metavar="M",
               help="GPS position noise of a GPX speeds track, metres; sets its smoothing "
                    "(default 2).")
-@click.option("--curve-radius", "curve_radius_m", type=float, default=None, metavar="M",
+@click.option("--curve-radius", "curve_radius_m", type=FINITE, default=None, metavar="M",
               help="Stations with a radius below this belong to a curve, metres (default 1000).")
-@click.option("--json", "json_file", type=click.Path(dir_okay=False), default=None,
+@click.option("--json", "json_file", type=click.Path(), default=None,
               help="Write the full result (SI units) to this JSON file.")
-@click.option("--csv", "csv_file", type=click.Path(dir_okay=False), default=None,
+@click.option("--csv", "csv_file", type=click.Path(), default=None,
               help="Write the per-curve table to this CSV file.")
 @click.option("--force", is_flag=True, help="Replace output files that exist.")
 @geometry_options
@@ -47,7 +47,8 @@ from ._limits import constraint_options, limit_override_options, resolve_limits
 def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_speed_kmh, e_max,
           trace_noise_m, curve_radius_m, json_file, csv_file, force, spacing_m,
           position_noise_m, elevation_noise_m, use_elevation, closed, part, zones, stops,
-          superelevations, start_speed, end_speed, **overrides):
+          superelevations,
+          start_speed, end_speed, **overrides):
     """Check speeds along ROUTE_FILE against friction, comfort and road-design criteria.
 
     Exit status 0: all within limits; 1: at least one violation; 2: bad input. The numbers
@@ -55,10 +56,9 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
     codes and licensed practice.
     """
     import math
-    from pathlib import Path
 
-    from ..errors import LimitsError, OutputError
-    from ..io.atomic import check_writable
+    from ..errors import LimitsError
+    from ..io.atomic import OutputFiles
 
     chosen = [name for name, given in (("--speeds", speeds_file is not None),
                                        ("--speed-kmh", speed_kmh is not None),
@@ -66,13 +66,15 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
     if len(chosen) > 1:
         raise click.UsageError(f"give only one of --speeds, --speed-kmh, --zones-only (got "
                                f"{' and '.join(chosen)})")
-    if speed_kmh is not None and not (math.isfinite(speed_kmh) and speed_kmh > 0.0):
+    if speed_kmh is not None and not speed_kmh > 0.0:
         raise LimitsError(f"--speed-kmh {speed_kmh:g}: give a positive speed in km/h")
-    if json_file and csv_file and Path(json_file).resolve() == Path(csv_file).resolve():
-        raise OutputError(f"{json_file}: --json and --csv name the same file; give two names")
-    for path in (json_file, csv_file):
+    outputs = OutputFiles(force)
+    outputs.add_input(route_file, "the route file")
+    outputs.add_input(limits_file, "the limits file (-l/--limits)")
+    outputs.add_input(speeds_file, "the speeds file (--speeds)")
+    for path, option in ((json_file, "--json"), (csv_file, "--csv")):
         if path:
-            check_writable(path, force)
+            outputs.add_output(path, option)
     if design_speed_kmh is not None:
         from ..design import design_criterion
 
@@ -80,11 +82,33 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
     if curve_radius_m is not None and not (math.isfinite(curve_radius_m) and curve_radius_m > 0):
         raise LimitsError(f"--curve-radius {curve_radius_m:g}: give a positive radius in metres")
 
-    limits, constraints, origin = resolve_limits(limits_file, overrides, zones, stops,
-                                                 superelevations, start_speed, end_speed)
-    _, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m, closed,
-                           use_elevation, part)
+    with outputs:               # every output checked here; written together at the end
+        limits, constraints, origin, geo = limits_and_geometry(
+            route_file, limits_file, overrides,
+            (zones, stops, superelevations, start_speed, end_speed),
+            (spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
+             part))
+        report = _check(geo, limits, constraints, origin, speeds_file, speed_kmh, trace_noise_m,
+                        design_speed_kmh, e_max, curve_radius_m)
+        if json_file:
+            from ..io.check_report import check_json_text
 
+            outputs.write_text(json_file, check_json_text(report, route_file))
+        if csv_file:
+            from ..io.check_report import curve_csv_text
+
+            outputs.write_text(csv_file, curve_csv_text(report))
+        body, verdict = render_report(route_file, report, origin)
+        echo(body)
+    if outputs.paths:
+        echo(f"wrote {' and '.join(str(p) for p in outputs.paths)}")
+    echo(verdict)
+    sys.exit(EXIT_OK if report.ok else EXIT_VIOLATIONS)
+
+
+def _check(geo, limits, constraints, origin: str, speeds_file, speed_kmh, trace_noise_m,
+           design_speed_kmh, e_max, curve_radius_m):
+    """The speeds to check (from the file, the constant or the zones) checked along ``geo``."""
     from ..check import CurveSettings, SpeedKind, check_speeds, zone_speeds_mps
     from ..units import kmh_to_mps
 
@@ -105,26 +129,8 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
         label = (f"speed zones of {origin} (top speed {limits.max_speed_mps:g} m/s elsewhere)"
                  if constraints.zones else
                  f"top speed {limits.max_speed_mps:g} m/s of {origin} (no speed zones given)")
-    report = check_speeds(geo, limits, constraints, speeds, kind=kind, speed_source=label,
-                          design_speed_kmh=design_speed_kmh, e_max=e_max, settings=settings)
-
-    written = []
-    if json_file:
-        from ..io.check_report import write_check_json
-
-        write_check_json(report, json_file, force=force, route_file=route_file)
-        written.append(str(json_file))
-    if csv_file:
-        from ..io.check_report import write_curve_csv
-
-        write_curve_csv(report, csv_file, force=force)
-        written.append(str(csv_file))
-    body, verdict = render_report(route_file, report, origin)
-    click.echo(body)
-    if written:
-        click.echo(f"wrote {' and '.join(written)}")
-    click.echo(verdict)
-    sys.exit(EXIT_OK if report.ok else EXIT_VIOLATIONS)
+    return check_speeds(geo, limits, constraints, speeds, kind=kind, speed_source=label,
+                        design_speed_kmh=design_speed_kmh, e_max=e_max, settings=settings)
 
 
 def _num(value, spec: str, width: int) -> str:

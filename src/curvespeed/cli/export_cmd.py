@@ -5,19 +5,34 @@ from __future__ import annotations
 import click
 
 from ..io.trajectory_format import FORMAT_BY_SUFFIX, TrajectoryFormat, format_from_suffix
-from ._common import handle_errors
+from ._common import FiniteFloat, echo, handle_errors
 
 #: Default time step, s (20 samples per second).
 DEFAULT_DT_S = 0.05
 #: Refuse to write more samples than this (a too-small --dt or --station-step, most likely).
 MAX_SAMPLES = 5_000_000
 
-_POSITIVE = click.FloatRange(min=0.0, min_open=True)
+
+class _Positive(FiniteFloat):
+    """A finite number above zero (``min_zero=True``: zero allowed)."""
+
+    def __init__(self, min_zero: bool = False):
+        self.min_zero = min_zero
+
+    def convert(self, value, param, ctx):
+        number = super().convert(value, param, ctx)
+        if number < 0.0 or (number == 0.0 and not self.min_zero):
+            self.fail(f"{value} is not {'zero or ' if self.min_zero else ''}a positive number",
+                      param, ctx)
+        return number
+
+
+_POSITIVE = _Positive()
 
 
 @click.command()
-@click.argument("profile_file", type=click.Path(dir_okay=False))
-@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
+@click.argument("profile_file", type=click.Path())
+@click.option("-o", "--output", required=True, type=click.Path(),
               help="Trajectory file to write.")
 @click.option("--format", "fmt", type=click.Choice([f.value for f in TrajectoryFormat]),
               default=None,
@@ -27,7 +42,7 @@ _POSITIVE = click.FloatRange(min=0.0, min_open=True)
               help=f"Time step between samples, seconds [default: {DEFAULT_DT_S}].")
 @click.option("--station-step", "station_step_m", type=_POSITIVE, default=None, metavar="M",
               help="Sample every M metres of station instead of every --dt seconds.")
-@click.option("--dwell", "dwell_s", type=click.FloatRange(min=0.0), default=0.0,
+@click.option("--dwell", "dwell_s", type=_Positive(min_zero=True), default=0.0,
               show_default=True, metavar="S",
               help="Seconds held at each stop (a station inside the route where the planned "
                    "speed is zero) before leaving it.")
@@ -41,14 +56,10 @@ def export(profile_file, output, fmt, dt_s, station_step_m, dwell_s, force):
     The trajectory is an engineering aid: speeds on public roads follow local codes and licensed
     engineering practice.
     """
-    import math
-
     from ..errors import SpeedFileError
-    from ..export import (count_station_samples, count_time_samples, sample_by_station,
-                          sample_in_time)
-    from ..io.atomic import check_writable
+    from ..io.atomic import OutputFiles
+    from ..io.meta_json import default_meta_path
     from ..io.profile_csv import read_station_profile
-    from ..io.trajectory import write_trajectory
 
     if dt_s is not None and station_step_m is not None:
         raise click.UsageError("--dt and --station-step exclude each other; give one of them")
@@ -61,18 +72,38 @@ def export(profile_file, output, fmt, dt_s, station_step_m, dwell_s, force):
                 f"{', '.join(FORMAT_BY_SUFFIX)}", param_hint="'-o' / '--output'")
     else:
         kind = TrajectoryFormat(fmt)
-    for value, name in ((dt_s, "--dt"), (station_step_m, "--station-step"),
-                        (dwell_s, "--dwell")):
-        if value is not None and not math.isfinite(value):
-            raise click.BadParameter(f"{value} is not a finite number", param_hint=f"'{name}'")
-    check_writable(output, force)
+    outputs = OutputFiles(force)
+    outputs.add_input(profile_file, "the profile")
+    outputs.add_input(default_meta_path(profile_file), "the profile's sidecar")
+    outputs.add_output(output, "-o/--output")
 
-    sp = read_station_profile(profile_file, name=_route_name(profile_file))
-    if kind is TrajectoryFormat.GEOJSON and not sp.is_geographic:
-        raise SpeedFileError(
-            f"{profile_file}: metric-only profile (no lat, lon columns), but GeoJSON (RFC 7946) "
-            "needs WGS84 longitude/latitude; export as csv or json, or plan the route from a "
-            "geographic file (lat,lon CSV, GeoJSON or GPX)")
+    with outputs:               # the output checked here; written at the end
+        sp = read_station_profile(profile_file, name=_route_name(profile_file))
+        if kind is TrajectoryFormat.GEOJSON and not sp.is_geographic:
+            raise SpeedFileError(
+                f"{profile_file}: metric-only profile (no lat, lon columns), but GeoJSON "
+                "(RFC 7946) needs WGS84 longitude/latitude; export as csv or json, or plan the "
+                "route from a geographic file (lat,lon CSV, GeoJSON or GPX)")
+        trajectory, every = _sample(sp, dt_s, station_step_m, dwell_s)
+        from ..io.trajectory import trajectory_text
+
+        outputs.write_text(output, trajectory_text(trajectory, kind))
+    stops = trajectory.stop_stations_m.size
+    held = ""
+    if stops:
+        held = (f"; {stops} stop(s), held {dwell_s:g} s each" if dwell_s > 0
+                else f"; {stops} stop(s), left at once (--dwell 0)")
+    echo(f"read   {profile_file}: {sp.length_m:.1f} m, {sp.n_nodes} stations, planned time "
+         f"{trajectory.planned_time_s:.2f} s{held}")
+    echo(f"wrote  {output} ({kind.value}): {trajectory.n_samples} samples {every}, "
+         f"total time {trajectory.total_time_s:.2f} s")
+
+
+def _sample(sp, dt_s, station_step_m, dwell_s):
+    """The trajectory (time or station sampled) and how it was sampled, in words."""
+    from ..export import (count_station_samples, count_time_samples, sample_by_station,
+                          sample_in_time)
+
     if station_step_m is not None:
         count = count_station_samples(sp, station_step_m)
         option, value = "--station-step", station_step_m
@@ -83,38 +114,25 @@ def export(profile_file, output, fmt, dt_s, station_step_m, dwell_s, force):
     if count > MAX_SAMPLES:
         raise click.BadParameter(f"{value:g} would give {count} samples (more than "
                                  f"{MAX_SAMPLES}); choose a larger step", param_hint=f"'{option}'")
-
     if station_step_m is not None:
-        trajectory = sample_by_station(sp, station_step_m, dwell_s)
-        every = f"every {station_step_m:g} m of station"
-    else:
-        trajectory = sample_in_time(sp, dt_s, dwell_s)
-        every = f"every {dt_s:g} s"
-    write_trajectory(trajectory, output, kind, force=force)
-    stops = trajectory.stop_stations_m.size
-    held = ""
-    if stops:
-        held = (f"; {stops} stop(s), held {dwell_s:g} s each" if dwell_s > 0
-                else f"; {stops} stop(s), left at once (--dwell 0)")
-    click.echo(f"read   {profile_file}: {sp.length_m:.1f} m, {sp.n_nodes} stations, planned time "
-               f"{trajectory.planned_time_s:.2f} s{held}")
-    click.echo(f"wrote  {output} ({kind.value}): {trajectory.n_samples} samples {every}, "
-               f"total time {trajectory.total_time_s:.2f} s")
+        return (sample_by_station(sp, station_step_m, dwell_s),
+                f"every {station_step_m:g} m of station")
+    return sample_in_time(sp, dt_s, dwell_s), f"every {dt_s:g} s"
 
 
 def _route_name(profile_file) -> str | None:
     """The route's name from the sidecar next to the profile, if there is a readable one."""
     import warnings
 
-    from ..errors import CurvespeedWarning, SpeedFileError
+    from ..errors import CurvespeedError, CurvespeedWarning
     from ..io.meta_json import default_meta_path, read_profile_meta
 
     meta = default_meta_path(profile_file)
-    if not meta.is_file():
+    if not meta.exists():
         return None
     try:
         return read_profile_meta(meta).route_name
-    except SpeedFileError as exc:
+    except CurvespeedError as exc:
         warnings.warn(f"{exc}; the route name is taken from the file name instead",
                       CurvespeedWarning, stacklevel=2)
         return None

@@ -5,27 +5,27 @@ from __future__ import annotations
 import click
 
 from ..solvers import SolverKind
-from ._common import geometry_options, handle_errors, load_geometry
-from ._limits import constraint_options, limit_override_options, resolve_limits
+from ._common import FINITE, echo, geometry_options, handle_errors
+from ._limits import constraint_options, limit_override_options, limits_and_geometry
 
 
 @click.command()
-@click.argument("route_file", type=click.Path(dir_okay=False))
-@click.option("-l", "--limits", "limits_file", type=click.Path(dir_okay=False), default=None,
+@click.argument("route_file", type=click.Path())
+@click.option("-l", "--limits", "limits_file", type=click.Path(), default=None,
               help="Limits file (TOML). Without it, built-in passenger-car comfort limits.")
-@click.option("-o", "--output", type=click.Path(dir_okay=False), default=None,
+@click.option("-o", "--output", type=click.Path(), default=None,
               help="Write the profile to this CSV file (and a .meta.json sidecar next to it).")
-@click.option("--meta", "meta_file", type=click.Path(dir_okay=False), default=None,
+@click.option("--meta", "meta_file", type=click.Path(), default=None,
               help="Where to write the JSON sidecar (default: next to the profile).")
 @click.option("--solver", type=click.Choice([k.value for k in SolverKind]), default=None,
               help="'convex' (default when a jerk bound, longitudinal or lateral, is set): "
                    "minimum time within the jerk bounds; 'envelope' (default otherwise): exact "
                    "forward-backward method, no jerk bound; 'convex-reference': the convex "
                    "program modelled in cvxpy (slow, for cross-checks).")
-@click.option("--comfort-weight", type=float, default=0.0, show_default=True, metavar="W",
+@click.option("--comfort-weight", type=FINITE, default=0.0, show_default=True, metavar="W",
               help="Convex solver: weight on squared changes of acceleration, s/(m/s^2)^2; "
                    "0 is pure minimum time.")
-@click.option("--plot", "plot_file", type=click.Path(dir_okay=False), default=None,
+@click.option("--plot", "plot_file", type=click.Path(), default=None,
               help="Also draw the overview figure (.png, .svg or .pdf) of the profile.")
 @click.option("--force", is_flag=True, help="Replace output files that exist.")
 @geometry_options
@@ -33,59 +33,69 @@ from ._limits import constraint_options, limit_override_options, resolve_limits
 @constraint_options
 @handle_errors
 def plan(route_file, limits_file, output, meta_file, solver, comfort_weight, plot_file, force,
-         spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed, part, zones,
-         stops, superelevations, start_speed, end_speed, **overrides):
+         spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed, part, zones, stops,
+         superelevations,
+         start_speed, end_speed, **overrides):
     """Plan the fastest speed profile along ROUTE_FILE within the limits.
 
     The profile is an engineering aid: speeds on public roads and advisory signs follow local
     codes and licensed engineering practice.
     """
-    from ..io.atomic import check_writable
+    from ..io.atomic import OutputFiles
     from ..io.meta_json import default_meta_path
 
+    if comfort_weight < 0:
+        raise click.BadParameter("must be zero or positive", param_hint="--comfort-weight")
+    outputs = OutputFiles(force)
+    outputs.add_input(route_file, "the route file")
+    outputs.add_input(limits_file, "the limits file (-l/--limits)")
     meta_path = None
     if output:
-        check_writable(output, force)
+        outputs.add_output(output, "-o/--output")
         meta_path = meta_file or default_meta_path(output)
-        check_writable(meta_path, force)
+        outputs.add_output(meta_path, "--meta" if meta_file else
+                           f"the sidecar (named after -o: {meta_path})")
     elif meta_file:
         raise click.UsageError("--meta needs -o/--output (the sidecar describes a written profile)")
     if plot_file:
         from ..plots import figure_format
 
         figure_format(plot_file)
-        check_writable(plot_file, force)
-    limits, constraints, origin = resolve_limits(limits_file, overrides, zones, stops,
-                                                 superelevations, start_speed, end_speed)
-    _, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m, closed,
-                           use_elevation, part)
+        outputs.add_output(plot_file, "--plot")
+    with outputs:               # every output checked here; written together at the end
+        limits, constraints, origin, geo = limits_and_geometry(
+            route_file, limits_file, overrides,
+            (zones, stops, superelevations, start_speed, end_speed),
+            (spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
+             part))
 
-    from ..planner import plan_profile
+        from ..planner import plan_profile
 
-    kind = SolverKind(solver) if solver else None
-    options = None
-    if comfort_weight:
-        if comfort_weight < 0:
-            raise click.BadParameter("must be zero or positive", param_hint="--comfort-weight")
-        from ..solvers.convex import ConvexOptions
+        kind = SolverKind(solver) if solver else None
+        options = None
+        if comfort_weight:
+            from ..solvers.convex import ConvexOptions
 
-        options = ConvexOptions(comfort_weight=comfort_weight)
-    # resolve_limits validated the limits and warned, naming the file or the command line
-    profile = plan_profile(geo, limits, constraints, kind, options, warn_limits=False)
-    click.echo(summarise(route_file, profile, limits, origin))
+            options = ConvexOptions(comfort_weight=comfort_weight)
+        # resolve_limits validated the limits and warned, naming the file or the command line
+        profile = plan_profile(geo, limits, constraints, kind, options, warn_limits=False)
+        echo(summarise(route_file, profile, limits, origin))
+        if output:
+            from ..io.meta_json import meta_json_text, profile_meta
+            from ..io.profile_csv import profile_csv_text
+
+            outputs.write_text(output, profile_csv_text(profile))
+            outputs.write_text(meta_path, meta_json_text(
+                profile_meta(profile, limits, constraints, route_file)))
+        if plot_file:
+            from ..plots import figure_format, overview_bytes
+
+            outputs.write_bytes(plot_file, overview_bytes(
+                profile, figure_format(plot_file), limits=limits, constraints=constraints))
     if output:
-        from ..io.meta_json import profile_meta, write_meta_json
-        from ..io.profile_csv import write_profile_csv
-
-        meta = profile_meta(profile, limits, constraints, route_file)
-        write_profile_csv(profile, output, force=force)
-        write_meta_json(meta, meta_path, force=force)
-        click.echo(f"wrote {output} and {meta_path}")
+        echo(f"wrote {output} and {meta_path}")
     if plot_file:
-        from ..plots import save_overview
-
-        save_overview(profile, plot_file, limits=limits, constraints=constraints, force=force)
-        click.echo(f"drew {plot_file}")
+        echo(f"drew {plot_file}")
 
 
 def summarise(route_file, profile, limits, origin: str, max_curves: int = 8) -> str:

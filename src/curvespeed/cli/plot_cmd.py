@@ -6,14 +6,14 @@ from pathlib import Path
 
 import click
 
-from ._common import handle_errors
+from ._common import echo, handle_errors
 
 
 @click.command()
-@click.argument("profile_file", type=click.Path(dir_okay=False))
-@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
+@click.argument("profile_file", type=click.Path())
+@click.option("-o", "--output", required=True, type=click.Path(),
               help="Figure to write: .png, .svg or .pdf.")
-@click.option("--meta", "meta_file", type=click.Path(dir_okay=False), default=None,
+@click.option("--meta", "meta_file", type=click.Path(), default=None,
               help="The profile's JSON sidecar, for limits, zones and stops (default: "
                    "PROFILE.meta.json next to the profile, when it exists).")
 @click.option("--force", is_flag=True, help="Replace the figure if it exists.")
@@ -25,27 +25,54 @@ def plot(profile_file, output, meta_file, force):
     a g-g diagram with the friction ellipse and comfort limits; the route in plan coloured by
     speed. No display is needed.
     """
-    from ..io.atomic import check_writable
-    from ..io.meta_json import default_meta_path, read_profile_meta
+    from ..io.atomic import OutputFiles
+    from ..io.meta_json import default_meta_path
     from ..io.profile_csv import read_station_profile
-    from ..plots import figure_format, save_overview
+    from ..plots import figure_format, overview_bytes
 
-    figure_format(output)
-    check_writable(output, force)
-    sidecar = None
-    if meta_file is not None:
-        sidecar = read_profile_meta(meta_file)
-    elif default_meta_path(profile_file).is_file():
-        sidecar = read_profile_meta(default_meta_path(profile_file))
-    name = sidecar.route_name if sidecar is not None else None
-    sp = read_station_profile(profile_file, name=name)
-    if sidecar is None:
-        click.echo(f"note: no sidecar {default_meta_path(profile_file)} found; drawing without "
-                   "limits, zones and stops (give --meta FILE to add them)", err=True)
-        limits = constraints = None
-    else:
-        limits, constraints = sidecar.limits, sidecar.constraints
-    save_overview(sp, output, limits=limits, constraints=constraints, force=force)
+    fmt = figure_format(output)
+    outputs = OutputFiles(force)
+    outputs.add_input(profile_file, "the profile")
+    outputs.add_input(meta_file, "the sidecar (--meta)")
+    outputs.add_input(default_meta_path(profile_file), "the profile's sidecar")
+    outputs.add_output(output, "-o/--output")
+    with outputs:               # the output checked here; written at the end
+        sidecar = _sidecar(profile_file, meta_file)
+        name = sidecar.route_name if sidecar is not None else None
+        sp = read_station_profile(profile_file, name=name)
+        if sidecar is None:
+            limits = constraints = None
+        else:
+            limits, constraints = sidecar.limits, sidecar.constraints
+        outputs.write_bytes(output, overview_bytes(sp, fmt, limits=limits,
+                                                   constraints=constraints))
     using = f" with {sidecar.source}" if sidecar is not None else ""
-    click.echo(f"wrote {output} ({Path(output).suffix.lower().lstrip('.')}) from "
-               f"{profile_file}{using}")
+    echo(f"wrote {output} ({Path(output).suffix.lower().lstrip('.')}) from "
+         f"{profile_file}{using}")
+
+
+def _sidecar(profile_file, meta_file):
+    """The sidecar given, or the one next to the profile; None (with a note) if there is none.
+
+    A sidecar named with --meta must be readable. The one found next to the profile only adds
+    limits, zones and stops to the figure: if it is broken, a warning says why and the figure
+    is drawn without them.
+    """
+    import warnings
+
+    from ..errors import CurvespeedError, CurvespeedWarning
+    from ..io.meta_json import default_meta_path, read_profile_meta
+
+    if meta_file is not None:
+        return read_profile_meta(meta_file)
+    default = default_meta_path(profile_file)
+    if default.exists():
+        try:
+            return read_profile_meta(default)
+        except CurvespeedError as exc:
+            warnings.warn(f"{exc}; drawing without limits, zones and stops (give --meta FILE to "
+                          "add them)", CurvespeedWarning, stacklevel=2)
+            return None
+    click.echo(f"note: no sidecar {default} found; drawing without limits, zones and stops "
+               "(give --meta FILE to add them)", err=True)
+    return None

@@ -6,25 +6,39 @@ import math
 
 import click
 
-from ._common import describe_fit, geometry_options, handle_errors, load_geometry
+from ._common import describe_fit, echo, geometry_options, handle_errors, load_geometry
 
 
 @click.command()
-@click.argument("route_file", type=click.Path(dir_okay=False))
+@click.argument("route_file", type=click.Path())
 @geometry_options
-@click.option("-o", "--output", type=click.Path(dir_okay=False), default=None,
+@click.option("-o", "--output", type=click.Path(), default=None,
               help="Write the resampled geometry to this CSV file.")
 @click.option("--force", is_flag=True, help="Replace the output file if it exists.")
 @handle_errors
 def route(route_file, spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
           part, output, force):
     """Read ROUTE_FILE (CSV, GeoJSON or GPX), resample it and print a summary."""
-    from ..io.atomic import check_writable
+    from ..io.atomic import OutputFiles
 
+    outputs = OutputFiles(force)
+    outputs.add_input(route_file, "the route file")
     if output:
-        check_writable(output, force)
-    rt, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m, closed,
-                           use_elevation, part)
+        outputs.add_output(output, "-o/--output")
+    with outputs:               # the output checked here; written at the end
+        rt, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m,
+                                use_elevation, closed, part)
+        echo(_summary(route_file, rt, geo))
+        if output:
+            from ..io.geometry_csv import geometry_csv_text
+
+            outputs.write_text(output, geometry_csv_text(geo))
+    if output:
+        echo(f"wrote          {output}")
+
+
+def _summary(route_file, rt, geo) -> str:
+    """Length, stations, tightest radius, turning and elevation of the resampled route."""
     from ..geometry import summarise_geometry
 
     summary = summarise_geometry(geo)
@@ -45,9 +59,4 @@ def route(route_file, spacing_m, position_noise_m, elevation_noise_m, use_elevat
         lines.append(f"elevation      {summary['min_elevation_m']:.1f} .. "
                      f"{summary['max_elevation_m']:.1f} m, grade {100 * summary['min_grade']:.1f}"
                      f" .. {100 * summary['max_grade']:.1f} %")
-    click.echo("\n".join(lines))
-    if output:
-        from ..io.geometry_csv import write_geometry_csv
-
-        write_geometry_csv(geo, output, force=force)
-        click.echo(f"wrote          {output}")
+    return "\n".join(lines)

@@ -1,4 +1,4 @@
-"""Helpers shared by the readers: separators, strict number parsing, latitude/longitude.
+"""Helpers shared by the readers: bounded reading, separators, strict numbers, latitude/longitude.
 
 Private to :mod:`curvespeed.io`; every message built here is prefixed by the reader with the
 file name and the point's place in the file.
@@ -8,21 +8,41 @@ no comma but a semicolon (or a tab). Semicolon- and tab-separated files are what
 in many European locales save as "CSV"; in them a decimal comma is accepted as well as a
 decimal point, but not both in one file (a point there would be a thousands separator, which is
 never read).
+
+Reading (:func:`read_bytes`, :func:`read_text`): only regular files, checked with ``os.stat``
+before anything is opened (a FIFO would block, ``/dev/zero`` never ends), at most
+:data:`MAX_INPUT_BYTES`. Numbers (:func:`parse_number` for text, :func:`finite_value` for values
+a JSON or TOML parser made, :func:`load_json` for JSON documents): plain ASCII decimals, finite,
+with numbers too long or nesting too deep refused by name rather than crashing the parser.
 """
 
 from __future__ import annotations
 
 import math
+import os
 import re
+import stat
 
 import numpy as np
 
 from ..errors import RouteFormatError
 from ..geodesy import LocalProjection
 
-# A plain decimal number: optional sign, digits with an optional point, optional exponent.
-# Stricter than float(), which would also take "nan", "inf", "1_000" and surrounding spaces.
-_NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
+#: Largest input file read, bytes (128 MiB). A route CSV line takes about 20 bytes, so this is
+#: some six million points, far more than any route needs at metre spacing (a profile CSV of
+#: 850 km at 1 m stations); reading takes about 25 times a file's size in memory (measured:
+#: 530 MB for a 20 MB route of a million points), so the limit keeps a read within about 3 GB.
+#: Thin the points or split the route instead.
+MAX_INPUT_BYTES = 128 * 1024 * 1024
+#: Deepest nesting of arrays and objects accepted in a JSON or TOML file. A GeoJSON route
+#: nests about ten levels (collection, feature, geometry, lines, positions), a limits file
+#: three; deeper nesting is not one of these files and would exhaust the parsers' stack.
+MAX_NESTING = 64
+
+# A plain decimal number: optional sign, ASCII digits with an optional point, optional exponent.
+# Stricter than float(), which would also take "nan", "inf", "1_000", surrounding spaces and
+# digits of other scripts (Arabic-Indic, full-width), which the docs promise are refused.
+_NUMBER = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
 _NON_FINITE = re.compile(r"[+-]?(?:nan|inf|infinity)", re.IGNORECASE)
 # Characters a column of plain numbers can hold; anything else sends the column down the slow
 # path, cell by cell, which names the first offending cell.
@@ -78,13 +98,26 @@ def number_problem(text: str, decimal_comma: bool = False) -> str:
         return "is empty"
     if decimal_comma:
         s = s.replace(",", ".")
-    if _NON_FINITE.fullmatch(s) or _NUMBER.fullmatch(s):
+    if _NUMBER.fullmatch(s):
+        return "is not a finite number (too large)"
+    if _NON_FINITE.fullmatch(s):
         return "is not a finite number"
+    if any(ch.isdigit() and not "0" <= ch <= "9" for ch in s):
+        return ("has digits other than ASCII 0-9 (Arabic-Indic, full-width or other scripts?); "
+                "write the number with the digits 0-9")
     if not decimal_comma and re.fullmatch(r"[+-]?\d+,\d+", s):
         return "is not a number (decimal comma? use a point as the decimal separator)"
     if re.fullmatch(r"[+-]?\d{1,3}(?:[.,\s]\d{3})+(?:[.,]\d+)?", s):
         return "is not a number (thousands separators? write the number without them)"
     return "is not a number"
+
+
+def cell_text(text: str, width: int = 40) -> str:
+    """A cell as written, quoted, shortened if long: ``'1000000000...' (5000 characters)``."""
+    s = text.strip()
+    if len(s) <= width:
+        return f"'{s}'"
+    return f"'{s[:width // 2]}...' ({len(s)} characters)"
 
 
 def parse_column(cells: list[str], decimal_comma: bool = False):
@@ -143,14 +176,50 @@ def looks_projected(lat: float, lon: float) -> bool:
     return abs(lat) > 1000.0 and abs(lon) > 1000.0
 
 
-def project_latlon(lat_deg: np.ndarray, lon_deg: np.ndarray):
+def project_latlon(lat_deg: np.ndarray, lon_deg: np.ndarray, source: str | None = None):
     """Project WGS84 degrees to a local metric frame centred on the points.
 
-    Returns ``(x_m, y_m, projection)`` ready for :func:`curvespeed.route.make_route`.
+    Returns ``(x_m, y_m, projection)`` ready for :func:`curvespeed.route.make_route`. With a
+    ``source``, a route too large for one local projection is warned about
+    (:func:`warn_if_stretched`).
     """
     projection = LocalProjection.centred_on(lat_deg, lon_deg)
     x, y = projection.to_metres(lat_deg, lon_deg)
+    if source is not None:
+        warn_if_stretched(projection, lat_deg, lon_deg, x, source)
     return x, y, projection
+
+
+def warn_if_stretched(projection: LocalProjection, lat_deg, lon_deg, x_m, source: str) -> None:
+    """Warn when the projection stretches the route's lengths by more than 1e-4 somewhere.
+
+    A transverse Mercator reaching less than :data:`~curvespeed.geodesy.TMERC_REACH_M` east
+    or west is within that by construction and is not checked further.
+    """
+    import warnings
+
+    from ..errors import CurvespeedWarning
+    from ..geodesy import SAMPLE_POINTS, SCALE_TOLERANCE, TMERC_REACH_M
+
+    lat, lon = np.asarray(lat_deg, dtype=float), np.asarray(lon_deg, dtype=float)
+    if not lat.size or (projection.azimuth_deg is None
+                        and float(np.max(np.abs(x_m))) <= TMERC_REACH_M):
+        return
+    step = max(1, lat.size // SAMPLE_POINTS)
+    error = projection.scale_error(lat[::step], lon[::step])
+    if error <= SCALE_TOLERANCE:
+        return
+    from pyproj import Geod
+
+    _, _, reach = Geod(ellps="WGS84").inv(np.full(lat[::step].size, projection.lon0_deg),
+                                          np.full(lat[::step].size, projection.lat0_deg),
+                                          lon[::step], lat[::step])
+    warnings.warn(
+        f"{source}: the route reaches {np.max(reach) / 1000:.0f} km from its centre and strays "
+        "far from any one great circle, too far for one local map projection: lengths and "
+        f"radii come out up to {100 * error:.2g} % off in parts of it (a local projection is "
+        "good to 0.01 % within about 90 km of its central line). Split the route into parts, "
+        "or give it in a metric frame", CurvespeedWarning, stacklevel=3)
 
 
 def fail(source: str, where: str | None, message: str) -> RouteFormatError:
@@ -162,8 +231,8 @@ def fail(source: str, where: str | None, message: str) -> RouteFormatError:
 def read_text(path, error=RouteFormatError) -> str:
     """UTF-8 text of ``path`` (a byte-order mark is dropped); ``error`` names the file on failure.
 
-    Refuses, with what to do: a missing or unreadable file, a folder, UTF-16/32 or binary
-    content (:func:`check_text`) and bytes that are not UTF-8 (naming the line).
+    Refuses, with what to do: what :func:`read_bytes` refuses, UTF-16/32 or binary content
+    (:func:`check_text`) and bytes that are not UTF-8 (naming the line).
     """
     source = str(path)
     data = read_bytes(path, source, error)
@@ -171,20 +240,57 @@ def read_text(path, error=RouteFormatError) -> str:
     return decode_utf8(data, source, error)
 
 
-def read_bytes(path, source: str, error=RouteFormatError) -> bytes:
-    """The bytes of ``path``; a missing, unreadable file or a folder raises ``error``."""
-    from pathlib import Path
+def read_bytes(path, source: str, error=RouteFormatError, limit: int | None = None) -> bytes:
+    """The bytes of the regular file ``path``, at most ``limit`` (:data:`MAX_INPUT_BYTES`).
 
+    A missing or unreadable file, a folder, a device, a FIFO or a socket, and a file larger than
+    the limit raise ``error``. The file's type is checked with ``os.stat`` before it is opened,
+    so a FIFO is never opened (that would block) and ``/dev/zero`` never read; the file is then
+    opened without blocking and checked again through the open descriptor.
+    """
+    limit = MAX_INPUT_BYTES if limit is None else limit
     try:
-        return Path(path).read_bytes()
+        st = os.stat(path)
+        _check_input_stat(st, source, limit, error)
+        fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0))
     except FileNotFoundError:
         raise error(f"{source}: no such file; check the name and folder") from None
-    except IsADirectoryError:
-        raise error(f"{source}: is a folder, not a file") from None
+    except NotADirectoryError:
+        raise error(f"{source}: no such file (a part of its folder path is a file); check the "
+                    "name and folder") from None
     except PermissionError:
         raise error(f"{source}: cannot be read (permission denied)") from None
     except OSError as exc:
         raise error(f"{source}: cannot be read ({exc.strerror or exc})") from None
+    with os.fdopen(fd, "rb") as fh:
+        try:
+            _check_input_stat(os.fstat(fh.fileno()), source, limit, error)
+            data = fh.read(limit + 1)
+        except OSError as exc:
+            raise error(f"{source}: cannot be read ({exc.strerror or exc})") from None
+    if len(data) > limit:
+        raise error(_too_large(source, f"over {limit:,} bytes", limit))
+    return data
+
+
+def _check_input_stat(st: os.stat_result, source: str, limit: int, error) -> None:
+    if stat.S_ISDIR(st.st_mode):
+        raise error(f"{source}: is a folder, not a file")
+    if not stat.S_ISREG(st.st_mode):
+        from .atomic import file_kind
+
+        raise error(f"{source}: is {file_kind(st.st_mode)}, not a regular file; curvespeed reads "
+                    "only regular files (a device or pipe may never end or block forever): "
+                    "save the data to a file and give that")
+    if st.st_size > limit:
+        raise error(_too_large(source, f"{st.st_size:,} bytes", limit))
+
+
+def _too_large(source: str, size: str, limit: int) -> str:
+    return (f"{source}: is {size}, more than the {limit:,} bytes ({limit / 2**20:.0f} MiB) "
+            "curvespeed reads: some six million route points, far more than a route needs, "
+            "and reading takes about 25 times a file's size in memory; thin the points or "
+            "split the file")
 
 
 def check_text(data: bytes, source: str, error=RouteFormatError) -> None:
@@ -210,3 +316,110 @@ def decode_utf8(data: bytes, source: str, error=RouteFormatError) -> str:
         line = data.count(b"\n", 0, exc.start) + 1
         raise error(f"{source}: line {line}: byte 0x{data[exc.start]:02x} is not valid UTF-8; "
                     "save the file as UTF-8") from None
+
+
+def split_lines(text: str) -> list[str]:
+    """Lines of ``text`` split at ``\\n``, ``\\r\\n`` and ``\\r`` only.
+
+    Unlike :meth:`str.splitlines`, a Unicode line or paragraph separator (U+2028, U+2029, U+0085)
+    inside a comment or a cell stays where it is, so line numbers match what editors show.
+    """
+    return text.replace("\r\n", "\n").replace("\r", "\n").split("\n")
+
+
+def finite_value(value) -> float | None:
+    """The float value of a number a JSON or TOML parser made, or None if it is not one.
+
+    Booleans, strings, lists and the like, non-finite values and integers too large for a
+    float (``10**400``, which Python's ``float()`` refuses with an OverflowError) give None.
+    """
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        return None
+    try:
+        number = float(value)
+    except OverflowError:
+        return None
+    return number if math.isfinite(number) else None
+
+
+def show_value(value, width: int = 40) -> str:
+    """A JSON or TOML value as short text for a message (``5`` for a whole float like 5.0)."""
+    import json
+
+    if isinstance(value, float) and value.is_integer() and abs(value) < 1e16:
+        value = int(value)
+    text = json.dumps(value, default=str, ensure_ascii=False)
+    return text if len(text) <= width else text[: width - 3] + "..."
+
+
+def shown_number(value, width: int = 30) -> str:
+    """A value that should have been a number, for "got ..." in a message."""
+    if isinstance(value, float) and math.isinf(value):
+        return "a number too large to be finite"
+    if isinstance(value, int) and not isinstance(value, bool) and finite_value(value) is None:
+        return f"an integer of {len(str(abs(value)))} digits, too large to be finite"
+    return show_value(value, width)
+
+
+def value_problem(value, width: int = 30) -> str:
+    """Why a parsed value is not a finite number, to follow its name in a message.
+
+    "is not a finite number (too large)" (``1e999``, or an integer of 400 digits, which
+    :func:`load_json` hands over as infinity), ``"true is not a finite number"``, ...
+    """
+    if isinstance(value, float) and math.isinf(value):
+        return "is not a finite number (too large)"
+    if isinstance(value, int) and not isinstance(value, bool) and finite_value(value) is None:
+        return f"has {len(str(abs(value)))} digits: not a finite number (too large)"
+    return f"{show_value(value, width)} is not a finite number"
+
+
+def _json_number(text: str) -> float:
+    """A JSON number token as a float; too large for a float: infinity (refused where used).
+
+    The JSON scanner hands over only tokens of JSON's number grammar (ASCII digits, optional
+    fraction and exponent), a subset of what :func:`parse_number` accepts, so ``float`` gives
+    the same value without a second pattern match; unlike ``int`` it has no digit limit.
+    """
+    return float(text)
+
+
+def load_json(text: str, source: str, error=RouteFormatError, advice: str = "fix the file"):
+    """Parse JSON ``text``; every number becomes a float, through :func:`parse_number`.
+
+    Integers too long for Python's integer parser (over 4300 digits) or too large for a float
+    become infinity, which the reader then refuses naming the key or position. ``NaN`` and
+    ``Infinity`` (not JSON, but written by some tools) are read as such and refused the same way.
+
+    Raises ``error`` for invalid JSON (with line and column) and for nesting deeper than
+    :data:`MAX_NESTING`.
+    """
+    import json
+
+    try:
+        doc = json.loads(text, parse_int=_json_number, parse_float=_json_number)
+    except json.JSONDecodeError as exc:
+        raise error(f"{source}: line {exc.lineno}, column {exc.colno}: not valid JSON "
+                    f"({exc.msg}); {advice}") from None
+    except RecursionError:
+        raise error(_too_deep(source, "JSON")) from None
+    check_nesting(doc, source, error, "JSON")
+    return doc
+
+
+def check_nesting(doc, source: str, error, what: str) -> None:
+    """Raise ``error`` if lists and dicts in ``doc`` nest deeper than :data:`MAX_NESTING`."""
+    level = [doc] if isinstance(doc, (dict, list)) else []
+    depth = 0
+    while level:
+        depth += 1
+        if depth > MAX_NESTING:
+            raise error(_too_deep(source, what))
+        level = [child for item in level
+                 for child in (item.values() if isinstance(item, dict) else item)
+                 if isinstance(child, (dict, list))]
+
+
+def _too_deep(source: str, what: str) -> str:
+    return (f"{source}: {what} arrays and objects nest more than {MAX_NESTING} levels deep; no "
+            "curvespeed input nests that deep, so this is not a route, limits or sidecar file")

@@ -56,14 +56,18 @@ def check_report_dict(report: CheckReport, route_file: str | os.PathLike | None 
 def write_check_json(report: CheckReport, path: str | os.PathLike, force: bool = False,
                      route_file: str | os.PathLike | None = None) -> Path:
     """Write the full report to ``path`` as JSON (atomically)."""
+    return write_text_atomic(check_json_text(report, route_file), path, force)
+
+
+def check_json_text(report: CheckReport, route_file: str | os.PathLike | None = None) -> str:
+    """The JSON report's text (module docstring)."""
     data = check_report_dict(report, route_file)
     per_station = data.pop("per_station")
     text = json.dumps(data, indent=2, allow_nan=False)
     # one line per per-station array keeps the file readable and diffable
     rows = [f'    {json.dumps(name)}: {json.dumps(values, allow_nan=False)}'
             for name, values in per_station.items()]
-    text = text[:-2] + ',\n  "per_station": {\n' + ",\n".join(rows) + "\n  }\n}\n"
-    return write_text_atomic(text, path, force)
+    return text[:-2] + ',\n  "per_station": {\n' + ",\n".join(rows) + "\n  }\n}\n"
 
 
 def curve_table_columns(report: CheckReport) -> dict[str, tuple[object, str]]:
@@ -108,7 +112,11 @@ def curve_table_columns(report: CheckReport) -> dict[str, tuple[object, str]]:
     return columns
 
 
+def curve_csv_text(report: CheckReport) -> str:
+    """The per-curve CSV file's text (module docstring)."""
+    return format_columns(curve_table_columns(report))
+
+
 def write_curve_csv(report: CheckReport, path: str | os.PathLike, force: bool = False) -> Path:
     """Write the per-curve table to ``path`` as CSV (atomically)."""
-    text = format_columns(curve_table_columns(report))
-    return write_text_atomic(text, path, force)
+    return write_text_atomic(curve_csv_text(report), path, force)

@@ -22,16 +22,14 @@ The route's name comes from the feature's ``properties.name`` when present. Poin
 
 from __future__ import annotations
 
-import json
-import math
 import warnings
-from numbers import Real
 
 import numpy as np
 
 from ..errors import CurvespeedWarning
 from ..route import Route, make_route
-from ._common import fail, latlon_range_problem, looks_projected, project_latlon
+from ._common import (fail, finite_value, latlon_range_problem, load_json, looks_projected,
+                      project_latlon, show_value, value_problem, warn_if_stretched)
 
 _LINE_TYPES = ("LineString", "MultiLineString")
 #: Parts of a MultiLineString are joined when each starts within this distance of where the one
@@ -58,13 +56,7 @@ def parse_route_geojson(text: str, source: str) -> Route:
     RouteGeometryError
         From :func:`~curvespeed.route.make_route`: fewer than three distinct points, a reversal.
     """
-    try:
-        doc = json.loads(text)
-    except json.JSONDecodeError as exc:
-        raise fail(source, f"line {exc.lineno}, column {exc.colno}",
-                   f"not valid JSON ({exc.msg}); fix the file or export it again") from None
-    except RecursionError:
-        raise fail(source, None, "JSON nesting is too deep to be a GeoJSON route") from None
+    doc = load_json(text, source, advice="fix the file or export it again")
     if not isinstance(doc, dict) or not isinstance(doc.get("type"), str):
         raise fail(source, None, "not a GeoJSON object (the top level needs a \"type\" member)")
 
@@ -95,6 +87,11 @@ def parse_route_geojson(text: str, source: str) -> Route:
         if not isinstance(part, list):
             raise fail(source, label, "\"coordinates\" must be a list of positions"
                        if len(parts) == 1 else f"part {p}: must be a list of positions")
+        if not part:
+            raise fail(source, label, "\"coordinates\" is empty: the line has no positions; "
+                       "give the route's positions" if len(parts) == 1 else
+                       f"part {p} of the MultiLineString has no positions; remove the empty "
+                       "part or give its positions")
         prefix = f"part {p}, " if len(parts) > 1 else ""
         pieces.append((prefix, _read_positions(part, source, prefix)))
     lon = np.concatenate([lo for _, (lo, _, _) in pieces])
@@ -115,6 +112,7 @@ def parse_route_geojson(text: str, source: str) -> Route:
             lat, lon, where = lat[keep], lon[keep], where[keep]
             ele = None if ele is None else ele[keep]
             x, y, projection = project_latlon(lat, lon)
+    warn_if_stretched(projection, lat, lon, x, source)
     name = None
     if isinstance(properties, dict) and isinstance(properties.get("name"), str):
         name = properties["name"].strip() or None
@@ -137,7 +135,11 @@ def _lines(obj, properties, source, label=None):
         for i, feature in enumerate(features):
             yield from _lines(feature, None, source, f"feature {i + 1}")
     elif kind == "GeometryCollection":
-        for i, geometry in enumerate(obj.get("geometries") or []):
+        geometries = obj.get("geometries")
+        if not isinstance(geometries, list):
+            raise fail(source, label, "GeometryCollection has no \"geometries\" list (found "
+                       f"{show_value(geometries)}); give its geometries as a list")
+        for i, geometry in enumerate(geometries):
             yield from _lines(geometry, properties, source,
                               f"{label + ', ' if label else ''}geometry {i + 1}")
 
@@ -152,12 +154,10 @@ def _describe_types(doc: dict) -> str:
         kind = obj.get("type")
         if kind == "Feature":
             walk(obj.get("geometry"))
-        elif kind == "FeatureCollection":
-            for f in obj.get("features") or []:
-                walk(f)
-        elif kind == "GeometryCollection":
-            for g in obj.get("geometries") or []:
-                walk(g)
+        elif kind in ("FeatureCollection", "GeometryCollection"):
+            items = obj.get("features" if kind == "FeatureCollection" else "geometries")
+            for item in items if isinstance(items, list) else []:
+                walk(item)
         elif isinstance(kind, str) and kind not in kinds:
             kinds.append(kind)
 
@@ -165,10 +165,6 @@ def _describe_types(doc: dict) -> str:
     if not kinds:
         return "no geometry"
     return ", ".join(kinds[:5]) + (", ..." if len(kinds) > 5 else "")
-
-
-def _is_number(v) -> bool:
-    return isinstance(v, Real) and not isinstance(v, bool)
 
 
 def _join_parts(x, y, sizes: list[int], source: str, label: str) -> np.ndarray:
@@ -216,15 +212,15 @@ def _read_positions(coords: list, source: str, prefix: str = ""):
         where = f"{prefix}position {i + 1}"
         if not isinstance(pos, list) or len(pos) < 2:
             raise fail(source, where, f"expected [longitude, latitude] or [longitude, latitude, "
-                                      f"elevation], got {json.dumps(pos)[:60]}")
-        for j, what in enumerate(("longitude", "latitude", "elevation")[:len(pos)]):
-            v = pos[j]
-            if not _is_number(v) or not math.isfinite(v):
-                raise fail(source, where, f"{what} {json.dumps(v)[:30]} is not a finite number; "
-                                          "fix or remove that position")
-        lon[i], lat[i] = float(pos[0]), float(pos[1])
+                                      f"elevation], got {show_value(pos, 60)}")
+        values = [finite_value(v) for v in pos[:3]]
+        for v, raw, what in zip(values, pos, ("longitude", "latitude", "elevation")):
+            if v is None:
+                raise fail(source, where, f"{what} {value_problem(raw)}; fix or remove that "
+                                          "position")
+        lon[i], lat[i] = values[0], values[1]
         if len(pos) >= 3:
-            ele[i] = float(pos[2])
+            ele[i] = values[2]
             with_ele += 1
         _check_lonlat(lon[i], lat[i], source, where)
 

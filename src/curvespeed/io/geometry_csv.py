@@ -13,7 +13,7 @@ Number formats (see :mod:`curvespeed.io._format`): metres 4 decimals (0.1 mm), h
 decimals, curvature fixed 9 decimals (1e-9 1/m; fixed rather than significant digits so
 round-off on straights prints as zero and files are identical across machines), grade 6
 decimals, latitude/longitude 9 decimals. One header line, then one line per node, ``\\n`` line
-ends, UTF-8. The file is written atomically (:func:`curvespeed.io.atomic.atomic_open`).
+ends, UTF-8. The file is written atomically (:class:`curvespeed.io.atomic.OutputFiles`).
 """
 
 from __future__ import annotations
@@ -45,6 +45,11 @@ def geometry_columns(geometry: Geometry) -> dict[str, tuple[object, str]]:
     return columns
 
 
+def geometry_csv_text(geometry: Geometry) -> str:
+    """The geometry CSV file's text (module docstring)."""
+    return format_columns(geometry_columns(geometry))
+
+
 def write_geometry_csv(geometry: Geometry, path: str | os.PathLike, force: bool = False) -> Path:
     """Write ``geometry`` to ``path`` as CSV and return the path.
 
@@ -53,5 +58,4 @@ def write_geometry_csv(geometry: Geometry, path: str | os.PathLike, force: bool 
     OutputError
         ``path`` exists and ``force`` is false, or its folder does not exist.
     """
-    text = format_columns(geometry_columns(geometry))
-    return write_text_atomic(text, path, force)
+    return write_text_atomic(geometry_csv_text(geometry), path, force)

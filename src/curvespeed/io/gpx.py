@@ -32,7 +32,7 @@ import numpy as np
 
 from ..errors import CurvespeedWarning
 from ..route import Route, make_route
-from ._common import (fail, latlon_range_problem, number_problem, parse_number,
+from ._common import (cell_text, fail, latlon_range_problem, number_problem, parse_number,
                       project_latlon, swapped_would_fit)
 
 #: A step between consecutive track points longer than this many median steps ...
@@ -117,7 +117,7 @@ def parse_route_gpx(data: bytes, source: str) -> Route:
             raw = ele_el.text or ""
             v = parse_number(raw)
             if v is None:
-                raise fail(source, where[i], f"ele value '{raw.strip()}' {number_problem(raw)}; "
+                raise fail(source, where[i], f"ele value {cell_text(raw)} {number_problem(raw)}; "
                                              "fix it or remove the <ele> element")
             ele[i] = v
         time_el = pt.find(q("time"))
@@ -135,7 +135,7 @@ def parse_route_gpx(data: bytes, source: str) -> Route:
     if name is None:
         metadata = root.find(q("metadata"))  # GPX 1.1
         name = _text(metadata.find(q("name")) if metadata is not None else root.find(q("name")))
-    x, y, projection = project_latlon(lat, lon)
+    x, y, projection = project_latlon(lat, lon, source)
     if kind == "trkpt":
         sizes = [m for m in segment_sizes[id(chosen)] if m]
         _warn_gaps(x, y, time_s, np.cumsum(sizes)[:-1], source)
@@ -183,6 +183,11 @@ def _parse_xml(data: bytes, source: str) -> ET.Element:
     except DefusedXmlException as exc:
         raise fail(source, None, f"refused: the file uses an XML feature curvespeed does not "
                                  f"accept ({type(exc).__name__}); export the GPX again") from None
+    except LookupError as exc:                  # an encoding Python does not know
+        name = str(exc).rpartition(": ")[2] or str(exc)
+        raise fail(source, "line 1", f"the XML declaration names the text encoding '{name}', "
+                   "which curvespeed does not know; save the file as UTF-8 and declare "
+                   "encoding=\"UTF-8\"") from None
     except ET.ParseError as exc:
         line, column = exc.position
         reason = str(exc).split(": line ")[0]
@@ -209,7 +214,7 @@ def _coordinate(pt: ET.Element, attribute: str, source: str, where: str) -> floa
                                   "lat and lon")
     v = parse_number(raw)
     if v is None:
-        raise fail(source, where, f"{attribute} value '{raw.strip()}' {number_problem(raw)}; "
+        raise fail(source, where, f"{attribute} value {cell_text(raw)} {number_problem(raw)}; "
                                   "fix or remove that point")
     return v
 

@@ -36,13 +36,13 @@ from __future__ import annotations
 
 import dataclasses
 import difflib
-import math
+import re
 import tomllib
 from pathlib import Path
 
 from ..errors import LimitsError
 from ..limits import DEFAULT_LIMITS, Limits, RouteConstraints, SpeedZone, Stop, Superelevation
-from ._common import read_text
+from ._common import check_nesting, finite_value, read_text, show_value, value_problem
 
 _LIMIT_KEYS = tuple(f.name for f in dataclasses.fields(Limits))
 _ROUTE_KEYS = ("start_speed_mps", "end_speed_mps")
@@ -73,10 +73,11 @@ def _unknown_key(path: Path, table: str, key: str, allowed) -> LimitsError:
 
 
 def _number(path: Path, table: str, key: str, value) -> float:
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-        raise LimitsError(f"{path}: [{table}] {key} = {value!r} is not a finite number; "
-                          "give a plain number in the unit its suffix names")
-    return float(value)
+    number = finite_value(value)
+    if number is None:
+        raise LimitsError(f"{path}: [{table}] {key} {value_problem(value)}; give a plain number "
+                          "in the unit its suffix names")
+    return number
 
 
 def read_limits(path: str | Path) -> tuple[Limits, RouteConstraints]:
@@ -87,6 +88,15 @@ def read_limits(path: str | Path) -> tuple[Limits, RouteConstraints]:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise LimitsError(f"{path}: not valid TOML: {exc}") from None
+    except ValueError:      # an integer beyond the 4300 digits Python's int() reads
+        long = re.search(r"[0-9_]{4300,}", text)
+        where = f"line {text.count(chr(10), 0, long.start()) + 1}: " if long else ""
+        raise LimitsError(f"{path}: {where}a number with thousands of digits cannot be a "
+                          "limit; give a plain number in the unit its key's suffix names") from None
+    except RecursionError:
+        raise LimitsError(f"{path}: arrays or tables nest too deeply to read; a limits file "
+                          "nests at most three levels ([[zone]] entries)") from None
+    check_nesting(data, str(path), LimitsError, "TOML")
 
     known_tables = ("limits", "route") + tuple(_TABLES)
     if "limits" not in data or not isinstance(data["limits"], dict):
@@ -123,8 +133,9 @@ def read_limits(path: str | Path) -> tuple[Limits, RouteConstraints]:
         for n, entry in enumerate(entries, start=1):
             label = f"{name} #{n}"
             if not isinstance(entry, dict):
-                raise LimitsError(f"{path}: '{name}' entry #{n} is {entry!r}, not a table; write "
-                                  f"each as a [[{name}]] block with keys {', '.join(keys)}")
+                raise LimitsError(f"{path}: '{name}' entry #{n} is {show_value(entry)}, not a "
+                                  f"table; write each as a [[{name}]] block with keys "
+                                  f"{', '.join(keys)}")
             for key in entry:
                 if key not in keys:
                     raise _unknown_key(path, label, key, keys)

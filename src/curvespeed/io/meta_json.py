@@ -28,8 +28,8 @@ from .. import __version__
 from ..errors import SpeedFileError
 from ..limits import Limits, RouteConstraints, SpeedZone, Stop, Superelevation
 from ..profile import Profile
-from ._common import read_text
-from .atomic import atomic_open, check_writable
+from ._common import finite_value, load_json, read_text, shown_number
+from .atomic import check_writable, write_text_atomic
 
 
 def file_sha256(path: str | os.PathLike) -> str:
@@ -95,11 +95,14 @@ def profile_meta(profile: Profile, limits: Limits, constraints: RouteConstraints
     return json_safe(meta)
 
 
+def meta_json_text(meta: dict) -> str:
+    """The sidecar file's text: ``meta`` as indented JSON, with a final newline."""
+    return json.dumps(meta, indent=2, sort_keys=False) + "\n"
+
+
 def write_meta_json(meta: dict, path: str | os.PathLike, force: bool = False) -> Path:
-    with atomic_open(path, force) as fh:
-        json.dump(meta, fh, indent=2, sort_keys=False)
-        fh.write("\n")
-    return Path(path)
+    """Write the sidecar ``meta`` to ``path`` (one output, all or nothing)."""
+    return write_text_atomic(meta_json_text(meta), path, force)
 
 
 # -- reading -----------------------------------------------------------------------------------
@@ -143,11 +146,8 @@ def read_profile_meta(path: str | os.PathLike) -> ProfileSidecar:
     """
     source = str(path)
     text = read_text(path, SpeedFileError)
-    try:
-        doc = json.loads(text)
-    except json.JSONDecodeError as exc:
-        raise SpeedFileError(f"{source}: line {exc.lineno}, column {exc.colno}: not valid JSON "
-                             f"({exc.msg}); write the sidecar again with curvespeed plan") from None
+    doc = load_json(text, source, SpeedFileError,
+                    advice="write the sidecar again with curvespeed plan")
     if not isinstance(doc, dict) or not isinstance(doc.get("limits"), dict):
         raise SpeedFileError(f"{source}: no \"limits\" object; this is not a curvespeed profile "
                              "sidecar (PROFILE.meta.json written by curvespeed plan)")
@@ -155,11 +155,12 @@ def read_profile_meta(path: str | os.PathLike) -> ProfileSidecar:
     def number(value, key: str, optional: bool = False):
         if value is None and optional:
             return None
-        if isinstance(value, bool) or not isinstance(value, (int, float)) \
-                or not math.isfinite(value):
+        number = finite_value(value)
+        if number is None:
             raise SpeedFileError(f"{source}: {key} must be a finite number, got "
-                                 f"{json.dumps(value)[:40]}")
-        return float(value)
+                                 f"{shown_number(value)}; write the sidecar again with "
+                                 "curvespeed plan")
+        return number
 
     fields = {f.name: f for f in dataclasses.fields(Limits)}
     optional_limits = {"max_jerk_mps3", "max_lateral_jerk_mps3", "lateral_friction_coefficient",
@@ -194,12 +195,10 @@ def read_profile_meta(path: str | os.PathLike) -> ProfileSidecar:
     route = doc.get("route") if isinstance(doc.get("route"), dict) else {}
     name = route.get("name") if isinstance(route.get("name"), str) else None
     closed = route.get("closed") if isinstance(route.get("closed"), bool) else None
-    total = doc.get("total_time_s")
-    total = float(total) if isinstance(total, (int, float)) and not isinstance(total, bool) \
-        else None
+    total = finite_value(doc.get("total_time_s"))
     return ProfileSidecar(limits=limits, constraints=constraints, route_name=name, closed=closed,
                           total_time_s=total, source=source)
 
 
 __all__ = ["ProfileSidecar", "check_writable", "default_meta_path", "file_sha256", "json_safe",
-           "profile_meta", "read_profile_meta", "write_meta_json"]
+           "meta_json_text", "profile_meta", "read_profile_meta", "write_meta_json"]

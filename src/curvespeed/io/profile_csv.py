@@ -103,10 +103,14 @@ def profile_columns(profile: Profile) -> dict[str, tuple[object, str]]:
     return columns
 
 
+def profile_csv_text(profile: Profile) -> str:
+    """The profile CSV file's text (module docstring)."""
+    return format_columns(profile_columns(profile))
+
+
 def write_profile_csv(profile: Profile, path: str | os.PathLike, force: bool = False) -> Path:
     """Write ``profile`` to ``path`` (atomically; an existing file only with ``force``)."""
-    text = format_columns(profile_columns(profile))
-    return write_text_atomic(text, path, force)
+    return write_text_atomic(profile_csv_text(profile), path, force)
 
 
 # -- reading -----------------------------------------------------------------------------------
@@ -209,5 +213,6 @@ def _check_constant_jerk_steps(table: Table, cubic: np.ndarray, speed_mps: np.nd
 
 
 __all__ = ["KINEMATIC", "PROFILE_COLUMNS", "REQUIRED_PROFILE_COLUMNS", "StepKind",
-           "TIME_MISMATCH_REL", "TIME_MISMATCH_S", "profile_columns", "read_station_profile",
+           "TIME_MISMATCH_REL", "TIME_MISMATCH_S", "profile_columns", "profile_csv_text",
+           "read_station_profile",
            "read_step_kinds", "step_kinds", "write_profile_csv"]

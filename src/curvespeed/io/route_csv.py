@@ -27,9 +27,10 @@ import numpy as np
 
 from ..errors import CurvespeedWarning
 from ..route import Route, make_route
-from ._common import (decimal_mark_problem, detect_separator, fail,
+from ._common import (cell_text, decimal_mark_problem, detect_separator, fail,
                       latlon_range_problem, looks_projected, number_problem, parse_column,
-                      parse_number, project_latlon, separator_warning, swapped_would_fit)
+                      parse_number, project_latlon, separator_warning, split_lines,
+                      swapped_would_fit)
 
 METRIC_COLUMNS = ("x_m", "y_m", "z_m")
 GEOGRAPHIC_COLUMNS = ("lat", "lon", "ele_m")
@@ -67,7 +68,7 @@ def parse_route_csv(text: str, source: str) -> Route:
     RouteGeometryError
         From :func:`~curvespeed.route.make_route`: fewer than three distinct points, a reversal.
     """
-    lines = text.replace("\r\n", "\n").replace("\r", "\n").split("\n")
+    lines = split_lines(text)
     rows = [(i, line) for i, line in enumerate(lines, start=1)
             if line.strip() and not line.lstrip().startswith("#")]
     if not rows:
@@ -94,7 +95,7 @@ def parse_route_csv(text: str, source: str) -> Route:
             r = decimal_mark_problem(cells[k])
             if r is not None:
                 raise fail(source, f"line {line_numbers[r]}",
-                           f"column '{k}' value '{cells[k][r].strip()}' has a decimal point, but "
+                           f"column '{k}' value {cell_text(cells[k][r])} has a decimal point, but "
                            "other values in this file use decimal commas; write every number "
                            "the same way, without thousands separators")
     values, refused = {}, []
@@ -106,7 +107,7 @@ def parse_route_csv(text: str, source: str) -> Route:
         r, _, k = min(refused)          # the first line with a problem, in column order
         raw = cells[k][r]
         raise fail(source, f"line {line_numbers[r]}",
-                   f"column '{k}' value '{raw.strip()}' {number_problem(raw, decimal_comma)}"
+                   f"column '{k}' value {cell_text(raw)} {number_problem(raw, decimal_comma)}"
                    "; fix or remove that line")
     if sep != ",":
         warnings.warn(separator_warning(source, header_line, sep, decimal_comma,
@@ -116,7 +117,7 @@ def parse_route_csv(text: str, source: str) -> Route:
 
     if geographic:
         _check_latlon_columns(values["lat"], values["lon"], source, where)
-        x, y, projection = project_latlon(values["lat"], values["lon"])
+        x, y, projection = project_latlon(values["lat"], values["lon"], source)
         z = values.get("ele_m")
     else:
         x, y, projection = values["x_m"], values["y_m"], None

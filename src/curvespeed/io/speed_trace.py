@@ -136,7 +136,7 @@ def read_speed_trace(path: str | os.PathLike, geometry: Geometry, *,
                              "(a track with time stamps); give one of those")
     if not (math.isfinite(noise_m) and noise_m > 0.0):
         raise SpeedFileError(f"{source}: trace noise must be a positive number of metres, got "
-                             f"{noise_m!r}")
+                             f"{noise_m:g}")
     if kind == "csv":
         return _read_csv(path, geometry)
     return _read_gpx(path, geometry, noise_m, max_offset_m)

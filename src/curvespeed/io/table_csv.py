@@ -8,6 +8,10 @@ strings.
 
 As for route files, a header with semicolons (or tabs) and no comma selects that separator, with
 a warning; such a file may use decimal commas or decimal points, not both.
+
+Columns curvespeed knows (:data:`PLAUSIBLE_RANGES`) are checked against what a road route can
+hold, naming the file, line and value: a speed of 1e300 m/s or a latitude of 200 is a corrupt
+file or a mix-up of units, and would overflow or give invalid output further on.
 """
 
 from __future__ import annotations
@@ -19,11 +23,39 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import CurvespeedWarning, SpeedFileError
-from ._common import (decimal_mark_problem, detect_separator, number_problem,
-                      parse_column, read_text, separator_warning)
+from ..route import MAX_COORDINATE_M, MAX_ELEVATION_M
+from ._common import (cell_text, decimal_mark_problem, detect_separator, number_problem,
+                      parse_column, read_text, separator_warning, split_lines)
 
 #: Columns kept as text rather than parsed as numbers.
 TEXT_COLUMNS = frozenset({"binding", "step_kind"})
+
+#: Fastest speed read, m/s (3600 km/h): no road vehicle comes near it, so a larger speed is a
+#: corrupt file or a unit mix-up, and squaring speeds of 1e160 m/s and more overflows.
+MAX_SPEED_MPS = 1000.0
+#: Largest curvature magnitude read, 1/m: a radius of 1 mm; the tightest turn of a road vehicle
+#: has a radius of metres.
+MAX_CURVATURE_1PM = 1000.0
+#: Largest magnitude of the other numbers of a profile (accelerations, jerk, time, heading,
+#: grade): far beyond any real value, and small enough that sums and squares stay finite.
+MAX_OTHER = 1.0e12
+
+_POSITION = (-MAX_COORDINATE_M, MAX_COORDINATE_M, "farther than any place on Earth; check the "
+             "units (metres)")
+_OTHER = (-MAX_OTHER, MAX_OTHER, "far beyond any value a profile holds")
+#: Column -> (lowest, highest, why), checked wherever a table is read.
+PLAUSIBLE_RANGES = {
+    "station_m": _POSITION, "x_m": _POSITION, "y_m": _POSITION,
+    "z_m": (-MAX_ELEVATION_M, MAX_ELEVATION_M, "no place on Earth is that high or deep"),
+    "speed_mps": (-MAX_SPEED_MPS, MAX_SPEED_MPS, "no road vehicle is that fast; check the units "
+                  "(m/s)"),
+    "limit_speed_mps": (-MAX_SPEED_MPS, MAX_SPEED_MPS, "no road vehicle is that fast"),
+    "curvature_1pm": (-MAX_CURVATURE_1PM, MAX_CURVATURE_1PM, "a radius below 1 mm"),
+    "lat": (-90.0, 90.0, "latitudes lie within [-90, 90] degrees"),
+    "lon": (-180.0, 180.0, "longitudes lie within [-180, 180] degrees"),
+    "heading_rad": _OTHER, "accel_mps2": _OTHER, "jerk_mps3": _OTHER, "lat_accel_mps2": _OTHER,
+    "time_s": _OTHER, "grade": _OTHER,
+}
 
 
 @dataclass(frozen=True)
@@ -75,7 +107,7 @@ def read_table_csv(path: str | os.PathLike, min_rows: int = 2) -> Table:
     header_line = 0
     rows: list[list[str]] = []
     lines: list[int] = []
-    for number, raw in enumerate(text.splitlines(), start=1):
+    for number, raw in enumerate(split_lines(text), start=1):
         line = raw.strip()
         if not line or line.startswith("#"):
             continue
@@ -115,16 +147,30 @@ def read_table_csv(path: str | os.PathLike, min_rows: int = 2) -> Table:
             i = decimal_mark_problem(cells)
             if i is not None:
                 raise SpeedFileError(f"{source}: line {lines[i]}: column '{name}' value "
-                                     f"'{cells[i]}' has a decimal point, but other values in "
-                                     "this file use decimal commas; write every number the same "
+                                     f"{cell_text(cells[i])} has a decimal point, but other values "
+                                     "in this file use decimal commas; write every number the same "
                                      "way, without thousands separators")
         values, i = parse_column(cells, decimal_comma)
         if i is not None:
             raise SpeedFileError(f"{source}: line {lines[i]}: column '{name}' value "
-                                 f"'{cells[i]}' {number_problem(cells[i], decimal_comma)}; fix "
-                                 "or remove that line")
+                                 f"{cell_text(cells[i])} {number_problem(cells[i], decimal_comma)}"
+                                 "; fix or remove that line")
+        _check_range(source, name, values, lines)
         columns[name] = values
     if sep != ",":
         warnings.warn(separator_warning(source, header_line, sep, decimal_comma, ""),
                       CurvespeedWarning, stacklevel=2)
     return Table(columns=columns, lines=np.asarray(lines), source=source)
+
+
+def _check_range(source: str, name: str, values: np.ndarray, lines: list[int]) -> None:
+    """Refuse the first value of a known column outside :data:`PLAUSIBLE_RANGES`."""
+    if name not in PLAUSIBLE_RANGES:
+        return
+    low, high, why = PLAUSIBLE_RANGES[name]
+    bad = np.flatnonzero((values < low) | (values > high))
+    if bad.size:
+        k = int(bad[0])
+        raise SpeedFileError(f"{source}: line {lines[k]}: column '{name}' value "
+                             f"{float(values[k]):.6g} is outside {low:g}..{high:g} ({why}); fix "
+                             "or remove that line")

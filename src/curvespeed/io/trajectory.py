@@ -78,27 +78,61 @@ def write_trajectory(trajectory: Trajectory, path: str | os.PathLike,
     Raises
     ------
     OutputError
-        ``path`` exists without ``force``, its folder is missing, or GeoJSON was asked for a
-        metric-only trajectory.
+        ``path`` may not be written (:class:`~curvespeed.io.atomic.OutputFiles`), or GeoJSON was
+        asked for a metric-only trajectory.
     """
-    writer = {TrajectoryFormat.CSV: write_trajectory_csv,
-              TrajectoryFormat.JSON: write_trajectory_json,
-              TrajectoryFormat.GEOJSON: write_trajectory_geojson}[TrajectoryFormat(fmt)]
-    return writer(trajectory, path, force=force)
+    fmt = TrajectoryFormat(fmt)
+    if fmt is TrajectoryFormat.GEOJSON and not trajectory.is_geographic:
+        raise OutputError(
+            f"{path}: cannot write GeoJSON: {trajectory.source} is a metric-only profile (no "
+            "lat, lon columns) and GeoJSON (RFC 7946) needs WGS84 longitude/latitude; export it "
+            "as csv or json, or plan the route from a geographic file (lat,lon CSV, GeoJSON, GPX)")
+    return write_text_atomic(trajectory_text(trajectory, fmt), path, force)
+
+
+def trajectory_text(trajectory: Trajectory, fmt: TrajectoryFormat) -> str:
+    """The trajectory file's text in format ``fmt`` (module docstring).
+
+    Raises
+    ------
+    ValueError
+        GeoJSON for a metric-only trajectory (it has no longitude/latitude), or a value that is
+        not finite (a defect: the samplers give finite values for the profiles readers accept).
+    """
+    _check_finite(trajectory)
+    return {TrajectoryFormat.CSV: _csv_text, TrajectoryFormat.JSON: _json_text,
+            TrajectoryFormat.GEOJSON: _geojson_text}[TrajectoryFormat(fmt)](trajectory)
 
 
 def write_trajectory_csv(trajectory: Trajectory, path: str | os.PathLike,
                          force: bool = False) -> Path:
     """Write the CSV layout (module docstring)."""
-    _check_finite(trajectory)
-    text = format_columns(trajectory_columns(trajectory))
-    return write_text_atomic(text, path, force)
+    return write_trajectory(trajectory, path, TrajectoryFormat.CSV, force)
 
 
 def write_trajectory_json(trajectory: Trajectory, path: str | os.PathLike,
                           force: bool = False) -> Path:
     """Write the JSON layout (module docstring)."""
-    _check_finite(trajectory)
+    return write_trajectory(trajectory, path, TrajectoryFormat.JSON, force)
+
+
+def write_trajectory_geojson(trajectory: Trajectory, path: str | os.PathLike,
+                             force: bool = False) -> Path:
+    """Write the GeoJSON layout (module docstring): an RFC 7946 Feature with a LineString.
+
+    Raises
+    ------
+    OutputError
+        The trajectory has no latitude/longitude (a metric-only profile); nothing is written.
+    """
+    return write_trajectory(trajectory, path, TrajectoryFormat.GEOJSON, force)
+
+
+def _csv_text(trajectory: Trajectory) -> str:
+    return format_columns(trajectory_columns(trajectory))
+
+
+def _json_text(trajectory: Trajectory) -> str:
     cols = trajectory_columns(trajectory)
     body = ",\n".join(f"    {json.dumps(name)}: {_array(values, spec)}"
                       for name, (values, spec) in cols.items())
@@ -113,26 +147,14 @@ def write_trajectory_json(trajectory: Trajectory, path: str | os.PathLike,
         ("total_time_s", _number(trajectory.total_time_s, KINEMATIC)),
         ("samples", str(trajectory.n_samples)),
     ]
-    text = ("{\n" + "".join(f"  {json.dumps(k)}: {v},\n" for k, v in head)
+    return ("{\n" + "".join(f"  {json.dumps(k)}: {v},\n" for k, v in head)
             + '  "columns": {\n' + body + "\n  }\n}\n")
-    return write_text_atomic(text, path, force)
 
 
-def write_trajectory_geojson(trajectory: Trajectory, path: str | os.PathLike,
-                             force: bool = False) -> Path:
-    """Write the GeoJSON layout (module docstring): an RFC 7946 Feature with a LineString.
-
-    Raises
-    ------
-    OutputError
-        The trajectory has no latitude/longitude (a metric-only profile); nothing is written.
-    """
+def _geojson_text(trajectory: Trajectory) -> str:
     if not trajectory.is_geographic:
-        raise OutputError(
-            f"{path}: cannot write GeoJSON: {trajectory.source} is a metric-only profile (no "
-            "lat, lon columns) and GeoJSON (RFC 7946) needs WGS84 longitude/latitude; export it "
-            "as csv or json, or plan the route from a geographic file (lat,lon CSV, GeoJSON, GPX)")
-    _check_finite(trajectory)
+        raise ValueError(f"{trajectory.source}: a metric-only trajectory has no longitude/"
+                         "latitude for GeoJSON")
     lon = format_column(trajectory.lon, DEGREES)
     lat = format_column(trajectory.lat, DEGREES)
     coords = ",\n".join(f"      [{x}, {y}]" for x, y in zip(lon, lat))
@@ -147,10 +169,9 @@ def write_trajectory_geojson(trajectory: Trajectory, path: str | os.PathLike,
         ("speed_mps", _array(trajectory.speed_mps, KINEMATIC)),
         ("curvature_1pm", _array(trajectory.curvature_1pm, CURVATURE)),
     ]
-    text = ('{\n  "type": "Feature",\n  "geometry": {\n    "type": "LineString",\n'
+    return ('{\n  "type": "Feature",\n  "geometry": {\n    "type": "LineString",\n'
             '    "coordinates": [\n' + coords + "\n    ]\n  },\n  \"properties\": {\n"
             + ",\n".join(f"    {json.dumps(k)}: {v}" for k, v in props) + "\n  }\n}\n")
-    return write_text_atomic(text, path, force)
 
 
 def _sampling_json(trajectory: Trajectory) -> str:
@@ -175,5 +196,5 @@ def _check_finite(trajectory: Trajectory) -> None:
 
 
 __all__ = ["COLUMN_FORMATS", "FORMAT_BY_SUFFIX", "TRAJECTORY_COLUMNS", "TrajectoryFormat",
-           "format_from_suffix", "trajectory_columns", "write_trajectory",
+           "format_from_suffix", "trajectory_columns", "trajectory_text", "write_trajectory",
            "write_trajectory_csv", "write_trajectory_geojson", "write_trajectory_json"]
