@@ -43,6 +43,12 @@ CLOSURE_LENGTH_FRACTION = 0.25
 CLOSURE_SPACINGS = 2.0
 #: ... and this many position-noise standard deviations.
 CLOSURE_NOISE_SIGMAS = 6.0
+#: An automatic loop also needs the join to turn no more than the route does elsewhere: each
+#: turn at the seam (last chord to closing chord, closing chord to first chord; or last chord
+#: to first chord when the ends nearly touch) at most this many degrees, or 1.5 times the
+#: route's own 95th-percentile turn between chords if that is more. An out-and-back turns by
+#: about 90 degrees at each joint of the seam, a loop like anywhere else on it.
+CLOSURE_TURN_DEG = 45.0
 #: Positions are never taken to be more precise than this (standard deviation, metres): survey
 #: coordinates are quoted to the millimetre (common practice). Only matters for exact synthetic
 #: points, whose scatter estimate is zero or round-off.
@@ -433,6 +439,15 @@ def _decide_closure(x, y, where, source, closed, tolerance_m, noise_m) -> tuple[
     tol = (max(CLOSURE_SPACINGS * median_chord, CLOSURE_NOISE_SIGMAS * noise_m)
            if tolerance_m is None else float(tolerance_m))
     length = float(np.sum(np.hypot(np.diff(x), np.diff(y))))
+    if closed is None and gap <= tol and gap <= CLOSURE_LENGTH_FRACTION * length:
+        turn, allowed = _seam_turn(x, y, gap, median_chord)
+        if allowed < turn <= REVERSAL_TURN_DEG:      # sharper: ends overlap (handled below)
+            warnings.warn(
+                f"{source}: the route ends {gap:.1f} m from its start, but joining them turns "
+                f"by {turn:.0f} degrees where the route itself turns at most about "
+                f"{allowed:.0f} (an out-and-back, not a loop), so it is kept open; pass "
+                "--closed if it really is a loop", CurvespeedWarning, stacklevel=3)
+            return False, False
     if closed is None and (gap > tol or gap > CLOSURE_LENGTH_FRACTION * length):
         if gap <= 10 * tol and gap <= CLOSURE_LENGTH_FRACTION * length:
             turning = float(np.sum(np.angle(np.exp(1j * np.diff(np.arctan2(np.diff(y),
@@ -472,6 +487,20 @@ def _decide_closure(x, y, where, source, closed, tolerance_m, noise_m) -> tuple[
             f"{where[0]} (tolerance {tol:.2f} m); check that the route is really a loop",
             CurvespeedWarning, stacklevel=3)
     return True, repeat
+
+
+def _seam_turn(x, y, gap: float, median_chord: float) -> tuple[float, float]:
+    """The largest turn (degrees) joining the route's end to its start, and the most allowed
+    (see CLOSURE_TURN_DEG)."""
+    heading = np.arctan2(np.diff(y), np.diff(x))
+    turns = np.degrees(np.abs(np.angle(np.exp(1j * np.diff(heading)))))
+    allowed = max(CLOSURE_TURN_DEG, 1.5 * float(np.percentile(turns, 95)) if turns.size else 0.0)
+    into = (x[-1] - x[-2], y[-1] - y[-2])
+    out = (x[1] - x[0], y[1] - y[0])
+    if gap <= 0.5 * median_chord:       # the last point repeats the first: last chord to first
+        return _turn_deg(*into, *out), allowed
+    closing = (x[0] - x[-1], y[0] - y[-1])
+    return max(_turn_deg(*into, *closing), _turn_deg(*closing, *out)), allowed
 
 
 def _fit_or_raise(u, values, weight, target, span, periodic, knot_spacing, source, what):
