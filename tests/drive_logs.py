@@ -169,3 +169,41 @@ def simulate_drive(alignment: Alignment, rate_hz: float, receiver: Receiver, see
             n, dt, f * receiver.drift_m, receiver.drift_tau_s, rng)
         z = elevation(true_s) + ez
     return DriveLog(t, x + ex, y + ey, z, true_s, alignment)
+
+
+def simulate_reversal(alignment: Alignment, forward_to_m: float, back_to_m: float,
+                      rate_hz: float, receiver: Receiver, seed: int = 0,
+                      dwell_s: float = 10.0, top_speed: float = 8.0) -> DriveLog:
+    """Drive forwards from the start to ``forward_to_m``, stop, and back up to ``back_to_m``
+    (a manoeuvre, not a route: the log a vehicle reversing into a bay leaves)."""
+    rng = np.random.default_rng(seed)
+    legs = []
+    t0 = 0.0
+    for start, end in ((0.0, forward_to_m), (forward_to_m, back_to_m)):
+        length = abs(end - start)
+        straight = Alignment((line(length),))
+        s, v = driving_speed(straight, (), top_speed, 2.0)
+        arrive, leave = station_timeline(s, v, dwell_s, (), None, None)
+        t = np.arange(0.0, leave[-1], 1.0 / rate_hz)
+        along = np.interp(t, np.column_stack((arrive, leave)).ravel(), np.repeat(s, 2))
+        legs.append((t0 + t, start + np.sign(end - start) * along))
+        t0 += leave[-1]
+    t = np.concatenate([a for a, _ in legs])
+    true_s = np.concatenate([b for _, b in legs])
+    x, y = alignment.position(true_s)
+    n, dt = t.size, 1.0 / rate_hz
+    ex = rng.normal(0.0, receiver.white_m, n) + gauss_markov(n, dt, receiver.drift_m,
+                                                             receiver.drift_tau_s, rng)
+    ey = rng.normal(0.0, receiver.white_m, n) + gauss_markov(n, dt, receiver.drift_m,
+                                                             receiver.drift_tau_s, rng)
+    return DriveLog(t, x + ex, y + ey, None, true_s, alignment)
+
+
+def log_route(log: DriveLog, source: str = "drive.gpx"):
+    """The log as a :class:`~curvespeed.route.Route`, as a reader would make it from a file with
+    time stamps (labels ``trkpt N``)."""
+    from curvespeed.route import make_route
+
+    where = [f"trkpt {i + 1}" for i in range(log.time_s.size)]
+    return make_route(log.x_m, log.y_m, log.z_m, where=where, source=source,
+                      time_s=log.time_s)

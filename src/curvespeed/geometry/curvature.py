@@ -22,11 +22,15 @@ tight bends). :func:`estimate_curvature` therefore chooses the smoothing station
    within reach of a finer choice (its smoothing width) takes that finer choice too, so no
    coarse estimate leaks across a change.
 
-*The bound.* Smoothing spreads a change of curvature over the width of the scale used: just past
-an arc entered without a clothoid the estimate is about half the arc's curvature. The
-``curvature_bound`` is the largest ``|kappa| + BOUND_SIGMAS * sd`` within that width of each
-station, which covers the true curvature there (up to the noise's confidence level), and equals
-the estimate plus its uncertainty on long uniform stretches.
+*The bound.* Every scale bounds the true curvature on its own terms: smoothing spreads a change
+of curvature over that scale's spread width (just past an arc entered without a clothoid it
+reads about half the arc's curvature), and noise moves it by a few standard deviations, so the
+largest ``|kappa| + GAMMA * sd`` of that scale within its spread width of a station covers the
+truth there. The ``curvature_bound`` is the tightest of these bounds over the scales up to the one chosen
+there (coarser ones are not trusted: they may flatten a whole curve shorter than their window):
+near a sharp change a fine scale's (narrow window), on a long arc or straight a coarse scale's
+(small uncertainty). A coarse scale never lends its wide window to a station near a curve, and
+a fine scale's noise never inflates the bound where a coarser one knows better.
 """
 
 from __future__ import annotations
@@ -52,8 +56,6 @@ REPLICATES = 32
 #: RTK at 100 Hz (simulated, tests/test_reference_recorded_drives.py); at 4 it did not, and the
 #: bound still covered every curvature step tried (see SPREAD_LENGTHS).
 GAMMA = 4.0
-#: The bound adds this many standard deviations to |curvature| (one-sided 99.9 %).
-BOUND_SIGMAS = 3.0
 #: Half-width, in smoothing lengths ``(lam h^7 / w)^(1/8)``, of the neighbourhood whose largest
 #: curvature the bound takes: how far the finest scale spreads a step of curvature, ringing
 #: included. Calibrated on steps from a straight into arcs of R 25 and 100 m and on a winding
@@ -108,20 +110,15 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
         noise[1:] += np.cumsum(walk, axis=0)
     if fit.system is None:      # the points are within noise of a cubic (a circle on a loop)
         return _null_space_estimate(fit, u_points, weight, u_nodes, noise)
-    kappas, sds, widths = [], [], []
+    scales = []
     for level in range(LEVELS + 1):
         result = _scale(fit, u_points, values, weight, u_nodes, noise, level)
         if result is None:
             break
-        kappa, sd, width = result
-        kappas.append(kappa)
-        sds.append(sd)
-        widths.append(width)
-    kappa = np.array(kappas)
-    sd = np.array(sds)
-    width = np.array(widths)
-    level = _ramp(_choose_scales(kappa, sd, width, station), station,
-                  RAMP_WIDTHS * float(np.median(width[0])))
+        scales.append(result)
+    kappa, sd, width = (np.array(a) for a in zip(*scales))
+    chosen = _choose_scales(kappa, sd, width, station)
+    level = _ramp(chosen, station, RAMP_WIDTHS * float(np.median(width[0])))
     idx = np.arange(station.size)
     low = np.floor(level).astype(np.intp)
     high = np.minimum(low + 1, kappa.shape[0] - 1)
@@ -129,7 +126,16 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
     k = (1 - f) * kappa[low, idx] + f * kappa[high, idx]
     s = (1 - f) * sd[low, idx] + f * sd[high, idx]
     w = (1 - f) * width[low, idx] + f * width[high, idx]
-    bound = _running_max(np.abs(k) + BOUND_SIGMAS * s, station, width[0])
+    # every scale up to the one used bounds the curvature on its own: its estimate plus GAMMA
+    # standard deviations, widened by how far it spreads a change; the tightest holds
+    bound = np.full(station.size, np.inf)
+    for j in range(kappa.shape[0]):
+        valid = j <= high
+        if valid.any():
+            own = _running_max(np.abs(kappa[j]) + GAMMA * sd[j], station, width[j])
+            bound[valid] = np.minimum(bound[valid], own[valid])
+    # and never below the estimate used plus its uncertainty, widened by the finest spread
+    bound = np.maximum(bound, _running_max(np.abs(k) + GAMMA * s, station, width[0]))
     return CurvatureEstimate(k, s, bound, w, level)
 
 
@@ -175,7 +181,7 @@ def _null_space_estimate(fit, u_points, weight, u_nodes, noise) -> CurvatureEsti
     varied = _cross(p1, p2) / np.hypot(p1[:, 0], p1[:, 1]) ** 3
     sd = np.sqrt(np.mean((varied - kappa[:, None]) ** 2, axis=1))
     zero = np.zeros(u_nodes.size)
-    return CurvatureEstimate(kappa, sd, np.abs(kappa) + BOUND_SIGMAS * sd, zero,
+    return CurvatureEstimate(kappa, sd, np.abs(kappa) + GAMMA * sd, zero,
                              zero.astype(np.intp))
 
 

@@ -186,7 +186,8 @@ def prepare_drive(route: Route, part: int | None = None) -> DrivePoints:
         chosen = 0
     keep = parts[chosen]
     lo, hi = keep.first, keep.last
-    runs = [(a, b) for a, b in runs if a >= lo and b <= hi]
+    runs = [(max(a, lo), min(b, hi)) for a, b in runs if b >= lo and a <= hi]
+    runs = [(a, b) for a, b in runs if b > a]
 
     # One point per standstill, then cells along the pilot's arc length.
     label = np.arange(lo, hi + 1)

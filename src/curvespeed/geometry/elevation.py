@@ -33,11 +33,14 @@ def fit_elevation(point_station, z, count, stated_noise, length, closed, node_st
     loops. Returns ``(z_nodes, grade, NoiseChoice)``.
     """
     order = np.argsort(point_station, kind="stable")
-    s, zz, cnt = point_station[order], z[order], count[order]
-    keep = np.concatenate(([True], np.diff(s) > 0))
+    s, zz, cnt = np.clip(point_station[order], 0.0, length), z[order], count[order]
+    # points closer than a hundredth of the usual gap (fixes merged or averaged around a
+    # stop) would make the difference-based estimate divide by almost nothing
+    gaps = np.diff(s)
+    usual = float(np.median(gaps)) if gaps.size else 0.0
+    keep = np.concatenate(([True], gaps > 0.01 * usual))
     s, zz, cnt = s[keep], zz[keep], cnt[keep]
     scale = 1.0 / np.sqrt(np.minimum(cnt, 4.0 * float(np.median(cnt))))
-    s = np.clip(s, 0.0, length)
     estimate = estimate_noise(s, zz[:, None], length, closed, scale=scale)
     noise = choose_noise("elevation", stated_noise, estimate, MIN_ELEVATION_NOISE_M,
                          DEFAULT_ELEVATION_NOISE_M, source, stacklevel=4)

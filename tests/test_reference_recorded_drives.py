@@ -1,0 +1,196 @@
+"""Recorded drives against the exact road they were driven on.
+
+Each log is simulated (tests/drive_logs.py): an invented design road of straights, clothoids and
+arcs (the reference: its curvature is known exactly, the clothoid positions to round-off), driven
+with a realistic speed from rest to rest with a stop, and logged at 1, 10 or 100 Hz with white
+noise plus a slowly drifting Gauss-Markov error at the levels common in practice (RTK 1 cm each;
+consumer receivers 0.5 m white and 1.5 m drifting over a minute). The fitted geometry is judged
+station by station against the exact curvature at the nearest point of the road.
+
+Targets (curvature on arcs at least 30 m from their ends, on straights at least 40 m):
+RTK at any rate: median error <= 2 %, largest <= 10 %, |curvature| < 0.001 1/m on straights,
+length within 0.5 %. Consumer at 1 and 10 Hz: median error <= 10 %, length within 2 %, never
+refused; at 10 Hz |curvature| < 0.003 1/m on straights 60 m from their ends (at 1 Hz the points
+lie 20 m apart, and the straights next to the R 25 m bend do not reach that: see the issue note).
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+
+import numpy as np
+import pytest
+from scipy.spatial import cKDTree
+
+from curvespeed.errors import CurvespeedWarning
+from curvespeed.geometry import build_geometry
+from curvespeed.geometry.elements import Alignment, curve, line
+from drive_logs import (CONSUMER, RTK, arc_interiors, invented_road, log_route,
+                        simulate_drive, simulate_reversal, straight_interiors)
+
+ROAD = invented_road()
+STOP_M = 1200.0          # inside the R 400 m arc: the hardest place for a drifting receiver
+
+
+def true_stations(geo, alignment: Alignment) -> np.ndarray:
+    """Station on the exact road nearest each node (0.05 m resolution)."""
+    s = np.linspace(0.0, alignment.length_m, int(alignment.length_m * 20) + 1)
+    x, y = alignment.position(s)
+    _, j = cKDTree(np.column_stack((x, y))).query(np.column_stack((geo.x_m, geo.y_m)))
+    return s[j]
+
+
+def curvature_errors(geo, alignment, arc_margin=30.0, straight_margin=40.0):
+    st = true_stations(geo, alignment)
+    k = geo.curvature_1pm
+    arcs = np.concatenate([np.abs(k[(st > a) & (st < b)] - kk) / abs(kk)
+                           for a, b, kk in arc_interiors(alignment, arc_margin)])
+    straights = np.concatenate([np.abs(k[(st > a) & (st < b)])
+                                for a, b in straight_interiors(alignment, straight_margin)])
+    return arcs, straights
+
+
+def fitted(log, **kwargs):
+    with warnings.catch_warnings():
+        # notes (outliers, repeated fixes dropped) are checked in their own tests
+        warnings.simplefilter("ignore", CurvespeedWarning)
+        return build_geometry(log_route(log), **kwargs)
+
+
+@pytest.mark.parametrize("rate_hz", [1, 10, 100])
+def test_rtk_log_at_any_rate(rate_hz):
+    geo = fitted(simulate_drive(ROAD, rate_hz, RTK, seed=1, stops=(STOP_M,)))
+    arcs, straights = curvature_errors(geo, ROAD)
+    assert np.median(arcs) <= 0.02
+    assert arcs.max() <= 0.10
+    assert straights.max() < 1e-3
+    assert geo.length_m == pytest.approx(ROAD.length_m, rel=0.005)
+    # more data is never worse: the noise estimate finds the receiver's 1 cm white noise
+    # (upper confidence bound, so a little above; at 1 Hz the stencil also sees the road)
+    assert 0.009 <= geo.provenance["position_noise"]["used_m"] <= 0.04
+
+
+@pytest.mark.parametrize("rate_hz", [1, 10])
+def test_consumer_log(rate_hz):
+    geo = fitted(simulate_drive(ROAD, rate_hz, CONSUMER, seed=1, stops=(STOP_M,)))
+    arcs, _ = curvature_errors(geo, ROAD)
+    assert np.median(arcs) <= 0.10
+    assert geo.length_m == pytest.approx(ROAD.length_m, rel=0.02)
+    if rate_hz == 10:
+        _, straights = curvature_errors(geo, ROAD, straight_margin=60.0)
+        assert straights.max() < 3e-3
+
+
+@pytest.mark.parametrize("receiver, rate_hz", [(RTK, 1), (RTK, 100), (CONSUMER, 10)])
+def test_curvature_bound_covers_the_road(receiver, rate_hz):
+    # The bound planning uses must cover the exact curvature at every station (each scale's
+    # estimate plus 4 standard deviations, widened over what it spreads). (A consumer log at
+    # 1 Hz, points 20 m apart, came within 2 % of it at the start of one arc: see the issue
+    # note.) The exact
+    # road's curvature is taken as the largest within 0.1 m, the resolution of the station
+    # mapping; 1 % allows for the bound's own Monte Carlo error (32 replicates).
+    geo = fitted(simulate_drive(ROAD, rate_hz, receiver, seed=2, stops=(STOP_M,)))
+    st = true_stations(geo, ROAD)
+    exact = np.maximum(np.abs(ROAD.curvature(np.maximum(st - 0.1, 0.0))),
+                       np.abs(ROAD.curvature(np.minimum(st + 0.1, ROAD.length_m))))
+    assert np.all(exact <= 1.01 * geo.curvature_bound_1pm)
+
+
+@pytest.mark.parametrize("factor", [1 / 40, 1 / 3, 3, 40])
+def test_noise_stated_wrong_gives_the_same_path_and_says_so(factor):
+    log = simulate_drive(ROAD, 10, RTK, seed=3, stops=(STOP_M,))
+    auto = fitted(log)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", CurvespeedWarning)    # a repeated fix dropped
+        route = log_route(log)
+    stated = factor * auto.provenance["fix_noise_in_order_m"]
+    with pytest.warns(CurvespeedWarning, match=r"the position noise stated, .* m, is .* times "
+                                               r"(more|less) than the points show"):
+        geo = build_geometry(route, position_noise_m=stated)
+    assert geo.provenance["position_noise"]["origin"] == "estimated"
+    assert geo.length_m == pytest.approx(auto.length_m, rel=1e-9)
+    assert np.array_equal(geo.curvature_1pm, auto.curvature_1pm)
+
+
+def test_standstills_are_merged_and_the_drift_measured():
+    # Three standstills (start, the stop, the end; 20 s each): merged, and the fixes taken
+    # while standing give the drift's rate. For a Gauss-Markov error the variance of its change
+    # over a lag L << tau grows as 2 sigma^2 L / tau (common practice): 2 * 1.5^2 / 60 =
+    # 0.075 m^2/s for the consumer receiver. Three 20 s standstills measure it roughly:
+    # within a factor of 3.
+    geo = fitted(simulate_drive(ROAD, 10, CONSUMER, seed=4, stops=(STOP_M,)))
+    assert geo.provenance["standstills_merged"] == 3
+    rate = geo.provenance["drift_rate_m2ps"]
+    assert 0.075 / 3 <= rate <= 0.075 * 3
+
+
+def test_shuttle_u_turn_logged_with_noise_wider_than_the_steps_is_fitted():
+    # A yard shuttle at 3 m/s logged at 10 Hz by a consumer receiver (0.3 m steps, 0.5 m white
+    # noise): a straight, a U-turn of R 12 m with 6 m clothoids, and back. Not refused, the
+    # turn kept: 180 degrees of turning between the straights' middles (the last metres, where
+    # the shuttle stands and the drift moves the fixes, may hook: see the issue note), length
+    # within 2 %.
+    road = Alignment((line(120.0), *curve(180.0, 12.0, 6.0), line(120.0)), 10.0, 20.0, 0.0)
+    log = simulate_drive(road, 10, CONSUMER, seed=5, top_speed=3.0, lat_accel=1.0)
+    geo = fitted(log)
+    assert geo.length_m == pytest.approx(road.length_m, rel=0.02)
+    a, b = np.searchsorted(geo.station_m, [60.0, geo.length_m - 60.0])
+    turn = math.degrees(geo.heading_rad[b] - geo.heading_rad[a])
+    assert turn == pytest.approx(180.0, abs=10.0)
+    assert not geo.closed
+
+
+def test_reversal_splits_the_drive():
+    # Forwards 200 m, stop, then back 60 m: the drive is split there, the longer part used, and
+    # the warning names the parts; --part picks the other.
+    road = Alignment((line(250.0),))
+    log = simulate_reversal(road, 200.0, 140.0, 10, RTK, seed=6)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", CurvespeedWarning)    # a repeated fix dropped
+        route = log_route(log)
+    with pytest.warns(CurvespeedWarning, match=r"reverses \(drives backwards\) 1 time\(s\).*"
+                                               r"split into 2 parts.*the longest, part 1, is used"):
+        geo = build_geometry(route)
+    assert geo.length_m == pytest.approx(200.0, abs=0.5)
+    assert geo.provenance["part_used"] == 1
+    back = build_geometry(route, part=1)
+    assert back.length_m == pytest.approx(60.0, abs=0.5)
+
+
+def test_sparse_out_and_back_stays_open():
+    # Out along a straight, a half turn, back 12 m to the side (the other carriageway): the
+    # ends lie 12 m apart, within the default closure tolerance (2 point spacings of 10 m), but
+    # joining them turns by 90 degrees twice: kept open, with a note.
+    x = np.concatenate((np.arange(0.0, 301.0, 10.0), 300 + 6 * np.sin(np.linspace(0.3, 2.8, 5)),
+                        np.arange(300.0, -1.0, -10.0)))
+    y = np.concatenate((np.zeros(31), 6 - 6 * np.cos(np.linspace(0.3, 2.8, 5)), np.full(31, 12.0)))
+    from curvespeed.route import make_route
+
+    with pytest.warns(CurvespeedWarning, match=r"ends 12.0 m from its start, but joining them "
+                                               r"turns by 90 degrees.*kept open"):
+        geo = build_geometry(make_route(x, y, source="out_and_back.csv"))
+    assert not geo.closed
+
+
+def test_receiver_heights_give_plausible_grades():
+    # Heights from a consumer receiver (vertical error 1.7x the horizontal: 0.85 m white, 2.6 m
+    # drifting) on a road climbing at 4 %: the grade stays within 4 +- 4 % everywhere once the
+    # noise is taken from the heights themselves (with a stated 0.1 m it once swung by -93 to
+    # +138 %).
+    log = simulate_drive(ROAD, 1, CONSUMER, seed=7, stops=(STOP_M,),
+                         elevation=lambda s: 100.0 + 0.04 * s)
+    geo = fitted(log)
+    assert np.all(np.abs(geo.grade - 0.04) < 0.04)
+
+
+def test_an_elevation_spike_is_reported_with_its_stations():
+    log = simulate_drive(ROAD, 1, RTK, seed=8, elevation=lambda s: 100.0 + 0.02 * s)
+    z = log.z_m.copy()
+    z[100] += 500.0                       # one height 500 m off
+    spiked = type(log)(log.time_s, log.x_m, log.y_m, z, log.true_station_m, log.alignment)
+    with pytest.warns(CurvespeedWarning, match=r"grades of up to .* % \(at station \d+ m\).*"
+                                               r"beyond what roads have"):
+        build_geometry(log_route(spiked))
+    geo = build_geometry(log_route(spiked), use_elevation=False)
+    assert geo.grade is None and geo.provenance["elevation"] == "ignored"
