@@ -102,21 +102,25 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
     bends the path most where the vehicle is slow. They use a fixed ``seed``, so the result is
     deterministic.
     """
-    rng = np.random.default_rng(seed)
-    noise = rng.standard_normal((u_points.size, 2 * REPLICATES)) / weight[:, None]
-    if drift_rate and time is not None:
-        step = np.sqrt(drift_rate * np.maximum(np.diff(time), 0.0))
-        walk = rng.standard_normal((u_points.size - 1, 2 * REPLICATES)) * step[:, None]
-        noise[1:] += np.cumsum(walk, axis=0)
     if fit.system is None:      # the points are within noise of a cubic (a circle on a loop)
-        return _null_space_estimate(fit, u_points, weight, u_nodes, noise)
+        chunks = [_noise_chunk(seed, c, weight, time, drift_rate)
+                  for c in range(REPLICATES // _CHUNK)]
+        across, along = [c[:, :_CHUNK] for c in chunks], [c[:, _CHUNK:] for c in chunks]
+        return _null_space_estimate(fit, u_points, weight, u_nodes, np.hstack(across + along))
     scales = []
     for level in range(LEVELS + 1):
-        result = _scale(fit, u_points, values, weight, u_nodes, noise, level)
-        if result is None:
+        scale = _Scale.build(fit, u_points, values, weight, u_nodes, level)
+        if scale is None:
             break
-        scales.append(result)
-    kappa, sd, width = (np.array(a) for a in zip(*scales))
+        scales.append(scale)
+    # Noise replicates a few at a time: a log of 10^6 fixes would need 0.5 GB for all at once.
+    for c in range(REPLICATES // _CHUNK):
+        noise = _noise_chunk(seed, c, weight, time, drift_rate)
+        for scale in scales:
+            scale.add_replicates(noise, u_nodes)
+    kappa = np.array([sc.kappa for sc in scales])
+    sd = np.array([np.sqrt(sc.sum_sq / REPLICATES) for sc in scales])
+    width = np.array([sc.width for sc in scales])
     chosen = _choose_scales(kappa, sd, width, station)
     level = _ramp(chosen, station, RAMP_WIDTHS * float(np.median(width[0])))
     idx = np.arange(station.size)
@@ -139,33 +143,65 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
     return CurvatureEstimate(k, s, bound, w, level)
 
 
-def _scale(fit, u_points, values, weight, u_nodes, noise, level):
-    """Curvature, its standard deviation and the spread width at one scale (None: too coarse)."""
-    rho = fit.log_lambda + level * _DOUBLING_RHO
-    n_int = fit.n_intervals
-    coarsen = max(0, math.ceil((rho - _MAX_RHO) / _DOUBLING_RHO))
-    n_int = n_int // 2**coarsen
-    rho -= coarsen * _DOUBLING_RHO
-    floor = 2 * (SPLINE_DEGREE + 1) if fit.periodic else SPLINE_DEGREE + 1
-    if n_int < floor:
-        return None
-    system = penalised_system(u_points, values, weight, fit.span, fit.periodic, n_int)
-    coef = system.coefficients(rho)
-    delta = system.response(rho, noise.reshape(u_points.size, -1))
-    if fit.periodic:
-        wrap = np.arange(n_int + SPLINE_DEGREE) % n_int
-        coef, delta = coef[wrap], delta[wrap]
-    base = BSpline(system.knots, coef, SPLINE_DEGREE, extrapolate=False)
-    d1, d2 = base(u_nodes, nu=1), base(u_nodes, nu=2)
-    kappa = _cross(d1, d2) / np.hypot(d1[:, 0], d1[:, 1]) ** 3
-    pert = BSpline(system.knots, delta, SPLINE_DEGREE, extrapolate=False)
-    e1 = pert(u_nodes, nu=1).reshape(u_nodes.size, 2, -1)
-    e2 = pert(u_nodes, nu=2).reshape(u_nodes.size, 2, -1)
-    p1, p2 = d1[:, :, None] + e1, d2[:, :, None] + e2
-    varied = _cross(p1, p2) / np.hypot(p1[:, 0], p1[:, 1]) ** 3
-    sd = np.sqrt(np.mean((varied - kappa[:, None]) ** 2, axis=1))
-    width = SPREAD_LENGTHS * _smoothing_length(system, rho, u_nodes, fit.span)
-    return kappa, sd, width
+#: Replicates generated and smoothed at a time.
+_CHUNK = 8
+
+
+def _noise_chunk(seed: int, chunk: int, weight, time, drift_rate) -> np.ndarray:
+    """``_CHUNK`` noise replicates (columns ``0.._CHUNK-1`` across, the rest along x/y: shape
+    (m, 2 * _CHUNK)): white with sigma ``1 / weight``, plus a random walk in ``time`` whose
+    variance grows by ``drift_rate`` per unit time. Each chunk has its own seed, so the result
+    does not depend on how many are made at once."""
+    rng = np.random.default_rng([seed, chunk])
+    noise = rng.standard_normal((weight.size, 2 * _CHUNK)) / weight[:, None]
+    if drift_rate and time is not None:
+        step = np.sqrt(drift_rate * np.maximum(np.diff(time), 0.0))
+        walk = rng.standard_normal((weight.size - 1, 2 * _CHUNK)) * step[:, None]
+        noise[1:] += np.cumsum(walk, axis=0)
+    return noise
+
+
+class _Scale:
+    """One smoothing scale: its curvature at the nodes, spread width, and the running sum of
+    squared curvature changes over the noise replicates."""
+
+    def __init__(self, system, rho, n_int, periodic, kappa, d1, d2, width):
+        self.system, self.rho, self.n_int, self.periodic = system, rho, n_int, periodic
+        self.kappa, self.d1, self.d2, self.width = kappa, d1, d2, width
+        self.sum_sq = np.zeros_like(kappa)
+
+    @classmethod
+    def build(cls, fit, u_points, values, weight, u_nodes, level) -> "_Scale | None":
+        """The scale ``level`` doublings coarser than the path fit (None: too coarse)."""
+        rho = fit.log_lambda + level * _DOUBLING_RHO
+        coarsen = max(0, math.ceil((rho - _MAX_RHO) / _DOUBLING_RHO))
+        n_int = fit.n_intervals // 2**coarsen
+        rho -= coarsen * _DOUBLING_RHO
+        floor = 2 * (SPLINE_DEGREE + 1) if fit.periodic else SPLINE_DEGREE + 1
+        if n_int < floor:
+            return None
+        system = penalised_system(u_points, values, weight, fit.span, fit.periodic, n_int)
+        coef = system.coefficients(rho)
+        if fit.periodic:
+            coef = coef[np.arange(n_int + SPLINE_DEGREE) % n_int]
+        base = BSpline(system.knots, coef, SPLINE_DEGREE, extrapolate=False)
+        d1, d2 = base(u_nodes, nu=1), base(u_nodes, nu=2)
+        kappa = _cross(d1, d2) / np.hypot(d1[:, 0], d1[:, 1]) ** 3
+        width = SPREAD_LENGTHS * _smoothing_length(system, rho, u_nodes, fit.span)
+        return cls(system, rho, n_int, fit.periodic, kappa, d1, d2, width)
+
+    def add_replicates(self, noise: np.ndarray, u_nodes: np.ndarray) -> None:
+        """Smooth noise replicates with this scale's normal equations (the fit is linear in
+        the data) and add their squared curvature changes."""
+        delta = self.system.response(self.rho, noise)
+        if self.periodic:
+            delta = delta[np.arange(self.n_int + SPLINE_DEGREE) % self.n_int]
+        pert = BSpline(self.system.knots, delta, SPLINE_DEGREE, extrapolate=False)
+        e1 = pert(u_nodes, nu=1).reshape(u_nodes.size, 2, -1)
+        e2 = pert(u_nodes, nu=2).reshape(u_nodes.size, 2, -1)
+        p1, p2 = self.d1[:, :, None] + e1, self.d2[:, :, None] + e2
+        varied = _cross(p1, p2) / np.hypot(p1[:, 0], p1[:, 1]) ** 3
+        self.sum_sq += np.sum((varied - self.kappa[:, None]) ** 2, axis=1)
 
 
 def _null_space_estimate(fit, u_points, weight, u_nodes, noise) -> CurvatureEstimate:
