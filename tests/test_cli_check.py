@@ -19,6 +19,7 @@ from click.testing import CliRunner
 from curvespeed.cli.check_cmd import check
 from curvespeed.cli.plan_cmd import plan
 from curvespeed.errors import CurvespeedWarning
+from curvespeed.geodesy import LocalProjection
 from curvespeed.io.check_report import CURVE_COLUMNS
 
 ROUTES = Path(__file__).resolve().parent.parent / "routes"
@@ -282,27 +283,42 @@ def test_output_is_deterministic(tmp_path):
     assert texts[0] == texts[1]
 
 
-def test_gpx_track_on_a_geographic_route(tmp_path):
-    from curvespeed.geodesy import LocalProjection
+#: Arbitrary origin in open ocean where the geographic test routes are placed.
+ORIGIN_LAT, ORIGIN_LON = -41.5, -27.75
 
-    # the bend placed at an arbitrary origin in open ocean, written as lat,lon
-    station, x, y = bend_points()
-    projection = LocalProjection(-41.5, -27.75)
-    lat, lon = projection.to_latlon(x, y)
-    route = tmp_path / "bend_latlon.csv"
+
+def latlon_bend_route(tmp_path, mirror=False, name="bend_latlon.csv") -> Path:
+    """The invented bend as a lat,lon route CSV (turning right instead of left if ``mirror``)."""
+    _, x, y = bend_points()
+    lat, lon = LocalProjection(ORIGIN_LAT, ORIGIN_LON).to_latlon(x, -y if mirror else y)
+    route = tmp_path / name
     route.write_text("# invented test route\nlat,lon\n" + "".join(
         f"{a:.9f},{b:.9f}\n" for a, b in zip(lat, lon)), encoding="utf-8")
-    # a drive at 12 m/s from 20 m before the start to 20 m after the end, one point a second;
-    # the first leg runs along +x from the origin, the last along +y
+    return route
+
+
+def bend_drive_track(tmp_path, east_m=0.0, detour_m=0.0) -> Path:
+    """A GPX drive along the lat,lon bend at 12 m/s, one point a second, from 20 m before its
+    start to 20 m after its end (the first leg runs along +x from the origin, the last along
+    +y); moved ``east_m`` east, and ``detour_m`` off the road sideways between stations 250 and
+    350 m."""
+    station, x, y = bend_points()
     driven = np.arange(-20.0, LENGTH + 20.0, 12.0)
-    tx = np.where(driven < 0.0, driven, np.interp(driven, station, x))
+    tx = np.where(driven < 0.0, driven, np.interp(driven, station, x)) + east_m
     ty = np.interp(driven, station, y) + np.maximum(driven - station[-1], 0.0)
-    tlat, tlon = projection.to_latlon(tx, ty)
+    tx = tx + np.where((driven > 250.0) & (driven < 350.0), detour_m, 0.0)
+    tlat, tlon = LocalProjection(ORIGIN_LAT, ORIGIN_LON).to_latlon(tx, ty)
     points = "".join(f'<trkpt lat="{a:.9f}" lon="{b:.9f}"><time>2026-05-01T10:{i // 60:02d}:'
                      f'{i % 60:02d}Z</time></trkpt>' for i, (a, b) in enumerate(zip(tlat, tlon)))
     track = tmp_path / "drive.gpx"
     track.write_text(f'<gpx version="1.1" xmlns="http://www.topografix.com/GPX/1/1"><trk>'
                      f'<trkseg>{points}</trkseg></trk></gpx>', encoding="utf-8")
+    return track
+
+
+def test_gpx_track_on_a_geographic_route(tmp_path):
+    route = latlon_bend_route(tmp_path)
+    track = bend_drive_track(tmp_path)
     json_file, _ = outputs(tmp_path)
     result = run(route, "--speeds", track, "--trace-noise", 0.05, "--json", json_file)
     # 12 m/s on R 100 m: 1.44 m/s^2 < 2.5
@@ -312,6 +328,117 @@ def test_gpx_track_on_a_geographic_route(tmp_path):
     # the design's by the chords' shortening on the curve, under 0.1 %) and the points print to
     # 1e-9 deg: 1 %.
     np.testing.assert_allclose(speeds, 12.0, rtol=0.01)
+
+
+# --- speeds of another route: exit 2 ----------------------------------------------------------
+
+def mirrored_bend_route(tmp_path, geographic) -> Path:
+    """The bend turning right instead of left: the same length, other places."""
+    if geographic:
+        return latlon_bend_route(tmp_path, mirror=True, name="mirrored.csv")
+    _, x, y = bend_points()
+    path = tmp_path / "mirrored.csv"
+    path.write_text("# invented test route\nx_m,y_m\n" + "".join(
+        f"{a:.4f},{-b:.4f}\n" for a, b in zip(x, y)), encoding="utf-8")
+    return path
+
+
+@pytest.mark.parametrize("geographic", [False, True])
+def test_profile_of_another_route_of_the_same_length_is_refused(tmp_path, geographic):
+    # The bend and its mirror image share the first 200 m straight, then part: in the entry
+    # clothoid each lies s^3 / (6 R L) off the straight's line (s from 200 m; R L = 4000 m^2),
+    # so they are s^3 / 12000 apart, 5 m (the tolerance: the routes' noise is far below 0.5 m)
+    # at s = 39.15 m. The first station past that is 240 m (1 m stations); the fitted
+    # stations run within a few centimetres of the design's.
+    route = latlon_bend_route(tmp_path) if geographic else bend_route(tmp_path)
+    profile = tmp_path / "profile.csv"
+    assert CliRunner().invoke(plan, [str(route), "-o", str(profile)]).exit_code == 0
+    json_file, csv_file = outputs(tmp_path)
+    result = run(mirrored_bend_route(tmp_path, geographic), "--speeds", profile,
+                 "--json", json_file, "--csv", csv_file)
+    columns = "lat,lon" if geographic else "x_m,y_m"
+    assert_bad_input(result, ["profile.csv: line ", f"the profile's position ({columns}) lies",
+                              "more than the 5.0 m allowed",
+                              "planned on another route or with other settings",
+                              "plan it again on this route"], [json_file, csv_file])
+    at = float(result.stderr.split("at station ")[1].split(" m")[0])
+    assert at == pytest.approx(240.0, abs=1.0), result.stderr
+    # the same profile on its own route checks clean
+    assert run(route, "--speeds", profile).exit_code == 0
+
+
+def test_profile_of_a_route_of_another_length_is_refused(tmp_path):
+    route = bend_route(tmp_path)
+    profile = tmp_path / "profile.csv"
+    assert CliRunner().invoke(plan, [str(route), "-o", str(profile)]).exit_code == 0
+    # the same bend without its last 60 m of straight: every position matches, the length not
+    _, x, y = bend_points()
+    shorter = tmp_path / "shorter.csv"
+    shorter.write_text("x_m,y_m\n" + "".join(f"{a:.4f},{b:.4f}\n"
+                                              for a, b in zip(x[:-30], y[:-30])),
+                       encoding="utf-8")
+    json_file, _ = outputs(tmp_path)
+    result = run(shorter, "--speeds", profile, "--json", json_file)
+    assert_bad_input(result, ["profile.csv: line ", "its last station is 60.0 m from the "
+                              "route's (more than the 5.0 m allowed)", "plan it again"],
+                     [json_file])
+
+
+def test_two_column_speeds_carry_no_positions_and_are_taken_as_given(tmp_path):
+    # station_m,speed_mps only: nothing to compare with the route (docs/check.md says so)
+    speeds = tmp_path / "drive.csv"
+    # the route's last point is at 596 m (a point every 2 m)
+    speeds.write_text("station_m,speed_mps\n0,10\n596,10\n", encoding="utf-8")
+    assert run(bend_route(tmp_path), "--speeds", speeds).exit_code == 0
+
+
+@pytest.fixture(scope="module")
+def bundled_profiles(tmp_path_factory):
+    """Each bundled route planned once with the default settings."""
+    folder = tmp_path_factory.mktemp("bundled")
+    profiles = {}
+    for name in ("mountain_road.csv", "test_loop.geojson", "shuttle_route.gpx"):
+        profiles[name] = folder / f"{Path(name).stem}.profile.csv"
+        result = CliRunner().invoke(plan, [str(ROUTES / name), "-o", str(profiles[name])])
+        assert result.exit_code == 0, result.output
+    return profiles
+
+
+@pytest.mark.parametrize("name", ["mountain_road.csv", "test_loop.geojson", "shuttle_route.gpx"])
+def test_bundled_profile_checks_on_its_own_route(bundled_profiles, name):
+    result = run(ROUTES / name, "--speeds", bundled_profiles[name])
+    assert result.exit_code == 0, result.output
+    assert result.stdout.strip().splitlines()[-1].startswith("PASS:")
+
+
+@pytest.mark.parametrize("route, planned_on, fragments", [
+    # 6805 m against 3761 m; 3761 m against 1608 m (the lat,lon profile of a geographic route)
+    ("test_loop.geojson", "mountain_road.csv", ["line 6807", "3043.5 m from the route's"]),
+    ("shuttle_route.gpx", "test_loop.geojson", ["line 3764", "2153.9 m from the route's"]),
+])
+def test_bundled_profile_on_another_bundled_route_is_refused(tmp_path, bundled_profiles, route,
+                                                             planned_on, fragments):
+    json_file, csv_file = outputs(tmp_path)
+    result = run(ROUTES / route, "--speeds", bundled_profiles[planned_on], "--json", json_file,
+                 "--csv", csv_file)
+    assert_bad_input(result, [Path(planned_on).stem + ".profile.csv", *fragments,
+                              "plan it again on this route"], [json_file, csv_file])
+
+
+@pytest.mark.parametrize("east_m, detour_m, fragments", [
+    # a drive of a road 1 km east: no point within 25 m of the route
+    (1000.0, 0.0, ["drive.gpx: no track point lies within 25 m of the route",
+                   "check that the track belongs to this route"]),
+    # a drive that leaves the road 40 m sideways between stations 250 and 350 m
+    (0.0, 40.0, ["drive.gpx: trkpt ", "from the route", "(more than 25 m): the track leaves "
+                 "the route here"]),
+])
+def test_gpx_track_away_from_the_route_is_refused(tmp_path, east_m, detour_m, fragments):
+    json_file, csv_file = outputs(tmp_path)
+    result = run(latlon_bend_route(tmp_path), "--speeds",
+                 bend_drive_track(tmp_path, east_m, detour_m), "--trace-noise", 0.05,
+                 "--json", json_file, "--csv", csv_file)
+    assert_bad_input(result, fragments, [json_file, csv_file])
 
 
 # --- the bundled demo routes ---------------------------------------------------------------------
