@@ -26,13 +26,16 @@ ROUTES = Path(__file__).resolve().parent.parent / "routes"
 
 #: Suffixes a numeric JSON key may carry (SI, plus the two units the published methods use).
 UNIT_SUFFIXES = ("_m", "_mps", "_mps2", "_mps3", "_1pm", "_s", "_deg", "_kmh", "_mph", "_w",
-                 "_kg", "_m2", "_kgpm3")
-#: Dimensionless numeric keys (no unit to name).
+                 "_kg", "_m2", "_kgpm3", "_m2ps")
+#: Dimensionless numeric keys (no unit to name): ratios, uses and counts.
 DIMENSIONLESS = {"superelevation", "side_friction_demand", "friction_margin", "friction_use",
                  "comfort_use", "worst_use", "use", "e_max", "f_max", "rate",
                  "friction_coefficient", "lateral_friction_coefficient",
                  "rolling_resistance_coefficient", "number", "stations", "curves",
-                 "failed_curves", "violations", "use_tolerance"}
+                 "failed_curves", "violations", "use_tolerance",
+                 "use_estimate", "friction_use_estimate", "comfort_use_estimate",
+                 "side_friction_demand_bound", "curves_failing_on_bound", "violations_on_estimate",
+                 "points_read", "points_fitted", "standstills_merged", "fixes_in_standstills"}
 
 
 def run(*args):
@@ -118,7 +121,7 @@ def test_constant_speed_above_the_lateral_limit_exits_1_and_names_the_curve(tmp_
 
     with csv_file.open(encoding="utf-8", newline="") as fh:
         rows = list(csv.DictReader(fh))
-    expected = [name for name, _ in CURVE_COLUMNS if name != "meets_min_radius"]
+    expected = [name for name, _ in CURVE_COLUMNS if not name.startswith("meets_min_radius")]
     assert list(rows[0]) == expected
     assert len(rows) == 1 and rows[0]["result"] == "fail" and rows[0]["direction"] == "left"
     assert float(rows[0]["speed_mps"]) == pytest.approx(70 / 3.6, abs=1e-6)
@@ -129,11 +132,11 @@ def _assert_keys_named_with_units(node, path="") -> None:
     if isinstance(node, dict):
         for key, value in node.items():
             if isinstance(value, (int, float)) and not isinstance(value, bool) and \
-                    not path.endswith("/peak_use"):          # uses of named limits: ratios
+                    not path.endswith(("/peak_use", "/peak_use_estimate")):   # uses: ratios
                 assert key.endswith(UNIT_SUFFIXES) or key in DIMENSIONLESS, f"{path}/{key}"
             if isinstance(value, list) and value and isinstance(value[0], (int, float)):
-                assert key.endswith(UNIT_SUFFIXES) or key.endswith("_use") or \
-                    key in DIMENSIONLESS, f"{path}/{key}"
+                assert key.endswith(UNIT_SUFFIXES) or key.endswith(("_use", "_use_estimate")) \
+                    or key in DIMENSIONLESS, f"{path}/{key}"
             _assert_keys_named_with_units(value, f"{path}/{key}")
     elif isinstance(node, list):
         for item in node:

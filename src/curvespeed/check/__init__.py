@@ -50,12 +50,18 @@ from __future__ import annotations
 
 from .audit import check_speeds
 from .curves import find_curves
-from .model import (BRAKE_REACH, CHECKED_LIMITS, CURVE_RADIUS_M, JOIN_GAP_M, MIN_CURVE_LENGTH_M,
-                    MIN_CURVE_TURN_DEG, MIN_RADIUS, USE_TOLERANCE, CheckReport, CurveCheck,
-                    CurveSettings, SpeedKind, Violation)
-from .speeds import brake_reach_b, checked_constraints, rest_constraints, zone_speeds_mps
+from .model import (BRAKE_REACH, CHECKED_LIMITS, CURVATURE_LIMITS, CURVE_RADIUS_M, JOIN_GAP_M,
+                    MIN_CURVE_LENGTH_M, MIN_CURVE_TURN_DEG, MIN_RADIUS, USE_TOLERANCE,
+                    CheckReport, CurveCheck, CurveSettings, CurveVerdict, SpeedKind, Violation)
+from .speeds import (Judgement, brake_reach_b, checked_constraints, judge_speeds,
+                     rest_constraints, zone_speeds_mps)
+from .uncertainty import (CurvatureEnds, RadiusInterval, curvature_ends, estimate_geometry,
+                          radius_interval)
 
-__all__ = ["BRAKE_REACH", "CHECKED_LIMITS", "CURVE_RADIUS_M", "JOIN_GAP_M", "MIN_CURVE_LENGTH_M",
-           "MIN_CURVE_TURN_DEG", "MIN_RADIUS", "USE_TOLERANCE", "CheckReport", "CurveCheck",
-           "CurveSettings", "SpeedKind", "Violation", "brake_reach_b", "check_speeds",
-           "checked_constraints", "find_curves", "rest_constraints", "zone_speeds_mps"]
+__all__ = ["BRAKE_REACH", "CHECKED_LIMITS", "CURVATURE_LIMITS", "CURVE_RADIUS_M", "JOIN_GAP_M",
+           "MIN_CURVE_LENGTH_M", "MIN_CURVE_TURN_DEG", "MIN_RADIUS", "USE_TOLERANCE",
+           "CheckReport", "CurvatureEnds", "CurveCheck", "CurveSettings", "CurveVerdict",
+           "Judgement", "RadiusInterval", "SpeedKind", "Violation", "brake_reach_b",
+           "check_speeds", "checked_constraints", "curvature_ends", "estimate_geometry",
+           "find_curves", "judge_speeds", "radius_interval", "rest_constraints",
+           "zone_speeds_mps"]

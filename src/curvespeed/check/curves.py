@@ -9,6 +9,7 @@ import numpy as np
 from ..geometry import Geometry
 from .model import CurveSettings, NO_CAP_MPS
 
+
 def find_curves(geometry: Geometry, settings: CurveSettings = CurveSettings()) -> list[np.ndarray]:
     """Split the route into curves; return each curve's node indices in driving order.
 

@@ -1,9 +1,11 @@
 """The speeds ``check`` judges and the problem it judges them in: constraints, rest points,
-zone speeds, brake reach and the per-station use of every limit."""
+zone speeds, brake reach and the per-station use of every limit, on the curvature's bound and on
+its estimate (:func:`judge_speeds`)."""
 
 from __future__ import annotations
 
 import warnings
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -14,6 +16,8 @@ from ..problem import SpeedProblem, build_problem
 from ..profile import derive
 from ..verify import verify_profile
 from .model import NO_CAP_MPS, SpeedKind
+from .uncertainty import estimate_geometry
+
 
 def checked_constraints(constraints: RouteConstraints, warn: bool = True) -> RouteConstraints:
     """The constraints ``check`` applies: speed zones and superelevation.
@@ -101,7 +105,7 @@ def rest_constraints(used: RouteConstraints, speed_mps: np.ndarray,
 
 
 def station_use(problem: SpeedProblem, b: np.ndarray,
-                 kind: SpeedKind) -> tuple[dict, np.ndarray]:
+                kind: SpeedKind) -> tuple[dict, np.ndarray]:
     """Per-station use of every limit (verifier) and the acceleration it was evaluated with."""
     if kind is SpeedKind.TRACE:
         use = dict(verify_profile(problem, b).use)
@@ -127,3 +131,76 @@ def station_use(problem: SpeedProblem, b: np.ndarray,
             use.setdefault(name, np.zeros(b.size))[at] = arr[at]
     return use, np.zeros(b.size)
 
+
+
+@dataclass(frozen=True)
+class Judgement:
+    """Per-station figures of the checked speeds on the curvature's bound and on its estimate.
+
+    The judged figures take, station by station, the worse of the two: the larger use and the
+    lower ceilings and reach. A larger curvature asks for more grip and comfort, so these are the
+    bound's, except where superelevation more than balances the curve (a larger curvature then
+    eases the tyres' side force). On exact geometry the two coincide.
+
+    Attributes
+    ----------
+    problem, problem_estimate : SpeedProblem
+        The discrete problem on the bound (what ``plan`` solves) and on the estimate.
+    use, use_estimate : dict of str -> ndarray
+        Use of every limit, judged and on the estimate.
+    accel_mps2 : ndarray
+        Acceleration the uses were evaluated with, m/s^2.
+    ceiling_b, ceiling_estimate_b : ndarray
+        Speed ceiling (lateral limits, top speed, zones) as squared speed, m^2/s^2.
+    lateral_ceiling_b, reach_b : ndarray
+        The curves-only ceiling and the brake reach (:func:`brake_reach_b`), judged, m^2/s^2.
+    lateral_ceiling_estimate_b, reach_estimate_b : ndarray
+        The same on the estimate, m^2/s^2.
+    """
+
+    problem: SpeedProblem
+    problem_estimate: SpeedProblem
+    use: dict
+    use_estimate: dict
+    accel_mps2: np.ndarray
+    ceiling_b: np.ndarray
+    ceiling_estimate_b: np.ndarray
+    lateral_ceiling_b: np.ndarray
+    reach_b: np.ndarray
+    lateral_ceiling_estimate_b: np.ndarray
+    reach_estimate_b: np.ndarray
+
+
+def judge_speeds(geometry: Geometry, limits: Limits, used: RouteConstraints, v: np.ndarray,
+                 kind: SpeedKind) -> Judgement:
+    """Judge speeds ``v`` (m/s, one per station) on ``geometry``'s curvature bound and estimate.
+
+    ``used`` are the constraints ``check`` applies (:func:`checked_constraints`). A trace's own
+    rest points join them, so a jerk-limited start, stop or end is judged as planned; held
+    speeds are judged without rest and at zero acceleration.
+    """
+    on_bound = _judge_on(geometry, limits, used, v, kind)
+    estimate = estimate_geometry(geometry)
+    on_estimate = on_bound if estimate is geometry else _judge_on(estimate, limits, used, v, kind)
+    problem, use_b, accel, lateral_b, reach_b = on_bound
+    problem_e, use_e, _, lateral_e, reach_e = on_estimate
+    ceiling_b, ceiling_e = problem.lateral_ceiling_b(), problem_e.lateral_ceiling_b()
+    use = {name: np.maximum(arr, use_e[name]) for name, arr in use_b.items()}
+    return Judgement(problem=problem, problem_estimate=problem_e, use=use, use_estimate=use_e,
+                     accel_mps2=np.asarray(accel, dtype=float),
+                     ceiling_b=np.minimum(ceiling_b, ceiling_e), ceiling_estimate_b=ceiling_e,
+                     lateral_ceiling_b=np.minimum(lateral_b, lateral_e),
+                     reach_b=np.minimum(reach_b, reach_e), lateral_ceiling_estimate_b=lateral_e,
+                     reach_estimate_b=reach_e)
+
+
+def _judge_on(geometry: Geometry, limits: Limits, used: RouteConstraints, v: np.ndarray,
+              kind: SpeedKind):
+    """Problem, uses, acceleration, curves-only ceiling and brake reach on one geometry."""
+    if kind is SpeedKind.TRACE:
+        problem = build_problem(geometry, limits, rest_constraints(used, v, geometry))
+    else:
+        problem = build_problem(geometry, limits, used, jerk_model=False)
+    use, accel = station_use(problem, v * v, kind)
+    lateral_b, reach_b = brake_reach_b(geometry, limits, used)
+    return problem, use, accel, lateral_b, reach_b
