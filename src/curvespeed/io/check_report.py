@@ -6,7 +6,7 @@ JSON (``--json``)
     non-SI numbers are the ones whose unit is part of the method and named in the key: the
     design speed (``design_speed_kmh``, the unit of the AASHTO formula) and the ball-bank
     advisory speeds (``advisory_speed_mph`` on 5 mph steps, ``advisory_speed_kmh`` on 10 km/h
-    steps). Top-level keys: ``tool``, ``version``, ``route_file``, ``verdict``, ``route``,
+    steps, and their ``_low_``/``_high_`` ends). Top-level keys: ``tool``, ``version``, ``route_file``, ``verdict``, ``route``,
     ``fit`` (how the geometry was made: noise stated, estimated and used, merges),
     ``speeds``, ``limits``, ``constraints``, ``design``, ``settings``, ``summary``, ``curves``,
     ``violations``, ``per_station`` (one array per quantity, one value per station). Non-finite

@@ -11,8 +11,8 @@ Two kinds of file are accepted, chosen by extension:
     stations within 1 mm) is taken as written. A file that carries positions (a profile:
     ``x_m,y_m``, and ``lat,lon`` on a geographic route, compared in the route's projection) must
     be of *this* route: a position further than :func:`route_match_tolerance_m` from the route
-    at the same station, or a first or last station that far from the route's ends, is refused
-    (the profile was planned on another route or with other settings).
+    at the same station, or a first or last station that far beyond the route's ends, is
+    refused (the profile was planned on another route or with other settings).
 ``.gpx``
     A GPS track whose points carry ``<time>`` (read with :func:`curvespeed.io.read_route`).
     The route must be geographic too (latitude/longitude CSV, GeoJSON or GPX). Each track
@@ -189,8 +189,8 @@ def _read_csv(path, geometry: Geometry) -> SpeedTrace:
 
 
 def _check_same_route(table, station: np.ndarray, geometry: Geometry) -> None:
-    """Refuse a profile whose positions or length do not match the route (a profile of another
-    route, or planned with other settings).
+    """Refuse a profile whose positions do not match the route, or that runs on past its ends
+    (a profile of another route, or planned with other settings).
 
     Positions are the file's ``lat,lon`` taken into the route's projection when both are
     geographic, else its ``x_m,y_m``; a file with neither (a recorded drive as
@@ -211,14 +211,6 @@ def _check_same_route(table, station: np.ndarray, geometry: Geometry) -> None:
     length = geometry.length_m
     advice = ("the profile was planned on another route or with other settings; plan it again "
               f"on this route (curvespeed plan {geometry.source})")
-    first, last = float(station[0]), float(station[-1])
-    for k, at, end in ((0, first, 0.0), (-1, last, length)):
-        if abs(at - end) > tol:
-            raise SpeedFileError(
-                f"{source}: {where[k]}: the profile runs over stations {first:.1f}-{last:.1f} m "
-                f"but the route {geometry.source} runs 0.0-{length:.1f} m: its "
-                f"{'first' if k == 0 else 'last'} station is {abs(at - end):.1f} m from the "
-                f"route's (more than the {tol:.1f} m allowed); {advice}")
     inside = (station >= 0.0) & (station <= length)
     rx = np.interp(station, geometry.station_m, geometry.x_m)
     ry = np.interp(station, geometry.station_m, geometry.y_m)
@@ -231,6 +223,18 @@ def _check_same_route(table, station: np.ndarray, geometry: Geometry) -> None:
             f"({columns}) lies {off[k]:.1f} m from the route {geometry.source} at the same "
             f"station (more than the {tol:.1f} m allowed: {ROUTE_MATCH_NOISE_MULTIPLE:g} times "
             f"the route's position noise, at least {ROUTE_MATCH_MIN_M:g} m); {advice}")
+    # A profile that stops short of the route's end (or starts after its start) is refused by
+    # the coverage check, which names the missing stations; one that runs on past either end
+    # belongs to a longer route.
+    first, last = float(station[0]), float(station[-1])
+    for k, beyond in ((0, -first), (-1, last - length)):
+        if beyond > tol:
+            raise SpeedFileError(
+                f"{source}: {where[k]}: the profile runs over stations {first:.1f}-{last:.1f} m "
+                f"but the route {geometry.source} runs 0.0-{length:.1f} m: its "
+                f"{'first' if k == 0 else 'last'} station lies {beyond:.1f} m beyond the "
+                f"route's {'start' if k == 0 else 'end'} (more than the {tol:.1f} m allowed); "
+                f"{advice}")
 
 
 def _check_coverage(source: str, first: float, last: float, geometry: Geometry, tol: float,
