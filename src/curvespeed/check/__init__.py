@@ -30,6 +30,21 @@ What is checked
   the AASHTO minimum radius for a design speed, and the ball-bank advisory speed
   (:mod:`curvespeed.design`).
 
+The curvature's uncertainty
+---------------------------
+A fitted route's curvature is an estimate with a standard deviation and a bound that covers the
+true road (:mod:`curvespeed.geometry.curvature`). Uses, ceilings and brake reach are *judged* on
+the bound, as :mod:`curvespeed.problem` plans on it (:func:`judge_speeds`: the worse of bound
+and estimate at every station), and reported on the estimate as well. Each curve's smallest
+radius, ball-bank advisory speed and AASHTO verdict are intervals around the estimate
+(:mod:`.uncertainty`). A curve within every limit on the estimate that fails on the bound has
+the verdict :attr:`CurveVerdict.FAILS_ON_BOUND` and counts as a failure: the bound covers the
+true road. On exact geometry (no bound) every interval has zero width.
+
+Layout: :mod:`.model` (report types), :mod:`.curves` (curves and stretches), :mod:`.speeds`
+(the problem the speeds are judged in), :mod:`.uncertainty`, :mod:`.audit`
+(:func:`check_speeds`).
+
 Stops and start/end speeds of the constraints are planning targets and are not checked (a
 recorded drive only samples them approximately); they are ignored with a warning. Under a jerk
 bound a trace's own rest points (speed exactly zero: the ends of an open route, isolated
