@@ -6,6 +6,8 @@ spacing they ask for.
 
 from __future__ import annotations
 
+import dataclasses
+
 import numpy as np
 
 from curvespeed.geometry import Geometry, geometry_from_curvature  # noqa: F401 (re-exported)
@@ -30,3 +32,24 @@ def straight_curve_straight(approach_m: float, radius_m: float, arc_m: float, ex
                         np.full(int(round(arc_m / ds)), 1.0 / radius_m),
                         np.zeros(int(round(exit_m / ds)) + 1)))
     return geometry_from_curvature(k, ds=ds)
+
+
+def with_radius_interval(geometry: Geometry, low_radius_m: float, high_radius_m: float,
+                         ) -> Geometry:
+    """``geometry`` given a curvature bound and standard deviation wherever it curves, so that
+    each curve's smallest radius has the plausible range ``low_radius_m``..``high_radius_m``
+    (``inf``: unbounded) around the estimate ``1 / max |curvature|``.
+
+    Where ``|curvature| > 0``: bound ``1 / low_radius_m`` and standard deviation
+    ``(|curvature| - 1 / high_radius_m) / 3`` (check uses ``|curvature| - 3 sd`` for the
+    largest radius); on straights the bound is 0 and the standard deviation 0.
+    """
+    from curvespeed.geometry.curvature import GAMMA
+
+    kappa = np.abs(geometry.curvature_1pm)
+    curved = kappa > 0.0
+    bound = np.where(curved, 1.0 / low_radius_m, 0.0)
+    sd = np.where(curved, (kappa - 1.0 / high_radius_m) / GAMMA, 0.0)
+    if (bound < kappa).any() or (sd < 0.0).any():
+        raise ValueError("the range must contain every curved station's radius")
+    return dataclasses.replace(geometry, curvature_bound_1pm=bound, curvature_sd_1pm=sd)

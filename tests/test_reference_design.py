@@ -12,16 +12,16 @@ import math
 import numpy as np
 import pytest
 
-from curvespeed.check import MIN_RADIUS, SpeedKind, check_speeds
+from curvespeed.check import MIN_RADIUS, CurveVerdict, SpeedKind, check_speeds
 from curvespeed.design import (AASHTO_2011_SIDE_FRICTION, aashto_min_radius_m,
                                aashto_side_friction, ball_bank_advisory, ball_bank_angle_deg,
                                ball_bank_speed, ball_bank_threshold_deg, design_criterion,
                                side_friction_demand, table_radius_m)
 from curvespeed.errors import LimitsError
-from curvespeed.limits import Limits, RouteConstraints
+from curvespeed.limits import Limits, RouteConstraints, Superelevation
 from curvespeed.units import kmh_to_mps, mph_to_mps
 
-from helpers import straight_curve_straight
+from helpers import straight_curve_straight, with_radius_interval
 
 G = 9.81  # the value the ball-bank check values in REFERENCES.md were computed with
 
@@ -199,3 +199,105 @@ def test_advisory_on_a_very_tight_turn_is_none_below_the_lowest_step():
     # R = 1 m: at 5 mph (2.24 m/s) the reading is atan(0.51) = 27 deg > 16 deg.
     adv = ball_bank_advisory(1.0, 0.0, G)
     assert adv.mph is None
+
+
+# --- Both ends of a curve's radius interval ----------------------------------------------------
+# A fitted route's curve has a smallest radius estimate and a plausible range (check docs); the
+# design criteria are evaluated at both ends. Synthetic curves of exact curvature with the range
+# set by hand (tests/helpers.py), so each end is the radius asked for.
+
+#: Ball-bank check speeds on a 100 m curve, km/h, by superelevation and threshold (REFERENCES.md:
+#: MUTCD 2009 section 2C.08 / FHWA procedure, thresholds from memory; B = atan(v^2/(gR)) - atan(e),
+#: g = 9.81).
+BALL_BANK_100_M_KMH = {0.0: {16.0: 60.38, 14.0: 56.30, 12.0: 51.98},
+                       0.06: {16.0: 66.97, 14.0: 63.19, 12.0: 59.25}}
+
+
+def advisory_from_published(e: float, radius_m: float, step: float, to_kmh: float) -> int:
+    """Highest advisory step (``step`` in a unit of ``to_kmh`` km/h) on a curve of ``radius_m``,
+    from the published 100 m speeds: at fixed superelevation and angle the ball-bank speed
+    sqrt(g R tan(B + atan e)) scales as sqrt(R) (closed form). A step is held to 16 degrees up
+    to 20 mph, 14 up to 30 mph and 12 above (MUTCD 2009, from memory); steps pass from the
+    lowest up to the first that fails."""
+    best = 0
+    value = step
+    while True:
+        kmh = value * to_kmh
+        mph = kmh / 1.609344
+        angle = 16.0 if mph <= 20.0 else 14.0 if mph <= 30.0 else 12.0
+        if kmh > BALL_BANK_100_M_KMH[e][angle] * math.sqrt(radius_m / 100.0):
+            return int(best)
+        best = value
+        value += step
+
+
+def interval_curve(estimate_m, low_m, high_m, e=0.0, speed_mps=10.0, **check):
+    """Straight - arc of ``estimate_m`` - straight with the radius range ``low_m``..``high_m``,
+    checked at a constant speed (and a design speed if given)."""
+    geo = with_radius_interval(straight_curve_straight(100.0, estimate_m, 120.0, 100.0),
+                               low_m, high_m)
+    bank = RouteConstraints(superelevation=(Superelevation(0.0, geo.length_m, e),)) if e else \
+        RouteConstraints()
+    return check_speeds(geo, Limits(gravity_mps2=G), bank, np.full(geo.n_nodes, speed_mps),
+                        kind=SpeedKind.CONSTANT, **check)
+
+
+@pytest.mark.parametrize("e", [0.0, 0.06])
+def test_ball_bank_advisory_at_both_ends_of_the_radius_interval(e):
+    # Estimate 100 m, plausible 81-121 m (0.9^2 and 1.1^2 of 100 m: the published speeds scale
+    # by 0.9 and 1.1). e = 0: at 81 m the 14 and 12 degree speeds are 50.67 and 46.78 km/h, so
+    # 30 mph (48.28 km/h, a 14 degree step) passes and 35 mph fails; 40 km/h passes, 50 km/h
+    # (a 12 degree step) fails. At 121 m the 12 degree speed is 57.18 km/h: 35 mph (56.33 km/h)
+    # passes, 40 mph fails; 50 km/h passes, 60 fails. e = 0.06 likewise from 59.25-66.97 km/h.
+    report = interval_curve(100.0, 81.0, 121.0, e=e)
+    (curve,) = report.curves
+    # the radii are the ones asked for, to round-off (1 / (1 / R) and a sum of three terms)
+    assert (curve.min_radius_low_m, curve.min_radius_m, curve.min_radius_high_m) == \
+        pytest.approx((81.0, 100.0, 121.0), rel=1e-12)
+    assert curve.superelevation == pytest.approx(e, abs=1e-15)
+    for radius, adv in ((81.0, curve.advisory_low), (100.0, curve.advisory),
+                        (121.0, curve.advisory_high)):
+        assert adv.mph == advisory_from_published(e, radius, 5, 1.609344), radius
+        assert adv.kmh == advisory_from_published(e, radius, 10, 1.0), radius
+    if e == 0.0:   # the values worked out in the comment above
+        assert (curve.advisory_low.mph, curve.advisory.mph, curve.advisory_high.mph) == \
+            (30, 30, 35)
+        assert (curve.advisory_low.kmh, curve.advisory.kmh, curve.advisory_high.kmh) == \
+            (40, 50, 50)
+    # a slow speed far within every limit: the advisory interval is information, not a verdict
+    assert curve.verdict is CurveVerdict.PASS and report.ok
+
+
+def test_unbounded_largest_radius_needs_no_advisory():
+    # The noise allows a straight (|curvature| - 3 sd <= 0): the largest radius is unbounded and
+    # a straight needs no advisory speed below the highest step (80 mph / 130 km/h).
+    report = interval_curve(100.0, 90.0, math.inf)
+    (curve,) = report.curves
+    assert curve.min_radius_high_m == math.inf
+    assert (curve.advisory_high.mph, curve.advisory_high.kmh, curve.advisory_high.capped) == \
+        (80, 130, True)
+
+
+@pytest.mark.parametrize("low, estimate, high, verdicts, result", [
+    # Green Book 2011, 80 km/h, e_max 8 %, f_max 0.14 (from memory): R_min 229 m.
+    (230.0, 235.0, 240.0, (True, True, True), CurveVerdict.PASS),
+    (225.0, 235.0, 240.0, (False, True, True), CurveVerdict.FAILS_ON_BOUND),
+    (220.0, 225.0, 240.0, (False, False, True), CurveVerdict.FAIL),
+    (200.0, 210.0, 220.0, (False, False, False), CurveVerdict.FAIL),
+])
+def test_minimum_radius_verdict_at_both_ends(low, estimate, high, verdicts, result):
+    report = interval_curve(estimate, low, high, design_speed_kmh=80.0, e_max=0.08)
+    (curve,) = report.curves
+    assert (curve.meets_min_radius_low, curve.meets_min_radius,
+            curve.meets_min_radius_high) == verdicts
+    assert curve.verdict is result
+    assert report.ok == (result is CurveVerdict.PASS)
+    if result is not CurveVerdict.PASS:
+        (viol,) = [v for v in report.violations if v.kind == MIN_RADIUS]
+        # judged at the smallest plausible radius, reported on the estimate too (round-off)
+        assert viol.use == pytest.approx(229.0 / low, rel=1e-12)
+        assert viol.use_estimate == pytest.approx(229.0 / estimate, rel=1e-12)
+        assert viol.on_estimate == (result is CurveVerdict.FAIL)
+        if result is CurveVerdict.FAILS_ON_BOUND:
+            assert f"radius {estimate:.1f} m meets the minimum 229 m" in viol.message
+            assert f"within the curvature's uncertainty, {low:.1f} m, does not" in viol.message

@@ -138,6 +138,13 @@ def _num(value, spec: str, width: int) -> str:
     return text.rjust(width)
 
 
+#: Marks a curve (or its minimum-radius verdict) that passes on the curvature estimate and fails
+#: within its uncertainty.
+ON_BOUND_MARK = "*"
+ON_BOUND_LEGEND = (f"  {ON_BOUND_MARK} passes on the curvature estimate, fails within its "
+                   "uncertainty (the bound covers the true road): counted as a failure")
+
+
 def render_report(route_file, report, origin: str) -> tuple[str, str]:
     """The terminal report (header, curve table worst first, violations) and the verdict line."""
     geo = report.geometry
@@ -158,25 +165,11 @@ def render_report(route_file, report, origin: str) -> tuple[str, str]:
     curves = sorted(report.curves, key=lambda c: (c.passed, -c.worst_use, c.start_m))
     if curves:
         lines.append(f"curves   {len(curves)} (radius below {report.settings.radius_m:g} m), "
-                     "worst first:")
-        header = (f"{'#':>3}  {'station range (m)':>19}  {'R (m)':>7}  {'dir':>5}  {'e':>6}  "
-                  f"{'v (m/s)':>7}  {'v lim (m/s)':>11}  {'a_lat (m/s^2)':>13}  {'f':>6}  "
-                  f"{'grip use':>8}  {'comfort use':>11}  {'brake':>5}")
-        if report.design is not None:
-            header += f"  {'R_min':>5}"
-        header += f"  {'adv (mph)':>9}  {'adv (km/h)':>10}  result"
-        lines.append(header)
-        for c in curves:
-            row = (f"{c.number:>3}  {c.start_m:8.1f} - {c.end_m:8.1f}  {c.min_radius_m:7.1f}  "
-                   f"{c.direction:>5}  {c.superelevation:6.3f}  {c.speed_mps:7.2f}  "
-                   f"{c.limit_speed_mps:11.2f}  {c.lateral_accel_mps2:13.2f}  "
-                   f"{c.side_friction_demand:6.3f}  {100 * c.friction_use:7.1f}%  "
-                   f"{100 * c.comfort_use:10.1f}%  {'ok' if c.brake_ok else 'LATE':>5}")
-            if report.design is not None:
-                row += f"  {'ok' if c.meets_min_radius else 'SHORT':>5}"
-            row += (f"  {_num(c.advisory.mph, 'd', 9)}  {_num(c.advisory.kmh, 'd', 10)}  "
-                    f"{'PASS' if c.passed else 'FAIL'}")
-            lines.append(row)
+                     "worst first. R and advisory speeds: estimate (smallest-largest "
+                     "plausible); uses: on the curvature's bound (on the estimate)")
+        lines.extend(_curve_table(curves, report.design is not None))
+        if report.curves_failing_on_bound():
+            lines.append(ON_BOUND_LEGEND)
     else:
         lines.append(f"curves   none (no stretch with a radius below "
                      f"{report.settings.radius_m:g} m)")
@@ -198,6 +191,53 @@ def render_report(route_file, report, origin: str) -> tuple[str, str]:
     return "\n".join(lines), _verdict(report, failed, others)
 
 
+def _curve_table(curves, design: bool) -> list[str]:
+    """Header and one row per curve of the terminal table."""
+    from ..check import CurveVerdict
+
+    def radius(c) -> str:
+        high = "unbounded" if c.min_radius_high_m == float("inf") else \
+            f"{c.min_radius_high_m:.1f}"
+        return f"{c.min_radius_m:.1f} ({c.min_radius_low_m:.1f}-{high})"
+
+    def advisory(c, unit: str) -> str:
+        ends = [getattr(a, unit) for a in (c.advisory, c.advisory_low, c.advisory_high)]
+        est, low, high = ("-" if x is None else str(x) for x in ends)
+        return f"{est} ({low}-{high})"
+
+    def use(judged: float, estimate: float) -> str:
+        return f"{100 * judged:.1f} ({100 * estimate:.1f})"
+
+    def min_radius(c) -> str:
+        if c.meets_min_radius_low:
+            return "ok"
+        return "SHORT" if not c.meets_min_radius else "SHORT" + ON_BOUND_MARK
+
+    results = {CurveVerdict.PASS: "PASS", CurveVerdict.FAIL: "FAIL",
+               CurveVerdict.FAILS_ON_BOUND: "FAIL" + ON_BOUND_MARK}
+    header = (f"{'#':>3}  {'station range (m)':>19}  {'R (m)':>23}  {'dir':>5}  {'e':>6}  "
+              f"{'v (m/s)':>7}  {'v lim (m/s)':>11}  {'a_lat (m/s^2)':>13}  {'f':>6}  "
+              f"{'grip use (%)':>14}  {'comfort use (%)':>15}  {'brake':>5}")
+    if design:
+        header += f"  {'R_min':>6}"
+    header += f"  {'adv (mph)':>12}  {'adv (km/h)':>15}  result"
+    rows = [header]
+    for c in curves:
+        row = (f"{c.number:>3}  {c.start_m:8.1f} - {c.end_m:8.1f}  {radius(c):>23}  "
+               f"{c.direction:>5}  {c.superelevation:6.3f}  {c.speed_mps:7.2f}  "
+               f"{c.limit_speed_mps:11.2f}  {c.lateral_accel_mps2:13.2f}  "
+               f"{c.side_friction_demand:6.3f}  "
+               f"{use(c.friction_use, c.friction_use_estimate):>14}  "
+               f"{use(c.comfort_use, c.comfort_use_estimate):>15}  "
+               f"{'ok' if c.brake_ok else 'LATE':>5}")
+        if design:
+            row += f"  {min_radius(c):>6}"
+        row += (f"  {advisory(c, 'mph'):>12}  {advisory(c, 'kmh'):>15}  "
+                f"{results[c.verdict]}")
+        rows.append(row)
+    return rows
+
+
 def _verdict(report, failed, others) -> str:
     n = len(report.curves)
     if report.ok:
@@ -209,7 +249,9 @@ def _verdict(report, failed, others) -> str:
     worst = report.worst_violation()
     parts = []
     if failed:
-        parts.append(f"{len(failed)} of {n} curve(s) fail")
+        on_bound = len(report.curves_failing_on_bound())
+        only = f" ({on_bound} only within the curvature's uncertainty)" if on_bound else ""
+        parts.append(f"{len(failed)} of {n} curve(s) fail{only}")
     if others:
         parts.append(f"{len(others)} other violation(s)")
     return (f"FAIL: {' and '.join(parts)}; worst: {worst.kind.replace('_', ' ')} at station "

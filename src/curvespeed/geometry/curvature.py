@@ -112,12 +112,13 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
         scale = _Scale.build(fit, u_points, values, weight, u_nodes, level)
         if scale is None:
             break
+        # Noise replicates a few at a time (a log of 10^6 fixes would need 0.5 GB for all at
+        # once), and one scale's normal equations at a time (each holds the basis of every
+        # point); the replicates are drawn again for each scale from the same seeds.
+        for c in range(REPLICATES // _CHUNK):
+            scale.add_replicates(_noise_chunk(seed, c, weight, time, drift_rate), u_nodes)
+        scale.system = None
         scales.append(scale)
-    # Noise replicates a few at a time: a log of 10^6 fixes would need 0.5 GB for all at once.
-    for c in range(REPLICATES // _CHUNK):
-        noise = _noise_chunk(seed, c, weight, time, drift_rate)
-        for scale in scales:
-            scale.add_replicates(noise, u_nodes)
     kappa = np.array([sc.kappa for sc in scales])
     sd = np.array([np.sqrt(sc.sum_sq / REPLICATES) for sc in scales])
     width = np.array([sc.width for sc in scales])

@@ -6,13 +6,18 @@ JSON (``--json``)
     non-SI numbers are the ones whose unit is part of the method and named in the key: the
     design speed (``design_speed_kmh``, the unit of the AASHTO formula) and the ball-bank
     advisory speeds (``advisory_speed_mph`` on 5 mph steps, ``advisory_speed_kmh`` on 10 km/h
-    steps). Top-level keys: ``tool``, ``version``, ``route_file``, ``verdict``, ``route``,
+    steps, and their ``_low_``/``_high_`` ends). Top-level keys: ``tool``, ``version``, ``route_file``, ``verdict``, ``route``,
+    ``fit`` (how the geometry was made: noise stated, estimated and used, merges),
     ``speeds``, ``limits``, ``constraints``, ``design``, ``settings``, ``summary``, ``curves``,
     ``violations``, ``per_station`` (one array per quantity, one value per station). Non-finite
     numbers are written as ``null``. No time stamps: the same inputs give the same bytes.
 CSV (``--csv``)
-    One row per curve in station order, columns :data:`CURVE_COLUMNS` (``meets_min_radius``
-    only with a design speed), numbers in the fixed formats of :mod:`curvespeed.io._format`.
+    One row per curve in station order, columns :data:`CURVE_COLUMNS` (``meets_min_radius``,
+    ``meets_min_radius_low`` and ``meets_min_radius_high`` only with a design speed), numbers in
+    the fixed formats of :mod:`curvespeed.io._format`. ``result`` is ``pass`` or ``fail`` (a
+    curve that fails only within the curvature's uncertainty is a failure); ``verdict`` tells
+    ``fail`` from ``fails_on_bound``. An unbounded ``min_radius_high_m`` is written ``inf``
+    (``null`` in the JSON).
 
 Both are written atomically and replace an existing file only with ``force``.
 """
@@ -42,7 +47,19 @@ CURVE_COLUMNS = (
     ("braking_distance_needed_m", METRES), ("braking_distance_available_m", METRES),
     ("brake_ok", "s"), ("meets_min_radius", "s"), ("advisory_speed_mph", ".0f"),
     ("advisory_speed_kmh", ".0f"), ("violations", "s"), ("result", "s"),
+    # added with the curvature's uncertainty: the interval ends and the estimate's uses
+    ("verdict", "s"), ("violations_on_estimate", "s"), ("min_radius_low_m", METRES),
+    ("min_radius_high_m", METRES), ("meets_min_radius_low", "s"), ("meets_min_radius_high", "s"),
+    ("advisory_speed_low_mph", ".0f"), ("advisory_speed_high_mph", ".0f"),
+    ("advisory_speed_low_kmh", ".0f"), ("advisory_speed_high_kmh", ".0f"),
+    ("friction_use_estimate", RATIO), ("comfort_use_estimate", RATIO),
+    ("lateral_accel_bound_mps2", KINEMATIC), ("side_friction_demand_bound", RATIO),
+    ("limit_speed_estimate_mps", KINEMATIC),
 )
+#: Columns written only with a design speed.
+_DESIGN_COLUMNS = ("meets_min_radius", "meets_min_radius_low", "meets_min_radius_high")
+#: Yes/no columns.
+_FLAGS = ("brake_ok",) + _DESIGN_COLUMNS
 
 
 def check_report_dict(report: CheckReport, route_file: str | os.PathLike | None = None) -> dict:
@@ -71,45 +88,27 @@ def check_json_text(report: CheckReport, route_file: str | os.PathLike | None = 
 
 
 def curve_table_columns(report: CheckReport) -> dict[str, tuple[object, str]]:
-    """Named columns and formats of the per-curve table, in output order."""
-    def flag(value) -> str:
-        return "" if value is None else ("yes" if value else "no")
+    """Named columns and formats of the per-curve table, in output order.
 
-    def step(value) -> float:
-        return math.nan if value is None else float(value)
+    The cells are the curves' own report values (:meth:`CurveCheck.to_dict`): flags as
+    ``yes``/``no`` (empty when not computed), a missing advisory speed as ``nan``, lists of
+    violation kinds joined by ``;``, ``result`` as ``pass``/``fail``.
+    """
+    def cell(name: str, row: dict):
+        if name == "curve":
+            return row["number"]
+        if name == "result":
+            return "pass" if row["passed"] else "fail"
+        value = row[name]
+        if name in _FLAGS:
+            return "" if value is None else ("yes" if value else "no")
+        if isinstance(value, list):
+            return ";".join(value)
+        return math.nan if value is None else value
 
-    curves = report.curves
-    values = {
-        "curve": [c.number for c in curves],
-        "start_m": [c.start_m for c in curves], "end_m": [c.end_m for c in curves],
-        "length_m": [c.length_m for c in curves], "direction": [c.direction for c in curves],
-        "min_radius_m": [c.min_radius_m for c in curves],
-        "tightest_station_m": [c.tightest_station_m for c in curves],
-        "superelevation": [c.superelevation for c in curves],
-        "speed_mps": [c.speed_mps for c in curves],
-        "lateral_accel_mps2": [c.lateral_accel_mps2 for c in curves],
-        "side_friction_demand": [c.side_friction_demand for c in curves],
-        "friction_margin": [c.friction_margin for c in curves],
-        "comfort_margin_mps2": [c.comfort_margin_mps2 for c in curves],
-        "friction_use": [c.friction_use for c in curves],
-        "comfort_use": [c.comfort_use for c in curves],
-        "limit_speed_mps": [c.limit_speed_mps for c in curves],
-        "approach_speed_mps": [c.approach_speed_mps for c in curves],
-        "braking_distance_needed_m": [c.braking_distance_needed_m for c in curves],
-        "braking_distance_available_m": [c.braking_distance_available_m for c in curves],
-        "brake_ok": [flag(c.brake_ok) for c in curves],
-        "meets_min_radius": [flag(c.meets_min_radius) for c in curves],
-        "advisory_speed_mph": [step(c.advisory.mph) for c in curves],
-        "advisory_speed_kmh": [step(c.advisory.kmh) for c in curves],
-        "violations": [";".join(c.violations) for c in curves],
-        "result": ["pass" if c.passed else "fail" for c in curves],
-    }
-    columns = {}
-    for name, spec in CURVE_COLUMNS:
-        if name == "meets_min_radius" and report.design is None:
-            continue
-        columns[name] = (values[name], spec)
-    return columns
+    rows = [c.to_dict() for c in report.curves]
+    return {name: ([cell(name, row) for row in rows], spec) for name, spec in CURVE_COLUMNS
+            if not (name in _DESIGN_COLUMNS and report.design is None)}
 
 
 def curve_csv_text(report: CheckReport) -> str:

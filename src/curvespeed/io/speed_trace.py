@@ -8,7 +8,11 @@ Two kinds of file are accepted, chosen by extension:
     Stations are metres along *this* route and must increase; speeds must not be negative.
     Squared speed is interpolated linearly in station (the discrete model of
     :mod:`curvespeed.problem`); a file at the route's own stations (a profile of this route,
-    stations within 1 mm) is taken as written.
+    stations within 1 mm) is taken as written. A file that carries positions (a profile:
+    ``x_m,y_m``, and ``lat,lon`` on a geographic route, compared in the route's projection) must
+    be of *this* route: a position further than :func:`route_match_tolerance_m` from the route
+    at the same station, or a first or last station that far beyond the route's ends, is
+    refused (the profile was planned on another route or with other settings).
 ``.gpx``
     A GPS track whose points carry ``<time>`` (read with :func:`curvespeed.io.read_route`).
     The route must be geographic too (latitude/longitude CSV, GeoJSON or GPX). Each track
@@ -66,6 +70,11 @@ END_TOLERANCE_M = 1.0
 _SAME_STATION_M = 1e-3
 #: Fastest plausible travel between two track points, m/s: bounds the forward search window.
 _MAX_PLAUSIBLE_SPEED_MPS = 100.0
+#: A profile's position may lie this many times the route's position noise from the route at
+#: the same station (see :func:`route_match_tolerance_m`), and never less than
+#: :data:`ROUTE_MATCH_MIN_M` metres.
+ROUTE_MATCH_NOISE_MULTIPLE = 10.0
+ROUTE_MATCH_MIN_M = 5.0
 
 
 @dataclass(frozen=True)
@@ -102,6 +111,23 @@ def end_tolerance_m(geometry: Geometry, noise_m: float = 0.0) -> float:
     noise (a GPS track's first point may lie a little before or after the route's start).
     """
     return max(END_TOLERANCE_M, geometry.spacing_m, 3.0 * noise_m)
+
+
+def route_match_tolerance_m(geometry: Geometry) -> float:
+    """How far a profile's position may lie from the route at the same station, metres.
+
+    A profile planned on this route with the same settings carries the route's own positions
+    (printed to 0.1 mm), so it differs by nothing. Planned with other settings (spacing, stated
+    noise) the fitted path moves sideways by up to about the position noise, and its stations,
+    arc length along that path, shift along it by the difference in length so far (on the
+    bundled mountain road planned at 2 m instead of 1 m: 8 mm at most). The tolerance is
+    :data:`ROUTE_MATCH_NOISE_MULTIPLE` times the noise the fit used, so a noisy log's own
+    scatter never trips it, and at least :data:`ROUTE_MATCH_MIN_M`: more than such shifts on
+    design-grade points, yet less than the distance to the next road or the other carriageway
+    somewhere along a route (lanes are about 3.5 m wide, common practice).
+    """
+    noise = (geometry.provenance.get("position_noise") or {}).get("used_m") or 0.0
+    return max(ROUTE_MATCH_MIN_M, ROUTE_MATCH_NOISE_MULTIPLE * float(noise))
 
 
 def read_speed_trace(path: str | os.PathLike, geometry: Geometry, *,
@@ -150,6 +176,7 @@ def _read_csv(path, geometry: Geometry) -> SpeedTrace:
     station, speed = table.require("station_m", "speed_mps", what="check --speeds")
     where = table.where
     check_stations_and_speeds(station, speed, source, where)
+    _check_same_route(table, station, geometry)
     first, last = float(station[0]), float(station[-1])
     _check_coverage(source, first, last, geometry, end_tolerance_m(geometry),
                     where_first=where[0], where_last=where[-1])
@@ -159,6 +186,55 @@ def _read_csv(path, geometry: Geometry) -> SpeedTrace:
         return SpeedTrace(speed.copy(), source, "csv", (first, last))
     b = np.interp(geometry.station_m, station, speed * speed)
     return SpeedTrace(np.sqrt(b), source, "csv", (first, last))
+
+
+def _check_same_route(table, station: np.ndarray, geometry: Geometry) -> None:
+    """Refuse a profile whose positions do not match the route, or that runs on past its ends
+    (a profile of another route, or planned with other settings).
+
+    Positions are the file's ``lat,lon`` taken into the route's projection when both are
+    geographic, else its ``x_m,y_m``; a file with neither (a recorded drive as
+    ``station_m,speed_mps``) carries nothing to compare and is taken as given. The route's
+    position at each of the file's stations is interpolated between its nodes (the chord
+    differs from the path by ds^2 / (8 R), millimetres at 1 m stations).
+    """
+    if geometry.projection is not None and table.has("lat", "lon"):
+        px, py = geometry.projection.to_metres(table.columns["lat"], table.columns["lon"])
+        columns = "lat,lon"
+    elif table.has("x_m", "y_m"):
+        px, py = table.columns["x_m"], table.columns["y_m"]
+        columns = "x_m,y_m"
+    else:
+        return
+    tol = route_match_tolerance_m(geometry)
+    source, where = table.source, table.where
+    length = geometry.length_m
+    advice = ("the profile was planned on another route or with other settings; plan it again "
+              f"on this route (curvespeed plan {geometry.source})")
+    inside = (station >= 0.0) & (station <= length)
+    rx = np.interp(station, geometry.station_m, geometry.x_m)
+    ry = np.interp(station, geometry.station_m, geometry.y_m)
+    off = np.where(inside, np.hypot(np.asarray(px) - rx, np.asarray(py) - ry), 0.0)
+    bad = np.flatnonzero(off > tol)
+    if bad.size:
+        k = int(bad[0])
+        raise SpeedFileError(
+            f"{source}: {where[k]}: at station {station[k]:.1f} m the profile's position "
+            f"({columns}) lies {off[k]:.1f} m from the route {geometry.source} at the same "
+            f"station (more than the {tol:.1f} m allowed: {ROUTE_MATCH_NOISE_MULTIPLE:g} times "
+            f"the route's position noise, at least {ROUTE_MATCH_MIN_M:g} m); {advice}")
+    # A profile that stops short of the route's end (or starts after its start) is refused by
+    # the coverage check, which names the missing stations; one that runs on past either end
+    # belongs to a longer route.
+    first, last = float(station[0]), float(station[-1])
+    for k, beyond in ((0, -first), (-1, last - length)):
+        if beyond > tol:
+            raise SpeedFileError(
+                f"{source}: {where[k]}: the profile runs over stations {first:.1f}-{last:.1f} m "
+                f"but the route {geometry.source} runs 0.0-{length:.1f} m: its "
+                f"{'first' if k == 0 else 'last'} station lies {beyond:.1f} m beyond the "
+                f"route's {'start' if k == 0 else 'end'} (more than the {tol:.1f} m allowed); "
+                f"{advice}")
 
 
 def _check_coverage(source: str, first: float, last: float, geometry: Geometry, tol: float,
