@@ -41,7 +41,7 @@ def long_road(fixes: int, rate_hz: float) -> Alignment:
     return Alignment(one.elements * copies, 0.0, 0.0, 0.0)
 
 
-def write_log(fixes: int, rate_hz: float, path: Path) -> tuple[Alignment, int]:
+def write_log(fixes: int, rate_hz: float, path: Path) -> tuple[Alignment, int, float]:
     road = long_road(fixes, rate_hz)
     one = invented_road().length_m
     stops = [one * (k + 0.37) for k in range(int(road.length_m // one))]
@@ -75,12 +75,13 @@ def main(argv=None) -> int:
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "log.csv"
         road, n, covered = write_log(args.fixes, args.rate, path)
+        size = path.stat().st_size
         runs = [run_once(path) for _ in range(args.repeat)]
     walls = [r[0] for r in runs]
     out = runs[-1][2]
     length = float(next(line.split()[1] for line in out.splitlines()
                         if line.startswith("length")))
-    print(f"fixes {n}, {path.stat().st_size if path.exists() else 0} bytes, drive covers "
+    print(f"fixes {n}, {size / 1e6:.1f} MB of CSV, drive covers "
           f"{covered / 1000:.1f} km of road")
     print("| fixes | median wall s | runs s | peak memory MB | length error |")
     print("|---:|---:|---|---:|---:|")
