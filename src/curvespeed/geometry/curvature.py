@@ -41,6 +41,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.interpolate import BSpline
 
+from .alignment import reconstruct
 from .pspline import (SPLINE_DEGREE, SplineFit, null_space_fit, null_space_spline,
                       penalised_system)
 
@@ -122,6 +123,8 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
     kappa = np.array([sc.kappa for sc in scales])
     sd = np.array([np.sqrt(sc.sum_sq / REPLICATES) for sc in scales])
     width = np.array([sc.width for sc in scales])
+    rebuilt = _reconstruction(fit, u_points, values, weight, u_nodes, station, time,
+                              drift_rate, seed)
     chosen = _choose_scales(kappa, sd, width, station)
     level = _ramp(chosen, station, RAMP_WIDTHS * float(np.median(width[0])))
     idx = np.arange(station.size)
@@ -141,7 +144,60 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
             bound[valid] = np.minimum(bound[valid], own[valid])
     # and never below the estimate used plus its uncertainty, widened by the finest spread
     bound = np.maximum(bound, _running_max(np.abs(k) + GAMMA * s, station, width[0]))
+    if rebuilt is not None:
+        use = _trusted(rebuilt, k, s, w, station)
+        bound = np.where(use, np.where(rebuilt.near_step, np.maximum(rebuilt.bound, bound),
+                                       rebuilt.bound), bound)
+        # where a step may lie the reconstruction cannot say how the curvature gets there (a
+        # jump, or a clothoid too short to resolve): the adaptive estimate stays
+        use &= ~rebuilt.near_step
+        k, s = np.where(use, rebuilt.kappa, k), np.where(use, rebuilt.sd, s)
     return CurvatureEstimate(k, s, bound, w, level)
+
+
+#: The scale the design alignment is read from: one doubling finer than the path fit, so a
+#: break of curvature is spread over half the length (its extra noise is averaged out again by
+#: the straight lines fitted over whole elements).
+ALIGNMENT_LEVEL = -1
+
+
+def _reconstruction(fit, u_points, values, weight, u_nodes, station, time, drift_rate, seed):
+    """The piecewise-linear curvature of the design alignment (:mod:`.alignment`), or None."""
+    if fit.periodic:        # not yet: a loop's elements would need the seam closed
+        return None
+    fine = _Scale.build(fit, u_points, values, weight, u_nodes, ALIGNMENT_LEVEL)
+    if fine is None or station.size < 3:
+        return None
+    fine.deltas = []
+    for c in range(REPLICATES // _CHUNK):
+        fine.add_replicates(_noise_chunk(seed, c, weight, time, drift_rate), u_nodes)
+    return reconstruct(station, fine.kappa, np.hstack(fine.deltas),
+                       float(np.median(fine.width)), GAMMA)
+
+
+def _trusted(rebuilt, kappa, sd, width, station) -> np.ndarray:
+    """Stations whose element of the reconstruction agrees with the adaptive estimate.
+
+    An element is trusted when, at every station of it farther from its ends than twice the
+    adaptive estimate's own spread (which blurs the breaks and rings beyond them), the two agree within GAMMA times their
+    combined standard deviations, and at least a quarter of it (and 5 stations) lies that far
+    from its ends; or, for an element too short for that, when the fine estimate follows its
+    line within its own, small, uncertainty (``Reconstruction.follows``). A road that is not made
+    of such elements (a driven line, a curve the fine scale cannot resolve) keeps the adaptive
+    estimate."""
+    edges = np.concatenate(([station[0] - 1.0], rebuilt.breaks_m, [station[-1] + 1.0]))
+    element = np.searchsorted(edges, station, side="right") - 1
+    start, end = edges[element], edges[element + 1]
+    inside = (station - start > 2 * width) & (end - station > 2 * width)   # its ringing too
+    disagree = inside & (np.abs(rebuilt.kappa - kappa) > GAMMA * (rebuilt.sd + sd))
+    n_elements = edges.size - 1
+    checked = np.bincount(element[inside], minlength=n_elements)
+    total = np.bincount(element, minlength=n_elements)
+    # an element too short to be compared away from its ends is not trusted either
+    trusted = (checked >= np.maximum(5, 0.25 * total)) & (np.bincount(
+        element[disagree], minlength=n_elements) == 0)
+    # too short to compare, but the fine estimate follows its line closely and precisely
+    return trusted[element] | (rebuilt.follows & ~np.isin(element, np.unique(element[disagree])))
 
 
 #: Replicates generated and smoothed at a time.
@@ -170,6 +226,7 @@ class _Scale:
         self.system, self.rho, self.n_int, self.periodic = system, rho, n_int, periodic
         self.kappa, self.d1, self.d2, self.width = kappa, d1, d2, width
         self.sum_sq = np.zeros_like(kappa)
+        self.deltas: list[np.ndarray] | None = None    # the replicates' changes, when kept
 
     @classmethod
     def build(cls, fit, u_points, values, weight, u_nodes, level) -> "_Scale | None":
@@ -202,7 +259,10 @@ class _Scale:
         e2 = pert(u_nodes, nu=2).reshape(u_nodes.size, 2, -1)
         p1, p2 = self.d1[:, :, None] + e1, self.d2[:, :, None] + e2
         varied = _cross(p1, p2) / np.hypot(p1[:, 0], p1[:, 1]) ** 3
-        self.sum_sq += np.sum((varied - self.kappa[:, None]) ** 2, axis=1)
+        change = varied - self.kappa[:, None]
+        self.sum_sq += np.sum(change**2, axis=1)
+        if self.deltas is not None:
+            self.deltas.append(change)
 
 
 def _null_space_estimate(fit, u_points, weight, u_nodes, noise) -> CurvatureEstimate:
