@@ -274,13 +274,15 @@ def test_station_step_changes_total_time_little():
     assert t_open[0] == pytest.approx(t_open[1], rel=2e-3)
 
 
-def test_station_step_effect_of_starting_and_ending_at_rest():
+def test_starting_and_ending_at_rest_converges_like_the_rest_of_the_route():
     # Starting and ending at rest, the jerk ramp (here a / j = 0.75 s, 0.14 m) lies inside the
-    # first 1 m step, which the step model takes as one constant-jerk step: about 0.4 s slower
-    # at each end than at 0.25 m. That is an O(ds^(1/3)) effect at rest, known and stated; the
-    # rest of the route converges as above. Bound: 0.5 s per end of a 2 km route.
+    # first 1 m step, which the step next to rest drives exactly (ramp, then constant
+    # acceleration), so leaving and reaching rest add nothing that depends on the station step:
+    # the route converges as the one entered and left at speed above, within 0.2 % (measured
+    # 0.05 %, from the curves; a step of constant jerk over the whole first metre used to cost
+    # about 0.4 s at each end).
     t = _times_at((1.0, 0.25), closed=False)
-    assert 0 <= t[0] - t[1] <= 1.0
+    assert t[0] == pytest.approx(t[1], rel=2e-3)
 
 
 def test_comfort_weight_trades_time_for_smoothness():

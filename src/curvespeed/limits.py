@@ -188,6 +188,13 @@ class Stop:
     origin: str = ""
 
 
+def stop_node(station_m: float, ds: float, n_nodes: int, closed: bool) -> int:
+    """The node a stop at ``station_m`` is placed on: the nearest station (node 0 for the end
+    of a closed route)."""
+    k = int(round(station_m / ds))
+    return 0 if closed and k == n_nodes - 1 else k
+
+
 @dataclass(frozen=True)
 class Superelevation:
     """Cross-slope over a station range.

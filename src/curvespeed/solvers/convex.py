@@ -248,6 +248,40 @@ class _QPBuilder:
         L.sum_duplicates()
         return L, np.concatenate((rhs, rhs))
 
+    def _jerk_rows(self, b_hat: np.ndarray):
+        """Rows ``+-D[node] b <= scale J ds (2 / w_hat - w_up(b) / w_hat^2)`` for every term of
+        the jerk's time base (:attr:`SpeedProblem.jerk_terms`).
+
+        A term bounds the time base by ``scale ds / w`` with ``w`` a weighted sum of square
+        roots, concave in ``b``: its tangent ``w_up`` at ``b_hat`` bounds it from above, so
+        ``1 / w >= 1 / w_up``, and the tangent of the convex ``1 / x`` at ``w_hat`` bounds that
+        from below. Both keep the row inside the true bound for any ``b_hat > 0``; a fixed
+        station's speed is known exactly. A term of scale 0 asks for no change at all.
+        """
+        p, lay = self.p, self.lay
+        t = p.jerk_terms
+        J = p.limits.max_jerk_mps3 * (1.0 - self.opt.margin)
+        root = np.where(lay.fixed, np.sqrt(np.maximum(lay.fixed_value, 0.0)),
+                        np.sqrt(np.maximum(b_hat, _B_FLOOR)))
+        base = np.where(lay.fixed, lay.fixed_value, b_hat)
+        cols = (t.prev, t.node, t.next)
+        w_hat = sum(t.weights[:, i] * root[c] for i, c in enumerate(cols))
+        w_hat = np.where(w_hat > 0.0, w_hat, 1.0)
+        coef = t.scale * J * self.ds / (w_hat * w_hat)
+        slopes = []
+        for i, c in enumerate(cols):
+            exact = lay.fixed[c] | (t.weights[:, i] == 0.0)
+            slopes.append(np.where(exact, 0.0, coef * t.weights[:, i]
+                                   / np.where(exact, 1.0, 2.0 * root[c])))
+        rhs = t.scale * J * self.ds / w_hat + sum(g * base[c] for g, c in zip(slopes, cols))
+        m = t.node.size
+        G = sp.coo_matrix((np.concatenate(slopes),
+                           (np.tile(np.arange(m), 3), np.concatenate(cols))),
+                          shape=(m, lay.nv)).tocsr()
+        G.sum_duplicates()
+        Dn = self.D[t.node]
+        return sp.vstack([Dn + G, -Dn + G], format="csr"), np.concatenate((rhs, rhs))
+
     def build(self, b_hat: np.ndarray):
         p, lay, ds = self.p, self.lay, self.ds
         nv = lay.nv
@@ -350,45 +384,10 @@ class _QPBuilder:
 
         # jerk rows: |D b| <= R(b), R linear (tangent, see module docstring)
         if lay.jerk:
-            J = lim.max_jerk_mps3 * (1.0 - margin)
-            k = np.arange(nv)
-            hp, hn = lay.j_has_prev, lay.j_has_next
-            # tau >= ds / w with w = sum c sqrt(b) (Jensen; see module docstring): interior
-            # w = (v_prev + v)/(2 c_before) + (v + v_next)/(2 c_after); at an open end the
-            # virtual outside step has zero acceleration and tau is half the real step
-            # only constant-acceleration sides (time coefficient 2) add time to tau; a
-            # constant-jerk step's value stands at the node itself
-            lin_b = hp & (lay.time_coef[lay.step_before] == 2.0)
-            lin_a = hn & (lay.time_coef[lay.step_after] == 2.0)
-            both = lin_b & lin_a
-            c_prev = np.where(both, 0.25, np.where(lin_b, 1.0, 0.0))
-            c_next = np.where(both, 0.25, np.where(lin_a, 1.0, 0.0))
-            c_self = np.where(both, 0.5, np.where(lin_b | lin_a, 1.0, 0.0))
-            sq = np.sqrt(np.maximum(b_hat, _B_FLOOR))
-            w_hat = c_prev * sq[lay.j_prev] + c_self * sq + c_next * sq[lay.j_next]
-            w_hat = np.where(w_hat > 0, w_hat, 1.0)    # rows with tau = 0 are handled below
-            coef = J * ds / (w_hat * w_hat)
-            g_prev = np.where(free[lay.j_prev], coef * c_prev / (2 * sq[lay.j_prev]), 0.0)
-            g_self = np.where(free, coef * c_self / (2 * sq), 0.0)
-            g_next = np.where(free[lay.j_next], coef * c_next / (2 * sq[lay.j_next]), 0.0)
-            g_prev = np.where(hp, g_prev, 0.0)
-            g_next = np.where(hn, g_next, 0.0)
-            no_time = (c_self == 0.0)
-            g_prev, g_self, g_next = (np.where(no_time, 0.0, g) for g in (g_prev, g_self, g_next))
-            alpha0 = (J * ds / w_hat + g_prev * b_hat[lay.j_prev] + g_self * b_hat
-                      + g_next * b_hat[lay.j_next])
-            G = sp.coo_matrix((np.concatenate((g_prev, g_self, g_next)),
-                               (np.concatenate((k, k, k)),
-                                np.concatenate((lay.j_prev, k, lay.j_next)))),
-                              shape=(nv, nv)).tocsr()
-            G.sum_duplicates()
-            # a node where both steps have zero acceleration (a rest node) has no jerk row
-            active = np.abs(self.D).sum(axis=1).A1 > 0
-            # tau = 0 (between two constant-jerk steps): the accelerations must match exactly
-            alpha0 = np.where(active, np.where(no_time, 0.0, alpha0), np.inf)
-            blocks += [self.D + G, -self.D + G]
-            lows += [np.full(nv, -np.inf), np.full(nv, -np.inf)]
-            ups += [alpha0, alpha0]
+            J, up_j = self._jerk_rows(b_hat)
+            blocks.append(J)
+            lows.append(np.full(J.shape[0], -np.inf))
+            ups.append(up_j)
 
         if lim.max_lateral_jerk_mps3 is not None:
             L, up_l = self._lateral_jerk_rows(b_hat)
