@@ -7,6 +7,8 @@ refining the grid changes little, and infeasible requests are explained.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import pytest
 
@@ -298,13 +300,32 @@ def test_comfort_weight_trades_time_for_smoothness():
 def test_a_stop_too_close_for_the_start_speed_is_explained():
     # From 20 m/s at 2 m/s^2 braking needs 100 m; with jerk 1 m/s^3 it needs
     # 20^2 / (2 * 2) + 20 * 2 / (2 * 1) = 120 m (jerk-limited stop, see the reference tests).
-    # A stop at 110 m is within the envelope's reach but not the jerk-limited one's.
+    # A stop at 110 m is within the envelope's reach but not the jerk-limited one's. The message
+    # names the stop as the user gave it (station and origin), not a station of the grid, and
+    # the fastest start speed that stops there: v^2 / 4 + v = 110, v = 2 (sqrt(111) - 1).
     geo = geometry_from_curvature(np.zeros(401), ds=1.0)
     limits = Limits(max_jerk_mps3=1.0, max_speed_mps=25.0, max_decel_mps2=2.0)
     problem = build_problem(geo, limits, RouteConstraints(start_speed_mps=20.0,
-                                                          stops=(Stop(110.0),)))
+                                                          stops=(Stop(110.0, "--stop"),)))
+    fastest = 2.0 * (math.sqrt(111.0) - 1.0)
     with pytest.raises(InfeasibleError,
-                       match=r"stop at station 110\.0 m needs 120\.0 m .* only 110\.0 m"):
+                       match=rf"--stop: the stop at station 110 m is 110\.0 m from the start, "
+                             rf"too close .* start speed 20\.00 m/s: .* takes 120\.0 m .* "
+                             rf"Lower the start speed to {fastest:.2f} m/s or less, move the "
+                             rf"stop to 120\.0 m or more"):
+        solve_convex(problem)
+
+
+def test_a_stop_the_envelope_cannot_reach_is_named_as_given():
+    # From 20 m/s even without the jerk bound a stop needs 100 m at 2 m/s^2: a stop at 60.4 m
+    # (on the 1 m grid: station 60) is refused by the envelope, which runs first, naming the
+    # stop as given in the limits file, not the station before it where braking must end.
+    geo = geometry_from_curvature(np.zeros(401), ds=1.0)
+    limits = Limits(max_jerk_mps3=1.0, max_speed_mps=25.0, max_decel_mps2=2.0)
+    stop = Stop(60.4, "limits.toml [[stop]] #1")
+    problem = build_problem(geo, limits, RouteConstraints(start_speed_mps=20.0, stops=(stop,)))
+    with pytest.raises(InfeasibleError, match=r"limits\.toml \[\[stop\]\] #1: the stop at "
+                                              r"station 60\.4 m is 60\.0 m from the start"):
         solve_convex(problem)
 
 

@@ -118,6 +118,38 @@ _POSITIVE = ("friction_coefficient", "max_lateral_accel_mps2", "max_accel_mps2",
              "max_power_w", "mass_kg", "air_density_kgpm3", "gravity_mps2")
 _NON_NEGATIVE = ("drag_area_m2", "rolling_resistance_coefficient")
 
+#: Values no vehicle on a road can have, refused: name -> (lowest, highest, why). Sources are
+#: common practice unless named.
+PHYSICAL_RANGES = {
+    "friction_coefficient": (0.0, 2.0, "tyre-road friction is about 0.7-0.9 on dry asphalt, "
+                             "0.1 on ice, below 2 even for racing tyres"),
+    "lateral_friction_coefficient": (0.0, 2.0, "tyre-road friction is about 0.7-0.9 on dry "
+                                     "asphalt, 0.1 on ice, below 2 even for racing tyres"),
+    "air_density_kgpm3": (0.3, 2.0, "air is 1.225 kg/m^3 at sea level in the standard "
+                          "atmosphere, about 1.4 on a very cold day and 0.7 at 5,000 m, above "
+                          "the highest roads"),
+    "drag_area_m2": (0.0, 20.0, "drag coefficient times frontal area is about 0.5-1 m^2 for "
+                     "cars and up to about 10 m^2 for trucks and buses"),
+    "rolling_resistance_coefficient": (0.0, 0.5, "tyres roll at about 0.01 on asphalt and "
+                                       "0.3 in sand"),
+    "mass_kg": (1.0, 1e7, "from a few kg for a small robot to about 10,000 t for the heaviest "
+                "trains"),
+    "gravity_mps2": (9.7, 10.0, "gravity at the Earth's surface is 9.78-9.83 m/s^2"),
+    "max_accel_mps2": (0.01, math.inf, "below 0.01 m/s^2 a vehicle would take over 100 s to "
+                       "gain 1 m/s"),
+    "max_decel_mps2": (0.01, math.inf, "below 0.01 m/s^2 a vehicle would take over 100 s to "
+                       "lose 1 m/s"),
+    "max_lateral_accel_mps2": (0.01, math.inf, "below 0.01 m/s^2 even a 1 km curve would be "
+                               "taken at 3 m/s"),
+    "max_jerk_mps3": (0.01, math.inf, "below 0.01 m/s^3 taking up 1 m/s^2 would last 100 s"),
+    "max_lateral_jerk_mps3": (0.01, math.inf, "below 0.01 m/s^3 entering a curve at 1 m/s^2 "
+                              "would last 100 s"),
+}
+
+#: Power over mass below this, W/kg, is most likely a power in kW under the W key (a loaded
+#: truck has about 5 W/kg, a passenger car 30-150 W/kg): warned about, not refused.
+MIN_PLAUSIBLE_POWER_WPKG = 1.0
+
 #: A top speed above this, m/s (360 km/h, about the fastest scheduled trains), is most likely a
 #: value in km/h under the m/s key: warned about, not refused.
 MAX_PLAUSIBLE_SPEED_MPS = 100.0
@@ -141,9 +173,12 @@ def validate_limits(limits: Limits, where: str = "limits", warn: bool = True) ->
             raise LimitsError(f"{where}: {name} must be positive, got {value:g}")
         if name in _NON_NEGATIVE and value < 0:
             raise LimitsError(f"{where}: {name} must be zero or positive, got {value:g}")
-    if limits.friction_coefficient > 2.0:
-        raise LimitsError(f"{where}: friction_coefficient {limits.friction_coefficient:g} is not "
-                          "a tyre-road value (dry asphalt is about 0.7-0.9); check the units")
+    for name, (low, high, why) in PHYSICAL_RANGES.items():
+        value = getattr(limits, name)
+        if value is not None and not low <= value <= high:
+            span = f"below {low:g}" if high == math.inf else f"outside {low:g}..{high:g}"
+            raise LimitsError(f"{where}: {name} = {value:g} is {span}, which no vehicle has: "
+                              f"{why}; check the value and its units")
     if limits.max_power_w is not None and limits.mass_kg is None:
         raise LimitsError(f"{where}: max_power_w needs mass_kg (drive acceleration is P/(m v))")
     if limits.drag_area_m2 and limits.mass_kg is None:
@@ -151,6 +186,12 @@ def validate_limits(limits: Limits, where: str = "limits", warn: bool = True) ->
                           "rho Cd A v^2 / (2 m))")
     if not warn:
         return limits
+    if limits.power_per_mass_wpkg < MIN_PLAUSIBLE_POWER_WPKG:
+        warnings.warn(
+            f"{where}: max_power_w = {limits.max_power_w:g} W for mass_kg = {limits.mass_kg:g} is "
+            f"{limits.power_per_mass_wpkg:.3g} W/kg, less than a loaded truck (about 5 W/kg): "
+            "the vehicle crawls up every grade; if the power is in kW, multiply by 1000",
+            CurvespeedWarning, stacklevel=2)
     if limits.max_speed_mps > MAX_PLAUSIBLE_SPEED_MPS:
         warnings.warn(
             f"{where}: max_speed_mps = {limits.max_speed_mps:g} m/s is "

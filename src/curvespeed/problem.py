@@ -120,6 +120,8 @@ class SpeedProblem:
         Shape ``u`` of each step next to rest (:mod:`curvespeed.rest_step`); NaN elsewhere.
     jerk_terms : JerkTimeTerms
         The time base of the jerk at each node (:meth:`node_jerk_time`).
+    stops : tuple of Stop
+        The stops as the user gave them (station and origin), for messages.
     """
 
     station_m: np.ndarray
@@ -144,6 +146,7 @@ class SpeedProblem:
     accel_factor_end: np.ndarray
     rest_u: np.ndarray
     jerk_terms: JerkTimeTerms
+    stops: tuple = ()
 
     @property
     def n_nodes(self) -> int:
@@ -296,7 +299,8 @@ def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstrai
         sin_grade=np.sin(gamma), cos_grade=np.cos(gamma),
         cap_b=cap, cap_source=source, b_start=b_start, b_end=b_end,
         stop_nodes=np.array(sorted(set(stop_nodes)), dtype=int), limits=limits,
-        source=geometry.source, jerk_model=bool(jerk_model), time_coef=np.full(steps, 2.0),
+        source=geometry.source, stops=tuple(constraints.stops), jerk_model=bool(jerk_model),
+        time_coef=np.full(steps, 2.0),
         accel_factor_start=np.ones(steps), accel_factor_end=np.ones(steps),
         rest_u=np.full(steps, np.nan),
         jerk_terms=jerk_time_terms(n, geometry.closed, np.full(steps, np.nan), np.ones(steps)))

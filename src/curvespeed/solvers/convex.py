@@ -48,6 +48,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
+from ..diagnose import stop_out_of_reach
 from ..errors import CurvespeedWarning, InfeasibleError, SolverError
 from ..problem import SpeedProblem
 from . import SolveResult, SolveStatus
@@ -318,8 +319,6 @@ class _QPBuilder:
 
         # acceleration rows: each step at each of its nodes, each side, each segment
         sf, st = lay.step_from, lay.step_to
-        a_tol_hi = margin * lim.max_accel_mps2
-        a_tol_lo = margin * lim.max_decel_mps2
         # A concave hi (convex lo) is replaced by its chords on [0, m] and [m, e]; where the
         # single chord on [0, e] is within chord_tolerance of it at m (straights, gentle curves)
         # that one row is enough. Rows identical at both ends of a step are kept once.
@@ -329,6 +328,9 @@ class _QPBuilder:
                 f = hi_pts if side == "hi" else lo_pts
                 f0, fm, fe = f[0][end], f[1][end], f[2][end]
                 p0, pm_, pe = pts[0][end], pts[1][end], pts[2][end]
+                # tightened by `margin` of the bound itself, not of the cap: a cap far above
+                # what grip allows (max_accel 1e6) must not tighten the grip rows by 10 m/s^2
+                a_tol = margin * np.maximum(np.maximum(np.abs(f0), np.abs(fm)), np.abs(fe))
                 wide = pe - p0 > 1e-12
                 whole = np.where(wide, (fe - f0) / np.where(wide, pe - p0, 1.0), 0.0)
                 dev = np.abs(fm - (f0 + whole * (pm_ - p0)))
@@ -353,10 +355,10 @@ class _QPBuilder:
                     else:
                         rows_seen[key] = (c_from, c_to, rhs)
                     if side == "hi":
-                        up = np.where(ok, rhs - a_tol_hi, np.inf)
+                        up = np.where(ok, rhs - a_tol, np.inf)
                         add_rows(sf, c_from, st, c_to, np.full(sf.size, -np.inf), up)
                     else:
-                        lo = np.where(ok, rhs + a_tol_lo, -np.inf)
+                        lo = np.where(ok, rhs + a_tol, -np.inf)
                         add_rows(sf, c_from, st, c_to, lo, np.full(sf.size, np.inf))
 
         # power: tangents of P/(m sqrt(b)) - res(b) at m and e (drive side only)
@@ -369,7 +371,8 @@ class _QPBuilder:
                     res1 = p.resistance(1.0, nodes=end) - res0      # d res / d b
                     f0 = pm / np.sqrt(bq)
                     slope = -0.5 * pm / bq ** 1.5 - res1
-                    rhs = f0 - res0 - res1 * bq - slope * bq - a_tol_hi
+                    bound = f0 - res0 - res1 * bq                   # the limit at bq
+                    rhs = bound - slope * bq - margin * np.abs(bound)
                     c_from, c_to = _accel_minus_slope(end is sf, fac * h, slope)
                     add_rows(sf, c_from, st, c_to, np.full(sf.size, -np.inf), rhs)
 
@@ -823,21 +826,16 @@ def _line_search(b0, b1, f0, objective, iterations: int = 30):
 
 
 def _explain_infeasible(problem: SpeedProblem) -> str:
-    """Say why no jerk-limited profile exists, naming the first constraint that cannot be met."""
+    """Say why no jerk-limited profile exists, naming the first constraint that cannot be met.
+
+    The envelope (no jerk bound) was found before, so every station is drivable and every
+    constraint reachable without the jerk bound; what is left is a stop too close to the start
+    for a jerk-limited stop (named as the user gave it), or the jerk bounds themselves.
+    """
     lim = problem.limits
-    j = lim.max_jerk_mps3
-    a = lim.max_decel_mps2
-    if problem.b_start:
-        v0 = math.sqrt(problem.b_start)
-        # jerk-limited stop from v0 (double-S by symmetry): v0^2/(2a) + v0 a/(2j) if v0 j >= a^2
-        need = v0 * v0 / (2 * a) + v0 * a / (2 * j) if v0 * j >= a * a else v0 * math.sqrt(v0 / j)
-        for k in problem.stop_nodes:
-            avail = problem.station_m[k] - problem.station_m[0]
-            if need > avail:
-                return (f"{problem.source}: start speed {v0:.2f} m/s: the stop at station "
-                        f"{problem.station_m[k]:.1f} m needs {need:.1f} m of jerk-limited "
-                        f"braking (decel {a:g} m/s^2, jerk {j:g} m/s^3) but only {avail:.1f} m "
-                        "are available; lower the start speed or move the stop")
+    at_stop = stop_out_of_reach(problem, jerk=True)
+    if at_stop is not None:
+        return at_stop
     if lim.max_lateral_jerk_mps3 is not None:
         return (f"{problem.source}: no speed profile satisfies the jerk bounds together with the "
                 "other limits and constraints (stops, zones, start and end speed); a fixed "
