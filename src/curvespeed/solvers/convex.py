@@ -34,7 +34,9 @@ when the objective (the time, plus any comfort term) improves by less than ``rel
 of the route's time.
 
 Stops and stations held at a speed cap cut the route into independent stretches (blocks); they
-are grouped into batches, one QP each, solved at once on the processor's cores.
+are grouped into batches of about :data:`_BATCH_VARIABLES` stations (by their sizes alone, so
+the answer is the same for any number of threads), one QP each, solved at once on the
+processor's cores.
 """
 
 from __future__ import annotations
@@ -86,7 +88,8 @@ class ConvexOptions:
         envelope's route time (a thousandth of ``rel_improvement``: finer than the stopping test
         can see, and it spares the interior-point method the last few iterations).
     threads : int or None
-        Worker threads that solve independent batches of the QP at once; None uses every
+        Worker threads that solve independent batches of the QP at once (the batches, and so
+        the answer, do not depend on it); None uses every
         processor core this process may run on.
     anchor_plateaus : bool
         Hold the middle of long stretches where the envelope sits at a speed cap (see
@@ -638,11 +641,12 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
             row_block = node_block[free_idx][A.indices[A.indptr[:-1]]]
             # Blocks are solved in batches: one QP per batch is block-diagonal, so each block's
             # part of its answer is that block's own optimum, while the fixed cost of a solver
-            # call is paid once per batch rather than once per block. Batches are balanced over
-            # the worker threads (Clarabel releases the interpreter lock while it solves).
+            # call is paid once per batch rather than once per block. The batches follow from
+            # the blocks' sizes alone, so every thread count solves the very same QPs; the worker
+            # threads share them out (Clarabel releases the interpreter lock while it solves).
             gap_abs = options.qp_gap_fraction * t_total * qp["scale"]
             jobs = []
-            for batch in _batches(np.flatnonzero(active), blocks, threads):
+            for batch in _batches(np.flatnonzero(active), blocks):
                 cols = np.concatenate([blocks[k] for k in batch])
                 rows = np.flatnonzero(np.isin(row_block, batch))
                 sub = (P[cols][:, cols], qp["q"][cols], A[rows][:, cols], qp["lo"][rows],
@@ -696,29 +700,27 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
     return b_hat, status, iterations, qp_iterations, notes
 
 
-#: Largest batch of independent blocks solved in one QP (variables).
-_BATCH_VARIABLES = 20_000
-#: Smallest share worth a worker thread of its own (variables): below it, the fixed cost of a
-#: solver call outweighs the parallel gain.
-_MIN_SHARE_VARIABLES = 500
+#: Size of a batch of independent blocks solved in one QP (variables): the route's free stations
+#: are cut into about this many per batch, whatever the number of threads, so each QP -- and
+#: therefore the answer, to the byte -- is the same for any number of threads; the threads only
+#: share the batches out. Small enough that a few cores get balanced work on a 10 km route (about 7 batches),
+#: large enough that the fixed cost of a solver call stays small (measured: the same solve
+#: times as the thread-dependent batching it replaces, within the machine's noise).
+_BATCH_VARIABLES = 1_000
 
 
-def _batches(block_ids, blocks, threads: int):
-    """Group block ids, in route order, into batches for ``threads`` workers.
+def _batches(block_ids, blocks):
+    """Group block ids, in route order, into batches of about ``_BATCH_VARIABLES`` variables.
 
-    The number of batches is a multiple of the workers used (``threads``, fewer when a share
-    would be under ``_MIN_SHARE_VARIABLES``) and large enough that none exceeds about
-    ``_BATCH_VARIABLES``; cuts fall at the block boundaries nearest to equal shares, so the
-    workers finish together.
+    The number of batches follows from the variables alone (never from the number of threads);
+    cuts fall at the block boundaries nearest to equal shares.
     """
     ids = list(block_ids)
     if not ids:
         return []
     sizes = np.array([blocks[k].size for k in ids], dtype=float)
     total = float(sizes.sum())
-    workers = max(1, min(threads, int(total // _MIN_SHARE_VARIABLES)))
-    n = max(1, math.ceil(total / _BATCH_VARIABLES))
-    n = math.ceil(n / workers) * workers
+    n = max(1, round(total / _BATCH_VARIABLES))
     ends = np.cumsum(sizes)
     cuts = sorted({int(np.argmin(np.abs(ends - total * j / n))) + 1 for j in range(1, n)})
     out, start = [], 0
