@@ -34,9 +34,9 @@ Stops and start/end speeds of the constraints are planning targets and are not c
 recorded drive only samples them approximately); they are ignored with a warning. Under a jerk
 bound a trace's own rest points (speed exactly zero: the ends of an open route, isolated
 stations) are rest points of the problem, so a jerk-limited start or stop is judged by the same
-cubic-step model the planner uses (:func:`rest_constraints`); at an open route's end where the
-trace is moving, only the jerk within the end step is checked (what came before the first
-station is unknown).
+model of a step next to rest the planner uses, a jerk ramp then constant acceleration
+(:func:`rest_constraints`); at an open route's end where the trace is moving, only the jerk
+within the end step is checked (what came before the first station is unknown).
 
 Each violation is a stretch of stations over one limit; stretches of the same kind less than
 ``CurveSettings.join_gap_m`` apart are reported as one (their worst point and use are kept).
@@ -599,7 +599,7 @@ def rest_constraints(used: RouteConstraints, speed_mps: np.ndarray,
                      geometry: Geometry) -> RouteConstraints:
     """``used`` plus the rest points of a speed trace, so a jerk bound is checked as planned.
 
-    Under a jerk bound a vehicle leaves and reaches rest along a cubic step (see
+    Under a jerk bound a vehicle leaves and reaches rest with a jerk ramp (see
     :mod:`curvespeed.problem`); a profile planned that way has exactly zero speed there. The
     trace's own rest points become the problem's: on an open route its first and last speeds are
     the start and end speeds, and every isolated station with speed exactly zero (at least three
