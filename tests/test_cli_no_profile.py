@@ -159,3 +159,31 @@ def test_export_keeps_the_first_and_last_sample_for_any_interval(tmp_path, optio
     assert cols["station_m"].tolist() == [0.0, 400.0]
     assert cols["time_s"][0] == 0.0
     assert cols["time_s"][-1] == pytest.approx(planned["time_s"][-1], abs=2e-6)
+
+
+def test_a_stop_at_the_end_as_typed_is_accepted_and_one_past_it_shows_the_true_length(tmp_path):
+    # A 400 m straight measures 399.9999999999997 m (round-off of the arc-length sum): a stop
+    # typed at 400 is at its end. A route 399.96 m long is written 399.96, not rounded up to a
+    # length that would contain the stop refused.
+    route = route_with_elevation(tmp_path, np.zeros(81))
+    out = tmp_path / "p.csv"
+    result = run("plan", route, "--stop", "200", "--stop", "400", "-o", out)
+    assert result.exit_code == 0, result.output
+    assert read_table_csv(out).columns["speed_mps"][-1] == 0.0
+    short = tmp_path / "short.csv"
+    short.write_text("x_m,y_m\n0.0,0.0\n200.0,0.0\n399.96,0.0\n")
+    out = tmp_path / "q.csv"
+    assert_refused(run("plan", short, "--stop", "400", "-o", out), out,
+                   "--stop: stop at station 400 m lies outside the route (0..399.96 m)")
+
+
+def test_stops_on_neighbouring_stations_never_give_a_profile_of_infinite_time(tmp_path):
+    # Without a jerk bound stops may be close, but two on neighbouring stations leave a step
+    # that is never driven: the plan is refused naming both, rather than written with
+    # time_s = inf.
+    route = route_with_elevation(tmp_path, np.zeros(81))
+    out = tmp_path / "p.csv"
+    assert_refused(run("plan", route, "--solver", "envelope", "--stop", "100", "--stop", "101",
+                       "-o", out), out,
+                   "at rest at 100 m (--stop) and 101 m (--stop), on neighbouring stations",
+                   "move them at least two station steps apart")

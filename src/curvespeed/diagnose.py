@@ -128,6 +128,15 @@ def standstill(problem: SpeedProblem, b: np.ndarray) -> str | None:
     if stuck is not None:
         return stuck
     k = int(dead[0])
+    stops = [st for st in problem.stops
+             if stop_node(st.station_m, problem.ds, problem.n_nodes, problem.closed) in (k, k + 1)]
+    if len(stops) >= 2 or problem.cap_b[k] == problem.cap_b[k + 1] == 0.0:
+        named = " and ".join(f"{st.station_m:g} m" + (f" ({st.origin})" if st.origin else "")
+                             for st in stops) or (f"{problem.station_m[k]:.1f} and "
+                                                 f"{problem.station_m[k + 1]:.1f} m")
+        return (f"{problem.source}: the vehicle must be at rest at {named}, on neighbouring "
+                f"stations {problem.ds:g} m apart, so it never covers the step between them; "
+                "merge the stops or move them at least two station steps apart")
     return (f"{problem.source}: the limits leave no speed at all between stations "
             f"{problem.station_m[k]:.1f} and {problem.station_m[k + 1]:.1f} m, so no profile "
             "gets past them; check the limits (units, drag and mass, the cross-slope) and the "

@@ -281,10 +281,21 @@ class RouteConstraints:
         return dataclasses.asdict(self)
 
 
+#: A station this close past either end of the route is at that end, m: the route's length is a
+#: sum of many arc-length pieces and carries their round-off (a 400 m straight measures
+#: 399.9999999999997 m), which no one can see in a station they type.
+END_TOLERANCE_M = 1e-3
+
+
 def validate_constraints(rc: RouteConstraints, length_m: float, closed: bool) -> RouteConstraints:
     """Check station ranges and values against the route; raise :class:`LimitsError`."""
     def here(item) -> str:
         return f"{item.origin}: " if item.origin else ""
+
+    # the route's span as a person reads it: its length cut (not rounded up) to the centimetre,
+    # so a station just past the end never looks inside it (round-off of 1e-8 cm aside)
+    route = f"(0..{math.floor(length_m * 100.0 + 1e-8) / 100.0:.2f} m)"
+    end = length_m + END_TOLERANCE_M
 
     for z in rc.zones:
         if not (math.isfinite(z.start_m) and math.isfinite(z.end_m) and z.end_m > z.start_m):
@@ -295,19 +306,17 @@ def validate_constraints(rc: RouteConstraints, length_m: float, closed: bool) ->
                               f"be positive, got {z.max_speed_mps:g} m/s (use a stop for zero)")
         if z.start_m >= length_m or z.end_m <= 0:
             raise LimitsError(f"{here(z)}speed zone {z.start_m:g}..{z.end_m:g} m lies outside the "
-                              f"route (0..{length_m:.1f} m); check its stations against the "
-                              "route summary")
-        if z.start_m < 0 or z.end_m > length_m:
+                              f"route {route}; check its stations against the route summary")
+        if z.start_m < -END_TOLERANCE_M or z.end_m > end:
             warnings.warn(f"{here(z)}speed zone {z.start_m:g}..{z.end_m:g} m runs past the route "
-                          f"(0..{length_m:.1f} m); it applies over "
+                          f"{route}; it applies over "
                           f"{max(z.start_m, 0.0):g}..{min(z.end_m, length_m):.1f} m only. Check "
                           "its stations against the route summary", CurvespeedWarning,
                           stacklevel=2)
     for s in rc.stops:
-        if not (math.isfinite(s.station_m) and 0 <= s.station_m <= length_m):
+        if not (math.isfinite(s.station_m) and -END_TOLERANCE_M <= s.station_m <= end):
             raise LimitsError(f"{here(s)}stop at station {s.station_m:g} m lies outside the route "
-                              f"(0..{length_m:.1f} m); check its station against the route "
-                              "summary")
+                              f"{route}; check its station against the route summary")
     for e in rc.superelevation:
         if not (math.isfinite(e.start_m) and math.isfinite(e.end_m) and e.end_m > e.start_m):
             raise LimitsError(f"{here(e)}superelevation {e.start_m:g}..{e.end_m:g} m: end must be "
