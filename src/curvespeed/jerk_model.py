@@ -19,7 +19,6 @@ from .errors import LimitsError
 from .limits import stop_node
 
 if TYPE_CHECKING:
-    from .limits import RouteConstraints
     from .problem import SpeedProblem
 
 
@@ -41,7 +40,7 @@ class JerkTimeTerms:
     scale: np.ndarray
 
 
-def rest_nodes(problem: SpeedProblem, constraints: RouteConstraints) -> np.ndarray:
+def rest_nodes(problem: SpeedProblem) -> np.ndarray:
     """Nodes where the vehicle is at rest (stops, ends at rest); refuses two closer than three
     station steps, which leaves no room for the ramps."""
     n, ds, s = problem.n_nodes, problem.ds, problem.station_m
@@ -56,7 +55,7 @@ def rest_nodes(problem: SpeedProblem, constraints: RouteConstraints) -> np.ndarr
     close = np.flatnonzero(np.diff(idx) < 3)
     if close.size:
         k0, k1 = idx[close[0]], idx[close[0] + 1]
-        origins = sorted({st.origin or "a stop" for st in constraints.stops
+        origins = sorted({st.origin or "a stop" for st in problem.stops
                           if stop_node(st.station_m, ds, n, problem.closed) in (k0, k1)})
         named = f" (from {', '.join(origins)})" if origins else ""
         raise LimitsError(f"{problem.source}: stations {s[k0]:.1f} and {s[k1]:.1f} m are "

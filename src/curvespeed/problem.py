@@ -66,8 +66,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import InfeasibleError, LimitsError
 from . import rest_step
+from .errors import InfeasibleError, LimitsError
 from .geometry import Geometry
 from .jerk_model import JerkTimeTerms, jerk_time_terms, rest_nodes, with_rest_steps
 from .limits import Limits, RouteConstraints, stop_node, validate_constraints, validate_limits
@@ -305,7 +305,7 @@ def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstrai
         rest_u=np.full(steps, np.nan),
         jerk_terms=jerk_time_terms(n, geometry.closed, np.full(steps, np.nan), np.ones(steps)))
     if jerk_model:
-        problem = with_rest_steps(problem, rest_nodes(problem, constraints))
+        problem = with_rest_steps(problem, rest_nodes(problem))
     return problem
 
 
