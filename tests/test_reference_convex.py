@@ -64,7 +64,9 @@ def planned_time(problem) -> float:
 
 # Rest to rest on a straight against the closed form, in each regime, at the default station
 # step (1 m) and at 0.5 m. Never faster than the closed form (the minimum over every
-# jerk-limited motion): the discrete model is built to be conservative (docs/method.md). How much
+# jerk-limited motion) for moves of these lengths: the discrete model is built to be conservative
+# (docs/method.md, which also gives the exception: moves shorter than about 45 m, whose
+# acceleration falls from its cap at low speed, up to 0.14 % faster at 10 m). How much
 # slower depends on whether the jerk ramp from rest to the acceleration limit (a^3 / (6 j^2) of
 # distance) fits in the first station step, which the step next to rest then drives exactly
 # (curvespeed.rest_step): where it does, the steps at speed are the only approximation left,
