@@ -180,28 +180,38 @@ def road_at_samples(alignment: Alignment, station_m, d, ds):
 
 def profile_jerk(sp: StationProfile) -> tuple[np.ndarray, np.ndarray]:
     """Jerk (m/s^3) between consecutive acceleration instants and the node of each (module
-    docstring: the profile's accelerations read as linear in time between their instants)."""
+    docstring: the profile's accelerations read as linear in time between their instants; a
+    step next to rest is a jerk ramp, then constant acceleration, as export drives it)."""
+    from curvespeed import rest_step
+
     t = sp.node_time_s
     T = sp.step_time_s
     a = sp.step_accel_mps2
-    cubic = sp.cubic_step
+    rest = sp.rest_step
     v = sp.speed_mps
+    ds = np.diff(sp.station_m)
     times, values, nodes = [], [], []
     for k in range(T.size):
-        if cubic[k]:
+        if rest[k]:
+            u = float(rest_step.shape_from_time_coef(sp.rest_time_coef[k]))
             leaving = v[k] <= 0.0
-            end = 2.0 * (v[k + 1] if leaving else -v[k]) / T[k]
-            pair = (0.0, end) if leaving else (end, 0.0)
-            times += [t[k], t[k + 1]]
-            values += list(pair)
-            nodes += [k, k + 1]
+            moving = v[k + 1] if leaving else v[k]
+            ramp = float(rest_step.ramp_time(u, moving, ds[k]))
+            flat = float(rest_step.accel_factor(u)) * moving * moving / (2.0 * ds[k])
+            if leaving:
+                times += [t[k], t[k] + ramp, t[k + 1]]
+                values += [0.0, flat, flat]
+            else:
+                times += [t[k], t[k + 1] - ramp, t[k + 1]]
+                values += [-flat, -flat, 0.0]
+            nodes += [k, k, k + 1]
         else:
             times.append(t[k] + 0.5 * T[k])
             values.append(a[k])
             nodes.append(k)
-    if not cubic[0]:
+    if not rest[0]:
         times.insert(0, 0.0), values.insert(0, 0.0), nodes.insert(0, 0)
-    if not cubic[-1]:
+    if not rest[-1]:
         times.append(t[-1]), values.append(0.0), nodes.append(T.size)
     times, values, nodes = np.array(times), np.array(values), np.array(nodes)
     dt, da = np.diff(times), np.diff(values)

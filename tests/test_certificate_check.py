@@ -111,7 +111,7 @@ def test_drive_planned_within_the_limits_is_not_flagged(tmp_path):
 
 
 def test_drive_planned_with_a_stop_under_the_jerk_bound_is_not_flagged(tmp_path):
-    # Under the jerk bound the planner leaves and reaches rest along cubic steps; the check
+    # Under the jerk bound the planner leaves and reaches rest with a jerk ramp; the check
     # takes the drive's own rest points (speed exactly 0) as rest, so it judges them the same.
     geo = bend()
     profile = plan_profile(geo, LIMITS, RouteConstraints(stops=(Stop(600.0),)))

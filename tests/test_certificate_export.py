@@ -14,6 +14,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from curvespeed import rest_step
 from curvespeed.errors import SpeedFileError
 from curvespeed.export import (SamplingMode, StationProfile, make_station_profile,
                                sample_by_station, sample_in_time)
@@ -205,11 +206,22 @@ def test_station_step_mode(planned, profile_csv):
         assert v[np.flatnonzero(np.isclose(s, stop, atol=1e-9))] == pytest.approx(0.0)
     assert t[-1] == pytest.approx(sp.moving_time_s + len(STOPS_M) * dwell,
                                   rel=CLOSED_FORM_RTOL)
-    # within one profile step the motion has constant acceleration or constant jerk, so the time
-    # between two samples follows exactly from their speeds and accelerations (interval_times)
-    # (not from a stop's sample: that carries the arrival time, and the dwell follows it)
+    # within one profile step the motion has constant acceleration, or constant jerk in the
+    # ramp of a step next to rest, so the time between two samples follows exactly from their
+    # speeds and accelerations (interval_times) -- not across the end of a ramp, where the two
+    # motions meet, and not from a stop's sample: that carries the arrival time, and the dwell
+    # follows it
     node = np.floor(s / sp.station_m[1] + 1e-9)
     same = (node[:-1] == node[1:]) & (v[:-1] > 0)
+    for k in np.flatnonzero(sp.rest_step):
+        leaving = sp.speed_mps[k] == 0.0
+        v_moving = sp.speed_mps[k + 1] if leaving else sp.speed_mps[k]
+        ds = sp.station_m[k + 1] - sp.station_m[k]
+        u = rest_step.shape_from_time_coef(sp.rest_time_coef[k])
+        t_ramp = rest_step.ramp_time(u, v_moving, ds)
+        d_ramp, _, _ = rest_step.leaving_state_at_time(u, v_moving, ds, t_ramp)
+        end = sp.station_m[k] + d_ramp if leaving else sp.station_m[k + 1] - d_ramp
+        same &= ~((s[:-1] < end) & (s[1:] > end))
     a = tr.accel_mps2
     predicted = interval_times(np.diff(s), v[:-1], v[1:], a[:-1], a[1:])
     np.testing.assert_allclose(np.diff(t)[same], predicted[same], rtol=1e-9)

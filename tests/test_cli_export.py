@@ -250,10 +250,12 @@ def edit_profile(path, tmp_path, line: int, column: str, value: str):
     (3, "speed_mps", "0.0", "line 2 (station 0.0 m): speed is zero here and at the next"),
     (50, "x_m", "abc", "line 50: column 'x_m' value 'abc' is not a number"),
     (40, "step_kind", "cubic", "line 40: column 'step_kind' value 'cubic' is not a step kind; "
-                               "use constant_accel or constant_jerk"),
+                               "use constant_accel, jerk_ramp or constant_jerk"),
     (40, "step_kind", "", "line 40: column 'step_kind' value '' is not a step kind"),
     (40, "step_kind", "constant_jerk", "line 40: column 'step_kind' value 'constant_jerk' is "
                                        "allowed only on a step with exactly one end at rest"),
+    (40, "step_kind", "jerk_ramp", "line 40: column 'step_kind' value 'jerk_ramp' is "
+                                   "allowed only on a step with exactly one end at rest"),
     (242, "step_kind", "junk", "line 242: column 'step_kind' value 'junk' is not a step kind"),
     (242, "step_kind", "constant_jerk", None),   # no step after the last row: its kind is ignored
 ])
@@ -318,6 +320,9 @@ def without_column(path, column: str, out):
 
 
 def test_plan_writes_the_kind_of_every_step(planned_with_stop):
+    from curvespeed import rest_step
+    from curvespeed.limits import DEFAULT_LIMITS as LIM
+
     _, profile = planned_with_stop
     table = read_table_csv(profile)
     names = list(table.columns)
@@ -327,13 +332,20 @@ def test_plan_writes_the_kind_of_every_step(planned_with_stop):
     rest = v <= 0.0
     assert rest[0] and rest[-1] and rest[np.argmin(abs(s - 100.0))] and rest.sum() == 3
     assert kinds[-1] == ""                                    # no step after the last station
-    cubic = kinds[:-1] == "constant_jerk"
-    np.testing.assert_array_equal(cubic, rest[:-1] != rest[1:])   # the 4 steps next to rest
-    assert set(kinds[:-1][~cubic]) == {"constant_accel"}
-    # the written times agree with the kinds (module docstring of curvespeed.problem): 3 ds / v
-    # next to rest, 2 ds / (v[k] + v[k+1]) elsewhere. Tolerance: stations are written to 0.1 mm
-    # (1e-4 of a ~1 m step), speeds and times to 1e-6; the kinds differ by a factor 1.5.
-    coef = np.where(cubic, 3.0, 2.0)
+    ramp = kinds[:-1] == "jerk_ramp"
+    np.testing.assert_array_equal(ramp, rest[:-1] != rest[1:])    # the 4 steps next to rest
+    assert set(kinds[:-1][~ramp]) == {"constant_accel"}
+    # the written times agree with the kinds (curvespeed.problem, curvespeed.rest_step): on a
+    # straight the step leaving rest ramps at the jerk bound to the acceleration cap, the step
+    # arriving at rest from the deceleration cap, and takes c ds / v; 2 ds / (v[k] + v[k+1])
+    # elsewhere. Tolerance: stations are written to 0.1 mm (1e-4 of a ~1 m step), speeds and
+    # times to 1e-6; c differs from 2 by 0.57 and 0.78 here.
+    leaving = ramp & rest[:-1]
+    c_leave = rest_step.time_coef(rest_step.shape_for_accel(LIM.max_accel_mps2,
+                                                            LIM.max_jerk_mps3, 1.0))
+    c_arrive = rest_step.time_coef(rest_step.shape_for_accel(LIM.max_decel_mps2,
+                                                             LIM.max_jerk_mps3, 1.0))
+    coef = np.where(leaving, c_leave, np.where(ramp, c_arrive, 2.0))
     np.testing.assert_allclose(np.diff(t), coef * np.diff(s) / (v[:-1] + v[1:]),
                                rtol=2e-4, atol=2e-6)
 
@@ -344,32 +356,35 @@ def test_export_follows_the_step_kinds(planned_with_stop, tmp_path):
     result = run(export, profile, "--dt", "0.05", "--dwell", "2", "-o", out)
     assert result.exit_code == 0, result.output
     cols = read_table_csv(out).columns
-    # leaving rest at constant jerk: zero acceleration at the start, then rising
+    # leaving rest with a jerk ramp: zero acceleration at the start, then rising
     assert cols["accel_mps2"][0] == 0.0 and cols["accel_mps2"][1] > 0.0
-    # without time_s only step_kind tells which steps are driven at constant jerk: the same
-    # trajectory, to the byte
+    # a jerk_ramp step's shape follows from its time: without time_s it is refused, naming the
+    # first such step and what to do
     no_time = without_column(profile, "time_s", tmp_path / "no_time.csv")
-    same = tmp_path / "same.csv"
-    result = run(export, no_time, "--dt", "0.05", "--dwell", "2", "-o", same)
-    assert result.exit_code == 0, result.output
-    assert same.read_bytes() == out.read_bytes()
+    refused = run(export, no_time, "--dt", "0.05", "-o", tmp_path / "refused.csv")
+    assert refused.exit_code == 2
+    assert ("line 2: column 'step_kind' value 'jerk_ramp' needs the time_s column"
+            in refused.output)
+    assert not (tmp_path / "refused.csv").exists()
     # every step marked constant_accel: sampled that way, so it is a different trajectory that
-    # starts with the step's full acceleration and is shorter by ds / v on each step next to rest
-    s, v, kinds = (read_table_csv(no_time).columns[c]
-                   for c in ("station_m", "speed_mps", "step_kind"))
+    # starts with the step's full acceleration and is shorter by (c - 2) ds / v on each step
+    # next to rest
+    s, v, t, kinds = (read_table_csv(profile).columns[c]
+                      for c in ("station_m", "speed_mps", "time_s", "step_kind"))
     flat = tmp_path / "flat.csv"
-    flat.write_text(no_time.read_text().replace("constant_jerk", "constant_accel"))
+    flat.write_text(profile.read_text().replace("jerk_ramp", "constant_accel"))
     other = tmp_path / "other.csv"
-    result = run(export, flat, "--dt", "0.05", "--dwell", "2", "-o", other)
+    with pytest.warns(CurvespeedWarning, match="time_s differs"):     # its times disagree
+        result = run(export, flat, "--dt", "0.05", "--dwell", "2", "-o", other)
     assert result.exit_code == 0, result.output
     flat_cols = read_table_csv(other).columns
     # a = v1^2 / (2 ds) from the file's own values; written to 1e-6 m/s^2
     assert flat_cols["accel_mps2"][0] == pytest.approx(v[1] ** 2 / (2 * (s[1] - s[0])),
                                                        abs=1e-6)
-    cubic = kinds[:-1] == "constant_jerk"
-    saved = np.sum((np.diff(s) / (v[:-1] + v[1:]))[cubic])
-    # both totals come from the same file's stations and speeds; each is written to 1e-6 s
-    assert cols["time_s"][-1] - flat_cols["time_s"][-1] == pytest.approx(saved, abs=1e-6)
+    ramp = kinds[:-1] == "jerk_ramp"
+    saved = np.sum((np.diff(t) - 2.0 * np.diff(s) / (v[:-1] + v[1:]))[ramp])
+    # both totals come from the same file's stations, speeds and times; each is written to 1e-6 s
+    assert cols["time_s"][-1] - flat_cols["time_s"][-1] == pytest.approx(saved, abs=5e-6)
 
 
 def test_profile_without_step_kind_exports_as_before(planned_with_stop, tmp_path):
@@ -383,8 +398,8 @@ def test_profile_without_step_kind_exports_as_before(planned_with_stop, tmp_path
     result = run(export, old, "--station-step", "0.5", "-o", same)
     assert result.exit_code == 0, result.output
     assert same.read_bytes() == out.read_bytes()
-    # without either column nothing marks a step as constant jerk: constant acceleration
-    # everywhere, so the start has the first step's full acceleration
+    # without either column nothing marks a step as driven with a jerk ramp: constant
+    # acceleration everywhere, so the start has the first step's full acceleration
     bare = without_column(old, "time_s", tmp_path / "bare.csv")
     flat = tmp_path / "flat.csv"
     assert run(export, bare, "--station-step", "0.5", "-o", flat).exit_code == 0

@@ -264,14 +264,15 @@ REFUSED = {
         ["[[stop]] #1", "stop at station 900 m lies outside the route"]),
     "start speed that cannot stop in time": (
         "plan", {"r.csv": BEND}, ["{r.csv}", "--start-speed", "25", "--stop", "30", "-o", "{out}"],
-        None, ["start speed 25.00 m/s is too high", "lower the start speed"]),
+        None, ["--stop: the stop at station 30 m is 30.0 m from the start, too close to come "
+               "to rest from the start speed 25.00 m/s", "Lower the start speed to"]),
     "two stops closer than three station steps": (
         "plan", {"r.csv": BEND}, ["{r.csv}", "--stop", "60", "--stop", "61", "-o", "{out}"],
         None, ["both at rest", "move the stops apart"]),
     "profile with a step kind curvespeed does not know": (
         "export", {"p.csv": _profile_with_step_kind(6, "cubic")}, ["{p.csv}", "-o", "{out}"],
         "p.csv", ["line 6:", "'step_kind' value 'cubic' is not a step kind",
-                  "use constant_accel or constant_jerk", "remove the column"]),
+                  "use constant_accel, jerk_ramp or constant_jerk", "remove the column"]),
     "profile with a constant-jerk step away from rest": (
         "export", {"p.csv": _profile_with_step_kind(6, "constant_jerk")},
         ["{p.csv}", "-o", "{out}"], "p.csv",

@@ -227,7 +227,7 @@ def test_lateral_jerk_bound_is_kept_on_random_routes(case, bound):
         warnings.simplefilter("ignore", CurvespeedWarning)
         p = plan_profile(geo, limits, constraints)
     v, s = p.speed_mps, geo.station_m
-    step_time = np.where(p.cubic_step, 3.0, 2.0) * np.diff(s) / (v[:-1] + v[1:])
+    step_time = np.where(p.rest_step, p.rest_time_coef, 2.0) * np.diff(s) / (v[:-1] + v[1:])
     rate = np.diff(geo.curvature_1pm * v * v) / step_time
     assert np.abs(rate).max() <= bound * (1 + CONVEX_TOLERANCE)
     assert p.usage["lateral_jerk"] <= 1 + CONVEX_TOLERANCE

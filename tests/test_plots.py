@@ -138,8 +138,9 @@ def test_jerk_panel_shows_lateral_jerk_when_it_is_bounded(profile):
     art = plot_jerk(profile, LIMITS.replace(max_lateral_jerk_mps3=0.6))
     # per step: change of curvature * v^2 over the step time 2 ds / (v + v'), from the profile
     v, kappa, s = profile.speed_mps, profile.geometry.curvature_1pm, profile.geometry.station_m
-    step_time = 2 * np.diff(s) / (v[:-1] + v[1:])
-    step_time[profile.cubic_step] *= 1.5                   # 3 ds / v next to rest
+    # c ds / v next to rest (c between 2 and 3: the jerk ramp, curvespeed.rest_step)
+    coef = np.where(profile.rest_step, profile.rest_time_coef, 2.0)
+    step_time = coef * np.diff(s) / (v[:-1] + v[1:])
     np.testing.assert_allclose(art.lateral_line.get_ydata(), np.diff(kappa * v * v) / step_time,
                                rtol=1e-12, atol=1e-12)
     np.testing.assert_allclose(art.lateral_line.get_xdata(), 0.5 * (s[:-1] + s[1:]))

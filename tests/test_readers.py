@@ -565,13 +565,13 @@ def test_profile_step_kind_column_is_used_over_time_s(tmp_path):
     with pytest.warns(CurvespeedWarning, match=r"line 8 \(station 6\.0 m\): time_s differs by "
                                                r"2\.000 s"):
         sp = read_station_profile(rest_to_rest_profile(tmp_path, kinds))
-    np.testing.assert_array_equal(sp.cubic_step, [True, False, False, False, False, True])
+    np.testing.assert_array_equal(sp.rest_time_coef, [3.0, 0, 0, 0, 0, 3.0])
     assert sp.step_time_s[0] == sp.step_time_s[-1] == 3.0
     # the same file without the column: recognised from time_s, which says constant acceleration
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         sp = read_station_profile(rest_to_rest_profile(tmp_path, None))
-    assert not sp.cubic_step.any() and sp.step_time_s[0] == 2.0
+    assert not sp.rest_step.any() and sp.step_time_s[0] == 2.0
 
 
 def test_format_helpers():

@@ -50,24 +50,77 @@ def straight_problem(length, ds, limits, constraints=RouteConstraints()):
     return build_problem(geo, limits, constraints)
 
 
-# Rest to rest on a straight, within 1 % of the closed form in each regime. The station step
-# must resolve the jerk phases (a / j seconds, a few metres at low speed): at 0.5 m the
-# measured difference is below 0.1 %; at 1 m it grows to about 2 % in the short regimes, where
-# the whole jerk ramp fits into the first steps.
-@pytest.mark.parametrize("L, v, a, j, regime", [
-    (500.0, 20.0, 1.5, 1.0, "speed and acceleration limits reached"),
-    (200.0, 40.0, 1.5, 1.0, "only the acceleration limit reached"),
-    (200.0, 40.0, 3.0, 0.5, "neither limit reached"),
-])
-def test_rest_to_rest_time_matches_the_double_s_closed_form(L, v, a, j, regime):
-    limits = Limits(max_speed_mps=v, max_accel_mps2=a, max_decel_mps2=a, max_jerk_mps3=j,
-                    friction_coefficient=0.9)
-    problem = straight_problem(L, 0.5, limits)
+def straight_limits(v, a, j):
+    return Limits(max_speed_mps=v, max_accel_mps2=a, max_decel_mps2=a, max_jerk_mps3=j,
+                  friction_coefficient=0.9)
+
+
+def planned_time(problem) -> float:
     result = solve_convex(problem)
     check = verify_profile(problem, result.b, tolerance=1e-4)
     assert check.ok, check.violations
-    total = derive(problem, result.b)["time_s"][-1]
-    assert total == pytest.approx(double_s_time(L, v, a, j), rel=0.01), regime
+    return float(derive(problem, result.b)["time_s"][-1])
+
+
+# Rest to rest on a straight against the closed form, in each regime, at the default station
+# step (1 m) and at 0.5 m. Never faster than the closed form (the minimum over every
+# jerk-limited motion) for moves of these lengths: the discrete model is built to be conservative
+# (docs/method.md, which also gives the exception: moves shorter than about 45 m, whose
+# acceleration falls from its cap at low speed, up to 0.14 % faster at 10 m). How much
+# slower depends on whether the jerk ramp from rest to the acceleration limit (a^3 / (6 j^2) of
+# distance) fits in the first station step, which the step next to rest then drives exactly
+# (curvespeed.rest_step): where it does, the steps at speed are the only approximation left,
+# within 0.01 % (measured at most 0.002 %); where it does not (0.56 m at 0.5 m, 18 m in the
+# third case), the rising acceleration is a staircase over the first stations: within 0.3 %
+# (measured 0.15 % at 1 m, 0.13 % at 0.5 m for the 18 m ramp, 0.08 % for the 0.56 m one).
+@pytest.mark.parametrize("ds", [1.0, 0.5])
+@pytest.mark.parametrize("L, v, a, j, regime", [
+    (500.0, 20.0, 1.5, 2.0, "speed and acceleration limits reached"),
+    (500.0, 20.0, 1.5, 1.0, "speed and acceleration limits reached"),
+    (200.0, 40.0, 1.5, 2.0, "only the acceleration limit reached"),
+    (200.0, 40.0, 3.0, 0.5, "neither limit reached"),
+])
+def test_rest_to_rest_time_matches_the_double_s_closed_form(L, v, a, j, regime, ds):
+    fits = a ** 3 / (6 * j * j) <= ds
+    total = planned_time(straight_problem(L, ds, straight_limits(v, a, j)))
+    closed = double_s_time(L, v, a, j)
+    assert total >= closed, regime
+    assert total == pytest.approx(closed, rel=1e-4 if fits else 3e-3), regime
+
+
+def test_leaving_rest_costs_nothing_over_the_optimum_at_the_default_spacing():
+    # From rest to the top speed and on at it (end speed = top speed), default limits: the
+    # optimum takes L / v + T_a / 2 with T_a = a / j + v / a (same source: the acceleration
+    # phase of the double-S covers v T_a / 2). A step of constant jerk over the whole first
+    # metre cost 0.61 s here; with the ramp and constant acceleration inside the step, the
+    # launch is exact: within 0.01 s (measured 1e-4 s, the steps at speed).
+    lim = Limits()
+    L, v = 400.0, 20.0
+    problem = straight_problem(L, 1.0, lim.replace(max_speed_mps=v),
+                               RouteConstraints(end_speed_mps=v))
+    t_a = lim.max_accel_mps2 / lim.max_jerk_mps3 + v / lim.max_accel_mps2
+    optimum = L / v + t_a / 2
+    assert optimum <= planned_time(problem) <= optimum + 0.01
+
+
+def test_step_leaving_rest_is_the_start_of_the_jerk_limited_launch():
+    # Uniform-jerk kinematics (same source, the first two phases of the double-S): from rest at
+    # jerk 2 m/s^3 to 1.5 m/s^2 takes 0.75 s and 0.140625 m, reaching 0.5625 m/s; constant
+    # 1.5 m/s^2 over the rest of a 1 m step gives v^2 = 0.5625^2 + 2 * 1.5 * 0.859375 =
+    # 2.89453125 m^2/s^2 after 0.75 + (sqrt(2.89453125) - 0.5625) / 1.5 = 1.5092215 s. The
+    # problem's step next to rest must be exactly that motion (closed forms: round-off only).
+    problem = straight_problem(10.0, 1.0, Limits(max_accel_mps2=1.5, max_jerk_mps3=2.0))
+    b1 = 2.89453125
+    assert problem.cap_b[1] == pytest.approx(b1, rel=1e-12)
+    assert problem.cap_source[1] == "jerk_launch"
+    b = np.full(problem.n_nodes, b1)
+    b[0] = b[-1] = 0.0
+    assert problem.step_times(b)[0] == pytest.approx(0.75 + (math.sqrt(b1) - 0.5625) / 1.5,
+                                                     rel=1e-12)
+    d = derive(problem, b)
+    assert d["step_accel_first_mps2"][0] == 0.0
+    assert d["step_accel_last_mps2"][0] == pytest.approx(1.5, rel=1e-12)
+    assert d["step_jerk_mps3"][0] == pytest.approx(2.0, rel=1e-12)
 
 
 # Jerk-limited stop from v0 (same source, a rest-to-rest motion read backwards): when

@@ -123,7 +123,7 @@ def test_constant_jerk_steps_next_to_rest_match_closed_form():
     t = np.array([0.0, T, T + ds / v1, 2 * T + ds / v1])
     zeros = np.zeros(4)
     sp = make_station_profile(s, s, zeros, zeros, zeros, v, time_s=t)
-    np.testing.assert_array_equal(sp.cubic_step, [True, False, True])
+    np.testing.assert_array_equal(sp.rest_time_coef, [3.0, 0.0, 3.0])
     tr = sample_in_time(sp, dt_s=0.01)
     tt = tr.time_s
     first = tt <= T
@@ -151,9 +151,69 @@ def test_constant_jerk_steps_next_to_rest_match_closed_form():
                                rtol=CLOSED_FORM_RTOL, atol=CLOSED_FORM_RTOL * T)
 
 
+def test_jerk_ramp_steps_next_to_rest_match_closed_form():
+    # Uniform-jerk kinematics (Biagiotti & Melchiorri 2008, section 3.4, the first two phases of
+    # the double-S): from rest at jerk J = 2 m/s^3 to A = 1.5 m/s^2 (0.75 s, 0.140625 m, 0.5625
+    # m/s), then constant A to the end of a 1 m step: s = J t^3 / 6, then
+    # s = 0.140625 + 0.5625 (t - 0.75) + A (t - 0.75)^2 / 2; reached at v1 = sqrt(2.89453125).
+    # The profile states only stations, speeds and times (T = 1.5092215 s, as a planned
+    # profile's time_s does); the export recovers the shape from them. Arriving at rest is the
+    # same motion backwards.
+    J, A, ds = 2.0, 1.5, 1.0
+    v1 = math.sqrt(2.89453125)
+    t1 = A / J
+    T = t1 + (v1 - 0.5625) / A
+    s = np.array([0.0, ds, 2 * ds, 3 * ds])
+    v = np.array([0.0, v1, v1, 0.0])
+    t = np.array([0.0, T, T + ds / v1, 2 * T + ds / v1])
+    zeros = np.zeros(4)
+    sp = make_station_profile(s, s, zeros, zeros, zeros, v, time_s=t)
+    assert sp.rest_step.tolist() == [True, False, True]
+
+    def launch(tt):
+        late = np.maximum(tt - t1, 0.0)
+        ramp = np.minimum(tt, t1)
+        return (J * ramp ** 3 / 6 + 0.5 * J * ramp ** 2 * late + 0.5 * A * late ** 2,
+                0.5 * J * ramp ** 2 + A * late, np.where(tt < t1, J * tt, A))
+
+    tr = sample_in_time(sp, dt_s=0.01)
+    tt = tr.time_s
+    first = tt < T
+    d, vv, aa = launch(tt[first])
+    np.testing.assert_allclose(tr.station_m[first], d, rtol=CLOSED_FORM_RTOL,
+                               atol=CLOSED_FORM_RTOL * ds)
+    np.testing.assert_allclose(tr.speed_mps[first], vv, rtol=CLOSED_FORM_RTOL,
+                               atol=CLOSED_FORM_RTOL * v1)
+    np.testing.assert_allclose(tr.accel_mps2[first], aa, rtol=CLOSED_FORM_RTOL,
+                               atol=CLOSED_FORM_RTOL * A)
+    last = tt > T + ds / v1
+    d, vv, aa = launch(tt[-1] - tt[last])
+    np.testing.assert_allclose(3 * ds - tr.station_m[last], d, rtol=CLOSED_FORM_RTOL,
+                               atol=CLOSED_FORM_RTOL * ds)
+    np.testing.assert_allclose(tr.accel_mps2[last], -aa, rtol=CLOSED_FORM_RTOL,
+                               atol=CLOSED_FORM_RTOL * A)
+    # by station: the same motion, inverted
+    by_s = sample_by_station(sp, 0.05)
+    on_first = by_s.station_m < ds
+    d, _, _ = launch(by_s.time_s[on_first])
+    np.testing.assert_allclose(d, by_s.station_m[on_first], rtol=CLOSED_FORM_RTOL,
+                               atol=CLOSED_FORM_RTOL * ds)
+
+
+def test_first_and_last_samples_are_kept_for_any_interval():
+    # A time or station step longer than the whole profile still gives its start and its end
+    s = np.arange(4.0)
+    zeros = np.zeros(4)
+    sp = make_station_profile(s, s, zeros, zeros, zeros, [0.0, 1.0, 1.0, 0.0])
+    for tr in (sample_in_time(sp, 1e11), sample_by_station(sp, 1e12)):
+        assert tr.time_s.tolist() == [0.0, sp.moving_time_s]
+        assert tr.station_m.tolist() == [0.0, 3.0]
+        assert tr.speed_mps.tolist() == [0.0, 0.0]
+
+
 def test_profile_without_times_has_constant_acceleration_everywhere():
     s = np.arange(4.0)
     zeros = np.zeros(4)
     sp = make_station_profile(s, s, zeros, zeros, zeros, [0.0, 1.0, 1.0, 0.0])
-    assert not sp.cubic_step.any()
+    assert not sp.rest_step.any()
     assert sp.moving_time_s == pytest.approx(2.0 + 1.0 + 2.0, rel=CLOSED_FORM_RTOL)

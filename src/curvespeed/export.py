@@ -16,14 +16,17 @@ and, the other way round, a station ``s[k] + d`` is reached after
 
 Steps next to rest under a jerk bound
     When the profile was planned with a jerk bound, a step with one end at rest (the start, a
-    stop, the end) is driven at constant jerk, so that the acceleration is zero at rest: it takes
-    ``T[k] = 3 ds / v`` (``v`` the speed at its moving end) and, with ``x = tau / T`` leaving
-    rest, ``s = s[k] + ds x**3``, ``v = v[k+1] x**2``, ``a = 2 v[k+1] x / T`` (uniform-jerk
-    kinematics; arriving at rest is the mirror image). The profile says which steps these are
-    (:attr:`Profile.cubic_step <curvespeed.profile.Profile.cubic_step>`, the ``step_kind``
-    column of a profile CSV); a profile CSV without that column has them recognised from its
-    own ``time_s`` (a step time of ``3 ds / v`` instead of ``2 ds / v``, see
-    :func:`detect_cubic_steps`), so the export follows whichever model produced the profile.
+    stop, the end) is driven so that the acceleration is zero at rest: from rest, at constant
+    jerk up to an acceleration it then holds up to the moving end (arriving at rest: the same
+    backwards). Such a step takes ``T[k] = c ds / v`` (``v`` the speed at its moving end, ``c``
+    between 2 and 3) and its shape follows from ``c`` alone (:mod:`curvespeed.rest_step`, where
+    the uniform-jerk kinematics are written out); ``c = 3`` is constant jerk over the whole step
+    (``s = s[k] + ds x**3``, ``x = tau / T``), which older profiles used. The profile says which
+    steps these are and their ``c`` (:attr:`StationProfile.rest_time_coef`, from the
+    ``step_kind`` and ``time_s`` columns of a profile CSV); a profile CSV without ``step_kind``
+    has them recognised from its own ``time_s`` (a step next to rest that takes more than
+    ``2 ds / v``, see :func:`detect_rest_steps`), so the export follows whichever model produced
+    the profile.
 
 All formulas are used as they stand: samples are placed step by step from node times that are
 sums of ``T[k]``, so nothing is integrated numerically and nothing drifts; the last sample is the
@@ -56,6 +59,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import rest_step
 from .errors import SpeedFileError
 
 #: Columns every trajectory has, in output order (units in the names).
@@ -108,9 +112,9 @@ class StationProfile:
         Route name (for titles) and where the profile came from (for messages).
     where : ndarray of str or None
         Label of each node in its source ("line 12"), for messages.
-    cubic_step : ndarray of bool, shape (n,)
-        Steps next to rest driven at constant jerk (module docstring); the others have constant
-        acceleration.
+    rest_time_coef : ndarray, shape (n,)
+        For each step next to rest driven with a jerk ramp, the ``c`` of its time ``c ds / v``
+        (between 2 and 3, module docstring); 0 for the steps of constant acceleration.
     """
 
     station_m: np.ndarray
@@ -132,7 +136,7 @@ class StationProfile:
     name: str = "route"
     source: str = "profile"
     where: np.ndarray | None = None
-    cubic_step: np.ndarray | None = None
+    rest_time_coef: np.ndarray | None = None
 
     @classmethod
     def from_profile(cls, profile) -> "StationProfile":
@@ -146,7 +150,7 @@ class StationProfile:
             limit_speed_mps=profile.limit_speed_mps, binding=profile.binding, z_m=geo.z_m,
             grade=geo.grade, lat=None if latlon is None else latlon[0],
             lon=None if latlon is None else latlon[1], name=geo.name, source=geo.source,
-            cubic_step=profile.cubic_step)
+            rest_time_coef=profile.rest_time_coef)
 
     @property
     def n_nodes(self) -> int:
@@ -162,18 +166,23 @@ class StationProfile:
         return self.lat is not None
 
     @property
+    def rest_step(self) -> np.ndarray:
+        """Steps next to rest driven with a jerk ramp, bool per step."""
+        return self.rest_time_coef > 0.0
+
+    @property
     def step_accel_mps2(self) -> np.ndarray:
         """``(v[k+1]^2 - v[k]^2) / (2 ds)`` of each step, m/s^2: the constant acceleration of a
-        constant-acceleration step, the distance-mean acceleration of a constant-jerk one."""
+        constant-acceleration step, the distance-mean acceleration of one next to rest."""
         v = self.speed_mps
         return (v[1:] ** 2 - v[:-1] ** 2) / (2.0 * np.diff(self.station_m))
 
     @property
     def step_time_s(self) -> np.ndarray:
-        """Time of each step, ``2 ds / (v[k] + v[k+1])`` (``3 ds / ...`` for a constant-jerk
-        step), s; finite (checked on construction)."""
+        """Time of each step, ``2 ds / (v[k] + v[k+1])`` (``c ds / ...`` for a step next to rest,
+        :attr:`rest_time_coef`), s; finite (checked on construction)."""
         v = self.speed_mps
-        coef = np.where(self.cubic_step, 3.0, 2.0)
+        coef = np.where(self.rest_step, self.rest_time_coef, 2.0)
         return coef * np.diff(self.station_m) / (v[:-1] + v[1:])
 
     @property
@@ -210,12 +219,13 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
                          time_s=None, accel_mps2=None, jerk_mps3=None, lat_accel_mps2=None,
                          limit_speed_mps=None, binding=None, z_m=None, grade=None, lat=None,
                          lon=None, name: str = "route", source: str = "profile",
-                         where=None, cubic_step=None) -> StationProfile:
+                         where=None, rest_time_coef=None) -> StationProfile:
     """Check arrays and build a :class:`StationProfile`.
 
-    ``cubic_step`` (bool per step) marks constant-jerk steps next to rest; by default they are
-    recognised from ``time_s`` (see :func:`detect_cubic_steps`), and without ``time_s`` every
-    step has constant acceleration.
+    ``rest_time_coef`` (one value per step: the ``c`` of a step next to rest driven with a jerk
+    ramp, 0 for constant acceleration) says how each step is driven; by default the steps next
+    to rest are recognised from ``time_s`` (see :func:`detect_rest_steps`), and without
+    ``time_s`` every step has constant acceleration.
 
     Raises
     ------
@@ -226,8 +236,9 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
         ``lat``/``lon``. The message names ``source``, the node (``where`` label or index) and
         its station.
     ValueError
-        ``cubic_step`` without one flag per step, or set on a step that does not have exactly
-        one end at rest (:func:`steps_next_to_rest`); readers check their files for this first.
+        ``rest_time_coef`` without one value per step, a value other than 0 or within [2, 3],
+        or one set on a step that does not have exactly one end at rest
+        (:func:`steps_next_to_rest`); readers check their files for this first.
     """
     def arr(values):
         return None if values is None else np.asarray(values, dtype=float).ravel()
@@ -276,17 +287,20 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
                              f"({s[k + 1]:.1f} m), so the vehicle never covers that step; "
                              "plan stops at least two stations apart")
 
-    if cubic_step is None:
-        cubic = detect_cubic_steps(s, v, optional["time_s"])
+    if rest_time_coef is None:
+        coef = detect_rest_steps(s, v, optional["time_s"])
     else:
-        cubic = np.asarray(cubic_step, dtype=bool).ravel()
-        if cubic.size != n - 1 or np.any(cubic & ~steps_next_to_rest(v)):
-            raise ValueError("cubic_step must have one flag per step, set only on steps with "
-                             "exactly one end at rest")
+        coef = np.asarray(rest_time_coef, dtype=float).ravel()
+        ramp = coef != 0.0
+        if (coef.size != n - 1 or np.any(ramp & ~steps_next_to_rest(v))
+                or np.any(ramp & ((coef < 2.0) | (coef > 3.0)))):
+            raise ValueError("rest_time_coef must have one value per step, 0 or in [2, 3], "
+                             "non-zero only on steps with exactly one end at rest")
     return StationProfile(
         station_m=s, x_m=required["x_m"], y_m=required["y_m"],
         heading_rad=np.unwrap(required["heading_rad"]), curvature_1pm=required["curvature_1pm"],
-        speed_mps=v, binding=text, name=name, source=source, where=labels, cubic_step=cubic,
+        speed_mps=v, binding=text, name=name, source=source, where=labels,
+        rest_time_coef=coef,
         **optional)
 
 
@@ -334,25 +348,41 @@ def check_stations_and_speeds(station_m, speed_mps, source: str, where=None) -> 
 
 def steps_next_to_rest(speed_mps) -> np.ndarray:
     """Steps with exactly one end at rest (speed 0), bool per step: the only steps that may
-    be driven at constant jerk (module docstring)."""
+    be driven with a jerk ramp (module docstring)."""
     v = np.asarray(speed_mps, dtype=float)
     return (v[:-1] <= 0.0) != (v[1:] <= 0.0)
 
 
-def detect_cubic_steps(station_m, speed_mps, time_s) -> np.ndarray:
-    """Steps next to rest that the profile's times show were driven at constant jerk.
+#: A step next to rest whose time exceeds ``2 ds / v`` by more than this fraction was driven
+#: with a jerk ramp. Times written to 1e-6 s move the ratio by far less; a ramp this short
+#: (``c = 2.002``, ``u = 1e-3``) changes the step's time by 0.1 % and is told apart from
+#: constant acceleration by nothing else.
+RAMP_TIME_EXCESS = 1e-3
+
+
+def rest_time_coef_from_times(station_m, speed_mps, time_s) -> np.ndarray:
+    """The ``c`` of each step's time ``c ds / (v[k] + v[k+1])`` from the profile's own times,
+    clipped to [2, 3] (rounding of the written times)."""
+    s, v = np.asarray(station_m, dtype=float), np.asarray(speed_mps, dtype=float)
+    ratio = np.diff(np.asarray(time_s, dtype=float)) * (v[:-1] + v[1:]) / np.diff(s)
+    return np.clip(ratio, 2.0, 3.0)
+
+
+def detect_rest_steps(station_m, speed_mps, time_s) -> np.ndarray:
+    """Steps next to rest that the profile's times show were driven with a jerk ramp.
 
     A step with exactly one end at rest takes ``2 ds / v`` at constant acceleration and
-    ``3 ds / v`` at constant jerk; the step's time in ``time_s`` decides (threshold halfway,
-    ``2.5 ds / v``, far from either despite the file's rounding). Without ``time_s``: none.
-    Used for profile CSV files without a ``step_kind`` column (older or hand-made files).
+    ``c ds / v`` (``c`` up to 3) with a jerk ramp (module docstring); its time in ``time_s``
+    decides, beyond :data:`RAMP_TIME_EXCESS`. Returns ``c`` per step (0: constant
+    acceleration); without ``time_s``, zeros. Used for profile CSV files without a
+    ``step_kind`` column (older or hand-made files).
     """
     s = np.asarray(station_m, dtype=float)
-    v = np.asarray(speed_mps, dtype=float)
     if time_s is None:
-        return np.zeros(s.size - 1, dtype=bool)
-    ratio = np.diff(np.asarray(time_s, dtype=float)) * (v[:-1] + v[1:]) / np.diff(s)
-    return steps_next_to_rest(v) & (ratio > 2.5)
+        return np.zeros(s.size - 1)
+    coef = rest_time_coef_from_times(s, speed_mps, time_s)
+    ramp = steps_next_to_rest(speed_mps) & (coef > 2.0 * (1.0 + RAMP_TIME_EXCESS))
+    return np.where(ramp, coef, 0.0)
 
 
 def as_station_profile(profile) -> StationProfile:
@@ -380,8 +410,8 @@ class Trajectory:
         Speed, m/s.
     accel_mps2 : ndarray
         Acceleration along the path at that instant, m/s^2: constant within a
-        constant-acceleration step (at a node: the step being entered), linear in time within a
-        constant-jerk step next to rest, 0 while held at a stop.
+        constant-acceleration step (at a node: the step being entered), linear in time in the
+        ramp of a step next to rest, 0 while held at a stop.
     curvature_1pm : ndarray
         Signed curvature, 1/m.
     yaw_rate_radps : ndarray
@@ -470,19 +500,25 @@ def _node_schedule(sp: StationProfile, dwell_s: float) -> tuple[np.ndarray, np.n
     return arrive, depart, stop
 
 
+def _regular_count(span: float, interval: float) -> int:
+    """Samples at ``0, interval, 2 interval, ...`` strictly before ``span`` (the end gets a
+    sample of its own): at least one, the start, however large the interval."""
+    return max(int(math.ceil(span / interval - 1e-9)), 1)
+
+
 def count_time_samples(profile, dt_s: float, dwell_s: float = 0.0) -> int:
     """Number of samples :func:`sample_in_time` returns for these arguments."""
     sp = as_station_profile(profile)
     dt_s = _check_positive(dt_s, "time step")
     total = sp.moving_time_s + _check_dwell(dwell_s) * sp.stop_nodes.size
-    return int(math.ceil(total / dt_s - 1e-9)) + 1
+    return _regular_count(total, dt_s) + 1
 
 
 def count_station_samples(profile, station_step_m: float) -> int:
     """Upper bound on the number of samples :func:`sample_by_station` returns."""
     sp = as_station_profile(profile)
     step = _check_positive(station_step_m, "station step")
-    return int(math.ceil(sp.length_m / step - 1e-9)) + 1 + sp.stop_nodes.size
+    return _regular_count(sp.length_m, step) + 1 + sp.stop_nodes.size
 
 
 def sample_in_time(profile, dt_s: float, dwell_s: float = 0.0) -> Trajectory:
@@ -509,7 +545,7 @@ def sample_in_time(profile, dt_s: float, dwell_s: float = 0.0) -> Trajectory:
     dwell_s = _check_dwell(dwell_s)
     arrive, depart, stop = _node_schedule(sp, dwell_s)
     total = float(arrive[-1])
-    regular = dt_s * np.arange(int(math.ceil(total / dt_s - 1e-9)))
+    regular = dt_s * np.arange(_regular_count(total, dt_s))
     t = np.concatenate((regular, [total]))
 
     n_steps = sp.n_nodes - 1
@@ -550,7 +586,7 @@ def sample_by_station(profile, station_step_m: float, dwell_s: float = 0.0) -> T
     dwell_s = _check_dwell(dwell_s)
     arrive, depart, stop = _node_schedule(sp, dwell_s)
     s0, s1 = float(sp.station_m[0]), float(sp.station_m[-1])
-    grid = s0 + step * np.arange(int(math.ceil((s1 - s0) / step - 1e-9)))
+    grid = s0 + step * np.arange(_regular_count(s1 - s0, step))
     sigma = np.unique(np.concatenate((grid, sp.station_m[sp.stop_nodes], [s1])))
 
     n_steps = sp.n_nodes - 1
@@ -565,6 +601,17 @@ def sample_by_station(profile, station_step_m: float, dwell_s: float = 0.0) -> T
     return _build(sp, k, d, t, v, accel, SamplingMode.STATION, step, dwell_s, arrive[-1])
 
 
+def _rest_steps_at(sp: StationProfile, k):
+    """For steps ``k``: driven with a jerk ramp next to rest, leaving rest, arriving at rest
+    (driven as leaving, backwards), their shape ``u`` and the speed at their moving end."""
+    v0, v1 = sp.speed_mps[k], sp.speed_mps[k + 1]
+    ramp = sp.rest_step[k]
+    leaving = ramp & (v0 <= 0.0)
+    arriving = ramp & (v1 <= 0.0)
+    u = rest_step.shape_from_time_coef(np.where(ramp, sp.rest_time_coef[k], 2.0))
+    return ramp, leaving, arriving, u, np.where(leaving, v1, v0)
+
+
 def _state_at_time(sp: StationProfile, k, tau):
     """Distance into step ``k``, speed and acceleration ``tau`` seconds after leaving node k."""
     ds = np.diff(sp.station_m)[k]
@@ -575,15 +622,12 @@ def _state_at_time(sp: StationProfile, k, tau):
     d = v0 * tau + 0.5 * a * tau * tau
     v = v0 + a * tau
     acc = a
-    # constant jerk: leaving rest (x = tau / T) or arriving at rest (y = remaining / T)
-    cubic = sp.cubic_step[k]
-    x = tau / T
-    y = 1.0 - x
-    leaving = cubic & (v0 <= 0.0)
-    arriving = cubic & (v1 <= 0.0)
-    d = np.where(leaving, ds * x ** 3, np.where(arriving, ds * (1.0 - y ** 3), d))
-    v = np.where(leaving, v1 * x * x, np.where(arriving, v0 * y * y, v))
-    acc = np.where(leaving, 2.0 * v1 * x / T, np.where(arriving, -2.0 * v0 * y / T, acc))
+    ramp, leaving, arriving, u, v_moving = _rest_steps_at(sp, k)
+    back = np.where(arriving, T - tau, tau)
+    d_r, v_r, a_r = rest_step.leaving_state_at_time(u, v_moving, ds, back)
+    d = np.where(leaving, d_r, np.where(arriving, ds - d_r, d))
+    v = np.where(ramp, v_r, v)
+    acc = np.where(leaving, a_r, np.where(arriving, -a_r, acc))
     at_end = tau >= T
     d = np.clip(np.where(at_end, ds, d), 0.0, ds)
     v = np.where(at_end, v1, np.maximum(v, 0.0))
@@ -602,15 +646,13 @@ def _state_at_distance(sp: StationProfile, k, d):
     with np.errstate(divide="ignore", invalid="ignore"):
         tau = np.where(d > 0.0, 2.0 * d / (v0 + v), 0.0)
     acc = a
-    # constant jerk: d = ds x^3 leaving rest, ds - d = ds y^3 arriving at rest
-    cubic = sp.cubic_step[k]
-    leaving = cubic & (v0 <= 0.0)
-    arriving = cubic & (v1 <= 0.0)
-    x = np.cbrt(np.clip(d / ds, 0.0, 1.0))
-    y = np.cbrt(np.clip((ds - d) / ds, 0.0, 1.0))
-    tau = np.where(leaving, T * x, np.where(arriving, T * (1.0 - y), tau))
-    v = np.where(leaving, v1 * x * x, np.where(arriving, v0 * y * y, v))
-    acc = np.where(leaving, 2.0 * v1 * x / T, np.where(arriving, -2.0 * v0 * y / T, acc))
+    ramp, leaving, arriving, u, v_moving = _rest_steps_at(sp, k)
+    from_rest = np.where(arriving, ds - d, d)
+    t_r = rest_step.leaving_time_at_distance(u, v_moving, ds, from_rest)
+    _, v_r, a_r = rest_step.leaving_state_at_time(u, v_moving, ds, t_r)
+    tau = np.where(leaving, t_r, np.where(arriving, T - t_r, tau))
+    v = np.where(ramp, v_r, v)
+    acc = np.where(leaving, a_r, np.where(arriving, -a_r, acc))
     return tau, v, np.asarray(acc, dtype=float)
 
 

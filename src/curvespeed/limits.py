@@ -21,7 +21,7 @@ import warnings
 from dataclasses import dataclass
 
 from .errors import CurvespeedWarning, LimitsError
-from .units import STANDARD_GRAVITY_MPS2, mps_to_kmh
+from .units import STANDARD_GRAVITY_MPS2, format_apart, mps_to_kmh
 
 #: Air density of the ISA standard atmosphere at sea level, kg/m^3.
 ISA_SEA_LEVEL_AIR_DENSITY_KGPM3 = 1.225
@@ -118,6 +118,38 @@ _POSITIVE = ("friction_coefficient", "max_lateral_accel_mps2", "max_accel_mps2",
              "max_power_w", "mass_kg", "air_density_kgpm3", "gravity_mps2")
 _NON_NEGATIVE = ("drag_area_m2", "rolling_resistance_coefficient")
 
+#: Values no vehicle on a road can have, refused: name -> (lowest, highest, why). Sources are
+#: common practice unless named.
+PHYSICAL_RANGES = {
+    "friction_coefficient": (0.0, 2.0, "tyre-road friction is about 0.7-0.9 on dry asphalt, "
+                             "0.1 on ice, below 2 even for racing tyres"),
+    "lateral_friction_coefficient": (0.0, 2.0, "tyre-road friction is about 0.7-0.9 on dry "
+                                     "asphalt, 0.1 on ice, below 2 even for racing tyres"),
+    "air_density_kgpm3": (0.3, 2.0, "air is 1.225 kg/m^3 at sea level in the standard "
+                          "atmosphere, about 1.4 on a very cold day and 0.7 at 5,000 m, above "
+                          "the highest roads"),
+    "drag_area_m2": (0.0, 20.0, "drag coefficient times frontal area is about 0.5-1 m^2 for "
+                     "cars and up to about 10 m^2 for trucks and buses"),
+    "rolling_resistance_coefficient": (0.0, 0.5, "tyres roll at about 0.01 on asphalt and "
+                                       "0.3 in sand"),
+    "mass_kg": (1.0, 1e7, "from a few kg for a small robot to about 10,000 t for the heaviest "
+                "trains"),
+    "gravity_mps2": (9.7, 10.0, "gravity at the Earth's surface is 9.78-9.83 m/s^2"),
+    "max_accel_mps2": (0.01, math.inf, "below 0.01 m/s^2 a vehicle would take over 100 s to "
+                       "gain 1 m/s"),
+    "max_decel_mps2": (0.01, math.inf, "below 0.01 m/s^2 a vehicle would take over 100 s to "
+                       "lose 1 m/s"),
+    "max_lateral_accel_mps2": (0.01, math.inf, "below 0.01 m/s^2 even a 1 km curve would be "
+                               "taken at 3 m/s"),
+    "max_jerk_mps3": (0.01, math.inf, "below 0.01 m/s^3 taking up 1 m/s^2 would last 100 s"),
+    "max_lateral_jerk_mps3": (0.01, math.inf, "below 0.01 m/s^3 entering a curve at 1 m/s^2 "
+                              "would last 100 s"),
+}
+
+#: Power over mass below this, W/kg, is most likely a power in kW under the W key (a loaded
+#: truck has about 5 W/kg, a passenger car 30-150 W/kg): warned about, not refused.
+MIN_PLAUSIBLE_POWER_WPKG = 1.0
+
 #: A top speed above this, m/s (360 km/h, about the fastest scheduled trains), is most likely a
 #: value in km/h under the m/s key: warned about, not refused.
 MAX_PLAUSIBLE_SPEED_MPS = 100.0
@@ -141,9 +173,12 @@ def validate_limits(limits: Limits, where: str = "limits", warn: bool = True) ->
             raise LimitsError(f"{where}: {name} must be positive, got {value:g}")
         if name in _NON_NEGATIVE and value < 0:
             raise LimitsError(f"{where}: {name} must be zero or positive, got {value:g}")
-    if limits.friction_coefficient > 2.0:
-        raise LimitsError(f"{where}: friction_coefficient {limits.friction_coefficient:g} is not "
-                          "a tyre-road value (dry asphalt is about 0.7-0.9); check the units")
+    for name, (low, high, why) in PHYSICAL_RANGES.items():
+        value = getattr(limits, name)
+        if value is not None and not low <= value <= high:
+            span = f"below {low:g}" if high == math.inf else f"outside {low:g}..{high:g}"
+            raise LimitsError(f"{where}: {name} = {value:g} is {span}, which no vehicle has: "
+                              f"{why}; check the value and its units")
     if limits.max_power_w is not None and limits.mass_kg is None:
         raise LimitsError(f"{where}: max_power_w needs mass_kg (drive acceleration is P/(m v))")
     if limits.drag_area_m2 and limits.mass_kg is None:
@@ -151,6 +186,12 @@ def validate_limits(limits: Limits, where: str = "limits", warn: bool = True) ->
                           "rho Cd A v^2 / (2 m))")
     if not warn:
         return limits
+    if limits.power_per_mass_wpkg < MIN_PLAUSIBLE_POWER_WPKG:
+        warnings.warn(
+            f"{where}: max_power_w = {limits.max_power_w:g} W for mass_kg = {limits.mass_kg:g} is "
+            f"{limits.power_per_mass_wpkg:.3g} W/kg, less than a loaded truck (about 5 W/kg): "
+            "the vehicle crawls up every grade; if the power is in kW, multiply by 1000",
+            CurvespeedWarning, stacklevel=2)
     if limits.max_speed_mps > MAX_PLAUSIBLE_SPEED_MPS:
         warnings.warn(
             f"{where}: max_speed_mps = {limits.max_speed_mps:g} m/s is "
@@ -186,6 +227,13 @@ class Stop:
 
     station_m: float
     origin: str = ""
+
+
+def stop_node(station_m: float, ds: float, n_nodes: int, closed: bool) -> int:
+    """The node a stop at ``station_m`` is placed on: the nearest station (node 0 for the end
+    of a closed route)."""
+    k = int(round(station_m / ds))
+    return 0 if closed and k == n_nodes - 1 else k
 
 
 @dataclass(frozen=True)
@@ -233,10 +281,21 @@ class RouteConstraints:
         return dataclasses.asdict(self)
 
 
+#: A station this close past either end of the route is at that end, m: the route's length is a
+#: sum of many arc-length pieces and carries their round-off (a 400 m straight measures
+#: 399.9999999999997 m), which no one can see in a station they type.
+END_TOLERANCE_M = 1e-3
+
+
 def validate_constraints(rc: RouteConstraints, length_m: float, closed: bool) -> RouteConstraints:
     """Check station ranges and values against the route; raise :class:`LimitsError`."""
     def here(item) -> str:
         return f"{item.origin}: " if item.origin else ""
+
+    # the route's span as a person reads it: its length cut (not rounded up) to the centimetre,
+    # so a station just past the end never looks inside it (round-off of 1e-8 cm aside)
+    route = f"(0..{math.floor(length_m * 100.0 + 1e-8) / 100.0:.2f} m)"
+    end = length_m + END_TOLERANCE_M
 
     for z in rc.zones:
         if not (math.isfinite(z.start_m) and math.isfinite(z.end_m) and z.end_m > z.start_m):
@@ -247,19 +306,18 @@ def validate_constraints(rc: RouteConstraints, length_m: float, closed: bool) ->
                               f"be positive, got {z.max_speed_mps:g} m/s (use a stop for zero)")
         if z.start_m >= length_m or z.end_m <= 0:
             raise LimitsError(f"{here(z)}speed zone {z.start_m:g}..{z.end_m:g} m lies outside the "
-                              f"route (0..{length_m:.1f} m); check its stations against the "
-                              "route summary")
-        if z.start_m < 0 or z.end_m > length_m:
+                              f"route {route}; check its stations against the route summary")
+        if z.start_m < -END_TOLERANCE_M or z.end_m > end:
             warnings.warn(f"{here(z)}speed zone {z.start_m:g}..{z.end_m:g} m runs past the route "
-                          f"(0..{length_m:.1f} m); it applies over "
+                          f"{route}; it applies over "
                           f"{max(z.start_m, 0.0):g}..{min(z.end_m, length_m):.1f} m only. Check "
                           "its stations against the route summary", CurvespeedWarning,
                           stacklevel=2)
     for s in rc.stops:
-        if not (math.isfinite(s.station_m) and 0 <= s.station_m <= length_m):
-            raise LimitsError(f"{here(s)}stop at station {s.station_m:g} m lies outside the route "
-                              f"(0..{length_m:.1f} m); check its station against the route "
-                              "summary")
+        if not (math.isfinite(s.station_m) and -END_TOLERANCE_M <= s.station_m <= end):
+            station, last = format_apart(s.station_m, length_m)
+            raise LimitsError(f"{here(s)}stop at station {station} m lies outside the route "
+                              f"(0..{last} m); check its station against the route summary")
     for e in rc.superelevation:
         if not (math.isfinite(e.start_m) and math.isfinite(e.end_m) and e.end_m > e.start_m):
             raise LimitsError(f"{here(e)}superelevation {e.start_m:g}..{e.end_m:g} m: end must be "

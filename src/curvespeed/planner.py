@@ -9,7 +9,8 @@ import warnings
 
 import numpy as np
 
-from .errors import CurvespeedWarning, SolverError
+from .diagnose import standstill
+from .errors import CurvespeedWarning, InfeasibleError, SolverError
 from .geometry import Geometry
 from .limits import Limits, RouteConstraints, validate_limits
 from .problem import build_problem
@@ -50,6 +51,9 @@ def plan_profile(geometry: Geometry, limits: Limits,
     jerk = solver.enforces_jerk and limits.max_jerk_mps3 is not None
     problem = build_problem(geometry, limits, constraints, jerk_model=jerk)
     result = solve(problem, solver, options)
+    stands = standstill(problem, result.b)
+    if stands is not None:          # never write a profile that does not arrive
+        raise InfeasibleError(stands)
     if tolerance is None:
         tolerance = DEFAULT_TOLERANCE if solver is SolverKind.ENVELOPE else CONVEX_TOLERANCE
     check = verify_profile(problem, result.b, tolerance, check_jerk=solver.enforces_jerk)
@@ -76,7 +80,7 @@ def plan_profile(geometry: Geometry, limits: Limits,
         geometry=geometry,
         speed_mps=v,
         step_accel_mps2=d["step_accel_mps2"],
-        cubic_step=problem.time_coef[: v.size - 1] == 3.0,
+        rest_time_coef=np.where(np.isnan(problem.rest_u), 0.0, problem.time_coef),
         accel_mps2=d["accel_mps2"],
         jerk_mps3=d["jerk_mps3"],
         lat_accel_mps2=geometry.curvature_1pm * v * v,

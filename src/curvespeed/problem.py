@@ -26,12 +26,34 @@ The constraint set is defined once, here:
 
 **Steps next to a rest node** (a stop, or a start or end at rest) when a jerk bound applies:
 a vehicle leaving rest with bounded jerk starts with zero acceleration, so over that step it
-moves as ``s ~ t^3`` (constant jerk), not with constant acceleration. Such a step takes
-``3 ds / v`` (not ``2 ds / v``), its acceleration ramps from 0 at the rest node to
-``4/3 * (b_moving / (2 ds))`` at the moving node, and its own jerk ``6 ds / t^3 <= J`` caps the
-moving node at ``b <= (4.5 J ds^2)^(2/3)``. :attr:`SpeedProblem.time_coef`,
-:attr:`~SpeedProblem.accel_factor_start` and :attr:`~SpeedProblem.accel_factor_end` carry this
-per step; every other step has constant acceleration (factors 1, time ``2 ds / (v + v')``).
+is driven at constant jerk up to some acceleration and then at that acceleration up to the moving
+node (arriving at rest: the same backwards). For a fixed shape ``u`` of that motion the step is
+still linear in ``b`` (:mod:`curvespeed.rest_step`): it takes ``c ds / v``, its acceleration is 0
+at the rest node and ``f * b_moving / (2 ds)`` at the moving node, and the ramp's jerk caps the
+moving node. Each such step gets the shape that ramps at the jerk bound to the acceleration its
+moving node allows (the start of the time-optimal launch); :attr:`SpeedProblem.rest_u`,
+:attr:`~SpeedProblem.time_coef`, :attr:`~SpeedProblem.accel_factor_start` and
+:attr:`~SpeedProblem.accel_factor_end` carry this per step; every other step has constant
+acceleration (factors 1, time ``2 ds / (v + v')``).
+
+**Jerk** at a node is its change of acceleration over a time base
+(:meth:`SpeedProblem.node_jerk_time`, from :attr:`SpeedProblem.jerk_terms`):
+
+* between two constant-acceleration steps, ``4 ds / (v_prev + 2 v + v_next)``: the time between
+  the steps' mid-points, ``ds / (v_prev + v) + ds / (v + v_next)``, less its Jensen gap. The
+  mid-point time itself lets a staircase of step accelerations copy a jerk ramp's mean in every
+  step while covering ``J T^3 / 12`` more distance per step than the ramp (acceleration
+  front-loaded within each step): at low speed that made rest-to-rest moves slightly faster than
+  the exact jerk-limited optimum. The Jensen form is shorter by
+  ``ds (x - y)^2 / (x y (x + y))`` (``x = v_prev + v``, ``y = v + v_next``), which grows where
+  speed changes fastest relative to itself, near rest;
+* at the moving node of a step next to rest, ``min(2 t2, T_next)``: the change of acceleration is
+  a ramp symmetric about the node, fitting in the step's flat part ``t2`` before it and in half of
+  the next step ``T_next`` after it (that half of the next step is the next node's share). A
+  symmetric ramp leaves the speed after it unchanged, so the profile is the step-wise constant
+  form of a motion whose jerk really stays within the bound;
+* at an open end the vehicle is steady outside the route: half the end step's time,
+  ``ds / (v + v_next)`` (``t2`` at the moving node of a step next to rest).
 
 Stations are treated as path length (the slope's cos(gamma) < 0.5 % at 10 % grade is neglected).
 Every function here is vectorised over nodes and has no side effects.
@@ -44,9 +66,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import rest_step
 from .errors import InfeasibleError, LimitsError
 from .geometry import Geometry
-from .limits import Limits, RouteConstraints, validate_constraints, validate_limits
+from .jerk_model import JerkTimeTerms, jerk_time_terms, rest_nodes, with_rest_steps
+from .limits import Limits, RouteConstraints, stop_node, validate_constraints, validate_limits
 
 #: Cap on squared speed used where no other cap applies (never reached: max speed is finite).
 _UNBOUNDED = 1e12
@@ -85,11 +109,19 @@ class SpeedProblem:
     source : str
         The route file (or label), for messages.
     jerk_model : bool
-        True when the jerk bound is part of the problem (steps next to rest are cubic).
+        True when the jerk bound is part of the problem (steps next to rest ramp the jerk).
     time_coef : ndarray, shape (n,)
-        Step time is ``time_coef * ds / (v[k] + v[k+1])``: 2, or 3 for a step next to rest.
+        Step time is ``time_coef * ds / (v[k] + v[k+1])``: 2, or between 2 and 3 for a step
+        next to rest (:func:`curvespeed.rest_step.time_coef`).
     accel_factor_start, accel_factor_end : ndarray, shape (n,)
-        Acceleration of a step at its first / last node over ``(b[k+1] - b[k]) / (2 ds)``.
+        Acceleration of a step at its first / last node over ``(b[k+1] - b[k]) / (2 ds)``: 1,
+        or 0 at the rest node and ``f`` at the moving node of a step next to rest.
+    rest_u : ndarray, shape (n,)
+        Shape ``u`` of each step next to rest (:mod:`curvespeed.rest_step`); NaN elsewhere.
+    jerk_terms : JerkTimeTerms
+        The time base of the jerk at each node (:meth:`node_jerk_time`).
+    stops : tuple of Stop
+        The stops as the user gave them (station and origin), for messages.
     """
 
     station_m: np.ndarray
@@ -112,6 +144,9 @@ class SpeedProblem:
     time_coef: np.ndarray
     accel_factor_start: np.ndarray
     accel_factor_end: np.ndarray
+    rest_u: np.ndarray
+    jerk_terms: JerkTimeTerms
+    stops: tuple = ()
 
     @property
     def n_nodes(self) -> int:
@@ -184,6 +219,38 @@ class SpeedProblem:
         b = np.maximum(np.asarray(b, dtype=float), 0.0)
         return np.diff(self.kappa_signed * b) / self.step_times(b)
 
+    @property
+    def n_distinct(self) -> int:
+        """Distinct nodes: a closed route's last node is its first."""
+        return self.n_nodes - 1 if self.closed else self.n_nodes
+
+    def step_ramp_jerk(self, b) -> np.ndarray:
+        """Jerk of the ramp inside each step next to rest, m/s^3 (0 for the other steps)."""
+        b = np.maximum(np.asarray(b, dtype=float), 0.0)
+        moving = np.where(self.accel_factor_start == 0.0, b[1:], b[:-1])
+        rest = ~np.isnan(self.rest_u)
+        u = np.where(rest, self.rest_u, 0.5)
+        return np.where(rest, rest_step.ramp_jerk(u, moving, self.ds), 0.0)
+
+    def node_jerk_time(self, b) -> np.ndarray:
+        """Time base of the jerk at each node, s (module docstring; :attr:`jerk_terms`).
+
+        Infinite at a node with no term (at rest), 0 where the change of acceleration must be
+        zero. On a closed route the last node repeats the first.
+        """
+        b = np.maximum(np.asarray(b, dtype=float), 0.0)
+        t = self.jerk_terms
+        root = np.sqrt(b[: self.n_distinct])
+        w = (t.weights[:, 0] * root[t.prev] + t.weights[:, 1] * root[t.node]
+             + t.weights[:, 2] * root[t.next])
+        with np.errstate(divide="ignore", invalid="ignore"):
+            term = np.where(t.scale == 0.0, 0.0,
+                            np.where(w > 0.0, t.scale * self.ds / np.where(w > 0.0, w, 1.0),
+                                     np.inf))
+        tau = np.full(self.n_distinct, np.inf)
+        np.minimum.at(tau, t.node, term)
+        return np.append(tau, tau[0]) if self.closed else tau
+
     def lateral_ceiling_b(self, iterations: int = 60) -> np.ndarray:
         """Largest squared speed at each node whose acceleration interval is not empty.
 
@@ -216,15 +283,39 @@ def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstrai
     """
     validate_limits(limits, warn=False)   # the caller validated and warned, naming the origin
     validate_constraints(constraints, geometry.length_m, geometry.closed)
-    s = geometry.station_m
-    n = s.size
-    ds = float(geometry.spacing_m)
-    kappa = geometry.curvature_1pm
+    n = geometry.station_m.size
+    kappa = np.asarray(geometry.curvature_1pm, dtype=float)
     # Lateral acceleration and grip use the curvature bound, which covers the true road where
     # the fit's smoothing spreads a change of curvature or noise blurs it (curvespeed.geometry);
     # lateral jerk follows the estimate itself (kappa_signed).
-    kappa_abs = geometry.planning_curvature_1pm
+    kappa_abs = np.asarray(geometry.planning_curvature_1pm, dtype=float)
+    cap, source, stop_nodes = _speed_caps(geometry, limits, constraints)
+    theta, gamma = _bank_and_grade(geometry, limits, constraints)
+    b_start, b_end = _end_speeds_b(geometry, constraints)
+    if jerk_model is None:
+        jerk_model = limits.max_jerk_mps3 is not None
+    steps = n - 1
+    problem = SpeedProblem(
+        station_m=geometry.station_m, ds=float(geometry.spacing_m), closed=geometry.closed,
+        kappa_abs=kappa_abs, kappa_signed=kappa,
+        sin_bank=np.sin(theta), cos_bank=np.cos(theta),
+        sin_grade=np.sin(gamma), cos_grade=np.cos(gamma),
+        cap_b=cap, cap_source=source, b_start=b_start, b_end=b_end,
+        stop_nodes=np.array(sorted(set(stop_nodes)), dtype=int), limits=limits,
+        source=geometry.source, stops=tuple(constraints.stops), jerk_model=bool(jerk_model),
+        time_coef=np.full(steps, 2.0),
+        accel_factor_start=np.ones(steps), accel_factor_end=np.ones(steps),
+        rest_u=np.full(steps, np.nan),
+        jerk_terms=jerk_time_terms(n, geometry.closed, np.full(steps, np.nan), np.ones(steps)))
+    if jerk_model:
+        problem = with_rest_steps(problem, rest_nodes(problem))
+    return problem
 
+
+def _speed_caps(geometry: Geometry, limits: Limits, constraints: RouteConstraints):
+    """Cap on ``b`` at each node from top speed, zones and stops; what sets it; stop nodes."""
+    n = geometry.station_m.size
+    ds = float(geometry.spacing_m)
     cap = np.full(n, float(limits.max_speed_mps) ** 2)
     source = np.full(n, "max_speed", dtype=object)
     for zone in constraints.zones:
@@ -237,91 +328,43 @@ def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstrai
         source[sl] = np.where(tighter, "zone", source[sl])
     stop_nodes = []
     for stop in constraints.stops:
-        k = int(round(stop.station_m / ds))
-        if geometry.closed and k == n - 1:
-            k = 0
+        k = stop_node(stop.station_m, ds, n, geometry.closed)
         stop_nodes.append(k)
         cap[k] = 0.0
         source[k] = "stop"
     if geometry.closed:
         cap[-1] = cap[0] = min(cap[0], cap[-1])
+    return cap, source, stop_nodes
 
-    e = np.zeros(n)
+
+def _bank_and_grade(geometry: Geometry, limits: Limits, constraints: RouteConstraints):
+    """Bank angle (from superelevation) and grade angle at each node, radians."""
+    s = geometry.station_m
+    e = np.zeros(s.size)
     for sup in constraints.superelevation:
         mask = (s >= sup.start_m - 1e-9) & (s <= sup.end_m + 1e-9)
         e[mask] = sup.rate
     theta = np.arctan(e)
-    if geometry.grade is not None:
-        gamma = np.arctan(geometry.grade)
-    else:
-        gamma = np.zeros(n)
+    gamma = np.arctan(geometry.grade) if geometry.grade is not None else np.zeros(s.size)
     # A vehicle at rest on a cross-slope steeper than friction allows would slide.
     too_steep = np.abs(e) > limits.mu_lat * np.cos(gamma)
     if too_steep.any():
         k = int(np.flatnonzero(too_steep)[0])
         raise LimitsError(f"superelevation {e[k]:g} at station {s[k]:.1f} m exceeds the lateral "
                           f"friction coefficient {limits.mu_lat:g}: a vehicle would slide at rest")
+    return theta, gamma
 
-    b_start = b_end = None
+
+def _end_speeds_b(geometry: Geometry, constraints: RouteConstraints):
+    """Fixed squared speeds at the ends of an open route (at rest by default); None on a loop."""
     if geometry.closed:
         if constraints.start_speed_mps is not None or constraints.end_speed_mps is not None:
             raise LimitsError("start and end speed do not apply to a closed route (the lap is "
                               "periodic); plan it as open (--open) to fix them")
-    else:
-        v0 = 0.0 if constraints.start_speed_mps is None else constraints.start_speed_mps
-        v1 = 0.0 if constraints.end_speed_mps is None else constraints.end_speed_mps
-        b_start, b_end = v0 * v0, v1 * v1
-
-    if jerk_model is None:
-        jerk_model = limits.max_jerk_mps3 is not None
-    n_steps = n - 1
-    time_coef = np.full(n_steps, 2.0)
-    f_start = np.ones(n_steps)
-    f_end = np.ones(n_steps)
-    if jerk_model:
-        rest = np.zeros(n, dtype=bool)
-        rest[stop_nodes] = True
-        if geometry.closed:
-            rest[-1] = rest[0] = rest[0] or rest[-1]
-        else:
-            rest[0] = b_start == 0.0
-            rest[-1] = b_end == 0.0
-        idx = np.flatnonzero(rest)
-        close = np.flatnonzero(np.diff(idx) < 3)
-        if close.size:
-            k0, k1 = idx[close[0]], idx[close[0] + 1]
-            origins = sorted({st.origin or "a stop" for st in constraints.stops
-                              if int(round(st.station_m / ds)) in (k0, k1)})
-            named = f" (from {', '.join(origins)})" if origins else ""
-            raise LimitsError(f"{geometry.source}: stations {s[k0]:.1f} and {s[k1]:.1f} m are "
-                              f"both at rest{named} and less than three station steps apart "
-                              f"({3 * ds:g} m); move the stops apart or merge them")
-        from_rest, to_rest = rest[:-1], rest[1:]
-        time_coef[from_rest | to_rest] = 3.0
-        f_start[from_rest] = 0.0
-        f_end[from_rest] = 4.0 / 3.0
-        f_start[to_rest] = 4.0 / 3.0
-        f_end[to_rest] = 0.0
-        # the cubic step's own jerk 6 ds / t^3 <= J caps the moving node
-        b_launch = (4.5 * limits.max_jerk_mps3 * ds * ds) ** (2.0 / 3.0)
-        moving = np.zeros(n, dtype=bool)
-        moving[1:] |= from_rest
-        moving[:-1] |= to_rest
-        if geometry.closed:
-            moving[0] = moving[-1] = moving[0] or moving[-1]
-        tighter = moving & (cap > b_launch)
-        cap[tighter] = b_launch
-        source[tighter] = "jerk_launch"
-
-    return SpeedProblem(
-        station_m=s, ds=ds, closed=geometry.closed, kappa_abs=kappa_abs,
-        kappa_signed=np.asarray(kappa, dtype=float),
-        sin_bank=np.sin(theta), cos_bank=np.cos(theta),
-        sin_grade=np.sin(gamma), cos_grade=np.cos(gamma),
-        cap_b=cap, cap_source=source, b_start=b_start, b_end=b_end,
-        stop_nodes=np.array(sorted(set(stop_nodes)), dtype=int), limits=limits,
-        source=geometry.source, jerk_model=bool(jerk_model), time_coef=time_coef, accel_factor_start=f_start,
-        accel_factor_end=f_end)
+        return None, None
+    v0 = 0.0 if constraints.start_speed_mps is None else constraints.start_speed_mps
+    v1 = 0.0 if constraints.end_speed_mps is None else constraints.end_speed_mps
+    return v0 * v0, v1 * v1
 
 
 def check_start_end(problem: SpeedProblem, ceiling_b: np.ndarray) -> None:

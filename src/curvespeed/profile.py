@@ -4,12 +4,13 @@ Derived quantities follow the discrete model of :mod:`curvespeed.problem` (b lin
 within each step):
 
 * ``time_s[k]``: sum of step times ``2 ds / (v[j] + v[j+1])`` up to node k (exact for uniform
-  acceleration over each step), ``3 ds / v`` on a constant-jerk step next to rest
-  (:attr:`Profile.cubic_step`);
+  acceleration over each step), ``c ds / v`` on a step next to rest driven with a jerk ramp
+  (:attr:`Profile.rest_time_coef`);
 * ``accel_mps2[k]``: mean of the accelerations of the steps meeting at node k (one step at the
   ends); the step values themselves are in :attr:`Profile.step_accel_mps2`;
-* ``jerk_mps3[k]``: change of step acceleration across node k divided by the time between the two
-  steps' mid-points;
+* ``jerk_mps3[k]``: change of step acceleration across node k divided by the node's time base
+  (:meth:`SpeedProblem.node_jerk_time <curvespeed.problem.SpeedProblem.node_jerk_time>`: about
+  the time between the two steps' mid-points, see :mod:`curvespeed.problem`);
 * ``lat_accel_mps2[k]``: ``curvature * v^2`` (signed, left positive), the kinematic lateral
   acceleration in the horizontal plane.
 """
@@ -36,11 +37,11 @@ class Profile:
         Speed at each node, m/s.
     step_accel_mps2 : ndarray, shape (n,)
         Acceleration along the path of each step, m/s^2.
-    cubic_step : ndarray of bool, shape (n,)
-        Steps driven at constant jerk: with a jerk bound, a step with exactly one end at rest
-        (the start, a stop, the end) takes ``3 ds / v`` instead of ``2 ds / v``
-        (:attr:`SpeedProblem.time_coef <curvespeed.problem.SpeedProblem.time_coef>` is 3 there,
-        see :mod:`curvespeed.problem`); every other step has constant acceleration.
+    rest_time_coef : ndarray, shape (n,)
+        For each step next to rest planned with a jerk bound (exactly one end at rest), the
+        ``c`` of its time ``c ds / v``, between 2 and 3: a jerk ramp at the rest end and
+        constant acceleration up to the moving end (:mod:`curvespeed.rest_step`); 0 for every
+        other step, which has constant acceleration.
     accel_mps2, jerk_mps3, lat_accel_mps2, time_s : ndarray
         Per-node acceleration (m/s^2), jerk (m/s^3), lateral acceleration (m/s^2) and time (s),
         as defined in the module docstring.
@@ -63,7 +64,7 @@ class Profile:
     geometry: Geometry
     speed_mps: np.ndarray
     step_accel_mps2: np.ndarray
-    cubic_step: np.ndarray
+    rest_time_coef: np.ndarray
     accel_mps2: np.ndarray
     jerk_mps3: np.ndarray
     lat_accel_mps2: np.ndarray
@@ -81,6 +82,11 @@ class Profile:
         if self.envelope_time_s is None:
             return None
         return self.total_time_s / self.envelope_time_s - 1.0
+
+    @property
+    def rest_step(self) -> np.ndarray:
+        """Steps next to rest driven with a jerk ramp (``rest_time_coef > 0``)."""
+        return self.rest_time_coef > 0.0
 
     @property
     def total_time_s(self) -> float:
@@ -105,16 +111,15 @@ def derive(problem: SpeedProblem, b: np.ndarray) -> dict[str, np.ndarray]:
     """Speed, accelerations, jerk and time from squared speeds (module docstring definitions).
 
     Each step has an acceleration at its first and at its last node (equal for a
-    constant-acceleration step; 0 at the rest end and 4/3 of the mean at the moving end for a
-    step next to rest under a jerk bound, see :mod:`curvespeed.problem`). A node's acceleration
-    is the mean of the values the steps meeting there give it; its jerk is their difference over
-    the time between the two steps' mid-points. On an open route the vehicle is taken to be
-    steady (zero acceleration) before the start and after the end, so the first and last nodes
-    carry the jerk of taking up and giving back the acceleration over half a step. The time over
-which a node's change of acceleration counts runs between the instants the two values stand for
-(mid-step for a constant-acceleration step, the node itself for a constant-jerk step). On a closed
-    route the seam joins the last step to the first. ``step_jerk_mps3`` is the jerk inside each
-    step (non-zero only for the constant-jerk steps next to rest).
+    constant-acceleration step; 0 at the rest end and ``f`` times the mean at the moving end
+    for a step next to rest under a jerk bound, see :mod:`curvespeed.problem`). A node's
+    acceleration is the mean of the values the steps meeting there give it; its jerk is their
+    difference over the node's time base (:meth:`SpeedProblem.node_jerk_time
+    <curvespeed.problem.SpeedProblem.node_jerk_time>`). On an open route the vehicle is taken to
+    be steady (zero acceleration) before the start and after the end, so the first and last
+    nodes carry the jerk of taking up and giving back the acceleration. On a closed route the
+    seam joins the last step to the first. ``step_jerk_mps3`` is the jerk inside each step (the
+    ramp of a step next to rest; 0 for the constant-acceleration steps).
     """
     b = np.maximum(np.asarray(b, dtype=float), 0.0)
     v = np.sqrt(b)
@@ -123,32 +128,23 @@ which a node's change of acceleration counts runs between the instants the two v
     a_last = a_step * problem.accel_factor_end        # at the step's last node
     dt = problem.step_times(b)
     t = np.concatenate(([0.0], np.cumsum(dt)))
-    # Where each step's acceleration value stands in time: the mid-point of a constant-
-    # acceleration step (half its time from either node), or the node itself for the ends of a
-    # constant-jerk step next to rest (its acceleration ramps exactly between its node values).
-    half = np.where(problem.time_coef > 2.0, 0.0, 0.5 * dt)
     if problem.closed:
         a_before = np.concatenate(([a_last[-1]], a_last))
         a_after = np.concatenate((a_first, [a_first[0]]))
-        off_before = np.concatenate(([half[-1]], half))
-        off_after = np.concatenate((half, [half[0]]))
     else:
         a_before = np.concatenate(([0.0], a_last))
         a_after = np.concatenate((a_first, [0.0]))
-        off_before = np.concatenate(([0.0], half))
-        off_after = np.concatenate((half, [0.0]))
     acc = 0.5 * (a_before + a_after)
     if not problem.closed:
         acc[0], acc[-1] = a_after[0], a_before[-1]
-    mid_dt = off_before + off_after
+    tau = problem.node_jerk_time(b)
     with np.errstate(invalid="ignore", divide="ignore"):
         change = a_after - a_before
-        jerk = np.where(np.isfinite(mid_dt) & (mid_dt > 0), change / mid_dt,
-                        np.where(change == 0.0, 0.0, np.inf))
-        step_jerk = np.where(np.isfinite(dt) & (dt > 0), (a_last - a_first) / dt, 0.0)
-    step_jerk = np.where(problem.time_coef > 2.0, step_jerk, 0.0)
+        jerk = np.where(change == 0.0, 0.0,
+                        np.where(np.isfinite(tau) & (tau > 0), change / tau, np.inf))
     # lateral jerk d(kappa v^2)/dt over each step (curvespeed.problem)
     lat_jerk = problem.step_lateral_jerk(b)
     return {"speed_mps": v, "step_accel_mps2": a_step, "accel_mps2": acc, "jerk_mps3": jerk,
-            "time_s": t, "step_lat_jerk_mps3": lat_jerk, "step_jerk_mps3": step_jerk,
+            "time_s": t, "step_lat_jerk_mps3": lat_jerk,
+            "step_jerk_mps3": problem.step_ramp_jerk(b),
             "step_accel_first_mps2": a_first, "step_accel_last_mps2": a_last}

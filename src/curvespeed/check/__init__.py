@@ -49,9 +49,9 @@ Stops and start/end speeds of the constraints are planning targets and are not c
 recorded drive only samples them approximately); they are ignored with a warning. Under a jerk
 bound a trace's own rest points (speed exactly zero: the ends of an open route, isolated
 stations) are rest points of the problem, so a jerk-limited start or stop is judged by the same
-cubic-step model the planner uses (:func:`rest_constraints`); at an open route's end where the
-trace is moving, only the jerk within the end step is checked (what came before the first
-station is unknown).
+model of a step next to rest the planner uses, a jerk ramp then constant acceleration
+(:func:`rest_constraints`); at an open route's end where the trace is moving, only the jerk
+within the end step is checked (what came before the first station is unknown).
 
 Each violation is a stretch of stations over one limit; stretches of the same kind less than
 ``CurveSettings.join_gap_m`` apart are reported as one (their worst point and use are kept).

@@ -77,7 +77,7 @@ def rest_constraints(used: RouteConstraints, speed_mps: np.ndarray,
                      geometry: Geometry) -> RouteConstraints:
     """``used`` plus the rest points of a speed trace, so a jerk bound is checked as planned.
 
-    Under a jerk bound a vehicle leaves and reaches rest along a cubic step (see
+    Under a jerk bound a vehicle leaves and reaches rest with a jerk ramp (see
     :mod:`curvespeed.problem`); a profile planned that way has exactly zero speed there. The
     trace's own rest points become the problem's: on an open route its first and last speeds are
     the start and end speeds, and every isolated station with speed exactly zero (at least three

@@ -113,31 +113,6 @@ def resolve_limits(limits_file, overrides: dict, zones, stops, superelevations,
     return limits, constraints.merged(extra), origin
 
 
-def check_on_route(constraints, length_m: float) -> None:
-    """Refuse stops and zones that lie outside the route, with bounds precise enough to see why.
-
-    The planner refuses them too, but prints the route's end to 0.1 m, so a stop at 100000 m
-    on a route of 99999.96 m would read "outside the route (0..100000.0 m)"; this check runs
-    first and prints as many digits as it takes.
-    """
-    from ..errors import LimitsError
-    from ..io._format import format_apart
-
-    def here(item) -> str:
-        return f"{item.origin}: " if item.origin else ""
-
-    for s in constraints.stops:
-        if not 0.0 <= s.station_m <= length_m:
-            station, end = format_apart(s.station_m, length_m)
-            raise LimitsError(f"{here(s)}stop at station {station} m lies outside the route "
-                              f"(0..{end} m); check its station against the route summary")
-    for z in constraints.zones:
-        if z.end_m > z.start_m and (z.start_m >= length_m or z.end_m <= 0.0):
-            start, end = format_apart(z.start_m, length_m)
-            raise LimitsError(f"{here(z)}speed zone {start}..{z.end_m:g} m lies outside the "
-                              f"route (0..{end} m); check its stations against the route summary")
-
-
 def limits_and_geometry(route_file, limits_file, overrides: dict, constraint_args: tuple,
                         geometry_args: tuple):
     """Limits, constraints and their origin, and the resampled route, checked against each other.
@@ -151,5 +126,4 @@ def limits_and_geometry(route_file, limits_file, overrides: dict, constraint_arg
 
     limits, constraints, origin = resolve_limits(limits_file, overrides, *constraint_args)
     _, geometry = load_geometry(route_file, *geometry_args)
-    check_on_route(constraints, geometry.length_m)
     return limits, constraints, origin, geometry

@@ -75,24 +75,3 @@ def _drop_negative_zero(cell: str) -> str:
         if mantissa and set(mantissa) <= {"0", "."}:
             return cell[1:]
     return cell
-
-
-def format_apart(value: float, bound: float, decimals: int = 1) -> tuple[str, str]:
-    """``value`` and ``bound`` as text with enough decimals that unequal numbers look unequal.
-
-    For messages such as "stop at station 100000 m lies outside the route (0..99999.96 m)":
-    one decimal unless that would print the two alike, then more (up to 9, then 17 significant
-    digits). Plain numbers, never numpy reprs.
-    """
-    value, bound = float(value), float(bound)
-    for places in range(decimals, 10):
-        a, b = f"{value:.{places}f}", f"{bound:.{places}f}"
-        if value == bound or float(a) != float(b):
-            return _short(value, places), b
-    return f"{value:.17g}", f"{bound:.17g}"
-
-
-def _short(value: float, places: int) -> str:
-    """``value`` with at most ``places`` decimals and no trailing zeros (100000, 12.5)."""
-    text = f"{value:.{places}f}".rstrip("0").rstrip(".")
-    return text or "0"

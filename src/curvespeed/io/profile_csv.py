@@ -10,9 +10,10 @@ lat_accel_mps2, time_s``
     the node's speed ceiling (lateral limits, top speed, zones, stops) and the limit that binds;
 ``step_kind``
     how the step from this station to the next is driven (:class:`StepKind`):
-    ``constant_accel``, or ``constant_jerk`` for a step next to rest planned with a jerk bound
-    (:attr:`Profile.cubic_step <curvespeed.profile.Profile.cubic_step>`); empty on the last row,
-    where no step follows;
+    ``constant_accel``, or ``jerk_ramp`` for a step next to rest planned with a jerk bound
+    (:attr:`Profile.rest_step <curvespeed.profile.Profile.rest_step>`; its shape follows from its
+    time, :mod:`curvespeed.rest_step`); ``constant_jerk`` (older profiles) is still read; empty
+    on the last row, where no step follows;
 ``z_m, grade``
     when the route has elevation;
 ``lat, lon``
@@ -36,7 +37,7 @@ import numpy as np
 
 from ..errors import CurvespeedWarning, SpeedFileError
 from ..export import (StationProfile, make_station_profile, planned_time_mismatch,
-                      steps_next_to_rest)
+                      rest_time_coef_from_times, steps_next_to_rest)
 from ..profile import Profile
 from ._format import format_columns
 from .atomic import write_text_atomic
@@ -69,7 +70,12 @@ class StepKind(enum.Enum):
 
     #: Constant acceleration: the step takes ``2 ds / (v[k] + v[k+1])``.
     CONSTANT_ACCEL = "constant_accel"
-    #: Constant jerk, only next to rest: the step takes ``3 ds / v`` (``v`` at its moving end).
+    #: Only next to rest: a jerk ramp at the rest end, constant acceleration up to the moving
+    #: end; the step takes ``c ds / v`` (``v`` at its moving end, ``c`` in [2, 3] read from
+    #: ``time_s``), see :mod:`curvespeed.rest_step`.
+    JERK_RAMP = "jerk_ramp"
+    #: Constant jerk over the whole step, only next to rest: ``3 ds / v``. Written by older
+    #: versions; read, never written.
     CONSTANT_JERK = "constant_jerk"
 
 
@@ -77,8 +83,8 @@ class StepKind(enum.Enum):
 
 def step_kinds(profile: Profile) -> list[str]:
     """The ``step_kind`` cell of every row: the step to the next station, empty on the last."""
-    kinds = [(StepKind.CONSTANT_JERK if cubic else StepKind.CONSTANT_ACCEL).value
-             for cubic in np.asarray(profile.cubic_step, dtype=bool).tolist()]
+    kinds = [(StepKind.JERK_RAMP if ramp else StepKind.CONSTANT_ACCEL).value
+             for ramp in np.asarray(profile.rest_step, dtype=bool).tolist()]
     return kinds + [""]
 
 
@@ -120,9 +126,10 @@ def read_station_profile(path: str | os.PathLike, name: str | None = None) -> St
 
     Needs the columns :data:`REQUIRED_PROFILE_COLUMNS`; keeps ``time_s``, ``accel_mps2``,
     ``jerk_mps3``, ``lat_accel_mps2``, ``limit_speed_mps``, ``binding``, ``z_m``, ``grade``,
-    ``lat`` and ``lon`` where present. The constant-jerk steps next to rest come from the
-    ``step_kind`` column (:func:`read_step_kinds`); a file without it (older or hand-made) has
-    them recognised from ``time_s`` (:func:`curvespeed.export.detect_cubic_steps`). Warns
+    ``lat`` and ``lon`` where present. The steps next to rest driven with a jerk ramp come from
+    the ``step_kind`` column (:func:`read_step_kinds`; a ``jerk_ramp`` step's time from
+    ``time_s``); a file without it (older or hand-made) has them recognised from ``time_s``
+    (:func:`curvespeed.export.detect_rest_steps`). Warns
     (:class:`CurvespeedWarning`) when the file's own ``time_s`` disagrees with the time implied
     by its stations and speeds.
 
@@ -143,35 +150,37 @@ def read_station_profile(path: str | os.PathLike, name: str | None = None) -> St
     table = read_table_csv(path, min_rows=2)
     required = table.require(*REQUIRED_PROFILE_COLUMNS, what="a profile (export and plot)")
     optional = {c: table.columns.get(c) for c in _OPTIONAL_PROFILE_COLUMNS}
-    cubic = read_step_kinds(table)
-    # a constant-jerk step must have exactly one end at rest; that is checked once the speeds
+    kinds = read_step_kinds(table)
+    coef = None if kinds is None else _rest_time_coef(table, kinds)
+    # a step next to rest must have exactly one end at rest; that is checked once the speeds
     # themselves are (a step with both ends at rest is refused as never driven, which says more)
     sp = make_station_profile(*required, binding=table.columns.get("binding"),
                               name=name or Path(path).stem, source=table.source,
                               where=table.where,
-                              cubic_step=None if cubic is None else
-                              cubic & steps_next_to_rest(table.columns["speed_mps"]),
+                              rest_time_coef=None if coef is None else
+                              np.where(steps_next_to_rest(table.columns["speed_mps"]), coef, 0.0),
                               **optional)
-    if cubic is not None:
-        _check_constant_jerk_steps(table, cubic, sp.speed_mps)
+    if kinds is not None:
+        _check_rest_steps(table, kinds, sp.speed_mps)
     mismatch = planned_time_mismatch(sp)
     if mismatch is not None:
         k, gap = mismatch
         if gap > TIME_MISMATCH_S + TIME_MISMATCH_REL * sp.moving_time_s:
             warnings.warn(
                 f"{table.source}: {sp.node_label(k)}: time_s differs by {gap:.3f} s from the time "
-                "its stations and speeds imply (2 ds / (v[k] + v[k+1]) per step, 3 ds / v on a "
-                "constant-jerk step next to rest); curvespeed uses stations and speeds",
+                "its stations and speeds imply (2 ds / (v[k] + v[k+1]) per step, more on a "
+                "step next to rest as its step_kind says); curvespeed uses stations and speeds",
                 CurvespeedWarning, stacklevel=2)
     return sp
 
 
 def read_step_kinds(table: Table) -> np.ndarray | None:
-    """The ``step_kind`` column as one constant-jerk flag per step; None without the column.
+    """The ``step_kind`` column, one value per step (an array of :class:`StepKind` values);
+    None without the column.
 
-    Every row but the last holds ``constant_accel`` or ``constant_jerk``; the last row (no step
-    follows it) is empty, or one of those values, which is ignored. Whether each
-    ``constant_jerk`` step has exactly one end at rest is checked against the speeds by
+    Every row but the last holds one of the :class:`StepKind` values; the last row (no step
+    follows it) is empty, or one of those values, which is ignored. Whether each step next to
+    rest has exactly one end at rest is checked against the speeds by
     :func:`read_station_profile`.
 
     Raises
@@ -192,21 +201,45 @@ def read_step_kinds(table: Table) -> np.ndarray | None:
         k = int(bad[0])
         raise SpeedFileError(
             f"{table.source}: {table.where[k]}: column 'step_kind' value '{kinds[k]}' is not a "
-            f"step kind; use {' or '.join(allowed)} for the step from that station to the next "
-            "(empty on the last row), or remove the column to have the steps recognised from "
-            "time_s")
-    return np.asarray(kinds[:-1] == StepKind.CONSTANT_JERK.value, dtype=bool)
+            f"step kind; use {', '.join(allowed[:-1])} or {allowed[-1]} for the step from that "
+            "station to the next (empty on the last row), or remove the column to have the "
+            "steps recognised from time_s")
+    return kinds[:-1]
 
 
-def _check_constant_jerk_steps(table: Table, cubic: np.ndarray, speed_mps: np.ndarray) -> None:
-    """Refuse ``constant_jerk`` on a step without exactly one end at rest (file, line, value)."""
-    bad = np.flatnonzero(cubic & ~steps_next_to_rest(speed_mps))
+_REST_KINDS = (StepKind.JERK_RAMP.value, StepKind.CONSTANT_JERK.value)
+
+
+def _rest_time_coef(table: Table, kinds: np.ndarray) -> np.ndarray:
+    """The ``c`` of each step's time ``c ds / v`` by its kind: 3 for ``constant_jerk``, from
+    ``time_s`` for ``jerk_ramp``, 0 (constant acceleration) otherwise."""
+    ramp = kinds == StepKind.JERK_RAMP.value
+    coef = np.where(kinds == StepKind.CONSTANT_JERK.value, 3.0, 0.0)
+    if not ramp.any():
+        return coef
+    times = table.columns.get("time_s")
+    if times is None:
+        k = int(np.flatnonzero(ramp)[0])
+        raise SpeedFileError(
+            f"{table.source}: {table.where[k]}: column 'step_kind' value "
+            f"'{StepKind.JERK_RAMP.value}' needs the time_s column (the step's shape follows from "
+            "its time); add time_s, or remove the step_kind column")
+    s, v = table.columns["station_m"], table.columns["speed_mps"]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        from_times = rest_time_coef_from_times(s, v, times)
+    return np.where(ramp, from_times, coef)
+
+
+def _check_rest_steps(table: Table, kinds: np.ndarray, speed_mps: np.ndarray) -> None:
+    """Refuse a step kind next to rest on a step without exactly one end at rest (file, line,
+    value)."""
+    bad = np.flatnonzero(np.isin(kinds, _REST_KINDS) & ~steps_next_to_rest(speed_mps))
     if bad.size:
         k = int(bad[0])
         where, v = table.where, speed_mps
         raise SpeedFileError(
             f"{table.source}: {where[k]}: column 'step_kind' value "
-            f"'{StepKind.CONSTANT_JERK.value}' is allowed only on a step with exactly one end at "
+            f"'{kinds[k]}' is allowed only on a step with exactly one end at "
             f"rest (speed 0), but speed_mps is {v[k]:g} here and {v[k + 1]:g} on {where[k + 1]}; "
             f"use {StepKind.CONSTANT_ACCEL.value} there, or remove the column to have the steps "
             "recognised from time_s")

@@ -34,7 +34,9 @@ when the objective (the time, plus any comfort term) improves by less than ``rel
 of the route's time.
 
 Stops and stations held at a speed cap cut the route into independent stretches (blocks); they
-are grouped into batches, one QP each, solved at once on the processor's cores.
+are grouped into batches of about :data:`_BATCH_VARIABLES` stations (by their sizes alone, so
+the answer is the same for any number of threads), one QP each, solved at once on the
+processor's cores.
 """
 
 from __future__ import annotations
@@ -48,6 +50,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
+from ..diagnose import stop_out_of_reach
 from ..errors import CurvespeedWarning, InfeasibleError, SolverError
 from ..problem import SpeedProblem
 from . import SolveResult, SolveStatus
@@ -85,7 +88,8 @@ class ConvexOptions:
         envelope's route time (a thousandth of ``rel_improvement``: finer than the stopping test
         can see, and it spares the interior-point method the last few iterations).
     threads : int or None
-        Worker threads that solve independent batches of the QP at once; None uses every
+        Worker threads that solve independent batches of the QP at once (the batches, and so
+        the answer, do not depend on it); None uses every
         processor core this process may run on.
     anchor_plateaus : bool
         Hold the middle of long stretches where the envelope sits at a speed cap (see
@@ -248,6 +252,40 @@ class _QPBuilder:
         L.sum_duplicates()
         return L, np.concatenate((rhs, rhs))
 
+    def _jerk_rows(self, b_hat: np.ndarray):
+        """Rows ``+-D[node] b <= scale J ds (2 / w_hat - w_up(b) / w_hat^2)`` for every term of
+        the jerk's time base (:attr:`SpeedProblem.jerk_terms`).
+
+        A term bounds the time base by ``scale ds / w`` with ``w`` a weighted sum of square
+        roots, concave in ``b``: its tangent ``w_up`` at ``b_hat`` bounds it from above, so
+        ``1 / w >= 1 / w_up``, and the tangent of the convex ``1 / x`` at ``w_hat`` bounds that
+        from below. Both keep the row inside the true bound for any ``b_hat > 0``; a fixed
+        station's speed is known exactly. A term of scale 0 asks for no change at all.
+        """
+        p, lay = self.p, self.lay
+        t = p.jerk_terms
+        J = p.limits.max_jerk_mps3 * (1.0 - self.opt.margin)
+        root = np.where(lay.fixed, np.sqrt(np.maximum(lay.fixed_value, 0.0)),
+                        np.sqrt(np.maximum(b_hat, _B_FLOOR)))
+        base = np.where(lay.fixed, lay.fixed_value, b_hat)
+        cols = (t.prev, t.node, t.next)
+        w_hat = sum(t.weights[:, i] * root[c] for i, c in enumerate(cols))
+        w_hat = np.where(w_hat > 0.0, w_hat, 1.0)
+        coef = t.scale * J * self.ds / (w_hat * w_hat)
+        slopes = []
+        for i, c in enumerate(cols):
+            exact = lay.fixed[c] | (t.weights[:, i] == 0.0)
+            slopes.append(np.where(exact, 0.0, coef * t.weights[:, i]
+                                   / np.where(exact, 1.0, 2.0 * root[c])))
+        rhs = t.scale * J * self.ds / w_hat + sum(g * base[c] for g, c in zip(slopes, cols))
+        m = t.node.size
+        G = sp.coo_matrix((np.concatenate(slopes),
+                           (np.tile(np.arange(m), 3), np.concatenate(cols))),
+                          shape=(m, lay.nv)).tocsr()
+        G.sum_duplicates()
+        Dn = self.D[t.node]
+        return sp.vstack([Dn + G, -Dn + G], format="csr"), np.concatenate((rhs, rhs))
+
     def build(self, b_hat: np.ndarray):
         p, lay, ds = self.p, self.lay, self.ds
         nv = lay.nv
@@ -284,8 +322,6 @@ class _QPBuilder:
 
         # acceleration rows: each step at each of its nodes, each side, each segment
         sf, st = lay.step_from, lay.step_to
-        a_tol_hi = margin * lim.max_accel_mps2
-        a_tol_lo = margin * lim.max_decel_mps2
         # A concave hi (convex lo) is replaced by its chords on [0, m] and [m, e]; where the
         # single chord on [0, e] is within chord_tolerance of it at m (straights, gentle curves)
         # that one row is enough. Rows identical at both ends of a step are kept once.
@@ -295,6 +331,9 @@ class _QPBuilder:
                 f = hi_pts if side == "hi" else lo_pts
                 f0, fm, fe = f[0][end], f[1][end], f[2][end]
                 p0, pm_, pe = pts[0][end], pts[1][end], pts[2][end]
+                # tightened by `margin` of the bound itself, not of the cap: a cap far above
+                # what grip allows (max_accel 1e6) must not tighten the grip rows by 10 m/s^2
+                a_tol = margin * np.maximum(np.maximum(np.abs(f0), np.abs(fm)), np.abs(fe))
                 wide = pe - p0 > 1e-12
                 whole = np.where(wide, (fe - f0) / np.where(wide, pe - p0, 1.0), 0.0)
                 dev = np.abs(fm - (f0 + whole * (pm_ - p0)))
@@ -319,10 +358,10 @@ class _QPBuilder:
                     else:
                         rows_seen[key] = (c_from, c_to, rhs)
                     if side == "hi":
-                        up = np.where(ok, rhs - a_tol_hi, np.inf)
+                        up = np.where(ok, rhs - a_tol, np.inf)
                         add_rows(sf, c_from, st, c_to, np.full(sf.size, -np.inf), up)
                     else:
-                        lo = np.where(ok, rhs + a_tol_lo, -np.inf)
+                        lo = np.where(ok, rhs + a_tol, -np.inf)
                         add_rows(sf, c_from, st, c_to, lo, np.full(sf.size, np.inf))
 
         # power: tangents of P/(m sqrt(b)) - res(b) at m and e (drive side only)
@@ -335,7 +374,8 @@ class _QPBuilder:
                     res1 = p.resistance(1.0, nodes=end) - res0      # d res / d b
                     f0 = pm / np.sqrt(bq)
                     slope = -0.5 * pm / bq ** 1.5 - res1
-                    rhs = f0 - res0 - res1 * bq - slope * bq - a_tol_hi
+                    bound = f0 - res0 - res1 * bq                   # the limit at bq
+                    rhs = bound - slope * bq - margin * np.abs(bound)
                     c_from, c_to = _accel_minus_slope(end is sf, fac * h, slope)
                     add_rows(sf, c_from, st, c_to, np.full(sf.size, -np.inf), rhs)
 
@@ -350,45 +390,10 @@ class _QPBuilder:
 
         # jerk rows: |D b| <= R(b), R linear (tangent, see module docstring)
         if lay.jerk:
-            J = lim.max_jerk_mps3 * (1.0 - margin)
-            k = np.arange(nv)
-            hp, hn = lay.j_has_prev, lay.j_has_next
-            # tau >= ds / w with w = sum c sqrt(b) (Jensen; see module docstring): interior
-            # w = (v_prev + v)/(2 c_before) + (v + v_next)/(2 c_after); at an open end the
-            # virtual outside step has zero acceleration and tau is half the real step
-            # only constant-acceleration sides (time coefficient 2) add time to tau; a
-            # constant-jerk step's value stands at the node itself
-            lin_b = hp & (lay.time_coef[lay.step_before] == 2.0)
-            lin_a = hn & (lay.time_coef[lay.step_after] == 2.0)
-            both = lin_b & lin_a
-            c_prev = np.where(both, 0.25, np.where(lin_b, 1.0, 0.0))
-            c_next = np.where(both, 0.25, np.where(lin_a, 1.0, 0.0))
-            c_self = np.where(both, 0.5, np.where(lin_b | lin_a, 1.0, 0.0))
-            sq = np.sqrt(np.maximum(b_hat, _B_FLOOR))
-            w_hat = c_prev * sq[lay.j_prev] + c_self * sq + c_next * sq[lay.j_next]
-            w_hat = np.where(w_hat > 0, w_hat, 1.0)    # rows with tau = 0 are handled below
-            coef = J * ds / (w_hat * w_hat)
-            g_prev = np.where(free[lay.j_prev], coef * c_prev / (2 * sq[lay.j_prev]), 0.0)
-            g_self = np.where(free, coef * c_self / (2 * sq), 0.0)
-            g_next = np.where(free[lay.j_next], coef * c_next / (2 * sq[lay.j_next]), 0.0)
-            g_prev = np.where(hp, g_prev, 0.0)
-            g_next = np.where(hn, g_next, 0.0)
-            no_time = (c_self == 0.0)
-            g_prev, g_self, g_next = (np.where(no_time, 0.0, g) for g in (g_prev, g_self, g_next))
-            alpha0 = (J * ds / w_hat + g_prev * b_hat[lay.j_prev] + g_self * b_hat
-                      + g_next * b_hat[lay.j_next])
-            G = sp.coo_matrix((np.concatenate((g_prev, g_self, g_next)),
-                               (np.concatenate((k, k, k)),
-                                np.concatenate((lay.j_prev, k, lay.j_next)))),
-                              shape=(nv, nv)).tocsr()
-            G.sum_duplicates()
-            # a node where both steps have zero acceleration (a rest node) has no jerk row
-            active = np.abs(self.D).sum(axis=1).A1 > 0
-            # tau = 0 (between two constant-jerk steps): the accelerations must match exactly
-            alpha0 = np.where(active, np.where(no_time, 0.0, alpha0), np.inf)
-            blocks += [self.D + G, -self.D + G]
-            lows += [np.full(nv, -np.inf), np.full(nv, -np.inf)]
-            ups += [alpha0, alpha0]
+            J, up_j = self._jerk_rows(b_hat)
+            blocks.append(J)
+            lows.append(np.full(J.shape[0], -np.inf))
+            ups.append(up_j)
 
         if lim.max_lateral_jerk_mps3 is not None:
             L, up_l = self._lateral_jerk_rows(b_hat)
@@ -636,11 +641,12 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
             row_block = node_block[free_idx][A.indices[A.indptr[:-1]]]
             # Blocks are solved in batches: one QP per batch is block-diagonal, so each block's
             # part of its answer is that block's own optimum, while the fixed cost of a solver
-            # call is paid once per batch rather than once per block. Batches are balanced over
-            # the worker threads (Clarabel releases the interpreter lock while it solves).
+            # call is paid once per batch rather than once per block. The batches follow from
+            # the blocks' sizes alone, so every thread count solves the very same QPs; the worker
+            # threads share them out (Clarabel releases the interpreter lock while it solves).
             gap_abs = options.qp_gap_fraction * t_total * qp["scale"]
             jobs = []
-            for batch in _batches(np.flatnonzero(active), blocks, threads):
+            for batch in _batches(np.flatnonzero(active), blocks):
                 cols = np.concatenate([blocks[k] for k in batch])
                 rows = np.flatnonzero(np.isin(row_block, batch))
                 sub = (P[cols][:, cols], qp["q"][cols], A[rows][:, cols], qp["lo"][rows],
@@ -694,29 +700,27 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
     return b_hat, status, iterations, qp_iterations, notes
 
 
-#: Largest batch of independent blocks solved in one QP (variables).
-_BATCH_VARIABLES = 20_000
-#: Smallest share worth a worker thread of its own (variables): below it, the fixed cost of a
-#: solver call outweighs the parallel gain.
-_MIN_SHARE_VARIABLES = 500
+#: Size of a batch of independent blocks solved in one QP (variables): the route's free stations
+#: are cut into about this many per batch, whatever the number of threads, so each QP -- and
+#: therefore the answer, to the byte -- is the same for any number of threads; the threads only
+#: share the batches out. Small enough that a few cores get balanced work on a 10 km route (about 7 batches),
+#: large enough that the fixed cost of a solver call stays small (measured: the same solve
+#: times as the thread-dependent batching it replaces, within the machine's noise).
+_BATCH_VARIABLES = 1_000
 
 
-def _batches(block_ids, blocks, threads: int):
-    """Group block ids, in route order, into batches for ``threads`` workers.
+def _batches(block_ids, blocks):
+    """Group block ids, in route order, into batches of about ``_BATCH_VARIABLES`` variables.
 
-    The number of batches is a multiple of the workers used (``threads``, fewer when a share
-    would be under ``_MIN_SHARE_VARIABLES``) and large enough that none exceeds about
-    ``_BATCH_VARIABLES``; cuts fall at the block boundaries nearest to equal shares, so the
-    workers finish together.
+    The number of batches follows from the variables alone (never from the number of threads);
+    cuts fall at the block boundaries nearest to equal shares.
     """
     ids = list(block_ids)
     if not ids:
         return []
     sizes = np.array([blocks[k].size for k in ids], dtype=float)
     total = float(sizes.sum())
-    workers = max(1, min(threads, int(total // _MIN_SHARE_VARIABLES)))
-    n = max(1, math.ceil(total / _BATCH_VARIABLES))
-    n = math.ceil(n / workers) * workers
+    n = max(1, round(total / _BATCH_VARIABLES))
     ends = np.cumsum(sizes)
     cuts = sorted({int(np.argmin(np.abs(ends - total * j / n))) + 1 for j in range(1, n)})
     out, start = [], 0
@@ -824,21 +828,16 @@ def _line_search(b0, b1, f0, objective, iterations: int = 30):
 
 
 def _explain_infeasible(problem: SpeedProblem) -> str:
-    """Say why no jerk-limited profile exists, naming the first constraint that cannot be met."""
+    """Say why no jerk-limited profile exists, naming the first constraint that cannot be met.
+
+    The envelope (no jerk bound) was found before, so every station is drivable and every
+    constraint reachable without the jerk bound; what is left is a stop too close to the start
+    for a jerk-limited stop (named as the user gave it), or the jerk bounds themselves.
+    """
     lim = problem.limits
-    j = lim.max_jerk_mps3
-    a = lim.max_decel_mps2
-    if problem.b_start:
-        v0 = math.sqrt(problem.b_start)
-        # jerk-limited stop from v0 (double-S by symmetry): v0^2/(2a) + v0 a/(2j) if v0 j >= a^2
-        need = v0 * v0 / (2 * a) + v0 * a / (2 * j) if v0 * j >= a * a else v0 * math.sqrt(v0 / j)
-        for k in problem.stop_nodes:
-            avail = problem.station_m[k] - problem.station_m[0]
-            if need > avail:
-                return (f"{problem.source}: start speed {v0:.2f} m/s: the stop at station "
-                        f"{problem.station_m[k]:.1f} m needs {need:.1f} m of jerk-limited "
-                        f"braking (decel {a:g} m/s^2, jerk {j:g} m/s^3) but only {avail:.1f} m "
-                        "are available; lower the start speed or move the stop")
+    at_stop = stop_out_of_reach(problem, jerk=True)
+    if at_stop is not None:
+        return at_stop
     if lim.max_lateral_jerk_mps3 is not None:
         return (f"{problem.source}: no speed profile satisfies the jerk bounds together with the "
                 "other limits and constraints (stops, zones, start and end speed); a fixed "

@@ -22,6 +22,7 @@ import time
 
 import numpy as np
 
+from ..diagnose import stop_out_of_reach, undrivable_station
 from ..errors import InfeasibleError
 from ..problem import SpeedProblem, check_start_end
 from . import SolveResult, SolveStatus
@@ -198,6 +199,9 @@ def _backward_pass(nd: _Nodes, ceiling: list, b_last: float, order: list) -> lis
 def solve_envelope(problem: SpeedProblem) -> SolveResult:
     """Time-optimal squared-speed profile without jerk bound (see module docstring)."""
     t0 = time.perf_counter()
+    stuck = undrivable_station(problem)
+    if stuck is not None:
+        raise InfeasibleError(stuck)
     ceiling_arr = problem.lateral_ceiling_b()
     check_start_end(problem, ceiling_arr)
     nd = _Nodes(problem)
@@ -273,6 +277,9 @@ def _solve_periodic(problem: SpeedProblem, nd: _Nodes, ceiling_arr: np.ndarray,
 
 def _raise_cannot_slow(problem: SpeedProblem, b: np.ndarray, fwd: list) -> None:
     """Explain a start speed that cannot be braked down in time."""
+    at_stop = stop_out_of_reach(problem, jerk=problem.jerk_model)
+    if at_stop is not None:
+        raise InfeasibleError(at_stop)
     ceiling = problem.lateral_ceiling_b()
     # the first node whose ceiling the backward pass rests on after the start
     tight = np.flatnonzero(np.isclose(b[1:], np.asarray(fwd[1:]), rtol=1e-9, atol=1e-12)

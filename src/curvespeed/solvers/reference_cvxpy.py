@@ -166,54 +166,52 @@ def _lateral_jerk_constraints(problem, b, b_lin, fixed, frm, to):
 
 
 def _jerk_constraints(problem, b, b_lin, nv, frm, to, mean_a, f_first, f_last):
-    """|a_after - a_before| <= J tau at every node with tau >= ds / w(b), w linearised.
+    """|a_after - a_before| <= J tau at every node, tau the node's time base.
 
-    Built as sparse matrices from the definitions: ``Dm @ b`` is the change of acceleration at
-    each node; ``w`` sums ``sqrt(b)`` of the node and the far node of each constant-acceleration
-    side (whose mid-point lies half a step time, ``c ds / (2 (v_k + v_other))``, away), with
-    weights from Jensen's inequality on ``1/x``.
+    Written from the definition (:attr:`SpeedProblem.jerk_terms`): each term says
+    ``tau >= scale ds / w`` with ``w`` a weighted sum of ``sqrt(b)`` at up to three nodes.
+    ``w`` is bounded above by the tangents of ``sqrt`` at ``b_lin`` (concave; exact at a node of
+    fixed speed), and ``1 / w`` below by the tangent of ``1 / x`` at the linearisation point
+    (convex). ``Dm @ b`` is the change of acceleration at each node.
     """
     import cvxpy as cp
     import scipy.sparse as sp
 
     J = problem.limits.max_jerk_mps3
     ds = problem.ds
-    ns = frm.size
-    linear_step = problem.time_coef[:ns] == 2.0
-    k = np.arange(nv)
-    Dm, at_rest, (before, after, has_b, has_a) = _accel_change(problem, nv, frm, to, f_first,
-                                                                f_last)
-
-    side_b = has_b & linear_step[before]
-    side_a = has_a & linear_step[after]
-    two = side_b & side_a
-    w_self = np.where(two, 0.5, np.where(side_b | side_a, 1.0, 0.0))
-    w_b = np.where(two, 0.25, np.where(side_b, 1.0, 0.0))
-    w_a = np.where(two, 0.25, np.where(side_a, 1.0, 0.0))
-    far_b, far_a = frm[before], to[after]
-    roots = np.sqrt(np.maximum(b_lin, _B_FLOOR))
-    w_hat = w_self * roots + w_b * roots[far_b] + w_a * roots[far_a]
+    terms = problem.jerk_terms
+    Dm, _, _ = _accel_change(problem, nv, frm, to, f_first, f_last)
     fixed = np.zeros(nv, dtype=bool)
     fixed[np.asarray(problem.stop_nodes, dtype=int) % nv] = True
+    value = np.zeros(nv)
     if not problem.closed:
         fixed[[0, nv - 1]] = True
-    # tangent of sqrt at b_lin: sqrt(b) <= r + (b - b_lin) / (2 r), only for free nodes
-    slope = np.where(fixed, 0.0, 1.0 / (2.0 * roots))
-    Wm = sp.csr_matrix((np.concatenate((w_self * slope, w_b * slope[far_b], w_a * slope[far_a])),
-                        (np.concatenate((k, k, k)), np.concatenate((k, far_b, far_a)))),
-                       shape=(nv, nv))
-    w0 = w_hat - Wm @ b_lin
-    no_time = w_self == 0
-    idx = np.flatnonzero(~at_rest & ~no_time)
+        value[0], value[nv - 1] = problem.b_start, problem.b_end
+    roots = np.where(fixed, np.sqrt(value), np.sqrt(np.maximum(b_lin, _B_FLOOR)))
+    cols = (terms.prev, terms.node, terms.next)
+    w_hat = sum(terms.weights[:, i] * roots[c] for i, c in enumerate(cols))
+    # tangent of sqrt at b_lin: sqrt(b) <= r + (b - b_lin) / (2 r), at free nodes only
+    slopes = []
+    for i, c in enumerate(cols):
+        exact = fixed[c] | (terms.weights[:, i] == 0.0)
+        slopes.append(np.where(exact, 0.0, terms.weights[:, i] / np.where(exact, 1.0,
+                                                                           2.0 * roots[c])))
+    m = terms.node.size
+    Wm = sp.csr_matrix((np.concatenate(slopes), (np.tile(np.arange(m), 3), np.concatenate(cols))),
+                       shape=(m, nv))
+    w_upper_0 = w_hat - Wm @ b_lin
+    cons = []
+    zero = terms.scale == 0.0
+    if zero.any():
+        cons.append(Dm[terms.node[zero]] @ b == 0)
+    idx = np.flatnonzero(~zero)
     wh = w_hat[idx]
-    change = Dm[idx] @ b
-    w_upper = w0[idx] + Wm[idx] @ b
+    w_upper = w_upper_0[idx] + Wm[idx] @ b
     # 1/w >= 2/w_hat - w/w_hat^2 (tangent of the convex 1/w), and w <= w_upper
-    budget = J * ds * (2.0 / wh - cp.multiply(1.0 / (wh * wh), w_upper))
-    cons = [change <= budget, -change <= budget]
-    tight = np.flatnonzero(~at_rest & no_time)
-    if tight.size:
-        cons.append(Dm[tight] @ b == 0)
+    budget = cp.multiply(terms.scale[idx] * J * ds,
+                         2.0 / wh - cp.multiply(1.0 / (wh * wh), w_upper))
+    change = Dm[terms.node[idx]] @ b
+    cons += [change <= budget, -change <= budget]
     return cons
 
 

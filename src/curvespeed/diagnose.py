@@ -1,0 +1,143 @@
+"""Why no speed profile exists, said in the user's terms.
+
+Solvers call these when they find no profile, before blaming the jerk bound: a station where
+the vehicle cannot move at all (:func:`undrivable_station`), or a stop too close to the start
+for the start speed (:func:`stop_out_of_reach`). Each returns the message of an
+:class:`~curvespeed.errors.InfeasibleError` (or None when the cause is not this one): what is
+wrong, where (the station, the stop as the user gave it and where it came from), why, and what
+to do. Core numerics: nothing here reads or writes files.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from .limits import stop_node
+from .problem import SpeedProblem
+
+#: Squared speed at which "at rest or nearly" is judged, m^2/s^2 ((1 mm/s)^2).
+_CRAWL_B = 1e-6
+
+
+def undrivable_station(problem: SpeedProblem) -> str | None:
+    """The first station where the vehicle can neither stand nor move forward, explained.
+
+    At (nearly) zero speed the acceleration interval of a station must contain zero for the
+    vehicle to stand there, and a positive acceleration for it to move on: the tyres must hold
+    or climb the grade, and carry the cross-slope. A grade steeper than friction allows (in
+    practice an elevation error: a spike, or receiver noise) fails both; no profile can pass
+    such a station, whatever the jerk bound. Returns None when every station is drivable.
+    """
+    lo, hi = problem.accel_bounds(np.full(problem.n_nodes, _CRAWL_B))
+    stuck = (hi <= 0.0) | (lo > 0.0) | (lo > hi)
+    if not stuck.any():
+        return None
+    bad = np.flatnonzero(stuck)
+    k = int(bad[0])
+    grade = math.tan(math.asin(float(problem.sin_grade[k])))
+    lim = problem.limits
+    station = float(problem.station_m[k])
+    others = (f" (and {bad.size - 1} more station(s) up to {problem.station_m[bad[-1]]:.1f} m)"
+              if bad.size > 1 else "")
+    if abs(grade) > 0.0 and abs(problem.resistance(_CRAWL_B, k)) >= abs(grade) * 1e-3:
+        steepest = int(bad[np.argmax(np.abs(problem.sin_grade[bad]))])
+        worst = 100.0 * math.tan(math.asin(float(problem.sin_grade[steepest])))
+        return (f"{problem.source}: a grade of {100.0 * grade:+.0f} % at station {station:.1f} m"
+                f"{others} is steeper than the tyres can climb or hold (friction "
+                f"{lim.mu_long:g} allows about {100.0 * lim.mu_long:.0f} %; the steepest is "
+                f"{worst:+.0f} % at {problem.station_m[steepest]:.1f} m): no vehicle can pass it, "
+                "whatever the other limits. Public roads stay below about 35 %; grades like "
+                "this come from elevation errors (a spike, or receiver noise): check the elevations, or "
+                "plan without them (drop the elevation column)")
+    return (f"{problem.source}: at station {station:.1f} m{others} the vehicle cannot stand or "
+            f"move forward at any speed (acceleration allowed there at rest: {lo[k]:.3g} to "
+            f"{hi[k]:.3g} m/s^2); check the grade, the superelevation, the friction "
+            "coefficient and the drag there")
+
+
+def jerk_limited_stopping_distance(v0: float, decel: float, jerk: float | None) -> float:
+    """Shortest distance to come to rest from ``v0``, m.
+
+    Without a jerk bound ``v0^2 / (2 a)``; with one, the double-S stop (Biagiotti & Melchiorri
+    2008, section 3.4): ``v0^2 / (2 a) + v0 a / (2 j)`` if ``v0 j >= a^2``, else
+    ``v0 sqrt(v0 / j)``.
+    """
+    if jerk is None:
+        return v0 * v0 / (2.0 * decel)
+    if v0 * jerk >= decel * decel:
+        return v0 * v0 / (2.0 * decel) + v0 * decel / (2.0 * jerk)
+    return v0 * math.sqrt(v0 / jerk)
+
+
+def _fastest_start_that_stops(distance: float, decel: float, jerk: float | None) -> float:
+    """The largest ``v0`` whose stopping distance is ``distance`` (inverse of the above)."""
+    if jerk is None:
+        return math.sqrt(2.0 * decel * distance)
+    # v0^2 / (2 a) + v0 a / (2 j) = d, valid where v0 j >= a^2
+    half = decel * decel / (2.0 * jerk)
+    v0 = -half + math.sqrt(half * half + 2.0 * decel * distance)
+    return v0 if v0 * jerk >= decel * decel else (distance * distance * jerk) ** (1.0 / 3.0)
+
+
+def stop_out_of_reach(problem: SpeedProblem, jerk: bool) -> str | None:
+    """The first stop the vehicle cannot come to rest at from the start speed, explained.
+
+    Names the stop as the user gave it (its station and where it came from: ``--stop`` or the
+    limits file) and compares the distance from the start with the shortest stop from the
+    start speed at the deceleration cap (and the jerk bound when ``jerk``) on the level. None
+    when the route starts at rest or every stop is far enough.
+    """
+    if problem.closed or not problem.b_start:
+        return None
+    lim = problem.limits
+    v0 = math.sqrt(problem.b_start)
+    j = lim.max_jerk_mps3 if jerk else None
+    need = jerk_limited_stopping_distance(v0, lim.max_decel_mps2, j)
+    s0 = float(problem.station_m[0])
+    for stop in sorted(problem.stops, key=lambda st: st.station_m):
+        node = stop_node(stop.station_m, problem.ds, problem.n_nodes, problem.closed)
+        available = float(problem.station_m[node]) - s0
+        if need <= available:
+            continue
+        origin = f"{stop.origin}: " if stop.origin else ""
+        how = (f"braking at up to {lim.max_decel_mps2:g} m/s^2 with jerk up to {j:g} m/s^3"
+               if j is not None else f"braking at up to {lim.max_decel_mps2:g} m/s^2")
+        fastest = _fastest_start_that_stops(available, lim.max_decel_mps2, j)
+        raise_limit = "max_decel_mps2" + (" or max_jerk_mps3" if j is not None else "")
+        return (f"{problem.source}: {origin}the stop at station {stop.station_m:g} m is "
+                f"{available:.1f} m from the start, too close to come to rest from the start "
+                f"speed {v0:.2f} m/s: {how} takes {need:.1f} m on the level. Lower the "
+                f"start speed to {fastest:.2f} m/s or less, move the stop to {need:.1f} m or "
+                f"more from the start, or raise {raise_limit}")
+    return None
+
+
+def standstill(problem: SpeedProblem, b: np.ndarray) -> str | None:
+    """A profile that stands still somewhere other than at a rest point never arrives: the
+    first such station, explained (None when the profile moves everywhere it should).
+
+    A step with zero speed at both ends is never covered; the limits leave no speed there
+    (:func:`undrivable_station` explains the usual causes first)."""
+    v = np.sqrt(np.maximum(np.asarray(b, dtype=float), 0.0))
+    dead = np.flatnonzero((v[:-1] <= 0.0) & (v[1:] <= 0.0))
+    if dead.size == 0:
+        return None
+    stuck = undrivable_station(problem)
+    if stuck is not None:
+        return stuck
+    k = int(dead[0])
+    stops = [st for st in problem.stops
+             if stop_node(st.station_m, problem.ds, problem.n_nodes, problem.closed) in (k, k + 1)]
+    if len(stops) >= 2 or problem.cap_b[k] == problem.cap_b[k + 1] == 0.0:
+        named = " and ".join(f"{st.station_m:g} m" + (f" ({st.origin})" if st.origin else "")
+                             for st in stops) or (f"{problem.station_m[k]:.1f} and "
+                                                 f"{problem.station_m[k + 1]:.1f} m")
+        return (f"{problem.source}: the vehicle must be at rest at {named}, on neighbouring "
+                f"stations {problem.ds:g} m apart, so it never covers the step between them; "
+                "merge the stops or move them at least two station steps apart")
+    return (f"{problem.source}: the limits leave no speed at all between stations "
+            f"{problem.station_m[k]:.1f} and {problem.station_m[k + 1]:.1f} m, so no profile "
+            "gets past them; check the limits (units, drag and mass, the cross-slope) and the "
+            "route there")

@@ -1,0 +1,163 @@
+"""How the jerk bound enters the discrete problem: steps next to rest and the jerk's time base.
+
+Part of the one definition of the discrete problem (:mod:`curvespeed.problem`, whose module
+docstring states the model): which nodes are at rest, the shape each step next to rest gets
+(:mod:`curvespeed.rest_step` has its kinematics) and the cap its jerk ramp puts on the moving
+node, and the terms of the time base over which a node's change of acceleration counts.
+:func:`curvespeed.problem.build_problem` calls it; nothing here reads or writes files.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from . import rest_step
+from .errors import LimitsError
+from .limits import stop_node
+
+if TYPE_CHECKING:
+    from .problem import SpeedProblem
+
+
+@dataclass(frozen=True)
+class JerkTimeTerms:
+    """The time base of the jerk at each node, as terms (see the module docstring).
+
+    Term ``i`` bounds node ``node[i]``: ``tau >= scale[i] * ds / w_i`` with
+    ``w_i = weights[i] . sqrt(b[[prev[i], node[i], next[i]]])``, a concave function of ``b``;
+    a node's time base is the smallest of its terms (``scale`` 0: the change must be zero). Node
+    indices are over the distinct nodes (a closed route's last node is its first). A node with no
+    term (at rest between two steps next to rest) has no change of acceleration.
+    """
+
+    node: np.ndarray
+    prev: np.ndarray
+    next: np.ndarray
+    weights: np.ndarray
+    scale: np.ndarray
+
+
+def rest_nodes(problem: SpeedProblem) -> np.ndarray:
+    """Nodes where the vehicle is at rest (stops, ends at rest); refuses two closer than three
+    station steps, which leaves no room for the ramps."""
+    n, ds, s = problem.n_nodes, problem.ds, problem.station_m
+    rest = np.zeros(n, dtype=bool)
+    rest[problem.stop_nodes] = True
+    if problem.closed:
+        rest[-1] = rest[0] = rest[0] or rest[-1]
+    else:
+        rest[0] = problem.b_start == 0.0
+        rest[-1] = problem.b_end == 0.0
+    idx = np.flatnonzero(rest)
+    close = np.flatnonzero(np.diff(idx) < 3)
+    if close.size:
+        k0, k1 = idx[close[0]], idx[close[0] + 1]
+        origins = sorted({st.origin or "a stop" for st in problem.stops
+                          if stop_node(st.station_m, ds, n, problem.closed) in (k0, k1)})
+        named = f" (from {', '.join(origins)})" if origins else ""
+        raise LimitsError(f"{problem.source}: stations {s[k0]:.1f} and {s[k1]:.1f} m are "
+                          f"both at rest{named} and less than three station steps apart "
+                          f"({3 * ds:g} m); move the stops apart or merge them")
+    return rest
+
+
+def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
+    """``problem`` with the steps next to ``rest`` nodes ramped (module docstring)."""
+    leaving, arriving = rest[:-1], rest[1:]
+    steps = np.flatnonzero(leaving | arriving)
+    moving = np.where(leaving[steps], steps + 1, steps)
+    accel = rest_step_accel(problem, moving, leaving[steps])
+    jerk, ds = problem.limits.max_jerk_mps3, problem.ds
+    u = np.full(problem.n_nodes - 1, np.nan)
+    u[steps] = rest_step.shape_for_accel(accel, jerk, ds)
+    f = rest_step.accel_factor(u[steps])
+    time_coef = problem.time_coef.copy()
+    time_coef[steps] = rest_step.time_coef(u[steps])
+    f_start, f_end = problem.accel_factor_start.copy(), problem.accel_factor_end.copy()
+    f_start[steps] = np.where(leaving[steps], 0.0, f)
+    f_end[steps] = np.where(leaving[steps], f, 0.0)
+    # the ramp's own jerk caps the moving node
+    cap, source = problem.cap_b.copy(), problem.cap_source.copy()
+    b_ramp = rest_step.jerk_cap_b(u[steps], jerk, ds)
+    tighter = cap[moving] > b_ramp
+    cap[moving[tighter]] = b_ramp[tighter]
+    source[moving[tighter]] = "jerk_launch"
+    if problem.closed and cap[-1] != cap[0]:      # the last node is the first
+        k = 0 if cap[0] < cap[-1] else -1
+        cap[0] = cap[-1] = cap[k]
+        source[0] = source[-1] = source[k]
+    return replace(problem, time_coef=time_coef, accel_factor_start=f_start,
+                   accel_factor_end=f_end, rest_u=u, cap_b=cap, cap_source=source,
+                   jerk_terms=jerk_time_terms(problem.n_nodes, problem.closed, u, f_start))
+
+
+def rest_step_accel(problem: SpeedProblem, moving: np.ndarray, leaving: np.ndarray,
+                    iterations: int = 60) -> np.ndarray:
+    """Acceleration (leaving rest) or deceleration (arriving) each step next to rest can reach
+    at its moving node, m/s^2, ramping at the jerk bound from rest within the step.
+
+    The largest ``a`` up to :func:`curvespeed.rest_step.max_ramp_accel` that the moving node
+    allows at the speed such a ramp reaches, ``b = 2 a ds - a^4 / (12 J^2)``; found by bisection
+    on all steps at once (that speed grows with ``a``, and what the node allows does not grow
+    faster, so the feasible accelerations form an interval from 0). 0 where the node allows no
+    acceleration at all.
+    """
+    jerk, ds = problem.limits.max_jerk_mps3, problem.ds
+    top = rest_step.max_ramp_accel(jerk, ds)
+
+    def reachable(a):
+        b = 2.0 * a * ds - a ** 4 / (12.0 * jerk * jerk)
+        lo, hi = problem.accel_bounds(b, nodes=moving)
+        return np.where(leaving, a <= hi, -a >= lo)
+
+    lo_a, hi_a = np.zeros(moving.size), np.full(moving.size, top)
+    top_ok = reachable(hi_a)
+    for _ in range(iterations):
+        mid = 0.5 * (lo_a + hi_a)
+        good = reachable(mid)
+        lo_a, hi_a = np.where(good, mid, lo_a), np.where(good, hi_a, mid)
+    return np.where(top_ok, top, lo_a)
+
+
+def jerk_time_terms(n_nodes: int, closed: bool, rest_u: np.ndarray,
+                     f_start: np.ndarray) -> JerkTimeTerms:
+    """The jerk's time base at every distinct node as terms (module docstring)."""
+    nv = n_nodes - 1 if closed else n_nodes
+    k = np.arange(nv)
+    if closed:
+        before, after, prev, nxt = (k - 1) % nv, k, (k - 1) % nv, (k + 1) % nv
+        has_b = has_a = np.ones(nv, dtype=bool)
+    else:
+        before, after = np.maximum(k - 1, 0), np.minimum(k, nv - 2)
+        prev, nxt = np.maximum(k - 1, 0), np.minimum(k + 1, nv - 1)
+        has_b, has_a = k > 0, k < nv - 1
+    at_rest = ~np.isnan(rest_u)
+    const_b, const_a = has_b & ~at_rest[before], has_a & ~at_rest[after]
+    # the moving node of a step leaving rest (before it) or arriving at rest (after it)
+    moving_b = has_b & at_rest[before] & (f_start[before] == 0.0)
+    moving_a = has_a & at_rest[after] & (f_start[after] != 0.0)
+    c2 = rest_step.flat_time_coef(np.where(at_rest, rest_u, 0.0))
+    parts = [(const_b & const_a, (0.25, 0.5, 0.25), 1.0),
+             (const_a & ~has_b, (0.0, 1.0, 1.0), 1.0),
+             (const_b & ~has_a, (1.0, 1.0, 0.0), 1.0),
+             (moving_b & const_a, (0.0, 1.0, 1.0), 2.0),
+             (moving_a & const_b, (1.0, 1.0, 0.0), 2.0)]
+    nodes, weights, scales = [], [], []
+    for mask, w, scale in parts:
+        nodes.append(k[mask])
+        weights.append(np.tile(w, (int(mask.sum()), 1)))
+        scales.append(np.full(int(mask.sum()), scale))
+    for mask, step, other in ((moving_b, before, has_a), (moving_a, after, has_b)):
+        flat = c2[step[mask]]             # the flat part lasts c2 ds / v
+        nodes.append(k[mask])
+        weights.append(np.column_stack((np.zeros(flat.size),
+                                        np.where(flat > 0.0, 1.0 / np.where(flat > 0, flat, 1),
+                                                 1.0), np.zeros(flat.size))))
+        scales.append(np.where(flat > 0.0, np.where(other[mask], 2.0, 1.0), 0.0))
+    node = np.concatenate(nodes).astype(int)
+    return JerkTimeTerms(node=node, prev=prev[node], next=nxt[node],
+                         weights=np.concatenate(weights).reshape(-1, 3),
+                         scale=np.concatenate(scales))
