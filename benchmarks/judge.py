@@ -181,7 +181,8 @@ def road_at_samples(alignment: Alignment, station_m, d, ds):
 def profile_jerk(sp: StationProfile) -> tuple[np.ndarray, np.ndarray]:
     """Jerk (m/s^3) between consecutive acceleration instants and the node of each (module
     docstring: the profile's accelerations read as linear in time between their instants; a
-    step next to rest is a jerk ramp, then constant acceleration, as export drives it)."""
+    step next to rest is a jerk ramp, then constant acceleration, as export drives it, whose
+    constant part is read at its middle like any other step's)."""
     from curvespeed import rest_step
 
     t = sp.node_time_s
@@ -198,11 +199,12 @@ def profile_jerk(sp: StationProfile) -> tuple[np.ndarray, np.ndarray]:
             moving = v[k + 1] if leaving else v[k]
             ramp = float(rest_step.ramp_time(u, moving, ds[k]))
             flat = float(rest_step.accel_factor(u)) * moving * moving / (2.0 * ds[k])
+            half_flat = 0.5 * (T[k] - ramp)   # the flat part, read at its middle like a step
             if leaving:
-                times += [t[k], t[k] + ramp, t[k + 1]]
+                times += [t[k], t[k] + ramp, t[k + 1] - half_flat]
                 values += [0.0, flat, flat]
             else:
-                times += [t[k], t[k + 1] - ramp, t[k + 1]]
+                times += [t[k] + half_flat, t[k + 1] - ramp, t[k + 1]]
                 values += [-flat, -flat, 0.0]
             nodes += [k, k, k + 1]
         else:
