@@ -17,7 +17,8 @@ piecewise-linear curvature a fine smoothing scale describes:
    becomes a step too.
 3. *Uncertainty.* The same line fits applied to the estimate's noise replicates give the
    standard deviation of the reconstructed curvature; the bound is the curvature plus ``gamma``
-   standard deviations, and around a step the larger side's over the step's location
+   standard deviations (and never below the fine estimate itself, in case a line hides a gentle
+   break within the noise), and around a step the larger side's over the step's location
    uncertainty.
 
 The caller decides where to trust it (:mod:`.curvature` compares it with the model-free adaptive
@@ -36,9 +37,11 @@ import numpy as np
 #: for the correlation the smoothing leaves between neighbouring stations' errors).
 BREAK_PENALTY = 8.0
 #: An element's line is precise enough to stand on its own when ``gamma`` of its standard
-#: deviations are at most this fraction of the element's largest |curvature| (or of 1e-3 1/m,
-#: a radius of 1 km, on straights).
+#: deviations are at most this fraction of the element's largest |curvature| ...
 PRECISE_FRACTION = 0.02
+#: ... or this much curvature (1/m), whichever is more: 2e-4 1/m is 0.18 m/s^2 of lateral
+#: acceleration at 30 m/s, under a tenth of a comfortable 2-3 m/s^2 (common practice).
+PRECISE_FLOOR_1PM = 2e-4
 #: Longest segment considered (stations): longer elements are found as several segments whose
 #: lines agree, at no cost to the curvature.
 MAX_SEGMENT_STATIONS = 4000
@@ -51,7 +54,7 @@ class Reconstruction:
     estimate follows it: ``follows`` is True at the stations of elements whose interior (more
     than ``gap`` from a break) stays within ``gamma`` standard deviations of its line, and whose
     line is precise (``gamma`` of its standard deviations at most :data:`PRECISE_FRACTION` of
-    the curvature)."""
+    the curvature, or :data:`PRECISE_FLOOR_1PM`)."""
 
     kappa: np.ndarray
     sd: np.ndarray
@@ -95,11 +98,13 @@ def reconstruct(station: np.ndarray, kappa: np.ndarray, deltas: np.ndarray, spre
         sd_pl[sel] = fits.line_sd(lo, hi, x[sel])
         inner = np.arange(lo, hi)
         line = lines[m][0] + lines[m][1] * inner
-        scale = max(float(np.max(np.abs(line))), 1e-3)
-        follows[sel] = bool(np.all(gamma * sd_pl[inner] <= PRECISE_FRACTION * scale)
+        precise = max(PRECISE_FRACTION * float(np.max(np.abs(line))), PRECISE_FLOOR_1PM)
+        follows[sel] = bool(np.all(gamma * sd_pl[inner] <= precise)
                             and np.all(np.abs(kappa[inner] - line)
                                        <= gamma * (sd[inner] + sd_pl[inner])))
-    bound = np.abs(k) + gamma * sd_pl
+    # a line may miss a gentle break the fine scale shows within its noise: never below what
+    # the fine scale itself reads there
+    bound = np.maximum(np.abs(k) + gamma * sd_pl, np.abs(kappa))
     near_step = np.zeros(n, dtype=bool)
     for b, r, is_step in zip(breaks, reach, step):
         if is_step:    # either side's value may hold anywhere the step may lie
