@@ -202,6 +202,8 @@ def _trusted(rebuilt, kappa, sd, width, station) -> np.ndarray:
 
 #: Replicates generated and smoothed at a time.
 _CHUNK = 8
+#: Stations whose replicate curvatures are evaluated at a time.
+_NODE_BLOCK = 100_000
 
 
 def _noise_chunk(seed: int, chunk: int, weight, time, drift_rate) -> np.ndarray:
@@ -255,11 +257,14 @@ class _Scale:
         if self.periodic:
             delta = delta[np.arange(self.n_int + SPLINE_DEGREE) % self.n_int]
         pert = BSpline(self.system.knots, delta, SPLINE_DEGREE, extrapolate=False)
-        e1 = pert(u_nodes, nu=1).reshape(u_nodes.size, 2, -1)
-        e2 = pert(u_nodes, nu=2).reshape(u_nodes.size, 2, -1)
-        p1, p2 = self.d1[:, :, None] + e1, self.d2[:, :, None] + e2
-        varied = _cross(p1, p2) / np.hypot(p1[:, 0], p1[:, 1]) ** 3
-        change = varied - self.kappa[:, None]
+        change = np.empty((u_nodes.size, delta.shape[1] // 2))
+        for lo in range(0, u_nodes.size, _NODE_BLOCK):     # bounded memory on long routes
+            at = slice(lo, lo + _NODE_BLOCK)
+            e1 = pert(u_nodes[at], nu=1).reshape(-1, 2, change.shape[1])
+            e2 = pert(u_nodes[at], nu=2).reshape(-1, 2, change.shape[1])
+            p1, p2 = self.d1[at, :, None] + e1, self.d2[at, :, None] + e2
+            varied = _cross(p1, p2) / np.hypot(p1[:, 0], p1[:, 1]) ** 3
+            change[at] = varied - self.kappa[at, None]
         self.sum_sq += np.sum(change**2, axis=1)
         if self.deltas is not None:
             self.deltas.append(change)

@@ -35,8 +35,10 @@ OUTLIER_SIGMAS = 6.0
 #: ... and than this distance (metres): smaller misses come from the fit's own limits at sharp
 #: changes of curvature on precise points, and positioning outliers are metres (common practice).
 OUTLIER_MIN_M = 0.5
-#: Most stations a geometry may have (5000 km at 1 m); more is a wrong spacing or a stray point.
-MAX_STATIONS = 5_000_000
+#: Most stations a geometry may have (2000 km at 1 m); more is a wrong spacing or a stray point.
+#: The curvature estimate holds a few kilobytes per station while it runs (nine scales, noise
+#: replicates), so this also keeps a route within a few gigabytes of memory.
+MAX_STATIONS = 2_000_000
 #: An automatic loop needs its ends closer than this fraction of the route's length too.
 CLOSURE_LENGTH_FRACTION = 0.25
 #: The default closure tolerance is the larger of this many median point spacings ...
@@ -349,10 +351,11 @@ def _fit_path(x, y, count, closed, stated_noise, spacing_m, source) -> _PathFit:
             f"more than a position noise of {noise.used:.3g} m allows; the fitted path "
             "cuts corners there. Check for outliers", CurvespeedWarning, stacklevel=3)
     _warn_outliers(fit, u, xy, noise.used * scale, source)
-    # Arc length pieces of 2 m, or a quarter of the station spacing when that is longer: stations
-    # are only needed that far apart, and a few points spanning thousands of kilometres must not
-    # cost a table entry every 2 m.
-    arc = ArcLength.from_fit(fit, max(ARC_PIECE_M, 0.25 * spacing_m))
+    # Arc length pieces of 2 m, or the station spacing when that is longer: stations are only
+    # needed that far apart (a 10-node Gauss-Legendre rule over a piece of smooth path gives
+    # them to far below a millimetre), and a few points spanning thousands of kilometres must
+    # not cost a table entry every 2 m.
+    arc = ArcLength.from_fit(fit, max(ARC_PIECE_M, spacing_m))
     return _PathFit(fit, arc, u, noise, scale)
 
 
