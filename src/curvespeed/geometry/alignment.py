@@ -10,16 +10,16 @@ piecewise-linear curvature a fine smoothing scale describes:
    partitioning (dynamic programming over the stations, the cost of a segment being its
    residual sum of squares in units of the estimate's variance, plus a penalty per break), each
    line over the segment's interior only: within ``gap`` of a break the smoothing blurs it.
-2. *Breaks.* Two neighbouring lines that meet near their boundary join at a kink (clothoid to
+2. *Breaks.* Two neighbouring lines that meet near their boundary (within two gaps) join at a kink (clothoid to
    arc or straight); lines that do not meet there are a step (an arc entered without a
    clothoid), placed where the estimate crosses the mean of the two sides (a symmetric smoother
    crosses there). A segment shorter than the smoothing spreads a step is the smear of one and
    becomes a step too.
 3. *Uncertainty.* The same line fits applied to the estimate's noise replicates give the
    standard deviation of the reconstructed curvature; the bound is the curvature plus ``gamma``
-   standard deviations (and never below the fine estimate itself, in case a line hides a gentle
-   break within the noise), and around a step the larger side's over the step's location
-   uncertainty.
+   standard deviations plus how far the fine estimate, averaged over the smear, departs from
+   the line (in case a line hides a gentle break within the noise), and around a step the larger
+   side's over the step's location uncertainty.
 
 The caller decides where to trust it (:mod:`.curvature` compares it with the model-free adaptive
 estimate).
@@ -38,9 +38,11 @@ import numpy as np
 BREAK_PENALTY = 8.0
 #: An element's line is precise enough to stand on its own when ``gamma`` of its standard
 #: deviations are at most this fraction of the element's largest |curvature| ...
-PRECISE_FRACTION = 0.02
-#: ... or this much curvature (1/m), whichever is more: 2e-4 1/m is 0.18 m/s^2 of lateral
-#: acceleration at 30 m/s, under a tenth of a comfortable 2-3 m/s^2 (common practice).
+PRECISE_FRACTION = 0.05
+#: ... or this much curvature (1/m), whichever is more: 5e-4 1/m is 0.45 m/s^2 of lateral
+#: acceleration at 30 m/s, a fifth of a comfortable 2-3 m/s^2 (common practice). The bound adds
+#: those standard deviations anyway; this only keeps lines that noise swamps (a consumer
+#: receiver's log) from standing in for the adaptive estimate.
 PRECISE_FLOOR_1PM = 2e-4
 #: Longest segment considered (stations): longer elements are found as several segments whose
 #: lines agree, at no cost to the curvature.
@@ -99,12 +101,14 @@ def reconstruct(station: np.ndarray, kappa: np.ndarray, deltas: np.ndarray, spre
         inner = np.arange(lo, hi)
         line = lines[m][0] + lines[m][1] * inner
         precise = max(PRECISE_FRACTION * float(np.max(np.abs(line))), PRECISE_FLOOR_1PM)
-        follows[sel] = bool(np.all(gamma * sd_pl[inner] <= precise)
+        follows[sel] = bool(gamma * float(np.max(sd_pl[inner])) <= precise
                             and np.all(np.abs(kappa[inner] - line)
                                        <= gamma * (sd[inner] + sd_pl[inner])))
-    # a line may miss a gentle break the fine scale shows within its noise: never below what
-    # the fine scale itself reads there
-    bound = np.maximum(np.abs(k) + gamma * sd_pl, np.abs(kappa))
+    # a line may miss a gentle break the fine scale shows within its noise: what the fine scale
+    # reads beyond the line, averaged over the smear (which averages its noise down), is added
+    window = np.ones(2 * gap + 1) / (2 * gap + 1)
+    misfit = np.abs(np.convolve(np.pad(kappa - k, gap, mode="edge"), window, mode="valid"))
+    bound = np.abs(k) + gamma * sd_pl + misfit
     near_step = np.zeros(n, dtype=bool)
     for b, r, is_step in zip(breaks, reach, step):
         if is_step:    # either side's value may hold anywhere the step may lie
@@ -221,7 +225,7 @@ def _place_breaks(kappa, bounds, lines, gap):
         (ia, sa), (ib, sb) = lines[m - 1], lines[m]
         va, vb = ia + sa * b, ib + sb * b
         meet = b + (vb - va) / (sa - sb) if sa != sb else math.inf
-        if abs(meet - b) <= gap:                      # the lines meet: a kink
+        if abs(meet - b) <= 2 * gap:                  # the lines meet: a kink
             breaks.append(meet)
             step.append(False)
             reach.append(1.0)
