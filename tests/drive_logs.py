@@ -207,3 +207,29 @@ def log_route(log: DriveLog, source: str = "drive.gpx"):
     where = [f"trkpt {i + 1}" for i in range(log.time_s.size)]
     return make_route(log.x_m, log.y_m, log.z_m, where=where, source=source,
                       time_s=log.time_s)
+
+
+def write_gpx(logs, path, lat0: float = -35.0, lon0: float = -20.0) -> None:
+    """Write logs as the tracks of one GPX 1.1 file (one track each, with time stamps), placed
+    by a transverse Mercator at an invented open-ocean origin."""
+    from datetime import datetime, timedelta, timezone
+
+    from pyproj import Transformer
+
+    to_latlon = Transformer.from_crs(
+        f"+proj=tmerc +lat_0={lat0} +lon_0={lon0} +k=1 +x_0=0 +y_0=0 +ellps=WGS84",
+        "EPSG:4326", always_xy=True)
+    t0 = datetime(2026, 5, 1, 10, 0, 0, tzinfo=timezone.utc)
+    parts = ['<?xml version="1.0" encoding="UTF-8"?>',
+             '<gpx version="1.1" creator="curvespeed tests" '
+             'xmlns="http://www.topografix.com/GPX/1/1">']
+    for k, log in enumerate(logs):
+        lon, lat = to_latlon.transform(log.x_m, log.y_m)
+        parts.append(f"<trk><name>invented drive {k + 1}</name><trkseg>")
+        for la, lo, t in zip(lat, lon, log.time_s):
+            stamp = (t0 + timedelta(seconds=float(t))).strftime("%Y-%m-%dT%H:%M:%S.%fZ")
+            parts.append(f'<trkpt lat="{la:.8f}" lon="{lo:.8f}"><time>{stamp}</time></trkpt>')
+        parts.append("</trkseg></trk>")
+    parts.append("</gpx>")
+    with open(path, "w", encoding="utf-8", newline="\n") as fh:
+        fh.write("\n".join(parts) + "\n")

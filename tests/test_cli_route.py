@@ -126,3 +126,35 @@ def test_command_line_starts_without_the_numerical_libraries():
             "'matplotlib') if m in sys.modules)\n"
             "assert not heavy, heavy\n")
     subprocess.run([sys.executable, "-c", code], check=True)
+
+
+def test_several_drives_are_fused_from_files_or_tracks(tmp_path):
+    # Two simulated drives of an invented road by a consumer receiver at 10 Hz: as two files
+    # (--drive) or as two tracks of one GPX file (--all-tracks), fused into one route; the
+    # summary says so and gives the spread between the drives. Without --all-tracks only the
+    # first track is read, with a warning that suggests it.
+    import sys
+
+    sys.path.insert(0, str(Path(__file__).resolve().parent))
+    from drive_logs import CONSUMER, invented_road, simulate_drive, write_gpx
+
+    road = invented_road()
+    logs = [simulate_drive(road, 10, CONSUMER, seed=40 + i, stops=(1200.0,)) for i in range(2)]
+    both = tmp_path / "both.gpx"
+    write_gpx(logs, both)
+    one, two = tmp_path / "one.gpx", tmp_path / "two.gpx"
+    write_gpx(logs[:1], one)
+    write_gpx(logs[1:], two)
+    for args in ([one, "--drive", two], [both, "--all-tracks"]):
+        result = run(*args)
+        assert result.exit_code == 0, result.output
+        assert "drives         2 fused; they lie" in result.output
+        length = float(next(line.split()[1] for line in result.output.splitlines()
+                            if line.startswith("length")))
+        assert length == pytest.approx(road.length_m, rel=0.02)
+    result = run(both)
+    assert result.exit_code == 0 and "--all-tracks fuses them" in result.output
+    # a drive file is an input: no output may replace it
+    result = run(one, "--drive", two, "-o", two, "--force")
+    assert result.exit_code == 2 and "error:" in result.output
+    assert two.read_text(encoding="utf-8").startswith("<?xml")

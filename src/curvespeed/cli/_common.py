@@ -157,25 +157,43 @@ def geometry_options(func):
         click.option("--part", "part", type=click.IntRange(min=1), default=None, metavar="N",
                      help="Where the recorded vehicle reverses, the drive splits into parts: "
                           "use part N (default: the longest)."),
+        click.option("--drive", "drives", multiple=True, type=click.Path(dir_okay=False),
+                     metavar="FILE",
+                     help="Another recorded drive of the same route (repeatable): all are "
+                          "fused into one centreline."),
+        click.option("--all-tracks", "all_tracks", is_flag=True,
+                     help="Read every track of a GPX file as a drive of the same route and "
+                          "fuse them."),
     ]
     for option in reversed(options):
         func = option(func)
     return func
 
 def load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m, use_elevation,
-                  closed, part):
-    """Read ``route_file`` and resample it; library errors propagate to the CLI handler.
-
-    The arguments after the file are the values of :func:`geometry_options`, in its order."""
+                  closed, part, drives=(), all_tracks=False):
+    """Read ``route_file`` (and any further drives) and resample it; library errors propagate
+    to the CLI handler. The arguments after the file are the values of
+    :func:`geometry_options`, in its order. Several drives are fused into one centreline."""
     from ..geometry import build_geometry
-    from ..io import read_route
+    from ..io import read_drives
 
-    route = read_route(route_file)
-    geometry = build_geometry(route, spacing_m=spacing_m, position_noise_m=position_noise_m,
-                              elevation_noise_m=elevation_noise_m, closed=closed,
-                              part=None if part is None else part - 1,
-                              use_elevation=use_elevation)
-    return route, geometry
+    routes = list(read_drives(route_file, all_tracks))
+    for extra in drives:
+        routes.extend(read_drives(extra, all_tracks))
+    options = dict(spacing_m=spacing_m, position_noise_m=position_noise_m,
+                   elevation_noise_m=elevation_noise_m, closed=closed,
+                   part=None if part is None else part - 1, use_elevation=use_elevation)
+    if len(routes) > 1:
+        from ..geometry.fusion import build_fused_geometry
+
+        return routes[0], build_fused_geometry(routes, **options)
+    return routes[0], build_geometry(routes[0], **options)
+
+
+def register_drives(outputs, drives) -> None:
+    """The further drives are inputs too: no output may overwrite one."""
+    for path in drives:
+        outputs.add_input(path, "a drive (--drive)")
 def describe_fit(provenance: dict) -> list[str]:
     """Lines for a summary: the noise the fit used and what was merged, averaged or split."""
     if not provenance:
@@ -197,6 +215,11 @@ def describe_fit(provenance: dict) -> list[str]:
         unit = "m^2/s" if provenance.get("time_stamps") else "m^2 per fix"
         lines.append(f"               drift {drift:.3g} {unit} (from fixes taken standing still)")
     parts = [f"{provenance['points_read']} points read, {provenance['points_fitted']} fitted"]
+    if "drives" in provenance:
+        spread = provenance["spread_between_drives_m"]
+        lines.append(f"drives         {len(provenance['drives'])} fused; they lie "
+                     f"{spread['rms']:.2f} m (RMS) from the fused centreline, at most "
+                     f"{spread['max']:.2f} m (station {spread['max_station_m']:.0f} m)")
     if provenance["standstills_merged"]:
         parts.append(f"{provenance['standstills_merged']} standstill(s) merged "
                      f"({provenance['fixes_in_standstills']} fixes)")

@@ -10,7 +10,8 @@ import sys
 
 import click
 
-from ._common import EXIT_OK, EXIT_VIOLATIONS, FINITE, echo, geometry_options, handle_errors
+from ._common import (EXIT_OK, EXIT_VIOLATIONS, FINITE, echo, geometry_options, handle_errors,
+                      register_drives)
 from ._limits import constraint_options, limit_override_options, limits_and_geometry
 
 
@@ -46,9 +47,9 @@ from ._limits import constraint_options, limit_override_options, limits_and_geom
 @handle_errors
 def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_speed_kmh, e_max,
           trace_noise_m, curve_radius_m, json_file, csv_file, force, spacing_m,
-          position_noise_m, elevation_noise_m, use_elevation, closed, part, zones, stops,
-          superelevations,
-          start_speed, end_speed, **overrides):
+          position_noise_m, elevation_noise_m, use_elevation, closed, part,
+          drives, all_tracks, zones, stops, superelevations, start_speed, end_speed,
+          **overrides):
     """Check speeds along ROUTE_FILE against friction, comfort and road-design criteria.
 
     Exit status 0: all within limits; 1: at least one violation; 2: bad input. The numbers
@@ -70,6 +71,7 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
         raise LimitsError(f"--speed-kmh {speed_kmh:g}: give a positive speed in km/h")
     outputs = OutputFiles(force)
     outputs.add_input(route_file, "the route file")
+    register_drives(outputs, drives)
     outputs.add_input(limits_file, "the limits file (-l/--limits)")
     outputs.add_input(speeds_file, "the speeds file (--speeds)")
     for path, option in ((json_file, "--json"), (csv_file, "--csv")):
@@ -87,7 +89,7 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
             route_file, limits_file, overrides,
             (zones, stops, superelevations, start_speed, end_speed),
             (spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
-             part))
+             part, drives, all_tracks))
         report = _check(geo, limits, constraints, origin, speeds_file, speed_kmh, trace_noise_m,
                         design_speed_kmh, e_max, curve_radius_m)
         if json_file:

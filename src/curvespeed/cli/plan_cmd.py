@@ -5,7 +5,7 @@ from __future__ import annotations
 import click
 
 from ..solvers import SolverKind
-from ._common import FINITE, echo, geometry_options, handle_errors
+from ._common import FINITE, echo, geometry_options, handle_errors, register_drives
 from ._limits import constraint_options, limit_override_options, limits_and_geometry
 
 
@@ -33,9 +33,9 @@ from ._limits import constraint_options, limit_override_options, limits_and_geom
 @constraint_options
 @handle_errors
 def plan(route_file, limits_file, output, meta_file, solver, comfort_weight, plot_file, force,
-         spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed, part, zones, stops,
-         superelevations,
-         start_speed, end_speed, **overrides):
+         spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed, part,
+         drives, all_tracks, zones, stops, superelevations, start_speed, end_speed,
+         **overrides):
     """Plan the fastest speed profile along ROUTE_FILE within the limits.
 
     The profile is an engineering aid: speeds on public roads and advisory signs follow local
@@ -48,6 +48,7 @@ def plan(route_file, limits_file, output, meta_file, solver, comfort_weight, plo
         raise click.BadParameter("must be zero or positive", param_hint="--comfort-weight")
     outputs = OutputFiles(force)
     outputs.add_input(route_file, "the route file")
+    register_drives(outputs, drives)
     outputs.add_input(limits_file, "the limits file (-l/--limits)")
     meta_path = None
     if output:
@@ -67,7 +68,7 @@ def plan(route_file, limits_file, output, meta_file, solver, comfort_weight, plo
             route_file, limits_file, overrides,
             (zones, stops, superelevations, start_speed, end_speed),
             (spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
-             part))
+             part, drives, all_tracks))
 
         from ..planner import plan_profile
 

@@ -6,7 +6,8 @@ import math
 
 import click
 
-from ._common import describe_fit, echo, geometry_options, handle_errors, load_geometry
+from ._common import (describe_fit, echo, geometry_options, handle_errors, load_geometry,
+                      register_drives)
 
 
 @click.command()
@@ -17,17 +18,18 @@ from ._common import describe_fit, echo, geometry_options, handle_errors, load_g
 @click.option("--force", is_flag=True, help="Replace the output file if it exists.")
 @handle_errors
 def route(route_file, spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
-          part, output, force):
+          part, drives, all_tracks, output, force):
     """Read ROUTE_FILE (CSV, GeoJSON or GPX), resample it and print a summary."""
     from ..io.atomic import OutputFiles
 
     outputs = OutputFiles(force)
     outputs.add_input(route_file, "the route file")
+    register_drives(outputs, drives)
     if output:
         outputs.add_output(output, "-o/--output")
     with outputs:               # the output checked here; written at the end
         rt, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m,
-                                use_elevation, closed, part)
+                                use_elevation, closed, part, drives, all_tracks)
         echo(_summary(route_file, rt, geo))
         if output:
             from ..io.geometry_csv import geometry_csv_text

@@ -27,7 +27,7 @@ if TYPE_CHECKING:                  # only for annotations: the package stays lig
 #: Route file extensions (lower case) and the format each one selects.
 ROUTE_EXTENSIONS = {".csv": "csv", ".geojson": "geojson", ".json": "geojson", ".gpx": "gpx"}
 
-__all__ = ["ROUTE_EXTENSIONS", "read_route"]
+__all__ = ["ROUTE_EXTENSIONS", "read_drives", "read_route"]
 
 
 def read_route(path: str | os.PathLike) -> Route:
@@ -80,3 +80,21 @@ def read_route(path: str | os.PathLike) -> Route:
     from .geojson import parse_route_geojson
 
     return parse_route_geojson(text, source)
+
+
+def read_drives(path: str | os.PathLike, all_tracks: bool = False) -> list[Route]:
+    """The route (or routes) a file holds: one, or with ``all_tracks`` every track of a GPX file
+    with points (several recorded drives of one route), each labelled ``trk K trkpt N``."""
+    p = Path(path)
+    if not all_tracks or ROUTE_EXTENSIONS.get(p.suffix.lower()) != "gpx":
+        return [read_route(path)]
+    from ._common import check_text, read_bytes
+    from .gpx import count_gpx_tracks, parse_route_gpx
+
+    source = str(path)
+    data = read_bytes(p, source)
+    check_text(data, source)
+    n = count_gpx_tracks(data, source)
+    if n == 0:
+        return [read_route(path)]          # its own message: no track or route points
+    return [parse_route_gpx(data, source, track=i) for i in range(n)]

@@ -50,8 +50,11 @@ GPX_NAMESPACES = {
 }
 
 
-def parse_route_gpx(data: bytes, source: str) -> Route:
+def parse_route_gpx(data: bytes, source: str, track: int | None = None) -> Route:
     """Build a :class:`~curvespeed.route.Route` from the bytes of a GPX file.
+
+    ``track`` (0-based, counting the tracks that have points) reads that track instead of the
+    first, with its points labelled ``trk K trkpt N`` (several drives of one route in one file).
 
     Parameters
     ----------
@@ -81,7 +84,13 @@ def parse_route_gpx(data: bytes, source: str) -> Route:
     routes = [(rte, rte.findall(q("rtept"))) for rte in root.findall(q("rte"))]
     tracks = [(el, pts) for el, pts in tracks if pts]
     routes = [(el, pts) for el, pts in routes if pts]
-    if tracks:
+    if track is not None:
+        if not 0 <= track < len(tracks):
+            raise fail(source, None, f"has {len(tracks)} track(s) with points; there is no "
+                                     f"track {track + 1}")
+        kind, (chosen, points) = f"trk {track + 1} trkpt", tracks[track]
+        ignored = {}
+    elif tracks:
         kind, (chosen, points) = "trkpt", tracks[0]
         ignored = {"track": len(tracks) - 1, "route": len(routes)}
     elif routes:
@@ -95,8 +104,10 @@ def parse_route_gpx(data: bytes, source: str) -> Route:
     skipped = [f"{n} other {what}(s)" for what, n in ignored.items() if n]
     if skipped:
         what = "track" if kind == "trkpt" else "route"
+        hint = ("; if they are drives of the same route, --all-tracks fuses them"
+                if ignored.get("track") else "")
         warnings.warn(f"{source}: used the first {what} with points; ignored "
-                      f"{' and '.join(skipped)}", CurvespeedWarning)
+                      f"{' and '.join(skipped)}{hint}", CurvespeedWarning)
 
     n = len(points)
     lat = np.empty(n)
@@ -136,11 +147,23 @@ def parse_route_gpx(data: bytes, source: str) -> Route:
         metadata = root.find(q("metadata"))  # GPX 1.1
         name = _text(metadata.find(q("name")) if metadata is not None else root.find(q("name")))
     x, y, projection = project_latlon(lat, lon, source)
-    if kind == "trkpt":
+    if kind.endswith("trkpt"):
         sizes = [m for m in segment_sizes[id(chosen)] if m]
         _warn_gaps(x, y, time_s, np.cumsum(sizes)[:-1], source)
     return make_route(x, y, z, where=where, source=source, projection=projection,
                       time_s=time_s, name=name)
+
+
+def count_gpx_tracks(data: bytes, source: str) -> int:
+    """How many tracks of a GPX file have points."""
+    root = _parse_xml(data, source)
+    ns = _gpx_namespace(root, source)
+
+    def q(name: str) -> str:
+        return f"{{{ns}}}{name}" if ns else name
+
+    return sum(1 for trk in root.findall(q("trk"))
+               if any(seg.findall(q("trkpt")) for seg in trk.findall(q("trkseg"))))
 
 
 def _warn_gaps(x: np.ndarray, y: np.ndarray, time_s, segment_starts: np.ndarray,

@@ -1,0 +1,200 @@
+"""Several recorded drives of one route fused into one centreline.
+
+A receiver's slowly drifting error moves a whole stretch of a drive by up to its size (metres for
+a consumer receiver, common practice) and bends it a little; another drive of the same road,
+logged at another time, drifts independently. Averaged station by station, drives cancel part of
+each other's drift, which no smoothing of a single drive can. :func:`build_fused_geometry`:
+
+1. brings every drive into the first one's map frame (geographic drives each carry their own
+   local projection);
+2. takes the longest drive's geometry as the reference (``part`` applies to it, where it
+   reverses) and places every fix of every drive on it: its station (the nearest point of the
+   reference) and its offset across it. A drive that runs the other way is turned round; one
+   whose fixes lie far from the reference (more than :data:`MAX_OFFSET_M`, typically) is not
+   the same route and is refused, named;
+3. averages the fixes of all drives (merged and averaged per drive as for a single drive, see
+   :mod:`.drive`) in cells along the reference station, and fits the route to those means as to
+   any points;
+4. reports how far the drives lie from the fused centreline: each drive's offsets, smoothed over
+   :data:`SPREAD_WINDOW_M`, give its offset at every station; their root mean square over the
+   drives is the spread (its RMS and largest value, with the station), in the geometry's
+   provenance.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+
+import numpy as np
+from scipy.spatial import cKDTree
+
+from ..errors import RouteGeometryError
+from ..route import Route, make_route
+from .drive import prepare_drive
+from .model import Geometry
+from .points import build_geometry
+
+#: A drive whose fixes lie further than this from the reference, in median, is another route.
+MAX_OFFSET_M = 25.0
+#: Fixes of all drives are averaged in cells this long along the reference, or as long as the
+#: widest median spacing of a drive's points (so every cell holds a point of each drive), or
+#: the largest cell a drive used on its own.
+FUSION_CELL_M = 1.0
+#: Offsets of a drive from the fused centreline are averaged over this length (metres) before
+#: the spread is taken: the spread describes where the drives lie, not their white noise.
+SPREAD_WINDOW_M = 50.0
+
+
+def build_fused_geometry(routes: Sequence[Route], **options) -> Geometry:
+    """The geometry of several drives of one route (see module docstring).
+
+    ``options`` are those of :func:`~.points.build_geometry`; ``part`` applies to the longest
+    drive, which is the reference.
+    """
+    routes = _common_frame(list(routes))
+    longest = int(np.argmax([float(r.chord_stations()[-1]) for r in routes]))
+    part = options.pop("part", None)
+    reference = build_geometry(routes[longest], part=part, **options)
+    placed = []
+    for i, route in enumerate(routes):            # in the order given, for the report
+        drive = prepare_drive(route, part if i == longest else None)
+        station, offset = _place(reference, drive.x_m, drive.y_m)
+        if float(np.median(np.abs(offset))) > MAX_OFFSET_M:
+            raise RouteGeometryError(
+                f"{route.source}: its fixes lie {float(np.median(np.abs(offset))):.0f} m (median) "
+                f"from the route of {routes[longest].source}: it is not a drive of the same route; "
+                "fuse only drives of one route")
+        if np.corrcoef(np.arange(station.size), station)[0, 1] < 0:   # driven the other way
+            drive = _reversed(drive)
+            station, offset = station[::-1], offset[::-1]
+        placed.append((route, drive, station, offset))
+    fused = _average(placed, routes[longest], reference)
+    geometry = build_geometry(fused, **options)
+    spread = _spread(geometry, placed)
+    provenance = dict(geometry.provenance)
+    provenance.update(spread)
+    return _with_provenance(geometry, provenance)
+
+
+def _common_frame(routes: list[Route]) -> list[Route]:
+    """Every route in the first one's frame (geographic drives reprojected)."""
+    first = routes[0].projection
+    geographic = [r.projection is not None for r in routes]
+    if any(geographic) and not all(geographic):
+        metric = routes[geographic.index(False)].source
+        raise RouteGeometryError(
+            f"{metric}: in metres, while other drives are latitude/longitude; give every drive "
+            "in the same kind of coordinates")
+    if first is None:
+        return routes
+    out = [routes[0]]
+    for r in routes[1:]:
+        lat, lon = r.projection.to_latlon(r.x_m, r.y_m)
+        x, y = first.to_metres(lat, lon)
+        out.append(Route(np.asarray(x), np.asarray(y), r.z_m, r.where, r.source, first,
+                         r.time_s, r.name))
+    return out
+
+
+def _place(geometry: Geometry, x, y) -> tuple[np.ndarray, np.ndarray]:
+    """Station on ``geometry`` nearest each point, and the point's signed offset (left +)."""
+    gx, gy = geometry.x_m, geometry.y_m
+    _, k = cKDTree(np.column_stack((gx, gy))).query(np.column_stack((x, y)))
+    k = np.clip(k, 0, gx.size - 2)
+    # project on the segment to the next node (or the previous one, whichever is nearer)
+    best_s = np.empty(k.size)
+    best_d = np.full(k.size, np.inf)
+    best_side = np.zeros(k.size)
+    for j in (k - 1, k):
+        j = np.clip(j, 0, gx.size - 2)
+        ax, ay = gx[j], gy[j]
+        dx, dy = gx[j + 1] - ax, gy[j + 1] - ay
+        length2 = dx * dx + dy * dy
+        t = np.clip(((x - ax) * dx + (y - ay) * dy) / np.where(length2 > 0, length2, 1.0), 0, 1)
+        px, py = ax + t * dx, ay + t * dy
+        dist = np.hypot(x - px, y - py)
+        better = dist < best_d
+        best_d[better] = dist[better]
+        best_s[better] = (geometry.station_m[j] + t * (geometry.station_m[j + 1]
+                                                       - geometry.station_m[j]))[better]
+        side = np.sign(dx * (y - ay) - dy * (x - ax))
+        best_side[better] = side[better]
+    return best_s, best_d * best_side
+
+
+def _reversed(drive):
+    from dataclasses import replace
+
+    rev = {name: getattr(drive, name)[::-1] for name in ("x_m", "y_m", "count", "where", "time")}
+    if drive.z_m is not None:
+        rev["z_m"] = drive.z_m[::-1]
+    return replace(drive, **rev)
+
+
+def _average(placed, first: Route, reference: Geometry) -> Route:
+    """One point per cell along the reference: the count-weighted mean station and offset of
+    every drive's fixes in it, put back on the reference (averaging the offsets, not the
+    positions, keeps a cell on a bend from being pulled to the inside of it)."""
+    station = np.concatenate([s for _, _, s, _ in placed])
+    offset = np.concatenate([o for _, _, _, o in placed])
+    w = np.concatenate([np.minimum(d.count, 4.0 * np.median(d.count)) for _, d, _, _ in placed])
+    has_z = all(d.z_m is not None for _, d, _, _ in placed)
+    z = np.concatenate([d.z_m for _, d, _, _ in placed]) if has_z else None
+    # a cell long enough to hold a point of every drive, so each mean averages the drives
+    spacing = max(float(np.median(np.abs(np.diff(s)))) for _, _, s, _ in placed)
+    cell = max(FUSION_CELL_M, spacing, max(d.cell_m for _, d, _, _ in placed))
+    index = np.floor(station / cell).astype(np.int64)
+    order = np.argsort(index, kind="stable")
+    index = index[order]
+    starts = np.flatnonzero(np.concatenate(([True], index[1:] != index[:-1])))
+    weight = np.add.reduceat(w[order], starts)
+
+    def mean(values):
+        return np.add.reduceat(values[order] * w[order], starts) / weight
+
+    s_mean, d_mean = mean(station), mean(offset)
+    heading = np.interp(s_mean, reference.station_m, reference.heading_rad)
+    x = np.interp(s_mean, reference.station_m, reference.x_m) - np.sin(heading) * d_mean
+    y = np.interp(s_mean, reference.station_m, reference.y_m) + np.cos(heading) * d_mean
+    labels = [f"cell at station {k * cell:.0f} m" for k in index[starts]]
+    return make_route(x, y, None if z is None else mean(z), where=labels,
+                      source=first.source, projection=first.projection, name=first.name)
+
+
+def _spread(geometry: Geometry, placed) -> dict:
+    """Each drive's smoothed offset from the fused centreline, and their spread."""
+    stations = geometry.station_m
+    offsets = []
+    per_drive = []
+    for route, drive, _, _ in placed:
+        s, d = _place(geometry, drive.x_m, drive.y_m)
+        order = np.argsort(s, kind="stable")
+        s, d = s[order], d[order]
+        smooth = _moving_mean(s, d, SPREAD_WINDOW_M, stations)
+        offsets.append(smooth)
+        per_drive.append({"source": route.source, "points": int(route.n_points),
+                          "rms_offset_m": float(np.sqrt(np.nanmean(smooth**2)))})
+    table = np.array(offsets)
+    spread = np.sqrt(np.nanmean(table**2, axis=0))
+    k = int(np.nanargmax(spread)) if np.any(np.isfinite(spread)) else 0
+    return {"drives": per_drive,
+            "spread_between_drives_m": {"rms": float(np.sqrt(np.nanmean(spread**2))),
+                                        "max": float(np.nanmax(spread)),
+                                        "max_station_m": float(stations[k])}}
+
+
+def _moving_mean(s: np.ndarray, d: np.ndarray, window: float, at: np.ndarray) -> np.ndarray:
+    """Mean of ``d`` over ``s`` within ``window / 2`` of each station ``at`` (nan where none)."""
+    c = np.concatenate(([0.0], np.cumsum(d)))
+    lo = np.searchsorted(s, at - 0.5 * window)
+    hi = np.searchsorted(s, at + 0.5 * window)
+    n = hi - lo
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(n > 0, (c[hi] - c[lo]) / np.maximum(n, 1), math.nan)
+
+
+def _with_provenance(geometry: Geometry, provenance: dict) -> Geometry:
+    from dataclasses import replace
+
+    return replace(geometry, provenance=provenance)
