@@ -257,7 +257,15 @@ def judge_profile(profile, alignment: Alignment, limits: Limits,
         jerk, node = profile_jerk(exact)
         use["jerk"], where["jerk"] = _worst(np.abs(jerk) / limits.max_jerk_mps3,
                                             exact.station_m[node])
-    lat_jerk = np.maximum(np.abs(r_in * v ** 3 + 2.0 * k_in * v * a),
+    # A joint on a station row is driven with each side's own acceleration: the road before it
+    # with the step before (its state at its end), the road after it with the step after.
+    a_in = a.copy()
+    at_row = (d <= 0.0) & (k > 0)
+    if at_row.any():
+        before = k[at_row] - 1
+        _, _, a_end = _state_at_distance(exact, before, np.diff(exact.station_m)[before])
+        a_in[at_row] = a_end
+    lat_jerk = np.maximum(np.abs(r_in * v ** 3 + 2.0 * k_in * v * a_in),
                           np.abs(r_out * v ** 3 + 2.0 * k_out * v * a))
     peak_lat_jerk, where_lat_jerk = _worst(lat_jerk, s)
     if limits.max_lateral_jerk_mps3 is not None:
