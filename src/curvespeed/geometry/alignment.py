@@ -84,9 +84,9 @@ def reconstruct(station: np.ndarray, kappa: np.ndarray, deltas: np.ndarray, spre
         return None
     fits = _LineFits(kappa, deltas)
     bounds = _partition(fits, n, gap, sigma, max(1.0, spread_m / (4 * ds)))
-    bounds = _collapse_smears(bounds, int(math.ceil(2 * spread_m / ds)))
+    bounds, smears = _collapse_smears(bounds, int(math.ceil(2 * spread_m / ds)))
     lines = [fits.line(*_interior(a, b, n, gap)) for a, b in zip(bounds[:-1], bounds[1:])]
-    breaks, step, reach = _place_breaks(kappa, bounds, lines, gap)
+    breaks, step, reach = _place_breaks(kappa, sd, gamma, bounds, lines, gap, smears)
     edges = np.concatenate(([-np.inf], breaks, [np.inf]))
     x = np.arange(n, dtype=float)
     seg = np.searchsorted(edges, x, side="right") - 1
@@ -200,25 +200,31 @@ def _partition(fits: _LineFits, n: int, gap: int, sigma: float, corr: float) -> 
     return cuts[::-1]
 
 
-def _collapse_smears(bounds: list[int], short: int) -> list[int]:
+def _collapse_smears(bounds: list[int], short: int) -> tuple[list[int], dict[int, float]]:
     """Merge every interior segment shorter than ``short`` stations into one boundary at its
-    middle: it is the smear of a step, not an element."""
+    middle: it is the smear of a step, not an element. Returns the boundaries and, for each
+    merged one, half the smear's length (stations): how far the break may be from it."""
     out = [bounds[0]]
+    half: dict[int, float] = {}
     k = 1
     while k < len(bounds) - 1:
         a, b = bounds[k], bounds[k + 1]
         if b - a < short and k + 1 < len(bounds) - 1:
             out.append((a + b) // 2)
+            half[(a + b) // 2] = 0.5 * (b - a)
             k += 2
             continue
         out.append(a)
         k += 1
     out.append(bounds[-1])
-    return out
+    return out, half
 
 
-def _place_breaks(kappa, bounds, lines, gap):
-    """Each break's position (in stations), whether it is a step, and how far it may be off."""
+def _place_breaks(kappa, sd, gamma, bounds, lines, gap, smears):
+    """Each break's position (in stations), whether it is a step, and how far it may be off:
+    for a step read off a smear, anywhere the smear spans (a jump, or a clothoid too short to
+    resolve); else ``gamma`` times the noise of where the estimate crosses the mid level (its
+    standard deviation over the slope of the crossing), and at least one station."""
     breaks, step, reach = [], [], []
     for m in range(1, len(bounds) - 1):
         b = bounds[m]
@@ -234,14 +240,16 @@ def _place_breaks(kappa, bounds, lines, gap):
         lo, hi = max(b - gap - 2, 0), min(b + gap + 2, kappa.size - 1)
         seg = kappa[lo: hi + 1] - level
         cross = np.flatnonzero(np.sign(seg[:-1]) * np.sign(seg[1:]) <= 0)
+        located = 2.0 * gap
         if cross.size:
             j = cross[np.argmin(np.abs(cross + lo - b))]
             a_, b_ = seg[j], seg[j + 1]
             breaks.append(lo + j + (0.5 if a_ == b_ else a_ / (a_ - b_)))
+            slope = abs(b_ - a_)                                # per station
+            if slope > 0:
+                located = gamma * float(sd[lo + j]) / slope
         else:
             breaks.append(float(b))
         step.append(True)
-        # a step found from a smear (segments shorter than two spreads, 4 gaps, are merged
-        # into one) may lie anywhere the smear spans: a jump, or a clothoid too short to resolve
-        reach.append(2.0 * gap)
+        reach.append(max(smears.get(b, 0.0), min(located, 2.0 * gap), 1.0))
     return np.array(breaks, dtype=float), step, reach
