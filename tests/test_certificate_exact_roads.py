@@ -1,0 +1,39 @@
+"""Plans made on points of an exact design road hold on the exact road.
+
+The roads are the invented design alignments of benchmarks/exact_roads.py (straights, clothoids
+and circular arcs, two of the winding road's arcs entered without a clothoid). Each is written as
+exact points every metre, read and fitted like any route, planned with the default solver, and
+the profile is driven on the *exact* road by the independent judge (benchmarks/judge.py, which
+samples the motion every 0.125 m against the alignment's own curvature). Every limit must hold
+within 1 %: the curvature bound the planner uses covers the road where the fit's smoothing would
+have hidden a change of curvature. (The time against the independent optimum, and the lateral
+jerk bound, are in the benchmark's table: the latter is not met yet, see the issue note.)
+"""
+
+from __future__ import annotations
+
+import pytest
+
+from benchmarks.exact_roads import exact_roads, write_points
+from benchmarks.judge import judge_profile
+from curvespeed.geometry import build_geometry
+from curvespeed.io import read_route
+from curvespeed.planner import plan_profile
+
+#: Uses of a limit up to this are within the verifier's and the judge's own tolerances (the
+#: judge reads a 1 m plan's accelerations at 0.125 m: 0.3 % of jerk from station jitter).
+WITHIN = 1.01
+CASES = {case.name: case for case in exact_roads()}
+
+
+@pytest.mark.parametrize("name", ["winding-stop", "wet", "s-curve-from-rest"])
+def test_plan_on_fitted_points_holds_on_the_exact_road(name, tmp_path):
+    case = CASES[name]
+    points = write_points(case.alignment, tmp_path / f"{name}.csv")
+    geometry = build_geometry(read_route(points))
+    # the wet case raises comfort above the grip on purpose: no warning about it
+    profile = plan_profile(geometry, case.limits, case.constraints(), warn_limits=False)
+    judgement = judge_profile(profile, case.alignment, case.limits)
+    for limit in ("lateral", "comfort_ellipse", "friction_ellipse", "top_speed", "jerk"):
+        assert judgement.use[limit] <= WITHIN, (limit, judgement.use[limit],
+                                                judgement.where_m[limit])
