@@ -179,21 +179,21 @@ def _partition(fits: _LineFits, n: int, gap: int, sigma: float, corr: float) -> 
     best = np.full(n + 1, np.inf)
     best[0] = -beta
     prev = np.zeros(n + 1, dtype=np.intp)
-    candidates = np.array([0], dtype=np.intp)
+    candidates = np.array([0], dtype=np.intp)      # ascending: starts still worth trying
     for j in range(minlen, n + 1):
-        candidates = candidates[candidates >= j - MAX_SEGMENT_STATIONS]
-        i = candidates[candidates <= j - minlen]
+        first = int(np.searchsorted(candidates, j - MAX_SEGMENT_STATIONS))
+        ready = int(np.searchsorted(candidates, j - minlen, side="right"))
+        i = candidates[first:ready]
         if i.size:
             lo = np.where(i == 0, 0, i + gap)
             hi = j if j == n else j - gap
-            total = best[i] + fits.cost(lo, np.full(i.size, hi)) * scale + beta
+            total = best[i] + fits.cost(lo, hi) * scale + beta
             m = int(np.argmin(total))
             best[j], prev[j] = total[m], i[m]
             # a start whose cost already exceeds the best can never win later (pruning)
-            keep = total - beta <= best[j]
-            candidates = np.concatenate((candidates[~np.isin(candidates, i[~keep])], [j]))
+            candidates = np.concatenate((i[total - beta <= best[j]], candidates[ready:], [j]))
         else:
-            candidates = np.append(candidates, j)
+            candidates = np.concatenate((candidates[first:], [j]))
     cuts = [n]
     while cuts[-1] > 0:
         cuts.append(int(prev[cuts[-1]]))
