@@ -132,17 +132,15 @@ def test_standstills_are_merged_and_the_drift_measured():
 
 def test_shuttle_u_turn_logged_with_noise_wider_than_the_steps_is_fitted():
     # A yard shuttle at 3 m/s logged at 10 Hz by a consumer receiver (0.3 m steps, 0.5 m white
-    # noise): a straight, a U-turn of R 12 m with 6 m clothoids, and back. Not refused, the
-    # turn kept: 180 degrees of turning between the straights' middles (the last metres, where
-    # the shuttle stands and the drift moves the fixes, may hook: see the issue note), length
-    # within 2 %.
+    # noise): a straight, a U-turn of R 12 m with 6 m clothoids, and back, standing 20 s at
+    # both ends. Not refused, the turn kept: total turning 180 degrees within the noise (the
+    # standing fixes, merged, do not hook the ends), length within 2 %.
     road = Alignment((line(120.0), *curve(180.0, 12.0, 6.0), line(120.0)), 10.0, 20.0, 0.0)
     log = simulate_drive(road, 10, CONSUMER, seed=5, top_speed=3.0, lat_accel=1.0)
     geo = fitted(log)
     assert geo.length_m == pytest.approx(road.length_m, rel=0.02)
-    a, b = np.searchsorted(geo.station_m, [60.0, geo.length_m - 60.0])
-    turn = math.degrees(geo.heading_rad[b] - geo.heading_rad[a])
-    assert turn == pytest.approx(180.0, abs=10.0)
+    assert math.degrees(geo.total_turning_rad()) == pytest.approx(180.0, abs=10.0)
+    assert geo.provenance["standstills_merged"] == 2
     assert not geo.closed
 
 
@@ -180,13 +178,15 @@ def test_sparse_out_and_back_stays_open():
 
 def test_receiver_heights_give_plausible_grades():
     # Heights from a consumer receiver (vertical error 1.7x the horizontal: 0.85 m white, 2.6 m
-    # drifting) on a road climbing at 4 %: the grade stays within 4 +- 4 % everywhere once the
-    # noise is taken from the heights themselves (with a stated 0.1 m it once swung by -93 to
-    # +138 %).
+    # drifting over a minute) on a road climbing at 4 %: once the noise is taken from the
+    # heights themselves the grade stays plausible (with a stated 0.1 m it once swung by -93 to
+    # +138 %). What the drift leaves cannot be smoothed away: at 20 m/s two heights 50 m apart
+    # are 2.5 s apart, and a Gauss-Markov drift changes by sqrt(2 sigma^2 (1 - exp(-dt/tau)))
+    # = 0.74 m between them, 1.5 % of grade per standard deviation: within 3 of them, 4.5 %.
     log = simulate_drive(ROAD, 1, CONSUMER, seed=7, stops=(STOP_M,),
                          elevation=lambda s: 100.0 + 0.04 * s)
     geo = fitted(log)
-    assert np.all(np.abs(geo.grade - 0.04) < 0.04)
+    assert np.all(np.abs(geo.grade - 0.04) < 0.045)
 
 
 def test_an_elevation_spike_is_reported_with_its_stations():

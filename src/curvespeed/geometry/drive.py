@@ -49,6 +49,11 @@ REST_SPEED_MPS = 0.5
 #: Without time stamps: standing still is moving less than this fraction of a typical step
 #: (the 75th percentile of the pilot's step) per fix.
 REST_STEP_FRACTION = 0.025
+#: The pilot's speed is taken over this window (seconds; without time stamps, fixes), centred
+#: on each fix: long enough that a standing receiver's wander averages out, short enough that
+#: a stop of a few seconds still shows.
+REST_WINDOW_S = 2.0
+REST_WINDOW_FIXES = 5.0
 #: A slow run is only merged when the pilot stays within this distance (metres) of its start,
 #: or within REST_NOISE_WIDTHS noise standard deviations if that is more: a crawl over a
 #: longer distance is driven road and is kept.
@@ -157,7 +162,8 @@ def prepare_drive(route: Route, part: int | None = None) -> DrivePoints:
                         _median_step(t))
     u = t - t[0]
     velocity = pilot.spline(u, nu=1)
-    speed = np.hypot(velocity[:, 0], velocity[:, 1])
+    position = pilot.spline(u)
+    speed = _window_speed(position, t, REST_WINDOW_S if has_time else REST_WINDOW_FIXES)
     arc = ArcLength.from_fit(pilot)
     s_pilot = arc.station(u)
     if has_time:
@@ -166,7 +172,7 @@ def prepare_drive(route: Route, part: int | None = None) -> DrivePoints:
     else:   # no clock: only a run that scatters like noise is taken as standing still
         slow = speed < REST_STEP_FRACTION * float(np.percentile(speed, 75))
         extent = REST_NOISE_WIDTHS * sigma
-    runs = _rest_runs(slow, s_pilot, extent)
+    runs = _rest_runs(slow, position, extent)
     # In sampling order the noise estimate also sees how irregularly survey points are spaced;
     # in chord length (moving fixes only) it does not. Cells follow the smaller of the two.
     moving = np.ones(n, dtype=bool)
@@ -255,20 +261,36 @@ def _span(where: np.ndarray, a: int, b: int) -> str:
     return f"{first} to {last}"
 
 
-def _rest_runs(slow: np.ndarray, s_pilot: np.ndarray, extent: float) -> list[tuple[int, int]]:
-    """Runs of slow fixes (first, last index) over which the pilot stays within ``extent``.
+def _window_speed(position: np.ndarray, t: np.ndarray, window: float) -> np.ndarray:
+    """The pilot's speed over ``window`` (seconds, or fixes without a clock) centred on each fix:
+    its displacement across the window over the window's time. Over a few seconds the smoothed
+    fixes of a standing receiver barely move, though they wander to and fro in between."""
+    half = 0.5 * window
+    lo = np.searchsorted(t, t - half)
+    hi = np.minimum(np.searchsorted(t, t + half, side="right") - 1, t.size - 1)
+    span = np.maximum(t[hi] - t[lo], 1e-12)
+    return np.hypot(*(position[hi] - position[lo]).T) / span
 
-    Slow runs separated by a stretch the pilot covers in less than ``extent`` are one
-    standstill: the smoothed fixes of a standing receiver wander, and may briefly look faster
-    than the threshold."""
+
+def _rest_runs(slow: np.ndarray, position: np.ndarray, extent: float) -> list[tuple[int, int]]:
+    """Runs of slow fixes (first, last index) whose pilot positions stay within ``extent`` of
+    the run's first.
+
+    Slow runs whose pilot positions, gap included, stay that close are one standstill: the
+    smoothed fixes of a standing receiver wander, and may briefly look faster than the
+    threshold."""
     edges = np.flatnonzero(np.diff(np.concatenate(([0], slow.view(np.int8), [0]))))
+
+    def within(a: int, b: int) -> bool:
+        return float(np.max(np.hypot(*(position[a: b + 1] - position[a]).T))) <= extent
+
     runs: list[list[int]] = []
     for a, b in zip(edges[::2], edges[1::2] - 1):
-        if runs and s_pilot[a] - s_pilot[runs[-1][0]] <= extent:
+        if runs and within(runs[-1][0], int(b)):
             runs[-1][1] = int(b)
         else:
             runs.append([int(a), int(b)])
-    return [(a, b) for a, b in runs if b > a and s_pilot[b] - s_pilot[a] <= extent]
+    return [(a, b) for a, b in runs if b > a and within(a, b)]
 
 
 #: Standstills shorter than this many fixes say nothing about the drift.
