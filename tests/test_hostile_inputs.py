@@ -711,3 +711,26 @@ def test_same_inputs_give_byte_identical_profiles_and_geometry(tmp_path):
         assert run("route", route, "-o", g).exit_code == 0
         outputs.append((p.read_bytes(), g.read_bytes()))
     assert outputs[0] == outputs[1]
+
+
+def test_three_points_spanning_the_earth_cost_what_the_spacing_asks():
+    # A 3-point file spanning 30,000 km, planned at 100 m stations: 3e5 stations, which is the
+    # work asked for; the route stage holds a few kilobytes per station (it once tabulated arc
+    # length every 2 m whatever the spacing: 10 GB, then MemoryError). At the default 1 m the
+    # same file (here 4,900 km) would need 4.9e6 stations, beyond the 2e6 allowed: refused,
+    # naming the spacing that would do. Coordinates are metres in a projected frame (invented).
+    import tempfile
+
+    with tempfile.TemporaryDirectory() as tmp:
+        folder = Path(tmp)
+        far = write(folder, "far.csv", "x_m,y_m\n0,0\n15000000,10\n30000000,0\n")
+        before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+        result = run("route", far, "--spacing", "100")
+        grown_mb = (resource.getrusage(resource.RUSAGE_SELF).ru_maxrss - before) / 1024.0
+        assert result.exit_code == 0, result.output
+        assert "30000000.0 m (open)" in result.output
+        assert grown_mb < 2000.0
+        wide = write(folder, "wide.csv", "x_m,y_m\n0,0\n2450000,10\n4900000,0\n")
+        assert_refused(run("route", wide), folder, wide,
+                       ["4900.0 km at 1 m spacing would need 4.9e+06 stations (at most 2e+06)",
+                        "use --spacing 2.45 or more"])
