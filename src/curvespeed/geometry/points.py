@@ -1,4 +1,87 @@
-"""Geometry from a route's points: fit a smoothing spline and resample it by true arc length."""
+"""Geometry from a route's points: fit a smoothing spline and resample it by true arc length.
+
+Why the fit is what it is:
+
+*Fit.* Each coordinate is a quintic B-spline of the cumulative chord length ``u`` of the
+points, on uniform knots half a median point spacing apart, fitted by penalised least
+squares (a P-spline, Eilers and Marx, 1996): minimise
+``sum_i |p_i - c(u_i)|^2 / sigma^2 + lam * sum_j |fourth difference of coefficients|^2``,
+the discrete form of a penalty on ``integral |c''''|^2``. Quintic, because curvature is a
+second derivative: it is then twice continuously differentiable, and its rate of change
+along the route (lateral jerk at constant speed) is continuous. Fourth differences, because
+the penalty then leaves cubics in ``u`` free: straight lines, and to first order the start
+of a clothoid transition (``y = x^3 / (6 A^2)``), cost nothing, and at the route's ends
+neither curvature nor its rate is pulled towards zero. (A cubic smoothing spline has natural
+end conditions ``c'' = 0``, i.e. zero curvature at both ends; a third-difference penalty
+still forces ``c''' -> 0`` there, which on a test clothoid gave four times the curvature
+error within 10 m of an end.)
+
+*Smoothing from the noise.* ``lam`` is chosen so that the weighted residual sum (weights
+``1/sigma``) equals what the noise used plausibly produces (the discrepancy principle, as
+FITPACK's ``splprep`` documents for its ``s``): see :func:`residual_target`, with one noisy
+component per point. One, not two: noise along the path moves a point along the path, and
+the chord-length parameter carries that movement (each chord grows or shrinks with it), so
+a smooth fit absorbs it and only the noise across the path remains as residual (checked on
+noisy straight lines: the weighted residual of the best cubic is ~m, not ~2m). The target
+is therefore ``m + 2 sqrt(2 m)``. On a test alignment (straight, clothoids, R = 80 m arc,
+points 0.5-1.5 m apart, sigma 2 and 10 cm) it gave RMS curvature errors 15-50 % smaller than
+the same fit with FITPACK's ``s = 2 m``, with smaller end errors on average (worst end error
+0.16/R against 0.10/R in 40 seeds); aiming at ``m`` itself let curvature swing by up to 2/R
+over the last 10 m of an open end. If the points are within that noise of a cubic in ``u``
+(loops: of a constant) the penalty's null-space fit is used. This holds while points are
+further apart than the noise, which :mod:`.drive` ensures for recorded drives (standstills
+merged, dense fixes averaged).
+
+*Noise the points show.* The discrepancy principle spends the whole allowance: on points
+that really carry noise ``sigma`` the noise itself supplies most of the residual, but on
+points more precise than stated the fit must depart from them to reach the target, and the
+departure goes to the curves, most of it where clothoids meet arcs (on the invented demo routes a
+stated 5 cm turned R 50 m reverse curves into R 42 m and bent a R 15 m hairpin 8 % tighter).
+The noise is therefore estimated from the points (their scatter about a quintic through their
+six neighbours, :func:`.noise.estimate_scatter`, taken as an upper confidence bound, never
+below 1 mm) and used unless the user states one within a factor of 2 of it. The estimate sees
+noise that changes from point to point; an error that drifts slowly along the route (as
+satellite positions do, common practice) is followed like the route itself: it shifts the path
+more than it bends it, and the curvature's uncertainty accounts for it (:mod:`.curvature`).
+
+*Curvature* is not taken from this fit directly: it is smoothed station by station as much as
+the noise calls for, bounded, and, where the road is built from straights, arcs and clothoids,
+read from the reconstructed design alignment (:mod:`.curvature`, :mod:`.alignment`).
+
+*Why not FITPACK.* ``scipy.interpolate.splprep`` picks knots adaptively and grows faster than
+linearly with the number of points (about 1.3 s for 10^5 and 42 s for 10^6 points on the
+development machine); ``make_splprep`` and ``make_smoothing_spline`` are slower still. The
+P-spline's normal equations are banded (half-bandwidth 5; 11 for loops after an interleaving
+permutation that folds the wrap-around corners into the band), so each trial ``lam`` costs
+one banded Cholesky solve (LAPACK via :func:`scipy.linalg.solveh_banded`) and the whole fit is
+O(m). The knot spacing adapts to the smoothing the noise calls for (see ``fit_pspline``).
+Loops use a periodic basis (wrapped coefficients), so position and its first four
+derivatives agree at the seam.
+
+*Ends.* An open route runs from the foot of its first point on the fitted path to the foot
+of its last (the nearest points of the path), so the path's free ends, which the smoothing
+lets drift along the tangent by several ``sigma``, are trimmed off.
+
+*Arc length.* Each knot interval is cut into pieces of at most 2 m of ``u`` (or the station
+spacing, when longer); on each piece
+the speed ``|c'(u)|`` is sampled at 10 Gauss-Legendre nodes and replaced by its Legendre
+interpolant, whose integral is the Gauss-Legendre rule; the cumulative integral gives
+station as a function of ``u`` (checked against adaptive quadrature to ~1e-14 m on 2 m
+pieces; a single 18 m piece already gave the total to 2e-12 m but intermediate stations
+only to 2e-7 m). Stations ``k * ds`` are mapped back to ``u`` by safeguarded Newton
+iteration on that integral (to ~1e-11 m), and the spline is evaluated there. Curvature is
+``(x' y'' - y' x'') / |c'|^3``, heading ``atan2(y', x')`` made continuous by choosing, at each
+step, the branch nearest the trapezoidal integral of curvature.
+
+*Elevation.* Each point is placed at the station of its own parameter on the fitted path;
+elevation is fitted against station with the same P-spline (one dimension, one noisy
+component per point), its noise estimated from the heights like the positions', periodic on
+loops; grade is its derivative. Grades beyond what roads have are reported (:mod:`.elevation`).
+
+*Loops.* The closing chord joins the last point to the first; a last point closer to the
+first than half a median spacing is a repeat of it and is dropped. Node ``n`` is a copy of
+node 0 except for heading, which is heading at node 0 plus 2 pi times the winding number.
+"""
 
 from __future__ import annotations
 
@@ -64,157 +147,123 @@ def build_geometry(route: Route, spacing_m: float = 1.0, position_noise_m: float
                    elevation_noise_m: float | None = None, closed: bool | None = None,
                    closure_tolerance_m: float | None = None, part: int | None = None,
                    use_elevation: bool = True) -> Geometry:
-    """Fit a smoothing spline to a route and resample it at uniform arc-length spacing.
+    """Fit a route's points and resample them at uniform arc-length spacing.
 
     Parameters
     ----------
     route : Route
-        Points in driving order (see :func:`curvespeed.route.make_route`).
+        Points in driving order: a survey, map data or a recorded drive
+        (:func:`curvespeed.route.make_route`).
     spacing_m : float
         Requested station spacing, metres. The spacing used is ``L / ceil(L / spacing_m)`` so
         that it divides the fitted length ``L``; it is stored in ``Geometry.spacing_m``.
-    position_noise_m : float
-        Expected position noise of the points: standard deviation per coordinate, metres. It
-        sets how closely the spline follows the points, as an upper bound: points that show
-        less scatter than this are followed as closely as their own scatter allows (see Notes,
-        *Noise the points show*).
-    elevation_noise_m : float, optional
-        Expected elevation noise (standard deviation, metres); default 0.1 m, which suits
-        surveyed or map-derived heights. Raw satellite-receiver heights scatter by metres
-        (common practice): pass a matching value or the grade will be noisy.
+    position_noise_m, elevation_noise_m : float, optional
+        The noise of the points (standard deviation per coordinate, metres). None (default):
+        estimated from the points themselves. A value the points contradict by more than a
+        factor of 2 is reported and the estimate used (:func:`.noise.choose_noise`).
     closed : bool, optional
         True joins the last point to the first and fits a periodic spline; False keeps the
-        route open; None (default) closes it when its last point lies within
-        ``closure_tolerance_m`` of its first and the join does not double back.
+        route open; None (default) closes it when its ends meet (``closure_tolerance_m``) and
+        joining them turns no more than the route does elsewhere.
     closure_tolerance_m : float, optional
         Largest gap between last and first point that ``closed=None`` treats as a loop.
         Default: the larger of 2 median point spacings (a point list that closes without
         repeating its first point ends about one spacing short of it; irregular sampling can
-        make that gap up to about twice the median) and 6 ``position_noise_m`` (two noisy fixes
-        of the same spot lie further apart than 6 sigma with probability exp(-9) ~ 1e-4: their
-        distance is Rayleigh-distributed with scale sigma*sqrt(2)).
+        make that gap up to about twice the median) and 6 noise standard deviations (two noisy
+        fixes of the same spot lie further apart than 6 sigma with probability exp(-9) ~ 1e-4:
+        their distance is Rayleigh-distributed with scale sigma*sqrt(2)).
+    part : int, optional
+        Where a recorded vehicle reverses, the drive splits into parts: the one to use
+        (0-based; default the longest, with a warning).
+    use_elevation : bool
+        False ignores the route's elevations (no grade).
 
     Returns
     -------
     Geometry
-        Nodes ``0..n`` at stations ``k * spacing_m`` with position, heading, signed curvature
-        and, when the route has elevation, elevation and grade.
+        Nodes ``0..n`` at stations ``k * spacing_m`` with position, heading, signed curvature,
+        its standard deviation and bound, elevation and grade where the route has heights, and
+        the provenance of the fit.
 
     Raises
     ------
     RouteGeometryError
-        For a non-positive spacing, noise or tolerance; a spacing longer than the route; a
-        loop whose ends overlap (``closed=True``); a fit that fails or whose path nearly stops
-        and turns back (a cusp), naming the station and the nearest point.
+        For a non-positive spacing, noise or tolerance; a spacing longer than the route; too
+        many stations; a path that doubles back between well-separated points; a loop whose
+        ends overlap (``closed=True``); a fit that fails or nearly stops and turns back (a
+        cusp), naming the station and the nearest point.
 
     Warns
     -----
     CurvespeedWarning
-        When ``closed=True`` bridges a gap wider than the closure tolerance, when a route whose
-        ends meet is kept open because its ends overlap, and when the points scatter more than
-        ``position_noise_m`` allows even with the least smoothing.
-
-    Notes
-    -----
-    *Fit.* Each coordinate is a quintic B-spline of the cumulative chord length ``u`` of the
-    points, on uniform knots half a median point spacing apart, fitted by penalised least
-    squares (a P-spline, Eilers and Marx, 1996): minimise
-    ``sum_i |p_i - c(u_i)|^2 / sigma^2 + lam * sum_j |fourth difference of coefficients|^2``,
-    the discrete form of a penalty on ``integral |c''''|^2``. Quintic, because curvature is a
-    second derivative: it is then twice continuously differentiable, and its rate of change
-    along the route (lateral jerk at constant speed) is continuous. Fourth differences, because
-    the penalty then leaves cubics in ``u`` free: straight lines, and to first order the start
-    of a clothoid transition (``y = x^3 / (6 A^2)``), cost nothing, and at the route's ends
-    neither curvature nor its rate is pulled towards zero. (A cubic smoothing spline has natural
-    end conditions ``c'' = 0``, i.e. zero curvature at both ends; a third-difference penalty
-    still forces ``c''' -> 0`` there, which on a test clothoid gave four times the curvature
-    error within 10 m of an end.)
-
-    *Smoothing from the noise.* ``lam`` is chosen so that the weighted residual sum (weights
-    ``1/sigma``) equals what the stated noise plausibly produces (the discrepancy principle, as
-    FITPACK's ``splprep`` documents for its ``s``): see :func:`residual_target`, with one noisy
-    component per point. One, not two: noise along the path moves a point along the path, and
-    the chord-length parameter carries that movement (each chord grows or shrinks with it), so
-    a smooth fit absorbs it and only the noise across the path remains as residual (checked on
-    noisy straight lines: the weighted residual of the best cubic is ~m, not ~2m). The target
-    is therefore ``m + 2 sqrt(2 m)``. On a test alignment (straight, clothoids, R = 80 m arc,
-    points 0.5-1.5 m apart, sigma 2 and 10 cm) it gave RMS curvature errors 15-50 % smaller than
-    the same fit with FITPACK's ``s = 2 m``, with smaller end errors on average (worst end error
-    0.16/R against 0.10/R in 40 seeds); aiming at ``m`` itself let curvature swing by up to 2/R
-    over the last 10 m of an open end. If the points are within that noise of a cubic in ``u``
-    (loops: of a constant) the penalty's null-space fit is used. This holds while points are
-    further apart than the noise; points bunched closer than the noise (a trace recorded while
-    standing) are reported as a cusp.
-
-    *Noise the points show.* The discrepancy principle spends the whole allowance: on points
-    that really carry noise ``sigma`` the noise itself supplies most of the residual, but on
-    points more precise than stated the fit must depart from them to reach the target. Straights
-    (in the penalty's null space) and long arcs cost almost nothing to follow exactly, so the
-    departure goes to the curves, most of it where clothoids meet arcs and the design curvature
-    has kinks; the smoothest path that departs there by several ``sigma`` blurs the kinks and
-    rings (the smoother's response has negative side lobes), raising curvature in some places
-    and lowering it in others. On the invented demo routes (designed alignments, coordinates
-    rounded to 1 cm, points 2.5-5 m apart) a stated 5 cm drew a smoothing weight 60-1000 times
-    the one the same points with real 5 cm noise added drew, turned R 50 m reverse curves into
-    R 42 m, bent the middle of a 40 m arc 19 % tighter and a R 15 m hairpin 8 % tighter; a
-    stated 1 cm still moved the tightest radii by 3-9 % and arcs by up to 10 %. The stated
-    noise is therefore an upper bound: the fit uses ``min(sigma, max(estimate, 1 mm))``, where
-    the estimate is the scatter the points show about a quintic through their six neighbours,
-    taken as an upper confidence bound (:func:`estimate_scatter`). On noisy points the
-    estimate exceeds the stated noise and nothing changes; on the demo routes it is 2-3.5 mm
-    (the rounding, plus the kinks seen by the local quintic), and whatever noise is stated the
-    tightest radii come out 1.6-5.6 % from design and the curvature on the arcs (2 m or more
-    from their ends) within 3.6-5.9 % of 1/R; what remains sits within a point spacing of the
-    kinks, which points 2.5-5 m apart cannot place more precisely. The estimate sees noise
-    that changes from point to point; an error that drifts slowly along the route (as
-    satellite positions do, common practice) shows little there and is followed like the route
-    itself: it shifts the path more than it bends it.
-
-    *Why not FITPACK.* ``scipy.interpolate.splprep`` picks knots adaptively and grows faster than
-    linearly with the number of points (about 1.3 s for 10^5 and 42 s for 10^6 points on the
-    development machine); ``make_splprep`` and ``make_smoothing_spline`` are slower still. The
-    P-spline's normal equations are banded (half-bandwidth 5; 11 for loops after an interleaving
-    permutation that folds the wrap-around corners into the band), so each trial ``lam`` costs
-    one banded Cholesky solve (LAPACK via :func:`scipy.linalg.solveh_banded`) and the whole fit is
-    O(m). The knot spacing adapts to the smoothing the noise calls for (see ``fit_pspline``).
-    Loops use a periodic basis (wrapped coefficients), so position and its first four
-    derivatives agree at the seam.
-
-    *Ends.* An open route runs from the foot of its first point on the fitted path to the foot
-    of its last (the nearest points of the path), so the path's free ends, which the smoothing
-    lets drift along the tangent by several ``sigma``, are trimmed off.
-
-    *Arc length.* Each knot interval is cut into pieces of at most 2 m of ``u``; on each piece
-    the speed ``|c'(u)|`` is sampled at 10 Gauss-Legendre nodes and replaced by its Legendre
-    interpolant, whose integral is the Gauss-Legendre rule; the cumulative integral gives
-    station as a function of ``u`` (checked against adaptive quadrature to ~1e-14 m on 2 m
-    pieces; a single 18 m piece already gave the total to 2e-12 m but intermediate stations
-    only to 2e-7 m). Stations ``k * ds`` are mapped back to ``u`` by safeguarded Newton
-    iteration on that integral (to ~1e-11 m), and the spline is evaluated there. Curvature is
-    ``(x' y'' - y' x'') / |c'|^3``, heading ``atan2(y', x')`` made continuous by choosing, at each
-    step, the branch nearest the trapezoidal integral of curvature.
-
-    *Elevation.* Each point is placed at the station of its own parameter on the fitted path;
-    elevation is fitted against station with the same P-spline (one dimension, one noisy
-    component per point, weight ``1/elevation_noise_m``), periodic on loops; grade is its
-    derivative. The stated elevation noise is used as given, not lowered to the scatter the
-    heights show: satellite heights drift slowly by metres (common practice), which such an
-    estimate does not see, and grade, a first derivative, feels a slow drift far more than
-    curvature, a second derivative, feels one of the plan position.
-
-    *Loops.* The closing chord joins the last point to the first; a last point closer to the
-    first than half a median spacing is a repeat of it and is dropped. Node ``n`` is a copy of
-    node 0 except for heading, which is heading at node 0 plus 2 pi times the winding number.
+        A stated noise the points contradict; a drive that reverses (split into parts); a
+        spike or an outlier; grades beyond what roads have; a closure bridging a wide gap, or
+        ends that meet but are kept open.
 
     The geometry feeds speed limits that move vehicles. It supports engineering judgment; speeds
     on public roads and advisory signs follow local codes and licensed practice.
     """
     source = route.source
     _check_arguments(spacing_m, position_noise_m, elevation_noise_m, closure_tolerance_m, source)
+    pts = _points(route, part, use_elevation, closed, closure_tolerance_m, position_noise_m,
+                  spacing_m)
+    path = _fit_path(pts.x, pts.y, pts.count, pts.closed, position_noise_m, spacing_m, source)
+    nodes = _nodes(path, pts, spacing_m, source)
+    n_eval = nodes.station.size - 1 if pts.closed else nodes.station.size
+    fit = path.fit
+    pos = fit.spline(nodes.u)
+    _, raw_heading = curvature_and_heading(fit.spline, nodes.u)
+    curv = estimate_curvature(fit, path.u, np.column_stack((pts.x, pts.y)),
+                              1.0 / (path.noise.used * path.point_scale), nodes.u,
+                              nodes.station[:n_eval], pts.time, pts.drive.drift_rate)
+    xs, ys, kappa = pos[:, 0], pos[:, 1], curv.kappa
+    bound, sd = curv.bound, curv.sd
+    if pts.closed:
+        xs, ys, kappa, raw_heading, bound, sd = (
+            np.append(a, a[0]) for a in (xs, ys, kappa, raw_heading, bound, sd))
+    heading = _continuous_heading(raw_heading, kappa, nodes.ds, pts.closed)
+
+    z_nodes = grade = z_noise = None
+    if pts.z is not None:
+        z_nodes, grade, z_noise = fit_elevation(nodes.point_station, pts.z, pts.count,
+                                                elevation_noise_m, nodes.station[-1],
+                                                pts.closed, nodes.station[:n_eval], source)
+        if pts.closed:
+            z_nodes, grade = np.append(z_nodes, z_nodes[0]), np.append(grade, grade[0])
+        warn_steep_grades(nodes.station, grade, source)
+
+    provenance = _provenance(route, pts.drive, path.noise, z_noise, use_elevation)
+    return Geometry(station_m=nodes.station, x_m=xs, y_m=ys, heading_rad=heading,
+                    curvature_1pm=kappa, z_m=z_nodes, grade=grade, closed=pts.closed,
+                    spacing_m=float(nodes.ds), projection=route.projection, source=source,
+                    name=route.name, curvature_bound_1pm=bound, curvature_sd_1pm=sd,
+                    provenance=provenance)
+
+
+# ---------------------------------------------------------------------------------------------
+# Steps of build_geometry.
+
+@dataclass(frozen=True)
+class _Points:
+    """The points the path is fitted to, after the drive's standstills, reversals and dense
+    fixes were dealt with (:mod:`.drive`) and the closure decided."""
+
+    drive: DrivePoints
+    x: np.ndarray
+    y: np.ndarray
+    z: np.ndarray | None
+    where: np.ndarray
+    count: np.ndarray
+    time: np.ndarray
+    closed: bool
+
+
+def _points(route, part, use_elevation, closed, closure_tolerance_m, noise_m,
+            spacing_m) -> _Points:
+    source = route.source
     if route.n_points < 3:
         raise RouteGeometryError(
             f"{source}: only {route.n_points} point(s); a route needs at least 3")
-
     drive = prepare_drive(route, part)
     x, y, where, count, time = drive.x_m, drive.y_m, drive.where, drive.count, drive.time
     z = drive.z_m if use_elevation else None
@@ -224,7 +273,7 @@ def build_geometry(route: Route, spacing_m: float = 1.0, position_noise_m: float
             "still; a route needs at least 3")
     is_closed, drop_last = _decide_closure(
         x, y, where, source, None if closed is None else bool(closed), closure_tolerance_m,
-        position_noise_m or drive.order_noise_m)
+        noise_m or drive.order_noise_m)
     if drop_last:
         x, y, where, count, time = x[:-1], y[:-1], where[:-1], count[:-1], time[:-1]
         z = None if z is None else z[:-1]
@@ -236,20 +285,32 @@ def build_geometry(route: Route, spacing_m: float = 1.0, position_noise_m: float
             f"{source}: {chord_length / 1000:.1f} km at {spacing_m:g} m spacing would need "
             f"{chord_length / spacing_m:.3g} stations (at most {MAX_STATIONS:.0e}); use "
             f"--spacing {chord_length / MAX_STATIONS:.3g} or more, or look for a stray point")
+    return _Points(drive, x, y, z, where, count, time, is_closed)
 
-    path = _fit_path(x, y, count, is_closed, position_noise_m, spacing_m, source)
-    fit, arc, u = path.fit, path.arc, path.u
-    if is_closed:
+
+@dataclass(frozen=True)
+class _Nodes:
+    station: np.ndarray          # node stations, metres
+    u: np.ndarray                # their spline parameter (one fewer on a loop: no seam copy)
+    point_station: np.ndarray    # station of each point's own parameter
+    ds: float
+
+
+def _nodes(path, pts: _Points, spacing_m: float, source: str) -> _Nodes:
+    """Stations at uniform spacing between the feet of the first and last points (a loop: the
+    whole lap), and the spline parameter of each."""
+    fit, arc = path.fit, path.arc
+    if pts.closed:
         u_first, u_last = 0.0, fit.span
     else:
         # The route runs between the feet of its first and last points on the fitted path.
-        u_first = _foot_parameter(fit.spline, x[0], y[0], 0.0, fit.span)
-        u_last = _foot_parameter(fit.spline, x[-1], y[-1], fit.span, fit.span)
+        u_first = _foot_parameter(fit.spline, pts.x[0], pts.y[0], 0.0, fit.span)
+        u_last = _foot_parameter(fit.spline, pts.x[-1], pts.y[-1], fit.span, fit.span)
     s_first = float(arc.station(np.array([u_first]))[0])
-    point_station = arc.station(u) - s_first
-    _check_cusps(arc, s_first, point_station, where, source, path.noise.used)
-
-    length = float(arc.station(np.array([u_last]))[0]) - s_first if not is_closed else arc.length
+    point_station = arc.station(path.u) - s_first
+    _check_cusps(arc, s_first, point_station, pts.where, source, path.noise.used)
+    length = (arc.length if pts.closed
+              else float(arc.station(np.array([u_last]))[0]) - s_first)
     if not length > 0:
         raise RouteGeometryError(
             f"{source}: the smoothed path has no length between the first and last point; the "
@@ -262,44 +323,12 @@ def build_geometry(route: Route, spacing_m: float = 1.0, position_noise_m: float
     ds = length / n
     station = ds * np.arange(n + 1, dtype=float)
     station[-1] = length
-
-    n_eval = n if is_closed else n + 1
+    n_eval = n if pts.closed else n + 1
     u_nodes = arc.parameter(station[:n_eval] + s_first)
     u_nodes[0] = u_first
-    if not is_closed:
+    if not pts.closed:
         u_nodes[-1] = u_last
-    pos = fit.spline(u_nodes)
-    _, raw_heading = curvature_and_heading(fit.spline, u_nodes)
-    curv = estimate_curvature(fit, u, np.column_stack((x, y)),
-                              1.0 / (path.noise.used * path.point_scale), u_nodes,
-                              station[:n_eval], time, drive.drift_rate)
-    xs, ys, kappa = pos[:, 0], pos[:, 1], curv.kappa
-    bound, sd = curv.bound, curv.sd
-    if is_closed:
-        xs, ys, kappa, raw_heading, bound, sd = (
-            np.append(a, a[0]) for a in (xs, ys, kappa, raw_heading, bound, sd))
-    heading = _continuous_heading(raw_heading, kappa, ds, is_closed)
-
-    z_nodes = grade = z_noise = None
-    if z is not None:
-        z_nodes, grade, z_noise = fit_elevation(point_station, z, count, elevation_noise_m,
-                                                length, is_closed, station[:n_eval], source)
-        if is_closed:
-            z_nodes, grade = np.append(z_nodes, z_nodes[0]), np.append(grade, grade[0])
-        warn_steep_grades(station, grade, source)
-
-    provenance = _provenance(route, drive, path.noise, z_noise, use_elevation)
-    return Geometry(station_m=station, x_m=xs, y_m=ys, heading_rad=heading,
-                    curvature_1pm=kappa, z_m=z_nodes, grade=grade, closed=is_closed,
-                    spacing_m=float(ds), projection=route.projection, source=source,
-                    name=route.name, curvature_bound_1pm=bound, curvature_sd_1pm=sd,
-                    provenance=provenance)
-
-
-
-
-# ---------------------------------------------------------------------------------------------
-# Steps of build_geometry.
+    return _Nodes(station, u_nodes, point_station, ds)
 
 @dataclass(frozen=True)
 class _PathFit:
