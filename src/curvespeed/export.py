@@ -199,7 +199,7 @@ class StationProfile:
         f_start = np.where(ramp, np.where(leaving, 0.0, f), 1.0)
         f_end = np.where(ramp, np.where(leaving, f, 0.0), 1.0)
         forms = lateral_rates.step_rate_forms(self.curvature_1pm, np.diff(self.station_m),
-                                              f_start, f_end)
+                                              False, f_start, f_end)
         return lateral_rates.step_lateral_jerk(forms, self.speed_mps ** 2)
 
     @property

@@ -57,27 +57,30 @@ acceleration (factors 1, time ``2 ds / (v + v')``).
 
 **Lateral jerk** (when bounded) is ``|d(kappa v^2)/dt| = |g| v`` with
 ``g = d(kappa v^2)/ds = kappa' b + 2 kappa a`` the station rate of the lateral acceleration
-(:mod:`curvespeed.lateral_rates`). The curvature is known at the nodes and taken linear in
-station between them (each node's curvature stands for its own station, as in every other row),
-so ``kappa'`` is constant along a step. The bound holds
+(:mod:`curvespeed.lateral_rates`). The curvature is known at the nodes. Its rate changes at the
+road's element joints, which fall anywhere between stations, so along a step the rate is taken
+between the lowest and highest chord rate of the step and its two neighbours, averaging to the
+step's own; where that is the lowest or the highest, the rate is the chord's all along the step
+(curvature linear between the nodes, as on a clothoid, arc or straight and wherever the joints
+fall on nodes). That holds for elements at least two steps long, wherever their joints fall.
+The bound holds
 
-* *along every step, as driven*: on a constant-acceleration step ``b`` is linear in station too,
-  so ``g`` is linear along the step and lies between its values at the two ends, each linear in
-  ``b``; on a step next to rest driven with a jerk ramp, ``b`` lies in ``[0, b_m]`` and the
-  acceleration between 0 and its flat value ``f b_m / (2 ds)``, so ``g`` lies between two
-  multiples of ``b_m``. The speed is at most the larger of the step's node speeds (it is
-  monotone along the step), so ``max(|form 1|, |form 2|) * max(v, v') <= J_lat``
-  (:meth:`SpeedProblem.step_lateral_jerk`) bounds the lateral jerk everywhere along it: exact at
-  constant speed (``|kappa'| v^3``, Shortt's spiral rate) and at the step's faster end where the
-  rate is largest there;
+* *along every step, as driven*: on a constant-acceleration step ``b`` is linear in station,
+  so ``g`` is linear wherever the rate is constant and its extremes are at the nodes or where
+  the rate changes; with the rate and the curvature at their extremes, linear forms in the
+  step's ``b`` bound it there. On a step next to rest driven with a jerk ramp, ``b`` lies in
+  ``[0, b_m]`` and the acceleration between 0 and its flat value ``f b_m / (2 ds)``, so ``g``
+  lies between two multiples of ``b_m``. The speed is at most the larger of the step's node
+  speeds (it is monotone along the step), so ``max |form| * max(v, v') <= J_lat``
+  (:meth:`SpeedProblem.step_lateral_jerk`) bounds the lateral jerk everywhere along it. Where
+  the curvature is linear between the nodes it is exact at constant speed (``|kappa'| v^3`` on
+  a clothoid, Shortt's spiral rate) and wherever the largest rate meets the larger speed;
 * *at every node where two steps meet, across the change of acceleration*: with the road of
   either step and the acceleration of the other, ``|kappa'_- b + 2 kappa a_+| v`` and
   ``|kappa'_+ b + 2 kappa a_-| v`` (:meth:`SpeedProblem.node_lateral_jerk`). A vehicle cannot
   switch its acceleration exactly at a station (the jerk bound spreads the change around the
-  node), and a joint of the road's elements that lies a hair on the other side of a station
-  than the plan's node is driven with the other step's acceleration: either way the road next
-  to the node meets either acceleration or one between them (``g`` is linear in ``a``). Where
-  the curvature rate does not change at the node, these equal the steps' end values.
+  node), and where the curvature rate changes at the node the road next to it is driven with
+  either step's acceleration or one between them (``g`` is linear in ``a``).
 
 Stations are treated as path length (the slope's cos(gamma) < 0.5 % at 10 % grade is neglected).
 Every function here is vectorised over nodes and has no side effects.
@@ -234,10 +237,9 @@ class SpeedProblem:
                             np.inf)
 
     def lateral_rate_forms(self) -> np.ndarray:
-        """The two linear forms in ``(b[k], b[k+1])`` between which the station rate of the
-        lateral acceleration lies along each step
-        (:func:`curvespeed.lateral_rates.step_rate_forms`)."""
-        return lateral_rates.step_rate_forms(self.kappa_signed, self.ds,
+        """The linear forms in ``(b[k], b[k+1])`` that bound the station rate of the lateral
+        acceleration along each step (:func:`curvespeed.lateral_rates.step_rate_forms`)."""
+        return lateral_rates.step_rate_forms(self.kappa_signed, self.ds, self.closed,
                                              self.accel_factor_start, self.accel_factor_end)
 
     def node_lateral_rate_forms(self) -> lateral_rates.NodeRateForms:
@@ -249,10 +251,10 @@ class SpeedProblem:
     def step_lateral_jerk(self, b) -> np.ndarray:
         """Largest lateral jerk ``d(kappa v^2)/dt`` along each step as driven (a bound), m/s^3.
 
-        ``max(|form 1|, |form 2|) * max(v, v')`` with the sign of the larger form (module
-        docstring); 0 for a step never driven. On a clothoid (curvature linear in station) at
-        constant speed it is exactly ``v^3 dkappa/ds``, the quantity highway spirals are
-        designed for.
+        The largest rate form's magnitude times the larger node speed, with that form's sign
+        (module docstring); 0 for a step never driven. On a clothoid (curvature linear in
+        station) at constant speed it is exactly ``v^3 dkappa/ds``, the quantity highway
+        spirals are designed for.
         """
         return lateral_rates.step_lateral_jerk(self.lateral_rate_forms(), b)
 

@@ -228,7 +228,7 @@ class _QPBuilder:
         """Rows ``+-R . b + J_lat b_e / (2 r_e^3) <= 3 J_lat / (2 r_e)`` for every rate form.
 
         The lateral jerk is a rate form ``R . b`` (linear in ``b``) times a node's speed
-        ``sqrt(b_e)``: along each step both forms of :meth:`SpeedProblem.lateral_rate_forms`
+        ``sqrt(b_e)``: along each step every form of :meth:`SpeedProblem.lateral_rate_forms`
         with the speed of either node (the larger bounds the speed along the step), and at
         each node both crossed forms of :meth:`SpeedProblem.node_lateral_rate_forms` with the
         node's own speed. ``|R . b| <= J_lat / sqrt(b_e)`` keeps the bound; ``J / sqrt(b)`` is
@@ -246,7 +246,7 @@ class _QPBuilder:
             budget = np.where(lay.fixed, J / root, 1.5 * J / root)
         parts = []                      # (columns, coefficients, speed node) per set of rows
         sf, st = lay.step_from, lay.step_to
-        for i in (0, 1):
+        for i in range(self.step_forms.shape[1]):
             for end in (sf, st):
                 parts.append((np.stack((sf, st), axis=1), self.step_forms[:, i], end))
         cross = self.node_forms

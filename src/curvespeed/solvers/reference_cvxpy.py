@@ -139,8 +139,9 @@ def _lateral_jerk_constraints(problem, b, b_lin, fixed, frm, to):
     """|d(kappa v^2)/dt| <= J_lat along every step and across every node (curvespeed.problem).
 
     The lateral jerk is a station rate of the lateral acceleration, linear in ``b``, times the
-    speed: along a step the rate lies between two forms in the step's squared speeds
-    (:meth:`SpeedProblem.lateral_rate_forms`) and the speed is at most one of its nodes'; at a
+    speed: along a step the rate's magnitude is at most the largest of some forms in the step's
+    squared speeds (:meth:`SpeedProblem.lateral_rate_forms`) and the speed at most one of its
+    nodes'; at a
     node the crossed forms (:meth:`SpeedProblem.node_lateral_rate_forms`) go with the node's
     speed. So ``|form| <= J_lat / v`` at those nodes. ``J_lat / sqrt(b)`` is convex, so its
     tangent at ``b_lin`` is below it: the constraints are linear and conservative. Stations with
@@ -157,7 +158,8 @@ def _lateral_jerk_constraints(problem, b, b_lin, fixed, frm, to):
     r = np.where(known, np.sqrt(value), np.sqrt(np.maximum(b_lin, _B_FLOOR)))
     step_forms = problem.lateral_rate_forms()[:frm.size]
     cross = problem.node_lateral_rate_forms()
-    sets = [((frm, to), step_forms[:, i], speed) for i in (0, 1) for speed in (frm, to)]
+    sets = [((frm, to), step_forms[:, i], speed) for i in range(step_forms.shape[1])
+            for speed in (frm, to)]
     sets += [((cross.prev, cross.node, cross.next), cross.forms[:, i], cross.node)
              for i in (0, 1)]
     cons = []
