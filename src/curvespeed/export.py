@@ -191,7 +191,8 @@ class StationProfile:
         step as driven (a bound, with the sign of the larger rate), m/s^3: the planner's
         definition (:meth:`SpeedProblem.step_lateral_jerk
         <curvespeed.problem.SpeedProblem.step_lateral_jerk>`), with each step driven as
-        :attr:`rest_time_coef` says."""
+        :attr:`rest_time_coef` says. The profile does not say whether the route is a loop:
+        the first and last steps are taken as an open route's (one neighbour each)."""
         ramp = self.rest_step
         f = rest_step.accel_factor(rest_step.shape_from_time_coef(
             np.where(ramp, self.rest_time_coef, 2.0)))
