@@ -235,7 +235,7 @@ class _QPBuilder:
         convex, so its tangent at ``b_hat`` (``r = sqrt(b_hat)``) lies below it, which keeps
         each row inside the true bound for any ``b_hat > 0``. A fixed station's speed is known
         exactly (no row where it is at rest: there the bound cannot bind); a form that is zero
-        (no curvature) needs no row.
+        (no curvature, or one that would repeat another) needs no row.
         """
         lay = self.lay
         J = self.p.limits.max_lateral_jerk_mps3 * (1.0 - self.opt.margin)
