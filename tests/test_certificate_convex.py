@@ -144,10 +144,10 @@ def test_comfort_weighted_program_agrees_with_the_cvxpy_reference(name):
 
 @pytest.mark.parametrize("closed, bound", [(False, 0.4), (True, 0.25)])
 def test_lateral_jerk_bound_is_kept_and_agrees_with_the_cvxpy_reference(closed, bound):
-    # The lateral jerk rows are linearised conservatively (tangents of sqrt and 1/x), so the
-    # bound must hold at every step of the answer, bind somewhere, and both models (written
-    # separately) must meet within the stopping thresholds, as for the other limits (measured:
-    # time 4e-5, speed 0.013 m/s).
+    # The lateral jerk rows are linearised conservatively (tangent of the convex J / sqrt(b)),
+    # so the bound must hold along every step and across every node of the answer, bind
+    # somewhere, and both models (written separately) must meet within the stopping thresholds,
+    # as for the other limits (measured: time 4e-5, speed 0.015 m/s).
     geo = winding(800.0, closed=True) if closed else winding()
     limits = Limits(max_jerk_mps3=2.0, max_lateral_jerk_mps3=bound, max_speed_mps=25.0)
     problem = build_problem(geo, limits, RouteConstraints())

@@ -136,13 +136,18 @@ def test_jerk_panel_without_a_jerk_bound(profile):
 
 def test_jerk_panel_shows_lateral_jerk_when_it_is_bounded(profile):
     art = plot_jerk(profile, LIMITS.replace(max_lateral_jerk_mps3=0.6))
-    # per step: change of curvature * v^2 over the step time 2 ds / (v + v'), from the profile
+    # per step (curvespeed.problem): the rate d(kappa v^2)/ds = kappa' v^2 + 2 kappa a at both
+    # ends of the step (curvature and v^2 linear in station), the larger in magnitude, times the
+    # larger of the step's two speeds. Planned without a jerk bound: every step has constant
+    # acceleration. Tolerance: the same sums in another order (rounding, 1e-15 m/s^3).
+    assert not profile.rest_step.any()
     v, kappa, s = profile.speed_mps, profile.geometry.curvature_1pm, profile.geometry.station_m
-    # c ds / v next to rest (c between 2 and 3: the jerk ramp, curvespeed.rest_step)
-    coef = np.where(profile.rest_step, profile.rest_time_coef, 2.0)
-    step_time = coef * np.diff(s) / (v[:-1] + v[1:])
-    np.testing.assert_allclose(art.lateral_line.get_ydata(), np.diff(kappa * v * v) / step_time,
-                               rtol=1e-12, atol=1e-12)
+    rate, accel = np.diff(kappa) / np.diff(s), np.diff(v * v) / (2.0 * np.diff(s))
+    first = rate * v[:-1] ** 2 + 2.0 * kappa[:-1] * accel
+    last = rate * v[1:] ** 2 + 2.0 * kappa[1:] * accel
+    larger = np.where(np.abs(last) > np.abs(first), last, first)
+    np.testing.assert_allclose(art.lateral_line.get_ydata(),
+                               larger * np.maximum(v[:-1], v[1:]), rtol=1e-12, atol=1e-12)
     np.testing.assert_allclose(art.lateral_line.get_xdata(), 0.5 * (s[:-1] + s[1:]))
     assert sorted(line.get_ydata()[0] for line in art.lateral_limits) == [-0.6, 0.6]
     assert art.ax.get_ylabel() == "jerk (m/s³)" and art.ax.get_legend() is not None

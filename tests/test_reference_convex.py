@@ -165,6 +165,29 @@ def test_lateral_jerk_on_a_clothoid_at_constant_speed(R, L, v):
     assert np.all(rate[(s[1:] <= 300.0) | (s[:-1] >= 300.0 + L)] == 0.0)
 
 
+@pytest.mark.parametrize("R, L, a", [(300.0, 60.0, 0.8), (150.0, 40.0, -0.4)])
+def test_lateral_jerk_accelerating_through_a_clothoid_is_its_value_at_the_faster_end(R, L, a):
+    # Driven at constant acceleration a, d(kappa v^2)/dt = kappa' v^3 + 2 kappa v a (chain rule
+    # with ds/dt = v; textbook kinematics). Entering the spiral (kappa and kappa' >= 0) it grows
+    # with speed, so each step's lateral jerk is its value at the faster end: exact (curvature
+    # linear along every step), and above the step's average (the change of kappa v^2 over its
+    # time), which the bound used to be. Tolerance: round-off of the curvature differences.
+    s, geo = spiral_route(R, L)
+    problem = build_problem(geo, Limits(max_jerk_mps3=None), RouteConstraints())
+    b = (15.0 if a > 0 else 30.0) ** 2 + 2.0 * a * s     # 12-42 m/s
+    v, kappa = np.sqrt(b), geo.curvature_1pm
+    inside = (s[:-1] >= 300.0) & (s[1:] <= 300.0 + L)
+    rate = np.where(inside, 1.0 / (R * L), 0.0)
+    k = np.arange(s.size - 1) + (1 if a > 0 else 0)   # the faster end of each step
+    exact = rate * v[k] ** 3 + 2.0 * kappa[k] * v[k] * a
+    got = problem.step_lateral_jerk(b)
+    np.testing.assert_allclose(got[inside], exact[inside], rtol=1e-12)
+    average = np.diff(kappa * b) / problem.step_times(b)
+    assert np.all(np.abs(got[inside]) > np.abs(average[inside]))
+    circle = s[:-1] >= 300.0 + L + 2.0                # two steps past the joint
+    np.testing.assert_allclose(got[circle], exact[circle], rtol=1e-12)
+
+
 @pytest.mark.parametrize("R, L, C", [(300.0, 60.0, 0.5), (400.0, 80.0, 0.3)])
 def test_spiral_speed_under_a_lateral_jerk_bound_is_shortts(R, L, C):
     # With the rate of change of lateral acceleration bounded by C, no profile can be faster

@@ -59,7 +59,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import rest_step
+from . import lateral_rates, rest_step
 from .errors import SpeedFileError
 
 #: Columns every trajectory has, in output order (units in the names).
@@ -187,11 +187,21 @@ class StationProfile:
 
     @property
     def step_lateral_jerk_mps3(self) -> np.ndarray:
-        """Change of the lateral acceleration ``curvature * v^2`` over each step divided by the
-        step's time, m/s^3 (the planner's definition, :meth:`SpeedProblem.step_lateral_jerk
-        <curvespeed.problem.SpeedProblem.step_lateral_jerk>`)."""
-        lat = self.curvature_1pm * self.speed_mps ** 2
-        return np.diff(lat) / self.step_time_s
+        """Largest rate of change of the lateral acceleration ``curvature * v^2`` along each
+        step as driven (a bound, with the sign of the larger rate), m/s^3: the planner's
+        definition (:meth:`SpeedProblem.step_lateral_jerk
+        <curvespeed.problem.SpeedProblem.step_lateral_jerk>`), with each step driven as
+        :attr:`rest_time_coef` says. The profile does not say whether the route is a loop:
+        the first and last steps are taken as an open route's (one neighbour each)."""
+        ramp = self.rest_step
+        f = rest_step.accel_factor(rest_step.shape_from_time_coef(
+            np.where(ramp, self.rest_time_coef, 2.0)))
+        leaving = ramp & (self.speed_mps[:-1] <= 0.0)
+        f_start = np.where(ramp, np.where(leaving, 0.0, f), 1.0)
+        f_end = np.where(ramp, np.where(leaving, f, 0.0), 1.0)
+        forms = lateral_rates.step_rate_forms(self.curvature_1pm, np.diff(self.station_m),
+                                              False, f_start, f_end)
+        return lateral_rates.step_lateral_jerk(forms, self.speed_mps ** 2)
 
     @property
     def node_time_s(self) -> np.ndarray:

@@ -55,6 +55,33 @@ acceleration (factors 1, time ``2 ds / (v + v')``).
 * at an open end the vehicle is steady outside the route: half the end step's time,
   ``ds / (v + v_next)`` (``t2`` at the moving node of a step next to rest).
 
+**Lateral jerk** (when bounded) is ``|d(kappa v^2)/dt| = |g| v`` with
+``g = d(kappa v^2)/ds = kappa' b + 2 kappa a`` the station rate of the lateral acceleration
+(:mod:`curvespeed.lateral_rates`). The curvature is known at the nodes. Its rate changes at the
+road's element joints, which fall anywhere between stations, so along a step the rate is taken
+between the lowest and highest chord rate of the step and its two neighbours, averaging to the
+step's own; where that is the lowest or the highest, the rate is the chord's all along the step
+(curvature linear between the nodes, as on a clothoid, arc or straight and wherever the joints
+fall on nodes). That holds for elements at least two steps long, wherever their joints fall.
+The bound holds
+
+* *along every step, as driven*: on a constant-acceleration step ``b`` is linear in station,
+  so ``g`` is linear wherever the rate is constant and its extremes are at the nodes or where
+  the rate changes; with the rate and the curvature at their extremes, linear forms in the
+  step's ``b`` bound it there. On a step next to rest driven with a jerk ramp, ``b`` lies in
+  ``[0, b_m]`` and the acceleration between 0 and its flat value ``f b_m / (2 ds)``, so ``g``
+  lies between two multiples of ``b_m``. The speed is at most the larger of the step's node
+  speeds (it is monotone along the step), so ``max |form| * max(v, v') <= J_lat``
+  (:meth:`SpeedProblem.step_lateral_jerk`) bounds the lateral jerk everywhere along it. Where
+  the curvature is linear between the nodes it is exact at constant speed (``|kappa'| v^3`` on
+  a clothoid, Shortt's spiral rate) and wherever the largest rate meets the larger speed;
+* *at every node where two steps meet, across the change of acceleration*: with the road of
+  either step and the acceleration of the other, ``|kappa'_- b + 2 kappa a_+| v`` and
+  ``|kappa'_+ b + 2 kappa a_-| v`` (:meth:`SpeedProblem.node_lateral_jerk`). A vehicle cannot
+  switch its acceleration exactly at a station (the jerk bound spreads the change around the
+  node), and where the curvature rate changes at the node the road next to it is driven with
+  either step's acceleration or one between them (``g`` is linear in ``a``).
+
 Stations are treated as path length (the slope's cos(gamma) < 0.5 % at 10 % grade is neglected).
 Every function here is vectorised over nodes and has no side effects.
 """
@@ -66,7 +93,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import rest_step
+from . import lateral_rates, rest_step
 from .errors import InfeasibleError, LimitsError
 from .geometry import Geometry
 from .jerk_model import JerkTimeTerms, jerk_time_terms, rest_nodes, with_rest_steps
@@ -209,15 +236,33 @@ class SpeedProblem:
             return np.where(vsum > 0.0, self.time_coef * self.ds / np.where(vsum > 0, vsum, 1.0),
                             np.inf)
 
-    def step_lateral_jerk(self, b) -> np.ndarray:
-        """Rate of change of the lateral acceleration ``kappa v^2`` over each step, m/s^3.
+    def lateral_rate_forms(self) -> np.ndarray:
+        """The linear forms in ``(b[k], b[k+1])`` that bound the station rate of the lateral
+        acceleration along each step (:func:`curvespeed.lateral_rates.step_rate_forms`)."""
+        return lateral_rates.step_rate_forms(self.kappa_signed, self.ds, self.closed,
+                                             self.accel_factor_start, self.accel_factor_end)
 
-        The change of ``kappa_signed * b`` between the step's nodes over the step's time (0 for
-        a step never driven). On a clothoid (curvature linear in station) at constant speed it
-        is exactly ``v^3 dkappa/ds``, the quantity highway spirals are designed for.
+    def node_lateral_rate_forms(self) -> lateral_rates.NodeRateForms:
+        """The rates at each node with the road of one step and the acceleration of the other
+        (:func:`curvespeed.lateral_rates.node_rate_forms`)."""
+        return lateral_rates.node_rate_forms(self.kappa_signed, self.ds, self.closed,
+                                             self.accel_factor_start, self.accel_factor_end)
+
+    def step_lateral_jerk(self, b) -> np.ndarray:
+        """Largest lateral jerk ``d(kappa v^2)/dt`` along each step as driven (a bound), m/s^3.
+
+        The largest rate form's magnitude times the larger node speed, with that form's sign
+        (module docstring); 0 for a step never driven. On a clothoid (curvature linear in
+        station) at constant speed it is exactly ``v^3 dkappa/ds``, the quantity highway
+        spirals are designed for.
         """
-        b = np.maximum(np.asarray(b, dtype=float), 0.0)
-        return np.diff(self.kappa_signed * b) / self.step_times(b)
+        return lateral_rates.step_lateral_jerk(self.lateral_rate_forms(), b)
+
+    def node_lateral_jerk(self, b) -> np.ndarray:
+        """Lateral jerk at each node with one step's road and the other step's acceleration,
+        the larger of the two, signed, m/s^3 (module docstring; 0 at the ends of an open route
+        and at rest)."""
+        return lateral_rates.node_lateral_jerk(self.node_lateral_rate_forms(), b, self.closed)
 
     @property
     def n_distinct(self) -> int:

@@ -119,7 +119,10 @@ def derive(problem: SpeedProblem, b: np.ndarray) -> dict[str, np.ndarray]:
     be steady (zero acceleration) before the start and after the end, so the first and last
     nodes carry the jerk of taking up and giving back the acceleration. On a closed route the
     seam joins the last step to the first. ``step_jerk_mps3`` is the jerk inside each step (the
-    ramp of a step next to rest; 0 for the constant-acceleration steps).
+    ramp of a step next to rest; 0 for the constant-acceleration steps). ``step_lat_jerk_mps3``
+    bounds the lateral jerk along each step as driven, ``node_lat_jerk_mps3`` is the lateral
+    jerk at each node with one step's road and the other's acceleration (both defined in
+    :mod:`curvespeed.problem`).
     """
     b = np.maximum(np.asarray(b, dtype=float), 0.0)
     v = np.sqrt(b)
@@ -142,9 +145,10 @@ def derive(problem: SpeedProblem, b: np.ndarray) -> dict[str, np.ndarray]:
         change = a_after - a_before
         jerk = np.where(change == 0.0, 0.0,
                         np.where(np.isfinite(tau) & (tau > 0), change / tau, np.inf))
-    # lateral jerk d(kappa v^2)/dt over each step (curvespeed.problem)
+    # lateral jerk d(kappa v^2)/dt along each step and across each node (curvespeed.problem)
     lat_jerk = problem.step_lateral_jerk(b)
     return {"speed_mps": v, "step_accel_mps2": a_step, "accel_mps2": acc, "jerk_mps3": jerk,
             "time_s": t, "step_lat_jerk_mps3": lat_jerk,
+            "node_lat_jerk_mps3": problem.node_lateral_jerk(b),
             "step_jerk_mps3": problem.step_ramp_jerk(b),
             "step_accel_first_mps2": a_first, "step_accel_last_mps2": a_last}

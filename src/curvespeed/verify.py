@@ -125,9 +125,10 @@ def verify_profile(problem: SpeedProblem, b: np.ndarray,
     if lim.max_jerk_mps3 is not None and check_jerk:
         step_jerk = _node_max(np.abs(d["step_jerk_mps3"]), problem.closed)
         use["jerk"] = np.maximum(np.abs(d["jerk_mps3"]), step_jerk) / lim.max_jerk_mps3
+    lat_jerk = np.maximum(_node_max(np.abs(d["step_lat_jerk_mps3"]), problem.closed),
+                          np.abs(d["node_lat_jerk_mps3"]))
     if lim.max_lateral_jerk_mps3 is not None and check_jerk:
-        use["lateral_jerk"] = (_node_max(np.abs(d["step_lat_jerk_mps3"]), problem.closed)
-                               / lim.max_lateral_jerk_mps3)
+        use["lateral_jerk"] = lat_jerk / lim.max_lateral_jerk_mps3
 
     violations = []
     for name, arr in use.items():
@@ -149,7 +150,7 @@ def verify_profile(problem: SpeedProblem, b: np.ndarray,
                 "decel_mps2": float(max(-a_ends.min(), 0.0)),
                 "lateral_accel_mps2": float(np.max(problem.kappa_abs * b)),
                 "jerk_mps3": float(np.max(np.abs(d["jerk_mps3"]))),
-                "lateral_jerk_mps3": float(np.max(np.abs(d["step_lat_jerk_mps3"])))}
+                "lateral_jerk_mps3": float(np.max(lat_jerk))}
     return Verification(use=use, peak=peak, violations=violations,
                         binding=_binding_labels(problem, a, use, lat_use, grip_lat_share),
                         extremes=extremes, derived=d)

@@ -17,8 +17,11 @@ problem of :mod:`curvespeed.problem` with the squared speeds ``b`` as variables:
   ``w = (v_prev + 2 v + v_next) / 4``; ``w`` is concave in ``b`` so its tangent at ``b_hat`` is an
   upper bound, and ``J ds / w`` is then replaced by its tangent (a lower bound, ``1/w`` being
   convex). Both steps keep the row conservative for any ``b_hat > 0``;
-* **lateral jerk** (when bounded) over each step: ``|kappa' b' - kappa b| <= J_lat c ds / V``
-  with ``V = v + v'``, linearised the same way (see :meth:`_QPBuilder._lateral_jerk_rows`);
+* **lateral jerk** (when bounded): the linear forms that bound the station rate of the lateral
+  acceleration along each step and across each node (:meth:`SpeedProblem.lateral_rate_forms`,
+  :meth:`SpeedProblem.node_lateral_rate_forms`) within ``J_lat / v`` of a node's speed,
+  ``J_lat / sqrt(b)`` replaced by its tangent (below it, being convex; see
+  :meth:`_QPBuilder._lateral_jerk_rows`);
 * **objective**: total time ``sum 2 ds / (sqrt(b_k) + sqrt(b_k+1))`` (convex), replaced in each
   iteration by its exact second-order model at ``b_hat``, plus an optional comfort term
   ``w_c * sum (a_after - a_before)^2``.
@@ -215,42 +218,58 @@ class _QPBuilder:
         self.ds = problem.ds
         self.has_power = math.isfinite(problem.limits.power_per_mass_wpkg)
         self.D = lay.D
+        self.step_forms = problem.lateral_rate_forms()[: lay.n_steps]
+        self.node_forms = problem.node_lateral_rate_forms()
 
     def _node_bounds(self, b, nodes, include_power=False):
         return self.p.accel_bounds(b, nodes=nodes, include_power=include_power)
 
     def _lateral_jerk_rows(self, b_hat: np.ndarray):
-        """Rows ``+-(kappa' b' - kappa b) <= c ds J_lat (2 / V_hat - V_up(b) / V_hat^2)`` per step.
+        """Rows ``+-R . b + J_lat b_e / (2 r_e^3) <= 3 J_lat / (2 r_e)`` for every rate form.
 
-        The step's lateral jerk is ``(kappa' b' - kappa b) V / (c ds)`` with ``V = v + v'``
-        (:meth:`SpeedProblem.step_lateral_jerk`), so the bound asks ``|change| <= c ds J / V``.
-        ``V`` is concave in ``b``: its tangent ``V_up`` at ``b_hat`` bounds it from above, so
-        ``1 / V >= 1 / V_up``; ``1 / x`` is convex, so its tangent at ``V_hat`` bounds ``1 / V_up``
-        from below. Both steps keep the row inside the true bound for any ``b_hat > 0``; a
-        fixed station's speed is known exactly.
+        The lateral jerk is a rate form ``R . b`` (linear in ``b``) times a node's speed
+        ``sqrt(b_e)``: along each step every form of :meth:`SpeedProblem.lateral_rate_forms`
+        with the speed of either node (the larger bounds the speed along the step), and at
+        each node both crossed forms of :meth:`SpeedProblem.node_lateral_rate_forms` with the
+        node's own speed. ``|R . b| <= J_lat / sqrt(b_e)`` keeps the bound; ``J / sqrt(b)`` is
+        convex, so its tangent at ``b_hat`` (``r = sqrt(b_hat)``) lies below it, which keeps
+        each row inside the true bound for any ``b_hat > 0``. A fixed station's speed is known
+        exactly (no row where it is at rest: there the bound cannot bind); a form that is zero
+        (no curvature, or one that would repeat another) needs no row.
         """
-        p, lay, ds = self.p, self.lay, self.ds
-        nv = lay.nv
-        sf, st = lay.step_from, lay.step_to
-        J = p.limits.max_lateral_jerk_mps3 * (1.0 - self.opt.margin)
-        kap = p.kappa_signed[:nv]
+        lay = self.lay
+        J = self.p.limits.max_lateral_jerk_mps3 * (1.0 - self.opt.margin)
         root = np.where(lay.fixed, np.sqrt(np.maximum(lay.fixed_value, 0.0)),
                         np.sqrt(np.maximum(b_hat, _B_FLOOR)))
-        slope = np.where(lay.fixed, 0.0, 0.5 / np.where(lay.fixed, 1.0, root))
-        base = np.where(lay.fixed, lay.fixed_value, b_hat)
-        v_hat = root[sf] + root[st]
-        v_zero = v_hat - slope[sf] * base[sf] - slope[st] * base[st]   # V_up = v_zero + g . b
-        budget = lay.time_coef * ds * J
-        g_f = budget * slope[sf] / v_hat ** 2
-        g_t = budget * slope[st] / v_hat ** 2
-        rhs = budget * (2.0 / v_hat - v_zero / v_hat ** 2)
-        k = np.arange(sf.size)
-        rows = np.concatenate((k, k, k + sf.size, k + sf.size))
-        cols = np.concatenate((sf, st, sf, st))
-        vals = np.concatenate((-kap[sf] + g_f, kap[st] + g_t, kap[sf] + g_f, -kap[st] + g_t))
-        L = sp.coo_matrix((vals, (rows, cols)), shape=(2 * sf.size, nv)).tocsr()
+        with np.errstate(divide="ignore"):
+            slope = np.where(lay.fixed, 0.0, 0.5 * J / root ** 3)          # on b_e, moved left
+            budget = np.where(lay.fixed, J / root, 1.5 * J / root)
+        parts = []                      # (columns, coefficients, speed node) per set of rows
+        sf, st = lay.step_from, lay.step_to
+        for i in range(self.step_forms.shape[1]):
+            for end in (sf, st):
+                parts.append((np.stack((sf, st), axis=1), self.step_forms[:, i], end))
+        cross = self.node_forms
+        for i in (0, 1):
+            parts.append((np.stack((cross.prev, cross.node, cross.next), axis=1),
+                          cross.forms[:, i], cross.node))
+        rows, cols, vals, rhs = [], [], [], []
+        n_rows = 0
+        for c, coef, end in parts:
+            k = np.flatnonzero(np.any(coef != 0.0, axis=1) & np.isfinite(budget[end]))
+            c, coef, end = c[k], coef[k], end[k]
+            on_end = np.where(c == end[:, None], slope[end][:, None], 0.0)
+            for sign in (1.0, -1.0):
+                r = np.arange(n_rows, n_rows + k.size)
+                rows.append(np.repeat(r, c.shape[1]))
+                cols.append(c.ravel())
+                vals.append((sign * coef + on_end).ravel())
+                rhs.append(budget[end])
+                n_rows += k.size
+        L = sp.coo_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
+                          shape=(n_rows, lay.nv)).tocsr()
         L.sum_duplicates()
-        return L, np.concatenate((rhs, rhs))
+        return L, np.concatenate(rhs)
 
     def _jerk_rows(self, b_hat: np.ndarray):
         """Rows ``+-D[node] b <= scale J ds (2 / w_hat - w_up(b) / w_hat^2)`` for every term of

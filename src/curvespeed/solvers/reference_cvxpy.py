@@ -136,33 +136,45 @@ def _accel_change(problem, nv, frm, to, f_first, f_last):
 
 
 def _lateral_jerk_constraints(problem, b, b_lin, fixed, frm, to):
-    """|change of kappa v^2 over a step| <= J_lat * (step time), the step time being
-    ``c ds / (v + v')`` (curvespeed.problem).
+    """|d(kappa v^2)/dt| <= J_lat along every step and across every node (curvespeed.problem).
 
-    ``v + v'`` is bounded above by the tangents of ``sqrt`` at ``b_lin`` (concave), and
-    ``1 / x`` below by its tangent at the linearisation point (convex): the product is a lower
-    bound on the allowed change, linear in ``b``. Stations with a fixed speed use it exactly.
+    The lateral jerk is a station rate of the lateral acceleration, linear in ``b``, times the
+    speed: along a step the rate's magnitude is at most the largest of some forms in the step's
+    squared speeds (:meth:`SpeedProblem.lateral_rate_forms`) and the speed at most one of its
+    nodes'; at a
+    node the crossed forms (:meth:`SpeedProblem.node_lateral_rate_forms`) go with the node's
+    speed. So ``|form| <= J_lat / v`` at those nodes. ``J_lat / sqrt(b)`` is convex, so its
+    tangent at ``b_lin`` is below it: the constraints are linear and conservative. Stations with
+    a fixed speed use it exactly (none at rest, where the bound cannot bind); forms that are
+    zero (no curvature) are left out.
     """
     import cvxpy as cp
 
     J = problem.limits.max_lateral_jerk_mps3
-    ds = problem.ds
-    kappa = problem.kappa_signed
-    c = problem.time_coef[:frm.size]
     known = np.zeros(b_lin.size, dtype=bool)
     value = np.zeros(b_lin.size)
     for k, val in fixed.items():
         known[k], value[k] = True, val
     r = np.where(known, np.sqrt(value), np.sqrt(np.maximum(b_lin, _B_FLOOR)))
-    slope = np.where(known, 0.0, 0.5 / np.where(known, 1.0, r))
-    centre = np.where(known, 0.0, b_lin)
-    # sqrt(b) <= r + slope (b - centre): the tangent at a free station, r itself at a fixed one
-    s_hat = r[frm] + r[to]
-    s_upper = (s_hat + cp.multiply(slope[frm], b[frm] - centre[frm])
-               + cp.multiply(slope[to], b[to] - centre[to]))
-    allowed = cp.multiply(c * ds * J, 2.0 / s_hat - cp.multiply(1.0 / s_hat ** 2, s_upper))
-    change = cp.multiply(kappa[to], b[to]) - cp.multiply(kappa[frm], b[frm])
-    return [change <= allowed, -change <= allowed]
+    step_forms = problem.lateral_rate_forms()[:frm.size]
+    cross = problem.node_lateral_rate_forms()
+    sets = [((frm, to), step_forms[:, i], speed) for i in range(step_forms.shape[1])
+            for speed in (frm, to)]
+    sets += [((cross.prev, cross.node, cross.next), cross.forms[:, i], cross.node)
+             for i in (0, 1)]
+    cons = []
+    for cols, coef, speed in sets:
+        rows = np.flatnonzero(np.any(coef != 0.0, axis=1)
+                              & (~known[speed] | (value[speed] > 0.0)))
+        if rows.size == 0:
+            continue
+        nd, rn = speed[rows], r[speed[rows]]
+        # J / sqrt(b) >= J / r - J (b - b_lin) / (2 r^3): the tangent at a free station
+        slope = np.where(known[nd], 0.0, J / (2.0 * rn ** 3))
+        allowed = J / rn - cp.multiply(slope, b[nd] - np.where(known[nd], 0.0, b_lin[nd]))
+        rate = sum(cp.multiply(coef[rows, j], b[c[rows]]) for j, c in enumerate(cols))
+        cons += [rate <= allowed, -rate <= allowed]
+    return cons
 
 
 def _jerk_constraints(problem, b, b_lin, nv, frm, to, mean_a, f_first, f_last):

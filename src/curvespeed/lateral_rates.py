@@ -1,0 +1,205 @@
+"""How a lateral jerk bound enters the discrete problem: the rate of the lateral acceleration.
+
+Part of the one definition of the discrete problem (:mod:`curvespeed.problem`, whose module
+docstring states the model). The lateral jerk is ``d(kappa v^2)/dt = g v`` with
+``g = d(kappa v^2)/ds = kappa' b + 2 kappa a`` the *station rate* of the lateral acceleration
+(1/s^2). ``g`` is linear in the squared speeds wherever ``b``, ``a`` and the curvature are,
+which is what keeps the bound convex after the same tangent step the jerk rows use:
+
+* :func:`step_rate_forms`: along every step, ``|g|`` is at most the largest magnitude of a few
+  linear forms in the step's two squared speeds, and the speed at most the larger of its nodes'
+  speeds (:func:`step_lateral_jerk`);
+* :func:`node_rate_forms`: at every node where two steps meet, ``g`` with the road of one step
+  and the acceleration of the other, for both pairings. The acceleration changes at the node;
+  a vehicle cannot switch it exactly there (the jerk bound spreads the change around the node),
+  and a road whose curvature rate changes at the node is driven next to it with either step's
+  acceleration or one between them (``g`` is linear in ``a``).
+
+**The curvature between nodes.** The curvature is known at the nodes only. A road's curvature
+rate changes at its element joints (straight, clothoid, arc), which fall anywhere between
+stations, and the lateral jerk, unlike every other limit, follows that rate. So along a step
+the curvature rate is taken to lie between the lowest and highest chord rate
+``(kappa_j+1 - kappa_j) / ds`` of the step and its two neighbours (at an open end: the step and
+its one neighbour), and to average to the step's own chord rate: where that equals the lowest or
+the highest (to rounding), the rate is that one all along the step (curvature linear between the
+nodes). This
+holds for an alignment of elements at least two station steps long wherever their joints fall:
+a joint inside a step joins the element that covers the step before to the one that covers the
+step after. With the rate in ``[r_lo, r_hi]`` and averaging to ``r``, the curvature departs from
+the line between the nodes' values by at most ``delta = (r_hi - r) (r - r_lo) ds / (r_hi - r_lo)``
+(at most a quarter of ``(r_hi - r_lo) ds``).
+
+Closed forms only; vectorised; no side effects.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+
+@dataclass(frozen=True)
+class NodeRateForms:
+    """The rates at nodes with one step's road and the other step's acceleration.
+
+    At node ``node[i]`` (neighbours ``prev[i]`` and ``next[i]``), ``g`` with the road of the step
+    before and the acceleration of the step after is ``forms[i, 0] @ b[[prev, node, next]]``;
+    with the road after and the acceleration before, ``forms[i, 1] @ ...``. Node indices are
+    over the distinct nodes (a closed route's last node is its first); the ends of an open route
+    have a step on one side only and no form.
+    """
+
+    node: np.ndarray
+    prev: np.ndarray
+    next: np.ndarray
+    forms: np.ndarray
+
+
+def rate_range(kappa, ds, closed: bool) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The range of the curvature rate along each step and how far the curvature may depart
+    from the line between the nodes' values (module docstring): ``(r_lo, r_hi, delta)``.
+
+    ``kappa`` has one value per node (a closed route's last node repeats the first); ``ds`` is
+    one value or one per step. Rates in 1/m^2, ``delta`` in 1/m.
+    """
+    kappa = np.asarray(kappa, dtype=float)
+    rate = np.diff(kappa) / ds
+    if closed:
+        before, after = np.roll(rate, 1), np.roll(rate, -1)
+    else:
+        before = np.concatenate((rate[:1], rate[:-1]))
+        after = np.concatenate((rate[1:], rate[-1:]))
+    lo = np.minimum(np.minimum(before, rate), after)
+    hi = np.maximum(np.maximum(before, rate), after)
+    # else the rate is the chord's all along; rates equal but for rounding (1e-9 of the
+    # largest, where the nodes' curvatures carry 1e-16) count as equal
+    tol = 1e-9 * np.maximum(np.abs(lo), np.abs(hi))
+    inside = (lo < rate - tol) & (rate + tol < hi)
+    lo, hi = np.where(inside, lo, rate), np.where(inside, hi, rate)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        delta = np.where(inside, (hi - rate) * (rate - lo) / np.where(inside, hi - lo, 1.0), 0.0)
+    return lo, hi, delta * ds
+
+
+def step_rate_forms(kappa, ds, closed: bool, accel_factor_start,
+                    accel_factor_end) -> np.ndarray:
+    """Linear forms that bound the station rate of the lateral acceleration along each step.
+
+    Returns ``R``, shape ``(n_steps, 8, 2)``: along step ``k`` (from node ``k`` to ``k+1``,
+    length ``ds``) ``|g| <= max_i |R[k, i] @ (b[k], b[k+1])|``, 1/s^2; forms that would repeat
+    another are zero. With the curvature rate in ``[r_lo, r_hi]`` and the curvature within
+    ``delta`` of the line between the nodes' values (:func:`rate_range`):
+
+    * A constant-acceleration step (both acceleration factors nonzero): wherever the rate is
+      constant, ``b`` and the curvature are linear in station, so ``g`` is linear and lies
+      between its values where the rate changes or the step ends. At a node that is
+      ``r b_j + 2 kappa_j a``; at a change of rate inside the step, a mean of those over the two
+      nodes with the curvature off by at most ``delta``. ``g`` is linear in ``r`` and in the
+      curvature, so the forms ``r b_j + 2 (kappa_j +- delta) a`` for ``r`` in ``r_lo, r_hi`` and
+      ``j`` the first or the last node cover every case (``a = (b[k+1] - b[k]) / (2 ds)``).
+      Curvature linear between the nodes leaves two: ``g`` at the two nodes.
+    * A step next to rest driven with a jerk ramp (the factor at its rest node is 0, the other
+      ``f``, :mod:`curvespeed.rest_step`): along it ``b`` lies in ``[0, b_m]`` (``b_m`` at the
+      moving node) and the acceleration between 0 and ``+-f b_m / (2 ds)`` (``+`` leaving rest),
+      so ``kappa' b`` and ``2 kappa a`` each lie between multiples of ``b_m``: two forms, the
+      sums of their upper and of their lower bounds.
+
+    ``ds`` may be one value or one per step.
+    """
+    kappa = np.asarray(kappa, dtype=float)
+    k0, k1 = kappa[:-1], kappa[1:]
+    ds = np.broadcast_to(np.asarray(ds, dtype=float), k0.shape)
+    r_lo, r_hi, delta = rate_range(kappa, ds, closed)
+    h = 1.0 / ds                                # 2 a = h (b[k+1] - b[k])
+    forms = np.zeros((k0.size, 8, 2))
+    i = 0
+    for r, new_r in ((r_lo, True), (r_hi, r_hi != r_lo)):
+        for dk, new_k in ((delta, True), (-delta, delta != 0.0)):
+            keep = new_r & new_k
+            for kj, node in ((k0, 0), (k1, 1)):
+                c = (kj + dk) * h               # on b[k+1], and minus on b[k]
+                forms[:, i, 0] = np.where(keep, (r if node == 0 else 0.0) - c, 0.0)
+                forms[:, i, 1] = np.where(keep, (r if node == 1 else 0.0) + c, 0.0)
+                i += 1
+    f_start = np.asarray(accel_factor_start, dtype=float)
+    f_end = np.asarray(accel_factor_end, dtype=float)
+    leaving, arriving = f_start == 0.0, f_end == 0.0
+    rest = np.flatnonzero(leaving | arriving)
+    if rest.size:
+        lv = leaving[rest]
+        f = np.where(lv, f_end[rest], f_start[rest])
+        sign = np.where(lv, 1.0, -1.0)          # the acceleration's sign along the step
+        c0 = sign * (np.minimum(k0[rest], k1[rest]) - delta[rest])
+        c1 = sign * (np.maximum(k0[rest], k1[rest]) + delta[rest])
+        fh = f * h[rest]
+        upper = np.maximum(r_hi[rest], 0.0) + fh * np.maximum(np.maximum(c0, c1), 0.0)
+        lower = np.minimum(r_lo[rest], 0.0) + fh * np.minimum(np.minimum(c0, c1), 0.0)
+        moving = np.where(lv, 1, 0)
+        forms[rest] = 0.0
+        forms[rest, 0, moving] = upper
+        forms[rest, 1, moving] = lower
+    return forms
+
+
+def node_rate_forms(kappa, ds: float, closed: bool, accel_factor_start,
+                    accel_factor_end) -> NodeRateForms:
+    """The crossed rates at every node where two steps meet (:class:`NodeRateForms`).
+
+    With the step before's curvature rate ``kappa'_-`` and acceleration at the node
+    ``a_- = f_- (b_k - b_k-1) / (2 ds)``, and the step after's ``kappa'_+`` and
+    ``a_+ = f_+ (b_k+1 - b_k) / (2 ds)`` (``f`` the steps' acceleration factors at the node:
+    1, or the moving node's ``f`` of a step next to rest), the forms are
+    ``kappa'_- b_k + 2 kappa_k a_+`` and ``kappa'_+ b_k + 2 kappa_k a_-``.
+    """
+    kappa = np.asarray(kappa, dtype=float)
+    nv = kappa.size - 1 if closed else kappa.size
+    k = np.arange(nv)
+    if closed:
+        node, prev, nxt = k, (k - 1) % nv, (k + 1) % nv
+    else:
+        node, prev, nxt = k[1:-1], k[:-2], k[2:]
+    before, after = prev, node                  # the steps that meet at the node
+    rate = np.diff(kappa) / ds
+    kk = kappa[node]
+    f_after = np.asarray(accel_factor_start, dtype=float)[after] * kk / ds
+    f_before = np.asarray(accel_factor_end, dtype=float)[before] * kk / ds
+    forms = np.zeros((node.size, 2, 3))
+    forms[:, 0, 1], forms[:, 0, 2] = rate[before] - f_after, f_after
+    forms[:, 1, 0], forms[:, 1, 1] = -f_before, rate[after] + f_before
+    return NodeRateForms(node=node, prev=prev, next=nxt, forms=forms)
+
+
+def _larger(rates: np.ndarray) -> np.ndarray:
+    """Per row, the entry of ``rates`` (shape (m, k)) with the largest magnitude."""
+    pick = np.argmax(np.abs(rates), axis=1)
+    return np.take_along_axis(rates, pick[:, None], axis=1)[:, 0]
+
+
+def step_lateral_jerk(forms: np.ndarray, b) -> np.ndarray:
+    """Bound on ``|d(kappa v^2)/dt|`` along each step, with the sign of the largest form, m/s^3.
+
+    ``forms`` from :func:`step_rate_forms`; ``b`` the squared speeds at the nodes. The rate's
+    magnitude is at most the largest form's, and the speed at most the larger of the nodes'.
+    """
+    b = np.maximum(np.asarray(b, dtype=float), 0.0)
+    rates = forms[:, :, 0] * b[:-1, None] + forms[:, :, 1] * b[1:, None]
+    return _larger(rates) * np.sqrt(np.maximum(b[:-1], b[1:]))
+
+
+def node_lateral_jerk(cross: NodeRateForms, b, closed: bool) -> np.ndarray:
+    """Lateral jerk at each node with the crossed rates (:func:`node_rate_forms`), the larger
+    of the two, signed, m/s^3; 0 where a node has no form. ``b`` has one value per node; on a
+    closed route the last node repeats the first."""
+    b = np.maximum(np.asarray(b, dtype=float), 0.0)
+    cols = np.stack((b[cross.prev], b[cross.node], b[cross.next]), axis=1)
+    rates = np.einsum("mij,mj->mi", cross.forms, cols)
+    out = np.zeros(b.size)
+    out[cross.node] = _larger(rates) * np.sqrt(b[cross.node])
+    if closed:
+        out[-1] = out[0]
+    return out
+
+
+__all__ = ["NodeRateForms", "node_lateral_jerk", "node_rate_forms", "rate_range",
+           "step_lateral_jerk", "step_rate_forms"]
