@@ -257,16 +257,23 @@ def judge_profile(profile, alignment: Alignment, limits: Limits,
         jerk, node = profile_jerk(exact)
         use["jerk"], where["jerk"] = _worst(np.abs(jerk) / limits.max_jerk_mps3,
                                             exact.station_m[node])
-    # A joint on a station row is driven with each side's own acceleration: the road before it
-    # with the step before (its state at its end), the road after it with the step after.
-    a_in = a.copy()
-    at_row = (d <= 0.0) & (k > 0)
-    if at_row.any():
-        before = k[at_row] - 1
-        _, _, a_end = _state_at_distance(exact, before, np.diff(exact.station_m)[before])
-        a_in[at_row] = a_end
-    lat_jerk = np.maximum(np.abs(r_in * v ** 3 + 2.0 * k_in * v * a_in),
-                          np.abs(r_out * v ** 3 + 2.0 * k_out * v * a))
+    # Each sample is driven with its own step's acceleration on the road of its own side (see
+    # road_at_samples). Across a station row a jerk-limited vehicle passes from the step before's
+    # acceleration to the step after's, not by a jump, and the lateral jerk is linear in the
+    # acceleration: so the road at a row is also driven with the neighbouring step's.
+    a_other = a.copy()
+    n_steps = exact.station_m.size - 1
+    start = (d <= 0.0) & (k > 0)
+    if start.any():
+        before = k[start] - 1
+        a_other[start] = _state_at_distance(exact, before,
+                                            np.diff(exact.station_m)[before])[2]
+    end = (d >= np.diff(exact.station_m)[k]) & (k < n_steps - 1)
+    if end.any():
+        a_other[end] = _state_at_distance(exact, k[end] + 1, np.zeros(int(end.sum())))[2]
+    lat_jerk = np.max([np.abs(r * v ** 3 + 2.0 * kap * v * acc)
+                       for kap, r in ((k_in, r_in), (k_out, r_out)) for acc in (a, a_other)],
+                      axis=0)
     peak_lat_jerk, where_lat_jerk = _worst(lat_jerk, s)
     if limits.max_lateral_jerk_mps3 is not None:
         use["lateral_jerk"] = peak_lat_jerk / limits.max_lateral_jerk_mps3
