@@ -11,6 +11,7 @@ import math
 
 import numpy as np
 import pytest
+from helpers import geometry_from_curvature
 
 from curvespeed.errors import InfeasibleError
 from curvespeed.limits import Limits, RouteConstraints, SpeedZone, Stop, Superelevation
@@ -20,8 +21,6 @@ from curvespeed.solvers.convex import ConvexOptions, _batches, solve_convex
 from curvespeed.solvers.envelope import solve_envelope
 from curvespeed.solvers.reference_cvxpy import solve_reference
 from curvespeed.verify import verify_profile
-
-from helpers import geometry_from_curvature
 
 CONVEX_TOL = 1e-4   # QP rows are tightened by 1e-5 of each limit and solved to 1e-9
 
@@ -228,17 +227,17 @@ def test_qp_adapter_reports_clarabel_outcomes_in_our_terms():
     import scipy.sparse as sp
 
     from curvespeed.solvers import SolveStatus
-    from curvespeed.solvers.convex import _solve_qp_clarabel
+    from curvespeed.solvers.clarabel_qp import solve_qp_clarabel
 
     P = sp.identity(2, format="csc")
     q = np.array([-1.0, -1.0])
     A = sp.csr_matrix(np.array([[1.0, 1.0], [1.0, 0.0], [0.0, 1.0]]))
     up = np.array([1.0, np.inf, np.inf])
     # x1 + x2 <= 1 with x1, x2 >= 0: minimum of |x - (1, 1)|^2 at (0.5, 0.5)
-    x, status, _ = _solve_qp_clarabel(P, q, A, np.array([-np.inf, 0.0, 0.0]), up, 1e-8)
+    x, status, _ = solve_qp_clarabel(P, q, A, np.array([-np.inf, 0.0, 0.0]), up, 1e-8)
     assert status is SolveStatus.OPTIMAL and np.allclose(x, 0.5, atol=1e-6)
     # x1 + x2 <= 1 with x1 >= 2, x2 >= 0: no point satisfies all three
-    _, status, _ = _solve_qp_clarabel(P, q, A, np.array([-np.inf, 2.0, 0.0]), up, 1e-8)
+    _, status, _ = solve_qp_clarabel(P, q, A, np.array([-np.inf, 2.0, 0.0]), up, 1e-8)
     assert status is SolveStatus.INFEASIBLE
 
 
