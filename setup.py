@@ -10,5 +10,5 @@ from setuptools import Extension, setup
 
 setup(ext_modules=[Extension("curvespeed.solvers._banded_ipm",
                              ["src/curvespeed/solvers/_banded_ipm.c"],
-                             extra_compile_args=["-O2", "-std=c99"],
+                             extra_compile_args=["-O3", "-std=c99"],
                              optional=True)])

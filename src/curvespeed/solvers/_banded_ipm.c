@@ -2,11 +2,11 @@
  * for  min x'Px/2 + q'x  s.t.  lo <= Ax <= up  when P + A'DA is banded.
  *
  * The Python side (banded_ipm.py) scales the problem, checks every array and chooses the
- * starting point; this file only iterates. Per iteration: one fused pass over the rows forms the
- * residuals, the normal matrix P + A'DA straight into banded storage and the predictor's right
- * side; a banded Cholesky factorisation; one pass for the predictor's step length and
- * complementarity; one pass for the corrector's right side; one for the step length; one to
- * update. Row kinds: 0 no finite side, 1 lower only, 2 upper only, 3 both, 4 equality (held by
+ * starting point; this file only iterates. Per iteration, four passes over the rows: (1) the
+ * previous step's update fused with the residuals, the normal matrix P + A'DA formed straight
+ * into banded storage and the predictor's right side; then one banded Cholesky factorisation;
+ * (2) the predictor's step length and the complementarity it reaches; (3) the corrector's right
+ * side; (4) the combined step's length. Row kinds: 0 no finite side, 1 lower only, 2 upper only, 3 both, 4 equality (held by
  * a regularised multiplier, see EQ_DELTA).
  *
  * Only the Python C API's buffer protocol is used (no numpy headers), so `pip install` builds it
@@ -96,12 +96,24 @@ static inline double row_dot(const problem_t *p, int64_t i, const double *v)
     return a;
 }
 
-/* Corrector complementarity target of one side: s z + ds_aff dz_aff - sigma mu. */
-static inline double target(double s, double z, double ds_aff, double smu)
+/* Corrector complementarity target of one side: s z + ds_aff dz_aff - sigma mu, with
+ * dz_aff = -z - (z/s) ds_aff and Dz = z/s. */
+static inline double target(double s, double z, double Dz, double ds_aff, double smu)
 {
-    double dz_aff = -z - z / s * ds_aff;
-    return s * z + ds_aff * dz_aff - smu;
+    return s * z + ds_aff * (-z - Dz * ds_aff) - smu;
 }
+
+/* Step of the lower side of row i given a = a_i'dx (combined) and a0 = a_i'dx_aff. */
+#define LOWER_STEP(i, a, a0)                                                                  \
+    double rpl = r[i] - sl[i] - lo[i];                                                        \
+    double Dl = zl[i] * isl[i];                                                               \
+    double rcl = target(sl[i], zl[i], Dl, (a0) + rpl, smu);                                   \
+    double dsl = (a) + rpl, dzl = -rcl * isl[i] - Dl * dsl;
+#define UPPER_STEP(i, a, a0)                                                                  \
+    double rpu = r[i] + su[i] - up[i];                                                        \
+    double Du = zu[i] * isu[i];                                                               \
+    double rcu = target(su[i], zu[i], Du, -(a0) - rpu, smu);                                  \
+    double dsu = -(a) - rpu, dzu = -rcu * isu[i] - Du * dsu;
 
 static int ipm(problem_t *p)
 {
@@ -110,10 +122,10 @@ static int ipm(problem_t *p)
     const double *lo = p->lo, *up = p->up, *q = p->q, *Pb = p->Pb;
     double *x = p->x, *sl = p->sl, *su = p->su, *zl = p->zl, *zu = p->zu;
     double *M = malloc(sizeof(double) * (size_t)((kd + 1) * n));
-    double *work = malloc(sizeof(double) * (size_t)(5 * n + 3 * m));
+    double *work = malloc(sizeof(double) * (size_t)(5 * n + 5 * m));
     if (!M || !work) { free(M); free(work); return -1; }
     double *Atz = work, *rhs = work + n, *dx = work + 2 * n, *Px = work + 3 * n;
-    double *r = work + 5 * n, *adx_a = r + m, *adx = adx_a + m;
+    double *r = work + 5 * n, *adx_a = r + m, *adx = adx_a + m, *isl = adx + m, *isu = isl + m;
     double qn = 0.0, bn = 0.0;
     for (int64_t j = 0; j < n; j++) qn = dmax(qn, fabs(q[j]));
     for (int64_t i = 0; i < m; i++) {
@@ -122,9 +134,10 @@ static int ipm(problem_t *p)
     }
     int status = ST_MAX_ITER;
     int64_t it;
-    double min_step = 1.0;
+    double min_step = 1.0, step = 0.0, smu = 0.0;
     for (it = 0; it <= p->max_iter; it++) {
-        /* pass 1: residuals, normal matrix, A'z and the predictor's right side */
+        /* pass 1: the previous step's update of slacks and multipliers (x is updated already),
+         * then residuals, normal matrix, A'z and the predictor's right side */
         memcpy(M, Pb, sizeof(double) * (size_t)((kd + 1) * n));
         memset(Atz, 0, sizeof(double) * (size_t)n);
         memset(rhs, 0, sizeof(double) * (size_t)n);
@@ -133,6 +146,23 @@ static int ipm(problem_t *p)
         for (int64_t i = 0; i < m; i++) {
             int ki = kind[i];
             if (ki == 0) continue;
+            if (it > 0) {
+                double a = adx[i], a0 = adx_a[i];
+                if (ki == 4) {
+                    zl[i] -= step * (a + r[i] - lo[i]) / EQ_DELTA;
+                } else {
+                    if (ki & 1) {
+                        LOWER_STEP(i, a, a0)
+                        sl[i] += step * dsl;
+                        zl[i] += step * dzl;
+                    }
+                    if (ki & 2) {
+                        UPPER_STEP(i, a, a0)
+                        su[i] += step * dsu;
+                        zu[i] += step * dzu;
+                    }
+                }
+            }
             double ri = row_dot(p, i, x);
             r[i] = ri;
             double D = 0.0, w = 0.0, y = 0.0;
@@ -145,16 +175,20 @@ static int ipm(problem_t *p)
                 zn = dmax(zn, fabs(y));
                 blin += lo[i] * y;
             } else {
-                if (ki == 1 || ki == 3) {
-                    double rpl = ri - sl[i] - lo[i], Dl = zl[i] / sl[i];
+                if (ki & 1) {
+                    double is = 1.0 / sl[i];
+                    isl[i] = is;
+                    double rpl = ri - sl[i] - lo[i], Dl = zl[i] * is;
                     rp = dmax(rp, fabs(rpl));
                     D += Dl; w += zl[i] + Dl * rpl; y += zl[i];
                     comp += sl[i] * zl[i]; cnt++;
                     sn = dmax(sn, sl[i]); zn = dmax(zn, zl[i]);
                     blin += lo[i] * zl[i];
                 }
-                if (ki == 2 || ki == 3) {
-                    double rpu = ri + su[i] - up[i], Du = zu[i] / su[i];
+                if (ki & 2) {
+                    double is = 1.0 / su[i];
+                    isu[i] = is;
+                    double rpu = ri + su[i] - up[i], Du = zu[i] * is;
                     rp = dmax(rp, fabs(rpu));
                     D += Du; w += -zu[i] + Du * rpu; y -= zu[i];
                     comp += su[i] * zu[i]; cnt++;
@@ -213,41 +247,32 @@ static int ipm(problem_t *p)
         memcpy(dx, rhs, sizeof(double) * (size_t)n);
         band_solve(M, n, kd, dx);
 
-        /* pass 2: predictor's step length, then the complementarity it would reach */
-        double alpha = 1.0;
+        /* pass 2: predictor's step length, and the sums that give the complementarity it
+         * reaches: sum (s + t ds)(z + t dz) = comp + t sum(s dz + z ds) + t^2 sum(ds dz) */
+        double alpha = 1.0, c1 = 0.0, c2 = 0.0;
         for (int64_t i = 0; i < m; i++) {
             int ki = kind[i];
             if (ki == 0 || ki == 4) continue;
             double a = row_dot(p, i, dx);
             adx_a[i] = a;
-            if (ki == 1 || ki == 3) {
-                double ds = a + (r[i] - sl[i] - lo[i]), dz = -zl[i] - zl[i] / sl[i] * ds;
+            if (ki & 1) {
+                double ds = a + (r[i] - sl[i] - lo[i]), dz = -zl[i] - zl[i] * isl[i] * ds;
                 if (ds < 0.0) alpha = dmin(alpha, -sl[i] / ds);
                 if (dz < 0.0) alpha = dmin(alpha, -zl[i] / dz);
+                c1 += sl[i] * dz + zl[i] * ds;
+                c2 += ds * dz;
             }
-            if (ki == 2 || ki == 3) {
-                double ds = -a - (r[i] + su[i] - up[i]), dz = -zu[i] - zu[i] / su[i] * ds;
+            if (ki & 2) {
+                double ds = -a - (r[i] + su[i] - up[i]), dz = -zu[i] - zu[i] * isu[i] * ds;
                 if (ds < 0.0) alpha = dmin(alpha, -su[i] / ds);
                 if (dz < 0.0) alpha = dmin(alpha, -zu[i] / dz);
+                c1 += su[i] * dz + zu[i] * ds;
+                c2 += ds * dz;
             }
         }
-        double comp_a = 0.0;
-        for (int64_t i = 0; i < m; i++) {
-            int ki = kind[i];
-            if (ki == 0 || ki == 4) continue;
-            double a = adx_a[i];
-            if (ki == 1 || ki == 3) {
-                double ds = a + (r[i] - sl[i] - lo[i]), dz = -zl[i] - zl[i] / sl[i] * ds;
-                comp_a += (sl[i] + alpha * ds) * (zl[i] + alpha * dz);
-            }
-            if (ki == 2 || ki == 3) {
-                double ds = -a - (r[i] + su[i] - up[i]), dz = -zu[i] - zu[i] / su[i] * ds;
-                comp_a += (su[i] + alpha * ds) * (zu[i] + alpha * dz);
-            }
-        }
-        double mu_a = comp_a / (double)(cnt > 0 ? cnt : 1);
-        double sigma = mu > 0.0 ? dmin(1.0, pow(mu_a / mu, 3.0)) : 0.0;
-        double smu = sigma * mu;
+        double mu_a = (comp + alpha * c1 + alpha * alpha * c2) / (double)(cnt > 0 ? cnt : 1);
+        double sigma = mu > 0.0 ? dmin(1.0, pow(dmax(mu_a, 0.0) / mu, 3.0)) : 0.0;
+        smu = sigma * mu;
 
         /* pass 3: corrector's right side */
         for (int64_t j = 0; j < n; j++) rhs[j] = -(Px[j] + q[j] - Atz[j]);
@@ -259,13 +284,13 @@ static int ipm(problem_t *p)
                 w = (r[i] - lo[i]) / EQ_DELTA;
             } else {
                 double a = adx_a[i];
-                if (ki == 1 || ki == 3) {
-                    double rpl = r[i] - sl[i] - lo[i];
-                    w += target(sl[i], zl[i], a + rpl, smu) / sl[i] + zl[i] / sl[i] * rpl;
+                if (ki & 1) {
+                    double rpl = r[i] - sl[i] - lo[i], Dl = zl[i] * isl[i];
+                    w += target(sl[i], zl[i], Dl, a + rpl, smu) * isl[i] + Dl * rpl;
                 }
-                if (ki == 2 || ki == 3) {
-                    double rpu = r[i] + su[i] - up[i];
-                    w += -target(su[i], zu[i], -a - rpu, smu) / su[i] + zu[i] / su[i] * rpu;
+                if (ki & 2) {
+                    double rpu = r[i] + su[i] - up[i], Du = zu[i] * isu[i];
+                    w += -target(su[i], zu[i], Du, -a - rpu, smu) * isu[i] + Du * rpu;
                 }
             }
             for (int64_t k = p->indptr[i]; k < p->indptr[i + 1]; k++)
@@ -275,7 +300,7 @@ static int ipm(problem_t *p)
         band_solve(M, n, kd, dx);
 
         /* pass 4: the combined step's length (one length for primal and dual: the dual
-         * residual P x + q - A'z involves both) */
+         * residual P x + q - A'z involves both); the update itself is the start of pass 1 */
         alpha = 1.0;
         for (int64_t i = 0; i < m; i++) {
             int ki = kind[i];
@@ -283,46 +308,20 @@ static int ipm(problem_t *p)
             double a = row_dot(p, i, dx);
             adx[i] = a;
             if (ki == 4) continue;
-            if (ki == 1 || ki == 3) {
-                double rpl = r[i] - sl[i] - lo[i];
-                double rc = target(sl[i], zl[i], adx_a[i] + rpl, smu);
-                double ds = a + rpl, dz = (-rc - zl[i] * ds) / sl[i];
-                if (ds < 0.0) alpha = dmin(alpha, -sl[i] / ds);
-                if (dz < 0.0) alpha = dmin(alpha, -zl[i] / dz);
+            if (ki & 1) {
+                LOWER_STEP(i, a, adx_a[i])
+                if (dsl < 0.0) alpha = dmin(alpha, -sl[i] / dsl);
+                if (dzl < 0.0) alpha = dmin(alpha, -zl[i] / dzl);
             }
-            if (ki == 2 || ki == 3) {
-                double rpu = r[i] + su[i] - up[i];
-                double rc = target(su[i], zu[i], -adx_a[i] - rpu, smu);
-                double ds = -a - rpu, dz = (-rc - zu[i] * ds) / su[i];
-                if (ds < 0.0) alpha = dmin(alpha, -su[i] / ds);
-                if (dz < 0.0) alpha = dmin(alpha, -zu[i] / dz);
+            if (ki & 2) {
+                UPPER_STEP(i, a, adx_a[i])
+                if (dsu < 0.0) alpha = dmin(alpha, -su[i] / dsu);
+                if (dzu < 0.0) alpha = dmin(alpha, -zu[i] / dzu);
             }
         }
-        double step = 0.99 * alpha;
+        step = 0.99 * alpha;
         min_step = dmin(min_step, step);
         if (!(step >= 1e-10)) { status = ST_NUMERICAL; break; }
-
-        /* pass 5: update */
-        for (int64_t i = 0; i < m; i++) {
-            int ki = kind[i];
-            if (ki == 0) continue;
-            double a = adx[i];
-            if (ki == 4) { zl[i] -= step * (a + r[i] - lo[i]) / EQ_DELTA; continue; }
-            if (ki == 1 || ki == 3) {
-                double rpl = r[i] - sl[i] - lo[i];
-                double rc = target(sl[i], zl[i], adx_a[i] + rpl, smu);
-                double ds = a + rpl, dz = (-rc - zl[i] * ds) / sl[i];
-                sl[i] += step * ds;
-                zl[i] += step * dz;
-            }
-            if (ki == 2 || ki == 3) {
-                double rpu = r[i] + su[i] - up[i];
-                double rc = target(su[i], zu[i], -adx_a[i] - rpu, smu);
-                double ds = -a - rpu, dz = (-rc - zu[i] * ds) / su[i];
-                su[i] += step * ds;
-                zu[i] += step * dz;
-            }
-        }
         for (int64_t j = 0; j < n; j++) x[j] += step * dx[j];
     }
     p->info[4] = (double)it;
