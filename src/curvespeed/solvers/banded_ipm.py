@@ -186,8 +186,9 @@ def _judge(code: int, qp: _Banded, x, zl, zu, eps: float, info) -> SolveStatus:
     Aty = qp.A.T @ y
     if code == 3:
         # certificate: lo'z_lo - up'z_up > 0 with A'y ~ 0 (row scaling leaves the ratio as is)
-        lo_part = np.where((qp.kind == 1) | (qp.kind >= 3), qp.lo * zl, 0.0)
-        up_part = np.where((qp.kind == 2) | (qp.kind == 3), qp.up * zu, 0.0)
+        with np.errstate(invalid="ignore"):         # an infinite side times its zero multiplier
+            lo_part = np.where((qp.kind == 1) | (qp.kind >= 3), qp.lo * zl, 0.0)
+            up_part = np.where((qp.kind == 2) | (qp.kind == 3), qp.up * zu, 0.0)
         margin = float(np.sum(lo_part) - np.sum(up_part))
         if margin > 0 and float(np.max(np.abs(Aty), initial=0.0)) <= 1e-8 * margin:
             return SolveStatus.INFEASIBLE
