@@ -71,7 +71,7 @@ def solve_qp_banded(P, q, A, lo, up, eps, centre=None, scale=None, refine=True, 
                          qp.q, x, sl, su, zl, zu, float(eps),
                          float(eps if gap_abs is None else gap_abs), MAX_ITERATIONS, info)
     iterations = int(info[4])
-    status = _judge(code, qp, x, zl, zu, eps, info)
+    status = _judge(code, qp, x, zl, zu, eps, float(eps if gap_abs is None else gap_abs), info)
     x = x[qp.inverse] if qp.inverse is not None else x
     if centre is not None:
         x = centre + scale * x
@@ -177,19 +177,19 @@ def _start(qp: _Banded):
     return x, sl, su, zl, zu
 
 
-def _judge(code: int, qp: _Banded, x, zl, zu, eps: float, info) -> SolveStatus:
-    """Map the kernel's outcome to ours, checking its claim on the rows and objective here."""
+def _judge(code: int, qp: _Banded, x, zl, zu, eps: float, gap_abs: float, info) -> SolveStatus:
+    """Map the kernel's outcome to ours, checking its claim (residuals, duality gap) here."""
     if not np.all(np.isfinite(x)):
         return SolveStatus.FAILED
     eq = qp.kind == 4
     y = np.where(eq, zl, np.where(qp.kind == 0, 0.0, zl - zu))
     Aty = qp.A.T @ y
+    with np.errstate(invalid="ignore"):             # an infinite side times its zero multiplier
+        lo_part = np.where((qp.kind == 1) | (qp.kind >= 3), qp.lo * zl, 0.0)
+        up_part = np.where((qp.kind == 2) | (qp.kind == 3), qp.up * zu, 0.0)
+    margin = float(np.sum(lo_part) - np.sum(up_part))      # lo'z_lo - up'z_up
     if code == 3:
         # certificate: lo'z_lo - up'z_up > 0 with A'y ~ 0 (row scaling leaves the ratio as is)
-        with np.errstate(invalid="ignore"):         # an infinite side times its zero multiplier
-            lo_part = np.where((qp.kind == 1) | (qp.kind >= 3), qp.lo * zl, 0.0)
-            up_part = np.where((qp.kind == 2) | (qp.kind == 3), qp.up * zu, 0.0)
-        margin = float(np.sum(lo_part) - np.sum(up_part))
         if margin > 0 and float(np.max(np.abs(Aty), initial=0.0)) <= 1e-8 * margin:
             return SolveStatus.INFEASIBLE
         return SolveStatus.FAILED
@@ -198,10 +198,16 @@ def _judge(code: int, qp: _Banded, x, zl, zu, eps: float, info) -> SolveStatus:
     r = qp.A @ x
     # an empty row's sides are checked too (0 must lie between them)
     viol = np.maximum(np.nan_to_num(qp.lo - r, neginf=0.0), np.nan_to_num(r - qp.up, neginf=0.0))
-    dual = qp.P @ x + qp.q - Aty
+    Px = qp.P @ x
+    dual = Px + qp.q - Aty
+    xPx = float(x @ Px)
+    primal_obj = 0.5 * xPx + float(qp.q @ x)
+    dual_obj = -0.5 * xPx + margin
+    gap = abs(primal_obj - dual_obj)
     # the kernel's scales (info[6], info[7]) are max(1, |b| + |x| + |s|) and
     # max(1, |q| + |Px| + |A'z|): the same tests Clarabel applies to its residuals
     if (float(np.max(viol, initial=0.0)) <= eps * info[6]
-            and float(np.max(np.abs(dual), initial=0.0)) <= eps * info[7]):
+            and float(np.max(np.abs(dual), initial=0.0)) <= eps * info[7]
+            and (gap <= gap_abs or gap <= eps * max(1.0, min(abs(primal_obj), abs(dual_obj))))):
         return SolveStatus.OPTIMAL
     return SolveStatus.FAILED
