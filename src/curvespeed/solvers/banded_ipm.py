@@ -82,77 +82,93 @@ class _Banded:
     """The QP as the kernel takes it: scaled, rows at unit largest coefficient, P in band
     storage, columns possibly reordered (``inverse`` maps back)."""
 
-    __slots__ = ("kd", "indptr", "indices", "data", "lo", "up", "kind", "Pb", "q", "A", "P",
+    __slots__ = ("kd", "indptr", "indices", "data", "lo", "up", "kind", "Pb", "q", "A",
                  "inverse")
 
 
-def _bandwidth(P, A) -> int:
-    Pc = P.tocoo()
-    kp = int(np.max(np.abs(Pc.row - Pc.col))) if Pc.nnz else 0
-    has = np.diff(A.indptr) > 0
+def _bandwidth(prow, pcol, indptr, indices) -> int:
+    kp = int(np.max(np.abs(prow - pcol))) if prow.size else 0
+    has = np.diff(indptr) > 0
     if not has.any():
         return kp
-    first = A.indices[A.indptr[:-1][has]]
-    last = A.indices[A.indptr[1:][has] - 1]
+    first = indices[indptr[:-1][has]]
+    last = indices[indptr[1:][has] - 1]
     return max(kp, int(np.max(last - first)))
 
 
 def _prepare(P, q, A, lo, up, centre, scale):
-    P = sp.csr_matrix(P, dtype=float)
+    """Scale, check the band, reorder if needed, scale the rows; on the arrays of the sparse
+    matrices (scipy's products cost more than the solve on a small QP)."""
     A = sp.csr_matrix(A, dtype=float)
+    if not A.has_canonical_format:      # sorted columns in each row, no duplicates
+        A = A.copy()
+        A.sum_duplicates()
+    Pc = sp.coo_matrix(P, dtype=float)
+    prow, pcol, pval = Pc.row, Pc.col, Pc.data
+    data = A.data
     q = np.asarray(q, dtype=float)
     lo = np.asarray(lo, dtype=float)
     up = np.asarray(up, dtype=float)
-    if centre is not None:
-        D = sp.diags(scale)
+    if centre is not None:              # y = (x - centre) / scale, as solve_qp_clarabel does
         q = scale * (q + P @ centre)
         shift = A @ centre
         lo, up = lo - shift, up - shift
-        P = (D @ P @ D).tocsr()
-        A = (A @ D).tocsr()
-    A.sum_duplicates()
-    A.sort_indices()
+        pval = pval * scale[prow] * scale[pcol]
+        data = data * scale[A.indices]
+    n, m = Pc.shape[0], A.shape[0]
+    indptr, indices = A.indptr, A.indices
     inverse = None
-    kd = _bandwidth(P, A)
+    kd = _bandwidth(prow, pcol, indptr, indices)
     if kd > MAX_BANDWIDTH:              # e.g. a closed loop: its rows wrap from the last
         from scipy.sparse.csgraph import reverse_cuthill_mckee       # station to the first
 
-        pattern = (abs(A).T @ abs(A) + abs(P)).tocsr()
-        perm = reverse_cuthill_mckee(pattern, symmetric_mode=True)
-        P = P[perm][:, perm].tocsr()
-        A = A[:, perm].tocsr()
-        A.sort_indices()
+        As = sp.csr_matrix((data, indices, indptr), shape=(m, n))
+        Ps = sp.csr_matrix((pval, (prow, pcol)), shape=(n, n))
+        perm = reverse_cuthill_mckee((abs(As).T @ abs(As) + abs(Ps)).tocsr(),
+                                     symmetric_mode=True)
+        Ps = Ps[perm][:, perm].tocoo()
+        As = As[:, perm].tocsr()
+        As.sort_indices()
+        prow, pcol, pval = Ps.row, Ps.col, Ps.data
+        indptr, indices, data = As.indptr, As.indices, As.data
         q = q[perm]
         inverse = np.argsort(perm)
-        kd = _bandwidth(P, A)
+        kd = _bandwidth(prow, pcol, indptr, indices)
         if kd > MAX_BANDWIDTH:
             return None
-    n, m = P.shape[0], A.shape[0]
-    counts = np.diff(A.indptr)
+    counts = np.diff(indptr)
     has = counts > 0
     norm = np.ones(m)
     if has.any():
-        norm[has] = np.maximum.reduceat(np.abs(A.data), A.indptr[:-1][has])
+        norm[has] = np.maximum.reduceat(np.abs(data), indptr[:-1][has])
     norm[norm == 0.0] = 1.0
     b = _Banded()
     b.kd = kd
-    b.indptr = A.indptr.astype(np.int64)
-    b.indices = A.indices.astype(np.int64)
-    b.data = A.data / np.repeat(norm, counts)
+    b.indptr = indptr.astype(np.int64)
+    b.indices = indices.astype(np.int64)
+    b.data = data / np.repeat(norm, counts)
     b.lo, b.up = lo / norm, up / norm
     finite_lo, finite_up = np.isfinite(b.lo), np.isfinite(b.up)
     kind = np.where(finite_lo & finite_up, 3, np.where(finite_lo, 1, np.where(finite_up, 2, 0)))
     kind[finite_lo & finite_up & (b.lo == b.up)] = 4
     kind[~has] = 0                      # an empty row: judged below, never iterated on
     b.kind = kind.astype(np.int8)
-    lower = sp.tril(P).tocoo()
+    lower = prow >= pcol
     b.Pb = np.zeros((kd + 1, n))
-    np.add.at(b.Pb, (lower.row - lower.col, lower.col), lower.data)
+    np.add.at(b.Pb, (prow[lower] - pcol[lower], pcol[lower]), pval[lower])
     b.q = q
     b.A = sp.csr_matrix((b.data, b.indices, b.indptr), shape=(m, n))
-    b.P = P
     b.inverse = inverse
     return b
+
+
+def _band_times(Pb, x):
+    """P x for symmetric P in lower band storage (``Pb[d, j] = P[j + d, j]``)."""
+    out = Pb[0] * x
+    for d in range(1, Pb.shape[0]):
+        out[d:] += Pb[d, :-d] * x[:-d]
+        out[:-d] += Pb[d, :-d] * x[d:]
+    return out
 
 
 def _start(qp: _Banded):
@@ -198,7 +214,7 @@ def _judge(code: int, qp: _Banded, x, zl, zu, eps: float, gap_abs: float, info) 
     r = qp.A @ x
     # an empty row's sides are checked too (0 must lie between them)
     viol = np.maximum(np.nan_to_num(qp.lo - r, neginf=0.0), np.nan_to_num(r - qp.up, neginf=0.0))
-    Px = qp.P @ x
+    Px = _band_times(qp.Pb, x)
     dual = Px + qp.q - Aty
     xPx = float(x @ Px)
     primal_obj = 0.5 * xPx + float(qp.q @ x)
