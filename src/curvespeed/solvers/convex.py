@@ -262,12 +262,22 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
             # part of its answer is that block's own optimum, while the fixed cost of a solver
             # call is paid once per batch rather than once per block. The batches follow from
             # the blocks' sizes alone, so every thread count solves the very same QPs; the worker
-            # threads share them out (Clarabel releases the interpreter lock while it solves).
+            # threads share them out (both QP backends release the interpreter lock while they
+            # solve).
             gap_abs = options.qp_gap_fraction * t_total * qp["scale"]
             jobs = []
-            for batch in _batches(np.flatnonzero(active), blocks):
+            batches = _batches(np.flatnonzero(active), blocks)
+            # each batch's rows, in their order, from one stable sort by batch (a search of
+            # every row per batch grew with the square of the route's length)
+            batch_of = np.full(len(blocks), -1)
+            for j, batch in enumerate(batches):
+                batch_of[batch] = j
+            row_batch = batch_of[row_block]
+            by_batch = np.argsort(row_batch, kind="stable")
+            cuts = np.searchsorted(row_batch[by_batch], np.arange(len(batches) + 1))
+            for j, batch in enumerate(batches):
                 cols = np.concatenate([blocks[k] for k in batch])
-                rows = np.flatnonzero(np.isin(row_block, batch))
+                rows = by_batch[cuts[j]:cuts[j + 1]]
                 sub = (P[cols][:, cols], qp["q"][cols], A[rows][:, cols], qp["lo"][rows],
                        qp["up"][rows])
                 glob = free_idx[cols]
