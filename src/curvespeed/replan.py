@@ -1,0 +1,302 @@
+"""Receding-horizon replanning: the profile of the next stretch from the vehicle's own state.
+
+A simulator or a vehicle in the loop calls :meth:`Replanner.replan` with where the vehicle is,
+how fast it goes and how it accelerates; the answer is the fastest profile over the next
+``horizon_m`` metres (a *window*) within the same limits as a whole-route plan. Everything
+route-wide is computed once, in the constructor: the discrete problem of the whole route
+(:func:`curvespeed.problem.build_problem`), the speed ceiling of every station and the
+route's braking envelope. A window only slices them and solves its own small problem with the
+same solver entry point as a whole-route plan (:func:`curvespeed.solvers.convex.solve_convex`,
+which hands its QPs to the configured backend).
+
+How a window is posed (:mod:`curvespeed.replan_window` builds it):
+
+* **Start.** The vehicle is placed on the station nearest to it, its squared speed carried there
+  at its acceleration (``v^2 + 2 a (s_k - s)``, exact for uniform acceleration over at most half
+  a station step). The jerk at that station is the change from the vehicle's acceleration to
+  the first step's (:attr:`curvespeed.problem.SpeedProblem.accel_start_mps2`), so a window
+  never asks for a jump in acceleration. A stop at the vehicle's own station counts as reached
+  when the vehicle stands there and as passed when it moves.
+* **End.** Unless the window reaches the end of an open route, its last speed is free but at
+  most the route's braking envelope (the backward pass of the forward-backward method over the
+  whole route's ceilings, :func:`curvespeed.solvers.envelope.brake_reach`) taken at the
+  stations the vehicle covers while a jerk-limited braking builds up (``v D / J`` metres at
+  speed ``v``, deceleration cap ``D``, jerk bound ``J``). Like the end of an open route, the
+  window's end is steady (its acceleration is taken back to zero within the jerk bound), so
+  from there the vehicle can ramp into braking and then brake down to every ceiling beyond:
+  a window never commits to a speed the route beyond it cannot absorb. The lateral jerk bound,
+  where set, is honoured inside the window but not in this end bound.
+* **Inside.** Speed zones, stops, superelevation, grade, every limit and the jerk bounds hold as
+  in a whole-route plan, and the window's answer is checked by the verifier
+  (:func:`curvespeed.verify.verify_profile`) before it is returned.
+* **Loops.** On a closed route the window runs on across the seam (stations start again at 0);
+  on an open route it is cut at the route's end, whose end speed it keeps.
+
+States the limits cannot continue (faster than a curve, a zone or a stop ahead allows even
+with full braking, or an acceleration the jerk bound cannot take back in time) raise
+:class:`~curvespeed.errors.InfeasibleError` naming the station and the cause: the planner does
+not plan beyond its limits, so slowing down harder is for the vehicle's own safety functions.
+
+Warm start: each window's SCP starts from the previous window's answer, shifted to the new
+stations (the QP backend itself, Clarabel today, takes no warm start). A fresh Replanner per
+run keeps runs independent.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import InfeasibleError, ReplanError, SolverError
+from .geometry import Geometry
+from .limits import Limits, RouteConstraints, validate_limits
+from .problem import SpeedProblem
+from .solvers import SolveResult, SolveStatus
+
+__all__ = ["Replanner", "WindowProfile"]
+
+
+@dataclass(frozen=True)
+class WindowProfile:
+    """The profile of one window, from the vehicle's station onward.
+
+    Attributes
+    ----------
+    station_m : ndarray
+        Route station of each node, metres (on a loop they start again at 0 after the seam).
+    distance_m : ndarray
+        Distance along the window from its first node, metres (increasing).
+    speed_mps : ndarray
+        Planned speed at each node, m/s.
+    accel_mps2 : ndarray
+        Acceleration at each node, m/s^2 (mean of the steps meeting there, as in a
+        :class:`~curvespeed.profile.Profile`; the first step's at the first node).
+    time_s : ndarray
+        Time from the first node, s.
+    start_station_m : float
+        The vehicle's station as given (the first node is the station nearest to it), m.
+    end_speed_bound_mps : float
+        The most the window's last node may have (the braking bound, or the route's end speed).
+    status : SolveStatus
+        The solver's outcome (optimal, or optimal to a looser tolerance).
+    solver : str
+        The solver that produced it ("convex", or "envelope" without a jerk bound).
+    iterations, qp_iterations : int
+        Sequential-convex iterations and interior-point iterations summed over them.
+    solve_time_s : float
+        Wall time of :meth:`Replanner.replan`, s.
+    warm_started : bool
+        Whether the previous window's answer was the starting point.
+    problem : SpeedProblem
+        The window's discrete problem (for checks: :func:`curvespeed.verify.verify_profile`).
+    """
+
+    station_m: np.ndarray
+    distance_m: np.ndarray
+    speed_mps: np.ndarray
+    accel_mps2: np.ndarray
+    time_s: np.ndarray
+    start_station_m: float
+    end_speed_bound_mps: float
+    status: SolveStatus
+    solver: str
+    iterations: int
+    qp_iterations: int
+    solve_time_s: float
+    warm_started: bool
+    problem: SpeedProblem
+
+
+class Replanner:
+    """Receding-horizon planner along one route (module docstring).
+
+    Parameters
+    ----------
+    geometry : Geometry
+        The route (:func:`curvespeed.geometry.build_geometry`).
+    limits : Limits
+        Vehicle limits; validated here, with a warning where they look implausible.
+    constraints : RouteConstraints
+        Zones, stops, superelevation, end speeds (the start speed is the vehicle's, per call).
+    horizon_m : float
+        Length of each window, metres (cut at the end of an open route, at most one lap).
+    options : ConvexOptions, optional
+        Settings of the convex solver (default: its defaults, on one thread: a window is one QP).
+    warn_limits : bool
+        False skips the limits' warnings, for a caller that gave them already.
+
+    Raises
+    ------
+    ReplanError
+        A horizon that is not a positive number of at least two station steps.
+    LimitsError, InfeasibleError
+        As :func:`curvespeed.planner.plan_profile` would for the same route and limits.
+    """
+
+    def __init__(self, geometry: Geometry, limits: Limits,
+                 constraints: RouteConstraints = RouteConstraints(), horizon_m: float = 300.0,
+                 options=None, warn_limits: bool = True):
+        from .replan_window import RouteTables
+        from .solvers.convex import ConvexOptions
+
+        validate_limits(limits, "limits", warn=warn_limits)
+        ds = float(geometry.spacing_m)
+        if not _is_number(horizon_m) or not horizon_m >= 2.0 * ds:
+            raise ReplanError(f"horizon_m must be a number of at least two station steps "
+                              f"({2.0 * ds:g} m on this route), got {horizon_m!r}")
+        self.geometry = geometry
+        self.limits = limits
+        self.constraints = constraints
+        self.horizon_m = float(horizon_m)
+        self.options = options if options is not None else ConvexOptions(threads=1)
+        self._tables = RouteTables(geometry, limits, constraints)
+        self._jerk = (limits.max_jerk_mps3 is not None
+                      or limits.max_lateral_jerk_mps3 is not None)
+        if self._jerk:
+            self._tables.set_route_plan(self._route_plan())
+        self._previous = None       # (first node index, squared speeds) of the last window
+
+    def _route_plan(self) -> np.ndarray:
+        """The whole route's jerk-bounded plan (squared speeds), once: each window's starting
+        point where the previous window does not reach."""
+        from dataclasses import replace
+
+        from .solvers.convex import solve_convex
+
+        whole = self._tables.whole
+        return solve_convex(whole, replace(self.options, threads=None)).b
+
+    def reset(self) -> None:
+        """Forget the previous window (the next call starts cold, as after a jump)."""
+        self._previous = None
+
+    def replan(self, station_m: float, speed_mps: float, accel_mps2: float = 0.0
+               ) -> WindowProfile:
+        """The window's profile from the vehicle's state (module docstring).
+
+        Parameters
+        ----------
+        station_m : float
+            The vehicle's route station, metres (on a loop any station, taken modulo the lap).
+        speed_mps : float
+            Its speed, m/s (zero or positive).
+        accel_mps2 : float
+            Its acceleration along the path, m/s^2.
+
+        Raises
+        ------
+        ReplanError
+            A state that is not finite, a negative speed, a station off an open route or at its
+            very end.
+        InfeasibleError
+            A state the limits cannot continue (module docstring), with the cause.
+        SolverError
+            The solver failed, or the verifier refused its answer (a defect: please report it).
+        """
+        t0 = time.perf_counter()
+        s, v, a = self._check_state(station_m, speed_mps, accel_mps2)
+        tables = self._tables
+        k0, b0 = tables.snap(s, v, a)
+        window = tables.window(k0, b0, a, self.horizon_m)
+        env = tables.envelope(window)
+        warmed = False
+        if self._jerk:
+            warm, warmed = self._warm_start(window)
+            b, result = self._solve(window, env, warm, warmed)
+        else:
+            b, result = env.b, env
+        self._check(window, b)
+        self._previous = (k0, b)
+        return self._profile(window, b, result, s, warmed, time.perf_counter() - t0)
+
+    # -- steps of replan -----------------------------------------------------------------------
+    def _check_state(self, station_m, speed_mps, accel_mps2):
+        values = {"station_m": station_m, "speed_mps": speed_mps, "accel_mps2": accel_mps2}
+        for name, value in values.items():
+            if not _is_number(value) or not math.isfinite(value):
+                raise ReplanError(f"replan: {name} must be a finite number, got {value!r}; "
+                                  "pass the vehicle's state in SI units")
+        s, v, a = float(station_m), float(speed_mps), float(accel_mps2)
+        if v < 0.0:
+            raise ReplanError(f"replan: speed_mps must be zero or positive, got {v:g} m/s; the "
+                              "planner moves forward along the route's stations only")
+        geo = self.geometry
+        if geo.closed:
+            return s % geo.length_m, v, a
+        from .limits import END_TOLERANCE_M
+
+        last = geo.length_m - 2.0 * geo.spacing_m
+        if not -END_TOLERANCE_M <= s <= geo.length_m + END_TOLERANCE_M:
+            raise ReplanError(f"replan: station {s:g} m lies outside the route "
+                              f"(0..{geo.length_m:.2f} m, open); check the vehicle's "
+                              "station against the route")
+        if s > last + 0.5 * geo.spacing_m:
+            raise ReplanError(f"replan: station {s:g} m is within two station steps of the "
+                              f"route's end ({geo.length_m:.2f} m): there is nothing left to "
+                              "plan; stop replanning at the end of the route")
+        return min(max(s, 0.0), geo.length_m), v, a
+
+    def _warm_start(self, window):
+        """Where the window's SCP starts: the previous window's squared speeds moved to its
+        nodes, and the whole route's plan beyond them (or everywhere, on the first call)."""
+        route = self._tables.route_b
+        if route is None:
+            return None, False
+        warm = route[window.idx].copy()
+        if self._previous is None:
+            return warm, False
+        k_prev, b_prev = self._previous
+        shift = int(window.idx[0]) - k_prev
+        if self.geometry.closed:
+            shift %= self._tables.nv
+        if not 0 <= shift < b_prev.size:
+            return warm, False
+        kept = min(b_prev.size - shift, warm.size)
+        warm[:kept] = b_prev[shift:shift + kept]
+        return warm, True
+
+    def _solve(self, window, env: SolveResult, warm, warmed: bool):
+        """The window's jerk-bounded profile, from the warm start; from the whole route's plan
+        if the previous window's answer leaves the first QP no way forward."""
+        from .solvers.convex import solve_convex
+
+        try:
+            result = solve_convex(window.problem, self.options, envelope=env, warm_start=warm)
+        except InfeasibleError as exc:
+            if not warmed:
+                raise InfeasibleError(self._tables.explain_stuck(window, exc)) from None
+            return self._solve(window, env, self._tables.route_b[window.idx], False)
+        return result.b, result
+
+    def _check(self, window, b) -> None:
+        from .planner import CONVEX_TOLERANCE
+        from .verify import DEFAULT_TOLERANCE, verify_profile
+
+        tolerance = CONVEX_TOLERANCE if self._jerk else DEFAULT_TOLERANCE
+        check = verify_profile(window.problem, b, tolerance, check_jerk=self._jerk)
+        if not check.ok:
+            worst = "; ".join(v.describe() for v in check.violations)
+            raise SolverError(f"replan: the window's profile breaks its limits: {worst}. This "
+                              "is a defect; please report it with the route, the limits and "
+                              "the vehicle's state")
+
+    def _profile(self, window, b, result: SolveResult, s: float, warm: bool,
+                 elapsed: float) -> WindowProfile:
+        from .profile import derive
+
+        d = derive(window.problem, b)
+        n = window.idx.size
+        return WindowProfile(
+            station_m=self._tables.station_m[window.idx], distance_m=np.arange(n) * window.ds,
+            speed_mps=d["speed_mps"], accel_mps2=d["accel_mps2"], time_s=d["time_s"],
+            start_station_m=s, end_speed_bound_mps=math.sqrt(window.end_bound_b),
+            status=result.status, solver=result.solver, iterations=result.iterations,
+            qp_iterations=result.inner_iterations, solve_time_s=elapsed, warm_started=warm,
+            problem=window.problem)
+
+
+def _is_number(value) -> bool:
+    return isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, bool)
