@@ -156,6 +156,10 @@ class SpeedProblem:
         before the route) for a whole route; a receding-horizon window starts from the
         vehicle's measured acceleration (:mod:`curvespeed.replan`). The jerk at the first node
         is the change from it to the first step's acceleration.
+    accel_start_tolerance_mps2 : float
+        How far the acceleration before the first node may lie from ``accel_start_mps2``,
+        m/s^2 (the accuracy of a measured one): the first node's jerk is the change from the
+        nearest value within it (0 for a whole route).
     end_reserve : tuple of float or None
         ``(brake_b, reach_m, decel_mps2)`` for an open problem with a free end (a window): its
         last node's squared speed and acceleration (the last step's there) must leave room to
@@ -187,6 +191,7 @@ class SpeedProblem:
     jerk_terms: JerkTimeTerms
     stops: tuple = ()
     accel_start_mps2: float = 0.0
+    accel_start_tolerance_mps2: float = 0.0
     end_reserve: tuple | None = None
 
     @property

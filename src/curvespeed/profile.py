@@ -137,7 +137,9 @@ def derive(problem: SpeedProblem, b: np.ndarray) -> dict[str, np.ndarray]:
         a_before = np.concatenate(([a_last[-1]], a_last))
         a_after = np.concatenate((a_first, [a_first[0]]))
     else:
-        a_before = np.concatenate(([problem.accel_start_mps2], a_last))
+        a0, tol = problem.accel_start_mps2, problem.accel_start_tolerance_mps2
+        a_start = min(max(a_first[0], a0 - tol), a0 + tol)
+        a_before = np.concatenate(([a_start], a_last))
         # a free window end keeps its acceleration beyond (its braking reserve bounds it)
         a_out = a_last[-1] if problem.end_reserve is not None else 0.0
         a_after = np.concatenate((a_first, [a_out]))

@@ -125,6 +125,11 @@ class Replanner:
         Length of each window, metres (cut at the end of an open route, at most one lap).
     options : ConvexOptions, optional
         Settings of the convex solver (default: its defaults, on one thread: a window is one QP).
+    accel_tolerance_mps2 : float
+        Accuracy of the acceleration passed to :meth:`replan`, m/s^2: the first node's jerk is
+        counted from the nearest value within it. A little above 0 lets a state that rides the
+        jerk bound exactly (as a whole-route plan does into a speed cap) be continued within the
+        QP's tightened rows; set it to the accuracy of a measured acceleration.
     warn_limits : bool
         False skips the limits' warnings, for a caller that gave them already.
 
@@ -138,7 +143,7 @@ class Replanner:
 
     def __init__(self, geometry: Geometry, limits: Limits,
                  constraints: RouteConstraints = RouteConstraints(), horizon_m: float = 300.0,
-                 options=None, warn_limits: bool = True):
+                 options=None, accel_tolerance_mps2: float = 0.01, warn_limits: bool = True):
         from .replan_window import RouteTables
         from .solvers.convex import ConvexOptions
 
@@ -147,6 +152,10 @@ class Replanner:
         if not _is_number(horizon_m) or not horizon_m >= 2.0 * ds:
             raise ReplanError(f"horizon_m must be a number of at least two station steps "
                               f"({2.0 * ds:g} m on this route), got {horizon_m!r}")
+        if not _is_number(accel_tolerance_mps2) or not 0.0 <= accel_tolerance_mps2 < math.inf:
+            raise ReplanError(f"accel_tolerance_mps2 must be a finite number, zero or more, got "
+                              f"{accel_tolerance_mps2!r}")
+        self.accel_tolerance_mps2 = float(accel_tolerance_mps2)
         self.geometry = geometry
         self.limits = limits
         self.constraints = constraints
@@ -200,7 +209,7 @@ class Replanner:
         s, v, a = self._check_state(station_m, speed_mps, accel_mps2)
         tables = self._tables
         k0, b0 = tables.snap(s, v, a)
-        window = tables.window(k0, b0, a, self.horizon_m)
+        window = tables.window(k0, b0, a, self.horizon_m, self.accel_tolerance_mps2)
         env = tables.envelope(window)
         warmed = False
         if self._jerk:
@@ -265,10 +274,11 @@ class Replanner:
 
         try:
             result = solve_convex(window.problem, self.options, envelope=env, warm_start=warm)
-        except InfeasibleError as exc:
-            if not warmed:
-                raise InfeasibleError(self._tables.explain_stuck(window, exc)) from None
-            return self._solve(window, env, self._tables.route_b[window.idx], False)
+        except (InfeasibleError, SolverError) as exc:
+            if warmed:
+                return self._solve(window, env, self._tables.route_b[window.idx], False)
+            kind = InfeasibleError if isinstance(exc, InfeasibleError) else SolverError
+            raise kind(self._tables.explain_stuck(window, exc)) from None
         return result.b, result
 
     def _check(self, window, b) -> None:

@@ -90,8 +90,10 @@ class RouteTables:
         return k0, b0
 
     # -- a window's problem ------------------------------------------------------------------
-    def window(self, k0: int, b0: float, a0: float, horizon_m: float) -> Window:
-        """The window's problem from node ``k0`` at squared speed ``b0``, acceleration ``a0``."""
+    def window(self, k0: int, b0: float, a0: float, horizon_m: float,
+               a_tolerance: float = 0.0) -> Window:
+        """The window's problem from node ``k0`` at squared speed ``b0``, acceleration ``a0``
+        (within ``a_tolerance``)."""
         steps = int(round(horizon_m / self.ds))
         if self.closed:
             steps = min(steps, self.nv)
@@ -131,7 +133,8 @@ class RouteTables:
             stop_nodes=np.asarray(stop_pos, dtype=int), stops=stops,
             time_coef=src.time_coef[st], accel_factor_start=src.accel_factor_start[st],
             accel_factor_end=src.accel_factor_end[st], rest_u=src.rest_u[st],
-            accel_start_mps2=float(a0), jerk_model=w.jerk_model, end_reserve=reserve,
+            accel_start_mps2=float(a0), accel_start_tolerance_mps2=float(a_tolerance),
+            jerk_model=w.jerk_model, end_reserve=reserve,
             jerk_terms=terms)
         if reshape:
             problem = self._reshape(problem, rest)

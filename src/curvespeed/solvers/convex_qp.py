@@ -210,17 +210,20 @@ class QPBuilder:
                                    / np.where(exact, 1.0, 2.0 * root[c])))
         rhs = t.scale * J * self.ds / w_hat + sum(g * base[c] for g, c in zip(slopes, cols))
         m = t.node.size
-        # D b is the change from 0 at an open start; from the acceleration a0 the vehicle
-        # has there (a receding-horizon window) the rows are +-(D b - a0) + G b <= rhs
-        a0 = 0.0 if p.closed else p.accel_start_mps2
-        shift = np.where(t.node == 0, a0, 0.0)
+        # D b is the change from 0 at an open start; from an acceleration a0 +- tol the
+        # vehicle has there (a receding-horizon window) the rows are +-(D b - a0) + G b <=
+        # rhs + tol
+        a0, tol = ((0.0, 0.0) if p.closed else
+                   (p.accel_start_mps2, p.accel_start_tolerance_mps2))
+        first = t.node == 0
+        shift, slack = np.where(first, a0, 0.0), np.where(first, tol, 0.0)
         G = sp.coo_matrix((np.concatenate(slopes),
                            (np.tile(np.arange(m), 3), np.concatenate(cols))),
                           shape=(m, lay.nv)).tocsr()
         G.sum_duplicates()
         Dn = self.D[t.node]
         return (sp.vstack([Dn + G, -Dn + G], format="csr"),
-                np.concatenate((rhs + shift, rhs - shift)))
+                np.concatenate((rhs + shift + slack, rhs - shift + slack)))
 
     def _end_reserve_row(self):
         """``b_N + reach (a_end + decel) <= brake_b`` (:attr:`SpeedProblem.end_reserve`), with
