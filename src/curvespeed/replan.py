@@ -90,6 +90,10 @@ class WindowProfile:
         Wall time of :meth:`Replanner.replan`, s.
     warm_started : bool
         Whether the previous window's answer was the starting point.
+    relaxed : float
+        0 when the window keeps every limit; otherwise the fraction by which its comfort
+        limits were raised to continue the vehicle's state (:class:`Replanner`,
+        ``relax_limits``). The window keeps the raised limits (its :attr:`problem` has them).
     problem : SpeedProblem
         The window's discrete problem (for checks: :func:`curvespeed.verify.verify_profile`).
     """
@@ -107,6 +111,7 @@ class WindowProfile:
     qp_iterations: int
     solve_time_s: float
     warm_started: bool
+    relaxed: float
     problem: SpeedProblem
 
 
@@ -125,6 +130,14 @@ class Replanner:
         Length of each window, metres (cut at the end of an open route, at most one lap).
     options : ConvexOptions, optional
         Settings of the convex solver (default: its defaults, on one thread: a window is one QP).
+    relax_limits : float
+        A state the limits cannot continue by a little (a vehicle a few centimetres per second
+        faster than a plan that rides its braking or lateral limit, which no real tracking
+        avoids) is continued with the comfort limits -- acceleration, deceleration, lateral
+        acceleration, jerk and lateral jerk, never friction, power, the top speed, zones or
+        stops -- raised by the smallest of 0.1 %, 1 % and this fraction that allows it;
+        :attr:`WindowProfile.relaxed` reports it. 0 raises
+        :class:`~curvespeed.errors.InfeasibleError` instead.
     accel_tolerance_mps2 : float
         Accuracy of the acceleration passed to :meth:`replan`, m/s^2: the first node's jerk is
         counted from the nearest value within it. A little above 0 lets a state that rides the
@@ -143,7 +156,8 @@ class Replanner:
 
     def __init__(self, geometry: Geometry, limits: Limits,
                  constraints: RouteConstraints = RouteConstraints(), horizon_m: float = 300.0,
-                 options=None, accel_tolerance_mps2: float = 0.01, warn_limits: bool = True):
+                 options=None, relax_limits: float = 0.05, accel_tolerance_mps2: float = 0.01,
+                 warn_limits: bool = True):
         from .replan_window import RouteTables
         from .solvers.convex import ConvexOptions
 
@@ -156,6 +170,10 @@ class Replanner:
             raise ReplanError(f"accel_tolerance_mps2 must be a finite number, zero or more, got "
                               f"{accel_tolerance_mps2!r}")
         self.accel_tolerance_mps2 = float(accel_tolerance_mps2)
+        if not _is_number(relax_limits) or not 0.0 <= relax_limits <= 0.5:
+            raise ReplanError(f"relax_limits must be a fraction from 0 to 0.5, got "
+                              f"{relax_limits!r}")
+        self.relax_limits = float(relax_limits)
         self.geometry = geometry
         self.limits = limits
         self.constraints = constraints
@@ -207,19 +225,32 @@ class Replanner:
         """
         t0 = time.perf_counter()
         s, v, a = self._check_state(station_m, speed_mps, accel_mps2)
-        tables = self._tables
-        k0, b0 = tables.snap(s, v, a)
-        window = tables.window(k0, b0, a, self.horizon_m, self.accel_tolerance_mps2)
-        env = tables.envelope(window)
-        warmed = False
-        if self._jerk:
-            warm, warmed = self._warm_start(window)
-            b, result = self._solve(window, env, warm, warmed)
+        k0, b0 = self._tables.snap(s, v, a)
+        window = self._tables.window(k0, b0, a, self.horizon_m, self.accel_tolerance_mps2)
+        steps = [x for x in _RELAX_STEPS if x < self.relax_limits] + [self.relax_limits]
+        for relaxed in [0.0] + (steps if self.relax_limits > 0.0 else []):
+            try:
+                b, result, warmed, window = self._plan_window(window, relaxed)
+                break
+            except (InfeasibleError, SolverError) as exc:     # a QP that did not solve too
+                failure = exc
         else:
-            b, result = env.b, env
+            raise failure
         self._check(window, b)
         self._previous = (k0, b)
-        return self._profile(window, b, result, s, warmed, time.perf_counter() - t0)
+        return self._profile(window, b, result, s, warmed, relaxed, time.perf_counter() - t0)
+
+    def _plan_window(self, window, relaxed: float):
+        """The window's squared speeds within its limits, the comfort limits raised by the
+        fraction ``relaxed`` (module docstring)."""
+        if relaxed > 0.0:
+            window = self._tables.relaxed(window, relaxed)
+        env = self._tables.envelope(window)
+        if not self._jerk:
+            return env.b, env, False, window
+        warm, warmed = self._warm_start(window)
+        b, result = self._solve(window, env, warm, warmed)
+        return b, result, warmed, window
 
     # -- steps of replan -----------------------------------------------------------------------
     def _check_state(self, station_m, speed_mps, accel_mps2):
@@ -293,7 +324,7 @@ class Replanner:
                               "is a defect; please report it with the route, the limits and "
                               "the vehicle's state")
 
-    def _profile(self, window, b, result: SolveResult, s: float, warm: bool,
+    def _profile(self, window, b, result: SolveResult, s: float, warm: bool, relaxed: float,
                  elapsed: float) -> WindowProfile:
         from .profile import derive
 
@@ -305,7 +336,12 @@ class Replanner:
             start_station_m=s, end_speed_bound_mps=math.sqrt(window.end_bound_b),
             status=result.status, solver=result.solver, iterations=result.iterations,
             qp_iterations=result.inner_iterations, solve_time_s=elapsed, warm_started=warm,
-            problem=window.problem)
+            relaxed=relaxed, problem=window.problem)
+
+
+#: Fractions by which the comfort limits are raised, in turn, for a state the limits cannot
+#: continue (up to ``Replanner.relax_limits``).
+_RELAX_STEPS = (0.001, 0.01)
 
 
 def _is_number(value) -> bool:

@@ -142,6 +142,20 @@ class RouteTables:
         return Window(idx=idx, ds=self.ds, problem=problem, ceiling_b=ceiling,
                       end_bound_b=end_bound)
 
+    def relaxed(self, window: Window, fraction: float) -> Window:
+        """``window`` with its comfort limits raised by ``fraction`` (acceleration,
+        deceleration, lateral acceleration, jerk, lateral jerk; not friction, power or caps).
+        Its ceilings stay the route's, which only keeps it slower."""
+        lim = window.problem.limits
+        up = 1.0 + fraction
+        raised = lim.replace(
+            max_accel_mps2=lim.max_accel_mps2 * up, max_decel_mps2=lim.max_decel_mps2 * up,
+            max_lateral_accel_mps2=lim.max_lateral_accel_mps2 * up,
+            max_jerk_mps3=None if lim.max_jerk_mps3 is None else lim.max_jerk_mps3 * up,
+            max_lateral_jerk_mps3=(None if lim.max_lateral_jerk_mps3 is None
+                                   else lim.max_lateral_jerk_mps3 * up))
+        return replace(window, problem=replace(window.problem, limits=raised))
+
     def _end_reserve(self, end_b: float):
         """The braking reserve of a free window end (:attr:`SpeedProblem.end_reserve`), or
         None without a jerk bound (braking may then start at once).
