@@ -248,11 +248,9 @@ class Replanner:
         env = self._tables.envelope(window)
         if not self._jerk:
             return env.b, env, False, window
-        warm, warmed = self._warm_start(window)
-        b, result = self._solve(window, env, warm, warmed)
+        b, result, warmed = self._solve(window, env)
         return b, result, warmed, window
 
-    # -- steps of replan -----------------------------------------------------------------------
     def _check_state(self, station_m, speed_mps, accel_mps2):
         values = {"station_m": station_m, "speed_mps": speed_mps, "accel_mps2": accel_mps2}
         for name, value in values.items():
@@ -279,38 +277,39 @@ class Replanner:
                               "plan; stop replanning at the end of the route")
         return min(max(s, 0.0), geo.length_m), v, a
 
-    def _warm_start(self, window):
-        """Where the window's SCP starts: the previous window's squared speeds moved to its
-        nodes, and the whole route's plan beyond them (or everywhere, on the first call)."""
-        route = self._tables.route_b
-        if route is None:
-            return None, False
-        warm = route[window.idx].copy()
-        if self._previous is None:
-            return warm, False
-        k_prev, b_prev = self._previous
-        shift = int(window.idx[0]) - k_prev
-        if self.geometry.closed:
-            shift %= self._tables.nv
-        if not 0 <= shift < b_prev.size:
-            return warm, False
-        kept = min(b_prev.size - shift, warm.size)
-        warm[:kept] = b_prev[shift:shift + kept]
-        return warm, True
-
-    def _solve(self, window, env: SolveResult, warm, warmed: bool):
-        """The window's jerk-bounded profile, from the warm start; from the whole route's plan
-        if the previous window's answer leaves the first QP no way forward."""
+    def _solve(self, window, env: SolveResult):
+        """The window's jerk-bounded profile. The first QP's rows are conservative around the
+        point they are built at, which must be near the answer where the vehicle rides a limit
+        (braking into a bend on the plan): from the previous window's answer, else the whole
+        route's plan, else the window's envelope (a vehicle far off the plan)."""
         from .solvers.convex import solve_convex
 
-        try:
-            result = solve_convex(window.problem, self.options, envelope=env, warm_start=warm)
-        except (InfeasibleError, SolverError) as exc:
-            if warmed:
-                return self._solve(window, env, self._tables.route_b[window.idx], False)
-            kind = InfeasibleError if isinstance(exc, InfeasibleError) else SolverError
-            raise kind(self._tables.explain_stuck(window, exc)) from None
-        return result.b, result
+        failure = None
+        for warm, warmed in self._starting_points(window):
+            try:
+                result = solve_convex(window.problem, self.options, envelope=env,
+                                      warm_start=warm)
+                return result.b, result, warmed
+            except (InfeasibleError, SolverError) as exc:
+                failure = failure or exc
+        kind = InfeasibleError if isinstance(failure, InfeasibleError) else SolverError
+        raise kind(self._tables.explain_stuck(window, failure)) from None
+
+    def _starting_points(self, window):
+        """(squared speeds, or None for the envelope; whether from the previous window)."""
+        route = self._tables.route_b[window.idx]
+        if self._previous is not None:
+            k_prev, b_prev = self._previous
+            shift = int(window.idx[0]) - k_prev
+            if self.geometry.closed:
+                shift %= self._tables.nv
+            if 0 <= shift < b_prev.size:
+                warm = route.copy()
+                kept = min(b_prev.size - shift, warm.size)
+                warm[:kept] = b_prev[shift:shift + kept]
+                yield warm, True
+        yield route, False
+        yield None, False
 
     def _check(self, window, b) -> None:
         from .planner import CONVEX_TOLERANCE

@@ -243,9 +243,12 @@ class RouteTables:
         p = window.problem
         lim = p.limits
         v0 = math.sqrt(p.b_start)
+        bounds = " and ".join(
+            f"{name} {value:g} m/s^3" for name, value in
+            (("jerk", lim.max_jerk_mps3), ("lateral jerk", lim.max_lateral_jerk_mps3))
+            if value is not None)
         return (f"{p.source}: from station {p.station_m[0]:.1f} m at {v0:.2f} m/s and "
-                f"{p.accel_start_mps2:+.2f} m/s^2, no profile keeps the jerk within "
-                f"{lim.max_jerk_mps3} m/s^3 (lateral: {lim.max_lateral_jerk_mps3}) and every "
+                f"{p.accel_start_mps2:+.2f} m/s^2, no profile keeps the {bounds} and every "
                 "other limit over the next "
                 f"{(window.idx.size - 1) * window.ds:.0f} m: the acceleration cannot be changed "
                 "fast enough for what lies ahead (a curve, zone or stop close by, or an "
