@@ -11,9 +11,9 @@ which hands its QPs to the configured backend).
 
 How a window is posed (:mod:`curvespeed.replan_window` builds it):
 
-* **Start.** The vehicle is placed on the station nearest to it, its squared speed carried there
-  at its acceleration (``v^2 + 2 a (s_k - s)``, exact for uniform acceleration over at most half
-  a station step). The jerk at that station is the change from the vehicle's acceleration to
+* **Start.** The window starts at the station at or just behind the vehicle, with the squared
+  speed the vehicle had there at its acceleration (``v^2 - 2 a (s - s_k)``, exact for uniform
+  acceleration over less than a station step). The jerk at that station is the change from the vehicle's acceleration to
   the first step's (:attr:`curvespeed.problem.SpeedProblem.accel_start_mps2`), so a window
   never asks for a jump in acceleration. A stop at the vehicle's own station counts as reached
   when the vehicle stands there and as passed when it moves.
@@ -75,9 +75,10 @@ class WindowProfile:
         Acceleration at each node, m/s^2 (mean of the steps meeting there, as in a
         :class:`~curvespeed.profile.Profile`; the first step's at the first node).
     time_s : ndarray
-        Time from the first node, s.
+        Time along the window, s, 0 where the vehicle is (the first node lies up to a station
+        step behind it, at a slightly negative time).
     start_station_m : float
-        The vehicle's station as given (the first node is the station nearest to it), m.
+        The vehicle's station as given (the first node is the station at or behind it), m.
     end_speed_bound_mps : float
         The most the window's last node may have (the braking bound, or the route's end speed).
     status : SolveStatus
@@ -329,9 +330,17 @@ class Replanner:
 
         d = derive(window.problem, b)
         n = window.idx.size
+        distance = np.arange(n) * window.ds
+        # time 0 where the vehicle is: up to a station step after node 0
+        ahead = s - self._tables.station_m[window.idx[0]]
+        if self.geometry.closed:
+            ahead = (ahead + 0.5 * self.geometry.length_m) % self.geometry.length_m \
+                - 0.5 * self.geometry.length_m
+        v = d["speed_mps"]
+        t_vehicle = float(np.interp(max(ahead, 0.0), distance, d["time_s"]))
         return WindowProfile(
-            station_m=self._tables.station_m[window.idx], distance_m=np.arange(n) * window.ds,
-            speed_mps=d["speed_mps"], accel_mps2=d["accel_mps2"], time_s=d["time_s"],
+            station_m=self._tables.station_m[window.idx], distance_m=distance,
+            speed_mps=v, accel_mps2=d["accel_mps2"], time_s=d["time_s"] - t_vehicle,
             start_station_m=s, end_speed_bound_mps=math.sqrt(window.end_bound_b),
             status=result.status, solver=result.solver, iterations=result.iterations,
             qp_iterations=result.inner_iterations, solve_time_s=elapsed, warm_started=warm,

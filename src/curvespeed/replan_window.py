@@ -81,8 +81,15 @@ class RouteTables:
 
     # -- the vehicle's station ---------------------------------------------------------------
     def snap(self, s: float, v: float, a: float) -> tuple[int, float]:
-        """Nearest node to station ``s`` and the squared speed carried there (at least 0)."""
-        k0 = int(round(s / self.ds))
+        """The node at or just behind station ``s`` and the squared speed the vehicle had
+        there at its acceleration (at least 0).
+
+        Behind, not the nearest: carried forward at a constant acceleration the vehicle would
+        arrive faster than it can while its acceleration ramps down (into a speed cap, say), a
+        state no profile continues; carried back, it is where the vehicle was (its acceleration
+        held over less than a step), which it did continue from.
+        """
+        k0 = int(math.floor(s / self.ds + 1e-9))
         k0 = k0 % self.nv if self.closed else min(k0, self.nv - 1)
         b0 = max(v * v + 2.0 * a * (k0 * self.ds - s), 0.0)
         if v > 0.0 and b0 == 0.0:
@@ -124,6 +131,7 @@ class RouteTables:
         terms = jerk_time_terms(nsteps + 1, False, src.rest_u[st], src.accel_factor_start[st])
         if reserve is not None:         # a free end keeps its acceleration (the reserve row)
             terms = _without_node(terms, nsteps)
+        terms, head_start = self._start_ramp(terms, b0, a0)
         problem = replace(
             src, station_m=self.station_m[idx], closed=False,
             kappa_abs=w.kappa_abs[idx], kappa_signed=w.kappa_signed[idx],
@@ -133,7 +141,8 @@ class RouteTables:
             stop_nodes=np.asarray(stop_pos, dtype=int), stops=stops,
             time_coef=src.time_coef[st], accel_factor_start=src.accel_factor_start[st],
             accel_factor_end=src.accel_factor_end[st], rest_u=src.rest_u[st],
-            accel_start_mps2=float(a0), accel_start_tolerance_mps2=float(a_tolerance),
+            accel_start_mps2=float(a0),
+            accel_start_tolerance_mps2=float(a_tolerance) + head_start,
             jerk_model=w.jerk_model, end_reserve=reserve,
             jerk_terms=terms)
         if reshape:
@@ -176,6 +185,28 @@ class RouteTables:
             return None
         reach = 2.0 * lim.max_decel_mps2 * math.sqrt(max(end_b, 0.0)) / lim.max_jerk_mps3
         return (end_b, reach, lim.max_decel_mps2)
+
+    def _start_ramp(self, terms, b0: float, a0: float):
+        """The first node's jerk term as inside a route, and the change of acceleration the
+        vehicle has time for after it beyond that term.
+
+        Inside a route a node's change of acceleration is a ramp centred on the node over the
+        time between the two steps' mid-points (:mod:`curvespeed.problem`), so at the node the
+        vehicle is half-way through it, at the mean acceleration (what a profile reports and a
+        vehicle on it measures), and has half of that time left: half the time to the first
+        step's mid-point, ``ds / (2 (v0 + v1))`` (the term, scale 1/2), plus half the time from
+        the mid-point of the step before, ``ds / (2 (v_prev + v0))``, with ``v_prev`` the speed
+        one step back at the vehicle's acceleration. The bound times the latter is a constant
+        change of acceleration, added to the tolerance on ``a0``. At rest there is no ramp.
+        """
+        jerk = self.whole.limits.max_jerk_mps3
+        first = terms.node == 0
+        if jerk is None or b0 <= 0.0 or not first.any():
+            return terms, 0.0
+        v0 = math.sqrt(b0)
+        v_prev = math.sqrt(max(b0 - 2.0 * a0 * self.ds, 0.0))
+        scale = np.where(first, 0.5 * terms.scale, terms.scale)
+        return replace(terms, scale=scale), jerk * self.ds / (2.0 * (v_prev + v0))
 
     def _reshape(self, problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
         """Steps next to rest for a window whose first node's rest state differs from the
