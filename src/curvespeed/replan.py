@@ -195,7 +195,10 @@ class Replanner:
         from .solvers.convex import solve_convex
 
         whole = self._tables.whole
-        return solve_convex(whole, replace(self.options, threads=None)).b
+        # on every core, iterated to the end whatever the windows' own cap
+        settings = replace(self.options, threads=None,
+                           max_iterations=max(self.options.max_iterations, 30))
+        return solve_convex(whole, settings).b
 
     def reset(self) -> None:
         """Forget the previous window (the next call starts cold, as after a jump)."""
