@@ -160,11 +160,11 @@ class SpeedProblem:
         How far the acceleration before the first node may lie from ``accel_start_mps2``,
         m/s^2 (the accuracy of a measured one): the first node's jerk is the change from the
         nearest value within it (0 for a whole route).
-    end_reserve : tuple of float or None
-        ``(brake_b, reach_m, decel_mps2)`` for an open problem with a free end (a window): its
-        last node's squared speed and acceleration (the last step's there) must leave room to
-        brake for what lies beyond, ``b[-1] + reach_m * (a_end + decel_mps2) <= brake_b``
-        (:mod:`curvespeed.replan` derives it). None: no such row.
+    end_reserve : tuple or None
+        ``(brake_b, rows)`` for an open problem with a free end (a window): its last node's
+        squared speed and acceleration (the last step's there) must leave room to brake for
+        what lies beyond, ``b[-1] + c * a_end <= brake_b - d`` for every ``(c, d)`` in
+        ``rows`` (:mod:`curvespeed.replan_window` derives them). None: no such rows.
     """
 
     station_m: np.ndarray
@@ -245,12 +245,12 @@ class SpeedProblem:
 
     def end_reserve_use(self, b) -> float:
         """Use of the end's braking reserve (:attr:`end_reserve`; 1.0 = at it, 0 without it):
-        ``(b[-1] + reach (a_end + decel)) / brake_b``."""
+        the largest ``(b[-1] + c a_end + d) / brake_b``."""
         if self.end_reserve is None:
             return 0.0
-        brake_b, reach, decel = self.end_reserve
+        brake_b, rows = self.end_reserve
         a_end = self.accel_factor_end[-1] * (b[-1] - b[-2]) / (2.0 * self.ds)
-        need = b[-1] + reach * (a_end + decel)
+        need = max(b[-1] + c * a_end + d for c, d in rows)
         return float(need / brake_b) if brake_b > 0.0 else (math.inf if need > 0.0 else 0.0)
 
     def step_accel(self, b) -> np.ndarray:

@@ -13,33 +13,46 @@ How a window is posed (:mod:`curvespeed.replan_window` builds it):
 
 * **Start.** The window starts at the station at or just behind the vehicle, with the squared
   speed the vehicle had there at its acceleration (``v^2 - 2 a (s - s_k)``, exact for uniform
-  acceleration over less than a station step). The jerk at that station is the change from the vehicle's acceleration to
-  the first step's (:attr:`curvespeed.problem.SpeedProblem.accel_start_mps2`), so a window
-  never asks for a jump in acceleration. A stop at the vehicle's own station counts as reached
-  when the vehicle stands there and as passed when it moves.
-* **End.** Unless the window reaches the end of an open route, its last speed is free but at
-  most the route's braking envelope (the backward pass of the forward-backward method over the
-  whole route's ceilings, :func:`curvespeed.solvers.envelope.brake_reach`) taken at the
-  stations the vehicle covers while a jerk-limited braking builds up (``v D / J`` metres at
-  speed ``v``, deceleration cap ``D``, jerk bound ``J``). Like the end of an open route, the
-  window's end is steady (its acceleration is taken back to zero within the jerk bound), so
-  from there the vehicle can ramp into braking and then brake down to every ceiling beyond:
-  a window never commits to a speed the route beyond it cannot absorb. The lateral jerk bound,
-  where set, is honoured inside the window but not in this end bound.
+  acceleration over less than a station step); its ``time_s`` is 0 where the vehicle is. The
+  jerk at that station is the change from the vehicle's acceleration to the first step's
+  (:attr:`curvespeed.problem.SpeedProblem.accel_start_mps2`), so a window never asks for a
+  jump in acceleration. As at a station inside a route, the change is a ramp centred on the
+  station, which a vehicle there is half-way through (it reports the mean acceleration), so
+  half of the ramp's time is left (:meth:`.RouteTables._start_ramp`); the acceleration is taken
+  within ``accel_tolerance_mps2`` of the one given (its accuracy). A stop at the vehicle's own
+  station counts as reached when the vehicle stands there and as passed when it moves; a
+  vehicle standing elsewhere sets off with the jerk ramp of a step next to rest.
+* **End.** Unless the window reaches the end of an open route (whose end speed it keeps), its
+  last speed and acceleration are free but must leave room to brake for what lies beyond: at
+  most the route's braking envelope there (the backward pass of the forward-backward method
+  over the whole route's ceilings, :func:`curvespeed.solvers.envelope.brake_reach`), less what
+  the envelope falls by while a jerk-limited braking builds up from the window's last
+  acceleration
+  (:attr:`curvespeed.problem.SpeedProblem.end_reserve`, derived in
+  :meth:`.RouteTables._end_reserve`): a window never commits to a speed the route beyond it
+  cannot absorb. The lateral jerk bound, where set, holds inside the window but is not part
+  of this reserve.
 * **Inside.** Speed zones, stops, superelevation, grade, every limit and the jerk bounds hold as
   in a whole-route plan, and the window's answer is checked by the verifier
   (:func:`curvespeed.verify.verify_profile`) before it is returned.
 * **Loops.** On a closed route the window runs on across the seam (stations start again at 0);
-  on an open route it is cut at the route's end, whose end speed it keeps.
+  on an open route it is cut at the route's end.
 
 States the limits cannot continue (faster than a curve, a zone or a stop ahead allows even
 with full braking, or an acceleration the jerk bound cannot take back in time) raise
 :class:`~curvespeed.errors.InfeasibleError` naming the station and the cause: the planner does
 not plan beyond its limits, so slowing down harder is for the vehicle's own safety functions.
+A state they miss by a little (a vehicle a little faster than a plan that rides its braking or
+lateral limit, which no tracking avoids) is continued with the comfort limits raised by at
+most ``relax_limits`` (:attr:`WindowProfile.relaxed` says by how much; never friction, power,
+the top speed, zones or stops).
 
-Warm start: each window's SCP starts from the previous window's answer, shifted to the new
-stations (the QP backend itself, Clarabel today, takes no warm start). A fresh Replanner per
-run keeps runs independent.
+Starting point: the sequential-convex iterations build conservative rows around their current
+point, and where the vehicle rides a limit the first point must be near the answer or the
+first QP has none. A window starts from the previous window's answer moved to its stations
+(a warm start; the QP backend itself, Clarabel today, takes none), else from the whole route's
+plan (made once, in the constructor), else from its envelope (a vehicle far off the plan). A
+fresh Replanner, or :meth:`Replanner.reset`, keeps runs independent.
 """
 
 from __future__ import annotations

@@ -67,6 +67,7 @@ class RouteTables:
         if not self.closed:
             ceiling[-1] = min(ceiling[-1], whole.b_end)
         self.brake_b = brake_reach(whole, ceiling)
+        self.brake_fall = _steepest_fall(self.brake_b, self.ds, limits, self.closed)
         self.route_b = None         # the whole route's plan, set by the Replanner
         self.stop_at = {}
         for stop in constraints.stops:
@@ -124,7 +125,7 @@ class RouteTables:
         end_bound = end_b if at_end else float(min(cap[-1], self.brake_b[idx[-1]]))
         if not at_end and end_bound < cap[-1]:
             cap[-1], source[-1] = end_bound, "window_end"
-        reserve = None if at_end else self._end_reserve(end_bound)
+        reserve = None if at_end else self._end_reserve(end_bound, int(idx[-1]))
         stop_pos = [i for i in range(1, idx.size) if idx[i] % self.nv in self.stop_at]
         stops = tuple(Stop(i * self.ds, self._stop_origin(idx[i])) for i in stop_pos)
         nsteps = idx.size - 1
@@ -165,26 +166,35 @@ class RouteTables:
                                    else lim.max_lateral_jerk_mps3 * up))
         return replace(window, problem=replace(window.problem, limits=raised))
 
-    def _end_reserve(self, end_b: float):
-        """The braking reserve of a free window end (:attr:`SpeedProblem.end_reserve`), or
-        None without a jerk bound (braking may then start at once).
+    def _end_reserve(self, end_b: float, k: int):
+        """The braking reserve of a free window end at node ``k``
+        (:attr:`SpeedProblem.end_reserve`), or None without a jerk bound (braking may then
+        start at once).
 
-        The vehicle leaves the window at squared speed ``b <= end_b`` (the braking envelope
-        there) and acceleration ``a``; ramping at the jerk bound ``J`` to the deceleration cap
-        ``D`` takes ``(a + D) / J`` seconds, over at most ``x = v (a + D) / J`` metres at no more
-        than its speed ``v <= sqrt(end_b)``. The braking envelope falls by at most ``2 D`` per
-        metre (a backward step brakes at most at ``D``), so it stays above ``end_b - 2 D x``
-        over those metres; ``b <= end_b - 2 D x`` then lets the vehicle ramp in and brake down
-        to every ceiling beyond: ``b + (2 D sqrt(end_b) / J) (a + D) <= end_b``. Where the
-        route beyond is brake-limited from the window's end on, that is what the whole-route
-        plan does too; elsewhere the bound is conservative (the far end of the window is
-        slower than the whole-route plan, never faster).
+        The vehicle leaves the window at squared speed ``b <= end_b`` (at most the braking
+        envelope there) and acceleration ``a``. Ramping at the jerk bound ``J`` to the
+        deceleration cap ``D`` takes ``(a + D) / J`` seconds, over at most
+        ``x = v (a + D) / J`` metres at speed ``v <= sqrt(end_b)``; over those metres the
+        braking envelope falls by at most ``rho x`` (``rho``: its steepest mean fall from ``k``
+        within the longest such ramp, :func:`_steepest_fall`, at most ``2 D`` per metre). With
+        ``b + rho x <= end_b`` the vehicle stays under the envelope while it ramps and then
+        brakes down to every ceiling beyond (lowering its deceleration only slows it more):
+        ``b + c (a + D) <= end_b`` with ``c = rho sqrt(end_b) / J``. Accelerating (``a > 0``)
+        it first gains ``a^2 / (2 J)`` of speed, ``b`` about ``v a^2 / J <= v a A / J`` with the
+        acceleration cap ``A`` (to first order): a second row adds ``(v A / J) a``. Where the
+        envelope is flat ahead (a curve's ceiling, the top speed) the first row is
+        ``b <= end_b`` and the second only asks an accelerating end for its gain; where the
+        envelope falls, the far end of the window is slower than the whole-route plan, never
+        faster.
         """
         lim = self.whole.limits
         if lim.max_jerk_mps3 is None:
             return None
-        reach = 2.0 * lim.max_decel_mps2 * math.sqrt(max(end_b, 0.0)) / lim.max_jerk_mps3
-        return (end_b, reach, lim.max_decel_mps2)
+        v_top = math.sqrt(max(end_b, 0.0))
+        c = self.brake_fall[k] * v_top / lim.max_jerk_mps3
+        gain = v_top * lim.max_accel_mps2 / lim.max_jerk_mps3
+        d = c * lim.max_decel_mps2
+        return (end_b, ((c, d), (c + gain, d)))
 
     def _start_ramp(self, terms, b0: float, a0: float):
         """The first node's jerk term as inside a route, and the change of acceleration the
@@ -292,3 +302,22 @@ def _without_node(terms, node: int):
     keep = terms.node != node
     return replace(terms, node=terms.node[keep], prev=terms.prev[keep], next=terms.next[keep],
                    weights=terms.weights[keep], scale=terms.scale[keep])
+
+
+def _steepest_fall(brake_b: np.ndarray, ds: float, limits: Limits, closed: bool) -> np.ndarray:
+    """At each node, the steepest mean fall of the braking envelope from it to a node ahead
+    within the longest jerk ramp from the acceleration cap to the deceleration cap at the
+    node's envelope speed, (m^2/s^2) per metre, at least 0. The envelope's backward steps
+    brake at most at the deceleration cap, so it is at most ``2 D``."""
+    n = brake_b.size
+    out = np.zeros(n)
+    if limits.max_jerk_mps3 is None:
+        return out
+    nv = n - 1 if closed else n
+    ramp = (limits.max_accel_mps2 + limits.max_decel_mps2) / limits.max_jerk_mps3
+    reach = np.ceil(np.sqrt(brake_b) * ramp / ds).astype(int)
+    k = np.arange(n)
+    for j in range(1, int(reach.max()) + 1):
+        ahead = brake_b[(k + j) % nv] if closed else brake_b[np.minimum(k + j, n - 1)]
+        out = np.where(j <= reach, np.maximum(out, (brake_b - ahead) / (j * ds)), out)
+    return out

@@ -225,16 +225,18 @@ class QPBuilder:
         return (sp.vstack([Dn + G, -Dn + G], format="csr"),
                 np.concatenate((rhs + shift + slack, rhs - shift + slack)))
 
-    def _end_reserve_row(self):
-        """``b_N + reach (a_end + decel) <= brake_b`` (:attr:`SpeedProblem.end_reserve`), with
-        ``a_end = f (b_N - b_N-1) / (2 ds)``, tightened by ``margin`` of ``brake_b``."""
-        brake_b, reach, decel = self.p.end_reserve
+    def _end_reserve_rows(self):
+        """``b_N + c a_end <= brake_b - d`` for every ``(c, d)`` of
+        :attr:`SpeedProblem.end_reserve`, with ``a_end = f (b_N - b_N-1) / (2 ds)``, tightened
+        by ``margin`` of ``brake_b``."""
+        brake_b, rows = self.p.end_reserve
         nv = self.lay.nv
-        c = reach * self.lay.f_last[-1] / (2.0 * self.ds)
-        row = sp.csr_matrix((np.array([-c, 1.0 + c]), (np.zeros(2, dtype=int),
-                                                      np.array([nv - 2, nv - 1]))),
-                            shape=(1, nv))
-        return row, np.array([brake_b * (1.0 - self.opt.margin) - reach * decel])
+        h = self.lay.f_last[-1] / (2.0 * self.ds)
+        vals = np.concatenate([(-c * h, 1.0 + c * h) for c, _ in rows])
+        row_i = np.repeat(np.arange(len(rows)), 2)
+        col_i = np.tile([nv - 2, nv - 1], len(rows))
+        R = sp.csr_matrix((vals, (row_i, col_i)), shape=(len(rows), nv))
+        return R, np.array([brake_b * (1.0 - self.opt.margin) - d for _, d in rows])
 
     def build(self, b_hat: np.ndarray):
         p, lay, ds = self.p, self.lay, self.ds
@@ -352,9 +354,9 @@ class QPBuilder:
             ups.append(up_l)
 
         if p.end_reserve is not None and not p.closed:
-            R, up_r = self._end_reserve_row()
+            R, up_r = self._end_reserve_rows()
             blocks.append(R)
-            lows.append(np.array([-np.inf]))
+            lows.append(np.full(R.shape[0], -np.inf))
             ups.append(up_r)
 
         A = sp.vstack(blocks, format="csc")
