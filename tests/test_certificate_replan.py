@@ -286,3 +286,21 @@ def test_bad_state_is_a_clear_error(state, match, bend_replanner):
 def test_bad_settings_are_a_clear_error(kwargs, match):
     with pytest.raises(ReplanError, match=match):
         Replanner(_bend(), Limits(), **kwargs)
+
+
+def test_window_ending_just_before_a_stop_keeps_to_the_plan():
+    """A window that ends on the last metres into a stop (where the braking envelope falls to
+    rest) needs no more than the plan's own braking: it is planned within the limits and
+    agrees with the whole-route plan where the vehicle is."""
+    geo, limits, constraints = _shuttle()
+    profile = plan_profile(geo, limits, constraints, options=TIGHT)
+    replanner = Replanner(geo, limits, constraints, horizon_m=100.0, options=TIGHT)
+    for end in (276.0, 281.0, 285.0, 288.0, 289.0):
+        k = int(math.floor((end - 100.0) / geo.spacing_m))
+        replanner.reset()
+        w = replanner.replan(geo.station_m[k], profile.speed_mps[k], profile.accel_mps2[k])
+        assert w.relaxed == 0.0 and w.station_m[-1] < 290.0 - geo.spacing_m / 2
+        near = w.distance_m <= 50.0
+        idx = _plan_nodes(geo, k, w.speed_mps.size)
+        np.testing.assert_allclose(w.speed_mps[near], profile.speed_mps[idx[near]],
+                                   atol=NEAR_TOLERANCE_MPS)
