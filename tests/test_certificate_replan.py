@@ -26,7 +26,7 @@ from curvespeed.replan import Replanner
 from curvespeed.solvers.convex import ConvexOptions
 from curvespeed.verify import verify_profile
 
-from helpers import straight_curve_straight
+from helpers import CLOSED_FORM_RTOL, straight_curve_straight
 
 ROUTES = Path(__file__).resolve().parents[1] / "routes"
 
@@ -304,3 +304,19 @@ def test_window_ending_just_before_a_stop_keeps_to_the_plan():
         idx = _plan_nodes(geo, k, w.speed_mps.size)
         np.testing.assert_allclose(w.speed_mps[near], profile.speed_mps[idx[near]],
                                    atol=NEAR_TOLERANCE_MPS)
+
+
+def test_without_a_jerk_bound_windows_are_the_whole_route_envelope():
+    """With no jerk bound a window is the forward-backward envelope from the vehicle's speed
+    under the route's ceilings and braking envelope, so from a state on the whole-route
+    envelope it is that envelope itself (closed form per step: round-off only)."""
+    geo, _, constraints = _loop()
+    limits = Limits(max_jerk_mps3=None)
+    profile = plan_profile(geo, limits, constraints)
+    replanner = Replanner(geo, limits, constraints)
+    for k in range(0, geo.n_nodes - 1, 397):
+        w = replanner.replan(geo.station_m[k], profile.speed_mps[k], profile.accel_mps2[k])
+        assert w.solver == "envelope"
+        idx = _plan_nodes(geo, k, w.speed_mps.size)
+        np.testing.assert_allclose(w.speed_mps, profile.speed_mps[idx], rtol=CLOSED_FORM_RTOL,
+                                   atol=1e-9)
