@@ -106,7 +106,6 @@ def run_replan(variant: str, calls: int, dt: float = 0.1) -> dict:
     "one-qp" (one sequential-convex iteration per call from the previous window, max_iterations
     1). Times the calls, and inside them the QP backend's own calls, to split the time between
     the QP solver and the Python around it."""
-    import warnings
 
     from curvespeed.geometry import build_geometry
     from curvespeed.io import read_route
@@ -133,19 +132,17 @@ def run_replan(variant: str, calls: int, dt: float = 0.1) -> dict:
     setup = time.perf_counter() - t0
     station, speed, accel = 600.0, 20.0, 0.0
     times, qps, its, inner, relaxed = [], [], [], [], 0
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")         # one-qp stops at its iteration cap by design
-        for _ in range(calls):
-            qp_time[0] = 0.0
-            w = replanner.replan(station, speed, accel)
-            times.append(w.solve_time_s)
-            qps.append(qp_time[0])
-            its.append(w.iterations)
-            inner.append(w.qp_iterations)
-            relaxed += w.relaxed > 0.0
-            station = float(np.interp(dt, w.time_s, w.station_m))
-            speed = float(np.interp(dt, w.time_s, w.speed_mps))
-            accel = float(np.interp(dt, w.time_s, w.accel_mps2))
+    for _ in range(calls):
+        qp_time[0] = 0.0
+        w = replanner.replan(station, speed, accel)
+        times.append(w.solve_time_s)
+        qps.append(qp_time[0])
+        its.append(w.iterations)
+        inner.append(w.qp_iterations)
+        relaxed += w.relaxed > 0.0
+        station = float(np.interp(dt, w.time_s, w.station_m))
+        speed = float(np.interp(dt, w.time_s, w.speed_mps))
+        accel = float(np.interp(dt, w.time_s, w.accel_mps2))
     return {"variant": variant, "calls": calls, "stations": int(w.station_m.size),
             "median_s": statistics.median(times), "p99_s": float(np.percentile(times, 99)),
             "qp_median_s": statistics.median(qps), "iterations": statistics.mean(its),
