@@ -278,8 +278,10 @@ def test_bad_state_is_a_clear_error(state, match, bend_replanner):
 
 
 @pytest.mark.parametrize("kwargs, match", [
-    ({"horizon_m": 0.0}, "horizon_m must be a number of at least two station steps"),
+    ({"horizon_m": 0.0}, "horizon_m must be a finite number of at least two station steps"),
     ({"horizon_m": float("nan")}, "horizon_m"),
+    ({"horizon_m": float("inf")}, "horizon_m"),
+    ({"horizon_m": "300"}, "horizon_m"),
     ({"relax_limits": -0.1}, "relax_limits must be a fraction"),
     ({"accel_tolerance_mps2": float("inf")}, "accel_tolerance_mps2"),
 ])

@@ -169,7 +169,8 @@ class Replanner:
     Raises
     ------
     ReplanError
-        A horizon that is not a positive number of at least two station steps.
+        A horizon that is not a finite number of at least two station steps, or a tolerance or
+        relaxation out of its range.
     LimitsError, InfeasibleError
         As :func:`curvespeed.planner.plan_profile` would for the same route and limits.
     """
@@ -183,8 +184,8 @@ class Replanner:
 
         validate_limits(limits, "limits", warn=warn_limits)
         ds = float(geometry.spacing_m)
-        if not _is_number(horizon_m) or not horizon_m >= 2.0 * ds:
-            raise ReplanError(f"horizon_m must be a number of at least two station steps "
+        if not _is_number(horizon_m) or not 2.0 * ds <= horizon_m < math.inf:
+            raise ReplanError(f"horizon_m must be a finite number of at least two station steps "
                               f"({2.0 * ds:g} m on this route), got {horizon_m!r}")
         if not _is_number(accel_tolerance_mps2) or not 0.0 <= accel_tolerance_mps2 < math.inf:
             raise ReplanError(f"accel_tolerance_mps2 must be a finite number, zero or more, got "

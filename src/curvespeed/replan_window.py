@@ -90,9 +90,10 @@ class RouteTables:
         state no profile continues; carried back, it is where the vehicle was (its acceleration
         held over less than a step), which it did continue from.
         """
-        k0 = int(math.floor(s / self.ds + 1e-9))
-        k0 = k0 % self.nv if self.closed else min(k0, self.nv - 1)
-        b0 = max(v * v + 2.0 * a * (k0 * self.ds - s), 0.0)
+        k = int(math.floor(s / self.ds + 1e-9))
+        k = min(k, self.nv - 1) if not self.closed else k
+        b0 = max(v * v - 2.0 * a * (s - k * self.ds), 0.0)
+        k0 = k % self.nv if self.closed else k
         if v > 0.0 and b0 == 0.0:
             b0 = min(v * v, 1e-12)      # still moving: not a rest node (rounding aside)
         return k0, b0
