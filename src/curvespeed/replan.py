@@ -250,14 +250,18 @@ class Replanner:
         t0 = time.perf_counter()
         s, v, a = self._check_state(station_m, speed_mps, accel_mps2)
         k0, b0 = self._tables.snap(s, v, a)
-        window = self._tables.window(k0, b0, a, self.horizon_m, self.accel_tolerance_mps2)
+        args = (k0, b0, a, self.horizon_m, self.accel_tolerance_mps2)
         steps = [x for x in _RELAX_STEPS if x < self.relax_limits] + [self.relax_limits]
+        failure = None
         for relaxed in [0.0] + (steps if self.relax_limits > 0.0 else []):
             try:
+                # a speed above its own station's ceiling is refused within the limits; with
+                # them raised the window's own rows judge it
+                window = self._tables.window(*args, check_start=relaxed == 0.0)
                 b, result, warmed, window = self._plan_window(window, relaxed)
                 break
             except (InfeasibleError, SolverError) as exc:     # a QP that did not solve too
-                failure = exc
+                failure = failure or exc
         else:
             raise failure
         self._check(window, b)

@@ -100,9 +100,10 @@ class RouteTables:
 
     # -- a window's problem ------------------------------------------------------------------
     def window(self, k0: int, b0: float, a0: float, horizon_m: float,
-               a_tolerance: float = 0.0) -> Window:
+               a_tolerance: float = 0.0, check_start: bool = True) -> Window:
         """The window's problem from node ``k0`` at squared speed ``b0``, acceleration ``a0``
-        (within ``a_tolerance``)."""
+        (within ``a_tolerance``); ``check_start`` refuses a speed above the station's own
+        ceiling (:meth:`_check_start`)."""
         steps = int(round(horizon_m / self.ds))
         if self.closed:
             steps = min(steps, self.nv)
@@ -112,7 +113,8 @@ class RouteTables:
             steps = min(steps, self.n - 1 - k0)
             idx = k0 + np.arange(steps + 1)
             at_end = idx[-1] == self.n - 1
-        self._check_start(k0, b0)
+        if check_start:
+            self._check_start(k0, b0)
         w = self.whole
         rest = self.rest[idx].copy()
         rest[0] = b0 == 0.0
