@@ -65,6 +65,8 @@ class Reconstruction:
     step: np.ndarray
     follows: np.ndarray
     near_step: np.ndarray      # stations within a step's location uncertainty
+    lines: tuple = ()          # each element's line (intercept, slope), in station-index units
+    reach_m: np.ndarray | None = None   # how far each break may be off, metres
 
 
 def reconstruct(station: np.ndarray, kappa: np.ndarray, deltas: np.ndarray, spread_m: float,
@@ -116,7 +118,7 @@ def reconstruct(station: np.ndarray, kappa: np.ndarray, deltas: np.ndarray, spre
             bound[sel] = bound[sel].max()
             near_step |= sel
     return Reconstruction(k, sd_pl, bound, station[0] + breaks * ds, np.array(step, bool),
-                          follows, near_step)
+                          follows, near_step, tuple(lines), np.asarray(reach, float) * ds)
 
 
 def _interior(a: int, b: int, n: int, gap: int) -> tuple[int, int]:

@@ -30,7 +30,9 @@ truth there. The ``curvature_bound`` is the tightest of these bounds over the sc
 there (coarser ones are not trusted: they may flatten a whole curve shorter than their window):
 near a sharp change a fine scale's (narrow window), on a long arc or straight a coarse scale's
 (small uncertainty). A coarse scale never lends its wide window to a station near a curve, and
-a fine scale's noise never inflates the bound where a coarser one knows better.
+a fine scale's noise never inflates the bound where a coarser one knows better. Where the
+design alignment behind the estimate (:mod:`.alignment`) is trusted its bound holds, and near
+a step of curvature the candidate roads of :mod:`.steps` that the points cannot tell apart.
 """
 
 from __future__ import annotations
@@ -42,8 +44,14 @@ import numpy as np
 from scipy.interpolate import BSpline
 
 from .alignment import reconstruct
-from .pspline import (SPLINE_DEGREE, SplineFit, null_space_fit, null_space_spline,
-                      penalised_system)
+from .pspline import (
+    SPLINE_DEGREE,
+    SplineFit,
+    null_space_fit,
+    null_space_spline,
+    penalised_system,
+)
+from .steps import FineScale, confirm_steps
 
 #: Scales tried above the path fit's own, each smoothing over twice the length of the last.
 LEVELS = 8
@@ -145,13 +153,19 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
     # and never below the estimate used plus its uncertainty, widened by the finest spread
     bound = np.maximum(bound, _running_max(np.abs(k) + GAMMA * s, station, width[0]))
     if rebuilt is not None:
+        rebuilt, steps = rebuilt
         use = _trusted(rebuilt, k, s, w, station)
         bound = np.where(use, np.where(rebuilt.near_step, np.maximum(rebuilt.bound, bound),
                                        rebuilt.bound), bound)
+        # where candidate roads the points cannot tell apart explain a step, their largest
+        # curvature bounds it (:mod:`.steps`)
+        bound = np.where(steps.explained, steps.bound, bound)
         # where a step may lie the reconstruction cannot say how the curvature gets there (a
         # jump, or a clothoid too short to resolve): the adaptive estimate stays
         use &= ~rebuilt.near_step
         k, s = np.where(use, rebuilt.kappa, k), np.where(use, rebuilt.sd, s)
+        # and the candidate that fits them best is the estimate there (within the bound)
+        k = np.where(steps.explained, steps.kappa, k)
     return CurvatureEstimate(k, s, bound, w, level)
 
 
@@ -171,8 +185,15 @@ def _reconstruction(fit, u_points, values, weight, u_nodes, station, time, drift
     fine.deltas = []
     for c in range(REPLICATES // _CHUNK):
         fine.add_replicates(_noise_chunk(seed, c, weight, time, drift_rate), u_nodes)
-    return reconstruct(station, fine.kappa, np.hstack(fine.deltas),
-                       float(np.median(fine.width)), GAMMA)
+    deltas = np.hstack(fine.deltas)
+    spread = float(np.median(fine.width))
+    rebuilt = reconstruct(station, fine.kappa, deltas, spread, GAMMA)
+    if rebuilt is None:
+        return None
+    scale = FineScale(fine.system, fine.rho, fine.d1, fine.d2, fine.kappa,
+                      np.sqrt(np.mean(deltas**2, axis=1)), spread)
+    return rebuilt, confirm_steps(rebuilt, scale, u_points, values, weight, u_nodes, station,
+                                  GAMMA)
 
 
 def _trusted(rebuilt, kappa, sd, width, station) -> np.ndarray:

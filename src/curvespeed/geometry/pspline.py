@@ -332,6 +332,7 @@ class _PenalisedSystem:
         self._penalty_baseline = _apply_penalty(baseline, periodic)   # D^T D g
         self._baseline = baseline
         self._basis, self._data, self._w2 = basis, data, w2
+        self._u = u
         self._cache: dict[float, tuple[np.ndarray, float]] = {}
 
     def _solve(self, rho: float) -> tuple[np.ndarray, float]:
@@ -379,6 +380,29 @@ class _PenalisedSystem:
             rhs = permuted
         out = solveh_banded(band, rhs, overwrite_ab=True, overwrite_b=True, check_finite=False)
         return out if self._pos is None else out[self._pos]
+
+    def local_response(self, rho: float, values: np.ndarray, points: np.ndarray,
+                       margin: float) -> tuple[BSpline, np.ndarray]:
+        """The smoother's response to data ``values`` (len(points), c) that is zero at every
+        point but ``points`` (indices, ascending), solved on the coefficients within ``margin``
+        (parameter units) of those points only: the inverse of the banded normal matrix decays
+        geometrically away from the data, by about e^-1 per smoothing length, so a margin of
+        several smoothing lengths changes the response near the points by far less than its
+        round-off. Returns the response as a spline valid on the points' span and its
+        coefficients. Open (non-periodic) systems only."""
+        if self._pos is not None:
+            raise ValueError("local_response is for open systems")
+        k = SPLINE_DEGREE
+        h = self.knots[k + 1] - self.knots[k]
+        n = self._n
+        lo = max(int(np.floor((self._u[points[0]] - margin) / h)), 0)
+        hi = min(int(np.ceil((self._u[points[-1]] + margin) / h)) + k + 1, n)
+        lam = self.lam0 * 10.0**rho
+        band = self._gram_band[:, lo:hi] + lam * self._penalty_band[:, lo:hi]
+        rows = self._basis[points][:, lo:hi]
+        rhs = rows.T @ (self._w2[points, None] * values)
+        delta = solveh_banded(band, rhs, overwrite_ab=True, overwrite_b=True, check_finite=False)
+        return BSpline(self.knots[lo: hi + k + 1], delta, k, extrapolate=False), delta
 
     def weight_density(self) -> np.ndarray:
         """Data weight per coefficient (the diagonal of ``B^T W B``), for local smoothing widths."""

@@ -1,0 +1,95 @@
+"""Curvature steps kept sharp where the points allow it, and still covered where they do not.
+
+The roads are the invented design alignments of benchmarks/exact_roads.py; the reference is
+their exact curvature (``Alignment.curvature``: closed forms of straights, arcs and clothoids).
+An arc entered without a clothoid is a jump of curvature: the bound must cover it at every
+station, yet on precise points it should not claim the arc's curvature metres before the arc
+(that costs time: every metre of straight planned as arc is a metre driven too slowly).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from scipy.spatial import cKDTree
+
+from benchmarks.exact_roads import wet_road, winding_road
+from curvespeed.geometry import build_geometry
+from curvespeed.route import make_route
+
+#: The bound may fall short of the exact curvature by its own Monte Carlo error (32 noise
+#: replicates: about 1/sqrt(64) = 13 % of a standard deviation, well under 1 % of the bound).
+COVER = 1.01
+
+
+def _points(alignment, noise_m: float, seed: int):
+    s = np.arange(0.0, np.floor(alignment.length_m) + 0.5, 1.0)
+    x, y = alignment.position(s)
+    rng = np.random.default_rng(seed)
+    return x + noise_m * rng.standard_normal(s.size), y + noise_m * rng.standard_normal(s.size)
+
+
+def _geometry(alignment, noise_m: float, seed: int = 0):
+    x, y = _points(alignment, noise_m, seed)
+    return build_geometry(make_route(x, y, source="invented exact road"))
+
+
+def _true_stations(geo, alignment) -> np.ndarray:
+    """Station on the exact road nearest each node (0.05 m resolution)."""
+    s = np.linspace(0.0, alignment.length_m, int(alignment.length_m * 20) + 1)
+    x, y = alignment.position(s)
+    _, j = cKDTree(np.column_stack((x, y))).query(np.column_stack((geo.x_m, geo.y_m)))
+    return s[j]
+
+
+def _step_stations(alignment) -> list[tuple[float, float, float]]:
+    """(station, curvature before, after) of every jump of curvature."""
+    out, s = [], 0.0
+    for a, b in zip(alignment.elements[:-1], alignment.elements[1:]):
+        s += a.length_m
+        if abs(a.end_1pm - b.start_1pm) > 1e-9:
+            out.append((s, a.end_1pm, b.start_1pm))
+    return out
+
+
+#: Known, not caused by the step comparison (the same with it switched off): on the wet road
+#: with 1 cm of noise the bound falls 16 % short 13 m into the clothoid after the R 60 m arc
+#: (a line of the reconstruction trusted across the clothoid's start), with 5 cm 1.3 % short.
+_WET_NOISY = pytest.mark.xfail(strict=True, reason="reconstruction trusts a line across a "
+                               "clothoid's start on noisy points (issue note)")
+
+
+@pytest.mark.parametrize("road, noise_m", [
+    (winding_road, 0.0), (winding_road, 0.01), (winding_road, 0.05), (wet_road, 0.0),
+    pytest.param(wet_road, 0.01, marks=_WET_NOISY), pytest.param(wet_road, 0.05, marks=_WET_NOISY)])
+def test_bound_covers_the_exact_road(road, noise_m):
+    # Exact design points every metre, with white noise of 0, 1 and 5 cm (survey-grade to
+    # RTK-grade): the bound covers the exact curvature at every node, taken as the largest
+    # within the station mapping's resolution (0.1 m) either side.
+    alignment = road()
+    geo = _geometry(alignment, noise_m)
+    st = _true_stations(geo, alignment)
+    exact = np.maximum(np.abs(alignment.curvature(np.maximum(st - 0.1, 0.0))),
+                       np.abs(alignment.curvature(np.minimum(st + 0.1, alignment.length_m))))
+    assert np.all(exact <= COVER * geo.curvature_bound_1pm)
+
+
+@pytest.mark.parametrize("road", [winding_road, wet_road], ids=["winding", "wet"])
+def test_steps_stay_sharp_on_precise_points(road):
+    # On exact points a jump of curvature is placed within a fraction of a metre and the
+    # points tell it from any transition longer than about half the fine scale's spread
+    # (2.7 m here), so within two spread widths (10.8 m; steps.REACH) the bound rises towards
+    # the arc's curvature only within half that length plus one station step of the jump
+    # (the planner holds a node's limit over the step either side): 3 m, not the smoothing's
+    # spread of about +-5 m. On the arc's side it overshoots the arc by at most a few percent
+    # (the lines' uncertainty and what the candidates miss).
+    alignment = road()
+    geo = _geometry(alignment, 0.0)
+    s = geo.station_m
+    for at, before, after in _step_stations(alignment):
+        low, high = sorted((abs(before), abs(after)))
+        side = -1.0 if abs(before) < abs(after) else 1.0       # the straight's side
+        far = (side * (s - at) >= 3.0) & (side * (s - at) <= 10.0)
+        assert np.all(geo.curvature_bound_1pm[far] <= low + 0.1 * (high - low)), at
+        near_arc = (-side * (s - at) >= 0.0) & (-side * (s - at) <= 10.0)
+        assert np.all(geo.curvature_bound_1pm[near_arc] <= 1.05 * high), at
