@@ -80,9 +80,11 @@ def run_case(solver: str, length_km: float, repeats: int) -> dict:
         if solver == "envelope":
             from curvespeed.solvers.envelope import solve_envelope
             result = solve_envelope(problem)
-        elif solver == "convex":
-            from curvespeed.solvers.convex import solve_convex
-            result = solve_convex(problem)
+        elif solver in ("convex", "convex-clarabel"):
+            from curvespeed.solvers import QPBackend
+            from curvespeed.solvers.convex import ConvexOptions, solve_convex
+            backend = QPBackend.CLARABEL if solver == "convex-clarabel" else QPBackend.BANDED
+            result = solve_convex(problem, ConvexOptions(qp_backend=backend))
         elif solver == "cvxpy-baseline":
             from curvespeed.solvers.reference_cvxpy import solve_reference
             result = solve_reference(problem, max_iterations=1)
@@ -99,34 +101,38 @@ def run_case(solver: str, length_km: float, repeats: int) -> dict:
             "peak_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0}
 
 
-def run_replan(variant: str, calls: int, dt: float = 0.1) -> dict:
+def run_replan(variant: str, backend: str, calls: int, dt: float = 0.1) -> dict:
     """Replan a 300 m window ``calls`` times while the vehicle drives the bundled mountain road
     (invented), following each window exactly for ``dt`` seconds until the next call (as the
     README's example does). ``variant``: "converged" (the solver's own stopping test) or
     "one-qp" (one sequential-convex iteration per call from the previous window, max_iterations
-    1). Times the calls, and inside them the QP backend's own calls, to split the time between
-    the QP solver and the Python around it."""
+    1); ``backend``: the QP backend ("banded" or "clarabel"). Times the calls, and inside them
+    the QP backends' own calls, to split the time between the QP solver and the Python around
+    it."""
 
     from curvespeed.geometry import build_geometry
     from curvespeed.io import read_route
     from curvespeed.limits import Limits
     from curvespeed.replan import Replanner
-    from curvespeed.solvers import convex
+    from curvespeed.solvers import QPBackend, convex
     from curvespeed.solvers.convex import ConvexOptions
 
     qp_time = [0.0]
-    solve_qp = convex.solve_qp_clarabel
 
-    def timed(*args, **kwargs):
-        t0 = time.perf_counter()
-        try:
-            return solve_qp(*args, **kwargs)
-        finally:
-            qp_time[0] += time.perf_counter() - t0
+    def timed(solve_qp):
+        def call(*args, **kwargs):
+            t0 = time.perf_counter()
+            try:
+                return solve_qp(*args, **kwargs)
+            finally:
+                qp_time[0] += time.perf_counter() - t0
+        return call
 
-    convex.solve_qp_clarabel = timed
+    convex.solve_qp_clarabel = timed(convex.solve_qp_clarabel)
+    convex.solve_qp_banded = timed(convex.solve_qp_banded)
     geo = build_geometry(read_route(ROOT / "routes" / "mountain_road.csv"))
-    options = ConvexOptions(threads=1, max_iterations=1 if variant == "one-qp" else 30)
+    options = ConvexOptions(threads=1, max_iterations=1 if variant == "one-qp" else 30,
+                            qp_backend=QPBackend(backend))
     t0 = time.perf_counter()
     replanner = Replanner(geo, Limits(), options=options)
     setup = time.perf_counter() - t0
@@ -143,11 +149,75 @@ def run_replan(variant: str, calls: int, dt: float = 0.1) -> dict:
         station = float(np.interp(dt, w.time_s, w.station_m))
         speed = float(np.interp(dt, w.time_s, w.speed_mps))
         accel = float(np.interp(dt, w.time_s, w.accel_mps2))
-    return {"variant": variant, "calls": calls, "stations": int(w.station_m.size),
+    return {"variant": variant, "backend": backend, "calls": calls,
+            "stations": int(w.station_m.size),
             "median_s": statistics.median(times), "p99_s": float(np.percentile(times, 99)),
             "qp_median_s": statistics.median(qps), "iterations": statistics.mean(its),
             "inner": statistics.mean(inner), "setup_s": setup, "relaxed": relaxed,
             "driven_m": station - 600.0}
+
+
+def route_qp(length_km: float, stations: int | None = None):
+    """The first sequential-convex QP of the benchmark road as one QP (not cut into batches),
+    with its centre and scale; ``stations``: only the rows within the first that many free
+    stations (a window of the route, as a receding-horizon planner would solve)."""
+    from curvespeed.limits import Limits
+    from curvespeed.problem import build_problem
+    from curvespeed.solvers.convex import ConvexOptions, _reduce, plateau_anchors
+    from curvespeed.solvers.convex_qp import QPBuilder, QPLayout
+    from curvespeed.solvers.envelope import solve_envelope
+
+    length = length_km * 1000.0
+    problem = build_problem(synthetic_geometry(length), Limits(max_jerk_mps3=2.0,
+                                                               max_speed_mps=27.0),
+                            constraints_for(length))
+    env = solve_envelope(problem)
+    nv = problem.n_nodes
+    lay = QPLayout(problem, jerk=True, anchors=plateau_anchors(problem, env.b, nv))
+    b_env = env.b[:nv].copy()
+    P, q, A, lo, up, obj_scale = QPBuilder(problem, lay, b_env, ConvexOptions()).build(b_env)
+    qp = _reduce(P, q, A, lo, up, lay.fixed, lay.fixed_value)
+    free = np.flatnonzero(qp["free"])
+    P, q, A, lo, up = qp["P"].tocsr(), qp["q"], qp["A"].tocsr(), qp["lo"], qp["up"]
+    if stations is not None:
+        start = free.size // 3               # a window away from the start, past the first zone
+        cols = np.arange(start, start + stations)
+        inside = np.asarray((abs(A[:, cols]).sum(axis=1) > 0)).ravel()
+        outside = np.asarray((abs(A).sum(axis=1)).ravel() - abs(A[:, cols]).sum(axis=1).ravel())
+        rows = np.flatnonzero(inside & (np.asarray(outside).ravel() == 0))
+        P, q, A, lo, up = P[cols][:, cols], q[cols], A[rows][:, cols], lo[rows], up[rows]
+        free = free[cols]
+    gap_abs = ConvexOptions().qp_gap_fraction * float(
+        np.sum(2.0 * problem.ds / (np.sqrt(env.b[:-1]) + np.sqrt(env.b[1:])))) * obj_scale
+    if stations is not None:            # the window's share of the route's gap tolerance
+        gap_abs *= stations / qp["free"].sum()
+    return (P, q, A, lo, up), b_env[free], np.maximum(b_env[free], 1.0), gap_abs
+
+
+def run_qp_case(length_km: float, stations: int | None, repeats: int) -> dict:
+    """Solve one captured QP with both backends, alternating, ``repeats`` times each."""
+    from curvespeed.solvers.banded_ipm import solve_qp_banded
+    from curvespeed.solvers.clarabel_qp import solve_qp_clarabel
+
+    import scipy.sparse as sp
+
+    sub, centre, scale, gap_abs = route_qp(length_km, stations)
+    P, q = sub[0], sub[1]
+    P_scaled = sp.diags(scale) @ P @ sp.diags(scale)       # the objective as both solvers see it
+    out = {"n": P.shape[0], "m": sub[2].shape[0], "stations": stations, "gap_abs": gap_abs}
+    times = {"banded": [], "clarabel": []}
+    for _ in range(repeats):
+        for name, fn, kw in (("banded", solve_qp_banded, {}),
+                             ("clarabel", solve_qp_clarabel, {"refine": False})):
+            t0 = time.perf_counter()
+            x, st, its = fn(*sub, 1e-8, centre, scale, gap_abs=gap_abs, **kw)
+            times[name].append(time.perf_counter() - t0)
+            out[name + "_its"], out[name + "_status"] = its, st.value
+            y = (x - centre) / scale
+            out[name + "_obj"] = float(0.5 * y @ (P_scaled @ y) + (scale * (q + P @ centre)) @ y)
+    for name in times:
+        out[name + "_s"] = statistics.median(times[name])
+    return out
 
 
 def write_route_csv(length_km: float, path: Path) -> None:
@@ -158,7 +228,7 @@ def write_route_csv(length_km: float, path: Path) -> None:
             fh.write(f"{x:.3f},{y:.3f}\n")
 
 
-def process_time(length_km: float, repeats: int) -> float:
+def process_time(length_km: float, repeats: int, backend: str = "banded") -> float:
     """Median wall time of the whole `curvespeed plan` command on a route file."""
     exe = Path(sys.executable).with_name("curvespeed")
     with tempfile.TemporaryDirectory() as tmp:
@@ -167,7 +237,8 @@ def process_time(length_km: float, repeats: int) -> float:
         length = length_km * 1000.0
         args = [str(exe), "plan", str(route), "-o", str(Path(tmp) / "p.csv"), "--force",
                 "--max-speed", "27", "--zone", f"{0.2 * length}:{0.26 * length}:13.9",
-                "--zone", f"{0.7 * length}:{0.8 * length}:16.7", "--stop", str(round(length / 2))]
+                "--zone", f"{0.7 * length}:{0.8 * length}:16.7", "--stop", str(round(length / 2)),
+                "--qp-backend", backend]
         times = []
         for _ in range(repeats):
             t0 = time.perf_counter()
@@ -181,32 +252,49 @@ def main() -> None:
     parser.add_argument("--quick", action="store_true", help="10 km cases only")
     parser.add_argument("--case", nargs=3, metavar=("SOLVER", "KM", "REPEATS"),
                         help=argparse.SUPPRESS)
-    parser.add_argument("--replan", nargs=2, metavar=("VARIANT", "CALLS"), help=argparse.SUPPRESS)
+    parser.add_argument("--replan", nargs=3, metavar=("VARIANT", "BACKEND", "CALLS"),
+                        help=argparse.SUPPRESS)
+    parser.add_argument("--qp-case", nargs=3, metavar=("KM", "STATIONS", "REPEATS"),
+                        help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.case:
         print(json.dumps(run_case(args.case[0], float(args.case[1]), int(args.case[2]))))
         return
     if args.replan:
-        print(json.dumps(run_replan(args.replan[0], int(args.replan[1]))))
+        print(json.dumps(run_replan(args.replan[0], args.replan[1], int(args.replan[2]))))
+        return
+    if args.qp_case:
+        stations = int(args.qp_case[1]) or None
+        print(json.dumps(run_qp_case(float(args.qp_case[0]), stations, int(args.qp_case[2]))))
         return
 
-    cases = [("envelope", 10, 5), ("convex", 10, 5), ("cvxpy-baseline", 10, 1)]
+    cases = [("envelope", 10, 5), ("convex", 10, 5), ("convex-clarabel", 10, 5),
+             ("cvxpy-baseline", 10, 1)]
     if not args.quick:
-        cases += [("envelope", 100, 3), ("convex", 100, 3)]
+        cases += [("envelope", 100, 3), ("convex", 100, 3), ("convex-clarabel", 100, 3)]
+    qp_cases = [(10, 0, 7), (10, 300, 51)]
     rows = []
     for solver, km, reps in cases:
         out = subprocess.run([sys.executable, __file__, "--case", solver, str(km), str(reps)],
                              check=True, capture_output=True, text=True, cwd=ROOT)
         rows.append(json.loads(out.stdout.strip().splitlines()[-1]))
         print(f"  done: {solver} {km} km", file=sys.stderr)
+    qp_rows = []
+    for km, stations, reps in qp_cases:
+        out = subprocess.run([sys.executable, __file__, "--qp-case", str(km), str(stations),
+                              str(reps)], check=True, capture_output=True, text=True, cwd=ROOT)
+        qp_rows.append(json.loads(out.stdout.strip().splitlines()[-1]))
+        print(f"  done: QP {km} km {stations or 'whole route'}", file=sys.stderr)
     replans = []
     for variant in ("converged", "one-qp"):
-        out = subprocess.run([sys.executable, __file__, "--replan", variant,
-                              "100" if args.quick else "300"],
-                             check=True, capture_output=True, text=True, cwd=ROOT)
-        replans.append(json.loads(out.stdout.strip().splitlines()[-1]))
-        print(f"  done: replan {variant}", file=sys.stderr)
+        for backend in ("banded", "clarabel"):
+            out = subprocess.run([sys.executable, __file__, "--replan", variant, backend,
+                                  "100" if args.quick else "300"],
+                                 check=True, capture_output=True, text=True, cwd=ROOT)
+            replans.append(json.loads(out.stdout.strip().splitlines()[-1]))
+            print(f"  done: replan {variant} {backend}", file=sys.stderr)
     proc = process_time(10, 3)
+    proc_clarabel = process_time(10, 3, "clarabel")
     base = next(r["solve_s"] for r in rows if r["solver"] == "cvxpy-baseline")
     conv10 = next(r["solve_s"] for r in rows if r["solver"] == "convex" and r["stations"] < 20000)
 
@@ -214,23 +302,43 @@ def main() -> None:
     print(f"{'stations':>9} {'solver':>15} {'iter':>9} {'solve s':>9} {'process s':>10} "
           f"{'peak MB':>8} {'gap %':>7} {'baseline/this':>14}")
     for r in rows:
-        p = f"{proc:.2f}" if (r["solver"] == "convex" and r["stations"] < 20000) else "-"
+        p = "-"
+        if r["stations"] < 20000 and r["solver"] in ("convex", "convex-clarabel"):
+            p = f"{proc if r['solver'] == 'convex' else proc_clarabel:.2f}"
         print(f"{r['stations']:>9} {r['solver']:>15} {r['iterations']:>4}/{r['inner']:<4} "
               f"{r['solve_s']:>9.3f} {p:>10} {r['peak_mb']:>8.0f} {100 * r['gap']:>7.3f} "
               f"{base / r['solve_s']:>14.1f}")
     print("\nreceding-horizon replanning, 300 m windows (301 stations) along the bundled "
           "mountain road, the vehicle following each window for 0.1 s; targets: median 5 ms, "
           "p99 15 ms")
-    print(f"{'variant':>10} {'calls':>6} {'median ms':>10} {'p99 ms':>8} {'QP ms':>7} "
-          f"{'other ms':>9} {'SCP it':>7} {'QP it':>6} {'relaxed':>8} {'setup s':>8}")
+    print(f"{'variant':>10} {'backend':>9} {'calls':>6} {'median ms':>10} {'p99 ms':>8} "
+          f"{'QP ms':>7} {'other ms':>9} {'SCP it':>7} {'QP it':>6} {'relaxed':>8} "
+          f"{'setup s':>8}")
     for r in replans:
-        print(f"{r['variant']:>10} {r['calls']:>6} {1e3 * r['median_s']:>10.1f} "
+        print(f"{r['variant']:>10} {r['backend']:>9} {r['calls']:>6} {1e3 * r['median_s']:>10.1f} "
               f"{1e3 * r['p99_s']:>8.1f} {1e3 * r['qp_median_s']:>7.1f} "
               f"{1e3 * (r['median_s'] - r['qp_median_s']):>9.1f} {r['iterations']:>7.2f} "
               f"{r['inner']:>6.1f} {r['relaxed']:>8} {r['setup_s']:>8.2f}")
     big = [r for r in rows if r["solver"] == "convex" and r["stations"] > 20000]
     if big:
         print(f"\nconvex 100 km / 10 km solve-time ratio: {big[0]['solve_s'] / conv10:.1f}")
+    print("\nQP backends, whole jerk-bounded solve (same run): Clarabel time / banded time")
+    for km in sorted({r["stations"] for r in rows if r["solver"] == "convex"}):
+        b = next(r for r in rows if r["solver"] == "convex" and r["stations"] == km)
+        c = next(r for r in rows if r["solver"] == "convex-clarabel" and r["stations"] == km)
+        print(f"{km:>9} stations: banded {b['solve_s']:.3f} s ({b['inner']} QP iterations), "
+              f"Clarabel {c['solve_s']:.3f} s ({c['inner']}), ratio {c['solve_s'] / b['solve_s']:.1f}")
+    print("\nOne QP (the first iteration's, 10 km road), both backends alternating, medians:")
+    print(f"{'QP':>12} {'n':>6} {'rows':>7} {'banded ms':>10} {'its':>4} {'Clarabel ms':>12} "
+          f"{'its':>4} {'ratio':>6} {'|objective diff| / gap tol.':>28}")
+    for r in qp_rows:
+        name = f"{r['stations']} st." if r["stations"] else "whole route"
+        # both stop once the duality gap is below gap_abs, so their objectives may differ by
+        # about that much; a ratio well below 1 is agreement to the tolerance asked for
+        diff = abs(r["banded_obj"] - r["clarabel_obj"]) / r["gap_abs"]
+        print(f"{name:>12} {r['n']:>6} {r['m']:>7} {1e3 * r['banded_s']:>10.2f} "
+              f"{r['banded_its']:>4} {1e3 * r['clarabel_s']:>12.2f} {r['clarabel_its']:>4} "
+              f"{r['clarabel_s'] / r['banded_s']:>6.1f} {diff:>28.2f}")
 
 
 if __name__ == "__main__":

@@ -30,9 +30,9 @@ from curvespeed.cli.main import cli
 HANG_S = 60
 
 
-def run(*args):
+def run(*args, hang_s: int = HANG_S):
     """Run ``curvespeed ARGS`` in this process; the result has exit_code and output."""
-    with no_hang():
+    with no_hang(hang_s):
         return CliRunner().invoke(cli, [str(a) for a in args])
 
 

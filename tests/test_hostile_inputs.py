@@ -484,7 +484,9 @@ def test_a_million_points_are_read_and_fitted(tmp_path):
     route = write(tmp_path, "long.csv", text + "\n")
     out = tmp_path / "g.csv"
     before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
-    result = run("route", route, "--spacing", "10", "-o", out)
+    # a hang is what is guarded against, not speed: about 40 s of work on a quiet 2-core
+    # machine, so allow for a loaded one
+    result = run("route", route, "--spacing", "10", "-o", out, hang_s=300)
     grown_mb = (resource.getrusage(resource.RUSAGE_SELF).ru_maxrss - before) / 1024.0
     assert result.exit_code == 0, result.output
     assert "points read    1000000" in result.output
@@ -682,6 +684,20 @@ def test_profile_cut_off_mid_line_is_refused_by_export_and_plot(command, output,
     result = run(command, cut, "-o", out)
     assert_refused(result, tmp_path, cut, [f"line {last_line}:", "the file looks cut short"],
                    outputs=[out])
+
+
+def test_profile_cut_inside_its_last_column_is_refused_as_cut_short(tmp_path):
+    # Cut three characters before the end of a row whose step is a constant acceleration: as
+    # many cells as the header names, but the step kind is cut off mid-word.
+    _, profile = _planned(tmp_path)
+    lines = profile.read_text().splitlines(keepends=True)
+    k = next(i for i, line in enumerate(lines) if i > 20 and line.rstrip().endswith(
+        ",constant_accel"))
+    cut = write(tmp_path, "cut.csv", "".join(lines[:k]) + lines[k].rstrip()[:-3])
+    out = tmp_path / "trajectory.csv"
+    result = run("export", cut, "-o", out)
+    assert_refused(result, tmp_path, cut, [f"line {k + 1}:", "'constant_ac'",
+                                           "the file looks cut short"], outputs=[out])
 
 
 def test_speeds_file_from_a_european_spreadsheet_checks_the_same(tmp_path):

@@ -335,16 +335,25 @@ class SpeedProblem:
         hi_b = np.minimum(self.cap_b, _UNBOUNDED).astype(float)
         lo_a, hi_a = self.accel_bounds(hi_b)
         ok = lo_a <= hi_a
+        # Only the nodes whose cap is out of reach are bisected (on a road mostly straight,
+        # a small share): the same arithmetic per node as bisecting all of them at once, and
+        # the same stopping test (the capped nodes' part of it does not change, so it is
+        # evaluated once).
+        todo = np.flatnonzero(~ok)
+        capped_done = bool(np.all((hi_b - lo_b <= 1e-12 * np.maximum(hi_b, 1.0))[ok]))
+        lo_t, hi_t = lo_b[todo], hi_b[todo]
         for _ in range(iterations):
-            if ok.all():
+            if todo.size == 0:
                 break
-            mid = np.where(ok, hi_b, 0.5 * (lo_b + hi_b))
-            la, ha = self.accel_bounds(mid)
+            mid = 0.5 * (lo_t + hi_t)
+            la, ha = self.accel_bounds(mid, nodes=todo)
             good = la <= ha
-            lo_b = np.where(~ok & good, mid, lo_b)
-            hi_b = np.where(~ok & ~good, mid, hi_b)
-            if (hi_b - lo_b <= 1e-12 * np.maximum(hi_b, 1.0)).all():
+            lo_t = np.where(good, mid, lo_t)
+            hi_t = np.where(~good, mid, hi_t)
+            if capped_done and (hi_t - lo_t <= 1e-12 * np.maximum(hi_t, 1.0)).all():
                 break
+        lo_b[todo] = lo_t
+        hi_b[todo] = hi_t
         return np.where(ok, hi_b, lo_b)
 
 

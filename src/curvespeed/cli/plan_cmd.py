@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from ..solvers import SolverKind
+from ..solvers import QPBackend, SolverKind
 from ._common import FINITE, echo, geometry_options, handle_errors, register_drives
 from ._limits import constraint_options, limit_override_options, limits_and_geometry
 
@@ -22,6 +22,10 @@ from ._limits import constraint_options, limit_override_options, limits_and_geom
                    "minimum time within the jerk bounds; 'envelope' (default otherwise): exact "
                    "forward-backward method, no jerk bound; 'convex-reference': the convex "
                    "program modelled in cvxpy (slow, for cross-checks).")
+@click.option("--qp-backend", type=click.Choice([b.value for b in QPBackend]), default=None,
+              help="Convex solver: what solves each QP. 'banded' (default): the banded "
+                   "interior-point method, handing any QP it cannot solve to Clarabel (noted in "
+                   "the sidecar); 'clarabel': Clarabel alone.")
 @click.option("--comfort-weight", type=FINITE, default=0.0, show_default=True, metavar="W",
               help="Convex solver: weight on squared changes of acceleration, s/(m/s^2)^2; "
                    "0 is pure minimum time.")
@@ -32,7 +36,7 @@ from ._limits import constraint_options, limit_override_options, limits_and_geom
 @limit_override_options
 @constraint_options
 @handle_errors
-def plan(route_file, limits_file, output, meta_file, solver, comfort_weight, plot_file, force,
+def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort_weight, plot_file, force,
          spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed, part,
          drives, all_tracks, zones, stops, superelevations, start_speed, end_speed,
          **overrides):
@@ -74,10 +78,11 @@ def plan(route_file, limits_file, output, meta_file, solver, comfort_weight, plo
 
         kind = SolverKind(solver) if solver else None
         options = None
-        if comfort_weight:
+        if comfort_weight or qp_backend:
             from ..solvers.convex import ConvexOptions
 
-            options = ConvexOptions(comfort_weight=comfort_weight)
+            options = ConvexOptions(comfort_weight=comfort_weight,
+                                    **({"qp_backend": QPBackend(qp_backend)} if qp_backend else {}))
         # resolve_limits validated the limits and warned, naming the file or the command line
         profile = plan_profile(geo, limits, constraints, kind, options, warn_limits=False)
         echo(summarise(route_file, profile, limits, origin))

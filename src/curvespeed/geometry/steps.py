@@ -31,7 +31,10 @@ import numpy as np
 #: Transition lengths tried, in smoothing spread widths (0: a jump). A transition as long as the
 #: spread is resolved by the fine scale and read as its own element by the alignment.
 LENGTHS = (0.0, 0.05, 0.1, 0.15, 0.2, 0.25, 0.3, 0.4, 0.5, 0.6, 0.8, 1.0)
-#: Centres tried: every this many metres within the step's location uncertainty (and one metre).
+#: Centres tried: within the step's location uncertainty (and one metre), every
+#: CENTRE_FRACTION of the spread width but at most every 0.1 m (on exact 1 m points the fit
+#: already separates centres 0.25 m apart by 5 standard deviations).
+CENTRE_FRACTION = 0.02
 CENTRE_STEP_M = 0.1
 #: A transition is compared only where its jump is at least this many times what the
 #: comparison can tell apart (``gamma`` standard deviations of the fine curvature): where noise
@@ -46,12 +49,16 @@ RESOLVED = 4.0
 #: with 5 cm of noise on the winding road let a line fitted across a straight and a clothoid
 #: set the bound 3 % short of the clothoid 58 m past the step (tests/test_reference_steps.py).
 REACH = 2.0
+#: Largest number of (point, candidate) pairs one transition is compared on, about 0.5 s;
+#: denser logs (a fix every 0.2 m planned at 10 m stations) keep the bound they had.
+MAX_WORK = 3_000_000
 #: Coefficients solved for beyond the compared window, in spread widths (each about four
 #: smoothing lengths; the smoother's influence falls by about e^-1 per smoothing length).
 MARGIN = 2.0
-#: Integration step for the candidates' positions, metres (their curvature is piecewise linear;
-#: the trapezoid rule on heading and position is exact to O(h^2 kappa^2) per metre, ~1e-8 m).
-GRID_M = 0.05
+#: Integration step for the candidates' positions, in spread widths (their curvature is
+#: piecewise linear; the trapezoid rule on heading and position errs by O(h^2 kappa^2) per
+#: metre: at 1 % of a 5 m spread and R 60 m, under 1e-7 m over the window).
+GRID_FRACTION = 0.01
 
 
 @dataclass(frozen=True)
@@ -62,6 +69,8 @@ class ConfirmedSteps:
     explained: np.ndarray
     bound: np.ndarray
     kappa: np.ndarray        # the best-fitting candidate's curvature there (NaN elsewhere)
+    spread_m: float = 0.0    # the fine scale's spread width they were compared at
+    centres: tuple = ()      # (centre m, how far it may be off m) of each explained transition
 
 
 @dataclass(frozen=True)
@@ -88,6 +97,7 @@ def confirm_steps(rebuilt, fine: FineScale, u_points: np.ndarray, values: np.nda
     explained = np.zeros(n, dtype=bool)
     bound = np.full(n, np.nan)
     best = np.full(n, np.nan)
+    centres = []
     point_station = np.interp(u_points, u_nodes, station)
     edges = np.concatenate(([-np.inf], rebuilt.breaks_m, [np.inf]))
     for left, right, centre, reach in _transitions(rebuilt, edges, fine.spread_m):
@@ -96,6 +106,10 @@ def confirm_steps(rebuilt, fine: FineScale, u_points: np.ndarray, values: np.nda
                 RESOLVED * gamma * float(np.max(fine.sd[near.evaluate]))):
             continue
         cands = near.candidates(reach)
+        in_window = np.count_nonzero((point_station >= near.grid[0])
+                                     & (point_station <= near.grid[-1]))
+        if in_window * cands.shape[1] > MAX_WORK:
+            continue        # too dense a log for the comparison: the bound stays as it was
         misfit = _misfit(near, cands, fine, u_points, point_station, values, weight, u_nodes)
         z = np.max(np.abs(misfit) / fine.sd[near.evaluate][:, None], axis=0)
         ok = z <= gamma
@@ -113,10 +127,23 @@ def confirm_steps(rebuilt, fine: FineScale, u_points: np.ndarray, values: np.nda
         half = math.ceil(0.25 * fine.spread_m / ds)
         missed = np.maximum(_moving_mean(-sign * misfit[:, ok], max(1, half)), 0.0)
         explained[at] = True
+        centres.append((centre, reach))
         bound[at] = np.max(own + missed, axis=1) + gamma * near.line_sd(rebuilt.sd, station)
         fit = near.curvature(cands[:, [int(np.argmin(z))]])[:, 0]
         best[at] = np.interp(station[at], near.grid, fit)
-    return ConfirmedSteps(explained, bound, best)
+    return ConfirmedSteps(explained, bound, best, fine.spread_m, tuple(centres))
+
+
+def transition_zone(confirmed: ConfirmedSteps, station: np.ndarray,
+                    width: np.ndarray) -> np.ndarray:
+    """Stations within ``width`` (per station: the adaptive estimate's spread, taken where
+    the transition is) of where an explained transition may lie: its smear and ringing reach
+    that far in the adaptive estimate."""
+    mask = np.zeros(station.size, dtype=bool)
+    for centre, reach in confirmed.centres:
+        at = min(int(np.searchsorted(station, centre)), station.size - 1)
+        mask |= np.abs(station - centre) <= reach + width[at]
+    return mask
 
 
 def _transitions(rebuilt, edges: np.ndarray, spread: float):
@@ -153,7 +180,8 @@ class _Step:
         self.right = (ib + sb * (self.b - x0) / ds, sb / ds)
         # beyond the two elements the reconstruction's own curvature (neighbouring kinks)
         self.reach = 1.5 * spread                  # the smoother's reach past the compared nodes
-        self.grid = np.arange(lo - self.reach, hi + self.reach + GRID_M, GRID_M)
+        self.h = GRID_FRACTION * spread
+        self.grid = np.arange(lo - self.reach, hi + self.reach + self.h, self.h)
         self.outside = np.interp(self.grid, station, rebuilt.kappa)
         self.inside = (self.grid >= edges[left]) & (self.grid <= edges[right + 1])
 
@@ -173,7 +201,8 @@ class _Step:
     def candidates(self, reach_m: float) -> np.ndarray:
         """(2, K): transition length and centre offset (m) of every candidate."""
         half = max(reach_m, 1.0)
-        offsets = np.arange(-half, half + 1e-9, CENTRE_STEP_M)
+        step = max(CENTRE_STEP_M, CENTRE_FRACTION * self.spread)
+        offsets = np.arange(-half, half + 1e-9, step)
         lengths = np.array(LENGTHS) * self.spread
         L, c = np.meshgrid(lengths, offsets, indexing="ij")
         return np.vstack((L.ravel(), c.ravel()))
@@ -195,7 +224,7 @@ def _misfit(near: _Step, cands, fine: FineScale, u_points, point_station, values
             u_nodes) -> np.ndarray:
     """(nodes, K) smoothed curvature of each candidate minus the points' smoothed curvature."""
     kappa = near.curvature(cands)
-    h = GRID_M
+    h = near.h
     heading = np.vstack((np.zeros(kappa.shape[1]),
                          np.cumsum(0.5 * h * (kappa[1:] + kappa[:-1]), axis=0)))
     cos, sin = np.cos(heading), np.sin(heading)

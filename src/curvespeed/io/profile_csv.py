@@ -199,11 +199,13 @@ def read_step_kinds(table: Table) -> np.ndarray | None:
     bad = np.flatnonzero(~valid)
     if bad.size:
         k = int(bad[0])
+        cut = (" (the last line has no line end: the file looks cut short; write it again)"
+               if table.unterminated and k == kinds.size - 1 else "")
         raise SpeedFileError(
             f"{table.source}: {table.where[k]}: column 'step_kind' value '{kinds[k]}' is not a "
-            f"step kind; use {', '.join(allowed[:-1])} or {allowed[-1]} for the step from that "
-            "station to the next (empty on the last row), or remove the column to have the "
-            "steps recognised from time_s")
+            f"step kind{cut}; use {', '.join(allowed[:-1])} or {allowed[-1]} for the step from "
+            "that station to the next (empty on the last row), or remove the column to have "
+            "the steps recognised from time_s")
     return kinds[:-1]
 
 

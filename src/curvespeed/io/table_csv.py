@@ -70,11 +70,14 @@ class Table:
         1-based file line of each row, for messages.
     source : str
         The file name as given.
+    unterminated : bool
+        The last row's line has no line end (a file cut short mid-line looks like that).
     """
 
     columns: dict
     lines: np.ndarray
     source: str
+    unterminated: bool = False
 
     def __len__(self) -> int:
         return int(self.lines.size)
@@ -160,7 +163,10 @@ def read_table_csv(path: str | os.PathLike, min_rows: int = 2) -> Table:
     if sep != ",":
         warnings.warn(separator_warning(source, header_line, sep, decimal_comma, ""),
                       CurvespeedWarning, stacklevel=2)
-    return Table(columns=columns, lines=np.asarray(lines), source=source)
+    last = text.replace("\r\n", "\n").replace("\r", "\n").rstrip(" \t")
+    return Table(columns=columns, lines=np.asarray(lines), source=source,
+                 unterminated=bool(lines) and not last.endswith("\n")
+                 and len(split_lines(last)) == lines[-1])
 
 
 def _check_range(source: str, name: str, values: np.ndarray, lines: list[int]) -> None:

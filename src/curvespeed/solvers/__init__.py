@@ -41,6 +41,17 @@ class SolverKind(enum.Enum):
         return self is not SolverKind.ENVELOPE
 
 
+class QPBackend(enum.Enum):
+    """Which method solves the convex solver's QPs.
+
+    ``banded``: the banded Mehrotra predictor-corrector method of :mod:`.banded_ipm` (compiled;
+    any answer short of optimal is handed to Clarabel). ``clarabel``: Clarabel alone.
+    """
+
+    BANDED = "banded"
+    CLARABEL = "clarabel"
+
+
 @dataclass(frozen=True)
 class SolveResult:
     """What a solver returns.

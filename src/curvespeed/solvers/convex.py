@@ -55,7 +55,8 @@ import numpy as np
 from ..diagnose import stop_out_of_reach
 from ..errors import CurvespeedWarning, InfeasibleError, SolverError
 from ..problem import SpeedProblem
-from . import SolveResult, SolveStatus
+from . import QPBackend, SolveResult, SolveStatus
+from .banded_ipm import KERNEL_AVAILABLE, solve_qp_banded
 from .clarabel_qp import solve_qp_clarabel
 from .convex_qp import QPBuilder, QPLayout
 from .envelope import solve_envelope
@@ -83,7 +84,10 @@ class ConvexOptions:
         where that chord is within this of the limit at the current iterate, m/s^2. Chords are
         always inside the limit, so this only trades a little optimality for a smaller QP.
     qp_tolerance : float
-        Feasibility and relative gap tolerance of each QP solve (Clarabel).
+        Feasibility and relative gap tolerance of each QP solve.
+    qp_backend : QPBackend
+        What solves each QP: the banded interior-point method (:mod:`.banded_ipm`), whose
+        answers short of optimal go to Clarabel (and are noted), or Clarabel alone.
     qp_gap_fraction : float
         A QP solve also ends once its duality gap, in seconds, is below this fraction of the
         envelope's route time (a thousandth of ``rel_improvement``: finer than the stopping test
@@ -104,6 +108,7 @@ class ConvexOptions:
     margin: float = 1e-5
     chord_tolerance_mps2: float = 1e-3
     qp_tolerance: float = 1e-8
+    qp_backend: QPBackend = QPBackend.BANDED
     qp_gap_fraction: float = 1e-7
     threads: int | None = None
     anchor_plateaus: bool = True
@@ -269,18 +274,28 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
             # part of its answer is that block's own optimum, while the fixed cost of a solver
             # call is paid once per batch rather than once per block. The batches follow from
             # the blocks' sizes alone, so every thread count solves the very same QPs; the worker
-            # threads share them out (Clarabel releases the interpreter lock while it solves).
+            # threads share them out (both QP backends release the interpreter lock while they
+            # solve).
             gap_abs = options.qp_gap_fraction * t_total * qp["scale"]
             jobs = []
-            for batch in _batches(np.flatnonzero(active), blocks):
+            batches = _batches(np.flatnonzero(active), blocks)
+            # each batch's rows, in their order, from one stable sort by batch (a search of
+            # every row per batch grew with the square of the route's length)
+            batch_of = np.full(len(blocks), -1)
+            for j, batch in enumerate(batches):
+                batch_of[batch] = j
+            row_batch = batch_of[row_block]
+            by_batch = np.argsort(row_batch, kind="stable")
+            cuts = np.searchsorted(row_batch[by_batch], np.arange(len(batches) + 1))
+            for j, batch in enumerate(batches):
                 cols = np.concatenate([blocks[k] for k in batch])
-                rows = np.flatnonzero(np.isin(row_block, batch))
+                rows = by_batch[cuts[j]:cuts[j + 1]]
                 sub = (P[cols][:, cols], qp["q"][cols], A[rows][:, cols], qp["lo"][rows],
                        qp["up"][rows])
                 glob = free_idx[cols]
                 centre, scale = b_hat[glob], np.maximum(b_env[glob], 1.0)
                 job = pool.submit(_solve_batch, sub, options.qp_tolerance, gap_abs, centre,
-                                  scale)
+                                  scale, options.qp_backend)
                 jobs.append((batch, cols, glob, job))
             for batch, cols, glob, job in jobs:
                 x, st, its, retry_notes = job.result()
@@ -357,12 +372,27 @@ def _batches(block_ids, blocks):
     return out
 
 
-def _solve_batch(sub, tolerance: float, gap_abs: float, centre, scale):
+def _solve_batch(sub, tolerance: float, gap_abs: float, centre, scale,
+                 backend: QPBackend = QPBackend.CLARABEL):
     """Solve one batch's QP, retrying before an answer is accepted; returns (x, status,
-    interior-point iterations, notes on retries)."""
+    interior-point iterations, notes on retries and fallbacks).
+
+    With the banded backend an optimal answer is taken as it is; anything else (iteration
+    limit, numerical trouble, an infeasibility certificate, no compiled kernel) goes to
+    Clarabel, which decides, and the hand-over is noted."""
     notes = []
-    x, st, its = solve_qp_clarabel(*sub, tolerance, centre, scale, refine=False,
+    its = 0
+    if backend is QPBackend.BANDED:
+        x, st, its = solve_qp_banded(*sub, tolerance, centre, scale, gap_abs=gap_abs)
+        if st is SolveStatus.OPTIMAL:
+            return x, st, its, notes
+        notes.append(f"the banded QP solver returned {st.value} after {its} iterations"
+                     + ("" if KERNEL_AVAILABLE else " (its compiled kernel is "
+                        "missing: reinstall with a C compiler)")
+                     + "; solved with Clarabel")
+    x, st, more = solve_qp_clarabel(*sub, tolerance, centre, scale, refine=False,
                                     gap_abs=gap_abs)
+    its += more
     if st is not SolveStatus.OPTIMAL:
         # the fast setting's answer is not trusted: solve again with Clarabel's defaults
         x, st, more = solve_qp_clarabel(*sub, tolerance, centre, scale)

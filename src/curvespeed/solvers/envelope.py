@@ -27,6 +27,11 @@ from ..errors import InfeasibleError
 from ..problem import SpeedProblem, check_start_end
 from . import SolveResult, SolveStatus
 
+try:
+    from . import _envelope_passes as _compiled
+except ImportError:             # built by pip install with a C compiler; the Python passes below
+    _compiled = None            # are the same method (and the reference the tests compare with)
+
 _INF = math.inf
 
 
@@ -36,11 +41,12 @@ class _Nodes:
     def __init__(self, p: SpeedProblem):
         lim = p.limits
         g = lim.gravity_mps2
-        self.lat1 = (p.kappa_abs * p.cos_bank).tolist()           # felt lateral = lat1 b - lat0
-        self.lat0 = (g * p.sin_bank).tolist()
-        self.n0 = (g * p.cos_grade * p.cos_bank).tolist()          # normal = n0 + n1 b
-        self.n1 = (p.kappa_abs * p.sin_bank).tolist()
-        self.r0 = (g * p.sin_grade + lim.rolling_resistance_coefficient * g * p.cos_grade).tolist()
+        arrays = (p.kappa_abs * p.cos_bank,                         # felt lateral = lat1 b - lat0
+                  g * p.sin_bank,
+                  g * p.cos_grade * p.cos_bank,                     # normal = n0 + n1 b
+                  p.kappa_abs * p.sin_bank,
+                  g * p.sin_grade + lim.rolling_resistance_coefficient * g * p.cos_grade)
+        self.arrays = tuple(np.ascontiguousarray(a, dtype=float) for a in arrays)
         self.cd = lim.drag_per_b_1pm                               # resistance = r0 + cd b
         self.a_acc = lim.max_accel_mps2
         self.a_dec = lim.max_decel_mps2
@@ -49,6 +55,15 @@ class _Nodes:
         self.muy = lim.mu_lat
         self.pm = lim.power_per_mass_wpkg
         self.h = 1.0 / (2.0 * p.ds)                                # a = h (b_next - b_prev)
+
+    def __getattr__(self, name: str):
+        """The per-node lists, made on first use (the compiled passes take the arrays)."""
+        names = ("lat1", "lat0", "n0", "n1", "r0")
+        if name not in names:
+            raise AttributeError(name)
+        for key, arr in zip(names, self.arrays):
+            self.__dict__[key] = arr.tolist()
+        return self.__dict__[name]
 
     def bounds(self, k: int, b: float) -> tuple[float, float]:
         """Acceleration interval at node k for squared speed b (scalar twin of accel_bounds)."""
@@ -159,11 +174,31 @@ def _reach_backward(nd: _Nodes, i: int, b_next: float) -> float:
     return best
 
 
-def _forward_pass(nd: _Nodes, ceiling: list, b0: float, order: list) -> list:
+def _compiled_pass(direction: int, nd: _Nodes, ceiling, b_end: float, order) -> np.ndarray:
+    """One pass in the compiled twin (``_envelope_passes.c``) of the Python passes below."""
+    out = np.empty(len(order))
+    _compiled.run_pass(direction, *nd.arrays, (nd.cd, nd.a_acc, nd.a_dec, nd.a_lat, nd.mux,
+                                               nd.muy, nd.pm, nd.h),
+                       np.ascontiguousarray(ceiling, dtype=float), float(b_end),
+                       np.ascontiguousarray(order, dtype=np.int64), out)
+    return out
+
+
+def _as_list(values) -> list:
+    return values if isinstance(values, list) else np.asarray(values).tolist()
+
+
+def _forward_pass(nd: _Nodes, ceiling: list, b0: float, order: list,
+                  compiled: bool = True) -> list:
     """Forward pass over node indices ``order`` from squared speed ``b0``.
 
-    ``ceiling`` is indexed by position in ``order``.
+    ``ceiling`` is indexed by position in ``order`` (lists or arrays). ``compiled=False`` runs
+    this Python loop even where the compiled twin is built (the tests compare the two); it
+    returns a list, the compiled twin an array.
     """
+    if compiled and _compiled is not None:
+        return _compiled_pass(1, nd, ceiling, b0, order)
+    ceiling, order = _as_list(ceiling), _as_list(order)
     out = [0.0] * len(order)
     b = out[0] = b0
     for m in range(1, len(order)):
@@ -177,11 +212,15 @@ def _forward_pass(nd: _Nodes, ceiling: list, b0: float, order: list) -> list:
     return out
 
 
-def _backward_pass(nd: _Nodes, ceiling: list, b_last: float, order: list) -> list:
+def _backward_pass(nd: _Nodes, ceiling: list, b_last: float, order: list,
+                   compiled: bool = True) -> list:
     """Backward pass over ``order`` (driving order) ending at squared speed ``b_last``.
 
-    ``ceiling`` is indexed by position in ``order``.
+    ``ceiling`` is indexed by position in ``order``; ``compiled`` as for :func:`_forward_pass`.
     """
+    if compiled and _compiled is not None:
+        return _compiled_pass(-1, nd, ceiling, b_last, order)
+    ceiling, order = _as_list(ceiling), _as_list(order)
     cnt = len(order)
     out = [0.0] * cnt
     b = out[-1] = b_last
@@ -207,8 +246,8 @@ def solve_envelope(problem: SpeedProblem) -> SolveResult:
     nd = _Nodes(problem)
     n = problem.n_nodes
     if not problem.closed:
-        order = list(range(n))
-        fwd = _forward_pass(nd, ceiling_arr.tolist(), problem.b_start, order)
+        order = np.arange(n)
+        fwd = _forward_pass(nd, ceiling_arr, problem.b_start, order)
         if fwd[-1] < problem.b_end * (1 - 1e-9) - 1e-12:
             raise InfeasibleError(
                 f"{problem.source}: end speed {math.sqrt(problem.b_end):.2f} m/s cannot be reached: the fastest "
@@ -238,12 +277,11 @@ def brake_reach(problem: SpeedProblem, ceiling_b: np.ndarray) -> np.ndarray:
     ceiling = np.asarray(ceiling_b, dtype=float)
     n = problem.n_nodes
     if not problem.closed:
-        order = list(range(n))
-        return np.asarray(_backward_pass(nodes, ceiling.tolist(), float(ceiling[-1]), order))
+        return np.asarray(_backward_pass(nodes, ceiling, float(ceiling[-1]), np.arange(n)))
     m = n - 1
-    order = list(range(m)) * 2 + [0]
-    out = _backward_pass(nodes, ceiling[order].tolist(), float(ceiling[0]), order)
-    return np.asarray(out[:m] + [out[0]])
+    order = np.concatenate((np.arange(m), np.arange(m), [0]))
+    out = np.asarray(_backward_pass(nodes, ceiling[order], float(ceiling[0]), order))
+    return np.append(out[:m], out[0])
 
 
 def window_envelope(problem: SpeedProblem, ceiling_b: np.ndarray, b_start: float,
@@ -269,8 +307,8 @@ def _solve_periodic(problem: SpeedProblem, nd: _Nodes, ceiling_arr: np.ndarray,
     """Periodic passes on a closed route; node n-1 is node 0 again."""
     m = problem.n_nodes - 1                       # distinct nodes
     start = int(np.argmin(ceiling_arr[:m]))
-    order = [(start + k) % m for k in range(m + 1)]   # driving order, ends where it starts
-    ceil_rot = ceiling_arr[order].tolist()
+    order = (start + np.arange(m + 1)) % m             # driving order, ends where it starts
+    ceil_rot = ceiling_arr[order]
     b0 = ceil_rot[0]
     laps = 0
     for laps in range(1, max_laps + 1):
