@@ -296,10 +296,11 @@ def window_envelope(problem: SpeedProblem, ceiling_b: np.ndarray, b_start: float
     (:mod:`curvespeed.replan`), which take their ceilings from the whole route's once.
     """
     nodes = _Nodes(problem)
-    order = list(range(problem.n_nodes))
-    fwd = _forward_pass(nodes, np.asarray(ceiling_b, dtype=float).tolist(), float(b_start), order)
-    last = fwd[-1] if b_end is None else min(float(b_end), fwd[-1])
-    return np.asarray(fwd), np.asarray(_backward_pass(nodes, fwd, last, order))
+    order = np.arange(problem.n_nodes)
+    fwd = np.asarray(_forward_pass(nodes, np.asarray(ceiling_b, dtype=float), float(b_start),
+                                   order))
+    last = float(fwd[-1]) if b_end is None else min(float(b_end), float(fwd[-1]))
+    return fwd, np.asarray(_backward_pass(nodes, fwd, last, order))
 
 
 def _solve_periodic(problem: SpeedProblem, nd: _Nodes, ceiling_arr: np.ndarray,
