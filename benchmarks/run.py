@@ -101,6 +101,62 @@ def run_case(solver: str, length_km: float, repeats: int) -> dict:
             "peak_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0}
 
 
+def run_replan(variant: str, backend: str, calls: int, dt: float = 0.1) -> dict:
+    """Replan a 300 m window ``calls`` times while the vehicle drives the bundled mountain road
+    (invented), following each window exactly for ``dt`` seconds until the next call (as the
+    README's example does). ``variant``: "converged" (the solver's own stopping test) or
+    "one-qp" (one sequential-convex iteration per call from the previous window, max_iterations
+    1); ``backend``: the QP backend ("banded" or "clarabel"). Times the calls, and inside them
+    the QP backends' own calls, to split the time between the QP solver and the Python around
+    it."""
+
+    from curvespeed.geometry import build_geometry
+    from curvespeed.io import read_route
+    from curvespeed.limits import Limits
+    from curvespeed.replan import Replanner
+    from curvespeed.solvers import QPBackend, convex
+    from curvespeed.solvers.convex import ConvexOptions
+
+    qp_time = [0.0]
+
+    def timed(solve_qp):
+        def call(*args, **kwargs):
+            t0 = time.perf_counter()
+            try:
+                return solve_qp(*args, **kwargs)
+            finally:
+                qp_time[0] += time.perf_counter() - t0
+        return call
+
+    convex.solve_qp_clarabel = timed(convex.solve_qp_clarabel)
+    convex.solve_qp_banded = timed(convex.solve_qp_banded)
+    geo = build_geometry(read_route(ROOT / "routes" / "mountain_road.csv"))
+    options = ConvexOptions(threads=1, max_iterations=1 if variant == "one-qp" else 30,
+                            qp_backend=QPBackend(backend))
+    t0 = time.perf_counter()
+    replanner = Replanner(geo, Limits(), options=options)
+    setup = time.perf_counter() - t0
+    station, speed, accel = 600.0, 20.0, 0.0
+    times, qps, its, inner, relaxed = [], [], [], [], 0
+    for _ in range(calls):
+        qp_time[0] = 0.0
+        w = replanner.replan(station, speed, accel)
+        times.append(w.solve_time_s)
+        qps.append(qp_time[0])
+        its.append(w.iterations)
+        inner.append(w.qp_iterations)
+        relaxed += w.relaxed > 0.0
+        station = float(np.interp(dt, w.time_s, w.station_m))
+        speed = float(np.interp(dt, w.time_s, w.speed_mps))
+        accel = float(np.interp(dt, w.time_s, w.accel_mps2))
+    return {"variant": variant, "backend": backend, "calls": calls,
+            "stations": int(w.station_m.size),
+            "median_s": statistics.median(times), "p99_s": float(np.percentile(times, 99)),
+            "qp_median_s": statistics.median(qps), "iterations": statistics.mean(its),
+            "inner": statistics.mean(inner), "setup_s": setup, "relaxed": relaxed,
+            "driven_m": station - 600.0}
+
+
 def route_qp(length_km: float, stations: int | None = None):
     """The first sequential-convex QP of the benchmark road as one QP (not cut into batches),
     with its centre and scale; ``stations``: only the rows within the first that many free
@@ -196,11 +252,16 @@ def main() -> None:
     parser.add_argument("--quick", action="store_true", help="10 km cases only")
     parser.add_argument("--case", nargs=3, metavar=("SOLVER", "KM", "REPEATS"),
                         help=argparse.SUPPRESS)
+    parser.add_argument("--replan", nargs=3, metavar=("VARIANT", "BACKEND", "CALLS"),
+                        help=argparse.SUPPRESS)
     parser.add_argument("--qp-case", nargs=3, metavar=("KM", "STATIONS", "REPEATS"),
                         help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.case:
         print(json.dumps(run_case(args.case[0], float(args.case[1]), int(args.case[2]))))
+        return
+    if args.replan:
+        print(json.dumps(run_replan(args.replan[0], args.replan[1], int(args.replan[2]))))
         return
     if args.qp_case:
         stations = int(args.qp_case[1]) or None
@@ -224,6 +285,14 @@ def main() -> None:
                               str(reps)], check=True, capture_output=True, text=True, cwd=ROOT)
         qp_rows.append(json.loads(out.stdout.strip().splitlines()[-1]))
         print(f"  done: QP {km} km {stations or 'whole route'}", file=sys.stderr)
+    replans = []
+    for variant in ("converged", "one-qp"):
+        for backend in ("banded", "clarabel"):
+            out = subprocess.run([sys.executable, __file__, "--replan", variant, backend,
+                                  "100" if args.quick else "300"],
+                                 check=True, capture_output=True, text=True, cwd=ROOT)
+            replans.append(json.loads(out.stdout.strip().splitlines()[-1]))
+            print(f"  done: replan {variant} {backend}", file=sys.stderr)
     proc = process_time(10, 3)
     proc_clarabel = process_time(10, 3, "clarabel")
     base = next(r["solve_s"] for r in rows if r["solver"] == "cvxpy-baseline")
@@ -239,6 +308,17 @@ def main() -> None:
         print(f"{r['stations']:>9} {r['solver']:>15} {r['iterations']:>4}/{r['inner']:<4} "
               f"{r['solve_s']:>9.3f} {p:>10} {r['peak_mb']:>8.0f} {100 * r['gap']:>7.3f} "
               f"{base / r['solve_s']:>14.1f}")
+    print("\nreceding-horizon replanning, 300 m windows (301 stations) along the bundled "
+          "mountain road, the vehicle following each window for 0.1 s; targets: median 5 ms, "
+          "p99 15 ms")
+    print(f"{'variant':>10} {'backend':>9} {'calls':>6} {'median ms':>10} {'p99 ms':>8} "
+          f"{'QP ms':>7} {'other ms':>9} {'SCP it':>7} {'QP it':>6} {'relaxed':>8} "
+          f"{'setup s':>8}")
+    for r in replans:
+        print(f"{r['variant']:>10} {r['backend']:>9} {r['calls']:>6} {1e3 * r['median_s']:>10.1f} "
+              f"{1e3 * r['p99_s']:>8.1f} {1e3 * r['qp_median_s']:>7.1f} "
+              f"{1e3 * (r['median_s'] - r['qp_median_s']):>9.1f} {r['iterations']:>7.2f} "
+              f"{r['inner']:>6.1f} {r['relaxed']:>8} {r['setup_s']:>8.2f}")
     big = [r for r in rows if r["solver"] == "convex" and r["stations"] > 20000]
     if big:
         print(f"\nconvex 100 km / 10 km solve-time ratio: {big[0]['solve_s'] / conv10:.1f}")

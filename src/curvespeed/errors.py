@@ -27,6 +27,11 @@ class SpeedFileError(CurvespeedError, ValueError):
     """A speed trace or profile file given for checking or export cannot be used."""
 
 
+class ReplanError(CurvespeedError, ValueError):
+    """An argument of the receding-horizon replanner is invalid: the horizon, or the vehicle's
+    station, speed or acceleration (not a number, negative speed, off the route)."""
+
+
 class InfeasibleError(CurvespeedError, RuntimeError):
     """No speed profile satisfies the limits and route constraints as given."""
 

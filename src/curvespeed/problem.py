@@ -128,7 +128,9 @@ class SpeedProblem:
     cap_source : ndarray of str
         What sets ``cap_b`` at each node ("max_speed", "zone", "stop").
     b_start, b_end : float or None
-        Fixed squared speed at the first / last node (None: free, or periodic when closed).
+        Fixed squared speed at the first / last node (None: periodic when closed; an open
+        problem with ``b_end`` None ends free, as a receding-horizon window does, its end
+        bounded by :attr:`cap_b`).
     stop_nodes : ndarray of int
         Nodes where the vehicle must be at rest.
     limits : Limits
@@ -149,6 +151,20 @@ class SpeedProblem:
         The time base of the jerk at each node (:meth:`node_jerk_time`).
     stops : tuple of Stop
         The stops as the user gave them (station and origin), for messages.
+    accel_start_mps2 : float
+        Acceleration of an open problem's vehicle just before its first node, m/s^2: 0 (steady
+        before the route) for a whole route; a receding-horizon window starts from the
+        vehicle's measured acceleration (:mod:`curvespeed.replan`). The jerk at the first node
+        is the change from it to the first step's acceleration.
+    accel_start_tolerance_mps2 : float
+        How far the acceleration before the first node may lie from ``accel_start_mps2``,
+        m/s^2 (the accuracy of a measured one): the first node's jerk is the change from the
+        nearest value within it (0 for a whole route).
+    end_reserve : tuple or None
+        ``(brake_b, rows)`` for an open problem with a free end (a window): its last node's
+        squared speed and acceleration (the last step's there) must leave room to brake for
+        what lies beyond, ``b[-1] + c * a_end <= brake_b - d`` for every ``(c, d)`` in
+        ``rows`` (:mod:`curvespeed.replan_window` derives them). None: no such rows.
     """
 
     station_m: np.ndarray
@@ -174,6 +190,9 @@ class SpeedProblem:
     rest_u: np.ndarray
     jerk_terms: JerkTimeTerms
     stops: tuple = ()
+    accel_start_mps2: float = 0.0
+    accel_start_tolerance_mps2: float = 0.0
+    end_reserve: tuple | None = None
 
     @property
     def n_nodes(self) -> int:
@@ -223,6 +242,16 @@ class SpeedProblem:
             with np.errstate(divide="ignore"):
                 hi = np.minimum(hi, lim.power_per_mass_wpkg / np.sqrt(b) - res)
         return lo, hi
+
+    def end_reserve_use(self, b) -> float:
+        """Use of the end's braking reserve (:attr:`end_reserve`; 1.0 = at it, 0 without it):
+        the largest ``(b[-1] + c a_end + d) / brake_b``."""
+        if self.end_reserve is None:
+            return 0.0
+        brake_b, rows = self.end_reserve
+        a_end = self.accel_factor_end[-1] * (b[-1] - b[-2]) / (2.0 * self.ds)
+        need = max(b[-1] + c * a_end + d for c, d in rows)
+        return float(need / brake_b) if brake_b > 0.0 else (math.inf if need > 0.0 else 0.0)
 
     def step_accel(self, b) -> np.ndarray:
         """Mean acceleration of each step over its length, (b[k+1] - b[k]) / (2 ds), m/s^2."""

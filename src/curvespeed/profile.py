@@ -117,7 +117,9 @@ def derive(problem: SpeedProblem, b: np.ndarray) -> dict[str, np.ndarray]:
     difference over the node's time base (:meth:`SpeedProblem.node_jerk_time
     <curvespeed.problem.SpeedProblem.node_jerk_time>`). On an open route the vehicle is taken to
     be steady (zero acceleration) before the start and after the end, so the first and last
-    nodes carry the jerk of taking up and giving back the acceleration. On a closed route the
+    nodes carry the jerk of taking up and giving back the acceleration (a receding-horizon window
+    starts from the vehicle's acceleration instead, :attr:`SpeedProblem.accel_start_mps2`, and
+    may end free). On a closed route the
     seam joins the last step to the first. ``step_jerk_mps3`` is the jerk inside each step (the
     ramp of a step next to rest; 0 for the constant-acceleration steps). ``step_lat_jerk_mps3``
     bounds the lateral jerk along each step as driven, ``node_lat_jerk_mps3`` is the lateral
@@ -135,8 +137,12 @@ def derive(problem: SpeedProblem, b: np.ndarray) -> dict[str, np.ndarray]:
         a_before = np.concatenate(([a_last[-1]], a_last))
         a_after = np.concatenate((a_first, [a_first[0]]))
     else:
-        a_before = np.concatenate(([0.0], a_last))
-        a_after = np.concatenate((a_first, [0.0]))
+        a0, tol = problem.accel_start_mps2, problem.accel_start_tolerance_mps2
+        a_start = min(max(a_first[0], a0 - tol), a0 + tol)
+        a_before = np.concatenate(([a_start], a_last))
+        # a free window end keeps its acceleration beyond (its braking reserve bounds it)
+        a_out = a_last[-1] if problem.end_reserve is not None else 0.0
+        a_after = np.concatenate((a_first, [a_out]))
     acc = 0.5 * (a_before + a_after)
     if not problem.closed:
         acc[0], acc[-1] = a_after[0], a_before[-1]

@@ -130,6 +130,10 @@ def verify_profile(problem: SpeedProblem, b: np.ndarray,
     if lim.max_lateral_jerk_mps3 is not None and check_jerk:
         use["lateral_jerk"] = lat_jerk / lim.max_lateral_jerk_mps3
 
+    if problem.end_reserve is not None:
+        reserve = np.zeros(b.size)
+        reserve[-1] = problem.end_reserve_use(b)
+        use["end_reserve"] = reserve
     violations = []
     for name, arr in use.items():
         bad = np.flatnonzero(arr > 1.0 + tolerance)

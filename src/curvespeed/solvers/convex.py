@@ -161,10 +161,19 @@ def plateau_anchors(problem: SpeedProblem, b_env: np.ndarray, nv: int):
     return mask, b.copy()
 
 
-def solve_convex(problem: SpeedProblem, options: ConvexOptions = ConvexOptions()) -> SolveResult:
-    """Minimum-time profile with jerk bound (and every envelope limit); see module docstring."""
+def solve_convex(problem: SpeedProblem, options: ConvexOptions = ConvexOptions(),
+                 envelope: SolveResult | None = None,
+                 warm_start: np.ndarray | None = None) -> SolveResult:
+    """Minimum-time profile with jerk bound (and every envelope limit); see module docstring.
+
+    ``envelope``: the problem's forward-backward envelope when the caller has it already (a
+    receding-horizon window computes its own from the whole route's, :mod:`curvespeed.replan`);
+    by default it is solved here. ``warm_start``: squared speeds at every node to take the first
+    break points and tangents at instead of the envelope (clipped into it; fixed stations keep
+    their values). Either only saves work: every iterate stays inside the conservative rows.
+    """
     t_start = time.perf_counter()
-    env = solve_envelope(problem)
+    env = envelope if envelope is not None else solve_envelope(problem)
     jerk = problem.limits.max_jerk_mps3 is not None
     nv = problem.n_nodes - 1 if problem.closed else problem.n_nodes
     notes = []
@@ -174,13 +183,13 @@ def solve_convex(problem: SpeedProblem, options: ConvexOptions = ConvexOptions()
     anchors = plateau_anchors(problem, env.b, nv) if hold else None
     held_failed = False
     try:
-        out = _run_scp(problem, env, options, anchors)
+        out = _run_scp(problem, env, options, anchors, warm_start)
     except (InfeasibleError, SolverError) as exc:
         if anchors is None or not anchors[0].any():
             raise
         notes.append(f"holding stretches at their speed cap failed ({exc}); solved without")
         held_failed = True
-        out = _run_scp(problem, env, options, None)
+        out = _run_scp(problem, env, options, None, warm_start)
     b_hat, status, iterations, qp_iterations, more_notes = out
     notes += more_notes
     if anchors is not None and anchors[0].any() and not held_failed:
@@ -208,7 +217,8 @@ def solve_convex(problem: SpeedProblem, options: ConvexOptions = ConvexOptions()
                        notes=tuple(notes), envelope_b=env.b, inner_iterations=qp_iterations)
 
 
-def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, anchors):
+def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, anchors,
+             warm_start=None):
     """The sequential-convex loop (module docstring), run block by block.
 
     Stops and stations held at a speed cap cut the route into stretches that share no
@@ -227,6 +237,8 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
     builder = QPBuilder(problem, lay, b_env, options)
     notes = []
     b_hat = b_env.copy()
+    if warm_start is not None:
+        b_hat = np.where(lay.fixed, b_env, np.clip(warm_start[:nv], 0.0, b_env))
     status = SolveStatus.OPTIMAL
     qp_iterations = 0
     iterations = 0

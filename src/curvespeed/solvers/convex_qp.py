@@ -37,7 +37,7 @@ class QPLayout:
             self.step_from = np.arange(nv - 1)
             self.step_to = np.arange(1, nv)
         self.n_steps = self.step_from.size
-        # fixed variables: stops, and the ends of an open route
+        # fixed variables: stops, and the ends of an open route (a window's end may be free)
         fixed = np.zeros(nv, dtype=bool)
         value = np.zeros(nv)
         stops = problem.stop_nodes % nv if problem.closed else problem.stop_nodes
@@ -45,8 +45,9 @@ class QPLayout:
         if not problem.closed:
             fixed[0] = True
             value[0] = problem.b_start
-            fixed[-1] = True
-            value[-1] = problem.b_end
+            if problem.b_end is not None:
+                fixed[-1] = True
+                value[-1] = problem.b_end
         if anchors is not None:
             mask, values = anchors
             value = np.where(mask & ~fixed, values, value)
@@ -209,12 +210,33 @@ class QPBuilder:
                                    / np.where(exact, 1.0, 2.0 * root[c])))
         rhs = t.scale * J * self.ds / w_hat + sum(g * base[c] for g, c in zip(slopes, cols))
         m = t.node.size
+        # D b is the change from 0 at an open start; from an acceleration a0 +- tol the
+        # vehicle has there (a receding-horizon window) the rows are +-(D b - a0) + G b <=
+        # rhs + tol
+        a0, tol = ((0.0, 0.0) if p.closed else
+                   (p.accel_start_mps2, p.accel_start_tolerance_mps2))
+        first = t.node == 0
+        shift, slack = np.where(first, a0, 0.0), np.where(first, tol, 0.0)
         G = sp.coo_matrix((np.concatenate(slopes),
                            (np.tile(np.arange(m), 3), np.concatenate(cols))),
                           shape=(m, lay.nv)).tocsr()
         G.sum_duplicates()
         Dn = self.D[t.node]
-        return sp.vstack([Dn + G, -Dn + G], format="csr"), np.concatenate((rhs, rhs))
+        return (sp.vstack([Dn + G, -Dn + G], format="csr"),
+                np.concatenate((rhs + shift + slack, rhs - shift + slack)))
+
+    def _end_reserve_rows(self):
+        """``b_N + c a_end <= brake_b - d`` for every ``(c, d)`` of
+        :attr:`SpeedProblem.end_reserve`, with ``a_end = f (b_N - b_N-1) / (2 ds)``, tightened
+        by ``margin`` of ``brake_b``."""
+        brake_b, rows = self.p.end_reserve
+        nv = self.lay.nv
+        h = self.lay.f_last[-1] / (2.0 * self.ds)
+        vals = np.concatenate([(-c * h, 1.0 + c * h) for c, _ in rows])
+        row_i = np.repeat(np.arange(len(rows)), 2)
+        col_i = np.tile([nv - 2, nv - 1], len(rows))
+        R = sp.csr_matrix((vals, (row_i, col_i)), shape=(len(rows), nv))
+        return R, np.array([brake_b * (1.0 - self.opt.margin) - d for _, d in rows])
 
     def build(self, b_hat: np.ndarray):
         p, lay, ds = self.p, self.lay, self.ds
@@ -330,6 +352,12 @@ class QPBuilder:
             blocks.append(L)
             lows.append(np.full(L.shape[0], -np.inf))
             ups.append(up_l)
+
+        if p.end_reserve is not None and not p.closed:
+            R, up_r = self._end_reserve_rows()
+            blocks.append(R)
+            lows.append(np.full(R.shape[0], -np.inf))
+            ups.append(up_r)
 
         A = sp.vstack(blocks, format="csc")
         lo_all = np.concatenate(lows)

@@ -284,6 +284,25 @@ def brake_reach(problem: SpeedProblem, ceiling_b: np.ndarray) -> np.ndarray:
     return np.append(out[:m], out[0])
 
 
+def window_envelope(problem: SpeedProblem, ceiling_b: np.ndarray, b_start: float,
+                    b_end: float | None) -> tuple[np.ndarray, np.ndarray]:
+    """Forward and forward-backward passes over an open stretch under ``ceiling_b``.
+
+    The forward pass starts at ``b_start``; the backward pass ends at ``b_end`` (or, when it is
+    None, wherever the forward pass arrives: the end is then bounded by its ceiling alone). Returns
+    ``(forward, envelope)``; ``envelope[0] < b_start`` says that ``b_start`` cannot be braked
+    down in time for some ceiling ahead (the caller explains it), and ``forward[-1] < b_end``
+    that the fixed end speed cannot be reached. For receding-horizon windows
+    (:mod:`curvespeed.replan`), which take their ceilings from the whole route's once.
+    """
+    nodes = _Nodes(problem)
+    order = np.arange(problem.n_nodes)
+    fwd = np.asarray(_forward_pass(nodes, np.asarray(ceiling_b, dtype=float), float(b_start),
+                                   order))
+    last = float(fwd[-1]) if b_end is None else min(float(b_end), float(fwd[-1]))
+    return fwd, np.asarray(_backward_pass(nodes, fwd, last, order))
+
+
 def _solve_periodic(problem: SpeedProblem, nd: _Nodes, ceiling_arr: np.ndarray,
                     max_laps: int = 50):
     """Periodic passes on a closed route; node n-1 is node 0 again."""
