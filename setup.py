@@ -1,5 +1,5 @@
-"""Build step for the two compiled kernels (the banded interior-point iterations and the
-envelope's passes); everything else about the package is declared in pyproject.toml.
+"""Build step for the compiled kernels (the banded interior-point iterations, the envelope's
+passes and the alignment's optimal partitioning); everything else about the package is declared in pyproject.toml.
 
 The kernels use only the Python C API's buffer protocol, so a C compiler is all they need. They
 are optional: where they cannot be built the package still installs; the banded QP backend then
@@ -10,12 +10,13 @@ Python loops.
 from setuptools import Extension, setup
 
 
-def kernel(name: str) -> Extension:
-    return Extension(f"curvespeed.solvers.{name}", [f"src/curvespeed/solvers/{name}.c"],
+def kernel(name: str, package: str = "solvers") -> Extension:
+    return Extension(f"curvespeed.{package}.{name}", [f"src/curvespeed/{package}/{name}.c"],
                      extra_compile_args=["-O3", "-std=c99", "-ffp-contract=off"],
                      optional=True)
 
 
 # -ffp-contract=off and no -ffast-math: the envelope's passes stay the Python loops' twin to the
 # last bit (no fused multiply-adds, no reordering)
-setup(ext_modules=[kernel("_banded_ipm"), kernel("_envelope_passes")])
+setup(ext_modules=[kernel("_banded_ipm"), kernel("_envelope_passes"),
+                   kernel("_partition", "geometry")])

@@ -174,7 +174,26 @@ class _LineFits:
 
 def _partition(fits: _LineFits, n: int, gap: int, sigma: float, corr: float) -> list[int]:
     """Segment boundaries [0, ..., n] minimising cost + penalty (optimal partitioning with the
-    pruning of Killick, Fearnhead and Eckley, JASA 107, 2012, from memory)."""
+    pruning of Killick, Fearnhead and Eckley, JASA 107, 2012, from memory), in the compiled
+    twin (``_partition.c``) when it was built, else in :func:`_partition_python`."""
+    try:
+        from . import _partition as compiled
+    except ImportError:         # no C compiler at install: the reference loop
+        return _partition_python(fits, n, gap, sigma, corr)
+    prev = np.zeros(n + 1, dtype=np.int64)
+    compiled.partition(fits.c0, fits.c1, fits.c2, fits.cy, fits.cxy, fits.cyy, n, gap,
+                       BREAK_PENALTY * math.log(n), 1.0 / (sigma * sigma * corr),
+                       2 * gap + 4, MAX_SEGMENT_STATIONS, prev)
+    cuts = [n]
+    while cuts[-1] > 0:
+        cuts.append(int(prev[cuts[-1]]))
+    return cuts[::-1]
+
+
+def _partition_python(fits: _LineFits, n: int, gap: int, sigma: float,
+                      corr: float) -> list[int]:
+    """The reference loop of :func:`_partition` (a Python loop over the stations, about
+    0.1 ms each: a second on a 10 km route)."""
     beta = BREAK_PENALTY * math.log(n)
     scale = 1.0 / (sigma * sigma * corr)
     minlen = 2 * gap + 4
