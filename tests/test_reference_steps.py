@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from scipy.spatial import cKDTree
+from test_reference_recorded_drives import true_stations
 
 from benchmarks.exact_roads import wet_road, winding_road
 from curvespeed.geometry import build_geometry
@@ -32,14 +32,6 @@ def _points(alignment, noise_m: float, seed: int):
 def _geometry(alignment, noise_m: float, seed: int = 0):
     x, y = _points(alignment, noise_m, seed)
     return build_geometry(make_route(x, y, source="invented exact road"))
-
-
-def _true_stations(geo, alignment) -> np.ndarray:
-    """Station on the exact road nearest each node (0.05 m resolution)."""
-    s = np.linspace(0.0, alignment.length_m, int(alignment.length_m * 20) + 1)
-    x, y = alignment.position(s)
-    _, j = cKDTree(np.column_stack((x, y))).query(np.column_stack((geo.x_m, geo.y_m)))
-    return s[j]
 
 
 def _step_stations(alignment) -> list[tuple[float, float, float]]:
@@ -68,7 +60,7 @@ def test_bound_covers_the_exact_road(road, noise_m):
     # within the station mapping's resolution (0.1 m) either side.
     alignment = road()
     geo = _geometry(alignment, noise_m)
-    st = _true_stations(geo, alignment)
+    st = true_stations(geo, alignment)
     exact = np.maximum(np.abs(alignment.curvature(np.maximum(st - 0.1, 0.0))),
                        np.abs(alignment.curvature(np.minimum(st + 0.1, alignment.length_m))))
     assert np.all(exact <= COVER * geo.curvature_bound_1pm)

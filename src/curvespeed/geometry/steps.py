@@ -69,7 +69,6 @@ class ConfirmedSteps:
     explained: np.ndarray
     bound: np.ndarray
     kappa: np.ndarray        # the best-fitting candidate's curvature there (NaN elsewhere)
-    spread_m: float = 0.0    # the fine scale's spread width they were compared at
     centres: tuple = ()      # (centre m, how far it may be off m) of each explained transition
 
 
@@ -131,7 +130,7 @@ def confirm_steps(rebuilt, fine: FineScale, u_points: np.ndarray, values: np.nda
         bound[at] = np.max(own + missed, axis=1) + gamma * near.line_sd(rebuilt.sd, station)
         fit = near.curvature(cands[:, [int(np.argmin(z))]])[:, 0]
         best[at] = np.interp(station[at], near.grid, fit)
-    return ConfirmedSteps(explained, bound, best, fine.spread_m, tuple(centres))
+    return ConfirmedSteps(explained, bound, best, tuple(centres))
 
 
 def transition_zone(confirmed: ConfirmedSteps, station: np.ndarray,
