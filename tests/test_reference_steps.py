@@ -44,16 +44,9 @@ def _step_stations(alignment) -> list[tuple[float, float, float]]:
     return out
 
 
-#: Known: with 1 cm of noise the wet road's bound is 1.006 % short of the exact curvature at
-#: the clothoid-to-arc joint at 669.4 m (the node lies 0.05 m before the joint the alignment
-#: placed, and the joint's location uncertainty is not carried into the bound: doing so cost
-#: 1.3 % of time on the bundled mountain road). Open in the issue note.
-_KINK = pytest.mark.xfail(strict=True, reason="a kink's location uncertainty is not in the bound")
-
-
 @pytest.mark.parametrize("road, noise_m", [
     (winding_road, 0.0), (winding_road, 0.01), (winding_road, 0.05), (wet_road, 0.0),
-    pytest.param(wet_road, 0.01, marks=_KINK), (wet_road, 0.05)])
+    (wet_road, 0.01), (wet_road, 0.05)])
 def test_bound_covers_the_exact_road(road, noise_m):
     # Exact design points every metre, with white noise of 0, 1 and 5 cm (survey-grade to
     # RTK-grade): the bound covers the exact curvature at every node, taken as the largest

@@ -15,11 +15,15 @@ piecewise-linear curvature a fine smoothing scale describes:
    clothoid), placed where the estimate crosses the mean of the two sides (a symmetric smoother
    crosses there). A segment shorter than the smoothing spreads a step is the smear of one and
    becomes a step too.
+   A long element whose line hardly changes is taken as level (an arc or a straight): a tilt
+   from noise or from the neighbours' smear would slope the bound along the arc.
 3. *Uncertainty.* The same line fits applied to the estimate's noise replicates give the
    standard deviation of the reconstructed curvature; the bound is the curvature plus ``gamma``
    standard deviations plus how far the fine estimate, averaged over the smear, departs from
-   the line (in case a line hides a gentle break within the noise), and around a step the larger
-   side's over the step's location uncertainty.
+   the line (in case a line hides a gentle break within the noise) -- one level along each
+   element's interior, from its departure beyond the noise, so that the bound does not wobble
+   with the noise along an arc -- and around a step the larger side's over the step's
+   location uncertainty.
 
 The caller decides where to trust it (:mod:`.curvature` compares it with the model-free adaptive
 estimate).
@@ -88,7 +92,16 @@ def reconstruct(station: np.ndarray, kappa: np.ndarray, deltas: np.ndarray, spre
     bounds = _partition(fits, n, gap, sigma, max(1.0, spread_m / (4 * ds)))
     bounds, smears = _collapse_smears(bounds, int(math.ceil(2 * spread_m / ds)))
     lines = [fits.line(*_interior(a, b, n, gap)) for a, b in zip(bounds[:-1], bounds[1:])]
-    breaks, step, reach = _place_breaks(kappa, sd, gamma, bounds, lines, gap, smears)
+    # an element whose line changes by less than its noise is taken as an arc or a straight
+    levels = [fits.level_if_flat(*_interior(a, b, n, gap), gamma, 4 * (2 * gap + 1))
+              for a, b in zip(bounds[:-1], bounds[1:])]
+    lines = [line if level is None else (level, 0.0) for line, level in zip(lines, levels)]
+    ends_sd = [np.hypot(_line_sd(fits, *_interior(*bounds[m - 1:m + 1], n, gap), levels[m - 1],
+                                 bounds[m]),
+                        _line_sd(fits, *_interior(*bounds[m:m + 2], n, gap), levels[m],
+                                 bounds[m]))
+               for m in range(1, len(bounds) - 1)]
+    breaks, step, reach = _place_breaks(kappa, sd, gamma, bounds, lines, gap, smears, ends_sd)
     edges = np.concatenate(([-np.inf], breaks, [np.inf]))
     x = np.arange(n, dtype=float)
     seg = np.searchsorted(edges, x, side="right") - 1
@@ -99,26 +112,74 @@ def reconstruct(station: np.ndarray, kappa: np.ndarray, deltas: np.ndarray, spre
         sel = seg == m
         lo, hi = _interior(a, b, n, gap)
         k[sel] = lines[m][0] + lines[m][1] * x[sel]
-        sd_pl[sel] = fits.line_sd(lo, hi, x[sel])
+        sd_pl[sel] = _line_sd(fits, lo, hi, levels[m], x[sel])
         inner = np.arange(lo, hi)
         line = lines[m][0] + lines[m][1] * inner
+        line_sd = _line_sd(fits, lo, hi, levels[m], inner)    # (inner may reach past a break)
         precise = max(PRECISE_FRACTION * float(np.max(np.abs(line))), PRECISE_FLOOR_1PM)
-        follows[sel] = bool(gamma * float(np.max(sd_pl[inner])) <= precise
-                            and np.all(np.abs(kappa[inner] - line)
-                                       <= gamma * (sd[inner] + sd_pl[inner])))
+        follows[sel] = bool(gamma * float(np.max(line_sd)) <= precise
+                            and np.all(np.abs(kappa[inner] - line) <= gamma * (sd[inner] + line_sd)))
     # a line may miss a gentle break the fine scale shows within its noise: what the fine scale
     # reads beyond the line, averaged over the smear (which averages its noise down), is added
-    window = np.ones(2 * gap + 1) / (2 * gap + 1)
-    misfit = np.abs(np.convolve(np.pad(kappa - k, gap, mode="edge"), window, mode="valid"))
+    misfit = np.abs(_moving_mean(kappa - k, gap))
+    level = _flatten_misfit(misfit, _moving_mean(deltas, gap), seg, edges, gap, gamma)
     bound = np.abs(k) + gamma * sd_pl + misfit
+    # next to a step the misfit is the smear of the jump itself, not a departure of either
+    # line: there the elements' own levels stand in for it (where they have one)
+    sides = np.abs(k) + gamma * sd_pl + np.where(np.isnan(level[seg]), misfit, level[seg])
     near_step = np.zeros(n, dtype=bool)
     for b, r, is_step in zip(breaks, reach, step):
         if is_step:    # either side's value may hold anywhere the step may lie
             sel = np.abs(x - b) <= r + 1.0
-            bound[sel] = bound[sel].max()
+            bound[sel] = sides[sel].max()
             near_step |= sel
     return Reconstruction(k, sd_pl, bound, station[0] + breaks * ds, np.array(step, bool),
                           follows, near_step, tuple(lines), np.asarray(reach, float) * ds)
+
+
+def _line_sd(fits: _LineFits, lo: int, hi: int, level, at):
+    """Standard deviation of an element's line (or level, when it has one) at ``at``."""
+    at = np.atleast_1d(np.asarray(at, dtype=float))
+    if level is None:
+        return fits.line_sd(lo, hi, at)
+    return np.full(at.shape, fits.level_sd(lo, hi))
+
+
+def _moving_mean(y: np.ndarray, gap: int) -> np.ndarray:
+    """Mean over the ``2 gap + 1`` stations centred on each (ends padded with the end value),
+    along the first axis."""
+    padded = np.concatenate((np.repeat(y[:1], gap, axis=0), y, np.repeat(y[-1:], gap, axis=0)))
+    c = np.cumsum(padded, axis=0)
+    c = np.concatenate((np.zeros_like(c[:1]), c))
+    return (c[2 * gap + 1:] - c[:-2 * gap - 1]) / (2 * gap + 1)
+
+
+def _flatten_misfit(misfit, noise_avg, seg, edges, gap, gamma) -> np.ndarray:
+    """Make the misfit one level along each element's interior (in place); return each
+    element's level (NaN for an element without such an interior).
+
+    Away from its breaks (more than two ``gap`` from them) what the fine scale reads beyond an
+    element's line is mostly its own noise (``noise_avg``: the replicates' changes averaged the
+    same way), which wanders by its standard deviation from station to station: carried into
+    the bound pointwise, it made a profile that rides the lateral limit through an arc brake and
+    accelerate over its wiggles. A line that hides a gentle break shows instead as residual
+    beyond the noise over the element: its root-mean-square excess ``e`` (a tent-shaped departure
+    of height ``d`` has ``e = d / sqrt(3)``). The level is ``sqrt(3) e`` plus the noise's mean
+    standard deviation (what the pointwise misfit of pure noise averages to, about); a departure
+    beyond ``gamma`` standard deviations at a station is added there as before.
+    """
+    x = np.arange(misfit.size, dtype=float)
+    noise_sd = np.sqrt(np.mean(noise_avg**2, axis=1))
+    levels = np.full(edges.size - 1, np.nan)
+    for m in range(edges.size - 1):
+        sel = (seg == m) & (x - edges[m] > 2 * gap) & (edges[m + 1] - x > 2 * gap)
+        if np.count_nonzero(sel) < 2 * gap + 1:
+            continue
+        r, sd = misfit[sel], noise_sd[sel]
+        excess = math.sqrt(max(float(np.mean(r**2) - np.mean(sd**2)), 0.0))
+        levels[m] = math.sqrt(3.0) * excess + float(np.mean(sd))
+        misfit[sel] = np.maximum(levels[m], r - gamma * sd)
+    return levels
 
 
 def _interior(a: int, b: int, n: int, gap: int) -> tuple[int, int]:
@@ -162,6 +223,35 @@ class _LineFits:
         den = n * sxx - sx * sx
         slope = (n * sxy - sx * sy) / den if den > 0 else 0.0
         return (sy - slope * sx) / n, slope
+
+    def level_if_flat(self, a: int, b: int, gamma: float, min_stations: int) -> float | None:
+        """The mean of [a, b) when it is precise (``gamma`` standard deviations of it over the
+        replicates within :data:`PRECISE_FRACTION` of it, or :data:`PRECISE_FLOOR_1PM`), the
+        line through [a, b) changes the curvature along it by no more than that, and [a, b)
+        has at least ``min_stations``; else None.
+
+        Design alignments are made of arcs and straights (constant) and clothoids (linear,
+        changing by far more than that): a tilt of an arc's line, from noise or from the
+        smoothing of its neighbours, put a slope on the bound along the arc, and a profile
+        riding the lateral limit there followed it. A gentle clothoid taken for a level is
+        covered by the misfit's level (:func:`_flatten_misfit`): a ramp's residual about its
+        mean has a root-mean-square of its rise over 2 sqrt(3), which the level turns back into
+        half the rise, the ramp's top. A short element keeps its line: its slope says little,
+        and the steps' candidate transitions (:mod:`.steps`) are built from it; so does an
+        imprecise one (a consumer receiver's log), whose line the adaptive estimate judges."""
+        if b - a < min_stations:
+            return None
+        n, _, _, sy, _, _ = (float(v) for v in self._sums(a, b))
+        level = sy / n
+        small = max(PRECISE_FRACTION * abs(level), PRECISE_FLOOR_1PM)
+        if (gamma * self.level_sd(a, b) > small
+                or abs(self.line(a, b)[1]) * (b - a) > small):
+            return None
+        return level
+
+    def level_sd(self, a: int, b: int) -> float:
+        """Standard deviation over the replicates of the mean of [a, b)."""
+        return math.sqrt(float(np.mean(np.mean(self.deltas[a:b], axis=0) ** 2)))
 
     def line_sd(self, a: int, b: int, at: np.ndarray) -> np.ndarray:
         """Standard deviation over the replicates of the line through [a, b), at ``at``."""
@@ -241,18 +331,24 @@ def _collapse_smears(bounds: list[int], short: int) -> tuple[list[int], dict[int
     return out, half
 
 
-def _place_breaks(kappa, sd, gamma, bounds, lines, gap, smears):
+def _place_breaks(kappa, sd, gamma, bounds, lines, gap, smears, ends_sd):
     """Each break's position (in stations), whether it is a step, and how far it may be off:
     for a step read off a smear, anywhere the smear spans (a jump, or a clothoid too short to
     resolve); else ``gamma`` times the noise of where the estimate crosses the mid level (its
-    standard deviation over the slope of the crossing), and at least one station."""
+    standard deviation over the slope of the crossing), and at least one station.
+
+    Lines meet near their boundary when the point where they cross is within two gaps of it,
+    widened by ``gamma`` times that point's own standard deviation (``ends_sd``: of the two
+    lines' difference at the boundary, over their difference of slope): an arc running into a
+    clothoid whose curvature changes slowly crosses it at a point known only to a few metres."""
     breaks, step, reach = [], [], []
     for m in range(1, len(bounds) - 1):
         b = bounds[m]
         (ia, sa), (ib, sb) = lines[m - 1], lines[m]
         va, vb = ia + sa * b, ib + sb * b
         meet = b + (vb - va) / (sa - sb) if sa != sb else math.inf
-        if abs(meet - b) <= 2 * gap:                  # the lines meet: a kink
+        meet_sd = float(ends_sd[m - 1][0]) / abs(sa - sb) if sa != sb else math.inf
+        if math.isfinite(meet) and abs(meet - b) <= 2 * gap + gamma * meet_sd:    # a kink
             breaks.append(meet)
             step.append(False)
             reach.append(1.0)

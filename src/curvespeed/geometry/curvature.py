@@ -166,7 +166,8 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
         # the adaptive estimate lagged by 8 %; 5 cm 1.3 % short on an arc;
         # tests/test_reference_steps.py.)
         gap = np.abs(rebuilt.kappa - k)
-        parted = (gap > GAMMA * (rebuilt.sd + s)) & ~transition_zone(steps, station, w)
+        parted = ((gap > GAMMA * (rebuilt.sd + s)) & ~transition_zone(steps, station, w)
+                  & ~_ringing(rebuilt, k, station, w))
         own = np.abs(k) + GAMMA * s
         own = np.where(parted, np.maximum(own, np.abs(rebuilt.kappa)) + gap, own)
         bound = np.where(use, np.where(rebuilt.near_step, np.maximum(rebuilt.bound, bound),
@@ -208,6 +209,24 @@ def _reconstruction(fit, u_points, values, weight, u_nodes, station, time, drift
                       np.sqrt(np.mean(deltas**2, axis=1)), spread)
     return rebuilt, confirm_steps(rebuilt, scale, u_points, values, weight, u_nodes, station,
                                   GAMMA)
+
+
+def _ringing(rebuilt, kappa, station, width) -> np.ndarray:
+    """Stations within ``width`` (the adaptive estimate's spread) of a break of the
+    reconstruction where the adaptive estimate ``kappa`` lies beyond the element's line on the
+    side away from the next element's curvature: a smoother overshoots so before a change of
+    slope (it rings), while a line run past a break placed late has the road, and the estimate,
+    already on their way toward the next element's values."""
+    breaks = np.asarray(rebuilt.breaks_m, dtype=float)
+    if breaks.size == 0:
+        return np.zeros(station.size, dtype=bool)
+    at = np.clip(np.searchsorted(breaks, station), 1, breaks.size)
+    nearest = np.where(np.abs(station - breaks[at - 1])
+                       <= np.abs(station - breaks[np.minimum(at, breaks.size - 1)]),
+                       breaks[at - 1], breaks[np.minimum(at, breaks.size - 1)])
+    across = np.interp(2.0 * nearest - station, station, rebuilt.kappa)     # mirrored
+    away = np.sign(kappa - rebuilt.kappa) * np.sign(across - rebuilt.kappa) < 0
+    return away & (np.abs(station - nearest) <= width)
 
 
 def _trusted(rebuilt, kappa, sd, width, station) -> np.ndarray:
