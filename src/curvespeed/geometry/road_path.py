@@ -235,6 +235,7 @@ def build_road_path(pieces, spacing_m: float = 1.0, closed: bool | None = None,
         centre = lane_centre(piece, s)
         for k in names:
             values[k][mask] = centre[k]
+    _warn_gaps(pieces, tables, source)
     heading = np.unwrap(values["heading"])
     heading -= 2 * math.pi * round(heading[0] / (2 * math.pi))
     is_loop = _meets_itself(values["x"], values["y"], heading)
@@ -258,6 +259,32 @@ def build_road_path(pieces, spacing_m: float = 1.0, closed: bool | None = None,
     return RoadPath(geometry, which, road_s,
                     _superelevation(station, values["curvature"], values["roll"]),
                     _zones(pieces, tables, starts), starts)
+
+
+#: Consecutive pieces whose ends lie farther apart than this (metres, in plan or in height) or
+#: whose headings differ by more than _JOIN_RAD are reported: the data do not join up there.
+_JOIN_M = 0.01
+_JOIN_RAD = 1e-3
+
+
+def _warn_gaps(pieces, tables, source: str) -> None:
+    """Warn where one piece does not end where the next begins (position, height, heading)."""
+    import warnings
+
+    from ..errors import CurvespeedWarning
+
+    for a, b in zip(pieces[:-1], pieces[1:]):
+        end = lane_centre(a, a.s_start_m if a.reverse else a.s_end_m)
+        start = lane_centre(b, b.s_end_m if b.reverse else b.s_start_m)
+        gap = float(np.hypot(end["x"] - start["x"], end["y"] - start["y"])[0])
+        rise = float(abs(end["z"] - start["z"])[0])
+        turn = float(abs((end["heading"] - start["heading"] + math.pi) % (2 * math.pi)
+                         - math.pi)[0])
+        if gap > _JOIN_M or rise > _JOIN_M or turn > _JOIN_RAD:
+            warnings.warn(f"{source}: {a.label} ends {gap:.3f} m in plan and {rise:.3f} m in "
+                          f"height from where {b.label} begins, heading {math.degrees(turn):.2f}"
+                          " degrees apart; the path jumps there. Check the roads' links and "
+                          "start points", CurvespeedWarning, stacklevel=3)
 
 
 def _meets_itself(x, y, heading) -> bool:
