@@ -41,6 +41,8 @@ from .model import Geometry
 _GL_NODES, _GL_WEIGHTS = legendre.leggauss(10)
 _TABLE_STEP_M = 2.0
 _NEWTON_STEPS = 6
+#: Newton stops once no station moves by more than this, metres (round-off of the quadrature).
+_NEWTON_TOL_M = 1e-11
 #: A chain whose end lies this close to its start, with the same heading (to _CLOSE_RAD), is a
 #: loop; metres and radians. Design data close a loop to round-off.
 _CLOSE_M = 1e-3
@@ -164,8 +166,10 @@ def _road_station(piece: PathPiece, table: _Table, sigma_forward) -> np.ndarray:
     for _ in range(_NEWTON_STEPS):
         j = np.clip(np.searchsorted(table.knots, s, side="right") - 1, 0, table.knots.size - 2)
         sigma = table.sigma[j] + _integral(piece, table.knots[j], s)
-        s = np.clip(s - (sigma - target) / lane_centre(piece, s)["speed"],
-                    piece.s_start_m, piece.s_end_m)
+        step = (sigma - target) / lane_centre(piece, s)["speed"]
+        s = np.clip(s - step, piece.s_start_m, piece.s_end_m)
+        if np.max(np.abs(step), initial=0.0) < _NEWTON_TOL_M:
+            break
     return s
 
 
