@@ -69,8 +69,9 @@ def invented_road(length_m: float, seed: int = 7) -> str:
                          for i, q in enumerate(np.arange(0.0, s, 250.0).tolist()))
                + "</lateralProfile>")
     lane_xml = lanes(3.5, right=2, left=2)
-    sections = "".join(lane_xml[len("<lanes>"):-len("</lanes>")].replace(
-        '<laneSection s="0">', f'<laneSection s="{q!r}">') for q in np.arange(0.0, s, 500.0).tolist())
+    one = lane_xml[len("<lanes>"):-len("</lanes>")]
+    sections = "".join(one.replace('<laneSection s="0">', f'<laneSection s="{q!r}">')
+                       for q in np.arange(0.0, s, 500.0).tolist())
     return document(road(1, "".join(parts), s, profile=profile,
                          lane_xml=f"<lanes>{sections}</lanes>"))
 

@@ -149,7 +149,8 @@ def build() -> str:
         ("spiral", 30.0, (-1 / 35, 0.0)), ("line", 60.0, (0.0, 0.0))])
     narrowing = (0.0, 3.5, 0.0, -3 * 0.5 / 30**2, 2 * 0.5 / 30**3)
     lanes1 = [*section(0.0, [lane(1, "driving", [W], None, 1)],
-                       [lane(-1, "driving", [W], None, -1), lane(-2, "shoulder", [(0, 1.0, 0, 0, 0)])]),
+                       [lane(-1, "driving", [W], None, -1),
+                        lane(-2, "shoulder", [(0, 1.0, 0, 0, 0)])]),
               *section(200.0, [lane(1, "driving", [W], 1, None)],
                        [lane(-1, "driving", [narrowing, (30.0, 3.0, 0, 0, 0)], -1, None),
                         lane(-2, "shoulder", [(0, 1.0, 0, 0, 0)])])]
@@ -171,7 +172,8 @@ def build() -> str:
     for rid, g, length, to in ((10, g10, len10, 2), (11, g11, len11, 3)):
         out += road(rid, f"connector to road {to}", length, 100,
                     ['      <predecessor elementType="road" elementId="1" contactPoint="end"/>',
-                     f'      <successor elementType="road" elementId="{to}" contactPoint="start"/>'],
+                     f'      <successor elementType="road" elementId="{to}" '
+                     'contactPoint="start"/>'],
                     g, level, section(0.0, [], [lane(-1, "driving", [W3], -1, -1)]), None)
     # road 2: the banked curve
     spiral_turn = 50.0 / (2 * 90.0)

@@ -15,6 +15,7 @@ import pytest
 from scipy.integrate import quad
 from scipy.special import fresnel
 
+from curvespeed.errors import CurvespeedWarning
 from curvespeed.geometry.design_curves import ParamPoly3Curve, Poly3Curve
 from curvespeed.io.opendrive_path import read_opendrive
 
@@ -180,7 +181,8 @@ def test_chain_length_and_continuity_across_a_link(tmp_path, contact):
     lane centre, shorter than the step by at most step^3 kappa^2 / 24) and heading changes by
     at most the largest |curvature| times the step."""
     text = _two_roads(contact)
-    path = _path(tmp_path, text, roads=["1", "2"], lane=-1, spacing_m=0.5)
+    with pytest.warns(CurvespeedWarning, match="no lane link leads to road 2"):
+        path = _path(tmp_path, text, roads=["1", "2"], lane=-1, spacing_m=0.5)
     geo = path.geometry
     one = _path(tmp_path, text, roads=["1"], lane=-1).geometry.length_m
     two = _path(tmp_path, text, roads=["2"], lane=-1 if contact == "start" else 1,
@@ -284,3 +286,55 @@ def test_geo_reference_gives_latitude_and_longitude():
     lat, lon = geo.latlon()
     assert lat[0] == pytest.approx(-47.5, abs=1e-9)
     assert lon[0] == pytest.approx(-135.25, abs=1e-9)
+
+
+def test_a_road_that_returns_to_its_start_is_a_loop(tmp_path):
+    """A road of two half-circle arcs (R 50 m) linked to itself: the lane centre 1.75 m
+    outside is a circle of R 51.75 m (ASAM OpenDRIVE 1.6 section 9.5 widths along t), closed:
+    its length is 2 pi (R - t) and its last node is its first (the node convention of
+    curvespeed's Geometry)."""
+    r = 50.0
+    half = math.pi * r
+    text = document(road(1, geometry(0.0, 0.0, 0.0, 0.0, half, f'<arc curvature="{1 / r!r}"/>')
+                         + geometry(half, 0.0, 2 * r, math.pi, half,
+                                    f'<arc curvature="{1 / r!r}"/>'), 2 * half,
+                         links='<successor elementType="road" elementId="1" '
+                               'contactPoint="start"/>'))
+    geo = _path(tmp_path, text, lane=-1).geometry
+    assert geo.closed
+    assert geo.length_m == pytest.approx(2 * math.pi * (r + 1.75), rel=1e-12)
+    assert (geo.x_m[-1], geo.y_m[-1]) == (geo.x_m[0], geo.y_m[0])
+    assert geo.total_turning_rad() == pytest.approx(2 * math.pi, rel=1e-12)
+    open_geo = _path(tmp_path, text, lane=-1, closed=False).geometry
+    assert not open_geo.closed
+
+
+def test_user_stations_follow_the_lane_not_the_reference_line(tmp_path):
+    """On an arc of R 60 m, lane -1 (t = -1.75 m) is longer than the reference line by the
+    factor (R - t) / R (circle geometry): a speed record from s = 30 m on the road starts at
+    station 30 (R - t) / R on the lane."""
+    radius, angle = 60.0, 1.0
+    extra = ('<type s="0" type="rural"><speed max="20" unit="m/s"/></type>'
+             '<type s="30" type="town"><speed max="10" unit="m/s"/></type>')
+    text = document(road(1, geometry(0.0, 0.0, 0.0, 0.0, radius * angle,
+                                     f'<arc curvature="{1 / radius!r}"/>'), radius * angle,
+                         extra=extra))
+    zones = sorted(_path(tmp_path, text, lane=-1).zones, key=lambda z: z.start_m)
+    factor = (radius + 1.75) / radius
+    assert zones[0].end_m == pytest.approx(30.0 * factor, rel=1e-12)
+    assert zones[1].start_m == pytest.approx(30.0 * factor, rel=1e-12)
+    assert zones[1].end_m == pytest.approx(radius * angle * factor, rel=1e-12)
+
+
+def test_roads_that_do_not_meet_are_reported(tmp_path):
+    """Road 2 is linked to road 1's end but starts 0.5 m to the side of it: the path would
+    jump, and the warning says by how much (ASAM OpenDRIVE 1.6 section 8.2 expects linked
+    roads to meet)."""
+    text = document(road(1, geometry(0.0, 0.0, 0.0, 0.0, 50.0, "<line/>"), 50.0,
+                         links='<successor elementType="road" elementId="2" '
+                               'contactPoint="start"/>'),
+                    road(2, geometry(0.0, 50.0, 0.5, 0.0, 30.0, "<line/>"), 30.0,
+                         links='<predecessor elementType="road" elementId="1" '
+                               'contactPoint="end"/>'))
+    with pytest.warns(CurvespeedWarning, match=r"ends 0\.500 m in plan .* the path jumps"):
+        _path(tmp_path, text, roads=["1", "2"], lane=0)

@@ -132,4 +132,6 @@ def limits_and_geometry(route_file, limits_file, overrides: dict, constraint_arg
 
         road = RouteConstraints(zones=road_zones, superelevation=source.superelevation)
         constraints = overlay_constraints(road, constraints)
+        if road_zones or source.superelevation:
+            origin += " with the road data's speed records and superelevation"
     return limits, constraints, origin, geometry

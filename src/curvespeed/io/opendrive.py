@@ -237,7 +237,8 @@ def _road(doc: _Doc, el) -> Road:
     for t in doc.children(el, "type"):
         speed = doc.child(t, "speed")
         mps = _speed(doc, speed, "max") if speed is not None else None
-        types.append((doc.number(t, "s"), mps, f"{doc.source}: {doc.where(speed if speed is not None else t)}"))
+        here = doc.where(speed if speed is not None else t)
+        types.append((doc.number(t, "s"), mps, f"{doc.source}: {here}"))
     breaks = set(starts) | set(offset.starts_m) | set(elevation.starts_m) | set(roll.starts_m)
     for sec in sections:
         breaks.add(sec.s_m)
