@@ -35,6 +35,7 @@ from ..errors import RouteGeometryError
 from ..limits import SpeedZone, Superelevation
 from .design_curves import Piecewise3, ReferenceLine, sum_piecewise
 from .model import Geometry
+from .points import MAX_STATIONS
 
 #: Gauss-Legendre nodes per piece of the arc-length table: the integrand |P'| is smooth between
 #: breakpoints and the pieces are at most _TABLE_STEP_M long, so 10 nodes reach round-off.
@@ -110,6 +111,13 @@ def lane_centre(piece: PathPiece, s) -> dict:
     z = piece.elevation(s) + t * np.tan(phi)
     dz = piece.elevation(s, 1) + t1 * np.tan(phi) + t * phi1 / np.cos(phi) ** 2
     sign = -1.0 if piece.reverse else 1.0
+    bad = ~(np.isfinite(curvature) & np.isfinite(x) & np.isfinite(y) & np.isfinite(z))
+    if bad.any():
+        k_bad = int(np.flatnonzero(bad)[0])
+        raise RouteGeometryError(
+            f"{piece.label}: at road station {s[k_bad]:.2f} m the design data give no finite "
+            "position, height or curvature (a cubic whose tangent vanishes, or values too "
+            "large); check the plan element and profiles there")
     if np.any(a <= 0):
         k_bad = int(np.flatnonzero(a <= 0)[0])
         raise RouteGeometryError(
@@ -217,12 +225,22 @@ def build_road_path(pieces, spacing_m: float = 1.0, closed: bool | None = None,
     ``True`` demands it (a clear error otherwise), ``False`` keeps it open.
     """
     if not (math.isfinite(spacing_m) and spacing_m > 0):
-        raise RouteGeometryError(f"station spacing must be a positive number of metres, got "
-                                 f"{spacing_m!r}")
-    tables = [_table(p) for p in pieces]
+        raise RouteGeometryError(f"{source}: station spacing must be a positive number of "
+                                 f"metres (got {spacing_m!r}); use --spacing 1 for example")
+    if not pieces:
+        raise RouteGeometryError(f"{source}: the chosen roads have no lane section of positive "
+                                 "length; there is nothing to drive")
+    try:
+        tables = [_table(p) for p in pieces]
+    except RouteGeometryError as exc:             # name the file, as every reader's message does
+        raise RouteGeometryError(f"{source}: {exc}") from None
     lengths = np.array([t.length_m for t in tables])
     starts = np.concatenate(([0.0], np.cumsum(lengths)))
     total = float(starts[-1])
+    if total / spacing_m > MAX_STATIONS:
+        raise RouteGeometryError(f"{source}: {total:.0f} m at {spacing_m:g} m spacing is "
+                                 f"{total / spacing_m:.3g} stations (at most {MAX_STATIONS:.0e}); "
+                                 f"use --spacing {total / MAX_STATIONS:.3g} or more")
     n = max(1, math.ceil(total / spacing_m - 1e-9))
     station = total * np.arange(n + 1) / n
     which = np.clip(np.searchsorted(starts, station, side="right") - 1, 0, len(pieces) - 1)

@@ -333,7 +333,7 @@ def _sections(doc: _Doc, lanes_el, rid: str, road_length: float) -> list:
     starts = [doc.number(e, "s") for e in els]
     out = []
     for k, e in enumerate(els):
-        end = starts[k + 1] if k + 1 < len(els) else road_length
+        end = min(starts[k + 1] if k + 1 < len(els) else road_length, road_length)
         lanes = {}
         for side in ("left", "center", "right"):
             block = doc.child(e, side)

@@ -171,6 +171,8 @@ def _road_pieces(network: Network, road: Road, back: bool, lane: int, use_elevat
     pieces = []
     sections = _travel_sections(road, back)
     for k, section in enumerate(sections):
+        if section.end_m <= section.s_m:          # an empty section: nothing to drive
+            continue
         if lane not in section.lanes:
             have = ", ".join(str(i) for i in sorted(section.lanes))
             raise RouteFormatError(f"{network.source}: road {road.id}: lane {lane} is absent "
