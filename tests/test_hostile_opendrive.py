@@ -107,3 +107,14 @@ def test_awkward_but_readable_files_warn(tmp_path):
     assert result.exit_code == 0, result.output
     for needle in ("OpenDRIVE version 1.9", "declared length 52.000 m", "<shape>"):
         assert needle in result.output
+
+
+def test_header_offset_with_a_geo_reference_warns(tmp_path):
+    """The header offset (OpenDRIVE 1.6) is not applied; with a geoReference that would shift
+    latitude and longitude, so it is said."""
+    header = ("<geoReference><![CDATA[+proj=tmerc +lat_0=10 +lon_0=-30 +ellps=WGS84 "
+              '+units=m]]></geoReference><offset x="10" y="0" z="0" hdg="0"/>')
+    path = write(tmp_path, document(road(1, LINE, 50.0), header=header))
+    result = CliRunner().invoke(cli, ["route", str(path)])
+    assert result.exit_code == 0, result.output
+    assert "line 3, <offset>: the header's offset is not applied" in result.output

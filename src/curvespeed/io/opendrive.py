@@ -194,6 +194,12 @@ def parse_opendrive(data: bytes, source: str) -> Network:
         ref = doc.child(header, "geoReference")
         if ref is not None and (ref.text or "").strip():
             geo = ref.text.strip()
+        offset = doc.child(header, "offset")
+        if geo and offset is not None and \
+                any(doc.number(offset, k, 0.0) for k in ("x", "y", "z", "hdg")):
+            doc.warn(offset, "the header's offset is not applied: positions stay in the file's "
+                             "plan coordinates, so latitude and longitude from the geoReference "
+                             "are shifted by it")
     roads = {}
     for el in doc.children(doc.root, "road"):
         road = _road(doc, el)
