@@ -338,3 +338,35 @@ def test_roads_that_do_not_meet_are_reported(tmp_path):
                                'contactPoint="end"/>'))
     with pytest.warns(CurvespeedWarning, match=r"ends 0\.500 m in plan .* the path jumps"):
         _path(tmp_path, text, roads=["1", "2"], lane=0)
+
+
+def test_demo_elements_end_where_the_next_begins():
+    """Each demo element's start point was integrated by scipy's adaptive quadrature in the
+    generator (routes/make_demo_network.py); curvespeed's own evaluation of the element before
+    it (Gauss-Legendre, closed-form headings, arc-length inversion for poly3) must end there.
+    Tolerance 1e-7 m: both integrals are converged far below it (quad asked for 1e-12
+    absolute), and the file rounds to 17 significant digits."""
+    from curvespeed.io.opendrive import parse_opendrive
+
+    network = parse_opendrive(DEMO.read_bytes(), str(DEMO))
+    checked = 0
+    for rd in network.roads.values():
+        ref = rd.reference
+        for k in range(1, len(ref.curves)):
+            end = ref.curves[k - 1].evaluate(np.array([ref.curves[k - 1].length_m]))
+            start = ref.curves[k].evaluate(np.array([0.0]))
+            assert abs(end.x_m[0] - start.x_m[0]) < 1e-7 and abs(end.y_m[0] - start.y_m[0]) < 1e-7
+            assert abs(end.heading_rad[0] - start.heading_rad[0]) < 1e-9
+            checked += 1
+    assert checked >= 12
+
+
+def test_demo_file_is_what_its_generator_writes():
+    """routes/proving_ground.xodr is reproducible from its generator, byte for byte."""
+    import importlib.util
+
+    spec = importlib.util.spec_from_file_location("make_demo_network",
+                                                  DEMO.parent / "make_demo_network.py")
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    assert module.build() == DEMO.read_text(encoding="utf-8")
