@@ -48,9 +48,9 @@ _NEWTON_TOL_M = 1e-11
 #: loop; metres and radians. Design data close a loop to round-off.
 _CLOSE_M = 1e-3
 _CLOSE_RAD = 1e-4
-#: Superelevation rates within this of each other are one range (rise over run; 1e-6 is a
-#: height difference of 1 micrometre per metre of cross-section).
-_RATE_ROUND = 1e-6
+#: Superelevation rates are rounded to this many decimals, so that equal rates form one range
+#: (rise over run; 1e-6 is a height difference of 1 micrometre per metre of cross-section).
+_RATE_DECIMALS = 6
 
 
 @dataclass(frozen=True)
@@ -326,7 +326,7 @@ def superelevation_rate(curvature, roll) -> np.ndarray:
 
 
 def _superelevation(station, curvature, roll) -> tuple:
-    rate = np.round(superelevation_rate(curvature, roll) / _RATE_ROUND) * _RATE_ROUND
+    rate = np.round(superelevation_rate(curvature, roll), _RATE_DECIMALS)
     ds = float(station[1] - station[0])
     out = []
     k = 0
