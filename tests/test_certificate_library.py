@@ -18,12 +18,14 @@ def test_face_names_are_the_library_functions():
     from curvespeed.geometry import build_geometry
     from curvespeed.io import read_route
     from curvespeed.io.limits_toml import read_limits
+    from curvespeed.io.opendrive_path import read_opendrive
     from curvespeed.planner import plan_profile
     from curvespeed.replan import Replanner
 
     assert cs.read_route is read_route
     assert cs.build_geometry is build_geometry
     assert cs.read_limits is read_limits
+    assert cs.read_opendrive is read_opendrive
     assert cs.plan_profile is plan_profile
     assert cs.Replanner is Replanner
     for name in cs.__all__:

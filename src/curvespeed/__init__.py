@@ -9,6 +9,8 @@ function or class, imported on first use so that ``import curvespeed`` (and the 
 stays fast:
 
 * :func:`cs.read_route <curvespeed.io.read_route>` -- a route file (CSV, GeoJSON, GPX);
+* :func:`cs.read_opendrive <curvespeed.io.opendrive_path.read_opendrive>` -- a path along
+  lanes of an ASAM OpenDRIVE road network: its exact geometry, superelevation and speed zones;
 * :func:`cs.build_geometry <curvespeed.geometry.build_geometry>` -- its stations, heading and
   curvature;
 * :func:`cs.read_limits <curvespeed.io.limits_toml.read_limits>` -- a limits file (TOML): the
@@ -29,6 +31,7 @@ __version__ = "0.1.0"
 #: Public name -> (module, attribute), imported on first use (PEP 562).
 _FACE = {
     "read_route": ("curvespeed.io", "read_route"),
+    "read_opendrive": ("curvespeed.io.opendrive_path", "read_opendrive"),
     "build_geometry": ("curvespeed.geometry", "build_geometry"),
     "read_limits": ("curvespeed.io.limits_toml", "read_limits"),
     "plan_profile": ("curvespeed.planner", "plan_profile"),

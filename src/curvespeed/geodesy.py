@@ -177,3 +177,55 @@ def _best_great_circle(lat_deg: np.ndarray, lon_deg: np.ndarray) -> LocalProject
     if not np.hypot(x0, y0) < 1.0:          # the origin must be the centre (pyproj conventions)
         return None
     return projection
+
+
+@dataclass(frozen=True)
+class GeoReference:
+    """The projected frame an OpenDRIVE file's ``geoReference`` names (a PROJ string or an
+    authority code such as ``EPSG:25832``): plan x, y in metres of that frame, and back.
+
+    Offers the same conversions as :class:`LocalProjection` (``to_metres``, ``to_latlon``,
+    ``to_dict``, ``proj_string``), with pyproj doing the arithmetic.
+    """
+
+    text: str
+
+    @classmethod
+    def from_text(cls, text: str) -> "GeoReference":
+        """Check that PROJ reads ``text`` as a projected frame; ValueError otherwise."""
+        from pyproj import CRS
+        from pyproj.exceptions import CRSError
+
+        try:
+            crs = CRS.from_user_input(text.strip())
+        except CRSError as exc:
+            raise ValueError(str(exc).split("\n")[0]) from None
+        if not crs.is_projected:
+            raise ValueError("not a projected (metric) coordinate reference")
+        return cls(text.strip())
+
+    @property
+    def proj_string(self) -> str:
+        return self.text
+
+    @cached_property
+    def _transformers(self):
+        from pyproj import CRS, Transformer
+
+        local = CRS.from_user_input(self.text)
+        wgs84 = CRS.from_epsg(4326)
+        return (Transformer.from_crs(wgs84, local, always_xy=True),
+                Transformer.from_crs(local, wgs84, always_xy=True))
+
+    def to_metres(self, lat_deg, lon_deg) -> tuple[np.ndarray, np.ndarray]:
+        fwd, _ = self._transformers
+        x, y = fwd.transform(np.asarray(lon_deg, dtype=float), np.asarray(lat_deg, dtype=float))
+        return np.asarray(x, dtype=float), np.asarray(y, dtype=float)
+
+    def to_latlon(self, x_m, y_m) -> tuple[np.ndarray, np.ndarray]:
+        _, inv = self._transformers
+        lon, lat = inv.transform(np.asarray(x_m, dtype=float), np.asarray(y_m, dtype=float))
+        return np.asarray(lat, dtype=float), np.asarray(lon, dtype=float)
+
+    def to_dict(self) -> dict:
+        return {"kind": "opendrive_geo_reference", "proj": self.text}

@@ -281,6 +281,29 @@ class RouteConstraints:
         return dataclasses.asdict(self)
 
 
+def overlay_constraints(road: RouteConstraints, user: RouteConstraints) -> RouteConstraints:
+    """The road data's own constraints with the user's on top: wherever the user gives a speed
+    zone or a superelevation range, the road's zones or superelevation over that range are
+    dropped and the user's apply; stops and end speeds are the user's."""
+    return RouteConstraints(
+        zones=_cut(road.zones, user.zones) + user.zones, stops=user.stops,
+        superelevation=_cut(road.superelevation, user.superelevation) + user.superelevation,
+        start_speed_mps=user.start_speed_mps, end_speed_mps=user.end_speed_mps)
+
+
+def _cut(items: tuple, covers: tuple) -> tuple:
+    """``items`` (with start_m, end_m) without the station ranges of ``covers``."""
+    out = []
+    for item in items:
+        spans = [(item.start_m, item.end_m)]
+        for c in covers:
+            spans = [span for lo, hi in spans
+                     for span in ((lo, min(hi, c.start_m)), (max(lo, c.end_m), hi))
+                     if span[1] > span[0]]
+        out.extend(dataclasses.replace(item, start_m=lo, end_m=hi) for lo, hi in spans)
+    return tuple(out)
+
+
 #: A station this close past either end of the route is at that end, m: the route's length is a
 #: sum of many arc-length pieces and carries their round-off (a 400 m straight measures
 #: 399.9999999999997 m), which no one can see in a station they type.

@@ -135,6 +135,21 @@ class NoiseParam(FiniteFloat):
         return number
 
 
+class RoadList(click.ParamType):
+    """Comma-separated road ids (OpenDRIVE ids are strings): ``3,7,12``."""
+
+    name = "roads"
+
+    def convert(self, value, param, ctx):
+        if isinstance(value, (list, tuple)):
+            return list(value)
+        items = [v.strip() for v in str(value).split(",")]
+        if not all(items):
+            self.fail(f"'{value}' has an empty road id; write the ids separated by commas, "
+                      "e.g. 3,7,12", param, ctx)
+        return items
+
+
 def geometry_options(func):
     """Add the route-resampling options (spacing, noise, elevation, closed/open, part)."""
     options = [
@@ -164,16 +179,36 @@ def geometry_options(func):
         click.option("--all-tracks", "all_tracks", is_flag=True,
                      help="Read every track of a GPX file as a drive of the same route and "
                           "fuse them."),
+        click.option("--road", "roads", type=RoadList(), default=None, metavar="ID[,ID...]",
+                     help="OpenDRIVE: the road, or the chain of linked roads in driving order "
+                          "(default: the file's first road)."),
+        click.option("--lane", "lane", type=int, default=None, metavar="ID",
+                     help="OpenDRIVE: the lane to follow on the first road (negative: right of "
+                          "the reference line; 0: the centre lane). Default: the first driving "
+                          "lane on the side the road's traffic rule drives on."),
     ]
     for option in reversed(options):
         func = option(func)
     return func
 
 def load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m, use_elevation,
-                  closed, part, drives=(), all_tracks=False):
+                  closed, part, drives=(), all_tracks=False, roads=None, lane=None):
     """Read ``route_file`` (and any further drives) and resample it; library errors propagate
     to the CLI handler. The arguments after the file are the values of
-    :func:`geometry_options`, in its order. Several drives are fused into one centreline."""
+    :func:`geometry_options`, in its order. Several drives are fused into one centreline.
+
+    An OpenDRIVE file (``.xodr``) gives its exact lane-centre geometry instead: the first item
+    returned is then the :class:`~curvespeed.geometry.road_path.RoadPath` (with the road's own
+    superelevation and speed zones), not a Route.
+    """
+    from pathlib import Path
+
+    if Path(str(route_file)).suffix.lower() in OPENDRIVE_EXTENSIONS:
+        return _load_road(route_file, spacing_m, position_noise_m, elevation_noise_m,
+                          use_elevation, closed, part, drives, all_tracks, roads, lane)
+    if roads or lane is not None:
+        raise click.UsageError("--road and --lane choose a path through an OpenDRIVE road "
+                               "network; they apply to .xodr files only")
     from ..geometry import build_geometry
     from ..io import read_drives
 
@@ -188,6 +223,29 @@ def load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m, us
 
         return routes[0], build_fused_geometry(routes, **options)
     return routes[0], build_geometry(routes[0], **options)
+
+
+#: Extensions read as OpenDRIVE road networks.
+OPENDRIVE_EXTENSIONS = (".xodr",)
+
+
+def _load_road(route_file, spacing_m, position_noise_m, elevation_noise_m, use_elevation,
+               closed, part, drives, all_tracks, roads, lane):
+    """The exact lane-centre path of an OpenDRIVE file (no fit: noise options do not apply)."""
+    if drives or all_tracks or part is not None:
+        raise click.UsageError("--drive, --all-tracks and --part apply to recorded drives; an "
+                               "OpenDRIVE file states its geometry exactly")
+    if position_noise_m is not None or elevation_noise_m is not None:
+        import warnings
+
+        from ..errors import CurvespeedWarning
+
+        warnings.warn(f"{route_file}: --position-noise and --elevation-noise are ignored: an "
+                      "OpenDRIVE file states its geometry exactly", CurvespeedWarning)
+    from ..io.opendrive_path import read_opendrive
+
+    path = read_opendrive(route_file, roads, lane, spacing_m, closed, use_elevation)
+    return path, path.geometry
 
 
 def register_drives(outputs, drives) -> None:

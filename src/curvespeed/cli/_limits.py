@@ -125,5 +125,13 @@ def limits_and_geometry(route_file, limits_file, overrides: dict, constraint_arg
     from ._common import load_geometry
 
     limits, constraints, origin = resolve_limits(limits_file, overrides, *constraint_args)
-    _, geometry = load_geometry(route_file, *geometry_args)
+    source, geometry = load_geometry(route_file, *geometry_args)
+    road_zones = getattr(source, "zones", None)
+    if road_zones is not None:            # an OpenDRIVE path: the road's own data, under the user's
+        from ..limits import RouteConstraints, overlay_constraints
+
+        road = RouteConstraints(zones=road_zones, superelevation=source.superelevation)
+        constraints = overlay_constraints(road, constraints)
+        if road_zones or source.superelevation:
+            origin += " with the road data's speed records and superelevation"
     return limits, constraints, origin, geometry

@@ -48,7 +48,7 @@ from ._limits import constraint_options, limit_override_options, limits_and_geom
 def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_speed_kmh, e_max,
           trace_noise_m, curve_radius_m, json_file, csv_file, force, spacing_m,
           position_noise_m, elevation_noise_m, use_elevation, closed, part,
-          drives, all_tracks, zones, stops, superelevations, start_speed, end_speed,
+          drives, all_tracks, roads, lane, zones, stops, superelevations, start_speed, end_speed,
           **overrides):
     """Check speeds along ROUTE_FILE against friction, comfort and road-design criteria.
 
@@ -89,7 +89,7 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
             route_file, limits_file, overrides,
             (zones, stops, superelevations, start_speed, end_speed),
             (spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
-             part, drives, all_tracks))
+             part, drives, all_tracks, roads, lane))
         report = _check(geo, limits, constraints, origin, speeds_file, speed_kmh, trace_noise_m,
                         design_speed_kmh, e_max, curve_radius_m)
         if json_file:

@@ -38,7 +38,7 @@ from ._limits import constraint_options, limit_override_options, limits_and_geom
 @handle_errors
 def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort_weight, plot_file, force,
          spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed, part,
-         drives, all_tracks, zones, stops, superelevations, start_speed, end_speed,
+         drives, all_tracks, roads, lane, zones, stops, superelevations, start_speed, end_speed,
          **overrides):
     """Plan the fastest speed profile along ROUTE_FILE within the limits.
 
@@ -72,7 +72,7 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
             route_file, limits_file, overrides,
             (zones, stops, superelevations, start_speed, end_speed),
             (spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
-             part, drives, all_tracks))
+             part, drives, all_tracks, roads, lane))
 
         from ..planner import plan_profile
 

@@ -18,8 +18,8 @@ from ._common import (describe_fit, echo, geometry_options, handle_errors, load_
 @click.option("--force", is_flag=True, help="Replace the output file if it exists.")
 @handle_errors
 def route(route_file, spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
-          part, drives, all_tracks, output, force):
-    """Read ROUTE_FILE (CSV, GeoJSON or GPX), resample it and print a summary."""
+          part, drives, all_tracks, roads, lane, output, force):
+    """Read ROUTE_FILE (CSV, GeoJSON, GPX or OpenDRIVE), resample it and print a summary."""
     from ..io.atomic import OutputFiles
 
     outputs = OutputFiles(force)
@@ -29,7 +29,8 @@ def route(route_file, spacing_m, position_noise_m, elevation_noise_m, use_elevat
         outputs.add_output(output, "-o/--output")
     with outputs:               # the output checked here; written at the end
         rt, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m,
-                                use_elevation, closed, part, drives, all_tracks)
+                                use_elevation, closed, part, drives, all_tracks, roads,
+                                lane)
         echo(_summary(route_file, rt, geo))
         if output:
             from ..io.geometry_csv import geometry_csv_text
@@ -46,19 +47,40 @@ def _summary(route_file, rt, geo) -> str:
     summary = summarise_geometry(geo)
     radius = ("none (straight)" if math.isinf(summary["min_radius_m"]) else
               f"{summary['min_radius_m']:.1f} m at station {summary['min_radius_station_m']:.1f} m")
-    lines = [
-        f"route          {route_file} ({geo.name})",
-        f"points read    {rt.n_points}" + (" (latitude/longitude, projected to a local "
-                                           "transverse Mercator)" if rt.is_geographic else ""),
+    lines = [f"route          {route_file} ({geo.name})"]
+    if hasattr(rt, "n_points"):
+        lines.append(f"points read    {rt.n_points}" + (
+            " (latitude/longitude, projected to a local transverse Mercator)"
+            if rt.is_geographic else ""))
+    else:
+        lines.extend(_road_lines(rt))
+    lines += [
         f"length         {summary['length_m']:.1f} m "
         f"({'closed loop' if summary['closed'] else 'open'})",
         f"stations       {summary['n_nodes']} at {summary['spacing_m']:.4g} m spacing",
         f"min radius     {radius}",
         f"total turning  {summary['total_turning_deg']:.1f} degrees",
     ]
-    lines.extend(describe_fit(geo.provenance))
+    lines.extend(describe_fit(geo.provenance) if "points_read" in geo.provenance else [])
     if summary["min_elevation_m"] is not None:
         lines.append(f"elevation      {summary['min_elevation_m']:.1f} .. "
                      f"{summary['max_elevation_m']:.1f} m, grade {100 * summary['min_grade']:.1f}"
                      f" .. {100 * summary['max_grade']:.1f} %")
     return "\n".join(lines)
+
+
+def _road_lines(path) -> list[str]:
+    """What an OpenDRIVE path is made of and what the road data add to it."""
+    geo = path.geometry
+    labels = [p for k, p in enumerate(geo.provenance["pieces"])
+              if k == 0 or p != geo.provenance["pieces"][k - 1]]
+    lines = [f"path           {' -> '.join(labels)} (exact design geometry, "
+             "stations along the lane centre)"]
+    if geo.projection is not None:
+        lines.append(f"geoReference   {geo.projection.proj_string}")
+    banked = sum(e.end_m - e.start_m for e in path.superelevation)
+    caps = sorted({round(z.max_speed_mps, 3) for z in path.zones})
+    lines.append(f"road data      {len(path.zones)} speed zone(s)"
+                 + (f" ({', '.join(f'{v:g}' for v in caps)} m/s)" if caps else "")
+                 + f"; superelevation over {min(banked, geo.length_m):.1f} m")
+    return lines

@@ -24,6 +24,8 @@ from .model import Geometry
 #: round-off (the rule is exact for polynomials of degree 23; the Taylor remainder of cos(theta)
 #: over a turn of 0.25 rad at that degree is below 1e-20).
 _GL_NODES = 12
+#: Their nodes and weights, computed once (computing them costs more than using them).
+_GL_X, _GL_W = legendre.leggauss(_GL_NODES)
 #: Longest piece (metres) and largest turn across one piece (radians) for the position integral.
 _MAX_PIECE_M = 20.0
 _MAX_PIECE_TURN_RAD = 0.25
@@ -169,7 +171,7 @@ class Alignment:
 
     def _integrate(self, a, b, element):
         """Integral of (cos, sin) heading from ``a`` to ``b`` within element ``element``."""
-        nodes, weights = legendre.leggauss(_GL_NODES)
+        nodes, weights = _GL_X, _GL_W
         k0, rate = self._coeffs()
         h0 = self._heading_start[element]
         start = self._start[element]

@@ -7,7 +7,9 @@ Each file-format family has its own module, which owns every message about that 
 * :mod:`~curvespeed.io.geojson` - RFC 7946 LineString (bare, in a Feature or FeatureCollection),
   or a MultiLineString whose parts meet;
 * :mod:`~curvespeed.io.gpx` - GPX 1.1 / 1.0 tracks and routes;
-* :mod:`~curvespeed.io.geometry_csv` - the resampled geometry as CSV.
+* :mod:`~curvespeed.io.geometry_csv` - the resampled geometry as CSV;
+* :mod:`~curvespeed.io.opendrive` and :mod:`~curvespeed.io.opendrive_path` - ASAM OpenDRIVE
+  road networks (``.xodr``): exact lane-centre geometry, not points (see ``read_opendrive``).
 
 :func:`read_route` picks the reader from the file extension. The input rules and every message a
 user can meet are listed in ``docs/input_rules.md``.
@@ -58,6 +60,11 @@ def read_route(path: str | os.PathLike) -> Route:
     p = Path(path)
     source = str(path)
     kind = ROUTE_EXTENSIONS.get(p.suffix.lower())
+    if p.suffix.lower() == ".xodr":
+        raise RouteFormatError(
+            f"{source}: an OpenDRIVE road network states its geometry exactly and is not read "
+            "as points; use curvespeed.io.opendrive_path.read_opendrive (the command line "
+            "reads .xodr files directly)")
     if kind is None:
         ext = f"extension '{p.suffix}'" if p.suffix else "no extension"
         raise RouteFormatError(

@@ -194,18 +194,30 @@ def _warn_gaps(x: np.ndarray, y: np.ndarray, time_s, segment_starts: np.ndarray,
 
 
 def _parse_xml(data: bytes, source: str) -> ET.Element:
+    return _parse_xml_with(data, source, None, "GPX")
+
+
+def _parse_xml_with(data: bytes, source: str, target, what: str) -> ET.Element:
+    """Parse through defusedxml (``target``: a tree builder, or None for the default);
+    ``what`` names the format in the advice ("GPX", "OpenDRIVE file")."""
     try:
-        return DefusedET.fromstring(data)
+        if target is None:
+            return DefusedET.fromstring(data)
+        parser = DefusedET.DefusedXMLParser(target=target)
+        target.parser = parser
+        parser.feed(data)
+        return parser.close()
     except EntitiesForbidden:
         raise fail(source, None, "refused: the file declares XML entities (<!ENTITY ...>), "
                                  "which can expand without bound or read other files; "
-                                 "remove the DOCTYPE block and export the GPX again") from None
+                                 f"remove the DOCTYPE block and export the {what} again") from None
     except ExternalReferenceForbidden:
         raise fail(source, None, "refused: the file refers to an external XML resource; "
-                                 "remove the DOCTYPE block and export the GPX again") from None
+                                 f"remove the DOCTYPE block and export the {what} again") from None
     except DefusedXmlException as exc:
         raise fail(source, None, f"refused: the file uses an XML feature curvespeed does not "
-                                 f"accept ({type(exc).__name__}); export the GPX again") from None
+                                 f"accept ({type(exc).__name__}); export the {what} "
+                                 "again") from None
     except LookupError as exc:                  # an encoding Python does not know
         name = str(exc).rpartition(": ")[2] or str(exc)
         raise fail(source, "line 1", f"the XML declaration names the text encoding '{name}', "
