@@ -26,6 +26,7 @@ after the planned time on a profile that ends at rest, when it loses the path (o
 from __future__ import annotations
 
 import enum
+import functools
 import math
 from dataclasses import dataclass, field
 
@@ -128,6 +129,7 @@ class ReplayResult:
     end_station_m: float
     name: str = "route"
     source: str = "profile"
+    tracker_stats: dict = field(default_factory=dict)
 
     @property
     def success(self) -> bool:
@@ -192,12 +194,15 @@ def replay(profile, vehicle: Vehicle = DEFAULT_VEHICLE,
     top = 1.25 * float(np.max(sp.speed_mps)) + 5.0
     tracker = make_tracker(vehicle, settings, top)
     state = initial_state(vehicle, path, tracker, float(sp.speed_mps[0]))
-    rows = _run(vehicle, settings, substeps, ref, path, tracker, state, sp)
-    status, rows = rows
+    status, rows = _run(vehicle, settings, substeps, ref, path, tracker, state, sp)
+    stats = {}
+    if tracker.needs_preview:
+        stats = {"qp_solves": tracker.solves, "qp_fallbacks": tracker.fallbacks,
+                 "mean_qp_iterations": tracker.iterations / max(tracker.solves, 1)}
     columns = {name: np.asarray(col, dtype=float) for name, col in zip(REPLAY_COLUMNS, rows)}
     return ReplayResult(columns=columns, status=status, vehicle=vehicle, settings=settings,
                         planned_time_s=float(ref.total_time_s), end_station_m=path.end_m,
-                        name=sp.name, source=sp.source)
+                        name=sp.name, source=sp.source, tracker_stats=stats)
 
 
 def _reference(ref, i: int):
@@ -236,7 +241,7 @@ def _run(vehicle, settings, substeps, ref, path, tracker, state, sp):
             s_ref, v_ref, a_ref = ref_s[i], ref_v[i], ref_a[i]
         else:
             s_ref, v_ref, a_ref = ref_s[-1], ref_v[-1], 0.0
-        window = preview.at(i, s) if preview is not None else None
+        window = functools.partial(preview.at, i, s) if preview is not None else None
         command = tracker.steer(e, de, e_psi, de_psi, delta, vx, kappa, window)
         command = -max_steer if command < -max_steer else (max_steer if command > max_steer
                                                            else command)

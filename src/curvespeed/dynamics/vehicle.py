@@ -267,3 +267,39 @@ def tyre_use(vehicle: Vehicle, vx, vy, r, delta, force_x):
     use_f = math.hypot(fx_f, fy_f) / cap_f
     use_r = math.hypot(fx_r, fy_r) / cap_r
     return alpha_f, alpha_r, use_f, use_r
+
+
+#: Ranges a parameter must lie in, with the reason (common practice; the steering lag's lower
+#: bound keeps the lag resolved by the 0.01 s integration step).
+PARAMETER_RANGES = {
+    "mass_kg": (1.0, 1e6, "from a small robot to the heaviest road vehicles"),
+    "yaw_inertia_kgm2": (0.01, 1e8, "a passenger car has about 2,000-3,500 kg m^2"),
+    "front_axle_to_cg_m": (0.05, 20.0, "a passenger car has 1-1.6 m"),
+    "rear_axle_to_cg_m": (0.05, 20.0, "a passenger car has 1-1.8 m"),
+    "front_cornering_stiffness_npr": (100.0, 1e7, "a passenger car axle has about "
+                                      "100,000-200,000 N/rad"),
+    "rear_cornering_stiffness_npr": (100.0, 1e7, "a passenger car axle has about "
+                                     "100,000-200,000 N/rad"),
+    "friction_coefficient": (0.05, 2.0, "tyre-road friction is about 0.7-0.9 on dry asphalt, "
+                             "0.1 on ice, below 2 even for racing tyres"),
+    "max_steer_rad": (0.01, 1.2, "road wheels steer up to about 0.6 rad (35 degrees); "
+                      "1.2 rad is near the kinematic model's 90-degree singularity"),
+    "max_steer_rate_radps": (0.01, 20.0, "steering actuators turn the road wheels at about "
+                             "0.3-1 rad/s"),
+    "steer_lag_s": (0.02, 5.0, "steering actuators lag by about 0.05-0.3 s; below 0.02 s the "
+                    "0.01 s integration step cannot resolve the lag"),
+}
+
+
+def validate_vehicle(vehicle: Vehicle, where: str = "vehicle") -> Vehicle:
+    """Raise :class:`~curvespeed.errors.VehicleError` naming ``where`` and the parameter when a
+    value lies outside :data:`PARAMETER_RANGES`; return ``vehicle``."""
+    from ..errors import VehicleError
+
+    for name, (low, high, why) in PARAMETER_RANGES.items():
+        value = getattr(vehicle, name)
+        if not (isinstance(value, (int, float)) and math.isfinite(value)
+                and low <= value <= high):
+            raise VehicleError(f"{where}: {name} = {value!r} is outside {low:g}..{high:g} "
+                               f"({why}); give a value in that range")
+    return vehicle
