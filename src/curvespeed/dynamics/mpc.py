@@ -182,7 +182,7 @@ class MpcTracker:
         P_end = self.P_tab[i[-1]] * (1.0 - f[-1]) + self.P_tab[i[-1] + 1] * f[-1]
         x0 = np.array([e, de, e_psi, de_psi, delta])
         self._update(Ad, Bd, Ed, ss, P_end, x0, V * kappa, kappa)
-        result = self.solver.solve()
+        result = self.solver.solve(raise_error=False)
         self.solves += 1
         self.iterations += int(result.info.iter)
         n = self.horizon

@@ -212,6 +212,8 @@ def derivatives(vehicle: Vehicle, state, command: float, force_x: float):
         L, b = vehicle.wheelbase_m, vehicle.rear_axle_to_cg_m
         t = math.tan(delta)
         ax_kin = force_x / vehicle.mass_kg
+        if vx <= 0.0 and ax_kin < 0.0:
+            ax_kin = 0.0              # held at rest (below)
         r_kin = vx * t / L
         # d/dt of r = vx tan(delta) / L and vy = b r, plus the relaxation onto them
         along = (ax_kin * t + vx * ddelta * (1.0 + t * t)) / L
