@@ -1,0 +1,162 @@
+"""Command-line tests of ``curvespeed replay`` on a small invented profile, and the vehicle
+file's reader on broken files.
+
+Each test asserts the exit code, the message and the files written (or not written).
+"""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+from click.testing import CliRunner
+
+from curvespeed.cli.main import cli
+from curvespeed.dynamics.simulate import REPLAY_COLUMNS
+from curvespeed.dynamics.vehicle import DEFAULT_VEHICLE
+from curvespeed.errors import VehicleError
+from curvespeed.io.profile_csv import write_profile_csv
+from curvespeed.io.table_csv import read_table_csv
+from curvespeed.io.vehicle_toml import VEHICLE_KEYS, read_vehicle
+from curvespeed.limits import Limits, RouteConstraints
+from curvespeed.planner import plan_profile
+
+from helpers import geometry_from_curvature
+
+
+@pytest.fixture(scope="module")
+def profile_file(tmp_path_factory):
+    """An invented hook: straight, a 30 m left curve, a 45 m right curve; planned from rest."""
+    s = np.arange(241.0)
+    kappa = np.interp(s, [0, 50, 80, 120, 150, 170, 200, 240],
+                      [0, 0, 1 / 30, 1 / 30, 0, 0, -1 / 45, -1 / 45])
+    geo = geometry_from_curvature(kappa, name="Invented hook")
+    profile = plan_profile(geo, Limits(), RouteConstraints())
+    path = tmp_path_factory.mktemp("replay") / "hook.csv"
+    write_profile_csv(profile, path)
+    return path
+
+
+def run(*args):
+    return CliRunner().invoke(cli, ["replay", *[str(a) for a in args]])
+
+
+def test_replay_writes_the_run_summary_and_figure(profile_file, tmp_path):
+    out, fig, summary = tmp_path / "run.csv", tmp_path / "run.png", tmp_path / "run.json"
+    result = run(profile_file, "-o", out, "--plot", fig, "--json", summary,
+                 "--max-lateral-error", "0.3")
+    assert result.exit_code == 0, result.output
+    assert "reached the end of the profile" in result.output
+    assert "PASS: lateral error within 0.3 m" in result.output
+    table = read_table_csv(out)
+    assert list(table.columns) == list(REPLAY_COLUMNS)
+    assert np.max(np.abs(table.columns["lateral_error_m"])) < 0.3
+    assert fig.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    doc = json.loads(summary.read_text())
+    assert doc["format"] == "curvespeed-replay-summary"
+    assert doc["tracker"] == "lqr"
+    assert doc["summary"]["completed"] is True
+    assert doc["vehicle"]["mass_kg"] == DEFAULT_VEHICLE.mass_kg
+    # deterministic: the same command writes the same bytes
+    again = tmp_path / "again.csv"
+    assert run(profile_file, "-o", again).exit_code == 0
+    assert again.read_bytes() == out.read_bytes()
+
+
+def test_gate_exceeded_exits_1_and_still_writes(profile_file, tmp_path):
+    out = tmp_path / "run.csv"
+    result = run(profile_file, "-o", out, "--max-lateral-error", "0.000001")
+    assert result.exit_code == 1, result.output
+    assert "FAIL: lateral error" in result.output
+    assert out.exists()
+
+
+def test_mpc_tracker_from_the_command_line(profile_file, tmp_path):
+    out = tmp_path / "run.csv"
+    result = run(profile_file, "-o", out, "--tracker", "mpc", "--max-lateral-error", "0.3")
+    assert result.exit_code == 0, result.output
+    assert "mpc tracker" in result.output
+    assert "QPs (OSQP)" in result.output
+
+
+def test_vehicle_file_changes_the_vehicle(profile_file, tmp_path):
+    vehicle = tmp_path / "slippery.toml"
+    vehicle.write_text("[vehicle]\nfriction_coefficient = 0.3\nmass_kg = 1800\n")
+    out, summary = tmp_path / "run.csv", tmp_path / "run.json"
+    result = run(profile_file, "-v", vehicle, "-o", out, "--json", summary)
+    assert result.exit_code in (0, 1), result.output
+    doc = json.loads(summary.read_text())
+    assert doc["vehicle"]["friction_coefficient"] == 0.3
+    assert doc["vehicle"]["mass_kg"] == 1800.0
+    assert doc["vehicle"]["steer_lag_s"] == DEFAULT_VEHICLE.steer_lag_s   # default kept
+
+
+@pytest.mark.parametrize("text, expected", [
+    ("[vehicle]\nmass_kg = 1500\nsteer_lag_ms = 100\n",
+     "line 3: [vehicle] steer_lag_ms: unknown key (looks like milliseconds"),
+    ("[vehicle]\nmass_kg = -5\n", "line 2: [vehicle]: mass_kg = -5.0 is outside"),
+    ("[vehicle]\n\nmax_steer_rad = \"wide\"\n", "line 3: [vehicle] max_steer_rad \"wide\" is "
+     "not a finite number"),
+    ("[vehicle]\ntyre_curve = \"magic\"\n", "tyre_curve = 'magic' is not a tyre curve"),
+    ("[car]\nmass_kg = 1500\n", "unknown table or key 'car' at top level"),
+    ("mass_kg = 1500\n", "unknown table or key 'mass_kg'"),
+    ("[vehicle\n", "not valid TOML"),
+    ("[vehicle]\nsteer_lag_s = 0.001\n", "below 0.02 s the 0.01 s integration step"),
+])
+def test_bad_vehicle_file_exits_2_and_writes_nothing(profile_file, tmp_path, text, expected):
+    vehicle = tmp_path / "bad.toml"
+    vehicle.write_text(text)
+    out = tmp_path / "run.csv"
+    result = run(profile_file, "-v", vehicle, "-o", out)
+    assert result.exit_code == 2, result.output
+    assert expected in result.output
+    assert str(vehicle) in result.output
+    assert not out.exists()
+    with pytest.raises(VehicleError):
+        read_vehicle(vehicle)
+
+
+def test_every_vehicle_key_is_read(tmp_path):
+    values = {"mass_kg": 1700.0, "yaw_inertia_kgm2": 2900.0, "front_axle_to_cg_m": 1.3,
+              "rear_axle_to_cg_m": 1.5, "front_cornering_stiffness_npr": 150000.0,
+              "rear_cornering_stiffness_npr": 170000.0, "friction_coefficient": 0.8,
+              "max_steer_rad": 0.55, "max_steer_rate_radps": 0.7, "steer_lag_s": 0.15}
+    text = "[vehicle]\n" + "".join(f"{k} = {v}\n" for k, v in values.items())
+    path = tmp_path / "car.toml"
+    path.write_text(text + 'tyre_curve = "saturated_linear"\n')
+    vehicle = read_vehicle(path)
+    for key, value in values.items():
+        assert getattr(vehicle, key) == value
+    assert vehicle.tyre_curve.value == "saturated_linear"
+    assert set(VEHICLE_KEYS) == set(values) | {"tyre_curve"}
+
+
+def test_bad_options_and_existing_output(profile_file, tmp_path):
+    out = tmp_path / "run.csv"
+    result = run(profile_file, "-o", out, "--max-lateral-error", "-1")
+    assert result.exit_code == 2 and "give a positive distance" in result.output
+    assert not out.exists()
+    out.write_text("keep me")
+    result = run(profile_file, "-o", out)
+    assert result.exit_code == 2
+    assert out.read_text() == "keep me"
+    result = run(profile_file, "-o", profile_file, "--force")
+    assert result.exit_code == 2                          # never overwrites its input
+    result = run(tmp_path / "missing.csv", "-o", tmp_path / "x.csv")
+    assert result.exit_code == 2 and "missing.csv" in result.output
+    assert not (tmp_path / "x.csv").exists()
+
+
+def test_help_lists_replay_and_loads_no_numerics():
+    code = ("import sys; from curvespeed.cli.main import cli; "
+            "heavy = [m for m in ('numpy', 'scipy', 'osqp') if m in sys.modules]; "
+            "print(heavy)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True)
+    assert out.stdout.strip() == "[]"
+    result = CliRunner().invoke(cli, ["--help"])
+    assert "replay" in result.output
