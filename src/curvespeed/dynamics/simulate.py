@@ -36,7 +36,7 @@ from ..export import StationProfile, as_station_profile, sample_in_time
 from .lqr import LqrTracker, LqrWeights
 from .path import PathReference
 from .tracker_kind import TrackerKind
-from .vehicle import DEFAULT_VEHICLE, Vehicle, rk4_step, steer_rate, tyre_use
+from .vehicle import DEFAULT_VEHICLE, Vehicle, VehicleModel, steer_rate, tyre_use
 
 #: Columns of a replay, in output order (units in the names).
 REPLAY_COLUMNS = ("time_s", "station_m", "x_m", "y_m", "speed_mps", "lateral_error_m",
@@ -187,6 +187,15 @@ def replay(profile, vehicle: Vehicle = DEFAULT_VEHICLE,
     -------
     ReplayResult
     """
+    from threadpoolctl import threadpool_limits
+
+    # every matrix here is 5x5 to 180x210: the BLAS's threads only cost (measured 10-30x
+    # slower gain tables with them on a loaded 2-core machine)
+    with threadpool_limits(limits=1, user_api="blas"):
+        return _replay(profile, vehicle, settings)
+
+
+def _replay(profile, vehicle: Vehicle, settings: ReplaySettings) -> ReplayResult:
     sp: StationProfile = as_station_profile(profile)
     substeps = _ratio(settings.control_dt_s, settings.integration_dt_s, "control_dt_s")
     ref = sample_in_time(sp, settings.control_dt_s, settings.dwell_s)
@@ -219,6 +228,8 @@ def _run(vehicle, settings, substeps, ref, path, tracker, state, sp):
     kp, ki = settings.speed_gain_1ps, settings.speed_integral_gain_1ps2
     limit_i = settings.integral_limit_mps
     max_steer, mass = vehicle.max_steer_rad, vehicle.mass_kg
+    model = VehicleModel(vehicle)
+    step = model.step
     ref_s = ref.station_m.tolist()
     ref_v = ref.speed_mps.tolist()
     ref_a = ref.accel_mps2.tolist()
@@ -250,7 +261,7 @@ def _run(vehicle, settings, substeps, ref, path, tracker, state, sp):
         force = mass * (a_ref + kp * error_v + ki * integral)
         if v_ref <= 0.0 and vx <= 0.05 and a_ref <= 0.0:
             force = min(force, 0.0)           # held at rest: brakes on, no creeping
-        alpha_f, alpha_r, use_f, use_r = tyre_use(vehicle, vx, vy, r, delta, force)
+        alpha_f, alpha_r, use_f, use_r = tyre_use(model, vx, vy, r, delta, force)
         for col, value in zip(cols, (i * dt, s, x, y, vx, e, e_psi, delta,
                                      steer_rate(vehicle, delta, command), r, alpha_f, alpha_r,
                                      use_f, use_r, command, s_ref, v_ref)):
@@ -263,7 +274,7 @@ def _run(vehicle, settings, substeps, ref, path, tracker, state, sp):
             status = ReplayStatus.COMPLETED
             break
         for _ in range(substeps):
-            state = rk4_step(vehicle, state, command, force, h)
+            state = step(state, command, force, h)
     return status, cols
 
 

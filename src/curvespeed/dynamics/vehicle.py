@@ -151,37 +151,117 @@ def lateral_force(alpha: float, stiffness: float, f_max: float, curve: TyreCurve
     return f_max * (q - q * abs(q) / 3.0 + q * q * q / 27.0)
 
 
+class VehicleModel:
+    """The model's equations (module docstring) with the vehicle's constants unpacked once:
+    the simulation calls them four times per integration step.
+
+    Parameters
+    ----------
+    vehicle : Vehicle
+    """
+
+    def __init__(self, vehicle: Vehicle):
+        self.vehicle = vehicle
+        self.m, self.inertia = vehicle.mass_kg, vehicle.yaw_inertia_kgm2
+        self.a, self.b = vehicle.front_axle_to_cg_m, vehicle.rear_axle_to_cg_m
+        self.wheelbase = vehicle.wheelbase_m
+        self.cf = vehicle.front_cornering_stiffness_npr
+        self.cr = vehicle.rear_cornering_stiffness_npr
+        self.cap_f = vehicle.friction_coefficient * vehicle.front_load_n
+        self.cap_r = vehicle.friction_coefficient * vehicle.rear_load_n
+        self.share_f = self.b / self.wheelbase
+        self.curve = vehicle.tyre_curve
+        self.lag, self.rate = vehicle.steer_lag_s, vehicle.max_steer_rate_radps
+
+    def split(self, force_x: float):
+        """The longitudinal force per axle (each within ``mu F_z``) and the lateral force each
+        axle has left: ``(fx_f, fx_r, fy_max_f, fy_max_r)``."""
+        cap_f, cap_r = self.cap_f, self.cap_r
+        fx_f = max(-cap_f, min(cap_f, force_x * self.share_f))
+        fx_r = max(-cap_r, min(cap_r, force_x * (1.0 - self.share_f)))
+        return (fx_f, fx_r, math.sqrt(max(cap_f * cap_f - fx_f * fx_f, 0.0)),
+                math.sqrt(max(cap_r * cap_r - fx_r * fx_r, 0.0)))
+
+    def forces(self, vx, vy, r, delta, split):
+        """Slip angles and lateral forces of both axles: ``(alpha_f, alpha_r, fy_f, fy_r)``
+        (dynamic model, ``vx > 0``)."""
+        alpha_f = delta - math.atan2(vy + self.a * r, vx)
+        alpha_r = -math.atan2(vy - self.b * r, vx)
+        return (alpha_f, alpha_r, lateral_force(alpha_f, self.cf, split[2], self.curve),
+                lateral_force(alpha_r, self.cr, split[3], self.curve))
+
+    def accelerations(self, vx, vy, r, delta, split):
+        """``(dvx/dt, dvy/dt, dr/dt)`` of the dynamic model, ``vx > 0``."""
+        _, _, fy_f, fy_r = self.forces(vx, vy, r, delta, split)
+        fx_f, fx_r = split[0], split[1]
+        c, s = math.cos(delta), math.sin(delta)
+        front_lat = fy_f * c + fx_f * s
+        m = self.m
+        return ((fx_f * c - fy_f * s + fx_r) / m + vy * r, (front_lat + fy_r) / m - vx * r,
+                (self.a * front_lat - self.b * fy_r) / self.inertia)
+
+    def derivatives(self, state, command: float, force_x: float, split):
+        """Time derivative of ``state`` under the steering ``command`` (within the angle
+        limit) and the longitudinal force ``force_x`` (``split`` = :meth:`split` of it)."""
+        _, _, yaw, vx, vy, r, delta = state
+        ddelta = (command - delta) / self.lag
+        ddelta = -self.rate if ddelta < -self.rate else (self.rate if ddelta > self.rate
+                                                         else ddelta)
+        w = dynamic_weight(vx)
+        if w > 0.0:
+            dvx, dvy, dr = self.accelerations(vx, vy, r, delta, split)
+        else:
+            dvx = dvy = dr = 0.0
+        if w < 1.0:
+            t = math.tan(delta)
+            ax_kin = force_x / self.m
+            if vx <= 0.0 and ax_kin < 0.0:
+                ax_kin = 0.0          # held at rest (below)
+            r_kin = vx * t / self.wheelbase
+            # d/dt of r = vx tan(delta) / L and vy = b r, plus the relaxation onto them
+            along = (ax_kin * t + vx * ddelta * (1.0 + t * t)) / self.wheelbase
+            dr_kin = along + (r_kin - r) / KINEMATIC_RELAX_S
+            dvy_kin = self.b * along + (self.b * r_kin - vy) / KINEMATIC_RELAX_S
+            dvx = w * dvx + (1.0 - w) * ax_kin
+            dvy = w * dvy + (1.0 - w) * dvy_kin
+            dr = w * dr + (1.0 - w) * dr_kin
+        if vx <= 0.0 and dvx < 0.0:
+            dvx = 0.0                 # at rest the brakes hold: no reversing
+        c, s = math.cos(yaw), math.sin(yaw)
+        return (vx * c - vy * s, vx * s + vy * c, r, dvx, dvy, dr, ddelta)
+
+    def step(self, state, command: float, force_x: float, dt: float):
+        """One classical fourth-order Runge-Kutta step of ``dt`` seconds, inputs held."""
+        split = self.split(force_x)
+        f = self.derivatives
+        k1 = f(state, command, force_x, split)
+        h = 0.5 * dt
+        k2 = f(tuple([x + h * d for x, d in zip(state, k1)]), command, force_x, split)
+        k3 = f(tuple([x + h * d for x, d in zip(state, k2)]), command, force_x, split)
+        k4 = f(tuple([x + dt * d for x, d in zip(state, k3)]), command, force_x, split)
+        sixth = dt / 6.0
+        new = [x + sixth * (d1 + 2.0 * (d2 + d3) + d4)
+               for x, d1, d2, d3, d4 in zip(state, k1, k2, k3, k4)]
+        if new[3] < 0.0:
+            new[3] = 0.0
+        return tuple(new)
+
+
 def axle_forces(vehicle: Vehicle, vx, vy, r, delta, force_x):
     """Slip angles, longitudinal and lateral forces of both axles (dynamic model, ``vx > 0``).
 
     Returns ``(alpha_f, alpha_r, fx_f, fx_r, fy_f, fy_r)``.
     """
-    a, b = vehicle.front_axle_to_cg_m, vehicle.rear_axle_to_cg_m
-    mu = vehicle.friction_coefficient
-    cap_f, cap_r = mu * vehicle.front_load_n, mu * vehicle.rear_load_n
-    share_f = vehicle.rear_axle_to_cg_m / vehicle.wheelbase_m
-    fx_f = max(-cap_f, min(cap_f, force_x * share_f))
-    fx_r = max(-cap_r, min(cap_r, force_x * (1.0 - share_f)))
-    alpha_f = delta - math.atan2(vy + a * r, vx)
-    alpha_r = -math.atan2(vy - b * r, vx)
-    fy_f = lateral_force(alpha_f, vehicle.front_cornering_stiffness_npr,
-                         math.sqrt(max(cap_f * cap_f - fx_f * fx_f, 0.0)), vehicle.tyre_curve)
-    fy_r = lateral_force(alpha_r, vehicle.rear_cornering_stiffness_npr,
-                         math.sqrt(max(cap_r * cap_r - fx_r * fx_r, 0.0)), vehicle.tyre_curve)
-    return alpha_f, alpha_r, fx_f, fx_r, fy_f, fy_r
+    model = VehicleModel(vehicle)
+    split = model.split(force_x)
+    alpha_f, alpha_r, fy_f, fy_r = model.forces(vx, vy, r, delta, split)
+    return alpha_f, alpha_r, split[0], split[1], fy_f, fy_r
 
 
 def dynamic_accelerations(vehicle: Vehicle, vx, vy, r, delta, force_x):
     """``(dvx/dt, dvy/dt, dr/dt)`` of the dynamic model (module docstring), ``vx > 0``."""
-    _, _, fx_f, fx_r, fy_f, fy_r = axle_forces(vehicle, vx, vy, r, delta, force_x)
-    m = vehicle.mass_kg
-    c, s = math.cos(delta), math.sin(delta)
-    front_lat = fy_f * c + fx_f * s
-    dvx = (fx_f * c - fy_f * s + fx_r) / m + vy * r
-    dvy = (front_lat + fy_r) / m - vx * r
-    dr = (vehicle.front_axle_to_cg_m * front_lat - vehicle.rear_axle_to_cg_m * fy_r) \
-        / vehicle.yaw_inertia_kgm2
-    return dvx, dvy, dr
+    model = VehicleModel(vehicle)
+    return model.accelerations(vx, vy, r, delta, model.split(force_x))
 
 
 def dynamic_weight(vx: float) -> float:
@@ -201,74 +281,35 @@ def steer_rate(vehicle: Vehicle, delta: float, command: float) -> float:
 def derivatives(vehicle: Vehicle, state, command: float, force_x: float):
     """Time derivative of ``state`` (module docstring's order) under the steering ``command``
     (rad, within the angle limit) and the total longitudinal force ``force_x`` (N)."""
-    _, _, yaw, vx, vy, r, delta = state
-    ddelta = steer_rate(vehicle, delta, command)
-    w = dynamic_weight(vx)
-    if w > 0.0:
-        dvx, dvy, dr = dynamic_accelerations(vehicle, vx, vy, r, delta, force_x)
-    else:
-        dvx = dvy = dr = 0.0
-    if w < 1.0:
-        L, b = vehicle.wheelbase_m, vehicle.rear_axle_to_cg_m
-        t = math.tan(delta)
-        ax_kin = force_x / vehicle.mass_kg
-        if vx <= 0.0 and ax_kin < 0.0:
-            ax_kin = 0.0              # held at rest (below)
-        r_kin = vx * t / L
-        # d/dt of r = vx tan(delta) / L and vy = b r, plus the relaxation onto them
-        along = (ax_kin * t + vx * ddelta * (1.0 + t * t)) / L
-        dr_kin = along + (r_kin - r) / KINEMATIC_RELAX_S
-        dvy_kin = b * along + (b * r_kin - vy) / KINEMATIC_RELAX_S
-        dvx = w * dvx + (1.0 - w) * ax_kin
-        dvy = w * dvy + (1.0 - w) * dvy_kin
-        dr = w * dr + (1.0 - w) * dr_kin
-    if vx <= 0.0 and dvx < 0.0:
-        dvx = 0.0                     # at rest the brakes hold: no reversing
-    c, s = math.cos(yaw), math.sin(yaw)
-    return (vx * c - vy * s, vx * s + vy * c, r, dvx, dvy, dr, ddelta)
+    model = VehicleModel(vehicle)
+    return model.derivatives(state, command, force_x, model.split(force_x))
 
 
 def rk4_step(vehicle: Vehicle, state, command: float, force_x: float, dt: float):
     """One classical fourth-order Runge-Kutta step of ``dt`` seconds, inputs held."""
-    k1 = derivatives(vehicle, state, command, force_x)
-    h = 0.5 * dt
-    k2 = derivatives(vehicle, tuple(x + h * d for x, d in zip(state, k1)), command, force_x)
-    k3 = derivatives(vehicle, tuple(x + h * d for x, d in zip(state, k2)), command, force_x)
-    k4 = derivatives(vehicle, tuple(x + dt * d for x, d in zip(state, k3)), command, force_x)
-    sixth = dt / 6.0
-    new = [x + sixth * (d1 + 2.0 * d2 + 2.0 * d3 + d4)
-           for x, d1, d2, d3, d4 in zip(state, k1, k2, k3, k4)]
-    if new[3] < 0.0:
-        new[3] = 0.0
-    return tuple(new)
+    return VehicleModel(vehicle).step(state, command, force_x, dt)
 
 
-def tyre_use(vehicle: Vehicle, vx, vy, r, delta, force_x):
+def tyre_use(model: VehicleModel, vx, vy, r, delta, force_x):
     """Slip angles and tyre use (force over ``mu F_z``; 1 = saturated) of both axles.
 
     Returns ``(alpha_f, alpha_r, use_f, use_r)``. In the kinematic band the lateral forces are
     those the kinematic motion needs (``m vx r`` shared by the axles' loads), blended as the
     derivatives are.
     """
-    mu = vehicle.friction_coefficient
-    cap_f, cap_r = mu * vehicle.front_load_n, mu * vehicle.rear_load_n
-    w = dynamic_weight(vx)
+    split = model.split(force_x)
+    fx_f, fx_r = split[0], split[1]
     if vx > 0.0:
-        alpha_f, alpha_r, fx_f, fx_r, fy_f, fy_r = axle_forces(vehicle, vx, vy, r, delta,
-                                                               force_x)
+        alpha_f, alpha_r, fy_f, fy_r = model.forces(vx, vy, r, delta, split)
     else:
         alpha_f = alpha_r = fy_f = fy_r = 0.0
-        share = vehicle.rear_axle_to_cg_m / vehicle.wheelbase_m
-        fx_f = max(-cap_f, min(cap_f, force_x * share))
-        fx_r = max(-cap_r, min(cap_r, force_x * (1.0 - share)))
+    w = dynamic_weight(vx)
     if w < 1.0:
-        need = vehicle.mass_kg * vx * r
-        share = vehicle.rear_axle_to_cg_m / vehicle.wheelbase_m
-        fy_f = w * fy_f + (1.0 - w) * need * share
-        fy_r = w * fy_r + (1.0 - w) * need * (1.0 - share)
-    use_f = math.hypot(fx_f, fy_f) / cap_f
-    use_r = math.hypot(fx_r, fy_r) / cap_r
-    return alpha_f, alpha_r, use_f, use_r
+        need = model.m * vx * r
+        fy_f = w * fy_f + (1.0 - w) * need * model.share_f
+        fy_r = w * fy_r + (1.0 - w) * need * (1.0 - model.share_f)
+    return (alpha_f, alpha_r, math.hypot(fx_f, fy_f) / model.cap_f,
+            math.hypot(fx_r, fy_r) / model.cap_r)
 
 
 #: Ranges a parameter must lie in, with the reason (common practice; the steering lag's lower
