@@ -160,3 +160,44 @@ def test_help_lists_replay_and_loads_no_numerics():
     assert out.stdout.strip() == "[]"
     result = CliRunner().invoke(cli, ["--help"])
     assert "replay" in result.output
+
+
+def test_profile_above_grip_is_flagged_on_the_command_line(tmp_path):
+    """The hook's 30 m curve at a constant 20 m/s, above sqrt(mu g R) = 16.3 m/s for the
+    built-in car (mu 0.9): the tyres saturate and the command warns, naming the stations."""
+    s = np.arange(241.0)
+    kappa = np.interp(s, [0, 50, 80, 120, 150, 240], [0, 0, 1 / 30, 1 / 30, 0, 0])
+    geo = geometry_from_curvature(kappa, name="Invented hook")
+    path = tmp_path / "fast.csv"
+    lines = ["station_m,x_m,y_m,heading_rad,curvature_1pm,speed_mps"]
+    lines += [f"{a:.4f},{b:.4f},{c:.4f},{d:.7f},{e:.9f},20.0" for a, b, c, d, e in
+              zip(geo.station_m, geo.x_m, geo.y_m, geo.heading_rad, geo.curvature_1pm)]
+    path.write_text("\n".join(lines) + "\n")
+    out, summary = tmp_path / "run.csv", tmp_path / "run.json"
+    result = run(path, "-o", out, "--json", summary)
+    # far above grip the vehicle runs wide and leaves the path: exit 1, outputs kept
+    assert result.exit_code == 1, result.output
+    assert "lost the path" in result.output
+    assert "warning: the tyres reach their friction limit" in result.output
+    doc = json.loads(summary.read_text())["summary"]
+    assert doc["saturated"] is True
+    assert max(doc["peak_front_tyre_use"], doc["peak_rear_tyre_use"]) >= 0.99
+    # the first saturated stretch starts in or just before the curve (stations 50-150)
+    assert 30.0 <= doc["saturated_spans_m"][0][0] <= 150.0
+
+
+def test_replay_figure_structure(profile_file):
+    from curvespeed.dynamics.simulate import replay
+    from curvespeed.dynamics.summary import summarise
+    from curvespeed.io.profile_csv import read_station_profile
+    from curvespeed.replay_plots import plot_replay
+
+    result = replay(read_station_profile(profile_file))
+    fig = plot_replay(result, summarise(result), gate_m=0.3)
+    axes = fig.get_axes()
+    assert [ax.get_ylabel() for ax in axes] == [
+        "lateral error (m)", "speed (m/s)", "road-wheel steering (rad)",
+        "tyre use (1 = friction limit)"]
+    line = axes[0].get_lines()[0]
+    assert np.array_equal(line.get_ydata(), result["lateral_error_m"])
+    assert "lqr tracker" in fig.get_suptitle()

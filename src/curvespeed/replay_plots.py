@@ -18,7 +18,7 @@ from dataclasses import dataclass
 
 from .dynamics.simulate import ReplayResult
 from .dynamics.summary import SATURATED_USE, ReplaySummary
-from .plots import OVERVIEW_DPI, STATION_LABEL, _new_axes
+from .plots import STATION_LABEL, _new_axes, figure_bytes
 
 
 @dataclass(frozen=True)
@@ -117,14 +117,4 @@ def plot_replay(result: ReplayResult, summary: ReplaySummary, gate_m: float | No
 def replay_figure_bytes(result: ReplayResult, summary: ReplaySummary, fmt: str,
                         gate_m: float | None = None) -> bytes:
     """:func:`plot_replay` as the bytes of a ``png``, ``svg`` or ``pdf`` file (no time stamps)."""
-    import io
-
-    import matplotlib
-
-    fig = plot_replay(result, summary, gate_m)
-    metadata = {"png": {"Software": None}, "svg": {"Date": None},
-                "pdf": {"CreationDate": None, "ModDate": None}}[fmt]
-    buffer = io.BytesIO()
-    with matplotlib.rc_context({"svg.hashsalt": "curvespeed"}):
-        fig.savefig(buffer, format=fmt, dpi=OVERVIEW_DPI, metadata=metadata)
-    return buffer.getvalue()
+    return figure_bytes(plot_replay(result, summary, gate_m), fmt)

@@ -59,6 +59,14 @@ class LqrWeights:
     steer: float = 100.0
 
 
+def weight_matrices(weights: LqrWeights):
+    """``(Q, R)`` of the cost: Q diagonal over the five states (the steering angle unweighted),
+    R 1x1."""
+    Q = np.diag([weights.lateral_error, weights.lateral_error_rate, weights.heading_error,
+                 weights.heading_error_rate, 0.0])
+    return Q, np.array([[weights.steer]])
+
+
 def error_model(vehicle: Vehicle, speed_mps: float):
     """``(A, B, E)`` of the path-error model at ``speed_mps`` (module docstring)."""
     m, inertia = vehicle.mass_kg, vehicle.yaw_inertia_kgm2
@@ -116,9 +124,7 @@ def design_gain(vehicle: Vehicle, speed_mps: float, dt_s: float,
     """LQR gain ``K`` (shape (5,)) of the discretised actuated model, and its ``Ad``, ``Bd``."""
     A5, B5, E5 = actuated_model(vehicle, speed_mps)
     Ad, Bd, _ = discretise(A5, B5, E5, dt_s)
-    Q = np.diag([weights.lateral_error, weights.lateral_error_rate, weights.heading_error,
-                 weights.heading_error_rate, 0.0])
-    R = np.array([[weights.steer]])
+    Q, R = weight_matrices(weights)
     Bc = Bd.reshape(5, 1)
     P = scipy.linalg.solve_discrete_are(Ad, Bc, Q, R)
     K = np.linalg.solve(R + Bc.T @ P @ Bc, Bc.T @ P @ Ad).ravel()

@@ -27,7 +27,7 @@ import scipy.linalg
 import scipy.sparse
 
 from .lqr import (MIN_DESIGN_SPEED_MPS, TABLE_STEP_MPS, LqrTracker, LqrWeights,
-                  actuated_model, discretise)
+                  actuated_model, discretise, weight_matrices)
 from .vehicle import Vehicle
 
 #: OSQP's tolerances: a steering command to ~1e-5 rad is far below what the actuator resolves.
@@ -65,9 +65,8 @@ class MpcTracker:
         self.lqr = LqrTracker(vehicle, dt_s, top_speed_mps, weights)
         self.speeds = self.lqr.speeds
         self._tables(weights)
-        self.q_diag = np.array([weights.lateral_error, weights.lateral_error_rate,
-                                weights.heading_error, weights.heading_error_rate, 0.0])
-        self.r = weights.steer
+        Q, R = weight_matrices(weights)
+        self.q_diag, self.r = np.diag(Q).copy(), float(R[0, 0])
         self.rate_band = vehicle.max_steer_rate_radps * vehicle.steer_lag_s
         self._pattern()
         self.solver = osqp.OSQP()
@@ -92,9 +91,7 @@ class MpcTracker:
 
     def _tables(self, weights: LqrWeights) -> None:
         Ad, Bd, Ed, P = [], [], [], []
-        Q = np.diag([weights.lateral_error, weights.lateral_error_rate, weights.heading_error,
-                     weights.heading_error_rate, 0.0])
-        R = np.array([[weights.steer]])
+        Q, R = weight_matrices(weights)
         for v in self.speeds:
             a, b, e = discretise(*actuated_model(self.vehicle, v), self.dt_s)
             Ad.append(a)
