@@ -214,14 +214,6 @@ def _replay(profile, vehicle: Vehicle, settings: ReplaySettings) -> ReplayResult
                         name=sp.name, source=sp.source, tracker_stats=stats)
 
 
-def _reference(ref, i: int):
-    """Planned time, station, speed and acceleration of tick ``i`` (held after the end)."""
-    n = ref.time_s.size
-    if i < n:
-        return ref.station_m[i], ref.speed_mps[i], ref.accel_mps2[i]
-    return ref.station_m[-1], ref.speed_mps[-1], 0.0
-
-
 def _run(vehicle, settings, substeps, ref, path, tracker, state, sp):
     """The closed loop; returns the status and the columns as lists (REPLAY_COLUMNS order)."""
     dt, h = settings.control_dt_s, settings.integration_dt_s
