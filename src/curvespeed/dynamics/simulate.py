@@ -13,7 +13,7 @@ Each tracker period (``control_dt_s``, output held over the period, a discrete c
 * steering from the lateral tracker (LQR or MPC), held within the steering angle limit;
 * longitudinal force ``m (a_ref + k_p (v_ref - v) + k_i integral(v_ref - v))``: the planned
   acceleration as feed-forward plus a PI on speed (its integral held within
-  :attr:`ReplaySettings.integral_limit_mps`);
+  :attr:`ReplaySettings.integral_limit_m`);
 * then ``control_dt_s / integration_dt_s`` classical Runge-Kutta steps of the vehicle model
   (:func:`~curvespeed.dynamics.vehicle.rk4_step`).
 
@@ -73,7 +73,7 @@ class ReplaySettings:
         Step of the Runge-Kutta integration, s (divides ``control_dt_s``).
     speed_gain_1ps, speed_integral_gain_1ps2 : float
         Proportional and integral gains of the speed loop (per s, per s^2).
-    integral_limit_mps : float
+    integral_limit_m : float
         Bound on the speed loop's integral of the speed error, m (its anti-windup).
     dwell_s : float
         Time held at each stop, s.
@@ -93,7 +93,7 @@ class ReplaySettings:
     integration_dt_s: float = 0.01
     speed_gain_1ps: float = 1.0
     speed_integral_gain_1ps2: float = 0.25
-    integral_limit_mps: float = 5.0
+    integral_limit_m: float = 5.0
     dwell_s: float = 0.0
     lost_path_m: float = 10.0
     extra_time_s: float = 30.0
@@ -218,7 +218,7 @@ def _run(vehicle, settings, substeps, ref, path, tracker, state, sp):
     """The closed loop; returns the status and the columns as lists (REPLAY_COLUMNS order)."""
     dt, h = settings.control_dt_s, settings.integration_dt_s
     kp, ki = settings.speed_gain_1ps, settings.speed_integral_gain_1ps2
-    limit_i = settings.integral_limit_mps
+    limit_i = settings.integral_limit_m
     max_steer, mass = vehicle.max_steer_rad, vehicle.mass_kg
     model = VehicleModel(vehicle)
     step = model.step
