@@ -256,7 +256,13 @@ def main() -> None:
                         help=argparse.SUPPRESS)
     parser.add_argument("--qp-case", nargs=3, metavar=("KM", "STATIONS", "REPEATS"),
                         help=argparse.SUPPRESS)
+    parser.add_argument("--replay", action="store_true",
+                        help="only the closed-loop replay benchmark (benchmarks/replay_bench.py)")
     args = parser.parse_args()
+    if args.replay:
+        subprocess.run([sys.executable, str(Path(__file__).with_name("replay_bench.py"))],
+                       check=True, cwd=ROOT)
+        return
     if args.case:
         print(json.dumps(run_case(args.case[0], float(args.case[1]), int(args.case[2]))))
         return
@@ -339,6 +345,9 @@ def main() -> None:
         print(f"{name:>12} {r['n']:>6} {r['m']:>7} {1e3 * r['banded_s']:>10.2f} "
               f"{r['banded_its']:>4} {1e3 * r['clarabel_s']:>12.2f} {r['clarabel_its']:>4} "
               f"{r['clarabel_s'] / r['banded_s']:>6.1f} {diff:>28.2f}")
+    sys.stdout.flush()
+    subprocess.run([sys.executable, str(Path(__file__).with_name("replay_bench.py"))],
+                   check=True, cwd=ROOT)
 
 
 if __name__ == "__main__":

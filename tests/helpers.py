@@ -53,3 +53,20 @@ def with_radius_interval(geometry: Geometry, low_radius_m: float, high_radius_m:
     if (bound < kappa).any() or (sd < 0.0).any():
         raise ValueError("the range must contain every curved station's radius")
     return dataclasses.replace(geometry, curvature_bound_1pm=bound, curvature_sd_1pm=sd)
+
+
+def hook_profile_csv(folder):
+    """An invented hook (straight, a 30 m left curve, a 45 m right curve), planned from rest
+    with the default limits and written as ``folder/hook.csv``; returns the path."""
+    from curvespeed.io.profile_csv import write_profile_csv
+    from curvespeed.limits import Limits, RouteConstraints
+    from curvespeed.planner import plan_profile
+
+    s = np.arange(241.0)
+    kappa = np.interp(s, [0, 50, 80, 120, 150, 170, 200, 240],
+                      [0, 0, 1 / 30, 1 / 30, 0, 0, -1 / 45, -1 / 45])
+    profile = plan_profile(geometry_from_curvature(kappa, name="Invented hook"), Limits(),
+                           RouteConstraints())
+    path = folder / "hook.csv"
+    write_profile_csv(profile, path)
+    return path

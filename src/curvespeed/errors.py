@@ -32,6 +32,10 @@ class ReplanError(CurvespeedError, ValueError):
     station, speed or acceleration (not a number, negative speed, off the route)."""
 
 
+class VehicleError(CurvespeedError, ValueError):
+    """A vehicle file or a vehicle parameter for replay is invalid."""
+
+
 class InfeasibleError(CurvespeedError, RuntimeError):
     """No speed profile satisfies the limits and route constraints as given."""
 

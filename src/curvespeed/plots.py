@@ -461,16 +461,22 @@ def overview_bytes(profile, fmt: str, limits: Limits | None = None,
     no time stamp (and SVG ids use a fixed salt), so the same inputs give the same bytes with
     the same matplotlib.
     """
+    overview = plot_overview(profile, limits, constraints, title=title)
+    return figure_bytes(overview.figure, fmt)
+
+
+def figure_bytes(figure, fmt: str) -> bytes:
+    """``figure`` as the bytes of a ``png``, ``svg`` or ``pdf`` file, without time stamps (and
+    with a fixed SVG id salt), so the same figure gives the same bytes."""
     import io
 
     import matplotlib
 
-    overview = plot_overview(profile, limits, constraints, title=title)
     metadata = {"png": {"Software": None}, "svg": {"Date": None},
                 "pdf": {"CreationDate": None, "ModDate": None}}[fmt]
     buffer = io.BytesIO()
     with matplotlib.rc_context({"svg.hashsalt": "curvespeed"}):
-        overview.figure.savefig(buffer, format=fmt, dpi=OVERVIEW_DPI, metadata=metadata)
+        figure.savefig(buffer, format=fmt, dpi=OVERVIEW_DPI, metadata=metadata)
     return buffer.getvalue()
 
 
