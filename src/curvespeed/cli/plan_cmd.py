@@ -31,12 +31,16 @@ from ._limits import constraint_options, limit_override_options, limits_and_geom
                    "0 is pure minimum time.")
 @click.option("--plot", "plot_file", type=click.Path(), default=None,
               help="Also draw the overview figure (.png, .svg or .pdf) of the profile.")
+@click.option("--report", "report_file", type=click.Path(), default=None,
+              help="Also write a self-contained HTML report (plan view with numbered curves, "
+                   "speed, utilisation, curve table, provenance); prints on A4.")
 @click.option("--force", is_flag=True, help="Replace output files that exist.")
 @geometry_options
 @limit_override_options
 @constraint_options
 @handle_errors
-def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort_weight, plot_file, force,
+def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort_weight, plot_file,
+         report_file, force,
          spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed, part,
          drives, all_tracks, zones, stops, superelevations, start_speed, end_speed,
          **overrides):
@@ -67,6 +71,8 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
 
         figure_format(plot_file)
         outputs.add_output(plot_file, "--plot")
+    if report_file:
+        outputs.add_output(report_file, "--report")
     with outputs:               # every output checked here; written together at the end
         limits, constraints, origin, geo = limits_and_geometry(
             route_file, limits_file, overrides,
@@ -98,10 +104,31 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
 
             outputs.write_bytes(plot_file, overview_bytes(
                 profile, figure_format(plot_file), limits=limits, constraints=constraints))
+        if report_file:
+            _write_report(outputs, report_file, route_file, limits_file, geo, limits,
+                          constraints, profile)
     if output:
         echo(f"wrote {output} and {meta_path}")
     if plot_file:
         echo(f"drew {plot_file}")
+    if report_file:
+        echo(f"wrote the report {report_file}")
+
+
+def _write_report(outputs, report_file, route_file, limits_file, geo, limits, constraints,
+                  profile) -> None:
+    """The HTML report of the plan: the profile checked along its route, with provenance."""
+    from ..io.check_report import check_report_dict
+    from ._report import check_of_plan, input_files, report_text
+
+    checked = check_of_plan(geo, limits, constraints, profile)
+    solve = profile.solve
+    solver = (f"{solve.solver}: {solve.status.value}, {solve.iterations} iteration(s)"
+              + "".join(f"; {note}" for note in solve.notes))
+    outputs.write_text(report_file, report_text(
+        check_report_dict(checked, route_file), geo.x_m, geo.y_m, doing="planned",
+        files=input_files(("route file", route_file), ("limits file", limits_file)),
+        solver=solver))
 
 
 def summarise(route_file, profile, limits, origin: str, max_curves: int = 8) -> str:
