@@ -9,12 +9,11 @@ alone must stay at least :data:`MIN_DISTANCE` apart under each full (severity 10
 
 from __future__ import annotations
 
+import colorspacious  # the test extra installs it; a missing one fails, never skips
 import numpy as np
 import pytest
 
 from curvespeed.report.palette import ROLES
-
-import colorspacious  # the test extra installs it; a missing one fails, never skips
 
 #: Ten just-noticeable differences in CAM02-UCS: chosen for marks read at a glance in a printed
 #: report, not side by side. The control pair below (the red and green of matplotlib's default
