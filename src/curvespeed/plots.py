@@ -13,8 +13,9 @@ can restyle or inspect them:
 * :func:`plot_gg` - g-g diagram (longitudinal against lateral acceleration) with the friction
   ellipse and the comfort limits of a flat road;
 * :func:`plot_plan_view` - the route in plan coloured by speed, with a colour bar, equal aspect;
-* :func:`plot_overview` - all of them in one figure with a title (route name, length, time);
-  :func:`save_overview` writes it to PNG, SVG or PDF (:func:`overview_bytes` gives the bytes).
+* :func:`plot_overview` - the overview figure, led by the route and its numbered curves
+  (:mod:`curvespeed.plots_overview`); :func:`save_overview` writes it to PNG, SVG or PDF
+  (:func:`overview_bytes` gives the bytes); :func:`gg_bytes` the g-g diagram on its own.
 
 matplotlib is imported inside the functions and only through :class:`matplotlib.figure.Figure`
 (never pyplot), so nothing opens a window, no global backend is switched, and importing curvespeed
@@ -477,14 +478,15 @@ def save_overview(profile, path: str | os.PathLike, limits: Limits | None = None
 
 def overview_bytes(profile, fmt: str, limits: Limits | None = None,
                    constraints: RouteConstraints | None = None,
-                   title: str | None = None) -> bytes:
+                   title: str | None = None, check: dict | None = None) -> bytes:
     """The overview figure as the bytes of a ``png``, ``svg`` or ``pdf`` file.
 
     The library call behind ``curvespeed plot`` and ``curvespeed plan --plot``. Output carries
     no time stamp (and SVG ids use a fixed salt), so the same inputs give the same bytes with
     the same matplotlib.
     """
-    return _figure_bytes(plot_overview(profile, limits, constraints, title=title).figure, fmt)
+    return _figure_bytes(plot_overview(profile, limits, constraints, title=title,
+                                       check=check).figure, fmt)
 
 
 def _figure_bytes(figure, fmt: str) -> bytes:

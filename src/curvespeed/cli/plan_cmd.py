@@ -99,14 +99,9 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
             outputs.write_text(output, profile_csv_text(profile))
             outputs.write_text(meta_path, meta_json_text(
                 profile_meta(profile, limits, constraints, route_file)))
-        if plot_file:
-            from ..plots import figure_format, overview_bytes
-
-            outputs.write_bytes(plot_file, overview_bytes(
-                profile, figure_format(plot_file), limits=limits, constraints=constraints))
-        if report_file:
-            _write_report(outputs, report_file, route_file, limits_file, geo, limits,
-                          constraints, profile)
+        if plot_file or report_file:
+            _figure_and_report(outputs, plot_file, report_file, route_file, limits_file, geo,
+                               limits, constraints, profile)
     if output:
         echo(f"wrote {output} and {meta_path}")
     if plot_file:
@@ -115,18 +110,32 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
         echo(f"wrote the report {report_file}")
 
 
-def _write_report(outputs, report_file, route_file, limits_file, geo, limits, constraints,
-                  profile) -> None:
-    """The HTML report of the plan: the profile checked along its route, with provenance."""
+def _figure_and_report(outputs, plot_file, report_file, route_file, limits_file, geo, limits,
+                       constraints, profile) -> None:
+    """The overview figure and the HTML report: the profile checked along its route once."""
     from ..io.check_report import check_report_dict
-    from ._report import check_of_plan, input_files, report_text
+    from ._report import check_of_plan
 
-    checked = check_of_plan(geo, limits, constraints, profile)
+    checked = check_report_dict(check_of_plan(geo, limits, constraints, profile), route_file)
+    if plot_file:
+        from ..plots import figure_format, overview_bytes
+
+        outputs.write_bytes(plot_file, overview_bytes(
+            profile, figure_format(plot_file), limits=limits, constraints=constraints,
+            check=checked))
+    if report_file:
+        _write_report(outputs, report_file, route_file, limits_file, geo, profile, checked)
+
+
+def _write_report(outputs, report_file, route_file, limits_file, geo, profile, checked) -> None:
+    """The HTML report of the plan, with provenance."""
+    from ._report import input_files, report_text
+
     solve = profile.solve
     solver = (f"{solve.solver}: {solve.status.value}, {solve.iterations} iteration(s)"
               + "".join(f"; {note}" for note in solve.notes))
     outputs.write_text(report_file, report_text(
-        check_report_dict(checked, route_file), geo.x_m, geo.y_m, doing="planned",
+        checked, geo.x_m, geo.y_m, doing="planned",
         files=input_files(("route file", route_file), ("limits file", limits_file)),
         solver=solver))
 
