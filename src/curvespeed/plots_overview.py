@@ -211,11 +211,16 @@ def draw_speed(data: ReportData, ax) -> SpeedBandArtists:
     (speed,) = ax.plot(s, data.speed_mps, color=ROLES["speed"], lw=1.8, zorder=3, label="speed")
     from matplotlib.patches import Patch
 
-    handles = [speed, ceiling, Patch(color=ROLES["curve"], alpha=BAND_ALPHA, label="curve"),
-               Patch(facecolor="none", edgecolor=ROLES["braking"], hatch="////",
-                     label="braking"),
-               Patch(color=ROLES["launch"], alpha=2 * ZONE_ALPHA, label="launch")]
-    ax.legend(handles=handles, loc="upper right", ncol=5, fontsize="x-small", framealpha=0.9)
+    verdicts = {c.verdict for c in data.curves}
+    handles = [speed, ceiling, Patch(color=ROLES["curve"], alpha=BAND_ALPHA, label="curve")]
+    handles += [Patch(color=curve_colour(v), alpha=BAND_ALPHA, label=label)
+                for v, label in (("fail", "failing curve"),
+                                 ("fails_on_bound", "failing within uncertainty")) if v in verdicts]
+    handles += [Patch(facecolor="none", edgecolor=ROLES["braking"], hatch="////",
+                      label="braking"),
+                Patch(color=ROLES["launch"], alpha=2 * ZONE_ALPHA, label="launch")]
+    ax.legend(handles=handles, loc="upper right", ncol=len(handles), fontsize="x-small",
+              framealpha=0.9)
     ax.set_ylim(0.0, top)
     ax.set_xlim(s[0], s[-1])
     ax.set_ylabel("speed (m/s)")

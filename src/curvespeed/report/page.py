@@ -185,6 +185,11 @@ def report_html(data: ReportData) -> str:
               _legend([(f"background:#0072B2", "speed"),
                        ("background:#fff;border:1px dashed #6E6E6E", "speed ceiling"),
                        ("background:#56B4E9;opacity:.5", "curve (numbered)"),
+                       *[(style, text) for verdict, style, text in (
+                           ("fail", "background:#D55E00;opacity:.45", "failing curve"),
+                           ("fails_on_bound", "background:#E69F00;opacity:.45",
+                            "failing within the uncertainty"))
+                         if any(c.verdict == verdict for c in failing)],
                        ("background:repeating-linear-gradient(45deg,#D55E00 0 2px,#fbe3d3 2px 5px)",
                         "braking"),
                        ("background:#009E73;opacity:.35", "launch (speeding up)")]),
