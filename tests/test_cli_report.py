@@ -130,3 +130,25 @@ def test_text_from_the_inputs_is_escaped():
     assert "<script>alert" not in text and "&lt;script&gt;alert(1)" in text
     assert "<b>x</b>" not in text and "<img" not in text
     assert "utilisation not known" in text
+
+
+def test_the_overview_figure_numbers_and_judges_curves_as_check_does(planned):
+    """``plot`` checks a profile CSV on its own columns; ``check`` on the route file itself."""
+    from curvespeed.io.meta_json import read_profile_meta
+    from curvespeed.io.profile_csv import read_station_profile
+    from curvespeed.plots_overview import overview_data
+
+    sidecar = read_profile_meta(planned / "p.meta.json")
+    data = overview_data(read_station_profile(planned / "p.csv"), sidecar.limits,
+                         sidecar.constraints)
+    doc = json.loads((planned / "c.json").read_text(encoding="utf-8"))
+    assert [c.number for c in data.curves] == [c["number"] for c in doc["curves"]]
+    assert [c.advisory_kmh for c in data.curves] == [c["advisory_speed_kmh"]
+                                                     for c in doc["curves"]]
+    # The profile CSV prints speeds to 1e-6 m/s and curvature (and its bound) to 1e-9 1/m; the
+    # uses built on them differ from the route's own by ~1e-6 (measured 2.3e-6 on the bundled
+    # mountain road); 1e-4 is that with a wide margin, far below any use that matters (1e-3).
+    np.testing.assert_allclose(data.grip_use, doc["per_station"]["friction_ellipse_use"],
+                               atol=1e-4)
+    np.testing.assert_allclose(data.comfort_use, doc["per_station"]["comfort_ellipse_use"],
+                               atol=1e-4)

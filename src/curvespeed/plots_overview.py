@@ -71,18 +71,23 @@ def _geometry_of(sp):
     from .geometry import Geometry
 
     spacing = float(np.median(np.diff(sp.station_m))) if sp.station_m.size > 1 else 1.0
+    bound = sp.curvature_bound_1pm
+    if bound is not None:
+        # printed to 1e-9 1/m like the curvature: never below it after rounding
+        bound = np.maximum(bound, np.abs(sp.curvature_1pm))
     return Geometry(station_m=sp.station_m, x_m=sp.x_m, y_m=sp.y_m, heading_rad=sp.heading_rad,
                     curvature_1pm=sp.curvature_1pm, z_m=sp.z_m, grade=sp.grade, closed=False,
-                    spacing_m=spacing, source=sp.source, name=sp.name)
+                    spacing_m=spacing, source=sp.source, name=sp.name,
+                    curvature_bound_1pm=bound)
 
 
 def overview_data(profile, limits=None, constraints=None, check: dict | None = None) -> ReportData:
     """What the overview draws, for a Profile or StationProfile.
 
     ``check`` (the check JSON's dictionary) gives the curves and uses; without it the profile
-    is checked along its route here: a planned Profile on its own geometry (judged on the
-    curvature's bound, as ``plan --report``), a StationProfile on its own columns (the
-    curvature estimate). Without ``limits`` the curves are found and numbered all the same
+    is checked along its route here: a planned Profile on its own geometry, a StationProfile on
+    its own columns; both judged on the curvature's bound where the profile has one (a profile
+    CSV's ``curvature_bound_1pm``), as ``check`` does. Without ``limits`` the curves are found and numbered all the same
     (they depend on the route alone) and the uses are left out.
     """
     from .check import SpeedKind, check_speeds, checked_constraints
