@@ -164,7 +164,12 @@ def test_provenance_and_cautions(made, browser):
     assert "optimal" in rows["solver"]
     assert rows["tool"].startswith("curvespeed ")
     assert re.fullmatch(r"\d{4}-\d\d-\d\d \d\d:\d\d:\d\d UTC", rows["generated (UTC)"])
-    assert rows["position noise"].startswith("stated ")
+    fit = json.loads((made / "check.json").read_text(encoding="utf-8"))["fit"]
+    used = fit["position_noise"]["used_m"]
+    assert rows["position noise"].startswith(("stated ", "not stated"))
+    assert f"used {used:.4g} m" in rows["position noise"]
+    assert "friction coefficient" in dict(page.eval_on_selector_all(
+        "#limits tr", "rs => rs.map(r => [r.cells[0].textContent, r.cells[1].textContent])"))
     cautions = page.inner_text("#cautions")
     assert "engineering judgment" in cautions and "local codes" in cautions
     page.context.close()

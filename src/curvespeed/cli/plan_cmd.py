@@ -114,6 +114,7 @@ def _figure_and_report(outputs, plot_file, report_file, route_file, limits_file,
                        constraints, profile) -> None:
     """The overview figure and the HTML report: the profile checked along its route once."""
     from ..io.check_report import check_report_dict
+    from ..io.meta_json import json_safe
     from ._report import check_of_plan
 
     checked = check_report_dict(check_of_plan(geo, limits, constraints, profile), route_file)
@@ -124,6 +125,9 @@ def _figure_and_report(outputs, plot_file, report_file, route_file, limits_file,
             profile, figure_format(plot_file), limits=limits, constraints=constraints,
             check=checked))
     if report_file:
+        # the report states what the plan was made with: its stops and end speeds too (check
+        # itself judges zones and superelevation only)
+        checked = dict(checked, constraints=json_safe(constraints.to_dict()))
         _write_report(outputs, report_file, route_file, limits_file, geo, profile, checked)
 
 

@@ -106,7 +106,8 @@ class ReportData:
     violations : tuple of str
         The check's violation messages.
     limits : tuple of (str, str)
-        The limits used, as label and value with unit.
+        The limits and route constraints (zones, stops, superelevation, end speeds) used, as
+        label and value with unit.
     provenance : tuple of (str, str)
         Input files and hashes, noise, solver and status, tool version, date.
     length_m : float
@@ -199,6 +200,24 @@ def limit_rows(limits: dict) -> tuple[tuple[str, str], ...]:
     return tuple(rows)
 
 
+def constraint_rows(constraints: dict | None) -> tuple[tuple[str, str], ...]:
+    """Speed zones, stops, superelevation and end speeds as label/value pairs (those given)."""
+    c = constraints or {}
+    rows = []
+    zones = [f"{z['start_m']:g}–{z['end_m']:g} m: {z['max_speed_mps']:g} m/s"
+             for z in c.get("zones") or []]
+    stops = [f"{s['station_m']:g} m" for s in c.get("stops") or []]
+    banks = [f"{b['start_m']:g}–{b['end_m']:g} m: {100 * b['rate']:g} %"
+             for b in c.get("superelevation") or []]
+    for label, items in (("speed zones", zones), ("stops", stops), ("superelevation", banks)):
+        if items:
+            rows.append((label, "; ".join(items)))
+    for label, key in (("start speed", "start_speed_mps"), ("end speed", "end_speed_mps")):
+        if c.get(key) is not None:
+            rows.append((label, f"{c[key]:g} m/s"))
+    return tuple(rows)
+
+
 def noise_rows(fit: dict | None) -> tuple[tuple[str, str], ...]:
     """Position and elevation noise: stated, estimated and used, metres."""
     rows = []
@@ -210,11 +229,12 @@ def noise_rows(fit: dict | None) -> tuple[tuple[str, str], ...]:
 
         def metres(name):
             value = entry.get(name)
-            return "not stated" if value is None and name == "stated_m" else (
-                "-" if value is None else f"{value:.4g} m")
+            return "-" if value is None else f"{value:.4g} m"
 
-        rows.append((label, f"stated {metres('stated_m')}, estimated {metres('estimated_m')}, "
-                            f"used {metres('used_m')} ({entry.get('origin') or 'unknown'})"))
+        stated = ("not stated" if entry.get("stated_m") is None
+                  else f"stated {metres('stated_m')}")
+        rows.append((label, f"{stated}; estimated {metres('estimated_m')}; used "
+                            f"{metres('used_m')} ({entry.get('origin') or 'origin not recorded'})"))
     if not rows:
         rows.append(("noise", "none: exact geometry (no fitted points)"))
     return tuple(rows)
@@ -270,7 +290,7 @@ def report_data(check: dict, x_m, y_m, *, doing: str, provenance, notes=()) -> R
         curves=tuple(_curve(row) for row in check.get("curves", [])),
         verdict=str(check.get("verdict", "unknown")),
         violations=tuple(str(v.get("message", "")) for v in check.get("violations", [])),
-        limits=limit_rows(limits),
+        limits=limit_rows(limits) + constraint_rows(check.get("constraints")),
         provenance=tuple(provenance) + noise_rows(check.get("fit")),
         length_m=float(route.get("length_m", s[-1])), closed=bool(route.get("closed", False)),
         notes=tuple(notes))

@@ -206,7 +206,7 @@ def report_html(data: ReportData) -> str:
     if data.violations:
         items = "".join(f"<li>{_esc(v)}</li>" for v in data.violations)
         parts.append(f'<section><h2>Violations</h2><ul id="violations">{items}</ul></section>')
-    parts += ['<section><h2>Limits</h2>', _key_values(data.limits, "limits"), "</section>",
+    parts += ['<section><h2>Limits and route constraints</h2>', _key_values(data.limits, "limits"), "</section>",
               '<section><h2>Provenance</h2>', _key_values(data.provenance, "provenance"),
               "</section>", '<section class="cautions"><h2>Cautions</h2><ul id="cautions">',
               "".join(f"<li>{_esc(c)}</li>" for c in CAUTIONS), "</ul></section>",
