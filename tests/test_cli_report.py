@@ -166,3 +166,13 @@ def test_plan_report_states_the_limits_zones_and_stops_it_was_planned_with(tmp_p
                 "<th scope=\"row\">speed zones</th><td class=\"\">0–50 m: 5 m/s</td>",
                 "<th scope=\"row\">stops</th><td class=\"\">100 m</td>"):
         assert row in limits
+
+
+@pytest.mark.parametrize("target", ["c.json", "p.csv", "p.meta.json"])
+def test_report_never_writes_over_an_input(planned, target):
+    before = (planned / target).read_bytes()
+    result = invoke(report, planned / "p.csv", planned / "c.json", "-o", planned / target,
+                    "--force")
+    assert result.exit_code == 2
+    assert target in result.stderr
+    assert (planned / target).read_bytes() == before
