@@ -121,14 +121,14 @@ def _curve_pieces(c, s0: float, s1: float):
 
 def draw_plan(data: ReportData, ax) -> RouteArtists:
     """The route in plan with numbered curves and advisory speeds; equal aspect."""
-    from .report.svg import _stations_between
+    from .report.svg import stations_between
 
     (route,) = ax.plot(data.x_m, data.y_m, color=LIGHT_GREY, lw=5, solid_capstyle="round",
                        zorder=1)
     curves, labels, placed = [], [], []
     span = max(float(np.ptp(data.x_m)), float(np.ptp(data.y_m)), 1.0)
     for c in data.curves:
-        nodes = _stations_between(data.station_m, c.start_m, c.end_m)
+        nodes = stations_between(data.station_m, c.start_m, c.end_m)
         colour = curve_colour(c.verdict) if c.verdict != "pass" else ROLES["curve"]
         (line,) = ax.plot(data.x_m[nodes], data.y_m[nodes], color=colour, lw=3.5,
                           ls="--" if c.verdict != "pass" else "-", zorder=2)

@@ -216,14 +216,15 @@ def plan_svg(data: ReportData) -> str:
                 "with their advisory speeds", body)
 
 
-def _stations_between(s: np.ndarray, a: float, b: float) -> np.ndarray:
+def stations_between(s: np.ndarray, a: float, b: float) -> np.ndarray:
+    """Indices of the stations from ``a`` to ``b``, across a loop's seam when ``b < a``."""
     if b >= a:
         return np.flatnonzero((s >= a) & (s <= b))
     return np.concatenate((np.flatnonzero(s >= a), np.flatnonzero(s <= b)))
 
 
 def _plan_curve(c, data: ReportData, px, py) -> str:
-    nodes = _stations_between(data.station_m, c.start_m, c.end_m)
+    nodes = stations_between(data.station_m, c.start_m, c.end_m)
     if nodes.size < 2:
         return ""
     pts = " ".join(f"{_f(a)},{_f(b)}" for a, b in zip(px(data.x_m[nodes]), py(data.y_m[nodes])))
