@@ -24,7 +24,9 @@ from curvespeed.cli.check_cmd import check
 from curvespeed.cli.plan_cmd import plan
 from curvespeed.cli.report_cmd import report
 
-ROUTE = Path(__file__).resolve().parent.parent / "routes" / "shuttle_route.gpx"
+ROUTES = Path(__file__).resolve().parent.parent / "routes"
+ROUTE = ROUTES / "shuttle_route.gpx"
+LOOP = ROUTES / "test_loop.geojson"          # a closed loop (invented)
 
 
 def invoke(command, *args, code=0):
@@ -35,7 +37,7 @@ def invoke(command, *args, code=0):
 
 @pytest.fixture(scope="module")
 def made(tmp_path_factory):
-    """Profile, check JSON and the four reports: plan, check of the plan, report, failing check."""
+    """Profile, check JSON and the reports: plan, check of the plan, report, failing checks."""
     d = tmp_path_factory.mktemp("reports")
     invoke(plan, ROUTE, "-o", d / "profile.csv", "--report", d / "plan.html")
     invoke(check, ROUTE, "--speeds", d / "profile.csv", "--json", d / "check.json",
@@ -44,6 +46,8 @@ def made(tmp_path_factory):
     # 80 km/h held everywhere is too fast for the shuttle route's bends: a failing check
     invoke(check, ROUTE, "--speed-kmh", 80, "--json", d / "fail.json", "--report",
            d / "fail.html", code=1)
+    invoke(check, LOOP, "--speed-kmh", 60, "--json", d / "loop.json", "--report",
+           d / "loop.html", code=1)
     return d
 
 
@@ -64,7 +68,8 @@ def table_numbers(page) -> list[int]:
 @pytest.mark.parametrize("name, result", [("plan.html", "check.json"),
                                           ("check.html", "check.json"),
                                           ("report.html", "check.json"),
-                                          ("fail.html", "fail.json")])
+                                          ("fail.html", "fail.json"),
+                                          ("loop.html", "loop.json")])
 def test_one_row_and_one_numbered_disc_per_curve_of_the_check(made, browser, name, result):
     curves = json.loads((made / result).read_text(encoding="utf-8"))["curves"]
     assert curves, "the shuttle route has curves; a report without any tests nothing"
