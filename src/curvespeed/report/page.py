@@ -87,7 +87,7 @@ SCRIPT = """
 })();
 """
 
-#: The curve table's columns: header, and the cell of a curve (shown text, sort value).
+#: How each verdict reads in the table.
 VERDICT_TEXT = {"pass": "pass", "fail": "FAIL", "fails_on_bound": "FAIL (within uncertainty)"}
 
 
@@ -114,6 +114,7 @@ def _sort_number(value) -> str:
     return repr(float(value))
 
 
+#: The curve table's columns: header, and the cell of a curve (shown text, sort value).
 COLUMNS = (
     ("#", lambda c: (c.number, c.number)),
     ("stations (m)", lambda c: (f"{c.start_m:.0f}–{c.end_m:.0f}", c.start_m)),
