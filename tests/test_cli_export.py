@@ -419,6 +419,21 @@ def test_plot_writes_the_figure_with_the_sidecar(metric, tmp_path, suffix):
     assert "metric.meta.json" in result.output and "no sidecar" not in result.output
 
 
+def test_plot_draws_the_gg_diagram_as_a_figure_of_its_own(metric, tmp_path):
+    path, _ = metric
+    out, gg = tmp_path / "figure.png", tmp_path / "gg.svg"
+    result = run(plot, path, "-o", out, "--gg", gg)
+    assert result.exit_code == 0, result.output
+    assert out.read_bytes().startswith(b"\x89PNG") and gg.read_bytes().startswith(b"<?xml")
+    assert "g-g diagram" in result.output
+    out.unlink()
+    # an existing g-g figure without --force: refused, and the overview not written either
+    result = run(plot, path, "-o", out, "--gg", gg)
+    assert result.exit_code == 2 and "gg.svg: file exists" in result.output
+    assert not out.exists()
+    assert run(plot, path, "-o", out, "--gg", tmp_path / "gg.jpg").exit_code == 2
+
+
 def test_plot_without_sidecar_says_so(tmp_path):
     path, _ = write_profile(tmp_path, geographic=True, with_meta=False)
     out = tmp_path / "figure.png"

@@ -16,8 +16,10 @@ from curvespeed.errors import OutputError
 from curvespeed.export import StationProfile
 from curvespeed.limits import Limits, RouteConstraints, SpeedZone, Stop
 from curvespeed.planner import plan_profile
-from curvespeed.plots import (plot_accel, plot_curvature, plot_gg, plot_jerk, plot_overview,
-                              plot_plan_view, plot_speed, save_overview)
+from curvespeed.check import SpeedKind, check_speeds, checked_constraints
+from curvespeed.plots import (gg_bytes, plot_accel, plot_curvature, plot_gg, plot_jerk,
+                              plot_overview, plot_plan_view, plot_speed, save_overview)
+from curvespeed.report.model import HOLD_ACCEL_MPS2
 
 from helpers import geometry_from_curvature
 
@@ -49,16 +51,63 @@ def band_y(band):
 
 
 def test_overview_has_the_expected_axes_with_units(overview):
-    assert set(overview.axes) == {"speed", "curvature", "accel", "jerk", "plan", "gg"}
-    for name, ax in overview.axes.items():
-        assert UNIT.search(ax.get_xlabel()), (name, ax.get_xlabel())
-        assert UNIT.search(ax.get_ylabel()), (name, ax.get_ylabel())
+    assert set(overview.axes) == {"plan", "curves", "speed", "use"}
+    assert overview.axes["plan"].get_xlabel() == "x (m)"
+    assert overview.axes["plan"].get_ylabel() == "y (m)"
     assert overview.axes["speed"].get_ylabel() == "speed (m/s)"
-    assert overview.axes["curvature"].get_ylabel() == "curvature (1/m)"
-    assert overview.axes["gg"].get_xlabel() == "lateral acceleration (m/s²)"
-    # the colour bar is the only other axes, and it carries units too
-    extra = [ax for ax in overview.figure.axes if ax not in overview.axes.values()]
-    assert len(extra) == 1 and extra[0].get_ylabel() == "speed (m/s)"
+    assert overview.axes["use"].get_ylabel() == "use (%)"
+    assert overview.axes["use"].get_xlabel() == "station (m)"
+    assert overview.axes["plan"].get_aspect() == 1.0
+    # no panel per derivative and no g-g diagram in the overview
+    labels = [ax.get_ylabel() for ax in overview.figure.axes]
+    assert not any("jerk" in y or "curvature" in y or "acceleration" in y for y in labels)
+
+
+@pytest.fixture(scope="module")
+def checked(profile):
+    """The profile checked along its route, as ``check --speeds`` would number its curves."""
+    return check_speeds(profile.geometry, LIMITS, checked_constraints(CONSTRAINTS, warn=False),
+                        profile.speed_mps, kind=SpeedKind.TRACE)
+
+
+def test_plan_view_numbers_the_curves_as_the_check_with_advisory_speeds(overview, checked):
+    plan = overview.artists["plan"]
+    assert len(checked.curves) == 1                  # the one invented bend
+    assert [lab.get_text() for lab in plan.labels] == [
+        f"{c.number}  {c.advisory.kmh} km/h" for c in checked.curves]
+    (line,) = plan.curves
+    c = checked.curves[0]
+    s = checked.station_m
+    assert line.get_xdata().size == np.count_nonzero((s >= c.start_m) & (s <= c.end_m))
+    np.testing.assert_array_equal(plan.route.get_xdata(), checked.geometry.x_m)
+
+
+def test_speed_panel_bands_and_zones(overview, profile, checked):
+    art = overview.artists["speed"]
+    np.testing.assert_array_equal(art.speed.get_xdata(), profile.station_m)
+    np.testing.assert_array_equal(art.speed.get_ydata(), profile.speed_mps)
+    np.testing.assert_array_equal(art.ceiling.get_ydata(), checked.limit_speed_mps)
+    assert art.ceiling.get_zorder() < art.speed.get_zorder()
+    assert len(art.bands) == len(checked.curves)
+    # the planned profile brakes into the bend and for the stop, and speeds up after both
+    a = checked.accel_mps2
+    assert len(art.braking) >= 2 and len(art.launch) >= 2
+    for span in art.braking:
+        x0, x1 = span.get_x(), span.get_x() + span.get_width()
+        inside = (checked.station_m >= x0) & (checked.station_m <= x1)
+        assert a[inside].min() < -HOLD_ACCEL_MPS2
+
+
+def test_use_strip_is_the_checks_grip_and_comfort_use(overview, checked):
+    art = overview.artists["use"]
+    np.testing.assert_allclose(art.grip.get_ydata(), 100 * checked.use["friction_ellipse"])
+    np.testing.assert_allclose(art.comfort.get_ydata(), 100 * checked.use["comfort_ellipse"])
+    assert art.limit.get_ydata()[0] == 100.0
+
+
+def test_gg_is_a_figure_of_its_own(profile):
+    data = gg_bytes(profile, "png", LIMITS)
+    assert data.startswith(b"\x89PNG\r\n\x1a\n") and len(data) > 10_000
 
 
 def test_title_names_route_length_and_time(overview, profile):
@@ -68,8 +117,8 @@ def test_title_names_route_length_and_time(overview, profile):
     assert f"{profile.total_time_s:.1f} s" in title
 
 
-def test_speed_panel_data_match_the_profile(overview, profile):
-    art = overview.artists["speed"]
+def test_speed_panel_data_match_the_profile(profile):
+    art = plot_speed(profile, CONSTRAINTS)
     np.testing.assert_array_equal(art.speed.get_xdata(), profile.station_m)
     np.testing.assert_array_equal(art.speed.get_ydata(), profile.speed_mps)
     np.testing.assert_array_equal(art.ceiling.get_ydata(), profile.limit_speed_mps)
@@ -83,8 +132,9 @@ def test_speed_panel_data_match_the_profile(overview, profile):
     np.testing.assert_array_equal(stop.get_xdata(), [150.0, 150.0])
 
 
-def test_curvature_accel_and_jerk_panels(overview, profile):
-    a = overview.artists
+def test_curvature_accel_and_jerk_panels(profile):
+    a = {"curvature": plot_curvature(profile), "accel": plot_accel(profile, LIMITS),
+         "jerk": plot_jerk(profile, LIMITS)}
     np.testing.assert_array_equal(a["curvature"].line.get_ydata(),
                                   profile.geometry.curvature_1pm)
     np.testing.assert_array_equal(a["accel"].line.get_ydata(), profile.accel_mps2)
@@ -93,8 +143,8 @@ def test_curvature_accel_and_jerk_panels(overview, profile):
     assert band_y(a["jerk"].band) == pytest.approx((-2.0, 2.0))
 
 
-def test_gg_diagram_points_and_ellipses(overview, profile):
-    gg = overview.artists["gg"]
+def test_gg_diagram_points_and_ellipses(profile):
+    gg = plot_gg(profile, LIMITS)
     np.testing.assert_array_equal(gg.points.get_xdata(), profile.lat_accel_mps2)
     np.testing.assert_array_equal(gg.points.get_ydata(), profile.accel_mps2)
     g = LIMITS.gravity_mps2
@@ -109,8 +159,8 @@ def test_gg_diagram_points_and_ellipses(overview, profile):
     assert gg.ax.get_aspect() == 1.0
 
 
-def test_plan_view_is_coloured_by_speed_with_equal_aspect(overview, profile):
-    plan = overview.artists["plan"]
+def test_plan_view_is_coloured_by_speed_with_equal_aspect(profile):
+    plan = plot_plan_view(profile)
     segments = plan.path.get_segments()
     assert len(segments) == profile.station_m.size - 1
     np.testing.assert_array_equal(segments[0][0], [profile.geometry.x_m[0],
@@ -122,11 +172,13 @@ def test_plan_view_is_coloured_by_speed_with_equal_aspect(overview, profile):
 
 
 def test_without_limits_the_panels_say_so(profile):
+    assert "no sidecar" in plot_gg(profile).note.get_text()
+    assert plot_accel(profile).band is None
+    speed = plot_speed(profile)
+    assert speed.zones == () and speed.stops == ()
     ov = plot_overview(profile)
-    assert ov.artists["gg"].friction is None and ov.artists["gg"].comfort is None
-    assert "no sidecar" in ov.artists["gg"].note.get_text()
-    assert ov.artists["accel"].band is None
-    assert ov.artists["speed"].zones == () and ov.artists["speed"].stops == ()
+    assert ov.artists["use"].grip is None and "not known" in ov.artists["use"].note.get_text()
+    assert len(ov.artists["plan"].labels) == 1       # curves depend on the route alone
 
 
 def test_jerk_panel_without_a_jerk_bound(profile):

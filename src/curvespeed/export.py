@@ -115,6 +115,9 @@ class StationProfile:
     rest_time_coef : ndarray, shape (n,)
         For each step next to rest driven with a jerk ramp, the ``c`` of its time ``c ds / v``
         (between 2 and 3, module docstring); 0 for the steps of constant acceleration.
+    curvature_bound_1pm : ndarray or None
+        The bound on |curvature| the profile was planned on (1/m), where it has one; figures
+        judge uses on it, as ``check`` does.
     """
 
     station_m: np.ndarray
@@ -137,6 +140,7 @@ class StationProfile:
     source: str = "profile"
     where: np.ndarray | None = None
     rest_time_coef: np.ndarray | None = None
+    curvature_bound_1pm: np.ndarray | None = None
 
     @classmethod
     def from_profile(cls, profile) -> "StationProfile":
@@ -150,7 +154,7 @@ class StationProfile:
             limit_speed_mps=profile.limit_speed_mps, binding=profile.binding, z_m=geo.z_m,
             grade=geo.grade, lat=None if latlon is None else latlon[0],
             lon=None if latlon is None else latlon[1], name=geo.name, source=geo.source,
-            rest_time_coef=profile.rest_time_coef)
+            rest_time_coef=profile.rest_time_coef, curvature_bound_1pm=geo.curvature_bound_1pm)
 
     @property
     def n_nodes(self) -> int:
@@ -229,7 +233,8 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
                          time_s=None, accel_mps2=None, jerk_mps3=None, lat_accel_mps2=None,
                          limit_speed_mps=None, binding=None, z_m=None, grade=None, lat=None,
                          lon=None, name: str = "route", source: str = "profile",
-                         where=None, rest_time_coef=None) -> StationProfile:
+                         where=None, rest_time_coef=None,
+                         curvature_bound_1pm=None) -> StationProfile:
     """Check arrays and build a :class:`StationProfile`.
 
     ``rest_time_coef`` (one value per step: the ``c`` of a step next to rest driven with a jerk
@@ -260,7 +265,7 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
     optional = {"time_s": arr(time_s), "accel_mps2": arr(accel_mps2),
                 "jerk_mps3": arr(jerk_mps3), "lat_accel_mps2": arr(lat_accel_mps2),
                 "limit_speed_mps": arr(limit_speed_mps), "z_m": arr(z_m), "grade": arr(grade),
-                "lat": arr(lat), "lon": arr(lon)}
+                "lat": arr(lat), "lon": arr(lon), "curvature_bound_1pm": arr(curvature_bound_1pm)}
     n = s.size
     labels = None if where is None else np.asarray(where, dtype=object).ravel()
     text = None if binding is None else np.asarray(binding, dtype=object).ravel()

@@ -144,7 +144,12 @@ PHYSICAL_RANGES = {
     "max_jerk_mps3": (0.01, math.inf, "below 0.01 m/s^3 taking up 1 m/s^2 would last 100 s"),
     "max_lateral_jerk_mps3": (0.01, math.inf, "below 0.01 m/s^3 entering a curve at 1 m/s^2 "
                               "would last 100 s"),
+    "max_speed_mps": (0.0, 1000.0, "1000 m/s is 3600 km/h, some three times the land speed "
+                      "record (about 340 m/s, from memory)"),
 }
+#: The highest speed a limit or speed zone may state, m/s (see ``PHYSICAL_RANGES``); beyond it
+#: squared speeds in the problem would overflow long before any vehicle is that fast.
+MAX_SPEED_MPS = PHYSICAL_RANGES["max_speed_mps"][1]
 
 #: Power over mass below this, W/kg, is most likely a power in kW under the W key (a loaded
 #: truck has about 5 W/kg, a passenger car 30-150 W/kg): warned about, not refused.
@@ -327,6 +332,10 @@ def validate_constraints(rc: RouteConstraints, length_m: float, closed: bool) ->
         if not (z.max_speed_mps > 0 and math.isfinite(z.max_speed_mps)):
             raise LimitsError(f"{here(z)}speed zone {z.start_m:g}..{z.end_m:g} m: max speed must "
                               f"be positive, got {z.max_speed_mps:g} m/s (use a stop for zero)")
+        if z.max_speed_mps > MAX_SPEED_MPS:
+            raise LimitsError(f"{here(z)}speed zone {z.start_m:g}..{z.end_m:g} m: max speed "
+                              f"{z.max_speed_mps:g} m/s is above {MAX_SPEED_MPS:g} m/s, which no "
+                              "vehicle reaches; check the value and its units")
         if z.start_m >= length_m or z.end_m <= 0:
             raise LimitsError(f"{here(z)}speed zone {z.start_m:g}..{z.end_m:g} m lies outside the "
                               f"route {route}; check its stations against the route summary")

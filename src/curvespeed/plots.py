@@ -13,8 +13,9 @@ can restyle or inspect them:
 * :func:`plot_gg` - g-g diagram (longitudinal against lateral acceleration) with the friction
   ellipse and the comfort limits of a flat road;
 * :func:`plot_plan_view` - the route in plan coloured by speed, with a colour bar, equal aspect;
-* :func:`plot_overview` - all of them in one figure with a title (route name, length, time);
-  :func:`save_overview` writes it to PNG, SVG or PDF (:func:`overview_bytes` gives the bytes).
+* :func:`plot_overview` - the overview figure, led by the route and its numbered curves
+  (:mod:`curvespeed.plots_overview`); :func:`save_overview` writes it to PNG, SVG or PDF
+  (:func:`overview_bytes` gives the bytes); :func:`gg_bytes` the g-g diagram on its own.
 
 matplotlib is imported inside the functions and only through :class:`matplotlib.figure.Figure`
 (never pyplot), so nothing opens a window, no global backend is switched, and importing curvespeed
@@ -42,8 +43,10 @@ from .limits import Limits, RouteConstraints
 FIGURE_FORMATS = {".png": "png", ".svg": "svg", ".pdf": "pdf"}
 
 #: Overview figure size, inches, and resolution for raster output, dots per inch.
-OVERVIEW_SIZE_IN = (15.0, 10.0)
+OVERVIEW_SIZE_IN = (13.0, 11.0)
 OVERVIEW_DPI = 110
+#: The g-g figure's size, inches.
+GG_SIZE_IN = (6.0, 6.0)
 
 STATION_LABEL = "station (m)"
 SPEED_LABEL = "speed (m/s)"
@@ -120,6 +123,8 @@ class Overview:
     axes: dict = field(default_factory=dict)
     artists: dict = field(default_factory=dict)
     title: str = ""
+    #: What was drawn (:class:`~curvespeed.report.ReportData`): curves, speeds, uses.
+    data: object = None
 
 
 # -- helpers -----------------------------------------------------------------------------------
@@ -376,56 +381,75 @@ def plot_plan_view(profile, ax=None) -> PlanArtists:
 
 def plot_overview(profile, limits: Limits | None = None,
                   constraints: RouteConstraints | None = None, title: str | None = None,
-                  figure=None) -> Overview:
-    """All panels in one figure: four against station on the left, plan view and g-g right.
+                  figure=None, check: dict | None = None) -> Overview:
+    """The overview: the route with its numbered curves first, then speed and utilisation.
+
+    Drawn by :mod:`curvespeed.plots_overview` in the report's visual language: the plan view
+    with the curves numbered as in the ``check`` table and their advisory speeds, the list of
+    curves beside it, the speed along the route with curve bands and braking/launch zones, and
+    the utilisation strip. The g-g diagram is a figure of its own (:func:`gg_bytes`).
 
     Parameters
     ----------
     profile : Profile or StationProfile
     limits : Limits, optional
-        Limits the profile was planned with (shaded bands, ellipses).
+        Limits the profile was planned with (the uses); without them the strip says so.
     constraints : RouteConstraints, optional
-        Zones and stops the profile was planned with.
+        Zones and superelevation the profile was planned with.
     title : str, optional
         Default: :func:`overview_title` (route name, length, time, speeds).
     figure : matplotlib Figure, optional
         Draw into this (empty) figure instead of a new one of :data:`OVERVIEW_SIZE_IN`.
+    check : dict, optional
+        A check result (the check JSON's dictionary) to take curves and uses from; by default
+        the profile is checked along its route (:func:`~curvespeed.plots_overview.overview_data`).
 
     Returns
     -------
     Overview
-        ``axes`` and ``artists`` keyed by ``speed``, ``curvature``, ``accel``, ``jerk``,
-        ``plan``, ``gg``.
+        ``axes`` and ``artists`` keyed by ``plan``, ``curves``, ``speed``, ``use``.
     """
+    from .plots_overview import draw_curve_list, draw_plan, draw_speed, draw_use, overview_data
+
     sp = as_station_profile(profile)
+    data = overview_data(profile, limits, constraints, check)
     if figure is None:
         from matplotlib.figure import Figure
 
         figure = Figure(figsize=OVERVIEW_SIZE_IN, layout="constrained")
         # keep a strip at the bottom free for the caution line
         figure.get_layout_engine().set(rect=(0.0, 0.025, 1.0, 0.975))
-    grid = figure.add_gridspec(4, 2, width_ratios=(3.0, 2.0),
-                               height_ratios=(1.6, 1.0, 1.0, 1.0))
-    axes = {"speed": figure.add_subplot(grid[0, 0])}
-    for row, name in enumerate(("curvature", "accel", "jerk"), start=1):
-        axes[name] = figure.add_subplot(grid[row, 0], sharex=axes["speed"])
-    axes["plan"] = figure.add_subplot(grid[0:2, 1])
-    axes["gg"] = figure.add_subplot(grid[2:4, 1])
-    artists = {
-        "speed": plot_speed(sp, constraints, ax=axes["speed"]),
-        "curvature": plot_curvature(sp, ax=axes["curvature"]),
-        "accel": plot_accel(sp, limits, ax=axes["accel"]),
-        "jerk": plot_jerk(sp, limits, ax=axes["jerk"]),
-        "plan": plot_plan_view(sp, ax=axes["plan"]),
-        "gg": plot_gg(sp, limits, ax=axes["gg"]),
-    }
+    grid = figure.add_gridspec(3, 2, width_ratios=(3.4, 1.0), height_ratios=(2.4, 1.3, 0.75))
+    axes = {"plan": figure.add_subplot(grid[0, 0]), "curves": figure.add_subplot(grid[0, 1]),
+            "speed": figure.add_subplot(grid[1, :])}
+    axes["use"] = figure.add_subplot(grid[2, :], sharex=axes["speed"])
+    artists = {"plan": draw_plan(data, axes["plan"]),
+               "curves": draw_curve_list(data, axes["curves"]),
+               "speed": draw_speed(data, axes["speed"]), "use": draw_use(data, axes["use"])}
+    axes["speed"].tick_params(labelbottom=False)
     text = title if title is not None else overview_title(sp)
     figure.suptitle(text, fontsize="large")
     figure.text(0.005, 0.003, "curvespeed profile: an engineering aid, not a speed "
                 "recommendation. Speeds on public roads and advisory signs follow local codes "
                 "and licensed engineering practice.", fontsize="x-small", color="0.4",
                 ha="left", va="bottom")
-    return Overview(figure=figure, axes=axes, artists=artists, title=text)
+    return Overview(figure=figure, axes=axes, artists=artists, title=text, data=data)
+
+
+def gg_figure(profile, limits: Limits | None = None):
+    """The g-g diagram (:func:`plot_gg`) as a figure of its own, with the route's name."""
+    from matplotlib.figure import Figure
+
+    sp = as_station_profile(profile)
+    figure = Figure(figsize=GG_SIZE_IN, layout="constrained")
+    artists = plot_gg(sp, limits, ax=figure.add_subplot())
+    figure.suptitle(f"{sp.name}: accelerations along and across the path", fontsize="medium")
+    return artists
+
+
+def gg_bytes(profile, fmt: str, limits: Limits | None = None) -> bytes:
+    """The g-g figure (:func:`gg_figure`) as the bytes of a ``png``, ``svg`` or ``pdf`` file."""
+    return figure_bytes(gg_figure(profile, limits).ax.figure, fmt)
 
 
 def save_overview(profile, path: str | os.PathLike, limits: Limits | None = None,
@@ -454,14 +478,14 @@ def save_overview(profile, path: str | os.PathLike, limits: Limits | None = None
 
 def overview_bytes(profile, fmt: str, limits: Limits | None = None,
                    constraints: RouteConstraints | None = None,
-                   title: str | None = None) -> bytes:
+                   title: str | None = None, check: dict | None = None) -> bytes:
     """The overview figure as the bytes of a ``png``, ``svg`` or ``pdf`` file.
 
     The library call behind ``curvespeed plot`` and ``curvespeed plan --plot``. Output carries
     no time stamp (and SVG ids use a fixed salt), so the same inputs give the same bytes with
     the same matplotlib.
     """
-    overview = plot_overview(profile, limits, constraints, title=title)
+    overview = plot_overview(profile, limits, constraints, title=title, check=check)
     return figure_bytes(overview.figure, fmt)
 
 

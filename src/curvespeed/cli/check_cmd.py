@@ -40,13 +40,16 @@ from ._limits import constraint_options, limit_override_options, limits_and_geom
               help="Write the full result (SI units) to this JSON file.")
 @click.option("--csv", "csv_file", type=click.Path(), default=None,
               help="Write the per-curve table to this CSV file.")
+@click.option("--report", "report_file", type=click.Path(), default=None,
+              help="Write a self-contained HTML report (plan view with numbered curves, speed, "
+                   "utilisation, curve table, provenance); prints on A4.")
 @click.option("--force", is_flag=True, help="Replace output files that exist.")
 @geometry_options
 @limit_override_options
 @constraint_options
 @handle_errors
 def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_speed_kmh, e_max,
-          trace_noise_m, curve_radius_m, json_file, csv_file, force, spacing_m,
+          trace_noise_m, curve_radius_m, json_file, csv_file, report_file, force, spacing_m,
           position_noise_m, elevation_noise_m, use_elevation, closed, part,
           drives, all_tracks, roads, lane, zones, stops, superelevations, start_speed, end_speed,
           **overrides):
@@ -74,7 +77,7 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
     register_drives(outputs, drives)
     outputs.add_input(limits_file, "the limits file (-l/--limits)")
     outputs.add_input(speeds_file, "the speeds file (--speeds)")
-    for path, option in ((json_file, "--json"), (csv_file, "--csv")):
+    for path, option in ((json_file, "--json"), (csv_file, "--csv"), (report_file, "--report")):
         if path:
             outputs.add_output(path, option)
     if design_speed_kmh is not None:
@@ -100,6 +103,15 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
             from ..io.check_report import curve_csv_text
 
             outputs.write_text(csv_file, curve_csv_text(report))
+        if report_file:
+            from ..io.check_report import check_report_dict
+            from ._report import input_files, report_text
+
+            outputs.write_text(report_file, report_text(
+                check_report_dict(report, route_file), geo.x_m, geo.y_m, doing="checked",
+                files=input_files(("route file", route_file), ("limits file", limits_file),
+                                  ("speeds file", speeds_file)),
+                solver="none: the speeds were given and checked, not planned"))
         body, verdict = render_report(route_file, report, origin)
         echo(body)
     if outputs.paths:

@@ -31,12 +31,16 @@ from ._limits import constraint_options, limit_override_options, limits_and_geom
                    "0 is pure minimum time.")
 @click.option("--plot", "plot_file", type=click.Path(), default=None,
               help="Also draw the overview figure (.png, .svg or .pdf) of the profile.")
+@click.option("--report", "report_file", type=click.Path(), default=None,
+              help="Also write a self-contained HTML report (plan view with numbered curves, "
+                   "speed, utilisation, curve table, provenance); prints on A4.")
 @click.option("--force", is_flag=True, help="Replace output files that exist.")
 @geometry_options
 @limit_override_options
 @constraint_options
 @handle_errors
-def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort_weight, plot_file, force,
+def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort_weight, plot_file,
+         report_file, force,
          spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed, part,
          drives, all_tracks, roads, lane, zones, stops, superelevations, start_speed, end_speed,
          **overrides):
@@ -67,6 +71,8 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
 
         figure_format(plot_file)
         outputs.add_output(plot_file, "--plot")
+    if report_file:
+        outputs.add_output(report_file, "--report")
     with outputs:               # every output checked here; written together at the end
         limits, constraints, origin, geo = limits_and_geometry(
             route_file, limits_file, overrides,
@@ -93,15 +99,49 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
             outputs.write_text(output, profile_csv_text(profile))
             outputs.write_text(meta_path, meta_json_text(
                 profile_meta(profile, limits, constraints, route_file)))
-        if plot_file:
-            from ..plots import figure_format, overview_bytes
-
-            outputs.write_bytes(plot_file, overview_bytes(
-                profile, figure_format(plot_file), limits=limits, constraints=constraints))
+        if plot_file or report_file:
+            _figure_and_report(outputs, plot_file, report_file, route_file, limits_file, geo,
+                               limits, constraints, profile)
     if output:
         echo(f"wrote {output} and {meta_path}")
     if plot_file:
         echo(f"drew {plot_file}")
+    if report_file:
+        echo(f"wrote the report {report_file}")
+
+
+def _figure_and_report(outputs, plot_file, report_file, route_file, limits_file, geo, limits,
+                       constraints, profile) -> None:
+    """The overview figure and the HTML report: the profile checked along its route once."""
+    from ..io.check_report import check_report_dict
+    from ..io.meta_json import json_safe
+    from ._report import check_of_plan
+
+    checked = check_report_dict(check_of_plan(geo, limits, constraints, profile), route_file)
+    if plot_file:
+        from ..plots import figure_format, overview_bytes
+
+        outputs.write_bytes(plot_file, overview_bytes(
+            profile, figure_format(plot_file), limits=limits, constraints=constraints,
+            check=checked))
+    if report_file:
+        # the report states what the plan was made with: its stops and end speeds too (check
+        # itself judges zones and superelevation only)
+        checked = dict(checked, constraints=json_safe(constraints.to_dict()))
+        _write_report(outputs, report_file, route_file, limits_file, geo, profile, checked)
+
+
+def _write_report(outputs, report_file, route_file, limits_file, geo, profile, checked) -> None:
+    """The HTML report of the plan, with provenance."""
+    from ._report import input_files, report_text
+
+    solve = profile.solve
+    solver = (f"{solve.solver}: {solve.status.value}, {solve.iterations} iteration(s)"
+              + "".join(f"; {note}" for note in solve.notes))
+    outputs.write_text(report_file, report_text(
+        checked, geo.x_m, geo.y_m, doing="planned",
+        files=input_files(("route file", route_file), ("limits file", limits_file)),
+        solver=solver))
 
 
 def summarise(route_file, profile, limits, origin: str, max_curves: int = 8) -> str:

@@ -119,3 +119,57 @@ def curve_csv_text(report: CheckReport) -> str:
 def write_curve_csv(report: CheckReport, path: str | os.PathLike, force: bool = False) -> Path:
     """Write the per-curve table to ``path`` as CSV (atomically)."""
     return write_text_atomic(curve_csv_text(report), path, force)
+
+
+# -- reading back (for ``curvespeed report``) --------------------------------------------------
+
+#: Keys every curve of a check JSON needs for a report.
+_CURVE_KEYS = ("number", "start_m", "end_m", "tightest_station_m", "direction", "min_radius_m",
+               "speed_mps", "limit_speed_mps", "friction_use", "comfort_use", "brake_ok")
+#: Per-station arrays a report draws.
+_STATION_ARRAYS = ("station_m", "speed_mps", "accel_mps2", "limit_speed_mps")
+
+
+def read_check_json(path: str | os.PathLike) -> dict:
+    """Read a check JSON (``curvespeed check --json``) back, for a report.
+
+    Raises
+    ------
+    SpeedFileError
+        Missing or unreadable file, invalid JSON, or not what ``check --json`` writes (a key
+        missing, per-station arrays of different lengths or holding non-numbers); the message
+        names the file and the key.
+    """
+    from ..errors import SpeedFileError
+    from ._common import load_json, read_text
+
+    source = str(path)
+    advice = "write it again with curvespeed check --json"
+    doc = load_json(read_text(path, SpeedFileError), source, SpeedFileError, advice=advice)
+
+    def bad(what: str) -> SpeedFileError:
+        return SpeedFileError(f"{source}: {what}; this is not a check result of curvespeed "
+                              f"check --json ({advice})")
+
+    if not isinstance(doc, dict) or not isinstance(doc.get("per_station"), dict):
+        raise bad('no "per_station" object')
+    per = doc["per_station"]
+    n = None
+    for key in _STATION_ARRAYS:
+        values = per.get(key)
+        if not isinstance(values, list) or not values:
+            raise bad(f"per_station.{key} is missing or empty")
+        if n is not None and len(values) != n:
+            raise bad(f"per_station.{key} has {len(values)} values, per_station.station_m {n}")
+        n = len(values)
+        for i, v in enumerate(values):
+            if not isinstance(v, (int, float)) or isinstance(v, bool):
+                raise bad(f"per_station.{key}[{i}] is {json.dumps(v)[:30]}, not a number")
+    curves = doc.get("curves")
+    if not isinstance(curves, list):
+        raise bad('no "curves" list')
+    for i, curve in enumerate(curves):
+        missing = [k for k in _CURVE_KEYS if not isinstance(curve, dict) or k not in curve]
+        if missing:
+            raise bad(f"curves[{i}] has no {', '.join(missing)}")
+    return doc

@@ -125,6 +125,10 @@ class ProfileSidecar:
         Planned time, s.
     source : str
         The sidecar's file name.
+    route_file, route_sha256 : str or None
+        The route file the profile was planned from and its SHA-256, as recorded.
+    solver : str or None
+        The solver, its status and iterations, in words (for reports).
     """
 
     limits: Limits
@@ -133,6 +137,9 @@ class ProfileSidecar:
     closed: bool | None
     total_time_s: float | None
     source: str
+    route_file: str | None = None
+    route_sha256: str | None = None
+    solver: str | None = None
 
 
 def read_profile_meta(path: str | os.PathLike) -> ProfileSidecar:
@@ -196,8 +203,25 @@ def read_profile_meta(path: str | os.PathLike) -> ProfileSidecar:
     name = route.get("name") if isinstance(route.get("name"), str) else None
     closed = route.get("closed") if isinstance(route.get("closed"), bool) else None
     total = finite_value(doc.get("total_time_s"))
+
+    def text(value):
+        return value if isinstance(value, str) else None
+
     return ProfileSidecar(limits=limits, constraints=constraints, route_name=name, closed=closed,
-                          total_time_s=total, source=source)
+                          total_time_s=total, source=source, route_file=text(route.get("file")),
+                          route_sha256=text(route.get("sha256")),
+                          solver=solver_text(doc.get("solver")))
+
+
+def solver_text(solver) -> str | None:
+    """``convex: optimal, 12 iteration(s), 0.41 s`` from a sidecar's ``solver`` entry."""
+    if not isinstance(solver, dict) or not isinstance(solver.get("name"), str):
+        return None
+    out = f"{solver['name']}: {solver.get('status', 'status not recorded')}"
+    if isinstance(solver.get("iterations"), int):
+        out += f", {solver['iterations']} iteration(s)"
+    notes = [n for n in solver.get("notes") or [] if isinstance(n, str)]
+    return out + "".join(f"; {n}" for n in notes)
 
 
 __all__ = ["ProfileSidecar", "check_writable", "default_meta_path", "file_sha256", "json_safe",

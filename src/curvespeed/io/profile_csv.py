@@ -56,7 +56,8 @@ PROFILE_COLUMNS = ("station_m", "x_m", "y_m", "heading_rad", "curvature_1pm",
 REQUIRED_PROFILE_COLUMNS = ("station_m", "x_m", "y_m", "heading_rad", "curvature_1pm",
                             "speed_mps")
 _OPTIONAL_PROFILE_COLUMNS = ("time_s", "accel_mps2", "jerk_mps3", "lat_accel_mps2",
-                             "limit_speed_mps", "z_m", "grade", "lat", "lon")
+                             "limit_speed_mps", "z_m", "grade", "lat", "lon",
+                             "curvature_bound_1pm")
 
 #: A profile's own time_s may differ from the time recomputed from its rounded stations (0.1 mm)
 #: and speeds (1e-6 m/s) by far less than this (s, plus the same fraction of the total time);
@@ -126,7 +127,7 @@ def read_station_profile(path: str | os.PathLike, name: str | None = None) -> St
 
     Needs the columns :data:`REQUIRED_PROFILE_COLUMNS`; keeps ``time_s``, ``accel_mps2``,
     ``jerk_mps3``, ``lat_accel_mps2``, ``limit_speed_mps``, ``binding``, ``z_m``, ``grade``,
-    ``lat`` and ``lon`` where present. The steps next to rest driven with a jerk ramp come from
+    ``lat``, ``lon`` and ``curvature_bound_1pm`` where present. The steps next to rest driven with a jerk ramp come from
     the ``step_kind`` column (:func:`read_step_kinds`; a ``jerk_ramp`` step's time from
     ``time_s``); a file without it (older or hand-made) has them recognised from ``time_s``
     (:func:`curvespeed.export.detect_rest_steps`). Warns
