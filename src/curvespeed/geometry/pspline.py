@@ -224,6 +224,23 @@ def null_space_spline(null_fit, null_ss, target_ss, span, periodic, n_int) -> Sp
     return SplineFit(spline, span, n_int, periodic, null_ss, target_ss, False, math.inf)
 
 
+def derivative_basis(knots: np.ndarray, k: int, u: np.ndarray, nu: int) -> sparse.csr_matrix:
+    """Sparse ``M`` with ``M @ c`` the ``nu``-th derivative at ``u`` of the degree-``k`` spline
+    with coefficients ``c`` on ``knots`` (``u`` within the base interval, as ``BSpline`` with
+    ``extrapolate=False`` takes it). A spline's derivative is the degree ``k - 1`` spline on the
+    knots without their ends whose coefficients are ``k (c[i+1] - c[i]) / (t[i+k+1] - t[i+1])``
+    (de Boor's derivative formula), applied ``nu`` times to a design matrix."""
+    t, degree = np.asarray(knots, dtype=float), k
+    diff = sparse.identity(t.size - k - 1, format="csr")
+    for _ in range(nu):
+        m = t.size - degree - 1
+        span = t[degree + 1: degree + m] - t[1:m]
+        w = np.where(span > 0, degree / np.where(span > 0, span, 1.0), 0.0)
+        diff = sparse.diags([-w, w], [0, 1], shape=(m - 1, m), format="csr") @ diff
+        t, degree = t[1:-1], degree - 1
+    return (BSpline.design_matrix(u, t, degree) @ diff).tocsr()
+
+
 @functools.cache
 def _uniform_basis_polynomials() -> np.ndarray:
     """Power-basis coefficients of the k+1 uniform B-spline pieces on one knot interval.
