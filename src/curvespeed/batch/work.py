@@ -108,7 +108,7 @@ def _geometry_row(spec, geo) -> dict:
 
 def _report_row(report) -> dict:
     failing = [c for c in report.curves if not c.passed]
-    worst = max((c.worst_use for c in report.curves), default=float("nan"))
+    worst = max((c.worst_use for c in report.curves), default=None)
     return {"curves": len(report.curves), "curves_failing": len(failing),
             "worst_curve_use": worst, "violations": len(report.violations),
             "result": "pass" if report.ok else "fail"}
