@@ -154,17 +154,19 @@ def _run(command: str, common: dict, extra: dict) -> None:
     store = BatchStore(outdir, command)
     store.open()
     progress = ProgressLine(total)
-    _stop_on_sigterm()
-    with _client(common["scheduler"], common["workers"]) as client:
-        try:
+    restore = _stop_on_sigterm()
+    try:
+        with _client(common["scheduler"], common["workers"]) as client:
             outcome = run_batch(iter_specs(inputs, fields, common["layer"]), settings, store,
                                 client, progress=progress, resume=not common["force"])
-        except KeyboardInterrupt as exc:
-            progress.close()
-            signum = getattr(exc, "signum", 2)
-            click.echo(f"error: interrupted; the roads finished so far are kept in {outdir}: "
-                       "run the same command again to continue", err=True)
-            sys.exit(128 + signum)
+    except KeyboardInterrupt as exc:
+        progress.close()
+        signum = getattr(exc, "signum", 2)
+        click.echo(f"error: interrupted; the roads finished so far are kept in {outdir}: "
+                   "run the same command again to continue", err=True)
+        sys.exit(128 + signum)
+    finally:
+        restore()
     progress.close()
     echo(f"{command}: {outcome.total} road(s): {outcome.computed} processed, {outcome.reused} "
          f"kept from an earlier run, {outcome.failed} failed, in {outcome.elapsed_s:.1f} s")
@@ -194,8 +196,9 @@ def _refuse_overlap(inputs, limits_file, outdir) -> None:
                              "never writes among its inputs: give another folder (-o)")
 
 
-def _stop_on_sigterm() -> None:
-    """SIGTERM stops the batch as Ctrl-C does (the finished roads stay; the cluster closes)."""
+def _stop_on_sigterm():
+    """SIGTERM stops the batch as Ctrl-C does (the finished roads stay; the cluster closes);
+    returns what puts the previous handler back."""
     import signal
     import threading
 
@@ -204,8 +207,10 @@ def _stop_on_sigterm() -> None:
     def stop(signum, frame):
         raise Interrupted(signum)
 
-    if threading.current_thread() is threading.main_thread():
-        signal.signal(signal.SIGTERM, stop)
+    if threading.current_thread() is not threading.main_thread():
+        return lambda: None
+    previous = signal.signal(signal.SIGTERM, stop)
+    return lambda: signal.signal(signal.SIGTERM, previous)
 
 
 class _client:
