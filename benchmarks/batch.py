@@ -93,14 +93,11 @@ def _cpu_s():
 
 
 def on_cluster(path, workers: int, outdir: Path) -> dict:
-    from distributed import Client, LocalCluster
-
     from curvespeed.batch import BatchStore, run_batch
+    from curvespeed.batch.cluster import start_local_cluster
 
     t0 = time.perf_counter()
-    cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=True,
-                           dashboard_address=None, silence_logs=40)
-    client = Client(cluster)
+    cluster, client = start_local_cluster(workers)      # the command line's local cluster
     assert all(client.run(_warm_up, next(iter(_specs(path))), _settings()).values())
     start_s = time.perf_counter() - t0
     try:

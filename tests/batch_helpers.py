@@ -21,12 +21,10 @@ FIELDS = dict(id_field="road_id", speed_field="speed_kmh", friction_field="frict
 def dask_client():
     import logging
 
-    from distributed import Client, LocalCluster
+    from curvespeed.batch.cluster import start_local_cluster
 
     logging.getLogger("distributed").setLevel(logging.CRITICAL)
-    cluster = LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
-                           dashboard_address=None)
-    client = Client(cluster)
+    cluster, client = start_local_cluster(2)
     yield client
     client.close()
     cluster.close()

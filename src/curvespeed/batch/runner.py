@@ -143,19 +143,23 @@ class _Submitter:
             return
         from distributed import as_completed
 
-        threads = sum(client.nthreads().values()) or 1
-        self.window = window or TASKS_PER_WORKER * threads
+        self.fixed = window
+        self.window = window or TASKS_PER_WORKER
+        self.submitted = 0
         self.pending = as_completed()
         self.specs: dict = {}
-        # sent to every worker once, not with each task
-        self.shared = client.scatter(settings, broadcast=True, hash=False)
 
     def __call__(self, spec, digest: str):
         if self.client is None:
             yield spec.order, run_route(spec, self.settings, digest)
             return
-        future = self.client.submit(run_route, spec, self.shared, digest, pure=False,
+        if not self.fixed and self.submitted % 64 == 0:      # workers may join or leave
+            threads = sum(self.client.nthreads().values())
+            self.window = TASKS_PER_WORKER * max(threads, 1)
+        # the settings travel with each task (a few kB): nothing a lost worker could take along
+        future = self.client.submit(run_route, spec, self.settings, digest, pure=False,
                                     key=f"road-{spec.order}-{digest[:12]}")
+        self.submitted += 1
         self.specs[future.key] = (spec, digest)
         self.pending.add(future)
         while self.pending.count() >= self.window:

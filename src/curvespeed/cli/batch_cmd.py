@@ -13,7 +13,7 @@ import sys
 import click
 
 from ..solvers import QPBackend, SolverKind
-from ._common import FINITE, NoiseParam, echo, handle_errors
+from ._common import FINITE, echo, fit_options, handle_errors
 from ._limits import limit_override_options
 
 EXIT_SOME_FAILED = 3
@@ -48,22 +48,11 @@ def batch_options(func):
         click.option("-l", "--limits", "limits_file", type=click.Path(), default=None,
                      help="Limits file (TOML) for every road. Without it, built-in "
                           "passenger-car comfort limits."),
-        click.option("--spacing", "spacing_m", type=FINITE, default=1.0, show_default=True,
-                     metavar="M", help="Station spacing of each resampled road, metres."),
-        click.option("--position-noise", "position_noise_m", type=NoiseParam(),
-                     default="auto", show_default=True, metavar="M|auto",
-                     help="Position noise of the roads' points, metres, or 'auto'."),
-        click.option("--elevation-noise", "elevation_noise_m", type=NoiseParam(),
-                     default="auto", show_default=True, metavar="M|auto",
-                     help="Elevation noise, metres, or 'auto'."),
-        click.option("--no-elevation", "use_elevation", flag_value=False, default=True,
-                     help="Ignore the roads' elevations (no grade)."),
-        click.option("--closed/--open", "closed", default=None,
-                     help="Treat every road as a loop or as open (default: by its ends)."),
     ]
+    func = fit_options(limit_override_options(func))
     for option in reversed(options):
         func = option(func)
-    return limit_override_options(func)
+    return func
 
 
 @click.group()
@@ -223,7 +212,7 @@ class _client:
     def __enter__(self):
         import logging
 
-        from distributed import Client, LocalCluster
+        from distributed import Client
 
         logging.getLogger("distributed").setLevel(logging.ERROR)
         if self.scheduler:
@@ -235,9 +224,9 @@ class _client:
                 raise BatchError(f"--scheduler {self.scheduler}: cannot connect ({exc}); start "
                                  "the scheduler first or check the address") from None
         else:
-            self.cluster = LocalCluster(n_workers=self.workers, threads_per_worker=1,
-                                        processes=True, dashboard_address=None)
-            self.client = Client(self.cluster)
+            from ..batch.cluster import start_local_cluster
+
+            self.cluster, self.client = start_local_cluster(self.workers)
         return self.client
 
     def __exit__(self, *exc):
@@ -268,9 +257,11 @@ class ProgressLine:
         rate = outcome.computed / outcome.elapsed_s if outcome.elapsed_s > 0 else 0.0
         left = (self.total - done) / rate if rate > 0 else float("nan")
         width = 30
-        filled = int(width * done / self.total) if self.total else width
+        filled = min(width, int(width * done / self.total)) if self.total else width
+        when = (f"done in {_duration(outcome.elapsed_s)}" if done >= self.total
+                else f"{_duration(left)} left")
         text = (f"[{'#' * filled}{'.' * (width - filled)}] {done}/{self.total} roads, "
-                f"{outcome.failed} failed, {rate:.2f} roads/s, {_duration(left)} left")
+                f"{outcome.failed} failed, {rate:.2f} roads/s, {when}")
         click.echo(("\r" + text) if self.tty else text, err=True, nl=not self.tty)
         self.shown = True
 
