@@ -241,7 +241,8 @@ def _layer_specs(path, fields: FieldMap, layer, order, prefix) -> Iterator[Route
         geoms = shapely.from_wkb(wkb)
         for j, geom in enumerate(geoms):
             number = first + j + 1
-            fid = fids[j] if fids is not None else number
+            # a GeoPackage's feature id is its key; a GeoJSON feature's is its place in the file
+            fid = fids[j] if fids is not None and kind == "gpkg" else number
             row = {name: attrs[name][j] for name in columns}
             source = f"{path}, feature {number}"
             yield _feature_spec(geom, row, fields, transform, source, order + first + j,
