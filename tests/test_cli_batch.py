@@ -169,3 +169,15 @@ def test_bad_invocations_exit_2_and_write_nothing(tmp_path, roads, case, message
     assert result.exit_code == 2, result.output
     assert message in result.output
     assert (sorted(p.name for p in out.iterdir()) if out.exists() else None) == before
+
+
+def test_an_unreachable_scheduler_exits_2_and_writes_nothing(tmp_path, roads):
+    import dask
+
+    out = tmp_path / "out"
+    with dask.config.set({"distributed.comm.timeouts.connect": "2s"}):
+        result = batch("plan", network(tmp_path, roads[:1]), "-o", out, "--scheduler",
+                       "tcp://127.0.0.1:9")          # the discard port: nothing listens
+    assert result.exit_code == 2, result.output
+    assert "--scheduler tcp://127.0.0.1:9: cannot connect" in result.output
+    assert not out.exists()

@@ -58,6 +58,18 @@ class BatchStore:
 
     def open(self) -> None:
         """Create the folder, or accept one a batch of the same command wrote."""
+        self.check()
+        marker = self.outdir / MARKER
+        if not self.outdir.exists():
+            self.outdir.mkdir()
+        if not marker.exists():
+            marker.write_text(json.dumps({"tool": "curvespeed", "version": __version__,
+                                          "command": self.command}, indent=2) + "\n")
+        self.folder.mkdir(exist_ok=True)
+
+    def check(self) -> None:
+        """Raise :class:`BatchError` unless the folder is new, empty, or a batch of the same
+        command wrote it (nothing is created)."""
         marker = self.outdir / MARKER
         if self.outdir.exists():
             if not self.outdir.is_dir():
@@ -73,11 +85,6 @@ class BatchStore:
             if not parent.is_dir():
                 raise BatchError(f"{self.outdir}: folder {parent} does not exist; create it "
                                  "first")
-            self.outdir.mkdir()
-        if not marker.exists():
-            marker.write_text(json.dumps({"tool": "curvespeed", "version": __version__,
-                                          "command": self.command}, indent=2) + "\n")
-        self.folder.mkdir(exist_ok=True)
 
     def _check_marker(self, marker: Path) -> None:
         try:

@@ -141,11 +141,12 @@ def _run(command: str, common: dict, extra: dict) -> None:
     from ..batch import BatchStore, run_batch
 
     store = BatchStore(outdir, command)
-    store.open()
+    store.check()                     # before a cluster starts; created once one runs
     progress = ProgressLine(total)
     restore = _stop_on_sigterm()
     try:
         with _client(common["scheduler"], common["workers"]) as client:
+            store.open()
             outcome = run_batch(iter_specs(inputs, fields, common["layer"]), settings, store,
                                 client, progress=progress, resume=not common["force"])
     except KeyboardInterrupt as exc:
@@ -217,7 +218,8 @@ class _client:
         logging.getLogger("distributed").setLevel(logging.ERROR)
         if self.scheduler:
             try:
-                self.client = Client(self.scheduler, timeout="20s")
+                # the wait is Dask's distributed.comm.timeouts.connect (30 s by default)
+                self.client = Client(self.scheduler)
             except OSError as exc:
                 from ..errors import BatchError
 
