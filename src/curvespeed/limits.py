@@ -135,6 +135,9 @@ PHYSICAL_RANGES = {
     "mass_kg": (1.0, 1e7, "from a few kg for a small robot to about 10,000 t for the heaviest "
                 "trains"),
     "gravity_mps2": (9.7, 10.0, "gravity at the Earth's surface is 9.78-9.83 m/s^2"),
+    "max_speed_mps": (0.0, 1000.0, "no vehicle on land reaches 1,000 m/s (the land speed "
+                      "record is about 340 m/s, from memory); larger values also overflow the "
+                      "squared speeds the solvers work in"),
     "max_accel_mps2": (0.01, math.inf, "below 0.01 m/s^2 a vehicle would take over 100 s to "
                        "gain 1 m/s"),
     "max_decel_mps2": (0.01, math.inf, "below 0.01 m/s^2 a vehicle would take over 100 s to "
