@@ -3,6 +3,9 @@
     python benchmarks/run.py            # all cases (under a minute on 2 cores)
     python benchmarks/run.py --quick    # 10 km cases only
 
+The batch benchmark (``benchmarks/batch.py``) runs last, on 40 invented roads (10 with
+``--quick``); run it alone for other sizes.
+
 Every case runs in its own Python process (so peak memory is that case's own) and repeats the
 solve; the table shows medians. The routes are invented for the benchmark: a winding road whose
 curves (radius 40-600 m, blended over 40 m) are drawn from a seeded random generator, with two
@@ -348,6 +351,12 @@ def main() -> None:
     sys.stdout.flush()
     subprocess.run([sys.executable, str(Path(__file__).with_name("replay_bench.py"))],
                    check=True, cwd=ROOT)
+    batch_routes = 10 if args.quick else 40
+    print(f"\nbatch (benchmarks/batch.py --routes {batch_routes}; 1,000 roads: run it alone):")
+    out = subprocess.run([sys.executable, str(ROOT / "benchmarks" / "batch.py"), "--routes",
+                          str(batch_routes)], check=True, capture_output=True, text=True,
+                         cwd=ROOT)
+    print(out.stdout.strip())
 
 
 if __name__ == "__main__":

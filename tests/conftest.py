@@ -8,3 +8,6 @@ from hypothesis import settings
 
 settings.register_profile("curvespeed", derandomize=True, deadline=None)
 settings.load_profile("curvespeed")
+
+# the real local Dask cluster of the batch tests, shared by their modules
+from batch_helpers import dask_client  # noqa: E402,F401

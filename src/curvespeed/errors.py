@@ -48,5 +48,9 @@ class OutputError(CurvespeedError, OSError):
     """An output file cannot be written (exists without --force, folder missing, ...)."""
 
 
+class BatchError(CurvespeedError, ValueError):
+    """A batch run cannot start: an input layer, a field or the output folder is unusable."""
+
+
 class CurvespeedWarning(UserWarning):
     """Something was repaired or assumed; the result is usable but the input deserves a look."""

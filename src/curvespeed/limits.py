@@ -135,6 +135,9 @@ PHYSICAL_RANGES = {
     "mass_kg": (1.0, 1e7, "from a few kg for a small robot to about 10,000 t for the heaviest "
                 "trains"),
     "gravity_mps2": (9.7, 10.0, "gravity at the Earth's surface is 9.78-9.83 m/s^2"),
+    "max_speed_mps": (0.0, 1000.0, "no vehicle on land reaches 1,000 m/s (the land speed "
+                      "record is about 340 m/s, from memory); larger values also overflow the "
+                      "squared speeds the solvers work in"),
     "max_accel_mps2": (0.01, math.inf, "below 0.01 m/s^2 a vehicle would take over 100 s to "
                        "gain 1 m/s"),
     "max_decel_mps2": (0.01, math.inf, "below 0.01 m/s^2 a vehicle would take over 100 s to "
@@ -144,8 +147,6 @@ PHYSICAL_RANGES = {
     "max_jerk_mps3": (0.01, math.inf, "below 0.01 m/s^3 taking up 1 m/s^2 would last 100 s"),
     "max_lateral_jerk_mps3": (0.01, math.inf, "below 0.01 m/s^3 entering a curve at 1 m/s^2 "
                               "would last 100 s"),
-    "max_speed_mps": (0.0, 1000.0, "1000 m/s is 3600 km/h, some three times the land speed "
-                      "record (about 340 m/s, from memory)"),
 }
 #: The highest speed a limit or speed zone may state, m/s (see ``PHYSICAL_RANGES``); beyond it
 #: squared speeds in the problem would overflow long before any vehicle is that fast.

@@ -150,9 +150,8 @@ class RoadList(click.ParamType):
         return items
 
 
-def geometry_options(func):
-    """Add the route-resampling options (spacing, noise, elevation, closed/open, part)."""
-    options = [
+def _fit_option_list():
+    return [
         click.option("--spacing", "spacing_m", type=FINITE, default=1.0, show_default=True,
                      metavar="M", help="Station spacing of the resampled route, metres."),
         click.option("--position-noise", "position_noise_m", type=NoiseParam(), default="auto",
@@ -169,6 +168,21 @@ def geometry_options(func):
         click.option("--closed/--open", "closed", default=None,
                      help="Treat the route as a closed loop or as open (default: closed when "
                           "its ends meet with the same heading)."),
+    ]
+
+
+def fit_options(func):
+    """Add the options of the fit every route goes through (spacing, noise, elevation,
+    closed/open); ``batch`` takes these alone."""
+    for option in reversed(_fit_option_list()):
+        func = option(func)
+    return func
+
+
+def geometry_options(func):
+    """Add the route-resampling options: :func:`fit_options`, then the part of a drive and
+    further drives."""
+    options = _fit_option_list() + [
         click.option("--part", "part", type=click.IntRange(min=1), default=None, metavar="N",
                      help="Where the recorded vehicle reverses, the drive splits into parts: "
                           "use part N (default: the longest)."),

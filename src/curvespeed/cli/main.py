@@ -37,13 +37,15 @@ def cli() -> None:
 
 
 def _register() -> None:
-    from . import check_cmd, export_cmd, plan_cmd, plot_cmd, replay_cmd, report_cmd, route_cmd
+    from . import (batch_cmd, check_cmd, export_cmd, plan_cmd, plot_cmd, replay_cmd,
+                   report_cmd, route_cmd)
 
     cli.add_command(route_cmd.route)
     cli.add_command(plan_cmd.plan)
     cli.add_command(check_cmd.check)
     cli.add_command(export_cmd.export)
     cli.add_command(plot_cmd.plot)
+    cli.add_command(batch_cmd.batch)
     cli.add_command(replay_cmd.replay)
     cli.add_command(report_cmd.report)
 

@@ -1,0 +1,193 @@
+"""The output folder of a batch: each road's files and manifest, then the tables and layers.
+
+Layout (``plan``; ``check`` writes ``checks/`` instead of ``profiles/``)::
+
+    OUTDIR/batch.json                 what wrote the folder (tool, command)
+    OUTDIR/profiles/<id>.csv          the road's profile, byte-identical to ``curvespeed plan``'s
+    OUTDIR/profiles/<id>.meta.json    its sidecar
+    OUTDIR/profiles/<id>.batch.json   its manifest: input digest, each file's SHA-256, its
+                                      summary row and curves (written last)
+    OUTDIR/summary.csv, failures.csv, curves.geojson, curves.gpkg
+
+A road's files are written together (temporary files in the folder, renamed into place) and its
+manifest after them, so a manifest means the files are whole. A rerun reuses a road whose
+manifest's digest matches the road and settings and whose files still have the recorded hashes;
+everything else is computed again. The folder must be new, empty, or one a batch of the same
+command wrote: nothing else in it is ever replaced.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+import re
+from pathlib import Path
+
+from .. import __version__
+from ..errors import BatchError
+from .task import RouteRecord
+
+MARKER = "batch.json"
+MANIFEST_SUFFIX = ".batch.json"
+FOLDERS = {"plan": "profiles", "check": "checks"}
+AGGREGATES = ("summary.csv", "failures.csv", "curves.geojson", "curves.gpkg")
+_UNSAFE = re.compile(r"[^A-Za-z0-9._-]")
+#: Longest route id used in a file name, characters.
+MAX_ID = 120
+
+
+def safe_id(route_id: str) -> str:
+    """The id as a file name: characters other than letters, digits, ``.``, ``_`` and ``-``
+    become ``_``; no leading dot; at most :data:`MAX_ID` characters."""
+    text = _UNSAFE.sub("_", route_id.strip())[:MAX_ID].lstrip(".")
+    return text or "_"
+
+
+def _sha256(data: bytes) -> str:
+    return hashlib.sha256(data).hexdigest()
+
+
+class BatchStore:
+    """Reads and writes one batch's output folder (module docstring)."""
+
+    def __init__(self, outdir: str | os.PathLike, command: str):
+        self.outdir = Path(outdir)
+        self.command = command
+        self.folder = self.outdir / FOLDERS[command]
+
+    def open(self) -> None:
+        """Create the folder, or accept one a batch of the same command wrote."""
+        self.check()
+        marker = self.outdir / MARKER
+        if not self.outdir.exists():
+            self.outdir.mkdir()
+        if not marker.exists():
+            marker.write_text(json.dumps({"tool": "curvespeed", "version": __version__,
+                                          "command": self.command}, indent=2) + "\n")
+        self.folder.mkdir(exist_ok=True)
+
+    def check(self) -> None:
+        """Raise :class:`BatchError` unless the folder is new, empty, or a batch of the same
+        command wrote it (nothing is created)."""
+        marker = self.outdir / MARKER
+        if self.outdir.exists():
+            if not self.outdir.is_dir():
+                raise BatchError(f"{self.outdir}: exists and is not a folder; give a folder "
+                                 "for the batch's outputs (-o)")
+            if marker.exists():
+                self._check_marker(marker)
+            elif any(self.outdir.iterdir()):
+                raise BatchError(f"{self.outdir}: the folder holds files a batch did not write "
+                                 f"(no {MARKER}); give a new or empty folder (-o)")
+        else:
+            parent = self.outdir.parent
+            if not parent.is_dir():
+                raise BatchError(f"{self.outdir}: folder {parent} does not exist; create it "
+                                 "first")
+
+    def _check_marker(self, marker: Path) -> None:
+        try:
+            found = json.loads(marker.read_text()).get("command")
+        except (OSError, ValueError, AttributeError):
+            found = None
+        if found != self.command:
+            raise BatchError(f"{self.outdir}: holds the outputs of 'batch {found}' "
+                             f"({marker}); give another folder for 'batch {self.command}'")
+
+    def manifest_path(self, route_id: str) -> Path:
+        return self.folder / (route_id + MANIFEST_SUFFIX)
+
+    def reusable(self, route_id: str, digest: str) -> RouteRecord | None:
+        """The stored record of a road whose inputs and files are unchanged, else None."""
+        try:
+            manifest = json.loads(self.manifest_path(route_id).read_text())
+            if manifest.get("input_sha256") != digest:
+                return None
+            for name, sha in manifest["files"].items():
+                if _sha256((self.folder / name).read_bytes()) != sha:
+                    return None
+            record = manifest["record"]
+        except (OSError, ValueError, KeyError, TypeError):
+            return None
+        return RouteRecord(route_id, record["source"], digest, True,
+                           summary=record["summary"], curves=tuple(record["curves"]),
+                           warnings=tuple(record["warnings"]), passed=record["passed"])
+
+    def save(self, record: RouteRecord) -> None:
+        """Write a processed road's files, then its manifest; for a failure, remove what an
+        earlier run left for that id (it no longer matches the inputs)."""
+        from ..io.atomic import OutputFiles
+
+        if not record.ok:
+            self.discard(record.route_id)
+            return
+        outputs = OutputFiles(force=True, signals=False)
+        for name in record.files:
+            outputs.add_output(self.folder / name, f"the batch output {name}")
+        with outputs:
+            for name, text in record.files.items():
+                outputs.write_text(self.folder / name, text)
+        manifest = {"input_sha256": record.input_sha256,
+                    "files": {name: _sha256(text.encode("utf-8"))
+                              for name, text in record.files.items()},
+                    "record": {"source": record.source, "summary": record.summary,
+                               "curves": list(record.curves), "warnings": list(record.warnings),
+                               "passed": record.passed}}
+        path = self.manifest_path(record.route_id)
+        outputs = OutputFiles(force=True, signals=False)
+        outputs.add_output(path, "a batch manifest")
+        with outputs:
+            outputs.write_text(path, json.dumps(manifest, allow_nan=True) + "\n")
+
+    def discard(self, route_id: str) -> None:
+        path = self.manifest_path(route_id)
+        try:
+            names = list(json.loads(path.read_text())["files"])
+        except (OSError, ValueError, KeyError, TypeError):
+            return
+        for name in names + [path.name]:
+            try:
+                (self.folder / name).unlink()
+            except FileNotFoundError:
+                pass
+
+    def stored_curves(self, route_id: str) -> list:
+        """The curves recorded in a road's manifest (for the layers, read back one road at a
+        time so they are never all in memory)."""
+        return json.loads(self.manifest_path(route_id).read_text())["record"]["curves"]
+
+    def write_aggregates(self, summaries: list[dict], failures: list[dict],
+                         curve_ids: list[str]) -> None:
+        """``summary.csv``, ``failures.csv`` and the curves layers, each renamed into place
+        whole; ``curve_ids`` are the processed roads in output order."""
+        import tempfile
+
+        from ..io.atomic import OutputFiles
+        from ..io.batch_tables import (CurvesGeoJSON, CurvesGeoPackage, failures_csv_text,
+                                       summary_csv_text)
+
+        tmp_json = tempfile.NamedTemporaryFile("w", dir=self.outdir, suffix=".geojson.tmp",
+                                               delete=False, encoding="utf-8", newline="")
+        tmp_gpkg = Path(tmp_json.name).with_suffix(".gpkg")
+        try:
+            with tmp_json as fh:
+                geojson, gpkg = CurvesGeoJSON(fh), CurvesGeoPackage(str(tmp_gpkg))
+                for route_id in curve_ids:
+                    for curve in self.stored_curves(route_id):
+                        geojson.add(curve)
+                        gpkg.add(curve)
+                geojson.close()
+                gpkg.close()
+            outputs = OutputFiles(force=True, signals=False)
+            for name in ("summary.csv", "failures.csv"):
+                outputs.add_output(self.outdir / name, f"the batch's {name}")
+            with outputs:
+                outputs.write_text(self.outdir / "summary.csv",
+                                   summary_csv_text(self.command, summaries))
+                outputs.write_text(self.outdir / "failures.csv", failures_csv_text(failures))
+            os.replace(tmp_json.name, self.outdir / "curves.geojson")
+            os.replace(tmp_gpkg, self.outdir / "curves.gpkg")
+        finally:
+            for leftover in (Path(tmp_json.name), tmp_gpkg):
+                leftover.unlink(missing_ok=True)
