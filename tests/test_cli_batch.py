@@ -122,6 +122,28 @@ def test_geopackage_and_folder_inputs(tmp_path, roads, dask_client):
     assert (out / "profiles" / "test_loop.csv").exists()
 
 
+def test_opendrive_roads_are_the_single_road_plans(tmp_path, dask_client):
+    """Every road of the invented proving ground that is not a junction's connecting road is
+    one task, planned byte for byte as ``plan ROAD.xodr --road ID`` plans it (its default lane,
+    the road's speed records and superelevation)."""
+    from curvespeed.io.opendrive import parse_opendrive
+
+    xodr = ROUTES / "proving_ground.xodr"
+    network_ = parse_opendrive(xodr.read_bytes(), str(xodr))
+    ids = [rid for rid, road in network_.roads.items() if road.junction in ("", "-1")]
+    assert len(ids) < len(network_.roads)          # the demo has a junction to leave out
+    out = tmp_path / "out"
+    result = batch("plan", xodr, "-o", out, *scheduler(dask_client))
+    assert result.exit_code == 0, result.output
+    assert [r["route_id"] for r in read_csv_rows(out / "summary.csv")] == \
+        [f"road-{rid}" for rid in ids]
+    for rid in ids:
+        single = tmp_path / f"single-{rid}.csv"
+        plan = CliRunner().invoke(cli, ["plan", str(xodr), "--road", rid, "-o", str(single)])
+        assert plan.exit_code == 0, plan.output
+        assert (out / "profiles" / f"road-{rid}.csv").read_bytes() == single.read_bytes()
+
+
 def test_own_local_cluster_by_default(tmp_path, roads):
     out = tmp_path / "out"
     result = batch("plan", network(tmp_path, roads[:1]), "-o", out, *FIELD_ARGS,
@@ -132,7 +154,8 @@ def test_own_local_cluster_by_default(tmp_path, roads):
 
 @pytest.mark.parametrize("case, message", [
     ("missing field", "has no field 'maxspeed'"),
-    ("opendrive", "OpenDRIVE input is not yet supported"),
+    ("opendrive without roads", "no <road> elements"),
+    ("fields on an OpenDRIVE file", "an OpenDRIVE file's roads carry their own speed records"),
     ("foreign folder", "holds files a batch did not write"),
     ("other command", "holds the outputs of 'batch check'"),
     ("output in input folder", "never writes among its inputs"),
@@ -146,9 +169,12 @@ def test_bad_invocations_exit_2_and_write_nothing(tmp_path, roads, case, message
     args = [net, "-o", out]
     if case == "missing field":
         args += ["--speed-field", "maxspeed"]
-    elif case == "opendrive":
+    elif case == "opendrive without roads":
         (tmp_path / "roads.xodr").write_text("<OpenDRIVE/>")
         args[0] = tmp_path / "roads.xodr"
+    elif case == "fields on an OpenDRIVE file":
+        args[0] = ROUTES / "proving_ground.xodr"
+        args += ["--id-field", "x"]
     elif case == "foreign folder":
         out.mkdir()
         (out / "notes.txt").write_text("mine")

@@ -28,9 +28,20 @@ def road_limits(spec, settings):
 
 
 def road_geometry(spec, settings):
+    """The road's geometry and the constraints it is planned or checked with: the settings'
+    own, over an OpenDRIVE road's speed records and superelevation (as ``plan ROAD.xodr``)."""
+    if spec.road is not None:
+        from ..io.opendrive_path import read_opendrive
+        from ..limits import RouteConstraints, overlay_constraints
+
+        g = settings.geometry
+        path = read_opendrive(spec.path, [spec.road], None, g.get("spacing_m", 1.0),
+                              g.get("closed"), g.get("use_elevation", True))
+        road = RouteConstraints(zones=path.zones, superelevation=path.superelevation)
+        return path.geometry, overlay_constraints(road, settings.constraints)
     from ..geometry import build_geometry
 
-    return build_geometry(spec.to_route(), **settings.geometry)
+    return build_geometry(spec.to_route(), **settings.geometry), settings.constraints
 
 
 def plan_road(spec, settings, digest: str):
@@ -42,7 +53,7 @@ def plan_road(spec, settings, digest: str):
     from ..solvers import QPBackend, SolverKind
 
     limits = road_limits(spec, settings)
-    geo = road_geometry(spec, settings)
+    geo, constraints = road_geometry(spec, settings)
     kind = SolverKind(settings.solver) if settings.solver else default_solver(limits)
     options = None
     if kind is SolverKind.CONVEX:
@@ -52,13 +63,13 @@ def plan_road(spec, settings, digest: str):
         # the thread count; DEVELOPERS.md, Solvers)
         extra = {"qp_backend": QPBackend(settings.qp_backend)} if settings.qp_backend else {}
         options = ConvexOptions(comfort_weight=settings.comfort_weight, threads=1, **extra)
-    profile = plan_profile(geo, limits, settings.constraints, kind, options, warn_limits=False)
-    meta = profile_meta(profile, limits, settings.constraints, spec.path)
+    profile = plan_profile(geo, limits, constraints, kind, options, warn_limits=False)
+    meta = profile_meta(profile, limits, constraints, spec.path)
     meta["route"]["file"] = spec.source
     meta["batch"] = {"route_id": spec.route_id, "input_sha256": digest}
     files = {f"{spec.route_id}.csv": profile_csv_text(profile),
              f"{spec.route_id}.meta.json": meta_json_text(meta)}
-    report = check_speeds(geo, limits, settings.constraints, profile.speed_mps,
+    report = check_speeds(geo, limits, constraints, profile.speed_mps,
                           kind=SpeedKind.TRACE, speed_source="the planned profile",
                           settings=_curve_settings(settings))
     v = profile.speed_mps
@@ -76,15 +87,15 @@ def check_road(spec, settings, digest: str):
     from ..units import mps_to_kmh
 
     limits = road_limits(spec, settings)
-    geo = road_geometry(spec, settings)
+    geo, constraints = road_geometry(spec, settings)
     if spec.speed_mps is not None:
         v = spec.speed_mps
         speeds, kind = [v] * geo.n_nodes, SpeedKind.CONSTANT
         label = f"constant {mps_to_kmh(v):g} km/h ({v:.2f} m/s) from the road's speed field"
     else:
-        speeds, kind = zone_speeds_mps(geo, limits, settings.constraints), SpeedKind.ZONES
+        speeds, kind = zone_speeds_mps(geo, limits, constraints), SpeedKind.ZONES
         label = f"top speed {limits.max_speed_mps:g} m/s of {settings.origin}"
-    report = check_speeds(geo, limits, settings.constraints, speeds, kind=kind,
+    report = check_speeds(geo, limits, constraints, speeds, kind=kind,
                           speed_source=label, design_speed_kmh=settings.design_speed_kmh,
                           e_max=settings.e_max, settings=_curve_settings(settings))
     files = {f"{spec.route_id}.json": check_json_text(report, spec.source),

@@ -11,8 +11,12 @@ Input kinds (:func:`input_kind`, chosen from the path):
 * a folder: every route file in it (``.csv``, ``.geojson``, ``.json``, ``.gpx``; not its
   sub-folders), in name order, each read by :func:`curvespeed.io.read_route` when its task runs.
   The route id is the file name without its extension.
-* OpenDRIVE (``.xodr``): recognised and refused for now, with a clear message
-  (:data:`NOT_YET`); the reader plugs in at :func:`iter_specs`.
+* an ASAM OpenDRIVE file (``.xodr``): every road that is not a connecting road inside a
+  junction is one task, driven in its default lane (the first driving lane on the side its
+  traffic rule drives on) along its reference line's direction, with the road's own speed records
+  and superelevation under the command's, as ``plan ROAD.xodr --road ID`` does. The route id is
+  ``road-<id>``. The file is parsed once up front (a broken file is refused before any work) and
+  again by each task.
 
 A road that cannot be used (no geometry, another geometry type, an empty attribute) does not stop
 the reading: its spec carries the reason in ``problem`` and the batch records it as a failure.
@@ -34,8 +38,7 @@ from . import ROUTE_EXTENSIONS
 #: Features read from a layer at a time.
 CHUNK_FEATURES = 256
 #: Input kinds recognised but not read yet, with what to do instead.
-NOT_YET = {"opendrive": "OpenDRIVE input is not yet supported by 'batch'; export the roads' "
-                        "reference lines as GeoJSON LineStrings or route files in a folder"}
+NOT_YET: dict[str, str] = {}
 _LAYER_EXTENSIONS = {".geojson": "geojson", ".json": "geojson", ".gpkg": "gpkg",
                      ".xodr": "opendrive"}
 
@@ -75,13 +78,16 @@ class RouteSpec:
     friction: float | None = None
     name: str | None = None
     problem: str | None = field(default=None, compare=False)
+    road: str | None = None
 
     def content(self) -> bytes:
-        """The bytes the road's result depends on (the file's, or the positions')."""
+        """The bytes the road's result depends on (the file's and the road's id, or the
+        positions')."""
         if self.path is not None:
             from ._common import read_bytes
 
-            return read_bytes(Path(self.path), self.path)
+            road = b"" if self.road is None else f"\0road {self.road}".encode()
+            return read_bytes(Path(self.path), self.path) + road
         return b"" if self.lonlat is None else np.ascontiguousarray(self.lonlat).tobytes()
 
     def to_route(self):
@@ -138,6 +144,8 @@ def count_roads(path: str | os.PathLike, layer: str | None = None) -> int:
     kind = input_kind(path)
     if kind == "folder":
         return len(_folder_files(Path(path)))
+    if kind == "opendrive":
+        return len(_opendrive_roads(path))
     import pyogrio
 
     return int(_layer_info(path, layer, pyogrio)["features"])
@@ -152,7 +160,7 @@ def iter_specs(paths, fields: FieldMap, layer: str | None = None) -> Iterator[Ro
     order = 0
     for path in paths:
         kind = input_kind(path)
-        reader = _folder_specs if kind == "folder" else _layer_specs
+        reader = {"folder": _folder_specs, "opendrive": _opendrive_specs}.get(kind, _layer_specs)
         for spec in reader(path, fields, layer, order, prefix=len(paths) > 1):
             yield spec
             order += 1
@@ -170,6 +178,13 @@ def check_inputs(paths, fields: FieldMap, layer: str | None = None) -> int:
                                  f"--id-field, --speed-field and --friction-field do not apply; "
                                  "leave them out (the file names are the route ids)")
             total += len(_folder_files(Path(path)))
+            continue
+        if kind == "opendrive":
+            if fields.used():
+                raise BatchError(f"{path}: an OpenDRIVE file's roads carry their own speed "
+                                 "records, so --id-field, --speed-field and --friction-field do "
+                                 "not apply; leave them out (the road ids are the route ids)")
+            total += len(_opendrive_roads(path))
             continue
         import pyogrio
 
@@ -194,6 +209,28 @@ def _folder_files(folder: Path) -> list[Path]:
 def _folder_specs(path, fields, layer, order, prefix) -> Iterator[RouteSpec]:
     for i, file in enumerate(_folder_files(Path(path))):
         yield RouteSpec(route_id=file.stem, source=str(file), order=order + i, path=str(file))
+
+
+# -- OpenDRIVE ------------------------------------------------------------------------------------
+
+def _opendrive_roads(path) -> list[str]:
+    """Ids of the file's roads that are not connecting roads inside a junction, in file order;
+    the file's own errors (with their line) propagate as they do for ``plan``."""
+    from ._common import check_text, read_bytes
+    from .opendrive import parse_opendrive
+
+    data = read_bytes(Path(path), str(path))
+    check_text(data, str(path))
+    network = parse_opendrive(data, str(path))
+    return [rid for rid, road in network.roads.items() if road.junction in ("", "-1")]
+
+
+def _opendrive_specs(path, fields, layer, order, prefix) -> Iterator[RouteSpec]:
+    stem = Path(path).stem
+    for i, rid in enumerate(_opendrive_roads(path)):
+        route_id = f"{stem}-road-{rid}" if prefix else f"road-{rid}"
+        yield RouteSpec(route_id=route_id, source=f"{path}, road {rid}", order=order + i,
+                        path=str(path), road=rid)
 
 
 # -- layers --------------------------------------------------------------------------------------
