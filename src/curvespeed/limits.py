@@ -152,17 +152,57 @@ PHYSICAL_RANGES = {
 MAX_SPEED_MPS = PHYSICAL_RANGES["max_speed_mps"][1]
 
 #: Power over mass below this, W/kg, is most likely a power in kW under the W key (a loaded
-#: truck has about 5 W/kg, a passenger car 30-150 W/kg): warned about, not refused.
+#: truck has about 5 W/kg, a passenger car 30-150 W/kg, common practice): warned about, not
+#: refused.
 MIN_PLAUSIBLE_POWER_WPKG = 1.0
 
-#: A top speed above this, m/s (360 km/h, about the fastest scheduled trains), is most likely a
-#: value in km/h under the m/s key: warned about, not refused.
-MAX_PLAUSIBLE_SPEED_MPS = 100.0
+#: A top speed above this, m/s (252 km/h, beyond the top speed of nearly every road vehicle,
+#: common practice), is most likely a value in km/h under the m/s key: warned about, not
+#: refused (a proving-ground run that fast still plans).
+MAX_PLAUSIBLE_SPEED_MPS = 70.0
+
+#: A lateral comfort cap below this, m/s^2, is most likely a value in g (0.3 g = 2.9 m/s^2):
+#: comfort criteria sit at 1-4 m/s^2 (about 2-3 m/s^2 for passenger cars, common practice).
+MIN_PLAUSIBLE_LATERAL_MPS2 = 1.0
+
+#: A deceleration cap below this, m/s^2, is most likely a value in g: even a train's service
+#: braking is about 0.5-1 m/s^2 (common practice).
+MIN_PLAUSIBLE_DECEL_MPS2 = 0.5
+
+
+def _unit_slips(limits: Limits) -> list[str]:
+    """Each limit whose value looks like another unit, said with the unit it looks like and
+    the value it would then be in ours."""
+    g = limits.gravity_mps2
+    found = []
+    if limits.power_per_mass_wpkg < MIN_PLAUSIBLE_POWER_WPKG:
+        found.append(
+            f"max_power_w = {limits.max_power_w:g} W for mass_kg = {limits.mass_kg:g} is "
+            f"{limits.power_per_mass_wpkg:.3g} W/kg, less than a loaded truck (about 5 W/kg): "
+            f"the vehicle crawls up every grade; if the power is {limits.max_power_w:g} kW, "
+            f"that is {limits.max_power_w * 1000.0:g} W")
+    v = limits.max_speed_mps
+    if v > MAX_PLAUSIBLE_SPEED_MPS:
+        found.append(
+            f"max_speed_mps = {v:g} m/s is {mps_to_kmh(v):.0f} km/h, faster than nearly every "
+            f"road vehicle; if the value is {v:g} km/h, that is {v / 3.6:.2f} m/s (divide it "
+            "by 3.6)")
+    for name, low, what in (("max_lateral_accel_mps2", MIN_PLAUSIBLE_LATERAL_MPS2,
+                             "gentler than any lateral comfort criterion (about 2-3 m/s^2 "
+                             "for passenger cars)"),
+                            ("max_decel_mps2", MIN_PLAUSIBLE_DECEL_MPS2,
+                             "gentler than a train's service braking (about 0.5-1 m/s^2)")):
+        a = getattr(limits, name)
+        if a < low:
+            found.append(
+                f"{name} = {a:g} m/s^2 is {a / g:.3g} g, {what}; if the value is {a:g} g, "
+                f"that is {a * g:.2f} m/s^2 (multiply it by {g:g})")
+    return found
 
 
 def validate_limits(limits: Limits, where: str = "limits", warn: bool = True) -> Limits:
-    """Check values; raise :class:`LimitsError`, or warn when comfort exceeds grip or the top
-    speed looks like km/h.
+    """Check values; raise :class:`LimitsError`, or warn when comfort exceeds grip or a value
+    looks like another unit (a top speed in km/h, a lateral or braking cap in g, a power in kW).
 
     ``where`` names the origin (a file, "command line") for messages. ``warn=False`` checks
     without warning, for a caller that validates limits someone already validated (and warned
@@ -191,17 +231,8 @@ def validate_limits(limits: Limits, where: str = "limits", warn: bool = True) ->
                           "rho Cd A v^2 / (2 m))")
     if not warn:
         return limits
-    if limits.power_per_mass_wpkg < MIN_PLAUSIBLE_POWER_WPKG:
-        warnings.warn(
-            f"{where}: max_power_w = {limits.max_power_w:g} W for mass_kg = {limits.mass_kg:g} is "
-            f"{limits.power_per_mass_wpkg:.3g} W/kg, less than a loaded truck (about 5 W/kg): "
-            "the vehicle crawls up every grade; if the power is in kW, multiply by 1000",
-            CurvespeedWarning, stacklevel=2)
-    if limits.max_speed_mps > MAX_PLAUSIBLE_SPEED_MPS:
-        warnings.warn(
-            f"{where}: max_speed_mps = {limits.max_speed_mps:g} m/s is "
-            f"{mps_to_kmh(limits.max_speed_mps):.0f} km/h; if the value is in km/h, divide it "
-            f"by 3.6", CurvespeedWarning, stacklevel=2)
+    for slip in _unit_slips(limits):
+        warnings.warn(f"{where}: {slip}", CurvespeedWarning, stacklevel=2)
     g = limits.gravity_mps2
     checks = (("max_lateral_accel_mps2", limits.mu_lat * g, "lateral"),
               ("max_accel_mps2", limits.mu_long * g, "longitudinal"),
@@ -224,6 +255,22 @@ class SpeedZone:
     end_m: float
     max_speed_mps: float
     origin: str = ""
+
+
+def warn_zones_above_top_speed(zones, limits: Limits) -> None:
+    """Warn about each speed zone faster than the top speed: it never binds, and its speed is
+    most likely in km/h (the warning says what it is in m/s then). For the user's zones only:
+    a road's own speed records may lie above a slow vehicle's top speed."""
+    top = limits.max_speed_mps
+    for z in zones:
+        if z.max_speed_mps > top:
+            here = f"{z.origin}: " if z.origin else ""
+            warnings.warn(
+                f"{here}speed zone {z.start_m:g}..{z.end_m:g} m: max speed "
+                f"{z.max_speed_mps:g} m/s ({mps_to_kmh(z.max_speed_mps):.0f} km/h) is above "
+                f"the top speed max_speed_mps = {top:g} m/s, so it never binds; if the value "
+                f"is {z.max_speed_mps:g} km/h, that is {z.max_speed_mps / 3.6:.2f} m/s (divide "
+                "it by 3.6)", CurvespeedWarning, stacklevel=2)
 
 
 @dataclass(frozen=True)

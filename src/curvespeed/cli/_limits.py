@@ -86,7 +86,7 @@ def resolve_limits(limits_file, overrides: dict, zones, stops, superelevations,
                    start_speed, end_speed):
     """Limits and constraints from the file (or defaults) with command-line overrides on top."""
     from ..limits import (DEFAULT_LIMITS, RouteConstraints, SpeedZone, Stop, Superelevation,
-                          validate_limits)
+                          validate_limits, warn_zones_above_top_speed)
 
     if limits_file:
         from ..io.limits_toml import read_limits
@@ -110,7 +110,9 @@ def resolve_limits(limits_file, overrides: dict, zones, stops, superelevations,
                              _parse_ranges(superelevations, 3, "a superelevation range",
                                            "START_M:END_M:RATE", "--superelevation")),
         start_speed_mps=start_speed, end_speed_mps=end_speed)
-    return limits, constraints.merged(extra), origin
+    constraints = constraints.merged(extra)
+    warn_zones_above_top_speed(constraints.zones, limits)
+    return limits, constraints, origin
 
 
 def limits_and_geometry(route_file, limits_file, overrides: dict, constraint_args: tuple,
