@@ -62,24 +62,40 @@ def limit_override_options(func):
     return func
 
 
-def constraint_options(func):
-    options = [
+def _add(func, options):
+    for option in reversed(options):
+        func = option(func)
+    return func
+
+
+def zone_options(func):
+    """Speed zones and superelevation: what ``plan`` and ``check`` both use."""
+    return _add(func, [
         click.option("--zone", "zones", multiple=True, metavar="START_M:END_M:MAX_SPEED_MPS",
                      help="Speed cap over a station range (repeatable)."),
-        click.option("--stop", "stops", multiple=True, type=FINITE, metavar="STATION_M",
-                     help="Come to rest at this station (repeatable)."),
         click.option("--superelevation", "superelevations", multiple=True,
                      metavar="START_M:END_M:RATE",
                      help="Cross-slope toward the curve's inside over a station range, as a "
                           "fraction (0.06 = 6 %) (repeatable)."),
+    ])
+
+
+def stop_and_end_options(func):
+    """Stops and the speeds at the ends: what a planning command uses (``check`` judges speeds
+    it is given and has no use for them)."""
+    return _add(func, [
+        click.option("--stop", "stops", multiple=True, type=FINITE, metavar="STATION_M",
+                     help="Come to rest at this station (repeatable)."),
         click.option("--start-speed", type=FINITE, default=None, metavar="MPS",
                      help="Speed at the start of an open route, m/s (default 0)."),
         click.option("--end-speed", type=FINITE, default=None, metavar="MPS",
                      help="Speed at the end of an open route, m/s (default 0)."),
-    ]
-    for option in reversed(options):
-        func = option(func)
-    return func
+    ])
+
+
+def constraint_options(func):
+    """Every route constraint on the command line: zones, superelevation, stops, end speeds."""
+    return zone_options(stop_and_end_options(func))
 
 
 def resolve_limits(limits_file, overrides: dict, zones, stops, superelevations,
