@@ -275,10 +275,34 @@ def warn_zones_above_top_speed(zones, limits: Limits) -> None:
 
 @dataclass(frozen=True)
 class Stop:
-    """A point where the vehicle must be at rest, station in metres."""
+    """A point where the vehicle must be at rest, station in metres.
+
+    ``dwell_s`` is how long the vehicle stays there, s (None: the export's default);
+    ``name`` a label of the user's; ``snap_distance_m`` how far from the route the position
+    it was given by lay, m (None for a stop given by station).
+    """
 
     station_m: float
     origin: str = ""
+    dwell_s: float | None = None
+    name: str = ""
+    snap_distance_m: float | None = None
+
+
+@dataclass(frozen=True)
+class StopPosition:
+    """A stop given by position, not yet on the route: ``x_m``/``y_m`` in the route's metric
+    frame, or ``lat_deg``/``lon_deg`` (WGS84) for a geographic route.
+    :func:`curvespeed.placement.place_stops` snaps it to the route and makes it a :class:`Stop`.
+    """
+
+    x_m: float | None = None
+    y_m: float | None = None
+    lat_deg: float | None = None
+    lon_deg: float | None = None
+    origin: str = ""
+    dwell_s: float | None = None
+    name: str = ""
 
 
 def stop_node(station_m: float, ds: float, n_nodes: int, closed: bool) -> int:
@@ -316,6 +340,7 @@ class RouteConstraints:
     superelevation: tuple[Superelevation, ...] = ()
     start_speed_mps: float | None = None
     end_speed_mps: float | None = None
+    stop_positions: tuple[StopPosition, ...] = ()
 
     def merged(self, other: "RouteConstraints") -> "RouteConstraints":
         """Constraints of both; ``other``'s start/end speeds win where set."""
@@ -327,6 +352,7 @@ class RouteConstraints:
                              else self.start_speed_mps),
             end_speed_mps=(other.end_speed_mps if other.end_speed_mps is not None
                            else self.end_speed_mps),
+            stop_positions=self.stop_positions + other.stop_positions,
         )
 
     def to_dict(self) -> dict:
@@ -340,7 +366,8 @@ def overlay_constraints(road: RouteConstraints, user: RouteConstraints) -> Route
     return RouteConstraints(
         zones=_cut(road.zones, user.zones) + user.zones, stops=user.stops,
         superelevation=_cut(road.superelevation, user.superelevation) + user.superelevation,
-        start_speed_mps=user.start_speed_mps, end_speed_mps=user.end_speed_mps)
+        start_speed_mps=user.start_speed_mps, end_speed_mps=user.end_speed_mps,
+        stop_positions=user.stop_positions)
 
 
 def _cut(items: tuple, covers: tuple) -> tuple:
@@ -397,6 +424,9 @@ def validate_constraints(rc: RouteConstraints, length_m: float, closed: bool) ->
             station, last = format_apart(s.station_m, length_m)
             raise LimitsError(f"{here(s)}stop at station {station} m lies outside the route "
                               f"(0..{last} m); check its station against the route summary")
+        if s.dwell_s is not None and not (math.isfinite(s.dwell_s) and s.dwell_s >= 0.0):
+            raise LimitsError(f"{here(s)}stop at station {s.station_m:g} m: dwell_s must be zero "
+                              f"or a positive number of seconds, got {s.dwell_s:g}")
     for e in rc.superelevation:
         if not (math.isfinite(e.start_m) and math.isfinite(e.end_m) and e.end_m > e.start_m):
             raise LimitsError(f"{here(e)}superelevation {e.start_m:g}..{e.end_m:g} m: end must be "

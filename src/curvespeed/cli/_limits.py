@@ -86,6 +86,12 @@ def stop_and_end_options(func):
     return _add(func, [
         click.option("--stop", "stops", multiple=True, type=FINITE, metavar="STATION_M",
                      help="Come to rest at this station (repeatable)."),
+        click.option("--stop-xy", "stops_xy", multiple=True, metavar="X_M:Y_M",
+                     help="Come to rest at the route's point nearest this position in the "
+                          "route's metric frame (at most 25 m off; repeatable)."),
+        click.option("--stop-latlon", "stops_latlon", multiple=True, metavar="LAT:LON",
+                     help="Come to rest at the route's point nearest this WGS84 position, "
+                          "decimal degrees (geographic routes; at most 25 m off; repeatable)."),
         click.option("--start-speed", type=FINITE, default=None, metavar="MPS",
                      help="Speed at the start of an open route, m/s (default 0)."),
         click.option("--end-speed", type=FINITE, default=None, metavar="MPS",
@@ -98,9 +104,30 @@ def constraint_options(func):
     return zone_options(stop_and_end_options(func))
 
 
+def stop_positions(stops_xy, stops_latlon) -> tuple:
+    """``--stop-xy`` and ``--stop-latlon`` as stops by position (placed once the route is
+    read)."""
+    from ..limits import StopPosition
+
+    xy = _parse_ranges(stops_xy, 2, "a position", "X_M:Y_M (e.g. 120.5:-40)", "--stop-xy")
+    ll = _parse_ranges(stops_latlon, 2, "a position", "LAT:LON in decimal degrees (e.g. "
+                       "48.1375:11.5755)", "--stop-latlon")
+    for (lat, lon), text in zip(ll, stops_latlon):
+        if not (-90.0 <= lat <= 90.0 and -180.0 <= lon <= 360.0):
+            raise click.BadParameter(f"'{text}' is not a position on Earth (lat -90..90, lon "
+                                     "-180..180); check the order (lat first)",
+                                     param_hint="'--stop-latlon'")
+    return (tuple(StopPosition(x_m=x, y_m=y, origin=f"--stop-xy {t}")
+                  for (x, y), t in zip(xy, stops_xy))
+            + tuple(StopPosition(lat_deg=a, lon_deg=b, origin=f"--stop-latlon {t}")
+                    for (a, b), t in zip(ll, stops_latlon)))
+
+
 def resolve_limits(limits_file, overrides: dict, zones, stops, superelevations,
-                   start_speed, end_speed):
-    """Limits and constraints from the file (or defaults) with command-line overrides on top."""
+                   start_speed, end_speed, positions: tuple = ()):
+    """Limits and constraints from the file (or defaults) with command-line overrides on top.
+
+    ``positions`` are stops by position from the command line (:func:`stop_positions`)."""
     from ..limits import (DEFAULT_LIMITS, RouteConstraints, SpeedZone, Stop, Superelevation,
                           validate_limits, warn_zones_above_top_speed)
 
@@ -125,25 +152,32 @@ def resolve_limits(limits_file, overrides: dict, zones, stops, superelevations,
         superelevation=tuple(Superelevation(*e, origin="--superelevation") for e in
                              _parse_ranges(superelevations, 3, "a superelevation range",
                                            "START_M:END_M:RATE", "--superelevation")),
-        start_speed_mps=start_speed, end_speed_mps=end_speed)
+        start_speed_mps=start_speed, end_speed_mps=end_speed, stop_positions=positions)
     constraints = constraints.merged(extra)
     warn_zones_above_top_speed(constraints.zones, limits)
     return limits, constraints, origin
 
 
 def limits_and_geometry(route_file, limits_file, overrides: dict, constraint_args: tuple,
-                        geometry_args: tuple):
+                        geometry_args: tuple, positions: tuple = (), place: bool = True):
     """Limits, constraints and their origin, and the resampled route, checked against each other.
 
     ``constraint_args`` are the values of :func:`constraint_options` (zones, stops,
     superelevations, start speed, end speed), ``geometry_args`` those of
     :func:`~curvespeed.cli._common.geometry_options` (spacing, position noise, elevation noise,
-    closed). Returns ``(limits, constraints, origin, geometry)``.
+    closed). ``positions`` are stops by position from the command line; with ``place`` every
+    stop by position (file and command line) is snapped to the route (``check``, which has no
+    use for stops, leaves them). Returns ``(limits, constraints, origin, geometry)``.
     """
     from ._common import load_geometry
 
-    limits, constraints, origin = resolve_limits(limits_file, overrides, *constraint_args)
+    limits, constraints, origin = resolve_limits(limits_file, overrides, *constraint_args,
+                                                 positions=positions)
     source, geometry = load_geometry(route_file, *geometry_args)
+    if place:
+        from ..placement import place_stops
+
+        constraints = place_stops(constraints, geometry)
     road_zones = getattr(source, "zones", None)
     if road_zones is not None:            # an OpenDRIVE path: the road's own data, under the user's
         from ..limits import RouteConstraints, overlay_constraints

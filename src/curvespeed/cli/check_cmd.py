@@ -91,7 +91,7 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
             route_file, limits_file, overrides,
             (zones, (), superelevations, None, None),
             (spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
-             part, drives, all_tracks, roads, lane))
+             part, drives, all_tracks, roads, lane), place=False)
         report = _check(geo, limits, constraints, origin, speeds_file, speed_kmh, trace_noise_m,
                         design_speed_kmh, e_max, curve_radius_m)
         if json_file:

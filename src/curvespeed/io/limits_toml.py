@@ -24,7 +24,10 @@ Layout (SI units, unit suffix in every key)::
     max_speed_mps = 8.3
 
     [[stop]]                      # optional, repeatable: at rest at a station
-    station_m = 640.0
+    station_m = 640.0             # or lat = ..., lon = ... (degrees, WGS84), or x_m, y_m:
+                                  # snapped to the route (at most 25 m away)
+    dwell_s = 30.0                # optional: seconds held there (else export's --dwell)
+    name = "depot"                # optional
 
     [[superelevation]]            # optional, repeatable: cross-slope toward the curve's inside
     start_m = 1200.0
@@ -41,16 +44,19 @@ import tomllib
 from pathlib import Path
 
 from ..errors import LimitsError
-from ..limits import DEFAULT_LIMITS, Limits, RouteConstraints, SpeedZone, Stop, Superelevation
+from ..limits import (DEFAULT_LIMITS, Limits, RouteConstraints, SpeedZone, Stop, StopPosition,
+                      Superelevation)
 from ._common import check_nesting, finite_value, read_text, show_value, value_problem
 
 _LIMIT_KEYS = tuple(f.name for f in dataclasses.fields(Limits))
 _ROUTE_KEYS = ("start_speed_mps", "end_speed_mps")
 _TABLES = {
     "zone": ("start_m", "end_m", "max_speed_mps"),
-    "stop": ("station_m",),
     "superelevation": ("start_m", "end_m", "rate"),
 }
+#: The ways a [[stop]] says where it is (exactly one), and its optional keys.
+_STOP_PLACES = (("station_m",), ("lat", "lon"), ("x_m", "y_m"))
+_STOP_KEYS = ("station_m", "lat", "lon", "x_m", "y_m", "dwell_s", "name")
 _UNIT_HINTS = {"kmh": "km/h: divide by 3.6 and use the _mps key",
                "kph": "km/h: divide by 3.6 and use the _mps key",
                "mph": "mph: multiply by 0.44704 and use the _mps key",
@@ -98,7 +104,7 @@ def read_limits(path: str | Path) -> tuple[Limits, RouteConstraints]:
                           "nests at most three levels ([[zone]] entries)") from None
     check_nesting(data, str(path), LimitsError, "TOML")
 
-    known_tables = ("limits", "route") + tuple(_TABLES)
+    known_tables = ("limits", "route", "zone", "stop", "superelevation")
     if "limits" not in data or not isinstance(data["limits"], dict):
         stray = [k for k in data if k in _LIMIT_KEYS]
         hint = (f" (found {', '.join(stray)} at top level: put it under [limits])" if stray
@@ -145,9 +151,53 @@ def read_limits(path: str | Path) -> tuple[Limits, RouteConstraints]:
                                   f"[[{name}]] needs {', '.join(keys)}")
             nums = [_number(path, label, k, entry[k]) for k in keys]
             origin = f"{path} [[{name}]] #{n}"
-            cls = {"zone": SpeedZone, "stop": Stop, "superelevation": Superelevation}[name]
+            cls = {"zone": SpeedZone, "superelevation": Superelevation}[name]
             items[name].append(cls(*nums, origin=origin))
 
-    constraints = RouteConstraints(zones=tuple(items["zone"]), stops=tuple(items["stop"]),
-                                   superelevation=tuple(items["superelevation"]), **ends)
+    stops, positions = _read_stops(path, data.get("stop", []))
+    constraints = RouteConstraints(zones=tuple(items["zone"]), stops=stops,
+                                   superelevation=tuple(items["superelevation"]), **ends,
+                                   stop_positions=positions)
     return limits, constraints
+
+
+def _read_stops(path: Path, entries) -> tuple[tuple, tuple]:
+    """The [[stop]] entries: stops by station, and stops by position (placed on the route
+    later, once it is read)."""
+    if isinstance(entries, dict) or not isinstance(entries, list):
+        raise LimitsError(f"{path}: 'stop' must be written as [[stop]] entries")
+    stops, positions = [], []
+    for n, entry in enumerate(entries, start=1):
+        label, origin = f"stop #{n}", f"{path} [[stop]] #{n}"
+        if not isinstance(entry, dict):
+            raise LimitsError(f"{path}: 'stop' entry #{n} is {show_value(entry)}, not a table; "
+                              "write each as a [[stop]] block with station_m (or lat and lon, "
+                              "or x_m and y_m)")
+        for key in entry:
+            if key not in _STOP_KEYS:
+                raise _unknown_key(path, label, key, _STOP_KEYS)
+        given = [keys for keys in _STOP_PLACES if any(k in entry for k in keys)]
+        if len(given) != 1 or any(k not in entry for k in given[0]):
+            found = ", ".join(k for keys in _STOP_PLACES for k in keys if k in entry) or "none"
+            raise LimitsError(f"{path}: [[stop]] #{n} needs exactly one place: station_m, or "
+                              f"lat and lon (degrees), or x_m and y_m (found: {found})")
+        nums = {k: _number(path, label, k, entry[k]) for k in given[0]}
+        dwell = _number(path, label, "dwell_s", entry["dwell_s"]) if "dwell_s" in entry else None
+        if dwell is not None and dwell < 0:
+            raise LimitsError(f"{path}: [{label}] dwell_s = {dwell:g}: give zero or a positive "
+                              "number of seconds")
+        name = entry.get("name", "")
+        if not isinstance(name, str):
+            raise LimitsError(f"{path}: [{label}] name is {show_value(name)}; give it as a "
+                              "quoted string, e.g. name = \"depot\"")
+        if "lat" in nums and not (-90.0 <= nums["lat"] <= 90.0 and -180.0 <= nums["lon"] <= 360.0):
+            raise LimitsError(f"{path}: [{label}] lat {nums['lat']:g}, lon {nums['lon']:g} is not a "
+                              "position on Earth (lat -90..90, lon -180..180 degrees); check the "
+                              "order (lat first) and the unit (decimal degrees)")
+        if "station_m" in nums:
+            stops.append(Stop(nums["station_m"], origin=origin, dwell_s=dwell, name=name))
+        else:
+            positions.append(StopPosition(x_m=nums.get("x_m"), y_m=nums.get("y_m"),
+                                          lat_deg=nums.get("lat"), lon_deg=nums.get("lon"),
+                                          origin=origin, dwell_s=dwell, name=name))
+    return tuple(stops), tuple(positions)
