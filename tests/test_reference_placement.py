@@ -138,3 +138,25 @@ def test_xy_stops_on_a_circle_snap_along_the_radius(tmp_path):
     # 2 pi R to the displayed 0.1 m: 1 cm over 157 m.
     assert second["station_m"] - first["station_m"] == pytest.approx(100.0 * math.pi / 2,
                                                                        abs=0.01)
+
+
+def test_latlon_zone_runs_between_the_stations_the_geodesic_gives(tmp_path):
+    route = geodesic_route(tmp_path)
+    (a_lat, a_lon), (b_lat, b_lon) = beside(200.0, 4.0), beside(500.0, -6.0)
+    limits = tmp_path / "limits.toml"
+    limits.write_text(f"[limits]\n[[zone]]\nstart_lat = {a_lat!r}\nstart_lon = {a_lon!r}\n"
+                      f"end_lat = {b_lat!r}\nend_lon = {b_lon!r}\nmax_speed_mps = 5\n")
+    out = tmp_path / "p.csv"
+    result = run("plan", route, "-l", limits, "-o", out)
+    assert result.exit_code == 0, result.output
+    (zone,) = json.loads(out.with_suffix(".meta.json").read_text())["constraints"]["zones"]
+    # each end as for stops: station to 0.1 m (projection scale 1e-4 over 1 km), the larger
+    # geodesic distance (6 m) to 1 cm
+    assert zone["start_m"] == pytest.approx(200.0, abs=0.1)
+    assert zone["end_m"] == pytest.approx(500.0, abs=0.1)
+    assert zone["snap_distance_m"] == pytest.approx(6.0, abs=0.01)
+    assert "snapped to stations 200.0..500.0 m" in result.output
+    columns = read_table_csv(out).columns
+    inside = (columns["station_m"] >= zone["start_m"]) & (columns["station_m"] <= zone["end_m"])
+    # the zone binds: the planned speed keeps to 5 m/s inside it (the verifier's 1e-4)
+    assert columns["speed_mps"][inside].max() <= 5.0 * (1 + 1e-4)

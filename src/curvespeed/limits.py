@@ -249,11 +249,26 @@ def validate_limits(limits: Limits, where: str = "limits", warn: bool = True) ->
 
 @dataclass(frozen=True)
 class SpeedZone:
-    """A speed cap over a station range, metres and m/s."""
+    """A speed cap over a station range, metres and m/s. ``snap_distance_m``: for a zone given
+    by positions, the larger of its two ends' distances from the route, m (else None)."""
 
     start_m: float
     end_m: float
     max_speed_mps: float
+    origin: str = ""
+    snap_distance_m: float | None = None
+
+
+@dataclass(frozen=True)
+class ZonePosition:
+    """A speed zone given by the positions of its two ends, not yet on the route: ``start`` and
+    ``end`` are ``(x_m, y_m)`` in the route's metric frame or, with ``geographic``,
+    ``(lat_deg, lon_deg)``. :func:`curvespeed.placement.place_positions` snaps both ends."""
+
+    start: tuple[float, float]
+    end: tuple[float, float]
+    max_speed_mps: float
+    geographic: bool = False
     origin: str = ""
 
 
@@ -293,7 +308,7 @@ class Stop:
 class StopPosition:
     """A stop given by position, not yet on the route: ``x_m``/``y_m`` in the route's metric
     frame, or ``lat_deg``/``lon_deg`` (WGS84) for a geographic route.
-    :func:`curvespeed.placement.place_stops` snaps it to the route and makes it a :class:`Stop`.
+    :func:`curvespeed.placement.place_positions` snaps it to the route and makes it a :class:`Stop`.
     """
 
     x_m: float | None = None
@@ -341,6 +356,7 @@ class RouteConstraints:
     start_speed_mps: float | None = None
     end_speed_mps: float | None = None
     stop_positions: tuple[StopPosition, ...] = ()
+    zone_positions: tuple[ZonePosition, ...] = ()
 
     def merged(self, other: "RouteConstraints") -> "RouteConstraints":
         """Constraints of both; ``other``'s start/end speeds win where set."""
@@ -353,6 +369,7 @@ class RouteConstraints:
             end_speed_mps=(other.end_speed_mps if other.end_speed_mps is not None
                            else self.end_speed_mps),
             stop_positions=self.stop_positions + other.stop_positions,
+            zone_positions=self.zone_positions + other.zone_positions,
         )
 
     def to_dict(self) -> dict:
@@ -367,7 +384,7 @@ def overlay_constraints(road: RouteConstraints, user: RouteConstraints) -> Route
         zones=_cut(road.zones, user.zones) + user.zones, stops=user.stops,
         superelevation=_cut(road.superelevation, user.superelevation) + user.superelevation,
         start_speed_mps=user.start_speed_mps, end_speed_mps=user.end_speed_mps,
-        stop_positions=user.stop_positions)
+        stop_positions=user.stop_positions, zone_positions=user.zone_positions)
 
 
 def _cut(items: tuple, covers: tuple) -> tuple:

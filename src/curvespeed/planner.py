@@ -13,7 +13,7 @@ from .diagnose import standstill, underpowered
 from .errors import CurvespeedWarning, InfeasibleError, SolverError
 from .geometry import Geometry
 from .limits import Limits, RouteConstraints, validate_limits
-from .placement import place_stops
+from .placement import place_positions
 from .problem import build_problem
 from .profile import Profile
 from .solvers import SolverKind, solve
@@ -48,7 +48,7 @@ def plan_profile(geometry: Geometry, limits: Limits,
     and :class:`~curvespeed.errors.SolverError` when the verifier refuses the solver's answer.
     """
     validate_limits(limits, "limits", warn=warn_limits)
-    constraints = place_stops(constraints, geometry)      # stops given by position, if any
+    constraints = place_positions(constraints, geometry)    # stops and zones by position
     solver = solver or default_solver(limits)
     jerk = solver.enforces_jerk and limits.max_jerk_mps3 is not None
     problem = build_problem(geometry, limits, constraints, jerk_model=jerk)

@@ -12,7 +12,8 @@ import click
 
 from ._common import (EXIT_OK, EXIT_VIOLATIONS, FINITE, echo, geometry_options, handle_errors,
                       register_drives)
-from ._limits import limit_override_options, limits_and_geometry, zone_options
+from ._limits import (limit_override_options, limits_and_geometry, snapped_lines, zone_options,
+                      zone_positions)
 
 
 @click.command()
@@ -51,7 +52,8 @@ from ._limits import limit_override_options, limits_and_geometry, zone_options
 def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_speed_kmh, e_max,
           trace_noise_m, curve_radius_m, json_file, csv_file, report_file, force, spacing_m,
           position_noise_m, elevation_noise_m, use_elevation, closed, part,
-          drives, all_tracks, roads, lane, zones, superelevations, **overrides):
+          drives, all_tracks, roads, lane, zones, zones_xy, zones_latlon, superelevations,
+          **overrides):
     """Check speeds along ROUTE_FILE against friction, comfort and road-design criteria.
 
     Exit status 0: all within limits; 1: at least one violation; 2: bad input. The numbers
@@ -91,7 +93,10 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
             route_file, limits_file, overrides,
             (zones, (), superelevations, None, None),
             (spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
-             part, drives, all_tracks, roads, lane), place=False)
+             part, drives, all_tracks, roads, lane),
+            zone_positions(zones_xy, zones_latlon), place_stops=False)
+        for line in snapped_lines(constraints):
+            echo(line)
         report = _check(geo, limits, constraints, origin, speeds_file, speed_kmh, trace_noise_m,
                         design_speed_kmh, e_max, curve_radius_m)
         if json_file:

@@ -42,8 +42,8 @@ from ._limits import constraint_options, limit_override_options, limits_and_geom
 def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort_weight, plot_file,
          report_file, force,
          spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed, part,
-         drives, all_tracks, roads, lane, zones, stops, stops_xy, stops_latlon, superelevations,
-         start_speed, end_speed, **overrides):
+         drives, all_tracks, roads, lane, zones, zones_xy, zones_latlon, stops, stops_xy,
+         stops_latlon, superelevations, start_speed, end_speed, **overrides):
     """Plan the fastest speed profile along ROUTE_FILE within the limits.
 
     The profile is an engineering aid: speeds on public roads and advisory signs follow local
@@ -51,9 +51,9 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
     """
     from ..io.atomic import OutputFiles
     from ..io.meta_json import default_meta_path
-    from ._limits import stop_positions
+    from ._limits import snapped_lines, stop_positions, zone_positions
 
-    positions = stop_positions(stops_xy, stops_latlon)
+    positions = stop_positions(stops_xy, stops_latlon) + zone_positions(zones_xy, zones_latlon)
     if comfort_weight < 0:
         raise click.BadParameter("must be zero or positive", param_hint="--comfort-weight")
     outputs = OutputFiles(force)
@@ -81,7 +81,7 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
             (zones, stops, superelevations, start_speed, end_speed),
             (spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
              part, drives, all_tracks, roads, lane), positions)
-        for line in snapped_stops(constraints):
+        for line in snapped_lines(constraints):
             echo(line)
 
         from ..planner import plan_profile
@@ -112,18 +112,6 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
         echo(f"drew {plot_file}")
     if report_file:
         echo(f"wrote the report {report_file}")
-
-
-def snapped_stops(constraints) -> list[str]:
-    """One line per stop given by position: where it went on the route and how far it was."""
-    lines = []
-    for stop in constraints.stops:
-        if stop.snap_distance_m is None:
-            continue
-        name = f" '{stop.name}'" if stop.name else ""
-        lines.append(f"stop     {stop.origin}{name}: snapped to station {stop.station_m:.1f} m, "
-                     f"{stop.snap_distance_m:.2f} m from the route")
-    return lines
 
 
 def _figure_and_report(outputs, plot_file, report_file, route_file, limits_file, geo, limits,
