@@ -130,7 +130,7 @@ def test_a_power_in_kilowatts_under_the_watt_key_is_warned_about(tmp_path):
     out = tmp_path / "p.csv"
     result = run("plan", route, "--max-power", "110", "--mass", "1500", "-o", out)
     assert result.exit_code == 0, result.output
-    assert "if the power is in kW, multiply by 1000" in result.output
+    assert "if the power is 110 kW, that is 110000 W" in result.output
     v = read_table_csv(out).columns["speed_mps"]
     climb = 110.0 / (1500.0 * 9.80665 * np.sin(np.arctan(0.06)))
     assert v.max() <= climb * (1 + 1e-3)

@@ -40,7 +40,7 @@ def test_bundled_route_with_default_limits(name, tmp_path):
     out = tmp_path / "profile.csv"
     result = run(ROUTES / name, "-o", out)
     assert result.exit_code == 0, result.output
-    for word in ("time", "mean", "top", "curves where a lateral limit sets the speed"):
+    for word in ("time", "mean", "top", "curves where a lateral limit binds"):
         assert word in result.output
     header, cols = read_profile(out)
     assert tuple(header[:len(PROFILE_COLUMNS)]) == PROFILE_COLUMNS

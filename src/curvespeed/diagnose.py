@@ -20,6 +20,10 @@ from .problem import SpeedProblem
 #: Squared speed at which "at rest or nearly" is judged, m^2/s^2 ((1 mm/s)^2).
 _CRAWL_B = 1e-6
 
+#: A steady climbing speed below this, m/s (walking pace, 3.6 km/h), is too little power to
+#: plan with: a crawl that slow is a power in the wrong unit, not a vehicle.
+_WALKING_MPS = 1.0
+
 
 def undrivable_station(problem: SpeedProblem) -> str | None:
     """The first station where the vehicle can neither stand nor move forward, explained.
@@ -141,3 +145,30 @@ def standstill(problem: SpeedProblem, b: np.ndarray) -> str | None:
             f"{problem.station_m[k]:.1f} and {problem.station_m[k + 1]:.1f} m, so no profile "
             "gets past them; check the limits (units, drag and mass, the cross-slope) and the "
             "route there")
+
+
+def underpowered(problem: SpeedProblem) -> str | None:
+    """The power limit as the cause, when the vehicle cannot climb the route's steepest uphill
+    faster than walking pace (None otherwise).
+
+    On a grade the drive force P/v must carry the grade and rolling resistance, so the
+    steady climbing speed there is ``v = (P/m) / (g sin(theta) + Crr g cos(theta))`` (drag
+    is negligible at a crawl). A power that small (most likely in kW under the W key) leaves
+    no jerk-limited profile; the solver's own message would blame the jerk bound.
+    """
+    lim = problem.limits
+    p = lim.power_per_mass_wpkg
+    if not math.isfinite(p):
+        return None
+    res = problem.resistance(np.zeros(problem.n_nodes))
+    k = int(np.argmax(res))
+    if res[k] <= 0.0 or p / res[k] >= _WALKING_MPS:
+        return None
+    v = p / float(res[k])
+    grade = 100.0 * math.tan(math.asin(float(problem.sin_grade[k])))
+    return (f"{problem.source}: max_power_w = {lim.max_power_w:g} W for mass_kg = "
+            f"{lim.mass_kg:g} ({p:.3g} W/kg) climbs the {grade:+.1f} % grade at station "
+            f"{problem.station_m[k]:.1f} m at {v:.3g} m/s at most ({3.6 * v:.3g} km/h), "
+            f"slower than walking: the power is too small to plan with. If the power is "
+            f"{lim.max_power_w:g} kW, give {lim.max_power_w * 1000.0:g} W; otherwise check "
+            "mass_kg and the grades")

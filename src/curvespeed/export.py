@@ -440,9 +440,11 @@ class Trajectory:
     interval : float
         The requested time step (s) or station step (m).
     dwell_s : float
-        Time held at each stop, s.
+        Time held at each stop without a dwell of its own, s.
     stop_stations_m : ndarray
         Stations of the stops, metres.
+    stop_dwell_s : ndarray or None
+        Time held at each stop, s, in station order (None: ``dwell_s`` at every stop).
     planned_time_s : float
         Time along the route without dwells, s.
     total_time_s : float
@@ -471,6 +473,7 @@ class Trajectory:
     total_time_s: float
     name: str = "route"
     source: str = "profile"
+    stop_dwell_s: np.ndarray | None = None
 
     @property
     def n_samples(self) -> int:
@@ -503,15 +506,32 @@ def _check_dwell(dwell_s: float) -> float:
     return dwell_s
 
 
-def _node_schedule(sp: StationProfile, dwell_s: float) -> tuple[np.ndarray, np.ndarray,
-                                                               np.ndarray]:
-    """Arrival and departure time of every node, and a stop mask, with dwells included."""
+def stop_dwells(sp: StationProfile, dwell_s: float, stop_dwell_s=None) -> np.ndarray:
+    """Time held at each stop of ``sp`` (station order), s: ``stop_dwell_s`` (one per stop,
+    NaN for none of its own) where given, else ``dwell_s``."""
+    dwells = np.full(sp.stop_nodes.size, _check_dwell(dwell_s))
+    if stop_dwell_s is None:
+        return dwells
+    own = np.asarray(stop_dwell_s, dtype=float)
+    if own.shape != dwells.shape:
+        raise ValueError(f"{own.size} dwell(s) given for the profile's {dwells.size} stop(s)")
+    if np.any(own < 0.0) or np.any(np.isinf(own)):
+        raise ValueError("each stop's dwell must be zero or a positive number of seconds")
+    return np.where(np.isnan(own), dwells, own)
+
+
+def _node_schedule(sp: StationProfile, dwells: np.ndarray) -> tuple[np.ndarray, np.ndarray,
+                                                                   np.ndarray]:
+    """Arrival and departure time of every node, and a stop mask, with the stops' dwells
+    (:func:`stop_dwells`) included."""
     stop = np.zeros(sp.n_nodes, dtype=bool)
     stop[sp.stop_nodes] = True
+    hold = np.zeros(sp.n_nodes)
+    hold[sp.stop_nodes] = dwells
     # dwell of every stop strictly before node k, added to the moving time
-    held_before = np.concatenate(([0.0], np.cumsum(np.where(stop, dwell_s, 0.0))[:-1]))
+    held_before = np.concatenate(([0.0], np.cumsum(hold)[:-1]))
     arrive = sp.node_time_s + held_before
-    depart = arrive + np.where(stop, dwell_s, 0.0)
+    depart = arrive + hold
     return arrive, depart, stop
 
 
@@ -521,11 +541,11 @@ def _regular_count(span: float, interval: float) -> int:
     return max(int(math.ceil(span / interval - 1e-9)), 1)
 
 
-def count_time_samples(profile, dt_s: float, dwell_s: float = 0.0) -> int:
+def count_time_samples(profile, dt_s: float, dwell_s: float = 0.0, stop_dwell_s=None) -> int:
     """Number of samples :func:`sample_in_time` returns for these arguments."""
     sp = as_station_profile(profile)
     dt_s = _check_positive(dt_s, "time step")
-    total = sp.moving_time_s + _check_dwell(dwell_s) * sp.stop_nodes.size
+    total = sp.moving_time_s + float(np.sum(stop_dwells(sp, dwell_s, stop_dwell_s)))
     return _regular_count(total, dt_s) + 1
 
 
@@ -536,7 +556,8 @@ def count_station_samples(profile, station_step_m: float) -> int:
     return _regular_count(sp.length_m, step) + 1 + sp.stop_nodes.size
 
 
-def sample_in_time(profile, dt_s: float, dwell_s: float = 0.0) -> Trajectory:
+def sample_in_time(profile, dt_s: float, dwell_s: float = 0.0,
+                   stop_dwell_s=None) -> Trajectory:
     """Sample ``profile`` every ``dt_s`` seconds (module docstring for the kinematics).
 
     Samples are at ``t = 0, dt, 2 dt, ...`` strictly before the total time, then one last sample
@@ -550,6 +571,8 @@ def sample_in_time(profile, dt_s: float, dwell_s: float = 0.0) -> Trajectory:
         Time step, s (> 0).
     dwell_s : float
         Time held at every stop (interior node with zero speed), s (>= 0).
+    stop_dwell_s : array or None
+        Each stop's own dwell, s, in station order; NaN where ``dwell_s`` applies.
 
     Returns
     -------
@@ -557,8 +580,8 @@ def sample_in_time(profile, dt_s: float, dwell_s: float = 0.0) -> Trajectory:
     """
     sp = as_station_profile(profile)
     dt_s = _check_positive(dt_s, "time step")
-    dwell_s = _check_dwell(dwell_s)
-    arrive, depart, stop = _node_schedule(sp, dwell_s)
+    dwells = stop_dwells(sp, dwell_s, stop_dwell_s)
+    arrive, depart, stop = _node_schedule(sp, dwells)
     total = float(arrive[-1])
     regular = dt_s * np.arange(_regular_count(total, dt_s))
     t = np.concatenate((regular, [total]))
@@ -573,10 +596,11 @@ def sample_in_time(profile, dt_s: float, dwell_s: float = 0.0) -> Trajectory:
     # the final sample is the end of the route by definition (not by round-off)
     d[-1] = sp.station_m[-1] - sp.station_m[k[-1]]
     v[-1] = sp.speed_mps[-1]
-    return _build(sp, k, d, t, v, accel, SamplingMode.TIME, dt_s, dwell_s, arrive[-1])
+    return _build(sp, k, d, t, v, accel, SamplingMode.TIME, dt_s, dwell_s, arrive[-1], dwells)
 
 
-def sample_by_station(profile, station_step_m: float, dwell_s: float = 0.0) -> Trajectory:
+def sample_by_station(profile, station_step_m: float, dwell_s: float = 0.0,
+                      stop_dwell_s=None) -> Trajectory:
     """Sample ``profile`` every ``station_step_m`` metres of station.
 
     Samples are at ``s0, s0 + step, ...`` strictly before the end, then the end of the route;
@@ -591,6 +615,8 @@ def sample_by_station(profile, station_step_m: float, dwell_s: float = 0.0) -> T
         Station step, metres (> 0).
     dwell_s : float
         Time held at every stop, s (>= 0).
+    stop_dwell_s : array or None
+        Each stop's own dwell, s, in station order; NaN where ``dwell_s`` applies.
 
     Returns
     -------
@@ -598,8 +624,8 @@ def sample_by_station(profile, station_step_m: float, dwell_s: float = 0.0) -> T
     """
     sp = as_station_profile(profile)
     step = _check_positive(station_step_m, "station step")
-    dwell_s = _check_dwell(dwell_s)
-    arrive, depart, stop = _node_schedule(sp, dwell_s)
+    dwells = stop_dwells(sp, dwell_s, stop_dwell_s)
+    arrive, depart, stop = _node_schedule(sp, dwells)
     s0, s1 = float(sp.station_m[0]), float(sp.station_m[-1])
     grid = s0 + step * np.arange(_regular_count(s1 - s0, step))
     sigma = np.unique(np.concatenate((grid, sp.station_m[sp.stop_nodes], [s1])))
@@ -613,7 +639,8 @@ def sample_by_station(profile, station_step_m: float, dwell_s: float = 0.0) -> T
     # at a node itself: its arrival time (for a stop, the dwell follows)
     t = np.where(d <= 0.0, arrive[k], t)
     t = np.where(d >= ds, arrive[k + 1], t)
-    return _build(sp, k, d, t, v, accel, SamplingMode.STATION, step, dwell_s, arrive[-1])
+    return _build(sp, k, d, t, v, accel, SamplingMode.STATION, step, dwell_s, arrive[-1],
+                  dwells)
 
 
 def _rest_steps_at(sp: StationProfile, k):
@@ -671,7 +698,8 @@ def _state_at_distance(sp: StationProfile, k, d):
     return tau, v, np.asarray(acc, dtype=float)
 
 
-def _build(sp: StationProfile, k, d, t, v, accel, mode, interval, dwell_s, total) -> Trajectory:
+def _build(sp: StationProfile, k, d, t, v, accel, mode, interval, dwell_s, total,
+           dwells) -> Trajectory:
     """Interpolate geometry at distance ``d`` into step ``k`` and assemble the trajectory."""
     ds = np.diff(sp.station_m)[k]
     u = d / ds
@@ -687,8 +715,8 @@ def _build(sp: StationProfile, k, d, t, v, accel, mode, interval, dwell_s, total
         time_s=np.asarray(t, dtype=float), station_m=s, x_m=x, y_m=y, heading_rad=heading,
         speed_mps=v, accel_mps2=np.asarray(accel, dtype=float), curvature_1pm=kappa,
         yaw_rate_radps=v * kappa, lat_accel_mps2=v * v * kappa, lat=lat, lon=lon, mode=mode,
-        interval=float(interval), dwell_s=dwell_s,
-        stop_stations_m=sp.station_m[sp.stop_nodes].copy(),
+        interval=float(interval), dwell_s=float(dwell_s),
+        stop_stations_m=sp.station_m[sp.stop_nodes].copy(), stop_dwell_s=dwells,
         planned_time_s=sp.moving_time_s, total_time_s=float(total), name=sp.name,
         source=sp.source)
 

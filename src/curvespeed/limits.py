@@ -153,17 +153,57 @@ PHYSICAL_RANGES = {
 MAX_SPEED_MPS = PHYSICAL_RANGES["max_speed_mps"][1]
 
 #: Power over mass below this, W/kg, is most likely a power in kW under the W key (a loaded
-#: truck has about 5 W/kg, a passenger car 30-150 W/kg): warned about, not refused.
+#: truck has about 5 W/kg, a passenger car 30-150 W/kg, common practice): warned about, not
+#: refused.
 MIN_PLAUSIBLE_POWER_WPKG = 1.0
 
-#: A top speed above this, m/s (360 km/h, about the fastest scheduled trains), is most likely a
-#: value in km/h under the m/s key: warned about, not refused.
-MAX_PLAUSIBLE_SPEED_MPS = 100.0
+#: A top speed above this, m/s (252 km/h, beyond the top speed of nearly every road vehicle,
+#: common practice), is most likely a value in km/h under the m/s key: warned about, not
+#: refused (a proving-ground run that fast still plans).
+MAX_PLAUSIBLE_SPEED_MPS = 70.0
+
+#: A lateral comfort cap below this, m/s^2, is most likely a value in g (0.3 g = 2.9 m/s^2):
+#: comfort criteria sit at 1-4 m/s^2 (about 2-3 m/s^2 for passenger cars, common practice).
+MIN_PLAUSIBLE_LATERAL_MPS2 = 1.0
+
+#: A deceleration cap below this, m/s^2, is most likely a value in g: even a train's service
+#: braking is about 0.5-1 m/s^2 (common practice).
+MIN_PLAUSIBLE_DECEL_MPS2 = 0.5
+
+
+def _unit_slips(limits: Limits) -> list[str]:
+    """Each limit whose value looks like another unit, said with the unit it looks like and
+    the value it would then be in ours."""
+    g = limits.gravity_mps2
+    found = []
+    if limits.power_per_mass_wpkg < MIN_PLAUSIBLE_POWER_WPKG:
+        found.append(
+            f"max_power_w = {limits.max_power_w:g} W for mass_kg = {limits.mass_kg:g} is "
+            f"{limits.power_per_mass_wpkg:.3g} W/kg, less than a loaded truck (about 5 W/kg): "
+            f"the vehicle crawls up every grade; if the power is {limits.max_power_w:g} kW, "
+            f"that is {limits.max_power_w * 1000.0:g} W")
+    v = limits.max_speed_mps
+    if v > MAX_PLAUSIBLE_SPEED_MPS:
+        found.append(
+            f"max_speed_mps = {v:g} m/s is {mps_to_kmh(v):.0f} km/h, faster than nearly every "
+            f"road vehicle; if the value is {v:g} km/h, that is {v / 3.6:.2f} m/s (divide it "
+            "by 3.6)")
+    for name, low, what in (("max_lateral_accel_mps2", MIN_PLAUSIBLE_LATERAL_MPS2,
+                             "gentler than any lateral comfort criterion (about 2-3 m/s^2 "
+                             "for passenger cars)"),
+                            ("max_decel_mps2", MIN_PLAUSIBLE_DECEL_MPS2,
+                             "gentler than a train's service braking (about 0.5-1 m/s^2)")):
+        a = getattr(limits, name)
+        if a < low:
+            found.append(
+                f"{name} = {a:g} m/s^2 is {a / g:.3g} g, {what}; if the value is {a:g} g, "
+                f"that is {a * g:.2f} m/s^2 (multiply it by {g:g})")
+    return found
 
 
 def validate_limits(limits: Limits, where: str = "limits", warn: bool = True) -> Limits:
-    """Check values; raise :class:`LimitsError`, or warn when comfort exceeds grip or the top
-    speed looks like km/h.
+    """Check values; raise :class:`LimitsError`, or warn when comfort exceeds grip or a value
+    looks like another unit (a top speed in km/h, a lateral or braking cap in g, a power in kW).
 
     ``where`` names the origin (a file, "command line") for messages. ``warn=False`` checks
     without warning, for a caller that validates limits someone already validated (and warned
@@ -192,17 +232,8 @@ def validate_limits(limits: Limits, where: str = "limits", warn: bool = True) ->
                           "rho Cd A v^2 / (2 m))")
     if not warn:
         return limits
-    if limits.power_per_mass_wpkg < MIN_PLAUSIBLE_POWER_WPKG:
-        warnings.warn(
-            f"{where}: max_power_w = {limits.max_power_w:g} W for mass_kg = {limits.mass_kg:g} is "
-            f"{limits.power_per_mass_wpkg:.3g} W/kg, less than a loaded truck (about 5 W/kg): "
-            "the vehicle crawls up every grade; if the power is in kW, multiply by 1000",
-            CurvespeedWarning, stacklevel=2)
-    if limits.max_speed_mps > MAX_PLAUSIBLE_SPEED_MPS:
-        warnings.warn(
-            f"{where}: max_speed_mps = {limits.max_speed_mps:g} m/s is "
-            f"{mps_to_kmh(limits.max_speed_mps):.0f} km/h; if the value is in km/h, divide it "
-            f"by 3.6", CurvespeedWarning, stacklevel=2)
+    for slip in _unit_slips(limits):
+        warnings.warn(f"{where}: {slip}", CurvespeedWarning, stacklevel=2)
     g = limits.gravity_mps2
     checks = (("max_lateral_accel_mps2", limits.mu_lat * g, "lateral"),
               ("max_accel_mps2", limits.mu_long * g, "longitudinal"),
@@ -219,20 +250,75 @@ def validate_limits(limits: Limits, where: str = "limits", warn: bool = True) ->
 
 @dataclass(frozen=True)
 class SpeedZone:
-    """A speed cap over a station range, metres and m/s."""
+    """A speed cap over a station range, metres and m/s. ``snap_distance_m``: for a zone given
+    by positions, the larger of its two ends' distances from the route, m (else None)."""
 
     start_m: float
     end_m: float
     max_speed_mps: float
     origin: str = ""
+    snap_distance_m: float | None = None
+
+
+@dataclass(frozen=True)
+class ZonePosition:
+    """A speed zone given by the positions of its two ends, not yet on the route: ``start`` and
+    ``end`` are ``(x_m, y_m)`` in the route's metric frame or, with ``geographic``,
+    ``(lat_deg, lon_deg)``. :func:`curvespeed.placement.place_positions` snaps both ends."""
+
+    start: tuple[float, float]
+    end: tuple[float, float]
+    max_speed_mps: float
+    geographic: bool = False
+    origin: str = ""
+
+
+def warn_zones_above_top_speed(zones, limits: Limits) -> None:
+    """Warn about each speed zone faster than the top speed: it never binds, and its speed is
+    most likely in km/h (the warning says what it is in m/s then). For the user's zones only:
+    a road's own speed records may lie above a slow vehicle's top speed."""
+    top = limits.max_speed_mps
+    for z in zones:
+        if z.max_speed_mps > top:
+            here = f"{z.origin}: " if z.origin else ""
+            warnings.warn(
+                f"{here}speed zone {z.start_m:g}..{z.end_m:g} m: max speed "
+                f"{z.max_speed_mps:g} m/s ({mps_to_kmh(z.max_speed_mps):.0f} km/h) is above "
+                f"the top speed max_speed_mps = {top:g} m/s, so it never binds; if the value "
+                f"is {z.max_speed_mps:g} km/h, that is {z.max_speed_mps / 3.6:.2f} m/s (divide "
+                "it by 3.6)", CurvespeedWarning, stacklevel=2)
 
 
 @dataclass(frozen=True)
 class Stop:
-    """A point where the vehicle must be at rest, station in metres."""
+    """A point where the vehicle must be at rest, station in metres.
+
+    ``dwell_s`` is how long the vehicle stays there, s (None: the export's default);
+    ``name`` a label of the user's; ``snap_distance_m`` how far from the route the position
+    it was given by lay, m (None for a stop given by station).
+    """
 
     station_m: float
     origin: str = ""
+    dwell_s: float | None = None
+    name: str = ""
+    snap_distance_m: float | None = None
+
+
+@dataclass(frozen=True)
+class StopPosition:
+    """A stop given by position, not yet on the route: ``x_m``/``y_m`` in the route's metric
+    frame, or ``lat_deg``/``lon_deg`` (WGS84) for a geographic route.
+    :func:`curvespeed.placement.place_positions` snaps it to the route and makes it a :class:`Stop`.
+    """
+
+    x_m: float | None = None
+    y_m: float | None = None
+    lat_deg: float | None = None
+    lon_deg: float | None = None
+    origin: str = ""
+    dwell_s: float | None = None
+    name: str = ""
 
 
 def stop_node(station_m: float, ds: float, n_nodes: int, closed: bool) -> int:
@@ -270,6 +356,8 @@ class RouteConstraints:
     superelevation: tuple[Superelevation, ...] = ()
     start_speed_mps: float | None = None
     end_speed_mps: float | None = None
+    stop_positions: tuple[StopPosition, ...] = ()
+    zone_positions: tuple[ZonePosition, ...] = ()
 
     def merged(self, other: "RouteConstraints") -> "RouteConstraints":
         """Constraints of both; ``other``'s start/end speeds win where set."""
@@ -281,6 +369,8 @@ class RouteConstraints:
                              else self.start_speed_mps),
             end_speed_mps=(other.end_speed_mps if other.end_speed_mps is not None
                            else self.end_speed_mps),
+            stop_positions=self.stop_positions + other.stop_positions,
+            zone_positions=self.zone_positions + other.zone_positions,
         )
 
     def to_dict(self) -> dict:
@@ -294,7 +384,8 @@ def overlay_constraints(road: RouteConstraints, user: RouteConstraints) -> Route
     return RouteConstraints(
         zones=_cut(road.zones, user.zones) + user.zones, stops=user.stops,
         superelevation=_cut(road.superelevation, user.superelevation) + user.superelevation,
-        start_speed_mps=user.start_speed_mps, end_speed_mps=user.end_speed_mps)
+        start_speed_mps=user.start_speed_mps, end_speed_mps=user.end_speed_mps,
+        stop_positions=user.stop_positions, zone_positions=user.zone_positions)
 
 
 def _cut(items: tuple, covers: tuple) -> tuple:
@@ -351,6 +442,9 @@ def validate_constraints(rc: RouteConstraints, length_m: float, closed: bool) ->
             station, last = format_apart(s.station_m, length_m)
             raise LimitsError(f"{here(s)}stop at station {station} m lies outside the route "
                               f"(0..{last} m); check its station against the route summary")
+        if s.dwell_s is not None and not (math.isfinite(s.dwell_s) and s.dwell_s >= 0.0):
+            raise LimitsError(f"{here(s)}stop at station {s.station_m:g} m: dwell_s must be zero "
+                              f"or a positive number of seconds, got {s.dwell_s:g}")
     for e in rc.superelevation:
         if not (math.isfinite(e.start_m) and math.isfinite(e.end_m) and e.end_m > e.start_m):
             raise LimitsError(f"{here(e)}superelevation {e.start_m:g}..{e.end_m:g} m: end must be "

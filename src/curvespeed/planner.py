@@ -9,10 +9,11 @@ import warnings
 
 import numpy as np
 
-from .diagnose import standstill
+from .diagnose import standstill, underpowered
 from .errors import CurvespeedWarning, InfeasibleError, SolverError
 from .geometry import Geometry
 from .limits import Limits, RouteConstraints, validate_limits
+from .placement import place_positions
 from .problem import build_problem
 from .profile import Profile
 from .solvers import SolverKind, solve
@@ -47,10 +48,17 @@ def plan_profile(geometry: Geometry, limits: Limits,
     and :class:`~curvespeed.errors.SolverError` when the verifier refuses the solver's answer.
     """
     validate_limits(limits, "limits", warn=warn_limits)
+    constraints = place_positions(constraints, geometry)    # stops and zones by position
     solver = solver or default_solver(limits)
     jerk = solver.enforces_jerk and limits.max_jerk_mps3 is not None
     problem = build_problem(geometry, limits, constraints, jerk_model=jerk)
-    result = solve(problem, solver, options)
+    try:
+        result = solve(problem, solver, options)
+    except InfeasibleError as exc:
+        weak = underpowered(problem)       # the true cause, not the jerk bound the solver names
+        if weak is not None:
+            raise InfeasibleError(weak) from exc
+        raise
     stands = standstill(problem, result.b)
     if stands is not None:          # never write a profile that does not arrive
         raise InfeasibleError(stands)
@@ -68,6 +76,9 @@ def plan_profile(geometry: Geometry, limits: Limits,
                       f"max_lateral_jerk_mps3 = {limits.max_lateral_jerk_mps3:g}; use --solver "
                       "convex to enforce it", CurvespeedWarning, stacklevel=2)
     if not check.ok:
+        weak = underpowered(problem)       # a crawl this slow is the cause, not a defect
+        if weak is not None:
+            raise InfeasibleError(weak)
         worst = "; ".join(v.describe() for v in check.violations)
         raise SolverError(f"the {result.solver} solver's profile breaks its limits: {worst}. "
                           "This is a defect; please report it with the route and limits")

@@ -62,31 +62,103 @@ def limit_override_options(func):
     return func
 
 
-def constraint_options(func):
-    options = [
-        click.option("--zone", "zones", multiple=True, metavar="START_M:END_M:MAX_SPEED_MPS",
-                     help="Speed cap over a station range (repeatable)."),
-        click.option("--stop", "stops", multiple=True, type=FINITE, metavar="STATION_M",
-                     help="Come to rest at this station (repeatable)."),
-        click.option("--superelevation", "superelevations", multiple=True,
-                     metavar="START_M:END_M:RATE",
-                     help="Cross-slope toward the curve's inside over a station range, as a "
-                          "fraction (0.06 = 6 %) (repeatable)."),
-        click.option("--start-speed", type=FINITE, default=None, metavar="MPS",
-                     help="Speed at the start of an open route, m/s (default 0)."),
-        click.option("--end-speed", type=FINITE, default=None, metavar="MPS",
-                     help="Speed at the end of an open route, m/s (default 0)."),
-    ]
+def _add(func, options):
     for option in reversed(options):
         func = option(func)
     return func
 
 
+def zone_options(func):
+    """Speed zones and superelevation: what ``plan`` and ``check`` both use."""
+    return _add(func, [
+        click.option("--zone", "zones", multiple=True, metavar="START_M:END_M:MAX_SPEED_MPS",
+                     help="Speed cap over a station range (repeatable)."),
+        click.option("--zone-xy", "zones_xy", multiple=True, metavar="X1:Y1:X2:Y2:MAX_SPEED_MPS",
+                     help="Speed cap between the route's points nearest two positions in its "
+                          "metric frame, metres, in driving order (repeatable)."),
+        click.option("--zone-latlon", "zones_latlon", multiple=True,
+                     metavar="LAT1:LON1:LAT2:LON2:MAX_SPEED_MPS",
+                     help="Speed cap between the route's points nearest two WGS84 positions, "
+                          "decimal degrees, in driving order (repeatable)."),
+        click.option("--superelevation", "superelevations", multiple=True,
+                     metavar="START_M:END_M:RATE",
+                     help="Cross-slope toward the curve's inside over a station range, as a "
+                          "fraction (0.06 = 6 %) (repeatable)."),
+    ])
+
+
+def stop_and_end_options(func):
+    """Stops and the speeds at the ends: what a planning command uses (``check`` judges speeds
+    it is given and has no use for them)."""
+    return _add(func, [
+        click.option("--stop", "stops", multiple=True, type=FINITE, metavar="STATION_M",
+                     help="Come to rest at this station (repeatable)."),
+        click.option("--stop-xy", "stops_xy", multiple=True, metavar="X_M:Y_M",
+                     help="Come to rest at the route's point nearest this position in the "
+                          "route's metric frame (at most 25 m off; repeatable)."),
+        click.option("--stop-latlon", "stops_latlon", multiple=True, metavar="LAT:LON",
+                     help="Come to rest at the route's point nearest this WGS84 position, "
+                          "decimal degrees (geographic routes; at most 25 m off; repeatable)."),
+        click.option("--start-speed", type=FINITE, default=None, metavar="MPS",
+                     help="Speed at the start of an open route, m/s (default 0)."),
+        click.option("--end-speed", type=FINITE, default=None, metavar="MPS",
+                     help="Speed at the end of an open route, m/s (default 0)."),
+    ])
+
+
+def constraint_options(func):
+    """Every route constraint on the command line: zones, superelevation, stops, end speeds."""
+    return zone_options(stop_and_end_options(func))
+
+
+def zone_positions(zones_xy, zones_latlon) -> tuple:
+    """``--zone-xy`` and ``--zone-latlon`` as zones by position (placed once the route is
+    read)."""
+    from ..limits import ZonePosition
+
+    xy = _parse_ranges(zones_xy, 5, "a zone by position", "X1:Y1:X2:Y2:MAX_SPEED_MPS",
+                       "--zone-xy")
+    ll = _parse_ranges(zones_latlon, 5, "a zone by position",
+                       "LAT1:LON1:LAT2:LON2:MAX_SPEED_MPS", "--zone-latlon")
+    for (a, b, c, d, _), text in zip(ll, zones_latlon):
+        if not all(-90.0 <= lat <= 90.0 and -180.0 <= lon <= 360.0 for lat, lon in ((a, b), (c, d))):
+            raise click.BadParameter(f"'{text}': a position is not on Earth (lat -90..90, lon "
+                                     "-180..180); check the order (lat first)",
+                                     param_hint="'--zone-latlon'")
+    return (tuple(ZonePosition((a, b), (c, d), v, origin=f"--zone-xy {t}")
+                  for (a, b, c, d, v), t in zip(xy, zones_xy))
+            + tuple(ZonePosition((a, b), (c, d), v, geographic=True, origin=f"--zone-latlon {t}")
+                    for (a, b, c, d, v), t in zip(ll, zones_latlon)))
+
+
+def stop_positions(stops_xy, stops_latlon) -> tuple:
+    """``--stop-xy`` and ``--stop-latlon`` as stops by position (placed once the route is
+    read)."""
+    from ..limits import StopPosition
+
+    xy = _parse_ranges(stops_xy, 2, "a position", "X_M:Y_M (e.g. 120.5:-40)", "--stop-xy")
+    ll = _parse_ranges(stops_latlon, 2, "a position", "LAT:LON in decimal degrees (e.g. "
+                       "48.1375:11.5755)", "--stop-latlon")
+    for (lat, lon), text in zip(ll, stops_latlon):
+        if not (-90.0 <= lat <= 90.0 and -180.0 <= lon <= 360.0):
+            raise click.BadParameter(f"'{text}' is not a position on Earth (lat -90..90, lon "
+                                     "-180..180); check the order (lat first)",
+                                     param_hint="'--stop-latlon'")
+    return (tuple(StopPosition(x_m=x, y_m=y, origin=f"--stop-xy {t}")
+                  for (x, y), t in zip(xy, stops_xy))
+            + tuple(StopPosition(lat_deg=a, lon_deg=b, origin=f"--stop-latlon {t}")
+                    for (a, b), t in zip(ll, stops_latlon)))
+
+
 def resolve_limits(limits_file, overrides: dict, zones, stops, superelevations,
-                   start_speed, end_speed):
-    """Limits and constraints from the file (or defaults) with command-line overrides on top."""
-    from ..limits import (DEFAULT_LIMITS, RouteConstraints, SpeedZone, Stop, Superelevation,
-                          validate_limits)
+                   start_speed, end_speed, positions: tuple = ()):
+    """Limits and constraints from the file (or defaults) with command-line overrides on top.
+
+    ``positions`` are stops and zones by position from the command line
+    (:func:`stop_positions`, :func:`zone_positions`)."""
+    from ..limits import (DEFAULT_LIMITS, RouteConstraints, SpeedZone, Stop, StopPosition,
+                          Superelevation, ZonePosition, validate_limits,
+                          warn_zones_above_top_speed)
 
     if limits_file:
         from ..io.limits_toml import read_limits
@@ -109,23 +181,37 @@ def resolve_limits(limits_file, overrides: dict, zones, stops, superelevations,
         superelevation=tuple(Superelevation(*e, origin="--superelevation") for e in
                              _parse_ranges(superelevations, 3, "a superelevation range",
                                            "START_M:END_M:RATE", "--superelevation")),
-        start_speed_mps=start_speed, end_speed_mps=end_speed)
-    return limits, constraints.merged(extra), origin
+        start_speed_mps=start_speed, end_speed_mps=end_speed,
+        stop_positions=tuple(p for p in positions if isinstance(p, StopPosition)),
+        zone_positions=tuple(p for p in positions if isinstance(p, ZonePosition)))
+    constraints = constraints.merged(extra)
+    warn_zones_above_top_speed(constraints.zones, limits)
+    return limits, constraints, origin
 
 
 def limits_and_geometry(route_file, limits_file, overrides: dict, constraint_args: tuple,
-                        geometry_args: tuple):
+                        geometry_args: tuple, positions: tuple = (), place_stops: bool = True):
     """Limits, constraints and their origin, and the resampled route, checked against each other.
 
     ``constraint_args`` are the values of :func:`constraint_options` (zones, stops,
     superelevations, start speed, end speed), ``geometry_args`` those of
     :func:`~curvespeed.cli._common.geometry_options` (spacing, position noise, elevation noise,
-    closed). Returns ``(limits, constraints, origin, geometry)``.
+    closed). ``positions`` are stops and zones by position from the command line; zones by
+    position (file and command line) are snapped to the route, and stops too with
+    ``place_stops`` (``check``, which has no use for stops, leaves them). Returns
+    ``(limits, constraints, origin, geometry)``.
     """
     from ._common import load_geometry
 
-    limits, constraints, origin = resolve_limits(limits_file, overrides, *constraint_args)
+    limits, constraints, origin = resolve_limits(limits_file, overrides, *constraint_args,
+                                                 positions=positions)
     source, geometry = load_geometry(route_file, *geometry_args)
+    from ..limits import warn_zones_above_top_speed
+    from ..placement import place_positions
+
+    given = len(constraints.zones)
+    constraints = place_positions(constraints, geometry, stops=place_stops)
+    warn_zones_above_top_speed(constraints.zones[given:], limits)
     road_zones = getattr(source, "zones", None)
     if road_zones is not None:            # an OpenDRIVE path: the road's own data, under the user's
         from ..limits import RouteConstraints, overlay_constraints
@@ -135,3 +221,18 @@ def limits_and_geometry(route_file, limits_file, overrides: dict, constraint_arg
         if road_zones or source.superelevation:
             origin += " with the road data's speed records and superelevation"
     return limits, constraints, origin, geometry
+
+
+def snapped_lines(constraints) -> list[str]:
+    """One line per stop or zone given by position: where it went on the route and how far
+    it was."""
+    lines = [f"zone     {z.origin}: snapped to stations {z.start_m:.1f}..{z.end_m:.1f} m, ends "
+             f"up to {z.snap_distance_m:.2f} m from the route" for z in constraints.zones
+             if z.snap_distance_m is not None]
+    for stop in constraints.stops:
+        if stop.snap_distance_m is None:
+            continue
+        name = f" '{stop.name}'" if stop.name else ""
+        lines.append(f"stop     {stop.origin}{name}: snapped to station {stop.station_m:.1f} m, "
+                     f"{stop.snap_distance_m:.2f} m from the route")
+    return lines

@@ -12,7 +12,8 @@ import click
 
 from ._common import (EXIT_OK, EXIT_VIOLATIONS, FINITE, echo, geometry_options, handle_errors,
                       register_drives)
-from ._limits import constraint_options, limit_override_options, limits_and_geometry
+from ._limits import (limit_override_options, limits_and_geometry, snapped_lines, zone_options,
+                      zone_positions)
 
 
 @click.command()
@@ -46,12 +47,12 @@ from ._limits import constraint_options, limit_override_options, limits_and_geom
 @click.option("--force", is_flag=True, help="Replace output files that exist.")
 @geometry_options
 @limit_override_options
-@constraint_options
+@zone_options
 @handle_errors
 def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_speed_kmh, e_max,
           trace_noise_m, curve_radius_m, json_file, csv_file, report_file, force, spacing_m,
           position_noise_m, elevation_noise_m, use_elevation, closed, part,
-          drives, all_tracks, roads, lane, zones, stops, superelevations, start_speed, end_speed,
+          drives, all_tracks, roads, lane, zones, zones_xy, zones_latlon, superelevations,
           **overrides):
     """Check speeds along ROUTE_FILE against friction, comfort and road-design criteria.
 
@@ -90,9 +91,12 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
     with outputs:               # every output checked here; written together at the end
         limits, constraints, origin, geo = limits_and_geometry(
             route_file, limits_file, overrides,
-            (zones, stops, superelevations, start_speed, end_speed),
+            (zones, (), superelevations, None, None),
             (spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
-             part, drives, all_tracks, roads, lane))
+             part, drives, all_tracks, roads, lane),
+            zone_positions(zones_xy, zones_latlon), place_stops=False)
+        for line in snapped_lines(constraints):
+            echo(line)
         report = _check(geo, limits, constraints, origin, speeds_file, speed_kmh, trace_noise_m,
                         design_speed_kmh, e_max, curve_radius_m)
         if json_file:

@@ -56,6 +56,8 @@ def export(profile_file, output, fmt, dt_s, station_step_m, dwell_s, force):
     The trajectory is an engineering aid: speeds on public roads follow local codes and licensed
     engineering practice.
     """
+    import numpy as np
+
     from ..errors import SpeedFileError
     from ..io.atomic import OutputFiles
     from ..io.meta_json import default_meta_path
@@ -84,7 +86,8 @@ def export(profile_file, output, fmt, dt_s, station_step_m, dwell_s, force):
                 f"{profile_file}: metric-only profile (no lat, lon columns), but GeoJSON "
                 "(RFC 7946) needs WGS84 longitude/latitude; export as csv or json, or plan the "
                 "route from a geographic file (lat,lon CSV, GeoJSON or GPX)")
-        trajectory, every = _sample(sp, dt_s, station_step_m, dwell_s)
+        own = _own_dwells(profile_file, sp)
+        trajectory, every = _sample(sp, dt_s, station_step_m, dwell_s, own)
         from ..io.trajectory import trajectory_text
 
         outputs.write_text(output, trajectory_text(trajectory, kind))
@@ -93,13 +96,41 @@ def export(profile_file, output, fmt, dt_s, station_step_m, dwell_s, force):
     if stops:
         held = (f"; {stops} stop(s), held {dwell_s:g} s each" if dwell_s > 0
                 else f"; {stops} stop(s), left at once (--dwell 0)")
+        if own is not None and not np.all(np.isnan(own)):
+            held += (f", except {int(np.sum(~np.isnan(own)))} with a dwell of its own from the "
+                     f"sidecar ({float(np.sum(trajectory.stop_dwell_s)):g} s held in all)")
     echo(f"read   {profile_file}: {sp.length_m:.1f} m, {sp.n_nodes} stations, planned time "
          f"{trajectory.planned_time_s:.2f} s{held}")
     echo(f"wrote  {output} ({kind.value}): {trajectory.n_samples} samples {every}, "
          f"total time {trajectory.total_time_s:.2f} s")
 
 
-def _sample(sp, dt_s, station_step_m, dwell_s):
+def _own_dwells(profile_file, sp):
+    """Each stop's own dwell (``dwell_s`` of its [[stop]], kept in the profile's sidecar), in
+    station order, NaN for none; None without a readable sidecar or stops with dwells."""
+    import numpy as np
+
+    from ..errors import CurvespeedError
+    from ..io.meta_json import default_meta_path, read_profile_meta
+
+    meta = default_meta_path(profile_file)
+    if not meta.exists() or not sp.stop_nodes.size:
+        return None
+    try:
+        stops = read_profile_meta(meta).constraints.stops
+    except CurvespeedError:          # said once already, by _route_name: no stop's own dwell
+        return None
+    own = np.full(sp.stop_nodes.size, np.nan)
+    at = sp.station_m[sp.stop_nodes]
+    for stop in stops:
+        if stop.dwell_s is None:
+            continue
+        j = int(np.argmin(np.abs(at - stop.station_m)))
+        own[j] = stop.dwell_s
+    return None if np.all(np.isnan(own)) else own
+
+
+def _sample(sp, dt_s, station_step_m, dwell_s, own=None):
     """The trajectory (time or station sampled) and how it was sampled, in words."""
     from ..export import (count_station_samples, count_time_samples, sample_by_station,
                           sample_in_time)
@@ -109,15 +140,15 @@ def _sample(sp, dt_s, station_step_m, dwell_s):
         option, value = "--station-step", station_step_m
     else:
         dt_s = DEFAULT_DT_S if dt_s is None else dt_s
-        count = count_time_samples(sp, dt_s, dwell_s)
+        count = count_time_samples(sp, dt_s, dwell_s, own)
         option, value = "--dt", dt_s
     if count > MAX_SAMPLES:
         raise click.BadParameter(f"{value:g} would give {count} samples (more than "
                                  f"{MAX_SAMPLES}); choose a larger step", param_hint=f"'{option}'")
     if station_step_m is not None:
-        return (sample_by_station(sp, station_step_m, dwell_s),
+        return (sample_by_station(sp, station_step_m, dwell_s, own),
                 f"every {station_step_m:g} m of station")
-    return sample_in_time(sp, dt_s, dwell_s), f"every {dt_s:g} s"
+    return sample_in_time(sp, dt_s, dwell_s, own), f"every {dt_s:g} s"
 
 
 def _route_name(profile_file) -> str | None:

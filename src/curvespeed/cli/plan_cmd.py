@@ -42,8 +42,8 @@ from ._limits import constraint_options, limit_override_options, limits_and_geom
 def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort_weight, plot_file,
          report_file, force,
          spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed, part,
-         drives, all_tracks, roads, lane, zones, stops, superelevations, start_speed, end_speed,
-         **overrides):
+         drives, all_tracks, roads, lane, zones, zones_xy, zones_latlon, stops, stops_xy,
+         stops_latlon, superelevations, start_speed, end_speed, **overrides):
     """Plan the fastest speed profile along ROUTE_FILE within the limits.
 
     The profile is an engineering aid: speeds on public roads and advisory signs follow local
@@ -51,7 +51,9 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
     """
     from ..io.atomic import OutputFiles
     from ..io.meta_json import default_meta_path
+    from ._limits import snapped_lines, stop_positions, zone_positions
 
+    positions = stop_positions(stops_xy, stops_latlon) + zone_positions(zones_xy, zones_latlon)
     if comfort_weight < 0:
         raise click.BadParameter("must be zero or positive", param_hint="--comfort-weight")
     outputs = OutputFiles(force)
@@ -78,7 +80,9 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
             route_file, limits_file, overrides,
             (zones, stops, superelevations, start_speed, end_speed),
             (spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
-             part, drives, all_tracks, roads, lane))
+             part, drives, all_tracks, roads, lane), positions)
+        for line in snapped_lines(constraints):
+            echo(line)
 
         from ..planner import plan_profile
 
@@ -170,25 +174,18 @@ def summarise(route_file, profile, limits, origin: str, max_curves: int = 8) -> 
         + ("" if not profile.time_gap_to_envelope else
            f"; {100 * profile.time_gap_to_envelope:.2f} % over the jerk-free envelope"),
         f"peaks    accel {profile.extremes['accel_mps2']:.2f}, decel "
-        f"{profile.extremes['decel_mps2']:.2f}, lateral {profile.extremes['lateral_accel_mps2']:.2f}"
-        f" m/s^2; jerk {profile.extremes['jerk_mps3']:.2f}, lateral jerk "
+        f"{profile.extremes['decel_mps2']:.2f} m/s^2; lateral {_lateral_peaks(profile, limits)};"
+        f" jerk {profile.extremes['jerk_mps3']:.2f}, lateral jerk "
         f"{profile.extremes['lateral_jerk_mps3']:.2f} m/s^3",
     ]
     from ..check import find_curves
 
     lateral = np.isin(profile.binding, ["lateral_comfort", "lateral_grip", "lateral_jerk"])
-    stretches = []
-    for nodes in find_curves(geo):
-        bound = nodes[lateral[nodes]]
-        if not bound.size:
-            continue
-        k = int(bound[np.argmin(v[bound])])
-        radius = 1 / abs(geo.curvature_1pm[nodes]).max()
-        stretches.append((v[k], s[nodes[0]], s[nodes[-1]], radius,
-                          str(profile.binding[k]).replace("_", " ")))
+    stretches = [_curve_row(profile, nodes, lateral[nodes]) for nodes in find_curves(geo)
+                 if lateral[nodes].any()]
     if stretches:
         slowest = sorted(sorted(stretches)[:max_curves], key=lambda r: r[1])
-        lines.append(f"curves where a lateral limit sets the speed ({len(stretches)}; "
+        lines.append(f"curves where a lateral limit binds ({len(stretches)}; "
                      f"the {len(slowest)} slowest):")
         lines.append("   station range (m)     min radius (m)  speed (m/s)  speed (km/h)  "
                      "limited by")
@@ -198,3 +195,50 @@ def summarise(route_file, profile, limits, origin: str, max_curves: int = 8) -> 
     else:
         lines.append("no curve limits the speed (top speed, zones and stops do)")
     return "\n".join(lines)
+
+
+def _lateral_peaks(profile, limits) -> str:
+    """The lateral peaks, each said with its quantity: the path's ``kappa v^2`` and the
+    acceleration felt in the road plane (``kappa v^2 cos(bank) - g sin(bank)``, what the
+    lateral cap bounds); they differ on banked curves."""
+    kinematic = profile.extremes["lateral_accel_mps2"]
+    felt = profile.usage["lateral_comfort"] * limits.max_lateral_accel_mps2
+    return (f"kappa v^2 {kinematic:.2f}, felt in the road plane {felt:.2f} m/s^2 (the cap "
+            f"{limits.max_lateral_accel_mps2:g} bounds the felt value)")
+
+
+def _curve_row(profile, nodes, lateral) -> tuple:
+    """``(speed, first station, last station, radius, limited by)`` of one curve: its slowest
+    speed, its smallest radius and what sets the speed. Where the curve is driven slower than
+    its lateral limit allows (braking into a stop, starting from one, a zone), that cause is
+    named, not the lateral limit."""
+    import numpy as np
+
+    v, s, binding = profile.speed_mps, profile.geometry.station_m, profile.binding
+    radius = 1 / abs(profile.geometry.curvature_1pm[nodes]).max()
+    bound = nodes[lateral]
+    k = int(bound[np.argmin(v[bound])])
+    slowest = int(nodes[np.argmin(v[nodes])])
+    cause = _stop_cause(v, s, slowest)
+    if cause is None and binding[slowest] == "zone" and v[slowest] < v[k] * (1.0 - 1e-3):
+        cause = "speed zone"
+    if cause is None:
+        return v[k], s[nodes[0]], s[nodes[-1]], radius, str(binding[k]).replace("_", " ")
+    return v[slowest], s[nodes[0]], s[nodes[-1]], radius, cause
+
+
+def _stop_cause(v, s, k: int) -> str | None:
+    """The standstill node ``k`` is at, brakes toward or starts from (speed falling, or
+    rising, all the way to it), said; None when there is none. A lateral limit may bind on the
+    way (braking in a curve changes the lateral acceleration), but the stop sets the speed."""
+    import numpy as np
+
+    if v[k] <= 0.0:
+        return f"stop at {s[k]:.1f} m"
+    rest = np.flatnonzero(v <= 0.0)
+    ahead, behind = rest[rest > k], rest[rest < k]
+    if ahead.size and np.all(np.diff(v[k:ahead[0] + 1]) <= 0.0):
+        return f"braking for the stop at {s[ahead[0]]:.1f} m"
+    if behind.size and np.all(np.diff(v[behind[-1]:k + 1]) >= 0.0):
+        return f"starting from the stop at {s[behind[-1]]:.1f} m"
+    return None

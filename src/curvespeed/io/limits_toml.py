@@ -19,12 +19,15 @@ Layout (SI units, unit suffix in every key)::
     end_speed_mps = 0.0
 
     [[zone]]                      # optional, repeatable: speed cap over a station range
-    start_m = 0.0
-    end_m = 250.0
+    start_m = 0.0                 # or start_lat, start_lon, end_lat, end_lon (degrees), or
+    end_m = 250.0                 # start_x_m, start_y_m, end_x_m, end_y_m: snapped to the route
     max_speed_mps = 8.3
 
     [[stop]]                      # optional, repeatable: at rest at a station
-    station_m = 640.0
+    station_m = 640.0             # or lat = ..., lon = ... (degrees, WGS84), or x_m, y_m:
+                                  # snapped to the route (at most 25 m away)
+    dwell_s = 30.0                # optional: seconds held there (else export's --dwell)
+    name = "depot"                # optional
 
     [[superelevation]]            # optional, repeatable: cross-slope toward the curve's inside
     start_m = 1200.0
@@ -41,16 +44,22 @@ import tomllib
 from pathlib import Path
 
 from ..errors import LimitsError
-from ..limits import DEFAULT_LIMITS, Limits, RouteConstraints, SpeedZone, Stop, Superelevation
+from ..limits import (DEFAULT_LIMITS, Limits, RouteConstraints, SpeedZone, Stop, StopPosition,
+                      Superelevation, ZonePosition)
 from ._common import check_nesting, finite_value, read_text, show_value, value_problem
 
 _LIMIT_KEYS = tuple(f.name for f in dataclasses.fields(Limits))
 _ROUTE_KEYS = ("start_speed_mps", "end_speed_mps")
 _TABLES = {
-    "zone": ("start_m", "end_m", "max_speed_mps"),
-    "stop": ("station_m",),
     "superelevation": ("start_m", "end_m", "rate"),
 }
+#: The ways a [[stop]] says where it is (exactly one), and its optional keys.
+_STOP_PLACES = (("station_m",), ("lat", "lon"), ("x_m", "y_m"))
+_STOP_KEYS = ("station_m", "lat", "lon", "x_m", "y_m", "dwell_s", "name")
+#: The ways a [[zone]] says where it runs (exactly one), and its keys.
+_ZONE_PLACES = (("start_m", "end_m"), ("start_lat", "start_lon", "end_lat", "end_lon"),
+                ("start_x_m", "start_y_m", "end_x_m", "end_y_m"))
+_ZONE_KEYS = tuple(k for keys in _ZONE_PLACES for k in keys) + ("max_speed_mps",)
 _UNIT_HINTS = {"kmh": "km/h: divide by 3.6 and use the _mps key",
                "kph": "km/h: divide by 3.6 and use the _mps key",
                "mph": "mph: multiply by 0.44704 and use the _mps key",
@@ -98,7 +107,7 @@ def read_limits(path: str | Path) -> tuple[Limits, RouteConstraints]:
                           "nests at most three levels ([[zone]] entries)") from None
     check_nesting(data, str(path), LimitsError, "TOML")
 
-    known_tables = ("limits", "route") + tuple(_TABLES)
+    known_tables = ("limits", "route", "zone", "stop", "superelevation")
     if "limits" not in data or not isinstance(data["limits"], dict):
         stray = [k for k in data if k in _LIMIT_KEYS]
         hint = (f" (found {', '.join(stray)} at top level: put it under [limits])" if stray
@@ -145,9 +154,88 @@ def read_limits(path: str | Path) -> tuple[Limits, RouteConstraints]:
                                   f"[[{name}]] needs {', '.join(keys)}")
             nums = [_number(path, label, k, entry[k]) for k in keys]
             origin = f"{path} [[{name}]] #{n}"
-            cls = {"zone": SpeedZone, "stop": Stop, "superelevation": Superelevation}[name]
+            cls = Superelevation
             items[name].append(cls(*nums, origin=origin))
 
-    constraints = RouteConstraints(zones=tuple(items["zone"]), stops=tuple(items["stop"]),
-                                   superelevation=tuple(items["superelevation"]), **ends)
+    stops, positions = _read_stops(path, data.get("stop", []))
+    zones, zone_positions = _read_zones(path, data.get("zone", []))
+    constraints = RouteConstraints(zones=zones, stops=stops,
+                                   superelevation=tuple(items["superelevation"]), **ends,
+                                   stop_positions=positions, zone_positions=zone_positions)
     return limits, constraints
+
+
+def _entries(path: Path, name: str, entries, allowed, places):
+    """Each [[name]] entry as ``(n, label, entry, place keys)``, its keys checked."""
+    if isinstance(entries, dict) or not isinstance(entries, list):
+        raise LimitsError(f"{path}: '{name}' must be written as [[{name}]] entries")
+    ways = ", or ".join(" and ".join(keys) for keys in places)
+    for n, entry in enumerate(entries, start=1):
+        label = f"{name} #{n}"
+        if not isinstance(entry, dict):
+            raise LimitsError(f"{path}: '{name}' entry #{n} is {show_value(entry)}, not a table; "
+                              f"write each as a [[{name}]] block with {ways}")
+        for key in entry:
+            if key not in allowed:
+                raise _unknown_key(path, label, key, allowed)
+        given = [keys for keys in places if any(k in entry for k in keys)]
+        if len(given) != 1 or any(k not in entry for k in given[0]):
+            found = ", ".join(k for keys in places for k in keys if k in entry) or "none"
+            raise LimitsError(f"{path}: [[{name}]] #{n} needs exactly one place: {ways} "
+                              f"(found: {found})")
+        yield n, label, entry, given[0]
+
+
+def _check_latlon(path: Path, label: str, lat: float, lon: float) -> None:
+    if not (-90.0 <= lat <= 90.0 and -180.0 <= lon <= 360.0):
+        raise LimitsError(f"{path}: [{label}] lat {lat:g}, lon {lon:g} is not a position on "
+                          "Earth (lat -90..90, lon -180..180 degrees); check the order (lat "
+                          "first) and the unit (decimal degrees)")
+
+
+def _read_zones(path: Path, entries) -> tuple[tuple, tuple]:
+    """The [[zone]] entries: zones by station, and zones by the positions of their ends."""
+    zones, positions = [], []
+    for n, label, entry, place in _entries(path, "zone", entries, _ZONE_KEYS, _ZONE_PLACES):
+        if "max_speed_mps" not in entry:
+            raise LimitsError(f"{path}: [[zone]] #{n} lacks max_speed_mps; each [[zone]] needs "
+                              "max_speed_mps")
+        speed = _number(path, label, "max_speed_mps", entry["max_speed_mps"])
+        nums = [_number(path, label, k, entry[k]) for k in place]
+        origin = f"{path} [[zone]] #{n}"
+        if len(nums) == 2:
+            zones.append(SpeedZone(nums[0], nums[1], speed, origin=origin))
+            continue
+        geographic = place[0] == "start_lat"
+        if geographic:
+            _check_latlon(path, label, nums[0], nums[1])
+            _check_latlon(path, label, nums[2], nums[3])
+        positions.append(ZonePosition((nums[0], nums[1]), (nums[2], nums[3]), speed,
+                                      geographic=geographic, origin=origin))
+    return tuple(zones), tuple(positions)
+
+
+def _read_stops(path: Path, entries) -> tuple[tuple, tuple]:
+    """The [[stop]] entries: stops by station, and stops by position (placed on the route
+    later, once it is read)."""
+    stops, positions = [], []
+    for n, label, entry, place in _entries(path, "stop", entries, _STOP_KEYS, _STOP_PLACES):
+        origin = f"{path} [[stop]] #{n}"
+        nums = {k: _number(path, label, k, entry[k]) for k in place}
+        dwell = _number(path, label, "dwell_s", entry["dwell_s"]) if "dwell_s" in entry else None
+        if dwell is not None and dwell < 0:
+            raise LimitsError(f"{path}: [{label}] dwell_s = {dwell:g}: give zero or a positive "
+                              "number of seconds")
+        name = entry.get("name", "")
+        if not isinstance(name, str):
+            raise LimitsError(f"{path}: [{label}] name is {show_value(name)}; give it as a "
+                              "quoted string, e.g. name = \"depot\"")
+        if "lat" in nums:
+            _check_latlon(path, label, nums["lat"], nums["lon"])
+        if "station_m" in nums:
+            stops.append(Stop(nums["station_m"], origin=origin, dwell_s=dwell, name=name))
+        else:
+            positions.append(StopPosition(x_m=nums.get("x_m"), y_m=nums.get("y_m"),
+                                          lat_deg=nums.get("lat"), lon_deg=nums.get("lon"),
+                                          origin=origin, dwell_s=dwell, name=name))
+    return tuple(stops), tuple(positions)

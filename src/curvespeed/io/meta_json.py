@@ -195,7 +195,9 @@ def read_profile_meta(path: str | os.PathLike) -> ProfileSidecar:
 
     constraints = RouteConstraints(
         zones=entries("zones", SpeedZone, ("start_m", "end_m", "max_speed_mps")),
-        stops=entries("stops", Stop, ("station_m",)),
+        stops=tuple(_stop_extras(stop, item, number)
+                    for stop, item in zip(entries("stops", Stop, ("station_m",)),
+                                          raw.get("stops") or [])),
         superelevation=entries("superelevation", Superelevation, ("start_m", "end_m", "rate")),
         start_speed_mps=number(raw.get("start_speed_mps"), "constraints.start_speed_mps", True),
         end_speed_mps=number(raw.get("end_speed_mps"), "constraints.end_speed_mps", True))
@@ -211,6 +213,16 @@ def read_profile_meta(path: str | os.PathLike) -> ProfileSidecar:
                           total_time_s=total, source=source, route_file=text(route.get("file")),
                           route_sha256=text(route.get("sha256")),
                           solver=solver_text(doc.get("solver")))
+
+
+def _stop_extras(stop: Stop, item: dict, number) -> Stop:
+    """A sidecar's stop with its optional dwell, name and snapping distance."""
+    name = item.get("name")
+    return dataclasses.replace(
+        stop, dwell_s=number(item.get("dwell_s"), "constraints.stops.dwell_s", True),
+        name=name if isinstance(name, str) else "",
+        snap_distance_m=number(item.get("snap_distance_m"), "constraints.stops.snap_distance_m",
+                               True))
 
 
 def solver_text(solver) -> str | None:

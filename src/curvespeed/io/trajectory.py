@@ -143,6 +143,9 @@ def _json_text(trajectory: Trajectory) -> str:
         ("sampling", _sampling_json(trajectory)),
         ("dwell_s", _number(trajectory.dwell_s, KINEMATIC)),
         ("stop_stations_m", _array(trajectory.stop_stations_m, METRES)),
+        ("stop_dwell_s", _array(trajectory.stop_dwell_s if trajectory.stop_dwell_s is not None
+                                else np.full(trajectory.stop_stations_m.size,
+                                             trajectory.dwell_s), KINEMATIC)),
         ("planned_time_s", _number(trajectory.planned_time_s, KINEMATIC)),
         ("total_time_s", _number(trajectory.total_time_s, KINEMATIC)),
         ("samples", str(trajectory.n_samples)),
