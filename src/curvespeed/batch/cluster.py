@@ -16,6 +16,12 @@ from __future__ import annotations
 WORKER_ENVIRON = {"MALLOC_MMAP_THRESHOLD_": "33554432", "MALLOC_TRIM_THRESHOLD_": "67108864"}
 
 
+#: Dask's statistical profiler samples every worker thread's stack every 10 ms (for its
+#: dashboard, which a batch does not open); off, as one of the costs of a task over the same
+#: road planned in process.
+WORKER_PROFILER = False
+
+
 def start_local_cluster(n_workers: int | None = None):
     """A ``LocalCluster`` of ``n_workers`` single-thread processes (default: one per core) and
     its ``Client``; the caller closes both."""
@@ -23,7 +29,8 @@ def start_local_cluster(n_workers: int | None = None):
     from distributed import Client, LocalCluster
 
     environ = {**dask.config.get("distributed.nanny.pre-spawn-environ", {}), **WORKER_ENVIRON}
-    with dask.config.set({"distributed.nanny.pre-spawn-environ": environ}):
+    with dask.config.set({"distributed.nanny.pre-spawn-environ": environ,
+                          "distributed.worker.profile.enabled": WORKER_PROFILER}):
         cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=True,
                                dashboard_address=None, silence_logs=40)
     return cluster, Client(cluster)
