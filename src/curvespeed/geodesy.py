@@ -35,8 +35,25 @@ _EARTH_RADIUS_M = 6_371_000.0
 SAMPLE_POINTS = 20_000
 
 
+class _Transforms:
+    """Latitude/longitude to plan metres and back through a subclass's ``_transformers``
+    (pyproj's forward and inverse transformers, x east and y north)."""
+
+    def to_metres(self, lat_deg, lon_deg) -> tuple[np.ndarray, np.ndarray]:
+        """Project latitude/longitude (degrees) to local x (east), y (north), metres."""
+        fwd, _ = self._transformers
+        x, y = fwd.transform(np.asarray(lon_deg, dtype=float), np.asarray(lat_deg, dtype=float))
+        return np.asarray(x, dtype=float), np.asarray(y, dtype=float)
+
+    def to_latlon(self, x_m, y_m) -> tuple[np.ndarray, np.ndarray]:
+        """Inverse of :meth:`to_metres`: local metres to latitude, longitude in degrees."""
+        _, inv = self._transformers
+        lon, lat = inv.transform(np.asarray(x_m, dtype=float), np.asarray(y_m, dtype=float))
+        return np.asarray(lat, dtype=float), np.asarray(lon, dtype=float)
+
+
 @dataclass(frozen=True)
-class LocalProjection:
+class LocalProjection(_Transforms):
     """Conformal local projection of the WGS84 ellipsoid centred at (``lat0_deg``, ``lon0_deg``).
 
     Transverse Mercator (central meridian ``lon0_deg``) when ``azimuth_deg`` is None, else an
@@ -104,17 +121,6 @@ class LocalProjection:
         inv = Transformer.from_crs(local, wgs84, always_xy=True)
         return fwd, inv
 
-    def to_metres(self, lat_deg, lon_deg) -> tuple[np.ndarray, np.ndarray]:
-        """Project latitude/longitude (degrees) to local x (east), y (north), metres."""
-        fwd, _ = self._transformers
-        x, y = fwd.transform(np.asarray(lon_deg, dtype=float), np.asarray(lat_deg, dtype=float))
-        return np.asarray(x, dtype=float), np.asarray(y, dtype=float)
-
-    def to_latlon(self, x_m, y_m) -> tuple[np.ndarray, np.ndarray]:
-        """Inverse of :meth:`to_metres`: local metres to latitude, longitude in degrees."""
-        _, inv = self._transformers
-        lon, lat = inv.transform(np.asarray(x_m, dtype=float), np.asarray(y_m, dtype=float))
-        return np.asarray(lat, dtype=float), np.asarray(lon, dtype=float)
 
     def scale_error(self, lat_deg, lon_deg) -> float:
         """Largest ``|k - 1|`` of the projection's point scale ``k`` at these points.
@@ -180,7 +186,7 @@ def _best_great_circle(lat_deg: np.ndarray, lon_deg: np.ndarray) -> LocalProject
 
 
 @dataclass(frozen=True)
-class GeoReference:
+class GeoReference(_Transforms):
     """The projected frame an OpenDRIVE file's ``geoReference`` names (a PROJ string or an
     authority code such as ``EPSG:25832``): plan x, y in metres of that frame, and back.
 
@@ -216,16 +222,6 @@ class GeoReference:
         wgs84 = CRS.from_epsg(4326)
         return (Transformer.from_crs(wgs84, local, always_xy=True),
                 Transformer.from_crs(local, wgs84, always_xy=True))
-
-    def to_metres(self, lat_deg, lon_deg) -> tuple[np.ndarray, np.ndarray]:
-        fwd, _ = self._transformers
-        x, y = fwd.transform(np.asarray(lon_deg, dtype=float), np.asarray(lat_deg, dtype=float))
-        return np.asarray(x, dtype=float), np.asarray(y, dtype=float)
-
-    def to_latlon(self, x_m, y_m) -> tuple[np.ndarray, np.ndarray]:
-        _, inv = self._transformers
-        lon, lat = inv.transform(np.asarray(x_m, dtype=float), np.asarray(y_m, dtype=float))
-        return np.asarray(lat, dtype=float), np.asarray(lon, dtype=float)
 
     def to_dict(self) -> dict:
         return {"kind": "opendrive_geo_reference", "proj": self.text}
