@@ -79,7 +79,17 @@ def path_from_network(network: Network, roads=None, lane: int | None = None,
 
 
 def _ends(network: Network, a: Road, b: Road) -> list[tuple[str, str]]:
-    """Pairs (end of a, end of b) at which the data link road a to road b."""
+    """Pairs (end of a, end of b) at which the data link road a to road b (from either road's
+    links)."""
+    from_a, to_b = _links_to(network, a, b)
+    from_b, to_a = _links_to(network, b, a)
+    ends_a, ends_b = from_a | to_a, to_b | from_b
+    return [(ea, eb) for ea in sorted(ends_a) for eb in sorted(ends_b)]
+
+
+def _links_to(network: Network, a: Road, b: Road) -> tuple[set, set]:
+    """Ends of road ``a`` whose link leads to road ``b`` (directly, or through the junction
+    ``b`` belongs to), and the ends of ``b`` those links name as contact points."""
     ends_a, ends_b = set(), set()
     for end, link in (("start", a.predecessor), ("end", a.successor)):
         if link is None:
@@ -93,19 +103,7 @@ def _ends(network: Network, a: Road, b: Road) -> list[tuple[str, str]]:
             for c in network.junctions.get(link.element_id, []):
                 if c.incoming == a.id and c.connecting == b.id and c.contact_point:
                     ends_b.add(c.contact_point)
-    for end, link in (("start", b.predecessor), ("end", b.successor)):
-        if link is None:
-            continue
-        if link.element_type == "road" and link.element_id == a.id:
-            ends_b.add(end)
-            if link.contact_point:
-                ends_a.add(link.contact_point)
-        elif link.element_type == "junction" and link.element_id == a.junction:
-            ends_b.add(end)
-            for c in network.junctions.get(link.element_id, []):
-                if c.incoming == b.id and c.connecting == a.id and c.contact_point:
-                    ends_a.add(c.contact_point)
-    return [(ea, eb) for ea in sorted(ends_a) for eb in sorted(ends_b)]
+    return ends_a, ends_b
 
 
 def _directions(network: Network, chain: list, lane: int | None) -> list[bool]:
