@@ -52,6 +52,7 @@ from .pspline import (
     null_space_spline,
     penalised_system,
 )
+from .smoothing_bias import layout, lowered
 from .steps import FineScale, confirm_steps, transition_zone
 
 #: Scales tried above the path fit's own, each smoothing over twice the length of the last.
@@ -117,6 +118,11 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
                   for c in range(REPLICATES // _CHUNK)]
         across, along = [c[:, :_CHUNK] for c in chunks], [c[:, _CHUNK:] for c in chunks]
         return _null_space_estimate(fit, u_points, weight, u_nodes, np.hstack(across + along))
+    rebuilt = _reconstruction(fit, u_points, values, weight, u_nodes, station, time,
+                              drift_rate, seed)
+    # the reconstructed road laid out at the points, to measure each scale's rounding of peaks
+    road = None if rebuilt is None else layout(
+        station, rebuilt[0].kappa, np.interp(u_points, u_nodes, station))
     scales = []
     for level in range(LEVELS + 1):
         scale = _Scale.build(fit, u_points, values, weight, u_nodes, level)
@@ -127,13 +133,14 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
         # point); the replicates are drawn again for each scale from the same seeds.
         for c in range(REPLICATES // _CHUNK):
             scale.add_replicates(_noise_chunk(seed, c, weight, time, drift_rate), u_nodes)
+        if road is not None:
+            scale.lowered = lowered(rebuilt[0].kappa, scale.smoothed(road, u_nodes),
+                                    scale.kappa)
         scale.system = None
         scales.append(scale)
     kappa = np.array([sc.kappa for sc in scales])
     sd = np.array([np.sqrt(sc.sum_sq / REPLICATES) for sc in scales])
     width = np.array([sc.width for sc in scales])
-    rebuilt = _reconstruction(fit, u_points, values, weight, u_nodes, station, time,
-                              drift_rate, seed)
     chosen = _choose_scales(kappa, sd, width, station)
     level = _ramp(chosen, station, RAMP_WIDTHS * float(np.median(width[0])))
     idx = np.arange(station.size)
@@ -144,12 +151,14 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
     s = (1 - f) * sd[low, idx] + f * sd[high, idx]
     w = (1 - f) * width[low, idx] + f * width[high, idx]
     # every scale up to the one used bounds the curvature on its own: its estimate plus GAMMA
-    # standard deviations, widened by how far it spreads a change; the tightest holds
+    # standard deviations plus how much it rounds off a peak, widened by how far it spreads a
+    # change; the tightest holds
     bound = np.full(station.size, np.inf)
     for j in range(kappa.shape[0]):
         valid = j <= high
         if valid.any():
-            own = _running_max(np.abs(kappa[j]) + GAMMA * sd[j], station, width[j])
+            own = _running_max(np.abs(kappa[j]) + GAMMA * sd[j] + scales[j].lowered, station,
+                               width[j])
             bound[valid] = np.minimum(bound[valid], own[valid])
     # and never below the estimate used plus its uncertainty, widened by the finest spread
     bound = np.maximum(bound, _running_max(np.abs(k) + GAMMA * s, station, width[0]))
@@ -283,6 +292,7 @@ class _Scale:
         self.system, self.rho, self.n_int, self.periodic = system, rho, n_int, periodic
         self.kappa, self.d1, self.d2, self.width = kappa, d1, d2, width
         self.sum_sq = np.zeros_like(kappa)
+        self.lowered = np.zeros_like(kappa)     # how much it rounds off peaks (smoothing_bias)
         self.deltas: list[np.ndarray] | None = None    # the replicates' changes, when kept
 
     @classmethod
@@ -317,6 +327,14 @@ class _Scale:
                  derivative_basis(self.system.knots, SPLINE_DEGREE, u, 2))
         self._basis_cache = (at, bases)
         return bases
+
+    def smoothed(self, values: np.ndarray, u_nodes: np.ndarray) -> np.ndarray:
+        """Curvature at the nodes of other positions ``values`` (m, 2) at the same points,
+        smoothed by this scale (open systems)."""
+        coef = self.system.response(self.rho, values)
+        spline = BSpline(self.system.knots, coef, SPLINE_DEGREE, extrapolate=False)
+        return _cross(spline(u_nodes, nu=1), spline(u_nodes, nu=2)) / np.hypot(
+            *spline(u_nodes, nu=1).T) ** 3
 
     def add_replicates(self, noise: np.ndarray, u_nodes: np.ndarray) -> None:
         """Smooth noise replicates with this scale's normal equations (the fit is linear in
