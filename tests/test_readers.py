@@ -582,3 +582,22 @@ def test_format_helpers():
         format_columns({"a": ([1, 2], ".1f"), "b": ([1], ".1f")})
     with pytest.raises(ValueError, match="comma"):
         format_columns({"a,b": ([1], ".1f")})
+
+
+def test_fixed_point_columns_are_written_as_python_formats_each_value():
+    # The whole-column fast path for fixed-point specifications must give exactly the text of
+    # Python's own correctly rounded format() value by value (the reference), negative zero
+    # dropped: halfway cases, values that round to zero from either side, -0.0, huge values,
+    # non-finite values and random magnitudes from 1e-12 to 1e5.
+    rng = np.random.default_rng(7)
+    values = np.concatenate([
+        rng.normal(size=2000) * 10.0 ** rng.integers(-12, 6, 2000),
+        [0.0, -0.0, -4e-5, -4.9999e-5, -5e-5, -5.0001e-5, 5e-5, 0.125, -0.125, 2.5, -2.5,
+         1e300, -1e300, np.nan, np.inf, -np.inf]])
+    for spec in (".0f", ".1f", ".4f", ".6f", ".7f", ".9f"):
+        expected = []
+        for v in values.tolist():
+            cell = format(v, spec)
+            expected.append(cell[1:] if cell.startswith("-") and set(cell[1:]) <= {"0", "."}
+                            else cell)
+        assert format_column(values, spec) == expected, spec
