@@ -38,13 +38,8 @@ def plot_lateral_error(result: ReplayResult, gate_m: float | None = None,
                       label="lateral error")
     lines = [line]
     if gate_m is not None:
-        for sign in (1.0, -1.0):
-            lines.append(ax.axhline(sign * gate_m, color="tab:red", lw=0.9, ls="--",
-                                    label="--max-lateral-error" if sign > 0 else None))
-    ax.set_xlabel(STATION_LABEL)
-    ax.set_ylabel("lateral error (m)")
-    ax.grid(True, alpha=0.3)
-    ax.legend(loc="upper right", fontsize="small", frameon=False)
+        lines += _both_signs(ax, gate_m, "--", "--max-lateral-error")
+    _finish(ax, "lateral error (m)", "upper right")
     return ReplayArtists(ax=ax, lines=tuple(lines))
 
 
@@ -55,10 +50,7 @@ def plot_replay_speed(result: ReplayResult, ax=None) -> ReplayArtists:
     (planned,) = ax.plot(s, result["reference_speed_mps"], color="0.45", lw=1.0,
                          label="planned (at that time)")
     (driven,) = ax.plot(s, result["speed_mps"], color="tab:blue", lw=1.2, label="driven")
-    ax.set_xlabel(STATION_LABEL)
-    ax.set_ylabel("speed (m/s)")
-    ax.grid(True, alpha=0.3)
-    ax.legend(loc="lower right", fontsize="small", frameon=False)
+    _finish(ax, "speed (m/s)", "lower right")
     return ReplayArtists(ax=ax, lines=(planned, driven))
 
 
@@ -69,14 +61,8 @@ def plot_steer(result: ReplayResult, ax=None) -> ReplayArtists:
     (command,) = ax.plot(s, result["steer_command_rad"], color="0.6", lw=0.8, label="command")
     (angle,) = ax.plot(s, result["steer_rad"], color="tab:green", lw=1.1, label="angle")
     limit = result.vehicle.max_steer_rad
-    lines = [command, angle]
-    for sign in (1.0, -1.0):
-        lines.append(ax.axhline(sign * limit, color="tab:red", lw=0.9, ls=":",
-                                label="angle limit" if sign > 0 else None))
-    ax.set_xlabel(STATION_LABEL)
-    ax.set_ylabel("road-wheel steering (rad)")
-    ax.grid(True, alpha=0.3)
-    ax.legend(loc="upper right", fontsize="small", frameon=False)
+    lines = [command, angle] + _both_signs(ax, limit, ":", "angle limit")
+    _finish(ax, "road-wheel steering (rad)", "upper right")
     return ReplayArtists(ax=ax, lines=tuple(lines))
 
 
@@ -88,10 +74,7 @@ def plot_tyre_use(result: ReplayResult, ax=None) -> ReplayArtists:
     (rear,) = ax.plot(s, result["rear_tyre_use"], color="tab:purple", lw=1.0, label="rear")
     limit = ax.axhline(SATURATED_USE, color="tab:red", lw=0.9, ls="--", label="saturated")
     ax.set_ylim(0.0, 1.1)
-    ax.set_xlabel(STATION_LABEL)
-    ax.set_ylabel("tyre use (1 = friction limit)")
-    ax.grid(True, alpha=0.3)
-    ax.legend(loc="upper right", fontsize="small", frameon=False)
+    _finish(ax, "tyre use (1 = friction limit)", "upper right")
     return ReplayArtists(ax=ax, lines=(front, rear, limit))
 
 
@@ -118,3 +101,17 @@ def replay_figure_bytes(result: ReplayResult, summary: ReplaySummary, fmt: str,
                         gate_m: float | None = None) -> bytes:
     """:func:`plot_replay` as the bytes of a ``png``, ``svg`` or ``pdf`` file (no time stamps)."""
     return figure_bytes(plot_replay(result, summary, gate_m), fmt)
+
+
+def _both_signs(ax, value: float, style: str, label: str) -> list:
+    """Red horizontal lines at +-``value`` (one legend entry)."""
+    return [ax.axhline(sign * value, color="tab:red", lw=0.9, ls=style,
+                       label=label if sign > 0 else None) for sign in (1.0, -1.0)]
+
+
+def _finish(ax, ylabel: str, legend_loc: str) -> None:
+    """Station axis, the quantity's label, a light grid and a frameless legend."""
+    ax.set_xlabel(STATION_LABEL)
+    ax.set_ylabel(ylabel)
+    ax.grid(True, alpha=0.3)
+    ax.legend(loc=legend_loc, fontsize="small", frameon=False)
