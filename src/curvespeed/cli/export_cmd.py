@@ -5,7 +5,7 @@ from __future__ import annotations
 import click
 
 from ..io.trajectory_format import FORMAT_BY_SUFFIX, TrajectoryFormat, format_from_suffix
-from ._common import FiniteFloat, echo, handle_errors
+from ._common import FiniteFloat, echo, handle_errors, route_name
 
 #: Default time step, s (20 samples per second).
 DEFAULT_DT_S = 0.05
@@ -80,7 +80,7 @@ def export(profile_file, output, fmt, dt_s, station_step_m, dwell_s, force):
     outputs.add_output(output, "-o/--output")
 
     with outputs:               # the output checked here; written at the end
-        sp = read_station_profile(profile_file, name=_route_name(profile_file))
+        sp = read_station_profile(profile_file, name=route_name(profile_file))
         if kind is TrajectoryFormat.GEOJSON and not sp.is_geographic:
             raise SpeedFileError(
                 f"{profile_file}: metric-only profile (no lat, lon columns), but GeoJSON "
@@ -118,7 +118,7 @@ def _own_dwells(profile_file, sp):
         return None
     try:
         stops = read_profile_meta(meta).constraints.stops
-    except CurvespeedError:          # said once already, by _route_name: no stop's own dwell
+    except CurvespeedError:          # said once already, by route_name: no stop's own dwell
         return None
     own = np.full(sp.stop_nodes.size, np.nan)
     at = sp.station_m[sp.stop_nodes]
@@ -150,20 +150,3 @@ def _sample(sp, dt_s, station_step_m, dwell_s, own=None):
                 f"every {station_step_m:g} m of station")
     return sample_in_time(sp, dt_s, dwell_s, own), f"every {dt_s:g} s"
 
-
-def _route_name(profile_file) -> str | None:
-    """The route's name from the sidecar next to the profile, if there is a readable one."""
-    import warnings
-
-    from ..errors import CurvespeedError, CurvespeedWarning
-    from ..io.meta_json import default_meta_path, read_profile_meta
-
-    meta = default_meta_path(profile_file)
-    if not meta.exists():
-        return None
-    try:
-        return read_profile_meta(meta).route_name
-    except CurvespeedError as exc:
-        warnings.warn(f"{exc}; the route name is taken from the file name instead",
-                      CurvespeedWarning, stacklevel=2)
-        return None
