@@ -43,7 +43,13 @@ Geometry between nodes
     tangents, which follows a curve far closer than the chord (error of order ``ds**4`` instead
     of ``ds**2 curvature / 8``). Latitude/longitude, where the profile has them, get the same
     interpolation through the step's local conformal map from metres to degrees (see
-    :func:`_interpolate_latlon`).
+    :func:`curvespeed.export_shape.interpolate_latlon`).
+
+Elevation and pitch
+    Where the profile has elevation (``z_m`` and ``grade`` at the nodes, grade the rise over
+    the run of station), the elevation between nodes is the cubic Hermite curve in station
+    with the node grades as slopes, and the pitch is ``atan`` of its slope (nose up positive):
+    on a constant grade ``g`` both are exact, ``z`` linear and pitch ``atan(g)``.
 
 Derived columns: ``yaw_rate_radps = speed * curvature`` and ``lat_accel_mps2 = speed**2 *
 curvature`` (signed, left positive), as for the profile itself.
@@ -60,6 +66,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import rest_step
+from .export_shape import elevation_at, hermite_position, interpolate_latlon, stop_names_at
 from .station_profile import (RAMP_TIME_EXCESS, StationProfile, as_station_profile,
                               check_stations_and_speeds, detect_rest_steps,
                               make_station_profile, planned_time_mismatch,
@@ -115,6 +122,26 @@ class Trajectory:
         Stations of the stops, metres.
     stop_dwell_s : ndarray or None
         Time held at each stop, s, in station order (None: ``dwell_s`` at every stop).
+    elevation_m, pitch_rad : ndarray or None
+        Elevation (metres) and pitch (radians, nose up positive) where the profile has
+        elevation (module docstring).
+    stop_names : tuple of str or None
+        Each stop's name in station order ("" for a stop without one), where the profile's
+        stops have names.
+    stop_name : ndarray of str or None
+        Per sample: the name of the stop the vehicle stands at ("" elsewhere); with
+        ``stop_names``.
+    lap : ndarray of int or None
+        Per sample: the lap it belongs to, from 1, for a run of laps
+        (:mod:`curvespeed.export_laps`); a sample on a join belongs to the lap it starts.
+    lap_stations_m, lap_times_s : ndarray or None
+        The station and time at which each lap starts, and the end of the run (laps + 1
+        values), for a run of laps.
+    start_time : datetime or None
+        The absolute time of ``time_s = 0`` (timezone-aware), when one was given.
+    local_origin : tuple of float, str or None
+        WGS84 (latitude, longitude) in degrees of the local metric frame's origin (``x_m = y_m
+        = 0``), ``"none"`` for a route given in x/y only, None when not known.
     planned_time_s : float
         Time along the route without dwells, s.
     total_time_s : float
@@ -144,6 +171,15 @@ class Trajectory:
     name: str = "route"
     source: str = "profile"
     stop_dwell_s: np.ndarray | None = None
+    elevation_m: np.ndarray | None = None
+    pitch_rad: np.ndarray | None = None
+    stop_names: tuple | None = None
+    stop_name: np.ndarray | None = None
+    lap: np.ndarray | None = None
+    lap_stations_m: np.ndarray | None = None
+    lap_times_s: np.ndarray | None = None
+    start_time: object | None = None
+    local_origin: object | None = None
 
     @property
     def n_samples(self) -> int:
@@ -153,12 +189,25 @@ class Trajectory:
     def is_geographic(self) -> bool:
         return self.lat is not None
 
+    @property
+    def laps(self) -> int:
+        """Number of laps (1 for a trajectory that is not a run of laps)."""
+        return 1 if self.lap_stations_m is None else int(self.lap_stations_m.size - 1)
+
     def columns(self) -> dict[str, np.ndarray]:
-        """Named columns in output order (:data:`TRAJECTORY_COLUMNS`, then lat, lon)."""
+        """Named numeric columns in output order (:data:`TRAJECTORY_COLUMNS`, then lat, lon,
+        then elevation_m, pitch_rad where the profile has elevation, then lap for a run of
+        laps). Text columns (absolute time, stop name) are the writers' (:mod:`curvespeed.io.
+        trajectory`)."""
         out = {name: getattr(self, name) for name in TRAJECTORY_COLUMNS}
         if self.lat is not None:
             out["lat"] = self.lat
             out["lon"] = self.lon
+        if self.elevation_m is not None:
+            out["elevation_m"] = self.elevation_m
+            out["pitch_rad"] = self.pitch_rad
+        if self.lap is not None:
+            out["lap"] = self.lap
         return out
 
 
@@ -205,6 +254,11 @@ def _node_schedule(sp: StationProfile, dwells: np.ndarray) -> tuple[np.ndarray, 
     return arrive, depart, stop
 
 
+def node_arrival_s(profile, dwells) -> np.ndarray:
+    """Time of arrival at every node with the stops' dwells (:func:`stop_dwells`), s."""
+    return _node_schedule(as_station_profile(profile), np.asarray(dwells, dtype=float))[0]
+
+
 def _regular_count(span: float, interval: float) -> int:
     """Samples at ``0, interval, 2 interval, ...`` strictly before ``span`` (the end gets a
     sample of its own): at least one, the start, however large the interval."""
@@ -227,7 +281,7 @@ def count_station_samples(profile, station_step_m: float) -> int:
 
 
 def sample_in_time(profile, dt_s: float, dwell_s: float = 0.0,
-                   stop_dwell_s=None) -> Trajectory:
+                   stop_dwell_s=None, stop_names=None) -> Trajectory:
     """Sample ``profile`` every ``dt_s`` seconds (module docstring for the kinematics).
 
     Samples are at ``t = 0, dt, 2 dt, ...`` strictly before the total time, then one last sample
@@ -243,6 +297,8 @@ def sample_in_time(profile, dt_s: float, dwell_s: float = 0.0,
         Time held at every stop (interior node with zero speed), s (>= 0).
     stop_dwell_s : array or None
         Each stop's own dwell, s, in station order; NaN where ``dwell_s`` applies.
+    stop_names : sequence of str or None
+        Each stop's name in station order ("" for none), carried to the samples at the stop.
 
     Returns
     -------
@@ -266,11 +322,12 @@ def sample_in_time(profile, dt_s: float, dwell_s: float = 0.0,
     # the final sample is the end of the route by definition (not by round-off)
     d[-1] = sp.station_m[-1] - sp.station_m[k[-1]]
     v[-1] = sp.speed_mps[-1]
-    return _build(sp, k, d, t, v, accel, SamplingMode.TIME, dt_s, dwell_s, arrive[-1], dwells)
+    return _build(sp, k, d, t, v, accel, SamplingMode.TIME, dt_s, dwell_s, arrive[-1], dwells,
+                  stop_names)
 
 
 def sample_by_station(profile, station_step_m: float, dwell_s: float = 0.0,
-                      stop_dwell_s=None) -> Trajectory:
+                      stop_dwell_s=None, stop_names=None) -> Trajectory:
     """Sample ``profile`` every ``station_step_m`` metres of station.
 
     Samples are at ``s0, s0 + step, ...`` strictly before the end, then the end of the route;
@@ -287,6 +344,8 @@ def sample_by_station(profile, station_step_m: float, dwell_s: float = 0.0,
         Time held at every stop, s (>= 0).
     stop_dwell_s : array or None
         Each stop's own dwell, s, in station order; NaN where ``dwell_s`` applies.
+    stop_names : sequence of str or None
+        Each stop's name in station order ("" for none), carried to the samples at the stop.
 
     Returns
     -------
@@ -310,7 +369,7 @@ def sample_by_station(profile, station_step_m: float, dwell_s: float = 0.0,
     t = np.where(d <= 0.0, arrive[k], t)
     t = np.where(d >= ds, arrive[k + 1], t)
     return _build(sp, k, d, t, v, accel, SamplingMode.STATION, step, dwell_s, arrive[-1],
-                  dwells)
+                  dwells, stop_names)
 
 
 def _rest_steps_at(sp: StationProfile, k):
@@ -369,7 +428,7 @@ def _state_at_distance(sp: StationProfile, k, d):
 
 
 def _build(sp: StationProfile, k, d, t, v, accel, mode, interval, dwell_s, total,
-           dwells) -> Trajectory:
+           dwells, stop_names=None) -> Trajectory:
     """Interpolate geometry at distance ``d`` into step ``k`` and assemble the trajectory."""
     ds = np.diff(sp.station_m)[k]
     u = d / ds
@@ -377,10 +436,14 @@ def _build(sp: StationProfile, k, d, t, v, accel, mode, interval, dwell_s, total
     h0, h1 = sp.heading_rad[k], sp.heading_rad[k + 1]
     heading = h0 + u * (h1 - h0)
     kappa = sp.curvature_1pm[k] + u * (sp.curvature_1pm[k + 1] - sp.curvature_1pm[k])
-    x, y, dx, dy = _hermite(sp, k, u, ds)
+    x, y, dx, dy = hermite_position(sp, k, u, ds)
     lat = lon = None
     if sp.lat is not None:
-        lat, lon = _interpolate_latlon(sp, k, u, dx, dy)
+        lat, lon = interpolate_latlon(sp, k, u, dx, dy)
+    z = pitch = None
+    if sp.z_m is not None:
+        z, pitch = elevation_at(sp, k, u, ds)
+    names, at_stop = stop_names_at(sp, k, d, ds, stop_names)
     return Trajectory(
         time_s=np.asarray(t, dtype=float), station_m=s, x_m=x, y_m=y, heading_rad=heading,
         speed_mps=v, accel_mps2=np.asarray(accel, dtype=float), curvature_1pm=kappa,
@@ -388,57 +451,12 @@ def _build(sp: StationProfile, k, d, t, v, accel, mode, interval, dwell_s, total
         interval=float(interval), dwell_s=float(dwell_s),
         stop_stations_m=sp.station_m[sp.stop_nodes].copy(), stop_dwell_s=dwells,
         planned_time_s=sp.moving_time_s, total_time_s=float(total), name=sp.name,
-        source=sp.source)
-
-
-def _hermite(sp: StationProfile, k, u, ds):
-    """Cubic Hermite position at fraction ``u`` of step ``k``, and its offset from the chord.
-
-    Tangents are the node headings scaled by the step length (the curve's derivative with
-    respect to ``u`` is ``ds (cos h, sin h)`` at both ends).
-    """
-    x0, x1 = sp.x_m[k], sp.x_m[k + 1]
-    y0, y1 = sp.y_m[k], sp.y_m[k + 1]
-    h0, h1 = sp.heading_rad[k], sp.heading_rad[k + 1]
-    u2, u3 = u * u, u * u * u
-    b10 = u3 - 2.0 * u2 + u       # weight of the start tangent
-    b11 = u3 - u2                 # weight of the end tangent
-    b01 = -2.0 * u3 + 3.0 * u2    # weight of the end point (start point: 1 - b01)
-    # offset from the straight chord p0 + u (p1 - p0): the part the chord misses
-    dx = (b01 - u) * (x1 - x0) + ds * (b10 * np.cos(h0) + b11 * np.cos(h1))
-    dy = (b01 - u) * (y1 - y0) + ds * (b10 * np.sin(h0) + b11 * np.sin(h1))
-    x = x0 + u * (x1 - x0) + dx
-    y = y0 + u * (y1 - y0) + dy
-    return x, y, dx, dy
-
-
-def _interpolate_latlon(sp: StationProfile, k, u, dx, dy):
-    """Latitude/longitude at fraction ``u`` of step ``k``, consistent with the plan position.
-
-    The chord part is linear in latitude/longitude between the nodes (exact at the nodes). The
-    small offset ``(dx, dy)`` of the curve from the chord (at most ``ds**2 curvature / 8``, about
-    8 mm for a 1 m step on a 15 m radius) is mapped to degrees by the step's local conformal
-    map, taken from the chord itself: the complex ratio of the chord in (east-scaled longitude,
-    latitude) degrees to the chord in metres. The projection behind the profile is conformal, so
-    this map is a rotation and a scale; treating degrees of latitude and of scaled longitude as
-    equal lengths (a sphere) errs by at most 0.7 % (the WGS84 ratio of meridian to prime-vertical
-    radius) of that offset, below 0.1 mm.
-    """
-    lat0, lat1 = sp.lat[k], sp.lat[k + 1]
-    lon0, lon1 = sp.lon[k], sp.lon[k + 1]
-    coslat = np.cos(np.radians(0.5 * (lat0 + lat1)))
-    dlon = (lon1 - lon0 + 180.0) % 360.0 - 180.0   # across the antimeridian too
-    chord_m = (sp.x_m[k + 1] - sp.x_m[k]) + 1j * (sp.y_m[k + 1] - sp.y_m[k])
-    chord_deg = dlon * coslat + 1j * (lat1 - lat0)
-    offset_deg = chord_deg / chord_m * (dx + 1j * dy)
-    lat = lat0 + u * (lat1 - lat0) + offset_deg.imag
-    lon = lon0 + u * dlon + offset_deg.real / coslat
-    lon = (lon + 180.0) % 360.0 - 180.0
-    return lat, lon
+        source=sp.source, elevation_m=z, pitch_rad=pitch, stop_names=names, stop_name=at_stop)
 
 
 __all__ = ["RAMP_TIME_EXCESS", "SamplingMode", "StationProfile", "TRAJECTORY_COLUMNS",
            "Trajectory", "as_station_profile", "check_stations_and_speeds",
            "count_station_samples", "count_time_samples", "detect_rest_steps",
-           "make_station_profile", "planned_time_mismatch", "rest_time_coef_from_times",
+           "make_station_profile", "node_arrival_s", "planned_time_mismatch",
+           "rest_time_coef_from_times",
            "sample_by_station", "sample_in_time", "steps_next_to_rest", "stop_dwells"]
