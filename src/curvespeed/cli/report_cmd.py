@@ -66,6 +66,13 @@ def report(profile_file, check_file, output, meta_file, force):
             solver = "not known (no sidecar next to the profile)"
             notes.append(f"No sidecar {sidecar_path}: the solver and the route file's hash are "
                          "not known.")
+        if sidecar is not None and sidecar.constraints.stops:
+            # the plan's stops, with their names and dwells, from the sidecar (check judges
+            # the speeds given and has no stops of its own)
+            from ..io.meta_json import json_safe
+
+            stops = json_safe(sidecar.constraints.to_dict())["stops"]
+            check = dict(check, constraints=dict(check.get("constraints") or {}, stops=stops))
         outputs.write_text(output, report_text(check, x, y, doing="planned", files=files,
                                                solver=solver, notes=notes))
     echo(f"wrote the report {output} from {profile_file} and {check_file}")
