@@ -214,3 +214,29 @@ def test_laps_must_be_a_whole_number_from_one(laps, tmp_path, value):
 def test_a_missing_launch_lap_file_is_named(laps, tmp_path):
     message = refused(laps, tmp_path, "--laps", "2", "--launch-lap", tmp_path / "none.csv")
     assert "none.csv" in message and "no such file" in message
+
+
+def test_a_stop_on_the_loop_is_held_on_every_lap_with_its_name(tmp_path):
+    limits = tmp_path / "limits.toml"
+    limits.write_text('[limits]\n[[stop]]\nstation_m = 2000.0\nname = "pit"\ndwell_s = 12\n')
+    flying, launch = tmp_path / "lap.csv", tmp_path / "launch.csv"
+    assert run("plan", LOOP, "-l", limits, "-o", flying).exit_code == 0
+    v0 = flying.read_text().splitlines()[1].split(",")[6]
+    result = run("plan", LOOP, "-l", limits, "--open", "--start-speed", "0", "--end-speed", v0,
+                 "-o", launch)
+    assert result.exit_code == 0, result.output
+    out = tmp_path / "run.json"
+    result = run("export", flying, "-o", out, "--laps", "3", "--launch-lap", launch)
+    assert result.exit_code == 0, result.output
+    doc = json.loads(out.read_text())
+    length = float(read_table_csv(flying).columns["station_m"][-1])
+    stop = doc["stop_stations_m"][0]
+    # the same stop on each lap, one loop length apart (stations to 0.1 mm, summed per lap)
+    np.testing.assert_allclose(doc["stop_stations_m"], stop + length * np.arange(3), atol=3e-4)
+    assert doc["stop_names"] == ["pit"] * 3 and doc["stop_dwell_s"] == [12.0] * 3
+    # closed form: the laps' moving times plus one 12 s dwell per lap
+    expected = last_time(launch) + 2 * last_time(flying) + 3 * 12.0
+    assert doc["total_time_s"] == pytest.approx(expected, abs=RUN_TIME_S)
+    names = np.array(doc["columns"]["stop_name"])
+    laps_at_stop = np.unique(np.array(doc["columns"]["lap"])[names == "pit"])
+    assert laps_at_stop.tolist() == [1, 2, 3]
