@@ -185,3 +185,8 @@ def test_a_route_in_metres_has_no_local_origin(tmp_path):
     assert doc["local_origin"] == "none"
     # the mountain road has elevation: its trajectory carries elevation and pitch
     assert {"elevation_m", "pitch_rad"} <= set(doc["columns"])
+    # and no latitude/longitude, which GPX needs: refused, nothing written
+    gpx = tmp_path / "t.gpx"
+    result = run("export", profile, "-o", gpx)
+    assert result.exit_code == 2 and not gpx.exists(), result.output
+    assert "metric-only" in result.output and "GPX 1.1" in result.output

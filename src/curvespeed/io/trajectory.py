@@ -112,16 +112,16 @@ def write_trajectory(trajectory: Trajectory, path: str | os.PathLike,
     Raises
     ------
     OutputError
-        ``path`` may not be written (:class:`~curvespeed.io.atomic.OutputFiles`), or GeoJSON was
-        asked for a metric-only trajectory.
+        ``path`` may not be written (:class:`~curvespeed.io.atomic.OutputFiles`), or GeoJSON or
+        GPX was asked for a metric-only trajectory.
     """
     fmt = TrajectoryFormat(fmt)
     if fmt in (TrajectoryFormat.GEOJSON, TrajectoryFormat.GPX) and not trajectory.is_geographic:
         raise OutputError(
-            f"{path}: cannot write {fmt.value}: {trajectory.source} is a metric-only profile (no "
-            "lat, lon columns) and GeoJSON (RFC 7946) and GPX need WGS84 longitude/latitude; "
-            "export it "
-            "as csv or json, or plan the route from a geographic file (lat,lon CSV, GeoJSON, GPX)")
+            f"{path}: cannot write {'GeoJSON' if fmt is TrajectoryFormat.GEOJSON else 'GPX'}: "
+            f"{trajectory.source} is a metric-only profile (no lat, lon columns) and GeoJSON "
+            "(RFC 7946) and GPX need WGS84 longitude/latitude; export it as csv or json, or plan "
+            "the route from a geographic file (lat,lon CSV, GeoJSON, GPX)")
     return write_text_atomic(trajectory_text(trajectory, fmt), path, force)
 
 
@@ -317,4 +317,5 @@ def _check_finite(trajectory: Trajectory) -> None:
 
 __all__ = ["COLUMN_FORMATS", "FORMAT_BY_SUFFIX", "TRAJECTORY_COLUMNS", "TrajectoryFormat",
            "format_from_suffix", "trajectory_columns", "trajectory_text", "write_trajectory",
-           "write_trajectory_csv", "write_trajectory_geojson", "write_trajectory_json"]
+           "write_trajectory_csv", "write_trajectory_geojson", "write_trajectory_json",
+           "has_stop_names", "stop_points", "extra_metadata"]
