@@ -304,9 +304,9 @@ def describe_fit(provenance: dict) -> list[str]:
     return lines
 
 
-def route_name(profile_file) -> str | None:
-    """The route's name from the sidecar next to the profile, if there is a readable one (a
-    broken sidecar is warned about, and the name then comes from the file name)."""
+def sidecar_or_none(profile_file, instead: str):
+    """The sidecar next to the profile, if there is a readable one; a broken one is warned
+    about (its error, then ``instead``: what the command does without it) and gives None."""
     import warnings
 
     from ..errors import CurvespeedWarning
@@ -316,11 +316,17 @@ def route_name(profile_file) -> str | None:
     if not meta.exists():
         return None
     try:
-        return read_profile_meta(meta).route_name
+        return read_profile_meta(meta)
     except CurvespeedError as exc:
-        warnings.warn(f"{exc}; the route name is taken from the file name instead",
-                      CurvespeedWarning, stacklevel=2)
+        warnings.warn(f"{exc}; {instead}", CurvespeedWarning, stacklevel=3)
         return None
+
+
+def route_name(profile_file) -> str | None:
+    """The route's name from the sidecar next to the profile, if there is a readable one (a
+    broken sidecar is warned about, and the name then comes from the file name)."""
+    sidecar = sidecar_or_none(profile_file, "the route name is taken from the file name instead")
+    return None if sidecar is None else sidecar.route_name
 
 
 def profile_sidecar(profile_file, meta_file=None, without: str | None = None):
@@ -332,9 +338,6 @@ def profile_sidecar(profile_file, meta_file=None, without: str | None = None):
     missing one noted on standard error, both in those words. With ``without`` None, a broken
     sidecar next to the profile is an error like any input.
     """
-    import warnings
-
-    from ..errors import CurvespeedWarning
     from ..io.meta_json import default_meta_path, read_profile_meta
 
     if meta_file is not None:
@@ -347,12 +350,7 @@ def profile_sidecar(profile_file, meta_file=None, without: str | None = None):
         return None, default
     if without is None:
         return read_profile_meta(default), default
-    try:
-        return read_profile_meta(default), default
-    except CurvespeedError as exc:
-        warnings.warn(f"{exc}; {without} (give --meta FILE to add them)", CurvespeedWarning,
-                      stacklevel=2)
-        return None, default
+    return sidecar_or_none(profile_file, f"{without} (give --meta FILE to add them)"), default
 
 
 def read_profile_with_sidecar(profile_file, meta_file=None, without: str | None = None):

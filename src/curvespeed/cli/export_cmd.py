@@ -5,7 +5,7 @@ from __future__ import annotations
 import click
 
 from ..io.trajectory_format import FORMAT_BY_SUFFIX, TrajectoryFormat, format_from_suffix
-from ._common import FiniteFloat, echo, handle_errors, route_name
+from ._common import FiniteFloat, echo, handle_errors, sidecar_or_none
 
 #: Default time step, s (20 samples per second).
 DEFAULT_DT_S = 0.05
@@ -115,7 +115,7 @@ def export(profile_file, output, fmt, dt_s, station_step_m, dwell_s, laps, launc
     outputs.add_output(output, "-o/--output")
 
     with outputs:               # the output checked here; written at the end
-        sp, sidecar, _ = _read(profile_file)
+        sp, sidecar = _read(profile_file)
         if kind in (TrajectoryFormat.GEOJSON, TrajectoryFormat.GPX) and not sp.is_geographic:
             raise SpeedFileError(
                 f"{profile_file}: metric-only profile (no lat, lon columns), but "
@@ -161,20 +161,11 @@ def _format(fmt, output) -> TrajectoryFormat:
 def _read(profile_file):
     """A profile and its sidecar (None without a readable one: a broken sidecar is warned
     about and the route name then comes from the file name)."""
-    from ..errors import CurvespeedError
-    from ..io.meta_json import default_meta_path, read_profile_meta
     from ..io.profile_csv import read_station_profile
 
-    name = route_name(profile_file)
-    sp = read_station_profile(profile_file, name=name)
-    meta = default_meta_path(profile_file)
-    sidecar = None
-    if name is not None or meta.exists():
-        try:
-            sidecar = read_profile_meta(meta)
-        except CurvespeedError:          # said once already, by route_name
-            sidecar = None
-    return sp, sidecar, meta
+    sidecar = sidecar_or_none(profile_file, "the route name is taken from the file name instead")
+    name = None if sidecar is None else sidecar.route_name
+    return read_station_profile(profile_file, name=name), sidecar
 
 
 def _stop_info(sidecar, sp):
@@ -211,7 +202,7 @@ def _run_of_laps(profile_file, sp, sidecar, laps, launch_file, finish_file, flyi
     laps_read = {"flying": (sp, flying_stops)}
     for kind, path in (("launch", launch_file), ("finish", finish_file)):
         if path is not None:
-            other, other_sidecar, _ = _read(path)
+            other, other_sidecar = _read(path)
             laps_read[kind] = (other, _stop_info(other_sidecar, other))
     launch = laps_read.get("launch", (None,))[0]
     finish = laps_read.get("finish", (None,))[0]
