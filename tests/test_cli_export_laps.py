@@ -240,3 +240,9 @@ def test_a_stop_on_the_loop_is_held_on_every_lap_with_its_name(tmp_path):
     names = np.array(doc["columns"]["stop_name"])
     laps_at_stop = np.unique(np.array(doc["columns"]["lap"])[names == "pit"])
     assert laps_at_stop.tolist() == [1, 2, 3]
+
+
+def test_a_run_too_long_to_hold_is_refused_before_any_work(laps, tmp_path):
+    # 1000 laps of the loop's 3,763 stations would be 3.8 million stations (limit 2 million)
+    message = refused(laps, tmp_path, "--laps", "1000")
+    assert "--laps" in message and "fewer laps" in message
