@@ -51,7 +51,8 @@ def one_warning(result, *fragments) -> str:
 def test_top_speed_given_in_kmh_is_warned_with_its_value_in_mps(tmp_path, value, kmh, ours):
     out = tmp_path / "p.csv"
     result = run("plan", bend(tmp_path), "-o", out, "--max-speed", value)
-    one_warning(result, "command-line", f"max_speed_mps = {value} m/s is {kmh}",
+    # a value from the command line is named by its option, as the user wrote it
+    one_warning(result, "command-line", f"--max-speed {value} m/s is {kmh}",
                 f"if the value is {value} km/h, that is {ours}")
     assert out.exists()        # a warning, not a refusal: the plan is written
 
@@ -95,8 +96,9 @@ def test_check_warns_about_a_zone_in_kmh_too(tmp_path):
 ])
 def test_acceleration_given_in_g_is_warned_with_its_value_in_mps2(tmp_path, option, key, ours):
     result = run("plan", bend(tmp_path), "-o", tmp_path / "p.csv", option, "0.3")
-    one_warning(result, f"{key} = 0.3 m/s^2 is 0.0306 g",
-                f"if the value is 0.3 g, that is {ours}")
+    warning = one_warning(result, f"{option} 0.3 m/s^2 is 0.0306 g",
+                          f"if the value is 0.3 g, that is {ours}")
+    assert key not in warning, warning          # the option the user gave, not the file key
 
 
 def test_lateral_cap_in_g_from_the_limits_file_names_the_file(tmp_path):
@@ -104,7 +106,25 @@ def test_lateral_cap_in_g_from_the_limits_file_names_the_file(tmp_path):
     limits.write_text("[limits]\nmax_lateral_accel_mps2 = 0.25\n")
     result = run("plan", bend(tmp_path), "-o", tmp_path / "p.csv", "-l", limits)
     # 0.25 g = 0.25 * 9.80665 = 2.45 m/s^2
-    one_warning(result, str(limits), "if the value is 0.25 g, that is 2.45 m/s^2")
+    one_warning(result, str(limits), "max_lateral_accel_mps2 = 0.25 m/s^2 is 0.0255 g",
+                "if the value is 0.25 g, that is 2.45 m/s^2")
+
+
+def test_file_values_keep_their_key_and_options_their_name_in_one_run(tmp_path):
+    limits = tmp_path / "limits.toml"
+    limits.write_text("[limits]\nmax_decel_mps2 = 0.3\n")
+    result = run("plan", bend(tmp_path), "-o", tmp_path / "p.csv", "-l", limits,
+                 "--max-speed", "90")
+    # 90 m/s = 324 km/h; 90 km/h = 25.00 m/s; 0.3 m/s^2 = 0.0306 g (g = 9.80665 m/s^2)
+    one_warning(result, "--max-speed 90 m/s is 324 km/h", "that is 25.00 m/s")
+    one_warning(result, "max_decel_mps2 = 0.3 m/s^2 is 0.0306 g")
+    assert not [w for w in warnings_of(result) if "max_speed_mps = 90" in w], result.output
+
+
+def test_zone_above_a_top_speed_from_the_command_line_names_the_option(tmp_path):
+    result = run("plan", bend(tmp_path), "-o", tmp_path / "p.csv", "--max-speed", "20",
+                 "--zone", "0:150:50")
+    one_warning(result, "--zone", "above the top speed --max-speed 20 m/s")
 
 
 def test_usual_comfort_caps_are_not_warned(tmp_path):
@@ -133,7 +153,7 @@ def test_power_in_kw_is_refused_naming_the_power_not_the_jerk_bound(tmp_path, so
     assert result.exit_code == 2, result.output
     assert not out.exists()
     one = [w for w in result.output.splitlines() if w.startswith("warning:")
-           and "max_power_w = 110 W" in w]
+           and "--max-power 110 W for --mass 1500" in w]
     assert one and "if the power is 110 kW, that is 110000 W" in one[0], result.output
     errors = [line for line in result.output.splitlines() if line.startswith("error:")]
     assert len(errors) == 1, result.output

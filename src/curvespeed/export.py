@@ -43,7 +43,13 @@ Geometry between nodes
     tangents, which follows a curve far closer than the chord (error of order ``ds**4`` instead
     of ``ds**2 curvature / 8``). Latitude/longitude, where the profile has them, get the same
     interpolation through the step's local conformal map from metres to degrees (see
-    :func:`_interpolate_latlon`).
+    :func:`curvespeed.export_shape.interpolate_latlon`).
+
+Elevation and pitch
+    Where the profile has elevation (``z_m`` and ``grade`` at the nodes, grade the rise over
+    the run of station), the elevation between nodes is the cubic Hermite curve in station
+    with the node grades as slopes, and the pitch is ``atan`` of its slope (nose up positive):
+    on a constant grade ``g`` both are exact, ``z`` linear and pitch ``atan(g)``.
 
 Derived columns: ``yaw_rate_radps = speed * curvature`` and ``lat_accel_mps2 = speed**2 *
 curvature`` (signed, left positive), as for the profile itself.
@@ -59,8 +65,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import lateral_rates, rest_step
-from .errors import SpeedFileError
+from . import rest_step
+from .export_shape import elevation_at, hermite_position, interpolate_latlon, stop_names_at
+from .station_profile import (RAMP_TIME_EXCESS, StationProfile, as_station_profile,
+                              check_stations_and_speeds, detect_rest_steps,
+                              make_station_profile, planned_time_mismatch,
+                              rest_time_coef_from_times, steps_next_to_rest)
 
 #: Columns every trajectory has, in output order (units in the names).
 TRAJECTORY_COLUMNS = ("time_s", "station_m", "x_m", "y_m", "heading_rad", "speed_mps",
@@ -72,339 +82,6 @@ class SamplingMode(enum.Enum):
 
     TIME = "time"
     STATION = "station"
-
-
-@dataclass(frozen=True)
-class StationProfile:
-    """Planned speeds at stations, with the route geometry: what export and plots need.
-
-    Built from a :class:`~curvespeed.profile.Profile` (:meth:`from_profile`) or from a profile
-    CSV (:func:`curvespeed.io.profile_csv.read_station_profile`), always through
-    :func:`make_station_profile`, which checks it.
-
-    Attributes
-    ----------
-    station_m : ndarray, shape (n+1,)
-        Node stations, metres, strictly increasing.
-    x_m, y_m : ndarray
-        Plan position of the nodes, metres.
-    heading_rad : ndarray
-        Direction of travel, radians counter-clockwise from +x, continuous (unwrapped).
-    curvature_1pm : ndarray
-        Signed curvature, 1/m, positive turning left.
-    speed_mps : ndarray
-        Planned speed at the nodes, m/s (>= 0; 0 at stops).
-    time_s : ndarray or None
-        Planned time at the nodes as the profile states it, s (for comparison only: export
-        recomputes node times from stations and speeds, see :attr:`node_time_s`).
-    accel_mps2, jerk_mps3, lat_accel_mps2 : ndarray or None
-        The profile's per-node acceleration (m/s^2), jerk (m/s^3) and lateral acceleration
-        (m/s^2), where it has them.
-    limit_speed_mps : ndarray or None
-        The node-wise speed ceiling (lateral limits, top speed, zones, stops), m/s.
-    binding : ndarray of str or None
-        The limit that binds at each node.
-    z_m, grade : ndarray or None
-        Elevation (metres) and grade (rise over run).
-    lat, lon : ndarray or None
-        WGS84 latitude and longitude of the nodes, degrees, for geographic routes.
-    name, source : str
-        Route name (for titles) and where the profile came from (for messages).
-    where : ndarray of str or None
-        Label of each node in its source ("line 12"), for messages.
-    rest_time_coef : ndarray, shape (n,)
-        For each step next to rest driven with a jerk ramp, the ``c`` of its time ``c ds / v``
-        (between 2 and 3, module docstring); 0 for the steps of constant acceleration.
-    curvature_bound_1pm : ndarray or None
-        The bound on |curvature| the profile was planned on (1/m), where it has one; figures
-        judge uses on it, as ``check`` does.
-    """
-
-    station_m: np.ndarray
-    x_m: np.ndarray
-    y_m: np.ndarray
-    heading_rad: np.ndarray
-    curvature_1pm: np.ndarray
-    speed_mps: np.ndarray
-    time_s: np.ndarray | None = None
-    accel_mps2: np.ndarray | None = None
-    jerk_mps3: np.ndarray | None = None
-    lat_accel_mps2: np.ndarray | None = None
-    limit_speed_mps: np.ndarray | None = None
-    binding: np.ndarray | None = None
-    z_m: np.ndarray | None = None
-    grade: np.ndarray | None = None
-    lat: np.ndarray | None = None
-    lon: np.ndarray | None = None
-    name: str = "route"
-    source: str = "profile"
-    where: np.ndarray | None = None
-    rest_time_coef: np.ndarray | None = None
-    curvature_bound_1pm: np.ndarray | None = None
-
-    @classmethod
-    def from_profile(cls, profile) -> "StationProfile":
-        """The station profile of a planned :class:`~curvespeed.profile.Profile`."""
-        geo = profile.geometry
-        latlon = geo.latlon()
-        return make_station_profile(
-            geo.station_m, geo.x_m, geo.y_m, geo.heading_rad, geo.curvature_1pm,
-            profile.speed_mps, time_s=profile.time_s, accel_mps2=profile.accel_mps2,
-            jerk_mps3=profile.jerk_mps3, lat_accel_mps2=profile.lat_accel_mps2,
-            limit_speed_mps=profile.limit_speed_mps, binding=profile.binding, z_m=geo.z_m,
-            grade=geo.grade, lat=None if latlon is None else latlon[0],
-            lon=None if latlon is None else latlon[1], name=geo.name, source=geo.source,
-            rest_time_coef=profile.rest_time_coef, curvature_bound_1pm=geo.curvature_bound_1pm)
-
-    @property
-    def n_nodes(self) -> int:
-        return int(self.station_m.size)
-
-    @property
-    def length_m(self) -> float:
-        """Distance from the first to the last node, metres."""
-        return float(self.station_m[-1] - self.station_m[0])
-
-    @property
-    def is_geographic(self) -> bool:
-        return self.lat is not None
-
-    @property
-    def rest_step(self) -> np.ndarray:
-        """Steps next to rest driven with a jerk ramp, bool per step."""
-        return self.rest_time_coef > 0.0
-
-    @property
-    def step_accel_mps2(self) -> np.ndarray:
-        """``(v[k+1]^2 - v[k]^2) / (2 ds)`` of each step, m/s^2: the constant acceleration of a
-        constant-acceleration step, the distance-mean acceleration of one next to rest."""
-        v = self.speed_mps
-        return (v[1:] ** 2 - v[:-1] ** 2) / (2.0 * np.diff(self.station_m))
-
-    @property
-    def step_time_s(self) -> np.ndarray:
-        """Time of each step, ``2 ds / (v[k] + v[k+1])`` (``c ds / ...`` for a step next to rest,
-        :attr:`rest_time_coef`), s; finite (checked on construction)."""
-        v = self.speed_mps
-        coef = np.where(self.rest_step, self.rest_time_coef, 2.0)
-        return coef * np.diff(self.station_m) / (v[:-1] + v[1:])
-
-    @property
-    def step_lateral_jerk_mps3(self) -> np.ndarray:
-        """Largest rate of change of the lateral acceleration ``curvature * v^2`` along each
-        step as driven (a bound, with the sign of the larger rate), m/s^3: the planner's
-        definition (:meth:`SpeedProblem.step_lateral_jerk
-        <curvespeed.problem.SpeedProblem.step_lateral_jerk>`), with each step driven as
-        :attr:`rest_time_coef` says. The profile does not say whether the route is a loop:
-        the first and last steps are taken as an open route's (one neighbour each)."""
-        ramp = self.rest_step
-        f = rest_step.accel_factor(rest_step.shape_from_time_coef(
-            np.where(ramp, self.rest_time_coef, 2.0)))
-        leaving = ramp & (self.speed_mps[:-1] <= 0.0)
-        f_start = np.where(ramp, np.where(leaving, 0.0, f), 1.0)
-        f_end = np.where(ramp, np.where(leaving, f, 0.0), 1.0)
-        forms = lateral_rates.step_rate_forms(self.curvature_1pm, np.diff(self.station_m),
-                                              False, f_start, f_end)
-        return lateral_rates.step_lateral_jerk(forms, self.speed_mps ** 2)
-
-    @property
-    def node_time_s(self) -> np.ndarray:
-        """Time at each node recomputed from stations and speeds, without dwells, s."""
-        return np.concatenate(([0.0], np.cumsum(self.step_time_s)))
-
-    @property
-    def moving_time_s(self) -> float:
-        """Planned time from the first node to the last, without dwells, s."""
-        return float(np.sum(self.step_time_s))
-
-    @property
-    def stop_nodes(self) -> np.ndarray:
-        """Interior nodes where the speed is zero (stops), as indices."""
-        v = self.speed_mps
-        return np.flatnonzero(v[1:-1] <= 0.0) + 1
-
-    def node_label(self, k: int) -> str:
-        """``"line 12 (station 34.0 m)"``: where node ``k`` is, for messages."""
-        place = f"{self.where[k]} " if self.where is not None else f"node {k} "
-        return f"{place}(station {self.station_m[k]:.1f} m)"
-
-
-def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_mps, *,
-                         time_s=None, accel_mps2=None, jerk_mps3=None, lat_accel_mps2=None,
-                         limit_speed_mps=None, binding=None, z_m=None, grade=None, lat=None,
-                         lon=None, name: str = "route", source: str = "profile",
-                         where=None, rest_time_coef=None,
-                         curvature_bound_1pm=None) -> StationProfile:
-    """Check arrays and build a :class:`StationProfile`.
-
-    ``rest_time_coef`` (one value per step: the ``c`` of a step next to rest driven with a jerk
-    ramp, 0 for constant acceleration) says how each step is driven; by default the steps next
-    to rest are recognised from ``time_s`` (see :func:`detect_rest_steps`), and without
-    ``time_s`` every step has constant acceleration.
-
-    Raises
-    ------
-    SpeedFileError
-        Arrays of different lengths, fewer than two nodes, a value that is not finite, stations
-        not strictly increasing or a negative speed (:func:`check_stations_and_speeds`), a step
-        with zero speed at both ends (the vehicle would never cover it), or only one of
-        ``lat``/``lon``. The message names ``source``, the node (``where`` label or index) and
-        its station.
-    ValueError
-        ``rest_time_coef`` without one value per step, a value other than 0 or within [2, 3],
-        or one set on a step that does not have exactly one end at rest
-        (:func:`steps_next_to_rest`); readers check their files for this first.
-    """
-    def arr(values):
-        return None if values is None else np.asarray(values, dtype=float).ravel()
-
-    s, v = arr(station_m), arr(speed_mps)
-    required = {"station_m": s, "x_m": arr(x_m), "y_m": arr(y_m),
-                "heading_rad": arr(heading_rad), "curvature_1pm": arr(curvature_1pm),
-                "speed_mps": v}
-    optional = {"time_s": arr(time_s), "accel_mps2": arr(accel_mps2),
-                "jerk_mps3": arr(jerk_mps3), "lat_accel_mps2": arr(lat_accel_mps2),
-                "limit_speed_mps": arr(limit_speed_mps), "z_m": arr(z_m), "grade": arr(grade),
-                "lat": arr(lat), "lon": arr(lon), "curvature_bound_1pm": arr(curvature_bound_1pm)}
-    n = s.size
-    labels = None if where is None else np.asarray(where, dtype=object).ravel()
-    text = None if binding is None else np.asarray(binding, dtype=object).ravel()
-
-    def at(k: int) -> str:
-        place = f"{labels[k]}" if labels is not None else f"node {k}"
-        return f"{source}: {place} (station {s[k]:.1f} m)"
-
-    for name_, values in list(required.items()) + list(optional.items()):
-        if values is not None and values.size != n:
-            raise SpeedFileError(f"{source}: {name_} has {values.size} values for {n} stations")
-    for other, size in (("where", None if labels is None else labels.size),
-                        ("binding", None if text is None else text.size)):
-        if size is not None and size != n:
-            raise SpeedFileError(f"{source}: {other} has {size} values for {n} stations")
-    if n < 2:
-        raise SpeedFileError(f"{source}: {n} station(s); a profile needs at least 2")
-    if (optional["lat"] is None) != (optional["lon"] is None):
-        raise SpeedFileError(f"{source}: has only one of lat, lon; give both columns or neither")
-    for name_, values in list(required.items()) + list(optional.items()):
-        if values is None:
-            continue
-        bad = np.flatnonzero(~np.isfinite(values))
-        if bad.size:
-            k = int(bad[0])
-            place = labels[k] if labels is not None else f"node {k}"
-            raise SpeedFileError(f"{source}: {place}: {name_} is not a finite number; fix or "
-                                 "remove that row")
-    check_stations_and_speeds(s, v, source, labels)
-    bad = np.flatnonzero((v[:-1] <= 0.0) & (v[1:] <= 0.0))
-    if bad.size:
-        k = int(bad[0])
-        raise SpeedFileError(f"{at(k)}: speed is zero here and at the next station "
-                             f"({s[k + 1]:.1f} m), so the vehicle never covers that step; "
-                             "plan stops at least two stations apart")
-
-    if rest_time_coef is None:
-        coef = detect_rest_steps(s, v, optional["time_s"])
-    else:
-        coef = np.asarray(rest_time_coef, dtype=float).ravel()
-        ramp = coef != 0.0
-        if (coef.size != n - 1 or np.any(ramp & ~steps_next_to_rest(v))
-                or np.any(ramp & ((coef < 2.0) | (coef > 3.0)))):
-            raise ValueError("rest_time_coef must have one value per step, 0 or in [2, 3], "
-                             "non-zero only on steps with exactly one end at rest")
-    return StationProfile(
-        station_m=s, x_m=required["x_m"], y_m=required["y_m"],
-        heading_rad=np.unwrap(required["heading_rad"]), curvature_1pm=required["curvature_1pm"],
-        speed_mps=v, binding=text, name=name, source=source, where=labels,
-        rest_time_coef=coef,
-        **optional)
-
-
-def check_stations_and_speeds(station_m, speed_mps, source: str, where=None) -> None:
-    """Check rows of station and speed: stations strictly increasing, no negative speed.
-
-    The one check of station/speed rows, for profiles (:func:`make_station_profile`) and for
-    speeds to check (:mod:`curvespeed.io.speed_trace`). Raises at the first row that fails.
-
-    Parameters
-    ----------
-    station_m, speed_mps : array_like, shape (n,)
-        Stations (metres) and speeds (m/s) of the rows, finite.
-    source : str
-        Where the rows come from (a file name), at the start of every message.
-    where : sequence of str, optional
-        Label of each row in its source ("line 12"); default "node k".
-
-    Raises
-    ------
-    SpeedFileError
-        A station that is not after the previous one (both rows named), or a negative speed
-        (row and station named); the message says what to do.
-    """
-    s = np.asarray(station_m, dtype=float)
-    v = np.asarray(speed_mps, dtype=float)
-
-    def place(k: int) -> str:
-        return str(where[k]) if where is not None else f"node {k}"
-
-    back = np.flatnonzero(np.diff(s) <= 0.0)
-    if back.size:
-        k = int(back[0]) + 1
-        # 10 significant digits: the 0.1 mm of a written station on routes up to 1000 km
-        raise SpeedFileError(f"{source}: {place(k)}: station_m {s[k]:.10g} is not after "
-                             f"{s[k - 1]:.10g} on {place(k - 1)}; stations must increase in "
-                             "driving order (sort the rows by station and remove repeats)")
-    negative = np.flatnonzero(v < 0.0)
-    if negative.size:
-        k = int(negative[0])
-        raise SpeedFileError(f"{source}: {place(k)}: speed_mps {v[k]:g} is negative (station "
-                             f"{s[k]:.1f} m); give speeds as magnitudes along the direction of "
-                             "travel")
-
-
-def steps_next_to_rest(speed_mps) -> np.ndarray:
-    """Steps with exactly one end at rest (speed 0), bool per step: the only steps that may
-    be driven with a jerk ramp (module docstring)."""
-    v = np.asarray(speed_mps, dtype=float)
-    return (v[:-1] <= 0.0) != (v[1:] <= 0.0)
-
-
-#: A step next to rest whose time exceeds ``2 ds / v`` by more than this fraction was driven
-#: with a jerk ramp. Times written to 1e-6 s move the ratio by far less; a ramp this short
-#: (``c = 2.002``, ``u = 1e-3``) changes the step's time by 0.1 % and is told apart from
-#: constant acceleration by nothing else.
-RAMP_TIME_EXCESS = 1e-3
-
-
-def rest_time_coef_from_times(station_m, speed_mps, time_s) -> np.ndarray:
-    """The ``c`` of each step's time ``c ds / (v[k] + v[k+1])`` from the profile's own times,
-    clipped to [2, 3] (rounding of the written times)."""
-    s, v = np.asarray(station_m, dtype=float), np.asarray(speed_mps, dtype=float)
-    ratio = np.diff(np.asarray(time_s, dtype=float)) * (v[:-1] + v[1:]) / np.diff(s)
-    return np.clip(ratio, 2.0, 3.0)
-
-
-def detect_rest_steps(station_m, speed_mps, time_s) -> np.ndarray:
-    """Steps next to rest that the profile's times show were driven with a jerk ramp.
-
-    A step with exactly one end at rest takes ``2 ds / v`` at constant acceleration and
-    ``c ds / v`` (``c`` up to 3) with a jerk ramp (module docstring); its time in ``time_s``
-    decides, beyond :data:`RAMP_TIME_EXCESS`. Returns ``c`` per step (0: constant
-    acceleration); without ``time_s``, zeros. Used for profile CSV files without a
-    ``step_kind`` column (older or hand-made files).
-    """
-    s = np.asarray(station_m, dtype=float)
-    if time_s is None:
-        return np.zeros(s.size - 1)
-    coef = rest_time_coef_from_times(s, speed_mps, time_s)
-    ramp = steps_next_to_rest(speed_mps) & (coef > 2.0 * (1.0 + RAMP_TIME_EXCESS))
-    return np.where(ramp, coef, 0.0)
-
-
-def as_station_profile(profile) -> StationProfile:
-    """A :class:`StationProfile` from either a StationProfile or a planned Profile."""
-    if isinstance(profile, StationProfile):
-        return profile
-    return StationProfile.from_profile(profile)
 
 
 @dataclass(frozen=True)
@@ -445,6 +122,26 @@ class Trajectory:
         Stations of the stops, metres.
     stop_dwell_s : ndarray or None
         Time held at each stop, s, in station order (None: ``dwell_s`` at every stop).
+    elevation_m, pitch_rad : ndarray or None
+        Elevation (metres) and pitch (radians, nose up positive) where the profile has
+        elevation (module docstring).
+    stop_names : tuple of str or None
+        Each stop's name in station order ("" for a stop without one), where the profile's
+        stops have names.
+    stop_name : ndarray of str or None
+        Per sample: the name of the stop the vehicle stands at ("" elsewhere); with
+        ``stop_names``.
+    lap : ndarray of int or None
+        Per sample: the lap it belongs to, from 1, for a run of laps
+        (:mod:`curvespeed.export_laps`); a sample on a join belongs to the lap it starts.
+    lap_stations_m, lap_times_s : ndarray or None
+        The station and time at which each lap starts, and the end of the run (laps + 1
+        values), for a run of laps.
+    start_time : datetime or None
+        The absolute time of ``time_s = 0`` (timezone-aware), when one was given.
+    local_origin : tuple of float, str or None
+        WGS84 (latitude, longitude) in degrees of the local metric frame's origin (``x_m = y_m
+        = 0``), ``"none"`` for a route given in x/y only, None when not known.
     planned_time_s : float
         Time along the route without dwells, s.
     total_time_s : float
@@ -474,6 +171,15 @@ class Trajectory:
     name: str = "route"
     source: str = "profile"
     stop_dwell_s: np.ndarray | None = None
+    elevation_m: np.ndarray | None = None
+    pitch_rad: np.ndarray | None = None
+    stop_names: tuple | None = None
+    stop_name: np.ndarray | None = None
+    lap: np.ndarray | None = None
+    lap_stations_m: np.ndarray | None = None
+    lap_times_s: np.ndarray | None = None
+    start_time: object | None = None
+    local_origin: object | None = None
 
     @property
     def n_samples(self) -> int:
@@ -483,12 +189,25 @@ class Trajectory:
     def is_geographic(self) -> bool:
         return self.lat is not None
 
+    @property
+    def laps(self) -> int:
+        """Number of laps (1 for a trajectory that is not a run of laps)."""
+        return 1 if self.lap_stations_m is None else int(self.lap_stations_m.size - 1)
+
     def columns(self) -> dict[str, np.ndarray]:
-        """Named columns in output order (:data:`TRAJECTORY_COLUMNS`, then lat, lon)."""
+        """Named numeric columns in output order (:data:`TRAJECTORY_COLUMNS`, then lat, lon,
+        then elevation_m, pitch_rad where the profile has elevation, then lap for a run of
+        laps). Text columns (absolute time, stop name) are the writers' (:mod:`curvespeed.io.
+        trajectory`)."""
         out = {name: getattr(self, name) for name in TRAJECTORY_COLUMNS}
         if self.lat is not None:
             out["lat"] = self.lat
             out["lon"] = self.lon
+        if self.elevation_m is not None:
+            out["elevation_m"] = self.elevation_m
+            out["pitch_rad"] = self.pitch_rad
+        if self.lap is not None:
+            out["lap"] = self.lap
         return out
 
 
@@ -535,6 +254,11 @@ def _node_schedule(sp: StationProfile, dwells: np.ndarray) -> tuple[np.ndarray, 
     return arrive, depart, stop
 
 
+def node_arrival_s(profile, dwells) -> np.ndarray:
+    """Time of arrival at every node with the stops' dwells (:func:`stop_dwells`), s."""
+    return _node_schedule(as_station_profile(profile), np.asarray(dwells, dtype=float))[0]
+
+
 def _regular_count(span: float, interval: float) -> int:
     """Samples at ``0, interval, 2 interval, ...`` strictly before ``span`` (the end gets a
     sample of its own): at least one, the start, however large the interval."""
@@ -557,7 +281,7 @@ def count_station_samples(profile, station_step_m: float) -> int:
 
 
 def sample_in_time(profile, dt_s: float, dwell_s: float = 0.0,
-                   stop_dwell_s=None) -> Trajectory:
+                   stop_dwell_s=None, stop_names=None) -> Trajectory:
     """Sample ``profile`` every ``dt_s`` seconds (module docstring for the kinematics).
 
     Samples are at ``t = 0, dt, 2 dt, ...`` strictly before the total time, then one last sample
@@ -573,6 +297,8 @@ def sample_in_time(profile, dt_s: float, dwell_s: float = 0.0,
         Time held at every stop (interior node with zero speed), s (>= 0).
     stop_dwell_s : array or None
         Each stop's own dwell, s, in station order; NaN where ``dwell_s`` applies.
+    stop_names : sequence of str or None
+        Each stop's name in station order ("" for none), carried to the samples at the stop.
 
     Returns
     -------
@@ -596,11 +322,12 @@ def sample_in_time(profile, dt_s: float, dwell_s: float = 0.0,
     # the final sample is the end of the route by definition (not by round-off)
     d[-1] = sp.station_m[-1] - sp.station_m[k[-1]]
     v[-1] = sp.speed_mps[-1]
-    return _build(sp, k, d, t, v, accel, SamplingMode.TIME, dt_s, dwell_s, arrive[-1], dwells)
+    return _build(sp, k, d, t, v, accel, SamplingMode.TIME, dt_s, dwell_s, arrive[-1], dwells,
+                  stop_names)
 
 
 def sample_by_station(profile, station_step_m: float, dwell_s: float = 0.0,
-                      stop_dwell_s=None) -> Trajectory:
+                      stop_dwell_s=None, stop_names=None) -> Trajectory:
     """Sample ``profile`` every ``station_step_m`` metres of station.
 
     Samples are at ``s0, s0 + step, ...`` strictly before the end, then the end of the route;
@@ -617,6 +344,8 @@ def sample_by_station(profile, station_step_m: float, dwell_s: float = 0.0,
         Time held at every stop, s (>= 0).
     stop_dwell_s : array or None
         Each stop's own dwell, s, in station order; NaN where ``dwell_s`` applies.
+    stop_names : sequence of str or None
+        Each stop's name in station order ("" for none), carried to the samples at the stop.
 
     Returns
     -------
@@ -640,7 +369,7 @@ def sample_by_station(profile, station_step_m: float, dwell_s: float = 0.0,
     t = np.where(d <= 0.0, arrive[k], t)
     t = np.where(d >= ds, arrive[k + 1], t)
     return _build(sp, k, d, t, v, accel, SamplingMode.STATION, step, dwell_s, arrive[-1],
-                  dwells)
+                  dwells, stop_names)
 
 
 def _rest_steps_at(sp: StationProfile, k):
@@ -699,7 +428,7 @@ def _state_at_distance(sp: StationProfile, k, d):
 
 
 def _build(sp: StationProfile, k, d, t, v, accel, mode, interval, dwell_s, total,
-           dwells) -> Trajectory:
+           dwells, stop_names=None) -> Trajectory:
     """Interpolate geometry at distance ``d`` into step ``k`` and assemble the trajectory."""
     ds = np.diff(sp.station_m)[k]
     u = d / ds
@@ -707,10 +436,14 @@ def _build(sp: StationProfile, k, d, t, v, accel, mode, interval, dwell_s, total
     h0, h1 = sp.heading_rad[k], sp.heading_rad[k + 1]
     heading = h0 + u * (h1 - h0)
     kappa = sp.curvature_1pm[k] + u * (sp.curvature_1pm[k + 1] - sp.curvature_1pm[k])
-    x, y, dx, dy = _hermite(sp, k, u, ds)
+    x, y, dx, dy = hermite_position(sp, k, u, ds)
     lat = lon = None
     if sp.lat is not None:
-        lat, lon = _interpolate_latlon(sp, k, u, dx, dy)
+        lat, lon = interpolate_latlon(sp, k, u, dx, dy)
+    z = pitch = None
+    if sp.z_m is not None:
+        z, pitch = elevation_at(sp, k, u, ds)
+    names, at_stop = stop_names_at(sp, k, d, ds, stop_names)
     return Trajectory(
         time_s=np.asarray(t, dtype=float), station_m=s, x_m=x, y_m=y, heading_rad=heading,
         speed_mps=v, accel_mps2=np.asarray(accel, dtype=float), curvature_1pm=kappa,
@@ -718,62 +451,12 @@ def _build(sp: StationProfile, k, d, t, v, accel, mode, interval, dwell_s, total
         interval=float(interval), dwell_s=float(dwell_s),
         stop_stations_m=sp.station_m[sp.stop_nodes].copy(), stop_dwell_s=dwells,
         planned_time_s=sp.moving_time_s, total_time_s=float(total), name=sp.name,
-        source=sp.source)
+        source=sp.source, elevation_m=z, pitch_rad=pitch, stop_names=names, stop_name=at_stop)
 
 
-def _hermite(sp: StationProfile, k, u, ds):
-    """Cubic Hermite position at fraction ``u`` of step ``k``, and its offset from the chord.
-
-    Tangents are the node headings scaled by the step length (the curve's derivative with
-    respect to ``u`` is ``ds (cos h, sin h)`` at both ends).
-    """
-    x0, x1 = sp.x_m[k], sp.x_m[k + 1]
-    y0, y1 = sp.y_m[k], sp.y_m[k + 1]
-    h0, h1 = sp.heading_rad[k], sp.heading_rad[k + 1]
-    u2, u3 = u * u, u * u * u
-    b10 = u3 - 2.0 * u2 + u       # weight of the start tangent
-    b11 = u3 - u2                 # weight of the end tangent
-    b01 = -2.0 * u3 + 3.0 * u2    # weight of the end point (start point: 1 - b01)
-    # offset from the straight chord p0 + u (p1 - p0): the part the chord misses
-    dx = (b01 - u) * (x1 - x0) + ds * (b10 * np.cos(h0) + b11 * np.cos(h1))
-    dy = (b01 - u) * (y1 - y0) + ds * (b10 * np.sin(h0) + b11 * np.sin(h1))
-    x = x0 + u * (x1 - x0) + dx
-    y = y0 + u * (y1 - y0) + dy
-    return x, y, dx, dy
-
-
-def _interpolate_latlon(sp: StationProfile, k, u, dx, dy):
-    """Latitude/longitude at fraction ``u`` of step ``k``, consistent with the plan position.
-
-    The chord part is linear in latitude/longitude between the nodes (exact at the nodes). The
-    small offset ``(dx, dy)`` of the curve from the chord (at most ``ds**2 curvature / 8``, about
-    8 mm for a 1 m step on a 15 m radius) is mapped to degrees by the step's local conformal
-    map, taken from the chord itself: the complex ratio of the chord in (east-scaled longitude,
-    latitude) degrees to the chord in metres. The projection behind the profile is conformal, so
-    this map is a rotation and a scale; treating degrees of latitude and of scaled longitude as
-    equal lengths (a sphere) errs by at most 0.7 % (the WGS84 ratio of meridian to prime-vertical
-    radius) of that offset, below 0.1 mm.
-    """
-    lat0, lat1 = sp.lat[k], sp.lat[k + 1]
-    lon0, lon1 = sp.lon[k], sp.lon[k + 1]
-    coslat = np.cos(np.radians(0.5 * (lat0 + lat1)))
-    dlon = (lon1 - lon0 + 180.0) % 360.0 - 180.0   # across the antimeridian too
-    chord_m = (sp.x_m[k + 1] - sp.x_m[k]) + 1j * (sp.y_m[k + 1] - sp.y_m[k])
-    chord_deg = dlon * coslat + 1j * (lat1 - lat0)
-    offset_deg = chord_deg / chord_m * (dx + 1j * dy)
-    lat = lat0 + u * (lat1 - lat0) + offset_deg.imag
-    lon = lon0 + u * dlon + offset_deg.real / coslat
-    lon = (lon + 180.0) % 360.0 - 180.0
-    return lat, lon
-
-
-def planned_time_mismatch(sp: StationProfile) -> tuple[int, float] | None:
-    """Largest gap between the profile's ``time_s`` and the time recomputed from speeds.
-
-    Returns ``(node, gap_s)`` or None when the profile has no ``time_s``.
-    """
-    if sp.time_s is None:
-        return None
-    gap = np.abs((sp.time_s - sp.time_s[0]) - sp.node_time_s)
-    k = int(np.argmax(gap))
-    return k, float(gap[k])
+__all__ = ["RAMP_TIME_EXCESS", "SamplingMode", "StationProfile", "TRAJECTORY_COLUMNS",
+           "Trajectory", "as_station_profile", "check_stations_and_speeds",
+           "count_station_samples", "count_time_samples", "detect_rest_steps",
+           "make_station_profile", "node_arrival_s", "planned_time_mismatch",
+           "rest_time_coef_from_times",
+           "sample_by_station", "sample_in_time", "steps_next_to_rest", "stop_dwells"]

@@ -171,23 +171,33 @@ MIN_PLAUSIBLE_LATERAL_MPS2 = 1.0
 MIN_PLAUSIBLE_DECEL_MPS2 = 0.5
 
 
-def _unit_slips(limits: Limits) -> list[str]:
+def _given(name: str, value: float, given_as=None) -> str:
+    """``max_speed_mps = 80``, or ``--max-speed 80`` where ``given_as`` says the value came
+    from that command-line option."""
+    if given_as and name in given_as:
+        return f"{given_as[name]} {value:g}"
+    return f"{name} = {value:g}"
+
+
+def _unit_slips(limits: Limits, given_as=None) -> list[str]:
     """Each limit whose value looks like another unit, said with the unit it looks like and
-    the value it would then be in ours."""
+    the value it would then be in ours; named as the user gave it (``given_as``: field ->
+    command-line option, for values from the command line; the field name otherwise)."""
     g = limits.gravity_mps2
     found = []
     if limits.power_per_mass_wpkg < MIN_PLAUSIBLE_POWER_WPKG:
         found.append(
-            f"max_power_w = {limits.max_power_w:g} W for mass_kg = {limits.mass_kg:g} is "
+            f"{_given('max_power_w', limits.max_power_w, given_as)} W for "
+            f"{_given('mass_kg', limits.mass_kg, given_as)} is "
             f"{limits.power_per_mass_wpkg:.3g} W/kg, less than a loaded truck (about 5 W/kg): "
             f"the vehicle crawls up every grade; if the power is {limits.max_power_w:g} kW, "
             f"that is {limits.max_power_w * 1000.0:g} W")
     v = limits.max_speed_mps
     if v > MAX_PLAUSIBLE_SPEED_MPS:
         found.append(
-            f"max_speed_mps = {v:g} m/s is {mps_to_kmh(v):.0f} km/h, faster than nearly every "
-            f"road vehicle; if the value is {v:g} km/h, that is {v / 3.6:.2f} m/s (divide it "
-            "by 3.6)")
+            f"{_given('max_speed_mps', v, given_as)} m/s is {mps_to_kmh(v):.0f} km/h, faster "
+            f"than nearly every road vehicle; if the value is {v:g} km/h, that is "
+            f"{v / 3.6:.2f} m/s (divide it by 3.6)")
     for name, low, what in (("max_lateral_accel_mps2", MIN_PLAUSIBLE_LATERAL_MPS2,
                              "gentler than any lateral comfort criterion (about 2-3 m/s^2 "
                              "for passenger cars)"),
@@ -196,18 +206,21 @@ def _unit_slips(limits: Limits) -> list[str]:
         a = getattr(limits, name)
         if a < low:
             found.append(
-                f"{name} = {a:g} m/s^2 is {a / g:.3g} g, {what}; if the value is {a:g} g, "
-                f"that is {a * g:.2f} m/s^2 (multiply it by {g:g})")
+                f"{_given(name, a, given_as)} m/s^2 is {a / g:.3g} g, {what}; if the value is "
+                f"{a:g} g, that is {a * g:.2f} m/s^2 (multiply it by {g:g})")
     return found
 
 
-def validate_limits(limits: Limits, where: str = "limits", warn: bool = True) -> Limits:
+def validate_limits(limits: Limits, where: str = "limits", warn: bool = True,
+                    given_as=None) -> Limits:
     """Check values; raise :class:`LimitsError`, or warn when comfort exceeds grip or a value
     looks like another unit (a top speed in km/h, a lateral or braking cap in g, a power in kW).
 
     ``where`` names the origin (a file, "command line") for messages. ``warn=False`` checks
     without warning, for a caller that validates limits someone already validated (and warned
-    about, naming their origin).
+    about, naming their origin). ``given_as`` maps the fields whose values came from the
+    command line to the option that gave them (``{"max_speed_mps": "--max-speed"}``): the
+    warnings then name the option, as the user wrote it, instead of the limits-file key.
     """
     for name in _POSITIVE + _NON_NEGATIVE:
         value = getattr(limits, name)
@@ -223,7 +236,8 @@ def validate_limits(limits: Limits, where: str = "limits", warn: bool = True) ->
         value = getattr(limits, name)
         if value is not None and not low <= value <= high:
             span = f"below {low:g}" if high == math.inf else f"outside {low:g}..{high:g}"
-            raise LimitsError(f"{where}: {name} = {value:g} is {span}, which no vehicle has: "
+            raise LimitsError(f"{where}: {_given(name, value, given_as)} is {span}, which no "
+                              "vehicle has: "
                               f"{why}; check the value and its units")
     if limits.max_power_w is not None and limits.mass_kg is None:
         raise LimitsError(f"{where}: max_power_w needs mass_kg (drive acceleration is P/(m v))")
@@ -232,7 +246,7 @@ def validate_limits(limits: Limits, where: str = "limits", warn: bool = True) ->
                           "rho Cd A v^2 / (2 m))")
     if not warn:
         return limits
-    for slip in _unit_slips(limits):
+    for slip in _unit_slips(limits, given_as):
         warnings.warn(f"{where}: {slip}", CurvespeedWarning, stacklevel=2)
     g = limits.gravity_mps2
     checks = (("max_lateral_accel_mps2", limits.mu_lat * g, "lateral"),
@@ -242,7 +256,7 @@ def validate_limits(limits: Limits, where: str = "limits", warn: bool = True) ->
         value = getattr(limits, name)
         if value > grip:
             warnings.warn(
-                f"{where}: {name} = {value:g} m/s^2 exceeds the {direction} grip "
+                f"{where}: {_given(name, value, given_as)} m/s^2 exceeds the {direction} grip "
                 f"mu*g = {grip:.2f} m/s^2; friction is the binding limit there",
                 CurvespeedWarning, stacklevel=2)
     return limits
@@ -273,7 +287,7 @@ class ZonePosition:
     origin: str = ""
 
 
-def warn_zones_above_top_speed(zones, limits: Limits) -> None:
+def warn_zones_above_top_speed(zones, limits: Limits, given_as=None) -> None:
     """Warn about each speed zone faster than the top speed: it never binds, and its speed is
     most likely in km/h (the warning says what it is in m/s then). For the user's zones only:
     a road's own speed records may lie above a slow vehicle's top speed."""
@@ -284,7 +298,8 @@ def warn_zones_above_top_speed(zones, limits: Limits) -> None:
             warnings.warn(
                 f"{here}speed zone {z.start_m:g}..{z.end_m:g} m: max speed "
                 f"{z.max_speed_mps:g} m/s ({mps_to_kmh(z.max_speed_mps):.0f} km/h) is above "
-                f"the top speed max_speed_mps = {top:g} m/s, so it never binds; if the value "
+                f"the top speed {_given('max_speed_mps', top, given_as)} m/s, so it never "
+                "binds; if the value "
                 f"is {z.max_speed_mps:g} km/h, that is {z.max_speed_mps / 3.6:.2f} m/s (divide "
                 "it by 3.6)", CurvespeedWarning, stacklevel=2)
 

@@ -35,34 +35,19 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import OutputError
-from .export import StationProfile, as_station_profile
+from .export import as_station_profile
 from .limits import Limits, RouteConstraints
+# the figures' shared parts and the g-g diagram live beside this module; their names are
+# offered here too, as before the split
+from .plots_common import (_BAND_COLOUR, _LIMIT_COLOUR, _NO_SIDECAR, _STOP_COLOUR,  # noqa: F401
+                           _ZONE_COLOUR, ACCEL_LABEL, BOTH_JERKS_LABEL, CURVATURE_LABEL,
+                           FIGURE_FORMATS, GG_SIZE_IN, JERK_LABEL, LATERAL_LABEL,
+                           OVERVIEW_DPI, OVERVIEW_SIZE_IN, SPEED_LABEL, STATION_LABEL, X_LABEL,
+                           Y_LABEL, _accel, _lateral, _new_axes, _note, figure_bytes,
+                           figure_format)
+from .plots_gg import GGArtists, gg_bytes, gg_figure, plot_gg  # noqa: F401
 
 #: Figure formats :func:`save_overview` writes, by file extension.
-FIGURE_FORMATS = {".png": "png", ".svg": "svg", ".pdf": "pdf"}
-
-#: Overview figure size, inches, and resolution for raster output, dots per inch.
-OVERVIEW_SIZE_IN = (13.0, 11.0)
-OVERVIEW_DPI = 110
-#: The g-g figure's size, inches.
-GG_SIZE_IN = (6.0, 6.0)
-
-STATION_LABEL = "station (m)"
-SPEED_LABEL = "speed (m/s)"
-CURVATURE_LABEL = "curvature (1/m)"
-ACCEL_LABEL = "longitudinal acceleration (m/s²)"
-JERK_LABEL = "longitudinal jerk (m/s³)"
-BOTH_JERKS_LABEL = "jerk (m/s³)"
-LATERAL_LABEL = "lateral acceleration (m/s²)"
-X_LABEL = "x (m)"
-Y_LABEL = "y (m)"
-
-_LIMIT_COLOUR = "0.45"
-_BAND_COLOUR = "tab:green"
-_ZONE_COLOUR = "tab:purple"
-_STOP_COLOUR = "tab:red"
-_NO_SIDECAR = "limits, zones and stops not known (no sidecar)"
 
 
 # -- artist holders ----------------------------------------------------------------------------
@@ -95,17 +80,6 @@ class LineArtists:
 
 
 @dataclass(frozen=True)
-class GGArtists:
-    """What :func:`plot_gg` drew: the points, the friction ellipse and the comfort limits."""
-
-    ax: object
-    points: object
-    friction: object | None
-    comfort: object | None
-    note: object | None = None
-
-
-@dataclass(frozen=True)
 class PlanArtists:
     """What :func:`plot_plan_view` drew: the speed-coloured path, its colour bar, the start."""
 
@@ -128,43 +102,6 @@ class Overview:
 
 
 # -- helpers -----------------------------------------------------------------------------------
-
-def _new_axes(ax, figsize=(8.0, 4.0)):
-    """``ax`` itself, or the axes of a new pyplot-free figure."""
-    if ax is not None:
-        return ax
-    from matplotlib.figure import Figure
-
-    fig = Figure(figsize=figsize, layout="constrained")
-    return fig.add_subplot()
-
-
-def _accel(sp: StationProfile) -> np.ndarray:
-    if sp.accel_mps2 is not None:
-        return sp.accel_mps2
-    a = sp.step_accel_mps2
-    out = np.empty(sp.n_nodes)
-    out[1:-1] = 0.5 * (a[:-1] + a[1:])
-    out[0], out[-1] = a[0], a[-1]
-    return out
-
-
-def _lateral(sp: StationProfile) -> np.ndarray:
-    if sp.lat_accel_mps2 is not None:
-        return sp.lat_accel_mps2
-    return sp.curvature_1pm * sp.speed_mps ** 2
-
-
-def _note(ax, text: str):
-    return ax.text(0.01, 0.97, text, transform=ax.transAxes, ha="left", va="top",
-                   fontsize="small", color="0.35")
-
-
-def _ellipse(a_x: float, a_up: float, a_down: float, n: int = 361):
-    """Closed curve x = a_x cos t, y = (a_up or a_down) sin t."""
-    t = np.linspace(0.0, 2.0 * np.pi, n)
-    s = np.sin(t)
-    return a_x * np.cos(t), np.where(s >= 0.0, a_up, a_down) * s
 
 
 def format_duration(seconds: float) -> str:
@@ -313,44 +250,6 @@ def plot_jerk(profile, limits: Limits | None = None, ax=None) -> LineArtists:
                        lateral_line=lateral_line, lateral_limits=lateral_limits)
 
 
-def plot_gg(profile, limits: Limits | None = None, ax=None) -> GGArtists:
-    """g-g diagram: longitudinal (vertical) against lateral (horizontal) acceleration.
-
-    The friction ellipse has semi-axes ``mu_lat g`` across and ``mu g`` along the path; the
-    comfort limit is ``max_lateral_accel`` across, ``max_accel`` forward and ``max_decel``
-    backward. Both are drawn for a flat road (no grade or superelevation), where the limits
-    bound the points directly; on grades and banked curves the planner uses the loads there.
-    """
-    sp = as_station_profile(profile)
-    ax = _new_axes(ax, figsize=(5.0, 5.0))
-    friction = comfort = note = None
-    if limits is not None:
-        g = limits.gravity_mps2
-        fx, fy = _ellipse(limits.mu_lat * g, limits.mu_long * g, limits.mu_long * g)
-        (friction,) = ax.plot(fx, fy, color=_STOP_COLOUR, lw=1.2, zorder=3,
-                              label="friction ellipse (flat road)")
-        cx, cy = _ellipse(limits.max_lateral_accel_mps2, limits.max_accel_mps2,
-                          limits.max_decel_mps2)
-        (comfort,) = ax.plot(cx, cy, color=_BAND_COLOUR, lw=1.4, ls="--", zorder=3,
-                             label="comfort limits")
-        data = max(float(np.abs(_lateral(sp)).max()), float(np.abs(_accel(sp)).max()))
-        reach = 1.1 * max(limits.mu_lat * g, limits.mu_long * g, data)
-        ax.set_xlim(-reach, reach)
-        ax.set_ylim(-reach, reach)
-    else:
-        note = _note(ax, _NO_SIDECAR)
-    (points,) = ax.plot(_lateral(sp), _accel(sp), ls="none", marker=".", ms=2.5, zorder=2,
-                        color="tab:blue", alpha=0.6, label="profile (one point per station)")
-    ax.axhline(0.0, color="0.6", lw=0.6, zorder=0)
-    ax.axvline(0.0, color="0.6", lw=0.6, zorder=0)
-    ax.set_aspect("equal", adjustable="datalim" if limits is None else "box")
-    ax.set_xlabel(LATERAL_LABEL)
-    ax.set_ylabel(ACCEL_LABEL)
-    ax.grid(True, alpha=0.3)
-    ax.legend(loc="upper right", fontsize="x-small", framealpha=0.85)
-    return GGArtists(ax=ax, points=points, friction=friction, comfort=comfort, note=note)
-
-
 def plot_plan_view(profile, ax=None) -> PlanArtists:
     """The route in plan (x east, y north), coloured by speed, with a colour bar; equal aspect."""
     from matplotlib.collections import LineCollection
@@ -436,22 +335,6 @@ def plot_overview(profile, limits: Limits | None = None,
     return Overview(figure=figure, axes=axes, artists=artists, title=text, data=data)
 
 
-def gg_figure(profile, limits: Limits | None = None):
-    """The g-g diagram (:func:`plot_gg`) as a figure of its own, with the route's name."""
-    from matplotlib.figure import Figure
-
-    sp = as_station_profile(profile)
-    figure = Figure(figsize=GG_SIZE_IN, layout="constrained")
-    artists = plot_gg(sp, limits, ax=figure.add_subplot())
-    figure.suptitle(f"{sp.name}: accelerations along and across the path", fontsize="medium")
-    return artists
-
-
-def gg_bytes(profile, fmt: str, limits: Limits | None = None) -> bytes:
-    """The g-g figure (:func:`gg_figure`) as the bytes of a ``png``, ``svg`` or ``pdf`` file."""
-    return figure_bytes(gg_figure(profile, limits).ax.figure, fmt)
-
-
 def save_overview(profile, path: str | os.PathLike, limits: Limits | None = None,
                   constraints: RouteConstraints | None = None, force: bool = False,
                   title: str | None = None) -> Path:
@@ -487,28 +370,3 @@ def overview_bytes(profile, fmt: str, limits: Limits | None = None,
     """
     overview = plot_overview(profile, limits, constraints, title=title, check=check)
     return figure_bytes(overview.figure, fmt)
-
-
-def figure_bytes(figure, fmt: str) -> bytes:
-    """``figure`` as the bytes of a ``png``, ``svg`` or ``pdf`` file, without time stamps (and
-    with a fixed SVG id salt), so the same figure gives the same bytes."""
-    import io
-
-    import matplotlib
-
-    metadata = {"png": {"Software": None}, "svg": {"Date": None},
-                "pdf": {"CreationDate": None, "ModDate": None}}[fmt]
-    buffer = io.BytesIO()
-    with matplotlib.rc_context({"svg.hashsalt": "curvespeed"}):
-        figure.savefig(buffer, format=fmt, dpi=OVERVIEW_DPI, metadata=metadata)
-    return buffer.getvalue()
-
-
-def figure_format(path: str | os.PathLike) -> str:
-    """``png``, ``svg`` or ``pdf`` from the file extension; :class:`OutputError` otherwise."""
-    suffix = Path(path).suffix.lower()
-    if suffix not in FIGURE_FORMATS:
-        got = f"extension '{Path(path).suffix}'" if Path(path).suffix else "no extension"
-        raise OutputError(f"{path}: {got} is not a figure format curvespeed writes; use "
-                          f"{', '.join(FIGURE_FORMATS)}")
-    return FIGURE_FORMATS[suffix]

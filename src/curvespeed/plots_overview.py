@@ -24,7 +24,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .report.model import ReportData, report_data
+from .report.model import ReportData, report_data, report_stops
 from .report.palette import BAND_ALPHA, LIGHT_GREY, ROLES, ZONE_ALPHA, curve_colour
 
 STATION_LABEL = "station (m)"
@@ -41,6 +41,7 @@ class RouteArtists:
     curves: tuple
     labels: tuple
     start: object
+    stops: tuple = ()
 
 
 @dataclass(frozen=True)
@@ -53,6 +54,7 @@ class SpeedBandArtists:
     bands: tuple
     braking: tuple
     launch: tuple
+    stops: tuple = ()
 
 
 @dataclass(frozen=True)
@@ -108,6 +110,10 @@ def overview_data(profile, limits=None, constraints=None, check: dict | None = N
         s = np.asarray(check["per_station"]["station_m"], dtype=float)
         x, y = np.interp(s, sp.station_m, sp.x_m), np.interp(s, sp.station_m, sp.y_m)
     data = report_data(check, x, y, doing="planned", provenance=())
+    if constraints is not None and constraints.stops:
+        from dataclasses import replace
+
+        data = replace(data, stops=report_stops(json_safe(constraints.to_dict())))
     if not uses_known:
         from dataclasses import replace
 
@@ -155,12 +161,20 @@ def draw_plan(data: ReportData, ax) -> RouteArtists:
         ax.plot([data.x_m[-1]], [data.y_m[-1]], "s", color=ROLES["start"], ms=6, zorder=3)
         ax.annotate("end", (data.x_m[-1], data.y_m[-1]), xytext=(6, -10),
                     textcoords="offset points", fontsize="small")
+    stops = []
+    for stop in data.stops:
+        at = (float(np.interp(stop.station_m, data.station_m, data.x_m)),
+              float(np.interp(stop.station_m, data.station_m, data.y_m)))
+        (mark,) = ax.plot([at[0]], [at[1]], "s", mfc="white", mec=ROLES["start"], ms=5,
+                          zorder=3)
+        stops.append((mark, ax.annotate(stop.name or "stop", at, xytext=(5, -9),
+                                        textcoords="offset points", fontsize="x-small")))
     ax.set_aspect("equal", adjustable="datalim")
     ax.set_xlabel("x (m)")
     ax.set_ylabel("y (m)")
     ax.grid(True, alpha=0.25)
     return RouteArtists(ax=ax, route=route, curves=tuple(curves), labels=tuple(labels),
-                        start=start)
+                        start=start, stops=tuple(stops))
 
 
 def _clear_spot(point, outward, span: float, placed: list) -> tuple[float, float]:
@@ -226,12 +240,25 @@ def draw_speed(data: ReportData, ax) -> SpeedBandArtists:
                 Patch(color=ROLES["launch"], alpha=2 * ZONE_ALPHA, label="launch")]
     ax.legend(handles=handles, loc="upper right", ncol=len(handles), fontsize="x-small",
               framealpha=0.9)
+    stops = tuple(_stop_mark(ax, stop) for stop in data.stops)
     ax.set_ylim(0.0, top)
     ax.set_xlim(s[0], s[-1])
     ax.set_ylabel("speed (m/s)")
     ax.grid(True, axis="y", alpha=0.3)
     return SpeedBandArtists(ax=ax, speed=speed, ceiling=ceiling, bands=tuple(bands),
-                            braking=braking, launch=launch)
+                            braking=braking, launch=launch, stops=stops)
+
+
+def _stop_mark(ax, stop):
+    """A stop on the speed panel: a dotted line with its name (or "stop") and dwell."""
+    line = ax.axvline(stop.station_m, color=ROLES["start"], lw=0.9, ls=":", zorder=2)
+    dwell = "" if stop.dwell_s is None else f" ({stop.dwell_s:g} s)"
+    text = ax.text(stop.station_m, 0.45, f"{stop.name or 'stop'}{dwell}",
+                   transform=ax.get_xaxis_transform(), rotation=90, ha="center",
+                   va="center", fontsize="x-small", zorder=4,
+                   bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none",
+                         "alpha": 0.85})
+    return line, text
 
 
 def draw_use(data: ReportData, ax) -> UseArtists:

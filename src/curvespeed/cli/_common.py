@@ -302,3 +302,63 @@ def describe_fit(provenance: dict) -> list[str]:
         lines.append(f"parts          the vehicle reverses: {len(provenance['parts'])} parts, "
                      f"part {provenance['part_used']} used")
     return lines
+
+
+def sidecar_or_none(profile_file, instead: str):
+    """The sidecar next to the profile, if there is a readable one; a broken one is warned
+    about (its error, then ``instead``: what the command does without it) and gives None."""
+    import warnings
+
+    from ..errors import CurvespeedWarning
+    from ..io.meta_json import default_meta_path, read_profile_meta
+
+    meta = default_meta_path(profile_file)
+    if not meta.exists():
+        return None
+    try:
+        return read_profile_meta(meta)
+    except CurvespeedError as exc:
+        warnings.warn(f"{exc}; {instead}", CurvespeedWarning, stacklevel=3)
+        return None
+
+
+def route_name(profile_file) -> str | None:
+    """The route's name from the sidecar next to the profile, if there is a readable one (a
+    broken sidecar is warned about, and the name then comes from the file name)."""
+    sidecar = sidecar_or_none(profile_file, "the route name is taken from the file name instead")
+    return None if sidecar is None else sidecar.route_name
+
+
+def profile_sidecar(profile_file, meta_file=None, without: str | None = None):
+    """The sidecar of a profile and its path: the one named with ``--meta`` (which must be
+    readable), else the one next to the profile (``(None, path)`` when there is none).
+
+    ``without`` says what the command does without a sidecar ("drawing without limits, zones
+    and stops"): a broken sidecar next to the profile is then warned about and skipped, and a
+    missing one noted on standard error, both in those words. With ``without`` None, a broken
+    sidecar next to the profile is an error like any input.
+    """
+    from ..io.meta_json import default_meta_path, read_profile_meta
+
+    if meta_file is not None:
+        return read_profile_meta(meta_file), meta_file
+    default = default_meta_path(profile_file)
+    if not default.exists():
+        if without is not None:
+            click.echo(f"note: no sidecar {default} found; {without} (give --meta FILE to add "
+                       "them)", err=True)
+        return None, default
+    if without is None:
+        return read_profile_meta(default), default
+    return sidecar_or_none(profile_file, f"{without} (give --meta FILE to add them)"), default
+
+
+def read_profile_with_sidecar(profile_file, meta_file=None, without: str | None = None):
+    """``(station profile, sidecar or None, sidecar path)``: a profile CSV read with its route
+    name from its sidecar (:func:`profile_sidecar` says which sidecar and what ``without``
+    does)."""
+    from ..io.profile_csv import read_station_profile
+
+    sidecar, path = profile_sidecar(profile_file, meta_file, without)
+    name = sidecar.route_name if sidecar is not None else None
+    return read_station_profile(profile_file, name=name), sidecar, path

@@ -150,6 +150,13 @@ def stop_positions(stops_xy, stops_latlon) -> tuple:
                     for (a, b), t in zip(ll, stops_latlon)))
 
 
+def options_given(overrides: dict) -> dict:
+    """Limits field -> the option that set it on the command line (``{"max_speed_mps":
+    "--max-speed"}``): warnings name a value from the command line as the user wrote it."""
+    return {LIMIT_OPTIONS[k]: "--" + k.replace("_", "-") for k, v in overrides.items()
+            if v is not None}
+
+
 def resolve_limits(limits_file, overrides: dict, zones, stops, superelevations,
                    start_speed, end_speed, positions: tuple = ()):
     """Limits and constraints from the file (or defaults) with command-line overrides on top.
@@ -169,10 +176,11 @@ def resolve_limits(limits_file, overrides: dict, zones, stops, superelevations,
         limits, constraints = DEFAULT_LIMITS, RouteConstraints()
         origin = "built-in defaults"
     changes = {LIMIT_OPTIONS[k]: v for k, v in overrides.items() if v is not None}
+    given_as = options_given(overrides)
     if changes:
         limits = limits.replace(**changes)
         origin += " with command-line overrides"
-    validate_limits(limits, origin)
+    validate_limits(limits, origin, given_as=given_as)
     extra = RouteConstraints(
         zones=tuple(SpeedZone(*z, origin="--zone") for z in
                     _parse_ranges(zones, 3, "a speed zone", "START_M:END_M:MAX_SPEED_MPS",
@@ -185,7 +193,7 @@ def resolve_limits(limits_file, overrides: dict, zones, stops, superelevations,
         stop_positions=tuple(p for p in positions if isinstance(p, StopPosition)),
         zone_positions=tuple(p for p in positions if isinstance(p, ZonePosition)))
     constraints = constraints.merged(extra)
-    warn_zones_above_top_speed(constraints.zones, limits)
+    warn_zones_above_top_speed(constraints.zones, limits, given_as)
     return limits, constraints, origin
 
 
@@ -211,7 +219,7 @@ def limits_and_geometry(route_file, limits_file, overrides: dict, constraint_arg
 
     given = len(constraints.zones)
     constraints = place_positions(constraints, geometry, stops=place_stops)
-    warn_zones_above_top_speed(constraints.zones[given:], limits)
+    warn_zones_above_top_speed(constraints.zones[given:], limits, options_given(overrides))
     road_zones = getattr(source, "zones", None)
     if road_zones is not None:            # an OpenDRIVE path: the road's own data, under the user's
         from ..limits import RouteConstraints, overlay_constraints

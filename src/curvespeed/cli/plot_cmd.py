@@ -7,7 +7,7 @@ from pathlib import Path
 
 import click
 
-from ._common import echo, handle_errors
+from ._common import echo, handle_errors, read_profile_with_sidecar
 
 
 @click.command()
@@ -31,7 +31,6 @@ def plot(profile_file, output, meta_file, gg_file, force):
     """
     from ..io.atomic import OutputFiles
     from ..io.meta_json import default_meta_path
-    from ..io.profile_csv import read_station_profile
     from ..plots import figure_format, gg_bytes, overview_bytes
 
     fmt = figure_format(output)
@@ -44,9 +43,8 @@ def plot(profile_file, output, meta_file, gg_file, force):
     if gg_file:
         outputs.add_output(gg_file, "--gg")
     with outputs:               # the output checked here; written at the end
-        sidecar = _sidecar(profile_file, meta_file)
-        name = sidecar.route_name if sidecar is not None else None
-        sp = read_station_profile(profile_file, name=name)
+        sp, sidecar, _ = read_profile_with_sidecar(profile_file, meta_file, without=(
+            "drawing without limits, zones and stops"))
         if sidecar is None:
             limits = constraints = None
         else:
@@ -61,29 +59,3 @@ def plot(profile_file, output, meta_file, gg_file, force):
     if gg_file:
         echo(f"wrote the g-g diagram {gg_file}")
 
-
-def _sidecar(profile_file, meta_file):
-    """The sidecar given, or the one next to the profile; None (with a note) if there is none.
-
-    A sidecar named with --meta must be readable. The one found next to the profile only adds
-    limits, zones and stops to the figure: if it is broken, a warning says why and the figure
-    is drawn without them.
-    """
-    import warnings
-
-    from ..errors import CurvespeedError, CurvespeedWarning
-    from ..io.meta_json import default_meta_path, read_profile_meta
-
-    if meta_file is not None:
-        return read_profile_meta(meta_file)
-    default = default_meta_path(profile_file)
-    if default.exists():
-        try:
-            return read_profile_meta(default)
-        except CurvespeedError as exc:
-            warnings.warn(f"{exc}; drawing without limits, zones and stops (give --meta FILE to "
-                          "add them)", CurvespeedWarning, stacklevel=2)
-            return None
-    click.echo(f"note: no sidecar {default} found; drawing without limits, zones and stops "
-               "(give --meta FILE to add them)", err=True)
-    return None

@@ -89,9 +89,9 @@ def _run(profile_file, vehicle_file, tracker, dwell_s):
     from ..dynamics.summary import summarise
     from ..dynamics.vehicle import DEFAULT_VEHICLE
     from ..io.profile_csv import read_station_profile
-    from .export_cmd import _route_name
+    from ._common import route_name
 
-    sp = read_station_profile(profile_file, name=_route_name(profile_file))
+    sp = read_station_profile(profile_file, name=route_name(profile_file))
     if vehicle_file is None:
         vehicle = DEFAULT_VEHICLE
     else:

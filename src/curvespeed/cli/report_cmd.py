@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from ._common import echo, handle_errors
+from ._common import echo, handle_errors, read_profile_with_sidecar
 
 #: A profile and a check describe the same route when their lengths agree within this share or
 #: this many metres, whichever is larger: both come from one route file, so they differ only
@@ -34,8 +34,7 @@ def report(profile_file, check_file, output, meta_file, force):
     from ..errors import SpeedFileError
     from ..io.atomic import OutputFiles
     from ..io.check_report import read_check_json
-    from ..io.meta_json import default_meta_path, read_profile_meta
-    from ..io.profile_csv import read_station_profile
+    from ..io.meta_json import default_meta_path
     from ._report import input_files, report_text
 
     outputs = OutputFiles(force)
@@ -46,10 +45,7 @@ def report(profile_file, check_file, output, meta_file, force):
     outputs.add_output(output, "-o/--output")
     with outputs:
         check = read_check_json(check_file)
-        sp = read_station_profile(profile_file)
-        sidecar_path = meta_file or default_meta_path(profile_file)
-        sidecar = (read_profile_meta(sidecar_path)
-                   if meta_file or default_meta_path(profile_file).exists() else None)
+        sp, sidecar, sidecar_path = read_profile_with_sidecar(profile_file, meta_file)
         s = np.asarray(check["per_station"]["station_m"], dtype=float)
         gap = abs(sp.length_m - s[-1])
         if gap > max(SAME_LENGTH_M, SAME_LENGTH_SHARE * s[-1]):
@@ -70,6 +66,13 @@ def report(profile_file, check_file, output, meta_file, force):
             solver = "not known (no sidecar next to the profile)"
             notes.append(f"No sidecar {sidecar_path}: the solver and the route file's hash are "
                          "not known.")
+        if sidecar is not None and sidecar.constraints.stops:
+            # the plan's stops, with their names and dwells, from the sidecar (check judges
+            # the speeds given and has no stops of its own)
+            from ..io.meta_json import json_safe
+
+            stops = json_safe(sidecar.constraints.to_dict())["stops"]
+            check = dict(check, constraints=dict(check.get("constraints") or {}, stops=stops))
         outputs.write_text(output, report_text(check, x, y, doing="planned", files=files,
                                                solver=solver, notes=notes))
     echo(f"wrote the report {output} from {profile_file} and {check_file}")

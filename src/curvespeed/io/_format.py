@@ -28,6 +28,18 @@ RATIO = ".6f"
 DEGREES = ".9f"
 
 
+#: Free text (names), quoted as RFC 4180 says where it holds a comma, quote or line break.
+QUOTED = "quoted-text"
+
+
+def quoted(text: str) -> str:
+    """``text`` as one CSV cell (RFC 4180): in double quotes, inner quotes doubled, when it
+    holds a comma, a double quote or a line break; as it is otherwise."""
+    if any(ch in text for ch in ',"\n\r'):
+        return '"' + text.replace('"', '""') + '"'
+    return text
+
+
 def format_column(values, spec: str) -> list[str]:
     """Format every value of a 1-D array with ``spec`` (a ``format`` specification)."""
     flat = np.asarray(values).ravel()
@@ -60,7 +72,8 @@ def format_columns(columns: Mapping[str, tuple[object, str]]) -> str:
     Parameters
     ----------
     columns : mapping of str to (array, str)
-        Column name -> (values, format specification such as :data:`METRES`), in output order.
+        Column name -> (values, format specification such as :data:`METRES`, or
+        :data:`QUOTED` for free text), in output order.
         All arrays must have the same length.
 
     Returns
@@ -75,12 +88,14 @@ def format_columns(columns: Mapping[str, tuple[object, str]]) -> str:
         the CSV (comma, quote or line break in it).
     """
     names = list(columns)
-    cells = [format_column(values, spec) for values, spec in columns.values()]
+    cells = [[quoted(str(v)) for v in values] if spec == QUOTED else format_column(values, spec)
+             for values, spec in columns.values()]
     lengths = {len(c) for c in cells}
     if len(lengths) > 1:
         sizes = ", ".join(f"{n}={len(c)}" for n, c in zip(names, cells))
         raise ValueError(f"columns have different lengths ({sizes})")
-    text_cells = [c for col, (_, spec) in zip(cells, columns.values()) if spec.endswith("s")
+    text_cells = [c for col, (_, spec) in zip(cells, columns.values())
+                  if spec.endswith("s") and spec != QUOTED
                   for c in col]
     for text in names + text_cells:
         if any(ch in text for ch in ',"\n\r'):

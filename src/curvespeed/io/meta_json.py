@@ -1,7 +1,9 @@
 """The JSON sidecar written next to a profile: what produced it and how it came out.
 
 Keys (SI units, unit suffix in every key): ``tool``, ``version``, ``route`` (file, sha256,
-name, closed, length_m, stations, spacing_m, projection), ``limits``, ``constraints``,
+name, closed, length_m, stations, spacing_m, projection, local_origin: the WGS84 ``lat_deg``,
+``lon_deg`` of the metric frame's origin ``x_m = y_m = 0``, or ``"none"`` for a route given in
+x/y only), ``limits``, ``constraints``,
 ``solver`` (name, status, iterations, inner_iterations, solve_time_s, notes), ``total_time_s``,
 ``solve_time_s``, ``envelope_time_s`` and ``time_gap_to_envelope`` (the jerk-free lower bound on
 the time and the fraction the profile takes longer), ``peak_use`` (peak use of every limit,
@@ -73,6 +75,7 @@ def profile_meta(profile: Profile, limits: Limits, constraints: RouteConstraints
         "stations": geo.n_nodes,
         "spacing_m": geo.spacing_m,
         "projection": None if geo.projection is None else geo.projection.to_dict(),
+        "local_origin": local_origin(geo.projection),
         "fit": geo.provenance,
     }
     meta = {
@@ -93,6 +96,16 @@ def profile_meta(profile: Profile, limits: Limits, constraints: RouteConstraints
         "binding_stretches": profile.binding_stretches(),
     }
     return json_safe(meta)
+
+
+def local_origin(projection) -> dict | str:
+    """``{"lat_deg": ..., "lon_deg": ...}``: where the metric frame's origin (``x_m = y_m =
+    0``) lies on WGS84, by the route's own projection; ``"none"`` for a route without one (given
+    in x/y metres only)."""
+    if projection is None:
+        return "none"
+    lat, lon = projection.to_latlon([0.0], [0.0])
+    return {"lat_deg": float(lat[0]), "lon_deg": float(lon[0])}
 
 
 def meta_json_text(meta: dict) -> str:
@@ -129,6 +142,9 @@ class ProfileSidecar:
         The route file the profile was planned from and its SHA-256, as recorded.
     solver : str or None
         The solver, its status and iterations, in words (for reports).
+    local_origin : tuple of float, str or None
+        WGS84 ``(lat_deg, lon_deg)`` of the metric frame's origin, ``"none"`` for a route in
+        x/y only, None when the sidecar does not say (written before it was recorded).
     """
 
     limits: Limits
@@ -140,6 +156,7 @@ class ProfileSidecar:
     route_file: str | None = None
     route_sha256: str | None = None
     solver: str | None = None
+    local_origin: tuple | str | None = None
 
 
 def read_profile_meta(path: str | os.PathLike) -> ProfileSidecar:
@@ -212,7 +229,20 @@ def read_profile_meta(path: str | os.PathLike) -> ProfileSidecar:
     return ProfileSidecar(limits=limits, constraints=constraints, route_name=name, closed=closed,
                           total_time_s=total, source=source, route_file=text(route.get("file")),
                           route_sha256=text(route.get("sha256")),
-                          solver=solver_text(doc.get("solver")))
+                          solver=solver_text(doc.get("solver")),
+                          local_origin=_local_origin(route.get("local_origin")))
+
+
+def _local_origin(value) -> tuple | str | None:
+    """A sidecar's ``route.local_origin`` as ``(lat, lon)``, ``"none"``, or None (absent or not
+    understood)."""
+    if value == "none":
+        return "none"
+    if isinstance(value, dict):
+        lat, lon = finite_value(value.get("lat_deg")), finite_value(value.get("lon_deg"))
+        if lat is not None and lon is not None:
+            return lat, lon
+    return None
 
 
 def _stop_extras(stop: Stop, item: dict, number) -> Stop:
@@ -237,4 +267,4 @@ def solver_text(solver) -> str | None:
 
 
 __all__ = ["ProfileSidecar", "check_writable", "default_meta_path", "file_sha256", "json_safe",
-           "meta_json_text", "profile_meta", "read_profile_meta", "write_meta_json"]
+           "local_origin", "meta_json_text", "profile_meta", "read_profile_meta", "write_meta_json"]

@@ -18,13 +18,14 @@ class TrajectoryFormat(enum.Enum):
     CSV = "csv"
     JSON = "json"
     GEOJSON = "geojson"
+    GPX = "gpx"
 
 
 #: Output file extension (lower case) -> format, for choosing the format from the file name.
 FORMAT_BY_SUFFIX = {".csv": TrajectoryFormat.CSV, ".json": TrajectoryFormat.JSON,
-                    ".geojson": TrajectoryFormat.GEOJSON}
+                    ".geojson": TrajectoryFormat.GEOJSON, ".gpx": TrajectoryFormat.GPX}
 
 
 def format_from_suffix(path: str | os.PathLike) -> TrajectoryFormat | None:
-    """The format an output file name implies (``.csv``, ``.json``, ``.geojson``), or None."""
+    """The format an output file name implies (``.csv``, ``.json``, ``.geojson``, ``.gpx``), or None."""
     return FORMAT_BY_SUFFIX.get(Path(path).suffix.lower())

@@ -39,6 +39,34 @@ CAUTIONS = (
 
 
 @dataclass(frozen=True)
+class ReportStop:
+    """A stop of the plan: station (m), name ("" for none) and dwell (s, None: not given)."""
+
+    station_m: float
+    name: str = ""
+    dwell_s: float | None = None
+
+    def label(self) -> str:
+        """``"Workshops (290 m, dwell 30 s)"``, or ``"stop (290 m)"`` without name or dwell."""
+        dwell = "" if self.dwell_s is None else f", dwell {self.dwell_s:g} s"
+        return f"{self.name or 'stop'} ({self.station_m:.0f} m{dwell})"
+
+
+def report_stops(constraints: dict | None) -> tuple[ReportStop, ...]:
+    """The stops of a constraints dictionary (as the sidecar and the plan's report write
+    them), in station order."""
+    out = []
+    for item in (constraints or {}).get("stops") or []:
+        if not isinstance(item, dict) or not isinstance(item.get("station_m"), (int, float)):
+            continue
+        dwell = item.get("dwell_s")
+        name = item.get("name")
+        out.append(ReportStop(float(item["station_m"]), name if isinstance(name, str) else "",
+                              float(dwell) if isinstance(dwell, (int, float)) else None))
+    return tuple(sorted(out, key=lambda stop: stop.station_m))
+
+
+@dataclass(frozen=True)
 class ReportCurve:
     """One curve as the check table numbers it (all values from the check result).
 
@@ -114,6 +142,8 @@ class ReportData:
     closed : bool
     notes : tuple of str
         What the report could not show, and why.
+    stops : tuple of ReportStop
+        The plan's stops with their names and dwells (shown on the charts), in station order.
     """
 
     title: str
@@ -134,6 +164,7 @@ class ReportData:
     length_m: float
     closed: bool
     notes: tuple[str, ...] = field(default=())
+    stops: tuple[ReportStop, ...] = field(default=())
 
     def zones(self, sign: int) -> list[tuple[float, float]]:
         """Station ranges of braking (``sign=-1``) or launch (``+1``) zones, metres.
@@ -206,7 +237,9 @@ def constraint_rows(constraints: dict | None) -> tuple[tuple[str, str], ...]:
     rows = []
     zones = [f"{z['start_m']:g}–{z['end_m']:g} m: {z['max_speed_mps']:g} m/s"
              for z in c.get("zones") or []]
-    stops = [f"{s['station_m']:g} m" for s in c.get("stops") or []]
+    stops = [f"{s['station_m']:g} m" + (f" '{s['name']}'" if s.get("name") else "")
+             + (f", dwell {s['dwell_s']:g} s" if s.get("dwell_s") is not None else "")
+             for s in c.get("stops") or []]
     banks = [f"{b['start_m']:g}–{b['end_m']:g} m: {100 * b['rate']:g} %"
              for b in c.get("superelevation") or []]
     for label, items in (("speed zones", zones), ("stops", stops), ("superelevation", banks)):
@@ -293,7 +326,7 @@ def report_data(check: dict, x_m, y_m, *, doing: str, provenance, notes=()) -> R
         limits=limit_rows(limits) + constraint_rows(check.get("constraints")),
         provenance=tuple(provenance) + noise_rows(check.get("fit")),
         length_m=float(route.get("length_m", s[-1])), closed=bool(route.get("closed", False)),
-        notes=tuple(notes))
+        notes=tuple(notes), stops=report_stops(check.get("constraints")))
 
 
 def provenance_rows(files, solver: str, version: str, generated: str) -> list[tuple[str, str]]:

@@ -148,8 +148,23 @@ def speed_svg(data: ReportData) -> str:
     ceiling = np.where(np.isfinite(data.limit_speed_mps), data.limit_speed_mps, top)
     body.append(frame.polyline(s, ceiling, ROLES["ceiling"], 1.0, "5 3", "ceiling"))
     body.append(frame.polyline(s, data.speed_mps, ROLES["speed"], 1.8, cls="speed"))
+    body += _stop_marks(frame, data)
     return _svg("speed-chart", height, "Speed along the route with curve bands, braking and "
                 "launch zones", body)
+
+
+def _stop_marks(frame: _Frame, data: ReportData) -> list[str]:
+    """Each stop as a dotted vertical line with its name (or "stop") at the top, and its
+    name, station and dwell as the line's tooltip."""
+    out = []
+    for stop in data.stops:
+        x = _f(frame.px(stop.station_m))
+        out.append(f'<g class="stop"><title>{_esc(stop.label())}</title><line x1="{x}" '
+                   f'x2="{x}" y1="{_f(frame.top)}" y2="{_f(frame.bottom)}" '
+                   f'stroke="{ROLES["start"]}" stroke-width="1" stroke-dasharray="2 3"/>'
+                   f'<text class="stop-label" x="{x}" y="{_f(frame.top + 12)}" '
+                   f'text-anchor="start" dx="3">{_esc(stop.name or "stop")}</text></g>')
+    return out
 
 
 def use_svg(data: ReportData) -> str:
@@ -209,6 +224,13 @@ def plan_svg(data: ReportData) -> str:
         body.append(f'<rect class="end" x="{_f(px(x[-1]) - 4)}" y="{_f(py(y[-1]) - 4)}" '
                     f'width="8" height="8" fill="{ROLES["start"]}"/><text '
                     f'x="{_f(px(x[-1]) + 8)}" y="{_f(py(y[-1]) + 12)}">end</text>')
+    for stop in data.stops:
+        sx = _f(px(float(np.interp(stop.station_m, data.station_m, x))))
+        sy = _f(py(float(np.interp(stop.station_m, data.station_m, y))))
+        body.append(f'<g class="stop"><title>{_esc(stop.label())}</title><rect x="{sx}" '
+                    f'y="{sy}" width="7" height="7" transform="translate(-3.5 -3.5)" '
+                    f'fill="white" stroke="{ROLES["start"]}" stroke-width="1.5"/><text '
+                    f'x="{sx}" y="{sy}" dx="7" dy="-5">{_esc(stop.name or "stop")}</text></g>')
     placed: list[tuple[float, float]] = []
     body += [_curve_label(c, data, px, py, placed) for c in data.curves]
     body.append(_scale_bar(scale, height))
