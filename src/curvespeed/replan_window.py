@@ -141,6 +141,7 @@ class RouteTables:
             kappa_abs=w.kappa_abs[idx], kappa_signed=w.kappa_signed[idx],
             sin_bank=w.sin_bank[idx], cos_bank=w.cos_bank[idx],
             sin_grade=w.sin_grade[idx], cos_grade=w.cos_grade[idx],
+            mu_long=w.mu_long[idx], mu_lat=w.mu_lat[idx], friction_index=w.friction_index[idx],
             cap_b=cap, cap_source=source, b_start=b0, b_end=end_b,
             stop_nodes=np.asarray(stop_pos, dtype=int), stops=stops,
             time_coef=src.time_coef[st], accel_factor_start=src.accel_factor_start[st],

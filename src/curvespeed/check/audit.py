@@ -272,7 +272,12 @@ def _curve_check(c: int, nodes: np.ndarray, j: int, radius: RadiusInterval, judg
     if available < 0.0:
         available += geometry.length_m
     v_app = float(v[approach])
-    a_brake = min(lim.max_decel_mps2, lim.mu_long * g)
+    # the lowest friction on the way in and over the curve (a curve spanning friction sections
+    # is judged at the lowest of them)
+    way_in = (np.arange(approach, approach + (j - approach) % m + 1) % m if closed
+              else np.arange(approach, j + 1))
+    a_brake = min(lim.max_decel_mps2, float(np.min(problem.mu_long[way_in])) * g)
+    mu_lat_curve = float(np.min(problem.mu_lat[nodes]))
     needed = max(v_app * v_app - limit_v * limit_v, 0.0) / (2.0 * a_brake)
     use, use_e = judged.use, judged.use_estimate
     peaks = [float(np.max(use[name][nodes])) for name in ("friction_ellipse", "comfort_ellipse",
@@ -289,7 +294,7 @@ def _curve_check(c: int, nodes: np.ndarray, j: int, radius: RadiusInterval, judg
         lateral_accel_bound_mps2=float(problem.felt_lateral(b, j)), side_friction_demand=f,
         side_friction_demand_bound=float(side_friction_demand(
             v[j], 1.0 / float(problem.kappa_abs[j]), e, g)),
-        friction_margin=lim.mu_lat - f, comfort_margin_mps2=lim.max_lateral_accel_mps2 - a_lat,
+        friction_margin=mu_lat_curve - f, comfort_margin_mps2=lim.max_lateral_accel_mps2 - a_lat,
         friction_use=float(np.max(use["friction_ellipse"][nodes])),
         comfort_use=float(np.max(use["comfort_ellipse"][nodes])),
         friction_use_estimate=float(np.max(use_e["friction_ellipse"][nodes])),
