@@ -72,7 +72,10 @@ def check_speeds(geometry: Geometry, limits: Limits, constraints: RouteConstrain
         raise SpeedFileError(f"{speed_source}: speed {float(v[k]):g} m/s at station {s[k]:.1f} m "
                              "is not a finite, non-negative number; fix the speeds")
     design = None if design_speed_kmh is None else design_criterion(design_speed_kmh, e_max)
-    used = checked_constraints(constraints)
+    from ..placement import place_positions
+
+    # zones, friction sections and superelevation given by position, as plan places them
+    used = checked_constraints(place_positions(constraints, geometry, stops=False))
     judged = judge_speeds(geometry, limits, used, v, kind)
     curve_nodes = find_curves(geometry, settings)
     places = _Places(s, *territories(curve_nodes, geometry), settings.join_gap_m, tolerance)
