@@ -66,20 +66,36 @@ def friction_section_note(problem: SpeedProblem, k: int) -> str:
     """`` of the friction section a..b m (origin)`` when a friction section sets node ``k``'s
     friction, else an empty string."""
     i = int(problem.friction_index[k])
-    return f" of the {problem.friction_sections[i].describe()}" if i >= 0 else ""
+    return f" of the {problem.friction_sections[i].label()}" if i >= 0 else ""
 
 
 def braking_decel(problem: SpeedProblem, last: int) -> tuple[float, int | None]:
-    """The deceleration a vehicle can brake at on the level from the first node up to node
-    ``last``: the deceleration cap, or friction ``mu g`` where that is lower (the lowest
-    friction on the way); with the node whose friction binds (None where the cap does)."""
+    """The mean deceleration a vehicle can brake at on the level from the first node up to
+    node ``last``, m/s^2, and the node of lowest friction where friction (``mu g``) is below
+    the deceleration cap somewhere on the way (None where the cap binds all along).
+
+    Each step brakes at the smaller of the cap and ``mu g`` at its lower-friction node; over
+    the way the squared speed can fall by ``2 * mean * distance`` (exact without jerk bound).
+    """
     lim = problem.limits
+    last = max(int(last), 1)
     mu = problem.mu_long[: last + 1]
+    step = np.minimum(lim.max_decel_mps2,
+                      np.minimum(mu[:-1], mu[1:]) * lim.gravity_mps2)
     k = int(np.argmin(mu))
-    grip = float(mu[k]) * lim.gravity_mps2
-    if grip < lim.max_decel_mps2:
-        return grip, k
-    return lim.max_decel_mps2, None
+    if not float(mu[k]) * lim.gravity_mps2 < lim.max_decel_mps2:
+        return lim.max_decel_mps2, None      # the cap all along, exactly
+    return float(np.mean(step)), k
+
+
+def grip_words(problem: SpeedProblem, slippery: int, decel: float) -> str:
+    """How friction limits braking on the way: the friction, its section, where, the mean."""
+    lim = problem.limits
+    mu = float(problem.mu_long[slippery])
+    return (f"friction {mu:g}{friction_section_note(problem, slippery)} from station "
+            f"{problem.station_m[slippery]:.1f} m allows only {mu * lim.gravity_mps2:.2f} m/s^2 "
+            f"(mu g, below max_decel_mps2 = {lim.max_decel_mps2:g}): {decel:.2f} m/s^2 on "
+            "average over the way")
 
 
 def jerk_limited_stopping_distance(v0: float, decel: float, jerk: float | None) -> float:
@@ -132,9 +148,7 @@ def stop_out_of_reach(problem: SpeedProblem, jerk: bool) -> str | None:
         jerk_part = f" with jerk up to {j:g} m/s^3" if j is not None else ""
         fastest = _fastest_start_that_stops(available, decel, j)
         if slippery is not None:
-            how = (f"braking on friction {problem.mu_long[slippery]:g}"
-                   f"{friction_section_note(problem, slippery)} at up to {decel:.2f} m/s^2 "
-                   f"(mu g, below max_decel_mps2 = {lim.max_decel_mps2:g}){jerk_part}")
+            how = (f"braking where {grip_words(problem, slippery, decel)}{jerk_part}")
             raise_limit = ("check the friction of that section" if problem.friction_index[
                 slippery] >= 0 else "check friction_coefficient")
         else:
@@ -143,7 +157,7 @@ def stop_out_of_reach(problem: SpeedProblem, jerk: bool) -> str | None:
                                                    else "")
         return (f"{problem.source}: {origin}the stop{name} at station {stop.station_m:g} m is "
                 f"{available:.1f} m from the start, too close to come to rest from the start "
-                f"speed {v0:.2f} m/s: {how} takes {need:.1f} m on the level. Lower the "
+                f"speed {v0:.2f} m/s: {how}, takes {need:.1f} m on the level. Lower the "
                 f"start speed to {fastest:.2f} m/s or less, move the stop to {need:.1f} m or "
                 f"more from the start, or {raise_limit}")
     return None

@@ -70,13 +70,10 @@ class FrictionSection:
             return mu, self.lateral_friction_coefficient
         return mu, limits.mu_lat * (mu / limits.mu_long)
 
-    def describe(self) -> str:
-        """The section in a user's words: origin, stations and coefficient."""
+    def label(self) -> str:
+        """The section in a user's words: stations and origin."""
         here = f" ({self.origin})" if self.origin else ""
-        lateral = ("" if self.lateral_friction_coefficient is None
-                   else f", lateral {self.lateral_friction_coefficient:g}")
-        return (f"friction section {self.start_m:g}..{self.end_m:g} m{here} "
-                f"(mu {self.friction_coefficient:g}{lateral})")
+        return f"friction section {self.start_m:g}..{self.end_m:g} m{here}"
 
 
 @dataclass(frozen=True)

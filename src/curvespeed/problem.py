@@ -455,7 +455,7 @@ def _bank_and_grade(geometry: Geometry, mu_lat: np.ndarray, friction_index: np.n
                     if x.start_m - 1e-9 <= s[k] <= x.end_m + 1e-9 and x.rate == e[k]), None)
         named = f" ({sup.origin})" if sup is not None and sup.origin else ""
         section = (constraints.friction[friction_index[k]] if friction_index[k] >= 0 else None)
-        where = (f"of the {section.describe()}" if section is not None
+        where = (f"of the {section.label()}" if section is not None
                  else "of the route")
         raise LimitsError(f"superelevation {e[k]:g}{named} at station {s[k]:.1f} m exceeds the "
                           f"lateral friction coefficient {mu_lat[k]:g} {where}: a vehicle "

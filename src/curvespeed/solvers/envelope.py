@@ -22,8 +22,7 @@ import time
 
 import numpy as np
 
-from ..diagnose import (braking_decel, friction_section_note, stop_out_of_reach,
-                        undrivable_station)
+from ..diagnose import braking_decel, grip_words, stop_out_of_reach, undrivable_station
 from ..errors import InfeasibleError
 from ..problem import SpeedProblem, check_start_end
 from . import SolveResult, SolveStatus
@@ -351,9 +350,7 @@ def _raise_cannot_slow(problem: SpeedProblem, b: np.ndarray, fwd: list) -> None:
     vk = math.sqrt(max(b[k], 0.0))
     decel, slippery = braking_decel(problem, k)
     need = (v0 * v0 - vk * vk) / (2.0 * decel)
-    grip = ("" if slippery is None else
-            f" (friction {problem.mu_long[slippery]:g}{friction_section_note(problem, slippery)}"
-            f" at station {problem.station_m[slippery]:.1f} m allows no more)")
+    grip = "" if slippery is None else f" ({grip_words(problem, slippery, decel)})"
     raise InfeasibleError(
         f"{problem.source}: start speed {v0:.2f} m/s is too high: the vehicle must be down to {vk:.2f} m/s at "
         f"station {problem.station_m[k]:.1f} m ({what}) and braking at "
