@@ -177,3 +177,21 @@ def test_bad_sections_are_refused(section, message):
     geo = geometry_from_curvature(np.zeros(301), ds=1.0)
     with pytest.raises(LimitsError, match=message.replace(".", r"\.")):
         build_problem(geo, Limits(), RouteConstraints(friction=(section,)))
+
+
+def test_gg_diagram_draws_the_lowest_sections_ellipse():
+    from curvespeed.plots import plot_gg
+
+    geo = circle_geometry(60.0)
+    limits = Limits(max_jerk_mps3=None, lateral_friction_coefficient=0.9)
+    sections = (FrictionSection(100.0, 200.0, 0.35), FrictionSection(250.0, 300.0, 0.5))
+    profile = plan_profile(geo, limits, RouteConstraints(friction=sections))
+    artists = plot_gg(profile, limits, friction_sections=sections)
+    x, y = artists.section_friction.get_data()
+    g = limits.gravity_mps2
+    # semi-axes: the lowest section's mu g along, its scaled lateral mu (0.9 * 0.35 / 0.7) g
+    # across; the polyline samples the ellipse, so its extremes are the axes to round-off
+    assert np.max(np.abs(y)) == pytest.approx(0.35 * g, rel=1e-6)
+    assert np.max(np.abs(x)) == pytest.approx(0.45 * g, rel=1e-6)
+    assert "lowest section mu 0.35" in artists.section_friction.get_label()
+    assert plot_gg(profile, limits).section_friction is None

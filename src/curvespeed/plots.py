@@ -103,6 +103,7 @@ class GGArtists:
     friction: object | None
     comfort: object | None
     note: object | None = None
+    section_friction: object | None = None
 
 
 @dataclass(frozen=True)
@@ -313,17 +314,20 @@ def plot_jerk(profile, limits: Limits | None = None, ax=None) -> LineArtists:
                        lateral_line=lateral_line, lateral_limits=lateral_limits)
 
 
-def plot_gg(profile, limits: Limits | None = None, ax=None) -> GGArtists:
+def plot_gg(profile, limits: Limits | None = None, ax=None,
+            friction_sections: tuple = ()) -> GGArtists:
     """g-g diagram: longitudinal (vertical) against lateral (horizontal) acceleration.
 
     The friction ellipse has semi-axes ``mu_lat g`` across and ``mu g`` along the path; the
     comfort limit is ``max_lateral_accel`` across, ``max_accel`` forward and ``max_decel``
     backward. Both are drawn for a flat road (no grade or superelevation), where the limits
     bound the points directly; on grades and banked curves the planner uses the loads there.
+    With ``friction_sections`` (:class:`~curvespeed.friction.FrictionSection`) the lowest
+    section's ellipse is drawn too, dotted: points of those stretches lie inside it.
     """
     sp = as_station_profile(profile)
     ax = _new_axes(ax, figsize=(5.0, 5.0))
-    friction = comfort = note = None
+    friction = comfort = note = section_friction = None
     if limits is not None:
         g = limits.gravity_mps2
         fx, fy = _ellipse(limits.mu_lat * g, limits.mu_long * g, limits.mu_long * g)
@@ -333,6 +337,13 @@ def plot_gg(profile, limits: Limits | None = None, ax=None) -> GGArtists:
                           limits.max_decel_mps2)
         (comfort,) = ax.plot(cx, cy, color=_BAND_COLOUR, lw=1.4, ls="--", zorder=3,
                              label="comfort limits")
+        if friction_sections:
+            along, across = min((sec.coefficients(limits) for sec in friction_sections),
+                                key=lambda pair: pair[0])
+            sx, sy = _ellipse(across * g, along * g, along * g)
+            (section_friction,) = ax.plot(sx, sy, color=_STOP_COLOUR, lw=1.0, ls=":", zorder=3,
+                                          label=f"friction ellipse, lowest section mu "
+                                                f"{along:g} (flat road)")
         data = max(float(np.abs(_lateral(sp)).max()), float(np.abs(_accel(sp)).max()))
         reach = 1.1 * max(limits.mu_lat * g, limits.mu_long * g, data)
         ax.set_xlim(-reach, reach)
@@ -348,7 +359,8 @@ def plot_gg(profile, limits: Limits | None = None, ax=None) -> GGArtists:
     ax.set_ylabel(ACCEL_LABEL)
     ax.grid(True, alpha=0.3)
     ax.legend(loc="upper right", fontsize="x-small", framealpha=0.85)
-    return GGArtists(ax=ax, points=points, friction=friction, comfort=comfort, note=note)
+    return GGArtists(ax=ax, points=points, friction=friction, comfort=comfort, note=note,
+                     section_friction=section_friction)
 
 
 def plot_plan_view(profile, ax=None) -> PlanArtists:
