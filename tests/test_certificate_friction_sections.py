@@ -171,7 +171,6 @@ def test_a_cross_slope_too_steep_for_a_section_names_it():
     (FrictionSection(0.0, 40.0, 0.0), "outside 0..2"),
     (FrictionSection(0.0, 40.0, 0.3, 2.5), "lateral_friction_coefficient = 2.5"),
     (FrictionSection(400.0, 500.0, 0.3), "lies outside the route"),
-    (FrictionSection(100.0, 500.0, 0.3), "runs past the route"),
 ])
 def test_bad_sections_are_refused(section, message):
     geo = geometry_from_curvature(np.zeros(301), ds=1.0)
@@ -195,3 +194,13 @@ def test_gg_diagram_draws_the_lowest_sections_ellipse():
     assert np.max(np.abs(x)) == pytest.approx(0.45 * g, rel=1e-6)
     assert "lowest section mu 0.35" in artists.section_friction.get_label()
     assert plot_gg(profile, limits).section_friction is None
+
+
+def test_a_section_running_past_the_end_is_warned_about_and_applies_on_the_route():
+    from curvespeed.errors import CurvespeedWarning
+
+    geo = geometry_from_curvature(np.zeros(301), ds=1.0)
+    with pytest.warns(CurvespeedWarning, match=r"runs past the route .* over 100\.\.300\.0 m"):
+        problem = build_problem(geo, Limits(), RouteConstraints(
+            friction=(FrictionSection(100.0, 500.0, 0.3),)))
+    assert np.all(problem.mu_long[100:] == 0.3) and np.all(problem.mu_long[:99] == 0.7)

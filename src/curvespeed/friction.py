@@ -28,11 +28,12 @@ Core numerics: nothing here reads or writes files.
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import LimitsError
+from .errors import CurvespeedWarning, LimitsError
 from .limits import PHYSICAL_RANGES, Limits
 
 
@@ -92,7 +93,8 @@ class FrictionPosition:
 
 
 def validate_friction_sections(sections, length_m: float, end_m: float) -> None:
-    """Check each section's range and coefficients; raise :class:`LimitsError`.
+    """Check each section's range and coefficients; raise :class:`LimitsError` (warn about a
+    section running past an end, as for speed zones).
 
     ``end_m`` is the last station still on the route (its length plus round-off)."""
     low, high, why = PHYSICAL_RANGES["friction_coefficient"]
@@ -113,9 +115,10 @@ def validate_friction_sections(sections, length_m: float, end_m: float) -> None:
             raise LimitsError(f"{here}{span} lies outside the route (0..{length_m:.2f} m); "
                               "check its stations against the route summary")
         if sec.start_m < -(end_m - length_m) or sec.end_m > end_m:
-            raise LimitsError(f"{here}{span} runs past the route (0..{length_m:.2f} m); give "
-                              "stations on the route (a section to the end ends at the route's "
-                              "length)")
+            warnings.warn(f"{here}{span} runs past the route (0..{length_m:.2f} m); it applies "
+                          f"over {max(sec.start_m, 0.0):g}..{min(sec.end_m, length_m):.1f} m "
+                          "only. Check its stations against the route summary",
+                          CurvespeedWarning, stacklevel=3)
 
 
 def touching_nodes(start_m: float, end_m: float, ds: float, n_nodes: int) -> slice:
