@@ -130,7 +130,8 @@ class RouteTables:
             cap[-1], source[-1] = end_bound, "window_end"
         reserve = None if at_end else self._end_reserve(end_bound, int(idx[-1]))
         stop_pos = [i for i in range(1, idx.size) if idx[i] % self.nv in self.stop_at]
-        stops = tuple(Stop(i * self.ds, self._stop_origin(idx[i])) for i in stop_pos)
+        stops = tuple(Stop(i * self.ds, self._stop_origin(idx[i]),
+                           name=self.stop_at[idx[i] % self.nv].name) for i in stop_pos)
         nsteps = idx.size - 1
         terms = jerk_time_terms(nsteps + 1, False, src.rest_u[st], src.accel_factor_start[st])
         if reserve is not None:         # a free end keeps its acceleration (the reserve row)
