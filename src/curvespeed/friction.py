@@ -141,6 +141,10 @@ def node_friction(limits: Limits, sections, ds: float, n_nodes: int, closed: boo
     the route's coefficients exactly (the scalars themselves), so a route without sections
     plans exactly as with scalar friction.
     """
+    route_long, route_lat = float(limits.mu_long), float(limits.mu_lat)
+    if not sections:                # the route's scalars, untouched by any arithmetic
+        return (np.full(n_nodes, route_long), np.full(n_nodes, route_lat),
+                np.full(n_nodes, -1, dtype=int))
     steps = max(n_nodes - 1, 1)
     step_long = np.full(steps, np.inf)
     step_lat = np.full(steps, np.inf)
@@ -157,7 +161,6 @@ def node_friction(limits: Limits, sections, ds: float, n_nodes: int, closed: boo
         step_lat[on] = np.minimum(step_lat[on], across)
         whole[on] |= ((sec.start_m <= k[on] * ds + 1e-9 * ds)
                       & (sec.end_m >= (k[on] + 1) * ds - 1e-9 * ds))
-    route_long, route_lat = float(limits.mu_long), float(limits.mu_lat)
     route_wins = ~whole & ~(step_long < route_long)
     step_index[route_wins] = -1
     step_long = np.where(whole, step_long, np.minimum(step_long, route_long))
@@ -173,9 +176,6 @@ def node_friction(limits: Limits, sections, ds: float, n_nodes: int, closed: boo
     mu_long = np.minimum(before, after)[:n_nodes]
     mu_lat = np.minimum(lat_b, lat_a)[:n_nodes]
     index = np.where(take_before, ib, ia)[:n_nodes]
-    if not sections:                # the route's scalars, untouched by any arithmetic
-        mu_long = np.full(n_nodes, route_long)
-        mu_lat = np.full(n_nodes, route_lat)
     return mu_long, mu_lat, index
 
 
