@@ -245,3 +245,29 @@ def test_cvxpy_reference_respects_a_section_as_the_convex_solver_does():
     limit = math.sqrt(0.3 * limits.gravity_mps2 * 40.0)     # point mass on the arc
     for b in (fast.b, ref.b):       # both ride the wet limit on the arc, 1e-4 of the use
         assert np.sqrt(b[arc]).max() == pytest.approx(limit, rel=1e-4)
+
+
+def test_a_start_speed_above_a_wet_curves_limit_names_the_section():
+    geo = geometry_from_curvature(np.full(201, 1.0 / 50.0))
+    wet = FrictionSection(0.0, 100.0, 0.2, origin="--friction-section 0:100:0.2")
+    with pytest.raises(InfeasibleError, match=r"start speed 15\.00 m/s exceeds .*\(9\.90 m/s, set "
+                       r"by max_speed or curvature on friction 0\.2 across the path of the "
+                       r"friction section 0\.\.100 m \(--friction-section 0:100:0\.2\)"):
+        # sqrt(0.2 g 50) = 9.90 m/s on the arc (point mass on a circle)
+        plan_profile(geo, Limits(max_lateral_accel_mps2=6.0, max_jerk_mps3=None),
+                     RouteConstraints(friction=(wet,), start_speed_mps=15.0))
+
+
+def test_a_replanned_vehicle_too_fast_for_a_wet_curve_is_told_the_section():
+    from curvespeed.replan import Replanner
+
+    geo = straight_curve_straight(200.0, 40.0, 80.0, 200.0)
+    wet = FrictionSection(100.0, 300.0, 0.15, origin="limits.toml [[friction]] #1")
+    replanner = Replanner(geo, Limits(max_lateral_accel_mps2=6.0), RouteConstraints(
+        friction=(wet,)), horizon_m=150.0)
+    with pytest.raises(InfeasibleError) as err:
+        replanner.replan(150.0, 20.0)
+    text = str(err.value)
+    assert "too fast" in text and "a curve" in text
+    assert "friction 0.15 of the friction section 100..300 m (limits.toml [[friction]] #1)" \
+        in text

@@ -17,7 +17,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from .diagnose import undrivable_station
+from .diagnose import braking_decel, grip_words, undrivable_station
 from .errors import InfeasibleError
 from .geometry import Geometry
 from .jerk_model import jerk_time_terms, rest_nodes, with_rest_steps
@@ -276,11 +276,13 @@ class RouteTables:
         cause = what.get(source, "a curve (lateral acceleration or grip)")
         v0, vk = math.sqrt(b0), math.sqrt(max(ceil[k], 0.0))
         dist = k * window.ds
-        need = (b0 - ceil[k]) / (2.0 * p.limits.max_decel_mps2)
+        decel, slippery = braking_decel(p, k)
+        need = (b0 - ceil[k]) / (2.0 * decel)
+        grip = "" if slippery is None else f" ({grip_words(p, slippery, decel)})"
         return (f"{p.source}: the vehicle at station {p.station_m[0]:.1f} m is too fast: at "
                 f"{v0:.2f} m/s it must be down to {vk:.2f} m/s at station "
                 f"{p.station_m[k]:.1f} m ({cause}), {dist:.1f} m ahead, and braking at "
-                f"{p.limits.max_decel_mps2:g} m/s^2 needs about {need:.1f} m; the planner does "
+                f"{decel:.3g} m/s^2{grip} needs about {need:.1f} m; the planner does "
                 "not plan beyond its limits: slow the vehicle down (its own safety functions), "
                 "or replan with the limits it is really driven at")
 
