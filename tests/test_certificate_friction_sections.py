@@ -271,3 +271,24 @@ def test_a_replanned_vehicle_too_fast_for_a_wet_curve_is_told_the_section():
     assert "too fast" in text and "a curve" in text
     assert "friction 0.15 of the friction section 100..300 m (limits.toml [[friction]] #1)" \
         in text
+
+
+def test_check_gives_a_curve_spanning_sections_its_lowest_limit_speed():
+    from curvespeed.check import check_speeds
+
+    # a curve of radius 100 m, then 110 m; the wider part is wet: sqrt(mu g R) there is
+    # sqrt(0.2 g 110) = 14.7 m/s, below the dry tightest part's comfort limit sqrt(2.5 * 100)
+    kappa = np.concatenate((np.zeros(100), np.full(60, 0.01), np.full(60, 1 / 110.0),
+                            np.zeros(101)))
+    geo = geometry_from_curvature(kappa)
+    limits = Limits(max_jerk_mps3=None)
+    wet = FrictionSection(160.0, 220.0, 0.2)
+    report = check_speeds(geo, limits, RouteConstraints(friction=(wet,)),
+                          np.full(geo.n_nodes, 10.0))
+    (curve,) = report.curves
+    assert curve.tightest_station_m < 160.0
+    expected = math.sqrt(0.2 * limits.gravity_mps2 * 110.0)   # point mass on a circle
+    # the ceiling is bisected to 2^-60 of its bracket; the curvature is exact here
+    assert curve.limit_speed_mps == pytest.approx(expected, rel=1e-9)
+    dry = check_speeds(geo, limits, RouteConstraints(), np.full(geo.n_nodes, 10.0)).curves[0]
+    assert dry.limit_speed_mps == pytest.approx(math.sqrt(2.5 * 100.0), rel=1e-9)

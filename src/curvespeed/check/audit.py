@@ -268,7 +268,10 @@ def _curve_check(c: int, nodes: np.ndarray, j: int, radius: RadiusInterval, judg
     e = float(problem.sin_bank[j] / problem.cos_bank[j])
     a_lat = float(problem_e.felt_lateral(b, j))
     f = float(side_friction_demand(v[j], radius.estimate_m, e, g))
-    limit_v = math.sqrt(judged.ceiling_b[j])
+    # the limit at the tightest point; on a curve spanning friction sections, the lowest limit
+    # over the curve (a wetter part of slightly larger radius may allow less)
+    at = nodes if np.ptp(problem.mu_lat[nodes]) > 0.0 else j
+    limit_v = math.sqrt(float(np.min(judged.ceiling_b[at])))
     first = int(nodes[0])
     approach = (first - 1) % m if closed else max(first - 1, 0)
     available = float(s[j] - s[approach])
@@ -302,7 +305,8 @@ def _curve_check(c: int, nodes: np.ndarray, j: int, radius: RadiusInterval, judg
         comfort_use=float(np.max(use["comfort_ellipse"][nodes])),
         friction_use_estimate=float(np.max(use_e["friction_ellipse"][nodes])),
         comfort_use_estimate=float(np.max(use_e["comfort_ellipse"][nodes])),
-        limit_speed_mps=limit_v, limit_speed_estimate_mps=math.sqrt(judged.ceiling_estimate_b[j]),
+        limit_speed_mps=limit_v,
+        limit_speed_estimate_mps=math.sqrt(float(np.min(judged.ceiling_estimate_b[at]))),
         approach_speed_mps=v_app, braking_distance_needed_m=needed,
         braking_distance_available_m=available, brake_ok=True, meets_min_radius=meets,
         meets_min_radius_low=meets_low, meets_min_radius_high=meets_high, advisory=estimate,

@@ -188,7 +188,8 @@ class CurveCheck:
         The same on the estimate.
     limit_speed_mps, limit_speed_estimate_mps : float
         Highest speed the limits allow at the tightest point (curve, top speed, zones), on the
-        bound and on the estimate, m/s.
+        bound and on the estimate, m/s; on a curve spanning friction sections, the lowest over
+        the curve.
     approach_speed_mps : float
         Speed checked at the station just before the curve, m/s.
     braking_distance_needed_m : float
