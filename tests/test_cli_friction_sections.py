@@ -65,6 +65,12 @@ def test_friction_section_slows_the_curve_and_goes_into_the_sidecar(tmp_path):
     (section,) = meta["constraints"]["friction"]
     assert section["start_m"] == 150.0 and section["friction_coefficient"] == 0.25
     assert section["origin"] == "--friction-section 150:400:0.25"
+    # the sidecar reads back the section it wrote (for plot, export and replay)
+    from curvespeed.friction import FrictionSection
+    from curvespeed.io.meta_json import read_profile_meta
+
+    assert read_profile_meta(wet.with_suffix(".meta.json")).constraints.friction == (
+        FrictionSection(150.0, 400.0, 0.25, None, origin="--friction-section 150:400:0.25"),)
 
 
 def test_limits_file_friction_by_position_and_lateral_coefficient(tmp_path):
