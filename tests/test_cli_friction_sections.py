@@ -165,3 +165,14 @@ def test_unreachable_stop_in_a_wet_section_exits_2_naming_the_cause(tmp_path):
     assert "the stop at station 100 m" in text
     assert "friction 0.1 of the friction section 30..150 m (--friction-section 30:150:0.1)" in text
     assert nothing_written(tmp_path, "p.csv", "p.meta.json")
+
+
+def test_plot_gg_from_a_sidecar_with_a_friction_section(tmp_path):
+    route = hook_csv(tmp_path / "hook.csv")
+    profile = tmp_path / "p.csv"
+    assert run("plan", route, "-o", profile, "--friction-section", "150:400:0.25").exit_code == 0
+    gg = tmp_path / "gg.svg"
+    result = run("plot", profile, "-o", tmp_path / "o.png", "--gg", gg)
+    assert result.exit_code == 0, result.output
+    # the legend names the section's ellipse (structure, not pixels)
+    assert "lowest section mu 0.25" in gg.read_text()

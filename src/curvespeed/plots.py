@@ -448,20 +448,21 @@ def plot_overview(profile, limits: Limits | None = None,
     return Overview(figure=figure, axes=axes, artists=artists, title=text, data=data)
 
 
-def gg_figure(profile, limits: Limits | None = None):
+def gg_figure(profile, limits: Limits | None = None, friction_sections: tuple = ()):
     """The g-g diagram (:func:`plot_gg`) as a figure of its own, with the route's name."""
     from matplotlib.figure import Figure
 
     sp = as_station_profile(profile)
     figure = Figure(figsize=GG_SIZE_IN, layout="constrained")
-    artists = plot_gg(sp, limits, ax=figure.add_subplot())
+    artists = plot_gg(sp, limits, ax=figure.add_subplot(), friction_sections=friction_sections)
     figure.suptitle(f"{sp.name}: accelerations along and across the path", fontsize="medium")
     return artists
 
 
-def gg_bytes(profile, fmt: str, limits: Limits | None = None) -> bytes:
+def gg_bytes(profile, fmt: str, limits: Limits | None = None,
+             friction_sections: tuple = ()) -> bytes:
     """The g-g figure (:func:`gg_figure`) as the bytes of a ``png``, ``svg`` or ``pdf`` file."""
-    return figure_bytes(gg_figure(profile, limits).ax.figure, fmt)
+    return figure_bytes(gg_figure(profile, limits, friction_sections).ax.figure, fmt)
 
 
 def save_overview(profile, path: str | os.PathLike, limits: Limits | None = None,
