@@ -15,6 +15,8 @@ import math
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from helpers import circle_geometry, geometry_from_curvature, straight_curve_straight
 
 from curvespeed.errors import InfeasibleError, LimitsError
@@ -292,3 +294,42 @@ def test_check_gives_a_curve_spanning_sections_its_lowest_limit_speed():
     assert curve.limit_speed_mps == pytest.approx(expected, rel=1e-9)
     dry = check_speeds(geo, limits, RouteConstraints(), np.full(geo.n_nodes, 10.0)).curves[0]
     assert dry.limit_speed_mps == pytest.approx(math.sqrt(2.5 * 100.0), rel=1e-9)
+
+
+def _surface_at(points, sections, route: float) -> np.ndarray:
+    """The friction of the road at each point: the lowest of the sections containing it, the
+    route's where none does (the reading the planner must never exceed)."""
+    out = np.full(points.size, np.inf)
+    for sec in sections:
+        inside = (points >= sec.start_m) & (points <= sec.end_m)
+        out = np.where(inside, np.minimum(out, sec.friction_coefficient), out)
+    return np.where(np.isinf(out), route, out)
+
+
+# Stations to the millimetre: the planner reads stations within 1e-9 of a step of a node as
+# on it (round-off of stations computed from positions), far below a millimetre.
+@settings(derandomize=True, max_examples=60, deadline=None)
+@given(st.lists(st.tuples(st.integers(0, 38000), st.integers(100, 20000), st.floats(0.05, 1.5)),
+                min_size=1, max_size=4),
+       st.floats(0.5, 3.0), st.booleans())
+def test_no_node_plans_with_more_grip_than_its_steps_have_anywhere(raw, ds, closed):
+    n = int(40.0 // ds) + 1
+    sections = tuple(FrictionSection(a / 1000.0, (a + w) / 1000.0, mu) for a, w, mu in raw)
+    mu, _, index = node_friction(ROUTE, sections, ds, n, closed)
+    # sample the inside of each step densely (39 points), and each node itself
+    t = np.linspace(0.0, 1.0, 41)[1:-1]
+    step_low = np.array([_surface_at((k + t) * ds, sections, ROUTE.mu_long).min()
+                         for k in range(n - 1)])
+    before = np.concatenate(([step_low[-1] if closed else np.inf], step_low))
+    after = np.concatenate((step_low, [step_low[0] if closed else np.inf]))
+    at_node = _surface_at(np.arange(n) * ds, sections, ROUTE.mu_long)
+    if closed:                  # the last node is the first
+        at_node[0] = at_node[-1] = min(at_node[0], at_node[-1])
+    # conservative: never above the lowest friction anywhere on the steps touching the node
+    assert np.all(mu <= np.minimum(np.minimum(before, after), at_node))
+    # and no lower than the lowest coefficient among the route and the sections there
+    assert np.all(mu >= min([ROUTE.mu_long] + [s.friction_coefficient for s in sections]))
+    # the index names a section with exactly the node's coefficient, or the route's
+    named = np.array([sections[i].friction_coefficient if i >= 0 else ROUTE.mu_long
+                      for i in index])
+    assert np.all(named == mu)

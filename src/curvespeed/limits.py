@@ -37,6 +37,8 @@ class Limits:
         Tyre-road friction coefficient mu (dimensionless). With ``lateral_friction_coefficient``
         it sets the friction ellipse: tyre force along the path up to mu*N, across up to
         mu_lat*N, combined elliptically (N: normal load, including superelevation and grade).
+        The route's friction: friction sections (:mod:`curvespeed.friction`) replace it over
+        their station ranges.
     max_lateral_accel_mps2 : float
         Comfort cap on the lateral acceleration felt in the road plane, m/s^2.
     max_accel_mps2, max_decel_mps2 : float
