@@ -10,6 +10,7 @@ import pytest
 from helpers import circle_geometry
 from test_certificate_convex import CASES
 
+from curvespeed.friction import FrictionSection
 from curvespeed.limits import Limits, RouteConstraints, Stop
 from curvespeed.problem import build_problem
 from curvespeed.solvers import envelope
@@ -19,6 +20,15 @@ pytestmark = pytest.mark.skipif(envelope._compiled is None, reason="compiled pas
 PROBLEMS = {name: (geo, lim, con) for name, (geo, lim, con) in CASES.items()}
 PROBLEMS["circle with a stop"] = (circle_geometry(80.0), Limits(max_jerk_mps3=1.0),
                                   RouteConstraints(stops=(Stop(100.0),)))
+# per-node friction (overlapping sections, one raising the grip, one with its own lateral
+# coefficient; one across the seam of the loop) reaches the compiled passes as arrays
+PROBLEMS["circle with friction sections"] = (
+    circle_geometry(60.0), Limits(max_jerk_mps3=None, max_lateral_accel_mps2=9.0,
+                                  max_decel_mps2=8.0, max_accel_mps2=8.0,
+                                  friction_coefficient=0.8, lateral_friction_coefficient=0.9),
+    RouteConstraints(stops=(Stop(200.0),), friction=(
+        FrictionSection(20.0, 90.5, 0.3), FrictionSection(60.0, 150.0, 0.5, 0.25),
+        FrictionSection(250.0, 300.0, 1.1), FrictionSection(360.0, 376.9, 0.4))))
 
 
 @pytest.mark.parametrize("name", list(PROBLEMS))

@@ -41,7 +41,8 @@ def undrivable_station(problem: SpeedProblem) -> str | None:
     bad = np.flatnonzero(stuck)
     k = int(bad[0])
     grade = math.tan(math.asin(float(problem.sin_grade[k])))
-    lim = problem.limits
+    mu = float(problem.mu_long[k])
+    section = friction_section_note(problem, k)
     station = float(problem.station_m[k])
     others = (f" (and {bad.size - 1} more station(s) up to {problem.station_m[bad[-1]]:.1f} m)"
               if bad.size > 1 else "")
@@ -50,15 +51,51 @@ def undrivable_station(problem: SpeedProblem) -> str | None:
         worst = 100.0 * math.tan(math.asin(float(problem.sin_grade[steepest])))
         return (f"{problem.source}: a grade of {100.0 * grade:+.0f} % at station {station:.1f} m"
                 f"{others} is steeper than the tyres can climb or hold (friction "
-                f"{lim.mu_long:g} allows about {100.0 * lim.mu_long:.0f} %; the steepest is "
+                f"{mu:g}{section} allows about {100.0 * mu:.0f} %; the steepest is "
                 f"{worst:+.0f} % at {problem.station_m[steepest]:.1f} m): no vehicle can pass it, "
                 "whatever the other limits. Public roads stay below about 35 %; grades like "
                 "this come from elevation errors (a spike, or receiver noise): check the elevations, or "
                 "plan without them (drop the elevation column)")
     return (f"{problem.source}: at station {station:.1f} m{others} the vehicle cannot stand or "
             f"move forward at any speed (acceleration allowed there at rest: {lo[k]:.3g} to "
-            f"{hi[k]:.3g} m/s^2); check the grade, the superelevation, the friction "
-            "coefficient and the drag there")
+            f"{hi[k]:.3g} m/s^2; friction there {mu:g}{section}); check the grade, the "
+            "superelevation, the friction coefficient and the drag there")
+
+
+def friction_section_note(problem: SpeedProblem, k: int) -> str:
+    """`` of the friction section a..b m (origin)`` when a friction section sets node ``k``'s
+    friction, else an empty string."""
+    i = int(problem.friction_index[k])
+    return f" of the {problem.friction_sections[i].label()}" if i >= 0 else ""
+
+
+def braking_decel(problem: SpeedProblem, last: int) -> tuple[float, int | None]:
+    """The mean deceleration a vehicle can brake at on the level from the first node up to
+    node ``last``, m/s^2, and the node of lowest friction where friction (``mu g``) is below
+    the deceleration cap somewhere on the way (None where the cap binds all along).
+
+    Each step brakes at the smaller of the cap and ``mu g`` at its lower-friction node; over
+    the way the squared speed can fall by ``2 * mean * distance`` (exact without jerk bound).
+    """
+    lim = problem.limits
+    last = max(int(last), 1)
+    mu = problem.mu_long[: last + 1]
+    step = np.minimum(lim.max_decel_mps2,
+                      np.minimum(mu[:-1], mu[1:]) * lim.gravity_mps2)
+    k = int(np.argmin(mu))
+    if not float(mu[k]) * lim.gravity_mps2 < lim.max_decel_mps2:
+        return lim.max_decel_mps2, None      # the cap all along, exactly
+    return float(np.mean(step)), k
+
+
+def grip_words(problem: SpeedProblem, slippery: int, decel: float) -> str:
+    """How friction limits braking on the way: the friction, its section, where, the mean."""
+    lim = problem.limits
+    mu = float(problem.mu_long[slippery])
+    return (f"friction {mu:g}{friction_section_note(problem, slippery)} from station "
+            f"{problem.station_m[slippery]:.1f} m allows only {mu * lim.gravity_mps2:.2f} m/s^2 "
+            f"(mu g, below max_decel_mps2 = {lim.max_decel_mps2:g}): {decel:.2f} m/s^2 on "
+            "average over the way")
 
 
 def jerk_limited_stopping_distance(v0: float, decel: float, jerk: float | None) -> float:
@@ -98,23 +135,31 @@ def stop_out_of_reach(problem: SpeedProblem, jerk: bool) -> str | None:
     lim = problem.limits
     v0 = math.sqrt(problem.b_start)
     j = lim.max_jerk_mps3 if jerk else None
-    need = jerk_limited_stopping_distance(v0, lim.max_decel_mps2, j)
     s0 = float(problem.station_m[0])
     for stop in sorted(problem.stops, key=lambda st: st.station_m):
         node = stop_node(stop.station_m, problem.ds, problem.n_nodes, problem.closed)
+        decel, slippery = braking_decel(problem, node)
+        need = jerk_limited_stopping_distance(v0, decel, j)
         available = float(problem.station_m[node]) - s0
         if need <= available:
             continue
         origin = f"{stop.origin}: " if stop.origin else ""
-        how = (f"braking at up to {lim.max_decel_mps2:g} m/s^2 with jerk up to {j:g} m/s^3"
-               if j is not None else f"braking at up to {lim.max_decel_mps2:g} m/s^2")
-        fastest = _fastest_start_that_stops(available, lim.max_decel_mps2, j)
-        raise_limit = "max_decel_mps2" + (" or max_jerk_mps3" if j is not None else "")
-        return (f"{problem.source}: {origin}the stop at station {stop.station_m:g} m is "
+        name = f" '{stop.name}'" if getattr(stop, "name", "") else ""
+        jerk_part = f" with jerk up to {j:g} m/s^3" if j is not None else ""
+        fastest = _fastest_start_that_stops(available, decel, j)
+        if slippery is not None:
+            how = (f"braking where {grip_words(problem, slippery, decel)}{jerk_part}")
+            raise_limit = ("check the friction of that section" if problem.friction_index[
+                slippery] >= 0 else "check friction_coefficient")
+        else:
+            how = f"braking at up to {decel:g} m/s^2{jerk_part}"
+            raise_limit = "raise max_decel_mps2" + (" or max_jerk_mps3" if j is not None
+                                                   else "")
+        return (f"{problem.source}: {origin}the stop{name} at station {stop.station_m:g} m is "
                 f"{available:.1f} m from the start, too close to come to rest from the start "
-                f"speed {v0:.2f} m/s: {how} takes {need:.1f} m on the level. Lower the "
+                f"speed {v0:.2f} m/s: {how}, takes {need:.1f} m on the level. Lower the "
                 f"start speed to {fastest:.2f} m/s or less, move the stop to {need:.1f} m or "
-                f"more from the start, or raise {raise_limit}")
+                f"more from the start, or {raise_limit}")
     return None
 
 

@@ -37,6 +37,8 @@ class Limits:
         Tyre-road friction coefficient mu (dimensionless). With ``lateral_friction_coefficient``
         it sets the friction ellipse: tyre force along the path up to mu*N, across up to
         mu_lat*N, combined elliptically (N: normal load, including superelevation and grade).
+        The route's friction: friction sections (:mod:`curvespeed.friction`) replace it over
+        their station ranges.
     max_lateral_accel_mps2 : float
         Comfort cap on the lateral acceleration felt in the road plane, m/s^2.
     max_accel_mps2, max_decel_mps2 : float
@@ -356,6 +358,19 @@ class Superelevation:
     end_m: float
     rate: float
     origin: str = ""
+    snap_distance_m: float | None = None
+
+
+@dataclass(frozen=True)
+class SuperelevationPosition:
+    """A superelevation range given by the positions of its two ends (as
+    :class:`ZonePosition`), not yet on the route; ``rate`` as for :class:`Superelevation`."""
+
+    start: tuple[float, float]
+    end: tuple[float, float]
+    rate: float
+    geographic: bool = False
+    origin: str = ""
 
 
 @dataclass(frozen=True)
@@ -363,7 +378,9 @@ class RouteConstraints:
     """What the route imposes besides its geometry.
 
     ``start_speed_mps`` / ``end_speed_mps`` of None mean the default: at rest on an open route,
-    periodic (lap joins itself) on a closed one.
+    periodic (lap joins itself) on a closed one. ``friction`` holds
+    :class:`~curvespeed.friction.FrictionSection` entries; the ``*_positions`` hold what is
+    given by position until :func:`curvespeed.placement.place_positions` puts it on the route.
     """
 
     zones: tuple[SpeedZone, ...] = ()
@@ -373,6 +390,9 @@ class RouteConstraints:
     end_speed_mps: float | None = None
     stop_positions: tuple[StopPosition, ...] = ()
     zone_positions: tuple[ZonePosition, ...] = ()
+    friction: tuple = ()
+    friction_positions: tuple = ()
+    superelevation_positions: tuple[SuperelevationPosition, ...] = ()
 
     def merged(self, other: "RouteConstraints") -> "RouteConstraints":
         """Constraints of both; ``other``'s start/end speeds win where set."""
@@ -386,6 +406,10 @@ class RouteConstraints:
                            else self.end_speed_mps),
             stop_positions=self.stop_positions + other.stop_positions,
             zone_positions=self.zone_positions + other.zone_positions,
+            friction=self.friction + other.friction,
+            friction_positions=self.friction_positions + other.friction_positions,
+            superelevation_positions=(self.superelevation_positions
+                                      + other.superelevation_positions),
         )
 
     def to_dict(self) -> dict:
@@ -395,12 +419,10 @@ class RouteConstraints:
 def overlay_constraints(road: RouteConstraints, user: RouteConstraints) -> RouteConstraints:
     """The road data's own constraints with the user's on top: wherever the user gives a speed
     zone or a superelevation range, the road's zones or superelevation over that range are
-    dropped and the user's apply; stops and end speeds are the user's."""
-    return RouteConstraints(
-        zones=_cut(road.zones, user.zones) + user.zones, stops=user.stops,
-        superelevation=_cut(road.superelevation, user.superelevation) + user.superelevation,
-        start_speed_mps=user.start_speed_mps, end_speed_mps=user.end_speed_mps,
-        stop_positions=user.stop_positions, zone_positions=user.zone_positions)
+    dropped and the user's apply; stops, friction sections and end speeds are the user's."""
+    return dataclasses.replace(
+        user, zones=_cut(road.zones, user.zones) + user.zones,
+        superelevation=_cut(road.superelevation, user.superelevation) + user.superelevation)
 
 
 def _cut(items: tuple, covers: tuple) -> tuple:
@@ -467,6 +489,9 @@ def validate_constraints(rc: RouteConstraints, length_m: float, closed: bool) ->
         if not (math.isfinite(e.rate) and abs(e.rate) <= 0.2):
             raise LimitsError(f"{here(e)}superelevation rate {e.rate:g} at {e.start_m:g}..{e.end_m:g}"
                               " m is outside +-0.2 (rise over run: 0.06 means 6 %)")
+    from .friction import validate_friction_sections
+
+    validate_friction_sections(rc.friction, length_m, end)
     for name in ("start_speed_mps", "end_speed_mps"):
         v = getattr(rc, name)
         if v is not None and not (math.isfinite(v) and v >= 0):

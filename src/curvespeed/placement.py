@@ -1,6 +1,6 @@
 """Constraints given by position, put on the route: a point snapped to its nearest station.
 
-A stop, or each end of a speed zone, may be given by ``x_m``/``y_m`` in the route's metric frame or by WGS84 latitude and
+A stop, or each end of a speed zone, friction section or superelevation range, may be given by ``x_m``/``y_m`` in the route's metric frame or by WGS84 latitude and
 longitude (on a geographic route, through the route's own local projection). The point goes to
 the nearest point of the resampled route's polyline; the distance between the two is the
 snapping distance, kept on the :class:`~curvespeed.limits.Stop` so that the command line can
@@ -20,7 +20,9 @@ import math
 import numpy as np
 
 from .errors import LimitsError
-from .limits import RouteConstraints, SpeedZone, Stop, StopPosition, ZonePosition
+from .friction import FrictionPosition, FrictionSection
+from .limits import (RouteConstraints, SpeedZone, Stop, StopPosition, Superelevation,
+                     SuperelevationPosition, ZonePosition)
 
 #: Farthest a position may lie from the route and still be snapped to it, m: a few lane widths
 #: (3.5 m each, common practice) plus consumer GNSS error (a few metres); a point farther off
@@ -97,35 +99,67 @@ def place_stop(pos: StopPosition, geometry, max_distance_m: float = MAX_SNAP_DIS
                 snap_distance_m=distance)
 
 
-def place_zone(pos: ZonePosition, geometry, max_distance_m: float = MAX_SNAP_DISTANCE_M
-               ) -> SpeedZone:
-    """``pos`` with both ends snapped to ``geometry`` as a :class:`SpeedZone`; an end that
-    comes before the start along the route is refused (give the ends in driving order)."""
+def place_range(pos, geometry, kind: str, max_distance_m: float = MAX_SNAP_DISTANCE_M
+                ) -> tuple[float, float, float]:
+    """``(start station, end station, snapping distance)`` of a range given by the positions of
+    its two ends (``pos.start``, ``pos.end``, ``pos.geographic``, ``pos.origin``), both snapped
+    to ``geometry``; the distance is the larger of the two. ``kind`` names the range in errors
+    ("speed zone", "friction section", ...). An end that snaps before the start along the
+    route is refused (give the ends in driving order)."""
     unit = "" if pos.geographic else " m"
     here = f"{pos.origin}: " if pos.origin else ""
     ends = []
     for label, (a, b) in (("start", pos.start), ("end", pos.end)):
-        what = f"{here}speed zone {label} at {a:g}{unit}, {b:g}{unit}"
+        what = f"{here}{kind} {label} at {a:g}{unit}, {b:g}{unit}"
         ends.append(snap_point(geometry, a, b, pos.geographic, what, max_distance_m))
     (s0, d0), (s1, d1) = ends
     if not s1 > s0:
-        raise LimitsError(f"{here}speed zone: its end snaps to station {s1:.1f} m, not after its "
+        raise LimitsError(f"{here}{kind}: its end snaps to station {s1:.1f} m, not after its "
                           f"start at {s0:.1f} m; give the ends in driving order (start first)")
-    return SpeedZone(s0, s1, pos.max_speed_mps, origin=pos.origin,
-                     snap_distance_m=max(d0, d1))
+    return s0, s1, max(d0, d1)
+
+
+def place_zone(pos: ZonePosition, geometry, max_distance_m: float = MAX_SNAP_DISTANCE_M
+               ) -> SpeedZone:
+    """``pos`` with both ends snapped to ``geometry`` as a :class:`SpeedZone`
+    (:func:`place_range`)."""
+    s0, s1, d = place_range(pos, geometry, "speed zone", max_distance_m)
+    return SpeedZone(s0, s1, pos.max_speed_mps, origin=pos.origin, snap_distance_m=d)
+
+
+def place_friction(pos: FrictionPosition, geometry,
+                   max_distance_m: float = MAX_SNAP_DISTANCE_M) -> FrictionSection:
+    """``pos`` with both ends snapped to ``geometry`` as a :class:`FrictionSection`."""
+    s0, s1, d = place_range(pos, geometry, "friction section", max_distance_m)
+    return FrictionSection(s0, s1, pos.friction_coefficient, pos.lateral_friction_coefficient,
+                           origin=pos.origin, snap_distance_m=d)
+
+
+def place_superelevation(pos: SuperelevationPosition, geometry,
+                         max_distance_m: float = MAX_SNAP_DISTANCE_M) -> Superelevation:
+    """``pos`` with both ends snapped to ``geometry`` as a :class:`Superelevation`."""
+    s0, s1, d = place_range(pos, geometry, "superelevation", max_distance_m)
+    return Superelevation(s0, s1, pos.rate, origin=pos.origin, snap_distance_m=d)
 
 
 def place_positions(constraints: RouteConstraints, geometry, stops: bool = True,
                     max_distance_m: float = MAX_SNAP_DISTANCE_M) -> RouteConstraints:
-    """``constraints`` with every zone (and, with ``stops``, every stop) given by position
-    snapped to ``geometry`` and added after those given by station; the same object when there
-    is nothing to place."""
+    """``constraints`` with every zone, friction section and superelevation range (and, with
+    ``stops``, every stop) given by position snapped to ``geometry`` and added after those
+    given by station; the same object when there is nothing to place."""
     todo_stops = constraints.stop_positions if stops else ()
-    if not todo_stops and not constraints.zone_positions:
+    if not (todo_stops or constraints.zone_positions or constraints.friction_positions
+            or constraints.superelevation_positions):
         return constraints
     zones = tuple(place_zone(z, geometry, max_distance_m) for z in constraints.zone_positions)
+    friction = tuple(place_friction(f, geometry, max_distance_m)
+                     for f in constraints.friction_positions)
+    banks = tuple(place_superelevation(e, geometry, max_distance_m)
+                  for e in constraints.superelevation_positions)
     placed = tuple(place_stop(p, geometry, max_distance_m) for p in todo_stops)
     return dataclasses.replace(
         constraints, zones=constraints.zones + zones, zone_positions=(),
+        friction=constraints.friction + friction, friction_positions=(),
+        superelevation=constraints.superelevation + banks, superelevation_positions=(),
         stops=constraints.stops + placed,
         stop_positions=() if stops else constraints.stop_positions)

@@ -95,6 +95,7 @@ import numpy as np
 
 from . import lateral_rates, rest_step
 from .errors import InfeasibleError, LimitsError
+from .friction import node_friction, touching_nodes
 from .geometry import Geometry
 from .jerk_model import JerkTimeTerms, jerk_time_terms, rest_nodes, with_rest_steps
 from .limits import Limits, RouteConstraints, stop_node, validate_constraints, validate_limits
@@ -149,6 +150,15 @@ class SpeedProblem:
         Shape ``u`` of each step next to rest (:mod:`curvespeed.rest_step`); NaN elsewhere.
     jerk_terms : JerkTimeTerms
         The time base of the jerk at each node (:meth:`node_jerk_time`).
+    mu_long, mu_lat : ndarray, shape (n+1,)
+        Tyre-road friction along and across the path at each node: the route's
+        (``Limits.mu_long``, ``Limits.mu_lat``) or a friction section's
+        (:func:`curvespeed.friction.node_friction`).
+    friction_index : ndarray of int, shape (n+1,)
+        Index into :attr:`friction_sections` of the section setting each node's friction, -1
+        where the route's own friction does (for messages).
+    friction_sections : tuple of FrictionSection
+        The friction sections as the user gave them, for messages.
     stops : tuple of Stop
         The stops as the user gave them (station and origin), for messages.
     accel_start_mps2 : float
@@ -189,6 +199,10 @@ class SpeedProblem:
     accel_factor_end: np.ndarray
     rest_u: np.ndarray
     jerk_terms: JerkTimeTerms
+    mu_long: np.ndarray
+    mu_lat: np.ndarray
+    friction_index: np.ndarray
+    friction_sections: tuple = ()
     stops: tuple = ()
     accel_start_mps2: float = 0.0
     accel_start_tolerance_mps2: float = 0.0
@@ -232,8 +246,8 @@ class SpeedProblem:
         c = np.sqrt(np.maximum(1.0 - r * r, 0.0))
         c = np.where(r > 1.0, -1.0, c)  # empty comfort interval
         n = self.normal_accel(b, nodes)
-        w2 = n * n - (y / lim.mu_lat) ** 2
-        w = lim.mu_long * np.sqrt(np.maximum(w2, 0.0))
+        w2 = n * n - (y / self.mu_lat[nodes]) ** 2
+        w = self.mu_long[nodes] * np.sqrt(np.maximum(w2, 0.0))
         w = np.where(w2 < 0.0, -1.0, w)
         res = self.resistance(b, nodes)
         lo = np.maximum(-lim.max_decel_mps2 * c, -w - res)
@@ -373,7 +387,9 @@ def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstrai
     # lateral jerk follows the estimate itself (kappa_signed).
     kappa_abs = np.asarray(geometry.planning_curvature_1pm, dtype=float)
     cap, source, stop_nodes = _speed_caps(geometry, limits, constraints)
-    theta, gamma = _bank_and_grade(geometry, limits, constraints)
+    mu_long, mu_lat, friction_index = node_friction(limits, constraints.friction,
+                                                    float(geometry.spacing_m), n, geometry.closed)
+    theta, gamma = _bank_and_grade(geometry, mu_lat, friction_index, constraints)
     b_start, b_end = _end_speeds_b(geometry, constraints)
     if jerk_model is None:
         jerk_model = limits.max_jerk_mps3 is not None
@@ -389,7 +405,9 @@ def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstrai
         time_coef=np.full(steps, 2.0),
         accel_factor_start=np.ones(steps), accel_factor_end=np.ones(steps),
         rest_u=np.full(steps, np.nan),
-        jerk_terms=jerk_time_terms(n, geometry.closed, np.full(steps, np.nan), np.ones(steps)))
+        jerk_terms=jerk_time_terms(n, geometry.closed, np.full(steps, np.nan), np.ones(steps)),
+        mu_long=mu_long, mu_lat=mu_lat, friction_index=friction_index,
+        friction_sections=tuple(constraints.friction))
     if jerk_model:
         problem = with_rest_steps(problem, rest_nodes(problem))
     return problem
@@ -403,9 +421,7 @@ def _speed_caps(geometry: Geometry, limits: Limits, constraints: RouteConstraint
     source = np.full(n, "max_speed", dtype=object)
     for zone in constraints.zones:
         # every node of a step that overlaps the zone, so linear-in-b steps stay under the cap
-        i0 = max(int(math.floor(zone.start_m / ds + 1e-9)), 0)
-        i1 = min(int(math.ceil(zone.end_m / ds - 1e-9)), n - 1)
-        sl = slice(i0, i1 + 1)
+        sl = touching_nodes(zone.start_m, zone.end_m, ds, n)
         tighter = cap[sl] > zone.max_speed_mps ** 2
         cap[sl] = np.where(tighter, zone.max_speed_mps ** 2, cap[sl])
         source[sl] = np.where(tighter, "zone", source[sl])
@@ -420,8 +436,10 @@ def _speed_caps(geometry: Geometry, limits: Limits, constraints: RouteConstraint
     return cap, source, stop_nodes
 
 
-def _bank_and_grade(geometry: Geometry, limits: Limits, constraints: RouteConstraints):
-    """Bank angle (from superelevation) and grade angle at each node, radians."""
+def _bank_and_grade(geometry: Geometry, mu_lat: np.ndarray, friction_index: np.ndarray,
+                    constraints: RouteConstraints):
+    """Bank angle (from superelevation) and grade angle at each node, radians; refuses a
+    cross-slope a vehicle at rest would slide down (``mu_lat``: each node's lateral friction)."""
     s = geometry.station_m
     e = np.zeros(s.size)
     for sup in constraints.superelevation:
@@ -430,11 +448,18 @@ def _bank_and_grade(geometry: Geometry, limits: Limits, constraints: RouteConstr
     theta = np.arctan(e)
     gamma = np.arctan(geometry.grade) if geometry.grade is not None else np.zeros(s.size)
     # A vehicle at rest on a cross-slope steeper than friction allows would slide.
-    too_steep = np.abs(e) > limits.mu_lat * np.cos(gamma)
+    too_steep = np.abs(e) > mu_lat * np.cos(gamma)
     if too_steep.any():
         k = int(np.flatnonzero(too_steep)[0])
-        raise LimitsError(f"superelevation {e[k]:g} at station {s[k]:.1f} m exceeds the lateral "
-                          f"friction coefficient {limits.mu_lat:g}: a vehicle would slide at rest")
+        sup = next((x for x in constraints.superelevation
+                    if x.start_m - 1e-9 <= s[k] <= x.end_m + 1e-9 and x.rate == e[k]), None)
+        named = f" ({sup.origin})" if sup is not None and sup.origin else ""
+        section = (constraints.friction[friction_index[k]] if friction_index[k] >= 0 else None)
+        where = (f"of the {section.label()}" if section is not None
+                 else "of the route")
+        raise LimitsError(f"superelevation {e[k]:g}{named} at station {s[k]:.1f} m exceeds the "
+                          f"lateral friction coefficient {mu_lat[k]:g} {where}: a vehicle "
+                          "would slide at rest; lower the cross-slope or check the friction")
     return theta, gamma
 
 
@@ -454,8 +479,11 @@ def check_start_end(problem: SpeedProblem, ceiling_b: np.ndarray) -> None:
     """Raise :class:`InfeasibleError` if a fixed start or end speed exceeds its node's ceiling."""
     for which, b_fixed, k in (("start", problem.b_start, 0), ("end", problem.b_end, -1)):
         if b_fixed is not None and b_fixed > ceiling_b[k] * (1 + 1e-9) + 1e-12:
+            i = int(problem.friction_index[k])
+            grip = ("" if i < 0 else f" on friction {problem.mu_lat[k]:g} across the path of the "
+                    f"{problem.friction_sections[i].label()}")
             raise InfeasibleError(
                 f"{problem.source}: {which} speed {math.sqrt(b_fixed):.2f} m/s exceeds what the "
                 f"route allows at "
                 f"station {problem.station_m[k]:.1f} m ({math.sqrt(ceiling_b[k]):.2f} m/s, set by "
-                f"{problem.cap_source[k]} or curvature); lower the {which} speed")
+                f"{problem.cap_source[k]} or curvature{grip}); lower the {which} speed")

@@ -143,7 +143,10 @@ class Replanner:
     limits : Limits
         Vehicle limits; validated here, with a warning where they look implausible.
     constraints : RouteConstraints
-        Zones, stops, superelevation, end speeds (the start speed is the vehicle's, per call).
+        Zones, stops, superelevation, friction sections, end speeds (the start speed is the
+        vehicle's, per call). Those given by position are placed on the route as
+        :func:`curvespeed.planner.plan_profile` places them (:attr:`constraints` holds them
+        placed).
     horizon_m : float
         Length of each window, metres (cut at the end of an open route, at most one lap).
     options : ConvexOptions, optional
@@ -195,6 +198,11 @@ class Replanner:
             raise ReplanError(f"relax_limits must be a fraction from 0 to 0.5, got "
                               f"{relax_limits!r}")
         self.relax_limits = float(relax_limits)
+        from .placement import place_positions
+
+        # stops, zones, friction sections and superelevation given by position, as plan places
+        # them (the snapping distances are kept on the placed constraints)
+        constraints = place_positions(constraints, geometry)
         self.geometry = geometry
         self.limits = limits
         self.constraints = constraints

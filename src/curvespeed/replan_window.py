@@ -17,7 +17,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from .diagnose import undrivable_station
+from .diagnose import braking_decel, grip_words, undrivable_station
 from .errors import InfeasibleError
 from .geometry import Geometry
 from .jerk_model import jerk_time_terms, rest_nodes, with_rest_steps
@@ -130,7 +130,8 @@ class RouteTables:
             cap[-1], source[-1] = end_bound, "window_end"
         reserve = None if at_end else self._end_reserve(end_bound, int(idx[-1]))
         stop_pos = [i for i in range(1, idx.size) if idx[i] % self.nv in self.stop_at]
-        stops = tuple(Stop(i * self.ds, self._stop_origin(idx[i])) for i in stop_pos)
+        stops = tuple(Stop(i * self.ds, self._stop_origin(idx[i]),
+                           name=self.stop_at[idx[i] % self.nv].name) for i in stop_pos)
         nsteps = idx.size - 1
         terms = jerk_time_terms(nsteps + 1, False, src.rest_u[st], src.accel_factor_start[st])
         if reserve is not None:         # a free end keeps its acceleration (the reserve row)
@@ -141,6 +142,7 @@ class RouteTables:
             kappa_abs=w.kappa_abs[idx], kappa_signed=w.kappa_signed[idx],
             sin_bank=w.sin_bank[idx], cos_bank=w.cos_bank[idx],
             sin_grade=w.sin_grade[idx], cos_grade=w.cos_grade[idx],
+            mu_long=w.mu_long[idx], mu_lat=w.mu_lat[idx], friction_index=w.friction_index[idx],
             cap_b=cap, cap_source=source, b_start=b0, b_end=end_b,
             stop_nodes=np.asarray(stop_pos, dtype=int), stops=stops,
             time_coef=src.time_coef[st], accel_factor_start=src.accel_factor_start[st],
@@ -274,11 +276,13 @@ class RouteTables:
         cause = what.get(source, "a curve (lateral acceleration or grip)")
         v0, vk = math.sqrt(b0), math.sqrt(max(ceil[k], 0.0))
         dist = k * window.ds
-        need = (b0 - ceil[k]) / (2.0 * p.limits.max_decel_mps2)
+        decel, slippery = braking_decel(p, k)
+        need = (b0 - ceil[k]) / (2.0 * decel)
+        grip = "" if slippery is None else f" ({grip_words(p, slippery, decel)})"
         return (f"{p.source}: the vehicle at station {p.station_m[0]:.1f} m is too fast: at "
                 f"{v0:.2f} m/s it must be down to {vk:.2f} m/s at station "
                 f"{p.station_m[k]:.1f} m ({cause}), {dist:.1f} m ahead, and braking at "
-                f"{p.limits.max_decel_mps2:g} m/s^2 needs about {need:.1f} m; the planner does "
+                f"{decel:.3g} m/s^2{grip} needs about {need:.1f} m; the planner does "
                 "not plan beyond its limits: slow the vehicle down (its own safety functions), "
                 "or replan with the limits it is really driven at")
 

@@ -102,7 +102,7 @@ def verify_profile(problem: SpeedProblem, b: np.ndarray,
         cap_a = np.where(a_here >= 0.0, lim.max_accel_mps2, lim.max_decel_mps2)
         comfort = np.hypot(a_here / cap_a, lat_use[k])
         tyre_long = a_here + res[k]
-        grip = np.hypot(tyre_long / lim.mu_long, y[k] / lim.mu_lat) / normal[k]
+        grip = np.hypot(tyre_long / problem.mu_long[k], y[k] / problem.mu_lat[k]) / normal[k]
         if math.isfinite(lim.power_per_mass_wpkg):
             power = np.maximum(tyre_long, 0.0) * v[k] / lim.power_per_mass_wpkg
         else:
@@ -148,7 +148,7 @@ def verify_profile(problem: SpeedProblem, b: np.ndarray,
         violations.append(Violation(0.0, "periodic seam", float(v[-1] / max(v[0], 1e-12))))
 
     peak = {name: float(np.max(arr)) for name, arr in use.items()}
-    grip_lat_share = np.abs(y) / (lim.mu_lat * normal)
+    grip_lat_share = np.abs(y) / (problem.mu_lat * normal)
     a_ends = np.concatenate((d["step_accel_first_mps2"], d["step_accel_last_mps2"]))
     extremes = {"accel_mps2": float(max(a_ends.max(), 0.0)),
                 "decel_mps2": float(max(-a_ends.min(), 0.0)),

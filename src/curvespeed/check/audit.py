@@ -72,7 +72,10 @@ def check_speeds(geometry: Geometry, limits: Limits, constraints: RouteConstrain
         raise SpeedFileError(f"{speed_source}: speed {float(v[k]):g} m/s at station {s[k]:.1f} m "
                              "is not a finite, non-negative number; fix the speeds")
     design = None if design_speed_kmh is None else design_criterion(design_speed_kmh, e_max)
-    used = checked_constraints(constraints)
+    from ..placement import place_positions
+
+    # zones, friction sections and superelevation given by position, as plan places them
+    used = checked_constraints(place_positions(constraints, geometry, stops=False))
     judged = judge_speeds(geometry, limits, used, v, kind)
     curve_nodes = find_curves(geometry, settings)
     places = _Places(s, *territories(curve_nodes, geometry), settings.join_gap_m, tolerance)
@@ -265,14 +268,22 @@ def _curve_check(c: int, nodes: np.ndarray, j: int, radius: RadiusInterval, judg
     e = float(problem.sin_bank[j] / problem.cos_bank[j])
     a_lat = float(problem_e.felt_lateral(b, j))
     f = float(side_friction_demand(v[j], radius.estimate_m, e, g))
-    limit_v = math.sqrt(judged.ceiling_b[j])
+    # the limit at the tightest point; on a curve spanning friction sections, the lowest limit
+    # over the curve (a wetter part of slightly larger radius may allow less)
+    at = nodes if np.ptp(problem.mu_lat[nodes]) > 0.0 else j
+    limit_v = math.sqrt(float(np.min(judged.ceiling_b[at])))
     first = int(nodes[0])
     approach = (first - 1) % m if closed else max(first - 1, 0)
     available = float(s[j] - s[approach])
     if available < 0.0:
         available += geometry.length_m
     v_app = float(v[approach])
-    a_brake = min(lim.max_decel_mps2, lim.mu_long * g)
+    # the lowest friction on the way in and over the curve (a curve spanning friction sections
+    # is judged at the lowest of them)
+    way_in = (np.arange(approach, approach + (j - approach) % m + 1) % m if closed
+              else np.arange(approach, j + 1))
+    a_brake = min(lim.max_decel_mps2, float(np.min(problem.mu_long[way_in])) * g)
+    mu_lat_curve = float(np.min(problem.mu_lat[nodes]))
     needed = max(v_app * v_app - limit_v * limit_v, 0.0) / (2.0 * a_brake)
     use, use_e = judged.use, judged.use_estimate
     peaks = [float(np.max(use[name][nodes])) for name in ("friction_ellipse", "comfort_ellipse",
@@ -289,12 +300,13 @@ def _curve_check(c: int, nodes: np.ndarray, j: int, radius: RadiusInterval, judg
         lateral_accel_bound_mps2=float(problem.felt_lateral(b, j)), side_friction_demand=f,
         side_friction_demand_bound=float(side_friction_demand(
             v[j], 1.0 / float(problem.kappa_abs[j]), e, g)),
-        friction_margin=lim.mu_lat - f, comfort_margin_mps2=lim.max_lateral_accel_mps2 - a_lat,
+        friction_margin=mu_lat_curve - f, comfort_margin_mps2=lim.max_lateral_accel_mps2 - a_lat,
         friction_use=float(np.max(use["friction_ellipse"][nodes])),
         comfort_use=float(np.max(use["comfort_ellipse"][nodes])),
         friction_use_estimate=float(np.max(use_e["friction_ellipse"][nodes])),
         comfort_use_estimate=float(np.max(use_e["comfort_ellipse"][nodes])),
-        limit_speed_mps=limit_v, limit_speed_estimate_mps=math.sqrt(judged.ceiling_estimate_b[j]),
+        limit_speed_mps=limit_v,
+        limit_speed_estimate_mps=math.sqrt(float(np.min(judged.ceiling_estimate_b[at]))),
         approach_speed_mps=v_app, braking_distance_needed_m=needed,
         braking_distance_available_m=available, brake_ok=True, meets_min_radius=meets,
         meets_min_radius_low=meets_low, meets_min_radius_high=meets_high, advisory=estimate,

@@ -177,7 +177,8 @@ class CurveCheck:
     side_friction_demand, side_friction_demand_bound : float
         ``f = (v^2/(gR) - e)/(1 + e v^2/(gR))`` there, on the estimate and on the bound.
     friction_margin : float
-        Lateral friction coefficient minus ``f`` (estimate; negative: more grip asked than given).
+        Lateral friction coefficient minus ``f`` (estimate; negative: more grip asked than given);
+        the lowest coefficient over the curve where it spans friction sections.
     comfort_margin_mps2 : float
         Lateral comfort limit minus the lateral acceleration (estimate), m/s^2.
     friction_use, comfort_use : float
@@ -187,12 +188,14 @@ class CurveCheck:
         The same on the estimate.
     limit_speed_mps, limit_speed_estimate_mps : float
         Highest speed the limits allow at the tightest point (curve, top speed, zones), on the
-        bound and on the estimate, m/s.
+        bound and on the estimate, m/s; on a curve spanning friction sections, the lowest over
+        the curve.
     approach_speed_mps : float
         Speed checked at the station just before the curve, m/s.
     braking_distance_needed_m : float
         ``(v_approach^2 - v_limit^2) / (2 a)`` with ``a`` the smaller of the deceleration limit
-        and mu g (level road, straight-line braking); 0 when no braking is needed, metres.
+        and mu g (level road, straight-line braking; the lowest mu from the approach station to
+        the tightest point); 0 when no braking is needed, metres.
     braking_distance_available_m : float
         From the approach station to the tightest point, metres.
     brake_ok : bool

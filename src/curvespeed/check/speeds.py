@@ -20,7 +20,7 @@ from .uncertainty import estimate_geometry
 
 
 def checked_constraints(constraints: RouteConstraints, warn: bool = True) -> RouteConstraints:
-    """The constraints ``check`` applies: speed zones and superelevation.
+    """The constraints ``check`` applies: speed zones, superelevation and friction sections.
 
     Stops and start/end speeds are planning targets, not limits of the road; they are dropped
     (with a :class:`CurvespeedWarning` naming where they came from when ``warn``).
@@ -35,7 +35,8 @@ def checked_constraints(constraints: RouteConstraints, warn: bool = True) -> Rou
         warnings.warn(f"check ignores {' and '.join(dropped)}: they are planning targets, not "
                       "limits a speed can exceed; remove them to silence this warning",
                       CurvespeedWarning, stacklevel=3)
-    return RouteConstraints(zones=constraints.zones, superelevation=constraints.superelevation)
+    return RouteConstraints(zones=constraints.zones, superelevation=constraints.superelevation,
+                            friction=constraints.friction)
 
 
 def zone_speeds_mps(geometry: Geometry, limits: Limits,
@@ -67,7 +68,8 @@ def brake_reach_b(geometry: Geometry, limits: Limits,
         # the same limits were validated (and any warning shown) for the main problem
         warnings.simplefilter("ignore", CurvespeedWarning)
         problem = build_problem(geometry, limits.replace(max_speed_mps=NO_CAP_MPS),
-                                RouteConstraints(superelevation=constraints.superelevation),
+                                RouteConstraints(superelevation=constraints.superelevation,
+                                                 friction=constraints.friction),
                                 jerk_model=False)
     ceiling = problem.lateral_ceiling_b()
     return ceiling, brake_reach(problem, ceiling)
@@ -100,6 +102,7 @@ def rest_constraints(used: RouteConstraints, speed_mps: np.ndarray,
             last = k
     return RouteConstraints(
         zones=used.zones, stops=tuple(stops), superelevation=used.superelevation,
+        friction=used.friction,
         start_speed_mps=None if closed else float(v[0]),
         end_speed_mps=None if closed else float(v[-1]))
 

@@ -26,9 +26,10 @@ def _parse_ranges(values, fields: int, what: str, example: str, option: str):
     from ..io._common import number_problem, parse_number
 
     out = []
+    counts = fields if isinstance(fields, tuple) else (fields,)
     for text in values:
         parts = text.split(":")
-        if len(parts) != fields:
+        if len(parts) not in counts:
             raise click.BadParameter(f"'{text}' is not {what}; write it as {example}",
                                      param_hint=f"'{option}'")
         nums = [parse_number(p) for p in parts]
@@ -84,6 +85,27 @@ def zone_options(func):
                      metavar="START_M:END_M:RATE",
                      help="Cross-slope toward the curve's inside over a station range, as a "
                           "fraction (0.06 = 6 %) (repeatable)."),
+        click.option("--superelevation-xy", "superelevations_xy", multiple=True,
+                     metavar="X1:Y1:X2:Y2:RATE",
+                     help="Cross-slope between the route's points nearest two positions in its "
+                          "metric frame, metres, in driving order (repeatable)."),
+        click.option("--superelevation-latlon", "superelevations_latlon", multiple=True,
+                     metavar="LAT1:LON1:LAT2:LON2:RATE",
+                     help="Cross-slope between the route's points nearest two WGS84 positions, "
+                          "decimal degrees, in driving order (repeatable)."),
+        click.option("--friction-section", "friction_sections", multiple=True,
+                     metavar="START_M:END_M:MU[:MU_LAT]",
+                     help="Tyre-road friction over a station range (a wet or gravel stretch); "
+                          "without MU_LAT the vehicle's ellipse shape is kept, scaled. Where "
+                          "sections overlap the lowest wins (repeatable)."),
+        click.option("--friction-section-xy", "friction_sections_xy", multiple=True,
+                     metavar="X1:Y1:X2:Y2:MU[:MU_LAT]",
+                     help="Tyre-road friction between the route's points nearest two positions "
+                          "in its metric frame, metres, in driving order (repeatable)."),
+        click.option("--friction-section-latlon", "friction_sections_latlon", multiple=True,
+                     metavar="LAT1:LON1:LAT2:LON2:MU[:MU_LAT]",
+                     help="Tyre-road friction between the route's points nearest two WGS84 "
+                          "positions, decimal degrees, in driving order (repeatable)."),
     ])
 
 
@@ -120,15 +142,59 @@ def zone_positions(zones_xy, zones_latlon) -> tuple:
                        "--zone-xy")
     ll = _parse_ranges(zones_latlon, 5, "a zone by position",
                        "LAT1:LON1:LAT2:LON2:MAX_SPEED_MPS", "--zone-latlon")
-    for (a, b, c, d, _), text in zip(ll, zones_latlon):
-        if not all(-90.0 <= lat <= 90.0 and -180.0 <= lon <= 360.0 for lat, lon in ((a, b), (c, d))):
-            raise click.BadParameter(f"'{text}': a position is not on Earth (lat -90..90, lon "
-                                     "-180..180); check the order (lat first)",
-                                     param_hint="'--zone-latlon'")
+    _check_latlon_ranges(ll, zones_latlon, "--zone-latlon")
     return (tuple(ZonePosition((a, b), (c, d), v, origin=f"--zone-xy {t}")
                   for (a, b, c, d, v), t in zip(xy, zones_xy))
             + tuple(ZonePosition((a, b), (c, d), v, geographic=True, origin=f"--zone-latlon {t}")
                     for (a, b, c, d, v), t in zip(ll, zones_latlon)))
+
+
+def _check_latlon_ranges(values, texts, option: str) -> None:
+    for row, text in zip(values, texts):
+        a, b, c, d = row[:4]
+        if not all(-90.0 <= lat <= 90.0 and -180.0 <= lon <= 360.0
+                   for lat, lon in ((a, b), (c, d))):
+            raise click.BadParameter(f"'{text}': a position is not on Earth (lat -90..90, lon "
+                                     "-180..180); check the order (lat first)",
+                                     param_hint=f"'{option}'")
+
+
+def section_options(friction_sections=(), friction_sections_xy=(), friction_sections_latlon=(),
+                    superelevations_xy=(), superelevations_latlon=()) -> tuple:
+    """``--friction-section`` (by station or position) and ``--superelevation-xy``/``-latlon``
+    as :class:`~curvespeed.friction.FrictionSection`, :class:`~curvespeed.friction.FrictionPosition`
+    and :class:`~curvespeed.limits.SuperelevationPosition` entries (those by position placed
+    once the route is read)."""
+    from ..friction import FrictionPosition, FrictionSection
+    from ..limits import SuperelevationPosition
+
+    out = []
+    for value, text in zip(_parse_ranges(friction_sections, (3, 4), "a friction section",
+                                         "START_M:END_M:MU or START_M:END_M:MU:MU_LAT",
+                                         "--friction-section"), friction_sections):
+        out.append(FrictionSection(*value[:3], value[3] if len(value) == 4 else None,
+                                   origin=f"--friction-section {text}"))
+    for option, texts, geographic in (("--friction-section-xy", friction_sections_xy, False),
+                                      ("--friction-section-latlon", friction_sections_latlon,
+                                       True)):
+        form = "LAT1:LON1:LAT2:LON2" if geographic else "X1:Y1:X2:Y2"
+        rows = _parse_ranges(texts, (5, 6), "a friction section by position",
+                             f"{form}:MU or {form}:MU:MU_LAT", option)
+        if geographic:
+            _check_latlon_ranges(rows, texts, option)
+        out += [FrictionPosition((r[0], r[1]), (r[2], r[3]), r[4],
+                                 r[5] if len(r) == 6 else None, geographic=geographic,
+                                 origin=f"{option} {t}") for r, t in zip(rows, texts)]
+    for option, texts, geographic in (("--superelevation-xy", superelevations_xy, False),
+                                      ("--superelevation-latlon", superelevations_latlon, True)):
+        form = "LAT1:LON1:LAT2:LON2" if geographic else "X1:Y1:X2:Y2"
+        rows = _parse_ranges(texts, 5, "a superelevation range by position", f"{form}:RATE",
+                             option)
+        if geographic:
+            _check_latlon_ranges(rows, texts, option)
+        out += [SuperelevationPosition((r[0], r[1]), (r[2], r[3]), r[4], geographic=geographic,
+                                       origin=f"{option} {t}") for r, t in zip(rows, texts)]
+    return tuple(out)
 
 
 def stop_positions(stops_xy, stops_latlon) -> tuple:
@@ -162,9 +228,11 @@ def resolve_limits(limits_file, overrides: dict, zones, stops, superelevations,
     """Limits and constraints from the file (or defaults) with command-line overrides on top.
 
     ``positions`` are stops and zones by position from the command line
-    (:func:`stop_positions`, :func:`zone_positions`)."""
+    (:func:`stop_positions`, :func:`zone_positions`), and friction sections and superelevation
+    by position (:func:`section_options`)."""
+    from ..friction import FrictionPosition, FrictionSection
     from ..limits import (DEFAULT_LIMITS, RouteConstraints, SpeedZone, Stop, StopPosition,
-                          Superelevation, ZonePosition, validate_limits,
+                          Superelevation, SuperelevationPosition, ZonePosition, validate_limits,
                           warn_zones_above_top_speed)
 
     if limits_file:
@@ -191,7 +259,11 @@ def resolve_limits(limits_file, overrides: dict, zones, stops, superelevations,
                                            "START_M:END_M:RATE", "--superelevation")),
         start_speed_mps=start_speed, end_speed_mps=end_speed,
         stop_positions=tuple(p for p in positions if isinstance(p, StopPosition)),
-        zone_positions=tuple(p for p in positions if isinstance(p, ZonePosition)))
+        zone_positions=tuple(p for p in positions if isinstance(p, ZonePosition)),
+        friction=tuple(p for p in positions if isinstance(p, FrictionSection)),
+        friction_positions=tuple(p for p in positions if isinstance(p, FrictionPosition)),
+        superelevation_positions=tuple(p for p in positions
+                                       if isinstance(p, SuperelevationPosition)))
     constraints = constraints.merged(extra)
     warn_zones_above_top_speed(constraints.zones, limits, given_as)
     return limits, constraints, origin
@@ -234,13 +306,26 @@ def limits_and_geometry(route_file, limits_file, overrides: dict, constraint_arg
 def snapped_lines(constraints) -> list[str]:
     """One line per stop or zone given by position: where it went on the route and how far
     it was."""
-    lines = [f"zone     {z.origin}: snapped to stations {z.start_m:.1f}..{z.end_m:.1f} m, ends "
-             f"up to {z.snap_distance_m:.2f} m from the route" for z in constraints.zones
-             if z.snap_distance_m is not None]
+    lines = [f"{kind:<8} {z.origin}: snapped to stations {z.start_m:.1f}..{z.end_m:.1f} m, "
+             f"ends up to {z.snap_distance_m:.2f} m from the route"
+             for kind, items in (("zone", constraints.zones), ("friction", constraints.friction),
+                                 ("superelevation", constraints.superelevation))
+             for z in items if z.snap_distance_m is not None]
     for stop in constraints.stops:
         if stop.snap_distance_m is None:
             continue
         name = f" '{stop.name}'" if stop.name else ""
         lines.append(f"stop     {stop.origin}{name}: snapped to station {stop.station_m:.1f} m, "
                      f"{stop.snap_distance_m:.2f} m from the route")
+    return lines
+
+
+def friction_lines(constraints, limits) -> list[str]:
+    """One line per friction section: its stations and the coefficients it plans with."""
+    lines = []
+    for sec in constraints.friction:
+        along, across = sec.coefficients(limits)
+        lines.append(f"friction {sec.start_m:.1f}..{sec.end_m:.1f} m: mu {along:g} (lateral "
+                     f"{across:.3g}) instead of {limits.mu_long:g} ({limits.mu_lat:g})"
+                     + (f"; {sec.origin}" if sec.origin else ""))
     return lines

@@ -12,8 +12,8 @@ import click
 
 from ._common import (EXIT_OK, EXIT_VIOLATIONS, FINITE, echo, geometry_options, handle_errors,
                       register_drives)
-from ._limits import (limit_override_options, limits_and_geometry, snapped_lines, zone_options,
-                      zone_positions)
+from ._limits import (friction_lines, limit_override_options, limits_and_geometry,
+                      section_options, snapped_lines, zone_options, zone_positions)
 
 
 @click.command()
@@ -53,7 +53,8 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
           trace_noise_m, curve_radius_m, json_file, csv_file, report_file, force, spacing_m,
           position_noise_m, elevation_noise_m, use_elevation, closed, part,
           drives, all_tracks, roads, lane, zones, zones_xy, zones_latlon, superelevations,
-          **overrides):
+          superelevations_xy, superelevations_latlon, friction_sections, friction_sections_xy,
+          friction_sections_latlon, **overrides):
     """Check speeds along ROUTE_FILE against friction, comfort and road-design criteria.
 
     Exit status 0: all within limits; 1: at least one violation; 2: bad input. The numbers
@@ -94,8 +95,10 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
             (zones, (), superelevations, None, None),
             (spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
              part, drives, all_tracks, roads, lane),
-            zone_positions(zones_xy, zones_latlon), place_stops=False)
-        for line in snapped_lines(constraints):
+            zone_positions(zones_xy, zones_latlon)
+            + section_options(friction_sections, friction_sections_xy, friction_sections_latlon,
+                              superelevations_xy, superelevations_latlon), place_stops=False)
+        for line in snapped_lines(constraints) + friction_lines(constraints, limits):
             echo(line)
         report = _check(geo, limits, constraints, origin, speeds_file, speed_kmh, trace_noise_m,
                         design_speed_kmh, e_max, curve_radius_m)

@@ -43,7 +43,9 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
          report_file, force,
          spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed, part,
          drives, all_tracks, roads, lane, zones, zones_xy, zones_latlon, stops, stops_xy,
-         stops_latlon, superelevations, start_speed, end_speed, **overrides):
+         stops_latlon, superelevations, start_speed, end_speed, superelevations_xy,
+         superelevations_latlon, friction_sections, friction_sections_xy,
+         friction_sections_latlon, **overrides):
     """Plan the fastest speed profile along ROUTE_FILE within the limits.
 
     The profile is an engineering aid: speeds on public roads and advisory signs follow local
@@ -51,9 +53,13 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
     """
     from ..io.atomic import OutputFiles
     from ..io.meta_json import default_meta_path
-    from ._limits import snapped_lines, stop_positions, zone_positions
+    from ._limits import (friction_lines, section_options, snapped_lines, stop_positions,
+                          zone_positions)
 
-    positions = stop_positions(stops_xy, stops_latlon) + zone_positions(zones_xy, zones_latlon)
+    positions = (stop_positions(stops_xy, stops_latlon) + zone_positions(zones_xy, zones_latlon)
+                 + section_options(friction_sections, friction_sections_xy,
+                                   friction_sections_latlon, superelevations_xy,
+                                   superelevations_latlon))
     if comfort_weight < 0:
         raise click.BadParameter("must be zero or positive", param_hint="--comfort-weight")
     outputs = OutputFiles(force)
@@ -81,7 +87,7 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
             (zones, stops, superelevations, start_speed, end_speed),
             (spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
              part, drives, all_tracks, roads, lane), positions)
-        for line in snapped_lines(constraints):
+        for line in snapped_lines(constraints) + friction_lines(constraints, limits):
             echo(line)
 
         from ..planner import plan_profile

@@ -52,7 +52,9 @@ def plot(profile_file, output, meta_file, gg_file, force):
         outputs.write_bytes(output, overview_bytes(sp, fmt, limits=limits,
                                                    constraints=constraints))
         if gg_file:
-            outputs.write_bytes(gg_file, gg_bytes(sp, gg_fmt, limits=limits))
+            sections = constraints.friction if constraints is not None else ()
+            outputs.write_bytes(gg_file, gg_bytes(sp, gg_fmt, limits=limits,
+                                                  friction_sections=sections))
     using = f" with {sidecar.source}" if sidecar is not None else ""
     echo(f"wrote {output} ({Path(output).suffix.lower().lstrip('.')}) from "
          f"{profile_file}{using}")

@@ -30,9 +30,15 @@ Layout (SI units, unit suffix in every key)::
     name = "depot"                # optional
 
     [[superelevation]]            # optional, repeatable: cross-slope toward the curve's inside
-    start_m = 1200.0
+    start_m = 1200.0              # or the ends by position, as for [[zone]]
     end_m = 1500.0
     rate = 0.06
+
+    [[friction]]                  # optional, repeatable: tyre-road friction over a range
+    start_m = 2000.0              # or the ends by position, as for [[zone]]
+    end_m = 2300.0
+    friction_coefficient = 0.4
+    lateral_friction_coefficient = 0.45   # optional; else the route's ellipse shape, scaled
 """
 
 from __future__ import annotations
@@ -44,22 +50,23 @@ import tomllib
 from pathlib import Path
 
 from ..errors import LimitsError
+from ..friction import FrictionPosition, FrictionSection
 from ..limits import (DEFAULT_LIMITS, Limits, RouteConstraints, SpeedZone, Stop, StopPosition,
-                      Superelevation, ZonePosition)
+                      Superelevation, SuperelevationPosition, ZonePosition)
 from ._common import check_nesting, finite_value, read_text, show_value, value_problem
 
 _LIMIT_KEYS = tuple(f.name for f in dataclasses.fields(Limits))
 _ROUTE_KEYS = ("start_speed_mps", "end_speed_mps")
-_TABLES = {
-    "superelevation": ("start_m", "end_m", "rate"),
-}
 #: The ways a [[stop]] says where it is (exactly one), and its optional keys.
 _STOP_PLACES = (("station_m",), ("lat", "lon"), ("x_m", "y_m"))
 _STOP_KEYS = ("station_m", "lat", "lon", "x_m", "y_m", "dwell_s", "name")
 #: The ways a [[zone]] says where it runs (exactly one), and its keys.
 _ZONE_PLACES = (("start_m", "end_m"), ("start_lat", "start_lon", "end_lat", "end_lon"),
                 ("start_x_m", "start_y_m", "end_x_m", "end_y_m"))
-_ZONE_KEYS = tuple(k for keys in _ZONE_PLACES for k in keys) + ("max_speed_mps",)
+#: Ranges placed like [[zone]]: table -> (required value keys, optional value keys).
+_RANGE_VALUES = {"zone": (("max_speed_mps",), ()),
+                 "superelevation": (("rate",), ()),
+                 "friction": (("friction_coefficient",), ("lateral_friction_coefficient",))}
 _UNIT_HINTS = {"kmh": "km/h: divide by 3.6 and use the _mps key",
                "kph": "km/h: divide by 3.6 and use the _mps key",
                "mph": "mph: multiply by 0.44704 and use the _mps key",
@@ -107,7 +114,7 @@ def read_limits(path: str | Path) -> tuple[Limits, RouteConstraints]:
                           "nests at most three levels ([[zone]] entries)") from None
     check_nesting(data, str(path), LimitsError, "TOML")
 
-    known_tables = ("limits", "route", "zone", "stop", "superelevation")
+    known_tables = ("limits", "route", "zone", "stop", "superelevation", "friction")
     if "limits" not in data or not isinstance(data["limits"], dict):
         stray = [k for k in data if k in _LIMIT_KEYS]
         hint = (f" (found {', '.join(stray)} at top level: put it under [limits])" if stray
@@ -134,34 +141,17 @@ def read_limits(path: str | Path) -> tuple[Limits, RouteConstraints]:
             raise _unknown_key(path, "route", key, _ROUTE_KEYS)
     ends = {k: _number(path, "route", k, route[k]) for k in _ROUTE_KEYS if k in route}
 
-    items: dict[str, list] = {name: [] for name in _TABLES}
-    for name, keys in _TABLES.items():
-        entries = data.get(name, [])
-        if isinstance(entries, dict) or not isinstance(entries, list):
-            raise LimitsError(f"{path}: '{name}' must be written as [[{name}]] entries")
-        for n, entry in enumerate(entries, start=1):
-            label = f"{name} #{n}"
-            if not isinstance(entry, dict):
-                raise LimitsError(f"{path}: '{name}' entry #{n} is {show_value(entry)}, not a "
-                                  f"table; write each as a [[{name}]] block with keys "
-                                  f"{', '.join(keys)}")
-            for key in entry:
-                if key not in keys:
-                    raise _unknown_key(path, label, key, keys)
-            missing = [k for k in keys if k not in entry]
-            if missing:
-                raise LimitsError(f"{path}: [[{name}]] #{n} lacks {', '.join(missing)}; each "
-                                  f"[[{name}]] needs {', '.join(keys)}")
-            nums = [_number(path, label, k, entry[k]) for k in keys]
-            origin = f"{path} [[{name}]] #{n}"
-            cls = Superelevation
-            items[name].append(cls(*nums, origin=origin))
-
     stops, positions = _read_stops(path, data.get("stop", []))
-    zones, zone_positions = _read_zones(path, data.get("zone", []))
-    constraints = RouteConstraints(zones=zones, stops=stops,
-                                   superelevation=tuple(items["superelevation"]), **ends,
-                                   stop_positions=positions, zone_positions=zone_positions)
+    zones, zone_positions = _read_ranges(path, "zone", data.get("zone", []), SpeedZone,
+                                         ZonePosition)
+    banks, bank_positions = _read_ranges(path, "superelevation", data.get("superelevation", []),
+                                         Superelevation, SuperelevationPosition)
+    friction, friction_positions = _read_ranges(path, "friction", data.get("friction", []),
+                                                FrictionSection, FrictionPosition)
+    constraints = RouteConstraints(zones=zones, stops=stops, superelevation=banks, **ends,
+                                   stop_positions=positions, zone_positions=zone_positions,
+                                   friction=friction, friction_positions=friction_positions,
+                                   superelevation_positions=bank_positions)
     return limits, constraints
 
 
@@ -193,26 +183,33 @@ def _check_latlon(path: Path, label: str, lat: float, lon: float) -> None:
                           "first) and the unit (decimal degrees)")
 
 
-def _read_zones(path: Path, entries) -> tuple[tuple, tuple]:
-    """The [[zone]] entries: zones by station, and zones by the positions of their ends."""
-    zones, positions = [], []
-    for n, label, entry, place in _entries(path, "zone", entries, _ZONE_KEYS, _ZONE_PLACES):
-        if "max_speed_mps" not in entry:
-            raise LimitsError(f"{path}: [[zone]] #{n} lacks max_speed_mps; each [[zone]] needs "
-                              "max_speed_mps")
-        speed = _number(path, label, "max_speed_mps", entry["max_speed_mps"])
+def _read_ranges(path: Path, name: str, entries, by_station, by_position
+                 ) -> tuple[tuple, tuple]:
+    """The [[name]] entries of a range table ([[zone]], [[superelevation]], [[friction]]):
+    ranges by station (``by_station(start_m, end_m, *values)``), and ranges by the positions
+    of their ends (``by_position(start, end, *values, geographic=...)``)."""
+    required, optional = _RANGE_VALUES[name]
+    allowed = tuple(k for keys in _ZONE_PLACES for k in keys) + required + optional
+    ranges, positions = [], []
+    for n, label, entry, place in _entries(path, name, entries, allowed, _ZONE_PLACES):
+        missing = [k for k in required if k not in entry]
+        if missing:
+            raise LimitsError(f"{path}: [[{name}]] #{n} lacks {', '.join(missing)}; each "
+                              f"[[{name}]] needs {', '.join(required)}")
+        values = [_number(path, label, k, entry[k]) for k in required]
+        values += [_number(path, label, k, entry[k]) if k in entry else None for k in optional]
         nums = [_number(path, label, k, entry[k]) for k in place]
-        origin = f"{path} [[zone]] #{n}"
+        origin = f"{path} [[{name}]] #{n}"
         if len(nums) == 2:
-            zones.append(SpeedZone(nums[0], nums[1], speed, origin=origin))
+            ranges.append(by_station(nums[0], nums[1], *values, origin=origin))
             continue
         geographic = place[0] == "start_lat"
         if geographic:
             _check_latlon(path, label, nums[0], nums[1])
             _check_latlon(path, label, nums[2], nums[3])
-        positions.append(ZonePosition((nums[0], nums[1]), (nums[2], nums[3]), speed,
-                                      geographic=geographic, origin=origin))
-    return tuple(zones), tuple(positions)
+        positions.append(by_position((nums[0], nums[1]), (nums[2], nums[3]), *values,
+                                     geographic=geographic, origin=origin))
+    return tuple(ranges), tuple(positions)
 
 
 def _read_stops(path: Path, entries) -> tuple[tuple, tuple]:

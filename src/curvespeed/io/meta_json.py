@@ -28,6 +28,7 @@ from pathlib import Path
 
 from .. import __version__
 from ..errors import SpeedFileError
+from ..friction import FrictionSection
 from ..limits import Limits, RouteConstraints, SpeedZone, Stop, Superelevation
 from ..profile import Profile
 from ._common import finite_value, load_json, read_text, shown_number
@@ -216,6 +217,12 @@ def read_profile_meta(path: str | os.PathLike) -> ProfileSidecar:
                     for stop, item in zip(entries("stops", Stop, ("station_m",)),
                                           raw.get("stops") or [])),
         superelevation=entries("superelevation", Superelevation, ("start_m", "end_m", "rate")),
+        friction=tuple(dataclasses.replace(sec, lateral_friction_coefficient=number(
+            item.get("lateral_friction_coefficient"),
+            "constraints.friction.lateral_friction_coefficient", True))
+            for sec, item in zip(entries("friction", FrictionSection,
+                                         ("start_m", "end_m", "friction_coefficient")),
+                                 raw.get("friction") or [])),
         start_speed_mps=number(raw.get("start_speed_mps"), "constraints.start_speed_mps", True),
         end_speed_mps=number(raw.get("end_speed_mps"), "constraints.end_speed_mps", True))
     route = doc.get("route") if isinstance(doc.get("route"), dict) else {}

@@ -12,8 +12,8 @@
 #include <string.h>
 
 typedef struct {
-    const double *lat1, *lat0, *n0, *n1, *r0;
-    double cd, a_acc, a_dec, a_lat, mux, muy, pm, h;
+    const double *lat1, *lat0, *n0, *n1, *r0, *mux, *muy;   /* per node */
+    double cd, a_acc, a_dec, a_lat, pm, h;
 } nodes_t;
 
 static inline double pmax(double a, double b) { return b > a ? b : a; }   /* Python max(a, b) */
@@ -25,8 +25,8 @@ static void bounds(const nodes_t *nd, int64_t k, double b, double *lo, double *h
     double r = y > 0.0 ? y / nd->a_lat : 0.0;
     double c = r < 1.0 ? sqrt(1.0 - r * r) : 0.0;
     double nrm = nd->n0[k] + nd->n1[k] * b;
-    double w2 = nrm * nrm - pow(y / nd->muy, 2.0);
-    double w = w2 > 0.0 ? nd->mux * sqrt(w2) : 0.0;
+    double w2 = nrm * nrm - pow(y / nd->muy[k], 2.0);
+    double w = w2 > 0.0 ? nd->mux[k] * sqrt(w2) : 0.0;
     double res = nd->r0[k] + nd->cd * b;
     *lo = pmax(-nd->a_dec * c, -w - res);
     *hi = pmin(nd->a_acc * c, w - res);
@@ -78,7 +78,7 @@ static double reach_forward(const nodes_t *nd, int64_t j, double b_prev)
         best = b_free;
     }
     double t1 = h + nd->cd, t0 = nd->r0[j] - h * b_prev;
-    double mx2 = nd->mux * nd->mux, my2 = nd->muy * nd->muy;
+    double mx2 = nd->mux[j] * nd->mux[j], my2 = nd->muy[j] * nd->muy[j];
     double n0 = nd->n0[j], n1 = nd->n1[j];
     if (upper_root(t1 * t1 / mx2 + lat1 * lat1 / my2 - n1 * n1,
                    2.0 * (t1 * t0 / mx2 - lat1 * lat0 / my2 - n1 * n0),
@@ -106,7 +106,7 @@ static double reach_backward(const nodes_t *nd, int64_t i, double b_next)
         best = b_free;
     }
     double t1 = nd->cd - h, t0 = nd->r0[i] + h * b_next;
-    double mx2 = nd->mux * nd->mux, my2 = nd->muy * nd->muy;
+    double mx2 = nd->mux[i] * nd->mux[i], my2 = nd->muy[i] * nd->muy[i];
     double n0 = nd->n0[i], n1 = nd->n1[i];
     if (upper_root(t1 * t1 / mx2 + lat1 * lat1 / my2 - n1 * n1,
                    2.0 * (t1 * t0 / mx2 - lat1 * lat0 / my2 - n1 * n0),
@@ -160,21 +160,22 @@ static int get(PyObject *o, Py_buffer *v, int writable, Py_ssize_t items, int is
     return 0;
 }
 
-/* passes(direction, lat1, lat0, n0, n1, r0, (cd, a_acc, a_dec, a_lat, mux, muy, pm, h),
+/* passes(direction, lat1, lat0, n0, n1, r0, mux, muy, (cd, a_acc, a_dec, a_lat, pm, h),
  *        ceiling, b_end, order, out): direction 1 forward from b_end = b0, -1 backward to
- *        b_end = b_last; ceiling and out are indexed by position in order. */
+ *        b_end = b_last; ceiling and out are indexed by position in order; mux, muy are the
+ *        friction coefficients along and across the path at each node. */
 static PyObject *py_pass(PyObject *self, PyObject *args)
 {
     (void)self;
     int direction;
-    PyObject *o[9];
+    PyObject *o[11];
     nodes_t nd;
     double b_end;
-    if (!PyArg_ParseTuple(args, "iOOOOO(dddddddd)OdOO", &direction, &o[0], &o[1], &o[2], &o[3],
-                          &o[4], &nd.cd, &nd.a_acc, &nd.a_dec, &nd.a_lat, &nd.mux, &nd.muy,
+    if (!PyArg_ParseTuple(args, "iOOOOOOO(dddddd)OdOO", &direction, &o[0], &o[1], &o[2], &o[3],
+                          &o[4], &o[8], &o[9], &nd.cd, &nd.a_acc, &nd.a_dec, &nd.a_lat,
                           &nd.pm, &nd.h, &o[5], &b_end, &o[6], &o[7]))
         return NULL;
-    Py_buffer v[8];
+    Py_buffer v[10];
     int got = 0;
     PyObject *result = NULL;
     if (get(o[0], &v[0], 0, -1, 0) != 0) return NULL;
@@ -189,6 +190,8 @@ static PyObject *py_pass(PyObject *self, PyObject *args)
     got = 7;
     if (get(o[7], &v[7], 1, cnt, 0) != 0) goto done;       /* out */
     got = 8;
+    for (; got < 10; got++)                                 /* mux, muy */
+        if (get(o[got], &v[got], 0, n, 0) != 0) goto done;
     const int64_t *order = v[5].buf;
     for (Py_ssize_t k = 0; k < cnt; k++) {
         if (order[k] < 0 || order[k] >= n) {
@@ -198,6 +201,7 @@ static PyObject *py_pass(PyObject *self, PyObject *args)
     }
     if (cnt < 1) { PyErr_SetString(PyExc_ValueError, "envelope passes: no nodes"); goto done; }
     nd.lat1 = v[0].buf; nd.lat0 = v[1].buf; nd.n0 = v[2].buf; nd.n1 = v[3].buf; nd.r0 = v[4].buf;
+    nd.mux = v[8].buf; nd.muy = v[9].buf;
     Py_BEGIN_ALLOW_THREADS
     if (direction > 0)
         forward_pass(&nd, v[6].buf, b_end, order, cnt, v[7].buf);
@@ -213,7 +217,7 @@ done:
 
 static PyMethodDef methods[] = {
     {"run_pass", py_pass, METH_VARARGS,
-     "run_pass(direction, lat1, lat0, n0, n1, r0, (cd, a_acc, a_dec, a_lat, mux, muy, pm, h), "
+     "run_pass(direction, lat1, lat0, n0, n1, r0, mux, muy, (cd, a_acc, a_dec, a_lat, pm, h), "
      "ceiling, b_end, order, out): one forward (+1) or backward (-1) pass into out."},
     {NULL, NULL, 0, NULL}};
 

@@ -22,7 +22,7 @@ import time
 
 import numpy as np
 
-from ..diagnose import stop_out_of_reach, undrivable_station
+from ..diagnose import braking_decel, grip_words, stop_out_of_reach, undrivable_station
 from ..errors import InfeasibleError
 from ..problem import SpeedProblem, check_start_end
 from . import SolveResult, SolveStatus
@@ -45,20 +45,20 @@ class _Nodes:
                   g * p.sin_bank,
                   g * p.cos_grade * p.cos_bank,                     # normal = n0 + n1 b
                   p.kappa_abs * p.sin_bank,
-                  g * p.sin_grade + lim.rolling_resistance_coefficient * g * p.cos_grade)
+                  g * p.sin_grade + lim.rolling_resistance_coefficient * g * p.cos_grade,
+                  p.mu_long,                                        # friction ellipse
+                  p.mu_lat)
         self.arrays = tuple(np.ascontiguousarray(a, dtype=float) for a in arrays)
         self.cd = lim.drag_per_b_1pm                               # resistance = r0 + cd b
         self.a_acc = lim.max_accel_mps2
         self.a_dec = lim.max_decel_mps2
         self.a_lat = lim.max_lateral_accel_mps2
-        self.mux = lim.mu_long
-        self.muy = lim.mu_lat
         self.pm = lim.power_per_mass_wpkg
         self.h = 1.0 / (2.0 * p.ds)                                # a = h (b_next - b_prev)
 
     def __getattr__(self, name: str):
         """The per-node lists, made on first use (the compiled passes take the arrays)."""
-        names = ("lat1", "lat0", "n0", "n1", "r0")
+        names = ("lat1", "lat0", "n0", "n1", "r0", "mux", "muy")
         if name not in names:
             raise AttributeError(name)
         for key, arr in zip(names, self.arrays):
@@ -71,8 +71,8 @@ class _Nodes:
         r = y / self.a_lat if y > 0.0 else 0.0
         c = math.sqrt(1.0 - r * r) if r < 1.0 else 0.0
         nrm = self.n0[k] + self.n1[k] * b
-        w2 = nrm * nrm - (y / self.muy) ** 2
-        w = self.mux * math.sqrt(w2) if w2 > 0.0 else 0.0
+        w2 = nrm * nrm - (y / self.muy[k]) ** 2
+        w = self.mux[k] * math.sqrt(w2) if w2 > 0.0 else 0.0
         res = self.r0[k] + self.cd * b
         lo = max(-self.a_dec * c, -w - res)
         hi = min(self.a_acc * c, w - res)
@@ -129,8 +129,8 @@ def _reach_forward(nd: _Nodes, j: int, b_prev: float) -> float:
     # friction ellipse: T = t1 b + t0, lateral = lat1 b - lat0, normal = n0 + n1 b
     t1 = h + nd.cd
     t0 = nd.r0[j] - h * b_prev
-    mx2 = nd.mux * nd.mux
-    my2 = nd.muy * nd.muy
+    mx2 = nd.mux[j] * nd.mux[j]
+    my2 = nd.muy[j] * nd.muy[j]
     n0, n1 = nd.n0[j], nd.n1[j]
     root = _upper_root(t1 * t1 / mx2 + lat1 * lat1 / my2 - n1 * n1,
                        2.0 * (t1 * t0 / mx2 - lat1 * lat0 / my2 - n1 * n0),
@@ -163,8 +163,8 @@ def _reach_backward(nd: _Nodes, i: int, b_next: float) -> float:
         best = b_free
     t1 = nd.cd - h
     t0 = nd.r0[i] + h * b_next
-    mx2 = nd.mux * nd.mux
-    my2 = nd.muy * nd.muy
+    mx2 = nd.mux[i] * nd.mux[i]
+    my2 = nd.muy[i] * nd.muy[i]
     n0, n1 = nd.n0[i], nd.n1[i]
     root = _upper_root(t1 * t1 / mx2 + lat1 * lat1 / my2 - n1 * n1,
                        2.0 * (t1 * t0 / mx2 - lat1 * lat0 / my2 - n1 * n0),
@@ -177,8 +177,8 @@ def _reach_backward(nd: _Nodes, i: int, b_next: float) -> float:
 def _compiled_pass(direction: int, nd: _Nodes, ceiling, b_end: float, order) -> np.ndarray:
     """One pass in the compiled twin (``_envelope_passes.c``) of the Python passes below."""
     out = np.empty(len(order))
-    _compiled.run_pass(direction, *nd.arrays, (nd.cd, nd.a_acc, nd.a_dec, nd.a_lat, nd.mux,
-                                               nd.muy, nd.pm, nd.h),
+    _compiled.run_pass(direction, *nd.arrays, (nd.cd, nd.a_acc, nd.a_dec, nd.a_lat, nd.pm,
+                                               nd.h),
                        np.ascontiguousarray(ceiling, dtype=float), float(b_end),
                        np.ascontiguousarray(order, dtype=np.int64), out)
     return out
@@ -348,10 +348,12 @@ def _raise_cannot_slow(problem: SpeedProblem, b: np.ndarray, fwd: list) -> None:
             "curve": "a curve"}.get(str(source), str(source))
     v0 = math.sqrt(problem.b_start)
     vk = math.sqrt(max(b[k], 0.0))
-    need = (v0 * v0 - vk * vk) / (2.0 * problem.limits.max_decel_mps2)
+    decel, slippery = braking_decel(problem, k)
+    need = (v0 * v0 - vk * vk) / (2.0 * decel)
+    grip = "" if slippery is None else f" ({grip_words(problem, slippery, decel)})"
     raise InfeasibleError(
         f"{problem.source}: start speed {v0:.2f} m/s is too high: the vehicle must be down to {vk:.2f} m/s at "
         f"station {problem.station_m[k]:.1f} m ({what}) and braking at "
-        f"{problem.limits.max_decel_mps2:g} m/s^2 needs about {need:.1f} m, only "
+        f"{decel:.3g} m/s^2{grip} needs about {need:.1f} m, only "
         f"{problem.station_m[k] - problem.station_m[0]:.1f} m are available; lower the start "
         "speed or move the constraint")

@@ -87,7 +87,8 @@ def build_reference_model(problem: SpeedProblem, b_lin: np.ndarray, b_upper: np.
         cons.append(cp.norm(cp.vstack([cp.pos(a) / lim.max_accel_mps2, felt]), 2, axis=0) <= 1)
         cons.append(cp.norm(cp.vstack([cp.neg(a) / lim.max_decel_mps2, felt]), 2, axis=0) <= 1)
         # friction ellipse, exact
-        cons.append(cp.norm(cp.vstack([(a + resist) / lim.mu_long, lateral / lim.mu_lat]), 2,
+        cons.append(cp.norm(cp.vstack([cp.multiply(1.0 / problem.mu_long[nodes], a + resist),
+                                       cp.multiply(1.0 / problem.mu_lat[nodes], lateral)]), 2,
                             axis=0) <= normal)
         # power, tangent of P/(m sqrt(b)) at the linearisation point (below the convex curve)
         if math.isfinite(lim.power_per_mass_wpkg):
