@@ -133,6 +133,49 @@ def test_standing_finish_total_is_launch_flying_and_finish(laps, tmp_path):
     assert "finish" in result.output
 
 
+
+@pytest.mark.parametrize("kind", ["start", "finish"])
+def test_plan_standing_makes_the_lap_export_joins(laps, tmp_path, kind):
+    # `plan --standing start|finish` plans the loop opened at its start from rest up to the
+    # flying lap's start speed (or from it down to rest) in one command. It must be the lap
+    # the two-command recipe makes (--open and the end speeds as written): the end speed it
+    # uses is the flying lap's unrounded one, at most half a unit of the written 1e-6 m/s away,
+    # so speeds agree to 1e-6 m/s and times to 1e-4 s (RUN_TIME_S, above); and export must
+    # join it to the flying lap.
+    lap = tmp_path / f"{kind}.csv"
+    result = run("plan", LOOP, "--standing", kind, "-o", lap)
+    assert result.exit_code == 0, result.output
+    assert f"standing {kind}: the loop opened at its start" in result.output
+    mine = read_table_csv(lap).columns
+    recipe = read_table_csv(laps["launch" if kind == "start" else "finish"]).columns
+    np.testing.assert_allclose(mine["speed_mps"], recipe["speed_mps"], atol=1e-6)
+    assert mine["time_s"][-1] == pytest.approx(recipe["time_s"][-1], abs=RUN_TIME_S)
+    ends = (mine["speed_mps"][0], mine["speed_mps"][-1])
+    assert ends == ((0.0, pytest.approx(laps["v0"], abs=1e-6)) if kind == "start"
+                    else (pytest.approx(laps["v0"], abs=1e-6), 0.0))
+    option = "--launch-lap" if kind == "start" else "--finish-lap"
+    out, _ = exported(laps, tmp_path, "--laps", "2", option, lap)
+    expected = last_time(lap) + last_time(laps["flying"])
+    assert json.loads(out.read_text())["total_time_s"] == pytest.approx(expected, abs=RUN_TIME_S)
+
+
+@pytest.mark.parametrize("args, message", [
+    (("--open",), "leave out --open"),
+    (("--start-speed", "3"), "leave out --open, --start-speed"),
+])
+def test_plan_standing_refuses_what_it_sets_itself(tmp_path, args, message):
+    out = tmp_path / "lap.csv"
+    result = run("plan", LOOP, "--standing", "start", *args, "-o", out)
+    assert result.exit_code == 2 and message in result.output
+    assert not out.exists()
+
+
+def test_plan_standing_needs_a_loop(tmp_path):
+    out = tmp_path / "lap.csv"
+    result = run("plan", MOUNTAIN, "--standing", "finish", "-o", out)
+    assert result.exit_code == 2 and "is not a closed route" in result.output
+    assert not out.exists()
+
 def test_flying_laps_alone_repeat_the_lap_time(laps, tmp_path):
     out, _ = exported(laps, tmp_path, "--laps", "4", "--station-step", "5")
     doc = json.loads(out.read_text())

@@ -34,13 +34,18 @@ from ._limits import constraint_options, limit_override_options, limits_and_geom
 @click.option("--report", "report_file", type=click.Path(), default=None,
               help="Also write a self-contained HTML report (plan view with numbered curves, "
                    "speed, utilisation, curve table, provenance); prints on A4.")
+@click.option("--standing", type=click.Choice(["start", "finish"]), default=None,
+              help="On a loop: plan a standing start (from rest up to the flying lap's start "
+                   "speed) or a standing finish (from it down to rest) over one lap, the loop "
+                   "opened at its start: the lap `export --launch-lap`/`--finish-lap` joins to "
+                   "the flying lap.")
 @click.option("--force", is_flag=True, help="Replace output files that exist.")
 @geometry_options
 @limit_override_options
 @constraint_options
 @handle_errors
 def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort_weight, plot_file,
-         report_file, force,
+         report_file, standing, force,
          spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed, part,
          drives, all_tracks, roads, lane, zones, zones_xy, zones_latlon, stops, stops_xy,
          stops_latlon, superelevations, start_speed, end_speed, superelevations_xy,
@@ -62,6 +67,9 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
                                    superelevations_latlon))
     if comfort_weight < 0:
         raise click.BadParameter("must be zero or positive", param_hint="--comfort-weight")
+    if standing and (closed is False or start_speed is not None or end_speed is not None):
+        raise click.UsageError("--standing plans a lap of a loop from or to rest itself: leave "
+                               "out --open, --start-speed and --end-speed")
     outputs = OutputFiles(force)
     outputs.add_input(route_file, "the route file")
     register_drives(outputs, drives)
@@ -82,11 +90,14 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
     if report_file:
         outputs.add_output(report_file, "--report")
     with outputs:               # every output checked here; written together at the end
+        route_args = (spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
+                      part, drives, all_tracks, roads, lane)
         limits, constraints, origin, geo = limits_and_geometry(
             route_file, limits_file, overrides,
-            (zones, stops, superelevations, start_speed, end_speed),
-            (spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
-             part, drives, all_tracks, roads, lane), positions)
+            (zones, stops, superelevations, start_speed, end_speed), route_args, positions)
+        if standing and not geo.closed:
+            raise click.UsageError(f"{route_file} is not a closed route: a standing start or "
+                                   "finish is a lap of a loop (--closed treats the route as one)")
         for line in snapped_lines(constraints) + friction_lines(constraints, limits):
             echo(line)
 
@@ -101,6 +112,10 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
                                     **({"qp_backend": QPBackend(qp_backend)} if qp_backend else {}))
         # resolve_limits validated the limits and warned, naming the file or the command line
         profile = plan_profile(geo, limits, constraints, kind, options, warn_limits=False)
+        if standing:
+            constraints, geo, profile = _standing_lap(
+                standing, profile, (route_file, limits_file, overrides),
+                (zones, stops, superelevations), route_args, positions, (kind, options))
         echo(summarise(route_file, profile, limits, origin))
         if output:
             from ..io.meta_json import meta_json_text, profile_meta
@@ -118,6 +133,27 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
         echo(f"drew {plot_file}")
     if report_file:
         echo(f"wrote the report {report_file}")
+
+
+def _standing_lap(standing, flying, sources, constraint_args, route_args, positions, solver):
+    """The loop opened at its start and planned from rest up to the flying lap's start speed
+    (``standing == "start"``) or from it down to rest: (constraints, geometry, profile)."""
+    import warnings
+
+    from ..planner import plan_profile
+
+    speed = float(flying.speed_mps[0])
+    ends = (0.0, speed) if standing == "start" else (speed, 0.0)
+    opened = route_args[:4] + (False,) + route_args[5:]
+    with warnings.catch_warnings():     # the same limits, already warned about once
+        warnings.simplefilter("ignore")
+        limits, constraints, _, geo = limits_and_geometry(*sources, constraint_args + ends,
+                                                          opened, positions)
+    profile = plan_profile(geo, limits, constraints, *solver, warn_limits=False)
+    what = "from rest up to" if standing == "start" else "down to rest from"
+    echo(f"standing {standing}: the loop opened at its start, {what} {speed:.6f} m/s, the "
+         "flying lap's start speed")
+    return constraints, geo, profile
 
 
 def _figure_and_report(outputs, plot_file, report_file, route_file, limits_file, geo, limits,
