@@ -154,17 +154,19 @@ def test_the_overview_figure_numbers_and_judges_curves_as_check_does(planned):
                                atol=1e-4)
 
 
-def test_plan_report_states_the_limits_zones_and_stops_it_was_planned_with(tmp_path):
+def test_plan_report_states_the_limits_zones_stops_and_sections_it_was_planned_with(tmp_path):
     route = arc_route(tmp_path)
     result = invoke(plan, route, "--report", tmp_path / "r.html", "--stop", 100,
-                    "--zone", "0:50:5", "--max-speed", 15)
+                    "--zone", "0:50:5", "--max-speed", 15,
+                    "--friction-section", "60:90:0.3")
     assert result.exit_code == 0, result.output
     text = (tmp_path / "r.html").read_text(encoding="utf-8")
     limits = text[text.index('<table class="kv" id="limits">'):]
     limits = limits[:limits.index("</table>")]
     for row in ("<th scope=\"row\">top speed</th><td class=\"\">15 m/s (54 km/h)</td>",
                 "<th scope=\"row\">speed zones</th><td class=\"\">0–50 m: 5 m/s</td>",
-                "<th scope=\"row\">stops</th><td class=\"\">100 m</td>"):
+                "<th scope=\"row\">stops</th><td class=\"\">100 m</td>",
+                "<th scope=\"row\">friction sections</th><td class=\"\">60–90 m: mu 0.3</td>"):
         assert row in limits
 
 

@@ -159,7 +159,8 @@ def test_power_in_kw_is_refused_naming_the_power_not_the_jerk_bound(tmp_path, so
     assert len(errors) == 1, result.output
     error = errors[0]
     assert "jerk" not in error and "defect" not in error, error
-    assert "max_power_w = 110 W" in error and "give 110000 W" in error, error
+    assert "a power of 110 W (max_power_w, --max-power)" in error and "give 110000 W" in error, \
+        error
     # Steady climb: P/(m v) = g sin(theta) (no rolling resistance, no drag at a crawl), so
     # v = (110 / 1500) / (9.80665 sin(atan(grade))): 0.150 m/s on the 5 % ramp. The fitted
     # grade overshoots the ramp's 5 % at its kinks (a smoothing fit of a corner), by up to one

@@ -211,9 +211,9 @@ def underpowered(problem: SpeedProblem) -> str | None:
         return None
     v = p / float(res[k])
     grade = 100.0 * math.tan(math.asin(float(problem.sin_grade[k])))
-    return (f"{problem.source}: max_power_w = {lim.max_power_w:g} W for mass_kg = "
-            f"{lim.mass_kg:g} ({p:.3g} W/kg) climbs the {grade:+.1f} % grade at station "
+    return (f"{problem.source}: a power of {lim.max_power_w:g} W (max_power_w, --max-power) "
+            f"for {lim.mass_kg:g} kg (mass_kg, --mass) ({p:.3g} W/kg) climbs the {grade:+.1f} % grade at station "
             f"{problem.station_m[k]:.1f} m at {v:.3g} m/s at most ({3.6 * v:.3g} km/h), "
             f"slower than walking: the power is too small to plan with. If the power is "
             f"{lim.max_power_w:g} kW, give {lim.max_power_w * 1000.0:g} W; otherwise check "
-            "mass_kg and the grades")
+            "the mass and the grades")

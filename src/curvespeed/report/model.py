@@ -232,7 +232,8 @@ def limit_rows(limits: dict) -> tuple[tuple[str, str], ...]:
 
 
 def constraint_rows(constraints: dict | None) -> tuple[tuple[str, str], ...]:
-    """Speed zones, stops, superelevation and end speeds as label/value pairs (those given)."""
+    """Speed zones, stops, superelevation, friction sections and end speeds as label/value
+    pairs (those given)."""
     c = constraints or {}
     rows = []
     zones = [f"{z['start_m']:g}–{z['end_m']:g} m: {z['max_speed_mps']:g} m/s"
@@ -242,7 +243,12 @@ def constraint_rows(constraints: dict | None) -> tuple[tuple[str, str], ...]:
              for s in c.get("stops") or []]
     banks = [f"{b['start_m']:g}–{b['end_m']:g} m: {100 * b['rate']:g} %"
              for b in c.get("superelevation") or []]
-    for label, items in (("speed zones", zones), ("stops", stops), ("superelevation", banks)):
+    grip = [f"{f['start_m']:g}–{f['end_m']:g} m: mu {f['friction_coefficient']:g}"
+            + (f" along, {f['lateral_friction_coefficient']:g} across"
+               if f.get("lateral_friction_coefficient") is not None else "")
+            for f in c.get("friction") or []]
+    for label, items in (("speed zones", zones), ("stops", stops), ("superelevation", banks),
+                         ("friction sections", grip)):
         if items:
             rows.append((label, "; ".join(items)))
     for label, key in (("start speed", "start_speed_mps"), ("end speed", "end_speed_mps")):
