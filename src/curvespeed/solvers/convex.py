@@ -244,7 +244,9 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
     blocks = None
     t_total = _steps_time(b_env, lay, ds, np.arange(lay.n_steps))   # the envelope's time
     threads = _worker_count(options.threads)
-    pool = ThreadPoolExecutor(max_workers=threads)
+    # one thread, or a single batch (a receding-horizon window): solved in this thread, with no
+    # pool to start and no hand-over between threads (the answer is the same either way)
+    pool = ThreadPoolExecutor(max_workers=threads) if threads > 1 else None
     try:
         for iterations in range(1, options.max_iterations + 1):
             qp, obj_scale = builder.reduced(b_hat)
@@ -288,8 +290,9 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
                 sub = qp.take(cols, rows)
                 glob = free_idx[cols]
                 centre, scale = b_hat[glob], np.maximum(b_env[glob], 1.0)
-                job = pool.submit(_solve_batch, sub, options.qp_tolerance, gap_abs, centre,
-                                  scale, options.qp_backend)
+                args = (sub, options.qp_tolerance, gap_abs, centre, scale, options.qp_backend)
+                job = (pool.submit(_solve_batch, *args) if pool is not None and len(batches) > 1
+                       else _Done(_solve_batch(*args)))
                 jobs.append((batch, cols, glob, job))
             for batch, cols, glob, job in jobs:
                 x, st, its, retry_notes = job.result()
@@ -331,8 +334,19 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
             if not active.any():
                 break
     finally:
-        pool.shutdown(wait=True)
+        if pool is not None:
+            pool.shutdown(wait=True)
     return b_hat, status, iterations, qp_iterations, notes
+
+
+class _Done:
+    """A batch solved in the caller's thread, with the interface of a finished future."""
+
+    def __init__(self, value):
+        self.value = value
+
+    def result(self):
+        return self.value
 
 
 #: Size of a batch of independent blocks solved in one QP (variables): the route's free stations
