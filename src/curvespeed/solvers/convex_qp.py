@@ -8,6 +8,7 @@ The program is stated in :mod:`curvespeed.solvers.convex` (module docstring) and
 from __future__ import annotations
 
 import math
+from functools import cached_property
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -71,7 +72,7 @@ class QPLayout:
             self.step_before = np.maximum(k - 1, 0)
             self.step_after = np.minimum(k, self.n_steps - 1)
         self.jerk = jerk
-        self.D = self._delta_a(problem.ds)
+        self._ds = problem.ds
         # the same rows as a table: by slot (prev, node, next), and canonical (:mod:`.qp_rows`)
         self.D_by_slot = self._delta_a_slots(problem.ds)
         self.D_cols, self.D_present, self.D_vals = canonical(
@@ -83,6 +84,12 @@ class QPLayout:
         fa = np.where(self.j_has_next, self.f_first[self.step_after], 0.0) * h
         fb = np.where(self.j_has_prev, self.f_last[self.step_before], 0.0) * h
         return np.stack((fb, -fa - fb, fa), axis=1)
+
+    @cached_property
+    def D(self):
+        """Sparse rows of (acceleration after) - (acceleration before) at every node, in b (for
+        the comfort term's objective and checks; built on first use)."""
+        return self._delta_a(self._ds)
 
     def _delta_a(self, ds: float):
         """Sparse rows of (acceleration after) - (acceleration before) at every node, in b."""
@@ -141,7 +148,6 @@ class QPBuilder:
         self.opt = options
         self.ds = problem.ds
         self.has_power = math.isfinite(problem.limits.power_per_mass_wpkg)
-        self.D = lay.D
         self.step_forms = problem.lateral_rate_forms()[: lay.n_steps]
         self.node_forms = problem.node_lateral_rate_forms()
 
