@@ -113,14 +113,15 @@ class RowQP:
 
     def take(self, cols, rows) -> RowQP:
         """The QP of variables ``cols`` (increasing) and rows ``rows`` (in the given order); the
-        rows must involve no other variable, and ``P`` must not link ``cols`` to the others."""
+        rows must involve no other variable. ``P``'s entries linking ``cols`` to other variables
+        are left out (between independent blocks there are none)."""
         local = np.full(self.n, -1, dtype=np.int64)
         local[cols] = np.arange(cols.size)
         counts = np.diff(self.indptr)[rows]
         indptr = np.zeros(rows.size + 1, dtype=np.int64)
         np.cumsum(counts, out=indptr[1:])
         pos = np.repeat(self.indptr[rows] - indptr[:-1], counts) + np.arange(indptr[-1])
-        keep = local[self.prow] >= 0
+        keep = (local[self.prow] >= 0) & (local[self.pcol] >= 0)
         return RowQP(cols.size, indptr, local[self.indices[pos]], self.data[pos],
                      self.lo[rows], self.up[rows], local[self.prow[keep]],
                      local[self.pcol[keep]], self.pval[keep], self.q[cols])
