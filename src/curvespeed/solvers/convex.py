@@ -60,7 +60,8 @@ from .banded_ipm import KERNEL_AVAILABLE, solve_qp_banded, solve_row_qp
 from .clarabel_qp import solve_qp_clarabel
 from .convex_qp import QPBuilder, QPLayout
 from .envelope import solve_envelope
-from .qp_rows import RowQP, interval_blocks
+from .qp_rows import RowQP, blocks_of
+from .qp_rows import reduce_sparse as _reduce  # noqa: F401  (the scipy.sparse form's, for checks)
 
 
 @dataclass(frozen=True)
@@ -254,7 +255,7 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
                 break
             if blocks is None:
                 free_idx = np.flatnonzero(~lay.fixed)
-                blocks = _blocks(qp, problem.closed)
+                blocks = blocks_of(qp, problem.closed)
                 n_blocks = len(blocks)
                 active = np.ones(n_blocks, dtype=bool)
                 t_block = np.full(n_blocks, math.inf)
@@ -439,39 +440,6 @@ def _steps_time(b, lay, ds, steps):
          + np.sqrt(np.maximum(b[lay.step_to[steps]], 0.0)))
     with np.errstate(divide="ignore"):
         return float(np.sum(lay.time_coef[steps] * ds / s))
-
-
-def _blocks(qp: RowQP, closed: bool):
-    """The QP's independent blocks of variables (connected through its rows or ``P``), each
-    an array of variable indices, in order of their first variable. An open route's blocks are
-    intervals (:func:`.qp_rows.interval_blocks`); a closed loop's rows wrap around, so its
-    blocks are the connected components of the QP's pattern."""
-    if not closed:
-        starts = interval_blocks(qp)
-        return [np.arange(a, b) for a, b in zip(starts[:-1], starts[1:])]
-    from scipy.sparse.csgraph import connected_components
-
-    P, _, A, _, _ = qp.to_sparse()
-    pattern = (abs(A).T @ abs(A)) + abs(P)
-    n_blocks, label = connected_components(pattern, directed=False)
-    return [np.flatnonzero(label == k) for k in range(n_blocks)]
-
-
-def _reduce(P, q, A, lo, up, fixed, values):
-    """Eliminate fixed variables from the scipy.sparse form of the QP
-    (:meth:`.convex_qp.QPBuilder.build`); drop rows left with no free variable. The solver
-    itself eliminates them while it assembles (:meth:`.convex_qp.QPBuilder.reduced`)."""
-    free = ~fixed
-    P = P.tocsc()
-    A = A.tocsc()
-    xf = np.where(fixed, values, 0.0)
-    Pff = P[free][:, free]
-    qf = q[free] + P[free][:, fixed] @ values[fixed]
-    Af = A[:, free].tocsr()
-    shift = A[:, fixed] @ values[fixed]
-    keep = np.diff(Af.indptr) > 0
-    return {"P": Pff, "q": qf, "A": Af[keep], "lo": lo[keep] - shift[keep],
-            "up": up[keep] - shift[keep], "free": free, "x_fixed": xf}
 
 
 class _BlockObjective:

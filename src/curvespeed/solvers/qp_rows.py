@@ -190,3 +190,36 @@ def interval_blocks(qp: RowQP):
     linked = np.cumsum(cover)[: max(n - 1, 0)] > 0       # variable c linked to c + 1
     cuts = np.flatnonzero(~linked) + 1
     return np.concatenate(([0], cuts, [n])).astype(np.int64)
+
+
+def blocks_of(qp: RowQP, closed: bool):
+    """The QP's independent blocks of variables (connected through its rows or ``P``), each
+    an array of variable indices, in order of their first variable. An open route's blocks are
+    intervals (:func:`interval_blocks`); a closed loop's rows wrap around, so its
+    blocks are the connected components of the QP's pattern."""
+    if not closed:
+        starts = interval_blocks(qp)
+        return [np.arange(a, b) for a, b in zip(starts[:-1], starts[1:])]
+    from scipy.sparse.csgraph import connected_components
+
+    P, _, A, _, _ = qp.to_sparse()
+    pattern = (abs(A).T @ abs(A)) + abs(P)
+    n_blocks, label = connected_components(pattern, directed=False)
+    return [np.flatnonzero(label == k) for k in range(n_blocks)]
+
+
+def reduce_sparse(P, q, A, lo, up, fixed, values):
+    """Eliminate fixed variables from the scipy.sparse form of the QP
+    (:meth:`.convex_qp.QPBuilder.build`); drop rows left with no free variable. The solver
+    itself eliminates them while it assembles (:meth:`.convex_qp.QPBuilder.reduced`)."""
+    free = ~fixed
+    P = P.tocsc()
+    A = A.tocsc()
+    xf = np.where(fixed, values, 0.0)
+    Pff = P[free][:, free]
+    qf = q[free] + P[free][:, fixed] @ values[fixed]
+    Af = A[:, free].tocsr()
+    shift = A[:, fixed] @ values[fixed]
+    keep = np.diff(Af.indptr) > 0
+    return {"P": Pff, "q": qf, "A": Af[keep], "lo": lo[keep] - shift[keep],
+            "up": up[keep] - shift[keep], "free": free, "x_fixed": xf}
