@@ -75,8 +75,6 @@ class QPLayout:
         self._ds = problem.ds
         # the same rows as a table: by slot (prev, node, next), and canonical (:mod:`.qp_rows`)
         self.D_by_slot = self._delta_a_slots(problem.ds)
-        self.D_cols, self.D_present, self.D_vals = canonical(
-            np.stack((self.j_prev, np.arange(nv), self.j_next), axis=1), self.D_by_slot)
 
     def _delta_a_slots(self, ds: float):
         """The coefficients of :meth:`_delta_a`'s row of every node on (prev, node, next)."""
@@ -84,6 +82,13 @@ class QPLayout:
         fa = np.where(self.j_has_next, self.f_first[self.step_after], 0.0) * h
         fb = np.where(self.j_has_prev, self.f_last[self.step_before], 0.0) * h
         return np.stack((fb, -fa - fb, fa), axis=1)
+
+    @cached_property
+    def D_table(self):
+        """:meth:`_delta_a`'s rows as a canonical row table ``(cols, present, vals)`` (for the
+        comfort term; built on first use)."""
+        return canonical(np.stack((self.j_prev, np.arange(self.nv), self.j_next), axis=1),
+                         self.D_by_slot)
 
     @cached_property
     def D(self):
@@ -148,8 +153,16 @@ class QPBuilder:
         self.opt = options
         self.ds = problem.ds
         self.has_power = math.isfinite(problem.limits.power_per_mass_wpkg)
-        self.step_forms = problem.lateral_rate_forms()[: lay.n_steps]
-        self.node_forms = problem.node_lateral_rate_forms()
+
+    @cached_property
+    def step_forms(self):
+        """The lateral jerk's rate forms along each step (only with a lateral jerk bound)."""
+        return self.p.lateral_rate_forms()[: self.lay.n_steps]
+
+    @cached_property
+    def node_forms(self):
+        """The lateral jerk's rate forms across each node (only with a lateral jerk bound)."""
+        return self.p.node_lateral_rate_forms()
 
     def _node_bounds(self, b, nodes, include_power=False):
         return self.p.accel_bounds(b, nodes=nodes, include_power=include_power)
@@ -393,7 +406,7 @@ class QPBuilder:
         w = self.opt.comfort_weight
         if w > 0:
             # 2 w D'D, each entry summed over D's rows in order; D b row by row
-            dc, dp, dv = lay.D_cols, lay.D_present, lay.D_vals
+            dc, dp, dv = lay.D_table
             ii, jj = np.meshgrid(np.arange(dc.shape[1]), np.arange(dc.shape[1]), indexing="ij")
             both = dp[:, ii] & dp[:, jj]
             dtd_r, dtd_c = dc[:, ii][both], dc[:, jj][both]
