@@ -132,7 +132,7 @@ def run_replan(variant: str, backend: str, calls: int, dt: float = 0.1) -> dict:
         return call
 
     convex.solve_qp_clarabel = timed(convex.solve_qp_clarabel)
-    convex.solve_qp_banded = timed(convex.solve_qp_banded)
+    convex.solve_row_qp = timed(convex.solve_row_qp)
     geo = build_geometry(read_route(ROOT / "routes" / "mountain_road.csv"))
     options = ConvexOptions(threads=1, max_iterations=1 if variant == "one-qp" else 30,
                             qp_backend=QPBackend(backend))
@@ -162,11 +162,12 @@ def run_replan(variant: str, backend: str, calls: int, dt: float = 0.1) -> dict:
 
 def route_qp(length_km: float, stations: int | None = None):
     """The first sequential-convex QP of the benchmark road as one QP (not cut into batches),
-    with its centre and scale; ``stations``: only the rows within the first that many free
-    stations (a window of the route, as a receding-horizon planner would solve)."""
+    as the solver assembles it (:class:`curvespeed.solvers.qp_rows.RowQP`), with its centre and
+    scale; ``stations``: only the rows within the first that many free stations (a window of
+    the route, as a receding-horizon planner would solve)."""
     from curvespeed.limits import Limits
     from curvespeed.problem import build_problem
-    from curvespeed.solvers.convex import ConvexOptions, _reduce, plateau_anchors
+    from curvespeed.solvers.convex import ConvexOptions, plateau_anchors
     from curvespeed.solvers.convex_qp import QPBuilder, QPLayout
     from curvespeed.solvers.envelope import solve_envelope
 
@@ -178,46 +179,51 @@ def route_qp(length_km: float, stations: int | None = None):
     nv = problem.n_nodes
     lay = QPLayout(problem, jerk=True, anchors=plateau_anchors(problem, env.b, nv))
     b_env = env.b[:nv].copy()
-    P, q, A, lo, up, obj_scale = QPBuilder(problem, lay, b_env, ConvexOptions()).build(b_env)
-    qp = _reduce(P, q, A, lo, up, lay.fixed, lay.fixed_value)
-    free = np.flatnonzero(qp["free"])
-    P, q, A, lo, up = qp["P"].tocsr(), qp["q"], qp["A"].tocsr(), qp["lo"], qp["up"]
+    qp, obj_scale = QPBuilder(problem, lay, b_env, ConvexOptions()).reduced(b_env)
+    free = np.flatnonzero(~lay.fixed)
+    n_free = free.size
     if stations is not None:
         start = free.size // 3               # a window away from the start, past the first zone
         cols = np.arange(start, start + stations)
-        inside = np.asarray((abs(A[:, cols]).sum(axis=1) > 0)).ravel()
-        outside = np.asarray((abs(A).sum(axis=1)).ravel() - abs(A[:, cols]).sum(axis=1).ravel())
-        rows = np.flatnonzero(inside & (np.asarray(outside).ravel() == 0))
-        P, q, A, lo, up = P[cols][:, cols], q[cols], A[rows][:, cols], lo[rows], up[rows]
+        inside = np.isin(qp.indices, cols)
+        all_inside = np.bincount(qp.row_of_entry(), ~inside, minlength=qp.m) == 0
+        qp = qp.take(cols, np.flatnonzero(all_inside))
         free = free[cols]
     gap_abs = ConvexOptions().qp_gap_fraction * float(
         np.sum(2.0 * problem.ds / (np.sqrt(env.b[:-1]) + np.sqrt(env.b[1:])))) * obj_scale
     if stations is not None:            # the window's share of the route's gap tolerance
-        gap_abs *= stations / qp["free"].sum()
-    return (P, q, A, lo, up), b_env[free], np.maximum(b_env[free], 1.0), gap_abs
+        gap_abs *= stations / n_free
+    return qp, b_env[free], np.maximum(b_env[free], 1.0), gap_abs
 
 
 def run_qp_case(length_km: float, stations: int | None, repeats: int) -> dict:
-    """Solve one captured QP with both backends, alternating, ``repeats`` times each."""
-    from curvespeed.solvers.banded_ipm import solve_qp_banded
+    """Solve one captured QP with both backends, alternating, ``repeats`` times each: the
+    banded method from the solver's row arrays, Clarabel from scipy.sparse matrices made from
+    them (the conversion timed with it, as the solver pays it)."""
+    from curvespeed.solvers.banded_ipm import solve_row_qp
     from curvespeed.solvers.clarabel_qp import solve_qp_clarabel
 
-    import scipy.sparse as sp
+    qp, centre, scale, gap_abs = route_qp(length_km, stations)
+    out = {"n": qp.n, "m": qp.m, "stations": stations, "gap_abs": gap_abs}
 
-    sub, centre, scale, gap_abs = route_qp(length_km, stations)
-    P, q = sub[0], sub[1]
-    P_scaled = sp.diags(scale) @ P @ sp.diags(scale)       # the objective as both solvers see it
-    out = {"n": P.shape[0], "m": sub[2].shape[0], "stations": stations, "gap_abs": gap_abs}
+    def banded():
+        return solve_row_qp(qp, 1e-8, centre, scale, gap_abs=gap_abs)
+
+    def clarabel():
+        return solve_qp_clarabel(*qp.to_sparse(), 1e-8, centre, scale, gap_abs=gap_abs,
+                                 refine=False)
+
     times = {"banded": [], "clarabel": []}
     for _ in range(repeats):
-        for name, fn, kw in (("banded", solve_qp_banded, {}),
-                             ("clarabel", solve_qp_clarabel, {"refine": False})):
+        for name, fn in (("banded", banded), ("clarabel", clarabel)):
             t0 = time.perf_counter()
-            x, st, its = fn(*sub, 1e-8, centre, scale, gap_abs=gap_abs, **kw)
+            x, st, its = fn()
             times[name].append(time.perf_counter() - t0)
             out[name + "_its"], out[name + "_status"] = its, st.value
+            # the objective in the scaled variables both solvers work in
             y = (x - centre) / scale
-            out[name + "_obj"] = float(0.5 * y @ (P_scaled @ y) + (scale * (q + P @ centre)) @ y)
+            Py = scale * qp.P_times(scale * y)
+            out[name + "_obj"] = float(0.5 * y @ Py + (scale * (qp.q + qp.P_times(centre))) @ y)
     for name in times:
         out[name + "_s"] = statistics.median(times[name])
     return out

@@ -24,9 +24,9 @@ banded in any order found, or no compiled kernel). The convex solver hands every
 from __future__ import annotations
 
 import numpy as np
-import scipy.sparse as sp
 
 from . import SolveStatus
+from .qp_rows import RowQP
 
 try:
     from . import _banded_ipm as _kernel
@@ -62,17 +62,26 @@ def solve_qp_banded(P, q, A, lo, up, eps, centre=None, scale=None, refine=True, 
     n = P.shape[0]
     if _kernel is None or n == 0:
         return np.zeros(n), SolveStatus.FAILED, 0
-    qp = _prepare(P, q, A, lo, up, centre, scale)
-    if qp is None:                      # not banded in station order nor after reordering
+    return solve_row_qp(_row_qp(P, q, A, lo, up), eps, centre, scale, gap_abs=gap_abs)
+
+
+def solve_row_qp(qp: RowQP, eps, centre=None, scale=None, gap_abs=None):
+    """:func:`solve_qp_banded` on a QP already in compressed rows (:class:`.qp_rows.RowQP`,
+    as the convex solver assembles it): no scipy.sparse on the way."""
+    n = qp.n
+    if _kernel is None or n == 0:
         return np.zeros(n), SolveStatus.FAILED, 0
-    x, sl, su, zl, zu = _start(qp)
+    b = _prepare_rows(qp, centre, scale)
+    if b is None:                       # not banded in station order nor after reordering
+        return np.zeros(n), SolveStatus.FAILED, 0
+    x, sl, su, zl, zu = _start(b)
     info = np.zeros(8)
-    code = _kernel.solve(n, qp.kd, qp.indptr, qp.indices, qp.data, qp.lo, qp.up, qp.kind, qp.Pb,
-                         qp.q, x, sl, su, zl, zu, float(eps),
-                         float(eps if gap_abs is None else gap_abs), MAX_ITERATIONS, info)
+    gap = float(eps if gap_abs is None else gap_abs)
+    code = _kernel.solve(n, b.kd, b.indptr, b.indices, b.data, b.lo, b.up, b.kind, b.Pb,
+                         b.q, x, sl, su, zl, zu, float(eps), gap, MAX_ITERATIONS, info)
     iterations = int(info[4])
-    status = _judge(code, qp, x, zl, zu, eps, float(eps if gap_abs is None else gap_abs), info)
-    x = x[qp.inverse] if qp.inverse is not None else x
+    status = _judge(code, b, x, zl, zu, eps, gap, info)
+    x = x[b.inverse] if b.inverse is not None else x
     if centre is not None:
         x = centre + scale * x
     return x, status, iterations
@@ -80,10 +89,36 @@ def solve_qp_banded(P, q, A, lo, up, eps, centre=None, scale=None, refine=True, 
 
 class _Banded:
     """The QP as the kernel takes it: scaled, rows at unit largest coefficient, P in band
-    storage, columns possibly reordered (``inverse`` maps back)."""
+    storage, columns possibly reordered (``inverse`` maps back); ``rows`` is every stored
+    entry's row."""
 
-    __slots__ = ("kd", "indptr", "indices", "data", "lo", "up", "kind", "Pb", "q", "A",
+    __slots__ = ("kd", "indptr", "indices", "data", "lo", "up", "kind", "Pb", "q", "rows",
                  "inverse")
+
+    @property
+    def A(self):
+        """The scaled rows as a scipy.sparse matrix (for checks; the solve never needs it)."""
+        import scipy.sparse as sp
+
+        return sp.csr_matrix((self.data, self.indices, self.indptr),
+                             shape=(self.lo.size, self.Pb.shape[1]))
+
+
+def _row_qp(P, q, A, lo, up) -> RowQP:
+    """The arrays of scipy.sparse ``P`` and ``A`` (``A``'s rows in canonical form)."""
+    import scipy.sparse as sp
+
+    A = sp.csr_matrix(A, dtype=float)
+    if not A.has_canonical_format:      # sorted columns in each row, no duplicates
+        A = A.copy()
+        A.sum_duplicates()
+    Pc = sp.csr_matrix(P, dtype=float)
+    Pc.sum_duplicates()
+    Pc = Pc.tocoo()
+    return RowQP(Pc.shape[0], A.indptr.astype(np.int64), A.indices.astype(np.int64), A.data,
+                 np.asarray(lo, dtype=float), np.asarray(up, dtype=float),
+                 Pc.row.astype(np.int64), Pc.col.astype(np.int64), Pc.data,
+                 np.asarray(q, dtype=float))
 
 
 def _bandwidth(prow, pcol, indptr, indices) -> int:
@@ -96,43 +131,46 @@ def _bandwidth(prow, pcol, indptr, indices) -> int:
     return max(kp, int(np.max(last - first)))
 
 
+def _reorder(qp: RowQP, prow, pcol, pval, data, q):
+    """Reverse Cuthill-McKee order of the columns (e.g. a closed loop, whose rows wrap from
+    the last station to the first): ``(prow, pcol, pval, indptr, indices, data, q, inverse)``."""
+    import scipy.sparse as sp
+    from scipy.sparse.csgraph import reverse_cuthill_mckee
+
+    n, m = qp.n, qp.m
+    As = sp.csr_matrix((data, qp.indices, qp.indptr), shape=(m, n))
+    Ps = sp.csr_matrix((pval, (prow, pcol)), shape=(n, n))
+    perm = reverse_cuthill_mckee((abs(As).T @ abs(As) + abs(Ps)).tocsr(), symmetric_mode=True)
+    Ps = Ps[perm][:, perm].tocoo()
+    As = As[:, perm].tocsr()
+    As.sort_indices()
+    return (Ps.row, Ps.col, Ps.data, As.indptr, As.indices, As.data, q[perm],
+            np.argsort(perm))
+
+
 def _prepare(P, q, A, lo, up, centre, scale):
-    """Scale, check the band, reorder if needed, scale the rows; on the arrays of the sparse
-    matrices (scipy's products cost more than the solve on a small QP)."""
-    A = sp.csr_matrix(A, dtype=float)
-    if not A.has_canonical_format:      # sorted columns in each row, no duplicates
-        A = A.copy()
-        A.sum_duplicates()
-    Pc = sp.coo_matrix(P, dtype=float)
-    prow, pcol, pval = Pc.row, Pc.col, Pc.data
-    data = A.data
-    q = np.asarray(q, dtype=float)
-    lo = np.asarray(lo, dtype=float)
-    up = np.asarray(up, dtype=float)
+    """:func:`_prepare_rows` on scipy.sparse ``P`` and ``A``."""
+    return _prepare_rows(_row_qp(P, q, A, lo, up), centre, scale)
+
+
+def _prepare_rows(qp: RowQP, centre, scale):
+    """Scale, check the band, reorder if needed, scale the rows; on the arrays alone (scipy's
+    products cost more than the solve on a small QP)."""
+    prow, pcol, pval = qp.prow, qp.pcol, qp.pval
+    data, q, lo, up = qp.data, qp.q, qp.lo, qp.up
     if centre is not None:              # y = (x - centre) / scale, as solve_qp_clarabel does
-        q = scale * (q + P @ centre)
-        shift = A @ centre
+        q = scale * (q + qp.P_times(centre))
+        shift = qp.A_times(centre)
         lo, up = lo - shift, up - shift
         pval = pval * scale[prow] * scale[pcol]
-        data = data * scale[A.indices]
-    n, m = Pc.shape[0], A.shape[0]
-    indptr, indices = A.indptr, A.indices
+        data = data * scale[qp.indices]
+    m = qp.m
+    indptr, indices = qp.indptr, qp.indices
     inverse = None
     kd = _bandwidth(prow, pcol, indptr, indices)
-    if kd > MAX_BANDWIDTH:              # e.g. a closed loop: its rows wrap from the last
-        from scipy.sparse.csgraph import reverse_cuthill_mckee       # station to the first
-
-        As = sp.csr_matrix((data, indices, indptr), shape=(m, n))
-        Ps = sp.csr_matrix((pval, (prow, pcol)), shape=(n, n))
-        perm = reverse_cuthill_mckee((abs(As).T @ abs(As) + abs(Ps)).tocsr(),
-                                     symmetric_mode=True)
-        Ps = Ps[perm][:, perm].tocoo()
-        As = As[:, perm].tocsr()
-        As.sort_indices()
-        prow, pcol, pval = Ps.row, Ps.col, Ps.data
-        indptr, indices, data = As.indptr, As.indices, As.data
-        q = q[perm]
-        inverse = np.argsort(perm)
+    if kd > MAX_BANDWIDTH:
+        prow, pcol, pval, indptr, indices, data, q, inverse = _reorder(qp, prow, pcol, pval,
+                                                                      data, q)
         kd = _bandwidth(prow, pcol, indptr, indices)
         if kd > MAX_BANDWIDTH:
             return None
@@ -147,6 +185,7 @@ def _prepare(P, q, A, lo, up, centre, scale):
     b.indptr = indptr.astype(np.int64)
     b.indices = indices.astype(np.int64)
     b.data = data / np.repeat(norm, counts)
+    b.rows = np.repeat(np.arange(m), counts)
     b.lo, b.up = lo / norm, up / norm
     finite_lo, finite_up = np.isfinite(b.lo), np.isfinite(b.up)
     kind = np.where(finite_lo & finite_up, 3, np.where(finite_lo, 1, np.where(finite_up, 2, 0)))
@@ -154,10 +193,9 @@ def _prepare(P, q, A, lo, up, centre, scale):
     kind[~has] = 0                      # an empty row: judged below, never iterated on
     b.kind = kind.astype(np.int8)
     lower = prow >= pcol
-    b.Pb = np.zeros((kd + 1, n))
+    b.Pb = np.zeros((kd + 1, qp.n))
     np.add.at(b.Pb, (prow[lower] - pcol[lower], pcol[lower]), pval[lower])
     b.q = q
-    b.A = sp.csr_matrix((b.data, b.indices, b.indptr), shape=(m, n))
     b.inverse = inverse
     return b
 
@@ -199,7 +237,8 @@ def _judge(code: int, qp: _Banded, x, zl, zu, eps: float, gap_abs: float, info) 
         return SolveStatus.FAILED
     eq = qp.kind == 4
     y = np.where(eq, zl, np.where(qp.kind == 0, 0.0, zl - zu))
-    Aty = qp.A.T @ y
+    n, m = qp.Pb.shape[1], qp.lo.size
+    Aty = np.bincount(qp.indices, qp.data * y[qp.rows], minlength=n)
     with np.errstate(invalid="ignore"):             # an infinite side times its zero multiplier
         lo_part = np.where((qp.kind == 1) | (qp.kind >= 3), qp.lo * zl, 0.0)
         up_part = np.where((qp.kind == 2) | (qp.kind == 3), qp.up * zu, 0.0)
@@ -211,7 +250,7 @@ def _judge(code: int, qp: _Banded, x, zl, zu, eps: float, gap_abs: float, info) 
         return SolveStatus.FAILED
     if code != 0:
         return SolveStatus.FAILED
-    r = qp.A @ x
+    r = np.bincount(qp.rows, qp.data * x[qp.indices], minlength=m)
     # an empty row's sides are checked too (0 must lie between them)
     viol = np.maximum(np.nan_to_num(qp.lo - r, neginf=0.0), np.nan_to_num(r - qp.up, neginf=0.0))
     Px = _band_times(qp.Pb, x)

@@ -56,10 +56,12 @@ from ..diagnose import stop_out_of_reach
 from ..errors import CurvespeedWarning, InfeasibleError, SolverError
 from ..problem import SpeedProblem
 from . import QPBackend, SolveResult, SolveStatus
-from .banded_ipm import KERNEL_AVAILABLE, solve_qp_banded
+from .banded_ipm import KERNEL_AVAILABLE, solve_qp_banded, solve_row_qp
 from .clarabel_qp import solve_qp_clarabel
 from .convex_qp import QPBuilder, QPLayout
 from .envelope import solve_envelope
+from .qp_rows import RowQP, blocks_of
+from .qp_rows import reduce_sparse as _reduce  # noqa: F401  (the scipy.sparse form's, for checks)
 
 
 @dataclass(frozen=True)
@@ -228,8 +230,6 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
     """
     from concurrent.futures import ThreadPoolExecutor
 
-    from scipy.sparse.csgraph import connected_components
-
     lay = QPLayout(problem, jerk=problem.limits.max_jerk_mps3 is not None, anchors=anchors)
     nv = lay.nv
     ds = problem.ds
@@ -245,38 +245,36 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
     blocks = None
     t_total = _steps_time(b_env, lay, ds, np.arange(lay.n_steps))   # the envelope's time
     threads = _worker_count(options.threads)
-    pool = ThreadPoolExecutor(max_workers=threads)
+    # one thread, or a single batch (a receding-horizon window): solved in this thread, with no
+    # pool to start and no hand-over between threads (the answer is the same either way)
+    pool = ThreadPoolExecutor(max_workers=threads) if threads > 1 else None
     try:
         for iterations in range(1, options.max_iterations + 1):
-            *qp_parts, obj_scale = builder.build(b_hat)
-            qp = _reduce(*qp_parts, lay.fixed, lay.fixed_value)
-            qp["scale"] = obj_scale
-            free_idx = np.flatnonzero(qp["free"])
-            if free_idx.size == 0:
+            qp, obj_scale = builder.reduced(b_hat)
+            if qp.n == 0:
                 break
-            A = qp["A"].tocsr()
-            P = qp["P"].tocsr()
             if blocks is None:
-                pattern = (abs(A).T @ abs(A)) + abs(P)
-                n_blocks, label = connected_components(pattern, directed=False)
-                blocks = [np.flatnonzero(label == k) for k in range(n_blocks)]
+                free_idx = np.flatnonzero(~lay.fixed)
+                blocks = blocks_of(qp, problem.closed)
+                n_blocks = len(blocks)
                 active = np.ones(n_blocks, dtype=bool)
                 t_block = np.full(n_blocks, math.inf)
                 node_block = np.full(nv, -1)
-                node_block[free_idx] = label
+                for k, cols in enumerate(blocks):
+                    node_block[free_idx[cols]] = k
                 touch = np.maximum(node_block[lay.step_from], node_block[lay.step_to])
                 block_steps = [np.flatnonzero(touch == k) for k in range(n_blocks)]
                 block_cost = [_BlockObjective(lay, ds, block_steps[k], node_block == k,
                                               options.comfort_weight)
                               for k in range(n_blocks)]
-            row_block = node_block[free_idx][A.indices[A.indptr[:-1]]]
+            row_block = node_block[free_idx][qp.indices[qp.indptr[:-1]]]
             # Blocks are solved in batches: one QP per batch is block-diagonal, so each block's
             # part of its answer is that block's own optimum, while the fixed cost of a solver
             # call is paid once per batch rather than once per block. The batches follow from
             # the blocks' sizes alone, so every thread count solves the very same QPs; the worker
             # threads share them out (both QP backends release the interpreter lock while they
             # solve).
-            gap_abs = options.qp_gap_fraction * t_total * qp["scale"]
+            gap_abs = options.qp_gap_fraction * t_total * obj_scale
             jobs = []
             batches = _batches(np.flatnonzero(active), blocks)
             # each batch's rows, in their order, from one stable sort by batch (a search of
@@ -290,12 +288,12 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
             for j, batch in enumerate(batches):
                 cols = np.concatenate([blocks[k] for k in batch])
                 rows = by_batch[cuts[j]:cuts[j + 1]]
-                sub = (P[cols][:, cols], qp["q"][cols], A[rows][:, cols], qp["lo"][rows],
-                       qp["up"][rows])
+                sub = qp.take(cols, rows)
                 glob = free_idx[cols]
                 centre, scale = b_hat[glob], np.maximum(b_env[glob], 1.0)
-                job = pool.submit(_solve_batch, sub, options.qp_tolerance, gap_abs, centre,
-                                  scale, options.qp_backend)
+                args = (sub, options.qp_tolerance, gap_abs, centre, scale, options.qp_backend)
+                job = (pool.submit(_solve_batch, *args) if pool is not None and len(batches) > 1
+                       else _Done(_solve_batch(*args)))
                 jobs.append((batch, cols, glob, job))
             for batch, cols, glob, job in jobs:
                 x, st, its, retry_notes = job.result()
@@ -337,8 +335,19 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
             if not active.any():
                 break
     finally:
-        pool.shutdown(wait=True)
+        if pool is not None:
+            pool.shutdown(wait=True)
     return b_hat, status, iterations, qp_iterations, notes
+
+
+class _Done:
+    """A batch solved in the caller's thread, with the interface of a finished future."""
+
+    def __init__(self, value):
+        self.value = value
+
+    def result(self):
+        return self.value
 
 
 #: Size of a batch of independent blocks solved in one QP (variables): the route's free stations
@@ -372,24 +381,27 @@ def _batches(block_ids, blocks):
     return out
 
 
-def _solve_batch(sub, tolerance: float, gap_abs: float, centre, scale,
+def _solve_batch(qp, tolerance: float, gap_abs: float, centre, scale,
                  backend: QPBackend = QPBackend.CLARABEL):
     """Solve one batch's QP, retrying before an answer is accepted; returns (x, status,
     interior-point iterations, notes on retries and fallbacks).
 
     With the banded backend an optimal answer is taken as it is; anything else (iteration
     limit, numerical trouble, an infeasibility certificate, no compiled kernel) goes to
-    Clarabel, which decides, and the hand-over is noted."""
+    Clarabel, which decides, and the hand-over is noted. ``qp``: a :class:`.qp_rows.RowQP`,
+    or ``(P, q, A, lo, up)`` with scipy.sparse ``P`` and ``A``."""
     notes = []
     its = 0
     if backend is QPBackend.BANDED:
-        x, st, its = solve_qp_banded(*sub, tolerance, centre, scale, gap_abs=gap_abs)
+        solve = solve_row_qp if isinstance(qp, RowQP) else _solve_sparse_banded
+        x, st, its = solve(qp, tolerance, centre, scale, gap_abs=gap_abs)
         if st is SolveStatus.OPTIMAL:
             return x, st, its, notes
         notes.append(f"the banded QP solver returned {st.value} after {its} iterations"
                      + ("" if KERNEL_AVAILABLE else " (its compiled kernel is "
                         "missing: reinstall with a C compiler)")
                      + "; solved with Clarabel")
+    sub = qp.to_sparse() if isinstance(qp, RowQP) else qp
     x, st, more = solve_qp_clarabel(*sub, tolerance, centre, scale, refine=False,
                                     gap_abs=gap_abs)
     its += more
@@ -408,6 +420,10 @@ def _solve_batch(sub, tolerance: float, gap_abs: float, centre, scale,
     return x, st, its, notes
 
 
+def _solve_sparse_banded(sub, tolerance, centre, scale, gap_abs):
+    return solve_qp_banded(*sub, tolerance, centre, scale, gap_abs=gap_abs)
+
+
 def _worker_count(requested: int | None) -> int:
     """Threads for the QP batches: ``requested``, or the processor cores this process may use."""
     if requested is not None:
@@ -424,21 +440,6 @@ def _steps_time(b, lay, ds, steps):
          + np.sqrt(np.maximum(b[lay.step_to[steps]], 0.0)))
     with np.errstate(divide="ignore"):
         return float(np.sum(lay.time_coef[steps] * ds / s))
-
-
-def _reduce(P, q, A, lo, up, fixed, values):
-    """Eliminate fixed variables from the QP; drop rows left with no free variable."""
-    free = ~fixed
-    P = P.tocsc()
-    A = A.tocsc()
-    xf = np.where(fixed, values, 0.0)
-    Pff = P[free][:, free]
-    qf = q[free] + P[free][:, fixed] @ values[fixed]
-    Af = A[:, free].tocsr()
-    shift = A[:, fixed] @ values[fixed]
-    keep = np.diff(Af.indptr) > 0
-    return {"P": Pff, "q": qf, "A": Af[keep], "lo": lo[keep] - shift[keep],
-            "up": up[keep] - shift[keep], "free": free, "x_fixed": xf}
 
 
 class _BlockObjective:

@@ -8,12 +8,14 @@ The program is stated in :mod:`curvespeed.solvers.convex` (module docstring) and
 from __future__ import annotations
 
 import math
+from functools import cached_property
 from typing import TYPE_CHECKING
 
 import numpy as np
 import scipy.sparse as sp
 
 from ..problem import SpeedProblem
+from .qp_rows import RowQP, canonical, pad, reduce_tables
 
 if TYPE_CHECKING:
     from .convex import ConvexOptions
@@ -70,7 +72,29 @@ class QPLayout:
             self.step_before = np.maximum(k - 1, 0)
             self.step_after = np.minimum(k, self.n_steps - 1)
         self.jerk = jerk
-        self.D = self._delta_a(problem.ds)
+        self._ds = problem.ds
+        # the same rows as a table: by slot (prev, node, next), and canonical (:mod:`.qp_rows`)
+        self.D_by_slot = self._delta_a_slots(problem.ds)
+
+    def _delta_a_slots(self, ds: float):
+        """The coefficients of :meth:`_delta_a`'s row of every node on (prev, node, next)."""
+        h = 1.0 / (2.0 * ds)
+        fa = np.where(self.j_has_next, self.f_first[self.step_after], 0.0) * h
+        fb = np.where(self.j_has_prev, self.f_last[self.step_before], 0.0) * h
+        return np.stack((fb, -fa - fb, fa), axis=1)
+
+    @cached_property
+    def D_table(self):
+        """:meth:`_delta_a`'s rows as a canonical row table ``(cols, present, vals)`` (for the
+        comfort term; built on first use)."""
+        return canonical(np.stack((self.j_prev, np.arange(self.nv), self.j_next), axis=1),
+                         self.D_by_slot)
+
+    @cached_property
+    def D(self):
+        """Sparse rows of (acceleration after) - (acceleration before) at every node, in b (for
+        the comfort term's objective and checks; built on first use)."""
+        return self._delta_a(self._ds)
 
     def _delta_a(self, ds: float):
         """Sparse rows of (acceleration after) - (acceleration before) at every node, in b."""
@@ -129,9 +153,16 @@ class QPBuilder:
         self.opt = options
         self.ds = problem.ds
         self.has_power = math.isfinite(problem.limits.power_per_mass_wpkg)
-        self.D = lay.D
-        self.step_forms = problem.lateral_rate_forms()[: lay.n_steps]
-        self.node_forms = problem.node_lateral_rate_forms()
+
+    @cached_property
+    def step_forms(self):
+        """The lateral jerk's rate forms along each step (only with a lateral jerk bound)."""
+        return self.p.lateral_rate_forms()[: self.lay.n_steps]
+
+    @cached_property
+    def node_forms(self):
+        """The lateral jerk's rate forms across each node (only with a lateral jerk bound)."""
+        return self.p.node_lateral_rate_forms()
 
     def _node_bounds(self, b, nodes, include_power=False):
         return self.p.accel_bounds(b, nodes=nodes, include_power=include_power)
@@ -148,6 +179,8 @@ class QPBuilder:
         each row inside the true bound for any ``b_hat > 0``. A fixed station's speed is known
         exactly (no row where it is at rest: there the bound cannot bind); a form that is zero
         (no curvature, or one that would repeat another) needs no row.
+
+        Returns a row table ``(cols, vals, up)`` (three slots a row; :mod:`.qp_rows`).
         """
         lay = self.lay
         J = self.p.limits.max_lateral_jerk_mps3 * (1.0 - self.opt.margin)
@@ -165,23 +198,17 @@ class QPBuilder:
         for i in (0, 1):
             parts.append((np.stack((cross.prev, cross.node, cross.next), axis=1),
                           cross.forms[:, i], cross.node))
-        rows, cols, vals, rhs = [], [], [], []
-        n_rows = 0
+        cols, vals, rhs = [], [], []
         for c, coef, end in parts:
             k = np.flatnonzero(np.any(coef != 0.0, axis=1) & np.isfinite(budget[end]))
             c, coef, end = c[k], coef[k], end[k]
             on_end = np.where(c == end[:, None], slope[end][:, None], 0.0)
             for sign in (1.0, -1.0):
-                r = np.arange(n_rows, n_rows + k.size)
-                rows.append(np.repeat(r, c.shape[1]))
-                cols.append(c.ravel())
-                vals.append((sign * coef + on_end).ravel())
+                cc, vv = pad(c, sign * coef + on_end)
+                cols.append(cc)
+                vals.append(vv)
                 rhs.append(budget[end])
-                n_rows += k.size
-        L = sp.coo_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
-                          shape=(n_rows, lay.nv)).tocsr()
-        L.sum_duplicates()
-        return L, np.concatenate(rhs)
+        return np.concatenate(cols), np.concatenate(vals), np.concatenate(rhs)
 
     def _jerk_rows(self, b_hat: np.ndarray):
         """Rows ``+-D[node] b <= scale J ds (2 / w_hat - w_up(b) / w_hat^2)`` for every term of
@@ -192,6 +219,10 @@ class QPBuilder:
         ``1 / w >= 1 / w_up``, and the tangent of the convex ``1 / x`` at ``w_hat`` bounds that
         from below. Both keep the row inside the true bound for any ``b_hat > 0``; a fixed
         station's speed is known exactly. A term of scale 0 asks for no change at all.
+
+        Returns a canonical row table ``(cols, present, vals, up)``: ``D`` and the tangent's
+        terms are each summed over repeated stations first and then added, and a term that
+        comes to exactly zero is no entry (as a sum of scipy.sparse matrices has it).
         """
         p, lay = self.p, self.lay
         t = p.jerk_terms
@@ -209,7 +240,6 @@ class QPBuilder:
             slopes.append(np.where(exact, 0.0, coef * t.weights[:, i]
                                    / np.where(exact, 1.0, 2.0 * root[c])))
         rhs = t.scale * J * self.ds / w_hat + sum(g * base[c] for g, c in zip(slopes, cols))
-        m = t.node.size
         # D b is the change from 0 at an open start; from an acceleration a0 +- tol the
         # vehicle has there (a receding-horizon window) the rows are +-(D b - a0) + G b <=
         # rhs + tol
@@ -217,35 +247,36 @@ class QPBuilder:
                    (p.accel_start_mps2, p.accel_start_tolerance_mps2))
         first = t.node == 0
         shift, slack = np.where(first, a0, 0.0), np.where(first, tol, 0.0)
-        G = sp.coo_matrix((np.concatenate(slopes),
-                           (np.tile(np.arange(m), 3), np.concatenate(cols))),
-                          shape=(m, lay.nv)).tocsr()
-        G.sum_duplicates()
-        Dn = self.D[t.node]
-        return (sp.vstack([Dn + G, -Dn + G], format="csr"),
+        # D's row of the node has its slots on (prev, node, next), as the terms do
+        d_rows = lay.D_by_slot[t.node]
+        c, present, dv, gv = canonical(np.stack(cols, axis=1), d_rows, np.stack(slopes, axis=1))
+        plus, minus = dv + gv, -dv + gv
+        return (np.concatenate((c, c)),
+                np.concatenate((present & (plus != 0.0), present & (minus != 0.0))),
+                np.concatenate((plus, minus)),
                 np.concatenate((rhs + shift + slack, rhs - shift + slack)))
 
     def _end_reserve_rows(self):
         """``b_N + c a_end <= brake_b - d`` for every ``(c, d)`` of
         :attr:`SpeedProblem.end_reserve`, with ``a_end = f (b_N - b_N-1) / (2 ds)``, tightened
-        by ``margin`` of ``brake_b``."""
+        by ``margin`` of ``brake_b``. A row table ``(cols, vals, up)``."""
         brake_b, rows = self.p.end_reserve
         nv = self.lay.nv
         h = self.lay.f_last[-1] / (2.0 * self.ds)
-        vals = np.concatenate([(-c * h, 1.0 + c * h) for c, _ in rows])
-        row_i = np.repeat(np.arange(len(rows)), 2)
-        col_i = np.tile([nv - 2, nv - 1], len(rows))
-        R = sp.csr_matrix((vals, (row_i, col_i)), shape=(len(rows), nv))
-        return R, np.array([brake_b * (1.0 - self.opt.margin) - d for _, d in rows])
+        vals = np.array([(-c * h, 1.0 + c * h) for c, _ in rows]).reshape(-1, 2)
+        cols = np.tile([nv - 2, nv - 1], (len(rows), 1))
+        up = np.array([brake_b * (1.0 - self.opt.margin) - d for _, d in rows])
+        return cols, vals, up
 
-    def build(self, b_hat: np.ndarray):
+    def _accel_rows(self, b_hat: np.ndarray):
+        """Acceleration chords (and power tangents) at both nodes of each step: a row table
+        ``(cols, vals, lo, up)``, two slots a row (the step's nodes). A chord that is not
+        needed (one chord enough, or the same row at the step's other end) is no row."""
         p, lay, ds = self.p, self.lay, self.ds
         nv = lay.nv
         e = self.b_env[:nv]
-        free = ~lay.fixed
         h = 1.0 / (2.0 * ds)
         margin = self.opt.margin
-        lim = p.limits
         # break points: 0 < m < e, with m the current iterate kept within [2 %, 99.5 %] of the
         # envelope. Near a lateral limit the limit bends sharply just below the envelope: with
         # the cap at 98 % a closed test loop with a comfort weight stopped 3e-4 slower than the
@@ -257,23 +288,15 @@ class QPBuilder:
         nodes = np.arange(nv)
         pts = [np.zeros(nv), m, e]
         lo_pts, hi_pts = zip(*(self._node_bounds(q, nodes) for q in pts))
+        sf, st = lay.step_from, lay.step_to
+        c_from_all, c_to_all, lower, upper = [], [], [], []
 
-        rows_i, cols_i, vals_i, lower, upper = [], [], [], [], []
-        row0 = 0
-
-        def add_rows(c1, v1, c2, v2, lo, up):
-            nonlocal row0
-            cnt = c1.size
-            r = np.arange(row0, row0 + cnt)
-            rows_i.extend([r, r])
-            cols_i.extend([c1, c2])
-            vals_i.extend([v1, v2])
+        def add_rows(v1, v2, lo, up):
+            c_from_all.append(v1)
+            c_to_all.append(v2)
             lower.append(lo)
             upper.append(up)
-            row0 += cnt
 
-        # acceleration rows: each step at each of its nodes, each side, each segment
-        sf, st = lay.step_from, lay.step_to
         # A concave hi (convex lo) is replaced by its chords on [0, m] and [m, e]; where the
         # single chord on [0, e] is within chord_tolerance of it at m (straights, gentle curves)
         # that one row is enough. Rows identical at both ends of a step are kept once.
@@ -310,15 +333,15 @@ class QPBuilder:
                     else:
                         rows_seen[key] = (c_from, c_to, rhs)
                     if side == "hi":
-                        up = np.where(ok, rhs - a_tol, np.inf)
-                        add_rows(sf, c_from, st, c_to, np.full(sf.size, -np.inf), up)
+                        add_rows(c_from, c_to, np.full(sf.size, -np.inf),
+                                 np.where(ok, rhs - a_tol, np.inf))
                     else:
-                        lo = np.where(ok, rhs + a_tol, -np.inf)
-                        add_rows(sf, c_from, st, c_to, lo, np.full(sf.size, np.inf))
+                        add_rows(c_from, c_to, np.where(ok, rhs + a_tol, -np.inf),
+                                 np.full(sf.size, np.inf))
 
         # power: tangents of P/(m sqrt(b)) - res(b) at m and e (drive side only)
         if self.has_power:
-            pm = lim.power_per_mass_wpkg
+            pm = p.limits.power_per_mass_wpkg
             for end, fac in ((sf, lay.f_first), (st, lay.f_last)):
                 for q in (m, e):
                     bq = np.maximum(q[end], B_FLOOR)
@@ -329,59 +352,119 @@ class QPBuilder:
                     bound = f0 - res0 - res1 * bq                   # the limit at bq
                     rhs = bound - slope * bq - margin * np.abs(bound)
                     c_from, c_to = _accel_minus_slope(end is sf, fac * h, slope)
-                    add_rows(sf, c_from, st, c_to, np.full(sf.size, -np.inf), rhs)
+                    add_rows(c_from, c_to, np.full(sf.size, -np.inf), rhs)
 
-        A_acc = sp.coo_matrix((np.concatenate(vals_i), (np.concatenate(rows_i),
-                                                         np.concatenate(cols_i))),
-                              shape=(row0, nv)).tocsr()
-        blocks = [sp.identity(nv, format="csr"), A_acc]
-        lb = np.where(lay.fixed, lay.fixed_value, 0.0)
-        ub = np.where(lay.fixed, lay.fixed_value, e)
-        lows = [lb, np.concatenate(lower)]
-        ups = [ub, np.concatenate(upper)]
+        k = len(c_from_all)
+        lower, upper = np.concatenate(lower), np.concatenate(upper)
+        need = np.flatnonzero(np.isfinite(lower) | np.isfinite(upper))
+        cols = np.empty((need.size, 2), dtype=np.int64)
+        cols[:, 0] = np.tile(sf, k)[need]
+        cols[:, 1] = np.tile(st, k)[need]
+        vals = np.empty((need.size, 2))
+        vals[:, 0] = np.concatenate(c_from_all)[need]
+        vals[:, 1] = np.concatenate(c_to_all)[need]
+        return cols, vals, lower[need], upper[need]
 
-        # jerk rows: |D b| <= R(b), R linear (tangent, see module docstring)
+    def rows(self, b_hat: np.ndarray):
+        """Every row of the iteration's QP around ``b_hat`` as canonical row tables over the
+        distinct nodes (:mod:`.qp_rows`), each ``(cols, present, vals, lo, up)``, in the order
+        bounds, acceleration (and power), jerk, lateral jerk, end reserve."""
+        lay = self.lay
+        nv = lay.nv
+        e = self.b_env[:nv]
+        tables = [(np.arange(nv)[:, None], np.ones((nv, 1), dtype=bool), np.ones((nv, 1)),
+                   np.where(lay.fixed, lay.fixed_value, 0.0),
+                   np.where(lay.fixed, lay.fixed_value, e))]
+        c, v, lo, up = self._accel_rows(b_hat)
+        tables.append(canonical(c, v) + (lo, up))
         if lay.jerk:
-            J, up_j = self._jerk_rows(b_hat)
-            blocks.append(J)
-            lows.append(np.full(J.shape[0], -np.inf))
-            ups.append(up_j)
+            c, present, v, up = self._jerk_rows(b_hat)
+            tables.append((c, present, v, np.full(up.size, -np.inf), up))
+        extra = []
+        if self.p.limits.max_lateral_jerk_mps3 is not None:
+            extra.append(self._lateral_jerk_rows(b_hat))
+        if self.p.end_reserve is not None and not self.p.closed:
+            extra.append(self._end_reserve_rows())
+        for c, v, up in extra:
+            tables.append(canonical(c, v) + (np.full(up.size, -np.inf), up))
+        return tables
 
-        if lim.max_lateral_jerk_mps3 is not None:
-            L, up_l = self._lateral_jerk_rows(b_hat)
-            blocks.append(L)
-            lows.append(np.full(L.shape[0], -np.inf))
-            ups.append(up_l)
+    def objective(self, b_hat: np.ndarray):
+        """Second-order model of the time at ``b_hat`` (plus the comfort term), scaled so a
+        typical (median) gradient is 1, over the distinct nodes with the fixed ones decoupled.
 
-        if p.end_reserve is not None and not p.closed:
-            R, up_r = self._end_reserve_rows()
-            blocks.append(R)
-            lows.append(np.full(R.shape[0], -np.inf))
-            ups.append(up_r)
-
-        A = sp.vstack(blocks, format="csc")
-        lo_all = np.concatenate(lows)
-        up_all = np.concatenate(ups)
-
-        # objective: second-order model of the time at b_hat (+ comfort term), scaled to O(1)
-        total, grad, diag, hxy = time_model(b_hat, lay, ds)
-        H = sp.coo_matrix((np.concatenate((diag, hxy)),
-                           (np.concatenate((np.arange(nv), sf)),
-                            np.concatenate((np.arange(nv), st)))), shape=(nv, nv))
-        H = (H + H.T - sp.diags(diag)).tocsc()     # symmetric
-        if self.opt.comfort_weight > 0:
-            H = H + 2.0 * self.opt.comfort_weight * (self.D.T @ self.D)
-            grad = grad + 2.0 * self.opt.comfort_weight * (self.D.T @ (self.D @ b_hat))
-        # pinned variables: decouple them (their value is fixed by the bounds)
-        pin = sp.diags(lay.fixed.astype(float))
-        keep = sp.diags((~lay.fixed).astype(float))
-        H = (keep @ H @ keep + pin).tocsc()
-        q = grad - H @ b_hat
-        q = np.where(lay.fixed, -lay.fixed_value, q)
-        # scale so that a typical (median) gradient is 1: the gap tolerance then means the same
-        # for fast and slow stretches alike (the largest gradients, near rest, are 1e4 larger)
+        Returns ``(prow, pcol, pval, q, scale)``: the Hessian's nonzero entries between free
+        nodes in row-major order (both triangles), the linear term (``-value`` at fixed
+        nodes) and the scale. Sums run in the order scipy.sparse runs them."""
+        lay = self.lay
+        nv = lay.nv
+        free = ~lay.fixed
+        total, grad, diag, hxy = time_model(b_hat, lay, self.ds)
+        rows = [np.arange(nv), lay.step_from, lay.step_to]
+        cols = [np.arange(nv), lay.step_to, lay.step_from]
+        vals = [diag, hxy, hxy]
+        w = self.opt.comfort_weight
+        if w > 0:
+            # 2 w D'D, each entry summed over D's rows in order; D b row by row
+            dc, dp, dv = lay.D_table
+            ii, jj = np.meshgrid(np.arange(dc.shape[1]), np.arange(dc.shape[1]), indexing="ij")
+            both = dp[:, ii] & dp[:, jj]
+            dtd_r, dtd_c = dc[:, ii][both], dc[:, jj][both]
+            dtd_v = (dv[:, ii] * dv[:, jj])[both]
+            key, inv = np.unique(dtd_r * nv + dtd_c, return_inverse=True)
+            rows.append(key // nv)
+            cols.append(key % nv)
+            vals.append(2.0 * w * np.bincount(inv, dtd_v))
+            Db = np.bincount(np.repeat(np.arange(nv), dp.sum(axis=1)),
+                             dv[dp] * b_hat[dc[dp]], minlength=nv)
+            DtDb = np.bincount(dc[dp], dv[dp] * np.repeat(Db, dp.sum(axis=1)), minlength=nv)
+            grad = grad + 2.0 * w * DtDb
+        r, c, v = np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
+        keep = free[r] & free[c] & (v != 0.0)
+        key, inv = np.unique(r[keep] * nv + c[keep], return_inverse=True)
+        pval = np.bincount(inv, v[keep]) if key.size else np.zeros(0)
+        prow, pcol = key // nv, key % nv
+        # the Hessian times b_hat, on free rows, each row's terms in column order from zero
+        hb = np.bincount(prow, pval * b_hat[pcol], minlength=nv)
+        q = np.where(lay.fixed, -lay.fixed_value, grad - hb)
         scale = 1.0 / max(float(np.median(np.abs(grad[free]))) if free.any() else 1.0, 1e-12)
-        return H * scale, q * scale, A, lo_all, up_all, scale
+        return prow, pcol, pval * scale, q * scale, scale
+
+    def reduced(self, b_hat: np.ndarray):
+        """The iteration's QP over the free nodes alone, as a :class:`.qp_rows.RowQP` (fixed
+        nodes eliminated, rows left with no free node or no finite side dropped); also the
+        objective's scale."""
+        lay = self.lay
+        indptr, indices, data, lo, up = reduce_tables(self.rows(b_hat), lay.fixed,
+                                                      lay.fixed_value)
+        prow, pcol, pval, q, scale = self.objective(b_hat)
+        number = np.cumsum(~lay.fixed) - 1
+        qp = RowQP(int((~lay.fixed).sum()), indptr, indices, data, lo, up, number[prow],
+                   number[pcol], pval, q[~lay.fixed])
+        return qp, scale
+
+    def build(self, b_hat: np.ndarray):
+        """The whole QP over the distinct nodes as scipy.sparse matrices ``(P, q, A, lo, up,
+        scale)``, fixed nodes pinned by their bounds (for checks and benchmarks; the solver
+        itself takes :meth:`reduced`)."""
+        import scipy.sparse as sp
+
+        nv = self.lay.nv
+        blocks, lows, ups = [], [], []
+        for cols, present, vals, lo, up in self.rows(b_hat):
+            indptr = np.concatenate(([0], np.cumsum(present.sum(axis=1))))
+            blocks.append(sp.csr_matrix((vals[present], cols[present], indptr),
+                                        shape=(lo.size, nv)))
+            lows.append(lo)
+            ups.append(up)
+        A = sp.vstack(blocks, format="csc")
+        lo, up = np.concatenate(lows), np.concatenate(ups)
+        prow, pcol, pval, q, scale = self.objective(b_hat)
+        fixed = np.flatnonzero(self.lay.fixed)
+        P = sp.csc_matrix((np.concatenate((pval, np.full(fixed.size, scale))),
+                           (np.concatenate((prow, fixed)), np.concatenate((pcol, fixed)))),
+                          shape=(nv, nv))
+        return P, q, A, lo, up, scale
 
 
 def _accel_minus_slope(at_first_node: bool, fh, slope):

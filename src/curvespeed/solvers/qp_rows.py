@@ -1,0 +1,225 @@
+"""The sequential-convex QP as row tables: assembled, reduced and cut into batches without
+scipy.sparse.
+
+Every row of the convex solver's QP touches at most three stations, so a block of rows is held
+as a table: ``cols`` (rows x 3, station indices, -1 where a slot is unused), ``vals`` (the
+coefficients) and ``present`` (which slots hold an entry). :func:`canonical` sorts each row's
+slots by station and sums repeated stations; :func:`reduce_rows` eliminates the fixed stations
+(their terms move to the row's sides), drops the rows left with no free station or with no
+finite side, and returns the free stations' rows in compressed-row arrays (``indptr``,
+``indices``, ``data``), which both the banded interior-point kernel and scipy take as they are.
+
+The arithmetic is the scipy.sparse assembly's, term by term and in the same order (sums of a
+row's terms in increasing station order starting from zero), so the reduced QP is the same to
+the last bit; ``tests/qp_reference.py`` keeps that assembly and the tests compare the two.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+#: Slots per row: a row touches at most three neighbouring stations.
+WIDTH = 3
+
+
+def canonical(cols, *vals):
+    """Sort each row's slots by station (unused slots last) and sum slots naming the same
+    station into the first of them (in slot order, as scipy's ``sum_duplicates`` does).
+
+    Returns ``(cols, present, *vals)``: ``present`` marks the slots that hold an entry."""
+    cols = np.asarray(cols, dtype=np.int64)
+    vals = [np.asarray(v, dtype=float) for v in vals]
+    w = cols.shape[1]
+    present = cols >= 0
+    if w == 1:
+        return (cols, present, *vals)
+    key = np.where(present, cols, np.iinfo(np.int64).max)
+    step = np.diff(key, axis=1)
+    if np.all(step > 0) or np.all((step > 0) | ~present[:, 1:]):
+        return (cols, present, *vals)           # sorted already, no station twice
+    bad = np.flatnonzero(np.any(step <= 0, axis=1))      # only these rows need work
+    order = np.argsort(key[bad], axis=1, kind="stable")
+    cols = cols.copy()
+    cols[bad] = np.take_along_axis(cols[bad], order, axis=1)
+    vals = [v.copy() for v in vals]
+    for v in vals:
+        v[bad] = np.take_along_axis(v[bad], order, axis=1)
+    present = cols >= 0
+    # the slot each one is summed into: itself, or the first slot of its run of equal stations
+    target = np.tile(np.arange(w), (bad.size, 1))
+    for j in range(1, w):
+        dup = present[bad, j] & (cols[bad, j] == cols[bad, j - 1])
+        target[:, j] = np.where(dup, target[:, j - 1], j)
+        sub = np.flatnonzero(dup)
+        rows = bad[sub]
+        for v in vals:
+            v[rows, target[sub, j]] += v[rows, j]
+            v[rows, j] = 0.0
+        present[rows, j] = False
+    return (cols, present, *vals)
+
+
+def pad(cols, vals, width: int = WIDTH):
+    """Widen a table of ``cols`` / ``vals`` with unused slots up to ``width``."""
+    m, w = cols.shape
+    if w == width:
+        return cols, vals
+    return (np.hstack((cols, np.full((m, width - w), -1, dtype=np.int64))),
+            np.hstack((vals, np.zeros((m, width - w)))))
+
+
+class RowQP:
+    """A QP ``min x'Px/2 + q'x`` s.t. ``lo <= Ax <= up`` on ``n`` variables, ``A`` in compressed
+    rows with sorted columns, ``P`` as its nonzero entries in row-major order (both
+    triangles)."""
+
+    __slots__ = ("n", "indptr", "indices", "data", "lo", "up", "prow", "pcol", "pval", "q")
+
+    def __init__(self, n, indptr, indices, data, lo, up, prow, pcol, pval, q):
+        self.n = int(n)
+        self.indptr, self.indices, self.data = indptr, indices, data
+        self.lo, self.up = lo, up
+        self.prow, self.pcol, self.pval = prow, pcol, pval
+        self.q = q
+
+    @property
+    def m(self) -> int:
+        return self.indptr.size - 1
+
+    def row_of_entry(self) -> np.ndarray:
+        """The row of every stored entry of ``A``."""
+        return np.repeat(np.arange(self.m), np.diff(self.indptr))
+
+    def A_times(self, x):
+        """``A x``, each row's terms summed in column order from zero (as scipy does)."""
+        return np.bincount(self.row_of_entry(), self.data * x[self.indices], minlength=self.m)
+
+    def At_times(self, y):
+        """``A' y``, each column's terms summed in row order from zero."""
+        return np.bincount(self.indices, self.data * np.repeat(y, np.diff(self.indptr)),
+                           minlength=self.n)
+
+    def P_times(self, x):
+        """``P x``, each row's terms summed in column order from zero."""
+        return np.bincount(self.prow, self.pval * x[self.pcol], minlength=self.n)
+
+    def to_sparse(self):
+        """``(P, q, A, lo, up)`` as scipy.sparse matrices (the Clarabel backend's input)."""
+        import scipy.sparse as sp
+
+        P = sp.csr_matrix((self.pval, (self.prow, self.pcol)), shape=(self.n, self.n))
+        A = sp.csr_matrix((self.data, self.indices, self.indptr), shape=(self.m, self.n))
+        return P, self.q, A, self.lo, self.up
+
+    def take(self, cols, rows) -> RowQP:
+        """The QP of variables ``cols`` (increasing) and rows ``rows`` (in the given order); the
+        rows must involve no other variable. ``P``'s entries linking ``cols`` to other variables
+        are left out (between independent blocks there are none)."""
+        local = np.full(self.n, -1, dtype=np.int64)
+        local[cols] = np.arange(cols.size)
+        counts = np.diff(self.indptr)[rows]
+        indptr = np.zeros(rows.size + 1, dtype=np.int64)
+        np.cumsum(counts, out=indptr[1:])
+        pos = np.repeat(self.indptr[rows] - indptr[:-1], counts) + np.arange(indptr[-1])
+        keep = (local[self.prow] >= 0) & (local[self.pcol] >= 0)
+        return RowQP(cols.size, indptr, local[self.indices[pos]], self.data[pos],
+                     self.lo[rows], self.up[rows], local[self.prow[keep]],
+                     local[self.pcol[keep]], self.pval[keep], self.q[cols])
+
+
+def reduce_rows(cols, present, vals, lo, up, fixed, values):
+    """Eliminate the fixed stations from canonical row tables (module docstring).
+
+    Returns ``(indptr, indices, data, lo, up, kept)``: the compressed rows over the free
+    stations (numbered in station order), their sides with the fixed stations' terms moved
+    over, and which input rows were kept."""
+    safe = np.where(present, cols, 0)
+    on_fixed = present & fixed[safe]
+    on_free = present & ~on_fixed
+    shift = np.zeros(cols.shape[0])
+    for j in range(cols.shape[1]):          # in station order, from zero, as scipy sums
+        shift = shift + np.where(on_fixed[:, j], vals[:, j] * values[safe[:, j]], 0.0)
+    kept = on_free.any(axis=1) & (np.isfinite(lo) | np.isfinite(up))
+    on_free = on_free[kept]
+    counts = on_free.sum(axis=1)
+    indptr = np.zeros(counts.size + 1, dtype=np.int64)
+    np.cumsum(counts, out=indptr[1:])
+    free_number = np.cumsum(~fixed) - 1
+    indices = free_number[cols[kept][on_free]]
+    data = vals[kept][on_free]
+    return (indptr, indices.astype(np.int64), data, lo[kept] - shift[kept],
+            up[kept] - shift[kept], kept)
+
+
+def reduce_tables(tables, fixed, values):
+    """:func:`reduce_rows` on each canonical table ``(cols, present, vals, lo, up)`` (any
+    number of slots) in turn, joined into one set of compressed rows in the tables' order."""
+    parts = [reduce_rows(*t, fixed, values)[:5] for t in tables]
+    counts = np.concatenate([np.diff(p[0]) for p in parts])
+    indptr = np.zeros(counts.size + 1, dtype=np.int64)
+    np.cumsum(counts, out=indptr[1:])
+    return (indptr, *(np.concatenate([p[i] for p in parts]) for i in range(1, 5)))
+
+
+def interval_blocks(qp: RowQP):
+    """Independent blocks of a QP whose rows and ``P`` link only nearby variables: a block
+    ends where no row's nonzero terms and no entry of ``P`` reach across. Returns the first
+    variable of every block and one past the last (so ``starts[k]:starts[k + 1]``).
+
+    It equals the connected components of the pattern of ``|A|'|A| + |P|`` when every row's
+    nonzero terms lie on consecutive variables or skip only variables that ``P`` links to
+    their neighbours -- so for the convex solver's open routes (a row touches at most three
+    neighbouring stations; the time model links every two neighbouring free stations).
+    """
+    n = qp.n
+    cover = np.zeros(n + 1, dtype=np.int64)
+    nz = qp.data != 0.0
+    rows = qp.row_of_entry()[nz]
+    idx = qp.indices[nz]
+    if idx.size:
+        first = np.full(qp.m, n, dtype=np.int64)
+        last = np.full(qp.m, -1, dtype=np.int64)
+        np.minimum.at(first, rows, idx)
+        np.maximum.at(last, rows, idx)
+        span = last > first
+        np.add.at(cover, first[span], 1)
+        np.add.at(cover, last[span], -1)
+    pnz = (qp.pval != 0.0) & (qp.prow < qp.pcol)
+    np.add.at(cover, qp.prow[pnz], 1)
+    np.add.at(cover, qp.pcol[pnz], -1)
+    linked = np.cumsum(cover)[: max(n - 1, 0)] > 0       # variable c linked to c + 1
+    cuts = np.flatnonzero(~linked) + 1
+    return np.concatenate(([0], cuts, [n])).astype(np.int64)
+
+
+def blocks_of(qp: RowQP, closed: bool):
+    """The QP's independent blocks of variables (connected through its rows or ``P``), each
+    an array of variable indices, in order of their first variable. An open route's blocks are
+    intervals (:func:`interval_blocks`); a closed loop's rows wrap around, so its
+    blocks are the connected components of the QP's pattern."""
+    if not closed:
+        starts = interval_blocks(qp)
+        return [np.arange(a, b) for a, b in zip(starts[:-1], starts[1:])]
+    from scipy.sparse.csgraph import connected_components
+
+    P, _, A, _, _ = qp.to_sparse()
+    pattern = (abs(A).T @ abs(A)) + abs(P)
+    n_blocks, label = connected_components(pattern, directed=False)
+    return [np.flatnonzero(label == k) for k in range(n_blocks)]
+
+
+def reduce_sparse(P, q, A, lo, up, fixed, values):
+    """Eliminate fixed variables from the scipy.sparse form of the QP
+    (:meth:`.convex_qp.QPBuilder.build`); drop rows left with no free variable. The solver
+    itself eliminates them while it assembles (:meth:`.convex_qp.QPBuilder.reduced`)."""
+    free = ~fixed
+    P = P.tocsc()
+    A = A.tocsc()
+    xf = np.where(fixed, values, 0.0)
+    Pff = P[free][:, free]
+    qf = q[free] + P[free][:, fixed] @ values[fixed]
+    Af = A[:, free].tocsr()
+    shift = A[:, fixed] @ values[fixed]
+    keep = np.diff(Af.indptr) > 0
+    return {"P": Pff, "q": qf, "A": Af[keep], "lo": lo[keep] - shift[keep],
+            "up": up[keep] - shift[keep], "free": free, "x_fixed": xf}
