@@ -149,9 +149,7 @@ def run_replan(variant: str, backend: str, calls: int, dt: float = 0.1) -> dict:
         its.append(w.iterations)
         inner.append(w.qp_iterations)
         relaxed += w.relaxed > 0.0
-        station = float(np.interp(dt, w.time_s, w.station_m))
-        speed = float(np.interp(dt, w.time_s, w.speed_mps))
-        accel = float(np.interp(dt, w.time_s, w.accel_mps2))
+        station, speed, accel = w.state_at(dt)
     return {"variant": variant, "backend": backend, "calls": calls,
             "stations": int(w.station_m.size),
             "median_s": statistics.median(times), "p99_s": float(np.percentile(times, 99)),

@@ -346,3 +346,42 @@ def test_one_qp_per_call_converges_over_calls_without_warnings(recwarn):
     assert gaps[0] > 0.02               # the first call is visibly off (else nothing is shown)
     assert gaps[-1] <= 0.01 * gaps[0] + 1e-6            # and the calls close the gap
     assert not [m for m in recwarn if "iteration cap" in str(m.message)]
+
+
+def test_state_at_drives_each_step_as_the_window_is_driven():
+    """``WindowProfile.state_at`` against uniform-acceleration kinematics (constant acceleration
+    per step, ``v^2 = v0^2 + 2 a d``, ``d = v0 t + a t^2 / 2``) and the step leaving rest's jerk
+    ramp (curvespeed.rest_step): at every node time it gives the node's station and speed; in
+    between, speed is the integral of the acceleration it gives and station that of the speed
+    (checked by finite differences at 1 ms, whose error is a t^2 / 24 ~ 1e-7 m here)."""
+    geo, limits, constraints = _shuttle()
+    w = Replanner(geo, limits, constraints).replan(0.0, 0.0, 0.0)       # leaving a stop
+    assert np.isnan(w.problem.rest_u[1:]).any() and not np.isnan(w.problem.rest_u[0])
+    for j in range(0, w.time_s.size, 7):
+        s, v, _ = w.state_at(float(w.time_s[j]))
+        assert s == pytest.approx(w.station_m[j], abs=1e-9)
+        assert v == pytest.approx(w.speed_mps[j], abs=1e-9)
+    h = 1e-3
+    for t in np.linspace(0.05, float(w.time_s[-1]) - 0.05, 97):
+        s0, v0, a0 = w.state_at(t - h)
+        s1, v1, a1 = w.state_at(t)
+        s2, v2, a2 = w.state_at(t + h)
+        if a0 == a1 == a2:                      # the same step (or the same ramp value)
+            assert (v2 - v0) / (2 * h) == pytest.approx(a1, abs=1e-6)
+        assert (s2 - s0) / (2 * h) == pytest.approx(v1, abs=2e-3)
+
+
+def test_a_vehicle_following_each_window_exactly_never_needs_the_limits_raised():
+    """Followed exactly (the next state from ``state_at``), a window's motion is continued by
+    the next window within every limit: over 300 calls 0.1 s apart along the mountain road,
+    through arcs ridden at the lateral limit, no window is relaxed. (Interpolating the node
+    arrays linearly in time instead started windows up to 1e-4 m/s above the lateral limit and
+    relaxed 58 of these 300.)"""
+    geo, limits, constraints = _mountain()
+    replanner = Replanner(geo, limits, constraints, options=ConvexOptions(threads=1))
+    state = (600.0, 20.0, 0.0)
+    for _ in range(300):
+        w = replanner.replan(*state)
+        assert w.relaxed == 0.0, state
+        state = w.state_at(0.1)
+    assert state[0] > 1200.0

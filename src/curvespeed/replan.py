@@ -67,6 +67,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import rest_step
 from .errors import InfeasibleError, ReplanError, SolverError
 from .geometry import Geometry
 from .limits import Limits, RouteConstraints, validate_limits
@@ -131,6 +132,55 @@ class WindowProfile:
     warm_started: bool
     relaxed: float
     problem: SpeedProblem
+
+    def state_at(self, time_s: float) -> tuple[float, float, float]:
+        """``(station_m, speed_mps, accel_mps2)`` of a vehicle that drives this window exactly,
+        ``time_s`` after the window's time 0 (where the vehicle was), as the window is driven:
+        constant acceleration along each step, a jerk ramp on a step next to rest
+        (:mod:`curvespeed.rest_step`); clamped to the window's ends.
+
+        A simulator that follows a window perfectly passes this state to the next
+        :meth:`Replanner.replan`: it is the plan's own motion, so the next window continues it
+        within the limits. Interpolating the node arrays linearly in time instead puts the
+        vehicle a few millimetres off its own speed (station is quadratic in time): enough to
+        start a window above a lateral limit the plan rides exactly.
+        """
+        t = self.time_s
+        j = int(np.clip(np.searchsorted(t, time_s, side="right") - 1, 0, t.size - 2))
+        tau = min(max(float(time_s) - t[j], 0.0), t[j + 1] - t[j])
+        d, v, a = _step_state(self.problem, self.speed_mps, self.distance_m, t, j, tau)
+        return float(self.station_m[j] + d), v, a
+
+
+def _step_state(problem, speed, distance, time, j: int, tau: float):
+    """Distance from node ``j``, speed and acceleration ``tau`` seconds into step ``j``."""
+    v0, v1 = float(speed[j]), float(speed[j + 1])
+    ds = float(distance[j + 1] - distance[j])
+    u = float(problem.rest_u[j]) if j < problem.rest_u.size else math.nan
+    if not math.isnan(u) and v0 == 0.0:                         # leaving rest
+        d, v, a = rest_step.leaving_state_at_time(u, v1, ds, tau)
+        return float(d), float(v), float(a)
+    if not math.isnan(u) and v1 == 0.0:                         # arriving: the same, backwards
+        d, v, a = rest_step.leaving_state_at_time(u, v0, ds, (time[j + 1] - time[j]) - tau)
+        return ds - float(d), float(v), -float(a)
+    a = (v1 * v1 - v0 * v0) / (2.0 * ds)
+    return v0 * tau + 0.5 * a * tau * tau, v0 + a * tau, a
+
+
+def _time_into_step(problem, speed, distance, time, j: int, d: float) -> float:
+    """Seconds into step ``j`` at which the distance ``d`` from node ``j`` is reached."""
+    v0, v1 = float(speed[j]), float(speed[j + 1])
+    ds = float(distance[j + 1] - distance[j])
+    d = min(max(d, 0.0), ds)
+    u = float(problem.rest_u[j]) if j < problem.rest_u.size else math.nan
+    if not math.isnan(u) and v0 == 0.0:
+        return float(rest_step.leaving_time_at_distance(u, v1, ds, d))
+    if not math.isnan(u) and v1 == 0.0:
+        step = time[j + 1] - time[j]
+        return float(step - rest_step.leaving_time_at_distance(u, v0, ds, ds - d))
+    a = (v1 * v1 - v0 * v0) / (2.0 * ds)
+    root = math.sqrt(max(v0 * v0 + 2.0 * a * d, 0.0))
+    return 2.0 * d / (v0 + root) if v0 + root > 0.0 else 0.0
 
 
 class Replanner:
@@ -377,7 +427,9 @@ class Replanner:
             ahead = (ahead + 0.5 * self.geometry.length_m) % self.geometry.length_m \
                 - 0.5 * self.geometry.length_m
         v = d["speed_mps"]
-        t_vehicle = float(np.interp(max(ahead, 0.0), distance, d["time_s"]))
+        # time 0 where the vehicle is: the time the window's own motion reaches it
+        t_vehicle = float(d["time_s"][0] + _time_into_step(window.problem, v, distance,
+                                                            d["time_s"], 0, max(ahead, 0.0)))
         return WindowProfile(
             station_m=self._tables.station_m[window.idx], distance_m=distance,
             speed_mps=v, accel_mps2=d["accel_mps2"], time_s=d["time_s"] - t_vehicle,
