@@ -333,8 +333,8 @@ class _Scale:
         smoothed by this scale (open systems)."""
         coef = self.system.response(self.rho, values)
         spline = BSpline(self.system.knots, coef, SPLINE_DEGREE, extrapolate=False)
-        return _cross(spline(u_nodes, nu=1), spline(u_nodes, nu=2)) / np.hypot(
-            *spline(u_nodes, nu=1).T) ** 3
+        d1 = spline(u_nodes, nu=1)
+        return _cross(d1, spline(u_nodes, nu=2)) / np.hypot(d1[:, 0], d1[:, 1]) ** 3
 
     def add_replicates(self, noise: np.ndarray, u_nodes: np.ndarray) -> None:
         """Smooth noise replicates with this scale's normal equations (the fit is linear in
