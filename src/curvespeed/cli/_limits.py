@@ -69,44 +69,35 @@ def _add(func, options):
     return func
 
 
+def _placed(flag: str, dest: str, value: str, station_help: str, what: str) -> list:
+    """``--FLAG START_M:END_M:VALUE`` and its ``-xy`` and ``-latlon`` forms (ends given by
+    position, snapped to the route), all repeatable."""
+    return [
+        click.option(f"--{flag}", dest, multiple=True, metavar=f"START_M:END_M:{value}",
+                     help=station_help),
+        click.option(f"--{flag}-xy", f"{dest}_xy", multiple=True, metavar=f"X1:Y1:X2:Y2:{value}",
+                     help=f"{what} between the route's points nearest two positions in its "
+                          "metric frame, metres, in driving order (repeatable)."),
+        click.option(f"--{flag}-latlon", f"{dest}_latlon", multiple=True,
+                     metavar=f"LAT1:LON1:LAT2:LON2:{value}",
+                     help=f"{what} between the route's points nearest two WGS84 positions, "
+                          "decimal degrees, in driving order (repeatable)."),
+    ]
+
+
 def zone_options(func):
-    """Speed zones and superelevation: what ``plan`` and ``check`` both use."""
-    return _add(func, [
-        click.option("--zone", "zones", multiple=True, metavar="START_M:END_M:MAX_SPEED_MPS",
-                     help="Speed cap over a station range (repeatable)."),
-        click.option("--zone-xy", "zones_xy", multiple=True, metavar="X1:Y1:X2:Y2:MAX_SPEED_MPS",
-                     help="Speed cap between the route's points nearest two positions in its "
-                          "metric frame, metres, in driving order (repeatable)."),
-        click.option("--zone-latlon", "zones_latlon", multiple=True,
-                     metavar="LAT1:LON1:LAT2:LON2:MAX_SPEED_MPS",
-                     help="Speed cap between the route's points nearest two WGS84 positions, "
-                          "decimal degrees, in driving order (repeatable)."),
-        click.option("--superelevation", "superelevations", multiple=True,
-                     metavar="START_M:END_M:RATE",
-                     help="Cross-slope toward the curve's inside over a station range, as a "
-                          "fraction (0.06 = 6 %) (repeatable)."),
-        click.option("--superelevation-xy", "superelevations_xy", multiple=True,
-                     metavar="X1:Y1:X2:Y2:RATE",
-                     help="Cross-slope between the route's points nearest two positions in its "
-                          "metric frame, metres, in driving order (repeatable)."),
-        click.option("--superelevation-latlon", "superelevations_latlon", multiple=True,
-                     metavar="LAT1:LON1:LAT2:LON2:RATE",
-                     help="Cross-slope between the route's points nearest two WGS84 positions, "
-                          "decimal degrees, in driving order (repeatable)."),
-        click.option("--friction-section", "friction_sections", multiple=True,
-                     metavar="START_M:END_M:MU[:MU_LAT]",
-                     help="Tyre-road friction over a station range (a wet or gravel stretch); "
-                          "without MU_LAT the vehicle's ellipse shape is kept, scaled. Where "
-                          "sections overlap the lowest wins (repeatable)."),
-        click.option("--friction-section-xy", "friction_sections_xy", multiple=True,
-                     metavar="X1:Y1:X2:Y2:MU[:MU_LAT]",
-                     help="Tyre-road friction between the route's points nearest two positions "
-                          "in its metric frame, metres, in driving order (repeatable)."),
-        click.option("--friction-section-latlon", "friction_sections_latlon", multiple=True,
-                     metavar="LAT1:LON1:LAT2:LON2:MU[:MU_LAT]",
-                     help="Tyre-road friction between the route's points nearest two WGS84 "
-                          "positions, decimal degrees, in driving order (repeatable)."),
-    ])
+    """Speed zones, superelevation and friction sections: what ``plan`` and ``check`` both
+    use."""
+    return _add(func, _placed("zone", "zones", "MAX_SPEED_MPS",
+                              "Speed cap over a station range (repeatable).", "Speed cap")
+                + _placed("superelevation", "superelevations", "RATE",
+                          "Cross-slope toward the curve's inside over a station range, as a "
+                          "fraction (0.06 = 6 %) (repeatable).", "Cross-slope")
+                + _placed("friction-section", "friction_sections", "MU[:MU_LAT]",
+                          "Tyre-road friction over a station range (a wet or gravel "
+                          "stretch); without MU_LAT the vehicle's ellipse shape is kept, "
+                          "scaled. Where sections overlap the lowest wins (repeatable).",
+                          "Tyre-road friction"))
 
 
 def stop_and_end_options(func):
