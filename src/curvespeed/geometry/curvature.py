@@ -276,11 +276,13 @@ def _noise_chunk(seed: int, chunk: int, weight, time, drift_rate) -> np.ndarray:
     variance grows by ``drift_rate`` per unit time. Each chunk has its own seed, so the result
     does not depend on how many are made at once."""
     rng = np.random.default_rng([seed, chunk])
-    noise = rng.standard_normal((weight.size, 2 * _CHUNK)) / weight[:, None]
+    noise = rng.standard_normal((weight.size, 2 * _CHUNK))
+    noise /= weight[:, None]            # in place: a log of 10^6 fixes makes 128 MB a chunk
     if drift_rate and time is not None:
         step = np.sqrt(drift_rate * np.maximum(np.diff(time), 0.0))
-        walk = rng.standard_normal((weight.size - 1, 2 * _CHUNK)) * step[:, None]
-        noise[1:] += np.cumsum(walk, axis=0)
+        walk = rng.standard_normal((weight.size - 1, 2 * _CHUNK))
+        walk *= step[:, None]
+        noise[1:] += np.cumsum(walk, axis=0, out=walk)
     return noise
 
 
