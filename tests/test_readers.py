@@ -601,3 +601,22 @@ def test_fixed_point_columns_are_written_as_python_formats_each_value():
             expected.append(cell[1:] if cell.startswith("-") and set(cell[1:]) <= {"0", "."}
                             else cell)
         assert format_column(values, spec) == expected, spec
+
+
+def test_json_nesting_is_judged_from_the_brackets_before_parsing():
+    # 64 levels are read; 65 are refused before json.loads recurses (deeper documents made
+    # the parser's own RecursionError and, now and then, an unraisable-exception traceback);
+    # brackets inside strings, escaped quotes included, do not count.
+    from curvespeed.io._common import MAX_NESTING, _nests_too_deep, load_json
+    from curvespeed.errors import RouteFormatError
+
+    deep = "[" * MAX_NESTING + "1" + "]" * MAX_NESTING
+    assert not _nests_too_deep(deep)
+    assert load_json(deep, "t.json") is not None
+    deeper = "[" * (MAX_NESTING + 1) + "1" + "]" * (MAX_NESTING + 1)
+    assert _nests_too_deep(deeper)
+    with pytest.raises(RouteFormatError, match="nest more than 64 levels"):
+        load_json("{\"a\": " * 100000 + "1" + "}" * 100000, "t.json")
+    in_strings = '{"name": "' + "[" * 200 + '\\" {{{", "b": [1, 2]}'
+    assert not _nests_too_deep(in_strings)
+    assert load_json(in_strings, "t.json")["b"] == [1.0, 2.0]

@@ -396,6 +396,8 @@ def load_json(text: str, source: str, error=RouteFormatError, advice: str = "fix
     """
     import json
 
+    if _nests_too_deep(text):       # before the parser recurses into it
+        raise error(_too_deep(source, "JSON"))
     try:
         doc = json.loads(text, parse_int=_json_number, parse_float=_json_number)
     except json.JSONDecodeError as exc:
@@ -405,6 +407,25 @@ def load_json(text: str, source: str, error=RouteFormatError, advice: str = "fix
         raise error(_too_deep(source, "JSON")) from None
     check_nesting(doc, source, error, "JSON")
     return doc
+
+
+#: JSON strings (with their escapes) and everything that is not a bracket.
+_JSON_STRINGS = re.compile(r'"(?:[^"\\]|\\.)*"')
+_NOT_BRACKETS = re.compile(r"[^\[\]{}]+")
+
+
+def _nests_too_deep(text: str) -> bool:
+    """Whether arrays and objects in JSON ``text`` open more than :data:`MAX_NESTING` deep,
+    found from the brackets outside strings, without parsing. The parser itself recurses once
+    per level and, thousands of levels down, runs out of stack: its RecursionError was caught,
+    but objects torn down on the way could report errors of their own through Python's
+    unraisable-exception hook, a traceback on the user's screen."""
+    if text.count("[") + text.count("{") <= MAX_NESTING:
+        return False
+    brackets = _NOT_BRACKETS.sub("", _JSON_STRINGS.sub("", text))
+    codes = np.frombuffer(brackets.encode("ascii"), dtype=np.uint8)
+    steps = np.where((codes == ord("[")) | (codes == ord("{")), 1, -1)
+    return bool(steps.size) and int(np.max(np.cumsum(steps))) > MAX_NESTING
 
 
 def check_nesting(doc, source: str, error, what: str) -> None:
