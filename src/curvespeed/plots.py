@@ -47,8 +47,6 @@ from .plots_common import (_BAND_COLOUR, _LIMIT_COLOUR, _NO_SIDECAR, _STOP_COLOU
                            figure_format)
 from .plots_gg import GGArtists, gg_bytes, gg_figure, plot_gg  # noqa: F401
 
-#: Figure formats :func:`save_overview` writes, by file extension.
-
 
 # -- artist holders ----------------------------------------------------------------------------
 

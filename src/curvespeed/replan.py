@@ -152,15 +152,25 @@ class WindowProfile:
         return float(self.station_m[j] + d), v, a
 
 
-def _step_state(problem, speed, distance, time, j: int, tau: float):
-    """Distance from node ``j``, speed and acceleration ``tau`` seconds into step ``j``."""
+def _step(problem, speed, distance, j: int):
+    """Step ``j`` as it is driven: ``(kind, u, v0, v1, ds)``, kind "leaving" or "arriving"
+    for a jerk-ramped step next to rest (shape ``u``, :mod:`curvespeed.rest_step`), else
+    "constant" (constant acceleration)."""
     v0, v1 = float(speed[j]), float(speed[j + 1])
     ds = float(distance[j + 1] - distance[j])
     u = float(problem.rest_u[j]) if j < problem.rest_u.size else math.nan
-    if not math.isnan(u) and v0 == 0.0:                         # leaving rest
+    kind = ("constant" if math.isnan(u) or (v0 != 0.0 and v1 != 0.0)
+            else "leaving" if v0 == 0.0 else "arriving")
+    return kind, u, v0, v1, ds
+
+
+def _step_state(problem, speed, distance, time, j: int, tau: float):
+    """Distance from node ``j``, speed and acceleration ``tau`` seconds into step ``j``."""
+    kind, u, v0, v1, ds = _step(problem, speed, distance, j)
+    if kind == "leaving":
         d, v, a = rest_step.leaving_state_at_time(u, v1, ds, tau)
         return float(d), float(v), float(a)
-    if not math.isnan(u) and v1 == 0.0:                         # arriving: the same, backwards
+    if kind == "arriving":                                      # leaving, driven backwards
         d, v, a = rest_step.leaving_state_at_time(u, v0, ds, (time[j + 1] - time[j]) - tau)
         return ds - float(d), float(v), -float(a)
     a = (v1 * v1 - v0 * v0) / (2.0 * ds)
@@ -169,15 +179,13 @@ def _step_state(problem, speed, distance, time, j: int, tau: float):
 
 def _time_into_step(problem, speed, distance, time, j: int, d: float) -> float:
     """Seconds into step ``j`` at which the distance ``d`` from node ``j`` is reached."""
-    v0, v1 = float(speed[j]), float(speed[j + 1])
-    ds = float(distance[j + 1] - distance[j])
+    kind, u, v0, v1, ds = _step(problem, speed, distance, j)
     d = min(max(d, 0.0), ds)
-    u = float(problem.rest_u[j]) if j < problem.rest_u.size else math.nan
-    if not math.isnan(u) and v0 == 0.0:
+    if kind == "leaving":
         return float(rest_step.leaving_time_at_distance(u, v1, ds, d))
-    if not math.isnan(u) and v1 == 0.0:
-        step = time[j + 1] - time[j]
-        return float(step - rest_step.leaving_time_at_distance(u, v0, ds, ds - d))
+    if kind == "arriving":
+        return float(time[j + 1] - time[j]
+                     - rest_step.leaving_time_at_distance(u, v0, ds, ds - d))
     a = (v1 * v1 - v0 * v0) / (2.0 * ds)
     root = math.sqrt(max(v0 * v0 + 2.0 * a * d, 0.0))
     return 2.0 * d / (v0 + root) if v0 + root > 0.0 else 0.0
