@@ -78,3 +78,20 @@ def test_steps_stay_sharp_on_precise_points(road):
         assert np.all(geo.curvature_bound_1pm[far] <= low + 0.1 * (high - low)), at
         near_arc = (-side * (s - at) >= 0.0) & (-side * (s - at) <= 10.0)
         assert np.all(geo.curvature_bound_1pm[near_arc] <= 1.05 * high), at
+
+
+@pytest.mark.parametrize("a, b", [(0, 7), (150, 400), (1000, 6000)])
+def test_replicate_line_sd_matches_numpy_least_squares(a, b):
+    """The standard deviation of each element's line over the noise replicates, solved from
+    the centred normal equations, against numpy.linalg.lstsq (an SVD solver) on the same
+    windows. Round-off only: the windows lie up to 6000 stations from 0, so 1e-10 relative."""
+    from curvespeed.geometry.alignment import _LineFits
+
+    rng = np.random.default_rng(5)
+    deltas = rng.standard_normal((6500, 32)) * 1e-4 + np.linspace(0.0, 3e-4, 6500)[:, None]
+    fits = _LineFits(np.zeros(6500), deltas)
+    at = np.array([a - 20.0, 0.5 * (a + b), b + 300.0])
+    x = np.arange(a, b, dtype=float)
+    coef = np.linalg.lstsq(np.column_stack((np.ones_like(x), x)), deltas[a:b], rcond=None)[0]
+    expected = np.sqrt(np.mean((coef[0][None, :] + at[:, None] * coef[1][None, :]) ** 2, axis=1))
+    np.testing.assert_allclose(fits.line_sd(a, b, at), expected, rtol=1e-10)

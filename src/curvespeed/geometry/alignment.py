@@ -203,6 +203,7 @@ class _LineFits:
         self.cxy = np.concatenate((zero, np.cumsum(x * y)))
         self.cyy = np.concatenate((zero, np.cumsum(y * y)))
         self.deltas = deltas
+        self._lines: dict[tuple[int, int], tuple[np.ndarray, np.ndarray, float]] = {}
 
     def _sums(self, a, b):
         return (self.c0[b] - self.c0[a], self.c1[b] - self.c1[a], self.c2[b] - self.c2[a],
@@ -255,11 +256,25 @@ class _LineFits:
 
     def line_sd(self, a: int, b: int, at: np.ndarray) -> np.ndarray:
         """Standard deviation over the replicates of the line through [a, b), at ``at``."""
-        x = np.arange(a, b, dtype=float)
-        design = np.column_stack((np.ones_like(x), x))
-        coef = np.linalg.lstsq(design, self.deltas[a:b], rcond=None)[0]      # (2, R)
-        values = coef[0][None, :] + at[:, None] * coef[1][None, :]
+        mean, slope, centre = self._replicate_lines(a, b)
+        values = mean[None, :] + (at - centre)[:, None] * slope[None, :]
         return np.sqrt(np.mean(values**2, axis=1))
+
+    def _replicate_lines(self, a: int, b: int) -> tuple[np.ndarray, np.ndarray, float]:
+        """Least-squares lines through each replicate's [a, b): the mean, the slope and the
+        centre station they pivot on (the centred normal equations, solved directly: a
+        general least-squares solver per element took most of a long log's reconstruction).
+        Kept per element, which is asked for several times."""
+        key = (a, b)
+        if key not in self._lines:
+            x = np.arange(a, b, dtype=float)
+            centre = float(x.mean())
+            x -= centre
+            d = self.deltas[a:b]
+            sxx = float(x @ x)
+            slope = (x @ d) / sxx if sxx > 0 else np.zeros(d.shape[1])
+            self._lines[key] = (d.mean(axis=0), slope, centre)
+        return self._lines[key]
 
 
 def _partition(fits: _LineFits, n: int, gap: int, sigma: float, corr: float) -> list[int]:
