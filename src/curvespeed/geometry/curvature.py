@@ -41,48 +41,30 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.interpolate import BSpline
 
 from .alignment import reconstruct
-from .pspline import (
-    SPLINE_DEGREE,
-    SplineFit,
-    derivative_basis,
-    null_space_fit,
-    null_space_spline,
-    penalised_system,
-)
+from .pspline import SplineFit, null_space_fit, null_space_spline
+from .scales import CHUNK, REPLICATES, cross, noise_chunk, scale_families
 from .smoothing_bias import layout, lowered
 from .steps import FineScale, confirm_steps, transition_zone
 
 #: Scales tried above the path fit's own, each smoothing over twice the length of the last.
 LEVELS = 8
-#: Noise replicates for the standard deviation of curvature (its relative error is about
-#: 1 / sqrt(2 * REPLICATES) = 13 %).
-REPLICATES = 32
+#: Where the chosen scale changes, it changes gradually: by one level over this many spread
+#: widths of the finest scale, always towards the finer side, so the curvature estimate stays
+#: continuous (a jump would read as lateral jerk) and no coarse scale reaches a change.
+RAMP_WIDTHS = 2.0
 #: Half-width of the confidence intervals the choice of scale compares, in standard deviations.
 #: Smaller keeps more detail, and more noise: with nine scales compared at every station, an
 #: interval of 3 (the usual range for this rule is 2 to 3) still rejected coarse scales by
 #: chance often enough to leave curvature of 1.6e-3 1/m in the middle of a straight logged by
 #: RTK at 100 Hz (simulated, tests/test_reference_recorded_drives.py); at 4 it did not, and the
-#: bound still covered every curvature step tried (see SPREAD_LENGTHS).
+#: bound still covered every curvature step tried (see :data:`.scales.SPREAD_LENGTHS`).
 GAMMA = 4.0
-#: Half-width, in smoothing lengths ``(lam h^7 / w)^(1/8)``, of the neighbourhood whose largest
-#: curvature the bound takes: how far the finest scale spreads a step of curvature, ringing
-#: included. Calibrated on steps from a straight into arcs of R 25 and 100 m and on a winding
-#: road with two such steps, points every 1 m with noise of 0, 1, 5 and 20 cm: at 3 the bound
-#: fell 3 % short of the true curvature next to a step, at 3.5 it just covered it, at 4 (used)
-#: it covers it with 0.1 % to spare (tests/test_reference_curvature.py checks coverage).
-SPREAD_LENGTHS = 4.0
-#: Where the chosen scale changes, it changes gradually: by one level over this many spread
-#: widths of the finest scale, always towards the finer side, so the curvature estimate stays
-#: continuous (a jump would read as lateral jerk) and no coarse scale reaches a change.
-RAMP_WIDTHS = 2.0
-#: Largest rho = log10(lam / lam0) solved on one knot grid; coarser scales use coarser grids
-#: (the banded solve keeps its accuracy below about 12).
-_MAX_RHO = 10.0
-#: rho change that doubles the smoothing length (length ~ h * 10**(rho / 8)).
-_DOUBLING_RHO = 8.0 * math.log10(2.0)
+#: The scale the design alignment is read from: one doubling finer than the path fit, so a
+#: break of curvature is spread over half the length (its extra noise is averaged out again by
+#: the straight lines fitted over whole elements).
+ALIGNMENT_LEVEL = -1
 
 
 @dataclass(frozen=True)
@@ -113,33 +95,37 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
     bends the path most where the vehicle is slow. They use a fixed ``seed``, so the result is
     deterministic.
     """
+    def noise(chunk: int) -> np.ndarray:
+        return noise_chunk(seed, chunk, weight, time, drift_rate)
+
     if fit.system is None:      # the points are within noise of a cubic (a circle on a loop)
-        chunks = [_noise_chunk(seed, c, weight, time, drift_rate)
-                  for c in range(REPLICATES // _CHUNK)]
-        across, along = [c[:, :_CHUNK] for c in chunks], [c[:, _CHUNK:] for c in chunks]
+        chunks = [noise(c) for c in range(REPLICATES // CHUNK)]
+        across, along = [c[:, :CHUNK] for c in chunks], [c[:, CHUNK:] for c in chunks]
         return _null_space_estimate(fit, u_points, weight, u_nodes, np.hstack(across + along))
-    rebuilt = _reconstruction(fit, u_points, values, weight, u_nodes, station, time,
-                              drift_rate, seed)
-    # the reconstructed road laid out at the points, to measure each scale's rounding of peaks
-    road = None if rebuilt is None else layout(
-        station, rebuilt[0].kappa, np.interp(u_points, u_nodes, station))
+    # Noise replicates a few at a time (a log of 10^6 fixes would need 0.5 GB for all at once),
+    # and one knot grid's normal equations at a time (each holds the basis of every point).
+    # The design alignment is read from the finest scale first (not yet on a loop: its elements
+    # would need the seam closed); the reconstructed road, laid out at the points, then
+    # measures how much each scale rounds off its peaks.
+    rebuild = not fit.periodic and station.size >= 3
+    levels = ([ALIGNMENT_LEVEL] if rebuild else []) + list(range(LEVELS + 1))
+    rebuilt = road = None
     scales = []
-    for level in range(LEVELS + 1):
-        scale = _Scale.build(fit, u_points, values, weight, u_nodes, level)
-        if scale is None:
-            break
-        # Noise replicates a few at a time (a log of 10^6 fixes would need 0.5 GB for all at
-        # once), and one scale's normal equations at a time (each holds the basis of every
-        # point); the replicates are drawn again for each scale from the same seeds.
-        for c in range(REPLICATES // _CHUNK):
-            scale.add_replicates(_noise_chunk(seed, c, weight, time, drift_rate), u_nodes)
+    for family in scale_families(fit, u_points, values, weight, u_nodes, levels, noise,
+                                 keep_level=ALIGNMENT_LEVEL):
+        for scale in family.scales:
+            if scale.deltas is not None:
+                rebuilt = _reconstruction(scale, u_points, values, weight, u_nodes, station)
+                road = None if rebuilt is None else layout(
+                    station, rebuilt[0].kappa, np.interp(u_points, u_nodes, station))
         if road is not None:
-            scale.lowered = lowered(rebuilt[0].kappa, scale.smoothed(road, u_nodes),
-                                    scale.kappa)
-        scale.system = None
-        scales.append(scale)
+            for scale, smoothed in zip(family.scales, family.smoothed(road, u_nodes)):
+                scale.lowered = lowered(rebuilt[0].kappa, smoothed, scale.kappa)
+        for scale in family.scales:
+            scale.system = None
+        scales += [scale for scale in family.scales if scale.deltas is None]
     kappa = np.array([sc.kappa for sc in scales])
-    sd = np.array([np.sqrt(sc.sum_sq / REPLICATES) for sc in scales])
+    sd = np.array([sc.sd for sc in scales])
     width = np.array([sc.width for sc in scales])
     chosen = _choose_scales(kappa, sd, width, station)
     level = _ramp(chosen, station, RAMP_WIDTHS * float(np.median(width[0])))
@@ -194,22 +180,9 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
     return CurvatureEstimate(k, s, bound, w, level)
 
 
-#: The scale the design alignment is read from: one doubling finer than the path fit, so a
-#: break of curvature is spread over half the length (its extra noise is averaged out again by
-#: the straight lines fitted over whole elements).
-ALIGNMENT_LEVEL = -1
-
-
-def _reconstruction(fit, u_points, values, weight, u_nodes, station, time, drift_rate, seed):
-    """The piecewise-linear curvature of the design alignment (:mod:`.alignment`), or None."""
-    if fit.periodic:        # not yet: a loop's elements would need the seam closed
-        return None
-    fine = _Scale.build(fit, u_points, values, weight, u_nodes, ALIGNMENT_LEVEL)
-    if fine is None or station.size < 3:
-        return None
-    fine.deltas = []
-    for c in range(REPLICATES // _CHUNK):
-        fine.add_replicates(_noise_chunk(seed, c, weight, time, drift_rate), u_nodes)
+def _reconstruction(fine, u_points, values, weight, u_nodes, station):
+    """The piecewise-linear curvature of the design alignment (:mod:`.alignment`) read from the
+    scale ``fine`` (its replicates kept), with the steps its points confirm; or None."""
     deltas = np.hstack(fine.deltas)
     spread = float(np.median(fine.width))
     rebuilt = reconstruct(station, fine.kappa, deltas, spread, GAMMA)
@@ -264,136 +237,21 @@ def _trusted(rebuilt, kappa, sd, width, station) -> np.ndarray:
     return trusted[element] | (rebuilt.follows & ~np.isin(element, np.unique(element[disagree])))
 
 
-#: Replicates generated and smoothed at a time.
-_CHUNK = 8
-#: Stations whose replicate curvatures are evaluated at a time.
-_NODE_BLOCK = 100_000
-
-
-def _noise_chunk(seed: int, chunk: int, weight, time, drift_rate) -> np.ndarray:
-    """``_CHUNK`` noise replicates (columns ``0.._CHUNK-1`` across, the rest along x/y: shape
-    (m, 2 * _CHUNK)): white with sigma ``1 / weight``, plus a random walk in ``time`` whose
-    variance grows by ``drift_rate`` per unit time. Each chunk has its own seed, so the result
-    does not depend on how many are made at once."""
-    rng = np.random.default_rng([seed, chunk])
-    noise = rng.standard_normal((weight.size, 2 * _CHUNK))
-    noise /= weight[:, None]            # in place: a log of 10^6 fixes makes 128 MB a chunk
-    if drift_rate and time is not None:
-        step = np.sqrt(drift_rate * np.maximum(np.diff(time), 0.0))
-        walk = rng.standard_normal((weight.size - 1, 2 * _CHUNK))
-        walk *= step[:, None]
-        noise[1:] += np.cumsum(walk, axis=0, out=walk)
-    return noise
-
-
-class _Scale:
-    """One smoothing scale: its curvature at the nodes, spread width, and the running sum of
-    squared curvature changes over the noise replicates."""
-
-    def __init__(self, system, rho, n_int, periodic, kappa, d1, d2, width):
-        self.system, self.rho, self.n_int, self.periodic = system, rho, n_int, periodic
-        self.kappa, self.d1, self.d2, self.width = kappa, d1, d2, width
-        self.sum_sq = np.zeros_like(kappa)
-        self.lowered = np.zeros_like(kappa)     # how much it rounds off peaks (smoothing_bias)
-        self.deltas: list[np.ndarray] | None = None    # the replicates' changes, when kept
-
-    @classmethod
-    def build(cls, fit, u_points, values, weight, u_nodes, level) -> "_Scale | None":
-        """The scale ``level`` doublings coarser than the path fit (None: too coarse)."""
-        rho = fit.log_lambda + level * _DOUBLING_RHO
-        coarsen = max(0, math.ceil((rho - _MAX_RHO) / _DOUBLING_RHO))
-        n_int = fit.n_intervals // 2**coarsen
-        rho -= coarsen * _DOUBLING_RHO
-        floor = 2 * (SPLINE_DEGREE + 1) if fit.periodic else SPLINE_DEGREE + 1
-        if n_int < floor:
-            return None
-        system = penalised_system(u_points, values, weight, fit.span, fit.periodic, n_int)
-        coef = system.coefficients(rho)
-        if fit.periodic:
-            coef = coef[np.arange(n_int + SPLINE_DEGREE) % n_int]
-        base = BSpline(system.knots, coef, SPLINE_DEGREE, extrapolate=False)
-        d1, d2 = base(u_nodes, nu=1), base(u_nodes, nu=2)
-        kappa = _cross(d1, d2) / np.hypot(d1[:, 0], d1[:, 1]) ** 3
-        width = SPREAD_LENGTHS * _smoothing_length(system, rho, u_nodes, fit.span)
-        return cls(system, rho, n_int, fit.periodic, kappa, d1, d2, width)
-
-    def _bases(self, u_nodes: np.ndarray, at: slice):
-        """The first and second derivatives of this scale's B-splines at ``u_nodes[at]``, as
-        sparse matrices (kept for the next chunk of replicates when one block holds every
-        node): three times faster than evaluating a spline of the replicates' coefficients."""
-        cached = getattr(self, "_basis_cache", None)
-        if cached is not None and cached[0] == at:
-            return cached[1]
-        u = u_nodes[at]
-        bases = (derivative_basis(self.system.knots, SPLINE_DEGREE, u, 1),
-                 derivative_basis(self.system.knots, SPLINE_DEGREE, u, 2))
-        self._basis_cache = (at, bases)
-        return bases
-
-    def smoothed(self, values: np.ndarray, u_nodes: np.ndarray) -> np.ndarray:
-        """Curvature at the nodes of other positions ``values`` (m, 2) at the same points,
-        smoothed by this scale (open systems)."""
-        coef = self.system.response(self.rho, values)
-        spline = BSpline(self.system.knots, coef, SPLINE_DEGREE, extrapolate=False)
-        d1 = spline(u_nodes, nu=1)
-        return _cross(d1, spline(u_nodes, nu=2)) / np.hypot(d1[:, 0], d1[:, 1]) ** 3
-
-    def add_replicates(self, noise: np.ndarray, u_nodes: np.ndarray) -> None:
-        """Smooth noise replicates with this scale's normal equations (the fit is linear in
-        the data) and add their squared curvature changes."""
-        delta = self.system.response(self.rho, noise)
-        if self.periodic:
-            delta = delta[np.arange(self.n_int + SPLINE_DEGREE) % self.n_int]
-        change = np.empty((u_nodes.size, delta.shape[1] // 2))
-        for lo in range(0, u_nodes.size, _NODE_BLOCK):     # bounded memory on long routes
-            at = slice(lo, lo + _NODE_BLOCK)
-            first, second = self._bases(u_nodes, at)
-            e1 = (first @ delta).reshape(-1, 2, change.shape[1])
-            e2 = (second @ delta).reshape(-1, 2, change.shape[1])
-            p1, p2 = self.d1[at, :, None] + e1, self.d2[at, :, None] + e2
-            varied = _cross(p1, p2) / np.hypot(p1[:, 0], p1[:, 1]) ** 3
-            change[at] = varied - self.kappa[at, None]
-        self.sum_sq += np.sum(change**2, axis=1)
-        if self.deltas is not None:
-            self.deltas.append(change)
-
-
 def _null_space_estimate(fit, u_points, weight, u_nodes, noise) -> CurvatureEstimate:
     """Curvature of a null-space fit and its spread over the noise replicates' own such fits."""
     d1, d2 = fit.spline(u_nodes, nu=1), fit.spline(u_nodes, nu=2)
-    kappa = _cross(d1, d2) / np.hypot(d1[:, 0], d1[:, 1]) ** 3
+    kappa = cross(d1, d2) / np.hypot(d1[:, 0], d1[:, 1]) ** 3
     null_ss, null_fit = null_space_fit(u_points, noise, weight, fit.span, fit.periodic)
     pert = null_space_spline(null_fit, null_ss, null_ss, fit.span, fit.periodic,
                              fit.n_intervals).spline
     e1 = pert(u_nodes, nu=1).reshape(u_nodes.size, 2, -1)
     e2 = pert(u_nodes, nu=2).reshape(u_nodes.size, 2, -1)
     p1, p2 = d1[:, :, None] + e1, d2[:, :, None] + e2
-    varied = _cross(p1, p2) / np.hypot(p1[:, 0], p1[:, 1]) ** 3
+    varied = cross(p1, p2) / np.hypot(p1[:, 0], p1[:, 1]) ** 3
     sd = np.sqrt(np.mean((varied - kappa[:, None]) ** 2, axis=1))
     zero = np.zeros(u_nodes.size)
     return CurvatureEstimate(kappa, sd, np.abs(kappa) + GAMMA * sd, zero,
                              zero.astype(np.intp))
-
-
-def _cross(a, b):
-    return a[:, 0] * b[:, 1] - a[:, 1] * b[:, 0]
-
-
-def _smoothing_length(system, rho, u_nodes, span) -> np.ndarray:
-    """Local smoothing length ``(lam h^7 / w)^(1/8)`` (metres) at the nodes, ``w`` the data
-    weight per metre there (from the diagonal of ``B^T W B``)."""
-    n_int = system.n_coefficients if system.periodic else system.n_coefficients - SPLINE_DEGREE
-    h = span / n_int
-    density = system.weight_density() / h             # weight per metre, per coefficient
-    # spread each coefficient's share over its neighbours: a smoothing window of 9 knots
-    window = np.ones(9) / 9
-    density = np.convolve(np.pad(density, 4, mode="edge"), window, mode="valid")
-    centre = (np.arange(density.size) - (SPLINE_DEGREE - 1) / 2) * h    # Greville abscissae
-    local = np.interp(u_nodes, centre, density, period=span if system.periodic else None)
-    # where there are no points (a bridged gap) the smoothing reaches across the gap
-    local = np.maximum(local, 1e-9 * float(np.max(density)))
-    lam = system.lam0 * 10.0**rho
-    return np.minimum((lam * h**7 / local) ** 0.125, span)
 
 
 def _choose_scales(kappa, sd, width, station) -> np.ndarray:

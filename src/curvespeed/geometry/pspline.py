@@ -10,6 +10,7 @@ a fit is O(m) in the number of points. The reasons for each choice are in
 
 from __future__ import annotations
 
+import copy
 import functools
 import math
 from dataclasses import dataclass
@@ -17,7 +18,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import sparse
 from scipy.interpolate import BSpline
-from scipy.linalg import LinAlgError, solveh_banded
+from scipy.linalg import LinAlgError, cho_solve_banded, cholesky_banded, solveh_banded
 from scipy.optimize import brentq
 
 #: Degree of the fitted B-spline. Quintic: curvature (second derivative) is twice continuously
@@ -241,6 +242,27 @@ def derivative_basis(knots: np.ndarray, k: int, u: np.ndarray, nu: int) -> spars
     return (BSpline.design_matrix(u, t, degree) @ diff).tocsr()
 
 
+def halve_projection(rhs: np.ndarray, periodic: bool) -> np.ndarray:
+    """``B^T W v`` on the grid of half as many intervals, from ``rhs = B^T W v`` on this one
+    (an even number of intervals over the same span): each coarse B-spline is the sum of seven
+    fine ones weighted ``C(6, i) / 2^5`` (the two-scale relation of uniform B-splines of degree
+    5; de Boor, A Practical Guide to Splines, knot insertion, from memory), so the projection of
+    the points onto the coarse grid needs no pass over the points. Exact up to round-off
+    (tests/test_reference_geometry.py compares it with the coarse grid's own projection)."""
+    k = SPLINE_DEGREE
+    n_fine = rhs.shape[0]
+    n_coarse = (n_fine // 2) if periodic else (n_fine - k) // 2 + k
+    if periodic:     # padded[p] = rhs[(p - k) mod n]
+        padded = np.concatenate((rhs[n_fine - k:], rhs))
+    else:            # fine B-splines outside the span vanish on it
+        padded = np.zeros((2 * n_coarse + k,) + rhs.shape[1:])
+        padded[k: k + n_fine] = rhs
+    out = np.zeros((n_coarse,) + rhs.shape[1:])
+    for i in range(k + 2):      # coarse j takes fine 2 j - k + i
+        out += (math.comb(k + 1, i) / 2.0**k) * padded[i: i + 2 * n_coarse: 2]
+    return out
+
+
 @functools.cache
 def _uniform_basis_polynomials() -> np.ndarray:
     """Power-basis coefficients of the k+1 uniform B-spline pieces on one knot interval.
@@ -388,15 +410,43 @@ class _PenalisedSystem:
         points and weights: ``(B^T W B + lam D^T D)^-1 B^T W values``, one banded Cholesky for
         all columns. The fit is linear in the data, so for noise replicates this is exactly
         the change of the fit the noise causes."""
+        return self.solve_projected(self.factor(rho), self.project(values))
+
+    def project(self, values: np.ndarray) -> np.ndarray:
+        """``B^T W values``: the part of :meth:`response` that does not depend on ``lam``, to be
+        shared by every smoothing weight on this knot grid (and, through
+        :func:`halve_projection`, by the grids nested in it)."""
+        return self._basis.T @ (self._w2[:, None] * values)
+
+    def factor(self, rho: float) -> np.ndarray:
+        """The banded Cholesky factor of ``B^T W B + lam D^T D`` (LAPACK's upper storage), to
+        solve for any number of projected data."""
         lam = self.lam0 * 10.0**rho
         band = self._gram_band + lam * self._penalty_band
-        rhs = self._basis.T @ (self._w2[:, None] * values)
+        return cholesky_banded(band, overwrite_ab=True, check_finite=False)
+
+    def solve_projected(self, factor: np.ndarray, rhs: np.ndarray) -> np.ndarray:
+        """:meth:`response` from a :meth:`factor` and a :meth:`project` (``rhs`` is kept)."""
         if self._pos is not None:
             permuted = np.empty_like(rhs)
             permuted[self._pos] = rhs
             rhs = permuted
-        out = solveh_banded(band, rhs, overwrite_ab=True, overwrite_b=True, check_finite=False)
+        out = cho_solve_banded((factor, False), rhs, overwrite_b=False, check_finite=False)
         return out if self._pos is None else out[self._pos]
+
+    def release_points(self) -> None:
+        """Drop what this system holds per point (the basis, the data): it can then still be
+        factored and solved, for projections made on a finer grid, but not project or solve
+        at a new weight."""
+        self._basis = self._data = self._w2 = self._u = None
+
+    def unbounded(self) -> "_PenalisedSystem":
+        """This system without the fit's residual ceiling, sharing its arrays (for smoothing
+        at other weights on the same knot grid)."""
+        other = copy.copy(self)
+        other._ceiling = math.inf
+        other._cache = dict(self._cache)
+        return other
 
     def local_response(self, rho: float, values: np.ndarray, points: np.ndarray,
                        margin: float) -> tuple[BSpline, np.ndarray]:

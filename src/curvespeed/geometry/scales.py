@@ -1,0 +1,227 @@
+"""The ladder of smoothing scales behind the adaptive curvature (:mod:`.curvature`), and the
+noise replicates that measure each scale's uncertainty.
+
+A scale is the path fit's penalised spline solved at another smoothing weight. Scales whose
+weight the banded solve still handles on the path fit's own knot grid share its normal equations
+(the path fit's own), and coarser scales use grids of half as many intervals, nested in it. The
+projections ``B^T W noise`` of the noise replicates onto every nested grid come from the finest
+grid's by the two-scale relation of B-splines, so each chunk of replicates is drawn and passed
+over the points once per family of nested grids, not once per scale (on a log of 300,000 fixes
+this was a quarter of the route stage). The numbers are those of one scale at a time up to
+round-off; only work is shared.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Iterator
+
+import numpy as np
+from scipy.interpolate import BSpline
+
+from .pspline import (
+    SPLINE_DEGREE,
+    SplineFit,
+    derivative_basis,
+    halve_projection,
+    penalised_system,
+)
+
+#: Noise replicates for the standard deviation of curvature (its relative error is about
+#: 1 / sqrt(2 * REPLICATES) = 13 %).
+REPLICATES = 32
+#: Replicates generated and smoothed at a time.
+CHUNK = 8
+#: Stations whose replicate curvatures are evaluated at a time.
+_NODE_BLOCK = 100_000
+#: Largest rho = log10(lam / lam0) solved on one knot grid; coarser scales use coarser grids
+#: (the banded solve keeps its accuracy below about 12).
+_MAX_RHO = 10.0
+#: rho change that doubles the smoothing length (length ~ h * 10**(rho / 8)).
+DOUBLING_RHO = 8.0 * math.log10(2.0)
+#: Half-width, in smoothing lengths ``(lam h^7 / w)^(1/8)``, of the neighbourhood whose largest
+#: curvature the bound takes: how far the finest scale spreads a step of curvature, ringing
+#: included. Calibrated on steps from a straight into arcs of R 25 and 100 m and on a winding
+#: road with two such steps, points every 1 m with noise of 0, 1, 5 and 20 cm: at 3 the bound
+#: fell 3 % short of the true curvature next to a step, at 3.5 it just covered it, at 4 (used)
+#: it covers it with 0.1 % to spare (tests/test_reference_geometry.py checks coverage).
+SPREAD_LENGTHS = 4.0
+
+
+def noise_chunk(seed: int, chunk: int, weight, time, drift_rate) -> np.ndarray:
+    """``CHUNK`` noise replicates (columns ``0..CHUNK-1`` across, the rest along x/y: shape
+    (m, 2 * CHUNK)): white with sigma ``1 / weight``, plus a random walk in ``time`` whose
+    variance grows by ``drift_rate`` per unit time. Each chunk has its own seed, so the result
+    does not depend on how many are made at once."""
+    rng = np.random.default_rng([seed, chunk])
+    noise = rng.standard_normal((weight.size, 2 * CHUNK))
+    noise /= weight[:, None]            # in place: a log of 10^6 fixes makes 128 MB a chunk
+    if drift_rate and time is not None:
+        step = np.sqrt(drift_rate * np.maximum(np.diff(time), 0.0))
+        walk = rng.standard_normal((weight.size - 1, 2 * CHUNK))
+        walk *= step[:, None]
+        noise[1:] += np.cumsum(walk, axis=0, out=walk)
+    return noise
+
+
+def grid_of(fit: SplineFit, level: int) -> tuple[int, float] | None:
+    """Knot intervals and ``rho`` of the scale ``level`` doublings coarser than the path fit
+    (None: too coarse for its own grid)."""
+    rho = fit.log_lambda + level * DOUBLING_RHO
+    coarsen = max(0, math.ceil((rho - _MAX_RHO) / DOUBLING_RHO))
+    n_int = fit.n_intervals // 2**coarsen
+    floor = 2 * (SPLINE_DEGREE + 1) if fit.periodic else SPLINE_DEGREE + 1
+    if n_int < floor:
+        return None
+    return n_int, rho - coarsen * DOUBLING_RHO
+
+
+def scale_families(fit: SplineFit, u_points, values, weight, u_nodes, levels,
+                   noise: Callable[[int], np.ndarray], keep_level: int | None = None
+                   ) -> Iterator["Family"]:
+    """The scales of ``levels`` (ascending, until one is too coarse) with their replicates
+    added, a family of nested knot grids at a time. ``noise(c)`` draws chunk ``c`` of the
+    replicates; the scale at ``keep_level`` keeps each replicate's curvature change
+    (``deltas``). Each family is yielded while its finest grid's normal equations are held."""
+    grids: dict[int, list[float]] = {}
+    for level in levels:
+        grid = grid_of(fit, level)
+        if grid is None:
+            break
+        grids.setdefault(grid[0], []).append((level, grid[1]))
+    chains: list[list[int]] = []
+    for n_int in grids:          # a grid nested in the last one joins its family
+        if chains and chains[-1][-1] == 2 * n_int:
+            chains[-1].append(n_int)
+        else:
+            chains.append([n_int])
+    for chain in chains:
+        members = []
+        for n_int in chain:
+            if n_int == fit.n_intervals and fit.system is not None:
+                system = fit.system.unbounded()
+            else:
+                system = penalised_system(u_points, values, weight, fit.span, fit.periodic,
+                                          n_int)
+            for level, rho in grids[n_int]:
+                scale = Scale.build(system, rho, n_int, fit, u_nodes)
+                scale.deltas = [] if level == keep_level else None
+                members.append(scale)
+            if n_int != chain[0]:
+                system.release_points()
+        family = Family(members)
+        for c in range(REPLICATES // CHUNK):
+            for scale, delta in family.responses(noise(c)):
+                scale.add_replicates(delta, u_nodes)
+        yield family
+
+
+class Family:
+    """Scales on nested knot grids (each with half the intervals of the one before) whose
+    projections of data all come from the finest grid's (:func:`.pspline.halve_projection`)."""
+
+    def __init__(self, scales: list["Scale"]):
+        self.scales = scales
+        self.factors = [sc.system.factor(sc.rho) for sc in scales]
+
+    def responses(self, values: np.ndarray) -> Iterator[tuple["Scale", np.ndarray]]:
+        """Each scale's spline coefficients for other data ``values`` at the same points."""
+        rhs = self.scales[0].system.project(values)
+        n_int = self.scales[0].n_int
+        for scale, factor in zip(self.scales, self.factors):
+            while n_int > scale.n_int:
+                rhs = halve_projection(rhs, scale.periodic)
+                n_int //= 2
+            yield scale, scale.system.solve_projected(factor, rhs)
+
+    def smoothed(self, values: np.ndarray, u_nodes: np.ndarray) -> list[np.ndarray]:
+        """Each scale's curvature at the nodes for other positions ``values`` (m, 2) at the
+        same points (open grids)."""
+        out = []
+        for scale, coef in self.responses(values):
+            spline = BSpline(scale.system.knots, coef, SPLINE_DEGREE, extrapolate=False)
+            d1 = spline(u_nodes, nu=1)
+            out.append(cross(d1, spline(u_nodes, nu=2)) / np.hypot(d1[:, 0], d1[:, 1]) ** 3)
+        return out
+
+
+class Scale:
+    """One smoothing scale: its curvature at the nodes, spread width, and the running sum of
+    squared curvature changes over the noise replicates."""
+
+    def __init__(self, system, rho, n_int, periodic, kappa, d1, d2, width):
+        self.system, self.rho, self.n_int, self.periodic = system, rho, n_int, periodic
+        self.kappa, self.d1, self.d2, self.width = kappa, d1, d2, width
+        self.sum_sq = np.zeros_like(kappa)
+        self.lowered = np.zeros_like(kappa)     # how much it rounds off peaks (smoothing_bias)
+        self.deltas: list[np.ndarray] | None = None    # the replicates' changes, when kept
+        self._basis_cache = None
+
+    @classmethod
+    def build(cls, system, rho: float, n_int: int, fit: SplineFit, u_nodes) -> "Scale":
+        """The scale of ``system`` (``n_int`` intervals) at ``rho``."""
+        coef = system.coefficients(rho)
+        if fit.periodic:
+            coef = coef[np.arange(n_int + SPLINE_DEGREE) % n_int]
+        base = BSpline(system.knots, coef, SPLINE_DEGREE, extrapolate=False)
+        d1, d2 = base(u_nodes, nu=1), base(u_nodes, nu=2)
+        kappa = cross(d1, d2) / np.hypot(d1[:, 0], d1[:, 1]) ** 3
+        width = SPREAD_LENGTHS * smoothing_length(system, rho, u_nodes, fit.span)
+        return cls(system, rho, n_int, fit.periodic, kappa, d1, d2, width)
+
+    @property
+    def sd(self) -> np.ndarray:
+        """Standard deviation of curvature over the replicates, 1/m."""
+        return np.sqrt(self.sum_sq / REPLICATES)
+
+    def _bases(self, u_nodes: np.ndarray, at: slice):
+        """The first and second derivatives of this scale's B-splines at ``u_nodes[at]``, as
+        sparse matrices (kept for the next chunk of replicates when one block holds every
+        node): three times faster than evaluating a spline of the replicates' coefficients."""
+        cached = self._basis_cache
+        if cached is not None and cached[0] == at:
+            return cached[1]
+        u = u_nodes[at]
+        bases = (derivative_basis(self.system.knots, SPLINE_DEGREE, u, 1),
+                 derivative_basis(self.system.knots, SPLINE_DEGREE, u, 2))
+        self._basis_cache = (at, bases)
+        return bases
+
+    def add_replicates(self, delta: np.ndarray, u_nodes: np.ndarray) -> None:
+        """Add the curvature changes of smoothed noise replicates (their spline coefficients,
+        ``delta``: the fit is linear in the data) and keep them."""
+        if self.periodic:
+            delta = delta[np.arange(self.n_int + SPLINE_DEGREE) % self.n_int]
+        change = np.empty((u_nodes.size, delta.shape[1] // 2))
+        for lo in range(0, u_nodes.size, _NODE_BLOCK):     # bounded memory on long routes
+            at = slice(lo, lo + _NODE_BLOCK)
+            first, second = self._bases(u_nodes, at)
+            e1 = (first @ delta).reshape(-1, 2, change.shape[1])
+            e2 = (second @ delta).reshape(-1, 2, change.shape[1])
+            p1, p2 = self.d1[at, :, None] + e1, self.d2[at, :, None] + e2
+            varied = cross(p1, p2) / np.hypot(p1[:, 0], p1[:, 1]) ** 3
+            change[at] = varied - self.kappa[at, None]
+        self.sum_sq += np.sum(change**2, axis=1)
+        if self.deltas is not None:
+            self.deltas.append(change)
+
+
+def cross(a, b):
+    return a[:, 0] * b[:, 1] - a[:, 1] * b[:, 0]
+
+
+def smoothing_length(system, rho, u_nodes, span) -> np.ndarray:
+    """Local smoothing length ``(lam h^7 / w)^(1/8)`` (metres) at the nodes, ``w`` the data
+    weight per metre there (from the diagonal of ``B^T W B``)."""
+    n_int = system.n_coefficients if system.periodic else system.n_coefficients - SPLINE_DEGREE
+    h = span / n_int
+    density = system.weight_density() / h             # weight per metre, per coefficient
+    # spread each coefficient's share over its neighbours: a smoothing window of 9 knots
+    window = np.ones(9) / 9
+    density = np.convolve(np.pad(density, 4, mode="edge"), window, mode="valid")
+    centre = (np.arange(density.size) - (SPLINE_DEGREE - 1) / 2) * h    # Greville abscissae
+    local = np.interp(u_nodes, centre, density, period=span if system.periodic else None)
+    # where there are no points (a bridged gap) the smoothing reaches across the gap
+    local = np.maximum(local, 1e-9 * float(np.max(density)))
+    lam = system.lam0 * 10.0**rho
+    return np.minimum((lam * h**7 / local) ** 0.125, span)
