@@ -21,6 +21,11 @@ from scipy.interpolate import BSpline
 from scipy.linalg import LinAlgError, cho_solve_banded, cholesky_banded, solveh_banded
 from scipy.optimize import brentq
 
+try:
+    from . import _band_solve
+except ImportError:         # no C compiler at install: scipy's banded solve
+    _band_solve = None
+
 #: Degree of the fitted B-spline. Quintic: curvature (second derivative) is twice continuously
 #: differentiable, so its rate of change along the route, which sets lateral jerk at constant
 #: speed, is continuous too.
@@ -225,21 +230,31 @@ def null_space_spline(null_fit, null_ss, target_ss, span, periodic, n_int) -> Sp
     return SplineFit(spline, span, n_int, periodic, null_ss, target_ss, False, math.inf)
 
 
-def derivative_basis(knots: np.ndarray, k: int, u: np.ndarray, nu: int) -> sparse.csr_matrix:
-    """Sparse ``M`` with ``M @ c`` the ``nu``-th derivative at ``u`` of the degree-``k`` spline
-    with coefficients ``c`` on ``knots`` (``u`` within the base interval, as ``BSpline`` with
-    ``extrapolate=False`` takes it). A spline's derivative is the degree ``k - 1`` spline on the
-    knots without their ends whose coefficients are ``k (c[i+1] - c[i]) / (t[i+k+1] - t[i+1])``
-    (de Boor's derivative formula), applied ``nu`` times to a design matrix."""
-    t, degree = np.asarray(knots, dtype=float), k
-    diff = sparse.identity(t.size - k - 1, format="csr")
-    for _ in range(nu):
-        m = t.size - degree - 1
-        span = t[degree + 1: degree + m] - t[1:m]
-        w = np.where(span > 0, degree / np.where(span > 0, span, 1.0), 0.0)
-        diff = sparse.diags([-w, w], [0, 1], shape=(m - 1, m), format="csr") @ diff
-        t, degree = t[1:-1], degree - 1
-    return (BSpline.design_matrix(u, t, degree) @ diff).tocsr()
+def derivative_basis(span: float, n_int: int, u: np.ndarray,
+                     nu: int) -> sparse.csr_matrix:
+    """Sparse ``M`` with ``M @ c`` the ``nu``-th derivative at ``u`` (within ``[0, span]``) of
+    the spline on the uniform grid of ``n_int`` intervals with coefficients ``c`` (the knots of
+    :func:`penalised_system`; a periodic system's coefficients wrapped to ``n_int + degree``).
+    Each point's interval carries the same polynomial pieces (:func:`_uniform_basis_polynomials`),
+    differentiated in the power basis: a few passes over the points, where a general design
+    matrix and de Boor's derivative formula took most of the replicates' evaluation on a long
+    log."""
+    k = SPLINE_DEGREE
+    h = span / n_int
+    rel = np.clip(u, 0.0, span) / h
+    first = np.clip(np.floor(rel).astype(np.intp), 0, n_int - 1)
+    tau = rel - first
+    poly = _uniform_basis_polynomials()
+    # d^nu / dtau^nu of tau^p is p! / (p - nu)! tau^(p - nu); d tau / du = 1 / h
+    coef = [poly[p] * (math.perm(p, nu) / h**nu) for p in range(nu, k + 1)]
+    vals_t = np.repeat(coef[-1][:, None], u.size, axis=1)
+    for c in coef[-2::-1]:
+        vals_t *= tau
+        vals_t += c[:, None]
+    cols_t = first + np.arange(k + 1)[:, None]
+    return sparse.csr_matrix((vals_t.T.ravel(), cols_t.T.ravel(),
+                              np.arange(0, u.size * (k + 1) + 1, k + 1)),
+                             shape=(u.size, n_int + k))
 
 
 def halve_projection(rhs: np.ndarray, periodic: bool) -> np.ndarray:
@@ -431,7 +446,12 @@ class _PenalisedSystem:
             permuted = np.empty_like(rhs)
             permuted[self._pos] = rhs
             rhs = permuted
-        out = cho_solve_banded((factor, False), rhs, overwrite_b=False, check_finite=False)
+        if _band_solve is None:          # no C compiler at install: LAPACK, a column at a time
+            out = cho_solve_banded((factor, False), rhs, overwrite_b=False, check_finite=False)
+        else:
+            out = np.array(rhs, dtype=float, order="C")         # solved in place, by rows
+            _band_solve.solve(np.ascontiguousarray(factor.T), out, out.shape[0],
+                              factor.shape[0] - 1, out.size // out.shape[0])
         return out if self._pos is None else out[self._pos]
 
     def release_points(self) -> None:

@@ -83,7 +83,7 @@ def scale_families(fit: SplineFit, u_points, values, weight, u_nodes, levels,
     added, a family of nested knot grids at a time. ``noise(c)`` draws chunk ``c`` of the
     replicates; the scale at ``keep_level`` keeps each replicate's curvature change
     (``deltas``). Each family is yielded while its finest grid's normal equations are held."""
-    grids: dict[int, list[float]] = {}
+    grids: dict[int, list[tuple[int, float]]] = {}
     for level in levels:
         grid = grid_of(fit, level)
         if grid is None:
@@ -182,8 +182,9 @@ class Scale:
         if cached is not None and cached[0] == at:
             return cached[1]
         u = u_nodes[at]
-        bases = (derivative_basis(self.system.knots, SPLINE_DEGREE, u, 1),
-                 derivative_basis(self.system.knots, SPLINE_DEGREE, u, 2))
+        span = float(self.system.knots[self.n_int + SPLINE_DEGREE])
+        bases = (derivative_basis(span, self.n_int, u, 1),
+                 derivative_basis(span, self.n_int, u, 2))
         self._basis_cache = (at, bases)
         return bases
 
