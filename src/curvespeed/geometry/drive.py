@@ -211,8 +211,9 @@ def prepare_drive(route: Route, part: int | None = None) -> DrivePoints:
     gy = np.add.reduceat(y[lo: hi + 1], starts) / count
     gz = None if z is None else np.add.reduceat(z[lo: hi + 1], starts) / count
     gt = np.add.reduceat(t[lo: hi + 1], starts) / count
-    gwhere = np.array([_span(where, lo + a, lo + b - 1) for a, b in zip(group[:-1], group[1:])],
-                      dtype=object)
+    gwhere = where[lo + starts]          # a single fix keeps its own label (most of a log)
+    for g in np.flatnonzero(count > 1):
+        gwhere[g] = _span(where, lo + group[g], lo + group[g + 1] - 1)
     averaged = int(np.sum(count[count > 1])) - sum(b - a + 1 for a, b in runs)
     return DrivePoints(gx, gy, gz, count, gwhere, gt, float(sigma), drift,
                        cell if averaged > 0 else 0.0, len(runs),
