@@ -652,3 +652,23 @@ def test_compiled_band_solve_matches_lapack(bandwidth, columns):
     assert np.max(np.abs(got - expected)) <= 1e-12 * np.max(np.abs(expected))
     with pytest.raises(ValueError, match="wrong size"):
         compiled.solve(np.ascontiguousarray(factor.T), got[:-1], n, bandwidth, columns)
+
+
+def test_noise_replicates_walk_drawn_in_blocks_is_one_random_walk():
+    """The drifting part of the noise replicates is drawn and summed a block of rows at a time
+    (memory); it must be the random walk of one draw of its steps: white noise of sigma
+    1 / weight plus the cumulative sum of steps of variance drift_rate * dt (the definition in
+    ``noise_chunk``), to round-off of the running sum (1e-12 of the largest value), across
+    several blocks."""
+    from curvespeed.geometry import scales
+
+    rng = np.random.default_rng(1)
+    m = 3 * scales._WALK_BLOCK + 17
+    weight = rng.uniform(50.0, 150.0, m)
+    time = np.cumsum(rng.uniform(0.005, 0.02, m))
+    got = scales.noise_chunk(3, 1, weight, time, 1e-4)
+    ref = np.random.default_rng([3, 1])
+    white = ref.standard_normal((m, 2 * scales.CHUNK)) / weight[:, None]
+    steps = ref.standard_normal((m - 1, 2 * scales.CHUNK)) * np.sqrt(1e-4 * np.diff(time))[:, None]
+    expected = white + np.vstack((np.zeros((1, 2 * scales.CHUNK)), np.cumsum(steps, axis=0)))
+    assert np.max(np.abs(got - expected)) <= 1e-12 * np.max(np.abs(expected))

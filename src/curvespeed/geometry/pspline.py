@@ -268,13 +268,20 @@ def halve_projection(rhs: np.ndarray, periodic: bool) -> np.ndarray:
     n_fine = rhs.shape[0]
     n_coarse = (n_fine // 2) if periodic else (n_fine - k) // 2 + k
     if periodic:     # padded[p] = rhs[(p - k) mod n]
-        padded = np.concatenate((rhs[n_fine - k:], rhs))
-    else:            # fine B-splines outside the span vanish on it
-        padded = np.zeros((2 * n_coarse + k,) + rhs.shape[1:])
-        padded[k: k + n_fine] = rhs
+        rhs = np.concatenate((rhs[n_fine - k:], rhs))
     out = np.zeros((n_coarse,) + rhs.shape[1:])
-    for i in range(k + 2):      # coarse j takes fine 2 j - k + i
-        out += (math.comb(k + 1, i) / 2.0**k) * padded[i: i + 2 * n_coarse: 2]
+    scratch = np.empty_like(out)
+    for i in range(k + 2):      # coarse j takes fine 2 j - k + i (a periodic one: padded 2 j + i)
+        if periodic:
+            lo, hi, first = 0, n_coarse, i
+        else:                   # fine B-splines outside the span vanish on it
+            lo = (k - i + 1) // 2
+            hi = min(n_coarse, (n_fine - 1 + k - i) // 2 + 1)
+            first = 2 * lo - k + i
+        part = scratch[: hi - lo]
+        np.multiply(rhs[first: first + 2 * (hi - lo) - 1: 2], math.comb(k + 1, i) / 2.0**k,
+                    out=part)
+        out[lo:hi] += part
     return out
 
 
@@ -427,18 +434,24 @@ class _PenalisedSystem:
         the change of the fit the noise causes."""
         return self.solve_projected(self.factor(rho), self.project(values))
 
-    def project(self, values: np.ndarray) -> np.ndarray:
+    def project(self, values: np.ndarray, overwrite: bool = False) -> np.ndarray:
         """``B^T W values``: the part of :meth:`response` that does not depend on ``lam``, to be
         shared by every smoothing weight on this knot grid (and, through
-        :func:`halve_projection`, by the grids nested in it)."""
+        :func:`halve_projection`, by the grids nested in it). ``overwrite``: ``values`` (float,
+        C order) is weighted in place instead of in a copy."""
+        if overwrite:
+            values *= self._w2[:, None]
+            return self._basis.T @ values
         return self._basis.T @ (self._w2[:, None] * values)
 
     def factor(self, rho: float) -> np.ndarray:
-        """The banded Cholesky factor of ``B^T W B + lam D^T D`` (LAPACK's upper storage), to
-        solve for any number of projected data."""
+        """The banded Cholesky factor of ``B^T W B + lam D^T D``, to solve for any number of
+        projected data (:meth:`solve_projected`): LAPACK's upper storage, transposed for the
+        compiled solve when it was built."""
         lam = self.lam0 * 10.0**rho
         band = self._gram_band + lam * self._penalty_band
-        return cholesky_banded(band, overwrite_ab=True, check_finite=False)
+        upper = cholesky_banded(band, overwrite_ab=True, check_finite=False)
+        return upper if _band_solve is None else np.ascontiguousarray(upper.T)
 
     def solve_projected(self, factor: np.ndarray, rhs: np.ndarray) -> np.ndarray:
         """:meth:`response` from a :meth:`factor` and a :meth:`project` (``rhs`` is kept)."""
@@ -450,8 +463,8 @@ class _PenalisedSystem:
             out = cho_solve_banded((factor, False), rhs, overwrite_b=False, check_finite=False)
         else:
             out = np.array(rhs, dtype=float, order="C")         # solved in place, by rows
-            _band_solve.solve(np.ascontiguousarray(factor.T), out, out.shape[0],
-                              factor.shape[0] - 1, out.size // out.shape[0])
+            _band_solve.solve(factor, out, out.shape[0], factor.shape[1] - 1,
+                              out.size // out.shape[0])
         return out if self._pos is None else out[self._pos]
 
     def release_points(self) -> None:

@@ -32,6 +32,8 @@ from .pspline import (
 REPLICATES = 32
 #: Replicates generated and smoothed at a time.
 CHUNK = 8
+#: Rows of a random walk's steps drawn at a time.
+_WALK_BLOCK = 65_536
 #: Stations whose replicate curvatures are evaluated at a time.
 _NODE_BLOCK = 100_000
 #: Largest rho = log10(lam / lam0) solved on one knot grid; coarser scales use coarser grids
@@ -58,9 +60,16 @@ def noise_chunk(seed: int, chunk: int, weight, time, drift_rate) -> np.ndarray:
     noise /= weight[:, None]            # in place: a log of 10^6 fixes makes 128 MB a chunk
     if drift_rate and time is not None:
         step = np.sqrt(drift_rate * np.maximum(np.diff(time), 0.0))
-        walk = rng.standard_normal((weight.size - 1, 2 * CHUNK))
-        walk *= step[:, None]
-        noise[1:] += np.cumsum(walk, axis=0, out=walk)
+        # the walk's steps drawn and summed a block of rows at a time (the generator fills
+        # rows in order, so the numbers are those of one draw), not another 128 MB at once
+        total = np.zeros(2 * CHUNK)
+        for lo in range(0, step.size, _WALK_BLOCK):
+            walk = rng.standard_normal((min(_WALK_BLOCK, step.size - lo), 2 * CHUNK))
+            walk *= step[lo: lo + walk.shape[0], None]
+            np.cumsum(walk, axis=0, out=walk)
+            walk += total
+            noise[1 + lo: 1 + lo + walk.shape[0]] += walk
+            total = walk[-1].copy()
     return noise
 
 
@@ -128,8 +137,10 @@ def scale_families(fit: SplineFit, u_points, values, weight, u_nodes, levels,
                 system.release_points()
         family = Family(members)
         for c in range(REPLICATES // CHUNK):
-            for scale, delta in family.responses(noise(c)):
+            for scale, delta in family.responses(noise(c), overwrite=True):
                 scale.add_replicates(delta, u_nodes)
+        for scale in members:
+            scale.bases = None
         yield family
 
 
@@ -141,9 +152,12 @@ class Family:
         self.scales = scales
         self.factors = [sc.system.factor(sc.rho) for sc in scales]
 
-    def responses(self, values: np.ndarray) -> Iterator[tuple["Scale", np.ndarray]]:
-        """Each scale's spline coefficients for other data ``values`` at the same points."""
-        rhs = self.scales[0].system.project(values)
+    def responses(self, values: np.ndarray, overwrite: bool = False
+                  ) -> Iterator[tuple["Scale", np.ndarray]]:
+        """Each scale's spline coefficients for other data ``values`` at the same points
+        (``overwrite``: ``values`` may be scaled in place)."""
+        rhs = self.scales[0].system.project(values, overwrite=overwrite)
+        del values              # (a chunk of noise: 128 MB on a log of 10^6 fixes)
         n_int = self.scales[0].n_int
         for scale, factor in zip(self.scales, self.factors):
             while n_int > scale.n_int:
@@ -172,7 +186,7 @@ class Scale:
         self.sum_sq = np.zeros_like(kappa)
         self.lowered = np.zeros_like(kappa)     # how much it rounds off peaks (smoothing_bias)
         self.deltas: list[np.ndarray] | None = None    # the replicates' changes, when kept
-        self._basis_cache = None
+        self.bases = None         # (block, derivative bases) while replicates are added
 
     @classmethod
     def build(cls, system, rho: float, n_int: int, fit: SplineFit, u_nodes) -> "Scale":
@@ -193,16 +207,16 @@ class Scale:
 
     def _bases(self, u_nodes: np.ndarray, at: slice):
         """The first and second derivatives of this scale's B-splines at ``u_nodes[at]``, as
-        sparse matrices (kept for the next chunk of replicates when one block holds every
-        node): three times faster than evaluating a spline of the replicates' coefficients."""
-        cached = self._basis_cache
-        if cached is not None and cached[0] == at:
-            return cached[1]
+        sparse matrices: three times faster than evaluating a spline of the replicates'
+        coefficients. Kept for the next chunk of replicates when one block holds every node
+        (on longer routes a family's scales would hold a block each)."""
+        if self.bases is not None and self.bases[0] == at:
+            return self.bases[1]
         u = u_nodes[at]
         span = float(self.system.knots[self.n_int + SPLINE_DEGREE])
         bases = (derivative_basis(span, self.n_int, u, 1),
                  derivative_basis(span, self.n_int, u, 2))
-        self._basis_cache = (at, bases)
+        self.bases = (at, bases) if u.size == u_nodes.size else None
         return bases
 
     def add_replicates(self, delta: np.ndarray, u_nodes: np.ndarray) -> None:
