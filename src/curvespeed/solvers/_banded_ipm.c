@@ -2,19 +2,19 @@
  * for  min x'Px/2 + q'x  s.t.  lo <= Ax <= up  when P + A'DA is banded.
  *
  * The Python side (banded_ipm.py) scales the problem, checks every array and chooses the
- * starting point; this file only iterates. Per iteration, four passes over the rows: (1) the
+ * starting point; this file only iterates. Per iteration, three passes over the rows: (1) the
  * previous step's update fused with the residuals, the normal matrix P + A'DA formed straight
  * into banded storage and the predictor's right side; then one banded Cholesky factorisation;
- * (2) the predictor's step length and the complementarity it reaches; (3) the corrector's right
- * side; (4) the combined step's length. Row kinds: 0 no finite side, 1 lower only, 2 upper only, 3 both, 4 equality (held by
- * a regularised multiplier, see EQ_DELTA).
+ * (2) the predictor's step length, the complementarity it reaches and the corrector's right
+ * side (in two parts, as it is linear in sigma mu, which this pass decides); (3) the combined
+ * step's length. Row kinds: 0 no finite side, 1 lower only, 2 upper only, 3 both, 4 equality
+ * (held by a regularised multiplier, see EQ_DELTA).
  *
  * Speed (the rows are most of the work: a QP has about eight rows per variable): rows of one,
  * two and three entries (every row of the convex solver's QPs) take unrolled paths, the band is
  * stored column by column (a column's entries side by side) with the common bandwidth 2 solved
- * by its own unrolled loops, and a step-length ratio is divided out only where it can shorten
- * the step. None of this changes the arithmetic: every sum runs over the same terms in the same
- * order as the plain loops, so the iterates are the same to the bit.
+ * by its own unrolled loops and the factor's diagonal kept as its reciprocal, and a step-length
+ * ratio is divided out only where it can shorten the step.
  *
  * Only the Python C API's buffer protocol is used (no numpy headers), so `pip install` builds it
  * with nothing but a C compiler. The interpreter lock is released while it iterates.
@@ -41,8 +41,10 @@ static inline double dmin(double a, double b) { return a < b ? a : b; }
 
 /* ---- symmetric band matrices: lower band by column, L[j * (kd + 1) + d] = A(j + d, j) ---- */
 
-/* In-place Cholesky L L'. A pivot that is not clearly positive is replaced by a tiny one (the
- * direction it carries is then almost dropped); returns how many were replaced. */
+/* In-place Cholesky L L', the diagonal of L stored as its reciprocal (the solves multiply by it:
+ * a division's latency was most of their time, each unknown waiting for the one before). A pivot
+ * that is not clearly positive is replaced by a tiny one (the direction it carries is then almost
+ * dropped); returns how many were replaced. */
 static int64_t band_factor(double *L, int64_t n, int64_t kd, double reg)
 {
     const int64_t w = kd + 1;
@@ -68,6 +70,7 @@ static int64_t band_factor(double *L, int64_t n, int64_t kd, double reg)
                 s -= L[k * w + (i - k)] * L[k * w + (j - k)];
             cj[i - j] = s / ljj;
         }
+        cj[0] = 1.0 / ljj;
     }
     return nrep;
 }
@@ -76,35 +79,35 @@ static int64_t band_factor(double *L, int64_t n, int64_t kd, double reg)
  * kept in registers (each one waits for the one before: this loop is bound by that chain). */
 static void band_solve2(const double *L, int64_t n, double *b)
 {
-    double b2 = b[0] / L[0];
+    double b2 = b[0] * L[0];
     b[0] = b2;
-    double b1 = (b[1] - L[1] * b2) / L[3];
+    double b1 = (b[1] - L[1] * b2) * L[3];
     b[1] = b1;
     for (int64_t j = 2; j < n; j++) {
         double s = b[j];
         s -= L[(j - 2) * 3 + 2] * b2;
         s -= L[(j - 1) * 3 + 1] * b1;
-        s = s / L[j * 3];
+        s = s * L[j * 3];
         b[j] = s;
         b2 = b1;
         b1 = s;
     }
-    b2 = b[n - 1] / L[(n - 1) * 3];             /* now b2 = b[j + 2], b1 = b[j + 1] */
+    b2 = b[n - 1] * L[(n - 1) * 3];             /* now b2 = b[j + 2], b1 = b[j + 1] */
     b[n - 1] = b2;
-    b1 = (b[n - 2] - L[(n - 2) * 3 + 1] * b2) / L[(n - 2) * 3];
+    b1 = (b[n - 2] - L[(n - 2) * 3 + 1] * b2) * L[(n - 2) * 3];
     b[n - 2] = b1;
     for (int64_t j = n - 3; j >= 0; j--) {
         double s = b[j];
         s -= L[j * 3 + 1] * b1;
         s -= L[j * 3 + 2] * b2;
-        s = s / L[j * 3];
+        s = s * L[j * 3];
         b[j] = s;
         b2 = b1;
         b1 = s;
     }
 }
 
-/* b := (L L')^-1 b */
+/* b := (L L')^-1 b, L from band_factor */
 static void band_solve(const double *L, int64_t n, int64_t kd, double *b)
 {
     if (kd == 2 && n >= 2) {
@@ -116,14 +119,14 @@ static void band_solve(const double *L, int64_t n, int64_t kd, double *b)
         double s = b[j];
         for (int64_t k = j - kd > 0 ? j - kd : 0; k < j; k++)
             s -= L[k * w + (j - k)] * b[k];
-        b[j] = s / L[j * w];
+        b[j] = s * L[j * w];
     }
     for (int64_t j = n - 1; j >= 0; j--) {
         double s = b[j];
         int64_t i1 = j + kd < n - 1 ? j + kd : n - 1;
         for (int64_t i = j + 1; i <= i1; i++)
             s -= L[j * w + (i - j)] * b[i];
-        b[j] = s / L[j * w];
+        b[j] = s * L[j * w];
     }
 }
 
@@ -146,8 +149,11 @@ static void band_times(const double *A, int64_t n, int64_t kd, const double *x, 
  * zero and their weights z/s to 1e15 and beyond, so one solve loses digits and the dual residual
  * stalls above the tolerance (seen on a 6,800-station QP with a lateral jerk bound: stuck at 3e-8
  * of its scale, then lost to round-off). Each refinement solves for what the residual of the
- * unfactored matrix A says is still missing (two steps; common practice in interior-point
- * codes). */
+ * unfactored matrix A says is still missing (up to two steps; common practice in interior-point
+ * codes). Refinement shrinks the error by about the same factor each step, the size of the
+ * first correction relative to x, so after a first correction below 1e-8 of x a second would
+ * change x by about 1e-16 of it, below its round-off, and is skipped (most iterations before
+ * the last few). */
 static void band_solve_refined(const double *L, const double *A, int64_t n, int64_t kd,
                                const double *rhs, double *x, double *res)
 {
@@ -157,7 +163,13 @@ static void band_solve_refined(const double *L, const double *A, int64_t n, int6
         band_times(A, n, kd, x, res);
         for (int64_t j = 0; j < n; j++) res[j] = rhs[j] - res[j];
         band_solve(L, n, kd, res);
-        for (int64_t j = 0; j < n; j++) x[j] += res[j];
+        double cn = 0.0, xn = 0.0;
+        for (int64_t j = 0; j < n; j++) {
+            x[j] += res[j];
+            cn = dmax(cn, fabs(res[j]));
+            xn = dmax(xn, fabs(x[j]));
+        }
+        if (!(cn > 1e-8 * xn)) break;
     }
 }
 
@@ -175,7 +187,7 @@ typedef struct {
 
 typedef struct {
     double *L, *L0, *PbT;           /* normal matrix (factored), unfactored, P: by column */
-    double *Atz, *rhs, *dx, *Px, *res;
+    double *Atz, *rhs, *dx, *Px, *res, *Ais;
     double *r, *adx_a, *adx, *isl, *isu;
 } work_t;
 
@@ -197,13 +209,17 @@ static inline double row_dot(const problem_t *p, int64_t i, const double *v)
     }
 }
 
-/* out -= w a_i */
-static inline void row_scatter(const problem_t *p, int64_t i, double w, double *out)
+/* out -= w a_i, out2 += w2 a_i */
+static inline void row_scatter(const problem_t *p, int64_t i, double w, double w2, double *out,
+                               double *out2)
 {
     const int64_t k0 = p->indptr[i], nz = p->indptr[i + 1] - k0;
     const int64_t *ix = p->indices + k0;
     const double *av = p->data + k0;
-    for (int64_t k = 0; k < nz; k++) out[ix[k]] -= av[k] * w;
+    for (int64_t k = 0; k < nz; k++) {
+        out[ix[k]] -= av[k] * w;
+        out2[ix[k]] += av[k] * w2;
+    }
 }
 
 /* Row i's share of pass 1: A'z += a y, rhs -= a w, L += D a a' (lower band). */
@@ -422,70 +438,66 @@ static void pass_dual(const problem_t *p, work_t *wk, var_sums_t *o)
     o->Pxn = Pxn;
 }
 
-/* Pass 2: the predictor's step length, and the sums that give the complementarity it reaches:
- * sum (s + t ds)(z + t dz) = comp + t sum(s dz + z ds) + t^2 sum(ds dz). Returns the length. */
+/* Pass 2: the predictor's step length; the sums that give the complementarity it reaches,
+ * sum (s + t ds)(z + t dz) = comp + t sum(s dz + z ds) + t^2 sum(ds dz); and the corrector's
+ * right side, which is linear in sigma mu, the one number this pass decides: rhs gets the part
+ * without it and Ais = A'(1/s_lo - 1/s_up) the factor of sigma mu (corrector_rhs adds the two),
+ * so no pass over the rows waits for sigma mu. Returns the step length. */
 static double pass_predictor(const problem_t *p, work_t *wk, double *c1_out, double *c2_out)
 {
     const int8_t *kind = p->kind;
     const double *lo = p->lo, *up = p->up, *sl = p->sl, *su = p->su, *zl = p->zl, *zu = p->zu;
     const double *r = wk->r, *isl = wk->isl, *isu = wk->isu;
-    double *adx_a = wk->adx_a;
+    double *adx_a = wk->adx_a, *rhs = wk->rhs, *Ais = wk->Ais;
     double alpha = 1.0, c1 = 0.0, c2 = 0.0;
+    for (int64_t j = 0; j < p->n; j++) {
+        rhs[j] = -(wk->Px[j] + p->q[j] - wk->Atz[j]);
+        Ais[j] = 0.0;
+    }
     for (int64_t i = 0; i < p->m; i++) {
         int ki = kind[i];
-        if (ki == 0 || ki == 4) continue;
+        if (ki == 0) continue;
+        if (ki == 4) {
+            row_scatter(p, i, (r[i] - lo[i]) / EQ_DELTA, 0.0, rhs, Ais);
+            continue;
+        }
         double a = row_dot(p, i, wk->dx);
         adx_a[i] = a;
+        double w = 0.0, g = 0.0;
         if (ki & 1) {
-            double ds = a + (r[i] - sl[i] - lo[i]), dz = -zl[i] - zl[i] * isl[i] * ds;
+            double rpl = r[i] - sl[i] - lo[i], Dl = zl[i] * isl[i];
+            double ds = a + rpl, dz = -zl[i] - Dl * ds;
             alpha = ratio(alpha, sl[i], ds);
             alpha = ratio(alpha, zl[i], dz);
             c1 += sl[i] * dz + zl[i] * ds;
             c2 += ds * dz;
+            w += target(sl[i], zl[i], Dl, ds, 0.0) * isl[i] + Dl * rpl;
+            g += isl[i];
         }
         if (ki & 2) {
-            double ds = -a - (r[i] + su[i] - up[i]), dz = -zu[i] - zu[i] * isu[i] * ds;
+            double rpu = r[i] + su[i] - up[i], Du = zu[i] * isu[i];
+            double ds = -a - rpu, dz = -zu[i] - Du * ds;
             alpha = ratio(alpha, su[i], ds);
             alpha = ratio(alpha, zu[i], dz);
             c1 += su[i] * dz + zu[i] * ds;
             c2 += ds * dz;
+            w += -target(su[i], zu[i], Du, ds, 0.0) * isu[i] + Du * rpu;
+            g -= isu[i];
         }
+        row_scatter(p, i, w, g, rhs, Ais);
     }
     *c1_out = c1;
     *c2_out = c2;
     return alpha;
 }
 
-/* Pass 3: the corrector's right side. */
-static void pass_corrector(const problem_t *p, work_t *wk, double smu)
+/* The corrector's right side, sigma mu known (pass_predictor). */
+static void corrector_rhs(const problem_t *p, work_t *wk, double smu)
 {
-    const int8_t *kind = p->kind;
-    const double *lo = p->lo, *up = p->up, *sl = p->sl, *su = p->su, *zl = p->zl, *zu = p->zu;
-    const double *r = wk->r, *isl = wk->isl, *isu = wk->isu, *adx_a = wk->adx_a;
-    double *rhs = wk->rhs;
-    for (int64_t j = 0; j < p->n; j++) rhs[j] = -(wk->Px[j] + p->q[j] - wk->Atz[j]);
-    for (int64_t i = 0; i < p->m; i++) {
-        int ki = kind[i];
-        if (ki == 0) continue;
-        double w = 0.0;
-        if (ki == 4) {
-            w = (r[i] - lo[i]) / EQ_DELTA;
-        } else {
-            double a = adx_a[i];
-            if (ki & 1) {
-                double rpl = r[i] - sl[i] - lo[i], Dl = zl[i] * isl[i];
-                w += target(sl[i], zl[i], Dl, a + rpl, smu) * isl[i] + Dl * rpl;
-            }
-            if (ki & 2) {
-                double rpu = r[i] + su[i] - up[i], Du = zu[i] * isu[i];
-                w += -target(su[i], zu[i], Du, -a - rpu, smu) * isu[i] + Du * rpu;
-            }
-        }
-        row_scatter(p, i, w, rhs);
-    }
+    for (int64_t j = 0; j < p->n; j++) wk->rhs[j] += smu * wk->Ais[j];
 }
 
-/* Pass 4: the combined step's length (one length for primal and dual: the dual residual
+/* Pass 3: the combined step's length (one length for primal and dual: the dual residual
  * P x + q - A'z involves both); the update itself is the start of pass 1. */
 static double pass_step(const problem_t *p, work_t *wk, double smu)
 {
@@ -544,11 +556,12 @@ static int ipm(problem_t *p)
     const int64_t n = p->n, m = p->m, kd = p->kd, cw = kd + 1;
     const int8_t *kind = p->kind;
     double *band = malloc(sizeof(double) * (size_t)(3 * cw * n));
-    double *work = malloc(sizeof(double) * (size_t)(5 * n + 5 * m));
+    double *work = malloc(sizeof(double) * (size_t)(6 * n + 5 * m));
     if (!band || !work) { free(band); free(work); return -1; }
+    double *rw = work + 6 * n;          /* the rows' arrays */
     work_t wk = {band, band + cw * n, band + 2 * cw * n, work, work + n, work + 2 * n,
-                 work + 3 * n, work + 4 * n, work + 5 * n, work + 5 * n + m,
-                 work + 5 * n + 2 * m, work + 5 * n + 3 * m, work + 5 * n + 4 * m};
+                 work + 3 * n, work + 4 * n, work + 5 * n, rw, rw + m, rw + 2 * m, rw + 3 * m,
+                 rw + 4 * m};
     for (int64_t d = 0; d <= kd; d++)
         for (int64_t j = 0; j < n; j++) wk.PbT[j * cw + d] = p->Pb[d * n + j];
     double qn = 0.0, bn = 0.0;
@@ -582,7 +595,7 @@ static int ipm(problem_t *p)
         double sigma = mu > 0.0 ? dmin(1.0, pow(dmax(mu_a, 0.0) / mu, 3.0)) : 0.0;
         smu = sigma * mu;
 
-        pass_corrector(p, &wk, smu);
+        corrector_rhs(p, &wk, smu);
         band_solve_refined(wk.L, wk.L0, n, kd, wk.rhs, wk.dx, wk.res);
 
         step = 0.99 * pass_step(p, &wk, smu);
