@@ -193,8 +193,10 @@ def _prepare_rows(qp: RowQP, centre, scale):
     kind[~has] = 0                      # an empty row: judged below, never iterated on
     b.kind = kind.astype(np.int8)
     lower = prow >= pcol
-    b.Pb = np.zeros((kd + 1, qp.n))
-    np.add.at(b.Pb, (prow[lower] - pcol[lower], pcol[lower]), pval[lower])
+    # each entry summed into its band slot from zero in order (no slot twice: P's entries are
+    # distinct), by bincount rather than the much slower np.add.at
+    slot = (prow[lower] - pcol[lower]) * qp.n + pcol[lower]
+    b.Pb = np.bincount(slot, pval[lower], minlength=(kd + 1) * qp.n).reshape(kd + 1, qp.n)
     b.q = q
     b.inverse = inverse
     return b

@@ -288,7 +288,10 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
             for j, batch in enumerate(batches):
                 cols = np.concatenate([blocks[k] for k in batch])
                 rows = by_batch[cuts[j]:cuts[j + 1]]
-                sub = qp.take(cols, rows)
+                # a batch of every variable and row (a receding-horizon window) is the QP
+                # itself, its rows in their order: nothing to cut out
+                whole = cols.size == qp.n and rows.size == qp.m
+                sub = qp if whole else qp.take(cols, rows)
                 glob = free_idx[cols]
                 centre, scale = b_hat[glob], np.maximum(b_env[glob], 1.0)
                 args = (sub, options.qp_tolerance, gap_abs, centre, scale, options.qp_backend)
