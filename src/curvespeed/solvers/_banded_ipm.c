@@ -189,6 +189,7 @@ typedef struct {
     double *L, *L0, *PbT;           /* normal matrix (factored), unfactored, P: by column */
     double *Atz, *rhs, *dx, *Px, *res, *Ais;
     double *r, *adx_a, *adx, *isl, *isu;
+    double *dsl, *dzl, *dsu, *dzu;   /* the combined step of each side (pass 3 for pass 1) */
 } work_t;
 
 /* a_i' v: terms summed in column order from zero (rows of 1-3 entries unrolled) */
@@ -332,7 +333,7 @@ typedef struct {
 /* Pass 1: the previous step's update of slacks and multipliers (x is updated already, `first`
  * on the first iteration: nothing to update), then residuals, normal matrix, A'z and the
  * predictor's right side. */
-static void pass_normal(const problem_t *p, work_t *wk, int first, double step, double smu,
+static void pass_normal(const problem_t *p, work_t *wk, int first, double step,
                         row_sums_t *out)
 {
     const int64_t n = p->n, m = p->m;
@@ -340,7 +341,7 @@ static void pass_normal(const problem_t *p, work_t *wk, int first, double step, 
     const double *lo = p->lo, *up = p->up;
     double *sl = p->sl, *su = p->su, *zl = p->zl, *zu = p->zu;
     double *r = wk->r, *isl = wk->isl, *isu = wk->isu;
-    const double *adx = wk->adx, *adx_a = wk->adx_a;
+    const double *adx = wk->adx;
     memcpy(wk->L, wk->PbT, sizeof(double) * (size_t)((p->kd + 1) * n));
     memset(wk->Atz, 0, sizeof(double) * (size_t)n);
     memset(wk->rhs, 0, sizeof(double) * (size_t)n);
@@ -350,19 +351,16 @@ static void pass_normal(const problem_t *p, work_t *wk, int first, double step, 
         int ki = kind[i];
         if (ki == 0) continue;
         if (!first) {
-            double a = adx[i], a0 = adx_a[i];
             if (ki == 4) {
-                zl[i] -= step * (a + r[i] - lo[i]) / EQ_DELTA;
+                zl[i] -= step * (adx[i] + r[i] - lo[i]) / EQ_DELTA;
             } else {
                 if (ki & 1) {
-                    LOWER_STEP(i, a, a0)
-                    sl[i] += step * dsl;
-                    zl[i] += step * dzl;
+                    sl[i] += step * wk->dsl[i];
+                    zl[i] += step * wk->dzl[i];
                 }
                 if (ki & 2) {
-                    UPPER_STEP(i, a, a0)
-                    su[i] += step * dsu;
-                    zu[i] += step * dzu;
+                    su[i] += step * wk->dsu[i];
+                    zu[i] += step * wk->dzu[i];
                 }
             }
         }
@@ -498,7 +496,8 @@ static void corrector_rhs(const problem_t *p, work_t *wk, double smu)
 }
 
 /* Pass 3: the combined step's length (one length for primal and dual: the dual residual
- * P x + q - A'z involves both); the update itself is the start of pass 1. */
+ * P x + q - A'z involves both); the step of each side is kept for the update, which is the
+ * start of pass 1. */
 static double pass_step(const problem_t *p, work_t *wk, double smu)
 {
     const int8_t *kind = p->kind;
@@ -516,11 +515,15 @@ static double pass_step(const problem_t *p, work_t *wk, double smu)
             LOWER_STEP(i, a, adx_a[i])
             alpha = ratio(alpha, sl[i], dsl);
             alpha = ratio(alpha, zl[i], dzl);
+            wk->dsl[i] = dsl;
+            wk->dzl[i] = dzl;
         }
         if (ki & 2) {
             UPPER_STEP(i, a, adx_a[i])
             alpha = ratio(alpha, su[i], dsu);
             alpha = ratio(alpha, zu[i], dzu);
+            wk->dsu[i] = dsu;
+            wk->dzu[i] = dzu;
         }
     }
     return alpha;
@@ -556,12 +559,12 @@ static int ipm(problem_t *p)
     const int64_t n = p->n, m = p->m, kd = p->kd, cw = kd + 1;
     const int8_t *kind = p->kind;
     double *band = malloc(sizeof(double) * (size_t)(3 * cw * n));
-    double *work = malloc(sizeof(double) * (size_t)(6 * n + 5 * m));
+    double *work = malloc(sizeof(double) * (size_t)(6 * n + 9 * m));
     if (!band || !work) { free(band); free(work); return -1; }
     double *rw = work + 6 * n;          /* the rows' arrays */
     work_t wk = {band, band + cw * n, band + 2 * cw * n, work, work + n, work + 2 * n,
                  work + 3 * n, work + 4 * n, work + 5 * n, rw, rw + m, rw + 2 * m, rw + 3 * m,
-                 rw + 4 * m};
+                 rw + 4 * m, rw + 5 * m, rw + 6 * m, rw + 7 * m, rw + 8 * m};
     for (int64_t d = 0; d <= kd; d++)
         for (int64_t j = 0; j < n; j++) wk.PbT[j * cw + d] = p->Pb[d * n + j];
     double qn = 0.0, bn = 0.0;
@@ -577,7 +580,7 @@ static int ipm(problem_t *p)
     for (it = 0; it <= p->max_iter; it++) {
         row_sums_t rs;
         var_sums_t vs;
-        pass_normal(p, &wk, it == 0, step, smu, &rs);
+        pass_normal(p, &wk, it == 0, step, &rs);
         pass_dual(p, &wk, &vs);
         int verdict = judge(p, &rs, &vs, qn, bn, extent);
         if (verdict >= 0) { status = verdict; break; }
