@@ -288,9 +288,11 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
             for j, batch in enumerate(batches):
                 cols = np.concatenate([blocks[k] for k in batch])
                 rows = by_batch[cuts[j]:cuts[j + 1]]
-                # a batch of every variable and row (a receding-horizon window) is the QP
-                # itself, its rows in their order: nothing to cut out
-                whole = cols.size == qp.n and rows.size == qp.m
+                # a batch of every variable in order and every row (a receding-horizon window)
+                # is the QP itself, its rows in their order (one stable sort of a single
+                # batch): nothing to cut out. (A loop's blocks need not come in order.)
+                whole = (cols.size == qp.n and rows.size == qp.m
+                         and bool(np.all(cols[1:] > cols[:-1])))
                 sub = qp if whole else qp.take(cols, rows)
                 glob = free_idx[cols]
                 centre, scale = b_hat[glob], np.maximum(b_env[glob], 1.0)
