@@ -44,6 +44,13 @@ CASES = {
         winding(800.0, closed=True),
         Limits(max_jerk_mps3=1.5, max_speed_mps=30.0, friction_coefficient=0.5),
         RouteConstraints(superelevation=(Superelevation(100.0, 400.0, 0.05),))),
+    # two stops cut the loop into two stretches, one across the seam: numbered in route order
+    # its stations come before and after the other's, and both fit one batch (a QP of 800
+    # stations), so the batch's variables are not in station order
+    "closed loop cut by two stops": (
+        winding(800.0, closed=True),
+        Limits(max_jerk_mps3=2.0, max_speed_mps=25.0),
+        RouteConstraints(stops=(Stop(200.0), Stop(560.0)))),
     "grade, drag and power": (
         winding(600.0, grade=0.05),
         Limits(max_jerk_mps3=2.0, max_speed_mps=30.0, max_power_w=60e3, mass_kg=1500.0,

@@ -89,7 +89,7 @@ Every function here is vectorised over nodes and has no side effects.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -356,11 +356,13 @@ class SpeedProblem:
         todo = np.flatnonzero(~ok)
         capped_done = bool(np.all((hi_b - lo_b <= 1e-12 * np.maximum(hi_b, 1.0))[ok]))
         lo_t, hi_t = lo_b[todo], hi_b[todo]
+        # those nodes' arrays gathered once, not in each of the 60 steps (the same values)
+        sub = replace(self, **{name: getattr(self, name)[todo] for name in _BOUNDS_FIELDS})
         for _ in range(iterations):
             if todo.size == 0:
                 break
             mid = 0.5 * (lo_t + hi_t)
-            la, ha = self.accel_bounds(mid, nodes=todo)
+            la, ha = sub.accel_bounds(mid)
             good = la <= ha
             lo_t = np.where(good, mid, lo_t)
             hi_t = np.where(~good, mid, hi_t)
@@ -369,6 +371,11 @@ class SpeedProblem:
         lo_b[todo] = lo_t
         hi_b[todo] = hi_t
         return np.where(ok, hi_b, lo_b)
+
+
+#: The per-node arrays :meth:`SpeedProblem.accel_bounds` reads.
+_BOUNDS_FIELDS = ("kappa_abs", "cos_bank", "sin_bank", "cos_grade", "sin_grade", "mu_long",
+                  "mu_lat")
 
 
 def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstraints,

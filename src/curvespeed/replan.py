@@ -330,9 +330,10 @@ class Replanner:
                 failure = failure or exc
         else:
             raise failure
-        self._check(window, b)
+        derived = self._check(window, b)
         self._previous = (k0, b)
-        return self._profile(window, b, result, s, warmed, relaxed, time.perf_counter() - t0)
+        return self._profile(window, b, derived, result, s, warmed, relaxed,
+                             time.perf_counter() - t0)
 
     def _plan_window(self, window, relaxed: float):
         """The window's squared speeds within its limits, the comfort limits raised by the
@@ -410,7 +411,9 @@ class Replanner:
         yield route, False
         yield None, False
 
-    def _check(self, window, b) -> None:
+    def _check(self, window, b) -> dict:
+        """Verify the window's profile (raises if it breaks a limit); returns the quantities
+        the verifier derived from it (:func:`curvespeed.profile.derive`)."""
         from .planner import CONVEX_TOLERANCE
         from .verify import DEFAULT_TOLERANCE, verify_profile
 
@@ -421,12 +424,12 @@ class Replanner:
             raise SolverError(f"replan: the window's profile breaks its limits: {worst}. This "
                               "is a defect; please report it with the route, the limits and "
                               "the vehicle's state")
+        return check.derived
 
-    def _profile(self, window, b, result: SolveResult, s: float, warm: bool, relaxed: float,
-                 elapsed: float) -> WindowProfile:
-        from .profile import derive
-
-        d = derive(window.problem, b)
+    def _profile(self, window, b, d: dict, result: SolveResult, s: float, warm: bool,
+                 relaxed: float, elapsed: float) -> WindowProfile:
+        """The window's profile from its squared speeds ``b`` and what the verifier derived
+        from them, ``d``."""
         n = window.idx.size
         distance = np.arange(n) * window.ds
         # time 0 where the vehicle is: up to a station step after node 0

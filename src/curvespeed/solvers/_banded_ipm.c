@@ -2,12 +2,19 @@
  * for  min x'Px/2 + q'x  s.t.  lo <= Ax <= up  when P + A'DA is banded.
  *
  * The Python side (banded_ipm.py) scales the problem, checks every array and chooses the
- * starting point; this file only iterates. Per iteration, four passes over the rows: (1) the
+ * starting point; this file only iterates. Per iteration, three passes over the rows: (1) the
  * previous step's update fused with the residuals, the normal matrix P + A'DA formed straight
  * into banded storage and the predictor's right side; then one banded Cholesky factorisation;
- * (2) the predictor's step length and the complementarity it reaches; (3) the corrector's right
- * side; (4) the combined step's length. Row kinds: 0 no finite side, 1 lower only, 2 upper only, 3 both, 4 equality (held by
- * a regularised multiplier, see EQ_DELTA).
+ * (2) the predictor's step length, the complementarity it reaches and the corrector's right
+ * side (in two parts, as it is linear in sigma mu, which this pass decides); (3) the combined
+ * step's length. Row kinds: 0 no finite side, 1 lower only, 2 upper only, 3 both, 4 equality
+ * (held by a regularised multiplier, see EQ_DELTA).
+ *
+ * Speed (the rows are most of the work: a QP has about eight rows per variable): rows of one,
+ * two and three entries (every row of the convex solver's QPs) take unrolled paths, the band is
+ * stored column by column (a column's entries side by side) with the common bandwidth 2 solved
+ * by its own unrolled loops and the factor's diagonal kept as its reciprocal, and a step-length
+ * ratio is divided out only where it can shorten the step.
  *
  * Only the Python C API's buffer protocol is used (no numpy headers), so `pip install` builds it
  * with nothing but a C compiler. The interpreter lock is released while it iterates.
@@ -32,18 +39,22 @@ enum { ST_SOLVED = 0, ST_MAX_ITER = 1, ST_NUMERICAL = 2, ST_INFEASIBLE = 3 };
 static inline double dmax(double a, double b) { return a > b ? a : b; }
 static inline double dmin(double a, double b) { return a < b ? a : b; }
 
-/* In-place Cholesky L L' of a symmetric band matrix in lower storage M[d*n + j] = A(j+d, j).
- * A pivot that is not clearly positive is replaced by a tiny one (the direction it carries is
- * then almost dropped); returns how many were replaced. */
-static int64_t band_factor(double *M, int64_t n, int64_t kd, double reg)
+/* ---- symmetric band matrices: lower band by column, L[j * (kd + 1) + d] = A(j + d, j) ---- */
+
+/* In-place Cholesky L L', the diagonal of L stored as its reciprocal (the solves multiply by it:
+ * a division's latency was most of their time, each unknown waiting for the one before). A pivot
+ * that is not clearly positive is replaced by a tiny one (the direction it carries is then almost
+ * dropped); returns how many were replaced. */
+static int64_t band_factor(double *L, int64_t n, int64_t kd, double reg)
 {
+    const int64_t w = kd + 1;
     int64_t nrep = 0;
     for (int64_t j = 0; j < n; j++) {
-        double orig = M[j] + reg;
+        double *cj = L + j * w;
+        double orig = cj[0] + reg;
         double d = orig;
-        int64_t k0 = j - kd > 0 ? j - kd : 0;
-        for (int64_t k = k0; k < j; k++) {
-            double l = M[(j - k) * n + k];
+        for (int64_t k = j - kd > 0 ? j - kd : 0; k < j; k++) {
+            double l = L[k * w + (j - k)];
             d -= l * l;
         }
         if (!(d > 1e-14 * fabs(orig))) {
@@ -51,55 +62,98 @@ static int64_t band_factor(double *M, int64_t n, int64_t kd, double reg)
             nrep++;
         }
         double ljj = sqrt(d);
-        M[j] = ljj;
+        cj[0] = ljj;
         int64_t i1 = j + kd < n - 1 ? j + kd : n - 1;
         for (int64_t i = j + 1; i <= i1; i++) {
-            double s = M[(i - j) * n + j];
-            int64_t kk0 = i - kd > 0 ? i - kd : 0;
-            for (int64_t k = kk0; k < j; k++)
-                s -= M[(i - k) * n + k] * M[(j - k) * n + k];
-            M[(i - j) * n + j] = s / ljj;
+            double s = cj[i - j];
+            for (int64_t k = i - kd > 0 ? i - kd : 0; k < j; k++)
+                s -= L[k * w + (i - k)] * L[k * w + (j - k)];
+            cj[i - j] = s / ljj;
         }
+        cj[0] = 1.0 / ljj;
     }
     return nrep;
 }
 
-static void band_solve(const double *M, int64_t n, int64_t kd, double *b)
+/* band_solve for bandwidth 2: the same operations in the same order, the last two unknowns
+ * kept in registers (each one waits for the one before: this loop is bound by that chain). */
+static void band_solve2(const double *L, int64_t n, double *b)
 {
+    double b2 = b[0] * L[0];
+    b[0] = b2;
+    double b1 = (b[1] - L[1] * b2) * L[3];
+    b[1] = b1;
+    for (int64_t j = 2; j < n; j++) {
+        double s = b[j];
+        s -= L[(j - 2) * 3 + 2] * b2;
+        s -= L[(j - 1) * 3 + 1] * b1;
+        s = s * L[j * 3];
+        b[j] = s;
+        b2 = b1;
+        b1 = s;
+    }
+    b2 = b[n - 1] * L[(n - 1) * 3];             /* now b2 = b[j + 2], b1 = b[j + 1] */
+    b[n - 1] = b2;
+    b1 = (b[n - 2] - L[(n - 2) * 3 + 1] * b2) * L[(n - 2) * 3];
+    b[n - 2] = b1;
+    for (int64_t j = n - 3; j >= 0; j--) {
+        double s = b[j];
+        s -= L[j * 3 + 1] * b1;
+        s -= L[j * 3 + 2] * b2;
+        s = s * L[j * 3];
+        b[j] = s;
+        b2 = b1;
+        b1 = s;
+    }
+}
+
+/* b := (L L')^-1 b, L from band_factor */
+static void band_solve(const double *L, int64_t n, int64_t kd, double *b)
+{
+    if (kd == 2 && n >= 2) {
+        band_solve2(L, n, b);
+        return;
+    }
+    const int64_t w = kd + 1;
     for (int64_t j = 0; j < n; j++) {
         double s = b[j];
-        int64_t k0 = j - kd > 0 ? j - kd : 0;
-        for (int64_t k = k0; k < j; k++)
-            s -= M[(j - k) * n + k] * b[k];
-        b[j] = s / M[j];
+        for (int64_t k = j - kd > 0 ? j - kd : 0; k < j; k++)
+            s -= L[k * w + (j - k)] * b[k];
+        b[j] = s * L[j * w];
     }
     for (int64_t j = n - 1; j >= 0; j--) {
         double s = b[j];
         int64_t i1 = j + kd < n - 1 ? j + kd : n - 1;
         for (int64_t i = j + 1; i <= i1; i++)
-            s -= M[(i - j) * n + j] * b[i];
-        b[j] = s / M[j];
+            s -= L[j * w + (i - j)] * b[i];
+        b[j] = s * L[j * w];
     }
 }
 
-/* y = A x for the symmetric band matrix A in lower storage (as band_factor takes it). */
+/* y = A x; each y[j] sums the diagonal's term, then for d = 1, 2, ... the term from below and
+ * the term from above. */
 static void band_times(const double *A, int64_t n, int64_t kd, const double *x, double *y)
 {
-    for (int64_t j = 0; j < n; j++) y[j] = A[j] * x[j];
-    for (int64_t d = 1; d <= kd; d++)
-        for (int64_t j = 0; j + d < n; j++) {
-            double a = A[d * n + j];
-            y[j + d] += a * x[j];
-            y[j] += a * x[j + d];
+    const int64_t w = kd + 1;
+    for (int64_t j = 0; j < n; j++) {
+        double acc = A[j * w] * x[j];
+        for (int64_t d = 1; d <= kd; d++) {
+            if (j - d >= 0) acc += A[(j - d) * w + d] * x[j - d];
+            if (j + d < n) acc += A[j * w + d] * x[j + d];
         }
+        y[j] = acc;
+    }
 }
 
 /* Solve with the factor L of A, then refine: near the optimum the slacks of active rows go to
  * zero and their weights z/s to 1e15 and beyond, so one solve loses digits and the dual residual
  * stalls above the tolerance (seen on a 6,800-station QP with a lateral jerk bound: stuck at 3e-8
  * of its scale, then lost to round-off). Each refinement solves for what the residual of the
- * unfactored matrix A says is still missing (two steps; common practice in interior-point
- * codes). */
+ * unfactored matrix A says is still missing (up to two steps; common practice in interior-point
+ * codes). Refinement shrinks the error by about the same factor each step, the size of the
+ * first correction relative to x, so after a first correction below 1e-8 of x a second would
+ * change x by about 1e-16 of it, below its round-off, and is skipped (most iterations before
+ * the last few). */
 static void band_solve_refined(const double *L, const double *A, int64_t n, int64_t kd,
                                const double *rhs, double *x, double *res)
 {
@@ -109,9 +163,17 @@ static void band_solve_refined(const double *L, const double *A, int64_t n, int6
         band_times(A, n, kd, x, res);
         for (int64_t j = 0; j < n; j++) res[j] = rhs[j] - res[j];
         band_solve(L, n, kd, res);
-        for (int64_t j = 0; j < n; j++) x[j] += res[j];
+        double cn = 0.0, xn = 0.0;
+        for (int64_t j = 0; j < n; j++) {
+            x[j] += res[j];
+            cn = dmax(cn, fabs(res[j]));
+            xn = dmax(xn, fabs(x[j]));
+        }
+        if (!(cn > 1e-8 * xn)) break;
     }
 }
+
+/* ---- the problem and the iteration's work arrays ---- */
 
 typedef struct {
     int64_t n, m, kd, max_iter;
@@ -123,12 +185,92 @@ typedef struct {
     double *info;   /* out: pobj, primal res, dual res, gap, iterations, max step, ... */
 } problem_t;
 
+typedef struct {
+    double *L, *L0, *PbT;           /* normal matrix (factored), unfactored, P: by column */
+    double *Atz, *rhs, *dx, *Px, *res, *Ais;
+    double *r, *adx_a, *adx, *isl, *isu;
+    double *dsl, *dzl, *dsu, *dzu;   /* the combined step of each side (pass 3 for pass 1) */
+} work_t;
+
+/* a_i' v: terms summed in column order from zero (rows of 1-3 entries unrolled) */
 static inline double row_dot(const problem_t *p, int64_t i, const double *v)
 {
-    double a = 0.0;
-    for (int64_t k = p->indptr[i]; k < p->indptr[i + 1]; k++)
-        a += p->data[k] * v[p->indices[k]];
-    return a;
+    const int64_t k0 = p->indptr[i], nz = p->indptr[i + 1] - k0;
+    const int64_t *ix = p->indices + k0;
+    const double *av = p->data + k0;
+    switch (nz) {
+    case 1: return 0.0 + av[0] * v[ix[0]];
+    case 2: return (0.0 + av[0] * v[ix[0]]) + av[1] * v[ix[1]];
+    case 3: return ((0.0 + av[0] * v[ix[0]]) + av[1] * v[ix[1]]) + av[2] * v[ix[2]];
+    default: {
+        double a = 0.0;
+        for (int64_t k = 0; k < nz; k++) a += av[k] * v[ix[k]];
+        return a;
+    }
+    }
+}
+
+/* out -= w a_i, out2 += w2 a_i */
+static inline void row_scatter(const problem_t *p, int64_t i, double w, double w2, double *out,
+                               double *out2)
+{
+    const int64_t k0 = p->indptr[i], nz = p->indptr[i + 1] - k0;
+    const int64_t *ix = p->indices + k0;
+    const double *av = p->data + k0;
+    for (int64_t k = 0; k < nz; k++) {
+        out[ix[k]] -= av[k] * w;
+        out2[ix[k]] += av[k] * w2;
+    }
+}
+
+/* Row i's share of pass 1: A'z += a y, rhs -= a w, L += D a a' (lower band). */
+static inline void row_normal(const problem_t *p, int64_t i, double D, double w, double y,
+                              double *Atz, double *rhs, double *L)
+{
+    const int64_t k0 = p->indptr[i], nz = p->indptr[i + 1] - k0, cw = p->kd + 1;
+    const int64_t *ix = p->indices + k0;
+    const double *av = p->data + k0;
+    if (nz >= 1 && nz <= 3) {
+        int64_t j0 = ix[0];
+        double v0 = av[0], D0 = D * v0;
+        Atz[j0] += v0 * y;
+        rhs[j0] -= v0 * w;
+        L[j0 * cw] += D0 * v0;
+        if (nz == 1) return;
+        int64_t j1 = ix[1];
+        double v1 = av[1], D1 = D * v1;
+        Atz[j1] += v1 * y;
+        rhs[j1] -= v1 * w;
+        L[j0 * cw + (j1 - j0)] += D1 * v0;
+        L[j1 * cw] += D1 * v1;
+        if (nz == 2) return;
+        int64_t j2 = ix[2];
+        double v2 = av[2], D2 = D * v2;
+        Atz[j2] += v2 * y;
+        rhs[j2] -= v2 * w;
+        L[j0 * cw + (j2 - j0)] += D2 * v0;
+        L[j1 * cw + (j2 - j1)] += D2 * v1;
+        L[j2 * cw] += D2 * v2;
+        return;
+    }
+    for (int64_t a = 0; a < nz; a++) {
+        int64_t ja = ix[a];
+        double va = av[a], Dva = D * va;
+        Atz[ja] += va * y;
+        rhs[ja] -= va * w;
+        for (int64_t b = 0; b <= a; b++)
+            L[ix[b] * cw + (ja - ix[b])] += Dva * av[b];
+    }
+}
+
+/* min(alpha, -s / d) where d < 0; the division only where it may come out below alpha (when
+ * s >= alpha |d| (1 + 1e-14) the quotient rounds to alpha or above, so the minimum is alpha as
+ * it would be with the division; NaNs take the division, as they did). */
+static inline double ratio(double alpha, double s, double d)
+{
+    if (d < 0.0 && !(s >= alpha * -d * (1.0 + 1e-14)))
+        alpha = dmin(alpha, -s / d);
+    return alpha;
 }
 
 /* Corrector complementarity target of one side: s z + ds_aff dz_aff - sigma mu, with
@@ -182,229 +324,291 @@ static double box_extent(const problem_t *p)
     return out;
 }
 
+/* what pass 1 sums over the rows */
+typedef struct {
+    double rp, sn, zn, comp, blin;
+    int64_t cnt;
+} row_sums_t;
+
+/* Pass 1: the previous step's update of slacks and multipliers (x is updated already, `first`
+ * on the first iteration: nothing to update), then residuals, normal matrix, A'z and the
+ * predictor's right side. */
+static void pass_normal(const problem_t *p, work_t *wk, int first, double step,
+                        row_sums_t *out)
+{
+    const int64_t n = p->n, m = p->m;
+    const int8_t *kind = p->kind;
+    const double *lo = p->lo, *up = p->up;
+    double *sl = p->sl, *su = p->su, *zl = p->zl, *zu = p->zu;
+    double *r = wk->r, *isl = wk->isl, *isu = wk->isu;
+    const double *adx = wk->adx;
+    memcpy(wk->L, wk->PbT, sizeof(double) * (size_t)((p->kd + 1) * n));
+    memset(wk->Atz, 0, sizeof(double) * (size_t)n);
+    memset(wk->rhs, 0, sizeof(double) * (size_t)n);
+    double rp = 0.0, sn = 0.0, zn = 0.0, comp = 0.0, blin = 0.0;
+    int64_t cnt = 0;
+    for (int64_t i = 0; i < m; i++) {
+        int ki = kind[i];
+        if (ki == 0) continue;
+        if (!first) {
+            if (ki == 4) {
+                zl[i] -= step * (adx[i] + r[i] - lo[i]) / EQ_DELTA;
+            } else {
+                if (ki & 1) {
+                    sl[i] += step * wk->dsl[i];
+                    zl[i] += step * wk->dzl[i];
+                }
+                if (ki & 2) {
+                    su[i] += step * wk->dsu[i];
+                    zu[i] += step * wk->dzu[i];
+                }
+            }
+        }
+        double ri = row_dot(p, i, p->x);
+        r[i] = ri;
+        double D = 0.0, w = 0.0, y = 0.0;
+        if (ki == 4) {
+            double re = ri - lo[i];
+            rp = dmax(rp, fabs(re));
+            D = 1.0 / EQ_DELTA;
+            w = re / EQ_DELTA;
+            y = zl[i];
+            zn = dmax(zn, fabs(y));
+            blin += lo[i] * y;
+        } else {
+            if (ki & 1) {
+                double is = 1.0 / sl[i];
+                isl[i] = is;
+                double rpl = ri - sl[i] - lo[i], Dl = zl[i] * is;
+                rp = dmax(rp, fabs(rpl));
+                D += Dl; w += zl[i] + Dl * rpl; y += zl[i];
+                comp += sl[i] * zl[i]; cnt++;
+                sn = dmax(sn, sl[i]); zn = dmax(zn, zl[i]);
+                blin += lo[i] * zl[i];
+            }
+            if (ki & 2) {
+                double is = 1.0 / su[i];
+                isu[i] = is;
+                double rpu = ri + su[i] - up[i], Du = zu[i] * is;
+                rp = dmax(rp, fabs(rpu));
+                D += Du; w += -zu[i] + Du * rpu; y -= zu[i];
+                comp += su[i] * zu[i]; cnt++;
+                sn = dmax(sn, su[i]); zn = dmax(zn, zu[i]);
+                blin -= up[i] * zu[i];
+            }
+        }
+        row_normal(p, i, D, w, y, wk->Atz, wk->rhs, wk->L);
+    }
+    out->rp = rp; out->sn = sn; out->zn = zn; out->comp = comp; out->blin = blin;
+    out->cnt = cnt;
+}
+
+/* what the pass over the variables sums */
+typedef struct {
+    double xn, xPx, qx, rdn, rd1, Atzn, Pxn;
+} var_sums_t;
+
+/* P x, the dual residual P x + q - A'z (taken off the predictor's right side) and norms. */
+static void pass_dual(const problem_t *p, work_t *wk, var_sums_t *o)
+{
+    const int64_t n = p->n, kd = p->kd;
+    const double *Pb = p->Pb, *x = p->x, *q = p->q, *Atz = wk->Atz;
+    double *Px = wk->Px, *rhs = wk->rhs;
+    double xn = 0.0, xPx = 0.0, qx = 0.0, rdn = 0.0, rd1 = 0.0, Atzn = 0.0, Pxn = 0.0;
+    for (int64_t j = 0; j < n; j++) {
+        double acc = Pb[j] * x[j];
+        for (int64_t d = 1; d <= kd; d++) {
+            if (j + d < n) acc += Pb[d * n + j] * x[j + d];
+            if (j - d >= 0) acc += Pb[d * n + j - d] * x[j - d];
+        }
+        Px[j] = acc;
+        xn = dmax(xn, fabs(x[j]));
+        xPx += x[j] * acc;
+        qx += q[j] * x[j];
+        double rdj = acc + q[j] - Atz[j];
+        rdn = dmax(rdn, fabs(rdj));
+        rd1 += fabs(rdj);
+        Atzn = dmax(Atzn, fabs(Atz[j]));
+        Pxn = dmax(Pxn, fabs(acc));
+        rhs[j] -= rdj;
+    }
+    o->xn = xn; o->xPx = xPx; o->qx = qx; o->rdn = rdn; o->rd1 = rd1; o->Atzn = Atzn;
+    o->Pxn = Pxn;
+}
+
+/* Pass 2: the predictor's step length; the sums that give the complementarity it reaches,
+ * sum (s + t ds)(z + t dz) = comp + t sum(s dz + z ds) + t^2 sum(ds dz); and the corrector's
+ * right side, which is linear in sigma mu, the one number this pass decides: rhs gets the part
+ * without it and Ais = A'(1/s_lo - 1/s_up) the factor of sigma mu (corrector_rhs adds the two),
+ * so no pass over the rows waits for sigma mu. Returns the step length. */
+static double pass_predictor(const problem_t *p, work_t *wk, double *c1_out, double *c2_out)
+{
+    const int8_t *kind = p->kind;
+    const double *lo = p->lo, *up = p->up, *sl = p->sl, *su = p->su, *zl = p->zl, *zu = p->zu;
+    const double *r = wk->r, *isl = wk->isl, *isu = wk->isu;
+    double *adx_a = wk->adx_a, *rhs = wk->rhs, *Ais = wk->Ais;
+    double alpha = 1.0, c1 = 0.0, c2 = 0.0;
+    for (int64_t j = 0; j < p->n; j++) {
+        rhs[j] = -(wk->Px[j] + p->q[j] - wk->Atz[j]);
+        Ais[j] = 0.0;
+    }
+    for (int64_t i = 0; i < p->m; i++) {
+        int ki = kind[i];
+        if (ki == 0) continue;
+        if (ki == 4) {
+            row_scatter(p, i, (r[i] - lo[i]) / EQ_DELTA, 0.0, rhs, Ais);
+            continue;
+        }
+        double a = row_dot(p, i, wk->dx);
+        adx_a[i] = a;
+        double w = 0.0, g = 0.0;
+        if (ki & 1) {
+            double rpl = r[i] - sl[i] - lo[i], Dl = zl[i] * isl[i];
+            double ds = a + rpl, dz = -zl[i] - Dl * ds;
+            alpha = ratio(alpha, sl[i], ds);
+            alpha = ratio(alpha, zl[i], dz);
+            c1 += sl[i] * dz + zl[i] * ds;
+            c2 += ds * dz;
+            w += target(sl[i], zl[i], Dl, ds, 0.0) * isl[i] + Dl * rpl;
+            g += isl[i];
+        }
+        if (ki & 2) {
+            double rpu = r[i] + su[i] - up[i], Du = zu[i] * isu[i];
+            double ds = -a - rpu, dz = -zu[i] - Du * ds;
+            alpha = ratio(alpha, su[i], ds);
+            alpha = ratio(alpha, zu[i], dz);
+            c1 += su[i] * dz + zu[i] * ds;
+            c2 += ds * dz;
+            w += -target(su[i], zu[i], Du, ds, 0.0) * isu[i] + Du * rpu;
+            g -= isu[i];
+        }
+        row_scatter(p, i, w, g, rhs, Ais);
+    }
+    *c1_out = c1;
+    *c2_out = c2;
+    return alpha;
+}
+
+/* The corrector's right side, sigma mu known (pass_predictor). */
+static void corrector_rhs(const problem_t *p, work_t *wk, double smu)
+{
+    for (int64_t j = 0; j < p->n; j++) wk->rhs[j] += smu * wk->Ais[j];
+}
+
+/* Pass 3: the combined step's length (one length for primal and dual: the dual residual
+ * P x + q - A'z involves both); the step of each side is kept for the update, which is the
+ * start of pass 1. */
+static double pass_step(const problem_t *p, work_t *wk, double smu)
+{
+    const int8_t *kind = p->kind;
+    const double *lo = p->lo, *up = p->up, *sl = p->sl, *su = p->su, *zl = p->zl, *zu = p->zu;
+    const double *r = wk->r, *isl = wk->isl, *isu = wk->isu, *adx_a = wk->adx_a;
+    double *adx = wk->adx;
+    double alpha = 1.0;
+    for (int64_t i = 0; i < p->m; i++) {
+        int ki = kind[i];
+        if (ki == 0) continue;
+        double a = row_dot(p, i, wk->dx);
+        adx[i] = a;
+        if (ki == 4) continue;
+        if (ki & 1) {
+            LOWER_STEP(i, a, adx_a[i])
+            alpha = ratio(alpha, sl[i], dsl);
+            alpha = ratio(alpha, zl[i], dzl);
+            wk->dsl[i] = dsl;
+            wk->dzl[i] = dzl;
+        }
+        if (ki & 2) {
+            UPPER_STEP(i, a, adx_a[i])
+            alpha = ratio(alpha, su[i], dsu);
+            alpha = ratio(alpha, zu[i], dzu);
+            wk->dsu[i] = dsu;
+            wk->dzu[i] = dzu;
+        }
+    }
+    return alpha;
+}
+
+/* Is the iterate the answer? Sets p->info and returns a status, or -1 to go on. */
+static int judge(problem_t *p, const row_sums_t *rs, const var_sums_t *vs, double qn, double bn,
+                 double extent)
+{
+    double pobj = 0.5 * vs->xPx + vs->qx, dobj = -0.5 * vs->xPx + rs->blin;
+    double gap = fabs(pobj - dobj), rp = rs->rp, rdn = vs->rdn;
+    p->info[0] = pobj; p->info[1] = rp; p->info[2] = rdn; p->info[3] = gap;
+    p->info[6] = dmax(1.0, bn + vs->xn + rs->sn);
+    p->info[7] = dmax(1.0, qn + vs->Pxn + vs->Atzn);
+    int feasible = rp <= p->eps * p->info[6] && rdn <= p->eps * p->info[7];
+    if (!isfinite(pobj) || !isfinite(rp) || !isfinite(rdn)) return ST_NUMERICAL;
+    if (feasible && (gap <= p->gap_abs
+                     || gap <= p->eps * dmax(1.0, dmin(fabs(pobj), fabs(dobj)))))
+        return ST_SOLVED;
+    /* On a degenerate optimum the dual residual can stall above its tolerance while the
+     * answer is as good as asked. With the primal feasible and every variable inside a box
+     * reaching at most `extent` from 0: f(x) - f(x*) <= gap + |Px + q - A'z|_1 extent
+     * (the Lagrangian's convexity; banded_ipm.py, _judge, derives and checks the same). */
+    if (rp <= p->eps * p->info[6] && gap + vs->rd1 * extent <= p->gap_abs) return ST_SOLVED;
+    /* primal infeasibility: y = zl - zu with A'y ~ 0 and lo'zl - up'zu > 0, duals diverging */
+    if (rs->blin > 0.0 && vs->Atzn <= 1e-8 * rs->blin && rs->zn > 1e6 * dmax(1.0, qn))
+        return ST_INFEASIBLE;
+    return -1;
+}
+
 static int ipm(problem_t *p)
 {
-    const int64_t n = p->n, m = p->m, kd = p->kd;
+    const int64_t n = p->n, m = p->m, kd = p->kd, cw = kd + 1;
     const int8_t *kind = p->kind;
-    const double *lo = p->lo, *up = p->up, *q = p->q, *Pb = p->Pb;
-    double *x = p->x, *sl = p->sl, *su = p->su, *zl = p->zl, *zu = p->zu;
-    double *M = malloc(sizeof(double) * (size_t)(2 * (kd + 1) * n));
-    double *work = malloc(sizeof(double) * (size_t)(5 * n + 5 * m));
-    if (!M || !work) { free(M); free(work); return -1; }
-    double *M0 = M + (kd + 1) * n;      /* the normal matrix before factorisation */
-    double *Atz = work, *rhs = work + n, *dx = work + 2 * n, *Px = work + 3 * n;
-    double *res = work + 4 * n;
-    double *r = work + 5 * n, *adx_a = r + m, *adx = adx_a + m, *isl = adx + m, *isu = isl + m;
+    double *band = malloc(sizeof(double) * (size_t)(3 * cw * n));
+    double *work = malloc(sizeof(double) * (size_t)(6 * n + 9 * m));
+    if (!band || !work) { free(band); free(work); return -1; }
+    double *rw = work + 6 * n;          /* the rows' arrays */
+    work_t wk = {band, band + cw * n, band + 2 * cw * n, work, work + n, work + 2 * n,
+                 work + 3 * n, work + 4 * n, work + 5 * n, rw, rw + m, rw + 2 * m, rw + 3 * m,
+                 rw + 4 * m, rw + 5 * m, rw + 6 * m, rw + 7 * m, rw + 8 * m};
+    for (int64_t d = 0; d <= kd; d++)
+        for (int64_t j = 0; j < n; j++) wk.PbT[j * cw + d] = p->Pb[d * n + j];
     double qn = 0.0, bn = 0.0;
-    for (int64_t j = 0; j < n; j++) qn = dmax(qn, fabs(q[j]));
+    for (int64_t j = 0; j < n; j++) qn = dmax(qn, fabs(p->q[j]));
     for (int64_t i = 0; i < m; i++) {
-        if (kind[i] == 1 || kind[i] >= 3) bn = dmax(bn, fabs(lo[i]));
-        if (kind[i] == 2 || kind[i] == 3) bn = dmax(bn, fabs(up[i]));
+        if (kind[i] == 1 || kind[i] >= 3) bn = dmax(bn, fabs(p->lo[i]));
+        if (kind[i] == 2 || kind[i] == 3) bn = dmax(bn, fabs(p->up[i]));
     }
     double extent = box_extent(p);
     int status = ST_MAX_ITER;
     int64_t it;
     double min_step = 1.0, step = 0.0, smu = 0.0;
     for (it = 0; it <= p->max_iter; it++) {
-        /* pass 1: the previous step's update of slacks and multipliers (x is updated already),
-         * then residuals, normal matrix, A'z and the predictor's right side */
-        memcpy(M, Pb, sizeof(double) * (size_t)((kd + 1) * n));
-        memset(Atz, 0, sizeof(double) * (size_t)n);
-        memset(rhs, 0, sizeof(double) * (size_t)n);
-        double rp = 0.0, xn = 0.0, sn = 0.0, zn = 0.0, comp = 0.0, blin = 0.0;
-        int64_t cnt = 0;
-        for (int64_t i = 0; i < m; i++) {
-            int ki = kind[i];
-            if (ki == 0) continue;
-            if (it > 0) {
-                double a = adx[i], a0 = adx_a[i];
-                if (ki == 4) {
-                    zl[i] -= step * (a + r[i] - lo[i]) / EQ_DELTA;
-                } else {
-                    if (ki & 1) {
-                        LOWER_STEP(i, a, a0)
-                        sl[i] += step * dsl;
-                        zl[i] += step * dzl;
-                    }
-                    if (ki & 2) {
-                        UPPER_STEP(i, a, a0)
-                        su[i] += step * dsu;
-                        zu[i] += step * dzu;
-                    }
-                }
-            }
-            double ri = row_dot(p, i, x);
-            r[i] = ri;
-            double D = 0.0, w = 0.0, y = 0.0;
-            if (ki == 4) {
-                double re = ri - lo[i];
-                rp = dmax(rp, fabs(re));
-                D = 1.0 / EQ_DELTA;
-                w = re / EQ_DELTA;
-                y = zl[i];
-                zn = dmax(zn, fabs(y));
-                blin += lo[i] * y;
-            } else {
-                if (ki & 1) {
-                    double is = 1.0 / sl[i];
-                    isl[i] = is;
-                    double rpl = ri - sl[i] - lo[i], Dl = zl[i] * is;
-                    rp = dmax(rp, fabs(rpl));
-                    D += Dl; w += zl[i] + Dl * rpl; y += zl[i];
-                    comp += sl[i] * zl[i]; cnt++;
-                    sn = dmax(sn, sl[i]); zn = dmax(zn, zl[i]);
-                    blin += lo[i] * zl[i];
-                }
-                if (ki & 2) {
-                    double is = 1.0 / su[i];
-                    isu[i] = is;
-                    double rpu = ri + su[i] - up[i], Du = zu[i] * is;
-                    rp = dmax(rp, fabs(rpu));
-                    D += Du; w += -zu[i] + Du * rpu; y -= zu[i];
-                    comp += su[i] * zu[i]; cnt++;
-                    sn = dmax(sn, su[i]); zn = dmax(zn, zu[i]);
-                    blin -= up[i] * zu[i];
-                }
-            }
-            int64_t k0 = p->indptr[i], k1 = p->indptr[i + 1];
-            for (int64_t a = k0; a < k1; a++) {
-                int64_t ja = p->indices[a];
-                double va = p->data[a];
-                Atz[ja] += va * y;
-                rhs[ja] -= va * w;
-                double Dva = D * va;
-                for (int64_t b = k0; b <= a; b++)
-                    M[(ja - p->indices[b]) * n + p->indices[b]] += Dva * p->data[b];
-            }
-        }
-        double xPx = 0.0, qx = 0.0, rdn = 0.0, rd1 = 0.0, Atzn = 0.0, Pxn = 0.0;
-        for (int64_t j = 0; j < n; j++) {
-            double acc = Pb[j] * x[j];
-            for (int64_t d = 1; d <= kd; d++) {
-                if (j + d < n) acc += Pb[d * n + j] * x[j + d];
-                if (j - d >= 0) acc += Pb[d * n + j - d] * x[j - d];
-            }
-            Px[j] = acc;
-            xn = dmax(xn, fabs(x[j]));
-            xPx += x[j] * acc;
-            qx += q[j] * x[j];
-            double rdj = acc + q[j] - Atz[j];
-            rdn = dmax(rdn, fabs(rdj));
-            rd1 += fabs(rdj);
-            Atzn = dmax(Atzn, fabs(Atz[j]));
-            Pxn = dmax(Pxn, fabs(acc));
-            rhs[j] -= rdj;
-        }
-        double pobj = 0.5 * xPx + qx, dobj = -0.5 * xPx + blin;
-        double gap = fabs(pobj - dobj);
-        p->info[0] = pobj; p->info[1] = rp; p->info[2] = rdn; p->info[3] = gap;
-        p->info[6] = dmax(1.0, bn + xn + sn); p->info[7] = dmax(1.0, qn + Pxn + Atzn);
-        int feasible = rp <= p->eps * p->info[6] && rdn <= p->eps * p->info[7];
-        if (!isfinite(pobj) || !isfinite(rp) || !isfinite(rdn)) { status = ST_NUMERICAL; break; }
-        if (feasible && (gap <= p->gap_abs
-                         || gap <= p->eps * dmax(1.0, dmin(fabs(pobj), fabs(dobj))))) {
-            status = ST_SOLVED;
-            break;
-        }
-        /* On a degenerate optimum the dual residual can stall above its tolerance while the
-         * answer is as good as asked. With the primal feasible and every variable inside a box
-         * reaching at most `extent` from 0: f(x) - f(x*) <= gap + |Px + q - A'z|_1 extent
-         * (the Lagrangian's convexity; banded_ipm.py, _judge, derives and checks the same). */
-        if (rp <= p->eps * p->info[6] && gap + rd1 * extent <= p->gap_abs) {
-            status = ST_SOLVED;
-            break;
-        }
-        /* primal infeasibility: y = zl - zu with A'y ~ 0 and lo'zl - up'zu > 0, duals diverging */
-        if (blin > 0.0 && Atzn <= 1e-8 * blin && zn > 1e6 * dmax(1.0, qn)) {
-            status = ST_INFEASIBLE;
-            break;
-        }
+        row_sums_t rs;
+        var_sums_t vs;
+        pass_normal(p, &wk, it == 0, step, &rs);
+        pass_dual(p, &wk, &vs);
+        int verdict = judge(p, &rs, &vs, qn, bn, extent);
+        if (verdict >= 0) { status = verdict; break; }
         if (it == p->max_iter) break;
-        double mu = comp / (double)(cnt > 0 ? cnt : 1);
+        double mu = rs.comp / (double)(rs.cnt > 0 ? rs.cnt : 1);
 
-        memcpy(M0, M, sizeof(double) * (size_t)((kd + 1) * n));
-        band_factor(M, n, kd, 1e-13);
-        band_solve_refined(M, M0, n, kd, rhs, dx, res);
+        memcpy(wk.L0, wk.L, sizeof(double) * (size_t)(cw * n));
+        band_factor(wk.L, n, kd, 1e-13);
+        band_solve_refined(wk.L, wk.L0, n, kd, wk.rhs, wk.dx, wk.res);
 
-        /* pass 2: predictor's step length, and the sums that give the complementarity it
-         * reaches: sum (s + t ds)(z + t dz) = comp + t sum(s dz + z ds) + t^2 sum(ds dz) */
-        double alpha = 1.0, c1 = 0.0, c2 = 0.0;
-        for (int64_t i = 0; i < m; i++) {
-            int ki = kind[i];
-            if (ki == 0 || ki == 4) continue;
-            double a = row_dot(p, i, dx);
-            adx_a[i] = a;
-            if (ki & 1) {
-                double ds = a + (r[i] - sl[i] - lo[i]), dz = -zl[i] - zl[i] * isl[i] * ds;
-                if (ds < 0.0) alpha = dmin(alpha, -sl[i] / ds);
-                if (dz < 0.0) alpha = dmin(alpha, -zl[i] / dz);
-                c1 += sl[i] * dz + zl[i] * ds;
-                c2 += ds * dz;
-            }
-            if (ki & 2) {
-                double ds = -a - (r[i] + su[i] - up[i]), dz = -zu[i] - zu[i] * isu[i] * ds;
-                if (ds < 0.0) alpha = dmin(alpha, -su[i] / ds);
-                if (dz < 0.0) alpha = dmin(alpha, -zu[i] / dz);
-                c1 += su[i] * dz + zu[i] * ds;
-                c2 += ds * dz;
-            }
-        }
-        double mu_a = (comp + alpha * c1 + alpha * alpha * c2) / (double)(cnt > 0 ? cnt : 1);
+        double c1, c2;
+        double alpha = pass_predictor(p, &wk, &c1, &c2);
+        double mu_a = (rs.comp + alpha * c1 + alpha * alpha * c2)
+                      / (double)(rs.cnt > 0 ? rs.cnt : 1);
         double sigma = mu > 0.0 ? dmin(1.0, pow(dmax(mu_a, 0.0) / mu, 3.0)) : 0.0;
         smu = sigma * mu;
 
-        /* pass 3: corrector's right side */
-        for (int64_t j = 0; j < n; j++) rhs[j] = -(Px[j] + q[j] - Atz[j]);
-        for (int64_t i = 0; i < m; i++) {
-            int ki = kind[i];
-            if (ki == 0) continue;
-            double w = 0.0;
-            if (ki == 4) {
-                w = (r[i] - lo[i]) / EQ_DELTA;
-            } else {
-                double a = adx_a[i];
-                if (ki & 1) {
-                    double rpl = r[i] - sl[i] - lo[i], Dl = zl[i] * isl[i];
-                    w += target(sl[i], zl[i], Dl, a + rpl, smu) * isl[i] + Dl * rpl;
-                }
-                if (ki & 2) {
-                    double rpu = r[i] + su[i] - up[i], Du = zu[i] * isu[i];
-                    w += -target(su[i], zu[i], Du, -a - rpu, smu) * isu[i] + Du * rpu;
-                }
-            }
-            for (int64_t k = p->indptr[i]; k < p->indptr[i + 1]; k++)
-                rhs[p->indices[k]] -= p->data[k] * w;
-        }
-        band_solve_refined(M, M0, n, kd, rhs, dx, res);
+        corrector_rhs(p, &wk, smu);
+        band_solve_refined(wk.L, wk.L0, n, kd, wk.rhs, wk.dx, wk.res);
 
-        /* pass 4: the combined step's length (one length for primal and dual: the dual
-         * residual P x + q - A'z involves both); the update itself is the start of pass 1 */
-        alpha = 1.0;
-        for (int64_t i = 0; i < m; i++) {
-            int ki = kind[i];
-            if (ki == 0) continue;
-            double a = row_dot(p, i, dx);
-            adx[i] = a;
-            if (ki == 4) continue;
-            if (ki & 1) {
-                LOWER_STEP(i, a, adx_a[i])
-                if (dsl < 0.0) alpha = dmin(alpha, -sl[i] / dsl);
-                if (dzl < 0.0) alpha = dmin(alpha, -zl[i] / dzl);
-            }
-            if (ki & 2) {
-                UPPER_STEP(i, a, adx_a[i])
-                if (dsu < 0.0) alpha = dmin(alpha, -su[i] / dsu);
-                if (dzu < 0.0) alpha = dmin(alpha, -zu[i] / dzu);
-            }
-        }
-        step = 0.99 * alpha;
+        step = 0.99 * pass_step(p, &wk, smu);
         min_step = dmin(min_step, step);
         if (!(step >= 1e-10)) { status = ST_NUMERICAL; break; }
-        for (int64_t j = 0; j < n; j++) x[j] += step * dx[j];
+        for (int64_t j = 0; j < n; j++) p->x[j] += step * wk.dx[j];
     }
     p->info[4] = (double)it;
     p->info[5] = min_step;
-    free(M);
+    free(band);
     free(work);
     return status;
 }

@@ -137,16 +137,24 @@ def reduce_rows(cols, present, vals, lo, up, fixed, values):
     on_fixed = present & fixed[safe]
     on_free = present & ~on_fixed
     shift = np.zeros(cols.shape[0])
+    any_free = on_free[:, 0].copy()
     for j in range(cols.shape[1]):          # in station order, from zero, as scipy sums
         shift = shift + np.where(on_fixed[:, j], vals[:, j] * values[safe[:, j]], 0.0)
-    kept = on_free.any(axis=1) & (np.isfinite(lo) | np.isfinite(up))
-    on_free = on_free[kept]
-    counts = on_free.sum(axis=1)
+        if j:
+            any_free |= on_free[:, j]
+    # slot by slot rather than numpy's reductions along a row of three (several times faster
+    # on these narrow tables); the entries in row-major order as before
+    kept = any_free & (np.isfinite(lo) | np.isfinite(up))
+    on_free &= kept[:, None]
+    counts = on_free[:, 0].astype(np.int64)
+    for j in range(1, cols.shape[1]):
+        counts += on_free[:, j]
+    counts = counts[kept]
     indptr = np.zeros(counts.size + 1, dtype=np.int64)
     np.cumsum(counts, out=indptr[1:])
     free_number = np.cumsum(~fixed) - 1
-    indices = free_number[cols[kept][on_free]]
-    data = vals[kept][on_free]
+    indices = free_number[cols[on_free]]
+    data = vals[on_free]
     return (indptr, indices.astype(np.int64), data, lo[kept] - shift[kept],
             up[kept] - shift[kept], kept)
 
