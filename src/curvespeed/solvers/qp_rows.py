@@ -112,8 +112,9 @@ class RowQP:
         return P, self.q, A, self.lo, self.up
 
     def take(self, cols, rows) -> RowQP:
-        """The QP of variables ``cols`` (increasing) and rows ``rows`` (in the given order); the
-        rows must involve no other variable. ``P``'s entries linking ``cols`` to other variables
+        """The QP of variables ``cols`` (numbered in the order given: increasing within a block,
+        but a loop's blocks may come out of station order) and rows ``rows`` (in the given
+        order); the rows must involve no other variable. ``P``'s entries linking ``cols`` to other variables
         are left out (between independent blocks there are none)."""
         local = np.full(self.n, -1, dtype=np.int64)
         local[cols] = np.arange(cols.size)
