@@ -37,7 +37,6 @@ a step of curvature the candidate roads of :mod:`.steps` that the points cannot 
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -114,16 +113,16 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
     for family in scale_families(fit, u_points, values, weight, u_nodes, levels, noise,
                                  keep_level=ALIGNMENT_LEVEL):
         for scale in family.scales:
-            if scale.deltas is not None:
+            if scale.level == ALIGNMENT_LEVEL:
                 rebuilt = _reconstruction(scale, u_points, values, weight, u_nodes, station)
                 road = None if rebuilt is None else layout(
                     station, rebuilt[0].kappa, np.interp(u_points, u_nodes, station))
         if road is not None:
-            for scale, smoothed in zip(family.scales, family.smoothed(road, u_nodes)):
+            for scale, smoothed in family.smoothed(road, u_nodes, skip=(ALIGNMENT_LEVEL,)):
                 scale.lowered = lowered(rebuilt[0].kappa, smoothed, scale.kappa)
         for scale in family.scales:
             scale.system = None
-        scales += [scale for scale in family.scales if scale.deltas is None]
+        scales += [scale for scale in family.scales if scale.level != ALIGNMENT_LEVEL]
     kappa = np.array([sc.kappa for sc in scales])
     sd = np.array([sc.sd for sc in scales])
     width = np.array([sc.width for sc in scales])

@@ -46,7 +46,7 @@ DOUBLING_RHO = 8.0 * math.log10(2.0)
 #: included. Calibrated on steps from a straight into arcs of R 25 and 100 m and on a winding
 #: road with two such steps, points every 1 m with noise of 0, 1, 5 and 20 cm: at 3 the bound
 #: fell 3 % short of the true curvature next to a step, at 3.5 it just covered it, at 4 (used)
-#: it covers it with 0.1 % to spare (tests/test_reference_geometry.py checks coverage).
+#: it covers it with 0.1 % to spare (tests/test_reference_steps.py checks coverage).
 SPREAD_LENGTHS = 4.0
 
 
@@ -131,6 +131,7 @@ def scale_families(fit: SplineFit, u_points, values, weight, u_nodes, levels,
                                           n_int)
             for level, rho in grids[n_int]:
                 scale = Scale.build(system, rho, n_int, fit, u_nodes)
+                scale.level = level
                 scale.deltas = [] if level == keep_level else None
                 members.append(scale)
             if n_int != chain[0]:
@@ -152,10 +153,11 @@ class Family:
         self.scales = scales
         self.factors = [sc.system.factor(sc.rho) for sc in scales]
 
-    def responses(self, values: np.ndarray, overwrite: bool = False
+    def responses(self, values: np.ndarray, overwrite: bool = False, skip: tuple = ()
                   ) -> Iterator[tuple["Scale", np.ndarray]]:
-        """Each scale's spline coefficients for other data ``values`` at the same points
-        (``overwrite``: ``values`` may be scaled in place)."""
+        """Each scale's spline coefficients for other data ``values`` at the same points, but
+        for the scales of the levels in ``skip`` (``overwrite``: ``values`` may be scaled in
+        place)."""
         rhs = self.scales[0].system.project(values, overwrite=overwrite)
         del values              # (a chunk of noise: 128 MB on a log of 10^6 fixes)
         n_int = self.scales[0].n_int
@@ -163,16 +165,19 @@ class Family:
             while n_int > scale.n_int:
                 rhs = halve_projection(rhs, scale.periodic)
                 n_int //= 2
-            yield scale, scale.system.solve_projected(factor, rhs)
+            if scale.level not in skip:
+                yield scale, scale.system.solve_projected(factor, rhs)
 
-    def smoothed(self, values: np.ndarray, u_nodes: np.ndarray) -> list[np.ndarray]:
+    def smoothed(self, values: np.ndarray, u_nodes: np.ndarray, skip: tuple = ()
+                 ) -> list[tuple["Scale", np.ndarray]]:
         """Each scale's curvature at the nodes for other positions ``values`` (m, 2) at the
-        same points (open grids)."""
+        same points (open grids), but for the levels in ``skip``."""
         out = []
-        for scale, coef in self.responses(values):
+        for scale, coef in self.responses(values, skip=skip):
             spline = BSpline(scale.system.knots, coef, SPLINE_DEGREE, extrapolate=False)
             d1 = spline(u_nodes, nu=1)
-            out.append(cross(d1, spline(u_nodes, nu=2)) / np.hypot(d1[:, 0], d1[:, 1]) ** 3)
+            out.append((scale, cross(d1, spline(u_nodes, nu=2))
+                        / np.hypot(d1[:, 0], d1[:, 1]) ** 3))
         return out
 
 
@@ -182,6 +187,7 @@ class Scale:
 
     def __init__(self, system, rho, n_int, periodic, kappa, d1, d2, width):
         self.system, self.rho, self.n_int, self.periodic = system, rho, n_int, periodic
+        self.level = 0       # doublings coarser than the path fit (set by scale_families)
         self.kappa, self.d1, self.d2, self.width = kappa, d1, d2, width
         self.sum_sq = np.zeros_like(kappa)
         self.lowered = np.zeros_like(kappa)     # how much it rounds off peaks (smoothing_bias)

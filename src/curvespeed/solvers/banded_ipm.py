@@ -233,7 +233,7 @@ def _start(qp: _Banded):
     multipliers ``mu0 / slack`` so every pair starts on the central path, with ``mu0`` the size of
     the objective's gradient (so the duals can balance it from the first step: with
     ``mu0 = 1`` the benchmark QPs took 40-60 iterations instead of 18-23)."""
-    n, m = qp.Pb.shape[1], qp.lo.size
+    n = qp.Pb.shape[1]
     x = np.zeros(n)
     kind = qp.kind
     with np.errstate(invalid="ignore"):
