@@ -645,6 +645,18 @@ def test_zone_running_past_the_route_end_is_clipped_with_a_warning(tmp_path):
     assert v[s >= 80.0].max() <= 6.0 * (1 + 1e-4)       # the convex solver's verified tolerance
 
 
+def test_check_says_a_zone_past_the_route_end_once(tmp_path):
+    # check judges the speeds on the curvature's bound and on its estimate: two problems from
+    # the same limits, one warning about them
+    route = write(tmp_path, "r.csv", BEND)
+    limits = write(tmp_path, LIMITS_FILE, "[limits]\n[[zone]]\nstart_m = 80\nend_m = 5000\n"
+                                          "max_speed_mps = 6\n")
+    result = run("check", route, "-l", limits)
+    assert result.exit_code in (0, 1), result.output
+    said = [w for w in lines_of(result, "warning:") if "runs past the route" in w]
+    assert len(said) == 1, result.output
+
+
 # ---------------------------------------------------------------------------- speeds files
 
 def _planned(tmp_path):

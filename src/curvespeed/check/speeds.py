@@ -184,7 +184,14 @@ def judge_speeds(geometry: Geometry, limits: Limits, used: RouteConstraints, v: 
     """
     on_bound = _judge_on(geometry, limits, used, v, kind)
     estimate = estimate_geometry(geometry)
-    on_estimate = on_bound if estimate is geometry else _judge_on(estimate, limits, used, v, kind)
+    if estimate is geometry:
+        on_estimate = on_bound
+    else:
+        with warnings.catch_warnings():
+            # the same route length, limits and constraints: any warning about them (a zone
+            # past the end, say) was shown once for the bound's problem
+            warnings.simplefilter("ignore", CurvespeedWarning)
+            on_estimate = _judge_on(estimate, limits, used, v, kind)
     problem, use_b, accel, lateral_b, reach_b = on_bound
     problem_e, use_e, _, lateral_e, reach_e = on_estimate
     ceiling_b, ceiling_e = problem.lateral_ceiling_b(), problem_e.lateral_ceiling_b()
