@@ -262,6 +262,9 @@ REFUSED = {
         "plan", {"r.csv": BEND, LIMITS_FILE: "[limits]\n[[stop]]\nstation_m = 900\n"},
         ["{r.csv}", "-l", "{limits.toml}", "-o", "{out}"], LIMITS_FILE,
         ["[[stop]] #1", "stop at station 900 m lies outside the route"]),
+    "stop at an absurd station": (
+        "plan", {"r.csv": BEND}, ["{r.csv}", "--stop", "1e300", "-o", "{out}"],
+        None, ["--stop: stop at station 1e+300 m lies outside the route (0.."]),
     "start speed that cannot stop in time": (
         "plan", {"r.csv": BEND}, ["{r.csv}", "--start-speed", "25", "--stop", "30", "-o", "{out}"],
         None, ["--stop: the stop at station 30 m is 30.0 m from the start, too close to come "

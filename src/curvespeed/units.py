@@ -41,6 +41,9 @@ def format_apart(value: float, bound: float, decimals: int = 1) -> tuple[str, st
 
 
 def _short(value: float, places: int) -> str:
-    """``value`` with at most ``places`` decimals and no trailing zeros (100000, 12.5)."""
+    """``value`` with at most ``places`` decimals and no trailing zeros (100000, 12.5); in
+    exponent form beyond a billion (1e+300, not three hundred digits)."""
+    if abs(value) >= 1e9:
+        return f"{value:g}"
     text = f"{value:.{places}f}".rstrip("0").rstrip(".")
     return text or "0"
