@@ -77,6 +77,30 @@ def parse_route_gpx(data: bytes, source: str, track: int | None = None) -> Route
     def q(name: str) -> str:
         return f"{{{ns}}}{name}" if ns else name
 
+    kind, chosen, points, segment_sizes = _chosen_points(root, q, source, track)
+    lat, lon, ele, times, where = _read_points(points, q, kind, source)
+    z = _all_or_none(ele, ~np.isnan(ele), "elevation (<ele>)", kind, source)
+    have_time = np.array([t is not None for t in times])
+    time_s = None
+    if _all_or_none(have_time, have_time, "time (<time>)", kind, source) is not None:
+        t0 = times[0]
+        time_s = np.array([(t - t0).total_seconds() for t in times])
+
+    name = _text(chosen.find(q("name")))
+    if name is None:
+        metadata = root.find(q("metadata"))  # GPX 1.1
+        name = _text(metadata.find(q("name")) if metadata is not None else root.find(q("name")))
+    x, y, projection = project_latlon(lat, lon, source)
+    if kind.endswith("trkpt"):
+        _warn_gaps(x, y, time_s, np.cumsum([m for m in segment_sizes if m])[:-1], source)
+    return make_route(x, y, z, where=where, source=source, projection=projection,
+                      time_s=time_s, name=name)
+
+
+def _chosen_points(root, q, source: str, track: int | None):
+    """The track (or route) to read: ``(kind, element, points, segment sizes)``, ``kind`` the
+    points' label (``trkpt``, ``trk K trkpt`` or ``rtept``). Warns about the tracks and routes
+    left out; refuses a file without points or a ``track`` it does not have."""
     tracks = [(trk, [pt for seg in trk.findall(q("trkseg")) for pt in seg.findall(q("trkpt"))])
               for trk in root.findall(q("trk"))]
     segment_sizes = {id(trk): [len(seg.findall(q("trkpt"))) for seg in trk.findall(q("trkseg"))]
@@ -108,7 +132,12 @@ def parse_route_gpx(data: bytes, source: str, track: int | None = None) -> Route
                 if ignored.get("track") else "")
         warnings.warn(f"{source}: used the first {what} with points; ignored "
                       f"{' and '.join(skipped)}{hint}", CurvespeedWarning)
+    return kind, chosen, points, segment_sizes.get(id(chosen), [])
 
+
+def _read_points(points, q, kind: str, source: str):
+    """Latitude, longitude, elevation (NaN where a point has none), times (None where none) and
+    each point's label, checked point by point."""
     n = len(points)
     lat = np.empty(n)
     lon = np.empty(n)
@@ -134,24 +163,7 @@ def parse_route_gpx(data: bytes, source: str, track: int | None = None) -> Route
         time_el = pt.find(q("time"))
         if time_el is not None:
             times[i] = _parse_time(time_el.text or "", source, where[i])
-
-    z = _all_or_none(ele, ~np.isnan(ele), "elevation (<ele>)", kind, source)
-    have_time = np.array([t is not None for t in times])
-    time_s = None
-    if _all_or_none(have_time, have_time, "time (<time>)", kind, source) is not None:
-        t0 = times[0]
-        time_s = np.array([(t - t0).total_seconds() for t in times])
-
-    name = _text(chosen.find(q("name")))
-    if name is None:
-        metadata = root.find(q("metadata"))  # GPX 1.1
-        name = _text(metadata.find(q("name")) if metadata is not None else root.find(q("name")))
-    x, y, projection = project_latlon(lat, lon, source)
-    if kind.endswith("trkpt"):
-        sizes = [m for m in segment_sizes[id(chosen)] if m]
-        _warn_gaps(x, y, time_s, np.cumsum(sizes)[:-1], source)
-    return make_route(x, y, z, where=where, source=source, projection=projection,
-                      time_s=time_s, name=name)
+    return lat, lon, ele, times, where
 
 
 def count_gpx_tracks(data: bytes, source: str) -> int:
