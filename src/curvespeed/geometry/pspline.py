@@ -234,15 +234,28 @@ def derivative_basis(span: float, n_int: int, u: np.ndarray,
                      nu: int) -> sparse.csr_matrix:
     """Sparse ``M`` with ``M @ c`` the ``nu``-th derivative at ``u`` (within ``[0, span]``) of
     the spline on the uniform grid of ``n_int`` intervals with coefficients ``c`` (the knots of
-    :func:`penalised_system`; a periodic system's coefficients wrapped to ``n_int + degree``).
-    Each point's interval carries the same polynomial pieces (:func:`_uniform_basis_polynomials`),
-    differentiated in the power basis: a few passes over the points, where a general design
-    matrix and de Boor's derivative formula took most of the replicates' evaluation on a long
-    log."""
+    :func:`penalised_system`; a periodic system's coefficients wrapped to ``n_int + degree``):
+    the rows of :func:`derivative_values`."""
+    k = SPLINE_DEGREE
+    first, vals = derivative_values(span, n_int, u, nu)
+    cols = first[:, None] + np.arange(k + 1)
+    return sparse.csr_matrix((vals.ravel(), cols.ravel(),
+                              np.arange(0, u.size * (k + 1) + 1, k + 1)),
+                             shape=(u.size, n_int + k))
+
+
+def derivative_values(span: float, n_int: int, u: np.ndarray,
+                      nu: int) -> tuple[np.ndarray, np.ndarray]:
+    """The ``nu``-th derivatives at ``u`` of the ``degree + 1`` B-splines of the uniform grid
+    (:func:`derivative_basis`) that are nonzero there: the first one's index (int64, one per
+    point) and their values (shape ``(u.size, degree + 1)``, C order). Each point's interval
+    carries the same polynomial pieces (:func:`_uniform_basis_polynomials`), differentiated in
+    the power basis: a few passes over the points, where a general design matrix and de Boor's
+    derivative formula took most of the replicates' evaluation on a long log."""
     k = SPLINE_DEGREE
     h = span / n_int
     rel = np.clip(u, 0.0, span) / h
-    first = np.clip(np.floor(rel).astype(np.intp), 0, n_int - 1)
+    first = np.clip(np.floor(rel).astype(np.int64), 0, n_int - 1)
     tau = rel - first
     poly = _uniform_basis_polynomials()
     # d^nu / dtau^nu of tau^p is p! / (p - nu)! tau^(p - nu); d tau / du = 1 / h
@@ -251,10 +264,7 @@ def derivative_basis(span: float, n_int: int, u: np.ndarray,
     for c in coef[-2::-1]:
         vals_t *= tau
         vals_t += c[:, None]
-    cols_t = first + np.arange(k + 1)[:, None]
-    return sparse.csr_matrix((vals_t.T.ravel(), cols_t.T.ravel(),
-                              np.arange(0, u.size * (k + 1) + 1, k + 1)),
-                             shape=(u.size, n_int + k))
+    return first, np.ascontiguousarray(vals_t.T)
 
 
 def halve_projection(rhs: np.ndarray, periodic: bool) -> np.ndarray:
