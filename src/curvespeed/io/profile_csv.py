@@ -84,9 +84,8 @@ class StepKind(enum.Enum):
 
 def step_kinds(profile: Profile) -> list[str]:
     """The ``step_kind`` cell of every row: the step to the next station, empty on the last."""
-    kinds = [(StepKind.JERK_RAMP if ramp else StepKind.CONSTANT_ACCEL).value
-             for ramp in np.asarray(profile.rest_step, dtype=bool).tolist()]
-    return kinds + [""]
+    cell = (StepKind.CONSTANT_ACCEL.value, StepKind.JERK_RAMP.value)
+    return [cell[ramp] for ramp in np.asarray(profile.rest_step, dtype=bool).tolist()] + [""]
 
 
 def profile_columns(profile: Profile) -> dict[str, tuple[object, str]]:
