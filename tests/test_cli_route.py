@@ -128,6 +128,26 @@ def test_command_line_starts_without_the_numerical_libraries():
     subprocess.run([sys.executable, "-c", code], check=True)
 
 
+def test_a_command_loads_no_other_command():
+    # each subcommand's module is imported when its command is asked for, so a run of `plan`
+    # reads none of the others (nor what they import at their top); --help still lists all
+    import subprocess
+    import sys
+
+    code = ("import sys\n"
+            "from click.testing import CliRunner\n"
+            "from curvespeed.cli.main import cli\n"
+            "result = CliRunner().invoke(cli, ['plan', '--help'])\n"
+            "assert result.exit_code == 0 and 'ROUTE_FILE' in result.output, result.output\n"
+            "others = sorted(m for m in sys.modules if m.startswith('curvespeed.cli.')\n"
+            "                and m.endswith('_cmd') and m != 'curvespeed.cli.plan_cmd')\n"
+            "assert not others, others\n"
+            "listed = CliRunner().invoke(cli, ['--help']).output\n"
+            "assert all(c in listed for c in ('batch', 'check', 'export', 'plan', 'plot', "
+            "'replay', 'report', 'route')), listed\n")
+    subprocess.run([sys.executable, "-c", code], check=True)
+
+
 def test_several_drives_are_fused_from_files_or_tracks(tmp_path):
     # Two simulated drives of an invented road by a consumer receiver at 10 Hz: as two files
     # (--drive) or as two tracks of one GPX file (--all-tracks), fused into one route; the
