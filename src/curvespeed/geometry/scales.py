@@ -17,7 +17,6 @@ import math
 from collections.abc import Callable, Iterator
 
 import numpy as np
-from scipy.interpolate import BSpline
 
 from .pspline import (
     SPLINE_DEGREE,
@@ -27,6 +26,7 @@ from .pspline import (
     halve_projection,
     penalised_system,
 )
+from .uniform_spline import UniformSpline
 
 try:
     from . import _replicate_curvature
@@ -180,7 +180,7 @@ class Family:
         same points (open grids), but for the levels in ``skip``."""
         out = []
         for scale, coef in self.responses(values, skip=skip):
-            spline = BSpline(scale.system.knots, coef, SPLINE_DEGREE, extrapolate=False)
+            spline = UniformSpline(scale.system.knots, coef, SPLINE_DEGREE)
             d1 = spline(u_nodes, nu=1)
             out.append((scale, cross(d1, spline(u_nodes, nu=2))
                         / np.hypot(d1[:, 0], d1[:, 1]) ** 3))
@@ -206,7 +206,7 @@ class Scale:
         coef = system.coefficients(rho)
         if fit.periodic:
             coef = coef[np.arange(n_int + SPLINE_DEGREE) % n_int]
-        base = BSpline(system.knots, coef, SPLINE_DEGREE, extrapolate=False)
+        base = UniformSpline(system.knots, coef, SPLINE_DEGREE)
         d1, d2 = base(u_nodes, nu=1), base(u_nodes, nu=2)
         kappa = cross(d1, d2) / np.hypot(d1[:, 0], d1[:, 1]) ** 3
         width = SPREAD_LENGTHS * smoothing_length(system, rho, u_nodes, fit.span)
