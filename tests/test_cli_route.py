@@ -148,6 +148,27 @@ def test_a_command_loads_no_other_command():
     subprocess.run([sys.executable, "-c", code], check=True)
 
 
+def test_plan_loads_no_general_spline_root_or_special_function_library(tmp_path):
+    # the fits evaluate their uniform-knot splines, find their smoothing weight and the noise
+    # bound's quantile themselves: importing scipy.interpolate (which imports scipy.optimize)
+    # and scipy.special took a quarter of a plan's start-up
+    import subprocess
+    import sys
+
+    code = ("import sys\n"
+            "from click.testing import CliRunner\n"
+            "from curvespeed.cli.main import cli\n"
+            f"args = ['plan', {str(ROUTES / 'mountain_road.csv')!r}, '-o', "
+            f"{str(tmp_path / 'p.csv')!r}]\n"
+            "result = CliRunner().invoke(cli, args)\n"
+            "assert result.exit_code == 0, result.output\n"
+            "loaded = sorted(m for m in ('scipy.interpolate', 'scipy.optimize', 'scipy.special') "
+            "if m in sys.modules)\n"
+            "assert not loaded, loaded\n")
+    subprocess.run([sys.executable, "-c", code], check=True)
+    assert (tmp_path / "p.csv").read_text().startswith("station_m,")
+
+
 def test_several_drives_are_fused_from_files_or_tracks(tmp_path):
     # Two simulated drives of an invented road by a consumer receiver at 10 Hz: as two files
     # (--drive) or as two tracks of one GPX file (--all-tracks), fused into one route; the
