@@ -83,11 +83,16 @@ class UniformSpline:
         n_int = self.c.shape[0] - self.k
         first, tau = locate((flat - self._start) / self._h, n_int)
         vals = basis_values(self.k, tau, nu, self._h)
-        out = np.zeros((flat.size,) + self.c.shape[1:])
-        for r in range(self.k + 1):
-            out += vals[r].reshape((-1,) + (1,) * (self.c.ndim - 1)) * self.c[first + r]
-        out[(flat < self._start) | (flat > self._end) | np.isnan(flat)] = np.nan
-        return out.reshape(x.shape + self.c.shape[1:])
+        # a column of coefficients at a time: gathers and products on contiguous 1-D arrays
+        columns = self.c.reshape(self.c.shape[0], -1).T
+        out = np.empty((columns.shape[0], flat.size))
+        rows = [first + r for r in range(self.k + 1)]
+        for column, total in zip(columns, out):
+            np.multiply(vals[0], column[rows[0]], out=total)
+            for r in range(1, self.k + 1):
+                total += vals[r] * column[rows[r]]
+        out[:, (flat < self._start) | (flat > self._end) | np.isnan(flat)] = np.nan
+        return np.ascontiguousarray(out.T).reshape(x.shape + self.c.shape[1:])
 
     def derivative(self, nu: int = 1) -> "UniformSpline":
         """The spline of the ``nu``-th derivative (degree ``k - nu``, knots trimmed at both
