@@ -151,7 +151,7 @@ def test_a_command_loads_no_other_command():
 def test_plan_loads_no_general_spline_root_or_special_function_library(tmp_path):
     # the fits evaluate their uniform-knot splines, find their smoothing weight and the noise
     # bound's quantile themselves: importing scipy.interpolate (which imports scipy.optimize)
-    # and scipy.special took a quarter of a plan's start-up
+    # and scipy.special was 0.2-0.3 s of every plan's start-up
     import subprocess
     import sys
 
