@@ -1,5 +1,6 @@
 """Build step for the compiled kernels (the banded interior-point iterations, the envelope's
-passes, the alignment's optimal partitioning and the smoothing scales' banded solves);
+passes, the alignment's optimal partitioning, the smoothing scales' banded solves and their
+noise replicates' curvature);
 everything else about the package is declared in pyproject.toml.
 
 The kernels use only the Python C API's buffer protocol, so a C compiler is all they need. They
@@ -20,4 +21,5 @@ def kernel(name: str, package: str = "solvers") -> Extension:
 # -ffp-contract=off and no -ffast-math: the envelope's passes stay the Python loops' twin to the
 # last bit (no fused multiply-adds, no reordering)
 setup(ext_modules=[kernel("_banded_ipm"), kernel("_envelope_passes"),
-                   kernel("_partition", "geometry"), kernel("_band_solve", "geometry")])
+                   kernel("_partition", "geometry"), kernel("_band_solve", "geometry"),
+                   kernel("_replicate_curvature", "geometry")])

@@ -128,6 +128,47 @@ def test_command_line_starts_without_the_numerical_libraries():
     subprocess.run([sys.executable, "-c", code], check=True)
 
 
+def test_a_command_loads_no_other_command():
+    # each subcommand's module is imported when its command is asked for, so a run of `plan`
+    # reads none of the others (nor what they import at their top); --help still lists all
+    import subprocess
+    import sys
+
+    code = ("import sys\n"
+            "from click.testing import CliRunner\n"
+            "from curvespeed.cli.main import cli\n"
+            "result = CliRunner().invoke(cli, ['plan', '--help'])\n"
+            "assert result.exit_code == 0 and 'ROUTE_FILE' in result.output, result.output\n"
+            "others = sorted(m for m in sys.modules if m.startswith('curvespeed.cli.')\n"
+            "                and m.endswith('_cmd') and m != 'curvespeed.cli.plan_cmd')\n"
+            "assert not others, others\n"
+            "listed = CliRunner().invoke(cli, ['--help']).output\n"
+            "assert all(c in listed for c in ('batch', 'check', 'export', 'plan', 'plot', "
+            "'replay', 'report', 'route')), listed\n")
+    subprocess.run([sys.executable, "-c", code], check=True)
+
+
+def test_plan_loads_no_general_spline_root_or_special_function_library(tmp_path):
+    # the fits evaluate their uniform-knot splines, find their smoothing weight and the noise
+    # bound's quantile themselves: importing scipy.interpolate (which imports scipy.optimize)
+    # and scipy.special was 0.2-0.3 s of every plan's start-up
+    import subprocess
+    import sys
+
+    code = ("import sys\n"
+            "from click.testing import CliRunner\n"
+            "from curvespeed.cli.main import cli\n"
+            f"args = ['plan', {str(ROUTES / 'mountain_road.csv')!r}, '-o', "
+            f"{str(tmp_path / 'p.csv')!r}]\n"
+            "result = CliRunner().invoke(cli, args)\n"
+            "assert result.exit_code == 0, result.output\n"
+            "loaded = sorted(m for m in ('scipy.interpolate', 'scipy.optimize', 'scipy.special') "
+            "if m in sys.modules)\n"
+            "assert not loaded, loaded\n")
+    subprocess.run([sys.executable, "-c", code], check=True)
+    assert (tmp_path / "p.csv").read_text().startswith("station_m,")
+
+
 def test_several_drives_are_fused_from_files_or_tracks(tmp_path):
     # Two simulated drives of an invented road by a consumer receiver at 10 Hz: as two files
     # (--drive) or as two tracks of one GPX file (--all-tracks), fused into one route; the

@@ -603,6 +603,43 @@ def test_fixed_point_columns_are_written_as_python_formats_each_value():
         assert format_column(values, spec) == expected, spec
 
 
+def test_csv_text_is_python_formats_cell_by_cell(monkeypatch):
+    # format_columns formats the fixed-point float columns of a block of rows in one `%` (and
+    # replaces the values that would print as a negative zero by 0.0 first); its text must be
+    # exactly the cell-by-cell reference: Python's own correctly rounded format() of each value,
+    # negative zero dropped, text cells as they are, quoted text as RFC 4180 quotes it, rows
+    # joined by commas and newlines. Several row blocks (the block made 7 rows), an integer
+    # column, an exponent format and negative text included.
+    from curvespeed.io import _format
+
+    monkeypatch.setattr(_format, "_ROW_BLOCK", 7)
+    rng = np.random.default_rng(11)
+    n = 40
+    values = rng.normal(size=n) * 10.0 ** rng.integers(-9, 4, n)
+    values[:6] = [-0.0, -4e-7, -5e-5, np.nan, -np.inf, 1e300]
+    columns = {
+        "a_m": (values, ".4f"), "b_1pm": (-values * 1e-3, ".9f"), "c": (np.arange(n), ".2f"),
+        "d": (values, ".3e"), "kind": (np.array(["x", "-0.0", "y z"] * 13 + ["w"]), "s"),
+        "name": (["plain", 'a "b", c'] * 20, _format.QUOTED)}
+    expected_rows = [",".join(columns)]
+    for i in range(n):
+        row = []
+        for name, (col, spec) in columns.items():
+            if spec == _format.QUOTED:
+                text = col[i]
+                row.append('"' + text.replace('"', '""') + '"' if "," in text else text)
+                continue
+            cell = format(np.asarray(col)[i].item(), spec)
+            mantissa = cell[1:].split("e")[0]
+            row.append(cell[1:] if cell.startswith("-") and set(mantissa) <= {"0", "."}
+                       else cell)
+        expected_rows.append(",".join(row))
+    assert format_columns(columns) == "\n".join(expected_rows) + "\n"
+    assert format_columns({"a": (np.zeros(0), ".1f")}) == "a\n"
+    with pytest.raises(ValueError, match="'y,z' contains a comma"):
+        format_columns({"a": (np.zeros(2), ".1f"), "k": (np.array(["x", "y,z"]), "s")})
+
+
 def test_json_nesting_is_judged_from_the_brackets_before_parsing():
     # 64 levels are read; 65 are refused before json.loads recurses (deeper documents made
     # the parser's own RecursionError and, now and then, an unraisable-exception traceback);

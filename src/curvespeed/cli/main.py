@@ -1,12 +1,13 @@
 """Entry point of the ``curvespeed`` command: the group, error mapping and warning display.
 
 Exit status: 0 success, 1 a check found violations (``check``), 2 bad input or a request that
-cannot be met. Subcommands live one per module; heavy libraries are imported inside them so
-``curvespeed --help`` stays instant.
+cannot be met. Subcommands live one per module, imported when their command runs; heavy
+libraries are imported inside them so ``curvespeed --help`` stays instant.
 """
 
 from __future__ import annotations
 
+import importlib
 import warnings
 
 import click
@@ -19,11 +20,29 @@ def _show_warning(message, category, filename, lineno, file=None, line=None):
     click.echo(f"{prefix}: {message}", err=True)
 
 
+#: Subcommand -> the module under ``cli`` that defines it (as a function of the same name).
+_COMMANDS = {"route": "route_cmd", "plan": "plan_cmd", "check": "check_cmd",
+             "export": "export_cmd", "plot": "plot_cmd", "batch": "batch_cmd",
+             "replay": "replay_cmd", "report": "report_cmd"}
+
+
 class _Group(click.Group):
+    """The command group, each subcommand's module imported when that command is asked for:
+    a run of one command reads (and compiles, without cached bytecode) none of the others'."""
+
     def main(self, *args, **kwargs):
         warnings.showwarning = _show_warning
         # click exits with 2 on usage errors already, matching our bad-input status.
         return super().main(*args, **kwargs)
+
+    def list_commands(self, ctx) -> list[str]:
+        return sorted(_COMMANDS)
+
+    def get_command(self, ctx, name: str):
+        if name not in _COMMANDS:
+            return None
+        module = importlib.import_module(f"{__package__}.{_COMMANDS[name]}")
+        return getattr(module, name)
 
 
 @click.group(cls=_Group, context_settings={"help_option_names": ["-h", "--help"]})
@@ -34,23 +53,6 @@ def cli() -> None:
     Profiles are engineering aids. Speeds used on public roads and advisory signs follow local
     codes and licensed engineering practice.
     """
-
-
-def _register() -> None:
-    from . import (batch_cmd, check_cmd, export_cmd, plan_cmd, plot_cmd, replay_cmd,
-                   report_cmd, route_cmd)
-
-    cli.add_command(route_cmd.route)
-    cli.add_command(plan_cmd.plan)
-    cli.add_command(check_cmd.check)
-    cli.add_command(export_cmd.export)
-    cli.add_command(plot_cmd.plot)
-    cli.add_command(batch_cmd.batch)
-    cli.add_command(replay_cmd.replay)
-    cli.add_command(report_cmd.report)
-
-
-_register()
 
 
 def main() -> None:  # console-script entry point

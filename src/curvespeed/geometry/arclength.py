@@ -7,9 +7,9 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.polynomial import legendre
-from scipy.interpolate import BSpline
 
 from .pspline import SPLINE_DEGREE, SplineFit
+from .uniform_spline import basis_values
 
 _GAUSS_NODES = 10                    # Gauss-Legendre nodes per arc-length piece
 ARC_PIECE_M = 2.0                   # longest piece of parameter one Gauss-Legendre rule spans
@@ -57,10 +57,7 @@ class ArcLength:
         # the same values at the same relative nodes: evaluate them once on interval 0.
         local = (np.arange(sub)[:, None] + 0.5 * (1.0 + nodes)) * h          # (sub, q)
         local = np.clip(local.ravel(), 0.0, knot_h)
-        stencil = BSpline.design_matrix(local, deriv.t, k - 1).toarray()
-        if np.any(stencil[:, k:]):
-            raise AssertionError("unexpected B-spline support on the first knot interval")
-        stencil = stencil[:, :k]
+        stencil = basis_values(k - 1, local / knot_h).T                     # (sub * q, k)
         coef = deriv.c
         velocity = np.zeros((n_int, sub * q, coef.shape[1]))
         for r in range(k):

@@ -279,13 +279,14 @@ def _choose_scales(kappa, sd, width, station) -> np.ndarray:
 def _ramp(level: np.ndarray, station: np.ndarray, ramp_m: float) -> np.ndarray:
     """The largest function below ``level`` that changes by at most one per ``ramp_m`` metres
     (a lower envelope of cones, by a forward and a backward pass)."""
-    out = level.astype(float)
-    step = np.diff(station) / max(ramp_m, 1e-9)
-    for i in range(1, out.size):
+    # on Python floats: the same arithmetic as on numpy's scalars, four times faster
+    out = level.astype(float).tolist()
+    step = (np.diff(station) / max(ramp_m, 1e-9)).tolist()
+    for i in range(1, len(out)):
         out[i] = min(out[i], out[i - 1] + step[i - 1])
-    for i in range(out.size - 2, -1, -1):
+    for i in range(len(out) - 2, -1, -1):
         out[i] = min(out[i], out[i + 1] + step[i])
-    return out
+    return np.array(out)
 
 
 def _reach_mask(mask, station, width) -> np.ndarray:

@@ -3,18 +3,18 @@
 from __future__ import annotations
 
 import math
+import sys
 import warnings
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import special
 
 from ..errors import CurvespeedWarning
 
 #: Neighbours on each side of a point used to predict it in :func:`estimate_scatter`: a quintic
 #: (degree 2 * 3 - 1, the spline's own degree) through the three points before and after.
 SCATTER_NEIGHBOURS = 3
-_SCATTER_BOUND_LEVEL = float(special.ndtr(-2.0))   # one-sided, two standard deviations
+_SCATTER_BOUND_Z = -2.0            # one-sided, two standard deviations
 
 
 def estimate_noise(u: np.ndarray, values: np.ndarray, span: float, periodic: bool,
@@ -115,9 +115,58 @@ def estimate_scatter(u: np.ndarray, values: np.ndarray, span: float, periodic: b
     if not bound:
         return math.sqrt(mean_square)
     # mean_square * n_eff / sigma^2 is about chi-square with n_eff degrees of freedom; its
-    # lower quantile (scipy's chi2.ppf(p, k) is 2 * gammaincinv(k / 2, p)) gives the bound.
-    low = 2.0 * special.gammaincinv(0.5 * n_eff, _SCATTER_BOUND_LEVEL)
+    # lower quantile gives the bound.
+    low = chi_square_quantile(n_eff, _SCATTER_BOUND_Z)
     return math.sqrt(mean_square * n_eff / low)
+
+
+def chi_square_quantile(dof: float, z: float) -> float:
+    """The quantile of the chi-square distribution with ``dof`` degrees of freedom (4 or more)
+    at probability ``Phi(z)`` (the normal distribution's; ``z`` up to 0): ``2 x`` for the ``x``
+    with ``P(dof / 2, x) = Phi(z)``, ``P`` the regularised lower incomplete gamma function, by
+    Newton's method from the Wilson-Hilferty approximation (Wilson and Hilferty, 1931; from
+    memory). ``P(a, x)`` is its power series ``x^a e^-x / Gamma(a + 1) sum_n x^n / ((a + 1)
+    ... (a + n))`` (Abramowitz and Stegun 6.5.29, from memory; it converges where ``x < a + 1``,
+    as every lower quantile has), the prefactor in logarithms about ``x = a`` so that large
+    ``a`` keeps its digits. The test suite checks it against scipy's ``chi2.ppf``."""
+    a, p = 0.5 * dof, 0.5 * math.erfc(-z / math.sqrt(2.0))
+    root = 1.0 / (9.0 * a)
+    x = a * max(1.0 - root + z * math.sqrt(root), 0.1) ** 3
+    last = math.inf
+    for _ in range(50):
+        lower, log_density = _gamma_p(a, x)
+        step = (lower - p) / math.exp(log_density)
+        # converged: a step of round-off, or one no smaller than the last once it is tiny
+        if abs(step) <= 4.0 * sys.float_info.epsilon * x or (
+                abs(step) >= last and abs(step) <= 1e-12 * x):
+            return 2.0 * (x - step)
+        last = abs(step)
+        x = x - step if x - step > 0.0 else 0.5 * x
+    raise ArithmeticError(f"no chi-square quantile for {dof} degrees of freedom")
+
+
+def _gamma_p(a: float, x: float) -> tuple[float, float]:
+    """``P(a, x)`` for ``0 < x < a + 1`` and the logarithm of its derivative in ``x``."""
+    if a >= 30.0:      # log(x^a e^-x / Gamma(a + 1)) about x = a: a (log1p(t) - t) - ..., t = x/a - 1
+        t = x / a - 1.0
+        if abs(t) < 0.1:                          # log1p(t) - t = -t^2/2 + t^3/3 - ...
+            log_shape, power = 0.0, t
+            for n in range(2, 40):
+                power *= -t
+                log_shape += power / n
+        else:
+            log_shape = math.log1p(t) - t
+        # log Gamma(a + 1) = a log a - a + log(2 pi a) / 2 + 1/(12 a) - 1/(360 a^3) + ... (Stirling)
+        stirling = (1.0 / (12.0 * a) - 1.0 / (360.0 * a**3) + 1.0 / (1260.0 * a**5)
+                    - 1.0 / (1680.0 * a**7))
+        log_prefactor = a * log_shape - 0.5 * math.log(2.0 * math.pi * a) - stirling
+    else:
+        log_prefactor = a * math.log(x) - x - math.lgamma(a + 1.0)
+    # for x <= a + 1 the n-th term is below exp(-(n^2 / 2 - n) / a): 12 sqrt(a) + 60 terms
+    # take it below 1e-30 of the first
+    terms = np.cumprod(x / (a + np.arange(1.0, 12.0 * math.sqrt(a + 1.0) + 60.0)))
+    series = 1.0 + math.fsum(terms.tolist())
+    return math.exp(log_prefactor) * series, log_prefactor + math.log(a / x)
 
 
 #: Normalised squared errors are capped at this factor squared times their 90th percentile.

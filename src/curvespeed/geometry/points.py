@@ -90,7 +90,6 @@ import warnings
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.interpolate import BSpline
 from scipy.linalg import LinAlgError
 
 from ..errors import CurvespeedWarning, RouteGeometryError
@@ -103,6 +102,7 @@ from .elevation import fit_elevation, warn_steep_grades
 from .model import Geometry
 from .noise import NoiseChoice, choose_noise, estimate_noise
 from .pspline import SplineFit, fit_pspline, residual_target
+from .uniform_spline import UniformSpline
 
 #: Knot intervals per median spacing of the points in the first fit (see _knot_spacing).
 KNOTS_PER_SPACING = 2
@@ -377,7 +377,7 @@ def _fit_path(x, y, count, closed, stated_noise, spacing_m, source) -> _PathFit:
     return _PathFit(fit, arc, u, noise, scale)
 
 
-def curvature_and_heading(spline: BSpline, u: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def curvature_and_heading(spline: UniformSpline, u: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Signed curvature ``(x' y'' - y' x'') / |c'|^3`` and heading ``atan2(y', x')`` at ``u``."""
     d1 = spline(u, nu=1)
     d2 = spline(u, nu=2)
@@ -469,7 +469,7 @@ def _knot_spacing(gaps: np.ndarray, span: float) -> float:
                span / (2 * KNOTS_PER_SPACING * n_points))
 
 
-def _foot_parameter(spline: BSpline, px: float, py: float, u0: float, span: float) -> float:
+def _foot_parameter(spline: UniformSpline, px: float, py: float, u0: float, span: float) -> float:
     """Parameter of the point of the fitted path nearest (px, py), by Newton from ``u0``."""
     u = u0
     for _ in range(50):

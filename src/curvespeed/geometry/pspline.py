@@ -11,15 +11,15 @@ a fit is O(m) in the number of points. The reasons for each choice are in
 from __future__ import annotations
 
 import copy
-import functools
 import math
 from dataclasses import dataclass
 
 import numpy as np
 from scipy import sparse
-from scipy.interpolate import BSpline
 from scipy.linalg import LinAlgError, cho_solve_banded, cholesky_banded, solveh_banded
-from scipy.optimize import brentq
+
+from .roots import brent_root
+from .uniform_spline import UniformSpline, basis_values, design_rows, locate
 
 try:
     from . import _band_solve
@@ -63,7 +63,7 @@ def residual_target(n_components: int) -> float:
 class SplineFit:
     """A B-spline c(u) on uniform knots over ``[0, span]`` (one period when ``periodic``)."""
 
-    spline: BSpline
+    spline: UniformSpline
     span: float
     n_intervals: int
     periodic: bool
@@ -133,7 +133,7 @@ def fit_pspline(u, values, weight, target_ss, span, periodic, knot_spacing) -> S
                 break
             rho_est = lo - 2 * PENALTY_ORDER              # refine by 10x at least
         else:
-            root = rho_est = brentq(lambda r: excess(system, r), lo, top, xtol=_LOG_LAMBDA_XTOL)
+            root = rho_est = brent_root(lambda r: excess(system, r), lo, top, _LOG_LAMBDA_XTOL)
             if rho_est >= _LOG_LAMBDA_REFINE or n_int == n_fine:
                 break
         factor = 10.0 ** ((rho_est - _LOG_LAMBDA_AIM) / (2 * PENALTY_ORDER))
@@ -152,7 +152,7 @@ def fit_pspline(u, values, weight, target_ss, span, periodic, knot_spacing) -> S
     coef = system.coefficients(rho)
     if periodic:
         coef = coef[np.arange(n_int + SPLINE_DEGREE) % n_int]
-    spline = BSpline(system.knots, coef, SPLINE_DEGREE, extrapolate=False)
+    spline = UniformSpline(system.knots, coef, SPLINE_DEGREE)
     return SplineFit(spline, span, n_int, periodic, system.residual(rho), target_ss, too_rough,
                      rho, system)
 
@@ -224,9 +224,9 @@ def null_space_spline(null_fit, null_ss, target_ss, span, periodic, n_int) -> Sp
     if periodic:
         coef = null_fit(np.zeros(n_coef))        # a constant: equal coefficients
     else:    # a cubic lies in the spline space, so least squares on samples reproduces it
-        design = BSpline.design_matrix(samples, knots, k).toarray()
+        design = design_rows(k, knots, samples)
         coef = np.linalg.lstsq(design, null_fit(samples), rcond=None)[0]
-    spline = BSpline(knots, coef, k, extrapolate=False)
+    spline = UniformSpline(knots, coef, k)
     return SplineFit(spline, span, n_int, periodic, null_ss, target_ss, False, math.inf)
 
 
@@ -234,27 +234,27 @@ def derivative_basis(span: float, n_int: int, u: np.ndarray,
                      nu: int) -> sparse.csr_matrix:
     """Sparse ``M`` with ``M @ c`` the ``nu``-th derivative at ``u`` (within ``[0, span]``) of
     the spline on the uniform grid of ``n_int`` intervals with coefficients ``c`` (the knots of
-    :func:`penalised_system`; a periodic system's coefficients wrapped to ``n_int + degree``).
-    Each point's interval carries the same polynomial pieces (:func:`_uniform_basis_polynomials`),
-    differentiated in the power basis: a few passes over the points, where a general design
-    matrix and de Boor's derivative formula took most of the replicates' evaluation on a long
-    log."""
+    :func:`penalised_system`; a periodic system's coefficients wrapped to ``n_int + degree``):
+    the rows of :func:`derivative_values`."""
     k = SPLINE_DEGREE
-    h = span / n_int
-    rel = np.clip(u, 0.0, span) / h
-    first = np.clip(np.floor(rel).astype(np.intp), 0, n_int - 1)
-    tau = rel - first
-    poly = _uniform_basis_polynomials()
-    # d^nu / dtau^nu of tau^p is p! / (p - nu)! tau^(p - nu); d tau / du = 1 / h
-    coef = [poly[p] * (math.perm(p, nu) / h**nu) for p in range(nu, k + 1)]
-    vals_t = np.repeat(coef[-1][:, None], u.size, axis=1)
-    for c in coef[-2::-1]:
-        vals_t *= tau
-        vals_t += c[:, None]
-    cols_t = first + np.arange(k + 1)[:, None]
-    return sparse.csr_matrix((vals_t.T.ravel(), cols_t.T.ravel(),
+    first, vals = derivative_values(span, n_int, u, nu)
+    cols = first[:, None] + np.arange(k + 1)
+    return sparse.csr_matrix((vals.ravel(), cols.ravel(),
                               np.arange(0, u.size * (k + 1) + 1, k + 1)),
                              shape=(u.size, n_int + k))
+
+
+def derivative_values(span: float, n_int: int, u: np.ndarray,
+                      nu: int) -> tuple[np.ndarray, np.ndarray]:
+    """The ``nu``-th derivatives at ``u`` of the ``degree + 1`` B-splines of the uniform grid
+    (:func:`derivative_basis`) that are nonzero there: the first one's index (int64, one per
+    point) and their values (shape ``(u.size, degree + 1)``, C order). Each point's interval
+    carries the same polynomial pieces (:func:`.uniform_spline.basis_values`): a few passes over
+    the points, where a general design matrix and de Boor's derivative formula took most of the
+    replicates' evaluation on a long log."""
+    h = span / n_int
+    first, tau = locate(np.clip(u, 0.0, span) / h, n_int)
+    return first, np.ascontiguousarray(basis_values(SPLINE_DEGREE, tau, nu, h).T)
 
 
 def halve_projection(rhs: np.ndarray, periodic: bool) -> np.ndarray:
@@ -285,21 +285,6 @@ def halve_projection(rhs: np.ndarray, periodic: bool) -> np.ndarray:
     return out
 
 
-@functools.cache
-def _uniform_basis_polynomials() -> np.ndarray:
-    """Power-basis coefficients of the k+1 uniform B-spline pieces on one knot interval.
-
-    Row ``p`` holds the coefficients of ``tau**p`` (``tau`` in [0, 1]) for the basis functions
-    ``j .. j+k`` that are nonzero on interval ``j``; taken from scipy's B-spline evaluation at
-    ``k+1`` points, which determines the degree-k pieces exactly.
-    """
-    k = SPLINE_DEGREE
-    knots = np.arange(-k, k + 2, dtype=float)            # one interval [0, 1] with full support
-    tau = (np.arange(k + 1) + 0.5) / (k + 1)
-    values = BSpline.design_matrix(tau, knots, k).toarray()[:, : k + 1]
-    return np.linalg.solve(np.vander(tau, k + 1, increasing=True), values)
-
-
 class _PenalisedSystem:
     """Normal equations of the P-spline on one knot grid, solved for any ``lam``.
 
@@ -325,14 +310,8 @@ class _PenalisedSystem:
         n = n_int if periodic else n_int + k
 
         # Basis values: on uniform knots every interval carries the same k+1 polynomial pieces.
-        rel = np.clip(u, 0.0, span) / h
-        first = np.clip(np.floor(rel).astype(np.intp), 0, n_int - 1)
-        tau = rel - first
-        poly = _uniform_basis_polynomials()
-        vals_t = np.repeat(poly[k][:, None], m, axis=1)     # (k+1, m): basis r at point i
-        for p in range(k - 1, -1, -1):
-            vals_t *= tau
-            vals_t += poly[p][:, None]
+        first, tau = locate(np.clip(u, 0.0, span) / h, n_int)
+        vals_t = basis_values(k, tau)                      # (k+1, m): basis r at point i
         cols_t = first + np.arange(k + 1)[:, None]
         if periodic:
             cols_t %= n
@@ -482,7 +461,7 @@ class _PenalisedSystem:
         return other
 
     def local_response(self, rho: float, values: np.ndarray, points: np.ndarray,
-                       margin: float) -> tuple[BSpline, np.ndarray]:
+                       margin: float) -> tuple[UniformSpline, np.ndarray]:
         """The smoother's response to data ``values`` (len(points), c) that is zero at every
         point but ``points`` (indices, ascending), solved on the coefficients within ``margin``
         (parameter units) of those points only: the inverse of the banded normal matrix decays
@@ -502,7 +481,7 @@ class _PenalisedSystem:
         rows = self._basis[points][:, lo:hi]
         rhs = rows.T @ (self._w2[points, None] * values)
         delta = solveh_banded(band, rhs, overwrite_ab=True, overwrite_b=True, check_finite=False)
-        return BSpline(self.knots[lo: hi + k + 1], delta, k, extrapolate=False), delta
+        return UniformSpline(self.knots[lo: hi + k + 1], delta, k), delta
 
     def weight_density(self) -> np.ndarray:
         """Data weight per coefficient (the diagonal of ``B^T W B``), for local smoothing widths."""

@@ -17,15 +17,21 @@ import math
 from collections.abc import Callable, Iterator
 
 import numpy as np
-from scipy.interpolate import BSpline
 
 from .pspline import (
     SPLINE_DEGREE,
     SplineFit,
     derivative_basis,
+    derivative_values,
     halve_projection,
     penalised_system,
 )
+from .uniform_spline import UniformSpline
+
+try:
+    from . import _replicate_curvature
+except ImportError:         # no C compiler at install: the numpy path below
+    _replicate_curvature = None
 
 #: Noise replicates for the standard deviation of curvature (its relative error is about
 #: 1 / sqrt(2 * REPLICATES) = 13 %).
@@ -174,7 +180,7 @@ class Family:
         same points (open grids), but for the levels in ``skip``."""
         out = []
         for scale, coef in self.responses(values, skip=skip):
-            spline = BSpline(scale.system.knots, coef, SPLINE_DEGREE, extrapolate=False)
+            spline = UniformSpline(scale.system.knots, coef, SPLINE_DEGREE)
             d1 = spline(u_nodes, nu=1)
             out.append((scale, cross(d1, spline(u_nodes, nu=2))
                         / np.hypot(d1[:, 0], d1[:, 1]) ** 3))
@@ -200,7 +206,7 @@ class Scale:
         coef = system.coefficients(rho)
         if fit.periodic:
             coef = coef[np.arange(n_int + SPLINE_DEGREE) % n_int]
-        base = BSpline(system.knots, coef, SPLINE_DEGREE, extrapolate=False)
+        base = UniformSpline(system.knots, coef, SPLINE_DEGREE)
         d1, d2 = base(u_nodes, nu=1), base(u_nodes, nu=2)
         kappa = cross(d1, d2) / np.hypot(d1[:, 0], d1[:, 1]) ** 3
         width = SPREAD_LENGTHS * smoothing_length(system, rho, u_nodes, fit.span)
@@ -211,34 +217,52 @@ class Scale:
         """Standard deviation of curvature over the replicates, 1/m."""
         return np.sqrt(self.sum_sq / REPLICATES)
 
-    def _bases(self, u_nodes: np.ndarray, at: slice):
-        """The first and second derivatives of this scale's B-splines at ``u_nodes[at]``, as
-        sparse matrices: three times faster than evaluating a spline of the replicates'
+    def _bases(self, u_nodes: np.ndarray, at: slice, compiled: bool):
+        """The first and second derivatives of this scale's B-splines at ``u_nodes[at]``: as
+        the compiled kernel takes them (:func:`.pspline.derivative_values`), or as sparse
+        matrices, three times faster than evaluating a spline of the replicates'
         coefficients. Kept for the next chunk of replicates when one block holds every node
         (on longer routes a family's scales would hold a block each)."""
-        if self.bases is not None and self.bases[0] == at:
+        if self.bases is not None and self.bases[0] == (at, compiled):
             return self.bases[1]
         u = u_nodes[at]
         span = float(self.system.knots[self.n_int + SPLINE_DEGREE])
-        bases = (derivative_basis(span, self.n_int, u, 1),
-                 derivative_basis(span, self.n_int, u, 2))
-        self.bases = (at, bases) if u.size == u_nodes.size else None
+        if compiled:
+            first, v1 = derivative_values(span, self.n_int, u, 1)
+            bases = (first, v1, derivative_values(span, self.n_int, u, 2)[1])
+        else:
+            bases = (derivative_basis(span, self.n_int, u, 1),
+                     derivative_basis(span, self.n_int, u, 2))
+        self.bases = ((at, compiled), bases) if u.size == u_nodes.size else None
         return bases
 
-    def add_replicates(self, delta: np.ndarray, u_nodes: np.ndarray) -> None:
+    def add_replicates(self, delta: np.ndarray, u_nodes: np.ndarray,
+                       compiled: bool | None = None) -> None:
         """Add the curvature changes of smoothed noise replicates (their spline coefficients,
-        ``delta``: the fit is linear in the data) and keep them."""
+        ``delta``: the fit is linear in the data) and keep them. ``compiled``: by the compiled
+        kernel (default: when it was built) or by numpy, its reference."""
+        if compiled is None:
+            compiled = _replicate_curvature is not None
         if self.periodic:
             delta = delta[np.arange(self.n_int + SPLINE_DEGREE) % self.n_int]
-        change = np.empty((u_nodes.size, delta.shape[1] // 2))
+        n_rep = delta.shape[1] // 2
+        change = np.empty((u_nodes.size, n_rep))
+        if compiled:
+            delta = np.ascontiguousarray(delta, dtype=float)
         for lo in range(0, u_nodes.size, _NODE_BLOCK):     # bounded memory on long routes
             at = slice(lo, lo + _NODE_BLOCK)
-            first, second = self._bases(u_nodes, at)
-            e1 = (first @ delta).reshape(-1, 2, change.shape[1])
-            e2 = (second @ delta).reshape(-1, 2, change.shape[1])
+            bases = self._bases(u_nodes, at, compiled)
+            if compiled:
+                first, v1, v2 = bases
+                _replicate_curvature.changes(
+                    first, v1, v2, delta, self.d1[at], self.d2[at], self.kappa[at], change[at],
+                    first.size, SPLINE_DEGREE + 1, delta.shape[0], n_rep)
+                continue
+            e1 = (bases[0] @ delta).reshape(-1, 2, n_rep)
+            e2 = (bases[1] @ delta).reshape(-1, 2, n_rep)
             p1, p2 = self.d1[at, :, None] + e1, self.d2[at, :, None] + e2
-            varied = cross(p1, p2) / np.hypot(p1[:, 0], p1[:, 1]) ** 3
-            change[at] = varied - self.kappa[at, None]
+            speed_sq = p1[:, 0] ** 2 + p1[:, 1] ** 2           # the kernel's |r'|^3, alike
+            change[at] = cross(p1, p2) / (speed_sq * np.sqrt(speed_sq)) - self.kappa[at, None]
         self.sum_sq += np.sum(change**2, axis=1)
         if self.deltas is not None:
             self.deltas.append(change)

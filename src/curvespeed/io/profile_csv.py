@@ -32,17 +32,19 @@ import enum
 import os
 import warnings
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from ..errors import CurvespeedWarning, SpeedFileError
-from ..export import (StationProfile, make_station_profile, planned_time_mismatch,
-                      rest_time_coef_from_times, steps_next_to_rest)
 from ..profile import Profile
 from ._format import format_columns
 from .atomic import write_text_atomic
 from .geometry_csv import geometry_columns
 from .table_csv import Table, read_table_csv
+
+if TYPE_CHECKING:
+    from ..export import StationProfile
 
 #: Speeds (m/s), accelerations (m/s^2), jerk (m/s^3) and times (s): 1e-6.
 KINEMATIC = ".6f"
@@ -84,9 +86,8 @@ class StepKind(enum.Enum):
 
 def step_kinds(profile: Profile) -> list[str]:
     """The ``step_kind`` cell of every row: the step to the next station, empty on the last."""
-    kinds = [(StepKind.JERK_RAMP if ramp else StepKind.CONSTANT_ACCEL).value
-             for ramp in np.asarray(profile.rest_step, dtype=bool).tolist()]
-    return kinds + [""]
+    cell = (StepKind.CONSTANT_ACCEL.value, StepKind.JERK_RAMP.value)
+    return [cell[ramp] for ramp in np.asarray(profile.rest_step, dtype=bool).tolist()] + [""]
 
 
 def profile_columns(profile: Profile) -> dict[str, tuple[object, str]]:
@@ -148,6 +149,9 @@ def read_station_profile(path: str | os.PathLike, name: str | None = None) -> St
         increasing, a negative speed, or a step with zero speed at both ends; the message names
         the file and line.
     """
+    # the export layer only where a profile is read (writing one, as plan does, needs none of it)
+    from ..export import make_station_profile, planned_time_mismatch, steps_next_to_rest
+
     table = read_table_csv(path, min_rows=2)
     required = table.require(*REQUIRED_PROFILE_COLUMNS, what="a profile (export and plot)")
     optional = {c: table.columns.get(c) for c in _OPTIONAL_PROFILE_COLUMNS}
@@ -227,6 +231,8 @@ def _rest_time_coef(table: Table, kinds: np.ndarray) -> np.ndarray:
             f"{table.source}: {table.where[k]}: column 'step_kind' value "
             f"'{StepKind.JERK_RAMP.value}' needs the time_s column (the step's shape follows from "
             "its time); add time_s, or remove the step_kind column")
+    from ..export import rest_time_coef_from_times
+
     s, v = table.columns["station_m"], table.columns["speed_mps"]
     with np.errstate(divide="ignore", invalid="ignore"):
         from_times = rest_time_coef_from_times(s, v, times)
@@ -236,6 +242,8 @@ def _rest_time_coef(table: Table, kinds: np.ndarray) -> np.ndarray:
 def _check_rest_steps(table: Table, kinds: np.ndarray, speed_mps: np.ndarray) -> None:
     """Refuse a step kind next to rest on a step without exactly one end at rest (file, line,
     value)."""
+    from ..export import steps_next_to_rest
+
     bad = np.flatnonzero(np.isin(kinds, _REST_KINDS) & ~steps_next_to_rest(speed_mps))
     if bad.size:
         k = int(bad[0])
