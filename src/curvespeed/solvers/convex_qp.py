@@ -279,12 +279,15 @@ class QPBuilder:
     def _accel_rows(self, b_hat: np.ndarray):
         """Acceleration chords (and power tangents) at both nodes of each step: a row table
         ``(cols, vals, lo, up)``, two slots a row (the step's nodes). A chord that is not
-        needed (one chord enough, or the same row at the step's other end) is no row."""
+        needed (one chord enough, or the same row at the step's other end) is no row.
+
+        A chord belongs to a node, so each is worked out once per node (:meth:`_chords`) and
+        gathered to the steps at either end: the same numbers as working it out per step, every
+        operation being elementwise. Rows come ends first, then sides, segments and steps."""
         p, lay, ds = self.p, self.lay, self.ds
         nv = lay.nv
         e = self.b_env[:nv]
         h = 1.0 / (2.0 * ds)
-        margin = self.opt.margin
         # break points: 0 < m < e, with m the current iterate kept within [2 %, 99.5 %] of the
         # envelope. Near a lateral limit the limit bends sharply just below the envelope: with
         # the cap at 98 % a closed test loop with a comfort weight stopped 3e-4 slower than the
@@ -293,86 +296,84 @@ class QPBuilder:
         # gained no more and made the 100 km QPs 30 % slower.
         m = np.clip(b_hat, 0.02 * e, 0.995 * e)
         m = np.where(e - b_hat < 1e-9 * np.maximum(e, 1.0), 0.5 * e, m)
-        pts = [np.zeros(nv), m, e]
-        at_m = self._node_bounds(m, slice(0, nv))
+        lo_m, hi_m = self._node_bounds(m, slice(0, nv))
         (lo_0, hi_0), (lo_e, hi_e) = self._bounds_at_rest_and_envelope
-        lo_pts, hi_pts = (lo_0, at_m[0], lo_e), (hi_0, at_m[1], hi_e)
+        chords = {"hi": self._chords(hi_0, hi_m, hi_e, m, e),
+                  "lo": self._chords(lo_0, lo_m, lo_e, m, e)}
         sf, st = lay.step_from, lay.step_to
-        c_from_all, c_to_all, lower, upper = [], [], [], []
-
-        def add_rows(v1, v2, lo, up):
-            c_from_all.append(v1)
-            c_to_all.append(v2)
-            lower.append(lo)
-            upper.append(up)
-
-        # A concave hi (convex lo) is replaced by its chords on [0, m] and [m, e]; where the
-        # single chord on [0, e] is within chord_tolerance of it at m (straights, gentle curves)
-        # that one row is enough. Rows identical at both ends of a step are kept once.
-        rows_seen = {}
+        parts = []                  # (steps, c_from, c_to, lo, up) of each block of rows
+        seen = {}
         for end, fac in ((sf, lay.f_first), (st, lay.f_last)):
+            fh = fac * h
             for side in ("hi", "lo"):
-                f = hi_pts if side == "hi" else lo_pts
-                f0, fm, fe = f[0][end], f[1][end], f[2][end]
-                p0, pm_, pe = pts[0][end], pts[1][end], pts[2][end]
-                # tightened by `margin` of the bound itself, not of the cap: a cap far above
-                # what grip allows (max_accel 1e6) must not tighten the grip rows by 10 m/s^2
-                a_tol = margin * np.maximum(np.maximum(np.abs(f0), np.abs(fm)), np.abs(fe))
-                wide = pe - p0 > 1e-12
-                whole = np.where(wide, (fe - f0) / np.where(wide, pe - p0, 1.0), 0.0)
-                dev = np.abs(fm - (f0 + whole * (pm_ - p0)))
-                single = dev <= self.opt.chord_tolerance_mps2
-                for seg, (p1, p2, f1, f2) in enumerate(((p0, pm_, f0, fm), (pm_, pe, fm, fe))):
-                    width = p2 - p1
-                    ok = width > 1e-12
-                    slope = np.where(ok, (f2 - f1) / np.where(ok, width, 1.0), 0.0)
-                    rhs = f1 - slope * p1
-                    if seg == 0:
-                        slope = np.where(single, whole, slope)
-                        rhs = np.where(single, f0 - whole * p0, rhs)
-                        ok = ok | single
-                    else:
-                        ok = ok & ~single
-                    c_from, c_to = _accel_minus_slope(end is sf, fac * h, slope)
+                segs, a_tol = chords[side]
+                for seg, (slope, rhs, ok) in enumerate(segs):
+                    slope, rhs, ok = slope[end], rhs[end], ok[end]
+                    c_from, c_to = _accel_minus_slope(end is sf, fh, slope)
                     key = (side, seg)
-                    if key in rows_seen:    # same row already at the other end of the step
-                        pc_from, pc_to, prhs = rows_seen[key]
-                        same = (pc_from == c_from) & (pc_to == c_to) & (prhs == rhs)
-                        ok = ok & ~same
+                    if key in seen:     # same row already at the other end of the step
+                        pc_from, pc_to, prhs = seen[key]
+                        ok = ok & ~((pc_from == c_from) & (pc_to == c_to) & (prhs == rhs))
                     else:
-                        rows_seen[key] = (c_from, c_to, rhs)
+                        seen[key] = (c_from, c_to, rhs)
+                    k = np.flatnonzero(ok)
+                    tol = a_tol[end[k]]
                     if side == "hi":
-                        add_rows(c_from, c_to, np.full(sf.size, -np.inf),
-                                 np.where(ok, rhs - a_tol, np.inf))
+                        parts.append((k, c_from[k], c_to[k], None, rhs[k] - tol))
                     else:
-                        add_rows(c_from, c_to, np.where(ok, rhs + a_tol, -np.inf),
-                                 np.full(sf.size, np.inf))
-
-        # power: tangents of P/(m sqrt(b)) - res(b) at m and e (drive side only)
+                        parts.append((k, c_from[k], c_to[k], rhs[k] + tol, None))
         if self.has_power:
-            pm = p.limits.power_per_mass_wpkg
-            for end, fac in ((sf, lay.f_first), (st, lay.f_last)):
-                for q in (m, e):
-                    bq = np.maximum(q[end], B_FLOOR)
-                    res0 = p.resistance(0.0, nodes=end)
-                    res1 = p.resistance(1.0, nodes=end) - res0      # d res / d b
-                    f0 = pm / np.sqrt(bq)
-                    slope = -0.5 * pm / bq ** 1.5 - res1
-                    bound = f0 - res0 - res1 * bq                   # the limit at bq
-                    rhs = bound - slope * bq - margin * np.abs(bound)
-                    c_from, c_to = _accel_minus_slope(end is sf, fac * h, slope)
-                    add_rows(c_from, c_to, np.full(sf.size, -np.inf), rhs)
+            parts += self._power_rows(m, e, h)
+        return _join_rows(parts, sf, st)
 
-        lower, upper = np.concatenate(lower), np.concatenate(upper)
-        need = np.flatnonzero(np.isfinite(lower) | np.isfinite(upper))
-        cols = np.empty((need.size, 2), dtype=np.int64)
-        step = need % sf.size               # the k blocks of rows each run over every step
-        cols[:, 0] = sf[step]
-        cols[:, 1] = st[step]
-        vals = np.empty((need.size, 2))
-        vals[:, 0] = np.concatenate(c_from_all)[need]
-        vals[:, 1] = np.concatenate(c_to_all)[need]
-        return cols, vals, lower[need], upper[need]
+    def _chords(self, f0, fm, fe, m, e):
+        """One side's chords at every node: a concave hi (convex lo) is replaced by its chords
+        on ``[0, m]`` and ``[m, e]``; where the single chord on ``[0, e]`` is within
+        ``chord_tolerance`` of it at ``m`` (straights, gentle curves) that one row is enough.
+        Returns each segment's ``(slope, rhs, ok)`` and the node's tolerance ``a_tol``."""
+        p0 = np.zeros(m.size)
+        # tightened by `margin` of the bound itself, not of the cap: a cap far above what grip
+        # allows (max_accel 1e6) must not tighten the grip rows by 10 m/s^2
+        a_tol = self.opt.margin * np.maximum(np.maximum(np.abs(f0), np.abs(fm)), np.abs(fe))
+        wide = e - p0 > 1e-12
+        whole = np.where(wide, (fe - f0) / np.where(wide, e - p0, 1.0), 0.0)
+        dev = np.abs(fm - (f0 + whole * (m - p0)))
+        single = dev <= self.opt.chord_tolerance_mps2
+        segs = []
+        for seg, (p1, p2, f1, f2) in enumerate(((p0, m, f0, fm), (m, e, fm, fe))):
+            width = p2 - p1
+            ok = width > 1e-12
+            slope = np.where(ok, (f2 - f1) / np.where(ok, width, 1.0), 0.0)
+            rhs = f1 - slope * p1
+            if seg == 0:
+                slope = np.where(single, whole, slope)
+                rhs = np.where(single, f0 - whole * p0, rhs)
+                ok = ok | single
+            else:
+                ok = ok & ~single
+            segs.append((slope, rhs, ok))
+        return segs, a_tol
+
+    def _power_rows(self, m, e, h):
+        """Tangents of ``P/(m sqrt(b)) - res(b)`` at ``m`` and ``e`` at both nodes of each step
+        (drive side only), as blocks of :meth:`_accel_rows`."""
+        p, lay, margin = self.p, self.lay, self.opt.margin
+        pm = p.limits.power_per_mass_wpkg
+        sf, st = lay.step_from, lay.step_to
+        parts = []
+        for end, fac in ((sf, lay.f_first), (st, lay.f_last)):
+            for q in (m, e):
+                bq = np.maximum(q[end], B_FLOOR)
+                res0 = p.resistance(0.0, nodes=end)
+                res1 = p.resistance(1.0, nodes=end) - res0      # d res / d b
+                f0 = pm / np.sqrt(bq)
+                slope = -0.5 * pm / bq ** 1.5 - res1
+                bound = f0 - res0 - res1 * bq                   # the limit at bq
+                rhs = bound - slope * bq - margin * np.abs(bound)
+                c_from, c_to = _accel_minus_slope(end is sf, fac * h, slope)
+                k = np.flatnonzero(np.isfinite(rhs))
+                parts.append((k, c_from[k], c_to[k], None, rhs[k]))
+        return parts
 
     def rows(self, b_hat: np.ndarray):
         """Every row of the iteration's QP around ``b_hat`` as canonical row tables over the
@@ -482,3 +483,20 @@ def _accel_minus_slope(at_first_node: bool, fh, slope):
     if at_first_node:
         return -fh - slope, fh
     return -fh, fh - slope
+
+
+def _join_rows(parts, step_from, step_to):
+    """The blocks ``(steps, c_from, c_to, lo, up)`` of :meth:`QPBuilder._accel_rows` (``None``
+    for an infinite side) joined into one row table ``(cols, vals, lo, up)`` in their order."""
+    steps = np.concatenate([k for k, *_ in parts])
+    cols = np.empty((steps.size, 2), dtype=np.int64)
+    cols[:, 0] = step_from[steps]
+    cols[:, 1] = step_to[steps]
+    vals = np.empty((steps.size, 2))
+    vals[:, 0] = np.concatenate([c for _, c, _, _, _ in parts])
+    vals[:, 1] = np.concatenate([c for _, _, c, _, _ in parts])
+    lo = np.concatenate([np.full(k.size, -np.inf) if v is None else v
+                         for k, _, _, v, _ in parts])
+    up = np.concatenate([np.full(k.size, np.inf) if v is None else v
+                         for k, _, _, _, v in parts])
+    return cols, vals, lo, up
