@@ -1,0 +1,125 @@
+/* Compiled twin of curvespeed.solvers.qp_rows.reduce_rows: the fixed stations eliminated from a
+ * canonical row table and the free stations' rows written as compressed rows.
+ *
+ * The same operations in the same order as the numpy function (which stays as the reference the
+ * tests compare against): a row's shift sums, slot by slot from zero, the fixed stations' terms
+ * (0.0 added where a slot holds none, as numpy's where does), so the sides agree to the last bit.
+ * The rows are written straight after those of the tables before (one set of compressed rows for
+ * the whole QP, no joining afterwards). Only the buffer protocol of the Python C API is used.
+ */
+#define PY_SSIZE_T_CLEAN
+#include <Python.h>
+#include <math.h>
+#include <stdint.h>
+#include <string.h>
+
+/* An array of `items` entries (at least that many for an output) of kind 'q' (int64), 'd'
+ * (double) or '?' (bool). */
+static int get(PyObject *o, Py_buffer *v, int writable, Py_ssize_t items, char kind)
+{
+    int flags = PyBUF_C_CONTIGUOUS | PyBUF_FORMAT | (writable ? PyBUF_WRITABLE : 0);
+    if (PyObject_GetBuffer(o, v, flags) != 0) return -1;
+    Py_ssize_t size = kind == '?' ? 1 : 8;
+    const char *f = v->format;
+    int fmt_ok = kind == '?' ? strcmp(f, "?") == 0
+               : kind == 'q' ? (strcmp(f, "q") == 0 || (strcmp(f, "l") == 0 && sizeof(long) == 8))
+               : strcmp(f, "d") == 0;
+    int len_ok = writable ? v->len >= items * size : v->len == items * size;
+    if (!fmt_ok || v->itemsize != size || !len_ok) {
+        PyErr_SetString(PyExc_ValueError, "qp_rows kernel: an array has the wrong type or "
+                        "is too short");
+        PyBuffer_Release(v);
+        return -1;
+    }
+    return 0;
+}
+
+/* reduce_into(cols, present, vals, lo, up, fixed, values, free_number, indptr, indices, data,
+ *             lo_out, up_out, row0, k0) -> (row1, k1) */
+static PyObject *py_reduce_into(PyObject *self, PyObject *args)
+{
+    (void)self;
+    PyObject *o[13];
+    long long row0, k0;
+    if (!PyArg_ParseTuple(args, "OOOOOOOOOOOOOLL", &o[0], &o[1], &o[2], &o[3], &o[4], &o[5],
+                          &o[6], &o[7], &o[8], &o[9], &o[10], &o[11], &o[12], &row0, &k0))
+        return NULL;
+    Py_buffer v[13];
+    int got = 0;
+    PyObject *result = NULL;
+    /* sizes: m rows of w slots (lo's length and cols' length), nv stations (fixed's length) */
+    Py_buffer probe;
+    if (PyObject_GetBuffer(o[3], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
+    Py_ssize_t m = probe.len / 8;
+    PyBuffer_Release(&probe);
+    if (PyObject_GetBuffer(o[0], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
+    Py_ssize_t w = m > 0 ? probe.len / 8 / m : 0;
+    PyBuffer_Release(&probe);
+    if (PyObject_GetBuffer(o[5], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
+    Py_ssize_t nv = probe.len;
+    PyBuffer_Release(&probe);
+    if (row0 < 0 || k0 < 0 || (m == 0 ? 0 : w < 1)) {
+        PyErr_SetString(PyExc_ValueError, "qp_rows kernel: bad sizes");
+        return NULL;
+    }
+    const char kinds[13] = {'q', '?', 'd', 'd', 'd', '?', 'd', 'q', 'q', 'q', 'd', 'd', 'd'};
+    const Py_ssize_t items[13] = {m * w, m * w, m * w, m, m, nv, nv, nv, row0 + m + 1,
+                                  k0 + m * w, k0 + m * w, row0 + m, row0 + m};
+    for (got = 0; got < 13; got++)
+        if (get(o[got], &v[got], got >= 8, items[got], kinds[got]) != 0) goto done;
+    {
+        const int64_t *cols = v[0].buf, *free_number = v[7].buf;
+        const char *present = v[1].buf, *fixed = v[5].buf;
+        const double *vals = v[2].buf, *lo = v[3].buf, *up = v[4].buf, *values = v[6].buf;
+        int64_t *indptr = v[8].buf, *indices = v[9].buf;
+        double *data = v[10].buf, *lo_out = v[11].buf, *up_out = v[12].buf;
+        for (Py_ssize_t i = 0; i < m * w; i++) {
+            if (present[i] && (cols[i] < 0 || cols[i] >= nv)) {
+                PyErr_SetString(PyExc_ValueError, "qp_rows kernel: a station out of range");
+                goto done;
+            }
+        }
+        int64_t r = row0, k = k0;
+        indptr[r] = k;
+        for (Py_ssize_t i = 0; i < m; i++) {
+            const int64_t *c = cols + i * w;
+            const char *pr = present + i * w;
+            const double *a = vals + i * w;
+            double shift = 0.0;
+            int any_free = 0;
+            for (Py_ssize_t j = 0; j < w; j++) {
+                int on_fixed = pr[j] && fixed[c[j]];
+                shift = shift + (on_fixed ? a[j] * values[c[j]] : 0.0);
+                any_free |= pr[j] && !on_fixed;
+            }
+            if (!any_free || !(isfinite(lo[i]) || isfinite(up[i]))) continue;
+            for (Py_ssize_t j = 0; j < w; j++) {
+                if (pr[j] && !fixed[c[j]]) {
+                    indices[k] = free_number[c[j]];
+                    data[k] = a[j];
+                    k++;
+                }
+            }
+            lo_out[r] = lo[i] - shift;
+            up_out[r] = up[i] - shift;
+            r++;
+            indptr[r] = k;
+        }
+        result = Py_BuildValue("LL", (long long)r, (long long)k);
+    }
+done:
+    for (int j = 0; j < got; j++) PyBuffer_Release(&v[j]);
+    return result;
+}
+
+static PyMethodDef methods[] = {
+    {"reduce_into", py_reduce_into, METH_VARARGS,
+     "reduce_into(cols, present, vals, lo, up, fixed, values, free_number, indptr, indices, "
+     "data, lo_out, up_out, row0, k0) -> (row1, k1): the table's kept rows written from row "
+     "row0 and entry k0 on (qp_rows.reduce_rows)."},
+    {NULL, NULL, 0, NULL}};
+
+static struct PyModuleDef module = {PyModuleDef_HEAD_INIT, "_qp_rows", NULL, -1, methods,
+                                    NULL, NULL, NULL, NULL};
+
+PyMODINIT_FUNC PyInit__qp_rows(void) { return PyModule_Create(&module); }

@@ -1,0 +1,73 @@
+"""The compiled elimination of fixed stations (``solvers/_qp_rows.c``) is the numpy functions'
+twin: ``reduce_tables`` gives the same compressed rows and sides to the last bit with and
+without it, on the convex solver's own tables (bundled routes: bounds, chords, power tangents,
+jerk and lateral-jerk rows, a closed loop) and on random tables with absent slots, repeated
+fixed stations, infinite sides and rows left with no free station. The numpy functions stay in
+``solvers/qp_rows.py`` as the reference (and are themselves checked against scipy.sparse in
+``test_reference_qp_rows.py``)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from test_reference_qp_rows import CASES, _iterate, _problem
+
+from curvespeed.solvers import qp_rows
+
+pytestmark = pytest.mark.skipif(qp_rows._compiled is None, reason="compiled kernel not built")
+
+
+def _both(tables, fixed, values, monkeypatch):
+    fast = qp_rows.reduce_tables(tables, fixed, values)
+    with monkeypatch.context() as mp:
+        mp.setattr(qp_rows, "_compiled", None)
+        slow = qp_rows.reduce_tables(tables, fixed, values)
+    return fast, slow
+
+
+def _assert_same(fast, slow):
+    names = ("indptr", "indices", "data", "lo", "up")
+    for name, a, b in zip(names, fast, slow):
+        assert a.dtype == b.dtype, name
+        # bit for bit, the signs of zeros included
+        assert a.shape == b.shape and np.array_equal(a.view(np.uint8), b.view(np.uint8)), name
+
+
+@pytest.mark.parametrize("case", range(len(CASES)))
+def test_compiled_reduction_matches_numpy_on_the_solvers_tables(case, monkeypatch):
+    route, limits, comfort, stop = CASES[case]
+    lay, b_hat, builder, _ = _iterate(_problem(route, limits, stop), comfort)
+    tables = builder.rows(b_hat)
+    fast, slow = _both(tables, lay.fixed, lay.fixed_value, monkeypatch)
+    assert fast[0][-1] > 0          # rows were kept: the comparison is not of empty arrays
+    _assert_same(fast, slow)
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_compiled_reduction_matches_numpy_on_random_tables(seed, monkeypatch):
+    rng = np.random.default_rng(seed)
+    nv = 40
+    fixed = rng.random(nv) < 0.4
+    values = np.where(fixed, rng.normal(size=nv), 0.0)
+    tables = []
+    for width in (1, 2, 3):
+        m = 60
+        cols = rng.integers(0, nv, size=(m, width))
+        present = rng.random((m, width)) < 0.8
+        cols = np.where(present, cols, -1)
+        vals = np.where(present, rng.normal(size=(m, width)), 0.0)
+        vals[rng.random((m, width)) < 0.05] = -0.0
+        lo = np.where(rng.random(m) < 0.3, -np.inf, rng.normal(size=m))
+        up = np.where(rng.random(m) < 0.3, np.inf, lo + rng.random(m))
+        tables.append((cols, present, vals, lo, up))
+    fast, slow = _both(tables, fixed, values, monkeypatch)
+    # some rows dropped (no free station or no finite side) and some kept
+    assert 0 < fast[0].size - 1 < 180
+    _assert_same(fast, slow)
+
+
+def test_compiled_reduction_refuses_a_station_out_of_range():
+    cols = np.array([[0, 5]])
+    with pytest.raises(ValueError, match="out of range"):
+        qp_rows.reduce_tables([(cols, cols >= 0, np.ones((1, 2)), np.zeros(1), np.ones(1))],
+                              np.zeros(3, dtype=bool), np.zeros(3))
