@@ -7,6 +7,7 @@ The program is stated in :mod:`curvespeed.solvers.convex` (module docstring) and
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from functools import cached_property
 from typing import TYPE_CHECKING
@@ -153,6 +154,7 @@ class QPBuilder:
         self.opt = options
         self.ds = problem.ds
         self.has_power = math.isfinite(problem.limits.power_per_mass_wpkg)
+        self._spans = {}
 
     @cached_property
     def step_forms(self):
@@ -163,14 +165,6 @@ class QPBuilder:
     def node_forms(self):
         """The lateral jerk's rate forms across each node (only with a lateral jerk bound)."""
         return self.p.node_lateral_rate_forms()
-
-    @cached_property
-    def _bounds_at_rest_and_envelope(self):
-        """Every node's acceleration interval at rest and on the envelope (the chords' outer
-        break points, the same in every iteration)."""
-        nv = self.lay.nv
-        return (self._node_bounds(np.zeros(nv), slice(0, nv)),
-                self._node_bounds(self.b_env[:nv], slice(0, nv)))
 
     def _node_bounds(self, b, nodes, include_power=False):
         return self.p.accel_bounds(b, nodes=nodes, include_power=include_power)
@@ -218,9 +212,24 @@ class QPBuilder:
                 rhs.append(budget[end])
         return np.concatenate(cols), np.concatenate(vals), np.concatenate(rhs)
 
-    def _jerk_rows(self, b_hat: np.ndarray):
+    def _jerk_terms(self, every_step: bool):
+        """The jerk's time-base terms that get rows: every term, or only those with a free
+        station (a row on fixed stations alone is dropped by the elimination)."""
+        t = self.p.jerk_terms
+        if every_step:
+            return t
+        if "jerk" not in self._spans:
+            fixed = self.lay.fixed
+            k = np.flatnonzero(~(fixed[t.prev] & fixed[t.node] & fixed[t.next]))
+            self._spans["jerk"] = dataclasses.replace(
+                t, node=t.node[k], prev=t.prev[k], next=t.next[k], weights=t.weights[k],
+                scale=t.scale[k])
+        return self._spans["jerk"]
+
+    def _jerk_rows(self, b_hat: np.ndarray, every_step: bool = False):
         """Rows ``+-D[node] b <= scale J ds (2 / w_hat - w_up(b) / w_hat^2)`` for every term of
-        the jerk's time base (:attr:`SpeedProblem.jerk_terms`).
+        the jerk's time base (:attr:`SpeedProblem.jerk_terms`; unless ``every_step``, only
+        those with a free station, :meth:`_jerk_terms`).
 
         A term bounds the time base by ``scale ds / w`` with ``w`` a weighted sum of square
         roots, concave in ``b``: its tangent ``w_up`` at ``b_hat`` bounds it from above, so
@@ -233,7 +242,7 @@ class QPBuilder:
         comes to exactly zero is no entry (as a sum of scipy.sparse matrices has it).
         """
         p, lay = self.p, self.lay
-        t = p.jerk_terms
+        t = self._jerk_terms(every_step)
         J = p.limits.max_jerk_mps3 * (1.0 - self.opt.margin)
         root = np.where(lay.fixed, np.sqrt(np.maximum(lay.fixed_value, 0.0)),
                         np.sqrt(np.maximum(b_hat, B_FLOOR)))
@@ -276,17 +285,38 @@ class QPBuilder:
         up = np.array([brake_b * (1.0 - self.opt.margin) - d for _, d in rows])
         return cols, vals, up
 
-    def _accel_rows(self, b_hat: np.ndarray):
+    def _span(self, every_step: bool):
+        """The steps that get acceleration rows, the nodes they touch, each step's first and
+        last node's position among those nodes, and those nodes' acceleration intervals at rest
+        and on the envelope (the chords' outer break points, the same in every iteration).
+        Either every step, or only those with a free node: a row on a step whose nodes are
+        both fixed has no free station, and the elimination drops it."""
+        if every_step not in self._spans:
+            lay = self.lay
+            steps = np.arange(lay.n_steps)
+            if not every_step:
+                steps = steps[~(lay.fixed[lay.step_from] & lay.fixed[lay.step_to])]
+            sf, st = lay.step_from[steps], lay.step_to[steps]
+            nodes = np.unique(np.concatenate((sf, st)))
+            self._spans[every_step] = (steps, nodes, np.searchsorted(nodes, sf),
+                                       np.searchsorted(nodes, st),
+                                       self._node_bounds(np.zeros(nodes.size), nodes),
+                                       self._node_bounds(self.b_env[nodes], nodes))
+        return self._spans[every_step]
+
+    def _accel_rows(self, b_hat: np.ndarray, every_step: bool = False):
         """Acceleration chords (and power tangents) at both nodes of each step: a row table
         ``(cols, vals, lo, up)``, two slots a row (the step's nodes). A chord that is not
-        needed (one chord enough, or the same row at the step's other end) is no row.
+        needed (one chord enough, or the same row at the step's other end) is no row, nor,
+        unless ``every_step``, is one on a step whose nodes are both fixed (:meth:`_span`).
 
         A chord belongs to a node, so each is worked out once per node (:meth:`_chords`) and
         gathered to the steps at either end: the same numbers as working it out per step, every
         operation being elementwise. Rows come ends first, then sides, segments and steps."""
-        p, lay, ds = self.p, self.lay, self.ds
-        nv = lay.nv
-        e = self.b_env[:nv]
+        lay, ds = self.lay, self.ds
+        steps, nodes, first, last, (lo_0, hi_0), (lo_e, hi_e) = self._span(every_step)
+        e = self.b_env[nodes]
+        b_hat = b_hat[nodes]
         h = 1.0 / (2.0 * ds)
         # break points: 0 < m < e, with m the current iterate kept within [2 %, 99.5 %] of the
         # envelope. Near a lateral limit the limit bends sharply just below the envelope: with
@@ -296,20 +326,18 @@ class QPBuilder:
         # gained no more and made the 100 km QPs 30 % slower.
         m = np.clip(b_hat, 0.02 * e, 0.995 * e)
         m = np.where(e - b_hat < 1e-9 * np.maximum(e, 1.0), 0.5 * e, m)
-        lo_m, hi_m = self._node_bounds(m, slice(0, nv))
-        (lo_0, hi_0), (lo_e, hi_e) = self._bounds_at_rest_and_envelope
+        lo_m, hi_m = self._node_bounds(m, nodes)
         chords = {"hi": self._chords(hi_0, hi_m, hi_e, m, e),
                   "lo": self._chords(lo_0, lo_m, lo_e, m, e)}
-        sf, st = lay.step_from, lay.step_to
         parts = []                  # (steps, c_from, c_to, lo, up) of each block of rows
         seen = {}
-        for end, fac in ((sf, lay.f_first), (st, lay.f_last)):
+        for end, fac in ((first, lay.f_first[steps]), (last, lay.f_last[steps])):
             fh = fac * h
             for side in ("hi", "lo"):
                 segs, a_tol = chords[side]
                 for seg, (slope, rhs, ok) in enumerate(segs):
                     slope, rhs, ok = slope[end], rhs[end], ok[end]
-                    c_from, c_to = _accel_minus_slope(end is sf, fh, slope)
+                    c_from, c_to = _accel_minus_slope(end is first, fh, slope)
                     key = (side, seg)
                     if key in seen:     # same row already at the other end of the step
                         pc_from, pc_to, prhs = seen[key]
@@ -323,8 +351,8 @@ class QPBuilder:
                     else:
                         parts.append((k, c_from[k], c_to[k], rhs[k] + tol, None))
         if self.has_power:
-            parts += self._power_rows(m, e, h)
-        return _join_rows(parts, sf, st)
+            parts += self._power_rows(m, e, h, steps, first, last, nodes)
+        return _join_rows(parts, lay.step_from[steps], lay.step_to[steps])
 
     def _chords(self, f0, fm, fe, m, e):
         """One side's chords at every node: a concave hi (convex lo) is replaced by its chords
@@ -354,41 +382,43 @@ class QPBuilder:
             segs.append((slope, rhs, ok))
         return segs, a_tol
 
-    def _power_rows(self, m, e, h):
-        """Tangents of ``P/(m sqrt(b)) - res(b)`` at ``m`` and ``e`` at both nodes of each step
-        (drive side only), as blocks of :meth:`_accel_rows`."""
+    def _power_rows(self, m, e, h, steps, first, last, nodes):
+        """Tangents of ``P/(m sqrt(b)) - res(b)`` at ``m`` and ``e`` at both nodes of the
+        given steps (drive side only), as blocks of :meth:`_accel_rows` (``m``, ``e`` on
+        ``nodes``, where ``first`` and ``last`` point)."""
         p, lay, margin = self.p, self.lay, self.opt.margin
         pm = p.limits.power_per_mass_wpkg
-        sf, st = lay.step_from, lay.step_to
         parts = []
-        for end, fac in ((sf, lay.f_first), (st, lay.f_last)):
+        for end, fac in ((first, lay.f_first[steps]), (last, lay.f_last[steps])):
             for q in (m, e):
                 bq = np.maximum(q[end], B_FLOOR)
-                res0 = p.resistance(0.0, nodes=end)
-                res1 = p.resistance(1.0, nodes=end) - res0      # d res / d b
+                res0 = p.resistance(0.0, nodes=nodes[end])
+                res1 = p.resistance(1.0, nodes=nodes[end]) - res0      # d res / d b
                 f0 = pm / np.sqrt(bq)
                 slope = -0.5 * pm / bq ** 1.5 - res1
                 bound = f0 - res0 - res1 * bq                   # the limit at bq
                 rhs = bound - slope * bq - margin * np.abs(bound)
-                c_from, c_to = _accel_minus_slope(end is sf, fac * h, slope)
+                c_from, c_to = _accel_minus_slope(end is first, fac * h, slope)
                 k = np.flatnonzero(np.isfinite(rhs))
                 parts.append((k, c_from[k], c_to[k], None, rhs[k]))
         return parts
 
-    def rows(self, b_hat: np.ndarray):
+    def rows(self, b_hat: np.ndarray, every_step: bool = False):
         """Every row of the iteration's QP around ``b_hat`` as canonical row tables over the
         distinct nodes (:mod:`.qp_rows`), each ``(cols, present, vals, lo, up)``, in the order
-        bounds, acceleration (and power), jerk, lateral jerk, end reserve."""
+        bounds, acceleration (and power), jerk, lateral jerk, end reserve. Without
+        ``every_step`` no acceleration or jerk rows on fixed stations alone (the elimination
+        would drop them)."""
         lay = self.lay
         nv = lay.nv
         e = self.b_env[:nv]
         tables = [(np.arange(nv)[:, None], np.ones((nv, 1), dtype=bool), np.ones((nv, 1)),
                    np.where(lay.fixed, lay.fixed_value, 0.0),
                    np.where(lay.fixed, lay.fixed_value, e))]
-        c, v, lo, up = self._accel_rows(b_hat)
+        c, v, lo, up = self._accel_rows(b_hat, every_step)
         tables.append(canonical(c, v) + (lo, up))
         if lay.jerk:
-            c, present, v, up = self._jerk_rows(b_hat)
+            c, present, v, up = self._jerk_rows(b_hat, every_step)
             tables.append((c, present, v, np.full(up.size, -np.inf), up))
         extra = []
         if self.p.limits.max_lateral_jerk_mps3 is not None:
@@ -461,7 +491,7 @@ class QPBuilder:
 
         nv = self.lay.nv
         blocks, lows, ups = [], [], []
-        for cols, present, vals, lo, up in self.rows(b_hat):
+        for cols, present, vals, lo, up in self.rows(b_hat, every_step=True):
             indptr = np.concatenate(([0], np.cumsum(present.sum(axis=1))))
             blocks.append(sp.csr_matrix((vals[present], cols[present], indptr),
                                         shape=(lo.size, nv)))
