@@ -112,18 +112,24 @@ class QPLayout:
         return m
 
 
-def time_model(b_hat: np.ndarray, lay: QPLayout, ds: float):
-    """Total time, gradient and (upper-triangular) Hessian of the time at ``b_hat``."""
+def time_model(b_hat: np.ndarray, lay: QPLayout, ds: float, steps=None):
+    """Total time, gradient and (upper-triangular) Hessian of the time at ``b_hat``: the time
+    of ``steps`` (default every step), each step's terms summed into its nodes' gradient and
+    diagonal, and each step's off-diagonal entry."""
     free = ~lay.fixed
-    fx, fy = free[lay.step_from], free[lay.step_to]
+    sf, st = lay.step_from, lay.step_to
+    time_coef = lay.time_coef
+    if steps is not None:
+        sf, st, time_coef = sf[steps], st[steps], time_coef[steps]
+    fx, fy = free[sf], free[st]
     # square roots, floored where the variable is free (a free node is never meant to be at rest)
     root_floor = math.sqrt(B_FLOOR)
-    sx = np.sqrt(np.maximum(b_hat[lay.step_from], 0.0))
-    sy = np.sqrt(np.maximum(b_hat[lay.step_to], 0.0))
+    sx = np.sqrt(np.maximum(b_hat[sf], 0.0))
+    sy = np.sqrt(np.maximum(b_hat[st], 0.0))
     sxf = np.where(fx, np.maximum(sx, root_floor), sx)
     syf = np.where(fy, np.maximum(sy, root_floor), sy)
     S = sxf + syf
-    half_c = 0.5 * lay.time_coef            # step time is c ds / S
+    half_c = 0.5 * time_coef                # step time is c ds / S
     total = float(np.sum(2.0 * half_c * ds / S))
     sxf = np.maximum(sxf, root_floor)       # only used where the variable is free
     syf = np.maximum(syf, root_floor)
@@ -135,11 +141,11 @@ def time_model(b_hat: np.ndarray, lay: QPLayout, ds: float):
     hxy = np.where(fx & fy, cds / (S ** 3 * sxf * syf), 0.0)
     nv = lay.nv
     grad = np.zeros(nv)
-    np.add.at(grad, lay.step_from, gx)
-    np.add.at(grad, lay.step_to, gy)
+    np.add.at(grad, sf, gx)
+    np.add.at(grad, st, gy)
     diag = np.zeros(nv)
-    np.add.at(diag, lay.step_from, hxx)
-    np.add.at(diag, lay.step_to, hyy)
+    np.add.at(diag, sf, hxx)
+    np.add.at(diag, st, hyy)
     return total, grad, diag, hxy
 
 
@@ -435,13 +441,17 @@ class QPBuilder:
 
         Returns ``(prow, pcol, pval, q, scale)``: the Hessian's nonzero entries between free
         nodes in row-major order (both triangles), the linear term (``-value`` at fixed
-        nodes) and the scale. Sums run in the order scipy.sparse runs them."""
+        nodes) and the scale. Sums run in the order scipy.sparse runs them. Only the steps with
+        a free node enter (:meth:`_span`): the others' terms fall on fixed nodes alone, which
+        the QP decouples."""
         lay = self.lay
         nv = lay.nv
         free = ~lay.fixed
-        total, grad, diag, hxy = time_model(b_hat, lay, self.ds)
-        rows = [np.arange(nv), lay.step_from, lay.step_to]
-        cols = [np.arange(nv), lay.step_to, lay.step_from]
+        steps = self._span(False)[0]
+        total, grad, diag, hxy = time_model(b_hat, lay, self.ds, steps)
+        sf, st = lay.step_from[steps], lay.step_to[steps]
+        rows = [np.arange(nv), sf, st]
+        cols = [np.arange(nv), st, sf]
         vals = [diag, hxy, hxy]
         w = self.opt.comfort_weight
         if w > 0:
