@@ -1,11 +1,18 @@
-/* Compiled twin of curvespeed.solvers.qp_rows.reduce_rows: the fixed stations eliminated from a
- * canonical row table and the free stations' rows written as compressed rows.
+/* Compiled passes over the convex solver's QP rows, each the twin of numpy code that stays as
+ * the reference the tests compare against (the same operations in the same order, so the numbers
+ * agree to the last bit; built with -ffp-contract=off, no fused multiply-adds):
  *
- * The same operations in the same order as the numpy function (which stays as the reference the
- * tests compare against): a row's shift sums, slot by slot from zero, the fixed stations' terms
- * (0.0 added where a slot holds none, as numpy's where does), so the sides agree to the last bit.
- * The rows are written straight after those of the tables before (one set of compressed rows for
- * the whole QP, no joining afterwards). Only the buffer protocol of the Python C API is used.
+ * - reduce_into: qp_rows.reduce_rows, the fixed stations eliminated from a canonical row table
+ *   and the free stations' rows written as compressed rows. A row's shift sums, slot by slot
+ *   from zero, the fixed stations' terms (0.0 added where a slot holds none, as numpy's where
+ *   does). The rows are written straight after those of the tables before (one set of
+ *   compressed rows for the whole QP, no joining afterwards).
+ * - scale_rows: the rows' part of banded_ipm._prepare_rows (centred and scaled variables, rows
+ *   at unit largest coefficient, the kind of each row's sides, the rows' bandwidth).
+ * - row_products: A x and A'y as banded_ipm._judge checks the kernel's answer with them (each
+ *   sum from zero in the order numpy's bincount takes the terms).
+ *
+ * Only the buffer protocol of the Python C API is used.
  */
 #define PY_SSIZE_T_CLEAN
 #include <Python.h>
@@ -14,14 +21,15 @@
 #include <string.h>
 
 /* An array of `items` entries (at least that many for an output) of kind 'q' (int64), 'd'
- * (double) or '?' (bool). */
+ * (double), 'b' (int8) or '?' (bool). */
 static int get(PyObject *o, Py_buffer *v, int writable, Py_ssize_t items, char kind)
 {
     int flags = PyBUF_C_CONTIGUOUS | PyBUF_FORMAT | (writable ? PyBUF_WRITABLE : 0);
     if (PyObject_GetBuffer(o, v, flags) != 0) return -1;
-    Py_ssize_t size = kind == '?' ? 1 : 8;
+    Py_ssize_t size = (kind == '?' || kind == 'b') ? 1 : 8;
     const char *f = v->format;
     int fmt_ok = kind == '?' ? strcmp(f, "?") == 0
+               : kind == 'b' ? strcmp(f, "b") == 0
                : kind == 'q' ? (strcmp(f, "q") == 0 || (strcmp(f, "l") == 0 && sizeof(long) == 8))
                : strcmp(f, "d") == 0;
     int len_ok = writable ? v->len >= items * size : v->len == items * size;
@@ -112,11 +120,143 @@ done:
     return result;
 }
 
+/* Compressed rows' sizes and order: indptr from 0, ascending, ending at nnz; indices in range. */
+static int check_rows(const int64_t *indptr, const int64_t *indices, Py_ssize_t m,
+                      Py_ssize_t nnz, Py_ssize_t n)
+{
+    if (indptr[0] != 0 || indptr[m] != nnz) goto bad;
+    for (Py_ssize_t i = 0; i < m; i++)
+        if (indptr[i + 1] < indptr[i]) goto bad;
+    for (Py_ssize_t k = 0; k < nnz; k++)
+        if (indices[k] < 0 || indices[k] >= n) goto bad;
+    return 0;
+bad:
+    PyErr_SetString(PyExc_ValueError, "qp_rows kernel: compressed rows out of order or range");
+    return -1;
+}
+
+/* scale_rows(indptr, indices, data, lo, up, centre, scale, data_out, lo_out, up_out, kind_out,
+ *            centred) -> the rows' bandwidth (largest last - first column of a row) */
+static PyObject *py_scale_rows(PyObject *self, PyObject *args)
+{
+    (void)self;
+    PyObject *o[11];
+    int centred;
+    if (!PyArg_ParseTuple(args, "OOOOOOOOOOOp", &o[0], &o[1], &o[2], &o[3], &o[4], &o[5],
+                          &o[6], &o[7], &o[8], &o[9], &o[10], &centred))
+        return NULL;
+    Py_buffer probe;
+    Py_ssize_t len[3];
+    for (int j = 0; j < 3; j++) {       /* indptr, data and centre give m, nnz and n */
+        if (PyObject_GetBuffer(o[j == 0 ? 0 : j == 1 ? 2 : 5], &probe, PyBUF_C_CONTIGUOUS) != 0)
+            return NULL;
+        len[j] = probe.len / 8;
+        PyBuffer_Release(&probe);
+    }
+    Py_ssize_t m = len[0] - 1, nnz = len[1], n = len[2];
+    if (m < 0) { PyErr_SetString(PyExc_ValueError, "qp_rows kernel: empty indptr"); return NULL; }
+    const char kinds[11] = {'q', 'q', 'd', 'd', 'd', 'd', 'd', 'd', 'd', 'd', 'b'};
+    const Py_ssize_t items[11] = {m + 1, nnz, nnz, m, m, n, n, nnz, m, m, m};
+    Py_buffer v[11];
+    int got = 0;
+    PyObject *result = NULL;
+    for (got = 0; got < 11; got++)
+        if (get(o[got], &v[got], got >= 7, items[got], kinds[got]) != 0) goto done;
+    {
+        const int64_t *indptr = v[0].buf, *indices = v[1].buf;
+        const double *data = v[2].buf, *lo = v[3].buf, *up = v[4].buf;
+        const double *centre = v[5].buf, *scale = v[6].buf;
+        double *dout = v[7].buf, *lout = v[8].buf, *uout = v[9].buf;
+        int8_t *kind = v[10].buf;
+        if (check_rows(indptr, indices, m, nnz, n) != 0) goto done;
+        int64_t kd = 0;
+        for (Py_ssize_t i = 0; i < m; i++) {
+            const int64_t k0 = indptr[i], k1 = indptr[i + 1];
+            double shift = 0.0, norm = 0.0, l = lo[i], u = up[i];
+            for (int64_t k = k0; k < k1; k++) {
+                double a = data[k];
+                if (centred) {
+                    shift = shift + a * centre[indices[k]];
+                    a = a * scale[indices[k]];
+                }
+                dout[k] = a;
+                double f = fabs(a);     /* numpy's maximum: a NaN wins */
+                norm = (isnan(f) || isnan(norm)) ? NAN : (f > norm ? f : norm);
+            }
+            if (centred) { l = l - shift; u = u - shift; }
+            if (norm == 0.0) norm = 1.0;
+            for (int64_t k = k0; k < k1; k++) dout[k] = dout[k] / norm;
+            l = l / norm;
+            u = u / norm;
+            lout[i] = l;
+            uout[i] = u;
+            int fl = isfinite(l), fu = isfinite(u);
+            kind[i] = k1 == k0 ? 0 : fl && fu ? (l == u ? 4 : 3) : fl ? 1 : fu ? 2 : 0;
+            if (k1 > k0 && indices[k1 - 1] - indices[k0] > kd) kd = indices[k1 - 1] - indices[k0];
+        }
+        result = PyLong_FromLongLong((long long)kd);
+    }
+done:
+    for (int j = 0; j < got; j++) PyBuffer_Release(&v[j]);
+    return result;
+}
+
+/* row_products(indptr, indices, data, x, y, ax, aty): ax = A x, aty = A'y */
+static PyObject *py_row_products(PyObject *self, PyObject *args)
+{
+    (void)self;
+    PyObject *o[7];
+    if (!PyArg_ParseTuple(args, "OOOOOOO", &o[0], &o[1], &o[2], &o[3], &o[4], &o[5], &o[6]))
+        return NULL;
+    Py_buffer probe;
+    Py_ssize_t len[3];
+    for (int j = 0; j < 3; j++) {       /* indptr, data and x give m, nnz and n */
+        if (PyObject_GetBuffer(o[j == 0 ? 0 : j == 1 ? 2 : 3], &probe, PyBUF_C_CONTIGUOUS) != 0)
+            return NULL;
+        len[j] = probe.len / 8;
+        PyBuffer_Release(&probe);
+    }
+    Py_ssize_t m = len[0] - 1, nnz = len[1], n = len[2];
+    if (m < 0) { PyErr_SetString(PyExc_ValueError, "qp_rows kernel: empty indptr"); return NULL; }
+    const char kinds[7] = {'q', 'q', 'd', 'd', 'd', 'd', 'd'};
+    const Py_ssize_t items[7] = {m + 1, nnz, nnz, n, m, m, n};
+    Py_buffer v[7];
+    int got = 0;
+    PyObject *result = NULL;
+    for (got = 0; got < 7; got++)
+        if (get(o[got], &v[got], got >= 5, items[got], kinds[got]) != 0) goto done;
+    {
+        const int64_t *indptr = v[0].buf, *indices = v[1].buf;
+        const double *data = v[2].buf, *x = v[3].buf, *y = v[4].buf;
+        double *ax = v[5].buf, *aty = v[6].buf;
+        if (check_rows(indptr, indices, m, nnz, n) != 0) goto done;
+        for (Py_ssize_t j = 0; j < n; j++) aty[j] = 0.0;
+        for (Py_ssize_t i = 0; i < m; i++) {
+            double acc = 0.0;
+            for (int64_t k = indptr[i]; k < indptr[i + 1]; k++) {
+                acc = acc + data[k] * x[indices[k]];
+                aty[indices[k]] = aty[indices[k]] + data[k] * y[i];
+            }
+            ax[i] = acc;
+        }
+        Py_INCREF(Py_None);
+        result = Py_None;
+    }
+done:
+    for (int j = 0; j < got; j++) PyBuffer_Release(&v[j]);
+    return result;
+}
+
 static PyMethodDef methods[] = {
     {"reduce_into", py_reduce_into, METH_VARARGS,
      "reduce_into(cols, present, vals, lo, up, fixed, values, free_number, indptr, indices, "
      "data, lo_out, up_out, row0, k0) -> (row1, k1): the table's kept rows written from row "
      "row0 and entry k0 on (qp_rows.reduce_rows)."},
+    {"scale_rows", py_scale_rows, METH_VARARGS,
+     "scale_rows(indptr, indices, data, lo, up, centre, scale, data_out, lo_out, up_out, "
+     "kind_out, centred) -> bandwidth of the rows (banded_ipm._prepare_rows)."},
+    {"row_products", py_row_products, METH_VARARGS,
+     "row_products(indptr, indices, data, x, y, ax, aty): A x and A'y (banded_ipm._judge)."},
     {NULL, NULL, 0, NULL}};
 
 static struct PyModuleDef module = {PyModuleDef_HEAD_INIT, "_qp_rows", NULL, -1, methods,
