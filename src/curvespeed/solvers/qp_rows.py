@@ -43,6 +43,8 @@ def canonical(cols, *vals):
     if np.all(step > 0) or np.all((step > 0) | ~present[:, 1:]):
         return (cols, present, *vals)           # sorted already, no station twice
     bad = np.flatnonzero(np.any(step <= 0, axis=1))      # only these rows need work
+    if bad.size <= _FEW_ROWS:
+        return _canonical_rows(cols, key, vals, bad)
     order = np.argsort(key[bad], axis=1, kind="stable")
     cols = cols.copy()
     cols[bad] = np.take_along_axis(cols[bad], order, axis=1)
@@ -61,6 +63,36 @@ def canonical(cols, *vals):
             v[rows, target[sub, j]] += v[rows, j]
             v[rows, j] = 0.0
         present[rows, j] = False
+    return (cols, present, *vals)
+
+
+#: Up to this many rows out of order (a receding-horizon window's jerk rows: the ends, where a
+#: stencil repeats its node) are put in order one by one in Python, which costs less than the
+#: dozens of numpy calls of the vectorised path; the same operations either way.
+_FEW_ROWS = 16
+
+
+def _canonical_rows(cols, key, vals, bad):
+    """:func:`canonical` for the rows ``bad`` alone, one row at a time."""
+    cols = cols.copy()
+    vals = [v.copy() for v in vals]
+    present = cols >= 0
+    w = cols.shape[1]
+    for i in bad.tolist():
+        order = sorted(range(w), key=key[i].tolist().__getitem__)      # stable, as argsort's
+        cols[i] = cols[i, order]
+        for v in vals:
+            v[i] = v[i, order]
+        present[i] = cols[i] >= 0
+        target = 0
+        for j in range(1, w):
+            if present[i, j] and cols[i, j] == cols[i, j - 1]:
+                for v in vals:      # summed into the first slot of its run, in slot order
+                    v[i, target] += v[i, j]
+                    v[i, j] = 0.0
+                present[i, j] = False
+            else:
+                target = j
     return (cols, present, *vals)
 
 
