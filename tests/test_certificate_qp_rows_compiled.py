@@ -12,6 +12,7 @@ import numpy as np
 import pytest
 from test_reference_qp_rows import CASES, _iterate, _problem
 
+from curvespeed.limits import Limits
 from curvespeed.solvers import banded_ipm, qp_rows
 
 pytestmark = pytest.mark.skipif(qp_rows._compiled is None, reason="compiled kernel not built")
@@ -137,3 +138,32 @@ def test_compiled_preparation_matches_numpy_on_random_rows(seed, monkeypatch):
     assert fast.kd == slow.kd and np.any(fast.kind == 4) and np.any(fast.kind == 0)
     for name in ("indptr", "indices", "data", "lo", "up", "kind", "Pb", "q"):
         _same_bits(getattr(fast, name), getattr(slow, name), name)
+
+
+TAKE_CASES = [CASES[0], ("test_loop.geojson", Limits(), 0.0, 100.0)]   # open; a loop
+
+
+@pytest.mark.parametrize("case", range(len(TAKE_CASES)))
+def test_compiled_take_matches_numpy(case, monkeypatch):
+    """A batch cut from the solver's QP (RowQP.take): the same arrays with the compiled copies
+    and with numpy, for blocks in order and (as a loop's may be) out of order."""
+    route, limits, comfort, stop = TAKE_CASES[case]
+    lay, b_hat, builder, _ = _iterate(_problem(route, limits, stop), comfort)
+    qp, _ = builder.reduced(b_hat)
+    blocks = qp_rows.blocks_of(qp, lay.closed)
+    assert len(blocks) >= 2
+    for chosen in (blocks[:2], blocks[1::-1]):
+        cols = np.concatenate(chosen)
+        inside = np.isin(np.arange(qp.n), cols)
+        first = qp.indices[qp.indptr[:-1]]
+        rows = np.flatnonzero(inside[first])[::-1]        # any order is kept as given
+        fast = qp.take(cols, rows)
+        with monkeypatch.context() as mp:
+            mp.setattr(qp_rows, "_compiled", None)
+            slow = qp.take(cols, rows)
+        assert fast.n == slow.n == cols.size and fast.m == rows.size
+        for name in RowQP_FIELDS:
+            _same_bits(getattr(fast, name), getattr(slow, name), name)
+
+
+RowQP_FIELDS = ("indptr", "indices", "data", "lo", "up", "prow", "pcol", "pval", "q")

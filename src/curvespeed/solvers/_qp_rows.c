@@ -11,6 +11,7 @@
  *   at unit largest coefficient, the kind of each row's sides, the rows' bandwidth).
  * - row_products: A x and A'y as banded_ipm._judge checks the kernel's answer with them (each
  *   sum from zero in the order numpy's bincount takes the terms).
+ * - take_rows: the rows of RowQP.take (a batch's rows, its variables renumbered); copies only.
  *
  * Only the buffer protocol of the Python C API is used.
  */
@@ -247,6 +248,65 @@ done:
     return result;
 }
 
+/* take_rows(indptr, indices, data, lo, up, rows, local, indptr_out, indices_out, data_out,
+ *           lo_out, up_out) -> entries written: rows `rows` in their order, each column j
+ *           renumbered local[j] */
+static PyObject *py_take_rows(PyObject *self, PyObject *args)
+{
+    (void)self;
+    PyObject *o[12];
+    if (!PyArg_ParseTuple(args, "OOOOOOOOOOOO", &o[0], &o[1], &o[2], &o[3], &o[4], &o[5],
+                          &o[6], &o[7], &o[8], &o[9], &o[10], &o[11]))
+        return NULL;
+    Py_buffer probe;
+    Py_ssize_t len[4];
+    const int which[4] = {0, 2, 5, 6};  /* indptr, data, rows, local: m, nnz, rows, n */
+    for (int j = 0; j < 4; j++) {
+        if (PyObject_GetBuffer(o[which[j]], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
+        len[j] = probe.len / 8;
+        PyBuffer_Release(&probe);
+    }
+    Py_ssize_t m = len[0] - 1, nnz = len[1], mr = len[2], n = len[3];
+    if (m < 0) { PyErr_SetString(PyExc_ValueError, "qp_rows kernel: empty indptr"); return NULL; }
+    const char kinds[12] = {'q', 'q', 'd', 'd', 'd', 'q', 'q', 'q', 'q', 'd', 'd', 'd'};
+    const Py_ssize_t items[12] = {m + 1, nnz, nnz, m, m, mr, n, mr + 1, 0, 0, mr, mr};
+    Py_buffer v[12];
+    int got = 0;
+    PyObject *result = NULL;
+    for (got = 0; got < 12; got++)
+        if (get(o[got], &v[got], got >= 7, items[got], kinds[got]) != 0) goto done;
+    {
+        const int64_t *indptr = v[0].buf, *indices = v[1].buf, *rows = v[5].buf;
+        const int64_t *local = v[6].buf;
+        const double *data = v[2].buf, *lo = v[3].buf, *up = v[4].buf;
+        int64_t *ip = v[7].buf, *ix = v[8].buf;
+        double *dv = v[9].buf, *lv = v[10].buf, *uv = v[11].buf;
+        Py_ssize_t room = v[8].len / 8 < v[9].len / 8 ? v[8].len / 8 : v[9].len / 8;
+        if (check_rows(indptr, indices, m, nnz, n) != 0) goto done;
+        int64_t k = 0;
+        ip[0] = 0;
+        for (Py_ssize_t r = 0; r < mr; r++) {
+            int64_t i = rows[r];
+            if (i < 0 || i >= m || k + (indptr[i + 1] - indptr[i]) > room) {
+                PyErr_SetString(PyExc_ValueError, "qp_rows kernel: a row out of range");
+                goto done;
+            }
+            for (int64_t e = indptr[i]; e < indptr[i + 1]; e++) {
+                ix[k] = local[indices[e]];
+                dv[k] = data[e];
+                k++;
+            }
+            ip[r + 1] = k;
+            lv[r] = lo[i];
+            uv[r] = up[i];
+        }
+        result = PyLong_FromLongLong((long long)k);
+    }
+done:
+    for (int j = 0; j < got; j++) PyBuffer_Release(&v[j]);
+    return result;
+}
+
 static PyMethodDef methods[] = {
     {"reduce_into", py_reduce_into, METH_VARARGS,
      "reduce_into(cols, present, vals, lo, up, fixed, values, free_number, indptr, indices, "
@@ -257,6 +317,9 @@ static PyMethodDef methods[] = {
      "kind_out, centred) -> bandwidth of the rows (banded_ipm._prepare_rows)."},
     {"row_products", py_row_products, METH_VARARGS,
      "row_products(indptr, indices, data, x, y, ax, aty): A x and A'y (banded_ipm._judge)."},
+    {"take_rows", py_take_rows, METH_VARARGS,
+     "take_rows(indptr, indices, data, lo, up, rows, local, indptr_out, indices_out, "
+     "data_out, lo_out, up_out) -> entries written (qp_rows.RowQP.take)."},
     {NULL, NULL, 0, NULL}};
 
 static struct PyModuleDef module = {PyModuleDef_HEAD_INIT, "_qp_rows", NULL, -1, methods,

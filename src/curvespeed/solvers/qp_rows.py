@@ -151,15 +151,29 @@ class RowQP:
     def take(self, cols, rows) -> RowQP:
         """The QP of variables ``cols`` (numbered in the order given: increasing within a block,
         but a loop's blocks may come out of station order) and rows ``rows`` (in the given
-        order); the rows must involve no other variable. ``P``'s entries linking ``cols`` to other variables
-        are left out (between independent blocks there are none)."""
+        order); the rows must involve no other variable. ``P``'s entries linking ``cols`` to
+        other variables are left out (between independent blocks there are none). The rows are
+        copied by the compiled twin where it is built (``_qp_rows.c``), by numpy otherwise."""
         local = np.full(self.n, -1, dtype=np.int64)
         local[cols] = np.arange(cols.size)
+        keep = (local[self.prow] >= 0) & (local[self.pcol] >= 0)
+        if _compiled is not None:       # the same copies, compiled
+            rows = np.ascontiguousarray(rows, dtype=np.int64)
+            counts = np.diff(self.indptr)[rows]
+            nnz = int(counts.sum())
+            indptr, indices = np.empty(rows.size + 1, dtype=np.int64), np.empty(nnz, np.int64)
+            data, lo, up = np.empty(nnz), np.empty(rows.size), np.empty(rows.size)
+            _compiled.take_rows(*(np.ascontiguousarray(a, dtype=np.int64)
+                                  for a in (self.indptr, self.indices)),
+                                *(np.ascontiguousarray(a, dtype=float)
+                                  for a in (self.data, self.lo, self.up)),
+                                rows, local, indptr, indices, data, lo, up)
+            return RowQP(cols.size, indptr, indices, data, lo, up, local[self.prow[keep]],
+                         local[self.pcol[keep]], self.pval[keep], self.q[cols])
         counts = np.diff(self.indptr)[rows]
         indptr = np.zeros(rows.size + 1, dtype=np.int64)
         np.cumsum(counts, out=indptr[1:])
         pos = np.repeat(self.indptr[rows] - indptr[:-1], counts) + np.arange(indptr[-1])
-        keep = (local[self.prow] >= 0) & (local[self.pcol] >= 0)
         return RowQP(cols.size, indptr, local[self.indices[pos]], self.data[pos],
                      self.lo[rows], self.up[rows], local[self.prow[keep]],
                      local[self.pcol[keep]], self.pval[keep], self.q[cols])
