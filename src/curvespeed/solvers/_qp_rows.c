@@ -282,16 +282,20 @@ static PyObject *py_take_rows(PyObject *self, PyObject *args)
         int64_t *ip = v[7].buf, *ix = v[8].buf;
         double *dv = v[9].buf, *lv = v[10].buf, *uv = v[11].buf;
         Py_ssize_t room = v[8].len / 8 < v[9].len / 8 ? v[8].len / 8 : v[9].len / 8;
-        if (check_rows(indptr, indices, m, nnz, n) != 0) goto done;
         int64_t k = 0;
         ip[0] = 0;
-        for (Py_ssize_t r = 0; r < mr; r++) {
+        for (Py_ssize_t r = 0; r < mr; r++) {   /* only the rows taken are checked */
             int64_t i = rows[r];
-            if (i < 0 || i >= m || k + (indptr[i + 1] - indptr[i]) > room) {
+            if (i < 0 || i >= m || indptr[i] < 0 || indptr[i + 1] < indptr[i]
+                || indptr[i + 1] > nnz || k + (indptr[i + 1] - indptr[i]) > room) {
                 PyErr_SetString(PyExc_ValueError, "qp_rows kernel: a row out of range");
                 goto done;
             }
             for (int64_t e = indptr[i]; e < indptr[i + 1]; e++) {
+                if (indices[e] < 0 || indices[e] >= n) {
+                    PyErr_SetString(PyExc_ValueError, "qp_rows kernel: a column out of range");
+                    goto done;
+                }
                 ix[k] = local[indices[e]];
                 dv[k] = data[e];
                 k++;

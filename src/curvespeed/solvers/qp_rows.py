@@ -159,17 +159,18 @@ class RowQP:
         keep = (local[self.prow] >= 0) & (local[self.pcol] >= 0)
         if _compiled is not None:       # the same copies, compiled
             rows = np.ascontiguousarray(rows, dtype=np.int64)
-            counts = np.diff(self.indptr)[rows]
-            nnz = int(counts.sum())
-            indptr, indices = np.empty(rows.size + 1, dtype=np.int64), np.empty(nnz, np.int64)
-            data, lo, up = np.empty(nnz), np.empty(rows.size), np.empty(rows.size)
-            _compiled.take_rows(*(np.ascontiguousarray(a, dtype=np.int64)
-                                  for a in (self.indptr, self.indices)),
-                                *(np.ascontiguousarray(a, dtype=float)
-                                  for a in (self.data, self.lo, self.up)),
-                                rows, local, indptr, indices, data, lo, up)
-            return RowQP(cols.size, indptr, indices, data, lo, up, local[self.prow[keep]],
-                         local[self.pcol[keep]], self.pval[keep], self.q[cols])
+            # room for every entry (memory is only touched where written); cut to size after
+            indptr, indices = np.empty(rows.size + 1, dtype=np.int64), np.empty_like(self.indices,
+                                                                                   np.int64)
+            data, lo, up = np.empty(self.indices.size), np.empty(rows.size), np.empty(rows.size)
+            nnz = _compiled.take_rows(*(np.ascontiguousarray(a, dtype=np.int64)
+                                        for a in (self.indptr, self.indices)),
+                                      *(np.ascontiguousarray(a, dtype=float)
+                                        for a in (self.data, self.lo, self.up)),
+                                      rows, local, indptr, indices, data, lo, up)
+            return RowQP(cols.size, indptr, indices[:nnz], data[:nnz], lo, up,
+                         local[self.prow[keep]], local[self.pcol[keep]], self.pval[keep],
+                         self.q[cols])
         counts = np.diff(self.indptr)[rows]
         indptr = np.zeros(rows.size + 1, dtype=np.int64)
         np.cumsum(counts, out=indptr[1:])
