@@ -75,7 +75,7 @@ def test_compiled_reduction_refuses_a_station_out_of_range():
 
 
 def _same_bits(a, b, name):
-    a, b = np.asarray(a), np.asarray(b)
+    a, b = np.atleast_1d(np.asarray(a)), np.atleast_1d(np.asarray(b))
     assert a.dtype == b.dtype and a.shape == b.shape, name
     assert np.array_equal(a.view(np.uint8), b.view(np.uint8)), name
 
@@ -84,7 +84,8 @@ def _same_bits(a, b, name):
 @pytest.mark.parametrize("centred", [True, False])
 def test_compiled_preparation_and_checks_match_numpy(case, centred, monkeypatch):
     """The banded method's preparation of a QP (centred and scaled variables, rows at unit
-    largest coefficient, kinds, band) and the products its answer is judged by (A x, A'y):
+    largest coefficient, kinds, band), its starting point, and what its answer is judged by
+    (A x, A'y, the variables' box):
     the same bits with the compiled passes and with numpy alone, on the solver's own QPs (the
     closed loop's band is reordered: there both take the numpy path)."""
     route, limits, comfort, stop = CASES[case]
@@ -97,10 +98,15 @@ def test_compiled_preparation_and_checks_match_numpy(case, centred, monkeypatch)
     rng = np.random.default_rng(case)
     x, y = rng.normal(size=qp.n), rng.normal(size=qp.m)
     fast_products = banded_ipm._products(fast, x, y)
+    fast_start, fast_box = banded_ipm._start(fast), banded_ipm._box_extent(fast)
     with monkeypatch.context() as mp:
         mp.setattr(qp_rows, "_compiled", None)
         slow = banded_ipm._prepare_rows(qp, centre, scale)
         slow_products = banded_ipm._products(slow, x, y)
+        slow_start, slow_box = banded_ipm._start(slow), banded_ipm._box_extent(slow)
+    for name, a, b in zip(("x", "sl", "su", "zl", "zu"), fast_start, slow_start):
+        _same_bits(a, b, name)
+    _same_bits(fast_box, slow_box, "box extent")
     assert fast.kd == slow.kd
     for name in ("indptr", "indices", "data", "lo", "up", "kind", "Pb", "q"):
         _same_bits(getattr(fast, name), getattr(slow, name), name)
@@ -113,7 +119,8 @@ def test_compiled_preparation_and_checks_match_numpy(case, centred, monkeypatch)
 @pytest.mark.parametrize("seed", range(4))
 def test_compiled_preparation_matches_numpy_on_random_rows(seed, monkeypatch):
     """Random banded rows of 0-3 entries with equalities, one-sided and free rows, zero
-    coefficients and rows of zeros (unit norm kept), centred and scaled."""
+    coefficients and rows of zeros (unit norm kept), centred and scaled; the starting point
+    and the variables' box on them."""
     rng = np.random.default_rng(100 + seed)
     n, m = 30, 90
     counts = rng.integers(0, 4, size=m)
@@ -138,6 +145,14 @@ def test_compiled_preparation_matches_numpy_on_random_rows(seed, monkeypatch):
     assert fast.kd == slow.kd and np.any(fast.kind == 4) and np.any(fast.kind == 0)
     for name in ("indptr", "indices", "data", "lo", "up", "kind", "Pb", "q"):
         _same_bits(getattr(fast, name), getattr(slow, name), name)
+    # the starting point and the variables' box (rows of one entry, both signs, equalities)
+    fast_start, fast_box = banded_ipm._start(fast), banded_ipm._box_extent(fast)
+    with monkeypatch.context() as mp:
+        mp.setattr(qp_rows, "_compiled", None)
+        slow_start, slow_box = banded_ipm._start(slow), banded_ipm._box_extent(slow)
+    for name, a, b in zip(("x", "sl", "su", "zl", "zu"), fast_start, slow_start):
+        _same_bits(a, b, name)
+    _same_bits(fast_box, slow_box, "box extent")
 
 
 TAKE_CASES = [CASES[0], ("test_loop.geojson", Limits(), 0.0, 100.0)]   # open; a loop

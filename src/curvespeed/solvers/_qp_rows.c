@@ -12,6 +12,8 @@
  * - row_products: A x and A'y as banded_ipm._judge checks the kernel's answer with them (each
  *   sum from zero in the order numpy's bincount takes the terms).
  * - take_rows: the rows of RowQP.take (a batch's rows, its variables renumbered); copies only.
+ * - start_point, box_extent: banded_ipm._start's slacks and multipliers and banded_ipm.
+ *   _box_extent (maxima and minima propagate NaN, as numpy's do).
  *
  * Only the buffer protocol of the Python C API is used.
  */
@@ -19,6 +21,7 @@
 #include <Python.h>
 #include <math.h>
 #include <stdint.h>
+#include <stdlib.h>
 #include <string.h>
 
 /* An array of `items` entries (at least that many for an output) of kind 'q' (int64), 'd'
@@ -311,6 +314,131 @@ done:
     return result;
 }
 
+/* numpy's maximum and minimum: a NaN on either side wins */
+static inline double np_max(double a, double b)
+{
+    return isnan(a) || isnan(b) ? NAN : (a > b ? a : b);
+}
+
+static inline double np_min(double a, double b)
+{
+    return isnan(a) || isnan(b) ? NAN : (a < b ? a : b);
+}
+
+/* start_point(kind, lo, up, mu0, sl, su, zl, zu): banded_ipm._start's slacks, each side's
+ * distance from 0 shifted by max(-1.5 low, 0) (low: the smallest, Python's min of the two
+ * sides' numpy minima) plus the floor, 1 where the side is absent; multipliers mu0 / slack. */
+static PyObject *py_start_point(PyObject *self, PyObject *args)
+{
+    (void)self;
+    PyObject *o[7];
+    double mu0, floor_;
+    if (!PyArg_ParseTuple(args, "OOOddOOOO", &o[0], &o[1], &o[2], &mu0, &floor_, &o[3], &o[4],
+                          &o[5], &o[6]))
+        return NULL;
+    Py_buffer probe;
+    if (PyObject_GetBuffer(o[0], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
+    Py_ssize_t m = probe.len;
+    PyBuffer_Release(&probe);
+    const char kinds[7] = {'b', 'd', 'd', 'd', 'd', 'd', 'd'};
+    Py_buffer v[7];
+    int got = 0;
+    PyObject *result = NULL;
+    for (got = 0; got < 7; got++)
+        if (get(o[got], &v[got], got >= 3, m, kinds[got]) != 0) goto done;
+    {
+        const int8_t *kind = v[0].buf;
+        const double *lo = v[1].buf, *up = v[2].buf;
+        double *sl = v[3].buf, *su = v[4].buf, *zl = v[5].buf, *zu = v[6].buf;
+        double low_l = INFINITY, low_u = INFINITY;
+        for (Py_ssize_t i = 0; i < m; i++) {
+            int k = kind[i];
+            sl[i] = (k == 1 || k == 3) ? -lo[i] : INFINITY;
+            su[i] = (k == 2 || k == 3) ? up[i] : INFINITY;
+            low_l = np_min(low_l, sl[i]);
+            low_u = np_min(low_u, su[i]);
+        }
+        double low = low_u < low_l ? low_u : low_l;            /* Python's min(low_l, low_u) */
+        double shift = 0.0;
+        if (isfinite(low)) shift = 0.0 > -1.5 * low ? 0.0 : -1.5 * low;   /* Python's max */
+        for (Py_ssize_t i = 0; i < m; i++) {
+            int k = kind[i];
+            sl[i] = isfinite(sl[i]) ? sl[i] + shift + floor_ : 1.0;
+            su[i] = isfinite(su[i]) ? su[i] + shift + floor_ : 1.0;
+            zl[i] = (k == 1 || k == 3) ? mu0 / sl[i] : 0.0;
+            zu[i] = (k == 2 || k == 3) ? mu0 / su[i] : 0.0;
+        }
+        Py_INCREF(Py_None);
+        result = Py_None;
+    }
+done:
+    for (int j = 0; j < got; j++) PyBuffer_Release(&v[j]);
+    return result;
+}
+
+/* box_extent(indptr, indices, data, lo, up, kind, n) -> how far from 0 any point of the
+ * variables' box reaches (banded_ipm._box_extent) */
+static PyObject *py_box_extent(PyObject *self, PyObject *args)
+{
+    (void)self;
+    PyObject *o[6];
+    Py_ssize_t n;
+    if (!PyArg_ParseTuple(args, "OOOOOOn", &o[0], &o[1], &o[2], &o[3], &o[4], &o[5], &n))
+        return NULL;
+    Py_buffer probe;
+    if (PyObject_GetBuffer(o[2], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
+    Py_ssize_t nnz = probe.len / 8;
+    PyBuffer_Release(&probe);
+    if (PyObject_GetBuffer(o[5], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
+    Py_ssize_t m = probe.len;
+    PyBuffer_Release(&probe);
+    if (n < 0) { PyErr_SetString(PyExc_ValueError, "qp_rows kernel: bad sizes"); return NULL; }
+    const char kinds[6] = {'q', 'q', 'd', 'd', 'd', 'b'};
+    const Py_ssize_t items[6] = {m + 1, nnz, nnz, m, m, m};
+    Py_buffer v[6];
+    int got = 0;
+    PyObject *result = NULL;
+    double *box = NULL;
+    for (got = 0; got < 6; got++)
+        if (get(o[got], &v[got], 0, items[got], kinds[got]) != 0) goto done;
+    {
+        const int64_t *indptr = v[0].buf, *indices = v[1].buf;
+        const double *data = v[2].buf, *lo = v[3].buf, *up = v[4].buf;
+        const int8_t *kind = v[5].buf;
+        if (check_rows(indptr, indices, m, nnz, n) != 0) goto done;
+        box = malloc(sizeof(double) * 2 * (size_t)(n > 0 ? n : 1));
+        if (!box) { PyErr_NoMemory(); goto done; }
+        for (Py_ssize_t j = 0; j < n; j++) { box[2 * j] = -INFINITY; box[2 * j + 1] = INFINITY; }
+        for (Py_ssize_t i = 0; i < m; i++) {
+            int64_t k = indptr[i];
+            if (indptr[i + 1] - k != 1 || data[k] == 0.0) continue;
+            int ki = kind[i];
+            double a = data[k];
+            int has_lo = ki == 1 || ki >= 3, has_up = ki == 2 || ki == 3 || ki == 4;
+            double from_lo = lo[i] / a, from_up = (ki == 4 ? lo[i] : up[i]) / a;
+            double l, u;
+            if (a > 0) {            /* lo <= a x <= up: x >= lo / a, x <= up / a */
+                l = has_lo ? from_lo : -INFINITY;
+                u = has_up ? from_up : INFINITY;
+            } else {                /* the sides swap */
+                l = has_up ? from_up : -INFINITY;
+                u = has_lo ? from_lo : INFINITY;
+            }
+            int64_t j = indices[k];
+            box[2 * j] = np_max(box[2 * j], l);
+            box[2 * j + 1] = np_min(box[2 * j + 1], u);
+        }
+        double out = 0.0;
+        for (Py_ssize_t j = 0; j < n; j++)
+            out = np_max(out, np_max(fabs(box[2 * j]), fabs(box[2 * j + 1])));
+        result = PyFloat_FromDouble(out);
+    }
+done:
+    free(box);
+    for (int j = 0; j < got; j++) PyBuffer_Release(&v[j]);
+    return result;
+}
+
 static PyMethodDef methods[] = {
     {"reduce_into", py_reduce_into, METH_VARARGS,
      "reduce_into(cols, present, vals, lo, up, fixed, values, free_number, indptr, indices, "
@@ -324,6 +452,10 @@ static PyMethodDef methods[] = {
     {"take_rows", py_take_rows, METH_VARARGS,
      "take_rows(indptr, indices, data, lo, up, rows, local, indptr_out, indices_out, "
      "data_out, lo_out, up_out) -> entries written (qp_rows.RowQP.take)."},
+    {"start_point", py_start_point, METH_VARARGS,
+     "start_point(kind, lo, up, mu0, floor, sl, su, zl, zu) (banded_ipm._start)."},
+    {"box_extent", py_box_extent, METH_VARARGS,
+     "box_extent(indptr, indices, data, lo, up, kind, n) -> float (banded_ipm._box_extent)."},
     {NULL, NULL, 0, NULL}};
 
 static struct PyModuleDef module = {PyModuleDef_HEAD_INIT, "_qp_rows", NULL, -1, methods,

@@ -274,10 +274,16 @@ def _start(qp: _Banded):
     slacks its distances to each finite side shifted to be positive (Mehrotra's heuristic),
     multipliers ``mu0 / slack`` so every pair starts on the central path, with ``mu0`` the size of
     the objective's gradient (so the duals can balance it from the first step: with
-    ``mu0 = 1`` the benchmark QPs took 40-60 iterations instead of 18-23)."""
+    ``mu0 = 1`` the benchmark QPs took 40-60 iterations instead of 18-23). Compiled in
+    ``_qp_rows.c`` where it is built (the numpy code below its reference)."""
     n = qp.Pb.shape[1]
     x = np.zeros(n)
     kind = qp.kind
+    if qp_rows._compiled is not None:
+        mu0 = max(1.0, float(np.max(np.abs(qp.q), initial=0.0)))
+        sl, su, zl, zu = (np.empty(kind.size) for _ in range(4))
+        qp_rows._compiled.start_point(kind, qp.lo, qp.up, mu0, _SLACK_FLOOR, sl, su, zl, zu)
+        return x, sl, su, zl, zu
     with np.errstate(invalid="ignore"):
         sl = np.where((kind == 1) | (kind == 3), -qp.lo, np.inf)
         su = np.where((kind == 2) | (kind == 3), qp.up, np.inf)
@@ -352,7 +358,11 @@ def _products(qp: _Banded, x, y):
 def _box_extent(qp: _Banded) -> float:
     """How far from 0 any point of the variables' box reaches (each variable's box: the
     intersection of its rows with one entry); infinite when a variable has no finite box. In
-    the scaled, possibly reordered problem the kernel solves, as the kernel computes it."""
+    the scaled, possibly reordered problem the kernel solves, as the kernel computes it
+    (compiled in ``_qp_rows.c`` where it is built, the numpy code below its reference)."""
+    if qp_rows._compiled is not None:
+        return qp_rows._compiled.box_extent(qp.indptr, qp.indices, qp.data, qp.lo, qp.up,
+                                            qp.kind, qp.Pb.shape[1])
     rows = np.flatnonzero(np.diff(qp.indptr) == 1)
     k = qp.indptr[rows]
     rows, k = rows[qp.data[k] != 0.0], k[qp.data[k] != 0.0]
