@@ -252,21 +252,22 @@ def interval_blocks(qp: RowQP):
     neighbouring stations; the time model links every two neighbouring free stations).
     """
     n = qp.n
-    cover = np.zeros(n + 1, dtype=np.int64)
     nz = qp.data != 0.0
-    rows = qp.row_of_entry()[nz]
-    idx = qp.indices[nz]
-    if idx.size:
-        first = np.full(qp.m, n, dtype=np.int64)
-        last = np.full(qp.m, -1, dtype=np.int64)
-        np.minimum.at(first, rows, idx)
-        np.maximum.at(last, rows, idx)
-        span = last > first
-        np.add.at(cover, first[span], 1)
-        np.add.at(cover, last[span], -1)
+    # each row's first and last variable with a nonzero term (n and -1 where none), by
+    # reductions over each row's entries (integers: exact whichever way they are taken)
+    first = np.full(qp.m, n, dtype=np.int64)
+    last = np.full(qp.m, -1, dtype=np.int64)
+    has = np.diff(qp.indptr) > 0
+    if nz.any():
+        starts = qp.indptr[:-1][has]
+        first[has] = np.minimum.reduceat(np.where(nz, qp.indices, n), starts)
+        last[has] = np.maximum.reduceat(np.where(nz, qp.indices, -1), starts)
+    span = last > first
     pnz = (qp.pval != 0.0) & (qp.prow < qp.pcol)
-    np.add.at(cover, qp.prow[pnz], 1)
-    np.add.at(cover, qp.pcol[pnz], -1)
+    cover = (np.bincount(first[span], minlength=n + 1)
+             - np.bincount(last[span], minlength=n + 1)
+             + np.bincount(qp.prow[pnz], minlength=n + 1)
+             - np.bincount(qp.pcol[pnz], minlength=n + 1))
     linked = np.cumsum(cover)[: max(n - 1, 0)] > 0       # variable c linked to c + 1
     cuts = np.flatnonzero(~linked) + 1
     return np.concatenate(([0], cuts, [n])).astype(np.int64)
