@@ -303,9 +303,11 @@ class QPBuilder:
             if not every_step:
                 steps = steps[~(lay.fixed[lay.step_from] & lay.fixed[lay.step_to])]
             sf, st = lay.step_from[steps], lay.step_to[steps]
-            nodes = np.unique(np.concatenate((sf, st)))
-            self._spans[every_step] = (steps, nodes, np.searchsorted(nodes, sf),
-                                       np.searchsorted(nodes, st),
+            touched = np.zeros(lay.nv, dtype=bool)
+            touched[sf] = touched[st] = True
+            nodes = np.flatnonzero(touched)         # in order, each once
+            position = np.cumsum(touched) - 1       # a touched node's place among them
+            self._spans[every_step] = (steps, nodes, position[sf], position[st],
                                        self._node_bounds(np.zeros(nodes.size), nodes),
                                        self._node_bounds(self.b_env[nodes], nodes))
         return self._spans[every_step]
