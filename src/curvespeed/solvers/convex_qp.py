@@ -471,11 +471,14 @@ class QPBuilder:
                              dv[dp] * b_hat[dc[dp]], minlength=nv)
             DtDb = np.bincount(dc[dp], dv[dp] * np.repeat(Db, dp.sum(axis=1)), minlength=nv)
             grad = grad + 2.0 * w * DtDb
-        r, c, v = np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
-        keep = free[r] & free[c] & (v != 0.0)
-        key, inv = np.unique(r[keep] * nv + c[keep], return_inverse=True)
-        pval = np.bincount(inv, v[keep]) if key.size else np.zeros(0)
-        prow, pcol = key // nv, key % nv
+        if w > 0 or lay.closed:
+            r, c, v = np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
+            keep = free[r] & free[c] & (v != 0.0)
+            key, inv = np.unique(r[keep] * nv + c[keep], return_inverse=True)
+            pval = np.bincount(inv, v[keep]) if key.size else np.zeros(0)
+            prow, pcol = key // nv, key % nv
+        else:
+            prow, pcol, pval = _tridiagonal(free, diag, steps, hxy, lay.n_steps)
         # the Hessian times b_hat, on free rows, each row's terms in column order from zero
         hb = np.bincount(prow, pval * b_hat[pcol], minlength=nv)
         q = np.where(lay.fixed, -lay.fixed_value, grad - hb)
@@ -525,6 +528,27 @@ def _accel_minus_slope(at_first_node: bool, fh, slope):
     if at_first_node:
         return -fh - slope, fh
     return -fh, fh - slope
+
+
+def _tridiagonal(free, diag, steps, hxy, n_steps):
+    """The time model's Hessian on an open route without a comfort term, as
+    :meth:`QPBuilder.objective` returns it: node ``k``'s row has ``(k, k - 1)`` from step
+    ``k - 1``, ``(k, k)`` and ``(k, k + 1)`` from step ``k``, each key once, so the entries
+    come straight in row-major order, without the general path's sort (each the one term of its
+    sum, which the general path adds to zero: the same number for every nonzero term).
+    Entries off the free nodes or equal to zero are left out, as there."""
+    nv = free.size
+    off = np.zeros(n_steps)
+    off[steps] = hxy
+    k = np.arange(nv)
+    cols = np.stack((k - 1, k, k + 1), axis=1)
+    vals = np.zeros((nv, 3))
+    vals[1:, 0] = off[: nv - 1]
+    vals[:, 1] = diag
+    vals[:-1, 2] = off[: nv - 1]
+    inside = (cols >= 0) & (cols < nv)
+    keep = inside & free[:, None] & free[np.clip(cols, 0, nv - 1)] & (vals != 0.0)
+    return np.repeat(k, keep.sum(axis=1)), cols[keep], vals[keep]
 
 
 def _join_rows(parts, step_from, step_to):
