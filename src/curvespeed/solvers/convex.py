@@ -283,7 +283,10 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
             for j, batch in enumerate(batches):
                 batch_of[batch] = j
             row_batch = batch_of[row_block]
-            by_batch = np.argsort(row_batch, kind="stable")
+            # stable, so the same order whatever the integer type; small integers sort by
+            # radix, in linear time
+            by_batch = np.argsort(row_batch.astype(np.int16) if len(batches) < 2 ** 15
+                                  else row_batch, kind="stable")
             cuts = np.searchsorted(row_batch[by_batch], np.arange(len(batches) + 1))
             for j, batch in enumerate(batches):
                 cols = np.concatenate([blocks[k] for k in batch])
