@@ -46,6 +46,16 @@ static int get(PyObject *o, Py_buffer *v, int writable, Py_ssize_t items, char k
     return 0;
 }
 
+/* The length of o's buffer in items of `size` bytes; -1 (an exception set) without one. */
+static Py_ssize_t items_in(PyObject *o, Py_ssize_t size)
+{
+    Py_buffer b;
+    if (PyObject_GetBuffer(o, &b, PyBUF_C_CONTIGUOUS) != 0) return -1;
+    Py_ssize_t n = b.len / size;
+    PyBuffer_Release(&b);
+    return n;
+}
+
 /* reduce_into(cols, present, vals, lo, up, fixed, values, free_number, indptr, indices, data,
  *             lo_out, up_out, row0, k0) -> (row1, k1) */
 static PyObject *py_reduce_into(PyObject *self, PyObject *args)
@@ -60,16 +70,9 @@ static PyObject *py_reduce_into(PyObject *self, PyObject *args)
     int got = 0;
     PyObject *result = NULL;
     /* sizes: m rows of w slots (lo's length and cols' length), nv stations (fixed's length) */
-    Py_buffer probe;
-    if (PyObject_GetBuffer(o[3], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
-    Py_ssize_t m = probe.len / 8;
-    PyBuffer_Release(&probe);
-    if (PyObject_GetBuffer(o[0], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
-    Py_ssize_t w = m > 0 ? probe.len / 8 / m : 0;
-    PyBuffer_Release(&probe);
-    if (PyObject_GetBuffer(o[5], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
-    Py_ssize_t nv = probe.len;
-    PyBuffer_Release(&probe);
+    Py_ssize_t m = items_in(o[3], 8), cells = items_in(o[0], 8), nv = items_in(o[5], 1);
+    if (m < 0 || cells < 0 || nv < 0) return NULL;
+    Py_ssize_t w = m > 0 ? cells / m : 0;
     if (row0 < 0 || k0 < 0 || (m == 0 ? 0 : w < 1)) {
         PyErr_SetString(PyExc_ValueError, "qp_rows kernel: bad sizes");
         return NULL;
@@ -149,15 +152,9 @@ static PyObject *py_scale_rows(PyObject *self, PyObject *args)
     if (!PyArg_ParseTuple(args, "OOOOOOOOOOOp", &o[0], &o[1], &o[2], &o[3], &o[4], &o[5],
                           &o[6], &o[7], &o[8], &o[9], &o[10], &centred))
         return NULL;
-    Py_buffer probe;
-    Py_ssize_t len[3];
-    for (int j = 0; j < 3; j++) {       /* indptr, data and centre give m, nnz and n */
-        if (PyObject_GetBuffer(o[j == 0 ? 0 : j == 1 ? 2 : 5], &probe, PyBUF_C_CONTIGUOUS) != 0)
-            return NULL;
-        len[j] = probe.len / 8;
-        PyBuffer_Release(&probe);
-    }
-    Py_ssize_t m = len[0] - 1, nnz = len[1], n = len[2];
+    /* indptr, data and centre give m, nnz and n */
+    Py_ssize_t m = items_in(o[0], 8) - 1, nnz = items_in(o[2], 8), n = items_in(o[5], 8);
+    if (PyErr_Occurred()) return NULL;
     if (m < 0) { PyErr_SetString(PyExc_ValueError, "qp_rows kernel: empty indptr"); return NULL; }
     const char kinds[11] = {'q', 'q', 'd', 'd', 'd', 'd', 'd', 'd', 'd', 'd', 'b'};
     const Py_ssize_t items[11] = {m + 1, nnz, nnz, m, m, n, n, nnz, m, m, m};
@@ -212,15 +209,9 @@ static PyObject *py_row_products(PyObject *self, PyObject *args)
     PyObject *o[7];
     if (!PyArg_ParseTuple(args, "OOOOOOO", &o[0], &o[1], &o[2], &o[3], &o[4], &o[5], &o[6]))
         return NULL;
-    Py_buffer probe;
-    Py_ssize_t len[3];
-    for (int j = 0; j < 3; j++) {       /* indptr, data and x give m, nnz and n */
-        if (PyObject_GetBuffer(o[j == 0 ? 0 : j == 1 ? 2 : 3], &probe, PyBUF_C_CONTIGUOUS) != 0)
-            return NULL;
-        len[j] = probe.len / 8;
-        PyBuffer_Release(&probe);
-    }
-    Py_ssize_t m = len[0] - 1, nnz = len[1], n = len[2];
+    /* indptr, data and x give m, nnz and n */
+    Py_ssize_t m = items_in(o[0], 8) - 1, nnz = items_in(o[2], 8), n = items_in(o[3], 8);
+    if (PyErr_Occurred()) return NULL;
     if (m < 0) { PyErr_SetString(PyExc_ValueError, "qp_rows kernel: empty indptr"); return NULL; }
     const char kinds[7] = {'q', 'q', 'd', 'd', 'd', 'd', 'd'};
     const Py_ssize_t items[7] = {m + 1, nnz, nnz, n, m, m, n};
@@ -261,15 +252,10 @@ static PyObject *py_take_rows(PyObject *self, PyObject *args)
     if (!PyArg_ParseTuple(args, "OOOOOOOOOOOO", &o[0], &o[1], &o[2], &o[3], &o[4], &o[5],
                           &o[6], &o[7], &o[8], &o[9], &o[10], &o[11]))
         return NULL;
-    Py_buffer probe;
-    Py_ssize_t len[4];
-    const int which[4] = {0, 2, 5, 6};  /* indptr, data, rows, local: m, nnz, rows, n */
-    for (int j = 0; j < 4; j++) {
-        if (PyObject_GetBuffer(o[which[j]], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
-        len[j] = probe.len / 8;
-        PyBuffer_Release(&probe);
-    }
-    Py_ssize_t m = len[0] - 1, nnz = len[1], mr = len[2], n = len[3];
+    /* indptr, data, rows and local give m, nnz, the rows taken and n */
+    Py_ssize_t m = items_in(o[0], 8) - 1, nnz = items_in(o[2], 8), mr = items_in(o[5], 8);
+    Py_ssize_t n = items_in(o[6], 8);
+    if (PyErr_Occurred()) return NULL;
     if (m < 0) { PyErr_SetString(PyExc_ValueError, "qp_rows kernel: empty indptr"); return NULL; }
     const char kinds[12] = {'q', 'q', 'd', 'd', 'd', 'q', 'q', 'q', 'q', 'd', 'd', 'd'};
     const Py_ssize_t items[12] = {m + 1, nnz, nnz, m, m, mr, n, mr + 1, 0, 0, mr, mr};
@@ -336,10 +322,8 @@ static PyObject *py_start_point(PyObject *self, PyObject *args)
     if (!PyArg_ParseTuple(args, "OOOddOOOO", &o[0], &o[1], &o[2], &mu0, &floor_, &o[3], &o[4],
                           &o[5], &o[6]))
         return NULL;
-    Py_buffer probe;
-    if (PyObject_GetBuffer(o[0], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
-    Py_ssize_t m = probe.len;
-    PyBuffer_Release(&probe);
+    Py_ssize_t m = items_in(o[0], 1);
+    if (m < 0) return NULL;
     const char kinds[7] = {'b', 'd', 'd', 'd', 'd', 'd', 'd'};
     Py_buffer v[7];
     int got = 0;
@@ -385,13 +369,8 @@ static PyObject *py_box_extent(PyObject *self, PyObject *args)
     Py_ssize_t n;
     if (!PyArg_ParseTuple(args, "OOOOOOn", &o[0], &o[1], &o[2], &o[3], &o[4], &o[5], &n))
         return NULL;
-    Py_buffer probe;
-    if (PyObject_GetBuffer(o[2], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
-    Py_ssize_t nnz = probe.len / 8;
-    PyBuffer_Release(&probe);
-    if (PyObject_GetBuffer(o[5], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
-    Py_ssize_t m = probe.len;
-    PyBuffer_Release(&probe);
+    Py_ssize_t nnz = items_in(o[2], 8), m = items_in(o[5], 1);
+    if (nnz < 0 || m < 0) return NULL;
     if (n < 0) { PyErr_SetString(PyExc_ValueError, "qp_rows kernel: bad sizes"); return NULL; }
     const char kinds[6] = {'q', 'q', 'd', 'd', 'd', 'b'};
     const Py_ssize_t items[6] = {m + 1, nnz, nnz, m, m, m};
