@@ -1,7 +1,8 @@
 """The envelope's compiled passes (``solvers/_envelope_passes.c``) are the Python loops' twin:
 the same squared speeds to the last bit, on open and closed routes, with grade, drag and power,
 and in the backward pass that ``check`` uses (``brake_reach``). The Python loops stay in
-``solvers/envelope.py`` as the reference."""
+``solvers/envelope.py`` as the reference. Likewise the lateral ceiling's bisection
+(``SpeedProblem.lateral_ceiling_b``), its numpy loop the reference."""
 
 from __future__ import annotations
 
@@ -12,6 +13,7 @@ from test_certificate_convex import CASES
 
 from curvespeed.friction import FrictionSection
 from curvespeed.limits import Limits, RouteConstraints, Stop
+from curvespeed import problem as problem_module
 from curvespeed.problem import build_problem
 from curvespeed.solvers import envelope
 
@@ -42,3 +44,16 @@ def test_compiled_passes_match_python_bit_for_bit(name, monkeypatch):
     slow_reach = envelope.brake_reach(problem, ceiling)
     assert np.array_equal(fast, slow)
     assert np.array_equal(fast_reach, slow_reach)
+
+
+@pytest.mark.parametrize("name", list(PROBLEMS))
+def test_compiled_lateral_ceiling_matches_python_bit_for_bit(name, monkeypatch):
+    """SpeedProblem.lateral_ceiling_b's bisection compiled (``_envelope_passes.c``) against
+    its numpy loop: the same squared speeds to the last bit (the cases have grade, drag,
+    power, superelevation and friction sections, a loop and a stop)."""
+    problem = build_problem(*PROBLEMS[name])
+    fast = problem.lateral_ceiling_b()
+    monkeypatch.setattr(problem_module, "_ceiling_kernel", lambda: None)
+    slow = problem.lateral_ceiling_b()
+    assert np.array_equal(fast.view(np.uint8), slow.view(np.uint8))
+    assert np.any(fast < problem.cap_b)         # some node was bisected

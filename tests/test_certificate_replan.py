@@ -113,6 +113,10 @@ def test_every_window_passes_the_verifier_and_the_route_ceiling(route_case):
         b = w.speed_mps ** 2
         check = verify_profile(w.problem, b, CONVEX_TOLERANCE)
         assert check.ok, f"{name} at {geo.station_m[k]:.1f} m: {check.violations}"
+        # the Replanner's own check names no binding limits; its verdict and uses are the same
+        quick = verify_profile(w.problem, b, CONVEX_TOLERANCE, labels=False)
+        assert quick.binding is None and quick.violations == check.violations
+        assert all(np.array_equal(quick.use[n], check.use[n]) for n in check.use)
         # independently of the window's own problem: under the whole route's ceiling (lateral
         # limits, grip, top speed, zones, stops) at every one of its stations
         idx = _plan_nodes(geo, k, w.speed_mps.size)

@@ -26,6 +26,7 @@ from curvespeed.solvers.clarabel_qp import solve_qp_clarabel
 from curvespeed.solvers.convex import ConvexOptions, plateau_anchors, solve_convex
 from curvespeed.solvers.convex_qp import QPBuilder, QPLayout
 from curvespeed.solvers.envelope import solve_envelope
+from curvespeed.solvers import qp_rows
 from curvespeed.solvers.qp_rows import RowQP, canonical, interval_blocks, reduce_rows
 from curvespeed.verify import verify_profile
 
@@ -125,6 +126,32 @@ def test_canonical_matches_scipy_sum_duplicates():
     # two repeats sum the same in either order; three in a row only here, within round-off of
     # a sum of three unit normals (1e-15)
     assert np.allclose(ref.data, got.data, rtol=0, atol=1e-15)
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_canonical_few_rows_path_equals_the_vectorised_path(seed, monkeypatch):
+    """A table with a few rows out of order (as a window's jerk rows have at its ends) goes
+    row by row; the same bits as the vectorised path, and the same entries as scipy's
+    coo -> csr (all repeats of two here, so the sums agree exactly)."""
+    rng = np.random.default_rng(seed)
+    m, n = 300, 310
+    cols = np.arange(m)[:, None] + np.arange(3)[None, :]
+    bad = rng.choice(m, size=12, replace=False)
+    cols[bad] = rng.permutation(3)[None, :] + cols[bad, :1]      # unsorted
+    cols[bad[:6], 1] = cols[bad[:6], 0]                           # one station twice
+    cols[bad[6:9], 2] = -1                                        # an unused slot
+    vals = rng.normal(size=(m, 3))
+    few = canonical(cols, vals, 2.0 * vals)
+    monkeypatch.setattr(qp_rows, "_FEW_ROWS", -1)
+    many = canonical(cols, vals, 2.0 * vals)
+    for a, b in zip(few, many):
+        assert a.dtype == b.dtype and np.array_equal(a.view(np.uint8), b.view(np.uint8))
+    c, present, v, _ = few
+    used = cols.ravel() >= 0
+    ref = sp.coo_matrix((vals.ravel()[used], (np.repeat(np.arange(m), 3)[used],
+                                              cols.ravel()[used])), shape=(m, n)).tocsr()
+    ref.sum_duplicates()
+    assert np.array_equal(ref.indices, c[present]) and np.array_equal(ref.data, v[present])
 
 
 def test_reduce_rows_matches_column_slicing():

@@ -357,7 +357,18 @@ class SpeedProblem:
         capped_done = bool(np.all((hi_b - lo_b <= 1e-12 * np.maximum(hi_b, 1.0))[ok]))
         lo_t, hi_t = lo_b[todo], hi_b[todo]
         # those nodes' arrays gathered once, not in each of the 60 steps (the same values)
-        sub = replace(self, **{name: getattr(self, name)[todo] for name in _BOUNDS_FIELDS})
+        fields = {name: getattr(self, name)[todo] for name in _BOUNDS_FIELDS}
+        kernel = _ceiling_kernel()
+        if kernel is not None and todo.size:    # the loop below, compiled (the same numbers)
+            lim = self.limits
+            kernel.ceiling_bisect(
+                *(np.ascontiguousarray(fields[name], dtype=float) for name in _BOUNDS_FIELDS),
+                (lim.gravity_mps2, lim.max_lateral_accel_mps2, lim.max_accel_mps2,
+                 lim.max_decel_mps2, lim.drag_per_b_1pm, lim.rolling_resistance_coefficient,
+                 lim.power_per_mass_wpkg), math.isfinite(lim.power_per_mass_wpkg),
+                lo_t, hi_t, iterations, capped_done)
+            iterations = 0
+        sub = replace(self, **fields) if iterations else None
         for _ in range(iterations):
             if todo.size == 0:
                 break
@@ -373,9 +384,20 @@ class SpeedProblem:
         return np.where(ok, hi_b, lo_b)
 
 
-#: The per-node arrays :meth:`SpeedProblem.accel_bounds` reads.
+#: The per-node arrays :meth:`SpeedProblem.accel_bounds` reads (in the order the compiled
+#: bisection takes them).
 _BOUNDS_FIELDS = ("kappa_abs", "cos_bank", "sin_bank", "cos_grade", "sin_grade", "mu_long",
                   "mu_lat")
+
+
+def _ceiling_kernel():
+    """The compiled twin of :meth:`SpeedProblem.lateral_ceiling_b`'s bisection
+    (``solvers/_envelope_passes.c``), or None where it was not built."""
+    try:
+        from .solvers import _envelope_passes
+    except ImportError:
+        return None
+    return _envelope_passes
 
 
 def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstraints,

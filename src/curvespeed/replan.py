@@ -418,7 +418,9 @@ class Replanner:
         from .verify import DEFAULT_TOLERANCE, verify_profile
 
         tolerance = CONVEX_TOLERANCE if self._jerk else DEFAULT_TOLERANCE
-        check = verify_profile(window.problem, b, tolerance, check_jerk=self._jerk)
+        # the window's binding limits are never read: not named
+        check = verify_profile(window.problem, b, tolerance, check_jerk=self._jerk,
+                               labels=False)
         if not check.ok:
             worst = "; ".join(v.describe() for v in check.violations)
             raise SolverError(f"replan: the window's profile breaks its limits: {worst}. This "

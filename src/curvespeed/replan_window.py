@@ -73,6 +73,8 @@ class RouteTables:
         for stop in constraints.stops:
             k = stop_node(stop.station_m, self.ds, self.n, self.closed)
             self.stop_at[k % self.nv] = stop
+        self.is_stop = np.zeros(self.nv, dtype=bool)       # the same nodes, as a mask
+        self.is_stop[list(self.stop_at)] = True
 
     def set_route_plan(self, b: np.ndarray) -> None:
         """The whole route's squared speeds: a window with no better starting point linearises
@@ -129,7 +131,7 @@ class RouteTables:
         if not at_end and end_bound < cap[-1]:
             cap[-1], source[-1] = end_bound, "window_end"
         reserve = None if at_end else self._end_reserve(end_bound, int(idx[-1]))
-        stop_pos = [i for i in range(1, idx.size) if idx[i] % self.nv in self.stop_at]
+        stop_pos = (np.flatnonzero(self.is_stop[idx[1:] % self.nv]) + 1).tolist()
         stops = tuple(Stop(i * self.ds, self._stop_origin(idx[i]),
                            name=self.stop_at[idx[i] % self.nv].name) for i in stop_pos)
         nsteps = idx.size - 1

@@ -46,8 +46,9 @@ class Verification:
         Maximum of each ``use`` array.
     violations : list of Violation
         First violation of each limit beyond the tolerance (empty when the profile is valid).
-    binding : ndarray of str
-        The limit that binds at each node, or "none".
+    binding : ndarray of str, or None
+        The limit that binds at each node, or "none" (None when not asked for:
+        ``verify_profile(..., labels=False)``).
     extremes : dict of str -> float
         Peak magnitudes in SI units: ``accel_mps2``, ``decel_mps2``, ``lateral_accel_mps2``,
         ``jerk_mps3``, ``lateral_jerk_mps3``.
@@ -80,11 +81,14 @@ def _node_max(step_values: np.ndarray, closed: bool) -> np.ndarray:
 
 
 def verify_profile(problem: SpeedProblem, b: np.ndarray,
-                   tolerance: float = DEFAULT_TOLERANCE, check_jerk: bool = True) -> Verification:
+                   tolerance: float = DEFAULT_TOLERANCE, check_jerk: bool = True,
+                   labels: bool = True) -> Verification:
     """Check squared speeds ``b`` against every limit of ``problem``.
 
     ``check_jerk=False`` leaves the jerk bounds (longitudinal and lateral) out, for solvers that
     do not enforce them; the jerks are still measured in :attr:`Verification.extremes`.
+    ``labels=False`` names no binding limits (:attr:`Verification.binding` is None), for
+    callers that only need the verdict and the derived quantities (a receding-horizon window).
     """
     lim = problem.limits
     b = np.maximum(np.asarray(b, dtype=float), 0.0)
@@ -156,7 +160,8 @@ def verify_profile(problem: SpeedProblem, b: np.ndarray,
                 "jerk_mps3": float(np.max(np.abs(d["jerk_mps3"]))),
                 "lateral_jerk_mps3": float(np.max(lat_jerk))}
     return Verification(use=use, peak=peak, violations=violations,
-                        binding=_binding_labels(problem, a, use, lat_use, grip_lat_share),
+                        binding=(_binding_labels(problem, a, use, lat_use, grip_lat_share)
+                                 if labels else None),
                         extremes=extremes, derived=d)
 
 

@@ -3,7 +3,10 @@
  * A line-by-line twin of envelope.py's _Nodes.bounds, _upper_root, _largest_cubic_root,
  * _reach_forward, _reach_backward, _forward_pass and _backward_pass (which stay as the reference
  * the tests compare against): the same operations in the same order, so the answers agree to
- * the last bit. Only the buffer protocol of the Python C API is used (no numpy headers).
+ * the last bit. Also the twin of problem.SpeedProblem.lateral_ceiling_b's bisection (with
+ * accel_bounds written out in the same operations: numpy's maximum and minimum propagate NaN,
+ * its ** 2 is a product). Only the buffer protocol of the Python C API is used (no numpy
+ * headers).
  */
 #define PY_SSIZE_T_CLEAN
 #include <Python.h>
@@ -215,10 +218,96 @@ done:
     return result;
 }
 
+/* numpy's maximum and minimum: a NaN on either side wins */
+static inline double np_max(double a, double b)
+{
+    return isnan(a) || isnan(b) ? NAN : (a > b ? a : b);
+}
+
+static inline double np_min(double a, double b)
+{
+    return isnan(a) || isnan(b) ? NAN : (a < b ? a : b);
+}
+
+typedef struct {
+    const double *kappa, *cb, *sb, *cg, *sg, *mux, *muy;      /* per node */
+    double g, a_lat, a_acc, a_dec, drag, roll, pm;
+    int power;
+} ceiling_t;
+
+/* Is node k's acceleration interval at squared speed b non-empty?
+ * (SpeedProblem.accel_bounds: lo <= hi) */
+static int interval_open(const ceiling_t *c, Py_ssize_t k, double b)
+{
+    b = np_max(b, 0.0);
+    double y = c->kappa[k] * b * c->cb[k] - c->g * c->sb[k];
+    double r = np_max(y, 0.0) / c->a_lat;
+    double cf = sqrt(np_max(1.0 - r * r, 0.0));
+    if (r > 1.0) cf = -1.0;
+    double nrm = c->g * c->cg[k] * c->cb[k] + c->kappa[k] * b * c->sb[k];
+    double t = y / c->muy[k];
+    double w2 = nrm * nrm - t * t;
+    double w = c->mux[k] * sqrt(np_max(w2, 0.0));
+    if (w2 < 0.0) w = -1.0;
+    double res = c->g * c->sg[k] + c->drag * b + c->roll * c->g * c->cg[k];
+    double lo = np_max(-c->a_dec * cf, -w - res);
+    double hi = np_min(c->a_acc * cf, w - res);
+    if (c->power) hi = np_min(hi, c->pm / sqrt(b) - res);
+    return lo <= hi;
+}
+
+/* ceiling_bisect(kappa, cos_bank, sin_bank, cos_grade, sin_grade, mu_long, mu_lat,
+ *                (g, a_lat, a_acc, a_dec, drag, roll, pm), power, lo, hi, iterations,
+ *                capped_done): lo and hi bisected in place, every node at once, stopping
+ *                early (with capped_done) once every bracket is within 1e-12 of its top. */
+static PyObject *py_ceiling(PyObject *self, PyObject *args)
+{
+    (void)self;
+    PyObject *o[9];
+    ceiling_t c;
+    int iterations, capped_done;
+    if (!PyArg_ParseTuple(args, "OOOOOOO(ddddddd)pOOip", &o[0], &o[1], &o[2], &o[3], &o[4],
+                          &o[5], &o[6], &c.g, &c.a_lat, &c.a_acc, &c.a_dec, &c.drag, &c.roll,
+                          &c.pm, &c.power, &o[7], &o[8], &iterations, &capped_done))
+        return NULL;
+    Py_buffer v[9];
+    int got = 0;
+    PyObject *result = NULL;
+    if (get(o[0], &v[0], 0, -1, 0) != 0) return NULL;
+    got = 1;
+    Py_ssize_t n = v[0].len / 8;
+    for (; got < 9; got++)
+        if (get(o[got], &v[got], got >= 7, n, 0) != 0) goto done;
+    c.kappa = v[0].buf; c.cb = v[1].buf; c.sb = v[2].buf; c.cg = v[3].buf; c.sg = v[4].buf;
+    c.mux = v[5].buf; c.muy = v[6].buf;
+    double *lo = v[7].buf, *hi = v[8].buf;
+    Py_BEGIN_ALLOW_THREADS
+    for (int it = 0; it < iterations && n > 0; it++) {
+        int narrow = 1;
+        for (Py_ssize_t k = 0; k < n; k++) {
+            double mid = 0.5 * (lo[k] + hi[k]);
+            if (interval_open(&c, k, mid)) lo[k] = mid;
+            else hi[k] = mid;
+            narrow = narrow && hi[k] - lo[k] <= 1e-12 * np_max(hi[k], 1.0);
+        }
+        if (capped_done && narrow) break;
+    }
+    Py_END_ALLOW_THREADS
+    Py_INCREF(Py_None);
+    result = Py_None;
+done:
+    for (int k = 0; k < got; k++) PyBuffer_Release(&v[k]);
+    return result;
+}
+
 static PyMethodDef methods[] = {
     {"run_pass", py_pass, METH_VARARGS,
      "run_pass(direction, lat1, lat0, n0, n1, r0, mux, muy, (cd, a_acc, a_dec, a_lat, pm, h), "
      "ceiling, b_end, order, out): one forward (+1) or backward (-1) pass into out."},
+    {"ceiling_bisect", py_ceiling, METH_VARARGS,
+     "ceiling_bisect(kappa, cos_bank, sin_bank, cos_grade, sin_grade, mu_long, mu_lat, "
+     "(g, a_lat, a_acc, a_dec, drag, roll, pm), power, lo, hi, iterations, capped_done): "
+     "SpeedProblem.lateral_ceiling_b's bisection, lo and hi in place."},
     {NULL, NULL, 0, NULL}};
 
 static struct PyModuleDef module = {PyModuleDef_HEAD_INIT, "_envelope_passes", NULL, -1,

@@ -25,7 +25,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from . import SolveStatus
+from . import SolveStatus, qp_rows
 from .qp_rows import RowQP
 
 try:
@@ -155,7 +155,13 @@ def _prepare(P, q, A, lo, up, centre, scale):
 
 def _prepare_rows(qp: RowQP, centre, scale):
     """Scale, check the band, reorder if needed, scale the rows; on the arrays alone (scipy's
-    products cost more than the solve on a small QP)."""
+    products cost more than the solve on a small QP). The rows' passes are compiled
+    (``_qp_rows.c``, :func:`_prepare_compiled`) unless the band needs reordering; the numpy
+    code below is their reference and gives the same numbers."""
+    if qp_rows._compiled is not None:
+        b = _prepare_compiled(qp, centre, scale)
+        if b is not None:
+            return b
     prow, pcol, pval = qp.prow, qp.pcol, qp.pval
     data, q, lo, up = qp.data, qp.q, qp.lo, qp.up
     m = qp.m
@@ -191,13 +197,49 @@ def _prepare_rows(qp: RowQP, centre, scale):
     kind[finite_lo & finite_up & (b.lo == b.up)] = 4
     kind[~has] = 0                      # an empty row: judged below, never iterated on
     b.kind = kind.astype(np.int8)
-    lower = prow >= pcol
-    # each entry summed into its band slot from zero in order (no slot twice: P's entries are
-    # distinct), by bincount rather than the much slower np.add.at
-    slot = (prow[lower] - pcol[lower]) * qp.n + pcol[lower]
-    b.Pb = np.bincount(slot, pval[lower], minlength=(kd + 1) * qp.n).reshape(kd + 1, qp.n)
+    b.Pb = _P_band(prow, pcol, pval, qp.n, kd)
     b.q = q
     b.inverse = inverse
+    return b
+
+
+def _P_band(prow, pcol, pval, n, kd):
+    """``P``'s lower band (``Pb[d, j] = P[j + d, j]``): each entry summed into its slot from
+    zero in order (no slot twice: P's entries are distinct), by bincount rather than the much
+    slower np.add.at."""
+    lower = prow >= pcol
+    slot = (prow[lower] - pcol[lower]) * n + pcol[lower]
+    return np.bincount(slot, pval[lower], minlength=(kd + 1) * n).reshape(kd + 1, n)
+
+
+def _prepare_compiled(qp: RowQP, centre, scale):
+    """:func:`_prepare_rows` with the rows' passes compiled (centring, scaling, unit largest
+    coefficient, kinds and bandwidth in one pass); None where the band is too wide in station
+    order (the numpy path then reorders the columns)."""
+    prow, pcol, pval, q = qp.prow, qp.pcol, qp.pval, qp.q
+    centred = centre is not None
+    if centred:                         # y = (x - centre) / scale, as solve_qp_clarabel does
+        q = scale * (q + qp.P_times(centre))
+        pval = pval * scale[prow] * scale[pcol]
+    else:
+        centre = scale = np.zeros(qp.n)             # not read
+    m, nnz = qp.m, qp.indices.size
+    b = _Banded()
+    b.indptr = np.ascontiguousarray(qp.indptr, dtype=np.int64)
+    b.indices = np.ascontiguousarray(qp.indices, dtype=np.int64)
+    b.data, b.lo, b.up = np.empty(nnz), np.empty(m), np.empty(m)
+    b.kind = np.empty(m, dtype=np.int8)
+    f64 = [np.ascontiguousarray(a, dtype=float) for a in (qp.data, qp.lo, qp.up, centre, scale)]
+    kd_rows = qp_rows._compiled.scale_rows(b.indptr, b.indices, *f64, b.data, b.lo, b.up,
+                                           b.kind, centred)
+    kd = max(int(np.max(np.abs(prow - pcol))) if prow.size else 0, kd_rows)
+    if kd > MAX_BANDWIDTH:
+        return None
+    b.kd = kd
+    b.rows = None                       # every entry's row: not needed by the compiled checks
+    b.Pb = _P_band(prow, pcol, pval, qp.n, kd)
+    b.q = q
+    b.inverse = None
     return b
 
 
@@ -232,10 +274,16 @@ def _start(qp: _Banded):
     slacks its distances to each finite side shifted to be positive (Mehrotra's heuristic),
     multipliers ``mu0 / slack`` so every pair starts on the central path, with ``mu0`` the size of
     the objective's gradient (so the duals can balance it from the first step: with
-    ``mu0 = 1`` the benchmark QPs took 40-60 iterations instead of 18-23)."""
+    ``mu0 = 1`` the benchmark QPs took 40-60 iterations instead of 18-23). Compiled in
+    ``_qp_rows.c`` where it is built (the numpy code below its reference)."""
     n = qp.Pb.shape[1]
     x = np.zeros(n)
     kind = qp.kind
+    if qp_rows._compiled is not None:
+        mu0 = max(1.0, float(np.max(np.abs(qp.q), initial=0.0)))
+        sl, su, zl, zu = (np.empty(kind.size) for _ in range(4))
+        qp_rows._compiled.start_point(kind, qp.lo, qp.up, mu0, _SLACK_FLOOR, sl, su, zl, zu)
+        return x, sl, su, zl, zu
     with np.errstate(invalid="ignore"):
         sl = np.where((kind == 1) | (kind == 3), -qp.lo, np.inf)
         su = np.where((kind == 2) | (kind == 3), qp.up, np.inf)
@@ -255,8 +303,7 @@ def _judge(code: int, qp: _Banded, x, zl, zu, eps: float, gap_abs: float, info) 
         return SolveStatus.FAILED
     eq = qp.kind == 4
     y = np.where(eq, zl, np.where(qp.kind == 0, 0.0, zl - zu))
-    n, m = qp.Pb.shape[1], qp.lo.size
-    Aty = np.bincount(qp.indices, qp.data * y[qp.rows], minlength=n)
+    r, Aty = _products(qp, x, y)
     with np.errstate(invalid="ignore"):             # an infinite side times its zero multiplier
         lo_part = np.where((qp.kind == 1) | (qp.kind >= 3), qp.lo * zl, 0.0)
         up_part = np.where((qp.kind == 2) | (qp.kind == 3), qp.up * zu, 0.0)
@@ -268,7 +315,6 @@ def _judge(code: int, qp: _Banded, x, zl, zu, eps: float, gap_abs: float, info) 
         return SolveStatus.FAILED
     if code != 0:
         return SolveStatus.FAILED
-    r = np.bincount(qp.rows, qp.data * x[qp.indices], minlength=m)
     # an empty row's sides are checked too (0 must lie between them)
     viol = np.maximum(np.nan_to_num(qp.lo - r, neginf=0.0), np.nan_to_num(r - qp.up, neginf=0.0))
     Px = _band_times(qp.Pb, x)
@@ -294,10 +340,29 @@ def _judge(code: int, qp: _Banded, x, zl, zu, eps: float, gap_abs: float, info) 
     return SolveStatus.FAILED
 
 
+def _products(qp: _Banded, x, y):
+    """``A x`` and ``A'y`` on the scaled rows, each sum from zero in the order of the entries
+    (compiled in ``_qp_rows.c``; numpy's bincount the reference)."""
+    if qp_rows._compiled is not None:
+        ax, aty = np.empty(qp.lo.size), np.empty(x.size)
+        qp_rows._compiled.row_products(qp.indptr, qp.indices, qp.data,
+                                       np.ascontiguousarray(x, dtype=float),
+                                       np.ascontiguousarray(y, dtype=float), ax, aty)
+        return ax, aty
+    rows = qp.rows if qp.rows is not None else np.repeat(np.arange(qp.lo.size),
+                                                         np.diff(qp.indptr))
+    return (np.bincount(rows, qp.data * x[qp.indices], minlength=qp.lo.size),
+            np.bincount(qp.indices, qp.data * y[rows], minlength=x.size))
+
+
 def _box_extent(qp: _Banded) -> float:
     """How far from 0 any point of the variables' box reaches (each variable's box: the
     intersection of its rows with one entry); infinite when a variable has no finite box. In
-    the scaled, possibly reordered problem the kernel solves, as the kernel computes it."""
+    the scaled, possibly reordered problem the kernel solves, as the kernel computes it
+    (compiled in ``_qp_rows.c`` where it is built, the numpy code below its reference)."""
+    if qp_rows._compiled is not None:
+        return qp_rows._compiled.box_extent(qp.indptr, qp.indices, qp.data, qp.lo, qp.up,
+                                            qp.kind, qp.Pb.shape[1])
     rows = np.flatnonzero(np.diff(qp.indptr) == 1)
     k = qp.indptr[rows]
     rows, k = rows[qp.data[k] != 0.0], k[qp.data[k] != 0.0]

@@ -275,31 +275,8 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
             # threads share them out (both QP backends release the interpreter lock while they
             # solve).
             gap_abs = options.qp_gap_fraction * t_total * obj_scale
-            jobs = []
-            batches = _batches(np.flatnonzero(active), blocks)
-            # each batch's rows, in their order, from one stable sort by batch (a search of
-            # every row per batch grew with the square of the route's length)
-            batch_of = np.full(len(blocks), -1)
-            for j, batch in enumerate(batches):
-                batch_of[batch] = j
-            row_batch = batch_of[row_block]
-            by_batch = np.argsort(row_batch, kind="stable")
-            cuts = np.searchsorted(row_batch[by_batch], np.arange(len(batches) + 1))
-            for j, batch in enumerate(batches):
-                cols = np.concatenate([blocks[k] for k in batch])
-                rows = by_batch[cuts[j]:cuts[j + 1]]
-                # a batch of every variable in order and every row (a receding-horizon window)
-                # is the QP itself, its rows in their order (one stable sort of a single
-                # batch): nothing to cut out. (A loop's blocks need not come in order.)
-                whole = (cols.size == qp.n and rows.size == qp.m
-                         and bool(np.all(cols[1:] > cols[:-1])))
-                sub = qp if whole else qp.take(cols, rows)
-                glob = free_idx[cols]
-                centre, scale = b_hat[glob], np.maximum(b_env[glob], 1.0)
-                args = (sub, options.qp_tolerance, gap_abs, centre, scale, options.qp_backend)
-                job = (pool.submit(_solve_batch, *args) if pool is not None and len(batches) > 1
-                       else _Done(_solve_batch(*args)))
-                jobs.append((batch, cols, glob, job))
+            jobs = _submit_batches(qp, _batches(np.flatnonzero(active), blocks), blocks,
+                                   row_block, free_idx, b_hat, b_env, gap_abs, options, pool)
             for batch, cols, glob, job in jobs:
                 x, st, its, retry_notes = job.result()
                 qp_iterations += its
@@ -343,6 +320,39 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
         if pool is not None:
             pool.shutdown(wait=True)
     return b_hat, status, iterations, qp_iterations, notes
+
+
+def _submit_batches(qp, batches, blocks, row_block, free_idx, b_hat, b_env, gap_abs, options,
+                    pool):
+    """Cut each batch's QP out of the iteration's ``qp`` and hand it to ``pool`` (or solve it
+    here without one); returns ``(batch, cols, glob, job)`` in batch order."""
+    # each batch's rows, in their order, from one stable sort by batch (a search of every row
+    # per batch grew with the square of the route's length); stable, so the same order
+    # whatever the integer type: small integers sort by radix, in linear time
+    batch_of = np.full(len(blocks), -1)
+    for j, batch in enumerate(batches):
+        batch_of[batch] = j
+    row_batch = batch_of[row_block]
+    by_batch = np.argsort(row_batch.astype(np.int16) if len(batches) < 2 ** 15 else row_batch,
+                          kind="stable")
+    cuts = np.searchsorted(row_batch[by_batch], np.arange(len(batches) + 1))
+    threaded = pool is not None and len(batches) > 1
+    jobs = []
+    for j, batch in enumerate(batches):
+        cols = np.concatenate([blocks[k] for k in batch])
+        rows = by_batch[cuts[j]:cuts[j + 1]]
+        # a batch of every variable in order and every row (a receding-horizon window) is the
+        # QP itself, its rows in their order (one stable sort of a single batch): nothing to
+        # cut out. (A loop's blocks need not come in order.)
+        whole = (cols.size == qp.n and rows.size == qp.m
+                 and bool(np.all(cols[1:] > cols[:-1])))
+        sub = qp if whole else qp.take(cols, rows)
+        glob = free_idx[cols]
+        centre, scale = b_hat[glob], np.maximum(b_env[glob], 1.0)
+        args = (sub, options.qp_tolerance, gap_abs, centre, scale, options.qp_backend)
+        job = pool.submit(_solve_batch, *args) if threaded else _Done(_solve_batch(*args))
+        jobs.append((batch, cols, glob, job))
+    return jobs
 
 
 class _Done:

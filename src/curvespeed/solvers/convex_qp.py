@@ -7,6 +7,7 @@ The program is stated in :mod:`curvespeed.solvers.convex` (module docstring) and
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from functools import cached_property
 from typing import TYPE_CHECKING
@@ -16,12 +17,10 @@ import scipy.sparse as sp
 
 from ..problem import SpeedProblem
 from .qp_rows import RowQP, canonical, pad, reduce_tables
+from .qp_time import B_FLOOR, time_model, tridiagonal_hessian
 
 if TYPE_CHECKING:
     from .convex import ConvexOptions
-
-#: Floor on squared speed where a square root is linearised, m^2/s^2 ((0.05 m/s)^2).
-B_FLOOR = 0.0025
 
 
 class QPLayout:
@@ -111,37 +110,6 @@ class QPLayout:
         return m
 
 
-def time_model(b_hat: np.ndarray, lay: QPLayout, ds: float):
-    """Total time, gradient and (upper-triangular) Hessian of the time at ``b_hat``."""
-    free = ~lay.fixed
-    fx, fy = free[lay.step_from], free[lay.step_to]
-    # square roots, floored where the variable is free (a free node is never meant to be at rest)
-    root_floor = math.sqrt(B_FLOOR)
-    sx = np.sqrt(np.maximum(b_hat[lay.step_from], 0.0))
-    sy = np.sqrt(np.maximum(b_hat[lay.step_to], 0.0))
-    sxf = np.where(fx, np.maximum(sx, root_floor), sx)
-    syf = np.where(fy, np.maximum(sy, root_floor), sy)
-    S = sxf + syf
-    half_c = 0.5 * lay.time_coef            # step time is c ds / S
-    total = float(np.sum(2.0 * half_c * ds / S))
-    sxf = np.maximum(sxf, root_floor)       # only used where the variable is free
-    syf = np.maximum(syf, root_floor)
-    cds = half_c * ds
-    gx = np.where(fx, -cds / (S * S * sxf), 0.0)
-    gy = np.where(fy, -cds / (S * S * syf), 0.0)
-    hxx = np.where(fx, cds * (1.0 / (S ** 3 * sxf ** 2) + 0.5 / (S * S * sxf ** 3)), 0.0)
-    hyy = np.where(fy, cds * (1.0 / (S ** 3 * syf ** 2) + 0.5 / (S * S * syf ** 3)), 0.0)
-    hxy = np.where(fx & fy, cds / (S ** 3 * sxf * syf), 0.0)
-    nv = lay.nv
-    grad = np.zeros(nv)
-    np.add.at(grad, lay.step_from, gx)
-    np.add.at(grad, lay.step_to, gy)
-    diag = np.zeros(nv)
-    np.add.at(diag, lay.step_from, hxx)
-    np.add.at(diag, lay.step_to, hyy)
-    return total, grad, diag, hxy
-
-
 class QPBuilder:
     """Assembles the QP of one iteration around the break points ``b_hat`` (see module doc)."""
 
@@ -153,6 +121,7 @@ class QPBuilder:
         self.opt = options
         self.ds = problem.ds
         self.has_power = math.isfinite(problem.limits.power_per_mass_wpkg)
+        self._spans = {}
 
     @cached_property
     def step_forms(self):
@@ -163,14 +132,6 @@ class QPBuilder:
     def node_forms(self):
         """The lateral jerk's rate forms across each node (only with a lateral jerk bound)."""
         return self.p.node_lateral_rate_forms()
-
-    @cached_property
-    def _bounds_at_rest_and_envelope(self):
-        """Every node's acceleration interval at rest and on the envelope (the chords' outer
-        break points, the same in every iteration)."""
-        nv = self.lay.nv
-        return (self._node_bounds(np.zeros(nv), slice(0, nv)),
-                self._node_bounds(self.b_env[:nv], slice(0, nv)))
 
     def _node_bounds(self, b, nodes, include_power=False):
         return self.p.accel_bounds(b, nodes=nodes, include_power=include_power)
@@ -218,9 +179,24 @@ class QPBuilder:
                 rhs.append(budget[end])
         return np.concatenate(cols), np.concatenate(vals), np.concatenate(rhs)
 
-    def _jerk_rows(self, b_hat: np.ndarray):
+    def _jerk_terms(self, every_step: bool):
+        """The jerk's time-base terms that get rows: every term, or only those with a free
+        station (a row on fixed stations alone is dropped by the elimination)."""
+        t = self.p.jerk_terms
+        if every_step:
+            return t
+        if "jerk" not in self._spans:
+            fixed = self.lay.fixed
+            k = np.flatnonzero(~(fixed[t.prev] & fixed[t.node] & fixed[t.next]))
+            self._spans["jerk"] = dataclasses.replace(
+                t, node=t.node[k], prev=t.prev[k], next=t.next[k], weights=t.weights[k],
+                scale=t.scale[k])
+        return self._spans["jerk"]
+
+    def _jerk_rows(self, b_hat: np.ndarray, every_step: bool = False):
         """Rows ``+-D[node] b <= scale J ds (2 / w_hat - w_up(b) / w_hat^2)`` for every term of
-        the jerk's time base (:attr:`SpeedProblem.jerk_terms`).
+        the jerk's time base (:attr:`SpeedProblem.jerk_terms`; unless ``every_step``, only
+        those with a free station, :meth:`_jerk_terms`).
 
         A term bounds the time base by ``scale ds / w`` with ``w`` a weighted sum of square
         roots, concave in ``b``: its tangent ``w_up`` at ``b_hat`` bounds it from above, so
@@ -233,7 +209,7 @@ class QPBuilder:
         comes to exactly zero is no entry (as a sum of scipy.sparse matrices has it).
         """
         p, lay = self.p, self.lay
-        t = p.jerk_terms
+        t = self._jerk_terms(every_step)
         J = p.limits.max_jerk_mps3 * (1.0 - self.opt.margin)
         root = np.where(lay.fixed, np.sqrt(np.maximum(lay.fixed_value, 0.0)),
                         np.sqrt(np.maximum(b_hat, B_FLOOR)))
@@ -276,15 +252,41 @@ class QPBuilder:
         up = np.array([brake_b * (1.0 - self.opt.margin) - d for _, d in rows])
         return cols, vals, up
 
-    def _accel_rows(self, b_hat: np.ndarray):
+    def _span(self, every_step: bool):
+        """The steps that get acceleration rows, the nodes they touch, each step's first and
+        last node's position among those nodes, and those nodes' acceleration intervals at rest
+        and on the envelope (the chords' outer break points, the same in every iteration).
+        Either every step, or only those with a free node: a row on a step whose nodes are
+        both fixed has no free station, and the elimination drops it."""
+        if every_step not in self._spans:
+            lay = self.lay
+            steps = np.arange(lay.n_steps)
+            if not every_step:
+                steps = steps[~(lay.fixed[lay.step_from] & lay.fixed[lay.step_to])]
+            sf, st = lay.step_from[steps], lay.step_to[steps]
+            touched = np.zeros(lay.nv, dtype=bool)
+            touched[sf] = touched[st] = True
+            nodes = np.flatnonzero(touched)         # in order, each once
+            position = np.cumsum(touched) - 1       # a touched node's place among them
+            self._spans[every_step] = (steps, nodes, position[sf], position[st],
+                                       self._node_bounds(np.zeros(nodes.size), nodes),
+                                       self._node_bounds(self.b_env[nodes], nodes))
+        return self._spans[every_step]
+
+    def _accel_rows(self, b_hat: np.ndarray, every_step: bool = False):
         """Acceleration chords (and power tangents) at both nodes of each step: a row table
         ``(cols, vals, lo, up)``, two slots a row (the step's nodes). A chord that is not
-        needed (one chord enough, or the same row at the step's other end) is no row."""
-        p, lay, ds = self.p, self.lay, self.ds
-        nv = lay.nv
-        e = self.b_env[:nv]
+        needed (one chord enough, or the same row at the step's other end) is no row, nor,
+        unless ``every_step``, is one on a step whose nodes are both fixed (:meth:`_span`).
+
+        A chord belongs to a node, so each is worked out once per node (:meth:`_chords`) and
+        gathered to the steps at either end: the same numbers as working it out per step, every
+        operation being elementwise. Rows come ends first, then sides, segments and steps."""
+        lay, ds = self.lay, self.ds
+        steps, nodes, first, last, (lo_0, hi_0), (lo_e, hi_e) = self._span(every_step)
+        e = self.b_env[nodes]
+        b_hat = b_hat[nodes]
         h = 1.0 / (2.0 * ds)
-        margin = self.opt.margin
         # break points: 0 < m < e, with m the current iterate kept within [2 %, 99.5 %] of the
         # envelope. Near a lateral limit the limit bends sharply just below the envelope: with
         # the cap at 98 % a closed test loop with a comfort weight stopped 3e-4 slower than the
@@ -293,101 +295,99 @@ class QPBuilder:
         # gained no more and made the 100 km QPs 30 % slower.
         m = np.clip(b_hat, 0.02 * e, 0.995 * e)
         m = np.where(e - b_hat < 1e-9 * np.maximum(e, 1.0), 0.5 * e, m)
-        pts = [np.zeros(nv), m, e]
-        at_m = self._node_bounds(m, slice(0, nv))
-        (lo_0, hi_0), (lo_e, hi_e) = self._bounds_at_rest_and_envelope
-        lo_pts, hi_pts = (lo_0, at_m[0], lo_e), (hi_0, at_m[1], hi_e)
-        sf, st = lay.step_from, lay.step_to
-        c_from_all, c_to_all, lower, upper = [], [], [], []
-
-        def add_rows(v1, v2, lo, up):
-            c_from_all.append(v1)
-            c_to_all.append(v2)
-            lower.append(lo)
-            upper.append(up)
-
-        # A concave hi (convex lo) is replaced by its chords on [0, m] and [m, e]; where the
-        # single chord on [0, e] is within chord_tolerance of it at m (straights, gentle curves)
-        # that one row is enough. Rows identical at both ends of a step are kept once.
-        rows_seen = {}
-        for end, fac in ((sf, lay.f_first), (st, lay.f_last)):
+        lo_m, hi_m = self._node_bounds(m, nodes)
+        chords = {"hi": self._chords(hi_0, hi_m, hi_e, m, e),
+                  "lo": self._chords(lo_0, lo_m, lo_e, m, e)}
+        parts = []                  # (steps, c_from, c_to, lo, up) of each block of rows
+        seen = {}
+        for end, fac in ((first, lay.f_first[steps]), (last, lay.f_last[steps])):
+            fh = fac * h
             for side in ("hi", "lo"):
-                f = hi_pts if side == "hi" else lo_pts
-                f0, fm, fe = f[0][end], f[1][end], f[2][end]
-                p0, pm_, pe = pts[0][end], pts[1][end], pts[2][end]
-                # tightened by `margin` of the bound itself, not of the cap: a cap far above
-                # what grip allows (max_accel 1e6) must not tighten the grip rows by 10 m/s^2
-                a_tol = margin * np.maximum(np.maximum(np.abs(f0), np.abs(fm)), np.abs(fe))
-                wide = pe - p0 > 1e-12
-                whole = np.where(wide, (fe - f0) / np.where(wide, pe - p0, 1.0), 0.0)
-                dev = np.abs(fm - (f0 + whole * (pm_ - p0)))
-                single = dev <= self.opt.chord_tolerance_mps2
-                for seg, (p1, p2, f1, f2) in enumerate(((p0, pm_, f0, fm), (pm_, pe, fm, fe))):
-                    width = p2 - p1
-                    ok = width > 1e-12
-                    slope = np.where(ok, (f2 - f1) / np.where(ok, width, 1.0), 0.0)
-                    rhs = f1 - slope * p1
-                    if seg == 0:
-                        slope = np.where(single, whole, slope)
-                        rhs = np.where(single, f0 - whole * p0, rhs)
-                        ok = ok | single
-                    else:
-                        ok = ok & ~single
-                    c_from, c_to = _accel_minus_slope(end is sf, fac * h, slope)
+                segs, a_tol = chords[side]
+                for seg, (slope, rhs, ok) in enumerate(segs):
+                    slope, rhs, ok = slope[end], rhs[end], ok[end]
+                    c_from, c_to = _accel_minus_slope(end is first, fh, slope)
                     key = (side, seg)
-                    if key in rows_seen:    # same row already at the other end of the step
-                        pc_from, pc_to, prhs = rows_seen[key]
-                        same = (pc_from == c_from) & (pc_to == c_to) & (prhs == rhs)
-                        ok = ok & ~same
+                    if key in seen:     # same row already at the other end of the step
+                        pc_from, pc_to, prhs = seen[key]
+                        ok = ok & ~((pc_from == c_from) & (pc_to == c_to) & (prhs == rhs))
                     else:
-                        rows_seen[key] = (c_from, c_to, rhs)
+                        seen[key] = (c_from, c_to, rhs)
+                    k = np.flatnonzero(ok)
+                    tol = a_tol[end[k]]
                     if side == "hi":
-                        add_rows(c_from, c_to, np.full(sf.size, -np.inf),
-                                 np.where(ok, rhs - a_tol, np.inf))
+                        parts.append((k, c_from[k], c_to[k], None, rhs[k] - tol))
                     else:
-                        add_rows(c_from, c_to, np.where(ok, rhs + a_tol, -np.inf),
-                                 np.full(sf.size, np.inf))
-
-        # power: tangents of P/(m sqrt(b)) - res(b) at m and e (drive side only)
+                        parts.append((k, c_from[k], c_to[k], rhs[k] + tol, None))
         if self.has_power:
-            pm = p.limits.power_per_mass_wpkg
-            for end, fac in ((sf, lay.f_first), (st, lay.f_last)):
-                for q in (m, e):
-                    bq = np.maximum(q[end], B_FLOOR)
-                    res0 = p.resistance(0.0, nodes=end)
-                    res1 = p.resistance(1.0, nodes=end) - res0      # d res / d b
-                    f0 = pm / np.sqrt(bq)
-                    slope = -0.5 * pm / bq ** 1.5 - res1
-                    bound = f0 - res0 - res1 * bq                   # the limit at bq
-                    rhs = bound - slope * bq - margin * np.abs(bound)
-                    c_from, c_to = _accel_minus_slope(end is sf, fac * h, slope)
-                    add_rows(c_from, c_to, np.full(sf.size, -np.inf), rhs)
+            parts += self._power_rows(m, e, h, steps, first, last, nodes)
+        return _join_rows(parts, lay.step_from[steps], lay.step_to[steps])
 
-        lower, upper = np.concatenate(lower), np.concatenate(upper)
-        need = np.flatnonzero(np.isfinite(lower) | np.isfinite(upper))
-        cols = np.empty((need.size, 2), dtype=np.int64)
-        step = need % sf.size               # the k blocks of rows each run over every step
-        cols[:, 0] = sf[step]
-        cols[:, 1] = st[step]
-        vals = np.empty((need.size, 2))
-        vals[:, 0] = np.concatenate(c_from_all)[need]
-        vals[:, 1] = np.concatenate(c_to_all)[need]
-        return cols, vals, lower[need], upper[need]
+    def _chords(self, f0, fm, fe, m, e):
+        """One side's chords at every node: a concave hi (convex lo) is replaced by its chords
+        on ``[0, m]`` and ``[m, e]``; where the single chord on ``[0, e]`` is within
+        ``chord_tolerance`` of it at ``m`` (straights, gentle curves) that one row is enough.
+        Returns each segment's ``(slope, rhs, ok)`` and the node's tolerance ``a_tol``."""
+        p0 = np.zeros(m.size)
+        # tightened by `margin` of the bound itself, not of the cap: a cap far above what grip
+        # allows (max_accel 1e6) must not tighten the grip rows by 10 m/s^2
+        a_tol = self.opt.margin * np.maximum(np.maximum(np.abs(f0), np.abs(fm)), np.abs(fe))
+        wide = e - p0 > 1e-12
+        whole = np.where(wide, (fe - f0) / np.where(wide, e - p0, 1.0), 0.0)
+        dev = np.abs(fm - (f0 + whole * (m - p0)))
+        single = dev <= self.opt.chord_tolerance_mps2
+        segs = []
+        for seg, (p1, p2, f1, f2) in enumerate(((p0, m, f0, fm), (m, e, fm, fe))):
+            width = p2 - p1
+            ok = width > 1e-12
+            slope = np.where(ok, (f2 - f1) / np.where(ok, width, 1.0), 0.0)
+            rhs = f1 - slope * p1
+            if seg == 0:
+                slope = np.where(single, whole, slope)
+                rhs = np.where(single, f0 - whole * p0, rhs)
+                ok = ok | single
+            else:
+                ok = ok & ~single
+            segs.append((slope, rhs, ok))
+        return segs, a_tol
 
-    def rows(self, b_hat: np.ndarray):
+    def _power_rows(self, m, e, h, steps, first, last, nodes):
+        """Tangents of ``P/(m sqrt(b)) - res(b)`` at ``m`` and ``e`` at both nodes of the
+        given steps (drive side only), as blocks of :meth:`_accel_rows` (``m``, ``e`` on
+        ``nodes``, where ``first`` and ``last`` point)."""
+        p, lay, margin = self.p, self.lay, self.opt.margin
+        pm = p.limits.power_per_mass_wpkg
+        parts = []
+        for end, fac in ((first, lay.f_first[steps]), (last, lay.f_last[steps])):
+            for q in (m, e):
+                bq = np.maximum(q[end], B_FLOOR)
+                res0 = p.resistance(0.0, nodes=nodes[end])
+                res1 = p.resistance(1.0, nodes=nodes[end]) - res0      # d res / d b
+                f0 = pm / np.sqrt(bq)
+                slope = -0.5 * pm / bq ** 1.5 - res1
+                bound = f0 - res0 - res1 * bq                   # the limit at bq
+                rhs = bound - slope * bq - margin * np.abs(bound)
+                c_from, c_to = _accel_minus_slope(end is first, fac * h, slope)
+                k = np.flatnonzero(np.isfinite(rhs))
+                parts.append((k, c_from[k], c_to[k], None, rhs[k]))
+        return parts
+
+    def rows(self, b_hat: np.ndarray, every_step: bool = False):
         """Every row of the iteration's QP around ``b_hat`` as canonical row tables over the
         distinct nodes (:mod:`.qp_rows`), each ``(cols, present, vals, lo, up)``, in the order
-        bounds, acceleration (and power), jerk, lateral jerk, end reserve."""
+        bounds, acceleration (and power), jerk, lateral jerk, end reserve. Without
+        ``every_step`` no acceleration or jerk rows on fixed stations alone (the elimination
+        would drop them)."""
         lay = self.lay
         nv = lay.nv
         e = self.b_env[:nv]
         tables = [(np.arange(nv)[:, None], np.ones((nv, 1), dtype=bool), np.ones((nv, 1)),
                    np.where(lay.fixed, lay.fixed_value, 0.0),
                    np.where(lay.fixed, lay.fixed_value, e))]
-        c, v, lo, up = self._accel_rows(b_hat)
+        c, v, lo, up = self._accel_rows(b_hat, every_step)
         tables.append(canonical(c, v) + (lo, up))
         if lay.jerk:
-            c, present, v, up = self._jerk_rows(b_hat)
+            c, present, v, up = self._jerk_rows(b_hat, every_step)
             tables.append((c, present, v, np.full(up.size, -np.inf), up))
         extra = []
         if self.p.limits.max_lateral_jerk_mps3 is not None:
@@ -404,13 +404,17 @@ class QPBuilder:
 
         Returns ``(prow, pcol, pval, q, scale)``: the Hessian's nonzero entries between free
         nodes in row-major order (both triangles), the linear term (``-value`` at fixed
-        nodes) and the scale. Sums run in the order scipy.sparse runs them."""
+        nodes) and the scale. Sums run in the order scipy.sparse runs them. Only the steps with
+        a free node enter (:meth:`_span`): the others' terms fall on fixed nodes alone, which
+        the QP decouples."""
         lay = self.lay
         nv = lay.nv
         free = ~lay.fixed
-        total, grad, diag, hxy = time_model(b_hat, lay, self.ds)
-        rows = [np.arange(nv), lay.step_from, lay.step_to]
-        cols = [np.arange(nv), lay.step_to, lay.step_from]
+        steps = self._span(False)[0]
+        total, grad, diag, hxy = time_model(b_hat, lay, self.ds, steps)
+        sf, st = lay.step_from[steps], lay.step_to[steps]
+        rows = [np.arange(nv), sf, st]
+        cols = [np.arange(nv), st, sf]
         vals = [diag, hxy, hxy]
         w = self.opt.comfort_weight
         if w > 0:
@@ -428,11 +432,14 @@ class QPBuilder:
                              dv[dp] * b_hat[dc[dp]], minlength=nv)
             DtDb = np.bincount(dc[dp], dv[dp] * np.repeat(Db, dp.sum(axis=1)), minlength=nv)
             grad = grad + 2.0 * w * DtDb
-        r, c, v = np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
-        keep = free[r] & free[c] & (v != 0.0)
-        key, inv = np.unique(r[keep] * nv + c[keep], return_inverse=True)
-        pval = np.bincount(inv, v[keep]) if key.size else np.zeros(0)
-        prow, pcol = key // nv, key % nv
+        if w > 0 or lay.closed:
+            r, c, v = np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
+            keep = free[r] & free[c] & (v != 0.0)
+            key, inv = np.unique(r[keep] * nv + c[keep], return_inverse=True)
+            pval = np.bincount(inv, v[keep]) if key.size else np.zeros(0)
+            prow, pcol = key // nv, key % nv
+        else:
+            prow, pcol, pval = tridiagonal_hessian(free, diag, steps, hxy, lay.n_steps)
         # the Hessian times b_hat, on free rows, each row's terms in column order from zero
         hb = np.bincount(prow, pval * b_hat[pcol], minlength=nv)
         q = np.where(lay.fixed, -lay.fixed_value, grad - hb)
@@ -460,7 +467,7 @@ class QPBuilder:
 
         nv = self.lay.nv
         blocks, lows, ups = [], [], []
-        for cols, present, vals, lo, up in self.rows(b_hat):
+        for cols, present, vals, lo, up in self.rows(b_hat, every_step=True):
             indptr = np.concatenate(([0], np.cumsum(present.sum(axis=1))))
             blocks.append(sp.csr_matrix((vals[present], cols[present], indptr),
                                         shape=(lo.size, nv)))
@@ -482,3 +489,20 @@ def _accel_minus_slope(at_first_node: bool, fh, slope):
     if at_first_node:
         return -fh - slope, fh
     return -fh, fh - slope
+
+
+def _join_rows(parts, step_from, step_to):
+    """The blocks ``(steps, c_from, c_to, lo, up)`` of :meth:`QPBuilder._accel_rows` (``None``
+    for an infinite side) joined into one row table ``(cols, vals, lo, up)`` in their order."""
+    steps = np.concatenate([k for k, *_ in parts])
+    cols = np.empty((steps.size, 2), dtype=np.int64)
+    cols[:, 0] = step_from[steps]
+    cols[:, 1] = step_to[steps]
+    vals = np.empty((steps.size, 2))
+    vals[:, 0] = np.concatenate([c for _, c, _, _, _ in parts])
+    vals[:, 1] = np.concatenate([c for _, _, c, _, _ in parts])
+    lo = np.concatenate([np.full(k.size, -np.inf) if v is None else v
+                         for k, _, _, v, _ in parts])
+    up = np.concatenate([np.full(k.size, np.inf) if v is None else v
+                         for k, _, _, _, v in parts])
+    return cols, vals, lo, up

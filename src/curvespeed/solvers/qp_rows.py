@@ -18,6 +18,11 @@ from __future__ import annotations
 
 import numpy as np
 
+try:
+    from . import _qp_rows as _compiled
+except ImportError:             # the package installs without a C compiler; the numpy
+    _compiled = None            # functions below then do the same work
+
 #: Slots per row: a row touches at most three neighbouring stations.
 WIDTH = 3
 
@@ -38,6 +43,8 @@ def canonical(cols, *vals):
     if np.all(step > 0) or np.all((step > 0) | ~present[:, 1:]):
         return (cols, present, *vals)           # sorted already, no station twice
     bad = np.flatnonzero(np.any(step <= 0, axis=1))      # only these rows need work
+    if bad.size <= _FEW_ROWS:
+        return _canonical_rows(cols, key, vals, bad)
     order = np.argsort(key[bad], axis=1, kind="stable")
     cols = cols.copy()
     cols[bad] = np.take_along_axis(cols[bad], order, axis=1)
@@ -56,6 +63,36 @@ def canonical(cols, *vals):
             v[rows, target[sub, j]] += v[rows, j]
             v[rows, j] = 0.0
         present[rows, j] = False
+    return (cols, present, *vals)
+
+
+#: Up to this many rows out of order (a receding-horizon window's jerk rows: the ends, where a
+#: stencil repeats its node) are put in order one by one in Python, which costs less than the
+#: dozens of numpy calls of the vectorised path; the same operations either way.
+_FEW_ROWS = 16
+
+
+def _canonical_rows(cols, key, vals, bad):
+    """:func:`canonical` for the rows ``bad`` alone, one row at a time."""
+    cols = cols.copy()
+    vals = [v.copy() for v in vals]
+    present = cols >= 0
+    w = cols.shape[1]
+    for i in bad.tolist():
+        order = sorted(range(w), key=key[i].tolist().__getitem__)      # stable, as argsort's
+        cols[i] = cols[i, order]
+        for v in vals:
+            v[i] = v[i, order]
+        present[i] = cols[i] >= 0
+        target = 0
+        for j in range(1, w):
+            if present[i, j] and cols[i, j] == cols[i, j - 1]:
+                for v in vals:      # summed into the first slot of its run, in slot order
+                    v[i, target] += v[i, j]
+                    v[i, j] = 0.0
+                present[i, j] = False
+            else:
+                target = j
     return (cols, present, *vals)
 
 
@@ -114,15 +151,30 @@ class RowQP:
     def take(self, cols, rows) -> RowQP:
         """The QP of variables ``cols`` (numbered in the order given: increasing within a block,
         but a loop's blocks may come out of station order) and rows ``rows`` (in the given
-        order); the rows must involve no other variable. ``P``'s entries linking ``cols`` to other variables
-        are left out (between independent blocks there are none)."""
+        order); the rows must involve no other variable. ``P``'s entries linking ``cols`` to
+        other variables are left out (between independent blocks there are none). The rows are
+        copied by the compiled twin where it is built (``_qp_rows.c``), by numpy otherwise."""
         local = np.full(self.n, -1, dtype=np.int64)
         local[cols] = np.arange(cols.size)
+        keep = (local[self.prow] >= 0) & (local[self.pcol] >= 0)
+        if _compiled is not None:       # the same copies, compiled
+            rows = np.ascontiguousarray(rows, dtype=np.int64)
+            # room for every entry (memory is only touched where written); cut to size after
+            indptr, indices = np.empty(rows.size + 1, dtype=np.int64), np.empty_like(self.indices,
+                                                                                   np.int64)
+            data, lo, up = np.empty(self.indices.size), np.empty(rows.size), np.empty(rows.size)
+            nnz = _compiled.take_rows(*(np.ascontiguousarray(a, dtype=np.int64)
+                                        for a in (self.indptr, self.indices)),
+                                      *(np.ascontiguousarray(a, dtype=float)
+                                        for a in (self.data, self.lo, self.up)),
+                                      rows, local, indptr, indices, data, lo, up)
+            return RowQP(cols.size, indptr, indices[:nnz], data[:nnz], lo, up,
+                         local[self.prow[keep]], local[self.pcol[keep]], self.pval[keep],
+                         self.q[cols])
         counts = np.diff(self.indptr)[rows]
         indptr = np.zeros(rows.size + 1, dtype=np.int64)
         np.cumsum(counts, out=indptr[1:])
         pos = np.repeat(self.indptr[rows] - indptr[:-1], counts) + np.arange(indptr[-1])
-        keep = (local[self.prow] >= 0) & (local[self.pcol] >= 0)
         return RowQP(cols.size, indptr, local[self.indices[pos]], self.data[pos],
                      self.lo[rows], self.up[rows], local[self.prow[keep]],
                      local[self.pcol[keep]], self.pval[keep], self.q[cols])
@@ -162,12 +214,31 @@ def reduce_rows(cols, present, vals, lo, up, fixed, values):
 
 def reduce_tables(tables, fixed, values):
     """:func:`reduce_rows` on each canonical table ``(cols, present, vals, lo, up)`` (any
-    number of slots) in turn, joined into one set of compressed rows in the tables' order."""
-    parts = [reduce_rows(*t, fixed, values)[:5] for t in tables]
-    counts = np.concatenate([np.diff(p[0]) for p in parts])
-    indptr = np.zeros(counts.size + 1, dtype=np.int64)
-    np.cumsum(counts, out=indptr[1:])
-    return (indptr, *(np.concatenate([p[i] for p in parts]) for i in range(1, 5)))
+    number of slots) in turn, joined into one set of compressed rows in the tables' order:
+    ``(indptr, indices, data, lo, up)``. With the compiled twin (``_qp_rows.c``) every table's
+    rows are written straight into the joined arrays; the numbers are the same either way."""
+    if _compiled is None:
+        parts = [reduce_rows(*t, fixed, values)[:5] for t in tables]
+        counts = np.concatenate([np.diff(p[0]) for p in parts])
+        indptr = np.zeros(counts.size + 1, dtype=np.int64)
+        np.cumsum(counts, out=indptr[1:])
+        return (indptr, *(np.concatenate([p[i] for p in parts]) for i in range(1, 5)))
+    m = sum(t[3].size for t in tables)
+    entries = sum(t[0].size for t in tables)
+    indptr = np.empty(m + 1, dtype=np.int64)
+    indices = np.empty(entries, dtype=np.int64)
+    data, lo, up = np.empty(entries), np.empty(m), np.empty(m)
+    fixed = np.ascontiguousarray(fixed, dtype=bool)
+    values = np.ascontiguousarray(values, dtype=float)
+    free_number = np.cumsum(~fixed) - 1
+    row, k = 0, 0
+    for cols, present, vals, t_lo, t_up in tables:
+        row, k = _compiled.reduce_into(
+            np.ascontiguousarray(cols, dtype=np.int64),
+            np.ascontiguousarray(present, dtype=bool), np.ascontiguousarray(vals, dtype=float),
+            np.ascontiguousarray(t_lo, dtype=float), np.ascontiguousarray(t_up, dtype=float),
+            fixed, values, free_number, indptr, indices, data, lo, up, row, k)
+    return indptr[:row + 1], indices[:k], data[:k], lo[:row], up[:row]
 
 
 def interval_blocks(qp: RowQP):
@@ -181,21 +252,22 @@ def interval_blocks(qp: RowQP):
     neighbouring stations; the time model links every two neighbouring free stations).
     """
     n = qp.n
-    cover = np.zeros(n + 1, dtype=np.int64)
     nz = qp.data != 0.0
-    rows = qp.row_of_entry()[nz]
-    idx = qp.indices[nz]
-    if idx.size:
-        first = np.full(qp.m, n, dtype=np.int64)
-        last = np.full(qp.m, -1, dtype=np.int64)
-        np.minimum.at(first, rows, idx)
-        np.maximum.at(last, rows, idx)
-        span = last > first
-        np.add.at(cover, first[span], 1)
-        np.add.at(cover, last[span], -1)
+    # each row's first and last variable with a nonzero term (n and -1 where none), by
+    # reductions over each row's entries (integers: exact whichever way they are taken)
+    first = np.full(qp.m, n, dtype=np.int64)
+    last = np.full(qp.m, -1, dtype=np.int64)
+    has = np.diff(qp.indptr) > 0
+    if nz.any():
+        starts = qp.indptr[:-1][has]
+        first[has] = np.minimum.reduceat(np.where(nz, qp.indices, n), starts)
+        last[has] = np.maximum.reduceat(np.where(nz, qp.indices, -1), starts)
+    span = last > first
     pnz = (qp.pval != 0.0) & (qp.prow < qp.pcol)
-    np.add.at(cover, qp.prow[pnz], 1)
-    np.add.at(cover, qp.pcol[pnz], -1)
+    cover = (np.bincount(first[span], minlength=n + 1)
+             - np.bincount(last[span], minlength=n + 1)
+             + np.bincount(qp.prow[pnz], minlength=n + 1)
+             - np.bincount(qp.pcol[pnz], minlength=n + 1))
     linked = np.cumsum(cover)[: max(n - 1, 0)] > 0       # variable c linked to c + 1
     cuts = np.flatnonzero(~linked) + 1
     return np.concatenate(([0], cuts, [n])).astype(np.int64)
