@@ -1,6 +1,6 @@
 """Build step for the compiled kernels (the banded interior-point iterations, the envelope's
-passes, the alignment's optimal partitioning, the smoothing scales' banded solves and their
-noise replicates' curvature);
+passes, the QP rows' elimination and scaling, the alignment's optimal partitioning, the
+smoothing scales' banded solves and their noise replicates' curvature);
 everything else about the package is declared in pyproject.toml.
 
 The kernels use only the Python C API's buffer protocol, so a C compiler is all they need. They
