@@ -226,8 +226,10 @@ def run_case(case: RoadCase, workdir: Path) -> dict:
 MAX_USE = 1.01
 #: ... and the planned time within this band around the optimum (fractions).
 TIME_BAND = (-0.001, 0.01)
-#: Double-S moves at the default spacing: within this of the closed form, never below it.
-DOUBLE_S_BAND = (0.0, 0.001)
+#: Double-S moves at the default spacing: within this of the closed form, never below it (below
+#: by no more than the agreement the solver backends are held to on route time, 1e-6: the QP's
+#: own accuracy, not a faster profile).
+DOUBLE_S_BAND = (-1e-6, 0.001)
 #: Limits shown in the tables, in order, with their headers.
 COLUMNS = (("lateral", "lateral"), ("comfort_ellipse", "comfort ell."),
            ("friction_ellipse", "friction ell."), ("top_speed", "top speed"), ("jerk", "jerk"),
@@ -279,6 +281,48 @@ def double_s_rows(spacing_m: float = POINT_SPACING_M) -> list[tuple]:
     return rows
 
 
+#: The grid of rest-to-rest moves swept by :func:`double_s_sweep`: lengths from a few stations to
+#: many, and caps on speed, acceleration and jerk that put each move in each regime of the
+#: closed form (top speed reached or not, acceleration cap reached or not).
+SWEEP = dict(length_m=(8.0, 12.0, 18.0, 25.0, 35.0, 45.0, 60.0, 100.0, 200.0, 500.0),
+             speed_mps=(10.0, 25.0), accel_mps2=(1.0, 1.5, 3.0), jerk_mps3=(0.5, 1.0, 2.0, 4.0))
+
+
+def double_s_sweep(spacing_m: float = POINT_SPACING_M) -> list[tuple]:
+    """Every move of :data:`SWEEP` planned at ``spacing_m`` (rows as :func:`double_s_rows`)."""
+    import itertools
+
+    from curvespeed.planner import plan_profile
+
+    sys.path.insert(0, str(ROOT / "tests"))
+    from test_reference_convex import double_s_time
+
+    rows = []
+    for L, v, a, j in itertools.product(*SWEEP.values()):
+        limits = Limits(max_speed_mps=v, max_accel_mps2=a, max_decel_mps2=a, max_jerk_mps3=j,
+                        friction_coefficient=0.9)
+        profile = plan_profile(Alignment((line(L),)).to_geometry(spacing_m), limits)
+        rows.append((L, v, a, j, double_s_time(L, v, a, j), float(profile.time_s[-1])))
+    return rows
+
+
+def sweep_summary(rows: list[tuple], worst: int = 3) -> str:
+    """How many moves of the sweep meet the target, per length, and the moves furthest out."""
+    rel = {row: row[5] / row[4] - 1.0 for row in rows}
+    lines = ["| L m | moves | within target | lowest | highest |", "|---|---|---|---|---|"]
+    for L in SWEEP["length_m"]:
+        mine = [r for r in rows if r[0] == L]
+        ok = sum(DOUBLE_S_BAND[0] <= rel[r] <= DOUBLE_S_BAND[1] for r in mine)
+        lines.append(f"| {L:g} | {len(mine)} | {ok} | {100 * min(rel[r] for r in mine):+.3f} % | "
+                     f"{100 * max(rel[r] for r in mine):+.3f} % |")
+    ranked = sorted(rows, key=rel.get)
+    lines.append("\nFurthest below and above the closed form (L, v, a, j):")
+    for r in ranked[:worst] + ranked[-worst:]:
+        lines.append(f"  {r[0]:g} m, {r[1]:g} m/s, {r[2]:g} m/s^2, {r[3]:g} m/s^3: "
+                     f"{100 * rel[r]:+.3f} %")
+    return "\n".join(lines)
+
+
 def double_s_table(rows: list[tuple]) -> str:
     head = ["L m", "v m/s", "a m/s^2", "j m/s^3", "closed form s", "planned s", "difference",
             "target"]
@@ -320,6 +364,10 @@ def main(argv=None) -> int:
     print("\nDouble-S rest-to-rest moves planned at 1 m on a straight (target: within 0.1 % of "
           "the closed form, never below it):\n")
     print(double_s_table(double_s_rows()))
+    sweep = double_s_sweep()
+    print(f"\nThe same target over a sweep of {len(sweep)} moves ({', '.join(SWEEP)}: "
+          + "; ".join(", ".join(f"{x:g}" for x in values) for values in SWEEP.values()) + "):\n")
+    print(sweep_summary(sweep))
     print(f"\nbenchmark run time {time.perf_counter() - t0:.0f} s")
     return 0
 
