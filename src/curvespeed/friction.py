@@ -179,6 +179,50 @@ def node_friction(limits: Limits, sections, ds: float, n_nodes: int, closed: boo
     return mu_long, mu_lat, index
 
 
+@dataclass(frozen=True)
+class GripAlong:
+    """How the road's grip along the route compares with the route's own friction, station by
+    station: ``scale[i]`` over ``edges[i] <= s < edges[i + 1]`` (1 outside every section).
+
+    This is the road as the sections describe it, for a model that drives it (the replay), not
+    the planning convention of :func:`node_friction`, which gives each node the lowest
+    friction of its steps. A vehicle model with one friction coefficient (a friction circle)
+    takes the lower of a section's two ratios, along and across (module docstring: the
+    section's coefficients over the route's), so it never counts on more grip than the
+    section gives either way.
+    """
+
+    edges: np.ndarray
+    scale: np.ndarray
+
+    def at(self, station_m: float) -> float:
+        """The scale at ``station_m`` (1 before the first edge and after the last)."""
+        i = int(np.searchsorted(self.edges, station_m, side="right")) - 1
+        return float(self.scale[i]) if 0 <= i < self.scale.size else 1.0
+
+    def stretches(self, mu: float) -> list[dict]:
+        """The stretches where the grip differs from the route's, with the friction
+        coefficient ``mu`` scaled there: ``[{start_m, end_m, friction_coefficient}]``."""
+        return [{"start_m": float(a), "end_m": float(b), "friction_coefficient": mu * float(f)}
+                for a, b, f in zip(self.edges[:-1], self.edges[1:], self.scale) if f != 1.0]
+
+
+def grip_along(limits: Limits, sections) -> GripAlong:
+    """:class:`GripAlong` of ``sections`` (validated ones) against the route's ``limits``;
+    where sections overlap the lowest wins, as for planning."""
+    edges = np.unique([x for sec in sections for x in (sec.start_m, sec.end_m)])
+    if edges.size < 2:
+        return GripAlong(np.zeros(0), np.zeros(0))
+    mid = 0.5 * (edges[:-1] + edges[1:])
+    lowest = np.full(mid.size, np.inf)
+    for sec in sections:
+        along, across = sec.coefficients(limits)
+        covered = (mid > sec.start_m) & (mid < sec.end_m)
+        lowest[covered] = np.minimum(lowest[covered],
+                                     min(along / limits.mu_long, across / limits.mu_lat))
+    return GripAlong(edges, np.where(np.isfinite(lowest), lowest, 1.0))
+
+
 def section_at(sections, index: np.ndarray, nodes) -> FrictionSection | None:
     """The section setting the friction at the lowest-friction node among ``nodes`` (None
     where the route's own friction applies there)."""

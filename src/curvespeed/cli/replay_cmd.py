@@ -88,10 +88,16 @@ def _run(profile_file, vehicle_file, tracker, dwell_s):
     from ..dynamics.simulate import ReplaySettings, replay as run_replay
     from ..dynamics.summary import summarise
     from ..dynamics.vehicle import DEFAULT_VEHICLE
+    from ..friction import grip_along
     from ..io.profile_csv import read_station_profile
-    from ._common import route_name
+    from ._common import sidecar_or_none
 
-    sp = read_station_profile(profile_file, name=route_name(profile_file))
+    sidecar = sidecar_or_none(profile_file, "the route name is taken from the file name and "
+                              "the vehicle's friction applies all along instead")
+    sp = read_station_profile(profile_file, name=sidecar.route_name if sidecar else None)
+    grip = None
+    if sidecar is not None and sidecar.constraints.friction:
+        grip = grip_along(sidecar.limits, sidecar.constraints.friction)
     if vehicle_file is None:
         vehicle = DEFAULT_VEHICLE
     else:
@@ -99,8 +105,22 @@ def _run(profile_file, vehicle_file, tracker, dwell_s):
 
         vehicle = read_vehicle(vehicle_file)
     settings = ReplaySettings(tracker=TrackerKind(tracker), dwell_s=dwell_s)
-    result = run_replay(sp, vehicle, settings)
+    result = run_replay(sp, vehicle, settings, grip)
     return result, summarise(result)
+
+
+def _sections(grip, mu: float) -> str:
+    """What the plan's friction sections made of the vehicle's friction, for the summary."""
+    if grip is None or not grip.scale.size:
+        return ""
+    other = grip.scale[grip.scale != 1.0]
+    if not other.size:
+        return ""
+    spans = int(other.size)
+    low, high = mu * float(other.min()), mu * float(other.max())
+    shown = f"{low:.3g}" if low == high else f"{low:.3g} to {high:.3g}"
+    return (f"; {shown} over {spans} stretch{'es' if spans != 1 else ''} of the plan's friction "
+            "sections")
 
 
 def describe(result, summary, vehicle_file) -> list[str]:
@@ -123,7 +143,7 @@ def describe(result, summary, vehicle_file) -> list[str]:
         f"tyre use       front {summary.peak_front_tyre_use:.2f} at station "
         f"{summary.peak_front_tyre_use_station_m:.1f} m, rear {summary.peak_rear_tyre_use:.2f} "
         f"at station {summary.peak_rear_tyre_use_station_m:.1f} m (friction "
-        f"{v.friction_coefficient:g})",
+        f"{v.friction_coefficient:g}{_sections(result.grip, v.friction_coefficient)})",
         f"steering       max {summary.max_steer_rad:.3f} rad of {v.max_steer_rad:g}; at the "
         f"angle limit {summary.steer_angle_saturated_s:.2f} s, at the rate limit "
         f"{summary.steer_rate_saturated_s:.2f} s",

@@ -17,6 +17,10 @@ Each tracker period (``control_dt_s``, output held over the period, a discrete c
 * then ``control_dt_s / integration_dt_s`` classical Runge-Kutta steps of the vehicle model
   (:func:`~curvespeed.dynamics.vehicle.rk4_step`).
 
+Where the plan has friction sections (``grip``, :class:`~curvespeed.friction.GripAlong`), the
+vehicle's friction coefficient is scaled by the section's over the route's at the vehicle's
+station, looked up once per tracker period: a wet patch is driven wet.
+
 The run ends when the vehicle's station reaches the end of the profile, when it comes to rest
 after the planned time on a profile that ends at rest, when it loses the path (offset beyond
 :attr:`ReplaySettings.lost_path_m` or heading error beyond 90 degrees), or
@@ -33,6 +37,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..export import StationProfile, as_station_profile, sample_in_time
+from ..friction import GripAlong
 from .lqr import LqrTracker, LqrWeights
 from .path import PathReference
 from .tracker_kind import TrackerKind
@@ -119,6 +124,11 @@ class ReplayResult:
         Station of the profile's end, m.
     name, source : str
         Route name and the profile it came from.
+    tracker_stats : dict
+        The MPC's QP counts (empty for the LQR).
+    grip : GripAlong or None
+        The road's grip the vehicle drove on, relative to the route's friction (None: the
+        vehicle's own coefficient all along).
     """
 
     columns: dict
@@ -130,6 +140,7 @@ class ReplayResult:
     name: str = "route"
     source: str = "profile"
     tracker_stats: dict = field(default_factory=dict)
+    grip: GripAlong | None = None
 
     @property
     def success(self) -> bool:
@@ -174,7 +185,8 @@ def initial_state(vehicle: Vehicle, path: PathReference, tracker, speed_mps: flo
 
 
 def replay(profile, vehicle: Vehicle = DEFAULT_VEHICLE,
-           settings: ReplaySettings = ReplaySettings()) -> ReplayResult:
+           settings: ReplaySettings = ReplaySettings(),
+           grip: GripAlong | None = None) -> ReplayResult:
     """Drive ``vehicle`` along ``profile`` with the tracker of ``settings`` (module docstring).
 
     Parameters
@@ -182,6 +194,11 @@ def replay(profile, vehicle: Vehicle = DEFAULT_VEHICLE,
     profile : StationProfile or Profile
     vehicle : Vehicle
     settings : ReplaySettings
+    grip : GripAlong, optional
+        The road's grip along the route relative to the route's friction (the plan's friction
+        sections, :func:`curvespeed.friction.grip_along`): the vehicle's friction coefficient
+        is scaled by it wherever the vehicle is (looked up once per tracker period). None: the
+        vehicle's coefficient all along.
 
     Returns
     -------
@@ -192,10 +209,10 @@ def replay(profile, vehicle: Vehicle = DEFAULT_VEHICLE,
     # every matrix here is 5x5 to 180x210: the BLAS's threads only cost (measured 10-30x
     # slower gain tables with them on a loaded 2-core machine)
     with threadpool_limits(limits=1, user_api="blas"):
-        return _replay(profile, vehicle, settings)
+        return _replay(profile, vehicle, settings, grip)
 
 
-def _replay(profile, vehicle: Vehicle, settings: ReplaySettings) -> ReplayResult:
+def _replay(profile, vehicle: Vehicle, settings: ReplaySettings, grip) -> ReplayResult:
     sp: StationProfile = as_station_profile(profile)
     substeps = _ratio(settings.control_dt_s, settings.integration_dt_s, "control_dt_s")
     ref = sample_in_time(sp, settings.control_dt_s, settings.dwell_s)
@@ -203,7 +220,7 @@ def _replay(profile, vehicle: Vehicle, settings: ReplaySettings) -> ReplayResult
     top = 1.25 * float(np.max(sp.speed_mps)) + 5.0
     tracker = make_tracker(vehicle, settings, top)
     state = initial_state(vehicle, path, tracker, float(sp.speed_mps[0]))
-    status, rows = _run(vehicle, settings, substeps, ref, path, tracker, state, sp)
+    status, rows = _run(vehicle, settings, substeps, ref, path, tracker, state, sp, grip)
     stats = {}
     if tracker.needs_preview:
         stats = {"qp_solves": tracker.solves, "qp_fallbacks": tracker.fallbacks,
@@ -211,10 +228,10 @@ def _replay(profile, vehicle: Vehicle, settings: ReplaySettings) -> ReplayResult
     columns = {name: np.asarray(col, dtype=float) for name, col in zip(REPLAY_COLUMNS, rows)}
     return ReplayResult(columns=columns, status=status, vehicle=vehicle, settings=settings,
                         planned_time_s=float(ref.total_time_s), end_station_m=path.end_m,
-                        name=sp.name, source=sp.source, tracker_stats=stats)
+                        name=sp.name, source=sp.source, tracker_stats=stats, grip=grip)
 
 
-def _run(vehicle, settings, substeps, ref, path, tracker, state, sp):
+def _run(vehicle, settings, substeps, ref, path, tracker, state, sp, grip):
     """The closed loop; returns the status and the columns as lists (REPLAY_COLUMNS order)."""
     dt, h = settings.control_dt_s, settings.integration_dt_s
     kp, ki = settings.speed_gain_1ps, settings.speed_integral_gain_1ps2
@@ -235,6 +252,10 @@ def _run(vehicle, settings, substeps, ref, path, tracker, state, sp):
     for i in range(last_tick + 1):
         x, y, yaw, vx, vy, r, delta = state
         s, e, heading, kappa = path.project(x, y)
+        if grip is not None:
+            mu = vehicle.friction_coefficient * grip.at(s)
+            if mu != model.mu:
+                model.set_friction(mu)
         e_psi = math.remainder(yaw - heading, math.tau)
         ce, se = math.cos(e_psi), math.sin(e_psi)
         s_dot = (vx * ce - vy * se) / (1.0 - kappa * e) if kappa * e < 0.9 else vx

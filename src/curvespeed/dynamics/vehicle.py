@@ -167,11 +167,17 @@ class VehicleModel:
         self.wheelbase = vehicle.wheelbase_m
         self.cf = vehicle.front_cornering_stiffness_npr
         self.cr = vehicle.rear_cornering_stiffness_npr
-        self.cap_f = vehicle.friction_coefficient * vehicle.front_load_n
-        self.cap_r = vehicle.friction_coefficient * vehicle.rear_load_n
+        self.set_friction(vehicle.friction_coefficient)
         self.share_f = self.b / self.wheelbase
         self.curve = vehicle.tyre_curve
         self.lag, self.rate = vehicle.steer_lag_s, vehicle.max_steer_rate_radps
+
+    def set_friction(self, mu: float) -> None:
+        """Drive on from here with the tyre-road friction ``mu`` (a wet patch, a friction
+        section of the plan): each axle's force is then held within ``mu F_z``."""
+        self.mu = mu
+        self.cap_f = mu * self.vehicle.front_load_n
+        self.cap_r = mu * self.vehicle.rear_load_n
 
     def split(self, force_x: float):
         """The longitudinal force per axle (each within ``mu F_z``) and the lateral force each

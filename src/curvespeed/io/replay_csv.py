@@ -10,7 +10,9 @@ over what friction allows (1 = saturated). Numbers use the fixed formats of
 
 JSON summary: one object ``{"format": "curvespeed-replay-summary", "format_version": 1,
 "profile": ..., "tracker": ..., "vehicle": {...}, "summary": {...}}`` with the figures of
-:class:`~curvespeed.dynamics.summary.ReplaySummary` (units in the key names).
+:class:`~curvespeed.dynamics.summary.ReplaySummary` (units in the key names), and
+``"road_friction": [{"start_m", "end_m", "friction_coefficient"}]`` where the plan's friction
+sections changed the vehicle's friction (only then).
 """
 
 from __future__ import annotations
@@ -58,4 +60,6 @@ def replay_summary_json_text(result: ReplayResult, summary: ReplaySummary) -> st
         "vehicle": vehicle,
         "summary": summary.to_dict(),
     }
+    if result.grip is not None:     # the plan's friction sections, as the vehicle drove them
+        doc["road_friction"] = result.grip.stretches(result.vehicle.friction_coefficient)
     return json.dumps(doc, indent=2, sort_keys=False) + "\n"
