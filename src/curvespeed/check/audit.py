@@ -61,16 +61,7 @@ def check_speeds(geometry: Geometry, limits: Limits, constraints: RouteConstrain
         Invalid limits, constraints, design speed or ``e_max``.
     """
     s = geometry.station_m
-    v = np.asarray(speed_mps, dtype=float).ravel()
-    n = geometry.n_nodes
-    if v.size != n:
-        raise SpeedFileError(f"{speed_source}: {v.size} speeds for {n} stations; give one speed "
-                             "per station of the route")
-    bad = np.flatnonzero(~np.isfinite(v) | (v < 0.0))
-    if bad.size:
-        k = int(bad[0])
-        raise SpeedFileError(f"{speed_source}: speed {float(v[k]):g} m/s at station {s[k]:.1f} m "
-                             "is not a finite, non-negative number; fix the speeds")
+    v = _checked_speeds(geometry, speed_mps, speed_source)
     design = None if design_speed_kmh is None else design_criterion(design_speed_kmh, e_max)
     from ..placement import place_positions
 
@@ -93,14 +84,7 @@ def check_speeds(geometry: Geometry, limits: Limits, constraints: RouteConstrain
     found.sort(key=lambda item: (item[0].start_m, item[0].kind))
     violations = tuple(replace(viol, curves=tuple(sorted(t + 1 for t in touched)))
                        for viol, touched in found)
-    finished = []
-    for curve in curves:
-        hits = [viol for viol in violations if curve.number in viol.curves]
-        kinds = tuple(dict.fromkeys(viol.kind for viol in hits))
-        on_estimate = tuple(dict.fromkeys(viol.kind for viol in hits if viol.on_estimate))
-        worst = max([curve.worst_use] + [viol.use for viol in hits])
-        finished.append(replace(curve, violations=kinds, violations_on_estimate=on_estimate,
-                                worst_use=worst, brake_ok=BRAKE_REACH not in kinds))
+    finished = [_with_violations(curve, violations) for curve in curves]
     return CheckReport(
         geometry=geometry, speed_kind=kind, speed_source=speed_source, speed_mps=v,
         accel_mps2=judged.accel_mps2, limit_speed_mps=np.sqrt(judged.ceiling_b),
@@ -109,6 +93,34 @@ def check_speeds(geometry: Geometry, limits: Limits, constraints: RouteConstrain
         limit_speed_estimate_mps=np.sqrt(judged.ceiling_estimate_b), curves=tuple(finished),
         violations=violations, design=design, limits=limits, constraints=used,
         settings=settings, tolerance=tolerance)
+
+
+def _checked_speeds(geometry: Geometry, speed_mps, speed_source: str) -> np.ndarray:
+    """The speeds as a flat array, one finite non-negative speed per station, else
+    :class:`SpeedFileError` naming the first bad one."""
+    s = geometry.station_m
+    v = np.asarray(speed_mps, dtype=float).ravel()
+    n = geometry.n_nodes
+    if v.size != n:
+        raise SpeedFileError(f"{speed_source}: {v.size} speeds for {n} stations; give one speed "
+                             "per station of the route")
+    bad = np.flatnonzero(~np.isfinite(v) | (v < 0.0))
+    if bad.size:
+        k = int(bad[0])
+        raise SpeedFileError(f"{speed_source}: speed {float(v[k]):g} m/s at station {s[k]:.1f} m "
+                             "is not a finite, non-negative number; fix the speeds")
+    return v
+
+
+def _with_violations(curve: CurveCheck, violations) -> CurveCheck:
+    """``curve`` with the kinds of the violations touching it, those found on the estimate
+    too, its worst use among them and whether its braking is reached in time."""
+    hits = [viol for viol in violations if curve.number in viol.curves]
+    kinds = tuple(dict.fromkeys(viol.kind for viol in hits))
+    on_estimate = tuple(dict.fromkeys(viol.kind for viol in hits if viol.on_estimate))
+    worst = max([curve.worst_use] + [viol.use for viol in hits])
+    return replace(curve, violations=kinds, violations_on_estimate=on_estimate,
+                   worst_use=worst, brake_ok=BRAKE_REACH not in kinds)
 
 
 @dataclass(frozen=True)

@@ -57,7 +57,6 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
     codes and licensed engineering practice.
     """
     from ..io.atomic import OutputFiles
-    from ..io.meta_json import default_meta_path
     from ._limits import (friction_lines, section_options, snapped_lines, stop_positions,
                           zone_positions)
 
@@ -74,21 +73,7 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
     outputs.add_input(route_file, "the route file")
     register_drives(outputs, drives)
     outputs.add_input(limits_file, "the limits file (-l/--limits)")
-    meta_path = None
-    if output:
-        outputs.add_output(output, "-o/--output")
-        meta_path = meta_file or default_meta_path(output)
-        outputs.add_output(meta_path, "--meta" if meta_file else
-                           f"the sidecar (named after -o: {meta_path})")
-    elif meta_file:
-        raise click.UsageError("--meta needs -o/--output (the sidecar describes a written profile)")
-    if plot_file:
-        from ..plots import figure_format
-
-        figure_format(plot_file)
-        outputs.add_output(plot_file, "--plot")
-    if report_file:
-        outputs.add_output(report_file, "--report")
+    meta_path = _register_outputs(outputs, output, meta_file, plot_file, report_file)
     with outputs:               # every output checked here; written together at the end
         route_args = (spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
                       part, drives, all_tracks, roads, lane)
@@ -103,13 +88,7 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
 
         from ..planner import plan_profile
 
-        kind = SolverKind(solver) if solver else None
-        options = None
-        if comfort_weight or qp_backend:
-            from ..solvers.convex import ConvexOptions
-
-            options = ConvexOptions(comfort_weight=comfort_weight,
-                                    **({"qp_backend": QPBackend(qp_backend)} if qp_backend else {}))
+        kind, options = _solver_choice(solver, comfort_weight, qp_backend)
         # resolve_limits validated the limits and warned, naming the file or the command line
         profile = plan_profile(geo, limits, constraints, kind, options, warn_limits=False)
         if standing:
@@ -133,6 +112,40 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
         echo(f"drew {plot_file}")
     if report_file:
         echo(f"wrote the report {report_file}")
+
+
+def _register_outputs(outputs, output, meta_file, plot_file, report_file):
+    """Name every file ``plan`` writes to ``outputs`` (checked before anything is computed);
+    returns the sidecar's path (None without ``-o``)."""
+    from ..io.meta_json import default_meta_path
+
+    meta_path = None
+    if output:
+        outputs.add_output(output, "-o/--output")
+        meta_path = meta_file or default_meta_path(output)
+        outputs.add_output(meta_path, "--meta" if meta_file else
+                           f"the sidecar (named after -o: {meta_path})")
+    elif meta_file:
+        raise click.UsageError("--meta needs -o/--output (the sidecar describes a written profile)")
+    if plot_file:
+        from ..plots import figure_format
+
+        figure_format(plot_file)
+        outputs.add_output(plot_file, "--plot")
+    if report_file:
+        outputs.add_output(report_file, "--report")
+    return meta_path
+
+
+def _solver_choice(solver, comfort_weight, qp_backend):
+    """``(SolverKind or None, ConvexOptions or None)`` from the solver options."""
+    kind = SolverKind(solver) if solver else None
+    if not (comfort_weight or qp_backend):
+        return kind, None
+    from ..solvers.convex import ConvexOptions
+
+    return kind, ConvexOptions(comfort_weight=comfort_weight,
+                               **({"qp_backend": QPBackend(qp_backend)} if qp_backend else {}))
 
 
 def _standing_lap(standing, flying, sources, constraint_args, route_args, positions, solver):
@@ -198,7 +211,6 @@ def summarise(route_file, profile, limits, origin: str, max_curves: int = 8) -> 
 
     geo = profile.geometry
     v = profile.speed_mps
-    s = geo.station_m
     mean = geo.length_m / profile.total_time_s
     lines = [
         f"route    {route_file}: {geo.length_m:.1f} m, {'closed loop' if geo.closed else 'open'},"
