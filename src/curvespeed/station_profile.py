@@ -215,37 +215,15 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
     labels = None if where is None else np.asarray(where, dtype=object).ravel()
     text = None if binding is None else np.asarray(binding, dtype=object).ravel()
 
-    def at(k: int) -> str:
-        place = f"{labels[k]}" if labels is not None else f"node {k}"
-        return f"{source}: {place} (station {s[k]:.1f} m)"
-
-    for name_, values in list(required.items()) + list(optional.items()):
-        if values is not None and values.size != n:
-            raise SpeedFileError(f"{source}: {name_} has {values.size} values for {n} stations")
-    for other, size in (("where", None if labels is None else labels.size),
-                        ("binding", None if text is None else text.size)):
-        if size is not None and size != n:
-            raise SpeedFileError(f"{source}: {other} has {size} values for {n} stations")
-    if n < 2:
-        raise SpeedFileError(f"{source}: {n} station(s); a profile needs at least 2")
-    if (optional["lat"] is None) != (optional["lon"] is None):
-        raise SpeedFileError(f"{source}: has only one of lat, lon; give both columns or neither")
-    for name_, values in list(required.items()) + list(optional.items()):
-        if values is None:
-            continue
-        bad = np.flatnonzero(~np.isfinite(values))
-        if bad.size:
-            k = int(bad[0])
-            place = labels[k] if labels is not None else f"node {k}"
-            raise SpeedFileError(f"{source}: {place}: {name_} is not a finite number; fix or "
-                                 "remove that row")
+    _check_columns({**required, **optional}, {"where": labels, "binding": text}, source, labels)
     check_stations_and_speeds(s, v, source, labels)
     bad = np.flatnonzero((v[:-1] <= 0.0) & (v[1:] <= 0.0))
     if bad.size:
         k = int(bad[0])
-        raise SpeedFileError(f"{at(k)}: speed is zero here and at the next station "
-                             f"({s[k + 1]:.1f} m), so the vehicle never covers that step; "
-                             "plan stops at least two stations apart")
+        place = f"{labels[k]}" if labels is not None else f"node {k}"
+        raise SpeedFileError(f"{source}: {place} (station {s[k]:.1f} m): speed is zero here and "
+                             f"at the next station ({s[k + 1]:.1f} m), so the vehicle never "
+                             "covers that step; plan stops at least two stations apart")
 
     if rest_time_coef is None:
         coef = detect_rest_steps(s, v, optional["time_s"])
@@ -262,6 +240,29 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
         speed_mps=v, binding=text, name=name, source=source, where=labels,
         rest_time_coef=coef,
         **optional)
+
+
+def _check_columns(numbers: dict, texts: dict, source: str, labels) -> None:
+    """Every column (``numbers`` and ``texts`` by name, None where absent) has one value per
+    station, there are at least two, lat and lon come together and every number is finite;
+    else :class:`SpeedFileError` naming the column and the first bad row."""
+    n = numbers["station_m"].size
+    for name, values in list(numbers.items()) + list(texts.items()):
+        if values is not None and values.size != n:
+            raise SpeedFileError(f"{source}: {name} has {values.size} values for {n} stations")
+    if n < 2:
+        raise SpeedFileError(f"{source}: {n} station(s); a profile needs at least 2")
+    if (numbers["lat"] is None) != (numbers["lon"] is None):
+        raise SpeedFileError(f"{source}: has only one of lat, lon; give both columns or neither")
+    for name, values in numbers.items():
+        if values is None:
+            continue
+        bad = np.flatnonzero(~np.isfinite(values))
+        if bad.size:
+            k = int(bad[0])
+            place = labels[k] if labels is not None else f"node {k}"
+            raise SpeedFileError(f"{source}: {place}: {name} is not a finite number; fix or "
+                                 "remove that row")
 
 
 def check_stations_and_speeds(station_m, speed_mps, source: str, where=None) -> None:
