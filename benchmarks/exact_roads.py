@@ -31,6 +31,13 @@ costs, apart from the curvature estimate. It prints one table per kind of plan a
 of the curvature work (PASS/FAIL): no limit used beyond 1.01 on the exact road; planned time
 within 1 % of the optimum and not more than 0.1 % below it; and a double-S rest-to-rest move
 planned at the default 1 m spacing within 0.1 % of its closed form and never below it.
+
+Each road is also driven and logged (``tests/drive_logs.py``: RTK at 10 Hz, a consumer receiver
+at 1 Hz; white noise plus a slowly drifting error), planned from the log as a user would (noise
+estimated from it) and judged on the exact road, lengthened by straights at both ends since a
+log's route may begin or end a little beyond the road's. These rows have the limits target only:
+a log's route is not the road's, and how much slower than the optimum the plan may be depends on
+how well the points show the road.
 """
 
 from __future__ import annotations
@@ -201,6 +208,50 @@ def plan_with_cli(case: RoadCase, workdir: Path):
     return read_station_profile(profile), elapsed
 
 
+#: Simulated logs each road is also planned from (receiver, logging rate in Hz): the error
+#: models of ``tests/drive_logs.py`` (white noise plus a slowly drifting error; common practice).
+LOGS = (("RTK", 10.0), ("consumer", 1.0))
+
+
+#: Straight road added before and after each road to judge the plans of logs on: a log's route
+#: begins and ends where the fixes of the standstills there put it, which may be a little beyond
+#: the design road's ends (a few centimetres for RTK, metres for a consumer receiver).
+LOG_MARGIN_M = 20.0
+
+
+def extended(alignment: Alignment, margin_m: float) -> Alignment:
+    """``alignment`` with ``margin_m`` of straight road before its start and after its end (in
+    line with its end headings); stations on it are the road's plus ``margin_m``."""
+    h0 = alignment.heading0_rad
+    return Alignment((line(margin_m), *alignment.elements, line(margin_m)),
+                     alignment.x0_m - margin_m * math.cos(h0),
+                     alignment.y0_m - margin_m * math.sin(h0), h0)
+
+
+def plan_from_log(case: RoadCase, workdir: Path, receiver: str, rate_hz: float, seed: int = 5):
+    """Drive the road (from rest to rest, stopping at the case's stops), log it with
+    ``receiver``'s errors at ``rate_hz``, and plan the log with ``curvespeed plan`` (noise
+    estimated from the log, as by default): the profile and the log's drift-free length error."""
+    from curvespeed.io.profile_csv import read_station_profile
+
+    sys.path.insert(0, str(ROOT / "tests"))
+    from drive_logs import CONSUMER, RTK, simulate_drive
+
+    log = simulate_drive(case.alignment, rate_hz, {"RTK": RTK, "consumer": CONSUMER}[receiver],
+                         seed=seed, stops=case.stops, dwell_s=5.0)
+    points = workdir / f"{case.name}_{receiver}_{rate_hz:g}hz.csv"
+    points.write_text("x_m,y_m\n" + "".join(f"{a:.4f},{b:.4f}\n"
+                                             for a, b in zip(log.x_m, log.y_m)))
+    profile = points.with_name(points.stem + "_profile.csv")
+    exe = Path(sys.executable).with_name("curvespeed")
+    done = subprocess.run([str(exe), "plan", str(points), "-o", str(profile), "--force",
+                           *case.plan_options()], check=False, capture_output=True, text=True)
+    if done.returncode != 0:
+        raise RuntimeError(f"curvespeed plan failed on the {receiver} log of {case.name}: "
+                           f"{done.stderr.strip()}")
+    return read_station_profile(profile)
+
+
 def plan_on_exact_geometry(case: RoadCase):
     """The profile planned directly on the exact alignment at 1 m stations (no fit)."""
     from curvespeed.planner import plan_profile
@@ -215,9 +266,20 @@ def run_case(case: RoadCase, workdir: Path) -> dict:
     fitted, plan_s = plan_with_cli(case, workdir)
     best = solve_min_time(case.alignment, case.limits, case.stops, case.start_speed_mps,
                           case.end_speed_mps)
+    logged = {}
+    road = extended(case.alignment, LOG_MARGIN_M)
+    for receiver, rate in LOGS:
+        try:
+            sp = plan_from_log(case, workdir, receiver, rate)
+        except RuntimeError as exc:     # a refused plan is a result too: say why
+            logged[f"{receiver} {rate:g} Hz"] = (None, str(exc).splitlines()[-1])
+            continue
+        logged[f"{receiver} {rate:g} Hz"] = (judge_profile(sp, road, case.limits),
+                                             float(sp.station_m[-1] - sp.station_m[0]))
     return {"case": case, "optimum": best, "plan_s": plan_s,
             "fitted": judge_profile(fitted, case.alignment, case.limits),
-            "exact": judge_profile(plan_on_exact_geometry(case), case.alignment, case.limits)}
+            "exact": judge_profile(plan_on_exact_geometry(case), case.alignment, case.limits),
+            "logged": logged}
 
 
 # -- tables and targets ------------------------------------------------------------------------
@@ -260,6 +322,28 @@ def table(results: list[dict], kind: str) -> str:
         cells += [f"{j.lateral_step_mps2:.2f}", f"{worst} {use:.3f} at {j.where_m[worst]:.1f} m",
                   _verdict(use <= MAX_USE), _verdict(TIME_BAND[0] <= planned <= TIME_BAND[1])]
         lines.append("| " + " | ".join(cells) + " |")
+    return "\n".join(lines)
+
+
+def log_table(results: list[dict]) -> str:
+    """Markdown table of the plans made from simulated logs, judged on the exact road. The
+    logged route's length differs from the road's by the fixes' errors at its two ends, so its
+    time is compared with the optimum per metre of route (a fair reading to about that error)."""
+    head = ["road", "log", "route length vs road", "time per m vs opt.", "worst", "limits"]
+    lines = ["| " + " | ".join(head) + " |", "|" + "---|" * len(head)]
+    for r in results:
+        road = r["case"].alignment.length_m
+        for label, (j, length) in r["logged"].items():
+            if j is None:               # the plan was refused; ``length`` holds the message
+                lines.append(f"| {r['case'].name} | {label} | - | - | plan refused: {length} "
+                             "| FAIL |")
+                continue
+            per_m = (j.planned_time_s / length) / (r["optimum"].time_s / road) - 1.0
+            worst, use = j.worst
+            at = j.where_m[worst] - LOG_MARGIN_M          # on the road's own stations
+            lines.append(f"| {r['case'].name} | {label} | {length - road:+.2f} m | "
+                         f"{100 * per_m:+.2f} % | {worst} {use:.3f} at {at:.1f} m | "
+                         f"{_verdict(use <= MAX_USE)} |")
     return "\n".join(lines)
 
 
@@ -361,6 +445,10 @@ def main(argv=None) -> int:
     print(table(results, "exact"))
     print(f"\nTargets: limits = worst use <= {MAX_USE}; time = planned time within "
           f"{100 * TIME_BAND[0]:+g} % .. {100 * TIME_BAND[1]:+g} % of the optimum.")
+    print("\nProfiles planned by `curvespeed plan` on simulated logs of each road (driven from "
+          "rest to rest, white noise plus a slowly drifting error; noise estimated from the "
+          "log), judged on the exact road:\n")
+    print(log_table(results))
     print("\nDouble-S rest-to-rest moves planned at 1 m on a straight (target: within 0.1 % of "
           "the closed form, never below it):\n")
     print(double_s_table(double_s_rows()))
