@@ -10,7 +10,8 @@ which is what keeps the bound convex after the same tangent step the jerk rows u
   linear forms in the step's two squared speeds, and the speed at most the larger of its nodes'
   speeds (:func:`step_lateral_jerk`);
 * :func:`node_rate_forms`: at every node where two steps meet, ``g`` with the road of one step
-  and the acceleration of the other, for both pairings. The acceleration changes at the node;
+  (its rate at either end of the step's range) and the acceleration of the other, for both
+  pairings. The acceleration changes at the node;
   a vehicle cannot switch it exactly there (the jerk bound spreads the change around the node),
   and a road whose curvature rate changes at the node is driven next to it with either step's
   acceleration or one between them (``g`` is linear in ``a``).
@@ -29,6 +30,13 @@ step after. With the rate in ``[r_lo, r_hi]`` and averaging to ``r``, the curvat
 the line between the nodes' values by at most ``delta = (r_hi - r) (r - r_lo) ds / (r_hi - r_lo)``
 (at most a quarter of ``(r_hi - r_lo) ds``).
 
+**An estimated curvature.** A curvature estimated from surveyed or logged points is smoothed:
+a joint of the road's rate shows spread over the smoothing's width, so the rate just past a
+clothoid's start reads low (measured on simulated RTK logs of an S-curve: lateral jerk 1.3-1.6
+times the bound on the exact road with the chord ranges alone). Where the geometry says how far
+its estimate may spread a change (:attr:`curvespeed.geometry.Geometry.curvature_spread_m`), each
+step's range also takes the chord rates within that distance (:func:`spread_rate_range`).
+
 Closed forms only; vectorised; no side effects.
 """
 
@@ -43,11 +51,12 @@ import numpy as np
 class NodeRateForms:
     """The rates at nodes with one step's road and the other step's acceleration.
 
-    At node ``node[i]`` (neighbours ``prev[i]`` and ``next[i]``), ``g`` with the road of the step
-    before and the acceleration of the step after is ``forms[i, 0] @ b[[prev, node, next]]``;
-    with the road after and the acceleration before, ``forms[i, 1] @ ...``. Node indices are
-    over the distinct nodes (a closed route's last node is its first); the ends of an open route
-    have a step on one side only and no form.
+    At node ``node[i]`` (neighbours ``prev[i]`` and ``next[i]``), ``g`` is at most the largest
+    magnitude of ``forms[i, j] @ b[[prev, node, next]]`` over ``j``: the road of the step
+    before (its lowest and its highest rate) with the acceleration of the step after, and the
+    road after with the acceleration before (forms that would repeat another are zero). Node
+    indices are over the distinct nodes (a closed route's last node is its first); the ends of
+    an open route have a step on one side only and no form.
     """
 
     node: np.ndarray
@@ -56,12 +65,52 @@ class NodeRateForms:
     forms: np.ndarray
 
 
-def rate_range(kappa, ds, closed: bool) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def spread_rate_range(kappa, ds: float, closed: bool, spread_m,
+                      margin=None) -> tuple[np.ndarray, np.ndarray]:
+    """Each step's range of curvature rates when the curvature is an *estimate* that may have
+    moved a change of rate by up to ``spread_m`` (one value per node, metres;
+    :attr:`curvespeed.geometry.Geometry.curvature_spread_m`): the lowest and highest chord rate
+    of the steps within that distance of the step and one step more, ``(r_lo, r_hi)`` in
+    1/m^2.
+
+    A smoothing that spreads a change over a distance reaches the rate a road has just past a
+    joint (a clothoid ending on an arc) only that far past it, and holds a rate it shows that far
+    beyond where the road does: the rates within that distance cover the road's, as the largest
+    curvature within it covers the road's curvature (:mod:`curvespeed.geometry.curvature`). A
+    chord rate averages the estimate's rate over its own step as well, hence the one step more.
+    ``margin`` (one value per node, 1/m^2; :attr:`curvespeed.geometry.Geometry.
+    curvature_rate_margin_1pm2`) widens each step's range by the larger of its nodes' values:
+    how far a rate the estimate holds may be off.
+    """
+    kappa = np.asarray(kappa, dtype=float)
+    rate = np.diff(kappa) / ds
+    n = rate.size
+    spread = np.asarray(spread_m, dtype=float)
+    wide = np.maximum(spread[:-1], spread[1:])
+    reach = np.where(wide > 0.0, np.ceil(wide / ds - 1e-9) + 1, 0).astype(np.intp)
+    lo, hi = rate.copy(), rate.copy()
+    for m in np.unique(reach[reach > 0]):          # a few distinct widths: one pass each
+        steps = np.flatnonzero(reach == m)
+        shifts = np.arange(-m, m + 1)
+        if closed:
+            near = rate[(steps[:, None] + shifts[None, :]) % n]
+        else:
+            near = rate[np.clip(steps[:, None] + shifts[None, :], 0, n - 1)]
+        lo[steps], hi[steps] = near.min(axis=1), near.max(axis=1)
+    if margin is not None:
+        margin = np.asarray(margin, dtype=float)
+        off = np.maximum(margin[:-1], margin[1:])
+        lo, hi = lo - off, hi + off
+    return lo, hi
+
+
+def rate_range(kappa, ds, closed: bool, wider=None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """The range of the curvature rate along each step and how far the curvature may depart
     from the line between the nodes' values (module docstring): ``(r_lo, r_hi, delta)``.
 
     ``kappa`` has one value per node (a closed route's last node repeats the first); ``ds`` is
-    one value or one per step. Rates in 1/m^2, ``delta`` in 1/m.
+    one value or one per step. ``wider``, when given, is a range ``(r_lo, r_hi)`` per step the
+    rate may also take (:func:`spread_rate_range`). Rates in 1/m^2, ``delta`` in 1/m.
     """
     kappa = np.asarray(kappa, dtype=float)
     rate = np.diff(kappa) / ds
@@ -72,6 +121,8 @@ def rate_range(kappa, ds, closed: bool) -> tuple[np.ndarray, np.ndarray, np.ndar
         after = np.concatenate((rate[1:], rate[-1:]))
     lo = np.minimum(np.minimum(before, rate), after)
     hi = np.maximum(np.maximum(before, rate), after)
+    if wider is not None:
+        lo, hi = np.minimum(lo, wider[0]), np.maximum(hi, wider[1])
     # else the rate is the chord's all along; rates equal but for rounding (1e-9 of the
     # largest, where the nodes' curvatures carry 1e-16) count as equal
     tol = 1e-9 * np.maximum(np.abs(lo), np.abs(hi))
@@ -83,7 +134,7 @@ def rate_range(kappa, ds, closed: bool) -> tuple[np.ndarray, np.ndarray, np.ndar
 
 
 def step_rate_forms(kappa, ds, closed: bool, accel_factor_start,
-                    accel_factor_end) -> np.ndarray:
+                    accel_factor_end, wider=None) -> np.ndarray:
     """Linear forms that bound the station rate of the lateral acceleration along each step.
 
     Returns ``R``, shape ``(n_steps, 8, 2)``: along step ``k`` (from node ``k`` to ``k+1``,
@@ -105,12 +156,12 @@ def step_rate_forms(kappa, ds, closed: bool, accel_factor_start,
       so ``kappa' b`` and ``2 kappa a`` each lie between multiples of ``b_m``: two forms, the
       sums of their upper and of their lower bounds.
 
-    ``ds`` may be one value or one per step.
+    ``ds`` may be one value or one per step; ``wider`` widens the rates (:func:`rate_range`).
     """
     kappa = np.asarray(kappa, dtype=float)
     k0, k1 = kappa[:-1], kappa[1:]
     ds = np.broadcast_to(np.asarray(ds, dtype=float), k0.shape)
-    r_lo, r_hi, delta = rate_range(kappa, ds, closed)
+    r_lo, r_hi, delta = rate_range(kappa, ds, closed, wider)
     h = 1.0 / ds                                # 2 a = h (b[k+1] - b[k])
     forms = np.zeros((k0.size, 8, 2))
     i = 0
@@ -143,14 +194,17 @@ def step_rate_forms(kappa, ds, closed: bool, accel_factor_start,
 
 
 def node_rate_forms(kappa, ds: float, closed: bool, accel_factor_start,
-                    accel_factor_end) -> NodeRateForms:
+                    accel_factor_end, wider=None) -> NodeRateForms:
     """The crossed rates at every node where two steps meet (:class:`NodeRateForms`).
 
     With the step before's curvature rate ``kappa'_-`` and acceleration at the node
     ``a_- = f_- (b_k - b_k-1) / (2 ds)``, and the step after's ``kappa'_+`` and
     ``a_+ = f_+ (b_k+1 - b_k) / (2 ds)`` (``f`` the steps' acceleration factors at the node:
     1, or the moving node's ``f`` of a step next to rest), the forms are
-    ``kappa'_- b_k + 2 kappa_k a_+`` and ``kappa'_+ b_k + 2 kappa_k a_-``.
+    ``kappa'_- b_k + 2 kappa_k a_+`` and ``kappa'_+ b_k + 2 kappa_k a_-``, each rate at both
+    ends of its step's range (:func:`rate_range`, widened by ``wider``): right next to the node
+    the road may already have the rate of a joint the step holds anywhere along it (the steps'
+    own forms assume the same), not only the step's chord rate.
     """
     kappa = np.asarray(kappa, dtype=float)
     nv = kappa.size - 1 if closed else kappa.size
@@ -160,13 +214,20 @@ def node_rate_forms(kappa, ds: float, closed: bool, accel_factor_start,
     else:
         node, prev, nxt = k[1:-1], k[:-2], k[2:]
     before, after = prev, node                  # the steps that meet at the node
-    rate = np.diff(kappa) / ds
+    lo, hi, _ = rate_range(kappa, ds, closed, wider)
     kk = kappa[node]
     f_after = np.asarray(accel_factor_start, dtype=float)[after] * kk / ds
     f_before = np.asarray(accel_factor_end, dtype=float)[before] * kk / ds
-    forms = np.zeros((node.size, 2, 3))
-    forms[:, 0, 1], forms[:, 0, 2] = rate[before] - f_after, f_after
-    forms[:, 1, 0], forms[:, 1, 1] = -f_before, rate[after] + f_before
+    forms = np.zeros((node.size, 4, 3))
+    for j, rates in enumerate(((lo[before], hi[before]), (lo[after], hi[after]))):
+        for i, r in enumerate(rates):
+            keep = 1.0 if i == 0 else (rates[1] != rates[0]).astype(float)
+            if j == 0:      # the road before, the acceleration after
+                forms[:, 2 * j + i, 1] = keep * (r - f_after)
+                forms[:, 2 * j + i, 2] = keep * f_after
+            else:           # the road after, the acceleration before
+                forms[:, 2 * j + i, 0] = keep * -f_before
+                forms[:, 2 * j + i, 1] = keep * (r + f_before)
     return NodeRateForms(node=node, prev=prev, next=nxt, forms=forms)
 
 
@@ -202,4 +263,4 @@ def node_lateral_jerk(cross: NodeRateForms, b, closed: bool) -> np.ndarray:
 
 
 __all__ = ["NodeRateForms", "node_lateral_jerk", "node_rate_forms", "rate_range",
-           "step_lateral_jerk", "step_rate_forms"]
+           "spread_rate_range", "step_lateral_jerk", "step_rate_forms"]

@@ -76,7 +76,7 @@ The bound holds
   the curvature is linear between the nodes it is exact at constant speed (``|kappa'| v^3`` on
   a clothoid, Shortt's spiral rate) and wherever the largest rate meets the larger speed;
 * *at every node where two steps meet, across the change of acceleration*: with the road of
-  either step and the acceleration of the other, ``|kappa'_- b + 2 kappa a_+| v`` and
+  either step (its rate at either end of that step's range) and the acceleration of the other, ``|kappa'_- b + 2 kappa a_+| v`` and
   ``|kappa'_+ b + 2 kappa a_-| v`` (:meth:`SpeedProblem.node_lateral_jerk`). A vehicle cannot
   switch its acceleration exactly at a station (the jerk bound spreads the change around the
   node), and where the curvature rate changes at the node the road next to it is driven with
@@ -175,6 +175,11 @@ class SpeedProblem:
         squared speed and acceleration (the last step's there) must leave room to brake for
         what lies beyond, ``b[-1] + c * a_end <= brake_b - d`` for every ``(c, d)`` in
         ``rows`` (:mod:`curvespeed.replan_window` derives them). None: no such rows.
+    rate_spread : tuple of two ndarrays, shape (n,), or None
+        Per step, the lowest and highest curvature rate the road may have there beyond the
+        chord rates next to it, 1/m^2: where the curvature is an estimate that may have spread
+        a change of rate (:func:`curvespeed.lateral_rates.spread_rate_range`), when the lateral
+        jerk is bounded. None: the chord rates alone (exact curvature, or no such bound).
     """
 
     station_m: np.ndarray
@@ -207,6 +212,7 @@ class SpeedProblem:
     accel_start_mps2: float = 0.0
     accel_start_tolerance_mps2: float = 0.0
     end_reserve: tuple | None = None
+    rate_spread: tuple | None = None
 
     @property
     def n_nodes(self) -> int:
@@ -283,13 +289,15 @@ class SpeedProblem:
         """The linear forms in ``(b[k], b[k+1])`` that bound the station rate of the lateral
         acceleration along each step (:func:`curvespeed.lateral_rates.step_rate_forms`)."""
         return lateral_rates.step_rate_forms(self.kappa_signed, self.ds, self.closed,
-                                             self.accel_factor_start, self.accel_factor_end)
+                                             self.accel_factor_start, self.accel_factor_end,
+                                             self.rate_spread)
 
     def node_lateral_rate_forms(self) -> lateral_rates.NodeRateForms:
         """The rates at each node with the road of one step and the acceleration of the other
         (:func:`curvespeed.lateral_rates.node_rate_forms`)."""
         return lateral_rates.node_rate_forms(self.kappa_signed, self.ds, self.closed,
-                                             self.accel_factor_start, self.accel_factor_end)
+                                             self.accel_factor_start, self.accel_factor_end,
+                                             self.rate_spread)
 
     def step_lateral_jerk(self, b) -> np.ndarray:
         """Largest lateral jerk ``d(kappa v^2)/dt`` along each step as driven (a bound), m/s^3.
@@ -384,6 +392,18 @@ class SpeedProblem:
         return np.where(ok, hi_b, lo_b)
 
 
+def _rate_spread(geometry: Geometry, limits: Limits):
+    """:attr:`SpeedProblem.rate_spread` for ``geometry``: the chord rates within the estimate's
+    spread of each step, when the lateral jerk is bounded and the curvature is an estimate."""
+    spread, margin = geometry.curvature_spread_m, geometry.curvature_rate_margin_1pm2
+    if limits.max_lateral_jerk_mps3 is None or spread is None:
+        return None
+    if not (np.any(spread > 0.0) or (margin is not None and np.any(margin > 0.0))):
+        return None
+    return lateral_rates.spread_rate_range(geometry.curvature_1pm, float(geometry.spacing_m),
+                                           geometry.closed, spread, margin)
+
+
 #: The per-node arrays :meth:`SpeedProblem.accel_bounds` reads (in the order the compiled
 #: bisection takes them).
 _BOUNDS_FIELDS = ("kappa_abs", "cos_bank", "sin_bank", "cos_grade", "sin_grade", "mu_long",
@@ -436,7 +456,7 @@ def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstrai
         rest_u=np.full(steps, np.nan),
         jerk_terms=jerk_time_terms(n, geometry.closed, np.full(steps, np.nan), np.ones(steps)),
         mu_long=mu_long, mu_lat=mu_lat, friction_index=friction_index,
-        friction_sections=tuple(constraints.friction))
+        friction_sections=tuple(constraints.friction), rate_spread=_rate_spread(geometry, limits))
     if jerk_model:
         problem = with_rest_steps(problem, rest_nodes(problem))
     return problem

@@ -152,7 +152,8 @@ class RouteTables:
             accel_start_mps2=float(a0),
             accel_start_tolerance_mps2=float(a_tolerance) + head_start,
             jerk_model=w.jerk_model, end_reserve=reserve,
-            jerk_terms=terms)
+            jerk_terms=terms, rate_spread=None if src.rate_spread is None else (
+                src.rate_spread[0][st], src.rate_spread[1][st]))
         if reshape:
             problem = self._reshape(problem, rest)
         ceiling = np.minimum(self.lateral_b[idx], problem.cap_b)

@@ -69,10 +69,12 @@ def curvature_ends(geometry: Geometry) -> CurvatureEnds:
 
 
 def estimate_geometry(geometry: Geometry) -> Geometry:
-    """``geometry`` without its bound: the limits then apply to the estimate ``|kappa|`` itself."""
-    if geometry.curvature_bound_1pm is None:
+    """``geometry`` without its bound and spread: the limits then apply to the estimate
+    ``|kappa|`` and its own curvature rates."""
+    if geometry.curvature_bound_1pm is None and geometry.curvature_spread_m is None:
         return geometry
-    return replace(geometry, curvature_bound_1pm=None)
+    return replace(geometry, curvature_bound_1pm=None, curvature_spread_m=None,
+                   curvature_rate_margin_1pm2=None)
 
 
 @dataclass(frozen=True)

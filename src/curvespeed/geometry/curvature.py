@@ -72,6 +72,13 @@ class CurvatureEstimate:
 
     ``width_m`` is the half-width over which the chosen smoothing spreads a change of
     curvature, ``level`` the scale chosen (0: the path fit's own; fractions blend two scales).
+    ``spread_m`` is how far from each node the estimate ``kappa`` may have moved a change of
+    the curvature's rate (a joint of clothoid and arc or straight): ``width_m`` where the
+    adaptive estimate stands, 0 where the estimate is the reconstructed alignment's lines,
+    which keep their joints. ``rate_margin`` (1/m^2) is how far a line's rate may be off: its
+    curvature at each end of its element lies within ``GAMMA`` standard deviations, so its rate
+    within twice that over the element's length (0 off the lines). The lateral jerk follows the
+    rate (:mod:`curvespeed.lateral_rates`).
     """
 
     kappa: np.ndarray
@@ -79,6 +86,8 @@ class CurvatureEstimate:
     bound: np.ndarray
     width_m: np.ndarray
     level: np.ndarray
+    spread_m: np.ndarray | None = None
+    rate_margin: np.ndarray | None = None
 
 
 def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
@@ -147,6 +156,7 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
             bound[valid] = np.minimum(bound[valid], own[valid])
     # and never below the estimate used plus its uncertainty, widened by the finest spread
     bound = np.maximum(bound, _running_max(np.abs(k) + GAMMA * s, station, width[0]))
+    spread, margin = w, None
     if rebuilt is not None:
         rebuilt, steps = rebuilt
         use = _trusted(rebuilt, k, s, w, station)
@@ -176,7 +186,23 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
         k, s = np.where(use, rebuilt.kappa, k), np.where(use, rebuilt.sd, s)
         # and the candidate that fits them best is the estimate there (within the bound)
         k = np.where(steps.explained, steps.kappa, k)
-    return CurvatureEstimate(k, s, bound, w, level)
+        # the lines keep the joints where they are trusted; a candidate step stands where the
+        # points cannot place it to better than the smoothing's spread
+        on_line = use & ~steps.explained
+        spread = np.where(on_line, 0.0, w)
+        margin = np.where(on_line, _line_rate_margin(rebuilt, station), 0.0)
+    return CurvatureEstimate(k, s, bound, w, level, spread, margin)
+
+
+def _line_rate_margin(rebuilt, station) -> np.ndarray:
+    """At every station, ``2 GAMMA`` times the largest standard deviation of the reconstructed
+    curvature on its element over the element's length (1/m^2; see :class:`CurvatureEstimate`)."""
+    edges = np.concatenate(([station[0]], rebuilt.breaks_m, [station[-1]]))
+    element = np.clip(np.searchsorted(edges, station, side="right") - 1, 0, edges.size - 2)
+    largest = np.zeros(edges.size - 1)
+    np.maximum.at(largest, element, rebuilt.sd)
+    length = np.maximum(np.diff(edges), station[1] - station[0])
+    return 2.0 * GAMMA * largest[element] / length[element]
 
 
 def _reconstruction(fine, u_points, values, weight, u_nodes, station):

@@ -48,6 +48,14 @@ class Geometry:
         Planning and checking use it; None means |curvature_1pm| is exact (designed geometry).
     curvature_sd_1pm : ndarray or None
         Standard deviation of the curvature estimate from the position noise, 1/m.
+    curvature_spread_m : ndarray or None
+        How far from each node the estimate may have moved a change of the curvature's rate
+        (the smoothing's spread; 0 where the estimate follows reconstructed design elements),
+        metres. The lateral jerk bound widens each step's range of curvature rates by it
+        (:mod:`curvespeed.lateral_rates`). None: the curvature is exact (designed geometry).
+    curvature_rate_margin_1pm2 : ndarray or None
+        How far the estimate's curvature rate may be off where it follows reconstructed design
+        elements (from their lines' uncertainty), 1/m^2; widens the same ranges. None: zero.
     provenance : dict
         How the geometry was made (noise stated, estimated and used; standstills merged, fixes
         averaged, parts), for summaries and sidecar files.
@@ -67,6 +75,8 @@ class Geometry:
     name: str = "route"
     curvature_bound_1pm: np.ndarray | None = None
     curvature_sd_1pm: np.ndarray | None = None
+    curvature_spread_m: np.ndarray | None = None
+    curvature_rate_margin_1pm2: np.ndarray | None = None
     provenance: dict = field(default_factory=dict, compare=False)
 
     @property

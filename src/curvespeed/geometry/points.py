@@ -207,9 +207,11 @@ def build_geometry(route: Route, spacing_m: float = 1.0, position_noise_m: float
                               nodes.station[:n_eval], pts.time, pts.drive.drift_rate)
     xs, ys, kappa = pos[:, 0], pos[:, 1], curv.kappa
     bound, sd = curv.bound, curv.sd
+    spread = curv.spread_m if curv.spread_m is not None else curv.width_m
+    margin = curv.rate_margin if curv.rate_margin is not None else np.zeros_like(spread)
     if pts.closed:
-        xs, ys, kappa, raw_heading, bound, sd = (
-            np.append(a, a[0]) for a in (xs, ys, kappa, raw_heading, bound, sd))
+        xs, ys, kappa, raw_heading, bound, sd, spread, margin = (
+            np.append(a, a[0]) for a in (xs, ys, kappa, raw_heading, bound, sd, spread, margin))
     heading = _continuous_heading(raw_heading, kappa, nodes.ds, pts.closed)
 
     z_nodes = grade = z_noise = None
@@ -226,6 +228,7 @@ def build_geometry(route: Route, spacing_m: float = 1.0, position_noise_m: float
                     curvature_1pm=kappa, z_m=z_nodes, grade=grade, closed=pts.closed,
                     spacing_m=float(nodes.ds), projection=route.projection, source=source,
                     name=route.name, curvature_bound_1pm=bound, curvature_sd_1pm=sd,
+                    curvature_spread_m=spread, curvature_rate_margin_1pm2=margin,
                     provenance=provenance)
 
 

@@ -142,7 +142,7 @@ class QPBuilder:
         The lateral jerk is a rate form ``R . b`` (linear in ``b``) times a node's speed
         ``sqrt(b_e)``: along each step every form of :meth:`SpeedProblem.lateral_rate_forms`
         with the speed of either node (the larger bounds the speed along the step), and at
-        each node both crossed forms of :meth:`SpeedProblem.node_lateral_rate_forms` with the
+        each node every crossed form of :meth:`SpeedProblem.node_lateral_rate_forms` with the
         node's own speed. ``|R . b| <= J_lat / sqrt(b_e)`` keeps the bound; ``J / sqrt(b)`` is
         convex, so its tangent at ``b_hat`` (``r = sqrt(b_hat)``) lies below it, which keeps
         each row inside the true bound for any ``b_hat > 0``. A fixed station's speed is known
@@ -164,7 +164,7 @@ class QPBuilder:
             for end in (sf, st):
                 parts.append((np.stack((sf, st), axis=1), self.step_forms[:, i], end))
         cross = self.node_forms
-        for i in (0, 1):
+        for i in range(cross.forms.shape[1]):
             parts.append((np.stack((cross.prev, cross.node, cross.next), axis=1),
                           cross.forms[:, i], cross.node))
         cols, vals, rhs = [], [], []

@@ -162,7 +162,7 @@ def _lateral_jerk_constraints(problem, b, b_lin, fixed, frm, to):
     sets = [((frm, to), step_forms[:, i], speed) for i in range(step_forms.shape[1])
             for speed in (frm, to)]
     sets += [((cross.prev, cross.node, cross.next), cross.forms[:, i], cross.node)
-             for i in (0, 1)]
+             for i in range(cross.forms.shape[1])]
     cons = []
     for cols, coef, speed in sets:
         rows = np.flatnonzero(np.any(coef != 0.0, axis=1)
