@@ -6,8 +6,9 @@ exact points every metre, read and fitted like any route, planned with the defau
 the profile is driven on the *exact* road by the independent judge (benchmarks/judge.py, which
 samples the motion every 0.125 m against the alignment's own curvature). Every limit must hold
 within 1 %: the curvature bound the planner uses covers the road where the fit's smoothing would
-have hidden a change of curvature. (The time against the independent optimum, and the lateral
-jerk bound, are in the benchmark's table: the latter is not met yet, see the issue note.)
+have hidden a change of curvature, and the range of curvature rates the lateral jerk bound
+uses covers the joints a fitted estimate may misplace. (The time against the independent
+optimum is in the benchmark's table.)
 """
 
 from __future__ import annotations
@@ -26,7 +27,8 @@ WITHIN = 1.01
 CASES = {case.name: case for case in exact_roads()}
 
 
-@pytest.mark.parametrize("name", ["winding-stop", "wet", "s-curve-from-rest"])
+@pytest.mark.parametrize("name", ["winding-stop", "wet", "s-curve-from-rest",
+                                  "s-curve-lateral-jerk"])
 def test_plan_on_fitted_points_holds_on_the_exact_road(name, tmp_path):
     case = CASES[name]
     points = write_points(case.alignment, tmp_path / f"{name}.csv")
@@ -34,6 +36,10 @@ def test_plan_on_fitted_points_holds_on_the_exact_road(name, tmp_path):
     # the wet case raises comfort above the grip on purpose: no warning about it
     profile = plan_profile(geometry, case.limits, case.constraints(), warn_limits=False)
     judgement = judge_profile(profile, case.alignment, case.limits)
-    for limit in ("lateral", "comfort_ellipse", "friction_ellipse", "top_speed", "jerk"):
-        assert judgement.use[limit] <= WITHIN, (limit, judgement.use[limit],
-                                                judgement.where_m[limit])
+    # the lateral jerk where it is bounded (measured 1.0002 on the S-curve; 1.076 when the
+    # crossings at a station took the chord rates alone)
+    for limit in ("lateral", "comfort_ellipse", "friction_ellipse", "top_speed", "jerk",
+                  "lateral_jerk"):
+        if limit in judgement.use:
+            assert judgement.use[limit] <= WITHIN, (limit, judgement.use[limit],
+                                                    judgement.where_m[limit])
