@@ -418,9 +418,10 @@ class Replanner:
         from .verify import DEFAULT_TOLERANCE, verify_profile
 
         tolerance = CONVEX_TOLERANCE if self._jerk else DEFAULT_TOLERANCE
-        # the window's binding limits are never read: not named
+        # the window's binding limits and its lateral jerk (unless bounded) are never read:
+        # neither named nor measured
         check = verify_profile(window.problem, b, tolerance, check_jerk=self._jerk,
-                               labels=False)
+                               labels=False, measure_lateral_jerk=False)
         if not check.ok:
             worst = "; ".join(v.describe() for v in check.violations)
             raise SolverError(f"replan: the window's profile breaks its limits: {worst}. This "
