@@ -49,6 +49,7 @@ import os
 import time
 import warnings
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 
@@ -470,11 +471,20 @@ class _BlockObjective:
             D = lay.D.tocsr()
             touches = (abs(D) @ in_block.astype(float)) > 0
             self.D = D[touches]
-        # the time alone reads only the steps' own nodes: the line search runs on those
-        self.nodes = np.unique(np.concatenate((lay.step_from[steps], lay.step_to[steps])))
-        self._local = _StepsTime(np.searchsorted(self.nodes, lay.step_from[steps]),
-                                 np.searchsorted(self.nodes, lay.step_to[steps]),
-                                 lay.time_coef[steps] * ds)
+
+    @cached_property
+    def nodes(self):
+        """The steps' own nodes, in order: the time alone reads only these, so the line search
+        runs on them (made on first use: a window solved by one QP never searches)."""
+        lay, steps = self.lay, self.steps
+        return np.unique(np.concatenate((lay.step_from[steps], lay.step_to[steps])))
+
+    @cached_property
+    def _local(self):
+        lay, steps = self.lay, self.steps
+        return _StepsTime(np.searchsorted(self.nodes, lay.step_from[steps]),
+                          np.searchsorted(self.nodes, lay.step_to[steps]),
+                          lay.time_coef[steps] * self.ds)
 
     def __call__(self, b) -> float:
         value = _steps_time(b, self.lay, self.ds, self.steps)
