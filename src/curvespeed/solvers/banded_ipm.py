@@ -315,8 +315,10 @@ def _judge(code: int, qp: _Banded, x, zl, zu, eps: float, gap_abs: float, info) 
         return SolveStatus.FAILED
     if code != 0:
         return SolveStatus.FAILED
-    # an empty row's sides are checked too (0 must lie between them)
-    viol = np.maximum(np.nan_to_num(qp.lo - r, neginf=0.0), np.nan_to_num(r - qp.up, neginf=0.0))
+    # an empty row's sides are checked too (0 must lie between them). With x finite, r is
+    # finite and each difference finite or -inf (an absent side), which the maximum from 0
+    # below ignores
+    viol = np.maximum(qp.lo - r, r - qp.up)
     Px = _band_times(qp.Pb, x)
     dual = Px + qp.q - Aty
     xPx = float(x @ Px)

@@ -39,7 +39,7 @@ def canonical(cols, *vals):
     if w == 1:
         return (cols, present, *vals)
     key = np.where(present, cols, np.iinfo(np.int64).max)
-    step = np.diff(key, axis=1)
+    step = key[:, 1:] - key[:, :-1]
     if np.all(step > 0) or np.all((step > 0) | ~present[:, 1:]):
         return (cols, present, *vals)           # sorted already, no station twice
     bad = np.flatnonzero(np.any(step <= 0, axis=1))      # only these rows need work
