@@ -52,9 +52,11 @@ _SLACK_FLOOR = 1e-2
 #: A start near the centre (``near_centre``, :func:`_start_near`): each slack at least this, and
 #: the multipliers this fraction of the usual ``mu0``. Chosen on the QPs of receding-horizon
 #: windows (three bundled routes, one and several sequential-convex iterations per call, with
-#: and without a lateral jerk bound): 12-20 % fewer iterations than the shifted start, none
-#: more; 1e-4 and 1e-3 or a fraction of 0.03 gained less on some of them. On whole routes, whose
-#: first centre is the envelope, it took 20-50 % more, so they keep the shifted start.
+#: and without a lateral jerk bound): on average 0-20 % fewer iterations than the shifted start
+#: on each set, more on none; 1e-4 and 1e-3 or a fraction of 0.03 gained less on some of them.
+#: Where the centre is far from the answer it costs: on whole routes' first QPs (centred on the
+#: envelope) 1.6-3 times the iterations, about as many on their later ones, so whole routes keep
+#: the shifted start, and so does a window started from the route's plan.
 _NEAR_SLACK_FLOOR = 3e-4
 _NEAR_MU_FRACTION = 0.1
 
