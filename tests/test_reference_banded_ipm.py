@@ -247,3 +247,73 @@ def test_suboptimality_bound_holds_on_early_iterates(seed):
         assert objective(Ps, qp.q, x) - f_ref <= bound + 1e-8 * max(1.0, abs(f_ref))
         checked += 1
     assert checked >= 5
+
+
+def _window_qps(monkeypatch, route: str, limits: Limits, station: float, speed: float):
+    """The QPs of a few receding-horizon windows as the Replanner hands them to the banded
+    method (recorded on the way): ``(qp, eps, centre, scale, gap_abs)``."""
+    from curvespeed.replan import Replanner
+    from curvespeed.solvers import convex
+
+    seen = []
+    solve = convex.solve_row_qp
+
+    def record(qp, eps, centre, scale, gap_abs=None, near_centre=False):
+        seen.append((qp, eps, centre, scale, gap_abs))
+        return solve(qp, eps, centre, scale, gap_abs=gap_abs, near_centre=near_centre)
+
+    monkeypatch.setattr(convex, "solve_row_qp", record)
+    geo = build_geometry(read_route(ROUTES / route))
+    rp = Replanner(geo, limits, options=ConvexOptions(threads=1, max_iterations=1))
+    seen.clear()                # not the whole route's plan
+    s, v, a = station, speed, 0.0
+    for _ in range(4):
+        w = rp.replan(s, v, a)
+        s, v, a = w.state_at(0.5)
+    return list(seen)
+
+
+@pytest.mark.parametrize("route, limits, station, speed", [
+    ("mountain_road.csv", Limits(), 600.0, 20.0),
+    ("mountain_road.csv", Limits(max_lateral_jerk_mps3=0.8), 600.0, 10.0),
+    ("shuttle_route.gpx", Limits(max_speed_mps=8.0, max_lateral_accel_mps2=1.5), 150.0, 3.0)])
+def test_window_qps_from_the_near_start_agree_with_clarabel(monkeypatch, route, limits,
+                                                            station, speed):
+    """Windows' QPs solved from the start near their centre (the Replanner's) and from the
+    shifted start: both optimal, each objective within OBJ_RTOL of Clarabel's (given 1e-9) or
+    within the gap the solve was given (these objectives are near 0: the centre is near the
+    answer, so the absolute gap decides), and the rows held."""
+    from curvespeed.solvers.banded_ipm import solve_row_qp
+
+    qps = _window_qps(monkeypatch, route, limits, station, speed)
+    assert len(qps) >= 4
+    for qp, eps, centre, scale, gap_abs in qps:
+        P, q, A, lo, up = qp.to_sparse()
+        x_ref, st_ref, _ = solve_qp_clarabel(P, q, A, lo, up, 1e-9, centre, scale,
+                                             gap_abs=1e-3 * gap_abs)
+        assert st_ref is SolveStatus.OPTIMAL
+        f_ref = objective(P, q, x_ref)
+        for near in (True, False):
+            x, st, its = solve_row_qp(qp, eps, centre, scale, gap_abs=gap_abs, near_centre=near)
+            assert st is SolveStatus.OPTIMAL and 0 < its < 100
+            f = objective(P, q, x)
+            assert abs(f - f_ref) <= max(OBJ_RTOL * abs(f_ref), 2.0 * gap_abs)
+            r = A @ x       # feasibility as in test_route_qps_agree_with_clarabel
+            assert np.all(r >= lo - 1e-4) and np.all(r <= up + 1e-4)
+
+
+@pytest.mark.parametrize("seed", range(8))
+def test_random_banded_qps_from_the_near_start_agree_with_clarabel(seed):
+    """The near start is a cold interior start like the shifted one, so it must solve any
+    QP, not only those whose answer lies near the centre: the random QPs above, from x = 0."""
+    from curvespeed.solvers.banded_ipm import _row_qp, solve_row_qp
+
+    rng = np.random.default_rng(seed)
+    n = int(rng.integers(20, 200))
+    P, q, A, lo, up = random_banded_qp(rng, n, kd=int(rng.integers(1, 4)), wrap=seed % 3 == 0)
+    x_ref, st_ref, _ = solve_qp_clarabel(P, q, A, lo, up, 1e-9)
+    assert st_ref is SolveStatus.OPTIMAL
+    x, st, _ = solve_row_qp(_row_qp(P, q, A, lo, up), 1e-8, near_centre=True)
+    assert st is SolveStatus.OPTIMAL
+    f, f_ref = objective(P, q, x), objective(P, q, x_ref)
+    assert abs(f - f_ref) <= OBJ_RTOL * max(1.0, abs(f_ref))

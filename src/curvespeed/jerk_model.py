@@ -126,6 +126,14 @@ def jerk_time_terms(n_nodes: int, closed: bool, rest_u: np.ndarray,
                      f_start: np.ndarray) -> JerkTimeTerms:
     """The jerk's time base at every distinct node as terms (module docstring)."""
     nv = n_nodes - 1 if closed else n_nodes
+    if not closed and nv >= 2 and np.all(np.isnan(rest_u)):
+        return _terms_open_moving(nv)
+    return _terms_general(nv, closed, rest_u, f_start)
+
+
+def _terms_general(nv: int, closed: bool, rest_u: np.ndarray,
+                   f_start: np.ndarray) -> JerkTimeTerms:
+    """:func:`jerk_time_terms` over ``nv`` distinct nodes, whatever rests where."""
     k = np.arange(nv)
     if closed:
         before, after, prev, nxt = (k - 1) % nv, k, (k - 1) % nv, (k + 1) % nv
@@ -161,3 +169,18 @@ def jerk_time_terms(n_nodes: int, closed: bool, rest_u: np.ndarray,
     return JerkTimeTerms(node=node, prev=prev[node], next=nxt[node],
                          weights=np.concatenate(weights).reshape(-1, 3),
                          scale=np.concatenate(scales))
+
+
+def _terms_open_moving(nv: int) -> JerkTimeTerms:
+    """:func:`jerk_time_terms` of an open stretch of ``nv`` nodes with no step next to rest
+    (every receding-horizon window of a moving vehicle away from stops): the same terms in the
+    same order -- the inner nodes' ``(1/4, 1/2, 1/4)``, then the first node's ``(0, 1, 1)`` and
+    the last's ``(1, 1, 0)``, each of scale 1 -- without the general case's masks."""
+    node = np.concatenate((np.arange(1, nv - 1), [0, nv - 1])).astype(int)
+    weights = np.empty((nv, 3))
+    weights[: nv - 2] = (0.25, 0.5, 0.25)
+    weights[nv - 2] = (0.0, 1.0, 1.0)
+    weights[nv - 1] = (1.0, 1.0, 0.0)
+    return JerkTimeTerms(node=node, prev=np.maximum(node - 1, 0),
+                         next=np.minimum(node + 1, nv - 1), weights=weights,
+                         scale=np.ones(nv))

@@ -107,7 +107,8 @@ class Profile:
                 for a, b in zip(starts, ends)]
 
 
-def derive(problem: SpeedProblem, b: np.ndarray) -> dict[str, np.ndarray]:
+def derive(problem: SpeedProblem, b: np.ndarray, lateral_jerk: bool = True
+           ) -> dict[str, np.ndarray]:
     """Speed, accelerations, jerk and time from squared speeds (module docstring definitions).
 
     Each step has an acceleration at its first and at its last node (equal for a
@@ -124,7 +125,8 @@ def derive(problem: SpeedProblem, b: np.ndarray) -> dict[str, np.ndarray]:
     ramp of a step next to rest; 0 for the constant-acceleration steps). ``step_lat_jerk_mps3``
     bounds the lateral jerk along each step as driven, ``node_lat_jerk_mps3`` is the lateral
     jerk at each node with one step's road and the other's acceleration (both defined in
-    :mod:`curvespeed.problem`).
+    :mod:`curvespeed.problem`). ``lateral_jerk=False`` leaves those two out (a caller that
+    needs no lateral jerk spares their cost).
     """
     b = np.maximum(np.asarray(b, dtype=float), 0.0)
     v = np.sqrt(b)
@@ -151,10 +153,11 @@ def derive(problem: SpeedProblem, b: np.ndarray) -> dict[str, np.ndarray]:
         change = a_after - a_before
         jerk = np.where(change == 0.0, 0.0,
                         np.where(np.isfinite(tau) & (tau > 0), change / tau, np.inf))
-    # lateral jerk d(kappa v^2)/dt along each step and across each node (curvespeed.problem)
-    lat_jerk = problem.step_lateral_jerk(b)
-    return {"speed_mps": v, "step_accel_mps2": a_step, "accel_mps2": acc, "jerk_mps3": jerk,
-            "time_s": t, "step_lat_jerk_mps3": lat_jerk,
-            "node_lat_jerk_mps3": problem.node_lateral_jerk(b),
-            "step_jerk_mps3": problem.step_ramp_jerk(b),
-            "step_accel_first_mps2": a_first, "step_accel_last_mps2": a_last}
+    out = {"speed_mps": v, "step_accel_mps2": a_step, "accel_mps2": acc, "jerk_mps3": jerk,
+           "time_s": t, "step_jerk_mps3": problem.step_ramp_jerk(b),
+           "step_accel_first_mps2": a_first, "step_accel_last_mps2": a_last}
+    if lateral_jerk:
+        # lateral jerk d(kappa v^2)/dt along each step and across each node (curvespeed.problem)
+        out["step_lat_jerk_mps3"] = problem.step_lateral_jerk(b)
+        out["node_lat_jerk_mps3"] = problem.node_lateral_jerk(b)
+    return out

@@ -50,9 +50,11 @@ the top speed, zones or stops).
 Starting point: the sequential-convex iterations build conservative rows around their current
 point, and where the vehicle rides a limit the first point must be near the answer or the
 first QP has none. A window starts from the previous window's answer moved to its stations
-(a warm start; the QP backend itself, Clarabel today, takes none), else from the whole route's
-plan (made once, in the constructor), else from its envelope (a vehicle far off the plan). A
-fresh Replanner, or :meth:`Replanner.reset`, keeps runs independent. With
+(a warm start of the sequential-convex iterations; each QP itself starts cold, the banded
+method's slacks pushed into the interior row by row around that point, which lies near the
+QP's answer: ``ConvexOptions.qp_start_near_centre``), else from the whole route's plan (made
+once, in the constructor), else from its envelope (a vehicle far off the plan). A fresh
+Replanner, or :meth:`Replanner.reset`, keeps runs independent. With
 ``options=ConvexOptions(max_iterations=1)`` each call solves one QP from the previous window's
 answer (the sequential-convex iterations are spread over successive calls, each window
 feasible and verified; the iteration cap's warning is not given for windows): about a third of
@@ -209,8 +211,9 @@ class Replanner:
         Length of each window, metres (cut at the end of an open route, at most one lap).
     options : ConvexOptions, optional
         Settings of the convex solver (default: its defaults, on one thread: a window is one
-        QP). A comfort weight counts the first node's change of acceleration from steady, not
-        from the vehicle's (the jerk bound itself starts from the vehicle's).
+        QP); ``qp_start_near_centre`` is set for the windows that start from the previous
+        one's answer. A comfort weight counts the first node's change of acceleration from
+        steady, not from the vehicle's (the jerk bound itself starts from the vehicle's).
     relax_limits : float
         A state the limits cannot continue by a little (a vehicle a few centimetres per second
         faster than a plan that rides its braking or lateral limit, which no real tracking
@@ -378,17 +381,22 @@ class Replanner:
         (braking into a bend on the plan): from the previous window's answer, else the whole
         route's plan, else the window's envelope (a vehicle far off the plan)."""
         import warnings
+        from dataclasses import replace
 
         from .solvers.convex import solve_convex
 
         failure = None
+        # QPs centred on the previous window's answer lie near their own answers: the banded
+        # method starts there (ConvexOptions.qp_start_near_centre); from the route's plan or
+        # the envelope (a vehicle off the plan) the centre may be far, and it spreads out
+        near = replace(self.options, qp_start_near_centre=True)
         for warm, warmed in self._starting_points(window):
             try:
                 with warnings.catch_warnings():
                     # a cap of one or a few iterations per window is a choice (module docstring)
                     warnings.filterwarnings("ignore", "convex solver stopped at the iteration cap")
-                    result = solve_convex(window.problem, self.options, envelope=env,
-                                          warm_start=warm)
+                    result = solve_convex(window.problem, near if warmed else self.options,
+                                          envelope=env, warm_start=warm)
                 return result.b, result, warmed
             except (InfeasibleError, SolverError) as exc:
                 failure = failure or exc
@@ -418,9 +426,10 @@ class Replanner:
         from .verify import DEFAULT_TOLERANCE, verify_profile
 
         tolerance = CONVEX_TOLERANCE if self._jerk else DEFAULT_TOLERANCE
-        # the window's binding limits are never read: not named
+        # the window's binding limits and its lateral jerk (unless bounded) are never read:
+        # neither named nor measured
         check = verify_profile(window.problem, b, tolerance, check_jerk=self._jerk,
-                               labels=False)
+                               labels=False, measure_lateral_jerk=False)
         if not check.ok:
             worst = "; ".join(v.describe() for v in check.violations)
             raise SolverError(f"replan: the window's profile breaks its limits: {worst}. This "

@@ -82,17 +82,21 @@ def _node_max(step_values: np.ndarray, closed: bool) -> np.ndarray:
 
 def verify_profile(problem: SpeedProblem, b: np.ndarray,
                    tolerance: float = DEFAULT_TOLERANCE, check_jerk: bool = True,
-                   labels: bool = True) -> Verification:
+                   labels: bool = True, measure_lateral_jerk: bool = True) -> Verification:
     """Check squared speeds ``b`` against every limit of ``problem``.
 
     ``check_jerk=False`` leaves the jerk bounds (longitudinal and lateral) out, for solvers that
     do not enforce them; the jerks are still measured in :attr:`Verification.extremes`.
     ``labels=False`` names no binding limits (:attr:`Verification.binding` is None), for
     callers that only need the verdict and the derived quantities (a receding-horizon window).
+    ``measure_lateral_jerk=False`` measures the lateral jerk only where it is checked (a
+    lateral jerk bound set and ``check_jerk``); otherwise its extreme is NaN and the derived
+    quantities leave it out.
     """
     lim = problem.limits
     b = np.maximum(np.asarray(b, dtype=float), 0.0)
-    d = derive(problem, b)
+    lat_checked = lim.max_lateral_jerk_mps3 is not None and check_jerk
+    d = derive(problem, b, lateral_jerk=measure_lateral_jerk or lat_checked)
     v = d["speed_mps"]
     a = d["step_accel_mps2"]
 
@@ -129,9 +133,11 @@ def verify_profile(problem: SpeedProblem, b: np.ndarray,
     if lim.max_jerk_mps3 is not None and check_jerk:
         step_jerk = _node_max(np.abs(d["step_jerk_mps3"]), problem.closed)
         use["jerk"] = np.maximum(np.abs(d["jerk_mps3"]), step_jerk) / lim.max_jerk_mps3
-    lat_jerk = np.maximum(_node_max(np.abs(d["step_lat_jerk_mps3"]), problem.closed),
-                          np.abs(d["node_lat_jerk_mps3"]))
-    if lim.max_lateral_jerk_mps3 is not None and check_jerk:
+    lat_jerk = np.full(b.size, np.nan)
+    if "step_lat_jerk_mps3" in d:
+        lat_jerk = np.maximum(_node_max(np.abs(d["step_lat_jerk_mps3"]), problem.closed),
+                              np.abs(d["node_lat_jerk_mps3"]))
+    if lat_checked:
         use["lateral_jerk"] = lat_jerk / lim.max_lateral_jerk_mps3
 
     if problem.end_reserve is not None:

@@ -49,6 +49,7 @@ import os
 import time
 import warnings
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 
@@ -102,6 +103,10 @@ class ConvexOptions:
         Hold the middle of long stretches where the envelope sits at a speed cap (see
         :func:`plateau_anchors`), which shrinks the QP; if that makes it infeasible, the solve
         is repeated without. Only for pure minimum time (no comfort weight).
+    qp_start_near_centre : bool
+        Start the banded method as for QPs whose answer lies near the current iterate
+        (:func:`.banded_ipm._start_near`): set by :class:`curvespeed.replan.Replanner` for its
+        windows, which start from the previous window's answer; whole routes keep the default.
     """
 
     comfort_weight: float = 0.0
@@ -114,6 +119,7 @@ class ConvexOptions:
     qp_gap_fraction: float = 1e-7
     threads: int | None = None
     anchor_plateaus: bool = True
+    qp_start_near_centre: bool = False
 
 
 def plateau_anchors(problem: SpeedProblem, b_env: np.ndarray, nv: int):
@@ -349,7 +355,8 @@ def _submit_batches(qp, batches, blocks, row_block, free_idx, b_hat, b_env, gap_
         sub = qp if whole else qp.take(cols, rows)
         glob = free_idx[cols]
         centre, scale = b_hat[glob], np.maximum(b_env[glob], 1.0)
-        args = (sub, options.qp_tolerance, gap_abs, centre, scale, options.qp_backend)
+        args = (sub, options.qp_tolerance, gap_abs, centre, scale, options.qp_backend,
+                options.qp_start_near_centre)
         job = pool.submit(_solve_batch, *args) if threaded else _Done(_solve_batch(*args))
         jobs.append((batch, cols, glob, job))
     return jobs
@@ -397,9 +404,10 @@ def _batches(block_ids, blocks):
 
 
 def _solve_batch(qp, tolerance: float, gap_abs: float, centre, scale,
-                 backend: QPBackend = QPBackend.CLARABEL):
+                 backend: QPBackend = QPBackend.CLARABEL, near_centre: bool = False):
     """Solve one batch's QP, retrying before an answer is accepted; returns (x, status,
-    interior-point iterations, notes on retries and fallbacks).
+    interior-point iterations, notes on retries and fallbacks). ``near_centre``: the banded
+    method's start for a QP whose answer lies near ``centre`` (:class:`ConvexOptions`).
 
     With the banded backend an optimal answer is taken as it is; anything else (iteration
     limit, numerical trouble, an infeasibility certificate, no compiled kernel) goes to
@@ -408,8 +416,11 @@ def _solve_batch(qp, tolerance: float, gap_abs: float, centre, scale,
     notes = []
     its = 0
     if backend is QPBackend.BANDED:
-        solve = solve_row_qp if isinstance(qp, RowQP) else _solve_sparse_banded
-        x, st, its = solve(qp, tolerance, centre, scale, gap_abs=gap_abs)
+        if isinstance(qp, RowQP):
+            x, st, its = solve_row_qp(qp, tolerance, centre, scale, gap_abs=gap_abs,
+                                      near_centre=near_centre)
+        else:
+            x, st, its = _solve_sparse_banded(qp, tolerance, centre, scale, gap_abs=gap_abs)
         if st is SolveStatus.OPTIMAL:
             return x, st, its, notes
         notes.append(f"the banded QP solver returned {st.value} after {its} iterations"
@@ -470,11 +481,20 @@ class _BlockObjective:
             D = lay.D.tocsr()
             touches = (abs(D) @ in_block.astype(float)) > 0
             self.D = D[touches]
-        # the time alone reads only the steps' own nodes: the line search runs on those
-        self.nodes = np.unique(np.concatenate((lay.step_from[steps], lay.step_to[steps])))
-        self._local = _StepsTime(np.searchsorted(self.nodes, lay.step_from[steps]),
-                                 np.searchsorted(self.nodes, lay.step_to[steps]),
-                                 lay.time_coef[steps] * ds)
+
+    @cached_property
+    def nodes(self):
+        """The steps' own nodes, in order: the time alone reads only these, so the line search
+        runs on them (made on first use: a window solved by one QP never searches)."""
+        lay, steps = self.lay, self.steps
+        return np.unique(np.concatenate((lay.step_from[steps], lay.step_to[steps])))
+
+    @cached_property
+    def _local(self):
+        lay, steps = self.lay, self.steps
+        return _StepsTime(np.searchsorted(self.nodes, lay.step_from[steps]),
+                          np.searchsorted(self.nodes, lay.step_to[steps]),
+                          lay.time_coef[steps] * self.ds)
 
     def __call__(self, b) -> float:
         value = _steps_time(b, self.lay, self.ds, self.steps)

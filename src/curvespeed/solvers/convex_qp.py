@@ -248,7 +248,7 @@ class QPBuilder:
         nv = self.lay.nv
         h = self.lay.f_last[-1] / (2.0 * self.ds)
         vals = np.array([(-c * h, 1.0 + c * h) for c, _ in rows]).reshape(-1, 2)
-        cols = np.tile([nv - 2, nv - 1], (len(rows), 1))
+        cols = np.array([[nv - 2, nv - 1]] * len(rows), dtype=np.int64).reshape(-1, 2)
         up = np.array([brake_b * (1.0 - self.opt.margin) - d for _, d in rows])
         return cols, vals, up
 

@@ -39,7 +39,7 @@ def canonical(cols, *vals):
     if w == 1:
         return (cols, present, *vals)
     key = np.where(present, cols, np.iinfo(np.int64).max)
-    step = np.diff(key, axis=1)
+    step = key[:, 1:] - key[:, :-1]
     if np.all(step > 0) or np.all((step > 0) | ~present[:, 1:]):
         return (cols, present, *vals)           # sorted already, no station twice
     bad = np.flatnonzero(np.any(step <= 0, axis=1))      # only these rows need work
@@ -258,7 +258,12 @@ def interval_blocks(qp: RowQP):
     first = np.full(qp.m, n, dtype=np.int64)
     last = np.full(qp.m, -1, dtype=np.int64)
     has = np.diff(qp.indptr) > 0
-    if nz.any():
+    if nz.all():
+        # every entry nonzero (the convex solver's QPs): a row's columns being sorted, its
+        # first and last entries are its first and last variable
+        first[has] = qp.indices[qp.indptr[:-1][has]]
+        last[has] = qp.indices[qp.indptr[1:][has] - 1]
+    elif nz.any():
         starts = qp.indptr[:-1][has]
         first[has] = np.minimum.reduceat(np.where(nz, qp.indices, n), starts)
         last[has] = np.maximum.reduceat(np.where(nz, qp.indices, -1), starts)
