@@ -90,7 +90,7 @@ import warnings
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.linalg import LinAlgError
+from numpy.linalg import LinAlgError
 
 from ..errors import CurvespeedWarning, RouteGeometryError
 from ..route import Route, check_reversals, warn_spikes
