@@ -4,7 +4,6 @@ its answer, and Clarabel's status mapped to ours."""
 from __future__ import annotations
 
 import numpy as np
-import scipy.sparse as sp
 
 from . import SolveStatus
 
@@ -15,6 +14,7 @@ def clarabel_status(code) -> SolveStatus:
     infeasible, which a QP with every variable boxed cannot truly be, iteration or time limits,
     numerical errors -- is a failure."""
     import clarabel
+    import scipy.sparse as sp           # with the Clarabel backend only
 
     s = clarabel.SolverStatus
     return {s.Solved: SolveStatus.OPTIMAL,
