@@ -1,6 +1,8 @@
 """The banded Cholesky factorisation and solves (``geometry/band_cholesky.py`` with its compiled
-kernel ``geometry/_band_solve.c``) against the reference library they replace on a plan's path:
-LAPACK through ``scipy.linalg.cholesky_banded``, ``cho_solve_banded`` and ``solveh_banded``.
+kernel ``geometry/_band_solve.c``) and the uniform B-spline design rows
+(``geometry/basis_rows.py``) against the reference library they replace on a plan's path:
+LAPACK through ``scipy.linalg.cholesky_banded``, ``cho_solve_banded`` and ``solveh_banded``, and
+``scipy.sparse`` products.
 
 Tolerances. A banded Cholesky factor computed in floating point is the exact factor of
 ``A + E`` with ``|E| <= gamma_(u+2) |U^T| |U|`` (Higham, Accuracy and Stability of Numerical
@@ -206,3 +208,62 @@ def test_bad_shapes_are_refused():
     with pytest.raises(ValueError, match="wrong size or type"):
         band_cholesky._band_solve.factor(np.ones((49, 3)), 50, 2)
 
+
+def sparse_of(rows) -> "object":
+    import scipy.sparse as sp
+
+    width = rows.by_offset.shape[0]
+    cols = rows.first[:, None] + np.arange(width)
+    if rows.wrap:
+        cols %= rows.n_columns
+    return sp.csr_matrix((rows.by_offset.T.ravel(), cols.ravel(),
+                          np.arange(0, rows.first.size * width + 1, width)), shape=rows.shape)
+
+
+@pytest.mark.parametrize("wrap", [False, True])
+@pytest.mark.parametrize("ascending", [True, False])
+@pytest.mark.parametrize("columns", [0, 1, 16])
+def test_basis_rows_products_match_scipy_sparse(wrap, ascending, columns):
+    """``B c`` and ``B^T v`` of the design rows against the same matrix in ``scipy.sparse``
+    CSR form (duplicated first columns, runs, gaps, rows out of order, wrapped columns). Each
+    entry is a sum of at most N products; two orders of summation differ by at most
+    ``2 N eps`` times the sum of the terms' magnitudes (Higham, the summation error bound,
+    from memory), checked entry by entry with N the largest number of terms."""
+    from curvespeed.geometry.basis_rows import BasisRows
+
+    rng = np.random.default_rng(columns + 2 * wrap + 4 * ascending)
+    m, k, n = 700, 5, 60
+    first = np.sort(rng.integers(0, n - k if not wrap else n, m))
+    first[100:140] = first[100]                         # a long run on one interval
+    if not ascending:
+        rng.shuffle(first)
+    rows = BasisRows(first, rng.uniform(-1.0, 1.0, (m, k + 1)), n, wrap=wrap)
+    dense = sparse_of(rows)
+    shape = (n,) if columns == 0 else (n, columns)
+    coef = rng.standard_normal(shape)
+    data = rng.standard_normal((m,) + shape[1:])
+    got, expected = rows.times(coef), dense @ coef
+    bound = 2 * (k + 1) * EPS * (abs(dense) @ np.abs(coef))
+    assert got.shape == expected.shape and np.all(np.abs(got - expected) <= bound)
+    got, expected = rows.transpose_times(data), dense.T @ data
+    terms = int(np.max(np.bincount(sparse_of(rows).indices, minlength=n)))
+    bound = 2 * terms * EPS * (abs(dense).T @ np.abs(data))
+    assert got.shape == expected.shape and np.all(np.abs(got - expected) <= bound)
+    assert np.max(np.abs(expected)) > 1.0                # the products are not all zero
+    picked = np.array([5, 3, 400, 699])
+    bound = 2 * (k + 1) * EPS * (abs(dense[picked]) @ np.abs(coef))
+    assert np.all(np.abs(rows.take_rows(picked).times(coef) - dense[picked] @ coef) <= bound)
+
+
+def test_basis_rows_refuse_rows_outside_the_columns():
+    from curvespeed.geometry.basis_rows import BasisRows
+
+    with pytest.raises(ValueError, match="rows reach outside the 10 columns"):
+        BasisRows(np.array([0, 5]), np.ones((2, 6)), 10)
+    with pytest.raises(ValueError, match="2 rows' first columns for values of shape"):
+        BasisRows(np.array([0, 1]), np.ones((3, 6)), 10)
+    rows = BasisRows(np.array([0, 4]), np.ones((2, 6)), 10)
+    with pytest.raises(ValueError, match="9 coefficients for 10 columns"):
+        rows.times(np.ones(9))
+    with pytest.raises(ValueError, match="3 data rows for 2 basis rows"):
+        rows.transpose_times(np.ones(3))
