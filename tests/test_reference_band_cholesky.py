@@ -1,6 +1,6 @@
 """The banded Cholesky factorisation and solves (``geometry/band_cholesky.py`` with its compiled
 kernel ``geometry/_band_solve.c``) and the uniform B-spline design rows
-(``geometry/basis_rows.py``) against the reference library they replace on a plan's path:
+(``geometry/basis_rows.py``, compiled in ``geometry/_basis_rows.c``) against the reference library they replace on a plan's path:
 LAPACK through ``scipy.linalg.cholesky_banded``, ``cho_solve_banded`` and ``solveh_banded``, and
 ``scipy.sparse`` products.
 
@@ -212,47 +212,81 @@ def test_bad_shapes_are_refused():
 def sparse_of(rows) -> "object":
     import scipy.sparse as sp
 
-    width = rows.by_offset.shape[0]
+    width = rows.values.shape[1]
     cols = rows.first[:, None] + np.arange(width)
     if rows.wrap:
         cols %= rows.n_columns
-    return sp.csr_matrix((rows.by_offset.T.ravel(), cols.ravel(),
+    # copies: scipy sorts a row's wrapped columns in place when it first needs them sorted
+    return sp.csr_matrix((rows.values.ravel().copy(), cols.ravel(),
                           np.arange(0, rows.first.size * width + 1, width)), shape=rows.shape)
 
 
-@pytest.mark.parametrize("wrap", [False, True])
-@pytest.mark.parametrize("ascending", [True, False])
-@pytest.mark.parametrize("columns", [0, 1, 16])
-def test_basis_rows_products_match_scipy_sparse(wrap, ascending, columns):
-    """``B c`` and ``B^T v`` of the design rows against the same matrix in ``scipy.sparse``
-    CSR form (duplicated first columns, runs, gaps, rows out of order, wrapped columns). Each
-    entry is a sum of at most N products; two orders of summation differ by at most
-    ``2 N eps`` times the sum of the terms' magnitudes (Higham, the summation error bound,
-    from memory), checked entry by entry with N the largest number of terms."""
+def random_rows(seed: int, wrap: bool, ascending: bool):
     from curvespeed.geometry.basis_rows import BasisRows
 
-    rng = np.random.default_rng(columns + 2 * wrap + 4 * ascending)
+    rng = np.random.default_rng(seed)
     m, k, n = 700, 5, 60
     first = np.sort(rng.integers(0, n - k if not wrap else n, m))
     first[100:140] = first[100]                         # a long run on one interval
     if not ascending:
         rng.shuffle(first)
-    rows = BasisRows(first, rng.uniform(-1.0, 1.0, (m, k + 1)), n, wrap=wrap)
+    return BasisRows(first, rng.uniform(-1.0, 1.0, (m, k + 1)), n, wrap=wrap), rng
+
+
+@pytest.mark.parametrize("compiled", [True, False])
+@pytest.mark.parametrize("wrap", [False, True])
+@pytest.mark.parametrize("ascending", [True, False])
+@pytest.mark.parametrize("columns", [0, 1, 16])
+def test_basis_rows_products_match_scipy_sparse(compiled, wrap, ascending, columns):
+    """``B c`` and ``B^T v`` of the design rows, compiled (``geometry/_basis_rows.c``) and in
+    numpy, against the same matrix in ``scipy.sparse`` CSR form (duplicated first columns,
+    runs, gaps, rows out of order, wrapped columns). Each entry is a sum of at most N
+    products; two orders of summation differ by at most ``2 N eps`` times the sum of the
+    terms' magnitudes (Higham, the summation error bound, from memory), checked entry by
+    entry with N the largest number of terms (the same order gives equal numbers)."""
+    if compiled:
+        pytest.importorskip("curvespeed.geometry._basis_rows")
+    rows, rng = random_rows(columns + 2 * wrap + 4 * ascending, wrap, ascending)
+    k, n, m = rows.values.shape[1] - 1, rows.n_columns, rows.first.size
     dense = sparse_of(rows)
     shape = (n,) if columns == 0 else (n, columns)
     coef = rng.standard_normal(shape)
     data = rng.standard_normal((m,) + shape[1:])
-    got, expected = rows.times(coef), dense @ coef
+    got, expected = rows.times(coef, compiled), dense @ coef
     bound = 2 * (k + 1) * EPS * (abs(dense) @ np.abs(coef))
     assert got.shape == expected.shape and np.all(np.abs(got - expected) <= bound)
-    got, expected = rows.transpose_times(data), dense.T @ data
-    terms = int(np.max(np.bincount(sparse_of(rows).indices, minlength=n)))
+    got, expected = rows.transpose_times(data, compiled), dense.T @ data
+    terms = int(np.max(np.bincount(dense.indices, minlength=n)))
     bound = 2 * terms * EPS * (abs(dense).T @ np.abs(data))
     assert got.shape == expected.shape and np.all(np.abs(got - expected) <= bound)
     assert np.max(np.abs(expected)) > 1.0                # the products are not all zero
     picked = np.array([5, 3, 400, 699])
     bound = 2 * (k + 1) * EPS * (abs(dense[picked]) @ np.abs(coef))
-    assert np.all(np.abs(rows.take_rows(picked).times(coef) - dense[picked] @ coef) <= bound)
+    got = rows.take_rows(picked).times(coef, compiled)
+    assert np.all(np.abs(got - dense[picked] @ coef) <= bound)
+
+
+@pytest.mark.parametrize("wrap", [False, True])
+@pytest.mark.parametrize("ascending", [True, False])
+def test_compiled_basis_rows_equal_numpy(wrap, ascending):
+    """The compiled products take the numpy code's operations in its order (built without
+    fused multiply-adds): equal to the last bit, for 1 to 16 columns and an empty product."""
+    kernel = pytest.importorskip("curvespeed.geometry._basis_rows")
+    rows, rng = random_rows(11 + wrap + 2 * ascending, wrap, ascending)
+    for shape in ((), (1,), (2,), (16,), (0,)):
+        coef = rng.standard_normal((rows.n_columns,) + shape)
+        data = rng.standard_normal((rows.first.size,) + shape)
+        assert np.array_equal(rows.times(coef, True), rows.times(coef, False))
+        assert np.array_equal(rows.transpose_times(data, True),
+                              rows.transpose_times(data, False))
+    assert rows.times(coef, True).shape == (rows.first.size, 0)    # the last shape, (0,)
+    with pytest.raises(ValueError, match="wrong size or type"):
+        kernel.times(rows.first, rows.values, np.ones(3), np.empty(rows.first.size),
+                     rows.first.size, rows.values.shape[1], rows.n_columns, 1, wrap)
+    with pytest.raises(ValueError, match="a row reaches outside the columns"):
+        kernel.times(rows.first + rows.n_columns, rows.values, np.ones(rows.n_columns),
+                     np.empty(rows.first.size), rows.first.size, rows.values.shape[1],
+                     rows.n_columns, 1, False)
 
 
 def test_basis_rows_refuse_rows_outside_the_columns():
