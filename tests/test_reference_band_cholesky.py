@@ -283,6 +283,10 @@ def test_compiled_basis_rows_equal_numpy(wrap, ascending):
     with pytest.raises(ValueError, match="wrong size or type"):
         kernel.times(rows.first, rows.values, np.ones(3), np.empty(rows.first.size),
                      rows.first.size, rows.values.shape[1], rows.n_columns, 1, wrap)
+    with pytest.raises(ValueError, match="wrong size or type"):    # first columns as floats
+        kernel.times(rows.first.astype(float), rows.values, np.ones(rows.n_columns),
+                     np.empty(rows.first.size), rows.first.size, rows.values.shape[1],
+                     rows.n_columns, 1, wrap)
     with pytest.raises(ValueError, match="a row reaches outside the columns"):
         kernel.times(rows.first + rows.n_columns, rows.values, np.ones(rows.n_columns),
                      np.empty(rows.first.size), rows.first.size, rows.values.shape[1],

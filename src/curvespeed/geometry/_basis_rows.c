@@ -44,12 +44,16 @@ static void transpose_times(const int64_t *first, const double *vals, const doub
     }
 }
 
-static int get(PyObject *o, Py_buffer *view, Py_ssize_t len, int writable)
+/* A C-contiguous buffer of len 8-byte items: int64 (integer) or float64. */
+static int get(PyObject *o, Py_buffer *view, Py_ssize_t len, int writable, int integer)
 {
     int flags = PyBUF_C_CONTIGUOUS | PyBUF_FORMAT | (writable ? PyBUF_WRITABLE : 0);
     if (PyObject_GetBuffer(o, view, flags) != 0)
         return -1;
-    if (view->itemsize != 8 || view->len != len * 8) {
+    const char *fmt = view->format ? view->format : "B";
+    const char f = fmt[fmt[0] == '<' || fmt[0] == '=' ? 1 : 0];
+    const int kind_ok = integer ? (f == 'q' || f == 'l') : f == 'd';
+    if (!kind_ok || view->itemsize != 8 || view->len != len * 8) {
         PyBuffer_Release(view);
         PyErr_SetString(PyExc_ValueError, "basis rows: array of the wrong size or type");
         return -1;
@@ -74,7 +78,7 @@ static PyObject *run(PyObject *args, int transpose)
     Py_buffer v[4];
     int got = 0;
     for (; got < 4; got++)
-        if (get(o[got], &v[got], lens[got], got == 3) != 0)
+        if (get(o[got], &v[got], lens[got], got == 3, got == 0) != 0)
             break;
     PyObject *result = NULL;
     if (got == 4) {
