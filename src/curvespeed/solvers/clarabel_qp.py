@@ -14,7 +14,6 @@ def clarabel_status(code) -> SolveStatus:
     infeasible, which a QP with every variable boxed cannot truly be, iteration or time limits,
     numerical errors -- is a failure."""
     import clarabel
-    import scipy.sparse as sp           # with the Clarabel backend only
 
     s = clarabel.SolverStatus
     return {s.Solved: SolveStatus.OPTIMAL,
@@ -39,6 +38,7 @@ def solve_qp_clarabel(P, q, A, lo, up, eps, centre=None, scale=None, refine=True
     if the relative gap ``eps`` is not reached yet; the default is ``eps``.
     """
     import clarabel
+    import scipy.sparse as sp           # with the Clarabel backend only
 
     if centre is not None:
         D = sp.diags(scale)
