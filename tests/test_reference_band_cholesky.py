@@ -1,8 +1,8 @@
 """The banded Cholesky factorisation and solves (``geometry/band_cholesky.py`` with its compiled
 kernel ``geometry/_band_solve.c``) and the uniform B-spline design rows
-(``geometry/basis_rows.py``, compiled in ``geometry/_basis_rows.c``) against the reference library they replace on a plan's path:
-LAPACK through ``scipy.linalg.cholesky_banded``, ``cho_solve_banded`` and ``solveh_banded``, and
-``scipy.sparse`` products.
+(``geometry/basis_rows.py``, compiled in ``geometry/_basis_rows.c``) against the reference
+library they replace on a plan's path: LAPACK through ``scipy.linalg.cholesky_banded``,
+``cho_solve_banded`` and ``solveh_banded``, and ``scipy.sparse`` products.
 
 Tolerances. A banded Cholesky factor computed in floating point is the exact factor of
 ``A + E`` with ``|E| <= gamma_(u+2) |U^T| |U|`` (Higham, Accuracy and Stability of Numerical

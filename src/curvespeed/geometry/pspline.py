@@ -227,10 +227,10 @@ def null_space_spline(null_fit, null_ss, target_ss, span, periodic, n_int) -> Sp
 
 
 def derivative_basis(span: float, n_int: int, u: np.ndarray, nu: int) -> BasisRows:
-    """The matrix ``M`` with ``M.times(c)`` the ``nu``-th derivative at ``u`` (within ``[0, span]``) of
-    the spline on the uniform grid of ``n_int`` intervals with coefficients ``c`` (the knots of
-    :func:`penalised_system`; a periodic system's coefficients wrapped to ``n_int + degree``):
-    the rows of :func:`derivative_values`."""
+    """The matrix ``M`` with ``M.times(c)`` the ``nu``-th derivative at ``u`` (within
+    ``[0, span]``) of the spline on the uniform grid of ``n_int`` intervals with coefficients
+    ``c`` (the knots of :func:`penalised_system`; a periodic system's coefficients wrapped to
+    ``n_int + degree``): the rows of :func:`derivative_values`."""
     k = SPLINE_DEGREE
     first, vals = derivative_values(span, n_int, u, nu)
     return BasisRows(first, vals, n_int + k)

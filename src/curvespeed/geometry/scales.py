@@ -221,8 +221,8 @@ class Scale:
         """The first and second derivatives of this scale's B-splines at ``u_nodes[at]``: as
         the compiled kernel takes them (:func:`.pspline.derivative_values`), or as design
         matrices' rows (:class:`.basis_rows.BasisRows`), three times faster than evaluating a
-        spline of the replicates' coefficients. Kept for the next chunk of replicates when one block holds every node
-        (on longer routes a family's scales would hold a block each)."""
+        spline of the replicates' coefficients. Kept for the next chunk of replicates when one
+        block holds every node (on longer routes a family's scales would hold a block each)."""
         if self.bases is not None and self.bases[0] == (at, compiled):
             return self.bases[1]
         u = u_nodes[at]
