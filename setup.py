@@ -1,6 +1,7 @@
 """Build step for the compiled kernels (the banded interior-point iterations, the envelope's
 passes, the QP rows' elimination and scaling, the alignment's optimal partitioning, the
-smoothing scales' banded solves and their noise replicates' curvature);
+smoothing scales' banded factorisations and solves, their design matrices' products and their
+noise replicates' curvature);
 everything else about the package is declared in pyproject.toml.
 
 The kernels use only the Python C API's buffer protocol, so a C compiler is all they need. They
@@ -22,4 +23,5 @@ def kernel(name: str, package: str = "solvers") -> Extension:
 # last bit (no fused multiply-adds, no reordering)
 setup(ext_modules=[kernel("_banded_ipm"), kernel("_envelope_passes"), kernel("_qp_rows"),
                    kernel("_partition", "geometry"), kernel("_band_solve", "geometry"),
-                   kernel("_replicate_curvature", "geometry")])
+                   kernel("_replicate_curvature", "geometry"),
+                   kernel("_basis_rows", "geometry")])

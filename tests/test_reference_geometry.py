@@ -584,8 +584,8 @@ def test_noise_statement_the_points_contradict_is_reported():
 
 @pytest.mark.parametrize("nu", [1, 2])
 def test_derivative_basis_matches_scipy_bspline(nu):
-    """The sparse derivative basis the noise replicates are evaluated with equals scipy's own
-    B-spline derivative (``scipy.interpolate.BSpline(..., extrapolate=False)(u, nu)``) on the
+    """The derivative basis (design rows) the noise replicates are evaluated with equals
+    scipy's own B-spline derivative (``scipy.interpolate.BSpline(..., extrapolate=False)(u, nu)``) on the
     penalised spline's uniform extended knots (degree 5), at the span's ends and between, up
     to round-off: both evaluate the same piecewise quintic."""
     from scipy.interpolate import BSpline
@@ -600,7 +600,7 @@ def test_derivative_basis_matches_scipy_bspline(nu):
     coef = rng.standard_normal((n_int + k, 5))
     u = np.concatenate(([0.0, span], rng.uniform(0.0, span, 300)))
     expected = BSpline(knots, coef, k, extrapolate=False)(u, nu=nu)
-    got = derivative_basis(span, n_int, u, nu) @ coef
+    got = derivative_basis(span, n_int, u, nu).times(coef)
     assert np.allclose(got, expected, rtol=0.0, atol=1e-12 * np.abs(expected).max())
 
 
@@ -657,8 +657,8 @@ def test_compiled_band_solve_matches_lapack(bandwidth, columns):
 @pytest.mark.parametrize("periodic", [False, True])
 def test_compiled_replicate_curvature_matches_numpy(periodic):
     """The noise replicates' curvature changes by the compiled kernel
-    (``geometry/_replicate_curvature.c``) against the numpy path, its reference (sparse
-    derivative bases checked against scipy's BSpline above; curvature (x'y'' - y'x'') / |r'|^3,
+    (``geometry/_replicate_curvature.c``) against the numpy path, its reference (derivative
+    bases checked against scipy's BSpline above; curvature (x'y'' - y'x'') / |r'|^3,
     textbook), on a circle of radius 40 m fitted at 0.5 m with 5 cm replicates, open and as a
     loop. The kernel takes the numpy path's operations in its order (built without fused
     multiply-adds; sqrt is correctly rounded), so the two agree to the last bit; the changes

@@ -1,6 +1,14 @@
-/* Compiled twin of scipy's cho_solve_banded for many right-hand sides stored by rows.
+/* Banded Cholesky factorisation and solve of symmetric positive definite systems.
  *
- * Solves (U^T U) x = b for the banded Cholesky factor U (upper bandwidth u; entry U[i, j] at
+ * factor: A = U^T U in place, A's upper band given as ut (n, u + 1) with ut[j, u + i - j] =
+ * A[i, j] (i <= j); the same memory as LAPACK's upper band storage in Fortran order. Column j of
+ * U is found from the columns before it (U[i, j] = (A[i, j] - sum_k U[k, i] U[k, j]) / U[i, i],
+ * U[j, j] = sqrt(A[j, j] - sum_k U[k, j]^2)), each a contiguous row of ut. A pivot that is not
+ * positive stops it: the matrix is not positive definite, and the order of the leading minor
+ * that failed is returned (0 on success), as LAPACK's info reports it (a NaN pivot, like
+ * LAPACK's unblocked factorisation, is no failure: the NaN spreads through the factor).
+ *
+ * solve: (U^T U) x = b for the banded Cholesky factor U (upper bandwidth u; entry U[i, j] at
  * ut[j * (u + 1) + u + i - j], the transpose of LAPACK's upper band storage) and b of shape
  * (n, c) in C order, in place: a forward pass U^T y = b and a backward pass U x = y, each
  * reading the factor once for all c columns. LAPACK's solve takes the columns one at a time
@@ -10,6 +18,7 @@
  */
 #define PY_SSIZE_T_CLEAN
 #include <Python.h>
+#include <math.h>
 #include <stdint.h>
 
 static void solve(const double *ut, double *x, int64_t n, int64_t u, int64_t c)
@@ -38,6 +47,53 @@ static void solve(const double *ut, double *x, int64_t n, int64_t u, int64_t c)
         const double d = ut[i * w + u];
         for (int64_t k = 0; k < c; k++) xi[k] /= d;
     }
+}
+
+static int64_t factor(double *ut, int64_t n, int64_t u)
+{
+    const int64_t w = u + 1;
+    for (int64_t j = 0; j < n; j++) {
+        double *cj = ut + j * w;                    /* cj[u + i - j] = U[i, j] */
+        int64_t i0 = j - u > 0 ? j - u : 0;
+        for (int64_t i = i0; i <= j; i++) {
+            const double *ci = ut + i * w;          /* ci[u + k - i] = U[k, i] */
+            double s = cj[u + i - j];               /* rows i0.. are in both columns */
+            for (int64_t k = i0; k < i; k++) s -= ci[u + k - i] * cj[u + k - j];
+            if (i < j) {
+                cj[u + i - j] = s * (1.0 / ci[u]);   /* by the reciprocal, as LAPACK */
+            } else {
+                if (s <= 0.0) return j + 1;         /* a NaN goes on, as in LAPACK */
+                cj[u] = sqrt(s);
+            }
+        }
+    }
+    return 0;
+}
+
+static PyObject *py_factor(PyObject *self, PyObject *args)
+{
+    PyObject *o_ut;
+    long long n, u;
+    if (!PyArg_ParseTuple(args, "OLL", &o_ut, &n, &u))
+        return NULL;
+    if (n < 1 || u < 0) {
+        PyErr_SetString(PyExc_ValueError, "factor: bad sizes");
+        return NULL;
+    }
+    Py_buffer vu;
+    if (PyObject_GetBuffer(o_ut, &vu, PyBUF_C_CONTIGUOUS | PyBUF_FORMAT | PyBUF_WRITABLE) != 0)
+        return NULL;
+    if (vu.itemsize != 8 || vu.len != (Py_ssize_t)(n * (u + 1) * 8)) {
+        PyBuffer_Release(&vu);
+        PyErr_SetString(PyExc_ValueError, "factor: array of the wrong size or type");
+        return NULL;
+    }
+    int64_t info;
+    Py_BEGIN_ALLOW_THREADS
+    info = factor(vu.buf, n, u);
+    Py_END_ALLOW_THREADS
+    PyBuffer_Release(&vu);
+    return PyLong_FromLongLong(info);
 }
 
 static PyObject *py_solve(PyObject *self, PyObject *args)
@@ -75,6 +131,10 @@ done:
 }
 
 static PyMethodDef methods[] = {
+    {"factor", py_factor, METH_VARARGS,
+     "factor(ut, n, u) -> int: ut (n, u + 1, float64, C order), A's upper band by columns "
+     "(ut[j, u + i - j] = A[i, j]), replaced by U's (A = U^T U); 0, or the order of the first "
+     "leading minor found not positive definite (ut then partly overwritten)."},
     {"solve", py_solve, METH_VARARGS,
      "solve(ut, x, n, u, c): x (n, c, float64, C order) <- (U^T U)^-1 x for the banded "
      "Cholesky factor U given as ut (n, u + 1): ut[j, u + i - j] = U[i, j]."},

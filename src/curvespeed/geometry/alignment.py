@@ -105,11 +105,12 @@ def reconstruct(station: np.ndarray, kappa: np.ndarray, deltas: np.ndarray, spre
     edges = np.concatenate(([-np.inf], breaks, [np.inf]))
     x = np.arange(n, dtype=float)
     seg = np.searchsorted(edges, x, side="right") - 1
+    cut = _segment_cuts(seg, edges.size - 1)
     k = np.empty(n)
     sd_pl = np.empty(n)
     follows = np.zeros(n, dtype=bool)
     for m, (a, b) in enumerate(zip(bounds[:-1], bounds[1:])):
-        sel = seg == m
+        sel = slice(cut[m], cut[m + 1])          # the stations of segment m (seg == m)
         lo, hi = _interior(a, b, n, gap)
         k[sel] = lines[m][0] + lines[m][1] * x[sel]
         sd_pl[sel] = _line_sd(fits, lo, hi, levels[m], x[sel])
@@ -122,7 +123,7 @@ def reconstruct(station: np.ndarray, kappa: np.ndarray, deltas: np.ndarray, spre
     # a line may miss a gentle break the fine scale shows within its noise: what the fine scale
     # reads beyond the line, averaged over the smear (which averages its noise down), is added
     misfit = np.abs(_moving_mean(kappa - k, gap))
-    level = _flatten_misfit(misfit, _moving_mean(deltas, gap), seg, edges, gap, gamma)
+    level = _flatten_misfit(misfit, _moving_mean(deltas, gap), cut, edges, gap, gamma)
     bound = np.abs(k) + gamma * sd_pl + misfit
     # next to a step the misfit is the smear of the jump itself, not a departure of either
     # line: there the elements' own levels stand in for it (where they have one)
@@ -154,7 +155,14 @@ def _moving_mean(y: np.ndarray, gap: int) -> np.ndarray:
     return (c[2 * gap + 1:] - c[:-2 * gap - 1]) / (2 * gap + 1)
 
 
-def _flatten_misfit(misfit, noise_avg, seg, edges, gap, gamma) -> np.ndarray:
+def _segment_cuts(seg: np.ndarray, n_segments: int) -> np.ndarray:
+    """Where each segment's stations begin in ``seg`` (ascending), and the end: segment ``m``
+    is ``cut[m]:cut[m + 1]``, the stations a mask ``seg == m`` selects, without a pass over
+    every station per segment."""
+    return np.searchsorted(seg, np.arange(n_segments + 1), side="left")
+
+
+def _flatten_misfit(misfit, noise_avg, cut, edges, gap, gamma) -> np.ndarray:
     """Make the misfit one level along each element's interior (in place); return each
     element's level (NaN for an element without such an interior).
 
@@ -172,13 +180,14 @@ def _flatten_misfit(misfit, noise_avg, seg, edges, gap, gamma) -> np.ndarray:
     noise_sd = np.sqrt(np.mean(noise_avg**2, axis=1))
     levels = np.full(edges.size - 1, np.nan)
     for m in range(edges.size - 1):
-        sel = (seg == m) & (x - edges[m] > 2 * gap) & (edges[m + 1] - x > 2 * gap)
+        part = slice(cut[m], cut[m + 1])         # segment m's stations, then its interior
+        sel = (x[part] - edges[m] > 2 * gap) & (edges[m + 1] - x[part] > 2 * gap)
         if np.count_nonzero(sel) < 2 * gap + 1:
             continue
-        r, sd = misfit[sel], noise_sd[sel]
+        r, sd = misfit[part][sel], noise_sd[part][sel]
         excess = math.sqrt(max(float(np.mean(r**2) - np.mean(sd**2)), 0.0))
         levels[m] = math.sqrt(3.0) * excess + float(np.mean(sd))
-        misfit[sel] = np.maximum(levels[m], r - gamma * sd)
+        misfit[part][sel] = np.maximum(levels[m], r - gamma * sd)
     return levels
 
 
@@ -204,6 +213,7 @@ class _LineFits:
         self.cyy = np.concatenate((zero, np.cumsum(y * y)))
         self.deltas = deltas
         self._lines: dict[tuple[int, int], tuple[np.ndarray, np.ndarray, float]] = {}
+        self._level_sd: dict[tuple[int, int], float] = {}
 
     def _sums(self, a, b):
         return (self.c0[b] - self.c0[a], self.c1[b] - self.c1[a], self.c2[b] - self.c2[a],
@@ -251,8 +261,13 @@ class _LineFits:
         return level
 
     def level_sd(self, a: int, b: int) -> float:
-        """Standard deviation over the replicates of the mean of [a, b)."""
-        return math.sqrt(float(np.mean(np.mean(self.deltas[a:b], axis=0) ** 2)))
+        """Standard deviation over the replicates of the mean of [a, b) (kept per element, which
+        is asked for it several times: each a pass over its stations' replicates)."""
+        key = (a, b)
+        if key not in self._level_sd:
+            self._level_sd[key] = math.sqrt(float(np.mean(np.mean(self.deltas[a:b], axis=0)
+                                                          ** 2)))
+        return self._level_sd[key]
 
     def line_sd(self, a: int, b: int, at: np.ndarray) -> np.ndarray:
         """Standard deviation over the replicates of the line through [a, b), at ``at``."""

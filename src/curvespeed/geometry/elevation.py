@@ -6,7 +6,7 @@ import math
 import warnings
 
 import numpy as np
-from scipy.linalg import LinAlgError
+from numpy.linalg import LinAlgError
 
 from ..errors import CurvespeedWarning, RouteGeometryError
 from .noise import choose_noise, estimate_noise

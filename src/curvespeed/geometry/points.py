@@ -53,7 +53,7 @@ linearly with the number of points (about 1.3 s for 10^5 and 42 s for 10^6 point
 development machine); ``make_splprep`` and ``make_smoothing_spline`` are slower still. The
 P-spline's normal equations are banded (half-bandwidth 5; 11 for loops after an interleaving
 permutation that folds the wrap-around corners into the band), so each trial ``lam`` costs
-one banded Cholesky solve (LAPACK via :func:`scipy.linalg.solveh_banded`) and the whole fit is
+one banded Cholesky solve (the compiled kernel of :mod:`.band_cholesky`) and the whole fit is
 O(m). The knot spacing adapts to the smoothing the noise calls for (see ``fit_pspline``).
 Loops use a periodic basis (wrapped coefficients), so position and its first four
 derivatives agree at the seam.
@@ -90,7 +90,7 @@ import warnings
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.linalg import LinAlgError
+from numpy.linalg import LinAlgError
 
 from ..errors import CurvespeedWarning, RouteGeometryError
 from ..route import Route, check_reversals, warn_spikes

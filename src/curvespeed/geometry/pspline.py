@@ -15,16 +15,12 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import sparse
-from scipy.linalg import LinAlgError, cho_solve_banded, cholesky_banded, solveh_banded
+from numpy.linalg import LinAlgError
 
+from .band_cholesky import factor_band, solve_band, solve_factored
+from .basis_rows import BasisRows
 from .roots import brent_root
 from .uniform_spline import UniformSpline, basis_values, design_rows, locate
-
-try:
-    from . import _band_solve
-except ImportError:         # no C compiler at install: scipy's banded solve
-    _band_solve = None
 
 #: Degree of the fitted B-spline. Quintic: curvature (second derivative) is twice continuously
 #: differentiable, so its rate of change along the route, which sets lateral jerk at constant
@@ -230,18 +226,14 @@ def null_space_spline(null_fit, null_ss, target_ss, span, periodic, n_int) -> Sp
     return SplineFit(spline, span, n_int, periodic, null_ss, target_ss, False, math.inf)
 
 
-def derivative_basis(span: float, n_int: int, u: np.ndarray,
-                     nu: int) -> sparse.csr_matrix:
-    """Sparse ``M`` with ``M @ c`` the ``nu``-th derivative at ``u`` (within ``[0, span]``) of
-    the spline on the uniform grid of ``n_int`` intervals with coefficients ``c`` (the knots of
-    :func:`penalised_system`; a periodic system's coefficients wrapped to ``n_int + degree``):
-    the rows of :func:`derivative_values`."""
+def derivative_basis(span: float, n_int: int, u: np.ndarray, nu: int) -> BasisRows:
+    """The matrix ``M`` with ``M.times(c)`` the ``nu``-th derivative at ``u`` (within
+    ``[0, span]``) of the spline on the uniform grid of ``n_int`` intervals with coefficients
+    ``c`` (the knots of :func:`penalised_system`; a periodic system's coefficients wrapped to
+    ``n_int + degree``): the rows of :func:`derivative_values`."""
     k = SPLINE_DEGREE
     first, vals = derivative_values(span, n_int, u, nu)
-    cols = first[:, None] + np.arange(k + 1)
-    return sparse.csr_matrix((vals.ravel(), cols.ravel(),
-                              np.arange(0, u.size * (k + 1) + 1, k + 1)),
-                             shape=(u.size, n_int + k))
+    return BasisRows(first, vals, n_int + k)
 
 
 def derivative_values(span: float, n_int: int, u: np.ndarray,
@@ -315,8 +307,7 @@ class _PenalisedSystem:
         cols_t = first + np.arange(k + 1)[:, None]
         if periodic:
             cols_t %= n
-        basis = sparse.csr_matrix((vals_t.T.ravel(), cols_t.T.ravel(),
-                                   np.arange(0, m * (k + 1) + 1, k + 1)), shape=(m, n))
+        basis = BasisRows(first, vals_t.T, n, wrap=periodic)
 
         greville = np.convolve(knots[1:-1], np.ones(k) / k, mode="valid")[:n]
         if periodic:
@@ -332,7 +323,7 @@ class _PenalisedSystem:
             uu = np.concatenate(([u[0] - reach], u, [u[-1] + reach]))
             vv = np.vstack((start, values, end))
         baseline = np.column_stack([np.interp(greville, uu, vv[:, j]) for j in range(dims)])
-        data = values - basis @ baseline
+        data = values - basis.times(baseline)
 
         w2 = np.broadcast_to(np.asarray(weight, dtype=float) ** 2, (m,))
         gram = np.zeros((k + 1, n))
@@ -368,7 +359,7 @@ class _PenalisedSystem:
                 self._penalty_band[k - d, d:] = penalty[d, : n - d]
             self._pos = None
         self._n = n
-        self._rhs = basis.T @ (w2[:, None] * data)            # B^T W (values - g(u))
+        self._rhs = basis.transpose_times(w2[:, None] * data)    # B^T W (values - g(u))
         self._penalty_baseline = _apply_penalty(baseline, periodic)   # D^T D g
         self._baseline = baseline
         self._basis, self._data, self._w2 = basis, data, w2
@@ -384,11 +375,10 @@ class _PenalisedSystem:
                 permuted = np.empty_like(rhs)
                 permuted[self._pos] = rhs
                 rhs = permuted
-            delta = solveh_banded(band, rhs, overwrite_ab=True, overwrite_b=True,
-                                  check_finite=False)
+            delta = solve_band(band, rhs, overwrite=True)
             if self._pos is not None:
                 delta = delta[self._pos]
-            resid = self._data - self._basis @ delta
+            resid = self._data - self._basis.times(delta)
             resid_ss = float(self._w2 @ np.sum(resid**2, axis=1))
             if resid_ss > self._ceiling * (1.0 + 1e-6):
                 # More residual than the null-space fit, the most any lam can leave: round-off.
@@ -420,17 +410,15 @@ class _PenalisedSystem:
         C order) is weighted in place instead of in a copy."""
         if overwrite:
             values *= self._w2[:, None]
-            return self._basis.T @ values
-        return self._basis.T @ (self._w2[:, None] * values)
+            return self._basis.transpose_times(values)
+        return self._basis.transpose_times(self._w2[:, None] * values)
 
     def factor(self, rho: float) -> np.ndarray:
         """The banded Cholesky factor of ``B^T W B + lam D^T D``, to solve for any number of
-        projected data (:meth:`solve_projected`): LAPACK's upper storage, transposed for the
-        compiled solve when it was built."""
+        projected data (:meth:`solve_projected`), in LAPACK's upper band storage."""
         lam = self.lam0 * 10.0**rho
         band = self._gram_band + lam * self._penalty_band
-        upper = cholesky_banded(band, overwrite_ab=True, check_finite=False)
-        return upper if _band_solve is None else np.ascontiguousarray(upper.T)
+        return factor_band(band, overwrite=True)
 
     def solve_projected(self, factor: np.ndarray, rhs: np.ndarray) -> np.ndarray:
         """:meth:`response` from a :meth:`factor` and a :meth:`project` (``rhs`` is kept)."""
@@ -438,12 +426,7 @@ class _PenalisedSystem:
             permuted = np.empty_like(rhs)
             permuted[self._pos] = rhs
             rhs = permuted
-        if _band_solve is None:          # no C compiler at install: LAPACK, a column at a time
-            out = cho_solve_banded((factor, False), rhs, overwrite_b=False, check_finite=False)
-        else:
-            out = np.array(rhs, dtype=float, order="C")         # solved in place, by rows
-            _band_solve.solve(factor, out, out.shape[0], factor.shape[1] - 1,
-                              out.size // out.shape[0])
+        out = solve_factored(factor, rhs)
         return out if self._pos is None else out[self._pos]
 
     def release_points(self) -> None:
@@ -478,9 +461,9 @@ class _PenalisedSystem:
         hi = min(int(np.ceil((self._u[points[-1]] + margin) / h)) + k + 1, n)
         lam = self.lam0 * 10.0**rho
         band = self._gram_band[:, lo:hi] + lam * self._penalty_band[:, lo:hi]
-        rows = self._basis[points][:, lo:hi]
-        rhs = rows.T @ (self._w2[points, None] * values)
-        delta = solveh_banded(band, rhs, overwrite_ab=True, overwrite_b=True, check_finite=False)
+        rows = self._basis.take_rows(points)
+        rhs = rows.transpose_times(self._w2[points, None] * values)[lo:hi]
+        delta = solve_band(band, rhs, overwrite=True)
         return UniformSpline(self.knots[lo: hi + k + 1], delta, k), delta
 
     def weight_density(self) -> np.ndarray:

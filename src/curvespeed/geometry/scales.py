@@ -219,10 +219,10 @@ class Scale:
 
     def _bases(self, u_nodes: np.ndarray, at: slice, compiled: bool):
         """The first and second derivatives of this scale's B-splines at ``u_nodes[at]``: as
-        the compiled kernel takes them (:func:`.pspline.derivative_values`), or as sparse
-        matrices, three times faster than evaluating a spline of the replicates'
-        coefficients. Kept for the next chunk of replicates when one block holds every node
-        (on longer routes a family's scales would hold a block each)."""
+        the compiled kernel takes them (:func:`.pspline.derivative_values`), or as design
+        matrices' rows (:class:`.basis_rows.BasisRows`), three times faster than evaluating a
+        spline of the replicates' coefficients. Kept for the next chunk of replicates when one
+        block holds every node (on longer routes a family's scales would hold a block each)."""
         if self.bases is not None and self.bases[0] == (at, compiled):
             return self.bases[1]
         u = u_nodes[at]
@@ -258,8 +258,8 @@ class Scale:
                     first, v1, v2, delta, self.d1[at], self.d2[at], self.kappa[at], change[at],
                     first.size, SPLINE_DEGREE + 1, delta.shape[0], n_rep)
                 continue
-            e1 = (bases[0] @ delta).reshape(-1, 2, n_rep)
-            e2 = (bases[1] @ delta).reshape(-1, 2, n_rep)
+            e1 = bases[0].times(delta).reshape(-1, 2, n_rep)
+            e2 = bases[1].times(delta).reshape(-1, 2, n_rep)
             p1, p2 = self.d1[at, :, None] + e1, self.d2[at, :, None] + e2
             speed_sq = p1[:, 0] ** 2 + p1[:, 1] ** 2           # the kernel's |r'|^3, alike
             change[at] = cross(p1, p2) / (speed_sq * np.sqrt(speed_sq)) - self.kappa[at, None]

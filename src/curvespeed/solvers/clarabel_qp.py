@@ -4,7 +4,6 @@ its answer, and Clarabel's status mapped to ours."""
 from __future__ import annotations
 
 import numpy as np
-import scipy.sparse as sp
 
 from . import SolveStatus
 
@@ -39,6 +38,7 @@ def solve_qp_clarabel(P, q, A, lo, up, eps, centre=None, scale=None, refine=True
     if the relative gap ``eps`` is not reached yet; the default is ``eps``.
     """
     import clarabel
+    import scipy.sparse as sp           # with the Clarabel backend only
 
     if centre is not None:
         D = sp.diags(scale)

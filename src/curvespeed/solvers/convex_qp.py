@@ -13,7 +13,6 @@ from functools import cached_property
 from typing import TYPE_CHECKING
 
 import numpy as np
-import scipy.sparse as sp
 
 from ..problem import SpeedProblem
 from .qp_rows import RowQP, canonical, pad, reduce_tables
@@ -97,6 +96,7 @@ class QPLayout:
 
     def _delta_a(self, ds: float):
         """Sparse rows of (acceleration after) - (acceleration before) at every node, in b."""
+        import scipy.sparse as sp       # only the comfort term's checks: not on a plan's path
         h = 1.0 / (2.0 * ds)
         k = np.arange(self.nv)
         hp, hn = self.j_has_prev, self.j_has_next
