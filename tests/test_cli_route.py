@@ -154,8 +154,9 @@ def test_plan_loads_no_scipy_module(tmp_path):
     # and scipy.special was 0.2-0.3 s of every plan's start-up), keep their design matrices as
     # rows and factor their banded normal equations in their own kernel: any scipy import
     # (scipy.sparse, scipy.linalg) loads scipy's array layer, another 0.3 s. An open route with
-    # elevation, a stop and a zone planned, and a loop's geometry (a loop's plan still finds
-    # its QP's blocks with scipy's connected components).
+    # elevation, a stop and a zone planned, and a loop's geometry (a loop's plan still loads
+    # scipy: a block that wraps around the loop is put in banded order by scipy's reverse
+    # Cuthill-McKee).
     import subprocess
     import sys
 

@@ -197,6 +197,30 @@ def test_interval_blocks_are_the_connected_components(case):
     assert np.array_equal(ours, label)
 
 
+LOOP_CASES = [("test_loop.geojson", Limits(), 0.0, None),
+              ("test_loop.geojson", Limits(), 0.0, 100.0),
+              ("test_loop.geojson", Limits(max_lateral_jerk_mps3=0.6), 1.0, 200.0),
+              ("test_loop.geojson", Limits(max_lateral_jerk_mps3=0.6), 0.0, None)]
+
+
+@pytest.mark.parametrize("case", range(len(LOOP_CASES)))
+def test_ring_blocks_of_a_loop_are_the_connected_components(case):
+    """On a closed loop (rows across the seam, stops cutting the ring, a lateral jerk bound's
+    three-station rows, a comfort term) the blocks found as arcs of the ring equal scipy's
+    connected components of |A|'|A| + |P|, block for block and index for index."""
+    from curvespeed.solvers.qp_rows import blocks_of
+
+    route, limits, comfort, stop = LOOP_CASES[case]
+    _, b_hat, new, _ = _iterate(_problem(route, limits, stop), comfort)
+    qp, _ = new.reduced(b_hat)
+    P, _, A, _, _ = qp.to_sparse()
+    n_blocks, label = connected_components((abs(A).T @ abs(A)) + abs(P), directed=False)
+    ours = blocks_of(qp, True)
+    assert len(ours) == n_blocks
+    for k, block in enumerate(ours):
+        assert np.array_equal(block, np.flatnonzero(label == k))
+
+
 @pytest.mark.skipif(not KERNEL_AVAILABLE, reason="compiled kernel not built")
 @pytest.mark.parametrize("case", range(len(CASES)))
 def test_row_qp_solve_agrees_with_clarabel(case):

@@ -278,20 +278,74 @@ def interval_blocks(qp: RowQP):
     return np.concatenate(([0], cuts, [n])).astype(np.int64)
 
 
+def ring_links(qp: RowQP) -> np.ndarray:
+    """On a closed loop's QP (variables in order around the loop, the last next to the first),
+    whether variable ``c`` is linked to ``(c + 1) % n`` by a row's nonzero terms or by ``P``.
+
+    Each row (and each pair of ``P``) covers the arc from its first to its last variable the
+    short way round: the complement of the largest gap between its variables, counting the gap
+    across the seam (``first + n - last``). A row whose largest gap lies inside is one that
+    wraps across the seam. As :func:`interval_blocks` on an open route, this gives the
+    connected components when rows skip only variables that ``P`` links to their neighbours.
+    """
+    n = qp.n
+    row = np.repeat(np.arange(qp.m), np.diff(qp.indptr))
+    keep = qp.data != 0.0
+    pnz = (qp.pval != 0.0) & (qp.prow != qp.pcol)
+    m = qp.m
+    # P's pairs as two-entry rows after the QP's own
+    group = np.concatenate((row[keep], m + np.repeat(np.flatnonzero(pnz), 2)))
+    col = np.concatenate((qp.indices[keep],
+                          np.column_stack((qp.prow[pnz], qp.pcol[pnz])).ravel()))
+    order = np.lexsort((col, group))
+    group, col = group[order], col[order]
+    boundary = np.r_[True, group[1:] != group[:-1]]
+    starts = np.flatnonzero(boundary)
+    ends = np.r_[starts[1:], group.size] - 1
+    gap = np.diff(col)
+    gap[boundary[1:]] = -1                       # no gap counted between two rows
+    several = ends > starts
+    starts, ends = starts[several], ends[several]
+    cover = np.zeros(n + 1, dtype=np.int64)
+    if starts.size:
+        inner = np.maximum.reduceat(np.r_[gap, -1], starts)
+        seam = col[starts] + n - col[ends]
+        wraps = inner > seam
+        # a row inside: links first..last-1; one across the seam: after its largest gap to
+        # the end, and from the start to before it
+        plain = ~wraps
+        np.add.at(cover, col[starts[plain]], 1)
+        np.add.at(cover, col[ends[plain]], -1)
+        if wraps.any():
+            where = np.flatnonzero(wraps)
+            big = np.array([starts[i] + int(np.argmax(gap[starts[i]:ends[i]]))
+                            for i in where])           # the entry before the largest gap
+            np.add.at(cover, col[big + 1], 1)
+            cover[n] -= where.size
+            cover[0] += where.size
+            np.add.at(cover, col[big], -1)
+    return np.cumsum(cover)[:n] > 0
+
+
 def blocks_of(qp: RowQP, closed: bool):
     """The QP's independent blocks of variables (connected through its rows or ``P``), each
-    an array of variable indices, in order of their first variable. An open route's blocks are
-    intervals (:func:`interval_blocks`); a closed loop's rows wrap around, so its
-    blocks are the connected components of the QP's pattern."""
+    an array of variable indices in increasing order, the blocks in order of their first
+    variable. An open route's blocks are intervals (:func:`interval_blocks`); a closed loop's
+    are arcs of the ring (:func:`ring_links`), the one across the seam (if any) first."""
     if not closed:
         starts = interval_blocks(qp)
         return [np.arange(a, b) for a, b in zip(starts[:-1], starts[1:])]
-    from scipy.sparse.csgraph import connected_components
-
-    P, _, A, _, _ = qp.to_sparse()
-    pattern = (abs(A).T @ abs(A)) + abs(P)
-    n_blocks, label = connected_components(pattern, directed=False)
-    return [np.flatnonzero(label == k) for k in range(n_blocks)]
+    n = qp.n
+    linked = ring_links(qp)
+    cuts = np.flatnonzero(~linked)             # c not linked to c + 1: a block ends at c
+    if cuts.size == 0:
+        return [np.arange(n)]
+    ends = cuts + 1
+    firsts = np.r_[ends[-1] % n, ends[:-1]]
+    blocks = []
+    for a, b in zip(firsts, ends):
+        blocks.append(np.arange(a, b) if a < b else np.r_[np.arange(0, b), np.arange(a, n)])
+    return sorted(blocks, key=lambda x: int(x[0]))
 
 
 def reduce_sparse(P, q, A, lo, up, fixed, values):
