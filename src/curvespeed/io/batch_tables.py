@@ -113,8 +113,13 @@ class CurvesGeoJSON:
         fh.write('{"type": "FeatureCollection", "features": [\n')
 
     def add(self, curve: dict) -> None:
-        self.fh.write((",\n" if self.count else "") + curve_feature_text(curve))
-        self.count += 1
+        self.add_text(curve_feature_text(curve), 1)
+
+    def add_text(self, text: str, count: int) -> None:
+        """``count`` features already made by :func:`curve_feature_text`, joined by ``,\n``."""
+        if count:
+            self.fh.write((",\n" if self.count else "") + text)
+            self.count += count
 
     def close(self) -> None:
         self.fh.write("\n]}\n")
