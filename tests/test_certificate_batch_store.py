@@ -152,3 +152,23 @@ def test_the_local_clusters_workers_run_with_its_settings(dask_client):
     # in force in each worker process's own periodic callback, not only in its settings
     tick = parse_timedelta(SERVER_CLOCKS["distributed.admin.tick.interval"]) * 1000
     assert list(dask_client.run(tick_ms).values()) == [tick] * 2
+
+
+def test_a_layer_piece_gives_back_its_curves_with_and_without_a_place_on_earth():
+    from curvespeed.batch.pack import layer_piece, piece_curves, read_layer_piece
+    from curvespeed.io.batch_tables import curve_feature_text
+
+    base = {"route_id": "X1", "curve": 1, "start_m": 10.0, "apex_m": 20.5, "end_m": 31.25,
+            "direction": "left", "min_radius_m": 80.0, "min_radius_low_m": 75.5,
+            "speed_mps": 12.0, "limit_speed_mps": 13.75, "advisory_speed_kmh": 45.0,
+            "advisory_speed_mph": 30.0, "worst_use": 0.8125, "verdict": "pass"}
+    placed = {**base, "lonlat": [[-20.000123456789, -30.1], [-20.0002, -30.100011111111],
+                                 [-20.0003, -30.1000333]]}
+    local = {**base, "curve": 2, "lonlat": None}       # a road in a local metric frame
+    piece = layer_piece([placed, local])
+    text, rows = read_layer_piece(piece)
+    assert text == curve_feature_text(placed) + ",\n" + curve_feature_text(local)
+    assert text.endswith('"geometry": null}')
+    assert rows[1][1] is None
+    # WKB holds IEEE doubles: the positions come back equal, not close
+    assert piece_curves(piece) == [placed, local]

@@ -39,16 +39,31 @@ def manifest_bytes(input_sha256: str, files: dict[str, bytes], source: str, summ
 
 def layer_piece(curves) -> bytes:
     """A road's share of the curves layers: its GeoJSON features (one line each, joined by
-    ``,\\n`` as the layer file holds them) and its curves' attributes, pickled together."""
-    from ..io.batch_tables import curve_feature_text
+    ``,\n`` as the layer file holds them) and, per curve, its attributes and its line as WKB,
+    pickled together."""
+    from ..io.batch_tables import curve_feature_text, curve_wkb
 
     text = ",\n".join(curve_feature_text(curve) for curve in curves)
-    return pickle.dumps((text, list(curves)), protocol=pickle.HIGHEST_PROTOCOL)
+    rows = [({k: v for k, v in curve.items() if k != "lonlat"}, curve_wkb(curve))
+            for curve in curves]
+    return pickle.dumps((text, rows), protocol=pickle.HIGHEST_PROTOCOL)
 
 
 def read_layer_piece(piece: bytes) -> tuple[str, list]:
-    """The GeoJSON text and the curves of a piece :func:`layer_piece` made (a batch's own task
-    made it; never bytes from an input file)."""
+    """The GeoJSON text and the ``(attributes, WKB)`` rows of a piece :func:`layer_piece` made
+    (a batch's own task made it; never bytes from an input file)."""
     if not piece:
         return "", []
     return pickle.loads(piece)
+
+
+def piece_curves(piece: bytes) -> list[dict]:
+    """The curves of a layer piece with their ``lonlat`` positions back (from the WKB's
+    doubles, the same numbers), as the manifest holds them."""
+    import shapely
+
+    curves = []
+    for attrs, wkb in read_layer_piece(piece)[1]:
+        lonlat = None if wkb is None else shapely.get_coordinates(shapely.from_wkb(wkb)).tolist()
+        curves.append({**attrs, "lonlat": lonlat})
+    return curves

@@ -162,10 +162,10 @@ class BatchStore:
             with tmp_json as fh:
                 geojson, gpkg = CurvesGeoJSON(fh), CurvesGeoPackage(str(tmp_gpkg))
                 for piece in pieces:
-                    text, curves = read_layer_piece(piece)
-                    geojson.add_text(text, len(curves))
-                    for curve in curves:
-                        gpkg.add(curve)
+                    text, rows = read_layer_piece(piece)
+                    geojson.add_text(text, len(rows))
+                    for curve, wkb in rows:
+                        gpkg.add_row(curve, wkb)
                 geojson.close()
                 gpkg.close()
             outputs = OutputFiles(force=True, signals=False)

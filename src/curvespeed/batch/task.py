@@ -117,9 +117,9 @@ class RouteRecord:
     def curves(self) -> list[dict]:
         """One entry per curve for the curves layer, with its ``lonlat`` positions (None for a
         road in a local metric frame)."""
-        from .pack import read_layer_piece
+        from .pack import piece_curves
 
-        return read_layer_piece(self.layer)[1]
+        return piece_curves(self.layer)
 
 
 def input_digest(spec, settings: BatchSettings) -> str:
@@ -148,25 +148,25 @@ def run_route(spec, settings: BatchSettings, digest: str) -> RouteRecord:
         try:
             if spec.problem:
                 raise _RoadProblem(spec.problem)
+            from .pack import file_bytes, layer_piece, manifest_bytes
             from .work import check_road, plan_road
 
             work = plan_road if settings.command == "plan" else check_road
             files, summary, curves, passed = work(spec, settings, digest)
+            notes = tuple(dict.fromkeys(str(w.message) for w in caught))
+            summary = {**summary, "warnings": len(notes)}
+            # made here, beside the road's computation: the store only writes these bytes
+            data = file_bytes(files)
+            manifest = manifest_bytes(digest, data, spec.source, summary, curves, notes, passed)
+            layer = layer_piece(curves)
         except Exception as exc:       # a road's failure is its record; the batch goes on
             message = str(exc) or repr(exc)
             kind = "InputError" if isinstance(exc, _RoadProblem) else type(exc).__name__
             return failure(spec, digest, kind, message, time.perf_counter() - start,
                            [str(w.message) for w in caught])
-    notes = tuple(dict.fromkeys(str(w.message) for w in caught))
-    summary = {**summary, "warnings": len(notes)}
-    # made here, beside the road's computation: the store only writes these bytes
-    from .pack import file_bytes, layer_piece, manifest_bytes
-
-    data = file_bytes(files)
-    manifest = manifest_bytes(digest, data, spec.source, summary, curves, notes, passed)
     return RouteRecord(spec.route_id, spec.source, digest, True, files=data, summary=summary,
-                       manifest=manifest, layer=layer_piece(curves), warnings=notes,
-                       passed=passed, compute_s=time.perf_counter() - start)
+                       manifest=manifest, layer=layer, warnings=notes, passed=passed,
+                       compute_s=time.perf_counter() - start)
 
 
 class _RoadProblem(Exception):
