@@ -19,6 +19,7 @@ import hashlib
 import io
 import json
 import os
+import time
 
 import pytest
 
@@ -136,11 +137,14 @@ def test_layer_pieces_come_back_in_the_order_asked_and_leave_nothing(tmp_path):
     assert os.listdir(tmp_path) == []
 
 
-def test_the_local_clusters_workers_run_with_its_settings(dask_client):
+def test_the_local_clusters_workers_run_with_its_settings_also_when_started_again(
+        dask_client):
+    import signal
+
     import dask
     from dask.utils import parse_timedelta
 
-    from curvespeed.batch.cluster import SERVER_CLOCKS
+    from curvespeed.batch.cluster import SERVER_CLOCKS, WORKER_PROFILER
 
     def settings():
         return {key: dask.config.get(key) for key in SERVER_CLOCKS}
@@ -148,7 +152,21 @@ def test_the_local_clusters_workers_run_with_its_settings(dask_client):
     def tick_ms(dask_worker):
         return dask_worker.periodic_callbacks["tick"].callback_time
 
+    killed = next(iter(dask_client.run(os.getpid).values()))
+    os.kill(killed, signal.SIGKILL)                    # its nanny starts it again
+    deadline = time.monotonic() + 60
+    while True:
+        try:
+            pids = dask_client.run(os.getpid)
+            if len(pids) == 2 and killed not in pids.values():
+                break
+        except OSError:                                # the dead worker's connection
+            pass
+        assert time.monotonic() < deadline, "the killed worker was not started again"
+        time.sleep(0.2)
     assert list(dask_client.run(settings).values()) == [SERVER_CLOCKS] * 2
+    profiler = dask_client.run(lambda: dask.config.get("distributed.worker.profile.enabled"))
+    assert list(profiler.values()) == [WORKER_PROFILER] * 2
     # in force in each worker process's own periodic callback, not only in its settings
     tick = parse_timedelta(SERVER_CLOCKS["distributed.admin.tick.interval"]) * 1000
     assert list(dask_client.run(tick_ms).values()) == [tick] * 2

@@ -45,9 +45,12 @@ def start_local_cluster(n_workers: int | None = None):
     from distributed import Client, LocalCluster
 
     environ = {**dask.config.get("distributed.nanny.pre-spawn-environ", {}), **WORKER_ENVIRON}
-    with dask.config.set({"distributed.nanny.pre-spawn-environ": environ,
-                          "distributed.worker.profile.enabled": WORKER_PROFILER,
-                          **SERVER_CLOCKS}):
+    workers = {"distributed.worker.profile.enabled": WORKER_PROFILER, **SERVER_CLOCKS}
+    with dask.config.set({"distributed.nanny.pre-spawn-environ": environ, **workers}):
+        # the workers' settings also given to each nanny as its own: a worker the nanny starts
+        # again (after it died) gets them too, not Dask's defaults
         cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=True,
-                               dashboard_address=None, silence_logs=40)
+                               dashboard_address=None, silence_logs=40,
+                               config=workers)
     return cluster, Client(cluster)
+
