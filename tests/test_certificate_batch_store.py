@@ -125,6 +125,22 @@ def test_a_record_without_its_manifest_is_refused(tmp_path):
     assert os.listdir(store.folder) == []
 
 
+def test_bytes_the_manifest_does_not_vouch_for_are_not_written(tmp_path):
+    import dataclasses
+
+    from curvespeed.errors import BatchError
+
+    record = _one_record(tmp_path)
+    name = next(iter(record.files))
+    changed = dataclasses.replace(record, files={**record.files,
+                                                 name: record.files[name] + b"0\n"})
+    store = BatchStore(tmp_path / "out", "plan")
+    store.open()
+    with pytest.raises(BatchError, match=f"{name}: the manifest .* does not hold the SHA-256"):
+        store.save(changed)
+    assert os.listdir(store.folder) == []
+
+
 def test_layer_pieces_come_back_in_the_order_asked_and_leave_nothing(tmp_path):
     pieces = {2: b"third", 0: b"", 1: b"second piece"}
     with LayerSpool(tmp_path) as spool:

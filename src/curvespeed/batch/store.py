@@ -10,7 +10,9 @@ Layout (``plan``; ``check`` writes ``checks/`` instead of ``profiles/``)::
     OUTDIR/summary.csv, failures.csv, curves.geojson, curves.gpkg
 
 A road's files are written together (temporary files in the folder, renamed into place) and its
-manifest after them, so a manifest means the files are whole. A rerun reuses a road whose
+manifest after them, so a manifest means the files are whole. The task made the bytes and the
+manifest (:mod:`~curvespeed.batch.pack`); the store writes nothing of a road whose manifest
+does not hold the SHA-256 of the very bytes it is about to write. A rerun reuses a road whose
 manifest's digest matches the road and settings and whose files still have the recorded hashes;
 everything else is computed again. The folder must be new, empty, or one a batch of the same
 command wrote: nothing else in it is ever replaced.
@@ -124,6 +126,12 @@ class BatchStore:
         if not record.manifest:
             raise ValueError(f"road {record.route_id}: a record without its manifest cannot be "
                              "stored; records come from run_route")
+        for name, data in record.files.items():      # the manifest vouches for these bytes
+            if f'"{name}": "{sha256_hex(data)}"'.encode() not in record.manifest:
+                raise BatchError(f"{self.folder / name}: the manifest made for road "
+                                 f"{record.route_id} does not hold the SHA-256 of the bytes to "
+                                 "be written; nothing of the road was written (a fault of the "
+                                 "batch, not of the road: run it again)")
         outputs = OutputFiles(force=True, signals=False)
         for name in record.files:
             outputs.add_output(self.folder / name, f"the batch output {name}")
