@@ -114,15 +114,19 @@ def test_a_roads_files_and_manifest_are_written_all_or_none(tmp_path):
     assert blocker.read_bytes() == record.manifest
 
 
+def _refused(tmp_path, record, error, message):
+    store = BatchStore(tmp_path / "out", "plan")
+    store.open()
+    with pytest.raises(error, match=message):
+        store.save(record)
+    assert os.listdir(store.folder) == []              # nothing of the road written
+
+
 def test_a_record_without_its_manifest_is_refused(tmp_path):
     import dataclasses
 
     record = dataclasses.replace(_one_record(tmp_path), manifest=b"")
-    store = BatchStore(tmp_path / "out", "plan")
-    store.open()
-    with pytest.raises(ValueError, match=f"road {record.route_id}: .*without its manifest"):
-        store.save(record)
-    assert os.listdir(store.folder) == []
+    _refused(tmp_path, record, ValueError, f"road {record.route_id}: .*without its manifest")
 
 
 def test_bytes_the_manifest_does_not_vouch_for_are_not_written(tmp_path):
@@ -134,11 +138,7 @@ def test_bytes_the_manifest_does_not_vouch_for_are_not_written(tmp_path):
     name = next(iter(record.files))
     changed = dataclasses.replace(record, files={**record.files,
                                                  name: record.files[name] + b"0\n"})
-    store = BatchStore(tmp_path / "out", "plan")
-    store.open()
-    with pytest.raises(BatchError, match=f"{name}: the manifest .* does not hold the SHA-256"):
-        store.save(changed)
-    assert os.listdir(store.folder) == []
+    _refused(tmp_path, changed, BatchError, f"{name}: the manifest .* does not hold the SHA-256")
 
 
 def test_layer_pieces_come_back_in_the_order_asked_and_leave_nothing(tmp_path):
