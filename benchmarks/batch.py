@@ -8,8 +8,10 @@ each with its own posted speed and friction coefficient, planned with the defaul
 bound: the convex solver) at 1 m stations, the curves layer judged on the planned speeds.
 
 * **in-process:** :func:`curvespeed.batch.run_route` called on every road one after another in
-  this process (after one warm-up road): the work of one road with no batch machinery (no
-  cluster, no files). Its median is the per-road baseline.
+  this process (after one warm-up road): the task as a worker runs it (the plan, then the
+  outputs' bytes, their hashes, the manifest and the curves' features, which the task makes so
+  that the main process only writes them), with no cluster and no files written. Its median is
+  the per-road baseline.
 * **1 worker, 2 workers:** ``run_batch`` on a ``LocalCluster`` of that many single-thread worker
   processes, writing every output (profiles, sidecars, manifests, summary, curves layers). Each
   worker imports the numerics before the clock starts; the cluster's start is shown apart.

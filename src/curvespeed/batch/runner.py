@@ -15,7 +15,7 @@ import time
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
 
-from .store import BatchStore, safe_id
+from .store import BatchStore, LayerSpool, safe_id
 from .task import BatchSettings, RouteRecord, failure, input_digest, run_route
 
 #: Tasks in flight per worker thread: enough to keep every worker busy while results are
@@ -78,6 +78,12 @@ def run_batch(specs: Iterable, settings: BatchSettings, store: BatchStore, clien
     window : int or None
         Tasks in flight at most (default :data:`TASKS_PER_WORKER` per worker thread).
     """
+    with LayerSpool(store.outdir) as spool:
+        return _run(specs, settings, store, spool, _Submitter(client, settings, window),
+                    progress, resume)
+
+
+def _run(specs, settings, store, spool, submit, progress, resume) -> BatchOutcome:
     outcome = BatchOutcome()
     start = time.perf_counter()
     summaries: dict[int, dict] = {}
@@ -94,6 +100,7 @@ def run_batch(specs: Iterable, settings: BatchSettings, store: BatchStore, clien
             outcome.violations += record.passed is False
             summaries[order] = {"route_id": record.route_id, "source": record.source,
                                 **record.summary}
+            spool.add(order, record.layer)
         else:
             outcome.failed += 1
             failures[order] = {"route_id": record.route_id, "source": record.source,
@@ -102,7 +109,6 @@ def run_batch(specs: Iterable, settings: BatchSettings, store: BatchStore, clien
         if progress is not None:
             progress(outcome)
 
-    submit = _Submitter(client, settings, window)
     for spec in specs:
         outcome.total += 1
         spec = dataclasses.replace(spec, route_id=safe_id(spec.route_id))
@@ -128,7 +134,7 @@ def run_batch(specs: Iterable, settings: BatchSettings, store: BatchStore, clien
     outcome.failures = [failures[k] for k in sorted(failures)]
     ordered = sorted(summaries)
     store.write_aggregates([summaries[k] for k in ordered], outcome.failures,
-                           [summaries[k]["route_id"] for k in ordered])
+                           spool.pieces(ordered))
     outcome.elapsed_s = time.perf_counter() - start
     return outcome
 

@@ -10,7 +10,9 @@ Layout (``plan``; ``check`` writes ``checks/`` instead of ``profiles/``)::
     OUTDIR/summary.csv, failures.csv, curves.geojson, curves.gpkg
 
 A road's files are written together (temporary files in the folder, renamed into place) and its
-manifest after them, so a manifest means the files are whole. A rerun reuses a road whose
+manifest after them, so a manifest means the files are whole. The task made the bytes and the
+manifest (:mod:`~curvespeed.batch.pack`); the store writes nothing of a road whose manifest
+does not hold the SHA-256 of the very bytes it is about to write. A rerun reuses a road whose
 manifest's digest matches the road and settings and whose files still have the recorded hashes;
 everything else is computed again. The folder must be new, empty, or one a batch of the same
 command wrote: nothing else in it is ever replaced.
@@ -18,14 +20,15 @@ command wrote: nothing else in it is ever replaced.
 
 from __future__ import annotations
 
-import hashlib
 import json
 import os
 import re
+from collections.abc import Iterable, Iterator
 from pathlib import Path
 
 from .. import __version__
 from ..errors import BatchError
+from .pack import layer_piece, read_layer_piece, sha256_hex
 from .task import RouteRecord
 
 MARKER = "batch.json"
@@ -42,10 +45,6 @@ def safe_id(route_id: str) -> str:
     become ``_``; no leading dot; at most :data:`MAX_ID` characters."""
     text = _UNSAFE.sub("_", route_id.strip())[:MAX_ID].lstrip(".")
     return text or "_"
-
-
-def _sha256(data: bytes) -> str:
-    return hashlib.sha256(data).hexdigest()
 
 
 class BatchStore:
@@ -105,40 +104,42 @@ class BatchStore:
             if manifest.get("input_sha256") != digest:
                 return None
             for name, sha in manifest["files"].items():
-                if _sha256((self.folder / name).read_bytes()) != sha:
+                if sha256_hex((self.folder / name).read_bytes()) != sha:
                     return None
             record = manifest["record"]
-        except (OSError, ValueError, KeyError, TypeError):
+            layer = layer_piece(record["curves"])
+        except (OSError, ValueError, KeyError, TypeError, AttributeError):
             return None
         return RouteRecord(route_id, record["source"], digest, True,
-                           summary=record["summary"], curves=tuple(record["curves"]),
+                           summary=record["summary"], layer=layer,
                            warnings=tuple(record["warnings"]), passed=record["passed"])
 
     def save(self, record: RouteRecord) -> None:
-        """Write a processed road's files, then its manifest; for a failure, remove what an
-        earlier run left for that id (it no longer matches the inputs)."""
+        """Write a processed road's files, then its manifest (renamed into place after every
+        file is); for a failure, remove what an earlier run left for that id (it no longer
+        matches the inputs)."""
         from ..io.atomic import OutputFiles
 
         if not record.ok:
             self.discard(record.route_id)
             return
+        if not record.manifest:
+            raise ValueError(f"road {record.route_id}: a record without its manifest cannot be "
+                             "stored; records come from run_route")
+        for name, data in record.files.items():      # the manifest vouches for these bytes
+            if f'"{name}": "{sha256_hex(data)}"'.encode() not in record.manifest:
+                raise BatchError(f"{self.folder / name}: the manifest made for road "
+                                 f"{record.route_id} does not hold the SHA-256 of the bytes to "
+                                 "be written; nothing of the road was written (a fault of the "
+                                 "batch, not of the road: run it again)")
         outputs = OutputFiles(force=True, signals=False)
         for name in record.files:
             outputs.add_output(self.folder / name, f"the batch output {name}")
+        path = outputs.add_output(self.manifest_path(record.route_id), "a batch manifest")
         with outputs:
-            for name, text in record.files.items():
-                outputs.write_text(self.folder / name, text)
-        manifest = {"input_sha256": record.input_sha256,
-                    "files": {name: _sha256(text.encode("utf-8"))
-                              for name, text in record.files.items()},
-                    "record": {"source": record.source, "summary": record.summary,
-                               "curves": list(record.curves), "warnings": list(record.warnings),
-                               "passed": record.passed}}
-        path = self.manifest_path(record.route_id)
-        outputs = OutputFiles(force=True, signals=False)
-        outputs.add_output(path, "a batch manifest")
-        with outputs:
-            outputs.write_text(path, json.dumps(manifest, allow_nan=True) + "\n")
+            for name, data in record.files.items():
+                outputs.write_bytes(self.folder / name, data)
+            outputs.write_bytes(path, record.manifest)
 
     def discard(self, route_id: str) -> None:
         path = self.manifest_path(route_id)
@@ -152,15 +153,10 @@ class BatchStore:
             except FileNotFoundError:
                 pass
 
-    def stored_curves(self, route_id: str) -> list:
-        """The curves recorded in a road's manifest (for the layers, read back one road at a
-        time so they are never all in memory)."""
-        return json.loads(self.manifest_path(route_id).read_text())["record"]["curves"]
-
     def write_aggregates(self, summaries: list[dict], failures: list[dict],
-                         curve_ids: list[str]) -> None:
+                         pieces: Iterable[bytes]) -> None:
         """``summary.csv``, ``failures.csv`` and the curves layers, each renamed into place
-        whole; ``curve_ids`` are the processed roads in output order."""
+        whole; ``pieces`` are the processed roads' layer pieces in output order."""
         import tempfile
 
         from ..io.atomic import OutputFiles
@@ -173,10 +169,11 @@ class BatchStore:
         try:
             with tmp_json as fh:
                 geojson, gpkg = CurvesGeoJSON(fh), CurvesGeoPackage(str(tmp_gpkg))
-                for route_id in curve_ids:
-                    for curve in self.stored_curves(route_id):
-                        geojson.add(curve)
-                        gpkg.add(curve)
+                for piece in pieces:
+                    text, rows = read_layer_piece(piece)
+                    geojson.add_text(text, len(rows))
+                    for curve, wkb in rows:
+                        gpkg.add_row(curve, wkb)
                 geojson.close()
                 gpkg.close()
             outputs = OutputFiles(force=True, signals=False)
@@ -191,3 +188,36 @@ class BatchStore:
         finally:
             for leftover in (Path(tmp_json.name), tmp_gpkg):
                 leftover.unlink(missing_ok=True)
+
+
+class LayerSpool:
+    """The processed roads' layer pieces, kept in an unnamed temporary file in the output folder
+    until the layers are written in input order: a network of any size is never held in memory,
+    and nothing is left behind however the batch ends. Use as a context manager."""
+
+    def __init__(self, folder: str | os.PathLike):
+        import tempfile
+
+        self.fh = tempfile.TemporaryFile(dir=folder)
+        self.where: dict[int, tuple[int, int]] = {}
+        self.end = 0
+
+    def add(self, order: int, piece: bytes) -> None:
+        self.fh.write(piece)
+        self.where[order] = (self.end, len(piece))
+        self.end += len(piece)
+
+    def pieces(self, orders: Iterable[int]) -> Iterator[bytes]:
+        """The pieces of ``orders``, in that order."""
+        self.fh.flush()
+        for order in orders:
+            start, size = self.where[order]
+            self.fh.seek(start)
+            yield self.fh.read(size)
+        self.fh.seek(self.end)
+
+    def __enter__(self) -> LayerSpool:
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.fh.close()

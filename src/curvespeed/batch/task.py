@@ -82,12 +82,15 @@ class RouteRecord:
     error_type, message : str
         For a failure: the error's class name and its message.
     files : dict
-        Output file name (within the batch's route folder) -> text.
+        Output file name (within the batch's route folder) -> its bytes (UTF-8 text).
     summary : dict
         The road's row of ``summary.csv`` (SI units in the keys).
-    curves : tuple of dict
-        One entry per curve for the curves layer, with its ``lonlat`` positions (None for a road
-        in a local metric frame).
+    manifest : bytes
+        The road's manifest, written after its files (:mod:`~curvespeed.batch.pack`); empty for
+        a failure and for a road taken from an earlier run.
+    layer : bytes
+        The road's curves as the layers are written from them (:func:`~curvespeed.batch.pack.
+        layer_piece`); :attr:`curves` reads them.
     warnings : tuple of str
         Warnings raised while the road was read, fitted, planned or checked.
     passed : bool or None
@@ -104,10 +107,19 @@ class RouteRecord:
     message: str = ""
     files: dict = field(default_factory=dict)
     summary: dict = field(default_factory=dict)
-    curves: tuple = ()
+    manifest: bytes = b""
+    layer: bytes = b""
     warnings: tuple = ()
     passed: bool | None = None
     compute_s: float = 0.0
+
+    @property
+    def curves(self) -> list[dict]:
+        """One entry per curve for the curves layer, with its ``lonlat`` positions (None for a
+        road in a local metric frame)."""
+        from .pack import piece_curves
+
+        return piece_curves(self.layer)
 
 
 def input_digest(spec, settings: BatchSettings) -> str:
@@ -136,19 +148,24 @@ def run_route(spec, settings: BatchSettings, digest: str) -> RouteRecord:
         try:
             if spec.problem:
                 raise _RoadProblem(spec.problem)
+            from .pack import file_bytes, layer_piece, manifest_bytes
             from .work import check_road, plan_road
 
             work = plan_road if settings.command == "plan" else check_road
             files, summary, curves, passed = work(spec, settings, digest)
+            notes = tuple(dict.fromkeys(str(w.message) for w in caught))
+            summary = {**summary, "warnings": len(notes)}
+            # made here, beside the road's computation: the store only writes these bytes
+            data = file_bytes(files)
+            manifest = manifest_bytes(digest, data, spec.source, summary, curves, notes, passed)
+            layer = layer_piece(curves)
         except Exception as exc:       # a road's failure is its record; the batch goes on
             message = str(exc) or repr(exc)
             kind = "InputError" if isinstance(exc, _RoadProblem) else type(exc).__name__
             return failure(spec, digest, kind, message, time.perf_counter() - start,
                            [str(w.message) for w in caught])
-    notes = tuple(dict.fromkeys(str(w.message) for w in caught))
-    summary = {**summary, "warnings": len(notes)}
-    return RouteRecord(spec.route_id, spec.source, digest, True, files=files, summary=summary,
-                       curves=tuple(curves), warnings=notes, passed=passed,
+    return RouteRecord(spec.route_id, spec.source, digest, True, files=data, summary=summary,
+                       manifest=manifest, layer=layer, warnings=notes, passed=passed,
                        compute_s=time.perf_counter() - start)
 
 

@@ -113,11 +113,25 @@ class CurvesGeoJSON:
         fh.write('{"type": "FeatureCollection", "features": [\n')
 
     def add(self, curve: dict) -> None:
-        self.fh.write((",\n" if self.count else "") + curve_feature_text(curve))
-        self.count += 1
+        self.add_text(curve_feature_text(curve), 1)
+
+    def add_text(self, text: str, count: int) -> None:
+        """``count`` features already made by :func:`curve_feature_text`, joined by ``,\n``."""
+        if count:
+            self.fh.write((",\n" if self.count else "") + text)
+            self.count += count
 
     def close(self) -> None:
         self.fh.write("\n]}\n")
+
+
+def curve_wkb(curve: dict) -> bytes | None:
+    """A curve's line as the GeoPackage stores it (WKB); None for a road in a local frame."""
+    import shapely
+
+    if not curve.get("lonlat"):
+        return None
+    return shapely.to_wkb(shapely.linestrings(curve["lonlat"]))
 
 
 class CurvesGeoPackage:
@@ -128,22 +142,26 @@ class CurvesGeoPackage:
     def __init__(self, path: str):
         self.path = path
         self.rows: list[dict] = []
+        self.geoms: list = []
         self.started = False
 
     def add(self, curve: dict) -> None:
+        self.add_row(curve, curve_wkb(curve))
+
+    def add_row(self, curve: dict, wkb: bytes | None) -> None:
+        """A curve whose line :func:`curve_wkb` made already (its ``lonlat`` is not read)."""
         self.rows.append(curve)
+        self.geoms.append(wkb)
         if len(self.rows) >= self.BLOCK:
             self._flush()
 
     def _flush(self) -> None:
         import numpy as np
         import pyogrio.raw
-        import shapely
 
         if not self.rows and self.started:
             return
-        geoms = [None if not r.get("lonlat") else shapely.to_wkb(shapely.linestrings(r["lonlat"]))
-                 for r in self.rows]
+        geoms = self.geoms
         fields, data = [], []
         for name, spec in CURVE_FIELDS:
             fields.append(name)
@@ -158,7 +176,7 @@ class CurvesGeoPackage:
                           layer="curves", driver="GPKG", geometry_type="LineString",
                           crs="EPSG:4326", append=self.started)
         self.started = True
-        self.rows = []
+        self.rows, self.geoms = [], []
 
     def close(self) -> None:
         self._flush()
