@@ -253,16 +253,16 @@ def _window_qps(monkeypatch, route: str, limits: Limits, station: float, speed: 
     """The QPs of a few receding-horizon windows as the Replanner hands them to the banded
     method (recorded on the way): ``(qp, eps, centre, scale, gap_abs)``."""
     from curvespeed.replan import Replanner
-    from curvespeed.solvers import convex
+    from curvespeed.solvers import qp_batches
 
     seen = []
-    solve = convex.solve_row_qp
+    solve = qp_batches.solve_row_qp
 
     def record(qp, eps, centre, scale, gap_abs=None, near_centre=False):
         seen.append((qp, eps, centre, scale, gap_abs))
         return solve(qp, eps, centre, scale, gap_abs=gap_abs, near_centre=near_centre)
 
-    monkeypatch.setattr(convex, "solve_row_qp", record)
+    monkeypatch.setattr(qp_batches, "solve_row_qp", record)
     geo = build_geometry(read_route(ROUTES / route))
     rp = Replanner(geo, limits, options=ConvexOptions(threads=1, max_iterations=1))
     seen.clear()                # not the whole route's plan
