@@ -56,6 +56,8 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[1]
 if str(ROOT) not in sys.path:          # run as a script: make ``benchmarks`` importable
     sys.path.insert(0, str(ROOT))
+if str(ROOT / "tests") not in sys.path:   # the simulated logs and the closed form live there
+    sys.path.insert(0, str(ROOT / "tests"))
 
 from benchmarks._elements import element_table  # noqa: E402
 from benchmarks.judge import judge_profile  # noqa: E402
@@ -197,15 +199,21 @@ def plan_with_cli(case: RoadCase, workdir: Path):
     from curvespeed.io.profile_csv import read_station_profile
 
     points = write_points(case.alignment, workdir / f"{case.name}.csv")
-    profile = workdir / f"{case.name}_profile.csv"
-    exe = Path(sys.executable).with_name("curvespeed")
     t0 = time.perf_counter()
+    profile = _run_plan(case, points, case.name)
+    return read_station_profile(profile), time.perf_counter() - t0
+
+
+def _run_plan(case: RoadCase, points: Path, what: str) -> Path:
+    """``curvespeed plan`` on ``points`` with the case's options, in its own process; the
+    profile's path. A refusal is a RuntimeError with the command's message."""
+    profile = points.with_name(points.stem + "_profile.csv")
+    exe = Path(sys.executable).with_name("curvespeed")
     done = subprocess.run([str(exe), "plan", str(points), "-o", str(profile), "--force",
                            *case.plan_options()], check=False, capture_output=True, text=True)
-    elapsed = time.perf_counter() - t0
     if done.returncode != 0:
-        raise RuntimeError(f"curvespeed plan failed on {case.name}: {done.stderr.strip()}")
-    return read_station_profile(profile), elapsed
+        raise RuntimeError(f"curvespeed plan failed on {what}: {done.stderr.strip()}")
+    return profile
 
 
 #: Simulated logs each road is also planned from (receiver, logging rate in Hz): the error
@@ -234,7 +242,6 @@ def plan_from_log(case: RoadCase, workdir: Path, receiver: str, rate_hz: float, 
     estimated from the log, as by default): the profile and the log's drift-free length error."""
     from curvespeed.io.profile_csv import read_station_profile
 
-    sys.path.insert(0, str(ROOT / "tests"))
     from drive_logs import CONSUMER, RTK, simulate_drive
 
     log = simulate_drive(case.alignment, rate_hz, {"RTK": RTK, "consumer": CONSUMER}[receiver],
@@ -242,14 +249,7 @@ def plan_from_log(case: RoadCase, workdir: Path, receiver: str, rate_hz: float, 
     points = workdir / f"{case.name}_{receiver}_{rate_hz:g}hz.csv"
     points.write_text("x_m,y_m\n" + "".join(f"{a:.4f},{b:.4f}\n"
                                              for a, b in zip(log.x_m, log.y_m)))
-    profile = points.with_name(points.stem + "_profile.csv")
-    exe = Path(sys.executable).with_name("curvespeed")
-    done = subprocess.run([str(exe), "plan", str(points), "-o", str(profile), "--force",
-                           *case.plan_options()], check=False, capture_output=True, text=True)
-    if done.returncode != 0:
-        raise RuntimeError(f"curvespeed plan failed on the {receiver} log of {case.name}: "
-                           f"{done.stderr.strip()}")
-    return read_station_profile(profile)
+    return read_station_profile(_run_plan(case, points, f"the {receiver} log of {case.name}"))
 
 
 def plan_on_exact_geometry(case: RoadCase):
@@ -350,19 +350,21 @@ def log_table(results: list[dict]) -> str:
 def double_s_rows(spacing_m: float = POINT_SPACING_M) -> list[tuple]:
     """Rest-to-rest moves on a straight planned at ``spacing_m`` against the double-S closed
     form (Biagiotti & Melchiorri 2008, section 3.4): (L, v, a, j, closed form s, planned s)."""
-    from curvespeed.planner import plan_profile
+    return [double_s_row(L, v, a, j, spacing_m)
+            for L, v, a, j in ((1000.0, 20.0, 1.5, 2.0), (500.0, 20.0, 1.5, 1.0),
+                               (200.0, 40.0, 1.5, 1.0), (200.0, 40.0, 3.0, 0.5))]
 
-    sys.path.insert(0, str(ROOT / "tests"))
+
+def double_s_row(L: float, v: float, a: float, j: float, spacing_m: float) -> tuple:
+    """One rest-to-rest move of ``L`` m on a straight under caps ``v``, ``a`` (both ways) and
+    ``j``, planned at ``spacing_m``: (L, v, a, j, closed form s, planned s)."""
+    from curvespeed.planner import plan_profile
     from test_reference_convex import double_s_time
 
-    rows = []
-    for L, v, a, j in ((1000.0, 20.0, 1.5, 2.0), (500.0, 20.0, 1.5, 1.0),
-                       (200.0, 40.0, 1.5, 1.0), (200.0, 40.0, 3.0, 0.5)):
-        limits = Limits(max_speed_mps=v, max_accel_mps2=a, max_decel_mps2=a, max_jerk_mps3=j,
-                        friction_coefficient=0.9)
-        profile = plan_profile(Alignment((line(L),)).to_geometry(spacing_m), limits)
-        rows.append((L, v, a, j, double_s_time(L, v, a, j), float(profile.time_s[-1])))
-    return rows
+    limits = Limits(max_speed_mps=v, max_accel_mps2=a, max_decel_mps2=a, max_jerk_mps3=j,
+                    friction_coefficient=0.9)
+    profile = plan_profile(Alignment((line(L),)).to_geometry(spacing_m), limits)
+    return (L, v, a, j, double_s_time(L, v, a, j), float(profile.time_s[-1]))
 
 
 #: The grid of rest-to-rest moves swept by :func:`double_s_sweep`: lengths from a few stations to
@@ -376,18 +378,8 @@ def double_s_sweep(spacing_m: float = POINT_SPACING_M) -> list[tuple]:
     """Every move of :data:`SWEEP` planned at ``spacing_m`` (rows as :func:`double_s_rows`)."""
     import itertools
 
-    from curvespeed.planner import plan_profile
-
-    sys.path.insert(0, str(ROOT / "tests"))
-    from test_reference_convex import double_s_time
-
-    rows = []
-    for L, v, a, j in itertools.product(*SWEEP.values()):
-        limits = Limits(max_speed_mps=v, max_accel_mps2=a, max_decel_mps2=a, max_jerk_mps3=j,
-                        friction_coefficient=0.9)
-        profile = plan_profile(Alignment((line(L),)).to_geometry(spacing_m), limits)
-        rows.append((L, v, a, j, double_s_time(L, v, a, j), float(profile.time_s[-1])))
-    return rows
+    return [double_s_row(L, v, a, j, spacing_m)
+            for L, v, a, j in itertools.product(*SWEEP.values())]
 
 
 def sweep_summary(rows: list[tuple], worst: int = 3) -> str:
