@@ -49,6 +49,15 @@ RESOLVED = 4.0
 #: with 5 cm of noise on the winding road let a line fitted across a straight and a clothoid
 #: set the bound 3 % short of the clothoid 58 m past the step (tests/test_reference_steps.py).
 REACH = 2.0
+#: Shortest element, in spread widths of the fine scale, whose line a candidate may join: the
+#: fine scale blurs each end of an element over a spread width and rings over another, so only
+#: a longer element has an interior whose curvature is its own; a shorter one's line is read
+#: off its ends' blur and need not be the road's. Logs at 1 Hz (fixes 11-14 m apart) showed it:
+#: a consumer receiver's log (spread 54 m) read an arc of 104 m entered without a clothoid as
+#: part of one line rising over 187 m, and candidates joining it set the bound 30-68 % short of
+#: the arc; an RTK log (spread 22 m) read a 40 m clothoid and a 60 m arc as lines 2-8 % short
+#: (tests/test_reference_steps.py). On exact points every element is at least 4.6 spread widths.
+MIN_LINE_SPREADS = 4.0
 #: Largest number of (point, candidate) pairs one transition is compared on, about 0.5 s;
 #: denser logs (a fix every 0.2 m planned at 10 m stations) keep the bound they had.
 MAX_WORK = 3_000_000
@@ -99,7 +108,11 @@ def confirm_steps(rebuilt, fine: FineScale, u_points: np.ndarray, values: np.nda
     centres = []
     point_station = np.interp(u_points, u_nodes, station)
     edges = np.concatenate(([-np.inf], rebuilt.breaks_m, [np.inf]))
+    ends = np.concatenate(([station[0]], rebuilt.breaks_m, [station[-1]]))
     for left, right, centre, reach in _transitions(rebuilt, edges, fine.spread_m):
+        if min(ends[left + 1] - ends[left], ends[right + 1] - ends[right]) < (
+                MIN_LINE_SPREADS * fine.spread_m):
+            continue        # a line read off its ends' blur: no candidate stands for the road
         near = _Step(rebuilt, left, right, centre, edges, station, fine.spread_m)
         if near.evaluate.size < 3 or abs(near.right[0] - near.left[0]) < (
                 RESOLVED * gamma * float(np.max(fine.sd[near.evaluate]))):
