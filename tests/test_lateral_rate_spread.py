@@ -118,3 +118,47 @@ def test_rtk_log_planned_under_a_lateral_jerk_bound_holds_on_the_exact_road():
     assert judged.use["lateral_jerk"] <= 1.01, judged.where_m["lateral_jerk"]
     for limit in ("lateral", "comfort_ellipse", "jerk"):
         assert judged.use[limit] <= 1.01, (limit, judged.where_m[limit])
+
+
+def test_seam_between_a_line_and_the_adaptive_estimate_is_joined_on_the_adaptive_side():
+    from curvespeed.geometry.curvature import _join_seams
+
+    station = np.arange(60.0)
+    line = 1e-4 * station                                   # a clothoid's line, stations 0-19
+    kappa = np.where(station < 20, line, 2.5e-3)            # the arc's adaptive estimate after
+    source = np.where(station < 20, 1, 0)
+    width = np.full(60, 10.0)
+    joined = _join_seams(kappa, source, station, width)
+    np.testing.assert_array_equal(joined[:20], kappa[:20])  # the line keeps its values
+    assert joined[20] == pytest.approx(kappa[19])           # the adaptive side meets it
+    # and eases back to its own estimate linearly over its spread width (10 m)
+    expected = 2.5e-3 + (kappa[19] - 2.5e-3) * np.clip(1 - (station[20:] - 20) / 10, 0, 1)
+    np.testing.assert_allclose(joined[20:], expected, rtol=0, atol=1e-15)
+    # no step changes by more than the jump shared out over the spread, plus the line's rate
+    assert np.max(np.abs(np.diff(joined))) <= 1e-4 + abs(kappa[19] - 2.5e-3) / 10 + 1e-15
+
+
+def test_rtk_log_plan_is_not_held_back_by_a_seam_of_the_estimate():
+    # The RTK log of the lateral-jerk S-curve (10 Hz, seed 5): a clothoid's line run 3 m past
+    # its joint met the arc's adaptive estimate with a jump of 4.3e-4 1/m in one step; read as
+    # a rate of -4.6e-4 1/m^2 and spread over the arc, it held the plan to 10.4 m/s where the
+    # exact road allows 15.3, 10.7 % slower per metre than the optimum. Joined on the adaptive
+    # side: 2.8 % slower than the plan on the exact geometry (36.16 s), the rest being the rates
+    # of the joints the fit cannot place, taken at their widest. 5 % holds that with room for
+    # the solver's and the noise replicates' round-off, and fails the seam's 10 %.
+    from benchmarks.exact_roads import exact_roads, extended
+    from benchmarks.judge import judge_profile
+    from curvespeed.geometry import build_geometry
+    from curvespeed.planner import plan_profile
+    from curvespeed.route import make_route
+    from drive_logs import RTK, simulate_drive
+
+    case = {c.name: c for c in exact_roads()}["s-curve-lateral-jerk"]
+    log = simulate_drive(case.alignment, 10.0, RTK, seed=5, dwell_s=5.0)
+    geometry = build_geometry(make_route(log.x_m, log.y_m, source="simulated RTK log"))
+    profile = plan_profile(geometry, case.limits, case.constraints(), warn_limits=False)
+    exact = plan_profile(case.alignment.to_geometry(1.0, name=case.name), case.limits,
+                         case.constraints(), warn_limits=False)
+    assert profile.time_s[-1] <= 1.05 * exact.time_s[-1]
+    judged = judge_profile(profile, extended(case.alignment, 20.0), case.limits)
+    assert judged.use["lateral_jerk"] <= 1.01, judged.where_m["lateral_jerk"]

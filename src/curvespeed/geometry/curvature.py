@@ -186,12 +186,40 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
         k, s = np.where(use, rebuilt.kappa, k), np.where(use, rebuilt.sd, s)
         # and the candidate that fits them best is the estimate there (within the bound)
         k = np.where(steps.explained, steps.kappa, k)
+        k = _join_seams(k, np.where(steps.explained, 2, use.astype(int)), station, w)
         # the lines keep the joints where they are trusted; a candidate step stands where the
         # points cannot place it to better than the smoothing's spread
         on_line = use & ~steps.explained
         spread = np.where(on_line, 0.0, w)
         margin = np.where(on_line, _line_rate_margin(rebuilt, station), 0.0)
     return CurvatureEstimate(k, s, bound, w, level, spread, margin)
+
+
+def _join_seams(kappa, source, station, width) -> np.ndarray:
+    """``kappa`` pieced from several estimates (``source`` per station: 0 the adaptive one,
+    else lines or candidates) made continuous where the adaptive estimate meets another.
+
+    At such a seam the two estimates of the same curvature differ by as much as they may (the
+    bound covers both), but a jump between them reads as a rate the road does not have: an RTK
+    log's clothoid line run 3 m past its joint into an arc jumped by 4.3e-4 1/m over one step,
+    a rate of -4.6e-4 1/m^2 against the road's 0 and 1.4e-4, which the lateral jerk bound then
+    spread over the arc (tests/test_lateral_rate_spread.py). The adaptive side, whose spread
+    already admits a change that far, takes the jump instead, tapering it linearly to nothing
+    over its spread width ``width`` from the seam.
+    """
+    seams = np.flatnonzero((source[:-1] != source[1:]) & ((source[:-1] == 0) | (source[1:] == 0)))
+    if seams.size == 0:
+        return kappa
+    out = kappa.copy()
+    for i in seams:
+        a = i + 1 if source[i] else i               # the adaptive side's node at the seam
+        other = i if source[i] else i + 1
+        side = np.sign(a - other)
+        reach = max(float(width[a]), float(station[1] - station[0]))
+        d = side * (station - station[a])
+        taper = np.where((d >= 0.0) & (source == 0), np.clip(1.0 - d / reach, 0.0, 1.0), 0.0)
+        out += (kappa[other] - kappa[a]) * taper
+    return out
 
 
 def _line_rate_margin(rebuilt, station) -> np.ndarray:
