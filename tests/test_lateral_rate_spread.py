@@ -128,7 +128,7 @@ def test_seam_between_a_line_and_the_adaptive_estimate_is_joined_on_the_adaptive
     kappa = np.where(station < 20, line, 2.5e-3)            # the arc's adaptive estimate after
     source = np.where(station < 20, 1, 0)
     width = np.full(60, 10.0)
-    joined = _join_seams(kappa, source, station, width)
+    joined = _join_seams(kappa, source, station, width, np.full(60, 0.01))
     np.testing.assert_array_equal(joined[:20], kappa[:20])  # the line keeps its values
     assert joined[20] == pytest.approx(kappa[19])           # the adaptive side meets it
     # and eases back to its own estimate linearly over its spread width (10 m)
@@ -136,6 +136,11 @@ def test_seam_between_a_line_and_the_adaptive_estimate_is_joined_on_the_adaptive
     np.testing.assert_allclose(joined[20:], expected, rtol=0, atol=1e-15)
     # no step changes by more than the jump shared out over the spread, plus the line's rate
     assert np.max(np.abs(np.diff(joined))) <= 1e-4 + abs(kappa[19] - 2.5e-3) / 10 + 1e-15
+    # and the adaptive side stays within its bound where the line's value lies beyond it (a
+    # line run past its joint: 3.0e-3 at the seam against the arc's 2.5e-3 and bound 2.6e-3)
+    past = np.where(station < 20, 3.0e-3 / 19 * station, 2.5e-3)
+    joined = _join_seams(past, source, station, width, np.full(60, 2.6e-3))
+    assert np.max(joined[20:]) == 2.6e-3 and joined[19] == past[19]
 
 
 def test_rtk_log_plan_is_not_held_back_by_a_seam_of_the_estimate():

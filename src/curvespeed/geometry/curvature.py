@@ -186,7 +186,7 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
         k, s = np.where(use, rebuilt.kappa, k), np.where(use, rebuilt.sd, s)
         # and the candidate that fits them best is the estimate there (within the bound)
         k = np.where(steps.explained, steps.kappa, k)
-        k = _join_seams(k, np.where(steps.explained, 2, use.astype(int)), station, w)
+        k = _join_seams(k, np.where(steps.explained, 2, use.astype(int)), station, w, bound)
         # the lines keep the joints where they are trusted; a candidate step stands where the
         # points cannot place it to better than the smoothing's spread
         on_line = use & ~steps.explained
@@ -195,7 +195,7 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
     return CurvatureEstimate(k, s, bound, w, level, spread, margin)
 
 
-def _join_seams(kappa, source, station, width) -> np.ndarray:
+def _join_seams(kappa, source, station, width, bound) -> np.ndarray:
     """``kappa`` pieced from several estimates (``source`` per station: 0 the adaptive one,
     else lines or candidates) made continuous where the adaptive estimate meets another.
 
@@ -205,7 +205,8 @@ def _join_seams(kappa, source, station, width) -> np.ndarray:
     a rate of -4.6e-4 1/m^2 against the road's 0 and 1.4e-4, which the lateral jerk bound then
     spread over the arc (tests/test_lateral_rate_spread.py). The adaptive side, whose spread
     already admits a change that far, takes the jump instead, tapering it linearly to nothing
-    over its spread width ``width`` from the seam.
+    over its spread width ``width`` from the seam, and never beyond ``bound`` (the line's value
+    may lie outside the bound the adaptive side's station has: a line run past its joint).
     """
     seams = np.flatnonzero((source[:-1] != source[1:]) & ((source[:-1] == 0) | (source[1:] == 0)))
     if seams.size == 0:
@@ -219,7 +220,7 @@ def _join_seams(kappa, source, station, width) -> np.ndarray:
         d = side * (station - station[a])
         taper = np.where((d >= 0.0) & (source == 0), np.clip(1.0 - d / reach, 0.0, 1.0), 0.0)
         out += (kappa[other] - kappa[a]) * taper
-    return out
+    return np.where(source == 0, np.clip(out, -bound, bound), out)
 
 
 def _line_rate_margin(rebuilt, station) -> np.ndarray:
