@@ -161,6 +161,8 @@ def test_rtk_log_plan_is_not_held_back_by_a_seam_of_the_estimate():
     case = {c.name: c for c in exact_roads()}["s-curve-lateral-jerk"]
     log = simulate_drive(case.alignment, 10.0, RTK, seed=5, dwell_s=5.0)
     geometry = build_geometry(make_route(log.x_m, log.y_m, source="simulated RTK log"))
+    # the joined estimate stays within the bound the plan is made on (check reads both)
+    assert np.all(np.abs(geometry.curvature_1pm) <= geometry.curvature_bound_1pm)
     profile = plan_profile(geometry, case.limits, case.constraints(), warn_limits=False)
     exact = plan_profile(case.alignment.to_geometry(1.0, name=case.name), case.limits,
                          case.constraints(), warn_limits=False)
