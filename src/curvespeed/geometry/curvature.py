@@ -212,14 +212,24 @@ def _join_seams(kappa, source, station, width, bound) -> np.ndarray:
     if seams.size == 0:
         return kappa
     out = kappa.copy()
-    for i in seams:
-        a = i + 1 if source[i] else i               # the adaptive side's node at the seam
-        other = i if source[i] else i + 1
-        side = np.sign(a - other)
-        reach = max(float(width[a]), float(station[1] - station[0]))
-        d = side * (station - station[a])
-        taper = np.where((d >= 0.0) & (source == 0), np.clip(1.0 - d / reach, 0.0, 1.0), 0.0)
-        out += (kappa[other] - kappa[a]) * taper
+    # each adaptive station's run of adaptive stations, [first, end): a taper stays in its run
+    change = np.flatnonzero(np.diff((source == 0).astype(np.int8))) + 1
+    first = np.concatenate(([0], change))
+    end = np.concatenate((change, [station.size]))
+    run = np.searchsorted(first, np.arange(station.size), side="right") - 1
+    ds = float(station[1] - station[0])
+    for i in seams.tolist():
+        a, other = (i + 1, i) if source[i] else (i, i + 1)   # the adaptive side's node, the other's
+        reach = max(float(width[a]), ds)
+        if a > other:
+            at = slice(a, min(int(end[run[a]]), int(np.searchsorted(
+                station, station[a] + reach, side="right"))))
+            d = station[at] - station[a]
+        else:
+            at = slice(max(int(first[run[a]]), int(np.searchsorted(
+                station, station[a] - reach, side="left"))), a + 1)
+            d = station[a] - station[at]
+        out[at] += (kappa[other] - kappa[a]) * np.clip(1.0 - d / reach, 0.0, 1.0)
     return np.where(source == 0, np.clip(out, -bound, bound), out)
 
 
