@@ -661,8 +661,8 @@ def test_compiled_replicate_curvature_matches_numpy(periodic):
     bases checked against scipy's BSpline above; curvature (x'y'' - y'x'') / |r'|^3,
     textbook), on a circle of radius 40 m fitted at 0.5 m with 5 cm replicates, open and as a
     loop. The kernel takes the numpy path's operations in its order (built without fused
-    multiply-adds; sqrt is correctly rounded), so the two agree to the last bit; the changes
-    themselves reach 3e-3 to 2e-2 1/m."""
+    multiply-adds; sqrt is correctly rounded), so the two agree to the last bit, and so does the
+    running sum of their squares it adds; the changes themselves reach 3e-3 to 2e-2 1/m."""
     from types import SimpleNamespace
 
     from curvespeed.geometry import scales
@@ -693,8 +693,26 @@ def test_compiled_replicate_curvature_matches_numpy(periodic):
     first, v1, v2 = got._bases(u_nodes, slice(0, None), True)
     with pytest.raises(ValueError, match="wrong size or type"):
         kernel.changes(first.astype(float), v1, v2, delta, got.d1, got.d2, got.kappa,
-                       np.empty((u_nodes.size, scales.CHUNK)), u_nodes.size, SPLINE_DEGREE + 1,
-                       delta.shape[0], scales.CHUNK)
+                       np.empty((u_nodes.size, scales.CHUNK)), None, u_nodes.size,
+                       SPLINE_DEGREE + 1, delta.shape[0], scales.CHUNK)
+    # the running sum of squared changes the kernel adds (numpy's pairwise order for a row of
+    # 8) is numpy's own sum, to the last bit, on a second chunk too; without it, the changes
+    # alone for another number of replicates
+    rows = delta[np.arange(n_int + SPLINE_DEGREE) % n_int] if periodic else delta
+    rows = np.ascontiguousarray(rows)
+    sums = ref.sum_sq.copy()
+    out = np.empty((u_nodes.size, scales.CHUNK))
+    kernel.changes(first, v1, v2, rows, got.d1, got.d2, got.kappa, out, sums, u_nodes.size,
+                   SPLINE_DEGREE + 1, rows.shape[0], scales.CHUNK)
+    assert np.array_equal(sums, ref.sum_sq + np.sum(ref.deltas[0] ** 2, axis=1))
+    half = np.ascontiguousarray(rows[:, [0, 1, 2, 8, 9, 10]])
+    three = np.empty((u_nodes.size, 3))
+    kernel.changes(first, v1, v2, half, got.d1, got.d2, got.kappa, three, None, u_nodes.size,
+                   SPLINE_DEGREE + 1, rows.shape[0], 3)
+    assert np.array_equal(three, ref.deltas[0][:, :3])
+    with pytest.raises(ValueError, match="sums need 8 replicates"):
+        kernel.changes(first, v1, v2, half, got.d1, got.d2, got.kappa, three, sums,
+                       u_nodes.size, SPLINE_DEGREE + 1, rows.shape[0], 3)
 
 
 def test_noise_replicates_walk_drawn_in_blocks_is_one_random_walk():

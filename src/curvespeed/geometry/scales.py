@@ -247,6 +247,8 @@ class Scale:
             delta = delta[np.arange(self.n_int + SPLINE_DEGREE) % self.n_int]
         n_rep = delta.shape[1] // 2
         change = np.empty((u_nodes.size, n_rep))
+        # the kernel adds the squared changes of a chunk of 8 to the running sum itself
+        summed = compiled and n_rep == 8
         if compiled:
             delta = np.ascontiguousarray(delta, dtype=float)
         for lo in range(0, u_nodes.size, _NODE_BLOCK):     # bounded memory on long routes
@@ -256,14 +258,16 @@ class Scale:
                 first, v1, v2 = bases
                 _replicate_curvature.changes(
                     first, v1, v2, delta, self.d1[at], self.d2[at], self.kappa[at], change[at],
-                    first.size, SPLINE_DEGREE + 1, delta.shape[0], n_rep)
+                    self.sum_sq[at] if summed else None, first.size, SPLINE_DEGREE + 1,
+                    delta.shape[0], n_rep)
                 continue
             e1 = bases[0].times(delta).reshape(-1, 2, n_rep)
             e2 = bases[1].times(delta).reshape(-1, 2, n_rep)
             p1, p2 = self.d1[at, :, None] + e1, self.d2[at, :, None] + e2
             speed_sq = p1[:, 0] ** 2 + p1[:, 1] ** 2           # the kernel's |r'|^3, alike
             change[at] = cross(p1, p2) / (speed_sq * np.sqrt(speed_sq)) - self.kappa[at, None]
-        self.sum_sq += np.sum(change**2, axis=1)
+        if not summed:
+            self.sum_sq += np.sum(change**2, axis=1)
         if self.deltas is not None:
             self.deltas.append(change)
 
