@@ -51,9 +51,10 @@ def format_column(values, spec: str) -> list[str]:
     flat = np.asarray(values).ravel()
     if _FIXED.fullmatch(spec) and flat.dtype.kind == "f":
         return _fixed_column(flat, spec)
-    if spec == "s" and flat.dtype.kind == "U":       # format(text, "s") is the text itself
+    if spec == "s" and flat.dtype.kind in "UO":      # format(text, "s") is the text itself
         cells = flat.tolist()
-        return [_drop_negative_zero(c) if c.startswith("-") else c for c in cells]
+        if all(type(c) is str for c in cells):       # (labels kept as objects: str each)
+            return [_drop_negative_zero(c) if c.startswith("-") else c for c in cells]
     cells = [format(v, spec) for v in flat.tolist()]
     return [_drop_negative_zero(c) for c in cells]
 
