@@ -236,7 +236,7 @@ def random_rows(seed: int, wrap: bool, ascending: bool):
 @pytest.mark.parametrize("compiled", [True, False])
 @pytest.mark.parametrize("wrap", [False, True])
 @pytest.mark.parametrize("ascending", [True, False])
-@pytest.mark.parametrize("columns", [0, 1, 16])
+@pytest.mark.parametrize("columns", [0, 1, 2, 16])
 def test_basis_rows_products_match_scipy_sparse(compiled, wrap, ascending, columns):
     """``B c`` and ``B^T v`` of the design rows, compiled (``geometry/_basis_rows.c``) and in
     numpy, against the same matrix in ``scipy.sparse`` CSR form (duplicated first columns,
@@ -270,7 +270,8 @@ def test_basis_rows_products_match_scipy_sparse(compiled, wrap, ascending, colum
 @pytest.mark.parametrize("ascending", [True, False])
 def test_compiled_basis_rows_equal_numpy(wrap, ascending):
     """The compiled products take the numpy code's operations in its order (built without
-    fused multiply-adds): equal to the last bit, for 1 to 16 columns and an empty product."""
+    fused multiply-adds): equal to the last bit, for 1 to 16 columns (2: a plane curve's x and y,
+    summed in registers) and an empty product."""
     kernel = pytest.importorskip("curvespeed.geometry._basis_rows")
     rows, rng = random_rows(11 + wrap + 2 * ascending, wrap, ascending)
     for shape in ((), (1,), (2,), (16,), (0,)):
