@@ -38,16 +38,23 @@ def basis_polynomials(k: int) -> np.ndarray:
     return np.array([[float(v) for v in row] for row in table])
 
 
+def derivative_table(k: int, nu: int, h: float) -> np.ndarray:
+    """Power-basis coefficients of the ``nu``-th derivatives (``nu <= k``) of the ``k + 1``
+    B-splines nonzero on a knot interval of length ``h``: row ``q`` multiplies ``tau**q``."""
+    poly = basis_polynomials(k)
+    # d^nu / dtau^nu of tau^p is p! / (p - nu)! tau^(p - nu); d tau / du = 1 / h
+    return np.array([poly[p] * (math.perm(p, nu) / h**nu) for p in range(nu, k + 1)])
+
+
 def basis_values(k: int, tau: np.ndarray, nu: int = 0, h: float = 1.0) -> np.ndarray:
     """The ``nu``-th derivatives of the ``k + 1`` B-splines nonzero on a knot interval of
     length ``h``, at local coordinates ``tau`` (0 to 1 across it): shape ``(k + 1, tau.size)``,
-    row ``r`` as in :func:`basis_polynomials`."""
-    poly = basis_polynomials(k)
+    row ``r`` as in :func:`basis_polynomials`. By Horner's rule on
+    :func:`derivative_table`, in passes over the points."""
     tau = np.asarray(tau, dtype=float).ravel()
     if nu > k:
         return np.zeros((k + 1, tau.size))
-    # d^nu / dtau^nu of tau^p is p! / (p - nu)! tau^(p - nu); d tau / du = 1 / h
-    coef = [poly[p] * (math.perm(p, nu) / h**nu) for p in range(nu, k + 1)]
+    coef = derivative_table(k, nu, h)
     vals = np.repeat(coef[-1][:, None], tau.size, axis=1)
     for c in coef[-2::-1]:
         vals *= tau
