@@ -13,7 +13,6 @@ from __future__ import annotations
 
 import functools
 import math
-from fractions import Fraction
 
 import numpy as np
 
@@ -27,15 +26,17 @@ def basis_polynomials(k: int) -> np.ndarray:
     The cardinal B-spline ``N(x) = sum_i (-1)^i C(k+1, i) (x - i)_+^k / k!`` on [0, k+1]
     (Schoenberg's closed form, from memory; any spline text): B-spline ``r`` at ``tau`` is
     ``N(tau + k - r)``, whose terms ``i <= k - r`` are the nonzero ones there, expanded in
-    ``tau`` by the binomial theorem, in exact rational arithmetic."""
-    table = [[Fraction(0)] * (k + 1) for _ in range(k + 1)]
+    ``tau`` by the binomial theorem, in exact arithmetic: integers over the common denominator
+    ``k!``, each entry then rounded once (Python's int division is correctly rounded; the
+    fractions module, a few ms of every plan's start-up, is not needed)."""
+    table = [[0] * (k + 1) for _ in range(k + 1)]
     for r in range(k + 1):
         for i in range(k - r + 1):
             shift = k - r - i                       # (tau + shift)^k
-            scale = Fraction((-1) ** i * math.comb(k + 1, i), math.factorial(k))
+            scale = (-1) ** i * math.comb(k + 1, i)           # over k!
             for p in range(k + 1):
                 table[p][r] += scale * math.comb(k, p) * shift ** (k - p)
-    return np.array([[float(v) for v in row] for row in table])
+    return np.array([[v / math.factorial(k) for v in row] for row in table])
 
 
 def derivative_table(k: int, nu: int, h: float) -> np.ndarray:
