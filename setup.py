@@ -1,7 +1,7 @@
 """Build step for the compiled kernels (the banded interior-point iterations, the envelope's
 passes, the QP rows' elimination and scaling, the alignment's optimal partitioning, the
 smoothing scales' banded factorisations and solves, their design matrices' products and their
-noise replicates' curvature, and the CSV writers' rows);
+noise replicates' curvature and the chosen scale's ramp, and the CSV writers' rows);
 everything else about the package is declared in pyproject.toml.
 
 The kernels use only the Python C API (its buffer protocol; the CSV rows its str functions too),
@@ -24,4 +24,5 @@ def kernel(name: str, package: str = "solvers") -> Extension:
 setup(ext_modules=[kernel("_banded_ipm"), kernel("_envelope_passes"), kernel("_qp_rows"),
                    kernel("_partition", "geometry"), kernel("_band_solve", "geometry"),
                    kernel("_replicate_curvature", "geometry"),
-                   kernel("_basis_rows", "geometry"), kernel("_csv_rows", "io")])
+                   kernel("_basis_rows", "geometry"), kernel("_scale_ramp", "geometry"),
+                   kernel("_csv_rows", "io")])

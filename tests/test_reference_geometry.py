@@ -715,6 +715,30 @@ def test_compiled_replicate_curvature_matches_numpy(periodic):
                        u_nodes.size, SPLINE_DEGREE + 1, rows.shape[0], 3)
 
 
+def test_compiled_scale_ramp_matches_python():
+    """The chosen scale's ramp by its compiled twin (``geometry/_scale_ramp.c``) against the
+    Python loop, its reference, to the last bit: random levels on even and uneven stations,
+    ramps of a fraction of a station to many, plateaus, a single station and two; and the
+    ramp's defining properties (below the level, changes by at most the step, and the largest
+    such: it meets the level where nothing below pulls it down)."""
+    from curvespeed.geometry import curvature
+
+    assert curvature._scale_ramp is not None, "the scale ramp kernel was not built"
+    rng = np.random.default_rng(8)
+    for n, ramp_m in ((1, 10.0), (2, 0.5), (500, 3.0), (5000, 40.0), (5000, 0.3)):
+        level = rng.integers(0, 9, n)
+        level[n // 3: n // 2] = 4                       # a plateau
+        for station in (np.arange(n, dtype=float), np.cumsum(rng.uniform(0.2, 3.0, n))):
+            got = curvature._ramp(level, station, ramp_m)
+            ref = curvature._ramp(level, station, ramp_m, compiled=False)
+            assert got.dtype == np.float64 and np.array_equal(got, ref)
+            assert np.all(got <= level)
+            if n > 1:
+                allowed = np.diff(station) / ramp_m
+                assert np.all(np.abs(np.diff(got)) <= allowed * (1 + 1e-12) + 1e-12)
+            assert got[np.argmin(level)] == level.min()
+
+
 def test_noise_replicates_walk_drawn_in_blocks_is_one_random_walk():
     """The drifting part of the noise replicates is drawn and summed a block of rows at a time
     (memory); it must be the random walk of one draw of its steps: white noise of sigma
