@@ -1,13 +1,13 @@
 """Build step for the compiled kernels (the banded interior-point iterations, the envelope's
 passes, the QP rows' elimination and scaling, the alignment's optimal partitioning, the
 smoothing scales' banded factorisations and solves, their design matrices' products and their
-noise replicates' curvature);
+noise replicates' curvature and the chosen scale's ramp, and the CSV writers' rows);
 everything else about the package is declared in pyproject.toml.
 
-The kernels use only the Python C API's buffer protocol, so a C compiler is all they need. They
-are optional: where they cannot be built the package still installs; the banded QP backend then
-hands every QP to Clarabel (and says so in the profile's notes) and the envelope runs its
-Python loops.
+The kernels use only the Python C API (its buffer protocol; the CSV rows its str functions too),
+so a C compiler is all they need. They are optional: where they cannot be built the package
+still installs; the banded QP backend then hands every QP to Clarabel (and says so in the
+profile's notes), the envelope runs its Python loops and the CSV writers join rows by `%`.
 """
 
 from setuptools import Extension, setup
@@ -24,4 +24,5 @@ def kernel(name: str, package: str = "solvers") -> Extension:
 setup(ext_modules=[kernel("_banded_ipm"), kernel("_envelope_passes"), kernel("_qp_rows"),
                    kernel("_partition", "geometry"), kernel("_band_solve", "geometry"),
                    kernel("_replicate_curvature", "geometry"),
-                   kernel("_basis_rows", "geometry")])
+                   kernel("_basis_rows", "geometry"), kernel("_scale_ramp", "geometry"),
+                   kernel("_csv_rows", "io")])

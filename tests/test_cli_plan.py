@@ -190,3 +190,28 @@ def test_same_inputs_give_byte_identical_profiles(tmp_path):
     assert run(route, "-o", a, "--stop", "150").exit_code == 0
     assert run(route, "-o", b, "--stop", "150").exit_code == 0
     assert a.read_bytes() == b.read_bytes()
+
+
+@pytest.mark.parametrize("preset, expected", [(None, 1), ("2", 2)])
+def test_command_runs_one_blas_thread_unless_told(preset, expected):
+    # the command line's entry sets OPENBLAS_NUM_THREADS=1 before numpy is imported (its
+    # matrix products are small; threads only cost on a shared machine), and leaves a value
+    # the user set alone; threadpoolctl reads the thread count the loaded OpenBLAS uses
+    import os
+    import subprocess
+    import sys
+
+    env = {k: v for k, v in os.environ.items() if k != "OPENBLAS_NUM_THREADS"}
+    if preset is not None:
+        env["OPENBLAS_NUM_THREADS"] = preset
+    code = ("import sys\n"
+            "from curvespeed.cli.main import main\n"
+            "assert 'numpy' not in sys.modules\n"
+            "sys.argv = ['curvespeed', '--version']\n"
+            "try:\n    main()\nexcept SystemExit as exc:\n    assert exc.code in (0, None)\n"
+            "import numpy, threadpoolctl\n"
+            "print(sorted({p['num_threads'] for p in threadpoolctl.threadpool_info()\n"
+            "              if p['internal_api'] == 'openblas'}))\n")
+    out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True,
+                         check=True)
+    assert out.stdout.strip().splitlines()[-1] == f"[{expected}]"

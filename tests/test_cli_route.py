@@ -177,6 +177,31 @@ def test_plan_loads_no_scipy_module(tmp_path):
     assert (tmp_path / "q.csv").read_text().startswith("station_m,")
 
 
+def test_plan_loads_not_the_audit(tmp_path):
+    # a plan's summary finds its curves (check.curves, check.settings) but judges nothing: the
+    # audit's modules and report types (a dozen dataclasses, about 20 ms of every plan's
+    # start-up) stay unloaded; the check package's names still resolve on first use
+    import subprocess
+    import sys
+
+    code = ("import sys\n"
+            "from click.testing import CliRunner\n"
+            "from curvespeed.cli.main import cli\n"
+            f"args = ['plan', {str(ROUTES / 'mountain_road.csv')!r}, '-o', "
+            f"{str(tmp_path / 'p.csv')!r}, '--stop', '3000']\n"
+            "result = CliRunner().invoke(cli, args)\n"
+            "assert result.exit_code == 0, result.output\n"
+            "assert 'curves where a lateral limit binds' in result.output, result.output\n"
+            "heavy = ('curvespeed.check.audit', 'curvespeed.check.model', "
+            "'curvespeed.check.speeds', 'curvespeed.check.uncertainty', 'curvespeed.design')\n"
+            "loaded = [m for m in heavy if m in sys.modules]\n"
+            "assert not loaded, loaded\n"
+            "import curvespeed.check as check\n"
+            "from curvespeed.check.audit import check_speeds\n"
+            "assert check.check_speeds is check_speeds\n")
+    subprocess.run([sys.executable, "-c", code], check=True)
+
+
 def test_several_drives_are_fused_from_files_or_tracks(tmp_path):
     # Two simulated drives of an invented road by a consumer receiver at 10 Hz: as two files
     # (--drive) or as two tracks of one GPX file (--all-tracks), fused into one route; the

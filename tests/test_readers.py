@@ -603,9 +603,11 @@ def test_fixed_point_columns_are_written_as_python_formats_each_value():
         assert format_column(values, spec) == expected, spec
 
 
-def test_csv_text_is_python_formats_cell_by_cell(monkeypatch):
-    # format_columns formats the fixed-point float columns of a block of rows in one `%` (and
-    # replaces the values that would print as a negative zero by 0.0 first); its text must be
+@pytest.mark.parametrize("compiled", [True, False])
+def test_csv_text_is_python_formats_cell_by_cell(monkeypatch, compiled):
+    # format_columns prints the fixed-point float columns of a block of rows in the compiled
+    # kernel or, without it, in one `%` (and replaces the values that would print as a negative
+    # zero by 0.0 first); either way its text must be
     # exactly the cell-by-cell reference: Python's own correctly rounded format() of each value,
     # negative zero dropped, text cells as they are, quoted text as RFC 4180 quotes it, rows
     # joined by commas and newlines. Several row blocks (the block made 7 rows), an integer
@@ -613,6 +615,10 @@ def test_csv_text_is_python_formats_cell_by_cell(monkeypatch):
     from curvespeed.io import _format
 
     monkeypatch.setattr(_format, "_ROW_BLOCK", 7)
+    if not compiled:
+        monkeypatch.setattr(_format, "_csv_rows", None)
+    else:
+        assert _format._csv_rows is not None, "the CSV rows kernel was not built"
     rng = np.random.default_rng(11)
     n = 40
     values = rng.normal(size=n) * 10.0 ** rng.integers(-9, 4, n)

@@ -236,7 +236,7 @@ def random_rows(seed: int, wrap: bool, ascending: bool):
 @pytest.mark.parametrize("compiled", [True, False])
 @pytest.mark.parametrize("wrap", [False, True])
 @pytest.mark.parametrize("ascending", [True, False])
-@pytest.mark.parametrize("columns", [0, 1, 16])
+@pytest.mark.parametrize("columns", [0, 1, 2, 16])
 def test_basis_rows_products_match_scipy_sparse(compiled, wrap, ascending, columns):
     """``B c`` and ``B^T v`` of the design rows, compiled (``geometry/_basis_rows.c``) and in
     numpy, against the same matrix in ``scipy.sparse`` CSR form (duplicated first columns,
@@ -270,7 +270,8 @@ def test_basis_rows_products_match_scipy_sparse(compiled, wrap, ascending, colum
 @pytest.mark.parametrize("ascending", [True, False])
 def test_compiled_basis_rows_equal_numpy(wrap, ascending):
     """The compiled products take the numpy code's operations in its order (built without
-    fused multiply-adds): equal to the last bit, for 1 to 16 columns and an empty product."""
+    fused multiply-adds): equal to the last bit, for 1 to 16 columns (2: a plane curve's x and y,
+    summed in registers) and an empty product."""
     kernel = pytest.importorskip("curvespeed.geometry._basis_rows")
     rows, rng = random_rows(11 + wrap + 2 * ascending, wrap, ascending)
     for shape in ((), (1,), (2,), (16,), (0,)):
@@ -305,3 +306,23 @@ def test_basis_rows_refuse_rows_outside_the_columns():
         rows.times(np.ones(9))
     with pytest.raises(ValueError, match="3 data rows for 2 basis rows"):
         rows.transpose_times(np.ones(3))
+
+
+def test_compiled_basis_values_equal_numpy():
+    """The design rows' values by the kernel's Horner passes (point by point) are numpy's
+    passes over the whole array (``uniform_spline.basis_values``, itself checked against
+    scipy's BSpline in test_reference_geometry.py) to the last bit: every derivative of the
+    quintic and cubic bases, at the interval's ends, its middle and random points, for knot
+    intervals of several lengths; beyond the degree, zeros."""
+    pytest.importorskip("curvespeed.geometry._basis_rows")
+    from curvespeed.geometry.basis_rows import values_at
+
+    rng = np.random.default_rng(3)
+    tau = np.concatenate(([0.0, 1.0, 0.5], rng.uniform(0.0, 1.0, 2000)))
+    for k in (3, 5):
+        for nu in range(k + 2):
+            for h in (1.0, 0.37, 2.5):
+                got, ref = values_at(k, tau, nu, h, True), values_at(k, tau, nu, h, False)
+                assert got.shape == (tau.size, k + 1) and got.flags.c_contiguous
+                assert np.array_equal(got, ref), (k, nu, h)
+                assert (nu > k) == (not np.any(got))

@@ -13,6 +13,7 @@ Sources named beside each check:
 from __future__ import annotations
 
 import math
+from fractions import Fraction
 
 import numpy as np
 import pytest
@@ -47,6 +48,15 @@ def test_basis_pieces_match_scipy_and_sum_to_one(k):
     for nu in range(1, k + 1):
         assert np.max(np.abs(basis_values(k, tau, nu).sum(axis=0))) <= 1e-12 * math.perm(k, nu)
     assert basis_polynomials(k).shape == (k + 1, k + 1)
+    # the table is the closed form's exact rationals rounded once: the same expansion in
+    # fractions.Fraction, entry by entry, to the last bit
+    exact = [[Fraction(0)] * (k + 1) for _ in range(k + 1)]
+    for r in range(k + 1):
+        for i in range(k - r + 1):
+            scale = Fraction((-1) ** i * math.comb(k + 1, i), math.factorial(k))
+            for p in range(k + 1):
+                exact[p][r] += scale * math.comb(k, p) * (k - r - i) ** (k - p)
+    assert np.array_equal(basis_polynomials(k), [[float(v) for v in row] for row in exact])
 
 
 @pytest.mark.parametrize("columns", [None, 2])

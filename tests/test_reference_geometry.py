@@ -661,8 +661,8 @@ def test_compiled_replicate_curvature_matches_numpy(periodic):
     bases checked against scipy's BSpline above; curvature (x'y'' - y'x'') / |r'|^3,
     textbook), on a circle of radius 40 m fitted at 0.5 m with 5 cm replicates, open and as a
     loop. The kernel takes the numpy path's operations in its order (built without fused
-    multiply-adds; sqrt is correctly rounded), so the two agree to the last bit; the changes
-    themselves reach 3e-3 to 2e-2 1/m."""
+    multiply-adds; sqrt is correctly rounded), so the two agree to the last bit, and so does the
+    running sum of their squares it adds; the changes themselves reach 3e-3 to 2e-2 1/m."""
     from types import SimpleNamespace
 
     from curvespeed.geometry import scales
@@ -693,8 +693,50 @@ def test_compiled_replicate_curvature_matches_numpy(periodic):
     first, v1, v2 = got._bases(u_nodes, slice(0, None), True)
     with pytest.raises(ValueError, match="wrong size or type"):
         kernel.changes(first.astype(float), v1, v2, delta, got.d1, got.d2, got.kappa,
-                       np.empty((u_nodes.size, scales.CHUNK)), u_nodes.size, SPLINE_DEGREE + 1,
-                       delta.shape[0], scales.CHUNK)
+                       np.empty((u_nodes.size, scales.CHUNK)), None, u_nodes.size,
+                       SPLINE_DEGREE + 1, delta.shape[0], scales.CHUNK)
+    # the running sum of squared changes the kernel adds (numpy's pairwise order for a row of
+    # 8) is numpy's own sum, to the last bit, on a second chunk too; without it, the changes
+    # alone for another number of replicates
+    rows = delta[np.arange(n_int + SPLINE_DEGREE) % n_int] if periodic else delta
+    rows = np.ascontiguousarray(rows)
+    sums = ref.sum_sq.copy()
+    out = np.empty((u_nodes.size, scales.CHUNK))
+    kernel.changes(first, v1, v2, rows, got.d1, got.d2, got.kappa, out, sums, u_nodes.size,
+                   SPLINE_DEGREE + 1, rows.shape[0], scales.CHUNK)
+    assert np.array_equal(sums, ref.sum_sq + np.sum(ref.deltas[0] ** 2, axis=1))
+    half = np.ascontiguousarray(rows[:, [0, 1, 2, 8, 9, 10]])
+    three = np.empty((u_nodes.size, 3))
+    kernel.changes(first, v1, v2, half, got.d1, got.d2, got.kappa, three, None, u_nodes.size,
+                   SPLINE_DEGREE + 1, rows.shape[0], 3)
+    assert np.array_equal(three, ref.deltas[0][:, :3])
+    with pytest.raises(ValueError, match="sums need 8 replicates"):
+        kernel.changes(first, v1, v2, half, got.d1, got.d2, got.kappa, three, sums,
+                       u_nodes.size, SPLINE_DEGREE + 1, rows.shape[0], 3)
+
+
+def test_compiled_scale_ramp_matches_python():
+    """The chosen scale's ramp by its compiled twin (``geometry/_scale_ramp.c``) against the
+    Python loop, its reference, to the last bit: random levels on even and uneven stations,
+    ramps of a fraction of a station to many, plateaus, a single station and two; and the
+    ramp's defining properties (below the level, changes by at most the step, and the largest
+    such: it meets the level where nothing below pulls it down)."""
+    from curvespeed.geometry import curvature
+
+    assert curvature._scale_ramp is not None, "the scale ramp kernel was not built"
+    rng = np.random.default_rng(8)
+    for n, ramp_m in ((1, 10.0), (2, 0.5), (500, 3.0), (5000, 40.0), (5000, 0.3)):
+        level = rng.integers(0, 9, n)
+        level[n // 3: n // 2] = 4                       # a plateau
+        for station in (np.arange(n, dtype=float), np.cumsum(rng.uniform(0.2, 3.0, n))):
+            got = curvature._ramp(level, station, ramp_m)
+            ref = curvature._ramp(level, station, ramp_m, compiled=False)
+            assert got.dtype == np.float64 and np.array_equal(got, ref)
+            assert np.all(got <= level)
+            if n > 1:
+                allowed = np.diff(station) / ramp_m
+                assert np.all(np.abs(np.diff(got)) <= allowed * (1 + 1e-12) + 1e-12)
+            assert got[np.argmin(level)] == level.min()
 
 
 def test_noise_replicates_walk_drawn_in_blocks_is_one_random_walk():

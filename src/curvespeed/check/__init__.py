@@ -63,15 +63,38 @@ Speeds files print 1e-6 m/s, which over 1 m steps moves accelerations by up to ~
 
 from __future__ import annotations
 
-from .audit import check_speeds
-from .curves import find_curves
-from .model import (BRAKE_REACH, CHECKED_LIMITS, CURVATURE_LIMITS, CURVE_RADIUS_M, JOIN_GAP_M,
-                    MIN_CURVE_LENGTH_M, MIN_CURVE_TURN_DEG, MIN_RADIUS, USE_TOLERANCE,
-                    CheckReport, CurveCheck, CurveSettings, CurveVerdict, SpeedKind, Violation)
-from .speeds import (Judgement, brake_reach_b, checked_constraints, judge_speeds,
-                     rest_constraints, zone_speeds_mps)
-from .uncertainty import (CurvatureEnds, RadiusInterval, curvature_ends, estimate_geometry,
-                          radius_interval)
+import importlib
+from typing import TYPE_CHECKING
+
+#: Public name -> the submodule that defines it, imported on first use (PEP 562): a plan's
+#: summary finds its curves (:mod:`.curves`, :mod:`.settings`) without loading the audit's
+#: modules and their report types.
+_SOURCES = {
+    **dict.fromkeys(("check_speeds",), "audit"),
+    **dict.fromkeys(("find_curves",), "curves"),
+    **dict.fromkeys(("BRAKE_REACH", "CHECKED_LIMITS", "CURVATURE_LIMITS", "MIN_RADIUS",
+                     "USE_TOLERANCE", "CheckReport", "CurveCheck", "CurveVerdict", "SpeedKind",
+                     "Violation"), "model"),
+    **dict.fromkeys(("CURVE_RADIUS_M", "JOIN_GAP_M", "MIN_CURVE_LENGTH_M", "MIN_CURVE_TURN_DEG",
+                     "CurveSettings"), "settings"),
+    **dict.fromkeys(("Judgement", "brake_reach_b", "checked_constraints", "judge_speeds",
+                     "rest_constraints", "zone_speeds_mps"), "speeds"),
+    **dict.fromkeys(("CurvatureEnds", "RadiusInterval", "curvature_ends", "estimate_geometry",
+                     "radius_interval"), "uncertainty"),
+}
+
+if TYPE_CHECKING:
+    from .audit import check_speeds
+    from .curves import find_curves
+    from .model import (BRAKE_REACH, CHECKED_LIMITS, CURVATURE_LIMITS, MIN_RADIUS,
+                        USE_TOLERANCE, CheckReport, CurveCheck, CurveVerdict, SpeedKind,
+                        Violation)
+    from .settings import (CURVE_RADIUS_M, JOIN_GAP_M, MIN_CURVE_LENGTH_M, MIN_CURVE_TURN_DEG,
+                           CurveSettings)
+    from .speeds import (Judgement, brake_reach_b, checked_constraints, judge_speeds,
+                         rest_constraints, zone_speeds_mps)
+    from .uncertainty import (CurvatureEnds, RadiusInterval, curvature_ends, estimate_geometry,
+                              radius_interval)
 
 __all__ = ["BRAKE_REACH", "CHECKED_LIMITS", "CURVATURE_LIMITS", "CURVE_RADIUS_M", "JOIN_GAP_M",
            "MIN_CURVE_LENGTH_M", "MIN_CURVE_TURN_DEG", "MIN_RADIUS", "USE_TOLERANCE",
@@ -80,3 +103,16 @@ __all__ = ["BRAKE_REACH", "CHECKED_LIMITS", "CURVATURE_LIMITS", "CURVE_RADIUS_M"
            "check_speeds", "checked_constraints", "curvature_ends", "estimate_geometry",
            "find_curves", "judge_speeds", "radius_interval", "rest_constraints",
            "zone_speeds_mps"]
+
+
+def __getattr__(name: str):
+    if name not in _SOURCES:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    value = getattr(importlib.import_module(f".{_SOURCES[name]}", __name__), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(_SOURCES))
+

@@ -7,7 +7,7 @@ import math
 import numpy as np
 
 from ..geometry import Geometry
-from .model import CurveSettings, NO_CAP_MPS
+from .settings import NO_CAP_MPS, CurveSettings
 
 
 def find_curves(geometry: Geometry, settings: CurveSettings = CurveSettings()) -> list[np.ndarray]:

@@ -9,8 +9,11 @@
  * chunk; this is one pass over the nodes, in the numpy path's operations and order (the sums
  * in the sparse product's, no fused multiply-adds: built with -ffp-contract=off), so the two
  * agree to the last bit. |r'|^3 is s sqrt(s), s = |r'|^2, in both: libm's pow and hypot
- * (hypot(x', y') ** 3) cost more than all the rest together. Only the buffer protocol of the
- * Python C API is used.
+ * (hypot(x', y') ** 3) cost more than all the rest together. The running sum of the squared
+ * changes over the replicates is added here too, for a chunk of 8 in the order numpy's sum of a
+ * row of 8 takes (its pairwise sum: ((q0 + q1) + (q2 + q3)) + ((q4 + q5) + (q6 + q7))): numpy's
+ * square and sum of the (n, 8) changes took half as long again as the kernel. Only the buffer
+ * protocol of the Python C API is used.
  */
 #define PY_SSIZE_T_CLEAN
 #include <Python.h>
@@ -21,7 +24,8 @@
 
 static void changes(const int64_t *first, const double *v1, const double *v2,
                     const double *delta, const double *d1, const double *d2,
-                    const double *kappa, double *out, int64_t n, int64_t w, int64_t c)
+                    const double *kappa, double *out, double *sums, int64_t n, int64_t w,
+                    int64_t c)
 {
     const int64_t cols = 2 * c;
     for (int64_t i = 0; i < n; i++) {
@@ -48,6 +52,12 @@ static void changes(const int64_t *first, const double *v1, const double *v2,
                 out[i * c + r0 + r] = cross / (sq * sqrt(sq)) - kappa[i];
             }
         }
+        if (sums != NULL) {     /* c == 8: numpy's pairwise sum of a row of 8, in its order */
+            double q[BLOCK];
+            for (int r = 0; r < BLOCK; r++)
+                q[r] = out[i * c + r] * out[i * c + r];
+            sums[i] += ((q[0] + q[1]) + (q[2] + q[3])) + ((q[4] + q[5]) + (q[6] + q[7]));
+        }
     }
 }
 
@@ -68,21 +78,26 @@ static int get(PyObject *o, Py_buffer *v, int flags, int integer, Py_ssize_t cou
 
 static PyObject *py_changes(PyObject *self, PyObject *args)
 {
-    PyObject *o[8];
+    PyObject *o[9];
     long long n, w, ncoef, c;
-    if (!PyArg_ParseTuple(args, "OOOOOOOOLLLL", &o[0], &o[1], &o[2], &o[3], &o[4], &o[5], &o[6],
-                          &o[7], &n, &w, &ncoef, &c))
+    if (!PyArg_ParseTuple(args, "OOOOOOOOOLLLL", &o[0], &o[1], &o[2], &o[3], &o[4], &o[5],
+                          &o[6], &o[7], &o[8], &n, &w, &ncoef, &c))
         return NULL;
     if (n < 0 || w < 1 || ncoef < w || c < 1) {
         PyErr_SetString(PyExc_ValueError, "changes: bad sizes");
         return NULL;
     }
-    const Py_ssize_t counts[8] = {n, n * w, n * w, ncoef * 2 * c, 2 * n, 2 * n, n, n * c};
-    Py_buffer v[8];
+    const int with_sums = o[8] != Py_None;
+    if (with_sums && c != BLOCK) {
+        PyErr_SetString(PyExc_ValueError, "changes: sums need 8 replicates");
+        return NULL;
+    }
+    const Py_ssize_t counts[9] = {n, n * w, n * w, ncoef * 2 * c, 2 * n, 2 * n, n, n * c, n};
+    Py_buffer v[9];
     int got = 0;
     PyObject *result = NULL;
-    for (; got < 8; got++)
-        if (get(o[got], &v[got], got == 7 ? PyBUF_WRITABLE : 0, got == 0, counts[got]) != 0)
+    for (; got < 8 + with_sums; got++)
+        if (get(o[got], &v[got], got >= 7 ? PyBUF_WRITABLE : 0, got == 0, counts[got]) != 0)
             goto done;
     const int64_t *first = v[0].buf;
     for (int64_t i = 0; i < n; i++)
@@ -91,8 +106,8 @@ static PyObject *py_changes(PyObject *self, PyObject *args)
             goto done;
         }
     Py_BEGIN_ALLOW_THREADS
-    changes(first, v[1].buf, v[2].buf, v[3].buf, v[4].buf, v[5].buf, v[6].buf, v[7].buf, n, w,
-            c);
+    changes(first, v[1].buf, v[2].buf, v[3].buf, v[4].buf, v[5].buf, v[6].buf, v[7].buf,
+            with_sums ? v[8].buf : NULL, n, w, c);
     Py_END_ALLOW_THREADS
     Py_INCREF(Py_None);
     result = Py_None;
@@ -104,11 +119,12 @@ done:
 
 static PyMethodDef methods[] = {
     {"changes", py_changes, METH_VARARGS,
-     "changes(first, v1, v2, delta, d1, d2, kappa, out, n, w, ncoef, c): out (n, c) <- the "
-     "curvature change of each replicate at each node. first (n,) int64; v1, v2 (n, w) the "
-     "nonzero first and second derivative B-spline values from coefficient first[i]; delta "
-     "(ncoef, 2c) the replicates' coefficients, x then y; d1, d2 (n, 2) and kappa (n,) the "
-     "scale's own. All float64 but first, C order."},
+     "changes(first, v1, v2, delta, d1, d2, kappa, out, sums, n, w, ncoef, c): out (n, c) <- "
+     "the curvature change of each replicate at each node, and sums (n,) += the sum of each "
+     "node's squared changes (numpy's order; c must be 8; None: no sums). first (n,) int64; "
+     "v1, v2 (n, w) the nonzero first and second derivative B-spline values from coefficient "
+     "first[i]; delta (ncoef, 2c) the replicates' coefficients, x then y; d1, d2 (n, 2) and "
+     "kappa (n,) the scale's own. All float64 but first, C order."},
     {NULL, NULL, 0, NULL}};
 
 static struct PyModuleDef module = {PyModuleDef_HEAD_INIT, "_replicate_curvature", NULL, -1,

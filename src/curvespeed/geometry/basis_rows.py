@@ -2,7 +2,8 @@
 ``k + 1`` consecutive B-spline values, so a row is its first column and those values.
 
 The products a penalised spline fit needs, ``B c`` (the spline at the points) and ``B^T v``
-(data projected onto the basis), are compiled in ``_basis_rows.c``; the numpy code here is its
+(data projected onto the basis), and the rows' values themselves (:func:`values_at`), are
+compiled in ``_basis_rows.c``; the numpy code here is its
 reference, the same operations in the same order (the two agree to the last bit), and runs
 where no C compiler was found at install. No general sparse-matrix library is loaded
 (importing scipy.sparse pulls in scipy's array layer, about a quarter of a plan's process
@@ -12,6 +13,8 @@ time).
 from __future__ import annotations
 
 import numpy as np
+
+from .uniform_spline import basis_values, derivative_table
 
 try:
     from . import _basis_rows
@@ -87,6 +90,21 @@ class BasisRows:
     def take_rows(self, rows: np.ndarray) -> "BasisRows":
         """The matrix of the rows ``rows`` only."""
         return BasisRows(self.first[rows], self.values[rows], self.n_columns, self.wrap)
+
+
+def values_at(k: int, tau: np.ndarray, nu: int, h: float,
+              compiled: bool | None = None) -> np.ndarray:
+    """Design rows' values: :func:`.uniform_spline.basis_values` at ``tau`` as rows (shape
+    ``(tau.size, k + 1)``, C order), by the kernel's Horner passes point by point (default:
+    when it was built) or by numpy's over the whole array and a transposed copy, the
+    reference: the same operations, the same numbers."""
+    tau = np.ascontiguousarray(tau, dtype=float).ravel()
+    if not _use_kernel(compiled) or nu > k:
+        return np.ascontiguousarray(basis_values(k, tau, nu, h).T)
+    table = derivative_table(k, nu, h)
+    out = np.empty((tau.size, k + 1))
+    _basis_rows.values(tau, table, out, tau.size, table.shape[0], k + 1)
+    return out
 
 
 def _use_kernel(compiled: bool | None) -> bool:

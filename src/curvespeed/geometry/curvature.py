@@ -47,6 +47,11 @@ from .scales import CHUNK, REPLICATES, cross, noise_chunk, scale_families
 from .smoothing_bias import layout, lowered
 from .steps import FineScale, confirm_steps, transition_zone
 
+try:
+    from . import _scale_ramp
+except ImportError:         # no C compiler at install: the Python loop of _ramp
+    _scale_ramp = None
+
 #: Scales tried above the path fit's own, each smoothing over twice the length of the last.
 LEVELS = 8
 #: Where the chosen scale changes, it changes gradually: by one level over this many spread
@@ -341,12 +346,19 @@ def _choose_scales(kappa, sd, width, station) -> np.ndarray:
     return final
 
 
-def _ramp(level: np.ndarray, station: np.ndarray, ramp_m: float) -> np.ndarray:
+def _ramp(level: np.ndarray, station: np.ndarray, ramp_m: float,
+          compiled: bool | None = None) -> np.ndarray:
     """The largest function below ``level`` that changes by at most one per ``ramp_m`` metres
-    (a lower envelope of cones, by a forward and a backward pass)."""
+    (a lower envelope of cones, by a forward and a backward pass): by the compiled twin
+    (``_scale_ramp.c``; default: when it was built) or by the Python loop, its reference."""
+    steps = np.diff(station) / max(ramp_m, 1e-9)
+    if _scale_ramp is not None and compiled is not False:
+        out = np.array(level, dtype=float)
+        _scale_ramp.ramp(out, np.ascontiguousarray(steps, dtype=float), out.size)
+        return out
     # on Python floats: the same arithmetic as on numpy's scalars, four times faster
     out = level.astype(float).tolist()
-    step = (np.diff(station) / max(ramp_m, 1e-9)).tolist()
+    step = steps.tolist()
     for i in range(1, len(out)):
         out[i] = min(out[i], out[i - 1] + step[i - 1])
     for i in range(len(out) - 2, -1, -1):

