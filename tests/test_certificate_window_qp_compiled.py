@@ -7,7 +7,9 @@ rest and arriving at stops, one and several sequential-convex iterations per win
 whole open routes' QPs (with stretches held at a speed cap); then the same builders around
 random iterates anywhere between rest and the envelope, which reach the chords' other branches
 (one chord or two, the iterate clipped or at the envelope). Both assemblies run the same
-operations in the same order, so equality is exact: no tolerance.
+operations in the same order, so equality is exact: no tolerance. The independent blocks the
+compiled call finds as it writes the rows are qp_rows.interval_blocks' on the numpy QP (itself
+checked against scipy's connected components in test_certificate_replan_shortcuts.py).
 """
 
 from __future__ import annotations
@@ -19,7 +21,7 @@ import numpy as np
 import pytest
 
 from curvespeed.replan import Replanner
-from curvespeed.solvers import convex_qp, window_qp
+from curvespeed.solvers import convex_qp, qp_rows, window_qp
 from curvespeed.solvers.convex import ConvexOptions
 
 import test_certificate_replan as replan_cases
@@ -40,6 +42,9 @@ def _assert_same(builder, b_hat):
         assert a.shape == b.shape, name
         # bytes, not values: the same zeros' signs and NaNs too
         assert a.astype(b.dtype).tobytes() == b.tobytes(), name
+    # the blocks found in the same call are those found on the numpy QP
+    assert ref.block_starts is None
+    assert np.array_equal(fast.block_starts, qp_rows.interval_blocks(ref))
 
 
 def _solver_qps(make, limits_change, iterations, monkeypatch):

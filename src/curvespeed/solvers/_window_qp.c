@@ -377,6 +377,42 @@ static int objective(const layout_t *L, const int64_t *free_number, objective_t 
     return 0;
 }
 
+/* qp_rows.interval_blocks on the rows written and the objective's entries: the first free
+ * station of every independent block and one past the last; returns how many are written */
+static int64_t interval_blocks(const rows_t *o, const objective_t *obj, int64_t n,
+                               int64_t *starts)
+{
+    int64_t *cover = calloc((size_t)n + 1, sizeof(int64_t));
+    if (!cover) return -1;
+    for (int64_t r = 0; r < o->r; r++) {
+        int64_t first = n, last = -1;
+        for (int64_t k = o->indptr[r]; k < o->indptr[r + 1]; k++) {
+            if (o->data[k] == 0.0) continue;
+            if (o->indices[k] < first) first = o->indices[k];
+            if (o->indices[k] > last) last = o->indices[k];
+        }
+        if (last > first) {
+            cover[first]++;
+            cover[last]--;
+        }
+    }
+    for (int64_t i = 0; i < obj->count; i++) {
+        if (obj->pval[i] != 0.0 && obj->prow[i] < obj->pcol[i]) {
+            cover[obj->prow[i]]++;
+            cover[obj->pcol[i]]--;
+        }
+    }
+    int64_t count = 0, running = 0;
+    starts[count++] = 0;
+    for (int64_t c = 0; c + 1 < n; c++) {
+        running += cover[c];
+        if (running <= 0) starts[count++] = c + 1;     /* c not linked to c + 1 */
+    }
+    starts[count++] = n;
+    free(cover);
+    return count;
+}
+
 /* An array of at least (outputs) or exactly (inputs) `items` entries of kind 'q' (int64),
  * 'd' (double) or '?' (bool). */
 static int get(PyObject *o, Py_buffer *v, int writable, Py_ssize_t items, char kind)
@@ -398,22 +434,23 @@ static int get(PyObject *o, Py_buffer *v, int writable, Py_ssize_t items, char k
     return 0;
 }
 
-#define N_ARRAYS 30
+#define N_ARRAYS 31
 
 /* assemble(kappa_abs, cos_bank, sin_bank, cos_grade, sin_grade, mu_long, mu_lat, fixed,
  *          fixed_value, b_hat, b_env, time_coef, f_first, f_last, d_slots, t_node, t_prev,
  *          t_next, t_weights, t_scale, reserve, indptr, indices, data, lo, up, prow, pcol,
- *          pval, q, scalars) -> (rows, entries, objective entries, scale) */
+ *          pval, q, starts, scalars) -> (rows, entries, objective entries, scale, blocks + 1)
+ *          (starts: qp_rows.interval_blocks of the QP written) */
 static PyObject *py_assemble(PyObject *self, PyObject *args)
 {
     (void)self;
     PyObject *o[N_ARRAYS];
     double s[14];
-    if (!PyArg_ParseTuple(args, "OOOOOOOOOOOOOOOOOOOOOOOOOOOOOO(dddddddddddddd)",
+    if (!PyArg_ParseTuple(args, "OOOOOOOOOOOOOOOOOOOOOOOOOOOOOOO(dddddddddddddd)",
                           &o[0], &o[1], &o[2], &o[3], &o[4], &o[5], &o[6], &o[7], &o[8], &o[9],
                           &o[10], &o[11], &o[12], &o[13], &o[14], &o[15], &o[16], &o[17],
                           &o[18], &o[19], &o[20], &o[21], &o[22], &o[23], &o[24], &o[25],
-                          &o[26], &o[27], &o[28], &o[29], &s[0], &s[1], &s[2], &s[3], &s[4],
+                          &o[26], &o[27], &o[28], &o[29], &o[30], &s[0], &s[1], &s[2], &s[3], &s[4],
                           &s[5], &s[6], &s[7], &s[8], &s[9], &s[10], &s[11], &s[12], &s[13]))
         return NULL;
     Py_buffer probe;
@@ -434,10 +471,10 @@ static PyObject *py_assemble(PyObject *self, PyObject *args)
     const Py_ssize_t items[N_ARRAYS] = {
         nv, nv, nv, nv, nv, nv, nv, nv, nv, nv, nv, nv - 1, nv - 1, nv - 1, 3 * nv,
         nt, nt, nt, 3 * nt, nt, 2 * nr, rows + 1, nnz, nnz, rows, rows, 3 * nv, 3 * nv, 3 * nv,
-        nv};
+        nv, nv + 1};
     const char kinds[N_ARRAYS] = {'d', 'd', 'd', 'd', 'd', 'd', 'd', '?', 'd', 'd', 'd', 'd',
                                   'd', 'd', 'd', 'q', 'q', 'q', 'd', 'd', 'd', 'q', 'q', 'd',
-                                  'd', 'd', 'q', 'q', 'd', 'd'};
+                                  'd', 'd', 'q', 'q', 'd', 'd', 'q'};
     Py_buffer v[N_ARRAYS];
     int got;
     PyObject *result = NULL;
@@ -480,13 +517,15 @@ static PyObject *py_assemble(PyObject *self, PyObject *args)
         int bad = accel_rows(&L, &p, &out) != 0 || jerk_rows(&L, &t, &out) != 0;
         if (!bad && nr > 0) reserve_rows(&L, v[20].buf, nr, s[13], &out);
         bad = bad || objective(&L, free_number, &obj) != 0;
+        int64_t n_free = free_number[nv - 1] + 1;
         free(free_number);
-        if (bad) {
+        int64_t n_starts = bad ? -1 : interval_blocks(&out, &obj, n_free, v[30].buf);
+        if (bad || n_starts < 0) {
             PyErr_NoMemory();
             goto done;
         }
-        result = Py_BuildValue("LLLd", (long long)out.r, (long long)out.k,
-                               (long long)obj.count, obj.scale);
+        result = Py_BuildValue("LLLdL", (long long)out.r, (long long)out.k,
+                               (long long)obj.count, obj.scale, (long long)n_starts);
     }
 done:
     for (int j = 0; j < got; j++) PyBuffer_Release(&v[j]);
@@ -495,8 +534,9 @@ done:
 
 static PyMethodDef methods[] = {
     {"assemble", py_assemble, METH_VARARGS,
-     "assemble(...) -> (rows, entries, objective entries, scale): the reduced QP of one "
-     "iteration on an open stretch (convex_qp.QPBuilder.reduced)."},
+     "assemble(...) -> (rows, entries, objective entries, scale, block starts): the reduced "
+     "QP of one iteration on an open stretch (convex_qp.QPBuilder.reduced) and its blocks "
+     "(qp_rows.interval_blocks)."},
     {NULL, NULL, 0, NULL}};
 
 static struct PyModuleDef module = {PyModuleDef_HEAD_INIT, "_window_qp", NULL, -1, methods,

@@ -1,4 +1,5 @@
-"""One sequential-convex iteration's QP assembled in one compiled call (``_window_qp.c``) where
+"""One sequential-convex iteration's QP assembled in one compiled call (``_window_qp.c``), with
+its independent blocks (:func:`.qp_rows.interval_blocks`, found in the same call), where
 the QP takes the common shape of a receding-horizon window's: an open stretch with a jerk
 bound, without a power limit, a lateral jerk bound or a comfort term.
 
@@ -45,23 +46,24 @@ def reduced(builder, b_hat: np.ndarray):
     indptr, indices = np.empty(rows + 1, dtype=np.int64), np.empty(entries, dtype=np.int64)
     data, lo, up = np.empty(entries), np.empty(rows), np.empty(rows)
     prow, pcol = np.empty(3 * nv, dtype=np.int64), np.empty(3 * nv, dtype=np.int64)
-    pval, q = np.empty(3 * nv), np.empty(nv)
+    pval, q, starts = np.empty(3 * nv), np.empty(nv), np.empty(nv + 1, dtype=np.int64)
     f64 = _contiguous_f64
-    m, nnz, n_obj, scale = _compiled.assemble(
+    m, nnz, n_obj, scale, n_starts = _compiled.assemble(
         *(f64(getattr(p, name)) for name in _NODE_FIELDS),
         np.ascontiguousarray(lay.fixed, dtype=bool), f64(lay.fixed_value), f64(b_hat),
         f64(builder.b_env[:nv]), f64(lay.time_coef), f64(lay.f_first), f64(lay.f_last),
         f64(lay.D_by_slot),
         *(np.ascontiguousarray(a, dtype=np.int64) for a in (t.node, t.prev, t.next)),
         f64(t.weights), f64(t.scale), f64(reserve),
-        indptr, indices, data, lo, up, prow, pcol, pval, q,
+        indptr, indices, data, lo, up, prow, pcol, pval, q, starts,
         (lim.gravity_mps2, lim.max_lateral_accel_mps2, lim.max_accel_mps2,
          lim.max_decel_mps2, lim.drag_per_b_1pm, lim.rolling_resistance_coefficient,
          p.ds, opt.margin, opt.chord_tolerance_mps2, B_FLOOR, lim.max_jerk_mps3,
          p.accel_start_mps2, p.accel_start_tolerance_mps2, float(brake_b)))
     n = int((~lay.fixed).sum())
     qp = RowQP(n, indptr[:m + 1], indices[:nnz], data[:nnz], lo[:m], up[:m],
-               prow[:n_obj], pcol[:n_obj], pval[:n_obj], q[:n])
+               prow[:n_obj], pcol[:n_obj], pval[:n_obj], q[:n],
+               block_starts=starts[:n_starts])
     return qp, scale
 
 
