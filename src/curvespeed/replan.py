@@ -423,9 +423,14 @@ class Replanner:
         """Verify the window's profile (raises if it breaks a limit); returns the quantities
         the verifier derived from it (:func:`curvespeed.profile.derive`)."""
         from .planner import CONVEX_TOLERANCE
-        from .verify import DEFAULT_TOLERANCE, verify_profile
+        from .verify import DEFAULT_TOLERANCE, verify_profile, window_verdict
 
         tolerance = CONVEX_TOLERANCE if self._jerk else DEFAULT_TOLERANCE
+        # the common window judged in one compiled pass (the same verdict and numbers); a
+        # refusal is judged again below, which words it
+        fast = window_verdict(window.problem, b, tolerance) if self._jerk else None
+        if fast is not None and fast[0]:
+            return fast[1]
         # the window's binding limits and its lateral jerk (unless bounded) are never read:
         # neither named nor measured
         check = verify_profile(window.problem, b, tolerance, check_jerk=self._jerk,
