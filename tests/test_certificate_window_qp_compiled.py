@@ -114,8 +114,9 @@ def test_the_compiled_assembly_takes_only_the_window_shape(monkeypatch):
         convex_qp.QPBuilder(replace(p, limits=p.limits.replace(max_lateral_jerk_mps3=1.0)),
                             lay, builder.b_env, builder.opt),
         convex_qp.QPBuilder(p, lay, builder.b_env, ConvexOptions(comfort_weight=0.1)),
-        convex_qp.QPBuilder(replace(p, limits=p.limits.replace(max_power_w=80e3, mass_kg=1500.0)), lay,
-                            builder.b_env, builder.opt),
+        convex_qp.QPBuilder(replace(p, limits=p.limits.replace(max_power_w=80e3,
+                                                               mass_kg=1500.0)),
+                            lay, builder.b_env, builder.opt),
         convex_qp.QPBuilder(replace(p, closed=True), lay, builder.b_env, builder.opt),
     ]
     assert not any(window_qp.applies(b) for b in variants)

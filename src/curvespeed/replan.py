@@ -380,7 +380,6 @@ class Replanner:
         point they are built at, which must be near the answer where the vehicle rides a limit
         (braking into a bend on the plan): from the previous window's answer, else the whole
         route's plan, else the window's envelope (a vehicle far off the plan)."""
-        import warnings
         from dataclasses import replace
 
         from .solvers.convex import solve_convex
@@ -392,11 +391,9 @@ class Replanner:
         near = replace(self.options, qp_start_near_centre=True)
         for warm, warmed in self._starting_points(window):
             try:
-                with warnings.catch_warnings():
-                    # a cap of one or a few iterations per window is a choice (module docstring)
-                    warnings.filterwarnings("ignore", "convex solver stopped at the iteration cap")
-                    result = solve_convex(window.problem, near if warmed else self.options,
-                                          envelope=env, warm_start=warm)
+                # a cap of one or a few iterations per window is a choice (module docstring)
+                result = solve_convex(window.problem, near if warmed else self.options,
+                                      envelope=env, warm_start=warm, cap_warning=False)
                 return result.b, result, warmed
             except (InfeasibleError, SolverError) as exc:
                 failure = failure or exc
