@@ -22,6 +22,8 @@ def kernel(name: str, package: str = "solvers") -> Extension:
 # -ffp-contract=off and no -ffast-math: the envelope's passes stay the Python loops' twin to the
 # last bit (no fused multiply-adds, no reordering)
 setup(ext_modules=[kernel("_banded_ipm"), kernel("_envelope_passes"), kernel("_qp_rows"),
+                   kernel("_window_qp"), kernel("_ipm_frame"),
+                   kernel("_window_check"),
                    kernel("_partition", "geometry"), kernel("_band_solve", "geometry"),
                    kernel("_replicate_curvature", "geometry"),
                    kernel("_basis_rows", "geometry"), kernel("_scale_ramp", "geometry"),

@@ -117,7 +117,7 @@ def run_replan(variant: str, backend: str, calls: int, dt: float = 0.1) -> dict:
     from curvespeed.io import read_route
     from curvespeed.limits import Limits
     from curvespeed.replan import Replanner
-    from curvespeed.solvers import QPBackend, convex
+    from curvespeed.solvers import QPBackend, qp_batches
     from curvespeed.solvers.convex import ConvexOptions
 
     qp_time = [0.0]
@@ -131,8 +131,9 @@ def run_replan(variant: str, backend: str, calls: int, dt: float = 0.1) -> dict:
                 qp_time[0] += time.perf_counter() - t0
         return call
 
-    convex.solve_qp_clarabel = timed(convex.solve_qp_clarabel)
-    convex.solve_row_qp = timed(convex.solve_row_qp)
+    # the backends as the QP batches call them (solvers/qp_batches.py)
+    qp_batches.solve_qp_clarabel = timed(qp_batches.solve_qp_clarabel)
+    qp_batches.solve_row_qp = timed(qp_batches.solve_row_qp)
     geo = build_geometry(read_route(ROOT / "routes" / "mountain_road.csv"))
     options = ConvexOptions(threads=1, max_iterations=1 if variant == "one-qp" else 30,
                             qp_backend=QPBackend(backend))

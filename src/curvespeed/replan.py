@@ -380,7 +380,6 @@ class Replanner:
         point they are built at, which must be near the answer where the vehicle rides a limit
         (braking into a bend on the plan): from the previous window's answer, else the whole
         route's plan, else the window's envelope (a vehicle far off the plan)."""
-        import warnings
         from dataclasses import replace
 
         from .solvers.convex import solve_convex
@@ -392,11 +391,9 @@ class Replanner:
         near = replace(self.options, qp_start_near_centre=True)
         for warm, warmed in self._starting_points(window):
             try:
-                with warnings.catch_warnings():
-                    # a cap of one or a few iterations per window is a choice (module docstring)
-                    warnings.filterwarnings("ignore", "convex solver stopped at the iteration cap")
-                    result = solve_convex(window.problem, near if warmed else self.options,
-                                          envelope=env, warm_start=warm)
+                # a cap of one or a few iterations per window is a choice (module docstring)
+                result = solve_convex(window.problem, near if warmed else self.options,
+                                      envelope=env, warm_start=warm, cap_warning=False)
                 return result.b, result, warmed
             except (InfeasibleError, SolverError) as exc:
                 failure = failure or exc
@@ -423,9 +420,14 @@ class Replanner:
         """Verify the window's profile (raises if it breaks a limit); returns the quantities
         the verifier derived from it (:func:`curvespeed.profile.derive`)."""
         from .planner import CONVEX_TOLERANCE
-        from .verify import DEFAULT_TOLERANCE, verify_profile
+        from .verify import DEFAULT_TOLERANCE, verify_profile, window_verdict
 
         tolerance = CONVEX_TOLERANCE if self._jerk else DEFAULT_TOLERANCE
+        # the common window judged in one compiled pass (the same verdict and numbers); a
+        # refusal is judged again below, which words it
+        fast = window_verdict(window.problem, b, tolerance) if self._jerk else None
+        if fast is not None and fast[0]:
+            return fast[1]
         # the window's binding limits and its lateral jerk (unless bounded) are never read:
         # neither named nor measured
         check = verify_profile(window.problem, b, tolerance, check_jerk=self._jerk,

@@ -75,6 +75,7 @@ class RouteTables:
             self.stop_at[k % self.nv] = stop
         self.is_stop = np.zeros(self.nv, dtype=bool)       # the same nodes, as a mask
         self.is_stop[list(self.stop_at)] = True
+        self._moving_terms = {}     # the jerk's terms of a window with no step next to rest
 
     def set_route_plan(self, b: np.ndarray) -> None:
         """The whole route's squared speeds: a window with no better starting point linearises
@@ -135,9 +136,16 @@ class RouteTables:
         stops = tuple(Stop(i * self.ds, self._stop_origin(idx[i]),
                            name=self.stop_at[idx[i] % self.nv].name) for i in stop_pos)
         nsteps = idx.size - 1
-        terms = jerk_time_terms(nsteps + 1, False, src.rest_u[st], src.accel_factor_start[st])
-        if reserve is not None:         # a free end keeps its acceleration (the reserve row)
-            terms = _without_node(terms, nsteps)
+        rest_u = src.rest_u[st]
+        # a moving window's terms depend on its length and end alone: made once for each
+        key = (nsteps, reserve is None) if np.isnan(rest_u).all() else None
+        terms = self._moving_terms.get(key)
+        if terms is None:
+            terms = jerk_time_terms(nsteps + 1, False, rest_u, src.accel_factor_start[st])
+            if reserve is not None:     # a free end keeps its acceleration (the reserve row)
+                terms = _without_node(terms, nsteps)
+            if key is not None:
+                self._moving_terms[key] = terms
         terms, head_start = self._start_ramp(terms, b0, a0)
         problem = replace(
             src, station_m=self.station_m[idx], closed=False,

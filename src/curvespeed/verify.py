@@ -16,6 +16,11 @@ import numpy as np
 from .problem import SpeedProblem
 from .profile import derive
 
+try:
+    from .solvers import _window_check
+except ImportError:             # no C compiler at install: verify_profile judges every window
+    _window_check = None
+
 #: Relative tolerance on limit use below which a profile is accepted as within its limits.
 DEFAULT_TOLERANCE = 1e-6
 #: A node counts as bound by a limit when its use is within this of 1.
@@ -195,3 +200,45 @@ def _binding_labels(problem, a, use, lat_use, grip_lat_share) -> np.ndarray:
         labels = np.where(use["lateral_jerk"] >= near, "lateral_jerk", labels)
     labels = np.where(use["speed_cap"] >= near, problem.cap_source, labels)
     return labels.astype(object)
+
+
+#: The limits whose largest use :func:`window_verdict` reports, in its order.
+WINDOW_USES = ("speed_cap", "lateral_comfort", "comfort_ellipse", "friction_ellipse", "jerk",
+               "end_reserve")
+
+
+def window_verdict(problem: SpeedProblem, b: np.ndarray, tolerance: float):
+    """:func:`verify_profile`'s verdict on a receding-horizon window (``check_jerk=True``,
+    ``labels=False``, ``measure_lateral_jerk=False``) in one compiled pass
+    (``solvers/_window_check.c``): ``(ok, derived, peaks)`` with the speeds, accelerations and
+    times of :func:`curvespeed.profile.derive` and the largest use of each of
+    :data:`WINDOW_USES`, the numpy code's numbers to the last bit. None where it does not
+    apply: no compiled pass, a loop, a power limit, a lateral jerk bound, no jerk bound, or a
+    step next to rest (:func:`verify_profile` judges those; it also words every refusal)."""
+    lim = problem.limits
+    if (_window_check is None or problem.closed or lim.max_jerk_mps3 is None
+            or lim.max_lateral_jerk_mps3 is not None or math.isfinite(lim.power_per_mass_wpkg)
+            or problem.n_nodes < 2 or not np.isnan(problem.rest_u).all()):
+        return None
+    n = problem.n_nodes
+    t = problem.jerk_terms
+    reserve = np.zeros((0, 2))
+    brake_b = math.nan
+    if problem.end_reserve is not None:
+        brake_b, pairs = problem.end_reserve
+        reserve = np.array(pairs, dtype=float).reshape(-1, 2)
+    speed, accel, time_s, peaks = np.empty(n), np.empty(n), np.empty(n), np.empty(6)
+    f64 = [np.ascontiguousarray(a, dtype=float) for a in (
+        b, problem.kappa_abs, problem.cos_bank, problem.sin_bank, problem.cos_grade,
+        problem.sin_grade, problem.mu_long, problem.mu_lat, problem.cap_b,
+        problem.accel_factor_start, problem.accel_factor_end, problem.time_coef)]
+    ok = _window_check.check(
+        *f64, *(np.ascontiguousarray(a, dtype=np.int64) for a in (t.node, t.prev, t.next)),
+        np.ascontiguousarray(t.weights, dtype=float), np.ascontiguousarray(t.scale, dtype=float),
+        reserve, speed, accel, time_s, peaks,
+        (problem.ds, lim.gravity_mps2, lim.max_lateral_accel_mps2, lim.max_accel_mps2,
+         lim.max_decel_mps2, lim.drag_per_b_1pm, lim.rolling_resistance_coefficient,
+         lim.max_jerk_mps3, problem.accel_start_mps2, problem.accel_start_tolerance_mps2,
+         tolerance, math.nan if problem.b_start is None else problem.b_start,
+         math.nan if problem.b_end is None else problem.b_end, float(brake_b)))
+    return ok, {"speed_mps": speed, "accel_mps2": accel, "time_s": time_s}, peaks

@@ -32,6 +32,10 @@ try:
     from . import _banded_ipm as _kernel
 except ImportError:             # the package installs without a C compiler; Clarabel then
     _kernel = None              # solves every QP (see convex.py)
+try:
+    from . import _ipm_frame as _frame      # the objective's scaling, P's band, the near
+except ImportError:                         # start and the answer's check, compiled; the
+    _frame = None                           # numpy code below then does the same work
 
 #: Is the compiled kernel present? Without it every call returns FAILED.
 KERNEL_AVAILABLE = _kernel is not None
@@ -84,10 +88,13 @@ def solve_row_qp(qp: RowQP, eps, centre=None, scale=None, gap_abs=None,
     n = qp.n
     if _kernel is None or n == 0:
         return np.zeros(n), SolveStatus.FAILED, 0
-    b = _prepare_rows(qp, centre, scale)
+    b = _prepare_rows(qp, centre, scale, near_centre)
     if b is None:                       # not banded in station order nor after reordering
         return np.zeros(n), SolveStatus.FAILED, 0
-    x, sl, su, zl, zu = _start_near(b) if near_centre else _start(b)
+    if b.start is not None:             # made with the scaling (compiled)
+        x, sl, su, zl, zu = b.start
+    else:
+        x, sl, su, zl, zu = _start_near(b) if near_centre else _start(b)
     info = np.zeros(8)
     gap = float(eps if gap_abs is None else gap_abs)
     code = _kernel.solve(n, b.kd, b.indptr, b.indices, b.data, b.lo, b.up, b.kind, b.Pb,
@@ -106,7 +113,10 @@ class _Banded:
     entry's row."""
 
     __slots__ = ("kd", "indptr", "indices", "data", "lo", "up", "kind", "Pb", "q", "rows",
-                 "inverse")
+                 "inverse", "start")
+
+    def __init__(self):
+        self.start = None           # the near start, where the compiled frame made it
 
     @property
     def A(self):
@@ -166,13 +176,14 @@ def _prepare(P, q, A, lo, up, centre, scale):
     return _prepare_rows(_row_qp(P, q, A, lo, up), centre, scale)
 
 
-def _prepare_rows(qp: RowQP, centre, scale):
+def _prepare_rows(qp: RowQP, centre, scale, near: bool = False):
     """Scale, check the band, reorder if needed, scale the rows; on the arrays alone (scipy's
     products cost more than the solve on a small QP). The rows' passes are compiled
     (``_qp_rows.c``, :func:`_prepare_compiled`) unless the band needs reordering; the numpy
-    code below is their reference and gives the same numbers."""
+    code below is their reference and gives the same numbers. ``near``: the compiled frame
+    also makes :func:`_start_near`'s point (``start``)."""
     if qp_rows._compiled is not None:
-        b = _prepare_compiled(qp, centre, scale)
+        b = _prepare_compiled(qp, centre, scale, near)
         if b is not None:
             return b
     prow, pcol, pval = qp.prow, qp.pcol, qp.pval
@@ -225,16 +236,13 @@ def _P_band(prow, pcol, pval, n, kd):
     return np.bincount(slot, pval[lower], minlength=(kd + 1) * n).reshape(kd + 1, n)
 
 
-def _prepare_compiled(qp: RowQP, centre, scale):
+def _prepare_compiled(qp: RowQP, centre, scale, near: bool = False):
     """:func:`_prepare_rows` with the rows' passes compiled (centring, scaling, unit largest
-    coefficient, kinds and bandwidth in one pass); None where the band is too wide in station
-    order (the numpy path then reorders the columns)."""
-    prow, pcol, pval, q = qp.prow, qp.pcol, qp.pval, qp.q
+    coefficient, kinds and bandwidth in one pass; with ``_ipm_frame.c`` the objective's
+    scaling, P's band and, ``near``, :func:`_start_near`'s point too); None where the band is
+    too wide in station order (the numpy path then reorders the columns)."""
     centred = centre is not None
-    if centred:                         # y = (x - centre) / scale, as solve_qp_clarabel does
-        q = scale * (q + qp.P_times(centre))
-        pval = pval * scale[prow] * scale[pcol]
-    else:
+    if not centred:
         centre = scale = np.zeros(qp.n)             # not read
     m, nnz = qp.m, qp.indices.size
     b = _Banded()
@@ -245,6 +253,12 @@ def _prepare_compiled(qp: RowQP, centre, scale):
     f64 = [np.ascontiguousarray(a, dtype=float) for a in (qp.data, qp.lo, qp.up, centre, scale)]
     kd_rows = qp_rows._compiled.scale_rows(b.indptr, b.indices, *f64, b.data, b.lo, b.up,
                                            b.kind, centred)
+    if _frame is not None:
+        return _frame_compiled(qp, b, f64[3], f64[4], centred, near, kd_rows)
+    prow, pcol, pval, q = qp.prow, qp.pcol, qp.pval, qp.q
+    if centred:                         # y = (x - centre) / scale, as solve_qp_clarabel does
+        q = scale * (q + qp.P_times(centre))
+        pval = pval * scale[prow] * scale[pcol]
     kd = max(int(np.max(np.abs(prow - pcol))) if prow.size else 0, kd_rows)
     if kd > MAX_BANDWIDTH:
         return None
@@ -253,6 +267,30 @@ def _prepare_compiled(qp: RowQP, centre, scale):
     b.Pb = _P_band(prow, pcol, pval, qp.n, kd)
     b.q = q
     b.inverse = None
+    return b
+
+
+def _frame_compiled(qp: RowQP, b: _Banded, centre, scale, centred: bool, near: bool,
+                    kd_rows: int):
+    """The rest of :func:`_prepare_compiled` in one compiled call (``_ipm_frame.c``): ``q``
+    centred and scaled, P scaled into its band, and with ``near`` :func:`_start_near`'s point;
+    the same numbers as the numpy code."""
+    n, m = qp.n, qp.m
+    q, band = np.empty(n), np.empty((MAX_BANDWIDTH + 1) * n)
+    start = (np.zeros(n), *(np.empty(m) for _ in range(4)))
+    i64 = [np.ascontiguousarray(a, dtype=np.int64) for a in (qp.prow, qp.pcol)]
+    kd = _frame.frame(*i64, np.ascontiguousarray(qp.pval, dtype=float),
+                      np.ascontiguousarray(qp.q, dtype=float), centre, scale, b.kind, b.lo,
+                      b.up, q, band, *start[1:], centred, near, kd_rows, MAX_BANDWIDTH,
+                      _NEAR_SLACK_FLOOR, _NEAR_MU_FRACTION)
+    if kd < 0:
+        return None
+    b.kd = kd
+    b.rows = None
+    b.Pb = band[: (kd + 1) * n].reshape(kd + 1, n)
+    b.q = q
+    b.inverse = None
+    b.start = start if near else None
     return b
 
 
@@ -332,37 +370,26 @@ def _start_near(qp: _Banded):
 
 def _judge(code: int, qp: _Banded, x, zl, zu, eps: float, gap_abs: float, info) -> SolveStatus:
     """Map the kernel's outcome to ours, checking its claim (residuals, duality gap) here."""
-    if not np.all(np.isfinite(x)):
+    sums = _judge_sums(qp, x, zl, zu) if _frame is None else _frame.judge_sums(
+        qp.indptr, qp.indices, qp.data, qp.lo, qp.up, qp.kind, qp.Pb, qp.q, x, zl, zu)
+    finite, margin, aty_max, viol_max, dual_max, dual_sum, xPx, qx = sums
+    if not finite:
         return SolveStatus.FAILED
-    eq = qp.kind == 4
-    y = np.where(eq, zl, np.where(qp.kind == 0, 0.0, zl - zu))
-    r, Aty = _products(qp, x, y)
-    with np.errstate(invalid="ignore"):             # an infinite side times its zero multiplier
-        lo_part = np.where((qp.kind == 1) | (qp.kind >= 3), qp.lo * zl, 0.0)
-        up_part = np.where((qp.kind == 2) | (qp.kind == 3), qp.up * zu, 0.0)
-    margin = float(np.sum(lo_part) - np.sum(up_part))      # lo'z_lo - up'z_up
     if code == 3:
         # certificate: lo'z_lo - up'z_up > 0 with A'y ~ 0 (row scaling leaves the ratio as is)
-        if margin > 0 and float(np.max(np.abs(Aty), initial=0.0)) <= 1e-8 * margin:
+        if margin > 0 and aty_max <= 1e-8 * margin:
             return SolveStatus.INFEASIBLE
         return SolveStatus.FAILED
     if code != 0:
         return SolveStatus.FAILED
-    # an empty row's sides are checked too (0 must lie between them). With x finite, r is
-    # finite and each difference finite or -inf (an absent side), which the maximum from 0
-    # below ignores
-    viol = np.maximum(qp.lo - r, r - qp.up)
-    Px = _band_times(qp.Pb, x)
-    dual = Px + qp.q - Aty
-    xPx = float(x @ Px)
-    primal_obj = 0.5 * xPx + float(qp.q @ x)
+    primal_obj = 0.5 * xPx + qx
     dual_obj = -0.5 * xPx + margin
     gap = abs(primal_obj - dual_obj)
     # the kernel's scales (info[6], info[7]) are max(1, |b| + |x| + |s|) and
     # max(1, |q| + |Px| + |A'z|): the same tests Clarabel applies to its residuals
-    if float(np.max(viol, initial=0.0)) > eps * info[6]:
+    if viol_max > eps * info[6]:
         return SolveStatus.FAILED
-    if (float(np.max(np.abs(dual), initial=0.0)) <= eps * info[7]
+    if (dual_max <= eps * info[7]
             and (gap <= gap_abs or gap <= eps * max(1.0, min(abs(primal_obj), abs(dual_obj))))):
         return SolveStatus.OPTIMAL
     # A dual residual stalled above its tolerance on a degenerate optimum, with the answer as
@@ -370,9 +397,33 @@ def _judge(code: int, qp: _Banded, x, zl, zu, eps: float, gap_abs: float, info) 
     # residual `dual`): f(x*) >= L(x*, z) >= L(x, z) + r'(x* - x) for any feasible x* (z >= 0;
     # L convex in x), and f(x) - L(x, z) = (primal_obj - dual_obj) - r'x, so
     # f(x) - f(x*) <= gap + |r|_1 |x*|_inf, and x* lies in the variables' box.
-    if gap + float(np.sum(np.abs(dual))) * _box_extent(qp) <= gap_abs:
+    if gap + dual_sum * _box_extent(qp) <= gap_abs:
         return SolveStatus.OPTIMAL
     return SolveStatus.FAILED
+
+
+def _judge_sums(qp: _Banded, x, zl, zu):
+    """What :func:`_judge` decides on: ``(finite, margin, max |A'y|, max violation,
+    max |dual|, sum |dual|, x'Px, q'x)``, with ``y = z_lo - z_up`` (``z_lo`` on an equality
+    row, 0 on an empty one) and ``margin = lo'z_lo - up'z_up``. Compiled in ``_ipm_frame.c``
+    where it is built (the same quantities, its sums in index order)."""
+    if not np.all(np.isfinite(x)):
+        return (False,) + (np.nan,) * 7
+    y = np.where(qp.kind == 4, zl, np.where(qp.kind == 0, 0.0, zl - zu))
+    r, Aty = _products(qp, x, y)
+    with np.errstate(invalid="ignore"):             # an infinite side times its zero multiplier
+        lo_part = np.where((qp.kind == 1) | (qp.kind >= 3), qp.lo * zl, 0.0)
+        up_part = np.where((qp.kind == 2) | (qp.kind == 3), qp.up * zu, 0.0)
+    margin = float(np.sum(lo_part) - np.sum(up_part))
+    # an empty row's sides are checked too (0 must lie between them). With x finite, r is
+    # finite and each difference finite or -inf (an absent side), which the maximum from 0
+    # ignores
+    viol = np.maximum(qp.lo - r, r - qp.up)
+    Px = _band_times(qp.Pb, x)
+    dual = Px + qp.q - Aty
+    return (True, margin, float(np.max(np.abs(Aty), initial=0.0)),
+            float(np.max(viol, initial=0.0)), float(np.max(np.abs(dual), initial=0.0)),
+            float(np.sum(np.abs(dual))), float(x @ Px), float(qp.q @ x))
 
 
 def _products(qp: _Banded, x, y):

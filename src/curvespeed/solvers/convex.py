@@ -170,7 +170,7 @@ def plateau_anchors(problem: SpeedProblem, b_env: np.ndarray, nv: int):
 
 def solve_convex(problem: SpeedProblem, options: ConvexOptions = ConvexOptions(),
                  envelope: SolveResult | None = None,
-                 warm_start: np.ndarray | None = None) -> SolveResult:
+                 warm_start: np.ndarray | None = None, cap_warning: bool = True) -> SolveResult:
     """Minimum-time profile with jerk bound (and every envelope limit); see module docstring.
 
     ``envelope``: the problem's forward-backward envelope when the caller has it already (a
@@ -178,6 +178,8 @@ def solve_convex(problem: SpeedProblem, options: ConvexOptions = ConvexOptions()
     by default it is solved here. ``warm_start``: squared speeds at every node to take the first
     break points and tangents at instead of the envelope (clipped into it; fixed stations keep
     their values). Either only saves work: every iterate stays inside the conservative rows.
+    ``cap_warning=False``: no warning when the iterations stop at ``max_iterations`` (a caller
+    that caps them on purpose, :mod:`curvespeed.replan`).
     """
     t_start = time.perf_counter()
     env = envelope if envelope is not None else solve_envelope(problem)
@@ -215,7 +217,7 @@ def solve_convex(problem: SpeedProblem, options: ConvexOptions = ConvexOptions()
                       + "; ".join(n for n in notes if "QP" in n) + "); the profile is checked "
                       "against every limit before it is used, but may be a little slower than "
                       "optimal", CurvespeedWarning, stacklevel=2)
-    if iterations >= options.max_iterations:
+    if iterations >= options.max_iterations and cap_warning:
         warnings.warn(f"convex solver stopped at the iteration cap ({options.max_iterations}); "
                       "the profile is feasible but may be a little slower than optimal",
                       CurvespeedWarning, stacklevel=2)

@@ -15,6 +15,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from ..problem import SpeedProblem
+from . import window_qp
 from .qp_rows import RowQP, canonical, pad, reduce_tables
 from .qp_time import B_FLOOR, time_model, tridiagonal_hessian
 
@@ -449,7 +450,14 @@ class QPBuilder:
     def reduced(self, b_hat: np.ndarray):
         """The iteration's QP over the free nodes alone, as a :class:`.qp_rows.RowQP` (fixed
         nodes eliminated, rows left with no free node or no finite side dropped); also the
-        objective's scale."""
+        objective's scale. A window's QP is assembled in one compiled call
+        (:mod:`.window_qp`: the same numbers); :meth:`reduced_numpy` is its reference."""
+        if window_qp.applies(self):
+            return window_qp.reduced(self, b_hat)
+        return self.reduced_numpy(b_hat)
+
+    def reduced_numpy(self, b_hat: np.ndarray):
+        """:meth:`reduced` by the numpy passes (every QP the compiled call does not take)."""
         lay = self.lay
         indptr, indices, data, lo, up = reduce_tables(self.rows(b_hat), lay.fixed,
                                                       lay.fixed_value)

@@ -27,9 +27,14 @@ def _submit_batches(qp, batches, blocks, row_block, free_idx, b_hat, b_env, gap_
     for j, batch in enumerate(batches):
         batch_of[batch] = j
     row_batch = batch_of[row_block]
-    by_batch = np.argsort(row_batch.astype(np.int16) if len(batches) < 2 ** 15 else row_batch,
-                          kind="stable")
-    cuts = np.searchsorted(row_batch[by_batch], np.arange(len(batches) + 1))
+    if len(batches) == 1 and bool(np.all(row_batch == 0)):
+        # every row in the one batch (a receding-horizon window): the stable sort's order is
+        # the rows' own
+        by_batch, cuts = np.arange(row_batch.size), np.array([0, row_batch.size])
+    else:
+        by_batch = np.argsort(row_batch.astype(np.int16) if len(batches) < 2 ** 15
+                              else row_batch, kind="stable")
+        cuts = np.searchsorted(row_batch[by_batch], np.arange(len(batches) + 1))
     threaded = pool is not None and len(batches) > 1
     jobs = []
     for j, batch in enumerate(batches):

@@ -108,11 +108,15 @@ def pad(cols, vals, width: int = WIDTH):
 class RowQP:
     """A QP ``min x'Px/2 + q'x`` s.t. ``lo <= Ax <= up`` on ``n`` variables, ``A`` in compressed
     rows with sorted columns, ``P`` as its nonzero entries in row-major order (both
-    triangles)."""
+    triangles). ``block_starts``: :func:`interval_blocks` of it where its assembly found them
+    already (None: found when asked, :func:`blocks_of`)."""
 
-    __slots__ = ("n", "indptr", "indices", "data", "lo", "up", "prow", "pcol", "pval", "q")
+    __slots__ = ("n", "indptr", "indices", "data", "lo", "up", "prow", "pcol", "pval", "q",
+                 "block_starts")
 
-    def __init__(self, n, indptr, indices, data, lo, up, prow, pcol, pval, q):
+    def __init__(self, n, indptr, indices, data, lo, up, prow, pcol, pval, q,
+                 block_starts=None):
+        self.block_starts = block_starts
         self.n = int(n)
         self.indptr, self.indices, self.data = indptr, indices, data
         self.lo, self.up = lo, up
@@ -333,7 +337,7 @@ def blocks_of(qp: RowQP, closed: bool):
     variable. An open route's blocks are intervals (:func:`interval_blocks`); a closed loop's
     are arcs of the ring (:func:`ring_links`), the one across the seam (if any) first."""
     if not closed:
-        starts = interval_blocks(qp)
+        starts = qp.block_starts if qp.block_starts is not None else interval_blocks(qp)
         return [np.arange(a, b) for a, b in zip(starts[:-1], starts[1:])]
     n = qp.n
     linked = ring_links(qp)

@@ -42,9 +42,12 @@ def time_model(b_hat: np.ndarray, lay: QPLayout, ds: float, steps=None):
     cds = half_c * ds
     gx = np.where(fx, -cds / (S * S * sxf), 0.0)
     gy = np.where(fy, -cds / (S * S * syf), 0.0)
-    hxx = np.where(fx, cds * (1.0 / (S ** 3 * sxf ** 2) + 0.5 / (S * S * sxf ** 3)), 0.0)
-    hyy = np.where(fy, cds * (1.0 / (S ** 3 * syf ** 2) + 0.5 / (S * S * syf ** 3)), 0.0)
-    hxy = np.where(fx & fy, cds / (S ** 3 * sxf * syf), 0.0)
+    # cubes as products: numpy's float power goes through a vectorised pow whose last bit
+    # differs from the C library's, and the compiled assembly (_window_qp.c) must agree
+    S3 = S * S * S
+    hxx = np.where(fx, cds * (1.0 / (S3 * sxf ** 2) + 0.5 / (S * S * (sxf * sxf * sxf))), 0.0)
+    hyy = np.where(fy, cds * (1.0 / (S3 * syf ** 2) + 0.5 / (S * S * (syf * syf * syf))), 0.0)
+    hxy = np.where(fx & fy, cds / (S3 * sxf * syf), 0.0)
     nv = lay.nv
     grad = np.zeros(nv)
     np.add.at(grad, sf, gx)
