@@ -154,8 +154,8 @@ def test_plan_loads_no_scipy_module(tmp_path):
     # and scipy.special was 0.2-0.3 s of every plan's start-up), keep their design matrices as
     # rows and factor their banded normal equations in their own kernel: any scipy import
     # (scipy.sparse, scipy.linalg) loads scipy's array layer, another 0.3 s. An open route with
-    # elevation, a stop and a zone planned, and a loop's geometry (a loop's plan still loads
-    # scipy: a block that wraps around the loop is put in banded order by scipy's reverse
+    # elevation, a stop and a zone planned, and a loop planned (its QP, which wraps around the
+    # loop, put in banded order by the solver's own fold order, not scipy's reverse
     # Cuthill-McKee).
     import subprocess
     import sys
@@ -165,7 +165,7 @@ def test_plan_loads_no_scipy_module(tmp_path):
             "from curvespeed.cli.main import cli\n"
             f"open_route = ['plan', {str(ROUTES / 'mountain_road.csv')!r}, '-o', "
             f"{str(tmp_path / 'p.csv')!r}, '--stop', '3000', '--zone', '1000:1500:10']\n"
-            f"loop = ['route', {str(ROUTES / 'test_loop.geojson')!r}, '-o', "
+            f"loop = ['plan', {str(ROUTES / 'test_loop.geojson')!r}, '-o', "
             f"{str(tmp_path / 'q.csv')!r}]\n"
             "for args in (open_route, loop):\n"
             "    result = CliRunner().invoke(cli, args)\n"

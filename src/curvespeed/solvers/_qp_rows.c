@@ -14,6 +14,9 @@
  * - take_rows: the rows of RowQP.take (a batch's rows, its variables renumbered); copies only.
  * - start_point, box_extent: banded_ipm._start's slacks and multipliers and banded_ipm.
  *   _box_extent (maxima and minima propagate NaN, as numpy's do).
+ * - search_order: banded_ipm._far_order_numpy, the columns in breadth-first order from a far
+ *   column of each part (a queue visits them in the order the level-by-level numpy search
+ *   lists them).
  *
  * Only the buffer protocol of the Python C API is used.
  */
@@ -418,6 +421,81 @@ done:
     return result;
 }
 
+/* Breadth-first search from root over the columns stamp[] does not hold `mark` for, stamping
+ * them; writes them to queue[] in the order reached; returns how many. */
+static Py_ssize_t bfs(const int64_t *start, const int64_t *nb, int64_t root, int64_t *stamp,
+                      int64_t mark, int64_t *queue)
+{
+    Py_ssize_t head = 0, tail = 0;
+    queue[tail++] = root;
+    stamp[root] = mark;
+    while (head < tail) {
+        int64_t j = queue[head++];
+        for (int64_t k = start[j]; k < start[j + 1]; k++)
+            if (stamp[nb[k]] != mark) { stamp[nb[k]] = mark; queue[tail++] = nb[k]; }
+    }
+    return tail;
+}
+
+/* search_order(start, neighbours, order) -> None: banded_ipm._far_order_numpy. Part by part
+ * (the lowest column not yet placed starts each), the columns in breadth-first order from the
+ * column a first search from that lowest one reaches last, over the adjacency lists
+ * neighbours[start[j]:start[j+1]]. */
+static PyObject *py_search_order(PyObject *self, PyObject *args)
+{
+    (void)self;
+    PyObject *o[3];
+    if (!PyArg_ParseTuple(args, "OOO", &o[0], &o[1], &o[2])) return NULL;
+    Py_ssize_t n = items_in(o[0], 8) - 1, nnz = items_in(o[1], 8);
+    if (n < 0 || nnz < 0) {
+        if (!PyErr_Occurred())
+            PyErr_SetString(PyExc_ValueError, "qp_rows kernel: bad sizes");
+        return NULL;
+    }
+    Py_buffer v[3];
+    const char kinds[3] = {'q', 'q', 'q'};
+    const Py_ssize_t items[3] = {n + 1, nnz, n};
+    int got = 0;
+    PyObject *result = NULL;
+    int64_t *stamp = NULL;
+    for (got = 0; got < 3; got++)
+        if (get(o[got], &v[got], got == 2, items[got], kinds[got]) != 0) goto done;
+    {
+        const int64_t *start = v[0].buf, *nb = v[1].buf;
+        int64_t *order = v[2].buf;
+        for (Py_ssize_t j = 0; j < n; j++)
+            if (start[j] < 0 || start[j] > start[j + 1] || start[j + 1] > nnz) {
+                PyErr_SetString(PyExc_ValueError, "qp_rows kernel: bad adjacency");
+                goto done;
+            }
+        for (Py_ssize_t k = 0; k < nnz; k++)
+            if (nb[k] < 0 || nb[k] >= n) {
+                PyErr_SetString(PyExc_ValueError, "qp_rows kernel: bad adjacency");
+                goto done;
+            }
+        stamp = malloc(sizeof(int64_t) * 2 * (size_t)(n > 0 ? n : 1));
+        if (!stamp) { PyErr_NoMemory(); goto done; }
+        int64_t *placed = stamp + n;        /* -1 until a part's second search places it */
+        for (Py_ssize_t j = 0; j < n; j++) { stamp[j] = -1; placed[j] = -1; }
+        Py_ssize_t done_ = 0, lowest = 0;
+        int64_t part = 0;
+        while (done_ < n) {
+            while (placed[lowest] != -1) lowest++;
+            Py_ssize_t size = bfs(start, nb, lowest, stamp, part, order + done_);
+            int64_t far = order[done_ + size - 1];
+            bfs(start, nb, far, placed, part, order + done_);
+            done_ += size;
+            part++;
+        }
+        Py_INCREF(Py_None);
+        result = Py_None;
+    }
+done:
+    free(stamp);
+    for (int j = 0; j < got; j++) PyBuffer_Release(&v[j]);
+    return result;
+}
+
 static PyMethodDef methods[] = {
     {"reduce_into", py_reduce_into, METH_VARARGS,
      "reduce_into(cols, present, vals, lo, up, fixed, values, free_number, indptr, indices, "
@@ -435,6 +513,9 @@ static PyMethodDef methods[] = {
      "start_point(kind, lo, up, mu0, floor, sl, su, zl, zu) (banded_ipm._start)."},
     {"box_extent", py_box_extent, METH_VARARGS,
      "box_extent(indptr, indices, data, lo, up, kind, n) -> float (banded_ipm._box_extent)."},
+    {"search_order", py_search_order, METH_VARARGS,
+     "search_order(start, neighbours, order): breadth-first order from a far column, part by "
+     "part (banded_ipm._far_order_numpy)."},
     {NULL, NULL, 0, NULL}};
 
 static struct PyModuleDef module = {PyModuleDef_HEAD_INIT, "_qp_rows", NULL, -1, methods,

@@ -26,6 +26,7 @@ from __future__ import annotations
 import numpy as np
 
 from . import SolveStatus, qp_rows
+from .band_order import bandwidth, reorder
 from .qp_rows import RowQP
 
 try:
@@ -144,33 +145,6 @@ def _row_qp(P, q, A, lo, up) -> RowQP:
                  np.asarray(q, dtype=float))
 
 
-def _bandwidth(prow, pcol, indptr, indices) -> int:
-    kp = int(np.max(np.abs(prow - pcol))) if prow.size else 0
-    has = np.diff(indptr) > 0
-    if not has.any():
-        return kp
-    first = indices[indptr[:-1][has]]
-    last = indices[indptr[1:][has] - 1]
-    return max(kp, int(np.max(last - first)))
-
-
-def _reorder(qp: RowQP, prow, pcol, pval, data, q):
-    """Reverse Cuthill-McKee order of the columns (e.g. a closed loop, whose rows wrap from
-    the last station to the first): ``(prow, pcol, pval, indptr, indices, data, q, inverse)``."""
-    import scipy.sparse as sp
-    from scipy.sparse.csgraph import reverse_cuthill_mckee
-
-    n, m = qp.n, qp.m
-    As = sp.csr_matrix((data, qp.indices, qp.indptr), shape=(m, n))
-    Ps = sp.csr_matrix((pval, (prow, pcol)), shape=(n, n))
-    perm = reverse_cuthill_mckee((abs(As).T @ abs(As) + abs(Ps)).tocsr(), symmetric_mode=True)
-    Ps = Ps[perm][:, perm].tocoo()
-    As = As[:, perm].tocsr()
-    As.sort_indices()
-    return (Ps.row, Ps.col, Ps.data, As.indptr, As.indices, As.data, q[perm],
-            np.argsort(perm))
-
-
 def _prepare(P, q, A, lo, up, centre, scale):
     """:func:`_prepare_rows` on scipy.sparse ``P`` and ``A``."""
     return _prepare_rows(_row_qp(P, q, A, lo, up), centre, scale)
@@ -199,11 +173,11 @@ def _prepare_rows(qp: RowQP, centre, scale, near: bool = False):
         data = data * scale[qp.indices]
     indptr, indices = qp.indptr, qp.indices
     inverse = None
-    kd = _bandwidth(prow, pcol, indptr, indices)
+    kd = bandwidth(prow, pcol, indptr, indices)
     if kd > MAX_BANDWIDTH:
-        prow, pcol, pval, indptr, indices, data, q, inverse = _reorder(qp, prow, pcol, pval,
-                                                                      data, q)
-        kd = _bandwidth(prow, pcol, indptr, indices)
+        prow, pcol, pval, indptr, indices, data, q, inverse = reorder(qp, prow, pcol, pval,
+                                                                     data, q, MAX_BANDWIDTH)
+        kd = bandwidth(prow, pcol, indptr, indices)
         if kd > MAX_BANDWIDTH:
             return None
     has = counts > 0
