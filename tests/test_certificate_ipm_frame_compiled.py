@@ -16,8 +16,6 @@ rows need reordering, with and without a lateral jerk bound) and the whole route
 
 from __future__ import annotations
 
-import warnings
-
 import numpy as np
 import pytest
 
@@ -49,14 +47,7 @@ def _solver_qps(case, lateral_jerk, monkeypatch):
         limits = limits.replace(max_lateral_jerk_mps3=1.0)
     replanner = Replanner(geo, limits, constraints,
                           options=ConvexOptions(threads=1, max_iterations=1))
-    state = (5.0, 0.0, 0.0) if constraints.stops else (5.0, 8.0, 0.0)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        for _ in range(40):
-            w = replanner.replan(*state)
-            state = w.state_at(1.0)
-            if not geo.closed and state[0] > geo.length_m - 350.0:
-                break
+    replan_cases.drive(replanner, geo, constraints, 40)
     monkeypatch.undo()
     return seen
 

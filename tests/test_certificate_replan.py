@@ -12,6 +12,7 @@
 from __future__ import annotations
 
 import math
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -68,6 +69,22 @@ def _mountain():
 
 
 CASES = {"shuttle": (_shuttle, 97), "loop": (_loop, 113), "mountain": (_mountain, 211)}
+
+
+def drive(replanner: Replanner, geo, constraints, calls: int) -> list:
+    """The windows a vehicle gets that follows each exactly for 1 s, from station 5 m
+    (standing where the route has stops, else at 8 m/s), for ``calls`` calls or until it is
+    within 350 m of an open route's end (warnings of the windows' own kept quiet)."""
+    state = (5.0, 0.0, 0.0) if constraints.stops else (5.0, 8.0, 0.0)
+    out = []
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        for _ in range(calls):
+            out.append(replanner.replan(*state))
+            state = out[-1].state_at(1.0)
+            if not geo.closed and state[0] > geo.length_m - 350.0:
+                break
+    return out
 
 
 @pytest.fixture(scope="module", params=sorted(CASES))

@@ -12,7 +12,6 @@ refusal.
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import replace
 
 import numpy as np
@@ -33,17 +32,7 @@ def _windows(case, jerk):
     geo, limits, constraints = replan_cases.CASES[case][0]()
     replanner = Replanner(geo, limits.replace(max_jerk_mps3=jerk), constraints,
                           options=ConvexOptions(threads=1, max_iterations=1))
-    state = (5.0, 0.0, 0.0) if constraints.stops else (5.0, 8.0, 0.0)
-    out = []
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        for _ in range(50):
-            w = replanner.replan(*state)
-            out.append(w)
-            state = w.state_at(1.0)
-            if not geo.closed and state[0] > geo.length_m - 350.0:
-                break
-    return out
+    return replan_cases.drive(replanner, geo, constraints, 50)
 
 
 def _assert_same_verdict(problem, b):

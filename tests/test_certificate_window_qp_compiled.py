@@ -14,7 +14,6 @@ checked against scipy's connected components in test_certificate_replan_shortcut
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import replace
 
 import numpy as np
@@ -62,14 +61,7 @@ def _solver_qps(make, limits_change, iterations, monkeypatch):
     limits = limits.replace(**limits_change)
     replanner = Replanner(geo, limits, constraints,
                           options=ConvexOptions(threads=1, max_iterations=iterations))
-    state = (5.0, 0.0, 0.0) if constraints.stops else (5.0, 8.0, 0.0)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        for _ in range(60):
-            w = replanner.replan(*state)
-            state = w.state_at(1.0)
-            if not geo.closed and state[0] > geo.length_m - 350.0:
-                break
+    replan_cases.drive(replanner, geo, constraints, 60)
     monkeypatch.undo()
     return [(b, x) for b, x in seen if window_qp.applies(b)]
 
