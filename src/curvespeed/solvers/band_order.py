@@ -3,10 +3,12 @@ one end of the loop to the other), for the banded interior-point method (:mod:`.
 
 The columns are put in breadth-first order from a far column of each connected part, the
 Cuthill-McKee order without its sorting by degree: a ring whose neighbours lie within ``w``
-columns becomes a band about ``2 w`` wide, a path one ``w`` wide, as reverse Cuthill-McKee makes
-them, with no scipy on a loop's plan (its import is about 0.3 s). The search is compiled
-(``search_order`` in ``_qp_rows.c``) with :func:`far_order_numpy` as its reference; a pattern
-still too wide after it gets scipy's reverse Cuthill-McKee.
+columns becomes a band about ``2 w`` wide, a path one ``w`` wide, as narrow as scipy's reverse
+Cuthill-McKee makes them (tests/test_reference_band_order.py), with no scipy on a loop's plan
+(its import is about 0.3 s). The search is compiled (``search_order`` in ``_qp_rows.c``) with
+:func:`far_order_numpy` as its reference. A QP still too wide in this order is not banded: the
+banded method reports it failed and the convex solver hands it to Clarabel, as it does any QP
+the method cannot take.
 """
 
 from __future__ import annotations
@@ -18,6 +20,8 @@ from .qp_rows import RowQP
 
 
 def bandwidth(prow, pcol, indptr, indices) -> int:
+    """Half-bandwidth of ``P`` (coordinates) and of the rows (compressed, each row's columns in
+    order): the largest distance between two columns an entry or a row couples."""
     kp = int(np.max(np.abs(prow - pcol))) if prow.size else 0
     has = np.diff(indptr) > 0
     if not has.any():
@@ -27,27 +31,11 @@ def bandwidth(prow, pcol, indptr, indices) -> int:
     return max(kp, int(np.max(last - first)))
 
 
-def reorder(qp: RowQP, prow, pcol, pval, data, q, max_bandwidth: int):
-    """A banded order of the columns where the rows join distant columns (a closed loop's,
-    which wrap from one end of the loop to the other): ``(prow, pcol, pval, indptr, indices,
-    data, q, inverse)``.
-
-    The columns in breadth-first order from a far column (:func:`_level_order`, the
-    Cuthill-McKee order without its sorting by degree): a ring whose neighbours lie within
-    ``w`` columns becomes a band about ``2 w`` wide, as reverse Cuthill-McKee makes it, without
-    scipy. A pattern still too wide after that gets scipy's reverse Cuthill-McKee."""
+def reorder(qp: RowQP, prow, pcol, pval, data, q):
+    """The QP with its columns in :func:`level_order` (module docstring): ``(prow, pcol, pval,
+    indptr, indices, data, q, inverse)``, ``inverse`` each old column's new place."""
     inverse = np.empty(qp.n, dtype=np.intp)
     inverse[level_order(qp, prow, pcol)] = np.arange(qp.n)
-    out = permuted(qp, prow, pcol, pval, data, q, inverse)
-    if bandwidth(out[0], out[1], out[3], out[4]) <= max_bandwidth:
-        return out
-    import scipy.sparse as sp
-    from scipy.sparse.csgraph import reverse_cuthill_mckee
-
-    As = sp.csr_matrix((data, qp.indices, qp.indptr), shape=(qp.m, qp.n))
-    Ps = sp.csr_matrix((pval, (prow, pcol)), shape=(qp.n, qp.n))
-    perm = reverse_cuthill_mckee((abs(As).T @ abs(As) + abs(Ps)).tocsr(), symmetric_mode=True)
-    inverse[perm] = np.arange(qp.n)
     return permuted(qp, prow, pcol, pval, data, q, inverse)
 
 

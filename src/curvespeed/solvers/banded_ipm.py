@@ -176,7 +176,7 @@ def _prepare_rows(qp: RowQP, centre, scale, near: bool = False):
     kd = bandwidth(prow, pcol, indptr, indices)
     if kd > MAX_BANDWIDTH:
         prow, pcol, pval, indptr, indices, data, q, inverse = reorder(qp, prow, pcol, pval,
-                                                                     data, q, MAX_BANDWIDTH)
+                                                                     data, q)
         kd = bandwidth(prow, pcol, indptr, indices)
         if kd > MAX_BANDWIDTH:
             return None
