@@ -347,12 +347,13 @@ def _choose_scales(kappa, sd, width, station) -> np.ndarray:
 
 
 def _ramp(level: np.ndarray, station: np.ndarray, ramp_m: float,
-          compiled: bool | None = None) -> np.ndarray:
+          compiled: bool = True) -> np.ndarray:
     """The largest function below ``level`` that changes by at most one per ``ramp_m`` metres
     (a lower envelope of cones, by a forward and a backward pass): by the compiled twin
-    (``_scale_ramp.c``; default: when it was built) or by the Python loop, its reference."""
+    (``_scale_ramp.c``, where it was built, unless ``compiled`` is False) or by the Python
+    loop, its reference."""
     steps = np.diff(station) / max(ramp_m, 1e-9)
-    if _scale_ramp is not None and compiled is not False:
+    if compiled and _scale_ramp is not None:
         out = np.array(level, dtype=float)
         _scale_ramp.ramp(out, np.ascontiguousarray(steps, dtype=float), out.size)
         return out

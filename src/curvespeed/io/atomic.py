@@ -26,6 +26,7 @@ import errno
 import os
 import signal
 import stat
+import tempfile
 import threading
 from dataclasses import dataclass
 from pathlib import Path
@@ -36,26 +37,6 @@ from ..errors import OutputError
 #: enough for any file name the folder accepts to stay writable (a name of 255 bytes included).
 TEMP_PREFIX = ".cs-"
 TEMP_SUFFIX = ".part"
-#: How a temporary file is created: only if no file (or link) has its name, readable and
-#: writable by its owner alone (0600), as the standard library's mkstemp does.
-_TEMP_FLAGS = (os.O_RDWR | os.O_CREAT | os.O_EXCL | getattr(os, "O_NOFOLLOW", 0)
-               | getattr(os, "O_CLOEXEC", 0) | getattr(os, "O_BINARY", 0))
-
-
-def _new_temp_file(folder) -> str:
-    """A new empty file in ``folder`` named ``TEMP_PREFIX``, 8 random hex digits and
-    ``TEMP_SUFFIX``, created exclusively (another name drawn if one is taken); its absolute
-    path. (The tempfile module's mkstemp does the same; importing it, with random and shutil,
-    was about 9 ms of every command's start-up.)"""
-    for _ in range(100):
-        name = os.path.join(folder, f"{TEMP_PREFIX}{os.urandom(4).hex()}{TEMP_SUFFIX}")
-        try:
-            fd = os.open(name, _TEMP_FLAGS, 0o600)
-        except FileExistsError:
-            continue
-        os.close(fd)
-        return os.path.abspath(name)
-    raise FileExistsError(errno.EEXIST, "no unused temporary file name", os.fspath(folder))
 #: Signals that remove the temporary files before the command ends.
 CLEANUP_SIGNALS = (signal.SIGTERM, signal.SIGINT)
 
@@ -251,10 +232,13 @@ class OutputFiles:
 
     def _reserve(self, out: _Named) -> str:
         try:
-            return _new_temp_file(out.path.parent)
+            fd, tmp = tempfile.mkstemp(prefix=TEMP_PREFIX, suffix=TEMP_SUFFIX,
+                                       dir=out.path.parent)
         except OSError as exc:
             raise OutputError(f"{out.text}: cannot write in folder {out.path.parent} "
                               f"({os_reason(exc)}); choose another folder") from None
+        os.close(fd)
+        return tmp
 
     def _temp(self, path) -> tuple[_Named, str]:
         key = os.fspath(path)
