@@ -76,11 +76,12 @@ The bound holds
   the curvature is linear between the nodes it is exact at constant speed (``|kappa'| v^3`` on
   a clothoid, Shortt's spiral rate) and wherever the largest rate meets the larger speed;
 * *at every node where two steps meet, across the change of acceleration*: with the road of
-  either step (its rate at either end of that step's range) and the acceleration of the other, ``|kappa'_- b + 2 kappa a_+| v`` and
-  ``|kappa'_+ b + 2 kappa a_-| v`` (:meth:`SpeedProblem.node_lateral_jerk`). A vehicle cannot
-  switch its acceleration exactly at a station (the jerk bound spreads the change around the
-  node), and where the curvature rate changes at the node the road next to it is driven with
-  either step's acceleration or one between them (``g`` is linear in ``a``).
+  either step (its rate at either end of that step's range) and the acceleration of the other,
+  ``|kappa'_- b + 2 kappa a_+| v`` and ``|kappa'_+ b + 2 kappa a_-| v``
+  (:meth:`SpeedProblem.node_lateral_jerk`). A vehicle cannot switch its acceleration exactly
+  at a station (the jerk bound spreads the change around the node), and where the curvature
+  rate changes at the node the road next to it is driven with either step's acceleration or
+  one between them (``g`` is linear in ``a``).
 
 Stations are treated as path length (the slope's cos(gamma) < 0.5 % at 10 % grade is neglected).
 Every function here is vectorised over nodes and has no side effects.

@@ -68,8 +68,8 @@ class _Done:
 #: Size of a batch of independent blocks solved in one QP (variables): the route's free stations
 #: are cut into about this many per batch, whatever the number of threads, so each QP -- and
 #: therefore the answer, to the byte -- is the same for any number of threads; the threads only
-#: share the batches out. Small enough that a few cores get balanced work on a 10 km route (about 7 batches),
-#: large enough that the fixed cost of a solver call stays small (measured: the same solve
+#: share the batches out. Small enough that a few cores get balanced work on a 10 km route
+#: (about 7 batches), large enough that the fixed cost of a solver call stays small (measured: the same solve
 #: times as the thread-dependent batching it replaces, within the machine's noise).
 _BATCH_VARIABLES = 1_000
 
