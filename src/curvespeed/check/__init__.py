@@ -96,13 +96,7 @@ if TYPE_CHECKING:
     from .uncertainty import (CurvatureEnds, RadiusInterval, curvature_ends, estimate_geometry,
                               radius_interval)
 
-__all__ = ["BRAKE_REACH", "CHECKED_LIMITS", "CURVATURE_LIMITS", "CURVE_RADIUS_M", "JOIN_GAP_M",
-           "MIN_CURVE_LENGTH_M", "MIN_CURVE_TURN_DEG", "MIN_RADIUS", "USE_TOLERANCE",
-           "CheckReport", "CurvatureEnds", "CurveCheck", "CurveSettings", "CurveVerdict",
-           "Judgement", "RadiusInterval", "SpeedKind", "Violation", "brake_reach_b",
-           "check_speeds", "checked_constraints", "curvature_ends", "estimate_geometry",
-           "find_curves", "judge_speeds", "radius_interval", "rest_constraints",
-           "zone_speeds_mps"]
+__all__ = sorted(_SOURCES)
 
 
 def __getattr__(name: str):
