@@ -46,6 +46,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .order_stats import distinct
+
 
 @dataclass(frozen=True)
 class NodeRateForms:
@@ -89,7 +91,7 @@ def spread_rate_range(kappa, ds: float, closed: bool, spread_m,
     wide = np.maximum(spread[:-1], spread[1:])
     reach = np.where(wide > 0.0, np.ceil(wide / ds - 1e-9) + 1, 0).astype(np.intp)
     lo, hi = rate.copy(), rate.copy()
-    for m in np.unique(reach[reach > 0]):          # a few distinct widths: one pass each
+    for m in distinct(reach[reach > 0]):          # a few distinct widths: one pass each
         steps = np.flatnonzero(reach == m)
         shifts = np.arange(-m, m + 1)
         if closed:

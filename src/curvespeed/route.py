@@ -17,6 +17,7 @@ import numpy as np
 
 from .errors import CurvespeedWarning, RouteGeometryError
 from .geodesy import LocalProjection
+from .order_stats import median
 
 #: A turn sharper than this between consecutive chords is treated as the path doubling back.
 REVERSAL_TURN_DEG = 150.0
@@ -215,7 +216,7 @@ def check_reversals(x: np.ndarray, y: np.ndarray, labels: np.ndarray, source: st
             away = max(math.hypot(x[c] - x[c - 1], y[c] - y[c - 1]),
                        math.hypot(x[c] - x[c + 1], y[c] - y[c + 1]))
             apart = math.hypot(x[c + 1] - x[c - 1], y[c + 1] - y[c - 1])
-            usual = float(np.median(np.hypot(np.diff(x[rest]), np.diff(y[rest]))))
+            usual = median(np.hypot(np.diff(x[rest]), np.diff(y[rest])))
             if away <= STRAY_STEPS * usual:
                 continue                  # no farther out than the points' own steps
             if best is None or away / max(apart, 1e-9) > best[0]:

@@ -36,6 +36,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..order_stats import median
+
 #: Penalty per break, in units of log(stations) of the normalised residual sum: a break must
 #: explain this much more than noise would (a Bayesian information criterion with a factor 4
 #: for the correlation the smoothing leaves between neighbouring stations' errors).
@@ -85,7 +87,7 @@ def reconstruct(station: np.ndarray, kappa: np.ndarray, deltas: np.ndarray, spre
     ds = float(station[1] - station[0])
     gap = max(1, int(math.ceil(0.5 * spread_m / ds)))
     sd = np.sqrt(np.mean(deltas**2, axis=1))
-    sigma = max(float(np.median(sd)), 1e-9)
+    sigma = max(median(sd), 1e-9)
     if n < 2 * (2 * gap + 4):
         return None
     fits = _LineFits(kappa, deltas)

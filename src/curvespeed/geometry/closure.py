@@ -8,6 +8,7 @@ import warnings
 import numpy as np
 
 from ..errors import CurvespeedWarning, RouteGeometryError
+from ..order_stats import median, percentile
 from ..route import REVERSAL_TURN_DEG
 
 #: An automatic loop needs its ends closer than this fraction of the route's length too.
@@ -34,7 +35,7 @@ def decide_closure(x, y, where, source, closed, tolerance_m, noise_m) -> tuple[b
     if closed is False:
         return False, False
     gap = math.hypot(x[-1] - x[0], y[-1] - y[0])
-    median_chord = float(np.median(np.hypot(np.diff(x), np.diff(y))))
+    median_chord = median(np.hypot(np.diff(x), np.diff(y)))
     tol = (max(CLOSURE_SPACINGS * median_chord, CLOSURE_NOISE_SIGMAS * noise_m)
            if tolerance_m is None else float(tolerance_m))
     length = float(np.sum(np.hypot(np.diff(x), np.diff(y))))
@@ -93,7 +94,7 @@ def _seam_turn(x, y, gap: float, median_chord: float) -> tuple[float, float]:
     (see CLOSURE_TURN_DEG)."""
     heading = np.arctan2(np.diff(y), np.diff(x))
     turns = np.degrees(np.abs(np.angle(np.exp(1j * np.diff(heading)))))
-    allowed = max(CLOSURE_TURN_DEG, 1.5 * float(np.percentile(turns, 95)) if turns.size else 0.0)
+    allowed = max(CLOSURE_TURN_DEG, 1.5 * percentile(turns, 95) if turns.size else 0.0)
     into = (x[-1] - x[-2], y[-1] - y[-2])
     out = (x[1] - x[0], y[1] - y[0])
     if gap <= 0.5 * median_chord:       # the last point repeats the first: last chord to first

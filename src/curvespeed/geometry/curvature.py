@@ -41,6 +41,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..order_stats import distinct, median
 from .alignment import reconstruct
 from .pspline import SplineFit, null_space_fit, null_space_spline
 from .scales import CHUNK, REPLICATES, cross, noise_chunk, scale_families
@@ -141,7 +142,7 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
     sd = np.array([sc.sd for sc in scales])
     width = np.array([sc.width for sc in scales])
     chosen = _choose_scales(kappa, sd, width, station)
-    level = _ramp(chosen, station, RAMP_WIDTHS * float(np.median(width[0])))
+    level = _ramp(chosen, station, RAMP_WIDTHS * median(width[0]))
     idx = np.arange(station.size)
     low = np.floor(level).astype(np.intp)
     high = np.minimum(low + 1, kappa.shape[0] - 1)
@@ -253,7 +254,7 @@ def _reconstruction(fine, u_points, values, weight, u_nodes, station):
     """The piecewise-linear curvature of the design alignment (:mod:`.alignment`) read from the
     scale ``fine`` (its replicates kept), with the steps its points confirm; or None."""
     deltas = np.hstack(fine.deltas)
-    spread = float(np.median(fine.width))
+    spread = median(fine.width)
     rebuilt = reconstruct(station, fine.kappa, deltas, spread, GAMMA)
     if rebuilt is None:
         return None
@@ -303,7 +304,7 @@ def _trusted(rebuilt, kappa, sd, width, station) -> np.ndarray:
     trusted = (checked >= np.maximum(5, 0.25 * total)) & (np.bincount(
         element[disagree], minlength=n_elements) == 0)
     # too short to compare, but the fine estimate follows its line closely and precisely
-    return trusted[element] | (rebuilt.follows & ~np.isin(element, np.unique(element[disagree])))
+    return trusted[element] | (rebuilt.follows & ~np.isin(element, distinct(element[disagree])))
 
 
 def _null_space_estimate(fit, u_points, weight, u_nodes, noise) -> CurvatureEstimate:
@@ -392,7 +393,7 @@ def _running_max(values, station, width) -> np.ndarray:
     length = hi - lo + 1
     j = np.floor(np.log2(length)).astype(np.intp)
     out = np.empty(n)
-    for level in np.unique(j):
+    for level in distinct(j):
         sel = j == level
         t = table[level]
         out[sel] = np.maximum(t[lo[sel]], t[hi[sel] - 2**level + 1])

@@ -36,6 +36,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import CurvespeedWarning, RouteGeometryError
+from ..order_stats import median, percentile
 from ..route import REVERSAL_TURN_DEG, Route
 from .arclength import ArcLength
 from .noise import estimate_scatter
@@ -170,7 +171,7 @@ def prepare_drive(route: Route, part: int | None = None) -> DrivePoints:
         slow = speed < REST_SPEED_MPS
         extent = max(REST_EXTENT_M, REST_NOISE_WIDTHS * sigma)
     else:   # no clock: only a run that scatters like noise is taken as standing still
-        slow = speed < REST_STEP_FRACTION * float(np.percentile(speed, 75))
+        slow = speed < REST_STEP_FRACTION * percentile(speed, 75)
         extent = REST_NOISE_WIDTHS * sigma
     runs = _rest_runs(slow, position, extent)
     # In sampling order the noise estimate also sees how irregularly survey points are spaced;
@@ -243,7 +244,7 @@ def _chord_noise(x: np.ndarray, y: np.ndarray) -> float:
 
 
 def _median_step(t: np.ndarray) -> float:
-    return float(np.median(np.diff(t))) / 2.0
+    return median(np.diff(t)) / 2.0
 
 
 def _chord_length(x: np.ndarray, y: np.ndarray) -> float:

@@ -9,6 +9,7 @@ import numpy as np
 from numpy.linalg import LinAlgError
 
 from ..errors import CurvespeedWarning, RouteGeometryError
+from ..order_stats import median
 from .noise import choose_noise, estimate_noise
 from .pspline import fit_pspline, residual_target
 
@@ -37,16 +38,16 @@ def fit_elevation(point_station, z, count, stated_noise, length, closed, node_st
     # points closer than a hundredth of the usual gap (fixes merged or averaged around a
     # stop) would make the difference-based estimate divide by almost nothing
     gaps = np.diff(s)
-    usual = float(np.median(gaps)) if gaps.size else 0.0
+    usual = median(gaps) if gaps.size else 0.0
     keep = np.concatenate(([True], gaps > 0.01 * usual))
     s, zz, cnt = s[keep], zz[keep], cnt[keep]
-    scale = 1.0 / np.sqrt(np.minimum(cnt, 4.0 * float(np.median(cnt))))
+    scale = 1.0 / np.sqrt(np.minimum(cnt, 4.0 * median(cnt)))
     estimate = estimate_noise(s, zz[:, None], length, closed, scale=scale)
     noise = choose_noise("elevation", stated_noise, estimate, MIN_ELEVATION_NOISE_M,
                          DEFAULT_ELEVATION_NOISE_M, source, stacklevel=4)
     m = s.size
     gaps = np.diff(s)
-    knot_spacing = max(float(np.median(gaps)) / 2, length / (4 * m)) if m > 1 else length
+    knot_spacing = max(median(gaps) / 2, length / (4 * m)) if m > 1 else length
     try:
         fit = fit_pspline(s, zz[:, None], 1.0 / (noise.used * scale), residual_target(m), length,
                           closed, knot_spacing)

@@ -30,6 +30,7 @@ import numpy as np
 from scipy.spatial import cKDTree
 
 from ..errors import RouteGeometryError
+from ..order_stats import median
 from ..route import Route, make_route
 from .drive import prepare_drive
 from .model import Geometry
@@ -60,9 +61,9 @@ def build_fused_geometry(routes: Sequence[Route], **options) -> Geometry:
     for i, route in enumerate(routes):            # in the order given, for the report
         drive = prepare_drive(route, part if i == longest else None)
         station, offset = _place(reference, drive.x_m, drive.y_m)
-        if float(np.median(np.abs(offset))) > MAX_OFFSET_M:
+        if median(np.abs(offset)) > MAX_OFFSET_M:
             raise RouteGeometryError(
-                f"{route.source}: its fixes lie {float(np.median(np.abs(offset))):.0f} m (median) "
+                f"{route.source}: its fixes lie {median(np.abs(offset)):.0f} m (median) "
                 f"from the route of {routes[longest].source}: it is not a drive of the same route; "
                 "fuse only drives of one route")
         if np.corrcoef(np.arange(station.size), station)[0, 1] < 0:   # driven the other way
@@ -138,11 +139,11 @@ def _average(placed, first: Route, reference: Geometry) -> Route:
     positions, keeps a cell on a bend from being pulled to the inside of it)."""
     station = np.concatenate([s for _, _, s, _ in placed])
     offset = np.concatenate([o for _, _, _, o in placed])
-    w = np.concatenate([np.minimum(d.count, 4.0 * np.median(d.count)) for _, d, _, _ in placed])
+    w = np.concatenate([np.minimum(d.count, 4.0 * median(d.count)) for _, d, _, _ in placed])
     has_z = all(d.z_m is not None for _, d, _, _ in placed)
     z = np.concatenate([d.z_m for _, d, _, _ in placed]) if has_z else None
     # a cell long enough to hold a point of every drive, so each mean averages the drives
-    spacing = max(float(np.median(np.abs(np.diff(s)))) for _, _, s, _ in placed)
+    spacing = max(median(np.abs(np.diff(s))) for _, _, s, _ in placed)
     cell = max(FUSION_CELL_M, spacing, max(d.cell_m for _, d, _, _ in placed))
     index = np.floor(station / cell).astype(np.int64)
     order = np.argsort(index, kind="stable")

@@ -10,6 +10,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import CurvespeedWarning
+from ..order_stats import percentile
 
 #: Neighbours on each side of a point used to predict it in :func:`estimate_scatter`: a quintic
 #: (degree 2 * 3 - 1, the spline's own degree) through the three points before and after.
@@ -103,7 +104,7 @@ def estimate_scatter(u: np.ndarray, values: np.ndarray, span: float, periodic: b
     # times the 90th percentile are capped there (for Gaussian noise that cap lies beyond
     # 6 sigma and changes nothing; a 5 m spike among centimetre-precise points no longer
     # passes for a metre of noise everywhere).
-    cap = (WINSOR_FACTOR**2) * float(np.percentile(squares, 90))
+    cap = (WINSOR_FACTOR**2) * percentile(squares, 90)
     mean_square = float(np.mean(np.minimum(squares, cap))) / components
     if not math.isfinite(mean_square):      # neighbours almost on top of each other
         return math.inf

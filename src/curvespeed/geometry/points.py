@@ -93,6 +93,7 @@ import numpy as np
 from numpy.linalg import LinAlgError
 
 from ..errors import CurvespeedWarning, RouteGeometryError
+from ..order_stats import median
 from ..route import Route, check_reversals, warn_spikes
 from .arclength import ARC_PIECE_M, ArcLength
 from .closure import decide_closure
@@ -357,7 +358,7 @@ def _fit_path(x, y, count, closed, stated_noise, spacing_m, source) -> _PathFit:
     span = float(u[-1])
     if closed:
         span += math.hypot(x[0] - x[-1], y[0] - y[-1])
-    cap = MAX_WEIGHT_COUNT_FACTOR * float(np.median(count))
+    cap = MAX_WEIGHT_COUNT_FACTOR * median(count)
     scale = 1.0 / np.sqrt(np.minimum(count, cap))
     xy = np.column_stack((x, y))
     estimate = estimate_noise(u, xy, span, closed, scale=scale)
@@ -395,7 +396,7 @@ def _warn_outliers(fit, u, xy, sigma, source) -> None:
     The yardstick is the larger of the point's noise and the typical residual (its robust
     spread), so slowly drifting errors that the fit leaves in the residual do not count."""
     miss = np.hypot(*(xy - fit.spline(np.clip(u, 0.0, fit.span))).T)
-    typical = float(np.median(miss)) / 1.1774     # median of a Rayleigh(sigma) distance
+    typical = median(miss) / 1.1774     # median of a Rayleigh(sigma) distance
     resid = miss / np.maximum(sigma, typical)
     bad = np.flatnonzero((resid > OUTLIER_SIGMAS) & (miss > OUTLIER_MIN_M))
     if bad.size:
@@ -468,7 +469,7 @@ def _knot_spacing(gaps: np.ndarray, span: float) -> float:
     blow it up; heavy smoothing widens the spacing later (see ``fit_pspline``).
     """
     n_points = gaps.size + 1
-    return max(float(np.median(gaps)) / KNOTS_PER_SPACING,
+    return max(median(gaps) / KNOTS_PER_SPACING,
                span / (2 * KNOTS_PER_SPACING * n_points))
 
 
@@ -492,7 +493,7 @@ def _foot_parameter(spline: UniformSpline, px: float, py: float, u0: float, span
 def _check_cusps(arc: ArcLength, s_first, point_station, where, source, noise_m) -> None:
     """Raise where the fitted path nearly stops and turns back (speed along u collapses)."""
     speed = arc.node_speed
-    floor = CUSP_SPEED_FRACTION * float(np.median(speed))
+    floor = CUSP_SPEED_FRACTION * median(speed)
     j, q = np.unravel_index(int(np.argmin(speed)), speed.shape)
     if speed[j, q] >= floor:
         return

@@ -31,6 +31,7 @@ from defusedxml import DefusedXmlException, EntitiesForbidden, ExternalReference
 import numpy as np
 
 from ..errors import CurvespeedWarning
+from ..order_stats import median
 from ..route import Route, make_route
 from ._common import (cell_text, fail, latlon_range_problem, number_problem, parse_number,
                       project_latlon, swapped_would_fit)
@@ -185,12 +186,12 @@ def _warn_gaps(x: np.ndarray, y: np.ndarray, time_s, segment_starts: np.ndarray,
     moving = step[step > 1e-3]
     if moving.size < 2:
         return
-    median = float(np.median(moving))
-    gaps = np.flatnonzero(step > max(GAP_FACTOR * median, GAP_MIN_M))
+    usual = median(moving)
+    gaps = np.flatnonzero(step > max(GAP_FACTOR * usual, GAP_MIN_M))
     if not gaps.size:
         return
     j = int(gaps[np.argmax(step[gaps])])        # step from point j to j + 1 (0-based)
-    detail = f"{step[j] / median:.0f} times the median step of {median:.1f} m"
+    detail = f"{step[j] / usual:.0f} times the median step of {usual:.1f} m"
     if time_s is not None:
         detail += f", {time_s[j + 1] - time_s[j]:.0f} s later"
     segment = ""

@@ -54,6 +54,7 @@ import numpy as np
 
 from ..diagnose import stop_out_of_reach
 from ..errors import CurvespeedWarning, InfeasibleError, SolverError
+from ..order_stats import distinct
 from ..problem import SpeedProblem
 from . import QPBackend, SolveResult, SolveStatus
 from .convex_qp import QPBuilder, QPLayout
@@ -356,7 +357,7 @@ class _BlockObjective:
         """The steps' own nodes, in order: the time alone reads only these, so the line search
         runs on them (made on first use: a window solved by one QP never searches)."""
         lay, steps = self.lay, self.steps
-        return np.unique(np.concatenate((lay.step_from[steps], lay.step_to[steps])))
+        return distinct(np.concatenate((lay.step_from[steps], lay.step_to[steps])))
 
     @cached_property
     def _local(self):

@@ -14,6 +14,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from ..order_stats import median
 from ..problem import SpeedProblem
 from . import window_qp
 from .qp_rows import RowQP, canonical, pad, reduce_tables
@@ -444,7 +445,7 @@ class QPBuilder:
         # the Hessian times b_hat, on free rows, each row's terms in column order from zero
         hb = np.bincount(prow, pval * b_hat[pcol], minlength=nv)
         q = np.where(lay.fixed, -lay.fixed_value, grad - hb)
-        scale = 1.0 / max(float(np.median(np.abs(grad[free]))) if free.any() else 1.0, 1e-12)
+        scale = 1.0 / max(median(np.abs(grad[free])) if free.any() else 1.0, 1e-12)
         return prow, pcol, pval * scale, q * scale, scale
 
     def reduced(self, b_hat: np.ndarray):
