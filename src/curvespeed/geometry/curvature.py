@@ -116,11 +116,38 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
         chunks = [noise(c) for c in range(REPLICATES // CHUNK)]
         across, along = [c[:, :CHUNK] for c in chunks], [c[:, CHUNK:] for c in chunks]
         return _null_space_estimate(fit, u_points, weight, u_nodes, np.hstack(across + along))
-    # Noise replicates a few at a time (a log of 10^6 fixes would need 0.5 GB for all at once),
-    # and one knot grid's normal equations at a time (each holds the basis of every point).
-    # The design alignment is read from the finest scale first (not yet on a loop: its elements
-    # would need the seam closed); the reconstructed road, laid out at the points, then
-    # measures how much each scale rounds off its peaks.
+    scales, rebuilt = _scales_and_alignment(fit, u_points, values, weight, u_nodes, station,
+                                            noise)
+    kappa = np.array([sc.kappa for sc in scales])
+    sd = np.array([sc.sd for sc in scales])
+    width = np.array([sc.width for sc in scales])
+    chosen = _choose_scales(kappa, sd, width, station)
+    level = _ramp(chosen, station, RAMP_WIDTHS * median(width[0]))
+    idx = np.arange(station.size)
+    low = np.floor(level).astype(np.intp)
+    high = np.minimum(low + 1, kappa.shape[0] - 1)
+    f = level - low
+    k = (1 - f) * kappa[low, idx] + f * kappa[high, idx]
+    s = (1 - f) * sd[low, idx] + f * sd[high, idx]
+    w = (1 - f) * width[low, idx] + f * width[high, idx]
+    bound = _scales_bound(scales, kappa, sd, width, high, k, s, station)
+    if rebuilt is None:
+        return CurvatureEstimate(k, s, bound, w, level, w, None)
+    k, s, bound, spread, margin = _with_alignment(rebuilt, k, s, w, bound, station)
+    return CurvatureEstimate(k, s, bound, w, level, spread, margin)
+
+
+def _scales_and_alignment(fit, u_points, values, weight, u_nodes, station, noise):
+    """Every scale's estimate (levels 0 to LEVELS, each with how much it rounds off peaks) and
+    the reconstructed alignment with its steps (None on a loop, on too few stations, or where
+    no alignment is found).
+
+    Noise replicates a few at a time (a log of 10^6 fixes would need 0.5 GB for all at once),
+    and one knot grid's normal equations at a time (each holds the basis of every point). The
+    design alignment is read from the finest scale first (not yet on a loop: its elements would
+    need the seam closed); the reconstructed road, laid out at the points, then measures how
+    much each scale rounds off its peaks.
+    """
     rebuild = not fit.periodic and station.size >= 3
     levels = ([ALIGNMENT_LEVEL] if rebuild else []) + list(range(LEVELS + 1))
     rebuilt = road = None
@@ -138,21 +165,15 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
         for scale in family.scales:
             scale.system = None
         scales += [scale for scale in family.scales if scale.level != ALIGNMENT_LEVEL]
-    kappa = np.array([sc.kappa for sc in scales])
-    sd = np.array([sc.sd for sc in scales])
-    width = np.array([sc.width for sc in scales])
-    chosen = _choose_scales(kappa, sd, width, station)
-    level = _ramp(chosen, station, RAMP_WIDTHS * median(width[0]))
-    idx = np.arange(station.size)
-    low = np.floor(level).astype(np.intp)
-    high = np.minimum(low + 1, kappa.shape[0] - 1)
-    f = level - low
-    k = (1 - f) * kappa[low, idx] + f * kappa[high, idx]
-    s = (1 - f) * sd[low, idx] + f * sd[high, idx]
-    w = (1 - f) * width[low, idx] + f * width[high, idx]
-    # every scale up to the one used bounds the curvature on its own: its estimate plus GAMMA
-    # standard deviations plus how much it rounds off a peak, widened by how far it spreads a
-    # change; the tightest holds
+    return scales, rebuilt
+
+
+def _scales_bound(scales, kappa, sd, width, high, k, s, station) -> np.ndarray:
+    """The adaptive estimate's bound: every scale up to the one used (``high`` per station)
+    bounds the curvature on its own -- its estimate plus GAMMA standard deviations plus how much
+    it rounds off a peak, widened by how far it spreads a change; the tightest holds -- and
+    never below the estimate used (``k``, ``s``) plus its uncertainty, widened by the finest
+    spread."""
     bound = np.full(station.size, np.inf)
     for j in range(kappa.shape[0]):
         valid = j <= high
@@ -160,45 +181,48 @@ def estimate_curvature(fit: SplineFit, u_points: np.ndarray, values: np.ndarray,
             own = _running_max(np.abs(kappa[j]) + GAMMA * sd[j] + scales[j].lowered, station,
                                width[j])
             bound[valid] = np.minimum(bound[valid], own[valid])
-    # and never below the estimate used plus its uncertainty, widened by the finest spread
-    bound = np.maximum(bound, _running_max(np.abs(k) + GAMMA * s, station, width[0]))
-    spread, margin = w, None
-    if rebuilt is not None:
-        rebuilt, steps = rebuilt
-        use = _trusted(rebuilt, k, s, w, station)
-        # A trusted element's line may still run past a break the partition placed late (its
-        # end lies within the adaptive estimate's spread, where the two are not compared), and
-        # a line's standard deviation cannot see that the element is not one (a clothoid, an
-        # arc and a clothoid read as one line at 5 cm of noise): the adaptive estimate at the
-        # station, with its own uncertainty, is a floor. Where the two part by more than their
-        # noise (away from the steps explained, whose smear parts them anyway) either may be
-        # wrong, by as much as they part: the larger plus that difference. (Simulated: 1 cm of
-        # noise on the wet road left the line's bound 16 % short 13 m into a clothoid, where
-        # the adaptive estimate lagged by 8 %; 5 cm 1.3 % short on an arc;
-        # tests/test_reference_steps.py.)
-        gap = np.abs(rebuilt.kappa - k)
-        parted = ((gap > GAMMA * (rebuilt.sd + s)) & ~transition_zone(steps, station, w)
-                  & ~_ringing(rebuilt, k, station, w))
-        own = np.abs(k) + GAMMA * s
-        own = np.where(parted, np.maximum(own, np.abs(rebuilt.kappa)) + gap, own)
-        bound = np.where(use, np.where(rebuilt.near_step, np.maximum(rebuilt.bound, bound),
-                                       np.maximum(rebuilt.bound, own)), bound)
-        # where candidate roads the points cannot tell apart explain a step, their largest
-        # curvature bounds it (:mod:`.steps`)
-        bound = np.where(steps.explained, steps.bound, bound)
-        # where a step may lie the reconstruction cannot say how the curvature gets there (a
-        # jump, or a clothoid too short to resolve): the adaptive estimate stays
-        use &= ~rebuilt.near_step
-        k, s = np.where(use, rebuilt.kappa, k), np.where(use, rebuilt.sd, s)
-        # and the candidate that fits them best is the estimate there (within the bound)
-        k = np.where(steps.explained, steps.kappa, k)
-        k = _join_seams(k, np.where(steps.explained, 2, use.astype(int)), station, w, bound)
-        # the lines keep the joints where they are trusted; a candidate step stands where the
-        # points cannot place it to better than the smoothing's spread
-        on_line = use & ~steps.explained
-        spread = np.where(on_line, 0.0, w)
-        margin = np.where(on_line, _line_rate_margin(rebuilt, station), 0.0)
-    return CurvatureEstimate(k, s, bound, w, level, spread, margin)
+    return np.maximum(bound, _running_max(np.abs(k) + GAMMA * s, station, width[0]))
+
+
+def _with_alignment(rebuilt, k, s, w, bound, station):
+    """The adaptive estimate (``k``, ``s``, spread ``w``, ``bound``) joined with the
+    reconstructed alignment where its lines are trusted and with the candidate steps where
+    they explain one: ``(kappa, sd, bound, spread, rate margin)``."""
+    rebuilt, steps = rebuilt
+    use = _trusted(rebuilt, k, s, w, station)
+    # A trusted element's line may still run past a break the partition placed late (its
+    # end lies within the adaptive estimate's spread, where the two are not compared), and
+    # a line's standard deviation cannot see that the element is not one (a clothoid, an
+    # arc and a clothoid read as one line at 5 cm of noise): the adaptive estimate at the
+    # station, with its own uncertainty, is a floor. Where the two part by more than their
+    # noise (away from the steps explained, whose smear parts them anyway) either may be
+    # wrong, by as much as they part: the larger plus that difference. (Simulated: 1 cm of
+    # noise on the wet road left the line's bound 16 % short 13 m into a clothoid, where
+    # the adaptive estimate lagged by 8 %; 5 cm 1.3 % short on an arc;
+    # tests/test_reference_steps.py.)
+    gap = np.abs(rebuilt.kappa - k)
+    parted = ((gap > GAMMA * (rebuilt.sd + s)) & ~transition_zone(steps, station, w)
+              & ~_ringing(rebuilt, k, station, w))
+    own = np.abs(k) + GAMMA * s
+    own = np.where(parted, np.maximum(own, np.abs(rebuilt.kappa)) + gap, own)
+    bound = np.where(use, np.where(rebuilt.near_step, np.maximum(rebuilt.bound, bound),
+                                   np.maximum(rebuilt.bound, own)), bound)
+    # where candidate roads the points cannot tell apart explain a step, their largest
+    # curvature bounds it (:mod:`.steps`)
+    bound = np.where(steps.explained, steps.bound, bound)
+    # where a step may lie the reconstruction cannot say how the curvature gets there (a
+    # jump, or a clothoid too short to resolve): the adaptive estimate stays
+    use &= ~rebuilt.near_step
+    k, s = np.where(use, rebuilt.kappa, k), np.where(use, rebuilt.sd, s)
+    # and the candidate that fits them best is the estimate there (within the bound)
+    k = np.where(steps.explained, steps.kappa, k)
+    k = _join_seams(k, np.where(steps.explained, 2, use.astype(int)), station, w, bound)
+    # the lines keep the joints where they are trusted; a candidate step stands where the
+    # points cannot place it to better than the smoothing's spread
+    on_line = use & ~steps.explained
+    spread = np.where(on_line, 0.0, w)
+    margin = np.where(on_line, _line_rate_margin(rebuilt, station), 0.0)
+    return k, s, bound, spread, margin
 
 
 def _join_seams(kappa, source, station, width, bound) -> np.ndarray:
