@@ -9,6 +9,7 @@ node, and the terms of the time base over which a node's change of acceleration 
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING
 
@@ -73,6 +74,12 @@ def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
     jerk, ds = problem.limits.max_jerk_mps3, problem.ds
     u = np.full(problem.n_nodes - 1, np.nan)
     u[steps] = rest_step.shape_for_accel(accel, jerk, ds)
+    beyond = accel >= rest_step.max_ramp_accel(jerk, ds)
+    if beyond.any():     # the ramp goes on past the moving node
+        allowed = rest_step_allowed_accel(problem, moving[beyond], leaving[steps][beyond])
+        held = accel_held(problem, rest, steps[beyond], leaving[steps][beyond], allowed)
+        u[steps[beyond]] = np.where(held, rest_step.continuing_shape(allowed, jerk, ds),
+                                    u[steps[beyond]])
     f = rest_step.accel_factor(u[steps])
     time_coef = problem.time_coef.copy()
     time_coef[steps] = rest_step.time_coef(u[steps])
@@ -120,6 +127,51 @@ def rest_step_accel(problem: SpeedProblem, moving: np.ndarray, leaving: np.ndarr
         good = reachable(mid)
         lo_a, hi_a = np.where(good, mid, lo_a), np.where(good, hi_a, mid)
     return np.where(top_ok, top, lo_a)
+
+
+def rest_step_allowed_accel(problem: SpeedProblem, moving: np.ndarray,
+                            leaving: np.ndarray) -> np.ndarray:
+    """Acceleration (leaving rest) or deceleration (arriving) the moving node of each step next
+    to rest allows, m/s^2, at the speed a ramp at the jerk bound over the whole step reaches
+    there (where the ramp to that acceleration does not fit in the step, the speed is about
+    that)."""
+    jerk, ds = problem.limits.max_jerk_mps3, problem.ds
+    b = np.full(moving.size, float(rest_step.jerk_cap_b(1.0, jerk, ds)))
+    lo, hi = problem.accel_bounds(b, nodes=moving)
+    return np.maximum(np.where(leaving, hi, -lo), 0.0)
+
+
+def accel_held(problem: SpeedProblem, rest: np.ndarray, steps: np.ndarray,
+               leaving: np.ndarray, accel: np.ndarray) -> np.ndarray:
+    """Whether the move from (or to) the rest node of each step next to rest is long enough,
+    and its speed caps high enough, for a jerk-limited launch (or stop) to reach ``accel``.
+
+    The double-S closed form (Biagiotti & Melchiorri 2008, section 3.4) reaches its acceleration
+    limit ``A`` when the move is at least ``2 A^3 / J^2`` long and its top speed at least
+    ``A^2 / J``. The move here is the stretch between the step's rest node and the next (or
+    previous) one, twice the distance to an open end that is not at rest; its top speed the
+    highest speed cap on it. Curves and other limits only lower the acceleration a move
+    reaches, so where this is false the acceleration turns before it gets to ``A``.
+    """
+    jerk, ds, n = problem.limits.max_jerk_mps3, problem.ds, problem.n_nodes
+    idx = np.flatnonzero(rest[:-1] if problem.closed else rest)
+    nv = n - 1 if problem.closed else n
+    held = np.zeros(steps.size, dtype=bool)
+    for i, (k, out, a) in enumerate(zip(steps, leaving, accel)):
+        node = k if out else k + 1                       # the step's rest node
+        if problem.closed:
+            others = (idx - node) % nv if out else (node - idx) % nv
+            span = int(np.min(np.where(others > 0, others, nv)))
+            first = node if out else node - span
+            caps = problem.cap_b[(first + np.arange(span + 1)) % nv]
+        else:
+            ahead = idx[idx > node] if out else idx[idx < node]
+            far = (ahead[0] if out else ahead[-1]) if ahead.size else (n - 1 if out else 0)
+            span = abs(far - node) * (1 if ahead.size else 2)
+            caps = problem.cap_b[min(node, far):max(node, far) + 1]
+        held[i] = (span * ds >= 2.0 * a ** 3 / jerk ** 2
+                   and math.sqrt(float(caps.max())) * jerk >= a * a)
+    return held
 
 
 def jerk_time_terms(n_nodes: int, closed: bool, rest_u: np.ndarray,
