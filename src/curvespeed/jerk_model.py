@@ -66,7 +66,15 @@ def rest_nodes(problem: SpeedProblem) -> np.ndarray:
 
 
 def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
-    """``problem`` with the steps next to ``rest`` nodes ramped (module docstring)."""
+    """``problem`` with the steps next to ``rest`` nodes ramped (module docstring).
+
+    Each step ramps at the jerk bound to what its moving node allows where that ramp fits in
+    the step (:func:`curvespeed.rest_step.shape_for_accel`). Where it does not, the step keeps
+    the flat part a ramp going on over several stations needs
+    (:data:`curvespeed.rest_step.U_CONTINUING`), or, where the move reaches the node's
+    acceleration and holds it (:func:`accel_held`), ramps as far as it can and leaves the rest
+    of the rise to the change about the node (:func:`curvespeed.rest_step.continuing_shape`).
+    """
     leaving, arriving = rest[:-1], rest[1:]
     steps = np.flatnonzero(leaving | arriving)
     moving = np.where(leaving[steps], steps + 1, steps)
@@ -120,13 +128,9 @@ def rest_step_accel(problem: SpeedProblem, moving: np.ndarray, leaving: np.ndarr
         lo, hi = problem.accel_bounds(b, nodes=moving)
         return np.where(leaving, a <= hi, -a >= lo)
 
-    lo_a, hi_a = np.zeros(moving.size), np.full(moving.size, top)
-    top_ok = reachable(hi_a)
-    for _ in range(iterations):
-        mid = 0.5 * (lo_a + hi_a)
-        good = reachable(mid)
-        lo_a, hi_a = np.where(good, mid, lo_a), np.where(good, hi_a, mid)
-    return np.where(top_ok, top, lo_a)
+    hi_a = np.full(moving.size, top)
+    return np.where(reachable(hi_a), top,
+                    rest_step.largest_true(reachable, np.zeros(moving.size), hi_a, iterations))
 
 
 def rest_step_allowed_accel(problem: SpeedProblem, moving: np.ndarray,

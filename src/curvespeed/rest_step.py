@@ -31,7 +31,7 @@ step is the start of the time-optimal jerk-limited launch itself (ramp to ``A`` 
 seconds, then constant ``A``), which the double-S closed form of Biagiotti & Melchiorri (2008,
 section 3.4) describes. That needs the ramp to fit in the step, ``A^3 <= 6 J^2 ds`` (``u <= 1``).
 When it does not, the acceleration must keep rising across the next stations, and the step keeps
-a flat part for that: see :data:`U_CONTINUING`.
+a flat part for that: see :func:`continuing_shape` and :data:`U_CONTINUING`.
 
 Closed forms only; vectorised over arrays; no side effects.
 """
@@ -132,13 +132,20 @@ def continuing_shape(accel, jerk, ds, iterations: int = 60):
         flat = flat_time_coef(u) * ds / np.sqrt(b)
         return 2.0 * flat * jerk + accel_factor(u) * b / (2.0 * ds) >= a
 
-    lo, hi = np.full(a.shape, U_CONTINUING), np.ones(a.shape)
-    lo_ok = holds(lo)
+    lo = np.full(a.shape, U_CONTINUING)
+    return np.where(holds(lo), largest_true(holds, lo, np.ones(a.shape), iterations),
+                    U_CONTINUING)
+
+
+def largest_true(holds, lo, hi, iterations: int = 60):
+    """The largest value in ``[lo, hi]`` (arrays) where ``holds`` is true, for a predicate that
+    is true at ``lo`` and stays true up to some point: the lower end of the bracket after
+    ``iterations`` halvings (vectorised bisection)."""
     for _ in range(iterations):
         mid = 0.5 * (lo + hi)
         good = holds(mid)
         lo, hi = np.where(good, mid, lo), np.where(good, hi, mid)
-    return np.where(lo_ok, lo, U_CONTINUING)
+    return lo
 
 
 def shape_from_time_coef(c):
@@ -191,5 +198,5 @@ def leaving_time_at_distance(u, v_moving, ds, d):
 
 
 __all__ = ["U_CONTINUING", "accel_factor", "continuing_shape", "flat_time_coef", "jerk_cap_b",
-           "leaving_state_at_time", "leaving_time_at_distance", "max_ramp_accel", "ramp_jerk",
-           "ramp_time", "shape_for_accel", "shape_from_time_coef", "time_coef"]
+           "largest_true", "leaving_state_at_time", "leaving_time_at_distance", "max_ramp_accel",
+           "ramp_jerk", "ramp_time", "shape_for_accel", "shape_from_time_coef", "time_coef"]
