@@ -18,7 +18,7 @@ from curvespeed.profile import derive
 from curvespeed.solvers.convex import solve_convex
 from curvespeed.verify import verify_profile
 
-from helpers import geometry_from_curvature
+from helpers import circle_geometry, geometry_from_curvature
 
 
 def double_s_time(L, v, a, j):
@@ -126,6 +126,34 @@ def test_step_next_to_rest_leaves_the_rest_of_the_rise_to_its_moving_node():
     # keeps the shape for a ramp that goes on past the node
     short = straight_problem(12.0, ds, straight_limits(10.0, A, J))
     assert short.rest_u[0] == pytest.approx(rest_step.U_CONTINUING, rel=1e-15)
+
+
+def test_which_moves_reach_the_acceleration_cap_follows_the_double_s_closed_form():
+    # Same source: a rest-to-rest move reaches the acceleration cap A when it is at least
+    # 2 A^3 / J^2 long (13.5 m for 3 m/s^2 at 2 m/s^3) and its top speed at least A^2 / J
+    # (4.5 m/s). A launch towards an open end at speed counts twice its distance (the mirror of
+    # the launch would stop there); on a loop the stretch runs from stop to stop around it.
+    from curvespeed.jerk_model import accel_held, rest_nodes
+
+    def held(problem):
+        rest = rest_nodes(problem)
+        leaving = rest[:-1]
+        steps = np.flatnonzero(leaving | rest[1:])
+        return accel_held(problem, rest, steps, leaving[steps], np.full(steps.size, 3.0))
+
+    lim = straight_limits(10.0, 3.0, 2.0)
+    assert held(straight_problem(14.0, 1.0, lim)).tolist() == [True, True]
+    assert held(straight_problem(13.0, 1.0, lim)).tolist() == [False, False]
+    assert not held(straight_problem(60.0, 1.0, straight_limits(4.4, 3.0, 2.0))).any()
+    at_speed = RouteConstraints(end_speed_mps=5.0)
+    assert held(straight_problem(7.0, 1.0, lim, at_speed)).tolist() == [True]
+    assert held(straight_problem(6.0, 1.0, lim, at_speed)).tolist() == [False]
+    loop = circle_geometry(1000.0 / (2 * math.pi))          # 1000 m around
+    one = build_problem(loop, lim, RouteConstraints(stops=(Stop(100.0),)))
+    assert held(one).tolist() == [True, True]
+    two = build_problem(loop, lim, RouteConstraints(stops=(Stop(100.0), Stop(110.0))))
+    # steps into 100, out of 100, into 110, out of 110: 10 m between the stops, 990 m around
+    assert held(two).tolist() == [True, False, False, True]
 
 
 def test_leaving_rest_costs_nothing_over_the_optimum_at_the_default_spacing():
