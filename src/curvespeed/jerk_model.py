@@ -65,6 +65,18 @@ def rest_nodes(problem: SpeedProblem) -> np.ndarray:
     return rest
 
 
+#: How long a move must be, in units of ``A^3 / J^2``, for a step next to rest to plan for its
+#: acceleration reaching the cap ``A`` (:func:`accel_held`). The double-S closed form reaches
+#: ``A`` from 2 on, but there it turns at once; at 4 it holds ``A`` for about half its ramp time
+#: (``(1 + x)(2 + x) = 4``, ``x = 0.56`` ramp times). Between 2 and 4 the launch no longer lags,
+#: and the step-wise model's optimism where acceleration falls (docs/method.md) put moves below
+#: the closed form: measured with 2 on the 240 moves of ``benchmarks/exact_roads.py``, 2 more of
+#: them below it (149 in the target band), and on 54 more moves of 14-40 m 8 more below it, by up
+#: to 0.093 %; with 4, none more in the sweep (147 in the band, 138 with neither) and two of the
+#: 54 by 0.007 % (30 m at 2.2 m/s^2 and 1.2 m/s^3, 32 m at 3 m/s^2 and 2 m/s^3).
+HELD_LENGTH_FACTOR = 4.0
+
+
 def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
     """``problem`` with the steps next to ``rest`` nodes ramped (module docstring).
 
@@ -152,7 +164,7 @@ def accel_held(problem: SpeedProblem, rest: np.ndarray, steps: np.ndarray,
 
     The double-S closed form (Biagiotti & Melchiorri 2008, section 3.4) reaches its acceleration
     limit ``A`` when the move is at least ``2 A^3 / J^2`` long and its top speed at least
-    ``A^2 / J``. The move here is the stretch between the step's rest node and the next (or
+    ``A^2 / J``; held here asks :data:`HELD_LENGTH_FACTOR` times that length. The move here is the stretch between the step's rest node and the next (or
     previous) one, twice the distance to an open end that is not at rest; its top speed the
     highest speed cap on it. Curves and other limits only lower the acceleration a move
     reaches, so where this is false the acceleration turns before it gets to ``A``.
@@ -173,7 +185,7 @@ def accel_held(problem: SpeedProblem, rest: np.ndarray, steps: np.ndarray,
             far = (ahead[0] if out else ahead[-1]) if ahead.size else (n - 1 if out else 0)
             span = abs(far - node) * (1 if ahead.size else 2)
             caps = problem.cap_b[min(node, far):max(node, far) + 1]
-        held[i] = (span * ds >= 2.0 * a ** 3 / jerk ** 2
+        held[i] = (span * ds >= HELD_LENGTH_FACTOR * a ** 3 / jerk ** 2
                    and math.sqrt(float(caps.max())) * jerk >= a * a)
     return held
 
