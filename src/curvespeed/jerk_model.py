@@ -9,6 +9,7 @@ node, and the terms of the time base over which a node's change of acceleration 
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING
 
@@ -64,8 +65,28 @@ def rest_nodes(problem: SpeedProblem) -> np.ndarray:
     return rest
 
 
+#: How long a move must be, in units of ``A^3 / J^2``, for a step next to rest to plan for its
+#: acceleration reaching the cap ``A`` (:func:`accel_held`). The double-S closed form reaches
+#: ``A`` from 2 on, but there it turns at once; at 4 it holds ``A`` for about half its ramp time
+#: (``(1 + x)(2 + x) = 4``, ``x = 0.56`` ramp times). Between 2 and 4 the launch no longer lags,
+#: and the step-wise model's optimism where acceleration falls (docs/method.md) put moves below
+#: the closed form: measured with 2 on the 240 moves of ``benchmarks/exact_roads.py``, 2 more of
+#: them below it (149 in the target band), and on 54 more moves of 14-40 m 8 more below it, by up
+#: to 0.093 %; with 4, none more in the sweep (147 in the band, 138 with neither) and two of the
+#: 54 by 0.007 % (30 m at 2.2 m/s^2 and 1.2 m/s^3, 32 m at 3 m/s^2 and 2 m/s^3).
+HELD_LENGTH_FACTOR = 4.0
+
+
 def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
-    """``problem`` with the steps next to ``rest`` nodes ramped (module docstring)."""
+    """``problem`` with the steps next to ``rest`` nodes ramped (module docstring).
+
+    Each step ramps at the jerk bound to what its moving node allows where that ramp fits in
+    the step (:func:`curvespeed.rest_step.shape_for_accel`). Where it does not, the step keeps
+    the flat part a ramp going on over several stations needs
+    (:data:`curvespeed.rest_step.U_CONTINUING`), or, where the move reaches the node's
+    acceleration and holds it (:func:`accel_held`), ramps as far as it can and leaves the rest
+    of the rise to the change about the node (:func:`curvespeed.rest_step.continuing_shape`).
+    """
     leaving, arriving = rest[:-1], rest[1:]
     steps = np.flatnonzero(leaving | arriving)
     moving = np.where(leaving[steps], steps + 1, steps)
@@ -73,6 +94,12 @@ def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
     jerk, ds = problem.limits.max_jerk_mps3, problem.ds
     u = np.full(problem.n_nodes - 1, np.nan)
     u[steps] = rest_step.shape_for_accel(accel, jerk, ds)
+    beyond = accel >= rest_step.max_ramp_accel(jerk, ds)
+    if beyond.any():     # the ramp goes on past the moving node
+        allowed = rest_step_allowed_accel(problem, moving[beyond], leaving[steps][beyond])
+        held = accel_held(problem, rest, steps[beyond], leaving[steps][beyond], allowed)
+        u[steps[beyond]] = np.where(held, rest_step.continuing_shape(allowed, jerk, ds),
+                                    u[steps[beyond]])
     f = rest_step.accel_factor(u[steps])
     time_coef = problem.time_coef.copy()
     time_coef[steps] = rest_step.time_coef(u[steps])
@@ -113,13 +140,54 @@ def rest_step_accel(problem: SpeedProblem, moving: np.ndarray, leaving: np.ndarr
         lo, hi = problem.accel_bounds(b, nodes=moving)
         return np.where(leaving, a <= hi, -a >= lo)
 
-    lo_a, hi_a = np.zeros(moving.size), np.full(moving.size, top)
-    top_ok = reachable(hi_a)
-    for _ in range(iterations):
-        mid = 0.5 * (lo_a + hi_a)
-        good = reachable(mid)
-        lo_a, hi_a = np.where(good, mid, lo_a), np.where(good, hi_a, mid)
-    return np.where(top_ok, top, lo_a)
+    hi_a = np.full(moving.size, top)
+    return np.where(reachable(hi_a), top,
+                    rest_step.largest_true(reachable, np.zeros(moving.size), hi_a, iterations))
+
+
+def rest_step_allowed_accel(problem: SpeedProblem, moving: np.ndarray,
+                            leaving: np.ndarray) -> np.ndarray:
+    """Acceleration (leaving rest) or deceleration (arriving) the moving node of each step next
+    to rest allows, m/s^2, at the speed a ramp at the jerk bound over the whole step reaches
+    there (where the ramp to that acceleration does not fit in the step, the speed is about
+    that)."""
+    jerk, ds = problem.limits.max_jerk_mps3, problem.ds
+    b = np.full(moving.size, float(rest_step.jerk_cap_b(1.0, jerk, ds)))
+    lo, hi = problem.accel_bounds(b, nodes=moving)
+    return np.maximum(np.where(leaving, hi, -lo), 0.0)
+
+
+def accel_held(problem: SpeedProblem, rest: np.ndarray, steps: np.ndarray,
+               leaving: np.ndarray, accel: np.ndarray) -> np.ndarray:
+    """Whether the move from (or to) the rest node of each step next to rest is long enough,
+    and its speed caps high enough, for a jerk-limited launch (or stop) to reach ``accel``.
+
+    The double-S closed form (Biagiotti & Melchiorri 2008, section 3.4) reaches its acceleration
+    limit ``A`` when the move is at least ``2 A^3 / J^2`` long and its top speed at least
+    ``A^2 / J``; held here asks :data:`HELD_LENGTH_FACTOR` times that length. The move here is the stretch between the step's rest node and the next (or
+    previous) one, twice the distance to an open end that is not at rest; its top speed the
+    highest speed cap on it. Curves and other limits only lower the acceleration a move
+    reaches, so where this is false the acceleration turns before it gets to ``A``.
+    """
+    jerk, ds, n = problem.limits.max_jerk_mps3, problem.ds, problem.n_nodes
+    idx = np.flatnonzero(rest[:-1] if problem.closed else rest)
+    nv = n - 1 if problem.closed else n
+    held = np.zeros(steps.size, dtype=bool)
+    for i, (k, out, a) in enumerate(zip(steps, leaving, accel)):
+        node = k if out else k + 1                       # the step's rest node
+        if problem.closed:
+            others = (idx - node) % nv if out else (node - idx) % nv
+            span = int(np.min(np.where(others > 0, others, nv)))
+            first = node if out else node - span
+            caps = problem.cap_b[(first + np.arange(span + 1)) % nv]
+        else:
+            ahead = idx[idx > node] if out else idx[idx < node]
+            far = (ahead[0] if out else ahead[-1]) if ahead.size else (n - 1 if out else 0)
+            span = abs(far - node) * (1 if ahead.size else 2)
+            caps = problem.cap_b[min(node, far):max(node, far) + 1]
+        held[i] = (span * ds >= HELD_LENGTH_FACTOR * a ** 3 / jerk ** 2
+                   and math.sqrt(float(caps.max())) * jerk >= a * a)
+    return held
 
 
 def jerk_time_terms(n_nodes: int, closed: bool, rest_u: np.ndarray,

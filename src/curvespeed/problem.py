@@ -31,7 +31,8 @@ node (arriving at rest: the same backwards). For a fixed shape ``u`` of that mot
 still linear in ``b`` (:mod:`curvespeed.rest_step`): it takes ``c ds / v``, its acceleration is 0
 at the rest node and ``f * b_moving / (2 ds)`` at the moving node, and the ramp's jerk caps the
 moving node. Each such step gets the shape that ramps at the jerk bound to the acceleration its
-moving node allows (the start of the time-optimal launch); :attr:`SpeedProblem.rest_u`,
+moving node allows (the start of the time-optimal launch; where that ramp is longer than the
+step, :func:`curvespeed.jerk_model.with_rest_steps` says how much of it the step takes); :attr:`SpeedProblem.rest_u`,
 :attr:`~SpeedProblem.time_coef`, :attr:`~SpeedProblem.accel_factor_start` and
 :attr:`~SpeedProblem.accel_factor_end` carry this per step; every other step has constant
 acceleration (factors 1, time ``2 ds / (v + v')``).

@@ -31,7 +31,7 @@ step is the start of the time-optimal jerk-limited launch itself (ramp to ``A`` 
 seconds, then constant ``A``), which the double-S closed form of Biagiotti & Melchiorri (2008,
 section 3.4) describes. That needs the ramp to fit in the step, ``A^3 <= 6 J^2 ds`` (``u <= 1``).
 When it does not, the acceleration must keep rising across the next stations, and the step keeps
-a flat part for that: see :data:`U_CONTINUING`.
+a flat part for that: see :func:`continuing_shape` and :data:`U_CONTINUING`.
 
 Closed forms only; vectorised over arrays; no side effects.
 """
@@ -111,6 +111,43 @@ def shape_for_accel(accel, jerk, ds):
     return np.minimum(np.sqrt(3.0 * q / (1.0 - q)), U_CONTINUING)
 
 
+def continuing_shape(accel, jerk, ds, iterations: int = 60):
+    """``u`` of a step next to rest that ramps at ``jerk`` as far as it can and leaves the rest
+    of the rise to ``accel`` to the change of acceleration about its moving node; at least
+    :data:`U_CONTINUING`.
+
+    Where the ramp to ``accel`` does not fit in the step (``accel > (6 J^2 ds)^(1/3)``) the
+    acceleration goes on rising across the moving node, from the step's end value
+    ``f b / (2 ds)`` (``b`` at the ramp's jerk cap, :func:`jerk_cap_b`) to ``accel``. That
+    change is a ramp at ``jerk`` symmetric about the node, whose first half lies in the step's
+    flat part ``t2``: it fits when ``2 t2 J >= accel - f b / (2 ds)``. The largest such ``u``
+    (the left side falls as ``u`` grows) reaches the node fastest. Where even
+    :data:`U_CONTINUING` leaves too little flat part, the rise goes on over several stations
+    and that shape is kept. Found by bisection on all steps at once.
+    """
+    a = np.asarray(accel, dtype=float)
+
+    def holds(u):
+        b = jerk_cap_b(u, jerk, ds)
+        flat = flat_time_coef(u) * ds / np.sqrt(b)
+        return 2.0 * flat * jerk + accel_factor(u) * b / (2.0 * ds) >= a
+
+    lo = np.full(a.shape, U_CONTINUING)
+    return np.where(holds(lo), largest_true(holds, lo, np.ones(a.shape), iterations),
+                    U_CONTINUING)
+
+
+def largest_true(holds, lo, hi, iterations: int = 60):
+    """The largest value in ``[lo, hi]`` (arrays) where ``holds`` is true, for a predicate that
+    is true at ``lo`` and stays true up to some point: the lower end of the bracket after
+    ``iterations`` halvings (vectorised bisection)."""
+    for _ in range(iterations):
+        mid = 0.5 * (lo + hi)
+        good = holds(mid)
+        lo, hi = np.where(good, mid, lo), np.where(good, hi, mid)
+    return lo
+
+
 def shape_from_time_coef(c):
     """``u`` from the step's time coefficient ``c`` in [2, 3] (the inverse of :func:`time_coef`):
     ``c u^2 - 6 u + 3 c - 6 = 0``, smaller root ``u = (3 - sqrt(9 + 6 c - 3 c^2)) / c``."""
@@ -160,6 +197,6 @@ def leaving_time_at_distance(u, v_moving, ds, d):
     return np.where((d <= d_r) & (jerk > 0.0), in_ramp, flat)
 
 
-__all__ = ["U_CONTINUING", "accel_factor", "flat_time_coef", "jerk_cap_b", "leaving_state_at_time",
-           "leaving_time_at_distance", "max_ramp_accel", "ramp_jerk", "ramp_time",
-           "shape_for_accel", "shape_from_time_coef", "time_coef"]
+__all__ = ["U_CONTINUING", "accel_factor", "continuing_shape", "flat_time_coef", "jerk_cap_b",
+           "largest_true", "leaving_state_at_time", "leaving_time_at_distance", "max_ramp_accel",
+           "ramp_jerk", "ramp_time", "shape_for_accel", "shape_from_time_coef", "time_coef"]
