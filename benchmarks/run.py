@@ -16,7 +16,9 @@ iteration of the sequential scheme), run in the same benchmark.
 Columns: stations, solver, iterations (outer / inner), median solve time, whole `curvespeed plan`
 process time (imports, reading, spline fit, solve, writing) where measured, peak memory (max
 resident set size of the case's process), the time gap to the jerk-free envelope, and the ratio of
-the baseline's solve time to the case's.
+the baseline's solve time to the case's. The QP backends' ratio is also measured with both
+solving the same 10 km problem alternately in one process (``--solve-pair``), which a change of
+the machine's pace between the separate cases cannot tilt.
 """
 
 from __future__ import annotations
@@ -102,6 +104,34 @@ def run_case(solver: str, length_km: float, repeats: int) -> dict:
             "inner": result.inner_iterations, "solve_s": statistics.median(times),
             "runs": repeats, "gap": total / env_time - 1.0,
             "peak_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0}
+
+
+def run_solve_pair(length_km: float, repeats: int) -> dict:
+    """The whole jerk-bounded solve with both QP backends on the same problem in one process,
+    alternating ``repeats`` times (after one untimed solve each): medians and their ratio. The
+    separate ``--case`` processes run minutes apart, so their ratio also carries how the
+    machine's pace changed in between."""
+    from curvespeed.limits import Limits
+    from curvespeed.problem import build_problem
+    from curvespeed.solvers import QPBackend
+    from curvespeed.solvers.convex import ConvexOptions, solve_convex
+
+    length = length_km * 1000.0
+    problem = build_problem(synthetic_geometry(length), Limits(max_jerk_mps3=2.0,
+                                                               max_speed_mps=27.0),
+                            constraints_for(length), jerk_model=True)
+    options = {name: ConvexOptions(qp_backend=QPBackend(name)) for name in ("banded", "clarabel")}
+    times = {name: [] for name in options}
+    for name, opt in options.items():
+        solve_convex(problem, opt)
+    for _ in range(repeats):
+        for name, opt in options.items():
+            t0 = time.perf_counter()
+            solve_convex(problem, opt)
+            times[name].append(time.perf_counter() - t0)
+    out = {name + "_s": statistics.median(ts) for name, ts in times.items()}
+    out["ratio"] = out["clarabel_s"] / out["banded_s"]
+    return out
 
 
 def run_replan(variant: str, backend: str, calls: int, dt: float = 0.1) -> dict:
@@ -269,6 +299,8 @@ def main() -> None:
                         help=argparse.SUPPRESS)
     parser.add_argument("--qp-case", nargs=3, metavar=("KM", "STATIONS", "REPEATS"),
                         help=argparse.SUPPRESS)
+    parser.add_argument("--solve-pair", nargs=2, metavar=("KM", "REPEATS"),
+                        help=argparse.SUPPRESS)
     parser.add_argument("--replay", action="store_true",
                         help="only the closed-loop replay benchmark (benchmarks/replay_bench.py)")
     args = parser.parse_args()
@@ -281,6 +313,9 @@ def main() -> None:
         return
     if args.replan:
         print(json.dumps(run_replan(args.replan[0], args.replan[1], int(args.replan[2]))))
+        return
+    if args.solve_pair:
+        print(json.dumps(run_solve_pair(float(args.solve_pair[0]), int(args.solve_pair[1]))))
         return
     if args.qp_case:
         stations = int(args.qp_case[1]) or None
@@ -304,6 +339,10 @@ def main() -> None:
                               str(reps)], check=True, capture_output=True, text=True, cwd=ROOT)
         qp_rows.append(json.loads(out.stdout.strip().splitlines()[-1]))
         print(f"  done: QP {km} km {stations or 'whole route'}", file=sys.stderr)
+    out = subprocess.run([sys.executable, __file__, "--solve-pair", "10", "9"], check=True,
+                         capture_output=True, text=True, cwd=ROOT)
+    pair = json.loads(out.stdout.strip().splitlines()[-1])
+    print("  done: both backends alternating, 10 km", file=sys.stderr)
     replans = []
     for variant in ("converged", "one-qp"):
         for backend in ("banded", "clarabel"):
@@ -347,6 +386,9 @@ def main() -> None:
         c = next(r for r in rows if r["solver"] == "convex-clarabel" and r["stations"] == km)
         print(f"{km:>9} stations: banded {b['solve_s']:.3f} s ({b['inner']} QP iterations), "
               f"Clarabel {c['solve_s']:.3f} s ({c['inner']}), ratio {c['solve_s'] / b['solve_s']:.1f}")
+    print(f"    10001 stations, both backends alternating in one process (medians of 9): banded "
+          f"{pair['banded_s']:.3f} s, Clarabel {pair['clarabel_s']:.3f} s, ratio "
+          f"{pair['ratio']:.1f} (target >= 4)")
     print("\nOne QP (the first iteration's, 10 km road), both backends alternating, medians:")
     print(f"{'QP':>12} {'n':>6} {'rows':>7} {'banded ms':>10} {'its':>4} {'Clarabel ms':>12} "
           f"{'its':>4} {'ratio':>6} {'|objective diff| / gap tol.':>28}")
