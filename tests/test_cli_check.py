@@ -473,6 +473,21 @@ def test_bundled_profile_checks_on_its_own_route(bundled_profiles, name):
     assert result.stdout.strip().splitlines()[-1].startswith("PASS:")
 
 
+def test_a_plan_riding_a_low_jerk_bound_checks_clean_from_its_own_file(tmp_path):
+    # check derives the jerk from the file's speeds, differentiating twice over steps of a few
+    # hundredths of a second: with speeds at 6 decimals the rounding alone read as 0.1-0.3 % over
+    # a 0.5 m/s^3 bound along most of the bundled mountain road (27 violations). The plan itself
+    # keeps the bound (its verifier judged the unrounded speeds); its file must say so too.
+    profile, limits = tmp_path / "p.csv", tmp_path / "limits.toml"
+    limits.write_text("[limits]\nmax_jerk_mps3 = 0.5\n")
+    planned = CliRunner().invoke(plan, [str(ROUTES / "mountain_road.csv"), "-l", str(limits),
+                                        "-o", str(profile)])
+    assert planned.exit_code == 0, planned.output
+    result = run(ROUTES / "mountain_road.csv", "--speeds", profile, "-l", limits)
+    assert result.exit_code == 0, result.output
+    assert result.stdout.strip().splitlines()[-1].startswith("PASS:")
+
+
 @pytest.mark.parametrize("route, planned_on, columns", [
     # a metric profile (x_m,y_m) on a geographic route; a geographic one (lat,lon) on another
     ("test_loop.geojson", "mountain_road.csv", "x_m,y_m"),

@@ -19,8 +19,8 @@ lat_accel_mps2, time_s``
 ``lat, lon``
     when the route was geographic.
 
-Speeds, accelerations, jerk and time are written with 6 decimals; geometry as in
-:mod:`curvespeed.io.geometry_csv`. Output is deterministic and written atomically.
+Speeds are written with 9 decimals (:data:`SPEED`), accelerations, jerk and time with 6; geometry
+as in :mod:`curvespeed.io.geometry_csv`. Output is deterministic and written atomically.
 
 :func:`read_station_profile` reads such a file (or any CSV with the columns
 :data:`REQUIRED_PROFILE_COLUMNS`) into a :class:`~curvespeed.export.StationProfile`.
@@ -46,8 +46,14 @@ from .table_csv import Table, read_table_csv
 if TYPE_CHECKING:
     from ..export import StationProfile
 
-#: Speeds (m/s), accelerations (m/s^2), jerk (m/s^3) and times (s): 1e-6.
+#: Accelerations (m/s^2), jerk (m/s^3), times (s) and speed caps (m/s): 1e-6.
 KINEMATIC = ".6f"
+#: Speeds carry 9 decimals: a reader that derives acceleration and jerk from them (``check
+#: --speeds``, ``export``) differentiates twice over steps of a few hundredths of a second, and
+#: 6 decimals' rounding (5e-7 m/s) came back as up to ``4 v^2 dv / ds^2`` = 1.8e-3 m/s^3 at
+#: 30 m/s and 1 m stations: a plan riding a 0.5 m/s^3 jerk bound read 0.3 % over it. At 9
+#: decimals that is 2e-6 m/s^3.
+SPEED = ".9f"
 
 #: Columns every profile CSV starts with, in order.
 PROFILE_COLUMNS = ("station_m", "x_m", "y_m", "heading_rad", "curvature_1pm",
@@ -96,7 +102,7 @@ def profile_columns(profile: Profile) -> dict[str, tuple[object, str]]:
     columns = {name: geo[name] for name in PROFILE_COLUMNS[:5]}
     columns.update({
         "curvature_bound_1pm": (profile.geometry.planning_curvature_1pm, geo["curvature_1pm"][1]),
-        "speed_mps": (profile.speed_mps, KINEMATIC),
+        "speed_mps": (profile.speed_mps, SPEED),
         "accel_mps2": (profile.accel_mps2, KINEMATIC),
         "jerk_mps3": (profile.jerk_mps3, KINEMATIC),
         "lat_accel_mps2": (profile.lat_accel_mps2, KINEMATIC),
