@@ -240,94 +240,115 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
 
     lay = QPLayout(problem, jerk=problem.limits.max_jerk_mps3 is not None, anchors=anchors)
     nv = lay.nv
-    ds = problem.ds
     b_env = env.b[:nv].copy()
     builder = QPBuilder(problem, lay, b_env, options)
-    notes = []
     b_hat = b_env.copy()
     if warm_start is not None:
         b_hat = np.where(lay.fixed, b_env, np.clip(warm_start[:nv], 0.0, b_env))
-    status = SolveStatus.OPTIMAL
-    qp_iterations = 0
-    iterations = 0
-    blocks = None
-    t_total = _steps_time(b_env, lay, ds, np.arange(lay.n_steps))   # the envelope's time
+    run = _ScpRun(b_hat, b_env, lay, problem.ds, options)
     threads = _worker_count(options.threads)
     # one thread, or a single batch (a receding-horizon window): solved in this thread, with no
     # pool to start and no hand-over between threads (the answer is the same either way)
     pool = ThreadPoolExecutor(max_workers=threads) if threads > 1 else None
+    iterations = 0
     try:
         for iterations in range(1, options.max_iterations + 1):
-            qp, obj_scale = builder.reduced(b_hat)
+            qp, obj_scale = builder.reduced(run.b_hat)
             if qp.n == 0:
                 break
-            if blocks is None:
-                free_idx = np.flatnonzero(~lay.fixed)
-                blocks = blocks_of(qp, problem.closed)
-                n_blocks = len(blocks)
-                active = np.ones(n_blocks, dtype=bool)
-                t_block = np.full(n_blocks, math.inf)
-                node_block = np.full(nv, -1)
-                for k, cols in enumerate(blocks):
-                    node_block[free_idx[cols]] = k
-                touch = np.maximum(node_block[lay.step_from], node_block[lay.step_to])
-                block_steps = [np.flatnonzero(touch == k) for k in range(n_blocks)]
-                block_cost = [_BlockObjective(lay, ds, block_steps[k], node_block == k,
-                                              options.comfort_weight)
-                              for k in range(n_blocks)]
-            row_block = node_block[free_idx][qp.indices[qp.indptr[:-1]]]
+            if run.blocks is None:
+                run.find_blocks(qp, problem.closed)
+            row_block = run.node_block[run.free_idx][qp.indices[qp.indptr[:-1]]]
             # Blocks are solved in batches: one QP per batch is block-diagonal, so each block's
             # part of its answer is that block's own optimum, while the fixed cost of a solver
             # call is paid once per batch rather than once per block. The batches follow from
             # the blocks' sizes alone, so every thread count solves the very same QPs; the worker
             # threads share them out (both QP backends release the interpreter lock while they
             # solve).
-            gap_abs = options.qp_gap_fraction * t_total * obj_scale
-            jobs = _submit_batches(qp, _batches(np.flatnonzero(active), blocks), blocks,
-                                   row_block, free_idx, b_hat, b_env, gap_abs, options, pool)
+            gap_abs = options.qp_gap_fraction * run.t_total * obj_scale
+            jobs = _submit_batches(qp, _batches(np.flatnonzero(run.active), run.blocks),
+                                   run.blocks, row_block, run.free_idx, run.b_hat, b_env,
+                                   gap_abs, options, pool)
             for batch, cols, glob, job in jobs:
-                x, st, its, retry_notes = job.result()
-                qp_iterations += its
-                notes += [f"iteration {iterations}: {n}" for n in retry_notes]
-                failed = (st in (SolveStatus.FAILED, SolveStatus.INFEASIBLE) or x is None
-                          or np.size(x) != cols.size or not np.all(np.isfinite(x)))
-                if failed:
-                    if iterations == 1 and st is SolveStatus.INFEASIBLE:
-                        raise InfeasibleError(_explain_infeasible(problem))
-                    if iterations == 1:
-                        raise SolverError(f"the convex solver's QP failed in the first iteration "
-                                          f"({st.value}); --solver envelope gives the profile "
-                                          "without the jerk bound")
-                    notes.append(f"iteration {iterations}: a QP returned {st.value}; kept those "
-                                 "stretches' last iterate")
-                    status = SolveStatus.OPTIMAL_INACCURATE
-                    active[batch] = False
-                    continue
-                if st is SolveStatus.OPTIMAL_INACCURATE:
-                    status = SolveStatus.OPTIMAL_INACCURATE
-                cand = b_hat.copy()
-                cand[glob] = np.clip(np.asarray(x, dtype=float), 0.0, b_env[glob])
-                for k in batch:
-                    kg = free_idx[blocks[k]]
-                    if iterations == 1:
-                        b_new, t_new = cand[kg], block_cost[k](cand)
-                    else:
-                        b_new, t_new = block_cost[k].search(b_hat, cand, t_block[k], kg)
-                    # gain measured against the whole route's time, so a short stretch is not
-                    # iterated for a gain nobody would notice
-                    improvement = ((t_block[k] - t_new) / t_total if math.isfinite(t_block[k])
-                                   else math.inf)
-                    if t_new <= t_block[k]:
-                        b_hat[kg] = b_new
-                        t_block[k] = t_new
-                    if improvement < options.rel_improvement:
-                        active[k] = False
-            if not active.any():
+                run.take_answer(problem, iterations, batch, cols, glob, job.result())
+            if not run.active.any():
                 break
     finally:
         if pool is not None:
             pool.shutdown(wait=True)
-    return b_hat, status, iterations, qp_iterations, notes
+    return run.b_hat, run.status, iterations, run.qp_iterations, run.notes
+
+
+class _ScpRun:
+    """The state of one run of the sequential-convex loop: the iterate, its independent blocks,
+    which of them still iterate, each one's time, the QP iterations, status and notes."""
+
+    def __init__(self, b_hat, b_env, lay: QPLayout, ds: float, options: ConvexOptions):
+        self.b_hat, self.b_env, self.lay, self.ds, self.options = b_hat, b_env, lay, ds, options
+        self.status = SolveStatus.OPTIMAL
+        self.qp_iterations = 0
+        self.notes: list[str] = []
+        self.blocks = None
+        self.t_total = _steps_time(b_env, lay, ds, np.arange(lay.n_steps))  # the envelope's
+
+    def find_blocks(self, qp, closed: bool) -> None:
+        """The QP's independent blocks (the first iteration's; later ones share the pattern),
+        each block's steps and objective."""
+        lay = self.lay
+        self.free_idx = np.flatnonzero(~lay.fixed)
+        self.blocks = blocks_of(qp, closed)
+        n_blocks = len(self.blocks)
+        self.active = np.ones(n_blocks, dtype=bool)
+        self.t_block = np.full(n_blocks, math.inf)
+        self.node_block = np.full(lay.nv, -1)
+        for k, cols in enumerate(self.blocks):
+            self.node_block[self.free_idx[cols]] = k
+        touch = np.maximum(self.node_block[lay.step_from], self.node_block[lay.step_to])
+        block_steps = [np.flatnonzero(touch == k) for k in range(n_blocks)]
+        self.block_cost = [_BlockObjective(lay, self.ds, block_steps[k], self.node_block == k,
+                                           self.options.comfort_weight)
+                           for k in range(n_blocks)]
+
+    def take_answer(self, problem: SpeedProblem, iteration: int, batch, cols, glob,
+                    answer) -> None:
+        """One batch's QP answer: refuse a failed first iteration, keep the last iterate of a
+        later failure, else each block's line search and stopping test."""
+        x, st, its, retry_notes = answer
+        self.qp_iterations += its
+        self.notes += [f"iteration {iteration}: {n}" for n in retry_notes]
+        failed = (st in (SolveStatus.FAILED, SolveStatus.INFEASIBLE) or x is None
+                  or np.size(x) != cols.size or not np.all(np.isfinite(x)))
+        if failed:
+            if iteration == 1 and st is SolveStatus.INFEASIBLE:
+                raise InfeasibleError(_explain_infeasible(problem))
+            if iteration == 1:
+                raise SolverError(f"the convex solver's QP failed in the first iteration "
+                                  f"({st.value}); --solver envelope gives the profile "
+                                  "without the jerk bound")
+            self.notes.append(f"iteration {iteration}: a QP returned {st.value}; kept those "
+                              "stretches' last iterate")
+            self.status = SolveStatus.OPTIMAL_INACCURATE
+            self.active[batch] = False
+            return
+        if st is SolveStatus.OPTIMAL_INACCURATE:
+            self.status = SolveStatus.OPTIMAL_INACCURATE
+        cand = self.b_hat.copy()
+        cand[glob] = np.clip(np.asarray(x, dtype=float), 0.0, self.b_env[glob])
+        for k in batch:
+            kg = self.free_idx[self.blocks[k]]
+            if iteration == 1:
+                b_new, t_new = cand[kg], self.block_cost[k](cand)
+            else:
+                b_new, t_new = self.block_cost[k].search(self.b_hat, cand, self.t_block[k], kg)
+            # gain measured against the whole route's time, so a short stretch is not
+            # iterated for a gain nobody would notice
+            improvement = ((self.t_block[k] - t_new) / self.t_total
+                           if math.isfinite(self.t_block[k]) else math.inf)
+            if t_new <= self.t_block[k]:
+                self.b_hat[kg] = b_new
+                self.t_block[k] = t_new
+            if improvement < self.options.rel_improvement:
+                self.active[k] = False
 
 
 def _steps_time(b, lay, ds, steps):
