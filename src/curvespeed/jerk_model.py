@@ -164,9 +164,9 @@ def accel_held(problem: SpeedProblem, rest: np.ndarray, steps: np.ndarray,
 
     The double-S closed form (Biagiotti & Melchiorri 2008, section 3.4) reaches its acceleration
     limit ``A`` when the move is at least ``2 A^3 / J^2`` long and its top speed at least
-    ``A^2 / J``; held here asks :data:`HELD_LENGTH_FACTOR` times that length. The move here is the stretch between the step's rest node and the next (or
-    previous) one, twice the distance to an open end that is not at rest; its top speed the
-    highest speed cap on it. Curves and other limits only lower the acceleration a move
+    ``A^2 / J``; held here asks :data:`HELD_LENGTH_FACTOR` times that length. The move here is
+    the stretch between the step's rest node and the next (or previous) one, twice the distance
+    to an open end that is not at rest; its top speed the highest speed cap on it. Curves and other limits only lower the acceleration a move
     reaches, so where this is false the acceleration turns before it gets to ``A``.
     """
     jerk, ds, n = problem.limits.max_jerk_mps3, problem.ds, problem.n_nodes

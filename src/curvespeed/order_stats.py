@@ -1,10 +1,10 @@
 """Sorted distinct values, medians and percentiles, without numpy's masked-array module.
 
 numpy's ``unique`` (without indices), ``median`` and ``percentile`` check their input for masked
-arrays and so import ``numpy.ma`` on first use: about 20 ms of every ``plan`` process's start-up (measured
-with ``python -X importtime``), for a module the plan never uses. These two give numpy's values
-to the bit on the plain arrays curvespeed passes them (floats and integers; a NaN gives NaN, as in
-numpy; ``distinct`` is for NaN-free input). ``tests/test_reference_order_stats.py`` compares
+arrays and so import ``numpy.ma`` on first use: about 20 ms of every ``plan`` process's start-up
+(measured with ``python -X importtime``), for a module the plan never uses. These three give
+numpy's values to the bit on the plain arrays curvespeed passes them (floats and integers; a NaN
+gives NaN, as in numpy; ``distinct`` is for NaN-free input). ``tests/test_reference_order_stats.py`` compares
 them with numpy itself.
 """
 

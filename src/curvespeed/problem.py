@@ -32,7 +32,8 @@ still linear in ``b`` (:mod:`curvespeed.rest_step`): it takes ``c ds / v``, its 
 at the rest node and ``f * b_moving / (2 ds)`` at the moving node, and the ramp's jerk caps the
 moving node. Each such step gets the shape that ramps at the jerk bound to the acceleration its
 moving node allows (the start of the time-optimal launch; where that ramp is longer than the
-step, :func:`curvespeed.jerk_model.with_rest_steps` says how much of it the step takes); :attr:`SpeedProblem.rest_u`,
+step, :func:`curvespeed.jerk_model.with_rest_steps` says how much of it the step takes);
+:attr:`SpeedProblem.rest_u`,
 :attr:`~SpeedProblem.time_coef`, :attr:`~SpeedProblem.accel_factor_start` and
 :attr:`~SpeedProblem.accel_factor_end` carry this per step; every other step has constant
 acceleration (factors 1, time ``2 ds / (v + v')``).

@@ -288,7 +288,9 @@ class _ScpRun:
         self.status = SolveStatus.OPTIMAL
         self.qp_iterations = 0
         self.notes: list[str] = []
-        self.blocks = None
+        # the blocks and what goes with them, from the first QP (find_blocks)
+        self.blocks = self.free_idx = self.node_block = self.block_cost = None
+        self.active = self.t_block = None
         self.t_total = _steps_time(b_env, lay, ds, np.arange(lay.n_steps))  # the envelope's
 
     def find_blocks(self, qp, closed: bool) -> None:
