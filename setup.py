@@ -13,8 +13,14 @@ profile's notes), the envelope runs its Python loops and the CSV writers join ro
 from setuptools import Extension, setup
 
 
+#: Headers the kernels share (``depends``: a change rebuilds the kernels that include them;
+#: MANIFEST.in puts them in the source distribution).
+HEADERS = {"solvers": ["src/curvespeed/solvers/_accel_bounds.h"]}
+
+
 def kernel(name: str, package: str = "solvers") -> Extension:
     return Extension(f"curvespeed.{package}.{name}", [f"src/curvespeed/{package}/{name}.c"],
+                     depends=HEADERS.get(package, []),
                      extra_compile_args=["-O3", "-std=c99", "-ffp-contract=off"],
                      optional=True)
 

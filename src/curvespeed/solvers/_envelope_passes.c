@@ -3,9 +3,8 @@
  * A line-by-line twin of envelope.py's _Nodes.bounds, _upper_root, _largest_cubic_root,
  * _reach_forward, _reach_backward, _forward_pass and _backward_pass (which stay as the reference
  * the tests compare against): the same operations in the same order, so the answers agree to
- * the last bit. Also the twin of problem.SpeedProblem.lateral_ceiling_b's bisection (with
- * accel_bounds written out in the same operations: numpy's maximum and minimum propagate NaN,
- * its ** 2 is a product). Only the buffer protocol of the Python C API is used (no numpy
+ * the last bit. Also the twin of problem.SpeedProblem.lateral_ceiling_b's bisection (its
+ * accel_bounds in numpy's operations from _accel_bounds.h, shared with _window_qp.c). Only the buffer protocol of the Python C API is used (no numpy
  * headers).
  */
 #define PY_SSIZE_T_CLEAN
@@ -13,6 +12,8 @@
 #include <math.h>
 #include <stdint.h>
 #include <string.h>
+
+#include "_accel_bounds.h"
 
 typedef struct {
     const double *lat1, *lat0, *n0, *n1, *r0, *mux, *muy;   /* per node */
@@ -218,20 +219,9 @@ done:
     return result;
 }
 
-/* numpy's maximum and minimum: a NaN on either side wins */
-static inline double np_max(double a, double b)
-{
-    return isnan(a) || isnan(b) ? NAN : (a > b ? a : b);
-}
-
-static inline double np_min(double a, double b)
-{
-    return isnan(a) || isnan(b) ? NAN : (a < b ? a : b);
-}
-
 typedef struct {
-    const double *kappa, *cb, *sb, *cg, *sg, *mux, *muy;      /* per node */
-    double g, a_lat, a_acc, a_dec, drag, roll, pm;
+    phys_t phys;                    /* SpeedProblem.accel_bounds' inputs but the power's */
+    double pm;
     int power;
 } ceiling_t;
 
@@ -239,20 +229,9 @@ typedef struct {
  * (SpeedProblem.accel_bounds: lo <= hi) */
 static int interval_open(const ceiling_t *c, Py_ssize_t k, double b)
 {
-    b = np_max(b, 0.0);
-    double y = c->kappa[k] * b * c->cb[k] - c->g * c->sb[k];
-    double r = np_max(y, 0.0) / c->a_lat;
-    double cf = sqrt(np_max(1.0 - r * r, 0.0));
-    if (r > 1.0) cf = -1.0;
-    double nrm = c->g * c->cg[k] * c->cb[k] + c->kappa[k] * b * c->sb[k];
-    double t = y / c->muy[k];
-    double w2 = nrm * nrm - t * t;
-    double w = c->mux[k] * sqrt(np_max(w2, 0.0));
-    if (w2 < 0.0) w = -1.0;
-    double res = c->g * c->sg[k] + c->drag * b + c->roll * c->g * c->cg[k];
-    double lo = np_max(-c->a_dec * cf, -w - res);
-    double hi = np_min(c->a_acc * cf, w - res);
-    if (c->power) hi = np_min(hi, c->pm / sqrt(b) - res);
+    double lo, hi;
+    double res = accel_bounds(&c->phys, k, b, &lo, &hi);
+    if (c->power) hi = np_min(hi, c->pm / sqrt(np_max(b, 0.0)) - res);
     return lo <= hi;
 }
 
@@ -267,8 +246,8 @@ static PyObject *py_ceiling(PyObject *self, PyObject *args)
     ceiling_t c;
     int iterations, capped_done;
     if (!PyArg_ParseTuple(args, "OOOOOOO(ddddddd)pOOip", &o[0], &o[1], &o[2], &o[3], &o[4],
-                          &o[5], &o[6], &c.g, &c.a_lat, &c.a_acc, &c.a_dec, &c.drag, &c.roll,
-                          &c.pm, &c.power, &o[7], &o[8], &iterations, &capped_done))
+                          &o[5], &o[6], &c.phys.g, &c.phys.a_lat, &c.phys.a_acc, &c.phys.a_dec,
+                          &c.phys.drag, &c.phys.rr, &c.pm, &c.power, &o[7], &o[8], &iterations, &capped_done))
         return NULL;
     Py_buffer v[9];
     int got = 0;
@@ -278,8 +257,9 @@ static PyObject *py_ceiling(PyObject *self, PyObject *args)
     Py_ssize_t n = v[0].len / 8;
     for (; got < 9; got++)
         if (get(o[got], &v[got], got >= 7, n, 0) != 0) goto done;
-    c.kappa = v[0].buf; c.cb = v[1].buf; c.sb = v[2].buf; c.cg = v[3].buf; c.sg = v[4].buf;
-    c.mux = v[5].buf; c.muy = v[6].buf;
+    c.phys.kappa = v[0].buf; c.phys.cos_bank = v[1].buf; c.phys.sin_bank = v[2].buf;
+    c.phys.cos_grade = v[3].buf; c.phys.sin_grade = v[4].buf; c.phys.mu_long = v[5].buf;
+    c.phys.mu_lat = v[6].buf;
     double *lo = v[7].buf, *hi = v[8].buf;
     Py_BEGIN_ALLOW_THREADS
     for (int it = 0; it < iterations && n > 0; it++) {

@@ -20,38 +20,7 @@
 #include <stdlib.h>
 #include <string.h>
 
-static inline double np_max(double a, double b)
-{
-    return isnan(a) || isnan(b) ? NAN : (a > b ? a : b);
-}
-
-static inline double np_min(double a, double b)
-{
-    return isnan(a) || isnan(b) ? NAN : (a < b ? a : b);
-}
-
-typedef struct {                    /* SpeedProblem.accel_bounds' inputs (no power) */
-    const double *kappa, *cos_bank, *sin_bank, *cos_grade, *sin_grade, *mu_long, *mu_lat;
-    double g, a_lat, a_acc, a_dec, drag, rr;
-} phys_t;
-
-/* SpeedProblem.accel_bounds(b, include_power=False) at node k */
-static void accel_bounds(const phys_t *p, int64_t k, double b, double *lo, double *hi)
-{
-    b = np_max(b, 0.0);
-    double y = p->kappa[k] * b * p->cos_bank[k] - p->g * p->sin_bank[k];
-    double r = np_max(y, 0.0) / p->a_lat;
-    double c = sqrt(np_max(1.0 - r * r, 0.0));
-    if (r > 1.0) c = -1.0;
-    double n = p->g * p->cos_grade[k] * p->cos_bank[k] + p->kappa[k] * b * p->sin_bank[k];
-    double t = y / p->mu_lat[k];
-    double w2 = n * n - t * t;
-    double w = p->mu_long[k] * sqrt(np_max(w2, 0.0));
-    if (w2 < 0.0) w = -1.0;
-    double res = p->g * p->sin_grade[k] + p->drag * b + p->rr * p->g * p->cos_grade[k];
-    *lo = np_max(-p->a_dec * c, -w - res);
-    *hi = np_min(p->a_acc * c, w - res);
-}
+#include "_accel_bounds.h"
 
 typedef struct { double slope[2], rhs[2]; char ok[2]; } chord_t;
 
