@@ -127,6 +127,32 @@ def test_round_trip_time_matches_the_profile(max_jerk, stops_m, dwell_s):
     assert np.all(np.diff(tr.station_m) >= 0.0)
 
 
+# A launch whose jerk ramp spans many stations (0.5 m/s^3) is planned as that ramp: the steps
+# wholly inside it are driven at constant jerk (curvespeed.rest_step.linear_accel_step). Such a
+# step ends above its mean acceleration, so it must not end past a limit: with the cap at 2
+# m/s^2 (ramp to 5.3 m) or a low-friction stretch from 6 m on (mu 0.15: at most 1.47 m/s^2,
+# where the ramp would be at 2.1 m/s^2) the trajectory stays within it. Round trip as above
+# (interval_times is exact for constant-jerk motion).
+@pytest.mark.parametrize("accel, friction", [(2.0, None), (3.0, 0.15)])
+def test_launch_ramp_is_driven_within_the_limits(accel, friction):
+    from curvespeed.friction import FrictionSection
+
+    geo = geometry_from_curvature(np.zeros(301), ds=1.0)
+    sections = () if friction is None else (FrictionSection(6.0, 40.0, friction),)
+    planned = plan_profile(geo, Limits(max_jerk_mps3=0.5, max_accel_mps2=accel,
+                                       max_decel_mps2=accel, max_speed_mps=30.0),
+                           RouteConstraints(friction=sections))
+    assert planned.linear_time_coef is not None and np.any(planned.linear_time_coef > 2.0)
+    tr = sample_in_time(planned, 0.01)
+    cap = np.full(tr.n_samples, accel)
+    if friction is not None:
+        on = (tr.station_m >= 6.0) & (tr.station_m <= 40.0)
+        cap[on] = friction * 9.80665
+    assert np.all(tr.accel_mps2 <= cap * (1.0 + 1e-6))
+    assert np.all(-tr.accel_mps2 <= accel * (1.0 + 1e-6))
+    assert reintegrated_moving_time(tr) == pytest.approx(planned.total_time_s, rel=1e-6)
+
+
 def test_written_trajectory_holds_the_exported_values(profile_csv, tmp_path):
     sp, tr, cols = exported(profile_csv, tmp_path, dwell_s=2.0)
     for name, half in (("time_s", HALF_1E6), ("station_m", 0.5e-4), ("x_m", 0.5e-4),

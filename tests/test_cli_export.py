@@ -250,7 +250,7 @@ def edit_profile(path, tmp_path, line: int, column: str, value: str):
     (3, "speed_mps", "0.0", "line 2 (station 0.0 m): speed is zero here and at the next"),
     (50, "x_m", "abc", "line 50: column 'x_m' value 'abc' is not a number"),
     (40, "step_kind", "cubic", "line 40: column 'step_kind' value 'cubic' is not a step kind; "
-                               "use constant_accel, jerk_ramp or constant_jerk"),
+                               "use constant_accel, jerk_ramp, linear_accel or constant_jerk"),
     (40, "step_kind", "", "line 40: column 'step_kind' value '' is not a step kind"),
     (40, "step_kind", "constant_jerk", "line 40: column 'step_kind' value 'constant_jerk' is "
                                        "allowed only on a step with exactly one end at rest"),
@@ -385,6 +385,76 @@ def test_export_follows_the_step_kinds(planned_with_stop, tmp_path):
     saved = np.sum((np.diff(t) - 2.0 * np.diff(s) / (v[:-1] + v[1:]))[ramp])
     # both totals come from the same file's stations, speeds and times; each is written to 1e-6 s
     assert cols["time_s"][-1] - flat_cols["time_s"][-1] == pytest.approx(saved, abs=5e-6)
+
+
+@pytest.fixture(scope="module")
+def planned_slow_launch(tmp_path_factory):
+    """``curvespeed plan`` of an invented 200 m straight from rest to rest at 0.5 m/s^3 and
+    3 m/s^2: the launch's jerk ramp spans the first 16.7 m (the double-S closed form,
+    Biagiotti & Melchiorri 2008, section 3.4: peak J (L / (2 J))^(1/3) = 2.92 m/s^2, ramp
+    L / 12). Returns the folder and the profile CSV."""
+    from curvespeed.cli.plan_cmd import plan
+
+    folder = tmp_path_factory.mktemp("launch")
+    route = folder / "straight.csv"
+    route.write_text("x_m,y_m\n" + "".join(f"{x:.1f},0.0\n" for x in range(0, 201, 5)))
+    profile = folder / "profile.csv"
+    result = run(plan, route, "--max-jerk", "0.5", "--max-accel", "3", "--max-decel", "3",
+                 "--max-speed", "40", "-o", profile)
+    assert result.exit_code == 0, result.output
+    return folder, profile
+
+
+def test_export_drives_a_launch_ramp_at_its_jerk(planned_slow_launch, tmp_path):
+    from curvespeed import rest_step
+    from curvespeed.io.profile_csv import read_station_profile
+
+    _, profile = planned_slow_launch
+    cols = read_table_csv(profile).columns
+    kinds = cols["step_kind"][:-1]
+    # the steps wholly inside the ramp after the one leaving rest (to station 16), and the same
+    # backwards into the stop
+    linear = np.flatnonzero(kinds == "linear_accel")
+    assert kinds[0] == kinds[-1] == "jerk_ramp"
+    assert linear.tolist() == list(range(1, 16)) + list(range(184, 199))
+    # each is driven at constant jerk: read back from the file's stations, speeds and times
+    # (9 decimals), its jerk is the bound the plan rode, to the plan's own accuracy (its speeds
+    # start a little below the exact ramp's, docs/method.md)
+    sp = read_station_profile(profile)
+    ds = np.diff(sp.station_m)[linear]
+    v0, v1 = sp.speed_mps[linear], sp.speed_mps[linear + 1]
+    a0, jerk = rest_step.linear_accel_step(ds, v0, v1, sp.step_time_s[linear])
+    np.testing.assert_allclose(np.abs(jerk), 0.5, rtol=5e-3)
+    # one step's end acceleration is the next one's start (the motion is a ramp, not a
+    # staircase, whose steps differ by 0.06-0.3 m/s^2 here), to the plan's accuracy: measured
+    # 2.2e-3 m/s^2 at the first join, below 3e-4 at the others
+    launch = linear[:15]
+    ends = a0[:15] + jerk[:15] * sp.step_time_s[launch]
+    np.testing.assert_allclose(ends[:-1], a0[1:15], atol=3e-3)
+    # the trajectory takes the planned time and is a ramp in the samples too
+    out = tmp_path / "trajectory.csv"
+    assert run(export, profile, "--dt", "0.01", "-o", out).exit_code == 0
+    traj = read_table_csv(out).columns
+    assert traj["time_s"][-1] == pytest.approx(cols["time_s"][-1], abs=1e-6)
+    t, a = traj["time_s"], traj["accel_mps2"]
+    step = np.searchsorted(sp.node_time_s, t, side="right") - 1
+    same = (step[:-1] == step[1:]) & (step[:-1] >= 1) & (step[:-1] <= 15)
+    rate = np.diff(a)[same] / np.diff(t)[same]
+    assert same.sum() > 300                               # 3.5 s of ramp
+    np.testing.assert_allclose(rate, 0.5, rtol=5e-3)        # within each step: the ramp
+
+
+def test_linear_accel_steps_must_be_away_from_rest_and_timed(planned_slow_launch, tmp_path):
+    _, profile = planned_slow_launch
+    on_rest = edit_profile(profile, tmp_path, 2, "step_kind", "linear_accel")
+    result = run(export, on_rest, "-o", tmp_path / "t.csv")
+    assert result.exit_code == 2
+    assert ("line 2: column 'step_kind' value 'linear_accel' is allowed only on a step with "
+            "neither end at rest" in result.output)
+    no_time = without_column(profile, "time_s", tmp_path / "no_time.csv")
+    result = run(export, no_time, "-o", tmp_path / "t.csv")
+    assert result.exit_code == 2 and "needs the time_s column" in result.output
+    assert not (tmp_path / "t.csv").exists()
 
 
 def test_profile_without_step_kind_exports_as_before(planned_with_stop, tmp_path):

@@ -275,7 +275,8 @@ REFUSED = {
     "profile with a step kind curvespeed does not know": (
         "export", {"p.csv": _profile_with_step_kind(6, "cubic")}, ["{p.csv}", "-o", "{out}"],
         "p.csv", ["line 6:", "'step_kind' value 'cubic' is not a step kind",
-                  "use constant_accel, jerk_ramp or constant_jerk", "remove the column"]),
+                  "use constant_accel, jerk_ramp, linear_accel or constant_jerk",
+                  "remove the column"]),
     "profile with a constant-jerk step away from rest": (
         "export", {"p.csv": _profile_with_step_kind(6, "constant_jerk")},
         ["{p.csv}", "-o", "{out}"], "p.csv",

@@ -66,13 +66,14 @@ def planned_time(problem) -> float:
 # step (1 m) and at 0.5 m. Never faster than the closed form (the minimum over every
 # jerk-limited motion) for moves of these lengths: the discrete model is built to be conservative
 # (docs/method.md, which also gives the exception: moves shorter than about 45 m, whose
-# acceleration falls from its cap at low speed, up to 0.14 % faster at 10 m). How much
-# slower depends on whether the jerk ramp from rest to the acceleration limit (a^3 / (6 j^2) of
-# distance) fits in the first station step, which the step next to rest then drives exactly
-# (curvespeed.rest_step): where it does, the steps at speed are the only approximation left,
-# within 0.01 % (measured at most 0.002 %); where it does not (0.56 m at 0.5 m, 18 m in the
-# third case), the rising acceleration is a staircase over the first stations: within 0.3 %
-# (measured 0.15 % at 1 m, 0.13 % at 0.5 m for the 18 m ramp, 0.08 % for the 0.56 m one).
+# acceleration falls from its cap at low speed, up to 0.14 % faster at 10 m). Where the jerk
+# ramp from rest to the acceleration limit (a^3 / (6 j^2) of distance) fits in the first station
+# step, the step next to rest drives it exactly (curvespeed.rest_step) and the steps at speed
+# are the only approximation left: within 0.01 % (measured at most 0.002 %). Where it does not
+# (0.56 m at 0.5 m, 16.7 m of ramp in the fourth case) the target band, 0.1 %: measured
+# 0.0003 % for the 0.56 m ramp (the step ramps as far as it can), 0.040 % at 1 m and at 0.5 m
+# for the 16.7 m one (the launch planned as that ramp, curvespeed.jerk_model.LAUNCH_MIN_STEPS;
+# 0.15 % and 0.13 % with a staircase of step accelerations over it).
 @pytest.mark.parametrize("ds", [1.0, 0.5])
 @pytest.mark.parametrize("L, v, a, j, regime", [
     (500.0, 20.0, 1.5, 2.0, "speed and acceleration limits reached"),
@@ -85,7 +86,7 @@ def test_rest_to_rest_time_matches_the_double_s_closed_form(L, v, a, j, regime, 
     total = planned_time(straight_problem(L, ds, straight_limits(v, a, j)))
     closed = double_s_time(L, v, a, j)
     assert total >= closed, regime
-    assert total == pytest.approx(closed, rel=1e-4 if fits else 3e-3), regime
+    assert total == pytest.approx(closed, rel=1e-4 if fits else 1e-3), regime
 
 
 # The target band of the double-S moves at the default station step (1 m): within 0.1 % of the
@@ -112,6 +113,73 @@ def test_moves_that_reach_the_cap_and_turn_at_once_are_not_planned_below_the_clo
     v, a, j = 25.0, 3.0, 2.0
     total = planned_time(straight_problem(L, 1.0, straight_limits(v, a, j)))
     assert total / double_s_time(L, v, a, j) - 1.0 >= -1e-6
+
+
+# The same band where the launch's jerk ramp spans many stations (the move's peak acceleration
+# from the same closed form; 8.3, 9.2 and 18 m of ramp here): the launch planned as that ramp
+# (curvespeed.jerk_model.LAUNCH_MIN_STEPS). Measured +0.020 %, +0.030 % and +0.028 %; with a
+# staircase of step accelerations over the ramp these were +0.136 %, +0.136 % and +0.102 %.
+@pytest.mark.parametrize("L, v, a, j", [(100.0, 10.0, 3.0, 0.5), (200.0, 25.0, 3.0, 0.7),
+                                        (500.0, 25.0, 3.0, 0.5)])
+def test_rest_to_rest_whose_launch_spans_many_stations_is_within_the_band(L, v, a, j):
+    total = planned_time(straight_problem(L, 1.0, straight_limits(v, a, j)))
+    assert -1e-6 <= total / double_s_time(L, v, a, j) - 1.0 <= 1e-3
+
+
+# Where the ramp ends half a station past a node, the staircase of step accelerations makes
+# the turn of the acceleration quicker than a ramp can: planned as a ramp from 4.5 stations of
+# ramp on, a move that turns at once (12 times the ramp: 54 m) came out 0.005 % below the closed
+# form (same source); from 5 stations on (LAUNCH_MIN_STEPS) it keeps the staircase and is
+# +0.146 %. At 5.5 stations (66 m) it is planned as the ramp and is +0.007 %.
+@pytest.mark.parametrize("L", [54.0, 66.0])
+def test_launches_that_turn_at_once_are_not_planned_below_the_closed_form(L):
+    total = planned_time(straight_problem(L, 1.0, straight_limits(40.0, 8.0, 1.0)))
+    assert 0.0 <= total / double_s_time(L, 40.0, 8.0, 1.0) - 1.0 <= 2e-3
+
+
+def test_a_launch_spanning_many_stations_takes_the_time_of_the_jerk_ramp():
+    # Uniform-jerk kinematics (same source): a ramp from rest at J reaches distance s at
+    # t = (6 s / J)^(1/3) with v = (J / 2) t^2. The 200 m move at 3 m/s^2, 0.5 m/s^3 and 40
+    # m/s ramps over its first L / 12 = 16.7 m (peak J (L / (2 J))^(1/3) = 2.92 m/s^2): with
+    # the ramp's own speeds at the stations, the launch planned as that ramp (the first step a
+    # ramp over the whole step, the next ones at the time of a step driven at the bound) reaches
+    # every station of it at the ramp's time (round-off only). Steps of constant acceleration
+    # between the same speeds take 0.008 s less by station 16.
+    from curvespeed import rest_step
+
+    J, ds = 0.5, 1.0
+    problem = straight_problem(200.0, ds, straight_limits(40.0, 3.0, J))
+    assert problem.rest_u[0] == 1.0 and problem.rest_u[-1] == 1.0
+    k = np.arange(17)
+    b = np.full(problem.n_nodes, 1.0)
+    b[k] = rest_step.ramp_speed(k * ds, J) ** 2
+    t = np.concatenate(([0.0], np.cumsum(problem.step_times(b)[:16])))
+    assert np.max(np.abs(t - np.cbrt(6.0 * k * ds / J))) < 1e-12
+    plain = np.cumsum(2.0 * ds / (np.sqrt(b[k[1:-1]]) + np.sqrt(b[k[2:]])))
+    assert np.cbrt(6.0 * 16 * ds / J) - (plain[-1] + t[1]) > 0.007
+    # the stop at the end is the same ramp backwards
+    assert problem.time_coef[-17:-1][::-1] == pytest.approx(problem.time_coef[1:17], rel=1e-15)
+
+
+def test_change_of_acceleration_after_a_ramp_over_the_whole_step_runs_on_into_the_next():
+    # The moving station of a step that ramps over its whole length changes its acceleration
+    # over the time from it to the next step's distance-weighted mean time, which for a step
+    # of constant acceleration between speeds v and v' is 2 ds (v + 2 v') / (3 (v + v')^2)
+    # (integrating t over distance; the step's b-linear acceleration is a jerk ramp's value at
+    # that time). The model's time base is a lower bound on it, within 0.1 % at the speed ratio
+    # of a ramp from rest (2^(2/3)) and 4.2 % anywhere (chords of a convex function).
+    ds = 1.0
+    problem = straight_problem(200.0, ds, straight_limits(40.0, 3.0, 0.5))
+    rng = np.random.default_rng(3)
+    b = np.full(problem.n_nodes, 4.0)
+    for v, r in zip(rng.uniform(0.5, 3.0, 200), np.concatenate(([2 ** (2 / 3)],
+                                                                  rng.uniform(0.0, 8.0, 199)))):
+        b[1], b[2] = v * v, (r * v) ** 2
+        exact = 2 * ds * (v + 2 * r * v) / (3 * (v + r * v) ** 2)
+        tau = problem.node_jerk_time(b)[1]
+        assert exact * (1 - 0.042) <= tau <= exact * (1 + 1e-12)
+        if r == 2 ** (2 / 3):
+            assert tau >= exact * (1 - 1e-3)
 
 
 def test_step_next_to_rest_leaves_the_rest_of_the_rise_to_its_moving_node():

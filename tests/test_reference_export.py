@@ -200,6 +200,42 @@ def test_jerk_ramp_steps_next_to_rest_match_closed_form():
                                atol=CLOSED_FORM_RTOL * ds)
 
 
+def test_linear_accel_steps_match_closed_form():
+    # Uniform-jerk kinematics from rest (same source as the module docstring's): a ramp at
+    # J = 0.5 m/s^3 reaches station s at t = (6 s / J)^(1/3) with v = J t^2 / 2 and a = J t.
+    # The profile states it at 1 m stations: the step leaving rest ramps over the whole step
+    # (jerk_ramp, c = 3) and the next five are driven at constant jerk (linear_accel, their c
+    # from the ramp's times); the export recovers each step's start acceleration and jerk from
+    # its stations, speeds and time, and so drives the ramp itself.
+    J, ds, n = 0.5, 1.0, 6
+    s = np.arange(n + 1) * ds
+    t = np.cbrt(6.0 * s / J)
+    v = 0.5 * J * t * t
+    coef = np.diff(t) * (v[:-1] + v[1:]) / ds
+    zeros = np.zeros(n + 1)
+    sp = make_station_profile(s, s, zeros, zeros, zeros, v, time_s=t,
+                              rest_time_coef=np.concatenate(([3.0], np.zeros(n - 1))),
+                              linear_time_coef=np.concatenate(([0.0], coef[1:])))
+    assert coef[0] == pytest.approx(3.0, rel=1e-12) and np.all(coef[1:] > 2.0)
+    assert sp.linear_step.tolist() == [False] + [True] * (n - 1)
+    np.testing.assert_allclose(sp.node_time_s, t, rtol=CLOSED_FORM_RTOL)
+    tr = sample_in_time(sp, dt_s=0.01)
+    tt = tr.time_s
+    np.testing.assert_allclose(tr.station_m, J * tt ** 3 / 6.0, rtol=CLOSED_FORM_RTOL,
+                               atol=CLOSED_FORM_RTOL * ds)
+    np.testing.assert_allclose(tr.speed_mps, J * tt ** 2 / 2.0, rtol=CLOSED_FORM_RTOL,
+                               atol=CLOSED_FORM_RTOL * v[-1])
+    inside = tt < t[-1]                           # the last sample is the node: a = J t there too
+    np.testing.assert_allclose(tr.accel_mps2[inside], J * tt[inside], rtol=CLOSED_FORM_RTOL,
+                               atol=CLOSED_FORM_RTOL * J * t[-1])
+    # by station: the same motion, inverted (bisection to 2^-60 of the step's time)
+    by_s = sample_by_station(sp, 0.05)
+    np.testing.assert_allclose(by_s.time_s, np.cbrt(6.0 * by_s.station_m / J),
+                               rtol=CLOSED_FORM_RTOL, atol=CLOSED_FORM_RTOL * t[-1])
+    np.testing.assert_allclose(by_s.speed_mps, 0.5 * J * by_s.time_s ** 2,
+                               rtol=CLOSED_FORM_RTOL, atol=CLOSED_FORM_RTOL * v[-1])
+
+
 def test_first_and_last_samples_are_kept_for_any_interval():
     # A time or station step longer than the whole profile still gives its start and its end
     s = np.arange(4.0)

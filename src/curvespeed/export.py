@@ -28,6 +28,15 @@ Steps next to rest under a jerk bound
     ``2 ds / v``, see :func:`detect_rest_steps`), so the export follows whichever model produced
     the profile.
 
+Steps a launch's jerk ramp spans
+    Where a launch (or a stop) ramps its acceleration over many stations, the steps after the
+    one next to rest are planned as driven at constant jerk: the acceleration is linear in time
+    over the step, and the step takes ``T[k] = c ds / (v[k] + v[k+1])`` with ``c`` a little over
+    2 (:attr:`StationProfile.linear_time_coef`, from the ``linear_accel`` step kind and
+    ``time_s``). Its start acceleration and jerk follow from ``ds``, the two speeds and ``T``
+    (:func:`curvespeed.rest_step.linear_accel_step`); the station reached at a time is the cubic
+    in time, and the time at a station is found by bisection.
+
 All formulas are used as they stand: samples are placed step by step from node times that are
 sums of ``T[k]``, so nothing is integrated numerically and nothing drifts; the last sample is the
 end of the route at the planned time plus dwells.
@@ -103,7 +112,8 @@ class Trajectory:
     accel_mps2 : ndarray
         Acceleration along the path at that instant, m/s^2: constant within a
         constant-acceleration step (at a node: the step being entered), linear in time in the
-        ramp of a step next to rest, 0 while held at a stop.
+        ramp of a step next to rest and in a step a launch's ramp spans, 0 while held at a
+        stop.
     curvature_1pm : ndarray
         Signed curvature, 1/m.
     yaw_rate_radps : ndarray
@@ -399,6 +409,12 @@ def _state_at_time(sp: StationProfile, k, tau):
     d = np.where(leaving, d_r, np.where(arriving, ds - d_r, d))
     v = np.where(ramp, v_r, v)
     acc = np.where(leaving, a_r, np.where(arriving, -a_r, acc))
+    linear = sp.linear_step[k]
+    if linear.any():
+        d_l, v_l, a_l = rest_step.linear_state_at_time(ds[linear], v0[linear], v1[linear],
+                                                       T[linear], tau[linear])
+        d, v, acc = d.copy(), v.copy(), np.broadcast_to(acc, d.shape).copy()
+        d[linear], v[linear], acc[linear] = d_l, v_l, a_l
     at_end = tau >= T
     d = np.clip(np.where(at_end, ds, d), 0.0, ds)
     v = np.where(at_end, v1, np.maximum(v, 0.0))
@@ -424,6 +440,13 @@ def _state_at_distance(sp: StationProfile, k, d):
     tau = np.where(leaving, t_r, np.where(arriving, T - t_r, tau))
     v = np.where(ramp, v_r, v)
     acc = np.where(leaving, a_r, np.where(arriving, -a_r, acc))
+    linear = sp.linear_step[k]
+    if linear.any():
+        args = ds[linear], v0[linear], v1[linear], T[linear]
+        t_l = rest_step.linear_time_at_distance(*args, d[linear])
+        _, v_l, a_l = rest_step.linear_state_at_time(*args, t_l)
+        tau, v, acc = tau.copy(), v.copy(), np.broadcast_to(acc, tau.shape).copy()
+        tau[linear], v[linear], acc[linear] = t_l, v_l, a_l
     return tau, v, np.asarray(acc, dtype=float)
 
 

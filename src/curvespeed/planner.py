@@ -12,6 +12,7 @@ import numpy as np
 from .diagnose import standstill, underpowered
 from .errors import CurvespeedWarning, InfeasibleError, SolverError
 from .geometry import Geometry
+from .jerk_model import linear_time_coef
 from .limits import Limits, RouteConstraints, validate_limits
 from .placement import place_positions
 from .problem import build_problem
@@ -102,4 +103,5 @@ def plan_profile(geometry: Geometry, limits: Limits,
         usage=check.peak,
         extremes=check.extremes,
         envelope_time_s=envelope_time,
+        linear_time_coef=linear_time_coef(problem),
     )

@@ -5,7 +5,8 @@ within each step):
 
 * ``time_s[k]``: sum of step times ``2 ds / (v[j] + v[j+1])`` up to node k (exact for uniform
   acceleration over each step), ``c ds / v`` on a step next to rest driven with a jerk ramp
-  (:attr:`Profile.rest_time_coef`);
+  (:attr:`Profile.rest_time_coef`), ``c ds / (v[j] + v[j+1])`` on a step a launch's jerk ramp
+  spans (:attr:`Profile.linear_time_coef`);
 * ``accel_mps2[k]``: mean of the accelerations of the steps meeting at node k (one step at the
   ends); the step values themselves are in :attr:`Profile.step_accel_mps2`;
 * ``jerk_mps3[k]``: change of step acceleration across node k divided by the node's time base
@@ -59,6 +60,11 @@ class Profile:
     envelope_time_s : float or None
         Time of the forward-backward envelope on the same route and limits: the lower bound on
         the time of any profile within them, s.
+    linear_time_coef : ndarray, shape (n,) or None
+        For each step away from rest that a launch's (or a stop's) jerk ramp spans, planned as
+        driven at constant jerk, the ``c`` of its time ``c ds / (v[k] + v[k+1])``, a little
+        over 2 (:func:`curvespeed.jerk_model.launch_time_factors`); 0 for every other step.
+        None: no such step.
     """
 
     geometry: Geometry
@@ -75,6 +81,7 @@ class Profile:
     usage: dict = field(default_factory=dict)
     extremes: dict = field(default_factory=dict)
     envelope_time_s: float | None = None
+    linear_time_coef: np.ndarray | None = None
 
     @property
     def time_gap_to_envelope(self) -> float | None:

@@ -139,7 +139,8 @@ class WindowProfile:
         """``(station_m, speed_mps, accel_mps2)`` of a vehicle that drives this window exactly,
         ``time_s`` after the window's time 0 (where the vehicle was), as the window is driven:
         constant acceleration along each step, a jerk ramp on a step next to rest
-        (:mod:`curvespeed.rest_step`); clamped to the window's ends.
+        (:mod:`curvespeed.rest_step`), constant jerk on a step a launch's ramp spans; clamped
+        to the window's ends.
 
         A simulator that follows a window perfectly passes this state to the next
         :meth:`Replanner.replan`: it is the plan's own motion, so the next window continues it
@@ -156,12 +157,16 @@ class WindowProfile:
 
 def _step(problem, speed, distance, j: int):
     """Step ``j`` as it is driven: ``(kind, u, v0, v1, ds)``, kind "leaving" or "arriving"
-    for a jerk-ramped step next to rest (shape ``u``, :mod:`curvespeed.rest_step`), else
-    "constant" (constant acceleration)."""
+    for a jerk-ramped step next to rest (shape ``u``, :mod:`curvespeed.rest_step`), "linear"
+    for a step a launch's jerk ramp spans (constant jerk,
+    :func:`curvespeed.rest_step.linear_accel_step`), else "constant" (constant
+    acceleration)."""
     v0, v1 = float(speed[j]), float(speed[j + 1])
     ds = float(distance[j + 1] - distance[j])
     u = float(problem.rest_u[j]) if j < problem.rest_u.size else math.nan
-    kind = ("constant" if math.isnan(u) or (v0 != 0.0 and v1 != 0.0)
+    linear = (j < problem.time_coef.size and math.isnan(u) and problem.time_coef[j] != 2.0
+              and v0 > 0.0 and v1 > 0.0)
+    kind = ("linear" if linear else "constant" if math.isnan(u) or (v0 != 0.0 and v1 != 0.0)
             else "leaving" if v0 == 0.0 else "arriving")
     return kind, u, v0, v1, ds
 
@@ -175,6 +180,9 @@ def _step_state(problem, speed, distance, time, j: int, tau: float):
     if kind == "arriving":                                      # leaving, driven backwards
         d, v, a = rest_step.leaving_state_at_time(u, v0, ds, (time[j + 1] - time[j]) - tau)
         return ds - float(d), float(v), -float(a)
+    if kind == "linear":
+        d, v, a = rest_step.linear_state_at_time(ds, v0, v1, time[j + 1] - time[j], tau)
+        return float(d), float(v), float(a)
     a = (v1 * v1 - v0 * v0) / (2.0 * ds)
     return v0 * tau + 0.5 * a * tau * tau, v0 + a * tau, a
 
@@ -188,6 +196,8 @@ def _time_into_step(problem, speed, distance, time, j: int, d: float) -> float:
     if kind == "arriving":
         return float(time[j + 1] - time[j]
                      - rest_step.leaving_time_at_distance(u, v0, ds, ds - d))
+    if kind == "linear":
+        return float(rest_step.linear_time_at_distance(ds, v0, v1, time[j + 1] - time[j], d))
     a = (v1 * v1 - v0 * v0) / (2.0 * ds)
     root = math.sqrt(max(v0 * v0 + 2.0 * a * d, 0.0))
     return 2.0 * d / (v0 + root) if v0 + root > 0.0 else 0.0

@@ -148,6 +148,61 @@ def largest_true(holds, lo, hi, iterations: int = 60):
     return lo
 
 
+def ramp_speed(distance, jerk):
+    """Speed a constant-jerk ramp from rest reaches over ``distance``, m/s: ``s = J t^3 / 6``
+    and ``v = J t^2 / 2``, so ``v = (J / 2) (6 s / J)^(2/3)``."""
+    d = np.maximum(np.asarray(distance, dtype=float), 0.0)
+    return 0.5 * jerk * (6.0 * d / jerk) ** (2.0 / 3.0)
+
+
+def ramp_step_time_factor(start_m, ds, jerk):
+    """Time a constant-jerk ramp from rest takes from ``start_m`` to ``start_m + ds`` over the
+    constant-acceleration step's ``2 ds / (v + v')`` between its speeds there: at least 1
+    (the ramp's speed is convex in time, so its mean speed is below the ends' mean). Exact:
+    ``t = (6 s / J)^(1/3)`` (:func:`ramp_speed`)."""
+    s0 = np.asarray(start_m, dtype=float)
+    t0, t1 = np.cbrt(6.0 * s0 / jerk), np.cbrt(6.0 * (s0 + ds) / jerk)
+    v0, v1 = 0.5 * jerk * t0 * t0, 0.5 * jerk * t1 * t1
+    return (t1 - t0) * (v0 + v1) / (2.0 * ds)
+
+
+def linear_accel_step(ds, v0, v1, duration):
+    """Start acceleration and jerk of a step driven at constant jerk (its acceleration linear in
+    time) from ``v0`` to ``v1`` over ``ds`` in ``duration`` seconds: ``v1 = v0 + a0 T + J T^2 /
+    2`` and ``ds = v0 T + a0 T^2 / 2 + J T^3 / 6`` give ``J = 12 (T (v0 + v1) / 2 - ds) / T^3``
+    and ``a0 = (v1 - v0) / T - J T / 2``. A step at constant acceleration is the case ``J = 0``;
+    with ``T = c ds / (v0 + v1)`` and ``c`` in [2, 3] the speed stays between 0 and the larger
+    end's (in Bernstein form its middle coefficient is ``(3 / c - 1) (v0 + v1) >= 0``)."""
+    T = np.asarray(duration, dtype=float)
+    v0, v1 = np.asarray(v0, dtype=float), np.asarray(v1, dtype=float)
+    jerk = 12.0 * (0.5 * T * (v0 + v1) - ds) / T ** 3
+    return (v1 - v0) / T - 0.5 * jerk * T, jerk
+
+
+def linear_state_at_time(ds, v0, v1, duration, tau):
+    """Distance, speed and acceleration ``tau`` seconds into a step driven at constant jerk
+    (:func:`linear_accel_step`); ``tau`` is clipped to the step."""
+    T = np.asarray(duration, dtype=float)
+    a0, jerk = linear_accel_step(ds, v0, v1, T)
+    t = np.clip(tau, 0.0, T)
+    d = np.asarray(v0, dtype=float) * t + 0.5 * a0 * t * t + jerk * t ** 3 / 6.0
+    return d, v0 + a0 * t + 0.5 * jerk * t * t, a0 + jerk * t
+
+
+def linear_time_at_distance(ds, v0, v1, duration, d, iterations: int = 60):
+    """Seconds into a step driven at constant jerk (:func:`linear_accel_step`) at which the
+    distance ``d`` is reached: the distance grows with time over the step (the speed is not
+    negative), so bisection on ``[0, T]`` (to ``T / 2^60``, round-off)."""
+    T = np.asarray(duration, dtype=float)
+    target = np.clip(np.asarray(d, dtype=float), 0.0, ds)
+    lo, hi = np.zeros(np.broadcast(T, target).shape), np.broadcast_to(T, target.shape).copy()
+    for _ in range(iterations):
+        mid = 0.5 * (lo + hi)
+        short = linear_state_at_time(ds, v0, v1, T, mid)[0] < target
+        lo, hi = np.where(short, mid, lo), np.where(short, hi, mid)
+    return 0.5 * (lo + hi)
+
+
 def shape_from_time_coef(c):
     """``u`` from the step's time coefficient ``c`` in [2, 3] (the inverse of :func:`time_coef`):
     ``c u^2 - 6 u + 3 c - 6 = 0``, smaller root ``u = (3 - sqrt(9 + 6 c - 3 c^2)) / c``."""
@@ -198,5 +253,8 @@ def leaving_time_at_distance(u, v_moving, ds, d):
 
 
 __all__ = ["U_CONTINUING", "accel_factor", "continuing_shape", "flat_time_coef", "jerk_cap_b",
-           "largest_true", "leaving_state_at_time", "leaving_time_at_distance", "max_ramp_accel",
-           "ramp_jerk", "ramp_time", "shape_for_accel", "shape_from_time_coef", "time_coef"]
+           "largest_true", "leaving_state_at_time", "leaving_time_at_distance",
+           "linear_accel_step", "linear_state_at_time", "linear_time_at_distance",
+           "max_ramp_accel", "ramp_jerk", "ramp_speed",
+           "ramp_step_time_factor", "ramp_time", "shape_for_accel", "shape_from_time_coef",
+           "time_coef"]

@@ -58,8 +58,11 @@ class StationProfile:
         Label of each node in its source ("line 12"), for messages.
     rest_time_coef : ndarray, shape (n,)
         For each step next to rest driven with a jerk ramp, the ``c`` of its time ``c ds / v``
-        (between 2 and 3, see :mod:`curvespeed.export`); 0 for the steps of constant
-        acceleration.
+        (between 2 and 3, see :mod:`curvespeed.export`); 0 for the other steps.
+    linear_time_coef : ndarray, shape (n,)
+        For each step away from rest driven at constant jerk (the steps a launch's or a stop's
+        jerk ramp spans), the ``c`` of its time ``c ds / (v[k] + v[k+1])``, between 2 and 3
+        (:func:`curvespeed.rest_step.linear_accel_step`); 0 for the other steps.
     curvature_bound_1pm : ndarray or None
         The bound on |curvature| the profile was planned on (1/m), where it has one; figures
         judge uses on it, as ``check`` does.
@@ -86,6 +89,7 @@ class StationProfile:
     where: np.ndarray | None = None
     rest_time_coef: np.ndarray | None = None
     curvature_bound_1pm: np.ndarray | None = None
+    linear_time_coef: np.ndarray | None = None
 
     @classmethod
     def from_profile(cls, profile) -> "StationProfile":
@@ -99,7 +103,8 @@ class StationProfile:
             limit_speed_mps=profile.limit_speed_mps, binding=profile.binding, z_m=geo.z_m,
             grade=geo.grade, lat=None if latlon is None else latlon[0],
             lon=None if latlon is None else latlon[1], name=geo.name, source=geo.source,
-            rest_time_coef=profile.rest_time_coef, curvature_bound_1pm=geo.curvature_bound_1pm)
+            rest_time_coef=profile.rest_time_coef, curvature_bound_1pm=geo.curvature_bound_1pm,
+            linear_time_coef=profile.linear_time_coef)
 
     @property
     def n_nodes(self) -> int:
@@ -120,6 +125,18 @@ class StationProfile:
         return self.rest_time_coef > 0.0
 
     @property
+    def linear_step(self) -> np.ndarray:
+        """Steps away from rest driven at constant jerk, bool per step."""
+        return self.linear_time_coef > 0.0
+
+    @property
+    def step_time_coef(self) -> np.ndarray:
+        """The ``c`` of each step's time ``c ds / (v[k] + v[k+1])``: 2 at constant
+        acceleration, :attr:`rest_time_coef` or :attr:`linear_time_coef` where set."""
+        return np.where(self.rest_step, self.rest_time_coef,
+                        np.where(self.linear_step, self.linear_time_coef, 2.0))
+
+    @property
     def step_accel_mps2(self) -> np.ndarray:
         """``(v[k+1]^2 - v[k]^2) / (2 ds)`` of each step, m/s^2: the constant acceleration of a
         constant-acceleration step, the distance-mean acceleration of one next to rest."""
@@ -128,11 +145,10 @@ class StationProfile:
 
     @property
     def step_time_s(self) -> np.ndarray:
-        """Time of each step, ``2 ds / (v[k] + v[k+1])`` (``c ds / ...`` for a step next to rest,
-        :attr:`rest_time_coef`), s; finite (checked on construction)."""
+        """Time of each step, ``c ds / (v[k] + v[k+1])`` (:attr:`step_time_coef`), s; finite
+        (checked on construction)."""
         v = self.speed_mps
-        coef = np.where(self.rest_step, self.rest_time_coef, 2.0)
-        return coef * np.diff(self.station_m) / (v[:-1] + v[1:])
+        return self.step_time_coef * np.diff(self.station_m) / (v[:-1] + v[1:])
 
     @property
     def step_lateral_jerk_mps3(self) -> np.ndarray:
@@ -179,7 +195,7 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
                          limit_speed_mps=None, binding=None, z_m=None, grade=None, lat=None,
                          lon=None, name: str = "route", source: str = "profile",
                          where=None, rest_time_coef=None,
-                         curvature_bound_1pm=None) -> StationProfile:
+                         curvature_bound_1pm=None, linear_time_coef=None) -> StationProfile:
     """Check arrays and build a :class:`StationProfile`.
 
     ``rest_time_coef`` (one value per step: the ``c`` of a step next to rest driven with a jerk
@@ -198,7 +214,8 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
     ValueError
         ``rest_time_coef`` without one value per step, a value other than 0 or within [2, 3],
         or one set on a step that does not have exactly one end at rest
-        (:func:`steps_next_to_rest`); readers check their files for this first.
+        (:func:`steps_next_to_rest`); ``linear_time_coef`` likewise, set only on steps with
+        neither end at rest; readers check their files for this first.
     """
     def arr(values):
         return None if values is None else np.asarray(values, dtype=float).ravel()
@@ -234,11 +251,18 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
                 or np.any(ramp & ((coef < 2.0) | (coef > 3.0)))):
             raise ValueError("rest_time_coef must have one value per step, 0 or in [2, 3], "
                              "non-zero only on steps with exactly one end at rest")
+    linear = np.zeros(n - 1) if linear_time_coef is None else np.asarray(
+        linear_time_coef, dtype=float).ravel()
+    on = linear != 0.0
+    if (linear.size != n - 1 or np.any(on & ((v[:-1] <= 0.0) | (v[1:] <= 0.0)))
+            or np.any(on & ((linear < 2.0) | (linear > 3.0)))):
+        raise ValueError("linear_time_coef must have one value per step, 0 or in [2, 3], "
+                         "non-zero only on steps with neither end at rest")
     return StationProfile(
         station_m=s, x_m=required["x_m"], y_m=required["y_m"],
         heading_rad=np.unwrap(required["heading_rad"]), curvature_1pm=required["curvature_1pm"],
         speed_mps=v, binding=text, name=name, source=source, where=labels,
-        rest_time_coef=coef,
+        rest_time_coef=coef, linear_time_coef=linear,
         **optional)
 
 

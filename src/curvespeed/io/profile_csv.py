@@ -12,15 +12,19 @@ lat_accel_mps2, time_s``
     how the step from this station to the next is driven (:class:`StepKind`):
     ``constant_accel``, or ``jerk_ramp`` for a step next to rest planned with a jerk bound
     (:attr:`Profile.rest_step <curvespeed.profile.Profile.rest_step>`; its shape follows from its
-    time, :mod:`curvespeed.rest_step`); ``constant_jerk`` (older profiles) is still read; empty
-    on the last row, where no step follows;
+    time, :mod:`curvespeed.rest_step`), or ``linear_accel`` for a step away from rest driven at
+    constant jerk (a step a launch's jerk ramp spans, :attr:`Profile.linear_time_coef
+    <curvespeed.profile.Profile.linear_time_coef>`; its start acceleration and jerk follow from
+    its time, :func:`curvespeed.rest_step.linear_accel_step`); ``constant_jerk`` (older
+    profiles) is still read; empty on the last row, where no step follows;
 ``z_m, grade``
     when the route has elevation;
 ``lat, lon``
     when the route was geographic.
 
-Speeds are written with 9 decimals (:data:`SPEED`), accelerations, jerk and time with 6; geometry
-as in :mod:`curvespeed.io.geometry_csv`. Output is deterministic and written atomically.
+Speeds and times are written with 9 decimals (:data:`SPEED`, :data:`TIME`), accelerations and
+jerk with 6; geometry as in :mod:`curvespeed.io.geometry_csv`. Output is deterministic and
+written atomically.
 
 :func:`read_station_profile` reads such a file (or any CSV with the columns
 :data:`REQUIRED_PROFILE_COLUMNS`) into a :class:`~curvespeed.export.StationProfile`.
@@ -54,6 +58,11 @@ KINEMATIC = ".6f"
 #: 30 m/s and 1 m stations: a plan riding a 0.5 m/s^3 jerk bound read 0.3 % over it. At 9
 #: decimals that is 2e-6 m/s^3.
 SPEED = ".9f"
+#: Times carry 9 decimals too: a ``jerk_ramp`` or ``linear_accel`` step is driven as its time
+#: says, and a step a launch's ramp spans is only ``(c / 2 - 1)`` = 6e-5 of its 0.12 s longer
+#: than at constant acceleration far out on a 0.5 m/s^3 ramp, so 6 decimals' rounding moved the
+#: jerk read back from it by up to 5 %.
+TIME = ".9f"
 
 #: Columns every profile CSV starts with, in order.
 PROFILE_COLUMNS = ("station_m", "x_m", "y_m", "heading_rad", "curvature_1pm",
@@ -83,6 +92,10 @@ class StepKind(enum.Enum):
     #: end; the step takes ``c ds / v`` (``v`` at its moving end, ``c`` in [2, 3] read from
     #: ``time_s``), see :mod:`curvespeed.rest_step`.
     JERK_RAMP = "jerk_ramp"
+    #: Only away from rest: the acceleration linear in time over the step (constant jerk); the
+    #: step takes ``c ds / (v[k] + v[k+1])`` with ``c`` in [2, 3] read from ``time_s``, see
+    #: :func:`curvespeed.rest_step.linear_accel_step`.
+    LINEAR_ACCEL = "linear_accel"
     #: Constant jerk over the whole step, only next to rest: ``3 ds / v``. Written by older
     #: versions; read, never written.
     CONSTANT_JERK = "constant_jerk"
@@ -92,8 +105,11 @@ class StepKind(enum.Enum):
 
 def step_kinds(profile: Profile) -> list[str]:
     """The ``step_kind`` cell of every row: the step to the next station, empty on the last."""
-    cell = (StepKind.CONSTANT_ACCEL.value, StepKind.JERK_RAMP.value)
-    return [cell[ramp] for ramp in np.asarray(profile.rest_step, dtype=bool).tolist()] + [""]
+    kind = np.where(np.asarray(profile.rest_step, dtype=bool), StepKind.JERK_RAMP.value,
+                    StepKind.CONSTANT_ACCEL.value).astype(object)
+    if profile.linear_time_coef is not None:
+        kind[profile.linear_time_coef > 0.0] = StepKind.LINEAR_ACCEL.value
+    return kind.tolist() + [""]
 
 
 def profile_columns(profile: Profile) -> dict[str, tuple[object, str]]:
@@ -106,7 +122,7 @@ def profile_columns(profile: Profile) -> dict[str, tuple[object, str]]:
         "accel_mps2": (profile.accel_mps2, KINEMATIC),
         "jerk_mps3": (profile.jerk_mps3, KINEMATIC),
         "lat_accel_mps2": (profile.lat_accel_mps2, KINEMATIC),
-        "time_s": (profile.time_s, KINEMATIC),
+        "time_s": (profile.time_s, TIME),
         "limit_speed_mps": (profile.limit_speed_mps, KINEMATIC),
         "binding": (profile.binding, "s"),
         "step_kind": (step_kinds(profile), "s"),
@@ -134,11 +150,11 @@ def read_station_profile(path: str | os.PathLike, name: str | None = None) -> St
 
     Needs the columns :data:`REQUIRED_PROFILE_COLUMNS`; keeps ``time_s``, ``accel_mps2``,
     ``jerk_mps3``, ``lat_accel_mps2``, ``limit_speed_mps``, ``binding``, ``z_m``, ``grade``,
-    ``lat``, ``lon`` and ``curvature_bound_1pm`` where present. The steps next to rest driven with a jerk ramp come from
-    the ``step_kind`` column (:func:`read_step_kinds`; a ``jerk_ramp`` step's time from
-    ``time_s``); a file without it (older or hand-made) has them recognised from ``time_s``
-    (:func:`curvespeed.export.detect_rest_steps`). Warns
-    (:class:`CurvespeedWarning`) when the file's own ``time_s`` disagrees with the time implied
+    ``lat``, ``lon`` and ``curvature_bound_1pm`` where present. How each step is driven comes
+    from the ``step_kind`` column (:func:`read_step_kinds`; the time of a ``jerk_ramp`` or a
+    ``linear_accel`` step from ``time_s``); a file without it (older or hand-made) has its
+    steps next to rest recognised from ``time_s`` (:func:`curvespeed.export.detect_rest_steps`)
+    and every other step at constant acceleration. Warns (:class:`CurvespeedWarning`) when the file's own ``time_s`` disagrees with the time implied
     by its stations and speeds.
 
     Parameters
@@ -162,17 +178,20 @@ def read_station_profile(path: str | os.PathLike, name: str | None = None) -> St
     required = table.require(*REQUIRED_PROFILE_COLUMNS, what="a profile (export and plot)")
     optional = {c: table.columns.get(c) for c in _OPTIONAL_PROFILE_COLUMNS}
     kinds = read_step_kinds(table)
-    coef = None if kinds is None else _rest_time_coef(table, kinds)
-    # a step next to rest must have exactly one end at rest; that is checked once the speeds
-    # themselves are (a step with both ends at rest is refused as never driven, which says more)
+    coef, linear = (None, None) if kinds is None else _time_coefs(table, kinds)
+    # a step's kind must suit its ends' speeds; that is checked once the speeds themselves are
+    # (a step with both ends at rest is refused as never driven, which says more)
+    v = table.columns["speed_mps"]
     sp = make_station_profile(*required, binding=table.columns.get("binding"),
                               name=name or Path(path).stem, source=table.source,
                               where=table.where,
                               rest_time_coef=None if coef is None else
-                              np.where(steps_next_to_rest(table.columns["speed_mps"]), coef, 0.0),
+                              np.where(steps_next_to_rest(v), coef, 0.0),
+                              linear_time_coef=None if linear is None else
+                              np.where((v[:-1] > 0.0) & (v[1:] > 0.0), linear, 0.0),
                               **optional)
     if kinds is not None:
-        _check_rest_steps(table, kinds, sp.speed_mps)
+        _check_step_kinds(table, kinds, sp.speed_mps)
     mismatch = planned_time_mismatch(sp)
     if mismatch is not None:
         k, gap = mismatch
@@ -221,45 +240,55 @@ def read_step_kinds(table: Table) -> np.ndarray | None:
 
 
 _REST_KINDS = (StepKind.JERK_RAMP.value, StepKind.CONSTANT_JERK.value)
+#: Kinds whose time coefficient comes from ``time_s``.
+_TIMED_KINDS = (StepKind.JERK_RAMP.value, StepKind.LINEAR_ACCEL.value)
 
 
-def _rest_time_coef(table: Table, kinds: np.ndarray) -> np.ndarray:
-    """The ``c`` of each step's time ``c ds / v`` by its kind: 3 for ``constant_jerk``, from
-    ``time_s`` for ``jerk_ramp``, 0 (constant acceleration) otherwise."""
-    ramp = kinds == StepKind.JERK_RAMP.value
-    coef = np.where(kinds == StepKind.CONSTANT_JERK.value, 3.0, 0.0)
-    if not ramp.any():
-        return coef
+def _time_coefs(table: Table, kinds: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The ``c`` of each step's time ``c ds / (v[k] + v[k+1])`` by its kind, as
+    ``(rest_time_coef, linear_time_coef)``: 3 for ``constant_jerk`` and from ``time_s`` for
+    ``jerk_ramp`` in the first, from ``time_s`` for ``linear_accel`` in the second, 0
+    elsewhere (constant acceleration)."""
+    rest = np.where(kinds == StepKind.CONSTANT_JERK.value, 3.0, 0.0)
+    timed = np.isin(kinds, _TIMED_KINDS)
+    if not timed.any():
+        return rest, np.zeros(kinds.size)
     times = table.columns.get("time_s")
     if times is None:
-        k = int(np.flatnonzero(ramp)[0])
+        k = int(np.flatnonzero(timed)[0])
         raise SpeedFileError(
-            f"{table.source}: {table.where[k]}: column 'step_kind' value "
-            f"'{StepKind.JERK_RAMP.value}' needs the time_s column (the step's shape follows from "
-            "its time); add time_s, or remove the step_kind column")
+            f"{table.source}: {table.where[k]}: column 'step_kind' value '{kinds[k]}' needs the "
+            "time_s column (how the step is driven follows from its time); add time_s, or "
+            "remove the step_kind column")
     from ..export import rest_time_coef_from_times
 
     s, v = table.columns["station_m"], table.columns["speed_mps"]
     with np.errstate(divide="ignore", invalid="ignore"):
         from_times = rest_time_coef_from_times(s, v, times)
-    return np.where(ramp, from_times, coef)
+    linear = kinds == StepKind.LINEAR_ACCEL.value
+    return (np.where(kinds == StepKind.JERK_RAMP.value, from_times, rest),
+            np.where(linear, from_times, 0.0))
 
 
-def _check_rest_steps(table: Table, kinds: np.ndarray, speed_mps: np.ndarray) -> None:
-    """Refuse a step kind next to rest on a step without exactly one end at rest (file, line,
-    value)."""
+def _check_step_kinds(table: Table, kinds: np.ndarray, speed_mps: np.ndarray) -> None:
+    """Refuse a step kind next to rest on a step without exactly one end at rest, and
+    ``linear_accel`` on a step with an end at rest (file, line, value)."""
     from ..export import steps_next_to_rest
 
-    bad = np.flatnonzero(np.isin(kinds, _REST_KINDS) & ~steps_next_to_rest(speed_mps))
-    if bad.size:
-        k = int(bad[0])
-        where, v = table.where, speed_mps
-        raise SpeedFileError(
-            f"{table.source}: {where[k]}: column 'step_kind' value "
-            f"'{kinds[k]}' is allowed only on a step with exactly one end at "
-            f"rest (speed 0), but speed_mps is {v[k]:g} here and {v[k + 1]:g} on {where[k + 1]}; "
-            f"use {StepKind.CONSTANT_ACCEL.value} there, or remove the column to have the steps "
-            "recognised from time_s")
+    v, where = speed_mps, table.where
+    next_to_rest = steps_next_to_rest(v)
+    for bad, allowed_on in ((np.isin(kinds, _REST_KINDS) & ~next_to_rest,
+                             "a step with exactly one end at rest (speed 0)"),
+                            ((kinds == StepKind.LINEAR_ACCEL.value) & ((v[:-1] <= 0.0)
+                                                                      | (v[1:] <= 0.0)),
+                             "a step with neither end at rest")):
+        if bad.any():
+            k = int(np.flatnonzero(bad)[0])
+            raise SpeedFileError(
+                f"{table.source}: {where[k]}: column 'step_kind' value '{kinds[k]}' is allowed "
+                f"only on {allowed_on}, but speed_mps is {v[k]:g} here and {v[k + 1]:g} on "
+                f"{where[k + 1]}; use {StepKind.CONSTANT_ACCEL.value} there, or remove the "
+                "column to have the steps recognised from time_s")
 
 
 __all__ = ["KINEMATIC", "PROFILE_COLUMNS", "REQUIRED_PROFILE_COLUMNS", "StepKind",
