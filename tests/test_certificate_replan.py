@@ -392,6 +392,34 @@ def test_state_at_drives_each_step_as_the_window_is_driven():
         assert (s2 - s0) / (2 * h) == pytest.approx(v1, abs=2e-3)
 
 
+def test_state_at_drives_a_launch_ramp_at_constant_jerk():
+    """A window leaving rest at 0.5 m/s^3 and 3 m/s^2 plans the launch as its jerk ramp (steps
+    timed as driven at constant jerk, curvespeed.rest_step.linear_accel_step): ``state_at``
+    drives those steps so. At each node time it gives the node's station and speed; inside
+    such a step the acceleration it gives rises at the step's own jerk, within 1 % of the
+    bound (the window's speeds are not the exact ramp's), and the speed is its integral
+    (finite differences at 1 ms: exact for a quadratic speed, to round-off)."""
+    from helpers import geometry_from_curvature
+
+    geo = geometry_from_curvature(np.zeros(301), ds=1.0)
+    limits = Limits(max_jerk_mps3=0.5, max_accel_mps2=3.0, max_decel_mps2=3.0,
+                    max_speed_mps=30.0)
+    w = Replanner(geo, limits, RouteConstraints()).replan(0.0, 0.0, 0.0)
+    p = w.problem
+    linear = np.flatnonzero(np.isnan(p.rest_u) & (p.time_coef > 2.0))
+    assert linear[0] == 1 and linear.size >= 10
+    for j in range(0, 20):
+        s, v, _ = w.state_at(float(w.time_s[j]))
+        assert s == pytest.approx(w.station_m[j], abs=1e-9)
+        assert v == pytest.approx(w.speed_mps[j], abs=1e-9)
+    h = 1e-3
+    for k in linear[:10]:
+        t = 0.5 * (w.time_s[k] + w.time_s[k + 1])
+        (_, v0, a0), (_, v1, a1), (_, v2, a2) = (w.state_at(t + d) for d in (-h, 0.0, h))
+        assert (a2 - a0) / (2 * h) == pytest.approx(0.5, rel=1e-2)
+        assert (v2 - v0) / (2 * h) == pytest.approx(a1, rel=1e-9)
+
+
 def test_a_vehicle_following_each_window_exactly_never_needs_the_limits_raised():
     """Followed exactly (the next state from ``state_at``), a window's motion is continued by
     the next window within every limit: over 300 calls 0.1 s apart along the mountain road,
