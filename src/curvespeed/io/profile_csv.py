@@ -198,8 +198,9 @@ def read_station_profile(path: str | os.PathLike, name: str | None = None) -> St
         if gap > TIME_MISMATCH_S + TIME_MISMATCH_REL * sp.moving_time_s:
             warnings.warn(
                 f"{table.source}: {sp.node_label(k)}: time_s differs by {gap:.3f} s from the time "
-                "its stations and speeds imply (2 ds / (v[k] + v[k+1]) per step, more on a "
-                "step next to rest as its step_kind says); curvespeed uses stations and speeds",
+                "its stations and speeds imply (2 ds / (v[k] + v[k+1]) per step, more where "
+                "step_kind says a step is not driven at constant acceleration); curvespeed uses "
+                "stations and speeds",
                 CurvespeedWarning, stacklevel=2)
     return sp
 
