@@ -3,7 +3,8 @@
 Part of the one definition of the discrete problem (:mod:`curvespeed.problem`, whose module
 docstring states the model): which nodes are at rest, the shape each step next to rest gets
 (:mod:`curvespeed.rest_step` has its kinematics) and the cap its jerk ramp puts on the moving
-node, and the terms of the time base over which a node's change of acceleration counts.
+node, a launch (or stop) whose jerk ramp spans many stations planned as that ramp, and the terms
+of the time base over which a node's change of acceleration counts.
 :func:`curvespeed.problem.build_problem` calls it; nothing here reads or writes files.
 """
 
@@ -206,9 +207,9 @@ def accel_held(problem: SpeedProblem, rest: np.ndarray, steps: np.ndarray,
 
     The double-S closed form (Biagiotti & Melchiorri 2008, section 3.4) reaches its acceleration
     limit ``A`` when the move is at least ``2 A^3 / J^2`` long and its top speed at least
-    ``A^2 / J``; held here asks :data:`HELD_LENGTH_FACTOR` times that length. The move is
-    :func:`rest_stretches`'. Where this is false the acceleration turns before it gets to ``A``
-    or soon after.
+    ``A^2 / J``; held here asks :data:`HELD_LENGTH_FACTOR` times that length of the move
+    :func:`rest_stretches` measures. Where this is false the acceleration turns before it gets
+    to ``A`` or soon after.
     """
     span_m, v_top = rest_stretches(problem, rest, steps, leaving)
     return _held(span_m, v_top, np.asarray(accel, dtype=float), problem.limits.max_jerk_mps3)

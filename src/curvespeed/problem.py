@@ -36,7 +36,10 @@ step, :func:`curvespeed.jerk_model.with_rest_steps` says how much of it the step
 :attr:`SpeedProblem.rest_u`,
 :attr:`~SpeedProblem.time_coef`, :attr:`~SpeedProblem.accel_factor_start` and
 :attr:`~SpeedProblem.accel_factor_end` carry this per step; every other step has constant
-acceleration (factors 1, time ``2 ds / (v + v')``).
+acceleration (factors 1, time ``2 ds / (v + v')``), except that where a launch's (or a stop's)
+jerk ramp spans many stations the steps wholly inside it take the time of a step driven at the
+bound, a fixed factor over ``2 ds / (v + v')`` (:func:`curvespeed.jerk_model.launch_time_factors`;
+the profile's ``linear_accel`` steps).
 
 **Jerk** at a node is its change of acceleration over a time base
 (:meth:`SpeedProblem.node_jerk_time`, from :attr:`SpeedProblem.jerk_terms`):
@@ -53,7 +56,10 @@ acceleration (factors 1, time ``2 ds / (v + v')``).
   a ramp symmetric about the node, fitting in the step's flat part ``t2`` before it and in half of
   the next step ``T_next`` after it (that half of the next step is the next node's share). A
   symmetric ramp leaves the speed after it unchanged, so the profile is the step-wise constant
-  form of a motion whose jerk really stays within the bound;
+  form of a motion whose jerk really stays within the bound. Where the step ramps over its whole
+  length (a launch planned as its ramp) the ramp runs on through the node: the time to the next
+  step's distance-weighted mean time, ``2 ds (v + 2 v') / (3 (v + v')^2)``, bounded from below
+  by linear forms;
 * at an open end the vehicle is steady outside the route: half the end step's time,
   ``ds / (v + v_next)`` (``t2`` at the moving node of a step next to rest).
 
@@ -144,8 +150,9 @@ class SpeedProblem:
     jerk_model : bool
         True when the jerk bound is part of the problem (steps next to rest ramp the jerk).
     time_coef : ndarray, shape (n,)
-        Step time is ``time_coef * ds / (v[k] + v[k+1])``: 2, or between 2 and 3 for a step
-        next to rest (:func:`curvespeed.rest_step.time_coef`).
+        Step time is ``time_coef * ds / (v[k] + v[k+1])``: 2, between 2 and 3 for a step next
+        to rest (:func:`curvespeed.rest_step.time_coef`), a little over 2 on the steps a
+        launch's jerk ramp spans (:func:`curvespeed.jerk_model.launch_time_factors`).
     accel_factor_start, accel_factor_end : ndarray, shape (n,)
         Acceleration of a step at its first / last node over ``(b[k+1] - b[k]) / (2 ds)``: 1,
         or 0 at the rest node and ``f`` at the moving node of a step next to rest.
