@@ -10,8 +10,8 @@ much of every limit the motion the profile describes really uses (1.0: exactly a
    slightly from the design's; the profile says which speed to have *where*, so the exact
    stations are what the vehicle drives by.
 2. **The motion between rows**, as ``curvespeed export`` drives it: squared speed linear in
-   station (constant acceleration) over each step, or the constant-jerk steps next to rest
-   (``step_kind``), here over the exact station steps.
+   station (constant acceleration) over each step, or the jerk ramps next to rest and the
+   constant-jerk steps of a launch (``step_kind``), here over the exact station steps.
 3. **Sampled** every ``max_step_m`` (0.125 m by default) inside every step, at both ends of every
    step (so a row where the acceleration changes is seen with both values), and at every element
    joint of the alignment (with the curvature on both sides of it; a joint that falls on a row
@@ -182,7 +182,8 @@ def profile_jerk(sp: StationProfile) -> tuple[np.ndarray, np.ndarray]:
     """Jerk (m/s^3) between consecutive acceleration instants and the node of each (module
     docstring: the profile's accelerations read as linear in time between their instants; a
     step next to rest is a jerk ramp, then constant acceleration, as export drives it, whose
-    constant part is read at its middle like any other step's)."""
+    constant part is read at its middle like any other step's; a step a launch's ramp spans,
+    ``linear_accel``, is constant jerk, read at both ends)."""
     from curvespeed import rest_step
 
     t = sp.node_time_s
@@ -207,6 +208,11 @@ def profile_jerk(sp: StationProfile) -> tuple[np.ndarray, np.ndarray]:
                 times += [t[k] + half_flat, t[k + 1] - ramp, t[k + 1]]
                 values += [-flat, -flat, 0.0]
             nodes += [k, k, k + 1]
+        elif sp.linear_step[k]:     # constant jerk: its two ends' values
+            a0, jerk = rest_step.linear_accel_step(ds[k], v[k], v[k + 1], T[k])
+            times += [t[k], t[k + 1]]
+            values += [float(a0), float(a0 + jerk * T[k])]
+            nodes += [k, k + 1]
         else:
             times.append(t[k] + 0.5 * T[k])
             values.append(a[k])
