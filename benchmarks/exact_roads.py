@@ -32,12 +32,12 @@ of the curvature work (PASS/FAIL): no limit used beyond 1.01 on the exact road; 
 within 1 % of the optimum and not more than 0.1 % below it; and a double-S rest-to-rest move
 planned at the default 1 m spacing within 0.1 % of its closed form and never below it.
 
-Each road is also driven and logged (``tests/drive_logs.py``: RTK at 10 and 1 Hz, a consumer
-receiver at 1 Hz; white noise plus a slowly drifting error), planned from the log as a user would (noise
-estimated from it) and judged on the exact road, lengthened by straights at both ends since a
-log's route may begin or end a little beyond the road's. These rows have the limits target only:
-a log's route is not the road's, and how much slower than the optimum the plan may be depends on
-how well the points show the road.
+Each road is also driven and logged (``tests/drive_logs.py``: RTK at 10, 2 and 1 Hz, a consumer
+receiver at 10 and 1 Hz; white noise plus a slowly drifting error), planned from the log as a
+user would (noise estimated from it) and judged on the exact road, lengthened by straights at
+both ends since a log's route may begin or end a little beyond the road's. These rows have the
+limits target only: a log's route is not the road's, and how much slower than the optimum the
+plan may be depends on how well the points show the road.
 """
 
 from __future__ import annotations
@@ -218,7 +218,7 @@ def _run_plan(case: RoadCase, points: Path, what: str) -> Path:
 
 #: Simulated logs each road is also planned from (receiver, logging rate in Hz): the error
 #: models of ``tests/drive_logs.py`` (white noise plus a slowly drifting error; common practice).
-LOGS = (("RTK", 10.0), ("RTK", 1.0), ("consumer", 1.0))
+LOGS = (("RTK", 10.0), ("RTK", 2.0), ("RTK", 1.0), ("consumer", 10.0), ("consumer", 1.0))
 
 
 #: Straight road added before and after each road to judge the plans of logs on: a log's route

@@ -107,6 +107,38 @@ def test_bound_covers_the_road_where_a_sparse_log_blurs_a_step(name, receiver, s
     assert np.all(exact <= COVER * geo.curvature_bound_1pm)
 
 
+@pytest.mark.parametrize("name, rate_hz, seed", [("winding", 2.0, 5), ("invented", 2.0, 0),
+                                                ("invented", 1.0, 0)])
+def test_breaks_of_the_alignment_stay_in_driving_order(name, rate_hz, seed, monkeypatch):
+    # Two lines of nearly the same slope cross far from their boundary, and the point where
+    # they cross is as uncertain: an RTK log at 2 Hz of the winding road had a kink of the
+    # boundary at 441 m placed at 141 m, beyond two other breaks. The curvature between the
+    # breaks, read off a segment of negative length, then held the bound at 0.01-0.1 1/m over
+    # 300 m of a 178 m-radius curve, and the plan crawled through it at 5 m/s (162 s against
+    # an optimum of 120 s). A kink lies on the two segments it joins, after the previous break.
+    from curvespeed.geometry import alignment
+
+    from drive_logs import invented_road
+
+    found = []
+    reconstruct = alignment.reconstruct
+
+    def keep(*args, **kwargs):
+        found.append(reconstruct(*args, **kwargs))
+        return found[-1]
+
+    monkeypatch.setattr("curvespeed.geometry.curvature.reconstruct", keep)
+    receiver = RTK if rate_hz == 2.0 else CONSUMER
+    if name == "invented":
+        fitted(simulate_drive(invented_road(), rate_hz, receiver, seed=seed))
+    else:               # as benchmarks/exact_roads.py logs it
+        case = _case(name)
+        fitted(simulate_drive(case.alignment, rate_hz, receiver, seed=seed, stops=case.stops,
+                              dwell_s=5.0))
+    assert found and found[-1] is not None
+    assert np.all(np.diff(found[-1].breaks_m) > 0.0)
+
+
 @pytest.mark.parametrize("a, b", [(0, 7), (150, 400), (1000, 6000)])
 def test_replicate_line_sd_matches_numpy_least_squares(a, b):
     """The standard deviation of each element's line over the noise replicates, solved from

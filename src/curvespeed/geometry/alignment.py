@@ -372,7 +372,12 @@ def _place_breaks(kappa, sd, gamma, bounds, lines, gap, smears, ends_sd):
     Lines meet near their boundary when the point where they cross is within two gaps of it,
     widened by ``gamma`` times that point's own standard deviation (``ends_sd``: of the two
     lines' difference at the boundary, over their difference of slope): an arc running into a
-    clothoid whose curvature changes slowly crosses it at a point known only to a few metres."""
+    clothoid whose curvature changes slowly crosses it at a point known only to a few metres.
+    The point must also lie on the two segments, after the previous break: lines of nearly the
+    same slope can cross far away, and with an uncertainty as large (an RTK log at 2 Hz put a
+    kink of the boundary at 441 m at 141 m, beyond two other breaks, and the curvature between
+    the breaks, read off a segment of negative length, held a bend's bound at 0.01-0.1 1/m over
+    300 m of a 178 m-radius curve)."""
     breaks, step, reach = [], [], []
     for m in range(1, len(bounds) - 1):
         b = bounds[m]
@@ -381,12 +386,24 @@ def _place_breaks(kappa, sd, gamma, bounds, lines, gap, smears, ends_sd):
         meet = b + (vb - va) / (sa - sb) if sa != sb else math.inf
         meet_sd = float(ends_sd[m - 1][0]) / abs(sa - sb) if sa != sb else math.inf
         if math.isfinite(meet) and abs(meet - b) <= 2 * gap + gamma * meet_sd:    # a kink
+            # it joins these two lines, so it lies on their segments, after the last break;
+            # lines that cross farther off but agree at the boundary within their noise
+            # (nearly the same line) join there
+            first = max(bounds[m - 1], breaks[-1] if breaks else -math.inf)
+            if not first < meet < bounds[m + 1]:
+                if abs(vb - va) > gamma * float(ends_sd[m - 1][0]) or not first < b:
+                    meet = math.nan
+                else:
+                    meet = float(b)
+        if math.isfinite(meet) and abs(meet - b) <= 2 * gap + gamma * meet_sd:
             breaks.append(meet)
             step.append(False)
             reach.append(1.0)
             continue
         level = 0.5 * (va + vb)
-        lo, hi = max(b - gap - 2, 0), min(b + gap + 2, kappa.size - 1)
+        # searched after the previous break (its window may reach past this boundary)
+        after = int(math.floor(breaks[-1])) + 1 if breaks else 0
+        lo, hi = max(b - gap - 2, 0, min(after, b)), min(b + gap + 2, kappa.size - 1)
         seg = kappa[lo: hi + 1] - level
         cross = np.flatnonzero(np.sign(seg[:-1]) * np.sign(seg[1:]) <= 0)
         located = 2.0 * gap
