@@ -87,6 +87,19 @@ def test_consumer_log(rate_hz):
     assert straights.max() < 3e-3
 
 
+@pytest.mark.parametrize("seed", [1, 2])
+def test_a_dense_noisy_log_names_no_point_as_a_spike(seed):
+    # A consumer receiver at 10 Hz (0.5 m of white noise, fixes about 1.5 m apart): among some
+    # 2,000 single fixes a few lie 1.7 m off the line through their neighbours by chance, and
+    # were named as spikes to remove. A spike must stand out of the points' own scatter
+    # (route.SPIKE_NOISE_SIGMAS); tests/test_hostile_inputs.py keeps a real 5 m spike named.
+    log = simulate_drive(ROAD, 10, CONSUMER, seed=seed)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        build_geometry(log_route(log))
+    assert not [w for w in caught if "sticks out" in str(w.message)]
+
+
 @pytest.mark.parametrize("receiver, rate_hz", [(RTK, 1), (RTK, 100), (CONSUMER, 10)])
 def test_curvature_bound_covers_the_road(receiver, rate_hz):
     # The bound planning uses must cover the exact curvature at every station (each scale's
