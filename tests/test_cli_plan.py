@@ -58,6 +58,23 @@ def test_bundled_route_with_default_limits(name, tmp_path):
         assert cols["speed_mps"][0] == cols["speed_mps"][-1]      # periodic lap
 
 
+@pytest.mark.parametrize("receiver, cautioned", [("RTK", False), ("CONSUMER", True)])
+def test_a_route_logged_by_a_noisy_receiver_is_said_to_be_one(receiver, cautioned, tmp_path):
+    # Simulated logs of the invented test road at 10 Hz (tests/drive_logs.py): an RTK receiver
+    # scatters by a centimetre, a consumer one by half a metre and drifts by metres, which one
+    # drive cannot show; the plan's summary says so for the second (plan_cmd.NOISY_POSITIONS_M).
+    import drive_logs
+
+    log = drive_logs.simulate_drive(drive_logs.invented_road(), 10,
+                                    getattr(drive_logs, receiver), seed=1)
+    route = tmp_path / "log.csv"
+    route.write_text("x_m,y_m\n" + "".join(f"{a:.4f},{b:.4f}\n" for a, b in zip(log.x_m, log.y_m)))
+    result = run(route, "-o", tmp_path / "p.csv")
+    assert result.exit_code == 0, result.output
+    assert ("caution  the points scatter" in result.output) is cautioned
+    assert ("check the route against a survey" in result.output) is cautioned
+
+
 def test_stops_zones_and_start_speed_from_the_command_line(tmp_path):
     out = tmp_path / "p.csv"
     result = run(straight_csv(tmp_path / "s.csv"), "-o", out, "--stop", "200",

@@ -232,6 +232,9 @@ def summarise(route_file, profile, limits, origin: str, max_curves: int = 8) -> 
         f" jerk {profile.extremes['jerk_mps3']:.2f}, lateral jerk "
         f"{profile.extremes['lateral_jerk_mps3']:.2f} m/s^3",
     ]
+    caution = noise_caution(geo)
+    if caution:
+        lines.append(caution)
     from ..check import find_curves
 
     lateral = np.isin(profile.binding, ["lateral_comfort", "lateral_grip", "lateral_jerk"])
@@ -249,6 +252,27 @@ def summarise(route_file, profile, limits, origin: str, max_curves: int = 8) -> 
     else:
         lines.append("no curve limits the speed (top speed, zones and stops do)")
     return "\n".join(lines)
+
+
+#: Position noise (per coordinate, metres) from which a route is treated as logged by a
+#: receiver that is not survey grade: RTK scatters by centimetres, a consumer receiver by
+#: decimetres to metres (common practice).
+NOISY_POSITIONS_M = 0.2
+
+
+def noise_caution(geo) -> str | None:
+    """A caution line for a route whose points scatter like a consumer receiver's, else None.
+
+    Such a receiver also drifts by metres, which one drive cannot show: measured on simulated
+    logs of invented design roads (``benchmarks/exact_roads.py``), plans from them used up to
+    1.07 of the lateral limit and 1.04 of the jerk bound on the exact road."""
+    noise = ((geo.provenance or {}).get("position_noise") or {}).get("used_m")
+    if noise is None or noise < NOISY_POSITIONS_M:
+        return None
+    return (f"caution  the points scatter {noise:.2f} m: a receiver this noisy also drifts by "
+            "metres, which one drive cannot show, and the road can then curve and stretch a few "
+            "percent more than its fitted path (simulated logs: up to 7 % over the lateral "
+            "limit); check the route against a survey before relying on these speeds")
 
 
 def _lateral_peaks(profile, limits) -> str:
