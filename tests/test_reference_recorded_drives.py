@@ -89,9 +89,9 @@ def test_consumer_log(rate_hz):
 
 @pytest.mark.parametrize("seed", [1, 2])
 def test_a_dense_noisy_log_names_no_point_as_a_spike(seed):
-    # A consumer receiver at 10 Hz (0.5 m of white noise, fixes about 1.5 m apart): among some
-    # 2,000 single fixes a few lie 1.7 m off the line through their neighbours by chance, and
-    # were named as spikes to remove. A spike must stand out of the points' own scatter
+    # A consumer receiver at 10 Hz (0.5 m of white noise, fixes about 1.5 m apart): among its
+    # thousands of single fixes some lie 1.7-2 m off the line through their neighbours by
+    # chance, and were named as spikes to remove. A spike must stand out of the points' own scatter
     # (route.SPIKE_NOISE_SIGMAS); tests/test_hostile_inputs.py keeps a real 5 m spike named.
     log = simulate_drive(ROAD, 10, CONSUMER, seed=seed)
     with warnings.catch_warnings(record=True) as caught:
