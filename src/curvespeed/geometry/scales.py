@@ -207,6 +207,7 @@ class Scale:
         scale.width = SPREAD_LENGTHS * smoothing_length(system, rho, u_nodes, fit.span)
         scale.sum_sq = np.zeros_like(scale.kappa)
         scale.lowered = np.zeros_like(scale.kappa)  # how much it rounds off peaks (smoothing_bias)
+        scale.misread = None        # where the road it was read from does not smooth to it
         return scale
 
     def derivatives(self, coef: np.ndarray, u_nodes: np.ndarray
