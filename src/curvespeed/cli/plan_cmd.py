@@ -265,14 +265,14 @@ def noise_caution(geo) -> str | None:
 
     Such a receiver also drifts by metres, which the points cannot show: measured on simulated
     logs of invented design roads (``benchmarks/exact_roads.py``), plans from them used up to
-    1.07 of the lateral limit and 1.04 of the jerk bound on the exact road."""
+    1.028 of the jerk bound on the exact road."""
     noise = ((geo.provenance or {}).get("position_noise") or {}).get("used_m")
     if noise is None or noise < NOISY_POSITIONS_M:
         return None
     return (f"caution  the points scatter {noise:.2f} m: a receiver this noisy also drifts by "
             "metres, which the points cannot show, and the road can then curve and stretch a "
-            "few percent more than its fitted path (simulated logs: up to 7 % over the lateral "
-            "limit); check the route against a survey before relying on these speeds")
+            "few percent more than its fitted path (simulated logs: up to 3 % over the jerk "
+            "bound); check the route against a survey before relying on these speeds")
 
 
 def _lateral_peaks(profile, limits) -> str:
