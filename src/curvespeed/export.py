@@ -79,7 +79,7 @@ from .export_shape import elevation_at, hermite_position, interpolate_latlon, st
 from .station_profile import (RAMP_TIME_EXCESS, StationProfile, as_station_profile,
                               check_stations_and_speeds, detect_rest_steps,
                               make_station_profile, planned_time_mismatch,
-                              rest_time_coef_from_times, steps_next_to_rest)
+                              step_time_coef_from_times, steps_next_to_rest)
 
 #: Columns every trajectory has, in output order (units in the names).
 TRAJECTORY_COLUMNS = ("time_s", "station_m", "x_m", "y_m", "heading_rad", "speed_mps",
@@ -481,5 +481,5 @@ __all__ = ["RAMP_TIME_EXCESS", "SamplingMode", "StationProfile", "TRAJECTORY_COL
            "Trajectory", "as_station_profile", "check_stations_and_speeds",
            "count_station_samples", "count_time_samples", "detect_rest_steps",
            "make_station_profile", "node_arrival_s", "planned_time_mismatch",
-           "rest_time_coef_from_times",
-           "sample_by_station", "sample_in_time", "steps_next_to_rest", "stop_dwells"]
+           "sample_by_station", "sample_in_time", "step_time_coef_from_times",
+           "steps_next_to_rest", "stop_dwells"]

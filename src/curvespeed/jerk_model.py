@@ -277,8 +277,8 @@ def launch_time_factors(problem: SpeedProblem, steps: np.ndarray, leaving: np.nd
         if j.size == 0:
             continue
         reach = (j + 1) * ds                                      # far node's distance from rest
-        a_ramp = jerk * np.cbrt(6.0 * reach / jerk)
-        lo, hi = problem.accel_bounds(rest_step.ramp_speed(reach, jerk) ** 2, nodes=far % nv)
+        _, v_ramp, a_ramp = rest_step.ramp_from_rest(reach, jerk)
+        lo, hi = problem.accel_bounds(v_ramp ** 2, nodes=far % nv)
         short = np.flatnonzero(a_ramp > (hi if out else -lo))
         n_ok = int(short[0]) if short.size else j.size
         at = at[:n_ok] % n_steps

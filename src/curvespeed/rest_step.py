@@ -148,21 +148,20 @@ def largest_true(holds, lo, hi, iterations: int = 60):
     return lo
 
 
-def ramp_speed(distance, jerk):
-    """Speed a constant-jerk ramp from rest reaches over ``distance``, m/s: ``s = J t^3 / 6``
-    and ``v = J t^2 / 2``, so ``v = (J / 2) (6 s / J)^(2/3)``."""
-    d = np.maximum(np.asarray(distance, dtype=float), 0.0)
-    return 0.5 * jerk * (6.0 * d / jerk) ** (2.0 / 3.0)
+def ramp_from_rest(distance, jerk):
+    """Time, speed and acceleration of a constant-jerk ramp from rest when it has covered
+    ``distance``: ``s = J t^3 / 6``, ``v = J t^2 / 2``, ``a = J t``."""
+    t = np.cbrt(6.0 * np.maximum(np.asarray(distance, dtype=float), 0.0) / jerk)
+    return t, 0.5 * jerk * t * t, jerk * t
 
 
 def ramp_step_time_factor(start_m, ds, jerk):
     """Time a constant-jerk ramp from rest takes from ``start_m`` to ``start_m + ds`` over the
     constant-acceleration step's ``2 ds / (v + v')`` between its speeds there: at least 1
-    (the ramp's speed is convex in time, so its mean speed is below the ends' mean). Exact:
-    ``t = (6 s / J)^(1/3)`` (:func:`ramp_speed`)."""
-    s0 = np.asarray(start_m, dtype=float)
-    t0, t1 = np.cbrt(6.0 * s0 / jerk), np.cbrt(6.0 * (s0 + ds) / jerk)
-    v0, v1 = 0.5 * jerk * t0 * t0, 0.5 * jerk * t1 * t1
+    (the ramp's speed is convex in time, so its mean speed is below the ends' mean). Exact
+    (:func:`ramp_from_rest`)."""
+    (t0, v0, _), (t1, v1, _) = ramp_from_rest(start_m, jerk), ramp_from_rest(
+        np.asarray(start_m, dtype=float) + ds, jerk)
     return (t1 - t0) * (v0 + v1) / (2.0 * ds)
 
 
@@ -192,15 +191,12 @@ def linear_state_at_time(ds, v0, v1, duration, tau):
 def linear_time_at_distance(ds, v0, v1, duration, d, iterations: int = 60):
     """Seconds into a step driven at constant jerk (:func:`linear_accel_step`) at which the
     distance ``d`` is reached: the distance grows with time over the step (the speed is not
-    negative), so bisection on ``[0, T]`` (to ``T / 2^60``, round-off)."""
+    negative), so bisection on ``[0, T]`` (:func:`largest_true`, to ``T / 2^60``)."""
     T = np.asarray(duration, dtype=float)
     target = np.clip(np.asarray(d, dtype=float), 0.0, ds)
-    lo, hi = np.zeros(np.broadcast(T, target).shape), np.broadcast_to(T, target.shape).copy()
-    for _ in range(iterations):
-        mid = 0.5 * (lo + hi)
-        short = linear_state_at_time(ds, v0, v1, T, mid)[0] < target
-        lo, hi = np.where(short, mid, lo), np.where(short, hi, mid)
-    return 0.5 * (lo + hi)
+    shape = np.broadcast(T, target).shape
+    return largest_true(lambda t: linear_state_at_time(ds, v0, v1, T, t)[0] < target,
+                        np.zeros(shape), np.broadcast_to(T, shape).copy(), iterations)
 
 
 def shape_from_time_coef(c):
@@ -255,6 +251,5 @@ def leaving_time_at_distance(u, v_moving, ds, d):
 __all__ = ["U_CONTINUING", "accel_factor", "continuing_shape", "flat_time_coef", "jerk_cap_b",
            "largest_true", "leaving_state_at_time", "leaving_time_at_distance",
            "linear_accel_step", "linear_state_at_time", "linear_time_at_distance",
-           "max_ramp_accel", "ramp_jerk", "ramp_speed",
-           "ramp_step_time_factor", "ramp_time", "shape_for_accel", "shape_from_time_coef",
-           "time_coef"]
+           "max_ramp_accel", "ramp_from_rest", "ramp_jerk", "ramp_step_time_factor", "ramp_time",
+           "shape_for_accel", "shape_from_time_coef", "time_coef"]

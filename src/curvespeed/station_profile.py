@@ -345,7 +345,7 @@ def steps_next_to_rest(speed_mps) -> np.ndarray:
 RAMP_TIME_EXCESS = 1e-3
 
 
-def rest_time_coef_from_times(station_m, speed_mps, time_s) -> np.ndarray:
+def step_time_coef_from_times(station_m, speed_mps, time_s) -> np.ndarray:
     """The ``c`` of each step's time ``c ds / (v[k] + v[k+1])`` from the profile's own times,
     clipped to [2, 3] (rounding of the written times)."""
     s, v = np.asarray(station_m, dtype=float), np.asarray(speed_mps, dtype=float)
@@ -366,7 +366,7 @@ def detect_rest_steps(station_m, speed_mps, time_s) -> np.ndarray:
     s = np.asarray(station_m, dtype=float)
     if time_s is None:
         return np.zeros(s.size - 1)
-    coef = rest_time_coef_from_times(s, speed_mps, time_s)
+    coef = step_time_coef_from_times(s, speed_mps, time_s)
     ramp = steps_next_to_rest(speed_mps) & (coef > 2.0 * (1.0 + RAMP_TIME_EXCESS))
     return np.where(ramp, coef, 0.0)
 

@@ -261,11 +261,11 @@ def _time_coefs(table: Table, kinds: np.ndarray) -> tuple[np.ndarray, np.ndarray
             f"{table.source}: {table.where[k]}: column 'step_kind' value '{kinds[k]}' needs the "
             "time_s column (how the step is driven follows from its time); add time_s, or "
             "remove the step_kind column")
-    from ..export import rest_time_coef_from_times
+    from ..export import step_time_coef_from_times
 
     s, v = table.columns["station_m"], table.columns["speed_mps"]
     with np.errstate(divide="ignore", invalid="ignore"):
-        from_times = rest_time_coef_from_times(s, v, times)
+        from_times = step_time_coef_from_times(s, v, times)
     linear = kinds == StepKind.LINEAR_ACCEL.value
     return (np.where(kinds == StepKind.JERK_RAMP.value, from_times, rest),
             np.where(linear, from_times, 0.0))
