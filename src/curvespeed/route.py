@@ -267,7 +267,7 @@ def warn_spikes(x: np.ndarray, y: np.ndarray, labels: np.ndarray, source: str,
         spike &= consider[1:-3] & consider[2:-2] & consider[3:-1]
     if spike.any():
         looked_at = offset if consider is None else offset[consider[2:-2]]
-        scatter = 1.4826 * float(median(looked_at)) if looked_at.size else 0.0
+        scatter = 1.4826 * median(looked_at) if looked_at.size else 0.0
         spike &= offset >= SPIKE_NOISE_SIGMAS * scatter
     found = np.flatnonzero(spike)
     if not found.size:

@@ -385,17 +385,15 @@ def _place_breaks(kappa, sd, gamma, bounds, lines, gap, smears, ends_sd):
         va, vb = ia + sa * b, ib + sb * b
         meet = b + (vb - va) / (sa - sb) if sa != sb else math.inf
         meet_sd = float(ends_sd[m - 1][0]) / abs(sa - sb) if sa != sb else math.inf
-        if math.isfinite(meet) and abs(meet - b) <= 2 * gap + gamma * meet_sd:    # a kink
+        kink = math.isfinite(meet) and abs(meet - b) <= 2 * gap + gamma * meet_sd
+        first = max(bounds[m - 1], breaks[-1] if breaks else -math.inf)
+        if kink and not first < meet < bounds[m + 1]:
             # it joins these two lines, so it lies on their segments, after the last break;
             # lines that cross farther off but agree at the boundary within their noise
             # (nearly the same line) join there
-            first = max(bounds[m - 1], breaks[-1] if breaks else -math.inf)
-            if not first < meet < bounds[m + 1]:
-                if abs(vb - va) > gamma * float(ends_sd[m - 1][0]) or not first < b:
-                    meet = math.nan
-                else:
-                    meet = float(b)
-        if math.isfinite(meet) and abs(meet - b) <= 2 * gap + gamma * meet_sd:
+            kink = first < b and abs(vb - va) <= gamma * float(ends_sd[m - 1][0])
+            meet = float(b)
+        if kink:                                                                    # a kink
             breaks.append(meet)
             step.append(False)
             reach.append(1.0)
