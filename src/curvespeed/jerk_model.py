@@ -292,7 +292,14 @@ def linear_time_coef(problem: SpeedProblem) -> np.ndarray:
     stop's ramp, :func:`launch_time_factors`): its time ``c ds / (v[k] + v[k+1])``; 0 on every
     other step (constant acceleration, or next to rest)."""
     tc = problem.time_coef
-    return np.where(np.isnan(problem.rest_u) & (tc != 2.0), tc, 0.0)
+    return np.where(is_linear_step(tc, problem.rest_u), tc, 0.0)
+
+
+def is_linear_step(time_coef, rest_u):
+    """Whether a step with this time coefficient and rest shape (``SpeedProblem.time_coef``,
+    ``rest_u``; arrays or one step's values) is planned as driven at constant jerk: not next to
+    rest, and timed other than ``2 ds / (v + v')``."""
+    return np.isnan(rest_u) & (time_coef != 2.0)
 
 
 def jerk_time_terms(n_nodes: int, closed: bool, rest_u: np.ndarray,

@@ -72,7 +72,7 @@ import numpy as np
 from . import rest_step
 from .errors import InfeasibleError, ReplanError, SolverError
 from .geometry import Geometry
-from .jerk_model import linear_time_coef
+from .jerk_model import is_linear_step
 from .limits import Limits, RouteConstraints, validate_limits
 from .problem import SpeedProblem
 from .solvers import SolveResult, SolveStatus
@@ -165,7 +165,7 @@ def _step(problem, speed, distance, j: int):
     v0, v1 = float(speed[j]), float(speed[j + 1])
     ds = float(distance[j + 1] - distance[j])
     u = float(problem.rest_u[j]) if j < problem.rest_u.size else math.nan
-    linear = j < problem.time_coef.size and bool(linear_time_coef(problem)[j] > 0.0)
+    linear = j < problem.time_coef.size and bool(is_linear_step(problem.time_coef[j], u))
     kind = ("linear" if linear else "constant" if math.isnan(u) or (v0 != 0.0 and v1 != 0.0)
             else "leaving" if v0 == 0.0 else "arriving")
     return kind, u, v0, v1, ds
