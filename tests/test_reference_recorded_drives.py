@@ -115,6 +115,24 @@ def test_curvature_bound_covers_the_road(receiver, rate_hz):
     assert np.all(exact <= 1.01 * geo.curvature_bound_1pm)
 
 
+def test_a_consumer_log_started_from_rest_keeps_the_bound_of_its_first_straight():
+    # The road begins with 250 m of straight; the log with a standstill, whose fixes a
+    # consumer receiver scatters by metres. The reconstructed design road's first element
+    # followed the finest scale's blur there (about 0.15 1/m +- 0.08), and how much every
+    # scale would round off that peak, widened over its spread, held the bound at 0.31 1/m
+    # (R 3 m) over the first 40 m: a plan from rest crawled there. Counted only beyond the
+    # reconstructed road's own noise (GAMMA standard deviations), the bound there is 0.013
+    # 1/m; 0.02 (R 50 m) leaves room for the bound's Monte Carlo error and says no bend of
+    # that size is read into the straight. The bound still covers the road everywhere.
+    geo = fitted(simulate_drive(ROAD, 10, CONSUMER, seed=3, stops=(STOP_M,)))
+    first = geo.station_m <= 40.0
+    assert geo.curvature_bound_1pm[first].max() < 0.02
+    st = true_stations(geo, ROAD)
+    exact = np.maximum(np.abs(ROAD.curvature(np.maximum(st - 0.1, 0.0))),
+                       np.abs(ROAD.curvature(np.minimum(st + 0.1, ROAD.length_m))))
+    assert np.all(exact <= 1.01 * geo.curvature_bound_1pm)
+
+
 @pytest.mark.parametrize("factor", [1 / 40, 1 / 3, 3, 40])
 def test_noise_stated_wrong_gives_the_same_path_and_says_so(factor):
     log = simulate_drive(ROAD, 10, RTK, seed=3, stops=(STOP_M,))

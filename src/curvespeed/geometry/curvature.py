@@ -161,7 +161,13 @@ def _scales_and_alignment(fit, u_points, values, weight, u_nodes, station, noise
                     station, rebuilt[0].kappa, np.interp(u_points, u_nodes, station))
         if road is not None:
             for scale, smoothed in family.smoothed(road, u_nodes, skip=(ALIGNMENT_LEVEL,)):
-                scale.lowered = lowered(rebuilt[0].kappa, smoothed, scale.kappa)
+                # a peak counts only by as much as the road shows it beyond the road's own
+                # noise: at a log's ends the reconstruction's first element may follow the
+                # finest scale's blur there (a consumer receiver's start from rest read as
+                # 0.15 1/m +- 0.08 over 10 m), and its rounding-off, widened over a scale's
+                # spread, held the bound at R 3-7 m over the first 36 m of a straight
+                scale.lowered = np.maximum(lowered(rebuilt[0].kappa, smoothed, scale.kappa)
+                                           - GAMMA * rebuilt[0].sd, 0.0)
                 # where the road smoothed alike misses what the scale reads from the points by
                 # more than both their noise, the road is not the one the points show, and how
                 # much the scale rounds off cannot be read from it

@@ -8,7 +8,8 @@ window of the smoothed curvature reaches the top. The smoother is linear in the 
 much it lowers a peak can be read from a road whose curvature is known: the design alignment
 reconstructed from the points (:mod:`.alignment`). That road is laid out, sampled at the
 points' stations, smoothed by the same scale, and its smoothed curvature compared with its own;
-where the smoothing lowered it, the scale's estimate is raised by as much.
+where the smoothing lowered it, the scale's estimate is raised by as much, less the reconstructed
+road's own noise (:mod:`.curvature`: a peak the road reads from noise is no peak of the road).
 
 Where the road has a short arc the alignment's two clothoid lines meet at a point above it. That
 does not matter much: a smoother lowers a corner of curvature by an amount set by the change of
