@@ -25,6 +25,46 @@ _CRAWL_B = 1e-6
 _WALKING_MPS = 1.0
 
 
+#: Where the curvature bound planning uses is at least this many times the estimate's
+#: |curvature|, a message naming a curve there says that the bound, not the road as read, sets it.
+BOUND_OVER_ESTIMATE = 1.5
+
+#: What sets a node's speed cap (``SpeedProblem.cap_source``), in words.
+_CAP_WORDS = {"stop": "a stop", "zone": "a speed zone", "max_speed": "the top speed",
+              "jerk_launch": "the last step into a stop, jerk-limited",
+              "window_end": "braking for what lies beyond the window"}
+
+
+def cap_words(problem: SpeedProblem, k: int, ceiling_b) -> str:
+    """What sets the ceiling ``ceiling_b`` (squared speed) at node ``k``, in words: its speed
+    cap (a stop, a zone, the top speed) where the ceiling is that cap, else the curve there
+    (:func:`curve_words`)."""
+    if float(ceiling_b) >= float(problem.cap_b[k]) * (1.0 - 1e-9):
+        source = str(problem.cap_source[k])
+        return _CAP_WORDS.get(source, source)
+    return curve_words(problem, k)
+
+
+def _radius(kappa: float) -> str:
+    return "a straight" if kappa < 1e-5 else f"R {1.0 / kappa:.0f} m"
+
+
+def curve_words(problem: SpeedProblem, k: int) -> str:
+    """``a curve, R .. m`` at node ``k`` (the radius planning uses); where that is the
+    curvature bound and the bound lies well above the estimate (:data:`BOUND_OVER_ESTIMATE`),
+    also what the estimate reads and why the two differ, so a refusal on a recorded drive's
+    start or end does not send the user looking for a bend that is not there."""
+    planned = float(problem.kappa_abs[k])
+    read = abs(float(problem.kappa_signed[k]))
+    words = f"a curve, {_radius(planned)}"
+    if planned >= BOUND_OVER_ESTIMATE * read and planned > 1e-5:
+        words += (f" by the curvature bound, where the estimate reads {_radius(read)}: the "
+                  "points do not pin the curvature down there, as at a log's start or end or "
+                  "where the points are sparse or scattered; more or better points there "
+                  "narrow the bound")
+    return words
+
+
 def undrivable_station(problem: SpeedProblem) -> str | None:
     """The first station where the vehicle can neither stand nor move forward, explained.
 

@@ -17,7 +17,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from .diagnose import braking_decel, grip_words, undrivable_station
+from .diagnose import braking_decel, cap_words, grip_words, undrivable_station
 from .errors import InfeasibleError
 from .geometry import Geometry
 from .jerk_model import jerk_time_terms, rest_nodes, with_rest_steps
@@ -280,11 +280,7 @@ class RouteTables:
         ceil = window.ceiling_b
         below = np.flatnonzero((ceil[1:] < b0) & (env[1:] >= ceil[1:] * (1 - 1e-9)))
         k = int(below[0]) + 1 if below.size else ceil.size - 1
-        what = {"stop": "a stop", "zone": "a speed zone", "max_speed": "the top speed",
-                "jerk_launch": "the last step into a stop, jerk-limited",
-                "window_end": "braking for what lies beyond the window"}
-        source = str(p.cap_source[k]) if ceil[k] >= p.cap_b[k] * (1 - 1e-9) else "curve"
-        cause = what.get(source, "a curve (lateral acceleration or grip)")
+        cause = cap_words(p, k, ceil[k])
         v0, vk = math.sqrt(b0), math.sqrt(max(ceil[k], 0.0))
         dist = k * window.ds
         decel, slippery = braking_decel(p, k)

@@ -22,7 +22,8 @@ import time
 
 import numpy as np
 
-from ..diagnose import braking_decel, grip_words, stop_out_of_reach, undrivable_station
+from ..diagnose import (braking_decel, cap_words, grip_words, stop_out_of_reach,
+                        undrivable_station)
 from ..errors import InfeasibleError
 from ..problem import SpeedProblem, check_start_end
 from . import SolveResult, SolveStatus
@@ -342,10 +343,7 @@ def _raise_cannot_slow(problem: SpeedProblem, b: np.ndarray, fwd: list) -> None:
     tight = np.flatnonzero(np.isclose(b[1:], np.asarray(fwd[1:]), rtol=1e-9, atol=1e-12)
                            & (b[1:] < problem.b_start))
     k = int(tight[0]) + 1 if tight.size else 1
-    source = problem.cap_source[k] if ceiling[k] >= problem.cap_b[k] * (1 - 1e-9) else "curve"
-    what = {"stop": "a stop", "zone": "a speed zone", "max_speed": "the top speed",
-            "jerk_launch": "the last step into a stop, jerk-limited",
-            "curve": "a curve"}.get(str(source), str(source))
+    what = cap_words(problem, k, ceiling[k])
     v0 = math.sqrt(problem.b_start)
     vk = math.sqrt(max(b[k], 0.0))
     decel, slippery = braking_decel(problem, k)

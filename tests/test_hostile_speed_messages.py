@@ -1,0 +1,67 @@
+"""Start and end speeds the route cannot take: the refusal names what sets the limit there, and
+where that is the curvature bound planning uses rather than the road as read, says so and why.
+
+A recorded drive's curvature is least certain at its ends (the smoothing has points on one side
+only, and a start from rest leaves a cluster of scattered fixes), so its bound may be far above
+the estimate there: a refusal that only said "a curve" sent the user looking for a bend on what
+is a straight. Routes here are invented straights and arcs given directly as curvature.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+import pytest
+
+from curvespeed.errors import InfeasibleError
+from curvespeed.limits import Limits, RouteConstraints
+from curvespeed.planner import plan_profile
+
+from helpers import geometry_from_curvature
+
+#: A 300 m straight whose estimate reads a gentle R 2000 m, with a bound of R 40 m over its
+#: first and last 10 m (as a log's blurred ends give) and R 1000 m elsewhere.
+N = 301
+
+
+def blurred_ends(first: int = 0):
+    """The straight; the R 40 m bound from node ``first`` to 10 and over the last 10 m."""
+    geo = geometry_from_curvature(np.full(N, 1.0 / 2000.0), ds=1.0)
+    bound = np.full(N, 1.0 / 1000.0)
+    bound[first:10] = bound[-10:] = 1.0 / 40.0
+    return dataclasses.replace(geo, curvature_bound_1pm=bound,
+                               curvature_sd_1pm=np.full(N, 1e-4))
+
+
+@pytest.mark.parametrize("which", ["start", "end"])
+def test_a_speed_the_bound_at_an_end_refuses_names_the_bound_and_the_estimate(which):
+    # 20 m/s into R 40 m needs 10 m/s^2 of lateral acceleration; the default cap allows far less
+    speeds = {f"{which}_speed_mps": 20.0}
+    with pytest.raises(InfeasibleError) as caught:
+        plan_profile(blurred_ends(), Limits(), RouteConstraints(**speeds))
+    message = str(caught.value)
+    for fragment in (f"{which} speed 20.00 m/s", "a curve, R 40 m by the curvature bound",
+                     "the estimate reads R 2000 m", "do not pin the curvature down"):
+        assert fragment in message, (fragment, message)
+
+
+def test_a_start_speed_that_cannot_brake_for_the_bound_names_it_too():
+    # the bound from 5 m on: the start itself allows 20 m/s, the braking before 5 m does not
+    with pytest.raises(InfeasibleError) as caught:
+        plan_profile(blurred_ends(first=5), Limits(), RouteConstraints(start_speed_mps=20.0))
+    message = str(caught.value)
+    for fragment in ("start speed 20.00 m/s is too high", "at station 5.0 m",
+                     "a curve, R 40 m by the curvature bound", "the estimate reads R 2000 m"):
+        assert fragment in message, (fragment, message)
+
+
+def test_a_curve_read_as_it_is_planned_is_named_by_its_radius_only():
+    # where the bound is the estimate (exact geometry) the refusal names the curve's radius
+    # and nothing about a bound
+    geo = geometry_from_curvature(np.concatenate((np.full(10, 1.0 / 40.0), np.zeros(N - 10))),
+                                  ds=1.0)
+    with pytest.raises(InfeasibleError) as caught:
+        plan_profile(geo, Limits(), RouteConstraints(start_speed_mps=20.0))
+    message = str(caught.value)
+    assert "a curve, R 40 m" in message and "bound" not in message, message
