@@ -253,7 +253,7 @@ def test_a_start_speed_above_a_wet_curves_limit_names_the_section():
     geo = geometry_from_curvature(np.full(201, 1.0 / 50.0))
     wet = FrictionSection(0.0, 100.0, 0.2, origin="--friction-section 0:100:0.2")
     with pytest.raises(InfeasibleError, match=r"start speed 15\.00 m/s exceeds .*\(9\.90 m/s, set "
-                       r"by max_speed or curvature on friction 0\.2 across the path of the "
+                       r"by a curve, R 50 m on friction 0\.2 across the path of the "
                        r"friction section 0\.\.100 m \(--friction-section 0:100:0\.2\)"):
         # sqrt(0.2 g 50) = 9.90 m/s on the arc (point mass on a circle)
         plan_profile(geo, Limits(max_lateral_accel_mps2=6.0, max_jerk_mps3=None),
