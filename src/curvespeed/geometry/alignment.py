@@ -73,6 +73,7 @@ class Reconstruction:
     near_step: np.ndarray      # stations within a step's location uncertainty
     lines: tuple = ()          # each element's line (intercept, slope), in station-index units
     reach_m: np.ndarray | None = None   # how far each break may be off, metres
+    misfit_level: np.ndarray | None = None  # the element's misfit level at each station (1/m)
 
 
 def reconstruct(station: np.ndarray, kappa: np.ndarray, deltas: np.ndarray, spread_m: float,
@@ -137,7 +138,8 @@ def reconstruct(station: np.ndarray, kappa: np.ndarray, deltas: np.ndarray, spre
             bound[sel] = sides[sel].max()
             near_step |= sel
     return Reconstruction(k, sd_pl, bound, station[0] + breaks * ds, np.array(step, bool),
-                          follows, near_step, tuple(lines), np.asarray(reach, float) * ds)
+                          follows, near_step, tuple(lines), np.asarray(reach, float) * ds,
+                          np.nan_to_num(level[seg], nan=0.0))
 
 
 def _line_sd(fits: _LineFits, lo: int, hi: int, level, at):

@@ -17,7 +17,9 @@ whose smoothed curvature stays within ``gamma`` standard deviations of the point
 by Monte Carlo) everywhere its transition and ringing reach cannot be told apart from the road
 by these points. The bound there is the largest |curvature| over all such candidates, at each
 station over the station steps either side (the planner holds a node's limit over the steps
-next to it), plus ``gamma`` standard deviations of the lines. When no candidate fits (the
+next to it), plus ``gamma`` standard deviations of the lines (and, added by :mod:`.curvature`,
+each line's misfit level: how far the fine estimate departs from it beyond its noise, for a
+line that is not quite the road's element). When no candidate fits (the
 "step" is something else: a hairpin, a bump the lines do not describe), nothing changes.
 """
 
