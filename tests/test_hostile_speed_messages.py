@@ -65,3 +65,29 @@ def test_a_curve_read_as_it_is_planned_is_named_by_its_radius_only():
         plan_profile(geo, Limits(), RouteConstraints(start_speed_mps=20.0))
     message = str(caught.value)
     assert "a curve, R 40 m" in message and "bound" not in message, message
+
+
+def test_a_start_speed_the_jerk_bound_cannot_brake_in_time_names_the_limit_and_a_speed_that_can():
+    # 20 m/s at the start, a 10 m/s zone from 70 m: braking at 2.5 m/s^2 alone needs 60 m, so
+    # only the jerk bound (2 m/s^3, braking from zero deceleration) makes it too short: 72.3 m
+    # (curvespeed.diagnose.braking_reach, checked against integration in
+    # tests/test_reference_dynamics.py). The message was "no speed profile satisfies the jerk
+    # bound ..."; it now names the zone, both distances and the fastest start speed that brakes
+    # in time, and a plan from just under that speed exists.
+    import re
+
+    from curvespeed.limits import SpeedZone
+
+    geo = geometry_from_curvature(np.zeros(N), ds=1.0)
+    limits = Limits(max_decel_mps2=2.5, max_jerk_mps3=2.0)
+    zone = (SpeedZone(70.0, 200.0, 10.0),)
+    with pytest.raises(InfeasibleError) as caught:
+        plan_profile(geo, limits, RouteConstraints(start_speed_mps=20.0, zones=zone))
+    message = str(caught.value)
+    for fragment in ("start speed 20.00 m/s is too high", "10.00 m/s at station 70.0 m",
+                     "(a speed zone)", "jerk up to 2 m/s^3", "at least 72.3 m",
+                     "only 70.0 m are available"):
+        assert fragment in message, (fragment, message)
+    fastest = float(re.search(r"Lower the start speed to ([\d.]+) m/s", message).group(1))
+    # the closed form's fastest start (19.73 m/s) holds in the discrete plan to 0.02 m/s
+    plan_profile(geo, limits, RouteConstraints(start_speed_mps=fastest - 0.02, zones=zone))

@@ -300,6 +300,25 @@ def test_jerk_limited_stopping_distance(v0, a, j):
     assert distance == pytest.approx(v0 ** 2 / (2 * a) + v0 * a / (2 * j), abs=ds)
 
 
+# Slowing from v0 at zero deceleration to v1 with deceleration up to a and jerk up to j (same
+# source, uniform-jerk kinematics): integrated with a 1e-5 s step (the ramp, then the cap) as the
+# independent reference for curvespeed.diagnose.braking_reach, which refusals quote; a change
+# that ends on the ramp (4 m/s at 2.5 m/s^2 and 0.5 m/s^3 needs 6.25 m/s of ramp) and ones that
+# reach the cap. Agreement to 1e-3 m (the integration's step).
+@pytest.mark.parametrize("v0, v1, a, j", [(20.0, 10.0, 2.5, 2.0), (25.0, 5.0, 3.0, 1.0),
+                                          (20.0, 16.0, 2.5, 0.5), (15.0, 0.0, 1.5, 4.0)])
+def test_braking_reach_matches_integrated_uniform_jerk_braking(v0, v1, a, j):
+    from curvespeed.diagnose import braking_reach
+
+    dt, v, decel, s = 1e-5, v0, 0.0, 0.0
+    while v > v1:
+        decel = min(decel + j * dt, a)
+        v_next = v - decel * dt
+        s += 0.5 * (v + max(v_next, v1)) * dt * (min(1.0, (v - v1) / (v - v_next)))
+        v = v_next
+    assert float(braking_reach(v0, v1, a, j)) == pytest.approx(s, abs=1e-3)
+
+
 # -- lateral jerk: spirals ---------------------------------------------------------------------
 # Shortt's relation for transition spirals (1909), in AASHTO, A Policy on Geometric Design of
 # Highways and Streets (2011), section 3.3.8, as L = V^3 / (R C), metric 0.0214 V^3 / (R C) with V

@@ -14,6 +14,7 @@ import math
 
 import numpy as np
 
+from . import rest_step
 from .limits import stop_node
 from .problem import SpeedProblem
 
@@ -160,6 +161,65 @@ def _fastest_start_that_stops(distance: float, decel: float, jerk: float | None)
     half = decel * decel / (2.0 * jerk)
     v0 = -half + math.sqrt(half * half + 2.0 * decel * distance)
     return v0 if v0 * jerk >= decel * decel else (distance * distance * jerk) ** (1.0 / 3.0)
+
+
+def braking_reach(v0: float, v1, decel, jerk: float) -> np.ndarray:
+    """Shortest distance to slow from ``v0`` (at zero deceleration) to ``v1`` (arrays allowed)
+    with deceleration up to ``decel`` and jerk up to ``jerk``, m: the deceleration ramps up at
+    ``jerk`` and holds at ``decel`` once it gets there (uniform-jerk kinematics, as in the
+    double-S of Biagiotti & Melchiorri 2008, section 3.4). The ramp alone takes the speed down
+    by ``decel^2 / (2 jerk)``; a smaller change ends within it, after ``sqrt(2 dv / jerk)``."""
+    v1, decel = np.asarray(v1, dtype=float), np.asarray(decel, dtype=float)
+    dv = np.maximum(v0 - v1, 0.0)
+    ramp_dv = decel * decel / (2.0 * jerk)
+    t = np.sqrt(2.0 * np.minimum(dv, ramp_dv) / jerk)          # time on the ramp
+    on_ramp = v0 * t - jerk * t ** 3 / 6.0
+    t2 = np.maximum(dv - ramp_dv, 0.0) / decel                   # then at the cap
+    return on_ramp + (v0 - np.minimum(dv, ramp_dv)) * t2 - 0.5 * decel * t2 * t2
+
+
+def ceiling_out_of_reach(problem: SpeedProblem) -> str | None:
+    """The first station ahead whose speed ceiling (a curve, a zone, the top speed) the vehicle
+    cannot brake down to from the start speed in time with the jerk bound, explained; None
+    when the route starts at rest, has no jerk bound, starts with a given acceleration (a
+    replanned vehicle), or every ceiling can be reached.
+
+    Braking starts at zero acceleration (:func:`braking_reach`), at the mean deceleration
+    friction and the cap allow on the level up to that station (:func:`braking_decel`); on a
+    curve friction also carries the lateral load, so this is the least it takes.
+    """
+    lim = problem.limits
+    if (problem.closed or not problem.b_start or lim.max_jerk_mps3 is None
+            or problem.accel_start_mps2 != 0.0):
+        return None
+    jerk, v0 = lim.max_jerk_mps3, math.sqrt(problem.b_start)
+    ceiling = problem.lateral_ceiling_b()
+    ahead = np.flatnonzero(ceiling[1:] < problem.b_start) + 1
+    if ahead.size == 0:
+        return None
+    mu = problem.mu_long
+    step = np.minimum(lim.max_decel_mps2, np.minimum(mu[:-1], mu[1:]) * lim.gravity_mps2)
+    mean_decel = np.cumsum(step)[ahead - 1] / ahead          # braking_decel's mean, vectorised
+    v_k = np.sqrt(np.maximum(ceiling[ahead], 0.0))
+    need = braking_reach(v0, v_k, mean_decel, jerk)
+    available = problem.station_m[ahead] - problem.station_m[0]
+    short = np.flatnonzero(need > available * (1.0 + 1e-9))
+    if short.size == 0:
+        return None
+    i = int(short[0])
+    k = int(ahead[i])
+    decel, slippery = braking_decel(problem, k)
+    how = (f"braking where {grip_words(problem, slippery, decel)}" if slippery is not None
+           else f"braking at up to {decel:g} m/s^2")
+    fastest = rest_step.largest_true(
+        lambda v: braking_reach(float(v), v_k[i], decel, jerk) <= available[i],
+        np.float64(v_k[i]), np.float64(v0))
+    return (f"{problem.source}: start speed {v0:.2f} m/s is too high: the vehicle must be down "
+            f"to {v_k[i]:.2f} m/s at station {problem.station_m[k]:.1f} m "
+            f"({cap_words(problem, k, ceiling[k])}), and {how} with jerk up to {jerk:g} m/s^3 "
+            f"from zero deceleration takes at least {need[i]:.1f} m, only {available[i]:.1f} m "
+            f"are available. Lower the start speed to {float(fastest):.2f} m/s or less, or "
+            "raise max_jerk_mps3 or max_decel_mps2")
 
 
 def stop_out_of_reach(problem: SpeedProblem, jerk: bool) -> str | None:

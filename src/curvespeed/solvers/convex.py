@@ -52,7 +52,7 @@ from functools import cached_property
 
 import numpy as np
 
-from ..diagnose import stop_out_of_reach
+from ..diagnose import ceiling_out_of_reach, stop_out_of_reach
 from ..errors import CurvespeedWarning, InfeasibleError, SolverError
 from ..order_stats import distinct
 from ..problem import SpeedProblem
@@ -453,6 +453,9 @@ def _explain_infeasible(problem: SpeedProblem) -> str:
     at_stop = stop_out_of_reach(problem, jerk=True)
     if at_stop is not None:
         return at_stop
+    too_fast = ceiling_out_of_reach(problem)
+    if too_fast is not None:
+        return too_fast
     if lim.max_lateral_jerk_mps3 is not None:
         return (f"{problem.source}: no speed profile satisfies the jerk bounds together with the "
                 "other limits and constraints (stops, zones, start and end speed); a fixed "
