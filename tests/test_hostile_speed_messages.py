@@ -91,3 +91,20 @@ def test_a_start_speed_the_jerk_bound_cannot_brake_in_time_names_the_limit_and_a
     fastest = float(re.search(r"Lower the start speed to ([\d.]+) m/s", message).group(1))
     # the closed form's fastest start (19.73 m/s) holds in the discrete plan to 0.02 m/s
     plan_profile(geo, limits, RouteConstraints(start_speed_mps=fastest - 0.02, zones=zone))
+
+
+def test_an_end_speed_out_of_reach_names_where_the_last_acceleration_starts():
+    # The bound reads R 40 m over 10 m that end 40 m before the route's end: the vehicle rides
+    # that ceiling there and accelerates from it over the last 40 m, which cannot make 20 m/s.
+    # The message said only "the fastest arrival at station 300.0 m is ..."; it now names the
+    # station the acceleration starts from, what holds the vehicle there, and the distance.
+    geo = geometry_from_curvature(np.full(N, 1.0 / 2000.0), ds=1.0)
+    bound = np.full(N, 1.0 / 1000.0)
+    bound[251:261] = 1.0 / 40.0
+    geo = dataclasses.replace(geo, curvature_bound_1pm=bound, curvature_sd_1pm=np.full(N, 1e-4))
+    with pytest.raises(InfeasibleError) as caught:
+        plan_profile(geo, Limits(), RouteConstraints(end_speed_mps=20.0))
+    message = str(caught.value)
+    for fragment in ("end speed 20.00 m/s cannot be reached", "at station 260.0 m",
+                     "a curve, R 40 m by the curvature bound", "40.0 m later"):
+        assert fragment in message, (fragment, message)

@@ -250,10 +250,7 @@ def solve_envelope(problem: SpeedProblem) -> SolveResult:
         order = np.arange(n)
         fwd = _forward_pass(nd, ceiling_arr, problem.b_start, order)
         if fwd[-1] < problem.b_end * (1 - 1e-9) - 1e-12:
-            raise InfeasibleError(
-                f"{problem.source}: end speed {math.sqrt(problem.b_end):.2f} m/s cannot be reached: the fastest "
-                f"arrival at station {problem.station_m[-1]:.1f} m is {math.sqrt(fwd[-1]):.2f} m/s; "
-                "lower the end speed")
+            raise InfeasibleError(_end_out_of_reach(problem, np.asarray(fwd), ceiling_arr))
         b = _backward_pass(nd, fwd, min(problem.b_end, fwd[-1]), order)
         if b[0] < problem.b_start * (1 - 1e-9) - 1e-12:
             _raise_cannot_slow(problem, np.asarray(b), fwd)
@@ -331,6 +328,24 @@ def _solve_periodic(problem: SpeedProblem, nd: _Nodes, ceiling_arr: np.ndarray,
     out[np.asarray(order[:-1])] = bwd[:-1]
     out[m] = out[0]
     return out, laps
+
+
+def _end_out_of_reach(problem: SpeedProblem, fwd: np.ndarray, ceiling: np.ndarray) -> str:
+    """Explain an end speed the forward pass cannot reach: from where it accelerates as hard as
+    the limits allow (the last station where it rides a ceiling, and what sets that ceiling, or
+    the start) over the rest of the route."""
+    touch = np.flatnonzero(fwd[1:-1] >= ceiling[1:-1] * (1 - 1e-9)) + 1
+    if touch.size:
+        k = int(touch[-1])
+        origin = (f"from {math.sqrt(max(fwd[k], 0.0)):.2f} m/s at station "
+                  f"{problem.station_m[k]:.1f} m ({cap_words(problem, k, ceiling[k])})")
+    else:
+        k = 0
+        origin = f"from the start speed {math.sqrt(max(fwd[0], 0.0)):.2f} m/s"
+    return (f"{problem.source}: end speed {math.sqrt(problem.b_end):.2f} m/s cannot be reached: "
+            f"accelerating as hard as the limits allow {origin}, the vehicle arrives at station "
+            f"{problem.station_m[-1]:.1f} m at {math.sqrt(fwd[-1]):.2f} m/s, "
+            f"{problem.station_m[-1] - problem.station_m[k]:.1f} m later; lower the end speed")
 
 
 def _raise_cannot_slow(problem: SpeedProblem, b: np.ndarray, fwd: list) -> None:
