@@ -102,6 +102,29 @@ def test_a_corner_driven_slower_into_a_stop_names_the_stop(tmp_path):
     assert match, rows[0]
     # the stop sits on the nearest station: within one station step (about 1 m here)
     assert float(match.group(1)) == pytest.approx(stop, abs=1.0)
-    speed = float(rows[0].split()[4])
+    # station range, radius (estimate, and its plausible range where the fit gives one), speed
+    cells = rows[0].split()[4:]
+    speed = float(cells[1] if cells[0].startswith("(") else cells[0])
     assert speed < math.sqrt(2.5 * 60.0) * 0.9, rows[0]
     assert "lateral" not in rows[0].split("  ")[-1]
+
+
+def test_a_curve_row_gives_the_radius_range_and_the_speed_of_its_low_end(tmp_path):
+    # The bend's points written to the millimetre: the fit gives a curvature bound, and the
+    # summary's radius reads 'estimate (low-high)'. The plan holds the low end (the bound), so
+    # a curve the lateral cap limits is driven at sqrt(2.5 m/s^2 * low) (point mass on a
+    # circle; the printed radius and speed are rounded to 0.05 m and 0.005 m/s). Before, the
+    # row gave the estimate alone, which on a consumer log read R 238 m for a curve driven at
+    # 10.7 m/s: the bound's R 46 m, which the summary did not show.
+    result = run("plan", bend(tmp_path), "-o", tmp_path / "p.csv")
+    assert result.exit_code == 0, result.output
+    (row,) = curve_rows(result.output)
+    match = re.search(r"([\d.]+) \(([\d.]+)-([\d.]+|unbounded)\)\s+([\d.]+)", row)
+    assert match, row
+    estimate, low = float(match.group(1)), float(match.group(2))
+    high = math.inf if match.group(3) == "unbounded" else float(match.group(3))
+    assert low <= estimate <= high and estimate == pytest.approx(60.0, rel=0.02), row
+    assert "lateral comfort" in row
+    speed = float(match.group(4))
+    assert speed == pytest.approx(math.sqrt(2.5 * low), abs=0.005 + math.sqrt(2.5 / low) * 0.05)
+    assert "planned at the low end" in result.output

@@ -25,47 +25,13 @@ superelevation of the curve's tightest point) they are ordered the same way.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, replace
 
 import numpy as np
 
 from ..design import AdvisorySpeed, DesignCriterion, ball_bank_advisory
 from ..geometry import Geometry
-from ..geometry.curvature import GAMMA
-
-
-@dataclass(frozen=True)
-class CurvatureEnds:
-    """``|curvature|`` at every station at the low end, estimate and high end, 1/m.
-
-    Attributes
-    ----------
-    low : ndarray
-        ``max(|kappa| - GAMMA * sd, 0)``: the smallest ``|curvature|`` the noise allows.
-    estimate : ndarray
-        ``|kappa|``.
-    high : ndarray
-        The bound (never below ``|kappa|``): the largest ``|curvature|`` the true road can have.
-    """
-
-    low: np.ndarray
-    estimate: np.ndarray
-    high: np.ndarray
-
-    @property
-    def exact(self) -> bool:
-        """True when the interval has zero width everywhere (exact design geometry)."""
-        return bool(np.array_equal(self.low, self.high))
-
-
-def curvature_ends(geometry: Geometry) -> CurvatureEnds:
-    """The :class:`CurvatureEnds` of ``geometry`` (zero width where it has no bound or sd)."""
-    estimate = np.abs(geometry.curvature_1pm)
-    high = np.maximum(geometry.planning_curvature_1pm, estimate)
-    sd = geometry.curvature_sd_1pm
-    low = estimate if sd is None else np.maximum(estimate - GAMMA * sd, 0.0)
-    return CurvatureEnds(low=low, estimate=estimate, high=high)
+from .radii import CurvatureEnds, curvature_ends, smallest_radii  # noqa: F401 (re-exported)
 
 
 def estimate_geometry(geometry: Geometry) -> Geometry:
@@ -112,9 +78,5 @@ class RadiusInterval:
 
 def radius_interval(ends: CurvatureEnds, nodes: np.ndarray) -> RadiusInterval:
     """The :class:`RadiusInterval` of the curve on stations ``nodes``."""
-    def radius(kappa: np.ndarray) -> float:
-        top = float(np.max(kappa[nodes]))
-        return math.inf if top <= 0.0 else 1.0 / top
-
-    return RadiusInterval(low_m=radius(ends.high), estimate_m=radius(ends.estimate),
-                          high_m=radius(ends.low))
+    low, estimate, high = smallest_radii(ends, nodes)
+    return RadiusInterval(low_m=low, estimate_m=estimate, high_m=high)

@@ -362,3 +362,14 @@ def read_profile_with_sidecar(profile_file, meta_file=None, without: str | None 
     sidecar, path = profile_sidecar(profile_file, meta_file, without)
     name = sidecar.route_name if sidecar is not None else None
     return read_station_profile(profile_file, name=name), sidecar, path
+
+
+def radius_cell(estimate_m: float, low_m: float, high_m: float, compact: bool = False) -> str:
+    """A curve's smallest radius for a terminal table: ``estimate (low-high)`` (the plausible
+    range of :class:`curvespeed.check.uncertainty.RadiusInterval`; ``unbounded`` where the
+    noise allows a straight); with ``compact``, the estimate alone where the range has no
+    width (exact design geometry)."""
+    if compact and low_m == estimate_m == high_m:
+        return f"{estimate_m:.1f}"
+    high = "unbounded" if high_m == float("inf") else f"{high_m:.1f}"
+    return f"{estimate_m:.1f} ({low_m:.1f}-{high})"

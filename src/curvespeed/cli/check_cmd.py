@@ -11,7 +11,7 @@ import sys
 import click
 
 from ._common import (EXIT_OK, EXIT_VIOLATIONS, FINITE, echo, geometry_options, handle_errors,
-                      register_drives)
+                      radius_cell, register_drives)
 from ._limits import (friction_lines, limit_override_options, limits_and_geometry,
                       section_options, snapped_lines, zone_options, zone_positions)
 
@@ -217,9 +217,7 @@ def _curve_table(curves, design: bool) -> list[str]:
     from ..check import CurveVerdict
 
     def radius(c) -> str:
-        high = "unbounded" if c.min_radius_high_m == float("inf") else \
-            f"{c.min_radius_high_m:.1f}"
-        return f"{c.min_radius_m:.1f} ({c.min_radius_low_m:.1f}-{high})"
+        return radius_cell(c.min_radius_m, c.min_radius_low_m, c.min_radius_high_m)
 
     def advisory(c, unit: str) -> str:
         ends = [getattr(a, unit) for a in (c.advisory, c.advisory_low, c.advisory_high)]

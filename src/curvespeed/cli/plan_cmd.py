@@ -5,7 +5,8 @@ from __future__ import annotations
 import click
 
 from ..solvers import QPBackend, SolverKind
-from ._common import FINITE, echo, geometry_options, handle_errors, register_drives
+from ._common import (FINITE, echo, geometry_options, handle_errors, radius_cell,
+                      register_drives)
 from ._limits import constraint_options, limit_override_options, limits_and_geometry
 
 
@@ -205,8 +206,6 @@ def _write_report(outputs, report_file, route_file, limits_file, geo, profile, c
 
 def summarise(route_file, profile, limits, origin: str, max_curves: int = 8) -> str:
     """Short human summary: length, time, speeds, and the curves that limit the profile."""
-    import numpy as np
-
     from ..units import mps_to_kmh
 
     geo = profile.geometry
@@ -235,23 +234,38 @@ def summarise(route_file, profile, limits, origin: str, max_curves: int = 8) -> 
     caution = noise_caution(geo)
     if caution:
         lines.append(caution)
-    from ..check import find_curves
+    return "\n".join(lines + _curve_table(profile, max_curves))
 
+
+def _curve_table(profile, max_curves: int) -> list[str]:
+    """The slowest ``max_curves`` curves where a lateral limit binds, in station order: range,
+    smallest radius (``estimate (low-high)`` where the fit leaves a range; the plan holds the
+    low end), speed and what sets it."""
+    import numpy as np
+
+    from ..check import find_curves
+    from ..check.radii import curvature_ends
+    from ..units import mps_to_kmh
+
+    geo = profile.geometry
     lateral = np.isin(profile.binding, ["lateral_comfort", "lateral_grip", "lateral_jerk"])
-    stretches = [_curve_row(profile, nodes, lateral[nodes]) for nodes in find_curves(geo)
+    ends = curvature_ends(geo)
+    stretches = [_curve_row(profile, nodes, lateral[nodes], ends) for nodes in find_curves(geo)
                  if lateral[nodes].any()]
-    if stretches:
-        slowest = sorted(sorted(stretches)[:max_curves], key=lambda r: r[1])
-        lines.append(f"curves where a lateral limit binds ({len(stretches)}; "
-                     f"the {len(slowest)} slowest):")
-        lines.append("   station range (m)     min radius (m)  speed (m/s)  speed (km/h)  "
-                     "limited by")
-        for vk, a, b, radius, what in slowest:
-            lines.append(f"   {a:8.1f} - {b:8.1f}  {radius:14.1f}  {vk:11.2f}  "
-                         f"{mps_to_kmh(vk):12.1f}  {what}")
-    else:
-        lines.append("no curve limits the speed (top speed, zones and stops do)")
-    return "\n".join(lines)
+    if not stretches:
+        return ["no curve limits the speed (top speed, zones and stops do)"]
+    slowest = sorted(sorted(stretches, key=lambda r: r[:3])[:max_curves], key=lambda r: r[1])
+    ranges = "" if ends.exact else "; radius: estimate (plausible range), planned at the low end"
+    cells = [radius_cell(r[3][1], r[3][0], r[3][2], compact=True) for r in slowest]
+    width = max(14, *(len(c) for c in cells))
+    lines = [f"curves where a lateral limit binds ({len(stretches)}; the {len(slowest)} "
+             f"slowest{ranges}):",
+             f"   station range (m)  {'min radius (m)':>{width}}  speed (m/s)  speed (km/h)  "
+             "limited by"]
+    for (vk, a, b, _, what), cell in zip(slowest, cells):
+        lines.append(f"   {a:8.1f} - {b:8.1f}  {cell:>{width}}  {vk:11.2f}  "
+                     f"{mps_to_kmh(vk):12.1f}  {what}")
+    return lines
 
 
 #: Position noise (per coordinate, metres) from which a route is treated as logged by a
@@ -286,15 +300,19 @@ def _lateral_peaks(profile, limits) -> str:
             f"{limits.max_lateral_accel_mps2:g} bounds the felt value)")
 
 
-def _curve_row(profile, nodes, lateral) -> tuple:
+def _curve_row(profile, nodes, lateral, ends) -> tuple:
     """``(speed, first station, last station, radius, limited by)`` of one curve: its slowest
-    speed, its smallest radius and what sets the speed. Where the curve is driven slower than
-    its lateral limit allows (braking into a stop, starting from one, a zone), that cause is
-    named, not the lateral limit."""
+    speed, its smallest radius (``(low end, estimate, high end)`` from the curvature ``ends``,
+    :func:`curvespeed.check.radii.smallest_radii`: the plan holds the low end) and what sets
+    the speed. Where the
+    curve is driven slower than its lateral limit allows (braking into a stop, starting from
+    one, a zone), that cause is named, not the lateral limit."""
     import numpy as np
 
+    from ..check.radii import smallest_radii
+
     v, s, binding = profile.speed_mps, profile.geometry.station_m, profile.binding
-    radius = 1 / abs(profile.geometry.curvature_1pm[nodes]).max()
+    radius = smallest_radii(ends, nodes)
     bound = nodes[lateral]
     k = int(bound[np.argmin(v[bound])])
     slowest = int(nodes[np.argmin(v[nodes])])
