@@ -15,6 +15,7 @@ import math
 import numpy as np
 
 from . import rest_step
+from .errors import InfeasibleError
 from .limits import stop_node
 from .problem import SpeedProblem
 
@@ -317,3 +318,18 @@ def underpowered(problem: SpeedProblem) -> str | None:
             f"slower than walking: the power is too small to plan with. If the power is "
             f"{lim.max_power_w:g} kW, give {lim.max_power_w * 1000.0:g} W; otherwise check "
             "the mass and the grades")
+
+
+def check_start_end(problem: SpeedProblem, ceiling_b: np.ndarray) -> None:
+    """Raise :class:`InfeasibleError` if a fixed start or end speed exceeds its node's ceiling."""
+    for which, b_fixed, k in (("start", problem.b_start, 0), ("end", problem.b_end, -1)):
+        if b_fixed is not None and b_fixed > ceiling_b[k] * (1 + 1e-9) + 1e-12:
+            k = k % problem.n_nodes
+            i = int(problem.friction_index[k])
+            grip = ("" if i < 0 else f" on friction {problem.mu_lat[k]:g} across the path of the "
+                    f"{problem.friction_sections[i].label()}")
+            raise InfeasibleError(
+                f"{problem.source}: {which} speed {math.sqrt(b_fixed):.2f} m/s exceeds what the "
+                f"route allows at station {problem.station_m[k]:.1f} m "
+                f"({math.sqrt(ceiling_b[k]):.2f} m/s, set by "
+                f"{cap_words(problem, k, ceiling_b[k])}{grip}); lower the {which} speed")

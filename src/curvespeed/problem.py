@@ -103,11 +103,11 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from . import lateral_rates, rest_step
-from .errors import InfeasibleError, LimitsError
-from .friction import node_friction, touching_nodes
+from .friction import node_friction
 from .geometry import Geometry
 from .jerk_model import JerkTimeTerms, jerk_time_terms, rest_nodes, with_rest_steps
-from .limits import Limits, RouteConstraints, stop_node, validate_constraints, validate_limits
+from .limits import Limits, RouteConstraints, validate_constraints, validate_limits
+from .problem_inputs import bank_and_grade, end_speeds_b, rate_spread, speed_caps
 
 #: Cap on squared speed used where no other cap applies (never reached: max speed is finite).
 _UNBOUNDED = 1e12
@@ -402,18 +402,6 @@ class SpeedProblem:
         return np.where(ok, hi_b, lo_b)
 
 
-def _rate_spread(geometry: Geometry, limits: Limits):
-    """:attr:`SpeedProblem.rate_spread` for ``geometry``: the chord rates within the estimate's
-    spread of each step, when the lateral jerk is bounded and the curvature is an estimate."""
-    spread, margin = geometry.curvature_spread_m, geometry.curvature_rate_margin_1pm2
-    if limits.max_lateral_jerk_mps3 is None or spread is None:
-        return None
-    if not (np.any(spread > 0.0) or (margin is not None and np.any(margin > 0.0))):
-        return None
-    return lateral_rates.spread_rate_range(geometry.curvature_1pm, float(geometry.spacing_m),
-                                           geometry.closed, spread, margin)
-
-
 #: The per-node arrays :meth:`SpeedProblem.accel_bounds` reads (in the order the compiled
 #: bisection takes them).
 _BOUNDS_FIELDS = ("kappa_abs", "cos_bank", "sin_bank", "cos_grade", "sin_grade", "mu_long",
@@ -445,11 +433,11 @@ def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstrai
     # the fit's smoothing spreads a change of curvature or noise blurs it (curvespeed.geometry);
     # lateral jerk follows the estimate itself (kappa_signed).
     kappa_abs = np.asarray(geometry.planning_curvature_1pm, dtype=float)
-    cap, source, stop_nodes = _speed_caps(geometry, limits, constraints)
+    cap, source, stop_nodes = speed_caps(geometry, limits, constraints)
     mu_long, mu_lat, friction_index = node_friction(limits, constraints.friction,
                                                     float(geometry.spacing_m), n, geometry.closed)
-    theta, gamma = _bank_and_grade(geometry, mu_lat, friction_index, constraints)
-    b_start, b_end = _end_speeds_b(geometry, constraints)
+    theta, gamma = bank_and_grade(geometry, mu_lat, friction_index, constraints)
+    b_start, b_end = end_speeds_b(geometry, constraints)
     if jerk_model is None:
         jerk_model = limits.max_jerk_mps3 is not None
     steps = n - 1
@@ -466,86 +454,7 @@ def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstrai
         rest_u=np.full(steps, np.nan),
         jerk_terms=jerk_time_terms(n, geometry.closed, np.full(steps, np.nan), np.ones(steps)),
         mu_long=mu_long, mu_lat=mu_lat, friction_index=friction_index,
-        friction_sections=tuple(constraints.friction), rate_spread=_rate_spread(geometry, limits))
+        friction_sections=tuple(constraints.friction), rate_spread=rate_spread(geometry, limits))
     if jerk_model:
         problem = with_rest_steps(problem, rest_nodes(problem))
     return problem
-
-
-def _speed_caps(geometry: Geometry, limits: Limits, constraints: RouteConstraints):
-    """Cap on ``b`` at each node from top speed, zones and stops; what sets it; stop nodes."""
-    n = geometry.station_m.size
-    ds = float(geometry.spacing_m)
-    cap = np.full(n, float(limits.max_speed_mps) ** 2)
-    source = np.full(n, "max_speed", dtype=object)
-    for zone in constraints.zones:
-        # every node of a step that overlaps the zone, so linear-in-b steps stay under the cap
-        sl = touching_nodes(zone.start_m, zone.end_m, ds, n)
-        tighter = cap[sl] > zone.max_speed_mps ** 2
-        cap[sl] = np.where(tighter, zone.max_speed_mps ** 2, cap[sl])
-        source[sl] = np.where(tighter, "zone", source[sl])
-    stop_nodes = []
-    for stop in constraints.stops:
-        k = stop_node(stop.station_m, ds, n, geometry.closed)
-        stop_nodes.append(k)
-        cap[k] = 0.0
-        source[k] = "stop"
-    if geometry.closed:
-        cap[-1] = cap[0] = min(cap[0], cap[-1])
-    return cap, source, stop_nodes
-
-
-def _bank_and_grade(geometry: Geometry, mu_lat: np.ndarray, friction_index: np.ndarray,
-                    constraints: RouteConstraints):
-    """Bank angle (from superelevation) and grade angle at each node, radians; refuses a
-    cross-slope a vehicle at rest would slide down (``mu_lat``: each node's lateral friction)."""
-    s = geometry.station_m
-    e = np.zeros(s.size)
-    for sup in constraints.superelevation:
-        mask = (s >= sup.start_m - 1e-9) & (s <= sup.end_m + 1e-9)
-        e[mask] = sup.rate
-    theta = np.arctan(e)
-    gamma = np.arctan(geometry.grade) if geometry.grade is not None else np.zeros(s.size)
-    # A vehicle at rest on a cross-slope steeper than friction allows would slide.
-    too_steep = np.abs(e) > mu_lat * np.cos(gamma)
-    if too_steep.any():
-        k = int(np.flatnonzero(too_steep)[0])
-        sup = next((x for x in constraints.superelevation
-                    if x.start_m - 1e-9 <= s[k] <= x.end_m + 1e-9 and x.rate == e[k]), None)
-        named = f" ({sup.origin})" if sup is not None and sup.origin else ""
-        section = (constraints.friction[friction_index[k]] if friction_index[k] >= 0 else None)
-        where = (f"of the {section.label()}" if section is not None
-                 else "of the route")
-        raise LimitsError(f"superelevation {e[k]:g}{named} at station {s[k]:.1f} m exceeds the "
-                          f"lateral friction coefficient {mu_lat[k]:g} {where}: a vehicle "
-                          "would slide at rest; lower the cross-slope or check the friction")
-    return theta, gamma
-
-
-def _end_speeds_b(geometry: Geometry, constraints: RouteConstraints):
-    """Fixed squared speeds at the ends of an open route (at rest by default); None on a loop."""
-    if geometry.closed:
-        if constraints.start_speed_mps is not None or constraints.end_speed_mps is not None:
-            raise LimitsError("start and end speed do not apply to a closed route (the lap is "
-                              "periodic); plan it as open (--open) to fix them")
-        return None, None
-    v0 = 0.0 if constraints.start_speed_mps is None else constraints.start_speed_mps
-    v1 = 0.0 if constraints.end_speed_mps is None else constraints.end_speed_mps
-    return v0 * v0, v1 * v1
-
-
-def check_start_end(problem: SpeedProblem, ceiling_b: np.ndarray) -> None:
-    """Raise :class:`InfeasibleError` if a fixed start or end speed exceeds its node's ceiling."""
-    from .diagnose import cap_words      # (diagnose builds on this module)
-
-    for which, b_fixed, k in (("start", problem.b_start, 0), ("end", problem.b_end, -1)):
-        if b_fixed is not None and b_fixed > ceiling_b[k] * (1 + 1e-9) + 1e-12:
-            k = k % problem.n_nodes
-            i = int(problem.friction_index[k])
-            grip = ("" if i < 0 else f" on friction {problem.mu_lat[k]:g} across the path of the "
-                    f"{problem.friction_sections[i].label()}")
-            raise InfeasibleError(
-                f"{problem.source}: {which} speed {math.sqrt(b_fixed):.2f} m/s exceeds what the "
-                f"route allows at station {problem.station_m[k]:.1f} m "
-                f"({math.sqrt(ceiling_b[k]):.2f} m/s, set by "
-                f"{cap_words(problem, k, ceiling_b[k])}{grip}); lower the {which} speed")

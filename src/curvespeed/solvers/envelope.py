@@ -22,10 +22,10 @@ import time
 
 import numpy as np
 
-from ..diagnose import (braking_decel, cap_words, grip_words, stop_out_of_reach,
-                        undrivable_station)
+from ..diagnose import (braking_decel, cap_words, check_start_end, grip_words,
+                        stop_out_of_reach, undrivable_station)
 from ..errors import InfeasibleError
-from ..problem import SpeedProblem, check_start_end
+from ..problem import SpeedProblem
 from . import SolveResult, SolveStatus
 
 try:
