@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import csv
 import math
+import re
 from pathlib import Path
 
 import numpy as np
@@ -44,6 +45,21 @@ def test_bundled_routes_summarise_and_write_geometry(name, tmp_path):
         assert header[5:7] == ["z_m", "grade"]
     if name != "mountain_road.csv":
         assert header[-2:] == ["lat", "lon"]
+
+
+def test_the_summary_gives_the_tightest_radius_of_the_bound_where_it_is_tighter(tmp_path):
+    # The bundled mountain road is invented design data at 5 m points, fitted: its hairpin
+    # reads R 14.9 m and the bound, which plans and checks hold, R 14.2 m there (the short arc
+    # between clothoids that smoothing rounds off, tests/test_certificate_smooth_arcs.py). A
+    # circle's points to 0.1 mm leave the bound within 2 % of the estimate: no line.
+    result = run(ROUTES / "mountain_road.csv")
+    assert result.exit_code == 0, result.output
+    estimate = float(re.search(r"min radius\s+([\d.]+) m", result.output).group(1))
+    match = re.search(r"bound radius\s+([\d.]+) m at station ([\d.]+) m", result.output)
+    assert match, result.output
+    assert 0.9 * estimate < float(match.group(1)) < estimate
+    plain = run(circle_csv(tmp_path / "c.csv"))
+    assert plain.exit_code == 0 and "bound radius" not in plain.output, plain.output
 
 
 def test_closed_loop_is_reported_as_closed_with_full_turn(tmp_path):

@@ -40,6 +40,20 @@ def route(route_file, spacing_m, position_noise_m, elevation_noise_m, use_elevat
         echo(f"wrote          {output}")
 
 
+def _bound_line(geo, min_radius_m: float) -> list[str]:
+    """The tightest radius of the curvature bound, where it is tighter than the estimate's
+    smallest radius by more than 2 %: what plans and checks hold, and where."""
+    bound = geo.curvature_bound_1pm
+    if bound is None or not bound.size or float(bound.max()) <= 0.0:
+        return []
+    k = int(bound.argmax())
+    radius = 1.0 / float(bound[k])
+    if radius >= 0.98 * min_radius_m:
+        return []
+    return [f"bound radius   {radius:.1f} m at station {geo.station_m[k]:.1f} m (the tightest "
+            "the points do not rule out; plans and checks hold it)"]
+
+
 def _summary(route_file, rt, geo) -> str:
     """Length, stations, tightest radius, turning and elevation of the resampled route."""
     from ..geometry import summarise_geometry
@@ -59,6 +73,7 @@ def _summary(route_file, rt, geo) -> str:
         f"({'closed loop' if summary['closed'] else 'open'})",
         f"stations       {summary['n_nodes']} at {summary['spacing_m']:.4g} m spacing",
         f"min radius     {radius}",
+        *_bound_line(geo, summary["min_radius_m"]),
         f"total turning  {summary['total_turning_deg']:.1f} degrees",
     ]
     lines.extend(describe_fit(geo.provenance) if "points_read" in geo.provenance else [])
