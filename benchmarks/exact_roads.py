@@ -292,6 +292,9 @@ TIME_BAND = (-0.001, 0.01)
 #: by no more than the agreement the solver backends are held to on route time, 1e-6: the QP's
 #: own accuracy, not a faster profile).
 DOUBLE_S_BAND = (-1e-6, 0.001)
+#: The limits the curvature bound answers for (the log table gives their worst use apart: a
+#: log's route also differs from the road in length, which moves the longitudinal ones).
+LATERAL_LIMITS = ("lateral", "comfort_ellipse", "friction_ellipse", "lateral_jerk")
 #: Limits shown in the tables, in order, with their headers.
 COLUMNS = (("lateral", "lateral"), ("comfort_ellipse", "comfort ell."),
            ("friction_ellipse", "friction ell."), ("top_speed", "top speed"), ("jerk", "jerk"),
@@ -329,21 +332,23 @@ def log_table(results: list[dict]) -> str:
     """Markdown table of the plans made from simulated logs, judged on the exact road. The
     logged route's length differs from the road's by the fixes' errors at its two ends, so its
     time is compared with the optimum per metre of route (a fair reading to about that error)."""
-    head = ["road", "log", "route length vs road", "time per m vs opt.", "worst", "limits"]
+    head = ["road", "log", "route length vs road", "time per m vs opt.", "lateral limits",
+            "worst", "limits"]
     lines = ["| " + " | ".join(head) + " |", "|" + "---|" * len(head)]
     for r in results:
         road = r["case"].alignment.length_m
         for label, (j, length) in r["logged"].items():
             if j is None:               # the plan was refused; ``length`` holds the message
-                lines.append(f"| {r['case'].name} | {label} | - | - | plan refused: {length} "
-                             "| FAIL |")
+                lines.append(f"| {r['case'].name} | {label} | - | - | - | plan refused: "
+                             f"{length} | FAIL |")
                 continue
             per_m = (j.planned_time_s / length) / (r["optimum"].time_s / road) - 1.0
             worst, use = j.worst
             at = j.where_m[worst] - LOG_MARGIN_M          # on the road's own stations
+            lateral = max(j.use.get(name, 0.0) for name in LATERAL_LIMITS)
             lines.append(f"| {r['case'].name} | {label} | {length - road:+.2f} m | "
-                         f"{100 * per_m:+.2f} % | {worst} {use:.3f} at {at:.1f} m | "
-                         f"{_verdict(use <= MAX_USE)} |")
+                         f"{100 * per_m:+.2f} % | {lateral:.3f} | {worst} {use:.3f} at "
+                         f"{at:.1f} m | {_verdict(use <= MAX_USE)} |")
     return "\n".join(lines)
 
 

@@ -27,12 +27,8 @@ if str(ROOT) not in sys.path:
     sys.path.insert(0, str(ROOT))
 
 from benchmarks.exact_roads import (  # noqa: E402
-    LOG_MARGIN_M, MAX_USE, exact_roads, extended, plan_from_log)
+    LATERAL_LIMITS, LOG_MARGIN_M, MAX_USE, exact_roads, extended, plan_from_log)
 from benchmarks.judge import judge_profile  # noqa: E402
-
-#: The limits the curvature bound answers for.
-LATERAL = ("lateral", "comfort_ellipse", "friction_ellipse", "lateral_jerk")
-
 
 def sweep(rates, seeds) -> dict:
     """Plan and judge every (road, receiver, rate, seed); results per receiver."""
@@ -49,7 +45,7 @@ def sweep(rates, seeds) -> dict:
                     mine["refused"].append((label, str(exc).splitlines()[-1]))
                     continue
             judged = judge_profile(profile, road, case.limits)
-            lateral = max(judged.use.get(name, 0.0) for name in LATERAL)
+            lateral = max(judged.use.get(name, 0.0) for name in LATERAL_LIMITS)
             mine["plans"].append((label, lateral, judged.use["jerk"]))
             print(f"  {label}: lateral {lateral:.3f}, jerk {judged.use['jerk']:.3f}",
                   flush=True)
