@@ -44,3 +44,8 @@ def test_only_a_lowered_magnitude_counts_in_the_direction_the_estimate_turns():
     estimate = np.array([0.017, 0.022, -0.017, -0.022, 0.002])
     np.testing.assert_allclose(lowered(road, smoothed, estimate),
                                [0.002, 0.0, 0.002, 0.0, 0.0], atol=1e-15)
+    # the road's own noise comes off what it shows: 0.002 lowered, 0.0015 of noise -> 0.0005;
+    # a lowering within the noise counts for nothing
+    np.testing.assert_allclose(lowered(road, smoothed, estimate, 0.0015),
+                               [0.0005, 0.0, 0.0005, 0.0, 0.0], atol=1e-15)
+    np.testing.assert_allclose(lowered(road, smoothed, estimate, 0.003), 0.0, atol=0.0)

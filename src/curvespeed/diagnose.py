@@ -122,12 +122,17 @@ def braking_decel(problem: SpeedProblem, last: int) -> tuple[float, int | None]:
     lim = problem.limits
     last = max(int(last), 1)
     mu = problem.mu_long[: last + 1]
-    step = np.minimum(lim.max_decel_mps2,
-                      np.minimum(mu[:-1], mu[1:]) * lim.gravity_mps2)
     k = int(np.argmin(mu))
     if not float(mu[k]) * lim.gravity_mps2 < lim.max_decel_mps2:
         return lim.max_decel_mps2, None      # the cap all along, exactly
-    return float(np.mean(step)), k
+    return float(np.mean(step_decels(problem)[:last])), k
+
+
+def step_decels(problem: SpeedProblem) -> np.ndarray:
+    """The deceleration each step can brake at on the level, m/s^2: the smaller of the cap and
+    ``mu g`` at its lower-friction node (:func:`braking_decel` averages them over the way)."""
+    lim, mu = problem.limits, problem.mu_long
+    return np.minimum(lim.max_decel_mps2, np.minimum(mu[:-1], mu[1:]) * lim.gravity_mps2)
 
 
 def grip_words(problem: SpeedProblem, slippery: int, decel: float) -> str:
@@ -198,9 +203,7 @@ def ceiling_out_of_reach(problem: SpeedProblem) -> str | None:
     ahead = np.flatnonzero(ceiling[1:] < problem.b_start) + 1
     if ahead.size == 0:
         return None
-    mu = problem.mu_long
-    step = np.minimum(lim.max_decel_mps2, np.minimum(mu[:-1], mu[1:]) * lim.gravity_mps2)
-    mean_decel = np.cumsum(step)[ahead - 1] / ahead          # braking_decel's mean, vectorised
+    mean_decel = np.cumsum(step_decels(problem))[ahead - 1] / ahead   # each one's braking_decel
     v_k = np.sqrt(np.maximum(ceiling[ahead], 0.0))
     need = braking_reach(v0, v_k, mean_decel, jerk)
     available = problem.station_m[ahead] - problem.station_m[0]

@@ -256,7 +256,8 @@ def _curve_table(profile, max_curves: int) -> list[str]:
         return ["no curve limits the speed (top speed, zones and stops do)"]
     slowest = sorted(sorted(stretches, key=lambda r: r[:3])[:max_curves], key=lambda r: r[1])
     ranges = "" if ends.exact else "; radius: estimate (plausible range), planned at the low end"
-    cells = [radius_cell(r[3][1], r[3][0], r[3][2], compact=True) for r in slowest]
+    cells = [radius_cell(estimate, low, high, compact=True)
+             for _, _, _, (low, estimate, high), _ in slowest]
     width = max(14, *(len(c) for c in cells))
     lines = [f"curves where a lateral limit binds ({len(stretches)}; the {len(slowest)} "
              f"slowest{ranges}):",
@@ -304,9 +305,8 @@ def _curve_row(profile, nodes, lateral, ends) -> tuple:
     """``(speed, first station, last station, radius, limited by)`` of one curve: its slowest
     speed, its smallest radius (``(low end, estimate, high end)`` from the curvature ``ends``,
     :func:`curvespeed.check.radii.smallest_radii`: the plan holds the low end) and what sets
-    the speed. Where the
-    curve is driven slower than its lateral limit allows (braking into a stop, starting from
-    one, a zone), that cause is named, not the lateral limit."""
+    the speed. Where the curve is driven slower than its lateral limit allows (braking into a
+    stop, starting from one, a zone), that cause is named, not the lateral limit."""
     import numpy as np
 
     from ..check.radii import smallest_radii

@@ -161,13 +161,8 @@ def _scales_and_alignment(fit, u_points, values, weight, u_nodes, station, noise
                     station, rebuilt[0].kappa, np.interp(u_points, u_nodes, station))
         if road is not None:
             for scale, smoothed in family.smoothed(road, u_nodes, skip=(ALIGNMENT_LEVEL,)):
-                # a peak counts only by as much as the road shows it beyond the road's own
-                # noise: at a log's ends the reconstruction's first element may follow the
-                # finest scale's blur there (a consumer receiver's start from rest read as
-                # 0.15 1/m +- 0.08 over 10 m), and its rounding-off, widened over a scale's
-                # spread, held the bound at R 3-7 m over the first 36 m of a straight
-                scale.lowered = np.maximum(lowered(rebuilt[0].kappa, smoothed, scale.kappa)
-                                           - GAMMA * rebuilt[0].sd, 0.0)
+                scale.lowered = lowered(rebuilt[0].kappa, smoothed, scale.kappa,
+                                        GAMMA * rebuilt[0].sd)
                 # where the road smoothed alike misses what the scale reads from the points by
                 # more than both their noise, the road is not the one the points show, and how
                 # much the scale rounds off cannot be read from it
@@ -226,12 +221,8 @@ def _with_alignment(rebuilt, k, s, w, bound, station):
     bound = np.where(use, np.where(rebuilt.near_step, np.maximum(rebuilt.bound, bound),
                                    np.maximum(rebuilt.bound, own)), bound)
     # where candidate roads the points cannot tell apart explain a step, their largest
-    # curvature bounds it (:mod:`.steps`), plus what the lines they join miss of the fine
-    # estimate beyond its noise: a candidate is only as good as its lines (an RTK log at 2 Hz
-    # read a clothoid into an arc as a jump 19 m early, and the line joined after it, fitted
-    # across the rest of the clothoid and the arc, let the candidates bound the arc 0.8 %
-    # short; tests/test_certificate_exact_roads.py)
-    bound = np.where(steps.explained, steps.bound + rebuilt.misfit_level, bound)
+    # curvature bounds it (:mod:`.steps`)
+    bound = np.where(steps.explained, steps.bound, bound)
     # where a step may lie the reconstruction cannot say how the curvature gets there (a
     # jump, or a clothoid too short to resolve): the adaptive estimate stays
     use &= ~rebuilt.near_step

@@ -9,7 +9,7 @@ much it lowers a peak can be read from a road whose curvature is known: the desi
 reconstructed from the points (:mod:`.alignment`). That road is laid out, sampled at the
 points' stations, smoothed by the same scale, and its smoothed curvature compared with its own;
 where the smoothing lowered it, the scale's estimate is raised by as much, less the reconstructed
-road's own noise (:mod:`.curvature`: a peak the road reads from noise is no peak of the road).
+road's own noise (a peak the road reads from noise is no peak of the road).
 
 Where the road has a short arc the alignment's two clothoid lines meet at a point above it. That
 does not matter much: a smoother lowers a corner of curvature by an amount set by the change of
@@ -51,10 +51,17 @@ def layout(station: np.ndarray, kappa: np.ndarray, at_station: np.ndarray) -> np
     return out
 
 
-def lowered(road_kappa: np.ndarray, smoothed_kappa: np.ndarray,
-            estimate: np.ndarray) -> np.ndarray:
+def lowered(road_kappa: np.ndarray, smoothed_kappa: np.ndarray, estimate: np.ndarray,
+            road_noise=0.0) -> np.ndarray:
     """How much the smoothing lowered |curvature| at each station, in the direction the
-    estimate turns (zero where it raised it: ringing beside a peak is the estimate's own
-    business, its window covers that)."""
+    estimate turns, beyond ``road_noise`` (the reconstructed road's own uncertainty there, 1/m)
+    (zero where it raised it: ringing beside a peak is the estimate's own business, its window
+    covers that).
+
+    The noise counts because a road's peak may be read from noise: at a log's ends the
+    reconstruction's first element may follow the finest scale's blur (a consumer receiver's
+    start from rest read as 0.15 +- 0.08 1/m over 10 m), and its rounding-off, widened over a
+    scale's spread, held the bound at R 3-7 m over the first 36 m of a straight
+    (tests/test_reference_recorded_drives.py)."""
     side = np.sign(estimate)
-    return np.maximum(side * (road_kappa - smoothed_kappa), 0.0)
+    return np.maximum(side * (road_kappa - smoothed_kappa) - road_noise, 0.0)
