@@ -364,7 +364,7 @@ def read_profile_with_sidecar(profile_file, meta_file=None, without: str | None 
     return read_station_profile(profile_file, name=name), sidecar, path
 
 
-def radius_cell(estimate_m: float, low_m: float, high_m: float, compact: bool = False) -> str:
+def radius_cell(*, low_m: float, estimate_m: float, high_m: float, compact: bool = False) -> str:
     """A curve's smallest radius for a terminal table: ``estimate (low-high)`` (the plausible
     range of :class:`curvespeed.check.uncertainty.RadiusInterval`; ``unbounded`` where the
     noise allows a straight); with ``compact``, the estimate alone where the range has no

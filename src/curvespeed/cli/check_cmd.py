@@ -217,7 +217,8 @@ def _curve_table(curves, design: bool) -> list[str]:
     from ..check import CurveVerdict
 
     def radius(c) -> str:
-        return radius_cell(c.min_radius_m, c.min_radius_low_m, c.min_radius_high_m)
+        return radius_cell(low_m=c.min_radius_low_m, estimate_m=c.min_radius_m,
+                           high_m=c.min_radius_high_m)
 
     def advisory(c, unit: str) -> str:
         ends = [getattr(a, unit) for a in (c.advisory, c.advisory_low, c.advisory_high)]

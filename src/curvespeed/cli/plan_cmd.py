@@ -256,7 +256,7 @@ def _curve_table(profile, max_curves: int) -> list[str]:
         return ["no curve limits the speed (top speed, zones and stops do)"]
     slowest = sorted(sorted(stretches, key=lambda r: r[:3])[:max_curves], key=lambda r: r[1])
     ranges = "" if ends.exact else "; radius: estimate (plausible range), planned at the low end"
-    cells = [radius_cell(estimate, low, high, compact=True)
+    cells = [radius_cell(low_m=low, estimate_m=estimate, high_m=high, compact=True)
              for _, _, _, (low, estimate, high), _ in slowest]
     width = max(14, *(len(c) for c in cells))
     lines = [f"curves where a lateral limit binds ({len(stretches)}; the {len(slowest)} "
