@@ -108,3 +108,56 @@ def test_an_end_speed_out_of_reach_names_where_the_last_acceleration_starts():
     for fragment in ("end speed 20.00 m/s cannot be reached", "at station 260.0 m",
                      "a curve, R 40 m by the curvature bound", "40.0 m later"):
         assert fragment in message, (fragment, message)
+
+
+def _quoted(message: str, which: str) -> float:
+    import re
+
+    how = "from a start speed" if which == "start" else "ending at a speed"
+    return float(re.search(rf"{how} of up to ([\d.]+) m/s", message).group(1))
+
+
+def test_a_start_speed_no_closed_form_blames_gets_the_fastest_start_that_plans():
+    # A straight, a 60 m spiral and a R 60 m arc on a wet road (mu 0.3): from 21 m/s the
+    # closed form (braking on the level from zero deceleration) reaches the arc's ceiling in
+    # time, but braking in the spiral shares the grip with the lateral load, so no jerk-limited
+    # profile exists. The message named nothing the user could change; it now quotes the
+    # fastest start speed the planner takes (bisection on the solver's own first program, to
+    # 0.01 m/s, rounded down): that speed plans, 0.02 m/s more is refused.
+    k = np.zeros(N)
+    k[20:80] = np.linspace(0.0, 1.0 / 60.0, 60)
+    k[80:] = 1.0 / 60.0
+    geo = geometry_from_curvature(k, ds=1.0)
+    limits = Limits(friction_coefficient=0.3, max_decel_mps2=3.5, max_lateral_accel_mps2=3.5)
+    with pytest.raises(InfeasibleError) as caught:
+        plan_profile(geo, limits, RouteConstraints(start_speed_mps=21.0), warn_limits=False)
+    message = str(caught.value)
+    assert "no speed profile satisfies the jerk bound" in message, message
+    fastest = _quoted(message, "start")
+    assert 15.0 < fastest < 21.0, message
+    plan_profile(geo, limits, RouteConstraints(start_speed_mps=fastest), warn_limits=False)
+    with pytest.raises(InfeasibleError):
+        plan_profile(geo, limits, RouteConstraints(start_speed_mps=fastest + 0.02),
+                     warn_limits=False)
+
+
+def test_an_end_speed_the_lateral_jerk_bound_refuses_gets_the_fastest_end_that_plans():
+    # The route ends in a 60 m spiral to R 150 m, entered at the end speed under a lateral jerk
+    # bound of 0.5 m/s^3. At constant speed a spiral's lateral jerk is kappa' v^3 (the usual
+    # spiral relation, common practice), so no end speed above (0.5 / kappa')^(1/3) = 16.51 m/s
+    # can plan; the planner's own answer must lie below that, plan, and be the fastest to
+    # 0.01 m/s (0.02 m/s more is refused).
+    k = np.zeros(N)
+    k[240:] = np.linspace(0.0, 1.0 / 150.0, 61)
+    geo = geometry_from_curvature(k, ds=1.0)
+    limits = Limits(max_lateral_jerk_mps3=0.5)
+    with pytest.raises(InfeasibleError) as caught:
+        plan_profile(geo, limits, RouteConstraints(start_speed_mps=15.0, end_speed_mps=18.0))
+    message = str(caught.value)
+    assert "lower the end speed to that" in message, message
+    fastest = _quoted(message, "end")
+    assert 15.0 < fastest <= (0.5 / ((1.0 / 150.0) / 60.0)) ** (1.0 / 3.0), message
+    plan_profile(geo, limits, RouteConstraints(start_speed_mps=15.0, end_speed_mps=fastest))
+    with pytest.raises(InfeasibleError):
+        plan_profile(geo, limits,
+                     RouteConstraints(start_speed_mps=15.0, end_speed_mps=fastest + 0.02))

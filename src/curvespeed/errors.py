@@ -40,6 +40,11 @@ class InfeasibleError(CurvespeedError, RuntimeError):
     """No speed profile satisfies the limits and route constraints as given."""
 
 
+class JerkBoundInfeasible(InfeasibleError):
+    """No jerk-limited profile exists, and no single stop, curve, zone or end speed was found
+    to blame by the closed forms (the planner may then probe the start and end speeds)."""
+
+
 class SolverError(CurvespeedError, RuntimeError):
     """A numerical solver failed or returned an answer the verifier refuses."""
 

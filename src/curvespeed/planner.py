@@ -10,7 +10,7 @@ import warnings
 import numpy as np
 
 from .diagnose import standstill, underpowered
-from .errors import CurvespeedWarning, InfeasibleError, SolverError
+from .errors import CurvespeedWarning, InfeasibleError, JerkBoundInfeasible, SolverError
 from .geometry import Geometry
 from .jerk_model import linear_time_coef
 from .limits import Limits, RouteConstraints, validate_limits
@@ -24,6 +24,20 @@ from .verify import DEFAULT_TOLERANCE, verify_profile
 #: Verifier tolerance for the convex solvers: their QP rows are tightened by 1e-5 of each limit
 #: and solved to 1e-7, so anything beyond 1e-4 of a limit is a real violation.
 CONVEX_TOLERANCE = 1e-4
+
+
+def _start_end_hint(geometry: Geometry, limits: Limits, constraints: RouteConstraints,
+                    options) -> str:
+    """The start or end speed that would plan (:mod:`curvespeed.end_speed_probe`), by the
+    convex solver's first program with ``options``."""
+    from dataclasses import replace
+
+    from .end_speed_probe import speed_hint
+    from .solvers.convex import ConvexOptions
+
+    first = replace(options or ConvexOptions(), max_iterations=1)
+    return speed_hint(geometry, limits, constraints,
+                      lambda problem: solve(problem, SolverKind.CONVEX, first))
 
 
 def default_solver(limits: Limits) -> SolverKind:
@@ -59,6 +73,10 @@ def plan_profile(geometry: Geometry, limits: Limits,
         weak = underpowered(problem)       # the true cause, not the jerk bound the solver names
         if weak is not None:
             raise InfeasibleError(weak) from exc
+        if isinstance(exc, JerkBoundInfeasible) and solver is SolverKind.CONVEX:
+            hint = _start_end_hint(geometry, limits, constraints, options)
+            if hint:
+                raise InfeasibleError(f"{exc}{hint}") from exc
         raise
     stands = standstill(problem, result.b)
     if stands is not None:          # never write a profile that does not arrive

@@ -53,7 +53,7 @@ from functools import cached_property
 import numpy as np
 
 from ..diagnose import ceiling_out_of_reach, stop_out_of_reach
-from ..errors import CurvespeedWarning, InfeasibleError, SolverError
+from ..errors import CurvespeedWarning, InfeasibleError, JerkBoundInfeasible, SolverError
 from ..order_stats import distinct
 from ..problem import SpeedProblem
 from . import QPBackend, SolveResult, SolveStatus
@@ -322,7 +322,7 @@ class _ScpRun:
                   or np.size(x) != cols.size or not np.all(np.isfinite(x)))
         if failed:
             if iteration == 1 and st is SolveStatus.INFEASIBLE:
-                raise InfeasibleError(_explain_infeasible(problem))
+                raise _explain_infeasible(problem)
             if iteration == 1:
                 raise SolverError(f"the convex solver's QP failed in the first iteration "
                                   f"({st.value}); --solver envelope gives the profile "
@@ -442,27 +442,31 @@ def _line_search(b0, b1, f0, objective, iterations: int = 30):
     return b, objective(b)
 
 
-def _explain_infeasible(problem: SpeedProblem) -> str:
+def _explain_infeasible(problem: SpeedProblem) -> InfeasibleError:
     """Say why no jerk-limited profile exists, naming the first constraint that cannot be met.
 
     The envelope (no jerk bound) was found before, so every station is drivable and every
     constraint reachable without the jerk bound; what is left is a stop too close to the start
-    for a jerk-limited stop (named as the user gave it), or the jerk bounds themselves.
+    for a jerk-limited stop (named as the user gave it), or the jerk bounds themselves. Where no
+    closed form names the cause, a :class:`~curvespeed.errors.JerkBoundInfeasible` (the planner
+    then looks for the start or end speed that plans, :mod:`curvespeed.end_speed_probe`).
     """
     lim = problem.limits
     at_stop = stop_out_of_reach(problem, jerk=True)
     if at_stop is not None:
-        return at_stop
+        return InfeasibleError(at_stop)
     too_fast = ceiling_out_of_reach(problem)
     if too_fast is not None:
-        return too_fast
+        return InfeasibleError(too_fast)
     if lim.max_lateral_jerk_mps3 is not None:
-        return (f"{problem.source}: no speed profile satisfies the jerk bounds together with the "
-                "other limits and constraints (stops, zones, start and end speed); a fixed "
-                "start or end speed where the curvature changes quickly asks more lateral jerk "
-                f"than max_lateral_jerk_mps3 = {lim.max_lateral_jerk_mps3:g} allows. Relax "
-                "max_lateral_jerk_mps3 or max_jerk_mps3, lower the start or end speed, or "
-                "check the curvature near the ends and the stops")
-    return (f"{problem.source}: no speed profile satisfies the jerk bound together with the "
-            "other limits and constraints (stops, zones, start and end speed); relax "
-            "max_jerk_mps3 or the constraints near the start and the stops")
+        return JerkBoundInfeasible(
+            f"{problem.source}: no speed profile satisfies the jerk bounds together with the "
+            "other limits and constraints (stops, zones, start and end speed); a fixed "
+            "start or end speed where the curvature changes quickly asks more lateral jerk "
+            f"than max_lateral_jerk_mps3 = {lim.max_lateral_jerk_mps3:g} allows. Relax "
+            "max_lateral_jerk_mps3 or max_jerk_mps3, lower the start or end speed, or "
+            "check the curvature near the ends and the stops")
+    return JerkBoundInfeasible(
+        f"{problem.source}: no speed profile satisfies the jerk bound together with the "
+        "other limits and constraints (stops, zones, start and end speed); relax "
+        "max_jerk_mps3 or the constraints near the start and the stops")
