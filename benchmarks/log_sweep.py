@@ -4,7 +4,8 @@
     python benchmarks/log_sweep.py --rates 2 --seeds 1
 
 The roads, limits and logs are those of ``benchmarks/exact_roads.py`` (invented design roads;
-each driven from rest to rest and logged with white noise plus a slowly drifting error,
+each driven at its start and end speeds (a log cut from a longer drive where the road
+is entered or left at speed) and logged with white noise plus a slowly drifting error,
 ``tests/drive_logs.py``), over more logging rates and noise draws than its table. Each log is
 planned by ``curvespeed plan`` as a user would and the profile judged on the exact road
 (``benchmarks/judge.py``). Per receiver the table gives how many plans were made and refused,

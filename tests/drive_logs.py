@@ -91,13 +91,14 @@ def straight_interiors(alignment: Alignment, margin_m: float) -> list[tuple[floa
 
 
 def driving_speed(alignment: Alignment, stops=(), top_speed=25.0, lat_accel=2.0, accel=1.2,
-                  decel=1.8, ds=0.25) -> tuple[np.ndarray, np.ndarray]:
-    """Speed (m/s) on a station grid: curves at ``lat_accel``, rest at the ends and stops."""
+                  decel=1.8, ds=0.25, end_speeds=(0.0, 0.0)) -> tuple[np.ndarray, np.ndarray]:
+    """Speed (m/s) on a station grid: curves at ``lat_accel``, rest at the stops and the ends
+    speeds ``end_speeds`` (m/s; at most what the curves and ``top_speed`` allow there)."""
     n = max(2, math.ceil(alignment.length_m / ds))
     s = np.linspace(0.0, alignment.length_m, n + 1)
     kappa = np.abs(alignment.curvature(s))
     cap = np.minimum(top_speed**2, lat_accel / np.maximum(kappa, 1e-12))
-    cap[[0, -1]] = 0.0
+    cap[[0, -1]] = np.minimum(cap[[0, -1]], np.square(end_speeds))
     for stop in stops:
         cap[int(np.argmin(np.abs(s - stop)))] = 0.0
     b = cap.copy()
@@ -110,7 +111,8 @@ def driving_speed(alignment: Alignment, stops=(), top_speed=25.0, lat_accel=2.0,
 
 
 def station_timeline(s, v, dwell_s: float, stops=(), start_dwell_s=None, end_dwell_s=None):
-    """Time (s) at each grid station, with a dwell at rest at every stop and at both ends."""
+    """Time (s) at each grid station, with a dwell at rest at every stop and at both ends (an
+    end driven through at speed has none)."""
     dt = np.zeros(s.size)
     vm = v[:-1] + v[1:]
     dt[1:] = np.where(vm > 0, 2 * np.diff(s) / np.where(vm > 0, vm, 1), 0.0)
@@ -118,8 +120,8 @@ def station_timeline(s, v, dwell_s: float, stops=(), start_dwell_s=None, end_dwe
     dwell = np.zeros(s.size)
     for stop in stops:
         dwell[int(np.argmin(np.abs(s - stop)))] += dwell_s
-    dwell[0] += dwell_s if start_dwell_s is None else start_dwell_s
-    dwell[-1] += dwell_s if end_dwell_s is None else end_dwell_s
+    dwell[0] += (dwell_s if start_dwell_s is None else start_dwell_s) if v[0] == 0.0 else 0.0
+    dwell[-1] += (dwell_s if end_dwell_s is None else end_dwell_s) if v[-1] == 0.0 else 0.0
     # arrival and departure times at each grid station (they differ only where it dwells)
     arrive = t + np.concatenate(([0.0], np.cumsum(dwell)[:-1]))
     leave = arrive + dwell
@@ -141,13 +143,17 @@ def gauss_markov(n: int, dt: float, sigma: float, tau: float, rng) -> np.ndarray
 
 def simulate_drive(alignment: Alignment, rate_hz: float, receiver: Receiver, seed: int = 0,
                    stops=(), dwell_s: float = 20.0, top_speed=25.0, lat_accel=2.0,
-                   elevation=None, start_dwell_s=None, end_dwell_s=None) -> DriveLog:
+                   elevation=None, start_dwell_s=None, end_dwell_s=None,
+                   end_speeds=(0.0, 0.0)) -> DriveLog:
     """Drive ``alignment`` and log it at ``rate_hz`` with ``receiver``'s errors.
 
     ``elevation`` is an optional function of station giving the true elevation (metres).
+    ``end_speeds``: the speeds (m/s) the drive starts and ends at; 0 (at rest, with a dwell) by
+    default, as a log that begins and ends parked; above 0 the log begins or ends on the move,
+    as one cut out of a longer drive.
     """
     rng = np.random.default_rng(seed)
-    s, v = driving_speed(alignment, stops, top_speed, lat_accel)
+    s, v = driving_speed(alignment, stops, top_speed, lat_accel, end_speeds=end_speeds)
     arrive, leave = station_timeline(s, v, dwell_s, stops, start_dwell_s, end_dwell_s)
     t_end = leave[-1]
     t = np.arange(0.0, t_end + 1e-9, 1.0 / rate_hz)
