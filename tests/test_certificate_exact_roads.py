@@ -63,3 +63,28 @@ def test_plan_on_a_sparse_rtk_log_holds_on_the_exact_road():
     judgement = judge_profile(profile, extended(case.alignment, LOG_MARGIN_M), case.limits)
     worst, use = judgement.worst
     assert use <= WITHIN, (worst, use, judgement.where_m[worst])
+
+
+@pytest.mark.parametrize("rate_hz, seed, measured", [(20.0, 1, 1.084), (2.0, 5, 1.046)])
+def test_rtk_logs_of_the_s_curve_entered_at_speed_hold_its_lateral_jerk_bound(rate_hz, seed,
+                                                                              measured):
+    # The S-curve under a lateral jerk bound of 0.5 m/s^3, driven through at speed (20 m/s at
+    # both ends, as its plan is asked) and logged by an RTK receiver (tests/drive_logs.py).
+    # At 20 Hz the lines put the reverse clothoid's end on the R 100 m arc 1.75 m early; read
+    # as exact, the plan accelerated before the real joint (lateral jerk `measured` times the
+    # bound on the road). Each kink now spreads the rates as far as the points place it
+    # (gamma times the standard deviation of where its lines cross: 4.5 m there). At 2 Hz one
+    # line read the arc and the clothoid out of it together, at 1.53e-4 1/m^2 against the
+    # clothoid's 2.0e-4; a line's rate margin now counts the kink its misfit level shows.
+    from benchmarks.exact_roads import LOG_MARGIN_M, extended
+    from drive_logs import RTK, log_route, simulate_drive
+
+    case = CASES["s-curve-lateral-jerk"]
+    log = simulate_drive(case.alignment, rate_hz, RTK, seed=seed, dwell_s=5.0,
+                         end_speeds=(case.start_speed_mps, case.end_speed_mps))
+    profile = plan_profile(build_geometry(log_route(log)), case.limits, case.constraints())
+    judgement = judge_profile(profile, extended(case.alignment, LOG_MARGIN_M), case.limits)
+    assert judgement.use["lateral_jerk"] <= WITHIN, (measured, judgement.use["lateral_jerk"],
+                                                     judgement.where_m["lateral_jerk"])
+    worst, use = judgement.worst
+    assert use <= WITHIN, (worst, use, judgement.where_m[worst])

@@ -74,6 +74,7 @@ class Reconstruction:
     lines: tuple = ()          # each element's line (intercept, slope), in station-index units
     reach_m: np.ndarray | None = None   # how far each break may be off, metres
     misfit_level: np.ndarray | None = None  # the element's misfit level at each station (1/m)
+    hidden_level: np.ndarray | None = None  # of it, the departure beyond noise (1/m; 0 if none)
 
 
 def reconstruct(station: np.ndarray, kappa: np.ndarray, deltas: np.ndarray, spread_m: float,
@@ -126,7 +127,7 @@ def reconstruct(station: np.ndarray, kappa: np.ndarray, deltas: np.ndarray, spre
     # a line may miss a gentle break the fine scale shows within its noise: what the fine scale
     # reads beyond the line, averaged over the smear (which averages its noise down), is added
     misfit = np.abs(_moving_mean(kappa - k, gap))
-    level = _flatten_misfit(misfit, _moving_mean(deltas, gap), cut, edges, gap, gamma)
+    level, hidden = _flatten_misfit(misfit, _moving_mean(deltas, gap), cut, edges, gap, gamma)
     bound = np.abs(k) + gamma * sd_pl + misfit
     # next to a step the misfit is the smear of the jump itself, not a departure of either
     # line: there the elements' own levels stand in for it (where they have one)
@@ -139,7 +140,7 @@ def reconstruct(station: np.ndarray, kappa: np.ndarray, deltas: np.ndarray, spre
             near_step |= sel
     return Reconstruction(k, sd_pl, bound, station[0] + breaks * ds, np.array(step, bool),
                           follows, near_step, tuple(lines), np.asarray(reach, float) * ds,
-                          np.nan_to_num(level[seg], nan=0.0))
+                          np.nan_to_num(level[seg], nan=0.0), hidden[seg])
 
 
 def _line_sd(fits: _LineFits, lo: int, hi: int, level, at):
@@ -166,9 +167,10 @@ def _segment_cuts(seg: np.ndarray, n_segments: int) -> np.ndarray:
     return np.searchsorted(seg, np.arange(n_segments + 1), side="left")
 
 
-def _flatten_misfit(misfit, noise_avg, cut, edges, gap, gamma) -> np.ndarray:
+def _flatten_misfit(misfit, noise_avg, cut, edges, gap, gamma):
     """Make the misfit one level along each element's interior (in place); return each
-    element's level (NaN for an element without such an interior).
+    element's level (NaN for an element without such an interior) and the height of the
+    departure beyond noise in it, ``sqrt(3) e`` (0 where none or no such interior).
 
     Away from its breaks (more than two ``gap`` from them) what the fine scale reads beyond an
     element's line is mostly its own noise (``noise_avg``: the replicates' changes averaged the
@@ -183,6 +185,7 @@ def _flatten_misfit(misfit, noise_avg, cut, edges, gap, gamma) -> np.ndarray:
     x = np.arange(misfit.size, dtype=float)
     noise_sd = np.sqrt(np.mean(noise_avg**2, axis=1))
     levels = np.full(edges.size - 1, np.nan)
+    hidden = np.zeros(edges.size - 1)
     for m in range(edges.size - 1):
         part = slice(cut[m], cut[m + 1])         # segment m's stations, then its interior
         sel = (x[part] - edges[m] > 2 * gap) & (edges[m + 1] - x[part] > 2 * gap)
@@ -190,9 +193,10 @@ def _flatten_misfit(misfit, noise_avg, cut, edges, gap, gamma) -> np.ndarray:
             continue
         r, sd = misfit[part][sel], noise_sd[part][sel]
         excess = math.sqrt(max(float(np.mean(r**2) - np.mean(sd**2)), 0.0))
-        levels[m] = math.sqrt(3.0) * excess + float(np.mean(sd))
+        hidden[m] = math.sqrt(3.0) * excess
+        levels[m] = hidden[m] + float(np.mean(sd))
         misfit[part][sel] = np.maximum(levels[m], r - gamma * sd)
-    return levels
+    return levels, hidden
 
 
 def _interior(a: int, b: int, n: int, gap: int) -> tuple[int, int]:
@@ -369,7 +373,9 @@ def _place_breaks(kappa, sd, gamma, bounds, lines, gap, smears, ends_sd):
     """Each break's position (in stations), whether it is a step, and how far it may be off:
     for a step read off a smear, anywhere the smear spans (a jump, or a clothoid too short to
     resolve); else ``gamma`` times the noise of where the estimate crosses the mid level (its
-    standard deviation over the slope of the crossing), and at least one station.
+    standard deviation over the slope of the crossing), and at least one station. A kink (two
+    lines that meet) may be off by ``gamma`` times the standard deviation of where they cross,
+    at least one station and at most two gaps.
 
     Lines meet near their boundary when the point where they cross is within two gaps of it,
     widened by ``gamma`` times that point's own standard deviation (``ends_sd``: of the two
@@ -398,7 +404,9 @@ def _place_breaks(kappa, sd, gamma, bounds, lines, gap, smears, ends_sd):
         if kink:                                                                    # a kink
             breaks.append(meet)
             step.append(False)
-            reach.append(1.0)
+            # where the lines cross is known to gamma times its standard deviation (at most
+            # two gaps, as a step's: the lines' interiors end there)
+            reach.append(min(gamma * meet_sd, 2.0 * gap))
             continue
         level = 0.5 * (va + vb)
         # searched after the previous break (its window may reach past this boundary)
