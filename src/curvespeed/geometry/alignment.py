@@ -128,7 +128,9 @@ def reconstruct(station: np.ndarray, kappa: np.ndarray, deltas: np.ndarray, spre
     # reads beyond the line, averaged over the smear (which averages its noise down), is added
     misfit = np.abs(_moving_mean(kappa - k, gap))
     level, hidden = _flatten_misfit(misfit, _moving_mean(deltas, gap), cut, edges, gap, gamma)
-    bound = np.abs(k) + gamma * sd_pl + misfit
+    # near an element's ends the fine scale is blurred across the break, so its misfit there
+    # reads low: the element's level (a departure its line hides) holds to its ends
+    bound = np.abs(k) + gamma * sd_pl + np.maximum(misfit, np.nan_to_num(level[seg], nan=0.0))
     # next to a step the misfit is the smear of the jump itself, not a departure of either
     # line: there the elements' own levels stand in for it (where they have one)
     sides = np.abs(k) + gamma * sd_pl + np.where(np.isnan(level[seg]), misfit, level[seg])

@@ -301,9 +301,13 @@ def _line_rate_margin(rebuilt, station) -> np.ndarray:
 
     A kink the line hides in the middle of its element, rates ``s1`` and ``s2`` either side,
     departs from the line by ``d = |s1 - s2| L / 8`` at the most and is fitted at the mean rate,
-    off by ``4 d / L`` from each side's. An RTK log at 2 Hz read a R 100 m arc and the 50 m
-    clothoid after it as one line of rate 1.53e-4 1/m^2 against the clothoid's 2.0e-4 (84 m),
-    and the lateral jerk bound let the plan through the clothoid 4.6 % over it on the road.
+    off by ``4 d / L`` from each side's. Off the middle (computed for a line fitted across one
+    kink at any place) ``4 d / L`` still covers the longer side's rate; the shorter side's rate
+    may be off by more, over a stretch shorter than half the element, where the departure
+    itself is larger than ``d`` (up to 7 times at a tenth of the element): not covered. An RTK
+    log at 2 Hz read a R 100 m arc and the 50 m clothoid after it as one line of rate 1.53e-4
+    1/m^2 against the clothoid's 2.0e-4 (84 m), and the lateral jerk bound let the plan through
+    the clothoid 4.6 % over it on the road.
     """
     edges = np.concatenate(([station[0]], rebuilt.breaks_m, [station[-1]]))
     element = np.clip(np.searchsorted(edges, station, side="right") - 1, 0, edges.size - 2)
