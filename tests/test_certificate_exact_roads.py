@@ -100,12 +100,15 @@ def test_rtk_log_whose_line_hides_the_start_of_a_clothoid_holds_the_comfort_elli
     # ends the bound took the fine scale's misfit, blurred low across the break: 1.013 of the
     # comfort ellipse on the road. The level now holds to the element's ends (1.000).
     from benchmarks.exact_roads import LOG_MARGIN_M, extended
+    from curvespeed.errors import CurvespeedWarning
     from curvespeed.route import make_route
     from drive_logs import RTK, simulate_drive
 
     case = CASES["winding-stop"]
     log = simulate_drive(case.alignment, 20.0, RTK, seed=5, stops=case.stops, dwell_s=5.0)
-    route = make_route(log.x_m, log.y_m, source="simulated RTK log")
+    with pytest.warns(CurvespeedWarning, match="repeated point"):
+        # RTK fixes at 20 Hz while standing still: some within 1 mm, dropped with a warning
+        route = make_route(log.x_m, log.y_m, source="simulated RTK log")
     profile = plan_profile(build_geometry(route), case.limits, case.constraints())
     judgement = judge_profile(profile, extended(case.alignment, LOG_MARGIN_M), case.limits)
     worst, use = judgement.worst
