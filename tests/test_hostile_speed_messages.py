@@ -161,3 +161,33 @@ def test_an_end_speed_the_lateral_jerk_bound_refuses_gets_the_fastest_end_that_p
     with pytest.raises(InfeasibleError):
         plan_profile(geo, limits,
                      RouteConstraints(start_speed_mps=15.0, end_speed_mps=fastest + 0.02))
+
+
+def test_the_command_refuses_with_the_start_speed_that_plans_and_writes_nothing(tmp_path):
+    # The same case through `curvespeed plan`, on exact points of an invented road (a 20 m
+    # straight, a 60 m clothoid into a R 60 m arc) read and fitted like any route: exit 2, the
+    # message quotes the fastest start speed, no profile is written, and the command plans
+    # from the quoted speed.
+    import re
+
+    from click.testing import CliRunner
+
+    from benchmarks.exact_roads import write_points
+    from curvespeed.cli.main import cli
+    from curvespeed.geometry.elements import Alignment, arc, line, spiral
+
+    road = Alignment((line(20.0), spiral(60.0, 0.0, 1.0 / 60.0), arc(220.0, 60.0)),
+                     0.0, 0.0, 0.0)
+    points = write_points(road, tmp_path / "wet_clothoid.csv")
+    out = tmp_path / "profile.csv"
+    wet = ["--friction", "0.3", "--max-decel", "3.5", "--max-lateral-accel", "3.5"]
+    refused = CliRunner().invoke(cli, ["plan", str(points), "-o", str(out), *wet,
+                                       "--start-speed", "21"])
+    assert refused.exit_code == 2, refused.output
+    assert "no speed profile satisfies the jerk bound" in refused.output
+    assert not out.exists() and not out.with_suffix(".meta.json").exists()
+    fastest = re.search(r"from a start speed of up to ([\d.]+) m/s", refused.output).group(1)
+    planned = CliRunner().invoke(cli, ["plan", str(points), "-o", str(out), *wet,
+                                       "--start-speed", fastest])
+    assert planned.exit_code == 0, planned.output
+    assert out.exists()
