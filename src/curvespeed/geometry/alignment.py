@@ -377,7 +377,8 @@ def _place_breaks(kappa, sd, gamma, bounds, lines, gap, smears, ends_sd):
     resolve); else ``gamma`` times the noise of where the estimate crosses the mid level (its
     standard deviation over the slope of the crossing), and at least one station. A kink (two
     lines that meet) may be off by ``gamma`` times the standard deviation of where they cross,
-    at least one station and at most two gaps.
+    at most two gaps (no floor: lines fitted to exact points place a kink to a fraction of a
+    station, and the rates are spread only where a kink's reach exceeds a station step).
 
     Lines meet near their boundary when the point where they cross is within two gaps of it,
     widened by ``gamma`` times that point's own standard deviation (``ends_sd``: of the two
