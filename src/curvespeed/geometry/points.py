@@ -94,13 +94,14 @@ from numpy.linalg import LinAlgError
 
 from ..errors import CurvespeedWarning, RouteGeometryError
 from ..order_stats import median
-from ..route import Route, check_reversals, warn_spikes
+from ..route import Route, warn_spikes
 from .arclength import ARC_PIECE_M, ArcLength
 from .closure import decide_closure
 from .curvature import estimate_curvature
 from .drive import DrivePoints, prepare_drive
 from .elevation import fit_elevation, warn_steep_grades
 from .model import Geometry
+from .path_checks import check_arguments, check_cusps, check_path_reversals, warn_outliers
 from .noise import NoiseChoice, choose_noise, estimate_noise
 from .pspline import SplineFit, fit_pspline, residual_target
 from .uniform_spline import UniformSpline
@@ -114,12 +115,6 @@ DEFAULT_POSITION_NOISE_M = 0.05
 #: the fit's weights: fixes taken while standing or crawling share their slowly drifting error,
 #: which averaging does not remove (common practice for satellite positioning).
 MAX_WEIGHT_COUNT_FACTOR = 4.0
-#: A point further from the fitted path than this many noise standard deviations is reported
-#: as a likely outlier (for Gaussian noise, beyond 6 sigma happens once in 5e8 points) ...
-OUTLIER_SIGMAS = 6.0
-#: ... and than this distance (metres): smaller misses come from the fit's own limits at sharp
-#: changes of curvature on precise points, and positioning outliers are metres (common practice).
-OUTLIER_MIN_M = 0.5
 #: Most stations a geometry may have (2000 km at 1 m); more is a wrong spacing or a stray point.
 #: The curvature estimate holds a few kilobytes per station while it runs (nine scales, noise
 #: replicates), so this also keeps a route within a few gigabytes of memory.
@@ -128,9 +123,7 @@ MAX_STATIONS = 2_000_000
 #: coordinates are quoted to the millimetre (common practice). Only matters for exact synthetic
 #: points, whose scatter estimate is zero or round-off.
 MIN_POSITION_NOISE_M = 1e-3
-#: Where the fitted path's speed along its parameter falls below this fraction of its median it
-#: nearly stands still and turns (a cusp); curvature there describes the points' scatter.
-CUSP_SPEED_FRACTION = 0.05
+
 
 
 def build_geometry(route: Route, spacing_m: float = 1.0, position_noise_m: float | None = None,
@@ -194,7 +187,7 @@ def build_geometry(route: Route, spacing_m: float = 1.0, position_noise_m: float
     on public roads and advisory signs follow local codes and licensed practice.
     """
     source = route.source
-    _check_arguments(spacing_m, position_noise_m, elevation_noise_m, closure_tolerance_m, source)
+    check_arguments(spacing_m, position_noise_m, elevation_noise_m, closure_tolerance_m, source)
     pts = _points(route, part, use_elevation, closed, closure_tolerance_m, position_noise_m,
                   spacing_m)
     path = _fit_path(pts.x, pts.y, pts.count, pts.closed, position_noise_m, spacing_m, source)
@@ -270,7 +263,7 @@ def _points(route, part, use_elevation, closed, closure_tolerance_m, noise_m,
     if drop_last:
         x, y, where, count, time = x[:-1], y[:-1], where[:-1], count[:-1], time[:-1]
         z = None if z is None else z[:-1]
-    _check_reversals(x, y, where, count, source, drive.order_noise_m)
+    check_path_reversals(x, y, where, count, source, drive.order_noise_m)
     warn_spikes(x, y, where, source, consider=count == 1)
     chord_length = float(np.sum(np.hypot(np.diff(x), np.diff(y))))
     if chord_length / spacing_m > MAX_STATIONS:
@@ -301,7 +294,7 @@ def _nodes(path, pts: _Points, spacing_m: float, source: str) -> _Nodes:
         u_last = _foot_parameter(fit.spline, pts.x[-1], pts.y[-1], fit.span, fit.span)
     s_first = float(arc.station(np.array([u_first]))[0])
     point_station = arc.station(path.u) - s_first
-    _check_cusps(arc, s_first, point_station, pts.where, source, path.noise.used)
+    check_cusps(arc, s_first, point_station, pts.where, source, path.noise.used)
     length = (arc.length if pts.closed
               else float(arc.station(np.array([u_last]))[0]) - s_first)
     if not length > 0:
@@ -332,24 +325,6 @@ class _PathFit:
     point_scale: np.ndarray     # each point's noise relative to one fix
 
 
-def _check_arguments(spacing_m, position_noise_m, elevation_noise_m, closure_tolerance_m,
-                     source) -> None:
-    _require_positive(spacing_m, "station spacing", source,
-                      "give the distance between output stations in metres, e.g. 1")
-    if position_noise_m is not None:
-        _require_positive(position_noise_m, "position noise", source,
-                          "give the standard deviation of the point positions in metres, "
-                          "e.g. 0.05 for surveyed or map coordinates, or leave it to the data")
-    if elevation_noise_m is not None:
-        _require_positive(elevation_noise_m, "elevation noise", source,
-                          "give the standard deviation of the elevations in metres, e.g. 0.1, "
-                          "or leave it to the data")
-    if closure_tolerance_m is not None:
-        _require_positive(closure_tolerance_m, "closure tolerance", source,
-                          "give the largest gap in metres between last and first point that "
-                          "still makes a loop")
-
-
 def _fit_path(x, y, count, closed, stated_noise, spacing_m, source) -> _PathFit:
     """Fit the plan path to the points, smoothing set by the noise (stated or estimated)."""
     m = x.size
@@ -372,7 +347,7 @@ def _fit_path(x, y, count, closed, stated_noise, spacing_m, source) -> _PathFit:
             f"{source}: the points scatter across the smoothest path by {rms:.3g} m (RMS), "
             f"more than a position noise of {noise.used:.3g} m allows; the fitted path "
             "cuts corners there. Check for outliers", CurvespeedWarning, stacklevel=3)
-    _warn_outliers(fit, u, xy, noise.used * scale, source)
+    warn_outliers(fit, u, xy, noise.used * scale, source)
     # Arc length pieces of 2 m, or the station spacing when that is longer: stations are only
     # needed that far apart (a 10-node Gauss-Legendre rule over a piece of smooth path gives
     # them to far below a millimetre), and a few points spanning thousands of kilometres must
@@ -388,24 +363,6 @@ def curvature_and_heading(spline: UniformSpline, u: np.ndarray) -> tuple[np.ndar
     speed = np.hypot(d1[:, 0], d1[:, 1])
     kappa = (d1[:, 0] * d2[:, 1] - d1[:, 1] * d2[:, 0]) / speed**3
     return kappa, np.arctan2(d1[:, 1], d1[:, 0])
-
-
-def _warn_outliers(fit, u, xy, sigma, source) -> None:
-    """Warn about points much further from the fitted path than the noise allows.
-
-    The yardstick is the larger of the point's noise and the typical residual (its robust
-    spread), so slowly drifting errors that the fit leaves in the residual do not count."""
-    miss = np.hypot(*(xy - fit.spline(np.clip(u, 0.0, fit.span))).T)
-    typical = median(miss) / 1.1774     # median of a Rayleigh(sigma) distance
-    resid = miss / np.maximum(sigma, typical)
-    bad = np.flatnonzero((resid > OUTLIER_SIGMAS) & (miss > OUTLIER_MIN_M))
-    if bad.size:
-        worst = int(bad[np.argmax(resid[bad])])
-        more = f" and {bad.size - 1} more point(s)" if bad.size > 1 else ""
-        warnings.warn(
-            f"{source}: point {worst + 1} of the fit lies {resid[worst] * sigma[worst]:.2f} m from "
-            f"the fitted path, {resid[worst]:.0f} times the noise{more}: a likely outlier; the "
-            "path is pulled towards it. Remove it if it is one", CurvespeedWarning, stacklevel=4)
 
 
 def _provenance(route: Route, drive: DrivePoints, noise: NoiseChoice,
@@ -430,24 +387,6 @@ def _provenance(route: Route, drive: DrivePoints, noise: NoiseChoice,
     elif route.z_m is not None and not use_elevation:
         out["elevation"] = "ignored"
     return out
-
-
-def _check_reversals(x, y, where, count, source, noise_m) -> None:
-    """Refuse a path that doubles back between single points much further apart than the noise.
-
-    Reversals inside the noise (standing, crawling, dense fixes: averaged points) were dealt
-    with before; one between chords of several noise widths is a point out of order or astray.
-    """
-    long = np.hypot(np.diff(x), np.diff(y)) > 3.0 * noise_m
-    single = count == 1
-    check_reversals(x, y, where, source,
-                    consider=long[:-1] & long[1:] & single[:-2] & single[1:-1] & single[2:])
-
-def _require_positive(value, what: str, source: str, hint: str) -> None:
-    ok = isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, bool)
-    if not ok or not math.isfinite(value) or value <= 0:
-        raise RouteGeometryError(
-            f"{source}: {what} must be a positive number of metres (got {value!r}); {hint}")
 
 
 def _fit_or_raise(u, values, weight, target, span, periodic, knot_spacing, source, what):
@@ -488,23 +427,6 @@ def _foot_parameter(spline: UniformSpline, px: float, py: float, u0: float, span
             return u_new
         u = u_new
     return u
-
-
-def _check_cusps(arc: ArcLength, s_first, point_station, where, source, noise_m) -> None:
-    """Raise where the fitted path nearly stops and turns back (speed along u collapses)."""
-    speed = arc.node_speed
-    floor = CUSP_SPEED_FRACTION * median(speed)
-    j, q = np.unravel_index(int(np.argmin(speed)), speed.shape)
-    if speed[j, q] >= floor:
-        return
-    u_bad = arc.start + arc.h * (j + 0.5 * (1.0 + arc.nodes[q]))
-    s_bad = float(arc.station(np.array([u_bad]))[0]) - s_first
-    near = where[int(np.argmin(np.abs(point_station - s_bad)))]
-    raise RouteGeometryError(
-        f"{source}: station {s_bad:.1f} m (near {near}): the smoothed path nearly stands still "
-        "and turns there (a cusp): the points bunch up or zig-zag, as in a trace recorded while "
-        "standing. Remove or thin out those points, or, if they are only noisy, raise the "
-        f"position noise (now {noise_m:g} m)")
 
 
 def _continuous_heading(raw: np.ndarray, kappa: np.ndarray, ds: float, closed: bool):
