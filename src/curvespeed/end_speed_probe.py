@@ -20,10 +20,13 @@ import dataclasses
 import math
 import warnings
 
+import numpy as np
+
 from .errors import CurvespeedError, InfeasibleError
 from .geometry import Geometry
 from .limits import Limits, RouteConstraints
 from .problem import build_problem
+from .rest_step import largest_true
 
 #: Resolution of the speed quoted, m/s.
 RESOLUTION_MPS = 0.01
@@ -53,12 +56,12 @@ def fastest_end_speed(geometry: Geometry, limits: Limits, constraints: RouteCons
         return True
 
     lo, hi = min(SLOWEST_MPS, 0.5 * given_mps), given_mps
+    halvings = max(1, math.ceil(math.log2((hi - lo) / RESOLUTION_MPS)))
     try:
         if not plans(lo):
             return None
-        while hi - lo > RESOLUTION_MPS:
-            mid = 0.5 * (lo + hi)
-            lo, hi = (mid, hi) if plans(mid) else (lo, mid)
+        lo = float(largest_true(lambda v: plans(float(v)), np.float64(lo), np.float64(hi),
+                                halvings))
     except CurvespeedError:         # a probe failed for another reason: quote nothing
         return None
     quoted = math.floor(lo / RESOLUTION_MPS) * RESOLUTION_MPS
@@ -70,9 +73,11 @@ def speed_hint(geometry: Geometry, limits: Limits, constraints: RouteConstraints
     """What to say after a :class:`~curvespeed.errors.JerkBoundInfeasible` refusal: the
     fastest given start speed that plans, else the fastest given end speed; "" when neither
     (an open route's speeds at rest are not probed, nor are a closed route's)."""
+    if geometry.closed:
+        return ""
     for which in ("start", "end"):
         given = getattr(constraints, f"{which}_speed_mps")
-        if given is None or given <= 0.0 or geometry.closed:
+        if given is None or given <= 0.0:
             continue
         v = fastest_end_speed(geometry, limits, constraints, which, given, solve_first)
         if v is not None:
