@@ -255,9 +255,11 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
         linear_time_coef, dtype=float).ravel()
     on = linear != 0.0
     if (linear.size != n - 1 or np.any(on & ((v[:-1] <= 0.0) | (v[1:] <= 0.0)))
-            or np.any(on & ((linear < 2.0) | (linear > 3.0)))):
-        raise ValueError("linear_time_coef must have one value per step, 0 or in [2, 3], "
-                         "non-zero only on steps with neither end at rest")
+            or np.any(on & ((linear < linear_time_coef_lowest(v) * (1.0 - 1e-9))
+                            | (linear > 3.0)))):
+        raise ValueError("linear_time_coef must have one value per step, 0 or within "
+                         "[linear_time_coef_lowest, 3], non-zero only on steps with neither end "
+                         "at rest")
     return StationProfile(
         station_m=s, x_m=required["x_m"], y_m=required["y_m"],
         heading_rad=np.unwrap(required["heading_rad"]), curvature_1pm=required["curvature_1pm"],
@@ -345,12 +347,27 @@ def steps_next_to_rest(speed_mps) -> np.ndarray:
 RAMP_TIME_EXCESS = 1e-3
 
 
-def step_time_coef_from_times(station_m, speed_mps, time_s) -> np.ndarray:
+def step_time_coef_from_times(station_m, speed_mps, time_s, lowest=2.0) -> np.ndarray:
     """The ``c`` of each step's time ``c ds / (v[k] + v[k+1])`` from the profile's own times,
-    clipped to [2, 3] (rounding of the written times)."""
+    clipped to [``lowest``, 3] (rounding of the written times; ``lowest`` may be per step,
+    :func:`linear_time_coef_lowest` for a step driven at constant jerk)."""
     s, v = np.asarray(station_m, dtype=float), np.asarray(speed_mps, dtype=float)
     ratio = np.diff(np.asarray(time_s, dtype=float)) * (v[:-1] + v[1:]) / np.diff(s)
-    return np.clip(ratio, 2.0, 3.0)
+    return np.clip(ratio, lowest, 3.0)
+
+
+def linear_time_coef_lowest(speed_mps) -> np.ndarray:
+    """Per step, the smallest ``c`` of a step driven at constant jerk (time ``c ds / (v + v')``)
+    whose speed stays within its ends' range: ``3 (v + v') / (v + v' + max(v, v'))``. The
+    step's speed is a quadratic in time whose Bernstein coefficients are ``v``,
+    ``(3 / c - 1) (v + v')`` and ``v'`` (:func:`curvespeed.rest_step.linear_accel_step`), and
+    lies within their range: the middle one is at most ``max(v, v')`` from this ``c`` on, and
+    at least 0 up to ``c = 3``. From 2 (equal end speeds) down to 1.5 (an end at rest); below 2
+    the speed is concave in time, the acceleration falling through the step."""
+    v = np.asarray(speed_mps, dtype=float)
+    total = v[:-1] + v[1:]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(total > 0.0, 3.0 * total / (total + np.maximum(v[:-1], v[1:])), 2.0)
 
 
 def detect_rest_steps(station_m, speed_mps, time_s) -> np.ndarray:

@@ -198,7 +198,7 @@ def read_station_profile(path: str | os.PathLike, name: str | None = None) -> St
         if gap > TIME_MISMATCH_S + TIME_MISMATCH_REL * sp.moving_time_s:
             warnings.warn(
                 f"{table.source}: {sp.node_label(k)}: time_s differs by {gap:.3f} s from the time "
-                "its stations and speeds imply (2 ds / (v[k] + v[k+1]) per step, more where "
+                "its stations and speeds imply (2 ds / (v[k] + v[k+1]) per step, otherwise where "
                 "step_kind says a step is not driven at constant acceleration); curvespeed uses "
                 "stations and speeds",
                 CurvespeedWarning, stacklevel=2)
@@ -262,11 +262,13 @@ def _time_coefs(table: Table, kinds: np.ndarray) -> tuple[np.ndarray, np.ndarray
             "time_s column (how the step is driven follows from its time); add time_s, or "
             "remove the step_kind column")
     from ..export import step_time_coef_from_times
+    from ..station_profile import linear_time_coef_lowest
 
     s, v = table.columns["station_m"], table.columns["speed_mps"]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        from_times = step_time_coef_from_times(s, v, times)
     linear = kinds == StepKind.LINEAR_ACCEL.value
+    with np.errstate(divide="ignore", invalid="ignore"):
+        from_times = step_time_coef_from_times(
+            s, v, times, np.where(linear, linear_time_coef_lowest(v), 2.0))
     return (np.where(kinds == StepKind.JERK_RAMP.value, from_times, rest),
             np.where(linear, from_times, 0.0))
 
