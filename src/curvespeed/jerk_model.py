@@ -18,6 +18,7 @@ import numpy as np
 
 from . import rest_step
 from .errors import LimitsError
+from .launch_steps import holds_past_corner, launch_steps, scale_for_bases, scaled_terms
 from .limits import stop_node
 
 if TYPE_CHECKING:
@@ -87,6 +88,16 @@ def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
     (:data:`curvespeed.rest_step.U_CONTINUING`), or, where the move reaches the node's
     acceleration and holds it (:func:`accel_held`), ramps as far as it can and leaves the rest
     of the rise to the change about the node (:func:`curvespeed.rest_step.continuing_shape`).
+
+    A launch (or stop) keeping the flat part of a continuing ramp is planned as its ramp
+    instead (the double-S closed form's, :func:`launch_ramp_m`): the step ramps over its whole
+    length (``u = 1``) and the next ones are driven as :mod:`curvespeed.launch_steps` says, up
+    to the step in which the ramp ends. That needs the move either to turn below the cap, or to
+    still hold the cap when that step ends (:func:`curvespeed.launch_steps.holds_past_corner`).
+    A move that reaches the cap and soon leaves it is neither; it keeps the staircase (measured
+    on 14-25 m moves at 3 m/s^2 and 2 m/s^3 at 1 m stations, +0.10 to +0.33 % over the closed
+    form; planned as ramp-and-hold they came out +0.3 to +1.5 %, as ramp-and-turn at the cap
+    down to 0.19 % below it).
     """
     leaving, arriving = rest[:-1], rest[1:]
     steps = np.flatnonzero(leaving | arriving)
@@ -96,6 +107,7 @@ def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
     u = np.full(problem.n_nodes - 1, np.nan)
     u[steps] = rest_step.shape_for_accel(accel, jerk, ds)
     time_coef = problem.time_coef.copy()
+    shaped = None
     beyond = np.flatnonzero(accel >= rest_step.max_ramp_accel(jerk, ds))
     if beyond.size:     # the ramp goes on past the moving node
         k, out = steps[beyond], leaving[steps[beyond]]
@@ -104,16 +116,24 @@ def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
         held = _held(span_m, v_top, allowed, jerk)
         u[k] = np.where(held, rest_step.continuing_shape(allowed, jerk, ds), u[k])
         ramp_m = launch_ramp_m(span_m, v_top, allowed, jerk)
-        fewest = np.where(held, LAUNCH_MIN_STEPS_HELD, LAUNCH_MIN_STEPS) * ds * (1.0 - 1e-9)
-        launch = (u[k] <= rest_step.U_CONTINUING) & (ramp_m >= fewest)
+        hold = np.array([holds_past_corner(*args, jerk, ds) for args in
+                         zip(span_m, v_top, allowed, ramp_m)], dtype=bool).reshape(-1)
+        turns = np.cbrt(6.0 * jerk * jerk * ramp_m) < allowed * (1.0 - 1e-9)
+        launch = ((u[k] <= rest_step.U_CONTINUING) & (ramp_m >= ds * (1.0 - 1e-9))
+                  & (hold | turns))
         if launch.any():
             u[k[launch]] = 1.0
-            time_coef *= launch_time_factors(problem, k[launch], out[launch], ramp_m[launch])
+            shaped = launch_steps(problem, k[launch], out[launch], ramp_m[launch],
+                                  allowed[launch], hold[launch])
+            time_coef *= shaped.time_factor
     f = rest_step.accel_factor(u[steps])
     time_coef[steps] = rest_step.time_coef(u[steps])
     f_start, f_end = problem.accel_factor_start.copy(), problem.accel_factor_end.copy()
     f_start[steps] = np.where(leaving[steps], 0.0, f)
     f_end[steps] = np.where(leaving[steps], f, 0.0)
+    if shaped is not None:      # a ramp's steps: their acceleration at their far node from rest
+        f_start = np.where(np.isnan(shaped.f_start), f_start, shaped.f_start)
+        f_end = np.where(np.isnan(shaped.f_end), f_end, shaped.f_end)
     # the ramp's own jerk caps the moving node
     cap, source = problem.cap_b.copy(), problem.cap_source.copy()
     b_ramp = rest_step.jerk_cap_b(u[steps], jerk, ds)
@@ -124,9 +144,11 @@ def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
         k = 0 if cap[0] < cap[-1] else -1
         cap[0] = cap[-1] = cap[k]
         source[0] = source[-1] = source[k]
+    terms = jerk_time_terms(problem.n_nodes, problem.closed, u, f_start)
+    node_scale = None if shaped is None else scale_for_bases(problem, terms, shaped.bases)
     return replace(problem, time_coef=time_coef, accel_factor_start=f_start,
                    accel_factor_end=f_end, rest_u=u, cap_b=cap, cap_source=source,
-                   jerk_terms=jerk_time_terms(problem.n_nodes, problem.closed, u, f_start))
+                   jerk_terms=scaled_terms(terms, node_scale), jerk_node_scale=node_scale)
 
 
 def rest_step_accel(problem: SpeedProblem, moving: np.ndarray, leaving: np.ndarray,
@@ -215,29 +237,6 @@ def accel_held(problem: SpeedProblem, rest: np.ndarray, steps: np.ndarray,
     return _held(span_m, v_top, np.asarray(accel, dtype=float), problem.limits.max_jerk_mps3)
 
 
-#: A launch (or stop) whose jerk ramp from rest spans at least this many station steps is
-#: planned as that ramp: the step next to rest ramps over its whole length (``u = 1``), the
-#: change of acceleration at its moving node runs on at the bound into the next step
-#: (:func:`_terms_general`), and the steps wholly inside the ramp take the time of a step
-#: driven at the bound (:func:`launch_time_factors`; in a profile these are ``linear_accel``
-#: steps, :mod:`curvespeed.io.profile_csv`). Where the ramp is shorter, its end falls among the
-#: first few stations, whose long steps the staircase of step accelerations rounds off, and its
-#: turn is quicker than a ramp's. Measured on rest-to-rest moves planned this way at 1 m (the
-#: result depends on the ramp's length in stations only, swept in quarter stations), the plan is
-#: faster than the double-S closed form where the ramp ends half a station past a node: for
-#: moves whose acceleration turns at once by 0.271, 0.089, 0.032, 0.005 % at 1.5, 2.5, 3.5, 4.5
-#: stations; for moves that reach the cap by 0.089, 0.031, 0.007 % at 1.5, 2.5, 3.5 and by
-#: 0.001 % at 4.5 (a 70 m move at 3 m/s^2 and 1 m/s^3, 2.6 ``A^3 / J^2``, whose acceleration
-#: leaves the cap soon). From 5 stations on none was below (at least +0.007 %
-#: at 5.5, +0.016 % at 6.5), nor from 4 on in moves that hold the cap (:func:`accel_held`; at
-#: least +0.0013 % at 4.5 over 14 lengths of 4-30 ``A^3 / J^2`` and three jerk bounds, the
-#: least in the longest). With the staircase the same moves are 0.08-0.24 % slower than the
-#: closed form.
-LAUNCH_MIN_STEPS = 5.0
-#: :data:`LAUNCH_MIN_STEPS` for a move that holds the cap (:func:`accel_held`).
-LAUNCH_MIN_STEPS_HELD = 4.0
-
-
 def launch_ramp_m(span_m, v_top, accel, jerk):
     """Length of the jerk ramp from rest of a move ``span_m`` long under ``v_top`` that may
     reach ``accel``, m: ``a_p^3 / (6 J^2)`` at its peak acceleration ``a_p``, the double-S closed
@@ -249,48 +248,11 @@ def launch_ramp_m(span_m, v_top, accel, jerk):
     return peak ** 3 / (6.0 * jerk * jerk)
 
 
-def launch_time_factors(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray,
-                        ramp_m: np.ndarray) -> np.ndarray:
-    """Factor on every step's time coefficient: on the steps a launch's (or stop's) jerk ramp
-    of ``ramp_m`` metres spans after its step next to rest, the time of a step driven at the
-    jerk bound over the constant-acceleration step's
-    (:func:`curvespeed.rest_step.ramp_step_time_factor`, at the ramp's own speeds); 1
-    elsewhere.
-
-    Such a step is driven with its acceleration rising through it (linear in time), so it ends
-    above its mean, at the ramp's value at its far node for a step of the ramp itself. So only
-    the steps wholly inside the ramp count, up to the first whose far node allows less than the
-    ramp's acceleration there (at the ramp's speed; a curve, say): past it the plan's
-    acceleration is held down by that limit, and a step at a limit ending above its mean would
-    break it. Where two ramps overlap the larger factor counts.
-    """
-    jerk, ds = problem.limits.max_jerk_mps3, problem.ds
-    n_steps, nv = problem.n_nodes - 1, problem.n_nodes - (1 if problem.closed else 0)
-    factor = np.ones(n_steps)
-    for k, out, length in zip(steps, leaving, ramp_m):
-        j = np.arange(1, int(math.floor(length / ds + 1e-9)))    # steps after the first
-        at = k + j if out else k - j
-        far = at + 1 if out else at                               # the node further from rest
-        if not problem.closed:
-            inside = (at >= 0) & (at < n_steps)
-            j, at, far = j[inside], at[inside], far[inside]
-        if j.size == 0:
-            continue
-        reach = (j + 1) * ds                                      # far node's distance from rest
-        _, v_ramp, a_ramp = rest_step.ramp_from_rest(reach, jerk)
-        lo, hi = problem.accel_bounds(v_ramp ** 2, nodes=far % nv)
-        short = np.flatnonzero(a_ramp > (hi if out else -lo))
-        n_ok = int(short[0]) if short.size else j.size
-        at = at[:n_ok] % n_steps
-        factor[at] = np.maximum(factor[at],
-                                rest_step.ramp_step_time_factor(j[:n_ok] * ds, ds, jerk))
-    return factor
-
-
 def linear_time_coef(problem: SpeedProblem) -> np.ndarray:
     """The ``c`` of each step away from rest planned as driven at constant jerk (a launch's or a
-    stop's ramp, :func:`launch_time_factors`): its time ``c ds / (v[k] + v[k+1])``; 0 on every
-    other step (constant acceleration, or next to rest)."""
+    stop's ramp, :func:`curvespeed.launch_steps.launch_steps`): its time
+    ``c ds / (v[k] + v[k+1])``; 0 on every other step (constant acceleration, or next to
+    rest)."""
     tc = problem.time_coef
     return np.where(is_linear_step(tc, problem.rest_u), tc, 0.0)
 

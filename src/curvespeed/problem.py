@@ -36,10 +36,12 @@ step, :func:`curvespeed.jerk_model.with_rest_steps` says how much of it the step
 :attr:`SpeedProblem.rest_u`,
 :attr:`~SpeedProblem.time_coef`, :attr:`~SpeedProblem.accel_factor_start` and
 :attr:`~SpeedProblem.accel_factor_end` carry this per step; every other step has constant
-acceleration (factors 1, time ``2 ds / (v + v')``), except that where a launch's (or a stop's)
-jerk ramp spans many stations the steps wholly inside it take the time of a step driven at the
-bound, a fixed factor over ``2 ds / (v + v')`` (:func:`curvespeed.jerk_model.launch_time_factors`;
-the profile's ``linear_accel`` steps).
+acceleration (factors 1, time ``2 ds / (v + v')``), except where a launch's (or a stop's) jerk
+ramp goes on past the step next to rest: its further steps, up to the one in which it ends, are
+driven with the acceleration linear in time (the profile's ``linear_accel`` steps), each taking
+that motion's time, a fixed factor over ``2 ds / (v + v')``, with its acceleration at its far
+node from rest the motion's there, a fixed factor over its mean
+(:func:`curvespeed.launch_steps.launch_steps`).
 
 **Jerk** at a node is its change of acceleration over a time base
 (:meth:`SpeedProblem.node_jerk_time`, from :attr:`SpeedProblem.jerk_terms`):
@@ -58,8 +60,11 @@ the profile's ``linear_accel`` steps).
   symmetric ramp leaves the speed after it unchanged, so the profile is the step-wise constant
   form of a motion whose jerk really stays within the bound. Where the step ramps over its whole
   length (a launch planned as its ramp) the ramp runs on through the node: the time to the next
-  step's distance-weighted mean time, ``2 ds (v + 2 v') / (3 (v + v')^2)``, bounded from below
-  by linear forms;
+  step's distance-weighted mean time, ``2 ds (v + 2 v') / (3 (v + v')^2)`` for a step of
+  constant acceleration, bounded from below by linear forms;
+* at the nodes of a launch planned as its ramp, the launch's own time between where the two
+  steps' accelerations are taken (:func:`curvespeed.launch_steps.launch_steps`; the terms above
+  scaled to it at the launch's speeds, :attr:`SpeedProblem.jerk_node_scale`);
 * at an open end the vehicle is steady outside the route: half the end step's time,
   ``ds / (v + v_next)`` (``t2`` at the moving node of a step next to rest).
 
@@ -151,15 +156,21 @@ class SpeedProblem:
         True when the jerk bound is part of the problem (steps next to rest ramp the jerk).
     time_coef : ndarray, shape (n,)
         Step time is ``time_coef * ds / (v[k] + v[k+1])``: 2, between 2 and 3 for a step next
-        to rest (:func:`curvespeed.rest_step.time_coef`), a little over 2 on the steps a
-        launch's jerk ramp spans (:func:`curvespeed.jerk_model.launch_time_factors`).
+        to rest (:func:`curvespeed.rest_step.time_coef`), near 2 on the further steps of a
+        launch's jerk ramp (:func:`curvespeed.launch_steps.launch_steps`).
     accel_factor_start, accel_factor_end : ndarray, shape (n,)
         Acceleration of a step at its first / last node over ``(b[k+1] - b[k]) / (2 ds)``: 1,
-        or 0 at the rest node and ``f`` at the moving node of a step next to rest.
+        or 0 at the rest node and ``f`` at the moving node of a step next to rest, or the
+        launch's at the far node from rest of a further step of its ramp.
     rest_u : ndarray, shape (n,)
         Shape ``u`` of each step next to rest (:mod:`curvespeed.rest_step`); NaN elsewhere.
     jerk_terms : JerkTimeTerms
         The time base of the jerk at each node (:meth:`node_jerk_time`).
+    jerk_node_scale : ndarray, shape (distinct nodes,), or None
+        The factor :attr:`jerk_terms` carry on each node's terms over
+        :func:`curvespeed.jerk_model.jerk_time_terms`'s: the time base of the nodes of a launch
+        planned as its ramp (:func:`curvespeed.launch_steps.launch_steps`), so that a
+        receding-horizon window's terms carry it too. None: none (all 1).
     mu_long, mu_lat : ndarray, shape (n+1,)
         Tyre-road friction along and across the path at each node: the route's
         (``Limits.mu_long``, ``Limits.mu_lat``) or a friction section's
@@ -223,6 +234,7 @@ class SpeedProblem:
     accel_start_tolerance_mps2: float = 0.0
     end_reserve: tuple | None = None
     rate_spread: tuple | None = None
+    jerk_node_scale: np.ndarray | None = None
 
     @property
     def n_nodes(self) -> int:

@@ -62,8 +62,8 @@ class Profile:
         the time of any profile within them, s.
     linear_time_coef : ndarray, shape (n,) or None
         For each step away from rest that a launch's (or a stop's) jerk ramp spans, planned as
-        driven at constant jerk, the ``c`` of its time ``c ds / (v[k] + v[k+1])``, a little
-        over 2 (:func:`curvespeed.jerk_model.launch_time_factors`); 0 for every other step.
+        driven at constant jerk, the ``c`` of its time ``c ds / (v[k] + v[k+1])``, near 2
+        (:func:`curvespeed.launch_steps.launch_steps`); 0 for every other step.
         None: no such step.
     """
 

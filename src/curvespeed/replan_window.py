@@ -21,6 +21,7 @@ from .diagnose import braking_decel, cap_words, grip_words, undrivable_station
 from .errors import InfeasibleError
 from .geometry import Geometry
 from .jerk_model import jerk_time_terms, rest_nodes, with_rest_steps
+from .launch_steps import scaled_terms
 from .limits import Limits, RouteConstraints, Stop, stop_node
 from .problem import SpeedProblem, build_problem
 from .solvers import SolveResult, SolveStatus
@@ -146,6 +147,8 @@ class RouteTables:
                 terms = _without_node(terms, nsteps)
             if key is not None:
                 self._moving_terms[key] = terms
+        if src.jerk_node_scale is not None:     # a launch's nodes, as in the route
+            terms = scaled_terms(terms, src.jerk_node_scale[idx % self.nv], keep_first=True)
         terms, head_start = self._start_ramp(terms, b0, a0)
         problem = replace(
             src, station_m=self.station_m[idx], closed=False,
@@ -160,7 +163,7 @@ class RouteTables:
             accel_start_mps2=float(a0),
             accel_start_tolerance_mps2=float(a_tolerance) + head_start,
             jerk_model=w.jerk_model, end_reserve=reserve,
-            jerk_terms=terms, rate_spread=None if src.rate_spread is None else (
+            jerk_terms=terms, jerk_node_scale=None, rate_spread=None if src.rate_spread is None else (
                 src.rate_spread[0][st], src.rate_spread[1][st]))
         if reshape:
             problem = self._reshape(problem, rest)

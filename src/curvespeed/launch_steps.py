@@ -1,0 +1,167 @@
+"""The steps of a launch (or stop) planned as its jerk ramp: their time, their acceleration at
+their far node, and the jerk's time base at their nodes.
+
+Part of the one definition of the discrete problem (:mod:`curvespeed.problem`):
+:func:`curvespeed.jerk_model.with_rest_steps` calls :func:`launch_steps` for each launch whose
+jerk ramp from rest spans more than the step next to rest, and carries what it returns into the
+problem (``time_coef``, ``accel_factor_start`` / ``accel_factor_end``, ``jerk_node_scale``).
+The motion those steps are driven with is :func:`curvespeed.launch_motion.planned_launch`'s.
+Nothing here reads or writes files.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from .launch_motion import PlannedLaunch, accel_phase, planned_launch
+
+if TYPE_CHECKING:
+    from .jerk_model import JerkTimeTerms
+    from .problem import SpeedProblem
+
+
+@dataclass(frozen=True)
+class LaunchSteps:
+    """What planning launches (and stops) as their ramps changes in a problem
+    (:func:`launch_steps`): a factor on each step's time coefficient (1 elsewhere); the
+    acceleration factor at the far node from rest of each step of a ramp (a launch's step's
+    last node, a stop's step's first node; NaN elsewhere); and the time base of each node of a
+    ramp with the speeds of the motion there (node -> (base, speeds of the node's previous, own
+    and next node))."""
+
+    time_factor: np.ndarray
+    f_start: np.ndarray
+    f_end: np.ndarray
+    bases: dict
+
+
+def launch_steps(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray,
+                 ramp_m: np.ndarray, accel: np.ndarray, held: np.ndarray) -> LaunchSteps:
+    """The steps after the step next to rest (step ``steps[i]``, leaving rest or arriving) of
+    each launch's (or stop's) jerk ramp, ``ramp_m[i]`` long to at most ``accel[i]`` (which the
+    move holds where ``held[i]``, :func:`curvespeed.jerk_model.accel_held`), driven as
+    :func:`curvespeed.launch_motion.planned_launch` plans them: with the acceleration linear in
+    time, at the bound up to the step in which the ramp ends.
+
+    * Each such step takes the motion's time, a factor (over 1 where the acceleration rises, the
+      speed being convex in time) on the constant-acceleration step's ``2 ds / (v + v')`` between
+      the motion's own speeds at its ends.
+    * A step's acceleration at its near node is its mean ``(v'^2 - v^2) / (2 ds)``, which is the
+      motion's at the step's distance-weighted mean time (the acceleration being linear in time
+      over it); at its far node it is the motion's there (on the ramp; the cap where the step
+      goes on to it), or for the step in which the move turns, at a time between its mean time
+      and its far node as far as the ramp's end lies between its near and far node: a factor
+      on its mean at the motion's speeds. So the acceleration bounds at the far node hold the
+      acceleration a step rising through it ends with, and a ramp's end moving across a node
+      changes the problem continuously.
+    * A node's time base is the motion's time between the points at which the steps on either
+      side take their accelerations (:func:`scale_for_bases` sizes the node's terms to it).
+    * Only the steps up to the first whose far node allows less than the motion's acceleration
+      there (at the motion's speed; a curve, say) are planned so: past it the plan is held down
+      by that limit, not driven along the ramp. Where two ramps overlap the larger time factor
+      counts.
+    """
+    ds = problem.ds
+    n_steps, nv = problem.n_nodes - 1, problem.n_nodes - (1 if problem.closed else 0)
+    factor = np.full(n_steps, np.nan)
+    f_start, f_end = np.full(n_steps, np.nan), np.full(n_steps, np.nan)
+    bases: dict = {}
+    for k, out, length, cap, hold in zip(steps, leaving, ramp_m, accel, held):
+        launch = _launch_within(problem, int(k), bool(out), float(length), float(cap),
+                                bool(hold))
+        last = launch.corner                                  # the step the ramp ends in
+        t, v, _ = launch.states(ds, last + 3)
+        mean = launch.motion.mean_time(t[:-1], t[1:], ds)     # each step's, from rest
+        ref = t[1:].copy()                                    # where its far node's is taken
+        ref[last] = mean[last] + launch.peak_share * (t[last + 1] - mean[last])
+        ref[last + 1:] = mean[last + 1:]
+        a_ref = launch.motion.at_time(ref)[2]
+        i = np.arange(1, last + 1)                            # the steps, from rest
+        at = k + i if out else k - i
+        far = at + 1 if out else at
+        if not problem.closed:
+            inside = (at >= 0) & (at < n_steps)
+            i, at, far = i[inside], at[inside], far[inside]
+        lo, hi = problem.accel_bounds(v[i + 1] ** 2, nodes=far % nv)
+        short = np.flatnonzero(a_ref[i] > (hi if out else -lo) * (1.0 + 1e-12))
+        n_ok = int(short[0]) if short.size else i.size
+        i, at = i[:n_ok], at[:n_ok] % n_steps
+        fac = np.diff(t)[i] * (v[i] + v[i + 1]) / (2.0 * ds)
+        factor[at] = np.where(np.isnan(factor[at]), fac, np.maximum(factor[at], fac))
+        (f_end if out else f_start)[at] = a_ref[i] * 2.0 * ds / (v[i + 1] ** 2 - v[i] ** 2)
+        for j in range(1, n_ok + 2):                          # the nodes, from rest
+            node = (k + j) if out else (k + 1 - j)
+            if problem.closed or 0 <= node < problem.n_nodes:
+                speeds = v[j - 1: j + 2] if out else v[j - 1: j + 2][::-1]
+                before = t[1] if j == 1 else ref[j - 1]      # the step next to rest: its end
+                bases[int(node % nv)] = (mean[j] - before, speeds)
+    return LaunchSteps(np.where(np.isnan(factor), 1.0, factor), f_start, f_end, bases)
+
+
+def holds_past_corner(span_m: float, v_top: float, accel: float, ramp_m: float, jerk: float,
+                      ds: float) -> bool:
+    """Whether the double-S move of ``span_m`` under ``v_top``, ``accel`` and ``jerk``
+    (:func:`curvespeed.launch_motion.accel_phase`) reaches ``accel`` and still holds it when the
+    launch planned to go on to it (:func:`curvespeed.launch_motion.planned_launch`) reaches the
+    far node of the step in which its ramp ends."""
+    tj, ta = accel_phase(span_m, v_top, accel, jerk)
+    if jerk * tj < accel * (1.0 - 1e-9) or ramp_m < ds * (1.0 - 1e-9):
+        return False
+    launch = planned_launch(ramp_m, accel, jerk, ds, True)
+    t, _, _ = launch.states(ds, launch.corner + 2)
+    return bool(t[-1] <= ta - tj)
+
+
+def _launch_within(problem: SpeedProblem, k: int, out: bool, ramp_m: float,
+                   accel: float, hold: bool) -> PlannedLaunch:
+    """:func:`curvespeed.launch_motion.planned_launch` for the launch (or stop) next to step
+    ``k``, going on to a cap no higher than the far node of its last step allows at the speed
+    the motion reaches there (``accel`` is what the moving node of the step next to rest allows;
+    a curve, or the comfort ellipse's lateral part, may allow less further on). A lower cap
+    there lowers the speed there, which lowers no acceleration bound."""
+    jerk, ds = problem.limits.max_jerk_mps3, problem.ds
+    n_steps, nv = problem.n_nodes - 1, problem.n_nodes - (1 if problem.closed else 0)
+    launch = planned_launch(ramp_m, accel, jerk, ds, hold)
+    far = k + launch.corner + 1 if out else k - launch.corner
+    if launch.peak_share < 1.0 or not (problem.closed or 0 <= far <= n_steps):
+        return launch
+    _, v, _ = launch.states(ds, launch.corner + 2)
+    lo, hi = problem.accel_bounds(np.array([v[-1] ** 2]), nodes=np.array([far % nv]))
+    there = float(hi[0] if out else -lo[0])
+    if there >= accel:
+        return launch
+    return planned_launch(ramp_m, there * (1.0 - 1e-12), jerk, ds, hold)
+
+
+def scale_for_bases(problem: SpeedProblem, terms: JerkTimeTerms, bases: dict) -> np.ndarray:
+    """A factor on every distinct node's jerk terms (1 where ``bases`` has no entry) that makes
+    the smallest of a node's terms, at the speeds ``bases`` gives for it, the time base it gives
+    (0: the acceleration may not change there)."""
+    nv = problem.n_nodes - (1 if problem.closed else 0)
+    scale = np.ones(nv)
+    for node, (tau, speeds) in bases.items():
+        mine = np.flatnonzero(terms.node == node)
+        if mine.size == 0:
+            continue
+        w = terms.weights[mine] @ np.asarray(speeds, dtype=float)
+        live = (terms.scale[mine] > 0.0) & (w > 0.0)
+        if live.any():
+            low = float(np.min(terms.scale[mine][live] * problem.ds / w[live]))
+            scale[node] = max(tau, 0.0) / low
+    return scale
+
+
+def scaled_terms(terms: JerkTimeTerms, node_scale: np.ndarray | None,
+                 keep_first: bool = False) -> JerkTimeTerms:
+    """``terms`` with each node's terms scaled by ``node_scale`` (None: unchanged);
+    ``keep_first`` leaves node 0's as they are (a receding-horizon window's first node is the
+    vehicle's, whose terms are its own)."""
+    if node_scale is None:
+        return terms
+    factor = np.asarray(node_scale, dtype=float)[terms.node]
+    if keep_first:
+        factor = np.where(terms.node == 0, 1.0, factor)
+    return replace(terms, scale=terms.scale * factor)
