@@ -78,18 +78,32 @@ class JerkPieces:
             a = np.where(on, a0 + j * h, a)
         return s, v, a
 
-    def time_at(self, distance, upper_s: float, iterations: int = 200):
+    def time_at(self, distance, upper_s: float, iterations: int = 60):
         """Time at which the motion has covered ``distance`` (reached before ``upper_s``, while
-        it moves forward), by bisection to the last bit."""
-        d = np.asarray(distance, dtype=float)
-        lo, hi = np.zeros_like(d), np.full_like(d, upper_s)
+        it moves forward): on the piece the distance falls in, the root of its cubic by Newton's
+        method kept inside a shrinking bracket (bisection where a step would leave it), to the
+        last bits."""
+        d = np.atleast_1d(np.asarray(distance, dtype=float))
+        knots = np.array(self._knots())
+        k = np.clip(np.searchsorted(knots[:, 2], d, side="right") - 1, 0, len(knots) - 1)
+        t0, j, s0, v0, a0 = knots[k].T
+        ends = np.append(knots[1:, 0], max(upper_s, float(knots[-1, 0])))
+        lo, hi = np.zeros_like(d), ends[k] - t0
+        gap = d - s0
+        h = 0.5 * (lo + hi)
         for _ in range(iterations):
-            mid = 0.5 * (lo + hi)
-            ahead = self.at_time(mid)[0] < d
-            lo, hi = np.where(ahead, mid, lo), np.where(ahead, hi, mid)
-            if np.all(hi - lo <= 4e-16 * hi):
+            f = h * (v0 + h * (a0 / 2 + h * j / 6)) - gap
+            lo, hi = np.where(f < 0.0, h, lo), np.where(f < 0.0, hi, h)
+            slope = v0 + h * (a0 + h * j / 2)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                step = h - f / slope
+            h_new = np.where((slope > 0.0) & (step >= lo) & (step <= hi), step, 0.5 * (lo + hi))
+            done = (np.abs(h_new - h) <= 4e-16 * (t0 + h)) | (gap <= 0.0)
+            h = h_new
+            if np.all(done):
                 break
-        return 0.5 * (lo + hi)
+        out = t0 + np.where(gap > 0.0, h, 0.0)        # at a piece's start: its start time
+        return out if np.ndim(distance) else out[0]
 
     def mean_time(self, t0, t1, ds: float):
         """Distance-weighted mean time of the stretches between times ``t0`` and ``t1``, each
