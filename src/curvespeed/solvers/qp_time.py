@@ -12,7 +12,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 if TYPE_CHECKING:
-    from .convex_qp import QPLayout
+    from .qp_layout import QPLayout
 
 #: Floor on squared speed where a square root is linearised, m^2/s^2 ((0.05 m/s)^2).
 B_FLOOR = 0.0025
