@@ -2,21 +2,21 @@
 
 A time-optimal jerk-limited launch from rest (the double-S motion, Biagiotti & Melchiorri 2008,
 section 3.4) ramps its acceleration at the bound ``J`` until it reaches its peak: the
-acceleration cap, or where the move turns. :mod:`curvespeed.jerk_model` plans the steps wholly
-inside that ramp as the ramp itself, and the step in which the ramp ends as a step driven with
-its acceleration linear in time (a profile's ``linear_accel`` step, so that an exported
-trajectory drives exactly what was planned):
+acceleration cap, or where the move turns. :mod:`curvespeed.launch_steps` plans the steps
+wholly inside that ramp as the ramp itself, and the step in which the ramp ends
+(:func:`planned_launch`):
 
-* where the ramp going on at ``J`` to the step's far node stays within the acceleration the
-  launch may reach there, the step is one more step of the ramp (the ramp then ends at a
-  node; the acceleration turns after it);
-* otherwise the step goes from the ramp's acceleration at its near node to that cap at its far
-  node, linearly in time (a jerk below ``J``), and the cap holds after it.
+* where the move holds the cap, as a step from the ramp's acceleration at its near node to the
+  cap at its far node, linearly in time (a jerk below ``J``; a profile's ``linear_accel`` step,
+  which an exported trajectory drives exactly), the cap held after it;
+* where the move turns below the cap, as the double-S motion itself: the ramp up to its peak,
+  then ``-J`` (exported as the constant-jerk step with the same time, below the peak).
 
 :class:`JerkPieces` is such a motion (constant jerk by pieces, from rest): time, speed and
-acceleration at any distance, and a stretch's distance-weighted mean time ``int t ds / ds``,
-at which a step's mean acceleration ``(v'^2 - v^2) / (2 ds)`` is the motion's wherever the
-acceleration is linear in time over the step. Nothing here reads or writes files.
+acceleration at any time or distance, and a stretch's distance-weighted mean time
+``int t ds / ds``, at which a step's mean acceleration ``(v'^2 - v^2) / (2 ds)`` is the
+motion's wherever the acceleration is linear in time over the step; :func:`accel_phase` is the
+closed form's acceleration phase. Nothing here reads or writes files.
 """
 
 from __future__ import annotations
@@ -145,9 +145,10 @@ def planned_launch(ramp_m: float, accel: float, jerk: float, ds: float,
                    hold: bool = True) -> PlannedLaunch:
     """The launch as planned (module docstring) for a jerk ramp from rest ``ramp_m`` long (at
     least one step), with ``accel`` the acceleration it may reach and ``hold`` whether the move
-    holds it once there (:func:`curvespeed.jerk_model.accel_held`): the ramp's peak is ``accel``
-    where it reaches it (``J^2 ramp_m = accel^3 / 6``) and holds it; else the move turns at
-    the peak and the step in which it does is the double-S motion's own (ramp, then ``-J``)."""
+    holds it once there (:func:`curvespeed.launch_steps.holds_past_corner`): the ramp's peak is
+    ``accel`` where it reaches it (``J^2 ramp_m = accel^3 / 6``) and holds it; else the move
+    turns at the peak and the step in which it does is the double-S motion's own (ramp, then
+    ``-J``)."""
     m = max(int(math.ceil(ramp_m / ds - 1e-9)) - 1, 1)
     t_m = (6.0 * m * ds / jerk) ** (1.0 / 3.0)
     t_peak = (6.0 * ramp_m / jerk) ** (1.0 / 3.0)

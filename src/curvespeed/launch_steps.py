@@ -42,9 +42,10 @@ def launch_steps(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray,
                  ramp_m: np.ndarray, accel: np.ndarray, held: np.ndarray) -> LaunchSteps:
     """The steps after the step next to rest (step ``steps[i]``, leaving rest or arriving) of
     each launch's (or stop's) jerk ramp, ``ramp_m[i]`` long to at most ``accel[i]`` (which the
-    move holds where ``held[i]``, :func:`curvespeed.jerk_model.accel_held`), driven as
-    :func:`curvespeed.launch_motion.planned_launch` plans them: with the acceleration linear in
-    time, at the bound up to the step in which the ramp ends.
+    move holds where ``held[i]``, :func:`holds_past_corner`), driven as
+    :func:`curvespeed.launch_motion.planned_launch` plans them: the acceleration linear in time,
+    at the bound up to the step in which the ramp ends, and in that step linear to the cap (a
+    move that holds it) or the double-S motion through its peak (a move that turns).
 
     * Each such step takes the motion's time, a factor (over 1 where the acceleration rises, the
       speed being convex in time) on the constant-acceleration step's ``2 ds / (v + v')`` between
