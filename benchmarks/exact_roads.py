@@ -398,6 +398,10 @@ def sweep_summary(rows: list[tuple], worst: int = 3) -> str:
         ok = sum(DOUBLE_S_BAND[0] <= rel[r] <= DOUBLE_S_BAND[1] for r in mine)
         lines.append(f"| {L:g} | {len(mine)} | {ok} | {100 * min(rel[r] for r in mine):+.3f} % | "
                      f"{100 * max(rel[r] for r in mine):+.3f} % |")
+    below = sum(rel[r] < DOUBLE_S_BAND[0] for r in rows)
+    above = sum(rel[r] > DOUBLE_S_BAND[1] for r in rows)
+    lines.append(f"\n{len(rows) - below - above} of {len(rows)} within the target, {below} below "
+                 f"it, {above} above it.")
     ranked = sorted(rows, key=rel.get)
     lines.append("\nFurthest below and above the closed form (L, v, a, j):")
     for r in ranked[:worst] + ranked[-worst:]:
