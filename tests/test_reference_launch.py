@@ -158,3 +158,25 @@ def test_a_window_from_rest_carries_the_launch_time_bases_of_the_route():
     np.testing.assert_allclose(window.problem.node_jerk_time(b[:window.problem.n_nodes])[1:n],
                                route.node_jerk_time(b)[1:n], rtol=1e-12)
     assert np.any(route.jerk_node_scale[1:n] != 1.0)
+
+
+def test_a_launch_the_route_does_not_let_complete_keeps_the_staircase():
+    # At 0.3 m/s^3 the closed form's acceleration phase towards 25 m/s takes 24 s and some
+    # 200 m (same source). A 20 m radius 40 m from the stop caps the speed at about 7 m/s
+    # (sqrt(2.5 m/s^2 * 20 m)): the jerk-free envelope already falls there, so no plan can
+    # follow that launch; it is not planned as it (the step leaving rest keeps the continuing
+    # ramp's shape, the next steps constant acceleration). On the straight it is.
+    from helpers import geometry_from_curvature
+
+    from curvespeed import rest_step
+    from curvespeed.limits import Limits, RouteConstraints
+
+    limits = Limits(max_jerk_mps3=0.3, max_speed_mps=25.0)
+    kappa = np.zeros(401)
+    kappa[40:80] = 1.0 / 20.0
+    curve = build_problem(geometry_from_curvature(kappa, ds=1.0), limits, RouteConstraints())
+    straight = build_problem(geometry_from_curvature(np.zeros(401), ds=1.0), limits,
+                             RouteConstraints())
+    assert straight.rest_u[0] == 1.0 and straight.time_coef[1] != 2.0
+    assert curve.rest_u[0] == pytest.approx(rest_step.U_CONTINUING, rel=1e-12)
+    assert np.all(curve.time_coef[1:30] == 2.0) and curve.jerk_node_scale is None
