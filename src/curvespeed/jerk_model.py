@@ -113,24 +113,9 @@ def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
     shaped = None
     beyond = np.flatnonzero(accel >= rest_step.max_ramp_accel(jerk, ds))
     if beyond.size:     # the ramp goes on past the moving node
-        k, out = steps[beyond], leaving[steps[beyond]]
-        allowed = rest_step_allowed_accel(problem, moving[beyond], out)
-        span_m, v_top = rest_stretches(problem, rest, k, out)
-        paths = envelope_paths(problem, k, out)
-        held = _held(span_m, v_top, allowed, jerk)
-        u[k] = np.where(held, rest_step.continuing_shape(allowed, jerk, ds), u[k])
-        ramp_m = launch_ramp_m(span_m, v_top, allowed, jerk)
-        hold = np.array([holds_past_corner(*args, jerk, ds) for args in
-                         zip(span_m, v_top, allowed, ramp_m)], dtype=bool).reshape(-1)
-        turns = np.cbrt(6.0 * jerk * jerk * ramp_m) < allowed * (1.0 - 1e-9)
-        fits = np.array([phase_fits(p, *args, jerk, ds) for p, args in
-                         zip(paths, zip(span_m, v_top, allowed))], dtype=bool).reshape(-1)
-        launch = ((u[k] <= rest_step.U_CONTINUING) & (ramp_m >= ds * (1.0 - 1e-9))
-                  & (hold | turns) & fits)
-        if launch.any():
-            u[k[launch]] = 1.0
-            shaped = launch_steps(problem, k[launch], out[launch], ramp_m[launch],
-                                  allowed[launch], hold[launch])
+        shaped = _continuing_ramps(problem, rest, steps[beyond], leaving[steps[beyond]],
+                                   moving[beyond], u)
+        if shaped is not None:
             time_coef *= shaped.time_factor
     f = rest_step.accel_factor(u[steps])
     time_coef[steps] = rest_step.time_coef(u[steps])
@@ -155,6 +140,33 @@ def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
     return replace(problem, time_coef=time_coef, accel_factor_start=f_start,
                    accel_factor_end=f_end, rest_u=u, cap_b=cap, cap_source=source,
                    jerk_terms=scaled_terms(terms, node_scale), jerk_node_scale=node_scale)
+
+
+def _continuing_ramps(problem: SpeedProblem, rest: np.ndarray, k: np.ndarray, out: np.ndarray,
+                      moving: np.ndarray, u: np.ndarray):
+    """The shapes of the steps next to rest ``k`` (leaving rest where ``out``; moving nodes
+    ``moving``) whose ramp goes on past their moving node, set in ``u`` (:func:`with_rest_steps`
+    says which), and the further steps of those planned as their ramp
+    (:class:`curvespeed.launch_steps.LaunchSteps`; None if none is)."""
+    jerk, ds = problem.limits.max_jerk_mps3, problem.ds
+    allowed = rest_step_allowed_accel(problem, moving, out)
+    span_m, v_top = rest_stretches(problem, rest, k, out)
+    held = _held(span_m, v_top, allowed, jerk)
+    u[k] = np.where(held, rest_step.continuing_shape(allowed, jerk, ds), u[k])
+    ramp_m = launch_ramp_m(span_m, v_top, allowed, jerk)
+    hold = np.array([holds_past_corner(*args, jerk, ds) for args in
+                     zip(span_m, v_top, allowed, ramp_m)], dtype=bool).reshape(-1)
+    turns = np.cbrt(6.0 * jerk * jerk * ramp_m) < allowed * (1.0 - 1e-9)
+    launch = (u[k] <= rest_step.U_CONTINUING) & (ramp_m >= ds * (1.0 - 1e-9)) & (hold | turns)
+    if launch.any():           # the route must let the closed form's phase run its course
+        paths = envelope_paths(problem, k[launch], out[launch])
+        launch[launch] = [phase_fits(p, *args, jerk, ds) for p, args in
+                          zip(paths, zip(span_m[launch], v_top[launch], allowed[launch]))]
+    if not launch.any():
+        return None
+    u[k[launch]] = 1.0
+    return launch_steps(problem, k[launch], out[launch], ramp_m[launch], allowed[launch],
+                        hold[launch])
 
 
 def rest_step_accel(problem: SpeedProblem, moving: np.ndarray, leaving: np.ndarray,
