@@ -148,23 +148,6 @@ def largest_true(holds, lo, hi, iterations: int = 60):
     return lo
 
 
-def ramp_from_rest(distance, jerk):
-    """Time, speed and acceleration of a constant-jerk ramp from rest when it has covered
-    ``distance``: ``s = J t^3 / 6``, ``v = J t^2 / 2``, ``a = J t``."""
-    t = np.cbrt(6.0 * np.maximum(np.asarray(distance, dtype=float), 0.0) / jerk)
-    return t, 0.5 * jerk * t * t, jerk * t
-
-
-def ramp_step_time_factor(start_m, ds, jerk):
-    """Time a constant-jerk ramp from rest takes from ``start_m`` to ``start_m + ds`` over the
-    constant-acceleration step's ``2 ds / (v + v')`` between its speeds there: at least 1
-    (the ramp's speed is convex in time, so its mean speed is below the ends' mean). Exact
-    (:func:`ramp_from_rest`)."""
-    (t0, v0, _), (t1, v1, _) = ramp_from_rest(start_m, jerk), ramp_from_rest(
-        np.asarray(start_m, dtype=float) + ds, jerk)
-    return (t1 - t0) * (v0 + v1) / (2.0 * ds)
-
-
 def linear_accel_step(ds, v0, v1, duration):
     """Start acceleration and jerk of a step driven at constant jerk (its acceleration linear in
     time) from ``v0`` to ``v1`` over ``ds`` in ``duration`` seconds: ``v1 = v0 + a0 T + J T^2 /
@@ -251,5 +234,5 @@ def leaving_time_at_distance(u, v_moving, ds, d):
 __all__ = ["U_CONTINUING", "accel_factor", "continuing_shape", "flat_time_coef", "jerk_cap_b",
            "largest_true", "leaving_state_at_time", "leaving_time_at_distance",
            "linear_accel_step", "linear_state_at_time", "linear_time_at_distance",
-           "max_ramp_accel", "ramp_from_rest", "ramp_jerk", "ramp_step_time_factor", "ramp_time",
+           "max_ramp_accel", "ramp_jerk", "ramp_time",
            "shape_for_accel", "shape_from_time_coef", "time_coef"]
