@@ -180,3 +180,25 @@ def test_a_launch_the_route_does_not_let_complete_keeps_the_staircase():
     assert straight.rest_u[0] == 1.0 and straight.time_coef[1] != 2.0
     assert curve.rest_u[0] == pytest.approx(rest_step.U_CONTINUING, rel=1e-12)
     assert np.all(curve.time_coef[1:30] == 2.0) and curve.jerk_node_scale is None
+
+
+def test_a_launch_into_a_curve_goes_to_the_cap_its_last_step_allows():
+    # On a 40 m radius (10 m/s under the 2.5 m/s^2 lateral cap, the top speed here) the comfort
+    # ellipse allows 3 m/s^2 * sqrt(1 - (v^2 / (R 2.5))^2) along the path: 2.999 m/s^2 at the
+    # step next to rest's moving node (1.65 m/s), 2.92 at 5 m where the ramp (3 m/s^2 at
+    # 1 m/s^3: 4.5 m) ends. That step still goes on linearly in time, to what its far node
+    # allows at the speed the launch reaches there, rather than being cut off the launch.
+    from helpers import geometry_from_curvature
+
+    from curvespeed.limits import Limits, RouteConstraints
+    from curvespeed.planner import plan_profile
+
+    limits = Limits(max_jerk_mps3=1.0, max_accel_mps2=3.0, max_decel_mps2=3.0,
+                    max_speed_mps=10.0)
+    geo = geometry_from_curvature(np.full(301, 1.0 / 40.0), ds=1.0)
+    problem = build_problem(geo, limits, RouteConstraints())
+    assert problem.rest_u[0] == 1.0 and problem.time_coef[4] != 2.0
+    b = plan_profile(geo, limits).speed_mps ** 2
+    end_accel = problem.accel_factor_end[4] * (b[5] - b[4]) / 2.0
+    _, hi = problem.accel_bounds(b[5:6], nodes=np.array([5]))
+    assert hi[0] < 2.95 and end_accel <= hi[0] * (1 + 1e-9)

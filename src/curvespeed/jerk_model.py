@@ -17,9 +17,8 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from . import rest_step
-from .errors import InfeasibleError, LimitsError
-from .launch_motion import JerkPieces, accel_phase
-from .launch_steps import holds_past_corner, launch_steps, scale_for_bases, scaled_terms
+from .errors import LimitsError
+from .launch_steps import closed_form_launches, launch_steps, scale_for_bases, scaled_terms
 from .limits import stop_node
 
 if TYPE_CHECKING:
@@ -91,12 +90,12 @@ def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
     of the rise to the change about the node (:func:`curvespeed.rest_step.continuing_shape`).
 
     A launch (or stop) keeping the flat part of a continuing ramp is planned as its ramp
-    instead (the double-S closed form's, :func:`launch_ramp_m`): the step ramps over its whole
-    length (``u = 1``) and the next ones are driven as :mod:`curvespeed.launch_steps` says, up
-    to the step in which the ramp ends. That needs the route to let the closed form's
-    acceleration phase run its course (:func:`phase_fits`), and the move either to turn below
-    the cap, or to still hold the cap when that step ends
-    (:func:`curvespeed.launch_steps.holds_past_corner`).
+    instead (the double-S closed form's, :func:`curvespeed.launch_motion.accel_phase`): the
+    step ramps over its whole length (``u = 1``) and the next ones are driven as
+    :mod:`curvespeed.launch_steps` says, up to the step in which the ramp ends. That needs the
+    route to let the closed form's acceleration phase run its course, and the move either to
+    turn below the cap, or to still hold the cap when that step ends
+    (:func:`curvespeed.launch_steps.closed_form_launches`).
     A move that reaches the cap and soon leaves it is neither; it keeps the staircase (measured
     on 14-25 m moves at 3 m/s^2 and 2 m/s^3 at 1 m stations, +0.10 to +0.33 % over the closed
     form; planned as ramp-and-hold they came out +0.3 to +1.5 %, as ramp-and-turn at the cap
@@ -153,20 +152,12 @@ def _continuing_ramps(problem: SpeedProblem, rest: np.ndarray, k: np.ndarray, ou
     span_m, v_top = rest_stretches(problem, rest, k, out)
     held = _held(span_m, v_top, allowed, jerk)
     u[k] = np.where(held, rest_step.continuing_shape(allowed, jerk, ds), u[k])
-    ramp_m = launch_ramp_m(span_m, v_top, allowed, jerk)
-    hold = np.array([holds_past_corner(*args, jerk, ds) for args in
-                     zip(span_m, v_top, allowed, ramp_m)], dtype=bool).reshape(-1)
-    turns = np.cbrt(6.0 * jerk * jerk * ramp_m) < allowed * (1.0 - 1e-9)
-    launch = (u[k] <= rest_step.U_CONTINUING) & (ramp_m >= ds * (1.0 - 1e-9)) & (hold | turns)
-    if launch.any():           # the route must let the closed form's phase run its course
-        paths = envelope_paths(problem, k[launch], out[launch])
-        launch[launch] = [phase_fits(p, *args, jerk, ds) for p, args in
-                          zip(paths, zip(span_m[launch], v_top[launch], allowed[launch]))]
+    launch, ramp_m = closed_form_launches(problem, k, out, span_m, v_top, allowed,
+                                          u[k] <= rest_step.U_CONTINUING)
     if not launch.any():
         return None
     u[k[launch]] = 1.0
-    return launch_steps(problem, k[launch], out[launch], ramp_m[launch], allowed[launch],
-                        hold[launch])
+    return launch_steps(problem, k[launch], out[launch], ramp_m[launch], allowed[launch])
 
 
 def rest_step_accel(problem: SpeedProblem, moving: np.ndarray, leaving: np.ndarray,
@@ -235,52 +226,6 @@ def rest_stretches(problem: SpeedProblem, rest: np.ndarray, steps: np.ndarray,
     return span * problem.ds, v_top
 
 
-def envelope_paths(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray) -> list:
-    """For each step next to rest, the forward-backward envelope's speeds (no jerk bound) along
-    the route from its rest node away from rest, m/s, up to where the envelope first falls
-    again: no move from rest is faster there, whatever caps lie further on (a curve soon after
-    a stop, say). None for each where the envelope does not exist (the solver says why)."""
-    from .solvers.envelope import solve_envelope
-
-    # a free end (a receding-horizon window's) taken at rest: the launch must fit before it
-    end = problem.b_end if problem.closed or problem.b_end is not None else 0.0
-    try:
-        env = np.sqrt(np.maximum(
-            solve_envelope(replace(problem, jerk_model=False, b_end=end)).b, 0.0))
-    except InfeasibleError:
-        return [None] * steps.size
-    n, nv = problem.n_nodes, problem.n_nodes - (1 if problem.closed else 0)
-    paths = []
-    for k, away in zip(steps, leaving):
-        node = int(k) if away else int(k) + 1             # the step's rest node
-        if problem.closed:
-            path = (node + (np.arange(nv + 1) if away else -np.arange(nv + 1))) % nv
-        else:
-            path = np.arange(node, n) if away else np.arange(node, -1, -1)
-        speed = env[path]
-        falls = np.flatnonzero(np.diff(speed) < -1e-9 * speed[1:])      # beyond rounding
-        paths.append(speed[: (falls[0] + 1) if falls.size else speed.size])
-    return paths
-
-
-def phase_fits(path_speed, span_m: float, v_top: float, accel: float, jerk: float,
-               ds: float) -> bool:
-    """Whether the double-S acceleration phase of the move (``span_m`` under ``v_top``,
-    ``accel`` and ``jerk``; :func:`curvespeed.launch_motion.accel_phase`) stays within the
-    envelope's speeds ``path_speed`` (one per node from rest, :func:`envelope_paths`) until it
-    ends: only then can a plan follow the closed form's launch."""
-    if path_speed is None:
-        return False
-    tj, ta = accel_phase(span_m, v_top, accel, jerk)
-    phase = JerkPieces((0.0, tj, ta - tj), (jerk, 0.0, -jerk))
-    s_end = float(phase.at_time(ta)[0])
-    nodes = int(min(math.ceil(s_end / ds) + 1, path_speed.size))
-    if nodes * ds < s_end and nodes == path_speed.size:
-        return False                                   # the envelope falls before the end
-    t = phase.time_at(np.arange(nodes) * ds, ta)
-    return bool(np.all(phase.at_time(t)[1] <= path_speed[:nodes] * (1.0 + 1e-9)))
-
-
 def _held(span_m, v_top, accel, jerk):
     """:func:`accel_held` from the moves' lengths and top speeds."""
     return (span_m >= HELD_LENGTH_FACTOR * accel ** 3 / jerk ** 2) & (v_top * jerk >= accel ** 2)
@@ -299,17 +244,6 @@ def accel_held(problem: SpeedProblem, rest: np.ndarray, steps: np.ndarray,
     """
     span_m, v_top = rest_stretches(problem, rest, steps, leaving)
     return _held(span_m, v_top, np.asarray(accel, dtype=float), problem.limits.max_jerk_mps3)
-
-
-def launch_ramp_m(span_m, v_top, accel, jerk):
-    """Length of the jerk ramp from rest of a move ``span_m`` long under ``v_top`` that may
-    reach ``accel``, m: ``a_p^3 / (6 J^2)`` at its peak acceleration ``a_p``, the double-S closed
-    form's (Biagiotti & Melchiorri 2008, section 3.4): the smallest of ``accel``,
-    ``sqrt(v_top J)`` (top speed reached on the ramps) and ``J (L / (2 J))^(1/3)`` (a move of
-    ramps only)."""
-    peak = np.minimum.reduce([np.asarray(accel, dtype=float), np.sqrt(v_top * jerk),
-                              jerk * np.cbrt(np.asarray(span_m, dtype=float) / (2.0 * jerk))])
-    return peak ** 3 / (6.0 * jerk * jerk)
 
 
 def linear_time_coef(problem: SpeedProblem) -> np.ndarray:

@@ -121,6 +121,11 @@ class JerkPieces:
         return total / ds
 
 
+def turns_below(peak: float, accel: float) -> bool:
+    """Whether a ramp peaking at ``peak`` turns below the cap ``accel`` (beyond rounding)."""
+    return peak < accel * (1.0 - 1e-9)
+
+
 @dataclass(frozen=True)
 class PlannedLaunch:
     """A launch as planned (module docstring): its ``motion``; ``corner``, the index from rest of
@@ -141,18 +146,17 @@ class PlannedLaunch:
         return t, v, a
 
 
-def planned_launch(ramp_m: float, accel: float, jerk: float, ds: float,
-                   hold: bool = True) -> PlannedLaunch:
+def planned_launch(ramp_m: float, accel: float, jerk: float, ds: float) -> PlannedLaunch:
     """The launch as planned (module docstring) for a jerk ramp from rest ``ramp_m`` long (at
-    least one step), with ``accel`` the acceleration it may reach and ``hold`` whether the move
-    holds it once there (:func:`curvespeed.launch_steps.holds_past_corner`): the ramp's peak is
-    ``accel`` where it reaches it (``J^2 ramp_m = accel^3 / 6``) and holds it; else the move
-    turns at the peak and the step in which it does is the double-S motion's own (ramp, then
-    ``-J``)."""
+    least one step), with ``accel`` the acceleration it may reach: where the ramp reaches it
+    (``J^2 ramp_m >= accel^3 / 6``) the move holds it (a move that reaches it and soon leaves
+    it is not planned so, :func:`curvespeed.launch_steps.closed_form_launches`); else the move
+    turns at the ramp's peak and the step in which it does is the double-S motion's own (ramp,
+    then ``-J``)."""
     m = max(int(math.ceil(ramp_m / ds - 1e-9)) - 1, 1)
     t_m = (6.0 * m * ds / jerk) ** (1.0 / 3.0)
     t_peak = (6.0 * ramp_m / jerk) ** (1.0 / 3.0)
-    if not hold or jerk * t_peak < accel * (1.0 - 1e-9):   # the double-S turns at its peak
+    if turns_below(jerk * t_peak, accel):                  # the double-S turns at its peak
         tent = JerkPieces((0.0, t_peak), (jerk, -jerk))
         t_far = float(tent.time_at((m + 1) * ds, 3.0 * t_peak))
         share = min(max((t_peak - t_m) / (t_far - t_m), 0.0), 1.0)

@@ -11,12 +11,14 @@ Nothing here reads or writes files.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING
 
 import numpy as np
 
-from .launch_motion import PlannedLaunch, accel_phase, planned_launch
+from .errors import InfeasibleError
+from .launch_motion import JerkPieces, PlannedLaunch, accel_phase, planned_launch, turns_below
 
 if TYPE_CHECKING:
     from .jerk_model import JerkTimeTerms
@@ -39,10 +41,9 @@ class LaunchSteps:
 
 
 def launch_steps(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray,
-                 ramp_m: np.ndarray, accel: np.ndarray, held: np.ndarray) -> LaunchSteps:
+                 ramp_m: np.ndarray, accel: np.ndarray) -> LaunchSteps:
     """The steps after the step next to rest (step ``steps[i]``, leaving rest or arriving) of
-    each launch's (or stop's) jerk ramp, ``ramp_m[i]`` long to at most ``accel[i]`` (which the
-    move holds where ``held[i]``, :func:`holds_past_corner`), driven as
+    each launch's (or stop's) jerk ramp, ``ramp_m[i]`` long to at most ``accel[i]``, driven as
     :func:`curvespeed.launch_motion.planned_launch` plans them: the acceleration linear in time,
     at the bound up to the step in which the ramp ends, and in that step linear to the cap (a
     move that holds it) or the double-S motion through its peak (a move that turns).
@@ -70,9 +71,8 @@ def launch_steps(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray,
     factor = np.full(n_steps, np.nan)
     f_start, f_end = np.full(n_steps, np.nan), np.full(n_steps, np.nan)
     bases: dict = {}
-    for k, out, length, cap, hold in zip(steps, leaving, ramp_m, accel, held):
-        launch = _launch_within(problem, int(k), bool(out), float(length), float(cap),
-                                bool(hold))
+    for k, out, length, cap in zip(steps, leaving, ramp_m, accel):
+        launch = _launch_within(problem, int(k), bool(out), float(length), float(cap))
         last = launch.corner                                  # the step the ramp ends in
         t, v, _ = launch.states(ds, last + 3)
         mean = launch.motion.mean_time(t[:-1], t[1:], ds)     # each step's, from rest
@@ -102,22 +102,88 @@ def launch_steps(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray,
     return LaunchSteps(np.where(np.isnan(factor), 1.0, factor), f_start, f_end, bases)
 
 
-def holds_past_corner(span_m: float, v_top: float, accel: float, ramp_m: float, jerk: float,
+def closed_form_launches(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray,
+                         span_m: np.ndarray, v_top: np.ndarray, accel: np.ndarray,
+                         candidate: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Which of the ``candidate`` launches (or stops) next to ``steps`` are planned as the
+    double-S closed form's (:func:`curvespeed.jerk_model.with_rest_steps` says why), and each
+    one's jerk ramp length, m. The move of each is ``span_m`` long under ``v_top`` and may reach
+    ``accel`` (:func:`curvespeed.launch_motion.accel_phase`); it is planned so where its ramp
+    goes past the step next to rest, it either turns below ``accel`` or still holds it where
+    the planned ramp's last step ends (:func:`holds_past_corner`), and the route lets its
+    acceleration phase run its course (:func:`phase_fits`)."""
+    jerk, ds = problem.limits.max_jerk_mps3, problem.ds
+    phase = np.array([accel_phase(*args, jerk) for args in zip(span_m, v_top, accel)],
+                     dtype=float).reshape(-1, 2)
+    tj, ta = phase[:, 0], phase[:, 1]
+    ramp_m = jerk * tj ** 3 / 6.0
+    ok = np.asarray(candidate, dtype=bool) & (ramp_m >= ds * (1.0 - 1e-9))
+    for i in np.flatnonzero(ok):
+        if not turns_below(jerk * tj[i], accel[i]):
+            ok[i] = holds_past_corner(ramp_m[i], ta[i] - tj[i], accel[i], jerk, ds)
+    if ok.any():
+        paths = envelope_paths(problem, steps[ok], leaving[ok])
+        ok[ok] = [phase_fits(p, a, b, jerk, ds) for p, a, b in zip(paths, tj[ok], ta[ok])]
+    return ok, ramp_m
+
+
+def holds_past_corner(ramp_m: float, held_until_s: float, accel: float, jerk: float,
                       ds: float) -> bool:
-    """Whether the double-S move of ``span_m`` under ``v_top``, ``accel`` and ``jerk``
-    (:func:`curvespeed.launch_motion.accel_phase`) reaches ``accel`` and still holds it when the
-    launch planned to go on to it (:func:`curvespeed.launch_motion.planned_launch`) reaches the
-    far node of the step in which its ramp ends."""
-    tj, ta = accel_phase(span_m, v_top, accel, jerk)
-    if jerk * tj < accel * (1.0 - 1e-9) or ramp_m < ds * (1.0 - 1e-9):
-        return False
-    launch = planned_launch(ramp_m, accel, jerk, ds, True)
+    """Whether a move whose acceleration is at ``accel`` until ``held_until_s`` (the closed
+    form's ``Ta - Tj``) still holds it when the launch planned to go on to it
+    (:func:`curvespeed.launch_motion.planned_launch`) reaches the far node of the step in which
+    its ramp ends."""
+    launch = planned_launch(ramp_m, accel, jerk, ds)
     t, _, _ = launch.states(ds, launch.corner + 2)
-    return bool(t[-1] <= ta - tj)
+    return bool(t[-1] <= held_until_s)
+
+
+def envelope_paths(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray) -> list:
+    """For each step next to rest, the forward-backward envelope's speeds (no jerk bound) along
+    the route from its rest node away from rest, m/s, up to where the envelope first falls
+    again: no move from rest is faster there, whatever caps lie further on (a curve soon after
+    a stop, say). None for each where the envelope does not exist (the solver says why)."""
+    from .solvers.envelope import solve_envelope
+
+    # a free end (a receding-horizon window's) taken at rest: the launch must fit before it
+    end = problem.b_end if problem.closed or problem.b_end is not None else 0.0
+    try:
+        env = np.sqrt(np.maximum(
+            solve_envelope(replace(problem, jerk_model=False, b_end=end)).b, 0.0))
+    except InfeasibleError:
+        return [None] * steps.size
+    n, nv = problem.n_nodes, problem.n_nodes - (1 if problem.closed else 0)
+    paths = []
+    for k, away in zip(steps, leaving):
+        node = int(k) if away else int(k) + 1             # the step's rest node
+        if problem.closed:
+            path = (node + (np.arange(nv + 1) if away else -np.arange(nv + 1))) % nv
+        else:
+            path = np.arange(node, n) if away else np.arange(node, -1, -1)
+        speed = env[path]
+        falls = np.flatnonzero(np.diff(speed) < -1e-9 * speed[1:])      # beyond rounding
+        paths.append(speed[: (falls[0] + 1) if falls.size else speed.size])
+    return paths
+
+
+def phase_fits(path_speed, tj: float, ta: float, jerk: float, ds: float) -> bool:
+    """Whether the closed form's acceleration phase (jerk ``+J`` for ``tj``, none up to
+    ``ta - tj``, ``-J`` up to ``ta``) stays within the envelope's speeds ``path_speed`` (one per
+    node from rest, :func:`envelope_paths`) until it ends: only then can a plan follow the
+    closed form's launch."""
+    if path_speed is None:
+        return False
+    phase = JerkPieces((0.0, tj, ta - tj), (jerk, 0.0, -jerk))
+    s_end = float(phase.at_time(ta)[0])
+    nodes = int(min(math.ceil(s_end / ds) + 1, path_speed.size))
+    if nodes * ds < s_end and nodes == path_speed.size:
+        return False                                   # the envelope falls before the end
+    t = phase.time_at(np.arange(nodes) * ds, ta)
+    return bool(np.all(phase.at_time(t)[1] <= path_speed[:nodes] * (1.0 + 1e-9)))
 
 
 def _launch_within(problem: SpeedProblem, k: int, out: bool, ramp_m: float,
-                   accel: float, hold: bool) -> PlannedLaunch:
+                   accel: float) -> PlannedLaunch:
     """:func:`curvespeed.launch_motion.planned_launch` for the launch (or stop) next to step
     ``k``, going on to a cap no higher than the far node of its last step allows at the speed
     the motion reaches there (``accel`` is what the moving node of the step next to rest allows;
@@ -125,7 +191,7 @@ def _launch_within(problem: SpeedProblem, k: int, out: bool, ramp_m: float,
     there lowers the speed there, which lowers no acceleration bound."""
     jerk, ds = problem.limits.max_jerk_mps3, problem.ds
     n_steps, nv = problem.n_nodes - 1, problem.n_nodes - (1 if problem.closed else 0)
-    launch = planned_launch(ramp_m, accel, jerk, ds, hold)
+    launch = planned_launch(ramp_m, accel, jerk, ds)
     far = k + launch.corner + 1 if out else k - launch.corner
     if launch.peak_share < 1.0 or not (problem.closed or 0 <= far <= n_steps):
         return launch
@@ -134,7 +200,7 @@ def _launch_within(problem: SpeedProblem, k: int, out: bool, ramp_m: float,
     there = float(hi[0] if out else -lo[0])
     if there >= accel:
         return launch
-    return planned_launch(ramp_m, there * (1.0 - 1e-12), jerk, ds, hold)
+    return planned_launch(ramp_m, there * (1.0 - 1e-12), jerk, ds)
 
 
 def scale_for_bases(problem: SpeedProblem, terms: JerkTimeTerms, bases: dict) -> np.ndarray:

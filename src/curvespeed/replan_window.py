@@ -163,7 +163,8 @@ class RouteTables:
             accel_start_mps2=float(a0),
             accel_start_tolerance_mps2=float(a_tolerance) + head_start,
             jerk_model=w.jerk_model, end_reserve=reserve,
-            jerk_terms=terms, jerk_node_scale=None, rate_spread=None if src.rate_spread is None else (
+            jerk_terms=terms, jerk_node_scale=None,      # the terms carry it already
+            rate_spread=None if src.rate_spread is None else (
                 src.rate_spread[0][st], src.rate_spread[1][st]))
         if reshape:
             problem = self._reshape(problem, rest)
