@@ -82,11 +82,11 @@ class CurvatureEstimate:
     the curvature's rate (a joint of clothoid and arc or straight): ``width_m`` where the
     adaptive estimate stands, 0 where the estimate is the reconstructed alignment's lines,
     which keep their joints (within the reach of each kink the points place less well than a
-    station step, that reach). ``rate_margin`` (1/m^2) is how far a line's rate may be off: its curvature at each end
-    of its element lies within ``GAMMA`` standard deviations, so its rate within twice that over
-    the element's length, and a kink its line hides adds four times its departure over that
-    length (0 off the lines; :func:`_line_rate_margin`). The lateral jerk follows the rate
-    (:mod:`curvespeed.lateral_rates`).
+    station step, that reach). ``rate_margin`` (1/m^2) is how far a line's rate may be off: its
+    curvature at each end of its element lies within ``GAMMA`` standard deviations, so its rate
+    within twice that over the element's length, and a kink its line hides adds four times its
+    departure over that length (0 off the lines; :func:`_line_rate_margin`). The lateral jerk
+    follows the rate (:mod:`curvespeed.lateral_rates`).
     """
 
     kappa: np.ndarray
