@@ -15,7 +15,8 @@ from setuptools import Extension, setup
 
 #: Headers the kernels share (``depends``: a change rebuilds the kernels that include them;
 #: MANIFEST.in puts them in the source distribution).
-HEADERS = {"solvers": ["src/curvespeed/solvers/_accel_bounds.h"]}
+HEADERS = {"solvers": ["src/curvespeed/solvers/_accel_bounds.h",
+                       "src/curvespeed/solvers/_window_rows.h"]}
 
 
 def kernel(name: str, package: str = "solvers") -> Extension:

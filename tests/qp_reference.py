@@ -16,6 +16,7 @@ import scipy.sparse as sp
 
 from curvespeed.problem import SpeedProblem
 from curvespeed.solvers.convex_qp import B_FLOOR, QPLayout, time_model
+from curvespeed.solvers.corner_rows import SEGMENTS as CORNER_SEGMENTS
 
 if TYPE_CHECKING:
     from curvespeed.solvers.convex import ConvexOptions
@@ -127,6 +128,52 @@ class ReferenceQPBuilder:
         Dn = self.D[t.node]
         return (sp.vstack([Dn + G, -Dn + G], format="csr"),
                 np.concatenate((rhs + shift + slack, rhs - shift + slack)))
+
+    def _corner_rows(self, b_hat: np.ndarray):
+        """Corner rows (:mod:`curvespeed.solvers.corner_rows`) as scipy.sparse blocks: for each
+        side, corner step (first or second of a pair of plain steps) and chord ``(alpha, beta,
+        gamma)``, ``sign (alpha a_c - a_n) - gamma H_c - H_n <= beta cap``, with ``a`` the
+        steps' mean accelerations and ``H = J ds / (v + v')`` replaced by its tangent."""
+        p, lay, ds = self.p, self.lay, self.ds
+        lim = p.limits
+        J = lim.max_jerk_mps3 * (1.0 - self.opt.margin)
+        plain = (lay.time_coef == 2.0) & (lay.f_first == 1.0) & (lay.f_last == 1.0)
+        ns, nv = lay.n_steps, lay.nv
+        first = np.arange(ns) if p.closed and ns > 2 else np.arange(max(ns - 1, 0))
+        second = (first + 1) % ns if p.closed else first + 1
+        keep = plain[first] & plain[second]
+        pair = (first[keep], second[keep])
+        sf, st = lay.step_from, lay.step_to
+        steps = np.arange(ns)
+        h = 1.0 / (2.0 * ds)
+        Ma = sp.csr_matrix((np.concatenate((np.full(ns, -h), np.full(ns, h))),
+                            (np.concatenate((steps, steps)), np.concatenate((sf, st)))),
+                           shape=(ns, nv))
+        root = np.where(lay.fixed, np.sqrt(np.maximum(lay.fixed_value, 0.0)),
+                        np.sqrt(np.maximum(b_hat, B_FLOOR)))
+        base = np.where(lay.fixed, lay.fixed_value, b_hat)
+        w_hat = root[sf] + root[st]
+        w_hat = np.where(w_hat > 0.0, w_hat, 1.0)
+        coef = J * ds / (w_hat * w_hat)
+        s_from = np.where(lay.fixed[sf], 0.0, -coef / np.where(lay.fixed[sf], 1.0, 2.0 * root[sf]))
+        s_to = np.where(lay.fixed[st], 0.0, -coef / np.where(lay.fixed[st], 1.0, 2.0 * root[st]))
+        Hs = sp.csr_matrix((np.concatenate((s_from, s_to)),
+                            (np.concatenate((steps, steps)), np.concatenate((sf, st)))),
+                           shape=(ns, nv))
+        Hc = J * ds / w_hat - s_from * base[sf] - s_to * base[st]
+        blocks, ups = [], []
+        for sign, cap in ((1.0, lim.max_accel_mps2), (-1.0, lim.max_decel_mps2)):
+            if not np.isfinite(cap):
+                continue
+            cap = cap * (1.0 - self.opt.margin)
+            for c, n in ((0, 1), (1, 0)):
+                for alpha, beta, gamma in CORNER_SEGMENTS:
+                    blocks.append(sign * (alpha * Ma[pair[c]] - Ma[pair[n]]) - Hs[pair[n]]
+                                  - gamma * Hs[pair[c]])
+                    ups.append(beta * cap + Hc[pair[n]] + gamma * Hc[pair[c]])
+        if not blocks:
+            return sp.csr_matrix((0, nv)), np.zeros(0)
+        return sp.vstack(blocks, format="csr"), np.concatenate(ups)
 
     def _end_reserve_rows(self):
         """``b_N + c a_end <= brake_b - d`` for every ``(c, d)`` of
@@ -249,6 +296,10 @@ class ReferenceQPBuilder:
             blocks.append(J)
             lows.append(np.full(J.shape[0], -np.inf))
             ups.append(up_j)
+            C, up_c = self._corner_rows(b_hat)
+            blocks.append(C)
+            lows.append(np.full(C.shape[0], -np.inf))
+            ups.append(up_c)
 
         if lim.max_lateral_jerk_mps3 is not None:
             L, up_l = self._lateral_jerk_rows(b_hat)

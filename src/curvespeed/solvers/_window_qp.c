@@ -9,9 +9,9 @@
  * count the mean of the middle two).
  *
  * Rows come out as the reference has them: bounds, acceleration chords (ends, sides, segments,
- * steps), jerk rows (all + rows, then all -), the end reserve; the fixed stations eliminated
- * into the sides and rows with no free station dropped. Only the buffer protocol of the Python
- * C API is used.
+ * steps), jerk rows (all + rows, then all -), corner rows (_window_rows.h), the end reserve;
+ * the fixed stations eliminated into the sides and rows with no free station dropped. Only the
+ * buffer protocol of the Python C API is used.
  */
 #define PY_SSIZE_T_CLEAN
 #include <Python.h>
@@ -56,39 +56,7 @@ static double chords(double f0, double fm, double fe, double m, double e, double
     return a_tol;
 }
 
-typedef struct {                    /* the compressed rows being written (reduce_tables) */
-    const char *fixed;
-    const double *values;
-    const int64_t *free_number;
-    int64_t *indptr, *indices;
-    double *data, *lo, *up;
-    int64_t r, k;
-} rows_t;
-
-/* qp_rows.reduce_rows on one canonical row of w slots */
-static void emit(rows_t *o, int w, const int64_t *c, const char *pr, const double *a,
-                 double lo, double up)
-{
-    double shift = 0.0;
-    int any_free = 0;
-    for (int j = 0; j < w; j++) {
-        int on_fixed = pr[j] && o->fixed[c[j]];
-        shift = shift + (on_fixed ? a[j] * o->values[c[j]] : 0.0);
-        any_free |= pr[j] && !on_fixed;
-    }
-    if (!any_free || !(isfinite(lo) || isfinite(up))) return;
-    for (int j = 0; j < w; j++) {
-        if (pr[j] && !o->fixed[c[j]]) {
-            o->indices[o->k] = o->free_number[c[j]];
-            o->data[o->k] = a[j];
-            o->k++;
-        }
-    }
-    o->lo[o->r] = lo - shift;
-    o->up[o->r] = up - shift;
-    o->r++;
-    o->indptr[o->r] = o->k;
-}
+#include "_window_rows.h"
 
 /* qp_rows.canonical on one row of three slots with two value columns: a stable sort by
  * station, slots naming the station before them summed into the first of their run */
@@ -114,13 +82,6 @@ static void canonical3(int64_t *c, char *pr, double *d, double *g)
         }
     }
 }
-
-typedef struct {                    /* the stretch's layout and the iterate */
-    int64_t nv;
-    const char *fixed;
-    const double *fixed_value, *b_hat, *b_env, *time_coef, *f_first, *f_last, *d_slots;
-    double ds, margin, chord_tol, b_floor;
-} layout_t;
 
 /* QPBuilder._accel_rows (no power): every chord at both nodes of each step with a free node,
  * in the reference's order; per node first (each chord belongs to a node) */
@@ -403,23 +364,25 @@ static int get(PyObject *o, Py_buffer *v, int writable, Py_ssize_t items, char k
     return 0;
 }
 
-#define N_ARRAYS 31
+#define N_ARRAYS 32
 
 /* assemble(kappa_abs, cos_bank, sin_bank, cos_grade, sin_grade, mu_long, mu_lat, fixed,
  *          fixed_value, b_hat, b_env, time_coef, f_first, f_last, d_slots, t_node, t_prev,
  *          t_next, t_weights, t_scale, reserve, indptr, indices, data, lo, up, prow, pcol,
- *          pval, q, starts, scalars) -> (rows, entries, objective entries, scale, blocks + 1)
- *          (starts: qp_rows.interval_blocks of the QP written) */
+ *          pval, q, starts, corner_first, scalars) -> (rows, entries, objective entries,
+ *          scale, blocks + 1) (starts: qp_rows.interval_blocks of the QP written; corner_first:
+ *          the first step of each pair that gets corner rows, increasing) */
 static PyObject *py_assemble(PyObject *self, PyObject *args)
 {
     (void)self;
     PyObject *o[N_ARRAYS];
     double s[14];
-    if (!PyArg_ParseTuple(args, "OOOOOOOOOOOOOOOOOOOOOOOOOOOOOOO(dddddddddddddd)",
+    if (!PyArg_ParseTuple(args, "OOOOOOOOOOOOOOOOOOOOOOOOOOOOOOOO(dddddddddddddd)",
                           &o[0], &o[1], &o[2], &o[3], &o[4], &o[5], &o[6], &o[7], &o[8], &o[9],
                           &o[10], &o[11], &o[12], &o[13], &o[14], &o[15], &o[16], &o[17],
                           &o[18], &o[19], &o[20], &o[21], &o[22], &o[23], &o[24], &o[25],
-                          &o[26], &o[27], &o[28], &o[29], &o[30], &s[0], &s[1], &s[2], &s[3],
+                          &o[26], &o[27], &o[28], &o[29], &o[30], &o[31], &s[0], &s[1], &s[2],
+                          &s[3],
                           &s[4],
                           &s[5], &s[6], &s[7], &s[8], &s[9], &s[10], &s[11], &s[12], &s[13]))
         return NULL;
@@ -433,28 +396,40 @@ static PyObject *py_assemble(PyObject *self, PyObject *args)
     if (PyObject_GetBuffer(o[20], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
     Py_ssize_t nr = probe.len / 16;
     PyBuffer_Release(&probe);
+    if (PyObject_GetBuffer(o[31], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
+    Py_ssize_t nc = probe.len / 8;
+    PyBuffer_Release(&probe);
     if (nv < 2) {
         PyErr_SetString(PyExc_ValueError, "window_qp kernel: fewer than two stations");
         return NULL;
     }
-    Py_ssize_t rows = nv + 8 * (nv - 1) + 2 * nt + nr, nnz = nv + 16 * (nv - 1) + 6 * nt + 2 * nr;
+    Py_ssize_t rows = nv + 8 * (nv - 1) + 2 * nt + nr + 8 * nc;
+    Py_ssize_t nnz = nv + 16 * (nv - 1) + 6 * nt + 2 * nr + 24 * nc;
     const Py_ssize_t items[N_ARRAYS] = {
         nv, nv, nv, nv, nv, nv, nv, nv, nv, nv, nv, nv - 1, nv - 1, nv - 1, 3 * nv,
         nt, nt, nt, 3 * nt, nt, 2 * nr, rows + 1, nnz, nnz, rows, rows, 3 * nv, 3 * nv, 3 * nv,
-        nv, nv + 1};
+        nv, nv + 1, nc};
     const char kinds[N_ARRAYS] = {'d', 'd', 'd', 'd', 'd', 'd', 'd', '?', 'd', 'd', 'd', 'd',
                                   'd', 'd', 'd', 'q', 'q', 'q', 'd', 'd', 'd', 'q', 'q', 'd',
-                                  'd', 'd', 'q', 'q', 'd', 'd', 'q'};
+                                  'd', 'd', 'q', 'q', 'd', 'd', 'q', 'q'};
     Py_buffer v[N_ARRAYS];
     int got;
     PyObject *result = NULL;
     for (got = 0; got < N_ARRAYS; got++)
-        if (get(o[got], &v[got], got >= 21, items[got], kinds[got]) != 0) goto done;
+        if (get(o[got], &v[got], got >= 21 && got < 31, items[got], kinds[got]) != 0)
+            goto done;
     {
         const int64_t *tn = v[15].buf, *tp = v[16].buf, *tx = v[17].buf;
         for (Py_ssize_t i = 0; i < nt; i++) {
             if (tn[i] < 0 || tn[i] >= nv || tp[i] < 0 || tp[i] >= nv || tx[i] < 0 || tx[i] >= nv) {
                 PyErr_SetString(PyExc_ValueError, "window_qp kernel: a station out of range");
+                goto done;
+            }
+        }
+        const int64_t *cf = v[31].buf;
+        for (Py_ssize_t i = 0; i < nc; i++) {
+            if (cf[i] < 0 || cf[i] + 2 >= nv) {
+                PyErr_SetString(PyExc_ValueError, "window_qp kernel: a pair out of range");
                 goto done;
             }
         }
@@ -484,7 +459,9 @@ static PyObject *py_assemble(PyObject *self, PyObject *args)
             emit(&out, 1, &col, &pr, &one, val, L.fixed[k] ? val : L.b_env[k]);
         }
         objective_t obj = {v[26].buf, v[27].buf, v[28].buf, v[29].buf, 0, 1.0};
-        int bad = accel_rows(&L, &p, &out) != 0 || jerk_rows(&L, &t, &out) != 0;
+        int bad = accel_rows(&L, &p, &out) != 0 || jerk_rows(&L, &t, &out) != 0
+                  || corner_rows(&L, t.J, s[2] * (1.0 - s[7]), s[3] * (1.0 - s[7]), cf, nc,
+                                 &out) != 0;
         if (!bad && nr > 0) reserve_rows(&L, v[20].buf, nr, s[13], &out);
         bad = bad || objective(&L, free_number, &obj) != 0;
         int64_t n_free = free_number[nv - 1] + 1;

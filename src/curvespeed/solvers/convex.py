@@ -58,6 +58,7 @@ from ..order_stats import distinct
 from ..problem import SpeedProblem
 from . import QPBackend, SolveResult, SolveStatus
 from .convex_qp import QPBuilder, QPLayout
+from .corner_rows import CornerSelection
 from .envelope import solve_envelope
 # the batches' solving (qp_batches); _solve_batch also named here for the tests that use it
 from .qp_batches import _batches, _solve_batch, _submit_batches, _worker_count  # noqa: F401
@@ -246,6 +247,14 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
     if warm_start is not None:
         b_hat = np.where(lay.fixed, b_env, np.clip(warm_start[:nv], 0.0, b_env))
     run = _ScpRun(b_hat, b_env, lay, problem.ds, options)
+    # corner rows go to the pairs of steps near a cap (corner_rows.CornerSelection): from the
+    # start for a warm start; the envelope is at a cap nearly everywhere it is not at its
+    # ceiling, so from the envelope the first QP goes without and the set grows from its answer
+    corners = CornerSelection(problem, lay, builder.corners) if lay.jerk else None
+    if corners is not None:
+        if warm_start is not None:
+            corners.grow(b_hat)
+        builder.corners = corners.selected
     threads = _worker_count(options.threads)
     # one thread, or a single batch (a receding-horizon window): solved in this thread, with no
     # pool to start and no hand-over between threads (the answer is the same either way)
@@ -271,6 +280,11 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
                                    gap_abs, options, pool)
             for batch, cols, glob, job in jobs:
                 run.take_answer(problem, iterations, batch, cols, glob, job.result())
+            if corners is not None:
+                added, broken = corners.grow(run.b_hat)
+                if added:
+                    builder.corners = corners.selected
+                    run.restart(broken)
             if not run.active.any():
                 break
     finally:
@@ -290,7 +304,7 @@ class _ScpRun:
         self.notes: list[str] = []
         # the blocks and what goes with them, from the first QP (find_blocks)
         self.blocks = self.free_idx = self.node_block = self.block_cost = None
-        self.active = self.t_block = None
+        self.active = self.t_block = self.fresh = None
         self.t_total = _steps_time(b_env, lay, ds, np.arange(lay.n_steps))  # the envelope's
 
     def find_blocks(self, qp, closed: bool) -> None:
@@ -301,6 +315,7 @@ class _ScpRun:
         self.blocks = blocks_of(qp, closed)
         n_blocks = len(self.blocks)
         self.active = np.ones(n_blocks, dtype=bool)
+        self.fresh = np.zeros(n_blocks, dtype=bool)
         self.t_block = np.full(n_blocks, math.inf)
         self.node_block = np.full(lay.nv, -1)
         for k, cols in enumerate(self.blocks):
@@ -338,8 +353,9 @@ class _ScpRun:
         cand[glob] = np.clip(np.asarray(x, dtype=float), 0.0, self.b_env[glob])
         for k in batch:
             kg = self.free_idx[self.blocks[k]]
-            if iteration == 1:
+            if iteration == 1 or self.fresh[k]:
                 b_new, t_new = cand[kg], self.block_cost[k](cand)
+                self.fresh[k] = False
             else:
                 b_new, t_new = self.block_cost[k].search(self.b_hat, cand, self.t_block[k], kg)
             # gain measured against the whole route's time, so a short stretch is not
@@ -351,6 +367,17 @@ class _ScpRun:
                 self.t_block[k] = t_new
             if improvement < self.options.rel_improvement:
                 self.active[k] = False
+
+
+    def restart(self, nodes) -> None:
+        """The stretches with these stations take the next QP's answer as it stands (their
+        iterate is outside rows just added, so no line search from it) and iterate on."""
+        if self.blocks is None or np.size(nodes) == 0:
+            return
+        k = self.node_block[nodes]
+        k = k[k >= 0]           # (np.unique would load numpy.ma, which a plan never needs)
+        self.fresh[k] = self.active[k] = True
+        self.t_block[k] = math.inf
 
 
 def _steps_time(b, lay, ds, steps):

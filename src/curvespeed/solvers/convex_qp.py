@@ -18,6 +18,7 @@ import numpy as np
 from ..order_stats import median
 from ..problem import SpeedProblem
 from . import window_qp
+from .corner_rows import corner_pairs, corner_rows
 from .qp_layout import QPLayout
 from .qp_rows import RowQP, canonical, pad, reduce_tables
 from .qp_time import B_FLOOR, time_model, tridiagonal_hessian
@@ -38,6 +39,9 @@ class QPBuilder:
         self.ds = problem.ds
         self.has_power = math.isfinite(problem.limits.power_per_mass_wpkg)
         self._spans = {}
+        #: the pairs of steps that get corner rows (:mod:`.corner_rows`): every pair of plain
+        #: steps, unless the sequential-convex loop narrows them to those near a cap
+        self.corners = corner_pairs(lay)
 
     @cached_property
     def step_forms(self):
@@ -291,7 +295,8 @@ class QPBuilder:
     def rows(self, b_hat: np.ndarray, every_step: bool = False):
         """Every row of the iteration's QP around ``b_hat`` as canonical row tables over the
         distinct nodes (:mod:`.qp_rows`), each ``(cols, present, vals, lo, up)``, in the order
-        bounds, acceleration (and power), jerk, lateral jerk, end reserve. Without
+        bounds, acceleration (and power), jerk, corners (:mod:`.corner_rows`), lateral jerk,
+        end reserve. Without
         ``every_step`` no acceleration or jerk rows on fixed stations alone (the elimination
         would drop them)."""
         lay = self.lay
@@ -305,6 +310,11 @@ class QPBuilder:
         if lay.jerk:
             c, present, v, up = self._jerk_rows(b_hat, every_step)
             tables.append((c, present, v, np.full(up.size, -np.inf), up))
+            c, v, up = corner_rows(self.p, lay, b_hat, self.opt.margin, self.corners,
+                                   every_step)
+            c, present, v = canonical(c, v)
+            # an entry that comes to exactly zero is none (as scipy.sparse sums have it)
+            tables.append((c, present & (v != 0.0), v, np.full(up.size, -np.inf), up))
         extra = []
         if self.p.limits.max_lateral_jerk_mps3 is not None:
             extra.append(self._lateral_jerk_rows(b_hat))

@@ -100,6 +100,7 @@ def build_reference_model(problem: SpeedProblem, b_lin: np.ndarray, b_upper: np.
 
     if lim.max_jerk_mps3 is not None:
         cons += _jerk_constraints(problem, b, b_lin[:nv], nv, frm, to, mean_a, f_first, f_last)
+        cons += _corner_constraints(problem, b, b_lin[:nv], fixed, frm, to, mean_a)
     if lim.max_lateral_jerk_mps3 is not None:
         cons += _lateral_jerk_constraints(problem, b, b_lin[:nv], fixed, frm, to)
 
@@ -225,6 +226,57 @@ def _jerk_constraints(problem, b, b_lin, nv, frm, to, mean_a, f_first, f_last):
                          2.0 / wh - cp.multiply(1.0 / (wh * wh), w_upper))
     change = Dm[terms.node[idx]] @ b
     cons += [change <= budget, -change <= budget]
+    return cons
+
+
+def _corner_constraints(problem, b, b_lin, fixed, frm, to, mean_a):
+    """The acceleration leaves or reaches its comfort cap no faster than the jerk bound allows
+    (:mod:`curvespeed.solvers.corner_rows` derives it): for two consecutive constant-
+    acceleration steps, the corner step ``c`` and its neighbour ``n``,
+    ``sign (alpha a_c - a_n) <= beta cap + gamma J T_c / 2 + J T_n / 2`` for each chord.
+
+    ``J T / 2 = J ds / (v + v')``: ``v + v'`` is bounded above by the tangents of ``sqrt`` at
+    ``b_lin`` (exact at a fixed station) and ``1 / x`` below by its tangent, as for the jerk
+    rows."""
+    import cvxpy as cp
+
+    from .corner_rows import SEGMENTS
+
+    lim = problem.limits
+    J = lim.max_jerk_mps3
+    ds = problem.ds
+    ns = frm.size
+    plain = ((problem.time_coef[:ns] == 2.0) & (problem.accel_factor_start[:ns] == 1.0)
+             & (problem.accel_factor_end[:ns] == 1.0))
+    first = np.arange(ns) if problem.closed and ns > 2 else np.arange(max(ns - 1, 0))
+    second = (first + 1) % ns if problem.closed else first + 1
+    keep = plain[first] & plain[second]
+    pair = (first[keep], second[keep])
+    if pair[0].size == 0:
+        return []
+    known = np.zeros(b_lin.size, dtype=bool)
+    value = np.zeros(b_lin.size)
+    for k, val in fixed.items():
+        known[k], value[k] = True, val
+    r = np.where(known, np.sqrt(value), np.sqrt(np.maximum(b_lin, _B_FLOOR)))
+    w_hat = r[frm] + r[to]
+    w_hat = np.where(w_hat > 0.0, w_hat, 1.0)
+
+    w_up = []
+    for nodes in (frm, to):
+        free = ~known[nodes]
+        slope = np.where(free, 0.5 / np.where(free, r[nodes], 1.0), 0.0)
+        w_up.append(r[nodes] + cp.multiply(slope, b[nodes] - np.where(free, b_lin[nodes], 0.0)))
+    w_up = w_up[0] + w_up[1]
+    half = J * ds * (2.0 / w_hat - cp.multiply(1.0 / (w_hat * w_hat), w_up))
+    cons = []
+    for sign, cap in ((1.0, lim.max_accel_mps2), (-1.0, lim.max_decel_mps2)):
+        if not np.isfinite(cap):
+            continue
+        for c, n in ((0, 1), (1, 0)):
+            for alpha, beta, gamma in SEGMENTS:
+                lhs = sign * (alpha * mean_a[pair[c]] - mean_a[pair[n]])
+                cons.append(lhs <= beta * cap + gamma * half[pair[c]] + half[pair[n]])
     return cons
 
 

@@ -41,8 +41,11 @@ def reduced(builder, b_hat: np.ndarray):
     if p.end_reserve is not None:
         brake_b, pairs = p.end_reserve
         reserve = np.array(pairs, dtype=float).reshape(-1, 2)
-    rows = nv + 8 * (nv - 1) + 2 * nt + reserve.shape[0]
-    entries = nv + 16 * (nv - 1) + 6 * nt + 2 * reserve.shape[0]
+    corner_first = np.ascontiguousarray(builder.corners[:, 0], dtype=np.int64)
+    nc = corner_first.size
+    # bounds, accel chords, jerk rows, the end reserve, corner rows (at most 8 a pair of steps)
+    rows = nv + 8 * (nv - 1) + 2 * nt + reserve.shape[0] + 8 * nc
+    entries = nv + 16 * (nv - 1) + 6 * nt + 2 * reserve.shape[0] + 24 * nc
     indptr, indices = np.empty(rows + 1, dtype=np.int64), np.empty(entries, dtype=np.int64)
     data, lo, up = np.empty(entries), np.empty(rows), np.empty(rows)
     prow, pcol = np.empty(3 * nv, dtype=np.int64), np.empty(3 * nv, dtype=np.int64)
@@ -55,7 +58,7 @@ def reduced(builder, b_hat: np.ndarray):
         f64(lay.D_by_slot),
         *(np.ascontiguousarray(a, dtype=np.int64) for a in (t.node, t.prev, t.next)),
         f64(t.weights), f64(t.scale), f64(reserve),
-        indptr, indices, data, lo, up, prow, pcol, pval, q, starts,
+        indptr, indices, data, lo, up, prow, pcol, pval, q, starts, corner_first,
         (lim.gravity_mps2, lim.max_lateral_accel_mps2, lim.max_accel_mps2,
          lim.max_decel_mps2, lim.drag_per_b_1pm, lim.rolling_resistance_coefficient,
          p.ds, opt.margin, opt.chord_tolerance_mps2, B_FLOOR, lim.max_jerk_mps3,

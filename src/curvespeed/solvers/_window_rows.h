@@ -1,0 +1,127 @@
+/* The rows a window's QP is written into (qp_rows.reduce_rows on each row as it comes), the
+ * stretch's layout, and the corner rows (corner_rows.corner_rows): part of _window_qp.c, kept
+ * apart to keep that file short; included once, by it. The same rules as there: numpy's
+ * operations in numpy's order, to the last bit.
+ */
+#ifndef CURVESPEED_WINDOW_ROWS_H
+#define CURVESPEED_WINDOW_ROWS_H
+
+#include <math.h>
+#include <stdint.h>
+#include <stdlib.h>
+
+#include "_accel_bounds.h"
+
+typedef struct {                    /* the compressed rows being written (reduce_tables) */
+    const char *fixed;
+    const double *values;
+    const int64_t *free_number;
+    int64_t *indptr, *indices;
+    double *data, *lo, *up;
+    int64_t r, k;
+} rows_t;
+
+/* qp_rows.reduce_rows on one canonical row of w slots */
+static void emit(rows_t *o, int w, const int64_t *c, const char *pr, const double *a,
+                 double lo, double up)
+{
+    double shift = 0.0;
+    int any_free = 0;
+    for (int j = 0; j < w; j++) {
+        int on_fixed = pr[j] && o->fixed[c[j]];
+        shift = shift + (on_fixed ? a[j] * o->values[c[j]] : 0.0);
+        any_free |= pr[j] && !on_fixed;
+    }
+    if (!any_free || !(isfinite(lo) || isfinite(up))) return;
+    for (int j = 0; j < w; j++) {
+        if (pr[j] && !o->fixed[c[j]]) {
+            o->indices[o->k] = o->free_number[c[j]];
+            o->data[o->k] = a[j];
+            o->k++;
+        }
+    }
+    o->lo[o->r] = lo - shift;
+    o->up[o->r] = up - shift;
+    o->r++;
+    o->indptr[o->r] = o->k;
+}
+
+typedef struct {                    /* the stretch's layout and the iterate */
+    int64_t nv;
+    const char *fixed;
+    const double *fixed_value, *b_hat, *b_env, *time_coef, *f_first, *f_last, *d_slots;
+    double ds, margin, chord_tol, b_floor;
+} layout_t;
+
+/* corner_rows.corner_rows: the given pairs of plain steps (the first step of each, in order)
+ * with a free station; by side (hi, lo), orientation (the pair's first step at the corner, then
+ * its second), segment, pair */
+static const double SEGMENTS[2][3] = {{4.0, 3.0, 0.0}, {4.0 / 3.0, 1.0 / 3.0, 2.0 / 3.0}};
+
+static int corner_rows(const layout_t *L, double J, double max_accel, double max_decel,
+                       const int64_t *pair_first, int64_t n_pairs, rows_t *o)
+{
+    int64_t nv = L->nv;
+    double *root = malloc((size_t)nv * sizeof(double));
+    double *half = malloc(((size_t)n_pairs * 12 + 1) * sizeof(double)); /* [pair][step][s, C] */
+    char *keep = malloc((size_t)n_pairs + 1);
+    if (!root || !half || !keep) {
+        free(root); free(half); free(keep);
+        return -1;
+    }
+    for (int64_t k = 0; k < nv; k++)
+        root[k] = L->fixed[k] ? sqrt(np_max(L->fixed_value[k], 0.0))
+                              : sqrt(np_max(L->b_hat[k], L->b_floor));
+    double h = 1.0 / (2.0 * L->ds);
+    for (int64_t q = 0; q < n_pairs; q++) {
+        int64_t i = pair_first[q];
+        keep[q] = !(L->fixed[i] && L->fixed[i + 1] && L->fixed[i + 2]);
+        if (!keep[q]) continue;
+        for (int st = 0; st < 2; st++) {      /* H = C + s . b of each step (corner_rows.py) */
+            int64_t fr = i + st, to = i + st + 1;
+            double w_hat = root[fr] + root[to];
+            if (!(w_hat > 0.0)) w_hat = 1.0;
+            double coef = J * L->ds / (w_hat * w_hat);
+            double s0 = L->fixed[fr] ? 0.0 : -coef / (2.0 * root[fr]);
+            double s1 = L->fixed[to] ? 0.0 : -coef / (2.0 * root[to]);
+            double b0 = L->fixed[fr] ? L->fixed_value[fr] : L->b_hat[fr];
+            double b1 = L->fixed[to] ? L->fixed_value[to] : L->b_hat[to];
+            double *hs = half + 12 * q + 4 * st;
+            hs[0] = hs[1] = hs[2] = 0.0;
+            hs[st] = s0;
+            hs[st + 1] = s1;
+            hs[3] = J * L->ds / w_hat - s0 * b0 - s1 * b1;
+        }
+    }
+    const double mean_a[2][3] = {{-h, h, 0.0}, {0.0, -h, h}};
+    const double caps[2] = {max_accel, max_decel}, signs[2] = {1.0, -1.0};
+    for (int side = 0; side < 2; side++) {
+        if (!isfinite(caps[side])) continue;
+        for (int c = 0; c < 2; c++) {
+            int n = 1 - c;
+            for (int seg = 0; seg < 2; seg++) {
+                double alpha = SEGMENTS[seg][0], beta = SEGMENTS[seg][1];
+                double gamma = SEGMENTS[seg][2];
+                for (int64_t q = 0; q < n_pairs; q++) {
+                    if (!keep[q]) continue;
+                    int64_t i = pair_first[q];
+                    const double *sc = half + 12 * q + 4 * c, *sn = half + 12 * q + 4 * n;
+                    int64_t cols[3] = {i, i + 1, i + 2};
+                    char pr[3];
+                    double vals[3];
+                    for (int j = 0; j < 3; j++) {
+                        vals[j] = signs[side] * (alpha * mean_a[c][j] - mean_a[n][j]) - sn[j]
+                                  - gamma * sc[j];
+                        pr[j] = vals[j] != 0.0;
+                    }
+                    emit(o, 3, cols, pr, vals, -INFINITY, beta * caps[side] + sn[3]
+                                                             + gamma * sc[3]);
+                }
+            }
+        }
+    }
+    free(root); free(half); free(keep);
+    return 0;
+}
+
+#endif
