@@ -22,6 +22,7 @@ import pytest
 from curvespeed.replan import Replanner
 from curvespeed.solvers import convex_qp, qp_rows, window_qp
 from curvespeed.solvers.convex import ConvexOptions
+from curvespeed.solvers.corner_rows import corner_pairs
 
 import test_certificate_replan as replan_cases
 
@@ -78,6 +79,8 @@ def test_compiled_assembly_equals_numpy_on_the_solvers_qps(case, limits_change, 
     assert windows
     if case == "shuttle":           # windows setting off from a stop and running into one
         assert any(b.lay.fixed[1:].any() for b in windows)
+    # corner rows on some of the pairs and some of their blocks (corner_rows.CornerSelection)
+    assert any(0 < b.corners[1].sum() < 4 * b.corners[1].shape[0] for b in windows)
     for builder, b_hat in qps:
         _assert_same(builder, b_hat)
 
@@ -89,7 +92,10 @@ def test_compiled_assembly_equals_numpy_around_random_iterates(case, monkeypatch
     rng = np.random.default_rng(7)
     for builder, _ in qps[:: max(1, len(qps) // 12)]:
         e = builder.b_env[: builder.lay.nv]
+        pairs = corner_pairs(builder.lay)
         for _ in range(4):
+            # corner rows on a random part of every pair's blocks
+            builder.corners = (pairs, rng.uniform(size=(pairs.shape[0], 4)) < 0.3)
             u = rng.uniform(size=e.size)
             # anywhere from rest to the envelope, some nodes exactly at it or at rest
             b_hat = np.where(u < 0.1, e, np.where(u > 0.95, 0.0, e * rng.uniform(size=e.size)))

@@ -148,6 +148,7 @@ def test_the_rows_go_where_they_bind_and_the_plan_keeps_them_everywhere(monkeypa
     lay = QPLayout(problem, jerk=True)
     pairs = cr.corner_pairs(lay)
     room, scale = cr.corner_room(problem, lay, chosen.b[:lay.nv], pairs)
+    room = room.min(axis=1)
     assert room.min() >= cr.BROKEN_ROOM
     # the rows bind: some pair is at its edge (measured: room 0 to 1e-5 m/s^2 at many)
     assert np.sum(room < 1e-3 * scale) > 10
@@ -156,3 +157,29 @@ def test_the_rows_go_where_they_bind_and_the_plan_keeps_them_everywhere(monkeypa
     t_chosen = float(np.sum(problem.step_times(chosen.b)))
     t_every = float(np.sum(problem.step_times(every.b)))
     assert t_chosen == pytest.approx(t_every, rel=1e-4)
+
+
+def test_the_compiled_room_is_the_numpy_room_to_the_last_bit():
+    """corner_room's compiled call (a window's) against its numpy reference, on random speeds
+    from rest to 30 m/s, some stations at rest, and both caps finite or one not."""
+    from types import SimpleNamespace
+
+    from curvespeed.limits import Limits
+    from curvespeed.solvers import window_qp
+    from curvespeed.solvers.qp_layout import QPLayout
+
+    if window_qp._compiled is None:
+        pytest.skip("the compiled kernels are not built")
+    problem = straight_problem(300.0, 1.0, straight_limits(30.0, 1.5, 2.0))
+    lay = QPLayout(problem, jerk=True)
+    pairs = cr.corner_pairs(lay)
+    rng = np.random.default_rng(3)
+    for decel in (2.5, np.inf):
+        p = SimpleNamespace(limits=Limits(max_jerk_mps3=2.0, max_accel_mps2=1.5,
+                                          max_decel_mps2=decel), ds=problem.ds)
+        for _ in range(5):
+            b = rng.uniform(0.0, 900.0, lay.nv) * (rng.random(lay.nv) > 0.05)
+            fast = cr.corner_room(p, lay, b, pairs)
+            ref = cr.corner_room_numpy(p, lay, b, pairs)
+            for x, y in zip(fast, ref):
+                assert x.shape == y.shape and x.tobytes() == y.tobytes()

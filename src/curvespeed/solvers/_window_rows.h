@@ -1,7 +1,8 @@
 /* The rows a window's QP is written into (qp_rows.reduce_rows on each row as it comes), the
- * stretch's layout, and the corner rows (corner_rows.corner_rows): part of _window_qp.c, kept
- * apart to keep that file short; included once, by it. The same rules as there: numpy's
- * operations in numpy's order, to the last bit.
+ * stretch's layout, the corner rows (corner_rows.corner_rows), the kernel's buffer checks and
+ * its second call, corner_room (corner_rows.corner_room): part of _window_qp.c (after
+ * Python.h), kept apart to keep that file short; included once, by it. The same rules as
+ * there: numpy's operations in numpy's order, to the last bit.
  */
 #ifndef CURVESPEED_WINDOW_ROWS_H
 #define CURVESPEED_WINDOW_ROWS_H
@@ -9,6 +10,7 @@
 #include <math.h>
 #include <stdint.h>
 #include <stdlib.h>
+#include <string.h>
 
 #include "_accel_bounds.h"
 
@@ -54,12 +56,12 @@ typedef struct {                    /* the stretch's layout and the iterate */
 } layout_t;
 
 /* corner_rows.corner_rows: the given pairs of plain steps (the first step of each, in order)
- * with a free station; by side (hi, lo), orientation (the pair's first step at the corner, then
- * its second), segment, pair */
+ * with a free station, the blocks each has (use: 4 a pair, corner_rows.BLOCKS); by block (side
+ * hi then lo; the pair's first step at the corner, then its second), segment, pair */
 static const double SEGMENTS[2][3] = {{4.0, 3.0, 0.0}, {4.0 / 3.0, 1.0 / 3.0, 2.0 / 3.0}};
 
 static int corner_rows(const layout_t *L, double J, double max_accel, double max_decel,
-                       const int64_t *pair_first, int64_t n_pairs, rows_t *o)
+                       const int64_t *pair_first, const char *use, int64_t n_pairs, rows_t *o)
 {
     int64_t nv = L->nv;
     double *root = malloc((size_t)nv * sizeof(double));
@@ -98,12 +100,12 @@ static int corner_rows(const layout_t *L, double J, double max_accel, double max
     for (int side = 0; side < 2; side++) {
         if (!isfinite(caps[side])) continue;
         for (int c = 0; c < 2; c++) {
-            int n = 1 - c;
+            int n = 1 - c, block = 2 * side + c;    /* corner_rows.BLOCKS */
             for (int seg = 0; seg < 2; seg++) {
                 double alpha = SEGMENTS[seg][0], beta = SEGMENTS[seg][1];
                 double gamma = SEGMENTS[seg][2];
                 for (int64_t q = 0; q < n_pairs; q++) {
-                    if (!keep[q]) continue;
+                    if (!keep[q] || !use[4 * q + block]) continue;
                     int64_t i = pair_first[q];
                     const double *sc = half + 12 * q + 4 * c, *sn = half + 12 * q + 4 * n;
                     int64_t cols[3] = {i, i + 1, i + 2};
@@ -122,6 +124,90 @@ static int corner_rows(const layout_t *L, double J, double max_accel, double max
     }
     free(root); free(half); free(keep);
     return 0;
+}
+
+/* An array of at least (outputs) or exactly (inputs) `items` entries of kind 'q' (int64),
+ * 'd' (double) or '?' (bool). */
+static int get(PyObject *o, Py_buffer *v, int writable, Py_ssize_t items, char kind)
+{
+    int flags = PyBUF_C_CONTIGUOUS | PyBUF_FORMAT | (writable ? PyBUF_WRITABLE : 0);
+    if (PyObject_GetBuffer(o, v, flags) != 0) return -1;
+    Py_ssize_t size = kind == '?' ? 1 : 8;
+    const char *f = v->format;
+    int fmt_ok = kind == '?' ? strcmp(f, "?") == 0
+               : kind == 'q' ? (strcmp(f, "q") == 0 || (strcmp(f, "l") == 0 && sizeof(long) == 8))
+               : strcmp(f, "d") == 0;
+    int len_ok = writable ? v->len >= items * size : v->len == items * size;
+    if (!fmt_ok || v->itemsize != size || !len_ok) {
+        PyErr_SetString(PyExc_ValueError, "window_qp kernel: an array has the wrong type or "
+                        "length");
+        PyBuffer_Release(v);
+        return -1;
+    }
+    return 0;
+}
+
+
+/* corner_rows.corner_room on an open stretch (steps k -> k + 1), for the pairs starting at
+ * pair_first: room[4 q + block] and scale[q], numpy's operations in its order */
+static PyObject *py_corner_room(PyObject *self, PyObject *args)
+{
+    (void)self;
+    PyObject *o[4];
+    double J, ds, max_accel, max_decel;
+    if (!PyArg_ParseTuple(args, "OOOO(dddd)", &o[0], &o[1], &o[2], &o[3], &J, &ds, &max_accel,
+                          &max_decel))
+        return NULL;
+    Py_buffer probe;
+    if (PyObject_GetBuffer(o[0], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
+    Py_ssize_t nv = probe.len / 8;
+    PyBuffer_Release(&probe);
+    if (PyObject_GetBuffer(o[1], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
+    Py_ssize_t m = probe.len / 8;
+    PyBuffer_Release(&probe);
+    const Py_ssize_t items[4] = {nv, m, 4 * m, m};
+    const char kinds[4] = {'d', 'q', 'd', 'd'};
+    Py_buffer v[4];
+    int got;
+    PyObject *result = NULL;
+    for (got = 0; got < 4; got++)
+        if (get(o[got], &v[got], got >= 2, items[got], kinds[got]) != 0) goto done;
+    {
+        const double *b = v[0].buf;
+        const int64_t *first = v[1].buf;
+        double *room = v[2].buf, *scale = v[3].buf;
+        for (Py_ssize_t q = 0; q < m; q++) {
+            if (first[q] < 0 || first[q] + 2 >= nv) {
+                PyErr_SetString(PyExc_ValueError, "window_qp kernel: a pair out of range");
+                goto done;
+            }
+        }
+        const double caps[2] = {max_accel, max_decel}, signs[2] = {1.0, -1.0};
+        for (Py_ssize_t q = 0; q < m; q++) {
+            int64_t k = first[q];
+            double v0 = sqrt(np_max(b[k], 0.0)), v1 = sqrt(np_max(b[k + 1], 0.0));
+            double v2 = sqrt(np_max(b[k + 2], 0.0));
+            double a[2] = {(b[k + 1] - b[k]) * (0.5 / ds), (b[k + 2] - b[k + 1]) * (0.5 / ds)};
+            double h[2] = {J * ds / np_max(v0 + v1, 1e-12), J * ds / np_max(v1 + v2, 1e-12)};
+            for (int side = 0; side < 2; side++) {
+                for (int c = 0; c < 2; c++) {
+                    double r = INFINITY, sign = signs[side];
+                    if (isfinite(caps[side])) {
+                        double d = caps[side] - sign * a[c], drop = sign * (a[c] - a[1 - c]);
+                        for (int seg = 0; seg < 2; seg++)
+                            r = np_min(r, SEGMENTS[seg][1] * d + SEGMENTS[seg][2] * h[c]
+                                          + h[1 - c] - drop);
+                    }
+                    room[4 * q + 2 * side + c] = r;
+                }
+            }
+            scale[q] = np_min(h[0], h[1]);
+        }
+        result = Py_NewRef(Py_None);
+    }
+done:
+    for (int j = 0; j < got; j++) PyBuffer_Release(&v[j]);
+    return result;
 }
 
 #endif

@@ -58,7 +58,7 @@ from ..order_stats import distinct
 from ..problem import SpeedProblem
 from . import QPBackend, SolveResult, SolveStatus
 from .convex_qp import QPBuilder, QPLayout
-from .corner_rows import CornerSelection
+from .corner_rows import FAR_SHARE, CornerSelection
 from .envelope import solve_envelope
 # the batches' solving (qp_batches); _solve_batch also named here for the tests that use it
 from .qp_batches import _batches, _solve_batch, _submit_batches, _worker_count  # noqa: F401
@@ -250,10 +250,9 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
     # corner rows go to the pairs of steps near a cap (corner_rows.CornerSelection): from the
     # start for a warm start; the envelope is at a cap nearly everywhere it is not at its
     # ceiling, so from the envelope the first QP goes without and the set grows from its answer
-    corners = CornerSelection(problem, lay, builder.corners) if lay.jerk else None
+    corners = CornerSelection(problem, lay, builder.corners[0]) if lay.jerk else None
     if corners is not None:
-        if warm_start is not None:
-            corners.grow(b_hat)
+        corners.grow(b_hat, FAR_SHARE if warm_start is None else None)
         builder.corners = corners.selected
     threads = _worker_count(options.threads)
     # one thread, or a single batch (a receding-horizon window): solved in this thread, with no
@@ -281,7 +280,8 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
             for batch, cols, glob, job in jobs:
                 run.take_answer(problem, iterations, batch, cols, glob, job.result())
             if corners is not None:
-                added, broken = corners.grow(run.b_hat)
+                far = iterations == 1 and warm_start is None
+                added, broken = corners.grow(run.b_hat, FAR_SHARE if far else None)
                 if added:
                     builder.corners = corners.selected
                     run.restart(broken)

@@ -39,9 +39,11 @@ class QPBuilder:
         self.ds = problem.ds
         self.has_power = math.isfinite(problem.limits.power_per_mass_wpkg)
         self._spans = {}
-        #: the pairs of steps that get corner rows (:mod:`.corner_rows`): every pair of plain
-        #: steps, unless the sequential-convex loop narrows them to those near a cap
-        self.corners = corner_pairs(lay)
+        #: the pairs of steps that get corner rows and which of their blocks, ``(pairs, use)``
+        #: (:func:`.corner_rows.corner_rows`): every block of every pair of plain steps, unless
+        #: the sequential-convex loop narrows them to those near a cap
+        pairs = corner_pairs(lay)
+        self.corners = (pairs, np.ones((pairs.shape[0], 4), dtype=bool))
 
     @cached_property
     def step_forms(self):
@@ -310,8 +312,8 @@ class QPBuilder:
         if lay.jerk:
             c, present, v, up = self._jerk_rows(b_hat, every_step)
             tables.append((c, present, v, np.full(up.size, -np.inf), up))
-            c, v, up = corner_rows(self.p, lay, b_hat, self.opt.margin, self.corners,
-                                   every_step)
+            c, v, up = corner_rows(self.p, lay, b_hat, self.opt.margin, *self.corners,
+                                   every_step=every_step)
             c, present, v = canonical(c, v)
             # an entry that comes to exactly zero is none (as scipy.sparse sums have it)
             tables.append((c, present & (v != 0.0), v, np.full(up.size, -np.inf), up))

@@ -20,7 +20,7 @@ is lowest when it holds ``A`` and then falls at ``J`` for the step's last ``t`` 
 and for ``d >= J T / 2`` the jerk row (``J (T + T') / 2``, which ``g`` reaches there) binds. The
 same holds backwards in time (a step reaching the cap) and mirrored at ``-D``. ``g`` is
 concave, so its chords lie below it: the rows use two, on ``d / (J T)`` in ``[0, 1/8]`` and
-``[1/8, 1/2]``, as ``drop <= alpha' d + c J T + J T' / 2``. Written in the corner step's mean
+``[1/8, 1/2]``, as ``drop <= beta d + gamma J T / 2 + J T' / 2``. In the corner step's mean
 ``a_c`` and the neighbour's ``a_n`` (hi side, ``d = A - a_c``)::
 
     alpha a_c - a_n - gamma H_c - H_n <= beta A      (alpha, beta, gamma) in SEGMENTS
@@ -28,9 +28,10 @@ concave, so its chords lie below it: the rows use two, on ``d / (J T)`` in ``[0,
 with ``H = J T / 2 = J ds / (v + v')``. ``H`` is convex in ``b``, so, as for the jerk rows'
 time base, the tangents of ``sqrt`` (above it) and then of ``1 / x`` (below it) at ``b_hat``
 give a linear lower bound of it: the rows are conservative for any ``b_hat > 0`` and exact at
-``b_hat``. Measured with the cvxpy reference model on the double-S sweep, two chords leave the
-8-12 m moves 0.01-0.09 % slower than the exact ``g`` would (a third chord bought < 0.01 % from
-18 m on).
+``b_hat``. The chords lie below ``g``, so the rows ask a little more than the motion does: the
+8-12 m moves of the sweep come out +0.06..+0.35 % over the closed form. Measured with the cvxpy
+reference model, a third chord (at ``d / (J T) = 1/32``) would gain up to 0.09 % on those and
+less than 0.01 % from 18 m on, for four more rows a pair.
 
 Only plain steps get the rows (constant acceleration, ``time_coef == 2``, unit acceleration
 factors): a step next to rest or a launch's ramp step is driven with its own shape. The caps are
@@ -43,6 +44,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..problem import SpeedProblem
+from . import window_qp
 from .qp_time import B_FLOOR
 
 #: ``(alpha, beta, gamma)`` of each chord of ``g`` (module docstring): the chord on
@@ -50,6 +52,11 @@ from .qp_time import B_FLOOR
 #: and ``g = J T / 3`` at ``d = 0``. ``drop <= beta d + gamma J T / 2 + J T' / 2`` with
 #: ``d = A - a_c`` is ``alpha a_c - a_n <= beta A + ...`` with ``alpha = 1 + beta``.
 SEGMENTS = ((4.0, 3.0, 0.0), (4.0 / 3.0, 1.0 / 3.0, 2.0 / 3.0))
+
+#: The blocks of rows of a pair: ``(sign, corner)``, the side (+1 the cap ``max_accel``, -1 the
+#: cap ``-max_decel``) and which of the pair's two steps is at the corner (0 the first: the
+#: acceleration leaves the cap; 1 the second: it reaches it).
+BLOCKS = ((1.0, 0), (1.0, 1), (-1.0, 0), (-1.0, 1))
 
 
 def corner_pairs(lay) -> np.ndarray:
@@ -64,21 +71,23 @@ def corner_pairs(lay) -> np.ndarray:
 
 
 def corner_rows(p: SpeedProblem, lay, b_hat: np.ndarray, margin: float, pairs: np.ndarray,
-                every_step: bool = False):
+                use: np.ndarray | None = None, every_step: bool = False):
     """The corner rows of ``pairs`` (rows of :func:`corner_pairs`) around ``b_hat`` as
-    ``(cols, vals, up)``: three slots a row, the nodes of the pair's two steps in order. Rows
-    come by side (hi, lo), orientation (the first step at the corner, then the second),
-    segment, pair. Unless ``every_step``, no rows on pairs whose nodes are all fixed (the
-    elimination would drop them)."""
+    ``(cols, vals, up)``: three slots a row, the nodes of the pair's two steps in order.
+
+    Rows come by block (side hi or lo, then the corner step: the pair's first step, then its
+    second; :data:`BLOCKS`), segment, pair; ``use[i, block]`` says whether pair ``i`` has that
+    block's rows (default: all). Unless ``every_step``, no rows on pairs whose nodes are all
+    fixed (the elimination would drop them)."""
     lim = p.limits
-    caps = [(1.0, lim.max_accel_mps2), (-1.0, lim.max_decel_mps2)]
-    caps = [(sign, cap * (1.0 - margin)) for sign, cap in caps if np.isfinite(cap)]
+    if use is None:
+        use = np.ones((pairs.shape[0], len(BLOCKS)), dtype=bool)
     n0, n1 = lay.step_from[pairs[:, 0]], lay.step_to[pairs[:, 0]]
     n2 = lay.step_to[pairs[:, 1]]
     if not every_step:
         free = ~(lay.fixed[n0] & lay.fixed[n1] & lay.fixed[n2])
-        n0, n1, n2 = n0[free], n1[free], n2[free]
-    if lim.max_jerk_mps3 is None or not caps or n0.size == 0:
+        n0, n1, n2, use = n0[free], n1[free], n2[free], use[free]
+    if lim.max_jerk_mps3 is None or n0.size == 0:
         return np.zeros((0, 3), dtype=np.int64), np.zeros((0, 3)), np.zeros(0)
     J = lim.max_jerk_mps3 * (1.0 - margin)
     ds = p.ds
@@ -102,45 +111,74 @@ def corner_rows(p: SpeedProblem, lay, b_hat: np.ndarray, margin: float, pairs: n
     mean_a = [np.stack((-h + zero, h + zero, zero), axis=1),
               np.stack((zero, -h + zero, h + zero), axis=1)]
     cols = np.stack((n0, n1, n2), axis=1)
-    vals, ups = [], []
-    for sign, cap in caps:
-        for c, n in ((0, 1), (1, 0)):
-            (sc, cc), (sn, cn) = halves[c], halves[n]
-            for alpha, beta, gamma in SEGMENTS:
-                vals.append(sign * (alpha * mean_a[c] - mean_a[n]) - sn - gamma * sc)
-                ups.append(beta * cap + cn + gamma * cc)
-    m = len(vals)
-    return np.tile(cols, (m, 1)), np.concatenate(vals), np.concatenate(ups)
+    caps = {1.0: lim.max_accel_mps2, -1.0: lim.max_decel_mps2}
+    out_cols, vals, ups = [], [], []
+    for block, (sign, c) in enumerate(BLOCKS):
+        cap, n = caps[sign], 1 - c
+        k = np.flatnonzero(use[:, block])
+        if not np.isfinite(cap) or k.size == 0:
+            continue
+        cap = cap * (1.0 - margin)
+        (sc, cc), (sn, cn) = halves[c], halves[n]
+        sc, cc, sn, cn = sc[k], cc[k], sn[k], cn[k]
+        for alpha, beta, gamma in SEGMENTS:
+            out_cols.append(cols[k])
+            vals.append(sign * (alpha * mean_a[c][k] - mean_a[n][k]) - sn - gamma * sc)
+            ups.append(beta * cap + cn + gamma * cc)
+    if not vals:
+        return np.zeros((0, 3), dtype=np.int64), np.zeros((0, 3)), np.zeros(0)
+    return np.concatenate(out_cols), np.concatenate(vals), np.concatenate(ups)
 
 
 def corner_room(p: SpeedProblem, lay, b: np.ndarray, pairs: np.ndarray):
-    """For each pair (rows of :func:`corner_pairs`), at the squared speeds ``b`` and the true
-    limits: the least room of its rows, ``beta cap + gamma H_c + H_n - sign (alpha a_c -
-    a_n)`` with the exact ``H = J ds / (v + v')`` (negative: the plan leaves or reaches a cap
-    faster than the jerk bound allows), and the smaller ``H`` of its two steps, the scale on
-    which the rows bind (module docstring). Both in m/s^2."""
+    """:func:`corner_room_numpy`, in one compiled call on an open stretch (``_window_qp.c``:
+    the same numbers to the last bit; a stretch's few hundred pairs cost more in numpy calls
+    than in arithmetic)."""
+    lim = p.limits
+    if window_qp._compiled is None or lay.closed or pairs.shape[0] == 0:
+        return corner_room_numpy(p, lay, b, pairs)
+    room = np.empty((pairs.shape[0], len(BLOCKS)))
+    scale = np.empty(pairs.shape[0])
+    window_qp._compiled.corner_room(
+        np.ascontiguousarray(b[:lay.nv], dtype=float),
+        np.ascontiguousarray(pairs[:, 0], dtype=np.int64), room, scale,
+        (lim.max_jerk_mps3, p.ds, lim.max_accel_mps2, lim.max_decel_mps2))
+    return room, scale
+
+
+def corner_room_numpy(p: SpeedProblem, lay, b: np.ndarray, pairs: np.ndarray):
+    """For each pair (rows of :func:`corner_pairs`) and block (:data:`BLOCKS`), at the squared
+    speeds ``b`` and the true limits: the least room of the block's rows, ``beta d + gamma H_c +
+    H_n - drop`` with the exact ``H = J ds / (v + v')`` (negative: the plan leaves or reaches a
+    cap faster than the jerk bound allows; ``inf`` for a side without a finite cap), shape
+    ``(pairs, 4)``; and the smaller ``H`` of the pair's two steps, the scale on which the rows
+    bind (module docstring). In m/s^2."""
     lim = p.limits
     first, second = pairs[:, 0], pairs[:, 1]
     v = np.sqrt(np.maximum(b, 0.0))
     a = (b[lay.step_to] - b[lay.step_from]) * (0.5 / p.ds)
     half = (lim.max_jerk_mps3 * p.ds) / np.maximum(v[lay.step_from] + v[lay.step_to], 1e-12)
     a1, a2, h1, h2 = a[first], a[second], half[first], half[second]
-    room = np.full(first.size, np.inf)
-    for sign, cap in ((1.0, lim.max_accel_mps2), (-1.0, lim.max_decel_mps2)):
+    caps = {1.0: lim.max_accel_mps2, -1.0: lim.max_decel_mps2}
+    room = np.full((first.size, len(BLOCKS)), np.inf)
+    for block, (sign, c) in enumerate(BLOCKS):
+        cap = caps[sign]
         if not np.isfinite(cap):
             continue
         # each row as drop <= beta d + gamma H_c + H_n, d the corner step's room below the cap
         # (alpha = 1 + beta in SEGMENTS)
-        d1, d2 = cap - sign * a1, cap - sign * a2
-        for d, drop, h_c, h_n in ((d1, sign * (a1 - a2), h1, h2), (d2, sign * (a2 - a1), h2, h1)):
-            for _, beta, gamma in SEGMENTS:
-                room = np.minimum(room, beta * d + gamma * h_c + h_n - drop)
-    return room, np.minimum(half[first], half[second])
+        a_c, a_n, h_c, h_n = (a1, a2, h1, h2) if c == 0 else (a2, a1, h2, h1)
+        d, drop = cap - sign * a_c, sign * (a_c - a_n)
+        for _, beta, gamma in SEGMENTS:
+            room[:, block] = np.minimum(room[:, block], beta * d + gamma * h_c + h_n - drop)
+    return room, np.minimum(h1, h2)
 
 
 #: A pair gets its rows once its room is below this share of its steps' smaller ``J T / 2``
 #: (:class:`CornerSelection`): a pair held at the cap has a room of ``J T' / 2`` and needs none.
 NEAR_SHARE = 0.5
+#: The same share after the first QP from the jerk-free envelope (:class:`CornerSelection`).
+FAR_SHARE = 2.0
 #: Room below this (m/s^2) counts as a corner the plan passes too fast, not as rounding.
 BROKEN_ROOM = -1e-6
 
@@ -150,7 +188,8 @@ class CornerSelection:
 
     Most pairs never come near a cap (on the bundled mountain road 47 % of the final plan's
     pairs are within ``J T / 2`` of one, nearly all of them held at it, where no row binds), and
-    the rows of every pair made a receding-horizon window's QP 1.9 times slower. So the rows
+    the rows of every pair made a receding-horizon window's QP 1.4-2.4 times slower (three
+    alternating runs). So the rows
     go to the pairs whose room at an iterate is below :data:`NEAR_SHARE` of their scale
     (:func:`corner_room`), and the set only grows. A pair taken in whose room is already
     negative was passed too fast by the iterate: :meth:`grow` names its stations, and the loop
@@ -159,27 +198,35 @@ class CornerSelection:
 
     def __init__(self, problem: SpeedProblem, lay, pairs: np.ndarray):
         self.p, self.lay, self.pairs = problem, lay, pairs
-        self.on = np.zeros(pairs.shape[0], dtype=bool)
+        self.on = np.zeros((pairs.shape[0], len(BLOCKS)), dtype=bool)
 
     @property
-    def selected(self) -> np.ndarray:
-        return self.pairs[self.on]
+    def selected(self):
+        """``(pairs, use)`` for :func:`corner_rows`: the pairs with a block of rows, and
+        which."""
+        k = np.flatnonzero(self.on.any(axis=1))
+        return self.pairs[k], self.on[k]
 
-    def grow(self, b: np.ndarray):
-        """Take in the pairs near a cap at ``b``. Returns whether any came in, and the
-        stations of those ``b`` passes too fast."""
+    def grow(self, b: np.ndarray, share: float | None = None):
+        """Take in the blocks of rows near their bound at ``b``: room below ``share`` (default
+        :data:`NEAR_SHARE`) of their pair's scale. Returns whether any came in, and the
+        stations of the pairs ``b`` passes too fast."""
         if self.pairs.shape[0] == 0:
             return False, np.zeros(0, dtype=np.int64)
         room, scale = corner_room(self.p, self.lay, b, self.pairs)
-        near = room < NEAR_SHARE * scale
+        near = room < (NEAR_SHARE if share is None else share) * scale[:, None]
+        if share is not None and share > NEAR_SHARE:
+            # far from the answer which side a corner ends up on is not known yet: all blocks
+            near = np.repeat(near.any(axis=1, keepdims=True), near.shape[1], axis=1)
         new = near & ~self.on
         self.on |= near
-        broken = self.pairs[new & (room < BROKEN_ROOM)]
+        broken = self.pairs[np.any(new & (room < BROKEN_ROOM), axis=1)]
         lay = self.lay
         nodes = np.concatenate((lay.step_from[broken[:, 0]], lay.step_to[broken[:, 0]],
                                 lay.step_to[broken[:, 1]]))
         return bool(new.any()), nodes
 
 
-__all__ = ["BROKEN_ROOM", "NEAR_SHARE", "SEGMENTS", "CornerSelection", "corner_pairs",
+__all__ = ["BLOCKS", "BROKEN_ROOM", "FAR_SHARE", "NEAR_SHARE", "SEGMENTS", "CornerSelection",
+           "corner_pairs", "corner_room_numpy",
            "corner_room", "corner_rows"]

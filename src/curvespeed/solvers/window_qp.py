@@ -41,7 +41,9 @@ def reduced(builder, b_hat: np.ndarray):
     if p.end_reserve is not None:
         brake_b, pairs = p.end_reserve
         reserve = np.array(pairs, dtype=float).reshape(-1, 2)
-    corner_first = np.ascontiguousarray(builder.corners[:, 0], dtype=np.int64)
+    pairs, use = builder.corners
+    corner_first = np.ascontiguousarray(pairs[:, 0], dtype=np.int64)
+    corner_use = np.ascontiguousarray(use, dtype=bool)
     nc = corner_first.size
     # bounds, accel chords, jerk rows, the end reserve, corner rows (at most 8 a pair of steps)
     rows = nv + 8 * (nv - 1) + 2 * nt + reserve.shape[0] + 8 * nc
@@ -58,7 +60,7 @@ def reduced(builder, b_hat: np.ndarray):
         f64(lay.D_by_slot),
         *(np.ascontiguousarray(a, dtype=np.int64) for a in (t.node, t.prev, t.next)),
         f64(t.weights), f64(t.scale), f64(reserve),
-        indptr, indices, data, lo, up, prow, pcol, pval, q, starts, corner_first,
+        indptr, indices, data, lo, up, prow, pcol, pval, q, starts, corner_first, corner_use,
         (lim.gravity_mps2, lim.max_lateral_accel_mps2, lim.max_accel_mps2,
          lim.max_decel_mps2, lim.drag_per_b_1pm, lim.rolling_resistance_coefficient,
          p.ds, opt.margin, opt.chord_tolerance_mps2, B_FLOOR, lim.max_jerk_mps3,
