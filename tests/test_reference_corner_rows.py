@@ -183,3 +183,43 @@ def test_the_compiled_room_is_the_numpy_room_to_the_last_bit():
             ref = cr.corner_room_numpy(p, lay, b, pairs)
             for x, y in zip(fast, ref):
                 assert x.shape == y.shape and x.tobytes() == y.tobytes()
+
+
+def test_rows_taken_in_late_are_kept_and_a_run_stopped_before_says_so(monkeypatch):
+    """Started from the plan made without corner rows (faster than the jerk bound allows) and
+    with the first selection skipped, the first QP leaves the corners too fast again. With
+    iterations to spare the run takes the rows in and the next answer as it stands (a line
+    search from the too-fast iterate would keep it: it is the faster one), and ends with no
+    corner too fast, as fast as with the rows from the start (to the stopping rule); stopped
+    at one iteration, its notes say so."""
+    from curvespeed.solvers.convex import ConvexOptions
+    from curvespeed.solvers.qp_layout import QPLayout
+
+    problem = straight_problem(12.0, 1.0, straight_limits(10.0, 1.0, 0.5))
+    lay = QPLayout(problem, jerk=True)
+    pairs = cr.corner_pairs(lay)
+    usual = solve_convex(problem)
+    plain_grow = cr.CornerSelection.grow
+    calls = []
+
+    def no_rows(self, b, share=None):
+        return False, np.zeros(0, dtype=np.int64)
+
+    def late_grow(self, b, share=None):
+        calls.append(share)
+        return no_rows(self, b) if len(calls) == 1 else plain_grow(self, b, share)
+
+    monkeypatch.setattr(cr.CornerSelection, "grow", no_rows)
+    fast = solve_convex(problem)
+    assert cr.corner_room(problem, lay, fast.b, pairs)[0].min() < -1e-3
+    monkeypatch.setattr(cr.CornerSelection, "grow", late_grow)
+    stopped = solve_convex(problem, ConvexOptions(max_iterations=1), warm_start=fast.b,
+                           cap_warning=False)
+    assert any("faster than the jerk bound allows" in n for n in stopped.notes)
+    calls.clear()
+    late = solve_convex(problem, warm_start=fast.b)
+    assert not any("faster than the jerk bound allows" in n for n in late.notes)
+    assert cr.corner_room(problem, lay, late.b, pairs)[0].min() >= cr.BROKEN_ROOM
+    t_late = float(np.sum(problem.step_times(late.b)))
+    t_usual = float(np.sum(problem.step_times(usual.b)))
+    assert t_late == pytest.approx(t_usual, rel=1e-4)
