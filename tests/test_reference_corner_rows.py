@@ -223,3 +223,29 @@ def test_rows_taken_in_late_are_kept_and_a_run_stopped_before_says_so(monkeypatc
     t_late = float(np.sum(problem.step_times(late.b)))
     t_usual = float(np.sum(problem.step_times(usual.b)))
     assert t_late == pytest.approx(t_usual, rel=1e-4)
+
+
+def test_a_loop_with_a_stop_keeps_every_corner_and_its_stop_move_is_never_faster():
+    """On a closed loop (the rows wrap round its seam) with one stop, the plan leaves no cap
+    faster than the jerk bound allows at any pair, the seam's included, and the move from the
+    stop round the loop back to it is not faster than the double-S closed form of the same
+    length on a straight (the loop's curve can only slow it: on a 400 m circle, radius 63.7 m,
+    10 m/s takes 1.57 m/s^2 of lateral acceleration out of the comfort ellipse; measured
+    +0.22 %)."""
+    from curvespeed.limits import RouteConstraints, Stop
+    from curvespeed.problem import build_problem
+    from curvespeed.solvers.qp_layout import QPLayout
+
+    from helpers import circle_geometry
+
+    geo = circle_geometry(400.0 / (2 * np.pi))
+    limits = straight_limits(10.0, 1.5, 2.0)
+    problem = build_problem(geo, limits, RouteConstraints(stops=(Stop(station_m=100.0),)))
+    result = solve_convex(problem)
+    lay = QPLayout(problem, jerk=True)
+    pairs = cr.corner_pairs(lay)
+    assert np.any(pairs[:, 1] < pairs[:, 0])            # the pair across the seam
+    room, _ = cr.corner_room(problem, lay, result.b[:lay.nv], pairs)
+    assert room.min() >= cr.BROKEN_ROOM
+    total = float(np.sum(problem.step_times(result.b)))
+    assert total >= double_s_time(geo.length_m, 10.0, 1.5, 2.0) * (1 - 1e-6)
