@@ -161,16 +161,28 @@ class ReferenceQPBuilder:
                             (np.concatenate((steps, steps)), np.concatenate((sf, st)))),
                            shape=(ns, nv))
         Hc = J * ds / w_hat - s_from * base[sf] - s_to * base[st]
+        # each node's caps over its speed range (comfort, or grip at the largest load and the
+        # least or most resistance), a pair's the largest of its three nodes'
+        e, zero, nodes = self.b_env[:nv], np.zeros(nv), np.arange(nv)
+        load = np.maximum(p.normal_accel(zero, nodes), p.normal_accel(e, nodes))
+        r0, r1 = p.resistance(zero, nodes), p.resistance(e, nodes)
+        grip = p.mu_long[:nv] * load
+        node_caps = (np.minimum(lim.max_accel_mps2, grip - np.minimum(r0, r1)),
+                     np.minimum(lim.max_decel_mps2, grip + np.maximum(r0, r1)))
+        trio = (sf[pair[0]], st[pair[0]], st[pair[1]])
         blocks, ups = [], []
-        for sign, cap in ((1.0, lim.max_accel_mps2), (-1.0, lim.max_decel_mps2)):
-            if not np.isfinite(cap):
-                continue
-            cap = cap * (1.0 - self.opt.margin)
+        for sign, node_cap in zip((1.0, -1.0), node_caps):
+            pair_cap = np.maximum(np.maximum(node_cap[trio[0]], node_cap[trio[1]]),
+                                  node_cap[trio[2]])
             for c, n in ((0, 1), (1, 0)):
+                ok = np.isfinite(pair_cap)
+                first, second = pair[0][ok], pair[1][ok]
+                both = (first, second)
+                cap = pair_cap[ok] * (1.0 - self.opt.margin)
                 for alpha, beta, gamma in CORNER_SEGMENTS:
-                    blocks.append(sign * (alpha * Ma[pair[c]] - Ma[pair[n]]) - Hs[pair[n]]
-                                  - gamma * Hs[pair[c]])
-                    ups.append(beta * cap + Hc[pair[n]] + gamma * Hc[pair[c]])
+                    blocks.append(sign * (alpha * Ma[both[c]] - Ma[both[n]]) - Hs[both[n]]
+                                  - gamma * Hs[both[c]])
+                    ups.append(beta * cap + Hc[both[n]] + gamma * Hc[both[c]])
         if not blocks:
             return sp.csr_matrix((0, nv)), np.zeros(0)
         return sp.vstack(blocks, format="csr"), np.concatenate(ups)

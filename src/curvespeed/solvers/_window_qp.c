@@ -343,27 +343,29 @@ static int64_t interval_blocks(const rows_t *o, const objective_t *obj, int64_t 
     return count;
 }
 
-#define N_ARRAYS 33
+#define N_ARRAYS 35
 
 /* assemble(kappa_abs, cos_bank, sin_bank, cos_grade, sin_grade, mu_long, mu_lat, fixed,
  *          fixed_value, b_hat, b_env, time_coef, f_first, f_last, d_slots, t_node, t_prev,
  *          t_next, t_weights, t_scale, reserve, indptr, indices, data, lo, up, prow, pcol,
- *          pval, q, starts, corner_first, corner_use, scalars) -> (rows, entries, objective
+ *          pval, q, starts, corner_first, corner_use, corner_hi, corner_lo, scalars) -> (rows,
+ *          entries, objective
  *          entries, scale, blocks + 1) (starts: qp_rows.interval_blocks of the QP written;
  *          corner_first: the first step of each pair that gets corner rows, increasing;
- *          corner_use: which of its four blocks) */
+ *          corner_use: which of its four blocks; corner_hi, corner_lo: each node's caps,
+ *          corner_rows.corner_caps) */
 static PyObject *py_assemble(PyObject *self, PyObject *args)
 {
     (void)self;
     PyObject *o[N_ARRAYS];
     double s[14];
-    if (!PyArg_ParseTuple(args, "OOOOOOOOOOOOOOOOOOOOOOOOOOOOOOOOO(dddddddddddddd)",
+    if (!PyArg_ParseTuple(args, "OOOOOOOOOOOOOOOOOOOOOOOOOOOOOOOOOOO(dddddddddddddd)",
                           &o[0], &o[1], &o[2], &o[3], &o[4], &o[5], &o[6], &o[7], &o[8], &o[9],
                           &o[10], &o[11], &o[12], &o[13], &o[14], &o[15], &o[16], &o[17],
                           &o[18], &o[19], &o[20], &o[21], &o[22], &o[23], &o[24], &o[25],
-                          &o[26], &o[27], &o[28], &o[29], &o[30], &o[31], &o[32], &s[0], &s[1],
-                          &s[2], &s[3], &s[4], &s[5], &s[6], &s[7], &s[8], &s[9], &s[10], &s[11],
-                          &s[12], &s[13]))
+                          &o[26], &o[27], &o[28], &o[29], &o[30], &o[31], &o[32], &o[33], &o[34],
+                          &s[0], &s[1], &s[2], &s[3], &s[4], &s[5], &s[6], &s[7], &s[8], &s[9],
+                          &s[10], &s[11], &s[12], &s[13]))
         return NULL;
     Py_buffer probe;
     if (PyObject_GetBuffer(o[0], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
@@ -387,10 +389,10 @@ static PyObject *py_assemble(PyObject *self, PyObject *args)
     const Py_ssize_t items[N_ARRAYS] = {
         nv, nv, nv, nv, nv, nv, nv, nv, nv, nv, nv, nv - 1, nv - 1, nv - 1, 3 * nv,
         nt, nt, nt, 3 * nt, nt, 2 * nr, rows + 1, nnz, nnz, rows, rows, 3 * nv, 3 * nv, 3 * nv,
-        nv, nv + 1, nc, 4 * nc};
+        nv, nv + 1, nc, 4 * nc, nv, nv};
     const char kinds[N_ARRAYS] = {'d', 'd', 'd', 'd', 'd', 'd', 'd', '?', 'd', 'd', 'd', 'd',
                                   'd', 'd', 'd', 'q', 'q', 'q', 'd', 'd', 'd', 'q', 'q', 'd',
-                                  'd', 'd', 'q', 'q', 'd', 'd', 'q', 'q', '?'};
+                                  'd', 'd', 'q', 'q', 'd', 'd', 'q', 'q', '?', 'd', 'd'};
     Py_buffer v[N_ARRAYS];
     int got;
     PyObject *result = NULL;
@@ -439,8 +441,7 @@ static PyObject *py_assemble(PyObject *self, PyObject *args)
         }
         objective_t obj = {v[26].buf, v[27].buf, v[28].buf, v[29].buf, 0, 1.0};
         int bad = accel_rows(&L, &p, &out) != 0 || jerk_rows(&L, &t, &out) != 0
-                  || corner_rows(&L, t.J, s[2] * (1.0 - s[7]), s[3] * (1.0 - s[7]), cf,
-                                 v[32].buf, nc, &out) != 0;
+                  || corner_rows(&L, t.J, v[33].buf, v[34].buf, cf, v[32].buf, nc, &out) != 0;
         if (!bad && nr > 0) reserve_rows(&L, v[20].buf, nr, s[13], &out);
         bad = bad || objective(&L, free_number, &obj) != 0;
         int64_t n_free = free_number[nv - 1] + 1;
@@ -464,7 +465,7 @@ static PyMethodDef methods[] = {
      "QP of one iteration on an open stretch (convex_qp.QPBuilder.reduced) and its blocks "
      "(qp_rows.interval_blocks)."},
     {"corner_room", py_corner_room, METH_VARARGS,
-     "corner_room(b, pair_first, room, scale, (J, ds, max_accel, max_decel)): "
+     "corner_room(b, pair_first, cap_hi, cap_lo, room, scale, (J, ds)): "
      "corner_rows.corner_room on an open stretch."},
     {NULL, NULL, 0, NULL}};
 

@@ -60,7 +60,7 @@ typedef struct {                    /* the stretch's layout and the iterate */
  * hi then lo; the pair's first step at the corner, then its second), segment, pair */
 static const double SEGMENTS[2][3] = {{4.0, 3.0, 0.0}, {4.0 / 3.0, 1.0 / 3.0, 2.0 / 3.0}};
 
-static int corner_rows(const layout_t *L, double J, double max_accel, double max_decel,
+static int corner_rows(const layout_t *L, double J, const double *cap_hi, const double *cap_lo,
                        const int64_t *pair_first, const char *use, int64_t n_pairs, rows_t *o)
 {
     int64_t nv = L->nv;
@@ -96,9 +96,8 @@ static int corner_rows(const layout_t *L, double J, double max_accel, double max
         }
     }
     const double mean_a[2][3] = {{-h, h, 0.0}, {0.0, -h, h}};
-    const double caps[2] = {max_accel, max_decel}, signs[2] = {1.0, -1.0};
+    const double *caps[2] = {cap_hi, cap_lo}, signs[2] = {1.0, -1.0};
     for (int side = 0; side < 2; side++) {
-        if (!isfinite(caps[side])) continue;
         for (int c = 0; c < 2; c++) {
             int n = 1 - c, block = 2 * side + c;    /* corner_rows.BLOCKS */
             for (int seg = 0; seg < 2; seg++) {
@@ -107,6 +106,10 @@ static int corner_rows(const layout_t *L, double J, double max_accel, double max
                 for (int64_t q = 0; q < n_pairs; q++) {
                     if (!keep[q] || !use[4 * q + block]) continue;
                     int64_t i = pair_first[q];
+                    const double *cv = caps[side];     /* the pair's: the largest of its nodes' */
+                    double cap = np_max(np_max(cv[i], cv[i + 1]), cv[i + 2]);
+                    if (!isfinite(cap)) continue;
+                    cap = cap * (1.0 - L->margin);
                     const double *sc = half + 12 * q + 4 * c, *sn = half + 12 * q + 4 * n;
                     int64_t cols[3] = {i, i + 1, i + 2};
                     char pr[3];
@@ -116,8 +119,7 @@ static int corner_rows(const layout_t *L, double J, double max_accel, double max
                                   - gamma * sc[j];
                         pr[j] = vals[j] != 0.0;
                     }
-                    emit(o, 3, cols, pr, vals, -INFINITY, beta * caps[side] + sn[3]
-                                                             + gamma * sc[3]);
+                    emit(o, 3, cols, pr, vals, -INFINITY, beta * cap + sn[3] + gamma * sc[3]);
                 }
             }
         }
@@ -149,14 +151,14 @@ static int get(PyObject *o, Py_buffer *v, int writable, Py_ssize_t items, char k
 
 
 /* corner_rows.corner_room on an open stretch (steps k -> k + 1), for the pairs starting at
- * pair_first: room[4 q + block] and scale[q], numpy's operations in its order */
+ * pair_first, under the nodes' caps (drive, braking): room[4 q + block] and scale[q], numpy's
+ * operations in its order */
 static PyObject *py_corner_room(PyObject *self, PyObject *args)
 {
     (void)self;
-    PyObject *o[4];
-    double J, ds, max_accel, max_decel;
-    if (!PyArg_ParseTuple(args, "OOOO(dddd)", &o[0], &o[1], &o[2], &o[3], &J, &ds, &max_accel,
-                          &max_decel))
+    PyObject *o[6];
+    double J, ds;
+    if (!PyArg_ParseTuple(args, "OOOOOO(dd)", &o[0], &o[1], &o[2], &o[3], &o[4], &o[5], &J, &ds))
         return NULL;
     Py_buffer probe;
     if (PyObject_GetBuffer(o[0], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
@@ -165,24 +167,25 @@ static PyObject *py_corner_room(PyObject *self, PyObject *args)
     if (PyObject_GetBuffer(o[1], &probe, PyBUF_C_CONTIGUOUS) != 0) return NULL;
     Py_ssize_t m = probe.len / 8;
     PyBuffer_Release(&probe);
-    const Py_ssize_t items[4] = {nv, m, 4 * m, m};
-    const char kinds[4] = {'d', 'q', 'd', 'd'};
-    Py_buffer v[4];
+    const Py_ssize_t items[6] = {nv, m, nv, nv, 4 * m, m};
+    const char kinds[6] = {'d', 'q', 'd', 'd', 'd', 'd'};
+    Py_buffer v[6];
     int got;
     PyObject *result = NULL;
-    for (got = 0; got < 4; got++)
-        if (get(o[got], &v[got], got >= 2, items[got], kinds[got]) != 0) goto done;
+    for (got = 0; got < 6; got++)
+        if (get(o[got], &v[got], got >= 4, items[got], kinds[got]) != 0) goto done;
     {
         const double *b = v[0].buf;
         const int64_t *first = v[1].buf;
-        double *room = v[2].buf, *scale = v[3].buf;
+        const double *caps[2] = {v[2].buf, v[3].buf};
+        double *room = v[4].buf, *scale = v[5].buf;
         for (Py_ssize_t q = 0; q < m; q++) {
             if (first[q] < 0 || first[q] + 2 >= nv) {
                 PyErr_SetString(PyExc_ValueError, "window_qp kernel: a pair out of range");
                 goto done;
             }
         }
-        const double caps[2] = {max_accel, max_decel}, signs[2] = {1.0, -1.0};
+        const double signs[2] = {1.0, -1.0};
         for (Py_ssize_t q = 0; q < m; q++) {
             int64_t k = first[q];
             double v0 = sqrt(np_max(b[k], 0.0)), v1 = sqrt(np_max(b[k + 1], 0.0));
@@ -190,10 +193,12 @@ static PyObject *py_corner_room(PyObject *self, PyObject *args)
             double a[2] = {(b[k + 1] - b[k]) * (0.5 / ds), (b[k + 2] - b[k + 1]) * (0.5 / ds)};
             double h[2] = {J * ds / np_max(v0 + v1, 1e-12), J * ds / np_max(v1 + v2, 1e-12)};
             for (int side = 0; side < 2; side++) {
+                const double *cv = caps[side];
+                double cap = np_max(np_max(cv[k], cv[k + 1]), cv[k + 2]);
                 for (int c = 0; c < 2; c++) {
                     double r = INFINITY, sign = signs[side];
-                    if (isfinite(caps[side])) {
-                        double d = caps[side] - sign * a[c], drop = sign * (a[c] - a[1 - c]);
+                    if (isfinite(cap)) {
+                        double d = cap - sign * a[c], drop = sign * (a[c] - a[1 - c]);
                         for (int seg = 0; seg < 2; seg++)
                             r = np_min(r, SEGMENTS[seg][1] * d + SEGMENTS[seg][2] * h[c]
                                           + h[1 - c] - drop);

@@ -252,7 +252,8 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
     # corner rows go to the pairs of steps near a cap (corner_rows.CornerSelection): from the
     # start for a warm start; the envelope is at a cap nearly everywhere it is not at its
     # ceiling, so from the envelope the first QP goes without and the set grows from its answer
-    corners = CornerSelection(problem, lay, builder.corners[0]) if lay.jerk else None
+    corners = (CornerSelection(problem, lay, builder.corner_caps, builder.corners[0])
+               if lay.jerk else None)
     if corners is not None:
         corners.grow(b_hat, FAR_SHARE if warm_start is None else None)
         builder.corners = corners.selected

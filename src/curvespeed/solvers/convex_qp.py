@@ -18,7 +18,7 @@ import numpy as np
 from ..order_stats import median
 from ..problem import SpeedProblem
 from . import window_qp
-from .corner_rows import corner_pairs, corner_rows
+from .corner_rows import corner_caps, corner_pairs, corner_rows
 from .qp_layout import QPLayout
 from .qp_rows import RowQP, canonical, pad, reduce_tables
 from .qp_time import B_FLOOR, time_model, tridiagonal_hessian
@@ -44,6 +44,11 @@ class QPBuilder:
         #: the sequential-convex loop narrows them to those near a cap
         pairs = corner_pairs(lay)
         self.corners = (pairs, np.ones((pairs.shape[0], 4), dtype=bool))
+
+    @cached_property
+    def corner_caps(self):
+        """Each node's caps for the corner rows (:func:`.corner_rows.corner_caps`)."""
+        return corner_caps(self.p, self.lay, self.b_env)
 
     @cached_property
     def step_forms(self):
@@ -312,8 +317,8 @@ class QPBuilder:
         if lay.jerk:
             c, present, v, up = self._jerk_rows(b_hat, every_step)
             tables.append((c, present, v, np.full(up.size, -np.inf), up))
-            c, v, up = corner_rows(self.p, lay, b_hat, self.opt.margin, *self.corners,
-                                   every_step=every_step)
+            c, v, up = corner_rows(self.p, lay, b_hat, self.opt.margin, self.corner_caps,
+                                   *self.corners, every_step=every_step)
             c, present, v = canonical(c, v)
             # an entry that comes to exactly zero is none (as scipy.sparse sums have it)
             tables.append((c, present & (v != 0.0), v, np.full(up.size, -np.inf), up))

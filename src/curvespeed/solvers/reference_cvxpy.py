@@ -100,7 +100,7 @@ def build_reference_model(problem: SpeedProblem, b_lin: np.ndarray, b_upper: np.
 
     if lim.max_jerk_mps3 is not None:
         cons += _jerk_constraints(problem, b, b_lin[:nv], nv, frm, to, mean_a, f_first, f_last)
-        cons += _corner_constraints(problem, b, b_lin[:nv], fixed, frm, to, mean_a)
+        cons += _corner_constraints(problem, b, b_lin[:nv], b_upper, fixed, frm, to, mean_a)
     if lim.max_lateral_jerk_mps3 is not None:
         cons += _lateral_jerk_constraints(problem, b, b_lin[:nv], fixed, frm, to)
 
@@ -229,11 +229,12 @@ def _jerk_constraints(problem, b, b_lin, nv, frm, to, mean_a, f_first, f_last):
     return cons
 
 
-def _corner_constraints(problem, b, b_lin, fixed, frm, to, mean_a):
+def _corner_constraints(problem, b, b_lin, b_upper, fixed, frm, to, mean_a):
     """The acceleration leaves or reaches its comfort cap no faster than the jerk bound allows
     (:mod:`curvespeed.solvers.corner_rows` derives it): for two consecutive constant-
     acceleration steps, the corner step ``c`` and its neighbour ``n``,
-    ``sign (alpha a_c - a_n) <= beta cap + gamma J T_c / 2 + J T_n / 2`` for each chord.
+    ``sign (alpha a_c - a_n) <= beta cap + gamma J T_c / 2 + J T_n / 2`` for each chord, ``cap``
+    the largest the pair's nodes can have over their speed range up to ``b_upper``.
 
     ``J T / 2 = J ds / (v + v')``: ``v + v'`` is bounded above by the tangents of ``sqrt`` at
     ``b_lin`` (exact at a fixed station) and ``1 / x`` below by its tangent, as for the jerk
@@ -269,14 +270,25 @@ def _corner_constraints(problem, b, b_lin, fixed, frm, to, mean_a):
         w_up.append(r[nodes] + cp.multiply(slope, b[nodes] - np.where(free, b_lin[nodes], 0.0)))
     w_up = w_up[0] + w_up[1]
     half = J * ds * (2.0 / w_hat - cp.multiply(1.0 / (w_hat * w_hat), w_up))
+    # the largest cap a node can have over its speed range (the comfort cap, or the grip's at
+    # the largest normal load and the least or most resistance), a pair's the largest of its
+    # three nodes'
+    nv = b_lin.size
+    e, zero, nodes = b_upper[:nv], np.zeros(nv), np.arange(nv)
+    load = np.maximum(problem.normal_accel(zero, nodes), problem.normal_accel(e, nodes))
+    r0, r1 = problem.resistance(zero, nodes), problem.resistance(e, nodes)
+    grip = problem.mu_long[:nv] * load
+    trio = (frm[pair[0]], to[pair[0]], to[pair[1]])
     cons = []
-    for sign, cap in ((1.0, lim.max_accel_mps2), (-1.0, lim.max_decel_mps2)):
-        if not np.isfinite(cap):
-            continue
-        for c, n in ((0, 1), (1, 0)):
+    for sign, node_cap in ((1.0, np.minimum(lim.max_accel_mps2, grip - np.minimum(r0, r1))),
+                           (-1.0, np.minimum(lim.max_decel_mps2, grip + np.maximum(r0, r1)))):
+        cap = np.max([node_cap[t] for t in trio], axis=0)
+        ok = np.isfinite(cap)
+        first, second = pair[0][ok], pair[1][ok]
+        for c, n in ((first, second), (second, first)):
             for alpha, beta, gamma in SEGMENTS:
-                lhs = sign * (alpha * mean_a[pair[c]] - mean_a[pair[n]])
-                cons.append(lhs <= beta * cap + gamma * half[pair[c]] + half[pair[n]])
+                lhs = sign * (alpha * mean_a[c] - mean_a[n])
+                cons.append(lhs <= beta * cap[ok] + gamma * half[c] + half[n])
     return cons
 
 

@@ -44,6 +44,7 @@ def reduced(builder, b_hat: np.ndarray):
     pairs, use = builder.corners
     corner_first = np.ascontiguousarray(pairs[:, 0], dtype=np.int64)
     corner_use = np.ascontiguousarray(use, dtype=bool)
+    corner_hi, corner_lo = (np.ascontiguousarray(c, dtype=float) for c in builder.corner_caps)
     nc = corner_first.size
     # bounds, accel chords, jerk rows, the end reserve, corner rows (at most 8 a pair of steps)
     rows = nv + 8 * (nv - 1) + 2 * nt + reserve.shape[0] + 8 * nc
@@ -61,6 +62,7 @@ def reduced(builder, b_hat: np.ndarray):
         *(np.ascontiguousarray(a, dtype=np.int64) for a in (t.node, t.prev, t.next)),
         f64(t.weights), f64(t.scale), f64(reserve),
         indptr, indices, data, lo, up, prow, pcol, pval, q, starts, corner_first, corner_use,
+        corner_hi, corner_lo,
         (lim.gravity_mps2, lim.max_lateral_accel_mps2, lim.max_accel_mps2,
          lim.max_decel_mps2, lim.drag_per_b_1pm, lim.rolling_resistance_coefficient,
          p.ds, opt.margin, opt.chord_tolerance_mps2, B_FLOOR, lim.max_jerk_mps3,
