@@ -17,9 +17,9 @@ problem of :mod:`curvespeed.problem` with the squared speeds ``b`` as variables:
   ``w = (v_prev + 2 v + v_next) / 4``; ``w`` is concave in ``b`` so its tangent at ``b_hat`` is an
   upper bound, and ``J ds / w`` is then replaced by its tangent (a lower bound, ``1/w`` being
   convex). Both steps keep the row conservative for any ``b_hat > 0``;
-* **corners** (with a jerk bound): the acceleration leaves or reaches its comfort cap no faster
-  than a jerk-limited motion can, by chords of the largest drop of the mean acceleration from a
-  step below the cap (:mod:`.corner_rows`), on the pairs of steps near a cap
+* **corners** (with a jerk bound): the acceleration leaves or reaches its cap (comfort or grip)
+  no faster than a jerk-limited motion can, by chords of the largest drop of the mean
+  acceleration from a step below the cap (:mod:`.corner_rows`), on the pairs of steps near a cap
   (:class:`.corner_rows.CornerSelection`: the set grows from each iterate, and a stretch whose
   iterate is outside rows just added takes the next QP's answer without a line search);
 * **lateral jerk** (when bounded): the linear forms that bound the station rate of the lateral
@@ -249,9 +249,9 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
     if warm_start is not None:
         b_hat = np.where(lay.fixed, b_env, np.clip(warm_start[:nv], 0.0, b_env))
     run = ScpRun(b_hat, b_env, lay, problem.ds, options)
-    # corner rows go to the pairs of steps near a cap (corner_rows.CornerSelection): from the
-    # start for a warm start; the envelope is at a cap nearly everywhere it is not at its
-    # ceiling, so from the envelope the first QP goes without and the set grows from its answer
+    # corner rows go to the blocks near their bound (corner_rows.CornerSelection): at a warm
+    # start those near it there; from the envelope, which is far from the answer, and after the
+    # first QP from it, every block of a pair within the wider FAR_SHARE
     corners = (CornerSelection(problem, lay, builder.corner_caps, builder.corners[0])
                if lay.jerk else None)
     if corners is not None:

@@ -61,9 +61,9 @@ from .qp_time import B_FLOOR
 #: ``d = A - a_c`` is ``alpha a_c - a_n <= beta A + ...`` with ``alpha = 1 + beta``.
 SEGMENTS = ((4.0, 3.0, 0.0), (4.0 / 3.0, 1.0 / 3.0, 2.0 / 3.0))
 
-#: The blocks of rows of a pair: ``(sign, corner)``, the side (+1 the cap ``max_accel``, -1 the
-#: cap ``-max_decel``) and which of the pair's two steps is at the corner (0 the first: the
-#: acceleration leaves the cap; 1 the second: it reaches it).
+#: The blocks of rows of a pair: ``(sign, corner)``, the side (+1 the drive cap, -1 the braking
+#: cap) and which of the pair's two steps is at the corner (0 the first: the acceleration leaves
+#: the cap; 1 the second: it reaches it).
 BLOCKS = ((1.0, 0), (1.0, 1), (-1.0, 0), (-1.0, 1))
 
 
@@ -206,10 +206,14 @@ def corner_room_numpy(p: SpeedProblem, lay, b: np.ndarray, caps, pairs: np.ndarr
     return room, np.minimum(h1, h2)
 
 
-#: A pair gets its rows once its room is below this share of its steps' smaller ``J T / 2``
-#: (:class:`CornerSelection`): a pair held at the cap has a room of ``J T' / 2`` and needs none.
+#: A block of a pair's rows comes in once its room is below this share of the pair's smaller
+#: ``J T / 2`` (:class:`CornerSelection`): a pair held at the cap has a room of ``J T' / 2`` and
+#: needs none.
 NEAR_SHARE = 0.5
-#: The same share after the first QP from the jerk-free envelope (:class:`CornerSelection`).
+#: The share at the jerk-free envelope and after the first QP from it, where the answer is still
+#: far and may turn a corner on either side: every block of a pair within it comes in. With the
+#: near share there too the 10 km benchmark road took 3-4 iterations instead of 2 (stretches
+#: restarted for corners their first answer passed too fast).
 FAR_SHARE = 2.0
 #: Room below this (m/s^2) counts as a corner the plan passes too fast, not as rounding.
 BROKEN_ROOM = -1e-6
@@ -221,12 +225,12 @@ class CornerSelection:
     Most pairs never come near a cap (on the bundled mountain road 47 % of the final plan's
     pairs are within ``J T / 2`` of one, nearly all of them held at it, where no row binds), and
     the rows of every pair made a receding-horizon window's QP 1.4-2.4 times slower (three
-    alternating runs). So the rows
-    go to the pairs whose room at an iterate is below :data:`NEAR_SHARE` of their scale
-    (:func:`corner_room`), and the set only grows. A pair taken in whose room is already
-    negative was passed too fast by the iterate: :meth:`grow` names its stations, and the loop
-    takes the next QP's answer for that stretch as it stands rather than searching the line
-    from an iterate outside the new rows."""
+    alternating runs). So a pair gets only the blocks (:data:`BLOCKS`) whose room at an iterate
+    is below :data:`NEAR_SHARE` of its scale (:func:`corner_room`; :data:`FAR_SHARE` and every
+    block of it from the envelope), and the set only grows. A block taken in whose room is
+    already negative was passed too fast by the iterate: :meth:`grow` names its pair's
+    stations, and the loop takes the next QP's answer for that stretch as it stands rather than
+    searching the line from an iterate outside the new rows."""
 
     def __init__(self, problem: SpeedProblem, lay, caps, pairs: np.ndarray):
         self.p, self.lay, self.caps, self.pairs = problem, lay, caps, pairs
