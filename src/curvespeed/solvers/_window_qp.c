@@ -384,8 +384,8 @@ static PyObject *py_assemble(PyObject *self, PyObject *args)
         PyErr_SetString(PyExc_ValueError, "window_qp kernel: fewer than two stations");
         return NULL;
     }
-    Py_ssize_t rows = nv + 8 * (nv - 1) + 2 * nt + nr + 8 * nc;
-    Py_ssize_t nnz = nv + 16 * (nv - 1) + 6 * nt + 2 * nr + 24 * nc;
+    Py_ssize_t rows = nv + 8 * (nv - 1) + 2 * nt + nr + 4 * N_SEGMENTS * nc;
+    Py_ssize_t nnz = nv + 16 * (nv - 1) + 6 * nt + 2 * nr + 12 * N_SEGMENTS * nc;
     const Py_ssize_t items[N_ARRAYS] = {
         nv, nv, nv, nv, nv, nv, nv, nv, nv, nv, nv, nv - 1, nv - 1, nv - 1, 3 * nv,
         nt, nt, nt, 3 * nt, nt, 2 * nr, rows + 1, nnz, nnz, rows, rows, 3 * nv, 3 * nv, 3 * nv,

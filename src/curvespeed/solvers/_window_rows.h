@@ -58,7 +58,9 @@ typedef struct {                    /* the stretch's layout and the iterate */
 /* corner_rows.corner_rows: the given pairs of plain steps (the first step of each, in order)
  * with a free station, the blocks each has (use: 4 a pair, corner_rows.BLOCKS); by block (side
  * hi then lo; the pair's first step at the corner, then its second), segment, pair */
-static const double SEGMENTS[2][3] = {{4.0, 3.0, 0.0}, {4.0 / 3.0, 1.0 / 3.0, 2.0 / 3.0}};
+#define N_SEGMENTS 3
+static const double SEGMENTS[N_SEGMENTS][3] = {
+    {8.0, 7.0, 0.0}, {8.0 / 3.0, 5.0 / 3.0, 1.0 / 3.0}, {4.0 / 3.0, 1.0 / 3.0, 2.0 / 3.0}};
 
 static int corner_rows(const layout_t *L, double J, const double *cap_hi, const double *cap_lo,
                        const int64_t *pair_first, const char *use, int64_t n_pairs, rows_t *o)
@@ -100,7 +102,7 @@ static int corner_rows(const layout_t *L, double J, const double *cap_hi, const 
     for (int side = 0; side < 2; side++) {
         for (int c = 0; c < 2; c++) {
             int n = 1 - c, block = 2 * side + c;    /* corner_rows.BLOCKS */
-            for (int seg = 0; seg < 2; seg++) {
+            for (int seg = 0; seg < N_SEGMENTS; seg++) {
                 double alpha = SEGMENTS[seg][0], beta = SEGMENTS[seg][1];
                 double gamma = SEGMENTS[seg][2];
                 for (int64_t q = 0; q < n_pairs; q++) {
@@ -199,7 +201,7 @@ static PyObject *py_corner_room(PyObject *self, PyObject *args)
                     double r = INFINITY, sign = signs[side];
                     if (isfinite(cap)) {
                         double d = cap - sign * a[c], drop = sign * (a[c] - a[1 - c]);
-                        for (int seg = 0; seg < 2; seg++)
+                        for (int seg = 0; seg < N_SEGMENTS; seg++)
                             r = np_min(r, SEGMENTS[seg][1] * d + SEGMENTS[seg][2] * h[c]
                                           + h[1 - c] - drop);
                     }

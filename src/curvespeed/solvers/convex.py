@@ -251,7 +251,7 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
     run = ScpRun(b_hat, b_env, lay, problem.ds, options)
     # corner rows go to the blocks near their bound (corner_rows.CornerSelection): at a warm
     # start those near it there; from the envelope, which is far from the answer, and after the
-    # first QP from it, every block of a pair within the wider FAR_SHARE
+    # first QP from it, both blocks of a side within the wider FAR_SHARE
     corners = (CornerSelection(problem, lay, builder.corner_caps, builder.corners[0])
                if lay.jerk else None)
     if corners is not None:

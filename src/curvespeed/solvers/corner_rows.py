@@ -19,19 +19,19 @@ is lowest when it holds ``A`` and then falls at ``J`` for the step's last ``t`` 
 
 and for ``d >= J T / 2`` the jerk row (``J (T + T') / 2``, which ``g`` reaches there) binds. The
 same holds backwards in time (a step reaching the cap) and mirrored at ``-D``. ``g`` is
-concave, so its chords lie below it: the rows use two, on ``d / (J T)`` in ``[0, 1/8]`` and
-``[1/8, 1/2]``, as ``drop <= beta d + gamma J T / 2 + J T' / 2``. In the corner step's mean
-``a_c`` and the neighbour's ``a_n`` (hi side, ``d = A - a_c``)::
+concave, so its chords lie below it: the rows use three, on ``d / (J T)`` in ``[0, 1/32]``,
+``[1/32, 1/8]`` and ``[1/8, 1/2]``, as ``drop <= beta d + gamma J T / 2 + J T' / 2``. In the
+corner step's mean ``a_c`` and the neighbour's ``a_n`` (hi side, ``d = A - a_c``)::
 
     alpha a_c - a_n - gamma H_c - H_n <= beta A      (alpha, beta, gamma) in SEGMENTS
 
 with ``H = J T / 2 = J ds / (v + v')``. ``H`` is convex in ``b``, so, as for the jerk rows'
 time base, the tangents of ``sqrt`` (above it) and then of ``1 / x`` (below it) at ``b_hat``
 give a linear lower bound of it: the rows are conservative for any ``b_hat > 0`` and exact at
-``b_hat``. The chords lie below ``g``, so the rows ask a little more than the motion does: the
-8-12 m moves of the sweep come out +0.06..+0.35 % over the closed form. Measured with the cvxpy
-reference model, a third chord (at ``d / (J T) = 1/32``) would gain up to 0.09 % on those and
-less than 0.01 % from 18 m on, for four more rows a pair.
+``b_hat``. The chords lie below ``g``, so the rows ask a little more than the motion does: with
+two chords (without the one on ``[0, 1/32]``) the sweep had 202 moves in its band and 12 m
+moves up to +0.184 % over the closed form, with three 204 and +0.135 %; most of what is left
+over 8-12 m is the constant-acceleration step's own (``docs/method.md``).
 
 Only plain steps get the rows (constant acceleration, ``time_coef == 2``, unit acceleration
 factors): a step next to rest or a launch's ramp step is driven with its own shape. ``A`` (and
@@ -52,14 +52,18 @@ from __future__ import annotations
 import numpy as np
 
 from ..problem import SpeedProblem
-from . import window_qp
 from .qp_time import B_FLOOR
 
-#: ``(alpha, beta, gamma)`` of each chord of ``g`` (module docstring): the chord on
-#: ``d / (J T)`` in [0, 1/8] has slope 3 and passes through 0, the one on [1/8, 1/2] slope 1/3
-#: and ``g = J T / 3`` at ``d = 0``. ``drop <= beta d + gamma J T / 2 + J T' / 2`` with
+try:
+    from . import _window_qp as _compiled     # the window kernel's second call, corner_room
+except ImportError:             # the package installs without a C compiler; numpy does the same
+    _compiled = None
+
+#: ``(alpha, beta, gamma)`` of each chord of ``g`` (module docstring), on ``d / (J T)`` in
+#: [0, 1/32] (slope 7, through 0), [1/32, 1/8] (slope 5/3, ``g = J T / 6`` at ``d = 0``) and
+#: [1/8, 1/2] (slope 1/3, ``J T / 3``). ``drop <= beta d + gamma J T / 2 + J T' / 2`` with
 #: ``d = A - a_c`` is ``alpha a_c - a_n <= beta A + ...`` with ``alpha = 1 + beta``.
-SEGMENTS = ((4.0, 3.0, 0.0), (4.0 / 3.0, 1.0 / 3.0, 2.0 / 3.0))
+SEGMENTS = ((8.0, 7.0, 0.0), (8.0 / 3.0, 5.0 / 3.0, 1.0 / 3.0), (4.0 / 3.0, 1.0 / 3.0, 2.0 / 3.0))
 
 #: The blocks of rows of a pair: ``(sign, corner)``, the side (+1 the drive cap, -1 the braking
 #: cap) and which of the pair's two steps is at the corner (0 the first: the acceleration leaves
@@ -165,12 +169,12 @@ def corner_room(p: SpeedProblem, lay, b: np.ndarray, caps, pairs: np.ndarray):
     """:func:`corner_room_numpy`, in one compiled call on an open stretch (``_window_qp.c``:
     the same numbers to the last bit; a stretch's few hundred pairs cost more in numpy calls
     than in arithmetic)."""
-    if window_qp._compiled is None or lay.closed or pairs.shape[0] == 0:
+    if _compiled is None or lay.closed or pairs.shape[0] == 0:
         return corner_room_numpy(p, lay, b, caps, pairs)
     room = np.empty((pairs.shape[0], len(BLOCKS)))
     scale = np.empty(pairs.shape[0])
     f64 = np.ascontiguousarray
-    window_qp._compiled.corner_room(
+    _compiled.corner_room(
         f64(b[:lay.nv], dtype=float), f64(pairs[:, 0], dtype=np.int64),
         f64(caps[0], dtype=float), f64(caps[1], dtype=float), room, scale,
         (p.limits.max_jerk_mps3, p.ds))
@@ -211,9 +215,10 @@ def corner_room_numpy(p: SpeedProblem, lay, b: np.ndarray, caps, pairs: np.ndarr
 #: needs none.
 NEAR_SHARE = 0.5
 #: The share at the jerk-free envelope and after the first QP from it, where the answer is still
-#: far and may turn a corner on either side: every block of a pair within it comes in. With the
-#: near share there too the 10 km benchmark road took 3-4 iterations instead of 2 (stretches
-#: restarted for corners their first answer passed too fast).
+#: far and its corner may fall on either step of a pair: both blocks of a side within it come
+#: in. With the near share there too the 10 km benchmark road took 3-4 iterations instead of 2
+#: (stretches restarted for corners their first answer passed too fast); with all four blocks
+#: of a pair it took 10 % longer than with the side's two (measured, alternating).
 FAR_SHARE = 2.0
 #: Room below this (m/s^2) counts as a corner the plan passes too fast, not as rounding.
 BROKEN_ROOM = -1e-6
@@ -227,7 +232,7 @@ class CornerSelection:
     the rows of every pair made a receding-horizon window's QP 1.4-2.4 times slower (three
     alternating runs). So a pair gets only the blocks (:data:`BLOCKS`) whose room at an iterate
     is below :data:`NEAR_SHARE` of its scale (:func:`corner_room`; :data:`FAR_SHARE` and every
-    block of it from the envelope), and the set only grows. A block taken in whose room is
+    blocks of a side from the envelope), and the set only grows. A block taken in whose room is
     already negative was passed too fast by the iterate: :meth:`grow` names its pair's
     stations, and the loop takes the next QP's answer for that stretch as it stands rather than
     searching the line from an iterate outside the new rows."""
@@ -252,8 +257,10 @@ class CornerSelection:
         room, scale = corner_room(self.p, self.lay, b, self.caps, self.pairs)
         near = room < (NEAR_SHARE if share is None else share) * scale[:, None]
         if share is not None and share > NEAR_SHARE:
-            # far from the answer which side a corner ends up on is not known yet: all blocks
-            near = np.repeat(near.any(axis=1, keepdims=True), near.shape[1], axis=1)
+            # far from the answer which of the pair's steps ends up at the corner is not known
+            # yet: both blocks of a side (BLOCKS: hi first, lo second, two each)
+            side = near.reshape(-1, 2, 2).any(axis=2, keepdims=True)
+            near = np.repeat(side, 2, axis=2).reshape(near.shape)
         new = near & ~self.on
         self.on |= near
         broken = self.pairs[np.any(new & (room < BROKEN_ROOM), axis=1)]

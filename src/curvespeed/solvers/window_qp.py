@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .corner_rows import SEGMENTS
 from .qp_rows import RowQP
 from .qp_time import B_FLOOR
 
@@ -46,9 +47,11 @@ def reduced(builder, b_hat: np.ndarray):
     corner_use = np.ascontiguousarray(use, dtype=bool)
     corner_hi, corner_lo = (np.ascontiguousarray(c, dtype=float) for c in builder.corner_caps)
     nc = corner_first.size
-    # bounds, accel chords, jerk rows, the end reserve, corner rows (at most 8 a pair of steps)
-    rows = nv + 8 * (nv - 1) + 2 * nt + reserve.shape[0] + 8 * nc
-    entries = nv + 16 * (nv - 1) + 6 * nt + 2 * reserve.shape[0] + 24 * nc
+    # bounds, accel chords, jerk rows, the end reserve, corner rows (at most 4 blocks of
+    # len(SEGMENTS) rows a pair of steps, three entries each)
+    per_pair = 4 * len(SEGMENTS)
+    rows = nv + 8 * (nv - 1) + 2 * nt + reserve.shape[0] + per_pair * nc
+    entries = nv + 16 * (nv - 1) + 6 * nt + 2 * reserve.shape[0] + 3 * per_pair * nc
     indptr, indices = np.empty(rows + 1, dtype=np.int64), np.empty(entries, dtype=np.int64)
     data, lo, up = np.empty(entries), np.empty(rows), np.empty(rows)
     prow, pcol = np.empty(3 * nv, dtype=np.int64), np.empty(3 * nv, dtype=np.int64)
