@@ -252,8 +252,9 @@ class CornerSelection:
         """Take in the blocks of rows near their bound at ``b``: room below ``share`` (default
         :data:`NEAR_SHARE`) of their pair's scale. Returns whether any came in, and the
         stations of the pairs ``b`` passes too fast."""
+        none = (False, np.zeros(0, dtype=np.int64))
         if self.pairs.shape[0] == 0:
-            return False, np.zeros(0, dtype=np.int64)
+            return none
         room, scale = corner_room(self.p, self.lay, b, self.caps, self.pairs)
         near = room < (NEAR_SHARE if share is None else share) * scale[:, None]
         if share is not None and share > NEAR_SHARE:
@@ -262,14 +263,15 @@ class CornerSelection:
             side = near.reshape(-1, 2, 2).any(axis=2, keepdims=True)
             near = np.repeat(side, 2, axis=2).reshape(near.shape)
         new = near & ~self.on
+        if not new.any():           # most calls once the set has formed: nothing more to do
+            return none
         self.on |= near
         broken = self.pairs[np.any(new & (room < BROKEN_ROOM), axis=1)]
         lay = self.lay
         nodes = np.concatenate((lay.step_from[broken[:, 0]], lay.step_to[broken[:, 0]],
                                 lay.step_to[broken[:, 1]]))
-        return bool(new.any()), nodes
+        return True, nodes
 
 
 __all__ = ["BLOCKS", "BROKEN_ROOM", "FAR_SHARE", "NEAR_SHARE", "SEGMENTS", "CornerSelection",
-           "corner_caps", "corner_pairs", "corner_room_numpy",
-           "corner_room", "corner_rows"]
+           "corner_caps", "corner_pairs", "corner_room", "corner_room_numpy", "corner_rows"]
