@@ -268,3 +268,42 @@ def test_moves_at_a_grip_cap_are_never_planned_faster_than_the_closed_form(L, j)
     total = planned_time(straight_problem(L, 1.0, limits))
     cap = 0.3 * limits.gravity_mps2
     assert total / double_s_time(L, 10.0, cap, j) - 1.0 >= -1e-6
+
+
+@pytest.mark.parametrize("case", ["mountain road", "banked wet circle"])
+def test_a_nodes_corner_caps_bound_every_cap_it_has_over_its_speed_range(case):
+    """corner_caps against the problem's own acceleration interval (SpeedProblem.accel_bounds,
+    without power) sampled at 41 squared speeds from rest to the jerk-free envelope at every
+    node: the drive cap never above its bound, the braking cap's size never above its bound
+    (where the interval is not empty). On the bundled mountain road (grades) and on a circle of
+    radius 120 m banked at 6 %, wet (friction 0.3: grip, not comfort, is the cap). A bound
+    below a cap the limits allow would take motions away from the plan."""
+    from curvespeed.limits import Limits, RouteConstraints, Superelevation
+    from curvespeed.problem import build_problem
+    from curvespeed.solvers.envelope import solve_envelope
+    from curvespeed.solvers.qp_layout import QPLayout
+
+    from helpers import circle_geometry
+
+    if case == "mountain road":
+        problem = _plan_route("mountain_road.csv")
+    else:
+        geo = circle_geometry(120.0)
+        problem = build_problem(
+            geo, Limits(max_jerk_mps3=2.0, max_accel_mps2=3.5, max_decel_mps2=3.5,
+                        friction_coefficient=0.3),
+            RouteConstraints(superelevation=(Superelevation(0.0, geo.length_m, 0.06),)))
+    lay = QPLayout(problem, jerk=True)
+    env = solve_envelope(problem).b[:lay.nv]
+    cap_hi, cap_lo = cr.corner_caps(problem, lay, env)
+    nodes = np.arange(lay.nv)
+    tight = 0
+    for share in np.linspace(0.0, 1.0, 41):
+        lo, hi = problem.accel_bounds(share * env, nodes=nodes, include_power=False)
+        ok = lo <= hi
+        assert np.all(hi[ok] <= cap_hi[ok] + 1e-12)
+        assert np.all(-lo[ok] <= cap_lo[ok] + 1e-12)
+        tight += np.sum(np.isclose(hi[ok], cap_hi[ok], rtol=0, atol=1e-9))
+    if case == "mountain road":
+        # reached where nothing lowers the comfort cap (on straights): no looser than it must be
+        assert tight > 0
