@@ -60,7 +60,7 @@ from ..errors import CurvespeedWarning, InfeasibleError, SolverError
 from ..problem import SpeedProblem
 from . import QPBackend, SolveResult, SolveStatus
 from .convex_qp import QPBuilder, QPLayout
-from .corner_rows import FAR_SHARE, CornerSelection
+from .corner_rows import CornerSelection
 from .envelope import solve_envelope
 from .scp_run import ScpRun
 # the batches' solving (qp_batches); _solve_batch also named here for the tests that use it
@@ -249,13 +249,12 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
     if warm_start is not None:
         b_hat = np.where(lay.fixed, b_env, np.clip(warm_start[:nv], 0.0, b_env))
     run = ScpRun(b_hat, b_env, lay, problem.ds, options)
-    # corner rows go to the blocks near their bound (corner_rows.CornerSelection): at a warm
-    # start those near it there; from the envelope, which is far from the answer, and after the
-    # first QP from it, both blocks of a side within the wider FAR_SHARE
+    # corner rows go to the blocks near their bound (corner_rows.CornerSelection); the
+    # envelope and the first QP's answer from it are still far from the answer
     corners = (CornerSelection(problem, lay, builder.corner_caps, builder.corners[0])
                if lay.jerk else None)
     if corners is not None:
-        corners.grow(b_hat, FAR_SHARE if warm_start is None else None)
+        corners.grow(b_hat, far=warm_start is None)
         builder.corners = corners.selected
     threads = _worker_count(options.threads)
     # one thread, or a single batch (a receding-horizon window): solved in this thread, with no
@@ -285,7 +284,7 @@ def _run_scp(problem: SpeedProblem, env: SolveResult, options: ConvexOptions, an
                 run.take_answer(problem, iterations, batch, cols, glob, job.result())
             if corners is not None:
                 far = iterations == 1 and warm_start is None
-                added, broken = corners.grow(run.b_hat, FAR_SHARE if far else None)
+                added, broken = corners.grow(run.b_hat, far)
                 if added:
                     builder.corners = corners.selected
                     run.restart(broken)

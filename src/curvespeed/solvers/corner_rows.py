@@ -115,6 +115,7 @@ def corner_rows(p: SpeedProblem, lay, b_hat: np.ndarray, margin: float, caps, pa
     block's rows (default: all). Unless ``every_step``, no rows on pairs whose nodes are all
     fixed (the elimination would drop them)."""
     lim = p.limits
+    empty = np.zeros((0, 3), dtype=np.int64), np.zeros((0, 3)), np.zeros(0)
     if use is None:
         use = np.ones((pairs.shape[0], len(BLOCKS)), dtype=bool)
     n0, n1 = lay.step_from[pairs[:, 0]], lay.step_to[pairs[:, 0]]
@@ -123,7 +124,7 @@ def corner_rows(p: SpeedProblem, lay, b_hat: np.ndarray, margin: float, caps, pa
         free = ~(lay.fixed[n0] & lay.fixed[n1] & lay.fixed[n2])
         n0, n1, n2, use = n0[free], n1[free], n2[free], use[free]
     if lim.max_jerk_mps3 is None or n0.size == 0:
-        return np.zeros((0, 3), dtype=np.int64), np.zeros((0, 3)), np.zeros(0)
+        return empty
     J = lim.max_jerk_mps3 * (1.0 - margin)
     ds = p.ds
     h = 1.0 / (2.0 * ds)
@@ -161,7 +162,7 @@ def corner_rows(p: SpeedProblem, lay, b_hat: np.ndarray, margin: float, caps, pa
             vals.append(sign * (alpha * mean_a[c][k] - mean_a[n][k]) - sn - gamma * sc)
             ups.append(beta * cap + cn + gamma * cc)
     if not vals:
-        return np.zeros((0, 3), dtype=np.int64), np.zeros((0, 3)), np.zeros(0)
+        return empty
     return np.concatenate(out_cols), np.concatenate(vals), np.concatenate(ups)
 
 
@@ -231,7 +232,7 @@ class CornerSelection:
     pairs are within ``J T / 2`` of one, nearly all of them held at it, where no row binds), and
     the rows of every pair made a receding-horizon window's QP 1.4-2.4 times slower (three
     alternating runs). So a pair gets only the blocks (:data:`BLOCKS`) whose room at an iterate
-    is below :data:`NEAR_SHARE` of its scale (:func:`corner_room`; :data:`FAR_SHARE` and every
+    is below :data:`NEAR_SHARE` of its scale (:func:`corner_room`; :data:`FAR_SHARE` and both
     blocks of a side from the envelope), and the set only grows. A block taken in whose room is
     already negative was passed too fast by the iterate: :meth:`grow` names its pair's
     stations, and the loop takes the next QP's answer for that stretch as it stands rather than
@@ -248,18 +249,20 @@ class CornerSelection:
         k = np.flatnonzero(self.on.any(axis=1))
         return self.pairs[k], self.on[k]
 
-    def grow(self, b: np.ndarray, share: float | None = None):
-        """Take in the blocks of rows near their bound at ``b``: room below ``share`` (default
-        :data:`NEAR_SHARE`) of their pair's scale. Returns whether any came in, and the
-        stations of the pairs ``b`` passes too fast."""
+    def grow(self, b: np.ndarray, far: bool = False):
+        """Take in the blocks of rows near their bound at ``b``: room below :data:`NEAR_SHARE`
+        of their pair's scale, or, where ``b`` is still ``far`` from the answer (the jerk-free
+        envelope and the first QP's answer from it), below :data:`FAR_SHARE` and both blocks of
+        the side. Returns whether any came in, and the stations of the pairs ``b`` passes too
+        fast."""
         none = (False, np.zeros(0, dtype=np.int64))
         if self.pairs.shape[0] == 0:
             return none
         room, scale = corner_room(self.p, self.lay, b, self.caps, self.pairs)
-        near = room < (NEAR_SHARE if share is None else share) * scale[:, None]
-        if share is not None and share > NEAR_SHARE:
-            # far from the answer which of the pair's steps ends up at the corner is not known
-            # yet: both blocks of a side (BLOCKS: hi first, lo second, two each)
+        near = room < (FAR_SHARE if far else NEAR_SHARE) * scale[:, None]
+        if far:
+            # which of the pair's steps ends up at the corner is not known yet: both blocks of
+            # a side (BLOCKS: hi first, lo second, two each)
             side = near.reshape(-1, 2, 2).any(axis=2, keepdims=True)
             near = np.repeat(side, 2, axis=2).reshape(near.shape)
         new = near & ~self.on

@@ -137,6 +137,17 @@ def _accel_change(problem, nv, frm, to, f_first, f_last):
     return Dm, at_rest, (before, after, has_b, has_a)
 
 
+def _known_roots(fixed, b_lin):
+    """The stations of fixed speed (``fixed``: station -> squared speed), their values, and the
+    square roots the tangents are taken at: exact where the speed is fixed, else of ``b_lin``
+    (floored at ``_B_FLOOR``)."""
+    known = np.zeros(b_lin.size, dtype=bool)
+    value = np.zeros(b_lin.size)
+    for k, val in fixed.items():
+        known[k], value[k] = True, val
+    return known, value, np.where(known, np.sqrt(value), np.sqrt(np.maximum(b_lin, _B_FLOOR)))
+
+
 def _lateral_jerk_constraints(problem, b, b_lin, fixed, frm, to):
     """|d(kappa v^2)/dt| <= J_lat along every step and across every node (curvespeed.problem).
 
@@ -153,11 +164,7 @@ def _lateral_jerk_constraints(problem, b, b_lin, fixed, frm, to):
     import cvxpy as cp
 
     J = problem.limits.max_lateral_jerk_mps3
-    known = np.zeros(b_lin.size, dtype=bool)
-    value = np.zeros(b_lin.size)
-    for k, val in fixed.items():
-        known[k], value[k] = True, val
-    r = np.where(known, np.sqrt(value), np.sqrt(np.maximum(b_lin, _B_FLOOR)))
+    known, value, r = _known_roots(fixed, b_lin)
     step_forms = problem.lateral_rate_forms()[:frm.size]
     cross = problem.node_lateral_rate_forms()
     sets = [((frm, to), step_forms[:, i], speed) for i in range(step_forms.shape[1])
@@ -230,7 +237,7 @@ def _jerk_constraints(problem, b, b_lin, nv, frm, to, mean_a, f_first, f_last):
 
 
 def _corner_constraints(problem, b, b_lin, b_upper, fixed, frm, to, mean_a):
-    """The acceleration leaves or reaches its comfort cap no faster than the jerk bound allows
+    """The acceleration leaves or reaches its cap no faster than the jerk bound allows
     (:mod:`curvespeed.solvers.corner_rows` derives it): for two consecutive constant-
     acceleration steps, the corner step ``c`` and its neighbour ``n``,
     ``sign (alpha a_c - a_n) <= beta cap + gamma J T_c / 2 + J T_n / 2`` for each chord, ``cap``
@@ -255,11 +262,7 @@ def _corner_constraints(problem, b, b_lin, b_upper, fixed, frm, to, mean_a):
     pair = (first[keep], second[keep])
     if pair[0].size == 0:
         return []
-    known = np.zeros(b_lin.size, dtype=bool)
-    value = np.zeros(b_lin.size)
-    for k, val in fixed.items():
-        known[k], value[k] = True, val
-    r = np.where(known, np.sqrt(value), np.sqrt(np.maximum(b_lin, _B_FLOOR)))
+    known, _, r = _known_roots(fixed, b_lin)
     w_hat = r[frm] + r[to]
     w_hat = np.where(w_hat > 0.0, w_hat, 1.0)
 
