@@ -178,20 +178,29 @@ class StepsTime:
 
 def line_search(b0, b1, f0, objective, iterations: int = 30):
     """Minimise ``objective`` on the segment b0 -> b1 (convex in the step length) by golden
-    section; ``f0`` is its value at ``b0``. Returns the point and its value."""
+    section, ``iterations`` shrinks of the bracket (to 0.618^30, about 6e-7 of the segment),
+    each point kept for the next shrink so that each takes one new value; ``f0`` is its value
+    at ``b0``. Returns the point and its value."""
     d = b1 - b0
     f1 = objective(b1)
     if f1 <= f0:
         return b1, f1
-    lo_a, hi_a = 0.0, 1.0
     phi = (math.sqrt(5) - 1) / 2
-    for _ in range(iterations):
-        a1 = hi_a - phi * (hi_a - lo_a)
-        a2 = lo_a + phi * (hi_a - lo_a)
-        if objective(b0 + a1 * d) <= objective(b0 + a2 * d):
-            hi_a = a2
+    lo_a, hi_a = 0.0, 1.0
+    a1, a2 = hi_a - phi, lo_a + phi
+    f_a1, f_a2 = objective(b0 + a1 * d), objective(b0 + a2 * d)
+    for i in range(iterations):
+        last = i == iterations - 1
+        if f_a1 <= f_a2:
+            hi_a, a2, f_a2 = a2, a1, f_a1
+            if not last:
+                a1 = hi_a - phi * (hi_a - lo_a)
+                f_a1 = objective(b0 + a1 * d)
         else:
-            lo_a = a1
+            lo_a, a1, f_a1 = a1, a2, f_a2
+            if not last:
+                a2 = lo_a + phi * (hi_a - lo_a)
+                f_a2 = objective(b0 + a2 * d)
     alpha = 0.5 * (lo_a + hi_a)
     b = b0 + alpha * d
     return b, objective(b)
