@@ -114,6 +114,16 @@ class Profile:
                 for a, b in zip(starts, ends)]
 
 
+#: A change of acceleration at a node no larger than this, m/s^2, is no change: the two steps'
+#: accelerations come from different squared speeds (and, next to rest, a shape factor), so
+#: where they should be equal they differ by round-off. That matters where the node's time base
+#: is nil: a step next to rest whose ramp fills it exactly (``u = 1``, no flat part) must leave
+#: the acceleration unchanged at its moving node, and the solvers' answers differed there by
+#: up to 2.3e-13 m/s^2 (0.5 m stations, 3 m/s^2 and 3 m/s^3), which over a time base of
+#: 2e-16 s read as a jerk of up to 1,800 m/s^3. The twin in ``solvers/_window_check.c``.
+ACCEL_ROUND_OFF_MPS2 = 1e-9
+
+
 def derive(problem: SpeedProblem, b: np.ndarray, lateral_jerk: bool = True
            ) -> dict[str, np.ndarray]:
     """Speed, accelerations, jerk and time from squared speeds (module docstring definitions).
@@ -158,7 +168,7 @@ def derive(problem: SpeedProblem, b: np.ndarray, lateral_jerk: bool = True
     tau = problem.node_jerk_time(b)
     with np.errstate(invalid="ignore", divide="ignore"):
         change = a_after - a_before
-        jerk = np.where(change == 0.0, 0.0,
+        jerk = np.where(np.abs(change) <= ACCEL_ROUND_OFF_MPS2, 0.0,
                         np.where(np.isfinite(tau) & (tau > 0), change / tau, np.inf))
     out = {"speed_mps": v, "step_accel_mps2": a_step, "accel_mps2": acc, "jerk_mps3": jerk,
            "time_s": t, "step_jerk_mps3": problem.step_ramp_jerk(b),

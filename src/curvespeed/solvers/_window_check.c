@@ -164,7 +164,8 @@ static PyObject *py_check(PyObject *self, PyObject *args)
             double after = k + 1 < n ? a_first[k] : (has_reserve ? a_last[n - 2] : 0.0);
             acc[k] = k == 0 ? after : k + 1 == n ? before : 0.5 * (before + after);
             double change = after - before;
-            double jerk = change == 0.0 ? 0.0
+            /* a change within round-off is none: profile.ACCEL_ROUND_OFF_MPS2 */
+            double jerk = fabs(change) <= 1e-9 ? 0.0
                         : (isfinite(tau[k]) && tau[k] > 0.0 ? change / tau[k] : INFINITY);
             tau[k] = np_max(fabs(jerk), 0.0) / jerk_bound;      /* the jerk's use, from here on */
         }
