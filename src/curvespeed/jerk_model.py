@@ -18,6 +18,7 @@ import numpy as np
 
 from . import rest_step
 from .errors import LimitsError
+from .launch_motion import JerkPieces, accel_phase
 from .launch_steps import closed_form_launches, launch_steps, scale_for_bases, scaled_terms
 from .limits import stop_node
 
@@ -68,15 +69,14 @@ def rest_nodes(problem: SpeedProblem) -> np.ndarray:
 
 
 #: How long a move must be, in units of ``A^3 / J^2``, for a step next to rest to plan for its
-#: acceleration reaching the cap ``A`` (:func:`accel_held`). The double-S closed form reaches
-#: ``A`` from 2 on, but there it turns at once; at 4 it holds ``A`` for about half its ramp time
-#: (``(1 + x)(2 + x) = 4``, ``x = 0.56`` ramp times). Between 2 and 4 the launch no longer lags,
-#: and the step-wise model's optimism where acceleration falls (docs/method.md) put moves below
-#: the closed form: measured with 2 on the 240 moves of ``benchmarks/exact_roads.py``, 2 more of
-#: them below it (149 in the target band), and on 54 more moves of 14-40 m 8 more below it, by up
-#: to 0.093 %; with 4, none more in the sweep (147 in the band, 138 with neither) and two of the
-#: 54 by 0.007 % (30 m at 2.2 m/s^2 and 1.2 m/s^3, 32 m at 3 m/s^2 and 2 m/s^3).
-HELD_LENGTH_FACTOR = 4.0
+#: acceleration reaching the cap ``A`` (:func:`accel_held`): the double-S closed form's own
+#: threshold (Biagiotti & Melchiorri 2008, section 3.4). At 4, where such a move holds ``A`` for
+#: about half its ramp time, the launch of shorter moves lagged; 2 put moves below the closed
+#: form until the corner rows (:mod:`curvespeed.solvers.corner_rows`) bounded the fall from the
+#: cap. Measured with the corner rows on 1,728 moves (10-80 m every 2 m; top speed 6, 10,
+#: 25 m/s; caps 1.2-3 m/s^2, 0.8-3 m/s^3; 1 m stations): with 4, 1,513 within 0.1 % of the
+#: closed form; with 2, 1,552 (with the two shapes below, 1,659); none below it either way.
+HELD_LENGTH_FACTOR = 2.0
 
 
 def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
@@ -96,10 +96,16 @@ def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
     route to let the closed form's acceleration phase run its course, and the move either to
     turn below the cap, or to still hold the cap when that step ends
     (:func:`curvespeed.launch_steps.closed_form_launches`).
-    A move that reaches the cap and soon leaves it is neither; it keeps the staircase (measured
-    on 14-25 m moves at 3 m/s^2 and 2 m/s^3 at 1 m stations, +0.10 to +0.33 % over the closed
-    form; planned as ramp-and-hold they came out +0.3 to +1.5 %, as ramp-and-turn at the cap
-    down to 0.19 % below it).
+    A move that reaches the cap and soon leaves it is planned as the ramp to the highest lower
+    cap it would hold that long; where there is none, it keeps the staircase. (Measured before
+    the corner rows, on 14-25 m moves at 3 m/s^2 and 2 m/s^3 at 1 m stations: with the
+    staircase +0.10 to +0.33 % over the closed form; planned as ramp-and-hold at the cap +0.3 to
+    +1.5 %, as ramp-and-turn at the cap down to 0.19 % below it, and still 0.025 % below with
+    the corner rows.)
+
+    A step next to rest whose ramp to the cap fits in it with less flat part than
+    :data:`~curvespeed.rest_step.U_CONTINUING` leaves ramps to the cap all the same where the
+    move holds the cap long enough (:func:`_held_through_node`).
     """
     leaving, arriving = rest[:-1], rest[1:]
     steps = np.flatnonzero(leaving | arriving)
@@ -108,6 +114,8 @@ def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
     jerk, ds = problem.limits.max_jerk_mps3, problem.ds
     u = np.full(problem.n_nodes - 1, np.nan)
     u[steps] = rest_step.shape_for_accel(accel, jerk, ds)
+    whole = _held_through_node(problem, rest, steps, leaving[steps], accel)
+    u[steps[whole]] = rest_step.shape_for_accel(accel[whole], jerk, ds, whole_ramp=True)
     time_coef = problem.time_coef.copy()
     shaped = None
     beyond = np.flatnonzero(accel >= rest_step.max_ramp_accel(jerk, ds))
@@ -152,12 +160,43 @@ def _continuing_ramps(problem: SpeedProblem, rest: np.ndarray, k: np.ndarray, ou
     span_m, v_top = rest_stretches(problem, rest, k, out)
     held = _held(span_m, v_top, allowed, jerk)
     u[k] = np.where(held, rest_step.continuing_shape(allowed, jerk, ds), u[k])
-    launch, ramp_m = closed_form_launches(problem, k, out, span_m, v_top, allowed,
-                                          u[k] <= rest_step.U_CONTINUING)
+    launch, ramp_m, to_accel = closed_form_launches(problem, k, out, span_m, v_top, allowed,
+                                                    u[k] <= rest_step.U_CONTINUING)
     if not launch.any():
         return None
     u[k[launch]] = 1.0
-    return launch_steps(problem, k[launch], out[launch], ramp_m[launch], allowed[launch])
+    return launch_steps(problem, k[launch], out[launch], ramp_m[launch], to_accel[launch])
+
+
+def _held_through_node(problem: SpeedProblem, rest: np.ndarray, steps: np.ndarray,
+                       leaving: np.ndarray, accel: np.ndarray) -> np.ndarray:
+    """Which steps next to rest ramp to ``accel`` within the step and belong to a move that
+    holds it (:func:`accel_held`) at least until half the next step is driven at it: the
+    double-S closed form's acceleration phase (:func:`curvespeed.launch_motion.accel_phase`)
+    leaves ``accel`` no earlier. Those get the shape that reaches ``accel`` at the moving node
+    whatever flat part it leaves (:func:`curvespeed.rest_step.shape_for_accel`): with almost
+    none the node's change of acceleration must be almost nil (its time base is the smaller of
+    twice the flat part and the next step's time), so the next step must hold ``accel``, as the
+    move does. Measured on the 1,728 moves of :data:`HELD_LENGTH_FACTOR` at 1.5 m/s^2 and
+    0.8 m/s^3 (the ramp 0.88 of a step): with the smaller flat part +0.13 to +0.29 % over the
+    closed form from 16 to 80 m, with this shape +0.002 to +0.075 %; where the move holds
+    ``accel`` for less (12 m) it came out +0.71 % instead of +0.48 %."""
+    jerk, ds = problem.limits.max_jerk_mps3, problem.ds
+    out = accel < rest_step.max_ramp_accel(jerk, ds)
+    if not out.any():
+        return out
+    idx = np.flatnonzero(out)
+    span_m, v_top = rest_stretches(problem, rest, steps[idx], leaving[idx])
+    out[idx] = _held(span_m, v_top, accel[idx], jerk)
+    for i, span, top in zip(idx, span_m, v_top):
+        if out[i]:
+            a = float(accel[i])
+            tj, ta = accel_phase(float(span), float(top), a, jerk)
+            launch = JerkPieces((0.0, tj), (jerk, 0.0))      # ramp to a, then hold it
+            t_node, t_next = launch.time_at(np.array([ds, 2.0 * ds]),
+                                            tj + 2.0 * math.sqrt(ds / a))
+            out[i] = ta - tj >= 0.5 * (t_node + t_next)
+    return out
 
 
 def rest_step_accel(problem: SpeedProblem, moving: np.ndarray, leaving: np.ndarray,
@@ -238,9 +277,9 @@ def accel_held(problem: SpeedProblem, rest: np.ndarray, steps: np.ndarray,
 
     The double-S closed form (Biagiotti & Melchiorri 2008, section 3.4) reaches its acceleration
     limit ``A`` when the move is at least ``2 A^3 / J^2`` long and its top speed at least
-    ``A^2 / J``; held here asks :data:`HELD_LENGTH_FACTOR` times that length of the move
-    :func:`rest_stretches` measures. Where this is false the acceleration turns before it gets
-    to ``A`` or soon after.
+    ``A^2 / J``; held here asks the same of the move :func:`rest_stretches` measures (a length
+    of :data:`HELD_LENGTH_FACTOR` ``A^3 / J^2``). Where this is false the acceleration turns
+    before it gets to ``A``.
     """
     span_m, v_top = rest_stretches(problem, rest, steps, leaving)
     return _held(span_m, v_top, np.asarray(accel, dtype=float), problem.limits.max_jerk_mps3)

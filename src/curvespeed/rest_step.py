@@ -98,15 +98,20 @@ def max_ramp_accel(jerk, ds):
     return (6.0 * jerk * jerk * ds) ** (1.0 / 3.0)
 
 
-def shape_for_accel(accel, jerk, ds):
+def shape_for_accel(accel, jerk, ds, whole_ramp: bool = False):
     """``u`` of the step that ramps at ``jerk`` to ``accel`` and holds it to the moving node.
 
     ``u = sqrt(3 q / (1 - q))`` with ``q = A^3 / (24 J^2 ds)``, at most :data:`U_CONTINUING`:
     where the ramp does not fit in the step (``A >= (6 J^2 ds)^(1/3)``, ``q >= 1/4``, ``u >= 1``)
     or leaves less flat part than that shape, the step keeps that shape's flat part, and reaches
     a lower acceleration at the bound (the acceleration then keeps rising after the node).
+    ``whole_ramp``: the ramp is taken whatever flat part it leaves, up to ``u = 1`` (a move
+    that holds ``accel`` past the node, :func:`curvespeed.jerk_model.with_rest_steps`).
     """
     a = np.maximum(np.asarray(accel, dtype=float), 0.0)
+    if whole_ramp:
+        q = np.minimum(a ** 3 / (24.0 * jerk * jerk * ds), 0.25)
+        return np.minimum(np.sqrt(3.0 * q / (1.0 - q)), 1.0)
     q = np.minimum(a ** 3 / (24.0 * jerk * jerk * ds), 0.2)
     return np.minimum(np.sqrt(3.0 * q / (1.0 - q)), U_CONTINUING)
 
