@@ -2,6 +2,7 @@
 
     python benchmarks/exact_roads.py            # all five roads (about two minutes on 2 cores)
     python benchmarks/exact_roads.py --quick    # the two short S-curves only
+    python benchmarks/exact_roads.py --wide     # 1,728 double-S moves of 10-80 m (15 s)
 
 **The roads are invented** for this benchmark: laid out from scratch as road designers lay out
 a centreline (straights, clothoid transitions, circular arcs), at arbitrary coordinates; they
@@ -381,19 +382,26 @@ SWEEP = dict(length_m=(8.0, 12.0, 18.0, 25.0, 35.0, 45.0, 60.0, 100.0, 200.0, 50
              speed_mps=(10.0, 25.0), accel_mps2=(1.0, 1.5, 3.0), jerk_mps3=(0.5, 1.0, 2.0, 4.0))
 
 
-def double_s_sweep(spacing_m: float = POINT_SPACING_M) -> list[tuple]:
-    """Every move of :data:`SWEEP` planned at ``spacing_m`` (rows as :func:`double_s_rows`)."""
+#: A wider grid (``--wide``): every 2 m from 10 to 80 m, where the launch's shape depends on how
+#: long the move holds the acceleration cap, over more caps and top speeds.
+WIDE_SWEEP = dict(length_m=tuple(float(L) for L in range(10, 82, 2)), speed_mps=(6.0, 10.0, 25.0),
+                  accel_mps2=(1.2, 1.5, 2.2, 3.0), jerk_mps3=(0.8, 1.2, 2.0, 3.0))
+
+
+def double_s_sweep(spacing_m: float = POINT_SPACING_M, grid: dict = SWEEP) -> list[tuple]:
+    """Every move of ``grid`` (:data:`SWEEP` by default) planned at ``spacing_m`` (rows as
+    :func:`double_s_rows`)."""
     import itertools
 
     return [double_s_row(L, v, a, j, spacing_m)
-            for L, v, a, j in itertools.product(*SWEEP.values())]
+            for L, v, a, j in itertools.product(*grid.values())]
 
 
 def sweep_summary(rows: list[tuple], worst: int = 3) -> str:
     """How many moves of the sweep meet the target, per length, and the moves furthest out."""
     rel = {row: row[5] / row[4] - 1.0 for row in rows}
     lines = ["| L m | moves | within target | lowest | highest |", "|---|---|---|---|---|"]
-    for L in SWEEP["length_m"]:
+    for L in sorted({row[0] for row in rows}):
         mine = [r for r in rows if r[0] == L]
         ok = sum(DOUBLE_S_BAND[0] <= rel[r] <= DOUBLE_S_BAND[1] for r in mine)
         lines.append(f"| {L:g} | {len(mine)} | {ok} | {100 * min(rel[r] for r in mine):+.3f} % | "
@@ -426,7 +434,22 @@ def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--quick", action="store_true", help="the two S-curves only")
     parser.add_argument("--keep", metavar="DIR", help="keep the points and profiles in DIR")
+    parser.add_argument("--wide", action="store_true",
+                        help="only the double-S target, over the wider grid of 1,728 moves")
+    parser.add_argument("--spacing", type=float, default=POINT_SPACING_M,
+                        help="station spacing of the --wide moves, m (default 1)")
     args = parser.parse_args(argv)
+    if args.wide:
+        t0 = time.perf_counter()
+        rows = double_s_sweep(args.spacing, WIDE_SWEEP)
+        grid = WIDE_SWEEP
+        print(f"Double-S rest-to-rest moves at {args.spacing:g} m stations, {len(rows)} moves "
+              f"(lengths {grid['length_m'][0]:g}-{grid['length_m'][-1]:g} m every 2 m; "
+              + "; ".join(f"{k}: " + ", ".join(f"{x:g}" for x in v)
+                          for k, v in list(grid.items())[1:]) + "):\n")
+        print(sweep_summary(rows))
+        print(f"\nbenchmark run time {time.perf_counter() - t0:.0f} s")
+        return 0
     cases = exact_roads()
     if args.quick:
         cases = tuple(c for c in cases if c.name.startswith("s-curve"))
