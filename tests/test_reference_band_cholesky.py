@@ -126,10 +126,10 @@ def test_near_singular_band_matches_lapack(lower):
     fourth differences of 200 coefficients plus a weight of 1e-9 on each, condition number
     about 1e12 (numpy.linalg.cond on the dense matrix). Both solvers are backward stable, so
     their answers differ by at most about ``cond * (u + 2) eps`` relative; 10 times that."""
-    from curvespeed.geometry.pspline import _difference_penalty
+    from curvespeed.geometry.penalised_system import difference_penalty
 
     n, u = 200, 5
-    cyclic = _difference_penalty(n, periodic=False)       # (u + 1, n): entry [d, i] = (i, i + d)
+    cyclic = difference_penalty(n, periodic=False)       # (u + 1, n): entry [d, i] = (i, i + d)
     upper = np.zeros((u + 1, n))
     for d in range(u + 1):
         upper[u - d, d:] = cyclic[d, : n - d]
