@@ -439,6 +439,9 @@ def main(argv=None) -> int:
     parser.add_argument("--spacing", type=float, default=POINT_SPACING_M,
                         help="station spacing of the --wide moves, m (default 1)")
     args = parser.parse_args(argv)
+    if not (math.isfinite(args.spacing) and 0.05 <= args.spacing <= 2.0):
+        parser.error(f"--spacing {args.spacing:g}: give a station spacing of 0.05-2 m (the "
+                     "moves are 10-80 m long)")
     if args.wide:
         t0 = time.perf_counter()
         rows = double_s_sweep(args.spacing, WIDE_SWEEP)
