@@ -25,7 +25,9 @@ much of every limit the motion the profile describes really uses (1.0: exactly a
    * ``top_speed``: ``v / v_max``;
    * ``jerk``: the profile's acceleration read as linear in time between the instants each
      step's value stands for (mid-step for a constant-acceleration step, both ends of a
-     constant-jerk step), zero before the start and after the end: jerk is the slope between
+     constant-jerk step; at the moving node of a step next to rest, the ends of a ramp
+     symmetric about the node over the smaller of twice the step's constant part and the
+     neighbouring step's time), zero before the start and after the end: jerk is the slope between
      consecutive instants. A vehicle cannot jump its acceleration; this is the reading the
      planner's own jerk bound refers to (docs/method.md), so it measures only what the exact
      stations change;
@@ -181,9 +183,11 @@ def road_at_samples(alignment: Alignment, station_m, d, ds):
 def profile_jerk(sp: StationProfile) -> tuple[np.ndarray, np.ndarray]:
     """Jerk (m/s^3) between consecutive acceleration instants and the node of each (module
     docstring: the profile's accelerations read as linear in time between their instants; a
-    step next to rest is a jerk ramp, then constant acceleration, as export drives it, whose
-    constant part is read at its middle like any other step's; a step a launch's ramp spans,
-    ``linear_accel``, is constant jerk, read at both ends)."""
+    step next to rest is a jerk ramp, then constant acceleration, as export drives it, and the
+    change of acceleration at its moving node a ramp symmetric about the node over the smaller
+    of twice the constant part and the neighbouring step's time, as the planner's jerk bound
+    reads it (docs/method.md); a step a launch's ramp spans, ``linear_accel``, is constant
+    jerk, read at both ends)."""
     from curvespeed import rest_step
 
     t = sp.node_time_s
@@ -200,14 +204,23 @@ def profile_jerk(sp: StationProfile) -> tuple[np.ndarray, np.ndarray]:
             moving = v[k + 1] if leaving else v[k]
             ramp = float(rest_step.ramp_time(u, moving, ds[k]))
             flat = float(rest_step.accel_factor(u)) * moving * moving / (2.0 * ds[k])
-            half_flat = 0.5 * (T[k] - ramp)   # the flat part, read at its middle like a step
+            # the change at the moving node: a ramp symmetric about it over the flat part and
+            # the neighbouring step's half, whichever is shorter (docs/method.md)
+            nb = k + 1 if leaving else k - 1
+            plain_nb = 0 <= nb < T.size and not rest[nb] and not sp.linear_step[nb]
+            h = min(T[k] - ramp, 0.5 * T[nb]) if 0 <= nb < T.size else T[k] - ramp
             if leaving:
-                times += [t[k], t[k] + ramp, t[k + 1] - half_flat]
+                times += [t[k], t[k] + ramp, t[k + 1] - h]
                 values += [0.0, flat, flat]
+                nodes += [k, k, k + 1]
+                if plain_nb and h < 0.5 * T[nb]:      # the next step's value from there on
+                    times.append(t[k + 1] + h), values.append(a[nb]), nodes.append(k + 1)
             else:
-                times += [t[k] + half_flat, t[k + 1] - ramp, t[k + 1]]
+                if plain_nb and h < 0.5 * T[nb]:      # the previous step's value up to there
+                    times.append(t[k] - h), values.append(a[nb]), nodes.append(k)
+                times += [t[k] + h, t[k + 1] - ramp, t[k + 1]]
                 values += [-flat, -flat, 0.0]
-            nodes += [k, k, k + 1]
+                nodes += [k, k, k + 1]
         elif sp.linear_step[k]:     # constant jerk: its two ends' values
             a0, jerk = rest_step.linear_accel_step(ds[k], v[k], v[k + 1], T[k])
             times += [t[k], t[k + 1]]

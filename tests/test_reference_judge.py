@@ -10,6 +10,7 @@ benchmark are checked against their own description.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 
 import numpy as np
@@ -118,3 +119,28 @@ def test_invented_roads_are_as_described(tmp_path):
     # by up to sqrt(2) 1e-4 m
     assert np.all((chords > 1.0 - 1e-3) & (chords <= 1.0 + 1.5e-4))
     assert math.isclose(chords.sum(), length, rel_tol=1e-4)
+
+
+def test_the_change_at_a_stops_moving_node_is_read_as_the_planner_bounds_it():
+    # docs/method.md: at the moving node of a step next to rest the change of acceleration is a
+    # ramp symmetric about the node over the smaller of twice the step's constant part and the
+    # neighbouring step's time. The S-curve from rest planned on its exact geometry at 3 m/s^2
+    # and 1.2 m/s^3 ends in such a step with a constant part of 0.22 s after a 0.45 s step: read
+    # from the middle of the neighbour to the middle of the constant part (0.33 s), as before,
+    # the judge found 1.33 of the jerk bound there, where the planner's ramp (0.44 s) is at it.
+    from benchmarks.exact_roads import plan_on_exact_geometry
+    from benchmarks.judge import on_exact_stations, profile_jerk
+    from curvespeed import rest_step
+
+    case = next(c for c in exact_roads() if c.name == "s-curve-from-rest")
+    limits = case.limits.replace(max_accel_mps2=3.0, max_decel_mps2=3.0, max_jerk_mps3=1.2)
+    case = dataclasses.replace(case, limits=limits)
+    profile = plan_on_exact_geometry(case)
+    sp, _ = on_exact_stations(profile, case.alignment)
+    k = sp.step_time_s.size - 1                             # the step arriving at rest
+    u = float(rest_step.shape_from_time_coef(sp.rest_time_coef[k]))
+    flat = sp.step_time_s[k] - float(rest_step.ramp_time(u, sp.speed_mps[k], 1.0))
+    assert sp.rest_step[k] and flat < sp.step_time_s[k - 1] / 2     # the case at issue
+    jerk, _ = profile_jerk(sp)
+    assert np.max(np.abs(jerk)) <= 1.2 * (1.0 + 1e-6)
+    assert judge_profile(profile, case.alignment, limits).use["jerk"] <= 1.0 + 1e-6
