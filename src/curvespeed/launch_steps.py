@@ -18,6 +18,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from . import rest_step
 from .errors import InfeasibleError
 from .launch_motion import JerkPieces, PlannedLaunch, accel_phase, planned_launch, turns_below
 
@@ -162,7 +163,7 @@ def _held_cap(span_m: float, v_top: float, accel: float, jerk: float, ds: float,
         return (not turns_below(jerk * tj, a) and ramp >= ds
                 and holds_past_corner(ramp, ta - tj, a, jerk, ds))
 
-    lo, hi = (6.0 * jerk * jerk * ds) ** (1.0 / 3.0) * (1.0 + 1e-9), accel
+    lo, hi = rest_step.max_ramp_accel(jerk, ds) * (1.0 + 1e-9), accel   # ramp past the step
     if lo >= hi or not holds(lo):
         return None
     for _ in range(iterations):

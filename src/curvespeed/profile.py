@@ -120,7 +120,8 @@ class Profile:
 #: is nil: a step next to rest whose ramp fills it exactly (``u = 1``, no flat part) must leave
 #: the acceleration unchanged at its moving node, and the solvers' answers differed there by
 #: up to 2.3e-13 m/s^2 (0.5 m stations, 3 m/s^2 and 3 m/s^3), which over a time base of
-#: 2e-16 s read as a jerk of up to 1,800 m/s^3. The twin in ``solvers/_window_check.c``.
+#: 2e-16 s read as jerks up to 5,600 m/s^3 (1,853 times the bound). The twin in
+#: ``solvers/_window_check.c``.
 ACCEL_ROUND_OFF_MPS2 = 1e-9
 
 

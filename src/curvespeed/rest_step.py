@@ -109,11 +109,8 @@ def shape_for_accel(accel, jerk, ds, whole_ramp: bool = False):
     that holds ``accel`` past the node, :func:`curvespeed.jerk_model.with_rest_steps`).
     """
     a = np.maximum(np.asarray(accel, dtype=float), 0.0)
-    if whole_ramp:
-        q = np.minimum(a ** 3 / (24.0 * jerk * jerk * ds), 0.25)
-        return np.minimum(np.sqrt(3.0 * q / (1.0 - q)), 1.0)
-    q = np.minimum(a ** 3 / (24.0 * jerk * jerk * ds), 0.2)
-    return np.minimum(np.sqrt(3.0 * q / (1.0 - q)), U_CONTINUING)
+    q = np.minimum(a ** 3 / (24.0 * jerk * jerk * ds), 0.25 if whole_ramp else 0.2)
+    return np.minimum(np.sqrt(3.0 * q / (1.0 - q)), 1.0 if whole_ramp else U_CONTINUING)
 
 
 def continuing_shape(accel, jerk, ds, iterations: int = 60):
