@@ -173,6 +173,41 @@ def test_node_times_are_the_profiles_own_times(planned, profile_csv):
     np.testing.assert_allclose(sp.node_time_s, planned.time_s, rtol=1e-5, atol=1e-5)
 
 
+# A fitted route's spacing is the requested one shortened to divide its length (here that of a
+# wet-road stop planned from a simulated RTK log), so its stations are not round numbers. The
+# time coefficient c of a jerk_ramp or linear_accel step is read back as T (v + v') / ds, and
+# the shape of a ramp to rest follows from c; near c = 3 (a ramp nearly filling its step) c is
+# flat in the shape. Stations rounded to 0.1 mm moved c by up to 3e-4 and that stop's constant
+# part by 13 %. Written with 9 decimals (and speeds and times with 9), c comes back within about
+# 1e-8; asserted to 1e-6, and the ramp's constant acceleration and length to 1e-5 of their own.
+@pytest.mark.parametrize("jerk, decel", [(2.0, 3.5), (0.5, 2.0)])
+def test_step_shapes_read_back_from_the_profile_file(jerk, decel, tmp_path):
+    ds = 0.999988801100186
+    geo = geometry_from_curvature(np.zeros(181), ds=ds)
+    planned = plan_profile(geo, Limits(max_jerk_mps3=jerk, max_accel_mps2=2.0,
+                                       max_decel_mps2=decel, max_speed_mps=25.0),
+                           RouteConstraints(stops=(Stop(60.0 * ds),)))
+    sp = read_station_profile(write_profile_csv(planned, tmp_path / "p.csv"))
+    ramp = planned.rest_time_coef > 0.0
+    assert ramp.sum() == 4 and np.array_equal(sp.rest_step, ramp)
+    np.testing.assert_allclose(sp.rest_time_coef, planned.rest_time_coef, rtol=0, atol=1e-6)
+    if jerk == 0.5:                 # the launches' ramps span several stations
+        linear = planned.linear_time_coef > 0.0
+        assert linear.any() and np.array_equal(sp.linear_step, linear)
+        np.testing.assert_allclose(sp.linear_time_coef, planned.linear_time_coef, rtol=0,
+                                   atol=1e-6)
+    u_plan = rest_step.shape_from_time_coef(planned.rest_time_coef[ramp])
+    u_read = rest_step.shape_from_time_coef(sp.rest_time_coef[ramp])
+    v = planned.speed_mps
+    moving = np.where(v[:-1] > 0.0, v[:-1], v[1:])[ramp]
+    for u in (u_plan, u_read):
+        assert np.all(u > 0.0)
+    flat = [rest_step.accel_factor(u) * moving ** 2 / (2.0 * ds) for u in (u_plan, u_read)]
+    np.testing.assert_allclose(flat[1], flat[0], rtol=1e-5)
+    np.testing.assert_allclose(rest_step.ramp_time(u_read, moving, ds),
+                               rest_step.ramp_time(u_plan, moving, ds), rtol=1e-5)
+
+
 def test_samples_are_uniform_in_time_and_end_at_the_route_end(planned, profile_csv, tmp_path):
     dt = 0.05
     sp, tr, cols = exported(profile_csv, tmp_path, dwell_s=2.0, dt_s=dt)

@@ -22,8 +22,9 @@ lat_accel_mps2, time_s``
 ``lat, lon``
     when the route was geographic.
 
-Speeds and times are written with 9 decimals (:data:`SPEED`, :data:`TIME`), accelerations and
-jerk with 6; geometry as in :mod:`curvespeed.io.geometry_csv`. Output is deterministic and
+Stations, speeds and times are written with 9 decimals (:data:`STATION`, :data:`SPEED`,
+:data:`TIME`), accelerations and jerk with 6; the rest of the geometry as in
+:mod:`curvespeed.io.geometry_csv`. Output is deterministic and
 written atomically.
 
 :func:`read_station_profile` reads such a file (or any CSV with the columns
@@ -63,6 +64,16 @@ SPEED = ".9f"
 #: than at constant acceleration far out on a 0.5 m/s^3 ramp, so 6 decimals' rounding moved the
 #: jerk read back from it by up to 5 %.
 TIME = ".9f"
+#: Stations carry 9 decimals in a profile (the route file's 0.1 mm elsewhere): the time
+#: coefficient ``c`` of a ``jerk_ramp`` or ``linear_accel`` step is read back as
+#: ``T (v + v') / ds``, so a station step rounded by 1e-4 m moved ``c`` by 3e-4. Where a ramp
+#: to rest nearly fills its step ``c`` is close to 3 and flat in the shape, and on a route whose
+#: spacing is not a round number (every fitted log) that moved the shape read back by 0.5 %
+#: and its constant part by 13 %: the change of acceleration at the step's moving node, read
+#: over twice that part, came back at 1.07 of the jerk bound the plan holds (a wet-road stop
+#: planned from an RTK log). A ``linear_accel`` step's jerk, ``12 ds (c / 2 - 1) / T^3``, is
+#: as sensitive. At 9 decimals ``c`` is good to about 1e-8.
+STATION = ".9f"
 
 #: Columns every profile CSV starts with, in order.
 PROFILE_COLUMNS = ("station_m", "x_m", "y_m", "heading_rad", "curvature_1pm",
@@ -76,8 +87,8 @@ _OPTIONAL_PROFILE_COLUMNS = ("time_s", "accel_mps2", "jerk_mps3", "lat_accel_mps
                              "limit_speed_mps", "z_m", "grade", "lat", "lon",
                              "curvature_bound_1pm")
 
-#: A profile's own time_s may differ from the time recomputed from its rounded stations (0.1 mm)
-#: and speeds (1e-6 m/s) by far less than this (s, plus the same fraction of the total time);
+#: A profile's own time_s may differ from the time recomputed from its rounded stations and
+#: speeds by far less than this (s, plus the same fraction of the total time);
 #: a larger gap means the columns were edited or come from another model.
 TIME_MISMATCH_S = 1e-3
 TIME_MISMATCH_REL = 1e-4
@@ -116,6 +127,7 @@ def profile_columns(profile: Profile) -> dict[str, tuple[object, str]]:
     """Named columns and number formats of ``profile``, in output order."""
     geo = geometry_columns(profile.geometry)
     columns = {name: geo[name] for name in PROFILE_COLUMNS[:5]}
+    columns["station_m"] = (profile.geometry.station_m, STATION)
     columns.update({
         "curvature_bound_1pm": (profile.geometry.planning_curvature_1pm, geo["curvature_1pm"][1]),
         "speed_mps": (profile.speed_mps, SPEED),
