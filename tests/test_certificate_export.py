@@ -208,6 +208,60 @@ def test_step_shapes_read_back_from_the_profile_file(jerk, decel, tmp_path):
                                rest_step.ramp_time(u_plan, moving, ds), rtol=1e-5)
 
 
+# A launch that goes on into constant-jerk steps starts with a step that ramps over its whole
+# length (c = 3 exactly). Read back as T (v + v') / ds from 9-decimal values, c lands up to a
+# few 1e-9 below 3 about half the time, and near 3 the shape is ill-conditioned (1 - u grows as
+# sqrt(3 - c)): a constant part of 3e-5 of the step appeared, over which the jerk read at the
+# moving node was 0.9 of the bound where the plan's ramp runs on through it. Within the file's
+# rounding of 3 the reader takes 3. (Invented rolling road, non-round spacing, a stop.)
+def test_a_whole_ramp_reads_back_as_one(tmp_path):
+    ds, n = 0.999988801100186, 2000
+    geo = geometry_from_curvature(np.zeros(n), ds=ds,
+                                  grade=0.06 * np.sin(np.arange(n) * ds / 250.0))
+    planned = plan_profile(geo, Limits(max_jerk_mps3=0.5),
+                           RouteConstraints(stops=(Stop(900.0),)))
+    sp = read_station_profile(write_profile_csv(planned, tmp_path / "p.csv"))
+    whole = planned.rest_time_coef == 3.0
+    assert whole.sum() == 4                 # the steps next to rest: start, stop (both), end
+    assert np.all(sp.rest_time_coef[whole] == 3.0)
+    np.testing.assert_array_equal(rest_step.shape_from_time_coef(sp.rest_time_coef[whole]), 1.0)
+
+
+# Lateral jerk per step read back from a profile file (what plot draws) follows the plan's:
+# the file's curvature is rounded to 1e-9 1/m, and chord rates within that rounding of each
+# other count as equal (station_profile.CURVATURE_ROUNDING_1PM). Before, a step beside a change
+# of the curvature's rate took its neighbour's rate: 0.10 -> 0.50 m/s^3 at one step, 43 steps
+# over the 0.5 m/s^3 bound. What is left is the rounding itself: a chord rate off by up to
+# 1e-9 / ds 1/m^2, times v^3 (asserted with 1 % on top, plus the speeds' 1e-9 rounding).
+def test_lateral_jerk_read_back_follows_the_plan(tmp_path):
+    ds, n = 0.5, 3000
+    s = np.arange(n) * ds
+    rng = np.random.default_rng(5)                  # invented road: random bends, straights
+    knots = np.arange(0.0, s[-1] + 200.0, 150.0)
+    values = rng.uniform(-1 / 30, 1 / 30, knots.size)
+    values[rng.random(knots.size) < 0.4] = 0.0
+    geo = geometry_from_curvature(np.interp(s, knots, values), ds=ds)
+    planned = plan_profile(geo, Limits(max_jerk_mps3=1.0, max_lateral_jerk_mps3=0.5),
+                           RouteConstraints(stops=(Stop(700.0),)))
+    plan = StationProfile.from_profile(planned).step_lateral_jerk_mps3
+    read = read_station_profile(write_profile_csv(planned, tmp_path / "p.csv")
+                                ).step_lateral_jerk_mps3
+    v = planned.speed_mps
+    allowed = 1.01 * 1e-9 / ds * np.maximum(v[:-1], v[1:]) ** 3 + 1e-8
+    assert np.all(np.abs(read - plan) <= allowed)
+
+
+# Elevation is written to 9 decimals: on a constant grade the exported pitch is atan(grade)
+# to the file's rounding (a 5e-10 m error over a 0.25 m step: 4e-9 rad; asserted to 1e-7).
+# At 0.1 mm it was off by up to 3e-4 rad here, 6 % of this 0.5 % grade.
+def test_pitch_read_back_on_a_constant_grade(tmp_path):
+    geo = geometry_from_curvature(np.zeros(801), ds=0.25, grade=0.005)
+    planned = plan_profile(geo, Limits())
+    tr = sample_in_time(read_station_profile(write_profile_csv(planned, tmp_path / "p.csv")),
+                        0.05)
+    np.testing.assert_allclose(tr.pitch_rad, math.atan(0.005), rtol=0, atol=1e-7)
+
+
 def test_samples_are_uniform_in_time_and_end_at_the_route_end(planned, profile_csv, tmp_path):
     dt = 0.05
     sp, tr, cols = exported(profile_csv, tmp_path, dwell_s=2.0, dt_s=dt)

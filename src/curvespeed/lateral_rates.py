@@ -117,13 +117,16 @@ def spread_rate_range(kappa, ds: float, closed: bool, spread_m,
     return lo, hi
 
 
-def rate_range(kappa, ds, closed: bool, wider=None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def rate_range(kappa, ds, closed: bool, wider=None, rate_tol=0.0
+               ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """The range of the curvature rate along each step and how far the curvature may depart
     from the line between the nodes' values (module docstring): ``(r_lo, r_hi, delta)``.
 
     ``kappa`` has one value per node (a closed route's last node repeats the first); ``ds`` is
     one value or one per step. ``wider``, when given, is a range ``(r_lo, r_hi)`` per step the
-    rate may also take (:func:`spread_rate_range`). Rates in 1/m^2, ``delta`` in 1/m.
+    rate may also take (:func:`spread_rate_range`). Rates closer than ``rate_tol`` (1/m^2, one
+    value or one per step) count as equal: the rounding of curvatures read from a file.
+    Rates in 1/m^2, ``delta`` in 1/m.
     """
     kappa = np.asarray(kappa, dtype=float)
     rate = np.diff(kappa) / ds
@@ -138,7 +141,7 @@ def rate_range(kappa, ds, closed: bool, wider=None) -> tuple[np.ndarray, np.ndar
         lo, hi = np.minimum(lo, wider[0]), np.maximum(hi, wider[1])
     # else the rate is the chord's all along; rates equal but for rounding (1e-9 of the
     # largest, where the nodes' curvatures carry 1e-16) count as equal
-    tol = 1e-9 * np.maximum(np.abs(lo), np.abs(hi))
+    tol = np.maximum(1e-9 * np.maximum(np.abs(lo), np.abs(hi)), rate_tol)
     inside = (lo < rate - tol) & (rate + tol < hi)
     lo, hi = np.where(inside, lo, rate), np.where(inside, hi, rate)
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -147,7 +150,7 @@ def rate_range(kappa, ds, closed: bool, wider=None) -> tuple[np.ndarray, np.ndar
 
 
 def step_rate_forms(kappa, ds, closed: bool, accel_factor_start,
-                    accel_factor_end, wider=None) -> np.ndarray:
+                    accel_factor_end, wider=None, rate_tol=0.0) -> np.ndarray:
     """Linear forms that bound the station rate of the lateral acceleration along each step.
 
     Returns ``R``, shape ``(n_steps, 8, 2)``: along step ``k`` (from node ``k`` to ``k+1``,
@@ -169,12 +172,13 @@ def step_rate_forms(kappa, ds, closed: bool, accel_factor_start,
       so ``kappa' b`` and ``2 kappa a`` each lie between multiples of ``b_m``: two forms, the
       sums of their upper and of their lower bounds.
 
-    ``ds`` may be one value or one per step; ``wider`` widens the rates (:func:`rate_range`).
+    ``ds`` may be one value or one per step; ``wider`` widens the rates and ``rate_tol`` is
+    the rounding of the rates (:func:`rate_range`).
     """
     kappa = np.asarray(kappa, dtype=float)
     k0, k1 = kappa[:-1], kappa[1:]
     ds = np.broadcast_to(np.asarray(ds, dtype=float), k0.shape)
-    r_lo, r_hi, delta = rate_range(kappa, ds, closed, wider)
+    r_lo, r_hi, delta = rate_range(kappa, ds, closed, wider, rate_tol)
     h = 1.0 / ds                                # 2 a = h (b[k+1] - b[k])
     forms = np.zeros((k0.size, 8, 2))
     i = 0

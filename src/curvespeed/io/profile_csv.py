@@ -22,8 +22,8 @@ lat_accel_mps2, time_s``
 ``lat, lon``
     when the route was geographic.
 
-Stations, speeds and times are written with 9 decimals (:data:`STATION`, :data:`SPEED`,
-:data:`TIME`), accelerations and jerk with 6; the rest of the geometry as in
+Stations, elevations, speeds and times are written with 9 decimals (:data:`PROFILE_METRES`,
+:data:`SPEED`, :data:`TIME`), accelerations and jerk with 6; the rest of the geometry as in
 :mod:`curvespeed.io.geometry_csv`. Output is deterministic and
 written atomically.
 
@@ -64,16 +64,18 @@ SPEED = ".9f"
 #: than at constant acceleration far out on a 0.5 m/s^3 ramp, so 6 decimals' rounding moved the
 #: jerk read back from it by up to 5 %.
 TIME = ".9f"
-#: Stations carry 9 decimals in a profile (the route file's 0.1 mm elsewhere): the time
-#: coefficient ``c`` of a ``jerk_ramp`` or ``linear_accel`` step is read back as
+#: Stations and elevations carry 9 decimals in a profile (the route file's 0.1 mm elsewhere):
+#: the time coefficient ``c`` of a ``jerk_ramp`` or ``linear_accel`` step is read back as
 #: ``T (v + v') / ds``, so a station step rounded by 1e-4 m moved ``c`` by 3e-4. Where a ramp
 #: to rest nearly fills its step ``c`` is close to 3 and flat in the shape, and on a route whose
 #: spacing is not a round number (every fitted log) that moved the shape read back by 0.5 %
 #: and its constant part by 13 %: the change of acceleration at the step's moving node, read
 #: over twice that part, came back at 1.07 of the jerk bound the plan holds (a wet-road stop
 #: planned from an RTK log). A ``linear_accel`` step's jerk, ``12 ds (c / 2 - 1) / T^3``, is
-#: as sensitive. At 9 decimals ``c`` is good to about 1e-8.
-STATION = ".9f"
+#: as sensitive. At 9 decimals ``c`` is good to about 1e-8. An exported trajectory's pitch
+#: follows the elevation's change over a step: at 0.1 mm it was off by up to 1.4e-4 rad at 1 m
+#: stations (0.2-2.5 % of the grades tried) and 3e-4 rad at 0.25 m (6 % of a 0.5 % grade).
+PROFILE_METRES = ".9f"
 
 #: Columns every profile CSV starts with, in order.
 PROFILE_COLUMNS = ("station_m", "x_m", "y_m", "heading_rad", "curvature_1pm",
@@ -127,7 +129,7 @@ def profile_columns(profile: Profile) -> dict[str, tuple[object, str]]:
     """Named columns and number formats of ``profile``, in output order."""
     geo = geometry_columns(profile.geometry)
     columns = {name: geo[name] for name in PROFILE_COLUMNS[:5]}
-    columns["station_m"] = (profile.geometry.station_m, STATION)
+    columns["station_m"] = (profile.geometry.station_m, PROFILE_METRES)
     columns.update({
         "curvature_bound_1pm": (profile.geometry.planning_curvature_1pm, geo["curvature_1pm"][1]),
         "speed_mps": (profile.speed_mps, SPEED),
@@ -142,6 +144,8 @@ def profile_columns(profile: Profile) -> dict[str, tuple[object, str]]:
     for name in ("z_m", "grade", "lat", "lon"):
         if name in geo:
             columns[name] = geo[name]
+    if "z_m" in columns:
+        columns["z_m"] = (profile.geometry.z_m, PROFILE_METRES)
     return columns
 
 
@@ -166,8 +170,8 @@ def read_station_profile(path: str | os.PathLike, name: str | None = None) -> St
     from the ``step_kind`` column (:func:`read_step_kinds`; the time of a ``jerk_ramp`` or a
     ``linear_accel`` step from ``time_s``); a file without it (older or hand-made) has its
     steps next to rest recognised from ``time_s`` (:func:`curvespeed.export.detect_rest_steps`)
-    and every other step at constant acceleration. Warns (:class:`CurvespeedWarning`) when the file's own ``time_s`` disagrees with the time implied
-    by its stations and speeds.
+    and every other step at constant acceleration. Warns (:class:`CurvespeedWarning`) when
+    the file's own ``time_s`` disagrees with the time implied by its stations and speeds.
 
     Parameters
     ----------
@@ -281,8 +285,24 @@ def _time_coefs(table: Table, kinds: np.ndarray) -> tuple[np.ndarray, np.ndarray
     with np.errstate(divide="ignore", invalid="ignore"):
         from_times = step_time_coef_from_times(
             s, v, times, np.where(linear, linear_time_coef_lowest(v), 2.0))
-    return (np.where(kinds == StepKind.JERK_RAMP.value, from_times, rest),
+        ramp = np.where(3.0 - from_times <= _whole_ramp_reach(s, v, times), 3.0, from_times)
+    return (np.where(kinds == StepKind.JERK_RAMP.value, ramp, rest),
             np.where(linear, from_times, 0.0))
+
+
+def _whole_ramp_reach(station_m, speed_mps, time_s) -> np.ndarray:
+    """How far below 3 a ``jerk_ramp`` step's ``c = T (v + v') / ds`` may be read from a file
+    whose step is a ramp over its whole length (``c = 3``): twice the most that rounding
+    ``T``, ``v + v'`` and ``ds`` (each a difference or sum of two values written to 9 decimals,
+    so off by up to 1e-9) moves it. Near 3 the shape is ill-conditioned (``1 - u`` grows as
+    ``sqrt(3 - c)``): a ``c`` read 5e-10 below 3 gave a constant part of 3e-5 of the step, over
+    which the change of acceleration at the moving node (1e-6 m/s^2 of rounding) read as 0.9 of
+    a 0.5 m/s^3 jerk bound (6 times it at 1e-13 below), where the plan's ramp runs on through
+    the node. Such a ``c`` is read as 3."""
+    v = np.asarray(speed_mps, dtype=float)
+    relative = (1e-9 / np.diff(np.asarray(time_s, dtype=float)) + 1e-9 / (v[:-1] + v[1:])
+                + 1e-9 / np.diff(np.asarray(station_m, dtype=float)))
+    return np.where(np.isfinite(relative), 2.0 * 3.0 * relative, 0.0)    # (a bad step: as read)
 
 
 def _check_step_kinds(table: Table, kinds: np.ndarray, speed_mps: np.ndarray) -> None:
