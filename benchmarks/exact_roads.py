@@ -436,9 +436,13 @@ def main(argv=None) -> int:
     parser.add_argument("--keep", metavar="DIR", help="keep the points and profiles in DIR")
     parser.add_argument("--wide", action="store_true",
                         help="only the double-S target, over the wider grid of 1,728 moves")
-    parser.add_argument("--spacing", type=float, default=POINT_SPACING_M,
+    parser.add_argument("--spacing", type=float, default=None,
                         help="station spacing of the --wide moves, m (default 1)")
     args = parser.parse_args(argv)
+    if args.spacing is not None and not args.wide:
+        parser.error("--spacing sets the --wide moves' stations; the road cases are planned "
+                     "on their 1 m points: add --wide, or leave --spacing out")
+    args.spacing = POINT_SPACING_M if args.spacing is None else args.spacing
     if not (math.isfinite(args.spacing) and 0.05 <= args.spacing <= 2.0):
         parser.error(f"--spacing {args.spacing:g}: give a station spacing of 0.05-2 m (the "
                      "moves are 10-80 m long)")
