@@ -9,7 +9,7 @@ from click.testing import CliRunner
 
 from curvespeed.cli.main import cli
 
-from opendrive_helpers import document, geometry, lanes, road, write
+from opendrive_helpers import DEMO, document, geometry, lanes, road, write
 
 LINE = geometry(0.0, 0.0, 0.0, 0.0, 50.0, "<line/>")
 
@@ -118,3 +118,86 @@ def test_header_offset_with_a_geo_reference_warns(tmp_path):
     result = CliRunner().invoke(cli, ["route", str(path)])
     assert result.exit_code == 0, result.output
     assert "line 3, <offset>: the header's offset is not applied" in result.output
+
+
+# -- values beyond any road: the rules every route reader applies --------------------------------
+
+#: The first plan record of the demo's road 1 (line 12: a straight of 80 m from the origin) and
+#: the first elevation record of road 1 (line 24), as written by routes/make_demo_network.py.
+DEMO_FIRST_LINE = ('<geometry s="0.00000000000000000e+00" x="0.00000000000000000e+00" y="0.'
+                   '00000000000000000e+00" hdg="0.00000000000000000e+00" length="8.0000000000'
+                   '0000000e+01"><line/>')
+DEMO_FIRST_ELEVATION = ('<elevation s="0.00000000000000000e+00" a="2.00000000000000000e+01" '
+                        'b="1.00000000000000002e-02"')
+
+
+def demo_with(old: str, new: str) -> str:
+    text = DEMO.read_text(encoding="utf-8")
+    assert text.count(old) >= 1, old
+    return text.replace(old, new, 1)
+
+
+def test_a_length_no_road_has_is_refused_before_it_is_tabulated(tmp_path):
+    """length="1e12" would be cut into 5e10 pieces of 20 m (373 GiB) before anything else."""
+    huge = DEMO_FIRST_LINE.replace('length="8.00000000000000000e+01"', 'length="1e12"')
+    refused(tmp_path, demo_with(DEMO_FIRST_LINE, huge), "line 12, <geometry>", "road 1",
+            "geometry length 1e+12 m", "longer than the equator")
+    refused(tmp_path, document(road(1, LINE, 5e9)), "line 4, <road>", "length 5e+09 m",
+            "longer than the equator")
+
+
+@pytest.mark.parametrize("name", ["x", "y"])
+def test_a_plan_record_beyond_any_place_on_earth_is_refused(tmp_path, name):
+    old = f'{name}="0.00000000000000000e+00"'
+    far = DEMO_FIRST_LINE.replace(old, f'{name}="1e200"', 1)
+    refused(tmp_path, demo_with(DEMO_FIRST_LINE, far), "line 12, <geometry>",
+            f"{name} = 1e+200 m is beyond any place on Earth")
+
+
+def test_a_plan_record_reaching_beyond_any_place_on_earth_is_refused(tmp_path):
+    """Each record starts in range, but the cubic of the second reaches 1e16 m sideways."""
+    cubic = '<poly3 a="0" b="0" c="0" d="1e10"/>'
+    text = document(road(1, LINE + geometry(50.0, 50.0, 0.0, 0.0, 100.0, cubic), 150.0))
+    refused(tmp_path, text, "road 1 lane -1", "beyond any place on Earth", "plan records")
+
+
+def test_a_jump_between_plan_records_is_refused_naming_both(tmp_path):
+    """The demo's first record moved 5 km east: its end lies 5 km from the second's start."""
+    moved = DEMO_FIRST_LINE.replace('x="0.00000000000000000e+00"', 'x="5000"', 1)
+    refused(tmp_path, demo_with(DEMO_FIRST_LINE, moved), "line 13, <geometry>",
+            "(line 12, <geometry>)", "starts 5000.000 m from where", "the plan jumps")
+
+
+def test_a_small_gap_between_plan_records_is_read_with_a_warning(tmp_path):
+    second = geometry(50.0, 50.3, 0.0, 0.0, 50.0, "<line/>")
+    path = write(tmp_path, document(road(1, LINE + second, 100.0)))
+    result = CliRunner().invoke(cli, ["route", str(path)])
+    assert result.exit_code == 0, result.output
+    assert "warning:" in result.output and "starts 0.300 m from where" in result.output
+    rounded = geometry(50.0, 50.004, 0.0, 0.0, 50.0, "<line/>")      # within the rounding
+    path = write(tmp_path, document(road(1, LINE + rounded, 100.0)))
+    result = CliRunner().invoke(cli, ["route", str(path)])
+    assert result.exit_code == 0 and "warning" not in result.output, result.output
+
+
+def test_an_elevation_beyond_any_place_on_earth_is_refused(tmp_path):
+    high = '<elevation s="0.00000000000000000e+00" a="2e6" b="1e3"'
+    refused(tmp_path, demo_with(DEMO_FIRST_ELEVATION, high), "road 1 lane -1",
+            "at road station 0.00 m", "the elevation is 2e+06 m", "<elevationProfile>")
+    rising = '<elevation s="0.00000000000000000e+00" a="0" b="500"'    # 1e5 m at s = 200 m
+    refused(tmp_path, demo_with(DEMO_FIRST_ELEVATION, rising), "at road station 200.",
+            "more than 100000 m")
+
+
+def test_grades_beyond_what_roads_have_are_warned_about(tmp_path):
+    steep = '<elevation s="0.00000000000000000e+00" a="20" b="1.0"'       # 100 % to s = 250 m
+    path = write(tmp_path, demo_with(DEMO_FIRST_ELEVATION, steep))
+    result = CliRunner().invoke(cli, ["route", str(path)])
+    assert result.exit_code == 0, result.output
+    assert "warning:" in result.output and "grades of up to +100 %" in result.output
+    assert "<elevationProfile>" in result.output
+    out = tmp_path / "profile.csv"
+    result = CliRunner().invoke(cli, ["plan", str(path), "-o", str(out)])
+    assert result.exit_code == 2, result.output                 # was a ZeroDivisionError
+    assert "steeper than the tyres can climb" in result.output
+    assert not out.exists()

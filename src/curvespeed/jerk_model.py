@@ -182,7 +182,9 @@ def _held_through_node(problem: SpeedProblem, rest: np.ndarray, steps: np.ndarra
     closed form from 16 to 80 m, with this shape +0.002 to +0.075 %; where the move holds
     ``accel`` for less (12 m) it came out +0.71 % instead of +0.48 %."""
     jerk, ds = problem.limits.max_jerk_mps3, problem.ds
-    out = accel < rest_step.max_ramp_accel(jerk, ds)
+    # no acceleration to ramp to (a grade the tyres cannot climb from rest): nothing to hold;
+    # the undrivable grade is reported once the problem is solved
+    out = (accel > 0) & (accel < rest_step.max_ramp_accel(jerk, ds))
     if not out.any():
         return out
     idx = np.flatnonzero(out)

@@ -65,8 +65,16 @@ def fit_elevation(point_station, z, count, stated_noise, length, closed, node_st
     return fit.spline(nodes)[:, 0], fit.spline(nodes, nu=1)[:, 0], noise
 
 
-def warn_steep_grades(station: np.ndarray, grade: np.ndarray, source: str) -> None:
-    """Warn, naming the stations, where the grade is beyond what roads have."""
+#: What a steep grade most likely means in recorded or listed points, and what to do.
+POINTS_GRADE_HINT = (
+    "The elevations are probably noisy (satellite receivers' heights drift by metres) or hold "
+    "a stray value; check them, state their noise, or ignore elevation (--no-elevation)")
+
+
+def warn_steep_grades(station: np.ndarray, grade: np.ndarray, source: str,
+                      stacklevel: int = 3, hint: str = POINTS_GRADE_HINT) -> None:
+    """Warn, naming the stations, where the grade is beyond what roads have; ``hint`` says
+    what to check."""
     steep = np.abs(grade) > MAX_ROAD_GRADE
     if not steep.any():
         return
@@ -77,7 +85,6 @@ def warn_steep_grades(station: np.ndarray, grade: np.ndarray, source: str) -> No
     more = f" and {len(spans) - 5} more stretch(es)" if len(spans) > 5 else ""
     warnings.warn(
         f"{source}: grades of up to {100 * grade[k]:+.0f} % (at station {station[k]:.0f} m) at "
-        f"stations {listed}{more}: beyond what roads have ({100 * MAX_ROAD_GRADE:.0f} %). The "
-        "elevations are probably noisy (satellite receivers' heights drift by metres) or hold "
-        "a stray value; check them, state their noise, or ignore elevation (--no-elevation)",
-        CurvespeedWarning, stacklevel=3)
+        f"stations {listed}{more}: beyond what roads have ({100 * MAX_ROAD_GRADE:.0f} %). "
+        f"{hint}",
+        CurvespeedWarning, stacklevel=stacklevel)

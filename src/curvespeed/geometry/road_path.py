@@ -36,6 +36,7 @@ from ..limits import SpeedZone, Superelevation
 from .design_curves import Piecewise3, ReferenceLine, sum_piecewise
 from .model import Geometry
 from .points import MAX_STATIONS
+from .road_checks import check_path_values
 
 #: Gauss-Legendre nodes per piece of the arc-length table: the integrand |P'| is smooth between
 #: breakpoints and the pieces are at most _TABLE_STEP_M long, so 10 nodes reach round-off.
@@ -258,6 +259,8 @@ def build_road_path(pieces, spacing_m: float = 1.0, closed: bool | None = None,
         for k in names:
             values[k][mask] = centre[k]
     _warn_gaps(pieces, tables, source)
+    has_z = any(p.elevation.starts_m.size or p.roll.starts_m.size for p in pieces)
+    check_path_values(values, station, road_s, which, pieces, source, has_z)
     heading = np.unwrap(values["heading"])
     heading -= 2 * math.pi * round(heading[0] / (2 * math.pi))
     is_loop = _meets_itself(values["x"], values["y"], heading)
@@ -271,7 +274,6 @@ def build_road_path(pieces, spacing_m: float = 1.0, closed: bool | None = None,
         for k in ("x", "y", "curvature", "z", "grade", "roll"):
             values[k][-1] = values[k][0]
         heading[-1] = heading[0] + 2 * math.pi * round((heading[-1] - heading[0]) / (2 * math.pi))
-    has_z = any(p.elevation.starts_m.size or p.roll.starts_m.size for p in pieces)
     geometry = Geometry(
         station_m=station, x_m=values["x"], y_m=values["y"], heading_rad=heading,
         curvature_1pm=values["curvature"], z_m=values["z"] if has_z else None,

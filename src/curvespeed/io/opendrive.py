@@ -29,6 +29,7 @@ from ..geometry.design_curves import (ElementCurve, ParamPoly3Curve, Piecewise3,
                                       ReferenceLine)
 from ..units import kmh_to_mps, mph_to_mps
 from ._common import cell_text, fail, number_problem, parse_number
+from .opendrive_checks import check_joins, check_length, check_start
 
 #: Speed units of the standard's speed records, to m/s.
 SPEED_UNITS = {"m/s": lambda v: v, "km/h": kmh_to_mps, "mph": mph_to_mps}
@@ -219,6 +220,7 @@ def _road(doc: _Doc, el) -> Road:
     if rid is None:
         raise doc.fail(el, "missing the 'id' attribute; every road needs one")
     length = doc.number(el, "length")
+    check_length(doc, el, rid, "length", length)
     reference, starts = _plan_view(doc, el, rid, length)
     link = doc.child(el, "link")
     pred = succ = None
@@ -266,6 +268,8 @@ def _plan_view(doc: _Doc, el, rid: str, length: float):
         s, x, y, hdg, glen = (doc.number(g, k) for k in ("s", "x", "y", "hdg", "length"))
         if not glen > 0:
             raise doc.fail(g, f"road {rid}: geometry length {glen:g} m must be positive")
+        check_length(doc, g, rid, "geometry length", glen)
+        check_start(doc, g, rid, x, y)
         kinds = [c for c in g if _local(c.tag) not in ("userData", "include", "dataQuality")]
         if len(kinds) != 1:
             raise doc.fail(g, f"road {rid}: a <geometry> must hold exactly one plan element "
@@ -277,6 +281,7 @@ def _plan_view(doc: _Doc, el, rid: str, length: float):
         k = int(np.flatnonzero(np.diff(starts) <= 0)[0]) + 1
         raise doc.fail(geometries[k], f"road {rid}: geometry s {starts[k]:g} m does not come "
                                       "after the previous one; list them in station order")
+    check_joins(doc, geometries, curves, starts, rid)
     reference = ReferenceLine(starts, tuple(curves))
     if abs(reference.length_m - length) > LENGTH_TOLERANCE_M:
         doc.warn(el, f"road {rid}: declared length {length:.3f} m, its plan elements end at "
