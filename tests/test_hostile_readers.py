@@ -479,3 +479,38 @@ def test_a_route_too_wide_for_one_projection_is_warned_about(tmp_path):
     warning = [w for w in lines_of(result, "warning:") if "too far for one local map" in w]
     assert warning and str(route) in warning[0], result.output
     assert "km from its centre" in warning[0] and "% off in parts of it" in warning[0]
+
+
+@pytest.mark.parametrize("fmt", ["geojson", "gpx", "csv"])
+def test_a_route_reaching_a_quarter_of_the_way_round_the_earth_is_refused(tmp_path, fmt):
+    # Along the equator from 90 W to 90 E in steps of 0.5 degree: it lies on one great circle,
+    # but its ends are 90 degrees of arc from its middle, where the transverse Mercator's scale
+    # is infinite and the oblique Mercator folds back. It was warned about as "up to inf % off"
+    # and then refused at "position 1: x is not a finite number" although position 1 is fine.
+    lon = np.arange(-90.0, 90.25, 0.5)
+    if fmt == "geojson":
+        text = json.dumps({"type": "LineString", "coordinates": [[a, 0.0] for a in lon]})
+    elif fmt == "gpx":
+        text = ('<?xml version="1.0"?><gpx version="1.1" creator="test" '
+                'xmlns="http://www.topografix.com/GPX/1/1"><trk><trkseg>'
+                + "".join(f'<trkpt lat="0" lon="{a}"/>' for a in lon) + "</trkseg></trk></gpx>")
+    else:
+        text = "lat,lon\n" + "".join(f"0,{a}\n" for a in lon)
+    route = write(tmp_path, f"equator.{fmt}", text)
+    before = snapshot(tmp_path)
+    result = run("route", route, "--spacing", "1000", "-o", tmp_path / "g.csv")
+    message = assert_refused(result, tmp_path, before, route,
+                             ["reaches 10019 km (90 degrees of arc) from its centre",
+                              "a quarter of the way round the Earth", "Split the route"])
+    assert "not a finite number" not in message and "warning" not in result.output
+
+
+def test_a_long_route_on_one_great_circle_is_read_without_a_word(tmp_path):
+    # 75 degrees either side of its middle along the equator: the oblique Mercator along the
+    # equator keeps lengths to round-off there, so nothing is refused or warned about.
+    lon = np.arange(-75.0, 75.25, 0.5)
+    text = json.dumps({"type": "LineString", "coordinates": [[a, 0.0] for a in lon]})
+    route = write(tmp_path, "equator.geojson", text)
+    result = run("route", route, "--spacing", "1000")
+    assert result.exit_code == 0, result.output
+    assert "warning" not in result.output and "error" not in result.output

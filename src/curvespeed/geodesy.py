@@ -29,7 +29,7 @@ SCALE_TOLERANCE = 1e-4
 #: west (80 km, with room for the series' higher terms) get the oblique Mercator.
 TMERC_REACH_M = 80_000.0
 #: Mean Earth radius, metres: for choosing the projection only (the arithmetic is pyproj's).
-_EARTH_RADIUS_M = 6_371_000.0
+EARTH_RADIUS_M = 6_371_000.0
 #: Points used to choose the central line of a long route and to measure its scale error
 #: (evenly spaced through the route).
 SAMPLE_POINTS = 20_000
@@ -88,7 +88,7 @@ class LocalProjection(_Transforms):
         tmerc = cls(round(lat0, 9), round(lon0, 9))
         # spherical transverse Mercator easting R atanh(cos(lat) sin(dlon)): enough to decide
         east = np.cos(np.radians(lat)) * np.sin(np.radians(lon - lon0))
-        if _EARTH_RADIUS_M * float(np.max(np.arctanh(np.clip(np.abs(east), 0.0, 0.999999)))) \
+        if EARTH_RADIUS_M * float(np.max(np.arctanh(np.clip(np.abs(east), 0.0, 0.999999)))) \
                 <= TMERC_REACH_M:
             return tmerc
         oblique = _best_great_circle(lat, lon)

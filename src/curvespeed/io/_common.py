@@ -26,7 +26,7 @@ import stat
 import numpy as np
 
 from ..errors import RouteFormatError
-from ..geodesy import LocalProjection
+from ..geodesy import EARTH_RADIUS_M, LocalProjection
 
 #: Largest input file read, bytes (128 MiB). A route CSV line takes about 20 bytes, so this is
 #: some six million points, far more than any route needs at metre spacing (a profile CSV of
@@ -186,8 +186,49 @@ def project_latlon(lat_deg: np.ndarray, lon_deg: np.ndarray, source: str | None 
     projection = LocalProjection.centred_on(lat_deg, lon_deg)
     x, y = projection.to_metres(lat_deg, lon_deg)
     if source is not None:
+        refuse_unprojectable(projection, lat_deg, lon_deg, x, y, source)
         warn_if_stretched(projection, lat_deg, lon_deg, x, source)
     return x, y, projection
+
+
+def _reach_m(projection: LocalProjection, lat, lon) -> np.ndarray:
+    """Geodesic distance of each point from the projection's centre, metres."""
+    from pyproj import Geod
+
+    return Geod(ellps="WGS84").inv(np.full(lat.size, projection.lon0_deg),
+                                   np.full(lat.size, projection.lat0_deg), lon, lat)[2]
+
+
+def refuse_unprojectable(projection: LocalProjection, lat_deg, lon_deg, x_m, y_m,
+                         source: str) -> None:
+    """Refuse a route that reaches so far round the Earth that the local projection breaks.
+
+    Both local projections break down a quarter of the way round the Earth from their centre
+    (about 10,000 km, 90 degrees of arc): the transverse Mercator's scale grows without bound
+    there, and the oblique Mercator's along-line coordinate folds back (PROJ gives no finite
+    scale from about 89.9 degrees). The points' coordinates then come out infinite or
+    folded, which would otherwise be blamed on the first point.
+    """
+    from ..geodesy import SAMPLE_POINTS, TMERC_REACH_M
+
+    lat, lon = np.asarray(lat_deg, dtype=float), np.asarray(lon_deg, dtype=float)
+    x, y = np.asarray(x_m, dtype=float), np.asarray(y_m, dtype=float)
+    finite = bool(np.isfinite(x).all() and np.isfinite(y).all())
+    if not lat.size or (finite and projection.azimuth_deg is None
+                        and float(np.max(np.abs(x))) <= TMERC_REACH_M):
+        return
+    step = max(1, lat.size // SAMPLE_POINTS)
+    if finite and math.isfinite(projection.scale_error(lat[::step], lon[::step])):
+        return
+    reach = float(np.max(_reach_m(projection, lat, lon)))
+    arc = math.degrees(reach / EARTH_RADIUS_M)
+    raise RouteFormatError(
+        f"{source}: the route reaches {reach / 1000:.0f} km ({arc:.0f} degrees of arc) from "
+        f"its centre (latitude {projection.lat0_deg:.4g}, longitude {projection.lon0_deg:.4g})"
+        ": a local map projection cannot hold points about a quarter of the way round the "
+        "Earth from its centre (it stretches them without bound or folds them back), so "
+        "lengths and curvature cannot be measured. Split the route into parts, each well "
+        "within 10,000 km of its middle, or give it in a metric frame")
 
 
 def warn_if_stretched(projection: LocalProjection, lat_deg, lon_deg, x_m, source: str) -> None:
@@ -209,11 +250,7 @@ def warn_if_stretched(projection: LocalProjection, lat_deg, lon_deg, x_m, source
     error = projection.scale_error(lat[::step], lon[::step])
     if error <= SCALE_TOLERANCE:
         return
-    from pyproj import Geod
-
-    _, _, reach = Geod(ellps="WGS84").inv(np.full(lat[::step].size, projection.lon0_deg),
-                                          np.full(lat[::step].size, projection.lat0_deg),
-                                          lon[::step], lat[::step])
+    reach = _reach_m(projection, lat[::step], lon[::step])
     warnings.warn(
         f"{source}: the route reaches {np.max(reach) / 1000:.0f} km from its centre and strays "
         "far from any one great circle, too far for one local map projection: lengths and "

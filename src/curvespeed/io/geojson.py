@@ -29,7 +29,8 @@ import numpy as np
 from ..errors import CurvespeedWarning
 from ..route import Route, make_route
 from ._common import (fail, finite_value, latlon_range_problem, load_json, looks_projected,
-                      project_latlon, show_value, value_problem, warn_if_stretched)
+                      project_latlon, refuse_unprojectable, show_value, value_problem,
+                      warn_if_stretched)
 
 _LINE_TYPES = ("LineString", "MultiLineString")
 #: Parts of a MultiLineString are joined when each starts within this distance of where the one
@@ -104,6 +105,7 @@ def parse_route_geojson(text: str, source: str) -> Route:
     where = np.array([f"{prefix}position {i + 1}" for prefix, (lo, _, _) in pieces
                       for i in range(lo.size)], dtype=object)
     x, y, projection = project_latlon(lat, lon)
+    refuse_unprojectable(projection, lat, lon, x, y, source)
     if len(pieces) > 1:
         keep = _join_parts(x, y, [lo.size for _, (lo, _, _) in pieces], source, label)
         if not keep.all():
