@@ -250,3 +250,41 @@ def test_several_drives_are_fused_from_files_or_tracks(tmp_path):
     result = run(one, "--drive", two, "-o", two, "--force")
     assert result.exit_code == 2 and "error:" in result.output
     assert two.read_text(encoding="utf-8").startswith("<?xml")
+
+
+def test_drives_run_the_way_of_the_first_one(tmp_path):
+    # A track and the same track driven the other way, a little longer (it starts 200 m
+    # beyond the first one's end): as --drive or as two tracks of one file (--all-tracks), the
+    # fused route starts where the first drive starts, not at the far end of the longer one,
+    # and the drive turned round is named.
+    import sys
+
+    sys.path.insert(0, str(Path(__file__).resolve().parent))
+    from drive_logs import RTK, invented_road, simulate_drive, write_gpx
+
+    road = invented_road()
+    log = simulate_drive(road, 10, RTK, seed=61)
+    early = log.true_station_m < road.length_m - 200.0
+    first = type(log)(log.time_s[early], log.x_m[early], log.y_m[early], None,
+                      log.true_station_m[early], road)
+    back = type(log)(log.time_s, log.x_m[::-1], log.y_m[::-1], None,
+                     log.true_station_m[::-1], road)
+    one, two, both = tmp_path / "one.gpx", tmp_path / "two.gpx", tmp_path / "both.gpx"
+    write_gpx([first], one)
+    write_gpx([back], two)
+    write_gpx([first, back], both)
+    alone = tmp_path / "alone.csv"
+    assert run(one, "-o", alone).exit_code == 0
+    with open(alone) as fh:
+        expected = next(csv.DictReader(fh))
+    for args, other in (([one, "--drive", two], "two.gpx: drive 2 of 2"),
+                        ([both, "--all-tracks"], "both.gpx: drive 2 of 2")):
+        out = tmp_path / "fused.csv"
+        result = run(*args, "-o", out, "--force")
+        assert result.exit_code == 0, result.output
+        assert f"{other} is driven the other way from drive 1" in result.output
+        with open(out) as fh:
+            start = next(csv.DictReader(fh))
+        assert abs(float(start["lat"]) - float(expected["lat"])) < 2e-5        # about 2 m
+        assert abs(float(start["lon"]) - float(expected["lon"])) < 3e-5
+        assert abs(float(start["heading_rad"]) - float(expected["heading_rad"])) < 0.05

@@ -281,3 +281,36 @@ def test_a_drive_of_another_route_is_refused_and_one_driven_backwards_is_turned(
         fused = build_fused_geometry([log_route(logs[0]), log_route(backwards, "back.gpx")])
     assert fused.length_m == pytest.approx(ROAD.length_m, rel=0.005)
     assert fused.provenance["spread_between_drives_m"]["rms"] < 0.05     # RTK: centimetres
+
+
+def _turned(log, keep: slice = slice(None)):
+    """The log driven the other way (fixes in reverse order; times still increasing)."""
+    x, y, s = log.x_m[keep][::-1], log.y_m[keep][::-1], log.true_station_m[keep][::-1]
+    return type(log)(log.time_s[keep], x, y, None, s, log.alignment)
+
+
+def test_the_first_drive_sets_the_direction_of_the_fused_route():
+    # The longest drive is the reference the fixes are placed on; here it runs the other way
+    # from the first drive (which stops 300 m short of the road's end). The fused route used
+    # to run the reference's way: starting at the far end, its net turning of the opposite
+    # sign. It runs the first drive's way now, and the drive turned round is named.
+    logs = [simulate_drive(ROAD, 10, RTK, seed=50 + i) for i in range(2)]
+    short = type(logs[0])(*(a[logs[0].true_station_m < ROAD.length_m - 300.0]
+                            for a in (logs[0].time_s, logs[0].x_m, logs[0].y_m)), None,
+                          logs[0].true_station_m[logs[0].true_station_m < ROAD.length_m - 300.0],
+                          ROAD)
+    back = _turned(logs[1])
+    road_turn = float(ROAD.heading(ROAD.length_m - 300.0) - ROAD.heading(0.0))
+    for first, other, sign in ((short, back, 1.0), (back, short, -1.0)):
+        with pytest.warns(CurvespeedWarning, match=r"^other.gpx: drive 2 of 2 is driven the "
+                                                   r"other way from drive 1 \(first.gpx\), "
+                                                   r"which sets the route's direction"):
+            fused = build_fused_geometry([log_route(first, "first.gpx"),
+                                          log_route(other, "other.gpx")])
+        start = np.hypot(fused.x_m[0] - first.x_m[0], fused.y_m[0] - first.y_m[0])
+        assert start < 5.0, start                  # starts where the first drive starts
+        # over the stretch both drives cover, it turns the way the first drive drives it
+        turn = float(np.interp(ROAD.length_m - 300.0 if sign > 0 else fused.length_m,
+                               fused.station_m, fused.heading_rad)
+                     - np.interp(0.0 if sign > 0 else 300.0, fused.station_m, fused.heading_rad))
+        assert turn == pytest.approx(sign * road_turn, abs=0.05)

@@ -9,9 +9,11 @@ each other's drift, which no smoothing of a single drive can. :func:`build_fused
    local projection);
 2. takes the longest drive's geometry as the reference (``part`` applies to it, where it
    reverses) and places every fix of every drive on it: its station (the nearest point of the
-   reference) and its offset across it. A drive that runs the other way is turned round; one
-   whose fixes lie far from the reference (more than :data:`MAX_OFFSET_M`, typically) is not
-   the same route and is refused, named;
+   reference) and its offset across it. The first drive sets the route's direction: a drive
+   that runs the other way is turned round, with a warning naming it (so the fused route
+   never runs the way of whichever drive happens to be longest); one whose fixes lie far from
+   the reference (more than :data:`MAX_OFFSET_M`, typically) is not the same route and is
+   refused, named;
 3. averages the fixes of all drives (merged and averaged per drive as for a single drive, see
    :mod:`.drive`) in cells along the reference station, and fits the route to those means as to
    any points;
@@ -24,12 +26,13 @@ each other's drift, which no smoothing of a single drive can. :func:`build_fused
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Sequence
 
 import numpy as np
 from scipy.spatial import cKDTree
 
-from ..errors import RouteGeometryError
+from ..errors import CurvespeedWarning, RouteGeometryError
 from ..order_stats import median
 from ..route import Route, make_route
 from .drive import prepare_drive
@@ -57,7 +60,7 @@ def build_fused_geometry(routes: Sequence[Route], **options) -> Geometry:
     longest = int(np.argmax([float(r.chord_stations()[-1]) for r in routes]))
     part = options.pop("part", None)
     reference = build_geometry(routes[longest], part=part, **options)
-    placed = []
+    placed, backwards = [], []
     for i, route in enumerate(routes):            # in the order given, for the report
         drive = prepare_drive(route, part if i == longest else None)
         station, offset = _place(reference, drive.x_m, drive.y_m)
@@ -66,11 +69,13 @@ def build_fused_geometry(routes: Sequence[Route], **options) -> Geometry:
                 f"{route.source}: its fixes lie {median(np.abs(offset)):.0f} m (median) "
                 f"from the route of {routes[longest].source}: it is not a drive of the same route; "
                 "fuse only drives of one route")
-        if np.corrcoef(np.arange(station.size), station)[0, 1] < 0:   # driven the other way
+        backwards.append(bool(np.corrcoef(np.arange(station.size), station)[0, 1] < 0))
+        if backwards[-1]:                         # driven the other way from the reference
             drive = _reversed(drive)
             station, offset = station[::-1], offset[::-1]
         placed.append((route, drive, station, offset))
-    fused = _average(placed, routes[longest], reference)
+    _warn_other_way(routes, backwards)
+    fused = _average(placed, routes[0], reference, reverse=backwards[0])
     geometry = build_geometry(fused, **options)
     spread = _spread(geometry, placed)
     provenance = dict(geometry.provenance)
@@ -133,10 +138,25 @@ def _reversed(drive):
     return replace(drive, **rev)
 
 
-def _average(placed, first: Route, reference: Geometry) -> Route:
+def _warn_other_way(routes: list[Route], backwards: list[bool]) -> None:
+    """Name each drive that runs the other way from the first one (turned round to fuse); by
+    its number too, as the tracks of one file (--all-tracks) share its name."""
+    for i, (route, back) in enumerate(zip(routes, backwards)):
+        if i and back != backwards[0]:
+            warnings.warn(
+                f"{route.source}: drive {i + 1} of {len(routes)} is driven the other way from "
+                f"drive 1 ({routes[0].source}), which sets the route's direction; it is fused "
+                "turned round (if the drives kept to their own lanes, the fused centreline "
+                "lies between them: fuse drives of one direction for a lane)",
+                CurvespeedWarning, stacklevel=3)
+
+
+def _average(placed, first: Route, reference: Geometry, reverse: bool = False) -> Route:
     """One point per cell along the reference: the count-weighted mean station and offset of
     every drive's fixes in it, put back on the reference (averaging the offsets, not the
-    positions, keeps a cell on a bend from being pulled to the inside of it)."""
+    positions, keeps a cell on a bend from being pulled to the inside of it). ``first`` (the
+    first drive) gives the result its source, name and frame; ``reverse`` lists the points
+    from the reference's end (the first drive runs that way)."""
     station = np.concatenate([s for _, _, s, _ in placed])
     offset = np.concatenate([o for _, _, _, o in placed])
     w = np.concatenate([np.minimum(d.count, 4.0 * median(d.count)) for _, d, _, _ in placed])
@@ -159,7 +179,11 @@ def _average(placed, first: Route, reference: Geometry) -> Route:
     x = np.interp(s_mean, reference.station_m, reference.x_m) - np.sin(heading) * d_mean
     y = np.interp(s_mean, reference.station_m, reference.y_m) + np.cos(heading) * d_mean
     labels = [f"cell at station {k * cell:.0f} m" for k in index[starts]]
-    return make_route(x, y, None if z is None else mean(z), where=labels,
+    z_mean = None if z is None else mean(z)
+    if reverse:
+        x, y, labels = x[::-1], y[::-1], labels[::-1]
+        z_mean = None if z_mean is None else z_mean[::-1]
+    return make_route(x, y, z_mean, where=labels,
                       source=first.source, projection=first.projection, name=first.name)
 
 
