@@ -170,7 +170,7 @@ def test_a_cross_slope_too_steep_for_a_section_names_it():
 
 @pytest.mark.parametrize("section, message", [
     (FrictionSection(50.0, 40.0, 0.3), "end must be after start"),
-    (FrictionSection(0.0, 40.0, 0.0), "outside 0..2"),
+    (FrictionSection(0.0, 40.0, 0.0), "outside 0.01..2"),
     (FrictionSection(0.0, 40.0, 0.3, 2.5), "lateral_friction_coefficient = 2.5"),
     (FrictionSection(400.0, 500.0, 0.3), "lies outside the route"),
 ])

@@ -115,8 +115,8 @@ def test_superelevation_by_position(tmp_path):
     (["--friction-section", "100:200"], "'100:200' is not a friction section; write it as "
                                         "START_M:END_M:MU or START_M:END_M:MU:MU_LAT"),
     (["--friction-section", "100:200:wet"], "'100:200:wet': 'wet'"),
-    (["--friction-section", "100:200:0"], "friction_coefficient = 0 is outside 0..2"),
-    (["--friction-section", "100:200:7"], "friction_coefficient = 7 is outside 0..2"),
+    (["--friction-section", "100:200:0"], "friction_coefficient = 0 is outside 0.01..2"),
+    (["--friction-section", "100:200:7"], "friction_coefficient = 7 is outside 0.01..2"),
     (["--friction-section", "300:200:0.3"], "friction section 300..200 m: end must be after "
                                             "start"),
     (["--friction-section", "900:950:0.3"], "lies outside the route"),

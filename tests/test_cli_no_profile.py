@@ -65,6 +65,17 @@ def test_an_elevation_spike_is_named_as_a_grade_at_its_station(tmp_path, solver)
     assert abs(grade) > 70.0 and 400.0 < station < 600.0
 
 
+def test_a_stop_beside_a_grade_the_tyres_cannot_climb_names_the_grade(tmp_path):
+    # A 1 km road climbing 3 % with friction 0.02: no acceleration at all leaves the stop at
+    # 300 m under the jerk bound (the rest step's closed form divided by that zero), and the
+    # grade is what no vehicle passes.
+    route = route_with_elevation(tmp_path, 0.03 * np.arange(201) * 5.0)
+    out = tmp_path / "p.csv"
+    message = assert_refused(run("plan", route, "--friction", "0.02", "--stop", "300", "-o",
+                                 out), out, str(route), "steeper than the tyres can climb")
+    assert grade_at(message)[0] == 3.0
+
+
 def test_receiver_elevation_noise_is_smoothed_to_plausible_grades(tmp_path):
     # Elevations of a flat 1 km road read with 5 m of noise (a consumer receiver's vertical
     # error, common practice) every 2 m. With the noise estimated from the heights the grade

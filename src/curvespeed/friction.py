@@ -108,9 +108,9 @@ def validate_friction_sections(sections, length_m: float, end_m: float) -> None:
             mu = getattr(sec, name)
             if mu is None:
                 continue
-            if not (math.isfinite(mu) and low < mu <= high):
-                raise LimitsError(f"{here}{span}: {name} = {mu:g} is outside {low:g}..{high:g} "
-                                  f"(exclusive of 0): {why}; check the value")
+            if not (math.isfinite(mu) and low <= mu <= high):
+                raise LimitsError(f"{here}{span}: {name} = {mu:g} is outside {low:g}..{high:g}: "
+                                  f"{why}; check the value")
         if sec.start_m >= length_m or sec.end_m <= 0.0:
             raise LimitsError(f"{here}{span} lies outside the route (0..{length_m:.2f} m); "
                               "check its stations against the route summary")

@@ -184,7 +184,7 @@ def _held_through_node(problem: SpeedProblem, rest: np.ndarray, steps: np.ndarra
     jerk, ds = problem.limits.max_jerk_mps3, problem.ds
     # no acceleration to ramp to (a grade the tyres cannot climb from rest): nothing to hold;
     # the undrivable grade is reported once the problem is solved
-    out = (accel > 0) & (accel < rest_step.max_ramp_accel(jerk, ds))
+    out = (accel > 0.0) & (accel < rest_step.max_ramp_accel(jerk, ds))
     if not out.any():
         return out
     idx = np.flatnonzero(out)

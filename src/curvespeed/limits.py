@@ -120,13 +120,22 @@ _POSITIVE = ("friction_coefficient", "max_lateral_accel_mps2", "max_accel_mps2",
              "max_power_w", "mass_kg", "air_density_kgpm3", "gravity_mps2")
 _NON_NEGATIVE = ("drag_area_m2", "rolling_resistance_coefficient")
 
+#: The highest jerk bound, m/s^3: at 1,000 m/s^3 a vehicle takes up 10 m/s^2 (about 1 g) in
+#: 0.01 s, faster than any brake or drive builds up force (tens of m/s^3 in an emergency stop,
+#: common practice, from memory); a bound above it bounds nothing.
+MAX_JERK_MPS3 = 1000.0
+_NO_JERK_BOUND = ("above 1,000 m/s^3 (1 g taken up in 0.01 s, faster than any brake or "
+                  "drive) a jerk bound bounds nothing")
+
+_FRICTION_WHY = ("tyre-road friction is about 0.7-0.9 on dry asphalt, 0.1 on ice, 0.05 on wet "
+                 "ice, below 2 even for racing tyres; below 0.01 a vehicle would need over 100 s "
+                 "to brake from 10 m/s and could not climb a 1 % grade")
+
 #: Values no vehicle on a road can have, refused: name -> (lowest, highest, why). Sources are
 #: common practice unless named.
 PHYSICAL_RANGES = {
-    "friction_coefficient": (0.0, 2.0, "tyre-road friction is about 0.7-0.9 on dry asphalt, "
-                             "0.1 on ice, below 2 even for racing tyres"),
-    "lateral_friction_coefficient": (0.0, 2.0, "tyre-road friction is about 0.7-0.9 on dry "
-                                     "asphalt, 0.1 on ice, below 2 even for racing tyres"),
+    "friction_coefficient": (0.01, 2.0, _FRICTION_WHY),
+    "lateral_friction_coefficient": (0.01, 2.0, _FRICTION_WHY),
     "air_density_kgpm3": (0.3, 2.0, "air is 1.225 kg/m^3 at sea level in the standard "
                           "atmosphere, about 1.4 on a very cold day and 0.7 at 5,000 m, above "
                           "the highest roads"),
@@ -137,18 +146,21 @@ PHYSICAL_RANGES = {
     "mass_kg": (1.0, 1e7, "from a few kg for a small robot to about 10,000 t for the heaviest "
                 "trains"),
     "gravity_mps2": (9.7, 10.0, "gravity at the Earth's surface is 9.78-9.83 m/s^2"),
-    "max_speed_mps": (0.0, 1000.0, "no vehicle on land reaches 1,000 m/s (the land speed "
+    "max_speed_mps": (0.1, 1000.0, "no vehicle on land reaches 1,000 m/s (the land speed "
                       "record is about 340 m/s, from memory); larger values also overflow the "
-                      "squared speeds the solvers work in"),
+                      "squared speeds the solvers work in; below 0.1 m/s (0.36 km/h, a tenth "
+                      "of walking pace) a 100 m route would take over 15 minutes"),
     "max_accel_mps2": (0.01, math.inf, "below 0.01 m/s^2 a vehicle would take over 100 s to "
                        "gain 1 m/s"),
     "max_decel_mps2": (0.01, math.inf, "below 0.01 m/s^2 a vehicle would take over 100 s to "
                        "lose 1 m/s"),
     "max_lateral_accel_mps2": (0.01, math.inf, "below 0.01 m/s^2 even a 1 km curve would be "
                                "taken at 3 m/s"),
-    "max_jerk_mps3": (0.01, math.inf, "below 0.01 m/s^3 taking up 1 m/s^2 would last 100 s"),
-    "max_lateral_jerk_mps3": (0.01, math.inf, "below 0.01 m/s^3 entering a curve at 1 m/s^2 "
-                              "would last 100 s"),
+    "max_jerk_mps3": (0.01, MAX_JERK_MPS3, "below 0.01 m/s^3 taking up 1 m/s^2 would last "
+                      f"100 s; {_NO_JERK_BOUND}: for no bound plan with --solver envelope"),
+    "max_lateral_jerk_mps3": (0.01, MAX_JERK_MPS3, "below 0.01 m/s^3 entering a curve at 1 "
+                              f"m/s^2 would last 100 s; {_NO_JERK_BOUND}: leave it unset for "
+                              "no bound"),
 }
 #: The highest speed a limit or speed zone may state, m/s (see ``PHYSICAL_RANGES``); beyond it
 #: squared speeds in the problem would overflow long before any vehicle is that fast.
