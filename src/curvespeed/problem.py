@@ -111,8 +111,9 @@ from . import lateral_rates, rest_step
 from .friction import node_friction
 from .geometry import Geometry
 from .jerk_model import JerkTimeTerms, jerk_time_terms, rest_nodes, with_rest_steps
-from .limits import Limits, RouteConstraints, validate_constraints, validate_limits
+from .limits import Limits, RouteConstraints, validate_limits
 from .problem_inputs import bank_and_grade, end_speeds_b, rate_spread, speed_caps
+from .route_checks import validate_constraints
 
 #: Cap on squared speed used where no other cap applies (never reached: max speed is finite).
 _UNBOUNDED = 1e12
