@@ -218,7 +218,7 @@ def test_existing_output_needs_force(metric, tmp_path):
     (("--station-step", "0"), "--station-step"),
     (("--dwell", "-2"), "--dwell"),
     (("--dt", "0.1", "--station-step", "1"), "exclude each other"),
-    (("--dt", "1e-9"), "samples (more than"),
+    (("--dt", "1e-9"), "samples every 1e-09 s, more than 5000000; choose a larger step"),
 ])
 def test_bad_options_exit_2_without_output(metric, tmp_path, args, message):
     path, _ = metric

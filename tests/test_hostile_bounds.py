@@ -7,9 +7,11 @@ Every route, limit and profile here is invented for the tests.
 
 from __future__ import annotations
 
+import json
+
 import pytest
 
-from hostile_helpers import assert_refused, bend_csv, run, snapshot, write
+from hostile_helpers import assert_refused, assert_usage_error, bend_csv, run, snapshot, write
 
 
 @pytest.fixture
@@ -85,3 +87,85 @@ def test_a_top_speed_below_a_crawl_is_refused_with_the_range(tmp_path, bend, val
                              tmp_path, before, "--max-speed", ["outside 0.1..1000",
                                                                "walking pace"])
     assert "stop" not in message, message
+
+
+# --- start and end speeds: refused without naming the option, key or file ------------------
+
+@pytest.mark.parametrize("option", ["--start-speed", "--end-speed"])
+def test_a_negative_end_speed_option_is_named(tmp_path, bend, option):
+    before = snapshot(tmp_path)
+    assert_refused(run("plan", bend, option, "-1", "-o", tmp_path / "p.csv"), tmp_path, before,
+                   f"{option} -1", ["must be zero or positive", "give it in m/s"])
+
+
+@pytest.mark.parametrize("key", ["start_speed_mps", "end_speed_mps"])
+def test_a_negative_end_speed_in_a_limits_file_names_the_file_and_key(tmp_path, bend, key):
+    limits = write(tmp_path, "l.toml", f"[limits]\n\n[route]\n{key} = -1\n")
+    before = snapshot(tmp_path)
+    assert_refused(run("plan", bend, "-l", limits, "-o", tmp_path / "p.csv"), tmp_path, before,
+                   str(limits), [f"[route] {key} = -1", "must be zero or positive",
+                                 "give it in m/s"])
+
+
+# --- dwell times: 1e300 s was planned, and replay crashed or ran for minutes ----------------
+
+@pytest.mark.parametrize("dwell", ["1e300", "3601"])
+def test_a_stop_held_longer_than_an_hour_in_a_limits_file_is_refused(tmp_path, bend, dwell):
+    limits = write(tmp_path, "l.toml", f"[limits]\n\n[[stop]]\nstation_m = 60\ndwell_s = {dwell}\n")
+    before = snapshot(tmp_path)
+    message = assert_refused(run("plan", bend, "-l", limits, "-o", tmp_path / "p.csv"),
+                             tmp_path, before, str(limits),
+                             ["[stop #1] dwell_s", "is outside 0..3600 s", "parked"])
+    assert len(message) < 400, message
+
+
+def test_a_stop_held_an_hour_plans(tmp_path, bend):
+    limits = write(tmp_path, "l.toml", "[limits]\n\n[[stop]]\nstation_m = 60\ndwell_s = 3600\n")
+    assert run("plan", bend, "-l", limits).exit_code == 0
+
+
+def planned(folder, bend):
+    profile = folder / "p.csv"
+    assert run("plan", bend, "--stop", "60", "-o", profile).exit_code == 0
+    return profile
+
+
+@pytest.mark.parametrize("dwell", ["1e300", "1e9", "1e5"])
+def test_replay_refuses_a_dwell_longer_than_an_hour(tmp_path, bend, dwell):
+    profile = planned(tmp_path, bend)
+    before = snapshot(tmp_path)
+    assert_refused(run("replay", profile, "-o", tmp_path / "run.csv", "--dwell", dwell,
+                       hang_s=20), tmp_path, before, "--dwell",
+                   ["is outside 0..3600 s", "replay the runs before and after it separately"])
+
+
+def test_export_refuses_a_dwell_longer_than_an_hour(tmp_path, bend):
+    profile = planned(tmp_path, bend)
+    before = snapshot(tmp_path)
+    result = run("export", profile, "-o", tmp_path / "t.csv", "--dwell", "1e300")
+    assert_usage_error(result, tmp_path, before, ["'--dwell'", "1e+300 is above 3600",
+                                                  "parked", "give at most 3600"])
+
+
+def test_export_blames_the_sidecar_dwell_not_the_default_dt(tmp_path, bend):
+    # a sidecar written by hand (or before dwells were bounded) holding a stop for 1e300 s
+    profile = planned(tmp_path, bend)
+    sidecar = tmp_path / "p.meta.json"
+    doc = json.loads(sidecar.read_text())
+    doc["constraints"]["stops"][0]["dwell_s"] = 1e300
+    sidecar.write_text(json.dumps(doc))
+    before = snapshot(tmp_path)
+    message = assert_refused(run("export", profile, "-o", tmp_path / "t.csv"), tmp_path, before,
+                             "the profile's sidecar (its stops' dwell_s)",
+                             ["held at stops 1e+300 s", "2e+301 samples every 0.05 s",
+                              "at the default --dt", "hold the stops shorter"])
+    assert len(message) < 400, message
+
+
+def test_export_names_the_step_given_with_the_time_it_samples(tmp_path, bend):
+    profile = planned(tmp_path, bend)
+    before = snapshot(tmp_path)
+    result = run("export", profile, "-o", tmp_path / "t.csv", "--dt", "1e-320")
+    line = assert_usage_error(result, tmp_path, before, ["'--dt'", "over 1.8e+308 samples",
+                                                         "choose a larger step"])
+    assert len(line) < 300, line

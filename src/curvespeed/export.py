@@ -70,6 +70,7 @@ from __future__ import annotations
 
 import enum
 import math
+import sys
 from dataclasses import dataclass
 
 import numpy as np
@@ -271,8 +272,12 @@ def node_arrival_s(profile, dwells) -> np.ndarray:
 
 def _regular_count(span: float, interval: float) -> int:
     """Samples at ``0, interval, 2 interval, ...`` strictly before ``span`` (the end gets a
-    sample of its own): at least one, the start, however large the interval."""
-    return max(int(math.ceil(span / interval - 1e-9)), 1)
+    sample of its own): at least one, the start, however large the interval. A ratio beyond
+    any float (a step of 1e-300 s) counts as ``sys.maxsize``, more than any output can hold."""
+    ratio = span / interval
+    if math.isinf(ratio):
+        return sys.maxsize
+    return max(int(math.ceil(ratio - 1e-9)), 1)
 
 
 def count_time_samples(profile, dt_s: float, dwell_s: float = 0.0, stop_dwell_s=None) -> int:

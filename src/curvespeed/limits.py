@@ -318,6 +318,14 @@ def warn_zones_above_top_speed(zones, limits: Limits, given_as=None) -> None:
                 "it by 3.6)", CurvespeedWarning, stacklevel=2)
 
 
+#: The longest time a vehicle may be held at a stop, s: held longer than an hour it is parked,
+#: not on a run (a layover at a terminus is well within it); an export or replay would also
+#: sample the standstill for hours (72,000 samples per hour at 0.05 s).
+MAX_DWELL_S = 3600.0
+DWELL_WHY = ("a vehicle held at a stop for more than an hour (3600 s) is parked, not on a run: "
+             "export or replay the runs before and after it separately")
+
+
 @dataclass(frozen=True)
 class Stop:
     """A point where the vehicle must be at rest, station in metres.

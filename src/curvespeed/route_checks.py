@@ -10,7 +10,7 @@ import math
 import warnings
 
 from .errors import CurvespeedWarning, LimitsError
-from .limits import END_TOLERANCE_M, MAX_SPEED_MPS, RouteConstraints
+from .limits import DWELL_WHY, END_TOLERANCE_M, MAX_DWELL_S, MAX_SPEED_MPS, RouteConstraints
 from .units import format_apart
 
 
@@ -49,21 +49,24 @@ def validate_constraints(rc: RouteConstraints, length_m: float, closed: bool) ->
             station, last = format_apart(s.station_m, length_m)
             raise LimitsError(f"{here(s)}stop at station {station} m lies outside the route "
                               f"(0..{last} m); check its station against the route summary")
-        if s.dwell_s is not None and not (math.isfinite(s.dwell_s) and s.dwell_s >= 0.0):
-            raise LimitsError(f"{here(s)}stop at station {s.station_m:g} m: dwell_s must be zero "
-                              f"or a positive number of seconds, got {s.dwell_s:g}")
+        if s.dwell_s is not None and not (math.isfinite(s.dwell_s)
+                                          and 0.0 <= s.dwell_s <= MAX_DWELL_S):
+            raise LimitsError(f"{here(s)}stop at station {s.station_m:g} m: dwell_s = "
+                              f"{s.dwell_s:g} is outside 0..{MAX_DWELL_S:g} s: {DWELL_WHY}")
     for e in rc.superelevation:
         if not (math.isfinite(e.start_m) and math.isfinite(e.end_m) and e.end_m > e.start_m):
             raise LimitsError(f"{here(e)}superelevation {e.start_m:g}..{e.end_m:g} m: end must be "
                               "after start")
         if not (math.isfinite(e.rate) and abs(e.rate) <= 0.2):
-            raise LimitsError(f"{here(e)}superelevation rate {e.rate:g} at {e.start_m:g}..{e.end_m:g}"
-                              " m is outside +-0.2 (rise over run: 0.06 means 6 %)")
+            raise LimitsError(f"{here(e)}superelevation rate {e.rate:g} at "
+                              f"{e.start_m:g}..{e.end_m:g} m is outside +-0.2 (rise over run: "
+                              "0.06 means 6 %)")
     from .friction import validate_friction_sections
 
     validate_friction_sections(rc.friction, length_m, end)
     for name in ("start_speed_mps", "end_speed_mps"):
         v = getattr(rc, name)
         if v is not None and not (math.isfinite(v) and v >= 0):
-            raise LimitsError(f"{name.replace('_mps', '')} must be zero or positive, got {v:g} m/s")
+            raise LimitsError(f"{name} = {v:g}: the {name.split('_')[0]} speed must be zero or "
+                              "positive (0 is at rest); give it in m/s")
     return rc

@@ -240,6 +240,7 @@ def resolve_limits(limits_file, overrides: dict, zones, stops, superelevations,
         limits = limits.replace(**changes)
         origin += " with command-line overrides"
     validate_limits(limits, origin, given_as=given_as)
+    _check_end_speeds(start_speed, end_speed)
     extra = RouteConstraints(
         zones=tuple(SpeedZone(*z, origin="--zone") for z in
                     _parse_ranges(zones, 3, "a speed zone", "START_M:END_M:MAX_SPEED_MPS",
@@ -258,6 +259,16 @@ def resolve_limits(limits_file, overrides: dict, zones, stops, superelevations,
     constraints = constraints.merged(extra)
     warn_zones_above_top_speed(constraints.zones, limits, given_as)
     return limits, constraints, origin
+
+
+def _check_end_speeds(start_speed, end_speed) -> None:
+    """Refuse a negative ``--start-speed`` or ``--end-speed``, naming the option."""
+    from ..errors import LimitsError
+
+    for option, value in (("--start-speed", start_speed), ("--end-speed", end_speed)):
+        if value is not None and value < 0.0:
+            raise LimitsError(f"{option} {value:g}: the {option[2:].split('-')[0]} speed must be "
+                              "zero or positive (0 is at rest); give it in m/s")
 
 
 def limits_and_geometry(route_file, limits_file, overrides: dict, constraint_args: tuple,

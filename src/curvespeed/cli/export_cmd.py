@@ -2,9 +2,13 @@
 
 from __future__ import annotations
 
+import math
+import sys
+
 import click
 
 from ..io.trajectory_format import FORMAT_BY_SUFFIX, TrajectoryFormat, format_from_suffix
+from ..limits import DWELL_WHY, MAX_DWELL_S
 from ._common import FiniteFloat, echo, handle_errors, sidecar_or_none
 
 #: Default time step, s (20 samples per second).
@@ -14,16 +18,20 @@ MAX_SAMPLES = 5_000_000
 
 
 class _Positive(FiniteFloat):
-    """A finite number above zero (``min_zero=True``: zero allowed)."""
+    """A finite number above zero (``min_zero=True``: zero allowed), up to ``highest`` (refused
+    above it with the reason ``why``)."""
 
-    def __init__(self, min_zero: bool = False):
-        self.min_zero = min_zero
+    def __init__(self, min_zero: bool = False, highest: float = math.inf, why: str = ""):
+        self.min_zero, self.highest, self.why = min_zero, highest, why
 
     def convert(self, value, param, ctx):
         number = super().convert(value, param, ctx)
         if number < 0.0 or (number == 0.0 and not self.min_zero):
             self.fail(f"{value} is not {'zero or ' if self.min_zero else ''}a positive number",
                       param, ctx)
+        if number > self.highest:
+            self.fail(f"{number:g} is above {self.highest:g}: {self.why}; give at most "
+                      f"{self.highest:g}", param, ctx)
         return number
 
 
@@ -59,7 +67,8 @@ class _StartTime(click.ParamType):
               help=f"Time step between samples, seconds [default: {DEFAULT_DT_S}].")
 @click.option("--station-step", "station_step_m", type=_POSITIVE, default=None, metavar="M",
               help="Sample every M metres of station instead of every --dt seconds.")
-@click.option("--dwell", "dwell_s", type=_Positive(min_zero=True), default=0.0,
+@click.option("--dwell", "dwell_s", type=_Positive(min_zero=True, highest=MAX_DWELL_S,
+                                                  why=DWELL_WHY), default=0.0,
               show_default=True, metavar="S",
               help="Seconds held at each stop (a station inside the route where the planned "
                    "speed is zero) before leaving it.")
@@ -253,15 +262,47 @@ def _sample(sp, dt_s, station_step_m, dwell_s, own=None, names=None):
 
     if station_step_m is not None:
         count = count_station_samples(sp, station_step_m)
-        option, value = "--station-step", station_step_m
+        if count > MAX_SAMPLES:
+            raise click.BadParameter(f"{station_step_m:g} would give {count:.3g} samples (more "
+                                     f"than {MAX_SAMPLES}); choose a larger step",
+                                     param_hint="'--station-step'")
     else:
+        given = dt_s is not None
         dt_s = DEFAULT_DT_S if dt_s is None else dt_s
         count = count_time_samples(sp, dt_s, dwell_s, own)
-        option, value = "--dt", dt_s
-    if count > MAX_SAMPLES:
-        raise click.BadParameter(f"{value:g} would give {count} samples (more than "
-                                 f"{MAX_SAMPLES}); choose a larger step", param_hint=f"'{option}'")
+        if count > MAX_SAMPLES:
+            _too_many_in_time(sp, dt_s, given, count, dwell_s, own)
     if station_step_m is not None:
         return (sample_by_station(sp, station_step_m, dwell_s, own, names),
                 f"every {station_step_m:g} m of station")
     return sample_in_time(sp, dt_s, dwell_s, own, names), f"every {dt_s:g} s"
+
+
+def _too_many_in_time(sp, dt_s: float, given: bool, count: int, dwell_s: float, own) -> None:
+    """Refuse a time-sampled export of more than :data:`MAX_SAMPLES` samples, naming what makes
+    the count huge: the step the user gave, else the dwells or the profile's planned time."""
+    import numpy as np
+
+    from ..errors import SpeedFileError
+    from ..export import stop_dwells
+
+    held = float(np.sum(stop_dwells(sp, dwell_s, own)))
+    total = sp.moving_time_s + held
+    ratio = total / dt_s
+    many = f"{count:.3g}" if math.isfinite(ratio) else f"over {sys.float_info.max:.3g}"
+    span = (f"a trajectory of {total:g} s (planned time {sp.moving_time_s:g} s, held at stops "
+            f"{held:g} s): {many} samples every {dt_s:g} s, more than {MAX_SAMPLES}")
+    if given:
+        raise click.BadParameter(f"{dt_s:g} gives {span}; choose a larger step",
+                                 param_hint="'--dt'")
+    if held > sp.moving_time_s:
+        sources = []
+        if own is not None and not np.all(np.isnan(own)):
+            sources.append("the profile's sidecar (its stops' dwell_s)")
+        if dwell_s > 0.0 and (own is None or np.any(np.isnan(own))):
+            sources.append(f"--dwell {dwell_s:g}")
+        whose = " and ".join(sources)
+        raise SpeedFileError(f"the dwells at stops, from {whose}, make {span} at the default "
+                             "--dt; hold the stops shorter or give a larger --dt")
+    raise SpeedFileError(f"the profile's planned time makes {span} at the default --dt; check "
+                         "the profile's time_s, or give a larger --dt or --station-step")

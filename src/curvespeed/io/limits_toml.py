@@ -51,8 +51,9 @@ from pathlib import Path
 
 from ..errors import LimitsError
 from ..friction import FrictionPosition, FrictionSection
-from ..limits import (DEFAULT_LIMITS, Limits, RouteConstraints, SpeedZone, Stop, StopPosition,
-                      Superelevation, SuperelevationPosition, ZonePosition)
+from ..limits import (DEFAULT_LIMITS, DWELL_WHY, MAX_DWELL_S, Limits, RouteConstraints,
+                      SpeedZone, Stop, StopPosition, Superelevation, SuperelevationPosition,
+                      ZonePosition)
 from ._common import check_nesting, finite_value, read_text, show_value, value_problem
 
 _LIMIT_KEYS = tuple(f.name for f in dataclasses.fields(Limits))
@@ -140,6 +141,10 @@ def read_limits(path: str | Path) -> tuple[Limits, RouteConstraints]:
         if key not in _ROUTE_KEYS:
             raise _unknown_key(path, "route", key, _ROUTE_KEYS)
     ends = {k: _number(path, "route", k, route[k]) for k in _ROUTE_KEYS if k in route}
+    for key, value in ends.items():
+        if value < 0.0:
+            raise LimitsError(f"{path}: [route] {key} = {value:g}: the {key.split('_')[0]} "
+                              "speed must be zero or positive (0 is at rest); give it in m/s")
 
     stops, positions = _read_stops(path, data.get("stop", []))
     zones, zone_positions = _read_ranges(path, "zone", data.get("zone", []), SpeedZone,
@@ -220,9 +225,10 @@ def _read_stops(path: Path, entries) -> tuple[tuple, tuple]:
         origin = f"{path} [[stop]] #{n}"
         nums = {k: _number(path, label, k, entry[k]) for k in place}
         dwell = _number(path, label, "dwell_s", entry["dwell_s"]) if "dwell_s" in entry else None
-        if dwell is not None and dwell < 0:
-            raise LimitsError(f"{path}: [{label}] dwell_s = {dwell:g}: give zero or a positive "
-                              "number of seconds")
+        if dwell is not None and not 0.0 <= dwell <= MAX_DWELL_S:
+            raise LimitsError(f"{path}: [{label}] dwell_s = {dwell:g} is outside "
+                              f"0..{MAX_DWELL_S:g} s: {DWELL_WHY}; give zero or a positive "
+                              "number of seconds up to that")
         name = entry.get("name", "")
         if not isinstance(name, str):
             raise LimitsError(f"{path}: [{label}] name is {show_value(name)}; give it as a "
