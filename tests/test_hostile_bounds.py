@@ -8,6 +8,7 @@ Every route, limit and profile here is invented for the tests.
 from __future__ import annotations
 
 import json
+import re
 
 import pytest
 
@@ -169,3 +170,38 @@ def test_export_names_the_step_given_with_the_time_it_samples(tmp_path, bend):
     line = assert_usage_error(result, tmp_path, before, ["'--dt'", "over 1.8e+308 samples",
                                                          "choose a larger step"])
     assert len(line) < 300, line
+
+
+# --- speeds to check: 1e300 km/h was judged, with nan and inf cells and "brake ok" ----------
+
+@pytest.mark.parametrize("value", ["1e300", "3601"])
+def test_check_refuses_a_constant_speed_no_road_vehicle_reaches(tmp_path, bend, value):
+    before = snapshot(tmp_path)
+    assert_refused(run("check", bend, "--speed-kmh", value, "--csv", tmp_path / "c.csv"),
+                   tmp_path, before, f"--speed-kmh {float(value):g}",
+                   ["is above 3600 km/h (1000 m/s)", "check the value and its units"])
+
+
+def test_check_takes_the_fastest_plausible_constant_speed(tmp_path, bend):
+    # 3600 km/h is far too fast for the bend (exit 1), but a speed a check can judge
+    result = run("check", bend, "--speed-kmh", "3600")
+    assert result.exit_code == 1, result.output
+    assert not re.search(r"\b(nan|inf)\b", result.output), result.output
+
+
+def test_a_road_speed_field_no_vehicle_reaches_is_that_road_s_problem(tmp_path):
+    from curvespeed.io.network import FieldMap, iter_specs
+
+    line = [[-20.0 + 5e-5 * k, -35.0] for k in range(50)]
+    roads = [{"type": "Feature", "properties": {"road_id": f"r{i}", "speed_kmh": speed},
+              "geometry": {"type": "LineString", "coordinates": line}}
+             for i, speed in enumerate([50.0, 5000.0, 1e300])]
+    net = write(tmp_path, "net.geojson", json.dumps({"type": "FeatureCollection",
+                                                     "features": roads}))
+    specs = list(iter_specs([net], FieldMap(id_field="road_id", speed_field="speed_kmh")))
+    assert specs[0].problem is None and specs[0].speed_mps == pytest.approx(50.0 / 3.6)
+    for spec, shown in zip(specs[1:], ["5000 km/h is 1388.89 m/s", "1e+300 km/h is 2.77778e+299"]):
+        assert spec.speed_mps is None
+        assert spec.problem.startswith(f"field 'speed_kmh' (the speed): {shown}"), spec.problem
+        assert "above 1000 m/s (3600 km/h)" in spec.problem
+        assert "check the value and --speed-unit" in spec.problem

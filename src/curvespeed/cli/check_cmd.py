@@ -65,6 +65,8 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
 
     from ..errors import LimitsError
     from ..io.atomic import OutputFiles
+    from ..limits import MAX_SPEED_MPS
+    from ..units import kmh_to_mps, mps_to_kmh
 
     chosen = [name for name, given in (("--speeds", speeds_file is not None),
                                        ("--speed-kmh", speed_kmh is not None),
@@ -74,6 +76,10 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
                                f"{' and '.join(chosen)})")
     if speed_kmh is not None and not speed_kmh > 0.0:
         raise LimitsError(f"--speed-kmh {speed_kmh:g}: give a positive speed in km/h")
+    if speed_kmh is not None and kmh_to_mps(speed_kmh) > MAX_SPEED_MPS:
+        raise LimitsError(f"--speed-kmh {speed_kmh:g} is above {mps_to_kmh(MAX_SPEED_MPS):g} "
+                          f"km/h ({MAX_SPEED_MPS:g} m/s), which no road vehicle reaches; check "
+                          "the value and its units (km/h)")
     outputs = OutputFiles(force)
     outputs.add_input(route_file, "the route file")
     register_drives(outputs, drives)

@@ -33,6 +33,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import BatchError
+from ..limits import MAX_SPEED_MPS
 from . import ROUTE_EXTENSIONS
 
 #: Features read from a layer at a time.
@@ -322,12 +323,24 @@ def _feature_spec(geom, row: dict, fields: FieldMap, transform, source: str, ord
     if not isinstance(speed, str) and speed is not None:
         from ..units import kmh_to_mps, mph_to_mps
 
+        given = speed
         speed = {"km/h": kmh_to_mps, "mph": mph_to_mps, "m/s": float}[fields.speed_unit](speed)
+        problem = problem or _too_fast(speed, given, fields)
+        speed = None if speed > MAX_SPEED_MPS else speed
     name = row.get("name")
     return RouteSpec(route_id=route_id, source=source, order=order, lonlat=lonlat,
                      speed_mps=None if isinstance(speed, str) else speed,
                      friction=None if isinstance(friction, str) else friction,
                      name=None if _missing(name) else str(name).strip() or None, problem=problem)
+
+
+def _too_fast(speed_mps: float, value: float, fields: FieldMap) -> str | None:
+    """Why a road's speed field is above any road vehicle's speed (None if it is not)."""
+    if speed_mps <= MAX_SPEED_MPS:
+        return None
+    return (f"field '{fields.speed_field}' (the speed): {value:g} {fields.speed_unit} is "
+            f"{speed_mps:g} m/s, above {MAX_SPEED_MPS:g} m/s (3600 km/h), which no road vehicle "
+            "reaches; check the value and --speed-unit")
 
 
 def _missing(value) -> bool:
