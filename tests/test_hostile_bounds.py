@@ -163,11 +163,13 @@ def test_export_blames_the_sidecar_dwell_not_the_default_dt(tmp_path, bend):
     assert len(message) < 400, message
 
 
-def test_export_names_the_step_given_with_the_time_it_samples(tmp_path, bend):
+@pytest.mark.parametrize("dt, many", [("1e-300", "e+30"), ("1e-320", "over 1.8e+308")])
+def test_export_names_the_step_given_with_the_time_it_samples(tmp_path, bend, dt, many):
     profile = planned(tmp_path, bend)
     before = snapshot(tmp_path)
-    result = run("export", profile, "-o", tmp_path / "t.csv", "--dt", "1e-320")
-    line = assert_usage_error(result, tmp_path, before, ["'--dt'", "over 1.8e+308 samples",
+    result = run("export", profile, "-o", tmp_path / "t.csv", "--dt", dt)
+    line = assert_usage_error(result, tmp_path, before, ["'--dt'", f"{many}", "samples every",
+                                                         "held at stops 0 s",
                                                          "choose a larger step"])
     assert len(line) < 300, line
 
@@ -205,3 +207,32 @@ def test_a_road_speed_field_no_vehicle_reaches_is_that_road_s_problem(tmp_path):
         assert spec.problem.startswith(f"field 'speed_kmh' (the speed): {shown}"), spec.problem
         assert "above 1000 m/s (3600 km/h)" in spec.problem
         assert "check the value and --speed-unit" in spec.problem
+
+
+# --- numbers of hundreds of digits in messages ----------------------------------------------
+
+@pytest.mark.parametrize("args, named, fragment", [
+    (["--stop-xy", "1e300:0"], "--stop-xy 1e300:0: stop at x 1e+300 m, y 0.00 m",
+     "a coordinate beyond 1e+08 m is farther than any place on Earth"),
+    (["--zone-xy", "0:0:1e300:0:5"], "--zone-xy 0:0:1e300:0:5",
+     "a coordinate beyond 1e+08 m is farther than any place on Earth"),
+])
+def test_a_position_beyond_the_earth_is_refused_in_a_short_message(tmp_path, bend, args, named,
+                                                                    fragment):
+    before = snapshot(tmp_path)
+    result = run("plan", bend, *args, "-o", tmp_path / "p.csv")
+    message = assert_refused(result, tmp_path, before, named, [fragment, "check the units"])
+    assert len(message) < 300, message
+
+
+@pytest.mark.parametrize("noise, side", [("1e300", "more"), ("1e-300", "less")])
+def test_a_position_noise_far_off_is_warned_about_in_a_short_line(tmp_path, bend, noise, side):
+    result = run("plan", bend, "--position-noise", noise)
+    assert result.exit_code == 0, result.output
+    warned = [line for line in result.output.splitlines()
+              if line.startswith("warning:") and "noise stated" in line]
+    assert len(warned) == 1, result.output
+    # the factor in three significant digits with its exponent, not in hundreds of digits
+    assert re.search(rf"is \d(\.\d+)?e\+\d+ times {side} than the points show", warned[0]), \
+        warned[0]
+    assert len(warned[0]) < 300, warned[0]

@@ -23,6 +23,7 @@ from .errors import LimitsError
 from .friction import FrictionPosition, FrictionSection
 from .limits import (RouteConstraints, SpeedZone, Stop, StopPosition, Superelevation,
                      SuperelevationPosition, ZonePosition)
+from .route import MAX_COORDINATE_M
 
 #: Farthest a position may lie from the route and still be snapped to it, m: a few lane widths
 #: (3.5 m each, common practice) plus consumer GNSS error (a few metres); a point farther off
@@ -55,7 +56,12 @@ def _describe(pos: StopPosition) -> str:
     origin = f"{pos.origin}: " if pos.origin else ""
     if pos.lat_deg is not None:
         return f"{origin}stop{name} at lat {pos.lat_deg:.7f}, lon {pos.lon_deg:.7f}"
-    return f"{origin}stop{name} at x {pos.x_m:.2f} m, y {pos.y_m:.2f} m"
+    return f"{origin}stop{name} at x {_metres(pos.x_m)} m, y {_metres(pos.y_m)} m"
+
+
+def _metres(value: float) -> str:
+    """A coordinate to the centimetre, or in 7 significant digits when that is long."""
+    return f"{value:.2f}" if abs(value) < 1e9 else f"{value:.7g}"
 
 
 def snap_point(geometry, a: float, b: float, geographic: bool, what: str,
@@ -73,6 +79,10 @@ def snap_point(geometry, a: float, b: float, geographic: bool, what: str,
         px, py = (float(np.asarray(v).ravel()[0]) for v in projection.to_metres(a, b))
     else:
         px, py = float(a), float(b)
+        if not (abs(px) <= MAX_COORDINATE_M and abs(py) <= MAX_COORDINATE_M):
+            raise LimitsError(f"{what}: a coordinate beyond {MAX_COORDINATE_M:g} m is farther "
+                              "than any place on Earth from the route's origin; check the units "
+                              "(metres) and the frame, or give it by station")
     station, distance, fx, fy = snap_to_polyline(geometry.x_m, geometry.y_m,
                                                  geometry.station_m, px, py)
     if geographic:

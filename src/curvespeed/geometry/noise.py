@@ -231,8 +231,10 @@ def choose_noise(what: str, stated: float | None, estimated: tuple[float, float]
         return NoiseChoice(what, stated, est, stated)
     ratio = stated / (low if stated < low else est)
     side = "less" if ratio < 1 else "more"
+    factor = max(ratio, 1 / ratio)          # short however far off (1e300 m stated)
+    times = f"{factor:.1f}" if factor < 1e6 else f"{factor:.3g}"
     warnings.warn(
-        f"{source}: the {what} noise stated, {stated:g} m, is {max(ratio, 1 / ratio):.1f} times "
+        f"{source}: the {what} noise stated, {stated:g} m, is {times} times "
         f"{side} than the points show ({est:.3g} m, estimated from their scatter); using "
         f"{est:.3g} m. Leave the noise to the data (auto), or check the units and the file",
         CurvespeedWarning, stacklevel=stacklevel)
