@@ -90,6 +90,16 @@ def test_a_top_speed_below_a_crawl_is_refused_with_the_range(tmp_path, bend, val
     assert "stop" not in message, message
 
 
+@pytest.mark.parametrize("args, named", [(["--zone", "20:80:1e-300"], "--zone"),
+                                         (["--zone-xy", "20:0:80:0:0.05"], "--zone-xy")])
+def test_a_speed_zone_below_a_crawl_is_refused_with_the_range(tmp_path, bend, args, named):
+    before = snapshot(tmp_path)
+    message = assert_refused(run("plan", bend, *args, "-o", tmp_path / "p.csv"), tmp_path,
+                             before, named, ["is below 0.1 m/s", "walking pace",
+                                             "use a stop to come to rest"])
+    assert "neighbouring stations" not in message, message
+
+
 # --- start and end speeds: refused without naming the option, key or file ------------------
 
 @pytest.mark.parametrize("option", ["--start-speed", "--end-speed"])

@@ -10,8 +10,12 @@ import math
 import warnings
 
 from .errors import CurvespeedWarning, LimitsError
-from .limits import DWELL_WHY, END_TOLERANCE_M, MAX_DWELL_S, MAX_SPEED_MPS, RouteConstraints
+from .limits import (DWELL_WHY, END_TOLERANCE_M, MAX_DWELL_S, MAX_SPEED_MPS, PHYSICAL_RANGES,
+                     RouteConstraints)
 from .units import format_apart
+
+#: The lowest speed a speed zone may state, m/s: the lowest top speed (``PHYSICAL_RANGES``).
+MIN_SPEED_MPS = PHYSICAL_RANGES["max_speed_mps"][0]
 
 
 def validate_constraints(rc: RouteConstraints, length_m: float, closed: bool) -> RouteConstraints:
@@ -31,6 +35,11 @@ def validate_constraints(rc: RouteConstraints, length_m: float, closed: bool) ->
         if not (z.max_speed_mps > 0 and math.isfinite(z.max_speed_mps)):
             raise LimitsError(f"{here(z)}speed zone {z.start_m:g}..{z.end_m:g} m: max speed must "
                               f"be positive, got {z.max_speed_mps:g} m/s (use a stop for zero)")
+        if z.max_speed_mps < MIN_SPEED_MPS:
+            raise LimitsError(f"{here(z)}speed zone {z.start_m:g}..{z.end_m:g} m: max speed "
+                              f"{z.max_speed_mps:g} m/s is below {MIN_SPEED_MPS:g} m/s (0.36 "
+                              "km/h, a tenth of walking pace), as no top speed may be; use a stop "
+                              "to come to rest, and check the value and its units")
         if z.max_speed_mps > MAX_SPEED_MPS:
             raise LimitsError(f"{here(z)}speed zone {z.start_m:g}..{z.end_m:g} m: max speed "
                               f"{z.max_speed_mps:g} m/s is above {MAX_SPEED_MPS:g} m/s, which no "
