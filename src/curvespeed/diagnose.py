@@ -96,8 +96,8 @@ def undrivable_station(problem: SpeedProblem) -> str | None:
                 f"{mu:g}{section} allows about {100.0 * mu:.0f} %; the steepest is "
                 f"{worst:+.0f} % at {problem.station_m[steepest]:.1f} m): no vehicle can pass it, "
                 "whatever the other limits. Public roads stay below about 35 %; grades like "
-                "this come from elevation errors (a spike, or receiver noise): check the elevations, or "
-                "plan without them (drop the elevation column)")
+                "this come from elevation errors (a spike, receiver noise, a design file's "
+                "elevation record): check the elevations, or plan without them (--no-elevation)")
     return (f"{problem.source}: at station {station:.1f} m{others} the vehicle cannot stand or "
             f"move forward at any speed (acceleration allowed there at rest: {lo[k]:.3g} to "
             f"{hi[k]:.3g} m/s^2; friction there {mu:g}{section}); check the grade, the "
