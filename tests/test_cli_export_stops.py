@@ -178,3 +178,28 @@ def test_a_start_time_without_offset_or_not_iso_is_refused(shuttle, tmp_path, va
     assert "--start-time" in result.output and why in result.output
     assert "2026-12-02T08:00:00+01:00" in result.output          # an example to follow
     assert "Traceback" not in result.output
+
+
+@pytest.mark.parametrize("value, suffix, why", [
+    ("9999-12-31T23:59:59+00:00", "csv", "give an earlier start time"),
+    ("9999-12-31T23:59:00Z", "gpx", "give an earlier start time"),
+    ("0001-01-01T00:00:00+23:00", "geojson", "give a later start time"),
+])
+def test_a_start_time_whose_run_leaves_the_calendar_is_refused(shuttle, tmp_path, value,
+                                                               suffix, why):
+    out = tmp_path / f"t.{suffix}"
+    result = run("export", shuttle, "-o", out, "--start-time", value)
+    assert result.exit_code == 2, result.output
+    assert not out.exists() and not list(tmp_path.iterdir())
+    assert "Traceback" not in result.output and "OverflowError" not in result.output
+    assert "--start-time" in result.output and why in result.output
+    assert str(shuttle) in result.output                # whose trajectory it is
+
+
+def test_a_start_time_whose_run_ends_just_inside_the_calendar_is_written(shuttle, tmp_path):
+    out = tmp_path / "t.csv"
+    result = run("export", shuttle, "-o", out, "--start-time", "9999-12-31T00:00:00Z")
+    assert result.exit_code == 0, result.output
+    with out.open() as handle:
+        last = list(csv.DictReader(handle))[-1]
+    assert last["time_utc"].startswith("9999-12-31T")

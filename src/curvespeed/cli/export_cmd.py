@@ -142,6 +142,8 @@ def export(profile_file, output, fmt, dt_s, station_step_m, dwell_s, laps, launc
             from ..export_laps import with_laps
 
             trajectory = with_laps(trajectory, run)
+        if start_time is not None:
+            _check_start_time(start_time, trajectory.total_time_s, profile_file)
         trajectory = dataclasses.replace(
             trajectory, start_time=start_time,
             local_origin=sidecar.local_origin if sidecar is not None else None)
@@ -152,6 +154,17 @@ def export(profile_file, output, fmt, dt_s, station_step_m, dwell_s, laps, launc
         echo(line)
     echo(f"wrote  {output} ({kind.value}): {trajectory.n_samples} samples {every}, "
          f"total time {trajectory.total_time_s:.2f} s")
+
+
+def _check_start_time(start_time, total_time_s, profile_file) -> None:
+    """Refuse a --start-time whose trajectory leaves the calendar (years 1 to 9999)."""
+    from ..io.trajectory_time import time_range_problem
+
+    problem = time_range_problem(start_time, total_time_s)
+    if problem is not None:
+        raise click.BadParameter(
+            f"{start_time.isoformat()} (trajectory of {profile_file}) {problem}",
+            param_hint="'--start-time'")
 
 
 def _format(fmt, output) -> TrajectoryFormat:

@@ -48,6 +48,28 @@ def utc_text(when: dt.datetime, digits: int = 6) -> str:
     return text + "Z"
 
 
+def time_range_problem(start: dt.datetime, duration_s: float) -> str | None:
+    """Why ``start`` and ``start + duration_s`` cannot both be written as UTC times (the
+    calendar runs from year 1 to year 9999) and what to do, or None when they can."""
+    low = dt.datetime.min.replace(tzinfo=dt.timezone.utc)
+    high = dt.datetime.max.replace(tzinfo=dt.timezone.utc)
+    early = ("is before 0001-01-01T00:00:00Z in UTC, the first time the calendar holds; "
+             "give a later start time")
+    try:
+        begin = start.astimezone(dt.timezone.utc)
+    except OverflowError:
+        return early
+    if begin < low:
+        return early
+    # a second of margin: a sample's time is its time_s rounded to the microsecond (and to the
+    # millisecond in GPX), never more than 0.5 ms past the trajectory's duration
+    if duration_s >= (high - begin).total_seconds() - 1.0:
+        return (f"plus the trajectory's {duration_s:.2f} s ends after 9999-12-31T23:59:58Z, "
+                "the last time the calendar holds less a second for rounding; give an "
+                "earlier start time")
+    return None
+
+
 def absolute_times(start: dt.datetime, time_s, digits: int = 6) -> list[str]:
     """UTC text of ``start + time_s`` for every sample (``time_s`` as the CSV writes it;
     ``digits`` 3 rounds to the millisecond)."""
@@ -61,4 +83,4 @@ def absolute_times(start: dt.datetime, time_s, digits: int = 6) -> list[str]:
     return out
 
 
-__all__ = ["absolute_times", "parse_start_time", "utc_text"]
+__all__ = ["absolute_times", "parse_start_time", "time_range_problem", "utc_text"]
