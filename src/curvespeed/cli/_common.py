@@ -322,21 +322,15 @@ def sidecar_or_none(profile_file, instead: str):
         return None
 
 
-def route_name(profile_file) -> str | None:
-    """The route's name from the sidecar next to the profile, if there is a readable one (a
-    broken sidecar is warned about, and the name then comes from the file name)."""
-    sidecar = sidecar_or_none(profile_file, "the route name is taken from the file name instead")
-    return None if sidecar is None else sidecar.route_name
-
-
 def profile_sidecar(profile_file, meta_file=None, without: str | None = None):
     """The sidecar of a profile and its path: the one named with ``--meta`` (which must be
     readable), else the one next to the profile (``(None, path)`` when there is none).
 
     ``without`` says what the command does without a sidecar ("drawing without limits, zones
-    and stops"): a broken sidecar next to the profile is then warned about and skipped, and a
-    missing one noted on standard error, both in those words. With ``without`` None, a broken
-    sidecar next to the profile is an error like any input.
+    and stops"): a broken sidecar next to the profile is warned about and skipped, and a
+    missing one noted on standard error, both in those words. With ``without`` None, a missing
+    sidecar is not noted and a broken one is skipped with a warning ending "going on without
+    it".
     """
     from ..io.meta_json import default_meta_path, read_profile_meta
 
@@ -348,20 +342,78 @@ def profile_sidecar(profile_file, meta_file=None, without: str | None = None):
             click.echo(f"note: no sidecar {default} found; {without} (give --meta FILE to add "
                        "them)", err=True)
         return None, default
-    if without is None:
-        return read_profile_meta(default), default
-    return sidecar_or_none(profile_file, f"{without} (give --meta FILE to add them)"), default
+    return sidecar_or_none(profile_file, _instead(without)), default
 
 
 def read_profile_with_sidecar(profile_file, meta_file=None, without: str | None = None):
     """``(station profile, sidecar or None, sidecar path)``: a profile CSV read with its route
     name from its sidecar (:func:`profile_sidecar` says which sidecar and what ``without``
-    does)."""
+    does; :func:`fitting_sidecar` checks the sidecar against the profile)."""
     from ..io.profile_csv import read_station_profile
 
     sidecar, path = profile_sidecar(profile_file, meta_file, without)
     name = sidecar.route_name if sidecar is not None else None
-    return read_station_profile(profile_file, name=name), sidecar, path
+    sp = read_station_profile(profile_file, name=name)
+    checked = fitting_sidecar(sidecar, sp, _instead(without), named=meta_file is not None)
+    return _renamed(sp, sidecar, checked, profile_file), checked, path
+
+
+def _instead(without: str | None) -> str:
+    """What a command with ``--meta`` does without a sidecar, for a warning's end."""
+    return f"{without} (give --meta FILE to add them)" if without else "going on without it"
+
+
+def read_profile_and_sidecar(profile_file, instead: str):
+    """``(station profile, sidecar or None)`` for a command with no ``--meta``: the sidecar
+    next to the profile when it is readable and fits the profile, else None after a warning
+    that ends with ``instead`` (what the command does without it)."""
+    from ..io.profile_csv import read_station_profile
+
+    sidecar = sidecar_or_none(profile_file, instead)
+    sp = read_station_profile(profile_file, name=sidecar.route_name if sidecar else None)
+    checked = fitting_sidecar(sidecar, sp, instead)
+    return _renamed(sp, sidecar, checked, profile_file), checked
+
+
+def _renamed(sp, sidecar, checked, profile_file):
+    """The profile named after its file again when its sidecar was set aside."""
+    if sidecar is None or checked is not None or not sidecar.route_name:
+        return sp
+    import dataclasses
+    from pathlib import Path
+
+    return dataclasses.replace(sp, name=Path(profile_file).stem)
+
+
+def fitting_sidecar(sidecar, sp, instead: str, named: bool = False):
+    """``sidecar`` when its limits and constraints are valid for the profile ``sp`` (limits
+    within their ranges; every stop, zone, friction and superelevation section on the
+    profile's stations; dwells zero or more), else: for a sidecar the user ``named`` (``--meta``)
+    a :class:`~curvespeed.errors.SpeedFileError`, for one found next to the profile a warning
+    naming it and what is wrong, ending with ``instead``, and None."""
+    if sidecar is None:
+        return None
+    import warnings
+
+    from ..errors import CurvespeedWarning, SpeedFileError
+    from ..limits import validate_constraints, validate_limits
+
+    try:
+        with warnings.catch_warnings():
+            # a zone or section running past an end is what plan warned about and clipped
+            warnings.simplefilter("ignore", CurvespeedWarning)
+            validate_limits(sidecar.limits, where="limits", warn=False)
+            validate_constraints(sidecar.constraints, sp.length_m, bool(sidecar.closed))
+        return sidecar
+    except CurvespeedError as exc:
+        problem = (f"{sidecar.source}: does not fit the profile {sp.source} "
+                   f"(0..{sp.length_m:.2f} m): {exc}")
+    if named:
+        raise SpeedFileError(f"{problem}; write the sidecar again with curvespeed plan, or "
+                             "drop --meta") from None
+    warnings.warn(f"{problem}; the sidecar is ignored: {instead}", CurvespeedWarning,
+                  stacklevel=3)
+    return None
 
 
 def radius_cell(*, low_m: float, estimate_m: float, high_m: float, compact: bool = False) -> str:

@@ -9,7 +9,7 @@ import click
 
 from ..io.trajectory_format import FORMAT_BY_SUFFIX, TrajectoryFormat, format_from_suffix
 from ..limits import DWELL_WHY, MAX_DWELL_S
-from ._common import FiniteFloat, echo, handle_errors, sidecar_or_none
+from ._common import FiniteFloat, echo, handle_errors
 
 #: Default time step, s (20 samples per second).
 DEFAULT_DT_S = 0.05
@@ -181,13 +181,13 @@ def _format(fmt, output) -> TrajectoryFormat:
 
 
 def _read(profile_file):
-    """A profile and its sidecar (None without a readable one: a broken sidecar is warned
-    about and the route name then comes from the file name)."""
-    from ..io.profile_csv import read_station_profile
+    """A profile and its sidecar (None without a readable one that fits the profile: a broken
+    sidecar is warned about and the route name then comes from the file name)."""
+    from ._common import read_profile_and_sidecar
 
-    sidecar = sidecar_or_none(profile_file, "the route name is taken from the file name instead")
-    name = None if sidecar is None else sidecar.route_name
-    return read_station_profile(profile_file, name=name), sidecar
+    return read_profile_and_sidecar(
+        profile_file, "the route name is taken from the file name and stops get no own dwell "
+        "or name")
 
 
 def _stop_info(sidecar, sp):

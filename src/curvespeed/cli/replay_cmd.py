@@ -91,12 +91,11 @@ def _run(profile_file, vehicle_file, tracker, dwell_s):
     from ..dynamics.summary import summarise
     from ..dynamics.vehicle import DEFAULT_VEHICLE
     from ..friction import grip_along
-    from ..io.profile_csv import read_station_profile
-    from ._common import sidecar_or_none
+    from ._common import read_profile_and_sidecar
 
-    sidecar = sidecar_or_none(profile_file, "the route name is taken from the file name and "
-                              "the vehicle's friction applies all along instead")
-    sp = read_station_profile(profile_file, name=sidecar.route_name if sidecar else None)
+    sp, sidecar = read_profile_and_sidecar(
+        profile_file, "the route name is taken from the file name and the vehicle's friction "
+        "applies all along instead")
     grip = None
     if sidecar is not None and sidecar.constraints.friction:
         grip = grip_along(sidecar.limits, sidecar.constraints.friction)
