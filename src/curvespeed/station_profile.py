@@ -414,3 +414,41 @@ def planned_time_mismatch(sp: StationProfile) -> tuple[int, float] | None:
     gap = np.abs((sp.time_s - sp.time_s[0]) - sp.node_time_s)
     k = int(np.argmax(gap))
     return k, float(gap[k])
+
+
+#: Longest time a profile may plan for one step between stations, s: an hour to cover one step
+#: (at most a few tens of metres at any spacing plan uses) is a vehicle standing, not driving;
+#: a standstill is a stop (speed 0 at a station, with a dwell), and a speed that low is a
+#: unit slip or a damaged file.
+MAX_STEP_TIME_S = 3600.0
+#: Longest planned time of a whole profile, s (11.6 days of driving without a stop): no road
+#: route is driven that long in one go, and sampling it every 0.05 s would take 2e7 samples.
+MAX_PLANNED_TIME_S = 1e6
+
+
+def implausible_time(sp: StationProfile) -> str | None:
+    """Why the profile's planned time (from its stations and speeds) is implausible, naming
+    the slowest stretch (file lines, stations, speeds) and what to do; None when it is not.
+
+    Export and replay sample the profile in time: checked before either allocates its samples
+    (1e-9 m/s over 1 km would otherwise be 2e13 samples)."""
+    step = sp.step_time_s
+    total = float(np.sum(step))
+    slow = step > MAX_STEP_TIME_S
+    if not slow.any() and total <= MAX_PLANNED_TIME_S:
+        return None
+    k = int(np.argmax(step))
+    first = last = k
+    while first > 0 and slow[first - 1]:
+        first -= 1
+    while last + 1 < step.size and slow[last + 1]:
+        last += 1
+    v = sp.speed_mps[first:last + 2]
+    moving = v[v > 0.0]
+    low = float(moving.min()) if moving.size else 0.0
+    return (f"{sp.source}: the planned time {total:.4g} s for {sp.length_m:.1f} m is not "
+            f"plausible (a step may take at most {MAX_STEP_TIME_S:g} s, the whole profile "
+            f"{MAX_PLANNED_TIME_S:g} s): the slowest stretch, {sp.node_label(first)} to "
+            f"{sp.node_label(last + 1)}, is planned at speeds down to {low:.3g} m/s, its "
+            f"slowest step taking {float(step[k]):.4g} s; check the speed_mps column (units, "
+            "damage), or plan the profile again with curvespeed plan")

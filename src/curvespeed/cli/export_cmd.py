@@ -137,6 +137,7 @@ def export(profile_file, output, fmt, dt_s, station_step_m, dwell_s, laps, launc
             run, own, names = _run_of_laps(profile_file, sp, sidecar, laps, launch_file,
                                            finish_file, (own, names))
         source = run.profile if run is not None else sp
+        _check_planned_time(source)
         trajectory, every = _sample(source, dt_s, station_step_m, dwell_s, own, names)
         if run is not None:
             from ..export_laps import with_laps
@@ -154,6 +155,16 @@ def export(profile_file, output, fmt, dt_s, station_step_m, dwell_s, laps, launc
         echo(line)
     echo(f"wrote  {output} ({kind.value}): {trajectory.n_samples} samples {every}, "
          f"total time {trajectory.total_time_s:.2f} s")
+
+
+def _check_planned_time(profile) -> None:
+    """Refuse a profile whose planned time is implausible before sampling it."""
+    from ..errors import SpeedFileError
+    from ..station_profile import as_station_profile, implausible_time
+
+    problem = implausible_time(as_station_profile(profile))
+    if problem is not None:
+        raise SpeedFileError(problem)
 
 
 def _check_start_time(start_time, total_time_s, profile_file) -> None:

@@ -96,6 +96,12 @@ def _run(profile_file, vehicle_file, tracker, dwell_s):
     sp, sidecar = read_profile_and_sidecar(
         profile_file, "the route name is taken from the file name and the vehicle's friction "
         "applies all along instead")
+    from ..errors import SpeedFileError
+    from ..station_profile import implausible_time
+
+    problem = implausible_time(sp)
+    if problem is not None:
+        raise SpeedFileError(problem)
     grip = None
     if sidecar is not None and sidecar.constraints.friction:
         grip = grip_along(sidecar.limits, sidecar.constraints.friction)
