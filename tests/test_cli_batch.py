@@ -198,7 +198,13 @@ def test_bad_invocations_exit_2_and_write_nothing(tmp_path, roads, case, message
 
 
 def test_an_unreachable_scheduler_exits_2_and_writes_nothing(tmp_path, roads):
+    import importlib
+
     import dask
+
+    # distributed's defaults loaded into dask's config before the context below, which would
+    # drop them again on leaving if distributed were first imported inside it
+    importlib.import_module("distributed.comm.addressing")
 
     out = tmp_path / "out"
     with dask.config.set({"distributed.comm.timeouts.connect": "2s"}):
@@ -206,4 +212,23 @@ def test_an_unreachable_scheduler_exits_2_and_writes_nothing(tmp_path, roads):
                        "tcp://127.0.0.1:9")          # the discard port: nothing listens
     assert result.exit_code == 2, result.output
     assert "--scheduler tcp://127.0.0.1:9: cannot connect" in result.output
+    assert not out.exists()
+
+
+@pytest.mark.parametrize("address, why", [
+    ("notanaddress", "missing port number"),
+    ("tcp://127.0.0.1", "missing port number"),
+    ("tcp://127.0.0.1:99999", "port 99999 is outside 1..65535"),
+    ("nosuchscheme://127.0.0.1:8786", "unknown address scheme"),
+])
+def test_a_malformed_scheduler_address_exits_2_and_writes_nothing(tmp_path, roads, address,
+                                                                  why):
+    out = tmp_path / "out"
+    result = batch("plan", network(tmp_path, roads[:1]), "-o", out, "--scheduler", address)
+    assert result.exit_code == 2, result.output
+    assert "Traceback" not in result.output and result.exception is None \
+        or isinstance(result.exception, SystemExit), result.exception
+    assert "'--scheduler'" in result.output and f"'{address}' is not a scheduler address" \
+        in result.output
+    assert why in result.output and "tcp://HOST:PORT" in result.output
     assert not out.exists()

@@ -136,6 +136,8 @@ def _run(command: str, common: dict, extra: dict) -> None:
     if common["scheduler"] and common["workers"]:
         raise click.UsageError("--workers sizes the local cluster; with --scheduler the "
                                "cluster's own workers run the roads: give one of them")
+    if common["scheduler"] is not None:
+        _check_scheduler(common["scheduler"])
     total = check_inputs(inputs, fields, common["layer"])
     _refuse_overlap(inputs, limits_file, outdir)
     from ..batch import BatchStore, run_batch
@@ -203,6 +205,23 @@ def _stop_on_sigterm():
     return lambda: signal.signal(signal.SIGTERM, previous)
 
 
+def _check_scheduler(address: str) -> None:
+    """Refuse a --scheduler that is not an address Dask can connect to (SCHEME://HOST:PORT)
+    before any input is read; whether a scheduler listens there is found on connecting."""
+    from distributed.comm.addressing import get_address_host_port
+
+    try:
+        _, port = get_address_host_port(address)
+        why = None if 0 < port < 65536 else f"port {port} is outside 1..65535"
+    except ValueError as exc:
+        why = str(exc)
+    if why is not None:
+        raise click.BadParameter(
+            f"'{address}' is not a scheduler address ({why}); give it as tcp://HOST:PORT, "
+            "e.g. tcp://10.0.0.5:8786, as the scheduler prints it when it starts",
+            param_hint="'--scheduler'")
+
+
 class _client:
     """The Dask client: connect to ``scheduler``, or start a local cluster of processes."""
 
@@ -220,7 +239,7 @@ class _client:
             try:
                 # the wait is Dask's distributed.comm.timeouts.connect (30 s by default)
                 self.client = Client(self.scheduler)
-            except OSError as exc:
+            except (OSError, ValueError) as exc:
                 from ..errors import BatchError
 
                 raise BatchError(f"--scheduler {self.scheduler}: cannot connect ({exc}); start "
