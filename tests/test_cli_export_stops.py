@@ -203,3 +203,46 @@ def test_a_start_time_whose_run_ends_just_inside_the_calendar_is_written(shuttle
     with out.open() as handle:
         last = list(csv.DictReader(handle))[-1]
     assert last["time_utc"].startswith("9999-12-31T")
+
+
+# -- names holding characters XML 1.0 forbids ---------------------------------------------------
+
+@pytest.fixture(scope="module")
+def control_named(tmp_path_factory):
+    """The shuttle planned with a stop named with a SOH, a NUL and a unit separator."""
+    folder = tmp_path_factory.mktemp("control")
+    limits = folder / "ctl.toml"
+    limits.write_text('[limits]\nmax_speed_mps = 8.0\n'
+                      '[[stop]]\nstation_m = 500.0\nname = "Gate\\u0001B\\u0000C\\u001fD"\n'
+                      'dwell_s = 5\n')
+    profile = folder / "ctl.csv"
+    result = run("plan", SHUTTLE, "-l", limits, "-o", profile)
+    assert result.exit_code == 0, result.output
+    return profile
+
+
+FORBIDDEN = [chr(c) for c in range(0x20) if chr(c) not in "\t\n\r"]
+
+
+@pytest.mark.parametrize("suffix", ["gpx", "geojson", "csv", "json"])
+def test_a_name_with_control_characters_is_written_readable(control_named, tmp_path, suffix):
+    out = tmp_path / f"t.{suffix}"
+    extra = ["--stop-points"] if suffix == "geojson" else []
+    result = run("export", control_named, "-o", out, *extra)
+    assert result.exit_code == 0, result.output
+    text = out.read_text(encoding="utf-8")
+    assert not [ch for ch in FORBIDDEN if ch in text]
+    # the name is kept, each forbidden character replaced by U+FFFD where it was (JSON could
+    # have escaped them as \u0001, but then a reader would get them back)
+    if suffix == "gpx":
+        names = [e.text for e in ET.parse(out).iter() if e.tag.endswith("}name")]
+        assert "Gate\ufffdB\ufffdC\ufffdD" in names
+    elif suffix == "csv":
+        with out.open(newline="", encoding="utf-8") as handle:
+            rows = list(csv.DictReader(handle))
+        assert "Gate\ufffdB\ufffdC\ufffdD" in {row["stop_name"] for row in rows}
+    else:
+        doc = json.loads(text)
+        found = json.dumps(doc, ensure_ascii=False)
+        assert "Gate\ufffdB\ufffdC\ufffdD" in found
+        assert not [ch for ch in FORBIDDEN if ch in found]

@@ -38,9 +38,26 @@ DEGREES = ".9f"
 QUOTED = "quoted-text"
 
 
+#: Characters XML 1.0 forbids in a document (the C0 controls but tab, line feed and carriage
+#: return; lone surrogates; U+FFFE and U+FFFF). A NUL also stops many CSV readers.
+_UNWRITABLE = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\ud800-\udfff\ufffe\uffff]")
+#: What an unwritable character becomes: the replacement character, so a reader sees that
+#: something was there.
+REPLACEMENT = "\ufffd"
+
+
+def printable(text: str) -> str:
+    """``text`` with every character XML 1.0 forbids replaced by U+FFFD (a name from a limits
+    file or a route holding a control character is written so that every reader can read the
+    file: GPX, CSV, JSON and GeoJSON alike)."""
+    return _UNWRITABLE.sub(REPLACEMENT, text)
+
+
 def quoted(text: str) -> str:
     """``text`` as one CSV cell (RFC 4180): in double quotes, inner quotes doubled, when it
-    holds a comma, a double quote or a line break; as it is otherwise."""
+    holds a comma, a double quote or a line break; as it is otherwise. Characters XML 1.0
+    forbids (a NUL, other control characters) become U+FFFD (:func:`printable`)."""
+    text = printable(text)
     if any(ch in text for ch in ',"\n\r'):
         return '"' + text.replace('"', '""') + '"'
     return text

@@ -66,7 +66,7 @@ import numpy as np
 
 from ..errors import OutputError
 from ..export import TRAJECTORY_COLUMNS, SamplingMode, Trajectory
-from ._format import (CURVATURE, DEGREES, METRES, QUOTED, RADIANS, format_column,
+from ._format import (CURVATURE, DEGREES, METRES, QUOTED, RADIANS, format_column, printable,
                       format_columns)
 from .atomic import write_text_atomic
 from .trajectory_format import FORMAT_BY_SUFFIX, TrajectoryFormat, format_from_suffix
@@ -136,6 +136,7 @@ def trajectory_text(trajectory: Trajectory, fmt: TrajectoryFormat,
         not finite (a defect: the samplers give finite values for the profiles readers accept).
     """
     _check_finite(trajectory)
+    trajectory = _printable_names(trajectory)
     from .trajectory_gpx import gpx_text
 
     fmt = TrajectoryFormat(fmt)
@@ -143,6 +144,22 @@ def trajectory_text(trajectory: Trajectory, fmt: TrajectoryFormat,
         return _geojson_text(trajectory, stop_points)
     return {TrajectoryFormat.CSV: _csv_text, TrajectoryFormat.JSON: _json_text,
             TrajectoryFormat.GPX: gpx_text}[fmt](trajectory)
+
+
+def _printable_names(trajectory: Trajectory) -> Trajectory:
+    """The trajectory with characters XML 1.0 forbids replaced in its route name, source and
+    stop names (:func:`~curvespeed.io._format.printable`): JSON could escape them, but a
+    reader of any format should get the same names."""
+    import dataclasses
+
+    def names(values):
+        return None if values is None else type(values)(printable(str(v)) for v in values)
+
+    stop_name = (None if trajectory.stop_name is None else
+                 np.array(names(trajectory.stop_name.tolist()), dtype=object))
+    return dataclasses.replace(
+        trajectory, name=printable(trajectory.name), source=printable(str(trajectory.source)),
+        stop_names=names(trajectory.stop_names), stop_name=stop_name)
 
 
 def write_trajectory_csv(trajectory: Trajectory, path: str | os.PathLike,

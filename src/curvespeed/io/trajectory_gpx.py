@@ -20,13 +20,20 @@ Latitude and longitude to 1e-9 degree, as the other formats.
 
 from __future__ import annotations
 
-from xml.sax.saxutils import escape
+from xml.sax.saxutils import escape as _escape
 
 import numpy as np
 
 from ..export import Trajectory
-from ._format import DEGREES, METRES, format_column
+from ._format import DEGREES, METRES, format_column, printable
 from .trajectory_time import absolute_times, utc_text
+
+
+def escape(text: str) -> str:
+    """``text`` for an XML element: markup escaped, characters XML 1.0 forbids replaced
+    (:func:`~curvespeed.io._format.printable`), so a name with a control character cannot make
+    the file unreadable."""
+    return _escape(printable(text))
 
 
 def gpx_text(trajectory: Trajectory) -> str:

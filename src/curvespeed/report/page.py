@@ -13,6 +13,7 @@ from __future__ import annotations
 import html
 import math
 
+from ..io._format import printable
 from .model import CAUTIONS, ReportCurve, ReportData
 from .svg import plan_svg, speed_svg, use_svg
 
@@ -92,7 +93,9 @@ VERDICT_TEXT = {"pass": "pass", "fail": "FAIL", "fails_on_bound": "FAIL (within 
 
 
 def _esc(text) -> str:
-    return html.escape(str(text), quote=True)
+    """``text`` for the page: markup escaped, characters XML forbids replaced (a control
+    character in a stop's or route's name)."""
+    return html.escape(printable(str(text)), quote=True)
 
 
 def _radius(c: ReportCurve) -> str:

@@ -12,6 +12,7 @@ import math
 
 import numpy as np
 
+from ..io._format import printable
 from .model import ReportData
 from .palette import BAND_ALPHA, LIGHT_GREY, ROLES, ZONE_ALPHA, curve_colour
 
@@ -20,7 +21,9 @@ PAD_LEFT, PAD_RIGHT, PAD_TOP, PAD_BOTTOM = 52, 14, 22, 34
 
 
 def _esc(text) -> str:
-    return html.escape(str(text), quote=True)
+    """``text`` for the page: markup escaped, characters XML forbids replaced (a control
+    character in a stop's or route's name)."""
+    return html.escape(printable(str(text)), quote=True)
 
 
 def _f(value: float) -> str:
