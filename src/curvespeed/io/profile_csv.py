@@ -46,6 +46,7 @@ from ..profile import Profile
 from ._format import format_columns
 from .atomic import write_text_atomic
 from .geometry_csv import geometry_columns
+from .profile_positions import check_positions
 from .table_csv import Table, read_table_csv
 
 if TYPE_CHECKING:
@@ -208,6 +209,7 @@ def read_station_profile(path: str | os.PathLike, name: str | None = None) -> St
                               **optional)
     if kinds is not None:
         _check_step_kinds(table, kinds, sp.speed_mps)
+    check_positions(sp)
     mismatch = planned_time_mismatch(sp)
     if mismatch is not None:
         k, gap = mismatch
