@@ -307,6 +307,17 @@ def _whole_ramp_reach(station_m, speed_mps, time_s) -> np.ndarray:
     return np.where(np.isfinite(relative), 2.0 * 3.0 * relative, 0.0)    # (a bad step: as read)
 
 
+def check_step_kind_column(table: Table, speed_mps: np.ndarray) -> None:
+    """The ``step_kind`` rules of :func:`read_station_profile` for any table with station and
+    speed rows (``check --speeds`` reads a profile too): every value a step kind, each suited
+    to its step's speeds, a timed one with a ``time_s`` column. Nothing to check without the
+    column."""
+    kinds = read_step_kinds(table)
+    if kinds is not None:
+        _time_coefs(table, kinds)
+        _check_step_kinds(table, kinds, speed_mps)
+
+
 def _check_step_kinds(table: Table, kinds: np.ndarray, speed_mps: np.ndarray) -> None:
     """Refuse a step kind next to rest on a step without exactly one end at rest, and
     ``linear_accel`` on a step with an end at rest (file, line, value)."""
@@ -329,6 +340,7 @@ def _check_step_kinds(table: Table, kinds: np.ndarray, speed_mps: np.ndarray) ->
 
 
 __all__ = ["KINEMATIC", "PROFILE_COLUMNS", "REQUIRED_PROFILE_COLUMNS", "StepKind",
-           "TIME_MISMATCH_REL", "TIME_MISMATCH_S", "profile_columns", "profile_csv_text",
+           "TIME_MISMATCH_REL", "TIME_MISMATCH_S", "check_step_kind_column", "profile_columns",
+           "profile_csv_text",
            "read_station_profile",
            "read_step_kinds", "step_kinds", "write_profile_csv"]

@@ -176,6 +176,9 @@ def _read_csv(path, geometry: Geometry) -> SpeedTrace:
     station, speed = table.require("station_m", "speed_mps", what="check --speeds")
     where = table.where
     check_stations_and_speeds(station, speed, source, where)
+    from .profile_csv import check_step_kind_column
+
+    check_step_kind_column(table, speed)            # as export reads the same file
     _check_same_route(table, station, geometry)
     first, last = float(station[0]), float(station[-1])
     _check_coverage(source, first, last, geometry, end_tolerance_m(geometry),
