@@ -30,6 +30,7 @@ def handle_errors(func):
 
     @functools.wraps(func)
     def wrapper(*args, **kwargs):
+        _refuse_empty_paths(kwargs)
         try:
             try:
                 func(*args, **kwargs)
@@ -49,6 +50,23 @@ def handle_errors(func):
             _fail(f"{where}: cannot be written ({os_reason(exc)})")
 
     return wrapper
+
+
+def _refuse_empty_paths(kwargs: dict) -> None:
+    """Refuse a file or folder given as the empty string (``-o ''``, a variable that was never
+    set), as a usage error naming the option, before anything is read: an empty name is no
+    file, and a command must not take it for "no such option given" and write nothing."""
+    ctx = click.get_current_context(silent=True)
+    if ctx is None:
+        return
+    for param in ctx.command.params:
+        if not isinstance(param.type, click.Path):
+            continue
+        value = kwargs.get(param.name)
+        values = value if isinstance(value, (tuple, list)) else (value,)
+        if any(isinstance(v, str) and v == "" for v in values):
+            raise click.BadParameter("an empty name is no file or folder; give its name",
+                                     ctx=ctx, param=param)
 
 
 def _fail(message: str) -> None:
