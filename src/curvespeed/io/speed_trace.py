@@ -51,7 +51,7 @@ import numpy as np
 from ..errors import CurvespeedWarning, SpeedFileError
 from ..export import check_stations_and_speeds
 from ..geometry import Geometry
-from .table_csv import read_table_csv
+from .table_csv import MAX_SPEED_MPS, read_table_csv
 
 #: Speeds file extensions (lower case) and the format each selects.
 SPEED_EXTENSIONS = {".csv": "csv", ".gpx": "gpx"}
@@ -415,6 +415,22 @@ def _project(x: float, y: float, j: int, geometry: Geometry, m: int) -> float:
     return best_s
 
 
+def _check_plausible_speed(source: str, speed: np.ndarray, when: np.ndarray, t: np.ndarray,
+                           labels) -> None:
+    """Refuse a track whose speeds (derived from its time stamps) exceed what a speeds CSV may
+    hold (:data:`~curvespeed.io.table_csv.MAX_SPEED_MPS`), naming the fix nearest the fastest
+    moment and its time step: time stamps in the wrong unit or resolution, most likely."""
+    k = int(np.argmax(speed))
+    if not speed[k] > MAX_SPEED_MPS:
+        return
+    i = int(np.clip(np.searchsorted(t, when[k]), 1, t.size - 1))
+    raise SpeedFileError(
+        f"{source}: {labels[i]}: the track's speed derived from its time stamps reaches "
+        f"{speed[k]:.0f} m/s there ({t[i] - t[i - 1]:.3g} s after {labels[i - 1]}), above "
+        f"{MAX_SPEED_MPS:g} m/s: no road vehicle is that fast; check the track's time stamps "
+        "(their unit and resolution), or give the speeds as a CSV with station_m,speed_mps")
+
+
 def _speeds_from_track(source: str, t: np.ndarray, station: np.ndarray, geometry: Geometry,
                        noise_m: float, labels) -> SpeedTrace:
     """Smooth station over time, differentiate, and read speed at the route's stations."""
@@ -431,6 +447,7 @@ def _speeds_from_track(source: str, t: np.ndarray, station: np.ndarray, geometry
     vg = np.maximum(rate(tg), 0.0)
     sg, first_at = np.unique(sg, return_index=True)   # arrival at each station
     vg = vg[first_at]
+    _check_plausible_speed(source, vg, tg[first_at], t, labels)
     first, last = float(sg[0]), float(sg[-1])
     length = geometry.length_m
     tol = end_tolerance_m(geometry, noise_m)
