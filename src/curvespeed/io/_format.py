@@ -53,6 +53,15 @@ def printable(text: str) -> str:
     return _UNWRITABLE.sub(REPLACEMENT, text)
 
 
+def listed(names, limit: int = 12, quote: bool = False) -> str:
+    """``a, b, c`` for a message, at most ``limit`` names and then ``and N more``: a header of
+    200,000 columns must not make a message of megabytes."""
+    names = list(names)
+    shown = [repr(n) if quote else str(n) for n in names[:limit]]
+    more = len(names) - len(shown)
+    return ", ".join(shown) + (f" and {more} more" if more > 0 else "")
+
+
 def quoted(text: str) -> str:
     """``text`` as one CSV cell (RFC 4180): in double quotes, inner quotes doubled, when it
     holds a comma, a double quote or a line break; as it is otherwise. Characters XML 1.0

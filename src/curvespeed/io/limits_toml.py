@@ -85,7 +85,9 @@ def _unknown_key(path: Path, table: str, key: str, allowed) -> LimitsError:
             break
     close = difflib.get_close_matches(key, list(allowed), n=1)
     suggestion = f"; did you mean '{close[0]}'?" if close else ""
-    return LimitsError(f"{path}: [{table}] unknown key '{key}'{hint}{suggestion} "
+    # a sentence of its own: after the question, or after the key where there is none
+    stop = " " if suggestion else ". "
+    return LimitsError(f"{path}: [{table}] unknown key '{key}'{hint}{suggestion}{stop}"
                        f"Accepted keys: {', '.join(allowed)}")
 
 

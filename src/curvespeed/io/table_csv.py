@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import os
 import warnings
+from collections import Counter
 from dataclasses import dataclass
 
 import numpy as np
@@ -26,6 +27,7 @@ from ..errors import CurvespeedWarning, SpeedFileError
 from ..route import MAX_COORDINATE_M, MAX_ELEVATION_M
 from ._common import (cell_text, decimal_mark_problem, detect_separator, number_problem,
                       parse_column, read_text, separator_warning, split_lines)
+from ._format import listed
 
 #: Columns kept as text rather than parsed as numbers.
 TEXT_COLUMNS = frozenset({"binding", "step_kind"})
@@ -96,7 +98,7 @@ class Table:
         if missing:
             raise SpeedFileError(
                 f"{self.source}: missing column(s) {', '.join(missing)} needed by {what}; "
-                f"the file has {', '.join(self.columns) or 'no columns'}")
+                f"the file has {listed(self.columns) or 'no columns'}")
         return [self.columns[n] for n in names]
 
 
@@ -118,9 +120,9 @@ def read_table_csv(path: str | os.PathLike, min_rows: int = 2) -> Table:
             sep = detect_separator(line)
             header = [c.strip().lower() for c in line.split(sep)]
             header_line = number
-            repeated = sorted({c for c in header if header.count(c) > 1})
+            repeated = sorted(c for c, n in Counter(header).items() if n > 1)
             if repeated:
-                raise SpeedFileError(f"{source}: line {number}: column {', '.join(repeated)} "
+                raise SpeedFileError(f"{source}: line {number}: column {listed(repeated)} "
                                      "appears more than once in the header; keep one")
             continue
         cells = [c.strip() for c in line.split(sep)]
