@@ -69,7 +69,7 @@ def read_route(path: str | os.PathLike) -> Route:
         ext = f"extension '{p.suffix}'" if p.suffix else "no extension"
         raise RouteFormatError(
             f"{source}: {ext} is not a route format curvespeed reads; use one of "
-            f"{', '.join(ROUTE_EXTENSIONS)}")
+            f"{', '.join(ROUTE_EXTENSIONS)}, or .xodr (OpenDRIVE, read by the command line)")
     from ._common import check_text, decode_utf8, read_bytes
 
     data = read_bytes(p, source)

@@ -31,6 +31,7 @@ from ._common import (cell_text, decimal_mark_problem, detect_separator, fail,
                       latlon_range_problem, looks_projected, number_problem, parse_column,
                       parse_number, project_latlon, separator_warning, split_lines,
                       swapped_would_fit)
+from ._format import listed
 
 METRIC_COLUMNS = ("x_m", "y_m", "z_m")
 GEOGRAPHIC_COLUMNS = ("lat", "lon", "ele_m")
@@ -180,7 +181,7 @@ def _read_header(names: list[str], sep: str, source: str, where: str) -> dict[st
         raise fail(source, where, "header has both x_m,y_m and lat,lon; keep one pair: "
                                   f"{ACCEPTED_FORMS}")
     if not (metric or geographic):
-        raise fail(source, where, f"header ({', '.join(clean)}) has neither x_m,y_m nor "
+        raise fail(source, where, f"header ({listed(clean)}) has neither x_m,y_m nor "
                                   f"lat,lon; accepted forms: {ACCEPTED_FORMS}")
     allowed = GEOGRAPHIC_COLUMNS if geographic else METRIC_COLUMNS
     extra = [n for n in clean if n not in allowed]
@@ -189,7 +190,7 @@ def _read_header(names: list[str], sep: str, source: str, where: str) -> dict[st
                  if _LIKELY_MEANT.get(n) in allowed]
         hint = f" (rename {', '.join(hints)})" if hints else ""
         form = "lat,lon[,ele_m]" if geographic else "x_m,y_m[,z_m]"
-        raise fail(source, where, f"unknown column(s) {', '.join(repr(n) for n in extra)}"
+        raise fail(source, where, f"unknown column(s) {listed(extra, quote=True)}"
                                   f"{hint}; with this header the accepted columns are {form}; "
                                   "remove the others")
     return columns
