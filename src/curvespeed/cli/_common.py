@@ -69,6 +69,36 @@ def _refuse_empty_paths(kwargs: dict) -> None:
                                      ctx=ctx, param=param)
 
 
+#: Extensions of the files curvespeed writes, by what they hold.
+WRITTEN_KINDS = {".csv": "a CSV table", ".json": "JSON", ".geojson": "GeoJSON", ".gpx": "GPX",
+                 ".png": "a PNG figure", ".svg": "an SVG figure", ".pdf": "a PDF figure",
+                 ".html": "an HTML page", ".htm": "an HTML page", ".xodr": "OpenDRIVE",
+                 ".toml": "TOML"}
+
+
+def check_extension(path, option: str, writes: str, suffixes: tuple[str, ...]) -> None:
+    """Refuse an output ``path`` whose extension names another format than the one the
+    option writes (``plan -o p.gpx`` wrote a CSV under a GPX name), as the commands that
+    choose the format by extension do; an extension curvespeed never writes is left alone."""
+    from pathlib import Path
+
+    suffix = Path(path).suffix.lower()
+    if suffix in WRITTEN_KINDS and suffix not in suffixes:
+        raise click.BadParameter(
+            f"'{path}' ends in {suffix}, which names {WRITTEN_KINDS[suffix]}, but this "
+            f"option writes {writes}; name the file {Path(path).stem}{suffixes[0]}",
+            param_hint="'-o' / '--output'" if option == "-o" else f"'{option}'")
+
+
+def check_extensions(*outputs) -> None:
+    """:func:`check_extension` for each ``(path, option, writes, suffixes)`` given a path; called
+    once the outputs passed :class:`~curvespeed.io.atomic.OutputFiles`' own check, so an
+    output naming an input is refused as that first."""
+    for path, option, writes, suffixes in outputs:
+        if path:
+            check_extension(path, option, writes, suffixes)
+
+
 def _fail(message: str) -> None:
     click.echo(f"error: {message}", err=True)
     sys.exit(EXIT_BAD_INPUT)

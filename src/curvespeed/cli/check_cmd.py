@@ -96,6 +96,11 @@ def check(route_file, limits_file, speeds_file, speed_kmh, zones_only, design_sp
         raise LimitsError(f"--curve-radius {curve_radius_m:g}: give a positive radius in metres")
 
     with outputs:               # every output checked here; written together at the end
+        from ._common import check_extensions
+
+        check_extensions((json_file, "--json", "JSON", (".json",)),
+                         (csv_file, "--csv", "a CSV table", (".csv",)),
+                         (report_file, "--report", "an HTML page", (".html", ".htm")))
         limits, constraints, origin, geo = limits_and_geometry(
             route_file, limits_file, overrides,
             (zones, (), superelevations, None, None),

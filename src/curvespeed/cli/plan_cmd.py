@@ -5,8 +5,8 @@ from __future__ import annotations
 import click
 
 from ..solvers import QPBackend, SolverKind
-from ._common import (FINITE, echo, geometry_options, handle_errors, radius_cell,
-                      register_drives)
+from ._common import (FINITE, check_extensions, echo, geometry_options, handle_errors,
+                      radius_cell, register_drives)
 from ._limits import constraint_options, limit_override_options, limits_and_geometry
 
 
@@ -76,6 +76,9 @@ def plan(route_file, limits_file, output, meta_file, solver, qp_backend, comfort
     outputs.add_input(limits_file, "the limits file (-l/--limits)")
     meta_path = _register_outputs(outputs, output, meta_file, plot_file, report_file)
     with outputs:               # every output checked here; written together at the end
+        check_extensions((output, "-o", "the profile as CSV", (".csv",)),
+                         (meta_file, "--meta", "the sidecar as JSON", (".json",)),
+                         (report_file, "--report", "an HTML page", (".html", ".htm")))
         route_args = (spacing_m, position_noise_m, elevation_noise_m, use_elevation, closed,
                       part, drives, all_tracks, roads, lane)
         limits, constraints, origin, geo = limits_and_geometry(

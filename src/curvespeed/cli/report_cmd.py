@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from ._common import echo, handle_errors, read_profile_with_sidecar
+from ._common import check_extensions, echo, handle_errors, read_profile_with_sidecar
 
 #: A profile and a check describe the same route when their lengths agree within this share or
 #: this many metres, whichever is larger: both come from one route file, so they differ only
@@ -44,6 +44,7 @@ def report(profile_file, check_file, output, meta_file, force):
     outputs.add_input(default_meta_path(profile_file), "the profile's sidecar")
     outputs.add_output(output, "-o/--output")
     with outputs:
+        check_extensions((output, "-o", "an HTML page", (".html", ".htm")))
         check = read_check_json(check_file)
         sp, sidecar, sidecar_path = read_profile_with_sidecar(profile_file, meta_file)
         s = np.asarray(check["per_station"]["station_m"], dtype=float)

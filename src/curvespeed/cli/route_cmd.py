@@ -28,6 +28,10 @@ def route(route_file, spacing_m, position_noise_m, elevation_noise_m, use_elevat
     if output:
         outputs.add_output(output, "-o/--output")
     with outputs:               # the output checked here; written at the end
+        if output:              # after the check that it names no input (a .gpx drive)
+            from ._common import check_extension
+
+            check_extension(output, "-o", "the resampled route as CSV", (".csv",))
         rt, geo = load_geometry(route_file, spacing_m, position_noise_m, elevation_noise_m,
                                 use_elevation, closed, part, drives, all_tracks, roads,
                                 lane)
