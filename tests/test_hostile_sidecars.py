@@ -34,7 +34,7 @@ BROKEN = {
     "stop before the start": ({"constraints": _stop(station_m=-100.0)},
                               "stop at station -100 m lies outside the route"),
     "negative dwell": ({"constraints": _stop(dwell_s=-5.0)},
-                       "dwell_s must be zero or a positive number of seconds, got -5"),
+                       "dwell_s = -5 is outside 0..3600 s: a dwell is how long the vehicle stands there"),
     "negative top speed": ({"limits": {"max_speed_mps": -5.0}},
                            "max_speed_mps must be positive, got -5"),
     "negative friction": ({"constraints": {"friction": [

@@ -60,8 +60,10 @@ def validate_constraints(rc: RouteConstraints, length_m: float, closed: bool) ->
                               f"(0..{last} m); check its station against the route summary")
         if s.dwell_s is not None and not (math.isfinite(s.dwell_s)
                                           and 0.0 <= s.dwell_s <= MAX_DWELL_S):
+            why = (DWELL_WHY if s.dwell_s > MAX_DWELL_S
+                   else "a dwell is how long the vehicle stands there: zero or positive")
             raise LimitsError(f"{here(s)}stop at station {s.station_m:g} m: dwell_s = "
-                              f"{s.dwell_s:g} is outside 0..{MAX_DWELL_S:g} s: {DWELL_WHY}")
+                              f"{s.dwell_s:g} is outside 0..{MAX_DWELL_S:g} s: {why}")
     for e in rc.superelevation:
         if not (math.isfinite(e.start_m) and math.isfinite(e.end_m) and e.end_m > e.start_m):
             raise LimitsError(f"{here(e)}superelevation {e.start_m:g}..{e.end_m:g} m: end must be "

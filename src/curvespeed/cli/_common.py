@@ -444,7 +444,8 @@ def fitting_sidecar(sidecar, sp, instead: str, named: bool = False):
     import warnings
 
     from ..errors import CurvespeedWarning, SpeedFileError
-    from ..limits import validate_constraints, validate_limits
+    from ..limits import validate_limits
+    from ..route_checks import validate_constraints
 
     try:
         with warnings.catch_warnings():

@@ -186,7 +186,7 @@ def report_html(data: ReportData) -> str:
               "advisory speed on the curvature estimate; failing curves are dashed.</figcaption>"
               "</figure></section>",
               '<section class="speed"><h2>Speed along the route</h2><figure>', speed_svg(data),
-              _legend([(f"background:#0072B2", "speed"),
+              _legend([("background:#0072B2", "speed"),
                        ("background:#fff;border:1px dashed #6E6E6E", "speed ceiling"),
                        ("background:#56B4E9;opacity:.5", "curve (numbered)"),
                        *[(style, text) for verdict, style, text in (
