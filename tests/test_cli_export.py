@@ -250,7 +250,7 @@ def edit_profile(path, tmp_path, line: int, column: str, value: str):
     (3, "speed_mps", "0.0", "line 2 (station 0.0 m): speed is zero here and at the next"),
     (50, "x_m", "abc", "line 50: column 'x_m' value 'abc' is not a number"),
     (40, "step_kind", "cubic", "line 40: column 'step_kind' value 'cubic' is not a step kind; "
-                               "use constant_accel, jerk_ramp, linear_accel or constant_jerk"),
+                               "use constant_accel, jerk_ramp, linear_accel, accel_turn or constant_jerk"),
     (40, "step_kind", "", "line 40: column 'step_kind' value '' is not a step kind"),
     (40, "step_kind", "constant_jerk", "line 40: column 'step_kind' value 'constant_jerk' is "
                                        "allowed only on a step with exactly one end at rest"),
@@ -413,22 +413,23 @@ def test_export_drives_a_launch_ramp_at_its_jerk(planned_slow_launch, tmp_path):
     cols = read_table_csv(profile).columns
     kinds = cols["step_kind"][:-1]
     # the steps of the ramp after the one leaving rest: wholly inside it to station 16, then the
-    # step in which it ends (16.7 m) and the move turns; the same backwards into the stop
+    # step in which it ends (16.7 m) and the move turns, driven through its peak (accel_turn);
+    # the same backwards into the stop
     linear = np.flatnonzero(kinds == "linear_accel")
     assert kinds[0] == kinds[-1] == "jerk_ramp"
-    assert linear.tolist() == list(range(1, 17)) + list(range(183, 199))
+    assert linear.tolist() == list(range(1, 16)) + list(range(184, 199))
+    assert np.flatnonzero(kinds == "accel_turn").tolist() == [16, 183]
     # each is driven at constant jerk: read back from the file's stations, speeds and times
     # (9 decimals), the jerk of a step wholly inside the ramp is the bound the plan rode (the
     # plan's speeds are the ramp's, docs/method.md; measured within 4e-5 of it, the rounding
     # of the times: the jerk is 12 (T v - ds) / T^3, a difference of 3e-4 m at T = 0.2 s), and
-    # the step in which the move turns is driven below it
+    # the step in which the move turns rises at it to the peak and falls at it after
     sp = read_station_profile(profile)
     ds = np.diff(sp.station_m)[linear]
     v0, v1 = sp.speed_mps[linear], sp.speed_mps[linear + 1]
     a0, jerk = rest_step.linear_accel_step(ds, v0, v1, sp.step_time_s[linear])
-    inside = np.r_[0:15, 17:32]
-    np.testing.assert_allclose(np.abs(jerk[inside]), 0.5, rtol=2e-4)
-    assert np.all(np.abs(jerk[[15, 16]]) < 0.5)
+    np.testing.assert_allclose(np.abs(jerk), 0.5, rtol=2e-4)
+    np.testing.assert_allclose(sp.turn_shapes.jerk[[16, 183]], 0.5, rtol=2e-4)
     # one step's end acceleration is the next one's start (the motion is a ramp, not a
     # staircase, whose steps differ by 0.06-0.3 m/s^2 here): measured within 1.1e-6 m/s^2
     launch = linear[:15]
@@ -445,19 +446,46 @@ def test_export_drives_a_launch_ramp_at_its_jerk(planned_slow_launch, tmp_path):
     rate = np.diff(a)[same] / np.diff(t)[same]
     assert same.sum() > 300                               # 3.5 s of ramp
     np.testing.assert_allclose(rate, 0.5, rtol=5e-3)        # within each step: the ramp
+    # on through the turn: the ramp's acceleration continued across station 16 (no jump), up
+    # at the bound to the peak and down at it after; the samples' rates within 5e-3 of it
+    # (trajectory accelerations are written to 1e-6 m/s^2, 1e-4 m/s^3 over 0.01 s)
+    turn = (step[:-1] >= 15) & (step[1:] <= 16) & (step[1:] >= 15)
+    rate = np.diff(a)[turn] / np.diff(t)[turn]
+    assert turn.sum() > 20 and np.all(np.abs(rate) <= 0.5 * (1 + 5e-3))   # 2 x 0.12 s
+    assert rate.max() > 0.5 * (1 - 5e-3) and rate.min() < -0.5 * (1 - 5e-3)
+
+
+def _export_refuses(bad, tmp_path, message: str) -> None:
+    """``export`` of the edited profile ``bad`` exits 2 saying ``message`` and writes nothing."""
+    result = run(export, bad, "-o", tmp_path / "t.csv")
+    assert result.exit_code == 2 and message in result.output, result.output
+    assert not (tmp_path / "t.csv").exists()
+
+
+def test_an_accel_turn_step_continues_a_ramp_and_fits_its_row(planned_slow_launch, tmp_path):
+    _, profile = planned_slow_launch
+    # line k + 2 holds step k: a constant step mid-route has no ramp's step next to it
+    _export_refuses(edit_profile(profile, tmp_path, 102, "step_kind", "accel_turn"), tmp_path,
+                    "line 102: column 'step_kind' value 'accel_turn' needs the step before it "
+                    "to be a launch's ramp")
+    _export_refuses(edit_profile(profile, tmp_path, 2, "step_kind", "accel_turn"), tmp_path,
+                    "line 2: column 'step_kind' value 'accel_turn' is allowed only on a step "
+                    "with neither end at rest")
+    # the turn's row with its time edited 5 % longer: no motion from the ramp's end through
+    # one turn at any jerk covers the step so
+    cols = read_table_csv(profile).columns
+    slow = cols["time_s"][17] + 0.05 * (cols["time_s"][17] - cols["time_s"][16])
+    _export_refuses(edit_profile(profile, tmp_path, 19, "time_s", f"{slow:.9f}"), tmp_path,
+                    "line 18: column 'step_kind' value 'accel_turn'")
 
 
 def test_linear_accel_steps_must_be_away_from_rest_and_timed(planned_slow_launch, tmp_path):
     _, profile = planned_slow_launch
-    on_rest = edit_profile(profile, tmp_path, 2, "step_kind", "linear_accel")
-    result = run(export, on_rest, "-o", tmp_path / "t.csv")
-    assert result.exit_code == 2
-    assert ("line 2: column 'step_kind' value 'linear_accel' is allowed only on a step with "
-            "neither end at rest" in result.output)
-    no_time = without_column(profile, "time_s", tmp_path / "no_time.csv")
-    result = run(export, no_time, "-o", tmp_path / "t.csv")
-    assert result.exit_code == 2 and "needs the time_s column" in result.output
-    assert not (tmp_path / "t.csv").exists()
+    _export_refuses(edit_profile(profile, tmp_path, 2, "step_kind", "linear_accel"), tmp_path,
+                    "line 2: column 'step_kind' value 'linear_accel' is allowed only on a step "
+                    "with neither end at rest")
+    _export_refuses(without_column(profile, "time_s", tmp_path / "no_time.csv"), tmp_path,
+                    "needs the time_s column")
 
 
 def test_profile_without_step_kind_exports_as_before(planned_with_stop, tmp_path):

@@ -75,7 +75,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import rest_step
+from . import rest_step, turn_step
 from .export_shape import elevation_at, hermite_position, interpolate_latlon, stop_names_at
 from .station_profile import (RAMP_TIME_EXCESS, StationProfile, as_station_profile,
                               check_stations_and_speeds, detect_rest_steps,
@@ -420,6 +420,11 @@ def _state_at_time(sp: StationProfile, k, tau):
                                                        T[linear], tau[linear])
         d, v, acc = d.copy(), v.copy(), np.broadcast_to(acc, d.shape).copy()
         d[linear], v[linear], acc[linear] = d_l, v_l, a_l
+        turn = _turns_at(sp, k)
+        if turn is not None:
+            shape, on = turn
+            d[on], v[on], acc[on] = turn_step.driven_state_at_time(
+                shape, k[on], ds[on], v0[on], v1[on], T[on], tau[on])
     at_end = tau >= T
     d = np.clip(np.where(at_end, ds, d), 0.0, ds)
     v = np.where(at_end, v1, np.maximum(v, 0.0))
@@ -452,7 +457,20 @@ def _state_at_distance(sp: StationProfile, k, d):
         _, v_l, a_l = rest_step.linear_state_at_time(*args, t_l)
         tau, v, acc = tau.copy(), v.copy(), np.broadcast_to(acc, tau.shape).copy()
         tau[linear], v[linear], acc[linear] = t_l, v_l, a_l
+        turn = _turns_at(sp, k)
+        if turn is not None:
+            shape, on = turn
+            tau[on], v[on], acc[on] = turn_step.driven_time_at_distance(
+                shape, k[on], ds[on], v0[on], v1[on], T[on], d[on])
     return tau, v, np.asarray(acc, dtype=float)
+
+
+def _turns_at(sp: StationProfile, k):
+    """``(shapes, mask)`` of the turn steps among steps ``k`` (:mod:`curvespeed.turn_step`),
+    or None where there are none."""
+    if sp.turn_step is None or not sp.turn_step[k].any():
+        return None
+    return sp.turn_shapes, sp.turn_step[k]
 
 
 def _build(sp: StationProfile, k, d, t, v, accel, mode, interval, dwell_s, total,

@@ -138,6 +138,9 @@ def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
     tighter = cap[moving] > b_ramp
     cap[moving[tighter]] = b_ramp[tighter]
     source[moving[tighter]] = "jerk_launch"
+    for node, b_turn in ({} if shaped is None else shaped.turn_caps).items():
+        if cap[node] > b_turn:      # the motion through a turn caps the step's far node
+            cap[node], source[node] = b_turn, "jerk_launch"
     if problem.closed and cap[-1] != cap[0]:      # the last node is the first
         k = 0 if cap[0] < cap[-1] else -1
         cap[0] = cap[-1] = cap[k]
@@ -146,7 +149,8 @@ def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
     node_scale = None if shaped is None else scale_for_bases(problem, terms, shaped.bases)
     return replace(problem, time_coef=time_coef, accel_factor_start=f_start,
                    accel_factor_end=f_end, rest_u=u, cap_b=cap, cap_source=source,
-                   jerk_terms=scaled_terms(terms, node_scale), jerk_node_scale=node_scale)
+                   jerk_terms=scaled_terms(terms, node_scale), jerk_node_scale=node_scale,
+                   turn_step=None if shaped is None or not shaped.turn.any() else shaped.turn)
 
 
 def _continuing_ramps(problem: SpeedProblem, rest: np.ndarray, k: np.ndarray, out: np.ndarray,

@@ -34,12 +34,16 @@ class LaunchSteps:
     acceleration factor at the far node from rest of each step of a ramp (a launch's step's
     last node, a stop's step's first node; NaN elsewhere); and the time base of each node of a
     ramp with the speeds of the motion there (node -> (base, speeds of the node's previous, own
-    and next node))."""
+    and next node)); which steps are the step in which a move turns, its peak inside it
+    (:mod:`curvespeed.turn_step` drives it), and the squared speed the motion has at the far
+    node of each (node -> b), which caps it."""
 
     time_factor: np.ndarray
     f_start: np.ndarray
     f_end: np.ndarray
     bases: dict
+    turn: np.ndarray
+    turn_caps: dict
 
 
 def launch_steps(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray,
@@ -63,6 +67,16 @@ def launch_steps(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray,
       changes the problem continuously.
     * A node's time base is the motion's time between the points at which the steps on either
       side take their accelerations (:func:`scale_for_bases` sizes the node's terms to it).
+    * The step in which a move turns, its peak inside it, is driven as the motion through the
+      peak (the profile's ``accel_turn`` step, :mod:`curvespeed.turn_step`): from the
+      acceleration the ramp's step before it ends with, at ``+J`` to the peak and ``-J`` after
+      it. Driven at constant jerk instead (``linear_accel``), it ended above the motion (its
+      jerk averages the two), and the change to the next step's acceleration read up to 1.84 of
+      the bound on the 1,728 moves of ``benchmarks/exact_roads.py --wide``. Its far node is
+      capped at the motion's speed there (``turn_caps``; the cap source ``jerk_launch``, like the
+      ramp's own cap on the step next to rest): the node's jerk rows let the plan pass it by
+      0.06 % (18 m at 0.5 m/s^3), and the motion through the turn that joins those speeds in
+      the step's time turned at 1.033 of the bound.
     * Only the steps up to the first whose far node allows less than the motion's acceleration
       there (at the motion's speed; a curve, say) are planned so: past it the plan is held down
       by that limit, not driven along the ramp. Where two ramps overlap the larger time factor
@@ -72,6 +86,8 @@ def launch_steps(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray,
     n_steps, nv = problem.n_nodes - 1, problem.n_nodes - (1 if problem.closed else 0)
     factor = np.full(n_steps, np.nan)
     f_start, f_end = np.full(n_steps, np.nan), np.full(n_steps, np.nan)
+    turn = np.zeros(n_steps, dtype=bool)
+    turn_caps: dict = {}
     bases: dict = {}
     for k, out, length, cap in zip(steps, leaving, ramp_m, accel):
         launch = _launch_within(problem, int(k), bool(out), float(length), float(cap))
@@ -94,6 +110,10 @@ def launch_steps(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray,
         i, at = i[:n_ok], at[:n_ok] % n_steps
         fac = np.diff(t)[i] * (v[i] + v[i + 1]) / (2.0 * ds)
         factor[at] = np.where(np.isnan(factor[at]), fac, np.maximum(factor[at], fac))
+        if 0.0 < launch.peak_share < 1.0 and np.any(i == last):
+            turn[at[i == last]] = True
+            node = (k + last + 1) if out else (k - last)
+            turn_caps[int(node % nv)] = float(v[last + 1] ** 2)
         (f_end if out else f_start)[at] = a_ref[i] * 2.0 * ds / (v[i + 1] ** 2 - v[i] ** 2)
         for j in range(1, n_ok + 2):                          # the nodes, from rest
             node = (k + j) if out else (k + 1 - j)
@@ -101,7 +121,8 @@ def launch_steps(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray,
                 speeds = v[j - 1: j + 2] if out else v[j - 1: j + 2][::-1]
                 before = t[1] if j == 1 else ref[j - 1]      # the step next to rest: its end
                 bases[int(node % nv)] = (mean[j] - before, speeds)
-    return LaunchSteps(np.where(np.isnan(factor), 1.0, factor), f_start, f_end, bases)
+    return LaunchSteps(np.where(np.isnan(factor), 1.0, factor), f_start, f_end, bases, turn,
+                       turn_caps)
 
 
 def closed_form_launches(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray,

@@ -106,20 +106,65 @@ def plan_profile(geometry: Geometry, limits: Limits,
     v_env = np.sqrt(np.maximum(env_b, 0.0))
     envelope_time = float(np.sum(2.0 * problem.ds / (v_env[:-1] + v_env[1:])))
     v = d["speed_mps"]
+    rest_coef = np.where(np.isnan(problem.rest_u), 0.0, problem.time_coef)
+    model_linear = linear_time_coef(problem)
+    linear, turn = _turn_steps(problem, v, rest_coef, model_linear)
+    time_s = d["time_s"]
+    if turn is not None:    # the turn steps' time as driven; every other step's is the model's
+        step_s = np.diff(problem.station_m) / (v[:-1] + v[1:])
+        time_s = time_s + np.concatenate(([0.0], np.cumsum((linear - model_linear) * step_s)))
     return Profile(
         geometry=geometry,
         speed_mps=v,
         step_accel_mps2=d["step_accel_mps2"],
-        rest_time_coef=np.where(np.isnan(problem.rest_u), 0.0, problem.time_coef),
+        rest_time_coef=rest_coef,
         accel_mps2=d["accel_mps2"],
         jerk_mps3=d["jerk_mps3"],
         lat_accel_mps2=geometry.curvature_1pm * v * v,
-        time_s=d["time_s"],
+        time_s=time_s,
         limit_speed_mps=np.sqrt(result.ceiling_b),
         binding=check.binding,
         solve=result,
         usage=check.peak,
         extremes=check.extremes,
         envelope_time_s=envelope_time,
-        linear_time_coef=linear_time_coef(problem),
+        linear_time_coef=linear,
+        turn_step=turn,
     )
+
+
+def _turn_steps(problem, speed, rest_coef, linear) -> tuple[np.ndarray, np.ndarray | None]:
+    """The steps in which a launch or a stop turns (:attr:`SpeedProblem.turn_step`), driven
+    from the acceleration the ramp's step next to them ends with, at exactly the jerk bound up
+    to the turn and down after it (:func:`curvespeed.turn_step.timed_at_jerk`):
+    ``(linear_time_coef, turn)``, the turn steps' time coefficients set to that motion's time
+    (``turn`` None if none).
+
+    The model times the step as the double-S motion does between the motion's own speeds, and
+    the planned speeds follow that motion to about 1e-6; but the motion through the turn is a
+    third-order function of them (its jerk ``D2 / T^3``, with ``D2`` the step's distance less
+    what its start's speed and acceleration cover): fitted to the model's time it turned at
+    up to 1.005 of the bound on the speeds of a 200 m move, and a file read back may move it
+    further. At the bound itself it takes a time of its own (the 1,728 moves of
+    ``benchmarks/exact_roads.py --wide`` changed by at most 0.021 % with it and the cap on the
+    step's far node, :func:`curvespeed.launch_steps.launch_steps`). A step whose speeds no such motion joins (a plan
+    held off the ramp's motion there: a curve, say) stays a constant-jerk step."""
+    if problem.turn_step is None:
+        return linear, None
+    from . import turn_step
+
+    turn = problem.turn_step & (linear > 0.0)
+    if not turn.any():
+        return linear, None
+    shapes = turn_step.shapes(problem.station_m, speed, rest_coef, linear, turn)
+    k = np.flatnonzero(turn & shapes.ok)
+    back = shapes.backwards[k]
+    T, _, ok = turn_step.timed_at_jerk(problem.ds, np.where(back, speed[k + 1], speed[k]),
+                                       np.where(back, speed[k], speed[k + 1]), shapes.a0[k],
+                                       problem.limits.max_jerk_mps3)
+    k, T = k[ok], T[ok]
+    if not k.size:
+        return linear, None
+    linear, turn = linear.copy(), np.zeros(linear.size, dtype=bool)
+    linear[k], turn[k] = T * (speed[k] + speed[k + 1]) / problem.ds, True
+    return linear, turn

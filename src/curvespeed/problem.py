@@ -172,6 +172,10 @@ class SpeedProblem:
         :func:`curvespeed.jerk_model.jerk_time_terms`'s: the time base of the nodes of a launch
         planned as its ramp (:func:`curvespeed.launch_steps.launch_steps`), so that a
         receding-horizon window's terms carry it too. None: none (all 1).
+    turn_step : ndarray of bool, shape (n,), or None
+        The steps in which a launch planned as its ramp (or a stop) turns, its peak inside the
+        step: timed as the double-S motion through the peak, and driven so
+        (:mod:`curvespeed.turn_step`, the profile's ``accel_turn`` step). None: none.
     mu_long, mu_lat : ndarray, shape (n+1,)
         Tyre-road friction along and across the path at each node: the route's
         (``Limits.mu_long``, ``Limits.mu_lat``) or a friction section's
@@ -236,6 +240,7 @@ class SpeedProblem:
     end_reserve: tuple | None = None
     rate_spread: tuple | None = None
     jerk_node_scale: np.ndarray | None = None
+    turn_step: np.ndarray | None = None
 
     @property
     def n_nodes(self) -> int:

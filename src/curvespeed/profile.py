@@ -65,6 +65,10 @@ class Profile:
         driven at constant jerk, the ``c`` of its time ``c ds / (v[k] + v[k+1])``, near 2
         (:func:`curvespeed.launch_steps.launch_steps`); 0 for every other step.
         None: no such step.
+    turn_step : ndarray of bool, shape (n,), or None
+        The steps among those in which the move turns, its acceleration rising to a peak inside
+        the step and falling after it (:mod:`curvespeed.turn_step`; timed by
+        ``linear_time_coef``). None: no such step.
     """
 
     geometry: Geometry
@@ -82,6 +86,7 @@ class Profile:
     extremes: dict = field(default_factory=dict)
     envelope_time_s: float | None = None
     linear_time_coef: np.ndarray | None = None
+    turn_step: np.ndarray | None = None
 
     @property
     def time_gap_to_envelope(self) -> float | None:

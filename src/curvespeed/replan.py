@@ -69,10 +69,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import rest_step
+from . import rest_step, turn_step
 from .errors import InfeasibleError, ReplanError, SolverError
 from .geometry import Geometry
-from .jerk_model import is_linear_step
+from .jerk_model import is_linear_step, linear_time_coef
 from .limits import Limits, RouteConstraints, validate_limits
 from .problem import SpeedProblem
 from .solvers import SolveResult, SolveStatus
@@ -160,15 +160,30 @@ def _step(problem, speed, distance, j: int):
     """Step ``j`` as it is driven: ``(kind, u, v0, v1, ds)``, kind "leaving" or "arriving"
     for a jerk-ramped step next to rest (shape ``u``, :mod:`curvespeed.rest_step`), "linear"
     for a step a launch's jerk ramp spans (constant jerk,
-    :func:`curvespeed.rest_step.linear_accel_step`), else "constant" (constant
-    acceleration)."""
+    :func:`curvespeed.rest_step.linear_accel_step`), the step's
+    :class:`~curvespeed.turn_step.TurnShapes` where the move turns in it, else "constant"
+    (constant acceleration)."""
     v0, v1 = float(speed[j]), float(speed[j + 1])
     ds = float(distance[j + 1] - distance[j])
     u = float(problem.rest_u[j]) if j < problem.rest_u.size else math.nan
     linear = j < problem.time_coef.size and bool(is_linear_step(problem.time_coef[j], u))
     kind = ("linear" if linear else "constant" if math.isnan(u) or (v0 != 0.0 and v1 != 0.0)
             else "leaving" if v0 == 0.0 else "arriving")
+    if linear and problem.turn_step is not None and problem.turn_step[j]:
+        shape = _turn_shape(problem, speed, distance, j)
+        kind = "linear" if shape is None else shape
     return kind, u, v0, v1, ds
+
+
+def _turn_shape(problem, speed, distance, j: int):
+    """The shape of turn step ``j`` as the window drives it (:func:`curvespeed.turn_step.shapes`,
+    anchored on the ramp's step next to it in the window), or None where it has none there
+    (the window starts inside it, or its speeds fit none): driven at constant jerk then."""
+    turn = np.zeros(problem.time_coef.size, dtype=bool)
+    turn[j] = True
+    rest = np.where(np.isnan(problem.rest_u), 0.0, problem.time_coef)
+    shape = turn_step.shapes(distance, speed, rest, linear_time_coef(problem), turn)
+    return shape if shape.ok[j] else None
 
 
 def _step_state(problem, speed, distance, time, j: int, tau: float):
@@ -183,6 +198,10 @@ def _step_state(problem, speed, distance, time, j: int, tau: float):
     if kind == "linear":
         d, v, a = rest_step.linear_state_at_time(ds, v0, v1, time[j + 1] - time[j], tau)
         return float(d), float(v), float(a)
+    if not isinstance(kind, str):                               # the step where a move turns
+        d, v, a = turn_step.driven_state_at_time(kind, np.array([j]), ds, v0, v1,
+                                                 time[j + 1] - time[j], tau)
+        return float(d[0]), float(v[0]), float(a[0])
     a = (v1 * v1 - v0 * v0) / (2.0 * ds)
     return v0 * tau + 0.5 * a * tau * tau, v0 + a * tau, a
 
@@ -198,6 +217,9 @@ def _time_into_step(problem, speed, distance, time, j: int, d: float) -> float:
                      - rest_step.leaving_time_at_distance(u, v0, ds, ds - d))
     if kind == "linear":
         return float(rest_step.linear_time_at_distance(ds, v0, v1, time[j + 1] - time[j], d))
+    if not isinstance(kind, str):                               # the step where a move turns
+        return float(turn_step.driven_time_at_distance(kind, np.array([j]), ds, v0, v1,
+                                                       time[j + 1] - time[j], d)[0][0])
     a = (v1 * v1 - v0 * v0) / (2.0 * ds)
     root = math.sqrt(max(v0 * v0 + 2.0 * a * d, 0.0))
     return 2.0 * d / (v0 + root) if v0 + root > 0.0 else 0.0

@@ -73,6 +73,10 @@ class StationProfile:
     curvature_bound_1pm : ndarray or None
         The bound on |curvature| the profile was planned on (1/m), where it has one; figures
         judge uses on it, as ``check`` does.
+    turn_step : ndarray of bool, shape (n,) or None
+        The steps among the :attr:`linear_time_coef` ones in which the acceleration turns: it
+        rises to a peak inside the step and falls after it, continuing the ramp's step next to
+        it (:mod:`curvespeed.turn_step`); None: none.
     """
 
     station_m: np.ndarray
@@ -97,6 +101,7 @@ class StationProfile:
     rest_time_coef: np.ndarray | None = None
     curvature_bound_1pm: np.ndarray | None = None
     linear_time_coef: np.ndarray | None = None
+    turn_step: np.ndarray | None = None
 
     @classmethod
     def from_profile(cls, profile) -> "StationProfile":
@@ -111,7 +116,7 @@ class StationProfile:
             grade=geo.grade, lat=None if latlon is None else latlon[0],
             lon=None if latlon is None else latlon[1], name=geo.name, source=geo.source,
             rest_time_coef=profile.rest_time_coef, curvature_bound_1pm=geo.curvature_bound_1pm,
-            linear_time_coef=profile.linear_time_coef)
+            linear_time_coef=profile.linear_time_coef, turn_step=profile.turn_step)
 
     @property
     def n_nodes(self) -> int:
@@ -135,6 +140,17 @@ class StationProfile:
     def linear_step(self) -> np.ndarray:
         """Steps away from rest driven at constant jerk, bool per step."""
         return self.linear_time_coef > 0.0
+
+    @property
+    def turn_shapes(self):
+        """The shape of each :attr:`turn_step` (:func:`curvespeed.turn_step.shapes`), or None
+        where the profile has none."""
+        if self.turn_step is None or not self.turn_step.any():
+            return None
+        from . import turn_step
+
+        return turn_step.shapes(self.station_m, self.speed_mps, self.rest_time_coef,
+                                self.linear_time_coef, self.turn_step)
 
     @property
     def step_time_coef(self) -> np.ndarray:
@@ -203,7 +219,8 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
                          limit_speed_mps=None, binding=None, z_m=None, grade=None, lat=None,
                          lon=None, name: str = "route", source: str = "profile",
                          where=None, rest_time_coef=None,
-                         curvature_bound_1pm=None, linear_time_coef=None) -> StationProfile:
+                         curvature_bound_1pm=None, linear_time_coef=None,
+                         turn_step=None) -> StationProfile:
     """Check arrays and build a :class:`StationProfile`.
 
     ``rest_time_coef`` (one value per step: the ``c`` of a step next to rest driven with a jerk
@@ -223,7 +240,9 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
         ``rest_time_coef`` without one value per step, a value other than 0 or within [2, 3],
         or one set on a step that does not have exactly one end at rest
         (:func:`steps_next_to_rest`); ``linear_time_coef`` likewise, set only on steps with
-        neither end at rest; readers check their files for this first.
+        neither end at rest; ``turn_step`` set on a step without a ``linear_time_coef``, or on
+        one whose shape does not fit (:func:`curvespeed.turn_step.shapes`); readers check their
+        files for this first.
     """
     def arr(values):
         return None if values is None else np.asarray(values, dtype=float).ravel()
@@ -268,12 +287,29 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
         raise ValueError("linear_time_coef must have one value per step, 0 or within "
                          "[linear_time_coef_lowest, 3], non-zero only on steps with neither end "
                          "at rest")
+    turn = None if turn_step is None else np.asarray(turn_step, dtype=bool).ravel()
+    if turn is not None and (turn.size != n - 1 or np.any(turn & ~on)):
+        raise ValueError("turn_step must have one value per step, true only on steps with a "
+                         "linear_time_coef")
     return StationProfile(
         station_m=s, x_m=required["x_m"], y_m=required["y_m"],
         heading_rad=np.unwrap(required["heading_rad"]), curvature_1pm=required["curvature_1pm"],
         speed_mps=v, binding=text, name=name, source=source, where=labels,
         rest_time_coef=coef, linear_time_coef=linear,
+        turn_step=None if turn is None or not turn.any() else _fitting_turns(s, v, coef, linear,
+                                                                             turn),
         **optional)
+
+
+def _fitting_turns(s, v, rest_coef, linear, turn) -> np.ndarray:
+    """``turn``, checked: every step in it has a shape (:func:`curvespeed.turn_step.shapes`);
+    else ValueError (a reader names the file's line first)."""
+    from . import turn_step
+
+    if not np.all(turn_step.shapes(s, v, rest_coef, linear, turn).ok[turn]):
+        raise ValueError("turn_step set on a step whose speeds, distance and time fit no "
+                         "acceleration turning from the ramp's next to it")
+    return turn
 
 
 def _check_columns(numbers: dict, texts: dict, source: str, labels) -> None:

@@ -110,6 +110,12 @@ class StepKind(enum.Enum):
     #: step takes ``c ds / (v[k] + v[k+1])`` with ``c`` in [2, 3] read from ``time_s``, see
     #: :func:`curvespeed.rest_step.linear_accel_step`.
     LINEAR_ACCEL = "linear_accel"
+    #: Only away from rest, next to a ``linear_accel`` step or a ``jerk_ramp`` one: the
+    #: acceleration linear in time on either side of one instant inside the step, where it
+    #: turns, continuing the acceleration the ramp's step before it ends with (or, driven
+    #: backwards, ending at the one the stop's ramp after it starts with); timed like
+    #: ``linear_accel``, see :mod:`curvespeed.turn_step`.
+    ACCEL_TURN = "accel_turn"
     #: Constant jerk over the whole step, only next to rest: ``3 ds / v``. Written by older
     #: versions; read, never written.
     CONSTANT_JERK = "constant_jerk"
@@ -123,6 +129,8 @@ def step_kinds(profile: Profile) -> list[str]:
                     StepKind.CONSTANT_ACCEL.value).astype(object)
     if profile.linear_time_coef is not None:
         kind[profile.linear_time_coef > 0.0] = StepKind.LINEAR_ACCEL.value
+    if profile.turn_step is not None:
+        kind[profile.turn_step] = StepKind.ACCEL_TURN.value
     return kind.tolist() + [""]
 
 
@@ -209,6 +217,7 @@ def read_station_profile(path: str | os.PathLike, name: str | None = None) -> St
                               **optional)
     if kinds is not None:
         _check_step_kinds(table, kinds, sp.speed_mps)
+        sp = _with_turns(table, kinds, sp)
     check_positions(sp)
     mismatch = planned_time_mismatch(sp)
     if mismatch is not None:
@@ -259,15 +268,17 @@ def read_step_kinds(table: Table) -> np.ndarray | None:
 
 
 _REST_KINDS = (StepKind.JERK_RAMP.value, StepKind.CONSTANT_JERK.value)
+#: Kinds of steps away from rest timed ``c ds / (v + v')`` with ``c`` from ``time_s``.
+_MOVING_KINDS = (StepKind.LINEAR_ACCEL.value, StepKind.ACCEL_TURN.value)
 #: Kinds whose time coefficient comes from ``time_s``.
-_TIMED_KINDS = (StepKind.JERK_RAMP.value, StepKind.LINEAR_ACCEL.value)
+_TIMED_KINDS = (StepKind.JERK_RAMP.value,) + _MOVING_KINDS
 
 
 def _time_coefs(table: Table, kinds: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """The ``c`` of each step's time ``c ds / (v[k] + v[k+1])`` by its kind, as
     ``(rest_time_coef, linear_time_coef)``: 3 for ``constant_jerk`` and from ``time_s`` for
-    ``jerk_ramp`` in the first, from ``time_s`` for ``linear_accel`` in the second, 0
-    elsewhere (constant acceleration)."""
+    ``jerk_ramp`` in the first, from ``time_s`` for ``linear_accel`` and ``accel_turn`` in the
+    second, 0 elsewhere (constant acceleration)."""
     rest = np.where(kinds == StepKind.CONSTANT_JERK.value, 3.0, 0.0)
     timed = np.isin(kinds, _TIMED_KINDS)
     if not timed.any():
@@ -283,7 +294,7 @@ def _time_coefs(table: Table, kinds: np.ndarray) -> tuple[np.ndarray, np.ndarray
     from ..station_profile import linear_time_coef_lowest
 
     s, v = table.columns["station_m"], table.columns["speed_mps"]
-    linear = kinds == StepKind.LINEAR_ACCEL.value
+    linear = np.isin(kinds, _MOVING_KINDS)
     with np.errstate(divide="ignore", invalid="ignore"):
         from_times = step_time_coef_from_times(
             s, v, times, np.where(linear, linear_time_coef_lowest(v), 2.0))
@@ -314,21 +325,22 @@ def check_step_kind_column(table: Table, speed_mps: np.ndarray) -> None:
     column."""
     kinds = read_step_kinds(table)
     if kinds is not None:
-        _time_coefs(table, kinds)
+        rest, linear = _time_coefs(table, kinds)
         _check_step_kinds(table, kinds, speed_mps)
+        _fitting_turns(table, kinds, rest, linear)
 
 
 def _check_step_kinds(table: Table, kinds: np.ndarray, speed_mps: np.ndarray) -> None:
     """Refuse a step kind next to rest on a step without exactly one end at rest, and
-    ``linear_accel`` on a step with an end at rest (file, line, value)."""
+    ``linear_accel`` or ``accel_turn`` on a step with an end at rest (file, line, value)."""
     from ..export import steps_next_to_rest
 
     v, where = speed_mps, table.where
     next_to_rest = steps_next_to_rest(v)
     for bad, allowed_on in ((np.isin(kinds, _REST_KINDS) & ~next_to_rest,
                              "a step with exactly one end at rest (speed 0)"),
-                            ((kinds == StepKind.LINEAR_ACCEL.value) & ((v[:-1] <= 0.0)
-                                                                      | (v[1:] <= 0.0)),
+                            (np.isin(kinds, _MOVING_KINDS) & ((v[:-1] <= 0.0)
+                                                              | (v[1:] <= 0.0)),
                              "a step with neither end at rest")):
         if bad.any():
             k = int(np.flatnonzero(bad)[0])
@@ -337,6 +349,43 @@ def _check_step_kinds(table: Table, kinds: np.ndarray, speed_mps: np.ndarray) ->
                 f"only on {allowed_on}, but speed_mps is {v[k]:g} here and {v[k + 1]:g} on "
                 f"{where[k + 1]}; use {StepKind.CONSTANT_ACCEL.value} there, or remove the "
                 "column to have the steps recognised from time_s")
+
+
+def _with_turns(table: Table, kinds: np.ndarray, sp: StationProfile) -> StationProfile:
+    """``sp`` with its ``accel_turn`` steps (:attr:`StationProfile.turn_step`), each checked
+    to fit (:func:`_fitting_turns`)."""
+    import dataclasses
+
+    turn = kinds == StepKind.ACCEL_TURN.value
+    if not turn.any():
+        return sp
+    _fitting_turns(table, kinds, sp.rest_time_coef, sp.linear_time_coef)
+    return dataclasses.replace(sp, turn_step=turn)
+
+
+def _fitting_turns(table: Table, kinds: np.ndarray, rest_coef, linear_coef) -> None:
+    """Refuse an ``accel_turn`` step that has no ramp's step next to it to continue, or whose
+    stations, speeds and time fit no acceleration turning once inside it
+    (:func:`curvespeed.turn_step.shapes`; file, line)."""
+    from .. import turn_step
+
+    turn = kinds == StepKind.ACCEL_TURN.value
+    if not turn.any():
+        return
+    s, v = table.columns["station_m"], table.columns["speed_mps"]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ok = turn_step.shapes(s, v, rest_coef, linear_coef, turn).ok
+    bad = np.flatnonzero(turn & ~ok)
+    if bad.size:
+        k = int(bad[0])
+        raise SpeedFileError(
+            f"{table.source}: {table.where[k]}: column 'step_kind' value "
+            f"'{StepKind.ACCEL_TURN.value}' needs the step before it to be a launch's ramp "
+            f"({StepKind.LINEAR_ACCEL.value}, or {StepKind.JERK_RAMP.value} leaving rest) or the "
+            "step after it a stop's, and its stations, speeds and time_s to fit an acceleration "
+            "that continues that ramp's and turns once inside the step; they do not (edited "
+            f"values?): use {StepKind.LINEAR_ACCEL.value} or {StepKind.CONSTANT_ACCEL.value} "
+            "there, or plan the profile again")
 
 
 __all__ = ["KINEMATIC", "PROFILE_COLUMNS", "REQUIRED_PROFILE_COLUMNS", "StepKind",
