@@ -2,7 +2,7 @@
 
     python benchmarks/exact_roads.py            # all five roads (about two minutes on 2 cores)
     python benchmarks/exact_roads.py --quick    # the two short S-curves only
-    python benchmarks/exact_roads.py --wide     # 1,728 double-S moves of 10-80 m (15 s)
+    python benchmarks/exact_roads.py --wide     # 1,728 double-S moves of 10-80 m, judged (1 min)
 
 **The roads are invented** for this benchmark: laid out from scratch as road designers lay out
 a centreline (straights, clothoid transitions, circular arcs), at arbitrary coordinates; they
@@ -365,14 +365,17 @@ def double_s_rows(spacing_m: float = POINT_SPACING_M) -> list[tuple]:
 
 def double_s_row(L: float, v: float, a: float, j: float, spacing_m: float) -> tuple:
     """One rest-to-rest move of ``L`` m on a straight under caps ``v``, ``a`` (both ways) and
-    ``j``, planned at ``spacing_m``: (L, v, a, j, closed form s, planned s)."""
+    ``j``, planned at ``spacing_m``: (L, v, a, j, closed form s, planned s, the judge's jerk
+    use, :func:`benchmarks.judge.judge_profile`)."""
     from curvespeed.planner import plan_profile
     from test_reference_convex import double_s_time
 
     limits = Limits(max_speed_mps=v, max_accel_mps2=a, max_decel_mps2=a, max_jerk_mps3=j,
                     friction_coefficient=0.9)
-    profile = plan_profile(Alignment((line(L),)).to_geometry(spacing_m), limits)
-    return (L, v, a, j, double_s_time(L, v, a, j), float(profile.time_s[-1]))
+    alignment = Alignment((line(L),))
+    profile = plan_profile(alignment.to_geometry(spacing_m), limits)
+    return (L, v, a, j, double_s_time(L, v, a, j), float(profile.time_s[-1]),
+            judge_profile(profile, alignment, limits).use["jerk"])
 
 
 #: The grid of rest-to-rest moves swept by :func:`double_s_sweep`: lengths from a few stations to
@@ -410,6 +413,10 @@ def sweep_summary(rows: list[tuple], worst: int = 3) -> str:
     above = sum(rel[r] > DOUBLE_S_BAND[1] for r in rows)
     lines.append(f"\n{len(rows) - below - above} of {len(rows)} within the target, {below} below "
                  f"it, {above} above it.")
+    jerk = [r[6] for r in rows]
+    lines.append(f"The judge's jerk reading (benchmarks/judge.py): over 1.005 of the bound on "
+                 f"{sum(u > 1.005 for u in jerk)} moves, over {MAX_USE} on "
+                 f"{sum(u > MAX_USE for u in jerk)}, at most {max(jerk):.3f}.")
     ranked = sorted(rows, key=rel.get)
     lines.append("\nFurthest below and above the closed form (L, v, a, j):")
     for r in ranked[:worst] + ranked[-worst:]:
@@ -422,7 +429,7 @@ def double_s_table(rows: list[tuple]) -> str:
     head = ["L m", "v m/s", "a m/s^2", "j m/s^3", "closed form s", "planned s", "difference",
             "target"]
     lines = ["| " + " | ".join(head) + " |", "|" + "---|" * len(head)]
-    for L, v, a, j, closed, planned in rows:
+    for L, v, a, j, closed, planned, _ in rows:
         rel = planned / closed - 1.0
         lines.append(f"| {L:g} | {v:g} | {a:g} | {j:g} | {closed:.4f} | {planned:.4f} | "
                      f"{100 * rel:+.3f} % | "
