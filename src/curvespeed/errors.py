@@ -20,7 +20,8 @@ class RouteGeometryError(CurvespeedError, ValueError):
 
 
 class LimitsError(CurvespeedError, ValueError):
-    """A limits file or a limit given on the command line is invalid."""
+    """A limits file or a limit given on the command line is invalid, or a bound given in
+    code (a stop's dwell, a run's number of laps) lies outside its range."""
 
 
 class SpeedFileError(CurvespeedError, ValueError):

@@ -77,6 +77,7 @@ import numpy as np
 
 from . import rest_step, turn_step
 from .export_shape import elevation_at, hermite_position, interpolate_latlon, stop_names_at
+from .limits import check_dwell
 from .station_profile import (RAMP_TIME_EXCESS, StationProfile, as_station_profile,
                               check_stations_and_speeds, detect_rest_steps,
                               make_station_profile, planned_time_mismatch,
@@ -229,24 +230,25 @@ def _check_positive(value: float, what: str) -> float:
     return value
 
 
-def _check_dwell(dwell_s: float) -> float:
-    dwell_s = float(dwell_s)
-    if not (math.isfinite(dwell_s) and dwell_s >= 0.0):
-        raise ValueError(f"dwell must be zero or a positive number of seconds, got {dwell_s!r}")
-    return dwell_s
-
-
 def stop_dwells(sp: StationProfile, dwell_s: float, stop_dwell_s=None) -> np.ndarray:
     """Time held at each stop of ``sp`` (station order), s: ``stop_dwell_s`` (one per stop,
-    NaN for none of its own) where given, else ``dwell_s``."""
-    dwells = np.full(sp.stop_nodes.size, _check_dwell(dwell_s))
+    NaN for none of its own) where given, else ``dwell_s``.
+
+    Raises
+    ------
+    LimitsError
+        A dwell outside 0..:data:`~curvespeed.limits.MAX_DWELL_S` (as the limits file's and the
+        command line's are: :func:`~curvespeed.limits.check_dwell`).
+    """
+    dwells = np.full(sp.stop_nodes.size, check_dwell(dwell_s))
     if stop_dwell_s is None:
         return dwells
     own = np.asarray(stop_dwell_s, dtype=float)
     if own.shape != dwells.shape:
         raise ValueError(f"{own.size} dwell(s) given for the profile's {dwells.size} stop(s)")
-    if np.any(own < 0.0) or np.any(np.isinf(own)):
-        raise ValueError("each stop's dwell must be zero or a positive number of seconds")
+    for station, dwell in zip(sp.station_m[sp.stop_nodes], own):
+        if not np.isnan(dwell):
+            check_dwell(dwell, f"stop at station {station:g} m: ")
     return np.where(np.isnan(own), dwells, own)
 
 
@@ -309,7 +311,8 @@ def sample_in_time(profile, dt_s: float, dwell_s: float = 0.0,
     dt_s : float
         Time step, s (> 0).
     dwell_s : float
-        Time held at every stop (interior node with zero speed), s (>= 0).
+        Time held at every stop (interior node with zero speed), s (0 to an hour:
+        :data:`~curvespeed.limits.MAX_DWELL_S`; each stop's own likewise).
     stop_dwell_s : array or None
         Each stop's own dwell, s, in station order; NaN where ``dwell_s`` applies.
     stop_names : sequence of str or None
@@ -356,7 +359,7 @@ def sample_by_station(profile, station_step_m: float, dwell_s: float = 0.0,
     station_step_m : float
         Station step, metres (> 0).
     dwell_s : float
-        Time held at every stop, s (>= 0).
+        Time held at every stop, s (0 to an hour, as for :func:`sample_in_time`).
     stop_dwell_s : array or None
         Each stop's own dwell, s, in station order; NaN where ``dwell_s`` applies.
     stop_names : sequence of str or None

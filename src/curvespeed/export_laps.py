@@ -19,11 +19,13 @@ writes files.
 
 from __future__ import annotations
 
+import math
+import numbers
 from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import SpeedFileError
+from .errors import LimitsError, SpeedFileError
 from .station_profile import StationProfile, make_station_profile
 
 #: Two laps join when the end of one lies within this distance of the start of the next, m.
@@ -37,6 +39,10 @@ JOIN_GAP_M = 0.05
 #: the planner holds an end speed to its solver tolerance; 1 mm/s is far below what a tracker
 #: resolves, and still refuses a lap planned to another speed.
 JOIN_SPEED_MPS = 1e-3
+#: The most laps a run may have: a 24-hour endurance race runs fewer than 1,000 laps (common
+#: practice, from memory); more laps are days of driving in one time base, and a count far
+#: beyond it (10**9) would exhaust the memory before :data:`MAX_RUN_NODES` is checked.
+MAX_LAPS = 1000
 #: The joined run may have at most this many stations (laps x stations per lap): about 20
 #: arrays of 8-byte floats per station, so some 300 MB at this size.
 MAX_RUN_NODES = 2_000_000
@@ -85,11 +91,12 @@ def lap_sequence(flying: StationProfile, laps: int, launch: StationProfile | Non
 
     Raises
     ------
+    LimitsError
+        ``laps`` not a whole number from 1 to :data:`MAX_LAPS`.
     ValueError
-        ``laps`` below 1, or one lap asked to be both a launch and a finish lap.
+        One lap asked to be both a launch and a finish lap.
     """
-    if int(laps) != laps or laps < 1:
-        raise ValueError(f"a run needs a whole number of laps, at least 1, got {laps!r}")
+    laps = _lap_count(laps)
     if laps == 1 and launch is not None and finish is not None:
         raise ValueError("a run of one lap cannot both start from rest (launch lap) and end "
                          "at rest (finish lap); plan that lap from rest to rest on the opened "
@@ -101,6 +108,21 @@ def lap_sequence(flying: StationProfile, laps: int, launch: StationProfile | Non
         kinds[-1] = "finish"
     own = {"flying": flying, "launch": launch, "finish": finish}
     return [(kind, own[kind]) for kind in kinds]
+
+
+def _lap_count(laps) -> int:
+    """``laps`` as an int when it is a whole number from 1 to :data:`MAX_LAPS`, else
+    :class:`LimitsError` saying what to do."""
+    whole = not isinstance(laps, bool) and (isinstance(laps, numbers.Integral) or (
+        isinstance(laps, numbers.Real) and math.isfinite(laps) and float(laps).is_integer()))
+    if not whole or laps < 1:
+        raise LimitsError(f"a run needs a whole number of laps, at least 1, got {laps!r}")
+    if laps > MAX_LAPS:
+        raise LimitsError(
+            f"{int(laps)} laps is more than {MAX_LAPS}: a 24-hour endurance race runs fewer "
+            f"laps, and more would be days of driving in one time base; ask for at most "
+            f"{MAX_LAPS} laps, and export a longer session in runs of up to {MAX_LAPS}")
+    return int(laps)
 
 
 def check_lap_profiles(flying: StationProfile, launch: StationProfile | None = None,
@@ -229,5 +251,5 @@ def with_laps(trajectory, run: LapRun):
                                lap_times_s=arrive[run.lap_nodes])
 
 
-__all__ = ["JOIN_GAP_M", "JOIN_SPEED_MPS", "JOIN_STATION_M", "LapRun", "MAX_RUN_NODES", "check_lap_profiles",
-           "join_laps", "lap_sequence", "per_stop", "with_laps"]
+__all__ = ["JOIN_GAP_M", "JOIN_SPEED_MPS", "JOIN_STATION_M", "LapRun", "MAX_LAPS", "MAX_RUN_NODES",
+           "check_lap_profiles", "join_laps", "lap_sequence", "per_stop", "with_laps"]

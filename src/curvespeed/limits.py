@@ -326,6 +326,26 @@ DWELL_WHY = ("a vehicle held at a stop for more than an hour (3600 s) is parked,
              "export or replay the runs before and after it separately")
 
 
+def check_dwell(dwell_s, where: str = "", name: str = "dwell_s") -> float:
+    """``dwell_s`` as a float when it is a time a vehicle may be held at a stop, zero to
+    :data:`MAX_DWELL_S`; else :class:`LimitsError` saying why and what to do, starting with
+    ``where`` (``l.toml: [stop #2] ``, ``stop at station 80 m: ``) and ``name`` (a key, or an
+    option such as ``--dwell``)."""
+    try:
+        value = float(dwell_s)
+    except (TypeError, ValueError):
+        value = math.nan
+    if 0.0 <= value <= MAX_DWELL_S:
+        return value
+    why = (DWELL_WHY if value > MAX_DWELL_S else
+           "a dwell is how long the vehicle stands there: zero or positive" if value < 0.0 else
+           "a dwell is a number of seconds")
+    shown = f"{value:g}" if not math.isnan(value) else repr(dwell_s)
+    given = f"{name} {shown}" if name.startswith("--") else f"{name} = {shown}"
+    raise LimitsError(f"{where}{given} is outside 0..{MAX_DWELL_S:g} s: {why}; give zero or a "
+                      f"positive number of seconds up to {MAX_DWELL_S:g}")
+
+
 @dataclass(frozen=True)
 class Stop:
     """A point where the vehicle must be at rest, station in metres.

@@ -10,8 +10,8 @@ import math
 import warnings
 
 from .errors import CurvespeedWarning, LimitsError
-from .limits import (DWELL_WHY, END_TOLERANCE_M, MAX_DWELL_S, MAX_SPEED_MPS, PHYSICAL_RANGES,
-                     RouteConstraints)
+from .limits import (END_TOLERANCE_M, MAX_SPEED_MPS, PHYSICAL_RANGES, RouteConstraints,
+                     check_dwell)
 from .units import format_apart
 
 #: The lowest speed a speed zone may state, m/s: the lowest top speed (``PHYSICAL_RANGES``).
@@ -58,12 +58,8 @@ def validate_constraints(rc: RouteConstraints, length_m: float, closed: bool) ->
             station, last = format_apart(s.station_m, length_m)
             raise LimitsError(f"{here(s)}stop at station {station} m lies outside the route "
                               f"(0..{last} m); check its station against the route summary")
-        if s.dwell_s is not None and not (math.isfinite(s.dwell_s)
-                                          and 0.0 <= s.dwell_s <= MAX_DWELL_S):
-            why = (DWELL_WHY if s.dwell_s > MAX_DWELL_S
-                   else "a dwell is how long the vehicle stands there: zero or positive")
-            raise LimitsError(f"{here(s)}stop at station {s.station_m:g} m: dwell_s = "
-                              f"{s.dwell_s:g} is outside 0..{MAX_DWELL_S:g} s: {why}")
+        if s.dwell_s is not None:
+            check_dwell(s.dwell_s, f"{here(s)}stop at station {s.station_m:g} m: ")
     for e in rc.superelevation:
         if not (math.isfinite(e.start_m) and math.isfinite(e.end_m) and e.end_m > e.start_m):
             raise LimitsError(f"{here(e)}superelevation {e.start_m:g}..{e.end_m:g} m: end must be "

@@ -48,16 +48,14 @@ def replay(profile_file, vehicle_file, output, plot_file, json_file, tracker,
     """
     from ..errors import SpeedFileError
     from ..io.atomic import OutputFiles
-    from ..limits import DWELL_WHY, MAX_DWELL_S
+    from ..limits import check_dwell
     from ..io.meta_json import default_meta_path
     from ..plots import figure_format
 
     if max_lateral_error_m is not None and not max_lateral_error_m > 0.0:
         raise SpeedFileError(f"--max-lateral-error {max_lateral_error_m:g}: give a positive "
                              "distance in metres")
-    if not 0.0 <= dwell_s <= MAX_DWELL_S:
-        raise SpeedFileError(f"--dwell {dwell_s:g} is outside 0..{MAX_DWELL_S:g} s: "
-                             f"{DWELL_WHY}; give zero or a positive number of seconds up to that")
+    check_dwell(dwell_s, name="--dwell")
     fmt = figure_format(plot_file) if plot_file else None
     outputs = OutputFiles(force)
     outputs.add_input(profile_file, "the profile")

@@ -51,9 +51,8 @@ from pathlib import Path
 
 from ..errors import LimitsError
 from ..friction import FrictionPosition, FrictionSection
-from ..limits import (DEFAULT_LIMITS, DWELL_WHY, MAX_DWELL_S, Limits, RouteConstraints,
-                      SpeedZone, Stop, StopPosition, Superelevation, SuperelevationPosition,
-                      ZonePosition)
+from ..limits import (DEFAULT_LIMITS, Limits, RouteConstraints, SpeedZone, Stop, StopPosition,
+                      Superelevation, SuperelevationPosition, ZonePosition, check_dwell)
 from ._common import check_nesting, finite_value, read_text, show_value, value_problem
 
 _LIMIT_KEYS = tuple(f.name for f in dataclasses.fields(Limits))
@@ -227,10 +226,8 @@ def _read_stops(path: Path, entries) -> tuple[tuple, tuple]:
         origin = f"{path} [[stop]] #{n}"
         nums = {k: _number(path, label, k, entry[k]) for k in place}
         dwell = _number(path, label, "dwell_s", entry["dwell_s"]) if "dwell_s" in entry else None
-        if dwell is not None and not 0.0 <= dwell <= MAX_DWELL_S:
-            raise LimitsError(f"{path}: [{label}] dwell_s = {dwell:g} is outside "
-                              f"0..{MAX_DWELL_S:g} s: {DWELL_WHY}; give zero or a positive "
-                              "number of seconds up to that")
+        if dwell is not None:
+            check_dwell(dwell, f"{path}: [{label}] ")
         name = entry.get("name", "")
         if not isinstance(name, str):
             raise LimitsError(f"{path}: [{label}] name is {show_value(name)}; give it as a "
