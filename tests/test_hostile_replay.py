@@ -33,6 +33,15 @@ def run(*args):
     ("mass_kg = 1500\n", "unknown table or key 'mass_kg'"),
     ("[vehicle\n", "not valid TOML"),
     ("[vehicle]\nsteer_lag_s = 0.001\n", "below 0.02 s the 0.01 s integration step"),
+    # friction as the planner's limits bound it (0 divided by zero, 1e-20 "lost the path")
+    ("[vehicle]\nfriction_coefficient = 1e-20\n", "line 2: [vehicle]: friction_coefficient = "
+     "1e-20 is outside 0.01..2 (tyre-road friction is about 0.7-0.9 on dry asphalt, 0.1 on ice"),
+    ("[vehicle]\nfriction_coefficient = 0\n", "friction_coefficient = 0.0 is outside 0.01..2"),
+    # each value in range, together tyres far too stiff for the 0.01 s step (1 kg on a car's
+    # tyres: 25,000 per rad of load; 1e7 N/rad on the car: 1,190 and 1,590 per rad)
+    ("[vehicle]\nmass_kg = 1\n", "cannot follow this vehicle's lateral motion"),
+    ("[vehicle]\nfront_cornering_stiffness_npr = 1e7\nrear_cornering_stiffness_npr = 1e7\n",
+     "static loads is 1.19e+03 and 1.59e+03 per rad (car tyres about 10-30)"),
 ])
 def test_bad_vehicle_file_exits_2_and_writes_nothing(profile_file, tmp_path, text, expected):
     vehicle = tmp_path / "bad.toml"
@@ -61,3 +70,33 @@ def test_bad_options_and_existing_output(profile_file, tmp_path):
     result = run(tmp_path / "missing.csv", "-o", tmp_path / "x.csv")
     assert result.exit_code == 2 and "missing.csv" in result.output
     assert not (tmp_path / "x.csv").exists()
+
+
+@pytest.mark.parametrize("changes, expected", [
+    ({"friction_coefficient": 0.0}, "friction_coefficient = 0.0 is outside 0.01..2"),
+    ({"friction_coefficient": 1e-20}, "friction_coefficient = 1e-20 is outside 0.01..2"),
+    ({"gravity_mps2": 0.0}, "gravity_mps2 = 0.0 is outside 9.7..10"),
+    ({"mass_kg": -1.0}, "mass_kg = -1.0 is outside 1..1e+06"),
+    ({"tyre_curve": "saturated_linear"}, "tyre_curve = 'saturated_linear' is not a TyreCurve"),
+    ({"front_axle_to_cg_m": 20.0, "rear_axle_to_cg_m": 20.0},
+     "yaw inertia over m a b 0.00417 (road vehicles about 1)"),
+])
+def test_a_script_s_vehicle_is_checked_before_the_replay_starts(profile_file, changes, expected):
+    # before, replay() took any Vehicle: friction or gravity 0 divided by zero, a negative mass
+    # reached the Riccati solver, a tyre curve given as text was driven as the brush curve
+    from curvespeed.dynamics.simulate import replay
+    from curvespeed.dynamics.vehicle import Vehicle
+    from curvespeed.io.profile_csv import read_station_profile
+
+    with pytest.raises(VehicleError) as caught:
+        replay(read_station_profile(profile_file), Vehicle(**changes))
+    assert str(caught.value).startswith("vehicle: ") and expected in str(caught.value)
+
+
+def test_the_lowest_friction_and_the_built_in_car_pass_the_checks(tmp_path):
+    from curvespeed.dynamics.vehicle import DEFAULT_VEHICLE, lateral_step_problem
+
+    vehicle = tmp_path / "ice.toml"
+    vehicle.write_text("[vehicle]\nfriction_coefficient = 0.01\n")
+    assert read_vehicle(vehicle).friction_coefficient == 0.01
+    assert lateral_step_problem(DEFAULT_VEHICLE, 0.01) is None

@@ -41,7 +41,8 @@ from ..friction import GripAlong
 from .lqr import LqrTracker, LqrWeights
 from .path import PathReference
 from .tracker_kind import TrackerKind
-from .vehicle import DEFAULT_VEHICLE, Vehicle, VehicleModel, steer_rate, tyre_use
+from .vehicle import (DEFAULT_VEHICLE, INTEGRATION_STEP_S, Vehicle, VehicleModel, steer_rate,
+                      tyre_use, validate_vehicle)
 
 #: Columns of a replay, in output order (units in the names).
 REPLAY_COLUMNS = ("time_s", "station_m", "x_m", "y_m", "speed_mps", "lateral_error_m",
@@ -95,7 +96,7 @@ class ReplaySettings:
 
     tracker: TrackerKind = TrackerKind.LQR
     control_dt_s: float = 0.02
-    integration_dt_s: float = 0.01
+    integration_dt_s: float = INTEGRATION_STEP_S
     speed_gain_1ps: float = 1.0
     speed_integral_gain_1ps2: float = 0.25
     integral_limit_m: float = 5.0
@@ -203,8 +204,16 @@ def replay(profile, vehicle: Vehicle = DEFAULT_VEHICLE,
     Returns
     -------
     ReplayResult
+
+    Raises
+    ------
+    VehicleError
+        A parameter of ``vehicle`` outside its range, or a vehicle the integration step cannot
+        follow (:func:`~curvespeed.dynamics.vehicle.validate_vehicle`), before any work.
     """
     from threadpoolctl import threadpool_limits
+
+    validate_vehicle(vehicle, "vehicle", settings.integration_dt_s)
 
     # every matrix here is 5x5 to 180x210: the BLAS's threads only cost (measured 10-30x
     # slower gain tables with them on a loaded 2-core machine)

@@ -50,10 +50,12 @@ state at a time, where numpy's per-call overhead would dominate.
 
 from __future__ import annotations
 
+import cmath
 import enum
 import math
 from dataclasses import dataclass
 
+from ..limits import PHYSICAL_RANGES
 from ..units import STANDARD_GRAVITY_MPS2
 
 #: Below this speed (m/s) the model is purely kinematic.
@@ -318,8 +320,12 @@ def tyre_use(model: VehicleModel, vx, vy, r, delta, force_x):
             math.hypot(fx_r, fy_r) / model.cap_r)
 
 
+#: Step of the replay's Runge-Kutta integration, s (``ReplaySettings.integration_dt_s``).
+INTEGRATION_STEP_S = 0.01
+
 #: Ranges a parameter must lie in, with the reason (common practice; the steering lag's lower
-#: bound keeps the lag resolved by the 0.01 s integration step).
+#: bound keeps the lag resolved by the 0.01 s integration step; friction and gravity as the
+#: planner's limits have them, :data:`curvespeed.limits.PHYSICAL_RANGES`).
 PARAMETER_RANGES = {
     "mass_kg": (1.0, 1e6, "from a small robot to the heaviest road vehicles"),
     "yaw_inertia_kgm2": (0.01, 1e8, "a passenger car has about 2,000-3,500 kg m^2"),
@@ -329,26 +335,100 @@ PARAMETER_RANGES = {
                                       "100,000-200,000 N/rad"),
     "rear_cornering_stiffness_npr": (100.0, 1e7, "a passenger car axle has about "
                                      "100,000-200,000 N/rad"),
-    "friction_coefficient": (0.05, 2.0, "tyre-road friction is about 0.7-0.9 on dry asphalt, "
-                             "0.1 on ice, below 2 even for racing tyres"),
+    "friction_coefficient": PHYSICAL_RANGES["friction_coefficient"],
     "max_steer_rad": (0.01, 1.2, "road wheels steer up to about 0.6 rad (35 degrees); "
                       "1.2 rad is near the kinematic model's 90-degree singularity"),
     "max_steer_rate_radps": (0.01, 20.0, "steering actuators turn the road wheels at about "
                              "0.3-1 rad/s"),
     "steer_lag_s": (0.02, 5.0, "steering actuators lag by about 0.05-0.3 s; below 0.02 s the "
                     "0.01 s integration step cannot resolve the lag"),
+    "gravity_mps2": PHYSICAL_RANGES["gravity_mps2"],
 }
 
 
-def validate_vehicle(vehicle: Vehicle, where: str = "vehicle") -> Vehicle:
-    """Raise :class:`~curvespeed.errors.VehicleError` naming ``where`` and the parameter when a
-    value lies outside :data:`PARAMETER_RANGES`; return ``vehicle``."""
+def check_parameter(name: str, value, where: str = "vehicle") -> None:
+    """Raise :class:`~curvespeed.errors.VehicleError` naming ``where`` and the parameter when
+    ``value`` is no finite number within its :data:`PARAMETER_RANGES` entry."""
     from ..errors import VehicleError
 
-    for name, (low, high, why) in PARAMETER_RANGES.items():
-        value = getattr(vehicle, name)
-        if not (isinstance(value, (int, float)) and math.isfinite(value)
-                and low <= value <= high):
-            raise VehicleError(f"{where}: {name} = {value!r} is outside {low:g}..{high:g} "
-                               f"({why}); give a value in that range")
+    low, high, why = PARAMETER_RANGES[name]
+    if not (isinstance(value, (int, float)) and not isinstance(value, bool)
+            and math.isfinite(value) and low <= value <= high):
+        raise VehicleError(f"{where}: {name} = {value!r} is outside {low:g}..{high:g} "
+                           f"({why}); give a value in that range")
+
+
+def validate_vehicle(vehicle: Vehicle, where: str = "vehicle",
+                     integration_dt_s: float = INTEGRATION_STEP_S) -> Vehicle:
+    """Raise :class:`~curvespeed.errors.VehicleError` naming ``where`` when a parameter lies
+    outside :data:`PARAMETER_RANGES`, the tyre curve is none of :class:`TyreCurve`, or the
+    integration step cannot follow the vehicle's lateral motion (:func:`lateral_step_problem`);
+    return ``vehicle``."""
+    from ..errors import VehicleError
+
+    for name in PARAMETER_RANGES:
+        check_parameter(name, getattr(vehicle, name), where)
+    if not isinstance(vehicle.tyre_curve, TyreCurve):
+        raise VehicleError(f"{where}: tyre_curve = {vehicle.tyre_curve!r} is not a TyreCurve; "
+                           f"give one of {', '.join(f'TyreCurve.{c.name}' for c in TyreCurve)}")
+    problem = lateral_step_problem(vehicle, integration_dt_s)
+    if problem is not None:
+        raise VehicleError(f"{where}: {problem}")
     return vehicle
+
+
+#: Speeds at which :func:`lateral_step_problem` looks at the lateral motion, m/s: from where the
+#: dynamic model starts to weigh in to the planner's highest top speed, geometric.
+_CHECK_SPEEDS_MPS = tuple(KINEMATIC_BELOW_MPS * 1000.0 ** (i / 240) for i in range(241))
+
+
+def lateral_step_problem(vehicle: Vehicle, dt: float) -> str | None:
+    """Why the classical Runge-Kutta step ``dt`` cannot follow the vehicle's lateral motion,
+    or None.
+
+    The motion across the path and in yaw near zero slip is linear in ``(vy, r)`` (linear tyres
+    of the module docstring's model, e.g. Rajamani 2012, chapter 2, from memory)::
+
+        A = [[-(Cf + Cr) / (m vx),        -(a Cf - b Cr) / (m vx) - vx],
+             [-(a Cf - b Cr) / (Iz vx),   -(a^2 Cf + b^2 Cr) / (Iz vx)]]
+
+    weighed by :func:`dynamic_weight` and blended with the kinematic relaxation. A step
+    multiplies a mode ``exp(lambda t)`` by ``R(z) = 1 + z + z^2/2 + z^3/6 + z^4/24``,
+    ``z = lambda dt``; where a mode that dies out (``Re lambda < 0``) would grow
+    (``|R(z)| > 1``), the replay integrates numbers, not the vehicle: its slip and tyre use
+    chatter, and tyres far stiffer than the mass and inertia they carry (a 1 kg vehicle on a
+    car's tyres; 0.01 kg m^2 of yaw inertia under 1,000 t) lost the path at once or drove the
+    lateral error to 1e11 m.
+    """
+    m, inertia = vehicle.mass_kg, vehicle.yaw_inertia_kgm2
+    a, b = vehicle.front_axle_to_cg_m, vehicle.rear_axle_to_cg_m
+    cf, cr = vehicle.front_cornering_stiffness_npr, vehicle.rear_cornering_stiffness_npr
+    for v in _CHECK_SPEEDS_MPS:
+        w = dynamic_weight(v)
+        a11, a12 = -(cf + cr) / (m * v), -(a * cf - b * cr) / (m * v) - v
+        a21, a22 = -(a * cf - b * cr) / (inertia * v), -(a * a * cf + b * b * cr) / (inertia * v)
+        half = 0.5 * (a11 + a22)
+        root = cmath.sqrt(half * half - (a11 * a22 - a12 * a21))
+        for mode in (half + root, half - root):
+            mode = w * mode - (1.0 - w) / KINEMATIC_RELAX_S
+            if mode.real < 0.0 and abs(_rk4_factor(mode * dt)) > 1.0:
+                return _too_stiff(vehicle, dt, v, mode)
+    return None
+
+
+def _rk4_factor(z: complex) -> complex:
+    """What one classical Runge-Kutta step multiplies ``exp(lambda t)`` by, ``z = lambda dt``."""
+    return 1.0 + z * (1.0 + z * (0.5 + z * (1.0 / 6.0 + z / 24.0)))
+
+
+def _too_stiff(vehicle: Vehicle, dt: float, v: float, mode: complex) -> str:
+    per_load = (vehicle.front_cornering_stiffness_npr / vehicle.front_load_n,
+                vehicle.rear_cornering_stiffness_npr / vehicle.rear_load_n)
+    index = vehicle.yaw_inertia_kgm2 / (
+        vehicle.mass_kg * vehicle.front_axle_to_cg_m * vehicle.rear_axle_to_cg_m)
+    return (f"the replay's {dt:g} s integration step cannot follow this vehicle's lateral "
+            f"motion: at {v:.1f} m/s a slip settles within {1000.0 / -mode.real:.3g} ms and the "
+            "step would make it grow instead. Its axles' cornering stiffness over their static "
+            f"loads is {per_load[0]:.3g} and {per_load[1]:.3g} per rad (car tyres about 10-30), "
+            f"its yaw inertia over m a b {index:.3g} (road vehicles about 1); check mass_kg, "
+            "yaw_inertia_kgm2 and the cornering stiffnesses (whole axle, N/rad)")

@@ -19,7 +19,9 @@ value, :data:`~curvespeed.dynamics.vehicle.DEFAULT_VEHICLE`)::
 
 Unknown tables or keys, values that are not finite numbers and values outside the ranges of
 :data:`~curvespeed.dynamics.vehicle.PARAMETER_RANGES` are refused with the file, the line and the
-key (:class:`~curvespeed.errors.VehicleError`).
+key (:class:`~curvespeed.errors.VehicleError`); so is a vehicle whose lateral motion the replay's
+integration step cannot follow (:func:`~curvespeed.dynamics.vehicle.lateral_step_problem`: tyres
+far stiffer than the mass they carry), with the file.
 """
 
 from __future__ import annotations
@@ -30,7 +32,8 @@ import re
 import tomllib
 from pathlib import Path
 
-from ..dynamics.vehicle import DEFAULT_VEHICLE, TyreCurve, Vehicle, validate_vehicle
+from ..dynamics.vehicle import (DEFAULT_VEHICLE, TyreCurve, Vehicle, check_parameter,
+                                validate_vehicle)
 from ..errors import VehicleError
 from ._common import check_nesting, finite_value, read_text, value_problem
 
@@ -93,8 +96,7 @@ def read_vehicle(path: str | Path) -> Vehicle:
             raise VehicleError(f"{where} {value_problem(value)}; give a plain number in the "
                                "unit its suffix names")
         values[key] = number
-        validate_vehicle(dataclasses.replace(DEFAULT_VEHICLE, **{key: number}),
-                         f"{path}: {_line(text, key, max(start, 0))}[vehicle]")
+        check_parameter(key, number, f"{path}: {_line(text, key, max(start, 0))}[vehicle]")
     return validate_vehicle(dataclasses.replace(DEFAULT_VEHICLE, **values), str(path))
 
 
