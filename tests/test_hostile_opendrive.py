@@ -201,3 +201,55 @@ def test_grades_beyond_what_roads_have_are_warned_about(tmp_path):
     assert result.exit_code == 2, result.output                 # was a ZeroDivisionError
     assert "steeper than the tyres can climb" in result.output
     assert not out.exists()
+
+
+# -- lane widths no lane has: they moved the path sideways without a word ------------------------
+
+#: The demo's shoulder, lane -2 of road 1's first section (line 38), 1 m wide.
+DEMO_SHOULDER = ('<lane id="-2" type="shoulder" level="false"><width sOffset="0.00000000000000000'
+                 'e+00" a="1.00000000000000000e+00"')
+
+
+@pytest.mark.parametrize("a, needles", [
+    ("1e6", ("its width is 1e+06 m at s = 0 m", "wider than 100 m", "check the units")),
+    ("-3.5", ("its width is -3.5 m at s = 0 m", "a width is zero or more")),
+])
+def test_a_lane_width_no_lane_has_names_its_line(tmp_path, a, needles):
+    wide = DEMO_SHOULDER.replace('a="1.00000000000000000e+00"', f'a="{a}"')
+    refused(tmp_path, demo_with(DEMO_SHOULDER, wide), "line 38, <width>", "road 1 lane -2",
+            *needles)
+
+
+def width_record(a, b, c, d, s_offset=0) -> str:
+    return f'<width sOffset="{s_offset!r}" a="{a!r}" b="{b!r}" c="{c!r}" d="{d!r}"/>'
+
+
+def with_lane_1_widths(records: str) -> str:
+    """A 50 m straight whose left lane 1 has the width ``records``."""
+    block = lanes()
+    assert block.count(width_record(3.5, 0, 0, 0)) == 2          # lanes 1 and -1
+    return document(road(1, LINE, 50.0, lane_xml=block.replace(width_record(3.5, 0, 0, 0),
+                                                               records, 1)))
+
+
+def test_a_width_cubic_dipping_below_zero_between_its_ends_is_refused(tmp_path):
+    # w(t) = 1 + 0.001 t (t - 25) (t - 50): 1 m at both ends of the 50 m road, lowest where
+    # w'(t) = 0, at t = 25 + 25/sqrt(3) (the quadratic formula on 3t^2 - 150t + 1250)
+    t = 25.0 + 25.0 / 3.0 ** 0.5
+    lowest = 1.0 + 0.001 * t * (t - 25.0) * (t - 50.0)
+    refused(tmp_path, with_lane_1_widths(width_record(1.0, 1.25, -0.075, 0.001)),
+            "line 4, <width>", "road 1 lane 1", f"its width is {lowest:.6g} m at s = {t:g} m",
+            "must stay at or above zero up to the next record")
+    # w(t) = 1 - 0.2 t + 0.004 t^2: 1 m at both ends, -1.5 m at t = 25 (vertex of the parabola)
+    refused(tmp_path, with_lane_1_widths(width_record(1.0, -0.2, 0.004, 0.0)),
+            "its width is -1.5 m at s = 25 m")
+
+
+def test_a_width_is_judged_only_up_to_the_next_record_and_round_off_is_read(tmp_path):
+    # 3.5 - 0.1 t reaches zero at 35 m, but the next record takes over at 30 m (0.5 m left);
+    # a lane opening from zero may start a hair below it (-5e-5 m at 50 m: coefficients' round-off)
+    records = width_record(3.5, -0.1, 0, 0) + width_record(3.5, 0, 0, 0, s_offset=30.0)
+    for text in (with_lane_1_widths(records), with_lane_1_widths(width_record(0, -1e-6, 0, 0))):
+        path = write(tmp_path, text)
+        result = CliRunner().invoke(cli, ["route", str(path)])
+        assert result.exit_code == 0 and "warning" not in result.output, result.output

@@ -29,7 +29,7 @@ from ..geometry.design_curves import (ElementCurve, ParamPoly3Curve, Piecewise3,
                                       ReferenceLine)
 from ..units import kmh_to_mps, mph_to_mps
 from ._common import cell_text, fail, number_problem, parse_number
-from .opendrive_checks import check_joins, check_length, check_start
+from .opendrive_checks import check_joins, check_length, check_start, check_widths
 
 #: Speed units of the standard's speed records, to m/s.
 SPEED_UNITS = {"m/s": lambda v: v, "km/h": kmh_to_mps, "mph": mph_to_mps}
@@ -349,13 +349,13 @@ def _sections(doc: _Doc, lanes_el, rid: str, road_length: float) -> list:
         for side in ("left", "center", "right"):
             block = doc.child(e, side)
             for lane_el in doc.children(block, "lane") if block is not None else []:
-                lane = _lane(doc, lane_el, rid, starts[k])
+                lane = _lane(doc, lane_el, rid, starts[k], end)
                 lanes[lane.id] = lane
         out.append(LaneSection(starts[k], end, lanes, doc.lines.get(e, 0)))
     return out
 
 
-def _lane(doc: _Doc, el, rid: str, section_s: float) -> Lane:
+def _lane(doc: _Doc, el, rid: str, section_s: float, section_end: float) -> Lane:
     raw = el.get("id")
     if raw is None or not raw.strip().lstrip("+-").isdigit():
         raise doc.fail(el, f"road {rid}: lane id {cell_text(raw or '')} is not a whole number")
@@ -364,10 +364,12 @@ def _lane(doc: _Doc, el, rid: str, section_s: float) -> Lane:
         raise doc.fail(doc.child(el, "border"), f"road {rid} lane {lane_id}: lane <border> "
                        "records are not evaluated by curvespeed; describe the lane by <width> "
                        "records (most editors can export either)")
+    width_els = doc.children(el, "width")
     rows = [(section_s + doc.number(w, "sOffset"), *(doc.number(w, k) for k in "abcd"))
-            for w in doc.children(el, "width")]
+            for w in width_els]
     if lane_id != 0 and not rows:
         raise doc.fail(el, f"road {rid} lane {lane_id} has no <width>; its centre is unknown")
+    check_widths(doc, width_els, rows, section_end, rid, lane_id)
     link = doc.child(el, "link")
     pred = succ = None
     if link is not None:

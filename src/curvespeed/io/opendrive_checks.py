@@ -4,7 +4,8 @@ The rules every route reader applies (docs/input_rules.md) hold here too: a plan
 beyond :data:`~curvespeed.route.MAX_COORDINATE_M` is refused, and so is a length no road on
 Earth has (a ``length="1e12"`` would otherwise be tabulated piece by piece until memory runs
 out). Consecutive plan records must also join: each record starts where the one before ends
-when evaluated up to the next record's station.
+when evaluated up to the next record's station. A lane's width records must give a width
+between zero and :data:`MAX_LANE_WIDTH_M` over the whole stretch each covers.
 """
 
 from __future__ import annotations
@@ -27,6 +28,14 @@ RECORD_GAP_WARN_M = 0.01
 #: vehicle's own positioning error (about a metre for consumer receivers), which no rounding of
 #: coordinates explains; the curvature and the profile would ignore the jump.
 RECORD_GAP_MAX_M = 1.0
+#: Widest lane accepted, metres: a traffic lane is about 2.5-4 m wide, and a verge, shoulder or
+#: median written as a lane of its own some tens of metres (common practice); a width beyond
+#: 100 m is a wrong unit or a broken export, and would put the path that far from the road.
+MAX_LANE_WIDTH_M = 100.0
+#: A width this little below zero is round-off, metres: a taper to zero written with its
+#: cubic's coefficients to six or more significant digits dips below zero by far less than a
+#: millimetre over a hundred metres; anything more is a lane folded over its neighbour.
+WIDTH_ROUND_OFF_M = 1e-3
 
 
 def check_length(doc, element, rid: str, what: str, length: float) -> None:
@@ -62,3 +71,46 @@ def check_joins(doc, geometries, curves, starts, rid: str) -> None:
                                           "its x, y and the previous record's length and shape")
         doc.warn(geometries[k], f"{text} (more than {RECORD_GAP_WARN_M:g} m, less than "
                                 f"{RECORD_GAP_MAX_M:g} m); the path follows each record as given")
+
+
+def check_widths(doc, elements, rows, section_end_m: float, rid: str, lane_id: int) -> None:
+    """Refuse a lane's ``<width>`` record whose cubic goes below zero (beyond
+    :data:`WIDTH_ROUND_OFF_M`) or above :data:`MAX_LANE_WIDTH_M` anywhere on the stretch it
+    covers: from its ``sOffset`` to the next record's, the last one to the section's end.
+    ``rows`` are ``(s, a, b, c, d)`` with ``s`` the road station, one per element."""
+    order = sorted(range(len(rows)), key=lambda k: rows[k][0])
+    for i, k in enumerate(order):
+        start = rows[k][0]
+        stop = rows[order[i + 1]][0] if i + 1 < len(order) else section_end_m
+        (low, at_low), (high, at_high) = _cubic_extremes(rows[k][1:], max(stop - start, 0.0))
+        here = f"road {rid} lane {lane_id}: its width"
+        if not high <= MAX_LANE_WIDTH_M:
+            raise doc.fail(elements[k], f"{here} is {high:.6g} m at s = {start + at_high:g} m, "
+                                        f"wider than {MAX_LANE_WIDTH_M:g} m, which no lane is "
+                                        "(a traffic lane is 2.5-4 m, a verge or median some "
+                                        "tens of metres); check the units (metres) and the "
+                                        "record's a, b, c, d")
+        if low < -WIDTH_ROUND_OFF_M:
+            raise doc.fail(elements[k], f"{here} is {low:.6g} m at s = {start + at_low:g} m: a "
+                                        "width is zero or more (a lane that ends narrows to "
+                                        "0 m); check the record's a, b, c, d, whose cubic "
+                                        "must stay at or above zero up to the next record")
+
+
+def _cubic_extremes(coefficients, span: float):
+    """The lowest and highest value of ``a + b t + c t^2 + d t^3`` on ``0 <= t <= span``, each
+    as ``(value, t)``: at an end, or where the derivative ``b + 2 c t + 3 d t^2`` is zero
+    (a value that overflows counts as infinitely wide)."""
+    a, b, c, d = coefficients
+    candidates = [0.0, span]
+    if d != 0.0:
+        disc = 4.0 * c * c - 12.0 * d * b
+        if disc >= 0.0:
+            root = math.sqrt(disc)
+            candidates += [(-2.0 * c + root) / (6.0 * d), (-2.0 * c - root) / (6.0 * d)]
+    elif c != 0.0:
+        candidates.append(-b / (2.0 * c))
+    found = [(a + t * (b + t * (c + t * d)), t) for t in candidates if 0.0 <= t <= span]
+    if not all(math.isfinite(value) for value, _ in found):
+        return (0.0, 0.0), (math.inf, next(t for v, t in found if not math.isfinite(v)))
+    return (min(found, key=lambda f: f[0]), max(found, key=lambda f: f[0]))
