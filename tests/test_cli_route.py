@@ -288,3 +288,27 @@ def test_drives_run_the_way_of_the_first_one(tmp_path):
         assert abs(float(start["lat"]) - float(expected["lat"])) < 2e-5        # about 2 m
         assert abs(float(start["lon"]) - float(expected["lon"])) < 3e-5
         assert abs(float(start["heading_rad"]) - float(expected["heading_rad"])) < 0.05
+
+
+@pytest.mark.parametrize("lon_end, kind", [(2.0, "oblique Mercator whose central line passes"),
+                                           (0.5, "transverse Mercator on the central meridian")])
+def test_the_summary_names_the_projection_used(tmp_path, lon_end, kind):
+    # invented lines along the equator: 222 km reach 111 km east and west of their middle,
+    # beyond the transverse Mercator's 80 km, and get the oblique Mercator along the equator;
+    # 56 km keep the transverse Mercator (before, both were said to be transverse)
+    from curvespeed.io import read_route
+
+    lon = np.linspace(0.0, lon_end, 201)
+    route = tmp_path / "equator.csv"
+    route.write_text("lat,lon\n" + "".join(f"0.0,{b:.8f}\n" for b in lon))
+    result = run(route, "--spacing", "50")
+    assert result.exit_code == 0, result.output
+    used = read_route(route).projection
+    assert f"(latitude/longitude, projected to a local {used.description})" in result.output
+    assert kind in result.output
+    assert ("transverse" in result.output) == (used.azimuth_deg is None)
+    if used.azimuth_deg is not None:
+        # the great circle through points on the equator is the equator: due east or west,
+        # to the round-off of its least-squares fit (1e-9 degree is far above it)
+        assert abs(used.azimuth_deg) == pytest.approx(90.0, abs=1e-9)
+        assert f"azimuth {used.azimuth_deg:.3f} deg" in result.output

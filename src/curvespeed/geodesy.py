@@ -101,6 +101,14 @@ class LocalProjection(_Transforms):
         return tmerc
 
     @property
+    def description(self) -> str:
+        """The projection in words, for summaries: which Mercator, and its centre."""
+        if self.azimuth_deg is None:
+            return f"transverse Mercator on the central meridian {self.lon0_deg:.6f} deg"
+        return (f"oblique Mercator whose central line passes {self.lat0_deg:.6f}, "
+                f"{self.lon0_deg:.6f} deg at azimuth {self.azimuth_deg:.3f} deg")
+
+    @property
     def proj_string(self) -> str:
         if self.azimuth_deg is None:
             return (
@@ -209,6 +217,14 @@ class GeoReference(_Transforms):
         if not crs.is_projected:
             raise ValueError("not a projected (metric) coordinate reference")
         return cls(text.strip())
+
+    @property
+    def description(self) -> str:
+        """The projection in words, for summaries: which Mercator, and its centre."""
+        if self.azimuth_deg is None:
+            return f"transverse Mercator on the central meridian {self.lon0_deg:.6f} deg"
+        return (f"oblique Mercator whose central line passes {self.lat0_deg:.6f}, "
+                f"{self.lon0_deg:.6f} deg at azimuth {self.azimuth_deg:.3f} deg")
 
     @property
     def proj_string(self) -> str:

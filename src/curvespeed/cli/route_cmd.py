@@ -68,7 +68,7 @@ def _summary(route_file, rt, geo) -> str:
     lines = [f"route          {route_file} ({geo.name})"]
     if hasattr(rt, "n_points"):
         lines.append(f"points read    {rt.n_points}" + (
-            " (latitude/longitude, projected to a local transverse Mercator)"
+            f" (latitude/longitude, projected to a local {rt.projection.description})"
             if rt.is_geographic else ""))
     else:
         lines.extend(_road_lines(rt))

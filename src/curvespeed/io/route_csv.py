@@ -7,7 +7,8 @@ Two forms are accepted (column names case-insensitive, surrounding spaces ignore
 * geographic: ``lat,lon`` and optionally ``ele_m`` (WGS84 degrees, elevation in metres).
 
 Lines starting with ``#`` (before or after the header) are comments; blank lines are ignored.
-Geographic routes are projected to a local transverse Mercator frame centred on the route
+Geographic routes are projected to a local transverse Mercator frame centred on the route, or
+an oblique Mercator along it for one reaching far east or west
 (:class:`curvespeed.geodesy.LocalProjection`). Every error names the file and the 1-based line.
 
 Spreadsheet exports: a header with no comma but semicolons (or tabs) is read as separated by
