@@ -219,14 +219,6 @@ class GeoReference(_Transforms):
         return cls(text.strip())
 
     @property
-    def description(self) -> str:
-        """The projection in words, for summaries: which Mercator, and its centre."""
-        if self.azimuth_deg is None:
-            return f"transverse Mercator on the central meridian {self.lon0_deg:.6f} deg"
-        return (f"oblique Mercator whose central line passes {self.lat0_deg:.6f}, "
-                f"{self.lon0_deg:.6f} deg at azimuth {self.azimuth_deg:.3f} deg")
-
-    @property
     def proj_string(self) -> str:
         return self.text
 
