@@ -336,10 +336,12 @@ def describe_fit(provenance: dict) -> list[str]:
         lines.append(f"               drift {drift:.3g} {unit} (from fixes taken standing still)")
     parts = [f"{provenance['points_read']} points read, {provenance['points_fitted']} fitted"]
     if "drives" in provenance:
-        spread = provenance["spread_between_drives_m"]
+        spread, off = provenance["spread_between_drives_m"], provenance["centreline_offset_m"]
         lines.append(f"drives         {len(provenance['drives'])} fused; they lie "
-                     f"{spread['rms']:.2f} m (RMS) from the fused centreline, at most "
-                     f"{spread['max']:.2f} m (station {spread['max_station_m']:.0f} m)")
+                     f"{spread['rms']:.2f} m (RMS) from their mean, at most {spread['max']:.2f} "
+                     f"m (station {spread['max_station_m']:.0f} m); the fused centreline "
+                     f"{off['rms']:.2f} m (RMS) from it, at most {off['max']:.2f} m (station "
+                     f"{off['max_station_m']:.0f} m)")
     if provenance["standstills_merged"]:
         parts.append(f"{provenance['standstills_merged']} standstill(s) merged "
                      f"({provenance['fixes_in_standstills']} fixes)")

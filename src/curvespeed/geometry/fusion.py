@@ -17,10 +17,13 @@ each other's drift, which no smoothing of a single drive can. :func:`build_fused
 3. averages the fixes of all drives (merged and averaged per drive as for a single drive, see
    :mod:`.drive`) in cells along the reference station, and fits the route to those means as to
    any points;
-4. reports how far the drives lie from the fused centreline: each drive's offsets, smoothed over
-   :data:`SPREAD_WINDOW_M`, give its offset at every station; their root mean square over the
-   drives is the spread (its RMS and largest value, with the station), in the geometry's
-   provenance.
+4. reports how far the drives lie from each other and from the fused centreline: each drive's
+   offsets, smoothed over :data:`SPREAD_WINDOW_M`, give its offset at every station. The
+   spread between the drives is their root mean square about the drives' mean offset there
+   (zero for copies of one drive, whichever way each runs); the centreline's offset is that
+   mean, where the fitted line leaves the drives (it rounds the tightest bends off a little,
+   as any smoothing does). Both as RMS and largest value, with the station, in the geometry's
+   provenance, and each drive's RMS offset from the centreline.
 """
 
 from __future__ import annotations
@@ -188,7 +191,9 @@ def _average(placed, first: Route, reference: Geometry, reverse: bool = False) -
 
 
 def _spread(geometry: Geometry, placed) -> dict:
-    """Each drive's smoothed offset from the fused centreline, and their spread."""
+    """Each drive's smoothed offset from the fused centreline; the drives' spread about their
+    mean offset, and that mean (the centreline's offset from the drives), station by station.
+    """
     stations = geometry.station_m
     offsets = []
     per_drive = []
@@ -201,12 +206,19 @@ def _spread(geometry: Geometry, placed) -> dict:
         per_drive.append({"source": route.source, "points": int(route.n_points),
                           "rms_offset_m": float(np.sqrt(np.nanmean(smooth**2)))})
     table = np.array(offsets)
-    spread = np.sqrt(np.nanmean(table**2, axis=0))
-    k = int(np.nanargmax(spread)) if np.any(np.isfinite(spread)) else 0
-    return {"drives": per_drive,
-            "spread_between_drives_m": {"rms": float(np.sqrt(np.nanmean(spread**2))),
-                                        "max": float(np.nanmax(spread)),
-                                        "max_station_m": float(stations[k])}}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)     # a station no drive reaches: nan
+        mean = np.nanmean(table, axis=0)
+        spread = np.sqrt(np.nanmean((table - mean) ** 2, axis=0))
+    return {"drives": per_drive, "spread_between_drives_m": _rms_and_max(spread, stations),
+            "centreline_offset_m": _rms_and_max(np.abs(mean), stations)}
+
+
+def _rms_and_max(values: np.ndarray, stations: np.ndarray) -> dict:
+    """RMS and largest of ``values`` along ``stations`` (nan where no drive is), and where."""
+    k = int(np.nanargmax(values)) if np.any(np.isfinite(values)) else 0
+    return {"rms": float(np.sqrt(np.nanmean(values**2))), "max": float(np.nanmax(values)),
+            "max_station_m": float(stations[k])}
 
 
 def _moving_mean(s: np.ndarray, d: np.ndarray, window: float, at: np.ndarray) -> np.ndarray:
