@@ -110,6 +110,10 @@ def _run(profile_file, vehicle_file, tracker, dwell_s):
 
         vehicle = read_vehicle(vehicle_file)
     settings = ReplaySettings(tracker=TrackerKind(tracker), dwell_s=dwell_s)
+    if vehicle_file is not None:        # one no integration step follows, refused naming its file
+        from ..dynamics.vehicle import integration_step
+
+        integration_step(vehicle, settings.integration_dt_s, str(vehicle_file))
     result = run_replay(sp, vehicle, settings, grip)
     return result, summarise(result)
 
@@ -153,6 +157,12 @@ def describe(result, summary, vehicle_file) -> list[str]:
         f"angle limit {summary.steer_angle_saturated_s:.2f} s, at the rate limit "
         f"{summary.steer_rate_saturated_s:.2f} s",
     ]
+    from ..dynamics.vehicle import INTEGRATION_STEP_S
+
+    if result.settings.integration_dt_s < INTEGRATION_STEP_S:
+        lines.append(f"integration    {result.settings.integration_dt_s * 1000:.3g} ms steps: "
+                     f"the vehicle's tyres are stiff for its mass and yaw inertia, which the "
+                     f"{INTEGRATION_STEP_S * 1000:g} ms step would not follow (docs/replay.md)")
     stats = result.tracker_stats
     if stats:
         lines.append(f"MPC            {stats['qp_solves']} QPs (OSQP), "

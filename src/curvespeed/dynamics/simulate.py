@@ -32,7 +32,7 @@ from __future__ import annotations
 import enum
 import functools
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -41,8 +41,8 @@ from ..friction import GripAlong
 from .lqr import LqrTracker, LqrWeights
 from .path import PathReference
 from .tracker_kind import TrackerKind
-from .vehicle import (DEFAULT_VEHICLE, INTEGRATION_STEP_S, Vehicle, VehicleModel, steer_rate,
-                      tyre_use, validate_vehicle)
+from .vehicle import (DEFAULT_VEHICLE, INTEGRATION_STEP_S, Vehicle, VehicleModel,
+                      integration_step, steer_rate, tyre_use, validate_vehicle)
 
 #: Columns of a replay, in output order (units in the names).
 REPLAY_COLUMNS = ("time_s", "station_m", "x_m", "y_m", "speed_mps", "lateral_error_m",
@@ -208,12 +208,18 @@ def replay(profile, vehicle: Vehicle = DEFAULT_VEHICLE,
     Raises
     ------
     VehicleError
-        A parameter of ``vehicle`` outside its range, or a vehicle the integration step cannot
-        follow (:func:`~curvespeed.dynamics.vehicle.validate_vehicle`), before any work.
+        A parameter of ``vehicle`` outside its range
+        (:func:`~curvespeed.dynamics.vehicle.validate_vehicle`), or a vehicle no integration
+        step down to 1/32 of ``settings.integration_dt_s`` follows
+        (:func:`~curvespeed.dynamics.vehicle.integration_step`, which the replay takes, and
+        its result's settings say), before any work.
     """
     from threadpoolctl import threadpool_limits
 
-    validate_vehicle(vehicle, "vehicle", settings.integration_dt_s)
+    validate_vehicle(vehicle, "vehicle")
+    step = integration_step(vehicle, settings.integration_dt_s)
+    if step != settings.integration_dt_s:
+        settings = replace(settings, integration_dt_s=step)
 
     # every matrix here is 5x5 to 180x210: the BLAS's threads only cost (measured 10-30x
     # slower gain tables with them on a loaded 2-core machine)

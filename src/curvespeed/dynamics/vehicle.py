@@ -358,12 +358,10 @@ def check_parameter(name: str, value, where: str = "vehicle") -> None:
                            f"({why}); give a value in that range")
 
 
-def validate_vehicle(vehicle: Vehicle, where: str = "vehicle",
-                     integration_dt_s: float = INTEGRATION_STEP_S) -> Vehicle:
+def validate_vehicle(vehicle: Vehicle, where: str = "vehicle") -> Vehicle:
     """Raise :class:`~curvespeed.errors.VehicleError` naming ``where`` when a parameter lies
-    outside :data:`PARAMETER_RANGES`, the tyre curve is none of :class:`TyreCurve`, or the
-    integration step cannot follow the vehicle's lateral motion (:func:`lateral_step_problem`);
-    return ``vehicle``."""
+    outside :data:`PARAMETER_RANGES` or the tyre curve is none of :class:`TyreCurve`; return
+    ``vehicle``."""
     from ..errors import VehicleError
 
     for name in PARAMETER_RANGES:
@@ -371,10 +369,26 @@ def validate_vehicle(vehicle: Vehicle, where: str = "vehicle",
     if not isinstance(vehicle.tyre_curve, TyreCurve):
         raise VehicleError(f"{where}: tyre_curve = {vehicle.tyre_curve!r} is not a TyreCurve; "
                            f"give one of {', '.join(f'TyreCurve.{c.name}' for c in TyreCurve)}")
-    problem = lateral_step_problem(vehicle, integration_dt_s)
-    if problem is not None:
-        raise VehicleError(f"{where}: {problem}")
     return vehicle
+
+
+#: The most Runge-Kutta steps :func:`integration_step` splits the replay's step into.
+MAX_SUBSTEPS = 32
+
+
+def integration_step(vehicle: Vehicle, dt: float, where: str = "vehicle") -> float:
+    """The replay's integration step for ``vehicle``: ``dt`` where the Runge-Kutta step follows
+    its lateral motion (:func:`lateral_step_problem`), else the longest ``dt / m`` that does,
+    ``m`` up to :data:`MAX_SUBSTEPS`. A light vehicle on car tyres needs a few (500 kg on the
+    built-in car's: the 0.01 s step made a slip that dies out in milliseconds grow instead);
+    one that no such step follows is refused (:class:`~curvespeed.errors.VehicleError`
+    naming ``where``): its values are far from any road vehicle's."""
+    from ..errors import VehicleError
+
+    for m in range(1, MAX_SUBSTEPS + 1):
+        if lateral_step_problem(vehicle, dt / m) is None:
+            return dt / m
+    raise VehicleError(f"{where}: {lateral_step_problem(vehicle, dt / MAX_SUBSTEPS)}")
 
 
 #: Speeds at which :func:`lateral_step_problem` looks at the lateral motion, m/s: from where the
@@ -426,7 +440,7 @@ def _too_stiff(vehicle: Vehicle, dt: float, v: float, mode: complex) -> str:
                 vehicle.rear_cornering_stiffness_npr / vehicle.rear_load_n)
     index = vehicle.yaw_inertia_kgm2 / (
         vehicle.mass_kg * vehicle.front_axle_to_cg_m * vehicle.rear_axle_to_cg_m)
-    return (f"the replay's {dt:g} s integration step cannot follow this vehicle's lateral "
+    return (f"even a {dt:.3g} s integration step cannot follow this vehicle's lateral "
             f"motion: at {v:.1f} m/s a slip settles within {1000.0 / -mode.real:.3g} ms and the "
             "step would make it grow instead. Its axles' cornering stiffness over their static "
             f"loads is {per_load[0]:.3g} and {per_load[1]:.3g} per rad (car tyres about 10-30), "

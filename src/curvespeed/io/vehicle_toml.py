@@ -19,9 +19,9 @@ value, :data:`~curvespeed.dynamics.vehicle.DEFAULT_VEHICLE`)::
 
 Unknown tables or keys, values that are not finite numbers and values outside the ranges of
 :data:`~curvespeed.dynamics.vehicle.PARAMETER_RANGES` are refused with the file, the line and the
-key (:class:`~curvespeed.errors.VehicleError`); so is a vehicle whose lateral motion the replay's
-integration step cannot follow (:func:`~curvespeed.dynamics.vehicle.lateral_step_problem`: tyres
-far stiffer than the mass they carry), with the file.
+key (:class:`~curvespeed.errors.VehicleError`). Whether the replay's integration step follows the
+vehicle's lateral motion is the replay's question (it splits the step where needed,
+:func:`~curvespeed.dynamics.vehicle.integration_step`).
 """
 
 from __future__ import annotations
