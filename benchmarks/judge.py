@@ -49,9 +49,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from benchmarks._elements import curvature_in, element_table
-from curvespeed.export import StationProfile, _state_at_distance, as_station_profile
+from curvespeed.export import StationProfile, as_station_profile
 from curvespeed.geometry.elements import Alignment
 from curvespeed.limits import Limits
+from curvespeed.step_motion import state_at_distance
 
 #: Largest station step between samples of the motion, metres.
 MAX_STEP_M = 0.125
@@ -158,7 +159,7 @@ def sample_motion(sp: StationProfile, alignment: Alignment, max_step_m: float = 
     k = np.concatenate((k, kj[inside]))
     d = np.concatenate((d, joints[inside] - s[kj[inside]]))
     station = np.concatenate((station, joints[inside]))   # exactly on the joint
-    _, v, a = _state_at_distance(sp, k, d)
+    _, v, a = state_at_distance(sp, k, d)
     return k, d, station, v, a
 
 
@@ -292,11 +293,11 @@ def judge_profile(profile, alignment: Alignment, limits: Limits,
     start = (d <= 0.0) & (k > 0)
     if start.any():
         before = k[start] - 1
-        a_other[start] = _state_at_distance(exact, before,
+        a_other[start] = state_at_distance(exact, before,
                                             np.diff(exact.station_m)[before])[2]
     end = (d >= np.diff(exact.station_m)[k]) & (k < n_steps - 1)
     if end.any():
-        a_other[end] = _state_at_distance(exact, k[end] + 1, np.zeros(int(end.sum())))[2]
+        a_other[end] = state_at_distance(exact, k[end] + 1, np.zeros(int(end.sum())))[2]
     lat_jerk = np.max([np.abs(r * v ** 3 + 2.0 * kap * v * acc)
                        for kap, r in ((k_in, r_in), (k_out, r_out)) for acc in (a, a_other)],
                       axis=0)

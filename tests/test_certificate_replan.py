@@ -420,6 +420,33 @@ def test_state_at_drives_a_launch_ramp_at_constant_jerk():
         assert (v2 - v0) / (2 * h) == pytest.approx(a1, rel=1e-9)
 
 
+def test_state_at_drives_the_step_where_a_launch_turns_through_its_turn():
+    """A window leaving rest on a 40 m route that ends at rest, at 0.5 m/s^3 and 3 m/s^2: the
+    move turns below the cap 40 / 12 = 3.3 m from rest (double-S closed form, Biagiotti &
+    Melchiorri 2008, section 3.4), inside step 3. ``state_at`` drives that step as the turn
+    (curvespeed.turn_step): the acceleration goes on from the ramp's across station 3 and rises
+    at the bound up to the turn, then falls at it (finite differences at 1 ms away from the
+    turn and the step's ends, within 1e-3 of the bound: the window's speeds are the ramp's to
+    about 1e-6, and the turn's jerk is their third-order function)."""
+    from helpers import geometry_from_curvature
+
+    geo = geometry_from_curvature(np.zeros(41), ds=1.0)
+    limits = Limits(max_jerk_mps3=0.5, max_accel_mps2=3.0, max_decel_mps2=3.0,
+                    max_speed_mps=30.0)
+    w = Replanner(geo, limits, RouteConstraints()).replan(0.0, 0.0, 0.0)
+    assert np.flatnonzero(w.problem.turn_step).tolist() == [3, 36]
+    t0, t1 = float(w.time_s[3]), float(w.time_s[4])
+    h = 1e-3
+    times = np.linspace(t0 - 0.02, t1 - 2 * h, 60)
+    a = np.array([w.state_at(t)[2] for t in times])
+    rate = np.array([(w.state_at(t + h)[2] - w.state_at(t - h)[2]) / (2 * h) for t in times])
+    turn = times[int(np.argmax(a))]                 # the peak: the rates change sign there
+    away = np.abs(times - turn) > 2 * h
+    np.testing.assert_allclose(np.abs(rate[away]), 0.5, rtol=1e-3)
+    assert np.all(rate[away & (times < turn)] > 0) and np.all(rate[away & (times > turn)] < 0)
+    assert t0 < turn < t1
+
+
 def test_a_vehicle_following_each_window_exactly_never_needs_the_limits_raised():
     """Followed exactly (the next state from ``state_at``), a window's motion is continued by
     the next window within every limit: over 300 calls 0.1 s apart along the mountain road,

@@ -35,7 +35,11 @@ Steps a launch's jerk ramp spans
     2 (:attr:`StationProfile.linear_time_coef`, from the ``linear_accel`` step kind and
     ``time_s``). Its start acceleration and jerk follow from ``ds``, the two speeds and ``T``
     (:func:`curvespeed.rest_step.linear_accel_step`); the station reached at a time is the cubic
-    in time, and the time at a station is found by bisection.
+    in time, and the time at a station is found by bisection. The step in which such a move
+    turns below its acceleration cap is driven through the turn: from the acceleration the
+    ramp's step next to it ends with, linear in time up to one instant and down after it
+    (the ``accel_turn`` step kind, :mod:`curvespeed.turn_step`). :mod:`curvespeed.step_motion`
+    drives each step as its kind says.
 
 All formulas are used as they stand: samples are placed step by step from node times that are
 sums of ``T[k]``, so nothing is integrated numerically and nothing drifts; the last sample is the
@@ -75,9 +79,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import rest_step, turn_step
 from .export_shape import elevation_at, hermite_position, interpolate_latlon, stop_names_at
 from .limits import check_dwell
+from .step_motion import state_at_distance, state_at_time
 from .station_profile import (RAMP_TIME_EXCESS, StationProfile, as_station_profile,
                               check_stations_and_speeds, detect_rest_steps,
                               make_station_profile, planned_time_mismatch,
@@ -335,7 +339,7 @@ def sample_in_time(profile, dt_s: float, dwell_s: float = 0.0,
     k = np.clip(np.searchsorted(depart, t, side="right") - 1, 0, n_steps - 1)
     tau = np.clip(t - depart[k], 0.0, sp.step_time_s[k])
     held = t > arrive[k + 1]  # arrived at node k+1 (a stop) and not yet left
-    d, v, accel = _state_at_time(sp, k, tau)
+    d, v, accel = state_at_time(sp, k, tau)
     accel = np.where(held, 0.0, accel)
     # the final sample is the end of the route by definition (not by round-off)
     d[-1] = sp.station_m[-1] - sp.station_m[k[-1]]
@@ -381,99 +385,13 @@ def sample_by_station(profile, station_step_m: float, dwell_s: float = 0.0,
     k = np.clip(np.searchsorted(sp.station_m, sigma, side="right") - 1, 0, n_steps - 1)
     ds = np.diff(sp.station_m)[k]
     d = np.clip(sigma - sp.station_m[k], 0.0, ds)
-    tau, v, accel = _state_at_distance(sp, k, d)
+    tau, v, accel = state_at_distance(sp, k, d)
     t = depart[k] + tau
     # at a node itself: its arrival time (for a stop, the dwell follows)
     t = np.where(d <= 0.0, arrive[k], t)
     t = np.where(d >= ds, arrive[k + 1], t)
     return _build(sp, k, d, t, v, accel, SamplingMode.STATION, step, dwell_s, arrive[-1],
                   dwells, stop_names)
-
-
-def _rest_steps_at(sp: StationProfile, k):
-    """For steps ``k``: driven with a jerk ramp next to rest, leaving rest, arriving at rest
-    (driven as leaving, backwards), their shape ``u`` and the speed at their moving end."""
-    v0, v1 = sp.speed_mps[k], sp.speed_mps[k + 1]
-    ramp = sp.rest_step[k]
-    leaving = ramp & (v0 <= 0.0)
-    arriving = ramp & (v1 <= 0.0)
-    u = rest_step.shape_from_time_coef(np.where(ramp, sp.rest_time_coef[k], 2.0))
-    return ramp, leaving, arriving, u, np.where(leaving, v1, v0)
-
-
-def _state_at_time(sp: StationProfile, k, tau):
-    """Distance into step ``k``, speed and acceleration ``tau`` seconds after leaving node k."""
-    ds = np.diff(sp.station_m)[k]
-    v0, v1 = sp.speed_mps[k], sp.speed_mps[k + 1]
-    T = sp.step_time_s[k]
-    a = sp.step_accel_mps2[k]
-    # constant acceleration
-    d = v0 * tau + 0.5 * a * tau * tau
-    v = v0 + a * tau
-    acc = a
-    ramp, leaving, arriving, u, v_moving = _rest_steps_at(sp, k)
-    back = np.where(arriving, T - tau, tau)
-    d_r, v_r, a_r = rest_step.leaving_state_at_time(u, v_moving, ds, back)
-    d = np.where(leaving, d_r, np.where(arriving, ds - d_r, d))
-    v = np.where(ramp, v_r, v)
-    acc = np.where(leaving, a_r, np.where(arriving, -a_r, acc))
-    linear = sp.linear_step[k]
-    if linear.any():
-        d_l, v_l, a_l = rest_step.linear_state_at_time(ds[linear], v0[linear], v1[linear],
-                                                       T[linear], tau[linear])
-        d, v, acc = d.copy(), v.copy(), np.broadcast_to(acc, d.shape).copy()
-        d[linear], v[linear], acc[linear] = d_l, v_l, a_l
-        turn = _turns_at(sp, k)
-        if turn is not None:
-            shape, on = turn
-            d[on], v[on], acc[on] = turn_step.driven_state_at_time(
-                shape, k[on], ds[on], v0[on], v1[on], T[on], tau[on])
-    at_end = tau >= T
-    d = np.clip(np.where(at_end, ds, d), 0.0, ds)
-    v = np.where(at_end, v1, np.maximum(v, 0.0))
-    return d, v, np.asarray(acc, dtype=float)
-
-
-def _state_at_distance(sp: StationProfile, k, d):
-    """Time since leaving node k, speed and acceleration at distance ``d`` into step ``k``."""
-    ds = np.diff(sp.station_m)[k]
-    v0, v1 = sp.speed_mps[k], sp.speed_mps[k + 1]
-    T = sp.step_time_s[k]
-    a = sp.step_accel_mps2[k]
-    # constant acceleration: v^2 = v0^2 + 2 a d and the cancellation-free root for tau
-    v = np.sqrt(np.maximum(v0 * v0 + 2.0 * a * d, 0.0))
-    v = np.where(d >= ds, v1, v)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        tau = np.where(d > 0.0, 2.0 * d / (v0 + v), 0.0)
-    acc = a
-    ramp, leaving, arriving, u, v_moving = _rest_steps_at(sp, k)
-    from_rest = np.where(arriving, ds - d, d)
-    t_r = rest_step.leaving_time_at_distance(u, v_moving, ds, from_rest)
-    _, v_r, a_r = rest_step.leaving_state_at_time(u, v_moving, ds, t_r)
-    tau = np.where(leaving, t_r, np.where(arriving, T - t_r, tau))
-    v = np.where(ramp, v_r, v)
-    acc = np.where(leaving, a_r, np.where(arriving, -a_r, acc))
-    linear = sp.linear_step[k]
-    if linear.any():
-        args = ds[linear], v0[linear], v1[linear], T[linear]
-        t_l = rest_step.linear_time_at_distance(*args, d[linear])
-        _, v_l, a_l = rest_step.linear_state_at_time(*args, t_l)
-        tau, v, acc = tau.copy(), v.copy(), np.broadcast_to(acc, tau.shape).copy()
-        tau[linear], v[linear], acc[linear] = t_l, v_l, a_l
-        turn = _turns_at(sp, k)
-        if turn is not None:
-            shape, on = turn
-            tau[on], v[on], acc[on] = turn_step.driven_time_at_distance(
-                shape, k[on], ds[on], v0[on], v1[on], T[on], d[on])
-    return tau, v, np.asarray(acc, dtype=float)
-
-
-def _turns_at(sp: StationProfile, k):
-    """``(shapes, mask)`` of the turn steps among steps ``k`` (:mod:`curvespeed.turn_step`),
-    or None where there are none."""
-    if sp.turn_step is None or not sp.turn_step[k].any():
-        return None
-    return sp.turn_shapes, sp.turn_step[k]
 
 
 def _build(sp: StationProfile, k, d, t, v, accel, mode, interval, dwell_s, total,

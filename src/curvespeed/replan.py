@@ -170,20 +170,12 @@ def _step(problem, speed, distance, j: int):
     kind = ("linear" if linear else "constant" if math.isnan(u) or (v0 != 0.0 and v1 != 0.0)
             else "leaving" if v0 == 0.0 else "arriving")
     if linear and problem.turn_step is not None and problem.turn_step[j]:
-        shape = _turn_shape(problem, speed, distance, j)
+        # anchored on the ramp's step next to it in the window; where the window starts inside
+        # it, or its speeds fit no turn, driven at constant jerk
+        shape = turn_step.step_shape(distance, speed, problem.rest_u, problem.time_coef,
+                                     linear_time_coef(problem), j)
         kind = "linear" if shape is None else shape
     return kind, u, v0, v1, ds
-
-
-def _turn_shape(problem, speed, distance, j: int):
-    """The shape of turn step ``j`` as the window drives it (:func:`curvespeed.turn_step.shapes`,
-    anchored on the ramp's step next to it in the window), or None where it has none there
-    (the window starts inside it, or its speeds fit none): driven at constant jerk then."""
-    turn = np.zeros(problem.time_coef.size, dtype=bool)
-    turn[j] = True
-    rest = np.where(np.isnan(problem.rest_u), 0.0, problem.time_coef)
-    shape = turn_step.shapes(distance, speed, rest, linear_time_coef(problem), turn)
-    return shape if shape.ok[j] else None
 
 
 def _step_state(problem, speed, distance, time, j: int, tau: float):

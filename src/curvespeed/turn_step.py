@@ -187,6 +187,16 @@ def shapes(station_m, speed_mps, rest_time_coef, linear_time_coef, turn) -> Turn
     return TurnShapes(*out)
 
 
+def step_shape(station_m, speed_mps, rest_u, time_coef, linear_time_coef, j: int):
+    """:func:`shapes` of step ``j`` alone, for a problem's steps (``rest_u`` NaN away from
+    rest, ``time_coef`` its steps' time coefficients), or None where it has none."""
+    turn = np.zeros(np.asarray(time_coef).size, dtype=bool)
+    turn[j] = True
+    rest = np.where(np.isnan(rest_u), 0.0, time_coef)
+    shape = shapes(station_m, speed_mps, rest, linear_time_coef, turn)
+    return shape if shape.ok[j] else None
+
+
 def _ramp_accels(ds, v, rest_c, lin_c):
     """Per step, the acceleration it ends with where it is a launch's ramp step (a
     ``linear_accel`` step, or a ``jerk_ramp`` step leaving rest) and the one it starts with
@@ -242,5 +252,5 @@ def accel_points(shape: TurnShapes, k, duration):
 
 
 __all__ = ["TOLERANCE", "TurnShapes", "accel_points", "driven_state_at_time",
-           "driven_time_at_distance", "shapes", "solve_shape", "state_at_time",
-           "time_at_distance"]
+           "driven_time_at_distance", "shapes", "solve_shape", "state_at_time", "step_shape",
+           "time_at_distance", "timed_at_jerk"]
