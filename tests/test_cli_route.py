@@ -312,3 +312,20 @@ def test_the_summary_names_the_projection_used(tmp_path, lon_end, kind):
         # to the round-off of its least-squares fit (1e-9 degree is far above it)
         assert abs(used.azimuth_deg) == pytest.approx(90.0, abs=1e-9)
         assert f"azimuth {used.azimuth_deg:.3f} deg" in result.output
+
+
+def test_a_straight_route_is_summarised_as_straight(tmp_path):
+    # an invented line 222 km along the equator: its fitted curvature is round-off, and the
+    # summary printed a smallest radius of 9e32 m and a bound's of 1e12 m; a 500 m line in
+    # metres, a bound's radius of 3,500 km. Radii over 100 km (0.0094 m/s^2 at 110 km/h) are
+    # straight for a speed plan.
+    lon = np.linspace(0.0, 2.0, 201)
+    equator = tmp_path / "equator.csv"
+    equator.write_text("lat,lon\n" + "".join(f"0.0,{b:.8f}\n" for b in lon))
+    line = tmp_path / "line.csv"
+    line.write_text("x_m,y_m\n" + "".join(f"{x:.1f},0.0\n" for x in range(0, 501, 5)))
+    for route, spacing in ((equator, "50"), (line, "1")):
+        result = run(route, "--spacing", spacing)
+        assert result.exit_code == 0, result.output
+        assert "min radius     none (straight: no radius under 100 km)" in result.output
+        assert "bound radius" not in result.output
