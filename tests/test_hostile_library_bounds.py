@@ -114,3 +114,21 @@ def test_export_refuses_more_laps_than_any_run_drives(tmp_path):
     assert result.exit_code == 2 and snapshot(tmp_path) == before
     assert "1001 laps is more than 1000" in result.output
     assert "ask for at most 1000 laps" in result.output
+
+
+# --- samples: a step of 1e-9 s asked numpy for 3e10 samples --------------------------------
+
+@pytest.mark.parametrize("sampler, unit", [(sample_in_time, "s"), (sample_by_station, "m")])
+def test_more_samples_than_any_trajectory_holds_are_refused(sampler, unit):
+    # the stopping stretch takes 30 s over 200 m: 3e10 or 2e11 samples at 1e-9, where the
+    # command line refuses more than MAX_SAMPLES (5 million), naming its option
+    from curvespeed.errors import SpeedFileError
+    from curvespeed.export import MAX_SAMPLES
+
+    span = STOPPING.moving_time_s if unit == "s" else STOPPING.length_m
+    with pytest.raises(SpeedFileError) as caught:
+        sampler(STOPPING, 1e-9)
+    assert str(caught.value) == (
+        f"stopping: sampled every 1e-09 {unit} over its {span:.6g} {unit}, it would take "
+        f"{math.ceil(span / 1e-9 - 1e-9):.3g} samples, more than {MAX_SAMPLES}: sample it "
+        "less often, or a shorter profile")

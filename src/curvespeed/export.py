@@ -276,6 +276,24 @@ def node_arrival_s(profile, dwells) -> np.ndarray:
     return _node_schedule(as_station_profile(profile), np.asarray(dwells, dtype=float))[0]
 
 
+#: The most samples a trajectory may have: 5 million rows are about 1 GB of CSV, 14 hours at
+#: 0.01 s; ``export`` refuses more, naming the option, and the samplers refuse them too.
+MAX_SAMPLES = 5_000_000
+
+
+def _sample_count(sp: StationProfile, count: int, span: float, step: float,
+                  unit: str) -> int:
+    """``count``, or :class:`~curvespeed.errors.SpeedFileError` where it is more than
+    :data:`MAX_SAMPLES` (a script's sampling; ``export`` refuses first, naming its option)."""
+    if count > MAX_SAMPLES:
+        from .errors import SpeedFileError
+
+        raise SpeedFileError(f"{sp.source}: sampled every {step:g} {unit} over its {span:.6g} "
+                             f"{unit}, it would take {count:.3g} samples, more than "
+                             f"{MAX_SAMPLES}: sample it less often, or a shorter profile")
+    return count
+
+
 def _regular_count(span: float, interval: float) -> int:
     """Samples at ``0, interval, 2 interval, ...`` strictly before ``span`` (the end gets a
     sample of its own): at least one, the start, however large the interval. A ratio beyond
@@ -331,7 +349,7 @@ def sample_in_time(profile, dt_s: float, dwell_s: float = 0.0,
     dwells = stop_dwells(sp, dwell_s, stop_dwell_s)
     arrive, depart, stop = _node_schedule(sp, dwells)
     total = float(arrive[-1])
-    regular = dt_s * np.arange(_regular_count(total, dt_s))
+    regular = dt_s * np.arange(_sample_count(sp, _regular_count(total, dt_s), total, dt_s, "s"))
     t = np.concatenate((regular, [total]))
 
     n_steps = sp.n_nodes - 1
@@ -378,7 +396,8 @@ def sample_by_station(profile, station_step_m: float, dwell_s: float = 0.0,
     dwells = stop_dwells(sp, dwell_s, stop_dwell_s)
     arrive, depart, stop = _node_schedule(sp, dwells)
     s0, s1 = float(sp.station_m[0]), float(sp.station_m[-1])
-    grid = s0 + step * np.arange(_regular_count(s1 - s0, step))
+    grid = s0 + step * np.arange(_sample_count(sp, _regular_count(s1 - s0, step), s1 - s0,
+                                               step, "m"))
     sigma = np.unique(np.concatenate((grid, sp.station_m[sp.stop_nodes], [s1])))
 
     n_steps = sp.n_nodes - 1

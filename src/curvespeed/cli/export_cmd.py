@@ -13,8 +13,6 @@ from ._common import FiniteFloat, echo, handle_errors
 
 #: Default time step, s (20 samples per second).
 DEFAULT_DT_S = 0.05
-#: Refuse to write more samples than this (a too-small --dt or --station-step, most likely).
-MAX_SAMPLES = 5_000_000
 
 
 class _Positive(FiniteFloat):
@@ -281,8 +279,8 @@ def _summary(profile_file, sp, trajectory, run, dwell_s, own) -> list[str]:
 
 def _sample(sp, dt_s, station_step_m, dwell_s, own=None, names=None):
     """The trajectory (time or station sampled) and how it was sampled, in words."""
-    from ..export import (count_station_samples, count_time_samples, sample_by_station,
-                          sample_in_time)
+    from ..export import (MAX_SAMPLES, count_station_samples, count_time_samples,
+                          sample_by_station, sample_in_time)
 
     if station_step_m is not None:
         count = count_station_samples(sp, station_step_m)
@@ -308,7 +306,7 @@ def _too_many_in_time(sp, dt_s: float, given: bool, count: int, dwell_s: float, 
     import numpy as np
 
     from ..errors import SpeedFileError
-    from ..export import stop_dwells
+    from ..export import MAX_SAMPLES, stop_dwells
 
     held = float(np.sum(stop_dwells(sp, dwell_s, own)))
     total = sp.moving_time_s + held
