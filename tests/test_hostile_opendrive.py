@@ -253,3 +253,20 @@ def test_a_width_is_judged_only_up_to_the_next_record_and_round_off_is_read(tmp_
         path = write(tmp_path, text)
         result = CliRunner().invoke(cli, ["route", str(path)])
         assert result.exit_code == 0 and "warning" not in result.output, result.output
+
+
+# -- a lane offset no road has: it moved every lane sideways without a word ---------------------
+
+@pytest.mark.parametrize("record, needles", [
+    ('<laneOffset s="0" a="1e6" b="0" c="0" d="0"/>', ("its lane offset is 1e+06 m at s = 0 m",)),
+    # o(t) = -0.01 t^2 on the 50 m road: -25 m at 50 m, within 100 m; -0.05 t^2 reaches -125 m
+    ('<laneOffset s="0" a="0" b="0" c="-0.05" d="0"/>', ("its lane offset is -125 m at s = 50 m",)),
+])
+def test_a_lane_offset_no_road_has_names_its_line(tmp_path, record, needles):
+    refused(tmp_path, document(road(1, LINE, 50.0, lane_xml=lanes(lane_offset=record))),
+            "line 4, <laneOffset>", "road 1", "more than 100 m from the reference line",
+            *needles)
+    fine = record.replace('c="-0.05"', 'c="-0.01"').replace('a="1e6"', 'a="2.5"')
+    path = write(tmp_path, document(road(1, LINE, 50.0, lane_xml=lanes(lane_offset=fine))))
+    result = CliRunner().invoke(cli, ["route", str(path)])
+    assert result.exit_code == 0, result.output

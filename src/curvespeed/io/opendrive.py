@@ -29,7 +29,8 @@ from ..geometry.design_curves import (ElementCurve, ParamPoly3Curve, Piecewise3,
                                       ReferenceLine)
 from ..units import kmh_to_mps, mph_to_mps
 from ._common import cell_text, fail, number_problem, parse_number
-from .opendrive_checks import check_joins, check_length, check_start, check_widths
+from .opendrive_checks import (check_joins, check_lane_offsets, check_length, check_start,
+                               check_widths)
 
 #: Speed units of the standard's speed records, to m/s.
 SPEED_UNITS = {"m/s": lambda v: v, "km/h": kmh_to_mps, "mph": mph_to_mps}
@@ -240,6 +241,7 @@ def _road(doc: _Doc, el) -> Road:
     if lanes is None:
         raise doc.fail(el, f"road {rid} has no <lanes>; the standard requires them")
     offset = _records(doc, lanes, "laneOffset")
+    check_lane_offsets(doc, doc.children(lanes, "laneOffset"), length, rid)
     sections = _sections(doc, lanes, rid, reference.length_m)
     types = []
     for t in doc.children(el, "type"):

@@ -97,6 +97,32 @@ def check_widths(doc, elements, rows, section_end_m: float, rid: str, lane_id: i
                                         "must stay at or above zero up to the next record")
 
 
+#: Largest lateral shift of a road's lanes from its reference line, m: a ``<laneOffset>`` moves
+#: them by up to a few lane widths where a road widens or its marking shifts (common practice);
+#: beyond 100 m it is a wrong unit or a broken export, and would put the path that far from the
+#: road.
+MAX_LANE_OFFSET_M = 100.0
+
+
+def check_lane_offsets(doc, elements, road_length_m: float, rid: str) -> None:
+    """Refuse a ``<laneOffset>`` record whose cubic leaves +-:data:`MAX_LANE_OFFSET_M`
+    anywhere on the stretch it covers: from its ``s`` to the next record's, the last one to the
+    road's end."""
+    rows = [tuple(doc.number(e, k) for k in "sabcd") for e in elements]
+    order = sorted(range(len(rows)), key=lambda k: rows[k][0])
+    for i, k in enumerate(order):
+        start = rows[k][0]
+        stop = rows[order[i + 1]][0] if i + 1 < len(order) else road_length_m
+        (low, at_low), (high, at_high) = _cubic_extremes(rows[k][1:], max(stop - start, 0.0))
+        value, at = (high, at_high) if not high <= -low else (low, at_low)
+        if not abs(value) <= MAX_LANE_OFFSET_M:
+            raise doc.fail(elements[k], f"road {rid}: its lane offset is {value:.6g} m at "
+                                        f"s = {start + at:g} m, more than {MAX_LANE_OFFSET_M:g} m "
+                                        "from the reference line, which no road's lanes are "
+                                        "(a lane offset is up to a few lane widths); check the "
+                                        "units (metres) and the record's a, b, c, d")
+
+
 def _cubic_extremes(coefficients, span: float):
     """The lowest and highest value of ``a + b t + c t^2 + d t^3`` on ``0 <= t <= span``, each
     as ``(value, t)``: at an end, or where the derivative ``b + 2 c t + 3 d t^2`` is zero
