@@ -250,7 +250,8 @@ def edit_profile(path, tmp_path, line: int, column: str, value: str):
     (3, "speed_mps", "0.0", "line 2 (station 0.0 m): speed is zero here and at the next"),
     (50, "x_m", "abc", "line 50: column 'x_m' value 'abc' is not a number"),
     (40, "step_kind", "cubic", "line 40: column 'step_kind' value 'cubic' is not a step kind; "
-                               "use constant_accel, jerk_ramp, linear_accel, accel_turn or constant_jerk"),
+                               "use constant_accel, jerk_ramp, linear_accel, accel_turn or "
+                               "constant_jerk"),
     (40, "step_kind", "", "line 40: column 'step_kind' value '' is not a step kind"),
     (40, "step_kind", "constant_jerk", "line 40: column 'step_kind' value 'constant_jerk' is "
                                        "allowed only on a step with exactly one end at rest"),

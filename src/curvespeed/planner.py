@@ -147,8 +147,9 @@ def _turn_steps(problem, speed, rest_coef, linear) -> tuple[np.ndarray, np.ndarr
     up to 1.005 of the bound on the speeds of a 200 m move, and a file read back may move it
     further. At the bound itself it takes a time of its own (the 1,728 moves of
     ``benchmarks/exact_roads.py --wide`` changed by at most 0.021 % with it and the cap on the
-    step's far node, :func:`curvespeed.launch_steps.launch_steps`). A step whose speeds no such motion joins (a plan
-    held off the ramp's motion there: a curve, say) stays a constant-jerk step."""
+    step's far node, :func:`curvespeed.launch_steps.launch_steps`). A step whose speeds no
+    such motion joins (a plan held off the ramp's motion there: a curve, say) stays a
+    constant-jerk step."""
     if problem.turn_step is None:
         return linear, None
     from . import turn_step
