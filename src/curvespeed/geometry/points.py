@@ -186,9 +186,29 @@ def build_geometry(route: Route, spacing_m: float = 1.0, position_noise_m: float
     The geometry feeds speed limits that move vehicles. It supports engineering judgment; speeds
     on public roads and advisory signs follow local codes and licensed practice.
     """
+    check_arguments(spacing_m, position_noise_m, elevation_noise_m, closure_tolerance_m,
+                    route.source)
+    if route.n_points < 3:
+        raise RouteGeometryError(
+            f"{route.source}: only {route.n_points} point(s); a route needs at least 3")
+    return fit_drive_points(route, prepare_drive(route, part), spacing_m, position_noise_m,
+                            elevation_noise_m, closed, closure_tolerance_m, use_elevation)
+
+
+def fit_drive_points(route: Route, drive: DrivePoints, spacing_m: float = 1.0,
+                     position_noise_m: float | None = None,
+                     elevation_noise_m: float | None = None, closed: bool | None = None,
+                     closure_tolerance_m: float | None = None,
+                     use_elevation: bool = True) -> Geometry:
+    """The geometry of points already made ready for the fit: a drive's
+    (:func:`.drive.prepare_drive`) or the means of several drives (:mod:`.fusion`), each
+    point carrying how many fixes it averages (its weight in the fit and in the noise estimate),
+    their times and the drift rate. ``route`` gives the source, name and frame; the other
+    arguments are :func:`build_geometry`'s.
+    """
     source = route.source
     check_arguments(spacing_m, position_noise_m, elevation_noise_m, closure_tolerance_m, source)
-    pts = _points(route, part, use_elevation, closed, closure_tolerance_m, position_noise_m,
+    pts = _points(route, drive, use_elevation, closed, closure_tolerance_m, position_noise_m,
                   spacing_m)
     path = _fit_path(pts.x, pts.y, pts.count, pts.closed, position_noise_m, spacing_m, source)
     nodes = _nodes(path, pts, spacing_m, source)
@@ -244,13 +264,9 @@ class _Points:
     closed: bool
 
 
-def _points(route, part, use_elevation, closed, closure_tolerance_m, noise_m,
+def _points(route, drive: DrivePoints, use_elevation, closed, closure_tolerance_m, noise_m,
             spacing_m) -> _Points:
     source = route.source
-    if route.n_points < 3:
-        raise RouteGeometryError(
-            f"{source}: only {route.n_points} point(s); a route needs at least 3")
-    drive = prepare_drive(route, part)
     x, y, where, count, time = drive.x_m, drive.y_m, drive.where, drive.count, drive.time
     z = drive.z_m if use_elevation else None
     if x.size < 3:
