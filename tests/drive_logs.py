@@ -80,6 +80,19 @@ def arc_interiors(alignment: Alignment, margin_m: float) -> list[tuple[float, fl
     return out
 
 
+def tightest_bend(alignment: Alignment) -> tuple[float, float]:
+    """(start, end) stations of the run of curved elements (its clothoids and arc) that holds
+    the road's tightest arc."""
+    ends = np.cumsum([0.0] + [e.length_m for e in alignment.elements])
+    sharp = [max(abs(e.start_1pm), abs(e.end_1pm)) for e in alignment.elements]
+    lo = hi = int(np.argmax(sharp))
+    while lo > 0 and sharp[lo - 1] > 0.0:
+        lo -= 1
+    while hi < len(sharp) - 1 and sharp[hi + 1] > 0.0:
+        hi += 1
+    return float(ends[lo]), float(ends[hi + 1])
+
+
 def straight_interiors(alignment: Alignment, margin_m: float) -> list[tuple[float, float]]:
     out = []
     s = 0.0
