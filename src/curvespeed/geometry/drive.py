@@ -280,11 +280,17 @@ def _rest_runs(slow: np.ndarray, position: np.ndarray, extent: float) -> list[tu
 
     Slow runs whose pilot positions, gap included, stay that close are one standstill: the
     smoothed fixes of a standing receiver wander, and may briefly look faster than the
-    threshold."""
+    threshold. So are the fixes between the log's first (last) fix and a standstill whose
+    pilot positions stay that close: the pilot, a spline free at its ends, and the speed window
+    cut short there make a standing receiver look faster than the threshold over its first
+    second or so (0.77 m/s at the first of a consumer log's 20 s standstill at 10 Hz, whose first
+    ten fixes then became a point of their own 1.8 m off the standstill's, and the fit refused
+    the zig-zag as a cusp)."""
     edges = np.flatnonzero(np.diff(np.concatenate(([0], slow.view(np.int8), [0]))))
 
-    def within(a: int, b: int) -> bool:
-        return float(np.max(np.hypot(*(position[a: b + 1] - position[a]).T))) <= extent
+    def within(a: int, b: int, origin: int | None = None) -> bool:
+        here = position[a if origin is None else origin]
+        return float(np.max(np.hypot(*(position[a: b + 1] - here).T))) <= extent
 
     runs: list[list[int]] = []
     for a, b in zip(edges[::2], edges[1::2] - 1):
@@ -292,6 +298,11 @@ def _rest_runs(slow: np.ndarray, position: np.ndarray, extent: float) -> list[tu
             runs[-1][1] = int(b)
         else:
             runs.append([int(a), int(b)])
+    last = slow.size - 1
+    if runs and 0 < runs[0][0] and within(0, runs[0][0], origin=runs[0][0]):
+        runs[0][0] = 0
+    if runs and runs[-1][1] < last and within(runs[-1][1], last, origin=runs[-1][1]):
+        runs[-1][1] = last
     return [(a, b) for a, b in runs if b > a and within(a, b)]
 
 
