@@ -85,3 +85,32 @@ def test_an_open_profile_is_not_a_flying_lap():
 def test_one_lap_cannot_be_launch_and_finish():
     with pytest.raises(ValueError, match="one lap"):
         lap_sequence(FLYING, 1, LAUNCH, FINISH)
+
+
+def test_a_launch_lap_turning_in_a_step_keeps_its_turn_in_the_run():
+    # A launch lap planned from rest at 0.5 m/s^3 under 8 m/s on a loop of R 50 m (invented)
+    # peaks below its 3 m/s^2 cap at sqrt(v J) = 2 m/s^2, J t^3 / 6 = 5.3 m from rest (double-S
+    # closed form, Biagiotti & Melchiorri 2008, section 3.4): step 5 is driven through that
+    # turn (accel_turn). Joined to a flying lap, the run drives it so too: its acceleration
+    # rises to the turn and falls after it, as in the lap alone.
+    import dataclasses
+
+    from curvespeed.export import as_station_profile
+    from curvespeed.geometry.model import geometry_from_curvature
+    from curvespeed.limits import Limits, RouteConstraints
+    from curvespeed.planner import plan_profile
+
+    n = int(round(2 * np.pi * R))
+    loop = geometry_from_curvature(np.full(n + 1, 1 / R), ds=2 * np.pi * R / n, closed=True)
+    limits = Limits(max_jerk_mps3=0.5, max_accel_mps2=3.0, max_decel_mps2=3.0, max_speed_mps=8.0)
+    flying = as_station_profile(plan_profile(loop, limits))
+    launch = as_station_profile(plan_profile(
+        dataclasses.replace(loop, closed=False), limits,
+        RouteConstraints(start_speed_mps=0.0, end_speed_mps=float(flying.speed_mps[0]))))
+    assert np.flatnonzero(launch.turn_step).tolist() == [5]
+    run = join_laps(lap_sequence(flying, 2, launch, None)).profile
+    assert np.flatnonzero(run.turn_step).tolist() == [5]
+    # the same samples (every 0.01 s from the start) up to the launch lap's last, to round-off
+    ours = sample_in_time(run, 0.01).accel_mps2
+    alone = sample_in_time(launch, 0.01).accel_mps2
+    np.testing.assert_allclose(ours[: alone.size - 1], alone[:-1], atol=1e-12)
