@@ -179,6 +179,19 @@ def test_a_standstill_at_the_log_s_start_takes_its_first_fixes_too():
     assert geo.length_m == pytest.approx(ROAD.length_m, rel=0.02)      # the consumer target
 
 
+def test_a_log_that_never_moves_is_refused_as_one_place():
+    # 60 s parked at 10 Hz with consumer noise (invented): the standstill takes every fix, from
+    # the first to the last, and what is left is one place, which the fit refuses by name (the
+    # chord noise of no moving fix once raised an IndexError)
+    rng = np.random.default_rng(1)
+    n = 600
+    base = simulate_drive(ROAD, 10, CONSUMER, seed=3)
+    parked = type(base)(np.arange(n) * 0.1, 500.0 + rng.normal(0.0, 0.5, n),
+                        -200.0 + rng.normal(0.0, 0.5, n), None, np.zeros(n), base.alignment)
+    with pytest.raises(RouteGeometryError, match="parked.gpx: only 1 distinct place"):
+        build_geometry(log_route(parked, "parked.gpx"))
+
+
 def test_shuttle_u_turn_logged_with_noise_wider_than_the_steps_is_fitted():
     # A yard shuttle at 3 m/s logged at 10 Hz by a consumer receiver (0.3 m steps, 0.5 m white
     # noise): a straight, a U-turn of R 12 m with 6 m clothoids, and back, standing 20 s at

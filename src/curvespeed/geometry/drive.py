@@ -173,7 +173,7 @@ def prepare_drive(route: Route, part: int | None = None) -> DrivePoints:
     else:   # no clock: only a run that scatters like noise is taken as standing still
         slow = speed < REST_STEP_FRACTION * percentile(speed, 75)
         extent = REST_NOISE_WIDTHS * sigma
-    runs = _rest_runs(slow, position, extent)
+    runs = _rest_runs(slow, position, extent, to_the_ends=has_time)
     # In sampling order the noise estimate also sees how irregularly survey points are spaced;
     # in chord length (moving fixes only) it does not. Cells follow the smaller of the two.
     moving = np.ones(n, dtype=bool)
@@ -235,6 +235,8 @@ def _sampling_parameter(route: Route) -> tuple[np.ndarray, bool]:
 
 def _chord_noise(x: np.ndarray, y: np.ndarray) -> float:
     """Noise across the path estimated in chord length (inf when too few points)."""
+    if x.size < 2:              # every fix in a standstill: the fit refuses one place
+        return math.inf
     keep = np.concatenate(([True], np.hypot(np.diff(x), np.diff(y)) > 0))
     x, y = x[keep], y[keep]
     u = np.concatenate(([0.0], np.cumsum(np.hypot(np.diff(x), np.diff(y)))))
@@ -274,18 +276,20 @@ def _window_speed(position: np.ndarray, t: np.ndarray, window: float) -> np.ndar
     return np.hypot(*(position[hi] - position[lo]).T) / span
 
 
-def _rest_runs(slow: np.ndarray, position: np.ndarray, extent: float) -> list[tuple[int, int]]:
+def _rest_runs(slow: np.ndarray, position: np.ndarray, extent: float,
+               to_the_ends: bool = True) -> list[tuple[int, int]]:
     """Runs of slow fixes (first, last index) whose pilot positions stay within ``extent`` of
     the run's first.
 
     Slow runs whose pilot positions, gap included, stay that close are one standstill: the
     smoothed fixes of a standing receiver wander, and may briefly look faster than the
-    threshold. So are the fixes between the log's first (last) fix and a standstill whose
-    pilot positions stay that close: the pilot, a spline free at its ends, and the speed window
-    cut short there make a standing receiver look faster than the threshold over its first
-    second or so (0.77 m/s at the first of a consumer log's 20 s standstill at 10 Hz, whose first
-    ten fixes then became a point of their own 1.8 m off the standstill's, and the fit refused
-    the zig-zag as a cusp)."""
+    threshold. With ``to_the_ends`` (a log with time stamps), so are the fixes between the log's
+    first (last) fix and a standstill whose pilot positions stay that close: the pilot, a
+    spline free at its ends, and the speed window cut short there make a standing receiver
+    look faster than the threshold over its first second or so (0.77 m/s at the first of a
+    consumer log's 20 s standstill at 10 Hz, whose first ten fixes then became a point of their
+    own 1.8 m off the standstill's, and the fit refused the zig-zag as a cusp). Without a clock
+    a standstill is only what scatters like noise, and the ends are left as they are."""
     edges = np.flatnonzero(np.diff(np.concatenate(([0], slow.view(np.int8), [0]))))
 
     def within(a: int, b: int, origin: int | None = None) -> bool:
@@ -299,9 +303,10 @@ def _rest_runs(slow: np.ndarray, position: np.ndarray, extent: float) -> list[tu
         else:
             runs.append([int(a), int(b)])
     last = slow.size - 1
-    if runs and 0 < runs[0][0] and within(0, runs[0][0], origin=runs[0][0]):
+    if to_the_ends and runs and 0 < runs[0][0] and within(0, runs[0][0], origin=runs[0][0]):
         runs[0][0] = 0
-    if runs and runs[-1][1] < last and within(runs[-1][1], last, origin=runs[-1][1]):
+    if (to_the_ends and runs and runs[-1][1] < last
+            and within(runs[-1][1], last, origin=runs[-1][1])):
         runs[-1][1] = last
     return [(a, b) for a, b in runs if b > a and within(a, b)]
 
