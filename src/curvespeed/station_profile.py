@@ -11,6 +11,7 @@ This module is core numerics: arrays in, frozen dataclasses out; it never reads 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 
@@ -141,10 +142,10 @@ class StationProfile:
         """Steps away from rest driven at constant jerk, bool per step."""
         return self.linear_time_coef > 0.0
 
-    @property
+    @cached_property
     def turn_shapes(self):
         """The shape of each :attr:`turn_step` (:func:`curvespeed.turn_step.shapes`), or None
-        where the profile has none."""
+        where the profile has none; found once (export and the judge ask for it per call)."""
         if self.turn_step is None or not self.turn_step.any():
             return None
         from . import turn_step

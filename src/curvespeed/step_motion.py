@@ -48,17 +48,14 @@ def state_at_time(sp: StationProfile, k, tau):
     d = np.where(leaving, d_r, np.where(arriving, ds - d_r, d))
     v = np.where(ramp, v_r, v)
     acc = np.where(leaving, a_r, np.where(arriving, -a_r, acc))
-    linear = sp.linear_step[k]
-    if linear.any():
-        d_l, v_l, a_l = rest_step.linear_state_at_time(ds[linear], v0[linear], v1[linear],
-                                                       T[linear], tau[linear])
+    linear, turn = _moving_kinds(sp, k)
+    if linear.any() or turn.any():
         d, v, acc = d.copy(), v.copy(), np.broadcast_to(acc, d.shape).copy()
-        d[linear], v[linear], acc[linear] = d_l, v_l, a_l
-        turn = _turns_at(sp, k)
-        if turn is not None:
-            shape, on = turn
-            d[on], v[on], acc[on] = turn_step.driven_state_at_time(
-                shape, k[on], ds[on], v0[on], v1[on], T[on], tau[on])
+        d[linear], v[linear], acc[linear] = rest_step.linear_state_at_time(
+            ds[linear], v0[linear], v1[linear], T[linear], tau[linear])
+        if turn.any():
+            d[turn], v[turn], acc[turn] = turn_step.driven_state_at_time(
+                sp.turn_shapes, k[turn], ds[turn], v0[turn], v1[turn], T[turn], tau[turn])
     at_end = tau >= T
     d = np.clip(np.where(at_end, ds, d), 0.0, ds)
     v = np.where(at_end, v1, np.maximum(v, 0.0))
@@ -84,27 +81,25 @@ def state_at_distance(sp: StationProfile, k, d):
     tau = np.where(leaving, t_r, np.where(arriving, T - t_r, tau))
     v = np.where(ramp, v_r, v)
     acc = np.where(leaving, a_r, np.where(arriving, -a_r, acc))
-    linear = sp.linear_step[k]
-    if linear.any():
-        args = ds[linear], v0[linear], v1[linear], T[linear]
-        t_l = rest_step.linear_time_at_distance(*args, d[linear])
-        _, v_l, a_l = rest_step.linear_state_at_time(*args, t_l)
+    linear, turn = _moving_kinds(sp, k)
+    if linear.any() or turn.any():
         tau, v, acc = tau.copy(), v.copy(), np.broadcast_to(acc, tau.shape).copy()
-        tau[linear], v[linear], acc[linear] = t_l, v_l, a_l
-        turn = _turns_at(sp, k)
-        if turn is not None:
-            shape, on = turn
-            tau[on], v[on], acc[on] = turn_step.driven_time_at_distance(
-                shape, k[on], ds[on], v0[on], v1[on], T[on], d[on])
+        args = ds[linear], v0[linear], v1[linear], T[linear]
+        tau[linear] = rest_step.linear_time_at_distance(*args, d[linear])
+        _, v[linear], acc[linear] = rest_step.linear_state_at_time(*args, tau[linear])
+        if turn.any():
+            tau[turn], v[turn], acc[turn] = turn_step.driven_time_at_distance(
+                sp.turn_shapes, k[turn], ds[turn], v0[turn], v1[turn], T[turn], d[turn])
     return tau, v, np.asarray(acc, dtype=float)
 
 
-def _turns_at(sp: StationProfile, k):
-    """``(shapes, mask)`` of the turn steps among steps ``k`` (:mod:`curvespeed.turn_step`),
-    or None where there are none."""
-    if sp.turn_step is None or not sp.turn_step[k].any():
-        return None
-    return sp.turn_shapes, sp.turn_step[k]
+def _moving_kinds(sp: StationProfile, k):
+    """Which of steps ``k`` are driven at constant jerk (``linear_accel``) and which through
+    a turn (``accel_turn``, :mod:`curvespeed.turn_step`; timed like the first, but only the
+    second's motion is computed for them)."""
+    turn = (np.zeros(np.shape(k), dtype=bool) if sp.turn_step is None
+            else sp.turn_step[k])
+    return sp.linear_step[k] & ~turn, turn
 
 
 __all__ = ["state_at_distance", "state_at_time"]

@@ -125,7 +125,7 @@ def timed_at_jerk(ds, v0, v1, a0, jerk, iterations: int = 60):
         s = t_end - t1
         return t_end, np.where(reach, w1 + b1 * s - 0.5 * j * s * s, -np.inf)
 
-    t_end_lo, v_lo = end_of(np.zeros(ds.shape))
+    _, v_lo = end_of(np.zeros(ds.shape))
     ok = (v_lo <= v1 * (1.0 + TOLERANCE)) & (rise(t_all)[1] >= v1 * (1.0 - TOLERANCE))
     t1 = rest_step.largest_true(lambda t: end_of(t)[1] < v1, np.zeros(ds.shape), t_all,
                                 iterations)

@@ -110,10 +110,15 @@ def _run(profile_file, vehicle_file, tracker, dwell_s):
 
         vehicle = read_vehicle(vehicle_file)
     settings = ReplaySettings(tracker=TrackerKind(tracker), dwell_s=dwell_s)
-    if vehicle_file is not None:        # one no integration step follows, refused naming its file
+    if vehicle_file is not None:
+        # the step the vehicle needs, found here so that one no step follows is refused naming
+        # its file; the replay then finds it follows at once
+        from dataclasses import replace
+
         from ..dynamics.vehicle import integration_step
 
-        integration_step(vehicle, settings.integration_dt_s, str(vehicle_file))
+        settings = replace(settings, integration_dt_s=integration_step(
+            vehicle, settings.integration_dt_s, str(vehicle_file)))
     result = run_replay(sp, vehicle, settings, grip)
     return result, summarise(result)
 
