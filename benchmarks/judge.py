@@ -188,9 +188,9 @@ def profile_jerk(sp: StationProfile) -> tuple[np.ndarray, np.ndarray]:
     change of acceleration at its moving node a ramp symmetric about the node over the smaller
     of twice the constant part and the neighbouring step's time, as the planner's jerk bound
     reads it (docs/method.md); a step a launch's ramp spans, ``linear_accel``, is constant
-    jerk, read at both ends; the step in which it turns, ``accel_turn``, is read at both ends
-    and where it turns)."""
-    from curvespeed import rest_step, turn_step
+    jerk, read at both ends; a step inside which the jerk switches, ``accel_turn`` and the
+    other kinds of :mod:`curvespeed.jerk_switch`, is read at both ends and at the switch)."""
+    from curvespeed import jerk_switch, rest_step
 
     t = sp.node_time_s
     T = sp.step_time_s
@@ -199,7 +199,7 @@ def profile_jerk(sp: StationProfile) -> tuple[np.ndarray, np.ndarray]:
     v = sp.speed_mps
     ds = np.diff(sp.station_m)
     times, values, nodes = [], [], []
-    turns = sp.turn_shapes
+    turns = sp.switch_shapes
     for k in range(T.size):
         if rest[k]:
             u = float(rest_step.shape_from_time_coef(sp.rest_time_coef[k]))
@@ -224,11 +224,12 @@ def profile_jerk(sp: StationProfile) -> tuple[np.ndarray, np.ndarray]:
                 times += [t[k] + h, t[k + 1] - ramp, t[k + 1]]
                 values += [-flat, -flat, 0.0]
                 nodes += [k, k, k + 1]
-        elif turns is not None and sp.turn_step[k]:     # its start, its turn and its end
-            at, value = turn_step.accel_points(turns, np.array([k]), np.array([T[k]]))
-            times += (t[k] + at[0]).tolist()
-            values += value[0].tolist()
-            nodes += [k, k, k + 1]
+        elif turns is not None and sp.switch_step[k]:   # its start, switches and end
+            at, value = jerk_switch.accel_points(turns, np.array([k]), np.array([T[k]]))
+            keep = np.concatenate(([True], np.diff(at[0]) > 0.0))  # a piece lasting nothing
+            times += (t[k] + at[0][keep]).tolist()
+            values += value[0][keep].tolist()
+            nodes += [k] * (int(keep.sum()) - 1) + [k + 1]
         elif sp.linear_step[k]:     # constant jerk: its two ends' values
             a0, jerk = rest_step.linear_accel_step(ds[k], v[k], v[k + 1], T[k])
             times += [t[k], t[k + 1]]

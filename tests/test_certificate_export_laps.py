@@ -107,9 +107,9 @@ def test_a_launch_lap_turning_in_a_step_keeps_its_turn_in_the_run():
     launch = as_station_profile(plan_profile(
         dataclasses.replace(loop, closed=False), limits,
         RouteConstraints(start_speed_mps=0.0, end_speed_mps=float(flying.speed_mps[0]))))
-    assert np.flatnonzero(launch.turn_step).tolist() == [5]
+    assert np.flatnonzero(launch.switch_step).tolist() == [5]
     run = join_laps(lap_sequence(flying, 2, launch, None)).profile
-    assert np.flatnonzero(run.turn_step).tolist() == [5]
+    assert np.flatnonzero(run.switch_step).tolist() == [5]
     # the same samples (every 0.01 s from the start) up to the launch lap's last, to round-off
     ours = sample_in_time(run, 0.01).accel_mps2
     alone = sample_in_time(launch, 0.01).accel_mps2

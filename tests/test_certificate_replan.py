@@ -424,7 +424,7 @@ def test_state_at_drives_the_step_where_a_launch_turns_through_its_turn():
     """A window leaving rest on a 40 m route that ends at rest, at 0.5 m/s^3 and 3 m/s^2: the
     move turns below the cap 40 / 12 = 3.3 m from rest (double-S closed form, Biagiotti &
     Melchiorri 2008, section 3.4), inside step 3. ``state_at`` drives that step as the turn
-    (curvespeed.turn_step): the acceleration goes on from the ramp's across station 3 and rises
+    (curvespeed.jerk_switch): the acceleration goes on from the ramp's across station 3 and rises
     at the bound up to the turn, then falls at it (finite differences at 1 ms away from the
     turn and the step's ends, within 1e-3 of the bound: the window's speeds are the ramp's to
     about 1e-6, and the turn's jerk is their third-order function)."""
@@ -434,7 +434,7 @@ def test_state_at_drives_the_step_where_a_launch_turns_through_its_turn():
     limits = Limits(max_jerk_mps3=0.5, max_accel_mps2=3.0, max_decel_mps2=3.0,
                     max_speed_mps=30.0)
     w = Replanner(geo, limits, RouteConstraints()).replan(0.0, 0.0, 0.0)
-    assert np.flatnonzero(w.problem.turn_step).tolist() == [3, 36]
+    assert np.flatnonzero(w.problem.switch_step).tolist() == [3, 36]
     t0, t1 = float(w.time_s[3]), float(w.time_s[4])
     h = 1e-3
     times = np.linspace(t0 - 0.02, t1 - 2 * h, 60)

@@ -275,7 +275,8 @@ REFUSED = {
     "profile with a step kind curvespeed does not know": (
         "export", {"p.csv": _profile_with_step_kind(6, "cubic")}, ["{p.csv}", "-o", "{out}"],
         "p.csv", ["line 6:", "'step_kind' value 'cubic' is not a step kind",
-                  "use constant_accel, jerk_ramp, linear_accel, accel_turn or constant_jerk",
+                  "use constant_accel, jerk_ramp, linear_accel, accel_turn, accel_rise_hold, "
+                  "accel_hold_fall, accel_fall_hold, accel_rise_hold_fall or constant_jerk",
                   "remove the column"]),
     "profile with a constant-jerk step away from rest": (
         "export", {"p.csv": _profile_with_step_kind(6, "constant_jerk")},

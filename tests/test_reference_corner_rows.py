@@ -199,7 +199,7 @@ def test_rows_taken_in_late_are_kept_and_a_run_stopped_before_says_so(monkeypatc
     from curvespeed.solvers.convex import ConvexOptions
     from curvespeed.solvers.qp_layout import QPLayout
 
-    problem = straight_problem(12.0, 1.0, straight_limits(10.0, 1.0, 0.5))
+    problem = straight_problem(12.0, 1.0, straight_limits(10.0, 1.0, 0.5), staircase=True)
     lay = QPLayout(problem, jerk=True)
     pairs = cr.corner_pairs(lay)
     usual = solve_convex(problem)

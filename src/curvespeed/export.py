@@ -38,7 +38,7 @@ Steps a launch's jerk ramp spans
     in time, and the time at a station is found by bisection. The step in which such a move
     turns below its acceleration cap is driven through the turn: from the acceleration the
     ramp's step next to it ends with, linear in time up to one instant and down after it
-    (the ``accel_turn`` step kind, :mod:`curvespeed.turn_step`). :mod:`curvespeed.step_motion`
+    (the ``accel_turn`` step kind, :mod:`curvespeed.jerk_switch`). :mod:`curvespeed.step_motion`
     drives each step as its kind says.
 
 All formulas are used as they stand: samples are placed step by step from node times that are

@@ -198,8 +198,8 @@ def join_laps(sequence: list[tuple[str, StationProfile]]) -> LapRun:
             parts[n].append(None if values is None else values[keep])
         coef.append(lap.rest_time_coef)
         linear.append(lap.linear_time_coef)
-        turn.append(np.zeros(lap.n_nodes - 1, dtype=bool) if lap.turn_step is None
-                    else lap.turn_step)
+        turn.append(np.zeros(lap.n_nodes - 1, dtype=int) if lap.switch_step is None
+                    else lap.switch_step)
         own = {int(k): i for i, k in enumerate(lap.stop_nodes)}
         kept_nodes = range(lap.n_nodes if last else lap.n_nodes - 1)
         stop_index.extend((j, own.get(k, -1)) for k in kept_nodes
@@ -216,7 +216,7 @@ def join_laps(sequence: list[tuple[str, StationProfile]]) -> LapRun:
         joined.pop("curvature_1pm"), joined.pop("speed_mps"), name=first.name,
         source=" + ".join(dict.fromkeys(p.source for _, p in sequence)),
         rest_time_coef=np.concatenate(coef), linear_time_coef=np.concatenate(linear),
-        turn_step=np.concatenate(turn), **joined)
+        switch_step=np.concatenate(turn), **joined)
     return LapRun(profile=profile, lap_stations_m=np.array(starts), lap_nodes=np.array(nodes),
                   kinds=tuple(kind for kind, _ in sequence),
                   lap_stop_index=np.array(stop_index, dtype=int).reshape(-1, 2))

@@ -16,9 +16,10 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from . import rest_step
+from . import jerk_switch, rest_step
 from .errors import LimitsError
 from .launch_motion import JerkPieces, accel_phase
+from .closed_form_moves import closed_form_moves
 from .launch_steps import closed_form_launches, launch_steps, scale_for_bases, scaled_terms
 from .limits import stop_node
 
@@ -79,8 +80,11 @@ def rest_nodes(problem: SpeedProblem) -> np.ndarray:
 HELD_LENGTH_FACTOR = 2.0
 
 
-def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
-    """``problem`` with the steps next to ``rest`` nodes ramped (module docstring).
+def with_rest_steps(problem: SpeedProblem, rest: np.ndarray,
+                    closed_form: bool = True) -> SpeedProblem:
+    """``problem`` with the steps next to ``rest`` nodes ramped (module docstring), and the
+    moves between them whose closed form fits planned as it (``closed_form``,
+    :mod:`curvespeed.closed_form_moves`).
 
     Each step ramps at the jerk bound to what its moving node allows where that ramp fits in
     the step (:func:`curvespeed.rest_step.shape_for_accel`). Where it does not, the step keeps
@@ -145,12 +149,56 @@ def with_rest_steps(problem: SpeedProblem, rest: np.ndarray) -> SpeedProblem:
         k = 0 if cap[0] < cap[-1] else -1
         cap[0] = cap[-1] = cap[k]
         source[0] = source[-1] = source[k]
+    switch = None if shaped is None or not shaped.turn.any() else np.where(
+        shaped.turn, jerk_switch.TURN, 0)
+    problem = replace(problem, time_coef=time_coef, accel_factor_start=f_start,
+                      accel_factor_end=f_end, rest_u=u, switch_step=switch)
+    # (on the caps before the ramps': a move that turns in its step next to rest passes the
+    # ramp-and-hold shape's cap there)
+    moves = closed_form_moves(problem, rest, lambda moving, out: rest_step_allowed_accel(
+        problem, moving, out)) if closed_form else None
+    return _with_moves(problem, moves, cap, source, {} if shaped is None else shaped.bases)
+
+
+def _with_moves(problem: SpeedProblem, moves, cap: np.ndarray, source: np.ndarray,
+                bases: dict) -> SpeedProblem:
+    """``problem`` (its steps next to rest and launches set) with the moves planned as their
+    closed form (:func:`curvespeed.closed_form_moves.closed_form_moves`; None: none) in it,
+    the caps ``cap`` (``source``) and the jerk's time bases: ``bases`` (the launches',
+    :func:`curvespeed.launch_steps.launch_steps`) and the moves'. A move's node's terms are
+    widened where the motion changes its acceleration over more than they allow, never
+    narrowed: its caps bind, so wider rows admit no faster plan, and a base of exactly the
+    motion's change (0 where it holds its acceleration) left the rows of a 200 m move so tight
+    that the QP solvers failed."""
+    time_coef, f_start, f_end = (problem.time_coef.copy(), problem.accel_factor_start.copy(),
+                                 problem.accel_factor_end.copy())
+    u, switch = problem.rest_u.copy(), problem.switch_step
+    move_bases = {}
+    if moves is not None:       # moves planned as their closed form: the motion's own steps
+        s = moves.steps
+        time_coef[s], f_start[s], f_end[s], u[s] = (moves.time_coef[s], moves.f_start[s],
+                                                    moves.f_end[s], moves.rest_u[s])
+        switch = np.zeros(problem.n_nodes - 1, dtype=int) if switch is None else switch.copy()
+        switch[s] = moves.switch[s]
+        on = ~np.isnan(moves.b)
+        cap[on] = moves.b[on]
+        source[on & (moves.b > 0.0)] = "jerk_launch"
+        move_bases = moves.bases
+        bases = {node: base for node, base in bases.items() if node not in move_bases}
+        if problem.closed:
+            cap[-1], source[-1] = cap[0], source[0]
     terms = jerk_time_terms(problem.n_nodes, problem.closed, u, f_start)
-    node_scale = None if shaped is None else scale_for_bases(problem, terms, shaped.bases)
+    node_scale = scale_for_bases(problem, terms, bases) if bases else None
+    if move_bases:
+        wide = np.maximum(scale_for_bases(problem, terms, move_bases), 1.0)
+        mine = np.zeros(wide.size, dtype=bool)
+        mine[list(move_bases)] = True
+        node_scale = np.where(mine, wide, 1.0 if node_scale is None else node_scale)
     return replace(problem, time_coef=time_coef, accel_factor_start=f_start,
                    accel_factor_end=f_end, rest_u=u, cap_b=cap, cap_source=source,
                    jerk_terms=scaled_terms(terms, node_scale), jerk_node_scale=node_scale,
-                   turn_step=None if shaped is None or not shaped.turn.any() else shaped.turn)
+                   switch_step=None if switch is None or not switch.any() else switch,
+                   closed_form_b=None if moves is None else moves.b)
 
 
 def _continuing_ramps(problem: SpeedProblem, rest: np.ndarray, k: np.ndarray, out: np.ndarray,

@@ -35,7 +35,7 @@ class LaunchSteps:
     last node, a stop's step's first node; NaN elsewhere); and the time base of each node of a
     ramp with the speeds of the motion there (node -> (base, speeds of the node's previous, own
     and next node)); which steps are the step in which a move turns, its peak inside it
-    (:mod:`curvespeed.turn_step` drives it), and the squared speed the motion has at the far
+    (:mod:`curvespeed.jerk_switch` drives it), and the squared speed the motion has at the far
     node of each (node -> b), which caps it."""
 
     time_factor: np.ndarray
@@ -68,7 +68,7 @@ def launch_steps(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray,
     * A node's time base is the motion's time between the points at which the steps on either
       side take their accelerations (:func:`scale_for_bases` sizes the node's terms to it).
     * The step in which a move turns, its peak inside it, is driven as the motion through the
-      peak (the profile's ``accel_turn`` step, :mod:`curvespeed.turn_step`): from the
+      peak (the profile's ``accel_turn`` step, :mod:`curvespeed.jerk_switch`): from the
       acceleration the ramp's step before it ends with, at ``+J`` to the peak and ``-J`` after
       it. Driven at constant jerk instead (``linear_accel``), it ended above the motion (its
       jerk averages the two), and the change to the next step's acceleration read up to 1.84 of

@@ -9,6 +9,7 @@ import warnings
 
 import numpy as np
 
+from .closed_form_moves import snap_to_closed_form
 from .diagnose import standstill, underpowered
 from .errors import CurvespeedWarning, InfeasibleError, JerkBoundInfeasible, SolverError
 from .geometry import Geometry
@@ -83,7 +84,8 @@ def plan_profile(geometry: Geometry, limits: Limits,
         raise InfeasibleError(stands)
     if tolerance is None:
         tolerance = DEFAULT_TOLERANCE if solver is SolverKind.ENVELOPE else CONVEX_TOLERANCE
-    check = verify_profile(problem, result.b, tolerance, check_jerk=solver.enforces_jerk)
+    b, snapped = snap_to_closed_form(problem, result.b)
+    check = verify_profile(problem, b, tolerance, check_jerk=solver.enforces_jerk)
     if limits.max_jerk_mps3 is not None and not jerk:
         warnings.warn(f"the envelope solver does not bound jerk: the profile reaches "
                       f"{check.extremes['jerk_mps3']:.2f} m/s^3 against max_jerk_mps3 = "
@@ -106,13 +108,14 @@ def plan_profile(geometry: Geometry, limits: Limits,
     v_env = np.sqrt(np.maximum(env_b, 0.0))
     envelope_time = float(np.sum(2.0 * problem.ds / (v_env[:-1] + v_env[1:])))
     v = d["speed_mps"]
-    rest_coef = np.where(np.isnan(problem.rest_u), 0.0, problem.time_coef)
+    model_rest = np.where(np.isnan(problem.rest_u), 0.0, problem.time_coef)
     model_linear = linear_time_coef(problem)
-    linear, turn = _turn_steps(problem, v, rest_coef, model_linear)
+    rest_coef, linear, turn = _switch_steps(problem, v, model_rest, model_linear, snapped)
     time_s = d["time_s"]
     if turn is not None:    # the turn steps' time as driven; every other step's is the model's
         step_s = np.diff(problem.station_m) / (v[:-1] + v[1:])
-        time_s = time_s + np.concatenate(([0.0], np.cumsum((linear - model_linear) * step_s)))
+        moved = (rest_coef + linear) - (model_rest + model_linear)
+        time_s = time_s + np.concatenate(([0.0], np.cumsum(moved * step_s)))
     return Profile(
         geometry=geometry,
         speed_mps=v,
@@ -129,43 +132,55 @@ def plan_profile(geometry: Geometry, limits: Limits,
         extremes=check.extremes,
         envelope_time_s=envelope_time,
         linear_time_coef=linear,
-        turn_step=turn,
+        switch_step=turn,
     )
 
 
-def _turn_steps(problem, speed, rest_coef, linear) -> tuple[np.ndarray, np.ndarray | None]:
-    """The steps in which a launch or a stop turns (:attr:`SpeedProblem.turn_step`), driven
-    from the acceleration the ramp's step next to them ends with, at exactly the jerk bound up
-    to the turn and down after it (:func:`curvespeed.turn_step.timed_at_jerk`):
-    ``(linear_time_coef, turn)``, the turn steps' time coefficients set to that motion's time
-    (``turn`` None if none).
+def _switch_steps(problem, speed, rest_coef, linear, snapped):
+    """The steps inside which the jerk switches (:attr:`SpeedProblem.switch_step`) as they are
+    written: ``(rest_time_coef, linear_time_coef, switch_step)`` (None if none).
 
-    The model times the step as the double-S motion does between the motion's own speeds, and
-    the planned speeds follow that motion to about 1e-6; but the motion through the turn is a
-    third-order function of them (its jerk ``D2 / T^3``, with ``D2`` the step's distance less
-    what its start's speed and acceleration cover): fitted to the model's time it turned at
-    up to 1.005 of the bound on the speeds of a 200 m move, and a file read back may move it
-    further. At the bound itself it takes a time of its own (the 1,728 moves of
-    ``benchmarks/exact_roads.py --wide`` changed by at most 0.021 % with it and the cap on the
-    step's far node, :func:`curvespeed.launch_steps.launch_steps`). A step whose speeds no
-    such motion joins (a plan held off the ramp's motion there: a curve, say) stays a
-    constant-jerk step."""
-    if problem.turn_step is None:
-        return linear, None
-    from . import turn_step
+    * In a move written as its closed form (``snapped`` nodes,
+      :func:`curvespeed.closed_form_moves.snap_to_closed_form`), each is the motion's own.
+    * In a move planned so whose solver's speeds did not agree with the motion's, none is
+      kept: a turn next to rest is written as a ramp-and-hold step of the same time, every
+      other as a constant-jerk step (both fit any speeds).
+    * A launch's or a stop's turn (:func:`curvespeed.launch_steps.launch_steps`) is driven
+      from the acceleration the ramp's step next to it ends with, at exactly the jerk bound up
+      to the turn and down after it (:func:`curvespeed.jerk_switch.timed_at_jerk`), its time
+      set to that motion's. The model times the step as the double-S motion does between the
+      motion's own speeds, and the planned speeds follow that motion to about 1e-6; but the
+      motion through the turn is a third-order function of them (its jerk ``D2 / T^3``, with
+      ``D2`` the step's distance less what its start's speed and acceleration cover): fitted
+      to the model's time it turned at up to 1.005 of the bound on the speeds of a 200 m move.
+      At the bound itself it takes a time of its own (the 1,728 moves of
+      ``benchmarks/exact_roads.py --wide`` changed by at most 0.021 % with it and the cap on
+      the step's far node). A step whose speeds no such motion joins (a plan held off the
+      ramp's motion there: a curve, say) stays a constant-jerk step."""
+    code = problem.switch_step
+    if code is None:
+        return rest_coef, linear, None
+    from . import jerk_switch
 
-    turn = problem.turn_step & (linear > 0.0)
-    if not turn.any():
-        return linear, None
-    shapes = turn_step.shapes(problem.station_m, speed, rest_coef, linear, turn)
-    k = np.flatnonzero(turn & shapes.ok)
-    back = shapes.backwards[k]
-    T, _, ok = turn_step.timed_at_jerk(problem.ds, np.where(back, speed[k + 1], speed[k]),
-                                       np.where(back, speed[k], speed[k + 1]), shapes.a0[k],
-                                       problem.limits.max_jerk_mps3)
-    k, T = k[ok], T[ok]
-    if not k.size:
-        return linear, None
-    linear, turn = linear.copy(), np.zeros(linear.size, dtype=bool)
-    linear[k], turn[k] = T * (speed[k] + speed[k + 1]) / problem.ds, True
-    return linear, turn
+    code, linear, rest_coef = code.copy(), linear.copy(), rest_coef.copy()
+    in_move = (~np.isnan(problem.closed_form_b[:-1]) & ~np.isnan(problem.closed_form_b[1:])
+               if problem.closed_form_b is not None else np.zeros(code.size, dtype=bool))
+    kept = snapped[:-1] & snapped[1:]
+    loose = in_move & ~kept & (code > 0)
+    at_rest = (speed[:-1] <= 0.0) | (speed[1:] <= 0.0)
+    rest_coef[loose & at_rest] = np.clip(linear[loose & at_rest], 2.0, 3.0)
+    linear[loose & at_rest] = 0.0
+    code[loose] = 0
+    turn = (code == jerk_switch.TURN) & ~kept & (linear > 0.0)
+    if turn.any():
+        shapes = jerk_switch.shapes(problem.station_m, speed, rest_coef, linear,
+                                    np.where(turn, code, 0))
+        k = np.flatnonzero(turn & shapes.ok)
+        back = shapes.backwards[k]
+        T, _, ok = jerk_switch.timed_at_jerk(problem.ds, np.where(back, speed[k + 1], speed[k]),
+                                             np.where(back, speed[k], speed[k + 1]),
+                                             shapes.a0[k], problem.limits.max_jerk_mps3)
+        code[turn] = 0
+        code[k[ok]] = jerk_switch.TURN
+        linear[k[ok]] = T[ok] * (speed[k[ok]] + speed[k[ok] + 1]) / problem.ds
+    return rest_coef, linear, code if code.any() else None

@@ -172,10 +172,16 @@ class SpeedProblem:
         :func:`curvespeed.jerk_model.jerk_time_terms`'s: the time base of the nodes of a launch
         planned as its ramp (:func:`curvespeed.launch_steps.launch_steps`), so that a
         receding-horizon window's terms carry it too. None: none (all 1).
-    turn_step : ndarray of bool, shape (n,), or None
-        The steps in which a launch planned as its ramp (or a stop) turns, its peak inside the
-        step: timed as the double-S motion through the peak, and driven so
-        (:mod:`curvespeed.turn_step`, the profile's ``accel_turn`` step). None: none.
+    switch_step : ndarray of int, shape (n,), or None
+        The steps inside which the jerk switches once, by pattern
+        (:data:`curvespeed.jerk_switch.PATTERNS`; 0 elsewhere): where a launch planned as its
+        ramp (or a stop) turns, its peak inside the step, and the steps of a move planned as
+        its closed form (:mod:`curvespeed.closed_form_moves`); timed as that motion and driven
+        so (the profile's switching step kinds). None: none.
+    closed_form_b : ndarray, shape (n+1,), or None
+        At the nodes of the moves planned as their closed form
+        (:mod:`curvespeed.closed_form_moves`), the motion's squared speed (their caps); NaN at
+        every other node. None: no such move.
     mu_long, mu_lat : ndarray, shape (n+1,)
         Tyre-road friction along and across the path at each node: the route's
         (``Limits.mu_long``, ``Limits.mu_lat``) or a friction section's
@@ -240,7 +246,8 @@ class SpeedProblem:
     end_reserve: tuple | None = None
     rate_spread: tuple | None = None
     jerk_node_scale: np.ndarray | None = None
-    turn_step: np.ndarray | None = None
+    switch_step: np.ndarray | None = None
+    closed_form_b: np.ndarray | None = None
 
     @property
     def n_nodes(self) -> int:
@@ -437,11 +444,14 @@ def _ceiling_kernel():
 
 
 def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstraints,
-                  jerk_model: bool | None = None) -> SpeedProblem:
+                  jerk_model: bool | None = None, closed_form: bool = True) -> SpeedProblem:
     """Assemble the discrete problem for ``geometry`` (see module docstring).
 
     ``jerk_model`` (default: whether ``limits`` has a jerk bound) says whether the jerk bound is
     part of the problem; a solver that does not enforce jerk (the envelope) builds it without.
+    ``closed_form=False`` plans every move between rests as steps of constant acceleration
+    and the launches' ramps, none as its closed form (:mod:`curvespeed.closed_form_moves`):
+    the model as it stands wherever a move's closed form does not fit, for comparing the two.
     """
     validate_limits(limits, warn=False)   # the caller validated and warned, naming the origin
     validate_constraints(constraints, geometry.length_m, geometry.closed)
@@ -474,5 +484,5 @@ def build_problem(geometry: Geometry, limits: Limits, constraints: RouteConstrai
         mu_long=mu_long, mu_lat=mu_lat, friction_index=friction_index,
         friction_sections=tuple(constraints.friction), rate_spread=rate_spread(geometry, limits))
     if jerk_model:
-        problem = with_rest_steps(problem, rest_nodes(problem))
+        problem = with_rest_steps(problem, rest_nodes(problem), closed_form=closed_form)
     return problem

@@ -65,10 +65,11 @@ class Profile:
         driven at constant jerk, the ``c`` of its time ``c ds / (v[k] + v[k+1])``, near 2
         (:func:`curvespeed.launch_steps.launch_steps`); 0 for every other step.
         None: no such step.
-    turn_step : ndarray of bool, shape (n,), or None
-        The steps among those in which the move turns, its acceleration rising to a peak inside
-        the step and falling after it (:mod:`curvespeed.turn_step`; timed by
-        ``linear_time_coef``). None: no such step.
+    switch_step : ndarray of int, shape (n,), or None
+        The steps inside which the jerk switches once, by pattern
+        (:data:`curvespeed.jerk_switch.PATTERNS`, 0 elsewhere; timed by ``linear_time_coef``):
+        where a move's acceleration turns inside a step, or reaches or leaves its cap or its top
+        speed. None: no such step.
     """
 
     geometry: Geometry
@@ -86,7 +87,7 @@ class Profile:
     extremes: dict = field(default_factory=dict)
     envelope_time_s: float | None = None
     linear_time_coef: np.ndarray | None = None
-    turn_step: np.ndarray | None = None
+    switch_step: np.ndarray | None = None
 
     @property
     def time_gap_to_envelope(self) -> float | None:

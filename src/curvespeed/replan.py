@@ -69,10 +69,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import rest_step, turn_step
+from . import jerk_switch, rest_step
 from .errors import InfeasibleError, ReplanError, SolverError
 from .geometry import Geometry
-from .jerk_model import is_linear_step, linear_time_coef
+from .jerk_model import is_linear_step
 from .limits import Limits, RouteConstraints, validate_limits
 from .problem import SpeedProblem
 from .solvers import SolveResult, SolveStatus
@@ -161,19 +161,19 @@ def _step(problem, speed, distance, j: int):
     for a jerk-ramped step next to rest (shape ``u``, :mod:`curvespeed.rest_step`), "linear"
     for a step a launch's jerk ramp spans (constant jerk,
     :func:`curvespeed.rest_step.linear_accel_step`), the step's
-    :class:`~curvespeed.turn_step.TurnShapes` where the move turns in it, else "constant"
-    (constant acceleration)."""
+    :class:`~curvespeed.jerk_switch.SwitchShapes` where the jerk switches inside it, else
+    "constant" (constant acceleration)."""
     v0, v1 = float(speed[j]), float(speed[j + 1])
     ds = float(distance[j + 1] - distance[j])
     u = float(problem.rest_u[j]) if j < problem.rest_u.size else math.nan
     linear = j < problem.time_coef.size and bool(is_linear_step(problem.time_coef[j], u))
     kind = ("linear" if linear else "constant" if math.isnan(u) or (v0 != 0.0 and v1 != 0.0)
             else "leaving" if v0 == 0.0 else "arriving")
-    if linear and problem.turn_step is not None and problem.turn_step[j]:
-        # anchored on the ramp's step next to it in the window; where the window starts inside
-        # it, or its speeds fit no turn, driven at constant jerk
-        shape = turn_step.step_shape(distance, speed, problem.rest_u, problem.time_coef,
-                                     linear_time_coef(problem), j)
+    if linear and problem.switch_step is not None and problem.switch_step[j]:
+        # anchored on the step across its slower node in the window; where the window starts
+        # inside that one, or its speeds fit no such motion, driven at constant jerk
+        shape = jerk_switch.step_shape(distance, speed, problem.rest_u, problem.time_coef,
+                                       problem.switch_step, j)
         kind = "linear" if shape is None else shape
     return kind, u, v0, v1, ds
 
@@ -190,9 +190,9 @@ def _step_state(problem, speed, distance, time, j: int, tau: float):
     if kind == "linear":
         d, v, a = rest_step.linear_state_at_time(ds, v0, v1, time[j + 1] - time[j], tau)
         return float(d), float(v), float(a)
-    if not isinstance(kind, str):                               # the step where a move turns
-        d, v, a = turn_step.driven_state_at_time(kind, np.array([j]), ds, v0, v1,
-                                                 time[j + 1] - time[j], tau)
+    if not isinstance(kind, str):                               # the jerk switches inside
+        d, v, a = jerk_switch.driven_state_at_time(kind, np.array([j]), ds, v0, v1,
+                                                   time[j + 1] - time[j], tau)
         return float(d[0]), float(v[0]), float(a[0])
     a = (v1 * v1 - v0 * v0) / (2.0 * ds)
     return v0 * tau + 0.5 * a * tau * tau, v0 + a * tau, a
@@ -209,9 +209,9 @@ def _time_into_step(problem, speed, distance, time, j: int, d: float) -> float:
                      - rest_step.leaving_time_at_distance(u, v0, ds, ds - d))
     if kind == "linear":
         return float(rest_step.linear_time_at_distance(ds, v0, v1, time[j + 1] - time[j], d))
-    if not isinstance(kind, str):                               # the step where a move turns
-        return float(turn_step.driven_time_at_distance(kind, np.array([j]), ds, v0, v1,
-                                                       time[j + 1] - time[j], d)[0][0])
+    if not isinstance(kind, str):                               # the jerk switches inside
+        return float(jerk_switch.driven_time_at_distance(kind, np.array([j]), ds, v0, v1,
+                                                         time[j + 1] - time[j], d)[0][0])
     a = (v1 * v1 - v0 * v0) / (2.0 * ds)
     root = math.sqrt(max(v0 * v0 + 2.0 * a * d, 0.0))
     return 2.0 * d / (v0 + root) if v0 + root > 0.0 else 0.0

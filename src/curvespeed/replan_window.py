@@ -166,7 +166,8 @@ class RouteTables:
             jerk_terms=terms, jerk_node_scale=None,      # the terms carry it already
             rate_spread=None if src.rate_spread is None else (
                 src.rate_spread[0][st], src.rate_spread[1][st]),
-            turn_step=None if src.turn_step is None else src.turn_step[st])
+            switch_step=None if src.switch_step is None else src.switch_step[st],
+            closed_form_b=None)
         if reshape:
             problem = self._reshape(problem, rest)
         ceiling = np.minimum(self.lateral_b[idx], problem.cap_b)

@@ -15,8 +15,11 @@ from functools import cached_property
 
 import numpy as np
 
-from . import lateral_rates, rest_step
+from . import jerk_switch, lateral_rates, rest_step
 from .errors import SpeedFileError
+
+#: The values a :attr:`StationProfile.switch_step` may hold: 0 or a pattern's code.
+_CODES = (0, *jerk_switch.PATTERNS)
 
 #: How far a curvature read from a profile file may be from the planned one, 1/m: written to
 #: 1e-9 (``io._format.CURVATURE``). Chord rates of the curvature closer than twice this over a
@@ -74,10 +77,11 @@ class StationProfile:
     curvature_bound_1pm : ndarray or None
         The bound on |curvature| the profile was planned on (1/m), where it has one; figures
         judge uses on it, as ``check`` does.
-    turn_step : ndarray of bool, shape (n,) or None
-        The steps among the :attr:`linear_time_coef` ones in which the acceleration turns: it
-        rises to a peak inside the step and falls after it, continuing the ramp's step next to
-        it (:mod:`curvespeed.turn_step`); None: none.
+    switch_step : ndarray of int, shape (n,) or None
+        The steps among the :attr:`linear_time_coef` ones inside which the jerk switches once,
+        by pattern (:data:`curvespeed.jerk_switch.PATTERNS`; 0 elsewhere), continuing the
+        acceleration of the step across their slower node (:mod:`curvespeed.jerk_switch`);
+        None: none.
     """
 
     station_m: np.ndarray
@@ -102,7 +106,7 @@ class StationProfile:
     rest_time_coef: np.ndarray | None = None
     curvature_bound_1pm: np.ndarray | None = None
     linear_time_coef: np.ndarray | None = None
-    turn_step: np.ndarray | None = None
+    switch_step: np.ndarray | None = None
 
     @classmethod
     def from_profile(cls, profile) -> "StationProfile":
@@ -117,7 +121,8 @@ class StationProfile:
             grade=geo.grade, lat=None if latlon is None else latlon[0],
             lon=None if latlon is None else latlon[1], name=geo.name, source=geo.source,
             rest_time_coef=profile.rest_time_coef, curvature_bound_1pm=geo.curvature_bound_1pm,
-            linear_time_coef=profile.linear_time_coef, turn_step=profile.turn_step)
+            linear_time_coef=profile.linear_time_coef,
+            switch_step=profile.switch_step)
 
     @property
     def n_nodes(self) -> int:
@@ -143,15 +148,16 @@ class StationProfile:
         return self.linear_time_coef > 0.0
 
     @cached_property
-    def turn_shapes(self):
-        """The shape of each :attr:`turn_step` (:func:`curvespeed.turn_step.shapes`), or None
-        where the profile has none; found once (export and the judge ask for it per call)."""
-        if self.turn_step is None or not self.turn_step.any():
+    def switch_shapes(self):
+        """The shape of each :attr:`switch_step` (:func:`curvespeed.jerk_switch.shapes`), or
+        None where the profile has none; found once (export and the judge ask for it per
+        call)."""
+        if self.switch_step is None or not self.switch_step.any():
             return None
-        from . import turn_step
+        from . import jerk_switch
 
-        return turn_step.shapes(self.station_m, self.speed_mps, self.rest_time_coef,
-                                self.linear_time_coef, self.turn_step)
+        return jerk_switch.shapes(self.station_m, self.speed_mps, self.rest_time_coef,
+                                  self.linear_time_coef, self.switch_step)
 
     @property
     def step_time_coef(self) -> np.ndarray:
@@ -221,7 +227,7 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
                          lon=None, name: str = "route", source: str = "profile",
                          where=None, rest_time_coef=None,
                          curvature_bound_1pm=None, linear_time_coef=None,
-                         turn_step=None) -> StationProfile:
+                         switch_step=None) -> StationProfile:
     """Check arrays and build a :class:`StationProfile`.
 
     ``rest_time_coef`` (one value per step: the ``c`` of a step next to rest driven with a jerk
@@ -241,9 +247,9 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
         ``rest_time_coef`` without one value per step, a value other than 0 or within [2, 3],
         or one set on a step that does not have exactly one end at rest
         (:func:`steps_next_to_rest`); ``linear_time_coef`` likewise, set only on steps with
-        neither end at rest; ``turn_step`` set on a step without a ``linear_time_coef``, or on
-        one whose shape does not fit (:func:`curvespeed.turn_step.shapes`); readers check their
-        files for this first.
+        neither end at rest (but a switching step); ``switch_step`` not a pattern code, set on a
+        step without a ``linear_time_coef``, or on one whose shape does not fit
+        (:func:`curvespeed.jerk_switch.shapes`); readers check their files for this first.
     """
     def arr(values):
         return None if values is None else np.asarray(values, dtype=float).ravel()
@@ -282,35 +288,37 @@ def make_station_profile(station_m, x_m, y_m, heading_rad, curvature_1pm, speed_
     linear = np.zeros(n - 1) if linear_time_coef is None else np.asarray(
         linear_time_coef, dtype=float).ravel()
     on = linear != 0.0
-    if (linear.size != n - 1 or np.any(on & ((v[:-1] <= 0.0) | (v[1:] <= 0.0)))
-            or np.any(on & ((linear < linear_time_coef_lowest(v) * (1.0 - 1e-9))
-                            | (linear > 3.0)))):
-        raise ValueError("linear_time_coef must have one value per step, 0 or within "
-                         "[linear_time_coef_lowest, 3], non-zero only on steps with neither end "
-                         "at rest")
-    turn = None if turn_step is None else np.asarray(turn_step, dtype=bool).ravel()
-    if turn is not None and (turn.size != n - 1 or np.any(turn & ~on)):
-        raise ValueError("turn_step must have one value per step, true only on steps with a "
+    switch = None if switch_step is None else np.asarray(switch_step).ravel()
+    if switch is not None and (switch.size != n - 1 or np.any(~np.isin(switch, _CODES))
+                               or np.any((switch > 0) & ~on)):
+        raise ValueError("switch_step must have one value per step, a pattern code of "
+                         "curvespeed.jerk_switch.PATTERNS (or 0), non-zero only on steps with a "
                          "linear_time_coef")
+    switching = np.zeros(n - 1, dtype=bool) if switch is None else switch > 0
+    if (linear.size != n - 1 or np.any(on & ~switching & ((v[:-1] <= 0.0) | (v[1:] <= 0.0)))
+            or np.any(on & ((linear < 0.0) | (linear > 3.0)))):
+        raise ValueError("linear_time_coef must have one value per step, 0 or within (0, 3] "
+                         "(a speed that stays at least 0), non-zero only on steps with neither "
+                         "end at rest (but a switching step)")
     return StationProfile(
         station_m=s, x_m=required["x_m"], y_m=required["y_m"],
         heading_rad=np.unwrap(required["heading_rad"]), curvature_1pm=required["curvature_1pm"],
         speed_mps=v, binding=text, name=name, source=source, where=labels,
         rest_time_coef=coef, linear_time_coef=linear,
-        turn_step=None if turn is None or not turn.any() else _fitting_turns(s, v, coef, linear,
-                                                                             turn),
+        switch_step=None if switch is None or not switch.any() else _fitting_switches(
+            s, v, coef, linear, switch.astype(int)),
         **optional)
 
 
-def _fitting_turns(s, v, rest_coef, linear, turn) -> np.ndarray:
-    """``turn``, checked: every step in it has a shape (:func:`curvespeed.turn_step.shapes`);
+def _fitting_switches(s, v, rest_coef, linear, switch) -> np.ndarray:
+    """``switch``, checked: every step in it has a shape (:func:`curvespeed.jerk_switch.shapes`);
     else ValueError (a reader names the file's line first)."""
-    from . import turn_step
+    from . import jerk_switch
 
-    if not np.all(turn_step.shapes(s, v, rest_coef, linear, turn).ok[turn]):
-        raise ValueError("turn_step set on a step whose speeds, distance and time fit no "
-                         "acceleration turning from the ramp's next to it")
-    return turn
+    if not np.all(jerk_switch.shapes(s, v, rest_coef, linear, switch).ok[switch > 0]):
+        raise ValueError("switch_step set on a step whose speeds, distance and time fit no "
+                         "motion of its pattern from the step across its slower node")
+    return switch
 
 
 def _check_columns(numbers: dict, texts: dict, source: str, labels) -> None:
@@ -394,25 +402,11 @@ RAMP_TIME_EXCESS = 1e-3
 
 def step_time_coef_from_times(station_m, speed_mps, time_s, lowest=2.0) -> np.ndarray:
     """The ``c`` of each step's time ``c ds / (v[k] + v[k+1])`` from the profile's own times,
-    clipped to [``lowest``, 3] (rounding of the written times; ``lowest`` may be per step,
-    :func:`linear_time_coef_lowest` for a step driven at constant jerk)."""
+    clipped to [``lowest``, 3] (rounding of the written times; ``lowest`` may be per step, 0
+    for a step driven at constant jerk or switching, whose speed may peak inside it)."""
     s, v = np.asarray(station_m, dtype=float), np.asarray(speed_mps, dtype=float)
     ratio = np.diff(np.asarray(time_s, dtype=float)) * (v[:-1] + v[1:]) / np.diff(s)
     return np.clip(ratio, lowest, 3.0)
-
-
-def linear_time_coef_lowest(speed_mps) -> np.ndarray:
-    """Per step, the smallest ``c`` of a step driven at constant jerk (time ``c ds / (v + v')``)
-    whose speed stays within its ends' range: ``3 (v + v') / (v + v' + max(v, v'))``. The
-    step's speed is a quadratic in time whose Bernstein coefficients are ``v``,
-    ``(3 / c - 1) (v + v')`` and ``v'`` (:func:`curvespeed.rest_step.linear_accel_step`), and
-    lies within their range: the middle one is at most ``max(v, v')`` from this ``c`` on, and
-    at least 0 up to ``c = 3``. From 2 (equal end speeds) down to 1.5 (an end at rest); below 2
-    the speed is concave in time, the acceleration falling through the step."""
-    v = np.asarray(speed_mps, dtype=float)
-    total = v[:-1] + v[1:]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return np.where(total > 0.0, 3.0 * total / (total + np.maximum(v[:-1], v[1:])), 2.0)
 
 
 def detect_rest_steps(station_m, speed_mps, time_s) -> np.ndarray:

@@ -4,9 +4,9 @@ and acceleration at a time into a step, or the time at a distance into it.
 Each step is driven as its kind says (:mod:`curvespeed.export` describes them): at constant
 acceleration; next to rest, a jerk ramp then constant acceleration (:mod:`curvespeed.rest_step`);
 at constant jerk where a launch's or a stop's ramp spans it (``linear_accel``,
-:func:`curvespeed.rest_step.linear_accel_step`); through one turn of its acceleration where such
-a move turns (``accel_turn``, :mod:`curvespeed.turn_step`). Vectorised over steps ``k``; arrays
-in, arrays out.
+:func:`curvespeed.rest_step.linear_accel_step`); with one switch of its jerk inside it where a
+move's acceleration turns, or reaches or leaves its cap (``accel_turn`` and the other kinds of
+:mod:`curvespeed.jerk_switch`). Vectorised over steps ``k``; arrays in, arrays out.
 """
 
 from __future__ import annotations
@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from . import rest_step, turn_step
+from . import jerk_switch, rest_step
 
 if TYPE_CHECKING:
     from .station_profile import StationProfile
@@ -54,8 +54,8 @@ def state_at_time(sp: StationProfile, k, tau):
         d[linear], v[linear], acc[linear] = rest_step.linear_state_at_time(
             ds[linear], v0[linear], v1[linear], T[linear], tau[linear])
         if turn.any():
-            d[turn], v[turn], acc[turn] = turn_step.driven_state_at_time(
-                sp.turn_shapes, k[turn], ds[turn], v0[turn], v1[turn], T[turn], tau[turn])
+            d[turn], v[turn], acc[turn] = jerk_switch.driven_state_at_time(
+                sp.switch_shapes, k[turn], ds[turn], v0[turn], v1[turn], T[turn], tau[turn])
     at_end = tau >= T
     d = np.clip(np.where(at_end, ds, d), 0.0, ds)
     v = np.where(at_end, v1, np.maximum(v, 0.0))
@@ -88,17 +88,17 @@ def state_at_distance(sp: StationProfile, k, d):
         tau[linear] = rest_step.linear_time_at_distance(*args, d[linear])
         _, v[linear], acc[linear] = rest_step.linear_state_at_time(*args, tau[linear])
         if turn.any():
-            tau[turn], v[turn], acc[turn] = turn_step.driven_time_at_distance(
-                sp.turn_shapes, k[turn], ds[turn], v0[turn], v1[turn], T[turn], d[turn])
+            tau[turn], v[turn], acc[turn] = jerk_switch.driven_time_at_distance(
+                sp.switch_shapes, k[turn], ds[turn], v0[turn], v1[turn], T[turn], d[turn])
     return tau, v, np.asarray(acc, dtype=float)
 
 
 def _moving_kinds(sp: StationProfile, k):
     """Which of steps ``k`` are driven at constant jerk (``linear_accel``) and which through
-    a turn (``accel_turn``, :mod:`curvespeed.turn_step`; timed like the first, but only the
-    second's motion is computed for them)."""
-    turn = (np.zeros(np.shape(k), dtype=bool) if sp.turn_step is None
-            else sp.turn_step[k])
+    with one switch of the jerk (:mod:`curvespeed.jerk_switch`; timed like the first, but only
+    the second's motion is computed for them)."""
+    turn = (np.zeros(np.shape(k), dtype=bool) if sp.switch_step is None
+            else sp.switch_step[k] > 0)
     return sp.linear_step[k] & ~turn, turn
 
 

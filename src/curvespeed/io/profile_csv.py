@@ -15,8 +15,11 @@ lat_accel_mps2, time_s``
     time, :mod:`curvespeed.rest_step`), or ``linear_accel`` for a step away from rest driven at
     constant jerk (a step a launch's jerk ramp spans, :attr:`Profile.linear_time_coef
     <curvespeed.profile.Profile.linear_time_coef>`; its start acceleration and jerk follow from
-    its time, :func:`curvespeed.rest_step.linear_accel_step`); ``constant_jerk`` (older
-    profiles) is still read; empty on the last row, where no step follows;
+    its time, :func:`curvespeed.rest_step.linear_accel_step`); ``accel_turn``,
+    ``accel_rise_hold``, ``accel_hold_fall``, ``accel_fall_hold`` or ``accel_rise_hold_fall``
+    for a step inside which the jerk switches (:mod:`curvespeed.jerk_switch`);
+    ``constant_jerk`` (older profiles) is still read; empty on the last row, where no step
+    follows;
 ``z_m, grade``
     when the route has elevation;
 ``lat, lon``
@@ -41,6 +44,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from .. import jerk_switch
 from ..errors import CurvespeedWarning, SpeedFileError
 from ..profile import Profile
 from ._format import format_columns
@@ -110,12 +114,20 @@ class StepKind(enum.Enum):
     #: step takes ``c ds / (v[k] + v[k+1])`` with ``c`` in [2, 3] read from ``time_s``, see
     #: :func:`curvespeed.rest_step.linear_accel_step`.
     LINEAR_ACCEL = "linear_accel"
-    #: Only away from rest, next to a ``linear_accel`` step or a ``jerk_ramp`` one: the
-    #: acceleration linear in time on either side of one instant inside the step, where it
-    #: turns, continuing the acceleration the ramp's step before it ends with (or, driven
-    #: backwards, ending at the one the stop's ramp after it starts with); timed like
-    #: ``linear_accel``, see :mod:`curvespeed.turn_step`.
+    #: The jerk switches once inside the step; timed like ``linear_accel``. Read from its
+    #: slower node (backwards where its speed falls), it starts with the acceleration there of
+    #: the step across that node (0 at rest; that step must not switch too) and is, on either
+    #: side of one instant: a rise, then a fall (``accel_turn``: where a move's acceleration
+    #: turns); a rise, then constant (``accel_rise_hold``: reaching a cap); constant, then a
+    #: fall (``accel_hold_fall``: leaving it); a fall, then constant (``accel_fall_hold``:
+    #: reaching the top speed). ``accel_rise_hold_fall`` switches twice (a rise, constant, a
+    #: fall: a cap held for less than the step) and ends with the acceleration of the step
+    #: across its faster node, which must not switch. See :mod:`curvespeed.jerk_switch`.
     ACCEL_TURN = "accel_turn"
+    ACCEL_RISE_HOLD = "accel_rise_hold"
+    ACCEL_HOLD_FALL = "accel_hold_fall"
+    ACCEL_FALL_HOLD = "accel_fall_hold"
+    ACCEL_RISE_HOLD_FALL = "accel_rise_hold_fall"
     #: Constant jerk over the whole step, only next to rest: ``3 ds / v``. Written by older
     #: versions; read, never written.
     CONSTANT_JERK = "constant_jerk"
@@ -129,8 +141,9 @@ def step_kinds(profile: Profile) -> list[str]:
                     StepKind.CONSTANT_ACCEL.value).astype(object)
     if profile.linear_time_coef is not None:
         kind[profile.linear_time_coef > 0.0] = StepKind.LINEAR_ACCEL.value
-    if profile.turn_step is not None:
-        kind[profile.turn_step] = StepKind.ACCEL_TURN.value
+    if profile.switch_step is not None:
+        for code, value in SWITCH_KINDS.items():
+            kind[profile.switch_step == code] = value
     return kind.tolist() + [""]
 
 
@@ -213,11 +226,12 @@ def read_station_profile(path: str | os.PathLike, name: str | None = None) -> St
                               rest_time_coef=None if coef is None else
                               np.where(steps_next_to_rest(v), coef, 0.0),
                               linear_time_coef=None if linear is None else
-                              np.where((v[:-1] > 0.0) & (v[1:] > 0.0), linear, 0.0),
+                              np.where((v[:-1] > 0.0) & (v[1:] > 0.0)
+                                       & (kinds == StepKind.LINEAR_ACCEL.value), linear, 0.0),
                               **optional)
     if kinds is not None:
         _check_step_kinds(table, kinds, sp.speed_mps)
-        sp = _with_turns(table, kinds, sp)
+        sp = _with_switches(table, kinds, sp, linear)
     check_positions(sp)
     mismatch = planned_time_mismatch(sp)
     if mismatch is not None:
@@ -268,8 +282,15 @@ def read_step_kinds(table: Table) -> np.ndarray | None:
 
 
 _REST_KINDS = (StepKind.JERK_RAMP.value, StepKind.CONSTANT_JERK.value)
-#: Kinds of steps away from rest timed ``c ds / (v + v')`` with ``c`` from ``time_s``.
-_MOVING_KINDS = (StepKind.LINEAR_ACCEL.value, StepKind.ACCEL_TURN.value)
+#: The kind of each switching pattern (:data:`curvespeed.jerk_switch.PATTERNS`), by its code.
+SWITCH_KINDS = {jerk_switch.TURN: StepKind.ACCEL_TURN.value,
+                jerk_switch.RISE_HOLD: StepKind.ACCEL_RISE_HOLD.value,
+                jerk_switch.HOLD_FALL: StepKind.ACCEL_HOLD_FALL.value,
+                jerk_switch.FALL_HOLD: StepKind.ACCEL_FALL_HOLD.value,
+                jerk_switch.RISE_HOLD_FALL: StepKind.ACCEL_RISE_HOLD_FALL.value}
+#: Kinds of steps timed ``c ds / (v + v')`` with ``c`` from ``time_s``: away from rest, but a
+#: switching step may have an end at rest.
+_MOVING_KINDS = (StepKind.LINEAR_ACCEL.value, *SWITCH_KINDS.values())
 #: Kinds whose time coefficient comes from ``time_s``.
 _TIMED_KINDS = (StepKind.JERK_RAMP.value,) + _MOVING_KINDS
 
@@ -291,13 +312,13 @@ def _time_coefs(table: Table, kinds: np.ndarray) -> tuple[np.ndarray, np.ndarray
             "time_s column (how the step is driven follows from its time); add time_s, or "
             "remove the step_kind column")
     from ..export import step_time_coef_from_times
-    from ..station_profile import linear_time_coef_lowest
 
     s, v = table.columns["station_m"], table.columns["speed_mps"]
     linear = np.isin(kinds, _MOVING_KINDS)
     with np.errstate(divide="ignore", invalid="ignore"):
-        from_times = step_time_coef_from_times(
-            s, v, times, np.where(linear, linear_time_coef_lowest(v), 2.0))
+        # a step driven at constant jerk, or switching, may take less than 2 ds / (v + v'):
+        # its speed may peak inside it (a move's top speed)
+        from_times = step_time_coef_from_times(s, v, times, np.where(linear, 0.0, 2.0))
         ramp = np.where(3.0 - from_times <= _whole_ramp_reach(s, v, times), 3.0, from_times)
     return (np.where(kinds == StepKind.JERK_RAMP.value, ramp, rest),
             np.where(linear, from_times, 0.0))
@@ -327,20 +348,20 @@ def check_step_kind_column(table: Table, speed_mps: np.ndarray) -> None:
     if kinds is not None:
         rest, linear = _time_coefs(table, kinds)
         _check_step_kinds(table, kinds, speed_mps)
-        _fitting_turns(table, kinds, rest, linear)
+        _fitting_switches(table, kinds, rest, linear)
 
 
 def _check_step_kinds(table: Table, kinds: np.ndarray, speed_mps: np.ndarray) -> None:
     """Refuse a step kind next to rest on a step without exactly one end at rest, and
-    ``linear_accel`` or ``accel_turn`` on a step with an end at rest (file, line, value)."""
+    ``linear_accel`` on a step with an end at rest (file, line, value)."""
     from ..export import steps_next_to_rest
 
     v, where = speed_mps, table.where
     next_to_rest = steps_next_to_rest(v)
     for bad, allowed_on in ((np.isin(kinds, _REST_KINDS) & ~next_to_rest,
                              "a step with exactly one end at rest (speed 0)"),
-                            (np.isin(kinds, _MOVING_KINDS) & ((v[:-1] <= 0.0)
-                                                              | (v[1:] <= 0.0)),
+                            ((kinds == StepKind.LINEAR_ACCEL.value) & ((v[:-1] <= 0.0)
+                                                                       | (v[1:] <= 0.0)),
                              "a step with neither end at rest")):
         if bad.any():
             k = int(np.flatnonzero(bad)[0])
@@ -351,44 +372,53 @@ def _check_step_kinds(table: Table, kinds: np.ndarray, speed_mps: np.ndarray) ->
                 "column to have the steps recognised from time_s")
 
 
-def _with_turns(table: Table, kinds: np.ndarray, sp: StationProfile) -> StationProfile:
-    """``sp`` with its ``accel_turn`` steps (:attr:`StationProfile.turn_step`), each checked
-    to fit (:func:`_fitting_turns`)."""
+def switch_codes(kinds: np.ndarray) -> np.ndarray:
+    """The pattern code (:data:`curvespeed.jerk_switch.PATTERNS`) of each step's kind, 0 for a
+    kind without a switch."""
+    codes = np.zeros(kinds.size, dtype=int)
+    for code, value in SWITCH_KINDS.items():
+        codes[kinds == value] = code
+    return codes
+
+
+def _with_switches(table: Table, kinds: np.ndarray, sp: StationProfile,
+                   linear: np.ndarray) -> StationProfile:
+    """``sp`` with its switching steps (:attr:`StationProfile.switch_step`; their time
+    coefficients ``linear``, kept where an end is at rest too), each checked to fit
+    (:func:`_fitting_switches`)."""
     import dataclasses
 
-    turn = kinds == StepKind.ACCEL_TURN.value
-    if not turn.any():
+    codes = switch_codes(kinds)
+    if not codes.any():
         return sp
-    _fitting_turns(table, kinds, sp.rest_time_coef, sp.linear_time_coef)
-    return dataclasses.replace(sp, turn_step=turn)
+    linear = np.where(codes > 0, linear, sp.linear_time_coef)
+    _fitting_switches(table, kinds, sp.rest_time_coef, linear)
+    return dataclasses.replace(sp, linear_time_coef=linear, switch_step=codes)
 
 
-def _fitting_turns(table: Table, kinds: np.ndarray, rest_coef, linear_coef) -> None:
-    """Refuse an ``accel_turn`` step that has no ramp's step next to it to continue, or whose
-    stations, speeds and time fit no acceleration turning once inside it
-    (:func:`curvespeed.turn_step.shapes`; file, line)."""
-    from .. import turn_step
-
-    turn = kinds == StepKind.ACCEL_TURN.value
-    if not turn.any():
+def _fitting_switches(table: Table, kinds: np.ndarray, rest_coef, linear_coef) -> None:
+    """Refuse a switching step whose slower node has no step beyond it to continue (a
+    switching one, or none while moving), or whose stations, speeds and time fit no motion of
+    its kind (:func:`curvespeed.jerk_switch.shapes`; file, line)."""
+    codes = switch_codes(kinds)
+    if not codes.any():
         return
     s, v = table.columns["station_m"], table.columns["speed_mps"]
     with np.errstate(divide="ignore", invalid="ignore"):
-        ok = turn_step.shapes(s, v, rest_coef, linear_coef, turn).ok
-    bad = np.flatnonzero(turn & ~ok)
+        ok = jerk_switch.shapes(s, v, rest_coef, linear_coef, codes).ok
+    bad = np.flatnonzero((codes > 0) & ~ok)
     if bad.size:
         k = int(bad[0])
         raise SpeedFileError(
-            f"{table.source}: {table.where[k]}: column 'step_kind' value "
-            f"'{StepKind.ACCEL_TURN.value}' needs the step before it to be a launch's ramp "
-            f"({StepKind.LINEAR_ACCEL.value}, or {StepKind.JERK_RAMP.value} leaving rest) or the "
-            "step after it a stop's, and its stations, speeds and time_s to fit an acceleration "
-            "that continues that ramp's and turns once inside the step; they do not (edited "
-            f"values?): use {StepKind.LINEAR_ACCEL.value} or {StepKind.CONSTANT_ACCEL.value} "
-            "there, or plan the profile again")
+            f"{table.source}: {table.where[k]}: column 'step_kind' value '{kinds[k]}' needs the "
+            "step across its slower node (the one with the lower speed) to be at rest or a step "
+            "that does not switch, and its stations, speeds and time_s to fit an acceleration "
+            "that continues that step's and switches its jerk once inside the step as the kind "
+            f"says; they do not (edited values?): use {StepKind.LINEAR_ACCEL.value} or "
+            f"{StepKind.CONSTANT_ACCEL.value} there, or plan the profile again")
 
 
-__all__ = ["KINEMATIC", "PROFILE_COLUMNS", "REQUIRED_PROFILE_COLUMNS", "StepKind",
+__all__ = ["KINEMATIC", "PROFILE_COLUMNS", "REQUIRED_PROFILE_COLUMNS", "SWITCH_KINDS", "StepKind",
            "TIME_MISMATCH_REL", "TIME_MISMATCH_S", "check_step_kind_column", "profile_columns",
            "profile_csv_text",
            "read_station_profile",
