@@ -37,7 +37,6 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from . import jerk_switch, rest_step
-from .errors import InfeasibleError
 from .launch_motion import JerkPieces
 
 if TYPE_CHECKING:
@@ -218,11 +217,13 @@ def _accel_change(m: _Motion, t0: float, t1: float) -> float:
     return float(overlap @ m.jerks)
 
 
-def closed_form_moves(problem: SpeedProblem, rest: np.ndarray, allowed) -> MoveSteps | None:
+def closed_form_moves(problem: SpeedProblem, rest: np.ndarray, allowed,
+                      envelope) -> MoveSteps | None:
     """The moves between consecutive ``rest`` nodes planned as their closed form (module
     docstring); ``allowed(moving, leaving)`` gives the caps a launch (``leaving``) or a stop
     may reach from the moving nodes of their steps next to rest
-    (:func:`curvespeed.jerk_model.rest_step_allowed_accel`). None if none is."""
+    (:func:`curvespeed.jerk_model.rest_step_allowed_accel`), ``envelope()`` the jerk-free
+    envelope's speeds (:func:`curvespeed.launch_steps.lazy_envelope`). None if none is."""
     jerk, ds = problem.limits.max_jerk_mps3, problem.ds
     n_steps, nv = problem.n_nodes - 1, problem.n_nodes - (1 if problem.closed else 0)
     idx = np.flatnonzero(rest[:nv])
@@ -231,7 +232,7 @@ def closed_form_moves(problem: SpeedProblem, rest: np.ndarray, allowed) -> MoveS
         pairs.append((idx[-1], idx[0] + nv))
     if not pairs:
         return None
-    env_v = _envelope_speeds(problem)
+    env_v = envelope()
     if env_v is None:
         return None
     out = MoveSteps(np.full(n_steps, np.nan), np.full(n_steps, np.nan),
@@ -298,19 +299,6 @@ def _set_move(out: MoveSteps, problem: SpeedProblem, nodes, steps, m: _Motion,
     tau = np.abs(a_after - a_before) / jerk
     for i in range(1, n):
         out.bases[int(nodes[i])] = (float(tau[i - 1]), v[i - 1: i + 2].copy())
-
-
-def _envelope_speeds(problem: SpeedProblem) -> np.ndarray | None:
-    """The forward-backward envelope's speed at every node (no jerk bound), m/s; None where it
-    does not exist (the solver says why, later)."""
-    from .solvers.envelope import solve_envelope
-
-    end = problem.b_end if problem.closed or problem.b_end is not None else 0.0
-    try:
-        b = solve_envelope(replace(problem, jerk_model=False, b_end=end)).b
-    except InfeasibleError:
-        return None
-    return np.sqrt(np.maximum(b, 0.0))
 
 
 def snap_to_closed_form(problem: SpeedProblem, b: np.ndarray,

@@ -20,7 +20,8 @@ from . import jerk_switch, rest_step
 from .errors import LimitsError
 from .launch_motion import JerkPieces, accel_phase
 from .closed_form_moves import closed_form_moves
-from .launch_steps import closed_form_launches, launch_steps, scale_for_bases, scaled_terms
+from .launch_steps import (closed_form_launches, launch_steps, lazy_envelope, scale_for_bases,
+                           scaled_terms)
 from .limits import stop_node
 
 if TYPE_CHECKING:
@@ -122,10 +123,11 @@ def with_rest_steps(problem: SpeedProblem, rest: np.ndarray,
     u[steps[whole]] = rest_step.shape_for_accel(accel[whole], jerk, ds, whole_ramp=True)
     time_coef = problem.time_coef.copy()
     shaped = None
+    envelope = lazy_envelope(problem)       # solved once, where launches or moves need it
     beyond = np.flatnonzero(accel >= rest_step.max_ramp_accel(jerk, ds))
     if beyond.size:     # the ramp goes on past the moving node
         shaped = _continuing_ramps(problem, rest, steps[beyond], leaving[steps[beyond]],
-                                   moving[beyond], u)
+                                   moving[beyond], u, envelope)
         if shaped is not None:
             time_coef *= shaped.time_factor
     f = rest_step.accel_factor(u[steps])
@@ -156,7 +158,7 @@ def with_rest_steps(problem: SpeedProblem, rest: np.ndarray,
     # (on the caps before the ramps': a move that turns in its step next to rest passes the
     # ramp-and-hold shape's cap there)
     moves = closed_form_moves(problem, rest, lambda moving, out: rest_step_allowed_accel(
-        problem, moving, out)) if closed_form else None
+        problem, moving, out), envelope) if closed_form else None
     return _with_moves(problem, moves, cap, source, {} if shaped is None else shaped.bases)
 
 
@@ -202,7 +204,7 @@ def _with_moves(problem: SpeedProblem, moves, cap: np.ndarray, source: np.ndarra
 
 
 def _continuing_ramps(problem: SpeedProblem, rest: np.ndarray, k: np.ndarray, out: np.ndarray,
-                      moving: np.ndarray, u: np.ndarray):
+                      moving: np.ndarray, u: np.ndarray, envelope):
     """The shapes of the steps next to rest ``k`` (leaving rest where ``out``; moving nodes
     ``moving``) whose ramp goes on past their moving node, set in ``u`` (:func:`with_rest_steps`
     says which), and the further steps of those planned as their ramp
@@ -213,7 +215,7 @@ def _continuing_ramps(problem: SpeedProblem, rest: np.ndarray, k: np.ndarray, ou
     held = _held(span_m, v_top, allowed, jerk)
     u[k] = np.where(held, rest_step.continuing_shape(allowed, jerk, ds), u[k])
     launch, ramp_m, to_accel = closed_form_launches(problem, k, out, span_m, v_top, allowed,
-                                                    u[k] <= rest_step.U_CONTINUING)
+                                                    u[k] <= rest_step.U_CONTINUING, envelope)
     if not launch.any():
         return None
     u[k[launch]] = 1.0

@@ -127,7 +127,8 @@ def launch_steps(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray,
 
 def closed_form_launches(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray,
                          span_m: np.ndarray, v_top: np.ndarray, accel: np.ndarray,
-                         candidate: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+                         candidate: np.ndarray, envelope=None
+                         ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Which of the ``candidate`` launches (or stops) next to ``steps`` are planned as the
     double-S closed form's (:func:`curvespeed.jerk_model.with_rest_steps` says why), each one's
     jerk ramp length, m, and the acceleration it goes on to, m/s^2. The move of each is
@@ -137,7 +138,8 @@ def closed_form_launches(problem: SpeedProblem, steps: np.ndarray, leaving: np.n
     ramp's last step ends (:func:`holds_past_corner`), and the route lets its acceleration
     phase run its course (:func:`phase_fits`). A move that reaches ``accel`` but leaves it
     sooner is planned for the highest lower acceleration that it would hold so long
-    (:func:`_held_cap`)."""
+    (:func:`_held_cap`). ``envelope``: :func:`lazy_envelope` of ``problem``, where the caller
+    has one."""
     jerk, ds = problem.limits.max_jerk_mps3, problem.ds
     accel = np.array(accel, dtype=float)
     phase = np.array([accel_phase(*args, jerk) for args in zip(span_m, v_top, accel)],
@@ -156,7 +158,8 @@ def closed_form_launches(problem: SpeedProblem, steps: np.ndarray, leaving: np.n
                 tj[i], ta[i] = accel_phase(span_m[i], v_top[i], lower, jerk)
                 ramp_m[i], ok[i] = jerk * tj[i] ** 3 / 6.0, True
     if ok.any():
-        paths = envelope_paths(problem, steps[ok], leaving[ok])
+        env = (envelope or lazy_envelope(problem))()
+        paths = envelope_paths(problem, steps[ok], leaving[ok], env)
         ok[ok] = [phase_fits(p, a, b, jerk, ds) for p, a, b in zip(paths, tj[ok], ta[ok])]
     return ok, ramp_m, accel
 
@@ -204,19 +207,40 @@ def holds_past_corner(ramp_m: float, held_until_s: float, accel: float, jerk: fl
     return bool(t[-1] <= held_until_s)
 
 
-def envelope_paths(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray) -> list:
-    """For each step next to rest, the forward-backward envelope's speeds (no jerk bound) along
-    the route from its rest node away from rest, m/s, up to where the envelope first falls
-    again: no move from rest is faster there, whatever caps lie further on (a curve soon after
-    a stop, say). None for each where the envelope does not exist (the solver says why)."""
+def jerk_free_envelope(problem: SpeedProblem) -> np.ndarray | None:
+    """The forward-backward envelope's speed at every node without a jerk bound, m/s (a free
+    end, a receding-horizon window's, taken at rest: a move must fit before it); None where the
+    envelope does not exist (the solver says why, later). No move is faster anywhere."""
     from .solvers.envelope import solve_envelope
 
-    # a free end (a receding-horizon window's) taken at rest: the launch must fit before it
     end = problem.b_end if problem.closed or problem.b_end is not None else 0.0
     try:
-        env = np.sqrt(np.maximum(
+        return np.sqrt(np.maximum(
             solve_envelope(replace(problem, jerk_model=False, b_end=end)).b, 0.0))
     except InfeasibleError:
+        return None
+
+
+def lazy_envelope(problem: SpeedProblem):
+    """:func:`jerk_free_envelope` of ``problem`` as a function that solves it on its first
+    call only (the launches and the closed-form moves both need it, often neither)."""
+    found: list = []
+
+    def envelope():
+        if not found:
+            found.append(jerk_free_envelope(problem))
+        return found[0]
+    return envelope
+
+
+def envelope_paths(problem: SpeedProblem, steps: np.ndarray, leaving: np.ndarray,
+                   env: np.ndarray | None) -> list:
+    """For each step next to rest, the forward-backward envelope's speeds ``env`` (no jerk
+    bound, :func:`jerk_free_envelope`) along the route from its rest node away from rest, m/s,
+    up to where the envelope first falls again: no move from rest is faster there, whatever
+    caps lie further on (a curve soon after a stop, say). None for each where the envelope
+    does not exist."""
+    if env is None:
         return [None] * steps.size
     n, nv = problem.n_nodes, problem.n_nodes - (1 if problem.closed else 0)
     paths = []
