@@ -483,3 +483,11 @@ def implausible_time(sp: StationProfile) -> str | None:
             f"{sp.node_label(last + 1)}, is planned at speeds down to {low:.3g} m/s, its "
             f"slowest step taking {float(step[k]):.4g} s; check the speed_mps column (units, "
             "damage), or plan the profile again with curvespeed plan")
+
+
+def check_planned_time(sp: StationProfile) -> None:
+    """Raise :class:`SpeedFileError` with :func:`implausible_time`'s reason where the
+    profile's planned time is implausible (export and replay, before they sample it)."""
+    problem = implausible_time(sp)
+    if problem is not None:
+        raise SpeedFileError(problem)

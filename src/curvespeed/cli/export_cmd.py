@@ -157,12 +157,9 @@ def export(profile_file, output, fmt, dt_s, station_step_m, dwell_s, laps, launc
 
 def _check_planned_time(profile) -> None:
     """Refuse a profile whose planned time is implausible before sampling it."""
-    from ..errors import SpeedFileError
-    from ..station_profile import as_station_profile, implausible_time
+    from ..station_profile import as_station_profile, check_planned_time
 
-    problem = implausible_time(as_station_profile(profile))
-    if problem is not None:
-        raise SpeedFileError(problem)
+    check_planned_time(as_station_profile(profile))
 
 
 def _check_start_time(start_time, total_time_s, profile_file) -> None:

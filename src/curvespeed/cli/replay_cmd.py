@@ -94,12 +94,9 @@ def _run(profile_file, vehicle_file, tracker, dwell_s):
     sp, sidecar = read_profile_and_sidecar(
         profile_file, "the route name is taken from the file name and the vehicle's friction "
         "applies all along instead")
-    from ..errors import SpeedFileError
-    from ..station_profile import implausible_time
+    from ..station_profile import check_planned_time
 
-    problem = implausible_time(sp)
-    if problem is not None:
-        raise SpeedFileError(problem)
+    check_planned_time(sp)
     grip = None
     if sidecar is not None and sidecar.constraints.friction:
         grip = grip_along(sidecar.limits, sidecar.constraints.friction)
