@@ -180,3 +180,27 @@ def test_a_move_the_solver_leaves_off_its_closed_form_is_written_without_switche
     read_station_profile(path)
     result = CliRunner().invoke(export, [str(path), "-o", str(tmp_path / "t.csv")])
     assert result.exit_code == 0, result.output
+
+
+def test_a_straight_from_points_plans_its_moves_as_their_closed_form(tmp_path):
+    # An invented 60 m straight given as points every 2 m, a stop at 20 m, the default limits
+    # (1.5 m/s^2 accelerating, 2.5 braking, 2 m/s^3): the fit's curvature bound, never quite 0,
+    # lowers the comfort ellipse's longitudinal part by some 2e-8 of the caps at speed; the
+    # moves are still their closed form (the caps taken that much lower), through the CLI
+    from click.testing import CliRunner
+
+    from curvespeed.cli.plan_cmd import plan
+    from curvespeed.io.profile_csv import read_station_profile
+    from curvespeed.io.table_csv import read_table_csv
+
+    route = tmp_path / "straight.csv"
+    route.write_text("x_m,y_m\n" + "".join(f"{x},0\n" for x in range(0, 61, 2)))
+    out = tmp_path / "profile.csv"
+    result = CliRunner().invoke(plan, [str(route), "--stop", "20", "-o", str(out)])
+    assert result.exit_code == 0, result.output
+    kinds = read_table_csv(out).columns["step_kind"]
+    assert "accel_hold_fall" in set(kinds)
+    sp = read_station_profile(out)
+    closed = (asymmetric_time(20.0, 30.0, 1.5, 2.5, 2.0)
+              + asymmetric_time(sp.length_m - 20.0, 30.0, 1.5, 2.5, 2.0))
+    assert BAND[0] <= sp.time_s[-1] / closed - 1.0 <= BAND[1]

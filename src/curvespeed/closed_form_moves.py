@@ -187,6 +187,36 @@ def classify_steps(m: _Motion) -> tuple[np.ndarray, np.ndarray] | None:
     return code, (first == last) & (m.jerks[first] == 0.0)
 
 
+#: How far below what the moving nodes next to rest allow a move's caps may be taken so that
+#: its closed form keeps within every node's bounds: a route's curvature bound, never quite 0
+#: on a fitted straight, lowers the comfort ellipse's longitudinal part by 2e-8 of the cap
+#: at the move's speed (a 60 m straight logged every 2 m).
+CAP_SLACK = 1e-3
+
+
+def _within_bounds(problem: SpeedProblem, nodes: np.ndarray, n_steps: int, v_top: float,
+                   accel: float, decel: float, rounds: int = 3) -> _Motion | None:
+    """The move's closed form (:func:`move_at_nodes`) with its caps lowered to the least that
+    its accelerating (braking) nodes allow at its speeds, where that is within
+    :data:`CAP_SLACK` of ``accel`` (``decel``): a lower cap lowers the speeds, which raises no
+    bound, so a few rounds settle it. None where the bounds ask more (a curve or a grade
+    along the move: the staircase then does better than a uniformly lower cap)."""
+    jerk, ds = problem.limits.max_jerk_mps3, problem.ds
+    a1, a2 = accel, decel
+    for _ in range(rounds):
+        m = move_at_nodes(n_steps, ds, v_top, a1, a2, jerk)
+        lo, hi = problem.accel_bounds(m.v ** 2, nodes=nodes)
+        up, down = m.a > 0.0, m.a < 0.0
+        need1 = min(a1, float(np.min(hi[up]))) if up.any() else a1
+        need2 = min(a2, float(np.min(-lo[down]))) if down.any() else a2
+        if need1 >= a1 and need2 >= a2:
+            return m
+        if need1 < accel * (1.0 - CAP_SLACK) or need2 < decel * (1.0 - CAP_SLACK):
+            return None
+        a1, a2 = need1, need2
+    return m
+
+
 def _fits(problem: SpeedProblem, nodes: np.ndarray, m: _Motion, env_v: np.ndarray) -> bool:
     """Whether the move's closed form is within the envelope's speed at each node and within
     each node's acceleration bounds on both its steps, and no lateral jerk bound applies on a
@@ -249,8 +279,8 @@ def closed_form_moves(problem: SpeedProblem, rest: np.ndarray, allowed,
         v_top = math.sqrt(float(np.max(problem.cap_b[nodes[1:-1]])))
         if a1 <= 0.0 or a2 <= 0.0 or not math.isfinite(v_top):
             continue
-        m = move_at_nodes(int(r1 - r0), ds, v_top, float(a1), float(a2), jerk)
-        if not _fits(problem, nodes, m, env_v[nodes]):
+        m = _within_bounds(problem, nodes, int(r1 - r0), v_top, float(a1), float(a2))
+        if m is None or not _fits(problem, nodes, m, env_v[nodes]):
             continue
         kinds = classify_steps(m)
         if kinds is None:
