@@ -254,7 +254,6 @@ def closed_form_moves(problem: SpeedProblem, rest: np.ndarray, allowed,
     may reach from the moving nodes of their steps next to rest
     (:func:`curvespeed.jerk_model.rest_step_allowed_accel`), ``envelope()`` the jerk-free
     envelope's speeds (:func:`curvespeed.launch_steps.lazy_envelope`). None if none is."""
-    jerk, ds = problem.limits.max_jerk_mps3, problem.ds
     n_steps, nv = problem.n_nodes - 1, problem.n_nodes - (1 if problem.closed else 0)
     idx = np.flatnonzero(rest[:nv])
     pairs = list(zip(idx[:-1], idx[1:]))
