@@ -32,6 +32,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, replace
+from functools import lru_cache
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -132,11 +133,13 @@ class _Motion:
     split: float
 
 
+@lru_cache(maxsize=256)             # a route's stops are often evenly spaced: the same moves
 def move_at_nodes(n_steps: int, ds: float, v_top: float, accel: float, decel: float,
                   jerk: float) -> _Motion:
     """The closed form (:func:`move_pieces`) of a move of ``n_steps`` steps of ``ds`` at its
     nodes: each node before the split timed on the motion from its start, each after it on the
-    motion driven back from its end (so both ends keep full precision)."""
+    motion driven back from its end (so both ends keep full precision). Its arrays are
+    read-only (the result is shared by every move alike)."""
     length = n_steps * ds
     durations, jerks, total, split = move_pieces(length, v_top, accel, decel, jerk)
     forward = _motion(durations, jerks)
@@ -154,7 +157,10 @@ def move_at_nodes(n_steps: int, ds: float, v_top: float, accel: float, decel: fl
     a = np.where(early, a_f, -a_b)
     v[0] = v[-1] = a[0] = a[-1] = 0.0
     starts = np.concatenate(([0.0], np.cumsum(durations)[:-1]))
-    return _Motion(t, v, a, starts, np.asarray(jerks, dtype=float), split)
+    arrays = (t, v, a, starts, np.asarray(jerks, dtype=float))
+    for array in arrays:
+        array.flags.writeable = False
+    return _Motion(*arrays, split)
 
 
 def classify_steps(m: _Motion) -> tuple[np.ndarray, np.ndarray] | None:

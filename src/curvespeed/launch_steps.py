@@ -299,15 +299,22 @@ def scale_for_bases(problem: SpeedProblem, terms: JerkTimeTerms, bases: dict) ->
     (0: the acceleration may not change there)."""
     nv = problem.n_nodes - (1 if problem.closed else 0)
     scale = np.ones(nv)
-    for node, (tau, speeds) in bases.items():
-        mine = np.flatnonzero(terms.node == node)
-        if mine.size == 0:
-            continue
-        w = terms.weights[mine] @ np.asarray(speeds, dtype=float)
-        live = (terms.scale[mine] > 0.0) & (w > 0.0)
-        if live.any():
-            low = float(np.min(terms.scale[mine][live] * problem.ds / w[live]))
-            scale[node] = max(tau, 0.0) / low
+    if not bases:
+        return scale
+    nodes = np.fromiter(bases, dtype=int, count=len(bases))
+    tau = np.array([max(base[0], 0.0) for base in bases.values()])
+    speeds = np.array([np.asarray(base[1], dtype=float) for base in bases.values()])
+    where = np.full(nv, -1)
+    where[nodes] = np.arange(nodes.size)
+    mine = np.flatnonzero(where[terms.node] >= 0)          # the terms of those nodes
+    at = where[terms.node[mine]]
+    w = np.einsum("ij,ij->i", terms.weights[mine], speeds[at])
+    live = (terms.scale[mine] > 0.0) & (w > 0.0)
+    low = np.full(nodes.size, np.inf)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        np.minimum.at(low, at[live], terms.scale[mine][live] * problem.ds / w[live])
+    has = np.isfinite(low)
+    scale[nodes[has]] = tau[has] / low[has]
     return scale
 
 
