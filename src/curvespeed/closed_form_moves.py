@@ -253,6 +253,27 @@ def _accel_change(m: _Motion, t0: float, t1: float) -> float:
     return float(overlap @ m.jerks)
 
 
+def _readable(m: _Motion, code: np.ndarray, plain: np.ndarray, ds: float, jerk: float) -> bool:
+    """Whether the move's switching steps, written as their kinds with the motion's own speeds
+    and times, read back as the motion (:func:`curvespeed.jerk_switch.shapes`, at ``jerk`` to
+    1e-4, the verifier's tolerance: a switch near a step's end is ill-conditioned, read 8e-6
+    off in a 24 m move): each must find a step to continue. A step through the move's top speed that holds its
+    cap, then falls, next to a stop's step that rises, holds and falls would each need the
+    other's acceleration first (a 5 m move at 0.77 and 2.45 m/s^2, 6.4 m/s^3)."""
+    if not code.any():
+        return True
+    n = code.size
+    c = np.diff(m.t) * (m.v[:-1] + m.v[1:]) / ds
+    lin_c = np.where(plain, 0.0, c)
+    rest_c = np.zeros(n)
+    for k in (0, n - 1):
+        if code[k] == 0:
+            rest_c[k], lin_c[k] = c[k], 0.0
+    shape = jerk_switch.shapes(np.arange(n + 1) * ds, m.v, rest_c, lin_c, code)
+    on = code > 0
+    return bool(np.all(shape.ok[on]) and np.allclose(shape.jerk[on], jerk, rtol=1e-4))
+
+
 def closed_form_moves(problem: SpeedProblem, rest: np.ndarray, allowed,
                       envelope) -> MoveSteps | None:
     """The moves between consecutive ``rest`` nodes planned as their closed form (module
@@ -260,6 +281,7 @@ def closed_form_moves(problem: SpeedProblem, rest: np.ndarray, allowed,
     may reach from the moving nodes of their steps next to rest
     (:func:`curvespeed.jerk_model.rest_step_allowed_accel`), ``envelope()`` the jerk-free
     envelope's speeds (:func:`curvespeed.launch_steps.lazy_envelope`). None if none is."""
+    jerk, ds = problem.limits.max_jerk_mps3, problem.ds
     n_steps, nv = problem.n_nodes - 1, problem.n_nodes - (1 if problem.closed else 0)
     idx = np.flatnonzero(rest[:nv])
     pairs = list(zip(idx[:-1], idx[1:]))
@@ -288,7 +310,7 @@ def closed_form_moves(problem: SpeedProblem, rest: np.ndarray, allowed,
         if m is None or not _fits(problem, nodes, m, env_v[nodes]):
             continue
         kinds = classify_steps(m)
-        if kinds is None:
+        if kinds is None or not _readable(m, *kinds, ds, jerk):
             continue
         _set_move(out, problem, nodes, steps, m, *kinds)
         planned.append(steps)
