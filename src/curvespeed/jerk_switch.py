@@ -36,6 +36,11 @@ from . import rest_step
 #: the step's speed change and distance (relative) and still count as a switching step:
 #: rounding of a file's 9-decimal stations, speeds and times.
 TOLERANCE = 1e-6
+#: Below this (relative, as :data:`TOLERANCE`) a step's departure from constant acceleration
+#: is taken as none before any switch is looked for: about the file's rounding. Between the
+#: two a switch that fits is preferred: a hold that leaves its cap with 3 ms of ``-J`` at
+#: 25 m/s (1e-7 of the speed) was read as constant and ended 2.3e-3 m/s^2 off the motion.
+CONSTANT_TOLERANCE = 1e-9
 
 #: The switching patterns, by code: the jerk's signs piece by piece, in rising orientation
 #: (code 0: no switch). A launch turning below its cap rises then falls (``TURN``); one
@@ -95,7 +100,7 @@ def solve_shape(ds, v0, v1, duration, a0, code=TURN):
         d1 = v1[i] - v0[i] - a0[i] * T[i]
         d2 = ds[i] - v0[i] * T[i] - 0.5 * a0[i] * T[i] ** 2
         scale_v, scale_d = max(abs(v1[i] - v0[i]), abs(v0[i]), 1e-12), ds[i]
-        if abs(d1) <= TOLERANCE * scale_v and abs(d2) <= TOLERANCE * scale_d:
+        if abs(d1) <= CONSTANT_TOLERANCE * scale_v and abs(d2) <= CONSTANT_TOLERANCE * scale_d:
             ok[i] = True                                      # constant acceleration a0
             continue
         p, q = s1[i], s2[i]
@@ -118,6 +123,8 @@ def solve_shape(ds, v0, v1, duration, a0, code=TURN):
                 best = (x, max(j, 0.0))
         if best is not None:
             x_out[i], j_out[i], ok[i] = best[0], best[1], True
+        elif abs(d1) <= TOLERANCE * scale_v and abs(d2) <= TOLERANCE * scale_d:
+            ok[i] = True                            # constant acceleration a0, to rounding
     return x_out, j_out, ok
 
 
@@ -380,7 +387,7 @@ def accel_points(shape: SwitchShapes, k, duration):
     return times, values
 
 
-__all__ = ["FALL_HOLD", "HOLD_FALL", "PATTERNS", "RISE_HOLD", "RISE_HOLD_FALL", "TOLERANCE",
+__all__ = ["CONSTANT_TOLERANCE", "FALL_HOLD", "HOLD_FALL", "PATTERNS", "RISE_HOLD", "RISE_HOLD_FALL", "TOLERANCE",
            "TURN",
            "SwitchShapes", "accel_points", "driven_state_at_time", "driven_time_at_distance",
            "pattern_code", "shapes", "solve_rise_hold_fall", "solve_shape", "state_at_time",
