@@ -31,14 +31,14 @@ its tolerance (:func:`snap_to_closed_form`). Nothing here reads or writes files.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from functools import lru_cache
 from typing import TYPE_CHECKING
 
 import numpy as np
 
 from . import jerk_switch, rest_step
-from .launch_motion import JerkPieces
+from .launch_motion import JerkPieces, accel_phase
 
 if TYPE_CHECKING:
     from .problem import SpeedProblem
@@ -63,15 +63,19 @@ class MoveSteps:
     switch: np.ndarray
     b: np.ndarray
     bases: dict
-    steps: np.ndarray
+
+    @property
+    def steps(self) -> np.ndarray:
+        """The steps of the moves planned so."""
+        return np.flatnonzero(~np.isnan(self.time_coef))
 
 
 def phase(v_peak: float, accel: float, jerk: float) -> tuple[float, float]:
     """The jerk ramp's and the hold's durations of an acceleration phase from rest to
-    ``v_peak`` (acceleration 0 there) within ``accel`` and ``jerk``."""
-    if v_peak * jerk >= accel * accel:
-        return accel / jerk, v_peak / accel - accel / jerk
-    return math.sqrt(v_peak / jerk), 0.0
+    ``v_peak`` (acceleration 0 there) within ``accel`` and ``jerk``: the closed form's phase of
+    a move long enough to reach ``v_peak`` (:func:`curvespeed.launch_motion.accel_phase`)."""
+    tj, ta = accel_phase(math.inf, v_peak, accel, jerk)
+    return tj, ta - 2.0 * tj
 
 
 def _phase_length(v_peak: float, accel: float, jerk: float) -> float:
@@ -303,9 +307,7 @@ def closed_form_moves(problem: SpeedProblem, rest: np.ndarray, allowed,
         return None
     out = MoveSteps(np.full(n_steps, np.nan), np.full(n_steps, np.nan),
                     np.full(n_steps, np.nan), np.full(n_steps, np.nan),
-                    np.zeros(n_steps, dtype=int), np.full(problem.n_nodes, np.nan), {},
-                    np.zeros(0, dtype=int))
-    planned = []
+                    np.zeros(n_steps, dtype=int), np.full(problem.n_nodes, np.nan), {})
     r0s, r1s = np.array([p[0] for p in pairs]), np.array([p[1] for p in pairs])
     caps = allowed(np.concatenate(((r0s + 1) % nv, (r1s - 1) % nv)),
                    np.concatenate((np.ones(r0s.size, bool), np.zeros(r1s.size, bool))))
@@ -322,10 +324,7 @@ def closed_form_moves(problem: SpeedProblem, rest: np.ndarray, allowed,
         if kinds is None or not _readable(m, *kinds, ds, jerk):
             continue
         _set_move(out, problem, nodes, steps, m, *kinds)
-        planned.append(steps)
-    if not planned:
-        return None
-    return replace(out, steps=np.concatenate(planned))
+    return out if out.steps.size else None
 
 
 def _set_move(out: MoveSteps, problem: SpeedProblem, nodes, steps, m: _Motion,

@@ -187,8 +187,6 @@ def _with_moves(problem: SpeedProblem, moves, cap: np.ndarray, source: np.ndarra
         source[on & (moves.b > 0.0)] = "jerk_launch"
         move_bases = moves.bases
         bases = {node: base for node, base in bases.items() if node not in move_bases}
-        if problem.closed:
-            cap[-1], source[-1] = cap[0], source[0]
     terms = jerk_time_terms(problem.n_nodes, problem.closed, u, f_start)
     node_scale = scale_for_bases(problem, terms, bases) if bases else None
     if move_bases:

@@ -296,7 +296,10 @@ def shapes(station_m, speed_mps, rest_time_coef, linear_time_coef, code) -> Swit
         a0 = np.where(v[slower[k]] <= 0.0, 0.0, np.where(backwards[k], -a_node, a_node))
         v0 = np.where(backwards[k], v[k + 1], v[k])
         v1 = np.where(backwards[k], v[k], v[k + 1])
-        x, j, ok = solve_shape(ds[k], v0, v1, duration[k], a0, code[k])
+        x, j, ok = np.full(k.size, 0.5), np.zeros(k.size), np.zeros(k.size, dtype=bool)
+        t2 = np.flatnonzero(~three[k])
+        x[t2], j[t2], ok[t2] = solve_shape(ds[k[t2]], v0[t2], v1[t2], duration[k[t2]], a0[t2],
+                                           code[k[t2]])
         x2 = np.ones(k.size)
         t3 = np.flatnonzero(three[k])
         if t3.size:
@@ -387,9 +390,8 @@ def accel_points(shape: SwitchShapes, k, duration):
     return times, values
 
 
-__all__ = ["CONSTANT_TOLERANCE", "FALL_HOLD", "HOLD_FALL", "PATTERNS", "RISE_HOLD", "RISE_HOLD_FALL", "TOLERANCE",
-           "TURN",
-           "SwitchShapes", "accel_points", "driven_state_at_time", "driven_time_at_distance",
-           "pattern_code", "shapes", "solve_rise_hold_fall", "solve_shape", "state_at_time",
-           "step_shape",
+__all__ = ["CONSTANT_TOLERANCE", "FALL_HOLD", "HOLD_FALL", "PATTERNS", "RISE_HOLD",
+           "RISE_HOLD_FALL", "TOLERANCE", "TURN", "SwitchShapes", "accel_points",
+           "driven_state_at_time", "driven_time_at_distance", "pattern_code", "shapes",
+           "solve_rise_hold_fall", "solve_shape", "state_at_time", "step_shape",
            "time_at_distance", "timed_at_jerk"]

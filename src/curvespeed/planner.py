@@ -110,12 +110,13 @@ def plan_profile(geometry: Geometry, limits: Limits,
     v = d["speed_mps"]
     model_rest = np.where(np.isnan(problem.rest_u), 0.0, problem.time_coef)
     model_linear = linear_time_coef(problem)
-    rest_coef, linear, turn = _switch_steps(problem, v, model_rest, model_linear, snapped)
-    time_s = d["time_s"]
-    if turn is not None:    # the turn steps' time as driven; every other step's is the model's
+    rest_coef, linear, switch = _switch_steps(problem, v, model_rest, model_linear, snapped)
+    # the steps retimed or rewritten there take their own time; every other step the model's
+    with np.errstate(divide="ignore", invalid="ignore"):
         step_s = np.diff(problem.station_m) / (v[:-1] + v[1:])
-        moved = (rest_coef + linear) - (model_rest + model_linear)
-        time_s = time_s + np.concatenate(([0.0], np.cumsum(moved * step_s)))
+    moved = (rest_coef + linear) - (model_rest + model_linear)
+    time_s = d["time_s"] + np.concatenate(([0.0], np.cumsum(np.where(moved != 0.0,
+                                                                      moved * step_s, 0.0))))
     return Profile(
         geometry=geometry,
         speed_mps=v,
@@ -132,7 +133,7 @@ def plan_profile(geometry: Geometry, limits: Limits,
         extremes=check.extremes,
         envelope_time_s=envelope_time,
         linear_time_coef=linear,
-        switch_step=turn,
+        switch_step=switch,
     )
 
 

@@ -155,8 +155,9 @@ def linear_accel_step(ds, v0, v1, duration):
     time) from ``v0`` to ``v1`` over ``ds`` in ``duration`` seconds: ``v1 = v0 + a0 T + J T^2 /
     2`` and ``ds = v0 T + a0 T^2 / 2 + J T^3 / 6`` give ``J = 12 (T (v0 + v1) / 2 - ds) / T^3``
     and ``a0 = (v1 - v0) / T - J T / 2``. A step at constant acceleration is the case ``J = 0``;
-    with ``T = c ds / (v0 + v1)`` and ``c`` in [2, 3] the speed stays between 0 and the larger
-    end's (in Bernstein form its middle coefficient is ``(3 / c - 1) (v0 + v1) >= 0``)."""
+    with ``T = c ds / (v0 + v1)`` the speed stays at least 0 for ``c <= 3`` (in Bernstein form
+    its middle coefficient is ``(3 / c - 1) (v0 + v1) >= 0``); below 2 it is concave in time
+    and may peak inside the step (a move's top speed)."""
     T = np.asarray(duration, dtype=float)
     v0, v1 = np.asarray(v0, dtype=float), np.asarray(v1, dtype=float)
     jerk = 12.0 * (0.5 * T * (v0 + v1) - ds) / T ** 3

@@ -71,8 +71,9 @@ class StationProfile:
         For each step next to rest driven with a jerk ramp, the ``c`` of its time ``c ds / v``
         (between 2 and 3, see :mod:`curvespeed.export`); 0 for the other steps.
     linear_time_coef : ndarray, shape (n,)
-        For each step away from rest driven at constant jerk (the steps a launch's or a stop's
-        jerk ramp spans), the ``c`` of its time ``c ds / (v[k] + v[k+1])``, between 2 and 3
+        For each step driven at constant jerk (the steps a launch's or a stop's jerk ramp
+        spans, a move planned as its closed form) or with a switch of its jerk
+        (:attr:`switch_step`), the ``c`` of its time ``c ds / (v[k] + v[k+1])``, in (0, 3]
         (:func:`curvespeed.rest_step.linear_accel_step`); 0 for the other steps.
     curvature_bound_1pm : ndarray or None
         The bound on |curvature| the profile was planned on (1/m), where it has one; figures

@@ -48,14 +48,15 @@ def state_at_time(sp: StationProfile, k, tau):
     d = np.where(leaving, d_r, np.where(arriving, ds - d_r, d))
     v = np.where(ramp, v_r, v)
     acc = np.where(leaving, a_r, np.where(arriving, -a_r, acc))
-    linear, turn = _moving_kinds(sp, k)
-    if linear.any() or turn.any():
+    linear, switch = _moving_kinds(sp, k)
+    if linear.any() or switch.any():
         d, v, acc = d.copy(), v.copy(), np.broadcast_to(acc, d.shape).copy()
         d[linear], v[linear], acc[linear] = rest_step.linear_state_at_time(
             ds[linear], v0[linear], v1[linear], T[linear], tau[linear])
-        if turn.any():
-            d[turn], v[turn], acc[turn] = jerk_switch.driven_state_at_time(
-                sp.switch_shapes, k[turn], ds[turn], v0[turn], v1[turn], T[turn], tau[turn])
+        if switch.any():
+            d[switch], v[switch], acc[switch] = jerk_switch.driven_state_at_time(
+                sp.switch_shapes, k[switch], ds[switch], v0[switch], v1[switch], T[switch],
+                tau[switch])
     at_end = tau >= T
     d = np.clip(np.where(at_end, ds, d), 0.0, ds)
     v = np.where(at_end, v1, np.maximum(v, 0.0))
@@ -81,15 +82,16 @@ def state_at_distance(sp: StationProfile, k, d):
     tau = np.where(leaving, t_r, np.where(arriving, T - t_r, tau))
     v = np.where(ramp, v_r, v)
     acc = np.where(leaving, a_r, np.where(arriving, -a_r, acc))
-    linear, turn = _moving_kinds(sp, k)
-    if linear.any() or turn.any():
+    linear, switch = _moving_kinds(sp, k)
+    if linear.any() or switch.any():
         tau, v, acc = tau.copy(), v.copy(), np.broadcast_to(acc, tau.shape).copy()
         args = ds[linear], v0[linear], v1[linear], T[linear]
         tau[linear] = rest_step.linear_time_at_distance(*args, d[linear])
         _, v[linear], acc[linear] = rest_step.linear_state_at_time(*args, tau[linear])
-        if turn.any():
-            tau[turn], v[turn], acc[turn] = jerk_switch.driven_time_at_distance(
-                sp.switch_shapes, k[turn], ds[turn], v0[turn], v1[turn], T[turn], d[turn])
+        if switch.any():
+            tau[switch], v[switch], acc[switch] = jerk_switch.driven_time_at_distance(
+                sp.switch_shapes, k[switch], ds[switch], v0[switch], v1[switch], T[switch],
+                d[switch])
     return tau, v, np.asarray(acc, dtype=float)
 
 
@@ -97,9 +99,9 @@ def _moving_kinds(sp: StationProfile, k):
     """Which of steps ``k`` are driven at constant jerk (``linear_accel``) and which through
     with one switch of the jerk (:mod:`curvespeed.jerk_switch`; timed like the first, but only
     the second's motion is computed for them)."""
-    turn = (np.zeros(np.shape(k), dtype=bool) if sp.switch_step is None
-            else sp.switch_step[k] > 0)
-    return sp.linear_step[k] & ~turn, turn
+    switch = (np.zeros(np.shape(k), dtype=bool) if sp.switch_step is None
+              else sp.switch_step[k] > 0)
+    return sp.linear_step[k] & ~switch, switch
 
 
 __all__ = ["state_at_distance", "state_at_time"]

@@ -111,8 +111,9 @@ class StepKind(enum.Enum):
     #: ``time_s``), see :mod:`curvespeed.rest_step`.
     JERK_RAMP = "jerk_ramp"
     #: Only away from rest: the acceleration linear in time over the step (constant jerk); the
-    #: step takes ``c ds / (v[k] + v[k+1])`` with ``c`` in [2, 3] read from ``time_s``, see
-    #: :func:`curvespeed.rest_step.linear_accel_step`.
+    #: step takes ``c ds / (v[k] + v[k+1])`` with ``c`` up to 3 read from ``time_s`` (below 2
+    #: where the acceleration falls, the speed peaking inside the step through a move's top
+    #: speed), see :func:`curvespeed.rest_step.linear_accel_step`.
     LINEAR_ACCEL = "linear_accel"
     #: The jerk switches once inside the step; timed like ``linear_accel``. Read from its
     #: slower node (backwards where its speed falls), it starts with the acceleration there of
